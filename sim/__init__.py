@@ -1,0 +1,43 @@
+"""supergame: tacit-collusion analysis for oligopoly markets.
+
+The flat namespace re-exports the public API; submodules load on first use so that the command
+line starts quickly (numba and matplotlib are imported only by the commands that need them).
+"""
+
+from __future__ import annotations
+
+import importlib
+
+__version__ = "0.1.0"
+
+_EXPORTS = {
+    "demand": ["DifferentiatedDemand", "IsoelasticDemand", "LinearDemand", "LogitDemand"],
+    "market": ["Market", "MarketSpec", "market_from_dict"],
+    "errors": ["InputError", "SolverError", "SupergameError"],
+    "equilibrium": [
+        "Outcome", "StageGame", "best_deviation", "best_response", "collusive_outcome", "minmax",
+        "stage_game", "static_nash",
+    ],
+    "thresholds": [
+        "PartialCollusion", "SchemeThreshold", "StickCarrot", "ThresholdReport", "finite_threshold",
+        "grim_threshold", "partial_collusion", "stick_and_carrot", "threshold_sensitivity", "thresholds",
+    ],
+    "trigger_price": [
+        "TriggerPriceScheme", "price_war_statistics", "trigger_price_equilibrium", "trigger_price_scheme",
+    ],
+}
+_WHERE = {name: mod for mod, names in _EXPORTS.items() for name in names}
+__all__ = sorted(_WHERE)
+
+
+def __getattr__(name: str):
+    mod = _WHERE.get(name)
+    if mod is None:
+        raise AttributeError(f"module 'sim' has no attribute {name!r}")
+    value = getattr(importlib.import_module(f".{mod}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(__all__))

@@ -1,0 +1,47 @@
+"""Plain-text tables for the command line."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+
+def fmt_num(x, digits: int = 4, missing: str = "-") -> str:
+    """A number for a table: ``missing`` for None/nan, fixed or scientific as fits."""
+    if x is None:
+        return missing
+    if isinstance(x, bool):
+        return "yes" if x else "no"
+    if isinstance(x, int):
+        return str(x)
+    try:
+        v = float(x)
+    except (TypeError, ValueError):
+        return str(x)
+    if math.isnan(v):
+        return missing
+    if math.isinf(v):
+        return "inf" if v > 0 else "-inf"
+    if v != 0 and (abs(v) >= 1e6 or abs(v) < 10 ** (-digits)):
+        return f"{v:.{digits}g}"
+    return f"{v:.{digits}f}"
+
+
+def table(headers: Sequence[str], rows: Sequence[Sequence], align: str | None = None) -> str:
+    """Aligned text table. ``align``: one character per column, 'l' or 'r' (default: first l, rest r)."""
+    cells = [[str(h) for h in headers]] + [[c if isinstance(c, str) else fmt_num(c) for c in r] for r in rows]
+    widths = [max(len(r[j]) for r in cells) for j in range(len(headers))]
+    align = align or ("l" + "r" * (len(headers) - 1))
+    lines = []
+    for k, r in enumerate(cells):
+        parts = [c.ljust(w) if a == "l" else c.rjust(w) for c, w, a in zip(r, widths, align)]
+        lines.append("  ".join(parts).rstrip())
+        if k == 0:
+            lines.append("  ".join("-" * w for w in widths))
+    return "\n".join(lines)
+
+
+CAUTION = (
+    "Model results are evidence under the stated assumptions, not proof of conduct or a finding of fact; "
+    "defer to the applicable law and to qualified practitioners."
+)

@@ -1,0 +1,359 @@
+"""Demand systems.
+
+A demand system maps actions to quantities and prices. It knows nothing about costs or firms'
+objectives: :class:`sim.market.Market` combines a demand system with marginal costs, capacities and a
+mode of competition.
+
+Every function here works on arrays of action profiles of shape ``(..., n_firms)`` and is plain numpy:
+these are the readable definitions. The simulation kernels use a numba twin
+(:mod:`sim._stagecore`) that is tested against this module.
+
+Shipped systems
+---------------
+LinearDemand
+    Homogeneous good, ``P(Q) = max(0, intercept - slope * Q)``. Quantity or price competition.
+DifferentiatedDemand
+    Linear demand for n differentiated products from the standard representative consumer with
+    quadratic utility ``U(q) = sum_i a_i q_i - (b/2) (sum_i q_i^2 + g sum_{i != j} q_i q_j)``
+    (Shubik and Levitan, 1980; Singh and Vives, 1984, for two goods). Inverse demand
+    ``p_i = a_i - b (q_i + g sum_{j != i} q_j)``. Under price competition, direct demand respects
+    ``q >= 0``: a product priced above its choke price sells nothing and drops out of the others'
+    demand (the consumer's utility maximisation over ``q >= 0``, solved as a linear complementarity
+    problem).
+LogitDemand
+    Multinomial logit with an outside good: ``s_i = exp((a_i - p_i)/mu) / (sum_j exp((a_j - p_j)/mu)
+    + exp(a_0/mu))`` and ``q_i = size * s_i``. Price competition.
+IsoelasticDemand
+    Homogeneous good with constant elasticity: ``P(Q) = scale * Q**(-1/elasticity)``. Quantity
+    competition.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ._params import Parametrized, PerFirm, Real, optional
+from .errors import InputError, SolverError
+
+__all__ = [
+    "DEMAND_TYPES",
+    "Demand",
+    "DifferentiatedDemand",
+    "IsoelasticDemand",
+    "LinearDemand",
+    "LogitDemand",
+]
+
+# Codes shared with the numba core (sim._stagecore). One code per (demand, mode) pair.
+CODE_LINEAR_COURNOT = 0
+CODE_LINEAR_BERTRAND = 1
+CODE_DIFF_COURNOT = 2
+CODE_DIFF_BERTRAND = 3
+CODE_LOGIT_BERTRAND = 4
+CODE_ISO_COURNOT = 5
+
+
+@dataclass(frozen=True)
+class DemandSpec:
+    """Validated, numeric form of a demand system for a given number of firms.
+
+    Attributes
+    ----------
+    kind : str
+        ``"linear"``, ``"differentiated"``, ``"logit"`` or ``"isoelastic"``.
+    scalars : ndarray of shape (4,)
+        Scalar parameters in the layout the numba core expects (see each class).
+    vector : ndarray of shape (n_firms,)
+        The per-firm parameter (intercepts, qualities or tie-sharing weights).
+    """
+
+    kind: str
+    scalars: np.ndarray
+    vector: np.ndarray
+
+
+class Demand(Parametrized):
+    """Base class of demand systems."""
+
+    #: modes of competition the system supports
+    models: tuple[str, ...] = ()
+    #: name used in experiment files and on the command line
+    name: str = ""
+
+    def spec(self, n_firms: int, prefix: str = "market") -> DemandSpec:  # pragma: no cover
+        raise NotImplementedError
+
+
+class LinearDemand(Demand):
+    """Linear demand for a homogeneous good: ``P(Q) = max(0, intercept - slope * Q)``.
+
+    Parameters
+    ----------
+    intercept : float
+        Choke price (> 0).
+    slope : float
+        Slope of inverse demand (> 0).
+    split : list of float, optional
+        Price competition only: when several firms tie at the lowest price they share the market in
+        proportion to these weights (default: equally). A market-sharing agreement at a common price
+        is written this way.
+    """
+
+    models = ("cournot", "bertrand")
+    name = "linear"
+    _constraints = {
+        "intercept": Real(0, None, closed="neither"),
+        "slope": Real(0, None, closed="neither"),
+        "split": optional(PerFirm(Real(0, None, closed="neither"), broadcast=False)),
+    }
+
+    def __init__(self, intercept=10.0, slope=1.0, split=None):
+        self.intercept = intercept
+        self.slope = slope
+        self.split = split
+
+    def spec(self, n_firms, prefix="market"):
+        p = self._check_params(prefix, n_firms)
+        split = p["split"] if p["split"] is not None else np.ones(n_firms)
+        return DemandSpec("linear", np.array([p["intercept"], p["slope"], 0.0, 0.0]), split)
+
+
+class DifferentiatedDemand(Demand):
+    """Linear demand for differentiated products (representative consumer, quadratic utility).
+
+    Parameters
+    ----------
+    intercept : float or list of float
+        Demand intercept ``a_i`` of each product (> 0): its choke price when the others sell nothing.
+    slope : float
+        Own-quantity slope ``b`` of inverse demand (> 0).
+    substitution : float
+        Substitutability ``g`` in [0, 1]: 0 independent products, 1 perfect substitutes. Price
+        competition needs ``g < 1``: use :class:`LinearDemand` for a homogeneous good.
+    """
+
+    models = ("cournot", "bertrand")
+    name = "differentiated"
+    _constraints = {
+        "intercept": PerFirm(Real(0, None, closed="neither")),
+        "slope": Real(0, None, closed="neither"),
+        "substitution": Real(0, 1),
+    }
+
+    def __init__(self, intercept=10.0, slope=1.0, substitution=0.5):
+        self.intercept = intercept
+        self.slope = slope
+        self.substitution = substitution
+
+    def spec(self, n_firms, prefix="market"):
+        p = self._check_params(prefix, n_firms)
+        return DemandSpec(
+            "differentiated", np.array([p["slope"], p["substitution"], 0.0, 0.0]), p["intercept"]
+        )
+
+
+class LogitDemand(Demand):
+    """Multinomial logit demand with an outside good.
+
+    Parameters
+    ----------
+    quality : float or list of float
+        Quality index ``a_i`` of each product.
+    outside : float
+        Quality index ``a_0`` of the outside good.
+    mu : float
+        Horizontal differentiation (> 0); products become perfect substitutes as ``mu -> 0``.
+    size : float
+        Market size: quantities are ``size`` times shares.
+    """
+
+    models = ("bertrand",)
+    name = "logit"
+    _constraints = {
+        "quality": PerFirm(Real(None, None)),
+        "outside": Real(None, None),
+        "mu": Real(0, None, closed="neither"),
+        "size": Real(0, None, closed="neither"),
+    }
+
+    def __init__(self, quality=2.0, outside=0.0, mu=0.25, size=1.0):
+        self.quality = quality
+        self.outside = outside
+        self.mu = mu
+        self.size = size
+
+    def spec(self, n_firms, prefix="market"):
+        p = self._check_params(prefix, n_firms)
+        return DemandSpec("logit", np.array([p["outside"], p["mu"], p["size"], 0.0]), p["quality"])
+
+
+class IsoelasticDemand(Demand):
+    """Constant-elasticity demand for a homogeneous good: ``P(Q) = scale * Q**(-1/elasticity)``.
+
+    Parameters
+    ----------
+    scale : float
+        Price at ``Q = 1`` (> 0).
+    elasticity : float
+        Absolute price elasticity of demand, > 1 (the joint-profit maximum does not exist otherwise).
+    """
+
+    models = ("cournot",)
+    name = "isoelastic"
+    _constraints = {
+        "scale": Real(0, None, closed="neither"),
+        "elasticity": Real(1, None, closed="neither"),
+    }
+
+    def __init__(self, scale=1.0, elasticity=2.0):
+        self.scale = scale
+        self.elasticity = elasticity
+
+    def spec(self, n_firms, prefix="market"):
+        if isinstance(self.elasticity, int | float) and not isinstance(self.elasticity, bool):
+            if self.elasticity < 0:
+                raise InputError(
+                    f"{prefix}.elasticity",
+                    f"give the absolute value of the price elasticity (a number > 1), got {self.elasticity!r}",
+                )
+        p = self._check_params(prefix, n_firms)
+        return DemandSpec("isoelastic", np.array([p["scale"], p["elasticity"], 0.0, 0.0]), np.ones(n_firms))
+
+
+DEMAND_TYPES: dict[str, type[Demand]] = {
+    cls.name: cls for cls in (LinearDemand, DifferentiatedDemand, LogitDemand, IsoelasticDemand)
+}
+
+
+# --------------------------------------------------------------------------------------------------
+# Vectorised evaluation (numpy). ``s`` is a DemandSpec; arrays have shape (..., n).
+# --------------------------------------------------------------------------------------------------
+
+
+def inverse_demand(s: DemandSpec, q: np.ndarray) -> np.ndarray:
+    """Prices of each firm's product given quantities, shape (..., n). Quantity competition."""
+    q = np.asarray(q, dtype=float)
+    if s.kind == "linear":
+        a, b = s.scalars[0], s.scalars[1]
+        p = np.maximum(0.0, a - b * q.sum(axis=-1, keepdims=True))
+        return np.broadcast_to(p, q.shape).copy()
+    if s.kind == "differentiated":
+        b, g = s.scalars[0], s.scalars[1]
+        tot = q.sum(axis=-1, keepdims=True)
+        return np.maximum(0.0, s.vector - b * ((1.0 - g) * q + g * tot))
+    if s.kind == "isoelastic":
+        A, eps = s.scalars[0], s.scalars[1]
+        Q = q.sum(axis=-1, keepdims=True)
+        with np.errstate(divide="ignore"):
+            p = np.where(Q > 0, A * np.power(np.where(Q > 0, Q, 1.0), -1.0 / eps), np.inf)
+        return np.broadcast_to(p, q.shape).copy()
+    raise ValueError(f"inverse demand undefined for {s.kind}")
+
+
+def direct_demand(s: DemandSpec, p: np.ndarray) -> np.ndarray:
+    """Quantities sold by each firm given prices, shape (..., n). Price competition."""
+    p = np.asarray(p, dtype=float)
+    if s.kind == "linear":
+        a, b = s.scalars[0], s.scalars[1]
+        pmin = p.min(axis=-1, keepdims=True)
+        at_min = p == pmin
+        w = np.where(at_min, s.vector, 0.0)
+        share = w / w.sum(axis=-1, keepdims=True)
+        return share * np.maximum(0.0, (a - pmin) / b)
+    if s.kind == "differentiated":
+        return _lcp_demand(s.vector, s.scalars[0], s.scalars[1], p)
+    if s.kind == "logit":
+        a0, mu, size = s.scalars[0], s.scalars[1], s.scalars[2]
+        u = (s.vector - p) / mu
+        u0 = np.full(p.shape[:-1] + (1,), a0 / mu)
+        top = np.maximum(u.max(axis=-1, keepdims=True), u0)
+        e = np.exp(u - top)
+        denom = e.sum(axis=-1, keepdims=True) + np.exp(u0 - top)
+        return size * e / denom
+    raise ValueError(f"direct demand undefined for {s.kind}")
+
+
+def logit_outside_share(s: DemandSpec, p: np.ndarray) -> np.ndarray:
+    """Share of the outside good under logit demand, shape (...,)."""
+    a0, mu = s.scalars[0], s.scalars[1]
+    u = (s.vector - np.asarray(p, dtype=float)) / mu
+    u0 = np.full(u.shape[:-1] + (1,), a0 / mu)
+    top = np.maximum(u.max(axis=-1, keepdims=True), u0)
+    e = np.exp(u - top)
+    e0 = np.exp(u0 - top)
+    return (e0 / (e.sum(axis=-1, keepdims=True) + e0))[..., 0]
+
+
+def consumer_surplus(s: DemandSpec, q: np.ndarray, p: np.ndarray) -> np.ndarray:
+    """Consumer surplus at quantities ``q`` and prices ``p``, shape (...,).
+
+    Linear: area under demand above the price. Differentiated: ``U(q) - p.q`` of the representative
+    consumer. Logit: ``size * mu * (log(sum_j exp((a_j - p_j)/mu) + exp(a_0/mu)) - a_0/mu)``, the
+    expected surplus relative to buying only the outside good (Small and Rosen, 1981). Isoelastic:
+    ``P Q / (elasticity - 1)``, finite because the elasticity exceeds one.
+    """
+    q = np.asarray(q, dtype=float)
+    p = np.asarray(p, dtype=float)
+    if s.kind == "linear":
+        a, b = s.scalars[0], s.scalars[1]
+        Q = q.sum(axis=-1)
+        pm = np.minimum(p.min(axis=-1), a)
+        return 0.5 * (a - pm) * np.minimum(Q, np.maximum(0.0, (a - pm) / b))
+    if s.kind == "differentiated":
+        b, g = s.scalars[0], s.scalars[1]
+        tot = q.sum(axis=-1)
+        sq = (q * q).sum(axis=-1)
+        util = (s.vector * q).sum(axis=-1) - 0.5 * b * ((1.0 - g) * sq + g * tot * tot)
+        return util - (p * q).sum(axis=-1)
+    if s.kind == "logit":
+        a0, mu, size = s.scalars[0], s.scalars[1], s.scalars[2]
+        u = (s.vector - p) / mu
+        u0 = np.full(u.shape[:-1] + (1,), a0 / mu)
+        allu = np.concatenate([u, u0], axis=-1)
+        top = allu.max(axis=-1, keepdims=True)
+        lse = (top + np.log(np.exp(allu - top).sum(axis=-1, keepdims=True)))[..., 0]
+        return size * mu * (lse - a0 / mu)
+    if s.kind == "isoelastic":
+        eps = s.scalars[1]
+        Q = q.sum(axis=-1)
+        P = np.where(Q > 0, p[..., 0], 0.0)
+        return np.where(Q > 0, P * Q / (eps - 1.0), 0.0)
+    raise ValueError(s.kind)
+
+
+def _lcp_demand(a: np.ndarray, b: float, g: float, p: np.ndarray, tol: float = 1e-12) -> np.ndarray:
+    """Direct demand of the differentiated linear system with ``q >= 0``.
+
+    Solves, for every row of ``p``, the linear complementarity problem ``w = p - a + b B q``,
+    ``q >= 0``, ``w >= 0``, ``q.w = 0`` with ``B = (1-g) I + g 11'``. ``B`` is positive definite for
+    ``g < 1``, so the solution is unique, and Murty's least-index principal pivoting method
+    (Murty, 1974, "Note on a Bard-type scheme for solving the complementarity problem") reaches it in
+    finitely many flips from any start. On an active set S of size k the system has the closed form
+    ``q_S = (d_S - g/(1 + (k-1) g) * sum_S d) / (b (1-g))`` with ``d = a - p``.
+    """
+    p = np.asarray(p, dtype=float)
+    shape = p.shape
+    n = shape[-1]
+    P = p.reshape(-1, n)
+    d = a[None, :] - P
+    active = d > 0
+    scale = max(1.0, float(np.abs(a).max()))
+    q = np.zeros_like(P)
+    rows = np.arange(P.shape[0])
+    for _ in range(4 * n * n + 50):
+        k = active.sum(axis=1)
+        dsum = np.where(active, d, 0.0).sum(axis=1)
+        coef = np.where(k > 0, g / (1.0 + (k - 1) * g), 0.0)
+        q = np.where(active, (d - (coef * dsum)[:, None]) / (b * (1.0 - g)), 0.0)
+        tot = q.sum(axis=1, keepdims=True)
+        w = P - a[None, :] + b * ((1.0 - g) * q + g * tot)
+        bad = (active & (q < -tol * scale / b)) | (~active & (w < -tol * scale))
+        todo = bad.any(axis=1)
+        if not todo.any():
+            return np.maximum(q, 0.0).reshape(shape)
+        first = np.argmax(bad, axis=1)
+        r = rows[todo]
+        active[r, first[todo]] = ~active[r, first[todo]]
+    raise SolverError("differentiated demand: complementarity pivoting did not terminate")

@@ -1,0 +1,832 @@
+"""Static solutions of the stage game.
+
+* :func:`best_response` -- a firm's profit-maximising action against given rival actions.
+* :func:`static_nash` -- the static Nash equilibrium: closed form where one exists, otherwise a
+  best-response iteration that certifies its own convergence (every firm's global best response is
+  checked at the end) and raises :class:`~sim.errors.SolverError` when it cannot.
+* :func:`collusive_outcome` -- the outcome the firms agree on: the joint-profit maximum, the best
+  symmetric outcome (a common quantity or price), quantities proportional to the static-Nash ones,
+  or actions the user gives.
+* :func:`best_deviation` -- each firm's best one-shot deviation against the others' agreed actions.
+* :func:`minmax` -- each firm's minmax payoff (the least the rivals can hold it to).
+* :func:`stage_game` -- all of the above in one object, the input of :mod:`sim.thresholds`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import optimize
+
+from .demand import direct_demand, logit_outside_share
+from .errors import InputError, SolverError
+from .market import Market, MarketSpec
+
+__all__ = [
+    "AGREEMENTS",
+    "Outcome",
+    "StageGame",
+    "best_deviation",
+    "best_response",
+    "collusive_outcome",
+    "minmax",
+    "stage_game",
+    "static_nash",
+]
+
+AGREEMENTS = ("joint", "symmetric", "proportional", "given")
+
+
+@dataclass(frozen=True)
+class Outcome:
+    """One action profile with what it produces.
+
+    Attributes
+    ----------
+    actions, quantities, prices, profits : ndarray of shape (n_firms,)
+    """
+
+    actions: np.ndarray
+    quantities: np.ndarray
+    prices: np.ndarray
+    profits: np.ndarray
+
+    @property
+    def joint_profit(self) -> float:
+        return float(self.profits.sum())
+
+    def to_dict(self) -> dict:
+        return {k: getattr(self, k).tolist() for k in ("actions", "quantities", "prices", "profits")}
+
+
+def _spec(market) -> MarketSpec:
+    return market if isinstance(market, MarketSpec) else market.spec()
+
+
+def outcome_of(ms: MarketSpec, actions) -> Outcome:
+    a = np.asarray(actions, dtype=float)
+    q, p, pi = ms.evaluate(a)
+    return Outcome(a.copy(), q, p, pi)
+
+
+# --------------------------------------------------------------------------------------------------
+# Scalar maximisation used by every numeric best response
+# --------------------------------------------------------------------------------------------------
+
+
+def _maximize_scalar(f, lo: float, hi: float, n_grid: int = 65, xtol: float = 1e-13):
+    """Global maximum of a scalar function on ``[lo, hi]``: a grid, then Brent's bounded search
+    between the neighbours of the best grid point. ``f`` takes an array and returns an array."""
+    if hi <= lo:
+        return lo, float(f(np.array([lo]))[0])
+    x = np.linspace(lo, hi, n_grid)
+    y = f(x)
+    k = int(np.argmax(y))
+    a, b = x[max(k - 1, 0)], x[min(k + 1, n_grid - 1)]
+    res = optimize.minimize_scalar(
+        lambda t: -f(np.array([t]))[0], bounds=(a, b), method="bounded",
+        options={"xatol": xtol * max(1.0, abs(hi)), "maxiter": 500},
+    )
+    if -res.fun >= y[k]:
+        return float(res.x), float(-res.fun)
+    return float(x[k]), float(y[k])
+
+
+# --------------------------------------------------------------------------------------------------
+# Best responses
+# --------------------------------------------------------------------------------------------------
+
+
+def best_response(market, i: int, actions) -> tuple[np.ndarray, np.ndarray]:
+    """Firm ``i``'s best response to the rival actions in each profile.
+
+    Parameters
+    ----------
+    market : Market or MarketSpec
+    i : int
+        Index of the responding firm.
+    actions : array_like of shape (..., n_firms)
+        Profiles; entry ``i`` is ignored.
+
+    Returns
+    -------
+    actions : ndarray of shape (...,)
+        The best-response action of firm ``i``.
+    profits : ndarray of shape (...,)
+        Its profit. For homogeneous Bertrand with continuous prices this is the supremum reached by
+        undercutting by an arbitrarily small amount (see :mod:`sim.market`).
+    """
+    ms = _spec(market)
+    a = np.array(actions, dtype=float)
+    shape = a.shape[:-1]
+    A = a.reshape(-1, ms.n_firms)
+    kind = ms.demand.kind
+    if ms.homogeneous_bertrand:
+        x, v = _br_homogeneous_bertrand(ms, i, A)
+    elif kind == "linear":
+        a0, b = ms.demand.scalars[0], ms.demand.scalars[1]
+        rest = A.sum(axis=1) - A[:, i]
+        rest = np.clip(rest, 0, None)
+        x = np.clip((a0 - ms.cost[i] - b * rest) / (2 * b), 0.0, ms.capacity[i])
+        v = _profit_i(ms, i, A, x)
+    elif kind == "differentiated" and ms.quantity_setting:
+        b, g = ms.demand.scalars[0], ms.demand.scalars[1]
+        rest = np.clip(A, 0, ms.capacity).sum(axis=1) - np.clip(A[:, i], 0, ms.capacity[i])
+        x = np.clip((ms.demand.vector[i] - ms.cost[i] - b * g * rest) / (2 * b), 0.0, ms.capacity[i])
+        v = _profit_i(ms, i, A, x)
+    elif kind == "isoelastic":
+        x = np.array([_br_isoelastic(ms, i, row) for row in A])
+        v = _profit_i(ms, i, A, x)
+    elif kind == "logit":
+        x = np.array([_br_logit(ms, i, row) for row in A])
+        v = _profit_i(ms, i, A, x)
+    else:  # differentiated Bertrand: piecewise-quadratic profit with kinks where rivals exit
+        x = np.empty(A.shape[0])
+        v = np.empty(A.shape[0])
+        for r, row in enumerate(A):
+            x[r], v[r] = _br_diff_bertrand(ms, i, row)
+    return x.reshape(shape), v.reshape(shape)
+
+
+def _profit_i(ms: MarketSpec, i: int, A: np.ndarray, x: np.ndarray) -> np.ndarray:
+    B = A.copy()
+    B[:, i] = x
+    return ms.profits(B)[:, i]
+
+
+def _br_isoelastic(ms: MarketSpec, i: int, row: np.ndarray) -> float:
+    A, eps = ms.demand.scalars[0], ms.demand.scalars[1]
+    c = ms.cost[i]
+    R = float(np.clip(row, 0, ms.capacity).sum() - min(max(row[i], 0.0), ms.capacity[i]))
+    if R <= 0:
+        q = (A * (1 - 1 / eps) / c) ** eps
+        return float(min(q, ms.capacity[i]))
+    if A * R ** (-1 / eps) <= c:
+        return 0.0
+
+    def g(q):
+        Q = q + R
+        return A * Q ** (-1 / eps) * (1 - q / (eps * Q)) - c
+
+    hi = (A / c) ** eps - R
+    q = optimize.brentq(g, 0.0, hi, xtol=1e-15 * max(1.0, hi), rtol=1e-15, maxiter=500)
+    return float(min(q, ms.capacity[i]))
+
+
+def _br_logit(ms: MarketSpec, i: int, row: np.ndarray) -> float:
+    # the first-order condition p - c = mu / (1 - s_i(p)) has a unique root because s_i falls in p
+    mu = ms.demand.scalars[1]
+    c = ms.cost[i]
+    size = ms.demand.scalars[2]
+
+    def share(p):
+        prof = row.copy()
+        prof[i] = p
+        return direct_demand(ms.demand, prof[None, :])[0, i] / size
+
+    def h(p):
+        return p - c - mu / (1.0 - share(p))
+
+    s_c = share(c)
+    if s_c >= 1.0:  # pragma: no cover - only with absurd quality gaps
+        raise SolverError(f"logit best response of firm {i + 1}: share at cost is one")
+    hi = c + mu / (1.0 - s_c)
+    if h(hi) <= 0:
+        return hi
+    return float(optimize.brentq(h, c, hi, xtol=1e-15 * max(1.0, hi), rtol=1e-15, maxiter=500))
+
+
+def _br_diff_bertrand(ms: MarketSpec, i: int, row: np.ndarray) -> tuple[float, float]:
+    """Best response under differentiated linear demand with prices.
+
+    Firm i's demand is piecewise linear in its own price (a rival's product drops out of, or
+    re-enters, the market at each kink), so its profit is piecewise quadratic and quasi-concave. A
+    grid-and-Brent search locates the maximum; on the linear piece it falls in, the exact optimum
+    ``p* = (q0 / beta + x0 + c) / 2`` (demand ``q0 - beta (p - x0)``) is taken when it stays on that
+    piece, which gives the answer to machine precision away from kinks."""
+    d = ms.demand
+    b, g = d.scalars[0], d.scalars[1]
+    c = ms.cost[i]
+
+    def f(t):
+        prof = np.repeat(row[None, :], t.size, axis=0)
+        prof[:, i] = t
+        return ms.profits(prof)[:, i]
+
+    x0, v0 = _maximize_scalar(f, c, float(d.vector[i]))
+    prof = row.copy()
+    prof[i] = x0
+    q = direct_demand(d, prof[None, :])[0]
+    if q[i] <= 0:
+        return x0, max(v0, 0.0)
+    S = q > 0
+    k = int(S.sum())
+    theta = g / (1 + (k - 1) * g)
+    beta = (1 - theta) / (b * (1 - g))
+    p_star = 0.5 * (q[i] / beta + x0 + c)
+    prof[i] = p_star
+    q_star = direct_demand(d, prof[None, :])[0]
+    v_star = (p_star - c) * q_star[i]
+    if np.array_equal(q_star > 0, S) and v_star >= v0 - 1e-15 * max(1.0, abs(v0)):
+        return float(p_star), float(v_star)
+    # the optimum sits at a kink: where an active rival's demand reaches zero, or an inactive
+    # rival's product starts to sell; both are linear in p_i on the current piece
+    dq_rival = theta / (b * (1 - g))
+    dtot = (-(1 - theta) + (k - 1) * theta) / (b * (1 - g))
+    prof[i] = x0
+    tot = q.sum()
+    cands = []
+    for j in range(ms.n_firms):
+        if j == i:
+            continue
+        if S[j]:
+            cands.append(x0 - q[j] / dq_rival)
+        elif dtot != 0:
+            w_j = row[j] - d.vector[j] + b * g * tot
+            cands.append(x0 - w_j / (b * g * dtot) if g > 0 else np.inf)
+    near = [p for p in cands if np.isfinite(p) and abs(p - x0) <= 1e-6 * max(1.0, abs(x0))]
+    best_x, best_v = x0, v0
+    for p in near:
+        vp = float(f(np.array([p]))[0])
+        if vp > best_v:
+            best_x, best_v = float(p), vp
+    return best_x, best_v
+
+
+def _br_homogeneous_bertrand(ms: MarketSpec, i: int, A: np.ndarray):
+    a0, b = ms.demand.scalars[0], ms.demand.scalars[1]
+    c = ms.cost[i]
+    tick = ms.tick
+    rivals = np.delete(A, i, axis=1)
+    r = rivals.min(axis=1)
+    pm = 0.5 * (a0 + c)
+    D = lambda p: np.maximum(0.0, (a0 - p) / b)  # noqa: E731
+    x = np.empty(A.shape[0])
+    v = np.empty(A.shape[0])
+    for k, rk in enumerate(r):
+        if pm < rk:
+            x[k], v[k] = pm, (pm - c) * D(pm)
+        elif rk > c:
+            if tick == 0:
+                x[k], v[k] = rk, (rk - c) * D(rk)  # supremum of undercutting
+            else:
+                under = rk - tick
+                v_under = (under - c) * D(under) if under > c else 0.0
+                w = ms.demand.vector
+                tied = np.isclose(rivals[k], rk, rtol=0, atol=0)
+                wr = np.delete(w, i)[tied].sum()
+                v_tie = (rk - c) * D(rk) * w[i] / (w[i] + wr)
+                if v_under >= v_tie:
+                    x[k], v[k] = under, v_under
+                else:
+                    x[k], v[k] = rk, v_tie
+        else:
+            x[k], v[k] = c, 0.0
+    return x, v
+
+
+# --------------------------------------------------------------------------------------------------
+# Static Nash equilibrium
+# --------------------------------------------------------------------------------------------------
+
+
+def static_nash(market, tol: float = 1e-13, max_iter: int = 20_000) -> Outcome:
+    """The static (one-shot) Nash equilibrium of the stage game.
+
+    Closed forms are used for homogeneous Bertrand, linear and differentiated Cournot without
+    binding capacities, differentiated Bertrand with every firm active, and isoelastic Cournot
+    without capacities. Otherwise (and to certify the closed forms' assumptions), a Gauss-Seidel
+    best-response iteration runs from the closed-form or a neutral start until no action moves by
+    more than ``tol`` (relative); a damped iteration is tried if it does not settle. The result is
+    certified by checking that no firm's global best response improves its profit by more than a
+    relative ``1e-9``; otherwise :class:`~sim.errors.SolverError` is raised.
+
+    Returns
+    -------
+    Outcome
+    """
+    ms = _spec(market)
+    if "nash" in ms._cache:
+        return ms._cache["nash"]
+    if ms.homogeneous_bertrand:
+        out = _nash_homogeneous_bertrand(ms)
+        ms._cache["nash"] = out
+        return out
+    start = _nash_candidate(ms)
+    if _is_fixed_point(ms, start):
+        try:
+            _certify(ms, start, "static Nash")
+        except SolverError:
+            pass
+        else:
+            out = outcome_of(ms, start)
+            ms._cache["nash"] = out
+            return out
+    a = _gauss_seidel(ms, start, tol, max_iter, damping=1.0)
+    if a is None:
+        a = _gauss_seidel(ms, start, tol, max_iter, damping=0.5)
+    if a is None:
+        raise SolverError(
+            f"static Nash: best-response iteration did not settle within {max_iter} sweeps "
+            f"(market {ms.demand.kind} {ms.model}, {ms.n_firms} firms)"
+        )
+    _certify(ms, a, "static Nash")
+    out = outcome_of(ms, a)
+    ms._cache["nash"] = out
+    return out
+
+
+def _is_fixed_point(ms: MarketSpec, a: np.ndarray, rtol: float = 1e-10) -> bool:
+    scale = max(1.0, float(np.abs(a).max()))
+    for i in range(ms.n_firms):
+        x, _ = best_response(ms, i, a[None, :])
+        if abs(float(x[0]) - a[i]) > rtol * scale:
+            return False
+    return True
+
+
+def _gauss_seidel(ms, start, tol, max_iter, damping):
+    a = np.array(start, dtype=float)
+    scale = max(1.0, float(np.abs(a).max()))
+    for _ in range(max_iter):
+        biggest = 0.0
+        for i in range(ms.n_firms):
+            x, _ = best_response(ms, i, a[None, :])
+            new = (1 - damping) * a[i] + damping * float(x[0])
+            biggest = max(biggest, abs(new - a[i]))
+            a[i] = new
+        if biggest <= tol * scale:
+            return a
+    return None
+
+
+def _certify(ms: MarketSpec, a: np.ndarray, what: str, rtol: float = 1e-9) -> None:
+    pi = ms.profits(a[None, :])[0]
+    lo, hi = ms.action_bounds()
+    scale = max(1e-12, float(np.abs(pi).max()))
+    for i in range(ms.n_firms):
+        _, v = best_response(ms, i, a[None, :])
+        # an independent grid search guards against a closed form applied outside its domain
+        def f(t, i=i):
+            prof = np.repeat(a[None, :], t.size, axis=0)
+            prof[:, i] = t
+            return ms.profits(prof)[:, i]
+        _, vg = _maximize_scalar(f, lo[i], hi[i], n_grid=257)
+        best = max(float(v[0]), vg)
+        if best - pi[i] > rtol * scale:
+            raise SolverError(
+                f"{what}: firm {i + 1} can gain {best - pi[i]:.3g} by deviating; the solution is not certified"
+            )
+
+
+def _nash_candidate(ms: MarketSpec) -> np.ndarray:
+    n, c, d = ms.n_firms, ms.cost, ms.demand
+    if d.kind == "linear":  # homogeneous Cournot, with exits
+        a0, b = d.scalars[0], d.scalars[1]
+        active = np.ones(n, bool)
+        for _ in range(n):
+            k = active.sum()
+            q = np.where(active, (a0 - (k + 1) * c + c[active].sum()) / ((k + 1) * b), 0.0)
+            if (q[active] > 0).all():
+                break
+            active &= q > 0
+        return np.clip(q, 0, ms.capacity)
+    if d.kind == "differentiated":
+        b, g = d.scalars[0], d.scalars[1]
+        av = d.vector
+        active = np.ones(n, bool)
+        for _ in range(n):
+            k = active.sum()
+            if ms.quantity_setting:
+                # (2 - g) q_i + g Q = (a_i - c_i) / b on the active set
+                r = (av - c) / b
+                Q = r[active].sum() / (2 - g + g * k)
+                x = np.where(active, (r - g * Q) / (2 - g), 0.0)
+                ok = x > 0
+            else:
+                x = _diff_bertrand_interior_nash(av, c, b, g, active)
+                q = direct_demand(d, x[None, :])[0]
+                ok = q > 0
+            if ok[active].all():
+                break
+            active &= ok
+        if ms.quantity_setting:
+            return np.clip(x, 0, ms.capacity)
+        return np.where(active, x, np.maximum(c, x))
+    if d.kind == "isoelastic":
+        A, eps = d.scalars[0], d.scalars[1]
+        active = np.ones(n, bool)
+        for _ in range(n):
+            k = active.sum()
+            P = c[active].sum() / (k - 1 / eps)
+            s = np.where(active, eps * (1 - c / P), 0.0)
+            if (s[active] > 0).all():
+                break
+            active &= s > 0
+        Q = (A / P) ** eps
+        return np.clip(s * Q, 0, ms.capacity)
+    if d.kind == "logit":
+        mu = d.scalars[1]
+        return c + mu * (1.0 + 1.0 / n)
+    raise ValueError(d.kind)  # pragma: no cover
+
+
+def _diff_bertrand_interior_nash(av, c, b, g, active):
+    """Interior Bertrand equilibrium of the differentiated linear system on the active set.
+
+    Direct demand on the active set S (k products): ``q_i = (d_i - g/(1+(k-1)g) sum_S d) / (b(1-g))``
+    with ``d = a - p``. Each firm's first-order condition ``q_i + (p_i - c_i) dq_i/dp_i = 0`` is
+    linear in prices; we solve the k x k system directly.
+    """
+    idx = np.flatnonzero(active)
+    k = idx.size
+    theta = g / (1 + (k - 1) * g)
+    # q_i = [ (a_i - p_i) - theta sum_j (a_j - p_j) ] / (b (1-g)); dq_i/dp_i = -(1 - theta)/(b(1-g))
+    # FOC: (a_i - p_i) - theta sum_j (a_j - p_j) - (1 - theta)(p_i - c_i) = 0
+    M = np.zeros((k, k))
+    rhs = np.zeros(k)
+    for r, i in enumerate(idx):
+        M[r, :] = theta  # + theta p_j for all j (including i)
+        M[r, r] += -1.0 - (1 - theta)
+        rhs[r] = -(av[i] - theta * av[idx].sum() + (1 - theta) * c[i])
+    p = np.linalg.solve(M, rhs)
+    out = np.array(av, dtype=float)
+    out[idx] = p
+    return out
+
+
+def _nash_homogeneous_bertrand(ms: MarketSpec) -> Outcome:
+    a0, b = ms.demand.scalars[0], ms.demand.scalars[1]
+    c = ms.cost
+    order = np.argsort(c, kind="stable")
+    c1, c2 = c[order[0]], c[order[1]]
+    D = lambda p: max(0.0, (a0 - p) / b)  # noqa: E731
+    prices = c.copy()
+    q = np.zeros(ms.n_firms)
+    pi = np.zeros(ms.n_firms)
+    if c1 == c2:
+        tied = np.flatnonzero(c == c1)
+        w = ms.demand.vector[tied]
+        q[tied] = D(c1) * w / w.sum()
+    else:
+        winner = order[0]
+        pm = 0.5 * (a0 + c1)
+        p = min(c2 - ms.tick, pm) if ms.tick > 0 else min(c2, pm)
+        prices[winner] = p
+        q[winner] = D(p)
+        pi[winner] = (p - c1) * D(p)
+    return Outcome(prices, q, prices.copy(), pi)
+
+
+# --------------------------------------------------------------------------------------------------
+# Collusive outcomes
+# --------------------------------------------------------------------------------------------------
+
+
+def collusive_outcome(market, agreement: str = "joint", actions=None) -> Outcome:
+    """The outcome the firms agree to sustain.
+
+    Parameters
+    ----------
+    market : Market or MarketSpec
+    agreement : {"joint", "symmetric", "proportional", "given"}
+        ``joint``: maximise the sum of profits. ``symmetric``: maximise the sum of profits over a
+        common quantity (Cournot) or a common price (Bertrand), each firm's quantity capped at its
+        capacity. ``proportional``: quantities proportional to the static-Nash quantities (a common
+        scale factor, prices from inverse demand under Bertrand; Schmalensee, 1987, "Competitive
+        advantage and collusive optima"), scale chosen to maximise the sum of profits. ``given``: the
+        action vector ``actions``.
+    actions : array_like of shape (n_firms,), optional
+        Required with ``agreement="given"``.
+    """
+    ms = _spec(market)
+    if agreement not in AGREEMENTS:
+        raise InputError("collusion.agreement", f"must be one of {', '.join(map(repr, AGREEMENTS))}, got {agreement!r}")
+    if agreement == "given":
+        if actions is None:
+            raise InputError("collusion.actions", "an action per firm is needed with agreement = 'given'")
+        a = np.asarray(actions, dtype=float)
+        if a.shape != (ms.n_firms,) or not np.all(np.isfinite(a)):
+            raise InputError(
+                "collusion.actions", f"must have one finite value per firm ({ms.n_firms}), got {actions!r}"
+            )
+        if np.any(a < 0):
+            raise InputError("collusion.actions", f"actions must be >= 0, got {a.tolist()}")
+        if ms.quantity_setting and np.any(a > ms.capacity):
+            raise InputError("collusion.actions", "a quantity exceeds its firm's capacity")
+        return outcome_of(ms, a)
+    if actions is not None:
+        raise InputError("collusion.actions", f"only used with agreement = 'given', not {agreement!r}")
+    key = f"collusive:{agreement}"
+    if key in ms._cache:
+        return ms._cache[key]
+    if agreement == "joint":
+        a = _joint_maximum(ms)
+    elif agreement == "symmetric":
+        a = _symmetric_maximum(ms)
+    else:
+        a = _proportional_maximum(ms)
+    out = outcome_of(ms, a)
+    ms._cache[key] = out
+    return out
+
+
+def _joint(ms, A):
+    return ms.profits(A).sum(axis=-1)
+
+
+def _merit_order_quantities(ms: MarketSpec) -> np.ndarray:
+    """Joint-profit maximum for a homogeneous good under quantity competition.
+
+    The cartel produces total Q where marginal revenue meets the merit-order marginal cost (cheapest
+    capacity first, equal-cost firms sharing equally up to their capacities)."""
+    d, c, cap = ms.demand, ms.cost, ms.capacity
+    if d.kind == "linear":
+        a0, b = d.scalars[0], d.scalars[1]
+        mr = lambda Q: a0 - 2 * b * Q  # noqa: E731
+        q_of_mr = lambda m: (a0 - m) / (2 * b)  # noqa: E731
+    else:
+        A, eps = d.scalars[0], d.scalars[1]
+        mr = lambda Q: A * Q ** (-1 / eps) * (1 - 1 / eps) if Q > 0 else np.inf  # noqa: E731
+        q_of_mr = lambda m: (A * (1 - 1 / eps) / m) ** eps  # noqa: E731
+    levels = np.unique(c)
+    q = np.zeros(ms.n_firms)
+    Q = 0.0
+    for lev in levels:
+        group = np.flatnonzero(c == lev)
+        if mr(Q) <= lev:
+            break
+        target = q_of_mr(lev)  # total output where MR equals this cost level
+        room = cap[group].sum()
+        add = min(target - Q, room)
+        _waterfill(q, group, cap, add)
+        Q += add
+        if add < room:
+            break
+    return q
+
+
+def _waterfill(q, group, cap, amount):
+    """Share ``amount`` equally among ``group``, respecting capacities."""
+    left = list(group)
+    while amount > 1e-300 and left:
+        each = amount / len(left)
+        full = [j for j in left if cap[j] - q[j] <= each]
+        if not full:
+            for j in left:
+                q[j] += each
+            return
+        for j in full:
+            amount -= cap[j] - q[j]
+            q[j] = cap[j]
+            left.remove(j)
+
+
+def _joint_maximum(ms: MarketSpec) -> np.ndarray:
+    d, c = ms.demand, ms.cost
+    if ms.homogeneous_bertrand:
+        a0 = d.scalars[0]
+        cmin = c.min()
+        pm = 0.5 * (a0 + cmin)
+        # firms with higher costs price at the choke price and sell nothing
+        return np.where(c == cmin, pm, a0)
+    if d.kind in ("linear", "isoelastic"):
+        return _merit_order_quantities(ms)
+    if d.kind == "logit":
+        # multi-product logit monopolist: equal markups m solving m * s_0(m) = mu
+        mu = d.scalars[1]
+        f = lambda m: m * logit_outside_share(d, (c + m)[None, :])[0] - mu  # noqa: E731
+        hi = mu
+        while f(hi) < 0:
+            hi *= 2
+        m = optimize.brentq(f, 0.0, hi, xtol=1e-15, rtol=1e-15, maxiter=500)
+        return c + m
+    # differentiated linear: concave quadratic in quantities, box [0, cap]
+    return _actions_for_quantities(ms, _diff_joint_quantities(ms))
+
+
+def _diff_joint_quantities(ms: MarketSpec) -> np.ndarray:
+    """Joint-profit quantities of the differentiated linear system: a concave quadratic programme
+    ``max (a - c).q - (1/2) q'Hq`` with ``H = 2b((1-g)I + g11')`` over the box ``[0, capacity]``.
+
+    With ``g < 1`` the Hessian is positive definite and the programme is rewritten as a bounded
+    least-squares problem solved exactly by the bounded-variable least-squares active-set method
+    (Stark and Parker, 1995) of :func:`scipy.optimize.lsq_linear`."""
+    d, c = ms.demand, ms.cost
+    b, g = d.scalars[0], d.scalars[1]
+    n = ms.n_firms
+    cap = ms.capacity if ms.quantity_setting else np.full(n, np.inf)
+    H = 2 * b * ((1 - g) * np.eye(n) + g * np.ones((n, n)))
+    r = d.vector - c
+    if g < 1:
+        L = np.linalg.cholesky(H)  # H = L L'
+        rhs = np.linalg.solve(L, r)  # 0.5 q'Hq - r'q = 0.5 |L'q - L^-1 r|^2 + const
+        res = optimize.lsq_linear(L.T, rhs, bounds=(np.zeros(n), cap), method="bvls", tol=1e-15)
+        q = np.clip(res.x, 0, cap)
+        q[q < 1e-12 * max(1.0, float(q.max()))] = 0.0  # round-off at the zero bound
+        return q
+    res = optimize.minimize(
+        lambda q: (0.5 * q @ H @ q - r @ q, H @ q - r), np.zeros(n), jac=True, method="L-BFGS-B",
+        bounds=[(0, cap[j] if np.isfinite(cap[j]) else None) for j in range(n)],
+        options={"ftol": 1e-16, "gtol": 1e-14, "maxiter": 10_000},
+    )
+    return np.clip(res.x, 0, cap)
+
+
+def _common_level(ms: MarketSpec, x: np.ndarray) -> np.ndarray:
+    """Profiles in which every firm plays the common level x (quantities capped at capacity)."""
+    A = np.repeat(np.asarray(x, float)[:, None], ms.n_firms, axis=1)
+    if ms.quantity_setting:
+        A = np.minimum(A, ms.capacity)
+    return A
+
+
+def _symmetric_maximum(ms: MarketSpec) -> np.ndarray:
+    _lo, hi = ms.action_bounds()
+    if ms.quantity_setting:
+        lo_, hi_ = 0.0, float(hi.max())
+    else:
+        lo_, hi_ = float(ms.cost.min()), float(hi.max())
+    x, _ = _maximize_scalar(lambda t: _joint(ms, _common_level(ms, t)), lo_, hi_, n_grid=401)
+    return _common_level(ms, np.array([x]))[0]
+
+
+def _proportional_maximum(ms: MarketSpec) -> np.ndarray:
+    if ms.homogeneous_bertrand:
+        raise InputError(
+            "collusion.agreement",
+            "'proportional' needs per-product demand; with homogeneous Bertrand write the agreed "
+            "shares as the demand's split weights and use 'joint' or 'symmetric'",
+        )
+    qn = static_nash(ms).quantities
+    if ms.quantity_setting:
+        with np.errstate(divide="ignore"):
+            room = np.where(qn > 0, ms.capacity / np.where(qn > 0, qn, 1.0), np.inf)
+        lam_hi = min(1.0, float(room.min()))
+    elif ms.demand.kind == "logit":
+        lam_hi = min(1.0, (1.0 - 1e-12) * ms.demand.scalars[2] / qn.sum())
+    else:
+        lam_hi = 1.0
+
+    def profile(lam: np.ndarray) -> np.ndarray:
+        return _actions_for_quantities(ms, lam[:, None] * qn[None, :])
+
+    lam, _ = _maximize_scalar(lambda t: _joint(ms, profile(t)), 1e-9, lam_hi, n_grid=401)
+    return profile(np.array([lam]))[0]
+
+
+def _actions_for_quantities(ms: MarketSpec, q: np.ndarray) -> np.ndarray:
+    """Actions that produce quantities ``q`` (shape (..., n)): the quantities themselves under
+    Cournot, prices from inverse demand under Bertrand."""
+    if ms.quantity_setting:
+        return q
+    d = ms.demand
+    if d.kind == "logit":
+        # inverse logit demand: p_i = a_i - a_0 - mu (log s_i - log s_0)
+        a0, mu, size = d.scalars[0], d.scalars[1], d.scalars[2]
+        s = q / size
+        s0 = 1.0 - s.sum(axis=-1, keepdims=True)
+        return d.vector - a0 - mu * (np.log(s) - np.log(s0))
+    b, g = d.scalars[0], d.scalars[1]
+    return d.vector - b * ((1 - g) * q + g * q.sum(axis=-1, keepdims=True))
+
+
+# --------------------------------------------------------------------------------------------------
+# Deviations and minmax
+# --------------------------------------------------------------------------------------------------
+
+
+def best_deviation(market, actions) -> tuple[np.ndarray, np.ndarray]:
+    """Each firm's best one-shot deviation against the others' actions.
+
+    Returns
+    -------
+    actions : ndarray of shape (n_firms,)
+        Firm i's deviation action when the others play ``actions``.
+    profits : ndarray of shape (n_firms,)
+        Its deviation profit (a supremum for homogeneous Bertrand with continuous prices).
+    """
+    ms = _spec(market)
+    a = np.asarray(actions, dtype=float)
+    dev_a = np.empty(ms.n_firms)
+    dev_p = np.empty(ms.n_firms)
+    for i in range(ms.n_firms):
+        x, v = best_response(ms, i, a[None, :])
+        dev_a[i], dev_p[i] = x[0], v[0]
+    # never report a "deviation" worse than complying (numerical noise at a best response)
+    own = ms.profits(a[None, :])[0]
+    if not ms.homogeneous_bertrand:
+        worse = dev_p < own
+        dev_a = np.where(worse, a, dev_a)
+        dev_p = np.where(worse, own, dev_p)
+    return dev_a, dev_p
+
+
+def minmax(market) -> tuple[np.ndarray, np.ndarray]:
+    """Each firm's minmax payoff: the rivals choose actions to minimise the firm's best-response
+    profit. For every shipped demand system a firm's best-response profit falls as rivals produce
+    more (Cournot) or price lower (Bertrand), so the rivals' minimising actions are their largest
+    quantities (capacity, or enough to drive the price to zero) or a zero price.
+
+    Returns
+    -------
+    actions : ndarray of shape (n_firms, n_firms)
+        Row i: the profile that holds firm i down (entry i is its best response).
+    payoffs : ndarray of shape (n_firms,)
+    """
+    ms = _spec(market)
+    n = ms.n_firms
+    _lo, hi = ms.action_bounds()
+    rows = np.empty((n, n))
+    vals = np.empty(n)
+    for i in range(n):
+        if ms.quantity_setting:
+            if ms.demand.kind == "isoelastic" and not np.all(np.isfinite(np.delete(ms.capacity, i))):
+                # unbounded rival output drives the price, and the firm's profit, to zero in the limit
+                row = np.where(np.isfinite(ms.capacity), ms.capacity, hi)
+                row[i] = 0.0
+                rows[i] = row
+                vals[i] = 0.0
+                continue
+            row = np.where(np.isfinite(ms.capacity), ms.capacity, hi.max() * 2)
+            if ms.demand.kind == "differentiated":
+                g = ms.demand.scalars[1]
+                if g > 0:
+                    big = ms.demand.vector.max() / (ms.demand.scalars[0] * g) * 2
+                    row = np.where(np.isfinite(ms.capacity), ms.capacity, big)
+        else:
+            row = np.zeros(n)
+        x, v = best_response(ms, i, row[None, :])
+        row = row.copy()
+        row[i] = x[0]
+        rows[i] = row
+        vals[i] = max(0.0, float(v[0]))
+    return rows, vals
+
+
+# --------------------------------------------------------------------------------------------------
+# The stage game
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class StageGame:
+    """The stage game's key outcomes.
+
+    Attributes
+    ----------
+    market : MarketSpec
+    agreement : str
+    nash, collusive : Outcome
+    deviation_actions, deviation_profits : ndarray of shape (n_firms,)
+        Firm i's best deviation against the others' collusive actions, and its profit.
+    minmax_profits : ndarray of shape (n_firms,)
+    """
+
+    market: MarketSpec
+    agreement: str
+    nash: Outcome
+    collusive: Outcome
+    deviation_actions: np.ndarray
+    deviation_profits: np.ndarray
+    minmax_profits: np.ndarray
+
+    @property
+    def n_firms(self) -> int:
+        return self.market.n_firms
+
+    def to_dict(self) -> dict:
+        return {
+            "agreement": self.agreement,
+            "profits": {
+                "collusive": self.collusive.profits.tolist(),
+                "deviation": self.deviation_profits.tolist(),
+                "nash": self.nash.profits.tolist(),
+                "minmax": self.minmax_profits.tolist(),
+            },
+            "actions": {
+                "collusive": self.collusive.actions.tolist(),
+                "deviation": self.deviation_actions.tolist(),
+                "nash": self.nash.actions.tolist(),
+            },
+            "prices": {"collusive": self.collusive.prices.tolist(), "nash": self.nash.prices.tolist()},
+            "quantities": {
+                "collusive": self.collusive.quantities.tolist(),
+                "nash": self.nash.quantities.tolist(),
+            },
+        }
+
+
+def stage_game(market, agreement: str = "joint", actions=None) -> StageGame:
+    """Solve the stage game: static Nash, the agreed collusive outcome, best deviations, minmax."""
+    ms = _spec(market)
+    nash = static_nash(ms)
+    coll = collusive_outcome(ms, agreement, actions)
+    dev_a, dev_p = best_deviation(ms, coll.actions)
+    _, mm = minmax(ms)
+    return StageGame(ms, agreement, nash, coll, dev_a, dev_p, mm)
+
+
+def _as_market(obj) -> Market | MarketSpec:  # pragma: no cover - typing helper
+    return obj
