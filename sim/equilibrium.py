@@ -21,7 +21,7 @@ from scipy import optimize
 
 from .demand import direct_demand, logit_outside_share
 from .errors import InputError, SolverError
-from .market import Market, MarketSpec
+from .market import MarketSpec
 
 __all__ = [
     "AGREEMENTS",
@@ -44,20 +44,24 @@ class Outcome:
 
     Attributes
     ----------
-    actions, quantities, prices, profits : ndarray of shape (n_firms,)
+    actions, quantities, prices, profits : ndarray of shape (n_products,)
+        Per product (one product per firm unless the market has multi-product firms).
+    firm_profits : ndarray of shape (n_firms,)
     """
 
     actions: np.ndarray
     quantities: np.ndarray
     prices: np.ndarray
     profits: np.ndarray
+    firm_profits: np.ndarray
 
     @property
     def joint_profit(self) -> float:
         return float(self.profits.sum())
 
     def to_dict(self) -> dict:
-        return {k: getattr(self, k).tolist() for k in ("actions", "quantities", "prices", "profits")}
+        keys = ("actions", "quantities", "prices", "profits", "firm_profits")
+        return {k: getattr(self, k).tolist() for k in keys}
 
 
 def _spec(market) -> MarketSpec:
@@ -67,7 +71,7 @@ def _spec(market) -> MarketSpec:
 def outcome_of(ms: MarketSpec, actions) -> Outcome:
     a = np.asarray(actions, dtype=float)
     q, p, pi = ms.evaluate(a)
-    return Outcome(a.copy(), q, p, pi)
+    return Outcome(a.copy(), q, p, pi, ms.firm_sum(pi))
 
 
 # --------------------------------------------------------------------------------------------------
@@ -99,28 +103,42 @@ def _maximize_scalar(f, lo: float, hi: float, n_grid: int = 65, xtol: float = 1e
 
 
 def best_response(market, i: int, actions) -> tuple[np.ndarray, np.ndarray]:
-    """Firm ``i``'s best response to the rival actions in each profile.
+    """Firm ``i``'s best response to its rivals' actions in each profile.
 
     Parameters
     ----------
     market : Market or MarketSpec
     i : int
-        Index of the responding firm.
-    actions : array_like of shape (..., n_firms)
-        Profiles; entry ``i`` is ignored.
+        Index (0-based) of the responding firm.
+    actions : array_like of shape (..., n_products)
+        Profiles; the entries of firm ``i``'s products are ignored.
 
     Returns
     -------
-    actions : ndarray of shape (...,)
-        The best-response action of firm ``i``.
+    profiles : ndarray of shape (..., n_products)
+        The profiles with firm ``i``'s products set to its best response.
     profits : ndarray of shape (...,)
-        Its profit. For homogeneous Bertrand with continuous prices this is the supremum reached by
-        undercutting by an arbitrarily small amount (see :mod:`sim.market`).
+        Firm ``i``'s profit. For homogeneous Bertrand with continuous prices this is the supremum
+        reached by undercutting by an arbitrarily small amount (see :mod:`sim.market`).
     """
     ms = _spec(market)
     a = np.array(actions, dtype=float)
     shape = a.shape[:-1]
-    A = a.reshape(-1, ms.n_firms)
+    A = a.reshape(-1, ms.n_products)
+    own = ms.products_of(i)
+    out = A.copy()
+    if own.size == 1:
+        x, v = _br_single(ms, int(own[0]), A)
+        out[:, own[0]] = x
+    else:
+        v = np.empty(A.shape[0])
+        for r, row in enumerate(A):
+            out[r], v[r] = _br_multi(ms, i, own, row)
+    return out.reshape(a.shape), v.reshape(shape)
+
+
+def _br_single(ms: MarketSpec, i: int, A: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Best response of single product ``i`` (its owner sells nothing else) in each row of ``A``."""
     kind = ms.demand.kind
     if ms.homogeneous_bertrand:
         x, v = _br_homogeneous_bertrand(ms, i, A)
@@ -146,7 +164,164 @@ def best_response(market, i: int, actions) -> tuple[np.ndarray, np.ndarray]:
         v = np.empty(A.shape[0])
         for r, row in enumerate(A):
             x[r], v[r] = _br_diff_bertrand(ms, i, row)
-    return x.reshape(shape), v.reshape(shape)
+    return x, v
+
+
+def _br_multi(ms: MarketSpec, i: int, own: np.ndarray, row: np.ndarray) -> tuple[np.ndarray, float]:
+    """Best response of multi-product firm ``i`` (products ``own``) setting its actions jointly."""
+    kind = ms.demand.kind
+    if kind == "logit":
+        prof = _br_logit_multi(ms, own, row)
+    elif ms.quantity_setting:  # differentiated Cournot
+        prof = _br_diff_cournot_multi(ms, own, row)
+    else:
+        prof = _br_diff_bertrand_multi(ms, i, own, row)
+    return prof, float(ms.firm_profits(prof[None, :])[0, i])
+
+
+def _br_logit_multi(ms: MarketSpec, own: np.ndarray, row: np.ndarray) -> np.ndarray:
+    """A multi-product logit firm sets one common markup m on its products, solving
+    ``m = mu / (1 - S_f)`` with ``S_f`` the firm's total share (Anderson, de Palma and Thisse,
+    1992, "Discrete Choice Theory of Product Differentiation", ch. 7); the root is unique because
+    ``S_f`` falls as ``m`` rises."""
+    mu, size = ms.demand.scalars[1], ms.demand.scalars[2]
+    c = ms.cost[own]
+
+    def prof_at(m):
+        p = row.copy()
+        p[own] = c + m
+        return p
+
+    def h(m):
+        S = direct_demand(ms.demand, prof_at(m)[None, :])[0, own].sum() / size
+        return m - mu / (1.0 - S)
+
+    S0 = direct_demand(ms.demand, prof_at(0.0)[None, :])[0, own].sum() / size
+    hi = mu / (1.0 - S0)
+    m = hi if h(hi) <= 0 else optimize.brentq(h, 0.0, hi, xtol=1e-15 * max(1.0, hi), rtol=1e-15, maxiter=500)
+    return prof_at(m)
+
+
+def _br_diff_cournot_multi(ms: MarketSpec, own: np.ndarray, row: np.ndarray) -> np.ndarray:
+    """Quantities of a multi-product firm under differentiated linear demand: a concave quadratic
+    programme in its own quantities (first-order conditions
+    ``a_k - c_k - b((1-g) q_k + g Q) - b((1-g) q_k + g Q_f) = 0``) over ``[0, capacity]``, solved
+    exactly as bounded least squares."""
+    d = ms.demand
+    b, g = d.scalars[0], d.scalars[1]
+    k = own.size
+    rivals = np.clip(np.delete(row, own), 0, np.delete(ms.capacity, own)).sum()
+    H = 2 * b * ((1 - g) * np.eye(k) + g * np.ones((k, k)))
+    r = d.vector[own] - ms.cost[own] - b * g * rivals
+    q = _box_qp(H, r, ms.capacity[own])
+    out = row.copy()
+    out[own] = q
+    return out
+
+
+def _box_qp(H: np.ndarray, r: np.ndarray, upper: np.ndarray) -> np.ndarray:
+    """Maximise ``r'q - q'Hq/2`` over ``0 <= q <= upper`` for positive definite ``H``: rewritten as
+    bounded least squares and solved exactly by the bounded-variable least-squares method (Stark and
+    Parker, 1995) in :func:`scipy.optimize.lsq_linear`."""
+    L = np.linalg.cholesky(H)
+    rhs = np.linalg.solve(L, r)
+    res = optimize.lsq_linear(L.T, rhs, bounds=(np.zeros(r.size), upper), method="bvls", tol=1e-15)
+    q = np.clip(res.x, 0, upper)
+    q[q < 1e-12 * max(1.0, float(q.max()))] = 0.0
+    return q
+
+
+def _br_diff_bertrand_multi(ms: MarketSpec, i: int, own: np.ndarray, row: np.ndarray) -> np.ndarray:
+    """Prices of a multi-product firm under differentiated linear demand.
+
+    On a fixed set S of products with positive demand, ``q_S = M (a_S - p_S)`` with ``M`` the inverse
+    of ``b((1-g)I + g11')`` on S, the firm's profit is concave quadratic in its own prices and the
+    first-order conditions give ``p_f = (a_f + c_f)/2 + M_ff^{-1} M_fr (a_r - p_r) / 2``. We iterate
+    on S (recomputing demand at the candidate) until it is consistent, and certify the result against
+    a coordinate search; only if that fails is the coordinate search (each own price in turn, grid
+    and Brent) used as the answer."""
+    d = ms.demand
+    n = ms.n_products
+
+    def firm_profit(P):
+        return ms.firm_profits(np.atleast_2d(P))[:, i]
+
+    S = np.ones(n, bool)
+    cand = None
+    for _ in range(2 * n + 2):
+        trial = _diff_bertrand_firm_candidate(ms, own, row, S)
+        S_new = direct_demand(d, trial[None, :])[0] > 0
+        if np.array_equal(S_new, S):
+            cand = trial
+            break
+        S = S_new
+    if cand is not None and _coordinate_check(ms, i, own, cand, firm_profit):
+        return cand
+    return _bounded_search(ms, own, row if cand is None else cand, firm_profit)
+
+
+def _diff_bertrand_firm_candidate(ms, own, row, S):
+    """Stationary prices of the firm's products that sell on the active set S; its products outside
+    S are priced at their choke price (they sell nothing and do not affect the others)."""
+    d = ms.demand
+    b, g = d.scalars[0], d.scalars[1]
+    out = row.copy()
+    own_set = set(own.tolist())
+    act = np.array([k for k in own if S[k]], dtype=int)
+    idx = np.flatnonzero(S)
+    if act.size:
+        n_s = idx.size
+        M = (np.eye(n_s) - g / (1 + (n_s - 1) * g) * np.ones((n_s, n_s))) / (b * (1 - g))
+        pos = {k: j for j, k in enumerate(idx)}
+        f_pos = np.array([pos[k] for k in act])
+        r_pos = np.array([j for j in range(n_s) if idx[j] not in own_set], dtype=int)
+        p_f = 0.5 * (d.vector[act] + ms.cost[act])
+        if r_pos.size:
+            r_idx = idx[r_pos]
+            Mff = M[np.ix_(f_pos, f_pos)]
+            p_f = p_f + 0.5 * np.linalg.solve(Mff, M[np.ix_(f_pos, r_pos)] @ (d.vector[r_idx] - row[r_idx]))
+        out[act] = p_f
+    idle = np.array([k for k in own if not S[k]], dtype=int)
+    if idle.size:
+        q = direct_demand(d, out[None, :])[0]
+        q[idle] = 0.0
+        out[idle] = np.maximum(ms.cost[idle], d.vector[idle] - b * g * q.sum())
+    return out
+
+
+def _coordinate_check(ms, i, own, p, firm_profit, rtol=1e-10) -> bool:
+    base = float(firm_profit(p)[0])
+    for k in own:
+        def f(t, k=k):
+            P = np.repeat(p[None, :], t.size, axis=0)
+            P[:, k] = t
+            return firm_profit(P)
+        # a coarse grid suffices: the candidate is the exact optimum of its concave piece, and the
+        # check only has to catch a wrong piece
+        v = float(f(np.linspace(ms.cost[k], float(ms.demand.vector[k]), 25)).max())
+        if v > base + rtol * max(1.0, abs(base)):
+            return False
+    return True
+
+
+def _bounded_search(ms, own, start, firm_profit):
+    """Fallback: quasi-Newton search over the firm's own prices within [cost, intercept]."""
+    lo, hi = ms.cost[own], ms.demand.vector[own]
+
+    def neg(x):
+        P = start.copy()
+        P[own] = x
+        return -float(firm_profit(P)[0])
+
+    best = None
+    for x0 in (np.clip(start[own], lo, hi), 0.5 * (lo + hi)):
+        res = optimize.minimize(neg, x0, method="L-BFGS-B", bounds=list(zip(lo, hi)),
+                                options={"ftol": 1e-15, "gtol": 1e-12, "maxiter": 2000})
+        if best is None or res.fun < best.fun:
+            best = res
+    out = start.copy()
+    out[own] = best.x
+    return out
 
 
 def _profit_i(ms: MarketSpec, i: int, A: np.ndarray, x: np.ndarray) -> np.ndarray:
@@ -237,7 +412,7 @@ def _br_diff_bertrand(ms: MarketSpec, i: int, row: np.ndarray) -> tuple[float, f
     prof[i] = x0
     tot = q.sum()
     cands = []
-    for j in range(ms.n_firms):
+    for j in range(ms.n_products):
         if j == i:
             continue
         if S[j]:
@@ -340,8 +515,8 @@ def static_nash(market, tol: float = 1e-13, max_iter: int = 20_000) -> Outcome:
 def _is_fixed_point(ms: MarketSpec, a: np.ndarray, rtol: float = 1e-10) -> bool:
     scale = max(1.0, float(np.abs(a).max()))
     for i in range(ms.n_firms):
-        x, _ = best_response(ms, i, a[None, :])
-        if abs(float(x[0]) - a[i]) > rtol * scale:
+        prof, _ = best_response(ms, i, a[None, :])
+        if np.abs(prof[0] - a).max() > rtol * scale:
             return False
     return True
 
@@ -352,28 +527,31 @@ def _gauss_seidel(ms, start, tol, max_iter, damping):
     for _ in range(max_iter):
         biggest = 0.0
         for i in range(ms.n_firms):
-            x, _ = best_response(ms, i, a[None, :])
-            new = (1 - damping) * a[i] + damping * float(x[0])
-            biggest = max(biggest, abs(new - a[i]))
-            a[i] = new
+            prof, _ = best_response(ms, i, a[None, :])
+            new = (1 - damping) * a + damping * prof[0]
+            biggest = max(biggest, float(np.abs(new - a).max()))
+            a = new
         if biggest <= tol * scale:
             return a
     return None
 
 
 def _certify(ms: MarketSpec, a: np.ndarray, what: str, rtol: float = 1e-9) -> None:
-    pi = ms.profits(a[None, :])[0]
-    lo, hi = ms.action_bounds()
+    """Raise SolverError unless no firm can gain more than ``rtol`` (relative) by deviating: each
+    firm's best response is compared with, and each of its products is also searched on a fine grid
+    (which guards against a closed form used outside its domain)."""
+    pi = ms.firm_profits(a[None, :])[0]
+    _, hi = ms.action_bounds()
     scale = max(1e-12, float(np.abs(pi).max()))
     for i in range(ms.n_firms):
         _, v = best_response(ms, i, a[None, :])
-        # an independent grid search guards against a closed form applied outside its domain
-        def f(t, i=i):
-            prof = np.repeat(a[None, :], t.size, axis=0)
-            prof[:, i] = t
-            return ms.profits(prof)[:, i]
-        _, vg = _maximize_scalar(f, lo[i], hi[i], n_grid=257)
-        best = max(float(v[0]), vg)
+        best = float(v[0])
+        for k in ms.products_of(i):
+            def f(t, i=i, k=k):
+                prof = np.repeat(a[None, :], t.size, axis=0)
+                prof[:, k] = t
+                return ms.firm_profits(prof)[:, i]
+            best = max(best, _maximize_scalar(f, 0.0, hi[k], n_grid=257)[1])
         if best - pi[i] > rtol * scale:
             raise SolverError(
                 f"{what}: firm {i + 1} can gain {best - pi[i]:.3g} by deviating; the solution is not certified"
@@ -381,7 +559,9 @@ def _certify(ms: MarketSpec, a: np.ndarray, what: str, rtol: float = 1e-9) -> No
 
 
 def _nash_candidate(ms: MarketSpec) -> np.ndarray:
-    n, c, d = ms.n_firms, ms.cost, ms.demand
+    """Closed-form equilibrium of single-product firms (exits handled by shrinking the active set).
+    With multi-product firms it only starts the best-response iteration."""
+    n, c, d = ms.n_products, ms.cost, ms.demand
     if d.kind == "linear":  # homogeneous Cournot, with exits
         a0, b = d.scalars[0], d.scalars[1]
         active = np.ones(n, bool)
@@ -463,8 +643,8 @@ def _nash_homogeneous_bertrand(ms: MarketSpec) -> Outcome:
     c1, c2 = c[order[0]], c[order[1]]
     D = lambda p: max(0.0, (a0 - p) / b)  # noqa: E731
     prices = c.copy()
-    q = np.zeros(ms.n_firms)
-    pi = np.zeros(ms.n_firms)
+    q = np.zeros(ms.n_products)
+    pi = np.zeros(ms.n_products)
     if c1 == c2:
         tied = np.flatnonzero(c == c1)
         w = ms.demand.vector[tied]
@@ -476,7 +656,7 @@ def _nash_homogeneous_bertrand(ms: MarketSpec) -> Outcome:
         prices[winner] = p
         q[winner] = D(p)
         pi[winner] = (p - c1) * D(p)
-    return Outcome(prices, q, prices.copy(), pi)
+    return Outcome(prices, q, prices.copy(), pi, pi.copy())
 
 
 # --------------------------------------------------------------------------------------------------
@@ -497,7 +677,7 @@ def collusive_outcome(market, agreement: str = "joint", actions=None) -> Outcome
         scale factor, prices from inverse demand under Bertrand; Schmalensee, 1987, "Competitive
         advantage and collusive optima"), scale chosen to maximise the sum of profits. ``given``: the
         action vector ``actions``.
-    actions : array_like of shape (n_firms,), optional
+    actions : array_like of shape (n_products,), optional
         Required with ``agreement="given"``.
     """
     ms = _spec(market)
@@ -507,9 +687,9 @@ def collusive_outcome(market, agreement: str = "joint", actions=None) -> Outcome
         if actions is None:
             raise InputError("collusion.actions", "an action per firm is needed with agreement = 'given'")
         a = np.asarray(actions, dtype=float)
-        if a.shape != (ms.n_firms,) or not np.all(np.isfinite(a)):
+        if a.shape != (ms.n_products,) or not np.all(np.isfinite(a)):
             raise InputError(
-                "collusion.actions", f"must have one finite value per firm ({ms.n_firms}), got {actions!r}"
+                "collusion.actions", f"must have one finite value per product ({ms.n_products}), got {actions!r}"
             )
         if np.any(a < 0):
             raise InputError("collusion.actions", f"actions must be >= 0, got {a.tolist()}")
@@ -551,7 +731,7 @@ def _merit_order_quantities(ms: MarketSpec) -> np.ndarray:
         mr = lambda Q: A * Q ** (-1 / eps) * (1 - 1 / eps) if Q > 0 else np.inf  # noqa: E731
         q_of_mr = lambda m: (A * (1 - 1 / eps) / m) ** eps  # noqa: E731
     levels = np.unique(c)
-    q = np.zeros(ms.n_firms)
+    q = np.zeros(ms.n_products)
     Q = 0.0
     for lev in levels:
         group = np.flatnonzero(c == lev)
@@ -615,7 +795,7 @@ def _diff_joint_quantities(ms: MarketSpec) -> np.ndarray:
     (Stark and Parker, 1995) of :func:`scipy.optimize.lsq_linear`."""
     d, c = ms.demand, ms.cost
     b, g = d.scalars[0], d.scalars[1]
-    n = ms.n_firms
+    n = ms.n_products
     cap = ms.capacity if ms.quantity_setting else np.full(n, np.inf)
     H = 2 * b * ((1 - g) * np.eye(n) + g * np.ones((n, n)))
     r = d.vector - c
@@ -636,7 +816,7 @@ def _diff_joint_quantities(ms: MarketSpec) -> np.ndarray:
 
 def _common_level(ms: MarketSpec, x: np.ndarray) -> np.ndarray:
     """Profiles in which every firm plays the common level x (quantities capped at capacity)."""
-    A = np.repeat(np.asarray(x, float)[:, None], ms.n_firms, axis=1)
+    A = np.repeat(np.asarray(x, float)[:, None], ms.n_products, axis=1)
     if ms.quantity_setting:
         A = np.minimum(A, ms.capacity)
     return A
@@ -702,25 +882,28 @@ def best_deviation(market, actions) -> tuple[np.ndarray, np.ndarray]:
 
     Returns
     -------
-    actions : ndarray of shape (n_firms,)
-        Firm i's deviation action when the others play ``actions``.
+    profiles : ndarray of shape (n_firms, n_products)
+        Row i: the profile when firm i deviates and the others keep ``actions``.
     profits : ndarray of shape (n_firms,)
-        Its deviation profit (a supremum for homogeneous Bertrand with continuous prices).
+        The deviating firm's profit (a supremum for homogeneous Bertrand with continuous prices).
     """
     ms = _spec(market)
     a = np.asarray(actions, dtype=float)
-    dev_a = np.empty(ms.n_firms)
+    rows = np.empty((ms.n_firms, ms.n_products))
     dev_p = np.empty(ms.n_firms)
+    own_profit = ms.firm_profits(a[None, :])[0]
     for i in range(ms.n_firms):
-        x, v = best_response(ms, i, a[None, :])
-        dev_a[i], dev_p[i] = x[0], v[0]
-    # never report a "deviation" worse than complying (numerical noise at a best response)
-    own = ms.profits(a[None, :])[0]
-    if not ms.homogeneous_bertrand:
-        worse = dev_p < own
-        dev_a = np.where(worse, a, dev_a)
-        dev_p = np.where(worse, own, dev_p)
-    return dev_a, dev_p
+        prof, v = best_response(ms, i, a[None, :])
+        rows[i], dev_p[i] = prof[0], v[0]
+        # never report a deviation worse than complying (rounding at a best response)
+        if not ms.homogeneous_bertrand and dev_p[i] < own_profit[i]:
+            rows[i], dev_p[i] = a, own_profit[i]
+    return rows, dev_p
+
+
+def deviation_actions(ms: MarketSpec, profiles: np.ndarray) -> np.ndarray:
+    """Per product, its action when its owner deviates: ``profiles[owner[k], k]``."""
+    return profiles[ms.owner, np.arange(ms.n_products)]
 
 
 def minmax(market) -> tuple[np.ndarray, np.ndarray]:
@@ -731,37 +914,32 @@ def minmax(market) -> tuple[np.ndarray, np.ndarray]:
 
     Returns
     -------
-    actions : ndarray of shape (n_firms, n_firms)
-        Row i: the profile that holds firm i down (entry i is its best response).
+    profiles : ndarray of shape (n_firms, n_products)
+        Row i: the profile that holds firm i down (its own products at its best response).
     payoffs : ndarray of shape (n_firms,)
     """
     ms = _spec(market)
-    n = ms.n_firms
-    _lo, hi = ms.action_bounds()
-    rows = np.empty((n, n))
-    vals = np.empty(n)
-    for i in range(n):
+    _, hi = ms.action_bounds()
+    rows = np.empty((ms.n_firms, ms.n_products))
+    vals = np.empty(ms.n_firms)
+    for i in range(ms.n_firms):
+        own = ms.products_of(i)
+        others = np.setdiff1d(np.arange(ms.n_products), own)
         if ms.quantity_setting:
-            if ms.demand.kind == "isoelastic" and not np.all(np.isfinite(np.delete(ms.capacity, i))):
+            if ms.demand.kind == "isoelastic" and not np.all(np.isfinite(ms.capacity[others])):
                 # unbounded rival output drives the price, and the firm's profit, to zero in the limit
                 row = np.where(np.isfinite(ms.capacity), ms.capacity, hi)
-                row[i] = 0.0
-                rows[i] = row
-                vals[i] = 0.0
+                row[own] = 0.0
+                rows[i], vals[i] = row, 0.0
                 continue
-            row = np.where(np.isfinite(ms.capacity), ms.capacity, hi.max() * 2)
-            if ms.demand.kind == "differentiated":
-                g = ms.demand.scalars[1]
-                if g > 0:
-                    big = ms.demand.vector.max() / (ms.demand.scalars[0] * g) * 2
-                    row = np.where(np.isfinite(ms.capacity), ms.capacity, big)
+            flood = hi.max() * 2
+            if ms.demand.kind == "differentiated" and ms.demand.scalars[1] > 0:
+                flood = ms.demand.vector.max() / (ms.demand.scalars[0] * ms.demand.scalars[1]) * 2
+            row = np.where(np.isfinite(ms.capacity), ms.capacity, flood)
         else:
-            row = np.zeros(n)
-        x, v = best_response(ms, i, row[None, :])
-        row = row.copy()
-        row[i] = x[0]
-        rows[i] = row
-        vals[i] = max(0.0, float(v[0]))
+            row = np.zeros(ms.n_products)
+        prof, v = best_response(ms, i, row[None, :])
+        rows[i], vals[i] = prof[0], max(0.0, float(v[0]))
     return rows, vals
 
 
@@ -779,8 +957,11 @@ class StageGame:
     market : MarketSpec
     agreement : str
     nash, collusive : Outcome
-    deviation_actions, deviation_profits : ndarray of shape (n_firms,)
-        Firm i's best deviation against the others' collusive actions, and its profit.
+    deviation_profiles : ndarray of shape (n_firms, n_products)
+        Row i: firm i's best deviation against the others' collusive actions.
+    deviation_actions : ndarray of shape (n_products,)
+        Each product's action when its owner deviates.
+    deviation_profits : ndarray of shape (n_firms,)
     minmax_profits : ndarray of shape (n_firms,)
     """
 
@@ -788,6 +969,7 @@ class StageGame:
     agreement: str
     nash: Outcome
     collusive: Outcome
+    deviation_profiles: np.ndarray
     deviation_actions: np.ndarray
     deviation_profits: np.ndarray
     minmax_profits: np.ndarray
@@ -797,12 +979,13 @@ class StageGame:
         return self.market.n_firms
 
     def to_dict(self) -> dict:
+        """Profits per firm; actions, prices and quantities per product."""
         return {
             "agreement": self.agreement,
             "profits": {
-                "collusive": self.collusive.profits.tolist(),
+                "collusive": self.collusive.firm_profits.tolist(),
                 "deviation": self.deviation_profits.tolist(),
-                "nash": self.nash.profits.tolist(),
+                "nash": self.nash.firm_profits.tolist(),
                 "minmax": self.minmax_profits.tolist(),
             },
             "actions": {
@@ -815,6 +998,7 @@ class StageGame:
                 "collusive": self.collusive.quantities.tolist(),
                 "nash": self.nash.quantities.tolist(),
             },
+            "owner": (self.market.owner + 1).tolist(),
         }
 
 
@@ -823,10 +1007,6 @@ def stage_game(market, agreement: str = "joint", actions=None) -> StageGame:
     ms = _spec(market)
     nash = static_nash(ms)
     coll = collusive_outcome(ms, agreement, actions)
-    dev_a, dev_p = best_deviation(ms, coll.actions)
+    dev_rows, dev_p = best_deviation(ms, coll.actions)
     _, mm = minmax(ms)
-    return StageGame(ms, agreement, nash, coll, dev_a, dev_p, mm)
-
-
-def _as_market(obj) -> Market | MarketSpec:  # pragma: no cover - typing helper
-    return obj
+    return StageGame(ms, agreement, nash, coll, dev_rows, deviation_actions(ms, dev_rows), dev_p, mm)

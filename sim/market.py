@@ -2,7 +2,13 @@
 
 A :class:`Market` is a store-only description. :meth:`Market.spec` validates it once and returns a
 :class:`MarketSpec`, the numeric form every computation uses. Profits are vectorised over action
-profiles of shape ``(..., n_firms)``: quantities under Cournot competition, prices under Bertrand.
+profiles of shape ``(..., n_products)``: quantities under Cournot competition, prices under Bertrand.
+
+Products and firms: by default each firm sells one product and the two words are interchangeable.
+An ``owner`` map (product -> firm) describes multi-product firms, as after a merger of
+differentiated-product sellers; a firm's profit is the sum over its products, and it sets its
+products' actions jointly. Per-product arrays (costs, qualities, intercepts) have one entry per
+product.
 
 Conventions
 -----------
@@ -66,19 +72,26 @@ class MarketSpec:
 
     Attributes
     ----------
+    n_products : int
+        Length of action profiles.
     n_firms : int
+        Number of firms (owners); equal to ``n_products`` without multi-product firms.
+    owner : ndarray of int, shape (n_products,)
+        Firm index (0-based) of each product.
     model : {"cournot", "bertrand"}
     demand : DemandSpec
-    cost : ndarray of shape (n_firms,)
-    capacity : ndarray of shape (n_firms,)
-        ``inf`` where a firm is unconstrained.
+    cost : ndarray of shape (n_products,)
+    capacity : ndarray of shape (n_products,)
+        ``inf`` where a product is unconstrained.
     tick : float
         Price step of homogeneous Bertrand (0: continuous prices).
     code : int
         Identifier of the (demand, model) pair for the numba core.
     """
 
+    n_products: int
     n_firms: int
+    owner: np.ndarray
     model: str
     demand: DemandSpec
     cost: np.ndarray
@@ -101,10 +114,29 @@ class MarketSpec:
         return self.demand.kind in ("linear", "isoelastic")
 
     @property
+    def multi_product(self) -> bool:
+        return self.n_products != self.n_firms
+
+    def products_of(self, i: int) -> np.ndarray:
+        """Indices of firm ``i``'s products."""
+        return np.flatnonzero(self.owner == i)
+
+    def firm_sum(self, per_product: np.ndarray) -> np.ndarray:
+        """Aggregate a per-product array of shape (..., n_products) to firms, shape (..., n_firms)."""
+        x = np.asarray(per_product, dtype=float)
+        if not self.multi_product:
+            return x
+        out = np.zeros(x.shape[:-1] + (self.n_firms,))
+        for k in range(self.n_products):
+            out[..., self.owner[k]] += x[..., k]
+        return out
+
+    @property
     def symmetric(self) -> bool:
-        """True when every firm has the same cost, capacity and per-firm demand parameter."""
+        """True when firms are single-product and share costs, capacities and demand parameters."""
         return bool(
-            np.all(self.cost == self.cost[0])
+            not self.multi_product
+            and np.all(self.cost == self.cost[0])
             and np.all(self.capacity == self.capacity[0])
             and np.all(self.demand.vector == self.demand.vector[0])
         )
@@ -115,7 +147,7 @@ class MarketSpec:
 
         Parameters
         ----------
-        actions : array_like of shape (..., n_firms)
+        actions : array_like of shape (..., n_products)
             Quantities (Cournot) or prices (Bertrand).
         shock : float or array_like broadcastable to (..., 1)
             Multiplicative demand shock: it scales the price under Cournot competition and the
@@ -123,11 +155,12 @@ class MarketSpec:
 
         Returns
         -------
-        quantities, prices, profits : ndarray of shape (..., n_firms)
+        quantities, prices, profits : ndarray of shape (..., n_products)
+            Profits per product; :meth:`firm_profits` aggregates them to firms.
         """
         a = np.asarray(actions, dtype=float)
-        if a.shape[-1] != self.n_firms:
-            raise ValueError(f"actions must have last dimension {self.n_firms}, got shape {a.shape}")
+        if a.shape[-1] != self.n_products:
+            raise ValueError(f"actions must have last dimension {self.n_products}, got shape {a.shape}")
         if self.quantity_setting:
             q = np.clip(a, 0.0, self.capacity)
             p = inverse_demand(self.demand, q) * shock
@@ -140,8 +173,12 @@ class MarketSpec:
         return q, p, pi
 
     def profits(self, actions, shock=1.0) -> np.ndarray:
-        """Per-firm profits of action profiles, shape (..., n_firms)."""
+        """Per-product profits of action profiles, shape (..., n_products)."""
         return self.evaluate(actions, shock)[2]
+
+    def firm_profits(self, actions, shock=1.0) -> np.ndarray:
+        """Per-firm profits of action profiles, shape (..., n_firms)."""
+        return self.firm_sum(self.evaluate(actions, shock)[2])
 
     def consumer_surplus(self, actions) -> np.ndarray:
         """Consumer surplus of action profiles, shape (...,)."""
@@ -157,7 +194,7 @@ class MarketSpec:
         """
         if "bounds" in self._cache:
             return self._cache["bounds"]
-        n, d, c = self.n_firms, self.demand, self.cost
+        n, d, c = self.n_products, self.demand, self.cost
         if d.kind == "linear":
             hi = np.full(n, d.scalars[0] / d.scalars[1]) if self.quantity_setting else np.full(n, d.scalars[0])
         elif d.kind == "differentiated":
@@ -199,6 +236,10 @@ class Market(Parametrized):
         Per-firm capacity (> 0), quantity competition only.
     tick : float
         Price step for homogeneous Bertrand; 0 means continuous prices (see the module notes).
+    owner : list of int, optional
+        Multi-product firms: the firm number (1, 2, ...) that owns each product. Per-product lists
+        (cost, intercept, quality) then have one entry per product. Differentiated and logit demand
+        only; with a homogeneous good a firm with several plants is one firm (combine them).
 
     Examples
     --------
@@ -215,17 +256,18 @@ class Market(Parametrized):
         "tick": Real(0, None),
     }
 
-    def __init__(self, demand, cost, model="cournot", n_firms=None, capacity=None, tick=0.0):
+    def __init__(self, demand, cost, model="cournot", n_firms=None, capacity=None, tick=0.0, owner=None):
         self.demand = demand
         self.cost = cost
         self.model = model
         self.n_firms = n_firms
         self.capacity = capacity
         self.tick = tick
+        self.owner = owner
 
     @classmethod
     def _param_names(cls):
-        return ["demand", "cost", "model", "n_firms", "capacity", "tick"]
+        return ["demand", "cost", "model", "n_firms", "capacity", "tick", "owner"]
 
     def __setattr__(self, name, value):
         object.__setattr__(self, name, value)
@@ -240,6 +282,11 @@ class Market(Parametrized):
         return type(self)(**params)
 
     def _infer_n(self, prefix: str) -> int:
+        """Number of products (= firms without an owner map)."""
+        if self.owner is not None:
+            if not isinstance(self.owner, list | tuple | np.ndarray) or len(self.owner) < 2:
+                raise InputError(f"{prefix}.owner", f"must list the owning firm of each product, got {self.owner!r}")
+            return len(self.owner)
         if self.n_firms is not None:
             return Integer(2, 100_000).check(f"{prefix}.n_firms", self.n_firms)
         candidates = []
@@ -294,14 +341,19 @@ class Market(Parametrized):
         _check_costs(prefix, dspec, cost)
         if p["tick"] > 0 and not (dspec.kind == "linear" and model == "bertrand"):
             raise InputError(f"{prefix}.tick", "a price tick applies to homogeneous Bertrand only")
-        ms = MarketSpec(n, model, dspec, cost, cap, p["tick"], _CODES[(dspec.kind, model)])
+        owner, n_owners = _check_owner(prefix, self.owner, n, self.n_firms, dspec.kind)
+        ms = MarketSpec(n, n_owners, owner, model, dspec, cost, cap, p["tick"], _CODES[(dspec.kind, model)])
         object.__setattr__(self, "_spec_cache", (prefix, ms))
         return ms
 
     # thin conveniences so that users need not touch the spec
     def profits(self, actions, shock=1.0):
-        """Per-firm profits of action profiles of shape (..., n_firms)."""
+        """Per-product profits of action profiles of shape (..., n_products)."""
         return self.spec().profits(actions, shock)
+
+    def firm_profits(self, actions, shock=1.0):
+        """Per-firm profits of action profiles of shape (..., n_products)."""
+        return self.spec().firm_profits(actions, shock)
 
     def evaluate(self, actions, shock=1.0):
         """Quantities, prices and profits of action profiles of shape (..., n_firms)."""
@@ -320,6 +372,8 @@ class Market(Parametrized):
             out["capacity"] = _plain(self.capacity)
         if self.tick:
             out["tick"] = self.tick
+        if self.owner is not None:
+            out["owner"] = _plain(self.owner)
         return out
 
 
@@ -329,6 +383,32 @@ def _plain(v):
     if isinstance(v, tuple):
         return list(v)
     return v
+
+
+def _check_owner(prefix, owner, n_products, n_firms, kind):
+    """Validate an owner map (firm numbers 1..F, each used); returns 0-based owners and F."""
+    if owner is None:
+        return np.arange(n_products), n_products
+    key = f"{prefix}.owner"
+    vals = []
+    for k, v in enumerate(owner):
+        if isinstance(v, bool) or not isinstance(v, int | np.integer) or v < 1:
+            raise InputError(key, f"entry {k + 1} must be a firm number 1, 2, ..., got {v!r}")
+        vals.append(int(v))
+    F = max(vals)
+    missing = sorted(set(range(1, F + 1)) - set(vals))
+    if missing:
+        raise InputError(key, f"firm numbers must run from 1 without gaps; firm {missing[0]} owns no product")
+    if F < 2:
+        raise InputError(key, "a market needs at least two firms")
+    if n_firms is not None and n_firms != F:
+        raise InputError(f"{prefix}.n_firms", f"is {n_firms} but the owner map names {F} firms")
+    if kind in ("linear", "isoelastic") and F != n_products:
+        raise InputError(
+            key, f"multi-product firms need differentiated products; with {kind} demand a firm with several "
+            "plants is one firm (combine them)",
+        )
+    return np.array(vals, dtype=np.int64) - 1, F
 
 
 def _check_costs(prefix: str, d: DemandSpec, cost: np.ndarray) -> None:
@@ -359,7 +439,7 @@ _DEMAND_KEYS = {
     "logit": ("quality", "outside", "mu", "size"),
     "isoelastic": ("scale", "elasticity"),
 }
-_MARKET_KEYS = ("model", "demand", "n_firms", "cost", "capacity", "tick")
+_MARKET_KEYS = ("model", "demand", "n_firms", "cost", "capacity", "tick", "owner")
 
 
 def market_from_dict(table: dict, prefix: str = "market") -> Market:
@@ -394,6 +474,7 @@ def market_from_dict(table: dict, prefix: str = "market") -> Market:
         n_firms=table.get("n_firms"),
         capacity=table.get("capacity"),
         tick=table.get("tick", 0.0),
+        owner=table.get("owner"),
     )
     m.spec(prefix)
     return m

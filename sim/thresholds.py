@@ -43,6 +43,7 @@ from .equilibrium import (
     _common_level,
     best_deviation,
     best_response,
+    deviation_actions,
     outcome_of,
     stage_game,
 )
@@ -230,8 +231,8 @@ class StickCarrot(SchemeThreshold):
     ----------------
     punishment_level : float
         The common punishment quantity or price ``x``.
-    punishment_actions : ndarray of shape (n_firms,)
-        The punishment profile (``x``, capped at each firm's capacity).
+    punishment_actions : ndarray of shape (n_products,)
+        The punishment profile (``x`` for every product, capped at capacity).
     punishment_profits, punishment_deviation_profits : ndarray of shape (n_firms,)
         Profits at the punishment and of the best deviation from it.
     binding_constraint : str
@@ -262,7 +263,7 @@ def _sc_parts(ms: MarketSpec, xs: np.ndarray, pi_c: np.ndarray, pi_d: np.ndarray
     Returns arrays of shape (len(xs), n_firms); ``inf`` where the punishment is not harsher than
     collusion."""
     P = _common_level(ms, xs)
-    pi_p = ms.profits(P)
+    pi_p = ms.firm_profits(P)
     if ms.symmetric:
         _, v = best_response(ms, 0, P)
         pi_dp = np.repeat(v[:, None], ms.n_firms, axis=1)
@@ -299,14 +300,14 @@ def stick_and_carrot(market, stage: StageGame | None = None, n_grid: int = 161) 
     """
     ms = market if isinstance(market, MarketSpec) else market.spec()
     st = stage if stage is not None else stage_game(ms)
-    pi_c, pi_d = st.collusive.profits, st.deviation_profits
+    pi_c, pi_d = st.collusive.firm_profits, st.deviation_profits
     _lo, hi = ms.action_bounds()
     x_lo = 0.0
     x_hi = float(hi.max())
     if ms.quantity_setting and ms.demand.kind in ("linear", "differentiated") and np.all(ms.cost > 0):
         # beyond the choke quantity the price stays at zero and the punishment profit is -c x: harsher
         # punishments remain available up to where one period of losses outweighs the cheating gain
-        x_hi = max(x_hi, 2.0 * float(np.max((pi_d - pi_c) / ms.cost)))
+        x_hi = max(x_hi, 2.0 * float(np.max(pi_d - pi_c)) / float(ms.cost.min()))
         x_hi = min(x_hi, float(ms.capacity.max()))
 
     def F(xs):
@@ -365,7 +366,8 @@ class PartialCollusion:
     T : int or None
     weight : float
         Position on the path: 0 is static Nash, 1 the agreed collusive outcome.
-    actions, profits : ndarray of shape (n_firms,)
+    actions : ndarray of shape (n_products,)
+    profits : ndarray of shape (n_firms,)
     profit_gain : float
         ``(joint profit - joint Nash) / (joint collusive - joint Nash)``.
     """
@@ -390,14 +392,15 @@ def _path_threshold(ms: MarketSpec, st: StageGame, lam: float, scheme: str, T: i
     a = st.nash.actions + lam * (st.collusive.actions - st.nash.actions)
     if ms.quantity_setting:
         a = np.minimum(a, ms.capacity)
-    pi = ms.profits(a[None, :])[0]
-    dev_a, dev = best_deviation(ms, a)
+    pi = ms.firm_profits(a[None, :])[0]
+    dev_rows, dev = best_deviation(ms, a)
     if scheme == "grim":
-        return _market_level(grim_threshold(pi, dev, st.nash.profits))[0]
+        return _market_level(grim_threshold(pi, dev, st.nash.firm_profits))[0]
     if scheme == "finite":
-        return _market_level(np.array([_finite_scalar(pi[i], dev[i], st.nash.profits[i], T)
+        return _market_level(np.array([_finite_scalar(pi[i], dev[i], st.nash.firm_profits[i], T)
                                        for i in range(ms.n_firms)]))[0]
-    sub = StageGame(ms, st.agreement, st.nash, outcome_of(ms, a), dev_a, dev, st.minmax_profits)
+    sub = StageGame(ms, st.agreement, st.nash, outcome_of(ms, a), dev_rows, deviation_actions(ms, dev_rows), dev,
+                    st.minmax_profits)
     return stick_and_carrot(ms, sub, n_grid=81).market
 
 
@@ -450,7 +453,7 @@ def partial_collusion(market, delta: float, scheme: str = "grim", T: int | None 
                 hi_ = mid
         lam = lo_
     a = st.nash.actions + lam * (st.collusive.actions - st.nash.actions)
-    pi = ms.profits(a[None, :])[0]
+    pi = ms.firm_profits(a[None, :])[0]
     gain = (pi.sum() - joint_n) / (joint_c - joint_n) if joint_c > joint_n else math.nan
     return PartialCollusion(scheme, delta, T, float(lam), a, pi, float(gain))
 
@@ -515,7 +518,7 @@ def thresholds(market, punishments=(1, 2, 3, 5, 10), deltas=(), agreement: str =
     Ts = [_check_T(T, "punishment") for T in punishments]
     ds = [_check_delta(d, "delta") for d in deltas]
     st = stage if stage is not None else stage_game(ms, agreement, actions)
-    c, d, n = st.collusive.profits, st.deviation_profits, st.nash.profits
+    c, d, n = st.collusive.firm_profits, st.deviation_profits, st.nash.firm_profits
     grim = _scheme("grim", grim_threshold(c, d, n))
     finite = [_scheme("finite", finite_threshold(c, d, n, T), T) for T in Ts]
     sc = stick_and_carrot(ms, st)

@@ -131,6 +131,8 @@ def _describe_market(market) -> str:
 
 
 def render(report, market, tp=None) -> str:
+    import numpy as np
+
     from .._text import CAUTION, fmt_num, table
 
     st = report.stage
@@ -139,12 +141,17 @@ def render(report, market, tp=None) -> str:
     act = "quantity" if ms.quantity_setting else "price"
     lines = [f"Market: {_describe_market(market)}",
              f"Agreement: {_AGREEMENT_NAMES.get(st.agreement, st.agreement)}", ""]
+    def per_firm(values, i):
+        own = ms.products_of(i)
+        return values[own[0]] if own.size == 1 else ", ".join(fmt_num(values[k]) for k in own)
+
     rows = []
     for i in range(n):
-        cap = ms.capacity[i]
-        rows.append([f"firm {i + 1}", ms.cost[i], cap if cap < float("inf") else "-",
-                     st.collusive.actions[i], st.deviation_actions[i], st.nash.actions[i],
-                     st.collusive.profits[i], st.deviation_profits[i], st.nash.profits[i], st.minmax_profits[i]])
+        caps = np.where(np.isfinite(ms.capacity), ms.capacity, np.nan)
+        rows.append([f"firm {i + 1}", per_firm(ms.cost, i), per_firm(caps, i),
+                     per_firm(st.collusive.actions, i), per_firm(st.deviation_actions, i), per_firm(st.nash.actions, i),
+                     st.collusive.firm_profits[i], st.deviation_profits[i], st.nash.firm_profits[i],
+                     st.minmax_profits[i]])
     lines.append(table(["", "cost", "capacity", f"collusive {act}", f"deviation {act}", f"Nash {act}",
                         "collusive profit", "deviation profit", "Nash profit", "minmax"], rows))
     lines.append("")
