@@ -1,0 +1,754 @@
+"""Learning pricing agents: sessions of Q-learning firms, their limit play and the punishment they learn.
+
+The experiment of Calvano, Calzolari, Denicolo and Pastorello (2020, AER, "Artificial Intelligence,
+Algorithmic Pricing, and Collusion") on any market of this package:
+
+1. every firm is a :class:`strategies.qlearning.QLearner` with a grid of actions;
+2. a *session* lets them play and learn until every learner's greedy strategy has been unchanged for
+   ``convergence`` consecutive periods (or ``max_periods`` is reached: not converged);
+3. the learned strategies are then played greedily from the final state: the *limit path* ends in a
+   cycle whose mean prices and profits give the session's *profit gain*
+   ``(profit - Nash) / (collusive - Nash)``;
+4. the *impulse response*: one firm is forced to deviate for one period (by default to its static
+   best response on its grid), everyone then follows the learned strategies; a punishment shows as
+   the rivals cutting their prices in the following period, and the exact discounted value of the
+   deviation under the learned strategies says whether it paid.
+
+Many sessions run in parallel, each with its own random stream from
+``sim._rng.stream_states(seed, (cell,), session, session + 1)``, so results do not depend on the
+number of workers. Layers: :func:`learn` (validated public function) -> :func:`_run_sessions`
+(driver: buffers, seeds, threads, progress) -> :mod:`sim._learnkernel` (numba, releases the GIL).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import sys
+import time
+from concurrent.futures import ThreadPoolExecutor, as_completed
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from ._params import Integer, Real, optional
+from .errors import InputError
+
+__all__ = [
+    "LearningResult",
+    "Lineup",
+    "benchmark",
+    "compile_lineup",
+    "learn",
+    "reference_session",
+]
+
+#: sessions keep at most this many periods of their limit cycle (the statistics use the whole cycle)
+CYCLE_STORE = 64
+#: the impulse response averages over at most this many points of a session's limit cycle
+IR_POINTS = 64
+#: share of the available memory a run may take for its Q-matrices
+_MEMORY_SHARE = 0.8
+
+_RUN_CONSTRAINTS = {
+    "sessions": Integer(1, 10_000_000),
+    "seed": Integer(0, 2**63 - 1),
+    "convergence": Integer(1, 10**12),
+    "max_periods": Integer(1, 10**15),
+    "deviator": Integer(0, 3),
+    "response_periods": Integer(0, 10_000),
+    "near": Real(0, 1),
+    "workers": optional(Integer(1, 1024)),
+    "cell": Integer(0, 2**31),
+}
+
+
+# ------------------------------------------------------------------------------------------------
+# The line-up: learners resolved against a market
+# ------------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, eq=False)
+class Lineup:
+    """Learners resolved against a market: the arrays the kernel plays.
+
+    Attributes
+    ----------
+    market : sim.MarketSpec
+    learners : tuple of CompiledLearner, one per seat
+    grids : tuple of ndarray, grid of each seat
+    radix, place : ndarray of int64, shape (n,)
+        Actions per seat and place value of each seat in a profile index.
+    M, K, S : int
+        Number of profiles, longest memory, number of history states (``M**K``).
+    mod : ndarray of int64, shape (n,)
+        Number of states of each learner (``M**k``).
+    alpha, beta, delta : ndarray of shape (n,)
+    payoff, actions, prices : ndarray of shape (M, n)
+        Profit, action and price of each seat at each profile.
+    q0 : ndarray of shape (n, max(mod), max(radix))
+        Initial Q-values (entries beyond a learner's states or actions are unused).
+    nash_profits, collusive_profits, nash_actions, collusive_actions, nash_prices, collusive_prices :
+        ndarray of shape (n,), the continuous static-Nash and joint-profit benchmarks.
+    """
+
+    market: Any
+    learners: tuple
+    grids: tuple
+    radix: np.ndarray
+    place: np.ndarray
+    M: int
+    K: int
+    S: int
+    mod: np.ndarray
+    alpha: np.ndarray
+    beta: np.ndarray
+    delta: np.ndarray
+    payoff: np.ndarray
+    actions: np.ndarray
+    prices: np.ndarray
+    q0: np.ndarray
+    nash_profits: np.ndarray
+    collusive_profits: np.ndarray
+    nash_actions: np.ndarray
+    collusive_actions: np.ndarray
+    nash_prices: np.ndarray
+    collusive_prices: np.ndarray
+
+    @property
+    def n_seats(self) -> int:
+        return int(self.radix.size)
+
+    def initial_greedy(self) -> np.ndarray:
+        """First argmax of every row of ``q0`` restricted to each learner's actions, shape (n, S_l)."""
+        g = np.zeros(self.q0.shape[:2], dtype=np.int64)
+        for i in range(self.n_seats):
+            g[i] = np.argmax(self.q0[i, :, : self.radix[i]], axis=1)
+        return g
+
+    def decode(self, prof) -> np.ndarray:
+        """Action indices of profile numbers, shape (..., n)."""
+        prof = np.asarray(prof, dtype=np.int64)
+        return (prof[..., None] // self.place) % self.radix
+
+
+def _available_memory() -> int:
+    """Bytes of memory available to this process (Linux ``MemAvailable``, else physical memory)."""
+    try:
+        with open("/proc/meminfo") as f:
+            for line in f:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except OSError:
+        pass
+    try:
+        return int(os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE"))
+    except (ValueError, OSError, AttributeError):  # pragma: no cover - exotic platforms
+        return 8 << 30
+
+
+def _gb(x: float) -> str:
+    return f"{x / 1e9:.3g} GB"
+
+
+def _check_memory(radix: list[int], ks: list[int], n_workers: int, prefix: str, available: int | None) -> None:
+    """Refuse a state space that cannot be held, before anything is allocated."""
+    n = len(radix)
+    M = math.prod(radix)
+    K = max(ks)
+    S = M**K
+    n_states = M ** max(ks)
+    m_max = max(radix)
+    key = f"{prefix}.k" if prefix else "k"
+    if S * M >= 2**62:
+        raise InputError(key, f"state space too large: {M}^{K} = {float(S):.3g} history states exceed what the "
+                              "kernel can index; reduce m, k or the number of firms")
+    per_session = n * n_states * m_max * 8 + n * n_states * 8  # Q-values and greedy actions
+    tables = 3 * M * n * 8
+    need = per_session * (n_workers + 1) + tables
+    avail = _available_memory() if available is None else available
+    if need > _MEMORY_SHARE * avail:
+        raise InputError(
+            key,
+            f"state space too large: {n} learners x {n_states} states x {m_max} actions need "
+            f"{_gb(per_session)} per session ({_gb(need)} for {n_workers} worker(s)), more than the "
+            f"{_gb(_MEMORY_SHARE * avail)} that may be used; reduce m, k or the number of firms",
+        )
+
+
+def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: int = 1,
+                   available_memory: int | None = None) -> Lineup:
+    """Resolve learners against a market, checking the state space fits in memory first.
+
+    Parameters
+    ----------
+    market : sim.Market
+        A single-product market with 2 to 4 firms.
+    learners : QLearner or sequence of QLearner, optional
+        One learner for every seat (default ``QLearner()``, the published baseline), or one per seat.
+    prefix : str
+        Key path of the learners' parameters in error messages.
+    workers : int
+        Sessions held in memory at once (for the memory check).
+    available_memory : int, optional
+        Bytes that may be used (default: what the operating system reports as available).
+
+    Returns
+    -------
+    Lineup
+    """
+    from strategies.qlearning import QLearner
+
+    from .equilibrium import stage_game
+
+    ms = market.spec() if hasattr(market, "spec") else market
+    n = ms.n_firms
+    if getattr(ms, "multi_product", False):
+        raise InputError("market.owner", "each learning firm sets one action: multi-product firms are not supported")
+    if not 2 <= n <= 4:
+        raise InputError("market.n_firms", f"learning needs 2 to 4 firms, got {n}")
+    if learners is None:
+        learners = QLearner()
+    if isinstance(learners, QLearner):
+        seats = [learners] * n
+        keys = [prefix] * n
+    else:
+        seats = list(learners)
+        if len(seats) != n:
+            raise InputError(prefix, f"the line-up has {len(seats)} learners for {n} firms")
+        keys = [f"{prefix}[{i + 1}]" if prefix else f"[{i + 1}]" for i in range(n)]
+        for i, s in enumerate(seats):
+            if not isinstance(s, QLearner):
+                raise InputError(keys[i], f"must be a QLearner, got {type(s).__name__}")
+    specs = [s.spec(k) for s, k in zip(seats, keys)]
+    radix = [int(p["m"]) for p in specs]
+    ks = [int(p["k"]) for p in specs]
+    _check_memory(radix, ks, max(1, int(workers)), prefix, available_memory)
+
+    compiled = tuple(s.compile(ms, i, k) for i, (s, k) in enumerate(zip(seats, keys)))
+    grids = tuple(c.grid for c in compiled)
+    radix_a = np.array(radix, dtype=np.int64)
+    place = np.ones(n, dtype=np.int64)
+    for i in range(1, n):
+        place[i] = place[i - 1] * radix_a[i - 1]
+    M = int(np.prod(radix_a))
+    K = max(ks)
+    S = M**K
+    mod = np.array([M**k for k in ks], dtype=np.int64)
+
+    # every profile's actions: seat 0 varies fastest, matching place
+    idx = (np.arange(M, dtype=np.int64)[:, None] // place) % radix_a
+    actions = np.stack([grids[i][idx[:, i]] for i in range(n)], axis=1)
+    _q, p, pi = ms.evaluate(actions)
+    if not np.all(np.isfinite(pi)):
+        raise InputError(prefix, "a profit on the action grid is not finite")
+
+    st = stage_game(ms)
+    delta = np.array([c.delta for c in compiled])
+    q0 = np.zeros((n, int(mod.max()), int(radix_a.max())))
+    for i, c in enumerate(compiled):
+        n_states = int(mod[i])
+        m = int(radix_a[i])
+        if isinstance(c.init, str):
+            if c.init == "uniform":
+                # E[profit | own action a, rivals uniform], discounted (Calvano et al., 2020, eq. 8)
+                table = pi[:, i].reshape(tuple(radix[::-1]))
+                axes = tuple(j for j in range(n) if j != n - 1 - i)
+                row = table.mean(axis=axes) / (1.0 - c.delta)
+                q0[i, :n_states, :m] = row[None, :]
+        else:
+            init = c.init
+            if init.ndim == 1:
+                q0[i, :n_states, :m] = init[None, :]
+            elif init.shape == (n_states, m):
+                q0[i, :n_states, :m] = init
+            else:
+                raise InputError(f"{keys[i]}.init", f"must have shape ({n_states}, {m}) or ({m},) for this line-up, "
+                                                   f"got {init.shape}")
+    return Lineup(
+        market=ms, learners=compiled, grids=grids, radix=radix_a, place=place, M=M, K=K, S=S, mod=mod,
+        alpha=np.array([c.alpha for c in compiled]), beta=np.array([c.beta for c in compiled]), delta=delta,
+        payoff=np.ascontiguousarray(pi, dtype=float), actions=np.ascontiguousarray(actions, dtype=float),
+        prices=np.ascontiguousarray(p, dtype=float), q0=q0,
+        nash_profits=np.asarray(st.nash.profits, float), collusive_profits=np.asarray(st.collusive.profits, float),
+        nash_actions=np.asarray(st.nash.actions, float), collusive_actions=np.asarray(st.collusive.actions, float),
+        nash_prices=np.asarray(st.nash.prices, float), collusive_prices=np.asarray(st.collusive.prices, float),
+    )
+
+
+# ------------------------------------------------------------------------------------------------
+# Statistics across sessions
+# ------------------------------------------------------------------------------------------------
+
+
+def _mean_ci(x, level: float = 0.95) -> dict:
+    """Mean with a Student-t confidence interval (nan when fewer than two values)."""
+    x = np.asarray(x, dtype=float)
+    x = x[np.isfinite(x)]
+    n = x.size
+    if n == 0:
+        return {"mean": math.nan, "se": math.nan, "low": math.nan, "high": math.nan, "n": 0}
+    mean = float(x.mean())
+    if n < 2:
+        return {"mean": mean, "se": math.nan, "low": math.nan, "high": math.nan, "n": 1}
+    from scipy import stats
+
+    se = float(x.std(ddof=1) / math.sqrt(n))
+    h = float(stats.t.ppf(0.5 + level / 2, n - 1)) * se
+    return {"mean": mean, "se": se, "low": mean - h, "high": mean + h, "n": int(n)}
+
+
+def _share_ci(k: int, n: int, level: float = 0.95) -> dict:
+    """Share with the Wilson score interval (Wilson, 1927, JASA 22)."""
+    if n == 0:
+        return {"share": math.nan, "low": math.nan, "high": math.nan, "count": 0, "n": 0}
+    from scipy import stats
+
+    z = float(stats.norm.ppf(0.5 + level / 2))
+    p = k / n
+    den = 1 + z * z / n
+    mid = (p + z * z / (2 * n)) / den
+    h = z * math.sqrt(p * (1 - p) / n + z * z / (4 * n * n)) / den
+    return {"share": p, "low": max(0.0, mid - h), "high": min(1.0, mid + h), "count": int(k), "n": int(n)}
+
+
+def _quantiles(x) -> dict:
+    x = np.asarray(x, dtype=float)
+    x = x[np.isfinite(x)]
+    qs = (0.05, 0.25, 0.5, 0.75, 0.95)
+    if x.size == 0:
+        return {f"q{int(q * 100):02d}": math.nan for q in qs}
+    v = np.quantile(x, qs)
+    return {f"q{int(q * 100):02d}": float(a) for q, a in zip(qs, v)}
+
+
+# ------------------------------------------------------------------------------------------------
+# Results
+# ------------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, eq=False)
+class LearningResult:
+    """Outcomes of a set of learning sessions.
+
+    Per-session arrays (``n`` sessions, ``f`` firms, ``T`` response periods):
+
+    Attributes
+    ----------
+    lineup : Lineup
+    settings : dict
+        The run settings (sessions, seed, convergence, max_periods, deviator, deviation,
+        response_periods, near, cell).
+    converged : ndarray of bool, shape (n,)
+    periods : ndarray of int64, shape (n,)
+        Periods played, including the final ``convergence`` unchanged ones.
+    transient : ndarray of int64, shape (n,)
+        Periods of greedy play from the final state before the limit cycle.
+    cycle_length : ndarray of int64, shape (n,)
+    cycles : list of ndarray of shape (min(length, CYCLE_STORE), f)
+        Action indices along each session's limit cycle.
+    limit_actions, limit_prices, limit_profits : ndarray of shape (n, f)
+        Means over the limit cycle.
+    profit_gain : ndarray of shape (n,)
+        ``(sum of limit profits - sum of Nash profits) / (sum of collusive - sum of Nash)``.
+    firm_profit_gain : ndarray of shape (n, f)
+    near_collusive, near_nash : ndarray of bool, shape (n,)
+        Every firm's mean limit action within ``near`` times the Nash-to-collusive distance of its
+        collusive (Nash) action.
+    ir_prices, ir_profits, cf_prices, cf_profits : ndarray of shape (n, T + 2, f)
+        Impulse response and the path without deviation, averaged over the points of the cycle;
+        row 0 is the period before the deviation, row 1 the deviation.
+    deviation_action : ndarray of int64, shape (n,)
+        The deviator's forced action index (at the first point of the cycle).
+    deviation_gain : ndarray of shape (n,)
+        Discounted value of deviating minus not deviating, under the learned strategies (exact,
+        infinite horizon), averaged over the points of the cycle.
+    deviation_pays, returned : ndarray of shape (n,)
+        Share of the cycle's points where the deviation pays / after which play returns to the
+        same cycle.
+    return_periods : ndarray of shape (n,)
+        Mean periods from the deviation until play is back on the cycle (nan if it never is).
+    elapsed : float
+        Wall-clock seconds.
+    """
+
+    lineup: Lineup
+    settings: dict
+    converged: np.ndarray
+    periods: np.ndarray
+    transient: np.ndarray
+    cycle_length: np.ndarray
+    cycles: list
+    limit_actions: np.ndarray
+    limit_prices: np.ndarray
+    limit_profits: np.ndarray
+    profit_gain: np.ndarray
+    firm_profit_gain: np.ndarray
+    near_collusive: np.ndarray
+    near_nash: np.ndarray
+    ir_prices: np.ndarray
+    ir_profits: np.ndarray
+    cf_prices: np.ndarray
+    cf_profits: np.ndarray
+    deviation_action: np.ndarray
+    deviation_gain: np.ndarray
+    deviation_pays: np.ndarray
+    returned: np.ndarray
+    return_periods: np.ndarray
+    elapsed: float = 0.0
+    _summary: dict = field(default_factory=dict, repr=False)
+
+    @property
+    def n_sessions(self) -> int:
+        return int(self.converged.size)
+
+    def summary(self) -> dict:
+        """Statistics across sessions, with 95 % confidence intervals (Student t for means, Wilson
+        for shares). Limit outcomes and impulse responses are over converged sessions; when none
+        converged, over all sessions (``over`` says which)."""
+        if self._summary:
+            return self._summary
+        lu = self.lineup
+        n = self.n_sessions
+        nc = int(self.converged.sum())
+        sel = self.converged if nc > 0 else np.ones(n, dtype=bool)
+        f = lu.n_seats
+        lengths, counts = np.unique(self.cycle_length[sel], return_counts=True)
+        edges = np.round(np.arange(-0.5, 1.5001, 0.05), 10)
+        pg = self.profit_gain[sel]
+        h, _ = np.histogram(np.clip(pg, edges[0], edges[-1]), bins=edges)
+        ir = {
+            "prices": _stack_ci(self.ir_prices[sel]),
+            "profits": _stack_ci(self.ir_profits[sel]),
+            "no_deviation_prices": self.cf_prices[sel].mean(axis=0).tolist() if sel.any() else [],
+            "no_deviation_profits": self.cf_profits[sel].mean(axis=0).tolist() if sel.any() else [],
+        }
+        rivals = [j for j in range(f) if j != self.settings["deviator"]]
+        pre = self.ir_prices[sel][:, 0, :]
+        after = self.ir_prices[sel][:, 2, :] if self.ir_prices.shape[1] > 2 else pre
+        out = {
+            "sessions": n,
+            "over": "converged sessions" if nc > 0 else "all sessions (none converged)",
+            "converged": _share_ci(nc, n),
+            "periods": {**_mean_ci(self.periods[self.converged]), **_quantiles(self.periods[self.converged])},
+            "profit_gain": {**_mean_ci(pg), **_quantiles(pg)},
+            "firm_profit_gain": [_mean_ci(self.firm_profit_gain[sel][:, i]) for i in range(f)],
+            "limit_prices": [_mean_ci(self.limit_prices[sel][:, i]) for i in range(f)],
+            "limit_profits": [_mean_ci(self.limit_profits[sel][:, i]) for i in range(f)],
+            "near_collusive": _share_ci(int(self.near_collusive[sel].sum()), int(sel.sum())),
+            "near_nash": _share_ci(int(self.near_nash[sel].sum()), int(sel.sum())),
+            "cycle_lengths": {str(int(k)): int(c) for k, c in zip(lengths, counts)},
+            "profit_gain_histogram": {"edges": edges.tolist(), "counts": h.tolist()},
+            "impulse_response": ir,
+            "rival_price_cut": _mean_ci((pre[:, rivals] - after[:, rivals]).mean(axis=1)) if rivals else {},
+            "deviation_gain": _mean_ci(self.deviation_gain[sel]),
+            "deviation_pays": _mean_ci(self.deviation_pays[sel]),
+            "returned": _mean_ci(self.returned[sel]),
+            "return_periods": _mean_ci(self.return_periods[sel]),
+            "benchmarks": {
+                "nash_prices": lu.nash_prices.tolist(), "collusive_prices": lu.collusive_prices.tolist(),
+                "nash_profits": lu.nash_profits.tolist(), "collusive_profits": lu.collusive_profits.tolist(),
+                "nash_actions": lu.nash_actions.tolist(), "collusive_actions": lu.collusive_actions.tolist(),
+            },
+        }
+        self._summary.update(out)
+        return self._summary
+
+    def to_dict(self, sessions: bool = True) -> dict:
+        """Plain data: settings, grids, the summary and (optionally) every session's outcomes."""
+        lu = self.lineup
+        out = {
+            "settings": dict(self.settings),
+            "learners": [
+                {"alpha": c.alpha, "beta": c.beta, "delta": c.delta, "k": c.k, "m": c.m,
+                 "init": c.init if isinstance(c.init, str) else "given", "grid": c.grid.tolist()}
+                for c in lu.learners
+            ],
+            "summary": self.summary(),
+            "elapsed_seconds": self.elapsed,
+        }
+        if sessions:
+            out["per_session"] = {
+                "converged": self.converged.tolist(),
+                "periods": self.periods.tolist(),
+                "cycle_length": self.cycle_length.tolist(),
+                "transient": self.transient.tolist(),
+                "profit_gain": self.profit_gain.tolist(),
+                "limit_prices": self.limit_prices.tolist(),
+                "limit_profits": self.limit_profits.tolist(),
+                "cycle_prices": [
+                    [[float(lu.grids[i][a[i]]) for i in range(lu.n_seats)] for a in c] for c in self.cycles
+                ] if not lu.market.quantity_setting else None,
+                "cycle_actions": [[[float(lu.grids[i][a[i]]) for i in range(lu.n_seats)] for a in c]
+                                  for c in self.cycles],
+                "deviation_gain": self.deviation_gain.tolist(),
+                "deviation_action": [float(lu.grids[self.settings["deviator"]][a]) if a >= 0 else None
+                                     for a in self.deviation_action],
+            }
+        return out
+
+
+def _stack_ci(x: np.ndarray) -> dict:
+    """Mean and 95 % interval per row and firm of an array of shape (n, T, f)."""
+    if x.shape[0] == 0:
+        return {"mean": [], "low": [], "high": []}
+    mean = x.mean(axis=0)
+    if x.shape[0] < 2:
+        nan = np.full_like(mean, np.nan)
+        return {"mean": mean.tolist(), "low": nan.tolist(), "high": nan.tolist()}
+    from scipy import stats
+
+    se = x.std(axis=0, ddof=1) / math.sqrt(x.shape[0])
+    h = float(stats.t.ppf(0.975, x.shape[0] - 1)) * se
+    return {"mean": mean.tolist(), "low": (mean - h).tolist(), "high": (mean + h).tolist()}
+
+
+# ------------------------------------------------------------------------------------------------
+# Public entry point
+# ------------------------------------------------------------------------------------------------
+
+
+def _validate_run(**values) -> dict:
+    out = {}
+    for name, value in values.items():
+        out[name] = _RUN_CONSTRAINTS[name].check(name, value)
+    return out
+
+
+def _default_workers() -> int:
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, convergence: int = 100_000,
+          max_periods: int = 1_000_000_000, deviator: int = 0, deviation="best_response",
+          response_periods: int = 15, near: float = 0.1, workers: int | None = None,
+          progress: bool | None = None, cell: int = 0) -> LearningResult:
+    """Run independent learning sessions and analyse what the learners converged to.
+
+    Parameters
+    ----------
+    market : sim.Market
+        Single-product market with 2 to 4 firms (logit Bertrand in the published baseline).
+    learners : QLearner or list of QLearner, optional
+        The same learner on every seat (default ``QLearner()``), or one per seat.
+    sessions : int
+        Number of independent sessions.
+    seed : int
+        The user's seed; session ``j`` draws from ``stream_states(seed, (cell,), j, j + 1)``.
+    convergence : int
+        A session has converged once no learner's greedy action in any state has changed for this many
+        consecutive periods (Calvano et al., 2020: 100,000).
+    max_periods : int
+        Cap on a session's length; a session reaching it is reported as not converged.
+    deviator : int
+        Seat (0-based) forced to deviate in the impulse response.
+    deviation : "best_response" or float
+        Its forced action: the static best response on its grid to the rivals' actions of the
+        deviation period, or a number (the nearest grid point is used).
+    response_periods : int
+        Periods of greedy play recorded after the deviation.
+    near : float
+        Tolerance of "at or near" the collusive (and the Nash) outcome, as a share of each firm's
+        distance between its Nash and collusive actions.
+    workers : int, optional
+        Sessions run at once, in threads (the kernel releases the GIL). Default: the usable cores.
+        Results do not depend on it.
+    progress : bool, optional
+        Show a progress bar over sessions (default: when stderr is a terminal).
+    cell : int
+        Family of random streams (sweeps give each cell its own).
+
+    Returns
+    -------
+    LearningResult
+    """
+    run = _validate_run(sessions=sessions, seed=seed, convergence=convergence, max_periods=max_periods,
+                        deviator=deviator, response_periods=response_periods, near=near, workers=workers,
+                        cell=cell)
+    n_workers = run["workers"] or _default_workers()
+    n_workers = min(n_workers, run["sessions"])
+    lineup = compile_lineup(market, learners, workers=n_workers)
+    if run["deviator"] >= lineup.n_seats:
+        raise InputError("deviator", f"must be a firm of the market (0 to {lineup.n_seats - 1}), got {run['deviator']}")
+    dev_index = _deviation_index(lineup, run["deviator"], deviation)
+    settings = {**run, "workers": n_workers, "deviation": deviation}
+    return _run_sessions(lineup, settings, dev_index, progress)
+
+
+def _deviation_index(lineup: Lineup, seat: int, deviation) -> int:
+    if isinstance(deviation, str):
+        if deviation != "best_response":
+            raise InputError("deviation", f"must be 'best_response' or a number, got {deviation!r}")
+        return -1
+    x = Real(0, None).check("deviation", deviation)
+    grid = lineup.grids[seat]
+    return int(np.argmin(np.abs(grid - x)))
+
+
+def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool | None) -> LearningResult:
+    """Driver: per-session streams, buffers, a thread pool over sessions, a progress bar."""
+    from . import _learnkernel as K
+    from ._rng import stream_states
+
+    n = settings["sessions"]
+    f = lineup.n_seats
+    T2 = settings["response_periods"] + 2
+    states = stream_states(settings["seed"], (settings["cell"],), 0, n)
+    status = np.zeros(n, dtype=np.int64)
+    periods = np.zeros(n, dtype=np.int64)
+    cyc = np.full((n, CYCLE_STORE), -1, dtype=np.int64)
+    lim_a = np.zeros((n, f))
+    lim_p = np.zeros((n, f))
+    lim_pi = np.zeros((n, f))
+    ir_p = np.zeros((n, T2, f))
+    ir_pi = np.zeros((n, T2, f))
+    cf_p = np.zeros((n, T2, f))
+    cf_pi = np.zeros((n, T2, f))
+    info = np.zeros((n, 8))
+    g0 = lineup.initial_greedy()
+    seat = settings["deviator"]
+    d_dev = float(lineup.delta[seat])
+    lu = lineup
+
+    def one(j: int) -> int:
+        rng = states[j].copy()
+        Q = lu.q0.copy()
+        greedy = g0.copy()
+        s = K._initial_state(rng, lu.radix, lu.place, lu.M, lu.K)
+        st, t, s = K._learn(lu.radix, lu.place, lu.S, lu.K, lu.mod, lu.alpha, lu.beta, lu.delta, lu.payoff, Q,
+                            greedy, rng, s, settings["convergence"], settings["max_periods"])
+        status[j] = st
+        periods[j] = t
+        K._analyse(s, greedy, lu.radix, lu.mod, lu.place, lu.M, lu.S, lu.K, lu.payoff, lu.actions, lu.prices,
+                   seat, dev_index, d_dev, IR_POINTS, cyc[j], lim_a[j], lim_p[j], lim_pi[j], ir_p[j], ir_pi[j],
+                   cf_p[j], cf_pi[j], info[j])
+        return j
+
+    show = sys.stderr.isatty() if progress is None else bool(progress)
+    t0 = time.perf_counter()
+    bar = None
+    if show:
+        from tqdm import tqdm
+
+        bar = tqdm(total=n, desc="sessions", unit="session", file=sys.stderr, leave=False)
+    try:
+        if settings["workers"] <= 1:
+            for j in range(n):
+                one(j)
+                if bar is not None:
+                    bar.update(1)
+        else:
+            with ThreadPoolExecutor(max_workers=settings["workers"]) as pool:
+                futures = [pool.submit(one, j) for j in range(n)]
+                try:
+                    for fut in as_completed(futures):
+                        fut.result()
+                        if bar is not None:
+                            bar.update(1)
+                except BaseException:
+                    for fut in futures:
+                        fut.cancel()
+                    raise
+    finally:
+        if bar is not None:
+            bar.close()
+    elapsed = time.perf_counter() - t0
+
+    lam = info[:, 1].astype(np.int64)
+    cycles = [lu.decode(cyc[j, : min(lam[j], CYCLE_STORE)]) for j in range(n)]
+    nash, coll = lu.nash_profits, lu.collusive_profits
+    with np.errstate(divide="ignore", invalid="ignore"):
+        gain = (lim_pi.sum(axis=1) - nash.sum()) / (coll.sum() - nash.sum())
+        firm_gain = (lim_pi - nash) / (coll - nash)
+    dist = np.abs(lu.collusive_actions - lu.nash_actions)
+    tol = settings["near"] * dist
+    near_c = np.all(np.abs(lim_a - lu.collusive_actions) <= tol + 1e-12, axis=1)
+    near_n = np.all(np.abs(lim_a - lu.nash_actions) <= tol + 1e-12, axis=1)
+    return LearningResult(
+        lineup=lu, settings=settings, converged=status == K.STATUS_CONVERGED, periods=periods,
+        transient=info[:, 0].astype(np.int64), cycle_length=lam, cycles=cycles, limit_actions=lim_a,
+        limit_prices=lim_p, limit_profits=lim_pi, profit_gain=gain, firm_profit_gain=firm_gain,
+        near_collusive=near_c, near_nash=near_n, ir_prices=ir_p, ir_profits=ir_pi, cf_prices=cf_p,
+        cf_profits=cf_pi, deviation_action=info[:, 7].astype(np.int64), deviation_gain=info[:, 3],
+        deviation_pays=info[:, 4], returned=info[:, 5], return_periods=info[:, 6], elapsed=elapsed,
+    )
+
+
+# ------------------------------------------------------------------------------------------------
+# Reference and benchmark
+# ------------------------------------------------------------------------------------------------
+
+
+def reference_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergence: int = 100_000,
+                      max_periods: int = 10_000, cell: int = 0) -> dict:
+    """The plain-Python twin of one session (:func:`sim._learnref.reference_session`), with the
+    session's own random stream. Slow: for tests and benchmarks on short sessions."""
+    from ._learnref import reference_session as _ref
+    from ._rng import stream_states
+
+    state = stream_states(seed, (cell,), session, session + 1)[0]
+    return _ref(lineup, state, convergence, max_periods)
+
+
+def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergence: int = 100_000,
+                   max_periods: int = 10_000, cell: int = 0) -> dict:
+    """One session through the kernel, returning the same fields as :func:`reference_session`."""
+    from . import _learnkernel as K
+    from ._rng import stream_states
+
+    rng = stream_states(seed, (cell,), session, session + 1)[0].copy()
+    Q = lineup.q0.copy()
+    greedy = lineup.initial_greedy()
+    s = K._initial_state(rng, lineup.radix, lineup.place, lineup.M, lineup.K)
+    st, t, s = K._learn(lineup.radix, lineup.place, lineup.S, lineup.K, lineup.mod, lineup.alpha, lineup.beta,
+                        lineup.delta, lineup.payoff, Q, greedy, rng, s, convergence, max_periods)
+    return {"status": int(st), "periods": int(t), "state": int(s), "Q": Q, "greedy": greedy}
+
+
+def benchmark(market=None, learners=None, *, periods: int = 20_000_000, reference_periods: int = 100_000,
+              seed: int = 0) -> dict:
+    """Throughput of the learning kernel and of its plain-Python reference, measured in the same run.
+
+    Both play the same session (the published baseline by default) without stopping at convergence:
+    the kernel for ``periods`` periods on one core (after a short compile-and-warm-up call), the
+    reference for ``reference_periods`` periods.
+
+    Returns
+    -------
+    dict with ``kernel_periods_per_second``, ``reference_periods_per_second``, ``ratio`` and the
+    workload.
+    """
+    from . import _learnkernel as K
+
+    if market is None:
+        from .demand import LogitDemand
+        from .market import Market
+
+        market = Market(LogitDemand(quality=2.0, outside=0.0, mu=0.25), cost=1.0, model="bertrand", n_firms=2)
+    lineup = compile_lineup(market, learners)
+    never = 2**62
+    kernel_session(lineup, seed=seed, convergence=never, max_periods=1000)  # compile / load from cache
+    t0 = time.perf_counter()
+    out = kernel_session(lineup, seed=seed, convergence=never, max_periods=periods)
+    t_kernel = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    ref = reference_session(lineup, seed=seed, convergence=never, max_periods=reference_periods)
+    t_ref = time.perf_counter() - t0
+    del K, out, ref
+    kps = periods / t_kernel
+    rps = reference_periods / t_ref
+    return {
+        "workload": f"{lineup.n_seats} Q-learners, {int(lineup.radix[0])} actions, memory {lineup.K}, "
+                    "one session without the convergence stop",
+        "kernel_periods": periods,
+        "kernel_seconds": t_kernel,
+        "kernel_periods_per_second": kps,
+        "reference_periods": reference_periods,
+        "reference_seconds": t_ref,
+        "reference_periods_per_second": rps,
+        "ratio": kps / rps,
+    }

@@ -1,0 +1,263 @@
+"""Q-learning pricing agents.
+
+A :class:`QLearner` is one firm that learns by tabular Q-learning (Watkins, 1989; Watkins and Dayan,
+1992, "Q-learning", Machine Learning 8). It chooses among ``m`` actions (prices under Bertrand
+competition, quantities under Cournot), observes the action profile of the last ``k`` periods as its
+state, explores with probability ``epsilon_t = exp(-beta t)`` and otherwise plays its greedy action,
+and after each period updates
+
+    Q(s, a) <- (1 - alpha) Q(s, a) + alpha (profit + delta max_a' Q(s', a')).
+
+The defaults are the baseline of Calvano, Calzolari, Denicolo and Pastorello (2020, AER, "Artificial
+Intelligence, Algorithmic Pricing, and Collusion"): m = 15, xi = 0.1, k = 1, alpha = 0.15,
+beta = 4e-6, delta = 0.95, and Q initialised to the discounted value of facing rivals who randomise
+uniformly over their actions.
+
+The object is store-only (see :mod:`sim._params`): :meth:`QLearner.spec` validates it and
+:meth:`QLearner.compile` resolves it against a market into a :class:`CompiledLearner`, plain arrays
+and numbers for the learning kernel (:mod:`sim._learnkernel`).
+"""
+
+from __future__ import annotations
+
+import math
+import numbers
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from sim._params import Constraint, Integer, Parametrized, Real, optional
+from sim.errors import InputError
+
+__all__ = ["INIT_KINDS", "CompiledLearner", "QLearner", "published_grid"]
+
+INIT_KINDS = ("uniform", "zeros")
+
+# the grid size of the published construction when neither m nor a grid is given
+_DEFAULT_M = 15
+
+
+def _fmt(value: Any) -> str:
+    if isinstance(value, np.ndarray):
+        return repr(value.tolist())
+    return repr(value)
+
+
+class ActionGrid(Constraint):
+    """A strictly increasing list of at least two finite, non-negative actions."""
+
+    def describe(self) -> str:
+        return "a strictly increasing list of at least 2 non-negative numbers"
+
+    def check(self, key: str, value: Any) -> np.ndarray:
+        if isinstance(value, np.ndarray):
+            value = value.tolist()
+        if not isinstance(value, Sequence) or isinstance(value, str):
+            raise InputError(key, f"must be {self.describe()}, got {_fmt(value)}")
+        if len(value) < 2:
+            raise InputError(key, f"must have at least 2 actions, got {len(value)}")
+        out = np.empty(len(value))
+        for j, v in enumerate(value):
+            if isinstance(v, bool) or not isinstance(v, numbers.Real) or not math.isfinite(float(v)) or v < 0:
+                raise InputError(key, f"action {j + 1} must be a finite number >= 0, got {_fmt(v)}")
+            out[j] = float(v)
+        if np.any(np.diff(out) <= 0):
+            j = int(np.flatnonzero(np.diff(out) <= 0)[0])
+            raise InputError(key, f"must be strictly increasing; action {j + 2} ({out[j + 1]:g}) is not above "
+                                  f"action {j + 1} ({out[j]:g})")
+        return out
+
+    def example_bad(self) -> Any:
+        return [1.0]
+
+
+class QInit(Constraint):
+    """``"uniform"``, ``"zeros"`` or an array of initial Q-values."""
+
+    def describe(self) -> str:
+        return "'uniform', 'zeros' or an array of shape (n_states, m) or (m,)"
+
+    def check(self, key: str, value: Any) -> str | np.ndarray:
+        if isinstance(value, str):
+            if value not in INIT_KINDS:
+                raise InputError(key, f"must be {self.describe()}, got {value!r}")
+            return value
+        try:
+            arr = np.array(value, dtype=float)
+        except (TypeError, ValueError):
+            raise InputError(key, f"must be {self.describe()}, got {_fmt(value)}") from None
+        if arr.ndim not in (1, 2) or arr.size == 0:
+            raise InputError(key, f"must be {self.describe()}, got an array of shape {arr.shape}")
+        if not np.all(np.isfinite(arr)):
+            raise InputError(key, "initial Q-values must be finite numbers")
+        return arr
+
+    def example_bad(self) -> Any:
+        return "optimistic"
+
+
+def published_grid(nash: float, collusive: float, m: int, xi: float) -> np.ndarray:
+    """The action grid of Calvano et al. (2020, section II): ``m`` equally spaced points from
+    ``lo - xi (hi - lo)`` to ``hi + xi (hi - lo)``, where ``lo`` and ``hi`` are the smaller and the
+    larger of the static-Nash and the collusive action. Negative points are raised to zero (a price
+    or a quantity cannot be negative).
+
+    Returns
+    -------
+    grid : ndarray of shape (m,)
+    """
+    lo, hi = min(nash, collusive), max(nash, collusive)
+    width = hi - lo
+    return np.maximum(0.0, np.linspace(lo - xi * width, hi + xi * width, m))
+
+
+@dataclass(frozen=True)
+class CompiledLearner:
+    """A learner resolved against a market: what the kernel needs.
+
+    Attributes
+    ----------
+    grid : ndarray of shape (m,)
+        The actions (prices or quantities), increasing.
+    k : int
+        Memory: the state is the action profile of the last ``k`` periods.
+    alpha, beta, delta : float
+    init : str or ndarray
+        ``"uniform"``, ``"zeros"``, or the given array (checked against the line-up's state count by
+        the learning driver).
+    """
+
+    grid: np.ndarray
+    k: int
+    alpha: float
+    beta: float
+    delta: float
+    init: str | np.ndarray
+
+    @property
+    def m(self) -> int:
+        return int(self.grid.size)
+
+
+class QLearner(Parametrized):
+    """A firm that sets its action by tabular Q-learning with epsilon-greedy exploration.
+
+    Parameters
+    ----------
+    alpha : float
+        Learning rate, in (0, 1].
+    beta : float
+        Exploration decay (> 0): in period t (counted from 0) the firm explores with probability
+        ``exp(-beta t)``, choosing an action uniformly at random.
+    delta : float
+        The learner's discount factor, in [0, 1). ``delta = 0`` gives a myopic learner.
+    m : int, optional
+        Number of actions on the published grid (default 15). With ``grid`` given, ``m`` may be
+        left out; if given it must equal the grid's length.
+    xi : float
+        Widening of the published grid beyond the static-Nash and collusive actions, as a share of
+        the distance between them (>= 0; default 0.1).
+    grid : list of float, optional
+        The actions themselves (strictly increasing, at least 2), instead of the published grid.
+    k : int
+        Memory: the state is the action profile of the last ``k`` periods (1 to 8; default 1).
+    init : {"uniform", "zeros"} or array_like
+        Initial Q-values. ``"uniform"`` (the published choice): ``Q(s, a)`` is the discounted value
+        ``E[profit(a, a_-i)] / (1 - delta)`` of facing rivals who pick their actions uniformly at
+        random, the same in every state. ``"zeros"``. Or an array of shape ``(n_states, m)`` (or
+        ``(m,)``, repeated in every state).
+
+    Examples
+    --------
+    >>> from strategies.qlearning import QLearner
+    >>> QLearner(alpha=0.1).spec()["alpha"]
+    0.1
+    """
+
+    _constraints = {
+        "alpha": Real(0, 1, closed="right"),
+        "beta": Real(0, None, closed="neither"),
+        "delta": Real(0, 1, closed="left"),
+        "m": optional(Integer(2, 1000)),
+        "xi": Real(0, None),
+        "grid": optional(ActionGrid()),
+        "k": Integer(1, 8),
+        "init": QInit(),
+    }
+
+    #: name in experiment files (``strategy = "qlearning"``)
+    name = "qlearning"
+
+    def __init__(self, alpha=0.15, beta=4e-6, delta=0.95, m=None, xi=0.1, grid=None, k=1, init="uniform"):
+        self.alpha = alpha
+        self.beta = beta
+        self.delta = delta
+        self.m = m
+        self.xi = xi
+        self.grid = grid
+        self.k = k
+        self.init = init
+
+    def spec(self, prefix: str = "") -> dict[str, Any]:
+        """Validate every parameter; return the normalised values (``m`` filled in).
+
+        Raises
+        ------
+        InputError
+            Naming the parameter (``prefix.name``), the allowed range and the value given.
+        """
+        p = self._check_params(prefix)
+
+        def key(name: str) -> str:
+            return f"{prefix}.{name}" if prefix else name
+
+        if p["grid"] is not None:
+            if p["m"] is not None and p["m"] != p["grid"].size:
+                raise InputError(key("m"), f"must equal the number of grid points ({p['grid'].size}) when a grid "
+                                           f"is given, got {p['m']}")
+            p["m"] = int(p["grid"].size)
+        elif p["m"] is None:
+            p["m"] = _DEFAULT_M
+        init = p["init"]
+        if isinstance(init, np.ndarray) and init.shape[-1] != p["m"]:
+            raise InputError(key("init"), f"must have one column per action ({p['m']}), got shape {init.shape}")
+        return p
+
+    def compile(self, market, seat: int, prefix: str = "") -> CompiledLearner:
+        """Resolve the learner for seat ``seat`` of ``market``.
+
+        Parameters
+        ----------
+        market : sim.Market or sim.MarketSpec
+        seat : int
+            The firm this learner plays (0-based).
+        prefix : str
+            Key path used in error messages (``"learning"``).
+
+        Returns
+        -------
+        CompiledLearner
+        """
+        from sim.equilibrium import stage_game
+
+        p = self.spec(prefix)
+        if p["grid"] is not None:
+            grid = p["grid"]
+        else:
+            ms = market if hasattr(market, "n_products") or hasattr(market, "code") else market.spec()
+            st = stage_game(ms)
+            a_n, a_m = float(st.nash.actions[seat]), float(st.collusive.actions[seat])
+            if not abs(a_m - a_n) > 1e-12 * max(1.0, abs(a_n)):
+                raise InputError(
+                    f"{prefix}.grid" if prefix else "grid",
+                    f"firm {seat + 1}'s static-Nash and collusive actions coincide ({a_n:g}), so the published "
+                    "grid is empty; give the grid",
+                )
+            grid = published_grid(a_n, a_m, p["m"], p["xi"])
+            if np.any(np.diff(grid) <= 0):
+                raise InputError(f"{prefix}.xi" if prefix else "xi",
+                                 f"the widened grid reaches below zero for firm {seat + 1}; lower xi or give the grid")
+        return CompiledLearner(grid=grid, k=p["k"], alpha=p["alpha"], beta=p["beta"], delta=p["delta"],
+                               init=p["init"])
