@@ -25,6 +25,7 @@ _EXPORTS = {
     "trigger_price": [
         "TriggerPriceScheme", "price_war_statistics", "trigger_price_equilibrium", "trigger_price_scheme",
     ],
+    "learning": ["LearningResult", "Lineup", "compile_lineup", "learn"],
 }
 _WHERE = {name: mod for mod, names in _EXPORTS.items() for name in names}
 __all__ = sorted(_WHERE)

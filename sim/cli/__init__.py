@@ -19,6 +19,7 @@ from ..errors import InputError, SolverError
 # name -> module; the order is the order of ``supergame --help``
 COMMANDS = {
     "thresholds": "sim.cli.thresholds",
+    "learn": "sim.cli.learn",
 }
 
 

@@ -1,0 +1,446 @@
+"""``supergame learn``: sessions of Q-learning firms, their limit play and the punishment they learn."""
+
+from __future__ import annotations
+
+import argparse
+import os
+
+from ..errors import InputError
+from ._common import add_market_flags, emit, flag_error, market_table_from_args, parse_number, parse_numbers
+
+HELP = "let Q-learning firms learn to price; limit outcomes, profit gain and impulse response"
+DESCRIPTION = (
+    "Run independent sessions of Q-learning firms (Calvano, Calzolari, Denicolo and Pastorello, 2020) on a "
+    "market until their greedy strategies stop changing, then report what they converged to: limit prices "
+    "and cycles, the profit gain (profit - Nash) / (collusive - Nash), and the impulse response to a "
+    "one-period deviation. Settings come from the [market], [learning], [impulse] and [run] tables of FILE, "
+    "from flags, or both (flags win)."
+)
+
+# key -> (flag, parser kind); kinds: num, int, nums, str
+_LEARNING_KEYS = {
+    "alpha": ("alpha", "num"),
+    "beta": ("beta", "num"),
+    "delta": ("delta", "num"),
+    "m": ("m", "int"),
+    "xi": ("xi", "num"),
+    "grid": ("grid", "nums"),
+    "k": ("k", "int"),
+    "init": ("init", "str"),
+    "convergence": ("convergence", "int"),
+    "max_periods": ("max-periods", "int"),
+    "near": ("near", "num"),
+}
+_IMPULSE_KEYS = {
+    "firm": ("impulse-firm", "int"),
+    "action": ("impulse-action", "str"),
+    "periods": ("impulse-periods", "int"),
+}
+_RUN_KEYS = {
+    "sessions": ("sessions", "int"),
+    "seed": ("seed", "int"),
+    "workers": ("workers", "int"),
+}
+_LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init")
+_EXPERIMENT_KEYS = {"name", "kind", "description"}
+
+
+def configure(p: argparse.ArgumentParser) -> None:
+    p.add_argument("file", nargs="?", metavar="FILE", help="experiment file ([market], [learning], [impulse], [run])")
+    add_market_flags(p)
+    g = p.add_argument_group("learners (override [learning])")
+    g.add_argument("--alpha", metavar="A", help="learning rate in (0, 1] (default 0.15)")
+    g.add_argument("--beta", metavar="B", help="exploration decay > 0: explore with probability exp(-beta t) "
+                                               "(default 4e-6)")
+    g.add_argument("--delta", metavar="D", help="the learners' discount factor in [0, 1) (default 0.95)")
+    g.add_argument("--m", metavar="M", help="number of actions on the grid (default 15)")
+    g.add_argument("--xi", metavar="XI", help="widening of the grid beyond the Nash and collusive actions "
+                                              "(default 0.1)")
+    g.add_argument("--grid", metavar="A1,A2,...", help="the actions themselves instead of the published grid")
+    g.add_argument("--k", metavar="K", help="memory: periods of past actions in the state (default 1)")
+    g.add_argument("--init", metavar="INIT", help="initial Q-values: uniform (default) or zeros")
+    g.add_argument("--convergence", metavar="C", help="converged after C periods without a change of any greedy "
+                                                      "strategy (default 100000)")
+    g.add_argument("--max-periods", metavar="N", help="cap on a session's periods (default 1e9)")
+    g.add_argument("--near", metavar="TOL", help="'near' an outcome: within TOL of the Nash-to-collusive distance "
+                                                 "(default 0.1)")
+    g = p.add_argument_group("impulse response (override [impulse])")
+    g.add_argument("--impulse-firm", metavar="F", help="firm forced to deviate, 1 to n (default 1)")
+    g.add_argument("--impulse-action", metavar="A", help="its action: best_response (default) or a number "
+                                                         "(nearest grid point)")
+    g.add_argument("--impulse-periods", metavar="T", help="periods recorded after the deviation (default 15)")
+    g = p.add_argument_group("run (override [run])")
+    g.add_argument("--sessions", metavar="N", help="independent sessions (default 100)")
+    g.add_argument("--seed", metavar="S", help="random seed (default 0)")
+    g.add_argument("--workers", metavar="W", help="sessions run at once (default: the usable cores); results do "
+                                                  "not depend on it")
+    p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
+    p.add_argument("--plot", metavar="DIR", help="write figures (impulse response, profit-gain histogram, heatmap "
+                                                 "of limit prices) into DIR")
+
+
+def _table(doc: dict, name: str) -> dict:
+    tab = doc.get(name, {})
+    if not isinstance(tab, dict):
+        raise InputError(name, "must be a table")
+    return dict(tab)
+
+
+def _only(tab: dict, name: str, allowed) -> None:
+    for k in tab:
+        if k not in allowed:
+            raise InputError(f"{name}.{k}", f"unknown key; allowed: {', '.join(sorted(allowed))}")
+
+
+def _apply_flags(args, tab: dict, keys: dict) -> set:
+    """Put flag values into ``tab``; return the keys that came from flags."""
+    flagged = set()
+    for key, (flag, kind) in keys.items():
+        text = getattr(args, flag.replace("-", "_"), None)
+        if text is None:
+            continue
+        if kind == "num":
+            tab[key] = parse_number(flag, text)
+        elif kind == "int":
+            tab[key] = parse_number(flag, text, integer=True)
+        elif kind == "nums":
+            v = parse_numbers(flag, text)
+            tab[key] = v if isinstance(v, list) else [v]
+        else:
+            tab[key] = text if kind == "str" else text
+        flagged.add(key)
+    return flagged
+
+
+def _rename(exc: InputError, table: str, keys: dict, flagged: set) -> InputError:
+    """``learning.alpha`` becomes ``--alpha`` when the value came from a flag."""
+    prefix = table + "."
+    if exc.key.startswith(prefix):
+        key = exc.key[len(prefix):].split(".")[0]
+        if key in flagged:
+            return InputError(f"--{keys[key][0]}", exc.message)
+    return exc
+
+
+def build(args, doc: dict) -> dict:
+    """Everything ``learn`` needs, validated, from FILE and flags: market, learner, run settings."""
+    from strategies.qlearning import QLearner
+
+    from .._params import Integer, Real, optional
+    from ..learning import _RUN_CONSTRAINTS
+    from ..market import market_from_dict
+
+    exp = _table(doc, "experiment")
+    _only(exp, "experiment", _EXPERIMENT_KEYS)
+    if "kind" in exp and exp["kind"] != "learn":
+        raise InputError("experiment.kind", f"this command runs kind = 'learn' experiments, got {exp['kind']!r}")
+    if args.file and "market" not in doc:
+        raise InputError("market", f"{args.file} has no [market] table")
+    table, from_flags = market_table_from_args(args, _table(doc, "market"))
+    try:
+        market = market_from_dict(table)
+    except InputError as exc:
+        raise flag_error(exc, from_flags) from None
+
+    lt = _table(doc, "learning")
+    _only(lt, "learning", _LEARNING_KEYS)
+    it = _table(doc, "impulse")
+    _only(it, "impulse", _IMPULSE_KEYS)
+    rt = _table(doc, "run")
+    _only(rt, "run", _RUN_KEYS)
+    lf = _apply_flags(args, lt, _LEARNING_KEYS)
+    if_ = _apply_flags(args, it, _IMPULSE_KEYS)
+    rf = _apply_flags(args, rt, _RUN_KEYS)
+
+    learner = QLearner(**{k: lt[k] for k in _LEARNER_PARAMS if k in lt})
+    try:
+        learner.spec("learning")
+    except InputError as exc:
+        raise _rename(exc, "learning", _LEARNING_KEYS, lf) from None
+
+    def check(tab, name, keys, flagged, key, constraint, default):
+        value = tab.get(key, default)
+        try:
+            return constraint.check(f"{name}.{key}", value)
+        except InputError as exc:
+            raise _rename(exc, name, keys, flagged) from None
+
+    n_firms = market.spec().n_firms
+    settings = {
+        "convergence": check(lt, "learning", _LEARNING_KEYS, lf, "convergence", _RUN_CONSTRAINTS["convergence"],
+                             100_000),
+        "max_periods": check(lt, "learning", _LEARNING_KEYS, lf, "max_periods", _RUN_CONSTRAINTS["max_periods"],
+                             1_000_000_000),
+        "near": check(lt, "learning", _LEARNING_KEYS, lf, "near", _RUN_CONSTRAINTS["near"], 0.1),
+        "sessions": check(rt, "run", _RUN_KEYS, rf, "sessions", _RUN_CONSTRAINTS["sessions"], 100),
+        "seed": check(rt, "run", _RUN_KEYS, rf, "seed", _RUN_CONSTRAINTS["seed"], 0),
+        "workers": check(rt, "run", _RUN_KEYS, rf, "workers", optional(Integer(1, 1024)), None),
+        "response_periods": check(it, "impulse", _IMPULSE_KEYS, if_, "periods", _RUN_CONSTRAINTS["response_periods"],
+                                  15),
+    }
+    firm = check(it, "impulse", _IMPULSE_KEYS, if_, "firm", Integer(1, n_firms), 1)
+    settings["deviator"] = firm - 1
+    action = it.get("action", "best_response")
+    if isinstance(action, str) and action != "best_response":
+        try:
+            action = float(action)
+        except ValueError:
+            key = "--impulse-action" if "action" in if_ else "impulse.action"
+            raise InputError(key, f"must be 'best_response' or a number, got {action!r}") from None
+    if not isinstance(action, str):
+        key = "--impulse-action" if "action" in if_ else "impulse.action"
+        action = Real(0, None).check(key, action)
+    settings["deviation"] = action
+    return {"market": market, "learner": learner, "settings": settings, "flags": lf}
+
+
+def run(args) -> int:
+    from .. import _text
+    from .._jsonutil import dumps
+    from ..learning import compile_lineup, learn
+    from ..tomlfile import read_toml
+
+    doc = read_toml(args.file) if args.file else {}
+    cfg = build(args, doc)
+    s = cfg["settings"]
+    # memory and line-up checks before any work (the run itself repeats them, cheaply)
+    workers = s["workers"] or _usable_cores()
+    try:
+        compile_lineup(cfg["market"], cfg["learner"], workers=min(workers, s["sessions"]))
+    except InputError as exc:
+        raise _rename(exc, "learning", _LEARNING_KEYS, cfg["flags"]) from None
+    if args.plot:
+        _check_plot_dir(args.plot)
+    result = learn(cfg["market"], cfg["learner"], **s)
+    if args.plot:
+        written = write_plots(result, args.plot)
+    else:
+        written = []
+    if args.json:
+        out = result.to_dict()
+        out["market"] = cfg["market"].to_dict()
+        out["figures"] = written
+        out["caution"] = _text.CAUTION
+        emit(dumps(out, indent=2))
+        return 0
+    emit(render(result, cfg["market"], written))
+    return 0
+
+
+def _usable_cores() -> int:
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover
+        return max(1, os.cpu_count() or 1)
+
+
+def _check_plot_dir(path: str) -> None:
+    if os.path.exists(path) and not os.path.isdir(path):
+        raise InputError("--plot", f"{path} exists and is not a directory")
+
+
+# ------------------------------------------------------------------------------------------------
+# Text output
+# ------------------------------------------------------------------------------------------------
+
+
+def _pct(x) -> str:
+    if x is None or x != x:
+        return "-"
+    return f"{100 * x:.1f} %"
+
+
+def _ci(d: dict, digits: int = 4) -> str:
+    from .._text import fmt_num
+
+    if d.get("n", 0) < 2:
+        return "-"
+    return f"[{fmt_num(d['low'], digits)}, {fmt_num(d['high'], digits)}]"
+
+
+def render(result, market, written=()) -> str:
+    from .._text import CAUTION, fmt_num, table
+    from .thresholds import _describe_market
+
+    lu = result.lineup
+    sm = result.summary()
+    st = result.settings
+    n = lu.n_seats
+    ms = lu.market
+    act = "quantity" if ms.quantity_setting else "price"
+    firms = [f"firm {i + 1}" for i in range(n)]
+    lines = [f"Market: {_describe_market(market)}"]
+    for i, c in enumerate(lu.learners):
+        if i > 0 and c == lu.learners[0]:
+            continue
+        who = "Learners" if all(x == lu.learners[0] for x in lu.learners) else f"Learner of firm {i + 1}"
+        init = c.init if isinstance(c.init, str) else "given array"
+        lines.append(f"{who}: Q-learning, alpha {fmt_num(c.alpha)}, beta {c.beta:g}, delta {fmt_num(c.delta)}, "
+                     f"{c.m} {act} levels from {fmt_num(c.grid[0])} to {fmt_num(c.grid[-1])}, memory {c.k}, "
+                     f"Q initialised {init}")
+    lines.append(f"Sessions: {sm['sessions']} (seed {st['seed']}), converged after {st['convergence']} periods "
+                 f"without a change of any greedy strategy, cap {st['max_periods']:g} periods; "
+                 f"{st['workers']} worker(s), {result.elapsed:.1f} s")
+    lines.append("")
+    c = sm["converged"]
+    per = sm["periods"]
+    lines.append(f"Converged: {c['count']} of {c['n']} sessions ({_pct(c['share'])}, 95 % CI "
+                 f"{_pct(c['low'])} to {_pct(c['high'])})")
+    if per["n"]:
+        lines.append(f"Periods to convergence: mean {per['mean']:.4g} {_ci(per, 4)}, median {per['q50']:.4g}, "
+                     f"5-95 % {per['q05']:.4g} to {per['q95']:.4g}")
+    lines.append("")
+    bm = sm["benchmarks"]
+    rows = [[f"static Nash {act}", *bm["nash_actions"]], [f"joint-profit {act}", *bm["collusive_actions"]],
+            ["static Nash profit", *bm["nash_profits"]], ["joint-profit profit", *bm["collusive_profits"]]]
+    lines.append("Benchmarks (continuous actions)")
+    lines.append(table(["", *firms], rows))
+    lines.append("")
+    lines.append(f"Limit outcomes: greedy play from the final state, means over the limit cycle ({sm['over']}); "
+                 "95 % confidence intervals across sessions")
+    rows = []
+    for i in range(n):
+        d = sm["limit_prices"][i]
+        rows.append([f"price, firm {i + 1}", d["mean"], _ci(d)])
+    for i in range(n):
+        d = sm["limit_profits"][i]
+        rows.append([f"profit, firm {i + 1}", d["mean"], _ci(d)])
+    pg = sm["profit_gain"]
+    rows.append(["profit gain", pg["mean"], _ci(pg)])
+    if n > 1 and not ms.symmetric:
+        for i in range(n):
+            d = sm["firm_profit_gain"][i]
+            rows.append([f"profit gain, firm {i + 1}", d["mean"], _ci(d)])
+    lines.append(table(["", "mean", "95 % CI"], rows, "lrl"))
+    if pg["n"]:
+        lines.append(f"  profit gain across sessions: 5 % {fmt_num(pg['q05'])}, quartiles {fmt_num(pg['q25'])} / "
+                     f"{fmt_num(pg['q50'])} / {fmt_num(pg['q75'])}, 95 % {fmt_num(pg['q95'])}")
+    nc, nn = sm["near_collusive"], sm["near_nash"]
+    lines.append(f"  at or near the joint-profit outcome (every firm within {fmt_num(st['near'], 2)} of its Nash-to-"
+                 f"collusive distance): {_pct(nc['share'])} ({_pct(nc['low'])} to {_pct(nc['high'])})")
+    lines.append(f"  at or near static Nash: {_pct(nn['share'])} ({_pct(nn['low'])} to {_pct(nn['high'])})")
+    total = sum(sm["cycle_lengths"].values())
+    cyc = ", ".join(f"{k}: {_pct(v / total)}" for k, v in sorted(sm["cycle_lengths"].items(), key=lambda x: int(x[0])))
+    lines.append(f"  length of the limit cycle: {cyc}")
+    lines.append("")
+    dev = st["deviator"]
+    what = "its static best response (on its grid)" if isinstance(st["deviation"], str) else \
+        f"{act} {fmt_num(float(lu.grids[dev][int(result.deviation_action[0])]))} (nearest grid point)"
+    lines.append(f"Impulse response: firm {dev + 1} forced to {what} for one period, then everyone follows the "
+                 "learned strategies (mean over sessions and the points of each limit cycle)")
+    ir = sm["impulse_response"]
+    if ir["prices"]["mean"]:
+        rows = []
+        for tau, (pr, pi) in enumerate(zip(ir["prices"]["mean"], ir["profits"]["mean"])):
+            label = "before" if tau == 0 else ("deviation" if tau == 1 else f"+{tau - 1}")
+            rows.append([label, *pr, *pi])
+        lines.append(table(["period", *[f"{act} {f}" for f in firms], *[f"profit {f}" for f in firms]], rows))
+        rc = sm["rival_price_cut"]
+        if rc:
+            lines.append(f"  rivals' {act} in the period after the deviation: "
+                         f"{'lower' if rc['mean'] > 0 else 'not lower'} than before by {fmt_num(rc['mean'])} "
+                         f"{_ci(rc)}")
+        g = sm["deviation_gain"]
+        pays = sm["deviation_pays"]
+        lines.append(f"  discounted value of deviating minus not deviating (exact, under the learned strategies): "
+                     f"{fmt_num(g['mean'])} {_ci(g)}; the deviation pays at {_pct(pays['mean'])} of cycle points")
+        r, rp = sm["returned"], sm["return_periods"]
+        lines.append(f"  play returns to the pre-deviation cycle after {_pct(r['mean'])} of deviations, "
+                     f"{fmt_num(rp['mean'], 2)} periods after the deviation on average")
+    if written:
+        lines.append("")
+        lines.extend(f"wrote {p}" for p in written)
+    lines.append("")
+    lines.append(CAUTION)
+    return "\n".join(lines)
+
+
+# ------------------------------------------------------------------------------------------------
+# Figures
+# ------------------------------------------------------------------------------------------------
+
+
+def write_plots(result, directory: str) -> list[str]:
+    """Impulse response, histogram of profit gains, heatmap of limit prices (firms 1 and 2)."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    import numpy as np
+
+    os.makedirs(directory, exist_ok=True)
+    lu = result.lineup
+    sm = result.summary()
+    n = lu.n_seats
+    act = "quantity" if lu.market.quantity_setting else "price"
+    written = []
+
+    ir = sm["impulse_response"]["prices"]
+    if ir["mean"]:
+        mean = np.array(ir["mean"])
+        lo = np.array(ir["low"])
+        hi = np.array(ir["high"])
+        tau = np.arange(mean.shape[0])
+        fig, ax = plt.subplots(figsize=(7, 4.2))
+        for i in range(n):
+            label = f"firm {i + 1}" + (" (deviates)" if i == result.settings["deviator"] else "")
+            ax.plot(tau, mean[:, i], marker="o", ms=3, label=label)
+            if np.all(np.isfinite(lo[:, i])):
+                ax.fill_between(tau, lo[:, i], hi[:, i], alpha=0.2)
+        ax.axhline(float(np.mean(lu.nash_actions if act == "quantity" else lu.nash_prices)), color="grey", ls=":",
+                   label=f"static Nash {act}")
+        ax.axhline(float(np.mean(lu.collusive_actions if act == "quantity" else lu.collusive_prices)), color="grey",
+                   ls="--", label=f"joint-profit {act}")
+        ax.axvline(1, color="black", lw=0.5)
+        ax.set_xlabel("period (0: before the deviation, 1: deviation)")
+        ax.set_ylabel(act)
+        ax.set_title(f"Impulse response, mean over {sm['converged']['count'] or sm['sessions']} sessions")
+        ax.legend(fontsize=8)
+        fig.tight_layout()
+        path = os.path.join(directory, "impulse_response.png")
+        fig.savefig(path, dpi=120)
+        plt.close(fig)
+        written.append(path)
+
+    sel = result.converged if result.converged.any() else np.ones_like(result.converged)
+    fig, ax = plt.subplots(figsize=(7, 4.2))
+    h = sm["profit_gain_histogram"]
+    edges = np.array(h["edges"])
+    ax.bar(edges[:-1], h["counts"], width=np.diff(edges), align="edge", edgecolor="white")
+    ax.axvline(0, color="grey", ls=":", label="static Nash")
+    ax.axvline(1, color="grey", ls="--", label="joint profit")
+    ax.axvline(sm["profit_gain"]["mean"], color="C3", label="mean")
+    ax.set_xlabel("profit gain (profit - Nash) / (collusive - Nash)")
+    ax.set_ylabel("sessions")
+    ax.set_title("Profit gain across sessions")
+    ax.legend(fontsize=8)
+    fig.tight_layout()
+    path = os.path.join(directory, "profit_gain_histogram.png")
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
+    written.append(path)
+
+    fig, ax = plt.subplots(figsize=(5.6, 4.8))
+    x = result.limit_actions[sel, 0]
+    y = result.limit_actions[sel, 1]
+    g0, g1 = lu.grids[0], lu.grids[1]
+
+    def edges_of(g):
+        mid = (g[1:] + g[:-1]) / 2
+        return np.concatenate([[g[0] - (mid[0] - g[0])], mid, [g[-1] + (g[-1] - mid[-1])]])
+
+    H, xe, ye = np.histogram2d(x, y, bins=[edges_of(g0), edges_of(g1)])
+    im = ax.pcolormesh(xe, ye, H.T, cmap="viridis")
+    fig.colorbar(im, ax=ax, label="sessions")
+    ax.plot([lu.nash_actions[0]], [lu.nash_actions[1]], "w^", label="static Nash")
+    ax.plot([lu.collusive_actions[0]], [lu.collusive_actions[1]], "w*", ms=10, label="joint profit")
+    ax.set_xlabel(f"firm 1 mean limit {act}")
+    ax.set_ylabel(f"firm 2 mean limit {act}")
+    ax.set_title(f"Limit {act}s across sessions")
+    ax.legend(fontsize=8, loc="lower right")
+    fig.tight_layout()
+    path = os.path.join(directory, "limit_prices_heatmap.png")
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
+    written.append(path)
+    return written
