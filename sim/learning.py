@@ -201,8 +201,9 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     from strategies.qlearning import QLearner
 
     from .equilibrium import stage_game
+    from .market import MarketSpec
 
-    ms = market.spec() if hasattr(market, "spec") else market
+    ms = market if isinstance(market, MarketSpec) else market.spec()
     n = ms.n_firms
     if getattr(ms, "multi_product", False):
         raise InputError("market.owner", "each learning firm sets one action: multi-product firms are not supported")
@@ -221,7 +222,7 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
         for i, s in enumerate(seats):
             if not isinstance(s, QLearner):
                 raise InputError(keys[i], f"must be a QLearner, got {type(s).__name__}")
-    specs = [s.spec(k) for s, k in zip(seats, keys)]
+    specs = [s.spec(prefix=k) for s, k in zip(seats, keys)]
     radix = [int(p["m"]) for p in specs]
     ks = [int(p["k"]) for p in specs]
     _check_memory(radix, ks, max(1, int(workers)), prefix, available_memory)
@@ -460,11 +461,7 @@ class LearningResult:
         lu = self.lineup
         out = {
             "settings": dict(self.settings),
-            "learners": [
-                {"alpha": c.alpha, "beta": c.beta, "delta": c.delta, "k": c.k, "m": c.m,
-                 "init": c.init if isinstance(c.init, str) else "given", "grid": c.grid.tolist()}
-                for c in lu.learners
-            ],
+            "learners": [c.to_dict() for c in lu.learners],
             "summary": self.summary(),
             "elapsed_seconds": self.elapsed,
         }

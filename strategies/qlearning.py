@@ -140,6 +140,11 @@ class CompiledLearner:
     def m(self) -> int:
         return int(self.grid.size)
 
+    def to_dict(self) -> dict:
+        """Plain description (the grid as a list; a given initial array as ``"given"``)."""
+        return {"alpha": self.alpha, "beta": self.beta, "delta": self.delta, "k": self.k, "m": self.m,
+                "init": self.init if isinstance(self.init, str) else "given", "grid": self.grid.tolist()}
+
 
 class QLearner(Parametrized):
     """A firm that sets its action by tabular Q-learning with epsilon-greedy exploration.
@@ -200,8 +205,11 @@ class QLearner(Parametrized):
         self.k = k
         self.init = init
 
-    def spec(self, prefix: str = "") -> dict[str, Any]:
+    def spec(self, n_firms: int | None = None, prefix: str = "") -> dict[str, Any]:
         """Validate every parameter; return the normalised values (``m`` filled in).
+
+        ``n_firms`` is accepted for the interface shared with the other parametrised classes and
+        not used: a learner's parameters do not depend on the number of firms.
 
         Raises
         ------
@@ -242,11 +250,13 @@ class QLearner(Parametrized):
         """
         from sim.equilibrium import stage_game
 
-        p = self.spec(prefix)
+        p = self.spec(prefix=prefix)
         if p["grid"] is not None:
             grid = p["grid"]
         else:
-            ms = market if hasattr(market, "n_products") or hasattr(market, "code") else market.spec()
+            from sim.market import MarketSpec
+
+            ms = market if isinstance(market, MarketSpec) else market.spec()
             st = stage_game(ms)
             a_n, a_m = float(st.nash.actions[seat]), float(st.collusive.actions[seat])
             if not abs(a_m - a_n) > 1e-12 * max(1.0, abs(a_n)):

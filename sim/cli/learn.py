@@ -107,7 +107,7 @@ def _apply_flags(args, tab: dict, keys: dict) -> set:
             v = parse_numbers(flag, text)
             tab[key] = v if isinstance(v, list) else [v]
         else:
-            tab[key] = text if kind == "str" else text
+            tab[key] = text
         flagged.add(key)
     return flagged
 
@@ -154,7 +154,7 @@ def build(args, doc: dict) -> dict:
 
     learner = QLearner(**{k: lt[k] for k in _LEARNER_PARAMS if k in lt})
     try:
-        learner.spec("learning")
+        learner.spec(prefix="learning")
     except InputError as exc:
         raise _rename(exc, "learning", _LEARNING_KEYS, lf) from None
 
@@ -258,6 +258,14 @@ def _ci(d: dict, digits: int = 4) -> str:
     return f"[{fmt_num(d['low'], digits)}, {fmt_num(d['high'], digits)}]"
 
 
+def _same_learner(a, b) -> bool:
+    import numpy as np
+
+    da, db = a.to_dict(), b.to_dict()
+    ga, gb = np.array(da.pop("grid")), np.array(db.pop("grid"))
+    return da == db and ga.shape == gb.shape and bool(np.allclose(ga, gb, rtol=1e-9, atol=0))
+
+
 def render(result, market, written=()) -> str:
     from .._text import CAUTION, fmt_num, table
     from .thresholds import _describe_market
@@ -270,10 +278,11 @@ def render(result, market, written=()) -> str:
     act = "quantity" if ms.quantity_setting else "price"
     firms = [f"firm {i + 1}" for i in range(n)]
     lines = [f"Market: {_describe_market(market)}"]
+    same = all(_same_learner(x, lu.learners[0]) for x in lu.learners)
     for i, c in enumerate(lu.learners):
-        if i > 0 and c == lu.learners[0]:
+        if i > 0 and same:
             continue
-        who = "Learners" if all(x == lu.learners[0] for x in lu.learners) else f"Learner of firm {i + 1}"
+        who = "Learners" if same else f"Learner of firm {i + 1}"
         init = c.init if isinstance(c.init, str) else "given array"
         lines.append(f"{who}: Q-learning, alpha {fmt_num(c.alpha)}, beta {c.beta:g}, delta {fmt_num(c.delta)}, "
                      f"{c.m} {act} levels from {fmt_num(c.grid[0])} to {fmt_num(c.grid[-1])}, memory {c.k}, "
