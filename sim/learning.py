@@ -161,20 +161,21 @@ def _check_memory(radix: list[int], ks: list[int], n_workers: int, prefix: str, 
     n_states = M ** max(ks)
     m_max = max(radix)
     key = f"{prefix}.k" if prefix else "k"
-    if S * M >= 2**62:
-        raise InputError(key, f"state space too large: {M}^{K} = {float(S):.3g} history states exceed what the "
-                              "kernel can index; reduce m, k or the number of firms")
     per_session = n * n_states * m_max * 8 + n * n_states * 8  # Q-values and greedy actions
     tables = 3 * M * n * 8
     need = per_session * (n_workers + 1) + tables
     avail = _available_memory() if available is None else available
+    states = str(n_states) if n_states < 10**9 else f"{float(n_states):.3g}"
     if need > _MEMORY_SHARE * avail:
         raise InputError(
             key,
-            f"state space too large: {n} learners x {n_states} states x {m_max} actions need "
+            f"state space too large: {n} learners x {states} states x {m_max} actions need "
             f"{_gb(per_session)} per session ({_gb(need)} for {n_workers} worker(s)), more than the "
             f"{_gb(_MEMORY_SHARE * avail)} that may be used; reduce m, k or the number of firms",
         )
+    if S * M >= 2**62:  # pragma: no cover - needs more memory than any machine has
+        raise InputError(key, f"state space too large: {M}^{K} = {float(S):.3g} history states exceed what the "
+                              "kernel can index; reduce m, k or the number of firms")
 
 
 def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: int = 1,

@@ -1,0 +1,167 @@
+"""``supergame learn`` end to end: summary, JSON, figures, and one-line errors for bad input."""
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from sim._text import CAUTION
+from sim.cli import main
+
+SMALL = """
+[experiment]
+name = "small"
+kind = "learn"
+
+[market]
+model = "bertrand"
+demand = "logit"
+quality = 2.0
+outside = 0.0
+mu = 0.25
+cost = 1.0
+n_firms = 2
+
+[learning]
+m = 5
+beta = 2e-4
+convergence = 3000
+
+[impulse]
+periods = 5
+
+[run]
+sessions = 4
+seed = 7
+workers = 2
+"""
+
+
+@pytest.fixture
+def small(tmp_path):
+    p = tmp_path / "small.toml"
+    p.write_text(SMALL)
+    return p
+
+
+def test_summary_has_the_outcomes_and_the_caution(small, capsys):
+    assert main(["learn", str(small)]) == 0
+    out = capsys.readouterr().out
+    for text in ("Converged:", "profit gain", "Impulse response", "static Nash price", "length of the limit cycle",
+                 "discounted value of deviating"):
+        assert text in out
+    assert out.rstrip().endswith(CAUTION)
+
+
+def test_json_output_is_one_object_with_per_session_outcomes(small, capsys):
+    assert main(["learn", str(small), "--json", "--sessions", "3"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["caution"] == CAUTION
+    assert doc["settings"]["sessions"] == 3 and doc["settings"]["seed"] == 7
+    assert len(doc["per_session"]["profit_gain"]) == 3
+    assert len(doc["summary"]["impulse_response"]["prices"]["mean"]) == 5 + 2
+    assert doc["learners"][0]["m"] == 5 and len(doc["learners"][0]["grid"]) == 5
+
+
+def test_flags_override_the_file_and_json_is_reproducible(small, capsys):
+    main(["learn", str(small), "--json", "--seed", "3", "--workers", "1"])
+    a = json.loads(capsys.readouterr().out)
+    main(["learn", str(small), "--json", "--seed", "3", "--workers", "2"])
+    b = json.loads(capsys.readouterr().out)
+    assert a["settings"]["seed"] == 3
+    assert a["per_session"] == b["per_session"]
+
+
+def test_plot_writes_the_three_figures(small, tmp_path, capsys):
+    d = tmp_path / "figs"
+    assert main(["learn", str(small), "--plot", str(d)]) == 0
+    names = sorted(p.name for p in Path(d).iterdir())
+    assert names == ["impulse_response.png", "limit_prices_heatmap.png", "profit_gain_histogram.png"]
+    for p in Path(d).iterdir():
+        assert p.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert "wrote" in capsys.readouterr().out
+
+
+def test_flags_alone_describe_a_run(capsys):
+    argv = ["learn", "--demand", "logit", "--model", "bertrand", "--cost", "1", "--firms", "2", "--m", "4",
+            "--beta", "5e-4", "--convergence", "2000", "--sessions", "2", "--json"]
+    assert main(argv) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["learners"][0]["beta"] == 5e-4
+
+
+BAD_FLAGS = [
+    (["--alpha", "1.5"], "--alpha", "(0, 1]"),
+    (["--alpha", "0"], "--alpha", "(0, 1]"),
+    (["--beta", "0"], "--beta", "(0, inf)"),
+    (["--beta=-1e-5"], "--beta", "(0, inf)"),
+    (["--grid", "1.5"], "--grid", "at least 2 actions"),
+    (["--m", "1"], "--m", "[2, 1000]"),
+    (["--firms", "4", "--m", "30", "--k", "2"], "--k", "state space too large"),
+    (["--impulse-firm", "3"], "--impulse-firm", "[1, 2]"),
+    (["--sessions", "0"], "--sessions", "[1, 10000000]"),
+    (["--delta", "x"], "--delta", "expected a number"),
+]
+
+
+@pytest.mark.parametrize(("extra", "key", "text"), BAD_FLAGS, ids=[" ".join(b[0]) for b in BAD_FLAGS])
+def test_bad_flags_give_one_line_and_status_2(small, capsys, extra, key, text):
+    assert main(["learn", str(small), *extra]) == 2
+    cap = capsys.readouterr()
+    assert cap.out == ""
+    lines = cap.err.strip().splitlines()
+    assert len(lines) == 1
+    assert lines[0].startswith(f"supergame learn: error: {key}")
+    assert text in lines[0]
+
+
+@pytest.mark.parametrize(
+    ("table", "text", "key"),
+    [
+        ("[learning]\nalpha = 2.0\n", "(0, 1]", "learning.alpha"),
+        ("[learning]\nbeta = 0.0\n", "(0, inf)", "learning.beta"),
+        ("[learning]\ngrid = [1.7]\n", "at least 2 actions", "learning.grid"),
+        ("[learning]\ngamma = 0.9\n", "unknown key", "learning.gamma"),
+        ("[impulse]\nfirm = 0\n", "[1, 2]", "impulse.firm"),
+        ("[impulse]\naction = 'undercut'\n", "best_response", "impulse.action"),
+        ("[run]\nreplications = 10\n", "unknown key", "run.replications"),
+        ("[experiment]\nkind = 'simulate'\n", "kind = 'learn'", "experiment.kind"),
+    ],
+)
+def test_bad_file_values_name_the_key(tmp_path, capsys, table, text, key):
+    base = SMALL
+    for name in ("[learning]", "[impulse]", "[run]", "[experiment]"):
+        if table.startswith(name):
+            head, rest = base.split(name, 1)
+            rest = rest.split("\n[", 1)[1] if "\n[" in rest else ""
+            base = head + table + ("\n[" + rest if rest else "")
+    p = tmp_path / "bad.toml"
+    p.write_text(base)
+    assert main(["learn", str(p)]) == 2
+    cap = capsys.readouterr()
+    assert cap.out == ""
+    line = cap.err.strip()
+    assert "\n" not in line
+    assert line.startswith(f"supergame learn: error: {key}") and text in line
+
+
+def test_a_state_space_too_large_in_a_file_says_how_large(tmp_path):
+    p = tmp_path / "huge.toml"
+    p.write_text(SMALL.replace("n_firms = 2", "n_firms = 4").replace("m = 5", "m = 40\nk = 2"))
+    proc = subprocess.run([sys.executable, "-m", "sim", "learn", str(p)], capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 2
+    assert proc.stdout == ""
+    assert "Traceback" not in proc.stderr
+    lines = proc.stderr.strip().splitlines()
+    assert len(lines) == 1 and "learning.k: state space too large" in lines[0] and "GB" in lines[0]
+
+
+def test_the_shipped_baseline_file_is_valid(capsys):
+    # validation only: a one-period cap keeps it quick
+    path = Path(__file__).resolve().parents[1] / "experiments" / "qlearning-baseline.toml"
+    assert main(["learn", str(path), "--sessions", "2", "--max-periods", "1", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["learners"][0]["alpha"] == 0.15 and doc["learners"][0]["beta"] == 4e-6
+    assert doc["summary"]["converged"]["count"] == 0
