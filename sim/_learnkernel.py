@@ -98,9 +98,13 @@ def _learn(radix, place, S, K, mod, alpha, beta, delta, payoff, Q, greedy, rng, 
     while t < max_periods:
         tf = np.float64(t)
         prof = 0
+        eps = 0.0
         for i in range(n):
             si = s if mod[i] == S else s % mod[i]
-            if next_double(rng) < math.exp(-beta[i] * tf):
+            # one exponential per period when the learners share beta (the usual case)
+            if i == 0 or beta[i] != beta[i - 1]:
+                eps = math.exp(-beta[i] * tf)
+            if next_double(rng) < eps:
                 a = next_below(rng, radix[i])
             else:
                 a = greedy[i, si]
