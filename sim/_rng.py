@@ -9,8 +9,11 @@ replications between them.
 Generator: xoshiro256** (Blackman and Vigna, 2021, "Scrambled linear pseudorandom number
 generators", ACM TOMS 47(4)). Uniforms take the top 53 bits; normals use the Box-Muller transform
 (one normal per two uniforms, the sine branch discarded, so that the stream position of every draw
-is fixed). The pure-Python twin (:class:`ReferenceStream`) reproduces the kernel draws exactly and is
-what the reference implementations use.
+is fixed). ``next_normal_zig`` is a faster normal by the ziggurat method (Marsaglia and Tsang, 2000,
+"The ziggurat method for generating random variables", J. Stat. Software 5(8)), 256 layers, one
+64-bit draw in about 99 % of calls (8 bits choose the layer, 1 the sign, 52 the magnitude). The
+pure-Python twin (:class:`ReferenceStream`) reproduces the kernel draws exactly and is what the
+reference implementations use.
 """
 
 from __future__ import annotations
@@ -20,7 +23,7 @@ import math
 import numpy as np
 from numba import njit
 
-__all__ = ["ReferenceStream", "stream_states"]
+__all__ = ["ReferenceStream", "next_normal_zig", "stream_states"]
 
 _MASK = 0xFFFFFFFFFFFFFFFF
 _INV53 = 1.0 / 9007199254740992.0  # 2**-53
@@ -97,6 +100,70 @@ def next_normal(s):
     return math.sqrt(-2.0 * math.log(u1)) * math.cos(_TWO_PI * u2)
 
 
+def _ziggurat_tables():
+    """Layer tables of the 256-layer ziggurat for the standard normal (Marsaglia and Tsang, 2000).
+
+    ``R`` is the start of the tail; the common layer area ``V`` is computed from it exactly,
+    ``V = R f(R) + int_R^inf f`` with ``f(x) = exp(-x^2 / 2)``, and the layers follow the paper's
+    recurrence ``x_{i-1} = f^{-1}(V / x_i + f(x_i))``. Returns ``ki`` (uint64 acceptance bounds of the
+    52-bit magnitudes), ``wi`` (scale of a magnitude to x) and ``fi`` (f at the layer edges).
+    """
+    R = 3.6541528853610088
+    f = lambda x: math.exp(-0.5 * x * x)  # noqa: E731
+    V = R * f(R) + math.sqrt(math.pi / 2.0) * math.erfc(R / math.sqrt(2.0))
+    m = 2.0**52
+    ki = np.zeros(256, dtype=np.uint64)
+    wi = np.zeros(256)
+    fi = np.zeros(256)
+    dn = R
+    tn = dn
+    q = V / f(dn)
+    ki[0] = np.uint64(int((dn / q) * m))
+    ki[1] = np.uint64(0)
+    wi[0] = q / m
+    wi[255] = dn / m
+    fi[0] = 1.0
+    fi[255] = f(dn)
+    for i in range(254, 0, -1):
+        dn = math.sqrt(-2.0 * math.log(V / dn + f(dn)))
+        ki[i + 1] = np.uint64(int((dn / tn) * m))
+        tn = dn
+        fi[i] = f(dn)
+        wi[i] = dn / m
+    return ki, wi, fi, R
+
+
+_ZIG_K, _ZIG_W, _ZIG_F, _ZIG_R = _ziggurat_tables()
+_ZIG_INV_R = 1.0 / _ZIG_R
+_MASK52 = 0x000FFFFFFFFFFFFF
+
+
+@njit(cache=True)
+def next_normal_zig(s):
+    """Standard normal by the 256-layer ziggurat (see the module notes); the stream advances by a
+    variable number of draws (one in about 99 % of calls)."""
+    while True:
+        r = next_u64(s)
+        idx = int(r & np.uint64(0xFF))
+        r = r >> np.uint64(8)
+        neg = (r & np.uint64(1)) != np.uint64(0)
+        rabs = (r >> np.uint64(1)) & np.uint64(_MASK52)
+        x = np.float64(rabs) * _ZIG_W[idx]
+        if neg:
+            x = -x
+        if rabs < _ZIG_K[idx]:
+            return x
+        if idx == 0:
+            # the tail beyond R (Marsaglia, 1964)
+            while True:
+                xx = -_ZIG_INV_R * math.log(1.0 - next_double(s))
+                yy = -math.log(1.0 - next_double(s))
+                if yy + yy > xx * xx:
+                    return -(_ZIG_R + xx) if neg else _ZIG_R + xx
+        if (_ZIG_F[idx - 1] - _ZIG_F[idx]) * next_double(s) + _ZIG_F[idx] < math.exp(-0.5 * x * x):
+            return x
+
+
 @njit(cache=True)
 def next_below(s, n):
     """Uniform integer in ``0 .. n-1`` (multiply-shift on 53 bits; the bias is below 2**-40 for the
@@ -137,3 +204,25 @@ class ReferenceStream:
 
     def next_below(self, n: int) -> int:
         return int(self.next_double() * n)
+
+    def next_normal_zig(self) -> float:
+        while True:
+            r = self.next_u64()
+            idx = r & 0xFF
+            r >>= 8
+            neg = (r & 1) != 0
+            rabs = (r >> 1) & _MASK52
+            x = float(rabs) * float(_ZIG_W[idx])
+            if neg:
+                x = -x
+            if rabs < int(_ZIG_K[idx]):
+                return x
+            if idx == 0:
+                while True:
+                    xx = -_ZIG_INV_R * math.log(1.0 - self.next_double())
+                    yy = -math.log(1.0 - self.next_double())
+                    if yy + yy > xx * xx:
+                        return -(_ZIG_R + xx) if neg else _ZIG_R + xx
+            if (float(_ZIG_F[idx - 1]) - float(_ZIG_F[idx])) * self.next_double() + float(_ZIG_F[idx]) < math.exp(
+                    -0.5 * x * x):
+                return x

@@ -1,0 +1,48 @@
+"""Pluggable strategies: finite automata that compile to plain arrays (and, elsewhere, learners).
+
+Public names: the shipped automata (:mod:`strategies.automata`), the base class and compiler
+(:mod:`strategies.base`), and the registry (:mod:`strategies.registry`). The compiled array layout and
+the numba functions that step an automaton are documented in :mod:`strategies._step`.
+"""
+
+from .automata import (
+    AlwaysCollude,
+    AlwaysCompete,
+    FinitePunishment,
+    ForgivingTitForTat,
+    GrimTrigger,
+    Opportunist,
+    StickAndCarrot,
+    TableAutomaton,
+    TitForTat,
+    TriggerPrice,
+    WinStayLoseShift,
+)
+from .base import LEVEL_NAMES, Automaton, CompiledLineup, StageLevels, compile_lineup, validate_table
+from .registry import LAZY, STRATEGIES, lineup_from_tables, register, strategy_class, strategy_from_dict
+
+__all__ = [
+    "LAZY",
+    "LEVEL_NAMES",
+    "STRATEGIES",
+    "AlwaysCollude",
+    "AlwaysCompete",
+    "Automaton",
+    "CompiledLineup",
+    "FinitePunishment",
+    "ForgivingTitForTat",
+    "GrimTrigger",
+    "Opportunist",
+    "StageLevels",
+    "StickAndCarrot",
+    "TableAutomaton",
+    "TitForTat",
+    "TriggerPrice",
+    "WinStayLoseShift",
+    "compile_lineup",
+    "lineup_from_tables",
+    "register",
+    "strategy_class",
+    "strategy_from_dict",
+    "validate_table",
+]

@@ -1,0 +1,410 @@
+"""The shipped automaton strategies.
+
+Each class states its parameters as data (``_constraints``) and builds its state table in
+:meth:`states`; the table format is described in :mod:`strategies.base`. Levels (``collude``,
+``punish``, ...) are named levels of the stage game or explicit numbers.
+
+=======================  ==================================================================================
+registry name            behaviour
+=======================  ==================================================================================
+grim_trigger             collude until anyone (itself included) is seen to deviate, then Nash forever
+                         (Friedman, 1971)
+finite_punishment        as grim trigger, but the punishment lasts ``length`` periods, then back to collusion
+tit_for_tat              collude if every rival colluded last period, otherwise punish for one period
+forgiving_tit_for_tat    tit for tat that forgives an observed defection with probability ``forgiveness``
+win_stay_lose_shift      keep the current conduct while profit meets ``aspiration``, switch otherwise
+                         (Nowak and Sigmund, 1993, "A strategy of win-stay, lose-shift...")
+stick_and_carrot         one period of the stick-and-carrot punishment level, back to collusion once everyone
+                         has punished, restart the punishment if someone shirks it (Abreu, 1986)
+trigger_price            collude while the market price stays at or above ``trigger``; ``length`` periods of
+                         Nash after a low price (Green and Porter, 1984)
+always_compete           static Nash every period
+always_collude           the collusive level every period
+opportunist              colludes, cheats with probability ``probability`` per period from period ``start``
+                         on; after any deviation (its own included) plays Nash forever, or keeps colluding
+                         with ``after = "collude"``
+automaton                a user-defined table of states (:class:`TableAutomaton`)
+=======================  ==================================================================================
+"""
+
+from __future__ import annotations
+
+from sim._params import Integer, Options, Real, optional
+from sim.errors import InputError
+
+from .base import Automaton, Either, Level, StateTableConstraint
+
+__all__ = [
+    "AlwaysCollude",
+    "AlwaysCompete",
+    "FinitePunishment",
+    "ForgivingTitForTat",
+    "GrimTrigger",
+    "Opportunist",
+    "StickAndCarrot",
+    "TableAutomaton",
+    "TitForTat",
+    "TriggerPrice",
+    "WinStayLoseShift",
+]
+
+
+class GrimTrigger(Automaton):
+    """Grim trigger: collude until a deviation by anyone is observed, then ``punish`` forever.
+
+    Parameters
+    ----------
+    collude : level
+        Level played while colluding (default ``"collusive"``).
+    punish : level
+        Level played after a deviation (default ``"nash"``: Nash reversion).
+    """
+
+    name = "grim_trigger"
+    summary = "collude until anyone deviates, then Nash forever"
+    _constraints = {"collude": Level(), "punish": Level()}
+
+    def __init__(self, collude="collusive", punish="nash"):
+        self.collude = collude
+        self.punish = punish
+
+    def states(self, p, ctx=None):
+        return {
+            "collude": {"action": p["collude"], "watch": "all", "good": "collude", "bad": "punish"},
+            "punish": {"action": p["punish"]},
+        }
+
+
+class FinitePunishment(Automaton):
+    """Nash reversion for ``length`` periods after an observed deviation, then back to collusion.
+
+    Deviations during the punishment are not policed (Nash is a static best reply, so no firm gains
+    from one); the punishment always lasts exactly ``length`` periods.
+
+    Parameters
+    ----------
+    length : int >= 1
+        Punishment length T.
+    collude, punish : level
+    """
+
+    name = "finite_punishment"
+    summary = "T periods of Nash after a deviation, then back to collusion"
+    _constraints = {"length": Integer(1, 100_000), "collude": Level(), "punish": Level()}
+
+    def __init__(self, length=1, collude="collusive", punish="nash"):
+        self.length = length
+        self.collude = collude
+        self.punish = punish
+
+    def states(self, p, ctx=None):
+        T = p["length"]
+        out = {"collude": {"action": p["collude"], "watch": "all", "good": "collude", "bad": "punish1"}}
+        for k in range(1, T + 1):
+            out[f"punish{k}"] = {"action": p["punish"], "next": f"punish{k + 1}" if k < T else "collude"}
+        return out
+
+
+class TitForTat(Automaton):
+    """Tit-for-tat style retaliation: collude if every rival colluded last period, punish otherwise.
+
+    Parameters
+    ----------
+    forgiveness : float in [0, 1]
+        Probability of forgiving an observed defection (colluding anyway). 0 is strict tit for tat.
+    collude, punish : level
+    """
+
+    name = "tit_for_tat"
+    summary = "answer what the rivals did last period"
+    _constraints = {"forgiveness": Real(0, 1), "collude": Level(), "punish": Level()}
+
+    def __init__(self, forgiveness=0.0, collude="collusive", punish="nash"):
+        self.forgiveness = forgiveness
+        self.collude = collude
+        self.punish = punish
+
+    def states(self, p, ctx=None):
+        g = p["forgiveness"]
+        common = {"watch": "rivals", "expect": p["collude"], "good": "collude", "bad": "punish"}
+        if g > 0:
+            common.update(forgive=g, forgive_to="collude")
+        return {
+            "collude": {"action": p["collude"], **common},
+            "punish": {"action": p["punish"], **common},
+        }
+
+
+class ForgivingTitForTat(TitForTat):
+    """Tit for tat that forgives an observed defection with probability ``forgiveness`` (> 0)."""
+
+    name = "forgiving_tit_for_tat"
+    summary = "tit for tat, forgiving a defection with probability g"
+    _constraints = {"forgiveness": Real(0, 1, closed="right"), "collude": Level(), "punish": Level()}
+
+    def __init__(self, forgiveness=0.1, collude="collusive", punish="nash"):
+        self.forgiveness = forgiveness
+        self.collude = collude
+        self.punish = punish
+
+
+class WinStayLoseShift(Automaton):
+    """Win-stay lose-shift: keep the current conduct while profit meets the aspiration, switch otherwise.
+
+    Parameters
+    ----------
+    aspiration : float, optional
+        Per-period profit the firm is content with. Default: halfway between the firm's static-Nash
+        and collusive profits, so that mutual collusion and a successful deviation are wins and mutual
+        competition and being cheated are losses.
+    collude, punish : level
+        The two conducts.
+    start : {"collude", "punish"}
+        Conduct in the first period.
+    """
+
+    name = "win_stay_lose_shift"
+    summary = "keep the conduct while profit meets the aspiration, switch otherwise"
+    _constraints = {"aspiration": optional(Real(None, None)), "collude": Level(), "punish": Level(),
+                    "start": Options("collude", "punish")}
+
+    def __init__(self, aspiration=None, collude="collusive", punish="nash", start="collude"):
+        self.aspiration = aspiration
+        self.collude = collude
+        self.punish = punish
+        self.start = start
+
+    def states(self, p, ctx=None):
+        a = p["aspiration"]
+        if a is None:
+            if ctx is None:
+                raise InputError("aspiration", "the default aspiration depends on the market; give a number or "
+                                               "compile the line-up against a market")
+            # halfway between the firm's static-Nash and collusive profits
+            a = 0.5 * (float(ctx.levels.firm_profits["nash"][ctx.firm])
+                       + float(ctx.levels.firm_profits["collusive"][ctx.firm]))
+        return {
+            "collude": {"action": p["collude"], "watch": "profit", "threshold": a, "good": "collude",
+                        "bad": "punish"},
+            "punish": {"action": p["punish"], "watch": "profit", "threshold": a, "good": "punish",
+                       "bad": "collude"},
+        }
+
+    def initial(self, p):
+        return p["start"]
+
+
+class StickAndCarrot(Automaton):
+    """Optimal symmetric two-phase punishment (Abreu, 1986): one period of the punishment level, then
+    back to collusion once everyone has punished; the punishment restarts if anyone shirks it.
+
+    The punishment level is the one :func:`sim.stick_and_carrot` finds for the market (the common
+    quantity or price that minimises the critical discount factor).
+
+    Parameters
+    ----------
+    collude : level
+    punish : level
+        Default ``"punishment"`` (the stick-and-carrot level).
+    """
+
+    name = "stick_and_carrot"
+    summary = "one period of the optimal punishment, restarted if shirked"
+    _constraints = {"collude": Level(), "punish": Level()}
+
+    def __init__(self, collude="collusive", punish="punishment"):
+        self.collude = collude
+        self.punish = punish
+
+    def states(self, p, ctx=None):
+        return {
+            "collude": {"action": p["collude"], "watch": "all", "good": "collude", "bad": "punish"},
+            "punish": {"action": p["punish"], "watch": "all", "judge": "punishment", "good": "collude",
+                       "bad": "punish"},
+        }
+
+
+class TriggerPrice(Automaton):
+    """Trigger-price strategy (Green and Porter, 1984): collude while the public market price stays at
+    or above ``trigger``; after a lower price play ``punish`` for ``length`` periods, then collude again.
+
+    Parameters
+    ----------
+    trigger : float
+        Trigger price.
+    length : int >= 1 or "forever"
+        War length T.
+    collude : level
+        Normal-period level (in the Green-Porter model a common quantity, often given as a number).
+    punish : level
+    """
+
+    name = "trigger_price"
+    summary = "collude while the price stays above the trigger, T periods of Nash after a low price"
+    _constraints = {"trigger": Real(0, None), "length": Either(Integer(1, 100_000), Options("forever")),
+                    "collude": Level(), "punish": Level()}
+
+    def __init__(self, trigger=None, length=1, collude="collusive", punish="nash"):
+        self.trigger = trigger
+        self.length = length
+        self.collude = collude
+        self.punish = punish
+
+    def states(self, p, ctx=None):
+        T = p["length"]
+        out = {"collude": {"action": p["collude"], "watch": "price", "threshold": p["trigger"], "good": "collude",
+                           "bad": "war1" if T != "forever" else "war"}}
+        if T == "forever":
+            out["war"] = {"action": p["punish"]}
+        else:
+            for k in range(1, T + 1):
+                out[f"war{k}"] = {"action": p["punish"], "next": f"war{k + 1}" if k < T else "collude"}
+        return out
+
+
+class AlwaysCompete(Automaton):
+    """Plays ``action`` (default the static Nash level) every period."""
+
+    name = "always_compete"
+    summary = "static Nash every period"
+    _constraints = {"action": Level()}
+    _collude_param = None
+
+    def __init__(self, action="nash"):
+        self.action = action
+
+    def states(self, p, ctx=None):
+        return {"compete": {"action": p["action"], "collusive": False}}
+
+
+class AlwaysCollude(Automaton):
+    """Plays ``action`` (default the collusive level) every period, whatever the others do."""
+
+    name = "always_collude"
+    summary = "the collusive level every period"
+    _constraints = {"action": Level()}
+    _collude_param = "action"
+
+    def __init__(self, action="collusive"):
+        self.action = action
+
+    def states(self, p, ctx=None):
+        return {"collude": {"action": p["action"], "collusive": True}}
+
+
+class Opportunist(Automaton):
+    """Colludes but cheats with probability ``probability`` per period from period ``start`` on.
+
+    With ``after = "nash"`` (default) it behaves like grim trigger once any deviation is seen, its own
+    included: it anticipates the punishment and plays Nash forever. With ``probability = 1`` it
+    therefore cheats exactly once, in period ``start`` (periods count from 0). With ``after = "collude"``
+    it never punishes and keeps colluding and cheating.
+
+    Parameters
+    ----------
+    probability : float in [0, 1]
+    start : int >= 0
+        First period (0-based) in which it may cheat.
+    after : {"nash", "collude"}
+    collude, punish : level
+    cheat_action : level
+        Level played when cheating (default ``"deviation"``, the best one-shot deviation).
+    """
+
+    name = "opportunist"
+    summary = "colludes, cheats with probability p per period from period t0 on"
+    _constraints = {"probability": Real(0, 1), "start": Integer(0, None), "after": Options("nash", "collude"),
+                    "collude": Level(), "punish": Level(), "cheat_action": Level()}
+
+    def __init__(self, probability=1.0, start=0, after="nash", collude="collusive", punish="nash",
+                 cheat_action="deviation"):
+        self.probability = probability
+        self.start = start
+        self.after = after
+        self.collude = collude
+        self.punish = punish
+        self.cheat_action = cheat_action
+
+    def states(self, p, ctx=None):
+        if p["after"] == "collude":
+            return {"collude": {"action": p["collude"], "cheat": p["probability"]}}
+        return {
+            "collude": {"action": p["collude"], "cheat": p["probability"], "watch": "all", "good": "collude",
+                        "bad": "punish"},
+            "punish": {"action": p["punish"]},
+        }
+
+    def cheat(self, p):
+        return p["cheat_action"], p["start"], None
+
+
+class TableAutomaton(Automaton):
+    """A user-defined automaton given as a table of states (see :mod:`strategies.base` for the keys).
+
+    Parameters
+    ----------
+    states : dict
+        State name -> state keys (``action``, ``watch``, ``good``, ``bad``, ...). The first state is the
+        initial one unless ``initial`` says otherwise.
+    initial : str, optional
+    collude : level
+        Level whose states count as colluding unless a state says ``collusive = true/false``.
+    cheat_action : level
+        Level played in a state's ``cheat`` periods (default ``"deviation"``).
+    start : int >= 0
+        First period (0-based) in which the states' ``cheat`` probabilities apply.
+
+    Examples
+    --------
+    >>> TableAutomaton(states={
+    ...     "collude": {"action": "collusive", "watch": "all", "bad": "punish"},
+    ...     "punish": {"action": "nash", "next": "collude"},
+    ... }).table().names
+    ['collude', 'punish']
+    """
+
+    name = "automaton"
+    summary = "a user-defined table of states, actions and transitions"
+    _constraints = {"states": StateTableConstraint(), "initial": optional(Options()), "collude": Level(),
+                    "cheat_action": Level(), "start": Integer(0, None)}
+
+    def __init__(self, states=None, initial=None, collude="collusive", cheat_action="deviation", start=0):
+        self.states_table = states
+        self.initial_state = initial
+        self.collude = collude
+        self.cheat_action = cheat_action
+        self.start = start
+
+    # the constructor names ``states`` and ``initial`` collide with the method names of the base class,
+    # so the values live under other attribute names
+    def get_params(self):
+        return {"states": self.states_table, "initial": self.initial_state, "collude": self.collude,
+                "cheat_action": self.cheat_action, "start": self.start}
+
+    def set_params(self, **params):
+        names = self._param_names()
+        for k, v in params.items():
+            if k not in names:
+                raise InputError(k, f"unknown parameter of {type(self).__name__}; allowed: {', '.join(names)}")
+            setattr(self, {"states": "states_table", "initial": "initial_state"}.get(k, k), v)
+        return self
+
+    def _check_params(self, prefix="", n=None):
+        key = f"{prefix}." if prefix else ""
+        out = {"states": StateTableConstraint().check(f"{key}states", self.states_table)}
+        if self.initial_state is not None and not isinstance(self.initial_state, str):
+            raise InputError(f"{key}initial", f"must be a state name, got {self.initial_state!r}")
+        out["initial"] = self.initial_state
+        out["collude"] = Level().check(f"{key}collude", self.collude)
+        out["cheat_action"] = Level().check(f"{key}cheat_action", self.cheat_action)
+        out["start"] = Integer(0, None).check(f"{key}start", self.start)
+        return out
+
+    def states(self, p, ctx=None):
+        return p["states"]
+
+    def initial(self, p):
+        return p["initial"]
+
+    def cheat(self, p):
+        return p["cheat_action"], p["start"], None

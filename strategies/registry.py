@@ -1,0 +1,96 @@
+"""Strategy registry: names used in experiment files and on the command line -> classes.
+
+Other components register their strategies with :func:`register` (a class decorator) or, to keep
+imports lazy, by adding ``name -> "module:Class"`` to :data:`LAZY`.
+"""
+
+from __future__ import annotations
+
+import importlib
+import numbers
+from collections.abc import Sequence
+
+from sim.errors import InputError
+
+from . import automata
+from .base import Automaton
+
+__all__ = ["LAZY", "STRATEGIES", "lineup_from_tables", "register", "strategy_class", "strategy_from_dict"]
+
+#: registry name -> strategy class
+STRATEGIES: dict[str, type] = {}
+#: registry name -> "module:Class", imported on first use
+LAZY: dict[str, str] = {}
+
+
+def register(cls: type) -> type:
+    """Add a strategy class to the registry under ``cls.name`` (usable as a decorator)."""
+    if not getattr(cls, "name", ""):
+        raise ValueError(f"{cls.__name__} has no registry name")
+    STRATEGIES[cls.name] = cls
+    return cls
+
+
+for _cls in (automata.GrimTrigger, automata.FinitePunishment, automata.TitForTat, automata.ForgivingTitForTat,
+             automata.WinStayLoseShift, automata.StickAndCarrot, automata.TriggerPrice, automata.AlwaysCompete,
+             automata.AlwaysCollude, automata.Opportunist, automata.TableAutomaton):
+    register(_cls)
+
+
+def known_names() -> list[str]:
+    return sorted(set(STRATEGIES) | set(LAZY))
+
+
+def strategy_class(name, key: str = "strategy") -> type:
+    """The class registered under ``name``; an unknown name raises InputError listing the known ones."""
+    if isinstance(name, str) and name not in STRATEGIES and name in LAZY:
+        mod, _, attr = LAZY[name].partition(":")
+        register(getattr(importlib.import_module(mod), attr))
+    if not isinstance(name, str) or name not in STRATEGIES:
+        raise InputError(key, f"unknown strategy {name!r}; known: {', '.join(known_names())}")
+    return STRATEGIES[name]
+
+
+def strategy_from_dict(table: dict, prefix: str = "strategy") -> Automaton:
+    """Build a strategy from an experiment-file entry: ``strategy = name`` plus its parameters.
+
+    Unknown parameter names raise InputError naming ``prefix.key`` and the allowed names. ``seats`` is
+    not a strategy parameter (see :func:`lineup_from_tables`).
+    """
+    if not isinstance(table, dict):
+        raise InputError(prefix, f"must be a table with a 'strategy' key, got {table!r}")
+    if "strategy" not in table:
+        raise InputError(f"{prefix}.strategy", f"missing; known strategies: {', '.join(known_names())}")
+    cls = strategy_class(table["strategy"], f"{prefix}.strategy")
+    names = cls._param_names()
+    params = {}
+    for k, v in table.items():
+        if k in ("strategy", "seats"):
+            continue
+        if k not in names:
+            allowed = ", ".join(names) if names else "none"
+            raise InputError(f"{prefix}.{k}", f"unknown parameter of {cls.name}; allowed: {allowed}")
+        params[k] = v
+    strat = cls(**params)
+    if isinstance(strat, Automaton):
+        strat._check_params(prefix)
+    return strat
+
+
+def lineup_from_tables(tables, n_firms: int | None = None, prefix: str = "strategies") -> list:
+    """Expand ``[[strategies]]`` entries (each with an optional ``seats``, default 1) into one strategy
+    per firm, in seat order. With ``n_firms`` the total number of seats must match it."""
+    if not isinstance(tables, Sequence) or isinstance(tables, str | dict) or not tables:
+        raise InputError(prefix, "must be a non-empty list of [[strategies]] entries")
+    out = []
+    for k, t in enumerate(tables):
+        key = f"{prefix}[{k + 1}]"
+        strat = strategy_from_dict(t, key)
+        seats = t.get("seats", 1)
+        if isinstance(seats, bool) or not isinstance(seats, numbers.Integral) or not 1 <= seats <= 100_000:
+            raise InputError(f"{key}.seats", f"must be an integer in [1, 100000], got {seats!r}")
+        out.extend(strat.clone() for _ in range(int(seats)))
+    if n_firms is not None and len(out) != n_firms:
+        raise InputError(prefix, f"the line-up has {len(out)} seat{'s' if len(out) != 1 else ''} but the market "
+                                 f"has {n_firms} firms; give one strategy per firm (use seats to repeat one)")
+    return out
