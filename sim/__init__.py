@@ -20,7 +20,8 @@ _EXPORTS = {
     ],
     "thresholds": [
         "PartialCollusion", "SchemeThreshold", "StickCarrot", "ThresholdReport", "finite_threshold",
-        "grim_threshold", "partial_collusion", "stick_and_carrot", "threshold_sensitivity", "thresholds",
+        "grim_threshold", "partial_collusion", "stick_and_carrot", "threshold_sensitivity",
+        "critical_discount_factors",
     ],
     "trigger_price": [
         "TriggerPriceScheme", "price_war_statistics", "trigger_price_equilibrium", "trigger_price_scheme",

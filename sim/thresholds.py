@@ -55,12 +55,12 @@ __all__ = [
     "SchemeThreshold",
     "StickCarrot",
     "ThresholdReport",
+    "critical_discount_factors",
     "finite_threshold",
     "grim_threshold",
     "partial_collusion",
     "stick_and_carrot",
     "threshold_sensitivity",
-    "thresholds",
 ]
 
 SCHEMES = ("grim", "finite", "stick_carrot")
@@ -307,7 +307,8 @@ def stick_and_carrot(market, stage: StageGame | None = None, n_grid: int = 161) 
     if ms.quantity_setting and ms.demand.kind in ("linear", "differentiated") and np.all(ms.cost > 0):
         # beyond the choke quantity the price stays at zero and the punishment profit is -c x: harsher
         # punishments remain available up to where one period of losses outweighs the cheating gain
-        x_hi = max(x_hi, 2.0 * float(np.max(pi_d - pi_c)) / float(ms.cost.min()))
+        # (a hundred times the choke quantity bounds the search when costs are tiny)
+        x_hi = min(max(x_hi, 2.0 * float(np.max(pi_d - pi_c)) / float(ms.cost.min())), 100.0 * x_hi)
         x_hi = min(x_hi, float(ms.capacity.max()))
 
     def F(xs):
@@ -500,8 +501,8 @@ class ThresholdReport:
         return out
 
 
-def thresholds(market, punishments=(1, 2, 3, 5, 10), deltas=(), agreement: str = "joint", actions=None,
-               stage: StageGame | None = None) -> ThresholdReport:
+def critical_discount_factors(market, punishments=(1, 2, 3, 5, 10), deltas=(), agreement: str = "joint",
+                              actions=None, stage: StageGame | None = None) -> ThresholdReport:
     """Compute every threshold of a market.
 
     Parameters

@@ -50,7 +50,10 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # --help, --version and argument errors (one line, status 2)
+        return int(exc.code or 0)
     if not getattr(args, "command", None):
         parser.print_help()
         return 2

@@ -84,7 +84,11 @@ def market_table_from_args(args, base: dict | None = None) -> tuple[dict, set]:
         elif flag == "firms":
             table[key] = parse_number(flag, val, integer=True)
         elif flag in _LISTS:
-            table[key] = parse_numbers(flag, val)
+            v = parse_numbers(flag, val)
+            # a single value replacing a per-firm list of the file keeps the file's number of firms
+            if not isinstance(v, list) and isinstance(table.get(key), list) and "n_firms" not in table:
+                v = [v] * len(table[key])
+            table[key] = v
         else:
             table[key] = parse_number(flag, val)
         from_flags.add(key)

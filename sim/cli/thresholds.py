@@ -83,7 +83,7 @@ def run(args) -> int:
     from .. import _text
     from .._jsonutil import dumps
     from ..market import market_from_dict
-    from ..thresholds import thresholds
+    from ..thresholds import critical_discount_factors
     from ..tomlfile import read_toml
 
     doc = read_toml(args.file) if args.file else {}
@@ -91,13 +91,15 @@ def run(args) -> int:
     if args.file and "market" not in doc:
         raise InputError("market", f"{args.file} has no [market] table")
     table, from_flags = market_table_from_args(args, base)
+    if "cost" not in table:
+        raise InputError("--cost" if not args.file else "market.cost", "missing (marginal cost of each firm)")
     try:
         market = market_from_dict(table)
     except InputError as exc:
         raise flag_error(exc, from_flags) from None
     opts = _options(args, doc)
     try:
-        report = thresholds(market, punishments=opts["punishments"], deltas=opts["deltas"],
+        report = critical_discount_factors(market, punishments=opts["punishments"], deltas=opts["deltas"],
                             agreement=opts["agreement"], actions=opts["actions"])
     except InputError as exc:
         key = {"punishment": "--punishment" if args.punishment else "thresholds.punishments",
