@@ -6,17 +6,24 @@ function is in :mod:`sim._learnref` and the tests check that both give the same 
 
 Layout shared with the driver
 -----------------------------
-* Seats ``0 .. n-1`` (one per firm). Seat ``i`` has ``radix[i]`` actions; an action profile is the
-  mixed-radix number ``prof = sum_i a_i * place[i]`` with ``place[i] = prod(radix[:i])``, so there
-  are ``M = prod(radix)`` profiles.
-* The history state is the profile of the last ``K`` periods, ``s = sum_l prof_{t-1-l} * M**l``
-  (lag 1 in the lowest digit), ``0 <= s < S = M**K``. Learner ``l`` with memory ``k_l <= K`` sees
-  ``s % mod[l]`` with ``mod[l] = M**k_l``.
-* ``payoff[prof, i]``: profit of seat ``i`` at profile ``prof``; ``Q[l, state, a]``; ``greedy[l,
-  state]``: the first index of the largest entry of ``Q[l, state, :radix[i]]``, maintained
-  incrementally (only the row just updated can change, and the test below keeps the first-index
-  rule exact).
-* Learners-only line-ups: seat ``i`` is learner ``i``.
+* Seats ``0 .. n-1`` (one per firm), each a learner (``kind = LEARNER``) or an automaton from
+  :mod:`strategies` (``kind = AUTOMATON``), stepped by the engine's own numba functions
+  (:mod:`strategies._step`) on the engine's compiled arrays.
+* Seat ``i`` has ``radix[i]`` actions (a learner's grid; an automaton's distinct action values). An
+  action profile is the mixed-radix number ``prof = sum_i a_i * place[i]`` with
+  ``place[i] = prod(radix[:i])``; there are ``M = prod(radix)`` profiles.
+* The history state is the profile of the last ``K`` periods, ``s = sum_l prof_{t-1-l} * M**l`` (lag 1
+  in the lowest digit), ``0 <= s < S = M**K``. Learner ``i`` with memory ``k_i <= K`` sees
+  ``s % mod[i]`` (``mod[i] = M**k_i``).
+* ``payoff[prof, i]``: profit of seat ``i``; ``Q[lidx[i], state, a]``; ``greedy[lidx[i], state]``: the
+  first index of the largest entry of ``Q[lidx[i], state, :radix[i]]``, maintained incrementally (only
+  the row just updated can change, and the test below keeps the first-index rule exact).
+* Automaton seat ``i`` is in state ``z[i]``; level ``l`` it plays is action ``act_of_level[i, l]``;
+  ``values[i, a]`` is the value of action ``a`` (what the automata's signals look at), ``mprice[prof]``
+  the public market price of a profile.
+* For the limit analysis the whole system is one integer, ``x = s + S * sum_i z[i] * zplace[i]``
+  (``zn[i]`` states of seat ``i``; ``zn = 1``, ``zplace = 0`` for learners): greedy play with
+  deterministic automata is then a map on integers, and its cycle is found by Brent's method.
 """
 
 from __future__ import annotations
@@ -26,12 +33,16 @@ import math
 import numpy as np
 from numba import njit
 
+from strategies._step import bad_signal, choose_level, next_state
+
 from ._rng import next_below, next_double
 
 __all__: list[str] = []
 
 STATUS_CONVERGED = 0
 STATUS_CAP = 1
+LEARNER = 0
+AUTOMATON = 1
 
 
 @njit(cache=True, nogil=True)
@@ -49,21 +60,22 @@ def _initial_state(rng, radix, place, M, K):
 
 
 @njit(cache=True, nogil=True)
-def _learn(radix, place, S, K, mod, alpha, beta, delta, payoff, Q, greedy, rng, s, convergence, max_periods):
+def _learn(kind, lidx, radix, place, S, K, mod, alpha, beta, delta, payoff, Q, greedy, rng, s, convergence,
+           max_periods, z, a_states, a_probs, a_firms, a_levels, act_of_level, values, mprice, owner,
+           quantity_setting):
     """Run one session from history state ``s`` until convergence or the cap.
 
     Parameters
     ----------
-    radix, place : int64 arrays of shape (n,)
+    kind, lidx, radix, place, mod : int64 arrays of shape (n,)
     S, K : int
         Number of history states (``M**K``) and the longest memory.
-    mod : int64 array of shape (n,)
-        ``M**k_l``: learner ``l`` sees ``s % mod[l]``.
     alpha, beta, delta : float64 arrays of shape (n,)
+        Learner parameters (ignored for automaton seats).
     payoff : float64 array of shape (M, n)
-    Q : float64 array of shape (n, S_l, m_max)
+    Q : float64 array of shape (n_learners, S_l, m_max)
         Modified in place.
-    greedy : int64 array of shape (n, S_l)
+    greedy : int64 array of shape (n_learners, S_l)
         Modified in place; must hold the first argmax of every row of ``Q`` on entry.
     rng : uint64 array of shape (4,)
         xoshiro256** state, advanced in place.
@@ -73,6 +85,15 @@ def _learn(radix, place, S, K, mod, alpha, beta, delta, payoff, Q, greedy, rng, 
         Stop once no learner's greedy strategy has changed for this many consecutive periods.
     max_periods : int
         Stop after this many periods in any case.
+    z : int64 array of shape (n,)
+        Automaton states, modified in place.
+    a_states, a_probs, a_firms, a_levels : arrays
+        The engine's compiled automata (:mod:`strategies._step`), one row per seat.
+    act_of_level : int64 array of shape (n, L)
+    values : float64 array of shape (n, A_max)
+    mprice : float64 array of shape (M,)
+    owner : int64 array of shape (n,)
+    quantity_setting : bool
 
     Returns
     -------
@@ -85,34 +106,51 @@ def _learn(radix, place, S, K, mod, alpha, beta, delta, payoff, Q, greedy, rng, 
 
     Notes
     -----
-    Per period and learner, in seat order: one uniform ``u``; if ``u < exp(-beta t)`` (t counted from
-    0) a second draw picks the action uniformly, otherwise the greedy action is played. Then every
-    learner updates its entry of the state it was in, using the value of the next state *before*
-    any update of this period (all learners update simultaneously).
+    Draws per period, seats in order: a learner draws one uniform ``u`` and, if
+    ``u < exp(-beta t)`` (t counted from 0), a second one that picks its action uniformly; otherwise it
+    plays its greedy action. An automaton draws what :func:`strategies._step.choose_level` draws. Then
+    every learner updates the entry of the state it was in, with the value of the next state *before*
+    any update of this period, and every automaton moves on its signal
+    (:func:`strategies._step.bad_signal`, :func:`strategies._step.next_state`).
     """
     n = radix.size
     M = place[n - 1] * radix[n - 1]
     act = np.empty(n, np.int64)
+    vals = np.empty(n, np.float64)
+    has_automata = False
+    for i in range(n):
+        if kind[i] == AUTOMATON:
+            has_automata = True
     t = 0
     stable = 0
     while t < max_periods:
         tf = np.float64(t)
         prof = 0
-        eps = 0.0
+        eps = -1.0
+        prev_beta = -1.0
         for i in range(n):
-            si = s if mod[i] == S else s % mod[i]
-            # one exponential per period when the learners share beta (the usual case)
-            if i == 0 or beta[i] != beta[i - 1]:
-                eps = math.exp(-beta[i] * tf)
-            if next_double(rng) < eps:
-                a = next_below(rng, radix[i])
+            if kind[i] == LEARNER:
+                li = lidx[i]
+                si = s if mod[i] == S else s % mod[i]
+                # one exponential per period when the learners share beta (the usual case)
+                if beta[i] != prev_beta:
+                    eps = math.exp(-beta[i] * tf)
+                    prev_beta = beta[i]
+                if next_double(rng) < eps:
+                    a = next_below(rng, radix[i])
+                else:
+                    a = greedy[li, si]
             else:
-                a = greedy[i, si]
+                lev, _cheated = choose_level(i, z[i], t, a_states, a_probs, a_firms, rng)
+                a = act_of_level[i, lev]
             act[i] = a
             prof += a * place[i]
         s_new = prof if K == 1 else prof + (s * M) % S
         changed = False
         for i in range(n):
+            if kind[i] != LEARNER:
+                continue
+            li = lidx[i]
             if mod[i] == S:
                 si = s
                 sn = s_new
@@ -120,27 +158,35 @@ def _learn(radix, place, S, K, mod, alpha, beta, delta, payoff, Q, greedy, rng, 
                 si = s % mod[i]
                 sn = s_new % mod[i]
             a = act[i]
-            target = payoff[prof, i] + delta[i] * Q[i, sn, greedy[i, sn]]
-            old = Q[i, si, a]
+            target = payoff[prof, i] + delta[i] * Q[li, sn, greedy[li, sn]]
+            old = Q[li, si, a]
             new = (1.0 - alpha[i]) * old + alpha[i] * target
-            Q[i, si, a] = new
-            g = greedy[i, si]
+            Q[li, si, a] = new
+            g = greedy[li, si]
             if a == g:
                 if new < old:
                     best = 0
-                    bv = Q[i, si, 0]
+                    bv = Q[li, si, 0]
                     for j in range(1, radix[i]):
-                        if Q[i, si, j] > bv:
-                            bv = Q[i, si, j]
+                        if Q[li, si, j] > bv:
+                            bv = Q[li, si, j]
                             best = j
                     if best != g:
-                        greedy[i, si] = best
+                        greedy[li, si] = best
                         changed = True
             else:
-                qg = Q[i, si, g]
+                qg = Q[li, si, g]
                 if new > qg or (new == qg and a < g):
-                    greedy[i, si] = a
+                    greedy[li, si] = a
                     changed = True
+        if has_automata:
+            for i in range(n):
+                vals[i] = values[i, act[i]]
+            for i in range(n):
+                if kind[i] == AUTOMATON:
+                    bad = bad_signal(i, z[i], n, vals, owner, mprice[prof], payoff[prof, i], 0.0, a_states, a_probs,
+                                     a_levels, quantity_setting, rng)
+                    z[i] = next_state(i, z[i], bad, a_states, a_probs, rng)
         s = s_new
         t += 1
         if changed:
@@ -152,29 +198,68 @@ def _learn(radix, place, S, K, mod, alpha, beta, delta, payoff, Q, greedy, rng, 
     return STATUS_CAP, t, s
 
 
+# ------------------------------------------------------------------------------------------------
+# Greedy play after learning: the whole system as one integer state
+# ------------------------------------------------------------------------------------------------
+# G = (kind, lidx, radix, place, mod, M, S, K, greedy, a_states, a_probs, a_firms, a_levels,
+#      act_of_level, values, mprice, payoff, owner, zplace, zn, t_end, quantity_setting, rng)
+
+
 @njit(cache=True, nogil=True)
-def _greedy_profile(s, greedy, mod, place, S):
+def _profile(x, G):
+    """The profile everyone plays greedily in system state ``x``."""
+    kind, lidx, radix, place, mod, S = G[0], G[1], G[2], G[3], G[4], G[6]
+    greedy, a_states, a_probs, a_firms, act_of_level = G[8], G[9], G[10], G[11], G[13]
+    zplace, zn, t_end, rng = G[18], G[19], G[20], G[22]
+    s = x % S
+    zc = x // S
     prof = 0
-    for i in range(place.size):
-        si = s if mod[i] == S else s % mod[i]
-        prof += greedy[i, si] * place[i]
+    for i in range(radix.size):
+        if kind[i] == LEARNER:
+            si = s if mod[i] == S else s % mod[i]
+            a = greedy[lidx[i], si]
+        else:
+            zi = (zc // zplace[i]) % zn[i]
+            lev, _c = choose_level(i, zi, t_end, a_states, a_probs, a_firms, rng)
+            a = act_of_level[i, lev]
+        prof += a * place[i]
     return prof
 
 
 @njit(cache=True, nogil=True)
-def _advance(s, prof, M, S, K):
-    return prof if K == 1 else prof + (s * M) % S
+def _after(x, prof, G):
+    """System state after profile ``prof`` is played in state ``x``."""
+    kind, radix, place, M, S, K = G[0], G[2], G[3], G[5], G[6], G[7]
+    a_states, a_probs, a_levels, values, mprice, payoff, owner = G[9], G[10], G[12], G[14], G[15], G[16], G[17]
+    zplace, zn, qs, rng = G[18], G[19], G[21], G[22]
+    n = radix.size
+    s = x % S
+    zc = x // S
+    s_new = prof if K == 1 else prof + (s * M) % S
+    if zc == 0 and zn.max() == 1:
+        return s_new
+    vals = np.empty(n, np.float64)
+    for i in range(n):
+        vals[i] = values[i, (prof // place[i]) % radix[i]]
+    zc_new = 0
+    for i in range(n):
+        if kind[i] == AUTOMATON:
+            zi = (zc // zplace[i]) % zn[i]
+            bad = bad_signal(i, zi, n, vals, owner, mprice[prof], payoff[prof, i], 0.0, a_states, a_probs, a_levels,
+                             qs, rng)
+            zc_new += next_state(i, zi, bad, a_states, a_probs, rng) * zplace[i]
+    return s_new + S * zc_new
 
 
 @njit(cache=True, nogil=True)
-def _greedy_next(s, greedy, mod, place, M, S, K):
-    return _advance(s, _greedy_profile(s, greedy, mod, place, S), M, S, K)
+def _next(x, G):
+    return _after(x, _profile(x, G), G)
 
 
 @njit(cache=True, nogil=True)
-def _cycle_of(s0, greedy, mod, place, M, S, K):
+def _cycle_of(x0, G):
     """Brent's cycle detection (Brent, 1980, "An improved Monte Carlo factorization algorithm", BIT
-    20) on greedy play from state ``s0``.
+    20) on greedy play from system state ``x0``.
 
     Returns
     -------
@@ -187,80 +272,82 @@ def _cycle_of(s0, greedy, mod, place, M, S, K):
     """
     power = 1
     lam = 1
-    tort = s0
-    hare = _greedy_next(s0, greedy, mod, place, M, S, K)
+    tort = x0
+    hare = _next(x0, G)
     while tort != hare:
         if power == lam:
             tort = hare
             power *= 2
             lam = 0
-        hare = _greedy_next(hare, greedy, mod, place, M, S, K)
+        hare = _next(hare, G)
         lam += 1
-    tort = s0
-    hare = s0
+    tort = x0
+    hare = x0
     for _ in range(lam):
-        hare = _greedy_next(hare, greedy, mod, place, M, S, K)
+        hare = _next(hare, G)
     mu = 0
     while tort != hare:
-        tort = _greedy_next(tort, greedy, mod, place, M, S, K)
-        hare = _greedy_next(hare, greedy, mod, place, M, S, K)
+        tort = _next(tort, G)
+        hare = _next(hare, G)
         mu += 1
     return mu, lam, tort
 
 
 @njit(cache=True, nogil=True)
-def _value(s0, seat, d, payoff, greedy, mod, place, M, S, K):
-    """Discounted profit of seat ``seat`` from state ``s0`` on when everyone plays greedily forever:
+def _value(x0, seat, d, G):
+    """Discounted profit of ``seat`` from system state ``x0`` on when everyone plays greedily forever:
     the transient sum plus the cycle's sum times ``1 / (1 - d**lam)`` -- exact, no truncation."""
-    mu, lam, _entry = _cycle_of(s0, greedy, mod, place, M, S, K)
+    payoff = G[16]
+    mu, lam, _entry = _cycle_of(x0, G)
     v = 0.0
     w = 1.0
-    s = s0
+    x = x0
     for _ in range(mu):
-        prof = _greedy_profile(s, greedy, mod, place, S)
+        prof = _profile(x, G)
         v += w * payoff[prof, seat]
         w *= d
-        s = _advance(s, prof, M, S, K)
+        x = _after(x, prof, G)
     c = 0.0
     wc = 1.0
     for _ in range(lam):
-        prof = _greedy_profile(s, greedy, mod, place, S)
+        prof = _profile(x, G)
         c += wc * payoff[prof, seat]
         wc *= d
-        s = _advance(s, prof, M, S, K)
+        x = _after(x, prof, G)
     return v + w * c / (1.0 - wc)
 
 
 @njit(cache=True, nogil=True)
-def _on_cycle(x, entry, lam, greedy, mod, place, M, S, K):
-    """True when state ``x`` is one of the ``lam`` states of the cycle through ``entry``."""
-    s = entry
+def _on_cycle(x, entry, lam, G):
+    """True when system state ``x`` is one of the ``lam`` states of the cycle through ``entry``."""
+    y = entry
     for _ in range(lam):
-        if s == x:
+        if y == x:
             return True
-        s = _greedy_next(s, greedy, mod, place, M, S, K)
+        y = _next(y, G)
     return False
 
 
 @njit(cache=True, nogil=True)
-def _analyse(s_final, greedy, radix, mod, place, M, S, K, payoff, actions, prices, deviator, dev_action, d_dev,
-             n_points, cycle_out, lim_actions, lim_prices, lim_profits, ir_prices, ir_profits, cf_prices,
-             cf_profits, info):
+def _analyse(x_final, G, actions, prices, deviator, dev_action, d_dev, n_points, cycle_out, lim_actions, lim_prices,
+             lim_profits, ir_prices, ir_profits, cf_prices, cf_profits, info):
     """The limit path from the final state and the impulse response to a one-period deviation.
 
     Parameters
     ----------
-    s_final : int
-        History state at the end of learning.
-    payoff, actions, prices : float64 arrays of shape (M, n)
-        Profit, action value and price of every seat at every profile.
+    x_final : int
+        System state at the end of learning.
+    G : tuple
+        The line-up (see the comment above :func:`_profile`).
+    actions, prices : float64 arrays of shape (M, n)
+        Action value and price of every seat at every profile (profits are ``G[16]``).
     deviator : int
         Seat forced to deviate.
     dev_action : int
-        Its forced action index, or -1 for its static best response (on its grid, first index on
-        ties) to the rivals' actions in the deviation period.
+        Its forced action index, or -1 for its static best response (over its actions, first index
+        on ties) to the rivals' actions in the deviation period.
     d_dev : float
-        The deviator's discount factor (for the value of the deviation).
+        Discount factor of the deviator's value.
     n_points : int
         Deviate from at most this many points of the limit cycle (the first ones from its entry).
     cycle_out : int64 array of shape (L,)
@@ -276,21 +363,22 @@ def _analyse(s_final, greedy, radix, mod, place, M, S, K, payoff, actions, price
         pays, share of points after which play returns to the same cycle, mean periods to return
         (nan if never), forced action at the first point]``.
     """
+    radix, place, M, S, payoff = G[2], G[3], G[5], G[6], G[16]
     n = place.size
-    mu, lam, entry = _cycle_of(s_final, greedy, mod, place, M, S, K)
+    mu, lam, entry = _cycle_of(x_final, G)
     lim_actions[:] = 0.0
     lim_prices[:] = 0.0
     lim_profits[:] = 0.0
-    s = entry
+    x = entry
     for c in range(lam):
-        prof = _greedy_profile(s, greedy, mod, place, S)
+        prof = _profile(x, G)
         if c < cycle_out.size:
             cycle_out[c] = prof
         for i in range(n):
             lim_actions[i] += actions[prof, i]
             lim_prices[i] += prices[prof, i]
             lim_profits[i] += payoff[prof, i]
-        s = _advance(s, prof, M, S, K)
+        x = _after(x, prof, G)
     for i in range(n):
         lim_actions[i] /= lam
         lim_prices[i] /= lam
@@ -307,18 +395,18 @@ def _analyse(s_final, greedy, radix, mod, place, M, S, K, payoff, actions, price
     returned = 0
     ret_sum = 0.0
     first_action = -1
+    m_dev = radix[deviator]
     x = entry
     for _c in range(points):
-        # period before the deviation: the last profile of the history x
-        last = x % M
+        # the period before the deviation: the last profile of the history
+        last = (x % S) % M
         for i in range(n):
             ir_prices[0, i] += prices[last, i]
             ir_profits[0, i] += payoff[last, i]
             cf_prices[0, i] += prices[last, i]
             cf_profits[0, i] += payoff[last, i]
-        # deviation period: rivals play greedily at x, the deviator is forced
-        prof = _greedy_profile(x, greedy, mod, place, S)
-        m_dev = radix[deviator]
+        # the deviation period: the others play greedily in x, the deviator is forced
+        prof = _profile(x, G)
         base = prof - ((prof // place[deviator]) % m_dev) * place[deviator]
         if dev_action >= 0:
             a_dev = dev_action
@@ -336,33 +424,33 @@ def _analyse(s_final, greedy, radix, mod, place, M, S, K, payoff, actions, price
         for i in range(n):
             ir_prices[1, i] += prices[pdev, i]
             ir_profits[1, i] += payoff[pdev, i]
-        y = _advance(x, pdev, M, S, K)
+        y0 = _after(x, pdev, G)
+        y = y0
         for tau in range(2, T2):
-            p = _greedy_profile(y, greedy, mod, place, S)
+            p = _profile(y, G)
             for i in range(n):
                 ir_prices[tau, i] += prices[p, i]
                 ir_profits[tau, i] += payoff[p, i]
-            y = _advance(y, p, M, S, K)
-        z = x
+            y = _after(y, p, G)
+        w = x
         for tau in range(1, T2):
-            p = _greedy_profile(z, greedy, mod, place, S)
+            p = _profile(w, G)
             for i in range(n):
                 cf_prices[tau, i] += prices[p, i]
                 cf_profits[tau, i] += payoff[p, i]
-            z = _advance(z, p, M, S, K)
+            w = _after(w, p, G)
         # exact discounted value of deviating versus not
-        y0 = _advance(x, pdev, M, S, K)
-        v_dev = payoff[pdev, deviator] + d_dev * _value(y0, deviator, d_dev, payoff, greedy, mod, place, M, S, K)
-        v_no = _value(x, deviator, d_dev, payoff, greedy, mod, place, M, S, K)
+        v_dev = payoff[pdev, deviator] + d_dev * _value(y0, deviator, d_dev, G)
+        v_no = _value(x, deviator, d_dev, G)
         gain = v_dev - v_no
         gain_sum += gain
         if gain > 1e-9 * max(1.0, abs(v_no)):
             pays += 1
-        mu2, lam2, entry2 = _cycle_of(y0, greedy, mod, place, M, S, K)
-        if lam2 == lam and _on_cycle(entry2, entry, lam, greedy, mod, place, M, S, K):
+        mu2, lam2, entry2 = _cycle_of(y0, G)
+        if lam2 == lam and _on_cycle(entry2, entry, lam, G):
             returned += 1
             ret_sum += mu2 + 1.0
-        x = _greedy_next(x, greedy, mod, place, M, S, K)
+        x = _next(x, G)
     for tau in range(T2):
         for i in range(n):
             ir_prices[tau, i] /= points

@@ -71,31 +71,52 @@ _RUN_CONSTRAINTS = {
 
 @dataclass(frozen=True, eq=False)
 class Lineup:
-    """Learners resolved against a market: the arrays the kernel plays.
+    """A line-up of learners (and, optionally, automata) resolved against a market: the arrays the
+    kernel plays.
 
     Attributes
     ----------
     market : sim.MarketSpec
-    learners : tuple of CompiledLearner, one per seat
-    grids : tuple of ndarray, grid of each seat
+    learners : tuple, one entry per seat
+        The seat's :class:`~strategies.qlearning.CompiledLearner`, or None for an automaton seat.
+    names : tuple of str
+        Strategy name of each seat (``"qlearning"`` or the automaton's registry name).
+    grids : tuple of ndarray
+        Actions of each seat (a learner's grid; an automaton's distinct action values, increasing).
+    kind, lidx : ndarray of int64, shape (n,)
+        ``sim._learnkernel.LEARNER`` or ``AUTOMATON``; the learner number of each learner seat.
     radix, place : ndarray of int64, shape (n,)
         Actions per seat and place value of each seat in a profile index.
     M, K, S : int
         Number of profiles, longest memory, number of history states (``M**K``).
     mod : ndarray of int64, shape (n,)
-        Number of states of each learner (``M**k``).
+        Number of states of each learner (``M**k``; 1 for automata).
     alpha, beta, delta : ndarray of shape (n,)
+        Learner parameters (0 for automata).
     payoff, actions, prices : ndarray of shape (M, n)
         Profit, action and price of each seat at each profile.
-    q0 : ndarray of shape (n, max(mod), max(radix))
+    mprice : ndarray of shape (M,)
+        Public market price of each profile (what price-watching automata see).
+    q0 : ndarray of shape (n_learners, max(mod), max(radix))
         Initial Q-values (entries beyond a learner's states or actions are unused).
+    automata : strategies.CompiledLineup or None
+        The engine's compiled automata (rows of learner seats are placeholders, never played).
+    act_of_level : ndarray of int64, shape (n, L)
+        Action index of each level of each automaton seat.
+    values : ndarray of shape (n, max(radix))
+        Value of each action of each seat.
+    zn, zplace : ndarray of int64, shape (n,)
+        Automaton state counts and their place values in the system state (1 and 0 for learners).
     nash_profits, collusive_profits, nash_actions, collusive_actions, nash_prices, collusive_prices :
         ndarray of shape (n,), the continuous static-Nash and joint-profit benchmarks.
     """
 
     market: Any
     learners: tuple
+    names: tuple
     grids: tuple
+    kind: np.ndarray
+    lidx: np.ndarray
     radix: np.ndarray
     place: np.ndarray
     M: int
@@ -108,7 +129,18 @@ class Lineup:
     payoff: np.ndarray
     actions: np.ndarray
     prices: np.ndarray
+    mprice: np.ndarray
     q0: np.ndarray
+    automata: Any
+    a_states: np.ndarray
+    a_probs: np.ndarray
+    a_firms: np.ndarray
+    a_levels: np.ndarray
+    act_of_level: np.ndarray
+    values: np.ndarray
+    zn: np.ndarray
+    zplace: np.ndarray
+    z0: np.ndarray
     nash_profits: np.ndarray
     collusive_profits: np.ndarray
     nash_actions: np.ndarray
@@ -120,17 +152,42 @@ class Lineup:
     def n_seats(self) -> int:
         return int(self.radix.size)
 
+    @property
+    def learner_seats(self) -> list[int]:
+        return [i for i, c in enumerate(self.learners) if c is not None]
+
+    @property
+    def has_automata(self) -> bool:
+        return self.automata is not None
+
     def initial_greedy(self) -> np.ndarray:
-        """First argmax of every row of ``q0`` restricted to each learner's actions, shape (n, S_l)."""
+        """First argmax of every row of ``q0`` restricted to each learner's actions, shape (n_learners, S_l)."""
         g = np.zeros(self.q0.shape[:2], dtype=np.int64)
-        for i in range(self.n_seats):
-            g[i] = np.argmax(self.q0[i, :, : self.radix[i]], axis=1)
+        for i in self.learner_seats:
+            li = int(self.lidx[i])
+            g[li] = np.argmax(self.q0[li, :, : self.radix[i]], axis=1)
         return g
 
     def decode(self, prof) -> np.ndarray:
         """Action indices of profile numbers, shape (..., n)."""
         prof = np.asarray(prof, dtype=np.int64)
         return (prof[..., None] // self.place) % self.radix
+
+    def kernel_args(self) -> tuple:
+        """The arrays :func:`sim._learnkernel._learn` takes after ``max_periods``, ``z`` excepted."""
+        return (self.a_states, self.a_probs, self.a_firms, self.a_levels, self.act_of_level, self.values,
+                self.mprice, np.arange(self.n_seats, dtype=np.int64), bool(self.market.quantity_setting))
+
+    def game(self, greedy: np.ndarray, t_end: int) -> tuple:
+        """The tuple ``G`` of :mod:`sim._learnkernel` for greedy play after learning."""
+        return (self.kind, self.lidx, self.radix, self.place, self.mod, self.M, self.S, self.K, greedy,
+                self.a_states, self.a_probs, self.a_firms, self.a_levels, self.act_of_level, self.values, self.mprice,
+                self.payoff, np.arange(self.n_seats, dtype=np.int64), self.zplace, self.zn, int(t_end),
+                bool(self.market.quantity_setting), np.zeros(4, dtype=np.uint64))
+
+    def system_state(self, s: int, z) -> int:
+        """History state ``s`` and automaton states ``z`` as one integer."""
+        return int(s) + self.S * int(sum(int(z[i]) * int(self.zplace[i]) for i in range(self.n_seats)))
 
 
 def _available_memory() -> int:
@@ -152,7 +209,8 @@ def _gb(x: float) -> str:
     return f"{x / 1e9:.3g} GB"
 
 
-def _check_memory(radix: list[int], ks: list[int], n_workers: int, prefix: str, available: int | None) -> None:
+def _check_memory(radix: list[int], ks: list[int], n_workers: int, prefix: str, available: int | None,
+                  z_states: int = 1) -> None:
     """Refuse a state space that cannot be held, before anything is allocated."""
     n = len(radix)
     M = math.prod(radix)
@@ -162,38 +220,56 @@ def _check_memory(radix: list[int], ks: list[int], n_workers: int, prefix: str, 
     m_max = max(radix)
     key = f"{prefix}.k" if prefix else "k"
     per_session = n * n_states * m_max * 8 + n * n_states * 8  # Q-values and greedy actions
-    tables = 3 * M * n * 8
+    tables = 4 * M * n * 8
     need = per_session * (n_workers + 1) + tables
     avail = _available_memory() if available is None else available
     states = str(n_states) if n_states < 10**9 else f"{float(n_states):.3g}"
     if need > _MEMORY_SHARE * avail:
         raise InputError(
             key,
-            f"state space too large: {n} learners x {states} states x {m_max} actions need "
+            f"state space too large: {n} seats x {states} states x {m_max} actions need "
             f"{_gb(per_session)} per session ({_gb(need)} for {n_workers} worker(s)), more than the "
             f"{_gb(_MEMORY_SHARE * avail)} that may be used; reduce m, k or the number of firms",
         )
-    if S * M >= 2**62:  # pragma: no cover - needs more memory than any machine has
-        raise InputError(key, f"state space too large: {M}^{K} = {float(S):.3g} history states exceed what the "
-                              "kernel can index; reduce m, k or the number of firms")
+    if S * M * z_states >= 2**62:
+        raise InputError(key, f"state space too large: {M}^{K} history states x {z_states} automaton states "
+                              f"= {float(S) * z_states:.3g} exceed what the kernel can index; reduce m, k or the "
+                              "number of firms")
+
+
+def _is_learner(x) -> bool:
+    from strategies.qlearning import QLearner
+
+    return isinstance(x, QLearner)
 
 
 def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: int = 1,
-                   available_memory: int | None = None) -> Lineup:
-    """Resolve learners against a market, checking the state space fits in memory first.
+                   available_memory: int | None = None, agreement: str = "joint",
+                   seat_prefix: str | None = None) -> Lineup:
+    """Resolve a line-up of learners (and automata) against a market, checking that the state space
+    fits in memory before anything is allocated.
 
     Parameters
     ----------
     market : sim.Market
         A single-product market with 2 to 4 firms.
-    learners : QLearner or sequence of QLearner, optional
-        One learner for every seat (default ``QLearner()``, the published baseline), or one per seat.
+    learners : QLearner or sequence, optional
+        One learner for every seat (default ``QLearner()``, the published baseline), or one strategy
+        per seat: a :class:`~strategies.qlearning.QLearner` or an automaton from :mod:`strategies`
+        (grim trigger, tit for tat, ...), at least one of them a learner. Automata seated with
+        learners must be deterministic (no probability strictly between 0 and 1): the limit path and
+        the impulse response are then exact.
     prefix : str
-        Key path of the learners' parameters in error messages.
+        Key path of the learners' parameters in error messages (a single learner for every seat).
     workers : int
         Sessions held in memory at once (for the memory check).
     available_memory : int, optional
         Bytes that may be used (default: what the operating system reports as available).
+    agreement : str
+        Collusive outcome the automata's levels refer to (see :func:`sim.stage_game`).
+    seat_prefix : str, optional
+        With one strategy per seat, the key path of seat ``i`` is ``seat_prefix[i+1]`` (default
+        ``"strategies"``, as in an experiment file's ``[[strategies]]``).
 
     Returns
     -------
@@ -201,6 +277,7 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     """
     from strategies.qlearning import QLearner
 
+    from . import _learnkernel as LK
     from .equilibrium import stage_game
     from .market import MarketSpec
 
@@ -212,24 +289,44 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
         raise InputError("market.n_firms", f"learning needs 2 to 4 firms, got {n}")
     if learners is None:
         learners = QLearner()
-    if isinstance(learners, QLearner):
+    if _is_learner(learners):
         seats = [learners] * n
         keys = [prefix] * n
     else:
+        if isinstance(learners, str | dict) or not hasattr(learners, "__len__"):
+            raise InputError(prefix, f"must be a QLearner or one strategy per firm, got {learners!r}")
         seats = list(learners)
+        sp = "strategies" if seat_prefix is None else seat_prefix
         if len(seats) != n:
-            raise InputError(prefix, f"the line-up has {len(seats)} learners for {n} firms")
-        keys = [f"{prefix}[{i + 1}]" if prefix else f"[{i + 1}]" for i in range(n)]
-        for i, s in enumerate(seats):
-            if not isinstance(s, QLearner):
-                raise InputError(keys[i], f"must be a QLearner, got {type(s).__name__}")
-    specs = [s.spec(prefix=k) for s, k in zip(seats, keys)]
-    radix = [int(p["m"]) for p in specs]
-    ks = [int(p["k"]) for p in specs]
-    _check_memory(radix, ks, max(1, int(workers)), prefix, available_memory)
+            raise InputError(sp, f"the line-up has {len(seats)} seats but the market has {n} firms")
+        keys = [f"{sp}[{i + 1}]" if sp else f"[{i + 1}]" for i in range(n)]
+    is_l = [_is_learner(x) for x in seats]
+    if not any(is_l):
+        raise InputError("strategies" if seat_prefix is None else seat_prefix,
+                         "the line-up has no learner; use `supergame simulate` for automata only")
+    specs = {i: seats[i].spec(prefix=keys[i]) for i in range(n) if is_l[i]}
 
-    compiled = tuple(s.compile(ms, i, k) for i, (s, k) in enumerate(zip(seats, keys)))
-    grids = tuple(c.grid for c in compiled)
+    # automata first: their action sets enter the state space
+    automata = None
+    auto_values: dict[int, np.ndarray] = {}
+    act_of_level = np.zeros((n, 1), dtype=np.int64)
+    zn = np.ones(n, dtype=np.int64)
+    z0 = np.zeros(n, dtype=np.int64)
+    if not all(is_l):
+        from strategies import _step as SS
+
+        automata, auto_values, act_of_level = _compile_automata(ms, seats, is_l, keys, agreement)
+        for i in range(n):
+            if not is_l[i]:
+                zn[i] = int(automata.firms[i, SS.N_STATES])
+                z0[i] = int(automata.firms[i, SS.INITIAL])
+    radix = [int(specs[i]["m"]) if is_l[i] else int(auto_values[i].size) for i in range(n)]
+    ks = [int(specs[i]["k"]) for i in range(n) if is_l[i]]
+    z_states = int(np.prod(zn))
+    _check_memory(radix, ks, max(1, int(workers)), prefix, available_memory, z_states)
+
+    compiled = tuple(seats[i].compile(ms, i, keys[i]) if is_l[i] else None for i in range(n))
+    grids = tuple(compiled[i].grid if is_l[i] else auto_values[i] for i in range(n))
     radix_a = np.array(radix, dtype=np.int64)
     place = np.ones(n, dtype=np.int64)
     for i in range(1, n):
@@ -237,7 +334,16 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     M = int(np.prod(radix_a))
     K = max(ks)
     S = M**K
-    mod = np.array([M**k for k in ks], dtype=np.int64)
+    mod = np.array([M ** compiled[i].k if is_l[i] else 1 for i in range(n)], dtype=np.int64)
+    kind = np.array([LK.LEARNER if x else LK.AUTOMATON for x in is_l], dtype=np.int64)
+    lidx = np.cumsum(is_l, dtype=np.int64) - 1
+    lidx[~np.array(is_l)] = 0
+    zplace = np.zeros(n, dtype=np.int64)
+    acc = 1
+    for i in range(n):
+        if not is_l[i]:
+            zplace[i] = acc
+            acc *= int(zn[i])
 
     # every profile's actions: seat 0 varies fastest, matching place
     idx = (np.arange(M, dtype=np.int64)[:, None] // place) % radix_a
@@ -245,38 +351,116 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     _q, p, pi = ms.evaluate(actions)
     if not np.all(np.isfinite(pi)):
         raise InputError(prefix, "a profit on the action grid is not finite")
+    values = np.zeros((n, int(radix_a.max())))
+    for i in range(n):
+        values[i, : radix[i]] = grids[i]
+    mprice = np.zeros(M)
+    if automata is not None:
+        from ._stagecore import evaluate_py, market_arrays
 
-    st = stage_game(ms)
-    delta = np.array([c.delta for c in compiled])
-    q0 = np.zeros((n, int(mod.max()), int(radix_a.max())))
+        arrays = market_arrays(ms)
+        for j in range(M):
+            mprice[j] = evaluate_py(arrays, actions[j], 1.0, False)[3]
+        a_states, a_probs = automata.states, automata.probs
+        a_firms, a_levels = automata.firms, automata.levels
+    else:
+        a_states = np.zeros((n, 1, 9), dtype=np.int64)
+        a_probs = np.zeros((n, 1, 4))
+        a_firms = np.zeros((n, 5), dtype=np.int64)
+        a_firms[:, 0] = 1
+        a_levels = np.zeros((n, 1, n))
+
+    st = stage_game(ms, agreement)
+    alpha = np.array([c.alpha if c else 0.0 for c in compiled])
+    beta = np.array([c.beta if c else 0.0 for c in compiled])
+    delta = np.array([c.delta if c else 0.0 for c in compiled])
+    n_l = int(sum(is_l))
+    q0 = np.zeros((n_l, int(mod.max()), int(max(radix[i] for i in range(n) if is_l[i]))))
     for i, c in enumerate(compiled):
+        if c is None:
+            continue
+        li = int(lidx[i])
         n_states = int(mod[i])
         m = int(radix_a[i])
         if isinstance(c.init, str):
             if c.init == "uniform":
-                # E[profit | own action a, rivals uniform], discounted (Calvano et al., 2020, eq. 8)
+                # E[profit | own action a, rivals uniform over their actions], discounted
+                # (Calvano et al., 2020, eq. 8)
                 table = pi[:, i].reshape(tuple(radix[::-1]))
                 axes = tuple(j for j in range(n) if j != n - 1 - i)
                 row = table.mean(axis=axes) / (1.0 - c.delta)
-                q0[i, :n_states, :m] = row[None, :]
+                q0[li, :n_states, :m] = row[None, :]
         else:
             init = c.init
             if init.ndim == 1:
-                q0[i, :n_states, :m] = init[None, :]
+                q0[li, :n_states, :m] = init[None, :]
             elif init.shape == (n_states, m):
-                q0[i, :n_states, :m] = init
+                q0[li, :n_states, :m] = init
             else:
                 raise InputError(f"{keys[i]}.init", f"must have shape ({n_states}, {m}) or ({m},) for this line-up, "
                                                    f"got {init.shape}")
+    names = tuple("qlearning" if is_l[i] else getattr(seats[i], "name", type(seats[i]).__name__) for i in range(n))
     return Lineup(
-        market=ms, learners=compiled, grids=grids, radix=radix_a, place=place, M=M, K=K, S=S, mod=mod,
-        alpha=np.array([c.alpha for c in compiled]), beta=np.array([c.beta for c in compiled]), delta=delta,
+        market=ms, learners=compiled, names=names, grids=grids, kind=kind, lidx=lidx, radix=radix_a, place=place,
+        M=M, K=K, S=S, mod=mod, alpha=alpha, beta=beta, delta=delta,
         payoff=np.ascontiguousarray(pi, dtype=float), actions=np.ascontiguousarray(actions, dtype=float),
-        prices=np.ascontiguousarray(p, dtype=float), q0=q0,
+        prices=np.ascontiguousarray(p, dtype=float), mprice=mprice, q0=q0, automata=automata,
+        a_states=a_states, a_probs=a_probs, a_firms=a_firms, a_levels=a_levels, act_of_level=act_of_level,
+        values=values, zn=zn, zplace=zplace, z0=z0,
         nash_profits=np.asarray(st.nash.profits, float), collusive_profits=np.asarray(st.collusive.profits, float),
         nash_actions=np.asarray(st.nash.actions, float), collusive_actions=np.asarray(st.collusive.actions, float),
         nash_prices=np.asarray(st.nash.prices, float), collusive_prices=np.asarray(st.collusive.prices, float),
     )
+
+
+def _compile_automata(ms, seats, is_l, keys, agreement):
+    """Compile the automaton seats with the engine's compiler (learner seats get a placeholder that is
+    never played) and read off each automaton's action values.
+
+    Returns ``(compiled, values, act_of_level)``: ``values[i]`` the distinct actions of automaton seat
+    ``i`` (increasing), ``act_of_level[i, l]`` the index of level ``l``'s action among them.
+    """
+    from strategies import AlwaysCompete, Automaton
+    from strategies import _step as SS
+    from strategies import compile_lineup as compile_automata
+
+    from .engine import stage_levels
+
+    n = len(seats)
+    for i in range(n):
+        if not is_l[i] and not isinstance(seats[i], Automaton):
+            raise InputError(keys[i], f"must be a QLearner or an automaton strategy, got {seats[i]!r}")
+    _st, levels = stage_levels(ms, agreement)
+    placeholder = [AlwaysCompete() if is_l[i] else seats[i] for i in range(n)]
+    prefix = keys[0].rsplit("[", 1)[0] if "[" in keys[0] else "strategies"
+    cl = compile_automata(placeholder, levels, prefix)
+    L = cl.levels.shape[1]
+    act_of_level = np.zeros((n, L), dtype=np.int64)
+    values = {}
+    for i in range(n):
+        if is_l[i]:
+            continue
+        ns = int(cl.firms[i, SS.N_STATES])
+        p = cl.probs[i, :ns, SS.P_ALT_GOOD:]
+        random = (p > 0) & (p < 1)
+        if np.any(random):
+            s_bad = int(np.flatnonzero(random.any(axis=1))[0])
+            raise InputError(keys[i], f"state {cl.state_names[i][s_bad]!r} of {cl.names[i]} acts at random "
+                                      f"(probability {float(p[s_bad][random[s_bad]][0]):g}); automata seated with "
+                                      "learners must be deterministic so that the limit path and the impulse "
+                                      "response are exact")
+        # the actions the automaton can play: its states' levels, and its cheating level if it cheats
+        used = np.zeros(L, dtype=bool)
+        used[cl.states[i, :ns, SS.ACTION]] = True
+        if np.any(cl.probs[i, :ns, SS.P_CHEAT] > 0):
+            used[cl.firms[i, SS.CHEAT_LEVEL]] = True
+        own = cl.levels[i, :, i]
+        distinct = np.unique(own[used])
+        values[i] = distinct
+        for lev in range(L):
+            if used[lev]:
+                act_of_level[i, lev] = int(np.flatnonzero(distinct == own[lev])[0])
+    return cl, values, act_of_level
 
 
 # ------------------------------------------------------------------------------------------------
@@ -462,7 +646,9 @@ class LearningResult:
         lu = self.lineup
         out = {
             "settings": dict(self.settings),
-            "learners": [c.to_dict() for c in lu.learners],
+            "learners": [c.to_dict() if c is not None else {"strategy": lu.names[i], "actions": lu.grids[i].tolist()}
+                         for i, c in enumerate(lu.learners)],
+            "seats": list(lu.names),
             "summary": self.summary(),
             "elapsed_seconds": self.elapsed,
         }
@@ -577,6 +763,13 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     return _run_sessions(lineup, settings, dev_index, progress)
 
 
+def _deviator_discount(lineup: Lineup, seat: int) -> float:
+    """The deviator's discount factor; an automaton deviator is valued with the first learner's."""
+    if lineup.learners[seat] is not None:
+        return float(lineup.delta[seat])
+    return float(lineup.delta[lineup.learner_seats[0]])
+
+
 def _deviation_index(lineup: Lineup, seat: int, deviation) -> int:
     if isinstance(deviation, str):
         if deviation != "best_response":
@@ -609,21 +802,22 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
     info = np.zeros((n, 8))
     g0 = lineup.initial_greedy()
     seat = settings["deviator"]
-    d_dev = float(lineup.delta[seat])
+    d_dev = _deviator_discount(lineup, seat)
     lu = lineup
+    extra = lu.kernel_args()
 
     def one(j: int) -> int:
         rng = states[j].copy()
         Q = lu.q0.copy()
         greedy = g0.copy()
+        z = lu.z0.copy()
         s = K._initial_state(rng, lu.radix, lu.place, lu.M, lu.K)
-        st, t, s = K._learn(lu.radix, lu.place, lu.S, lu.K, lu.mod, lu.alpha, lu.beta, lu.delta, lu.payoff, Q,
-                            greedy, rng, s, settings["convergence"], settings["max_periods"])
+        st, t, s = K._learn(lu.kind, lu.lidx, lu.radix, lu.place, lu.S, lu.K, lu.mod, lu.alpha, lu.beta, lu.delta,
+                            lu.payoff, Q, greedy, rng, s, settings["convergence"], settings["max_periods"], z, *extra)
         status[j] = st
         periods[j] = t
-        K._analyse(s, greedy, lu.radix, lu.mod, lu.place, lu.M, lu.S, lu.K, lu.payoff, lu.actions, lu.prices,
-                   seat, dev_index, d_dev, IR_POINTS, cyc[j], lim_a[j], lim_p[j], lim_pi[j], ir_p[j], ir_pi[j],
-                   cf_p[j], cf_pi[j], info[j])
+        K._analyse(lu.system_state(s, z), lu.game(greedy, t), lu.actions, lu.prices, seat, dev_index, d_dev,
+                   IR_POINTS, cyc[j], lim_a[j], lim_p[j], lim_pi[j], ir_p[j], ir_pi[j], cf_p[j], cf_pi[j], info[j])
         return j
 
     show = sys.stderr.isatty() if progress is None else bool(progress)
@@ -701,10 +895,12 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
     rng = stream_states(seed, (cell,), session, session + 1)[0].copy()
     Q = lineup.q0.copy()
     greedy = lineup.initial_greedy()
-    s = K._initial_state(rng, lineup.radix, lineup.place, lineup.M, lineup.K)
-    st, t, s = K._learn(lineup.radix, lineup.place, lineup.S, lineup.K, lineup.mod, lineup.alpha, lineup.beta,
-                        lineup.delta, lineup.payoff, Q, greedy, rng, s, convergence, max_periods)
-    return {"status": int(st), "periods": int(t), "state": int(s), "Q": Q, "greedy": greedy}
+    z = lineup.z0.copy()
+    lu = lineup
+    s = K._initial_state(rng, lu.radix, lu.place, lu.M, lu.K)
+    st, t, s = K._learn(lu.kind, lu.lidx, lu.radix, lu.place, lu.S, lu.K, lu.mod, lu.alpha, lu.beta, lu.delta,
+                        lu.payoff, Q, greedy, rng, s, convergence, max_periods, z, *lu.kernel_args())
+    return {"status": int(st), "periods": int(t), "state": int(s), "Q": Q, "greedy": greedy, "z": z}
 
 
 def benchmark(market=None, learners=None, *, sessions: int = 4, reference_periods: int = 100_000,

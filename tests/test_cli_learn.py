@@ -165,3 +165,45 @@ def test_the_shipped_baseline_file_is_valid(capsys):
     doc = json.loads(capsys.readouterr().out)
     assert doc["learners"][0]["alpha"] == 0.15 and doc["learners"][0]["beta"] == 4e-6
     assert doc["summary"]["converged"]["count"] == 0
+
+
+VERSUS = SMALL.replace("[run]", """[[strategies]]
+strategy = "qlearning"
+alpha = 0.2
+
+[[strategies]]
+strategy = "tit_for_tat"
+
+[run]""")
+
+
+def test_a_learner_against_an_automaton_from_a_file(tmp_path, capsys):
+    p = tmp_path / "versus.toml"
+    p.write_text(VERSUS)
+    assert main(["learn", str(p), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["seats"] == ["qlearning", "tit_for_tat"]
+    assert doc["learners"][0]["alpha"] == 0.2 and doc["learners"][0]["m"] == 5  # entry over [learning]
+    assert doc["learners"][1]["strategy"] == "tit_for_tat" and len(doc["learners"][1]["actions"]) == 2
+    assert main(["learn", str(p)]) == 0
+    assert "Firm 2: tit_for_tat (automaton" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize(
+    ("old", "new", "key"),
+    [
+        ('strategy = "tit_for_tat"', 'strategy = "tit_for_two_tats"', "strategies[2].strategy"),
+        ('strategy = "tit_for_tat"', 'strategy = "forgiving_tit_for_tat"\nforgiveness = 0.5', "strategies[2]"),
+        ('strategy = "tit_for_tat"', 'strategy = "tit_for_tat"\nseats = 2', "strategies"),
+        ('strategy = "qlearning"\nalpha = 0.2', 'strategy = "grim_trigger"', "strategies"),
+        ("alpha = 0.2", "alpha = 3.0", "strategies[1].alpha"),
+        ("alpha = 0.2", "gamma = 0.2", "strategies[1].gamma"),
+    ],
+)
+def test_bad_line_ups_name_the_entry(tmp_path, capsys, old, new, key):
+    p = tmp_path / "bad.toml"
+    p.write_text(VERSUS.replace(old, new))
+    assert main(["learn", str(p)]) == 2
+    cap = capsys.readouterr()
+    assert cap.out == "" and "\n" not in cap.err.strip()
+    assert cap.err.startswith(f"supergame learn: error: {key}:")

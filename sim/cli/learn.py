@@ -14,7 +14,8 @@ DESCRIPTION = (
     "market until their greedy strategies stop changing, then report what they converged to: limit prices "
     "and cycles, the profit gain (profit - Nash) / (collusive - Nash), and the impulse response to a "
     "one-period deviation. Settings come from the [market], [learning], [impulse] and [run] tables of FILE, "
-    "from flags, or both (flags win)."
+    "from flags, or both (flags win). A [[strategies]] list seats learners (strategy = 'qlearning') against "
+    "automata of `supergame simulate` (grim_trigger, tit_for_tat, ...)."
 )
 
 # key -> (flag, parser kind); kinds: num, int, nums, str
@@ -152,11 +153,14 @@ def build(args, doc: dict) -> dict:
     if_ = _apply_flags(args, it, _IMPULSE_KEYS)
     rf = _apply_flags(args, rt, _RUN_KEYS)
 
-    learner = QLearner(**{k: lt[k] for k in _LEARNER_PARAMS if k in lt})
+    base = {k: lt[k] for k in _LEARNER_PARAMS if k in lt}
+    learner = QLearner(**base)
     try:
         learner.spec(prefix="learning")
     except InputError as exc:
         raise _rename(exc, "learning", _LEARNING_KEYS, lf) from None
+    if "strategies" in doc:
+        learner = _lineup(doc["strategies"], base, market.spec().n_firms)
 
     def check(tab, name, keys, flagged, key, constraint, default):
         value = tab.get(key, default)
@@ -192,6 +196,48 @@ def build(args, doc: dict) -> dict:
         action = Real(0, None).check(key, action)
     settings["deviation"] = action
     return {"market": market, "learner": learner, "settings": settings, "flags": lf}
+
+
+def _lineup(entries, base: dict, n_firms: int) -> list:
+    """One strategy per firm from ``[[strategies]]``: ``strategy = "qlearning"`` entries take the
+    [learning] parameters, overridden by their own; any other name is an automaton of the engine's
+    registry (see ``supergame simulate``)."""
+    import numbers
+
+    from strategies import strategy_from_dict
+    from strategies.qlearning import QLearner
+
+    if not isinstance(entries, list) or not entries:
+        raise InputError("strategies", "must be a non-empty list of [[strategies]] entries")
+    out = []
+    for k, t in enumerate(entries):
+        key = f"strategies[{k + 1}]"
+        if not isinstance(t, dict):
+            raise InputError(key, f"must be a table with a 'strategy' key, got {t!r}")
+        seats = t.get("seats", 1)
+        if isinstance(seats, bool) or not isinstance(seats, numbers.Integral) or not 1 <= seats <= 4:
+            raise InputError(f"{key}.seats", f"must be an integer in [1, 4], got {seats!r}")
+        if t.get("strategy") == QLearner.name:
+            params = dict(base)
+            for name, v in t.items():
+                if name in ("strategy", "seats"):
+                    continue
+                if name not in _LEARNER_PARAMS:
+                    raise InputError(f"{key}.{name}", f"unknown parameter of qlearning; allowed: "
+                                                      f"{', '.join(_LEARNER_PARAMS)}")
+                params[name] = v
+            strat = QLearner(**params)
+            strat.spec(prefix=key)
+        else:
+            strat = strategy_from_dict(t, key)
+        out.extend(strat.clone() for _ in range(int(seats)))
+    if len(out) != n_firms:
+        raise InputError("strategies", f"the line-up has {len(out)} seats but the market has {n_firms} firms; give "
+                                       "one strategy per firm (use seats to repeat one)")
+    if not any(isinstance(x, QLearner) for x in out):
+        raise InputError("strategies", "the line-up has no learner (strategy = 'qlearning'); use `supergame "
+                                       "simulate` for automata only")
+    return out
 
 
 def run(args) -> int:
@@ -278,11 +324,16 @@ def render(result, market, written=()) -> str:
     act = "quantity" if ms.quantity_setting else "price"
     firms = [f"firm {i + 1}" for i in range(n)]
     lines = [f"Market: {_describe_market(market)}"]
-    same = all(_same_learner(x, lu.learners[0]) for x in lu.learners)
+    seated = [c for c in lu.learners if c is not None]
+    same = len(seated) == n and all(_same_learner(x, seated[0]) for x in seated)
     for i, c in enumerate(lu.learners):
+        if c is None:
+            levels = ", ".join(fmt_num(v) for v in lu.grids[i])
+            lines.append(f"Firm {i + 1}: {lu.names[i]} (automaton; {act}s {levels})")
+            continue
         if i > 0 and same:
             continue
-        who = "Learners" if same else f"Learner of firm {i + 1}"
+        who = "Learners" if same else f"Firm {i + 1}"
         init = c.init if isinstance(c.init, str) else "given array"
         lines.append(f"{who}: Q-learning, alpha {fmt_num(c.alpha)}, beta {c.beta:g}, delta {fmt_num(c.delta)}, "
                      f"{c.m} {act} levels from {fmt_num(c.grid[0])} to {fmt_num(c.grid[-1])}, memory {c.k}, "
@@ -296,7 +347,8 @@ def render(result, market, written=()) -> str:
     lines.append(f"Converged: {c['count']} of {c['n']} sessions ({_pct(c['share'])}, 95 % CI "
                  f"{_pct(c['low'])} to {_pct(c['high'])})")
     if per["n"]:
-        lines.append(f"Periods to convergence: mean {per['mean']:.4g} {_ci(per, 4)}, median {per['q50']:.4g}, "
+        ci = f"[{per['low']:.4g}, {per['high']:.4g}]" if per["n"] > 1 else "-"
+        lines.append(f"Periods to convergence: mean {per['mean']:.4g} {ci}, median {per['q50']:.4g}, "
                      f"5-95 % {per['q05']:.4g} to {per['q95']:.4g}")
     lines.append("")
     bm = sm["benchmarks"]
