@@ -162,11 +162,14 @@ def _as_monitoring(monitoring) -> Monitoring:
     return monitoring
 
 
-def compile_game(stage, levels: StageLevels, lineup, monitoring=None, prefix: str = "strategies") -> Game:
+def compile_game(stage, levels: StageLevels, lineup, monitoring=None, prefix: str = "strategies",
+                 strict: bool = True) -> Game:
     """Compile a line-up for a market whose stage game is already solved (see :func:`stage_levels`).
 
-    Checks that the line-up has one strategy per firm, that strategies watching conduct are not
-    combined with price-only monitoring, and that perception errors have something to act on.
+    Checks that the line-up has one strategy per firm and that strategies watching conduct are not
+    combined with price-only monitoring. With ``strict`` (the default, used by :func:`simulate`) a
+    perception error is refused when no strategy watches conduct (it would have no effect); callers
+    that play many line-ups under one monitoring setting (tournaments) pass ``strict=False``.
     """
     ms = stage.market
     strategies = _as_lineup(lineup, ms.n_firms, prefix)
@@ -178,7 +181,7 @@ def compile_game(stage, levels: StageLevels, lineup, monitoring=None, prefix: st
                 raise InputError(f"{prefix}[{i + 1}].strategy",
                                  f"{compiled.names[i]!r} watches the rivals' actions, which firms cannot see with "
                                  f"monitoring.signal = 'price'; use signal = 'perfect' or a price-watching strategy")
-    if mon["perception_error"] > 0 and not compiled.watches_conduct:
+    if strict and mon["perception_error"] > 0 and not compiled.watches_conduct:
         raise InputError("monitoring.perception_error",
                          f"no strategy in the line-up watches the rivals' conduct, so a perception error of "
                          f"{mon['perception_error']:g} would have no effect; set it to 0")
@@ -186,11 +189,12 @@ def compile_game(stage, levels: StageLevels, lineup, monitoring=None, prefix: st
     return Game(ms, market_arrays(ms), compiled, mon, stage, levels, tremble)
 
 
-def prepare_game(market, lineup, monitoring=None, agreement: str = "joint", actions=None) -> Game:
+def prepare_game(market, lineup, monitoring=None, agreement: str = "joint", actions=None,
+                 strict: bool = True) -> Game:
     """Solve the stage game and compile the line-up (validated; raises InputError)."""
     ms = market if isinstance(market, MarketSpec) else market.spec()
     st, levels = stage_levels(ms, agreement, actions)
-    return compile_game(st, levels, lineup, monitoring)
+    return compile_game(st, levels, lineup, monitoring, strict=strict)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -447,3 +451,58 @@ def _check_threads(threads, key: str = "threads"):
     import numba
 
     return Integer(1, int(numba.config.NUMBA_NUM_THREADS)).check(key, threads)
+
+
+# --------------------------------------------------------------------------------------------------
+# Experiment tables
+# --------------------------------------------------------------------------------------------------
+
+SIMULATE_TABLES = ("experiment", "market", "collusion", "monitoring", "strategies", "run")
+_EXPERIMENT_KEYS = ("name", "kind", "description")
+_COLLUSION_KEYS = ("agreement", "actions")
+RUN_DEFAULTS = {"periods": 1000, "replications": 1000, "horizon": "fixed", "continuation": 0.99, "delta": 0.95,
+                "seed": 0, "paths": 0}
+
+
+def _only(table, name: str, allowed) -> dict:
+    if not isinstance(table, dict):
+        raise InputError(name, f"must be a table, got {table!r}")
+    for k in table:
+        if k not in allowed:
+            raise InputError(f"{name}.{k}", f"unknown key; allowed: {', '.join(allowed)}")
+    return table
+
+
+def simulation_from_dict(doc: dict, check_tables: bool = True) -> dict:
+    """Read the tables of a ``kind = "simulate"`` experiment (see the schema in the README).
+
+    Returns a dict with ``market`` (Market), ``agreement``, ``actions``, ``monitoring`` (Monitoring),
+    ``strategies`` (the raw ``[[strategies]]`` entries) and ``run`` (settings with defaults filled in).
+    Unknown tables and keys raise :class:`InputError` naming them; values are validated by
+    :func:`simulate` (or :func:`prepare_game` and :func:`check_run`).
+    """
+    from .market import market_from_dict
+
+    if not isinstance(doc, dict):
+        raise InputError("", "an experiment must be a table")
+    if check_tables:
+        for k in doc:
+            if k not in SIMULATE_TABLES:
+                raise InputError(k, f"unknown table for a simulation; allowed: {', '.join(SIMULATE_TABLES)}")
+    exp = _only(doc.get("experiment", {}), "experiment", _EXPERIMENT_KEYS)
+    if "kind" in exp and exp["kind"] != "simulate":
+        raise InputError("experiment.kind", f"this command runs kind = 'simulate' experiments, got {exp['kind']!r}")
+    if "market" not in doc:
+        raise InputError("market", "missing: the [market] table describes the market")
+    market = market_from_dict(doc["market"])
+    coll = _only(doc.get("collusion", {}), "collusion", _COLLUSION_KEYS)
+    mon = monitoring_from_dict(doc.get("monitoring", {}))
+    run = dict(RUN_DEFAULTS)
+    run.update(_only(doc.get("run", {}), "run", tuple(RUN_DEFAULTS)))
+    if "strategies" not in doc:
+        raise InputError("strategies", "missing: give the line-up as [[strategies]] entries")
+    strategies = doc["strategies"]
+    if not isinstance(strategies, list):
+        raise InputError("strategies", "must be an array of tables ([[strategies]] entries)")
+    return {"market": market, "agreement": coll.get("agreement", "joint"), "actions": coll.get("actions"),
+            "monitoring": mon, "strategies": strategies, "run": run}

@@ -20,6 +20,8 @@ from ..errors import InputError, SolverError
 COMMANDS = {
     "thresholds": "sim.cli.thresholds",
     "learn": "sim.cli.learn",
+    "simulate": "sim.cli.simulate",
+    "bench": "sim.cli.bench",
 }
 
 
