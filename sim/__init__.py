@@ -27,6 +27,11 @@ _EXPORTS = {
         "TriggerPriceScheme", "price_war_statistics", "trigger_price_equilibrium", "trigger_price_scheme",
     ],
     "learning": ["LearningResult", "Lineup", "compile_lineup", "learn"],
+    "engine": ["Game", "RawRun", "compile_game", "prepare_game", "run_game", "simulate", "simulation_from_dict",
+               "stage_levels"],
+    "monitoring": ["Monitoring", "monitoring_from_dict"],
+    "metrics": ["Estimate", "SimulationResult", "Survival", "kaplan_meier", "mean_estimate", "ratio_estimate"],
+    "baseline": ["analytic_baseline", "first_breakdown_distribution", "trigger_price_chain"],
 }
 _WHERE = {name: mod for mod, names in _EXPORTS.items() for name in names}
 __all__ = sorted(_WHERE)
