@@ -41,6 +41,7 @@ LINEUPS = {
                          [QLearner(m=3, alpha=0.3, beta=2e-3), QLearner(m=5, k=2, delta=0.5, init="zeros")]),
     "three-firms": (logit_market(n=3, quality=[2.0, 2.1, 1.9]), QLearner(m=3, beta=1e-3)),
     "cournot": (sim.Market(sim.LinearDemand(intercept=10, slope=1), cost=[1.0, 2.0]), QLearner(m=6, beta=1e-3)),
+    "four-firms": (logit_market(n=4, quality=[2.0, 2.0, 2.2, 1.8]), QLearner(m=3, beta=1e-3)),
 }
 
 
@@ -59,7 +60,7 @@ def test_kernel_and_reference_have_the_same_q_matrix_after_n_periods(name):
         assert not np.array_equal(k["Q"], lu.q0)
 
 
-@pytest.mark.parametrize("name", ["memory-2", "unequal-learners", "three-firms", "cournot"])
+@pytest.mark.parametrize("name", ["memory-2", "unequal-learners", "three-firms", "cournot", "four-firms"])
 def test_kernel_and_reference_stop_at_the_same_period_and_agree_on_the_limit_analysis(name):
     market, learners = LINEUPS[name]
     lu = compile_lineup(market, learners)
