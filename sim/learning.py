@@ -496,7 +496,9 @@ def _share_ci(k: int, n: int, level: float = 0.95) -> dict:
     den = 1 + z * z / n
     mid = (p + z * z / (2 * n)) / den
     h = z * math.sqrt(p * (1 - p) / n + z * z / (4 * n * n)) / den
-    return {"share": p, "low": max(0.0, mid - h), "high": min(1.0, mid + h), "count": int(k), "n": int(n)}
+    low = 0.0 if k == 0 else max(0.0, mid - h)  # the exact bounds at the ends, free of round-off
+    high = 1.0 if k == n else min(1.0, mid + h)
+    return {"share": p, "low": low, "high": high, "count": int(k), "n": int(n)}
 
 
 def _quantiles(x) -> dict:

@@ -226,6 +226,10 @@ def test_wilson_interval_of_zero_successes():
     ci = _share_ci(0, 40)
     assert ci["low"] == 0.0
     assert ci["high"] == pytest.approx(1.959963984540054**2 / (40 + 1.959963984540054**2), rel=1e-12)
+    # and symmetrically for n successes in n
+    ci = _share_ci(40, 40)
+    assert ci["high"] == 1.0
+    assert ci["low"] == pytest.approx(40 / (40 + 1.959963984540054**2), rel=1e-12)
 
 
 # ---- the published experiments (slow: they run in CI, about a minute on two cores) -----------------
