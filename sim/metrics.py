@@ -126,8 +126,10 @@ class Survival:
         ``1 .. m``.
     survival : ndarray of shape (m,)
         ``S(l)``: estimated probability that the length exceeds ``l``.
+    se : ndarray of shape (m,)
+        Pointwise standard error of ``S(l)`` (Greenwood's formula).
     low, high : ndarray of shape (m,)
-        Pointwise confidence band (Greenwood), clipped to [0, 1].
+        Pointwise confidence band ``S +- z se``, clipped to [0, 1].
     at_risk, ended, censored : int ndarray of shape (m,)
     mean : Estimate
         Area under the curve (restricted mean).
@@ -135,6 +137,7 @@ class Survival:
 
     lengths: np.ndarray
     survival: np.ndarray
+    se: np.ndarray
     low: np.ndarray
     high: np.ndarray
     at_risk: np.ndarray
@@ -172,7 +175,7 @@ def kaplan_meier(ended, censored, confidence: float = 0.95, restrict: int | None
     if nz.size == 0:
         nan = Estimate(math.nan, math.nan, math.nan, math.nan, 0, "kaplan-meier", "no observation")
         e = np.zeros(0, dtype=np.int64)
-        return Survival(e, np.zeros(0), np.zeros(0), np.zeros(0), e, e, e, nan)
+        return Survival(e, np.zeros(0), np.zeros(0), np.zeros(0), np.zeros(0), e, e, e, nan)
     m = int(nz[-1]) + 1 if restrict is None else int(restrict)
     d = d[1:m + 1]
     c = c[1:m + 1]
@@ -200,7 +203,7 @@ def kaplan_meier(ended, censored, confidence: float = 0.95, restrict: int | None
     note = "at least (the longest observation was cut off by the horizon)" if S[-1] > 0 else ""
     lo_m, hi_m = _interval(mean, se, z)
     est = Estimate(mean, se, lo_m, hi_m, total, "kaplan-meier", note)
-    return Survival(np.arange(1, m + 1), S, lo, hi, at_risk.astype(np.int64), d, c, est)
+    return Survival(np.arange(1, m + 1), S, se_S, lo, hi, at_risk.astype(np.int64), d, c, est)
 
 
 # --------------------------------------------------------------------------------------------------
