@@ -162,8 +162,17 @@ def _br_single(ms: MarketSpec, i: int, A: np.ndarray) -> tuple[np.ndarray, np.nd
     else:  # differentiated Bertrand: piecewise-quadratic profit with kinks where rivals exit
         x = np.empty(A.shape[0])
         v = np.empty(A.shape[0])
+        own = np.array([i])
         for r, row in enumerate(A):
-            x[r], v[r] = _br_diff_bertrand(ms, i, row)
+            # fast path: the exact optimum on a consistent active set, certified on a coarse grid
+            cand = _diff_bertrand_active_set(ms, own, row)
+            firm = ms.owner[i]
+            if cand is not None and _coordinate_check(ms, firm, own, cand, lambda P, f=firm: ms.firm_profits(
+                    np.atleast_2d(P))[:, f]):
+                x[r] = cand[i]
+                v[r] = float(ms.profits(cand[None, :])[0, i])
+            else:
+                x[r], v[r] = _br_diff_bertrand(ms, i, row)
     return x, v
 
 
@@ -240,24 +249,27 @@ def _br_diff_bertrand_multi(ms: MarketSpec, i: int, own: np.ndarray, row: np.nda
     on S (recomputing demand at the candidate) until it is consistent, and certify the result against
     a coordinate search; only if that fails is the coordinate search (each own price in turn, grid
     and Brent) used as the answer."""
-    d = ms.demand
-    n = ms.n_products
 
     def firm_profit(P):
         return ms.firm_profits(np.atleast_2d(P))[:, i]
 
-    S = np.ones(n, bool)
-    cand = None
-    for _ in range(2 * n + 2):
-        trial = _diff_bertrand_firm_candidate(ms, own, row, S)
-        S_new = direct_demand(d, trial[None, :])[0] > 0
-        if np.array_equal(S_new, S):
-            cand = trial
-            break
-        S = S_new
+    cand = _diff_bertrand_active_set(ms, own, row)
     if cand is not None and _coordinate_check(ms, i, own, cand, firm_profit):
         return cand
     return _bounded_search(ms, own, row if cand is None else cand, firm_profit)
+
+
+def _diff_bertrand_active_set(ms, own, row):
+    """Iterate the stationary prices of products ``own`` over active sets until the set is
+    consistent with the demand it produces; None if it does not settle."""
+    S = np.ones(ms.n_products, bool)
+    for _ in range(2 * ms.n_products + 2):
+        trial = _diff_bertrand_firm_candidate(ms, own, row, S)
+        S_new = direct_demand(ms.demand, trial[None, :])[0] > 0
+        if np.array_equal(S_new, S):
+            return trial
+        S = S_new
+    return None
 
 
 def _diff_bertrand_firm_candidate(ms, own, row, S):

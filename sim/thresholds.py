@@ -279,7 +279,7 @@ def _sc_parts(ms: MarketSpec, xs: np.ndarray, pi_c: np.ndarray, pi_d: np.ndarray
     return d1, d2, P, pi_p, pi_dp
 
 
-def stick_and_carrot(market, stage: StageGame | None = None, n_grid: int = 161) -> StickCarrot:
+def stick_and_carrot(market, stage: StageGame | None = None, n_grid: int | None = None) -> StickCarrot:
     """The optimal symmetric two-phase punishment and its critical discount factor.
 
     Parameters
@@ -287,8 +287,9 @@ def stick_and_carrot(market, stage: StageGame | None = None, n_grid: int = 161) 
     market : Market or MarketSpec
     stage : StageGame, optional
         The stage game (solved with the joint-profit agreement if omitted).
-    n_grid : int
-        Points of the coarse search over punishment levels before local refinement.
+    n_grid : int, optional
+        Points of the coarse search over punishment levels before local refinement (default 161 for
+        symmetric markets, where one best response serves every firm, and 65 otherwise).
 
     Notes
     -----
@@ -301,6 +302,8 @@ def stick_and_carrot(market, stage: StageGame | None = None, n_grid: int = 161) 
     ms = market if isinstance(market, MarketSpec) else market.spec()
     st = stage if stage is not None else stage_game(ms)
     pi_c, pi_d = st.collusive.firm_profits, st.deviation_profits
+    if n_grid is None:
+        n_grid = 161 if ms.symmetric else 65
     _lo, hi = ms.action_bounds()
     x_lo = 0.0
     x_hi = float(hi.max())

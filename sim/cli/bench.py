@@ -241,6 +241,7 @@ def matches_benchmark(opts: BenchOptions) -> dict:
 BENCHMARKS: dict = {
     "engine": (engine_benchmark, "simulation kernel vs plain-Python reference, threads, memory"),
     "matches": (matches_benchmark, "many small duopoly matches through the lower-level engine entry"),
+    "theory": ("sim._bench_theory:theory_benchmark", "every threshold of 10-firm asymmetric markets"),
     "learning": ("sim.learning:bench_section", "Q-learning kernel vs plain-Python reference; 1,000 baseline sessions"),
 }
 
