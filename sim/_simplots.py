@@ -98,7 +98,7 @@ def simulation_figures(res, directory) -> list[Path]:
         ax.fill_between(sv.lengths, sv.low, sv.high, step="post", color="C0", alpha=0.2, label=f"{conf} band")
         tp = res.baseline.get("trigger_price") if res.baseline else None
         if tp is not None and tp["war_probability"] > 0:
-            ax.plot(sv.lengths, (1.0 - tp["war_probability"]) ** sv.lengths, color="C1", ls="--",
+            ax.step(sv.lengths, (1.0 - tp["war_probability"]) ** sv.lengths, where="post", color="C1", ls="--",
                     label="geometric (Green and Porter, 1984)")
     ax.set_ylim(-0.02, 1.02)
     ax.set_xlabel("spell length (periods)")

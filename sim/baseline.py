@@ -211,8 +211,9 @@ def _thresholds(game, run: dict) -> list:
             per = finite_threshold(c, d, nsh, T)
             name, src = f"Nash reversion, T={T}", "T-period Nash reversion"
         else:
-            sc = lv._cache.get("stick_carrot") if hasattr(lv, "_cache") else None
-            sc = sc if sc is not None else stick_and_carrot(game.market, st)
+            sc = lv.cache.get("stick_carrot")
+            if sc is None:
+                sc = lv.cache["stick_carrot"] = stick_and_carrot(game.market, st)
             per = np.asarray(sc.per_firm, dtype=float)
             name, src = "stick and carrot", "Abreu (1986)"
         per = np.atleast_1d(np.asarray(per, dtype=float))

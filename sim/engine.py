@@ -89,7 +89,7 @@ def stage_levels(market, agreement: str = "joint", actions=None) -> tuple:
         if prof.size == 0 or not np.all(np.isfinite(prof)):
             raise InputError(key, "the stick-and-carrot punishment does not exist in this market (no punishment "
                                   "level brings the critical discount factor below one)")
-        levels._cache["stick_carrot"] = sc
+        levels.cache["stick_carrot"] = sc
         return prof
 
     levels = StageLevels(
@@ -102,7 +102,6 @@ def stage_levels(market, agreement: str = "joint", actions=None) -> tuple:
         },
         lazy={"punishment": punishment},
     )
-    levels._cache = {}
     return st, levels
 
 

@@ -16,7 +16,9 @@ Estimators and intervals (``confidence`` level, 95 % by default; normal approxim
   (delta-method) standard error across replications, ``sqrt(sum_r (x_r - R y_r)^2 / (n (n - 1))) / mean(y)``
   (Cochran, 1977, "Sampling Techniques", section 6.4).
 * Lengths of spells and wars, and the time to first breakdown, are cut off by the horizon, so they
-  are estimated as survival data: Kaplan-Meier survival curves (Kaplan and Meier, 1958) with
+  are estimated as survival data (a spell still running after ``l`` periods at the horizon is known
+  to outlive ``l - 1`` periods and is censored there; a replication without breakdown in ``H``
+  periods is censored at ``H``): Kaplan-Meier survival curves (Kaplan and Meier, 1958) with
   Greenwood's pointwise variance, and the mean as the area under the curve (restricted to the longest
   observation; a lower bound when the longest observation is cut off) with its Greenwood-type
   standard error (Klein and Moeschberger, 2003, "Survival Analysis", section 4.5). For the time to
@@ -325,8 +327,10 @@ def summarize(raw, game, run: dict, confidence: float = 0.95, baseline: bool = T
     metrics["war_share"] = ratio_estimate(ints[:, K.R_WAR_PERIODS], periods, confidence)
     metrics["wars_per_replication"] = mean_estimate(ints[:, K.R_WARS], confidence)
     metrics["war_frequency"] = ratio_estimate(ints[:, K.R_WARS], periods, confidence)
-    spells = kaplan_meier(raw.hist[K.H_SPELL_ENDED], raw.hist[K.H_SPELL_CENSORED], confidence)
-    wars = kaplan_meier(raw.hist[K.H_WAR_ENDED], raw.hist[K.H_WAR_CENSORED], confidence)
+    # a spell or war cut off by the horizon after l periods is known to last at least l periods, i.e.
+    # to outlive l - 1: it is censored at l - 1 (counting it at risk at l would bias the curve upward)
+    spells = kaplan_meier(raw.hist[K.H_SPELL_ENDED], _cut_off(raw.hist[K.H_SPELL_CENSORED]), confidence)
+    wars = kaplan_meier(raw.hist[K.H_WAR_ENDED], _cut_off(raw.hist[K.H_WAR_CENSORED]), confidence)
     fb = ints[:, K.R_FIRST_BREAKDOWN]
     ended = np.bincount(fb[fb > 0], minlength=run["periods"] + 1)[: run["periods"] + 1]
     cens = np.bincount(ints[fb == 0, K.R_PERIODS], minlength=run["periods"] + 1)[: run["periods"] + 1]
@@ -373,6 +377,13 @@ def summarize(raw, game, run: dict, confidence: float = 0.95, baseline: bool = T
 
         res.baseline = analytic_baseline(game, run)
     return res
+
+
+def _cut_off(hist: np.ndarray) -> np.ndarray:
+    """Lengths of runs cut off by the horizon -> censoring times (one period less, see summarize)."""
+    out = np.zeros_like(hist)
+    out[:-1] = hist[1:]
+    return out
 
 
 def _nan_est(method: str) -> Estimate:

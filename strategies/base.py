@@ -384,6 +384,8 @@ class StageLevels:
         ``collusive``, ``nash`` and ``deviation`` per-period profits per firm.
     lazy : dict of str to callable
         Computes a missing profile (or raises InputError when it does not exist).
+    cache : dict
+        Side results of the lazy computations (e.g. the stick-and-carrot solution), for reuse.
     """
 
     profiles: dict
@@ -393,6 +395,7 @@ class StageLevels:
     capacity: np.ndarray
     firm_profits: dict
     lazy: dict = field(default_factory=dict)
+    cache: dict = field(default_factory=dict)
 
     @property
     def n_products(self) -> int:

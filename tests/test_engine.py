@@ -164,6 +164,18 @@ def test_trigger_price_war_share_and_spell_length(T):
     assert abs(fb.value - (1.0 + 1.0 / beta)) < 3 * fb.se  # first war period = first spell + 1
 
 
+def test_spell_length_unbiased_when_the_horizon_cuts_spells():
+    """Many short replications (100 periods x 20,000), so that about one spell in twenty is cut off by
+    the horizon: the Kaplan-Meier mean stays within 3 standard errors of Green and Porter's 1 / beta
+    (a spell still running after l periods is censored at l - 1, see sim.metrics)."""
+    mon = Monitoring(signal="price", noise="lognormal", sigma=0.1)
+    res = simulate(TRIOPOLY, [S.TriggerPrice(trigger=50.0, length=2)] * 3, mon, periods=100, replications=20_000,
+                   delta=0.95, seed=1)
+    e = res.metrics["spell_length"]
+    assert abs(e.value - res.baseline["trigger_price"]["expected_collusive_spell"]) < 3 * e.se
+    assert res.metrics["war_length"].value == pytest.approx(2.0, abs=1e-12) and not res.metrics["war_length"].note
+
+
 @pytest.mark.slow
 def test_trigger_price_large_run_matches_green_porter():
     """The same check on a large run (1,000 periods x 4,000 replications, war length 2), tolerance 3

@@ -255,13 +255,13 @@ def _ci(e) -> str:
 
 def render(res, cfg) -> str:
     from .._text import CAUTION, fmt_num, table
-    from .thresholds import _describe_market
+    from .thresholds import _AGREEMENT_NAMES, _describe_market
 
     s = res.settings
     run = s["run"]
     mon = s["monitoring"]
     lines = [f"Market: {_describe_market(cfg['market'])}",
-             f"Agreement: {s['agreement']}"]
+             f"Agreement: {_AGREEMENT_NAMES.get(s['agreement'], s['agreement'])}"]
     seats = []
     for i, st in enumerate(s["lineup"]):
         params = ", ".join(f"{k} {v}" for k, v in st.items() if k != "strategy" and k != "states")
