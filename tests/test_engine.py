@@ -121,7 +121,7 @@ def test_one_shot_cheat_gains_exactly_below_the_grim_threshold(t0):
     pi_c, pi_d, pi_n = 675.0, 900.0, 506.25  # a = 100, c = 10, n = 3: q_C = 15, q_D = 30, q_N = 22.5
     thr = float(grim_threshold(pi_c, pi_d, pi_n))
     assert thr == pytest.approx(4.0 / 7.0, rel=1e-14)
-    for delta in (0.3, 0.5, thr - 0.01, thr + 0.01, 0.7, 0.95):
+    for delta in (0.3, 0.5, thr - 0.01, thr - 1e-6, thr + 1e-6, thr + 0.01, 0.7, 0.95):
         cheat = simulate(TRIOPOLY, [S.GrimTrigger(), S.GrimTrigger(), S.Opportunist(probability=1.0, start=t0)],
                          periods=H, replications=1, delta=delta, baseline=False)
         honest = simulate(TRIOPOLY, [S.GrimTrigger()] * 3, periods=H, replications=1, delta=delta, baseline=False)
