@@ -1,0 +1,53 @@
+"""``supergame check``: validate experiment files (every sweep cell) without running anything."""
+
+from __future__ import annotations
+
+import argparse
+
+from ._common import emit
+
+HELP = "validate experiment files, every sweep cell included, without running them"
+DESCRIPTION = (
+    "Read each experiment file, check every table, key and value against its kind's schema, expand the sweep and "
+    "validate every cell, and print what a run would do. Nothing is computed and nothing is written. An error is "
+    "one line naming the key path, the allowed values and what was given (exit status 2). --plugin loads Python "
+    "code (strategies or experiment kinds) the files use: it runs that code."
+)
+
+
+def configure(p: argparse.ArgumentParser) -> None:
+    p.add_argument("files", nargs="+", metavar="FILE", help="experiment files (TOML)")
+    p.add_argument("--plugin", action="append", metavar="FILE", default=[],
+                   help="Python file registering strategies or kinds (runs its code; repeatable)")
+    p.add_argument("--json", action="store_true", help="print one JSON object per file")
+
+
+def describe(exp) -> str:
+    parts = [f"{exp.source}: valid {exp.kind} experiment {exp.name!r}"]
+    if exp.parameters:
+        sweep = ", ".join(f"{p.path} ({len(p)} value{'s' if len(p) != 1 else ''})" for p in exp.parameters)
+        parts.append(f"{exp.n_cells} cells ({exp.mode}: {sweep})")
+    else:
+        parts.append("1 cell (no sweep)")
+    if exp.metric_names:
+        parts.append(f"{len(exp.metric_names)} metrics per cell")
+    if exp.report.figures:
+        parts.append(f"{len(exp.report.figures)} figure{'s' if len(exp.report.figures) != 1 else ''}")
+    return "; ".join(parts)
+
+
+def run(args) -> int:
+    from .._jsonutil import dumps
+    from ..config import load_experiment
+    from ..kinds import load_plugins
+
+    load_plugins(args.plugin)
+    for f in args.files:
+        exp = load_experiment(f)
+        if args.json:
+            emit(dumps({"file": f, "valid": True, "name": exp.name, "kind": exp.kind, "cells": exp.n_cells,
+                        "parameters": [{"path": p.path, "values": list(p.values)} for p in exp.parameters],
+                        "metrics": list(exp.metric_names), "sha256": exp.sha256}))
+        else:
+            emit(describe(exp))
+    return 0

@@ -1,0 +1,84 @@
+"""``supergame run``: run an experiment file of any kind into a run folder (store, exports, manifest)."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from ..errors import InputError
+from ._common import emit, parse_number
+
+HELP = "run an experiment file (any kind, sweeps included) into a run folder; resumable"
+DESCRIPTION = (
+    "Validate the experiment file and every cell of its sweep, then run the cells on local worker processes (one "
+    "per core by default) or on a Dask cluster, storing each finished cell in the run folder's SQLite store. The "
+    "folder (default runs/<name>-<time>) gets the results as CSV (and Parquet with pyarrow), a copy of the "
+    "experiment file and a manifest of hashes; --report adds the evidence bundle. A killed run is finished with "
+    "--resume RUN_DIR, which computes only the missing cells. Results do not depend on the number of workers or "
+    "the backend. --plugin loads Python code (strategies or experiment kinds): it runs that code."
+)
+
+
+def configure(p: argparse.ArgumentParser) -> None:
+    p.add_argument("file", nargs="?", metavar="FILE", help="experiment file (TOML); optional with --resume")
+    p.add_argument("--out", metavar="DIR", help="run folder to create (default runs/<name>-<time>)")
+    p.add_argument("--workers", metavar="N", help="worker processes (default: one per usable core)")
+    p.add_argument("--cluster", metavar="ADDRESS",
+                   help="run the cells on Dask: 'local' for a local cluster, or a scheduler address (tcp://host:8786)")
+    p.add_argument("--resume", metavar="RUN_DIR", help="finish an interrupted run: compute only the missing cells")
+    p.add_argument("--retry-failed", action="store_true", help="with --resume, compute the failed cells again")
+    p.add_argument("--report", action="store_true", help="write the evidence bundle (RUN_DIR/report) at the end")
+    p.add_argument("--plugin", action="append", metavar="FILE", default=[],
+                   help="Python file registering strategies or kinds (runs its code; repeatable)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument("--json", action="store_true", help="print the run summary as one JSON object")
+
+
+def run(args) -> int:
+    from .._jsonutil import dumps
+    from ..config import load_experiment
+    from ..kinds import load_plugins
+    from ..runs import _default_folder, run_experiment
+
+    if not args.file and not args.resume:
+        raise InputError("FILE", "give an experiment file, or --resume RUN_DIR to finish a run")
+    workers = parse_number("workers", args.workers, integer=True) if args.workers is not None else None
+    if workers is not None and not 1 <= workers <= 4096:
+        raise InputError("--workers", f"must be an integer in [1, 4096], got {workers}")
+    plugins = load_plugins(args.plugin)
+    exp = load_experiment(args.file) if args.file else None
+    out = args.out
+    if args.resume is None and out is None:
+        out = str(_default_folder(__import__("pathlib").Path("runs"), exp.name))
+    folder = args.resume or out
+    try:
+        s = run_experiment(exp, out if args.resume is None else None, workers=workers, cluster=args.cluster,
+                           resume=args.resume, retry_failed=args.retry_failed, report=args.report, plugins=plugins,
+                           progress=False if args.quiet else None, command=["supergame", *sys.argv[1:]]
+                           if sys.argv and sys.argv[0].endswith(("supergame", "__main__.py")) else
+                           ["supergame", "run", *([args.file] if args.file else [])])
+    except KeyboardInterrupt:
+        how = f"supergame run {args.file + ' ' if args.file else ''}--resume {folder}"
+        print(f"supergame run: interrupted; finished cells are stored in {folder}; finish with: {how}",
+              file=sys.stderr)
+        return 130
+    if args.json:
+        emit(dumps(s.to_dict(), indent=2))
+        return 0
+    lines = [f"Run folder: {s.folder}",
+             f"Cells: {s.ok + s.failed} of {s.n_cells} done ({s.failed} failed); {s.ran} computed now in "
+             f"{s.seconds:.1f} s on {s.backend}"]
+    if s.failed_cells:
+        lines.append("Failed cells:")
+        lines += [f"  cell {c}: {e}" for c, e in s.failed_cells[:20]]
+        if len(s.failed_cells) > 20:
+            lines.append(f"  ... and {len(s.failed_cells) - 20} more (see results.csv)")
+    if s.complete:
+        lines.append("Files: " + ", ".join(f for f in s.files if not f.startswith("report/")))
+        if s.report is not None:
+            lines.append(f"Evidence bundle: {s.report}/summary.html (and summary.md, figures/, tables/, "
+                         "manifest.json)")
+    else:
+        lines.append(f"Incomplete: finish with supergame run --resume {s.folder}")
+    emit("\n".join(lines))
+    return 0

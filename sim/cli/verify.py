@@ -1,0 +1,51 @@
+"""``supergame verify``: check a run folder's hashes and re-run a sample of its cells."""
+
+from __future__ import annotations
+
+import argparse
+
+from ..errors import InputError
+from ._common import emit, parse_number
+
+HELP = "check a run folder: file hashes against the manifest, and re-run a sample of cells"
+DESCRIPTION = (
+    "Check that every file of a run folder still has the SHA-256 its manifest records (and that no file was added), "
+    "then re-run a sample of cells from the folder's copy of the experiment file and compare every metric with the "
+    "stored one. Exit status 0 when everything checks out, 1 when a file was altered or a number does not "
+    "reproduce. --plugin loads Python code the experiment needs: it runs that code."
+)
+
+
+def configure(p: argparse.ArgumentParser) -> None:
+    p.add_argument("run_dir", metavar="RUN_DIR", help="a run folder made by supergame run")
+    p.add_argument("--sample", metavar="N", help="cells to re-run, spread over the run (default 3; 0: hashes only)")
+    p.add_argument("--cells", metavar="LIST", help="re-run these cells instead (comma-separated numbers)")
+    p.add_argument("--tolerance", metavar="R", help="relative tolerance of the comparison (default 1e-9)")
+    p.add_argument("--plugin", action="append", metavar="FILE", default=[],
+                   help="Python file registering strategies or kinds (runs its code; repeatable)")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
+
+
+def run(args) -> int:
+    from .._jsonutil import dumps
+    from ..kinds import load_plugins
+    from ..runs import verify_run
+
+    load_plugins(args.plugin)
+    sample = parse_number("sample", args.sample, integer=True) if args.sample is not None else 3
+    if sample < 0:
+        raise InputError("--sample", f"must be an integer >= 0, got {sample}")
+    cells = None
+    if args.cells:
+        cells = [parse_number("cells", t.strip(), integer=True) for t in args.cells.split(",")]
+    rtol = parse_number("tolerance", args.tolerance) if args.tolerance is not None else 1e-9
+    if not 0 <= rtol < 1:
+        raise InputError("--tolerance", f"must be a number in [0, 1), got {rtol:g}")
+    res = verify_run(args.run_dir, sample=sample, cells=cells, rtol=rtol)
+    if args.json:
+        emit(dumps(res.to_dict(), indent=2))
+    else:
+        lines = [("ok      " if ok else "FAILED  ") + text for ok, text in res.checks]
+        lines.append(f"verify: {'the run checks out' if res.ok else 'the run does NOT check out'}")
+        emit("\n".join(lines))
+    return 0 if res.ok else 1

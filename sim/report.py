@@ -1,0 +1,338 @@
+"""The evidence bundle of a run folder (``supergame report RUN_DIR``, ``supergame run --report``).
+
+Reads the store of a finished run and writes, with :class:`sim.bundle.Bundle`, into ``RUN_DIR/report``:
+a summary (what the experiment asks, its setup, the sweep, figures, the results table, the analytic
+baseline, failed cells, how to reproduce every number, the model's assumptions and limitations, the
+caution), the figures (PNG and PDF), the tables (CSV and LaTeX), a copy of the experiment file and a
+manifest. Nothing is recomputed: every number comes from the stored cells, so the report of a run is
+the same whenever it is written.
+
+Figures are those of ``[[report.figures]]``; without them, a default set: a heatmap of each headline
+metric over the first two numeric swept parameters (with the kind's analytic threshold curve) and line
+plots against the swept discount factor or the first numeric parameter (with confidence bands and the
+analytic prediction), one panel or line per value of the other swept parameters.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import shutil
+from pathlib import Path
+
+from .errors import InputError
+
+__all__ = ["write_report"]
+
+
+def _ci(row, m) -> str:
+    from ._text import fmt_num
+
+    lo, hi = row.metrics.get(f"{m}.low", math.nan), row.metrics.get(f"{m}.high", math.nan)
+    if math.isnan(lo) or math.isnan(hi):
+        return "-"
+    return f"[{fmt_num(lo)}, {fmt_num(hi)}]"
+
+
+def _headline(exp, kind) -> list[str]:
+    names = set(exp.metric_names)
+    if exp.report.metrics:
+        return list(exp.report.metrics)
+    out = [m for m in kind.headline if m in names]
+    for extra in ("deviation.gain", "deviation.pays"):
+        if extra in names and extra not in out:
+            out.append(extra)
+    return out
+
+
+def default_figures(exp, kind, data) -> list:
+    """The figures drawn when the experiment names none (see the module notes)."""
+    from .config import FigureSpec
+
+    multi = [p for p in exp.parameters if len(p) > 1]
+    numeric = [p for p in multi if p.numeric]
+    heads = [m for m in _headline(exp, kind) if data.has(m)]
+    out = []
+    if len(numeric) >= 2:
+        x, y = numeric[0], numeric[1]
+        if y.path in kind.threshold and x.path not in kind.threshold:
+            x, y = y, x
+        rest = [p for p in multi if p.path not in (x.path, y.path)]
+        if len(rest) <= 1 and (not rest or len(rest[0]) <= 12):
+            facet = rest[0].path if rest else None
+            for m in heads[:3]:
+                thr = kind.threshold.get(x.path)
+                out.append(FigureSpec("heatmap", x.path, m, y=y.path, threshold=thr if thr and data.has(thr) else None,
+                                      facet=facet))
+    if numeric:
+        x = next((p for p in numeric if p.path in kind.threshold), numeric[0])
+        rest = [p for p in multi if p.path != x.path]
+        if len(rest) <= 2:
+            group = rest[0].path if rest else None
+            facet = rest[1].path if len(rest) > 1 else None
+            if facet is not None and len(exp.parameter(facet)) > 12:
+                return out
+            for m in heads[:3]:
+                an = kind.analytic.get(m)
+                out.append(FigureSpec("line", x.path, m, analytic=an if an and data.has(an) else None, group=group,
+                                      facet=facet))
+    return out
+
+
+def _caption(spec) -> str:
+    if spec.type == "heatmap":
+        c = f"{spec.metric} in each cell of the sweep over {spec.x} (horizontal) and {spec.y} (vertical)"
+        if spec.facet:
+            c += f", one panel per value of {spec.facet}"
+        if spec.threshold:
+            c += f"; dashed: the analytic critical value of {spec.x} ({spec.threshold})"
+        if spec.level is not None:
+            c += f"; solid: where the simulated {spec.metric} crosses {spec.level:g}"
+        return c + "; numbers are the cell values."
+    c = f"{spec.metric} against {spec.x}"
+    if spec.group:
+        c += f", one line per value of {spec.group}"
+    if spec.facet:
+        c += f", one panel per value of {spec.facet}"
+    c += "; band: 95 % confidence interval across replications where the cells report one"
+    if spec.analytic:
+        c += f"; dashed: the analytic prediction ({spec.analytic})"
+    return c + "."
+
+
+def _draw(spec, data):
+    from . import figures
+
+    if spec.type == "heatmap":
+        return figures.heatmap(data, spec.x, spec.y, spec.metric, threshold=spec.threshold, level=spec.level,
+                               facet=spec.facet, title=spec.title)
+    return figures.lines(data, spec.x, spec.metric, analytic=spec.analytic, group=spec.group, facet=spec.facet,
+                         title=spec.title)
+
+
+def _single_cell_figures(b, exp, row) -> None:
+    """Figures of a run without a sweep, from the cell's stored arrays."""
+    import numpy as np
+
+    from .figures import _plt
+
+    a = row.arrays
+    if "period" in a and "collusive_by_period" in a:
+        plt = _plt()
+        fig, ax = plt.subplots(figsize=(7, 3.8))
+        ax.plot(a["period"], a["collusive_by_period"], lw=1.4, label="simulated")
+        if "analytic.collusive_by_period" in a:
+            ax.plot(a["period"], a["analytic.collusive_by_period"], ls="--", color="black", lw=1.2, label="analytic")
+        ax.set_xlabel("period")
+        ax.set_ylabel("share of replications colluding")
+        ax.set_ylim(-0.02, 1.02)
+        ax.grid(alpha=0.3)
+        ax.legend(fontsize=8)
+        fig.tight_layout()
+        b.figure("collusive-share-by-period", fig, "Share of the replications still running in which every firm "
+                                                   "colludes, period by period; dashed: the analytic prediction "
+                                                   "where one exists.")
+    if "impulse.prices" in a:
+        plt = _plt()
+        P = np.asarray(a["impulse.prices"], dtype=float)
+        fig, ax = plt.subplots(figsize=(7, 3.8))
+        for i in range(P.shape[1]):
+            ax.plot(np.arange(P.shape[0]), P[:, i], marker="o", ms=3, label=f"firm {i + 1}")
+        ax.axvline(1, color="black", lw=0.5)
+        ax.set_xlabel("period (0: before the deviation, 1: deviation)")
+        ax.set_ylabel("action (price or quantity)")
+        ax.grid(alpha=0.3)
+        ax.legend(fontsize=8)
+        fig.tight_layout()
+        b.figure("impulse-response", fig, "Impulse response: mean actions after one firm is forced to deviate for one "
+                                          "period, over converged sessions.")
+
+
+def _clear(target: Path) -> None:
+    if not target.exists():
+        return
+    if not target.is_dir():
+        raise InputError("--out", f"{target} exists and is not a folder")
+    man = target / "manifest.json"
+    if any(target.iterdir()):
+        try:
+            fmt = json.loads(man.read_text(encoding="utf-8")).get("format", "")
+        except (OSError, ValueError):
+            fmt = ""
+        if not fmt.startswith("supergame-bundle"):
+            raise InputError("--out", f"{target} exists and does not hold an evidence bundle; choose another folder")
+    shutil.rmtree(target)
+
+
+def write_report(folder, out=None) -> Path:
+    """Write the evidence bundle of a finished run folder (default ``RUN_DIR/report``); return its path."""
+    from ._text import fmt_num
+    from .bundle import Bundle
+    from .config import leading_comment
+    from .figures import SweepData
+    from .runs import (
+        ARRAYS_FILE,
+        CSV_FILE,
+        EXPERIMENT_COPY,
+        PARQUET_FILE,
+        REPORT_DIR,
+        RunFolder,
+        _iso,
+        sha256_file,
+    )
+    from .store import STORE_FILE
+
+    folder = Path(folder)
+    with RunFolder(folder) as rf:
+        exp = rf.experiment
+        kind = exp.kind_spec()
+        rows = rf.rows()
+        header, body = rf.table()
+        counts = rf.counts()
+        attempts = rf.store.attempts()
+        meta = rf.meta
+    if counts["missing"]:
+        raise InputError("RUN_DIR", f"{folder} is not finished: {counts['missing']} of {counts['total']} cells have no "
+                                    f"result yet; finish it with supergame run --resume {folder}")
+    target = Path(out) if out is not None else folder / REPORT_DIR
+    _clear(target)
+    title = exp.report.title or f"{exp.name}: {kind.summary}"
+    b = Bundle(target, title)
+    desc = exp.description or leading_comment(exp.text or "")
+    b.paragraph(f"Experiment `{exp.name}` (kind `{exp.kind}`), run folder `{folder.name}`; {counts['total']} cell"
+                f"{'s' if counts['total'] != 1 else ''}, {counts['ok']} finished, {counts['failed']} failed.")
+    if desc:
+        b.heading("What the experiment asks")
+        for para in desc.split("\n\n"):
+            b.paragraph(" ".join(para.split()))
+    b.heading("Setup")
+    b.bullets(kind.describe(exp.doc) if kind.describe else [f"Kind: {exp.kind}"])
+    data = SweepData(list(exp.parameters), rows)
+    heads = _headline(exp, kind)
+    if exp.parameters:
+        b.heading("Sweep")
+        prow = [[p.path, ", ".join(p.labels), len(p)] for p in exp.parameters]
+        b.table("sweep", ["parameter", "values", "number"], prow, caption="Swept parameters")
+        groups = [" + ".join(g) for g in exp.groups if len(g) > 1]
+        how = "Every combination of the values (grid)" if exp.mode == "grid" else "Values taken together (zip)"
+        b.paragraph(how
+                    + (f"; varying together: {'; '.join(groups)}" if groups and exp.mode == "grid" else "")
+                    + f"; {exp.n_cells} cells. Each cell is one complete {exp.kind} run with the other settings of "
+                      "the file.")
+
+    b.heading("Results")
+    specs = list(exp.report.figures) or default_figures(exp, kind, data)
+    from .config import figure_name
+
+    for i, spec in enumerate(specs):
+        if not data.has(spec.metric):
+            b.paragraph(f"Figure of {spec.metric} not drawn: no finished cell reports it.", note=True)
+            continue
+        b.figure(figure_name(spec, i), _draw(spec, data), _caption(spec))
+    if not exp.parameters and rows and rows[0].status == "ok":
+        _single_cell_figures(b, exp, rows[0])
+
+    if exp.parameters:
+        hdr = ["cell", *[p.path for p in exp.parameters]]
+        disp_rows, csv_rows = [], []
+        csv_hdr = list(hdr)
+        for m in heads:
+            hdr.append(m)
+            csv_hdr.append(m)
+            if any(f"{m}.low" in r.metrics for r in rows):
+                hdr.append(f"{m} 95% CI")
+                csv_hdr += [f"{m}.low", f"{m}.high"]
+        for r in rows:
+            labels = [r.labels[p.path] if not p.numeric else r.params[p.path] for p in exp.parameters]
+            d, c = [r.cell, *labels], [r.cell, *labels]
+            for m in heads:
+                d.append(r.metrics.get(m, math.nan))
+                c.append(r.metrics.get(m, math.nan))
+                if any(f"{m}.low" in q.metrics for q in rows):
+                    d.append(_ci(r, m))
+                    c += [r.metrics.get(f"{m}.low", math.nan), r.metrics.get(f"{m}.high", math.nan)]
+            disp_rows.append(d)
+            csv_rows.append(c)
+        b.table("summary", hdr, disp_rows, caption="Headline results per cell", csv_rows=(csv_hdr, csv_rows),
+                note="95 % confidence intervals across replications (simulation error only)")
+    elif rows and rows[0].status == "ok":
+        r = rows[0]
+        names = [m for m in exp.metric_names if not m.endswith((".se", ".low", ".high")) and not
+                 m.startswith("analytic.")] or sorted(r.metrics)
+        mrows = []
+        for m in names:
+            an = kind.analytic.get(m)
+            mrows.append([m, r.metrics.get(m, math.nan), _ci(r, m),
+                          r.metrics.get(an, math.nan) if an else math.nan])
+        b.table("summary", ["metric", "value", "95% CI", "analytic"], mrows, caption="Results", max_rows=200)
+    b.table("results", header, body, show=False)
+    b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
+                f"(also `{CSV_FILE}` in the run folder).", note=True)
+
+    crit = sorted(m for m in exp.metric_names if m.startswith("analytic.critical_delta."))
+    ok_rows = [r for r in rows if r.status == "ok"]
+    if crit and ok_rows:
+        b.heading("Analytic baseline")
+        trows = []
+        varies = False
+        for m in crit:
+            vals = {round(r.metrics.get(m, math.nan), 12) for r in ok_rows if math.isfinite(r.metrics.get(m, math.nan))}
+            v = ok_rows[0].metrics.get(m, math.nan)
+            varies = varies or len(vals) > 1
+            trows.append([m.split(".", 2)[2].replace("_", " "), v if math.isfinite(v) else "not sustainable below one"])
+        b.table("analytic-baseline", ["scheme", "critical discount factor"], trows,
+                caption="Critical discount factors of the punishment schemes played (perfect monitoring, infinite "
+                        "horizon)",
+                note=("values of the first cell; they vary across cells (see the results table)" if varies else
+                      "the same in every cell"))
+
+    b.heading("Failed cells")
+    failed = [r for r in rows if r.status == "failed"]
+    if failed:
+        frows = [[r.cell, "; ".join(f"{p} = {lab}" for p, lab in r.labels.items()), r.error or ""] for r in failed]
+        b.table("failed", ["cell", "swept values", "error"], frows, caption=f"{len(failed)} cells failed")
+    else:
+        b.paragraph(f"None: all {counts['total']} cells finished without error.")
+
+    b.heading("Reproducing these numbers")
+    seed = meta.get("seed")
+    b.bullets([
+        f"Experiment file: `{EXPERIMENT_COPY}` (SHA-256 `{exp.sha256}`), copied into this bundle.",
+        ("Seeds: cell c draws its random numbers from numpy SeedSequence(seed, spawn_key=(c,)) with seed "
+         f"{seed} ({meta.get('seed_key')}) unless the sweep varies it; one independent stream per replication or "
+         "session. Results do not depend on the number of workers or the backend."
+         if meta.get("seed_key") else "No random numbers: the kind is deterministic."),
+        f"Command: `{' '.join(attempts[0].get('command') or []) if attempts else ''}`"
+        + (f" (and {len(attempts) - 1} resumption{'s' if len(attempts) > 2 else ''})" if len(attempts) > 1 else ""),
+        f"Started {_iso(attempts[0]['started']) if attempts else '-'}, finished "
+        f"{_iso(max(a['finished'] or 0 for a in attempts)) if attempts else '-'} (UTC); cell compute time "
+        f"{fmt_num(sum(r.seconds or 0.0 for r in rows), 1)} s in total.",
+        "Software versions and platform: `manifest.json`.",
+    ])
+    b.code(f"supergame run {EXPERIMENT_COPY}          # the same numbers, in a new run folder\n"
+           f"supergame verify {folder.name}           # check the hashes and re-run a sample of cells")
+
+    b.assumptions(list(kind.assumptions) + [
+        "Every number in this report is read from the stored results of the run (results.sqlite); nothing is "
+        "recomputed for the report.",
+    ])
+    b.attach(EXPERIMENT_COPY, (folder / EXPERIMENT_COPY).read_bytes())
+    data_files = {}
+    if target.resolve().parent == folder.resolve():
+        for rel in (STORE_FILE, CSV_FILE, PARQUET_FILE, ARRAYS_FILE):
+            if (folder / rel).is_file():
+                data_files[f"../{rel}"] = sha256_file(folder / rel)
+    b.write(manifest={
+        "experiment": {"file": EXPERIMENT_COPY, "sha256": exp.sha256, "name": exp.name, "kind": exp.kind,
+                       "source": meta.get("source")},
+        "command": attempts[0].get("command") if attempts else None,
+        "attempts": [{"started": _iso(a["started"]), "finished": _iso(a["finished"]), "outcome": a["outcome"],
+                      "command": a.get("command"), "backend": a.get("backend")} for a in attempts],
+        "started": _iso(attempts[0]["started"]) if attempts else None,
+        "finished": _iso(max(a["finished"] or 0 for a in attempts)) if attempts else None,
+        "seeds": {"experiment_seed": seed, "seed_key": meta.get("seed_key"),
+                  "cells": [[r.cell, r.seed] for r in rows] if len(rows) <= 10_000 else None},
+        "cells": {"total": counts["total"], "ok": counts["ok"], "failed": counts["failed"]},
+        "run_data": data_files,
+    })
+    return target

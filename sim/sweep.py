@@ -1,0 +1,343 @@
+"""Running the cells of an experiment: in this process, in local worker processes, or on a Dask cluster.
+
+Every backend runs the same function on the same payload (:func:`run_payload`: the cell's number,
+its complete document and the kind's name -- plain data, never code), and every result is written to
+the store by this process as it arrives, one committed row per cell. A cell's random streams depend
+only on the experiment seed and the cell's number, so the numbers do not depend on the backend, the
+number of workers or the order in which cells finish.
+
+Backends
+--------
+``workers = 1``
+    Cells run one after the other in this process.
+``workers = N > 1`` (default: one per usable core)
+    N local worker processes (:class:`concurrent.futures.ProcessPoolExecutor`), each cell on one
+    thread. On Linux, workers are forked when this process has no other thread running (so they start
+    with the package already imported); otherwise they are spawned.
+``cluster = "local"``
+    A local Dask cluster (``dask.distributed.LocalCluster``) with N single-threaded worker processes.
+``cluster = "tcp://host:8786"``
+    An existing Dask scheduler; Dask decides which worker runs which cell. Start one with
+    ``dask scheduler`` on one machine and ``dask worker tcp://host:8786 --nthreads 1`` on each machine
+    (same Python environment with supergame installed; plugin files are uploaded to the workers).
+
+A cell that raises is recorded as failed with its error (one line) and the others go on. A worker
+process that dies takes only its cell down: the pool is rebuilt and the cell is tried once more
+before it is recorded as failed.
+"""
+
+from __future__ import annotations
+
+import os
+import socket
+import sys
+import threading
+import time
+import traceback
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass
+
+from .errors import InputError
+
+__all__ = ["Backend", "execute", "run_payload", "usable_cores"]
+
+
+def usable_cores() -> int:
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
+
+
+# --------------------------------------------------------------------------------------------------
+# The work of one cell (runs in whatever process the backend chose)
+# --------------------------------------------------------------------------------------------------
+
+_WORKER_PLUGINS: set = set()
+
+
+def _ensure_plugins(plugins) -> None:
+    from .kinds import load_entry_points, load_plugin_file
+
+    load_entry_points()
+    for p in plugins or ():
+        key = p["sha256"]
+        if key in _WORKER_PLUGINS:
+            continue
+        if os.path.isfile(p["path"]):
+            load_plugin_file(p["path"])
+        elif p.get("module") not in sys.modules:
+            raise RuntimeError(f"plugin {p['path']} is not available on this worker")
+        _WORKER_PLUGINS.add(key)
+
+
+def run_payload(payload: dict) -> dict:
+    """Validate and run one cell; never raises for a failure of the cell itself.
+
+    ``payload``: ``kind``, ``index``, ``doc``, ``threads``, ``progress``, ``plugins``. Returns the
+    fields of a stored row: ``cell``, ``status``, ``metrics``, ``arrays``, ``error``, ``detail``,
+    ``started``, ``finished``, ``seconds`` (the kind's own compute), ``worker``.
+    """
+    from .kinds import CellContext, clean_arrays, clean_metrics, get_kind
+
+    started = time.time()
+    out = {"cell": payload["index"], "started": started, "worker": f"{socket.gethostname()}:{os.getpid()}",
+           "metrics": {}, "arrays": {}, "error": None, "detail": None, "seconds": None}
+    try:
+        _ensure_plugins(payload.get("plugins"))
+        kind = get_kind(payload["kind"])
+        cfg = kind.prepare(payload["doc"])
+        ctx = CellContext(index=int(payload["index"]), threads=int(payload.get("threads", 1)),
+                          progress=bool(payload.get("progress", False)))
+        t0 = time.perf_counter()
+        res = kind.run(cfg, ctx)
+        out["seconds"] = time.perf_counter() - t0
+        out["metrics"] = clean_metrics(res.metrics)
+        out["arrays"] = clean_arrays(res.arrays or {})
+        out["status"] = "ok"
+    except (KeyboardInterrupt, SystemExit):
+        raise
+    except BaseException as exc:  # a failing cell is recorded, the sweep goes on
+        msg = str(exc).strip().splitlines()[0] if str(exc).strip() else ""
+        out["status"] = "failed"
+        out["error"] = f"{type(exc).__name__}: {msg}" if msg else type(exc).__name__
+        out["detail"] = traceback.format_exc(limit=20)
+        out["metrics"], out["arrays"] = {}, {}
+    out["finished"] = time.time()
+    return out
+
+
+def _worker_init(threads: int, plugins) -> None:
+    """Initialiser of local worker processes: one numba thread per cell, plugins loaded."""
+    os.environ["NUMBA_NUM_THREADS"] = str(max(1, threads))
+    _ensure_plugins(plugins)
+
+
+# --------------------------------------------------------------------------------------------------
+# Backends
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass
+class Backend:
+    """How cells are run: ``kind`` is ``"serial"``, ``"processes"`` or ``"dask"``."""
+
+    kind: str
+    workers: int
+    address: str | None = None
+
+    def describe(self) -> str:
+        if self.kind == "serial":
+            return "this process"
+        if self.kind == "processes":
+            return f"{self.workers} local worker processes"
+        if self.address == "local":
+            return f"a local Dask cluster of {self.workers} workers"
+        return f"the Dask cluster at {self.address}"
+
+
+def choose_backend(workers: int | None, cluster: str | None, n_cells: int) -> Backend:
+    """Validated backend settings (``--workers``, ``--cluster``)."""
+    if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or not 1 <= workers <= 4096):
+        raise InputError("--workers", f"must be an integer in [1, 4096], got {workers!r}")
+    if cluster is not None:
+        if not isinstance(cluster, str) or not cluster.strip():
+            raise InputError("--cluster", f"must be 'local' or a scheduler address like tcp://host:8786, got "
+                                          f"{cluster!r}")
+        try:
+            import distributed  # noqa: F401
+        except ImportError:
+            raise InputError("--cluster", "needs Dask, which is not installed: pip install 'supergame[cluster]'") \
+                from None
+        return Backend("dask", workers or usable_cores(), cluster.strip())
+    w = workers or usable_cores()
+    if w == 1 or n_cells <= 1:
+        return Backend("serial", 1)
+    return Backend("processes", min(w, n_cells))
+
+
+def _numba_threads_started() -> bool:
+    mod = sys.modules.get("numba.np.ufunc.parallel")
+    return bool(getattr(mod, "_is_initialized", False)) if mod is not None else False
+
+
+def _mp_context():
+    import multiprocessing as mp
+
+    if sys.platform.startswith("linux") and threading.active_count() == 1 and not _numba_threads_started():
+        return mp.get_context("fork")
+    return mp.get_context("spawn")
+
+
+def _serial(payloads: Iterable[dict], on_result: Callable[[dict], None]) -> None:
+    for p in payloads:
+        on_result(run_payload(p))
+
+
+class _Feed:
+    """Payloads drawn lazily from an iterator, with cells to try again served first."""
+
+    def __init__(self, payloads: Iterable[dict]):
+        self.it = iter(payloads)
+        self.again: list[dict] = []
+
+    def next(self) -> dict | None:
+        if self.again:
+            return self.again.pop()
+        return next(self.it, None)
+
+    def push(self, p: dict) -> None:
+        self.again.append(p)
+
+
+def _died(i: int) -> dict:
+    now = time.time()
+    return {"cell": i, "status": "failed", "metrics": {}, "arrays": {}, "started": now, "finished": now,
+            "seconds": None, "worker": None, "detail": None,
+            "error": "WorkerDied: the worker process running this cell died"}
+
+
+def _processes(payloads: Iterable[dict], on_result, workers: int, plugins) -> None:
+    from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+    from concurrent.futures.process import BrokenProcessPool
+
+    feed = _Feed(payloads)
+    tries: dict[int, int] = {}
+    ctx = _mp_context()
+    exhausted = False
+    while not exhausted or feed.again:
+        pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_worker_init,
+                                   initargs=(1, plugins))
+        inflight: dict = {}
+        broken = False
+        try:
+            while True:
+                while len(inflight) < 2 * workers and not broken:
+                    p = feed.next()
+                    if p is None:
+                        exhausted = True
+                        break
+                    try:
+                        inflight[pool.submit(run_payload, p)] = p
+                    except BrokenProcessPool:
+                        feed.push(p)
+                        broken = True
+                if not inflight:
+                    break
+                done, _ = wait(list(inflight), return_when=FIRST_COMPLETED)
+                for fut in done:
+                    p = inflight.pop(fut)
+                    try:
+                        res = fut.result()
+                    except BrokenProcessPool:
+                        broken = True
+                        i = p["index"]
+                        tries[i] = tries.get(i, 0) + 1
+                        if tries[i] >= 2:
+                            on_result(_died(i))
+                        else:
+                            feed.push(p)
+                        continue
+                    on_result(res)
+                if broken:
+                    # the pool is unusable: requeue what was in flight and build a new one
+                    for fut, p in inflight.items():
+                        fut.cancel()
+                        feed.push(p)
+                    inflight.clear()
+                    exhausted = False
+                    break
+        finally:
+            pool.shutdown(wait=not broken, cancel_futures=True)
+        if not broken and exhausted:
+            break
+
+
+def _dask(payloads: Iterable[dict], on_result, backend: Backend, plugins) -> None:
+    import uuid
+
+    from distributed import Client, LocalCluster, as_completed
+
+    cluster = None
+    if backend.address == "local":
+        cluster = LocalCluster(n_workers=backend.workers, threads_per_worker=1, processes=True,
+                               dashboard_address=None, silence_logs=40)
+        client = Client(cluster)
+    else:
+        try:
+            client = Client(backend.address, timeout="20s")
+        except OSError as exc:
+            raise InputError("--cluster", f"cannot reach the Dask scheduler at {backend.address} ({exc})") from None
+    token = uuid.uuid4().hex[:8]
+    try:
+        for p in plugins or ():
+            client.upload_file(p["path"])
+        n_workers = max(1, len(client.scheduler_info().get("workers", {})) or backend.workers)
+        window = max(8, 4 * n_workers)
+        feed = _Feed(payloads)
+
+        def submit(p):
+            return client.submit(run_payload, p, key=f"supergame-cell-{p['index']}-{token}", pure=False)
+
+        first = []
+        while len(first) < window:
+            p = feed.next()
+            if p is None:
+                break
+            first.append(submit(p))
+        ac = as_completed(first)
+        for fut in ac:
+            on_result(fut.result())
+            fut.release()
+            p = feed.next()
+            if p is not None:
+                ac.add(submit(p))
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
+
+
+def execute(payloads: Iterable[dict], on_result: Callable[[dict], None], backend: Backend, plugins=()) -> None:
+    """Run the payloads (drawn lazily) on the backend, calling ``on_result`` in this process for every
+    finished cell, in the order in which cells finish."""
+    if backend.kind == "serial":
+        _serial(payloads, on_result)
+    elif backend.kind == "processes":
+        _processes(payloads, on_result, backend.workers, plugins)
+    else:
+        _dask(payloads, on_result, backend, plugins)
+
+
+# --------------------------------------------------------------------------------------------------
+# Progress
+# --------------------------------------------------------------------------------------------------
+
+
+class Progress:
+    """Cells done and time left on a terminal (tqdm); silent when stderr is not a terminal."""
+
+    def __init__(self, total: int, done: int, desc: str, enabled: bool | None = None):
+        if enabled is None:
+            enabled = sys.stderr.isatty()
+        self.bar = None
+        self.failed = 0
+        if enabled:
+            from tqdm import tqdm
+
+            # no monitor thread: local workers are forked only while this process has a single thread
+            tqdm.monitor_interval = 0
+            self.bar = tqdm(total=total, initial=done, desc=desc, unit="cell", file=sys.stderr, leave=False,
+                            dynamic_ncols=True, smoothing=0.1)
+
+    def update(self, failed: bool) -> None:
+        if failed:
+            self.failed += 1
+        if self.bar is not None:
+            if failed:
+                self.bar.set_postfix(failed=self.failed, refresh=False)
+            self.bar.update(1)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
