@@ -32,6 +32,11 @@ _EXPORTS = {
     "monitoring": ["Monitoring", "monitoring_from_dict"],
     "metrics": ["Estimate", "SimulationResult", "Survival", "kaplan_meier", "mean_estimate", "ratio_estimate"],
     "baseline": ["analytic_baseline", "first_breakdown_distribution", "trigger_price_chain"],
+    "config": ["Experiment", "experiment_from_dict", "load_experiment"],
+    "kinds": ["CellContext", "CellResult", "Kind", "register_kind"],
+    "runs": ["RunFolder", "open_run", "run_experiment", "verify_run"],
+    "report": ["write_report"],
+    "bundle": ["Bundle"],
 }
 _WHERE = {name: mod for mod, names in _EXPORTS.items() for name in names}
 __all__ = sorted(_WHERE)

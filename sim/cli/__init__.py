@@ -22,6 +22,10 @@ COMMANDS = {
     "learn": "sim.cli.learn",
     "simulate": "sim.cli.simulate",
     "bench": "sim.cli.bench",
+    "check": "sim.cli.check",
+    "run": "sim.cli.run",
+    "report": "sim.cli.report",
+    "verify": "sim.cli.verify",
 }
 
 
