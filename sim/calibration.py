@@ -347,15 +347,23 @@ class MarketData(Parametrized):
                                       + (f"; got {', '.join(rest)}" if rest else ""))
 
     def with_input(self, name: str, value: float, prefix: str = "data") -> MarketData:
-        """A copy in which the identifying input ``name`` is ``value`` (for the reference product).
+        """A copy in which the uncertain input ``name`` takes ``value``.
 
-        The inputs it replaces are dropped: for logit, isoelastic and homogeneous linear demand any of
-        ``margin``, ``elasticity``, ``market_elasticity`` identifies the model alone; for
-        differentiated demand ``market_elasticity`` is always kept and ``margin`` and ``elasticity``
-        replace each other.
+        ``name`` is an identifying input (``margin`` or ``elasticity`` of the reference product, or
+        ``market_elasticity``) or, for logit demand, ``size`` (the potential market, with the
+        quantities sold held at their observed values, so that the shares and the outside good's share
+        change). An identifying input replaces the ones it stands in for: for logit, isoelastic and
+        homogeneous linear demand any of ``margin``, ``elasticity``, ``market_elasticity`` identifies
+        the model alone; for differentiated demand ``market_elasticity`` is always kept and
+        ``margin`` and ``elasticity`` replace each other.
         """
+        if name == "size":
+            if self.demand != "logit":
+                raise InputError(name, "the potential market size is an input of logit demand only")
+            v = self.validated(prefix)
+            return self.clone(quantities=v["quantities"].tolist(), shares=None, size=value)
         if name not in _IDENTIFYING:
-            raise InputError(name, f"must be one of {', '.join(_IDENTIFYING)}")
+            raise InputError(name, f"must be one of {', '.join(_IDENTIFYING)} or size")
         changes = {name: value}
         if self.demand == "differentiated":
             if name != "market_elasticity":
@@ -789,7 +797,8 @@ def _finish(v: dict, parts: dict, prefix: str) -> Calibration:
     try:
         nash = static_nash(market)
     except SolverError as exc:
-        raise SolverError(f"calibration: the calibrated model's static Nash equilibrium was not found ({exc})") from None
+        raise SolverError(f"calibration: the calibrated model's static Nash equilibrium was not found "
+                          f"({exc})") from None
     p_obs, q_obs = v["prices"], v["quantities"]
     s_obs = v["shares"]
     p_mod, q_mod = np.asarray(nash.prices, float), np.asarray(nash.quantities, float)

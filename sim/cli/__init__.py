@@ -22,6 +22,7 @@ COMMANDS = {
     "learn": "sim.cli.learn",
     "simulate": "sim.cli.simulate",
     "bench": "sim.cli.bench",
+    "assess": "sim.cli.assess",
     "check": "sim.cli.check",
     "run": "sim.cli.run",
     "report": "sim.cli.report",

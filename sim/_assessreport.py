@@ -1,0 +1,850 @@
+"""Presentation of an assessment (:class:`sim.assess.Assessment`): tables, figures and the summary.
+
+* :func:`assessment_tables` -- every table of the summary as ``(headers, rows)`` (written as CSV and
+  LaTeX by the bundle);
+* :func:`assessment_figures` -- PNG and PDF figures (matplotlib, Agg backend; fixed metadata so
+  that a re-run writes the same bytes);
+* :func:`summary_blocks` -- the summary as a list of blocks (headings, paragraphs, tables, figures),
+  rendered to Markdown (:func:`render_markdown`), self-contained HTML with the figures embedded
+  (:func:`render_html`) and plain text for the terminal (:func:`render_text`).
+
+Nothing here recomputes a number: it only reads the assessment.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import math
+from pathlib import Path
+
+import numpy as np
+
+from ._text import CAUTION, fmt_num, table
+from .errors import InputError
+
+__all__ = ["assessment_figures", "assessment_tables", "render_html", "render_markdown", "render_text",
+           "summary_blocks"]
+
+_CATEGORY_COLOURS = {"neither": "#d9d9d9", "both": "#fdae61", "after only": "#d7191c", "before only": "#2c7bb6"}
+_CATEGORY_LABELS = {"neither": "sustainable neither before nor after", "both": "sustainable before and after",
+                    "after only": "sustainable only after the merger", "before only": "sustainable only before"}
+
+
+def _n(x, digits: int = 4) -> str:
+    return fmt_num(x, digits)
+
+
+def _yes(x) -> str:
+    if x is None:
+        return "-"
+    return "yes" if x else "no"
+
+
+# --------------------------------------------------------------------------------------------------
+# Tables
+# --------------------------------------------------------------------------------------------------
+
+
+def assessment_tables(a) -> dict:
+    """Every table of the summary: name -> (headers, rows); cells are numbers or strings."""
+    out = {}
+    c = a.conclusion
+    out["thresholds"] = (
+        ["scheme", "before", "binding before", "after", "binding after", "effect of the merger",
+         f"sustainable at {c['delta']:.4g} before", "after"],
+        [[s["scheme"], s["before"], s["binding_before"], s["after"], s["binding_after"], s["direction"],
+          _yes(s["sustainable_before"]), _yes(s["sustainable_after"])] for s in c["schemes"]],
+    )
+    for side in (a.before, a.after):
+        rep = side.report
+        rows = []
+        schemes = [("grim trigger", rep.grim)] + [(f"Nash reversion, T={f.T}", f) for f in rep.finite] + [
+            ("stick and carrot", rep.stick_carrot)]
+        for name, s in schemes:
+            rows.append([name, *[float(x) for x in s.per_firm]])
+        out[f"thresholds_per_firm_{side.label}"] = (["scheme", *side.names], rows)
+        st = rep.stage
+        frows = []
+        for i, nm in enumerate(side.names):
+            frows.append([nm, float(st.collusive.firm_profits[i]), float(st.deviation_profits[i]),
+                          float(st.nash.firm_profits[i]), float(st.minmax_profits[i])])
+        out[f"stage_game_{side.label}"] = (["firm", "collusive profit", "deviation profit", "Nash profit",
+                                            "minmax profit"], frows)
+    prow = []
+    after_by = {(p.scheme, p.T, p.delta): p for p in a.after.partial}
+    for p in a.before.partial:
+        q = after_by.get((p.scheme, p.T, p.delta))
+        name = {"grim": "grim trigger", "stick_carrot": "stick and carrot"}.get(p.scheme, f"Nash reversion, T={p.T}")
+        prow.append([p.delta, name, p.profit_gain, None if q is None else q.profit_gain,
+                     None if q is None else q.profit_gain - p.profit_gain])
+    out["partial_collusion"] = (["delta", "scheme", "profit gain before", "profit gain after", "change"], prow)
+    arow = []
+    for side in (a.before, a.after):
+        s = side.asymmetry
+        arow.append([side.label, len(side.names), s["hhi"], s["share_ratio"], s["cost_ratio"], s["cost_cv"],
+                     s["capacity_ratio"] if s["capacity_ratio"] is not None else "-"])
+    out["asymmetry"] = (["market", "firms", "HHI", "largest / smallest share", "highest / lowest cost",
+                         "cost coefficient of variation", "largest / smallest capacity"], arow)
+    srow = []
+    for side in (a.before, a.after):
+        for i, nm in enumerate(side.names):
+            s = side.asymmetry
+            srow.append([side.label, nm, s["shares"][i], s["costs"][i],
+                         s["capacities"][i] if s["capacities"] is not None else "-", s["products"][i]])
+    out["firms"] = (["market", "firm", "share (static Nash)", "marginal cost", "capacity", "products"], srow)
+    m = a.merger
+    out["merger_prices"] = (["product", "owner after", "price before", "price after", "change"],
+                            [[r["product"], r["owner"] or "-", r["pre"], r["post"], r["change"]]
+                             for r in m.price_changes()])
+    if a.before.simulation is not None:
+        keys = [("collusive_share", "share of collusive periods"), ("war_share", "share of price-war periods"),
+                ("first_breakdown", "time to first breakdown (periods)"),
+                ("broken_down", "share of replications that broke down"),
+                ("spell_length", "mean collusive spell (periods)"), ("profit_gain", "profit gain"),
+                ("price", "mean market price"), ("consumer_surplus", "mean consumer surplus")]
+        rows = []
+        for k, label in keys:
+            eb, ea = a.before.simulation.metrics[k], a.after.simulation.metrics[k]
+            rows.append([label, eb.value, eb.low, eb.high, ea.value, ea.low, ea.high])
+        out["persistence"] = (["metric", "before", "95% low", "95% high", "after", "95% low", "95% high"], rows)
+    frow = []
+    for f in a.factors:
+        frow.append([f["factor"], f["varied"], _factor_values(f), f["model_direction"], f["ivaldi_direction"],
+                     _yes(f["agrees"])])
+    out["factors"] = (["factor", "what the model varies", "values (before; after)", "model", "Ivaldi et al. (2003)",
+                       "agree"], frow)
+    if a.calibration is not None:
+        cal = a.calibration
+        rows = []
+        for k in range(len(cal.costs)):
+            rows.append([k + 1, cal.observed["prices"][k], cal.observed["quantities"][k], cal.observed["shares"][k],
+                         cal.costs[k], cal.margins[k], cal.equilibrium["prices"][k],
+                         cal.equilibrium["quantities"][k], cal.residuals["prices"][k],
+                         cal.residuals["quantities"][k]])
+        out["calibration"] = (["product", "observed price", "observed quantity", "observed share", "implied cost",
+                               "implied margin", "model price", "model quantity", "price residual",
+                               "quantity residual"], rows)
+        out["calibration_parameters"] = (["parameter", "value"], [[k, _param_text(v)] for k, v in
+                                                                  cal.parameters.items()])
+    for name, s in a.sensitivity.items():
+        if name == "delta":
+            rows = [[d, cat, gb, ga] for d, cat, gb, ga in zip(s["values"], s["category"], s["profit_gain_before"],
+                                                              s["profit_gain_after"])]
+            out["sensitivity_delta"] = (["delta", "conclusion", "profit gain before", "profit gain after"], rows)
+        elif name == "noise":
+            rows = [[k, b, a_, d] for k, b, a_, d in zip(s["scales"], s["collusive_share_before"],
+                                                        s["collusive_share_after"], s["difference"])]
+            out["sensitivity_noise"] = (["noise scale", "collusive share before", "collusive share after",
+                                         "after - before"], rows)
+        else:
+            rows = [[x, b, a_, d, cat, st if st != "ok" else ""] for x, b, a_, d, cat, st in
+                    zip(s["values"], s["threshold_before"], s["threshold_after"], s["direction"],
+                        s["category_at_delta"], s["status"])]
+            out[f"sensitivity_{name}"] = ([name, "threshold before", "threshold after", "effect of the merger",
+                                           f"conclusion at delta {c['delta']:.4g}", "status"], rows)
+    return out
+
+
+def _param_text(v) -> str:
+    if isinstance(v, list | tuple):
+        return ", ".join(_n(x, 6) for x in v)
+    return _n(v, 6)
+
+
+def _factor_values(f: dict) -> str:
+    v = f["values"]
+    name = f["factor"]
+    if not v:
+        return f["note"] or "-"
+    if name == "number of firms":
+        return f"{v['base_label']}: {_n(v['base'])}; {v['varied_label']}: {_n(v['varied'])}"
+    parts = []
+    for side in ("before", "after"):
+        x = v.get(side)
+        if not x:
+            continue
+        if name == "symmetry":
+            parts.append(f"{side}: actual {_n(x['actual'])}, symmetric {_n(x['symmetric'])}")
+        elif name == "transparency":
+            parts.append(f"{side}: {_n(x['noise'])} at the experiment's noise, {_n(x['doubled_noise'])} doubled")
+        elif name == "frequency of interaction":
+            parts.append(f"{side}: threshold {_n(x['threshold'])}, longest interval "
+                         f"{_n(x.get('longest_interval'), 3)} periods")
+        elif name == "demand growth":
+            parts.append(f"{side}: growth needed {_n(x['growth_needed'])}; growing {_yes(x['sustainable_growing'])}, "
+                         f"declining {_yes(x['sustainable_declining'])}")
+    return "; ".join(parts)
+
+
+def to_csv(headers, rows) -> str:
+    import csv
+    import io
+
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(headers)
+    for r in rows:
+        w.writerow([_csv_cell(x) for x in r])
+    return buf.getvalue()
+
+
+def _csv_cell(x):
+    if x is None:
+        return ""
+    if isinstance(x, bool | np.bool_):
+        return "true" if x else "false"
+    if isinstance(x, float | np.floating):
+        v = float(x)
+        return "" if math.isnan(v) else repr(v)
+    return x
+
+
+_LATEX_SPECIAL = {"&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_", "{": r"\{", "}": r"\}",
+                  "~": r"\textasciitilde{}", "^": r"\textasciicircum{}", "\\": r"\textbackslash{}"}
+
+
+def _tex(s) -> str:
+    return "".join(_LATEX_SPECIAL.get(ch, ch) for ch in str(s))
+
+
+def to_latex(headers, rows, caption: str = "") -> str:
+    """A booktabs table."""
+    cols = "l" + "r" * (len(headers) - 1)
+    lines = [r"\begin{table}[htbp]", r"\centering"]
+    if caption:
+        lines.append(rf"\caption{{{_tex(caption)}}}")
+    lines += [rf"\begin{{tabular}}{{{cols}}}", r"\toprule", " & ".join(_tex(h) for h in headers) + r" \\",
+              r"\midrule"]
+    for r in rows:
+        lines.append(" & ".join(_tex(x if isinstance(x, str) else _n(x)) for x in r) + r" \\")
+    lines += [r"\bottomrule", r"\end{tabular}", r"\end{table}", ""]
+    return "\n".join(lines)
+
+
+# --------------------------------------------------------------------------------------------------
+# Figures
+# --------------------------------------------------------------------------------------------------
+
+
+def _pyplot():
+    import matplotlib
+
+    matplotlib.use("Agg", force=True)
+    import matplotlib.pyplot as plt
+
+    plt.rcParams["svg.hashsalt"] = "supergame"
+    return plt
+
+
+def save_figure(fig, folder: Path, stem: str) -> dict:
+    """Save as PNG and PDF without timestamps (same content, same bytes); close it. Returns ext -> bytes."""
+    import io
+
+    import matplotlib.pyplot as plt
+
+    out = {}
+    for ext, meta in (("png", {"Software": None}), ("pdf", {"CreationDate": None, "ModDate": None,
+                                                             "Producer": None, "Creator": None})):
+        buf = io.BytesIO()
+        fig.savefig(buf, format=ext, dpi=150, metadata=meta)
+        out[ext] = buf.getvalue()
+        if folder is not None:
+            Path(folder).mkdir(parents=True, exist_ok=True)
+            (Path(folder) / f"{stem}.{ext}").write_bytes(out[ext])
+    plt.close(fig)
+    return out
+
+
+def _val(x):
+    return np.nan if x is None else float(x)
+
+
+_CAPTIONS = {
+    "thresholds": ("Critical discount factors of each scheme before and after the merger, with the experiment's "
+                   "discount factor"),
+    "partial_collusion": ("Partial collusion: profit gain of the most profitable sustainable outcome against the "
+                          "discount factor"),
+    "persistence": "Simulated persistence: share of replications in which every firm colludes, period by period",
+    "sensitivity_delta": ("Where the conclusion flips along the discount factor (shaded: sustainable before "
+                          "and/or after)"),
+    "sensitivity_noise": "Simulated persistence against the monitoring noise, with 95% confidence bands",
+}
+
+
+def assessment_figures(a) -> list:
+    """The figures of an assessment as ``(name, matplotlib figure, caption)``; the caller saves and closes
+    them (:func:`save_figure`)."""
+    plt = _pyplot()
+    figs = []
+    delta = a.conclusion["delta"]
+
+    # 1. thresholds per scheme, before and after
+    sch = a.conclusion["schemes"]
+    fig, ax = plt.subplots(figsize=(8, 4))
+    x = np.arange(len(sch))
+    b = [_val(s["before"]) for s in sch]
+    af = [_val(s["after"]) for s in sch]
+    ax.bar(x - 0.2, np.nan_to_num(b, nan=1.0), 0.4, label="before", color="#2c7bb6",
+           hatch=None)
+    ax.bar(x + 0.2, np.nan_to_num(af, nan=1.0), 0.4, label="after", color="#d7191c")
+    for k, (u, v) in enumerate(zip(b, af)):
+        if np.isnan(u):
+            ax.text(k - 0.2, 1.0, "none", ha="center", va="bottom", fontsize=7)
+        if np.isnan(v):
+            ax.text(k + 0.2, 1.0, "none", ha="center", va="bottom", fontsize=7)
+    ax.axhline(delta, color="k", lw=1, ls="--", label=f"discount factor {delta:.3g}")
+    ax.set_xticks(x, [s["scheme"] for s in sch], rotation=20, ha="right", fontsize=8)
+    ax.set_ylim(0, 1.08)
+    ax.set_ylabel("critical discount factor (market)")
+    ax.set_title("Critical discount factors before and after the merger ('none': not sustainable below one)",
+                 fontsize=9)
+    ax.legend(fontsize=8, loc="lower right")
+    fig.tight_layout()
+    figs.append(("thresholds", fig, _CAPTIONS["thresholds"]))
+
+    # 2. partial collusion against delta
+    if a.before.partial:
+        fig, ax = plt.subplots(figsize=(7, 4))
+        groups = {}
+        for side in (a.before, a.after):
+            for p in side.partial:
+                groups.setdefault((p.scheme, p.T), {}).setdefault(side.label, []).append((p.delta, p.profit_gain))
+        for k, (key, sides) in enumerate(sorted(groups.items(), key=lambda t: (t[0][0], t[0][1] or 0))):
+            name = {"grim": "grim trigger", "stick_carrot": "stick and carrot"}.get(key[0], f"reversion T={key[1]}")
+            for label, ls in (("before", "-"), ("after", "--")):
+                pts = sorted(sides.get(label, []))
+                if pts:
+                    ax.plot([p[0] for p in pts], [p[1] for p in pts], ls, marker="o", ms=3, color=f"C{k}",
+                            label=f"{name}, {label}")
+        ax.set_xlabel("discount factor")
+        ax.set_ylabel("profit gain of the best sustainable outcome")
+        ax.set_ylim(-0.02, 1.05)
+        ax.set_title("Partial collusion before (solid) and after (dashed) the merger", fontsize=9)
+        ax.legend(fontsize=7, ncol=2)
+        fig.tight_layout()
+        figs.append(("partial_collusion", fig, _CAPTIONS["partial_collusion"]))
+
+    # 3. simulated persistence by period
+    if a.before.simulation is not None:
+        fig, ax = plt.subplots(figsize=(7, 3.5))
+        for side, col in ((a.before, "#2c7bb6"), (a.after, "#d7191c")):
+            y = np.asarray(side.simulation.collusive_by_period, dtype=float)
+            ax.plot(np.arange(1, y.size + 1), y, color=col, lw=1, label=side.label)
+        ax.set_xlabel("period")
+        ax.set_ylabel("share of replications colluding")
+        ax.set_ylim(-0.02, 1.02)
+        ax.set_title("Simulated persistence of collusion under the experiment's monitoring noise", fontsize=9)
+        ax.legend(fontsize=8)
+        fig.tight_layout()
+        figs.append(("persistence", fig, _CAPTIONS["persistence"]))
+
+    # 4. sensitivity
+    for name, s in a.sensitivity.items():
+        if name in ("delta", "noise"):
+            continue
+        figs += _phase_figure(plt, a, name, s)
+    if "delta" in a.sensitivity:
+        s = a.sensitivity["delta"]
+        fig, ax = plt.subplots(figsize=(7, 4))
+        ds = np.asarray(s["values"])
+        for lo_, hi_, cat in _segments(ds, s["category"]):
+            ax.axvspan(lo_, hi_, color=_CATEGORY_COLOURS[cat], alpha=0.35, lw=0)
+        ax.plot(ds, s["profit_gain_before"], "-o", ms=3, color="#2c7bb6", label="before")
+        ax.plot(ds, s["profit_gain_after"], "--o", ms=3, color="#d7191c", label="after")
+        for t, lab in ((s["threshold_before"], "threshold before"), (s["threshold_after"], "threshold after")):
+            if t is not None:
+                ax.axvline(t, color="k", lw=0.8, ls=":")
+                ax.text(t, 1.02, lab, rotation=90, fontsize=7, va="bottom", ha="right")
+        ax.set_xlabel("discount factor")
+        ax.set_ylabel(f"profit gain ({s['scheme']})")
+        ax.set_ylim(-0.02, 1.25)
+        handles = [plt.Rectangle((0, 0), 1, 1, color=_CATEGORY_COLOURS[c], alpha=0.35) for c in _CATEGORY_COLOURS
+                   if c in s["category"]]
+        labels = [_CATEGORY_LABELS[c] for c in _CATEGORY_COLOURS if c in s["category"]]
+        h0, l0 = ax.get_legend_handles_labels()
+        ax.legend(h0 + handles, l0 + labels, fontsize=7, loc="lower right")
+        ax.set_title("Where the conclusion flips along the discount factor", fontsize=9)
+        fig.tight_layout()
+        figs.append(("sensitivity_delta", fig, _CAPTIONS["sensitivity_delta"]))
+    if "noise" in a.sensitivity:
+        s = a.sensitivity["noise"]
+        fig, ax = plt.subplots(figsize=(7, 4))
+        k = np.asarray(s["scales"])
+        for lab, col, ls in (("before", "#2c7bb6", "-"), ("after", "#d7191c", "--")):
+            y = np.asarray(s[f"collusive_share_{lab}"])
+            ci = np.asarray(s[f"collusive_share_{lab}_ci"], dtype=float)
+            ax.plot(k, y, ls, marker="o", ms=3, color=col, label=lab)
+            ax.fill_between(k, ci[:, 0], ci[:, 1], color=col, alpha=0.15, lw=0)
+        for f in s["flips"]:
+            ax.axvline(f, color="k", lw=0.8, ls=":")
+        ax.set_xlabel("noise scale (1 = the experiment's monitoring noise)")
+        ax.set_ylabel("share of collusive periods")
+        ax.set_ylim(-0.02, 1.02)
+        ax.set_title("Simulated persistence against monitoring noise (95% confidence bands)", fontsize=9)
+        ax.legend(fontsize=8)
+        fig.tight_layout()
+        figs.append(("sensitivity_noise", fig, _CAPTIONS["sensitivity_noise"]))
+    return figs
+
+
+def _segments(xs: np.ndarray, cats: list):
+    """Contiguous spans of equal category along ``xs`` (boundaries halfway between points)."""
+    out = []
+    if len(xs) == 0:
+        return out
+    edges = np.concatenate([[xs[0]], (xs[1:] + xs[:-1]) / 2, [xs[-1]]])
+    for k, c in enumerate(cats):
+        if c is None:
+            continue
+        out.append((edges[k], edges[k + 1], c))
+    return out
+
+
+def _phase_figure(plt, a, name: str, s: dict) -> list:
+    xs = np.asarray(s["values"], dtype=float)
+    tb = np.array([_val(v) for v in s["threshold_before"]])
+    ta = np.array([_val(v) for v in s["threshold_after"]])
+    ok = np.array([st == "ok" for st in s["status"]])
+    lo = 0.0
+    ds = np.linspace(lo, 1.0, 201)
+    grid = np.full((ds.size, xs.size), np.nan)
+    codes = {"neither": 0, "before only": 1, "both": 2, "after only": 3}
+    for j in range(xs.size):
+        if not ok[j]:
+            continue
+        for i, d in enumerate(ds):
+            pre = np.isfinite(tb[j]) and d >= tb[j]
+            post = np.isfinite(ta[j]) and d >= ta[j]
+            grid[i, j] = codes[{(True, True): "both", (False, False): "neither", (False, True): "after only",
+                                (True, False): "before only"}[(bool(pre), bool(post))]]
+    from matplotlib.colors import BoundaryNorm, ListedColormap
+
+    cmap = ListedColormap([_CATEGORY_COLOURS[c] for c in ("neither", "before only", "both", "after only")])
+    norm = BoundaryNorm([-0.5, 0.5, 1.5, 2.5, 3.5], 4)
+    fig, ax = plt.subplots(figsize=(7.5, 4.5))
+    if xs.size > 1:
+        xe = np.concatenate([[xs[0] - (xs[1] - xs[0]) / 2], (xs[1:] + xs[:-1]) / 2,
+                             [xs[-1] + (xs[-1] - xs[-2]) / 2]])
+    else:
+        xe = np.array([xs[0] - 0.5, xs[0] + 0.5])
+    de = np.concatenate([[ds[0]], (ds[1:] + ds[:-1]) / 2, [ds[-1]]])
+    ax.pcolormesh(xe, de, np.ma.masked_invalid(grid), cmap=cmap, norm=norm, alpha=0.6, shading="flat")
+    ax.plot(xs, tb, "-o", ms=3, color="#2c7bb6", label="threshold before")
+    ax.plot(xs, ta, "--o", ms=3, color="#d7191c", label="threshold after")
+    d0 = a.conclusion["delta"]
+    ax.axhline(d0, color="k", lw=0.8, ls="--", label=f"discount factor {d0:.3g}")
+    if s.get("observed") is not None:
+        ax.axvline(s["observed"], color="k", lw=0.8, ls=":", label=f"observed {name} {s['observed']:.4g}")
+    for f in s["flips"]:
+        ax.axvline(f, color="#7b3294", lw=1.2, label=f"effect flips at {f:.4g}")
+    handles, labels = ax.get_legend_handles_labels()
+    present = {int(v) for v in np.unique(grid[np.isfinite(grid)])}
+    inv = {v: k for k, v in codes.items()}
+    for v in sorted(present):
+        handles.append(plt.Rectangle((0, 0), 1, 1, color=_CATEGORY_COLOURS[inv[v]], alpha=0.6))
+        labels.append(_CATEGORY_LABELS[inv[v]])
+    ax.legend(handles, labels, fontsize=7, loc="lower left")
+    ax.set_xlabel(name.replace("_", " ") + (" (reference product)" if name in ("margin", "elasticity") else ""))
+    ax.set_ylabel("discount factor")
+    ax.set_ylim(0, 1)
+    ax.set_title(f"Sensitivity to the calibration input '{name}' ({a.conclusion['scheme']})", fontsize=9)
+    fig.tight_layout()
+    return [(f"sensitivity_{name}", fig, f"Sensitivity to the calibration input '{name}': critical discount factors "
+                                         "before and after, and the conclusion at each discount factor")]
+
+
+# --------------------------------------------------------------------------------------------------
+# Summary
+# --------------------------------------------------------------------------------------------------
+
+
+def _market_text(market) -> str:
+    d = market.to_dict()
+    skip = {"model", "demand"}
+    params = "; ".join(f"{k} {_param_text(v) if isinstance(v, list) else _n(v, 6)}" for k, v in d.items()
+                       if k not in skip)
+    return f"{d['model'].capitalize()} competition, {d['demand']} demand: {params}"
+
+
+def summary_blocks(a, figures=()) -> list:
+    """The summary in reading order, as blocks: ``("heading", text)``, ``("paragraph", text)``,
+    ``("bullets", [items])``, ``("table", name, caption)`` (a table of :func:`assessment_tables`) and
+    ``("figure", name)`` (one of ``figures``, the names of :func:`assessment_figures`)."""
+    figures = set(figures)
+    T = assessment_tables(a)
+    c = a.conclusion
+    m = a.merger
+    B = [("paragraph", "Caution: " + CAUTION + " What follows is a model result under the assumptions stated at "
+                       "the end, not a finding of fact.")]
+
+    def fig(name):
+        if name in figures:
+            B.append(("figure", name))
+
+    B.append(("heading", "Conclusion under the stated assumptions"))
+    B.append(("paragraph", c["statement"]))
+    if c.get("robustness"):
+        B.append(("bullets", [f"sensitivity to {k.replace('_', ' ')}: {v}" for k, v in c["robustness"].items()]))
+    B.append(("table", "thresholds", "Critical discount factors of each scheme ('-': not sustainable below one)"))
+    fig("thresholds")
+    B.append(("heading", "Setup"))
+    items = [f"Pre-merger market: {_market_text(m.pre)}",
+             f"Merger: {' and '.join(m.names_pre[i] for i in m.merging)} become {m.names_post[m.merged]}"
+             + (f", efficiency {m.efficiency:g}" if m.efficiency else "")
+             + (f", stated post-merger cost {a.settings['merger']['cost']}" if a.settings["merger"]["cost"]
+                is not None else ""),
+             f"Post-merger market: {_market_text(m.post)}",
+             f"Collusive agreement: {a.settings['agreement']}; headline scheme: {c['scheme']}; discount factor "
+             f"{c['delta']:.4g}"]
+    if a.settings["simulate"]:
+        r = a.settings["run"]
+        mon = a.settings["monitoring"]
+        items.append(f"Simulation: {r['periods']} periods, {r['replications']} replications, seed {r['seed']}, "
+                     f"{r['horizon']} horizon; monitoring '{mon['signal']}', {mon['noise']} demand shock sigma "
+                     f"{mon['sigma']:g}, perception error {mon['perception_error']:g}, implementation error "
+                     f"{mon['implementation_error']:g}; line-up before: "
+                     + ", ".join(e["strategy"] for e in a.settings["lineup"]) + "; after: "
+                     + ", ".join(e["strategy"] for e in a.settings["lineup_after"]))
+    B.append(("bullets", items))
+    if a.calibration is not None:
+        cal = a.calibration
+        B.append(("heading", "Calibration"))
+        B.append(("paragraph", f"Conduct assumed: {cal.conduct}. The price parameter is identified by "
+                               f"{cal.identified_by}. The calibrated model's static Nash equilibrium "
+                               + ("reproduces" if cal.reproduced else "does NOT reproduce")
+                               + f" the observed prices and quantities: largest relative residual "
+                                 f"{cal.max_relative_residual:.3g} (tolerance 1e-08). Market elasticity at the "
+                                 f"observed point: {cal.market_elasticity:.6g}."))
+        B.append(("table", "calibration_parameters", "Calibrated demand parameters"))
+        B.append(("table", "calibration", "Observed data, implied costs and margins, and the model's static "
+                                          "equilibrium with its residuals"))
+        if cal.fit is not None:
+            res = np.asarray(cal.fit["residuals"])
+            B.append(("paragraph", f"Over-identified input ({cal.fit['input']} of every product), fitted by least "
+                                   f"squares: largest absolute residual {np.abs(res).max():.3g}."))
+    B.append(("heading", "The post-merger static equilibrium"))
+    cs = m.consumer_surplus_post - m.consumer_surplus_pre
+    cs_rel = cs / m.consumer_surplus_pre if m.consumer_surplus_pre else 0.0
+    B.append(("paragraph", f"HHI at the static equilibrium: {m.hhi_pre:.0f} before, {m.hhi_post:.0f} after "
+                           f"(change {m.delta_hhi:+.0f}; at pre-merger shares {m.naive_delta_hhi:.0f}). Consumer "
+                           f"surplus at the static equilibrium changes by {cs:+.6g} ({cs_rel:+.2%})."))
+    B.append(("table", "merger_prices", "Static Nash prices before and after the merger"))
+    if m.notes:
+        B.append(("bullets", list(m.notes)))
+    B.append(("heading", "Stage games and per-firm thresholds"))
+    for side in (a.before, a.after):
+        B.append(("table", f"stage_game_{side.label}", f"Stage game {side.label} the merger"))
+        B.append(("table", f"thresholds_per_firm_{side.label}",
+                  f"Critical discount factor of each firm {side.label} the merger ('-': not sustainable)"))
+    if a.before.partial:
+        B.append(("heading", "Partial collusion"))
+        B.append(("paragraph", "Below a threshold the firms can still sustain a less profitable outcome on the path "
+                               "from static Nash to the agreement; its profit gain is (profit - Nash) / (collusive - "
+                               "Nash)."))
+        B.append(("table", "partial_collusion", "Profit gain of the most profitable sustainable outcome"))
+        fig("partial_collusion")
+    if "persistence" in T:
+        B.append(("heading", "Simulated persistence of collusion"))
+        B.append(("paragraph", "Firms follow the line-up's strategies under the experiment's monitoring noise; "
+                               "intervals are 95% confidence intervals across replications. Simulated persistence "
+                               "reflects the noise and the number of firms that can set off a punishment; whether "
+                               "the strategies are an equilibrium at the discount factor is what the thresholds "
+                               "say."))
+        B.append(("table", "persistence", "Persistence metrics before and after the merger"))
+        fig("persistence")
+    B.append(("heading", "Asymmetry"))
+    B.append(("table", "asymmetry", "Asymmetry measures at the static equilibrium"))
+    B.append(("table", "firms", "Firms at the static equilibrium"))
+    B.append(("heading", "The usual factors"))
+    B.append(("paragraph", "Each factor is varied in the model with the rest held fixed; the direction the model "
+                           "computes is set beside the direction in Ivaldi, Jullien, Rey, Seabright and Tirole "
+                           "(2003), The Economics of Tacit Collusion, report for the European Commission (recalled "
+                           "from the report, from memory). 'facilitates' means that the factor (fewer firms, more "
+                           "symmetry, less noise, more frequent interaction, demand growth) makes collusion easier."))
+    B.append(("table", "factors", "Factors: direction computed by the model and in the literature"))
+    notes = [f"{f['factor']}: {f['note']}" for f in a.factors if f["note"]]
+    if notes:
+        B.append(("bullets", notes))
+    if a.sensitivity:
+        B.append(("heading", "Sensitivity"))
+        for key, s in a.sensitivity.items():
+            tname = f"sensitivity_{key}"
+            if key == "delta":
+                B.append(("table", tname, "Conclusion along the discount factor"))
+            elif key == "noise":
+                B.append(("table", tname, "Simulated persistence against the monitoring noise (scale 1: the "
+                                          "experiment's noise)"))
+            else:
+                B.append(("table", tname, f"Thresholds ({c['scheme']}) against the calibration input "
+                                          f"'{key.replace('_', ' ')}'"))
+                if s.get("note"):
+                    B.append(("paragraph", s["note"] + "."))
+            fig(tname)
+    B.append(("heading", "Assumptions and limitations"))
+    B.append(("bullets", list(a.assumptions) + [
+        "critical discount factors say when an agreement can be sustained, not that firms coordinate: the model "
+        "does not show that coordination happens or would happen",
+        "the punishment schemes, the collusive agreement and the monitoring structure are modelling choices; other "
+        "choices give other numbers"]))
+    return B
+
+
+def _cell_text(x) -> str:
+    return x if isinstance(x, str) else _n(x)
+
+
+def render_markdown(title: str, blocks: list, tables: dict, figures: dict) -> str:
+    """Markdown of the blocks (``figures``: name -> caption; the PNGs are in ``figures/``)."""
+    out = [f"# {title}", ""]
+    for b in blocks:
+        if b[0] == "heading":
+            out += ["## " + b[1], ""]
+        elif b[0] == "paragraph":
+            out += [b[1], ""]
+        elif b[0] == "bullets":
+            out += [f"- {x}" for x in b[1]] + [""]
+        elif b[0] == "table":
+            headers, rows = tables[b[1]]
+            out += [f"**{b[2]}**", "", "| " + " | ".join(headers) + " |",
+                    "| " + " | ".join("---" for _ in headers) + " |"]
+            out += ["| " + " | ".join(_cell_text(x).replace("|", r"\|") for x in r) + " |" for r in rows]
+            out += ["", f"*table: `tables/{b[1]}.csv`, `tables/{b[1]}.tex`*", ""]
+        elif b[0] == "figure":
+            out += [f"![{figures[b[1]]}](figures/{b[1]}.png)", "", f"*Figure: {figures[b[1]]}*", ""]
+    out += ["---", "", f"**Caution.** {CAUTION}", ""]
+    return "\n".join(out)
+
+
+def render_html(title: str, blocks: list, tables: dict, figures: dict, pngs: dict) -> str:
+    """Self-contained HTML of the blocks: figures embedded as base64 PNG (``pngs``: name -> bytes)."""
+    e = html.escape
+    body = [f"<h1>{e(title)}</h1>"]
+    for b in blocks:
+        if b[0] == "heading":
+            body.append(f"<h2>{e(b[1])}</h2>")
+        elif b[0] == "paragraph":
+            cls = ' class="caution"' if b[1].startswith("Caution:") else ""
+            body.append(f"<p{cls}>{e(b[1])}</p>")
+        elif b[0] == "bullets":
+            body.append("<ul>" + "".join(f"<li>{e(x)}</li>" for x in b[1]) + "</ul>")
+        elif b[0] == "table":
+            headers, rows = tables[b[1]]
+            t = [f"<table><caption>{e(b[2])}</caption><thead><tr>"
+                 + "".join(f"<th>{e(h)}</th>" for h in headers) + "</tr></thead><tbody>"]
+            t += ["<tr>" + "".join(f"<td>{e(_cell_text(x))}</td>" for x in r) + "</tr>" for r in rows]
+            t.append("</tbody></table>")
+            body.append("".join(t))
+        elif b[0] == "figure":
+            data = base64.b64encode(pngs[b[1]]).decode("ascii")
+            body.append(f'<figure><img alt="{e(figures[b[1]])}" src="data:image/png;base64,{data}">'
+                        f"<figcaption>{e(figures[b[1]])}</figcaption></figure>")
+    body.append(f'<p class="caution"><strong>Caution.</strong> {e(CAUTION)}</p>')
+    style = ("body{font-family:sans-serif;max-width:1100px;margin:2em auto;line-height:1.4}"
+             "table{border-collapse:collapse;margin:1em 0;font-size:0.85em}"
+             "th,td{border-top:1px solid #999;border-bottom:1px solid #999;padding:3px 8px;text-align:right}"
+             "th:first-child,td:first-child{text-align:left}caption{text-align:left;font-style:italic}"
+             "img{max-width:100%}.caution{border:1px solid #c00;padding:0.6em;background:#fff5f5}")
+    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+            f"<title>{e(title)}</title><style>{style}</style></head><body>\n" + "\n".join(body)
+            + "\n</body></html>\n")
+
+
+def render_text(a, name: str = "assessment") -> str:
+    """The terminal summary: the headline, the thresholds, persistence, the factors and the caution."""
+    T = assessment_tables(a)
+    c = a.conclusion
+    lines = [f"Assessment: {name}", ""]
+    if a.calibration is not None:
+        cal = a.calibration
+        lines.append(f"Calibration ({cal.demand} demand, {cal.conduct.split(':')[0]}; identified by "
+                     f"{cal.identified_by}): the model's static equilibrium "
+                     + ("reproduces" if cal.reproduced else "does NOT reproduce")
+                     + f" the observed prices and quantities (largest relative residual "
+                       f"{cal.max_relative_residual:.3g})")
+        lines.append("")
+    m = a.merger
+    lines.append(f"Merger: {' + '.join(m.names_pre[i] for i in m.merging)}; HHI {m.hhi_pre:.0f} -> {m.hhi_post:.0f}; "
+                 + "; ".join(f"{'product ' + str(r['product']) if r['product'] != 'market' else 'market price'} "
+                             f"{r['change']:+.2%}" for r in m.price_changes()))
+    lines.append("")
+    lines.append("Critical discount factors ('-': not sustainable below one)")
+    h, rows = T["thresholds"]
+    lines.append(table(h, rows, "lrlrllll"))
+    lines.append("")
+    if "persistence" in T:
+        lines.append("Simulated persistence (95% confidence intervals)")
+        h, rows = T["persistence"]
+        lines.append(table(h, rows))
+        lines.append("")
+    lines.append("Factors: direction computed by the model vs Ivaldi et al. (2003)")
+    h, rows = T["factors"]
+    lines.append(table(["factor", "model", "Ivaldi et al. (2003)", "agree"],
+                       [[r[0], r[3], r[4], r[5]] for r in rows], "llll"))
+    lines.append("")
+    lines.append(c["statement"])
+    for k, v in (c.get("robustness") or {}).items():
+        lines.append(f"  sensitivity ({k}): {v}")
+    lines.append("")
+    lines.append(CAUTION)
+    return "\n".join(lines)
+
+
+
+
+# --------------------------------------------------------------------------------------------------
+# Evidence bundle
+# --------------------------------------------------------------------------------------------------
+
+def bundle_target(out, name: str, root="runs") -> Path:
+    """The bundle folder to create: ``out``, or ``root/<name>-<YYYYmmdd-HHMMSS>``. Checked before any work
+    starts: an existing non-empty folder or a file in the way is refused (``--out``)."""
+    import datetime as dt
+    import re
+
+    if out is not None:
+        p = Path(out)
+        key = "--out"
+    else:
+        stamp = dt.datetime.now().strftime("%Y%m%d-%H%M%S")
+        safe = re.sub(r"[^A-Za-z0-9._-]+", "-", name).strip("-") or "assessment"
+        p = Path(root) / f"{safe}-{stamp}"
+        key = "experiment.name"
+    if p.exists() and (not p.is_dir() or any(p.iterdir())):
+        raise InputError(key, f"{p} already exists and is not an empty folder; choose another --out")
+    parent = p.parent if str(p.parent) else Path(".")
+    if parent.exists() and not parent.is_dir():
+        raise InputError(key, f"{parent} is not a folder")
+    return p
+
+
+def _manifest_extra(a, experiment_file, raw: bytes, name: str, start: float, end: float, argv) -> dict:
+    import datetime as dt
+    import hashlib
+
+    run = a.settings["run"]
+    return {
+        "kind": "assess",
+        "experiment": {"file": str(experiment_file), "sha256": hashlib.sha256(raw).hexdigest(), "name": name},
+        "command": argv if argv is not None else ["supergame", "assess", str(experiment_file)],
+        "seeds": {"run.seed": run["seed"],
+                  "streams": {"simulation before": [0], "simulation after": [1],
+                              "doubled noise before": [2, 0], "doubled noise after": [2, 1],
+                              "noise sensitivity point j": "[3, j, 0] before, [3, j, 1] after"}
+                  if a.settings["simulate"] else {}},
+        "started": dt.datetime.fromtimestamp(start, tz=dt.UTC).isoformat(timespec="seconds"),
+        "finished": dt.datetime.fromtimestamp(end, tz=dt.UTC).isoformat(timespec="seconds"),
+    }
+
+
+def write_assessment_bundle(target, a, experiment_file, name: str, start: float, end: float, argv=None) -> Path:
+    """Write the evidence bundle of an assessment into ``target``.
+
+    The bundle is written into a temporary sibling folder and renamed at the end, so that a failure
+    leaves no partial folder. Contents: ``summary.md``, ``summary.html`` (self-contained),
+    ``figures/*.png|pdf``, ``tables/*.csv|tex``, ``assessment.json`` (every number),
+    ``experiment.toml`` (the experiment file byte for byte) and ``manifest.json`` (the experiment's
+    SHA-256, the command line, package versions, platform, seeds, start and end times, and the SHA-256
+    of every other file). Uses the shared :class:`sim.bundle.Bundle` writer.
+    """
+    import shutil
+    import tempfile
+
+    from ._jsonutil import dumps
+
+    target = Path(target)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}-", dir=target.parent))
+    try:
+        raw = Path(experiment_file).read_bytes()
+        title = f"Coordinated effects of a merger: {name}"
+        tables = assessment_tables(a)
+        figs = assessment_figures(a)
+        blocks = summary_blocks(a, [f[0] for f in figs])
+        extra = _manifest_extra(a, experiment_file, raw, name, start, end, argv)
+        result = (dumps(a.to_dict(), indent=2, sort_keys=True) + "\n").encode("utf-8")
+        try:
+            import sim.bundle  # noqa: F401  (the shared writer of evidence bundles)
+        except ImportError:
+            _write_private(tmp, title, blocks, tables, figs, raw, result, extra)
+        else:
+            _write_with_bundle(tmp, title, blocks, tables, figs, raw, result, extra)
+        if target.exists():
+            target.rmdir()
+        tmp.rename(target)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return target
+
+
+def _write_with_bundle(folder: Path, title, blocks, tables, figs, raw: bytes, result: bytes, extra: dict) -> None:
+    from .bundle import Bundle
+
+    fig_of = {name: (fig, cap) for name, fig, cap in figs}
+    b = Bundle(folder, title)
+    shown = set()
+    for blk in blocks:
+        if blk[0] == "heading":
+            b.heading(blk[1])
+        elif blk[0] == "paragraph":
+            b.paragraph(blk[1])
+        elif blk[0] == "bullets":
+            b.bullets(blk[1])
+        elif blk[0] == "table":
+            headers, rows = tables[blk[1]]
+            b.table(blk[1], headers, rows, caption=blk[2], max_rows=200)
+            shown.add(blk[1])
+        elif blk[0] == "figure":
+            fig, cap = fig_of.pop(blk[1])
+            b.figure(blk[1], fig, cap)
+    for name, (headers, rows) in tables.items():
+        if name not in shown:
+            b.table(name, headers, rows, caption=name.replace("_", " "), show=False)
+    for fig, _cap in fig_of.values():  # pragma: no cover - every figure has a place in the summary
+        import matplotlib.pyplot as plt
+
+        plt.close(fig)
+    b.attach("experiment.toml", raw)
+    b.attach("assessment.json", result)
+    b.write(manifest=extra)
+
+
+def _write_private(folder: Path, title, blocks, tables, figs, raw: bytes, result: bytes, extra: dict) -> None:
+    """The same bundle without the shared writer (same layout and manifest fields)."""
+    import hashlib
+    import importlib.metadata as md
+    import json
+    import platform
+
+    files = {}
+
+    def put(rel: str, data: bytes) -> None:
+        p = folder / rel
+        p.parent.mkdir(parents=True, exist_ok=True)
+        p.write_bytes(data)
+        files[rel] = hashlib.sha256(data).hexdigest()
+
+    caps, pngs = {}, {}
+    for name, fig, cap in figs:
+        data = save_figure(fig, None, name)
+        put(f"figures/{name}.png", data["png"])
+        put(f"figures/{name}.pdf", data["pdf"])
+        caps[name], pngs[name] = cap, data["png"]
+    for name, (headers, rows) in tables.items():
+        put(f"tables/{name}.csv", to_csv(headers, rows).encode("utf-8"))
+        put(f"tables/{name}.tex", to_latex(headers, rows, name.replace("_", " ")).encode("utf-8"))
+    put("summary.md", render_markdown(title, blocks, tables, caps).encode("utf-8"))
+    put("summary.html", render_html(title, blocks, tables, caps, pngs).encode("utf-8"))
+    put("experiment.toml", raw)
+    put("assessment.json", result)
+    versions = {"python": platform.python_version()}
+    for pkg in ("supergame", "numpy", "numba", "scipy", "matplotlib", "tqdm"):
+        try:
+            versions[pkg] = md.version(pkg)
+        except md.PackageNotFoundError:  # pragma: no cover - running from a source tree
+            versions[pkg] = None
+    man = {"format": "supergame-bundle/1", "title": title, **extra, "packages": versions,
+           "platform": {"system": platform.system(), "release": platform.release(), "machine": platform.machine()},
+           "caution": CAUTION, "files": dict(sorted(files.items()))}
+    (folder / "manifest.json").write_text(json.dumps(man, indent=2) + "\n", encoding="utf-8")

@@ -1,0 +1,1240 @@
+"""Coordinated effects of a merger: tacit collusion before and after, side by side.
+
+:func:`assess` takes a pre-merger market (given, or calibrated from observed data by
+:func:`sim.calibration.calibrate`) and a :class:`~sim.merger.Merger`, builds the post-merger market
+(:func:`sim.merger.merge`) and compares the two:
+
+* critical discount factors of each punishment scheme -- grim trigger (Friedman, 1971), T-period
+  Nash reversion, the optimal symmetric stick and carrot (Abreu, 1986) -- per firm, with the binding
+  firm (:func:`sim.thresholds.critical_discount_factors`);
+* partial collusion: the most profitable outcome each scheme sustains at a range of discount factors
+  (:func:`sim.thresholds.partial_collusion`);
+* simulated persistence of collusion under the experiment's monitoring noise (the engine,
+  :func:`sim.engine.simulate`), with confidence intervals;
+* asymmetry measures: firm shares, the Herfindahl-Hirschman index, the ratio of the largest to the
+  smallest share, cost and capacity spreads;
+* the usual factors of the trade's checklist -- number of firms, symmetry, transparency (monitoring
+  noise), frequency of interaction, demand growth -- each with the direction this model computes,
+  set beside the direction in Ivaldi, Jullien, Rey, Seabright and Tirole (2003, "The Economics of
+  Tacit Collusion", final report for DG Competition, European Commission; directions as recalled
+  from the report -- from memory);
+* sensitivity: the comparison repeated over ranges of the uncertain inputs (the calibration's
+  margin or elasticities, the discount factor, the monitoring noise), locating where the conclusion
+  flips.
+
+Discount factor. The headline discount factor is ``run.delta``; with a random horizon
+(``run.horizon = "random"``) the factor that matters is ``delta * continuation``.
+
+Conventions. A threshold of ``nan`` (``None`` in JSON) means "not sustainable at any discount
+factor below one"; in comparisons it ranks above every number. "Easier" means a lower critical
+discount factor: the firms need less patience to sustain the agreement.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+import sys
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from ._params import Boolean, Integer, Options, Real
+from .errors import InputError, SolverError
+
+__all__ = ["ASSESS_TABLES", "Assessment", "MarketSide", "assess", "assessment_from_dict", "asymmetry",
+           "symmetric_counterpart"]
+
+SCHEME_NAMES = {"grim": "grim trigger", "finite": "Nash reversion", "stick_carrot": "stick and carrot"}
+AGREEMENTS = ("joint", "symmetric", "proportional")
+SENSITIVITY_INPUTS = ("margin", "elasticity", "market_elasticity", "size")
+ASSESS_TABLES = ("experiment", "market", "data", "merger", "collusion", "monitoring", "strategies", "run",
+                 "assess")
+_ASSESS_KEYS = ("scheme", "length", "punishments", "deltas", "partial", "growth", "simulate", "sensitivity")
+_SENS_KEYS = ("margin", "elasticity", "market_elasticity", "size", "delta", "noise")
+_TOL = 1e-9
+
+IVALDI = {
+    "number of firms": ("facilitates", "collusion is harder to sustain with more competitors: each firm's share of "
+                                       "the collusive profit is smaller and its gain from undercutting larger"),
+    "symmetry": ("facilitates", "asymmetries in costs, capacities or market shares hinder collusion: the "
+                                "advantaged firm gains more from deviating and less from colluding"),
+    "transparency": ("facilitates", "market transparency facilitates collusion: deviations are detected, and "
+                                    "punished, sooner and price wars are not set off by mistake"),
+    "frequency of interaction": ("facilitates", "frequent interaction (and frequent price adjustment) facilitates "
+                                                "collusion: retaliation comes sooner"),
+    "demand growth": ("facilitates", "collusion is easier in growing markets, where tomorrow's profits weigh more, "
+                                     "and harder in declining ones"),
+}
+IVALDI_SOURCE = ("Ivaldi, Jullien, Rey, Seabright and Tirole (2003), The Economics of Tacit Collusion, final report "
+                 "for DG Competition, European Commission (from memory)")
+
+
+# --------------------------------------------------------------------------------------------------
+# Results
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass
+class MarketSide:
+    """One side of the comparison (before or after the merger).
+
+    Attributes
+    ----------
+    label : {"before", "after"}
+    market : Market
+    names : list of str
+        Firm names.
+    report : ThresholdReport
+        Critical discount factors of every scheme (per firm, market, binding firm).
+    partial : list of PartialCollusion
+    asymmetry : dict
+        See :func:`asymmetry`.
+    simulation : SimulationResult or None
+    noisier : SimulationResult or None
+        The same simulation with the monitoring noise doubled (for the transparency factor).
+    """
+
+    label: str
+    market: Any
+    names: list
+    report: Any
+    partial: list
+    asymmetry: dict
+    simulation: Any = None
+    noisier: Any = None
+
+    def scheme(self, scheme: str, T: int | None = None):
+        """The :class:`~sim.thresholds.SchemeThreshold` of ``scheme`` (``finite`` with its ``T``)."""
+        if scheme == "grim":
+            return self.report.grim
+        if scheme == "stick_carrot":
+            return self.report.stick_carrot
+        for f in self.report.finite:
+            if f.T == T:
+                return f
+        raise KeyError(f"finite reversion with T={T} was not computed")
+
+    def to_dict(self) -> dict:
+        th = self.report
+        out = {
+            "market": self.market.to_dict(), "names": self.names,
+            "stage": th.stage.to_dict(),
+            "thresholds": {"grim": _scheme_dict(th.grim, self.names),
+                           "finite": [_scheme_dict(f, self.names) for f in th.finite],
+                           "stick_carrot": _scheme_dict(th.stick_carrot, self.names)},
+            "partial_collusion": [p.to_dict() for p in self.partial],
+            "asymmetry": self.asymmetry,
+        }
+        if self.simulation is not None:
+            out["simulation"] = _sim_summary(self.simulation)
+        if self.noisier is not None:
+            out["simulation_doubled_noise"] = _sim_summary(self.noisier)
+        return out
+
+
+def _scheme_dict(s, names) -> dict:
+    d = s.to_dict()
+    d["binding_name"] = names[s.binding] if s.binding < len(names) else None
+    return d
+
+
+_SIM_METRICS = ("collusive_share", "war_share", "first_breakdown", "broken_down", "spell_length", "profit_gain",
+                "price", "consumer_surplus")
+
+
+def _sim_summary(res) -> dict:
+    return {k: res.metrics[k].to_dict() for k in _SIM_METRICS} | {"settings": res.settings}
+
+
+@dataclass
+class Assessment:
+    """The coordinated-effects comparison.
+
+    Attributes
+    ----------
+    settings : dict
+        Validated settings (scheme, punishments, deltas, run, monitoring, line-up, sensitivity).
+    calibration : Calibration or None
+        How the pre-merger market was calibrated (None when the market was given).
+    merger : MergerResult
+    before, after : MarketSide
+    conclusion : dict
+        The headline comparison at the experiment's discount factor (see :func:`assess`).
+    factors : list of dict
+        The factor table (one row per factor).
+    sensitivity : dict
+        The comparison over ranges of the uncertain inputs.
+    assumptions : list of str
+    """
+
+    settings: dict
+    calibration: Any
+    merger: Any
+    before: MarketSide
+    after: MarketSide
+    conclusion: dict
+    factors: list
+    sensitivity: dict
+    assumptions: list = field(default_factory=list)
+
+    def to_dict(self) -> dict:
+        from ._text import CAUTION
+
+        return {
+            "settings": self.settings,
+            "calibration": None if self.calibration is None else self.calibration.to_dict(),
+            "merger": self.merger.to_dict(),
+            "before": self.before.to_dict(),
+            "after": self.after.to_dict(),
+            "conclusion": self.conclusion,
+            "factors": self.factors,
+            "sensitivity": self.sensitivity,
+            "assumptions": self.assumptions,
+            "caution": CAUTION,
+        }
+
+
+# --------------------------------------------------------------------------------------------------
+# Asymmetry and symmetric counterparts
+# --------------------------------------------------------------------------------------------------
+
+
+def _ratio(x: np.ndarray) -> float:
+    x = np.asarray(x, dtype=float)
+    if x.size == 0 or not np.all(np.isfinite(x)):
+        return math.nan
+    lo = float(x.min())
+    return math.inf if lo <= 0 else float(x.max()) / lo
+
+
+def asymmetry(market, outcome=None) -> dict:
+    """Measures of asymmetry between the firms of a market.
+
+    Parameters
+    ----------
+    market : Market or MarketSpec
+    outcome : Outcome, optional
+        Where shares are measured (default: the static Nash equilibrium).
+
+    Returns
+    -------
+    dict
+        ``shares`` (firm shares of total quantity), ``hhi`` (0-10000), ``share_ratio`` (largest over
+        smallest share; ``inf`` when a firm sells nothing), ``costs`` (each firm's quantity-weighted
+        mean marginal cost), ``cost_ratio`` (highest over lowest), ``cost_cv`` (coefficient of
+        variation), ``capacities``, ``capacity_shares`` and ``capacity_ratio`` (``None`` without
+        capacities), ``products`` (number of products per firm).
+    """
+    from .equilibrium import static_nash
+    from .merger import firm_shares, hhi
+
+    ms = market if not hasattr(market, "spec") else market.spec()
+    out = outcome if outcome is not None else static_nash(ms)
+    q = np.asarray(out.quantities, dtype=float)
+    shares = firm_shares(ms, out)
+    qf = ms.firm_sum(q)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        wc = ms.firm_sum(q * ms.cost) / qf
+    plain = np.array([ms.cost[ms.products_of(i)].mean() for i in range(ms.n_firms)])
+    costs = np.where(qf > 0, wc, plain)
+    cap = np.asarray(ms.capacity, dtype=float)
+    has_cap = bool(np.all(np.isfinite(cap)))
+    capf = ms.firm_sum(cap) if has_cap else None
+    return {
+        "shares": shares.tolist(), "hhi": hhi(shares), "share_ratio": _ratio(shares),
+        "costs": costs.tolist(), "cost_ratio": _ratio(costs),
+        "cost_cv": float(np.std(costs) / np.mean(costs)) if np.mean(costs) > 0 else math.nan,
+        "capacities": None if capf is None else capf.tolist(),
+        "capacity_shares": None if capf is None else (capf / capf.sum()).tolist(),
+        "capacity_ratio": None if capf is None else _ratio(capf),
+        "products": np.bincount(ms.owner, minlength=ms.n_firms).tolist(),
+    }
+
+
+def symmetric_counterpart(market, n_products: int | None = None, keep_owner: bool = False):
+    """The market with its products made alike: mean marginal cost, mean quality or intercept, equal
+    capacities and equal tie-sharing weights; the demand's other parameters unchanged.
+
+    Parameters
+    ----------
+    market : Market
+    n_products : int, optional
+        Number of products (single-product firms) of the counterpart; default: as many as the market.
+    keep_owner : bool
+        Keep the market's owner map (only with the same number of products): removes cost and demand
+        asymmetries but not ownership asymmetry.
+    """
+    from .market import Market
+
+    ms = market.spec()
+    n = ms.n_products if n_products is None else int(n_products)
+    d = market.demand
+    kind = ms.demand.kind
+    c = float(np.mean(ms.cost))
+    if kind == "linear":
+        new_d = d.clone(split=None)
+    elif kind == "isoelastic":
+        new_d = d.clone()
+    elif kind == "differentiated":
+        new_d = d.clone(intercept=float(np.mean(ms.demand.vector)))
+    else:
+        new_d = d.clone(quality=float(np.mean(ms.demand.vector)))
+    cap = np.asarray(ms.capacity, dtype=float)
+    capacity = float(cap.mean()) if market.capacity is not None and np.all(np.isfinite(cap)) else None
+    owner = None
+    if keep_owner and market.owner is not None and n == ms.n_products:
+        owner = list(market.owner)
+    return Market(new_d, cost=c, model=ms.model, n_firms=None if owner is not None else n, capacity=capacity,
+                  tick=ms.tick, owner=owner)
+
+
+# --------------------------------------------------------------------------------------------------
+# Validation of options
+# --------------------------------------------------------------------------------------------------
+
+
+def _list_of(key: str, value, element, min_len: int = 0) -> list:
+    if isinstance(value, tuple | np.ndarray):
+        value = list(value)
+    if not isinstance(value, list):
+        raise InputError(key, f"must be a list, got {value!r}")
+    if len(value) < min_len:
+        raise InputError(key, f"must have at least {min_len} values, got {len(value)}")
+    return [element.check(f"{key}[{k + 1}]", v) for k, v in enumerate(value)]
+
+
+def _range(key: str, value, element) -> np.ndarray:
+    """Values of a sensitivity range: a list of at least two values, or a range table in the experiment
+    files' sweep syntax, ``{start, stop, num}`` (evenly spaced, both ends included) or
+    ``{start, stop, step}``."""
+    if isinstance(value, dict):
+        for k in value:
+            if k not in ("start", "stop", "num", "step"):
+                raise InputError(f"{key}.{k}", "unknown key of a range; allowed: start, stop, num, step")
+        for k in ("start", "stop"):
+            if k not in value:
+                raise InputError(f"{key}.{k}", "missing (a range is {start = ..., stop = ..., num = ...})")
+        lo = element.check(f"{key}.start", value["start"])
+        hi = element.check(f"{key}.stop", value["stop"])
+        if hi <= lo:
+            raise InputError(f"{key}.stop", f"must be above {key}.start ({lo:g}), got {hi:g}")
+        if ("num" in value) == ("step" in value):
+            raise InputError(key, "a range needs exactly one of num (number of points) and step")
+        if "num" in value:
+            num = Integer(2, 1000).check(f"{key}.num", value["num"])
+        else:
+            step = Real(0, None, closed="neither").check(f"{key}.step", value["step"])
+            num = math.floor((hi - lo) / step + 1e-9) + 1
+            if not 2 <= num <= 1000:
+                raise InputError(f"{key}.step", f"makes {num} values; between 2 and 1000 are allowed")
+            hi = lo + (num - 1) * step
+        return np.linspace(lo, hi, num)
+    vals = _list_of(key, value, element, min_len=2)
+    return np.array(sorted(set(vals)), dtype=float)
+
+
+def _check_options(scheme, length, punishments, deltas, partial, growth, simulate_flag, agreement,
+                   prefix: str = "assess") -> dict:
+    scheme = Options(*SCHEME_NAMES).check(f"{prefix}.scheme", scheme)
+    Ts = _list_of(f"{prefix}.punishments", punishments, Integer(1, 10_000))
+    if scheme == "finite":
+        if length is None:
+            raise InputError(f"{prefix}.length", "missing: the punishment length T of scheme = 'finite'")
+        length = Integer(1, 10_000).check(f"{prefix}.length", length)
+        if length not in Ts:
+            Ts = [*Ts, length]
+    elif length is not None:
+        raise InputError(f"{prefix}.length", f"only used with scheme = 'finite', not {scheme!r}")
+    Ts = sorted(set(Ts))
+    ds = _list_of(f"{prefix}.deltas", deltas, Real(0, 1, closed="neither"))
+    parts = _list_of(f"{prefix}.partial", partial, Options(*SCHEME_NAMES))
+    if "finite" in parts and not Ts:
+        raise InputError(f"{prefix}.partial", "'finite' needs at least one punishment length in assess.punishments")
+    growth = Real(0, 1, closed="neither").check(f"{prefix}.growth", growth)
+    simulate_flag = Boolean().check(f"{prefix}.simulate", simulate_flag)
+    if agreement not in AGREEMENTS:
+        raise InputError("collusion.agreement", f"must be one of {', '.join(map(repr, AGREEMENTS))} (agreed actions "
+                                                f"do not carry over to the post-merger market), got {agreement!r}")
+    return {"scheme": scheme, "length": length, "punishments": Ts, "deltas": sorted(set(ds)),
+            "partial": list(dict.fromkeys(parts)), "growth": growth, "simulate": simulate_flag,
+            "agreement": agreement}
+
+
+def _check_sensitivity(sens, data, prefix: str = "assess.sensitivity") -> dict:
+    if sens is None:
+        return {}
+    if not isinstance(sens, dict):
+        raise InputError(prefix, f"must be a table, got {sens!r}")
+    for k in sens:
+        if k not in _SENS_KEYS:
+            raise InputError(f"{prefix}.{k}", f"unknown key; allowed: {', '.join(_SENS_KEYS)}")
+    out = {}
+    for name in SENSITIVITY_INPUTS:
+        if name not in sens:
+            continue
+        if data is None:
+            raise InputError(f"{prefix}.{name}", "varies a calibration input, so the market must come from a [data] "
+                                                 "table of observations (not a [market] table)")
+        element = {"margin": Real(0, 1, closed="neither"), "size": Real(0, None, closed="neither")}.get(
+            name, Real(None, 0, closed="neither"))
+        vals = _range(f"{prefix}.{name}", sens[name], element)
+        if name == "size":
+            if data.demand != "logit":
+                raise InputError(f"{prefix}.size", "the potential market size is an input of logit demand only")
+            sold = float(data.validated("data")["quantities"].sum())
+            if vals[0] <= sold:
+                raise InputError(f"{prefix}.size", f"every potential market size must exceed the quantities sold "
+                                                   f"({sold:g}), got {vals[0]:g}")
+        # every value must give valid data (a homogeneous good has no per-product own elasticity, ...)
+        try:
+            data.with_input(name, float(vals[0])).validated("data")
+        except InputError as exc:
+            raise InputError(f"{prefix}.{name}", exc.message) from None
+        out[name] = vals
+    if "delta" in sens:
+        out["delta"] = _range(f"{prefix}.delta", sens["delta"], Real(0, 1, closed="neither"))
+    if "noise" in sens:
+        out["noise"] = _range(f"{prefix}.noise", sens["noise"], Real(0, 100))
+    return out
+
+
+# --------------------------------------------------------------------------------------------------
+# Progress
+# --------------------------------------------------------------------------------------------------
+
+
+class _Progress:
+    def __init__(self, total: int, enabled):
+        if enabled is None:
+            enabled = sys.stderr.isatty()
+        self.bar = None
+        if enabled:
+            from tqdm import tqdm
+
+            self.bar = tqdm(total=total, desc="assess", unit="step", leave=False, file=sys.stderr)
+
+    def step(self, what: str = "") -> None:
+        if self.bar is not None:
+            if what:
+                self.bar.set_postfix_str(what, refresh=False)
+            self.bar.update(1)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
+
+
+# --------------------------------------------------------------------------------------------------
+# The assessment
+# --------------------------------------------------------------------------------------------------
+
+
+def _lineup_entries(lineup, n_firms: int) -> list:
+    """Expand ``[[strategies]]`` entries into one entry per firm (validated)."""
+    from strategies.registry import lineup_from_tables
+
+    if lineup is None:
+        return [{"strategy": "grim_trigger"} for _ in range(n_firms)]
+    if not isinstance(lineup, list) or not lineup or not all(isinstance(e, dict) for e in lineup):
+        raise InputError("strategies", "must be a non-empty list of [[strategies]] entries")
+    lineup_from_tables(lineup, n_firms, "strategies")
+    out = []
+    for e in lineup:
+        seats = int(e.get("seats", 1))
+        out.extend({k: v for k, v in e.items() if k != "seats"} for _ in range(seats))
+    return out
+
+
+def _scaled(mon, k: float):
+    from .monitoring import Monitoring
+
+    p = mon.validated()
+    return Monitoring(signal=p["signal"], noise=p["noise"], sigma=min(10.0, p["sigma"] * k),
+                      perception_error=min(1.0, p["perception_error"] * k),
+                      implementation_error=min(1.0, p["implementation_error"] * k))
+
+
+def _has_noise(mon) -> bool:
+    p = mon.validated()
+    return p["sigma"] > 0 or p["perception_error"] > 0 or p["implementation_error"] > 0
+
+
+def _rank(x: float) -> float:
+    """Thresholds for comparison: not sustainable ranks above every number."""
+    return math.inf if x is None or not math.isfinite(x) else float(x)
+
+
+def _compare(before: float, after: float) -> str:
+    a, b = _rank(before), _rank(after)
+    if a == b or (math.isfinite(a) and math.isfinite(b) and abs(a - b) <= _TOL):
+        return "unchanged"
+    return "easier" if b < a else "harder"
+
+
+def _sustains(th: float, delta: float) -> bool:
+    return bool(math.isfinite(_rank(th)) and delta >= th - 1e-15)
+
+
+def _category(pre: bool, post: bool) -> str:
+    return {(True, True): "both", (False, False): "neither", (False, True): "after only",
+            (True, False): "before only"}[(pre, post)]
+
+
+CATEGORY_TEXT = {
+    "both": "sustainable before and after the merger",
+    "neither": "sustainable neither before nor after the merger",
+    "after only": "sustainable only after the merger",
+    "before only": "sustainable only before the merger",
+}
+
+
+def assess(source, merger, monitoring=None, lineup=None, run=None, agreement: str = "joint", scheme: str = "grim",
+           length: int | None = None, punishments=(1, 2, 3), deltas=(0.5, 0.6, 0.7, 0.8, 0.9),
+           partial=("grim", "finite"), growth: float = 0.02, simulate: bool = True, sensitivity: dict | None = None,
+           progress=None, key=()) -> Assessment:
+    """Compare the scope for tacit collusion before and after a merger.
+
+    Parameters
+    ----------
+    source : Market or MarketData
+        The pre-merger market, or observed data to calibrate it from.
+    merger : Merger
+    monitoring : Monitoring or dict, optional
+        What firms observe and the noise around it (default: perfect monitoring, no noise); used by
+        the simulations.
+    lineup : list of dict, optional
+        ``[[strategies]]`` entries for the pre-merger firms (default: grim trigger for every firm).
+        After the merger the merged firm plays the strategy of the lowest-numbered merging firm.
+    run : dict, optional
+        Simulation settings (``periods``, ``replications``, ``horizon``, ``continuation``, ``delta``,
+        ``seed``, ``paths``); ``delta`` is also the headline discount factor.
+    agreement : {"joint", "symmetric", "proportional"}
+        The collusive outcome in each market.
+    scheme : {"grim", "finite", "stick_carrot"}
+        The punishment scheme of the headline comparison (``finite`` with ``length``).
+    length : int, optional
+        Punishment length T of the headline scheme ``finite``.
+    punishments : sequence of int
+        Lengths T of finite Nash reversion to report.
+    deltas : sequence of float
+        Discount factors at which to report partial collusion.
+    partial : sequence of str
+        Schemes whose partial collusion is reported (``stick_carrot`` costs several seconds per
+        discount factor).
+    growth : float in (0, 1)
+        Demand growth (and decline) rate per period in the factor table.
+    simulate : bool
+        Whether to run the simulations (persistence, the transparency factor, noise sensitivity).
+    sensitivity : dict, optional
+        Ranges of the uncertain inputs: ``margin``, ``elasticity``, ``market_elasticity`` (calibration
+        inputs, with data), ``delta``, ``noise`` (a scale factor of every monitoring noise
+        parameter; 1 is the experiment's noise); each a list of values or a range
+        ``{"start": a, "stop": b, "num": k}`` (or ``"step"`` instead of ``"num"``).
+    progress : bool, optional
+        Progress bar on stderr (default: only when stderr is a terminal).
+    key : tuple of int
+        Prefix of the simulations' stream keys (a sweep cell passes its own key): the simulations
+        before and after use ``key + (0,)`` and ``key + (1,)``, the doubled noise ``key + (2, 0|1)``,
+        noise sensitivity point ``j`` ``key + (3, j, 0|1)``.
+
+    Returns
+    -------
+    Assessment
+    """
+    prepared = prepare_assessment(source, merger, monitoring=monitoring, lineup=lineup, run=run, agreement=agreement,
+                                  scheme=scheme, length=length, punishments=punishments, deltas=deltas,
+                                  partial=partial, growth=growth, simulate=simulate, sensitivity=sensitivity)
+    return run_assessment(prepared, progress=progress, key=key)
+
+
+@dataclass
+class PreparedAssessment:
+    """Everything :func:`assess` validated before the work starts (see :func:`prepare_assessment`)."""
+
+    opts: dict
+    data: Any
+    calibration: Any
+    merger: Any
+    mres: Any
+    monitoring: Any
+    runs: dict
+    sens: dict
+    entries: list
+    post_entries: list
+    games: dict
+    effective_delta: float
+    settings: dict
+
+
+def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, agreement: str = "joint",
+                       scheme: str = "grim", length: int | None = None, punishments=(1, 2, 3),
+                       deltas=(0.5, 0.6, 0.7, 0.8, 0.9), partial=("grim", "finite"), growth: float = 0.02,
+                       simulate: bool = True, sensitivity: dict | None = None) -> PreparedAssessment:
+    """Validate the inputs of :func:`assess` (same parameters), calibrate, build the post-merger market and
+    compile the line-ups; raises :class:`InputError` naming the field. No threshold or simulation is
+    computed yet."""
+    from .calibration import MarketData, calibrate
+    from .engine import RUN_DEFAULTS, check_run, prepare_game
+    from .market import Market
+    from .merger import Merger, merge
+    from .monitoring import Monitoring, monitoring_from_dict
+
+    opts = _check_options(scheme, length, punishments, deltas, partial, growth, simulate, agreement)
+    data = None
+    calibration = None
+    if isinstance(source, MarketData):
+        data = source
+        calibration = calibrate(data)
+        pre = calibration.market
+    elif isinstance(source, Market):
+        source.spec("market")
+        pre = source
+    else:
+        raise InputError("market", f"give a Market or MarketData, got {type(source).__name__}")
+    if not isinstance(merger, Merger):
+        raise InputError("merger", f"must be a Merger, got {type(merger).__name__}")
+    if monitoring is None:
+        mon = Monitoring()
+    elif isinstance(monitoring, dict):
+        mon = monitoring_from_dict(monitoring)
+    elif isinstance(monitoring, Monitoring):
+        mon = monitoring
+        mon.validated()
+    else:
+        raise InputError("monitoring", f"must be a Monitoring or a table, got {monitoring!r}")
+    runs = dict(RUN_DEFAULTS)
+    runs.update({"periods": 500, "replications": 500})
+    if run is not None:
+        if not isinstance(run, dict):
+            raise InputError("run", f"must be a table, got {run!r}")
+        for k in run:
+            if k not in RUN_DEFAULTS:
+                raise InputError(f"run.{k}", f"unknown key; allowed: {', '.join(RUN_DEFAULTS)}")
+        runs.update(run)
+    pre_ms = pre.spec()
+    runs = check_run(n_products=pre_ms.n_products, **runs)
+    sens = _check_sensitivity(sensitivity, data)
+    mres = merge(pre, merger)
+    entries = _lineup_entries(lineup, pre_ms.n_firms)
+    if lineup is None and mon.validated()["signal"] == "price":
+        raise InputError("strategies", "with monitoring.signal = 'price' give a line-up of price-watching "
+                                       "strategies (for example trigger_price) as [[strategies]] entries")
+    post_entries = [entries[i] for i in range(pre_ms.n_firms) if i not in mres.merging[1:]]
+    games = {}
+    if opts["simulate"]:
+        for label, mk, ent in (("before", pre, entries), ("after", mres.post, post_entries)):
+            try:
+                games[label] = prepare_game(mk, ent, mon, opts["agreement"])
+            except InputError as exc:
+                if label == "after" and exc.key.startswith("strategies"):
+                    raise InputError(exc.key, f"{exc.message} (in the post-merger line-up)") from None
+                raise
+    eff_delta = runs["delta"] * (runs["continuation"] if runs["horizon"] == "random" else 1.0)
+    settings = {
+        "scheme": opts["scheme"], "length": opts["length"], "punishments": opts["punishments"],
+        "deltas": opts["deltas"], "partial": opts["partial"], "growth": opts["growth"],
+        "simulate": opts["simulate"], "agreement": opts["agreement"], "run": runs,
+        "effective_delta": eff_delta, "monitoring": mon.to_dict(), "lineup": entries,
+        "lineup_after": post_entries,
+        "sensitivity": {k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in sens.items()},
+        "merger": {"firms": [mres.names_pre[i] for i in mres.merging], "efficiency": mres.efficiency,
+                   "cost": merger.cost},
+    }
+
+    return PreparedAssessment(opts, data, calibration, merger, mres, mon, runs, sens, entries, post_entries, games,
+                              eff_delta, settings)
+
+
+def run_assessment(p: PreparedAssessment, progress=None, key=()) -> Assessment:
+    """Compute a prepared assessment (see :func:`assess`)."""
+    from .engine import prepare_game
+
+    opts, data, calibration, merger, mres = p.opts, p.data, p.calibration, p.merger, p.mres
+    mon, runs, sens, entries, post_entries, games = p.monitoring, p.runs, p.sens, p.entries, p.post_entries, p.games
+    eff_delta, settings = p.effective_delta, p.settings
+    pre = mres.pre
+    key = tuple(int(k) for k in key)
+    n_sens = sum(len(sens[k]) for k in SENSITIVITY_INPUTS if k in sens)
+    n_noise = len(sens.get("noise", [])) if opts["simulate"] else 0
+    n_delta = len(sens.get("delta", [])) if "delta" in sens else 0
+    total = 2 * (2 + len(opts["deltas"])) + (4 if opts["simulate"] else 0) + 3 + n_sens + n_noise + n_delta
+    bar = _Progress(total, progress)
+    try:
+        sides = {}
+        for label, mk, names in (("before", pre, mres.names_pre), ("after", mres.post, mres.names_post)):
+            sides[label] = _side(label, mk, names, opts, bar)
+        if opts["simulate"]:
+            for j, label in enumerate(("before", "after")):
+                sides[label].simulation = _run(games[label], runs, key=key + (j,))
+                bar.step(f"simulate {label}")
+            if _has_noise(mon):
+                for j, (label, mk, ent) in enumerate((("before", pre, entries), ("after", mres.post, post_entries))):
+                    g2 = prepare_game(mk, ent, _scaled(mon, 2.0), opts["agreement"], strict=False)
+                    sides[label].noisier = _run(g2, runs, key=key + (2, j))
+                    bar.step(f"simulate {label}, doubled noise")
+            else:
+                bar.step()
+                bar.step()
+        before, after = sides["before"], sides["after"]
+        conclusion = _conclusion(before, after, opts, eff_delta, mres)
+        factors = _factors(pre, mres, before, after, opts, eff_delta, mon, bar)
+        sensitivity_out = _sensitivity(data, merger, sens, opts, runs, mon, entries, post_entries, before, after,
+                                       eff_delta, bar, key)
+        if sensitivity_out:
+            conclusion["robustness"] = _robustness(sensitivity_out, conclusion)
+    finally:
+        bar.close()
+    assumptions = _assumptions(calibration, mres, opts, runs, mon, entries)
+    return Assessment(settings, calibration, mres, before, after, conclusion, factors, sensitivity_out, assumptions)
+
+
+def _side(label: str, market, names: list, opts: dict, bar: _Progress) -> MarketSide:
+    from .equilibrium import stage_game
+    from .thresholds import critical_discount_factors, partial_collusion
+
+    st = stage_game(market, opts["agreement"])
+    bar.step(f"stage game {label}")
+    rep = critical_discount_factors(market, punishments=opts["punishments"], deltas=(), stage=st)
+    bar.step(f"thresholds {label}")
+    parts = []
+    for d in opts["deltas"]:
+        for sch in opts["partial"]:
+            if sch == "finite":
+                parts.extend(partial_collusion(market, d, "finite", T=T, stage=st) for T in opts["punishments"])
+            else:
+                parts.append(partial_collusion(market, d, sch, stage=st))
+        bar.step(f"partial collusion {label}, delta {d:g}")
+    return MarketSide(label, market, list(names), rep, parts, asymmetry(market, st.nash))
+
+
+def _run(game, runs: dict, key) -> Any:
+    from .engine import run_game
+    from .metrics import summarize
+
+    raw = run_game(game, runs["periods"], runs["replications"], runs["delta"], runs["seed"], key, runs["horizon"],
+                   runs["continuation"], runs["paths"], None, False)
+    return summarize(raw, game, runs, confidence=0.95, baseline=False)
+
+
+def _headline(side: MarketSide, opts: dict):
+    return side.scheme(opts["scheme"], opts["length"])
+
+
+def _scheme_label(opts: dict) -> str:
+    if opts["scheme"] == "finite":
+        return f"Nash reversion for {opts['length']} periods"
+    return SCHEME_NAMES[opts["scheme"]]
+
+
+def _none(x):
+    return None if x is None or not math.isfinite(x) else float(x)
+
+
+def _conclusion(before: MarketSide, after: MarketSide, opts: dict, delta: float, mres) -> dict:
+    hb, ha = _headline(before, opts), _headline(after, opts)
+    direction = _compare(hb.market, ha.market)
+    sb, sa = _sustains(hb.market, delta), _sustains(ha.market, delta)
+    cat = _category(sb, sa)
+    out = {
+        "scheme": _scheme_label(opts), "threshold_before": _none(hb.market), "threshold_after": _none(ha.market),
+        "change": (_none(ha.market - hb.market) if hb.sustainable and ha.sustainable else None),
+        "direction": direction, "binding_before": before.names[hb.binding], "binding_after": after.names[ha.binding],
+        "delta": delta, "sustainable_before": sb, "sustainable_after": sa, "category": cat,
+        "schemes": [],
+    }
+    rows = [("grim", None)] + [("finite", f.T) for f in before.report.finite] + [("stick_carrot", None)]
+    for sch, T in rows:
+        b, a = before.scheme(sch, T), after.scheme(sch, T)
+        out["schemes"].append({
+            "scheme": SCHEME_NAMES[sch] + (f", T={T}" if T else ""), "before": _none(b.market),
+            "after": _none(a.market), "binding_before": before.names[b.binding],
+            "binding_after": after.names[a.binding], "direction": _compare(b.market, a.market),
+            "sustainable_before": _sustains(b.market, delta), "sustainable_after": _sustains(a.market, delta)})
+    if before.simulation is not None and after.simulation is not None:
+        eb, ea = before.simulation.metrics["collusive_share"], after.simulation.metrics["collusive_share"]
+        diff = ea.value - eb.value
+        se = math.sqrt(eb.se ** 2 + ea.se ** 2) if math.isfinite(eb.se) and math.isfinite(ea.se) else math.nan
+        z = 1.959963984540054
+        sig = bool(math.isfinite(se) and abs(diff) > z * se) if se > 0 else bool(diff != 0)
+        out["persistence"] = {
+            "collusive_share_before": eb.value, "collusive_share_after": ea.value, "difference": diff,
+            "difference_se": se, "difference_low": diff - z * se if math.isfinite(se) else None,
+            "difference_high": diff + z * se if math.isfinite(se) else None,
+            "significant": sig,
+            "direction": ("unchanged" if not sig else ("more persistent" if diff > 0 else "less persistent")),
+        }
+    verb = {"easier": "lowers", "harder": "raises", "unchanged": "does not change"}[direction]
+    txt = (f"Under the stated assumptions the merger {verb} the critical discount factor of {out['scheme']} "
+           f"(binding firm before: {out['binding_before']}; after: {out['binding_after']}): "
+           f"{_fmt(hb.market)} before, {_fmt(ha.market)} after. At the discount factor {delta:.4g} collusion is "
+           f"{CATEGORY_TEXT[cat]}.")
+    if "persistence" in out:
+        p = out["persistence"]
+        txt += (f" In the simulations the share of collusive periods is {p['collusive_share_before']:.4f} before and "
+                f"{p['collusive_share_after']:.4f} after (difference {p['difference']:+.4f}"
+                + (f", 95% CI [{p['difference_low']:+.4f}, {p['difference_high']:+.4f}]" if p["difference_low"]
+                   is not None else "") + ").")
+    out["statement"] = txt
+    return out
+
+
+def _fmt(x) -> str:
+    return "not sustainable below one" if x is None or not math.isfinite(x) else f"{x:.4f}"
+
+
+# --------------------------------------------------------------------------------------------------
+# Factor table
+# --------------------------------------------------------------------------------------------------
+
+
+def _direction_from(base: float, varied: float, lower_is_easier: bool = True) -> str:
+    """'facilitates' when the varied setting makes collusion easier than the base."""
+    c = _compare(base, varied) if lower_is_easier else _compare(-base, -varied)
+    return {"easier": "facilitates", "harder": "hinders", "unchanged": "no effect"}[c]
+
+
+def _combine(dirs: list) -> str:
+    dirs = [d for d in dirs if d not in (None, "not computed")]
+    if not dirs:
+        return "not computed"
+    return dirs[0] if all(d == dirs[0] for d in dirs) else "mixed"
+
+
+def _scheme_threshold(market, opts) -> float:
+    from .thresholds import critical_discount_factors
+
+    rep = critical_discount_factors(market, punishments=opts["punishments"], deltas=(), agreement=opts["agreement"])
+    if opts["scheme"] == "grim":
+        return rep.grim.market
+    if opts["scheme"] == "stick_carrot":
+        return rep.stick_carrot.market
+    return next(f for f in rep.finite if f.T == opts["length"]).market
+
+
+def _factors(pre, mres, before: MarketSide, after: MarketSide, opts: dict, delta: float, mon, bar) -> list:
+    rows = []
+    measure = f"critical discount factor ({_scheme_label(opts)})"
+    pre_ms = pre.spec()
+
+    def row(name, varied, measure_, vals, direction, note=""):
+        iv_dir, iv_text = IVALDI[name]
+        agrees = None if direction in ("not computed", "mixed") else direction == iv_dir
+        rows.append({"factor": name, "varied": varied, "measure": measure_, "values": vals,
+                     "model_direction": direction, "ivaldi_direction": iv_dir, "ivaldi": iv_text,
+                     "agrees": agrees, "note": note})
+
+    # number of firms: the symmetric counterpart with one product fewer
+    n = pre_ms.n_products
+    try:
+        t_n = _scheme_threshold(symmetric_counterpart(pre, n), opts)
+        t_m = _scheme_threshold(symmetric_counterpart(pre, n - 1), opts) if n > 2 else math.nan
+        dirn = _direction_from(t_n, t_m) if n > 2 else "not computed"
+        row("number of firms", f"symmetric counterpart of the pre-merger market: {n} vs {n - 1} single-product firms",
+            measure, {"base": _none(t_n), "varied": _none(t_m), "base_label": f"{n} firms",
+                      "varied_label": f"{n - 1} firms"}, dirn,
+            "fewer firms" + (" lower" if dirn == "facilitates" else " do not lower") + " the threshold"
+            if n > 2 else "a duopoly has no symmetric counterpart with fewer firms")
+    except (InputError, SolverError) as exc:
+        row("number of firms", "symmetric counterpart", measure, {}, "not computed", str(exc))
+    bar.step("factors: number of firms")
+
+    # symmetry: each side against its counterpart with costs and demand made alike
+    vals, dirs, notes = {}, [], []
+    for side in (before, after):
+        try:
+            sym = symmetric_counterpart(side.market, keep_owner=True)
+            t_act = _headline(side, opts).market
+            a_ms, s_ms = side.market.spec(), sym.spec()
+            if (np.array_equal(a_ms.cost, s_ms.cost) and np.array_equal(a_ms.demand.vector, s_ms.demand.vector)
+                    and np.array_equal(a_ms.capacity, s_ms.capacity)):
+                vals[side.label] = {"actual": _none(t_act), "symmetric": _none(t_act)}
+                dirs.append("not computed")
+                notes.append(f"{side.label}: costs and demand are already symmetric"
+                             + (" (ownership is not)" if a_ms.multi_product else ""))
+                continue
+            t_sym = _scheme_threshold(sym, opts)
+            d_ = _direction_from(t_act, t_sym)
+            vals[side.label] = {"actual": _none(t_act), "symmetric": _none(t_sym)}
+            dirs.append(d_)
+            if side.market.owner is not None:
+                notes.append(f"{side.label}: cost and demand asymmetries removed, ownership asymmetry kept")
+        except (InputError, SolverError) as exc:
+            vals[side.label] = {}
+            notes.append(f"{side.label}: {exc}")
+    row("symmetry", "each market against its counterpart with mean costs, mean qualities or intercepts and equal "
+                    "capacities and shares", measure, vals, _combine(dirs), "; ".join(notes))
+    bar.step("factors: symmetry")
+
+    # transparency: simulated persistence at the experiment's noise and at twice that noise
+    if before.noisier is not None:
+        vals, dirs = {}, []
+        for side in (before, after):
+            e1 = side.simulation.metrics["collusive_share"]
+            e2 = side.noisier.metrics["collusive_share"]
+            vals[side.label] = {"noise": e1.value, "noise_ci": [e1.low, e1.high], "doubled_noise": e2.value,
+                                "doubled_noise_ci": [e2.low, e2.high]}
+            se = math.sqrt(e1.se ** 2 + e2.se ** 2)
+            if not math.isfinite(se) or abs(e1.value - e2.value) <= 1.959963984540054 * se:
+                dirs.append("no effect")
+            else:
+                dirs.append("facilitates" if e1.value > e2.value else "hinders")
+        row("transparency", "monitoring noise (demand-shock sigma, perception and implementation errors) doubled",
+            "simulated share of collusive periods (95% CI)", vals, _combine(dirs),
+            "less noise means more transparency; 'no effect' when the difference is within 1.96 standard errors")
+    else:
+        why = ("the experiment's monitoring has no noise to vary" if settings_noise_free(mon)
+               else "simulations were not run (assess.simulate = false)")
+        row("transparency", "monitoring noise", "simulated share of collusive periods", {}, "not computed", why)
+
+    # frequency of interaction: per-period discount factor delta^(1/k) when firms meet k times as often
+    vals, dirs = {}, []
+    for side in (before, after):
+        t = _headline(side, opts).market
+        if math.isfinite(_rank(t)) and 0 < t < 1 and 0 < delta < 1:
+            gap = math.log(t) / math.log(delta)
+            vals[side.label] = {"threshold": t, "longest_interval": gap,
+                                "sustainable_half_as_often": _sustains(t, delta ** 2),
+                                "sustainable": _sustains(t, delta),
+                                "sustainable_twice_as_often": _sustains(t, math.sqrt(delta))}
+            dirs.append("facilitates")
+        elif math.isfinite(_rank(t)) and t == 0:
+            vals[side.label] = {"threshold": 0.0, "longest_interval": math.inf}
+            dirs.append("no effect")
+        else:
+            vals[side.label] = {"threshold": _none(t)}
+            dirs.append("no effect")
+    row("frequency of interaction", "firms interact k times as often: the discount factor per interaction becomes "
+                                    "delta^(1/k)", "longest interval between interactions (in periods) that still "
+                                                   "sustains collusion: ln(threshold) / ln(delta)",
+        vals, _combine(dirs), "the thresholds are per interaction; more frequent interaction raises the discount "
+                              "factor per interaction (a structural property of the model)")
+
+    # demand growth: profits growing at rate g make the effective discount factor delta (1 + g)
+    g = opts["growth"]
+    vals, dirs = {}, []
+    for side in (before, after):
+        t = _headline(side, opts).market
+        up, down = min(delta * (1 + g), 1.0 - 1e-15), delta * (1 - g)
+        vals[side.label] = {"threshold": _none(t), "growth_needed": (t / delta - 1.0) if math.isfinite(_rank(t))
+                            and delta > 0 else None,
+                            "sustainable_declining": _sustains(t, down), "sustainable": _sustains(t, delta),
+                            "sustainable_growing": _sustains(t, up)}
+        dirs.append("facilitates" if math.isfinite(_rank(t)) else "no effect")
+    row("demand growth", f"demand growing (declining) by {g:g} per period: effective discount factor delta (1 +/- g)",
+        "growth per period needed for sustainability, threshold / delta - 1 (negative: the decline tolerated)",
+        vals, _combine(dirs), "assumes every stage profit scales with demand (true of the shipped demand systems when "
+                              "quantities scale; capacities grow with demand)")
+    bar.step("factors")
+    return rows
+
+
+def settings_noise_free(mon) -> bool:
+    return not _has_noise(mon)
+
+
+# --------------------------------------------------------------------------------------------------
+# Sensitivity
+# --------------------------------------------------------------------------------------------------
+
+
+def _flips(x: np.ndarray, y: np.ndarray) -> list:
+    """Where ``y`` changes sign: between consecutive finite non-zero values of opposite signs (linear
+    interpolation); zeros carry no sign and are skipped."""
+    pts = [(float(a), float(b)) for a, b in zip(x, y) if math.isfinite(b) and b != 0]
+    out = []
+    for (x0, y0), (x1, y1) in itertools.pairwise(pts):
+        if y0 * y1 < 0:
+            out.append(x0 + (x1 - x0) * y0 / (y0 - y1))
+    return out
+
+
+def _signed_change(before: float, after: float) -> float:
+    """After minus before, with 'not sustainable' as +1 beyond one: for locating flips."""
+    b = before if math.isfinite(_rank(before)) else 2.0
+    a = after if math.isfinite(_rank(after)) else 2.0
+    return a - b
+
+
+def _sensitivity(data, merger, sens: dict, opts: dict, runs: dict, mon, entries, post_entries, before, after,
+                 delta: float, bar, key=()) -> dict:
+    from .calibration import calibrate
+    from .engine import prepare_game
+    from .merger import merge
+    from .thresholds import partial_collusion
+
+    out = {}
+    for name in SENSITIVITY_INPUTS:
+        if name not in sens:
+            continue
+        xs = sens[name]
+        pre_t, post_t, status = [], [], []
+        binding_pre, binding_post = [], []
+        for x in xs:
+            try:
+                cal = calibrate(data.with_input(name, float(x)))
+                mr = merge(cal.market, merger)
+                tb = _scheme_threshold_full(cal.market, opts)
+                ta = _scheme_threshold_full(mr.post, opts)
+                pre_t.append(tb[0])
+                post_t.append(ta[0])
+                binding_pre.append(mr.names_pre[tb[1]])
+                binding_post.append(mr.names_post[ta[1]])
+                status.append("ok")
+            except (InputError, SolverError) as exc:
+                pre_t.append(math.nan)
+                post_t.append(math.nan)
+                binding_pre.append(None)
+                binding_post.append(None)
+                status.append(f"infeasible: {exc}")
+            bar.step(f"sensitivity {name} {x:g}")
+        ok = np.array([s == "ok" for s in status])
+        change = np.array([_signed_change(b, a) if k else math.nan for b, a, k in zip(pre_t, post_t, ok)])
+        observed = _observed_input(data, name)
+        out[name] = {
+            "values": np.asarray(xs).tolist(), "observed": observed, "threshold_before": [_none(v) for v in pre_t],
+            "threshold_after": [_none(v) for v in post_t], "binding_before": binding_pre,
+            "binding_after": binding_post, "status": status,
+            "direction": [_compare(b, a) if k else None for b, a, k in zip(pre_t, post_t, ok)],
+            "flips": _flips(np.asarray(xs), change),
+            "category_at_delta": [_category(_sustains(b, delta), _sustains(a, delta)) if k else None
+                                  for b, a, k in zip(pre_t, post_t, ok)],
+            "category_flips": _category_flips(np.asarray(xs), pre_t, post_t, ok, delta),
+        }
+        fin = [t for t in pre_t + post_t if math.isfinite(_rank(t))]
+        if ok.all() and fin and _flat(pre_t) and _flat(post_t):
+            out[name]["note"] = (f"the thresholds do not depend on {name} here: with the observed shares held fixed, "
+                                 f"{name} only rescales every price-cost markup and profit by a common factor, which "
+                                 "leaves every ratio of profits, and so every critical discount factor, unchanged")
+    if "delta" in sens:
+        ds = sens["delta"]
+        sch = opts["scheme"] if opts["scheme"] != "stick_carrot" else "grim"
+        gains = {"before": [], "after": []}
+        for d in ds:
+            for side in (before, after):
+                p = partial_collusion(side.market, float(d), sch, T=opts["length"] if sch == "finite" else None,
+                                      stage=side.report.stage)
+                gains[side.label].append(p.profit_gain)
+            bar.step(f"sensitivity delta {d:g}")
+        hb, ha = _headline(before, opts).market, _headline(after, opts).market
+        out["delta"] = {
+            "values": np.asarray(ds).tolist(), "scheme": SCHEME_NAMES[sch] + (f", T={opts['length']}"
+                                                                              if sch == "finite" else ""),
+            "profit_gain_before": gains["before"], "profit_gain_after": gains["after"],
+            "category": [_category(_sustains(hb, d), _sustains(ha, d)) for d in ds],
+            "threshold_before": _none(hb), "threshold_after": _none(ha),
+            "flips": sorted({float(t) for t in (hb, ha) if math.isfinite(_rank(t))
+                             and ds[0] <= t <= ds[-1]}),
+        }
+        if sch != opts["scheme"]:
+            out["delta"]["note"] = "partial collusion shown for grim trigger (stick and carrot is too slow to sweep)"
+    if "noise" in sens and opts["simulate"]:
+        ks = sens["noise"]
+        res = {"before": [], "after": []}
+        for j, k in enumerate(ks):
+            for i, (label, mk, ent) in enumerate((("before", before.market, entries),
+                                                  ("after", after.market, post_entries))):
+                g = prepare_game(mk, ent, _scaled(mon, float(k)), opts["agreement"], strict=False)
+                e = _run(g, runs, key=tuple(key) + (3, j, i)).metrics["collusive_share"]
+                res[label].append(e)
+            bar.step(f"sensitivity noise x{k:g}")
+        diff = np.array([a.value - b.value for a, b in zip(res["after"], res["before"])])
+        out["noise"] = {
+            "scales": np.asarray(ks).tolist(),
+            "monitoring": [_scaled(mon, float(k)).to_dict() for k in ks],
+            "collusive_share_before": [e.value for e in res["before"]],
+            "collusive_share_before_ci": [[e.low, e.high] for e in res["before"]],
+            "collusive_share_after": [e.value for e in res["after"]],
+            "collusive_share_after_ci": [[e.low, e.high] for e in res["after"]],
+            "difference": diff.tolist(), "flips": _flips(np.asarray(ks), diff),
+        }
+    return out
+
+
+def _flat(ts, tol: float = 1e-9) -> bool:
+    r = [_rank(t) for t in ts]
+    if all(math.isinf(x) for x in r):
+        return True
+    if any(math.isinf(x) for x in r):
+        return False
+    return max(r) - min(r) <= tol
+
+
+def _scheme_threshold_full(market, opts) -> tuple[float, int]:
+    from .thresholds import critical_discount_factors
+
+    rep = critical_discount_factors(market, punishments=opts["punishments"], deltas=(), agreement=opts["agreement"])
+    if opts["scheme"] == "grim":
+        s = rep.grim
+    elif opts["scheme"] == "stick_carrot":
+        s = rep.stick_carrot
+    else:
+        s = next(f for f in rep.finite if f.T == opts["length"])
+    return s.market, s.binding
+
+
+def _category_flips(xs, pre_t, post_t, ok, delta) -> list:
+    """Input values between which the category at the headline delta changes (midpoints)."""
+    cats = [_category(_sustains(b, delta), _sustains(a, delta)) if k else None for b, a, k in zip(pre_t, post_t, ok)]
+    out = []
+    for k in range(len(xs) - 1):
+        if cats[k] is not None and cats[k + 1] is not None and cats[k] != cats[k + 1]:
+            out.append({"between": [float(xs[k]), float(xs[k + 1])], "from": cats[k], "to": cats[k + 1]})
+    return out
+
+
+def _observed_input(data, name: str):
+    if name == "size":
+        return float(data.validated("data")["size"])
+    v = getattr(data, name)
+    if v is None:
+        return None
+    if isinstance(v, list | tuple | np.ndarray):
+        return None
+    return float(v)
+
+
+def _robustness(sens: dict, conclusion: dict) -> dict:
+    out = {}
+    for name in SENSITIVITY_INPUTS:
+        if name not in sens:
+            continue
+        s = sens[name]
+        dirs = [d for d in s["direction"] if d is not None]
+        xs = s["values"]
+        same = all(d == conclusion["direction"] for d in dirs) and bool(dirs)
+        if not dirs:
+            text = f"no value of {name} in [{xs[0]:g}, {xs[-1]:g}] gave a valid calibration"
+        elif same and not s["flips"]:
+            text = (f"the merger's effect on the threshold ({conclusion['direction']}) holds over the whole range of "
+                    f"{name}, [{xs[0]:g}, {xs[-1]:g}]")
+        else:
+            where = ", ".join(f"{x:.4g}" for x in s["flips"]) or "between grid points"
+            text = (f"the merger's effect on the threshold changes sign over {name} in [{xs[0]:g}, {xs[-1]:g}], "
+                    f"at {where}")
+        if s["category_flips"]:
+            text += "; at the discount factor {:.4g} the conclusion changes ".format(conclusion["delta"]) + "; ".join(
+                f"from '{c['from']}' to '{c['to']}' between {c['between'][0]:.4g} and {c['between'][1]:.4g}"
+                for c in s["category_flips"])
+        infeasible = sum(1 for st in s["status"] if st != "ok")
+        if infeasible:
+            text += f" ({infeasible} of {len(xs)} values gave no valid calibration)"
+        out[name] = text
+    if "delta" in sens:
+        fl = sens["delta"]["flips"]
+        out["delta"] = ("the conclusion at a given discount factor changes at " + ", ".join(f"{x:.4g}" for x in fl)
+                        if fl else "no threshold lies within the range of discount factors examined")
+    if "noise" in sens:
+        fl = sens["noise"]["flips"]
+        out["noise"] = ("the ordering of simulated persistence (after minus before) changes sign at noise scale "
+                        + ", ".join(f"{x:.4g}" for x in fl) if fl else
+                        "the ordering of simulated persistence does not change over the noise range examined")
+    return out
+
+
+# --------------------------------------------------------------------------------------------------
+# Assumptions
+# --------------------------------------------------------------------------------------------------
+
+
+def _assumptions(calibration, mres, opts, runs, mon, entries) -> list:
+    pre = mres.pre.spec()
+    out = []
+    if calibration is not None:
+        out.append(f"the pre-merger market is calibrated to the observed data assuming {calibration.conduct}; "
+                   f"identified by {calibration.identified_by}")
+        out.extend(a for a in calibration.assumptions if not a.startswith("conduct:"))
+    else:
+        out.append("the pre-merger market is taken as given (no calibration to observed data)")
+    out.extend(mres.notes)
+    agree = {"joint": "the joint-profit maximum", "symmetric": "the best symmetric outcome (a common quantity or "
+                                                                "price)", "proportional": "quantities proportional "
+                                                                                          "to the static-Nash ones"}
+    out.append(f"the firms collude on {agree[opts['agreement']]} of each market; deviations are best one-shot "
+               "deviations; punishments as named (Nash reversion forever or for T periods, or the optimal symmetric "
+               "stick and carrot)")
+    out.append("demand, costs and the number of firms are constant over time apart from the factor table's "
+               "variations; firms share one discount factor")
+    if runs["horizon"] == "random":
+        out.append(f"the game continues after each period with probability {runs['continuation']:g}: the discount "
+                   f"factor that matters is delta x continuation = {runs['delta'] * runs['continuation']:.4g}")
+    if opts["simulate"]:
+        p = mon.validated()
+        strategies = sorted({e["strategy"] for e in entries})
+        out.append(f"simulations: firms follow the strategies of the line-up ({', '.join(strategies)}) rather than "
+                   f"optimising; monitoring '{p['signal']}', demand shock {p['noise']} sigma {p['sigma']:g}, "
+                   f"perception error {p['perception_error']:g}, implementation error {p['implementation_error']:g}")
+    if pre.multi_product:
+        out.append("some pre-merger firms already own several products")
+    return out
+
+
+# --------------------------------------------------------------------------------------------------
+# Experiment tables
+# --------------------------------------------------------------------------------------------------
+
+
+def assessment_from_dict(doc: dict) -> dict:
+    """Read the tables of a ``kind = "assess"`` experiment.
+
+    Tables: ``[experiment]``, ``[market]`` (a market given directly) or ``[data]`` (observations to
+    calibrate from, see :class:`~sim.calibration.MarketData`), ``[merger]``, ``[collusion]``
+    (``agreement``), ``[monitoring]``, ``[[strategies]]`` (the pre-merger line-up), ``[run]`` and
+    ``[assess]`` (``scheme``, ``length``, ``punishments``, ``deltas``, ``partial``, ``growth``,
+    ``simulate`` and a ``[assess.sensitivity]`` table of ranges: lists of values or
+    ``{start, stop, num}`` / ``{start, stop, step}``). Unknown tables and keys raise
+    :class:`InputError` naming them.
+
+    Returns
+    -------
+    dict
+        Keyword arguments of :func:`assess` (``source``, ``merger``, ...) plus ``name``.
+    """
+    from .calibration import data_from_dict
+    from .market import market_from_dict
+    from .merger import merger_from_dict
+
+    if not isinstance(doc, dict):
+        raise InputError("", "an experiment must be a table")
+    for k in doc:
+        if k not in ASSESS_TABLES:
+            raise InputError(k, f"unknown table for an assessment; allowed: {', '.join(ASSESS_TABLES)}")
+    exp = doc.get("experiment", {})
+    if not isinstance(exp, dict):
+        raise InputError("experiment", "must be a table")
+    for k in exp:
+        if k not in ("name", "kind", "description"):
+            raise InputError(f"experiment.{k}", "unknown key; allowed: name, kind, description")
+    if "kind" in exp and exp["kind"] != "assess":
+        raise InputError("experiment.kind", f"this command runs kind = 'assess' experiments, got {exp['kind']!r}")
+    if ("market" in doc) == ("data" in doc):
+        raise InputError("data", "give either a [data] table of observations to calibrate from or a [market] table, "
+                                 "not both" if "market" in doc else "missing: give a [data] table of observations "
+                                                                    "(or a [market] table)")
+    source = data_from_dict(doc["data"]) if "data" in doc else market_from_dict(doc["market"])
+    if "merger" not in doc:
+        raise InputError("merger", "missing: the [merger] table names the merging firms")
+    merger = merger_from_dict(doc["merger"])
+    coll = doc.get("collusion", {})
+    if not isinstance(coll, dict):
+        raise InputError("collusion", "must be a table")
+    for k in coll:
+        if k != "agreement":
+            raise InputError(f"collusion.{k}", "unknown key; allowed: agreement")
+    a = doc.get("assess", {})
+    if not isinstance(a, dict):
+        raise InputError("assess", "must be a table")
+    for k in a:
+        if k not in _ASSESS_KEYS:
+            raise InputError(f"assess.{k}", f"unknown key; allowed: {', '.join(_ASSESS_KEYS)}")
+    out = {"source": source, "merger": merger, "monitoring": doc.get("monitoring"), "lineup": doc.get("strategies"),
+           "run": doc.get("run"), "agreement": coll.get("agreement", "joint")}
+    for k in _ASSESS_KEYS:
+        if k in a:
+            out[k] = a[k]
+    name = exp.get("name", "assessment")
+    if not isinstance(name, str) or not name.strip():
+        raise InputError("experiment.name", f"must be a non-empty string, got {name!r}")
+    out["name"] = name
+    return out
