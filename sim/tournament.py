@@ -1,0 +1,1338 @@
+"""Strategy tournaments in oligopoly: every strategy against every other, scores, ranking and its stability.
+
+What a tournament plays
+-----------------------
+* **Entrants** (:class:`Entrant`): a unique label and a strategy -- an automaton of :mod:`strategies`
+  (grim trigger, finite punishment, tit for tat, ...) with its parameters, or a learning firm
+  (:class:`strategies.qlearning.QLearner`) with its own.
+* **Round robin**: the market has ``n`` seats (firms). Every *group* -- a multiset of ``n`` entrants,
+  self-play included -- is played. In a symmetric market one seating per group is enough. Where firms
+  differ (costs, capacities, demand parameters, multi-product firms) every distinct seating of the
+  group is played (a *match* each) and the group's payoffs average over them with equal weights, so
+  no entrant gains from the seat it happens to get. ``seatings = "all"`` forces every seating,
+  ``"one"`` the sorted one only.
+* **Replications**: each automaton match plays ``replications`` independent replications through
+  the engine (:func:`sim.engine.run_game`, numba, parallel over replications). Match ``m`` (in the
+  order of :attr:`TournamentPlan.matches`) draws from the stream family ``(*key, m)``, so its numbers
+  are exactly those of ``simulate(market, lineup, monitoring, ..., seed=seed, key=(*key, m))``,
+  whatever the number of threads.
+
+How a learning entrant plays
+----------------------------
+A match with at least one learning entrant is a set of learning *sessions*
+(:func:`sim.learning.learn`; ``sessions`` of them, by default ``replications``): the learners of the
+match, seated with the match's automata, learn until their greedy strategies have been unchanged for
+``convergence`` periods (or ``max_periods``, reported as not converged). A session is scored on its
+*converged play*, as in Calvano, Calzolari, Denicolo and Pastorello (2020, AER): the learned
+strategies played greedily from the session's final state reach a limit cycle, and
+
+* a seat's *profit* is its mean profit per period over the limit cycle;
+* its *discounted profit* is the value of that cycle over the tournament's horizon,
+  ``sum_{t < periods} (delta c)^t pi_{t mod L}`` (``c`` the continuation probability with a random
+  horizon, 1 otherwise), i.e. the match as if it started once learning is over (when the cycle is
+  longer than the 64 points a session keeps, its mean profit is used in every period).
+
+Session ``j`` of match ``m`` uses ``learn(..., seed=seed, cell=m)`` when ``key`` is empty (its stream
+is ``stream_states(seed, (m,), j, j + 1)``), and a seed derived from ``seed`` and ``key`` otherwise.
+The learning kernel plays perfect monitoring without noise, so learning entrants need
+``monitoring.signal = "perfect"`` and no shock or errors; automata meeting them must be deterministic,
+and the market must have 2 to 4 single-product firms.
+
+Scores
+------
+For every match and seat, the engine's estimators (:mod:`sim.metrics`) give the mean profit per
+period (ratio of totals), the mean discounted profit and the profit gain
+``(profit - Nash) / (collusive - Nash)`` of the seat's firm. A group's payoff to a member is the
+average over its seatings and over the member's seats. An entrant's *score* is its expected payoff
+when its ``n - 1`` rivals are drawn independently and uniformly from the entrants: the groups are
+weighted by the multinomial probability of the rivals, ``(n-1)! / prod c_e! / E^(n-1)`` (with two seats:
+the plain average over opponents, self-play included). This is the payoff against an equal-share
+population of :mod:`sim.evolution`. Standard errors combine those of the matches (independent
+replications); intervals are normal at the ``confidence`` level.
+
+Ranking and its stability: entrants are ranked by ``score`` (``"profit_gain"`` by default; ties
+share the better rank). The bootstrap resamples the replications of every match with replacement,
+``bootstrap`` times, recomputes every score and ranking, and reports for each entrant the share of
+resamples in which it keeps its rank, its rank interval, the share in which it comes first, and
+``P(i ranked above j)``; also the share in which the whole ranking holds. Resample ``b`` draws from
+stream ``b`` of the family ``(*key, BOOTSTRAP_KEY)``, so it is deterministic given the seed and
+independent of threads.
+
+With two seats, the *pairwise* matrix holds ``i``'s payoff against ``j``; ``i`` *beats* ``j`` when its payoff
+in their match exceeds ``j``'s by more than ``z`` standard errors of the paired difference.
+
+Layers: :func:`tournament` (validated public entry) = :func:`prepare_tournament` (validate and
+compile every match, nothing played) + :func:`run_tournament` (the driver: seeds, buffers, progress,
+scoring) -> the engine's kernel, the learning kernel, and :func:`_bootstrap_kernel` (numba, with the
+plain-Python twin :func:`_bootstrap_reference`).
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+import time
+from dataclasses import dataclass, field
+from itertools import permutations
+
+import numpy as np
+from numba import njit, prange
+
+from ._params import Integer, Options, Real, optional
+from ._rng import ReferenceStream, next_below, stream_states
+from .errors import InputError
+
+__all__ = [
+    "BOOTSTRAP_KEY",
+    "Entrant",
+    "MatchRecord",
+    "TournamentPlan",
+    "TournamentResult",
+    "entrants_from_tables",
+    "prepare_tournament",
+    "run_tournament",
+    "tournament",
+    "tournament_from_dict",
+]
+
+#: stream family (appended to the caller's key) of the bootstrap resamples
+BOOTSTRAP_KEY = 2**32
+#: the largest number of matches (seatings) a tournament may play
+MAX_MATCHES = 100_000
+SCORES = ("profit_gain", "discounted_profit", "profit")
+SCORE_NAMES = {"profit_gain": "profit gain", "discounted_profit": "discounted profit", "profit": "mean profit"}
+SEATINGS = ("auto", "all", "one")
+
+TOURNAMENT_CONSTRAINTS = {
+    "seatings": Options(*SEATINGS),
+    "score": Options(*SCORES),
+    "confidence": Real(0, 1, closed="neither"),
+    "bootstrap": Integer(0, 1_000_000),
+    "sessions": optional(Integer(1, 10_000_000)),
+    "convergence": Integer(1, 10**12),
+    "max_periods": Integer(1, 10**15),
+}
+
+
+# --------------------------------------------------------------------------------------------------
+# Entrants
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, eq=False)
+class Entrant:
+    """A labelled strategy: an automaton (:class:`strategies.Automaton`) or a learner
+    (:class:`strategies.qlearning.QLearner`)."""
+
+    label: str
+    strategy: object
+
+    @property
+    def learns(self) -> bool:
+        from strategies.qlearning import QLearner
+
+        return isinstance(self.strategy, QLearner)
+
+    @property
+    def name(self) -> str:
+        return "qlearning" if self.learns else getattr(self.strategy, "name", type(self.strategy).__name__)
+
+    def to_dict(self) -> dict:
+        if self.learns:
+            params = {k: (v.tolist() if isinstance(v, np.ndarray) else v)
+                      for k, v in self.strategy.get_params().items() if v is not None}
+            return {"label": self.label, "strategy": "qlearning", **params}
+        return {"label": self.label, **self.strategy.to_dict()}
+
+
+_LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init")
+
+
+def entrants_from_tables(tables, learning: dict | None = None, prefix: str = "entrants") -> list[Entrant]:
+    """Entrants from an experiment file's ``[[entrants]]`` entries (``label``, ``strategy`` and its
+    parameters). ``strategy = "qlearning"`` entries take the learner parameters of ``learning`` (the
+    ``[learning]`` table), overridden by their own; any other name is looked up in the strategy
+    registry."""
+    from strategies import strategy_from_dict
+    from strategies.qlearning import QLearner
+
+    if not isinstance(tables, list) or isinstance(tables, str):
+        raise InputError(prefix, "must be an array of tables ([[entrants]] entries)")
+    base = {k: v for k, v in (learning or {}).items() if k in _LEARNER_PARAMS}
+    out = []
+    for k, t in enumerate(tables):
+        key = f"{prefix}[{k + 1}]"
+        if not isinstance(t, dict):
+            raise InputError(key, f"must be a table with 'label' and 'strategy', got {t!r}")
+        if "label" not in t:
+            raise InputError(f"{key}.label", "missing (a unique name for the entrant)")
+        if "seats" in t:
+            raise InputError(f"{key}.seats", "not used in tournaments: every entrant meets every group of entrants")
+        body = {kk: v for kk, v in t.items() if kk != "label"}
+        if body.get("strategy") == QLearner.name:
+            params = dict(base)
+            for name, v in body.items():
+                if name == "strategy":
+                    continue
+                if name not in _LEARNER_PARAMS:
+                    raise InputError(f"{key}.{name}", f"unknown parameter of qlearning; allowed: "
+                                                      f"{', '.join(_LEARNER_PARAMS)}")
+                params[name] = v
+            strat = QLearner(**params)
+        else:
+            strat = strategy_from_dict(body, key)
+        out.append(Entrant(t["label"], strat))
+    return out
+
+
+def _as_entrants(entrants) -> list[Entrant]:
+    if isinstance(entrants, dict):
+        entrants = [Entrant(k, v) for k, v in entrants.items()]
+    if not isinstance(entrants, list | tuple):
+        raise InputError("entrants", f"must be a list of entrants, got {entrants!r}")
+    if entrants and all(isinstance(e, dict) for e in entrants):
+        return entrants_from_tables(list(entrants))
+    out = []
+    for k, e in enumerate(entrants):
+        if isinstance(e, Entrant):
+            out.append(e)
+        elif isinstance(e, tuple) and len(e) == 2:
+            out.append(Entrant(*e))
+        else:
+            raise InputError(f"entrants[{k + 1}]", f"must be an Entrant, a (label, strategy) pair or a table, "
+                                                   f"got {e!r}")
+    return out
+
+
+def _check_entrants(entrants: list[Entrant]) -> None:
+    from strategies import Automaton
+    from strategies.qlearning import QLearner
+
+    if len(entrants) < 2:
+        raise InputError("entrants", f"a tournament needs at least 2 entrants, got {len(entrants)}")
+    seen: dict = {}
+    for k, e in enumerate(entrants):
+        key = f"entrants[{k + 1}]"
+        if not isinstance(e.label, str) or not e.label.strip():
+            raise InputError(f"{key}.label", f"must be a non-empty string, got {e.label!r}")
+        if e.label in seen:
+            raise InputError(f"{key}.label", f"duplicate label {e.label!r} (also entrants[{seen[e.label] + 1}]); "
+                                             "every entrant needs its own label")
+        seen[e.label] = k
+        if isinstance(e.strategy, QLearner):
+            e.strategy.spec(prefix=key)
+        elif isinstance(e.strategy, Automaton):
+            e.strategy._check_params(key)
+        else:
+            raise InputError(f"{key}.strategy", f"must be an automaton strategy or a QLearner, got {e.strategy!r}")
+
+
+# --------------------------------------------------------------------------------------------------
+# The plan: every match validated and compiled, nothing played
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass(eq=False)
+class Match:
+    """One seating of one group.
+
+    Attributes
+    ----------
+    index : int
+        Position in the plan (its stream family is ``(*key, index)``).
+    lineup : tuple of int
+        Entrant index of each seat.
+    group : int
+        Index of the group (multiset) in :attr:`TournamentPlan.groups`.
+    learning : bool
+        Played as learning sessions (it seats a learner).
+    game : sim.engine.Game or None
+        The compiled automaton match.
+    """
+
+    index: int
+    lineup: tuple
+    group: int
+    learning: bool
+    game: object = None
+
+
+@dataclass(eq=False)
+class TournamentPlan:
+    """A validated tournament: the market, the entrants, every match compiled, the settings.
+
+    Attributes
+    ----------
+    market : MarketSpec
+    entrants : list of Entrant
+    monitoring : dict
+        Validated monitoring settings.
+    stage, levels : the solved stage game (see :func:`sim.engine.stage_levels`)
+    groups : list of tuple
+        Every multiset of ``seats`` entrant indices (sorted), in lexicographic order.
+    matches : list of Match
+    run : dict
+        periods, replications, delta, seed, horizon, continuation.
+    settings : dict
+        seats, seatings (as given and as played), score, confidence, bootstrap, sessions,
+        convergence, max_periods, key.
+    nash, collusive : ndarray of shape (n_firms,)
+        Per-period profit of each firm at the static Nash and collusive profiles (the profit-gain
+        benchmarks, as in :func:`sim.metrics.summarize`).
+    """
+
+    market: object
+    entrants: list
+    monitoring: dict
+    stage: object
+    levels: object
+    groups: list
+    matches: list
+    run: dict
+    settings: dict
+    nash: np.ndarray
+    collusive: np.ndarray
+    group_seatings: list = field(default_factory=list)
+
+    @property
+    def seats(self) -> int:
+        return int(self.settings["seats"])
+
+    @property
+    def labels(self) -> list[str]:
+        return [e.label for e in self.entrants]
+
+    @property
+    def has_learners(self) -> bool:
+        return any(e.learns for e in self.entrants)
+
+    def replications_of(self, match: Match) -> int:
+        return int(self.settings["sessions"]) if match.learning else int(self.run["replications"])
+
+    def describe(self, match: Match) -> str:
+        return " vs ".join(self.entrants[e].label for e in match.lineup)
+
+
+def _seatings(group: tuple, every: bool) -> list[tuple]:
+    if not every:
+        return [tuple(group)]
+    return sorted(set(permutations(group)))
+
+
+def _rekey(exc: InputError, seat_to_entrant: dict, prefix: str = "entrants") -> InputError:
+    """``entrants[s]...`` (seat s of a compiled line-up) -> ``entrants[k]...`` (the entrant's own index)."""
+    key = exc.key
+    if key.startswith(prefix + "["):
+        close = key.index("]")
+        seat = int(key[len(prefix) + 1:close])
+        k = seat_to_entrant.get(seat)
+        if k is not None:
+            return InputError(f"{prefix}[{k}]{key[close + 1:]}", exc.message)
+    return exc
+
+
+def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None = None, periods: int = 1000,
+                       replications: int = 1000, delta: float = 0.95, seed: int = 0, horizon: str = "fixed",
+                       continuation: float = 0.99, agreement: str = "joint", actions=None, seatings: str = "auto",
+                       score: str = "profit_gain", confidence: float = 0.95, bootstrap: int = 1000,
+                       sessions: int | None = None, convergence: int = 100_000, max_periods: int = 1_000_000_000,
+                       key=()) -> TournamentPlan:
+    """Validate everything and compile every match; nothing is played (see :func:`tournament`)."""
+    from .engine import _as_monitoring, check_run, compile_game, stage_levels
+    from .market import MarketSpec
+
+    ms = market if isinstance(market, MarketSpec) else market.spec()
+    ents = _as_entrants(entrants)
+    _check_entrants(ents)
+    mon_obj = _as_monitoring(monitoring)
+    mon = mon_obj.validated()
+    n = ms.n_firms
+    if seats is None:
+        seats = n
+    seats = Integer(2, 64).check("tournament.seats", seats)
+    if seats != n:
+        raise InputError("tournament.seats", f"must equal the market's number of firms ({n}), got {seats}")
+    run = check_run(periods, replications, delta, seed, horizon, continuation, 0, ms.n_products)
+    run.pop("paths")
+    s = {name: TOURNAMENT_CONSTRAINTS[name].check(f"tournament.{name}", v) for name, v in (
+        ("seatings", seatings), ("score", score), ("confidence", confidence), ("bootstrap", bootstrap),
+        ("sessions", sessions), ("convergence", convergence), ("max_periods", max_periods))}
+    key = tuple(Integer(0, None).check("key", k) for k in key)
+    s["sessions"] = run["replications"] if s["sessions"] is None else s["sessions"]
+    every = s["seatings"] == "all" or (s["seatings"] == "auto" and not ms.symmetric)
+    E = len(ents)
+    from .evolution import multisets
+
+    n_groups = math.comb(E + n - 1, n)
+    n_matches = E**n if every else n_groups
+    if n_matches > MAX_MATCHES:
+        what = "seatings of groups" if every else "groups"
+        raise InputError("tournament.seats", f"{E} entrants over {n} seats make {n_matches:,} matches ({what}), "
+                                             f"more than {MAX_MATCHES:,}; use fewer entrants or seats"
+                                             + (" (or seatings = 'one')" if every else ""))
+    learners = [k for k, e in enumerate(ents) if e.learns]
+    if learners:
+        lab = ents[learners[0]].label
+        if not 2 <= n <= 4:
+            raise InputError("tournament.seats", f"learning entrants (such as {lab!r}) need 2 to 4 seats, got {n}")
+        if ms.multi_product:
+            raise InputError("market.owner", f"learning entrants (such as {lab!r}) set one action per firm: "
+                                             "multi-product firms are not supported")
+        for k, what in (("signal", "perfect"), ("sigma", 0.0), ("perception_error", 0.0),
+                        ("implementation_error", 0.0)):
+            if mon[k] != what:
+                raise InputError(f"monitoring.{k}", f"learning entrants (such as {lab!r}) play without noise and "
+                                                    f"see every action; must be {what!r} when one enters, got "
+                                                    f"{mon[k]!r}")
+
+    stage, levels = stage_levels(ms, agreement, actions)
+    # each automaton entrant alone, in every seat: its parameters against this market and monitoring
+    for k, e in enumerate(ents):
+        if e.learns:
+            continue
+        try:
+            alone = [e.strategy.clone() for _ in range(n)]
+            compile_game(stage, levels, alone, mon_obj, prefix="entrants", strict=False)
+        except InputError as exc:
+            raise _rekey(exc, {s_ + 1: k + 1 for s_ in range(n)}) from None
+
+    groups = multisets(E, n)
+    matches: list[Match] = []
+    group_seatings: list = []
+    for g, grp in enumerate(groups):
+        idx = []
+        for lineup in _seatings(grp, every):
+            learning = any(ents[e].learns for e in lineup)
+            matches.append(Match(len(matches), tuple(lineup), g, learning))
+            idx.append(len(matches) - 1)
+        group_seatings.append(idx)
+    for m in matches:
+        seat_map = {i + 1: e + 1 for i, e in enumerate(m.lineup)}
+        lineup = [ents[e].strategy.clone() for e in m.lineup]
+        try:
+            if m.learning:
+                from .learning import compile_lineup as compile_learners
+
+                compile_learners(ms, lineup, workers=1, agreement=agreement, seat_prefix="entrants")
+            else:
+                m.game = compile_game(stage, levels, lineup, mon_obj, prefix="entrants", strict=False)
+        except InputError as exc:
+            exc2 = _rekey(exc, seat_map)
+            raise InputError(exc2.key, f"{exc2.message} (in the match "
+                                       f"{' vs '.join(ents[e].label for e in m.lineup)})") from None
+
+    from ._stagecore import evaluate_py, market_arrays
+
+    arrays = market_arrays(ms)
+    _, _, pi_n, _, _ = evaluate_py(arrays, np.asarray(stage.nash.actions, dtype=float))
+    _, _, pi_c, _, _ = evaluate_py(arrays, np.asarray(stage.collusive.actions, dtype=float))
+    settings = {**s, "seats": n, "seatings_played": "all" if every else "one", "key": list(key),
+                "agreement": stage.agreement, "groups": len(groups), "matches": len(matches)}
+    return TournamentPlan(ms, ents, mon, stage, levels, groups, matches, run, settings, np.asarray(pi_n, float),
+                          np.asarray(pi_c, float), group_seatings)
+
+
+# --------------------------------------------------------------------------------------------------
+# Results
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass(eq=False)
+class MatchRecord:
+    """What one match produced.
+
+    Attributes
+    ----------
+    index : int
+    lineup : tuple of int
+        Entrant index per seat.
+    group : int
+    learning : bool
+    profit_sum, discounted : ndarray of shape (R, n_seats)
+        Per replication (session): the sum of each seat's per-period profits (a learning session: its
+        mean profit over the limit cycle) and its discounted profit.
+    periods : int64 ndarray of shape (R,)
+        Periods played (1 for a learning session, whose ``profit_sum`` is already a per-period mean).
+    collusive : int64 ndarray of shape (R,) or None
+        Periods in which every firm colluded (automaton matches).
+    profit, discounted_profit, profit_gain : list of Estimate, one per seat
+    collusive_share : Estimate or None
+    converged : float or None
+        Share of converged sessions (learning matches).
+    stream : dict
+        How to reproduce the match: ``{"seed", "key"}`` for :func:`sim.engine.simulate`, ``{"seed", "cell"}``
+        for :func:`sim.learning.learn`.
+    """
+
+    index: int
+    lineup: tuple
+    group: int
+    learning: bool
+    profit_sum: np.ndarray
+    discounted: np.ndarray
+    periods: np.ndarray
+    collusive: np.ndarray | None
+    profit: list
+    discounted_profit: list
+    profit_gain: list
+    collusive_share: object
+    converged: float | None
+    stream: dict
+
+    @property
+    def n_reps(self) -> int:
+        return int(self.periods.shape[0])
+
+    def metric(self, name: str) -> list:
+        return {"profit": self.profit, "discounted_profit": self.discounted_profit,
+                "profit_gain": self.profit_gain}[name]
+
+
+@dataclass(eq=False)
+class TournamentResult:
+    """Everything a tournament produced.
+
+    Attributes
+    ----------
+    plan : TournamentPlan
+    matches : list of MatchRecord
+    group_payoffs : dict metric -> (value, se), each an ndarray of shape (G, E)
+        Payoff of a member of each entrant in each group (nan where absent).
+    scores : dict metric -> list of Estimate (one per entrant)
+    ranks : int ndarray of shape (E,)
+        Rank of each entrant by ``settings["score"]`` (1 = best; ties share the better rank).
+    order : list of int
+        Entrant indices from first to last.
+    stability : dict or None
+        Bootstrap rank stability (see the module notes); None without bootstrap.
+    pairwise : dict or None
+        Two seats only: per metric ``value``/``se`` matrices ``[i, j]`` (i's payoff against j), the paired
+        ``difference``/``difference_se`` ``P_i - P_j`` and ``beats`` (1: i beats j, -1: j beats i, 0: neither).
+    versus : dict
+        Per metric, ``[i, j]``: i's payoff when every rival is j (the pairwise matrix with two seats).
+    timings : dict
+        Seconds spent validating, playing and scoring.
+    """
+
+    plan: TournamentPlan
+    matches: list
+    group_payoffs: dict
+    scores: dict
+    ranks: np.ndarray
+    order: list
+    stability: dict | None
+    pairwise: dict | None
+    versus: dict
+    timings: dict
+
+    @property
+    def labels(self) -> list[str]:
+        return self.plan.labels
+
+    @property
+    def score(self) -> str:
+        return self.plan.settings["score"]
+
+    def payoffs(self, metric: str | None = None):
+        """The tournament's payoffs as a :class:`sim.evolution.PayoffTable` (default: the ranking score)."""
+        from .evolution import PayoffTable, _counts
+
+        metric = metric or self.score
+        if metric not in SCORES:
+            raise InputError("metric", f"must be one of {', '.join(SCORES)}, got {metric!r}")
+        E = len(self.labels)
+        groups = np.array([_counts(g, E) for g in self.plan.groups], dtype=np.int64).reshape(-1, E)
+        v, s = self.group_payoffs[metric]
+        return PayoffTable(tuple(self.labels), self.plan.seats, groups, v.copy(), s.copy(), metric)
+
+    def settings(self) -> dict:
+        p = self.plan
+        return {"market": _market_dict(p.market), "monitoring": {k: v for k, v in p.monitoring.items()
+                                                                 if k != "noise_code"},
+                "run": dict(p.run), "tournament": dict(p.settings),
+                "entrants": [e.to_dict() for e in p.entrants]}
+
+    def to_dict(self, replications: bool = False) -> dict:
+        """Plain data (JSON-ready through :func:`sim._jsonutil.dumps`)."""
+        from ._text import CAUTION
+
+        labels = self.labels
+        p = self.plan
+        out = {
+            "settings": self.settings(),
+            "benchmarks": {"nash_profit": p.nash.tolist(), "collusive_profit": p.collusive.tolist()},
+            "score": self.score,
+            "ranking": [{"rank": int(self.ranks[e]), "label": labels[e], "strategy": p.entrants[e].name,
+                         **{m: self.scores[m][e].to_dict() for m in SCORES},
+                         **({"stability": {k: v[e] for k, v in self.stability["per_entrant"].items()}}
+                            if self.stability else {})}
+                        for e in self.order],
+            "rank_stability": ({k: v for k, v in self.stability.items() if k != "per_entrant"}
+                               if self.stability else None),
+            "groups": [{"members": [labels[e] for e in g],
+                        "payoffs": {labels[e]: {m: {"value": float(self.group_payoffs[m][0][gi, e]),
+                                                    "se": float(self.group_payoffs[m][1][gi, e])}
+                                                for m in SCORES}
+                                    for e in sorted(set(g))}}
+                       for gi, g in enumerate(p.groups)],
+            "matches": [_match_dict(r, p, replications) for r in self.matches],
+            "versus": {m: self.versus[m].tolist() for m in SCORES},
+            "timings": self.timings,
+            "caution": CAUTION,
+        }
+        if self.pairwise is not None:
+            out["pairwise"] = {m: {k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in d.items()}
+                               for m, d in self.pairwise.items()}
+        return out
+
+
+def _market_dict(ms) -> dict:
+    return {"model": ms.model, "demand": ms.demand.kind, "n_firms": ms.n_firms, "n_products": ms.n_products,
+            "cost": np.asarray(ms.cost).tolist(), "symmetric": bool(ms.symmetric)}
+
+
+def _match_dict(r: MatchRecord, plan: TournamentPlan, replications: bool) -> dict:
+    out = {"index": r.index, "seats": [plan.entrants[e].label for e in r.lineup], "group": r.group,
+           "kind": "learning sessions" if r.learning else "automata", "replications": r.n_reps,
+           "stream": r.stream,
+           "profit": [e.to_dict() for e in r.profit],
+           "discounted_profit": [e.to_dict() for e in r.discounted_profit],
+           "profit_gain": [e.to_dict() for e in r.profit_gain]}
+    if r.collusive_share is not None:
+        out["collusive_share"] = r.collusive_share.to_dict()
+    if r.converged is not None:
+        out["converged"] = r.converged
+    if replications:
+        out["per_replication"] = {"profit_sum": r.profit_sum.tolist(), "discounted": r.discounted.tolist(),
+                                  "periods": r.periods.tolist()}
+    return out
+
+
+# --------------------------------------------------------------------------------------------------
+# The driver
+# --------------------------------------------------------------------------------------------------
+
+
+def _progress(total: int, enabled):
+    if enabled is None:
+        enabled = sys.stderr.isatty()
+    if not enabled:
+        return None
+    from tqdm import tqdm
+
+    return tqdm(total=total, desc="tournament", unit="rep", leave=False, file=sys.stderr)
+
+
+def _learning_seed(seed: int, key: tuple) -> int:
+    if not key:
+        return int(seed)
+    w = np.random.SeedSequence(int(seed), spawn_key=tuple(key)).generate_state(1, np.uint64)[0]
+    return int(w >> np.uint64(1))
+
+
+def _cycle_discounted(res, delta_eff: float, periods: int) -> np.ndarray:
+    """Discounted value over ``periods`` of each session's limit cycle, shape (sessions, n)."""
+    from .learning import CYCLE_STORE
+
+    lu = res.lineup
+    n = lu.n_seats
+    S = res.n_sessions
+    w = delta_eff ** np.arange(periods, dtype=float)
+    out = np.empty((S, n))
+    for j in range(S):
+        lam = int(res.cycle_length[j])
+        cyc = res.cycles[j]
+        if 1 <= lam <= CYCLE_STORE and cyc.shape[0] == lam:
+            prof = (cyc * lu.place[None, :]).sum(axis=1)
+            pi = lu.payoff[prof]  # (lam, n)
+            out[j] = w @ pi[np.arange(periods) % lam]
+        else:
+            out[j] = w.sum() * res.limit_profits[j]
+    return out
+
+
+def _play_learning(plan: TournamentPlan, m: Match, threads) -> tuple:
+    from .learning import learn
+
+    lineup = [plan.entrants[e].strategy.clone() for e in m.lineup]
+    key = tuple(plan.settings["key"])
+    seed = _learning_seed(plan.run["seed"], key)
+    res = learn(plan.market, lineup, sessions=plan.settings["sessions"], seed=seed,
+                convergence=plan.settings["convergence"], max_periods=plan.settings["max_periods"],
+                response_periods=0, workers=threads, progress=False, cell=m.index)
+    run = plan.run
+    d_eff = run["delta"] * (run["continuation"] if run["horizon"] == "random" else 1.0)
+    disc = _cycle_discounted(res, d_eff, run["periods"])
+    ps = np.ascontiguousarray(res.limit_profits, dtype=float)
+    per = np.ones(res.n_sessions, dtype=np.int64)
+    stream = {"seed": seed, "cell": m.index, "function": "sim.learning.learn"}
+    return ps, disc, per, None, float(res.converged.mean()), stream
+
+
+def _estimates(plan: TournamentPlan, ps, disc, per, coll, z_conf: float):
+    """The engine's estimators, seat by seat (the same calls as :func:`sim.metrics.summarize`)."""
+    from .metrics import mean_estimate, ratio_estimate
+
+    n = ps.shape[1]
+    profit, dprof, gain = [], [], []
+    for s in range(n):
+        e = ratio_estimate(ps[:, s], per, z_conf)
+        profit.append(e)
+        dprof.append(mean_estimate(disc[:, s], z_conf))
+        gap = float(plan.collusive[s] - plan.nash[s])
+        if abs(gap) > 1e-12 * max(1.0, abs(float(plan.collusive[s]))):
+            gain.append(e.affine(-float(plan.nash[s]) / gap, 1.0 / gap))
+        else:
+            from .metrics import Estimate
+
+            gain.append(Estimate(math.nan, math.nan, math.nan, math.nan, 0, "ratio", "undefined"))
+    cs = ratio_estimate(coll, per, z_conf) if coll is not None else None
+    return profit, dprof, gain, cs
+
+
+def run_tournament(plan: TournamentPlan, threads: int | None = None, progress=None) -> TournamentResult:
+    """Driver: play every match of a plan (seeds, buffers, progress bar), then score and rank."""
+    from . import _kernel as K
+    from .engine import _check_threads, run_game
+
+    threads = _check_threads(threads)
+    run = plan.run
+    conf = plan.settings["confidence"]
+    total = sum(plan.replications_of(m) for m in plan.matches)
+    bar = _progress(total, progress)
+    records = []
+    t0 = time.perf_counter()
+    key = tuple(plan.settings["key"])
+    try:
+        for m in plan.matches:
+            if m.learning:
+                ps, disc, per, coll, conv, stream = _play_learning(plan, m, threads)
+            else:
+                mk = (*key, m.index)
+                raw = run_game(m.game, run["periods"], run["replications"], run["delta"], run["seed"], mk,
+                               run["horizon"], run["continuation"], 0, threads, progress=False)
+                ps, disc = raw.profit_sum, raw.disc
+                per = raw.ints[:, K.R_PERIODS].copy()
+                coll = raw.ints[:, K.R_COLLUSIVE].copy()
+                conv = None
+                stream = {"seed": run["seed"], "key": list(mk), "function": "sim.engine.simulate"}
+            profit, dprof, gain, cs = _estimates(plan, ps, disc, per, coll, conf)
+            records.append(MatchRecord(m.index, m.lineup, m.group, m.learning, ps, disc, per, coll, profit, dprof,
+                                       gain, cs, conv, stream))
+            if bar is not None:
+                bar.update(plan.replications_of(m))
+    finally:
+        if bar is not None:
+            bar.close()
+    t_play = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    res = _score(plan, records, threads)
+    res.timings.update({"play_seconds": t_play, "scoring_seconds": time.perf_counter() - t0})
+    return res
+
+
+# --------------------------------------------------------------------------------------------------
+# Scoring
+# --------------------------------------------------------------------------------------------------
+
+
+def _rival_weights(plan: TournamentPlan) -> np.ndarray:
+    """``W[g, e]``: probability that ``n - 1`` rivals drawn uniformly from the entrants form group ``g``
+    minus one ``e`` (0 where ``e`` is not in ``g``)."""
+    from .evolution import _counts
+
+    E = len(plan.entrants)
+    n = plan.seats
+    W = np.zeros((len(plan.groups), E))
+    for g, grp in enumerate(plan.groups):
+        c = _counts(grp, E)
+        for e in range(E):
+            if c[e] == 0:
+                continue
+            r = list(c)
+            r[e] -= 1
+            W[g, e] = math.factorial(n - 1) / math.prod(math.factorial(x) for x in r) / E ** (n - 1)
+    return W
+
+
+def _member_series(plan: TournamentPlan, rec: MatchRecord, e: int, metric: str):
+    """Per-replication numerator and denominator of entrant ``e``'s payoff in a match (its seats averaged):
+    the standard error of the match payoff comes from these."""
+    seats = [s for s, x in enumerate(rec.lineup) if x == e]
+    per = rec.periods.astype(float)
+    if metric == "discounted_profit":
+        return rec.discounted[:, seats].mean(axis=1), None
+    if metric == "profit":
+        return rec.profit_sum[:, seats].mean(axis=1), per
+    gaps = plan.collusive[seats] - plan.nash[seats]
+    u = ((rec.profit_sum[:, seats] - plan.nash[seats][None, :] * per[:, None]) / gaps[None, :]).mean(axis=1)
+    return u, per
+
+
+def _series_se(x, y) -> float:
+    from .metrics import mean_estimate, ratio_estimate
+
+    return float(mean_estimate(x).se if y is None else ratio_estimate(x, y).se)
+
+
+def _score(plan: TournamentPlan, records: list, threads) -> TournamentResult:
+    from .metrics import Estimate, _z
+
+    E = len(plan.entrants)
+    G = len(plan.groups)
+    n = plan.seats
+    conf = plan.settings["confidence"]
+    z = _z(conf)
+    gp = {}
+    for metric in SCORES:
+        val = np.full((G, E), np.nan)
+        se = np.full((G, E), np.nan)
+        for g, idx in enumerate(plan.group_seatings):
+            members = sorted(set(plan.groups[g]))
+            k = len(idx)
+            for e in members:
+                vs, ss = [], []
+                for mi in idx:
+                    rec = records[mi]
+                    seats = [s for s, x in enumerate(rec.lineup) if x == e]
+                    est = rec.metric(metric)
+                    vs.append(sum(est[s].value for s in seats) / len(seats))
+                    if len(seats) == 1:
+                        ss.append(est[seats[0]].se)
+                    else:
+                        ss.append(_series_se(*_member_series(plan, rec, e, metric)))
+                val[g, e] = sum(vs) / k
+                se[g, e] = math.sqrt(sum(x * x for x in ss)) / k
+        gp[metric] = (val, se)
+    W = _rival_weights(plan)
+    scores = {}
+    for metric in SCORES:
+        val, se = gp[metric]
+        lst = []
+        for e in range(E):
+            w = W[:, e]
+            on = w > 0
+            v = float(np.sum(w[on] * val[on, e]))
+            s = float(math.sqrt(np.sum((w[on] * se[on, e]) ** 2)))
+            lo, hi = (v - z * s, v + z * s) if math.isfinite(s) else (math.nan, math.nan)
+            lst.append(Estimate(v, s, lo, hi, int(on.sum()), "weighted mean of match payoffs"))
+        scores[metric] = lst
+    main = np.array([x.value for x in scores[plan.settings["score"]]])
+    ranks = _ranks(main[None, :])[0]
+    order = sorted(range(E), key=lambda e: (ranks[e], e))
+    stability = None
+    if plan.settings["bootstrap"] > 0:
+        stability = _rank_stability(plan, records, W, ranks, threads)
+    versus = {}
+    for metric in SCORES:
+        val, _ = gp[metric]
+        V = np.empty((E, E))
+        for i in range(E):
+            for j in range(E):
+                grp = tuple(sorted([i] + [j] * (n - 1)))
+                V[i, j] = val[plan.groups.index(grp), i]
+        versus[metric] = V
+    pairwise = _pairwise(plan, records, gp, z) if n == 2 else None
+    return TournamentResult(plan, records, gp, scores, ranks, order, stability, pairwise, versus, {})
+
+
+def _ranks(S: np.ndarray) -> np.ndarray:
+    """Competition ranks (1 = highest, ties share the better rank) of each row of ``S``, shape (B, E)."""
+    # rank = 1 + number of entrants with a strictly higher score
+    return 1 + (S[:, None, :] > S[:, :, None]).sum(axis=2)
+
+
+def _pairwise(plan: TournamentPlan, records: list, gp: dict, z: float) -> dict:
+    from .metrics import mean_estimate, ratio_estimate
+
+    E = len(plan.entrants)
+    out = {}
+    for metric in SCORES:
+        val, se = gp[metric]
+        V = np.empty((E, E))
+        S = np.empty((E, E))
+        D = np.zeros((E, E))
+        DS = np.zeros((E, E))
+        B = np.zeros((E, E), dtype=np.int64)
+        for i in range(E):
+            for j in range(E):
+                g = plan.groups.index(tuple(sorted((i, j))))
+                V[i, j] = val[g, i]
+                S[i, j] = se[g, i]
+                if i == j:
+                    continue
+                ds, ss = [], []
+                for mi in plan.group_seatings[g]:
+                    rec = records[mi]
+                    si, sj = rec.lineup.index(i), rec.lineup.index(j)
+                    est = rec.metric(metric)
+                    ds.append(est[si].value - est[sj].value)
+                    xi, y = _member_series(plan, rec, i, metric)
+                    xj, _ = _member_series(plan, rec, j, metric)
+                    ss.append(float(mean_estimate(xi - xj).se if y is None else ratio_estimate(xi - xj, y).se))
+                k = len(ds)
+                D[i, j] = sum(ds) / k
+                DS[i, j] = math.sqrt(sum(x * x for x in ss)) / k
+                scale = max(1.0, abs(V[i, j]))
+                tie = abs(D[i, j]) <= 1e-12 * scale or (DS[i, j] > 0 and abs(D[i, j]) <= z * DS[i, j])
+                B[i, j] = 0 if tie else (1 if D[i, j] > 0 else -1)
+        out[metric] = {"value": V, "se": S, "difference": D, "difference_se": DS, "beats": B,
+                       "wins": (B > 0).sum(axis=1), "losses": (B < 0).sum(axis=1)}
+    return out
+
+
+# --------------------------------------------------------------------------------------------------
+# Bootstrap rank stability
+# --------------------------------------------------------------------------------------------------
+
+
+def _bootstrap_arrays(plan: TournamentPlan, records: list, W: np.ndarray) -> tuple:
+    """Flatten the matches for the bootstrap kernel."""
+    n = plan.seats
+    M = len(records)
+    offsets = np.zeros(M + 1, dtype=np.int64)
+    for k, r in enumerate(records):
+        offsets[k + 1] = offsets[k] + r.n_reps
+    ps = np.concatenate([r.profit_sum for r in records]).astype(np.float64)
+    ds = np.concatenate([r.discounted for r in records]).astype(np.float64)
+    per = np.concatenate([r.periods for r in records]).astype(np.float64)
+    ent = np.zeros((M, n), dtype=np.int64)
+    wgt = np.zeros((M, n))
+    for k, r in enumerate(records):
+        n_seat = len(plan.group_seatings[r.group])
+        for s, e in enumerate(r.lineup):
+            c = r.lineup.count(e)
+            ent[k, s] = e
+            wgt[k, s] = W[r.group, e] / (n_seat * c)
+    gaps = plan.collusive - plan.nash
+    return offsets, ps, ds, per, ent, wgt, np.ascontiguousarray(plan.nash, dtype=np.float64), gaps
+
+
+@njit(cache=True, parallel=True)
+def _bootstrap_kernel(offsets, ps, ds, per, ent, wgt, nash, gaps, n_entrants, rng_states, out):
+    """Scores of every bootstrap resample (``prange`` over resamples); returns 0 (status OK).
+
+    Resample ``b`` (stream ``rng_states[b]``, advanced in place) draws, match by match and in match order,
+    ``R_m`` replication indices uniformly with replacement (:func:`sim._rng.next_below`) and sums the
+    drawn profit sums, discounted profits and periods; seat ``s`` of match ``m`` then adds
+    ``wgt[m, s]`` times its resampled profit gain, discounted profit and mean profit to its entrant's
+    scores in ``out[b, ent[m, s], 0..2]`` (``out`` must hold zeros on entry).
+
+    Parameters
+    ----------
+    offsets : int64 ndarray of shape (M + 1,)
+        Replications of match ``m`` are rows ``offsets[m] .. offsets[m+1]-1`` of the data.
+    ps, ds : ndarray of shape (total, n_seats)
+    per : ndarray of shape (total,)
+    ent : int64 ndarray of shape (M, n_seats)
+    wgt : ndarray of shape (M, n_seats)
+    nash, gaps : ndarray of shape (n_seats,)
+    rng_states : uint64 ndarray of shape (B, 4)
+    out : ndarray of shape (B, n_entrants, 3)
+    """
+    B = rng_states.shape[0]
+    M = offsets.shape[0] - 1
+    n = ps.shape[1]
+    for b in prange(B):
+        rng = rng_states[b]
+        sp = np.zeros(n)
+        sd = np.zeros(n)
+        for m in range(M):
+            lo = offsets[m]
+            R = offsets[m + 1] - lo
+            for s in range(n):
+                sp[s] = 0.0
+                sd[s] = 0.0
+            sper = 0.0
+            for _r in range(R):
+                i = lo + next_below(rng, R)
+                for s in range(n):
+                    sp[s] += ps[i, s]
+                    sd[s] += ds[i, s]
+                sper += per[i]
+            for s in range(n):
+                e = ent[m, s]
+                prof = sp[s] / sper if sper > 0.0 else np.nan
+                gain = (prof - nash[s]) / gaps[s] if gaps[s] != 0.0 else np.nan
+                out[b, e, 0] += wgt[m, s] * gain
+                out[b, e, 1] += wgt[m, s] * (sd[s] / R)
+                out[b, e, 2] += wgt[m, s] * prof
+    return 0
+
+
+def _bootstrap_reference(offsets, ps, ds, per, ent, wgt, nash, gaps, n_entrants, rng_states) -> np.ndarray:
+    """Plain-Python twin of :func:`_bootstrap_kernel`: the same draws in the same order."""
+    B = rng_states.shape[0]
+    M = offsets.shape[0] - 1
+    n = ps.shape[1]
+    out = np.zeros((B, n_entrants, 3))
+    for b in range(B):
+        rng = ReferenceStream(rng_states[b])
+        for m in range(M):
+            lo = int(offsets[m])
+            R = int(offsets[m + 1]) - lo
+            sp = [0.0] * n
+            sd = [0.0] * n
+            sper = 0.0
+            for _r in range(R):
+                i = lo + rng.next_below(R)
+                for s in range(n):
+                    sp[s] += float(ps[i, s])
+                    sd[s] += float(ds[i, s])
+                sper += float(per[i])
+            for s in range(n):
+                e = int(ent[m, s])
+                prof = sp[s] / sper if sper > 0.0 else math.nan
+                gain = (prof - float(nash[s])) / float(gaps[s]) if float(gaps[s]) != 0.0 else math.nan
+                out[b, e, 0] += float(wgt[m, s]) * gain
+                out[b, e, 1] += float(wgt[m, s]) * (sd[s] / R)
+                out[b, e, 2] += float(wgt[m, s]) * prof
+    return out
+
+
+_METRIC_COLUMN = {"profit_gain": 0, "discounted_profit": 1, "profit": 2}
+
+
+def bootstrap_scores(plan: TournamentPlan, records: list, threads: int | None = None,
+                     reference: bool = False) -> np.ndarray:
+    """Scores of every bootstrap resample, shape (B, E, 3): columns profit gain, discounted profit,
+    mean profit (see :func:`_bootstrap_kernel`)."""
+    from .engine import _Threads
+
+    B = int(plan.settings["bootstrap"])
+    E = len(plan.entrants)
+    args = _bootstrap_arrays(plan, records, _rival_weights(plan))
+    states = stream_states(plan.run["seed"], (*tuple(plan.settings["key"]), BOOTSTRAP_KEY), 0, B)
+    if reference:
+        return _bootstrap_reference(*args, E, states)
+    out = np.zeros((B, E, 3))
+    with _Threads(threads):
+        _bootstrap_kernel(*args, E, states, out)
+    return out
+
+
+def _rank_stability(plan: TournamentPlan, records: list, W, ranks: np.ndarray, threads) -> dict:
+    boot = bootstrap_scores(plan, records, threads)
+    S = boot[:, :, _METRIC_COLUMN[plan.settings["score"]]]
+    R = _ranks(S)
+    B = S.shape[0]
+    alpha = 1.0 - plan.settings["confidence"]
+    above = (S[:, :, None] > S[:, None, :]).mean(axis=0)
+    per = {
+        "rank_share": (R == ranks[None, :]).mean(axis=0).tolist(),
+        "rank_low": np.quantile(R, alpha / 2, axis=0, method="lower").astype(int).tolist(),
+        "rank_high": np.quantile(R, 1 - alpha / 2, axis=0, method="higher").astype(int).tolist(),
+        "top_share": (R == 1).mean(axis=0).tolist(),
+        "score_low": np.quantile(S, alpha / 2, axis=0).tolist(),
+        "score_high": np.quantile(S, 1 - alpha / 2, axis=0).tolist(),
+    }
+    return {"resamples": B, "ranking_holds": float(np.all(R == ranks[None, :], axis=1).mean()),
+            "above": above.tolist(), "per_entrant": per, "metric": plan.settings["score"]}
+
+
+# --------------------------------------------------------------------------------------------------
+# Public entry
+# --------------------------------------------------------------------------------------------------
+
+
+def tournament(market, entrants, monitoring=None, *, seats: int | None = None, periods: int = 1000,
+               replications: int = 1000, delta: float = 0.95, seed: int = 0, horizon: str = "fixed",
+               continuation: float = 0.99, agreement: str = "joint", actions=None, seatings: str = "auto",
+               score: str = "profit_gain", confidence: float = 0.95, bootstrap: int = 1000,
+               sessions: int | None = None, convergence: int = 100_000, max_periods: int = 1_000_000_000,
+               threads: int | None = None, progress=None, key=()) -> TournamentResult:
+    """Play a round-robin tournament of strategies in a market (see the module notes).
+
+    Parameters
+    ----------
+    market : Market or MarketSpec
+        Its number of firms is the number of seats.
+    entrants : list of Entrant, of ``(label, strategy)`` pairs or of experiment-file tables, or a dict
+        label -> strategy. At least two, with unique labels.
+    monitoring : Monitoring or dict, optional
+        Default: perfect monitoring without noise.
+    seats : int, optional
+        Checked against the market's number of firms.
+    periods, replications, delta, seed, horizon, continuation :
+        As in :func:`sim.engine.simulate`, for every automaton match.
+    agreement, actions :
+        The collusive outcome the levels refer to.
+    seatings : {"auto", "all", "one"}
+        ``auto``: every seating where firms differ, one where they are symmetric.
+    score : {"profit_gain", "discounted_profit", "profit"}
+        What the ranking (and, through :meth:`TournamentResult.payoffs`, the evolutionary analysis) uses.
+    confidence : float
+        Level of the intervals.
+    bootstrap : int
+        Resamples for the rank stability (0: none).
+    sessions, convergence, max_periods :
+        Learning matches: sessions per match (default ``replications``) and the convergence rule.
+    threads : int, optional
+        Threads of the kernels (results do not depend on it).
+    progress : bool, optional
+        Progress bar over replications (default: when stderr is a terminal).
+    key : tuple of int
+        Prefix of every stream family (a sweep cell's index, for example).
+
+    Returns
+    -------
+    TournamentResult
+    """
+    t0 = time.perf_counter()
+    plan = prepare_tournament(market, entrants, monitoring, seats=seats, periods=periods, replications=replications,
+                              delta=delta, seed=seed, horizon=horizon, continuation=continuation,
+                              agreement=agreement, actions=actions, seatings=seatings, score=score,
+                              confidence=confidence, bootstrap=bootstrap, sessions=sessions,
+                              convergence=convergence, max_periods=max_periods, key=key)
+    t_prep = time.perf_counter() - t0
+    res = run_tournament(plan, threads, progress)
+    res.timings["prepare_seconds"] = t_prep
+    return res
+
+
+# --------------------------------------------------------------------------------------------------
+# Experiment files
+# --------------------------------------------------------------------------------------------------
+
+TOURNAMENT_TABLES = ("experiment", "market", "collusion", "monitoring", "entrants", "tournament", "learning", "run")
+TOURNAMENT_KEYS = ("seats", "replications", "seatings", "score", "confidence", "bootstrap", "generations", "shares",
+                   "selection", "fitness", "population", "moran_runs")
+LEARNING_KEYS = (*_LEARNER_PARAMS, "convergence", "max_periods", "sessions")
+RUN_KEYS = ("periods", "replications", "horizon", "continuation", "delta", "seed")
+TOURNAMENT_DEFAULTS = {"seatings": "auto", "score": "profit_gain", "confidence": 0.95, "bootstrap": 1000}
+EVOLUTION_DEFAULTS = {"generations": 1000, "shares": None, "selection": 0.1, "fitness": "linear",
+                      "population": 100, "moran_runs": 10_000}
+
+
+def _only(table, name: str, allowed) -> dict:
+    if not isinstance(table, dict):
+        raise InputError(name, f"must be a table, got {table!r}")
+    for k in table:
+        if k not in allowed:
+            extra = " (full paths are not recorded in tournaments)" if name == "run" and k == "paths" else ""
+            raise InputError(f"{name}.{k}", f"unknown key{extra}; allowed: {', '.join(allowed)}")
+    return dict(table)
+
+
+def tournament_from_dict(doc: dict, check_tables: bool = True) -> dict:
+    """Read and validate the tables of a ``kind = "tournament"`` experiment.
+
+    Returns a dict with ``plan_args`` (keyword arguments of :func:`prepare_tournament` besides market,
+    entrants and monitoring), ``market`` (Market), ``entrants`` (list of Entrant), ``monitoring``
+    (Monitoring) and ``evolution`` (the evolutionary settings: generations, shares, selection,
+    fitness, population, moran_runs). Unknown tables and keys raise :class:`InputError` naming them;
+    the values are checked by :func:`check_experiment`.
+    """
+    from .market import market_from_dict
+    from .monitoring import monitoring_from_dict
+
+    if not isinstance(doc, dict):
+        raise InputError("", "an experiment must be a table")
+    if check_tables:
+        for k in doc:
+            if k not in TOURNAMENT_TABLES:
+                raise InputError(k, f"unknown table for a tournament; allowed: {', '.join(TOURNAMENT_TABLES)}")
+    exp = _only(doc.get("experiment", {}), "experiment", ("name", "kind", "description"))
+    if "kind" in exp and exp["kind"] != "tournament":
+        raise InputError("experiment.kind", f"this command runs kind = 'tournament' experiments, got {exp['kind']!r}")
+    tour = _only(doc.get("tournament", {}), "tournament", TOURNAMENT_KEYS)
+    runt = _only(doc.get("run", {}), "run", RUN_KEYS)
+    lt = _only(doc.get("learning", {}), "learning", LEARNING_KEYS)
+    coll = _only(doc.get("collusion", {}), "collusion", ("agreement", "actions"))
+    if "market" not in doc:
+        raise InputError("market", "missing: the [market] table describes the market")
+    mtab = doc["market"]
+    if not isinstance(mtab, dict):
+        raise InputError("market", f"must be a table, got {mtab!r}")
+    market = market_from_dict(mtab)
+    if "seats" in tour and "n_firms" not in mtab and not any(isinstance(v, list) for v in mtab.values()):
+        seats = Integer(2, 64).check("tournament.seats", tour["seats"])
+        market = market_from_dict({**mtab, "n_firms": seats})
+    mon = monitoring_from_dict(doc.get("monitoring", {}))
+    if "entrants" not in doc:
+        raise InputError("entrants", "missing: give the entrants as [[entrants]] entries (label, strategy, ...)")
+    entrants = entrants_from_tables(doc["entrants"], lt)
+    if "replications" in tour and "replications" in runt:
+        raise InputError("tournament.replications", "given in both [tournament] and [run]; give it once")
+    args = {}
+    for k in ("periods", "replications", "horizon", "continuation", "delta", "seed"):
+        if k in runt:
+            args[k] = runt[k]
+    if "replications" in tour:
+        args["replications"] = tour["replications"]
+    for k in ("seats", "seatings", "score", "confidence", "bootstrap"):
+        if k in tour:
+            args[k] = tour[k]
+    for k in ("convergence", "max_periods", "sessions"):
+        if k in lt:
+            args[k] = lt[k]
+    args["agreement"] = coll.get("agreement", "joint")
+    if "actions" in coll:
+        args["actions"] = coll["actions"]
+        args["agreement"] = coll.get("agreement", "given")
+    evo = dict(EVOLUTION_DEFAULTS)
+    evo.update({k: tour[k] for k in EVOLUTION_DEFAULTS if k in tour})
+    return {"market": market, "entrants": entrants, "monitoring": mon, "plan_args": args, "evolution": evo,
+            "name": exp.get("name", "tournament")}
+
+
+def check_experiment(cfg: dict) -> TournamentPlan:
+    """Validate a read experiment completely (every match compiled, the evolutionary settings checked as
+    far as they can be before the payoffs exist); returns the plan. Nothing is played."""
+    from .evolution import EVOLUTION_CONSTRAINTS, FITNESS_MAPS, _check_shares
+
+    plan = prepare_tournament(cfg["market"], cfg["entrants"], cfg["monitoring"], **cfg["plan_args"])
+    ev = cfg["evolution"]
+    EVOLUTION_CONSTRAINTS["generations"].check("tournament.generations", ev["generations"])
+    N = EVOLUTION_CONSTRAINTS["population"].check("tournament.population", ev["population"])
+    if N < plan.seats:
+        raise InputError("tournament.population", f"must be at least the number of seats ({plan.seats}), got {N}")
+    EVOLUTION_CONSTRAINTS["runs"].check("tournament.moran_runs", ev["moran_runs"])
+    mapping = Options(*FITNESS_MAPS).check("tournament.fitness", ev["fitness"])
+    hi = 1 if mapping == "linear" else None
+    Real(0, hi, closed="right" if hi else "neither").check("tournament.selection", ev["selection"])
+    _check_shares(ev["shares"], len(plan.entrants), plan.labels, "tournament.shares")
+    return plan
+
+
+def evolve_tournament(result: TournamentResult, evolution: dict, threads: int | None = None):
+    """The evolutionary analysis of a tournament's payoffs (:func:`sim.evolution.evolve`) with the
+    settings of an experiment file's ``[tournament]`` table; the Moran simulation's streams continue the
+    tournament's seed and key."""
+    from .evolution import evolve
+
+    ev = evolution
+    return evolve(result.payoffs(), shares=ev["shares"], generations=ev["generations"], selection=ev["selection"],
+                  fitness_map=ev["fitness"], population=ev["population"], runs=ev["moran_runs"],
+                  seed=result.plan.run["seed"], key=tuple(result.plan.settings["key"]),
+                  confidence=result.plan.settings["confidence"], threads=threads, prefix="tournament")
+
+
+# --------------------------------------------------------------------------------------------------
+# Experiment kind (``supergame run`` and sweeps; see :mod:`sim.kinds`)
+# --------------------------------------------------------------------------------------------------
+
+
+def metric_label(labels) -> list[str]:
+    """Entrant labels as parts of metric names: characters other than letters, digits, ``_`` and ``-``
+    become ``_``; when that makes two names equal, ``entrant1``, ``entrant2``, ... are used instead."""
+    import re
+
+    out = [re.sub(r"[^A-Za-z0-9_-]", "_", str(lab)) for lab in labels]
+    if len(set(out)) != len(out):
+        out = [f"entrant{k + 1}" for k in range(len(labels))]
+    return out
+
+
+def _kind_prepare(doc: dict) -> dict:
+    cfg = tournament_from_dict(doc, check_tables=True)
+    cfg["plan"] = check_experiment(cfg)
+    return cfg
+
+
+def _kind_names(cfg: dict) -> list[str]:
+    plan = cfg["plan"]
+    out = ["entrants", "seats", "matches", "ranking_holds", "moran.max_standard_errors"]
+    for lab in metric_label(plan.labels):
+        out += [f"rank.{lab}", f"score.{lab}", f"score.{lab}.se", f"score.{lab}.low", f"score.{lab}.high"]
+        for m in SCORES:
+            out += [f"{m}.{lab}", f"{m}.{lab}.low", f"{m}.{lab}.high"]
+        out += [f"rank_share.{lab}", f"top_share.{lab}", f"share.{lab}", f"rare_mutation_share.{lab}",
+                f"ess.{lab}", f"ess_n.{lab}"]
+        if plan.seats == 2:
+            out += [f"wins.{lab}", f"losses.{lab}"]
+    return out
+
+
+def _kind_run(cfg: dict, ctx) -> object:
+    import dataclasses
+
+    from .kinds import CellResult
+
+    plan = cfg["plan"]
+    plan = dataclasses.replace(plan, settings={**plan.settings, "key": list(ctx.key)})
+    res = run_tournament(plan, ctx.threads, ctx.progress)
+    evo = evolve_tournament(res, cfg["evolution"], ctx.threads)
+    score = res.score
+    m: dict = {"entrants": len(plan.entrants), "seats": plan.seats, "matches": len(plan.matches),
+               "ranking_holds": res.stability["ranking_holds"] if res.stability else math.nan,
+               "moran.max_standard_errors": _nan(evo.agreement()["max_standard_errors"])}
+    st = res.stability["per_entrant"] if res.stability else None
+    for e, lab in enumerate(metric_label(plan.labels)):
+        m[f"rank.{lab}"] = int(res.ranks[e])
+        x = res.scores[score][e]
+        m[f"score.{lab}"], m[f"score.{lab}.se"], m[f"score.{lab}.low"], m[f"score.{lab}.high"] = \
+            x.value, x.se, x.low, x.high
+        for k in SCORES:
+            y = res.scores[k][e]
+            m[f"{k}.{lab}"], m[f"{k}.{lab}.low"], m[f"{k}.{lab}.high"] = y.value, y.low, y.high
+        m[f"rank_share.{lab}"] = st["rank_share"][e] if st else math.nan
+        m[f"top_share.{lab}"] = st["top_share"][e] if st else math.nan
+        m[f"share.{lab}"] = float(evo.replicator.final[e])
+        m[f"rare_mutation_share.{lab}"] = float(evo.stationary[e])
+        m[f"ess.{lab}"] = float(evo.stability["ess"][e])
+        m[f"ess_n.{lab}"] = float(evo.stability["ess_n"][e])
+        if plan.seats == 2:
+            m[f"wins.{lab}"] = int(res.pairwise[score]["wins"][e])
+            m[f"losses.{lab}"] = int(res.pairwise[score]["losses"][e])
+    rp = evo.replicator
+    idx = np.unique(np.round(np.linspace(0, rp.shares.shape[0] - 1, min(rp.shares.shape[0], 200))).astype(int))
+    arrays = {"replicator.generation": idx.astype(float), "replicator.shares": rp.shares[idx],
+              "scores": np.array([res.scores[score][e].value for e in range(len(plan.entrants))]),
+              "versus": res.versus[score], "fixation": evo.fixation}
+    return CellResult(m, arrays)
+
+
+def _nan(x) -> float:
+    return math.nan if x is None else float(x)
+
+
+def _kind_describe(doc: dict) -> list[str]:
+    from ._adapters import _describe_market
+    from .config import value_label
+
+    run = {"periods": 1000, "replications": 1000, "horizon": "fixed", "delta": 0.95, "seed": 0, **doc.get("run", {})}
+    tour = doc.get("tournament", {})
+    mon = {"signal": "perfect", "noise": "lognormal", "sigma": 0.0, "perception_error": 0.0,
+           "implementation_error": 0.0, **doc.get("monitoring", {})}
+    ents = "; ".join(f"{e.get('label')}: {value_label({k: v for k, v in e.items() if k != 'label'})}"
+                     for e in doc.get("entrants", []) if isinstance(e, dict))
+    reps = tour.get("replications", run["replications"])
+    return [f"Market: {_describe_market(doc.get('market', {}))}",
+            f"Entrants: {ents}",
+            f"Monitoring: signal {mon['signal']}, {mon['noise']} demand shock sigma {mon['sigma']}, perception error "
+            f"{mon['perception_error']}, implementation error {mon['implementation_error']}",
+            f"Round robin over every group of entrants, self-play included; {run['periods']} periods "
+            f"({run['horizon']} horizon), {reps} replications per match, delta {run['delta']}, seed {run['seed']}",
+            f"Ranking by {tour.get('score', 'profit_gain')}; evolutionary dynamics: selection "
+            f"{tour.get('selection', 0.1)} ({tour.get('fitness', 'linear')} fitness), Moran population "
+            f"{tour.get('population', 100)}"]
+
+
+def _kind() -> object:
+    from ._adapters import _GENERAL_ASSUMPTIONS
+    from .kinds import Kind
+
+    return Kind(
+        name="tournament",
+        tables=("market", "collusion", "monitoring", "entrants", "tournament", "learning", "run"),
+        prepare=_kind_prepare,
+        run=_kind_run,
+        metric_names=_kind_names,
+        headline=("ranking_holds",),
+        describe=_kind_describe,
+        summary="round-robin tournament of strategies: scores, ranking stability, evolutionary dynamics",
+        assumptions=_GENERAL_ASSUMPTIONS + (
+            "Every group of entrants (self-play included) plays the repeated game; where firms differ, every "
+            "seating is played and averaged. Scores are expected payoffs against rivals drawn uniformly from the "
+            "entrants: a ranking holds only for this set of entrants.",
+            "Strategies are fixed automata or Q-learners scored on their converged play; learners play without "
+            "noise. Confidence intervals and the bootstrap measure simulation error only.",
+            "Evolutionary dynamics treat the tournament's payoffs as fitness in large (replicator) or finite "
+            "(Moran) populations of firms that imitate successful rules; they describe which rules spread under "
+            "that assumption, not how actual firms choose their conduct.",
+        ),
+    )
+
+
+EXPERIMENT_KIND = _kind()
