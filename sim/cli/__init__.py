@@ -21,6 +21,7 @@ COMMANDS = {
     "thresholds": "sim.cli.thresholds",
     "learn": "sim.cli.learn",
     "simulate": "sim.cli.simulate",
+    "tournament": "sim.cli.tournament",
     "bench": "sim.cli.bench",
     "assess": "sim.cli.assess",
     "check": "sim.cli.check",
