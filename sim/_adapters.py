@@ -518,7 +518,8 @@ def _describe_simulate(doc: dict) -> list[str]:
     if "deviation" in doc:
         d = doc["deviation"]
         who = d.get("firm", "binding")
-        lines.append(f"Deviation check: firm {who} deviates once in the first period"
+        who = "the firm that binds under grim trigger" if who == "binding" else f"firm {who}"
+        lines.append(f"Deviation check: {who} deviates once in the first period"
                      + (f" ({value_label(d['strategy'])})" if "strategy" in d else ", then follows its strategy"))
     return lines
 

@@ -82,6 +82,7 @@ FIGURE_KEYS = {
     "level": "heatmap: draw the contour where the metric equals this value (phase boundary)",
     "group": "line plots: swept parameter with one line per value",
     "facet": "swept parameter with one panel per value",
+    "at": "table fixing other swept parameters at one of their values, e.g. { \"run.delta\" = 0.8 }",
     "title": "figure title",
     "name": "file name of the figure (without extension)",
 }
@@ -409,6 +410,11 @@ class FigureSpec:
     facet: str | None = None
     title: str | None = None
     name: str | None = None
+    at: tuple = ()
+
+    def fixed(self) -> dict:
+        """Swept path -> label of the value the figure is drawn at."""
+        return dict(self.at)
 
 
 @dataclass(frozen=True)
@@ -452,7 +458,7 @@ def _parse_report(table: Any, params: tuple[Parameter, ...]) -> ReportSettings:
             if k not in f:
                 raise InputError(f"{key}.{k}", f"missing ({FIGURE_KEYS[k]})")
         for k in f:
-            if k not in ("type", "level") and not isinstance(f[k], str):
+            if k not in ("type", "level", "at") and not isinstance(f[k], str):
                 raise InputError(f"{key}.{k}", f"must be a string, got {f[k]!r}")
         axes = {}
         for k in ("x", "y", "group", "facet"):
@@ -479,23 +485,53 @@ def _parse_report(table: Any, params: tuple[Parameter, ...]) -> ReportSettings:
         level = f.get("level")
         if level is not None and (not _is_real(level) or not math.isfinite(float(level))):
             raise InputError(f"{key}.level", f"must be a finite number, got {level!r}")
-        rest = [p for p in params if p.path not in axes.values() and len(p) > 1]
+        at = []
+        at_t = f.get("at", {})
+        if not isinstance(at_t, dict):
+            raise InputError(f"{key}.at", f"must be a table of swept parameters and values, got {at_t!r}")
+        for raw, v in _flatten_at(at_t):
+            cp = canonical_path(raw, f"{key}.at")
+            if cp not in swept:
+                raise InputError(f"{key}.at.{raw}", f"{raw!r} is not a swept parameter; swept: {', '.join(swept)}")
+            if cp in axes.values():
+                raise InputError(f"{key}.at.{raw}", f"{cp} is already an axis, group or facet of this figure")
+            p = swept[cp]
+            match = [lab for val, lab in zip(p.values, p.labels) if val == v or lab == v]
+            if not match:
+                raise InputError(f"{key}.at.{raw}", f"must be one of the swept values ({', '.join(p.labels)}), got "
+                                                    f"{v!r}")
+            at.append((cp, match[0]))
+        fixed = {p for p, _ in at}
+        rest = [p for p in params if p.path not in axes.values() and p.path not in fixed and len(p) > 1]
         if rest:
             p = rest[0]
             raise InputError(key, f"the sweep also varies {p.path} ({len(p)} values); name it as "
-                                  f"{'group or facet' if typ == 'line' else 'facet'} of this figure")
+                                  f"{'group or facet' if typ == 'line' else 'facet'} of this figure, or fix it with "
+                                  f"at = {{ \"{p.path}\" = ... }}")
         name = f.get("name")
         if name is not None and not _NAME_RE.match(name):
             raise InputError(f"{key}.name", f"must be letters, digits, '.', '_' or '-', got {name!r}")
         spec = FigureSpec(type=typ, x=axes["x"], y=axes.get("y"), metric=f["metric"], threshold=f.get("threshold"),
                           analytic=f.get("analytic"), level=None if level is None else float(level),
-                          group=axes.get("group"), facet=axes.get("facet"), title=f.get("title"), name=name)
+                          group=axes.get("group"), facet=axes.get("facet"), title=f.get("title"), name=name,
+                          at=tuple(at))
         fname = figure_name(spec, i)
         if fname in names:
             raise InputError(f"{key}.name", f"another figure is already called {fname!r}")
         names.add(fname)
         out.append(spec)
     return ReportSettings(title=title, metrics=metrics, figures=tuple(out))
+
+
+def _flatten_at(t: dict, prefix: str = "") -> list:
+    out = []
+    for k, v in t.items():
+        path = f"{prefix}.{k}" if prefix else k
+        if isinstance(v, dict) and v and "strategy" not in v:
+            out.extend(_flatten_at(v, path))
+        else:
+            out.append((path, v))
+    return out
 
 
 def figure_name(spec: FigureSpec, index: int) -> str:

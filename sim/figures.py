@@ -63,13 +63,46 @@ class SweepData:
     def has(self, metric: str) -> bool:
         return any(metric in m for m in self.index.values())
 
-    def fixed_labels(self, exclude) -> dict:
-        """Labels of the parameters not in ``exclude`` (they must take one value each)."""
-        return {p.path: p.labels[0] for p in self.parameters if p.path not in exclude}
+    def fixed_labels(self, exclude, at: dict | None = None) -> dict:
+        """Labels of the parameters not in ``exclude``: those in ``at`` (path -> label), the others take one
+        value each."""
+        at = at or {}
+        return {p.path: at.get(p.path, p.labels[0]) for p in self.parameters if p.path not in exclude}
 
 
 def _axis_values(p) -> np.ndarray:
     return np.array([float(v) for v in p.values])
+
+
+def _even(x: np.ndarray, log: bool) -> bool:
+    """Whether sorted values are evenly spaced (on a log scale for log ranges)."""
+    if x.size < 3:
+        return True
+    if log:
+        if np.any(x <= 0):
+            return False
+        x = np.log(x)
+    d = np.diff(x)
+    return bool(np.allclose(d, d[0], rtol=1e-6, atol=0))
+
+
+def _positions(x: np.ndarray, log: bool) -> tuple[np.ndarray, bool]:
+    """Plot positions of sorted axis values: the values themselves when evenly spaced, else 0, 1, 2, ...
+    (equal cells, ticks labelled with the values)."""
+    if _even(x, log):
+        return x, False
+    return np.arange(x.size, dtype=float), True
+
+
+def _to_position(v: float, x: np.ndarray, pos: np.ndarray) -> float:
+    """Position of value ``v`` on an axis whose values ``x`` sit at ``pos`` (linear between them)."""
+    if x.size == 1:
+        return float(pos[0])
+    if v <= x[0]:
+        return float(pos[0] + (v - x[0]) / (x[1] - x[0]) * (pos[1] - pos[0]))
+    if v >= x[-1]:
+        return float(pos[-1] + (v - x[-1]) / (x[-1] - x[-2]) * (pos[-1] - pos[-2]))
+    return float(np.interp(v, x, pos))
 
 
 def _edges(x: np.ndarray, log: bool) -> np.ndarray:
@@ -97,7 +130,7 @@ def _label(path: str) -> str:
 
 
 def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None = None, level: float | None = None,
-            facet: str | None = None, title: str | None = None):
+            facet: str | None = None, title: str | None = None, at: dict | None = None):
     """A heatmap of ``metric`` over the swept parameters ``x`` and ``y`` (see the module notes).
 
     Returns
@@ -111,7 +144,7 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
     xs, ys = _axis_values(px), _axis_values(py)
     ox, oy = np.argsort(xs, kind="stable"), np.argsort(ys, kind="stable")
     facets = list(data.by_path[facet].labels) if facet else [None]
-    fixed = data.fixed_labels({x, y} | ({facet} if facet else set()))
+    fixed = data.fixed_labels({x, y} | ({facet} if facet else set()), at)
     grids, thr = [], []
     for fv in facets:
         Z = np.full((ys.size, xs.size), np.nan)
@@ -135,6 +168,11 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
         grids.append(Z)
         thr.append(T)
     xs, ys = xs[ox], ys[oy]
+    xp, xcat = _positions(xs, px.log)
+    yp, ycat = _positions(ys, py.log)
+    xlog, ylog = px.log and not xcat, py.log and not ycat
+    labx = [px.labels[i] for i in ox]
+    laby = [py.labels[j] for j in oy]
     allv = np.concatenate([g[np.isfinite(g)] for g in grids]) if grids else np.zeros(0)
     lo, hi = (float(allv.min()), float(allv.max())) if allv.size else (0.0, 1.0)
     if lo < 0 < hi:
@@ -142,40 +180,53 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
     else:
         norm, cmap = None, "viridis"
     nr, nc = _panels(len(facets))
-    fig, axes = plt.subplots(nr, nc, figsize=(4.6 * nc + 0.8, 3.9 * nr), squeeze=False, sharex=True, sharey=True)
-    xe, ye = _edges(xs, px.log), _edges(ys, py.log)
+    fig, axes = plt.subplots(nr, nc, figsize=(4.4 * nc + 1.2, 3.6 * nr + 0.9), squeeze=False, sharex=True,
+                             sharey=True, layout="constrained")
+    xe, ye = _edges(xp, xlog), _edges(yp, ylog)
     mesh = None
+    legend: dict = {}
     for k, fv in enumerate(facets):
         ax = axes[k // nc][k % nc]
         Z = grids[k]
         mesh = ax.pcolormesh(xe, ye, np.ma.masked_invalid(Z), cmap=cmap, norm=norm,
                              vmin=None if norm else lo, vmax=None if norm else hi, shading="flat")
-        if Z.size <= 120:
+        if xs.size <= 12 and ys.size <= 16:
+            size = 6.5 if xs.size * len(facets) <= 12 else 5.0
             for b in range(ys.size):
                 for a in range(xs.size):
                     if np.isfinite(Z[b, a]):
                         v = Z[b, a]
-                        txt = f"{v:.2f}" if abs(v) < 100 else f"{v:.3g}"
-                        ax.text(xs[a], ys[b], txt, ha="center", va="center", fontsize=6.5, color="black",
-                                bbox={"boxstyle": "round,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.55})
+                        txt = f"{v:.2f}" if abs(v) < 10 else f"{v:.3g}"
+                        ax.text(xp[a], yp[b], txt, ha="center", va="center", fontsize=size, color="black")
         if level is not None and xs.size > 1 and ys.size > 1 and np.isfinite(Z).sum() >= 4:
             zmin, zmax = np.nanmin(Z), np.nanmax(Z)
             if zmin < level < zmax:
-                ax.contour(xs, ys, np.where(np.isfinite(Z), Z, level), levels=[level], colors="black",
+                ax.contour(xp, yp, np.where(np.isfinite(Z), Z, level), levels=[level], colors="black",
                            linewidths=1.2, linestyles="-")
                 ax.plot([], [], color="black", lw=1.2, label=f"simulated boundary ({metric} = {level:g})")
         T = thr[k]
         if threshold and np.isfinite(T).any():
             ok = np.isfinite(T)
+            tx = np.array([_to_position(v, xs, xp) if np.isfinite(v) else np.nan for v in T])
+            inside = ok & (tx >= xe[0]) & (tx <= xe[-1])
             if np.allclose(T[ok], T[ok][0], rtol=1e-9, atol=0):
-                ax.axvline(T[ok][0], color="magenta", lw=2, ls="--", label=f"analytic critical value: {T[ok][0]:.4g}")
-            else:
-                ax.plot(T[ok], ys[ok], color="magenta", lw=2, ls="--", marker="o", ms=3,
+                if inside.any():
+                    ax.axvline(tx[ok][0], color="magenta", lw=2, ls="--",
+                               label=f"analytic critical value: {T[ok][0]:.4g}")
+                else:
+                    ax.plot([], [], color="magenta", lw=2, ls="--",
+                            label=f"analytic critical value {T[ok][0]:.4g} (outside the swept range)")
+            elif inside.any():
+                ax.plot(tx[inside], yp[inside], color="magenta", lw=2, ls="--", marker="o", ms=3,
                         label="analytic critical value")
-        if px.log:
+        if xlog:
             ax.set_xscale("log")
-        if py.log:
+        if ylog:
             ax.set_yscale("log")
+        if xcat:
+            ax.set_xticks(xp, labx, rotation=45 if len(labx) > 6 else 0, fontsize=7)
+        if ycat:
+            ax.set_yticks(yp, laby, fontsize=7)
         ax.set_xlim(xe[0], xe[-1])
         ax.set_ylim(ye[0], ye[-1])
         if facet:
@@ -184,18 +235,21 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
             ax.set_xlabel(_label(x))
         if k % nc == 0:
             ax.set_ylabel(_label(y))
-        if ax.get_legend_handles_labels()[0]:
-            ax.legend(fontsize=7, loc="best", framealpha=0.8)
+        for h, lab in zip(*ax.get_legend_handles_labels()):
+            legend.setdefault(lab, h)
     for k in range(len(facets), nr * nc):
         axes[k // nc][k % nc].set_visible(False)
     if mesh is not None:
         fig.colorbar(mesh, ax=axes.ravel().tolist(), label=metric, shrink=0.9)
+    if legend:
+        fig.legend(list(legend.values()), list(legend), loc="outside lower center", ncol=min(3, len(legend)),
+                   fontsize=8, frameon=False)
     fig.suptitle(title or f"{metric} over {_label(x)} and {_label(y)}", fontsize=11)
     return fig
 
 
 def lines(data: SweepData, x: str, metric: str, analytic: str | None = None, group: str | None = None,
-          facet: str | None = None, title: str | None = None, band: bool = True):
+          facet: str | None = None, title: str | None = None, band: bool = True, at: dict | None = None):
     """``metric`` against the swept parameter ``x`` (see the module notes).
 
     Returns
@@ -208,7 +262,7 @@ def lines(data: SweepData, x: str, metric: str, analytic: str | None = None, gro
     order = np.argsort(xs, kind="stable")
     groups = list(data.by_path[group].labels) if group else [None]
     facets = list(data.by_path[facet].labels) if facet else [None]
-    fixed = data.fixed_labels({x} | ({group} if group else set()) | ({facet} if facet else set()))
+    fixed = data.fixed_labels({x} | ({group} if group else set()) | ({facet} if facet else set()), at)
     nr, nc = _panels(len(facets))
     fig, axes = plt.subplots(nr, nc, figsize=(5.0 * nc + 0.6, 3.8 * nr), squeeze=False, sharex=True, sharey=True)
     has_band = band and data.has(f"{metric}.low") and data.has(f"{metric}.high")
@@ -253,8 +307,6 @@ def lines(data: SweepData, x: str, metric: str, analytic: str | None = None, gro
         ax.legend(fontsize=7, loc="best", framealpha=0.8)
     for k in range(len(facets), nr * nc):
         axes[k // nc][k % nc].set_visible(False)
-    extra = " (band: 95 % confidence interval" + ("; dashed: analytic)" if analytic else ")") if has_band else (
-        " (dashed: analytic)" if analytic else "")
-    fig.suptitle((title or f"{metric} against {_label(x)}") + extra, fontsize=10)
+    fig.suptitle(title or f"{metric} against {_label(x)}", fontsize=10)
     fig.tight_layout()
     return fig

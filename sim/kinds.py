@@ -52,6 +52,8 @@ LAZY_KINDS: dict[str, str] = {
     "thresholds": "sim._adapters:THRESHOLDS",
     "simulate": "sim._adapters:SIMULATE",
     "learn": "sim._adapters:LEARN",
+    "tournament": "sim.tournament:EXPERIMENT_KIND",
+    "assess": "sim.assess:EXPERIMENT_KIND",
 }
 _KINDS: dict[str, Kind] = {}
 #: entry-point group of installed plugins (modules that register strategies or kinds on import)

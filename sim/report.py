@@ -51,7 +51,9 @@ def default_figures(exp, kind, data) -> list:
 
     multi = [p for p in exp.parameters if len(p) > 1]
     numeric = [p for p in multi if p.numeric]
-    heads = [m for m in _headline(exp, kind) if data.has(m)]
+    heads = [m for m in kind.headline[:2] if data.has(m)]
+    if data.has("deviation.gain"):
+        heads.append("deviation.gain")
     out = []
     if len(numeric) >= 2:
         x, y = numeric[0], numeric[1]
@@ -80,6 +82,11 @@ def default_figures(exp, kind, data) -> list:
 
 
 def _caption(spec) -> str:
+    at = "".join(f", at {p} = {lab}" for p, lab in spec.at)
+    return _caption_body(spec).rstrip(".") + at + "."
+
+
+def _caption_body(spec) -> str:
     if spec.type == "heatmap":
         c = f"{spec.metric} in each cell of the sweep over {spec.x} (horizontal) and {spec.y} (vertical)"
         if spec.facet:
@@ -105,9 +112,9 @@ def _draw(spec, data):
 
     if spec.type == "heatmap":
         return figures.heatmap(data, spec.x, spec.y, spec.metric, threshold=spec.threshold, level=spec.level,
-                               facet=spec.facet, title=spec.title)
+                               facet=spec.facet, title=spec.title, at=spec.fixed())
     return figures.lines(data, spec.x, spec.metric, analytic=spec.analytic, group=spec.group, facet=spec.facet,
-                         title=spec.title)
+                         title=spec.title, at=spec.fixed())
 
 
 def _single_cell_figures(b, exp, row) -> None:
@@ -310,7 +317,7 @@ def write_report(folder, out=None) -> Path:
         "Software versions and platform: `manifest.json`.",
     ])
     b.code(f"supergame run {EXPERIMENT_COPY}          # the same numbers, in a new run folder\n"
-           f"supergame verify {folder.name}           # check the hashes and re-run a sample of cells")
+           f"supergame verify {folder}           # check the hashes and re-run a sample of cells")
 
     b.assumptions(list(kind.assumptions) + [
         "Every number in this report is read from the stored results of the run (results.sqlite); nothing is "
