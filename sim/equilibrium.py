@@ -357,6 +357,9 @@ def _br_isoelastic(ms: MarketSpec, i: int, row: np.ndarray) -> float:
         return A * Q ** (-1 / eps) * (1 - q / (eps * Q)) - c
 
     hi = (A / c) ** eps - R
+    if hi <= 0.0 or g(hi) >= 0.0:
+        # the rivals' output already drives the price to the firm's cost (to rounding): it sells nothing
+        return 0.0
     q = optimize.brentq(g, 0.0, hi, xtol=1e-15 * max(1.0, hi), rtol=1e-15, maxiter=500)
     return float(min(q, ms.capacity[i]))
 
