@@ -79,7 +79,7 @@ import numpy as np
 from numba import njit, prange
 
 from ._params import Integer, Options, Real, optional
-from ._rng import ReferenceStream, next_below, stream_states
+from ._rng import ReferenceStream, next_u64, stream_states
 from .errors import InputError
 
 __all__ = [
@@ -822,15 +822,15 @@ def _score(plan: TournamentPlan, records: list, threads) -> TournamentResult:
     order = sorted(range(E), key=lambda e: (ranks[e], e))
     stability = None
     if plan.settings["bootstrap"] > 0:
-        stability = _rank_stability(plan, records, W, ranks, threads)
+        stability = _rank_stability(plan, records, ranks, threads)
+    where = {g: k for k, g in enumerate(plan.groups)}
     versus = {}
     for metric in SCORES:
         val, _ = gp[metric]
         V = np.empty((E, E))
         for i in range(E):
             for j in range(E):
-                grp = tuple(sorted([i] + [j] * (n - 1)))
-                V[i, j] = val[plan.groups.index(grp), i]
+                V[i, j] = val[where[tuple(sorted([i] + [j] * (n - 1)))], i]
         versus[metric] = V
     pairwise = _pairwise(plan, records, gp, z) if n == 2 else None
     return TournamentResult(plan, records, gp, scores, ranks, order, stability, pairwise, versus, {})
@@ -846,6 +846,7 @@ def _pairwise(plan: TournamentPlan, records: list, gp: dict, z: float) -> dict:
     from .metrics import mean_estimate, ratio_estimate
 
     E = len(plan.entrants)
+    where = {g: k for k, g in enumerate(plan.groups)}
     out = {}
     for metric in SCORES:
         val, se = gp[metric]
@@ -856,11 +857,12 @@ def _pairwise(plan: TournamentPlan, records: list, gp: dict, z: float) -> dict:
         B = np.zeros((E, E), dtype=np.int64)
         for i in range(E):
             for j in range(E):
-                g = plan.groups.index(tuple(sorted((i, j))))
+                g = where[(i, j) if i <= j else (j, i)]
                 V[i, j] = val[g, i]
                 S[i, j] = se[g, i]
-                if i == j:
-                    continue
+        for i in range(E):
+            for j in range(i + 1, E):
+                g = where[(i, j)]
                 ds, ss = [], []
                 for mi in plan.group_seatings[g]:
                     rec = records[mi]
@@ -872,10 +874,12 @@ def _pairwise(plan: TournamentPlan, records: list, gp: dict, z: float) -> dict:
                     ss.append(float(mean_estimate(xi - xj).se if y is None else ratio_estimate(xi - xj, y).se))
                 k = len(ds)
                 D[i, j] = sum(ds) / k
-                DS[i, j] = math.sqrt(sum(x * x for x in ss)) / k
-                scale = max(1.0, abs(V[i, j]))
+                D[j, i] = -D[i, j]
+                DS[i, j] = DS[j, i] = math.sqrt(sum(x * x for x in ss)) / k
+                scale = max(1.0, abs(V[i, j]), abs(V[j, i]))
                 tie = abs(D[i, j]) <= 1e-12 * scale or (DS[i, j] > 0 and abs(D[i, j]) <= z * DS[i, j])
                 B[i, j] = 0 if tie else (1 if D[i, j] > 0 else -1)
+                B[j, i] = -B[i, j]
         out[metric] = {"value": V, "se": S, "difference": D, "difference_se": DS, "beats": B,
                        "wins": (B > 0).sum(axis=1), "losses": (B < 0).sum(axis=1)}
     return out
@@ -886,134 +890,162 @@ def _pairwise(plan: TournamentPlan, records: list, gp: dict, z: float) -> dict:
 # --------------------------------------------------------------------------------------------------
 
 
-def _bootstrap_arrays(plan: TournamentPlan, records: list, W: np.ndarray) -> tuple:
-    """Flatten the matches for the bootstrap kernel."""
+def _bootstrap_arrays(plan: TournamentPlan, records: list, W: np.ndarray, metric: str) -> tuple:
+    """Flatten the matches for the bootstrap kernel: the per-replication values the score ``metric``
+    needs (profit sums for profit and profit gain, discounted profits otherwise) and their weights."""
     n = plan.seats
     M = len(records)
     offsets = np.zeros(M + 1, dtype=np.int64)
     for k, r in enumerate(records):
         offsets[k + 1] = offsets[k] + r.n_reps
-    ps = np.concatenate([r.profit_sum for r in records]).astype(np.float64)
-    ds = np.concatenate([r.discounted for r in records]).astype(np.float64)
-    per = np.concatenate([r.periods for r in records]).astype(np.float64)
+    src = "discounted" if metric == "discounted_profit" else "profit_sum"
+    x = np.ascontiguousarray(np.concatenate([getattr(r, src) for r in records]).T, dtype=np.float64)
+    per = np.ascontiguousarray(np.concatenate([r.periods for r in records]), dtype=np.float64)
+    # matches whose replications all have the same length (a fixed horizon, learning sessions): the
+    # resampled total of periods is R times that length, exactly (sums of integers below 2**53)
+    const = np.array([bool(np.all(r.periods == r.periods[0])) for r in records], dtype=np.bool_)
     ent = np.zeros((M, n), dtype=np.int64)
     wgt = np.zeros((M, n))
     for k, r in enumerate(records):
         n_seat = len(plan.group_seatings[r.group])
         for s, e in enumerate(r.lineup):
-            c = r.lineup.count(e)
             ent[k, s] = e
-            wgt[k, s] = W[r.group, e] / (n_seat * c)
-    gaps = plan.collusive - plan.nash
-    return offsets, ps, ds, per, ent, wgt, np.ascontiguousarray(plan.nash, dtype=np.float64), gaps
+            wgt[k, s] = W[r.group, e] / (n_seat * r.lineup.count(e))
+    if metric == "profit_gain":
+        shift = np.ascontiguousarray(plan.nash, dtype=np.float64)
+        scale = np.ascontiguousarray(plan.collusive - plan.nash, dtype=np.float64)
+    else:
+        shift, scale = np.zeros(n), np.ones(n)
+    mode = {"profit_gain": 0, "profit": 0, "discounted_profit": 1}[metric]
+    return offsets, x, per, const, ent, wgt, shift, scale, mode
 
 
 @njit(cache=True, parallel=True)
-def _bootstrap_kernel(offsets, ps, ds, per, ent, wgt, nash, gaps, n_entrants, rng_states, out):
+def _bootstrap_kernel(offsets, x, per, const, ent, wgt, shift, scale, mode, rng_states, out):
     """Scores of every bootstrap resample (``prange`` over resamples); returns 0 (status OK).
 
-    Resample ``b`` (stream ``rng_states[b]``, advanced in place) draws, match by match and in match order,
-    ``R_m`` replication indices uniformly with replacement (:func:`sim._rng.next_below`) and sums the
-    drawn profit sums, discounted profits and periods; seat ``s`` of match ``m`` then adds
-    ``wgt[m, s]`` times its resampled profit gain, discounted profit and mean profit to its entrant's
-    scores in ``out[b, ent[m, s], 0..2]`` (``out`` must hold zeros on entry).
+    Resample ``b`` (stream ``rng_states[b]``, advanced in place) draws, match by match in match order,
+    ``R_m`` replication indices uniformly with replacement, two per 64-bit draw (the high and then the
+    low 32 bits, each mapped to ``0 .. R_m - 1`` by ``(bits * R_m) >> 32``, Lemire, 2019, "Fast random
+    integer generation in an interval", ACM TOMACS 29; the bias is below ``R_m / 2**32``). Seat ``s``
+    of match ``m`` then adds ``wgt[m, s] * (v - shift[s]) / scale[s]`` to its entrant's score
+    ``out[b, ent[m, s]]`` (zeros on entry), where ``v`` is the seat's resampled mean per period
+    (``mode`` 0: the sum of the drawn ``x`` over the sum of the drawn ``per``) or per replication
+    (``mode`` 1). Sums run in the order of the draws.
 
     Parameters
     ----------
     offsets : int64 ndarray of shape (M + 1,)
-        Replications of match ``m`` are rows ``offsets[m] .. offsets[m+1]-1`` of the data.
-    ps, ds : ndarray of shape (total, n_seats)
+        Replications of match ``m`` are columns ``offsets[m] .. offsets[m+1]-1``.
+    x : ndarray of shape (n_seats, total)
     per : ndarray of shape (total,)
+    const : bool ndarray of shape (M,)
+        The match's replications all have the same length.
     ent : int64 ndarray of shape (M, n_seats)
     wgt : ndarray of shape (M, n_seats)
-    nash, gaps : ndarray of shape (n_seats,)
+    shift, scale : ndarray of shape (n_seats,)
+    mode : int
     rng_states : uint64 ndarray of shape (B, 4)
-    out : ndarray of shape (B, n_entrants, 3)
+    out : ndarray of shape (B, n_entrants)
     """
     B = rng_states.shape[0]
     M = offsets.shape[0] - 1
-    n = ps.shape[1]
+    n = x.shape[0]
+    r_max = 1
+    for m in range(M):
+        r_max = max(r_max, offsets[m + 1] - offsets[m])
+    mask = np.uint64(0xFFFFFFFF)
+    sh = np.uint64(32)
     for b in prange(B):
         rng = rng_states[b]
-        sp = np.zeros(n)
-        sd = np.zeros(n)
+        idx = np.empty(r_max, dtype=np.int64)
         for m in range(M):
             lo = offsets[m]
             R = offsets[m + 1] - lo
+            uR = np.uint64(R)
+            r = 0
+            while r < R:
+                u = next_u64(rng)
+                idx[r] = lo + np.int64(((u >> sh) * uR) >> sh)
+                r += 1
+                if r < R:
+                    idx[r] = lo + np.int64(((u & mask) * uR) >> sh)
+                    r += 1
+            if mode == 1:
+                den = np.float64(R)
+            elif const[m]:
+                den = np.float64(R) * per[lo]
+            else:
+                den = 0.0
+                for r in range(R):
+                    den += per[idx[r]]
             for s in range(n):
-                sp[s] = 0.0
-                sd[s] = 0.0
-            sper = 0.0
-            for _r in range(R):
-                i = lo + next_below(rng, R)
-                for s in range(n):
-                    sp[s] += ps[i, s]
-                    sd[s] += ds[i, s]
-                sper += per[i]
-            for s in range(n):
-                e = ent[m, s]
-                prof = sp[s] / sper if sper > 0.0 else np.nan
-                gain = (prof - nash[s]) / gaps[s] if gaps[s] != 0.0 else np.nan
-                out[b, e, 0] += wgt[m, s] * gain
-                out[b, e, 1] += wgt[m, s] * (sd[s] / R)
-                out[b, e, 2] += wgt[m, s] * prof
+                a = 0.0
+                for r in range(R):
+                    a += x[s, idx[r]]
+                v = a / den if den > 0.0 else np.nan
+                g = (v - shift[s]) / scale[s] if scale[s] != 0.0 else np.nan
+                out[b, ent[m, s]] += wgt[m, s] * g
     return 0
 
 
-def _bootstrap_reference(offsets, ps, ds, per, ent, wgt, nash, gaps, n_entrants, rng_states) -> np.ndarray:
-    """Plain-Python twin of :func:`_bootstrap_kernel`: the same draws in the same order."""
+def _bootstrap_reference(offsets, x, per, const, ent, wgt, shift, scale, mode, rng_states, n_entrants) -> np.ndarray:
+    """Plain-Python twin of :func:`_bootstrap_kernel`: the same draws in the same order, shape (B, E)."""
     B = rng_states.shape[0]
     M = offsets.shape[0] - 1
-    n = ps.shape[1]
-    out = np.zeros((B, n_entrants, 3))
+    n = x.shape[0]
+    out = np.zeros((B, n_entrants))
     for b in range(B):
         rng = ReferenceStream(rng_states[b])
         for m in range(M):
             lo = int(offsets[m])
             R = int(offsets[m + 1]) - lo
-            sp = [0.0] * n
-            sd = [0.0] * n
+            acc = [0.0] * n
             sper = 0.0
-            for _r in range(R):
-                i = lo + rng.next_below(R)
+            draws = []
+            while len(draws) < R:
+                u = rng.next_u64()
+                draws.append((u >> 32) * R >> 32)
+                if len(draws) < R:
+                    draws.append((u & 0xFFFFFFFF) * R >> 32)
+            for d in draws:
+                i = lo + d
                 for s in range(n):
-                    sp[s] += float(ps[i, s])
-                    sd[s] += float(ds[i, s])
-                sper += float(per[i])
+                    acc[s] += float(x[s, i])
+                if mode == 0 and not const[m]:
+                    sper += float(per[i])
+            if mode == 0:
+                den = R * float(per[lo]) if const[m] else sper
+            else:
+                den = float(R)
             for s in range(n):
-                e = int(ent[m, s])
-                prof = sp[s] / sper if sper > 0.0 else math.nan
-                gain = (prof - float(nash[s])) / float(gaps[s]) if float(gaps[s]) != 0.0 else math.nan
-                out[b, e, 0] += float(wgt[m, s]) * gain
-                out[b, e, 1] += float(wgt[m, s]) * (sd[s] / R)
-                out[b, e, 2] += float(wgt[m, s]) * prof
+                v = acc[s] / den if den > 0.0 else math.nan
+                g = (v - float(shift[s])) / float(scale[s]) if float(scale[s]) != 0.0 else math.nan
+                out[b, int(ent[m, s])] += float(wgt[m, s]) * g
     return out
 
 
-_METRIC_COLUMN = {"profit_gain": 0, "discounted_profit": 1, "profit": 2}
-
-
-def bootstrap_scores(plan: TournamentPlan, records: list, threads: int | None = None,
+def bootstrap_scores(plan: TournamentPlan, records: list, threads: int | None = None, metric: str | None = None,
                      reference: bool = False) -> np.ndarray:
-    """Scores of every bootstrap resample, shape (B, E, 3): columns profit gain, discounted profit,
-    mean profit (see :func:`_bootstrap_kernel`)."""
+    """Entrant scores (by ``metric``, default the ranking score) of every bootstrap resample, shape (B, E)
+    (see :func:`_bootstrap_kernel`; ``reference=True`` runs the plain-Python twin)."""
     from .engine import _Threads
 
+    metric = metric or plan.settings["score"]
     B = int(plan.settings["bootstrap"])
     E = len(plan.entrants)
-    args = _bootstrap_arrays(plan, records, _rival_weights(plan))
+    args = _bootstrap_arrays(plan, records, _rival_weights(plan), metric)
     states = stream_states(plan.run["seed"], (*tuple(plan.settings["key"]), BOOTSTRAP_KEY), 0, B)
     if reference:
-        return _bootstrap_reference(*args, E, states)
-    out = np.zeros((B, E, 3))
+        return _bootstrap_reference(*args, states, E)
+    out = np.zeros((B, E))
     with _Threads(threads):
-        _bootstrap_kernel(*args, E, states, out)
+        _bootstrap_kernel(*args, states, out)
     return out
 
 
-def _rank_stability(plan: TournamentPlan, records: list, W, ranks: np.ndarray, threads) -> dict:
-    boot = bootstrap_scores(plan, records, threads)
-    S = boot[:, :, _METRIC_COLUMN[plan.settings["score"]]]
+def _rank_stability(plan: TournamentPlan, records: list, ranks: np.ndarray, threads) -> dict:
+    S = bootstrap_scores(plan, records, threads)
     R = _ranks(S)
     B = S.shape[0]
     alpha = 1.0 - plan.settings["confidence"]
@@ -1336,3 +1368,149 @@ def _kind() -> object:
 
 
 EXPERIMENT_KIND = _kind()
+
+
+# --------------------------------------------------------------------------------------------------
+# Benchmark (``supergame bench``, section ``tournament``)
+# --------------------------------------------------------------------------------------------------
+
+
+def _bench_entrants() -> list[Entrant]:
+    import strategies as S
+
+    return [Entrant("grim", S.GrimTrigger()), Entrant("nash-3", S.FinitePunishment(length=3)),
+            Entrant("tft", S.TitForTat()), Entrant("forgiving", S.ForgivingTitForTat(forgiveness=0.2)),
+            Entrant("wsls", S.WinStayLoseShift()), Entrant("stick-carrot", S.StickAndCarrot()),
+            Entrant("compete", S.AlwaysCompete()), Entrant("collude", S.AlwaysCollude()),
+            Entrant("sly", S.Opportunist(probability=0.05, after="collude")),
+            Entrant("cheat-10", S.Opportunist(probability=1.0, start=10))]
+
+
+def _kernel_seconds(plan: TournamentPlan, threads: int | None) -> tuple[float, list]:
+    """Seconds spent inside the engine kernel for every match of an automata-only plan: the arguments are
+    prepared outside the timed calls exactly as :func:`sim.engine.run_game` prepares them (one batch)."""
+    from . import _kernel as K
+    from .engine import RawRun, _Threads
+
+    run = plan.run
+    P, R = run["periods"], run["replications"]
+    key = tuple(plan.settings["key"])
+    total = 0.0
+    sums = []
+    with _Threads(threads) as n_threads:
+        chunks = max(1, min(4 * n_threads, R))
+        for m in plan.matches:
+            g = m.game
+            mk, lu, mon = g.arrays, g.lineup, g.monitoring
+            raw = RawRun.empty(R, mk.n_firms, mk.n_products, P, 0)
+            hist = np.zeros((chunks, K.N_HIST, P + 1), dtype=np.int64)
+            by_period = np.zeros((chunks, P), dtype=np.int64)
+            status = np.zeros(chunks, dtype=np.int64)
+            starts = np.linspace(0, R, chunks + 1).round().astype(np.int64)
+            rng = stream_states(run["seed"], (*key, m.index), 0, R)
+            args = (starts, rng, 0, mk.code, mk.scalars, mk.vector, mk.cost, mk.capacity, mk.owner, mk.n_firms,
+                    mk.quantity_setting, lu.states, lu.probs, lu.firms, lu.levels, g.tremble, mon["noise_code"],
+                    mon["sigma"], mon["perception_error"], mon["implementation_error"], P, run["delta"],
+                    run["horizon"] == "random", run["continuation"], 0, raw.profit_sum, raw.disc, raw.ints, raw.flts,
+                    hist, by_period, raw.path_actions, raw.path_prices, raw.path_market, raw.path_profit,
+                    raw.path_state, raw.path_flags, raw.path_collude, status)
+            t0 = time.perf_counter()
+            K.simulate_chunks(*args)
+            total += time.perf_counter() - t0
+            sums.append(raw.profit_sum)
+    return total, sums
+
+
+def bench_section(opts) -> dict:
+    """The ``tournament`` section of ``supergame bench`` (``opts``: :class:`sim.cli.bench.BenchOptions`).
+
+    Workload (issue acceptance): ten automaton entrants, two seats (55 groups, one seating each: a
+    symmetric linear Cournot duopoly), perception and implementation errors of 0.01, 1,000 periods
+    and 1,000 replications per match, 1,000 bootstrap resamples. Reported, after a warm-up that
+    compiles (or loads) every kernel:
+
+    * the wall time of :func:`tournament` (validation, compiling the line-ups, playing, scoring and
+      the bootstrap), best of ``opts.repeat``; target < 10 s;
+    * the time spent inside the engine kernel by the same matches (arguments prepared outside the
+      timed calls), best of ``opts.repeat``, and the driver overhead: the time of
+      :func:`run_tournament` (seeds, buffers, playing, scoring, bootstrap) over the kernel time,
+      minus one; target < 10 %;
+    * the plain-Python reference (:func:`sim._reference.reference_run`) on two replications of one match,
+      checked equal to the kernel and extrapolated to the whole tournament, and the ratio;
+    * the evolutionary analysis with the defaults (replicator dynamics over 1,000 generations, exact
+      and simulated Moran fixation with N = 100 and 10,000 invasions per pair).
+    """
+    from ._reference import reference_run
+    from .demand import LinearDemand
+    from .market import Market
+    from .monitoring import Monitoring
+
+    quick = bool(getattr(opts, "quick", False))
+    threads = int(getattr(opts, "threads", 2))
+    repeat = 1 if quick else max(1, int(getattr(opts, "repeat", 3)))
+    periods, reps, boot = (100, 100, 100) if quick else (1000, 1000, 1000)
+    market = Market(LinearDemand(100.0, 1.0), cost=10.0, n_firms=2)
+    mon = Monitoring(perception_error=0.01, implementation_error=0.01)
+    ents = _bench_entrants()
+    args = dict(periods=periods, replications=reps, delta=0.95, seed=20261201, bootstrap=boot)
+    # warm-up: compile or load every kernel
+    t0 = time.perf_counter()
+    warm = tournament(market, ents[:2], mon, periods=10, replications=10, bootstrap=10, threads=threads,
+                      progress=False)
+    evolve_tournament(warm, {**EVOLUTION_DEFAULTS, "moran_runs": 10}, threads)
+    t_warm = time.perf_counter() - t0
+
+    best_total, best_run, best_kernel = math.inf, math.inf, math.inf
+    res = None
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        plan = prepare_tournament(market, ents, mon, **args)
+        t_prep = time.perf_counter() - t0
+        res = run_tournament(plan, threads, progress=False)
+        t_total = time.perf_counter() - t0
+        best_total = min(best_total, t_total)
+        best_run = min(best_run, t_total - t_prep)
+        t_kernel, sums = _kernel_seconds(plan, threads)
+        best_kernel = min(best_kernel, t_kernel)
+    identical_kernel = all(np.array_equal(s, r.profit_sum) for s, r in zip(sums, res.matches))
+    t0 = time.perf_counter()
+    evo = evolve_tournament(res, EVOLUTION_DEFAULTS, threads)
+    t_evo = time.perf_counter() - t0
+
+    # the plain-Python reference on a slice: two replications of the last match
+    ref_reps = 2
+    m = plan.matches[-1]
+    t0 = time.perf_counter()
+    ref = reference_run(m.game, periods, ref_reps, 0.95, args["seed"], (m.index,))
+    t_ref = time.perf_counter() - t0
+    identical_ref = bool(np.array_equal(ref.profit_sum, res.matches[-1].profit_sum[:ref_reps]))
+    work = len(plan.matches) * periods * reps * 2
+    t_ref_all = t_ref / (periods * ref_reps * 2) * work
+    overhead = best_run / best_kernel - 1.0
+    return {
+        "workload": (f"{len(ents)} automaton entrants, 2 seats ({len(plan.matches)} matches), linear Cournot, "
+                     f"perception and implementation errors 0.01, {periods} periods x {reps} replications per "
+                     f"match, {boot} bootstrap resamples, {threads} threads"),
+        "matches": len(plan.matches),
+        "firm_periods": work,
+        "warm_up_seconds": t_warm,
+        "tournament_seconds": best_total,
+        "driver_seconds": best_run,
+        "kernel_seconds": best_kernel,
+        "driver_overhead": overhead,
+        "whole_call_overhead": best_total / best_kernel - 1.0,
+        "kernel_firm_periods_per_second": work / best_kernel,
+        "evolution_seconds": t_evo,
+        "moran_agreement_standard_errors": evo.agreement()["max_standard_errors"],
+        "reference": {"replications": ref_reps, "seconds": t_ref, "estimated_seconds_whole_tournament": t_ref_all,
+                      "identical_to_tournament": identical_ref},
+        "ratio_tournament_to_reference": t_ref_all / best_total,
+        "kernel_outputs_identical_to_tournament": bool(identical_kernel),
+        "targets": {
+            "10-entrant duopoly tournament, 1000 x 1000 per match, in < 10 s (compile excluded)":
+                (not quick) and best_total < 10.0,
+            "driver adds < 10 % to the kernel time": (not quick) and overhead < 0.10,
+            "reference and kernel identical": identical_ref and identical_kernel,
+        },
+        "notes": ["quick workload: the targets refer to the full workload"] if quick else [],
+    }
