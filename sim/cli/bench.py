@@ -243,6 +243,7 @@ BENCHMARKS: dict = {
     "matches": (matches_benchmark, "many small duopoly matches through the lower-level engine entry"),
     "theory": ("sim._bench_theory:theory_benchmark", "every threshold of 10-firm asymmetric markets"),
     "learning": ("sim.learning:bench_section", "Q-learning kernel vs plain-Python reference; 1,000 baseline sessions"),
+    "tournament": ("sim.tournament:bench_section", "10-entrant duopoly tournament: wall time, driver overhead"),
 }
 
 
