@@ -255,6 +255,15 @@ def _range_values(key: str, spec: dict) -> tuple[list, list | None, bool]:
     return [_clean(float(start) + k * float(step)) for k in range(n)], None, False
 
 
+def _is_range_spec(v: dict) -> bool:
+    """A range table (start/stop/num/step/log) or a values table -- not a nested path such as
+    ``[sweep.strategies.1] start = [0, 5]`` (a strategy parameter named ``start``)."""
+    if "values" in v and isinstance(v["values"], list):
+        return True
+    ends = [v[k] for k in ("start", "stop") if k in v]
+    return bool(ends) and all(not isinstance(x, list | dict) for x in ends)
+
+
 def _flatten_sweep(table: dict, prefix: str = "") -> list[tuple[str, Any]]:
     """(path, spec) pairs of a [sweep] table, accepting quoted dotted keys and nested tables."""
     out = []
@@ -265,7 +274,7 @@ def _flatten_sweep(table: dict, prefix: str = "") -> list[tuple[str, Any]]:
         if isinstance(v, list):
             out.append((path, v))
         elif isinstance(v, dict):
-            if v and set(v) <= _RANGE_KEYS and ({"values", "start", "stop"} & set(v)):
+            if _is_range_spec(v):
                 out.append((path, v))
             elif not v:
                 raise InputError(f"sweep.{path}", "is an empty table; give a list of values or a range")
@@ -704,6 +713,8 @@ def _sweep_error(exc: InputError, cell: Cell, swept: set) -> InputError:
             if "unknown" in exc.message and key == p:
                 return InputError(f"sweep.{p}", f"does not exist: {exc.key}: {exc.message}")
             return InputError(f"sweep.{p}", f"{cell.describe()}: {exc.key} {exc.message}")
+        if key and p.startswith(key + "."):
+            return InputError(f"sweep.{p}", f"does not exist: {exc.key} is a value, not a table ({exc.message})")
     where = f"{exc.key}: " if exc.key else ""
     return InputError("sweep", f"{cell.describe()}: {where}{exc.message}")
 

@@ -22,8 +22,8 @@ Backends
     (same Python environment with supergame installed; plugin files are uploaded to the workers).
 
 A cell that raises is recorded as failed with its error (one line) and the others go on. A worker
-process that dies takes only its cell down: the pool is rebuilt and the cell is tried once more
-before it is recorded as failed.
+process that dies takes only its cell down: the pool is rebuilt, the cells that were in flight are
+run again one at a time, and the one whose worker dies again is recorded as failed.
 """
 
 from __future__ import annotations
@@ -198,11 +198,13 @@ def _died(i: int) -> dict:
 
 
 def _processes(payloads: Iterable[dict], on_result, workers: int, plugins) -> None:
+    """Local worker processes. When a worker dies, every cell then in flight becomes a suspect and is run
+    again alone; a suspect whose worker dies while it runs alone is recorded as failed."""
     from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
     from concurrent.futures.process import BrokenProcessPool
 
     feed = _Feed(payloads)
-    tries: dict[int, int] = {}
+    suspects: set[int] = set()
     ctx = _mp_context()
     exhausted = False
     while not exhausted or feed.again:
@@ -212,11 +214,17 @@ def _processes(payloads: Iterable[dict], on_result, workers: int, plugins) -> No
         broken = False
         try:
             while True:
-                while len(inflight) < 2 * workers and not broken:
+                solo = len(inflight) == 1 and next(iter(inflight.values()))["index"] in suspects
+                while len(inflight) < 2 * workers and not broken and not solo:
                     p = feed.next()
                     if p is None:
                         exhausted = True
                         break
+                    if p["index"] in suspects:
+                        if inflight:  # a suspect runs alone: wait for the others first
+                            feed.push(p)
+                            break
+                        solo = True
                     try:
                         inflight[pool.submit(run_payload, p)] = p
                     except BrokenProcessPool:
@@ -225,24 +233,25 @@ def _processes(payloads: Iterable[dict], on_result, workers: int, plugins) -> No
                 if not inflight:
                     break
                 done, _ = wait(list(inflight), return_when=FIRST_COMPLETED)
+                alone = len(inflight) == 1
                 for fut in done:
                     p = inflight.pop(fut)
                     try:
                         res = fut.result()
                     except BrokenProcessPool:
                         broken = True
-                        i = p["index"]
-                        tries[i] = tries.get(i, 0) + 1
-                        if tries[i] >= 2:
-                            on_result(_died(i))
+                        if alone and p["index"] in suspects:
+                            on_result(_died(p["index"]))
                         else:
+                            suspects.add(p["index"])
                             feed.push(p)
                         continue
                     on_result(res)
                 if broken:
-                    # the pool is unusable: requeue what was in flight and build a new one
+                    # the pool is unusable: what was in flight becomes suspect; build a new pool
                     for fut, p in inflight.items():
                         fut.cancel()
+                        suspects.add(p["index"])
                         feed.push(p)
                     inflight.clear()
                     exhausted = False
