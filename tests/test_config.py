@@ -44,7 +44,8 @@ def error_of(d) -> InputError:
 
 
 def test_grid_order_first_path_slowest_and_cells_carry_their_values():
-    e = experiment_from_dict(doc(sweep={"run.delta": [0.8, 0.9], "monitoring": {"perception_error": [0.0, 0.01, 0.02]}}))
+    sweep = {"run.delta": [0.8, 0.9], "monitoring": {"perception_error": [0.0, 0.01, 0.02]}}
+    e = experiment_from_dict(doc(sweep=sweep))
     assert e.n_cells == 6
     got = [(c.values["run.delta"], c.values["monitoring.perception_error"]) for c in e.cells()]
     assert got == [(0.8, 0.0), (0.8, 0.01), (0.8, 0.02), (0.9, 0.0), (0.9, 0.01), (0.9, 0.02)]
@@ -72,7 +73,8 @@ def test_ranges_linear_step_log_and_labelled_values():
 
 def test_whole_entries_swept_with_labels():
     e = experiment_from_dict(doc(sweep={"strategies.1": {
-        "values": [{"strategy": "grim_trigger", "seats": 3}, {"strategy": "finite_punishment", "length": 3, "seats": 3}],
+        "values": [{"strategy": "grim_trigger", "seats": 3},
+                   {"strategy": "finite_punishment", "length": 3, "seats": 3}],
         "labels": ["grim", "T=3"]}}))
     assert e.parameter("strategies.1").labels == ("grim", "T=3")
     assert e.cell(1).doc["strategies"][0] == {"strategy": "finite_punishment", "length": 3, "seats": 3}

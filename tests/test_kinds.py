@@ -57,7 +57,7 @@ def test_deviation_gain_without_noise_equals_the_closed_form(strategy, T, delta)
     of the punishment periods (all remaining periods for grim trigger) -- summed over the fixed horizon."""
     entry = {"strategy": strategy, "seats": 3, **({"length": T} if T else {})}
     H = 60
-    res, cfg, _ = run_cell(sim_doc(strategies=[entry], deviation={"firm": 1},
+    res, _cfg, _ = run_cell(sim_doc(strategies=[entry], deviation={"firm": 1},
                                    run={"periods": H, "replications": 5, "delta": delta, "seed": 3}))
     st = sim.stage_game(sim.market_from_dict(TARNVALE), "proportional")
     c, d, n = st.collusive.firm_profits[0], st.deviation_profits[0], st.nash.firm_profits[0]
