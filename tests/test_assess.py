@@ -1,0 +1,260 @@
+"""The coordinated-effects comparison: closed-form thresholds before and after, the binding firm in
+homogeneous Bertrand with unequal shares, simulated persistence against the geometric law of the
+first breakdown, asymmetry measures against the Cournot closed form, the factor table's arithmetic,
+sensitivity (scale invariance of share-calibrated logit markets; where the conclusion flips) and
+validation of the experiment tables."""
+
+import json
+import math
+
+import numpy as np
+import pytest
+
+import sim
+from sim import InputError, LinearDemand, Market
+from sim._jsonutil import dumps
+from sim.assess import _flips, assess, assessment_from_dict, asymmetry, symmetric_counterpart
+from sim.calibration import MarketData
+from sim.merger import Merger
+
+SMALL_RUN = {"periods": 200, "replications": 200, "seed": 7}
+
+
+def _f(k: int) -> float:
+    return (k + 1) ** 2 / (k * k + 6 * k + 1)
+
+
+def test_four_to_three_symmetric_cournot():
+    """Symmetric linear Cournot, four firms merging to three without efficiencies: the grim-trigger
+    threshold falls from 25/41 to 4/7, as the n-firm formula (n+1)^2/(n^2+6n+1) says (Friedman, 1971;
+    the n-firm form as in Vives, 1999, Oligopoly Pricing, ch. 9 -- from memory)."""
+    m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
+    a = assess(m, Merger([1, 2]), simulate=False, deltas=(0.59, 0.6))
+    c = a.conclusion
+    assert c["threshold_before"] == pytest.approx(25 / 41, rel=1e-12)
+    assert c["threshold_after"] == pytest.approx(4 / 7, rel=1e-12)
+    assert c["direction"] == "easier" and c["change"] == pytest.approx(4 / 7 - 25 / 41, rel=1e-10)
+    np.testing.assert_allclose(a.before.report.grim.per_firm, 25 / 41, rtol=1e-12)
+    np.testing.assert_allclose(a.after.report.grim.per_firm, 4 / 7, rtol=1e-12)
+    # at delta = 0.6 the agreement is sustainable only after the merger (4/7 < 0.6 < 25/41)
+    assert a.merger.post.spec().n_firms == 3
+    a6 = assess(m, Merger([1, 2]), simulate=False, run={"delta": 0.6}, deltas=(0.6,))
+    assert a6.conclusion["category"] == "after only"
+    # partial collusion at 0.6: the full agreement after, less than full before
+    gain = {(p.scheme, p.T, p.delta): p.profit_gain for p in a6.before.partial}
+    gain_after = {(p.scheme, p.T, p.delta): p.profit_gain for p in a6.after.partial}
+    assert gain_after[("grim", None, 0.6)] == pytest.approx(1.0) and gain[("grim", None, 0.6)] < 1.0
+    # the number-of-firms factor uses the symmetric counterpart: the same formula at 4 and 3 firms
+    row = next(f for f in a.factors if f["factor"] == "number of firms")
+    assert row["values"]["base"] == pytest.approx(_f(4), rel=1e-12)
+    assert row["values"]["varied"] == pytest.approx(_f(3), rel=1e-12)
+    assert row["model_direction"] == "facilitates" and row["agrees"] is True
+
+
+def test_homogeneous_bertrand_unequal_shares_binding_firm_is_the_smallest():
+    """Homogeneous Bertrand, equal costs, market shares s_i at the common collusive price: firm i's
+    grim-trigger constraint s_i pi_M / (1 - delta) >= pi_M gives delta_i = 1 - s_i, so the smallest
+    firm binds (Ivaldi, Jullien, Rey, Seabright and Tirole, 2003, The Economics of Tacit Collusion,
+    section on symmetry; Tirole, 1988, ch. 6 -- from memory). Shares at a common price are the
+    demand's split weights; the merged firm's weight is the sum of its owners'."""
+    shares = [0.45, 0.3, 0.15, 0.1]
+    m = Market(LinearDemand(10, 1, split=shares), cost=2.0, n_firms=4, model="bertrand")
+    a = assess(m, Merger([2, 4]), simulate=False, deltas=())
+    g = a.before.report.grim
+    np.testing.assert_allclose(g.per_firm, 1 - np.array(shares), rtol=1e-12)
+    assert g.binding == 3 and g.market == pytest.approx(0.9, rel=1e-12)
+    # after: Firm 2 + Firm 4 holds 0.4; the smallest is Firm 3 with 0.15
+    ga = a.after.report.grim
+    np.testing.assert_allclose(ga.per_firm, [0.55, 0.6, 0.85], rtol=1e-12)
+    assert a.after.names[ga.binding] == "Firm 3" and ga.market == pytest.approx(0.85, rel=1e-12)
+    assert a.conclusion["direction"] == "easier"
+    assert a.conclusion["binding_before"] == "Firm 4" and a.conclusion["binding_after"] == "Firm 3"
+
+
+def test_asymmetry_against_the_cournot_closed_form():
+    """Linear Cournot quantities q_i = (a - (n+1) c_i + sum c) / ((n+1) b) (e.g. Tirole, 1988,
+    ch. 5): with a = 100, b = 1 and costs 10, 10, 20 they are 25, 25 and 15."""
+    m = Market(LinearDemand(100, 1), cost=[10, 10, 20])
+    s = asymmetry(m)
+    sh = np.array([25, 25, 15]) / 65
+    np.testing.assert_allclose(s["shares"], sh, rtol=1e-12)
+    assert s["hhi"] == pytest.approx(10_000 * (sh * sh).sum(), rel=1e-12)
+    assert s["share_ratio"] == pytest.approx(25 / 15, rel=1e-12)
+    assert s["cost_ratio"] == pytest.approx(2.0) and s["cost_cv"] == pytest.approx(np.std([10, 10, 20]) / (40 / 3))
+    assert s["capacities"] is None and s["products"] == [1, 1, 1]
+    sym = symmetric_counterpart(m)
+    np.testing.assert_allclose(sym.spec().cost, 40 / 3)
+    assert sim.critical_discount_factors(sym, punishments=()).grim.market == pytest.approx(_f(3), rel=1e-12)
+
+
+def test_persistence_matches_the_geometric_first_breakdown():
+    """Grim trigger with implementation errors e only: some firm trembles in a period with
+    probability q = 1 - (1 - e)^n, so the first breakdown is geometric and its mean over a horizon H
+    is (1 - (1 - q)^H) / q (elementary). The simulated restricted mean (Kaplan-Meier) lies within 4
+    standard errors before (n = 4) and after (n = 3) -- 4 s.e. so that two fixed-seed checks fail by
+    chance with probability below 1e-4."""
+    e, H = 0.01, 200
+    m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
+    a = assess(m, Merger([1, 2]), monitoring={"implementation_error": e}, run={**SMALL_RUN, "periods": H},
+               deltas=())
+    for side, n in ((a.before, 4), (a.after, 3)):
+        q = 1 - (1 - e) ** n
+        expected = (1 - (1 - q) ** H) / q
+        est = side.simulation.metrics["first_breakdown"]
+        assert abs(est.value - expected) < 4 * est.se, (side.label, est.value, expected, est.se)
+    p = a.conclusion["persistence"]
+    assert p["collusive_share_after"] > p["collusive_share_before"] and p["significant"]
+    # more noise, less persistence: the transparency factor
+    row = next(f for f in a.factors if f["factor"] == "transparency")
+    assert row["model_direction"] == "facilitates" and row["agrees"] is True
+
+
+def test_same_seed_same_numbers_and_key_prefix_changes_streams():
+    m = Market(LinearDemand(100, 1), cost=10.0, n_firms=3)
+    kw = {"monitoring": {"perception_error": 0.02}, "run": SMALL_RUN, "deltas": (0.5,)}
+    one = dumps(assess(m, Merger([1, 2]), **kw).to_dict())
+    two = dumps(assess(m, Merger([1, 2]), **kw).to_dict())
+    assert one == two
+    other = assess(m, Merger([1, 2]), key=(9,), **kw)
+    assert other.before.simulation.metrics["collusive_share"].value != json.loads(one)["before"]["simulation"][
+        "collusive_share"]["value"]
+
+
+def test_frequency_and_growth_rows():
+    """Frequency: with per-period discount factor delta, interacting once every L periods gives
+    delta^L, so collusion survives up to L = ln(threshold) / ln(delta). Growth: profits growing at
+    rate g make the effective discount factor delta (1 + g) (Ivaldi et al., 2003 -- from memory),
+    so the growth needed is threshold / delta - 1."""
+    m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
+    a = assess(m, Merger([1, 2]), simulate=False, run={"delta": 0.8}, deltas=(), growth=0.05)
+    rows = {f["factor"]: f for f in a.factors}
+    fr = rows["frequency of interaction"]["values"]
+    assert fr["before"]["longest_interval"] == pytest.approx(math.log(25 / 41) / math.log(0.8), rel=1e-12)
+    assert fr["after"]["longest_interval"] == pytest.approx(math.log(4 / 7) / math.log(0.8), rel=1e-12)
+    gr = rows["demand growth"]["values"]
+    assert gr["before"]["growth_needed"] == pytest.approx((25 / 41) / 0.8 - 1, rel=1e-12)
+    # an already symmetric market has nothing to symmetrise
+    assert rows["symmetry"]["model_direction"] == "not computed"
+    assert rows["transparency"]["model_direction"] == "not computed"
+
+
+def test_logit_thresholds_do_not_depend_on_the_margin_but_on_the_market_size():
+    """With shares fixed, a logit calibration's margin sets mu; every markup (mu / (1 - S_f)) and
+    every profit then scales with mu while the effective qualities (a_i - c_i) / mu = 1 / (1 - S_f) +
+    ln(s_i / s_0) do not, so every ratio of profits and every critical discount factor is the same
+    (derived from the Werden-Froeb calibration equations). The potential market size changes the
+    shares and the outside good's share, so it moves the thresholds."""
+    d = MarketData("logit", prices=[4.2, 3.9, 4.6, 3.7], shares=[0.22, 0.18, 0.12, 0.10], size=5e4, margin=0.35)
+    a = assess(d, Merger([2, 4]), simulate=False, deltas=(),
+               sensitivity={"margin": [0.2, 0.35, 0.5], "size": {"start": 4e4, "stop": 1.2e5, "num": 3}})
+    s = a.sensitivity["margin"]
+    np.testing.assert_allclose(s["threshold_before"], a.conclusion["threshold_before"], rtol=1e-9)
+    np.testing.assert_allclose(s["threshold_after"], a.conclusion["threshold_after"], rtol=1e-9)
+    assert "do not depend on margin" in s["note"]
+    z = a.sensitivity["size"]
+    assert np.ptp(z["threshold_before"]) > 1e-3 and "note" not in z
+    assert z["observed"] == 5e4 and a.conclusion["robustness"]["margin"].startswith("the merger's effect")
+
+
+def test_where_the_conclusion_flips_along_a_calibration_input():
+    """Differentiated Bertrand calibrated from the market elasticity and a margin: the margin sets
+    the substitutability and so the thresholds. At delta = 0.65 the conclusion goes from 'neither'
+    to 'before only' to 'both' as the margin rises; each reported bracket is checked against the
+    thresholds at its ends."""
+    d = MarketData("differentiated", model="bertrand", prices=[10.0] * 4, quantities=[10.0] * 4,
+                   market_elasticity=-1.0, margin=0.25)
+    xs = [0.15, 0.2, 0.3]
+    a = assess(d, Merger([1, 2]), simulate=False, deltas=(), run={"delta": 0.65}, sensitivity={"margin": xs})
+    s = a.sensitivity["margin"]
+    assert s["category_at_delta"] == ["neither", "before only", "both"]
+    assert [c["from"] for c in s["category_flips"]] == ["neither", "before only"]
+    for c in s["category_flips"]:
+        lo, hi = c["between"]
+        i, j = xs.index(lo), xs.index(hi)
+        assert (s["threshold_before"][i] > 0.65) != (s["threshold_before"][j] > 0.65) or (
+            (s["threshold_after"][i] > 0.65) != (s["threshold_after"][j] > 0.65))
+    assert set(s["direction"]) == {"harder"} and s["flips"] == []
+
+
+def test_flip_locator():
+    x = np.array([0.0, 1.0, 2.0, 3.0, 4.0])
+    assert _flips(x, np.array([1.0, 0.5, -0.5, -1.0, 1.0])) == pytest.approx([1.5, 3.5])
+    assert _flips(x, np.array([0.0, 1.0, 1.0, np.nan, 2.0])) == []
+    assert _flips(x, np.array([1.0, 0.0, -1.0, 0.0, 0.0])) == pytest.approx([1.0])
+
+
+def test_delta_and_noise_sensitivity():
+    m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
+    a = assess(m, Merger([1, 2]), monitoring={"perception_error": 0.01}, run=SMALL_RUN, deltas=(),
+               sensitivity={"delta": {"start": 0.5, "stop": 0.7, "step": 0.05}, "noise": [0.0, 1.0, 2.0]})
+    sd = a.sensitivity["delta"]
+    assert sd["values"] == pytest.approx([0.5, 0.55, 0.6, 0.65, 0.7])
+    assert sd["category"] == ["neither", "neither", "after only", "both", "both"]
+    assert sd["flips"] == pytest.approx([4 / 7, 25 / 41])
+    sn = a.sensitivity["noise"]
+    # without noise grim trigger never breaks down
+    assert sn["collusive_share_before"][0] == 1.0 and sn["collusive_share_after"][0] == 1.0
+    assert sn["collusive_share_before"][2] < sn["collusive_share_before"][1] < 1.0
+    assert sn["monitoring"][2]["perception_error"] == pytest.approx(0.02)
+
+
+_DOC = {
+    "experiment": {"name": "t", "kind": "assess"},
+    "market": {"model": "cournot", "demand": "linear", "intercept": 100.0, "slope": 1.0, "cost": 10.0, "n_firms": 3},
+    "merger": {"firms": [1, 2]},
+    "assess": {"simulate": False, "deltas": [0.5]},
+}
+
+
+@pytest.mark.parametrize("change, key, words", [
+    ({"assess": {"colour": 1}}, "assess.colour", "unknown key"),
+    ({"assess": {"scheme": "finite"}}, "assess.length", "missing"),
+    ({"assess": {"scheme": "grim", "length": 2}}, "assess.length", "only used"),
+    ({"assess": {"deltas": [1.2]}}, "assess.deltas[1]", "(0, 1)"),
+    ({"assess": {"sensitivity": {"margin": [0.2, 0.3]}}}, "assess.sensitivity.margin", "[data] table"),
+    ({"assess": {"sensitivity": {"delta": {"start": 0.9, "stop": 0.5, "num": 3}}}}, "assess.sensitivity.delta.stop",
+     "above"),
+    ({"assess": {"sensitivity": {"delta": [0.5]}}}, "assess.sensitivity.delta", "at least 2"),
+    ({"assess": {"sensitivity": {"wind": [1, 2]}}}, "assess.sensitivity.wind", "unknown key"),
+    ({"collusion": {"agreement": "given"}}, "collusion.agreement", "do not carry over"),
+    ({"run": {"speed": 1}}, "run.speed", "unknown key"),
+    ({"run": {"delta": 1.5}}, "run.delta", "(0, 1]"),
+    ({"monitoring": {"signal": "price"}}, "strategies", "price-watching"),
+    ({"merger": {"firms": [1, 7]}}, "merger.firms", "firm 7 does not exist"),
+    ({"data": {"demand": "logit"}}, "data", "not both"),
+    ({"sweep": {"run.delta": [0.5, 0.6]}}, "sweep", "supergame run"),
+    ({"experiment": {"kind": "simulate"}}, "experiment.kind", "assess"),
+])
+def test_bad_tables_raise_naming_the_field(change, key, words):
+    doc = {**_DOC, **change}
+    with pytest.raises(InputError) as err:
+        assess(**{k: v for k, v in assessment_from_dict(doc).items() if k != "name"})
+    assert err.value.key == key and words in err.value.message
+
+
+def test_missing_tables():
+    with pytest.raises(InputError, match="merger"):
+        assessment_from_dict({k: v for k, v in _DOC.items() if k != "merger"})
+    with pytest.raises(InputError) as err:
+        assessment_from_dict({k: v for k, v in _DOC.items() if k != "market"})
+    assert err.value.key == "data" and "missing" in err.value.message
+
+
+def test_post_merger_line_up_keeps_the_first_merging_firms_strategy():
+    m = Market(LinearDemand(100, 1), cost=10.0, n_firms=3)
+    lineup = [{"strategy": "grim_trigger"}, {"strategy": "finite_punishment", "length": 2},
+              {"strategy": "grim_trigger"}]
+    a = assess(m, Merger([2, 3]), lineup=lineup, monitoring={"perception_error": 0.01}, run=SMALL_RUN, deltas=())
+    assert [e["strategy"] for e in a.settings["lineup_after"]] == ["grim_trigger", "finite_punishment"]
+    assert a.after.simulation.settings["lineup"][1]["strategy"] == "finite_punishment"
+
+
+def test_assessment_is_json_ready_and_carries_the_caution():
+    m = Market(LinearDemand(100, 1), cost=[10, 12, 14], capacity=[40, 40, 40])
+    a = assess(m, Merger([2, 3], efficiency=0.1), simulate=False, deltas=(0.6,), agreement="proportional")
+    d = json.loads(dumps(a.to_dict()))
+    assert "not proof of conduct" in d["caution"]
+    assert d["merger"]["post_market"]["cost"] == pytest.approx([10.0, 12 * 0.9])
+    assert d["before"]["thresholds"]["grim"]["binding_name"] in ("Firm 1", "Firm 2", "Firm 3")
+    assert d["conclusion"]["statement"].startswith("Under the stated assumptions")
+    assert any("efficiency" in x for x in d["assumptions"])
