@@ -413,8 +413,9 @@ def fixation_probability(f, g) -> float:
         raise ValueError("fitness must be positive")
     L = np.cumsum(np.log(g) - np.log(f))
     top = float(L.max())
-    log_s = top + math.log(float(np.exp(L - top).sum()))
-    return float(math.exp(-np.logaddexp(0.0, log_s)))
+    with np.errstate(under="ignore"):  # terms far below the largest do not count
+        log_s = top + math.log(float(np.exp(L - top).sum()))
+        return math.exp(-float(np.logaddexp(0.0, log_s)))
 
 
 def _pair_fitness(payoffs: PayoffTable, a: int, b: int, N: int, w: float, mapping: str):
