@@ -255,7 +255,8 @@ def test_failed_cells_are_listed_in_the_summary(tmp_path, capsys):
         register_kind(Kind("oddfail", ("params",), lambda d: d["params"], run, seed_key=None), replace=True)
         """))
     exp = tmp_path / "odd.toml"
-    exp.write_text('[experiment]\nname = "odd"\nkind = "oddfail"\n[params]\nx = 0\n[sweep]\n"params.x" = [0, 1, 2, 3]\n')
+    exp.write_text('[experiment]\nname = "odd"\nkind = "oddfail"\n[params]\nx = 0\n'
+                   '[sweep]\n"params.x" = [0, 1, 2, 3]\n')
     assert main(["run", str(exp), "--plugin", str(plugin), "--out", str(tmp_path / "r"), "--workers", "2",
                  "--report"]) == 0
     out = capsys.readouterr().out

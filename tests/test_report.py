@@ -16,13 +16,13 @@ import pytest
 
 matplotlib.use("Agg")
 
-import matplotlib.pyplot as plt  # noqa: E402
+import matplotlib.pyplot as plt
 
-from sim._text import CAUTION  # noqa: E402
-from sim.bundle import Bundle, latex_table  # noqa: E402
-from sim.errors import InputError  # noqa: E402
-from sim.report import write_report  # noqa: E402
-from sim.runs import open_run, run_experiment  # noqa: E402
+from sim._text import CAUTION
+from sim.bundle import Bundle, latex_table
+from sim.errors import InputError
+from sim.report import write_report
+from sim.runs import open_run, run_experiment
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -138,7 +138,7 @@ def test_report_reads_the_store_and_never_recomputes(finished, monkeypatch):
     assert man["experiment"]["sha256"] == hashlib.sha256(SWEEP.encode()).hexdigest()
     assert set(man["run_data"]) >= {"../results.csv", "../results.sqlite"}
     with open_run(finished) as rf:
-        header, body = rf.table()
+        header, _body = rf.table()
     assert (target / "tables/results.csv").read_text().splitlines()[0] == ",".join(header)
 
 
