@@ -285,14 +285,14 @@ def assessment_figures(a) -> list:
     x = np.arange(len(sch))
     b = [_val(s["before"]) for s in sch]
     af = [_val(s["after"]) for s in sch]
-    ax.bar(x - 0.2, np.nan_to_num(b, nan=1.0), 0.4, label="before", color="#2c7bb6",
-           hatch=None)
-    ax.bar(x + 0.2, np.nan_to_num(af, nan=1.0), 0.4, label="after", color="#d7191c")
-    for k, (u, v) in enumerate(zip(b, af)):
-        if np.isnan(u):
-            ax.text(k - 0.2, 1.0, "none", ha="center", va="bottom", fontsize=7)
-        if np.isnan(v):
-            ax.text(k + 0.2, 1.0, "none", ha="center", va="bottom", fontsize=7)
+    for off, vals, lab, col in ((-0.2, b, "before", "#2c7bb6"), (0.2, af, "after", "#d7191c")):
+        ok = ~np.isnan(vals)
+        ax.bar(x[ok] + off, np.asarray(vals)[ok], 0.4, label=lab, color=col)
+        if (~ok).any():
+            # not sustainable below one: an empty hatched bar up to one
+            ax.bar(x[~ok] + off, np.ones((~ok).sum()), 0.4, color="none", edgecolor=col, hatch="//", lw=0.8)
+            for k in np.flatnonzero(~ok):
+                ax.text(k + off, 1.0, "none", ha="center", va="bottom", fontsize=7)
     ax.axhline(delta, color="k", lw=1, ls="--", label=f"discount factor {delta:.3g}")
     ax.set_xticks(x, [s["scheme"] for s in sch], rotation=20, ha="right", fontsize=8)
     ax.set_ylim(0, 1.08)
@@ -355,7 +355,7 @@ def assessment_figures(a) -> list:
         for t, lab in ((s["threshold_before"], "threshold before"), (s["threshold_after"], "threshold after")):
             if t is not None:
                 ax.axvline(t, color="k", lw=0.8, ls=":")
-                ax.text(t, 1.02, lab, rotation=90, fontsize=7, va="bottom", ha="right")
+                ax.text(t, 0.02, lab, rotation=90, fontsize=7, va="bottom", ha="right")
         ax.set_xlabel("discount factor")
         ax.set_ylabel(f"profit gain ({s['scheme']})")
         ax.set_ylim(-0.02, 1.25)

@@ -624,6 +624,12 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
         raise InputError("strategies", "with monitoring.signal = 'price' give a line-up of price-watching "
                                        "strategies (for example trigger_price) as [[strategies]] entries")
     post_entries = [entries[i] for i in range(pre_ms.n_firms) if i not in mres.merging[1:]]
+    from .equilibrium import collusive_outcome
+
+    for mk in (pre, mres.post):
+        # an agreement the market does not admit (e.g. 'proportional' with homogeneous Bertrand) is an
+        # input error, found before the work starts
+        collusive_outcome(mk.spec(), opts["agreement"])
     games = {}
     if opts["simulate"]:
         for label, mk, ent in (("before", pre, entries), ("after", mres.post, post_entries)):
@@ -649,8 +655,9 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
                               eff_delta, settings)
 
 
-def run_assessment(p: PreparedAssessment, progress=None, key=()) -> Assessment:
-    """Compute a prepared assessment (see :func:`assess`)."""
+def run_assessment(p: PreparedAssessment, progress=None, key=(), threads: int | None = None) -> Assessment:
+    """Compute a prepared assessment (see :func:`assess`); ``threads`` caps the simulations' threads
+    (results do not depend on it)."""
     from .engine import prepare_game
 
     opts, data, calibration, merger, mres = p.opts, p.data, p.calibration, p.merger, p.mres
@@ -669,12 +676,12 @@ def run_assessment(p: PreparedAssessment, progress=None, key=()) -> Assessment:
             sides[label] = _side(label, mk, names, opts, bar)
         if opts["simulate"]:
             for j, label in enumerate(("before", "after")):
-                sides[label].simulation = _run(games[label], runs, key=key + (j,))
+                sides[label].simulation = _run(games[label], runs, key=key + (j,), threads=threads)
                 bar.step(f"simulate {label}")
             if _has_noise(mon):
                 for j, (label, mk, ent) in enumerate((("before", pre, entries), ("after", mres.post, post_entries))):
                     g2 = prepare_game(mk, ent, _scaled(mon, 2.0), opts["agreement"], strict=False)
-                    sides[label].noisier = _run(g2, runs, key=key + (2, j))
+                    sides[label].noisier = _run(g2, runs, key=key + (2, j), threads=threads)
                     bar.step(f"simulate {label}, doubled noise")
             else:
                 bar.step()
@@ -683,7 +690,7 @@ def run_assessment(p: PreparedAssessment, progress=None, key=()) -> Assessment:
         conclusion = _conclusion(before, after, opts, eff_delta, mres)
         factors = _factors(pre, mres, before, after, opts, eff_delta, mon, bar)
         sensitivity_out = _sensitivity(data, merger, sens, opts, runs, mon, entries, post_entries, before, after,
-                                       eff_delta, bar, key)
+                                       eff_delta, bar, key, threads)
         if sensitivity_out:
             conclusion["robustness"] = _robustness(sensitivity_out, conclusion)
     finally:
@@ -711,12 +718,12 @@ def _side(label: str, market, names: list, opts: dict, bar: _Progress) -> Market
     return MarketSide(label, market, list(names), rep, parts, asymmetry(market, st.nash))
 
 
-def _run(game, runs: dict, key) -> Any:
+def _run(game, runs: dict, key, threads: int | None = None) -> Any:
     from .engine import run_game
     from .metrics import summarize
 
     raw = run_game(game, runs["periods"], runs["replications"], runs["delta"], runs["seed"], key, runs["horizon"],
-                   runs["continuation"], runs["paths"], None, False)
+                   runs["continuation"], runs["paths"], threads, False)
     return summarize(raw, game, runs, confidence=0.95, baseline=False)
 
 
@@ -960,7 +967,7 @@ def _signed_change(before: float, after: float) -> float:
 
 
 def _sensitivity(data, merger, sens: dict, opts: dict, runs: dict, mon, entries, post_entries, before, after,
-                 delta: float, bar, key=()) -> dict:
+                 delta: float, bar, key=(), threads=None) -> dict:
     from .calibration import calibrate
     from .engine import prepare_game
     from .merger import merge
@@ -1038,7 +1045,7 @@ def _sensitivity(data, merger, sens: dict, opts: dict, runs: dict, mon, entries,
             for i, (label, mk, ent) in enumerate((("before", before.market, entries),
                                                   ("after", after.market, post_entries))):
                 g = prepare_game(mk, ent, _scaled(mon, float(k)), opts["agreement"], strict=False)
-                e = _run(g, runs, key=tuple(key) + (3, j, i)).metrics["collusive_share"]
+                e = _run(g, runs, key=tuple(key) + (3, j, i), threads=threads).metrics["collusive_share"]
                 res[label].append(e)
             bar.step(f"sensitivity noise x{k:g}")
         diff = np.array([a.value - b.value for a, b in zip(res["after"], res["before"])])
@@ -1294,7 +1301,7 @@ def _direction_code(d: str) -> float:
 def _run_cell(p: PreparedAssessment, ctx):
     from .kinds import CellResult
 
-    a = run_assessment(p, progress=ctx.progress, key=ctx.key)
+    a = run_assessment(p, progress=ctx.progress, key=ctx.key, threads=ctx.threads)
     c = a.conclusion
     m = {"threshold.before": _none(c["threshold_before"]), "threshold.after": _none(c["threshold_after"]),
          "threshold.change": c["change"], "direction": _direction_code(c["direction"]),
