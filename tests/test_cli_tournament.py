@@ -1,0 +1,195 @@
+"""``supergame tournament`` end to end: text, JSON, tables and figures from an experiment file; the shipped
+experiment; the experiment kind; bad input refused with one line and exit status 2, before any output."""
+
+import csv
+import json
+from pathlib import Path
+
+import pytest
+
+from sim._text import CAUTION
+from sim.cli import main
+
+ROOT = Path(__file__).resolve().parents[1]
+
+BASE = """
+[experiment]
+name = "small-tournament"
+kind = "tournament"
+
+[market]
+model = "cournot"
+demand = "linear"
+intercept = 100.0
+slope = 1.0
+cost = 10.0
+n_firms = 2
+
+[monitoring]
+implementation_error = 0.02
+
+[[entrants]]
+label = "grim"
+strategy = "grim_trigger"
+
+[[entrants]]
+label = "nash-2"
+strategy = "finite_punishment"
+length = 2
+
+[[entrants]]
+label = "compete"
+strategy = "always_compete"
+
+[tournament]
+seats = 2
+bootstrap = 50
+generations = 100
+population = 10
+moran_runs = 200
+
+[run]
+periods = 60
+replications = 20
+seed = 5
+"""
+
+
+def write(tmp_path, text=BASE, name="t.toml"):
+    p = tmp_path / name
+    p.write_text(text)
+    return str(p)
+
+
+def test_text_output(tmp_path, capsys):
+    assert main(["tournament", write(tmp_path)]) == 0
+    out = capsys.readouterr().out
+    assert "Ranking by profit gain" in out
+    assert "Who beats whom" in out and "Moran process, N = 10" in out
+    for label in ("grim", "nash-2", "compete"):
+        assert label in out
+    assert out.rstrip().endswith(CAUTION)
+
+
+def test_json_tables_and_figures(tmp_path, capsys):
+    out_dir, plot_dir = tmp_path / "out", tmp_path / "fig"
+    assert main(["tournament", write(tmp_path), "--json", "--out", str(out_dir), "--plot", str(plot_dir)]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["caution"] == CAUTION
+    assert [r["rank"] for r in doc["ranking"]] == sorted(r["rank"] for r in doc["ranking"])
+    assert {r["label"] for r in doc["ranking"]} == {"grim", "nash-2", "compete"}
+    assert len(doc["matches"]) == 6 and doc["evolution"]["fixation"]["runs"] == 200
+    assert doc["pairwise"]["profit_gain"]["beats"][2][0] == 1  # always compete beats grim in their match
+    for name in ("scores", "matches", "groups", "pairwise", "rank_above", "replicator", "fixation", "stability"):
+        assert (out_dir / f"{name}.csv").is_file(), name
+    with open(out_dir / "scores.csv") as f:
+        rows = list(csv.DictReader(f))
+    assert [r["entrant"] for r in rows] == [r["label"] for r in doc["ranking"]]
+    assert float(rows[0]["profit_gain"]) == pytest.approx(doc["ranking"][0]["profit_gain"]["value"])
+    with open(out_dir / "replicator.csv") as f:
+        assert sum(1 for _ in f) == 1 + 101
+    saved = json.loads((out_dir / "tournament.json").read_text())
+    assert saved["ranking"] == doc["ranking"]
+    assert (out_dir / "summary.txt").read_text().rstrip().endswith(CAUTION)
+    for name in ("score_heatmap", "ranking", "replicator", "fixation"):
+        assert (plot_dir / f"{name}.png").stat().st_size > 1000
+    assert sorted(doc["files"]) == sorted(str(p) for p in [*out_dir.iterdir(), *plot_dir.iterdir()])
+
+
+def test_same_numbers_again_and_with_other_threads(tmp_path, capsys):
+    path = write(tmp_path)
+    assert main(["tournament", path, "--json", "--threads", "1"]) == 0
+    a = json.loads(capsys.readouterr().out)
+    assert main(["tournament", path, "--json", "--threads", "2"]) == 0
+    b = json.loads(capsys.readouterr().out)
+    for k in ("ranking", "matches", "rank_stability", "evolution"):
+        assert a[k] == b[k]
+
+
+def test_shipped_experiment_is_valid(capsys):
+    from sim.tomlfile import read_toml
+    from sim.tournament import check_experiment, tournament_from_dict
+
+    path = ROOT / "experiments" / "tournament-punishments.toml"
+    text = path.read_text()
+    assert text.startswith("#") and "What it shows" in text
+    plan = check_experiment(tournament_from_dict(read_toml(path)))
+    assert plan.settings["seatings_played"] == "all" and len(plan.matches) == 64
+    assert main(["check", str(path)]) == 0
+    capsys.readouterr()
+
+
+def test_experiment_kind_reports_its_metrics(tmp_path):
+    from sim.kinds import CellContext, get_kind
+    from sim.tomlfile import read_toml
+
+    kind = get_kind("tournament")
+    cfg = kind.prepare(read_toml(write(tmp_path)))
+    res = kind.run(cfg, CellContext(index=3, threads=1))
+    assert list(res.metrics) == list(kind.metric_names(cfg))
+    assert res.metrics["rank.compete"] in (1.0, 2.0, 3.0) and 0 <= res.metrics["ranking_holds"] <= 1
+    again = kind.run(kind.prepare(read_toml(write(tmp_path))), CellContext(index=3, threads=2))
+    assert again.metrics == res.metrics
+    other = kind.run(cfg, CellContext(index=4, threads=1))
+    assert other.metrics["score.grim"] != res.metrics["score.grim"]  # another cell draws other streams
+
+
+def _replace(old, new):
+    assert old in BASE
+    return BASE.replace(old, new)
+
+
+ONE_ENTRANT = BASE.split("[[entrants]]")[0] + '[[entrants]]\nlabel = "grim"\nstrategy = "grim_trigger"\n' + \
+    "[tournament]" + BASE.split("[tournament]")[1]
+
+BAD = {
+    "fewer than two entrants": (ONE_ENTRANT, "entrants: a tournament needs at least 2 entrants, got 1"),
+    "duplicate labels": (_replace('label = "compete"', 'label = "grim"'),
+                         "entrants[3].label: duplicate label 'grim' (also entrants[1])"),
+    "seats the market cannot fill": (_replace("seats = 2", "seats = 3"),
+                                     "tournament.seats: must equal the market's number of firms (2), got 3"),
+    "learner with too many seats": (
+        _replace("n_firms = 2", "n_firms = 5").replace("seats = 2", "seats = 5").replace(
+            'strategy = "always_compete"', 'strategy = "qlearning"').replace("implementation_error = 0.02", ""),
+        "tournament.seats: learning entrants (such as 'compete') need 2 to 4 seats, got 5"),
+    "unknown tournament key": (_replace("bootstrap = 50", "bootstrap = 50\nrounds = 3"),
+                               "tournament.rounds: unknown key"),
+    "unknown strategy parameter": (_replace("length = 2", "lenght = 2"),
+                                   "entrants[2].lenght: unknown parameter of finite_punishment"),
+    "missing label": (_replace('label = "nash-2"\n', ""), "entrants[2].label: missing"),
+    "paths": (_replace("seed = 5", "seed = 5\npaths = 1"), "run.paths: unknown key (full paths are not recorded"),
+    "unknown table": (BASE + "\n[strategies]\nx = 1\n", "strategies: unknown table for a tournament"),
+    "bad value": (_replace("replications = 20", "replications = -1"), "run.replications: must be an integer"),
+    "population below seats": (_replace("population = 10", "population = 1"), "tournament.population:"),
+    "selection too strong for the payoffs": (_replace("population = 10", "population = 10\nselection = 1.0"),
+                                             "tournament.selection: the fitness 1 - w + w * payoff must stay"),
+    "wrong kind": (_replace('kind = "tournament"', 'kind = "simulate"'), "experiment.kind: this command runs"),
+    "shares": (_replace("generations = 100", "generations = 100\nshares = [1, 2]"),
+               "tournament.shares: must be 3 non-negative numbers"),
+}
+
+
+@pytest.mark.parametrize("case", list(BAD))
+def test_bad_input_one_line_status_2_no_output(tmp_path, capsys, case):
+    text, start = BAD[case]
+    out_dir = tmp_path / "out"
+    code = main(["tournament", write(tmp_path, text), "--out", str(out_dir), "--plot", str(out_dir)])
+    cap = capsys.readouterr()
+    assert code == 2
+    assert cap.out == ""
+    lines = cap.err.strip().splitlines()
+    assert len(lines) == 1 and "Traceback" not in cap.err
+    assert lines[0].startswith(f"supergame tournament: error: {start}"), lines[0]
+    assert not out_dir.exists()
+
+
+def test_bad_flags(tmp_path, capsys):
+    path = write(tmp_path)
+    assert main(["tournament", path, "--threads", "0"]) == 2
+    assert capsys.readouterr().err.startswith("supergame tournament: error: --threads:")
+    f = tmp_path / "file"
+    f.write_text("x")
+    assert main(["tournament", path, "--out", str(f)]) == 2
+    assert capsys.readouterr().err.startswith("supergame tournament: error: --out:")
+    assert main(["tournament", str(tmp_path / "missing.toml")]) == 2
+    assert "no such file" in capsys.readouterr().err
