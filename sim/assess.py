@@ -785,6 +785,22 @@ def _conclusion(before: MarketSide, after: MarketSide, opts: dict, delta: float,
                 f"{p['collusive_share_after']:.4f} after (difference {p['difference']:+.4f}"
                 + (f", 95% CI [{p['difference_low']:+.4f}, {p['difference_high']:+.4f}]" if p["difference_low"]
                    is not None else "") + ").")
+    warnings = []
+    for side in (before, after):
+        st = side.report.stage
+        gain = st.collusive.firm_profits - st.nash.firm_profits
+        scale = max(1.0, float(np.abs(st.nash.firm_profits).max()))
+        short = [side.names[i] for i in np.flatnonzero(gain <= 1e-12 * scale)]
+        if short:
+            its, it = ("its", "it") if len(short) == 1 else ("their", "them")
+            warnings.append(f"{side.label} the merger the agreement ({opts['agreement']}) gives "
+                            f"{' and '.join(short)} no more than {its} static Nash profit, so no punishment can hold "
+                            f"{it} to the agreement" + (": an agreement that shares the gains, such as "
+                                                        "'proportional', may be more relevant"
+                                                        if opts["agreement"] == "joint" else ""))
+    out["warnings"] = warnings
+    if warnings:
+        txt += " Note: " + "; ".join(warnings) + "."
     out["statement"] = txt
     return out
 

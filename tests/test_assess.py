@@ -258,3 +258,18 @@ def test_assessment_is_json_ready_and_carries_the_caution():
     assert d["before"]["thresholds"]["grim"]["binding_name"] in ("Firm 1", "Firm 2", "Firm 3")
     assert d["conclusion"]["statement"].startswith("Under the stated assumptions")
     assert any("efficiency" in x for x in d["assumptions"])
+
+
+def test_warning_when_the_agreement_leaves_a_firm_below_its_nash_profit():
+    """The joint-profit maximum of a logit market sets one markup for every product (Anderson, de
+    Palma and Thisse, 1992, ch. 7); with a dominant two-product firm it leaves the small firms below
+    their static Nash profits, so no punishment can sustain it: the conclusion says so, and the
+    proportional agreement is sustainable."""
+    d = MarketData("logit", prices=[1.5, 1.4, 1.6, 1.2], shares=[0.3, 0.2, 0.1, 0.1], margin=0.3, owner=[1, 1, 2, 3])
+    a = assess(d, Merger([1, 2]), simulate=False, deltas=())
+    st = a.before.report.stage
+    assert st.collusive.firm_profits[1] < st.nash.firm_profits[1]
+    assert a.conclusion["threshold_before"] is None and len(a.conclusion["warnings"]) == 2
+    assert "Firm 2 and Firm 3 no more than their static Nash profit" in a.conclusion["statement"]
+    p = assess(d, Merger([1, 2]), simulate=False, deltas=(), agreement="proportional")
+    assert p.conclusion["warnings"] == [] and 0 < p.conclusion["threshold_before"] < 1
