@@ -193,3 +193,39 @@ def test_bad_flags(tmp_path, capsys):
     assert capsys.readouterr().err.startswith("supergame tournament: error: --out:")
     assert main(["tournament", str(tmp_path / "missing.toml")]) == 2
     assert "no such file" in capsys.readouterr().err
+
+
+LEARNERS = BASE.replace("[monitoring]\nimplementation_error = 0.02\n", "").replace(
+    '[[entrants]]\nlabel = "nash-2"\nstrategy = "finite_punishment"\nlength = 2\n',
+    '[[entrants]]\nlabel = "q"\nstrategy = "qlearning"\nm = 5\n') + """
+[learning]
+beta = 2e-3
+delta = 0.9
+convergence = 300
+max_periods = 200000
+sessions = 6
+"""
+
+
+def test_learning_entrant_from_a_file(tmp_path, capsys):
+    assert main(["tournament", write(tmp_path, LEARNERS), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    kinds = {tuple(m["seats"]): m["kind"] for m in doc["matches"]}
+    assert kinds[("q", "q")] == "learning sessions" and kinds[("grim", "compete")] == "automata"
+    learner = next(e for e in doc["settings"]["entrants"] if e["label"] == "q")
+    assert learner["strategy"] == "qlearning" and learner["m"] == 5 and learner["beta"] == 2e-3
+    q_match = next(m for m in doc["matches"] if m["seats"] == ["q", "q"])
+    assert q_match["replications"] == 6 and 0 <= q_match["converged"] <= 1
+
+
+def test_progress_bar_on_request(capsys):
+    import strategies as S
+    from sim import LinearDemand, Market
+    from sim.tournament import Entrant, tournament
+
+    market = Market(LinearDemand(100.0, 1.0), cost=10.0, n_firms=2)
+    ents = [Entrant("a", S.GrimTrigger()), Entrant("b", S.AlwaysCompete())]
+    tournament(market, ents, periods=10, replications=5, bootstrap=0, progress=True)
+    assert "tournament" in capsys.readouterr().err
+    tournament(market, ents, periods=10, replications=5, bootstrap=0)  # not a terminal: quiet
+    assert capsys.readouterr().err == ""
