@@ -32,8 +32,9 @@ _EXPORTS = {
     "monitoring": ["Monitoring", "monitoring_from_dict"],
     "metrics": ["Estimate", "SimulationResult", "Survival", "kaplan_meier", "mean_estimate", "ratio_estimate"],
     "baseline": ["analytic_baseline", "first_breakdown_distribution", "trigger_price_chain"],
+    # the function sim.tournament.tournament is not exported: its name is the module's
     "tournament": ["Entrant", "TournamentPlan", "TournamentResult", "prepare_tournament", "run_tournament",
-                   "tournament", "tournament_from_dict"],
+                   "tournament_from_dict"],
     "evolution": ["EvolutionResult", "PayoffTable", "ReplicatorPath", "evolve", "fixation_probabilities",
                   "replicator", "simulate_fixation"],
     "calibration": ["Calibration", "MarketData", "calibrate", "data_from_dict"],
