@@ -1,21 +1,21 @@
-"""Presentation of an assessment (:class:`sim.assess.Assessment`): tables, figures and the summary.
+"""Presentation of an assessment (:class:`sim.assess.Assessment`): tables, figures, the summary and
+the evidence bundle.
 
-* :func:`assessment_tables` -- every table of the summary as ``(headers, rows)`` (written as CSV and
-  LaTeX by the bundle);
-* :func:`assessment_figures` -- PNG and PDF figures (matplotlib, Agg backend; fixed metadata so
-  that a re-run writes the same bytes);
-* :func:`summary_blocks` -- the summary as a list of blocks (headings, paragraphs, tables, figures),
-  rendered to Markdown (:func:`render_markdown`), self-contained HTML with the figures embedded
-  (:func:`render_html`) and plain text for the terminal (:func:`render_text`).
+* :func:`assessment_tables` -- every table of the summary as ``(headers, rows)``;
+* :func:`assessment_figures` -- the figures (matplotlib, Agg backend), as unsaved figure objects;
+* :func:`summary_blocks` -- the summary in reading order (headings, paragraphs, lists, tables,
+  figures);
+* :func:`write_assessment_bundle` -- the evidence bundle, written with the shared
+  :class:`sim.bundle.Bundle` (Markdown and self-contained HTML summaries, PNG and PDF figures, CSV
+  and LaTeX tables, manifest with hashes), plus the full result as ``assessment.json`` and the
+  experiment file;
+* :func:`render_text` -- the terminal summary.
 
 Nothing here recomputes a number: it only reads the assessment.
 """
 
 from __future__ import annotations
 
-import base64
-import html
-import math
 from pathlib import Path
 
 import numpy as np
@@ -23,8 +23,8 @@ import numpy as np
 from ._text import CAUTION, fmt_num, table
 from .errors import InputError
 
-__all__ = ["assessment_figures", "assessment_tables", "render_html", "render_markdown", "render_text",
-           "summary_blocks"]
+__all__ = ["assessment_figures", "assessment_tables", "bundle_target", "render_text", "summary_blocks",
+           "write_assessment_bundle"]
 
 _CATEGORY_COLOURS = {"neither": "#d9d9d9", "both": "#fdae61", "after only": "#d7191c", "before only": "#2c7bb6"}
 _CATEGORY_LABELS = {"neither": "sustainable neither before nor after", "both": "sustainable before and after",
@@ -177,51 +177,6 @@ def _factor_values(f: dict) -> str:
     return "; ".join(parts)
 
 
-def to_csv(headers, rows) -> str:
-    import csv
-    import io
-
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(headers)
-    for r in rows:
-        w.writerow([_csv_cell(x) for x in r])
-    return buf.getvalue()
-
-
-def _csv_cell(x):
-    if x is None:
-        return ""
-    if isinstance(x, bool | np.bool_):
-        return "true" if x else "false"
-    if isinstance(x, float | np.floating):
-        v = float(x)
-        return "" if math.isnan(v) else repr(v)
-    return x
-
-
-_LATEX_SPECIAL = {"&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_", "{": r"\{", "}": r"\}",
-                  "~": r"\textasciitilde{}", "^": r"\textasciicircum{}", "\\": r"\textbackslash{}"}
-
-
-def _tex(s) -> str:
-    return "".join(_LATEX_SPECIAL.get(ch, ch) for ch in str(s))
-
-
-def to_latex(headers, rows, caption: str = "") -> str:
-    """A booktabs table."""
-    cols = "l" + "r" * (len(headers) - 1)
-    lines = [r"\begin{table}[htbp]", r"\centering"]
-    if caption:
-        lines.append(rf"\caption{{{_tex(caption)}}}")
-    lines += [rf"\begin{{tabular}}{{{cols}}}", r"\toprule", " & ".join(_tex(h) for h in headers) + r" \\",
-              r"\midrule"]
-    for r in rows:
-        lines.append(" & ".join(_tex(x if isinstance(x, str) else _n(x)) for x in r) + r" \\")
-    lines += [r"\bottomrule", r"\end{tabular}", r"\end{table}", ""]
-    return "\n".join(lines)
-
-
 # --------------------------------------------------------------------------------------------------
 # Figures
 # --------------------------------------------------------------------------------------------------
@@ -235,25 +190,6 @@ def _pyplot():
 
     plt.rcParams["svg.hashsalt"] = "supergame"
     return plt
-
-
-def save_figure(fig, folder: Path, stem: str) -> dict:
-    """Save as PNG and PDF without timestamps (same content, same bytes); close it. Returns ext -> bytes."""
-    import io
-
-    import matplotlib.pyplot as plt
-
-    out = {}
-    for ext, meta in (("png", {"Software": None}), ("pdf", {"CreationDate": None, "ModDate": None,
-                                                             "Producer": None, "Creator": None})):
-        buf = io.BytesIO()
-        fig.savefig(buf, format=ext, dpi=150, metadata=meta)
-        out[ext] = buf.getvalue()
-        if folder is not None:
-            Path(folder).mkdir(parents=True, exist_ok=True)
-            (Path(folder) / f"{stem}.{ext}").write_bytes(out[ext])
-    plt.close(fig)
-    return out
 
 
 def _val(x):
@@ -274,7 +210,7 @@ _CAPTIONS = {
 
 def assessment_figures(a) -> list:
     """The figures of an assessment as ``(name, matplotlib figure, caption)``; the caller saves and closes
-    them (:func:`save_figure`)."""
+    them (the bundle saves PNG and PDF without timestamps, so the same content gives the same bytes)."""
     plt = _pyplot()
     figs = []
     delta = a.conclusion["delta"]
@@ -590,66 +526,6 @@ def summary_blocks(a, figures=()) -> list:
     return B
 
 
-def _cell_text(x) -> str:
-    return x if isinstance(x, str) else _n(x)
-
-
-def render_markdown(title: str, blocks: list, tables: dict, figures: dict) -> str:
-    """Markdown of the blocks (``figures``: name -> caption; the PNGs are in ``figures/``)."""
-    out = [f"# {title}", ""]
-    for b in blocks:
-        if b[0] == "heading":
-            out += ["## " + b[1], ""]
-        elif b[0] == "paragraph":
-            out += [b[1], ""]
-        elif b[0] == "bullets":
-            out += [f"- {x}" for x in b[1]] + [""]
-        elif b[0] == "table":
-            headers, rows = tables[b[1]]
-            out += [f"**{b[2]}**", "", "| " + " | ".join(headers) + " |",
-                    "| " + " | ".join("---" for _ in headers) + " |"]
-            out += ["| " + " | ".join(_cell_text(x).replace("|", r"\|") for x in r) + " |" for r in rows]
-            out += ["", f"*table: `tables/{b[1]}.csv`, `tables/{b[1]}.tex`*", ""]
-        elif b[0] == "figure":
-            out += [f"![{figures[b[1]]}](figures/{b[1]}.png)", "", f"*Figure: {figures[b[1]]}*", ""]
-    out += ["---", "", f"**Caution.** {CAUTION}", ""]
-    return "\n".join(out)
-
-
-def render_html(title: str, blocks: list, tables: dict, figures: dict, pngs: dict) -> str:
-    """Self-contained HTML of the blocks: figures embedded as base64 PNG (``pngs``: name -> bytes)."""
-    e = html.escape
-    body = [f"<h1>{e(title)}</h1>"]
-    for b in blocks:
-        if b[0] == "heading":
-            body.append(f"<h2>{e(b[1])}</h2>")
-        elif b[0] == "paragraph":
-            cls = ' class="caution"' if b[1].startswith("Caution:") else ""
-            body.append(f"<p{cls}>{e(b[1])}</p>")
-        elif b[0] == "bullets":
-            body.append("<ul>" + "".join(f"<li>{e(x)}</li>" for x in b[1]) + "</ul>")
-        elif b[0] == "table":
-            headers, rows = tables[b[1]]
-            t = [f"<table><caption>{e(b[2])}</caption><thead><tr>"
-                 + "".join(f"<th>{e(h)}</th>" for h in headers) + "</tr></thead><tbody>"]
-            t += ["<tr>" + "".join(f"<td>{e(_cell_text(x))}</td>" for x in r) + "</tr>" for r in rows]
-            t.append("</tbody></table>")
-            body.append("".join(t))
-        elif b[0] == "figure":
-            data = base64.b64encode(pngs[b[1]]).decode("ascii")
-            body.append(f'<figure><img alt="{e(figures[b[1]])}" src="data:image/png;base64,{data}">'
-                        f"<figcaption>{e(figures[b[1]])}</figcaption></figure>")
-    body.append(f'<p class="caution"><strong>Caution.</strong> {e(CAUTION)}</p>')
-    style = ("body{font-family:sans-serif;max-width:1100px;margin:2em auto;line-height:1.4}"
-             "table{border-collapse:collapse;margin:1em 0;font-size:0.85em}"
-             "th,td{border-top:1px solid #999;border-bottom:1px solid #999;padding:3px 8px;text-align:right}"
-             "th:first-child,td:first-child{text-align:left}caption{text-align:left;font-style:italic}"
-             "img{max-width:100%}.caution{border:1px solid #c00;padding:0.6em;background:#fff5f5}")
-    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
-            f"<title>{e(title)}</title><style>{style}</style></head><body>\n" + "\n".join(body)
-            + "\n</body></html>\n")
-
-
 def render_text(a, name: str = "assessment") -> str:
     """The terminal summary: the headline, the thresholds, persistence, the factors and the caution."""
     T = assessment_tables(a)
@@ -763,12 +639,7 @@ def write_assessment_bundle(target, a, experiment_file, name: str, start: float,
         blocks = summary_blocks(a, [f[0] for f in figs])
         extra = _manifest_extra(a, experiment_file, raw, name, start, end, argv)
         result = (dumps(a.to_dict(), indent=2, sort_keys=True) + "\n").encode("utf-8")
-        try:
-            import sim.bundle  # noqa: F401  (the shared writer of evidence bundles)
-        except ImportError:
-            _write_private(tmp, title, blocks, tables, figs, raw, result, extra)
-        else:
-            _write_with_bundle(tmp, title, blocks, tables, figs, raw, result, extra)
+        _write_with_bundle(tmp, title, blocks, tables, figs, raw, result, extra)
         if target.exists():
             target.rmdir()
         tmp.rename(target)
@@ -809,42 +680,3 @@ def _write_with_bundle(folder: Path, title, blocks, tables, figs, raw: bytes, re
     b.attach("assessment.json", result)
     b.write(manifest=extra)
 
-
-def _write_private(folder: Path, title, blocks, tables, figs, raw: bytes, result: bytes, extra: dict) -> None:
-    """The same bundle without the shared writer (same layout and manifest fields)."""
-    import hashlib
-    import importlib.metadata as md
-    import json
-    import platform
-
-    files = {}
-
-    def put(rel: str, data: bytes) -> None:
-        p = folder / rel
-        p.parent.mkdir(parents=True, exist_ok=True)
-        p.write_bytes(data)
-        files[rel] = hashlib.sha256(data).hexdigest()
-
-    caps, pngs = {}, {}
-    for name, fig, cap in figs:
-        data = save_figure(fig, None, name)
-        put(f"figures/{name}.png", data["png"])
-        put(f"figures/{name}.pdf", data["pdf"])
-        caps[name], pngs[name] = cap, data["png"]
-    for name, (headers, rows) in tables.items():
-        put(f"tables/{name}.csv", to_csv(headers, rows).encode("utf-8"))
-        put(f"tables/{name}.tex", to_latex(headers, rows, name.replace("_", " ")).encode("utf-8"))
-    put("summary.md", render_markdown(title, blocks, tables, caps).encode("utf-8"))
-    put("summary.html", render_html(title, blocks, tables, caps, pngs).encode("utf-8"))
-    put("experiment.toml", raw)
-    put("assessment.json", result)
-    versions = {"python": platform.python_version()}
-    for pkg in ("supergame", "numpy", "numba", "scipy", "matplotlib", "tqdm"):
-        try:
-            versions[pkg] = md.version(pkg)
-        except md.PackageNotFoundError:  # pragma: no cover - running from a source tree
-            versions[pkg] = None
-    man = {"format": "supergame-bundle/1", "title": title, **extra, "packages": versions,
-           "platform": {"system": platform.system(), "release": platform.release(), "machine": platform.machine()},
-           "caution": CAUTION, "files": dict(sorted(files.items()))}
-    (folder / "manifest.json").write_text(json.dumps(man, indent=2) + "\n", encoding="utf-8")
