@@ -244,6 +244,7 @@ BENCHMARKS: dict = {
     "theory": ("sim._bench_theory:theory_benchmark", "every threshold of 10-firm asymmetric markets"),
     "learning": ("sim.learning:bench_section", "Q-learning kernel vs plain-Python reference; 1,000 baseline sessions"),
     "tournament": ("sim.tournament:bench_section", "10-entrant duopoly tournament: wall time, driver overhead"),
+    "sweep": ("sim.sweep:bench_section", "experiments layer: per-cell overhead, 2 local workers against 1"),
 }
 
 
