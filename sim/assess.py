@@ -19,8 +19,15 @@
   Tacit Collusion", final report for DG Competition, European Commission; directions as recalled
   from the report -- from memory);
 * sensitivity: the comparison repeated over ranges of the uncertain inputs (the calibration's
-  margin or elasticities, the discount factor, the monitoring noise), locating where the conclusion
-  flips.
+  margin or elasticities, the potential market of a logit calibration, the discount factor, the
+  monitoring noise), locating where the conclusion flips. With the observed shares held fixed, a
+  logit or linear-Cournot calibration's margin or elasticity only rescales every markup and profit,
+  so the thresholds do not depend on it; the output says so when the curves are flat.
+
+Layers: :func:`prepare_assessment` validates everything (and calibrates, merges and compiles the
+line-ups) before any work; :func:`run_assessment` does the work; :func:`assess` is both. The
+module's ``EXPERIMENT_KIND`` runs one assessment per cell of ``supergame run`` (flat metrics such
+as ``threshold.before``, ``threshold.after``, ``direction``, ``collusive_share.before``).
 
 Discount factor. The headline discount factor is ``run.delta``; with a random horizon
 (``run.horizon = "random"``) the factor that matters is ``delta * continuation``.
@@ -43,8 +50,8 @@ import numpy as np
 from ._params import Boolean, Integer, Options, Real
 from .errors import InputError, SolverError
 
-__all__ = ["ASSESS_TABLES", "Assessment", "MarketSide", "assess", "assessment_from_dict", "asymmetry",
-           "symmetric_counterpart"]
+__all__ = ["ASSESS_TABLES", "Assessment", "MarketSide", "PreparedAssessment", "assess", "assessment_from_dict",
+           "asymmetry", "prepare_assessment", "run_assessment", "symmetric_counterpart"]
 
 SCHEME_NAMES = {"grim": "grim trigger", "finite": "Nash reversion", "stick_carrot": "stick and carrot"}
 AGREEMENTS = ("joint", "symmetric", "proportional")
