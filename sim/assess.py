@@ -1084,7 +1084,7 @@ def _sensitivity(data, merger, sens: dict, opts: dict, runs: dict, mon, entries,
     return out
 
 
-def _flat(ts, tol: float = 1e-9) -> bool:
+def _flat(ts, tol: float = 1e-6) -> bool:
     r = [_rank(t) for t in ts]
     if all(math.isinf(x) for x in r):
         return True
