@@ -920,6 +920,38 @@ def _bootstrap_arrays(plan: TournamentPlan, records: list, W: np.ndarray, metric
     return offsets, x, per, const, ent, wgt, shift, scale, mode
 
 
+@njit(cache=True, inline="always")
+def _sum_drawn(v, idx, R):
+    """``sum(v[idx[:R]])`` with four running sums (elements ``r mod 4``) added as ``(s0 + s1) + (s2 + s3)``:
+    independent additions keep the processor busy where one running sum waits on each addition."""
+    s0 = 0.0
+    s1 = 0.0
+    s2 = 0.0
+    s3 = 0.0
+    r = 0
+    while r + 4 <= R:
+        s0 += v[idx[r]]
+        s1 += v[idx[r + 1]]
+        s2 += v[idx[r + 2]]
+        s3 += v[idx[r + 3]]
+        r += 4
+    if r < R:
+        s0 += v[idx[r]]
+    if r + 1 < R:
+        s1 += v[idx[r + 1]]
+    if r + 2 < R:
+        s2 += v[idx[r + 2]]
+    return (s0 + s1) + (s2 + s3)
+
+
+def _sum_drawn_py(v, draws) -> float:
+    """Plain-Python twin of :func:`_sum_drawn` (``draws``: the indices)."""
+    s = [0.0, 0.0, 0.0, 0.0]
+    for r, i in enumerate(draws):
+        s[r % 4] += float(v[i])
+    return (s[0] + s[1]) + (s[2] + s[3])
+
+
 @njit(cache=True, parallel=True)
 def _bootstrap_kernel(offsets, x, per, const, ent, wgt, shift, scale, mode, rng_states, out):
     """Scores of every bootstrap resample (``prange`` over resamples); returns 0 (status OK).
@@ -931,7 +963,7 @@ def _bootstrap_kernel(offsets, x, per, const, ent, wgt, shift, scale, mode, rng_
     of match ``m`` then adds ``wgt[m, s] * (v - shift[s]) / scale[s]`` to its entrant's score
     ``out[b, ent[m, s]]`` (zeros on entry), where ``v`` is the seat's resampled mean per period
     (``mode`` 0: the sum of the drawn ``x`` over the sum of the drawn ``per``) or per replication
-    (``mode`` 1). Sums run in the order of the draws.
+    (``mode`` 1). Sums run over the draws in order, in four running sums (:func:`_sum_drawn`).
 
     Parameters
     ----------
@@ -976,13 +1008,9 @@ def _bootstrap_kernel(offsets, x, per, const, ent, wgt, shift, scale, mode, rng_
             elif const[m]:
                 den = np.float64(R) * per[lo]
             else:
-                den = 0.0
-                for r in range(R):
-                    den += per[idx[r]]
+                den = _sum_drawn(per, idx, R)
             for s in range(n):
-                a = 0.0
-                for r in range(R):
-                    a += x[s, idx[r]]
+                a = _sum_drawn(x[s], idx, R)
                 v = a / den if den > 0.0 else np.nan
                 g = (v - shift[s]) / scale[s] if scale[s] != 0.0 else np.nan
                 out[b, ent[m, s]] += wgt[m, s] * g
@@ -1000,26 +1028,21 @@ def _bootstrap_reference(offsets, x, per, const, ent, wgt, shift, scale, mode, r
         for m in range(M):
             lo = int(offsets[m])
             R = int(offsets[m + 1]) - lo
-            acc = [0.0] * n
-            sper = 0.0
             draws = []
             while len(draws) < R:
                 u = rng.next_u64()
-                draws.append((u >> 32) * R >> 32)
+                draws.append(lo + ((u >> 32) * R >> 32))
                 if len(draws) < R:
-                    draws.append((u & 0xFFFFFFFF) * R >> 32)
-            for d in draws:
-                i = lo + d
-                for s in range(n):
-                    acc[s] += float(x[s, i])
-                if mode == 0 and not const[m]:
-                    sper += float(per[i])
-            if mode == 0:
-                den = R * float(per[lo]) if const[m] else sper
-            else:
+                    draws.append(lo + ((u & 0xFFFFFFFF) * R >> 32))
+            if mode == 1:
                 den = float(R)
+            elif const[m]:
+                den = R * float(per[lo])
+            else:
+                den = _sum_drawn_py(per, draws)
             for s in range(n):
-                v = acc[s] / den if den > 0.0 else math.nan
+                a = _sum_drawn_py(x[s], draws)
+                v = a / den if den > 0.0 else math.nan
                 g = (v - float(shift[s])) / float(scale[s]) if float(scale[s]) != 0.0 else math.nan
                 out[b, int(ent[m, s])] += float(wgt[m, s]) * g
     return out
