@@ -681,14 +681,20 @@ class EvolutionResult:
     def simulated_share(self) -> np.ndarray | None:
         return None if self.simulated is None else np.where(self.simulated >= 0, self.simulated / self.runs, np.nan)
 
-    def agreement(self, z: float = 3.0) -> dict:
-        """How well the simulation matches the formula: the largest gap in binomial standard errors
-        (``sqrt(rho (1 - rho) / runs)``) over the pairs, and whether it is below ``z``."""
+    def agreement(self, z: float | None = None) -> dict:
+        """How well the simulation matches the formula: the largest gap over the pairs in binomial standard
+        errors (``sqrt(rho (1 - rho) / runs)``) and whether it is below ``z``. By default ``z`` bounds the
+        largest of the ``E (E - 1)`` gaps at a family-wise level of 1 % (Bonferroni: the normal quantile
+        of ``1 - 0.01 / (2 E (E - 1))``; 3.5 for two entrants, about 4 for ten)."""
+        from scipy.stats import norm
+
         if self.simulated is None:
             return {"max_standard_errors": None, "within": None, "z": z}
         sim = self.simulated_share()
         rho = self.fixation
         mask = ~np.isnan(rho)
+        if z is None:
+            z = float(norm.ppf(1.0 - 0.01 / (2 * max(1, int(mask.sum())))))
         se = np.sqrt(np.maximum(rho[mask] * (1.0 - rho[mask]), 1e-300) / self.runs)
         gap = np.abs(sim[mask] - rho[mask]) / se
         worst = float(gap.max()) if gap.size else 0.0

@@ -208,7 +208,7 @@ def render(res, evo, cfg) -> str:
     if evo.simulated is not None:
         lines.append(f"  simulated with {evo.runs} invasions per pair: largest gap to the formula "
                      f"{fmt_num(ag['max_standard_errors'], 3)} binomial standard errors "
-                     f"({'within' if ag['within'] else 'NOT within'} {ag['z']:g})")
+                     f"({'within' if ag['within'] else 'NOT within'} the family-wise 1% bound {ag['z']:.2f})")
     lines.append("")
     lines.append(CAUTION)
     return "\n".join(lines)
