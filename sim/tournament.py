@@ -35,8 +35,9 @@ strategies played greedily from the session's final state reach a limit cycle, a
 Session ``j`` of match ``m`` uses ``learn(..., seed=seed, cell=m)`` when ``key`` is empty (its stream
 is ``stream_states(seed, (m,), j, j + 1)``), and a seed derived from ``seed`` and ``key`` otherwise.
 The learning kernel plays perfect monitoring without noise, so learning entrants need
-``monitoring.signal = "perfect"`` and no shock or errors; automata meeting them must be deterministic,
-and the market must have 2 to 4 single-product firms.
+``monitoring.signal = "perfect"`` and no shock or errors; automata meeting them must be deterministic
+and collude on the joint-profit outcome (``agreement = "joint"``, what :func:`sim.learning.learn`
+resolves their levels against), and the market must have 2 to 4 single-product firms.
 
 Scores
 ------
@@ -378,6 +379,11 @@ def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None =
         if ms.multi_product:
             raise InputError("market.owner", f"learning entrants (such as {lab!r}) set one action per firm: "
                                              "multi-product firms are not supported")
+        if agreement != "joint" or actions is not None:
+            raise InputError("collusion.agreement", f"learning entrants (such as {lab!r}) play through "
+                                                    "sim.learning.learn, whose automata collude on the joint-profit "
+                                                    f"outcome; use agreement = 'joint' when a learner enters, got "
+                                                    f"{'given actions' if actions is not None else repr(agreement)}")
         for k, what in (("signal", "perfect"), ("sigma", 0.0), ("perception_error", 0.0),
                         ("implementation_error", 0.0)):
             if mon[k] != what:
@@ -413,7 +419,7 @@ def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None =
             if m.learning:
                 from .learning import compile_lineup as compile_learners
 
-                compile_learners(ms, lineup, workers=1, agreement=agreement, seat_prefix="entrants")
+                compile_learners(ms, lineup, workers=1, seat_prefix="entrants")
             else:
                 m.game = compile_game(stage, levels, lineup, mon_obj, prefix="entrants", strict=False)
         except InputError as exc:

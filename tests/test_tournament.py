@@ -308,6 +308,8 @@ def test_learner_restrictions_are_refused_before_any_work():
     random_rule = [Entrant("q", small_learner()), Entrant("generous", S.ForgivingTitForTat(forgiveness=0.3))]
     with pytest.raises(InputError, match=r"^entrants\[2\]: .*acts at random.*\(in the match q vs generous\)"):
         prepare_tournament(DUOPOLY, random_rule, **LEARN)
+    with pytest.raises(InputError, match=r"^collusion\.agreement: learning entrants"):
+        prepare_tournament(DUOPOLY, ents, agreement="proportional", **LEARN)
     five = Market(LinearDemand(100.0, 1.0), cost=10.0, n_firms=5)
     with pytest.raises(InputError, match=r"^tournament\.seats: learning entrants .* need 2 to 4 seats, got 5"):
         prepare_tournament(five, ents, **LEARN)
