@@ -107,9 +107,9 @@ def run_payload(payload: dict) -> dict:
     return out
 
 
-def _worker_init(threads: int, plugins) -> None:
-    """Initialiser of local worker processes: one numba thread per cell, plugins loaded."""
-    os.environ["NUMBA_NUM_THREADS"] = str(max(1, threads))
+def _worker_init(plugins) -> None:
+    """Initialiser of local worker processes: plugins loaded. (Cells ask for their number of threads
+    through ``numba.set_num_threads``; ``NUMBA_NUM_THREADS`` must not change once numba is imported.)"""
     _ensure_plugins(plugins)
 
 
@@ -209,7 +209,7 @@ def _processes(payloads: Iterable[dict], on_result, workers: int, plugins) -> No
     exhausted = False
     while not exhausted or feed.again:
         pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_worker_init,
-                                   initargs=(1, plugins))
+                                   initargs=(plugins,))
         inflight: dict = {}
         broken = False
         try:
