@@ -54,6 +54,8 @@ def usable_cores() -> int:
 # --------------------------------------------------------------------------------------------------
 
 _WORKER_PLUGINS: set = set()
+#: how long to wait for a Dask scheduler named by --cluster ADDRESS
+CONNECT_TIMEOUT = "15s"
 
 
 def _ensure_plugins(plugins) -> None:
@@ -274,7 +276,7 @@ def _dask(payloads: Iterable[dict], on_result, backend: Backend, plugins) -> Non
         client = Client(cluster)
     else:
         try:
-            client = Client(backend.address, timeout="20s")
+            client = Client(backend.address, timeout=CONNECT_TIMEOUT)
         except OSError as exc:
             raise InputError("--cluster", f"cannot reach the Dask scheduler at {backend.address} ({exc})") from None
     token = uuid.uuid4().hex[:8]

@@ -152,3 +152,35 @@ def test_backend_choice():
     with pytest.raises(Exception) as e:
         choose_backend(0, None, 3)
     assert "--workers" in str(e.value)
+
+
+def test_a_dask_scheduler_by_address(det_file, serial_run, tmp_path):
+    """``--cluster ADDRESS``: a scheduler started elsewhere (here a local one, reached by its address)."""
+    pytest.importorskip("distributed", reason="Dask is in the dev extras")
+    from distributed import LocalCluster
+
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
+        s = run_experiment(det_file, tmp_path / "addr", cluster=cluster.scheduler_address, progress=False)
+    assert s.backend == f"the Dask cluster at {cluster.scheduler_address}" and s.ok == 6
+    assert _csv(tmp_path / "addr") == _csv(serial_run)
+
+
+def test_unreachable_scheduler_is_one_clear_error_and_leaves_no_folder(det_file, tmp_path, monkeypatch):
+    pytest.importorskip("distributed", reason="Dask is in the dev extras")
+    from sim import sweep
+    from sim.errors import InputError
+
+    monkeypatch.setattr(sweep, "CONNECT_TIMEOUT", "2s")
+    with pytest.raises(InputError) as e:
+        run_experiment(det_file, tmp_path / "none", cluster="tcp://127.0.0.1:9", progress=False)
+    assert e.value.key == "--cluster" and not (tmp_path / "none").exists()
+
+
+def test_results_as_a_dataframe(serial_run):
+    pytest.importorskip("pandas", reason="pandas is in the dev extras")
+    with open_run(serial_run) as rf:
+        df = rf.frame()
+        header, body = rf.table()
+    assert list(df.columns) == header and len(df) == 6
+    assert df["run.delta"].tolist() == [0.6, 0.6, 0.8, 0.8, 0.95, 0.95]
+    assert df.loc[0, "collusive_share"] == body[0][header.index("collusive_share")]
