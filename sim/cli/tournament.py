@@ -122,7 +122,7 @@ def render(res, evo, cfg) -> str:
     hz = ("fixed horizon" if run["horizon"] == "fixed"
           else f"random horizon, continuation {fmt_num(run['continuation'])}")
     seat_note = ("every seating of each group: the firms differ" if s["seatings_played"] == "all"
-                 else "one seating per group (symmetric firms)" if plan.market.symmetric else "one seating per group")
+                 else "one seating per group: symmetric firms" if plan.market.symmetric else "one seating per group")
     lines.append(f"Run: {s['seats']} seats, {E} entrants, {s['groups']} groups, {s['matches']} matches ({seat_note}); "
                  f"{run['periods']} periods ({hz}), {run['replications']} replications per match, delta "
                  f"{fmt_num(run['delta'])}, seed {run['seed']}")
