@@ -271,7 +271,12 @@ def write_report(folder, out=None) -> Path:
             an = kind.analytic.get(m)
             mrows.append([m, r.metrics.get(m, math.nan), _ci(r, m),
                           r.metrics.get(an, math.nan) if an else math.nan])
-        b.table("summary", ["metric", "value", "95% CI", "analytic"], mrows, caption="Results", max_rows=200)
+        mapped = set(kind.analytic.values())
+        for m in exp.metric_names:
+            if m.startswith("analytic.") and m not in mapped and math.isfinite(r.metrics.get(m, math.nan)):
+                mrows.append([m, r.metrics[m], "-", math.nan])
+        b.table("summary", ["metric", "value", "95% CI", "analytic"], mrows, caption="Results", max_rows=200,
+                note="rows analytic.*: the analytic baseline of the cell (closed forms and benchmarks)")
     b.table("results", header, body, show=False)
     b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
                 f"(also `{CSV_FILE}` in the run folder).", note=True)
