@@ -319,6 +319,9 @@ def _resume_target(resume, experiment):
     text = (folder / EXPERIMENT_COPY).read_bytes().decode("utf-8")
     with Store(folder / STORE_FILE, readonly=True) as st:
         meta = st.meta()
+    if not {"sha256", "n_cells", "kind"} <= set(meta):
+        raise InputError("--resume", f"{resume} was stopped while it was being created (its store has no settings); "
+                                     "remove it and start the run again")
     if experiment is not None:
         exp = _experiment_of(experiment)
         if exp.sha256 != meta["sha256"]:

@@ -265,3 +265,15 @@ def test_failed_cells_are_listed_in_the_summary(tmp_path, capsys):
     assert "2 cells failed" in summary and "odd x = 3" in summary
     man = json.loads((tmp_path / "r" / "manifest.json").read_text())
     assert man["plugins"][0]["sha256"] and man["cells"]["failed"] == 2
+
+
+def test_resume_of_a_folder_killed_while_being_created(good, tmp_path, capsys):
+    from sim.store import Store
+
+    folder = tmp_path / "half"
+    folder.mkdir()
+    (folder / "experiment.toml").write_text(GOOD)
+    Store(folder / "results.sqlite").close()  # the schema exists, the settings were never written
+    assert main(["run", "--resume", str(folder)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "--resume" in err and "start the run again" in err
