@@ -122,6 +122,8 @@ def _prepare_thresholds(doc: dict) -> dict:
     if trigger and not (ms.quantity_setting and ms.homogeneous_good and ms.symmetric):
         raise InputError("monitoring.signal", "the trigger-price equilibrium needs a symmetric homogeneous-good "
                                               "Cournot market; use signal = 'perfect' here")
+    # the stage game checks the agreement (given actions: their number and range) before any work starts
+    _stage(ms, doc["market"], agreement, actions)
     return {"market": market, "n_firms": ms.n_firms, "agreement": agreement, "actions": actions, "punishments": Ts,
             "deltas": ds, "monitoring": mon, "trigger_price": trigger}
 

@@ -252,3 +252,11 @@ def test_metric_names_of_a_simulation_are_finite_in_number_and_distinct():
     assert len(set(e.metric_names)) == len(e.metric_names)
     assert "deviation.gain" in e.metric_names and "analytic.critical_delta.grim" in e.metric_names
     assert not math.isnan(len(e.metric_names))
+
+
+def test_given_actions_are_checked_against_the_market_before_work():
+    d = {"experiment": {"name": "x", "kind": "thresholds"},
+         "market": {"model": "cournot", "demand": "linear", "intercept": 100.0, "cost": 10.0, "n_firms": 2},
+         "collusion": {"actions": [10.0]}}
+    e = error_of(d)
+    assert e.key == "collusion.actions" and "(2)" in e.message
