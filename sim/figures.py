@@ -295,6 +295,9 @@ def lines(data: SweepData, x: str, metric: str, analytic: str | None = None, gro
                 if np.isfinite(av).any():
                     ax.plot(xs[order], av, color=color, ls="--", lw=1.2,
                             label=("analytic" if not group else f"{gv}, analytic"))
+        lo_y, hi_y = ax.get_ylim()
+        if lo_y < 0 < hi_y:
+            ax.axhline(0.0, color="black", lw=0.6)
         if px.log:
             ax.set_xscale("log")
         if facet:
