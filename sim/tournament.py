@@ -1460,10 +1460,10 @@ def bench_section(opts) -> dict:
 
     * the wall time of :func:`tournament` (validation, compiling the line-ups, playing, scoring and
       the bootstrap), best of ``opts.repeat``; target < 10 s;
-    * the time spent inside the engine kernel by the same matches (arguments prepared outside the
-      timed calls), best of ``opts.repeat``, and the driver overhead: the time of
-      :func:`run_tournament` (seeds, buffers, playing, scoring, bootstrap) over the kernel time,
-      minus one; target < 10 %;
+    * the driver overhead: the time of :func:`run_tournament` (seeds, buffers, playing, scoring,
+      bootstrap) over the time spent inside the engine kernel's calls of the same run, minus one
+      (best of ``opts.repeat``); target < 10 %. For comparison, the same matches' kernel calls are also
+      timed on their own (arguments prepared outside the timed calls);
     * the plain-Python reference (:func:`sim._reference.reference_run`) on two replications of one match,
       checked equal to the kernel and extrapolated to the whole tournament, and the ratio;
     * the evolutionary analysis with the defaults (replicator dynamics over 1,000 generations, exact
@@ -1489,18 +1489,38 @@ def bench_section(opts) -> dict:
     evolve_tournament(warm, {**EVOLUTION_DEFAULTS, "moran_runs": 10}, threads)
     t_warm = time.perf_counter() - t0
 
-    best_total, best_run, best_kernel = math.inf, math.inf, math.inf
+    from . import _kernel as K
+
+    best_total, best_run, best_kernel, best_ratio = math.inf, math.inf, math.inf, math.inf
     res = None
+    kernel = K.simulate_chunks
+    inside = [0.0]
+
+    def timed(*a):
+        t = time.perf_counter()
+        out = kernel(*a)
+        inside[0] += time.perf_counter() - t
+        return out
+
     for _ in range(repeat):
         t0 = time.perf_counter()
         plan = prepare_tournament(market, ents, mon, **args)
         t_prep = time.perf_counter() - t0
-        res = run_tournament(plan, threads, progress=False)
-        t_total = time.perf_counter() - t0
-        best_total = min(best_total, t_total)
-        best_run = min(best_run, t_total - t_prep)
+        inside[0] = 0.0
+        # the kernel calls of this very run are timed (one clock read around each of the 55 calls), so
+        # the driver's share does not depend on how busy the machine was in another run
+        K.simulate_chunks = timed
+        try:
+            t1 = time.perf_counter()
+            res = run_tournament(plan, threads, progress=False)
+            t_run = time.perf_counter() - t1
+        finally:
+            K.simulate_chunks = kernel
+        best_total = min(best_total, t_prep + t_run)
+        best_run = min(best_run, t_run)
+        best_ratio = min(best_ratio, t_run / inside[0])
         t_kernel, sums = _kernel_seconds(plan, threads)
-        best_kernel = min(best_kernel, t_kernel)
+        best_kernel = min(best_kernel, t_kernel, inside[0])
     identical_kernel = all(np.array_equal(s, r.profit_sum) for s, r in zip(sums, res.matches))
     t0 = time.perf_counter()
     evo = evolve_tournament(res, EVOLUTION_DEFAULTS, threads)
@@ -1515,7 +1535,7 @@ def bench_section(opts) -> dict:
     identical_ref = bool(np.array_equal(ref.profit_sum, res.matches[-1].profit_sum[:ref_reps]))
     work = len(plan.matches) * periods * reps * 2
     t_ref_all = t_ref / (periods * ref_reps * 2) * work
-    overhead = best_run / best_kernel - 1.0
+    overhead = best_ratio - 1.0
     return {
         "workload": (f"{len(ents)} automaton entrants, 2 seats ({len(plan.matches)} matches), linear Cournot, "
                      f"perception and implementation errors 0.01, {periods} periods x {reps} replications per "
@@ -1527,6 +1547,7 @@ def bench_section(opts) -> dict:
         "driver_seconds": best_run,
         "kernel_seconds": best_kernel,
         "driver_overhead": overhead,
+        "driver_overhead_against_separate_kernel_run": best_run / best_kernel - 1.0,
         "whole_call_overhead": best_total / best_kernel - 1.0,
         "kernel_firm_periods_per_second": work / best_kernel,
         "evolution_seconds": t_evo,
