@@ -350,3 +350,17 @@ def test_too_many_matches_refused():
     six = Market(LinearDemand(100.0, 1.0), cost=[10.0, 10.0, 10.0, 10.0, 10.0, 11.0])
     with pytest.raises(InputError, match=r"^tournament\.seats: 12 entrants over 6 seats make 2,985,984 matches"):
         prepare_tournament(six, ents)
+
+
+def test_benchmark_section_smoke():
+    # the benchmark's own checks on its quick workload (its speed targets are measured by supergame bench,
+    # never asserted here)
+    from sim.cli.bench import BenchOptions
+    from sim.tournament import bench_section
+
+    out = bench_section(BenchOptions(quick=True, threads=2, repeat=1))
+    assert out["matches"] == 55
+    assert out["reference"]["identical_to_tournament"] and out["kernel_outputs_identical_to_tournament"]
+    assert out["kernel_seconds"] > 0 and out["driver_seconds"] >= out["kernel_seconds"] * 0.5
+    assert set(out["targets"]) == {"10-entrant duopoly tournament, 1000 x 1000 per match, in < 10 s (compile excluded)",
+                                   "driver adds < 10 % to the kernel time", "reference and kernel identical"}
