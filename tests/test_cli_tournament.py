@@ -229,3 +229,14 @@ def test_progress_bar_on_request(capsys):
     assert "tournament" in capsys.readouterr().err
     tournament(market, ents, periods=10, replications=5, bootstrap=0)  # not a terminal: quiet
     assert capsys.readouterr().err == ""
+
+
+def test_three_seats(tmp_path, capsys):
+    text = BASE.replace("n_firms = 2", "n_firms = 3").replace("seats = 2", "seats = 3")
+    out_dir = tmp_path / "out"
+    assert main(["tournament", write(tmp_path, text), "--out", str(out_dir), "--plot", str(out_dir)]) == 0
+    out = capsys.readouterr().out
+    assert "when every rival plays the column entrant" in out and "Who beats whom" not in out
+    assert (out_dir / "versus.csv").is_file() and not (out_dir / "pairwise.csv").exists()
+    doc = json.loads((out_dir / "tournament.json").read_text())
+    assert len(doc["groups"]) == 10 and "pairwise" not in doc  # C(3 + 3 - 1, 3) groups of three
