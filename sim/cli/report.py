@@ -17,14 +17,18 @@ DESCRIPTION = (
 def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("run_dir", metavar="RUN_DIR", help="a run folder made by supergame run")
     p.add_argument("--out", metavar="DIR", help="bundle folder (default RUN_DIR/report)")
+    p.add_argument("--plugin", action="append", metavar="FILE", default=[],
+                   help="Python file registering the experiment's kind or strategies (runs its code; repeatable)")
 
 
 def run(args) -> int:
     from pathlib import Path
 
+    from ..kinds import load_plugins
     from ..report import write_report
     from ..runs import write_manifest
 
+    load_plugins(args.plugin)
     target = write_report(args.run_dir, args.out)
     if Path(target).resolve().parent == Path(args.run_dir).resolve():
         write_manifest(args.run_dir)
