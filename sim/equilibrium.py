@@ -159,20 +159,15 @@ def _br_single(ms: MarketSpec, i: int, A: np.ndarray) -> tuple[np.ndarray, np.nd
     elif kind == "logit":
         x = np.array([_br_logit(ms, i, row) for row in A])
         v = _profit_i(ms, i, A, x)
-    else:  # differentiated Bertrand: piecewise-quadratic profit with kinks where rivals exit
+    else:  # differentiated Bertrand: piecewise-quadratic profit, maximised exactly piece by piece
         x = np.empty(A.shape[0])
         v = np.empty(A.shape[0])
-        own = np.array([i])
+        firm = int(ms.owner[i])
         for r, row in enumerate(A):
-            # fast path: the exact optimum on a consistent active set, certified on a coarse grid
-            cand = _diff_bertrand_active_set(ms, own, row)
-            firm = ms.owner[i]
-            if cand is not None and _coordinate_check(ms, firm, own, cand, lambda P, f=firm: ms.firm_profits(
-                    np.atleast_2d(P))[:, f]):
-                x[r] = cand[i]
-                v[r] = float(ms.profits(cand[None, :])[0, i])
-            else:
-                x[r], v[r] = _br_diff_bertrand(ms, i, row)
+            x[r], _ = _sweep_price(ms, firm, i, row)
+            prof = row.copy()
+            prof[i] = x[r]
+            v[r] = float(ms.profits(prof[None, :])[0, i])
     return x, v
 
 
@@ -246,17 +241,111 @@ def _br_diff_bertrand_multi(ms: MarketSpec, i: int, own: np.ndarray, row: np.nda
     On a fixed set S of products with positive demand, ``q_S = M (a_S - p_S)`` with ``M`` the inverse
     of ``b((1-g)I + g11')`` on S, the firm's profit is concave quadratic in its own prices and the
     first-order conditions give ``p_f = (a_f + c_f)/2 + M_ff^{-1} M_fr (a_r - p_r) / 2``. We iterate
-    on S (recomputing demand at the candidate) until it is consistent, and certify the result against
-    a coordinate search; only if that fails is the coordinate search (each own price in turn, grid
-    and Brent) used as the answer."""
+    on S until it is consistent with the demand it produces and certify the candidate by an exact
+    search over each own price (:func:`_sweep_price`); if that finds a better price, coordinate ascent
+    with the same exact searches takes over, and the closed form is tried again from where it stops."""
 
     def firm_profit(P):
-        return ms.firm_profits(np.atleast_2d(P))[:, i]
+        return float(ms.firm_profits(np.atleast_2d(P))[0, i])
 
-    cand = _diff_bertrand_active_set(ms, own, row)
-    if cand is not None and _coordinate_check(ms, i, own, cand, firm_profit):
-        return cand
-    return _bounded_search(ms, own, row if cand is None else cand, firm_profit)
+    start = row.copy()
+    for _ in range(3):
+        cand = _diff_bertrand_active_set(ms, own, start)
+        if cand is not None and _sweep_certifies(ms, i, own, cand, firm_profit(cand)):
+            return cand
+        start = _coordinate_ascent(ms, i, own, start if cand is None else cand, firm_profit)
+    return start
+
+
+def _sweep_certifies(ms, i, own, p, base, rtol=1e-11) -> bool:
+    for k in own:
+        _, v = _sweep_price(ms, i, int(k), p)
+        if v > base + rtol * max(1.0, abs(base)):
+            return False
+    return True
+
+
+def _coordinate_ascent(ms, i, own, p, firm_profit, max_sweeps=500):
+    p = np.array(p, dtype=float)
+    for _ in range(max_sweeps):
+        before = firm_profit(p)
+        for k in own:
+            p[int(k)], _ = _sweep_price(ms, i, int(k), p)
+        if firm_profit(p) - before <= 1e-14 * max(1.0, abs(before)):
+            break
+    return p
+
+
+def _sweep_price(ms: MarketSpec, firm: int, k: int, row: np.ndarray) -> tuple[float, float]:
+    """Exact maximum of firm ``firm``'s profit over the price of its product ``k`` (the other prices
+    fixed), under differentiated linear demand.
+
+    Raising ``p_k`` from ``c_k`` lowers product k's demand and raises every rival product's; inactive
+    products enter at kinks where their price reaches their choke price, and product k leaves at its
+    own choke price. Between kinks all demands are linear in ``p_k`` (closed form on the active set),
+    so the firm's profit is a concave quadratic there; we walk the pieces and take the best vertex or
+    endpoint. Returns the price and the firm's profit."""
+    d = ms.demand
+    b, g = d.scalars[0], d.scalars[1]
+    a = d.vector
+    c = ms.cost
+    own_mask = ms.owner == firm
+    p = np.array(row, dtype=float)
+    p[k] = c[k]
+    q = direct_demand(d, p[None, :])[0]
+    S = q > 0
+    if not S[k]:
+        return float(c[k]), float(ms.firm_profits(p[None, :])[0, firm])
+    best_p, best_v = float(c[k]), -np.inf
+    scale = max(1.0, float(np.abs(a).max()))
+    for _ in range(ms.n_products + 2):
+        idx = np.flatnonzero(S)
+        n_s = idx.size
+        theta = g / (1 + (n_s - 1) * g)
+        inv = 1.0 / (b * (1 - g))
+        # derivatives of active quantities with respect to p_k, and the demand at the piece start
+        dq = np.zeros(ms.n_products)
+        dq[idx] = theta * inv
+        dq[k] = -(1 - theta) * inv
+        d_act = a[idx] - p[idx]
+        q = np.zeros(ms.n_products)
+        q[idx] = (d_act - theta * d_act.sum()) * inv
+        p0 = p[k]
+        # end of the piece: product k's exit, or the first entry of an inactive product
+        ends = [p0 + q[k] / -dq[k]]
+        dtot = dq.sum()
+        entering = []
+        if g > 0:
+            tot = q.sum()
+            for j in np.flatnonzero(~S):
+                w = p[j] - a[j] + b * g * tot  # >= 0 while j sells nothing
+                dw = b * g * dtot
+                if dw < 0:
+                    t = p0 + w / -dw
+                    ends.append(t)
+                    entering.append((t, j))
+        p1 = min(ends)
+        # profit on the piece: sum over own active products of (p_l - c_l)(q_l + dq_l (x - p0))
+        m = own_mask & S
+        m_other = m.copy()
+        m_other[k] = False
+        lin = q[k] + float(((p[m_other] - c[m_other]) * dq[m_other]).sum())
+        # d/dx [(x - c_k)(q_k + dq_k (x - p0))] + lin-part = 0
+        x_star = (dq[k] * (p0 + c[k]) - lin) / (2 * dq[k]) if dq[k] != 0 else p1
+        for x in (p0, min(max(x_star, p0), p1), p1):
+            qq = q + dq * (x - p0)
+            val = (x - c[k]) * qq[k] + float(((p[m_other] - c[m_other]) * qq[m_other]).sum())
+            if val > best_v:
+                best_p, best_v = float(x), float(val)
+        if p1 == ends[0] or not entering:
+            break
+        p[k] = p1
+        for t, j in entering:
+            if t <= p1 + 1e-15 * scale:
+                S[j] = True
+    # the value of the firm's products outside S (zero demand) does not change; evaluate exactly
+    p[k] = best_p
+    return best_p, float(ms.firm_profits(p[None, :])[0, firm])
 
 
 def _diff_bertrand_active_set(ms, own, row):
@@ -298,41 +387,6 @@ def _diff_bertrand_firm_candidate(ms, own, row, S):
         q = direct_demand(d, out[None, :])[0]
         q[idle] = 0.0
         out[idle] = np.maximum(ms.cost[idle], d.vector[idle] - b * g * q.sum())
-    return out
-
-
-def _coordinate_check(ms, i, own, p, firm_profit, rtol=1e-10) -> bool:
-    base = float(firm_profit(p)[0])
-    for k in own:
-        def f(t, k=k):
-            P = np.repeat(p[None, :], t.size, axis=0)
-            P[:, k] = t
-            return firm_profit(P)
-        # a coarse grid suffices: the candidate is the exact optimum of its concave piece, and the
-        # check only has to catch a wrong piece
-        v = float(f(np.linspace(ms.cost[k], float(ms.demand.vector[k]), 25)).max())
-        if v > base + rtol * max(1.0, abs(base)):
-            return False
-    return True
-
-
-def _bounded_search(ms, own, start, firm_profit):
-    """Fallback: quasi-Newton search over the firm's own prices within [cost, intercept]."""
-    lo, hi = ms.cost[own], ms.demand.vector[own]
-
-    def neg(x):
-        P = start.copy()
-        P[own] = x
-        return -float(firm_profit(P)[0])
-
-    best = None
-    for x0 in (np.clip(start[own], lo, hi), 0.5 * (lo + hi)):
-        res = optimize.minimize(neg, x0, method="L-BFGS-B", bounds=list(zip(lo, hi)),
-                                options={"ftol": 1e-15, "gtol": 1e-12, "maxiter": 2000})
-        if best is None or res.fun < best.fun:
-            best = res
-    out = start.copy()
-    out[own] = best.x
     return out
 
 
@@ -387,90 +441,33 @@ def _br_logit(ms: MarketSpec, i: int, row: np.ndarray) -> float:
     return float(optimize.brentq(h, c, hi, xtol=1e-15 * max(1.0, hi), rtol=1e-15, maxiter=500))
 
 
-def _br_diff_bertrand(ms: MarketSpec, i: int, row: np.ndarray) -> tuple[float, float]:
-    """Best response under differentiated linear demand with prices.
-
-    Firm i's demand is piecewise linear in its own price (a rival's product drops out of, or
-    re-enters, the market at each kink), so its profit is piecewise quadratic and quasi-concave. A
-    grid-and-Brent search locates the maximum; on the linear piece it falls in, the exact optimum
-    ``p* = (q0 / beta + x0 + c) / 2`` (demand ``q0 - beta (p - x0)``) is taken when it stays on that
-    piece, which gives the answer to machine precision away from kinks."""
-    d = ms.demand
-    b, g = d.scalars[0], d.scalars[1]
-    c = ms.cost[i]
-
-    def f(t):
-        prof = np.repeat(row[None, :], t.size, axis=0)
-        prof[:, i] = t
-        return ms.profits(prof)[:, i]
-
-    x0, v0 = _maximize_scalar(f, c, float(d.vector[i]))
-    prof = row.copy()
-    prof[i] = x0
-    q = direct_demand(d, prof[None, :])[0]
-    if q[i] <= 0:
-        return x0, max(v0, 0.0)
-    S = q > 0
-    k = int(S.sum())
-    theta = g / (1 + (k - 1) * g)
-    beta = (1 - theta) / (b * (1 - g))
-    p_star = 0.5 * (q[i] / beta + x0 + c)
-    prof[i] = p_star
-    q_star = direct_demand(d, prof[None, :])[0]
-    v_star = (p_star - c) * q_star[i]
-    if np.array_equal(q_star > 0, S) and v_star >= v0 - 1e-15 * max(1.0, abs(v0)):
-        return float(p_star), float(v_star)
-    # the optimum sits at a kink: where an active rival's demand reaches zero, or an inactive
-    # rival's product starts to sell; both are linear in p_i on the current piece
-    dq_rival = theta / (b * (1 - g))
-    dtot = (-(1 - theta) + (k - 1) * theta) / (b * (1 - g))
-    prof[i] = x0
-    tot = q.sum()
-    cands = []
-    for j in range(ms.n_products):
-        if j == i:
-            continue
-        if S[j]:
-            cands.append(x0 - q[j] / dq_rival)
-        elif dtot != 0:
-            w_j = row[j] - d.vector[j] + b * g * tot
-            cands.append(x0 - w_j / (b * g * dtot) if g > 0 else np.inf)
-    near = [p for p in cands if np.isfinite(p) and abs(p - x0) <= 1e-6 * max(1.0, abs(x0))]
-    best_x, best_v = x0, v0
-    for p in near:
-        vp = float(f(np.array([p]))[0])
-        if vp > best_v:
-            best_x, best_v = float(p), vp
-    return best_x, best_v
-
-
 def _br_homogeneous_bertrand(ms: MarketSpec, i: int, A: np.ndarray):
+    """Best response in homogeneous Bertrand: the monopoly price if it undercuts every rival;
+    otherwise undercut the lowest rival price by one step or tie with it, whichever pays more; price
+    at cost (selling nothing) when the rivals are at or below cost."""
     a0, b = ms.demand.scalars[0], ms.demand.scalars[1]
     c = ms.cost[i]
-    tick = ms.tick
+    step = ms.price_step
+    w = ms.demand.vector
     rivals = np.delete(A, i, axis=1)
+    w_rivals = np.delete(w, i)
     r = rivals.min(axis=1)
     pm = 0.5 * (a0 + c)
-    D = lambda p: np.maximum(0.0, (a0 - p) / b)  # noqa: E731
+    D = lambda p: max(0.0, (a0 - p) / b)  # noqa: E731
     x = np.empty(A.shape[0])
     v = np.empty(A.shape[0])
     for k, rk in enumerate(r):
         if pm < rk:
             x[k], v[k] = pm, (pm - c) * D(pm)
         elif rk > c:
-            if tick == 0:
-                x[k], v[k] = rk, (rk - c) * D(rk)  # supremum of undercutting
+            under = rk - step
+            v_under = (under - c) * D(under) if under > c else 0.0
+            tied = rivals[k] == rk
+            v_tie = (rk - c) * D(rk) * w[i] / (w[i] + w_rivals[tied].sum())
+            if v_under >= v_tie:
+                x[k], v[k] = under, v_under
             else:
-                under = rk - tick
-                v_under = (under - c) * D(under) if under > c else 0.0
-                w = ms.demand.vector
-                tied = np.isclose(rivals[k], rk, rtol=0, atol=0)
-                wr = np.delete(w, i)[tied].sum()
-                v_tie = (rk - c) * D(rk) * w[i] / (w[i] + wr)
-                if v_under >= v_tie:
-                    x[k], v[k] = under, v_under
-                else:
-                    x[k], v[k] = rk, v_tie
+                x[k], v[k] = rk, v_tie
         else:
             x[k], v[k] = c, 0.0
     return x, v
@@ -652,26 +649,23 @@ def _diff_bertrand_interior_nash(av, c, b, g, active):
 
 
 def _nash_homogeneous_bertrand(ms: MarketSpec) -> Outcome:
-    a0, b = ms.demand.scalars[0], ms.demand.scalars[1]
+    """Static equilibrium of homogeneous Bertrand (the selection is documented in :mod:`sim.market`)."""
+    a0 = ms.demand.scalars[0]
     c = ms.cost
     order = np.argsort(c, kind="stable")
     c1, c2 = c[order[0]], c[order[1]]
-    D = lambda p: max(0.0, (a0 - p) / b)  # noqa: E731
     prices = c.copy()
-    q = np.zeros(ms.n_products)
-    pi = np.zeros(ms.n_products)
-    if c1 == c2:
-        tied = np.flatnonzero(c == c1)
-        w = ms.demand.vector[tied]
-        q[tied] = D(c1) * w / w.sum()
-    else:
+    if c1 < c2:
         winner = order[0]
         pm = 0.5 * (a0 + c1)
-        p = min(c2 - ms.tick, pm) if ms.tick > 0 else min(c2, pm)
-        prices[winner] = p
-        q[winner] = D(p)
-        pi[winner] = (p - c1) * D(p)
-    return Outcome(prices, q, prices.copy(), pi, pi.copy())
+        under = c2 - ms.price_step
+        if pm < c2:
+            prices[winner] = min(pm, under) if under > c1 else pm
+        elif under > c1:
+            prices[winner] = under
+        else:  # one step below the rival's cost is at or below the own cost: tie at c2
+            prices[winner] = c2
+    return outcome_of(ms, prices)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -838,12 +832,26 @@ def _common_level(ms: MarketSpec, x: np.ndarray) -> np.ndarray:
 
 
 def _symmetric_maximum(ms: MarketSpec) -> np.ndarray:
+    if ms.homogeneous_bertrand:
+        # a common price p shared by the split weights: joint profit (p - c_w) D(p), with c_w the
+        # weighted mean cost, is maximal at p = (a + c_w) / 2
+        w = ms.demand.vector
+        return np.full(ms.n_products, 0.5 * (ms.demand.scalars[0] + float(w @ ms.cost / w.sum())))
     _lo, hi = ms.action_bounds()
     if ms.quantity_setting:
         lo_, hi_ = 0.0, float(hi.max())
     else:
         lo_, hi_ = float(ms.cost.min()), float(hi.max())
-    x, _ = _maximize_scalar(lambda t: _joint(ms, _common_level(ms, t)), lo_, hi_, n_grid=401)
+
+    def slope(x):
+        g = _joint_gradient(ms, _common_level(ms, np.array([x]))[0])
+        if ms.quantity_setting:
+            g = np.where(x < ms.capacity, g, 0.0)
+        return float(g.sum())
+
+    f = lambda t: _joint(ms, _common_level(ms, t))  # noqa: E731
+    x, _ = _maximize_scalar(f, lo_, hi_, n_grid=401)
+    x = _polish_maximum(f, slope, x, lo_, hi_)
     return _common_level(ms, np.array([x]))[0]
 
 
@@ -855,20 +863,97 @@ def _proportional_maximum(ms: MarketSpec) -> np.ndarray:
             "shares as the demand's split weights and use 'joint' or 'symmetric'",
         )
     qn = static_nash(ms).quantities
+    d = ms.demand
     if ms.quantity_setting:
         with np.errstate(divide="ignore"):
             room = np.where(qn > 0, ms.capacity / np.where(qn > 0, qn, 1.0), np.inf)
         lam_hi = min(1.0, float(room.min()))
-    elif ms.demand.kind == "logit":
-        lam_hi = min(1.0, (1.0 - 1e-12) * ms.demand.scalars[2] / qn.sum())
+    elif d.kind == "logit":
+        lam_hi = min(1.0, (1.0 - 1e-12) * d.scalars[2] / qn.sum())
     else:
         lam_hi = 1.0
 
     def profile(lam: np.ndarray) -> np.ndarray:
         return _actions_for_quantities(ms, lam[:, None] * qn[None, :])
 
-    lam, _ = _maximize_scalar(lambda t: _joint(ms, profile(t)), 1e-9, lam_hi, n_grid=401)
+    def slope(lam):
+        a = profile(np.array([lam]))[0]
+        g = _joint_gradient(ms, a)
+        if ms.quantity_setting:
+            return float(g @ qn)
+        if d.kind == "logit":  # p_i = a_i - a_0 - mu (log(lam s_i) - log(1 - lam S))
+            S = qn.sum() / d.scalars[2]
+            da = np.full(ms.n_products, -d.scalars[1] * (1.0 / lam + S / (1.0 - lam * S)))
+            return float(g @ da)
+        b, gg = d.scalars[0], d.scalars[1]
+        return float(g @ (-b * ((1 - gg) * qn + gg * qn.sum())))
+
+    f = lambda t: _joint(ms, profile(t))  # noqa: E731
+    lam, _ = _maximize_scalar(f, 1e-9, lam_hi, n_grid=401)
+    lam = _polish_maximum(f, slope, lam, 1e-9, lam_hi)
     return profile(np.array([lam]))[0]
+
+
+def _polish_maximum(f, slope, x0: float, lo: float, hi: float) -> float:
+    """Refine a maximiser found by bracketing search by solving the first-order condition
+    ``slope(x) = 0`` with Brent's root finder on the analytic derivative: the bracketing search alone
+    locates a smooth maximum only to about the square root of machine precision."""
+    s0 = slope(x0)
+    if s0 == 0:
+        return x0
+    step = 1e-7 * max(1.0, abs(x0))
+    direction = 1.0 if s0 > 0 else -1.0
+    a, b = x0, x0
+    for _ in range(60):
+        b = min(hi, max(lo, x0 + direction * step))
+        if slope(b) * s0 <= 0 or b in (lo, hi):
+            break
+        step *= 2
+    if slope(b) * s0 > 0:
+        return x0
+    lo_, hi_ = (a, b) if a < b else (b, a)
+    try:
+        x = optimize.brentq(slope, lo_, hi_, xtol=1e-15 * max(1.0, abs(x0)), rtol=1e-15, maxiter=500)
+    except ValueError:
+        return x0
+    return float(x) if f(np.array([x]))[0] >= f(np.array([x0]))[0] - 1e-14 * max(1.0, abs(f(np.array([x0]))[0])) else x0
+
+
+def _joint_gradient(ms: MarketSpec, a: np.ndarray) -> np.ndarray:
+    """Gradient of total (joint) profit with respect to the actions at profile ``a``, shape
+    (n_products,): quantities under Cournot (zero beyond capacity), prices under Bertrand."""
+    d, c = ms.demand, ms.cost
+    q, p, _ = ms.evaluate(a[None, :])
+    q, p = q[0], p[0]
+    if ms.quantity_setting:
+        Q = q.sum()
+        if d.kind == "linear":
+            P = p[0]
+            g = P - c - d.scalars[1] * Q if P > 0 else -c
+        elif d.kind == "isoelastic":
+            g = p[0] * (1 - 1 / d.scalars[1]) - c
+        else:  # differentiated: dp_i/dq_k = -b((1-g) delta_ik + g) where p_i > 0
+            b, gg = d.scalars[0], d.scalars[1]
+            live = p > 0
+            qs = np.where(live, q, 0.0)
+            g = p - c - b * ((1 - gg) * qs + gg * qs.sum())
+        return np.where(a < ms.capacity, g, 0.0)
+    if d.kind == "logit":
+        mu, size = d.scalars[1], d.scalars[2]
+        s = q / size
+        m = p - c
+        return q - (m * q - s * float(m @ q)) / mu
+    # differentiated Bertrand on the active set
+    b, gg = d.scalars[0], d.scalars[1]
+    S = q > 0
+    idx = np.flatnonzero(S)
+    out = np.zeros(ms.n_products)
+    if idx.size:
+        theta = gg / (1 + (idx.size - 1) * gg)
+        m = (p - c)[idx]
+        # M = (I - theta J) / (b (1 - g)) on S
+        out[idx] = q[idx] - (m - theta * m.sum()) / (b * (1 - gg))
+    return out
 
 
 def _actions_for_quantities(ms: MarketSpec, q: np.ndarray) -> np.ndarray:

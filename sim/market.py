@@ -16,13 +16,16 @@ Conventions
 * Prices are floored at zero by the demand systems that can reach zero (linear demands).
 * Homogeneous Bertrand (linear demand, price competition): the lowest price takes the market; firms
   tied at the lowest price share it in proportion to the demand's ``split`` weights (equally by
-  default). With ``tick = 0`` (the default) prices are continuous and the analytic results use the
-  limit of undercutting by an arbitrarily small amount: a firm undercutting a rival price ``r`` earns
-  the whole market at ``r`` (a supremum, approached but not attained). With ``tick > 0`` prices move in
-  steps of ``tick`` and undercutting means pricing one tick below. With asymmetric costs the static
-  equilibrium is the limit one: the lowest-cost firm prices at the second-lowest cost (less one tick)
-  or at its monopoly price if that is lower, serves the whole market, and the other firms price at
-  their own cost.
+  default). Undercutting a rival price ``r`` means pricing one step below it, at ``r - s`` with the
+  step ``s`` = :attr:`MarketSpec.price_step`: the market's ``tick`` when it is positive, otherwise
+  (continuous prices, ``tick = 0``, the default) ``1e-9`` times the choke price, so that every
+  reported profile is attainable and evaluates to the profits reported with it; the continuous-price
+  limits (the whole market at ``r``) are approached to that relative order. With asymmetric costs
+  ``c_1 < c_2`` the static equilibrium has the lowest-cost firm at ``c_2 - s`` (or at its monopoly
+  price if that is lower) serving the whole market and the other firms at their own costs; when
+  ``c_2 - s <= c_1`` the two lowest-cost firms tie at ``c_2``. With equal lowest costs the
+  equilibrium reported is the competitive one (price at cost; with a positive tick, pricing one tick
+  above cost is an equilibrium too).
 """
 
 from __future__ import annotations
@@ -108,6 +111,13 @@ class MarketSpec:
     @property
     def homogeneous_bertrand(self) -> bool:
         return self.code == CODE_LINEAR_BERTRAND
+
+    @property
+    def price_step(self) -> float:
+        """Undercutting step of homogeneous Bertrand: ``tick`` if positive, else 1e-9 of the choke price."""
+        if self.tick > 0:
+            return float(self.tick)
+        return 1e-9 * float(self.demand.scalars[0])
 
     @property
     def homogeneous_good(self) -> bool:

@@ -14,10 +14,14 @@ Nash reversion for T periods
     Deviation is deterred when ``pi_D - pi_C <= (pi_C - pi_N) (delta + ... + delta^T)``. With
     ``K = (pi_D - pi_C) / (pi_C - pi_N)`` the threshold solves ``delta + ... + delta^T = K``, which
     has a root below one only when ``K < T``.
-optimal symmetric two-phase punishment (stick and carrot)
+best symmetric two-phase punishment (stick and carrot)
     Abreu (1986, "Extremal equilibria of oligopolistic supergames", JET): one period in which every
-    firm plays the common punishment level ``x``, then back to collusion; a firm that shirks the
-    punishment restarts it. Two constraints per firm, with ``pi_P`` the profit at the punishment
+    firm plays the common punishment level ``x`` (the stick), then back to collusion (the carrot); a
+    firm that shirks the punishment restarts it. Abreu shows this structure is optimal among
+    symmetric punishments when the stick can be made harsh enough; with capacities or a price floor
+    one period may not be harsh enough, and the best one-period stick can then be weaker than Nash
+    reversion forever. :attr:`StickCarrot.weaker_than_grim` flags that case, and
+    :attr:`ThresholdReport.best` names the scheme with the lowest threshold. Two constraints per firm, with ``pi_P`` the profit at the punishment
     profile and ``pi_DP`` the best deviation against it:
     ``pi_D - pi_C <= delta (pi_C - pi_P)`` and ``pi_DP - pi_P <= delta (pi_C - pi_P)``.
     The punishment level is chosen to minimise the market threshold, within the action bounds
@@ -31,6 +35,7 @@ Partial collusion
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, field
 
@@ -83,15 +88,20 @@ def _check_T(T, key="punishment"):
 def grim_threshold(collusive, deviation, nash) -> np.ndarray:
     """Critical discount factor of grim trigger (Nash reversion forever), elementwise.
 
-    ``(pi_D - pi_C) / (pi_D - pi_N)``; 0 when deviating does not pay, ``nan`` when collusion pays no
-    more than competition while deviating pays.
+    ``(pi_D - pi_C) / (pi_D - pi_N)``. ``nan`` when the firm earns less by colluding than in the
+    punishment (it would rather trigger the punishment than comply, whatever its discount factor) or
+    when deviating pays and collusion pays no more than competition; 0 when neither holds and
+    deviating does not pay.
     """
     c, d, n = (np.asarray(x, dtype=float) for x in (collusive, deviation, nash))
     scale = np.maximum(1.0, np.maximum(np.abs(c), np.abs(d)))
     gain = d - c
     loss = c - n
+    tol = _TOL * scale
     with np.errstate(divide="ignore", invalid="ignore"):
-        out = np.where(gain <= _TOL * scale, 0.0, np.where(loss <= _TOL * scale, np.nan, gain / (gain + loss)))
+        out = np.where(
+            loss < -tol, np.nan, np.where(gain <= tol, 0.0, np.where(loss <= tol, np.nan, gain / (gain + loss)))
+        )
     return out
 
 
@@ -113,6 +123,8 @@ def finite_threshold(collusive, deviation, nash, T: int) -> np.ndarray:
 def _finite_scalar(c: float, d: float, n: float, T: int) -> float:
     scale = max(1.0, abs(c), abs(d))
     gain, loss = d - c, c - n
+    if loss < -_TOL * scale:  # the firm prefers the punishment to complying
+        return math.nan
     if gain <= _TOL * scale:
         return 0.0
     if loss <= _TOL * scale:
@@ -237,6 +249,9 @@ class StickCarrot(SchemeThreshold):
         Profits at the punishment and of the best deviation from it.
     binding_constraint : str
         ``"collusion"`` or ``"punishment"`` (which incentive constraint binds the binding firm).
+    weaker_than_grim : bool
+        The best one-period stick needs a higher discount factor than grim trigger (set by
+        :func:`critical_discount_factors`, which knows both).
     """
 
     punishment_level: float = math.nan
@@ -244,10 +259,12 @@ class StickCarrot(SchemeThreshold):
     punishment_profits: np.ndarray = field(default_factory=lambda: np.zeros(0))
     punishment_deviation_profits: np.ndarray = field(default_factory=lambda: np.zeros(0))
     binding_constraint: str = ""
+    weaker_than_grim: bool = False
 
     def to_dict(self) -> dict:
         out = super().to_dict()
         out.update(
+            weaker_than_grim=self.weaker_than_grim,
             punishment_action=float(self.punishment_level),
             punishment_profile=self.punishment_actions.tolist(),
             punishment_profits=self.punishment_profits.tolist(),
@@ -456,6 +473,8 @@ def partial_collusion(market, delta: float, scheme: str = "grim", T: int | None 
             else:
                 hi_ = mid
         lam = lo_
+    if lam <= 1e-9:  # indistinguishable from static Nash at double precision
+        lam = 0.0
     a = st.nash.actions + lam * (st.collusive.actions - st.nash.actions)
     pi = ms.firm_profits(a[None, :])[0]
     gain = (pi.sum() - joint_n) / (joint_c - joint_n) if joint_c > joint_n else math.nan
@@ -491,6 +510,13 @@ class ThresholdReport:
     partial: list
     sensitivity: dict
 
+    @property
+    def best(self) -> SchemeThreshold:
+        """The computed scheme with the lowest market threshold (grim trigger on ties)."""
+        cands = [self.grim, *self.finite, self.stick_carrot]
+        ok = [c for c in cands if c.sustainable]
+        return min(ok, key=lambda c: c.market) if ok else self.grim
+
     def to_dict(self) -> dict:
         out = self.stage.to_dict()
         out["n_firms"] = self.stage.n_firms
@@ -498,6 +524,7 @@ class ThresholdReport:
             "grim": self.grim.to_dict(),
             "finite": [f.to_dict() for f in self.finite],
             "stick_carrot": self.stick_carrot.to_dict(),
+            "best": {"scheme": self.best.scheme, "T": self.best.T, "market": _none(self.best.market)},
         }
         out["partial_collusion"] = [p.to_dict() for p in self.partial]
         out["sensitivity"] = self.sensitivity
@@ -526,6 +553,8 @@ def critical_discount_factors(market, punishments=(1, 2, 3, 5, 10), deltas=(), a
     grim = _scheme("grim", grim_threshold(c, d, n))
     finite = [_scheme("finite", finite_threshold(c, d, n, T), T) for T in Ts]
     sc = stick_and_carrot(ms, st)
+    if grim.sustainable and (not sc.sustainable or sc.market > grim.market):
+        sc = dataclasses.replace(sc, weaker_than_grim=True)
     partial = []
     for delta in ds:
         partial.append(partial_collusion(ms, delta, "grim", stage=st))

@@ -36,16 +36,85 @@ def test_cournot_with_a_binding_capacity():
 def test_homogeneous_bertrand_static_equilibria():
     sym = sim.static_nash(Market(LinearDemand(10, 1), cost=2.0, n_firms=3, model="bertrand"))
     assert np.allclose(sym.prices, 2.0) and np.allclose(sym.firm_profits, 0.0)
-    # asymmetric costs, continuous prices: the limit equilibrium (module convention)
+    # asymmetric costs, continuous prices: the low-cost firm undercuts the rival's cost by the
+    # effective step (1e-9 of the choke price), approaching the limit profit (3 - 1) * 7 = 14
     asym = sim.static_nash(Market(LinearDemand(10, 1), cost=[1.0, 3.0, 4.0], model="bertrand"))
-    assert asym.prices[0] == 3.0
-    assert asym.firm_profits == pytest.approx([(3 - 1) * 7, 0, 0])
+    assert asym.prices[0] == pytest.approx(3.0 - 1e-8, abs=1e-15)
+    assert asym.firm_profits == pytest.approx([14.0, 0, 0], rel=1e-8)
     # with a price tick the low-cost firm prices one tick below its rival's cost
     ticked = sim.static_nash(Market(LinearDemand(10, 1), cost=[1.0, 3.0], model="bertrand", tick=0.01))
     assert ticked.prices[0] == pytest.approx(2.99)
+    # one tick below the rival's cost would be below the own cost: the two tie at the rival's cost
+    # (a one-tick undercut loses money, pricing higher sells nothing), and nobody prices below cost
+    close = sim.static_nash(Market(LinearDemand(10, 1), cost=[1.0, 1.005], model="bertrand", tick=0.01))
+    assert np.allclose(close.prices, 1.005) and np.all(close.firm_profits >= 0)
+    assert close.firm_profits[0] == pytest.approx(0.005 * 8.995 / 2)
     # a cost advantage so large that the monopoly price is below the rival's cost
     blockaded = sim.static_nash(Market(LinearDemand(10, 1), cost=[1.0, 9.0], model="bertrand"))
     assert blockaded.prices[0] == pytest.approx(5.5)
+
+
+@pytest.mark.parametrize(
+    "market",
+    [
+        Market(LinearDemand(10, 1), cost=[1.0, 3.0, 4.0], model="bertrand"),
+        Market(LinearDemand(10, 1), cost=[1.0, 1.0, 2.0], model="bertrand", tick=0.05),
+        Market(LinearDemand(10, 1), cost=[1.0, 2.0], capacity=[2.0, 9.0]),
+        Market(DifferentiatedDemand([10.0, 9.0, 8.0], 1.0, 0.9), cost=[1.0, 2.0, 6.0], model="bertrand"),
+        Market(LogitDemand([2.0, 1.5], 0.0, 0.25), cost=[1.0, 0.8], model="bertrand"),
+        Market(IsoelasticDemand(2.0, 1.8), cost=[1.0, 1.3]),
+    ],
+    ids=["homog-bertrand", "homog-bertrand-tick", "cournot-capacity", "diff-bertrand", "logit", "isoelastic"],
+)
+def test_reported_profiles_are_attainable(market):
+    """Every profile the stage game reports evaluates to the profits reported with it."""
+    st = sim.stage_game(market)
+    assert np.allclose(market.firm_profits(st.nash.actions), st.nash.firm_profits, rtol=1e-12)
+    assert np.allclose(market.firm_profits(st.collusive.actions), st.collusive.firm_profits, rtol=1e-12)
+    for i in range(market.spec().n_firms):
+        assert market.firm_profits(st.deviation_profiles[i])[i] == pytest.approx(st.deviation_profits[i], rel=1e-12)
+
+
+def test_differentiated_bertrand_best_response_with_exits_matches_brute_force(rng):
+    """Near-perfect substitutes, rivals priced near cost: the profitable price band is narrow and a
+    coarse search misses it. Reference: a brute-force grid of 200,001 prices."""
+    m = Market(DifferentiatedDemand(10.0, 1.0, 0.99), cost=1.0, n_firms=3, model="bertrand")
+    prof, v = sim.best_response(m, 0, [5.0, 1.25, 1.25])
+    grid = np.linspace(1.0, 10.0, 200_001)
+    P = np.tile([5.0, 1.25, 1.25], (grid.size, 1))
+    P[:, 0] = grid
+    ref = m.profits(P)[:, 0]
+    # the exact answer is at least the best grid point and within the grid's resolution of it
+    assert v >= ref.max() - 1e-12 and v == pytest.approx(ref.max(), rel=1e-4)
+    assert prof[0] == pytest.approx(grid[ref.argmax()], abs=1e-4)
+    for _ in range(60):
+        n = int(rng.integers(3, 6))
+        a, c = rng.uniform(5, 10, n), rng.uniform(0, 4, n)
+        mk = Market(DifferentiatedDemand(a, 1.0, float(rng.choice([0.5, 0.9, 0.99]))), cost=c, model="bertrand")
+        row, i = rng.uniform(0, 10, n), int(rng.integers(n))
+        _, v = sim.best_response(mk, i, row)
+        grid = np.linspace(c[i], a[i], 20_001)
+        P = np.tile(row, (grid.size, 1))
+        P[:, i] = grid
+        assert mk.profits(P)[:, i].max() <= v + 1e-9 * max(1.0, abs(v))
+
+
+def test_asymmetric_differentiated_bertrand_equilibria_are_certified(rng):
+    """Random 3- and 4-firm markets with high substitution and exits, single- and multi-product
+    firms: the certified static Nash exists and no firm gains on a fine grid of its own prices."""
+    for t in range(30):
+        n = int(rng.integers(3, 5))
+        a, c = rng.uniform(8, 10, n), rng.uniform(0, 6, n)
+        owner = None if t % 2 else [*range(1, n), 1]
+        m = Market(DifferentiatedDemand(a, 1.0, float(rng.uniform(0.5, 0.99))), cost=c, model="bertrand", owner=owner)
+        nash = sim.static_nash(m)
+        ms = m.spec()
+        for k in range(ms.n_products):
+            grid = np.linspace(0.0, a[k], 4001)
+            P = np.tile(nash.actions, (grid.size, 1))
+            P[:, k] = grid
+            gain = m.firm_profits(P)[:, ms.owner[k]].max() - nash.firm_profits[ms.owner[k]]
+            assert gain <= 1e-9 * max(1.0, nash.firm_profits.max())
 
 
 def test_differentiated_duopoly_nash_closed_forms():

@@ -221,3 +221,45 @@ def test_bad_discount_factors_and_punishment_lengths():
         assert err.value.key == "delta" and "(0, 1)" in str(err.value)
     with pytest.raises(sim.InputError):
         sim.critical_discount_factors(m, punishments=(0,))
+
+
+def test_a_firm_that_prefers_the_punishment_cannot_be_held_by_it():
+    """Along the path from Nash to the asymmetric joint-profit maximum the high-cost firm's profit
+    falls below its Nash profit: Nash reversion is then a reward, not a threat, so no discount factor
+    sustains any step along the path (partial collusion stays at Nash)."""
+    m = Market(LinearDemand(100, 1), cost=[10.0, 12.0, 16.0])
+    pc = sim.partial_collusion(m, 0.9, "grim")
+    assert pc.weight == 0.0
+    assert math.isnan(float(grim_threshold(1.0, 1.0, 2.0)))  # collusive 1 < Nash 2, no gain from cheating
+
+
+def test_stick_and_carrot_is_flagged_when_weaker_than_grim_trigger():
+    """With capacity 2.5 (a = 10, c = 1, two firms) the harshest stick is both firms at capacity, which
+    is also the static Nash outcome: one period of it cannot deter a deviation (delta would have to be
+    (10.625 - 10.125) / (10.125 - 10) = 4), while Nash reversion forever can, from delta = 0.8."""
+    r = sim.critical_discount_factors(Market(LinearDemand(10, 1), cost=1.0, n_firms=2, capacity=2.5), punishments=())
+    assert r.grim.market == pytest.approx(0.8, rel=1e-12)
+    assert r.grim.sustainable
+    assert r.stick_carrot.weaker_than_grim and r.best.scheme == "grim"
+    ok = sim.critical_discount_factors(Market(LinearDemand(2, 1), cost=1.0, n_firms=2), punishments=())
+    assert not ok.stick_carrot.weaker_than_grim and ok.best.scheme == "stick_carrot"
+
+
+@pytest.mark.parametrize(
+    "market",
+    [
+        Market(sim.IsoelasticDemand(1, 2), cost=1.0, n_firms=2),
+        Market(sim.LogitDemand(2, 0, 0.25), cost=1.0, n_firms=2, model="bertrand"),
+        Market(DifferentiatedDemand(10, 1, 0.5), cost=1.0, n_firms=3, model="bertrand"),
+        Market(DifferentiatedDemand(10, 1, 0.5), cost=1.0, n_firms=3),
+    ],
+    ids=["isoelastic", "logit", "diff-bertrand", "diff-cournot"],
+)
+def test_agreements_coincide_to_many_digits_in_symmetric_markets(market):
+    """With identical firms the joint-profit maximum is symmetric and proportional to Nash, so the
+    three agreement rules must give the same threshold; the 1-D rules solve their first-order
+    condition on the analytic gradient, hence the tight tolerance."""
+    th = [sim.critical_discount_factors(market, agreement=a, punishments=()).grim.market
+          for a in ("joint", "symmetric", "proportional")]
+    assert th[1] == pytest.approx(th[0], rel=1e-12, abs=0)
+    assert th[2] == pytest.approx(th[0], rel=1e-12, abs=0)

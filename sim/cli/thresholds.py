@@ -169,6 +169,13 @@ def render(report, market, tp=None) -> str:
         lines.append(f"  stick and carrot: one period at common {act} {fmt_num(sc.punishment_level)} "
                      f"(profits {', '.join(fmt_num(x) for x in sc.punishment_profits)}), "
                      f"binding constraint: {sc.binding_constraint}")
+    if sc.weaker_than_grim:
+        lines.append("  the best one-period stick is weaker than Nash reversion forever here (capacities or the "
+                     "price floor limit how harsh one period can be)")
+    best = report.best
+    if best.sustainable:
+        name = {"grim": "grim trigger", "stick_carrot": "stick and carrot"}.get(best.scheme, f"Nash reversion, T={best.T}")
+        lines.append(f"  lowest threshold: {name}, {fmt_num(best.market)}")
     if report.partial:
         lines.append("")
         lines.append("Partial collusion: most profitable sustainable outcome on the path from Nash (0) to the "
