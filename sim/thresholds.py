@@ -21,8 +21,9 @@ best symmetric two-phase punishment (stick and carrot)
     symmetric punishments when the stick can be made harsh enough; with capacities or a price floor
     one period may not be harsh enough, and the best one-period stick can then be weaker than Nash
     reversion forever. :attr:`StickCarrot.weaker_than_grim` flags that case, and
-    :attr:`ThresholdReport.best` names the scheme with the lowest threshold. Two constraints per firm, with ``pi_P`` the profit at the punishment
-    profile and ``pi_DP`` the best deviation against it:
+    :attr:`ThresholdReport.best` names the scheme with the lowest threshold. Two constraints per
+    firm, with ``pi_P`` the profit at the punishment profile and ``pi_DP`` the best deviation
+    against it:
     ``pi_D - pi_C <= delta (pi_C - pi_P)`` and ``pi_DP - pi_P <= delta (pi_C - pi_P)``.
     The punishment level is chosen to minimise the market threshold, within the action bounds
     (quantities in ``[0, capacity]``, prices at or above zero).

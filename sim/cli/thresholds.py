@@ -174,7 +174,8 @@ def render(report, market, tp=None) -> str:
                      "price floor limit how harsh one period can be)")
     best = report.best
     if best.sustainable:
-        name = {"grim": "grim trigger", "stick_carrot": "stick and carrot"}.get(best.scheme, f"Nash reversion, T={best.T}")
+        names = {"grim": "grim trigger", "stick_carrot": "stick and carrot"}
+        name = names.get(best.scheme, f"Nash reversion, T={best.T}")
         lines.append(f"  lowest threshold: {name}, {fmt_num(best.market)}")
     if report.partial:
         lines.append("")
