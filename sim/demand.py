@@ -46,6 +46,10 @@ __all__ = [
     "LogitDemand",
 ]
 
+#: Largest absolute value accepted for prices, costs, intercepts, slopes and sizes: far beyond any
+#: market in any currency unit, and small enough that squares and products stay finite.
+MAX_MAGNITUDE = 1e9
+
 # Codes shared with the numba core (sim._stagecore). One code per (demand, mode) pair.
 CODE_LINEAR_COURNOT = 0
 CODE_LINEAR_BERTRAND = 1
@@ -104,9 +108,9 @@ class LinearDemand(Demand):
     models = ("cournot", "bertrand")
     name = "linear"
     _constraints = {
-        "intercept": Real(0, None, closed="neither"),
-        "slope": Real(0, None, closed="neither"),
-        "split": optional(PerFirm(Real(0, None, closed="neither"), broadcast=False)),
+        "intercept": Real(0, MAX_MAGNITUDE, closed="right"),
+        "slope": Real(0, MAX_MAGNITUDE, closed="right"),
+        "split": optional(PerFirm(Real(0, MAX_MAGNITUDE, closed="right"), broadcast=False)),
     }
 
     def __init__(self, intercept=10.0, slope=1.0, split=None):
@@ -137,8 +141,8 @@ class DifferentiatedDemand(Demand):
     models = ("cournot", "bertrand")
     name = "differentiated"
     _constraints = {
-        "intercept": PerFirm(Real(0, None, closed="neither")),
-        "slope": Real(0, None, closed="neither"),
+        "intercept": PerFirm(Real(0, MAX_MAGNITUDE, closed="right")),
+        "slope": Real(0, MAX_MAGNITUDE, closed="right"),
         "substitution": Real(0, 1),
     }
 
@@ -172,10 +176,10 @@ class LogitDemand(Demand):
     models = ("bertrand",)
     name = "logit"
     _constraints = {
-        "quality": PerFirm(Real(None, None)),
-        "outside": Real(None, None),
-        "mu": Real(0, None, closed="neither"),
-        "size": Real(0, None, closed="neither"),
+        "quality": PerFirm(Real(-1e6, 1e6)),
+        "outside": Real(-1e6, 1e6),
+        "mu": Real(1e-6, 1e6),
+        "size": Real(0, MAX_MAGNITUDE, closed="right"),
     }
 
     def __init__(self, quality=2.0, outside=0.0, mu=0.25, size=1.0):
@@ -203,8 +207,8 @@ class IsoelasticDemand(Demand):
     models = ("cournot",)
     name = "isoelastic"
     _constraints = {
-        "scale": Real(0, None, closed="neither"),
-        "elasticity": Real(1, None, closed="neither"),
+        "scale": Real(0, MAX_MAGNITUDE, closed="right"),
+        "elasticity": Real(1, 100, closed="right"),
     }
 
     def __init__(self, scale=1.0, elasticity=2.0):
@@ -273,6 +277,19 @@ def direct_demand(s: DemandSpec, p: np.ndarray) -> np.ndarray:
         denom = e.sum(axis=-1, keepdims=True) + np.exp(u0 - top)
         return size * e / denom
     raise ValueError(f"direct demand undefined for {s.kind}")
+
+
+def logit_share_complement(s: DemandSpec, p: np.ndarray, products) -> float:
+    """``1 - sum of the shares of products`` for one price profile, computed as the share of every
+    other option (no cancellation when those products dominate the market)."""
+    a0, mu = s.scalars[0], s.scalars[1]
+    u = (s.vector - np.asarray(p, dtype=float)) / mu
+    top = max(float(u.max()), a0 / mu)
+    e = np.exp(u - top)
+    e0 = np.exp(a0 / mu - top)
+    mask = np.zeros(u.size, bool)
+    mask[np.asarray(products)] = True
+    return float((e[~mask].sum() + e0) / (e.sum() + e0))
 
 
 def logit_outside_share(s: DemandSpec, p: np.ndarray) -> np.ndarray:

@@ -19,7 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize
 
-from .demand import direct_demand, logit_outside_share
+from .demand import direct_demand, logit_outside_share, logit_share_complement
 from .errors import InputError, SolverError
 from .market import MarketSpec
 
@@ -188,7 +188,7 @@ def _br_logit_multi(ms: MarketSpec, own: np.ndarray, row: np.ndarray) -> np.ndar
     ``m = mu / (1 - S_f)`` with ``S_f`` the firm's total share (Anderson, de Palma and Thisse,
     1992, "Discrete Choice Theory of Product Differentiation", ch. 7); the root is unique because
     ``S_f`` falls as ``m`` rises."""
-    mu, size = ms.demand.scalars[1], ms.demand.scalars[2]
+    mu = ms.demand.scalars[1]
     c = ms.cost[own]
 
     def prof_at(m):
@@ -197,12 +197,10 @@ def _br_logit_multi(ms: MarketSpec, own: np.ndarray, row: np.ndarray) -> np.ndar
         return p
 
     def h(m):
-        S = direct_demand(ms.demand, prof_at(m)[None, :])[0, own].sum() / size
-        return m - mu / (1.0 - S)
+        return m - mu / logit_share_complement(ms.demand, prof_at(m), own)
 
-    S0 = direct_demand(ms.demand, prof_at(0.0)[None, :])[0, own].sum() / size
-    hi = mu / (1.0 - S0)
-    m = hi if h(hi) <= 0 else optimize.brentq(h, 0.0, hi, xtol=1e-15 * max(1.0, hi), rtol=1e-15, maxiter=500)
+    hi = mu / logit_share_complement(ms.demand, prof_at(0.0), own)
+    m = hi if h(hi) <= 0 else optimize.brentq(h, 0.0, hi, xtol=1e-15 * max(1.0, mu), rtol=1e-15, maxiter=1000)
     return prof_at(m)
 
 
@@ -419,26 +417,26 @@ def _br_isoelastic(ms: MarketSpec, i: int, row: np.ndarray) -> float:
 
 
 def _br_logit(ms: MarketSpec, i: int, row: np.ndarray) -> float:
-    # the first-order condition p - c = mu / (1 - s_i(p)) has a unique root because s_i falls in p
+    """The first-order condition ``p - c = mu / (1 - s_i(p))`` has a unique root because ``s_i``
+    falls in ``p``; ``1 - s_i`` is computed directly as the share of the other options, so that a
+    dominant product does not lose it to cancellation."""
     mu = ms.demand.scalars[1]
     c = ms.cost[i]
-    size = ms.demand.scalars[2]
+    prof = row.copy()
 
-    def share(p):
-        prof = row.copy()
+    def rest(p):
         prof[i] = p
-        return direct_demand(ms.demand, prof[None, :])[0, i] / size
+        return logit_share_complement(ms.demand, prof, [i])
 
     def h(p):
-        return p - c - mu / (1.0 - share(p))
+        return p - c - mu / rest(p)
 
-    s_c = share(c)
-    if s_c >= 1.0:  # pragma: no cover - only with absurd quality gaps
-        raise SolverError(f"logit best response of firm {i + 1}: share at cost is one")
-    hi = c + mu / (1.0 - s_c)
+    hi = c + mu / rest(c)
     if h(hi) <= 0:
         return hi
-    return float(optimize.brentq(h, c, hi, xtol=1e-15 * max(1.0, hi), rtol=1e-15, maxiter=500))
+    # the bracket can be astronomically wide for a dominant product: tolerances relative to the cost
+    # and mu, not to the bracket
+    return float(optimize.brentq(h, c, hi, xtol=1e-15 * max(1.0, c, mu), rtol=1e-15, maxiter=1000))
 
 
 def _br_homogeneous_bertrand(ms: MarketSpec, i: int, A: np.ndarray):

@@ -43,6 +43,7 @@ from .demand import (
     CODE_LINEAR_COURNOT,
     CODE_LOGIT_BERTRAND,
     DEMAND_TYPES,
+    MAX_MAGNITUDE,
     Demand,
     DemandSpec,
     DifferentiatedDemand,
@@ -55,9 +56,11 @@ from .demand import (
 )
 from .errors import InputError
 
-__all__ = ["MODELS", "Market", "MarketSpec", "market_from_dict"]
+__all__ = ["MAX_FIRMS", "MODELS", "Market", "MarketSpec", "market_from_dict"]
 
 MODELS = ("cournot", "bertrand")
+#: Largest number of firms (or products): oligopoly analysis, not atomistic markets.
+MAX_FIRMS = 1000
 
 _CODES = {
     ("linear", "cournot"): CODE_LINEAR_COURNOT,
@@ -260,10 +263,10 @@ class Market(Parametrized):
 
     _constraints = {
         "model": Options(*MODELS),
-        "n_firms": optional(Integer(2, 100_000)),
-        "cost": PerFirm(Real(0, None)),
-        "capacity": optional(PerFirm(Real(0, None, closed="neither"))),
-        "tick": Real(0, None),
+        "n_firms": optional(Integer(2, MAX_FIRMS)),
+        "cost": PerFirm(Real(0, MAX_MAGNITUDE)),
+        "capacity": optional(PerFirm(Real(0, MAX_MAGNITUDE, closed="right"))),
+        "tick": Real(0, MAX_MAGNITUDE),
     }
 
     def __init__(self, demand, cost, model="cournot", n_firms=None, capacity=None, tick=0.0, owner=None):
@@ -298,7 +301,7 @@ class Market(Parametrized):
                 raise InputError(f"{prefix}.owner", f"must list the owning firm of each product, got {self.owner!r}")
             return len(self.owner)
         if self.n_firms is not None:
-            return Integer(2, 100_000).check(f"{prefix}.n_firms", self.n_firms)
+            return Integer(2, MAX_FIRMS).check(f"{prefix}.n_firms", self.n_firms)
         candidates = []
         for key, value in (("cost", self.cost), ("capacity", self.capacity)):
             if isinstance(value, list | tuple | np.ndarray):
@@ -313,8 +316,8 @@ class Market(Parametrized):
         for key, n in candidates[1:]:
             if n != n0:
                 raise InputError(f"{prefix}.{key}", f"must have one value per firm ({n0}, as {key0}), got {n} values")
-        if n0 < 2:
-            raise InputError(f"{prefix}.n_firms", f"must be an integer in [2, 100000], got {n0}")
+        if not 2 <= n0 <= MAX_FIRMS:
+            raise InputError(f"{prefix}.n_firms", f"must be an integer in [2, {MAX_FIRMS}], got {n0}")
         return n0
 
     def spec(self, prefix: str = "market") -> MarketSpec:
@@ -440,6 +443,12 @@ def _check_costs(prefix: str, d: DemandSpec, cost: np.ndarray) -> None:
         bad = np.flatnonzero(cost <= 0)
         if bad.size:
             raise InputError(key, f"isoelastic demand needs positive costs, firm {bad[0] + 1} has {cost[bad[0]]:g}")
+        # with a tiny cost relative to the demand scale the monopoly output (scale/cost)^elasticity
+        # overflows; a millionth of the scale is far below any calibrated market
+        low = np.flatnonzero(cost < 1e-6 * d.scalars[0])
+        if low.size:
+            raise InputError(key, f"isoelastic demand needs costs of at least 1e-6 of the scale "
+                                  f"({1e-6 * d.scalars[0]:g}); firm {low[0] + 1} has {cost[low[0]]:g}")
 
 
 # keys of the flat [market] table, by demand system

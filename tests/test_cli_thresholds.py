@@ -103,3 +103,58 @@ def test_subprocess_has_no_traceback_and_help_is_quick():
                         "print(sorted(m for m in sys.modules if m.split('.')[0] in ('numba', 'matplotlib')))"],
                        capture_output=True, text=True, cwd=ROOT)
     assert r.returncode == 0 and r.stdout.strip() == "[]"  # numba and matplotlib load lazily
+
+
+@pytest.mark.parametrize(
+    "args, field",
+    [
+        (["--firms", "2", "--cost", "1", "--demand", "logit", "--model", "bertrand", "--quality", "1e308"],
+         "--quality"),
+        (["--firms", "2", "--cost", "1e-300", "--demand", "isoelastic"], "--cost"),
+        (["--firms", "2", "--cost", "1", "--intercept", "1e300"], "--intercept"),
+        (["--firms", "100000", "--cost", "1"], "--firms"),
+        (["--firms", "2", "--cost", "1", "--noise", "normal"], "--delta"),
+        (["--firms", "2", "--cost", "1", "--noise", "normal", "--delta", "0.9", "--sigma", "-1"], "--sigma"),
+        (["--firms", "2", "--cost", "1,2", "--noise", "normal", "--delta", "0.9"], "--noise"),
+        (["--firms", "2", "--cost", "1", "--actions", "1,2,3"], "--actions"),
+    ],
+)
+def test_extreme_values_and_flag_names(args, field, capsys):
+    code, out, err = run(["thresholds", *args], capsys)
+    assert code == 2 and out == "" and len(err.strip().splitlines()) == 1 and field in err
+
+
+def test_file_tables_are_checked(tmp_path, capsys):
+    bad = tmp_path / "bad.toml"
+    bad.write_text("market = 5\n")
+    code, _, err = run(["thresholds", str(bad)], capsys)
+    assert code == 2 and "market" in err and "table" in err
+    bad.write_text('[market]\ncost = 1.0\nn_firms = 2\n[monitoring]\nbogus = 3\n')
+    code, _, err = run(["thresholds", str(bad)], capsys)
+    assert code == 2 and "monitoring.bogus" in err
+
+
+def test_a_dominant_logit_product_is_solved(capsys):
+    """A product whose share at cost is one to double precision: the best response uses the share of
+    the other options directly (no 1 - s cancellation) and prices near the quality gap."""
+    code, out, _ = run(["thresholds", "--demand", "logit", "--model", "bertrand", "--firms", "2", "--quality", "3,1",
+                        "--mu", "0.02", "--cost", "1", "--json"], capsys)
+    assert code == 0
+    p = json.loads(out)["actions"]["nash"]
+    assert 2.5 < p[0] < 3.0 and 1.0 < p[1] < 1.1
+
+
+def test_an_internal_error_is_one_line_without_traceback(monkeypatch, capsys):
+    import sim.cli.thresholds as cmd
+
+    def boom(args):
+        raise ZeroDivisionError("a defect")
+
+    monkeypatch.setattr(cmd, "run", boom)
+    monkeypatch.delenv("SUPERGAME_DEBUG", raising=False)
+    code, out, err = run(["thresholds", "--cost", "1", "--firms", "2"], capsys)
+    assert code == 1 and out == ""
+    assert len(err.strip().splitlines()) == 1 and "internal error" in err and "ZeroDivisionError" in err
+    monkeypatch.setenv("SUPERGAME_DEBUG", "1")
+    with pytest.raises(ZeroDivisionError):
+        main(["thresholds", "--cost", "1", "--firms", "2"])

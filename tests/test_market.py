@@ -47,12 +47,12 @@ def test_owner_map_aggregates_profits_by_firm():
 @pytest.mark.parametrize(
     "kwargs, key, fragment",
     [
-        (dict(demand=LinearDemand(10, -1), cost=1.0, n_firms=2), "market.slope", "(0, inf)"),
+        (dict(demand=LinearDemand(10, -1), cost=1.0, n_firms=2), "market.slope", "(0, 1e+09]"),
         (dict(demand=LinearDemand(10, 1), cost=[1.0, 12.0]), "market.cost", "choke price"),
         (dict(demand=LinearDemand(10, 1), cost=[1.0, 10.0]), "market.cost", "at or above the choke"),
-        (dict(demand=LinearDemand(10, 1), cost=1.0, n_firms=1), "market.n_firms", "[2, 100000]"),
-        (dict(demand=LinearDemand(10, 1), cost=[1.0]), "market.n_firms", "[2, 100000]"),
-        (dict(demand=LinearDemand(10, 1), cost=[1.0, 1.0], capacity=[-1.0, 2.0]), "market.capacity", "(0, inf)"),
+        (dict(demand=LinearDemand(10, 1), cost=1.0, n_firms=1), "market.n_firms", "[2, 1000]"),
+        (dict(demand=LinearDemand(10, 1), cost=[1.0]), "market.n_firms", "[2, 1000]"),
+        (dict(demand=LinearDemand(10, 1), cost=[1.0, 1.0], capacity=[-1.0, 2.0]), "market.capacity", "(0, 1e+09]"),
         (dict(demand=LinearDemand(10, 1), cost=[1.0, 1.0], capacity=[1.0, 2.0, 3.0]), "market.capacity",
          "one value per firm"),
         (dict(demand=LinearDemand(10, 1), cost=[1.0, 1.0, 1.0], n_firms=2), "market.cost", "one value per firm (2)"),
@@ -61,7 +61,7 @@ def test_owner_map_aggregates_profits_by_firm():
          "quantity (cournot) competition only"),
         (dict(demand=LogitDemand(), cost=1.0, n_firms=2, model="cournot"), "market.model", "supports bertrand"),
         (dict(demand=IsoelasticDemand(1, -2), cost=1.0, n_firms=2), "market.elasticity", "absolute value"),
-        (dict(demand=IsoelasticDemand(1, 0.5), cost=1.0, n_firms=2), "market.elasticity", "(1, inf)"),
+        (dict(demand=IsoelasticDemand(1, 0.5), cost=1.0, n_firms=2), "market.elasticity", "(1, 100]"),
         (dict(demand=IsoelasticDemand(1, 2), cost=0.0, n_firms=2), "market.cost", "positive costs"),
         (dict(demand=DifferentiatedDemand(10, 1, 1.0), cost=1.0, n_firms=2, model="bertrand"),
          "market.substitution", "substitution < 1"),
@@ -69,6 +69,11 @@ def test_owner_map_aggregates_profits_by_firm():
         (dict(demand=LinearDemand(10, 1), cost=1.0, owner=[1, 1, 2]), "market.owner", "differentiated products"),
         (dict(demand=LogitDemand(), cost=1.0, owner=[1, 3], model="bertrand"), "market.owner", "without gaps"),
         (dict(demand="linear", cost=1.0, n_firms=2), "market.demand", "must be one of"),
+        (dict(demand=LinearDemand(1e300, 1), cost=1.0, n_firms=2), "market.intercept", "(0, 1e+09]"),
+        (dict(demand=LinearDemand(10, 1), cost=1.0, n_firms=100_000), "market.n_firms", "[2, 1000]"),
+        (dict(demand=LogitDemand(quality=1e308), cost=1.0, n_firms=2, model="bertrand"), "market.quality",
+         "[-1e+06, 1e+06]"),
+        (dict(demand=IsoelasticDemand(1, 2), cost=1e-300, n_firms=2), "market.cost", "1e-6 of the scale"),
     ],
 )
 def test_bad_markets_name_the_field(kwargs, key, fragment):

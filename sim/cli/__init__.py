@@ -4,14 +4,16 @@ Each command lives in its own module exposing ``HELP`` (one line), ``configure(p
 ``run(args) -> int``. Command modules import heavy dependencies inside ``run`` only, so that
 ``supergame --help`` answers quickly.
 
-Exit status: 0 success, 1 a computation failed (printed as one line), 2 bad input (one line naming
-the field), 130 interrupted.
+Exit status: 0 success, 1 a computation failed or an internal error (printed as one line; set
+``SUPERGAME_DEBUG=1`` for the traceback of an internal error), 2 bad input (one line naming the
+field), 130 interrupted.
 """
 
 from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 
 from ..errors import InputError, SolverError
@@ -78,3 +80,10 @@ def main(argv: list[str] | None = None) -> int:
         return 130
     except BrokenPipeError:  # pragma: no cover - e.g. piping into head
         return 0
+    except Exception as exc:  # a defect, not a user error: one line, the traceback on request
+        if os.environ.get("SUPERGAME_DEBUG"):
+            raise
+        print(f"supergame {args.command}: internal error ({type(exc).__name__}: {exc}); please report it "
+              "(set SUPERGAME_DEBUG=1 for the traceback)", file=sys.stderr)
+        return 1
+

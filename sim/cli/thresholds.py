@@ -33,85 +33,94 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
 
 
-def _options(args, doc: dict) -> dict:
-    th = doc.get("thresholds", {}) if doc else {}
-    coll = doc.get("collusion", {}) if doc else {}
-    mon = doc.get("monitoring", {}) if doc else {}
-    for name, tab in (("thresholds", th), ("collusion", coll), ("monitoring", mon)):
-        if not isinstance(tab, dict):
-            raise InputError(name, "must be a table")
-    _only(th, "thresholds", {"punishments", "deltas"})
-    _only(coll, "collusion", {"agreement", "actions"})
-    opts = {
-        "punishments": th.get("punishments", [1, 2, 3, 5, 10]),
-        "deltas": th.get("deltas", []),
-        "agreement": coll.get("agreement", "joint"),
-        "actions": coll.get("actions"),
-        "noise": mon.get("noise") if mon.get("signal", "price") == "price" and "noise" in mon else None,
-        "sigma": mon.get("sigma", 0.1),
-    }
-    for key in ("punishments", "deltas"):
-        if not isinstance(opts[key], list):
-            raise InputError(f"thresholds.{key}", f"must be a list, got {opts[key]!r}")
-    if args.punishment:
-        opts["punishments"] = [parse_number("punishment", t, integer=True) for t in args.punishment]
-    if args.delta:
-        opts["deltas"] = [parse_number("delta", t) for t in args.delta]
+# table keys whose values can come from a flag, for naming the flag in error messages
+_FLAG_OF = {
+    "collusion.agreement": "--agreement",
+    "collusion.actions": "--actions",
+    "thresholds.punishments": "--punishment",
+    "thresholds.deltas": "--delta",
+    "monitoring.signal": "--noise",
+    "monitoring.noise": "--noise",
+    "monitoring.sigma": "--sigma",
+}
+
+
+def _document(args) -> tuple[dict, set]:
+    """The experiment document: FILE's tables (if any) with the flags applied on top, and the set of
+    table keys that came from flags."""
+    from ..tomlfile import read_toml
+    from ._common import parse_numbers
+
+    doc = read_toml(args.file) if args.file else {}
+    if args.file and "market" not in doc:
+        raise InputError("market", f"{args.file} has no [market] table")
+    for name in ("market", "collusion", "thresholds", "monitoring"):
+        if name in doc and not isinstance(doc[name], dict):
+            raise InputError(name, f"must be a table, got {doc[name]!r}")
+    doc = {k: (dict(v) if isinstance(v, dict) else v) for k, v in doc.items()}
+    table, market_flags = market_table_from_args(args, doc.get("market", {}))
+    if "cost" not in table:
+        raise InputError("--cost" if not args.file else "market.cost", "missing (marginal cost of each firm)")
+    doc["market"] = table
+    flags = {f"market.{k}" for k in market_flags}
+    coll = doc.setdefault("collusion", {})
     if args.agreement:
-        opts["agreement"] = args.agreement
+        coll["agreement"] = args.agreement
+        coll.pop("actions", None)
+        flags.add("collusion.agreement")
     if args.actions:
-        from ._common import parse_numbers
-
         a = parse_numbers("actions", args.actions)
-        opts["actions"] = a if isinstance(a, list) else [a]
-    if opts["actions"] is not None:
-        opts["agreement"] = "given"
+        coll["actions"] = a if isinstance(a, list) else [a]
+        coll.pop("agreement", None)
+        flags.add("collusion.actions")
+    th = doc.setdefault("thresholds", {})
+    if args.punishment:
+        th["punishments"] = [parse_number("punishment", t, integer=True) for t in args.punishment]
+        flags.add("thresholds.punishments")
+    if args.delta:
+        th["deltas"] = [parse_number("delta", t) for t in args.delta]
+        flags.add("thresholds.deltas")
+    mon = doc.setdefault("monitoring", {})
     if args.noise:
-        opts["noise"] = args.noise
+        mon.update(signal="price", noise=args.noise)
+        mon.setdefault("sigma", 0.1)
+        flags |= {"monitoring.signal", "monitoring.noise"}
     if args.sigma is not None:
-        opts["sigma"] = parse_number("sigma", args.sigma)
-    return opts
+        mon["sigma"] = parse_number("sigma", args.sigma)
+        flags.add("monitoring.sigma")
+    return doc, flags
 
 
-def _only(tab: dict, name: str, allowed: set) -> None:
-    for k in tab:
-        if k not in allowed:
-            raise InputError(f"{name}.{k}", f"unknown key; allowed: {', '.join(sorted(allowed))}")
+def _renamed(exc: InputError, flags: set) -> InputError:
+    """Name the flag the user typed when the offending value came from one."""
+    exc = flag_error(exc, {k.split(".", 1)[1] for k in flags if k.startswith("market.")})
+    base = exc.key.split("[", 1)[0]
+    if base in flags and base in _FLAG_OF:
+        return InputError(_FLAG_OF[base], exc.message)
+    return exc
 
 
 def run(args) -> int:
     from .. import _text
+    from .._adapters import _prepare_thresholds
     from .._jsonutil import dumps
-    from ..market import market_from_dict
     from ..thresholds import critical_discount_factors
-    from ..tomlfile import read_toml
 
-    doc = read_toml(args.file) if args.file else {}
-    base = doc.get("market", {}) if doc else {}
-    if args.file and "market" not in doc:
-        raise InputError("market", f"{args.file} has no [market] table")
-    table, from_flags = market_table_from_args(args, base)
-    if "cost" not in table:
-        raise InputError("--cost" if not args.file else "market.cost", "missing (marginal cost of each firm)")
+    doc, flags = _document(args)
     try:
-        market = market_from_dict(table)
+        cfg = _prepare_thresholds(doc)
     except InputError as exc:
-        raise flag_error(exc, from_flags) from None
-    opts = _options(args, doc)
-    try:
-        report = critical_discount_factors(market, punishments=opts["punishments"], deltas=opts["deltas"],
-                            agreement=opts["agreement"], actions=opts["actions"])
-    except InputError as exc:
-        key = {"punishment": "--punishment" if args.punishment else "thresholds.punishments",
-               "delta": "--delta" if args.delta else "thresholds.deltas"}.get(exc.key, exc.key)
-        raise InputError(key, exc.message) from None
+        # without a file every value is a flag or its default: name the flag
+        raise _renamed(exc, flags if args.file else flags | set(_FLAG_OF)) from None
+    market = cfg["market"]
+    report = critical_discount_factors(market, punishments=cfg["punishments"], deltas=cfg["deltas"],
+                                       agreement=cfg["agreement"], actions=cfg["actions"])
     tp = None
-    if opts["noise"]:
-        if not opts["deltas"]:
-            raise InputError("--delta", "the trigger-price equilibrium needs a discount factor (--delta)")
+    if cfg["trigger_price"]:
         from ..trigger_price import trigger_price_equilibrium
 
-        tp = [trigger_price_equilibrium(market, d, opts["noise"], opts["sigma"]) for d in opts["deltas"]]
+        mon = cfg["monitoring"]
+        tp = [trigger_price_equilibrium(market, d, mon["noise"], mon["sigma"]) for d in cfg["deltas"]]
     out = report.to_dict()
     out["market"] = market.to_dict()
     if tp is not None:
