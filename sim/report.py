@@ -214,6 +214,9 @@ def write_report(folder, out=None) -> Path:
             b.paragraph(" ".join(para.split()))
     b.heading("Setup")
     b.bullets(kind.describe(exp.doc) if kind.describe else [f"Kind: {exp.kind}"])
+    if exp.parameters:
+        b.paragraph("These are the file's settings; the values of " + ", ".join(f"`{p.path}`" for p in exp.parameters)
+                    + " are those of the sweep below.", note=True)
     data = SweepData(list(exp.parameters), rows)
     heads = _headline(exp, kind)
     if exp.parameters:
@@ -281,22 +284,23 @@ def write_report(folder, out=None) -> Path:
     b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
                 f"(also `{CSV_FILE}` in the run folder).", note=True)
 
-    crit = sorted(m for m in exp.metric_names if m.startswith("analytic.critical_delta."))
     ok_rows = [r for r in rows if r.status == "ok"]
+    crit = sorted({m for r in ok_rows for m in r.metrics if m.startswith("analytic.critical_delta.")})
     if crit and ok_rows:
         b.heading("Analytic baseline")
         trows = []
         varies = False
         for m in crit:
-            vals = {round(r.metrics.get(m, math.nan), 12) for r in ok_rows if math.isfinite(r.metrics.get(m, math.nan))}
-            v = ok_rows[0].metrics.get(m, math.nan)
+            have = [r for r in ok_rows if m in r.metrics]
+            vals = {round(r.metrics[m], 12) for r in have if math.isfinite(r.metrics[m])}
+            v = have[0].metrics[m]
             varies = varies or len(vals) > 1
             trows.append([m.split(".", 2)[2].replace("_", " "), v if math.isfinite(v) else "not sustainable below one"])
         b.table("analytic-baseline", ["scheme", "critical discount factor"], trows,
                 caption="Critical discount factors of the punishment schemes played (perfect monitoring, infinite "
                         "horizon)",
-                note=("values of the first cell; they vary across cells (see the results table)" if varies else
-                      "the same in every cell"))
+                note=("values of the first cell playing each scheme; they vary across cells (see the results "
+                      "table)" if varies else "the same in every cell playing the scheme"))
 
     b.heading("Failed cells")
     failed = [r for r in rows if r.status == "failed"]
