@@ -12,10 +12,13 @@ One period, in this order (the random draws happen in this order too):
 1. each firm picks its state's level, possibly cheating (:func:`strategies._step.choose_level`);
 2. implementation errors: one uniform per firm when the error probability is positive; a hit replaces
    the firm's action by its cheating action (``tremble``);
-3. the demand shock: one standard normal (ziggurat, :func:`sim._rng.next_normal_zig`) when ``noise_code > 0``;
+3. the demand shock: one standard normal (ziggurat, :func:`sim._rng.next_normal_zig`) when ``noise_code > 0``
+   (a normal shock ``1 + sigma Z`` is floored at zero, see :mod:`sim.monitoring`);
 4. quantities, prices and profits (:func:`sim._stagecore.evaluate`);
 5. a firm colludes in the period when its state is collusive and it neither cheated nor trembled;
-   the period is collusive when every firm colludes;
+   the period is collusive when every firm colludes; it is a *punishment* period when some firm's
+   state is not collusive (the non-collusive periods in which every state is collusive are the
+   deviations: cheating and trembles);
 6. each firm's signal and next state (:func:`strategies._step.bad_signal`, :func:`next_state`), all
    from the states at the start of the period.
 
@@ -24,8 +27,9 @@ With a random horizon one uniform is drawn before the first period: the number o
 with probability ``1 - continuation``.
 
 Outputs per replication (``out_int`` columns ``R_*``, ``out_flt`` columns ``F_*``, per-firm sums) and per
-chunk (length histograms ``H_*`` of collusive spells and price wars that ended or were cut off by the
-horizon, and per-period counts of collusive replications) are added to what the arrays already hold, so that the
+chunk (length histograms ``H_*`` of collusive spells, price wars and punishment phases -- maximal runs of
+punishment periods -- that ended or were cut off by the horizon, and per-period counts of collusive
+replications) are added to what the arrays already hold, so that the
 driver can call the kernel batch after batch.
 """
 
@@ -51,8 +55,8 @@ N_RINT = 12
 F_PRICE_SUM, F_CS_SUM = range(2)
 N_RFLT = 2
 # histograms per chunk
-H_SPELL_ENDED, H_SPELL_CENSORED, H_WAR_ENDED, H_WAR_CENSORED = range(4)
-N_HIST = 4
+H_SPELL_ENDED, H_SPELL_CENSORED, H_WAR_ENDED, H_WAR_CENSORED, H_PUNISH_ENDED, H_PUNISH_CENSORED = range(6)
+N_HIST = 6
 # path flags per firm
 FLAG_CHEAT, FLAG_TREMBLE, FLAG_COLLUDE = 1, 2, 4
 # path market columns
@@ -147,6 +151,7 @@ def simulate_chunks(chunk_start, rng_states, rep_offset,
             disc = 1.0
             prev = False
             run = 0
+            prun = 0
             price_sum = 0.0
             cs_sum = 0.0
             n_coll = 0
@@ -181,14 +186,20 @@ def simulate_chunks(chunk_start, rng_states, rep_offset,
                     theta = math.exp(sigma * next_normal_zig(rng) - s2)
                 elif noise_code == 2:
                     theta = 1.0 + sigma * next_normal_zig(rng)
+                    if theta < 0.0:
+                        theta = 0.0
                 mp, cs = evaluate(code, scalars, vector, cost, capacity, owner, n_firms, actions, theta, q, p,
                                   profit, work, True)
                 if mp != mp:
                     st_code = STATUS_EVALUATION_FAILED
                     break
                 all_c = True
+                punishing = False
                 for i in range(n_firms):
-                    if states[i, state[i], COLLUSIVE] == 0 or cheated[i] or trembled[i]:
+                    if states[i, state[i], COLLUSIVE] == 0:
+                        all_c = False
+                        punishing = True
+                    elif cheated[i] or trembled[i]:
                         all_c = False
                 if record:
                     for k in range(n_products):
@@ -253,6 +264,11 @@ def simulate_chunks(chunk_start, rng_states, rep_offset,
                         n_spells += 1
                     run = 1
                 prev = all_c
+                if punishing:
+                    prun += 1
+                elif prun > 0:
+                    hist[c, H_PUNISH_ENDED, prun] += 1
+                    prun = 0
                 played += 1
             if st_code != STATUS_OK:
                 break
@@ -261,6 +277,8 @@ def simulate_chunks(chunk_start, rng_states, rep_offset,
                     hist[c, H_SPELL_CENSORED, run] += 1
                 else:
                     hist[c, H_WAR_CENSORED, run] += 1
+            if prun > 0:
+                hist[c, H_PUNISH_CENSORED, prun] += 1
             for i in range(n_firms):
                 out_profit[r, i] += psum[i]
                 out_disc[r, i] += dsum[i]

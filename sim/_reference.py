@@ -83,6 +83,7 @@ def reference_run(game, periods: int, replications: int, delta: float, seed: int
         disc = 1.0
         prev = False
         run = 0
+        prun = 0
         counts = raw.ints[r]
         for t in range(H):
             # 1. levels, with cheating
@@ -108,7 +109,7 @@ def reference_run(game, periods: int, replications: int, delta: float, seed: int
             if noise == 1:
                 theta = math.exp(sigma * rng.next_normal_zig() - 0.5 * sigma * sigma)
             elif noise == 2:
-                theta = 1.0 + sigma * rng.next_normal_zig()
+                theta = max(0.0, 1.0 + sigma * rng.next_normal_zig())  # floored at zero (sim.monitoring)
             # 4. the stage game
             mp, cs = evaluate.py_func(*args, actions, theta, q, p, profit, work, True)
             if mp != mp:
@@ -117,6 +118,8 @@ def reference_run(game, periods: int, replications: int, delta: float, seed: int
             colluding = [f.states[state[i]][S.COLLUSIVE] == 1 and not cheated[i] and not trembled[i]
                          for i, f in enumerate(firms)]
             all_c = all(colluding)
+            # a punishment period: some firm's automaton is in a non-collusive state
+            punishing = any(f.states[state[i]][S.COLLUSIVE] == 0 for i, f in enumerate(firms))
             if r < paths:
                 raw.path_actions[r, t] = actions
                 raw.path_prices[r, t] = p
@@ -189,7 +192,14 @@ def reference_run(game, periods: int, replications: int, delta: float, seed: int
                     counts[K.R_SPELLS] += 1
                 run = 1
             prev = all_c
+            if punishing:
+                prun += 1
+            elif prun > 0:
+                raw.hist[K.H_PUNISH_ENDED, prun] += 1
+                prun = 0
             counts[K.R_PERIODS] += 1
         if run > 0:
             raw.hist[K.H_SPELL_CENSORED if prev else K.H_WAR_CENSORED, run] += 1
+        if prun > 0:
+            raw.hist[K.H_PUNISH_CENSORED, prun] += 1
     return raw

@@ -13,11 +13,12 @@ Conventions shared with :mod:`sim.market`
 * The *market price* of a period is the price at which a homogeneous good trades (Cournot: ``P(Q)``;
   homogeneous Bertrand: the lowest price), and the quantity-weighted mean price of differentiated
   products (the plain mean when nothing sells).
-* Homogeneous Bertrand with ``tick == 0``: the analytic results use the supremum of undercutting by an
-  arbitrarily small amount. A simulation needs a real undercut, so the engine plays the deviation at
-  ``EFFECTIVE_TICK`` times the choke price below the rival price (:func:`effective_tick`). The
-  simulated deviation profit then falls short of the analytic supremum by about
-  ``tick * D(p)`` (``tests/test_stagecore.py`` checks this order).
+* Homogeneous Bertrand: undercutting means pricing one price step below the rival, the market's
+  ``tick`` or, with continuous prices, ``EFFECTIVE_TICK`` times the choke price
+  (:attr:`sim.market.MarketSpec.price_step`, read by :func:`effective_tick`). The stage game reports
+  only such attainable profiles, so the engine plays them as they are; a deviation profit falls
+  short of the continuous-price supremum by about ``step * D(p)`` (``tests/test_stagecore.py``
+  checks this order).
 """
 
 from __future__ import annotations
@@ -37,7 +38,8 @@ from .demand import (
 
 __all__ = ["EFFECTIVE_TICK", "MarketArrays", "effective_tick", "evaluate", "market_arrays"]
 
-#: effective price step of homogeneous Bertrand with continuous prices, relative to the choke price
+#: price step of homogeneous Bertrand with continuous prices, relative to the choke price (the value
+#: :attr:`sim.market.MarketSpec.price_step` uses; ``tests/test_stagecore.py`` checks they agree)
 EFFECTIVE_TICK = 1e-9
 
 _LCP_TOL = 1e-12
@@ -88,18 +90,21 @@ def market_arrays(ms) -> MarketArrays:
 
 def effective_tick(ms) -> float:
     """Price step used to undercut in homogeneous Bertrand: the market's ``tick`` when positive,
-    otherwise ``EFFECTIVE_TICK`` times the choke price."""
-    if ms.tick > 0:
-        return float(ms.tick)
-    return EFFECTIVE_TICK * float(ms.demand.scalars[0])
+    otherwise ``EFFECTIVE_TICK`` times the choke price (the market's own :attr:`price_step`, the one
+    definition the stage game uses)."""
+    return float(ms.price_step)
 
 
 @njit(cache=True, _nrt=False)
 def _lcp(a, b, g, p, q, active, d):
-    """Direct demand of the differentiated linear system with ``q >= 0`` for one price profile:
-    Murty's least-index principal pivoting, as :func:`sim.demand._lcp_demand`. Writes ``q``; ``active``
-    (1.0 for products in the active set) and ``d`` are scratch. Returns False if the pivoting does not
-    terminate."""
+    """Direct demand of the differentiated linear system with ``q >= 0`` for one price profile, by
+    Murty's least-index principal pivoting alone (Murty, 1974: one index exchanged per step, which
+    terminates for P-matrices). :func:`sim.demand._lcp_demand` solves the same complementarity problem
+    by block principal pivoting with Murty's rule as its safeguard; the matrix is positive definite, so
+    the solution is unique and both give the same demand (``tests/test_stagecore.py`` compares them).
+    With one profile and a handful of products, the single-exchange rule is simple and fast enough.
+    Writes ``q``; ``active`` (1.0 for products in the active set) and ``d`` are scratch. Returns False
+    if the pivoting does not terminate."""
     n = p.shape[0]
     scale = 1.0
     for k in range(n):

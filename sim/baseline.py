@@ -1,9 +1,13 @@
 """The analytic prediction that goes beside a simulation summary, where one exists.
 
-* Critical discount factors (:func:`sim.thresholds.thresholds`) of the schemes the line-up plays --
-  grim trigger (Friedman, 1971), T-period Nash reversion, stick and carrot (Abreu, 1986) -- and whether
-  the effective discount factor clears them. With a random horizon the effective discount factor is
-  ``delta * continuation`` (the game goes on with probability ``continuation`` after each period).
+* Critical discount factors (closed forms of :mod:`sim.thresholds`) of the schemes the line-up plays --
+  grim trigger (Friedman, 1971), T-period Nash reversion, stick and carrot (Abreu, 1986) -- computed
+  from the levels the seats play: the collusive profile of the line-up's path (checked to be steady
+  when nobody deviates), each firm's best one-shot deviation from it, the punishment profile of the
+  scheme's seats and the best deviations from that (see :func:`_thresholds`). Whether the effective
+  discount factor clears them is the infinite-horizon benchmark; with a random horizon the effective
+  discount factor is ``delta * continuation`` (the game goes on with probability ``continuation``
+  after each period).
 * The trigger-price model (Green and Porter, 1984) when every firm plays the same trigger-price
   strategy in a symmetric homogeneous-good Cournot market with a demand shock: the war probability
   ``beta = F(trigger / P(nq))``, the expected collusive spell ``1 / beta``, the long-run war share
@@ -185,42 +189,196 @@ def _trigger_price(game, run: dict) -> dict | None:
     }
 
 
-def _thresholds(game, run: dict) -> list:
-    from .thresholds import finite_threshold, grim_threshold, stick_and_carrot
+#: a profile is a static Nash equilibrium when no firm's best deviation gains more than this (relative);
+#: far above rounding and above the effective Bertrand tick of sim._stagecore (about 1e-9), far below
+#: any economically meaningful gain
+_GAIN_RTOL = 1e-7
 
-    st = game.stage
+
+def _scheme_of(strategy) -> tuple | None:
+    """``(kind, T)`` of the punishment scheme a strategy plays, or None."""
+    if isinstance(strategy, GrimTrigger) or (isinstance(strategy, Opportunist) and strategy.after == "nash"):
+        return "grim", None
+    if isinstance(strategy, FinitePunishment):
+        return "finite", int(strategy.length)
+    if isinstance(strategy, StickAndCarrot):
+        return "stick_carrot", None
+    return None
+
+
+def _noiseless_signal(game, i: int, s: int, actions: np.ndarray) -> bool:
+    """Whether firm ``i`` in state ``s`` gets a bad signal when ``actions`` are played without noise."""
+    from ._stagecore import evaluate_py
+
+    lu = game.lineup
+    mk = game.arrays
+    _, _, profit, mp, _ = evaluate_py(mk, actions, 1.0, False)
+    dummy = np.zeros(4, dtype=np.uint64)  # never drawn from: no perception error
+    return bool(S.bad_signal(i, s, mk.n_firms, np.ascontiguousarray(actions, dtype=np.float64), mk.owner, mp,
+                             profit[i], 0.0, lu.states, lu.probs, lu.levels, mk.quantity_setting, dummy))
+
+
+def _on_path_profile(game) -> tuple:
+    """The profile played in every period when nobody deviates and there is no noise: each firm in its
+    initial state, which must be collusive and kept after the signal that profile gives. Returns
+    ``(profile, None)`` or ``(None, reason)``."""
+    lu = game.lineup
+    mk = game.arrays
+    s0 = [int(lu.firms[i, S.INITIAL]) for i in range(mk.n_firms)]
+    for i in range(mk.n_firms):
+        if lu.states[i, s0[i], S.COLLUSIVE] != 1:
+            return None, (f"firm {i + 1} ({lu.names[i]}) does not start in a collusive state, so the line-up has "
+                          "no collusive path to sustain")
+    a = np.array([lu.levels[o, lu.states[o, s0[o], S.ACTION], k] for k, o in enumerate(mk.owner)])
+    for i in range(mk.n_firms):
+        bad = _noiseless_signal(game, i, s0[i], a)
+        nxt, alt, p_alt = ((lu.states[i, s0[i], S.BAD], lu.states[i, s0[i], S.ALT_BAD], lu.probs[i, s0[i], S.P_ALT_BAD])
+                           if bad else
+                           (lu.states[i, s0[i], S.GOOD], lu.states[i, s0[i], S.ALT_GOOD],
+                            lu.probs[i, s0[i], S.P_ALT_GOOD]))
+        if nxt != s0[i] or (p_alt > 0 and alt != s0[i]):
+            return None, (f"the seats' collusive levels disagree: firm {i + 1} ({lu.names[i]}) leaves collusion "
+                          "after the first period even though nobody deviates, so no threshold applies")
+    return a, None
+
+
+def _payoffs(game, profile: np.ndarray) -> tuple:
+    """Each firm's profit at ``profile``, its best one-shot deviation profit, and the profiles of those
+    deviations as played (row i: firm i deviates), cached on the stage levels."""
+    from .equilibrium import best_deviation
+
     lv = game.levels
-    c = lv.firm_profits["collusive"]
-    d = lv.firm_profits["deviation"]
-    nsh = lv.firm_profits["nash"]
-    d_eff = run["delta"] * (run["continuation"] if run["horizon"] == "random" else 1.0)
-    kinds: dict = {}
-    for i, s in enumerate(game.lineup.strategies):
-        if isinstance(s, GrimTrigger | Opportunist):
-            kinds.setdefault(("grim", None), []).append(i + 1)
-        elif isinstance(s, FinitePunishment):
-            kinds.setdefault(("finite", int(s.length)), []).append(i + 1)
-        elif isinstance(s, StickAndCarrot):
-            kinds.setdefault(("stick_carrot", None), []).append(i + 1)
-    out = []
-    for (kind, T), seats in sorted(kinds.items(), key=lambda kv: (kv[0][0], kv[0][1] or 0)):
-        if kind == "grim":
-            per = grim_threshold(c, d, nsh)
-            name, src = "grim trigger", "Friedman (1971)"
-        elif kind == "finite":
-            per = finite_threshold(c, d, nsh, T)
-            name, src = f"Nash reversion, T={T}", "T-period Nash reversion"
-        else:
-            sc = lv.cache.get("stick_carrot")
-            if sc is None:
-                sc = lv.cache["stick_carrot"] = stick_and_carrot(game.market, st)
-            per = np.asarray(sc.per_firm, dtype=float)
-            name, src = "stick and carrot", "Abreu (1986)"
-        per = np.atleast_1d(np.asarray(per, dtype=float))
-        market = float(np.nan) if np.any(np.isnan(per)) else float(per.max())
-        out.append({"scheme": name, "source": src, "seats": seats, "per_firm": per.tolist(), "market": market,
-                    "effective_delta": d_eff, "clears": bool(np.isfinite(market) and d_eff >= market)})
+    key = ("payoffs", profile.tobytes())
+    if key not in lv.cache:
+        ms = game.market
+        rows, dev = best_deviation(ms, profile)
+        lv.cache[key] = (np.asarray(ms.firm_profits(profile), dtype=float), np.asarray(dev, dtype=float), rows)
+    return lv.cache[key]
+
+
+def _unpunished_gains(game, j0: int, s: int, profile: np.ndarray, name: str, phase: str, notes: list) -> np.ndarray:
+    """Firms whose best deviation from ``profile`` pays but is not seen as a deviation by a firm playing
+    seat ``j0``'s scheme in state ``s``: such a deviation goes unpunished, so the scheme is not an
+    equilibrium at any discount factor. Returns a boolean mask of shape (n_firms,)."""
+    from strategies._step import firm_complies
+
+    lu = game.lineup
+    mk = game.arrays
+    pi, dev, rows = _payoffs(game, profile)
+    watching = lu.states[j0, s, S.WATCH] in (S.WATCH_ALL, S.WATCH_RIVALS)
+    out = np.zeros(mk.n_firms, dtype=bool)
+    for i in range(mk.n_firms):
+        gain = dev[i] - pi[i]
+        if gain <= _GAIN_RTOL * max(1.0, abs(pi[i]), abs(dev[i])):
+            continue
+        seen = watching and not firm_complies(j0, s, i, np.ascontiguousarray(rows[i]), mk.owner, lu.states,
+                                              lu.levels, mk.quantity_setting)
+        if not seen:
+            out[i] = True
+    if out.any():
+        who = ", ".join(f"firm {i + 1}" for i in np.flatnonzero(out))
+        notes.append(f"{name}: a deviation from the {phase} pays for {who} and goes unpunished (the scheme does not "
+                     "watch for it), so the scheme is not an equilibrium at any discount factor")
     return out
+
+
+def _two_phase(c, d, pi_p, d_p) -> np.ndarray:
+    """Stick and carrot with punishment profits ``pi_p`` and best deviations ``d_p`` from the punishment:
+    ``max((d - c) / (c - pi_p), (d_p - pi_p) / (c - pi_p))`` per firm (Abreu, 1986; see
+    :mod:`sim.thresholds`), ``nan`` where it is not below one or the punishment is not harsher than
+    collusion."""
+    room = c - pi_p
+    scale = max(1.0, float(np.abs(c).max()))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        d1 = np.where(room > 1e-12 * scale, (d - c) / room, np.inf)
+        d2 = np.where(room > 1e-12 * scale, (d_p - pi_p) / room, np.inf)
+    per = np.maximum(np.maximum(d1, 0.0), np.maximum(d2, 0.0))
+    return np.where(per >= 1.0, np.nan, per)
+
+
+def _thresholds(game, run: dict, notes: list) -> list:
+    """Critical discount factors of the punishment schemes in the line-up, from the levels the seats
+    actually play.
+
+    Each row is the threshold of one scheme (grim trigger, T-period reversion, stick and carrot) with
+    the collusive profile the line-up plays on its path and the punishment profile of the seats that
+    play it, as if every firm punished with it (the closed forms assume a common scheme). Deviations
+    are each firm's best one-shot deviation from the profile played. A scheme whose punishment is not
+    a static Nash equilibrium and does not police deviations from it (grim trigger and T-period
+    reversion to another level), or whose expectations let a profitable deviation pass unseen, is not
+    an equilibrium at any discount factor (``nan``, with a note). A line-up without a steady collusive
+    path has no rows (a note says why)."""
+    from .thresholds import finite_threshold, grim_threshold
+
+    lu = game.lineup
+    d_eff = run["delta"] * (run["continuation"] if run["horizon"] == "random" else 1.0)
+    groups: dict = {}
+    for i, s in enumerate(lu.strategies):
+        sch = _scheme_of(s)
+        if sch is None:
+            continue
+        s0 = int(lu.firms[i, S.INITIAL])
+        sp = int(lu.states[i, s0, S.BAD])
+        e = int(lu.states[i, s0, S.EXPECT])
+        expect = lu.levels[i, e if e >= 0 else lu.states[i, s0, S.ACTION]]
+        punish = lu.levels[i, lu.states[i, sp, S.ACTION]]
+        key = (*sch, expect.tobytes(), punish.tobytes())
+        groups.setdefault(key, []).append(i)
+    if not groups:
+        return []
+    a_c, why = _on_path_profile(game)
+    if a_c is None:
+        notes.append(f"no critical discount factor: {why}")
+        return []
+    c, d, _ = _payoffs(game, a_c)
+    out = []
+    for key, seats in sorted(groups.items(), key=lambda kv: (kv[0][0], kv[0][1] or 0, kv[1][0])):
+        kind, T = key[0], key[1]
+        j0 = seats[0]
+        s0 = int(lu.firms[j0, S.INITIAL])
+        sp = int(lu.states[j0, s0, S.BAD])
+        p = np.array(lu.levels[j0, lu.states[j0, sp, S.ACTION]], dtype=float)
+        pi_p, d_p, _ = _payoffs(game, p)
+        if kind == "grim":
+            name, src = "grim trigger", "Friedman (1971)"
+            per = grim_threshold(c, d, pi_p)
+        elif kind == "finite":
+            name, src = f"Nash reversion, T={T}", "T-period Nash reversion"
+            per = finite_threshold(c, d, pi_p, T)
+        else:
+            name, src = "stick and carrot", "Abreu (1986)"
+            per = _two_phase(c, d, pi_p, d_p)
+        per = np.array(np.atleast_1d(per), dtype=float)
+        loose = _unpunished_gains(game, j0, s0, a_c, name, "collusive profile", notes)
+        loose |= _unpunished_gains(game, j0, sp, p, name, "punishment", notes)
+        per[loose] = np.nan
+        market = float(np.nan) if np.any(np.isnan(per)) else float(per.max())
+        out.append({"scheme": name, "source": src, "seats": [i + 1 for i in seats], "per_firm": per.tolist(),
+                    "market": market, "effective_delta": d_eff, "benchmark": "infinite horizon",
+                    "collusive_profile": a_c.tolist(), "punishment_profile": p.tolist(),
+                    "clears": bool(np.isfinite(market) and d_eff >= market)})
+    if run["horizon"] == "fixed":
+        notes.append(f"the thresholds are the infinite-horizon benchmark: with a fixed horizon of {run['periods']} "
+                     "periods and a unique static Nash equilibrium, backward induction leaves Nash play in every "
+                     "period as the only subgame-perfect outcome, whatever the discount factor")
+    return out
+
+
+def _punishment_length(game, tp: dict | None) -> dict | None:
+    """Length of every punishment phase where the line-up fixes it: T for T-period Nash reversion played
+    by every firm with conduct seen exactly, and for the trigger-price model with wars of T periods."""
+    if tp is not None:
+        if tp["war_length"] is None:
+            return None
+        return {"value": float(tp["war_length"]), "source": "Green and Porter (1984): wars of T periods"}
+    strats = game.lineup.strategies
+    if not strats or not all(isinstance(s, FinitePunishment) for s in strats):
+        return None
+    lengths = {int(s.length) for s in strats}
+    if len(lengths) != 1 or game.monitoring["perception_error"] > 0:
+        return None
+    T = lengths.pop()
+    return {"value": float(T), "source": f"T-period Nash reversion: T = {T}"}
 
 
 def analytic_baseline(game, run: dict) -> dict:
@@ -229,12 +387,15 @@ def analytic_baseline(game, run: dict) -> dict:
     Returns
     -------
     dict with keys ``thresholds`` (list), ``trigger_price`` (dict or None), ``first_breakdown`` (dict or
-    None), ``collusive_share`` (float or None, expected share of collusive periods over the horizon)
-    and ``collusive_by_period`` (ndarray of shape (periods,) or None, for the figure).
+    None), ``punishment_length`` (dict or None), ``collusive_share`` (float or None, expected share of
+    collusive periods over the horizon), ``collusive_by_period`` (ndarray of shape (periods,) or None,
+    for the figure) and ``notes`` (list of str: why a threshold is missing or what it means here).
     """
-    out = {"thresholds": _thresholds(game, run)}
+    notes: list = []
+    out = {"thresholds": _thresholds(game, run, notes)}
     tp = _trigger_price(game, run)
     fb = _first_breakdown(game, run)
+    out["punishment_length"] = _punishment_length(game, tp)
     curve = None
     share = None
     if tp is not None:
@@ -247,4 +408,5 @@ def analytic_baseline(game, run: dict) -> dict:
     out["first_breakdown"] = fb
     out["collusive_share"] = share
     out["collusive_by_period"] = curve
+    out["notes"] = notes
     return out

@@ -29,7 +29,8 @@ from strategies.registry import lineup_from_tables
 from . import _kernel as K
 from ._params import Integer, Options, Real
 from ._rng import stream_states
-from ._stagecore import MarketArrays, effective_tick, market_arrays, market_owner
+from ._stagecore import MarketArrays, market_arrays, market_owner
+from ._tables import refuse_unknown
 from .errors import InputError, SolverError
 from .market import MarketSpec
 from .monitoring import Monitoring, monitoring_from_dict
@@ -56,28 +57,20 @@ def stage_levels(market, agreement: str = "joint", actions=None) -> tuple:
     """Solve the stage game once and return ``(stage, levels)`` for compiling line-ups.
 
     ``levels`` (:class:`strategies.base.StageLevels`) holds the collusive, Nash and deviation profiles
-    and computes the stick-and-carrot punishment profile on first use. For homogeneous Bertrand with
-    continuous prices the deviation undercuts the rival price by the effective tick of
-    :mod:`sim._stagecore` (the analytic deviation profit is a supremum that no price attains).
+    of the stage game and computes the stick-and-carrot punishment profile on first use. Every profile
+    the stage game reports is attainable and evaluates to the profits reported with it (homogeneous
+    Bertrand with continuous prices undercuts by the market's price step, see :mod:`sim.market`), so
+    the line-up plays them as they are and its payoffs match the analytic ones.
     """
     from .equilibrium import stage_game
 
     ms: MarketSpec = market if isinstance(market, MarketSpec) else market.spec()
     st = stage_game(ms, agreement, actions)
     owner = market_owner(ms)
-    dev = np.array(st.deviation_actions, dtype=float)
-    if ms.homogeneous_bertrand and ms.tick == 0:
-        eps = effective_tick(ms)
-        coll = np.asarray(st.collusive.actions, dtype=float)
-        for k in range(dev.shape[0]):
-            rivals = coll[owner != owner[k]]
-            r = rivals.min() if rivals.size else np.inf
-            if dev[k] >= r and r > ms.cost[k]:
-                dev[k] = r - eps
     profiles = {
         "collusive": np.asarray(st.collusive.actions, dtype=float).copy(),
         "nash": np.asarray(st.nash.actions, dtype=float).copy(),
-        "deviation": dev,
+        "deviation": np.array(st.deviation_actions, dtype=float),
     }
     n = ms.n_firms
 
@@ -316,6 +309,10 @@ def run_game(game: Game, periods: int, replications: int, delta: float, seed: in
         hist = np.zeros((chunks, K.N_HIST, periods + 1), dtype=np.int64)
         by_period = np.zeros((chunks, periods), dtype=np.int64)
         status = np.zeros(chunks, dtype=np.int64)
+        # every replication's generator state at once: deriving them batch by batch would hash the
+        # stream family from its start each time (cost quadratic in the number of batches); 32 bytes per
+        # replication, less than the per-replication results
+        rng_all = stream_states(seed, key, 0, replications)
         bar = _progress_bar(replications, progress, "simulate")
         try:
             for lo in range(0, replications, batch):
@@ -323,7 +320,7 @@ def run_game(game: Game, periods: int, replications: int, delta: float, seed: in
                 m = hi - lo
                 c = min(chunks, m)
                 starts = np.linspace(0, m, c + 1).round().astype(np.int64)
-                rng = stream_states(seed, key, lo, hi)
+                rng = rng_all[lo:hi]
                 K.simulate_chunks(
                     starts, rng, lo,
                     mk.code, mk.scalars, mk.vector, mk.cost, mk.capacity, mk.owner, n, mk.quantity_setting,
@@ -463,15 +460,6 @@ RUN_DEFAULTS = {"periods": 1000, "replications": 1000, "horizon": "fixed", "cont
                 "seed": 0, "paths": 0}
 
 
-def _only(table, name: str, allowed) -> dict:
-    if not isinstance(table, dict):
-        raise InputError(name, f"must be a table, got {table!r}")
-    for k in table:
-        if k not in allowed:
-            raise InputError(f"{name}.{k}", f"unknown key; allowed: {', '.join(allowed)}")
-    return table
-
-
 def simulation_from_dict(doc: dict, check_tables: bool = True) -> dict:
     """Read the tables of a ``kind = "simulate"`` experiment (see the schema in the README).
 
@@ -488,16 +476,16 @@ def simulation_from_dict(doc: dict, check_tables: bool = True) -> dict:
         for k in doc:
             if k not in SIMULATE_TABLES:
                 raise InputError(k, f"unknown table for a simulation; allowed: {', '.join(SIMULATE_TABLES)}")
-    exp = _only(doc.get("experiment", {}), "experiment", _EXPERIMENT_KEYS)
+    exp = refuse_unknown(doc.get("experiment", {}), "experiment", _EXPERIMENT_KEYS)
     if "kind" in exp and exp["kind"] != "simulate":
         raise InputError("experiment.kind", f"this command runs kind = 'simulate' experiments, got {exp['kind']!r}")
     if "market" not in doc:
         raise InputError("market", "missing: the [market] table describes the market")
     market = market_from_dict(doc["market"])
-    coll = _only(doc.get("collusion", {}), "collusion", _COLLUSION_KEYS)
+    coll = refuse_unknown(doc.get("collusion", {}), "collusion", _COLLUSION_KEYS)
     mon = monitoring_from_dict(doc.get("monitoring", {}))
     run = dict(RUN_DEFAULTS)
-    run.update(_only(doc.get("run", {}), "run", tuple(RUN_DEFAULTS)))
+    run.update(refuse_unknown(doc.get("run", {}), "run", tuple(RUN_DEFAULTS)))
     if "strategies" not in doc:
         raise InputError("strategies", "missing: give the line-up as [[strategies]] entries")
     strategies = doc["strategies"]

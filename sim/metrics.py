@@ -4,12 +4,22 @@ Definitions
 -----------
 A firm *colludes* in a period when its automaton is in a collusive state and it neither cheated nor
 made an implementation error; a period is *collusive* when every firm colludes. A *collusive spell*
-is a maximal run of collusive periods, a *price war* a maximal run of other periods. The *time to
-first breakdown* is the number (counting from 1) of the first period that is not collusive.
+is a maximal run of collusive periods, a *price war* a maximal run of other periods: it counts the
+period of the deviation that set it off (cheating, a tremble), so a war answering one deviation with
+a T-period punishment lasts T + 1 periods. A *punishment phase* is a maximal run of periods in which
+some firm's automaton is in a non-collusive state (the deviation period itself is not part of it);
+under T-period Nash reversion every punishment phase lasts exactly T periods. The *time to first
+breakdown* is the number (counting from 1) of the first period that is not collusive.
 
 Estimators and intervals (``confidence`` level, 95 % by default; normal approximation)
 --------------------------------------------------------------------------------------
+The package's one convention (the learning sessions of :mod:`sim.learning` use these functions too):
+``z`` is the standard normal quantile of the level (:func:`normal_quantile`).
+
 * Means over replications (counts per replication, discounted profits): ``mean +- z s / sqrt(n)``.
+* Shares of replications (or sessions) with a property: the Wilson score interval (Wilson, 1927,
+  "Probable inference, the law of succession, and statistical inference", JASA 22), which keeps its
+  width at shares of 0 and 1 where ``p +- z sqrt(p (1 - p) / n)`` collapses to a point.
 * Shares and per-period averages (share of collusive periods, war frequency, mean profit, price,
   consumer surplus): the ratio ``sum_r x_r / sum_r y_r`` of totals over replications (the mean of
   per-replication averages when every replication has the same length), with the linearised
@@ -22,7 +32,9 @@ Estimators and intervals (``confidence`` level, 95 % by default; normal approxim
   Greenwood's pointwise variance, and the mean as the area under the curve (restricted to the longest
   observation; a lower bound when the longest observation is cut off) with its Greenwood-type
   standard error (Klein and Moeschberger, 2003, "Survival Analysis", section 4.5). For the time to
-  first breakdown each replication gives one independent observation. Spells and wars are pooled
+  first breakdown each replication gives one independent observation. When no observation ended
+  (every one was cut off), the mean is only known to be at least the restricted area and no
+  interval is given. Spells and wars are pooled
   across replications and treated as independent; this holds exactly when the line-up's play
   regenerates at the start of each spell, as with every shipped strategy under i.i.d. noise.
 * Profit gain ``(profit - Nash) / (collusive - Nash)`` and overcharge ``price / Nash price - 1`` are
@@ -39,12 +51,16 @@ from scipy import special
 
 from . import _kernel as K
 
-__all__ = ["Estimate", "SimulationResult", "Survival", "kaplan_meier", "mean_estimate", "ratio_estimate",
-           "summarize"]
+__all__ = ["Estimate", "SimulationResult", "Survival", "kaplan_meier", "mean_estimate", "normal_quantile",
+           "ratio_estimate", "summarize", "wilson_estimate"]
 
 
-def _z(confidence: float) -> float:
+def normal_quantile(confidence: float) -> float:
+    """``z`` with ``P(|Z| <= z) = confidence`` for a standard normal ``Z`` (1.95996... at 0.95)."""
     return float(math.sqrt(2.0) * special.erfinv(confidence))
+
+
+_z = normal_quantile
 
 
 @dataclass(frozen=True)
@@ -58,7 +74,7 @@ class Estimate:
     n : int
         Number of independent observations behind it (replications, or spells).
     method : str
-        ``"mean"``, ``"ratio"``, ``"kaplan-meier"`` or ``"exact"``.
+        ``"mean"``, ``"ratio"``, ``"wilson"``, ``"kaplan-meier"`` or ``"exact"``.
     note : str
         A remark for the reader (e.g. ``"at least"`` for a restricted mean cut off by the horizon).
     """
@@ -98,6 +114,22 @@ def mean_estimate(x, confidence: float = 0.95) -> Estimate:
     se = float(x.std(ddof=1) / math.sqrt(n)) if n > 1 else math.nan
     lo, hi = _interval(m, se, _z(confidence))
     return Estimate(m, se, lo, hi, n, "mean")
+
+
+def wilson_estimate(k: int, n: int, confidence: float = 0.95) -> Estimate:
+    """Share ``k / n`` with the Wilson score interval (Wilson, 1927); ``se`` is the binomial
+    ``sqrt(p (1 - p) / n)``. The bounds are exactly 0 and 1 at ``k = 0`` and ``k = n``."""
+    k, n = int(k), int(n)
+    if n == 0:
+        return Estimate(math.nan, math.nan, math.nan, math.nan, 0, "wilson")
+    z = normal_quantile(confidence)
+    p = k / n
+    den = 1.0 + z * z / n
+    mid = (p + z * z / (2 * n)) / den
+    h = z * math.sqrt(p * (1.0 - p) / n + z * z / (4.0 * n * n)) / den
+    low = 0.0 if k == 0 else max(0.0, mid - h)  # the exact bounds at the ends, free of round-off
+    high = 1.0 if k == n else min(1.0, mid + h)
+    return Estimate(p, math.sqrt(p * (1.0 - p) / n), low, high, n, "wilson")
 
 
 def ratio_estimate(x, y, confidence: float = 0.95) -> Estimate:
@@ -201,8 +233,14 @@ def kaplan_meier(ended, censored, confidence: float = 0.95, restrict: int | None
     # Greenwood-type variance: sum_l A_l^2 d_l / (n_l (n_l - d_l)), A_l = area under S from l on
     A = np.cumsum(S[::-1])[::-1] - S[-1] if m > 0 else np.zeros(0)  # sum_{j=l}^{m-1} S(j)
     var = float(np.sum(A * A * gw_terms))
-    se = math.sqrt(var)
-    note = "at least (the longest observation was cut off by the horizon)" if S[-1] > 0 else ""
+    if int(d.sum()) == 0:
+        # nothing ended: the area is a lower bound with no sampling variation to speak of, and a
+        # zero-width interval would read as certainty
+        se = math.nan
+        note = "at least (no observation ended within the horizon)"
+    else:
+        se = math.sqrt(var)
+        note = "at least (the longest observation was cut off by the horizon)" if S[-1] > 0 else ""
     lo_m, hi_m = _interval(mean, se, z)
     est = Estimate(mean, se, lo_m, hi_m, total, "kaplan-meier", note)
     return Survival(np.arange(1, m + 1), S, se_S, lo, hi, at_risk.astype(np.int64), d, c, est)
@@ -237,6 +275,9 @@ class SimulationResult:
         Per-firm metrics (mean and discounted profit, profit gain), one entry per firm.
     spells, wars, breakdown : Survival
         Survival curves of collusive spells, price wars and the time to first breakdown.
+    punishments : Survival
+        Survival curve of punishment phases (see the module notes); its mean is
+        :attr:`punishment_length`.
     collusive_by_period : ndarray of shape (n_periods,)
         Share of the replications still running in period t in which every firm colluded.
     reference : dict
@@ -262,10 +303,18 @@ class SimulationResult:
     reference: dict
     baseline: dict = field(default_factory=dict)
     paths: dict | None = None
+    punishments: Survival | None = None
 
     @property
     def n_reps(self) -> int:
         return int(self.periods.shape[0])
+
+    @property
+    def punishment_length(self) -> Estimate:
+        """Mean length of a punishment phase (Kaplan-Meier, as the other lengths)."""
+        if self.punishments is None:
+            return Estimate(math.nan, math.nan, math.nan, math.nan, 0, "kaplan-meier", "undefined")
+        return self.punishments.mean
 
     def to_dict(self, per_replication: bool = False) -> dict:
         """Plain data (JSON-ready through :func:`sim._jsonutil.dumps`)."""
@@ -276,7 +325,8 @@ class SimulationResult:
             "metrics": {k: v.to_dict() for k, v in self.metrics.items()},
             "firms": {k: [e.to_dict() for e in v] for k, v in self.firm_metrics.items()},
             "survival": {"spells": self.spells.to_dict(), "wars": self.wars.to_dict(),
-                         "first_breakdown": self.breakdown.to_dict()},
+                         "first_breakdown": self.breakdown.to_dict(),
+                         **({"punishments": self.punishments.to_dict()} if self.punishments is not None else {})},
             "collusive_by_period": _thin(self.collusive_by_period),
             "reference": self.reference,
             "baseline": _baseline_dict(self.baseline),
@@ -317,9 +367,10 @@ def summarize(raw, game, run: dict, confidence: float = 0.95, baseline: bool = T
     n = game.n_firms
     ints = raw.ints
     periods = ints[:, K.R_PERIODS].astype(float)
-    st = game.stage
-    nash_a = np.asarray(st.nash.actions, dtype=float)
-    coll_a = np.asarray(st.collusive.actions, dtype=float)
+    # the profiles the line-up plays (for homogeneous Bertrand with continuous prices they undercut
+    # by the effective tick where the analytic outcome is a limit, see sim.engine.stage_levels)
+    nash_a = np.asarray(game.levels.profiles["nash"], dtype=float)
+    coll_a = np.asarray(game.levels.profiles["collusive"], dtype=float)
     _, _, pi_n, p_n, cs_n = evaluate_py(game.arrays, nash_a)
     _, _, pi_c, p_c, cs_c = evaluate_py(game.arrays, coll_a)
     metrics = {}
@@ -335,10 +386,11 @@ def summarize(raw, game, run: dict, confidence: float = 0.95, baseline: bool = T
     ended = np.bincount(fb[fb > 0], minlength=run["periods"] + 1)[: run["periods"] + 1]
     cens = np.bincount(ints[fb == 0, K.R_PERIODS], minlength=run["periods"] + 1)[: run["periods"] + 1]
     breakdown = kaplan_meier(ended, cens, confidence, restrict=run["periods"])
+    punishments = kaplan_meier(raw.hist[K.H_PUNISH_ENDED], _cut_off(raw.hist[K.H_PUNISH_CENSORED]), confidence)
     metrics["spell_length"] = spells.mean
     metrics["war_length"] = wars.mean
     metrics["first_breakdown"] = breakdown.mean
-    metrics["broken_down"] = mean_estimate((fb > 0).astype(float), confidence)
+    metrics["broken_down"] = wilson_estimate(int((fb > 0).sum()), fb.shape[0], confidence)
     metrics["price"] = ratio_estimate(raw.flts[:, K.F_PRICE_SUM], periods, confidence)
     metrics["overcharge"] = metrics["price"].affine(-1.0, 1.0 / p_n) if p_n > 0 else _nan_est("price")
     metrics["consumer_surplus"] = ratio_estimate(raw.flts[:, K.F_CS_SUM], periods, confidence)
@@ -371,7 +423,8 @@ def summarize(raw, game, run: dict, confidence: float = 0.95, baseline: bool = T
         mean_profit = raw.profit_sum / np.maximum(periods, 1)[:, None]
     settings = _settings(game, run, confidence)
     res = SimulationResult(settings, mean_profit, raw.disc.copy(), ints[:, K.R_PERIODS].copy(), fb.copy(), counts,
-                           metrics, firm, spells, wars, breakdown, by_t, reference, {}, _paths(raw, game))
+                           metrics, firm, spells, wars, breakdown, by_t, reference, {}, _paths(raw, game),
+                           punishments)
     if baseline:
         from .baseline import analytic_baseline
 

@@ -15,7 +15,11 @@ from sim.errors import InputError
 from . import automata
 from .base import Automaton
 
-__all__ = ["LAZY", "STRATEGIES", "lineup_from_tables", "register", "strategy_class", "strategy_from_dict"]
+__all__ = ["LAZY", "MAX_SEATS", "STRATEGIES", "check_seats", "lineup_from_tables", "register", "strategy_class",
+           "strategy_from_dict"]
+
+#: largest ``seats`` of one line-up entry (the market's number of firms is checked on the whole line-up)
+MAX_SEATS = 100_000
 
 #: registry name -> strategy class
 STRATEGIES: dict[str, type] = {}
@@ -77,20 +81,29 @@ def strategy_from_dict(table: dict, prefix: str = "strategy") -> Automaton:
     return strat
 
 
+def check_seats(key: str, seats) -> int:
+    """The ``seats`` of a line-up entry: an integer in ``[1, MAX_SEATS]``. Every reader of line-ups
+    (simulations, learning sessions) uses this, and then compares the total with the market's firms."""
+    if isinstance(seats, bool) or not isinstance(seats, numbers.Integral) or not 1 <= seats <= MAX_SEATS:
+        raise InputError(key, f"must be an integer in [1, {MAX_SEATS}], got {seats!r}")
+    return int(seats)
+
+
 def lineup_from_tables(tables, n_firms: int | None = None, prefix: str = "strategies") -> list:
     """Expand ``[[strategies]]`` entries (each with an optional ``seats``, default 1) into one strategy
     per firm, in seat order. With ``n_firms`` the total number of seats must match it."""
     if not isinstance(tables, Sequence) or isinstance(tables, str | dict) or not tables:
         raise InputError(prefix, "must be a non-empty list of [[strategies]] entries")
     out = []
+    total = 0
     for k, t in enumerate(tables):
         key = f"{prefix}[{k + 1}]"
         strat = strategy_from_dict(t, key)
-        seats = t.get("seats", 1)
-        if isinstance(seats, bool) or not isinstance(seats, numbers.Integral) or not 1 <= seats <= 100_000:
-            raise InputError(f"{key}.seats", f"must be an integer in [1, 100000], got {seats!r}")
-        out.extend(strat.clone() for _ in range(int(seats)))
-    if n_firms is not None and len(out) != n_firms:
-        raise InputError(prefix, f"the line-up has {len(out)} seat{'s' if len(out) != 1 else ''} but the market "
+        seats = check_seats(f"{key}.seats", t.get("seats", 1))
+        total += seats
+        if n_firms is None or total <= n_firms:  # no clones beyond the market's firms (refused below)
+            out.extend(strat.clone() for _ in range(seats))
+    if n_firms is not None and total != n_firms:
+        raise InputError(prefix, f"the line-up has {total} seat{'s' if total != 1 else ''} but the market "
                                  f"has {n_firms} firms; give one strategy per firm (use seats to repeat one)")
     return out

@@ -109,6 +109,9 @@ states.punish = { action = "nash", next = "collude" }''')
     (SMALL, ["--strategy", "grim_trigger"], "--strategy[1].strategy"),
     (SMALL, ["--strategy", "finite_punishment:length=0"], "--strategy[1].length"),
     (SMALL, ["--periods", "ten"], "--periods"),
+    (SMALL, ["--noise", "normal", "--sigma", "2"], "--sigma"),
+    (SMALL.replace('noise = "lognormal"', 'noise = "normal"').replace("sigma = 0.1", "sigma = 0.5"), [],
+     "monitoring.sigma"),
 ])
 def test_bad_input_one_line_exit_2(tmp_path, capsys, text, args, key):
     p = tmp_path / "bad.toml"
@@ -127,3 +130,32 @@ def test_no_traceback_from_the_installed_command(tmp_path):
     assert out.returncode == 2 and out.stdout == ""
     assert out.stderr.strip() == ("supergame simulate: error: strategies: the line-up has 4 seats but the market "
                                   "has 3 firms; give one strategy per firm (use seats to repeat one)")
+
+
+def test_thresholds_at_the_collusive_level_played(capsys):
+    """Three Cournot firms (P = 100 - Q, cost 10) colluding at q = 20: grim trigger's threshold is
+    (625 - 600) / (625 - 506.25) = 4/19 (Friedman, 1971, profits by hand), which delta = 0.5 clears."""
+    assert main(["simulate", "--cost", "10", "--intercept", "100", "--firms", "3", "--strategy",
+                 "grim_trigger:collude=20", "--delta", "0.5", "--periods", "20", "--replications", "5",
+                 "--json"]) == 0
+    (row,) = json.loads(capsys.readouterr().out)["baseline"]["thresholds"]
+    assert row["market"] == pytest.approx(4 / 19, rel=1e-12) and row["clears"] is True
+
+
+def test_labels_say_what_wars_and_thresholds_mean(small, capsys):
+    """Price wars count their deviation period, punishment phases are reported apart, and with a fixed
+    horizon the threshold comparison is labelled the infinite-horizon benchmark."""
+    assert main(["simulate", "--cost", "10", "--intercept", "100", "--firms", "3", "--strategy",
+                 "finite_punishment:length=3", "--implementation-error", "0.01", "--periods", "300",
+                 "--replications", "20"]) == 0
+    out = capsys.readouterr().out
+    assert "mean length of a price war (periods, its deviation period included)" in out
+    row = next(line for line in out.splitlines() if line.startswith("mean length of a punishment phase"))
+    values = row[len("mean length of a punishment phase (periods)"):].split()
+    assert values[0] == "3.0000" and "3.0000" in values[1:4]  # simulated, then the analytic T
+    assert row.endswith("T-period Nash reversion: T = 3")
+    assert "clears (infinite horizon)" in out and "infinite-horizon benchmark" in out
+    assert main(["simulate", str(small), "--horizon", "random", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["survival"]["punishments"]["mean"]["value"] == pytest.approx(2.0)
+    assert not any("fixed horizon" in x for x in doc["baseline"]["notes"])

@@ -11,6 +11,7 @@ from scipy import stats
 
 import strategies as S
 from sim import DifferentiatedDemand, InputError, LinearDemand, LogitDemand, Market
+from sim._kernel import M_THETA
 from sim._reference import reference_run
 from sim.baseline import first_breakdown_distribution, trigger_price_chain
 from sim.engine import RawRun, prepare_game, run_game, simulate
@@ -293,3 +294,96 @@ def test_paths_are_recorded_for_the_first_replications_only():
     # the recorded collusion flags add up to the counts of the same replications
     assert np.array_equal(P["collusive"].sum(axis=1), res.counts["collusive_periods"][:2])
     np.testing.assert_allclose(P["profits"].sum(axis=1), res.profits[:2] * 25, rtol=1e-12)
+
+
+# ---- punishment phases and price wars ------------------------------------------------------------
+
+
+def test_finite_reversion_punishment_phases_last_exactly_T():
+    """T-period Nash reversion (the scheme's definition): every punishment phase -- periods in which
+    some firm's automaton is not collusive -- lasts exactly T periods; a price war also counts the
+    period of the tremble that set it off, so wars last at least T + 1 (more when a tremble hits the
+    first period back). The baseline predicts T."""
+    T = 3
+    res = simulate(TRIOPOLY, [S.FinitePunishment(length=T)] * 3, Monitoring(implementation_error=0.01),
+                   periods=2000, replications=100, delta=0.95, seed=1)
+    pun = res.punishments
+    assert pun.ended.sum() > 500
+    assert set(np.flatnonzero(pun.ended) + 1) == {T}
+    assert res.punishment_length.value == pytest.approx(T, abs=1e-12)
+    assert res.baseline["punishment_length"]["value"] == T
+    wars = res.wars
+    assert np.flatnonzero(wars.ended).min() + 1 == T + 1
+    assert res.metrics["war_length"].value > T + 1
+
+
+def test_trigger_price_wars_are_punishment_phases():
+    """Green and Porter (1984): a low price triggers T periods of Nash while every firm colluded in the
+    low-price period itself, so price wars and punishment phases both last T."""
+    mon = Monitoring(signal="price", noise="lognormal", sigma=0.1)
+    res = simulate(TRIOPOLY, [S.TriggerPrice(trigger=50.0, length=2)] * 3, mon, periods=300, replications=100,
+                   delta=0.9, seed=4)
+    assert res.punishment_length.value == pytest.approx(2.0, abs=1e-12)
+    assert res.metrics["war_length"].value == pytest.approx(2.0, abs=1e-12)
+    assert res.baseline["punishment_length"]["value"] == 2.0
+
+
+# ---- homogeneous Bertrand with asymmetric costs ------------------------------------------------
+
+
+def test_homogeneous_bertrand_nash_is_played_at_its_analytic_payoff():
+    """Bertrand with costs c1 = 1 < c2 = 2 and demand 10 - p: the low-cost firm serves the market at
+    (just below) the rival's cost, profit (c2 - c1) D(c2) = 8, the rival 0 (Tirole, 1988, "The Theory of
+    Industrial Organization", section 5.1, from memory). The profile the engine plays for 'nash' must
+    earn that to the order of the effective tick (1e-9 of the choke price), not the tie split 4."""
+    from sim import stage_game
+    from sim._stagecore import effective_tick
+
+    m = Market(LinearDemand(10.0, 1.0), cost=[1.0, 2.0], model="bertrand")
+    tol = 10 * effective_tick(m.spec()) * 10.0  # a few ticks times the demand
+    res = simulate(m, [S.AlwaysCompete(), S.AlwaysCompete()], periods=10, replications=2, seed=1)
+    np.testing.assert_allclose(res.profits[0], [8.0, 0.0], atol=tol)
+    np.testing.assert_allclose(res.reference["nash_profit"], [8.0, 0.0], atol=tol)
+    np.testing.assert_allclose(stage_game(m).nash.firm_profits, [8.0, 0.0], atol=tol)
+    # grim trigger earns the collusive profits, Nash play none of the gain over Nash
+    assert res.metrics["profit_gain"].value == pytest.approx(0.0, abs=1e-7)
+    grim = simulate(m, [S.GrimTrigger(), S.GrimTrigger()], periods=10, replications=2, seed=1)
+    assert grim.metrics["profit_gain"].value == pytest.approx(1.0, abs=1e-12)
+
+
+# ---- seeds ----------------------------------------------------------------------------------------
+
+
+def test_generator_states_are_derived_once_per_run(monkeypatch):
+    """With small batches (a progress bar) the states of all replications are derived in one call, not
+    once per batch from the start of the stream family (which costs 4 * stop words each time); the
+    numbers are those of a single batch."""
+    import sim.engine as E
+
+    calls = []
+    real = E.stream_states
+
+    def counting(seed, key, start, stop):
+        calls.append((start, stop))
+        return real(seed, key, start, stop)
+
+    game = prepare_game(TRIOPOLY, [S.GrimTrigger()] * 3, Monitoring(implementation_error=0.05))
+    kw = dict(periods=20, replications=60, delta=0.9, seed=3, paths=1)
+    whole = run_game(game, **kw)
+    monkeypatch.setattr(E, "stream_states", counting)
+    batched = run_game(game, batch=7, **kw)
+    _same(whole, batched)
+    assert sum(stop for _, stop in calls) <= kw["replications"]
+
+
+def test_normal_shock_never_makes_prices_negative():
+    """sigma = 1/3: about 0.135 % of the draws of 1 + sigma Z fall below zero (Phi(-3)); the kernel
+    floors those at zero (no demand, price zero), as does its plain-Python twin."""
+    mon = Monitoring(noise="normal", sigma=1 / 3, implementation_error=0.01)
+    game = prepare_game(TRIOPOLY, [S.GrimTrigger()] * 3, mon)
+    kw = dict(periods=200, replications=60, delta=0.9, seed=8, paths=60)
+    raw = run_game(game, **kw)
+    shock = raw.path_market[:, :, M_THETA]
+    assert shock.min() == 0.0 and (shock == 0.0).sum() >= 3
+    assert raw.path_market[:, :, 0].min() >= 0.0
+    _same(raw, reference_run(game, **kw))

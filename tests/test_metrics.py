@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from sim.metrics import kaplan_meier, mean_estimate, ratio_estimate
+from sim.metrics import kaplan_meier, mean_estimate, normal_quantile, ratio_estimate, wilson_estimate
 
 # Freireich et al. (1963) 6-MP arm, remission times in weeks ("+": cut off), the worked example of
 # Klein and Moeschberger (2003), "Survival Analysis", section 4.2 (Table 4.1A).
@@ -100,3 +100,45 @@ def test_ratio_interval_coverage(rng):
         e = ratio_estimate(x, y)
         hits += e.low <= 0.3 <= e.high
     assert abs(hits / 2000 - 0.95) < 3 * math.sqrt(0.95 * 0.05 / 2000)
+
+
+def test_no_interval_when_nothing_ended():
+    """Every observation cut off by the horizon (a price war that never ends under grim trigger): the
+    area under the curve is only a lower bound, so no interval is given (a zero-width one would read as
+    certainty)."""
+    ended = np.zeros(50, dtype=np.int64)
+    cens = np.zeros(50, dtype=np.int64)
+    cens[48] = 7
+    sv = kaplan_meier(ended, cens)
+    assert sv.mean.value == pytest.approx(48.0)
+    assert math.isnan(sv.mean.se) and math.isnan(sv.mean.low) and math.isnan(sv.mean.high)
+    assert sv.mean.note.startswith("at least")
+
+
+def test_no_interval_for_a_war_that_never_ends():
+    """Grim trigger after one cheat in period 0: one war of 50 periods per replication, all cut off by the
+    horizon (so known to outlive 49)."""
+    import strategies as S
+    from sim import LinearDemand, Market
+    from sim.engine import simulate
+
+    m = Market(LinearDemand(100.0, 1.0), cost=10.0, n_firms=3)
+    res = simulate(m, [S.Opportunist(), S.GrimTrigger(), S.GrimTrigger()], periods=50, replications=5, delta=0.9)
+    w = res.metrics["war_length"]
+    assert w.value == pytest.approx(49.0) and math.isnan(w.low) and w.note.startswith("at least")
+
+
+@pytest.mark.parametrize("k, n", [(0, 20), (3, 20), (20, 20), (57, 100)])
+@pytest.mark.parametrize("level", [0.9, 0.95])
+def test_wilson_interval_matches_scipy(k, n, level):
+    """Wilson (1927) score interval against scipy.stats.binomtest(...).proportion_ci(method="wilson")."""
+    e = wilson_estimate(k, n, level)
+    ci = stats.binomtest(k, n).proportion_ci(confidence_level=level, method="wilson")
+    assert e.value == k / n
+    assert (e.low, e.high) == pytest.approx((ci.low, ci.high), rel=1e-12, abs=1e-15)
+
+
+def test_normal_quantile():
+    """z of a two-sided level: scipy.stats.norm.ppf(0.975) = 1.959963984540054 at 95 %."""
+    assert normal_quantile(0.95) == pytest.approx(stats.norm.ppf(0.975), rel=1e-14)
+    assert normal_quantile(0.9) == pytest.approx(stats.norm.ppf(0.95), rel=1e-14)

@@ -206,7 +206,8 @@ _METRIC_ROWS = (
     ("war_share", "share of price-war periods"),
     ("wars_per_replication", "price wars per replication"),
     ("war_frequency", "price wars started per period"),
-    ("war_length", "mean length of a price war (periods)"),
+    ("war_length", "mean length of a price war (periods, its deviation period included)"),
+    ("punishment_length", "mean length of a punishment phase (periods)"),
     ("spell_length", "mean length of a collusive spell (periods)"),
     ("first_breakdown", "time to first breakdown (period)"),
     ("broken_down", "share of replications that broke down"),
@@ -233,6 +234,9 @@ def _analytic(res) -> dict:
             out["war_length"] = (float(tp["war_length"]), src + ": T")
         if fb is None:
             out["first_breakdown"] = (tp["expected_first_breakdown"], src + ": 1 + 1 / war probability")
+    pl = b.get("punishment_length")
+    if pl is not None:
+        out["punishment_length"] = (pl["value"], pl["source"])
     if fb is not None:
         rate = 1.0 - (1.0 - fb["tremble_rate"]) * (1.0 - fb["misreading_rate"])
         src = ("geometric" if fb["geometric"] else "shifted geometric") + f", rate {rate:.4g}"
@@ -281,7 +285,7 @@ def render(res, cfg) -> str:
     ana = _analytic(res)
     rows = []
     for key, label in _METRIC_ROWS:
-        e = res.metrics[key]
+        e = res.punishment_length if key == "punishment_length" else res.metrics[key]
         a = ana.get(key)
         note = " (at least)" if e.note.startswith("at least") else ""
         rows.append([label, fmt_num(e.value) + note, _ci(e), fmt_num(a[0]) if a else "-", a[1] if a else ""])
@@ -304,14 +308,20 @@ def render(res, cfg) -> str:
     th = res.baseline.get("thresholds") or []
     if th:
         lines.append("")
-        lines.append("Critical discount factors of the schemes in the line-up (analytic; '-': not sustainable "
-                     "below one)")
+        lines.append("Critical discount factors of the schemes in the line-up, at the levels they play (analytic, "
+                     "infinite-horizon benchmark; '-': not sustainable below one)")
         trows = [[t["scheme"], ", ".join(f"firm {k}" for k in t["seats"]), t["market"], t["effective_delta"],
                   "yes" if t["clears"] else "no", t["source"]] for t in th]
-        lines.append(table(["scheme", "played by", "threshold", "discount factor", "clears", "source"], trows,
+        clears = "clears (infinite horizon)" if run["horizon"] == "fixed" else "clears"
+        lines.append(table(["scheme", "played by", "threshold", "discount factor", clears, "source"], trows,
                            "llrrll"))
         if run["horizon"] == "random":
             lines.append("  with a random horizon the discount factor that matters is delta x continuation")
+    notes = res.baseline.get("notes") or []
+    if notes:
+        if not th:
+            lines.append("")
+        lines.extend(f"  note: {x}" for x in notes)
     if res.paths is not None:
         lines.extend(["", *_render_paths(res)])
     lines.append("")
