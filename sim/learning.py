@@ -61,6 +61,7 @@ _RUN_CONSTRAINTS = {
     "near": Real(0, 1),
     "workers": optional(Integer(1, 1024)),
     "cell": Integer(0, 2**31),
+    "confidence": Real(0, 1, closed="neither"),
 }
 
 
@@ -468,37 +469,31 @@ def _compile_automata(ms, seats, is_l, keys, agreement):
 # ------------------------------------------------------------------------------------------------
 
 
+# The intervals follow the package's one convention (sim.metrics): normal approximation at the chosen
+# level for means, the Wilson score interval for shares.
+
+
 def _mean_ci(x, level: float = 0.95) -> dict:
-    """Mean with a Student-t confidence interval (nan when fewer than two values)."""
+    """Mean with its normal-approximation confidence interval (nan when fewer than two values)."""
+    from .metrics import mean_estimate
+
     x = np.asarray(x, dtype=float)
     x = x[np.isfinite(x)]
     n = x.size
     if n == 0:
         return {"mean": math.nan, "se": math.nan, "low": math.nan, "high": math.nan, "n": 0}
-    mean = float(x.mean())
-    if n < 2:
-        return {"mean": mean, "se": math.nan, "low": math.nan, "high": math.nan, "n": 1}
-    from scipy import stats
-
-    se = float(x.std(ddof=1) / math.sqrt(n))
-    h = float(stats.t.ppf(0.5 + level / 2, n - 1)) * se
-    return {"mean": mean, "se": se, "low": mean - h, "high": mean + h, "n": int(n)}
+    e = mean_estimate(x, level)
+    return {"mean": e.value, "se": e.se, "low": e.low, "high": e.high, "n": int(n)}
 
 
 def _share_ci(k: int, n: int, level: float = 0.95) -> dict:
     """Share with the Wilson score interval (Wilson, 1927, JASA 22)."""
+    from .metrics import wilson_estimate
+
     if n == 0:
         return {"share": math.nan, "low": math.nan, "high": math.nan, "count": 0, "n": 0}
-    from scipy import stats
-
-    z = float(stats.norm.ppf(0.5 + level / 2))
-    p = k / n
-    den = 1 + z * z / n
-    mid = (p + z * z / (2 * n)) / den
-    h = z * math.sqrt(p * (1 - p) / n + z * z / (4 * n * n)) / den
-    low = 0.0 if k == 0 else max(0.0, mid - h)  # the exact bounds at the ends, free of round-off
-    high = 1.0 if k == n else min(1.0, mid + h)
-    return {"share": p, "low": low, "high": high, "count": int(k), "n": int(n)}
+    e = wilson_estimate(k, n, level)
+    return {"share": e.value, "low": e.low, "high": e.high, "count": int(k), "n": int(n)}
 
 
 def _quantiles(x) -> dict:
@@ -591,13 +586,20 @@ class LearningResult:
     def n_sessions(self) -> int:
         return int(self.converged.size)
 
+    @property
+    def confidence(self) -> float:
+        """Level of the confidence intervals of :meth:`summary`."""
+        return float(self.settings.get("confidence", 0.95))
+
     def summary(self) -> dict:
-        """Statistics across sessions, with 95 % confidence intervals (Student t for means, Wilson
-        for shares). Limit outcomes and impulse responses are over converged sessions; when none
-        converged, over all sessions (``over`` says which)."""
+        """Statistics across sessions, with confidence intervals at the run's ``confidence`` level
+        (95 % by default; normal approximation for means, Wilson for shares, as in
+        :mod:`sim.metrics`). Limit outcomes and impulse responses are over converged sessions; when
+        none converged, over all sessions (``over`` says which)."""
         if self._summary:
             return self._summary
         lu = self.lineup
+        lvl = self.confidence
         n = self.n_sessions
         nc = int(self.converged.sum())
         sel = self.converged if nc > 0 else np.ones(n, dtype=bool)
@@ -607,8 +609,8 @@ class LearningResult:
         pg = self.profit_gain[sel]
         h, _ = np.histogram(np.clip(pg, edges[0], edges[-1]), bins=edges)
         ir = {
-            "prices": _stack_ci(self.ir_prices[sel]),
-            "profits": _stack_ci(self.ir_profits[sel]),
+            "prices": _stack_ci(self.ir_prices[sel], lvl),
+            "profits": _stack_ci(self.ir_profits[sel], lvl),
             "no_deviation_prices": self.cf_prices[sel].mean(axis=0).tolist() if sel.any() else [],
             "no_deviation_profits": self.cf_profits[sel].mean(axis=0).tolist() if sel.any() else [],
         }
@@ -617,23 +619,24 @@ class LearningResult:
         after = self.ir_prices[sel][:, 2, :] if self.ir_prices.shape[1] > 2 else pre
         out = {
             "sessions": n,
+            "confidence": lvl,
             "over": "converged sessions" if nc > 0 else "all sessions (none converged)",
-            "converged": _share_ci(nc, n),
-            "periods": {**_mean_ci(self.periods[self.converged]), **_quantiles(self.periods[self.converged])},
-            "profit_gain": {**_mean_ci(pg), **_quantiles(pg)},
-            "firm_profit_gain": [_mean_ci(self.firm_profit_gain[sel][:, i]) for i in range(f)],
-            "limit_prices": [_mean_ci(self.limit_prices[sel][:, i]) for i in range(f)],
-            "limit_profits": [_mean_ci(self.limit_profits[sel][:, i]) for i in range(f)],
-            "near_collusive": _share_ci(int(self.near_collusive[sel].sum()), int(sel.sum())),
-            "near_nash": _share_ci(int(self.near_nash[sel].sum()), int(sel.sum())),
+            "converged": _share_ci(nc, n, lvl),
+            "periods": {**_mean_ci(self.periods[self.converged], lvl), **_quantiles(self.periods[self.converged])},
+            "profit_gain": {**_mean_ci(pg, lvl), **_quantiles(pg)},
+            "firm_profit_gain": [_mean_ci(self.firm_profit_gain[sel][:, i], lvl) for i in range(f)],
+            "limit_prices": [_mean_ci(self.limit_prices[sel][:, i], lvl) for i in range(f)],
+            "limit_profits": [_mean_ci(self.limit_profits[sel][:, i], lvl) for i in range(f)],
+            "near_collusive": _share_ci(int(self.near_collusive[sel].sum()), int(sel.sum()), lvl),
+            "near_nash": _share_ci(int(self.near_nash[sel].sum()), int(sel.sum()), lvl),
             "cycle_lengths": {str(int(k)): int(c) for k, c in zip(lengths, counts)},
             "profit_gain_histogram": {"edges": edges.tolist(), "counts": h.tolist()},
             "impulse_response": ir,
-            "rival_price_cut": _mean_ci((pre[:, rivals] - after[:, rivals]).mean(axis=1)) if rivals else {},
-            "deviation_gain": _mean_ci(self.deviation_gain[sel]),
-            "deviation_pays": _mean_ci(self.deviation_pays[sel]),
-            "returned": _mean_ci(self.returned[sel]),
-            "return_periods": _mean_ci(self.return_periods[sel]),
+            "rival_price_cut": _mean_ci((pre[:, rivals] - after[:, rivals]).mean(axis=1), lvl) if rivals else {},
+            "deviation_gain": _mean_ci(self.deviation_gain[sel], lvl),
+            "deviation_pays": _mean_ci(self.deviation_pays[sel], lvl),
+            "returned": _mean_ci(self.returned[sel], lvl),
+            "return_periods": _mean_ci(self.return_periods[sel], lvl),
             "benchmarks": {
                 "nash_prices": lu.nash_prices.tolist(), "collusive_prices": lu.collusive_prices.tolist(),
                 "nash_profits": lu.nash_profits.tolist(), "collusive_profits": lu.collusive_profits.tolist(),
@@ -644,10 +647,15 @@ class LearningResult:
         return self._summary
 
     def to_dict(self, sessions: bool = True) -> dict:
-        """Plain data: settings, grids, the summary and (optionally) every session's outcomes."""
+        """Plain data: settings, grids, the summary and (optionally) every session's outcomes.
+
+        Firms are numbered from 1 here as in every output (``settings.deviator`` is the deviating firm's
+        number); the Python arguments and attributes count seats from 0."""
         lu = self.lineup
+        settings = dict(self.settings)
+        settings["deviator"] = int(settings["deviator"]) + 1
         out = {
-            "settings": dict(self.settings),
+            "settings": settings,
             "learners": [c.to_dict() if c is not None else {"strategy": lu.names[i], "actions": lu.grids[i].tolist()}
                          for i, c in enumerate(lu.learners)],
             "seats": list(lu.names),
@@ -675,18 +683,18 @@ class LearningResult:
         return out
 
 
-def _stack_ci(x: np.ndarray) -> dict:
-    """Mean and 95 % interval per row and firm of an array of shape (n, T, f)."""
+def _stack_ci(x: np.ndarray, level: float = 0.95) -> dict:
+    """Mean and normal-approximation interval at ``level`` per row and firm of an array of shape (n, T, f)."""
+    from .metrics import normal_quantile
+
     if x.shape[0] == 0:
         return {"mean": [], "low": [], "high": []}
     mean = x.mean(axis=0)
     if x.shape[0] < 2:
         nan = np.full_like(mean, np.nan)
         return {"mean": mean.tolist(), "low": nan.tolist(), "high": nan.tolist()}
-    from scipy import stats
-
     se = x.std(axis=0, ddof=1) / math.sqrt(x.shape[0])
-    h = float(stats.t.ppf(0.975, x.shape[0] - 1)) * se
+    h = normal_quantile(level) * se
     return {"mean": mean.tolist(), "low": (mean - h).tolist(), "high": (mean + h).tolist()}
 
 
@@ -702,7 +710,8 @@ def _validate_run(**values) -> dict:
     return out
 
 
-def _default_workers() -> int:
+def usable_cores() -> int:
+    """Cores this process may run on (the default number of workers)."""
     try:
         return max(1, len(os.sched_getaffinity(0)))
     except AttributeError:  # pragma: no cover - not Linux
@@ -712,7 +721,7 @@ def _default_workers() -> int:
 def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, convergence: int = 100_000,
           max_periods: int = 1_000_000_000, deviator: int = 0, deviation="best_response",
           response_periods: int = 15, near: float = 0.1, workers: int | None = None,
-          progress: bool | None = None, cell: int = 0) -> LearningResult:
+          progress: bool | None = None, cell: int = 0, confidence: float = 0.95) -> LearningResult:
     """Run independent learning sessions and analyse what the learners converged to.
 
     Parameters
@@ -747,6 +756,9 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         Show a progress bar over sessions (default: when stderr is a terminal).
     cell : int
         Family of random streams (sweeps give each cell its own).
+    confidence : float in (0, 1)
+        Level of the confidence intervals of the summary (normal approximation for means, Wilson for
+        shares; see :mod:`sim.metrics`).
 
     Returns
     -------
@@ -754,8 +766,8 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     """
     run = _validate_run(sessions=sessions, seed=seed, convergence=convergence, max_periods=max_periods,
                         deviator=deviator, response_periods=response_periods, near=near, workers=workers,
-                        cell=cell)
-    n_workers = run["workers"] or _default_workers()
+                        cell=cell, confidence=confidence)
+    n_workers = run["workers"] or usable_cores()
     n_workers = min(n_workers, run["sessions"])
     lineup = compile_lineup(market, learners, workers=n_workers)
     if run["deviator"] >= lineup.n_seats:

@@ -207,3 +207,56 @@ def test_bad_line_ups_name_the_entry(tmp_path, capsys, old, new, key):
     cap = capsys.readouterr()
     assert cap.out == "" and "\n" not in cap.err.strip()
     assert cap.err.startswith(f"supergame learn: error: {key}:")
+
+
+def test_impulse_firm_is_reported_as_given(small, capsys):
+    """--impulse-firm 2 is firm 2 in the JSON (every output counts firms from 1)."""
+    assert main(["learn", str(small), "--impulse-firm", "2", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["settings"]["deviator"] == 2
+
+
+def test_confidence_flag(small, capsys):
+    assert main(["learn", str(small), "--confidence", "0.9"]) == 0
+    out = capsys.readouterr().out
+    assert "90 % confidence intervals across sessions" in out and "95 % CI" not in out
+    assert main(["learn", str(small), "--confidence", "1.5"]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("supergame learn: error: --confidence:")
+
+
+def test_default_workers_are_the_usable_cores(tmp_path, capsys):
+    """Without [run] workers, sessions run on the usable cores (sim.learning.usable_cores), at most one per
+    session."""
+    from sim.learning import usable_cores
+
+    p = tmp_path / "default-workers.toml"
+    p.write_text(SMALL.replace("workers = 2\n", ""))
+    assert main(["learn", str(p), "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["settings"]["workers"] == min(usable_cores(), 4)
+
+
+@pytest.mark.parametrize(("old", "new", "key", "message"), [
+    ("seed = 7", "seed = 7\nwarmup = 1", "run.warmup", "unknown key; allowed: sessions, seed, workers"),
+    ('kind = "learn"', 'kind = "learn"\nowner = "x"', "experiment.owner",
+     "unknown key; allowed: name, kind, description"),
+])
+def test_unknown_keys_are_worded_as_everywhere(tmp_path, capsys, old, new, key, message):
+    """The same wording, keys in their declared order, as the other commands (sim._tables.refuse_unknown)."""
+    p = tmp_path / "bad.toml"
+    p.write_text(SMALL.replace(old, new))
+    assert main(["learn", str(p)]) == 2
+    assert capsys.readouterr().err.strip() == f"supergame learn: error: {key}: {message}"
+
+
+@pytest.mark.parametrize(("seats", "key", "message"), [
+    ("5", "strategies", "the line-up has 6 seats but the market has 2 firms"),
+    ("0", "strategies[2].seats", "must be an integer in [1, 100000], got 0"),
+])
+def test_seats_follow_the_simulation_rules(tmp_path, capsys, seats, key, message):
+    """One rule for seats (strategies.registry.check_seats), then the total against the market's firms."""
+    p = tmp_path / "bad.toml"
+    p.write_text(VERSUS.replace('strategy = "tit_for_tat"', f'strategy = "tit_for_tat"\nseats = {seats}'))
+    assert main(["learn", str(p)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.startswith(f"supergame learn: error: {key}: {message}")

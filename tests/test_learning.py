@@ -232,6 +232,40 @@ def test_wilson_interval_of_zero_successes():
     assert ci["low"] == pytest.approx(40 / (40 + 1.959963984540054**2), rel=1e-12)
 
 
+def test_intervals_are_normal_approximations_at_the_chosen_level():
+    """The package's one convention (sim.metrics): means +- z se with z the standard normal quantile of
+    the level (scipy.stats.norm.ppf), shares by Wilson's score interval at the same level
+    (scipy.stats.binomtest(...).proportion_ci(method="wilson")); 95 % by default."""
+    from scipy import stats
+
+    m = logit_market()
+    for level in (0.95, 0.8):
+        kw = {} if level == 0.95 else {"confidence": level}
+        r = learn(m, _fast_learners(), sessions=6, seed=3, convergence=3000, workers=1, **kw)
+        s = r.summary()
+        assert s["confidence"] == level
+        pg = s["profit_gain"]
+        x = r.profit_gain[r.converged]
+        z = stats.norm.ppf(0.5 + level / 2)
+        se = x.std(ddof=1) / math.sqrt(x.size)
+        assert (pg["low"], pg["high"]) == pytest.approx((x.mean() - z * se, x.mean() + z * se), rel=1e-12)
+        ir = s["impulse_response"]["prices"]
+        y = r.ir_prices[r.converged][:, 2, 1]
+        h = z * y.std(ddof=1) / math.sqrt(y.size)
+        assert ir["high"][2][1] - ir["low"][2][1] == pytest.approx(2 * h, rel=1e-12, abs=1e-15)
+        ci = stats.binomtest(int(r.converged.sum()), 6).proportion_ci(confidence_level=level, method="wilson")
+        assert (s["converged"]["low"], s["converged"]["high"]) == pytest.approx((ci.low, ci.high), rel=1e-12)
+    with pytest.raises(sim.InputError) as err:
+        learn(m, _fast_learners(), sessions=2, confidence=1.0)
+    assert err.value.key == "confidence"
+
+
+def test_json_counts_firms_from_one():
+    """Output numbers firms from 1 (like binding_firm and seats); the deviator argument counts from 0."""
+    r = learn(logit_market(), _fast_learners(), sessions=2, seed=1, convergence=2000, deviator=1, workers=1)
+    assert r.settings["deviator"] == 1 and r.to_dict()["settings"]["deviator"] == 2
+
+
 # ---- the published experiments (slow: they run in CI, about a minute on two cores) -----------------
 
 

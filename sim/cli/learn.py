@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import os
 
+from .._tables import refuse_unknown
 from ..errors import InputError
 from ._common import add_market_flags, emit, flag_error, market_table_from_args, parse_number, parse_numbers
 
@@ -43,7 +44,7 @@ _RUN_KEYS = {
     "workers": ("workers", "int"),
 }
 _LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init")
-_EXPERIMENT_KEYS = {"name", "kind", "description"}
+_EXPERIMENT_KEYS = ("name", "kind", "description")
 
 
 def configure(p: argparse.ArgumentParser) -> None:
@@ -75,22 +76,15 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--seed", metavar="S", help="random seed (default 0)")
     g.add_argument("--workers", metavar="W", help="sessions run at once (default: the usable cores); results do "
                                                   "not depend on it")
+    g.add_argument("--confidence", metavar="L", help="confidence level of the intervals (default 0.95)")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
     p.add_argument("--plot", metavar="DIR", help="write figures (impulse response, profit-gain histogram, heatmap "
                                                  "of limit prices) into DIR")
 
 
-def _table(doc: dict, name: str) -> dict:
-    tab = doc.get(name, {})
-    if not isinstance(tab, dict):
-        raise InputError(name, "must be a table")
-    return dict(tab)
-
-
-def _only(tab: dict, name: str, allowed) -> None:
-    for k in tab:
-        if k not in allowed:
-            raise InputError(f"{name}.{k}", f"unknown key; allowed: {', '.join(sorted(allowed))}")
+def _table(doc: dict, name: str, allowed) -> dict:
+    """A copy of table ``name`` of ``doc`` (empty when absent), unknown keys refused."""
+    return dict(refuse_unknown(doc.get(name, {}), name, allowed))
 
 
 def _apply_flags(args, tab: dict, keys: dict) -> set:
@@ -131,24 +125,23 @@ def build(args, doc: dict) -> dict:
     from ..learning import _RUN_CONSTRAINTS
     from ..market import market_from_dict
 
-    exp = _table(doc, "experiment")
-    _only(exp, "experiment", _EXPERIMENT_KEYS)
+    exp = _table(doc, "experiment", _EXPERIMENT_KEYS)
     if "kind" in exp and exp["kind"] != "learn":
         raise InputError("experiment.kind", f"this command runs kind = 'learn' experiments, got {exp['kind']!r}")
     if args.file and "market" not in doc:
         raise InputError("market", f"{args.file} has no [market] table")
-    table, from_flags = market_table_from_args(args, _table(doc, "market"))
+    base = doc.get("market", {})
+    if not isinstance(base, dict):
+        raise InputError("market", f"must be a table, got {base!r}")
+    table, from_flags = market_table_from_args(args, dict(base))
     try:
         market = market_from_dict(table)
     except InputError as exc:
         raise flag_error(exc, from_flags) from None
 
-    lt = _table(doc, "learning")
-    _only(lt, "learning", _LEARNING_KEYS)
-    it = _table(doc, "impulse")
-    _only(it, "impulse", _IMPULSE_KEYS)
-    rt = _table(doc, "run")
-    _only(rt, "run", _RUN_KEYS)
+    lt = _table(doc, "learning", _LEARNING_KEYS)
+    it = _table(doc, "impulse", _IMPULSE_KEYS)
+    rt = _table(doc, "run", _RUN_KEYS)
     lf = _apply_flags(args, lt, _LEARNING_KEYS)
     if_ = _apply_flags(args, it, _IMPULSE_KEYS)
     rf = _apply_flags(args, rt, _RUN_KEYS)
@@ -183,7 +176,11 @@ def build(args, doc: dict) -> dict:
                                   15),
     }
     firm = check(it, "impulse", _IMPULSE_KEYS, if_, "firm", Integer(1, n_firms), 1)
-    settings["deviator"] = firm - 1
+    settings["deviator"] = firm - 1  # learn() counts seats from 0; every output counts firms from 1
+    confidence = getattr(args, "confidence", None)
+    settings["confidence"] = (_RUN_CONSTRAINTS["confidence"].check("--confidence", parse_number("confidence",
+                                                                                              confidence))
+                              if confidence is not None else 0.95)
     action = it.get("action", "best_response")
     if isinstance(action, str) and action != "best_response":
         try:
@@ -202,21 +199,19 @@ def _lineup(entries, base: dict, n_firms: int) -> list:
     """One strategy per firm from ``[[strategies]]``: ``strategy = "qlearning"`` entries take the
     [learning] parameters, overridden by their own; any other name is an automaton of the engine's
     registry (see ``supergame simulate``)."""
-    import numbers
-
     from strategies import strategy_from_dict
     from strategies.qlearning import QLearner
+    from strategies.registry import check_seats
 
     if not isinstance(entries, list) or not entries:
         raise InputError("strategies", "must be a non-empty list of [[strategies]] entries")
     out = []
+    total = 0
     for k, t in enumerate(entries):
         key = f"strategies[{k + 1}]"
         if not isinstance(t, dict):
             raise InputError(key, f"must be a table with a 'strategy' key, got {t!r}")
-        seats = t.get("seats", 1)
-        if isinstance(seats, bool) or not isinstance(seats, numbers.Integral) or not 1 <= seats <= 4:
-            raise InputError(f"{key}.seats", f"must be an integer in [1, 4], got {seats!r}")
+        seats = check_seats(f"{key}.seats", t.get("seats", 1))
         if t.get("strategy") == QLearner.name:
             params = dict(base)
             for name, v in t.items():
@@ -230,9 +225,11 @@ def _lineup(entries, base: dict, n_firms: int) -> list:
             strat.spec(prefix=key)
         else:
             strat = strategy_from_dict(t, key)
-        out.extend(strat.clone() for _ in range(int(seats)))
-    if len(out) != n_firms:
-        raise InputError("strategies", f"the line-up has {len(out)} seats but the market has {n_firms} firms; give "
+        total += seats
+        if total <= n_firms:  # no clones beyond the market's firms (refused below)
+            out.extend(strat.clone() for _ in range(seats))
+    if total != n_firms:
+        raise InputError("strategies", f"the line-up has {total} seats but the market has {n_firms} firms; give "
                                        "one strategy per firm (use seats to repeat one)")
     if not any(isinstance(x, QLearner) for x in out):
         raise InputError("strategies", "the line-up has no learner (strategy = 'qlearning'); use `supergame "
@@ -243,14 +240,14 @@ def _lineup(entries, base: dict, n_firms: int) -> list:
 def run(args) -> int:
     from .. import _text
     from .._jsonutil import dumps
-    from ..learning import compile_lineup, learn
+    from ..learning import compile_lineup, learn, usable_cores
     from ..tomlfile import read_toml
 
     doc = read_toml(args.file) if args.file else {}
     cfg = build(args, doc)
     s = cfg["settings"]
     # memory and line-up checks before any work (the run itself repeats them, cheaply)
-    workers = s["workers"] or _usable_cores()
+    workers = s["workers"] or usable_cores()
     try:
         compile_lineup(cfg["market"], cfg["learner"], workers=min(workers, s["sessions"]))
     except InputError as exc:
@@ -271,13 +268,6 @@ def run(args) -> int:
         return 0
     emit(render(result, cfg["market"], written))
     return 0
-
-
-def _usable_cores() -> int:
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except AttributeError:  # pragma: no cover
-        return max(1, os.cpu_count() or 1)
 
 
 def _check_plot_dir(path: str) -> None:
@@ -319,6 +309,7 @@ def render(result, market, written=()) -> str:
     lu = result.lineup
     sm = result.summary()
     st = result.settings
+    lvl = f"{100 * result.confidence:g} %"
     n = lu.n_seats
     ms = lu.market
     act = "quantity" if ms.quantity_setting else "price"
@@ -344,7 +335,7 @@ def render(result, market, written=()) -> str:
     lines.append("")
     c = sm["converged"]
     per = sm["periods"]
-    lines.append(f"Converged: {c['count']} of {c['n']} sessions ({_pct(c['share'])}, 95 % CI "
+    lines.append(f"Converged: {c['count']} of {c['n']} sessions ({_pct(c['share'])}, {lvl} CI "
                  f"{_pct(c['low'])} to {_pct(c['high'])})")
     if per["n"]:
         ci = f"[{per['low']:.4g}, {per['high']:.4g}]" if per["n"] > 1 else "-"
@@ -358,7 +349,7 @@ def render(result, market, written=()) -> str:
     lines.append(table(["", *firms], rows))
     lines.append("")
     lines.append(f"Limit outcomes: greedy play from the final state, means over the limit cycle ({sm['over']}); "
-                 "95 % confidence intervals across sessions")
+                 f"{lvl} confidence intervals across sessions")
     rows = []
     for i in range(n):
         d = sm["limit_prices"][i]
@@ -372,7 +363,7 @@ def render(result, market, written=()) -> str:
         for i in range(n):
             d = sm["firm_profit_gain"][i]
             rows.append([f"profit gain, firm {i + 1}", d["mean"], _ci(d)])
-    lines.append(table(["", "mean", "95 % CI"], rows, "lrl"))
+    lines.append(table(["", "mean", f"{lvl} CI"], rows, "lrl"))
     if pg["n"]:
         lines.append(f"  profit gain across sessions: 5 % {fmt_num(pg['q05'])}, quartiles {fmt_num(pg['q25'])} / "
                      f"{fmt_num(pg['q50'])} / {fmt_num(pg['q75'])}, 95 % {fmt_num(pg['q95'])}")
