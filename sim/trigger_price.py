@@ -64,8 +64,12 @@ class Shock:
     """A mean-one multiplicative shock. ``u`` is the standardised threshold: ``F(z) = Phi(u(z))``."""
 
     def __init__(self, kind: str, sigma: float):
+        from .monitoring import NORMAL_SIGMA_MAX
+
         self.kind = Options(*NOISE_KINDS).check("monitoring.noise", kind)
-        self.sigma = Real(0, None, closed="neither").check("monitoring.sigma", sigma)
+        # a normal shock 1 + sigma Z must stay (practically) positive, as in the simulation engine
+        hi = NORMAL_SIGMA_MAX if self.kind == "normal" else 10.0
+        self.sigma = Real(0, hi, closed="right").check("monitoring.sigma", sigma)
 
     def u_of_z(self, z):
         z = np.asarray(z, dtype=float)
