@@ -30,7 +30,8 @@ _EXPORTS = {
     "engine": ["Game", "RawRun", "compile_game", "prepare_game", "run_game", "simulate", "simulation_from_dict",
                "stage_levels"],
     "monitoring": ["Monitoring", "monitoring_from_dict"],
-    "metrics": ["Estimate", "SimulationResult", "Survival", "kaplan_meier", "mean_estimate", "ratio_estimate"],
+    "metrics": ["Estimate", "SimulationResult", "Survival", "kaplan_meier", "mean_estimate", "normal_quantile",
+                "ratio_estimate", "wilson_estimate"],
     "baseline": ["analytic_baseline", "first_breakdown_distribution", "trigger_price_chain"],
     # the function sim.tournament.tournament is not exported: its name is the module's
     "tournament": ["Entrant", "TournamentPlan", "TournamentResult", "prepare_tournament", "run_tournament",

@@ -207,7 +207,8 @@ class RawRun:
     flts : ndarray of shape (n_reps, N_RFLT)
         Per-replication sums of the market price and of consumer surplus.
     hist : int64 ndarray of shape (N_HIST, n_periods + 1)
-        Lengths of collusive spells and price wars that ended or were cut off by the horizon.
+        Lengths of collusive spells, price wars and punishment phases that ended or were cut off by
+        the horizon (rows ``H_*`` of :mod:`sim._kernel`).
     by_period : int64 ndarray of shape (2, n_periods)
         Per period: replications in which every firm colluded (row 0), and replications still running
         (row 1, derived from the horizon lengths).
