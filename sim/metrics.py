@@ -330,6 +330,7 @@ class SimulationResult:
             "collusive_by_period": _thin(self.collusive_by_period),
             "reference": self.reference,
             "baseline": _baseline_dict(self.baseline),
+            "definitions": DEFINITIONS,
         }
         if per_replication:
             out["replications"] = {
@@ -341,6 +342,18 @@ class SimulationResult:
             out["paths"] = {k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in self.paths.items()}
         out["caution"] = CAUTION
         return out
+
+
+#: what the lengths in the output count (see the module notes)
+DEFINITIONS = {
+    "collusive spell": "a maximal run of periods in which every firm colludes",
+    "price war": "a maximal run of periods that are not collusive; it includes the period of the deviation "
+                 "(cheating or a tremble) that set it off, so one deviation answered by a T-period punishment "
+                 "makes a war of T + 1 periods",
+    "punishment phase": "a maximal run of periods in which some firm's automaton is in a non-collusive state "
+                        "(survival.punishments); the deviation period is not part of it",
+    "first breakdown": "the number, counting from 1, of the first period that is not collusive",
+}
 
 
 def _thin(x: np.ndarray, max_points: int = 1000) -> dict:

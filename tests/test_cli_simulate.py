@@ -158,4 +158,5 @@ def test_labels_say_what_wars_and_thresholds_mean(small, capsys):
     assert main(["simulate", str(small), "--horizon", "random", "--json"]) == 0
     doc = json.loads(capsys.readouterr().out)
     assert doc["survival"]["punishments"]["mean"]["value"] == pytest.approx(2.0)
+    assert "deviation" in doc["definitions"]["price war"] and "T + 1" in doc["definitions"]["price war"]
     assert not any("fixed horizon" in x for x in doc["baseline"]["notes"])
