@@ -34,3 +34,13 @@ def test_demo_command_names_a_shipped_experiment():
     demo = _quick_start()[0]
     files = re.findall(r"experiments/[\w.-]+\.toml", demo)
     assert files and all((ROOT / f).is_file() for f in files)
+
+
+def test_readme_python_example_runs():
+    """The README's Python tour must work as printed (the lines that need a finished run folder are
+    left out)."""
+    text = (ROOT / "README.md").read_text()
+    code = re.search(r"## Python API\n+```python\n(.*?)```", text, re.S).group(1)
+    lines = [ln for ln in code.splitlines() if "open_run" not in ln and "run.frame" not in ln]
+    code = "\n".join(lines).replace("replications=2000", "replications=50").replace("periods=1000", "periods=100")
+    exec(compile(code, "README.md", "exec"), {})
