@@ -331,6 +331,13 @@ def _thresholds(game, run: dict, notes: list) -> list:
         notes.append(f"no critical discount factor: {why}")
         return []
     c, d, _ = _payoffs(game, a_c)
+    in_rows = sorted(i for seats in groups.values() for i in seats)
+    if len(groups) > 1 or len(in_rows) < game.n_firms:
+        others = [f"firm {i + 1} ({lu.names[i]})" for i in range(game.n_firms) if i not in in_rows]
+        what = (f"{', '.join(others)} {'does' if len(others) == 1 else 'do'} not punish with any of these schemes"
+                if others else "the seats punish with different schemes")
+        notes.append(f"{what}: each threshold is the one that would hold if every firm punished with that row's "
+                     "scheme")
     out = []
     for key, seats in sorted(groups.items(), key=lambda kv: (kv[0][0], kv[0][1] or 0, kv[1][0])):
         kind, T = key[0], key[1]

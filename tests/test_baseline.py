@@ -130,3 +130,15 @@ def test_fixed_horizon_thresholds_are_labelled_the_infinite_horizon_benchmark():
 def test_unknown_strategy_in_a_lineup_still_raises():
     with pytest.raises(InputError):
         _baseline([S.GrimTrigger(collude="cheapest")] * 3)
+
+
+def test_mixed_line_ups_say_what_the_rows_assume():
+    """A seat that never punishes, or seats with different schemes: the closed forms assume a common
+    scheme, and a note says each row is the threshold if every firm punished with it."""
+    b = _baseline([S.GrimTrigger(), S.GrimTrigger(), S.AlwaysCollude()])
+    assert b["thresholds"][0]["seats"] == [1, 2]
+    assert any("firm 3 (always_collude) does not punish" in x for x in b["notes"])
+    b = _baseline([S.GrimTrigger(), S.FinitePunishment(length=2), S.StickAndCarrot()])
+    assert [r["scheme"] for r in b["thresholds"]] == ["Nash reversion, T=2", "grim trigger", "stick and carrot"]
+    assert any("different schemes" in x for x in b["notes"])
+    assert not _baseline([S.Opportunist(), S.GrimTrigger(), S.GrimTrigger()])["notes"]
