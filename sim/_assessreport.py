@@ -21,7 +21,9 @@ from pathlib import Path
 import numpy as np
 
 from ._text import CAUTION, fmt_num, table
+from .assess import FACTOR_LEGEND, IVALDI_SOURCE
 from .errors import InputError
+from .merger import difference
 
 __all__ = ["assessment_figures", "assessment_tables", "bundle_target", "render_text", "summary_blocks",
            "write_assessment_bundle"]
@@ -77,7 +79,7 @@ def assessment_tables(a) -> dict:
         q = after_by.get((p.scheme, p.T, p.delta))
         name = {"grim": "grim trigger", "stick_carrot": "stick and carrot"}.get(p.scheme, f"Nash reversion, T={p.T}")
         prow.append([p.delta, name, p.profit_gain, None if q is None else q.profit_gain,
-                     None if q is None else q.profit_gain - p.profit_gain])
+                     None if q is None else difference(q.profit_gain, p.profit_gain)])
     out["partial_collusion"] = (["delta", "scheme", "profit gain before", "profit gain after", "change"], prow)
     arow = []
     for side in (a.before, a.after):
@@ -111,9 +113,8 @@ def assessment_tables(a) -> dict:
     frow = []
     for f in a.factors:
         frow.append([f["factor"], f["varied"], _factor_values(f), f["model_direction"], f["ivaldi_direction"],
-                     _yes(f["agrees"])])
-    out["factors"] = (["factor", "what the model varies", "values (before; after)", "model", "Ivaldi et al. (2003)",
-                       "agree"], frow)
+                     "" if f["agrees"] is None else _yes(f["agrees"]), f["reading"]])
+    out["factors"] = (FACTOR_HEADERS, frow)
     if a.calibration is not None:
         cal = a.calibration
         rows = []
@@ -143,7 +144,24 @@ def assessment_tables(a) -> dict:
                         s["category_at_delta"], s["status"])]
             out[f"sensitivity_{name}"] = ([name, "threshold before", "threshold after", "effect of the merger",
                                            f"conclusion at delta {c['delta']:.4g}", "status"], rows)
-    return out
+    return {name: (headers, [[_plain(v) for v in r] for r in rows]) for name, (headers, rows) in out.items()}
+
+
+#: Columns of the factor table; the last one says in words what the row's direction cells mean (the
+#: table's legend, row by row, so that the CSV file carries it too).
+FACTOR_HEADERS = ["factor (the change considered)", "what the model varies", "values (before; after)",
+                  "model: effect on collusion", "Ivaldi et al. (2003): effect on collusion", "agree", "reading"]
+
+
+def _plain(v):
+    """A table cell as a plain Python value (numpy scalars would be written as ``np.float64(...)``)."""
+    if isinstance(v, np.bool_):
+        return bool(v)
+    if isinstance(v, np.integer):
+        return int(v)
+    if isinstance(v, np.floating):
+        return float(v)
+    return v
 
 
 def _param_text(v) -> str:
@@ -154,10 +172,10 @@ def _param_text(v) -> str:
 
 def _factor_values(f: dict) -> str:
     v = f["values"]
-    name = f["factor"]
+    name = f["key"]
     if not v:
         return f["note"] or "-"
-    if name == "number of firms":
+    if name == "firms":
         return f"{v['base_label']}: {_n(v['base'])}; {v['varied_label']}: {_n(v['varied'])}"
     parts = []
     for side in ("before", "after"):
@@ -167,11 +185,12 @@ def _factor_values(f: dict) -> str:
         if name == "symmetry":
             parts.append(f"{side}: actual {_n(x['actual'])}, symmetric {_n(x['symmetric'])}")
         elif name == "transparency":
-            parts.append(f"{side}: {_n(x['noise'])} at the experiment's noise, {_n(x['doubled_noise'])} doubled")
-        elif name == "frequency of interaction":
+            parts.append(f"{side}: {_n(x['noise'])} at the experiment's noise, {_n(x['scaled_noise'])} at noise "
+                         f"x{x['scale']:g}")
+        elif name == "frequency":
             parts.append(f"{side}: threshold {_n(x['threshold'])}, longest interval "
                          f"{_n(x.get('longest_interval'), 3)} periods")
-        elif name == "demand growth":
+        elif name == "growth":
             parts.append(f"{side}: growth needed {_n(x['growth_needed'])}; growing {_yes(x['sustainable_growing'])}, "
                          f"declining {_yes(x['sustainable_declining'])}")
     return "; ".join(parts)
@@ -195,6 +214,10 @@ def _pyplot():
 def _val(x):
     return np.nan if x is None else float(x)
 
+
+#: Caption of the factor table (the LaTeX file carries it): its legend.
+FACTORS_CAPTION = ("Factors, each named by the change it considers: its effect on collusion computed by the model and "
+                   "in Ivaldi et al. (2003). " + FACTOR_LEGEND)
 
 _CAPTIONS = {
     "thresholds": ("Critical discount factors of each scheme before and after the merger, with the experiment's "
@@ -460,7 +483,7 @@ def summary_blocks(a, figures=()) -> list:
             B.append(("paragraph", f"Over-identified input ({cal.fit['input']} of every product), fitted by least "
                                    f"squares: largest absolute residual {np.abs(res).max():.3g}."))
     B.append(("heading", "The post-merger static equilibrium"))
-    cs = m.consumer_surplus_post - m.consumer_surplus_pre
+    cs = difference(m.consumer_surplus_post, m.consumer_surplus_pre)
     cs_rel = cs / m.consumer_surplus_pre if m.consumer_surplus_pre else 0.0
     B.append(("paragraph", f"HHI at the static equilibrium: {m.hhi_pre:.0f} before, {m.hhi_post:.0f} after "
                            f"(change {m.delta_hhi:+.0f}; at pre-merger shares {m.naive_delta_hhi:.0f}). Consumer "
@@ -493,12 +516,11 @@ def summary_blocks(a, figures=()) -> list:
     B.append(("table", "asymmetry", "Asymmetry measures at the static equilibrium"))
     B.append(("table", "firms", "Firms at the static equilibrium"))
     B.append(("heading", "The usual factors"))
-    B.append(("paragraph", "Each factor is varied in the model with the rest held fixed; the direction the model "
-                           "computes is set beside the direction in Ivaldi, Jullien, Rey, Seabright and Tirole "
-                           "(2003), The Economics of Tacit Collusion, report for the European Commission (recalled "
-                           "from the report, from memory). 'facilitates' means that the factor (fewer firms, more "
-                           "symmetry, less noise, more frequent interaction, demand growth) makes collusion easier."))
-    B.append(("table", "factors", "Factors: direction computed by the model and in the literature"))
+    B.append(("paragraph", "Each factor is named by the change it considers (fewer firms, more symmetric firms, "
+                           "less monitoring noise, more frequent interaction, growing demand) and varied in the model "
+                           "with the rest held fixed; the direction the model computes is set beside the direction in "
+                           f"{IVALDI_SOURCE}."))
+    B.append(("table", "factors", FACTORS_CAPTION))
     notes = [f"{f['factor']}: {f['note']}" for f in a.factors if f["note"]]
     if notes:
         B.append(("bullets", notes))
@@ -553,10 +575,12 @@ def render_text(a, name: str = "assessment") -> str:
         h, rows = T["persistence"]
         lines.append(table(h, rows))
         lines.append("")
-    lines.append("Factors: direction computed by the model vs Ivaldi et al. (2003)")
+    lines.append("Factors, each named by the change it considers: its effect on collusion in the model and in "
+                 "Ivaldi et al. (2003)")
     h, rows = T["factors"]
     lines.append(table(["factor", "model", "Ivaldi et al. (2003)", "agree"],
-                       [[r[0], r[3], r[4], r[5]] for r in rows], "llll"))
+                       [[r[0], r[3], r[4], r[5] or "-"] for r in rows], "llll"))
+    lines.append(FACTOR_LEGEND)
     lines.append("")
     lines.append(c["statement"])
     for k, v in (c.get("robustness") or {}).items():

@@ -48,6 +48,7 @@ from typing import Any
 import numpy as np
 
 from ._params import Boolean, Integer, Options, Real
+from ._tables import refuse_unknown
 from .errors import InputError, SolverError
 
 __all__ = ["ASSESS_TABLES", "Assessment", "MarketSide", "PreparedAssessment", "assess", "assessment_from_dict",
@@ -58,24 +59,50 @@ AGREEMENTS = ("joint", "symmetric", "proportional")
 SENSITIVITY_INPUTS = ("margin", "elasticity", "market_elasticity", "size")
 ASSESS_TABLES = ("experiment", "market", "data", "merger", "collusion", "monitoring", "strategies", "run",
                  "assess")
-_ASSESS_KEYS = ("scheme", "length", "punishments", "deltas", "partial", "growth", "simulate", "sensitivity")
+_ASSESS_KEYS = ("scheme", "length", "punishments", "deltas", "partial", "growth", "simulate", "transparency_scale",
+                "sensitivity")
 _SENS_KEYS = ("margin", "elasticity", "market_elasticity", "size", "delta", "noise")
 _TOL = 1e-9
 
+#: The factor table's rows: key -> (name, direction in Ivaldi et al. (2003), their reasoning in our words,
+#: how the direction was established). Each factor is named by the change it considers, so that
+#: "facilitates" reads as "this change makes collusion easier". The directions of more frequent
+#: interaction and more transparency are the titles of sections III.4 and III.5 of the report ("Frequent
+#: interaction facilitates collusion", "Market transparency facilitates collusion", read from its table
+#: of contents); those of the number of competitors, of symmetry and of demand growth are recalled from
+#: the report's sections on them (from memory).
 IVALDI = {
-    "number of firms": ("facilitates", "collusion is harder to sustain with more competitors: each firm's share of "
-                                       "the collusive profit is smaller and its gain from undercutting larger"),
-    "symmetry": ("facilitates", "asymmetries in costs, capacities or market shares hinder collusion: the "
-                                "advantaged firm gains more from deviating and less from colluding"),
-    "transparency": ("facilitates", "market transparency facilitates collusion: deviations are detected, and "
-                                    "punished, sooner and price wars are not set off by mistake"),
-    "frequency of interaction": ("facilitates", "frequent interaction (and frequent price adjustment) facilitates "
-                                                "collusion: retaliation comes sooner"),
-    "demand growth": ("facilitates", "collusion is easier in growing markets, where tomorrow's profits weigh more, "
-                                     "and harder in declining ones"),
+    "firms": ("fewer firms", "facilitates",
+              "with fewer competitors each firm's share of the collusive profit is larger and its gain from "
+              "undercutting smaller, so collusion is easier to sustain", "from memory"),
+    "symmetry": ("more symmetric firms", "facilitates",
+                 "asymmetries in costs, capacities or market shares hinder collusion: the advantaged firm gains "
+                 "more from deviating and less from colluding", "from memory"),
+    "transparency": ("more transparent (less noise)", "facilitates",
+                     "market transparency facilitates collusion: deviations are detected, and punished, sooner and "
+                     "price wars are not set off by mistake", "section title"),
+    "frequency": ("more frequent interaction", "facilitates",
+                  "frequent interaction (and frequent price adjustment) facilitates collusion: retaliation comes "
+                  "sooner", "section title"),
+    "growth": ("growing demand", "facilitates",
+               "collusion is easier in growing markets, where tomorrow's profits weigh more, and harder in "
+               "declining ones", "from memory"),
 }
 IVALDI_SOURCE = ("Ivaldi, Jullien, Rey, Seabright and Tirole (2003), The Economics of Tacit Collusion, final report "
-                 "for DG Competition, European Commission (from memory)")
+                 "for DG Competition, European Commission (directions of more frequent interaction and more "
+                 "transparency: the titles of its sections III.4 and III.5; the others from memory)")
+#: Direction of a factor whose effect follows from the model's definitions rather than a computation.
+STRUCTURAL = "structural (by construction)"
+#: How to read the factor table (the summary, the LaTeX caption and the terminal output carry it; every
+#: row's ``reading`` says the same for that row, also in the CSV).
+FACTOR_LEGEND = ("Each factor is named by the change it considers. 'facilitates': in the model that change makes "
+                 "collusion easier (a lower critical discount factor, or more persistent simulated collusion); "
+                 "'hinders': it makes collusion harder; 'no effect': no difference (for simulations, none beyond "
+                 "1.96 standard errors); 'mixed': the markets before and after the merger disagree; 'not "
+                 "computed': the model cannot vary the factor here (see the note). 'structural (by construction)': "
+                 "the direction follows from the model's definitions (the discount factor per interaction, "
+                 "profits that grow with demand) and is not computed, so it is not compared with the literature "
+                 "and 'agree' is left empty; the row reports how far each market is from its threshold.")
 
 
 # --------------------------------------------------------------------------------------------------
@@ -99,8 +126,9 @@ class MarketSide:
     asymmetry : dict
         See :func:`asymmetry`.
     simulation : SimulationResult or None
-    noisier : SimulationResult or None
-        The same simulation with the monitoring noise doubled (for the transparency factor).
+    rescaled : SimulationResult or None
+        The same simulation with every monitoring noise parameter multiplied by
+        ``assess.transparency_scale`` (for the transparency factor).
     """
 
     label: str
@@ -110,7 +138,7 @@ class MarketSide:
     partial: list
     asymmetry: dict
     simulation: Any = None
-    noisier: Any = None
+    rescaled: Any = None
 
     def scheme(self, scheme: str, T: int | None = None):
         """The :class:`~sim.thresholds.SchemeThreshold` of ``scheme`` (``finite`` with its ``T``)."""
@@ -136,8 +164,8 @@ class MarketSide:
         }
         if self.simulation is not None:
             out["simulation"] = _sim_summary(self.simulation)
-        if self.noisier is not None:
-            out["simulation_doubled_noise"] = _sim_summary(self.noisier)
+        if self.rescaled is not None:
+            out["simulation_scaled_noise"] = _sim_summary(self.rescaled)
         return out
 
 
@@ -260,7 +288,8 @@ def asymmetry(market, outcome=None) -> dict:
     }
 
 
-def symmetric_counterpart(market, n_products: int | None = None, keep_owner: bool = False):
+def symmetric_counterpart(market, n_products: int | None = None, keep_owner: bool = False, *,
+                          n_firms: int | None = None, products_per_firm: int = 1):
     """The market with its products made alike: mean marginal cost, mean quality or intercept, equal
     capacities and equal tie-sharing weights; the demand's other parameters unchanged.
 
@@ -272,11 +301,26 @@ def symmetric_counterpart(market, n_products: int | None = None, keep_owner: boo
     keep_owner : bool
         Keep the market's owner map (only with the same number of products): removes cost and demand
         asymmetries but not ownership asymmetry.
+    n_firms : int, optional
+        Instead of ``n_products``: the number of firms of the counterpart, each owning
+        ``products_per_firm`` products (``n_firms * products_per_firm`` products in all).
+    products_per_firm : int
+        Products of each firm with ``n_firms`` (above one only for differentiated products).
     """
     from .market import Market
 
     ms = market.spec()
-    n = ms.n_products if n_products is None else int(n_products)
+    owner = None
+    if n_firms is not None:
+        if n_products is not None or keep_owner:
+            raise ValueError("give n_firms or n_products / keep_owner, not both")
+        n = int(n_firms) * int(products_per_firm)
+        if products_per_firm > 1:
+            owner = [i + 1 for i in range(int(n_firms)) for _ in range(int(products_per_firm))]
+    else:
+        n = ms.n_products if n_products is None else int(n_products)
+        if keep_owner and market.owner is not None and n == ms.n_products:
+            owner = list(market.owner)
     d = market.demand
     kind = ms.demand.kind
     c = float(np.mean(ms.cost))
@@ -290,9 +334,6 @@ def symmetric_counterpart(market, n_products: int | None = None, keep_owner: boo
         new_d = d.clone(quality=float(np.mean(ms.demand.vector)))
     cap = np.asarray(ms.capacity, dtype=float)
     capacity = float(cap.mean()) if market.capacity is not None and np.all(np.isfinite(cap)) else None
-    owner = None
-    if keep_owner and market.owner is not None and n == ms.n_products:
-        owner = list(market.owner)
     return Market(new_d, cost=c, model=ms.model, n_firms=None if owner is not None else n, capacity=capacity,
                   tick=ms.tick, owner=owner)
 
@@ -343,7 +384,7 @@ def _range(key: str, value, element) -> np.ndarray:
 
 
 def _check_options(scheme, length, punishments, deltas, partial, growth, simulate_flag, agreement,
-                   prefix: str = "assess") -> dict:
+                   transparency_scale=2.0, prefix: str = "assess") -> dict:
     scheme = Options(*SCHEME_NAMES).check(f"{prefix}.scheme", scheme)
     Ts = _list_of(f"{prefix}.punishments", punishments, Integer(1, 10_000))
     if scheme == "finite":
@@ -363,22 +404,22 @@ def _check_options(scheme, length, punishments, deltas, partial, growth, simulat
         raise InputError(f"{prefix}.partial", "'finite' needs at least one punishment length in assess.punishments")
     growth = Real(0, 1, closed="neither").check(f"{prefix}.growth", growth)
     simulate_flag = Boolean().check(f"{prefix}.simulate", simulate_flag)
+    tscale = Real(0, 100, closed="right").check(f"{prefix}.transparency_scale", transparency_scale)
+    if tscale == 1.0:
+        raise InputError(f"{prefix}.transparency_scale", "must differ from 1 (the experiment's own noise): above 1 "
+                                                         "more noise, below 1 less, got 1")
     if agreement not in AGREEMENTS:
         raise InputError("collusion.agreement", f"must be one of {', '.join(map(repr, AGREEMENTS))} (agreed actions "
                                                 f"do not carry over to the post-merger market), got {agreement!r}")
     return {"scheme": scheme, "length": length, "punishments": Ts, "deltas": sorted(set(ds)),
             "partial": list(dict.fromkeys(parts)), "growth": growth, "simulate": simulate_flag,
-            "agreement": agreement}
+            "agreement": agreement, "transparency_scale": tscale}
 
 
 def _check_sensitivity(sens, data, prefix: str = "assess.sensitivity") -> dict:
     if sens is None:
         return {}
-    if not isinstance(sens, dict):
-        raise InputError(prefix, f"must be a table, got {sens!r}")
-    for k in sens:
-        if k not in _SENS_KEYS:
-            raise InputError(f"{prefix}.{k}", f"unknown key; allowed: {', '.join(_SENS_KEYS)}")
+    refuse_unknown(sens, prefix, _SENS_KEYS)
     out = {}
     for name in SENSITIVITY_INPUTS:
         if name not in sens:
@@ -456,13 +497,41 @@ def _lineup_entries(lineup, n_firms: int) -> list:
     return out
 
 
-def _scaled(mon, k: float):
+_NOISE_PARAMS = ("sigma", "perception_error", "implementation_error")
+
+
+def _noise_bounds(p: dict) -> dict:
+    """Largest value of each noise parameter (the :class:`~sim.monitoring.Monitoring` constraints; a
+    normal shock's sigma is capped at 1/3)."""
+    from .monitoring import NORMAL_SIGMA_MAX, Monitoring
+
+    out = {k: Monitoring._constraints[k].high for k in _NOISE_PARAMS}
+    if p["noise"] == "normal":
+        out["sigma"] = min(out["sigma"], NORMAL_SIGMA_MAX)
+    return out
+
+
+def _scaled(mon, k: float, key: str):
+    """The monitoring with every noise parameter multiplied by ``k``, validated.
+
+    Nothing is clipped: a scale that takes a parameter above its range raises :class:`InputError`
+    under ``key`` (the setting that asked for the scale), naming the parameter, its range, the scaled
+    value and the largest scale the experiment's noise allows."""
     from .monitoring import Monitoring
 
     p = mon.validated()
-    return Monitoring(signal=p["signal"], noise=p["noise"], sigma=min(10.0, p["sigma"] * k),
-                      perception_error=min(1.0, p["perception_error"] * k),
-                      implementation_error=min(1.0, p["implementation_error"] * k))
+    bounds = _noise_bounds(p)
+    for name in _NOISE_PARAMS:
+        v = p[name] * k
+        if v > bounds[name]:
+            largest = min(bounds[n] / p[n] for n in _NOISE_PARAMS if p[n] > 0)
+            shock = f" with noise = '{p['noise']}'" if name == "sigma" else ""
+            raise InputError(key, f"scale {k:g} takes monitoring.{name} from {p[name]:g} to {v:g}, outside its "
+                                  f"range [0, {bounds[name]:.4g}]{shock}; with this monitoring the scale must be at "
+                                  f"most {largest:.4g}")
+    out = Monitoring(signal=p["signal"], noise=p["noise"], **{n: p[n] * k for n in _NOISE_PARAMS})
+    out.validated(key)
+    return out
 
 
 def _has_noise(mon) -> bool:
@@ -501,8 +570,8 @@ CATEGORY_TEXT = {
 
 def assess(source, merger, monitoring=None, lineup=None, run=None, agreement: str = "joint", scheme: str = "grim",
            length: int | None = None, punishments=(1, 2, 3), deltas=(0.5, 0.6, 0.7, 0.8, 0.9),
-           partial=None, growth: float = 0.02, simulate: bool = True, sensitivity: dict | None = None,
-           progress=None, key=()) -> Assessment:
+           partial=None, growth: float = 0.02, simulate: bool = True, transparency_scale: float = 2.0,
+           sensitivity: dict | None = None, progress=None, key=(0,)) -> Assessment:
     """Compare the scope for tacit collusion before and after a merger.
 
     Parameters
@@ -536,17 +605,25 @@ def assess(source, merger, monitoring=None, lineup=None, run=None, agreement: st
         Demand growth (and decline) rate per period in the factor table.
     simulate : bool
         Whether to run the simulations (persistence, the transparency factor, noise sensitivity).
+    transparency_scale : float in (0, 100], not 1
+        The transparency factor compares simulated persistence at the experiment's monitoring noise
+        with every noise parameter multiplied by this scale (default: doubled; below 1: less noise).
+        A scale that takes a parameter out of its range is refused before any work.
     sensitivity : dict, optional
         Ranges of the uncertain inputs: ``margin``, ``elasticity``, ``market_elasticity`` (calibration
         inputs, with data), ``delta``, ``noise`` (a scale factor of every monitoring noise
-        parameter; 1 is the experiment's noise); each a list of values or a range
+        parameter; 1 is the experiment's noise; a scale that takes a parameter out of its range is
+        refused before any work); each a list of values or a range
         ``{"start": a, "stop": b, "num": k}`` (or ``"step"`` instead of ``"num"``).
     progress : bool, optional
         Progress bar on stderr (default: only when stderr is a terminal).
     key : tuple of int
-        Prefix of the simulations' stream keys (a sweep cell passes its own key): the simulations
-        before and after use ``key + (0,)`` and ``key + (1,)``, the doubled noise ``key + (2, 0|1)``,
-        noise sensitivity point ``j`` ``key + (3, j, 0|1)``.
+        Prefix of the simulations' stream keys: the simulations before and after use ``key + (0,)``
+        and ``key + (1,)``, the rescaled noise of the transparency factor ``key + (2, 0|1)``, noise
+        sensitivity point ``j`` (from 0) ``key + (3, j, 0|1)``. The default ``(0,)`` is the key of
+        cell 0, the only cell of an experiment file without a sweep, so that this function gives the
+        numbers of ``supergame run FILE`` and ``supergame assess FILE``; a sweep cell ``c`` passes
+        ``(c,)``.
 
     Returns
     -------
@@ -554,7 +631,8 @@ def assess(source, merger, monitoring=None, lineup=None, run=None, agreement: st
     """
     prepared = prepare_assessment(source, merger, monitoring=monitoring, lineup=lineup, run=run, agreement=agreement,
                                   scheme=scheme, length=length, punishments=punishments, deltas=deltas,
-                                  partial=partial, growth=growth, simulate=simulate, sensitivity=sensitivity)
+                                  partial=partial, growth=growth, simulate=simulate,
+                                  transparency_scale=transparency_scale, sensitivity=sensitivity)
     return run_assessment(prepared, progress=progress, key=key)
 
 
@@ -575,22 +653,27 @@ class PreparedAssessment:
     games: dict
     effective_delta: float
     settings: dict
+    rescaled_monitoring: Any = None
+    noise_monitoring: list = field(default_factory=list)
 
 
 def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, agreement: str = "joint",
                        scheme: str = "grim", length: int | None = None, punishments=(1, 2, 3),
                        deltas=(0.5, 0.6, 0.7, 0.8, 0.9), partial=None, growth: float = 0.02,
-                       simulate: bool = True, sensitivity: dict | None = None) -> PreparedAssessment:
-    """Validate the inputs of :func:`assess` (same parameters), calibrate, build the post-merger market and
-    compile the line-ups; raises :class:`InputError` naming the field. No threshold or simulation is
-    computed yet."""
+                       simulate: bool = True, transparency_scale: float = 2.0,
+                       sensitivity: dict | None = None) -> PreparedAssessment:
+    """Validate the inputs of :func:`assess` (same parameters), calibrate, build the post-merger market,
+    compile the line-ups and build every monitoring setting the simulations will use (the
+    experiment's, the rescaled one of the transparency factor, one per noise-sensitivity scale);
+    raises :class:`InputError` naming the field. No threshold or simulation is computed yet."""
     from .calibration import MarketData, calibrate
     from .engine import RUN_DEFAULTS, check_run, prepare_game
     from .market import Market
     from .merger import Merger, merge
     from .monitoring import Monitoring, monitoring_from_dict
 
-    opts = _check_options(scheme, length, punishments, deltas, partial, growth, simulate, agreement)
+    opts = _check_options(scheme, length, punishments, deltas, partial, growth, simulate, agreement,
+                          transparency_scale)
     data = None
     calibration = None
     if isinstance(source, MarketData):
@@ -616,12 +699,7 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
     runs = dict(RUN_DEFAULTS)
     runs.update({"periods": 500, "replications": 500})
     if run is not None:
-        if not isinstance(run, dict):
-            raise InputError("run", f"must be a table, got {run!r}")
-        for k in run:
-            if k not in RUN_DEFAULTS:
-                raise InputError(f"run.{k}", f"unknown key; allowed: {', '.join(RUN_DEFAULTS)}")
-        runs.update(run)
+        runs.update(refuse_unknown(run, "run", RUN_DEFAULTS))
     pre_ms = pre.spec()
     runs = check_run(n_products=pre_ms.n_products, **runs)
     sens = _check_sensitivity(sensitivity, data)
@@ -646,11 +724,24 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
                 if label == "after" and exc.key.startswith("strategies"):
                     raise InputError(exc.key, f"{exc.message} (in the post-merger line-up)") from None
                 raise
+    # every monitoring setting the simulations will use, validated now (a scale that takes a noise
+    # parameter out of its range is refused, never clipped)
+    rescaled = None
+    noise_mons = []
+    if "noise" in sens and not opts["simulate"]:
+        raise InputError("assess.sensitivity.noise", "varies the simulations' monitoring noise, but assess.simulate "
+                                                     "is false; remove it or set assess.simulate = true")
+    if opts["simulate"]:
+        if _has_noise(mon):
+            rescaled = _scaled(mon, opts["transparency_scale"], "assess.transparency_scale")
+        noise_mons = [_scaled(mon, float(k), f"assess.sensitivity.noise[{j + 1}]")
+                      for j, k in enumerate(sens.get("noise", []))]
     eff_delta = runs["delta"] * (runs["continuation"] if runs["horizon"] == "random" else 1.0)
     settings = {
         "scheme": opts["scheme"], "length": opts["length"], "punishments": opts["punishments"],
         "deltas": opts["deltas"], "partial": opts["partial"], "growth": opts["growth"],
-        "simulate": opts["simulate"], "agreement": opts["agreement"], "run": runs,
+        "simulate": opts["simulate"], "agreement": opts["agreement"],
+        "transparency_scale": opts["transparency_scale"], "run": runs,
         "effective_delta": eff_delta, "monitoring": mon.to_dict(), "lineup": entries,
         "lineup_after": post_entries,
         "sensitivity": {k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in sens.items()},
@@ -659,12 +750,12 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
     }
 
     return PreparedAssessment(opts, data, calibration, merger, mres, mon, runs, sens, entries, post_entries, games,
-                              eff_delta, settings)
+                              eff_delta, settings, rescaled, noise_mons)
 
 
-def run_assessment(p: PreparedAssessment, progress=None, key=(), threads: int | None = None) -> Assessment:
-    """Compute a prepared assessment (see :func:`assess`); ``threads`` caps the simulations' threads
-    (results do not depend on it)."""
+def run_assessment(p: PreparedAssessment, progress=None, key=(0,), threads: int | None = None) -> Assessment:
+    """Compute a prepared assessment (see :func:`assess`, also for ``key``); ``threads`` caps the
+    simulations' threads (results do not depend on it)."""
     from .engine import prepare_game
 
     opts, data, calibration, merger, mres = p.opts, p.data, p.calibration, p.merger, p.mres
@@ -685,24 +776,24 @@ def run_assessment(p: PreparedAssessment, progress=None, key=(), threads: int | 
             for j, label in enumerate(("before", "after")):
                 sides[label].simulation = _run(games[label], runs, key=key + (j,), threads=threads)
                 bar.step(f"simulate {label}")
-            if _has_noise(mon):
+            if p.rescaled_monitoring is not None:
                 for j, (label, mk, ent) in enumerate((("before", pre, entries), ("after", mres.post, post_entries))):
-                    g2 = prepare_game(mk, ent, _scaled(mon, 2.0), opts["agreement"], strict=False)
-                    sides[label].noisier = _run(g2, runs, key=key + (2, j), threads=threads)
-                    bar.step(f"simulate {label}, doubled noise")
+                    g2 = prepare_game(mk, ent, p.rescaled_monitoring, opts["agreement"], strict=False)
+                    sides[label].rescaled = _run(g2, runs, key=key + (2, j), threads=threads)
+                    bar.step(f"simulate {label}, noise x{opts['transparency_scale']:g}")
             else:
                 bar.step()
                 bar.step()
         before, after = sides["before"], sides["after"]
         conclusion = _conclusion(before, after, opts, eff_delta, mres)
         factors = _factors(pre, mres, before, after, opts, eff_delta, mon, bar)
-        sensitivity_out = _sensitivity(data, merger, sens, opts, runs, mon, entries, post_entries, before, after,
-                                       eff_delta, bar, key, threads)
+        sensitivity_out = _sensitivity(data, merger, sens, opts, runs, p.noise_monitoring, entries, post_entries,
+                                       before, after, eff_delta, bar, key, threads)
         if sensitivity_out:
             conclusion["robustness"] = _robustness(sensitivity_out, conclusion)
     finally:
         bar.close()
-    assumptions = _assumptions(calibration, mres, opts, runs, mon, entries)
+    assumptions = _assumptions(calibration, mres, opts, runs, mon, entries, post_entries)
     return Assessment(settings, calibration, mres, before, after, conclusion, factors, sensitivity_out, assumptions)
 
 
@@ -749,13 +840,17 @@ def _none(x):
 
 
 def _conclusion(before: MarketSide, after: MarketSide, opts: dict, delta: float, mres) -> dict:
+    from .merger import difference
+
     hb, ha = _headline(before, opts), _headline(after, opts)
     direction = _compare(hb.market, ha.market)
     sb, sa = _sustains(hb.market, delta), _sustains(ha.market, delta)
     cat = _category(sb, sa)
     out = {
         "scheme": _scheme_label(opts), "threshold_before": _none(hb.market), "threshold_after": _none(ha.market),
-        "change": (_none(ha.market - hb.market) if hb.sustainable and ha.sustainable else None),
+        # within the comparison's tolerance the thresholds are the same, and the change is reported as 0
+        "change": ((0.0 if direction == "unchanged" else _none(difference(ha.market, hb.market)))
+                   if hb.sustainable and ha.sustainable else None),
         "direction": direction, "binding_before": before.names[hb.binding], "binding_after": after.names[ha.binding],
         "delta": delta, "sustainable_before": sb, "sustainable_after": sa, "category": cat,
         "schemes": [],
@@ -770,7 +865,7 @@ def _conclusion(before: MarketSide, after: MarketSide, opts: dict, delta: float,
             "sustainable_before": _sustains(b.market, delta), "sustainable_after": _sustains(a.market, delta)})
     if before.simulation is not None and after.simulation is not None:
         eb, ea = before.simulation.metrics["collusive_share"], after.simulation.metrics["collusive_share"]
-        diff = ea.value - eb.value
+        diff = difference(ea.value, eb.value)
         se = math.sqrt(eb.se ** 2 + ea.se ** 2) if math.isfinite(eb.se) and math.isfinite(ea.se) else math.nan
         z = 1.959963984540054
         sig = bool(math.isfinite(se) and abs(diff) > z * se) if se > 0 else bool(diff != 0)
@@ -845,34 +940,68 @@ def _scheme_threshold(market, opts) -> float:
     return next(f for f in rep.finite if f.T == opts["length"]).market
 
 
+#: Subject of each factor's reading, and whether it takes a plural verb.
+_SUBJECTS = {"firms": ("fewer firms", True), "symmetry": ("more symmetric firms", True),
+             "transparency": ("less monitoring noise", False), "frequency": ("more frequent interaction", False),
+             "growth": ("growing demand", False)}
+
+
+def _reading(key: str, direction: str, iv_dir: str) -> str:
+    """One row of the factor table in words (what its direction cells mean)."""
+    subj, plural = _SUBJECTS[key]
+    make, have = ("make", "have") if plural else ("makes", "has")
+    model = {
+        "facilitates": f"in the model {subj} {make} collusion easier",
+        "hinders": f"in the model {subj} {make} collusion harder",
+        "no effect": f"in the model {subj} {have} no effect on collusion",
+        "mixed": f"in the model {subj} {make} collusion easier in one market and not in the other",
+        "not computed": "the model does not vary this factor here (see the note)",
+        STRUCTURAL: f"structural: by construction of the model {subj} can only make collusion easier (or leave it "
+                    "unchanged), so this is not a computed direction and is not compared with the literature",
+    }[direction]
+    lit = {"facilitates": "easier", "hinders": "harder"}[iv_dir]
+    return f"{model}; Ivaldi et al. (2003): {subj} {make} collusion {lit}"
+
+
 def _factors(pre, mres, before: MarketSide, after: MarketSide, opts: dict, delta: float, mon, bar) -> list:
     rows = []
     measure = f"critical discount factor ({_scheme_label(opts)})"
     pre_ms = pre.spec()
 
-    def row(name, varied, measure_, vals, direction, note=""):
-        iv_dir, iv_text = IVALDI[name]
-        agrees = None if direction in ("not computed", "mixed") else direction == iv_dir
-        rows.append({"factor": name, "varied": varied, "measure": measure_, "values": vals,
-                     "model_direction": direction, "ivaldi_direction": iv_dir, "ivaldi": iv_text,
-                     "agrees": agrees, "note": note})
+    def row(key, varied, measure_, vals, direction, note=""):
+        name, iv_dir, iv_text, basis = IVALDI[key]
+        structural = direction == STRUCTURAL
+        agrees = None if structural or direction in ("not computed", "mixed") else direction == iv_dir
+        rows.append({"key": key, "factor": name, "varied": varied, "measure": measure_, "values": vals,
+                     "model_direction": direction, "structural": structural, "ivaldi_direction": iv_dir,
+                     "ivaldi": iv_text, "ivaldi_basis": basis, "agrees": agrees,
+                     "reading": _reading(key, direction, iv_dir), "note": note})
 
-    # number of firms: the symmetric counterpart with one product fewer
-    n = pre_ms.n_products
+    # fewer firms: symmetric counterparts of the pre-merger market with F and F - 1 firms (firms, not
+    # products: a firm owning several products keeps as many in the counterparts when every firm owns
+    # the same number)
+    F = pre_ms.n_firms
+    counts = np.bincount(pre_ms.owner, minlength=F)
+    k = int(counts[0]) if np.all(counts == counts[0]) else 1
+    per = "single-product firms" if k == 1 else f"firms of {k} products each"
+    notes = []
+    if pre_ms.multi_product and k == 1:
+        notes.append("the pre-merger firms own different numbers of products; the counterparts give each firm one")
+    if F <= 2:
+        notes.append("a duopoly has no symmetric counterpart with fewer firms")
     try:
-        t_n = _scheme_threshold(symmetric_counterpart(pre, n), opts)
-        t_m = _scheme_threshold(symmetric_counterpart(pre, n - 1), opts) if n > 2 else math.nan
-        dirn = _direction_from(t_n, t_m) if n > 2 else "not computed"
-        row("number of firms", f"symmetric counterpart of the pre-merger market: {n} vs {n - 1} single-product firms",
-            measure, {"base": _none(t_n), "varied": _none(t_m), "base_label": f"{n} firms",
-                      "varied_label": f"{n - 1} firms"}, dirn,
-            "fewer firms" + (" lower" if dirn == "facilitates" else " do not lower") + " the threshold"
-            if n > 2 else "a duopoly has no symmetric counterpart with fewer firms")
+        t_n = _scheme_threshold(symmetric_counterpart(pre, n_firms=F, products_per_firm=k), opts)
+        t_m = (_scheme_threshold(symmetric_counterpart(pre, n_firms=F - 1, products_per_firm=k), opts) if F > 2
+               else math.nan)
+        row("firms", f"symmetric counterpart of the pre-merger market: {F} vs {F - 1} {per}", measure,
+            {"base": _none(t_n), "varied": _none(t_m), "base_label": f"{F} firms", "varied_label": f"{F - 1} firms",
+             "products_per_firm": k},
+            _direction_from(t_n, t_m) if F > 2 else "not computed", "; ".join(notes))
     except (InputError, SolverError) as exc:
-        row("number of firms", "symmetric counterpart", measure, {}, "not computed", str(exc))
-    bar.step("factors: number of firms")
+        row("firms", "symmetric counterpart", measure, {}, "not computed", "; ".join([*notes, str(exc)]))
+    bar.step("factors: fewer firms")
 
-    # symmetry: each side against its counterpart with costs and demand made alike
+    # more symmetric firms: each side against its counterpart with costs and demand made alike
     vals, dirs, notes = {}, [], []
     for side in (before, after):
         try:
@@ -887,9 +1016,8 @@ def _factors(pre, mres, before: MarketSide, after: MarketSide, opts: dict, delta
                              + (" (ownership is not)" if a_ms.multi_product else ""))
                 continue
             t_sym = _scheme_threshold(sym, opts)
-            d_ = _direction_from(t_act, t_sym)
             vals[side.label] = {"actual": _none(t_act), "symmetric": _none(t_sym)}
-            dirs.append(d_)
+            dirs.append(_direction_from(t_act, t_sym))
             if side.market.owner is not None:
                 notes.append(f"{side.label}: cost and demand asymmetries removed, ownership asymmetry kept")
         except (InputError, SolverError) as exc:
@@ -897,55 +1025,54 @@ def _factors(pre, mres, before: MarketSide, after: MarketSide, opts: dict, delta
             notes.append(f"{side.label}: {exc}")
     row("symmetry", "each market against its counterpart with mean costs, mean qualities or intercepts and equal "
                     "capacities and shares", measure, vals, _combine(dirs), "; ".join(notes))
-    bar.step("factors: symmetry")
+    bar.step("factors: more symmetric firms")
 
-    # transparency: simulated persistence at the experiment's noise and at twice that noise
-    if before.noisier is not None:
+    # more transparent: simulated persistence at the experiment's noise and at a multiple of it
+    ts = opts["transparency_scale"]
+    if before.rescaled is not None:
         vals, dirs = {}, []
         for side in (before, after):
             e1 = side.simulation.metrics["collusive_share"]
-            e2 = side.noisier.metrics["collusive_share"]
-            vals[side.label] = {"noise": e1.value, "noise_ci": [e1.low, e1.high], "doubled_noise": e2.value,
-                                "doubled_noise_ci": [e2.low, e2.high]}
+            e2 = side.rescaled.metrics["collusive_share"]
+            vals[side.label] = {"noise": e1.value, "noise_ci": [e1.low, e1.high], "scale": ts,
+                                "scaled_noise": e2.value, "scaled_noise_ci": [e2.low, e2.high]}
+            less, more = (e1, e2) if ts > 1 else (e2, e1)
             se = math.sqrt(e1.se ** 2 + e2.se ** 2)
-            if not math.isfinite(se) or abs(e1.value - e2.value) <= 1.959963984540054 * se:
+            if not math.isfinite(se) or abs(less.value - more.value) <= 1.959963984540054 * se:
                 dirs.append("no effect")
             else:
-                dirs.append("facilitates" if e1.value > e2.value else "hinders")
-        row("transparency", "monitoring noise (demand-shock sigma, perception and implementation errors) doubled",
-            "simulated share of collusive periods (95% CI)", vals, _combine(dirs),
+                dirs.append("facilitates" if less.value > more.value else "hinders")
+        row("transparency", f"monitoring noise (demand-shock sigma, perception and implementation errors) multiplied "
+                            f"by {ts:g}", "simulated share of collusive periods (95% CI)", vals, _combine(dirs),
             "less noise means more transparency; 'no effect' when the difference is within 1.96 standard errors")
     else:
-        why = ("the experiment's monitoring has no noise to vary" if settings_noise_free(mon)
+        why = ("the experiment's monitoring has no noise to vary" if not _has_noise(mon)
                else "simulations were not run (assess.simulate = false)")
         row("transparency", "monitoring noise", "simulated share of collusive periods", {}, "not computed", why)
 
-    # frequency of interaction: per-period discount factor delta^(1/k) when firms meet k times as often
-    vals, dirs = {}, []
+    # more frequent interaction: per-interaction discount factor delta^(1/k) when firms meet k times as
+    # often -- a structural property of the model, reported as how far each market is from its threshold
+    vals = {}
     for side in (before, after):
         t = _headline(side, opts).market
         if math.isfinite(_rank(t)) and 0 < t < 1 and 0 < delta < 1:
-            gap = math.log(t) / math.log(delta)
-            vals[side.label] = {"threshold": t, "longest_interval": gap,
+            vals[side.label] = {"threshold": t, "longest_interval": math.log(t) / math.log(delta),
                                 "sustainable_half_as_often": _sustains(t, delta ** 2),
                                 "sustainable": _sustains(t, delta),
                                 "sustainable_twice_as_often": _sustains(t, math.sqrt(delta))}
-            dirs.append("facilitates")
         elif math.isfinite(_rank(t)) and t == 0:
             vals[side.label] = {"threshold": 0.0, "longest_interval": math.inf}
-            dirs.append("no effect")
         else:
             vals[side.label] = {"threshold": _none(t)}
-            dirs.append("no effect")
-    row("frequency of interaction", "firms interact k times as often: the discount factor per interaction becomes "
-                                    "delta^(1/k)", "longest interval between interactions (in periods) that still "
-                                                   "sustains collusion: ln(threshold) / ln(delta)",
-        vals, _combine(dirs), "the thresholds are per interaction; more frequent interaction raises the discount "
-                              "factor per interaction (a structural property of the model)")
+    row("frequency", "firms interact k times as often: the discount factor per interaction becomes delta^(1/k)",
+        "longest interval between interactions (in periods) that still sustains collusion: ln(threshold) / ln(delta)",
+        vals, STRUCTURAL, "the thresholds are per interaction; more frequent interaction raises the discount factor "
+                          "per interaction, which can only help")
 
-    # demand growth: profits growing at rate g make the effective discount factor delta (1 + g)
+    # growing demand: profits growing at rate g make the effective discount factor delta (1 + g) --
+    # structural as well
     g = opts["growth"]
-    vals, dirs = {}, []
+    vals = {}
     for side in (before, after):
         t = _headline(side, opts).market
         up, down = min(delta * (1 + g), 1.0 - 1e-15), delta * (1 - g)
@@ -953,17 +1080,12 @@ def _factors(pre, mres, before: MarketSide, after: MarketSide, opts: dict, delta
                             and delta > 0 else None,
                             "sustainable_declining": _sustains(t, down), "sustainable": _sustains(t, delta),
                             "sustainable_growing": _sustains(t, up)}
-        dirs.append("facilitates" if math.isfinite(_rank(t)) else "no effect")
-    row("demand growth", f"demand growing (declining) by {g:g} per period: effective discount factor delta (1 +/- g)",
+    row("growth", f"demand growing (declining) by {g:g} per period: effective discount factor delta (1 +/- g)",
         "growth per period needed for sustainability, threshold / delta - 1 (negative: the decline tolerated)",
-        vals, _combine(dirs), "assumes every stage profit scales with demand (true of the shipped demand systems when "
-                              "quantities scale; capacities grow with demand)")
+        vals, STRUCTURAL, "assumes every stage profit scales with demand (true of the shipped demand systems when "
+                          "quantities scale; capacities grow with demand)")
     bar.step("factors")
     return rows
-
-
-def settings_noise_free(mon) -> bool:
-    return not _has_noise(mon)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -984,16 +1106,18 @@ def _flips(x: np.ndarray, y: np.ndarray) -> list:
 
 def _signed_change(before: float, after: float) -> float:
     """After minus before, with 'not sustainable' as +1 beyond one: for locating flips."""
+    from .merger import difference
+
     b = before if math.isfinite(_rank(before)) else 2.0
     a = after if math.isfinite(_rank(after)) else 2.0
-    return a - b
+    return difference(a, b)
 
 
-def _sensitivity(data, merger, sens: dict, opts: dict, runs: dict, mon, entries, post_entries, before, after,
-                 delta: float, bar, key=(), threads=None) -> dict:
+def _sensitivity(data, merger, sens: dict, opts: dict, runs: dict, noise_mons: list, entries, post_entries, before,
+                 after, delta: float, bar, key=(0,), threads=None) -> dict:
     from .calibration import calibrate
     from .engine import prepare_game
-    from .merger import merge
+    from .merger import difference, merge
     from .thresholds import partial_collusion
 
     out = {}
@@ -1067,14 +1191,14 @@ def _sensitivity(data, merger, sens: dict, opts: dict, runs: dict, mon, entries,
         for j, k in enumerate(ks):
             for i, (label, mk, ent) in enumerate((("before", before.market, entries),
                                                   ("after", after.market, post_entries))):
-                g = prepare_game(mk, ent, _scaled(mon, float(k)), opts["agreement"], strict=False)
+                g = prepare_game(mk, ent, noise_mons[j], opts["agreement"], strict=False)
                 e = _run(g, runs, key=tuple(key) + (3, j, i), threads=threads).metrics["collusive_share"]
                 res[label].append(e)
             bar.step(f"sensitivity noise x{k:g}")
-        diff = np.array([a.value - b.value for a, b in zip(res["after"], res["before"])])
+        diff = np.array([difference(a.value, b.value) for a, b in zip(res["after"], res["before"])])
         out["noise"] = {
             "scales": np.asarray(ks).tolist(),
-            "monitoring": [_scaled(mon, float(k)).to_dict() for k in ks],
+            "monitoring": [m.to_dict() for m in noise_mons],
             "collusive_share_before": [e.value for e in res["before"]],
             "collusive_share_before_ci": [[e.low, e.high] for e in res["before"]],
             "collusive_share_after": [e.value for e in res["after"]],
@@ -1170,7 +1294,12 @@ def _robustness(sens: dict, conclusion: dict) -> dict:
 # --------------------------------------------------------------------------------------------------
 
 
-def _assumptions(calibration, mres, opts, runs, mon, entries) -> list:
+def _entry_text(entry: dict) -> str:
+    params = ", ".join(f"{k} {v}" for k, v in entry.items() if k != "strategy")
+    return entry["strategy"] + (f" ({params})" if params else "")
+
+
+def _assumptions(calibration, mres, opts, runs, mon, entries, post_entries) -> list:
     pre = mres.pre.spec()
     out = []
     if calibration is not None:
@@ -1197,6 +1326,12 @@ def _assumptions(calibration, mres, opts, runs, mon, entries) -> list:
         out.append(f"simulations: firms follow the strategies of the line-up ({', '.join(strategies)}) rather than "
                    f"optimising; monitoring '{p['signal']}', demand shock {p['noise']} sigma {p['sigma']:g}, "
                    f"perception error {p['perception_error']:g}, implementation error {p['implementation_error']:g}")
+        first = mres.merging[0]
+        others = [mres.names_pre[i] for i in mres.merging[1:]]
+        out.append(f"after the merger the merged firm {mres.names_post[mres.merged]} plays the strategy of "
+                   f"{mres.names_pre[first]}, the lowest-numbered merging firm: "
+                   f"{_entry_text(post_entries[mres.merged])}; the strategies of {' and '.join(others)} are dropped"
+                   " and every other firm keeps its own")
     if pre.multi_product:
         out.append("some pre-merger firms already own several products")
     return out
@@ -1214,7 +1349,7 @@ def assessment_from_dict(doc: dict) -> dict:
     calibrate from, see :class:`~sim.calibration.MarketData`), ``[merger]``, ``[collusion]``
     (``agreement``), ``[monitoring]``, ``[[strategies]]`` (the pre-merger line-up), ``[run]`` and
     ``[assess]`` (``scheme``, ``length``, ``punishments``, ``deltas``, ``partial``, ``growth``,
-    ``simulate`` and a ``[assess.sensitivity]`` table of ranges: lists of values or
+    ``simulate``, ``transparency_scale`` and a ``[assess.sensitivity]`` table of ranges: lists of values or
     ``{start, stop, num}`` / ``{start, stop, step}``). Unknown tables and keys raise
     :class:`InputError` naming them.
 
@@ -1235,12 +1370,7 @@ def assessment_from_dict(doc: dict) -> dict:
                                 "supergame run FILE")
         if k not in ASSESS_TABLES:
             raise InputError(k, f"unknown table for an assessment; allowed: {', '.join(ASSESS_TABLES)}")
-    exp = doc.get("experiment", {})
-    if not isinstance(exp, dict):
-        raise InputError("experiment", "must be a table")
-    for k in exp:
-        if k not in ("name", "kind", "description"):
-            raise InputError(f"experiment.{k}", "unknown key; allowed: name, kind, description")
+    exp = refuse_unknown(doc.get("experiment", {}), "experiment", ("name", "kind", "description"))
     if "kind" in exp and exp["kind"] != "assess":
         raise InputError("experiment.kind", f"this command runs kind = 'assess' experiments, got {exp['kind']!r}")
     if ("market" in doc) == ("data" in doc):
@@ -1251,18 +1381,8 @@ def assessment_from_dict(doc: dict) -> dict:
     if "merger" not in doc:
         raise InputError("merger", "missing: the [merger] table names the merging firms")
     merger = merger_from_dict(doc["merger"])
-    coll = doc.get("collusion", {})
-    if not isinstance(coll, dict):
-        raise InputError("collusion", "must be a table")
-    for k in coll:
-        if k != "agreement":
-            raise InputError(f"collusion.{k}", "unknown key; allowed: agreement")
-    a = doc.get("assess", {})
-    if not isinstance(a, dict):
-        raise InputError("assess", "must be a table")
-    for k in a:
-        if k not in _ASSESS_KEYS:
-            raise InputError(f"assess.{k}", f"unknown key; allowed: {', '.join(_ASSESS_KEYS)}")
+    coll = refuse_unknown(doc.get("collusion", {}), "collusion", ("agreement",))
+    a = refuse_unknown(doc.get("assess", {}), "assess", _ASSESS_KEYS)
     out = {"source": source, "merger": merger, "monitoring": doc.get("monitoring"), "lineup": doc.get("strategies"),
            "run": doc.get("run"), "agreement": coll.get("agreement", "joint")}
     for k in _ASSESS_KEYS:
@@ -1416,7 +1536,7 @@ def _make_kind():
             "Critical discount factors assume perfect monitoring of actions, an infinite horizon and the named "
             "punishment schemes; they say when an agreement can be sustained, not that firms coordinate.",
             "Simulated persistence assumes the firms follow the line-up's strategies under the stated monitoring "
-            "noise.",
+            "noise; after the merger the merged firm plays the strategy of the lowest-numbered merging firm.",
         ),
     )
 

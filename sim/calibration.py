@@ -65,6 +65,7 @@ import numpy as np
 from scipy import optimize
 
 from ._params import Constraint, Integer, Options, Parametrized, PerFirm, Real, optional
+from ._tables import refuse_unknown
 from .errors import InputError, SolverError
 
 __all__ = ["CALIBRATION_DEMANDS", "Calibration", "MarketData", "calibrate", "data_from_dict"]
@@ -375,12 +376,7 @@ class MarketData(Parametrized):
 
 def data_from_dict(table: dict, prefix: str = "data") -> MarketData:
     """Build :class:`MarketData` from an experiment file's ``[data]`` table (unknown keys refused)."""
-    if not isinstance(table, dict):
-        raise InputError(prefix, f"must be a table, got {table!r}")
-    names = MarketData._param_names()
-    for k in table:
-        if k not in names:
-            raise InputError(f"{prefix}.{k}", f"unknown key; allowed: {', '.join(names)}")
+    refuse_unknown(table, prefix, MarketData._param_names())
     if "demand" not in table:
         raise InputError(f"{prefix}.demand", f"missing; one of {', '.join(map(repr, CALIBRATION_DEMANDS))}")
     d = MarketData(**table)

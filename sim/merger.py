@@ -3,7 +3,7 @@
 :func:`merge` builds the market after some firms merge and solves both static equilibria.
 
 * Differentiated products (differentiated linear or logit demand): the merged firm owns every
-  product of its owners and sets their actions jointly (an ``owner`` map, see :mod:`sim.market`);
+  product of its owners and sets their actions (prices or quantities) jointly (an ``owner`` map, see :mod:`sim.market`);
   each product keeps its own marginal cost, less a stated proportional ``efficiency``, or takes the
   stated post-merger ``cost``. This is the merger simulation of Werden and Froeb (1994, "The effects
   of mergers in differentiated products industries: logit demand and merger policy").
@@ -20,6 +20,7 @@ keep their order.
 
 from __future__ import annotations
 
+import math
 import numbers
 from collections.abc import Sequence
 from dataclasses import dataclass, field
@@ -28,9 +29,15 @@ from typing import Any
 import numpy as np
 
 from ._params import Constraint, Parametrized, PerFirm, Real, optional
+from ._tables import refuse_unknown
 from .errors import InputError
 
-__all__ = ["Merger", "MergerResult", "hhi", "merge", "merger_from_dict"]
+__all__ = ["Merger", "MergerResult", "difference", "hhi", "merge", "merger_from_dict"]
+
+#: Relative size (against the larger of one and the two magnitudes) at or below which the difference of
+#: two computed numbers is rounding residue and is reported as 0: a few thousand units in the last place,
+#: far below the solvers' tolerances, so no difference that means anything is hidden.
+RESIDUE = 1e-12
 
 
 class _FirmList(Constraint):
@@ -132,15 +139,20 @@ class Merger(Parametrized):
 
 def merger_from_dict(table: dict, prefix: str = "merger") -> Merger:
     """Build a :class:`Merger` from an experiment file's ``[merger]`` table (unknown keys refused)."""
-    if not isinstance(table, dict):
-        raise InputError(prefix, f"must be a table, got {table!r}")
-    allowed = Merger._param_names()
-    for k in table:
-        if k not in allowed:
-            raise InputError(f"{prefix}.{k}", f"unknown key; allowed: {', '.join(allowed)}")
+    refuse_unknown(table, prefix, Merger._param_names())
     if "firms" not in table:
         raise InputError(f"{prefix}.firms", "missing: the merging firms (numbers or names)")
     return Merger(**table)
+
+
+def difference(new: float, old: float) -> float:
+    """``new - old``, reported as exactly 0 when it is rounding residue (``|new - old| <= RESIDUE *
+    max(1, |new|, |old|)``), e.g. ``1.0 - 0.9999999999999984``; nan when either is nan."""
+    new, old = float(new), float(old)
+    d = new - old
+    if math.isfinite(d) and abs(d) <= RESIDUE * max(1.0, abs(new), abs(old)):
+        return 0.0
+    return d
 
 
 def hhi(shares) -> float:
@@ -199,7 +211,7 @@ class MergerResult:
 
     @property
     def delta_hhi(self) -> float:
-        return self.hhi_post - self.hhi_pre
+        return difference(self.hhi_post, self.hhi_pre)
 
     def price_changes(self) -> list[dict]:
         """Per product of the post-merger market: owner, pre and post price and relative change."""
@@ -209,11 +221,11 @@ class MergerResult:
         if pre_ms.homogeneous_good:
             p0 = _market_price(pre_ms, self.pre_nash)
             p1 = _market_price(ps, self.post_nash)
-            return [{"product": "market", "owner": None, "pre": p0, "post": p1, "change": p1 / p0 - 1.0}]
+            return [{"product": "market", "owner": None, "pre": p0, "post": p1, "change": difference(p1, p0) / p0}]
         for k in range(ps.n_products):
             p0, p1 = float(self.pre_nash.prices[k]), float(self.post_nash.prices[k])
             out.append({"product": k + 1, "owner": self.names_post[int(ps.owner[k])], "pre": p0, "post": p1,
-                        "change": p1 / p0 - 1.0})
+                        "change": difference(p1, p0) / p0})
         return out
 
     def to_dict(self) -> dict:
@@ -341,8 +353,9 @@ def merge(market, merger: Merger, prefix: str = "merger") -> MergerResult:
         post = Market(d.clone(), cost=cost.tolist(), model=ms.model,
                       capacity=None if market.capacity is None else list(np.asarray(ms.capacity, float)),
                       tick=ms.tick, owner=(owner_post + 1).tolist())
-        notes.append(f"the merged firm {names_post[merged]} sets the prices of its {own.size} products jointly; each "
-                     "product keeps its marginal cost" + (f" less an efficiency of {eff:g}" if eff else "")
+        actions = "prices" if ms.model == "bertrand" else "quantities"
+        notes.append(f"the merged firm {names_post[merged]} sets the {actions} of its {own.size} products jointly; "
+                     "each product keeps its marginal cost" + (f" less an efficiency of {eff:g}" if eff else "")
                      + ("; stated post-merger costs" if mv["cost"] is not None else ""))
     try:
         post.spec(prefix)

@@ -11,9 +11,9 @@ import numpy as np
 import pytest
 
 import sim
-from sim import InputError, LinearDemand, Market
+from sim import InputError, LinearDemand, LogitDemand, Market
 from sim._jsonutil import dumps
-from sim.assess import _flips, assess, assessment_from_dict, asymmetry, symmetric_counterpart
+from sim.assess import _flips, assess, assessment_from_dict, asymmetry, prepare_assessment, symmetric_counterpart
 from sim.calibration import MarketData
 from sim.merger import Merger
 
@@ -44,8 +44,9 @@ def test_four_to_three_symmetric_cournot():
     gain = {(p.scheme, p.T, p.delta): p.profit_gain for p in a6.before.partial}
     gain_after = {(p.scheme, p.T, p.delta): p.profit_gain for p in a6.after.partial}
     assert gain_after[("grim", None, 0.6)] == pytest.approx(1.0) and gain[("grim", None, 0.6)] < 1.0
-    # the number-of-firms factor uses the symmetric counterpart: the same formula at 4 and 3 firms
-    row = next(f for f in a.factors if f["factor"] == "number of firms")
+    # the fewer-firms factor uses the symmetric counterpart: the same formula at 4 and 3 firms
+    row = next(f for f in a.factors if f["key"] == "firms")
+    assert row["factor"] == "fewer firms"
     assert row["values"]["base"] == pytest.approx(_f(4), rel=1e-12)
     assert row["values"]["varied"] == pytest.approx(_f(3), rel=1e-12)
     assert row["model_direction"] == "facilitates" and row["agrees"] is True
@@ -105,7 +106,8 @@ def test_persistence_matches_the_geometric_first_breakdown():
     p = a.conclusion["persistence"]
     assert p["collusive_share_after"] > p["collusive_share_before"] and p["significant"]
     # more noise, less persistence: the transparency factor
-    row = next(f for f in a.factors if f["factor"] == "transparency")
+    row = next(f for f in a.factors if f["key"] == "transparency")
+    assert row["factor"] == "more transparent (less noise)"
     assert row["model_direction"] == "facilitates" and row["agrees"] is True
 
 
@@ -127,11 +129,11 @@ def test_frequency_and_growth_rows():
     so the growth needed is threshold / delta - 1."""
     m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
     a = assess(m, Merger([1, 2]), simulate=False, run={"delta": 0.8}, deltas=(), growth=0.05)
-    rows = {f["factor"]: f for f in a.factors}
-    fr = rows["frequency of interaction"]["values"]
+    rows = {f["key"]: f for f in a.factors}
+    fr = rows["frequency"]["values"]
     assert fr["before"]["longest_interval"] == pytest.approx(math.log(25 / 41) / math.log(0.8), rel=1e-12)
     assert fr["after"]["longest_interval"] == pytest.approx(math.log(4 / 7) / math.log(0.8), rel=1e-12)
-    gr = rows["demand growth"]["values"]
+    gr = rows["growth"]["values"]
     assert gr["before"]["growth_needed"] == pytest.approx((25 / 41) / 0.8 - 1, rel=1e-12)
     # an already symmetric market has nothing to symmetrise
     assert rows["symmetry"]["model_direction"] == "not computed"
@@ -247,6 +249,11 @@ def test_post_merger_line_up_keeps_the_first_merging_firms_strategy():
     a = assess(m, Merger([2, 3]), lineup=lineup, monitoring={"perception_error": 0.01}, run=SMALL_RUN, deltas=())
     assert [e["strategy"] for e in a.settings["lineup_after"]] == ["grim_trigger", "finite_punishment"]
     assert a.after.simulation.settings["lineup"][1]["strategy"] == "finite_punishment"
+    # the assumptions say so
+    said = [x for x in a.assumptions if "the merged firm Firm 2 + Firm 3 plays" in x]
+    assert len(said) == 1
+    assert "strategy of Firm 2, the lowest-numbered merging firm: finite_punishment (length 2)" in said[0]
+    assert "the strategies of Firm 3 are dropped" in said[0]
 
 
 def test_assessment_is_json_ready_and_carries_the_caution():
@@ -273,3 +280,114 @@ def test_warning_when_the_agreement_leaves_a_firm_below_its_nash_profit():
     assert "Firm 2 and Firm 3 no more than their static Nash profit" in a.conclusion["statement"]
     p = assess(d, Merger([1, 2]), simulate=False, deltas=(), agreement="proportional")
     assert p.conclusion["warnings"] == [] and 0 < p.conclusion["threshold_before"] < 1
+
+
+FACTOR_NAMES = ["fewer firms", "more symmetric firms", "more transparent (less noise)", "more frequent interaction",
+                "growing demand"]
+
+
+def test_factor_table_names_factors_by_their_direction():
+    """Each factor is named by the change it considers, so that 'facilitates' reads 'this change makes
+    collusion easier', and every direction of Ivaldi et al. (2003) is 'facilitates' under those names:
+    fewer competitors, symmetry, transparency, frequent interaction and demand growth all make tacit
+    collusion easier (section titles III.4 'Frequent interaction facilitates collusion' and III.5
+    'Market transparency facilitates collusion'; the other three from memory). The two structural rows
+    (frequency, growth) are not computed directions: reported as structural, with no 'agree'."""
+    m = Market(LinearDemand(100, 1), cost=[10.0, 10.0, 12.0, 14.0])
+    a = assess(m, Merger([3, 4]), monitoring={"implementation_error": 0.01}, run=SMALL_RUN, deltas=())
+    rows = {f["key"]: f for f in a.factors}
+    assert [f["factor"] for f in a.factors] == FACTOR_NAMES
+    assert {f["ivaldi_direction"] for f in a.factors} == {"facilitates"}
+    for k in ("frequency", "growth"):
+        assert rows[k]["model_direction"] == "structural (by construction)" and rows[k]["structural"]
+        assert rows[k]["agrees"] is None and "not a computed direction" in rows[k]["reading"]
+    # computed rows: linear Cournot thresholds rise with the number of firms, (n+1)^2 / (n^2 + 6n + 1)
+    assert rows["firms"]["model_direction"] == "facilitates" and rows["firms"]["agrees"] is True
+    assert rows["firms"]["reading"].startswith("in the model fewer firms make collusion easier")
+    assert not rows["firms"]["structural"] and not rows["transparency"]["structural"]
+    # the row's words match its cells in every case
+    for f in a.factors:
+        lit = "collusion easier" if f["ivaldi_direction"] == "facilitates" else "collusion harder"
+        assert f["reading"].endswith(lit)
+
+
+def test_fewer_firms_factor_counts_firms_not_products():
+    """Three firms of two logit products each: the factor compares the symmetric counterparts with
+    three and with two firms (of two products each), not six and five products. The market is
+    already symmetric, so its three-firm counterpart is the market itself."""
+    d = LogitDemand(quality=2.0, mu=0.5, size=1.0)
+    m = Market(d, cost=1.0, model="bertrand", owner=[1, 1, 2, 2, 3, 3])
+    a = assess(m, Merger([1, 2]), simulate=False, deltas=())
+    row = next(f for f in a.factors if f["key"] == "firms")
+    v = row["values"]
+    assert (v["base_label"], v["varied_label"], v["products_per_firm"]) == ("3 firms", "2 firms", 2)
+    assert "3 vs 2 firms of 2 products each" in row["varied"]
+    assert v["base"] == pytest.approx(a.conclusion["threshold_before"], rel=1e-12)
+    two = Market(d, cost=1.0, model="bertrand", owner=[1, 1, 2, 2])
+    assert v["varied"] == pytest.approx(sim.critical_discount_factors(two, punishments=()).grim.market, rel=1e-12)
+    # uneven ownership: firms of one product each, and a note saying so
+    u = assess(Market(d, cost=1.0, model="bertrand", owner=[1, 1, 2, 3]), Merger([2, 3]), simulate=False, deltas=())
+    row = next(f for f in u.factors if f["key"] == "firms")
+    assert "3 vs 2 single-product firms" in row["varied"] and "different numbers of products" in row["note"]
+    three = Market(d, cost=1.0, model="bertrand", n_firms=3)
+    assert row["values"]["base"] == pytest.approx(sim.critical_discount_factors(three, punishments=()).grim.market,
+                                                  rel=1e-12)
+
+
+def test_rounding_residue_in_reported_changes_is_zero():
+    """At delta = 0.9 both markets of the shipped scenario sustain the full agreement under grim
+    trigger (thresholds about 0.61 and 0.68), so the profit gains are one up to rounding
+    (0.9999999999999984 after) and the reported change is exactly 0, not -1.554e-15."""
+    from sim._assessreport import assessment_tables
+
+    d = MarketData("logit", prices=[4.2, 3.9, 4.6, 3.7], shares=[0.22, 0.18, 0.12, 0.10], size=5e4, margin=0.35)
+    a = assess(d, Merger([2, 4]), simulate=False, deltas=(0.9,), partial=["grim"])
+    (row,) = assessment_tables(a)["partial_collusion"][1]
+    assert row[2] == pytest.approx(1.0, abs=1e-12) and row[3] == pytest.approx(1.0, abs=1e-12)
+    assert row[4] == 0.0
+    assert all(type(x) in (str, int, float, bool) or x is None for r in assessment_tables(a)["calibration"][1]
+               for x in r)
+
+
+def test_scaled_noise_is_validated_before_any_work():
+    """The transparency factor's rescaled noise and every noise-sensitivity scale are built and
+    checked when the assessment is prepared: a normal shock of sigma 0.2 doubled (0.4) is above the
+    1/3 cap, and scale 3 takes a perception error of 0.4 to 1.2 (above one) -- refused, naming the
+    setting, where before the first failed mid-run and the second was clipped to one."""
+    m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
+    with pytest.raises(InputError) as err:
+        prepare_assessment(m, Merger([1, 2]), monitoring={"noise": "normal", "sigma": 0.2}, run=SMALL_RUN)
+    assert err.value.key == "assess.transparency_scale"
+    assert "monitoring.sigma from 0.2 to 0.4" in err.value.message and "at most 1.667" in err.value.message
+    p = prepare_assessment(m, Merger([1, 2]), monitoring={"noise": "normal", "sigma": 0.2}, run=SMALL_RUN,
+                           transparency_scale=0.5)
+    assert p.rescaled_monitoring.sigma == pytest.approx(0.1)
+    mon = {"perception_error": 0.4}
+    with pytest.raises(InputError) as err:
+        prepare_assessment(m, Merger([1, 2]), monitoring=mon, run=SMALL_RUN, sensitivity={"noise": [1.0, 3.0]})
+    assert err.value.key == "assess.sensitivity.noise[2]"
+    assert "monitoring.perception_error from 0.4 to 1.2" in err.value.message
+    assert "at most 2.5" in err.value.message
+    # the largest scale is allowed, and the scaled values are the products, never clipped
+    a = assess(m, Merger([1, 2]), monitoring=mon, run={**SMALL_RUN, "periods": 20, "replications": 20}, deltas=(),
+               transparency_scale=2.5, sensitivity={"noise": [0.5, 2.5]})
+    assert [x["perception_error"] for x in a.sensitivity["noise"]["monitoring"]] == [0.2, 1.0]
+    assert a.settings["transparency_scale"] == 2.5
+    with pytest.raises(InputError) as err:
+        prepare_assessment(m, Merger([1, 2]), monitoring=mon, simulate=False, sensitivity={"noise": [1.0, 2.0]})
+    assert err.value.key == "assess.sensitivity.noise" and "assess.simulate" in err.value.message
+
+
+def test_default_stream_key_is_that_of_cell_zero():
+    """assess() with no key draws from the streams of cell 0 -- CellContext(index=0).key, the key
+    supergame run gives the one cell of a file without a sweep -- so the library, supergame assess and
+    supergame run give the same numbers for the same file and seed."""
+    from sim.kinds import CellContext
+
+    m = Market(LinearDemand(100, 1), cost=10.0, n_firms=3)
+    kw = {"monitoring": {"perception_error": 0.02}, "run": SMALL_RUN, "deltas": ()}
+    plain = assess(m, Merger([1, 2]), **kw).before.simulation.metrics["collusive_share"].value
+    cell0 = assess(m, Merger([1, 2]), key=CellContext(index=0).key, **kw).before.simulation.metrics
+    assert plain == cell0["collusive_share"].value
+    empty = assess(m, Merger([1, 2]), key=(), **kw).before.simulation.metrics["collusive_share"].value
+    assert plain != empty

@@ -155,3 +155,30 @@ def test_isoelastic_merger_keeps_demand():
     r = merge(m, Merger([2, 3]))
     assert r.post.demand == m.demand and r.post.demand is not m.demand
     np.testing.assert_allclose(r.post.spec().cost, [1.0, 1.5])
+
+
+def test_merger_note_names_the_actions_of_the_model():
+    """A merged firm sets the prices of its products under price competition and their quantities
+    under quantity competition (differentiated Cournot)."""
+    d = sim.DifferentiatedDemand(intercept=[100.0, 90.0, 95.0], slope=1.0, substitution=0.5)
+    cournot = merge(Market(d, cost=10.0, model="cournot"), Merger([1, 2]))
+    assert any("sets the quantities of its 2 products jointly" in n for n in cournot.notes)
+    assert not any("prices" in n for n in cournot.notes)
+    bertrand = merge(Market(d, cost=10.0, model="bertrand"), Merger([1, 2]))
+    assert any("sets the prices of its 2 products jointly" in n for n in bertrand.notes)
+
+
+def test_difference_reports_rounding_residue_as_zero():
+    """Differences of computed numbers within a few thousand units in the last place of their
+    magnitude are rounding, reported as 0 (-1.554e-15 = 0.9999999999999984 - 1 was printed as a
+    change); real differences, however small against the numbers' own precision, are kept."""
+    from sim.merger import difference
+
+    assert difference(0.9999999999999984, 1.0) == 0.0
+    assert difference(1e6 + 1e-7, 1e6) == 0.0
+    assert difference(1.0 + 1e-9, 1.0) == pytest.approx(1e-9)
+    assert difference(0.3, 0.1) == pytest.approx(0.2)
+    assert np.isnan(difference(np.nan, 1.0))
+    # equal prices before and after: a price change of exactly 0
+    m = Market(LinearDemand(10, 1, split=[0.5, 0.3, 0.1, 0.1]), cost=2.0, n_firms=4, model="bertrand")
+    assert merge(m, Merger([3, 4])).price_changes()[0]["change"] == 0.0
