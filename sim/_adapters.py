@@ -25,6 +25,7 @@ from collections import OrderedDict
 import numpy as np
 
 from ._params import Integer, Options, Real
+from ._tables import refuse_unknown
 from .errors import InputError
 from .kinds import CellContext, CellResult, Kind
 
@@ -75,17 +76,8 @@ _COLL_KEYS = ("agreement", "actions")
 _AGREEMENTS = Options("joint", "symmetric", "proportional", "given")
 
 
-def _only(table, name: str, allowed) -> dict:
-    if not isinstance(table, dict):
-        raise InputError(name, f"must be a table, got {table!r}")
-    for k in table:
-        if k not in allowed:
-            raise InputError(f"{name}.{k}", f"unknown key; allowed: {', '.join(allowed)}")
-    return table
-
-
 def _collusion(doc: dict) -> tuple[str, list | None]:
-    coll = _only(doc.get("collusion", {}), "collusion", _COLL_KEYS)
+    coll = refuse_unknown(doc.get("collusion", {}), "collusion", _COLL_KEYS)
     actions = coll.get("actions")
     agreement = _AGREEMENTS.check("collusion.agreement", coll.get("agreement", "given" if actions else "joint"))
     if actions is not None:
@@ -106,7 +98,7 @@ def _prepare_thresholds(doc: dict) -> dict:
     market = market_from_dict(doc["market"])
     ms = market.spec()
     agreement, actions = _collusion(doc)
-    th = _only(doc.get("thresholds", {}), "thresholds", _TH_KEYS)
+    th = refuse_unknown(doc.get("thresholds", {}), "thresholds", _TH_KEYS)
     Ts = th.get("punishments", [1, 2, 3, 5, 10])
     ds = th.get("deltas", [])
     for key, v in (("thresholds.punishments", Ts), ("thresholds.deltas", ds)):
@@ -243,12 +235,13 @@ THRESHOLDS = Kind(
 # ==================================================================================================
 
 _DEV_KEYS = ("firm", "strategy")
-#: the persistence metrics of :func:`sim.metrics.summarize`, in its order
+#: the persistence metrics of :func:`sim.metrics.summarize`, in its order, and the mean length of a
+#: punishment phase (``SimulationResult.punishment_length``) after the price wars
 SIM_METRICS = ("collusive_share", "war_share", "wars_per_replication", "war_frequency", "spell_length", "war_length",
-               "first_breakdown", "broken_down", "price", "overcharge", "consumer_surplus", "joint_profit",
-               "profit_gain")
+               "punishment_length", "first_breakdown", "broken_down", "price", "overcharge", "consumer_surplus",
+               "joint_profit", "profit_gain")
 _FIRM_METRICS = ("profit", "discounted_profit", "profit_gain")
-_ANALYTIC = ("collusive_share", "war_share", "spell_length", "war_length", "first_breakdown")
+_ANALYTIC = ("collusive_share", "war_share", "spell_length", "war_length", "punishment_length", "first_breakdown")
 _STAGE_CACHE: OrderedDict = OrderedDict()
 _STAGE_CACHE_SIZE = 32
 
@@ -337,7 +330,7 @@ def _prepare_simulate(doc: dict) -> dict:
            "actions": actions, "lineup": lineup, "monitoring": cfg["monitoring"], "run": run, "game": game,
            "deviation": None}
     if "deviation" in doc:
-        dt = _only(doc["deviation"], "deviation", _DEV_KEYS)
+        dt = refuse_unknown(doc["deviation"], "deviation", _DEV_KEYS)
         firm = dt.get("firm", "binding")
         if firm == "binding":
             from .thresholds import grim_threshold
@@ -388,16 +381,17 @@ def _scheme_key(entry: dict) -> str:
 
 
 def _schemes(cfg: dict) -> list[str]:
-    from strategies.automata import FinitePunishment, GrimTrigger, Opportunist, StickAndCarrot
+    """Keys of the punishment schemes the line-up plays, by the analytic baseline's own reading of the
+    strategies (an opportunist that never punishes plays none)."""
+    from .baseline import _scheme_of
 
     keys = set()
     for s in cfg["lineup"]:
-        if isinstance(s, GrimTrigger | Opportunist):
-            keys.add("grim")
-        elif isinstance(s, FinitePunishment):
-            keys.add(f"finite_T{int(s.length)}")
-        elif isinstance(s, StickAndCarrot):
-            keys.add("stick_carrot")
+        sch = _scheme_of(s)
+        if sch is None:
+            continue
+        kind, T = sch
+        keys.add(f"finite_T{T}" if kind == "finite" else kind)
     return sorted(keys)
 
 
@@ -446,7 +440,7 @@ def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
     res = summarize(raw, game, {**run, "paths": 0}, confidence=0.95, baseline=True)
     m: dict = {}
     for k in SIM_METRICS:
-        _estimate(m, k, res.metrics[k])
+        _estimate(m, k, res.punishment_length if k == "punishment_length" else res.metrics[k])
     for k in _FIRM_METRICS:
         for i, e in enumerate(res.firm_metrics[k]):
             m[f"{k}.firm{i + 1}"] = e.value
@@ -465,6 +459,8 @@ def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
         a["spell_length"] = tp["expected_collusive_spell"]
         a["war_length"] = _nan(tp["war_length"])
         a["first_breakdown"] = tp["expected_first_breakdown"]
+    if b.get("punishment_length") is not None:
+        a["punishment_length"] = b["punishment_length"]["value"]
     if fb is not None:
         a["first_breakdown"] = fb["expected_within_horizon"] if fb["expected_within_horizon"] is not None \
             else fb["expected"]
@@ -535,7 +531,8 @@ SIMULATE = Kind(
     headline=("collusive_share", "profit_gain", "war_share", "first_breakdown"),
     analytic={"collusive_share": "analytic.collusive_share", "war_share": "analytic.war_share",
               "spell_length": "analytic.spell_length", "war_length": "analytic.war_length",
-              "first_breakdown": "analytic.first_breakdown", "deviation.gain": "analytic.deviation.gain"},
+              "punishment_length": "analytic.punishment_length", "first_breakdown": "analytic.first_breakdown",
+              "deviation.gain": "analytic.deviation.gain"},
     threshold={"run.delta": "analytic.critical_delta"},
     describe=_describe_simulate,
     summary="repeated-game simulation of a line-up of strategies: persistence of collusion",

@@ -31,7 +31,6 @@ Example
 from __future__ import annotations
 
 import base64
-import csv
 import hashlib
 import html
 import io
@@ -57,16 +56,6 @@ def _fmt(v: Any, digits: int) -> str:
     if isinstance(v, float) and math.isnan(v):
         return "-"
     return fmt_num(v, digits)
-
-
-def _csv_value(v: Any) -> str:
-    if v is None:
-        return ""
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, float):
-        return "" if math.isnan(v) else repr(v)
-    return str(v)
 
 
 _TEX = {"\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_", "{": r"\{",
@@ -197,13 +186,11 @@ class Bundle:
         self._claim(name, "table")
         headers = [str(h) for h in headers]
         rows = [list(r) for r in rows]
-        buf = io.StringIO()
-        w = csv.writer(buf, lineterminator="\n")
+        from .store import csv_text
+
         src = csv_rows if csv_rows is not None else (headers, rows)
-        w.writerow(src[0])
-        for r in src[1]:
-            w.writerow([_csv_value(v) for v in r])
-        self._write(f"tables/{name}.csv", buf.getvalue().encode("utf-8"))
+        # the same CSV dialect and number format as the run folder's results.csv
+        self._write(f"tables/{name}.csv", csv_text(list(src[0]), src[1]).encode("utf-8"))
         self._write(f"tables/{name}.tex", latex_table(headers, rows, caption, f"tab:{name}", digits).encode("utf-8"))
         if show:
             self.blocks.append(_Block("table", {"name": name, "headers": headers, "rows": rows, "caption": caption,

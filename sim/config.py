@@ -46,6 +46,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from ._tables import refuse_unknown
 from .errors import InputError
 
 __all__ = [
@@ -59,6 +60,7 @@ __all__ = [
     "canonical_path",
     "experiment_from_dict",
     "load_experiment",
+    "parse_values",
     "value_label",
 ]
 
@@ -68,7 +70,7 @@ MAX_CELLS = 1_000_000
 EXPERIMENT_KEYS = ("name", "kind", "description")
 #: tables every experiment may have, whatever its kind
 COMMON_TABLES = ("experiment", "sweep", "report")
-_RANGE_KEYS = {"start", "stop", "num", "step", "log", "values", "labels"}
+_RANGE_KEYS = ("start", "stop", "num", "step", "log", "values", "labels")
 _SWEEP_RESERVED = ("mode", "zip")
 REPORT_KEYS = ("title", "metrics", "figures")
 #: keys of a ``[[report.figures]]`` entry
@@ -187,10 +189,57 @@ class Parameter:
         return len(self.values)
 
 
-def _range_values(key: str, spec: dict) -> tuple[list, list | None, bool]:
-    for k in spec:
-        if k not in _RANGE_KEYS:
-            raise InputError(f"{key}.{k}", f"unknown key of a sweep range; allowed: {', '.join(sorted(_RANGE_KEYS))}")
+def parse_values(spec: Any, key: str, max_values: int = MAX_CELLS) -> tuple[list, list[str], bool]:
+    """The values of one swept parameter (or of any range of values an experiment file gives).
+
+    This is the one range syntax of experiment files, shared by ``[sweep]`` and the readers of other
+    tables that take ranges (for example the assessment's sensitivity ranges).
+
+    Parameters
+    ----------
+    spec : list or dict
+        A non-empty list of values; or a range table: ``{ start, stop, num }`` (evenly spaced, both
+        ends included), ``{ start, stop, step }``, ``{ start, stop, num, log = true }`` (evenly
+        spaced logarithms), or ``{ values = [...], labels = [...] }`` (labels shown in tables and
+        figures).
+    key : str
+        Key path of ``spec`` in error messages, e.g. ``"sweep.run.delta"``.
+    max_values : int
+        The most values a range may make.
+
+    Returns
+    -------
+    values : list
+        Plain TOML data (integers stay integers when both ends and the step are integers).
+    labels : list of str
+        One distinct label per value (:func:`value_label` unless given).
+    log : bool
+        Whether the values come from a logarithmic range.
+
+    Raises
+    ------
+    InputError
+        Naming ``key`` (or ``key.start``, ``key.num``, ...), what is allowed and what was given; the
+        same value listed twice is refused.
+    """
+    if isinstance(spec, list):
+        if not spec:
+            raise InputError(key, "must be a non-empty list of values")
+        vals, labels, log = list(spec), None, False
+    elif isinstance(spec, dict):
+        vals, labels, log = _range_values(key, spec, max_values)
+    else:
+        raise InputError(key, f"must be a list of values or a range table {{ start, stop, num }}, got {spec!r}")
+    if labels is None:
+        labels = [value_label(v) for v in vals]
+        if len(set(labels)) != len(labels):
+            dup = next(lab for lab in labels if labels.count(lab) > 1)
+            raise InputError(key, f"lists the value {dup} twice")
+    return vals, list(labels), log
+
+
+def _range_values(key: str, spec: dict, max_values: int = MAX_CELLS) -> tuple[list, list | None, bool]:
+    refuse_unknown(spec, key, _RANGE_KEYS)
     if "values" in spec:
         extra = set(spec) - {"values", "labels"}
         if extra:
@@ -222,8 +271,8 @@ def _range_values(key: str, spec: dict) -> tuple[list, list | None, bool]:
     ints = isinstance(start, numbers.Integral) and isinstance(stop, numbers.Integral)
     if "num" in spec:
         num = spec["num"]
-        if isinstance(num, bool) or not isinstance(num, numbers.Integral) or not 1 <= num <= MAX_CELLS:
-            raise InputError(f"{key}.num", f"must be an integer in [1, {MAX_CELLS}], got {num!r}")
+        if isinstance(num, bool) or not isinstance(num, numbers.Integral) or not 1 <= num <= max_values:
+            raise InputError(f"{key}.num", f"must be an integer in [1, {max_values}], got {num!r}")
         num = int(num)
         if num == 1 and start != stop:
             raise InputError(f"{key}.num", f"must be at least 2 for a range from {start!r} to {stop!r}, got 1")
@@ -248,8 +297,8 @@ def _range_values(key: str, spec: dict) -> tuple[list, list | None, bool]:
     if (stop - start) * step < 0:
         raise InputError(f"{key}.step", f"goes the wrong way from {start!r} to {stop!r}, got {step!r}")
     n = math.floor((float(stop) - float(start)) / float(step) + 1e-9) + 1
-    if n > MAX_CELLS:
-        raise InputError(f"{key}.step", f"makes {n} values, more than {MAX_CELLS}")
+    if n > max_values:
+        raise InputError(f"{key}.step", f"makes {n} values, more than {max_values}")
     if ints and isinstance(step, numbers.Integral):
         return [int(start) + k * int(step) for k in range(n)], None, False
     return [_clean(float(start) + k * float(step)) for k in range(n)], None, False
@@ -300,17 +349,7 @@ def _parse_sweep(table: Any) -> tuple[tuple[Parameter, ...], tuple[tuple[str, ..
         if path in seen:
             raise InputError(key, f"the same parameter is swept twice (also as {seen[path]!r})")
         seen[path] = raw
-        if isinstance(spec, list):
-            if not spec:
-                raise InputError(key, "must be a non-empty list of values")
-            vals, labels, log = list(spec), None, False
-        else:
-            vals, labels, log = _range_values(key, spec)
-        if labels is None:
-            labels = [value_label(v) for v in vals]
-            if len(set(labels)) != len(labels):
-                dup = next(lab for lab in labels if labels.count(lab) > 1)
-                raise InputError(key, f"lists the value {dup} twice")
+        vals, labels, log = parse_values(spec, key)
         params.append(Parameter(path, tuple(vals), tuple(labels), log))
     if not params:
         raise InputError("sweep", "names no parameter; give e.g. \"run.delta\" = [0.8, 0.9]")
@@ -434,11 +473,7 @@ class ReportSettings:
 
 
 def _parse_report(table: Any, params: tuple[Parameter, ...]) -> ReportSettings:
-    if not isinstance(table, dict):
-        raise InputError("report", f"must be a table, got {table!r}")
-    for k in table:
-        if k not in REPORT_KEYS:
-            raise InputError(f"report.{k}", f"unknown key; allowed: {', '.join(REPORT_KEYS)}")
+    refuse_unknown(table, "report", REPORT_KEYS)
     title = table.get("title")
     if title is not None and not isinstance(title, str):
         raise InputError("report.title", f"must be a string, got {title!r}")
@@ -455,11 +490,7 @@ def _parse_report(table: Any, params: tuple[Parameter, ...]) -> ReportSettings:
     names = set()
     for i, f in enumerate(figs):
         key = f"report.figures[{i + 1}]"
-        if not isinstance(f, dict):
-            raise InputError(key, f"must be a table, got {f!r}")
-        for k in f:
-            if k not in FIGURE_KEYS:
-                raise InputError(f"{key}.{k}", f"unknown key; allowed: {', '.join(FIGURE_KEYS)}")
+        refuse_unknown(f, key, FIGURE_KEYS)
         typ = f.get("type")
         if typ not in ("heatmap", "line"):
             raise InputError(f"{key}.type", f"must be one of 'heatmap', 'line', got {typ!r}")
@@ -685,11 +716,7 @@ def _experiment_table(doc: dict, default_name: str | None) -> tuple[str, str, st
     if exp is None:
         raise InputError("experiment", f"missing: an experiment file starts with an [experiment] table giving its "
                                        f"kind ({', '.join(known_kinds())})")
-    if not isinstance(exp, dict):
-        raise InputError("experiment", f"must be a table, got {exp!r}")
-    for k in exp:
-        if k not in EXPERIMENT_KEYS:
-            raise InputError(f"experiment.{k}", f"unknown key; allowed: {', '.join(EXPERIMENT_KEYS)}")
+    refuse_unknown(exp, "experiment", EXPERIMENT_KEYS)
     if "kind" not in exp:
         raise InputError("experiment.kind", f"missing; one of {', '.join(map(repr, known_kinds()))}")
     kind = exp["kind"]

@@ -20,7 +20,6 @@ failure (the sweep records the error and goes on).
 
 from __future__ import annotations
 
-import hashlib
 import importlib
 import importlib.util
 import math
@@ -231,7 +230,10 @@ _ENTRY_POINTS_LOADED = False
 
 
 def file_digest(path) -> str:
-    return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+    """SHA-256 of a plugin file (hex)."""
+    from .tomlfile import file_sha256
+
+    return file_sha256(path)
 
 
 def load_plugin_file(path, key: str = "--plugin") -> dict:

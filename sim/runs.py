@@ -29,6 +29,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from .errors import InputError
+from .tomlfile import file_sha256
 
 __all__ = ["RunFolder", "RunSummary", "VerifyResult", "open_run", "run_experiment", "verify_run", "write_manifest"]
 
@@ -50,12 +51,8 @@ def _iso(t: float | None) -> str | None:
     return _dt.datetime.fromtimestamp(t, tz=_dt.UTC).isoformat(timespec="seconds")
 
 
-def sha256_file(path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as f:
-        for chunk in iter(lambda: f.read(1 << 20), b""):
-            h.update(chunk)
-    return h.hexdigest()
+#: SHA-256 of a file (hex), the one digest of the package's manifests
+sha256_file = file_sha256
 
 
 # --------------------------------------------------------------------------------------------------

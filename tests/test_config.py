@@ -9,7 +9,7 @@ from pathlib import Path
 
 import pytest
 
-from sim.config import canonical_path, experiment_from_dict, load_experiment, value_label
+from sim.config import canonical_path, experiment_from_dict, load_experiment, parse_values, value_label
 from sim.errors import InputError
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -171,6 +171,27 @@ def test_sweep_specs_refused():
     assert error_of(doc(sweep={"mode": "zip", "run.delta": [0.8, 0.9], "run.seed": [1]})).key == "sweep.mode"
     assert error_of(doc(sweep={"mode": "grd", "run.delta": [0.8]})).key == "sweep.mode"
     assert error_of(doc(sweep={"run.delta": [0.8], "zip": [["run.delta", "run.seed"]]})).key == "sweep.zip[1]"
+
+
+def test_the_range_parser_is_shared_by_other_tables():
+    """``parse_values``: the sweep's one range syntax, for any table that takes ranges (key given by the
+    caller, a bound of its own on the number of values)."""
+    key = "assess.sensitivity.cost"
+    assert parse_values([3, 1, 2], key) == ([3, 1, 2], ["3", "1", "2"], False)
+    assert parse_values({"start": 1.0, "stop": 2.0, "num": 3}, key) == ([1.0, 1.5, 2.0], ["1.0", "1.5", "2.0"], False)
+    vals, _labels, log = parse_values({"start": 0.01, "stop": 1.0, "num": 3, "log": True}, key)
+    assert vals == [0.01, 0.1, 1.0] and log
+    assert parse_values({"values": [0.5, 2.0], "labels": ["half", "double"]}, key)[1] == ["half", "double"]
+    with pytest.raises(InputError) as e:
+        parse_values({"start": 1, "stop": 5000, "step": 1}, key, max_values=1000)
+    assert e.value.key == f"{key}.step" and "5000 values, more than 1000" in e.value.message
+    with pytest.raises(InputError) as e:
+        parse_values({"start": 1, "stop": 2, "nmu": 3}, key)
+    # the wording of every unknown key of an experiment file (sim._tables.refuse_unknown)
+    assert e.value.key == f"{key}.nmu" and e.value.message.startswith("unknown key; allowed: start, stop, num, step")
+    with pytest.raises(InputError) as e:
+        parse_values(0.5, key)
+    assert e.value.key == key and "0.5" in e.value.message
 
 
 def test_report_figures_validated_against_the_sweep_and_the_metrics():

@@ -179,3 +179,37 @@ def test_plugin_file_registers_a_kind(tmp_path):
     with pytest.raises(sim.InputError) as e:
         load_plugin_file(bad)
     assert e.value.key == "--plugin" and "boom" in e.value.message
+
+
+def test_simulate_reports_the_punishment_length_with_its_analytic_value():
+    """T-period Nash reversion played by every firm with conduct seen exactly: every punishment phase
+    lasts T periods (the scheme's definition, Friedman 1971), whatever the trembles that start it."""
+    d = sim_doc(monitoring={"implementation_error": 0.02},
+                strategies=[{"strategy": "finite_punishment", "length": 3, "seats": 3}],
+                run={"periods": 200, "replications": 40, "delta": 0.9, "seed": 11})
+    res, cfg, _ = run_cell(d)
+    assert "punishment_length" in get_kind("simulate").metric_names(cfg)
+    direct = sim.simulate(sim.market_from_dict(TARNVALE), d["strategies"], d["monitoring"], periods=200,
+                          replications=40, delta=0.9, seed=11, agreement="proportional", key=(0,), progress=False)
+    assert res.metrics["punishment_length"] == direct.punishment_length.value
+    assert res.metrics["punishment_length.high"] == direct.punishment_length.high
+    assert res.metrics["analytic.punishment_length"] == 3.0
+    assert res.metrics["punishment_length"] == pytest.approx(3.0, abs=1e-12)
+    # grim trigger has no fixed punishment length: no analytic value
+    res, _, _ = run_cell(sim_doc(monitoring={"implementation_error": 0.02}))
+    assert math.isnan(res.metrics["analytic.punishment_length"])
+
+
+@pytest.mark.parametrize("after, grim", [("collude", False), ("nash", True)])
+def test_an_opportunist_that_never_punishes_plays_no_grim_trigger(after, grim):
+    d = sim_doc(strategies=[{"strategy": "opportunist", "probability": 0.1, "after": after, "seats": 3}])
+    e = experiment_from_dict(d)
+    assert ("analytic.critical_delta.grim" in e.metric_names) is grim
+    res, _, _ = run_cell(d)
+    assert set(res.metrics) == set(e.metric_names)
+    if grim:
+        # Nash reversion forever after any deviation: the grim-trigger threshold of the agreement
+        st = sim.stage_game(sim.market_from_dict(TARNVALE), "proportional")
+        c, dv, n = (np.asarray(x) for x in (st.collusive.firm_profits, st.deviation_profits, st.nash.firm_profits))
+        assert res.metrics["analytic.critical_delta.grim"] == pytest.approx(float(np.max((dv - c) / (dv - n))),
+                                                                            rel=1e-9)
