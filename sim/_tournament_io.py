@@ -25,23 +25,13 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
+# one check-and-create of output folders for the simulation and tournament figures and tables
+from ._simplots import _outdir as output_dir
+from ._simplots import _pyplot
 
 __all__ = ["output_dir", "tournament_figures", "tournament_json", "write_tables"]
 
 _METRICS = ("profit_gain", "discounted_profit", "profit")
-
-
-def output_dir(path, key: str) -> Path:
-    """Create the directory (refusing a path that is a file)."""
-    d = Path(path)
-    if d.exists() and not d.is_dir():
-        raise InputError(key, f"{path} exists and is not a directory")
-    try:
-        d.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise InputError(key, f"cannot create the directory {path} ({exc.strerror})") from None
-    return d
 
 
 def _cell(x):
@@ -110,7 +100,8 @@ def write_tables(result, directory, evolution=None, summary: str | None = None, 
         s = rec.stream
         stream = "key " + " ".join(map(str, s["key"])) if "key" in s else f"cell {s['cell']}"
         for seat, e in enumerate(rec.lineup):
-            r = [rec.index, rec.group, "learning" if rec.learning else "automata", seat + 1, labels[e], rec.n_reps]
+            r = [rec.index + 1, rec.group + 1, "learning" if rec.learning else "automata", seat + 1, labels[e],
+                 rec.n_reps]
             for m in _METRICS:
                 est = rec.metric(m)[seat]
                 r += [est.value, est.se]
@@ -126,7 +117,7 @@ def write_tables(result, directory, evolution=None, summary: str | None = None, 
     for g, grp in enumerate(plan.groups):
         members = " + ".join(labels[e] for e in grp)
         for e in sorted(set(grp)):
-            r = [g, members, labels[e]]
+            r = [g + 1, members, labels[e]]
             for m in _METRICS:
                 v, s = result.group_payoffs[m]
                 r += [v[g, e], s[g, e]]
@@ -198,15 +189,6 @@ def _z(confidence: float) -> float:
 # --------------------------------------------------------------------------------------------------
 # Figures
 # --------------------------------------------------------------------------------------------------
-
-
-def _pyplot():
-    import matplotlib
-
-    matplotlib.use("Agg", force=True)
-    import matplotlib.pyplot as plt
-
-    return plt
 
 
 def tournament_figures(result, directory, evolution=None, key: str = "--plot") -> list[Path]:

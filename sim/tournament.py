@@ -43,7 +43,13 @@ Scores
 ------
 For every match and seat, the engine's estimators (:mod:`sim.metrics`) give the mean profit per
 period (ratio of totals), the mean discounted profit and the profit gain
-``(profit - Nash) / (collusive - Nash)`` of the seat's firm. A group's payoff to a member is the
+``(profit - Nash) / (collusive - Nash)`` of the seat's firm. The collusive profit is that of the
+agreement (``collusion.agreement``); without one, the tournament takes the joint-profit maximum where
+firms are symmetric and the static-Nash quantities scaled down in proportion where they differ
+(:func:`default_agreement`: the joint maximum would shut costlier firms down below their Nash profit).
+The profit gain of a firm whose collusive profit is not above its Nash profit would fall as its profit
+rises, so it is undefined (nan) for that firm, and a tournament ranked by profit gain refuses such an
+agreement before anything is played. A group's payoff to a member is the
 average over its seatings and over the member's seats. An entrant's *score* is its expected payoff
 when its ``n - 1`` rivals are drawn independently and uniformly from the entrants: the groups are
 weighted by the multinomial probability of the rivals, ``(n-1)! / prod c_e! / E^(n-1)`` (with two seats:
@@ -81,6 +87,7 @@ from numba import njit, prange
 
 from ._params import Integer, Options, Real, optional
 from ._rng import ReferenceStream, next_u64, stream_states
+from ._tables import refuse_unknown
 from .errors import InputError
 
 __all__ = [
@@ -247,8 +254,8 @@ class Match:
         Index of the group (multiset) in :attr:`TournamentPlan.groups`.
     learning : bool
         Played as learning sessions (it seats a learner).
-    game : sim.engine.Game or None
-        The compiled automaton match.
+    game : sim.engine.Game or sim.learning.Lineup
+        The compiled match: the engine's game (automata) or the learning line-up.
     """
 
     index: int
@@ -304,6 +311,17 @@ class TournamentPlan:
         return [e.label for e in self.entrants]
 
     @property
+    def mon_tremble(self) -> bool:
+        """Whether implementation errors substitute the deviation action."""
+        return float(self.monitoring["implementation_error"]) > 0
+
+    @property
+    def gain_defined(self) -> np.ndarray:
+        """Per firm: its collusive profit exceeds its Nash profit, so its profit gain is defined (see
+        :func:`gain_defined`); bool ndarray of shape (n_firms,)."""
+        return gain_defined(self.nash, self.collusive)
+
+    @property
     def has_learners(self) -> bool:
         return any(e.learns for e in self.entrants)
 
@@ -334,10 +352,10 @@ def _rekey(exc: InputError, seat_to_entrant: dict, prefix: str = "entrants") -> 
 
 def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None = None, periods: int = 1000,
                        replications: int = 1000, delta: float = 0.95, seed: int = 0, horizon: str = "fixed",
-                       continuation: float = 0.99, agreement: str = "joint", actions=None, seatings: str = "auto",
-                       score: str = "profit_gain", confidence: float = 0.95, bootstrap: int = 1000,
-                       sessions: int | None = None, convergence: int = 100_000, max_periods: int = 1_000_000_000,
-                       key=()) -> TournamentPlan:
+                       continuation: float = 0.99, agreement: str | None = None, actions=None,
+                       seatings: str = "auto", score: str = "profit_gain", confidence: float = 0.95,
+                       bootstrap: int = 1000, sessions: int | None = None, convergence: int = 100_000,
+                       max_periods: int = 1_000_000_000, key=()) -> TournamentPlan:
     """Validate everything and compile every match; nothing is played (see :func:`tournament`)."""
     from .engine import _as_monitoring, check_run, compile_game, stage_levels
     from .market import MarketSpec
@@ -379,7 +397,7 @@ def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None =
         if ms.multi_product:
             raise InputError("market.owner", f"learning entrants (such as {lab!r}) set one action per firm: "
                                              "multi-product firms are not supported")
-        if agreement != "joint" or actions is not None:
+        if (agreement is not None and agreement != "joint") or actions is not None:
             raise InputError("collusion.agreement", f"learning entrants (such as {lab!r}) play through "
                                                     "sim.learning.learn, whose automata collude on the joint-profit "
                                                     f"outcome; use agreement = 'joint' when a learner enters, got "
@@ -391,7 +409,10 @@ def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None =
                                                     f"see every action; must be {what!r} when one enters, got "
                                                     f"{mon[k]!r}")
 
-    stage, levels = stage_levels(ms, agreement, actions)
+    chosen = agreement if agreement is not None else default_agreement(ms, bool(learners), actions)
+    stage, levels = stage_levels(ms, chosen, actions)
+    pi_n, pi_c = _benchmark_profits(ms, stage)
+    _check_gains(pi_n, pi_c, stage.agreement, agreement is None, s["score"], bool(learners))
     # each automaton entrant alone, in every seat: its parameters against this market and monitoring
     for k, e in enumerate(ents):
         if e.learns:
@@ -419,7 +440,7 @@ def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None =
             if m.learning:
                 from .learning import compile_lineup as compile_learners
 
-                compile_learners(ms, lineup, workers=1, seat_prefix="entrants")
+                m.game = compile_learners(ms, lineup, workers=1, seat_prefix="entrants")
             else:
                 m.game = compile_game(stage, levels, lineup, mon_obj, prefix="entrants", strict=False)
         except InputError as exc:
@@ -427,15 +448,77 @@ def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None =
             raise InputError(exc2.key, f"{exc2.message} (in the match "
                                        f"{' vs '.join(ents[e].label for e in m.lineup)})") from None
 
+    settings = {**s, "seats": n, "seatings_played": "all" if every else "one", "key": list(key),
+                "agreement": stage.agreement, "agreement_given": agreement is not None, "groups": len(groups),
+                "matches": len(matches)}
+    return TournamentPlan(ms, ents, mon, stage, levels, groups, matches, run, settings, pi_n, pi_c, group_seatings)
+
+
+def default_agreement(market, learners: bool = False, actions=None) -> str:
+    """The collusive outcome a tournament refers to when ``collusion.agreement`` is not given.
+
+    * ``"given"`` when actions are given;
+    * ``"joint"`` (the joint-profit maximum) when the firms are symmetric -- it is then the symmetric
+      outcome every firm prefers to the static Nash equilibrium -- and when a learning entrant enters
+      (:func:`sim.learning.learn` resolves the automata's levels against it), and in homogeneous
+      Bertrand markets (where ``"proportional"`` is not defined);
+    * ``"proportional"`` otherwise: where firms differ, the joint-profit maximum typically shuts the
+      costlier firms down (under Cournot with constant marginal costs the cheapest firm produces
+      everything), leaving them below their Nash profit, which no tacit agreement can ask of a firm
+      without side payments. Scaling the static-Nash quantities down in proportion (Schmalensee, 1987,
+      "Competitive advantage and collusive optima", Int. J. Ind. Organ. 5) keeps every firm's share and,
+      in the usual markets, raises every firm's profit above Nash. Whatever the agreement, a tournament
+      ranked by profit gain checks that every firm gains (see :func:`prepare_tournament`).
+    """
+    from .market import MarketSpec
+
+    ms = market if isinstance(market, MarketSpec) else market.spec()
+    if actions is not None:
+        return "given"
+    if ms.symmetric or learners or ms.homogeneous_bertrand:
+        return "joint"
+    return "proportional"
+
+
+def _benchmark_profits(ms, stage) -> tuple[np.ndarray, np.ndarray]:
+    """Per-firm profit per period at the static Nash and the collusive profiles (as the kernel evaluates them)."""
     from ._stagecore import evaluate_py, market_arrays
 
     arrays = market_arrays(ms)
     _, _, pi_n, _, _ = evaluate_py(arrays, np.asarray(stage.nash.actions, dtype=float))
     _, _, pi_c, _, _ = evaluate_py(arrays, np.asarray(stage.collusive.actions, dtype=float))
-    settings = {**s, "seats": n, "seatings_played": "all" if every else "one", "key": list(key),
-                "agreement": stage.agreement, "groups": len(groups), "matches": len(matches)}
-    return TournamentPlan(ms, ents, mon, stage, levels, groups, matches, run, settings, np.asarray(pi_n, float),
-                          np.asarray(pi_c, float), group_seatings)
+    return np.asarray(pi_n, dtype=float), np.asarray(pi_c, dtype=float)
+
+
+def gain_defined(nash, collusive) -> np.ndarray:
+    """Whether each firm's profit gain ``(profit - Nash) / (collusive - Nash)`` is defined: its collusive
+    profit exceeds its Nash profit (beyond rounding). Where it does not, the ratio would fall as the firm's
+    profit rises (or divide by zero), so the gain is reported as undefined."""
+    nash = np.asarray(nash, dtype=float)
+    collusive = np.asarray(collusive, dtype=float)
+    tol = 1e-12 * np.maximum(1.0, np.maximum(np.abs(nash), np.abs(collusive)))
+    return (collusive - nash) > tol
+
+
+def _check_gains(pi_n, pi_c, agreement: str, defaulted: bool, score: str, learners: bool) -> None:
+    """Refuse, for the profit-gain score, an agreement under which some firm earns no more than at Nash."""
+    from ._text import fmt_num
+
+    ok = gain_defined(pi_n, pi_c)
+    if score != "profit_gain" or ok.all():
+        return
+    i = int(np.flatnonzero(~ok)[0])
+    how = f"the default agreement {agreement!r}" if defaulted else f"agreement = {agreement!r}"
+    if learners:
+        fix = ("learning entrants need agreement = 'joint': rank by tournament.score = 'discounted_profit' or "
+               "'profit' instead")
+    else:
+        fix = ("choose an agreement under which every firm gains (for example 'proportional', or given actions) "
+               "or rank by tournament.score = 'discounted_profit' or 'profit'")
+    raise InputError("collusion.agreement",
+                     f"under {how} firm {i + 1} earns {fmt_num(float(pi_c[i]))} per period, no more than its static-"
+                     f"Nash profit {fmt_num(float(pi_n[i]))}, so its profit gain (profit - Nash) / (collusive - Nash) "
+                     f"would score a lower profit higher; {fix}")
 
 
 # --------------------------------------------------------------------------------------------------
@@ -566,7 +649,9 @@ class TournamentResult:
         p = self.plan
         out = {
             "settings": self.settings(),
-            "benchmarks": {"nash_profit": p.nash.tolist(), "collusive_profit": p.collusive.tolist()},
+            "benchmarks": {"agreement": p.settings["agreement"], "agreement_given": p.settings["agreement_given"],
+                           "nash_profit": p.nash.tolist(), "collusive_profit": p.collusive.tolist(),
+                           "profit_gain_defined": p.gain_defined.tolist()},
             "score": self.score,
             "ranking": [{"rank": int(self.ranks[e]), "label": labels[e], "strategy": p.entrants[e].name,
                          **{m: self.scores[m][e].to_dict() for m in SCORES},
@@ -575,7 +660,7 @@ class TournamentResult:
                         for e in self.order],
             "rank_stability": ({k: v for k, v in self.stability.items() if k != "per_entrant"}
                                if self.stability else None),
-            "groups": [{"members": [labels[e] for e in g],
+            "groups": [{"group": gi + 1, "members": [labels[e] for e in g],
                         "payoffs": {labels[e]: {m: {"value": float(self.group_payoffs[m][0][gi, e]),
                                                     "se": float(self.group_payoffs[m][1][gi, e])}
                                                 for m in SCORES}
@@ -598,7 +683,9 @@ def _market_dict(ms) -> dict:
 
 
 def _match_dict(r: MatchRecord, plan: TournamentPlan, replications: bool) -> dict:
-    out = {"index": r.index, "seats": [plan.entrants[e].label for e in r.lineup], "group": r.group,
+    # matches and groups are numbered from 1, like seats, firms and entrants (the stream key keeps the
+    # match's position from 0, as sim.engine.simulate takes it)
+    out = {"match": r.index + 1, "seats": [plan.entrants[e].label for e in r.lineup], "group": r.group + 1,
            "kind": "learning sessions" if r.learning else "automata", "replications": r.n_reps,
            "stream": r.stream,
            "profit": [e.to_dict() for e in r.profit],
@@ -680,13 +767,14 @@ def _estimates(plan: TournamentPlan, ps, disc, per, coll, z_conf: float):
     from .metrics import mean_estimate, ratio_estimate
 
     n = ps.shape[1]
+    ok = plan.gain_defined
     profit, dprof, gain = [], [], []
     for s in range(n):
         e = ratio_estimate(ps[:, s], per, z_conf)
         profit.append(e)
         dprof.append(mean_estimate(disc[:, s], z_conf))
-        gap = float(plan.collusive[s] - plan.nash[s])
-        if abs(gap) > 1e-12 * max(1.0, abs(float(plan.collusive[s]))):
+        if ok[s]:
+            gap = float(plan.collusive[s] - plan.nash[s])
             gain.append(e.affine(-float(plan.nash[s]) / gap, 1.0 / gap))
         else:
             from .metrics import Estimate
@@ -770,7 +858,7 @@ def _member_series(plan: TournamentPlan, rec: MatchRecord, e: int, metric: str):
         return rec.discounted[:, seats].mean(axis=1), None
     if metric == "profit":
         return rec.profit_sum[:, seats].mean(axis=1), per
-    gaps = plan.collusive[seats] - plan.nash[seats]
+    gaps = np.where(plan.gain_defined[seats], plan.collusive[seats] - plan.nash[seats], np.nan)
     u = ((rec.profit_sum[:, seats] - plan.nash[seats][None, :] * per[:, None]) / gaps[None, :]).mean(axis=1)
     return u, per
 
@@ -919,7 +1007,8 @@ def _bootstrap_arrays(plan: TournamentPlan, records: list, W: np.ndarray, metric
             wgt[k, s] = W[r.group, e] / (n_seat * r.lineup.count(e))
     if metric == "profit_gain":
         shift = np.ascontiguousarray(plan.nash, dtype=np.float64)
-        scale = np.ascontiguousarray(plan.collusive - plan.nash, dtype=np.float64)
+        # an undefined gain (see gain_defined) stays undefined in every resample
+        scale = np.ascontiguousarray(np.where(plan.gain_defined, plan.collusive - plan.nash, np.nan), dtype=np.float64)
     else:
         shift, scale = np.zeros(n), np.ones(n)
     mode = {"profit_gain": 0, "profit": 0, "discounted_profit": 1}[metric]
@@ -1098,7 +1187,7 @@ def _rank_stability(plan: TournamentPlan, records: list, ranks: np.ndarray, thre
 
 def tournament(market, entrants, monitoring=None, *, seats: int | None = None, periods: int = 1000,
                replications: int = 1000, delta: float = 0.95, seed: int = 0, horizon: str = "fixed",
-               continuation: float = 0.99, agreement: str = "joint", actions=None, seatings: str = "auto",
+               continuation: float = 0.99, agreement: str | None = None, actions=None, seatings: str = "auto",
                score: str = "profit_gain", confidence: float = 0.95, bootstrap: int = 1000,
                sessions: int | None = None, convergence: int = 100_000, max_periods: int = 1_000_000_000,
                threads: int | None = None, progress=None, key=()) -> TournamentResult:
@@ -1117,7 +1206,8 @@ def tournament(market, entrants, monitoring=None, *, seats: int | None = None, p
     periods, replications, delta, seed, horizon, continuation :
         As in :func:`sim.engine.simulate`, for every automaton match.
     agreement, actions :
-        The collusive outcome the levels refer to.
+        The collusive outcome the levels and the profit gain refer to (default: :func:`default_agreement`).
+        With ``score = "profit_gain"`` every firm must earn more there than at the static Nash equilibrium.
     seatings : {"auto", "all", "one"}
         ``auto``: every seating where firms differ, one where they are symmetric.
     score : {"profit_gain", "discounted_profit", "profit"}
@@ -1165,16 +1255,6 @@ EVOLUTION_DEFAULTS = {"generations": 1000, "shares": None, "selection": 0.1, "fi
                       "population": 100, "moran_runs": 10_000}
 
 
-def _only(table, name: str, allowed) -> dict:
-    if not isinstance(table, dict):
-        raise InputError(name, f"must be a table, got {table!r}")
-    for k in table:
-        if k not in allowed:
-            extra = " (full paths are not recorded in tournaments)" if name == "run" and k == "paths" else ""
-            raise InputError(f"{name}.{k}", f"unknown key{extra}; allowed: {', '.join(allowed)}")
-    return dict(table)
-
-
 def tournament_from_dict(doc: dict, check_tables: bool = True) -> dict:
     """Read and validate the tables of a ``kind = "tournament"`` experiment.
 
@@ -1189,26 +1269,33 @@ def tournament_from_dict(doc: dict, check_tables: bool = True) -> dict:
 
     if not isinstance(doc, dict):
         raise InputError("", "an experiment must be a table")
+    # the kind first: a file of another kind fails on experiment.kind, not on the tables it has
+    exp = refuse_unknown(doc.get("experiment", {}), "experiment", ("name", "kind", "description"))
+    if "kind" in exp and exp["kind"] != "tournament":
+        raise InputError("experiment.kind", f"this command runs kind = 'tournament' experiments, got {exp['kind']!r}")
     if check_tables:
         for k in doc:
             if k not in TOURNAMENT_TABLES:
                 raise InputError(k, f"unknown table for a tournament; allowed: {', '.join(TOURNAMENT_TABLES)}")
-    exp = _only(doc.get("experiment", {}), "experiment", ("name", "kind", "description"))
-    if "kind" in exp and exp["kind"] != "tournament":
-        raise InputError("experiment.kind", f"this command runs kind = 'tournament' experiments, got {exp['kind']!r}")
-    tour = _only(doc.get("tournament", {}), "tournament", TOURNAMENT_KEYS)
-    runt = _only(doc.get("run", {}), "run", RUN_KEYS)
-    lt = _only(doc.get("learning", {}), "learning", LEARNING_KEYS)
-    coll = _only(doc.get("collusion", {}), "collusion", ("agreement", "actions"))
+    tour = refuse_unknown(doc.get("tournament", {}), "tournament", TOURNAMENT_KEYS)
+    runt = doc.get("run", {})
+    if isinstance(runt, dict) and "paths" in runt:
+        raise InputError("run.paths", f"unknown key (full paths are not recorded in tournaments); allowed: "
+                                      f"{', '.join(RUN_KEYS)}")
+    runt = refuse_unknown(runt, "run", RUN_KEYS)
+    lt = refuse_unknown(doc.get("learning", {}), "learning", LEARNING_KEYS)
+    coll = refuse_unknown(doc.get("collusion", {}), "collusion", ("agreement", "actions"))
     if "market" not in doc:
         raise InputError("market", "missing: the [market] table describes the market")
     mtab = doc["market"]
     if not isinstance(mtab, dict):
         raise InputError("market", f"must be a table, got {mtab!r}")
-    market = market_from_dict(mtab)
-    if "seats" in tour and "n_firms" not in mtab and not any(isinstance(v, list) for v in mtab.values()):
+    if "seats" in tour:
+        # checked before the market: with single-number costs the seats give the number of firms
         seats = Integer(2, 64).check("tournament.seats", tour["seats"])
-        market = market_from_dict({**mtab, "n_firms": seats})
+        if "n_firms" not in mtab and not any(isinstance(v, list) for v in mtab.values()):
+            mtab = {**mtab, "n_firms": seats}
+    market = market_from_dict(mtab)
     mon = monitoring_from_dict(doc.get("monitoring", {}))
     if "entrants" not in doc:
         raise InputError("entrants", "missing: give the entrants as [[entrants]] entries (label, strategy, ...)")
@@ -1227,7 +1314,8 @@ def tournament_from_dict(doc: dict, check_tables: bool = True) -> dict:
     for k in ("convergence", "max_periods", "sessions"):
         if k in lt:
             args[k] = lt[k]
-    args["agreement"] = coll.get("agreement", "joint")
+    # without collusion.agreement the plan chooses one (see default_agreement)
+    args["agreement"] = coll.get("agreement")
     if "actions" in coll:
         args["actions"] = coll["actions"]
         args["agreement"] = coll.get("agreement", "given")
@@ -1251,9 +1339,141 @@ def check_experiment(cfg: dict) -> TournamentPlan:
     EVOLUTION_CONSTRAINTS["runs"].check("tournament.moran_runs", ev["moran_runs"])
     mapping = Options(*FITNESS_MAPS).check("tournament.fitness", ev["fitness"])
     hi = 1 if mapping == "linear" else None
-    Real(0, hi, closed="right" if hi else "neither").check("tournament.selection", ev["selection"])
+    w = Real(0, hi, closed="right" if hi else "neither").check("tournament.selection", ev["selection"])
     _check_shares(ev["shares"], len(plan.entrants), plan.labels, "tournament.shares")
+    if mapping == "linear":
+        _check_linear_selection(plan, w)
     return plan
+
+
+#: the most action profiles :func:`payoff_floor` evaluates
+MAX_PROFILES = 500_000
+
+
+def _seat_actions(plan: TournamentPlan) -> list[list[np.ndarray]]:
+    """Every action (vector over the firm's products) each seat can play in some match: the levels its
+    automaton's states play (whether or not the state is reached), its cheating level where it cheats, the
+    action an implementation error substitutes, and a learning match's action grids."""
+    from strategies import _step as SS
+
+    from ._stagecore import market_owner
+
+    ms = plan.market
+    owner = market_owner(ms)
+    prods = [np.flatnonzero(owner == i) for i in range(ms.n_firms)]
+    seen: list[dict] = [{} for _ in range(ms.n_firms)]
+    tremble = plan.mon_tremble
+    for m in plan.matches:
+        if m.learning:
+            for i in range(ms.n_firms):
+                for a in np.asarray(m.game.grids[i], dtype=float):
+                    seen[i].setdefault((float(a),), np.array([a], dtype=float))
+            continue
+        cl = m.game.lineup
+        for i in range(ms.n_firms):
+            ns = int(cl.firms[i, SS.N_STATES])
+            used = set(cl.states[i, :ns, SS.ACTION].tolist())
+            if (np.any(cl.probs[i, :ns, SS.P_CHEAT] > 0)
+                    and cl.firms[i, SS.CHEAT_FROM] < cl.firms[i, SS.CHEAT_UNTIL]):
+                used.add(int(cl.firms[i, SS.CHEAT_LEVEL]))
+            for lev in sorted(used):
+                row = cl.levels[i, lev, prods[i]]
+                seen[i].setdefault(tuple(row.tolist()), row.astype(float))
+            if tremble:
+                row = np.asarray(m.game.tremble, dtype=float)[prods[i]]
+                seen[i].setdefault(tuple(row.tolist()), row)
+    return [list(d.values()) for d in seen]
+
+
+def payoff_floor(plan: TournamentPlan, metric: str | None = None) -> tuple[float, str]:
+    """A lower bound, known before any match is played, of every payoff the tournament can give an entrant
+    under ``metric`` (default: the ranking score), and where it is reached.
+
+    Every seat's profit in every period is at least its profit at the worst action profile the seats can
+    play (:func:`_seat_actions`, every combination, evaluated as the stage game does). With a demand
+    shock ``theta`` (mean one, any value in ``[0, inf)``) a firm's profit is affine in ``theta`` (the
+    shock scales the price under Cournot, the quantity under Bertrand), so its floor is its profit at
+    ``theta = 0`` where the profit rises with ``theta``, and there is none where it falls. A mean profit
+    per period is at least the floor ``lo``; a discounted profit at least ``min(lo, 0)`` times the sum of
+    the discount weights of the horizon; a profit gain at least ``(lo - Nash) / (collusive - Nash)``. An
+    entrant's payoffs average its seats' values, so the smallest seat floor bounds them all.
+
+    Returns
+    -------
+    floor : float
+        ``-inf`` when the payoff has no lower bound (or the profiles are too many to evaluate).
+    where : str
+        What gives the floor, for messages.
+
+    Each seat's actions combine with every action of every other seat, whether or not the two ever meet in
+    one period, so the floor can lie below the payoffs the tournament actually produces; it never lies above
+    one.
+    """
+    from ._text import fmt_num
+
+    metric = metric or plan.settings["score"]
+    ms = plan.market
+    sets = _seat_actions(plan)
+    count = math.prod(len(x) for x in sets)
+    if count > MAX_PROFILES:
+        return -math.inf, f"the seats' actions make {count:,} profiles, more than the {MAX_PROFILES:,} checked"
+    from ._stagecore import market_owner
+
+    owner = market_owner(ms)
+    idx = np.stack(np.meshgrid(*[np.arange(len(x)) for x in sets], indexing="ij"), -1).reshape(-1, len(sets))
+    A = np.empty((idx.shape[0], ms.n_products))
+    for i, opts in enumerate(sets):
+        A[:, owner == i] = np.stack(opts)[idx[:, i]]
+    pi1 = np.asarray(ms.firm_profits(A), dtype=float)
+    if plan.monitoring["sigma"] > 0:
+        pi0 = np.asarray(ms.firm_profits(A, 0.0), dtype=float)
+        slope = pi1 - pi0
+        tol = 1e-12 * np.maximum(1.0, np.abs(pi1))
+        low = np.where(slope >= -tol, np.minimum(pi0, pi1), -np.inf)
+    else:
+        low = pi1
+    if metric == "profit_gain":
+        ok = plan.gain_defined
+        val = np.where(ok[None, :], (low - plan.nash[None, :]) / np.where(ok, plan.collusive - plan.nash, 1.0),
+                       np.inf)
+    else:
+        val = low
+    k, i = np.unravel_index(int(np.argmin(val)), val.shape)
+    floor = float(val[k, i])
+    run = plan.run
+    if metric == "discounted_profit":
+        d = run["delta"]
+        weights = float(run["periods"]) if d == 1.0 else (1.0 - d ** run["periods"]) / (1.0 - d)
+        floor = min(floor, 0.0) * weights
+    acts = ", ".join(fmt_num(float(x)) for x in A[k])
+    shock = " and a demand shock near zero" if plan.monitoring["sigma"] > 0 else ""
+    if floor == -math.inf:
+        return floor, (f"firm {i + 1} prices below cost at actions ({acts}), where a large demand shock makes its "
+                       "loss as large as the shock")
+    return floor, f"firm {i + 1} at actions ({acts}){shock}"
+
+
+def _check_linear_selection(plan: TournamentPlan, w: float) -> None:
+    """Linear fitness ``1 - w + w * payoff`` must stay positive for every payoff the tournament can produce:
+    checked against :func:`payoff_floor` before anything is played."""
+    from ._text import fmt_num
+
+    floor, where = payoff_floor(plan)
+    name = SCORE_NAMES[plan.settings["score"]]
+    # a margin for the rounding of the played sums against the stage game's evaluation
+    margin = 1e-9 * max(1.0, abs(floor)) if math.isfinite(floor) else 0.0
+    if 1.0 - w + w * (floor - margin) > 0:
+        return
+    if not math.isfinite(floor):
+        raise InputError("tournament.selection", f"with tournament.fitness = 'linear' the fitness 1 - w + w * payoff "
+                                                 f"must stay positive, but the {name} has no lower bound here "
+                                                 f"({where}); use tournament.fitness = 'exponential', got w = {w:g}")
+    top = 1.0 / (1.0 - (floor - margin))
+    raise InputError("tournament.selection", f"with tournament.fitness = 'linear' the fitness 1 - w + w * payoff must "
+                                             f"stay positive for every payoff the entrants' actions allow; the "
+                                             f"{name} can be as low as {fmt_num(floor)} ({where}), so w must be "
+                                             f"below {top:.6g} (or use tournament.fitness = 'exponential'), got "
+                                             f"{w:g}")
 
 
 def evolve_tournament(result: TournamentResult, evolution: dict, threads: int | None = None):
@@ -1359,7 +1579,14 @@ def _kind_describe(doc: dict) -> list[str]:
     ents = "; ".join(f"{e.get('label')}: {value_label({k: v for k, v in e.items() if k != 'label'})}"
                      for e in doc.get("entrants", []) if isinstance(e, dict))
     reps = tour.get("replications", run["replications"])
+    coll = doc.get("collusion", {})
+    if "agreement" in coll or "actions" in coll:
+        agreement = f"Agreement: {coll.get('agreement', 'given')} (the collusive benchmark of the profit gain)"
+    else:
+        agreement = ("Agreement: the default (the joint-profit maximum for symmetric firms, the Nash quantities "
+                     "scaled down in proportion where firms differ), the collusive benchmark of the profit gain")
     return [f"Market: {_describe_market(doc.get('market', {}))}",
+            agreement,
             f"Entrants: {ents}",
             f"Monitoring: signal {mon['signal']}, {mon['noise']} demand shock sigma {mon['sigma']}, perception error "
             f"{mon['perception_error']}, implementation error {mon['implementation_error']}",

@@ -5,6 +5,7 @@ import csv
 import json
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from sim._text import CAUTION
@@ -134,6 +135,28 @@ def test_experiment_kind_reports_its_metrics(tmp_path):
     assert other.metrics["score.grim"] != res.metrics["score.grim"]  # another cell draws other streams
 
 
+SIMULATE_FILE = """
+[experiment]
+name = "a-simulation"
+kind = "simulate"
+
+[market]
+model = "cournot"
+demand = "linear"
+intercept = 100.0
+cost = 10.0
+n_firms = 2
+
+[[strategies]]
+strategy = "grim_trigger"
+seats = 2
+
+[run]
+periods = 20
+replications = 5
+"""
+
+
 def _replace(old, new):
     assert old in BASE
     return BASE.replace(old, new)
@@ -161,9 +184,22 @@ BAD = {
     "unknown table": (BASE + "\n[strategies]\nx = 1\n", "strategies: unknown table for a tournament"),
     "bad value": (_replace("replications = 20", "replications = -1"), "run.replications: must be an integer"),
     "population below seats": (_replace("population = 10", "population = 1"), "tournament.population:"),
-    "selection too strong for the payoffs": (_replace("population = 10", "population = 10\nselection = 1.0"),
-                                             "tournament.selection: the fitness 1 - w + w * payoff must stay"),
+    # the lowest profit gain the entrants' actions allow: the collusive quantity 22.5 against the deviation
+    # 33.75 an implementation error plays, 22.5 * (100 - 56.25 - 10) = 759.375 against the Nash 900 and the
+    # collusive 1012.5: (759.375 - 900) / 112.5 = -1.25 (textbook linear Cournot, a = 100, c = 10)
+    "selection too strong for the payoffs": (
+        _replace("population = 10", "population = 10\nselection = 1.0"),
+        "tournament.selection: with tournament.fitness = 'linear' the fitness 1 - w + w * payoff must stay positive "
+        "for every payoff the entrants' actions allow; the profit gain can be as low as -1.2500"),
     "wrong kind": (_replace('kind = "tournament"', 'kind = "simulate"'), "experiment.kind: this command runs"),
+    "a simulation file": (SIMULATE_FILE, "experiment.kind: this command runs kind = 'tournament' experiments, got "
+                                         "'simulate'"),
+    "one seat without n_firms": (_replace("n_firms = 2\n", "").replace("seats = 2", "seats = 1"),
+                                 "tournament.seats: must be an integer in [2, 64], got 1"),
+    "an agreement a firm loses by": (
+        _replace("cost = 10.0\nn_firms = 2", "cost = [10.0, 14.0]") + '\n[collusion]\nagreement = "joint"\n',
+        "collusion.agreement: under agreement = 'joint' firm 2 earns 0.0000 per period, no more than its static-Nash "
+        "profit 747.1111"),
     "shares": (_replace("generations = 100", "generations = 100\nshares = [1, 2]"),
                "tournament.shares: must be 3 non-negative numbers"),
 }
@@ -240,3 +276,115 @@ def test_three_seats(tmp_path, capsys):
     assert (out_dir / "versus.csv").is_file() and not (out_dir / "pairwise.csv").exists()
     doc = json.loads((out_dir / "tournament.json").read_text())
     assert len(doc["groups"]) == 10 and "pairwise" not in doc  # C(3 + 3 - 1, 3) groups of three
+
+
+def test_selection_checked_before_any_match_is_played(tmp_path, capsys, monkeypatch):
+    # linear fitness is bounded from the stage game before anything runs: `check` refuses it, and the
+    # tournament command plays nothing
+    import sim.engine
+
+    path = write(tmp_path, _replace("population = 10", "population = 10\nselection = 1.0"))
+    assert main(["check", path]) == 2
+    assert "tournament.selection:" in capsys.readouterr().err
+
+    def never(*a, **k):
+        raise AssertionError("a match was played")
+
+    monkeypatch.setattr(sim.engine, "run_game", never)
+    assert main(["tournament", path]) == 2
+    assert capsys.readouterr().err.startswith("supergame tournament: error: tournament.selection:")
+
+
+def test_payoff_floor_bounds_every_payoff(tmp_path):
+    # the a-priori floor lies at or below every payoff the tournament produces, and is reached here: always
+    # collude (22.5) against always compete (30) earns 22.5 * (100 - 52.5 - 10) = 843.75, a profit gain of
+    # (843.75 - 900) / 112.5 = -0.5 (textbook linear Cournot numbers)
+    from sim.tomlfile import read_toml
+    from sim.tournament import check_experiment, payoff_floor, run_tournament, tournament_from_dict
+
+    text = BASE.replace("[monitoring]\nimplementation_error = 0.02\n", "").replace(
+        'label = "nash-2"\nstrategy = "finite_punishment"\nlength = 2',
+        'label = "collude"\nstrategy = "always_collude"')
+    plan = check_experiment(tournament_from_dict(read_toml(write(tmp_path, text))))
+    assert payoff_floor(plan) == (-0.5, "firm 1 at actions (22.5000, 30.0000)")
+    res = run_tournament(plan)
+    assert res.group_payoffs["profit_gain"][0][~np.isnan(res.group_payoffs["profit_gain"][0])].min() == -0.5
+    # with errors and a demand shock the floor still bounds every payoff
+    noisy = BASE.replace("implementation_error = 0.02", "implementation_error = 0.05\nsigma = 0.2")
+    cfg = tournament_from_dict(read_toml(write(tmp_path, noisy, "n.toml")))
+    cfg["evolution"]["fitness"] = "exponential"
+    plan = check_experiment(cfg)
+    res = run_tournament(plan)
+    for metric in ("profit_gain", "profit", "discounted_profit"):
+        floor, _ = payoff_floor(plan, metric)
+        v = res.group_payoffs[metric][0]
+        assert floor <= np.nanmin(v), metric
+
+
+def test_numbering_from_one(tmp_path, capsys):
+    out_dir = tmp_path / "out"
+    assert main(["tournament", write(tmp_path), "--json", "--out", str(out_dir)]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert [m["match"] for m in doc["matches"]] == list(range(1, 7))
+    assert doc["matches"][0]["group"] == 1 and [g["group"] for g in doc["groups"]] == list(range(1, 7))
+    with open(out_dir / "matches.csv") as f:
+        rows = list(csv.DictReader(f))
+    assert rows[0]["match"] == "1" and rows[0]["group"] == "1" and rows[0]["seat"] == "1"
+    assert {r["match"] for r in rows} == {str(k) for k in range(1, 7)}
+    with open(out_dir / "groups.csv") as f:
+        assert {r["group"] for r in csv.DictReader(f)} == {str(k) for k in range(1, 7)}
+
+
+def test_same_numbers_as_supergame_run(tmp_path, capsys):
+    # one file and seed, two commands: `supergame tournament` draws the streams of the run's cell 0
+    path = write(tmp_path)
+    assert main(["tournament", path, "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    folder = tmp_path / "run"
+    assert main(["run", path, "--out", str(folder), "--workers", "1", "--quiet"]) == 0
+    capsys.readouterr()
+    with open(folder / "results.csv") as f:
+        row = next(csv.DictReader(f))
+    assert row["status"] == "ok"
+    for r in doc["ranking"]:
+        lab = r["label"]
+        assert float(row[f"rank.{lab}"]) == r["rank"]
+        for m in ("profit_gain", "discounted_profit", "profit"):
+            assert float(row[f"{m}.{lab}"]) == r[m]["value"], (m, lab)
+        assert float(row[f"rank_share.{lab}"]) == r["stability"]["rank_share"]
+    labels = doc["evolution"]["labels"]
+    for e, lab in enumerate(labels):
+        assert float(row[f"share.{lab}"]) == doc["evolution"]["replicator"]["final"][e]
+    assert float(row["moran.max_standard_errors"]) == doc["evolution"]["fixation"]["agreement"]["max_standard_errors"]
+
+
+def test_tables_are_checked_by_the_shared_rule(tmp_path, monkeypatch):
+    # every table of a tournament file goes through sim._tables.refuse_unknown, the package's one wording
+    import sim.tournament as T
+    from sim.tomlfile import read_toml
+
+    seen = []
+    real = T.refuse_unknown
+    monkeypatch.setattr(T, "refuse_unknown",
+                        lambda table, name, allowed: seen.append(name) or real(table, name, allowed))
+    T.tournament_from_dict(read_toml(write(tmp_path)))
+    assert set(seen) == {"experiment", "tournament", "run", "learning", "collusion"}
+
+
+def test_output_folders_share_one_check():
+    from sim import _simplots, _tournament_io
+
+    assert _tournament_io.output_dir is _simplots._outdir and _tournament_io._pyplot is _simplots._pyplot
+
+
+def test_text_names_the_agreement(tmp_path, capsys):
+    text = _replace("cost = 10.0\nn_firms = 2", "cost = [10.0, 14.0]")
+    assert main(["tournament", write(tmp_path, text)]) == 0
+    out = capsys.readouterr().out
+    assert "Agreement: proportional (the default: firms that differ keep their Nash shares); collusive profit per " \
+           "period: firm 1 1081.0703 (Nash 981.7778); firm 2 860.9343 (Nash 747.1111)" in out
+    ranked = text + '\n[collusion]\nagreement = "joint"\n'
+    ranked = ranked.replace("bootstrap = 50", 'bootstrap = 50\nscore = "discounted_profit"')
+    assert main(["tournament", write(tmp_path, ranked, "j.toml")]) == 0
+    out = capsys.readouterr().out
+    assert "profit gain undefined ('-') for firm 2" in out

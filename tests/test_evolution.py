@@ -282,3 +282,22 @@ def test_evolve_bundle_and_bad_input():
         evolve(PayoffTable.from_function(lambda i, c: 1.0, 2, 3), population=2)
     with pytest.raises(InputError, match=r"^fitness:"):
         evolve(t, fitness_map="logistic")
+
+
+def test_quoted_family_wise_bounds_match_the_computation():
+    # the docstring of EvolutionResult.agreement quotes the Bonferroni bound for two and ten entrants; both
+    # must be what the method computes: the normal quantile of 1 - 0.01 / (2 E (E - 1)) (scipy.stats.norm)
+    import re
+
+    from sim.evolution import EvolutionResult
+
+    doc = " ".join(EvolutionResult.agreement.__doc__.split())
+    quoted = re.search(r"([\d.]+) for two entrants, ([\d.]+) for ten", doc)
+    assert quoted is not None
+    for E, text in ((2, quoted.group(1)), (10, quoted.group(2))):
+        rho = np.full((E, E), 0.5)
+        np.fill_diagonal(rho, np.nan)
+        sim = np.where(np.isnan(rho), -1, 50).astype(np.int64)
+        res = EvolutionResult(None, None, rho, sim, 100, np.ones(E) / E, {}, {})
+        z = res.agreement()["z"]
+        assert round(z, len(text.split(".")[1])) == float(text), (E, z, text)

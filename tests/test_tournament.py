@@ -67,8 +67,9 @@ def test_every_match_equals_a_direct_simulation(case):
     assert len(res.matches) == (E * E if not market.spec().symmetric else E * (E + 1) // 2)
     for rec in res.matches:
         assert rec.stream["key"] == [rec.index]
+        # the same collusive benchmark: the agreement the tournament chose (proportional where firms differ)
         direct = simulate(market, [ents[e].strategy for e in rec.lineup], mon, key=tuple(rec.stream["key"]),
-                          baseline=False, **run)
+                          baseline=False, agreement=res.plan.settings["agreement"], **run)
         assert np.array_equal(direct.discounted, rec.discounted)
         assert np.array_equal(direct.periods, rec.periods)
         for seat in range(2):
@@ -124,20 +125,97 @@ def test_grim_self_play_earns_the_collusive_profit():
     delta = 0.95
     assert delta > crit.max()
     ents = [Entrant("grim", S.GrimTrigger()), Entrant("compete", S.AlwaysCompete())]
-    for market in (DUOPOLY, Market(LinearDemand(100.0, 1.0), cost=[10.0, 14.0, 12.0])):
-        res = tournament(market, ents, periods=300, replications=30, delta=delta, bootstrap=0)
-        rec = res.matches[0]
-        assert rec.lineup == (0,) * market.spec().n_firms
-        assert np.all(rec.collusive == rec.periods)
-        assert [e.value for e in rec.profit_gain] == [1.0] * market.spec().n_firms
-        assert res.group_payoffs["profit_gain"][0][0, 0] == 1.0
-    # in Bertrand markets the collusive profit is not a dyadic number: its sum over 300 periods carries
-    # rounding, so the gain is 1 to the last few bits
+    res = tournament(DUOPOLY, ents, periods=300, replications=30, delta=delta, bootstrap=0)
+    rec = res.matches[0]
+    assert rec.lineup == (0, 0)
+    assert np.all(rec.collusive == rec.periods)
+    assert [e.value for e in rec.profit_gain] == [1.0, 1.0]
+    assert res.group_payoffs["profit_gain"][0][0, 0] == 1.0
+    # three firms with different costs: the tournament's default agreement there scales the Nash quantities
+    # down in proportion (Schmalensee, 1987), under which every firm gains and delta = 0.95 is above every
+    # firm's grim-trigger threshold (the joint-profit maximum would shut firms 2 and 3 down, below their
+    # Nash profit, with no threshold below one). The collusive profits are not dyadic numbers: their sum
+    # over 300 periods carries rounding, so the gain is 1 to the last few bits.
+    tri = Market(LinearDemand(100.0, 1.0), cost=[10.0, 14.0, 12.0])
+    plan = prepare_tournament(tri, ents, periods=300, replications=30, delta=delta, bootstrap=0)
+    assert plan.settings["agreement"] == "proportional"
+    f = plan.levels.firm_profits
+    assert np.all(f["collusive"] > f["nash"])
+    crit = grim_threshold(f["collusive"], f["deviation"], f["nash"])
+    assert np.all(np.isfinite(crit)) and delta > crit.max()
+    rec = run_tournament(plan).matches[0]
+    assert rec.lineup == (0, 0, 0)
+    assert np.all(rec.collusive == rec.periods)
+    assert all(abs(e.value - 1.0) < 1e-12 for e in rec.profit_gain)
+    # in Bertrand markets the collusive profit is not a dyadic number either
     for market in (Market(DifferentiatedDemand(10.0, 1.0, 0.5), cost=1.0, model="bertrand", n_firms=2),
                    Market(LogitDemand(2.0, 0.0, 0.25), cost=1.0, model="bertrand", n_firms=2)):
         rec = tournament(market, ents, periods=300, replications=30, delta=delta, bootstrap=0).matches[0]
         assert np.all(rec.collusive == rec.periods)
         assert all(abs(e.value - 1.0) < 1e-12 for e in rec.profit_gain)
+
+
+# --------------------------------------------------------------------------------------------------
+# The collusive benchmark of the profit gain
+# --------------------------------------------------------------------------------------------------
+
+# Linear Cournot, a = 100, b = 1, costs 10 and 14 (closed forms, e.g. Tirole, 1988, "The Theory of Industrial
+# Organization", ch. 5): Nash quantities (a - 2 c_i + c_j) / 3 = 29.33 and 25.33, profits 981.8 and 747.1;
+# the joint-profit maximum lets the cheaper firm produce the monopoly quantity 45 alone (profit 2025, 0).
+SHUT_DOWN = Market(LinearDemand(100.0, 1.0), cost=[10.0, 14.0])
+
+
+def collude_compete_grim():
+    return [Entrant("collude", S.AlwaysCollude()), Entrant("compete", S.AlwaysCompete()),
+            Entrant("grim", S.GrimTrigger())]
+
+
+def test_profit_gain_refuses_an_agreement_under_which_a_firm_loses():
+    plan = prepare_tournament(SHUT_DOWN, collude_compete_grim(), agreement="joint", score="profit", periods=10,
+                              replications=2)
+    assert plan.collusive.tolist() == [2025.0, 0.0]
+    assert np.allclose(plan.nash, [8836 / 9, 6724 / 9], rtol=1e-12)
+    with pytest.raises(InputError, match=r"^collusion\.agreement: under agreement = 'joint' firm 2 earns 0\.0000 per "
+                                         r"period, no more than its static-Nash profit 747\.1111"):
+        prepare_tournament(SHUT_DOWN, collude_compete_grim(), agreement="joint", periods=10, replications=2)
+    # learners must collude on the joint maximum: the way out is another score
+    with pytest.raises(InputError, match=r"^collusion\.agreement: under the default agreement 'joint' firm 2 .*"
+                                         r"learning entrants need agreement = 'joint'"):
+        prepare_tournament(SHUT_DOWN, [Entrant("grim", S.GrimTrigger()), Entrant("q", small_learner())], **LEARN)
+
+
+def test_default_agreement_lets_every_firm_gain_where_firms_differ():
+    # the review's case: under the joint maximum firm 2's gain (pi - 747) / (0 - 747) rose as its profit fell,
+    # so always compete, which earns the most, ranked last. Under the default agreement every firm gains, a
+    # seat's profit gain rises with its profit, and the ranking by profit gain agrees with the profits here.
+    res = tournament(SHUT_DOWN, collude_compete_grim(), periods=50, replications=20, bootstrap=50)
+    plan = res.plan
+    assert plan.settings["agreement"] == "proportional" and not plan.settings["agreement_given"]
+    assert np.all(plan.collusive > plan.nash) and plan.gain_defined.all()
+    for rec in res.matches:
+        for seat in range(2):
+            gain, profit = rec.profit_gain[seat].value, rec.profit[seat].value
+            assert np.sign(round(gain, 9)) == np.sign(round(profit - plan.nash[seat], 6))
+    labels = res.labels
+    by_gain = [labels[e] for e in res.order]
+    by_profit = sorted(labels, key=lambda lab: -res.scores["discounted_profit"][labels.index(lab)].value)
+    assert by_gain == by_profit == ["compete", "grim", "collude"]
+    assert res.to_dict()["benchmarks"]["agreement"] == "proportional"
+    # symmetric firms keep the joint-profit maximum
+    assert prepare_tournament(DUOPOLY, collude_compete_grim(), periods=10, replications=2).settings["agreement"] \
+        == "joint"
+
+
+def test_undefined_profit_gain_with_another_score():
+    # ranked by discounted profit, the joint agreement may stand; firm 2's profit gain is then undefined
+    res = tournament(SHUT_DOWN, collude_compete_grim(), agreement="joint", score="discounted_profit", periods=30,
+                     replications=10, bootstrap=20)
+    assert res.plan.gain_defined.tolist() == [True, False]
+    for rec in res.matches:
+        assert math.isfinite(rec.profit_gain[0].value) and math.isnan(rec.profit_gain[1].value)
+    assert all(math.isnan(x.value) for x in res.scores["profit_gain"])  # every entrant sits in seat 2 too
+    assert all(math.isfinite(x.value) for x in res.scores["discounted_profit"])
+    assert np.all(np.isnan(bootstrap_scores(res.plan, res.matches, metric="profit_gain")))
 
 
 def test_scores_are_round_robin_averages():

@@ -39,11 +39,15 @@ def run(args) -> int:
     from .._jsonutil import dumps
     from .._tournament_io import tournament_figures, tournament_json, write_tables
     from ..engine import _check_threads
+    from ..kinds import CellContext
     from ..tomlfile import read_toml
     from ..tournament import check_experiment, evolve_tournament, run_tournament, tournament_from_dict
 
     doc = read_toml(args.file)
     cfg = tournament_from_dict(doc)
+    # the streams of cell 0, as `supergame run` draws them for a file without a sweep: both commands give
+    # the same numbers for the same file and seed
+    cfg["plan_args"]["key"] = CellContext(index=0).key
     threads = parse_number("threads", args.threads, integer=True) if args.threads else None
     try:
         threads = _check_threads(threads)
@@ -101,6 +105,19 @@ def _params(entrant) -> str:
     return f" ({', '.join(items)})" if items else ""
 
 
+def _agreement_line(plan) -> str:
+    """The collusive benchmark of the profit gain: the agreement, and each firm's profit there and at Nash."""
+    from .._text import fmt_num
+
+    s = plan.settings
+    why = "" if s["agreement_given"] else (
+        " (the default: " + ("firms that differ keep their Nash shares" if s["agreement"] == "proportional"
+                             else "the joint-profit maximum") + ")")
+    per = "; ".join(f"firm {i + 1} {fmt_num(float(c))} (Nash {fmt_num(float(n))})"
+                    for i, (c, n) in enumerate(zip(plan.collusive, plan.nash, strict=True)))
+    return f"Agreement: {s['agreement']}{why}; collusive profit per period: {per}"
+
+
 def render(res, evo, cfg) -> str:
     from .._text import CAUTION, fmt_num, table
     from ..tournament import SCORE_NAMES
@@ -131,6 +148,12 @@ def render(res, evo, cfg) -> str:
                      f"periods without a change of any greedy strategy (cap {s['max_periods']}); scored on their "
                      "converged play")
     lines.append("Entrants: " + "; ".join(f"{e.label} = {e.name}{_params(e)}" for e in plan.entrants))
+    lines.append(_agreement_line(plan))
+    undefined = [i + 1 for i, ok in enumerate(plan.gain_defined) if not ok]
+    if undefined:
+        who = ", ".join(f"firm {i}" for i in undefined)
+        lines.append(f"  profit gain undefined ('-') for {who}: its collusive profit is not above its Nash profit "
+                     "under this agreement, so (profit - Nash) / (collusive - Nash) would score a lower profit higher")
     lines.append("")
 
     st = res.stability
