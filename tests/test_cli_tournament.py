@@ -388,3 +388,53 @@ def test_text_names_the_agreement(tmp_path, capsys):
     assert main(["tournament", write(tmp_path, ranked, "j.toml")]) == 0
     out = capsys.readouterr().out
     assert "profit gain undefined ('-') for firm 2" in out
+
+
+@pytest.mark.slow
+def test_shipped_experiment_shows_what_its_comment_says(capsys):
+    # every claim of the file's leading comment, checked against what the file prints (fixed seed; the
+    # margins below are many standard errors wide: the score intervals are about +-0.002)
+    from strategies import _step as SS
+
+    path = ROOT / "experiments" / "tournament-punishments.toml"
+    assert main(["tournament", str(path), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    labels = [e["label"] for e in doc["settings"]["entrants"]]
+    assert labels == ["grim", "nash-3", "tft", "forgiving", "stick-carrot", "wsls", "compete", "sly"]
+    at = {lab: k for k, lab in enumerate(labels)}
+    pw = doc["pairwise"]["profit_gain"]
+    V = np.array(pw["value"])
+    g, f, w, sc = at["grim"], at["forgiving"], at["wsls"], at["stick-carrot"]
+    assert len(doc["matches"]) == 64  # every entrant against every other and itself, both seatings
+    assert V[g, g] < 0.01  # grim loses almost all of the collusive profit against itself
+    assert V[w, w] > 0.9 and V[f, f] > 0.9  # over nine tenths against themselves
+    assert min(V[w, f], V[f, w]) > 0.8  # over eight tenths against each other
+    score = {r["label"]: r["profit_gain"]["value"] for r in doc["ranking"]}
+    assert score["forgiving"] > score["grim"] and score["wsls"] > score["grim"]  # forgiving rules fare better
+    assert doc["ranking"][0]["label"] == "wsls"
+    assert pw["wins"][sc] == 7 and pw["losses"][sc] == 0  # stick and carrot beats every opponent
+    evo = doc["evolution"]
+    assert evo["stability"]["ess"][sc] and evo["stability"]["ess_n"][sc]  # resists every invader
+    assert all(evo["fixation"]["times_population"][i][sc] < 1.0 for i in range(8) if i != sc)
+    assert evo["replicator"]["final"][sc] > 0.999  # takes over the population
+    assert doc["ranking"][0]["label"] != "stick-carrot"  # the best average is not the rule that spreads
+    assert evo["fixation"]["agreement"]["within"]
+    # stick and carrot is the only rule that punishes below the Nash profit: the others play the collusive,
+    # Nash and deviation quantities only
+    from sim.tomlfile import read_toml
+    from sim.tournament import check_experiment, tournament_from_dict
+
+    plan = check_experiment(tournament_from_dict(read_toml(path)))
+    prof = plan.levels.profiles
+    usual = {tuple(np.round(prof[k], 9)) for k in ("collusive", "nash", "deviation")}
+    nash = plan.nash
+    for m in plan.matches:
+        if len(set(m.lineup)) != 1:
+            continue
+        cl = m.game.lineup
+        played = {tuple(np.round(cl.levels[0, lev], 9)) for lev in cl.states[0, :cl.firms[0, SS.N_STATES], SS.ACTION]}
+        if m.lineup[0] == sc:
+            extra = [np.array(p) for p in played - usual]
+            assert extra and all(np.all(plan.market.firm_profits(p) < nash) for p in extra)
+        else:
+            assert played <= usual, labels[m.lineup[0]]
