@@ -22,11 +22,9 @@ import numpy as np
 
 from ._text import CAUTION, fmt_num, table
 from .assess import FACTOR_LEGEND, IVALDI_SOURCE
-from .errors import InputError
 from .merger import difference
 
-__all__ = ["assessment_figures", "assessment_tables", "bundle_target", "render_text", "summary_blocks",
-           "write_assessment_bundle"]
+__all__ = ["assessment_figures", "assessment_tables", "render_text", "summary_blocks", "write_assessment_bundle"]
 
 _CATEGORY_COLOURS = {"neither": "#d9d9d9", "both": "#fdae61", "after only": "#d7191c", "before only": "#2c7bb6"}
 _CATEGORY_LABELS = {"neither": "sustainable neither before nor after", "both": "sustainable before and after",
@@ -596,48 +594,30 @@ def render_text(a, name: str = "assessment") -> str:
 # Evidence bundle
 # --------------------------------------------------------------------------------------------------
 
-def bundle_target(out, name: str, root="runs") -> Path:
-    """The bundle folder to create: ``out``, or ``root/<name>-<YYYYmmdd-HHMMSS>``. Checked before any work
-    starts: an existing non-empty folder or a file in the way is refused (``--out``)."""
-    import datetime as dt
-    import re
-
-    if out is not None:
-        p = Path(out)
-        key = "--out"
-    else:
-        stamp = dt.datetime.now().strftime("%Y%m%d-%H%M%S")
-        safe = re.sub(r"[^A-Za-z0-9._-]+", "-", name).strip("-") or "assessment"
-        p = Path(root) / f"{safe}-{stamp}"
-        key = "experiment.name"
-    if p.exists() and (not p.is_dir() or any(p.iterdir())):
-        raise InputError(key, f"{p} already exists and is not an empty folder; choose another --out")
-    parent = p.parent if str(p.parent) else Path(".")
-    if parent.exists() and not parent.is_dir():
-        raise InputError(key, f"{parent} is not a folder")
-    return p
-
-
-def _manifest_extra(a, experiment_file, raw: bytes, name: str, start: float, end: float, argv) -> dict:
+def _manifest_extra(a, raw: bytes, name: str, start: float, end: float, argv, source, key) -> dict:
     import datetime as dt
     import hashlib
 
     run = a.settings["run"]
+    k = [int(x) for x in key]
     return {
         "kind": "assess",
-        "experiment": {"file": str(experiment_file), "sha256": hashlib.sha256(raw).hexdigest(), "name": name},
-        "command": argv if argv is not None else ["supergame", "assess", str(experiment_file)],
+        "experiment": {"file": "experiment.toml", "sha256": hashlib.sha256(raw).hexdigest(), "name": name,
+                       "source": None if source is None else str(source)},
+        "command": argv,
         "seeds": {"run.seed": run["seed"],
-                  "streams": {"simulation before": [0], "simulation after": [1],
-                              "doubled noise before": [2, 0], "doubled noise after": [2, 1],
-                              "noise sensitivity point j": "[3, j, 0] before, [3, j, 1] after"}
-                  if a.settings["simulate"] else {}},
+                  "rule": "stream key k draws from numpy.random.SeedSequence(run.seed, spawn_key=k)",
+                  "streams": {"simulation before": [*k, 0], "simulation after": [*k, 1],
+                              "rescaled noise before": [*k, 2, 0], "rescaled noise after": [*k, 2, 1],
+                              "noise sensitivity point j (from 0)": f"{[*k, 3]} + [j, 0] before, [j, 1] after"}}
+        if a.settings["simulate"] else {},
         "started": dt.datetime.fromtimestamp(start, tz=dt.UTC).isoformat(timespec="seconds"),
         "finished": dt.datetime.fromtimestamp(end, tz=dt.UTC).isoformat(timespec="seconds"),
     }
 
 
-def write_assessment_bundle(target, a, experiment_file, name: str, start: float, end: float, argv=None) -> Path:
+def write_assessment_bundle(target, a, experiment_file, name: str, start: float, end: float, argv=None,
+                            source=None, key=(0,)) -> Path:
     """Write the evidence bundle of an assessment into ``target``.
 
     The bundle is written into a temporary sibling folder and renamed at the end, so that a failure
@@ -646,6 +626,10 @@ def write_assessment_bundle(target, a, experiment_file, name: str, start: float,
     ``experiment.toml`` (the experiment file byte for byte) and ``manifest.json`` (the experiment's
     SHA-256, the command line, package versions, platform, seeds, start and end times, and the SHA-256
     of every other file). Uses the shared :class:`sim.bundle.Bundle` writer.
+
+    ``source`` is where the experiment file was read from and ``key`` the stream key of the
+    assessment's cell (``(0,)``, cell 0 of a run folder), both recorded in the manifest. Written as
+    ``RUN_DIR/report`` by ``supergame assess``, whose run folder ``supergame verify`` checks.
     """
     import shutil
     import tempfile
@@ -661,7 +645,10 @@ def write_assessment_bundle(target, a, experiment_file, name: str, start: float,
         tables = assessment_tables(a)
         figs = assessment_figures(a)
         blocks = summary_blocks(a, [f[0] for f in figs])
-        extra = _manifest_extra(a, experiment_file, raw, name, start, end, argv)
+        blocks += _reproduce_blocks(a, raw, key)
+        extra = _manifest_extra(a, raw, name, start, end,
+                                argv if argv is not None else ["supergame", "assess", str(experiment_file)],
+                                source, key)
         result = (dumps(a.to_dict(), indent=2, sort_keys=True) + "\n").encode("utf-8")
         _write_with_bundle(tmp, title, blocks, tables, figs, raw, result, extra)
         if target.exists():
@@ -671,6 +658,22 @@ def write_assessment_bundle(target, a, experiment_file, name: str, start: float,
         shutil.rmtree(tmp, ignore_errors=True)
         raise
     return target
+
+
+def _reproduce_blocks(a, raw: bytes, key) -> list:
+    import hashlib
+
+    seed = a.settings["run"]["seed"]
+    items = [f"Experiment file: `experiment.toml` (SHA-256 `{hashlib.sha256(raw).hexdigest()}`), copied into this "
+             "bundle and into the run folder."]
+    if a.settings["simulate"]:
+        items.append(f"Seed {seed} (`run.seed`); the simulations draw from the streams of cell {int(key[0])} of the "
+                     "run folder (`manifest.json` lists each stream's key). Results do not depend on the number of "
+                     "threads.")
+    items.append("`supergame assess experiment.toml` and `supergame run experiment.toml` give the same numbers; "
+                 "`supergame verify RUN_DIR` checks the SHA-256 of every file of the run folder, this bundle "
+                 "included, and re-runs the assessment to confirm every stored number.")
+    return [("heading", "Reproducing these numbers"), ("bullets", items)]
 
 
 def _write_with_bundle(folder: Path, title, blocks, tables, figs, raw: bytes, result: bytes, extra: dict) -> None:

@@ -39,6 +39,7 @@ discount factor: the firms need less patience to sustain the agreement.
 
 from __future__ import annotations
 
+import contextlib
 import itertools
 import math
 import sys
@@ -1441,10 +1442,33 @@ def _direction_code(d: str) -> float:
     return {"easier": -1.0, "unchanged": 0.0, "harder": 1.0}[d]
 
 
+#: While :func:`keep_assessments` is active: the (cell, Assessment) pairs of the cells run in this process.
+_KEPT: list | None = None
+
+
+@contextlib.contextmanager
+def keep_assessments():
+    """Keep the full :class:`Assessment` of every cell of the ``assess`` kind run in this process
+    within the block (a list of ``(cell, Assessment)``).
+
+    ``supergame assess`` runs its file through :func:`sim.runs.run_experiment` (one cell, run in
+    this process) and writes the evidence bundle from the very computation whose metrics the run
+    folder stores; a cell stores only flat metrics and small arrays.
+    """
+    global _KEPT
+    outer, _KEPT = _KEPT, []
+    try:
+        yield _KEPT
+    finally:
+        _KEPT = outer
+
+
 def _run_cell(p: PreparedAssessment, ctx):
     from .kinds import CellResult
 
     a = run_assessment(p, progress=ctx.progress, key=ctx.key, threads=ctx.threads)
+    if _KEPT is not None:
+        _KEPT.append((ctx.index, a))
     c = a.conclusion
     m = {"threshold.before": _none(c["threshold_before"]), "threshold.after": _none(c["threshold_after"]),
          "threshold.change": c["change"], "direction": _direction_code(c["direction"]),

@@ -1,6 +1,7 @@
-"""End-to-end tests of ``supergame assess``: bad input is one line with exit status 2 and no bundle,
-a run writes a complete evidence bundle whose manifest hashes match its files, the same file gives
-the same bytes, and the assessment runs as an experiment kind under ``supergame run``."""
+"""End-to-end tests of ``supergame assess``: bad input is one line with exit status 2 and no folder,
+a run writes a run folder whose report/ is a complete evidence bundle with hashes matching its files,
+``supergame verify`` checks it, ``supergame run`` of the same file gives the same numbers, the same
+file gives the same bytes, and the assessment runs as an experiment kind under ``supergame run``."""
 
 import csv
 import hashlib
@@ -119,11 +120,12 @@ def _sha(p: Path) -> str:
 
 def test_bundle_is_complete_and_hashed(tmp_path, capsys):
     f = _write(tmp_path, SMALL)
-    out = tmp_path / "bundle"
-    code, stdout, err = _run(["assess", str(f), "--out", str(out), "--json"], capsys)
+    run_dir = tmp_path / "bundle"
+    out = run_dir / "report"
+    code, stdout, err = _run(["assess", str(f), "--out", str(run_dir), "--json"], capsys)
     assert code == 0, err
     d = json.loads(stdout)
-    assert d["bundle"] == str(out)
+    assert d["bundle"] == str(out) and d["run_folder"] == str(run_dir)
     assert d["calibration"]["reproduced"] and d["calibration"]["max_relative_residual"] < 1e-8
     assert "not proof of conduct" in d["caution"]
     assert d["conclusion"]["binding_after"] in ("Firm A", "Firm B + Firm C")
@@ -157,9 +159,10 @@ def test_same_file_same_bytes(tmp_path, capsys):
     a, b = tmp_path / "a", tmp_path / "b"
     assert _run(["assess", str(f), "--out", str(a)], capsys)[0] == 0
     assert _run(["assess", str(f), "--out", str(b)], capsys)[0] == 0
-    ma = json.loads((a / "manifest.json").read_text())["files"]
-    mb = json.loads((b / "manifest.json").read_text())["files"]
+    ma = json.loads((a / "report" / "manifest.json").read_text())["files"]
+    mb = json.loads((b / "report" / "manifest.json").read_text())["files"]
     assert ma == mb
+    assert (a / "results.csv").read_bytes() == (b / "results.csv").read_bytes()
 
 
 def test_text_output(tmp_path, capsys):
@@ -168,7 +171,92 @@ def test_text_output(tmp_path, capsys):
     assert code == 0
     assert "Critical discount factors" in out and "grim trigger" in out and "Ivaldi" in out
     assert "reproduces the observed prices and quantities" in out
-    assert out.rstrip().endswith(str(tmp_path / "o")) and "not proof of conduct" in out
+    assert out.rstrip().endswith(f"Evidence bundle: {tmp_path / 'o' / 'report'}") and "not proof of conduct" in out
+    assert f"Run folder: {tmp_path / 'o'}" in out
+
+
+def test_assess_gives_the_numbers_of_run_and_its_folder_verifies(tmp_path, capsys):
+    """supergame assess runs its file as supergame run does (same cell, same stream key (0,)): the same
+    results table, the bundle's numbers equal the stored ones, and supergame verify checks the folder,
+    the bundle's files included, and re-runs the assessment."""
+    f = _write(tmp_path, SMALL.split("[assess.sensitivity]")[0])
+    a, r = tmp_path / "a", tmp_path / "r"
+    assert _run(["assess", str(f), "--out", str(a)], capsys)[0] == 0
+    assert _run(["run", str(f), "--out", str(r)], capsys)[0] == 0
+    assert (a / "results.csv").read_bytes() == (r / "results.csv").read_bytes()
+    row = next(csv.DictReader((a / "results.csv").open()))
+    d = json.loads((a / "report" / "assessment.json").read_text())
+    assert float(row["collusive_share.before"]) == d["before"]["simulation"]["collusive_share"]["value"]
+    assert float(row["threshold.after"]) == d["conclusion"]["threshold_after"]
+    man = json.loads((a / "manifest.json").read_text())
+    assert "report/tables/factors.csv" in man["files"] and "report/manifest.json" in man["files"]
+    code, out, _ = _run(["verify", str(a)], capsys)
+    assert code == 0 and "cell 0: all" in out and "reproduce identically" in out
+    table = a / "report" / "tables" / "factors.csv"
+    table.write_text(table.read_text().replace("facilitates", "hinders", 1))
+    code, out, _ = _run(["verify", str(a)], capsys)
+    assert code == 1 and "report/tables/factors.csv: SHA-256 differs" in out
+
+
+@pytest.mark.parametrize("monitoring, extra, key, words", [
+    ('noise = "normal"\nsigma = 0.2', "", "assess.transparency_scale", "monitoring.sigma from 0.2 to 0.4"),
+    ("perception_error = 0.4", "\n[assess.sensitivity]\nnoise = [1.0, 3.0]", "assess.sensitivity.noise[2]",
+     "monitoring.perception_error from 0.4 to 1.2"),
+])
+def test_a_scale_out_of_range_is_refused_by_check_and_assess(tmp_path, capsys, monitoring, extra, key, words):
+    """Scaled monitoring settings are validated with the file (supergame check) and before any work
+    (supergame assess leaves no folder); scale 3 of a perception error of 0.4 is not clipped to one."""
+    text = f"""
+[experiment]
+name = "scaled-noise"
+kind = "assess"
+[market]
+model = "cournot"
+demand = "linear"
+intercept = 100.0
+cost = [10.0, 10.0, 10.0, 10.0]
+[merger]
+firms = [1, 2]
+[monitoring]
+{monitoring}
+[run]
+periods = 50
+replications = 20
+[assess]
+deltas = [0.8]
+{extra}
+"""
+    f = _write(tmp_path, text)
+    code, _, err = _run(["check", str(f)], capsys)
+    assert code == 2 and err.startswith(f"supergame check: error: {key}: ") and words in err
+    out = tmp_path / "run"
+    code, stdout, err = _run(["assess", str(f), "--out", str(out)], capsys)
+    assert code == 2 and stdout == "" and err.count("\n") == 1 and f"error: {key}: " in err
+    assert not out.exists()
+
+
+def test_factor_table_files_carry_the_legend(tmp_path, capsys):
+    """The factor table's CSV says in every row what its direction cells mean, the LaTeX caption
+    carries the legend, structural rows leave 'agree' empty, and no cell is written as a numpy repr."""
+    f = _write(tmp_path, SMALL.split("[assess.sensitivity]")[0])
+    out = tmp_path / "o"
+    assert _run(["assess", str(f), "--out", str(out)], capsys)[0] == 0
+    rows = list(csv.DictReader((out / "report" / "tables" / "factors.csv").open()))
+    assert [r["factor (the change considered)"] for r in rows] == [
+        "fewer firms", "more symmetric firms", "more transparent (less noise)", "more frequent interaction",
+        "growing demand"]
+    for r in rows:
+        assert r["reading"] and "Ivaldi et al. (2003)" in r["reading"]
+        if r["model: effect on collusion"] == "structural (by construction)":
+            assert r["agree"] == "" and "not compared with the literature" in r["reading"]
+        else:
+            assert r["agree"] in ("yes", "no", "")
+    assert {r["model: effect on collusion"] for r in rows[3:]} == {"structural (by construction)"}
+    tex = (out / "report" / "tables" / "factors.tex").read_text()
+    assert "named by the change it considers" in tex.split("\\label")[0]
+    assert "'facilitates': in the model that change makes collusion easier" in tex
+    for p in (out / "report" / "tables").glob("*.csv"):
+        assert "np." not in p.read_text(), p.name
 
 
 def test_shipped_experiment_passes_check(capsys):
@@ -213,14 +301,120 @@ punishments = []
         assert float(r["direction"]) == -1.0
 
 
+def _shipped_grim_thresholds():
+    """Grim-trigger thresholds of the shipped scenario, derived without the package: the logit
+    calibration of Werden and Froeb (1994) -- mu = m_1 p_1 (1 - s_1), qualities a_i = p_i +
+    mu (ln s_i - ln s_0), costs c_i = p_i - mu / (1 - s_i) --, static Nash and best deviations from
+    the multi-product logit condition that a firm's products all carry the markup mu / (1 - S_f)
+    (S_f its total share), the joint-profit maximum's common markup m = mu / s_0 (Anderson, de Palma
+    and Thisse, 1992, ch. 7 -- from memory), each solved with scipy, and firm f's threshold
+    (D_f - C_f) / (D_f - N_f) (Friedman, 1971). Returns per-firm thresholds before and after Firm B
+    and Firm D merge (firms A, B + D, C)."""
+    import numpy as np
+    from scipy import optimize
+
+    P, S, M1 = np.array([4.2, 3.9, 4.6, 3.7]), np.array([0.22, 0.18, 0.12, 0.10]), 0.35
+    mu = M1 * P[0] * (1 - S[0])
+    a = P + mu * (np.log(S) - np.log(1 - S.sum()))
+    c = P - mu / (1 - S)
+
+    def shares(p):
+        e = np.exp((a - p) / mu)
+        return e / (1 + e.sum())
+
+    def thresholds(owner):
+        F = owner.max() + 1
+
+        def by_firm(x):
+            return np.array([x[owner == f].sum() for f in range(F)])
+
+        def profits(p):
+            return by_firm((p - c) * shares(p))
+
+        nash = optimize.fsolve(lambda p: p - c - mu / (1 - by_firm(shares(p))[owner]), P, xtol=1e-14)
+        m = optimize.brentq(lambda m: m - mu / (1 - shares(c + m).sum()), 1e-9, 100, xtol=1e-15)
+        coll = c + m
+        dev = np.empty(F)
+        for f in range(F):
+            own = owner == f
+
+            def at(mf, own=own):
+                p = coll.copy()
+                p[own] = c[own] + mf
+                return p
+
+            mf = optimize.brentq(lambda mf, own=own, at=at: mf - mu / (1 - shares(at(mf))[own].sum()), 1e-9, 100,
+                                 xtol=1e-15)
+            dev[f] = profits(at(mf))[f]
+        return (dev - profits(coll)) / (dev - profits(nash))
+
+    return thresholds(np.array([0, 1, 2, 3])), thresholds(np.array([0, 1, 2, 1]))
+
+
+def test_shipped_scenario_thresholds_against_an_independent_logit_solution():
+    """The shipped assessment's grim-trigger thresholds per firm, before and after, match the
+    independent derivation to 1e-9 (the equilibria are solved to 1e-14): the merger raises the
+    market threshold, and the smallest operator binds (Firm D before, Firm C after)."""
+    import numpy as np
+
+    from sim.assess import _prepare_cell, run_assessment
+    from sim.tomlfile import read_toml
+
+    doc = read_toml(SHIPPED)
+    doc["assess"] = {**doc["assess"], "simulate": False, "deltas": [], "partial": []}
+    doc["assess"].pop("sensitivity")
+    a = run_assessment(_prepare_cell(doc))
+    pre, post = _shipped_grim_thresholds()
+    np.testing.assert_allclose(a.before.report.grim.per_firm, pre, rtol=1e-9)
+    np.testing.assert_allclose(a.after.report.grim.per_firm, post, rtol=1e-9)
+    assert a.before.names[int(np.argmax(pre))] == "Firm D" and a.after.names[int(np.argmax(post))] == "Firm C"
+    assert post.max() > pre.max()
+
+
 @pytest.mark.slow
 def test_shipped_experiment_end_to_end(tmp_path, capsys):
+    """The shipped assessment end to end, and every claim of its comment block against what it prints.
+    The direction and the binding firms are not regression values: they are the independent logit
+    derivation above (_shipped_grim_thresholds). Simulated persistence is checked through its 95%
+    intervals (400 replications)."""
+    import numpy as np
+
     out = tmp_path / "bundle"
     code, stdout, err = _run(["assess", str(SHIPPED), "--out", str(out), "--json"], capsys)
     assert code == 0, err
     d = json.loads(stdout)
+    pre, post = _shipped_grim_thresholds()
+    c = d["conclusion"]
     assert d["calibration"]["reproduced"]
-    assert d["conclusion"]["direction"] == "harder"
-    assert d["conclusion"]["binding_before"] == "Firm D" and d["conclusion"]["binding_after"] == "Firm C"
-    assert set(d["sensitivity"]) == {"margin", "size", "delta", "noise"}
-    assert (out / "summary.html").is_file() and (out / "figures" / "sensitivity_margin.png").is_file()
+    assert c["threshold_before"] == pytest.approx(pre.max(), rel=1e-9)
+    assert c["threshold_after"] == pytest.approx(post.max(), rel=1e-9)
+    assert c["direction"] == ("harder" if post.max() > pre.max() else "easier")
+    names_pre = d["merger"]["names_pre"]
+    names_post = d["merger"]["names_post"]
+    assert c["binding_before"] == names_pre[int(np.argmax(pre))]
+    assert c["binding_after"] == names_post[int(np.argmax(post))]
+    comment = " ".join(line.lstrip("#").strip() for line in SHIPPED.read_text().split("[experiment]")[0].splitlines())
+    # grim trigger rises, with the printed values and the binding firms named in the comment
+    assert f"grim-trigger threshold ({c['threshold_before']:.4f} -> {c['threshold_after']:.4f};" in comment
+    assert f"binds, {c['binding_before']} before and {c['binding_after']} after" in comment
+    by = {s["scheme"]: s for s in c["schemes"]}
+    for T in (2, 3, 5):
+        assert by[f"Nash reversion, T={T}"]["direction"] == "harder"
+    sc = by["stick and carrot"]
+    assert sc["direction"] == "easier" and f"{sc['before']:.4f} -> {sc['after']:.4f}" in comment
+    # persistence rises beyond its interval, about 0.17 -> 0.30
+    p = c["persistence"]
+    assert p["significant"] and p["difference_low"] > 0
+    assert round(p["collusive_share_before"], 2) == 0.17 and round(p["collusive_share_after"], 1) == 0.3
+    # sensitivity: the margin is flat, the size moves the thresholds but not the effect, delta flips at
+    # the two thresholds, persistence higher after at every noise scale above zero
+    sens = d["sensitivity"]
+    assert set(sens) == {"margin", "size", "delta", "noise"}
+    assert "do not depend on margin" in sens["margin"]["note"]
+    assert np.ptp(sens["size"]["threshold_before"]) > 1e-3 and set(sens["size"]["direction"]) == {"harder"}
+    assert sens["delta"]["flips"] == pytest.approx([pre.max(), post.max()], rel=1e-9)
+    n = sens["noise"]
+    for k, b, a in zip(n["scales"], n["collusive_share_before_ci"], n["collusive_share_after_ci"]):
+        assert (a[0] > b[1]) if k > 0 else (a == b == [1.0, 1.0])
+    assert (out / "report" / "summary.html").is_file()
+    assert (out / "report" / "figures" / "sensitivity_margin.png").is_file()

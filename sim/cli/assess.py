@@ -1,4 +1,5 @@
-"""``supergame assess``: coordinated effects of a merger, before and after, with an evidence bundle."""
+"""``supergame assess``: coordinated effects of a merger, before and after, in a run folder with an
+evidence bundle."""
 
 from __future__ import annotations
 
@@ -13,14 +14,17 @@ DESCRIPTION = (
     "scheme and firm with the binding firm, partial collusion, simulated persistence under the experiment's "
     "monitoring noise, asymmetry measures, the usual factors against the literature, and the sensitivity of "
     "the conclusion to the uncertain inputs. Reads the tables of FILE ([data] or [market], [merger], "
-    "[collusion], [monitoring], [[strategies]], [run], [assess]) and writes an evidence bundle (summary in "
-    "Markdown and HTML, figures, tables as CSV and LaTeX, the full result as JSON, a manifest with hashes)."
+    "[collusion], [monitoring], [[strategies]], [run], [assess]) and runs it as supergame run does, into a run "
+    "folder (the same numbers for the same file and seed; check it with supergame verify RUN_DIR), whose "
+    "report/ folder is the evidence bundle (summary in Markdown and HTML, figures, tables as CSV and LaTeX, "
+    "the full result as JSON, a manifest with hashes)."
 )
 
 
 def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("file", metavar="FILE", help="experiment file (kind = 'assess')")
-    p.add_argument("--out", metavar="DIR", help="folder of the evidence bundle (default: runs/<name>-<time>)")
+    p.add_argument("--out", metavar="DIR",
+                   help="run folder to create (default runs/<name>-<time>); the evidence bundle is DIR/report")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
 
 
@@ -28,27 +32,39 @@ def run(args) -> int:
     import sys
     import time
 
-    from .._assessreport import bundle_target, write_assessment_bundle
+    from .._assessreport import render_text, write_assessment_bundle
     from .._jsonutil import dumps
-    from ..assess import assess, assessment_from_dict
+    from ..assess import assessment_from_dict, keep_assessments
+    from ..config import load_experiment
+    from ..errors import SolverError
+    from ..runs import EXPERIMENT_COPY, REPORT_DIR, run_experiment, write_manifest
     from ..tomlfile import read_toml
 
-    doc = read_toml(args.file)
-    kw = assessment_from_dict(doc)
-    name = kw.pop("name")
-    target = bundle_target(args.out, name)
-    start = time.time()
-    result = assess(**kw)
-    end = time.time()
-    argv = ["supergame", *sys.argv[1:]] if sys.argv and sys.argv[0].endswith(("supergame", "__main__.py")) else None
-    folder = write_assessment_bundle(target, result, args.file, name, start, end, argv)
+    # the assessment's own reading first (kind, one assessment, no [sweep] or [report]), then the
+    # experiments layer's validation of the whole file; nothing is written before both pass
+    assessment_from_dict(read_toml(args.file))
+    exp = load_experiment(args.file)
+    argv = (["supergame", *sys.argv[1:]] if sys.argv and sys.argv[0].endswith(("supergame", "__main__.py"))
+            else ["supergame", "assess", args.file])
+    with keep_assessments() as kept:
+        start = time.time()
+        s = run_experiment(exp, args.out, command=argv)
+        end = time.time()
+    if s.failed_cells:
+        raise SolverError(f"the assessment failed ({s.failed_cells[0][1]}); the run folder {s.folder} records it")
+    if len(kept) != 1:  # pragma: no cover - one cell, run in this process
+        raise RuntimeError(f"expected one assessment from the run, got {len(kept)}")
+    result = kept[0][1]
+    bundle = write_assessment_bundle(s.folder / REPORT_DIR, result, s.folder / EXPERIMENT_COPY, exp.name, start, end,
+                                     argv, source=args.file, key=(kept[0][0],))
+    # the run's manifest now covers the bundle's files as well, so that supergame verify checks them
+    write_manifest(s.folder)
     if args.json:
         out = result.to_dict()
-        out["bundle"] = str(folder)
+        out["run_folder"] = str(s.folder)
+        out["bundle"] = str(bundle)
         emit(dumps(out, indent=2))
         return 0
-    from .._assessreport import render_text
-
-    emit(render_text(result, name) + f"\n\nEvidence bundle: {folder}")
+    emit(render_text(result, exp.name) + f"\n\nRun folder: {s.folder} (check it with: supergame verify {s.folder})"
+         f"\nEvidence bundle: {bundle}")
     return 0
-
