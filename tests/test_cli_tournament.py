@@ -397,6 +397,15 @@ def test_shipped_experiment_shows_what_its_comment_says(capsys):
     from strategies import _step as SS
 
     path = ROOT / "experiments" / "tournament-punishments.toml"
+    comment = " ".join(" ".join(line.lstrip("# ") for line in path.read_text().splitlines()
+                                if line.startswith("#")).split())
+    for claim in ("loses almost all of the collusive profit even against itself (a profit gain below 0.01",
+                  "each keep over nine tenths of it against themselves and over eight tenths against each other",
+                  "forgiving rules fare better than unforgiving ones", "Win-stay lose-shift ranks first by profit gain",
+                  "the only rule here that punishes below the Nash profit",
+                  "earns more than its opponent in every one of its matches",
+                  "resists invasion by every other rule and takes over the population"):
+        assert claim in comment, claim  # each is checked below
     assert main(["tournament", str(path), "--json"]) == 0
     doc = json.loads(capsys.readouterr().out)
     labels = [e["label"] for e in doc["settings"]["entrants"]]
