@@ -667,9 +667,9 @@ def _reproduce_blocks(a, raw: bytes, key) -> list:
     items = [f"Experiment file: `experiment.toml` (SHA-256 `{hashlib.sha256(raw).hexdigest()}`), copied into this "
              "bundle and into the run folder."]
     if a.settings["simulate"]:
-        items.append(f"Seed {seed} (`run.seed`); the simulations draw from the streams of cell {int(key[0])} of the "
-                     "run folder (`manifest.json` lists each stream's key). Results do not depend on the number of "
-                     "threads.")
+        items.append(f"Seed {seed} (`run.seed`); the simulations draw from the streams of the run folder's one cell "
+                     f"(stream keys starting {[int(k) for k in key]}, listed in `manifest.json`). Results do not "
+                     "depend on the number of threads.")
     items.append("`supergame assess experiment.toml` and `supergame run experiment.toml` give the same numbers; "
                  "`supergame verify RUN_DIR` checks the SHA-256 of every file of the run folder, this bundle "
                  "included, and re-runs the assessment to confirm every stored number.")
