@@ -142,6 +142,11 @@ def assessment_tables(a) -> dict:
                         s["category_at_delta"], s["status"])]
             out[f"sensitivity_{name}"] = ([name, "threshold before", "threshold after", "effect of the merger",
                                            f"conclusion at delta {c['delta']:.4g}", "status"], rows)
+        if s.get("labels"):
+            # the range's own labels beside its values
+            headers, rows = out[f"sensitivity_{name}"]
+            out[f"sensitivity_{name}"] = ([headers[0], "label", *headers[1:]],
+                                          [[r[0], lab, *r[1:]] for r, lab in zip(rows, s["labels"])])
     return {name: (headers, [[_plain(v) for v in r] for r in rows]) for name, (headers, rows) in out.items()}
 
 
@@ -313,6 +318,8 @@ def assessment_figures(a) -> list:
             if t is not None:
                 ax.axvline(t, color="k", lw=0.8, ls=":")
                 ax.text(t, 0.02, lab, rotation=90, fontsize=7, va="bottom", ha="right")
+        if s.get("log"):
+            ax.set_xscale("log")
         ax.set_xlabel("discount factor")
         ax.set_ylabel(f"profit gain ({s['scheme']})")
         ax.set_ylim(-0.02, 1.25)
@@ -335,6 +342,8 @@ def assessment_figures(a) -> list:
             ax.fill_between(k, ci[:, 0], ci[:, 1], color=col, alpha=0.15, lw=0)
         for f in s["flips"]:
             ax.axvline(f, color="k", lw=0.8, ls=":")
+        if s.get("log"):
+            ax.set_xscale("log")
         ax.set_xlabel("noise scale (1 = the experiment's monitoring noise)")
         ax.set_ylabel("share of collusive periods")
         ax.set_ylim(-0.02, 1.02)
@@ -380,7 +389,12 @@ def _phase_figure(plt, a, name: str, s: dict) -> list:
     cmap = ListedColormap([_CATEGORY_COLOURS[c] for c in ("neither", "before only", "both", "after only")])
     norm = BoundaryNorm([-0.5, 0.5, 1.5, 2.5, 3.5], 4)
     fig, ax = plt.subplots(figsize=(7.5, 4.5))
-    if xs.size > 1:
+    if xs.size > 1 and s.get("log"):
+        # cell edges halfway between points on the log axis
+        lx = np.log(xs)
+        xe = np.exp(np.concatenate([[lx[0] - (lx[1] - lx[0]) / 2], (lx[1:] + lx[:-1]) / 2,
+                                    [lx[-1] + (lx[-1] - lx[-2]) / 2]]))
+    elif xs.size > 1:
         xe = np.concatenate([[xs[0] - (xs[1] - xs[0]) / 2], (xs[1:] + xs[:-1]) / 2,
                              [xs[-1] + (xs[-1] - xs[-2]) / 2]])
     else:
@@ -402,6 +416,8 @@ def _phase_figure(plt, a, name: str, s: dict) -> list:
         handles.append(plt.Rectangle((0, 0), 1, 1, color=_CATEGORY_COLOURS[inv[v]], alpha=0.6))
         labels.append(_CATEGORY_LABELS[inv[v]])
     ax.legend(handles, labels, fontsize=7, loc="lower left")
+    if s.get("log"):
+        ax.set_xscale("log")
     ax.set_xlabel(name.replace("_", " ") + (" (reference product)" if name in ("margin", "elasticity") else ""))
     ax.set_ylabel("discount factor")
     ax.set_ylim(0, 1)

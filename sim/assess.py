@@ -13,11 +13,13 @@
   :func:`sim.engine.simulate`), with confidence intervals;
 * asymmetry measures: firm shares, the Herfindahl-Hirschman index, the ratio of the largest to the
   smallest share, cost and capacity spreads;
-* the usual factors of the trade's checklist -- number of firms, symmetry, transparency (monitoring
-  noise), frequency of interaction, demand growth -- each with the direction this model computes,
-  set beside the direction in Ivaldi, Jullien, Rey, Seabright and Tirole (2003, "The Economics of
-  Tacit Collusion", final report for DG Competition, European Commission; directions as recalled
-  from the report -- from memory);
+* the usual factors of the trade's checklist, each named by the change it considers -- fewer firms,
+  more symmetric firms, more transparency (less monitoring noise), more frequent interaction,
+  growing demand -- with the direction this model computes set beside the direction in Ivaldi,
+  Jullien, Rey, Seabright and Tirole (2003, "The Economics of Tacit Collusion", final report for DG
+  Competition, European Commission; see :data:`IVALDI` for which directions were read and which are
+  recalled from memory). Frequency and growth are structural: the model's definitions fix their
+  direction, so they are reported as such and not compared;
 * sensitivity: the comparison repeated over ranges of the uncertain inputs (the calibration's
   margin or elasticities, the potential market of a logit calibration, the discount factor, the
   monitoring noise), locating where the conclusion flips. With the observed shares held fixed, a
@@ -354,34 +356,22 @@ def _list_of(key: str, value, element, min_len: int = 0) -> list:
     return [element.check(f"{key}[{k + 1}]", v) for k, v in enumerate(value)]
 
 
-def _range(key: str, value, element) -> np.ndarray:
-    """Values of a sensitivity range: a list of at least two values, or a range table in the experiment
-    files' sweep syntax, ``{start, stop, num}`` (evenly spaced, both ends included) or
-    ``{start, stop, step}``."""
-    if isinstance(value, dict):
-        for k in value:
-            if k not in ("start", "stop", "num", "step"):
-                raise InputError(f"{key}.{k}", "unknown key of a range; allowed: start, stop, num, step")
-        for k in ("start", "stop"):
-            if k not in value:
-                raise InputError(f"{key}.{k}", "missing (a range is {start = ..., stop = ..., num = ...})")
-        lo = element.check(f"{key}.start", value["start"])
-        hi = element.check(f"{key}.stop", value["stop"])
-        if hi <= lo:
-            raise InputError(f"{key}.stop", f"must be above {key}.start ({lo:g}), got {hi:g}")
-        if ("num" in value) == ("step" in value):
-            raise InputError(key, "a range needs exactly one of num (number of points) and step")
-        if "num" in value:
-            num = Integer(2, 1000).check(f"{key}.num", value["num"])
-        else:
-            step = Real(0, None, closed="neither").check(f"{key}.step", value["step"])
-            num = math.floor((hi - lo) / step + 1e-9) + 1
-            if not 2 <= num <= 1000:
-                raise InputError(f"{key}.step", f"makes {num} values; between 2 and 1000 are allowed")
-            hi = lo + (num - 1) * step
-        return np.linspace(lo, hi, num)
-    vals = _list_of(key, value, element, min_len=2)
-    return np.array(sorted(set(vals)), dtype=float)
+def _range(key: str, value, element) -> tuple[np.ndarray, list | None, bool]:
+    """Values of a sensitivity range in the range syntax of experiment files, the one of ``[sweep]``
+    (:func:`sim.config.parse_values`): a list of values, ``{start, stop, num}`` (evenly spaced, both
+    ends included), ``{start, stop, step}``, ``{start, stop, num, log = true}`` or ``{values = [...],
+    labels = [...]}``. Between 2 and 1000 values, each checked by ``element`` (key ``key[k]``,
+    counted from 1); returned in increasing order with their labels (None unless given) and whether
+    the range is logarithmic."""
+    from .config import parse_values
+
+    vals, labels, log = parse_values(value, key, max_values=1000)
+    if len(vals) < 2:
+        raise InputError(key, f"must have at least 2 values (a sensitivity range), got {len(vals)}")
+    checked = [element.check(f"{key}[{k + 1}]", v) for k, v in enumerate(vals)]
+    order = np.argsort(checked, kind="stable")
+    given = isinstance(value, dict) and "labels" in value
+    return (np.asarray(checked, dtype=float)[order], [labels[i] for i in order] if given else None, bool(log))
 
 
 def _check_options(scheme, length, punishments, deltas, partial, growth, simulate_flag, agreement,
@@ -417,11 +407,12 @@ def _check_options(scheme, length, punishments, deltas, partial, growth, simulat
             "agreement": agreement, "transparency_scale": tscale}
 
 
-def _check_sensitivity(sens, data, prefix: str = "assess.sensitivity") -> dict:
+def _check_sensitivity(sens, data, prefix: str = "assess.sensitivity") -> tuple[dict, dict]:
+    """Validated sensitivity ranges: name -> values (increasing), and name -> ``{"labels", "log"}``."""
     if sens is None:
-        return {}
+        return {}, {}
     refuse_unknown(sens, prefix, _SENS_KEYS)
-    out = {}
+    out, axes = {}, {}
     for name in SENSITIVITY_INPUTS:
         if name not in sens:
             continue
@@ -430,7 +421,7 @@ def _check_sensitivity(sens, data, prefix: str = "assess.sensitivity") -> dict:
                                                  "table of observations (not a [market] table)")
         element = {"margin": Real(0, 1, closed="neither"), "size": Real(0, None, closed="neither")}.get(
             name, Real(None, 0, closed="neither"))
-        vals = _range(f"{prefix}.{name}", sens[name], element)
+        vals, labels, log = _range(f"{prefix}.{name}", sens[name], element)
         if name == "size":
             if data.demand != "logit":
                 raise InputError(f"{prefix}.size", "the potential market size is an input of logit demand only")
@@ -444,11 +435,12 @@ def _check_sensitivity(sens, data, prefix: str = "assess.sensitivity") -> dict:
         except InputError as exc:
             raise InputError(f"{prefix}.{name}", exc.message) from None
         out[name] = vals
-    if "delta" in sens:
-        out["delta"] = _range(f"{prefix}.delta", sens["delta"], Real(0, 1, closed="neither"))
-    if "noise" in sens:
-        out["noise"] = _range(f"{prefix}.noise", sens["noise"], Real(0, 100))
-    return out
+        axes[name] = {"labels": labels, "log": log}
+    for name, element in (("delta", Real(0, 1, closed="neither")), ("noise", Real(0, 100))):
+        if name in sens:
+            out[name], labels, log = _range(f"{prefix}.{name}", sens[name], element)
+            axes[name] = {"labels": labels, "log": log}
+    return out, axes
 
 
 # --------------------------------------------------------------------------------------------------
@@ -703,7 +695,7 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
         runs.update(refuse_unknown(run, "run", RUN_DEFAULTS))
     pre_ms = pre.spec()
     runs = check_run(n_products=pre_ms.n_products, **runs)
-    sens = _check_sensitivity(sensitivity, data)
+    sens, axes = _check_sensitivity(sensitivity, data)
     mres = merge(pre, merger)
     entries = _lineup_entries(lineup, pre_ms.n_firms)
     if lineup is None and mon.validated()["signal"] == "price":
@@ -746,6 +738,7 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
         "effective_delta": eff_delta, "monitoring": mon.to_dict(), "lineup": entries,
         "lineup_after": post_entries,
         "sensitivity": {k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in sens.items()},
+        "sensitivity_axes": axes,
         "merger": {"firms": [mres.names_pre[i] for i in mres.merging], "efficiency": mres.efficiency,
                    "cost": merger.cost},
     }
@@ -790,6 +783,8 @@ def run_assessment(p: PreparedAssessment, progress=None, key=(0,), threads: int 
         factors = _factors(pre, mres, before, after, opts, eff_delta, mon, bar)
         sensitivity_out = _sensitivity(data, merger, sens, opts, runs, p.noise_monitoring, entries, post_entries,
                                        before, after, eff_delta, bar, key, threads)
+        for name, s in sensitivity_out.items():
+            s.update(settings["sensitivity_axes"][name])
         if sensitivity_out:
             conclusion["robustness"] = _robustness(sensitivity_out, conclusion)
     finally:

@@ -214,8 +214,12 @@ _DOC = {
     ({"assess": {"scheme": "grim", "length": 2}}, "assess.length", "only used"),
     ({"assess": {"deltas": [1.2]}}, "assess.deltas[1]", "(0, 1)"),
     ({"assess": {"sensitivity": {"margin": [0.2, 0.3]}}}, "assess.sensitivity.margin", "[data] table"),
-    ({"assess": {"sensitivity": {"delta": {"start": 0.9, "stop": 0.5, "num": 3}}}}, "assess.sensitivity.delta.stop",
-     "above"),
+    ({"assess": {"sensitivity": {"delta": {"start": 0.5, "stop": 1.3, "num": 3}}}}, "assess.sensitivity.delta[3]",
+     "(0, 1)"),
+    ({"assess": {"sensitivity": {"delta": {"start": 0.5, "stop": 0.9}}}}, "assess.sensitivity.delta", "num"),
+    ({"assess": {"sensitivity": {"delta": [0.5, 0.6, 0.5]}}}, "assess.sensitivity.delta", "twice"),
+    ({"assess": {"sensitivity": {"delta": {"start": 0.5, "stop": 0.9, "num": 3, "base": 2}}}},
+     "assess.sensitivity.delta.base", "unknown key"),
     ({"assess": {"sensitivity": {"delta": [0.5]}}}, "assess.sensitivity.delta", "at least 2"),
     ({"assess": {"sensitivity": {"wind": [1, 2]}}}, "assess.sensitivity.wind", "unknown key"),
     ({"collusion": {"agreement": "given"}}, "collusion.agreement", "do not carry over"),
@@ -391,3 +395,23 @@ def test_default_stream_key_is_that_of_cell_zero():
     assert plain == cell0["collusive_share"].value
     empty = assess(m, Merger([1, 2]), key=(), **kw).before.simulation.metrics["collusive_share"].value
     assert plain != empty
+
+
+def test_sensitivity_ranges_take_the_sweep_syntax():
+    """[assess.sensitivity] ranges are read by the experiment files' one range parser (the [sweep]
+    syntax): log ranges, values with labels, steps, and a range given from high to low (sorted)."""
+    m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
+    a = assess(m, Merger([1, 2]), monitoring={"perception_error": 0.01}, run={**SMALL_RUN, "replications": 20},
+               deltas=(), sensitivity={"delta": {"start": 0.7, "stop": 0.5, "num": 3},
+                                       "noise": {"start": 0.25, "stop": 4.0, "num": 3, "log": True}})
+    assert a.sensitivity["delta"]["values"] == pytest.approx([0.5, 0.6, 0.7])
+    assert a.sensitivity["noise"]["scales"] == pytest.approx([0.25, 1.0, 4.0], rel=1e-12)
+    assert a.sensitivity["noise"]["log"] is True and a.sensitivity["delta"]["log"] is False
+    b = assess(m, Merger([1, 2]), simulate=False, deltas=(),
+               sensitivity={"delta": {"values": [0.9, 0.5], "labels": ["patient", "impatient"]}})
+    s = b.sensitivity["delta"]
+    assert s["values"] == [0.5, 0.9] and s["labels"] == ["impatient", "patient"]
+    from sim._assessreport import assessment_tables
+
+    headers, rows = assessment_tables(b)["sensitivity_delta"]
+    assert headers[1] == "label" and [r[1] for r in rows] == ["impatient", "patient"]
