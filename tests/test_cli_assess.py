@@ -198,6 +198,24 @@ def test_assess_gives_the_numbers_of_run_and_its_folder_verifies(tmp_path, capsy
     assert code == 1 and "report/tables/factors.csv: SHA-256 differs" in out
 
 
+def test_a_failed_assessment_is_one_line_exit_1_and_recorded(tmp_path, capsys, monkeypatch):
+    """A numerical failure inside the run (the cell fails, as a sweep cell would) is one line, exit
+    status 1, naming the run folder that records it; no bundle is written."""
+    import sim.assess
+    from sim.errors import SolverError
+
+    def fail(*args, **kwargs):
+        raise SolverError("the stage game could not be solved")
+
+    monkeypatch.setattr(sim.assess, "run_assessment", fail)
+    f = _write(tmp_path, SMALL.split("[assess.sensitivity]")[0])
+    out = tmp_path / "run"
+    code, stdout, err = _run(["assess", str(f), "--out", str(out)], capsys)
+    assert code == 1 and stdout == "" and err.count("\n") == 1
+    assert "the stage game could not be solved" in err and str(out) in err
+    assert (out / "results.sqlite").is_file() and not (out / "report").exists()
+
+
 @pytest.mark.parametrize("monitoring, extra, key, words", [
     ('noise = "normal"\nsigma = 0.2', "", "assess.transparency_scale", "monitoring.sigma from 0.2 to 0.4"),
     ("perception_error = 0.4", "\n[assess.sensitivity]\nnoise = [1.0, 3.0]", "assess.sensitivity.noise[2]",
