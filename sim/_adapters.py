@@ -568,7 +568,7 @@ class _NoFlags:
 
 
 def _prepare_learn(doc: dict) -> dict:
-    from .cli.learn import build
+    from .learning import _build_without_flags as build
     from .learning import compile_lineup
 
     if "market" not in doc:

@@ -23,7 +23,22 @@ Layout shared with the driver
   the public market price of a profile.
 * For the limit analysis the whole system is one integer, ``x = s + S * sum_i z[i] * zplace[i]``
   (``zn[i]`` states of seat ``i``; ``zn = 1``, ``zplace = 0`` for learners): greedy play with
-  deterministic automata is then a map on integers, and its cycle is found by Brent's method.
+  deterministic automata is then a map on integers, and its cycle is found by Brent's method
+  (:func:`_analyse`, exact). With an automaton that acts at random greedy play is a Markov chain on
+  these integers instead; :func:`_estimate` simulates it (a seeded estimate, no cycle).
+
+Random draws
+------------
+Everything draws from the session's one xoshiro256** stream, in this fixed order. Learning, per
+period: seats in order, a learner's exploration draws (one uniform, and a second one when it explores)
+or an automaton's cheat draw (:func:`strategies._step.choose_level`); then, after the learners'
+updates, automaton seats in order, each its transition draw (:func:`strategies._step.next_state`).
+Automata seated with learners see no perception errors, so :func:`strategies._step.bad_signal` never
+draws here. The engine's functions draw only when a probability is strictly between 0 and 1, so a
+line-up of deterministic automata draws exactly what the learners draw. After learning, the
+estimate of :func:`_estimate` continues the same stream for its main path and gives each simulated
+deviation a non-overlapping subsequence of it (jumps of 2**128 draws); the exact analysis draws
+nothing.
 """
 
 from __future__ import annotations
@@ -35,9 +50,13 @@ from numba import njit
 
 from strategies._step import bad_signal, choose_level, next_state
 
-from ._rng import next_below, next_double
+from ._rng import next_below, next_double, next_u64
 
 __all__: list[str] = []
+
+#: xoshiro256** jump polynomial: advancing by 2**128 draws (Blackman and Vigna, 2021, "Scrambled linear
+#: pseudorandom number generators", ACM TOMS 47(4); their reference code's ``jump``)
+JUMP = np.array([0x180EC6D33CFD0ABA, 0xD5A61266F0C9392C, 0xA9582618E03FC9AA, 0x39ABDC4529B1661C], dtype=np.uint64)
 
 STATUS_CONVERGED = 0
 STATUS_CAP = 1
@@ -465,3 +484,208 @@ def _analyse(x_final, G, actions, prices, deviator, dev_action, d_dev, n_points,
     info[5] = returned / points
     info[6] = ret_sum / returned if returned > 0 else np.nan
     info[7] = first_action
+
+
+# ------------------------------------------------------------------------------------------------
+# Greedy play with automata that act at random: a Markov chain, estimated by simulation
+# ------------------------------------------------------------------------------------------------
+
+
+@njit(cache=True, nogil=True)
+def _jump(rng):
+    """Advance the generator state ``rng`` (modified in place) by 2**128 draws: the start of a
+    subsequence that does not overlap the 2**128 draws after the current state."""
+    s0 = np.uint64(0)
+    s1 = np.uint64(0)
+    s2 = np.uint64(0)
+    s3 = np.uint64(0)
+    one = np.uint64(1)
+    for i in range(4):
+        for b in range(64):
+            if (JUMP[i] >> np.uint64(b)) & one:
+                s0 ^= rng[0]
+                s1 ^= rng[1]
+                s2 ^= rng[2]
+                s3 ^= rng[3]
+            next_u64(rng)
+    rng[0] = s0
+    rng[1] = s1
+    rng[2] = s2
+    rng[3] = s3
+
+
+@njit(cache=True, nogil=True)
+def _branch(x, G, prices, deviator, dev_action, d_dev, horizon, ir_prices, ir_profits, cf_prices, cf_profits,
+            start, out):
+    """One simulated deviation from system state ``x``: the deviation path, then the path without
+    deviation, both drawing from generator state ``start`` (common random numbers; copied into
+    ``G[22]``, which is left modified).
+
+    Each path runs ``max(horizon, T + 1)`` periods, the deviation period included; the first
+    ``T + 1`` are added to rows ``1 .. T+1`` of the response arrays, the first ``horizon`` give the
+    deviator's discounted profit. Row 0 receives the last profile of the history. ``out`` receives
+    ``[value with deviation, value without, forced action]``.
+    """
+    radix, place, M, S, payoff, rng = G[2], G[3], G[5], G[6], G[16], G[22]
+    n = place.size
+    T2 = ir_prices.shape[0]
+    length = max(horizon, T2 - 1)
+    last = (x % S) % M
+    for i in range(n):
+        ir_prices[0, i] += prices[last, i]
+        ir_profits[0, i] += payoff[last, i]
+        cf_prices[0, i] += prices[last, i]
+        cf_profits[0, i] += payoff[last, i]
+    for k in range(4):
+        rng[k] = start[k]
+    prof = _profile(x, G)
+    m_dev = radix[deviator]
+    base = prof - ((prof // place[deviator]) % m_dev) * place[deviator]
+    if dev_action >= 0:
+        a_dev = dev_action
+    else:
+        a_dev = 0
+        best = payoff[base, deviator]
+        for a in range(1, m_dev):
+            v = payoff[base + a * place[deviator], deviator]
+            if v > best:
+                best = v
+                a_dev = a
+    pdev = base + a_dev * place[deviator]
+    for i in range(n):
+        ir_prices[1, i] += prices[pdev, i]
+        ir_profits[1, i] += payoff[pdev, i]
+    v_dev = payoff[pdev, deviator]
+    w = d_dev
+    y = _after(x, pdev, G)
+    for tau in range(2, length + 1):
+        p = _profile(y, G)
+        if tau < T2:
+            for i in range(n):
+                ir_prices[tau, i] += prices[p, i]
+                ir_profits[tau, i] += payoff[p, i]
+        if tau <= horizon:
+            v_dev += w * payoff[p, deviator]
+            w *= d_dev
+        y = _after(y, p, G)
+    for k in range(4):
+        rng[k] = start[k]
+    v_no = 0.0
+    w = 1.0
+    y = x
+    for tau in range(1, length + 1):
+        p = _profile(y, G)
+        if tau < T2:
+            for i in range(n):
+                cf_prices[tau, i] += prices[p, i]
+                cf_profits[tau, i] += payoff[p, i]
+        if tau <= horizon:
+            v_no += w * payoff[p, deviator]
+            w *= d_dev
+        y = _after(y, p, G)
+    out[0] = v_dev
+    out[1] = v_no
+    out[2] = a_dev
+
+
+@njit(cache=True, nogil=True)
+def _estimate(x_final, G, actions, prices, deviator, dev_action, d_dev, n_points, burn_in, n_periods, horizon,
+              lim_actions, lim_prices, lim_profits, ir_prices, ir_profits, cf_prices, cf_profits, info):
+    """Limit outcomes and impulse response of greedy play when automata act at random: estimates.
+
+    With an automaton that draws (forgiveness, lapses, cheating with a probability strictly between 0
+    and 1) greedy play from the final state is a Markov chain, not a deterministic path: there is no
+    exact limit cycle. This function simulates it. ``G[22]`` holds, on entry, the session's generator
+    state at the end of learning, ``r``:
+
+    1. the *main path* draws from ``r`` on: ``burn_in`` periods of greedy play from ``x_final``, not
+       recorded, then ``n_periods`` periods whose means give ``lim_actions``, ``lim_prices`` and
+       ``lim_profits``;
+    2. at the start of periods ``0, s, 2 s, ...`` of the recorded ones (``points = min(n_points,
+       n_periods)`` of them, ``s = n_periods // points``) deviation ``b`` (from 0) is simulated by
+       :func:`_branch` from the main path's current state, drawing from ``r`` advanced by
+       ``(b + 1) * 2**128`` draws (:func:`_jump`): the deviations never share a draw with each other
+       or with the main path, which goes on as if they had not happened.
+
+    Parameters
+    ----------
+    x_final : int
+        System state at the end of learning.
+    G : tuple
+        The line-up (see the comment above :func:`_profile`); ``G[22]`` the generator (modified).
+    actions, prices : float64 arrays of shape (M, n)
+    deviator, dev_action, d_dev : as in :func:`_analyse`
+    n_points, burn_in, n_periods : int
+    horizon : int
+        Periods (the deviation period included) over which each value is summed; the truncated tail
+        is at most ``d_dev**horizon * max|profit| / (1 - d_dev)`` per value.
+    lim_actions, lim_prices, lim_profits : float64 arrays of shape (n,)
+    ir_prices, ir_profits, cf_prices, cf_profits : float64 arrays of shape (T + 2, n)
+        Receive the means over the simulated deviations (rows as in :func:`_analyse`).
+    info : float64 array of shape (8,)
+        Receives ``[-1 (no transient), 0 (no cycle), points, mean realised value gain of the
+        deviation, share of deviations with a positive realised gain, nan, nan, forced action at the
+        first deviation]``.
+    """
+    payoff, rng = G[16], G[22]
+    n = lim_actions.size
+    lim_actions[:] = 0.0
+    lim_prices[:] = 0.0
+    lim_profits[:] = 0.0
+    ir_prices[:, :] = 0.0
+    ir_profits[:, :] = 0.0
+    cf_prices[:, :] = 0.0
+    cf_profits[:, :] = 0.0
+    branch = rng.copy()
+    main = np.empty(4, np.uint64)
+    out = np.empty(3, np.float64)
+    x = x_final
+    for _ in range(burn_in):
+        x = _next(x, G)
+    points = min(n_points, n_periods)
+    spacing = n_periods // points
+    done = 0
+    gain_sum = 0.0
+    pays = 0
+    first_action = -1
+    for t in range(n_periods):
+        if done < points and t == done * spacing:
+            for k in range(4):
+                main[k] = rng[k]
+            _jump(branch)
+            _branch(x, G, prices, deviator, dev_action, d_dev, horizon, ir_prices, ir_profits, cf_prices,
+                    cf_profits, branch, out)
+            for k in range(4):
+                rng[k] = main[k]
+            gain = out[0] - out[1]
+            gain_sum += gain
+            if gain > 1e-9 * max(1.0, abs(out[1])):
+                pays += 1
+            if first_action < 0:
+                first_action = int(out[2])
+            done += 1
+        prof = _profile(x, G)
+        for i in range(n):
+            lim_actions[i] += actions[prof, i]
+            lim_prices[i] += prices[prof, i]
+            lim_profits[i] += payoff[prof, i]
+        x = _after(x, prof, G)
+    for i in range(n):
+        lim_actions[i] /= n_periods
+        lim_prices[i] /= n_periods
+        lim_profits[i] /= n_periods
+    for tau in range(ir_prices.shape[0]):
+        for i in range(n):
+            ir_prices[tau, i] /= points
+            ir_profits[tau, i] /= points
+            cf_prices[tau, i] /= points
+            cf_profits[tau, i] /= points
+    info[0] = -1.0
+    info[1] = 0.0
+    info[2] = points
+    info[3] = gain_sum / points
+    info[4] = pays / points
+    info[5] = np.nan
+    info[6] = np.nan
+    info[7] = first_action
+    return x

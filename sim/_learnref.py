@@ -3,13 +3,20 @@
 It follows the definitions rather than the kernel's tricks: a state is the tuple of the last ``k``
 action profiles (most recent first), Q-values live in a dictionary keyed by that tuple, the greedy
 action is recomputed with ``max`` on every use, and the limit cycle is found by remembering every
-state visited. It draws from :class:`sim._rng.ReferenceStream` in exactly the kernel's order, so the
-tests can require the same Q-matrix, bit for bit, after any number of periods.
+state visited. It draws from :class:`sim._rng.ReferenceStream` in exactly the kernel's order (see
+:mod:`sim._learnkernel`, "Random draws"), so the tests can require the same Q-matrix, bit for bit,
+after any number of periods.
 
-Automaton seats are stepped with the engine's own functions (:mod:`strategies._step`) in their
-uncompiled Python form (``.py_func``): this module re-implements the learning, not the automata.
-Automata seated with learners are deterministic (the line-up compiler refuses random ones), so they
-never draw from the stream.
+Automaton seats are played from the engine's compiled arrays by the rules of
+:mod:`strategies._step`, written out again here in ordinary Python (as :mod:`sim._reference` does for
+the simulation engine): the action of the state, or the cheating level with the state's cheat
+probability inside the cheat window; the signal of the state's watch mode (conduct judged against
+the expected level, the market price or the own profit against the threshold; no perception errors
+next to learners); the next state, or the alternative one with the forgiveness or lapse
+probability. A draw is made only when its probability is strictly between 0 and 1.
+
+:func:`reference_analysis` is the exact limit analysis of deterministic line-ups;
+:func:`reference_estimate` the simulated one of line-ups whose automata act at random.
 """
 
 from __future__ import annotations
@@ -21,12 +28,100 @@ import numpy as np
 
 from ._rng import ReferenceStream
 
-__all__ = ["reference_analysis", "reference_session"]
+__all__ = ["jumped", "reference_analysis", "reference_estimate", "reference_session"]
 
 
 def _argmax(row):
     """First index of the largest value (ties go to the lowest action)."""
     return row.index(max(row))
+
+
+#: xoshiro256** jump by 2**128 draws (Blackman and Vigna, 2021, ACM TOMS 47(4), their reference ``jump``)
+_JUMP = (0x180EC6D33CFD0ABA, 0xD5A61266F0C9392C, 0xA9582618E03FC9AA, 0x39ABDC4529B1661C)
+
+
+def jumped(stream):
+    """A new :class:`~sim._rng.ReferenceStream` 2**128 draws ahead of ``stream`` (which is unchanged):
+    the XOR of the states after the draws whose bit is set in the jump polynomial."""
+    work = ReferenceStream(np.array(stream.s, dtype=np.uint64))
+    acc = [0, 0, 0, 0]
+    for word in _JUMP:
+        for b in range(64):
+            if (word >> b) & 1:
+                acc = [a ^ x for a, x in zip(acc, work.s)]
+            work.next_u64()
+    out = ReferenceStream(np.zeros(4, dtype=np.uint64))
+    out.s = acc
+    return out
+
+
+class _NoDraws:
+    """The generator of the exact analysis: deterministic line-ups never draw."""
+
+    def next_double(self):
+        raise RuntimeError("the exact analysis drew a random number: the line-up is not deterministic")
+
+
+class _Automaton:
+    """One automaton seat, read from the engine's compiled arrays into plain lists."""
+
+    def __init__(self, lineup, i):
+        from strategies import _step as S
+
+        self.S = S
+        self.i = i
+        ns = int(lineup.a_firms[i, S.N_STATES])
+        self.rows = [[int(v) for v in lineup.a_states[i, s]] for s in range(ns)]
+        self.probs = [[float(v) for v in lineup.a_probs[i, s]] for s in range(ns)]
+        self.cheat_level = int(lineup.a_firms[i, S.CHEAT_LEVEL])
+        self.cheat_from = int(lineup.a_firms[i, S.CHEAT_FROM])
+        self.cheat_until = int(lineup.a_firms[i, S.CHEAT_UNTIL])
+        self.levels = [[float(v) for v in row] for row in lineup.a_levels[i]]
+        self.act_of_level = [int(v) for v in lineup.act_of_level[i]]
+
+    def action(self, z, t, rng):
+        """Action index played in state ``z`` at period ``t`` (the cheating level with probability
+        ``cheat`` inside the cheat window)."""
+        S = self.S
+        level = self.rows[z][S.ACTION]
+        pc = self.probs[z][S.P_CHEAT]
+        if pc > 0.0 and self.cheat_from <= t < self.cheat_until and (pc >= 1.0 or rng.next_double() < pc):
+            level = self.cheat_level
+        return self.act_of_level[level]
+
+    def complies(self, x, expected, judge, quantity_setting):
+        S = self.S
+        tol = S.TOL * max(1.0, abs(expected))
+        more = x - expected if quantity_setting else expected - x  # how much more aggressive than expected
+        if judge == S.JUDGE_RESTRAINT:
+            return more <= tol
+        return more >= -tol
+
+    def next(self, z, values, market_price, own_profit, quantity_setting, rng):
+        """State after a period in which the seats played action values ``values``."""
+        S = self.S
+        row, pr = self.rows[z], self.probs[z]
+        watch = row[S.WATCH]
+        if watch == S.WATCH_NOTHING:
+            bad = False
+        elif watch == S.WATCH_PRICE:
+            bad = market_price < pr[S.THRESHOLD]
+        elif watch == S.WATCH_PROFIT:
+            bad = own_profit < pr[S.THRESHOLD]
+        else:
+            bad = False
+            if row[S.EXPECT] >= 0:
+                expected = self.levels[row[S.EXPECT]]
+                for j, x in enumerate(values):
+                    ok = self.complies(x, expected[j], row[S.JUDGE], quantity_setting)
+                    if j == self.i and watch == S.WATCH_RIVALS:
+                        continue
+                    bad = bad or not ok
+        nxt, alt, pa = ((row[S.BAD], row[S.ALT_BAD], pr[S.P_ALT_BAD]) if bad
+                        else (row[S.GOOD], row[S.ALT_GOOD], pr[S.P_ALT_GOOD]))
+        if pa > 0.0 and (pa >= 1.0 or rng.next_double() < pa):
+            nxt = alt
+        return nxt
 
 
 class _Setup:
@@ -47,10 +142,9 @@ class _Setup:
         self.profit_table = lineup.payoff.tolist()
         self.prices_table = lineup.prices.tolist()
         self.mprice = lineup.mprice.tolist()
-        self.values = lineup.values
-        self.act_of_level = lineup.act_of_level.tolist()
-        self.owner = np.arange(self.n, dtype=np.int64)
-        self.no_draws = np.zeros(4, dtype=np.uint64)  # automata here never draw
+        self.values = lineup.values.tolist()
+        self.quantity_setting = bool(lineup.market.quantity_setting)
+        self.automata = {i: _Automaton(lineup, i) for i in range(self.n) if not self.learner[i]}
 
     def index(self, profile):
         return sum(a * p for a, p in zip(profile, self.place))
@@ -72,23 +166,13 @@ class _Setup:
             q[hist] = [float(v) for v in self.lu.q0[li, s, : self.m[i]]]
         return q
 
-    def automaton_action(self, i, z, t):
-        from strategies import _step as S
+    def automaton_action(self, i, z, t, rng):
+        return self.automata[i].action(z, t, rng)
 
-        lu = self.lu
-        level, _cheated = S.choose_level.py_func(i, z, t, lu.a_states, lu.a_probs, lu.a_firms, self.no_draws)
-        return self.act_of_level[i][level]
-
-    def automaton_next(self, i, z, profile):
-        from strategies import _step as S
-
-        lu = self.lu
-        vals = np.array([self.values[j, profile[j]] for j in range(self.n)])
+    def automaton_next(self, i, z, profile, rng):
+        vals = [self.values[j][profile[j]] for j in range(self.n)]
         j = self.index(profile)
-        bad = S.bad_signal.py_func(i, z, self.n, vals, self.owner, self.mprice[j], self.profit_table[j][i], 0.0,
-                                   lu.a_states, lu.a_probs, lu.a_levels, bool(lu.market.quantity_setting),
-                                   self.no_draws)
-        return int(S.next_state.py_func(i, z, bad, lu.a_states, lu.a_probs, self.no_draws))
+        return self.automata[i].next(z, vals, self.mprice[j], self.profit_table[j][i], self.quantity_setting, rng)
 
 
 def reference_session(lineup, rng_state, convergence, max_periods):
@@ -104,7 +188,8 @@ def reference_session(lineup, rng_state, convergence, max_periods):
     -------
     dict with ``status`` (0 converged, 1 cap), ``periods``, ``history`` (tuple of the last K
     profiles, most recent first), ``state`` (its index in the kernel's layout), ``z`` (automaton
-    states), ``Q`` (ndarray in the kernel's layout) and ``greedy`` (ndarray of shape (n_learners, S_l)).
+    states), ``Q`` (ndarray in the kernel's layout), ``greedy`` (ndarray of shape (n_learners, S_l))
+    and ``rng`` (the generator state after the last period, uint64 array of shape (4,)).
     """
     st = _Setup(lineup)
     rng = ReferenceStream(rng_state)
@@ -128,7 +213,7 @@ def reference_session(lineup, rng_state, convergence, max_periods):
                 else:
                     profile.append(_argmax(Q[i][states[i]]))
             else:
-                profile.append(st.automaton_action(i, z[i], t))
+                profile.append(st.automaton_action(i, z[i], t, rng))
         profile = tuple(profile)
         profits = st.profits(profile)
         history = [profile, *history[: st.K - 1]]
@@ -141,7 +226,8 @@ def reference_session(lineup, rng_state, convergence, max_periods):
             row[a] = (1.0 - st.alpha[i]) * row[a] + st.alpha[i] * (profits[i] + st.delta[i] * continuation)
             if _argmax(row) != before:
                 changed = True
-        z = [z[i] if st.learner[i] else st.automaton_next(i, z[i], profile) for i in range(st.n)]
+        # automata move after the learners' updates, seats in order
+        z = [z[i] if st.learner[i] else st.automaton_next(i, z[i], profile, rng) for i in range(st.n)]
         t += 1
         stable = 0 if changed else stable + 1
         if stable >= convergence:
@@ -164,6 +250,7 @@ def reference_session(lineup, rng_state, convergence, max_periods):
         "z": tuple(z),
         "Q": q_arr,
         "greedy": greedy,
+        "rng": np.array(rng.s, dtype=np.uint64),
     }
 
 
@@ -192,6 +279,7 @@ def reference_analysis(lineup, greedy, history, z, t_end, deviator, dev_action, 
     """
     st = _Setup(lineup)
     n = st.n
+    rng = _NoDraws()
 
     def play(state):
         hist, zs = state
@@ -200,12 +288,12 @@ def reference_analysis(lineup, greedy, history, z, t_end, deviator, dev_action, 
             if st.learner[i]:
                 out.append(int(greedy[int(lineup.lidx[i]), st.state_index(hist, st.k[i])]))
             else:
-                out.append(st.automaton_action(i, zs[i], t_end))
+                out.append(st.automaton_action(i, zs[i], t_end, rng))
         return tuple(out)
 
     def step(state, profile):
         hist, zs = state
-        new_z = tuple(zs[i] if st.learner[i] else st.automaton_next(i, zs[i], profile) for i in range(n))
+        new_z = tuple(zs[i] if st.learner[i] else st.automaton_next(i, zs[i], profile, rng) for i in range(n))
         return (profile, *hist[: st.K - 1]), new_z
 
     def path_to_cycle(state):
@@ -288,4 +376,124 @@ def reference_analysis(lineup, greedy, history, z, t_end, deviator, dev_action, 
         "pays": pays / points,
         "returned": returned / points,
         "return_periods": sum(ret) / len(ret) if ret else float("nan"),
+    }
+
+
+def reference_estimate(lineup, greedy, history, z, t_end, rng_state, deviator, dev_action, d_dev, n_points, burn_in,
+                       n_periods, horizon, T):
+    """The simulated limit analysis of a line-up whose automata act at random, period by period.
+
+    The main path: greedy play from ``(history, z)`` drawing from the generator at ``rng_state``,
+    ``burn_in`` periods not recorded, then ``n_periods`` periods averaged. At the start of ``points =
+    min(n_points, n_periods)`` of those, evenly spaced (``0, s, 2 s, ...`` with ``s = n_periods //
+    points``), deviation ``b`` and the path without it are simulated from the main path's state, both
+    drawing from the generator at ``rng_state`` jumped ``b + 1`` times by 2**128 draws, each over
+    ``max(horizon, T + 1)`` periods. The main path does not see them.
+
+    Returns
+    -------
+    dict with ``lim_actions``, ``lim_prices``, ``lim_profits`` (lists of n), ``ir_prices``,
+    ``ir_profits``, ``cf_prices``, ``cf_profits`` (lists of T + 2 rows), ``gain`` (mean realised
+    value gain over ``horizon`` periods), ``pays`` (share of deviations with a positive gain),
+    ``first_action`` and ``rng`` (the main path's generator state at the end, uint64 array of shape (4,)).
+    """
+    st = _Setup(lineup)
+    n = st.n
+
+    def play(state, rng):
+        hist, zs = state
+        out = []
+        for i in range(n):
+            if st.learner[i]:
+                out.append(int(greedy[int(lineup.lidx[i]), st.state_index(hist, st.k[i])]))
+            else:
+                out.append(st.automaton_action(i, zs[i], t_end, rng))
+        return tuple(out)
+
+    def step(state, profile, rng):
+        hist, zs = state
+        new_z = tuple(zs[i] if st.learner[i] else st.automaton_next(i, zs[i], profile, rng) for i in range(n))
+        return (profile, *hist[: st.K - 1]), new_z
+
+    def add(rows, tau, profile):
+        j = st.index(profile)
+        rows[0][tau] = [a + b for a, b in zip(rows[0][tau], st.prices_table[j])]
+        rows[1][tau] = [a + b for a, b in zip(rows[1][tau], st.profit_table[j])]
+
+    main = ReferenceStream(rng_state)
+    branch_base = ReferenceStream(rng_state)
+    state = (tuple(history), tuple(0 if st.learner[i] else int(z[i]) for i in range(n)))
+    for _ in range(burn_in):
+        state = step(state, play(state, main), main)
+    points = min(n_points, n_periods)
+    spacing = n_periods // points
+    length = max(horizon, T + 1)
+    ir = ([[0.0] * n for _ in range(T + 2)], [[0.0] * n for _ in range(T + 2)])
+    cf = ([[0.0] * n for _ in range(T + 2)], [[0.0] * n for _ in range(T + 2)])
+    sums = [[0.0] * n for _ in range(3)]
+    gains, pays, first_action = [], 0, -1
+    for t in range(n_periods):
+        if len(gains) < points and t == len(gains) * spacing:
+            branch_base = jumped(branch_base)
+            add(ir, 0, state[0][0])
+            add(cf, 0, state[0][0])
+            # with the deviation
+            rng = ReferenceStream(np.array(branch_base.s, dtype=np.uint64))
+            others = play(state, rng)
+            if dev_action >= 0:
+                a_dev = dev_action
+            else:
+                a_dev = _argmax([st.profits(others[:deviator] + (a,) + others[deviator + 1:])[deviator]
+                                 for a in range(st.m[deviator])])
+            if first_action < 0:
+                first_action = a_dev
+            dev = others[:deviator] + (a_dev,) + others[deviator + 1:]
+            add(ir, 1, dev)
+            v_dev, w = st.profits(dev)[deviator], d_dev
+            y = step(state, dev, rng)
+            for tau in range(2, length + 1):
+                p = play(y, rng)
+                if tau <= T + 1:
+                    add(ir, tau, p)
+                if tau <= horizon:
+                    v_dev += w * st.profits(p)[deviator]
+                    w *= d_dev
+                y = step(y, p, rng)
+            # without it, from the same random numbers
+            rng = ReferenceStream(np.array(branch_base.s, dtype=np.uint64))
+            v_no, w = 0.0, 1.0
+            y = state
+            for tau in range(1, length + 1):
+                p = play(y, rng)
+                if tau <= T + 1:
+                    add(cf, tau, p)
+                if tau <= horizon:
+                    v_no += w * st.profits(p)[deviator]
+                    w *= d_dev
+                y = step(y, p, rng)
+            gains.append(v_dev - v_no)
+            if v_dev - v_no > 1e-9 * max(1.0, abs(v_no)):
+                pays += 1
+        p = play(state, main)
+        j = st.index(p)
+        for i in range(n):
+            sums[0][i] += st.values[i][p[i]]
+            sums[1][i] += st.prices_table[j][i]
+            sums[2][i] += st.profit_table[j][i]
+        state = step(state, p, main)
+    gain = 0.0
+    for g in gains:
+        gain += g
+    return {
+        "lim_actions": [v / n_periods for v in sums[0]],
+        "lim_prices": [v / n_periods for v in sums[1]],
+        "lim_profits": [v / n_periods for v in sums[2]],
+        "ir_prices": [[v / points for v in row] for row in ir[0]],
+        "ir_profits": [[v / points for v in row] for row in ir[1]],
+        "cf_prices": [[v / points for v in row] for row in cf[0]],
+        "cf_profits": [[v / points for v in row] for row in cf[1]],
+        "gain": gain / points,
+        "pays": pays / points,
+        "first_action": first_action,
+        "rng": np.array(main.s, dtype=np.uint64),
     }

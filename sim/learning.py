@@ -14,6 +14,11 @@ Algorithmic Pricing, and Collusion") on any market of this package:
    the rivals cutting their prices in the following period, and the exact discounted value of the
    deviation under the learned strategies says whether it paid.
 
+Learners may be seated with automata of :mod:`strategies` (a learner facing grim trigger, tit for
+tat, forgiving tit for tat, an opportunist...). Automata that act at random draw from the session's
+stream in a fixed order; their line-ups get a simulated, seeded *estimate* of steps 3 and 4 instead
+of the exact analysis, flagged as such in every result (:func:`learn`, Notes).
+
 Many sessions run in parallel, each with its own random stream from
 ``sim._rng.stream_states(seed, (cell,), session, session + 1)``, so results do not depend on the
 number of workers. Layers: :func:`learn` (validated public function) -> :func:`_run_sessions`
@@ -32,15 +37,18 @@ from typing import Any
 
 import numpy as np
 
-from ._params import Integer, Real, optional
+from ._params import Integer, Options, Real, optional
 from .errors import InputError
 
 __all__ = [
+    "LEARNER_PARAMS",
     "LearningResult",
     "Lineup",
     "benchmark",
     "compile_lineup",
     "learn",
+    "learner_from_entry",
+    "learning_from_dict",
     "reference_session",
 ]
 
@@ -50,6 +58,15 @@ CYCLE_STORE = 64
 IR_POINTS = 64
 #: share of the available memory a run may take for its Q-matrices
 _MEMORY_SHARE = 0.8
+#: estimate of a line-up with automata that act at random: periods of greedy play simulated and
+#: discarded before the limit averages start
+LIMIT_BURN_IN = 1000
+#: ... the default number of periods averaged (``limit_periods``)
+LIMIT_PERIODS = 10_000
+#: ... and the value of a simulated deviation is summed until the discount weight falls below this
+#: (at most VALUE_CAP periods)
+VALUE_TOL = 1e-10
+VALUE_CAP = 100_000
 
 _RUN_CONSTRAINTS = {
     "sessions": Integer(1, 10_000_000),
@@ -58,6 +75,7 @@ _RUN_CONSTRAINTS = {
     "max_periods": Integer(1, 10**15),
     "deviator": Integer(0, 3),
     "response_periods": Integer(0, 10_000),
+    "limit_periods": Integer(1, 100_000_000),
     "near": Real(0, 1),
     "workers": optional(Integer(1, 1024)),
     "cell": Integer(0, 2**31),
@@ -110,6 +128,11 @@ class Lineup:
         Automaton state counts and their place values in the system state (1 and 0 for learners).
     nash_profits, collusive_profits, nash_actions, collusive_actions, nash_prices, collusive_prices :
         ndarray of shape (n,), the continuous static-Nash and joint-profit benchmarks.
+    random_seats : tuple of int
+        Automaton seats that act at random (a forgiveness, lapse or cheat probability strictly
+        between 0 and 1). They draw from the session's stream; with any of them greedy play after
+        learning is a Markov chain and the limit analysis is a simulated estimate
+        (:attr:`limit_exact` is False).
     """
 
     market: Any
@@ -148,6 +171,7 @@ class Lineup:
     collusive_actions: np.ndarray
     nash_prices: np.ndarray
     collusive_prices: np.ndarray
+    random_seats: tuple = ()
 
     @property
     def n_seats(self) -> int:
@@ -160,6 +184,12 @@ class Lineup:
     @property
     def has_automata(self) -> bool:
         return self.automata is not None
+
+    @property
+    def limit_exact(self) -> bool:
+        """Whether greedy play after learning is deterministic, so that the limit cycle, the impulse
+        response and the value of a deviation are exact (no automaton acts at random)."""
+        return not self.random_seats
 
     def initial_greedy(self) -> np.ndarray:
         """First argmax of every row of ``q0`` restricted to each learner's actions, shape (n_learners, S_l)."""
@@ -179,12 +209,17 @@ class Lineup:
         return (self.a_states, self.a_probs, self.a_firms, self.a_levels, self.act_of_level, self.values,
                 self.mprice, np.arange(self.n_seats, dtype=np.int64), bool(self.market.quantity_setting))
 
-    def game(self, greedy: np.ndarray, t_end: int) -> tuple:
-        """The tuple ``G`` of :mod:`sim._learnkernel` for greedy play after learning."""
+    def game(self, greedy: np.ndarray, t_end: int, rng: np.ndarray | None = None) -> tuple:
+        """The tuple ``G`` of :mod:`sim._learnkernel` for greedy play after learning.
+
+        ``rng`` (uint64 array of shape (4,), advanced in place by the kernel) is the generator the
+        automata draw from; the default, a state that is never used, suits deterministic line-ups."""
+        if rng is None:
+            rng = np.zeros(4, dtype=np.uint64)
         return (self.kind, self.lidx, self.radix, self.place, self.mod, self.M, self.S, self.K, greedy,
                 self.a_states, self.a_probs, self.a_firms, self.a_levels, self.act_of_level, self.values, self.mprice,
                 self.payoff, np.arange(self.n_seats, dtype=np.int64), self.zplace, self.zn, int(t_end),
-                bool(self.market.quantity_setting), np.zeros(4, dtype=np.uint64))
+                bool(self.market.quantity_setting), rng)
 
     def system_state(self, s: int, z) -> int:
         """History state ``s`` and automaton states ``z`` as one integer."""
@@ -246,7 +281,7 @@ def _is_learner(x) -> bool:
 
 def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: int = 1,
                    available_memory: int | None = None, agreement: str = "joint",
-                   seat_prefix: str | None = None) -> Lineup:
+                   seat_prefix: str | None = None, random_automata: str = "refuse") -> Lineup:
     """Resolve a line-up of learners (and automata) against a market, checking that the state space
     fits in memory before anything is allocated.
 
@@ -257,9 +292,9 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     learners : QLearner or sequence, optional
         One learner for every seat (default ``QLearner()``, the published baseline), or one strategy
         per seat: a :class:`~strategies.qlearning.QLearner` or an automaton from :mod:`strategies`
-        (grim trigger, tit for tat, ...), at least one of them a learner. Automata seated with
-        learners must be deterministic (no probability strictly between 0 and 1): the limit path and
-        the impulse response are then exact.
+        (grim trigger, tit for tat, forgiving tit for tat, opportunist, ...), at least one of them a
+        learner. Automata that act at random (a probability strictly between 0 and 1) are seated
+        only with ``random_automata = "estimate"``.
     prefix : str
         Key path of the learners' parameters in error messages (a single learner for every seat).
     workers : int
@@ -271,6 +306,11 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     seat_prefix : str, optional
         With one strategy per seat, the key path of seat ``i`` is ``seat_prefix[i+1]`` (default
         ``"strategies"``, as in an experiment file's ``[[strategies]]``).
+    random_automata : {"refuse", "estimate"}
+        ``"refuse"`` (default, for callers that rely on exact limit cycles): an automaton that acts
+        at random raises InputError naming its seat. ``"estimate"``: it is seated; it draws from the
+        session's stream and the limit analysis of the line-up is a simulated estimate
+        (:attr:`Lineup.limit_exact` is False; see :func:`learn`, which always uses this).
 
     Returns
     -------
@@ -282,6 +322,7 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     from .equilibrium import stage_game
     from .market import MarketSpec
 
+    Options("refuse", "estimate").check("random_automata", random_automata)
     ms = market if isinstance(market, MarketSpec) else market.spec()
     n = ms.n_firms
     if getattr(ms, "multi_product", False):
@@ -309,6 +350,7 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
 
     # automata first: their action sets enter the state space
     automata = None
+    random_seats: list[int] = []
     auto_values: dict[int, np.ndarray] = {}
     act_of_level = np.zeros((n, 1), dtype=np.int64)
     zn = np.ones(n, dtype=np.int64)
@@ -316,7 +358,8 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     if not all(is_l):
         from strategies import _step as SS
 
-        automata, auto_values, act_of_level = _compile_automata(ms, seats, is_l, keys, agreement)
+        automata, auto_values, act_of_level, random_seats = _compile_automata(ms, seats, is_l, keys, agreement,
+                                                                              random_automata == "refuse")
         for i in range(n):
             if not is_l[i]:
                 zn[i] = int(automata.firms[i, SS.N_STATES])
@@ -411,15 +454,19 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
         nash_profits=np.asarray(st.nash.profits, float), collusive_profits=np.asarray(st.collusive.profits, float),
         nash_actions=np.asarray(st.nash.actions, float), collusive_actions=np.asarray(st.collusive.actions, float),
         nash_prices=np.asarray(st.nash.prices, float), collusive_prices=np.asarray(st.collusive.prices, float),
+        random_seats=tuple(random_seats),
     )
 
 
-def _compile_automata(ms, seats, is_l, keys, agreement):
+def _compile_automata(ms, seats, is_l, keys, agreement, refuse_random=False):
     """Compile the automaton seats with the engine's compiler (learner seats get a placeholder that is
     never played) and read off each automaton's action values.
 
-    Returns ``(compiled, values, act_of_level)``: ``values[i]`` the distinct actions of automaton seat
-    ``i`` (increasing), ``act_of_level[i, l]`` the index of level ``l``'s action among them.
+    Returns ``(compiled, values, act_of_level, random_seats)``: ``values[i]`` the distinct actions of
+    automaton seat ``i`` (increasing), ``act_of_level[i, l]`` the index of level ``l``'s action among
+    them, ``random_seats`` the automaton seats with a probability strictly between 0 and 1 (a
+    forgiveness, a lapse or a cheat probability): they draw from the session's stream. With
+    ``refuse_random`` such a seat raises InputError instead.
     """
     from strategies import AlwaysCompete, Automaton
     from strategies import _step as SS
@@ -438,6 +485,7 @@ def _compile_automata(ms, seats, is_l, keys, agreement):
     L = cl.levels.shape[1]
     act_of_level = np.zeros((n, L), dtype=np.int64)
     values = {}
+    random_seats: list[int] = []
     for i in range(n):
         if is_l[i]:
             continue
@@ -445,11 +493,14 @@ def _compile_automata(ms, seats, is_l, keys, agreement):
         p = cl.probs[i, :ns, SS.P_ALT_GOOD:]
         random = (p > 0) & (p < 1)
         if np.any(random):
-            s_bad = int(np.flatnonzero(random.any(axis=1))[0])
-            raise InputError(keys[i], f"state {cl.state_names[i][s_bad]!r} of {cl.names[i]} acts at random "
-                                      f"(probability {float(p[s_bad][random[s_bad]][0]):g}); automata seated with "
-                                      "learners must be deterministic so that the limit path and the impulse "
-                                      "response are exact")
+            if refuse_random:
+                s_bad = int(np.flatnonzero(random.any(axis=1))[0])
+                raise InputError(keys[i], f"state {cl.state_names[i][s_bad]!r} of {cl.names[i]} acts at random "
+                                          f"(probability {float(p[s_bad][random[s_bad]][0]):g}); here automata "
+                                          "seated with learners must be deterministic, so that the limit path and "
+                                          "the impulse response are exact (sim.learning.learn seats it, with a "
+                                          "simulated estimate)")
+            random_seats.append(i)
         # the actions the automaton can play: its states' levels, and its cheating level if it cheats
         used = np.zeros(L, dtype=bool)
         used[cl.states[i, :ns, SS.ACTION]] = True
@@ -461,7 +512,7 @@ def _compile_automata(ms, seats, is_l, keys, agreement):
         for lev in range(L):
             if used[lev]:
                 act_of_level[i, lev] = int(np.flatnonzero(distinct == own[lev])[0])
-    return cl, values, act_of_level
+    return cl, values, act_of_level, random_seats
 
 
 # ------------------------------------------------------------------------------------------------
@@ -527,12 +578,15 @@ class LearningResult:
     periods : ndarray of int64, shape (n,)
         Periods played, including the final ``convergence`` unchanged ones.
     transient : ndarray of int64, shape (n,)
-        Periods of greedy play from the final state before the limit cycle.
+        Periods of greedy play from the final state before the limit cycle (-1: not defined, see
+        :attr:`limit_exact`).
     cycle_length : ndarray of int64, shape (n,)
+        Length of the limit cycle (0: not defined, see :attr:`limit_exact`).
     cycles : list of ndarray of shape (min(length, CYCLE_STORE), f)
-        Action indices along each session's limit cycle.
+        Action indices along each session's limit cycle (empty when not defined).
     limit_actions, limit_prices, limit_profits : ndarray of shape (n, f)
-        Means over the limit cycle.
+        Means over the limit cycle; with automata that act at random, simulated means (see
+        :attr:`limit_exact` and :func:`learn`).
     profit_gain : ndarray of shape (n,)
         ``(sum of limit profits - sum of Nash profits) / (sum of collusive - sum of Nash)``.
     firm_profit_gain : ndarray of shape (n, f)
@@ -546,12 +600,15 @@ class LearningResult:
         The deviator's forced action index (at the first point of the cycle).
     deviation_gain : ndarray of shape (n,)
         Discounted value of deviating minus not deviating, under the learned strategies (exact,
-        infinite horizon), averaged over the points of the cycle.
+        infinite horizon), averaged over the points of the cycle; with automata that act at random,
+        the mean realised difference over the simulated deviations (truncated horizon).
     deviation_pays, returned : ndarray of shape (n,)
         Share of the cycle's points where the deviation pays / after which play returns to the
-        same cycle.
+        same cycle (with automata that act at random: share of simulated deviations with a positive
+        realised gain / nan).
     return_periods : ndarray of shape (n,)
-        Mean periods from the deviation until play is back on the cycle (nan if it never is).
+        Mean periods from the deviation until play is back on the cycle (nan if it never is, or
+        when not defined).
     elapsed : float
         Wall-clock seconds.
     """
@@ -585,6 +642,12 @@ class LearningResult:
     @property
     def n_sessions(self) -> int:
         return int(self.converged.size)
+
+    @property
+    def limit_exact(self) -> bool:
+        """True when the limit outcomes are exact (a deterministic line-up); False when they are the
+        simulated estimate of a line-up with automata that act at random (see :func:`learn`)."""
+        return self.lineup.limit_exact
 
     @property
     def confidence(self) -> float:
@@ -629,7 +692,9 @@ class LearningResult:
             "limit_profits": [_mean_ci(self.limit_profits[sel][:, i], lvl) for i in range(f)],
             "near_collusive": _share_ci(int(self.near_collusive[sel].sum()), int(sel.sum()), lvl),
             "near_nash": _share_ci(int(self.near_nash[sel].sum()), int(sel.sum()), lvl),
-            "cycle_lengths": {str(int(k)): int(c) for k, c in zip(lengths, counts)},
+            "limit": _limit_description(lu, self.settings),
+            "cycle_lengths": ({str(int(k)): int(c) for k, c in zip(lengths, counts)} if self.limit_exact
+                              else None),
             "profit_gain_histogram": {"edges": edges.tolist(), "counts": h.tolist()},
             "impulse_response": ir,
             "rival_price_cut": _mean_ci((pre[:, rivals] - after[:, rivals]).mean(axis=1), lvl) if rivals else {},
@@ -656,26 +721,29 @@ class LearningResult:
         settings["deviator"] = int(settings["deviator"]) + 1
         out = {
             "settings": settings,
-            "learners": [c.to_dict() if c is not None else {"strategy": lu.names[i], "actions": lu.grids[i].tolist()}
+            "learners": [c.to_dict() if c is not None else {"strategy": lu.names[i], "actions": lu.grids[i].tolist(),
+                                                            "acts_at_random": i in lu.random_seats}
                          for i, c in enumerate(lu.learners)],
             "seats": list(lu.names),
             "summary": self.summary(),
             "elapsed_seconds": self.elapsed,
         }
+        exact = self.limit_exact
         if sessions:
             out["per_session"] = {
                 "converged": self.converged.tolist(),
                 "periods": self.periods.tolist(),
-                "cycle_length": self.cycle_length.tolist(),
-                "transient": self.transient.tolist(),
+                "limit_method": "exact" if exact else "estimate",
+                "cycle_length": self.cycle_length.tolist() if exact else None,
+                "transient": self.transient.tolist() if exact else None,
                 "profit_gain": self.profit_gain.tolist(),
                 "limit_prices": self.limit_prices.tolist(),
                 "limit_profits": self.limit_profits.tolist(),
                 "cycle_prices": [
                     [[float(lu.grids[i][a[i]]) for i in range(lu.n_seats)] for a in c] for c in self.cycles
-                ] if not lu.market.quantity_setting else None,
+                ] if exact and not lu.market.quantity_setting else None,
                 "cycle_actions": [[[float(lu.grids[i][a[i]]) for i in range(lu.n_seats)] for a in c]
-                                  for c in self.cycles],
+                                  for c in self.cycles] if exact else None,
                 "deviation_gain": self.deviation_gain.tolist(),
                 "deviation_action": [float(lu.grids[self.settings["deviator"]][a]) if a >= 0 else None
                                      for a in self.deviation_action],
@@ -721,15 +789,17 @@ def usable_cores() -> int:
 def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, convergence: int = 100_000,
           max_periods: int = 1_000_000_000, deviator: int = 0, deviation="best_response",
           response_periods: int = 15, near: float = 0.1, workers: int | None = None,
-          progress: bool | None = None, cell: int = 0, confidence: float = 0.95) -> LearningResult:
+          progress: bool | None = None, cell: int = 0, confidence: float = 0.95,
+          limit_periods: int = LIMIT_PERIODS) -> LearningResult:
     """Run independent learning sessions and analyse what the learners converged to.
 
     Parameters
     ----------
     market : sim.Market
         Single-product market with 2 to 4 firms (logit Bertrand in the published baseline).
-    learners : QLearner or list of QLearner, optional
-        The same learner on every seat (default ``QLearner()``), or one per seat.
+    learners : QLearner or list, optional
+        The same learner on every seat (default ``QLearner()``), or one strategy per seat: learners
+        and automata of :mod:`strategies` (see :func:`compile_lineup`).
     sessions : int
         Number of independent sessions.
     seed : int
@@ -759,17 +829,42 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     confidence : float in (0, 1)
         Level of the confidence intervals of the summary (normal approximation for means, Wilson for
         shares; see :mod:`sim.metrics`).
+    limit_periods : int
+        Only for line-ups with automata that act at random: periods of greedy play averaged by the
+        limit estimate (see Notes).
 
     Returns
     -------
     LearningResult
+
+    Notes
+    -----
+    *Deterministic line-ups* (learners, and automata without probabilities strictly between 0 and 1):
+    greedy play from the final state is a deterministic path that ends in a cycle. The cycle is found
+    exactly; limit outcomes are its means; the impulse response deviates from each of its points (at
+    most ``IR_POINTS``) and the value of the deviation is exact over the infinite horizon.
+
+    *Line-ups with automata that act at random* (forgiving tit for tat, opportunists, lapses): the
+    automata draw from the session's stream during learning, in the kernel's fixed order (see
+    :mod:`sim._learnkernel`), and convergence is still judged on the learners' greedy strategies
+    alone. Greedy play after learning is then a Markov chain with no exact cycle, and the limit
+    analysis is a seeded estimate, drawn from the session's own stream continued after learning:
+    ``LIMIT_BURN_IN`` periods of greedy play are discarded, the next ``limit_periods`` are averaged
+    (limit actions, prices, profits, profit gain), and at ``IR_POINTS`` evenly spaced periods among
+    them a deviation and the path without it are simulated from the same generator state (common
+    random numbers); the impulse response is the mean over those deviations and the deviation gain
+    the mean realised difference of discounted profits over the first ``H`` periods, ``H`` the
+    smallest horizon with ``delta**H < VALUE_TOL`` (at most ``VALUE_CAP``). The result says so:
+    :attr:`LearningResult.limit_exact` is False, cycle lengths and the return to the cycle are not
+    defined (``cycle_length`` 0, ``returned`` nan), and :meth:`LearningResult.summary` carries a
+    ``limit`` entry with ``method = "estimate"`` and these settings.
     """
     run = _validate_run(sessions=sessions, seed=seed, convergence=convergence, max_periods=max_periods,
                         deviator=deviator, response_periods=response_periods, near=near, workers=workers,
-                        cell=cell, confidence=confidence)
+                        cell=cell, confidence=confidence, limit_periods=limit_periods)
     n_workers = run["workers"] or usable_cores()
     n_workers = min(n_workers, run["sessions"])
-    lineup = compile_lineup(market, learners, workers=n_workers)
+    lineup = compile_lineup(market, learners, workers=n_workers, random_automata="estimate")
     if run["deviator"] >= lineup.n_seats:
         raise InputError("deviator", f"must be a firm of the market (0 to {lineup.n_seats - 1}), got {run['deviator']}")
     dev_index = _deviation_index(lineup, run["deviator"], deviation)
@@ -792,6 +887,45 @@ def _deviation_index(lineup: Lineup, seat: int, deviation) -> int:
     x = Real(0, None).check("deviation", deviation)
     grid = lineup.grids[seat]
     return int(np.argmin(np.abs(grid - x)))
+
+
+def _value_horizon(d: float) -> int:
+    """Periods over which a simulated deviation's value is summed: the smallest ``H`` with
+    ``d**H < VALUE_TOL``, at most ``VALUE_CAP`` (1 for a myopic deviator)."""
+    if d <= 0.0:
+        return 1
+    return int(min(VALUE_CAP, max(1, math.floor(math.log(VALUE_TOL) / math.log(d)) + 1)))
+
+
+def _limit_description(lineup: Lineup, settings: dict) -> dict:
+    """How the limit outcomes of a result were obtained (the ``limit`` entry of the summary)."""
+    if lineup.limit_exact:
+        return {"method": "exact",
+                "what": "the limit cycle of greedy play from each session's final state, found exactly; the "
+                        "impulse response deviates from each point of the cycle and the value of the deviation "
+                        "is exact over the infinite horizon"}
+    seat = settings["deviator"]
+    d = _deviator_discount(lineup, seat)
+    H = _value_horizon(d)
+    top = float(np.max(np.abs(lineup.payoff[:, seat])))
+    bound = 2.0 * d**H * top / (1.0 - d) if d > 0 else 0.0
+    return {
+        "method": "estimate",
+        "random_firms": [i + 1 for i in lineup.random_seats],
+        "burn_in": LIMIT_BURN_IN,
+        "periods": int(settings["limit_periods"]),
+        "deviations": min(IR_POINTS, int(settings["limit_periods"])),
+        "value_periods": H,
+        "value_truncation_bound": bound,
+        "what": (f"ESTIMATE, not an exact cycle: firm(s) {', '.join(str(i + 1) for i in lineup.random_seats)} act "
+                 "at random, so greedy play after learning has no exact limit cycle. Per session, from the final "
+                 f"state and the session's own random stream continued after learning: {LIMIT_BURN_IN} periods of "
+                 f"greedy play discarded, the next {int(settings['limit_periods'])} averaged (limit prices, profits, "
+                 f"profit gain); {min(IR_POINTS, int(settings['limit_periods']))} deviations simulated at evenly "
+                 "spaced periods among them, each against the path without it from the same random numbers; the "
+                 f"deviation gain sums discounted profits over {H} periods (truncation error below {bound:.2g}). "
+                 "Cycle lengths and the return to the cycle are not defined."),
+    }
 
 
 def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool | None) -> LearningResult:
@@ -819,6 +953,8 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
     d_dev = _deviator_discount(lineup, seat)
     lu = lineup
     extra = lu.kernel_args()
+    exact = lu.limit_exact
+    horizon = _value_horizon(d_dev)
 
     def one(j: int) -> int:
         rng = states[j].copy()
@@ -830,8 +966,15 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
                             lu.payoff, Q, greedy, rng, s, settings["convergence"], settings["max_periods"], z, *extra)
         status[j] = st
         periods[j] = t
-        K._analyse(lu.system_state(s, z), lu.game(greedy, t), lu.actions, lu.prices, seat, dev_index, d_dev,
-                   IR_POINTS, cyc[j], lim_a[j], lim_p[j], lim_pi[j], ir_p[j], ir_pi[j], cf_p[j], cf_pi[j], info[j])
+        x = lu.system_state(s, z)
+        if exact:
+            K._analyse(x, lu.game(greedy, t), lu.actions, lu.prices, seat, dev_index, d_dev, IR_POINTS, cyc[j],
+                       lim_a[j], lim_p[j], lim_pi[j], ir_p[j], ir_pi[j], cf_p[j], cf_pi[j], info[j])
+        else:
+            # the session's stream goes on from where learning left it
+            K._estimate(x, lu.game(greedy, t, rng), lu.actions, lu.prices, seat, dev_index, d_dev, IR_POINTS,
+                        LIMIT_BURN_IN, settings["limit_periods"], horizon, lim_a[j], lim_p[j], lim_pi[j], ir_p[j],
+                        ir_pi[j], cf_p[j], cf_pi[j], info[j])
         return j
 
     show = sys.stderr.isatty() if progress is None else bool(progress)
@@ -885,6 +1028,214 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
 
 
 # ------------------------------------------------------------------------------------------------
+# Experiment-file tables
+# ------------------------------------------------------------------------------------------------
+
+#: parameters of a Q-learner in [learning] and in a ``strategy = "qlearning"`` entry
+LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init")
+#: keys of the tables a learning experiment reads, in the order error messages list them
+LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "near", "limit_periods")
+IMPULSE_KEYS = ("firm", "action", "periods")
+RUN_KEYS = ("sessions", "seed", "workers")
+EXPERIMENT_KEYS = ("name", "kind", "description")
+
+
+def learner_from_entry(entry: dict, base: dict, key: str, skip=("strategy",), validate: bool = True):
+    """A :class:`~strategies.qlearning.QLearner` from an experiment-file entry with
+    ``strategy = "qlearning"``: the parameters ``base`` (the [learning] table's) overridden by the
+    entry's own.
+
+    Parameters
+    ----------
+    entry : dict
+        The entry (``strategy = "qlearning"``, learner parameters, and the keys in ``skip``).
+    base : dict
+        Default learner parameters (keys of :data:`LEARNER_PARAMS`).
+    key : str
+        Key path of the entry in error messages, e.g. ``"strategies[2]"``.
+    skip : tuple of str
+        Keys of the entry that are not learner parameters (read by the caller).
+    validate : bool
+        Check the parameters now (errors name ``key.parameter``).
+
+    Raises
+    ------
+    InputError
+        ``key.name`` for an unknown parameter or a bad value.
+    """
+    from strategies.qlearning import QLearner
+
+    params = dict(base)
+    for name, v in entry.items():
+        if name in skip:
+            continue
+        if name not in LEARNER_PARAMS:
+            raise InputError(f"{key}.{name}", f"unknown parameter of qlearning; allowed: {', '.join(LEARNER_PARAMS)}")
+        params[name] = v
+    strat = QLearner(**params)
+    if validate:
+        strat.spec(prefix=key)
+    return strat
+
+
+def _lineup_from_entries(entries, base: dict, n_firms: int) -> list:
+    """One strategy per firm from ``[[strategies]]``: ``strategy = "qlearning"`` entries take the
+    [learning] parameters, overridden by their own; any other name is an automaton of the engine's
+    registry (see ``supergame simulate``)."""
+    from strategies import strategy_from_dict
+    from strategies.qlearning import QLearner
+    from strategies.registry import check_seats
+
+    if not isinstance(entries, list) or not entries:
+        raise InputError("strategies", "must be a non-empty list of [[strategies]] entries")
+    out = []
+    total = 0
+    for k, t in enumerate(entries):
+        key = f"strategies[{k + 1}]"
+        if not isinstance(t, dict):
+            raise InputError(key, f"must be a table with a 'strategy' key, got {t!r}")
+        seats = check_seats(f"{key}.seats", t.get("seats", 1))
+        if t.get("strategy") == QLearner.name:
+            strat = learner_from_entry(t, base, key, skip=("strategy", "seats"))
+        else:
+            strat = strategy_from_dict(t, key)
+        total += seats
+        if total <= n_firms:  # no clones beyond the market's firms (refused below)
+            out.extend(strat.clone() for _ in range(seats))
+    if total != n_firms:
+        raise InputError("strategies", f"the line-up has {total} seats but the market has {n_firms} firms; give "
+                                       "one strategy per firm (use seats to repeat one)")
+    if not any(isinstance(x, QLearner) for x in out):
+        raise InputError("strategies", "the line-up has no learner (strategy = 'qlearning'); use `supergame "
+                                       "simulate` for automata only")
+    return out
+
+
+def learning_from_dict(doc: dict, overrides: dict | None = None) -> dict:
+    """Validated settings of a learning experiment from its tables.
+
+    Reads ``[experiment]`` (``kind``, if given, must be ``"learn"``), ``[market]``
+    (:func:`sim.market_from_dict`), ``[learning]`` (the learners' parameters, ``convergence``,
+    ``max_periods``, ``near``, ``limit_periods``), ``[impulse]`` (``firm`` counted from 1, ``action``
+    -- ``"best_response"`` or a number -- and ``periods``), ``[run]`` (``sessions``, ``seed``,
+    ``workers``) and an optional ``[[strategies]]`` line-up (``strategy = "qlearning"`` entries take
+    the [learning] parameters, overridden by their own; any other name is an automaton). Unknown keys
+    are refused (:func:`sim._tables.refuse_unknown`), and the line-up is compiled, so that a state
+    space too large for the memory is refused here, before any work.
+
+    Parameters
+    ----------
+    doc : dict
+        The experiment document (a dict of tables).
+    overrides : dict, optional
+        ``"table.key" -> (value, name)``: the value replaces the table's (a market key, or a key of
+        [learning], [impulse] or [run]), and an error about it names ``name`` instead of the key path
+        (a command line gives its flags this way, e.g. ``{"learning.alpha": (0.2, "--alpha")}``).
+
+    Returns
+    -------
+    dict
+        ``market`` (:class:`sim.Market`), ``learner`` (a QLearner for every seat, or one strategy per
+        seat) and ``settings`` (keyword arguments of :func:`learn`; ``deviator`` counted from 0).
+
+    Raises
+    ------
+    InputError
+        With the key path (or the override's name) of the first bad value.
+    """
+    overrides = dict(overrides or {})
+    try:
+        return _read_tables(doc, overrides)
+    except InputError as exc:
+        for path, (_value, name) in overrides.items():
+            if exc.key == path or exc.key.startswith((path + ".", path + "[")):
+                raise InputError(name, exc.message) from None
+        raise
+
+
+def _read_tables(doc: dict, overrides: dict) -> dict:
+    from strategies.qlearning import QLearner
+
+    from ._tables import refuse_unknown
+    from .market import market_from_dict
+
+    if not isinstance(doc, dict):
+        raise InputError("experiment", f"must be a document of tables, got {doc!r}")
+    readers = {"market": None, "learning": LEARNING_KEYS, "impulse": IMPULSE_KEYS, "run": RUN_KEYS}
+    for path in overrides:
+        table, _, key = path.partition(".")
+        allowed = readers.get(table, ())
+        if table not in readers or not key or (allowed is not None and key not in allowed):
+            raise ValueError(f"cannot override {path!r}")
+    exp = refuse_unknown(doc.get("experiment", {}), "experiment", EXPERIMENT_KEYS)
+    if "kind" in exp and exp["kind"] != "learn":
+        raise InputError("experiment.kind", f"this command runs kind = 'learn' experiments, got {exp['kind']!r}")
+
+    def table(name: str) -> dict:
+        if name == "market":
+            tab = doc.get("market", {})
+            if not isinstance(tab, dict):
+                raise InputError("market", f"must be a table, got {tab!r}")
+            tab = dict(tab)
+        else:
+            tab = dict(refuse_unknown(doc.get(name, {}), name, readers[name]))
+        for path, (value, _name) in overrides.items():
+            t, _, key = path.partition(".")
+            if t == name:
+                tab[key] = value
+        return tab
+
+    if "market" not in doc and not any(p.startswith("market.") for p in overrides):
+        raise InputError("market", "missing: the [market] table describes the market")
+    market = market_from_dict(table("market"))
+    n_firms = market.spec().n_firms
+    lt, it, rt = table("learning"), table("impulse"), table("run")
+
+    base = {k: lt[k] for k in LEARNER_PARAMS if k in lt}
+    learner = QLearner(**base)
+    learner.spec(prefix="learning")
+    if "strategies" in doc:
+        learner = _lineup_from_entries(doc["strategies"], base, n_firms)
+
+    def get(tab: dict, name: str, key: str, constraint, default):
+        return constraint.check(f"{name}.{key}", tab.get(key, default))
+
+    rc = _RUN_CONSTRAINTS
+    settings = {
+        "convergence": get(lt, "learning", "convergence", rc["convergence"], 100_000),
+        "max_periods": get(lt, "learning", "max_periods", rc["max_periods"], 1_000_000_000),
+        "near": get(lt, "learning", "near", rc["near"], 0.1),
+        "limit_periods": get(lt, "learning", "limit_periods", rc["limit_periods"], LIMIT_PERIODS),
+        "sessions": get(rt, "run", "sessions", rc["sessions"], 100),
+        "seed": get(rt, "run", "seed", rc["seed"], 0),
+        "workers": get(rt, "run", "workers", rc["workers"], None),
+        "response_periods": get(it, "impulse", "periods", rc["response_periods"], 15),
+    }
+    firm = get(it, "impulse", "firm", Integer(1, n_firms), 1)
+    settings["deviator"] = firm - 1  # learn() counts seats from 0; every output counts firms from 1
+    action = it.get("action", "best_response")
+    if isinstance(action, str) and action != "best_response":
+        try:
+            action = float(action)
+        except ValueError:
+            raise InputError("impulse.action", f"must be 'best_response' or a number, got {action!r}") from None
+    if not isinstance(action, str):
+        action = Real(0, None).check("impulse.action", action)
+    settings["deviation"] = action
+    # the line-up and its memory, checked before any work (the run repeats this, cheaply)
+    workers = settings["workers"] or usable_cores()
+    compile_lineup(market, learner, workers=min(workers, settings["sessions"]), random_automata="estimate")
+    return {"market": market, "learner": learner, "settings": settings}
+
+
+def _build_without_flags(_flags, doc: dict) -> dict:
+    """:func:`learning_from_dict` of ``doc``, called the way the experiment adapter calls its table
+    reader (``build(flags, doc)``, with an object that gives no flag): the first argument is not
+    used."""
+    return learning_from_dict(doc)
+
+
+# ------------------------------------------------------------------------------------------------
 # Reference and benchmark
 # ------------------------------------------------------------------------------------------------
 
@@ -902,7 +1253,8 @@ def reference_session(lineup: Lineup, session: int = 0, *, seed: int = 0, conver
 
 def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergence: int = 100_000,
                    max_periods: int = 10_000, cell: int = 0) -> dict:
-    """One session through the kernel, returning the same fields as :func:`reference_session`."""
+    """One session through the kernel, returning the same fields as :func:`reference_session`
+    (``rng``: the generator state after the last period)."""
     from . import _learnkernel as K
     from ._rng import stream_states
 
@@ -914,7 +1266,7 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
     s = K._initial_state(rng, lu.radix, lu.place, lu.M, lu.K)
     st, t, s = K._learn(lu.kind, lu.lidx, lu.radix, lu.place, lu.S, lu.K, lu.mod, lu.alpha, lu.beta, lu.delta,
                         lu.payoff, Q, greedy, rng, s, convergence, max_periods, z, *lu.kernel_args())
-    return {"status": int(st), "periods": int(t), "state": int(s), "Q": Q, "greedy": greedy, "z": z}
+    return {"status": int(st), "periods": int(t), "state": int(s), "Q": Q, "greedy": greedy, "z": z, "rng": rng}
 
 
 def _baseline_market():

@@ -103,6 +103,8 @@ BAD_FLAGS = [
     (["--impulse-firm", "3"], "--impulse-firm", "[1, 2]"),
     (["--sessions", "0"], "--sessions", "[1, 10000000]"),
     (["--delta", "x"], "--delta", "expected a number"),
+    (["--limit-periods", "0"], "--limit-periods", "[1, 100000000]"),
+    (["--cost", "-1"], "--cost", "cost"),
 ]
 
 
@@ -124,6 +126,7 @@ def test_bad_flags_give_one_line_and_status_2(small, capsys, extra, key, text):
         ("[learning]\nbeta = 0.0\n", "(0, inf)", "learning.beta"),
         ("[learning]\ngrid = [1.7]\n", "at least 2 actions", "learning.grid"),
         ("[learning]\ngamma = 0.9\n", "unknown key", "learning.gamma"),
+        ("[learning]\nlimit_periods = 0\n", "[1, 100000000]", "learning.limit_periods"),
         ("[impulse]\nfirm = 0\n", "[1, 2]", "impulse.firm"),
         ("[impulse]\naction = 'undercut'\n", "best_response", "impulse.action"),
         ("[run]\nreplications = 10\n", "unknown key", "run.replications"),
@@ -193,7 +196,8 @@ def test_a_learner_against_an_automaton_from_a_file(tmp_path, capsys):
     ("old", "new", "key"),
     [
         ('strategy = "tit_for_tat"', 'strategy = "tit_for_two_tats"', "strategies[2].strategy"),
-        ('strategy = "tit_for_tat"', 'strategy = "forgiving_tit_for_tat"\nforgiveness = 0.5', "strategies[2]"),
+        ('strategy = "tit_for_tat"', 'strategy = "forgiving_tit_for_tat"\nforgiveness = 1.5',
+         "strategies[2].forgiveness"),
         ('strategy = "tit_for_tat"', 'strategy = "tit_for_tat"\nseats = 2', "strategies"),
         ('strategy = "qlearning"\nalpha = 0.2', 'strategy = "grim_trigger"', "strategies"),
         ("alpha = 0.2", "alpha = 3.0", "strategies[1].alpha"),
@@ -260,3 +264,112 @@ def test_seats_follow_the_simulation_rules(tmp_path, capsys, seats, key, message
     assert main(["learn", str(p)]) == 2
     err = capsys.readouterr().err.strip()
     assert err.startswith(f"supergame learn: error: {key}: {message}")
+
+
+RANDOM = VERSUS.replace('strategy = "tit_for_tat"', 'strategy = "forgiving_tit_for_tat"\nforgiveness = 0.3')
+
+
+def test_a_learner_against_an_automaton_that_acts_at_random_gets_a_labelled_estimate(tmp_path, capsys):
+    p = tmp_path / "random.toml"
+    p.write_text(RANDOM.replace("[impulse]", "[impulse]\n").replace("convergence = 3000",
+                                                                   "convergence = 3000\nlimit_periods = 2000"))
+    assert main(["learn", str(p)]) == 0
+    out = capsys.readouterr().out
+    assert "Firm 2: forgiving_tit_for_tat (automaton; prices" in out and "acts at random)" in out
+    assert "Limit outcomes: ESTIMATED, not an exact cycle (firm 2 acts at random): means of 2000 simulated" in out
+    assert "length of the limit cycle: not defined" in out and "return to the pre-deviation cycle: not defined" in out
+    assert "ESTIMATED over 449 periods" in out  # delta 0.95: 0.95**449 < 1e-10 <= 0.95**448
+    assert main(["learn", str(p), "--json", "--limit-periods", "500"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    lim = doc["summary"]["limit"]
+    assert lim["method"] == "estimate" and lim["periods"] == 500 and lim["random_firms"] == [2]
+    assert doc["summary"]["cycle_lengths"] is None and doc["per_session"]["cycle_length"] is None
+    assert doc["settings"]["limit_periods"] == 500
+    assert doc["learners"][1]["acts_at_random"] is True
+
+
+def _learn_pairs(sm: dict) -> dict:
+    """Metrics of the learn kind (sim._adapters) and the matching numbers of `supergame learn --json`."""
+    return {
+        "profit_gain": sm["profit_gain"]["mean"], "profit_gain.low": sm["profit_gain"]["low"],
+        "profit_gain.q50": sm["profit_gain"]["q50"], "converged": sm["converged"]["share"],
+        "periods": sm["periods"]["mean"], "limit_price.firm1": sm["limit_prices"][0]["mean"],
+        "limit_price.firm2": sm["limit_prices"][1]["mean"], "limit_profit.firm2": sm["limit_profits"][1]["mean"],
+        "near_collusive": sm["near_collusive"]["share"], "rival_price_cut": sm["rival_price_cut"]["mean"],
+        "deviation_gain": sm["deviation_gain"]["mean"], "deviation_pays": sm["deviation_pays"]["mean"],
+    }
+
+
+def test_learn_and_run_give_the_same_numbers_for_the_same_file(tmp_path, capsys):
+    """`supergame learn FILE` and `supergame run FILE` (a single-cell experiment) draw from the same
+    streams, those of cell 0 (``SeedSequence(seed, spawn_key=(0,))``): every metric the run stores
+    equals the learn command's, bit for bit."""
+    import csv
+
+    p = tmp_path / "plain.toml"
+    p.write_text(SMALL)
+    assert main(["learn", str(p), "--json"]) == 0
+    sm = json.loads(capsys.readouterr().out)["summary"]
+    folder = tmp_path / "run"
+    assert main(["run", str(p), "--out", str(folder), "--quiet", "--json"]) == 0
+    capsys.readouterr()
+    with open(folder / "results.csv", newline="") as f:
+        row = next(csv.DictReader(f))
+    for key, value in _learn_pairs(sm).items():
+        assert float(row[key]) == value, key
+    arrays = json.loads((folder / "arrays.json").read_text())
+    assert arrays["cells"][0]["arrays"]["impulse.prices"] == sm["impulse_response"]["prices"]["mean"]
+
+
+def test_the_learn_kind_on_cell_0_matches_the_command_with_automata_that_act_at_random(tmp_path, capsys):
+    """The same agreement for a line-up with an automaton that acts at random: the experiment kind's
+    run on cell 0 with the tables as read by sim.learning.learning_from_dict."""
+    import tomllib
+
+    from sim._adapters import LEARN
+    from sim.kinds import CellContext
+    from sim.learning import learning_from_dict
+
+    text = RANDOM.replace("convergence = 3000", "convergence = 3000\nlimit_periods = 1000")
+    p = tmp_path / "random.toml"
+    p.write_text(text)
+    assert main(["learn", str(p), "--json"]) == 0
+    sm = json.loads(capsys.readouterr().out)["summary"]
+    assert sm["limit"]["method"] == "estimate"
+    res = LEARN.run(learning_from_dict(tomllib.loads(text)), CellContext(index=0, threads=1))
+    for key, value in _learn_pairs(sm).items():
+        assert res.metrics[key] == value, key
+
+
+def test_the_library_reads_the_tables_without_the_command_line():
+    """sim.learning.learning_from_dict is the one reader of a learning experiment's tables (the
+    experiment adapter uses it); it does not import the command line, refuses unknown keys in the
+    shared wording, and names an override's source in its errors."""
+    code = (
+        "import sys, tomllib; from sim.learning import learning_from_dict; "
+        f"doc = tomllib.loads({SMALL!r}); cfg = learning_from_dict(doc); "
+        "from sim._adapters import LEARN; LEARN.prepare(doc); "
+        "assert not any(m.startswith('sim.cli') for m in sys.modules), sorted(m for m in sys.modules if 'cli' in m); "
+        "print(cfg['settings']['sessions'], cfg['settings']['seed'], cfg['learner'].m)"
+    )
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.split() == ["4", "7", "5"]
+
+    import tomllib
+
+    from sim.errors import InputError
+    from sim.learning import learning_from_dict
+
+    doc = tomllib.loads(SMALL)
+    cfg = learning_from_dict(doc, {"learning.alpha": (0.3, "--alpha"), "run.sessions": (2, "--sessions")})
+    assert cfg["learner"].alpha == 0.3 and cfg["settings"]["sessions"] == 2
+    with pytest.raises(InputError) as err:
+        learning_from_dict(doc, {"learning.alpha": (3.0, "--alpha")})
+    assert err.value.key == "--alpha" and "(0, 1]" in err.value.message
+    with pytest.raises(InputError) as err:
+        learning_from_dict({**doc, "impulse": {"firm": 1, "lag": 2}})
+    assert str(err.value) == "impulse.lag: unknown key; allowed: firm, action, periods"
+    with pytest.raises(InputError) as err:
+        learning_from_dict({k: v for k, v in doc.items() if k != "market"})
+    assert err.value.key == "market"

@@ -370,14 +370,230 @@ def test_kernel_and_reference_agree_with_an_automaton_seated(name):
         assert np.array_equal(out[4], np.array(ref["ir_prices"])) and out[-1][3] == ref["gain"]
 
 
-def test_automata_that_act_at_random_are_refused_next_to_learners():
+def test_automata_that_act_at_random_are_seated_only_when_asked_for():
+    # compile_lineup keeps refusing them by default (callers that rely on exact cycles); learn() seats
+    # them with a simulated estimate
     s = sim_strategies()
     with pytest.raises(sim.InputError) as err:
         compile_lineup(logit_market(), [QLearner(m=3), s.ForgivingTitForTat(forgiveness=0.3)],
                        seat_prefix="strategies")
-    assert err.value.key == "strategies[2]" and "0.3" in err.value.message
+    assert err.value.key == "strategies[2]" and "0.3" in err.value.message and "acts at random" in err.value.message
+    lu = compile_lineup(logit_market(), [QLearner(m=3), s.ForgivingTitForTat(forgiveness=0.3)],
+                        random_automata="estimate")
+    assert lu.random_seats == (1,) and not lu.limit_exact
+    assert compile_lineup(logit_market(), [QLearner(m=3), s.TitForTat()]).limit_exact
+    with pytest.raises(sim.InputError) as err:
+        compile_lineup(logit_market(), [QLearner(m=3), s.TitForTat()], random_automata="sometimes")
+    assert err.value.key == "random_automata"
     with pytest.raises(sim.InputError):
         compile_lineup(logit_market(), [s.GrimTrigger(), s.TitForTat()])  # no learner
+
+
+# ---- automata that act at random ------------------------------------------------------------------
+
+
+def _lapsing_rule():
+    # colludes, punishes one period after a rival's defection, and lapses into the punishment with
+    # probability 0.1 after a good signal (a user-defined table with a lapse)
+    return sim_strategies().TableAutomaton(states={
+        "collude": {"action": "collusive", "watch": "rivals", "bad": "punish", "lapse": 0.1},
+        "punish": {"action": "nash", "next": "collude"},
+    })
+
+
+RANDOM_LINEUPS = {
+    "forgiving_tit_for_tat": lambda: (logit_market(), [QLearner(m=5, beta=3e-4),
+                                                       sim_strategies().ForgivingTitForTat(forgiveness=0.3)]),
+    "opportunist": lambda: (logit_market(), [QLearner(m=5, beta=3e-4),
+                                             sim_strategies().Opportunist(probability=0.2, after="collude")]),
+    "opportunist-then-nash": lambda: (logit_market(), [sim_strategies().Opportunist(probability=0.01, start=50),
+                                                       QLearner(m=4, beta=3e-4)]),
+    "three-firms-two-random": lambda: (logit_market(n=3), [QLearner(m=3, beta=5e-4), _lapsing_rule(),
+                                                           sim_strategies().ForgivingTitForTat(forgiveness=0.4)]),
+}
+
+
+@pytest.mark.parametrize("name", sorted(RANDOM_LINEUPS))
+def test_kernel_and_reference_agree_with_automata_that_act_at_random(name):
+    """Same draws in the same order: the learning phase (Q-matrix, greedy tables, automaton states,
+    generator state) and the simulated limit analysis (means, impulse response, deviation gain)
+    agree bit for bit."""
+    from sim._learnref import reference_estimate
+
+    market, seats = RANDOM_LINEUPS[name]()
+    lu = compile_lineup(market, seats, random_automata="estimate")
+    assert not lu.limit_exact
+    k = kernel_session(lu, 1, seed=4, convergence=3000, max_periods=40_000)
+    r = reference_session(lu, 1, seed=4, convergence=3000, max_periods=40_000)
+    assert k["periods"] == r["periods"] and k["status"] == r["status"]
+    assert np.array_equal(k["Q"], r["Q"]) and np.array_equal(k["greedy"], r["greedy"])
+    assert tuple(k["z"]) == r["z"] and k["state"] == r["state"]
+    assert np.array_equal(k["rng"], r["rng"])
+    n, T = lu.n_seats, 5
+    learner = lu.learner_seats[0]
+    for deviator, action in ((learner, -1), (learner, 0)):
+        out = [np.zeros(n), np.zeros(n), np.zeros(n), np.zeros((T + 2, n)), np.zeros((T + 2, n)),
+               np.zeros((T + 2, n)), np.zeros((T + 2, n)), np.zeros(8)]
+        rng = k["rng"].copy()
+        G = lu.game(k["greedy"], k["periods"], rng)
+        K._estimate(lu.system_state(k["state"], k["z"]), G, lu.actions, lu.prices, deviator, action, 0.9, 16, 50,
+                    400, 60, *out)
+        ref = reference_estimate(lu, r["greedy"], r["history"], r["z"], r["periods"], r["rng"], deviator, action, 0.9,
+                                 16, 50, 400, 60, T)
+        assert np.array_equal(out[0], ref["lim_actions"]) and np.array_equal(out[1], ref["lim_prices"])
+        assert np.array_equal(out[2], ref["lim_profits"])
+        for j, name_ in enumerate(("ir_prices", "ir_profits", "cf_prices", "cf_profits")):
+            assert np.array_equal(out[3 + j], np.array(ref[name_])), name_
+        info = out[-1]
+        assert info[3] == ref["gain"] and info[4] == ref["pays"] and info[7] == ref["first_action"]
+        assert info[1] == 0 and math.isnan(info[5])  # no cycle, no return to it
+        assert np.array_equal(rng, ref["rng"])
+
+
+def test_the_jump_advances_the_generator_by_2_to_the_128_draws():
+    """xoshiro256** is linear over GF(2): one draw multiplies the 256-bit state by a matrix T, and the
+    jump of Blackman and Vigna (2021, "Scrambled linear pseudorandom number generators", ACM TOMS 47(4))
+    must equal T**(2**128), computed here independently by 128 squarings of T."""
+    from sim._learnref import jumped
+    from sim._rng import ReferenceStream
+
+    def bits(words):
+        return np.array([(int(w) >> b) & 1 for w in words for b in range(64)], dtype=float)
+
+    T = np.zeros((256, 256))
+    for j in range(256):
+        e = np.zeros(4, dtype=np.uint64)
+        e[j // 64] = np.uint64(1) << np.uint64(j % 64)
+        st = ReferenceStream(e)
+        st.next_u64()
+        T[:, j] = bits(st.s)
+    A = T
+    for _ in range(128):
+        A = (A @ A) % 2  # entries at most 256: exact in floating point
+    state = np.array([0x0123456789ABCDEF, 0xFEDCBA9876543210, 0x0F1E2D3C4B5A6978, 0x8796A5B4C3D2E1F0],
+                     dtype=np.uint64)
+    expected = (A @ bits(state)) % 2
+    ref = jumped(ReferenceStream(state))
+    assert np.array_equal(bits(ref.s), expected)
+    ker = state.copy()
+    K._jump(ker)
+    assert np.array_equal(bits(ker), expected)
+    assert not np.array_equal(ker, state)
+
+
+def test_results_with_random_automata_are_labelled_estimates_and_do_not_depend_on_workers():
+    s = sim_strategies()
+    seats = [QLearner(m=5, beta=2e-4), s.ForgivingTitForTat(forgiveness=0.3)]
+    a = learn(logit_market(), seats, sessions=4, seed=5, convergence=3000, workers=1, limit_periods=2000)
+    b = learn(logit_market(), seats, sessions=4, seed=5, convergence=3000, workers=2, limit_periods=2000)
+    for name in ("periods", "limit_prices", "profit_gain", "ir_prices", "deviation_gain", "deviation_pays"):
+        assert np.array_equal(getattr(a, name), getattr(b, name)), name
+    assert not a.limit_exact
+    assert np.all(a.cycle_length == 0) and np.all(a.transient == -1) and np.all(np.isnan(a.returned))
+    assert all(c.shape == (0, 2) for c in a.cycles)
+    sm = a.summary()
+    assert sm["limit"]["method"] == "estimate" and sm["limit"]["random_firms"] == [2]
+    assert sm["limit"]["periods"] == 2000 and sm["limit"]["burn_in"] > 0 and "ESTIMATE" in sm["limit"]["what"]
+    assert sm["cycle_lengths"] is None
+    d = a.to_dict()
+    assert d["per_session"]["limit_method"] == "estimate" and d["per_session"]["cycle_length"] is None
+    assert d["learners"][1]["acts_at_random"] is True
+    # a deterministic line-up keeps its exact analysis
+    e = learn(logit_market(), [QLearner(m=5, beta=2e-4), s.TitForTat()], sessions=2, seed=5, convergence=3000)
+    assert e.limit_exact and e.summary()["limit"]["method"] == "exact" and np.all(e.cycle_length >= 1)
+    with pytest.raises(sim.InputError) as err:
+        learn(logit_market(), seats, sessions=2, limit_periods=0)
+    assert err.value.key == "limit_periods"
+
+
+def _value_iteration_against_forgiving_tft(lu, g, d):
+    """Value iteration (Bellman, 1957) for a learner (seat 0, k = 1) facing forgiving tit for tat
+    (seat 1) that forgives a defection with probability g.
+
+    By its definition, forgiving tit for tat colludes in a period if the learner's previous price was
+    at least the collusive price; otherwise it punishes (Nash price) with probability 1 - g and
+    colludes with probability g. Its action is thus a random function of the learner's last action,
+    and the learner faces a Markov decision problem on its last action:
+    Q(a_last, a) = sum_b P(b | a_last) (pi(a, b) + d max_a' Q(a, a'))."""
+    m, r = int(lu.radix[0]), int(lu.radix[1])
+    coll = lu.grids[1].max()
+    assert r == 2 and coll == pytest.approx(lu.collusive_prices[1])
+    complies = lu.grids[0] >= coll - 1e-12
+    P = np.zeros((m, r))  # P[a_last, b]: b = 1 collusive, 0 Nash
+    P[complies, 1] = 1.0
+    P[~complies, 1] = g
+    P[~complies, 0] = 1.0 - g
+    pi = lu.payoff.reshape(r, m, 2)[:, :, 0]  # [rival action, learner action]
+    V = np.zeros(m)
+    for _ in range(20_000):
+        Q = P @ (pi + d * V[None, :])
+        newV = Q.max(axis=1)
+        if np.max(np.abs(newV - V)) < 1e-14:
+            break
+        V = newV
+    return Q, complies
+
+
+def test_a_learner_facing_rare_forgiveness_learns_to_collude_and_its_estimated_punishment_matches_the_rule():
+    # Forgiveness 0.1: value iteration on the known rule says the best reply is the lowest grid price at
+    # or above the collusive one, in every state. Q-learning should find it in (nearly) every session:
+    # 18 of 20, as for strict tit for tat above (common practice, no source). The simulated impulse
+    # response and deviation value are then checked against the rule's probabilities.
+    s = sim_strategies()
+    g, d = 0.1, 0.95
+    r = learn(logit_market(), [QLearner(beta=2e-5, delta=d), s.ForgivingTitForTat(forgiveness=g)], sessions=20,
+              seed=8)
+    lu = r.lineup
+    Q, complies = _value_iteration_against_forgiving_tft(lu, g, d)
+    policy = Q.argmax(axis=1)
+    a_star = int(policy[0])
+    assert np.all(policy == a_star) and complies[a_star] and not complies[a_star - 1]
+    assert not r.limit_exact
+    # (limit prices are means of 10,000 simulated periods: equal up to rounding)
+    match = np.isclose(r.limit_prices[:, 0], lu.grids[0][a_star], rtol=1e-12, atol=0)
+    assert match.sum() >= 18
+    # the rule never draws while the learner complies: the rival's estimated limit price is exact
+    assert np.allclose(r.limit_prices[match, 1], lu.grids[1].max(), rtol=1e-12, atol=0)
+    # period after the deviation: the rule colludes with probability g, independently in each of the
+    # 64 simulated deviations of each session; 4 standard errors of a binomial share
+    p_n, p_c = lu.grids[1]
+    n_draws = 64 * int(match.sum())
+    expected = g * p_c + (1 - g) * p_n
+    se = math.sqrt(g * (1 - g) / n_draws) * (p_c - p_n)
+    assert abs(r.ir_prices[match, 2, 1].mean() - expected) < 4 * se
+    # the value of the one-shot deviation: Q*(a*, br) - Q*(a*, a*) from value iteration against the
+    # estimate's mean over sessions, within 4 standard errors across sessions plus the truncation bound
+    br = int(r.deviation_action[match][0])
+    assert np.all(r.deviation_action[match] == br)
+    exact_gain = Q[a_star, br] - Q[a_star, a_star]
+    x = r.deviation_gain[match]
+    tol = 4 * x.std(ddof=1) / math.sqrt(x.size) + r.summary()["limit"]["value_truncation_bound"]
+    assert exact_gain < 0 and abs(x.mean() - exact_gain) < tol
+
+
+def test_a_learner_facing_frequent_forgiveness_learns_to_exploit_it():
+    # Forgiveness 0.9: value iteration says undercutting is the best reply in every state (generous
+    # tit for tat can be exploited when it forgives too often; Nowak and Sigmund, 1992, Nature 355,
+    # "Tit for tat in heterogeneous populations", from memory). Every session should learn to undercut
+    # (common practice, no source), after which the rule colludes with probability g in every period,
+    # independently: its mean limit price is g p_c + (1 - g) p_n, which the estimate must match within
+    # 4 standard errors of the mean of 20 x 10,000 Bernoulli draws.
+    s = sim_strategies()
+    g, d = 0.9, 0.95
+    r = learn(logit_market(), [QLearner(beta=2e-5, delta=d), s.ForgivingTitForTat(forgiveness=g)], sessions=20,
+              seed=8)
+    lu = r.lineup
+    Q, complies = _value_iteration_against_forgiving_tft(lu, g, d)
+    assert not np.any(complies[Q.argmax(axis=1)])
+    assert r.converged.all()
+    coll = lu.grids[1].max()
+    assert np.all(r.limit_prices[:, 0] < coll)
+    p_n, p_c = lu.grids[1]
+    se = math.sqrt(g * (1 - g) / (20 * r.summary()["limit"]["periods"])) * (p_c - p_n)
+    assert abs(r.limit_prices[:, 1].mean() - (g * p_c + (1 - g) * p_n)) < 4 * se
+    # exploiting pays: more than colluding with the rule forever
+    pi = lu.payoff.reshape(2, int(lu.radix[0]), 2)[:, :, 0]
+    assert r.limit_profits[:, 0].min() > pi[1, complies].max()
 
 
 def _grid_best_response(lu, rival_action):

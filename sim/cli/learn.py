@@ -5,9 +5,8 @@ from __future__ import annotations
 import argparse
 import os
 
-from .._tables import refuse_unknown
 from ..errors import InputError
-from ._common import add_market_flags, emit, flag_error, market_table_from_args, parse_number, parse_numbers
+from ._common import MARKET_FLAGS, add_market_flags, emit, market_table_from_args, parse_number, parse_numbers
 
 HELP = "let Q-learning firms learn to price; limit outcomes, profit gain and impulse response"
 DESCRIPTION = (
@@ -16,35 +15,40 @@ DESCRIPTION = (
     "and cycles, the profit gain (profit - Nash) / (collusive - Nash), and the impulse response to a "
     "one-period deviation. Settings come from the [market], [learning], [impulse] and [run] tables of FILE, "
     "from flags, or both (flags win). A [[strategies]] list seats learners (strategy = 'qlearning') against "
-    "automata of `supergame simulate` (grim_trigger, tit_for_tat, ...)."
+    "automata of `supergame simulate` (grim_trigger, tit_for_tat, forgiving_tit_for_tat, opportunist, ...). "
+    "With automata that act at random the limit outcomes and the impulse response are seeded simulation "
+    "estimates, labelled as such, not an exact cycle. The same file gives the same numbers as `supergame run` "
+    "(random streams of cell 0)."
 )
 
-# key -> (flag, parser kind); kinds: num, int, nums, str
-_LEARNING_KEYS = {
-    "alpha": ("alpha", "num"),
-    "beta": ("beta", "num"),
-    "delta": ("delta", "num"),
-    "m": ("m", "int"),
-    "xi": ("xi", "num"),
-    "grid": ("grid", "nums"),
-    "k": ("k", "int"),
-    "init": ("init", "str"),
-    "convergence": ("convergence", "int"),
-    "max_periods": ("max-periods", "int"),
-    "near": ("near", "num"),
+# table -> key -> (flag, parser kind); kinds: num, int, nums, str. The tables themselves are read by
+# sim.learning.learning_from_dict; a flag overrides its key.
+_FLAGS = {
+    "learning": {
+        "alpha": ("alpha", "num"),
+        "beta": ("beta", "num"),
+        "delta": ("delta", "num"),
+        "m": ("m", "int"),
+        "xi": ("xi", "num"),
+        "grid": ("grid", "nums"),
+        "k": ("k", "int"),
+        "init": ("init", "str"),
+        "convergence": ("convergence", "int"),
+        "max_periods": ("max-periods", "int"),
+        "near": ("near", "num"),
+        "limit_periods": ("limit-periods", "int"),
+    },
+    "impulse": {
+        "firm": ("impulse-firm", "int"),
+        "action": ("impulse-action", "str"),
+        "periods": ("impulse-periods", "int"),
+    },
+    "run": {
+        "sessions": ("sessions", "int"),
+        "seed": ("seed", "int"),
+        "workers": ("workers", "int"),
+    },
 }
-_IMPULSE_KEYS = {
-    "firm": ("impulse-firm", "int"),
-    "action": ("impulse-action", "str"),
-    "periods": ("impulse-periods", "int"),
-}
-_RUN_KEYS = {
-    "sessions": ("sessions", "int"),
-    "seed": ("seed", "int"),
-    "workers": ("workers", "int"),
-}
-_LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init")
-_EXPERIMENT_KEYS = ("name", "kind", "description")
 
 
 def configure(p: argparse.ArgumentParser) -> None:
@@ -66,6 +70,8 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--max-periods", metavar="N", help="cap on a session's periods (default 1e9)")
     g.add_argument("--near", metavar="TOL", help="'near' an outcome: within TOL of the Nash-to-collusive distance "
                                                  "(default 0.1)")
+    g.add_argument("--limit-periods", metavar="N", help="with automata that act at random: periods of simulated "
+                                                        "greedy play averaged by the limit estimate (default 10000)")
     g = p.add_argument_group("impulse response (override [impulse])")
     g.add_argument("--impulse-firm", metavar="F", help="firm forced to deviate, 1 to n (default 1)")
     g.add_argument("--impulse-action", metavar="A", help="its action: best_response (default) or a number "
@@ -82,176 +88,57 @@ def configure(p: argparse.ArgumentParser) -> None:
                                                  "of limit prices) into DIR")
 
 
-def _table(doc: dict, name: str, allowed) -> dict:
-    """A copy of table ``name`` of ``doc`` (empty when absent), unknown keys refused."""
-    return dict(refuse_unknown(doc.get(name, {}), name, allowed))
-
-
-def _apply_flags(args, tab: dict, keys: dict) -> set:
-    """Put flag values into ``tab``; return the keys that came from flags."""
-    flagged = set()
-    for key, (flag, kind) in keys.items():
-        text = getattr(args, flag.replace("-", "_"), None)
-        if text is None:
-            continue
-        if kind == "num":
-            tab[key] = parse_number(flag, text)
-        elif kind == "int":
-            tab[key] = parse_number(flag, text, integer=True)
-        elif kind == "nums":
-            v = parse_numbers(flag, text)
-            tab[key] = v if isinstance(v, list) else [v]
-        else:
-            tab[key] = text
-        flagged.add(key)
-    return flagged
-
-
-def _rename(exc: InputError, table: str, keys: dict, flagged: set) -> InputError:
-    """``learning.alpha`` becomes ``--alpha`` when the value came from a flag."""
-    prefix = table + "."
-    if exc.key.startswith(prefix):
-        key = exc.key[len(prefix):].split(".")[0]
-        if key in flagged:
-            return InputError(f"--{keys[key][0]}", exc.message)
-    return exc
+def _overrides(args) -> dict:
+    """The flags given, as overrides of :func:`sim.learning.learning_from_dict` (``table.key`` ->
+    (value, flag))."""
+    out = {}
+    for table, keys in _FLAGS.items():
+        for key, (flag, kind) in keys.items():
+            text = getattr(args, flag.replace("-", "_"), None)
+            if text is None:
+                continue
+            if kind == "num":
+                value = parse_number(flag, text)
+            elif kind == "int":
+                value = parse_number(flag, text, integer=True)
+            elif kind == "nums":
+                v = parse_numbers(flag, text)
+                value = v if isinstance(v, list) else [v]
+            else:
+                value = text
+            out[f"{table}.{key}"] = (value, f"--{flag}")
+    return out
 
 
 def build(args, doc: dict) -> dict:
     """Everything ``learn`` needs, validated, from FILE and flags: market, learner, run settings."""
-    from strategies.qlearning import QLearner
+    from ..learning import _RUN_CONSTRAINTS, learning_from_dict
 
-    from .._params import Integer, Real, optional
-    from ..learning import _RUN_CONSTRAINTS
-    from ..market import market_from_dict
-
-    exp = _table(doc, "experiment", _EXPERIMENT_KEYS)
-    if "kind" in exp and exp["kind"] != "learn":
-        raise InputError("experiment.kind", f"this command runs kind = 'learn' experiments, got {exp['kind']!r}")
     if args.file and "market" not in doc:
         raise InputError("market", f"{args.file} has no [market] table")
     base = doc.get("market", {})
     if not isinstance(base, dict):
         raise InputError("market", f"must be a table, got {base!r}")
     table, from_flags = market_table_from_args(args, dict(base))
-    try:
-        market = market_from_dict(table)
-    except InputError as exc:
-        raise flag_error(exc, from_flags) from None
-
-    lt = _table(doc, "learning", _LEARNING_KEYS)
-    it = _table(doc, "impulse", _IMPULSE_KEYS)
-    rt = _table(doc, "run", _RUN_KEYS)
-    lf = _apply_flags(args, lt, _LEARNING_KEYS)
-    if_ = _apply_flags(args, it, _IMPULSE_KEYS)
-    rf = _apply_flags(args, rt, _RUN_KEYS)
-
-    base = {k: lt[k] for k in _LEARNER_PARAMS if k in lt}
-    learner = QLearner(**base)
-    try:
-        learner.spec(prefix="learning")
-    except InputError as exc:
-        raise _rename(exc, "learning", _LEARNING_KEYS, lf) from None
-    if "strategies" in doc:
-        learner = _lineup(doc["strategies"], base, market.spec().n_firms)
-
-    def check(tab, name, keys, flagged, key, constraint, default):
-        value = tab.get(key, default)
-        try:
-            return constraint.check(f"{name}.{key}", value)
-        except InputError as exc:
-            raise _rename(exc, name, keys, flagged) from None
-
-    n_firms = market.spec().n_firms
-    settings = {
-        "convergence": check(lt, "learning", _LEARNING_KEYS, lf, "convergence", _RUN_CONSTRAINTS["convergence"],
-                             100_000),
-        "max_periods": check(lt, "learning", _LEARNING_KEYS, lf, "max_periods", _RUN_CONSTRAINTS["max_periods"],
-                             1_000_000_000),
-        "near": check(lt, "learning", _LEARNING_KEYS, lf, "near", _RUN_CONSTRAINTS["near"], 0.1),
-        "sessions": check(rt, "run", _RUN_KEYS, rf, "sessions", _RUN_CONSTRAINTS["sessions"], 100),
-        "seed": check(rt, "run", _RUN_KEYS, rf, "seed", _RUN_CONSTRAINTS["seed"], 0),
-        "workers": check(rt, "run", _RUN_KEYS, rf, "workers", optional(Integer(1, 1024)), None),
-        "response_periods": check(it, "impulse", _IMPULSE_KEYS, if_, "periods", _RUN_CONSTRAINTS["response_periods"],
-                                  15),
-    }
-    firm = check(it, "impulse", _IMPULSE_KEYS, if_, "firm", Integer(1, n_firms), 1)
-    settings["deviator"] = firm - 1  # learn() counts seats from 0; every output counts firms from 1
+    flag_of = {key: flag for flag, key in MARKET_FLAGS.items()}
+    overrides = {f"market.{key}": (table[key], f"--{flag_of[key]}") for key in from_flags}
+    overrides.update(_overrides(args))
+    cfg = learning_from_dict(doc, overrides)
     confidence = getattr(args, "confidence", None)
-    settings["confidence"] = (_RUN_CONSTRAINTS["confidence"].check("--confidence", parse_number("confidence",
-                                                                                              confidence))
-                              if confidence is not None else 0.95)
-    action = it.get("action", "best_response")
-    if isinstance(action, str) and action != "best_response":
-        try:
-            action = float(action)
-        except ValueError:
-            key = "--impulse-action" if "action" in if_ else "impulse.action"
-            raise InputError(key, f"must be 'best_response' or a number, got {action!r}") from None
-    if not isinstance(action, str):
-        key = "--impulse-action" if "action" in if_ else "impulse.action"
-        action = Real(0, None).check(key, action)
-    settings["deviation"] = action
-    return {"market": market, "learner": learner, "settings": settings, "flags": lf}
-
-
-def _lineup(entries, base: dict, n_firms: int) -> list:
-    """One strategy per firm from ``[[strategies]]``: ``strategy = "qlearning"`` entries take the
-    [learning] parameters, overridden by their own; any other name is an automaton of the engine's
-    registry (see ``supergame simulate``)."""
-    from strategies import strategy_from_dict
-    from strategies.qlearning import QLearner
-    from strategies.registry import check_seats
-
-    if not isinstance(entries, list) or not entries:
-        raise InputError("strategies", "must be a non-empty list of [[strategies]] entries")
-    out = []
-    total = 0
-    for k, t in enumerate(entries):
-        key = f"strategies[{k + 1}]"
-        if not isinstance(t, dict):
-            raise InputError(key, f"must be a table with a 'strategy' key, got {t!r}")
-        seats = check_seats(f"{key}.seats", t.get("seats", 1))
-        if t.get("strategy") == QLearner.name:
-            params = dict(base)
-            for name, v in t.items():
-                if name in ("strategy", "seats"):
-                    continue
-                if name not in _LEARNER_PARAMS:
-                    raise InputError(f"{key}.{name}", f"unknown parameter of qlearning; allowed: "
-                                                      f"{', '.join(_LEARNER_PARAMS)}")
-                params[name] = v
-            strat = QLearner(**params)
-            strat.spec(prefix=key)
-        else:
-            strat = strategy_from_dict(t, key)
-        total += seats
-        if total <= n_firms:  # no clones beyond the market's firms (refused below)
-            out.extend(strat.clone() for _ in range(seats))
-    if total != n_firms:
-        raise InputError("strategies", f"the line-up has {total} seats but the market has {n_firms} firms; give "
-                                       "one strategy per firm (use seats to repeat one)")
-    if not any(isinstance(x, QLearner) for x in out):
-        raise InputError("strategies", "the line-up has no learner (strategy = 'qlearning'); use `supergame "
-                                       "simulate` for automata only")
-    return out
+    cfg["settings"]["confidence"] = (_RUN_CONSTRAINTS["confidence"].check("--confidence", parse_number(
+        "confidence", confidence)) if confidence is not None else 0.95)
+    return cfg
 
 
 def run(args) -> int:
     from .. import _text
     from .._jsonutil import dumps
-    from ..learning import compile_lineup, learn, usable_cores
+    from ..learning import learn
     from ..tomlfile import read_toml
 
     doc = read_toml(args.file) if args.file else {}
-    cfg = build(args, doc)
+    cfg = build(args, doc)  # validates everything, the line-up's memory included
     s = cfg["settings"]
-    # memory and line-up checks before any work (the run itself repeats them, cheaply)
-    workers = s["workers"] or usable_cores()
-    try:
-        compile_lineup(cfg["market"], cfg["learner"], workers=min(workers, s["sessions"]))
-    except InputError as exc:
-        raise _rename(exc, "learning", _LEARNING_KEYS, cfg["flags"]) from None
     if args.plot:
         _check_plot_dir(args.plot)
     result = learn(cfg["market"], cfg["learner"], **s)
@@ -320,7 +207,8 @@ def render(result, market, written=()) -> str:
     for i, c in enumerate(lu.learners):
         if c is None:
             levels = ", ".join(fmt_num(v) for v in lu.grids[i])
-            lines.append(f"Firm {i + 1}: {lu.names[i]} (automaton; {act}s {levels})")
+            rnd = "; acts at random" if i in lu.random_seats else ""
+            lines.append(f"Firm {i + 1}: {lu.names[i]} (automaton; {act}s {levels}{rnd})")
             continue
         if i > 0 and same:
             continue
@@ -348,8 +236,15 @@ def render(result, market, written=()) -> str:
     lines.append("Benchmarks (continuous actions)")
     lines.append(table(["", *firms], rows))
     lines.append("")
-    lines.append(f"Limit outcomes: greedy play from the final state, means over the limit cycle ({sm['over']}); "
-                 f"{lvl} confidence intervals across sessions")
+    exact = result.limit_exact
+    lim = sm["limit"]
+    if exact:
+        lines.append(f"Limit outcomes: greedy play from the final state, means over the limit cycle ({sm['over']}); "
+                     f"{lvl} confidence intervals across sessions")
+    else:
+        lines.append(f"Limit outcomes: ESTIMATED, not an exact cycle (firm {', '.join(map(str, lim['random_firms']))} "
+                     f"acts at random): means of {lim['periods']} simulated periods of greedy play per session after "
+                     f"{lim['burn_in']} discarded ({sm['over']}); {lvl} confidence intervals across sessions")
     rows = []
     for i in range(n):
         d = sm["limit_prices"][i]
@@ -371,15 +266,21 @@ def render(result, market, written=()) -> str:
     lines.append(f"  at or near the joint-profit outcome (every firm within {fmt_num(st['near'], 2)} of its Nash-to-"
                  f"collusive distance): {_pct(nc['share'])} ({_pct(nc['low'])} to {_pct(nc['high'])})")
     lines.append(f"  at or near static Nash: {_pct(nn['share'])} ({_pct(nn['low'])} to {_pct(nn['high'])})")
-    total = sum(sm["cycle_lengths"].values())
-    cyc = ", ".join(f"{k}: {_pct(v / total)}" for k, v in sorted(sm["cycle_lengths"].items(), key=lambda x: int(x[0])))
-    lines.append(f"  length of the limit cycle: {cyc}")
+    if exact:
+        total = sum(sm["cycle_lengths"].values())
+        cyc = ", ".join(f"{k}: {_pct(v / total)}"
+                        for k, v in sorted(sm["cycle_lengths"].items(), key=lambda x: int(x[0])))
+        lines.append(f"  length of the limit cycle: {cyc}")
+    else:
+        lines.append("  length of the limit cycle: not defined (play after learning is random)")
     lines.append("")
     dev = st["deviator"]
     what = "its static best response (on its grid)" if isinstance(st["deviation"], str) else \
         f"{act} {fmt_num(float(lu.grids[dev][int(result.deviation_action[0])]))} (nearest grid point)"
+    over = ("mean over sessions and the points of each limit cycle" if exact else
+            f"ESTIMATED: mean over sessions and {lim['deviations']} simulated deviations per session")
     lines.append(f"Impulse response: firm {dev + 1} forced to {what} for one period, then everyone follows the "
-                 "learned strategies (mean over sessions and the points of each limit cycle)")
+                 f"learned strategies ({over})")
     ir = sm["impulse_response"]
     if ir["prices"]["mean"]:
         rows = []
@@ -394,11 +295,17 @@ def render(result, market, written=()) -> str:
                          f"{_ci(rc)}")
         g = sm["deviation_gain"]
         pays = sm["deviation_pays"]
-        lines.append(f"  discounted value of deviating minus not deviating (exact, under the learned strategies): "
-                     f"{fmt_num(g['mean'])} {_ci(g)}; the deviation pays at {_pct(pays['mean'])} of cycle points")
-        r, rp = sm["returned"], sm["return_periods"]
-        lines.append(f"  play returns to the pre-deviation cycle after {_pct(r['mean'])} of deviations, "
-                     f"{fmt_num(rp['mean'], 2)} periods after the deviation on average")
+        if exact:
+            lines.append(f"  discounted value of deviating minus not deviating (exact, under the learned strategies): "
+                         f"{fmt_num(g['mean'])} {_ci(g)}; the deviation pays at {_pct(pays['mean'])} of cycle points")
+            r, rp = sm["returned"], sm["return_periods"]
+            lines.append(f"  play returns to the pre-deviation cycle after {_pct(r['mean'])} of deviations, "
+                         f"{fmt_num(rp['mean'], 2)} periods after the deviation on average")
+        else:
+            lines.append(f"  discounted value of deviating minus not deviating (ESTIMATED over {lim['value_periods']} "
+                         f"periods, truncation error below {lim['value_truncation_bound']:.2g}): {fmt_num(g['mean'])} "
+                         f"{_ci(g)}; the realised gain is positive in {_pct(pays['mean'])} of the simulated deviations")
+            lines.append("  return to the pre-deviation cycle: not defined (play after learning is random)")
     if written:
         lines.append("")
         lines.extend(f"wrote {p}" for p in written)
