@@ -26,7 +26,7 @@ _EXPORTS = {
     "trigger_price": [
         "TriggerPriceScheme", "price_war_statistics", "trigger_price_equilibrium", "trigger_price_scheme",
     ],
-    "learning": ["LearningResult", "Lineup", "compile_lineup", "learn"],
+    "learning": ["LearningResult", "Lineup", "compile_lineup", "learn", "learning_from_dict"],
     "engine": ["Game", "RawRun", "compile_game", "prepare_game", "run_game", "simulate", "simulation_from_dict",
                "stage_levels"],
     "monitoring": ["Monitoring", "monitoring_from_dict"],
