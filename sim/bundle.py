@@ -17,6 +17,11 @@ Every figure, table and text depends only on what was added, so writing the same
 the same bytes (figures are saved without timestamps). The caution (:data:`sim._text.CAUTION`) closes
 every summary.
 
+Files are written into a hidden sibling folder (``.NAME.partial-*``) and moved into place by
+:meth:`Bundle.write` in one rename, replacing an earlier bundle there, so that a write that is
+interrupted -- an error, or the process killed -- leaves the earlier bundle (or nothing), never a
+mixture. :func:`clear_leftovers` removes what an interrupted write left beside the folder.
+
 Example
 -------
 >>> from sim.bundle import Bundle
@@ -41,9 +46,46 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-__all__ = ["Bundle", "latex_table", "markdown_table"]
+__all__ = ["Bundle", "clear_leftovers", "holds_bundle", "latex_table", "markdown_table"]
 
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}$")
+BUNDLE_FORMAT = "supergame-bundle/1"
+#: markers of the hidden siblings of a bundle folder: the one being written, the one being replaced
+_STAGE, _REPLACED = ".partial-", ".replaced-"
+
+
+def holds_bundle(folder) -> bool:
+    """Whether ``folder`` is an empty folder or holds an evidence bundle (its ``manifest.json`` says so),
+    i.e. whether a bundle may be written over it."""
+    folder = Path(folder)
+    if not folder.is_dir() or folder.is_symlink():
+        return False
+    if not any(folder.iterdir()):
+        return True
+    try:
+        man = json.loads((folder / "manifest.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return False
+    return isinstance(man, dict) and str(man.get("format", "")).startswith("supergame-bundle")
+
+
+def leftovers(folder) -> list[Path]:
+    """What interrupted writes of the bundle ``folder`` left beside it (hidden sibling folders)."""
+    folder = Path(folder)
+    if not folder.parent.is_dir():
+        return []
+    marks = (f".{folder.name}{_STAGE}", f".{folder.name}{_REPLACED}")
+    return sorted(p for p in folder.parent.iterdir() if p.name.startswith(marks) and p.is_dir())
+
+
+def clear_leftovers(folder) -> list[Path]:
+    """Remove what interrupted writes of the bundle ``folder`` left beside it; return what was removed."""
+    import shutil
+
+    gone = leftovers(folder)
+    for p in gone:
+        shutil.rmtree(p, ignore_errors=True)
+    return gone
 
 
 def _fmt(v: Any, digits: int) -> str:
@@ -137,13 +179,16 @@ class Bundle:
     Parameters
     ----------
     folder : path-like
-        Created if needed; files of an earlier bundle there are replaced.
+        The bundle's folder, created by :meth:`write`; an earlier bundle there is replaced as a whole
+        (a folder that is not empty and holds no bundle is refused, see :func:`holds_bundle`).
     title : str
     caution : str, optional
         Closing caution (default :data:`sim._text.CAUTION`).
     """
 
     def __init__(self, folder, title: str, caution: str | None = None):
+        import tempfile
+
         from ._text import CAUTION
 
         self.folder = Path(folder)
@@ -152,8 +197,25 @@ class Bundle:
         self.blocks: list[_Block] = []
         self.files: list[str] = []
         self._names: set = set()
-        (self.folder / "figures").mkdir(parents=True, exist_ok=True)
-        (self.folder / "tables").mkdir(parents=True, exist_ok=True)
+        self.folder.parent.mkdir(parents=True, exist_ok=True)
+        self._stage = Path(tempfile.mkdtemp(prefix=f".{self.folder.name}{_STAGE}", dir=self.folder.parent))
+        (self._stage / "figures").mkdir()
+        (self._stage / "tables").mkdir()
+        self.written = False
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        if not self.written:
+            self.discard()
+        return False
+
+    def discard(self) -> None:
+        """Drop what was written so far (the folder keeps its earlier bundle, if any)."""
+        import shutil
+
+        shutil.rmtree(self._stage, ignore_errors=True)
 
     # -- text --------------------------------------------------------------------------------------
 
@@ -224,7 +286,7 @@ class Bundle:
     # -- writing -----------------------------------------------------------------------------------
 
     def _write(self, rel: str, data: bytes) -> None:
-        p = self.folder / rel
+        p = self._stage / rel
         p.parent.mkdir(parents=True, exist_ok=True)
         p.write_bytes(data)
         if rel not in self.files:
@@ -314,13 +376,33 @@ class Bundle:
         """
         from .runs import package_versions, platform_info
 
+        if self.written:
+            raise RuntimeError(f"the bundle {self.folder} was already written")
+        if self.folder.exists() and not holds_bundle(self.folder):
+            self.discard()
+            raise FileExistsError(f"{self.folder} exists and does not hold an evidence bundle")
         self._write("summary.md", self.markdown().encode("utf-8"))
         self._write("summary.html", self.html().encode("utf-8"))
-        man = {"format": "supergame-bundle/1", "title": self.title}
+        man = {"format": BUNDLE_FORMAT, "title": self.title}
         man.update(manifest or {})
         man.setdefault("packages", package_versions())
         man.setdefault("platform", platform_info())
         man["caution"] = self.caution
-        man["files"] = {rel: hashlib.sha256((self.folder / rel).read_bytes()).hexdigest() for rel in sorted(self.files)}
-        (self.folder / "manifest.json").write_text(json.dumps(man, indent=2) + "\n", encoding="utf-8")
+        man["files"] = {rel: hashlib.sha256((self._stage / rel).read_bytes()).hexdigest() for rel in sorted(self.files)}
+        (self._stage / "manifest.json").write_text(json.dumps(man, indent=2) + "\n", encoding="utf-8")
+        self._move_into_place()
         return sorted(self.files) + ["manifest.json"]
+
+    def _move_into_place(self) -> None:
+        """Replace the folder by the staged bundle: two renames within one parent folder."""
+        import shutil
+        import uuid
+
+        old = None
+        if self.folder.exists():
+            old = self.folder.parent / f".{self.folder.name}{_REPLACED}{uuid.uuid4().hex[:8]}"
+            self.folder.rename(old)
+        self._stage.rename(self.folder)
+        self.written = True
+        if old is not None:
+            shutil.rmtree(old, ignore_errors=True)

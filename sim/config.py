@@ -28,9 +28,11 @@ the kind's own tables
 
 Every cell is built from the file by setting its swept values and validated by the kind before any
 work starts (:func:`experiment_from_dict`). Cells are numbered in grid order, the first path varying
-slowest; a cell's random streams come from the experiment seed and its number
-(``SeedSequence(seed, spawn_key=(cell,))``), so results do not depend on the order in which cells run,
-on the number of workers or on the backend.
+slowest, from 1 in everything users see (exports, tables, messages, ``supergame verify --cells``); a
+cell's random streams come from the experiment seed and its position counted from 0, ``index``
+(``SeedSequence(seed, spawn_key=(index,))``: cell 1 has the key ``(0,)``, the key of a file without a
+sweep), so results do not depend on the order in which cells run, on the number of workers or on the
+backend.
 """
 
 from __future__ import annotations
@@ -593,7 +595,8 @@ class Cell:
     Attributes
     ----------
     index : int
-        Position in grid order (0 for an experiment without a sweep); also the cell's stream key.
+        Position in grid order counted from 0 (0 for an experiment without a sweep); the cell's stream
+        key is ``(index,)``. Users see the cell as number ``index + 1`` (:attr:`number`).
     values : dict of str to Any
         Swept path -> value.
     labels : dict of str to str
@@ -607,10 +610,15 @@ class Cell:
     labels: dict
     doc: dict
 
+    @property
+    def number(self) -> int:
+        """The cell's number in exports and messages (counted from 1, like firms, seats and list entries)."""
+        return self.index + 1
+
     def describe(self) -> str:
         if not self.values:
-            return f"cell {self.index}"
-        return f"cell {self.index} (" + ", ".join(f"{p} = {self.labels[p]}" for p in self.values) + ")"
+            return f"cell {self.number}"
+        return f"cell {self.number} (" + ", ".join(f"{p} = {self.labels[p]}" for p in self.values) + ")"
 
 
 @dataclass(frozen=True)

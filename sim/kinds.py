@@ -13,9 +13,18 @@ only from Python code named on the command line (``--plugin FILE``) or from an i
 entry point in the group ``supergame.plugins``; both run that code, with the user's rights. The
 experiment file itself is data and is never executed.
 
-Contract of ``run``: deterministic given the prepared config and ``ctx.index`` (the cell's stream
-key, ``SeedSequence(seed, spawn_key=(index,))``), whatever ``ctx.threads`` is; never prints; raises on
-failure (the sweep records the error and goes on).
+Contract of ``run``: deterministic given the prepared config and ``ctx.index``, whatever
+``ctx.threads`` is; never prints; raises on failure (the sweep records the error and goes on).
+
+Stream keys (the one rule for every command)
+--------------------------------------------
+Cell k of an experiment -- counted from 1 in exports, tables and messages -- has ``ctx.index = k - 1``
+and draws every random number from ``numpy.random.SeedSequence(seed, spawn_key=ctx.key)`` with
+``ctx.key == (k - 1,)``; a part j of the cell (a replication, a session, a match) appends to it
+(``ctx.key + (j, ...)``). A file without a sweep is cell 1, with the key ``(0,)``. Every command that
+runs one experiment file by itself (``supergame simulate``, ``learn``, ``tournament``, ``assess``)
+uses that same key ``(0,)``, so that its numbers are those of ``supergame run FILE`` to the last digit
+and ``supergame verify`` can confirm them.
 """
 
 from __future__ import annotations
@@ -66,7 +75,8 @@ class CellContext:
     Attributes
     ----------
     index : int
-        The cell's number; its random streams are ``SeedSequence(seed, spawn_key=(index,))``.
+        The cell's position counted from 0 (users see cell ``index + 1``); its random streams are
+        ``SeedSequence(seed, spawn_key=key)``.
     threads : int
         Threads the cell may use (results must not depend on it).
     progress : bool
@@ -79,6 +89,7 @@ class CellContext:
 
     @property
     def key(self) -> tuple:
+        """The cell's stream key ``(index,)``: ``(0,)`` for a file without a sweep (see the module notes)."""
         return (int(self.index),)
 
 
@@ -241,7 +252,9 @@ def load_plugin_file(path, key: str = "--plugin") -> dict:
 
     A plugin registers strategies (:func:`strategies.register`) or kinds (:func:`register_kind`) when
     imported. This runs the file's code. The module is imported under the file's stem (the name a
-    Dask worker gives it after ``Client.upload_file``).
+    Dask worker gives it after ``Client.upload_file``); a module of that name imported already from a
+    file with the same SHA-256 (as ``upload_file`` does on a Dask worker) is that plugin, loaded. A file
+    that changed since this process loaded it is refused: the code running is the earlier one.
     """
     p = Path(path)
     if not p.is_file():
@@ -252,8 +265,15 @@ def load_plugin_file(path, key: str = "--plugin") -> dict:
     digest = file_digest(p)
     name = p.stem
     if real in _LOADED_FILES:
+        if _LOADED_FILES[real] != digest:
+            raise InputError(key, f"{path} has changed since this process loaded it (SHA-256 "
+                                  f"{_LOADED_FILES[real][:12]}... then, {digest[:12]}... now); start again")
         return {"path": str(path), "sha256": digest, "module": name}
-    if name in sys.modules or not name.isidentifier():
+    present = sys.modules.get(name)
+    if present is not None and _module_digest(present) == digest:
+        _LOADED_FILES[real] = digest
+        return {"path": str(path), "sha256": digest, "module": name}
+    if present is not None or not name.isidentifier():
         raise InputError(key, f"{path}: a plugin file needs a name of its own that is a valid module name (a module "
                               f"named {name!r} exists or the name is not valid); rename the file")
     spec = importlib.util.spec_from_file_location(name, real)
@@ -270,6 +290,22 @@ def load_plugin_file(path, key: str = "--plugin") -> dict:
         raise InputError(key, f"{path} failed on import: {type(exc).__name__}: {exc}") from None
     _LOADED_FILES[real] = digest
     return {"path": str(path), "sha256": digest, "module": name}
+
+
+def _module_digest(module) -> str | None:
+    """SHA-256 of the file a module was imported from (None without one)."""
+    f = getattr(module, "__file__", None)
+    try:
+        return file_digest(f) if f and Path(f).is_file() else None
+    except OSError:
+        return None
+
+
+def plugin_loaded(record: dict) -> bool:
+    """Whether the plugin of a run's record (``path``, ``sha256``, ``module``) is imported in this
+    process with that SHA-256."""
+    present = sys.modules.get(record.get("module") or "")
+    return present is not None and _module_digest(present) == record.get("sha256")
 
 
 def load_entry_points() -> list[str]:

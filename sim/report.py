@@ -15,7 +15,6 @@ analytic prediction), one panel or line per value of the other swept parameters.
 
 from __future__ import annotations
 
-import json
 import math
 import shutil
 from pathlib import Path
@@ -155,39 +154,36 @@ def _single_cell_figures(b, exp, row) -> None:
                                           "period, over converged sessions.")
 
 
-def _clear(target: Path) -> None:
+def _prepare_target(target: Path, default: bool) -> None:
+    """Check that the bundle may be written at ``target``. A folder there must hold an earlier bundle
+    (replaced at the end); the run folder's own ``report/`` that does not is left over from a write
+    that was stopped (by an earlier version, or by hand), and is removed."""
+    from .bundle import clear_leftovers, holds_bundle
+
+    key = "RUN_DIR" if default else "--out"
+    clear_leftovers(target)
     if not target.exists():
         return
     if not target.is_dir():
-        raise InputError("--out", f"{target} exists and is not a folder")
-    man = target / "manifest.json"
-    if any(target.iterdir()):
-        try:
-            fmt = json.loads(man.read_text(encoding="utf-8")).get("format", "")
-        except (OSError, ValueError):
-            fmt = ""
-        if not fmt.startswith("supergame-bundle"):
-            raise InputError("--out", f"{target} exists and does not hold an evidence bundle; choose another folder")
-    shutil.rmtree(target)
+        raise InputError(key, f"{target} exists and is not a folder")
+    if holds_bundle(target):
+        return
+    if default:
+        shutil.rmtree(target)
+        return
+    raise InputError(key, f"{target} exists and does not hold an evidence bundle; choose another folder")
 
 
-def write_report(folder, out=None) -> Path:
-    """Write the evidence bundle of a finished run folder (default ``RUN_DIR/report``); return its path."""
-    from ._text import fmt_num
+def write_report(folder, out=None, update_manifest: bool = True) -> Path:
+    """Write the evidence bundle of a finished run folder (default ``RUN_DIR/report``); return its path.
+
+    The bundle is written beside its folder and moved into place at the end (:class:`sim.bundle.Bundle`),
+    so a write that is stopped leaves the earlier report, or none. A bundle inside the run folder is
+    recorded in the run's manifest (unless ``update_manifest`` is false: the caller writes the manifest),
+    which must still match every other file of the folder (:func:`sim.runs.check_manifest`).
+    """
     from .bundle import Bundle
-    from .config import leading_comment
-    from .figures import SweepData
-    from .runs import (
-        ARRAYS_FILE,
-        CSV_FILE,
-        EXPERIMENT_COPY,
-        PARQUET_FILE,
-        REPORT_DIR,
-        RunFolder,
-        _iso,
-        sha256_file,
-    )
-    from .store import STORE_FILE
+    from .runs import REPORT_DIR, RunFolder, check_manifest, clear_leftovers, write_manifest
 
     folder = Path(folder)
     with RunFolder(folder) as rf:
@@ -196,15 +192,41 @@ def write_report(folder, out=None) -> Path:
         rows = rf.rows()
         header, body = rf.table()
         counts = rf.counts()
-        attempts = rf.store.attempts()
+        attempts = rf.attempts()
         meta = rf.meta
     if counts["missing"]:
         raise InputError("RUN_DIR", f"{folder} is not finished: {counts['missing']} of {counts['total']} cells have no "
                                     f"result yet; finish it with supergame run --resume {folder}")
     target = Path(out) if out is not None else folder / REPORT_DIR
-    _clear(target)
+    try:
+        inside = target.resolve().relative_to(folder.resolve()).as_posix()
+    except ValueError:
+        inside = None
+    if inside in ("", "."):
+        raise InputError("--out", f"{target} is the run folder itself; give a folder for the bundle")
+    rewritten = (f"{inside}/",) if inside else ()
+    if inside and update_manifest:
+        # before anything is written: every other file of the folder must be as its manifest records
+        clear_leftovers(folder)
+        check_manifest(folder, rewritten)
+    _prepare_target(target, default=out is None)
     title = exp.report.title or f"{exp.name}: {kind.summary}"
-    b = Bundle(target, title)
+    with Bundle(target, title) as b:
+        _fill(b, folder, exp, kind, rows, header, body, counts, attempts, meta, inside is not None
+              and Path(inside).parent.as_posix() == ".")
+    if inside and update_manifest:
+        write_manifest(folder, rewritten)
+    return target
+
+
+def _fill(b, folder, exp, kind, rows, header, body, counts, attempts, meta, in_run_folder: bool) -> None:
+    """The content of a run's evidence bundle, read from the stored rows (see the module notes)."""
+    from ._text import fmt_num
+    from .config import leading_comment
+    from .figures import SweepData
+    from .runs import ARRAYS_FILE, CSV_FILE, EXPERIMENT_COPY, PARQUET_FILE, SEED_RULE, _iso, code_notes, sha256_file
+    from .store import STORE_FILE
+
     desc = exp.description or leading_comment(exp.text or "")
     b.paragraph(f"Experiment `{exp.name}` (kind `{exp.kind}`), run folder `{folder.name}`; {counts['total']} cell"
                 f"{'s' if counts['total'] != 1 else ''}, {counts['ok']} finished, {counts['failed']} failed.")
@@ -254,7 +276,7 @@ def write_report(folder, out=None) -> Path:
                 csv_hdr += [f"{m}.low", f"{m}.high"]
         for r in rows:
             labels = [r.labels[p.path] if not p.numeric else r.params[p.path] for p in exp.parameters]
-            d, c = [r.cell, *labels], [r.cell, *labels]
+            d, c = [r.number, *labels], [r.number, *labels]
             for m in heads:
                 d.append(r.metrics.get(m, math.nan))
                 c.append(r.metrics.get(m, math.nan))
@@ -305,7 +327,7 @@ def write_report(folder, out=None) -> Path:
     b.heading("Failed cells")
     failed = [r for r in rows if r.status == "failed"]
     if failed:
-        frows = [[r.cell, "; ".join(f"{p} = {lab}" for p, lab in r.labels.items()), r.error or ""] for r in failed]
+        frows = [[r.number, "; ".join(f"{p} = {lab}" for p, lab in r.labels.items()), r.error or ""] for r in failed]
         b.table("failed", ["cell", "swept values", "error"], frows, caption=f"{len(failed)} cells failed")
     else:
         b.paragraph(f"None: all {counts['total']} cells finished without error.")
@@ -314,9 +336,8 @@ def write_report(folder, out=None) -> Path:
     seed = meta.get("seed")
     b.bullets([
         f"Experiment file: `{EXPERIMENT_COPY}` (SHA-256 `{exp.sha256}`), copied into this bundle.",
-        ("Seeds: cell c draws its random numbers from numpy SeedSequence(seed, spawn_key=(c,)) with seed "
-         f"{seed} ({meta.get('seed_key')}) unless the sweep varies it; one independent stream per replication or "
-         "session. Results do not depend on the number of workers or the backend."
+        (f"Seeds: {SEED_RULE.format(key=meta.get('seed_key'))}, with seed {seed} unless the sweep varies it. "
+         "Results do not depend on the number of workers or the backend."
          if meta.get("seed_key") else "No random numbers: the kind is deterministic."),
         f"Command: `{' '.join(attempts[0].get('command') or []) if attempts else ''}`"
         + (f" (and {len(attempts) - 1} resumption{'s' if len(attempts) > 2 else ''})" if len(attempts) > 1 else ""),
@@ -324,6 +345,7 @@ def write_report(folder, out=None) -> Path:
         f"{_iso(max(a['finished'] or 0 for a in attempts)) if attempts else '-'} (UTC); cell compute time "
         f"{fmt_num(sum(r.seconds or 0.0 for r in rows), 1)} s in total.",
         "Software versions and platform: `manifest.json`.",
+        *[f"Note: {n}." for n in code_notes(attempts)],
     ])
     b.code(f"supergame run {EXPERIMENT_COPY}          # the same numbers, in a new run folder\n"
            f"supergame verify {folder}           # check the hashes and re-run a sample of cells")
@@ -334,7 +356,7 @@ def write_report(folder, out=None) -> Path:
     ])
     b.attach(EXPERIMENT_COPY, (folder / EXPERIMENT_COPY).read_bytes())
     data_files = {}
-    if target.resolve().parent == folder.resolve():
+    if in_run_folder:
         for rel in (STORE_FILE, CSV_FILE, PARQUET_FILE, ARRAYS_FILE):
             if (folder / rel).is_file():
                 data_files[f"../{rel}"] = sha256_file(folder / rel)
@@ -347,8 +369,7 @@ def write_report(folder, out=None) -> Path:
         "started": _iso(attempts[0]["started"]) if attempts else None,
         "finished": _iso(max(a["finished"] or 0 for a in attempts)) if attempts else None,
         "seeds": {"experiment_seed": seed, "seed_key": meta.get("seed_key"),
-                  "cells": [[r.cell, r.seed] for r in rows] if len(rows) <= 10_000 else None},
+                  "cells": [[r.number, r.seed] for r in rows] if len(rows) <= 10_000 else None},
         "cells": {"total": counts["total"], "ok": counts["ok"], "failed": counts["failed"]},
         "run_data": data_files,
     })
-    return target

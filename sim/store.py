@@ -24,7 +24,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-__all__ = ["STORE_FILE", "Store", "export_table", "frame", "write_csv", "write_parquet"]
+__all__ = ["STORE_FILE", "DamagedStore", "Store", "export_table", "frame", "parquet_bytes", "write_csv",
+           "write_parquet"]
 
 STORE_FILE = "results.sqlite"
 SCHEMA_VERSION = 1
@@ -57,6 +58,21 @@ CREATE TABLE IF NOT EXISTS attempts (
 """
 
 
+class DamagedStore(ValueError):
+    """A store whose contents cannot be read back (a row or a setting that is not what this module
+    wrote). SQLite's own damage reports are :class:`sqlite3.DatabaseError`."""
+
+
+def _loads(text: Any, what: str, typ: type = dict):
+    try:
+        out = json.loads(text)
+    except (TypeError, ValueError) as exc:
+        raise DamagedStore(f"{what}: not valid JSON ({exc})") from None
+    if typ is not None and not isinstance(out, typ):
+        raise DamagedStore(f"{what}: not a JSON {'object' if typ is dict else typ.__name__}")
+    return out
+
+
 def _dumps(obj: Any) -> str:
     from ._jsonutil import jsonable
 
@@ -65,7 +81,12 @@ def _dumps(obj: Any) -> str:
 
 @dataclass
 class CellRow:
-    """One finished cell as stored (``metrics`` hold floats, nan for missing)."""
+    """One finished cell as stored (``metrics`` hold floats, nan for missing).
+
+    ``cell`` is the cell's index counted from 0, as in the store's ``cell`` column: the cell's stream key
+    (``SeedSequence(seed, spawn_key=(cell,))``). Everything shown to users -- exports, tables, messages
+    -- counts cells from 1 (:attr:`number`).
+    """
 
     cell: int
     status: str
@@ -81,6 +102,11 @@ class CellRow:
     worker: str | None = None
     detail: str | None = None
     attempt: int | None = None
+
+    @property
+    def number(self) -> int:
+        """The cell's number as users see it (counted from 1)."""
+        return int(self.cell) + 1
 
 
 class Store:
@@ -143,7 +169,10 @@ class Store:
     def meta(self) -> dict:
         out = {}
         for k, v in self.con.execute("SELECT key, value FROM meta ORDER BY key"):
-            out[k] = json.loads(v) if k != "schema_version" else int(v)
+            try:
+                out[k] = _loads(v, f"setting {k!r}", None) if k != "schema_version" else int(v)
+            except (TypeError, ValueError) as exc:
+                raise DamagedStore(f"setting {k!r} cannot be read ({exc})") from None
         return out
 
     def set_meta(self, key: str, value: Any) -> None:
@@ -167,7 +196,8 @@ class Store:
 
     def attempts(self) -> list[dict]:
         rows = self.con.execute("SELECT attempt, started, finished, outcome, info FROM attempts ORDER BY attempt")
-        return [{"attempt": a, "started": s, "finished": f, "outcome": o, **json.loads(i)} for a, s, f, o, i in rows]
+        return [{"attempt": a, "started": s, "finished": f, "outcome": o, **_loads(i, f"attempt {a}")}
+                for a, s, f, o, i in rows]
 
     # -- cells -------------------------------------------------------------------------------------
 
@@ -195,8 +225,12 @@ class Store:
         cur = self.con.execute("DELETE FROM cells WHERE status = 'failed'")
         return int(cur.rowcount)
 
-    def rows(self, cells=None) -> list[CellRow]:
-        """Stored cells in cell order (all, or those in ``cells``)."""
+    def rows(self, cells=None, problems: list | None = None) -> list[CellRow]:
+        """Stored cells in cell order (all, or those in ``cells``, given by index counted from 0).
+
+        A row that cannot be read back raises :class:`DamagedStore`; with a list as ``problems``, it is
+        described there and left out instead.
+        """
         q = ("SELECT cell, status, params, labels, seed, error, metrics, arrays, started, finished, seconds, worker, "
              "detail, attempt FROM cells ORDER BY cell")
         out = []
@@ -204,13 +238,37 @@ class Store:
         for r in self.con.execute(q):
             if want is not None and r[0] not in want:
                 continue
-            metrics = {k: (math.nan if v is None else float(v)) for k, v in json.loads(r[6]).items()}
-            out.append(CellRow(r[0], r[1], json.loads(r[2]), json.loads(r[3]), r[4], r[5], metrics,
-                               json.loads(r[7]), r[8], r[9], r[10], r[11], r[12], r[13]))
+            try:
+                out.append(_row(r))
+            except DamagedStore as exc:
+                if problems is None:
+                    raise
+                problems.append(str(exc))
         return out
 
     def failed(self) -> list[CellRow]:
         return [r for r in self.rows() if r.status == "failed"]
+
+    def journal_mode(self) -> str:
+        """``"wal"`` while a run writes to the store, ``"delete"`` once :meth:`finalize` folded the log."""
+        return str(self.con.execute("PRAGMA journal_mode").fetchone()[0]).lower()
+
+
+def _row(r: tuple) -> CellRow:
+    """A stored row as written by :meth:`Store.record`, or :class:`DamagedStore`."""
+    cell = r[0]
+    if not isinstance(cell, int) or isinstance(cell, bool):
+        raise DamagedStore(f"a row has the cell number {cell!r}, not an integer")
+    what = f"the row of cell {cell + 1}"
+    metrics = _loads(r[6], f"{what}, metrics")
+    try:
+        metrics = {str(k): (math.nan if v is None else float(v)) for k, v in metrics.items()}
+    except (TypeError, ValueError):
+        raise DamagedStore(f"{what}, metrics: not all numbers") from None
+    if r[4] is not None and (not isinstance(r[4], int) or isinstance(r[4], bool)):
+        raise DamagedStore(f"{what}, seed: {r[4]!r} is not an integer")
+    return CellRow(cell, r[1], _loads(r[2], f"{what}, parameters"), _loads(r[3], f"{what}, labels"), r[4],
+                   r[5], metrics, _loads(r[7], f"{what}, arrays"), r[8], r[9], r[10], r[11], r[12], r[13])
 
 
 # --------------------------------------------------------------------------------------------------
@@ -230,8 +288,9 @@ def _metric_order(rows: list[CellRow], declared=()) -> list[str]:
 
 
 def export_table(rows: list[CellRow], parameters: list, declared_metrics=()) -> tuple[list[str], list[list]]:
-    """Columns and rows of the results table: cell, status, the swept parameters, seed, the metrics (the
-    kind's order, then any others sorted), error. Numeric parameters stay numbers; others are labels."""
+    """Columns and rows of the results table: cell (counted from 1), status, the swept parameters, seed, the
+    metrics (the kind's order, then any others sorted), error. Numeric parameters stay numbers; others are
+    labels."""
     numeric = {p.path: p.numeric for p in parameters}
     paths = [p.path for p in parameters]
     metrics = _metric_order(rows, declared_metrics)
@@ -241,7 +300,7 @@ def export_table(rows: list[CellRow], parameters: list, declared_metrics=()) -> 
     body = []
     for r in rows:
         vals = [r.params[p] if numeric[p] else r.labels[p] for p in paths]
-        body.append([r.cell, r.status, *vals, r.seed, *[r.metrics.get(m, math.nan) for m in metrics], r.error or ""])
+        body.append([r.number, r.status, *vals, r.seed, *[r.metrics.get(m, math.nan) for m in metrics], r.error or ""])
     return header, body
 
 
@@ -280,11 +339,19 @@ def _column_type(values: list) -> str:
 def write_parquet(path, header: list[str], body: list[list]) -> bool:
     """Write a Parquet file when pyarrow is installed (returns False otherwise). The file depends only on
     the data and the pyarrow version."""
+    data = parquet_bytes(header, body)
+    if data is None:
+        return False
+    Path(path).write_bytes(data)
+    return True
+
+
+def parquet_table(header: list[str], body: list[list]):
+    """The results table as a pyarrow Table (None without pyarrow)."""
     try:
         import pyarrow as pa
-        import pyarrow.parquet as pq
     except ImportError:
-        return False
+        return None
     cols = {}
     for j, name in enumerate(header):
         vals = [row[j] for row in body]
@@ -295,8 +362,21 @@ def write_parquet(path, header: list[str], body: list[list]) -> bool:
             cols[name] = pa.array([None if v is None else float(v) for v in vals], type=pa.float64())
         else:
             cols[name] = pa.array([None if v is None else str(v) for v in vals], type=pa.string())
-    pq.write_table(pa.table(cols), str(path), compression="zstd", write_statistics=False)
-    return True
+    return pa.table(cols)
+
+
+def parquet_bytes(header: list[str], body: list[list]) -> bytes | None:
+    """The bytes of the Parquet export (None without pyarrow): they depend only on the data and the
+    pyarrow version."""
+    table = parquet_table(header, body)
+    if table is None:
+        return None
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    buf = pa.BufferOutputStream()
+    pq.write_table(table, buf, compression="zstd", write_statistics=False)
+    return buf.getvalue().to_pybytes()
 
 
 def frame(header: list[str], body: list[list]):

@@ -23,7 +23,9 @@ Backends
 
 A cell that raises is recorded as failed with its error (one line) and the others go on. A worker
 process that dies takes only its cell down: the pool is rebuilt, the cells that were in flight are
-run again one at a time, and the one whose worker dies again is recorded as failed.
+run again one at a time, and the one whose worker dies again is recorded as failed. On Dask, the
+scheduler runs again a cell whose worker died; a cell that killed its workers Dask's allowed number
+of times (``KilledWorker``) is recorded as failed, and the others go on.
 """
 
 from __future__ import annotations
@@ -59,17 +61,22 @@ CONNECT_TIMEOUT = "15s"
 
 
 def _ensure_plugins(plugins) -> None:
-    from .kinds import load_entry_points, load_plugin_file
+    """Load the run's plugins in this (worker) process: from their files when this machine has them
+    (a plugin that ``Client.upload_file`` imported already counts when its SHA-256 is the run's), or as
+    uploaded; a plugin whose code differs from the run's is refused."""
+    from .kinds import load_entry_points, load_plugin_file, plugin_loaded
 
     load_entry_points()
     for p in plugins or ():
         key = p["sha256"]
         if key in _WORKER_PLUGINS:
             continue
-        if os.path.isfile(p["path"]):
-            load_plugin_file(p["path"])
-        elif p.get("module") not in sys.modules:
-            raise RuntimeError(f"plugin {p['path']} is not available on this worker")
+        if not plugin_loaded(p):
+            if not os.path.isfile(p["path"]):
+                raise RuntimeError(f"plugin {p['path']} is not available on this worker")
+            if load_plugin_file(p["path"])["sha256"] != key:
+                raise RuntimeError(f"plugin {p['path']} on this worker is not the file the run was started with "
+                                   "(its SHA-256 differs)")
         _WORKER_PLUGINS.add(key)
 
 
@@ -192,11 +199,12 @@ class _Feed:
         self.again.append(p)
 
 
-def _died(i: int) -> dict:
+def _died(i: int, why: str | None = None) -> dict:
     now = time.time()
     return {"cell": i, "status": "failed", "metrics": {}, "arrays": {}, "started": now, "finished": now,
-            "seconds": None, "worker": None, "detail": None,
-            "error": "WorkerDied: the worker process running this cell died"}
+            "seconds": None, "worker": None, "detail": why,
+            "error": "WorkerDied: the worker process running this cell died"
+                     + (f" ({why.splitlines()[0][:300]})" if why else "")}
 
 
 def _processes(payloads: Iterable[dict], on_result, workers: int, plugins) -> None:
@@ -265,14 +273,20 @@ def _processes(payloads: Iterable[dict], on_result, workers: int, plugins) -> No
 
 
 def _dask(payloads: Iterable[dict], on_result, backend: Backend, plugins) -> None:
+    """A Dask cluster. A cell whose workers died (``KilledWorker``: Dask's allowed failures used up)
+    may have shared a dying worker with the cell that killed it, so it becomes a suspect, as with local
+    processes: it is run again alone, and recorded as failed only if its worker dies then too."""
+    import itertools
     import uuid
+    from concurrent.futures import CancelledError
 
-    from distributed import Client, LocalCluster, as_completed
+    from distributed import Client, LocalCluster, wait
+    from distributed.scheduler import KilledWorker
 
     cluster = None
     if backend.address == "local":
         cluster = LocalCluster(n_workers=backend.workers, threads_per_worker=1, processes=True,
-                               dashboard_address=None, silence_logs=40)
+                               dashboard_address=None, silence_logs=50)  # a dead cell is recorded: no log noise
         client = Client(cluster)
     else:
         try:
@@ -280,29 +294,55 @@ def _dask(payloads: Iterable[dict], on_result, backend: Backend, plugins) -> Non
         except OSError as exc:
             raise InputError("--cluster", f"cannot reach the Dask scheduler at {backend.address} ({exc})") from None
     token = uuid.uuid4().hex[:8]
+    serial = itertools.count()
     try:
         for p in plugins or ():
             client.upload_file(p["path"])
         n_workers = max(1, len(client.scheduler_info().get("workers", {})) or backend.workers)
         window = max(8, 4 * n_workers)
         feed = _Feed(payloads)
+        suspects: set[int] = set()
+        inflight: dict = {}
 
         def submit(p):
-            return client.submit(run_payload, p, key=f"supergame-cell-{p['index']}-{token}", pure=False)
+            # a key of its own for every submission: a cell run again is a new task
+            key = f"supergame-cell-{p['index']}-{token}-{next(serial)}"
+            inflight[client.submit(run_payload, p, key=key, pure=False)] = p
 
-        first = []
-        while len(first) < window:
-            p = feed.next()
-            if p is None:
+        while True:
+            solo = len(inflight) == 1 and next(iter(inflight.values()))["index"] in suspects
+            while len(inflight) < window and not solo:
+                p = feed.next()
+                if p is None:
+                    break
+                if p["index"] in suspects:
+                    if inflight:  # a suspect runs alone: wait for the others first
+                        feed.push(p)
+                        break
+                    solo = True
+                submit(p)
+            if not inflight:
                 break
-            first.append(submit(p))
-        ac = as_completed(first)
-        for fut in ac:
-            on_result(fut.result())
-            fut.release()
-            p = feed.next()
-            if p is not None:
-                ac.add(submit(p))
+            done, _ = wait(list(inflight), return_when="FIRST_COMPLETED")
+            alone = len(inflight) == 1
+            for fut in done:
+                p = inflight.pop(fut)
+                try:
+                    res = fut.result()
+                except KilledWorker as exc:
+                    if alone and p["index"] in suspects:
+                        res = _died(p["index"], f"KilledWorker: {str(exc).split('. ')[0]}")
+                    else:
+                        suspects.add(p["index"])
+                        feed.push(p)
+                        fut.release()
+                        continue
+                except CancelledError as exc:
+                    raise InputError("--cluster", f"the Dask cluster stopped running the cells "
+                                                  f"({type(exc).__name__}: {exc}); the finished cells are stored; "
+                                                  "finish the run with --resume") from None
+                on_result(res)
+                fut.release()
     finally:
         client.close()
         if cluster is not None:

@@ -137,7 +137,8 @@ def test_missing_experiment_table():
 def test_value_out_of_range_in_one_cell_names_the_sweep_path_cell_range_and_value():
     e = error_of(doc(sweep={"run.delta": [0.9, 1.5]}))
     assert e.key == "sweep.run.delta"
-    assert "cell 1" in e.message and "(0, 1]" in e.message and "1.5" in e.message
+    # the second cell, counted from 1 as everywhere users see cells
+    assert "cell 2 (run.delta = 1.5)" in e.message and "(0, 1]" in e.message and "1.5" in e.message
 
 
 def test_out_of_range_in_the_file_itself_is_reported_plainly():
@@ -229,7 +230,7 @@ def test_every_cell_is_validated_before_work():
     # the bad cell is the last one of 50
     vals = [round(0.5 + 0.01 * k, 2) for k in range(49)] + [0.0]
     e = error_of(doc(sweep={"run.delta": vals}))
-    assert e.key == "sweep.run.delta" and "cell 49" in e.message
+    assert e.key == "sweep.run.delta" and "cell 50 " in e.message
 
 
 def test_huge_sweeps_refused_before_expansion():
@@ -265,7 +266,7 @@ def test_thresholds_and_learn_kinds_validate_their_own_tables():
     d["learning"] = {"alpha": 0.15}
     d["sweep"] = {"learning.m": [5, 1]}
     e = error_of(d)
-    assert e.key == "sweep.learning.m" and "cell 1" in e.message
+    assert e.key == "sweep.learning.m" and "cell 2 " in e.message
 
 
 def test_metric_names_of_a_simulation_are_finite_in_number_and_distinct():

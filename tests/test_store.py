@@ -9,7 +9,7 @@ import sys
 import pytest
 
 from sim.config import Parameter
-from sim.store import CellRow, Store, csv_text, export_table, frame, write_csv, write_parquet
+from sim.store import CellRow, DamagedStore, Store, csv_text, export_table, frame, write_csv, write_parquet
 
 
 def row(i, status="ok", x=None):
@@ -68,7 +68,8 @@ def test_exports_are_deterministic_and_hold_no_timings(tmp_path):
     h, b = export_table(rows, params, declared_metrics=("b",))
     assert h == ["cell", "status", "run.delta", "seed", "b", "a", "nan", "error"]
     text = csv_text(h, b)
-    assert text.splitlines()[1] == "0,ok,0.5,7,1.0,0.0,,"
+    # cells are counted from 1 in the export (the store keeps the index counted from 0, the stream key)
+    assert text.splitlines()[1] == "1,ok,0.5,7,1.0,0.0,,"
     assert text.splitlines()[2].endswith("ValueError: no")
     # timings differ, the export does not
     later = [row(0), row(1, "failed")]
@@ -103,3 +104,21 @@ def test_parquet_skipped_without_pyarrow(monkeypatch, tmp_path):
     monkeypatch.setitem(sys.modules, "pyarrow", None)
     assert write_parquet(tmp_path / "x.parquet", ["cell"], [[0]]) is False
     assert not (tmp_path / "x.parquet").exists()
+
+
+def test_a_row_that_cannot_be_read_back_is_named_not_a_crash(tmp_path):
+    st = Store.create(tmp_path / "r.sqlite", {"n_cells": 3})
+    for i in range(3):
+        st.record(row(i))
+    st.con.execute("UPDATE cells SET metrics = '{bad' WHERE cell = 1")
+    st.con.execute("UPDATE cells SET params = '[1, 2]' WHERE cell = 2")
+    with pytest.raises(DamagedStore, match="cell 2, metrics: not valid JSON"):
+        st.rows()
+    problems = []
+    assert [r.cell for r in st.rows(problems=problems)] == [0]
+    assert problems[0].startswith("the row of cell 2, metrics: not valid JSON (Expecting property name")
+    assert problems[1] == "the row of cell 3, parameters: not a JSON object"
+    st.con.execute("UPDATE meta SET value = 'nope' WHERE key = 'n_cells'")
+    with pytest.raises(DamagedStore, match="setting 'n_cells'"):
+        st.meta()
+    st.close()

@@ -130,7 +130,8 @@ def test_a_failing_cell_is_recorded_and_the_sweep_goes_on(flaky, tmp_path):
     exp.write_text(text)
     s = run_experiment(exp, tmp_path / "run", workers=1, plugins=plugins, progress=False)
     assert s.complete and s.ok == 5 and s.failed == 1
-    assert s.failed_cells == [(2, "ValueError: x = 2 is not allowed at run time")]
+    # failed cells by their number, counted from 1 (x = 2 is the third cell)
+    assert s.failed_cells == [(3, "ValueError: x = 2 is not allowed at run time")]
     with open_run(tmp_path / "run") as rf:
         rows = {r.cell: r for r in rf.rows()}
     assert rows[5].metrics["square"] == 25.0 and rows[2].status == "failed" and "Traceback" in rows[2].detail
@@ -141,7 +142,7 @@ def test_a_dying_worker_takes_only_its_cell_down(flaky, tmp_path):
     s = run_experiment(exp, tmp_path / "run", workers=2, plugins=plugins, progress=False)
     assert s.complete and s.ok == 4 and s.failed == 2
     errors = dict(s.failed_cells)
-    assert errors[2].startswith("ValueError") and errors[4].startswith("WorkerDied")
+    assert errors[3].startswith("ValueError") and errors[5].startswith("WorkerDied")
 
 
 def test_backend_choice():
@@ -197,3 +198,33 @@ def test_sweep_benchmark_section_runs_and_its_backends_agree():
     out = bench_section(SimpleNamespace(quick=True, threads=2, repeat=1))
     assert out["speedup"]["identical_results"] and out["targets"]["1 and 2 workers give identical results"]
     assert out["overhead"]["per_cell_ms"] == out["overhead"]["per_cell_ms"]  # a number, not nan
+
+
+def test_plugins_on_a_local_dask_cluster(flaky, tmp_path):
+    """The workers import an uploaded plugin themselves (``Client.upload_file``): the run's plugin is
+    that module, not a clash -- every cell but the one that raises finishes."""
+    pytest.importorskip("distributed", reason="Dask is in the dev extras")
+    exp, plugins = flaky
+    exp.write_text(exp.read_text().replace("die = true", "die = false"))
+    s = run_experiment(exp, tmp_path / "dask", workers=2, cluster="local", plugins=plugins, progress=False)
+    assert s.complete and s.ok == 5 and s.failed == 1
+    assert s.failed_cells == [(3, "ValueError: x = 2 is not allowed at run time")]
+    with open_run(tmp_path / "dask") as rf:
+        assert {r.cell: r.metrics["square"] for r in rf.rows() if r.status == "ok"} == {0: 0.0, 1: 1.0, 3: 9.0,
+                                                                                          4: 16.0, 5: 25.0}
+
+
+def test_a_cell_that_kills_its_dask_workers_is_recorded_and_the_sweep_goes_on(flaky, tmp_path):
+    """Dask re-runs a cell whose worker died, up to its allowed failures (here none, to keep the test
+    short), then gives up with KilledWorker: that cell is failed, the others finish."""
+    pytest.importorskip("distributed", reason="Dask is in the dev extras")
+    import dask
+
+    exp, plugins = flaky
+    with dask.config.set({"distributed.scheduler.allowed-failures": 0}):
+        s = run_experiment(exp, tmp_path / "dask", workers=2, cluster="local", plugins=plugins, progress=False)
+    assert s.complete and s.status == "complete" and s.ok == 4 and s.failed == 2
+    errors = dict(s.failed_cells)
+    assert errors[3].startswith("ValueError") and errors[5].startswith("WorkerDied") and "KilledWorker" in errors[5]
+    with open_run(tmp_path / "dask") as rf:
+        assert rf.complete and rf.manifest()["attempts"][0]["outcome"] == "complete"

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 
 from ._common import emit
+from .run import add_plugin_option
 
 HELP = "validate experiment files, every sweep cell included, without running them"
 DESCRIPTION = (
@@ -17,8 +18,7 @@ DESCRIPTION = (
 
 def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("files", nargs="+", metavar="FILE", help="experiment files (TOML)")
-    p.add_argument("--plugin", action="append", metavar="FILE", default=[],
-                   help="Python file registering strategies or kinds (runs its code; repeatable)")
+    add_plugin_option(p)
     p.add_argument("--json", action="store_true", help="print one JSON object per file")
 
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 
 from ._common import emit
+from .run import add_plugin_option
 
 HELP = "write the evidence bundle of a run folder (summary, HTML, figures, tables, manifest)"
 DESCRIPTION = (
@@ -17,20 +18,15 @@ DESCRIPTION = (
 def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("run_dir", metavar="RUN_DIR", help="a run folder made by supergame run")
     p.add_argument("--out", metavar="DIR", help="bundle folder (default RUN_DIR/report)")
-    p.add_argument("--plugin", action="append", metavar="FILE", default=[],
-                   help="Python file registering the experiment's kind or strategies (runs its code; repeatable)")
+    add_plugin_option(p, "the experiment's kind or strategies")
 
 
 def run(args) -> int:
-    from pathlib import Path
-
     from ..kinds import load_plugins
     from ..report import write_report
-    from ..runs import write_manifest
 
     load_plugins(args.plugin)
+    # a bundle inside the run folder is recorded in its manifest (see sim.report.write_report)
     target = write_report(args.run_dir, args.out)
-    if Path(target).resolve().parent == Path(args.run_dir).resolve():
-        write_manifest(args.run_dir)
     emit(f"Evidence bundle: {target}/summary.html (and summary.md, figures/, tables/, manifest.json)")
     return 0

@@ -19,17 +19,22 @@ DESCRIPTION = (
 )
 
 
+def add_plugin_option(p: argparse.ArgumentParser, what: str = "strategies or kinds") -> None:
+    """``--plugin FILE`` (repeatable), the same for every command that reads experiment files."""
+    p.add_argument("--plugin", action="append", metavar="FILE", default=[],
+                   help=f"Python file registering {what} (runs its code; repeatable)")
+
+
 def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("file", nargs="?", metavar="FILE", help="experiment file (TOML); optional with --resume")
-    p.add_argument("--out", metavar="DIR", help="run folder to create (default runs/<name>-<time>)")
+    p.add_argument("--out", metavar="DIR", help="run folder to create (default runs/<name>-<time>); not with --resume")
     p.add_argument("--workers", metavar="N", help="worker processes (default: one per usable core)")
     p.add_argument("--cluster", metavar="ADDRESS",
                    help="run the cells on Dask: 'local' for a local cluster, or a scheduler address (tcp://host:8786)")
     p.add_argument("--resume", metavar="RUN_DIR", help="finish an interrupted run: compute only the missing cells")
     p.add_argument("--retry-failed", action="store_true", help="with --resume, compute the failed cells again")
     p.add_argument("--report", action="store_true", help="write the evidence bundle (RUN_DIR/report) at the end")
-    p.add_argument("--plugin", action="append", metavar="FILE", default=[],
-                   help="Python file registering strategies or kinds (runs its code; repeatable)")
+    add_plugin_option(p)
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.add_argument("--json", action="store_true", help="print the run summary as one JSON object")
 
@@ -52,7 +57,7 @@ def run(args) -> int:
         out = str(_default_folder(__import__("pathlib").Path("runs"), exp.name))
     folder = args.resume or out
     try:
-        s = run_experiment(exp, out if args.resume is None else None, workers=workers, cluster=args.cluster,
+        s = run_experiment(exp, out, workers=workers, cluster=args.cluster,
                            resume=args.resume, retry_failed=args.retry_failed, report=args.report, plugins=plugins,
                            progress=False if args.quiet else None, command=["supergame", *sys.argv[1:]]
                            if sys.argv and sys.argv[0].endswith(("supergame", "__main__.py")) else
@@ -62,9 +67,11 @@ def run(args) -> int:
         print(f"supergame run: interrupted; finished cells are stored in {folder}; finish with: {how}",
               file=sys.stderr)
         return 130
+    # exit status 1 when no cell finished: there is no result to use
+    status = 1 if s.status == "failed" else 0
     if args.json:
         emit(dumps(s.to_dict(), indent=2))
-        return 0
+        return status
     lines = [f"Run folder: {s.folder}",
              f"Cells: {s.ok + s.failed} of {s.n_cells} done ({s.failed} failed); {s.ran} computed now in "
              f"{s.seconds:.1f} s on {s.backend}"]
@@ -73,12 +80,17 @@ def run(args) -> int:
         lines += [f"  cell {c}: {e}" for c, e in s.failed_cells[:20]]
         if len(s.failed_cells) > 20:
             lines.append(f"  ... and {len(s.failed_cells) - 20} more (see results.csv)")
-    if s.complete:
+    if s.status == "complete":
         lines.append("Files: " + ", ".join(f for f in s.files if not f.startswith("report/")))
         if s.report is not None:
             lines.append(f"Evidence bundle: {s.report}/summary.html (and summary.md, figures/, tables/, "
                          "manifest.json)")
+    elif s.status == "failed":
+        lines.append(f"Failed: none of the {s.n_cells} cells finished" + (", so no evidence bundle was written"
+                                                                          if args.report else "")
+                     + f"; after fixing the cause, run them again with supergame run --resume {s.folder} "
+                       "--retry-failed")
     else:
         lines.append(f"Incomplete: finish with supergame run --resume {s.folder}")
     emit("\n".join(lines))
-    return 0
+    return status

@@ -181,7 +181,8 @@ def run(args) -> int:
         res = simulate(cfg["market"], cfg["strategies"], cfg["monitoring"], periods=r["periods"],
                        replications=r["replications"], delta=r["delta"], seed=r["seed"], horizon=r["horizon"],
                        continuation=r["continuation"], paths=r["paths"], agreement=cfg["agreement"],
-                       actions=cfg["actions"], threads=cfg["threads"], confidence=cfg["confidence"])
+                       actions=cfg["actions"], threads=cfg["threads"], confidence=cfg["confidence"],
+                       key=(0,))  # the key of cell 1 of `supergame run FILE` (sim.kinds: stream keys)
     except InputError as exc:
         raise _rename(exc, cfg) from None
     if args.plot:

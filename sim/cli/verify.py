@@ -6,23 +6,26 @@ import argparse
 
 from ..errors import InputError
 from ._common import emit, parse_number
+from .run import add_plugin_option
 
 HELP = "check a run folder: file hashes against the manifest, and re-run a sample of cells"
 DESCRIPTION = (
     "Check that every file of a run folder still has the SHA-256 its manifest records (and that no file was added), "
-    "then re-run a sample of cells from the folder's copy of the experiment file and compare every metric with the "
-    "stored one. Exit status 0 when everything checks out, 1 when a file was altered or a number does not "
+    "that every stored row is the cell it claims to be, and that the exports (results.csv, results.parquet, "
+    "arrays.json, the report's results table) are what the store gives, byte for byte; then re-run a sample of "
+    "cells from the folder's copy of the experiment file and compare every metric with the stored one. Exit status "
+    "0 when everything checks out, 1 when a file was altered, the folder is damaged or a number does not "
     "reproduce. --plugin loads Python code the experiment needs: it runs that code."
 )
 
 
 def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("run_dir", metavar="RUN_DIR", help="a run folder made by supergame run")
-    p.add_argument("--sample", metavar="N", help="cells to re-run, spread over the run (default 3; 0: hashes only)")
-    p.add_argument("--cells", metavar="LIST", help="re-run these cells instead (comma-separated numbers)")
+    p.add_argument("--sample", metavar="N", help="cells to re-run, spread over the run (default 3; 0: no re-run)")
+    p.add_argument("--cells", metavar="LIST",
+                   help="re-run these cells instead (comma-separated numbers, counted from 1 as in results.csv)")
     p.add_argument("--tolerance", metavar="R", help="relative tolerance of the comparison (default 1e-9)")
-    p.add_argument("--plugin", action="append", metavar="FILE", default=[],
-                   help="Python file registering strategies or kinds (runs its code; repeatable)")
+    add_plugin_option(p)
     p.add_argument("--json", action="store_true", help="print one JSON object")
 
 
