@@ -636,43 +636,30 @@ def write_assessment_bundle(target, a, experiment_file, name: str, start: float,
                             source=None, key=(0,)) -> Path:
     """Write the evidence bundle of an assessment into ``target``.
 
-    The bundle is written into a temporary sibling folder and renamed at the end, so that a failure
-    leaves no partial folder. Contents: ``summary.md``, ``summary.html`` (self-contained),
+    :class:`sim.bundle.Bundle` stages the bundle beside ``target`` and moves it into place at the
+    end, so that a failure leaves no partial folder. Contents: ``summary.md``, ``summary.html`` (self-contained),
     ``figures/*.png|pdf``, ``tables/*.csv|tex``, ``assessment.json`` (every number),
     ``experiment.toml`` (the experiment file byte for byte) and ``manifest.json`` (the experiment's
     SHA-256, the command line, package versions, platform, seeds, start and end times, and the SHA-256
     of every other file). Uses the shared :class:`sim.bundle.Bundle` writer.
 
     ``source`` is where the experiment file was read from and ``key`` the stream key of the
-    assessment's cell (``(0,)``, cell 0 of a run folder), both recorded in the manifest. Written as
+    assessment's cell (``(0,)``, the one cell of a run folder), both recorded in the manifest. Written as
     ``RUN_DIR/report`` by ``supergame assess``, whose run folder ``supergame verify`` checks.
     """
-    import shutil
-    import tempfile
-
     from ._jsonutil import dumps
 
     target = Path(target)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}-", dir=target.parent))
-    try:
-        raw = Path(experiment_file).read_bytes()
-        title = f"Coordinated effects of a merger: {name}"
-        tables = assessment_tables(a)
-        figs = assessment_figures(a)
-        blocks = summary_blocks(a, [f[0] for f in figs])
-        blocks += _reproduce_blocks(a, raw, key)
-        extra = _manifest_extra(a, raw, name, start, end,
-                                argv if argv is not None else ["supergame", "assess", str(experiment_file)],
-                                source, key)
-        result = (dumps(a.to_dict(), indent=2, sort_keys=True) + "\n").encode("utf-8")
-        _write_with_bundle(tmp, title, blocks, tables, figs, raw, result, extra)
-        if target.exists():
-            target.rmdir()
-        tmp.rename(target)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
+    raw = Path(experiment_file).read_bytes()
+    title = f"Coordinated effects of a merger: {name}"
+    tables = assessment_tables(a)
+    figs = assessment_figures(a)
+    blocks = summary_blocks(a, [f[0] for f in figs])
+    blocks += _reproduce_blocks(a, raw, key)
+    extra = _manifest_extra(a, raw, name, start, end,
+                            argv if argv is not None else ["supergame", "assess", str(experiment_file)], source, key)
+    result = (dumps(a.to_dict(), indent=2, sort_keys=True) + "\n").encode("utf-8")
+    _write_with_bundle(target, title, blocks, tables, figs, raw, result, extra)
     return target
 
 
@@ -693,10 +680,22 @@ def _reproduce_blocks(a, raw: bytes, key) -> list:
 
 
 def _write_with_bundle(folder: Path, title, blocks, tables, figs, raw: bytes, result: bytes, extra: dict) -> None:
+    import matplotlib.pyplot as plt
+
     from .bundle import Bundle
 
     fig_of = {name: (fig, cap) for name, fig, cap in figs}
-    b = Bundle(folder, title)
+    try:
+        # the bundle is staged beside its folder and moved into place by write(); on an error the
+        # context drops what was staged, leaving the folder as it was
+        with Bundle(folder, title) as b:
+            _fill(b, blocks, tables, fig_of, raw, result, extra)
+    finally:
+        for fig, _cap in fig_of.values():  # figures not added (an error part-way)
+            plt.close(fig)
+
+
+def _fill(b, blocks, tables, fig_of: dict, raw: bytes, result: bytes, extra: dict) -> None:
     shown = set()
     for blk in blocks:
         if blk[0] == "heading":
@@ -715,10 +714,6 @@ def _write_with_bundle(folder: Path, title, blocks, tables, figs, raw: bytes, re
     for name, (headers, rows) in tables.items():
         if name not in shown:
             b.table(name, headers, rows, caption=name.replace("_", " "), show=False)
-    for fig, _cap in fig_of.values():  # pragma: no cover - every figure has a place in the summary
-        import matplotlib.pyplot as plt
-
-        plt.close(fig)
     b.attach("experiment.toml", raw)
     b.attach("assessment.json", result)
     b.write(manifest=extra)

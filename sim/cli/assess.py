@@ -58,7 +58,8 @@ def run(args) -> int:
     bundle = write_assessment_bundle(s.folder / REPORT_DIR, result, s.folder / EXPERIMENT_COPY, exp.name, start, end,
                                      argv, source=args.file, key=(kept[0][0],))
     # the run's manifest now covers the bundle's files as well, so that supergame verify checks them
-    write_manifest(s.folder)
+    # (every other file must still be as the manifest recorded it)
+    write_manifest(s.folder, rewritten=(f"{REPORT_DIR}/",))
     if args.json:
         out = result.to_dict()
         out["run_folder"] = str(s.folder)
