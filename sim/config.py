@@ -740,8 +740,28 @@ def _experiment_table(doc: dict, default_name: str | None) -> tuple[str, str, st
     return name, kind, desc
 
 
-def _sweep_error(exc: InputError, cell: Cell, swept: set) -> InputError:
-    """Name the swept parameter behind a cell's validation error where there is one."""
+_MISSING = object()
+
+
+def _lookup(doc: Any, path: str) -> Any:
+    """What ``path`` (list entries counted from 1) holds in ``doc``, or ``_MISSING``."""
+    cur = doc
+    for s in path.split("."):
+        if isinstance(cur, dict) and s in cur:
+            cur = cur[s]
+        elif isinstance(cur, list) and s.isdigit() and 1 <= int(s) <= len(cur):
+            cur = cur[int(s) - 1]
+        else:
+            return _MISSING
+    return cur
+
+
+def _sweep_error(exc: InputError, cell: Cell, swept: set, base: dict) -> InputError:
+    """Name the swept parameter behind a cell's validation error where there is one.
+
+    An error about a table or list that holds the swept path (the line-up, when a swept number of seats
+    does not fit the market) is about the cell's value; only when the file has a plain value there, and
+    the sweep had to make a table of it, does the path not exist."""
     key = canonical_path(exc.key) if exc.key else ""
     for p in sorted(swept, key=len, reverse=True):
         if key == p or key.startswith(p + "."):
@@ -749,6 +769,8 @@ def _sweep_error(exc: InputError, cell: Cell, swept: set) -> InputError:
                 return InputError(f"sweep.{p}", f"does not exist: {exc.key}: {exc.message}")
             return InputError(f"sweep.{p}", f"{cell.describe()}: {exc.key} {exc.message}")
         if key and p.startswith(key + "."):
+            if isinstance(_lookup(base, key), dict | list):
+                return InputError(f"sweep.{p}", f"{cell.describe()}: {exc.key}: {exc.message}")
             return InputError(f"sweep.{p}", f"does not exist: {exc.key} is a value, not a table ({exc.message})")
     where = f"{exc.key}: " if exc.key else ""
     return InputError("sweep", f"{cell.describe()}: {where}{exc.message}")
@@ -798,7 +820,7 @@ def experiment_from_dict(doc: dict, *, text: str | None = None, source: str | No
                 raise
             if base_error is not None and (exc.key, exc.message) == (base_error.key, base_error.message):
                 raise base_error from None
-            raise _sweep_error(exc, cell, swept) from None
+            raise _sweep_error(exc, cell, swept, base) from None
         if first is None:
             first = prepared
     names = tuple(kind.metric_names(first)) if kind.metric_names is not None else ()

@@ -160,6 +160,16 @@ def test_sweep_path_that_does_not_exist(path, fragment):
     assert e.key == f"sweep.{path}" and fragment in e.message
 
 
+def test_a_swept_value_that_the_table_around_it_refuses_is_named_as_such():
+    """The path exists (the line-up has a first entry with seats); the value does not fit the market."""
+    e = error_of(doc(sweep={"strategies.1.seats": [3, 4]}))
+    assert e.key == "sweep.strategies.1.seats" and "does not exist" not in e.message
+    assert e.message.startswith("cell 2 (strategies.1.seats = 4): strategies: ") and "4 seats" in e.message
+    # a plain value the sweep would have to make a table of: that path does not exist
+    e = error_of(doc(sweep={"monitoring.sigma.x": [1, 2]}))
+    assert e.key == "sweep.monitoring.sigma.x" and e.message.startswith("does not exist: monitoring.sigma is a value")
+
+
 def test_sweep_specs_refused():
     assert error_of(doc(sweep={"run.delta": 0.9})).key == "sweep.run.delta"
     assert error_of(doc(sweep={"run.delta": []})).key == "sweep.run.delta"
