@@ -32,11 +32,17 @@ strategies played greedily from the session's final state reach a limit cycle, a
   horizon, 1 otherwise), i.e. the match as if it started once learning is over (when the cycle is
   longer than the 64 points a session keeps, its mean profit is used in every period).
 
+Automata that act at random (forgiving tit for tat, opportunists) may meet learners too: greedy play
+after learning then has no exact cycle, and :func:`sim.learning.learn` estimates the limit outcome
+from the session's own stream (a burn-in, then ``limit_periods`` periods of greedy play averaged). The
+seat's profit is that estimate, its discounted profit the estimate in every period of the horizon,
+and the match's ``stream`` says ``limit = "estimate"``.
+
 Session ``j`` of match ``m`` uses ``learn(..., seed=seed, cell=m)`` when ``key`` is empty (its stream
 is ``stream_states(seed, (m,), j, j + 1)``), and a seed derived from ``seed`` and ``key`` otherwise.
 The learning kernel plays perfect monitoring without noise, so learning entrants need
-``monitoring.signal = "perfect"`` and no shock or errors; automata meeting them must be deterministic
-and collude on the joint-profit outcome (``agreement = "joint"``, what :func:`sim.learning.learn`
+``monitoring.signal = "perfect"`` and no shock or errors; automata meeting them collude on the
+joint-profit outcome (``agreement = "joint"``, what :func:`sim.learning.learn`
 resolves their levels against), and the market must have 2 to 4 single-product firms.
 
 Scores
@@ -89,6 +95,7 @@ from ._params import Integer, Options, Real, optional
 from ._rng import ReferenceStream, next_u64, stream_states
 from ._tables import refuse_unknown
 from .errors import InputError
+from .learning import LEARNER_PARAMS, LIMIT_PERIODS
 
 __all__ = [
     "BOOTSTRAP_KEY",
@@ -119,6 +126,7 @@ TOURNAMENT_CONSTRAINTS = {
     "sessions": optional(Integer(1, 10_000_000)),
     "convergence": Integer(1, 10**12),
     "max_periods": Integer(1, 10**15),
+    "limit_periods": Integer(1, 100_000_000),
 }
 
 
@@ -153,20 +161,19 @@ class Entrant:
         return {"label": self.label, **self.strategy.to_dict()}
 
 
-_LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init")
-
-
 def entrants_from_tables(tables, learning: dict | None = None, prefix: str = "entrants") -> list[Entrant]:
     """Entrants from an experiment file's ``[[entrants]]`` entries (``label``, ``strategy`` and its
     parameters). ``strategy = "qlearning"`` entries take the learner parameters of ``learning`` (the
-    ``[learning]`` table), overridden by their own; any other name is looked up in the strategy
-    registry."""
+    ``[learning]`` table), overridden by their own (:func:`sim.learning.learner_from_entry`, the reader
+    of learning line-ups); any other name is looked up in the strategy registry."""
     from strategies import strategy_from_dict
     from strategies.qlearning import QLearner
 
+    from .learning import learner_from_entry
+
     if not isinstance(tables, list) or isinstance(tables, str):
         raise InputError(prefix, "must be an array of tables ([[entrants]] entries)")
-    base = {k: v for k, v in (learning or {}).items() if k in _LEARNER_PARAMS}
+    base = {k: v for k, v in (learning or {}).items() if k in LEARNER_PARAMS}
     out = []
     for k, t in enumerate(tables):
         key = f"{prefix}[{k + 1}]"
@@ -178,15 +185,7 @@ def entrants_from_tables(tables, learning: dict | None = None, prefix: str = "en
             raise InputError(f"{key}.seats", "not used in tournaments: every entrant meets every group of entrants")
         body = {kk: v for kk, v in t.items() if kk != "label"}
         if body.get("strategy") == QLearner.name:
-            params = dict(base)
-            for name, v in body.items():
-                if name == "strategy":
-                    continue
-                if name not in _LEARNER_PARAMS:
-                    raise InputError(f"{key}.{name}", f"unknown parameter of qlearning; allowed: "
-                                                      f"{', '.join(_LEARNER_PARAMS)}")
-                params[name] = v
-            strat = QLearner(**params)
+            strat = learner_from_entry(body, base, key, skip=("strategy",), validate=False)
         else:
             strat = strategy_from_dict(body, key)
         out.append(Entrant(t["label"], strat))
@@ -355,7 +354,8 @@ def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None =
                        continuation: float = 0.99, agreement: str | None = None, actions=None,
                        seatings: str = "auto", score: str = "profit_gain", confidence: float = 0.95,
                        bootstrap: int = 1000, sessions: int | None = None, convergence: int = 100_000,
-                       max_periods: int = 1_000_000_000, key=()) -> TournamentPlan:
+                       max_periods: int = 1_000_000_000, limit_periods: int = LIMIT_PERIODS,
+                       key=()) -> TournamentPlan:
     """Validate everything and compile every match; nothing is played (see :func:`tournament`)."""
     from .engine import _as_monitoring, check_run, compile_game, stage_levels
     from .market import MarketSpec
@@ -375,7 +375,8 @@ def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None =
     run.pop("paths")
     s = {name: TOURNAMENT_CONSTRAINTS[name].check(f"tournament.{name}", v) for name, v in (
         ("seatings", seatings), ("score", score), ("confidence", confidence), ("bootstrap", bootstrap),
-        ("sessions", sessions), ("convergence", convergence), ("max_periods", max_periods))}
+        ("sessions", sessions), ("convergence", convergence), ("max_periods", max_periods),
+        ("limit_periods", limit_periods))}
     key = tuple(Integer(0, None).check("key", k) for k in key)
     s["sessions"] = run["replications"] if s["sessions"] is None else s["sessions"]
     every = s["seatings"] == "all" or (s["seatings"] == "auto" and not ms.symmetric)
@@ -440,7 +441,8 @@ def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None =
             if m.learning:
                 from .learning import compile_lineup as compile_learners
 
-                m.game = compile_learners(ms, lineup, workers=1, seat_prefix="entrants")
+                # automata that act at random are played; their limit outcomes are estimated (see the notes)
+                m.game = compile_learners(ms, lineup, workers=1, seat_prefix="entrants", random_automata="estimate")
             else:
                 m.game = compile_game(stage, levels, lineup, mon_obj, prefix="entrants", strict=False)
         except InputError as exc:
@@ -752,6 +754,7 @@ def _play_learning(plan: TournamentPlan, m: Match, threads) -> tuple:
     seed = _learning_seed(plan.run["seed"], key)
     res = learn(plan.market, lineup, sessions=plan.settings["sessions"], seed=seed,
                 convergence=plan.settings["convergence"], max_periods=plan.settings["max_periods"],
+                limit_periods=plan.settings["limit_periods"],
                 response_periods=0, workers=threads, progress=False, cell=m.index)
     run = plan.run
     d_eff = run["delta"] * (run["continuation"] if run["horizon"] == "random" else 1.0)
@@ -759,6 +762,9 @@ def _play_learning(plan: TournamentPlan, m: Match, threads) -> tuple:
     ps = np.ascontiguousarray(res.limit_profits, dtype=float)
     per = np.ones(res.n_sessions, dtype=np.int64)
     stream = {"seed": seed, "cell": m.index, "function": "sim.learning.learn"}
+    if not res.lineup.limit_exact:
+        # automata that act at random: the limit outcome is learn's seeded estimate
+        stream.update(limit="estimate", limit_periods=plan.settings["limit_periods"])
     return ps, disc, per, None, float(res.converged.mean()), stream
 
 
@@ -1190,7 +1196,8 @@ def tournament(market, entrants, monitoring=None, *, seats: int | None = None, p
                continuation: float = 0.99, agreement: str | None = None, actions=None, seatings: str = "auto",
                score: str = "profit_gain", confidence: float = 0.95, bootstrap: int = 1000,
                sessions: int | None = None, convergence: int = 100_000, max_periods: int = 1_000_000_000,
-               threads: int | None = None, progress=None, key=()) -> TournamentResult:
+               limit_periods: int = LIMIT_PERIODS, threads: int | None = None, progress=None,
+               key=()) -> TournamentResult:
     """Play a round-robin tournament of strategies in a market (see the module notes).
 
     Parameters
@@ -1218,6 +1225,9 @@ def tournament(market, entrants, monitoring=None, *, seats: int | None = None, p
         Resamples for the rank stability (0: none).
     sessions, convergence, max_periods :
         Learning matches: sessions per match (default ``replications``) and the convergence rule.
+    limit_periods : int
+        Learning matches seating an automaton that acts at random: periods of greedy play averaged by the
+        estimate of the limit outcome (:func:`sim.learning.learn`).
     threads : int, optional
         Threads of the kernels (results do not depend on it).
     progress : bool, optional
@@ -1234,7 +1244,8 @@ def tournament(market, entrants, monitoring=None, *, seats: int | None = None, p
                               delta=delta, seed=seed, horizon=horizon, continuation=continuation,
                               agreement=agreement, actions=actions, seatings=seatings, score=score,
                               confidence=confidence, bootstrap=bootstrap, sessions=sessions,
-                              convergence=convergence, max_periods=max_periods, key=key)
+                              convergence=convergence, max_periods=max_periods, limit_periods=limit_periods,
+                              key=key)
     t_prep = time.perf_counter() - t0
     res = run_tournament(plan, threads, progress)
     res.timings["prepare_seconds"] = t_prep
@@ -1248,7 +1259,7 @@ def tournament(market, entrants, monitoring=None, *, seats: int | None = None, p
 TOURNAMENT_TABLES = ("experiment", "market", "collusion", "monitoring", "entrants", "tournament", "learning", "run")
 TOURNAMENT_KEYS = ("seats", "replications", "seatings", "score", "confidence", "bootstrap", "generations", "shares",
                    "selection", "fitness", "population", "moran_runs")
-LEARNING_KEYS = (*_LEARNER_PARAMS, "convergence", "max_periods", "sessions")
+LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "limit_periods", "sessions")
 RUN_KEYS = ("periods", "replications", "horizon", "continuation", "delta", "seed")
 TOURNAMENT_DEFAULTS = {"seatings": "auto", "score": "profit_gain", "confidence": 0.95, "bootstrap": 1000}
 EVOLUTION_DEFAULTS = {"generations": 1000, "shares": None, "selection": 0.1, "fitness": "linear",
@@ -1311,7 +1322,7 @@ def tournament_from_dict(doc: dict, check_tables: bool = True) -> dict:
     for k in ("seats", "seatings", "score", "confidence", "bootstrap"):
         if k in tour:
             args[k] = tour[k]
-    for k in ("convergence", "max_periods", "sessions"):
+    for k in ("convergence", "max_periods", "limit_periods", "sessions"):
         if k in lt:
             args[k] = lt[k]
     # without collusion.agreement the plan chooses one (see default_agreement)

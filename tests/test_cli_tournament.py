@@ -447,3 +447,13 @@ def test_shipped_experiment_shows_what_its_comment_says(capsys):
             assert extra and all(np.all(plan.market.firm_profits(p) < nash) for p in extra)
         else:
             assert played <= usual, labels[m.lineup[0]]
+
+
+def test_learner_against_a_forgiving_rule_from_a_file(tmp_path, capsys):
+    text = LEARNERS.replace('label = "compete"\nstrategy = "always_compete"',
+                            'label = "generous"\nstrategy = "forgiving_tit_for_tat"\nforgiveness = 0.3')
+    text = text.replace("sessions = 6", "sessions = 4\nlimit_periods = 300")
+    assert main(["tournament", write(tmp_path, text)]) == 0
+    out = capsys.readouterr().out
+    assert "an automaton acts at random in 1 learning match (q vs generous)" in out
+    assert "estimate over 300 periods of greedy play" in out

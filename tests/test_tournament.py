@@ -383,14 +383,29 @@ def test_learner_restrictions_are_refused_before_any_work():
         prepare_tournament(DUOPOLY, ents, Monitoring(implementation_error=0.01), **LEARN)
     with pytest.raises(InputError, match=r"^monitoring\.signal:"):
         prepare_tournament(DUOPOLY, ents, Monitoring(signal="price", sigma=0.1), **LEARN)
-    random_rule = [Entrant("q", small_learner()), Entrant("generous", S.ForgivingTitForTat(forgiveness=0.3))]
-    with pytest.raises(InputError, match=r"^entrants\[2\]: .*acts at random.*\(in the match q vs generous\)"):
-        prepare_tournament(DUOPOLY, random_rule, **LEARN)
     with pytest.raises(InputError, match=r"^collusion\.agreement: learning entrants"):
         prepare_tournament(DUOPOLY, ents, agreement="proportional", **LEARN)
     five = Market(LinearDemand(100.0, 1.0), cost=10.0, n_firms=5)
     with pytest.raises(InputError, match=r"^tournament\.seats: learning entrants .* need 2 to 4 seats, got 5"):
         prepare_tournament(five, ents, **LEARN)
+
+
+def test_learner_meets_an_automaton_that_acts_at_random():
+    # a forgiving rule draws from the session's stream; the match is the learning component's estimate of
+    # the limit outcome (sim.learning.learn), the same numbers as a direct run with the same seed and cell
+    ents = [Entrant("q", small_learner()), Entrant("generous", S.ForgivingTitForTat(forgiveness=0.3))]
+    res = tournament(DUOPOLY, ents, limit_periods=500, **LEARN)
+    rec = next(r for r in res.matches if r.lineup == (0, 1))
+    assert rec.learning and rec.stream["limit"] == "estimate" and rec.stream["limit_periods"] == 500
+    direct = learn(DUOPOLY, [small_learner(), S.ForgivingTitForTat(forgiveness=0.3)], sessions=8, seed=3,
+                   convergence=300, max_periods=200_000, response_periods=0, cell=rec.index, limit_periods=500)
+    assert not direct.lineup.limit_exact
+    assert np.array_equal(direct.limit_profits, rec.profit_sum)
+    # no exact cycle: the estimated mean profit in every period of the horizon
+    weights = sum(0.95**t for t in range(200))
+    assert np.allclose(rec.discounted, weights * direct.limit_profits, rtol=1e-12)
+    # learners among themselves keep the exact cycle
+    assert "limit" not in next(r for r in res.matches if r.lineup == (0, 0)).stream
 
 
 # --------------------------------------------------------------------------------------------------

@@ -147,6 +147,11 @@ def render(res, evo, cfg) -> str:
         lines.append(f"Learning entrants: {s['sessions']} sessions per match, converged after {s['convergence']} "
                      f"periods without a change of any greedy strategy (cap {s['max_periods']}); scored on their "
                      "converged play")
+        est = [plan.describe(plan.matches[r.index]) for r in res.matches if r.stream.get("limit") == "estimate"]
+        if est:
+            lines.append(f"  an automaton acts at random in {len(est)} learning match{'es' if len(est) > 1 else ''} "
+                         f"({'; '.join(est[:3])}{'; ...' if len(est) > 3 else ''}): their limit outcome is an "
+                         f"estimate over {s['limit_periods']} periods of greedy play, not an exact cycle")
     lines.append("Entrants: " + "; ".join(f"{e.label} = {e.name}{_params(e)}" for e in plan.entrants))
     lines.append(_agreement_line(plan))
     undefined = [i + 1 for i, ok in enumerate(plan.gain_defined) if not ok]
