@@ -143,6 +143,14 @@ class Kind:
         The model's assumptions and limitations, stated in the report.
     summary : str
         One line: what a cell of this kind computes.
+    report : callable, optional
+        ``report(run, bundle)``: the kind's own account of a finished run in its evidence bundle, in
+        place of the generic sections (what the experiment asks, setup, sweep, figures, result tables).
+        ``run`` is the open :class:`sim.runs.RunFolder` (``run.experiment``, ``run.rows()`` with each
+        cell's metrics and arrays, ``run.meta``); ``bundle`` the :class:`sim.bundle.Bundle` being
+        written. Everything must be read from the stored rows, never recomputed. The results table,
+        failed cells, how to reproduce the numbers, the assumptions and the caution follow as for every
+        kind.
     """
 
     name: str
@@ -158,6 +166,7 @@ class Kind:
     describe: Callable[[dict], list] | None = None
     assumptions: tuple = ()
     summary: str = ""
+    report: Callable[[Any, Any], None] | None = None
 
     def seed_of(self, doc: dict) -> int | None:
         """The seed a cell's document gives (``seed_default`` when the key is absent)."""

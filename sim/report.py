@@ -182,26 +182,41 @@ def write_report(folder, out=None, update_manifest: bool = True) -> Path:
     recorded in the run's manifest (unless ``update_manifest`` is false: the caller writes the manifest),
     which must still match every other file of the folder (:func:`sim.runs.check_manifest`).
     """
-    from .bundle import Bundle
-    from .runs import REPORT_DIR, RunFolder, check_manifest, clear_leftovers, write_manifest
+    from .runs import REPORT_DIR, RunFolder, write_manifest
 
     folder = Path(folder)
     with RunFolder(folder) as rf:
-        exp = rf.experiment
-        kind = exp.kind_spec()
-        rows = rf.rows()
-        header, body = rf.table()
-        counts = rf.counts()
-        attempts = rf.attempts()
-        meta = rf.meta
+        _write(rf, folder, out, update_manifest)
+    target = Path(out) if out is not None else folder / REPORT_DIR
+    if _inside(folder, target) and update_manifest:
+        write_manifest(folder, (f"{_inside(folder, target)}/",))
+    return target
+
+
+def _inside(folder: Path, target: Path) -> str | None:
+    """``target`` relative to the run folder (POSIX), or None when it lies elsewhere."""
+    try:
+        return target.resolve().relative_to(folder.resolve()).as_posix()
+    except ValueError:
+        return None
+
+
+def _write(rf, folder: Path, out, update_manifest: bool) -> None:
+    from .bundle import Bundle
+    from .runs import REPORT_DIR, check_manifest, clear_leftovers
+
+    exp = rf.experiment
+    kind = exp.kind_spec()
+    rows = rf.rows()
+    header, body = rf.table()
+    counts = rf.counts()
+    attempts = rf.attempts()
+    meta = rf.meta
     if counts["missing"]:
         raise InputError("RUN_DIR", f"{folder} is not finished: {counts['missing']} of {counts['total']} cells have no "
                                     f"result yet; finish it with supergame run --resume {folder}")
     target = Path(out) if out is not None else folder / REPORT_DIR
-    try:
-        inside = target.resolve().relative_to(folder.resolve()).as_posix()
-    except ValueError:
-        inside = None
+    inside = _inside(folder, target)
     if inside in ("", "."):
         raise InputError("--out", f"{target} is the run folder itself; give a folder for the bundle")
     rewritten = (f"{inside}/",) if inside else ()
@@ -212,14 +227,11 @@ def write_report(folder, out=None, update_manifest: bool = True) -> Path:
     _prepare_target(target, default=out is None)
     title = exp.report.title or f"{exp.name}: {kind.summary}"
     with Bundle(target, title) as b:
-        _fill(b, folder, exp, kind, rows, header, body, counts, attempts, meta, inside is not None
+        _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, inside is not None
               and Path(inside).parent.as_posix() == ".")
-    if inside and update_manifest:
-        write_manifest(folder, rewritten)
-    return target
 
 
-def _fill(b, folder, exp, kind, rows, header, body, counts, attempts, meta, in_run_folder: bool) -> None:
+def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, in_run_folder: bool) -> None:
     """The content of a run's evidence bundle, read from the stored rows (see the module notes)."""
     from ._text import fmt_num
     from .config import leading_comment
@@ -230,99 +242,108 @@ def _fill(b, folder, exp, kind, rows, header, body, counts, attempts, meta, in_r
     desc = exp.description or leading_comment(exp.text or "")
     b.paragraph(f"Experiment `{exp.name}` (kind `{exp.kind}`), run folder `{folder.name}`; {counts['total']} cell"
                 f"{'s' if counts['total'] != 1 else ''}, {counts['ok']} finished, {counts['failed']} failed.")
-    if desc:
-        b.heading("What the experiment asks")
-        for para in desc.split("\n\n"):
-            b.paragraph(" ".join(para.split()))
-    b.heading("Setup")
-    b.bullets(kind.describe(exp.doc) if kind.describe else [f"Kind: {exp.kind}"])
-    if exp.parameters:
-        b.paragraph("These are the file's settings; the values of " + ", ".join(f"`{p.path}`" for p in exp.parameters)
-                    + " are those of the sweep below.", note=True)
-    data = SweepData(list(exp.parameters), rows)
-    heads = _headline(exp, kind)
-    if exp.parameters:
-        b.heading("Sweep")
-        prow = [[p.path, ", ".join(p.labels), len(p)] for p in exp.parameters]
-        b.table("sweep", ["parameter", "values", "number"], prow, caption="Swept parameters")
-        groups = [" + ".join(g) for g in exp.groups if len(g) > 1]
-        how = "Every combination of the values (grid)" if exp.mode == "grid" else "Values taken together (zip)"
-        b.paragraph(how
-                    + (f"; varying together: {'; '.join(groups)}" if groups and exp.mode == "grid" else "")
-                    + f"; {exp.n_cells} cells. Each cell is one complete {exp.kind} run with the other settings of "
-                      "the file.")
+    if kind.report is not None:
+        # the kind's own account of its results, read from the stored rows; the closing sections follow
+        kind.report(rf, b)
+        b.table("results", header, body, show=False)
+        b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
+                    f"(also `{CSV_FILE}` in the run folder).", note=True)
+    else:
+        if desc:
+            b.heading("What the experiment asks")
+            for para in desc.split("\n\n"):
+                b.paragraph(" ".join(para.split()))
+        b.heading("Setup")
+        b.bullets(kind.describe(exp.doc) if kind.describe else [f"Kind: {exp.kind}"])
+        if exp.parameters:
+            b.paragraph("These are the file's settings; the values of "
+                        + ", ".join(f"`{p.path}`" for p in exp.parameters) + " are those of the sweep below.",
+                        note=True)
+        data = SweepData(list(exp.parameters), rows)
+        heads = _headline(exp, kind)
+        if exp.parameters:
+            b.heading("Sweep")
+            prow = [[p.path, ", ".join(p.labels), len(p)] for p in exp.parameters]
+            b.table("sweep", ["parameter", "values", "number"], prow, caption="Swept parameters")
+            groups = [" + ".join(g) for g in exp.groups if len(g) > 1]
+            how = "Every combination of the values (grid)" if exp.mode == "grid" else "Values taken together (zip)"
+            b.paragraph(how
+                        + (f"; varying together: {'; '.join(groups)}" if groups and exp.mode == "grid" else "")
+                        + f"; {exp.n_cells} cells. Each cell is one complete {exp.kind} run with the other settings of "
+                          "the file.")
 
-    b.heading("Results")
-    specs = list(exp.report.figures) or default_figures(exp, kind, data)
-    from .config import figure_name
+        b.heading("Results")
+        specs = list(exp.report.figures) or default_figures(exp, kind, data)
+        from .config import figure_name
 
-    for i, spec in enumerate(specs):
-        if not data.has(spec.metric):
-            b.paragraph(f"Figure of {spec.metric} not drawn: no finished cell reports it.", note=True)
-            continue
-        b.figure(figure_name(spec, i), _draw(spec, data), _caption(spec))
-    if not exp.parameters and rows and rows[0].status == "ok":
-        _single_cell_figures(b, exp, rows[0])
+        for i, spec in enumerate(specs):
+            if not data.has(spec.metric):
+                b.paragraph(f"Figure of {spec.metric} not drawn: no finished cell reports it.", note=True)
+                continue
+            b.figure(figure_name(spec, i), _draw(spec, data), _caption(spec))
+        if not exp.parameters and rows and rows[0].status == "ok":
+            _single_cell_figures(b, exp, rows[0])
 
-    if exp.parameters:
-        hdr = ["cell", *[p.path for p in exp.parameters]]
-        disp_rows, csv_rows = [], []
-        csv_hdr = list(hdr)
-        for m in heads:
-            hdr.append(m)
-            csv_hdr.append(m)
-            if any(f"{m}.low" in r.metrics for r in rows):
-                hdr.append(f"{m} 95% CI")
-                csv_hdr += [f"{m}.low", f"{m}.high"]
-        for r in rows:
-            labels = [r.labels[p.path] if not p.numeric else r.params[p.path] for p in exp.parameters]
-            d, c = [r.number, *labels], [r.number, *labels]
+        if exp.parameters:
+            hdr = ["cell", *[p.path for p in exp.parameters]]
+            disp_rows, csv_rows = [], []
+            csv_hdr = list(hdr)
             for m in heads:
-                d.append(r.metrics.get(m, math.nan))
-                c.append(r.metrics.get(m, math.nan))
-                if any(f"{m}.low" in q.metrics for q in rows):
-                    d.append(_ci(r, m))
-                    c += [r.metrics.get(f"{m}.low", math.nan), r.metrics.get(f"{m}.high", math.nan)]
-            disp_rows.append(d)
-            csv_rows.append(c)
-        b.table("summary", hdr, disp_rows, caption="Headline results per cell", csv_rows=(csv_hdr, csv_rows),
-                note="95 % confidence intervals across replications (simulation error only)")
-    elif rows and rows[0].status == "ok":
-        r = rows[0]
-        names = [m for m in exp.metric_names if not m.endswith((".se", ".low", ".high")) and not
-                 m.startswith("analytic.")] or sorted(r.metrics)
-        mrows = []
-        for m in names:
-            an = kind.analytic.get(m)
-            mrows.append([m, r.metrics.get(m, math.nan), _ci(r, m),
-                          r.metrics.get(an, math.nan) if an else math.nan])
-        mapped = set(kind.analytic.values())
-        for m in exp.metric_names:
-            if m.startswith("analytic.") and m not in mapped and math.isfinite(r.metrics.get(m, math.nan)):
-                mrows.append([m, r.metrics[m], "-", math.nan])
-        b.table("summary", ["metric", "value", "95% CI", "analytic"], mrows, caption="Results", max_rows=200,
-                note="rows analytic.*: the analytic baseline of the cell (closed forms and benchmarks)")
-    b.table("results", header, body, show=False)
-    b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
-                f"(also `{CSV_FILE}` in the run folder).", note=True)
+                hdr.append(m)
+                csv_hdr.append(m)
+                if any(f"{m}.low" in r.metrics for r in rows):
+                    hdr.append(f"{m} 95% CI")
+                    csv_hdr += [f"{m}.low", f"{m}.high"]
+            for r in rows:
+                labels = [r.labels[p.path] if not p.numeric else r.params[p.path] for p in exp.parameters]
+                d, c = [r.number, *labels], [r.number, *labels]
+                for m in heads:
+                    d.append(r.metrics.get(m, math.nan))
+                    c.append(r.metrics.get(m, math.nan))
+                    if any(f"{m}.low" in q.metrics for q in rows):
+                        d.append(_ci(r, m))
+                        c += [r.metrics.get(f"{m}.low", math.nan), r.metrics.get(f"{m}.high", math.nan)]
+                disp_rows.append(d)
+                csv_rows.append(c)
+            b.table("summary", hdr, disp_rows, caption="Headline results per cell", csv_rows=(csv_hdr, csv_rows),
+                    note="95 % confidence intervals across replications (simulation error only)")
+        elif rows and rows[0].status == "ok":
+            r = rows[0]
+            names = [m for m in exp.metric_names if not m.endswith((".se", ".low", ".high")) and not
+                     m.startswith("analytic.")] or sorted(r.metrics)
+            mrows = []
+            for m in names:
+                an = kind.analytic.get(m)
+                mrows.append([m, r.metrics.get(m, math.nan), _ci(r, m),
+                              r.metrics.get(an, math.nan) if an else math.nan])
+            mapped = set(kind.analytic.values())
+            for m in exp.metric_names:
+                if m.startswith("analytic.") and m not in mapped and math.isfinite(r.metrics.get(m, math.nan)):
+                    mrows.append([m, r.metrics[m], "-", math.nan])
+            b.table("summary", ["metric", "value", "95% CI", "analytic"], mrows, caption="Results", max_rows=200,
+                    note="rows analytic.*: the analytic baseline of the cell (closed forms and benchmarks)")
+        b.table("results", header, body, show=False)
+        b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
+                    f"(also `{CSV_FILE}` in the run folder).", note=True)
 
-    ok_rows = [r for r in rows if r.status == "ok"]
-    crit = sorted({m for r in ok_rows for m in r.metrics if m.startswith("analytic.critical_delta.")})
-    if crit and ok_rows:
-        b.heading("Analytic baseline")
-        trows = []
-        varies = False
-        for m in crit:
-            have = [r for r in ok_rows if m in r.metrics]
-            vals = {round(r.metrics[m], 12) for r in have if math.isfinite(r.metrics[m])}
-            v = have[0].metrics[m]
-            varies = varies or len(vals) > 1
-            trows.append([m.split(".", 2)[2].replace("_", " "), v if math.isfinite(v) else "not sustainable below one"])
-        b.table("analytic-baseline", ["scheme", "critical discount factor"], trows,
-                caption="Critical discount factors of the punishment schemes played (perfect monitoring, infinite "
-                        "horizon)",
-                note=("values of the first cell playing each scheme; they vary across cells (see the results "
-                      "table)" if varies else "the same in every cell playing the scheme"))
+        ok_rows = [r for r in rows if r.status == "ok"]
+        crit = sorted({m for r in ok_rows for m in r.metrics if m.startswith("analytic.critical_delta.")})
+        if crit and ok_rows:
+            b.heading("Analytic baseline")
+            trows = []
+            varies = False
+            for m in crit:
+                have = [r for r in ok_rows if m in r.metrics]
+                vals = {round(r.metrics[m], 12) for r in have if math.isfinite(r.metrics[m])}
+                v = have[0].metrics[m]
+                varies = varies or len(vals) > 1
+                trows.append([m.split(".", 2)[2].replace("_", " "),
+                              v if math.isfinite(v) else "not sustainable below one"])
+            b.table("analytic-baseline", ["scheme", "critical discount factor"], trows,
+                    caption="Critical discount factors of the punishment schemes played (perfect monitoring, infinite "
+                            "horizon)",
+                    note=("values of the first cell playing each scheme; they vary across cells (see the results "
+                          "table)" if varies else "the same in every cell playing the scheme"))
 
     b.heading("Failed cells")
     failed = [r for r in rows if r.status == "failed"]

@@ -204,3 +204,32 @@ def test_the_demo_runs_end_to_end_and_writes_the_bundle(tmp_path):
     res = subprocess.run([sys.executable, "-m", "sim", "verify", str(out), "--sample", "2"], capture_output=True,
                          text=True, timeout=300, env=env)
     assert res.returncode == 0, res.stdout + res.stderr
+
+
+def test_a_kind_writes_its_own_account_of_a_run_into_the_bundle(tmp_path):
+    """``Kind.report``: a kind's sections replace the generic ones, read from the stored rows; the
+    closing sections (results table, failed cells, reproducing, assumptions, caution) stay."""
+    from sim.kinds import CellResult, Kind, register_kind
+
+    calls = []
+
+    def report(run, b):
+        rows = run.rows()
+        calls.append(len(rows))
+        b.heading("Squares")
+        b.table("squares", ["x", "square"], [[r.params["params.x"], r.metrics["square"]] for r in rows],
+                caption="Each x and its square, as stored")
+
+    register_kind(Kind("squares-with-report", ("params",), lambda d: d["params"],
+                       lambda c, ctx: CellResult({"square": float(c["x"] ** 2)}), seed_key=None, report=report,
+                       assumptions=("Squares are exact.",)), replace=True)
+    p = tmp_path / "sq.toml"
+    p.write_text('[experiment]\nname = "sq"\nkind = "squares-with-report"\n[params]\nx = 0\n'
+                 '[sweep]\n"params.x" = [1, 2, 3]\n')
+    s = run_experiment(p, tmp_path / "run", workers=1, report=True, progress=False)
+    md = (s.report / "summary.md").read_text()
+    assert calls == [3] and "## Squares" in md and "Each x and its square, as stored" in md
+    assert "## Sweep" not in md and "## Results" not in md
+    for closing in ("## Failed cells", "## Reproducing these numbers", "Squares are exact.", CAUTION):
+        assert closing in md
+    assert (s.report / "tables" / "results.csv").read_text() == (s.folder / "results.csv").read_text()
