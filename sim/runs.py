@@ -972,6 +972,11 @@ def _check_exports(folder: Path, rf: RunFolder, man: dict | None, checks: list) 
             checks.append((True, f"{REPORT_DIR}/ was written from these results"))
 
 
+def _without_hint(message: str) -> str:
+    """An error message without its pointer to supergame verify (verify is what is running)."""
+    return message.split("; supergame verify ")[0]
+
+
 def verify_run(folder, sample: int = 3, cells=None, rtol: float = 1e-9, atol: float = 1e-12,
                threads: int = 1) -> VerifyResult:
     """Check a run folder: every file's SHA-256 against the manifest; every stored row against the cell
@@ -1005,7 +1010,7 @@ def verify_run(folder, sample: int = 3, cells=None, rtol: float = 1e-9, atol: fl
     try:
         rf = RunFolder(folder, check_copy=False)
     except InputError as exc:
-        checks.append((False, exc.message))
+        checks.append((False, _without_hint(exc.message)))
         return VerifyResult(False, checks, [])
     report = []
     with rf:
@@ -1018,7 +1023,7 @@ def verify_run(folder, sample: int = 3, cells=None, rtol: float = 1e-9, atol: fl
         try:
             rows = rf.rows(problems=problems)
         except InputError as exc:
-            checks.append((False, exc.message))
+            checks.append((False, _without_hint(exc.message)))
             return VerifyResult(False, checks, [])
         exp = rf.experiment
         if same_copy:
