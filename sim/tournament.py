@@ -1572,6 +1572,8 @@ def _kind_run(cfg: dict, ctx) -> object:
     arrays = {"replicator.generation": idx.astype(float), "replicator.shares": rp.shares[idx],
               "scores": np.array([res.scores[score][e].value for e in range(len(plan.entrants))]),
               "versus": res.versus[score], "fixation": evo.fixation}
+    if plan.seats == 2:
+        arrays["beats"] = res.pairwise[score]["beats"]
     return CellResult(m, arrays)
 
 
@@ -1608,6 +1610,12 @@ def _kind_describe(doc: dict) -> list[str]:
             f"{tour.get('population', 100)}"]
 
 
+def _kind_report(rf, bundle) -> None:
+    from ._tournament_io import kind_report
+
+    kind_report(rf, bundle)
+
+
 def _kind() -> object:
     from ._adapters import _GENERAL_ASSUMPTIONS
     from .kinds import Kind
@@ -1621,6 +1629,7 @@ def _kind() -> object:
         headline=("ranking_holds",),
         describe=_kind_describe,
         summary="round-robin tournament of strategies: scores, ranking stability, evolutionary dynamics",
+        report=_kind_report,
         assumptions=_GENERAL_ASSUMPTIONS + (
             "Every group of entrants (self-play included) plays the repeated game; where firms differ, every "
             "seating is played and averaged. Scores are expected payoffs against rivals drawn uniformly from the "

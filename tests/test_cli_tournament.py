@@ -457,3 +457,45 @@ def test_learner_against_a_forgiving_rule_from_a_file(tmp_path, capsys):
     out = capsys.readouterr().out
     assert "an automaton acts at random in 1 learning match (q vs generous)" in out
     assert "estimate over 300 periods of greedy play" in out
+
+
+def test_run_report_carries_the_tournament(tmp_path, capsys):
+    # `supergame run --report` of a tournament file: the ranking with integer ranks and counts, the four
+    # figures of `supergame tournament --plot`, all read from the stored cell
+    folder = tmp_path / "run"
+    assert main(["run", write(tmp_path), "--out", str(folder), "--workers", "1", "--quiet", "--report"]) == 0
+    capsys.readouterr()
+    report = folder / "report"
+    for name in ("score-heatmap", "ranking", "replicator", "fixation"):
+        assert (report / "figures" / f"{name}.png").stat().st_size > 1000, name
+    md = (report / "summary.md").read_text()
+    assert "3 entrants over 2 seats, 6 matches" in md
+    with open(folder / "results.csv") as f:
+        row = next(csv.DictReader(f))
+    with open(report / "tables" / "ranking.csv") as f:
+        ranking = list(csv.DictReader(f))
+    assert [r["rank"] for r in ranking] == sorted(r["rank"] for r in ranking)
+    for r in ranking:
+        lab = r["entrant"]
+        assert r["rank"] == str(int(float(row[f"rank.{lab}"])))  # an integer, not 1.0000
+        assert float(r["profit gain"]) == float(row[f"score.{lab}"])
+        assert r["wins"] == str(int(float(row[f"wins.{lab}"])))
+    assert "| 1 | " in md and "2.0000" not in md.split("## Failed cells")[0]
+    with open(report / "tables" / "evolution.csv") as f:
+        assert {r["entrant"] for r in csv.DictReader(f)} == {"grim", "nash-2", "compete"}
+
+
+def test_sweep_report_lists_every_cell(tmp_path, capsys):
+    text = BASE + '\n[sweep]\n"monitoring.implementation_error" = [0.0, 0.02, 0.05]\n'
+    folder = tmp_path / "run"
+    assert main(["run", write(tmp_path, text), "--out", str(folder), "--workers", "1", "--quiet", "--report"]) == 0
+    capsys.readouterr()
+    with open(folder / "report" / "tables" / "cells.csv") as f:
+        cells = list(csv.DictReader(f))
+    assert [c["cell"] for c in cells] == ["1", "2", "3"]
+    with open(folder / "results.csv") as f:
+        rows = list(csv.DictReader(f))
+    for c, r in zip(cells, rows, strict=True):
+        first = [lab for lab in ("grim", "nash-2", "compete") if float(r[f"rank.{lab}"]) == 1.0]
+        assert c["first"] == ", ".join(first)
+    assert (folder / "report" / "figures" / "scores-over-sweep.png").stat().st_size > 1000
