@@ -499,3 +499,19 @@ def test_sweep_report_lists_every_cell(tmp_path, capsys):
         first = [lab for lab in ("grim", "nash-2", "compete") if float(r[f"rank.{lab}"]) == 1.0]
         assert c["first"] == ", ".join(first)
     assert (folder / "report" / "figures" / "scores-over-sweep.png").stat().st_size > 1000
+
+
+def test_learner_entries_read_by_the_learning_reader(tmp_path, monkeypatch):
+    # qlearning entrants are built by sim.learning.learner_from_entry, the one reader of learner entries
+    # (also used for the [[strategies]] of learning experiments)
+    import sim.learning as L
+    from sim.tomlfile import read_toml
+    from sim.tournament import tournament_from_dict
+
+    seen = []
+    real = L.learner_from_entry
+    monkeypatch.setattr(L, "learner_from_entry", lambda entry, base, key, **kw: seen.append(key)
+                        or real(entry, base, key, **kw))
+    cfg = tournament_from_dict(read_toml(write(tmp_path, LEARNERS)))
+    assert seen == ["entrants[2]"]
+    assert cfg["entrants"][1].strategy.get_params()["beta"] == 2e-3  # the [learning] default applies
