@@ -24,6 +24,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 __all__ = ["STORE_FILE", "DamagedStore", "Store", "export_table", "frame", "parquet_bytes", "write_csv",
            "write_parquet"]
 
@@ -305,12 +307,15 @@ def export_table(rows: list[CellRow], parameters: list, declared_metrics=()) -> 
 
 
 def _csv_value(v) -> str:
+    # numpy scalars are written as the Python numbers they hold: repr(np.float64(x)) names the type.
     if v is None:
         return ""
-    if isinstance(v, bool):
+    if isinstance(v, (bool, np.bool_)):
         return "true" if v else "false"
-    if isinstance(v, float):
-        return "" if math.isnan(v) else repr(v)
+    if isinstance(v, (float, np.floating)):
+        return "" if math.isnan(v) else repr(float(v))
+    if isinstance(v, np.integer):
+        return str(int(v))
     return str(v)
 
 

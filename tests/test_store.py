@@ -6,6 +6,7 @@ import math
 import sqlite3
 import sys
 
+import numpy as np
 import pytest
 
 from sim.config import Parameter
@@ -77,6 +78,12 @@ def test_exports_are_deterministic_and_hold_no_timings(tmp_path):
     assert csv_text(*export_table(later, params, ("b",))) == text
     write_csv(tmp_path / "a.csv", h, b)
     assert (tmp_path / "a.csv").read_text() == text
+
+
+def test_csv_writes_numpy_scalars_as_the_numbers_they_hold():
+    # numpy 2 spells repr(np.float64(0.5)) as "np.float64(0.5)"; an export must hold the bare number
+    text = csv_text(["a", "b", "c", "d"], [[np.float64(0.5), np.int64(3), np.bool_(True), np.float32(np.nan)]])
+    assert text.splitlines()[1] == "0.5,3,true,"
 
 
 def test_parquet_and_dataframe(tmp_path):
