@@ -123,6 +123,13 @@ def test_bad_input_one_line_exit_2(tmp_path, capsys, text, args, key):
     assert len(lines) == 1 and lines[0].startswith(f"supergame simulate: error: {key}:"), cap.err
 
 
+def test_flags_only_name_the_missing_flag(capsys):
+    # no FILE: the market comes from flags alone, so a missing setting is named by its flag
+    assert main(["simulate", "--firms", "2", "--strategy", "grim_trigger", "--delta", "0.9"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and err[0].startswith("supergame simulate: error: --cost: missing"), err
+
+
 def test_no_traceback_from_the_installed_command(tmp_path):
     p = tmp_path / "bad.toml"
     p.write_text(SMALL.replace("seats = 3", "seats = 4"))

@@ -5,7 +5,15 @@ from __future__ import annotations
 import argparse
 
 from ..errors import InputError
-from ._common import add_market_flags, emit, flag_error, market_table_from_args, parse_number, parse_numbers
+from ._common import (
+    MARKET_FLAGS,
+    add_market_flags,
+    emit,
+    flag_error,
+    market_table_from_args,
+    parse_number,
+    parse_numbers,
+)
 
 HELP = "simulate a line-up of strategies: persistence of collusion against the analytic baseline"
 DESCRIPTION = (
@@ -99,7 +107,8 @@ def settings(args) -> dict:
     try:
         market = market_from_dict(table)
     except InputError as exc:
-        raise flag_error(exc, from_flags) from None
+        # without FILE every market setting (a missing one too) is a flag's
+        raise flag_error(exc, from_flags if args.file else set(MARKET_FLAGS.values())) from None
     doc = dict(doc)
     doc["market"] = table
     if args.strategy:
