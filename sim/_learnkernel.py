@@ -348,6 +348,22 @@ def _on_cycle(x, entry, lam, G):
 
 
 @njit(cache=True, nogil=True)
+def _forced_action(payoff, base, step, m_dev, deviator, dev_action):
+    """The deviator's action in the deviation period: ``dev_action`` when given (>= 0), else its
+    best response (the first of equal ones) in the profile ``base + a * step``, ``a`` its action."""
+    if dev_action >= 0:
+        return dev_action
+    a_dev = 0
+    best = payoff[base, deviator]
+    for a in range(1, m_dev):
+        v = payoff[base + a * step, deviator]
+        if v > best:
+            best = v
+            a_dev = a
+    return a_dev
+
+
+@njit(cache=True, nogil=True)
 def _analyse(x_final, G, actions, prices, deviator, dev_action, d_dev, n_points, cycle_out, lim_actions, lim_prices,
              lim_profits, ir_prices, ir_profits, cf_prices, cf_profits, info):
     """The limit path from the final state and the impulse response to a one-period deviation.
@@ -427,16 +443,7 @@ def _analyse(x_final, G, actions, prices, deviator, dev_action, d_dev, n_points,
         # the deviation period: the others play greedily in x, the deviator is forced
         prof = _profile(x, G)
         base = prof - ((prof // place[deviator]) % m_dev) * place[deviator]
-        if dev_action >= 0:
-            a_dev = dev_action
-        else:
-            a_dev = 0
-            best = payoff[base, deviator]
-            for a in range(1, m_dev):
-                v = payoff[base + a * place[deviator], deviator]
-                if v > best:
-                    best = v
-                    a_dev = a
+        a_dev = _forced_action(payoff, base, place[deviator], m_dev, deviator, dev_action)
         if first_action < 0:
             first_action = a_dev
         pdev = base + a_dev * place[deviator]
@@ -541,16 +548,7 @@ def _branch(x, G, prices, deviator, dev_action, d_dev, horizon, ir_prices, ir_pr
     prof = _profile(x, G)
     m_dev = radix[deviator]
     base = prof - ((prof // place[deviator]) % m_dev) * place[deviator]
-    if dev_action >= 0:
-        a_dev = dev_action
-    else:
-        a_dev = 0
-        best = payoff[base, deviator]
-        for a in range(1, m_dev):
-            v = payoff[base + a * place[deviator], deviator]
-            if v > best:
-                best = v
-                a_dev = a
+    a_dev = _forced_action(payoff, base, place[deviator], m_dev, deviator, dev_action)
     pdev = base + a_dev * place[deviator]
     for i in range(n):
         ir_prices[1, i] += prices[pdev, i]
