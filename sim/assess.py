@@ -29,7 +29,9 @@
 Layers: :func:`prepare_assessment` validates everything (and calibrates, merges and compiles the
 line-ups) before any work; :func:`run_assessment` does the work; :func:`assess` is both. The
 module's ``EXPERIMENT_KIND`` runs one assessment per cell of ``supergame run`` (flat metrics such
-as ``threshold.before``, ``threshold.after``, ``direction``, ``collusive_share.before``).
+as ``threshold.before``, ``threshold.after``, ``direction``, ``collusive_share.before``; the whole
+assessment, :meth:`Assessment.to_dict`, stored under the cell's ``arrays["assessment"]``, from which
+its evidence bundle is written by :func:`sim._assessreport.kind_report`).
 
 Discount factor. The headline discount factor is ``run.delta``; with a random horizon
 (``run.horizon = "random"``) the factor that matters is ``delta * continuation``.
@@ -166,7 +168,8 @@ class MarketSide:
             "asymmetry": self.asymmetry,
         }
         if self.simulation is not None:
-            out["simulation"] = _sim_summary(self.simulation)
+            out["simulation"] = _sim_summary(self.simulation) | {
+                "collusive_by_period": np.asarray(self.simulation.collusive_by_period, dtype=float).tolist()}
         if self.rescaled is not None:
             out["simulation_scaled_noise"] = _sim_summary(self.rescaled)
         return out
@@ -1447,8 +1450,9 @@ def keep_assessments():
     within the block (a list of ``(cell, Assessment)``).
 
     ``supergame assess`` runs its file through :func:`sim.runs.run_experiment` (one cell, run in
-    this process) and writes the evidence bundle from the very computation whose metrics the run
-    folder stores; a cell stores only flat metrics and small arrays.
+    this process) and prints its terminal summary and ``--json`` from the cell's assessment. The
+    evidence bundle is not written from it: it is read from the stored cell (``arrays["assessment"]``,
+    :meth:`Assessment.to_dict`), as ``supergame report`` reads it.
     """
     global _KEPT
     outer, _KEPT = _KEPT, []
@@ -1503,7 +1507,8 @@ def _run_cell(p: PreparedAssessment, ctx):
         m["persistence.difference.se"] = c["persistence"]["difference_se"]
     if a.calibration is not None:
         m["calibration.max_relative_residual"] = a.calibration.max_relative_residual
-    arrays = {}
+    # the whole assessment, which its evidence bundle is read from (sim._assessreport.kind_report)
+    arrays = {"assessment": a.to_dict()}
     for name, s in a.sensitivity.items():
         if name == "delta":
             arrays["sensitivity.delta.values"] = s["values"]
@@ -1534,6 +1539,12 @@ def _describe_cell(doc: dict) -> list[str]:
             f"{mon.get('perception_error', 0.0)}, implementation error {mon.get('implementation_error', 0.0)}"]
 
 
+def _kind_report(rf, bundle):
+    from ._assessreport import kind_report
+
+    return kind_report(rf, bundle)
+
+
 def _make_kind():
     from .kinds import Kind
 
@@ -1548,6 +1559,7 @@ def _make_kind():
                   "collusive_share.after"),
         describe=_describe_cell,
         summary="coordinated effects of a merger: thresholds, partial collusion and persistence before and after",
+        report=_kind_report,
         assumptions=(
             "The pre-merger market is calibrated to observed data under static Nash conduct (or given); the "
             "post-merger market combines the merging firms' products (differentiated goods) or plants (a "

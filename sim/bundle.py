@@ -184,6 +184,12 @@ class Bundle:
     title : str
     caution : str, optional
         Closing caution (default :data:`sim._text.CAUTION`).
+
+    Attributes
+    ----------
+    manifest : dict
+        Entries for ``manifest.json`` added while the content is written (for example by an experiment
+        kind's report); :meth:`write` merges its own ``manifest`` over them (dict entries key by key).
     """
 
     def __init__(self, folder, title: str, caution: str | None = None):
@@ -195,6 +201,7 @@ class Bundle:
         self.title = title
         self.caution = CAUTION if caution is None else caution
         self.blocks: list[_Block] = []
+        self.manifest: dict = {}
         self.files: list[str] = []
         self._names: set = set()
         self.folder.parent.mkdir(parents=True, exist_ok=True)
@@ -371,8 +378,8 @@ class Bundle:
         """Write ``summary.md``, ``summary.html`` and ``manifest.json``; return the bundle's files.
 
         ``manifest`` adds entries to the manifest (for example ``experiment`` with its file and SHA-256,
-        ``command``, ``seeds``, ``started``, ``finished``); package versions, the platform and the
-        SHA-256 of every file of the bundle are filled in.
+        ``command``, ``seeds``, ``started``, ``finished``), over those of :attr:`manifest`; package
+        versions, the platform and the SHA-256 of every file of the bundle are filled in.
         """
         from .runs import package_versions, platform_info
 
@@ -383,8 +390,9 @@ class Bundle:
             raise FileExistsError(f"{self.folder} exists and does not hold an evidence bundle")
         self._write("summary.md", self.markdown().encode("utf-8"))
         self._write("summary.html", self.html().encode("utf-8"))
-        man = {"format": BUNDLE_FORMAT, "title": self.title}
-        man.update(manifest or {})
+        man = {"format": BUNDLE_FORMAT, "title": self.title, **self.manifest}
+        for k, v in (manifest or {}).items():
+            man[k] = {**man[k], **v} if isinstance(v, dict) and isinstance(man.get(k), dict) else v
         man.setdefault("packages", package_versions())
         man.setdefault("platform", platform_info())
         man["caution"] = self.caution

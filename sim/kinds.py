@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import importlib
 import importlib.util
+import json
 import math
 import numbers
 import sys
@@ -103,8 +104,10 @@ class CellResult:
         Flat numbers (``nan`` when undefined). Conventions: ``name.se``, ``name.low``, ``name.high``
         for the standard error and confidence interval of ``name``; ``analytic.name`` for the analytic
         prediction of ``name``; per-firm values as ``name.firm1``, ``name.firm2``, ...
-    arrays : dict of str to array-like
-        Optional small arrays for figures (curves over periods, survival curves).
+    arrays : dict of str to array-like or dict
+        Optional small arrays for figures (curves over periods, survival curves); a value that is a
+        dict is a JSON document the kind's ``report`` reads (plain data: numbers, strings, booleans,
+        None, lists and dicts; nan and inf are stored as None, dict keys come back sorted).
     """
 
     metrics: dict
@@ -150,7 +153,8 @@ class Kind:
         cell's metrics and arrays, ``run.meta``); ``bundle`` the :class:`sim.bundle.Bundle` being
         written. Everything must be read from the stored rows, never recomputed. The results table,
         failed cells, how to reproduce the numbers, the assumptions and the caution follow as for every
-        kind.
+        kind. It may return a list of lines added to "Reproducing these numbers" (None: none), set
+        ``bundle.title`` and add entries to ``bundle.manifest`` (merged with the report's own).
     """
 
     name: str
@@ -233,9 +237,17 @@ def clean_metrics(metrics: Mapping) -> dict:
 
 
 def clean_arrays(arrays: Mapping) -> dict:
-    """Arrays as nested lists of floats (nan kept), for JSON."""
+    """Arrays as nested lists of floats (nan kept), for JSON; a dict as its plain JSON data (nan and inf
+    as None, see :func:`sim._jsonutil.jsonable`)."""
+    from ._jsonutil import jsonable
+
     out = {}
     for k, v in arrays.items():
+        if isinstance(v, Mapping):
+            doc = jsonable(dict(v))
+            json.dumps(doc, allow_nan=False)  # what JSON cannot hold fails in the cell, not in the store
+            out[str(k)] = doc
+            continue
         a = np.asarray(v, dtype=float)
         out[str(k)] = a.tolist()
     return out

@@ -242,9 +242,10 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
     desc = exp.description or leading_comment(exp.text or "")
     b.paragraph(f"Experiment `{exp.name}` (kind `{exp.kind}`), run folder `{folder.name}`; {counts['total']} cell"
                 f"{'s' if counts['total'] != 1 else ''}, {counts['ok']} finished, {counts['failed']} failed.")
+    more = []  # the kind's own lines on reproducing its numbers
     if kind.report is not None:
         # the kind's own account of its results, read from the stored rows; the closing sections follow
-        kind.report(rf, b)
+        more = list(kind.report(rf, b) or [])
         b.table("results", header, body, show=False)
         b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
                     f"(also `{CSV_FILE}` in the run folder).", note=True)
@@ -366,6 +367,7 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
         f"{_iso(max(a['finished'] or 0 for a in attempts)) if attempts else '-'} (UTC); cell compute time "
         f"{fmt_num(sum(r.seconds or 0.0 for r in rows), 1)} s in total.",
         "Software versions and platform: `manifest.json`.",
+        *more,
         *[f"Note: {n}." for n in code_notes(attempts)],
     ])
     b.code(f"supergame run {EXPERIMENT_COPY}          # the same numbers, in a new run folder\n"

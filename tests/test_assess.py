@@ -415,3 +415,32 @@ def test_sensitivity_ranges_take_the_sweep_syntax():
 
     headers, rows = assessment_tables(b)["sensitivity_delta"]
     assert headers[1] == "label" and [r[1] for r in rows] == ["impatient", "patient"]
+
+
+def test_presentation_reads_the_stored_document():
+    """Tables, summary and terminal text are read from the assessment's JSON data as a cell stores it
+    (keys sorted, nan and inf as null): the same as from the Assessment itself, the sensitivity sections
+    in their fixed order whatever the order of the keys, and a largest-to-smallest ratio over a zero
+    cost shown as inf again (JSON holds no inf)."""
+    from sim._assessreport import assessment_tables, render_text, summary_blocks
+    from sim.config import canonical_json
+    from sim.kinds import clean_arrays
+
+    d = MarketData("logit", prices=[4.2, 3.9, 4.6], shares=[0.25, 0.2, 0.15], size=1000.0, margin=0.4)
+    a = assess(d, Merger([2, 3]), simulate=False, deltas=(0.9,), sensitivity={"size": [800.0, 2000.0],
+                                                                               "delta": [0.5, 0.9]})
+    stored = json.loads(canonical_json(clean_arrays({"assessment": a.to_dict()})))["assessment"]
+    assert list(stored["sensitivity"]) == ["delta", "size"]
+    assert assessment_tables(stored) == assessment_tables(a)
+    blocks = summary_blocks(stored)
+    assert blocks == summary_blocks(a)
+    shown = [b[1] for b in blocks if b[0] == "table"]
+    assert shown.index("sensitivity_size") < shown.index("sensitivity_delta")
+    assert render_text(stored, "x") == render_text(a, "x")
+
+    z = assess(Market(LinearDemand(100, 1), cost=[0.0, 10.0, 10.0]), Merger([2, 3]), simulate=False, deltas=())
+    assert z.before.asymmetry["cost_ratio"] == math.inf
+    doc = json.loads(dumps(z.to_dict()))
+    assert doc["before"]["asymmetry"]["cost_ratio"] is None
+    before, after = assessment_tables(doc)["asymmetry"][1]
+    assert before[4] == math.inf and after[4] == math.inf

@@ -6,6 +6,7 @@ file gives the same bytes, and the assessment runs as an experiment kind under `
 import csv
 import hashlib
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -161,7 +162,19 @@ def test_same_file_same_bytes(tmp_path, capsys):
     assert _run(["assess", str(f), "--out", str(b)], capsys)[0] == 0
     ma = json.loads((a / "report" / "manifest.json").read_text())["files"]
     mb = json.loads((b / "report" / "manifest.json").read_text())["files"]
-    assert ma == mb
+    # the summaries name their run (its folder, when it ran); everything else is the same bytes
+    summaries = {"summary.md", "summary.html"}
+    assert set(ma) == set(mb) and {k: v for k, v in ma.items() if k not in summaries} == {
+        k: v for k, v in mb.items() if k not in summaries}
+
+    def unnamed(folder, rel):
+        text = (folder / "report" / rel).read_text().replace(str(folder), "RUN_DIR")
+        for name in (f"`{folder.name}`", f"<code>{folder.name}</code>"):
+            text = text.replace(f"run folder {name}", "run folder RUN_DIR")
+        return re.sub(r"Started \S+, finished \S+ \(UTC\); cell compute time [0-9.]+ s", "", text)
+
+    for rel in summaries:
+        assert unnamed(a, rel) == unnamed(b, rel), rel
     assert (a / "results.csv").read_bytes() == (b / "results.csv").read_bytes()
 
 
@@ -214,6 +227,10 @@ def test_a_failed_assessment_is_one_line_exit_1_and_recorded(tmp_path, capsys, m
     assert code == 1 and stdout == "" and err.count("\n") == 1
     assert "the stage game could not be solved" in err and str(out) in err
     assert (out / "results.sqlite").is_file() and not (out / "report").exists()
+    # the run's report says so, read from the stored (failed) cell
+    assert _run(["report", str(out)], capsys)[0] == 0
+    md = (out / "report" / "summary.md").read_text()
+    assert "The assessment failed: no results to report" in md and "the stage game could not be solved" in md
 
 
 @pytest.mark.parametrize("monitoring, extra, key, words", [
@@ -308,10 +325,17 @@ punishments = []
 """
     f = _write(tmp_path, text)
     out = tmp_path / "run"
-    code, _, err = _run(["run", str(f), "--out", str(out), "--workers", "1"], capsys)
+    code, _, err = _run(["run", str(f), "--out", str(out), "--workers", "1", "--report"], capsys)
     assert code == 0, err
     rows = list(csv.DictReader((out / "results.csv").open()))
     assert [r["status"] for r in rows] == ["ok", "ok"]
+    # the report: every cell's conclusion, read from the stored cells, and the thresholds along the sweep
+    cells = list(csv.DictReader((out / "report" / "tables" / "cells.csv").open()))
+    assert [c["cell"] for c in cells] == ["1", "2"] and {c["effect of the merger"] for c in cells} == {"easier"}
+    for c, r in zip(cells, rows, strict=True):
+        assert float(c["threshold before"]) == float(r["threshold.before"])
+        assert float(c["threshold after"]) == float(r["threshold.after"])
+    assert (out / "report" / "figures" / "thresholds-over-sweep.png").is_file()
     for r in rows:
         n = int(float(r["market.n_firms"]))
         assert float(r["threshold.before"]) == pytest.approx((n + 1) ** 2 / (n * n + 6 * n + 1), rel=1e-12)
@@ -436,3 +460,54 @@ def test_shipped_experiment_end_to_end(tmp_path, capsys):
         assert (a[0] > b[1]) if k > 0 else (a == b == [1.0, 1.0])
     assert (out / "report" / "summary.html").is_file()
     assert (out / "report" / "figures" / "sensitivity_margin.png").is_file()
+
+
+def _files(folder: Path) -> dict:
+    return {p.relative_to(folder).as_posix(): p.read_bytes() for p in folder.rglob("*") if p.is_file()}
+
+
+def test_the_bundle_is_read_from_the_stored_cell(tmp_path, capsys):
+    """The assessment's bundle is a function of its stored cell: supergame report RUN_DIR --out OTHER
+    writes the bundle supergame assess wrote, every file with the same bytes (summary, tables, figures
+    and assessment.json; the manifests differ only in the record of the run folder's data files, which
+    a bundle outside the folder does not keep); supergame report RUN_DIR writes it again unchanged and
+    the folder still verifies (the exports rebuilt from the store, nan and None included); supergame
+    run FILE --report gives the same tables, figures and assessment.json."""
+    f = _write(tmp_path, SMALL)
+    run_dir, other = tmp_path / "run", tmp_path / "other"
+    assert _run(["assess", str(f), "--out", str(run_dir)], capsys)[0] == 0
+    first = _files(run_dir / "report")
+    code, _, err = _run(["report", str(run_dir), "--out", str(other)], capsys)
+    assert code == 0, err
+    again = _files(other)
+    assert set(again) == set(first)
+    assert {rel for rel in first if rel.startswith("figures/")} >= {"figures/thresholds.png", "figures/persistence.png",
+                                                                    "figures/sensitivity_size.pdf"}
+    for rel in first:
+        if rel != "manifest.json":
+            assert again[rel] == first[rel], rel
+    ma, mb = json.loads(first["manifest.json"]), json.loads(again["manifest.json"])
+    assert set(ma.pop("run_data")) == {"../results.sqlite", "../results.csv", "../results.parquet", "../arrays.json"}
+    assert mb.pop("run_data") == {} and ma == mb
+    assert ma["title"] == "Coordinated effects of a merger: small-merger"
+    assert ma["seeds"]["streams"]["simulation after"] == [0, 1]
+    # the stored document is the bundle's assessment.json
+    stored = json.loads((run_dir / "arrays.json").read_text())["cells"][0]["arrays"]["assessment"]
+    assert json.loads(first["assessment.json"]) == stored
+    md = first["summary.md"].decode()
+    assert md.count("## Reproducing these numbers") == 1 and "`supergame report RUN_DIR` this bundle again" in md
+    assert md.index("Caution: ") < md.index("## Conclusion under the stated assumptions")
+
+    assert _run(["report", str(run_dir)], capsys)[0] == 0
+    assert _files(run_dir / "report") == first
+    code, out, _ = _run(["verify", str(run_dir)], capsys)
+    assert code == 0 and "arrays.json is what the store gives, byte for byte" in out
+    assert "metrics reproduce identically" in out
+
+    r = tmp_path / "r"
+    assert _run(["run", str(f), "--out", str(r), "--workers", "1", "--quiet", "--report"], capsys)[0] == 0
+    via_run = _files(r / "report")
+    assert set(via_run) == set(first)
+    for rel in first:
+        if rel.startswith(("tables/", "figures/")) or rel == "assessment.json":
+            assert via_run[rel] == first[rel], rel

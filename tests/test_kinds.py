@@ -213,3 +213,17 @@ def test_an_opportunist_that_never_punishes_plays_no_grim_trigger(after, grim):
         c, dv, n = (np.asarray(x) for x in (st.collusive.firm_profits, st.deviation_profits, st.nash.firm_profits))
         assert res.metrics["analytic.critical_delta.grim"] == pytest.approx(float(np.max((dv - c) / (dv - n))),
                                                                             rel=1e-9)
+
+
+def test_arrays_may_hold_a_json_document():
+    """A cell's arrays may hold a document for its kind's report (a dict): plain JSON data, numpy values
+    as Python numbers, nan and inf as None, strings and nesting kept; what JSON cannot hold fails in the
+    cell. Number arrays stay lists of floats with nan."""
+    from sim.kinds import clean_arrays
+
+    out = clean_arrays({"doc": {"a": np.float64(0.5), "b": [math.nan, math.inf, None, np.int64(2)],
+                                "c": {"s": "text", "t": (True, np.bool_(False))}}, "x": [1, math.nan]})
+    assert out["doc"] == {"a": 0.5, "b": [None, None, None, 2], "c": {"s": "text", "t": [True, False]}}
+    assert type(out["doc"]["b"][3]) is int and out["x"][0] == 1.0 and math.isnan(out["x"][1])
+    with pytest.raises(TypeError):
+        clean_arrays({"doc": {"market": object()}})

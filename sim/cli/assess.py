@@ -30,14 +30,13 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 def run(args) -> int:
     import sys
-    import time
 
-    from .._assessreport import render_text, write_assessment_bundle
+    from .._assessreport import render_text
     from .._jsonutil import dumps
     from ..assess import assessment_from_dict, keep_assessments
     from ..config import load_experiment
     from ..errors import SolverError
-    from ..runs import EXPERIMENT_COPY, REPORT_DIR, run_experiment, write_manifest
+    from ..runs import run_experiment
     from ..tomlfile import read_toml
 
     # the assessment's own reading first (kind, one assessment, no [sweep] or [report]), then the
@@ -46,20 +45,17 @@ def run(args) -> int:
     exp = load_experiment(args.file)
     argv = (["supergame", *sys.argv[1:]] if sys.argv and sys.argv[0].endswith(("supergame", "__main__.py"))
             else ["supergame", "assess", args.file])
+    # the evidence bundle is the run's report (sim.report.write_report), read from the stored cell as
+    # supergame report RUN_DIR reads it, and recorded in the run's manifest; the terminal output is the
+    # cell's assessment, kept as it was computed
     with keep_assessments() as kept:
-        start = time.time()
-        s = run_experiment(exp, args.out, command=argv)
-        end = time.time()
+        s = run_experiment(exp, args.out, command=argv, report=True)
     if s.failed_cells:
         raise SolverError(f"the assessment failed ({s.failed_cells[0][1]}); the run folder {s.folder} records it")
-    if len(kept) != 1:  # pragma: no cover - one cell, run in this process
-        raise RuntimeError(f"expected one assessment from the run, got {len(kept)}")
+    if len(kept) != 1 or s.report is None:  # pragma: no cover - one cell, run in this process
+        raise RuntimeError(f"expected one assessment and its report from the run, got {len(kept)}")
     result = kept[0][1]
-    bundle = write_assessment_bundle(s.folder / REPORT_DIR, result, s.folder / EXPERIMENT_COPY, exp.name, start, end,
-                                     argv, source=args.file, key=(kept[0][0],))
-    # the run's manifest now covers the bundle's files as well, so that supergame verify checks them
-    # (every other file must still be as the manifest recorded it)
-    write_manifest(s.folder, rewritten=(f"{REPORT_DIR}/",))
+    bundle = s.report
     if args.json:
         out = result.to_dict()
         out["run_folder"] = str(s.folder)
