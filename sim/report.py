@@ -352,7 +352,8 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
         frows = [[r.number, "; ".join(f"{p} = {lab}" for p, lab in r.labels.items()), r.error or ""] for r in failed]
         b.table("failed", ["cell", "swept values", "error"], frows, caption=f"{len(failed)} cells failed")
     else:
-        b.paragraph(f"None: all {counts['total']} cells finished without error.")
+        b.paragraph("None: the cell finished without error." if counts["total"] == 1
+                    else f"None: all {counts['total']} cells finished without error.")
 
     b.heading("Reproducing these numbers")
     seed = meta.get("seed")
