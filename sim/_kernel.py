@@ -31,6 +31,12 @@ chunk (length histograms ``H_*`` of collusive spells, price wars and punishment 
 punishment periods -- that ended or were cut off by the horizon, and per-period counts of collusive
 replications) are added to what the arrays already hold, so that the
 driver can call the kernel batch after batch.
+
+Speed: the per-period helpers (:func:`strategies._step.choose_level`, :func:`~strategies._step.bad_signal`,
+:func:`~strategies._step.next_state`, :func:`sim._stagecore.evaluate`, :func:`sim._rng.next_normal_zig`) are
+declared ``inline="always"``, so that the period loop below has no out-of-line calls with array
+arguments; the kernel stays generic (any line-up, any market code) and computes exactly what the
+plain-Python twin computes.
 """
 
 from __future__ import annotations

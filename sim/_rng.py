@@ -138,7 +138,7 @@ _ZIG_INV_R = 1.0 / _ZIG_R
 _MASK52 = 0x000FFFFFFFFFFFFF
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def next_normal_zig(s):
     """Standard normal by the 256-layer ziggurat (see the module notes); the stream advances by a
     variable number of draws (one in about 99 % of calls)."""
