@@ -483,8 +483,8 @@ def bench_section(opts) -> dict:
       sizes separate the cost per cell (the slope: target < 5 ms) from the fixed cost of a run (run folder,
       exports, manifest); the all-in cost per cell of the larger sweep is reported too. The same with 2
       worker processes gives the cost per cell of the parallel path.
-    * Speed-up: a CPU-bound sweep (trigger-price strategies under demand shocks, each cell about half a
-      second on one core, some 15 s in all) with 1 and with 2 local workers, each in a fresh process as
+    * Speed-up: a CPU-bound sweep (trigger-price strategies under demand shocks, each cell about a
+      second on one core, some 25 s in all) with 1 and with 2 local workers, each in a fresh process as
       ``supergame run`` runs it; target >= 1.7. Both must give the same results file. The ratio includes
       the fixed cost of starting the workers (each loads the compiled kernels, about half a second).
     """
@@ -496,7 +496,7 @@ def bench_section(opts) -> dict:
     quick = bool(getattr(opts, "quick", False))
     repeat = max(1, int(getattr(opts, "repeat", 1)))
     sizes = (50, 300) if quick else (100, 1000)
-    heavy = {"n": 4, "periods": 500, "reps": 200} if quick else {"n": 24, "periods": 6000, "reps": 1000}
+    heavy = {"n": 4, "periods": 500, "reps": 200} if quick else {"n": 24, "periods": 15000, "reps": 1000}
 
     def load(text):
         return experiment_from_dict(tomllib.loads(text), text=text, source="bench")
