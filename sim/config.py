@@ -823,6 +823,11 @@ def experiment_from_dict(doc: dict, *, text: str | None = None, source: str | No
             raise _sweep_error(exc, cell, swept, base) from None
         if first is None:
             first = prepared
+    if base_error is not None and base_error.key and canonical_path(base_error.key) in swept \
+            and _lookup(base, canonical_path(base_error.key)) is not _MISSING:
+        # the whole file is validated: a value that the sweep replaces in every cell must be valid too
+        raise InputError(base_error.key, f"{base_error.message} (the file's own value, which [sweep] replaces "
+                                         "in every cell; give a valid one or leave it out)") from None
     names = tuple(kind.metric_names(first)) if kind.metric_names is not None else ()
     exp = Experiment(**{**exp.__dict__, "metric_names": names})
     _check_report_metrics(exp, kind)

@@ -148,6 +148,17 @@ def test_out_of_range_in_the_file_itself_is_reported_plainly():
     assert e.key == "run.delta" and "2.0" in e.message
 
 
+def test_a_value_the_sweep_replaces_must_be_valid_too():
+    # the whole file is validated, not only the cells: a bad value under a sweep of the same path is
+    # named as the file's own; leaving it out is fine
+    d = doc(sweep={"run.delta": [0.9, 0.95]})
+    d["run"]["delta"] = 1.5
+    e = error_of(d)
+    assert e.key == "run.delta" and "1.5" in e.message and "[sweep] replaces" in e.message
+    d["run"].pop("delta")
+    assert experiment_from_dict(d).n_cells == 2
+
+
 @pytest.mark.parametrize("path, fragment", [
     ("monitoring.sigmaa", "does not exist"),
     ("strategies.2.length", "does not exist"),
