@@ -360,7 +360,7 @@ def alive_by_period(lengths: np.ndarray, periods: int) -> np.ndarray:
 RUN_CONSTRAINTS = {
     "periods": Integer(1, 1_000_000_000),
     "replications": Integer(1, 1_000_000_000),
-    "delta": Real(0, 1, closed="right"),
+    "delta": Real(0, 1, closed="neither"),
     "seed": Integer(0, 2**63 - 1),
     "horizon": Options("fixed", "random"),
     "continuation": Real(0, 1, closed="right"),
@@ -401,8 +401,9 @@ def simulate(market, lineup, monitoring=None, periods: int = 1000, replications:
     periods : int
         Number of periods (the cap of a random horizon).
     replications : int
-    delta : float in (0, 1]
-        Discount factor of payoffs.
+    delta : float in (0, 1)
+        Discount factor of payoffs (with a random horizon, the continuation probability discounts
+        on top of it).
     seed : int
     horizon : {"fixed", "random"}
         ``random``: the game ends after each period with probability ``1 - continuation``.

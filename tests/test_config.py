@@ -138,7 +138,7 @@ def test_value_out_of_range_in_one_cell_names_the_sweep_path_cell_range_and_valu
     e = error_of(doc(sweep={"run.delta": [0.9, 1.5]}))
     assert e.key == "sweep.run.delta"
     # the second cell, counted from 1 as everywhere users see cells
-    assert "cell 2 (run.delta = 1.5)" in e.message and "(0, 1]" in e.message and "1.5" in e.message
+    assert "cell 2 (run.delta = 1.5)" in e.message and "(0, 1)" in e.message and "1.5" in e.message
 
 
 def test_out_of_range_in_the_file_itself_is_reported_plainly():

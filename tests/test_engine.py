@@ -259,14 +259,16 @@ def test_random_horizon_lengths_are_truncated_geometric():
     """The game ends after each period with probability 1 - c: the number of periods is geometric,
     capped at run.periods, with mean (1 - c^H) / (1 - c) (the geometric distribution)."""
     c, H, R = 0.97, 200, 3000
-    res = simulate(TRIOPOLY, [S.AlwaysCollude()] * 3, periods=H, replications=R, delta=1.0, horizon="random",
+    d = 0.99
+    res = simulate(TRIOPOLY, [S.AlwaysCollude()] * 3, periods=H, replications=R, delta=d, horizon="random",
                    continuation=c, seed=9, baseline=False)
     L = res.periods
     mean = (1 - c**H) / (1 - c)
     assert abs(L.mean() - mean) < 3 * L.std(ddof=1) / math.sqrt(R)
     assert L.min() >= 1 and L.max() <= H
-    # delta = 1: the discounted sum is the plain sum of profits
-    np.testing.assert_allclose(res.discounted[:, 0], 675.0 * L, rtol=1e-12)
+    # the discounted sum over the L periods played: 675 (1 - d^L) / (1 - d), the geometric sum
+    np.testing.assert_allclose(res.discounted[:, 0], 675.0 * (1 - d**L) / (1 - d), rtol=1e-11)
+    np.testing.assert_allclose(res.profits[:, 0], 675.0, rtol=1e-12)  # the mean per period
 
 
 # ---- validation --------------------------------------------------------------------------------
