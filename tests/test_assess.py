@@ -224,7 +224,7 @@ _DOC = {
     ({"assess": {"sensitivity": {"wind": [1, 2]}}}, "assess.sensitivity.wind", "unknown key"),
     ({"collusion": {"agreement": "given"}}, "collusion.agreement", "do not carry over"),
     ({"run": {"speed": 1}}, "run.speed", "unknown key"),
-    ({"run": {"delta": 1.5}}, "run.delta", "(0, 1]"),
+    ({"run": {"delta": 1.5}}, "run.delta", "(0, 1)"),
     ({"monitoring": {"signal": "price"}}, "strategies", "price-watching"),
     ({"merger": {"firms": [1, 7]}}, "merger.firms", "firm 7 does not exist"),
     ({"data": {"demand": "logit"}}, "data", "not both"),
