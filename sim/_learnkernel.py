@@ -364,6 +364,34 @@ def _forced_action(payoff, base, step, m_dev, deviator, dev_action):
 
 
 @njit(cache=True, nogil=True)
+def _add_profile(out_prices, out_profits, row, p, prices, payoff):
+    """Add profile ``p``'s prices and profits to row ``row`` of the response arrays."""
+    for i in range(out_prices.shape[1]):
+        out_prices[row, i] += prices[p, i]
+        out_profits[row, i] += payoff[p, i]
+
+
+@njit(cache=True, nogil=True)
+def _follow(y, tau0, stop, G, prices, out_prices, out_profits, deviator, d_dev, horizon, v, w):
+    """Greedy play from system state ``y`` in periods ``tau0 .. stop-1`` (counted from the deviation
+    period, 1). Each period's profile is added to its row of the response arrays (rows beyond them are
+    not recorded); in periods ``tau <= horizon`` the deviator's profit, weighted by ``w`` and then
+    ``w * d_dev``, ``w * d_dev**2``, ..., is added to ``v``, which is returned (in this order, so that the
+    plain-Python twin's sums are matched bit for bit)."""
+    payoff = G[16]
+    rows = out_prices.shape[0]
+    for tau in range(tau0, stop):
+        p = _profile(y, G)
+        if tau < rows:
+            _add_profile(out_prices, out_profits, tau, p, prices, payoff)
+        if tau <= horizon:
+            v += w * payoff[p, deviator]
+            w *= d_dev
+        y = _after(y, p, G)
+    return v
+
+
+@njit(cache=True, nogil=True)
 def _analyse(x_final, G, actions, prices, deviator, dev_action, d_dev, n_points, cycle_out, lim_actions, lim_prices,
              lim_profits, ir_prices, ir_profits, cf_prices, cf_profits, info):
     """The limit path from the final state and the impulse response to a one-period deviation.
@@ -435,11 +463,8 @@ def _analyse(x_final, G, actions, prices, deviator, dev_action, d_dev, n_points,
     for _c in range(points):
         # the period before the deviation: the last profile of the history
         last = (x % S) % M
-        for i in range(n):
-            ir_prices[0, i] += prices[last, i]
-            ir_profits[0, i] += payoff[last, i]
-            cf_prices[0, i] += prices[last, i]
-            cf_profits[0, i] += payoff[last, i]
+        _add_profile(ir_prices, ir_profits, 0, last, prices, payoff)
+        _add_profile(cf_prices, cf_profits, 0, last, prices, payoff)
         # the deviation period: the others play greedily in x, the deviator is forced
         prof = _profile(x, G)
         base = prof - ((prof // place[deviator]) % m_dev) * place[deviator]
@@ -447,24 +472,11 @@ def _analyse(x_final, G, actions, prices, deviator, dev_action, d_dev, n_points,
         if first_action < 0:
             first_action = a_dev
         pdev = base + a_dev * place[deviator]
-        for i in range(n):
-            ir_prices[1, i] += prices[pdev, i]
-            ir_profits[1, i] += payoff[pdev, i]
+        _add_profile(ir_prices, ir_profits, 1, pdev, prices, payoff)
         y0 = _after(x, pdev, G)
-        y = y0
-        for tau in range(2, T2):
-            p = _profile(y, G)
-            for i in range(n):
-                ir_prices[tau, i] += prices[p, i]
-                ir_profits[tau, i] += payoff[p, i]
-            y = _after(y, p, G)
-        w = x
-        for tau in range(1, T2):
-            p = _profile(w, G)
-            for i in range(n):
-                cf_prices[tau, i] += prices[p, i]
-                cf_profits[tau, i] += payoff[p, i]
-            w = _after(w, p, G)
+        # the responses only (horizon -1: no value; the exact values follow)
+        _follow(y0, 2, T2, G, prices, ir_prices, ir_profits, deviator, d_dev, -1, 0.0, 1.0)
+        _follow(x, 1, T2, G, prices, cf_prices, cf_profits, deviator, d_dev, -1, 0.0, 1.0)
         # exact discounted value of deviating versus not
         v_dev = payoff[pdev, deviator] + d_dev * _value(y0, deviator, d_dev, G)
         v_no = _value(x, deviator, d_dev, G)
@@ -534,15 +546,11 @@ def _branch(x, G, prices, deviator, dev_action, d_dev, horizon, ir_prices, ir_pr
     ``[value with deviation, value without, forced action]``.
     """
     radix, place, M, S, payoff, rng = G[2], G[3], G[5], G[6], G[16], G[22]
-    n = place.size
     T2 = ir_prices.shape[0]
     length = max(horizon, T2 - 1)
     last = (x % S) % M
-    for i in range(n):
-        ir_prices[0, i] += prices[last, i]
-        ir_profits[0, i] += payoff[last, i]
-        cf_prices[0, i] += prices[last, i]
-        cf_profits[0, i] += payoff[last, i]
+    _add_profile(ir_prices, ir_profits, 0, last, prices, payoff)
+    _add_profile(cf_prices, cf_profits, 0, last, prices, payoff)
     for k in range(4):
         rng[k] = start[k]
     prof = _profile(x, G)
@@ -550,37 +558,12 @@ def _branch(x, G, prices, deviator, dev_action, d_dev, horizon, ir_prices, ir_pr
     base = prof - ((prof // place[deviator]) % m_dev) * place[deviator]
     a_dev = _forced_action(payoff, base, place[deviator], m_dev, deviator, dev_action)
     pdev = base + a_dev * place[deviator]
-    for i in range(n):
-        ir_prices[1, i] += prices[pdev, i]
-        ir_profits[1, i] += payoff[pdev, i]
-    v_dev = payoff[pdev, deviator]
-    w = d_dev
-    y = _after(x, pdev, G)
-    for tau in range(2, length + 1):
-        p = _profile(y, G)
-        if tau < T2:
-            for i in range(n):
-                ir_prices[tau, i] += prices[p, i]
-                ir_profits[tau, i] += payoff[p, i]
-        if tau <= horizon:
-            v_dev += w * payoff[p, deviator]
-            w *= d_dev
-        y = _after(y, p, G)
+    _add_profile(ir_prices, ir_profits, 1, pdev, prices, payoff)
+    v_dev = _follow(_after(x, pdev, G), 2, length + 1, G, prices, ir_prices, ir_profits, deviator, d_dev, horizon,
+                    payoff[pdev, deviator], d_dev)
     for k in range(4):
         rng[k] = start[k]
-    v_no = 0.0
-    w = 1.0
-    y = x
-    for tau in range(1, length + 1):
-        p = _profile(y, G)
-        if tau < T2:
-            for i in range(n):
-                cf_prices[tau, i] += prices[p, i]
-                cf_profits[tau, i] += payoff[p, i]
-        if tau <= horizon:
-            v_no += w * payoff[p, deviator]
-            w *= d_dev
-        y = _after(y, p, G)
+    v_no = _follow(x, 1, length + 1, G, prices, cf_prices, cf_profits, deviator, d_dev, horizon, 0.0, 1.0)
     out[0] = v_dev
     out[1] = v_no
     out[2] = a_dev
