@@ -8,7 +8,7 @@ import argparse
 import json
 from types import SimpleNamespace
 
-from sim.sweep import bench_section
+from sim.runner.sweep import bench_section
 
 if __name__ == "__main__":
     p = argparse.ArgumentParser()

@@ -11,41 +11,42 @@ import importlib
 __version__ = "0.1.0"
 
 _EXPORTS = {
-    "demand": ["DifferentiatedDemand", "IsoelasticDemand", "LinearDemand", "LogitDemand"],
-    "market": ["Market", "MarketSpec", "market_from_dict"],
-    "errors": ["InputError", "SolverError", "SupergameError"],
-    "equilibrium": [
+    "models.demand": ["DifferentiatedDemand", "IsoelasticDemand", "LinearDemand", "LogitDemand"],
+    "models.market": ["Market", "MarketSpec", "market_from_dict"],
+    "core.errors": ["InputError", "SolverError", "SupergameError"],
+    "theory.equilibrium": [
         "Outcome", "StageGame", "best_deviation", "best_response", "collusive_outcome", "minmax",
         "stage_game", "static_nash",
     ],
-    "thresholds": [
+    "theory.thresholds": [
         "PartialCollusion", "SchemeThreshold", "StickCarrot", "ThresholdReport", "finite_threshold",
         "grim_threshold", "partial_collusion", "stick_and_carrot", "threshold_sensitivity",
         "critical_discount_factors",
     ],
-    "trigger_price": [
+    "theory.trigger_price": [
         "TriggerPriceScheme", "price_war_statistics", "trigger_price_equilibrium", "trigger_price_scheme",
     ],
-    "learning": ["LearningResult", "Lineup", "compile_lineup", "learn", "learning_from_dict"],
-    "engine": ["Game", "RawRun", "compile_game", "prepare_game", "run_game", "simulate", "simulation_from_dict",
-               "stage_levels"],
-    "monitoring": ["Monitoring", "monitoring_from_dict"],
-    "metrics": ["Estimate", "SimulationResult", "Survival", "kaplan_meier", "mean_estimate", "normal_quantile",
-                "ratio_estimate", "wilson_estimate"],
-    "baseline": ["analytic_baseline", "first_breakdown_distribution", "trigger_price_chain"],
-    # the function sim.tournament.tournament is not exported: its name is the module's
-    "tournament": ["Entrant", "TournamentPlan", "TournamentResult", "prepare_tournament", "run_tournament",
-                   "tournament_from_dict"],
-    "evolution": ["EvolutionResult", "PayoffTable", "ReplicatorPath", "evolve", "fixation_probabilities",
-                  "replicator", "simulate_fixation"],
-    "calibration": ["Calibration", "MarketData", "calibrate", "data_from_dict"],
-    "merger": ["Merger", "MergerResult", "merge", "merger_from_dict"],
-    "assess": ["Assessment", "MarketSide", "assess", "assessment_from_dict", "asymmetry", "symmetric_counterpart"],
-    "config": ["Experiment", "experiment_from_dict", "load_experiment"],
-    "kinds": ["CellContext", "CellResult", "Kind", "register_kind"],
-    "runs": ["RunFolder", "open_run", "run_experiment", "verify_run"],
-    "report": ["write_report"],
-    "bundle": ["Bundle"],
+    "learning.session": ["LearningResult", "Lineup", "compile_lineup", "learn", "learning_from_dict"],
+    "simulation.engine": ["Game", "RawRun", "compile_game", "prepare_game", "run_game", "simulate",
+                          "simulation_from_dict", "stage_levels"],
+    "models.monitoring": ["Monitoring", "monitoring_from_dict"],
+    "simulation.results": ["Estimate", "SimulationResult", "Survival", "kaplan_meier", "mean_estimate",
+                           "normal_quantile", "ratio_estimate", "wilson_estimate"],
+    "simulation.baseline": ["analytic_baseline", "first_breakdown_distribution", "trigger_price_chain"],
+    # the function sim.tournament.roundrobin.tournament is not exported: its name is the module's
+    "tournament.roundrobin": ["Entrant", "TournamentPlan", "TournamentResult", "prepare_tournament",
+                              "run_tournament", "tournament_from_dict"],
+    "tournament.evolution": ["EvolutionResult", "PayoffTable", "ReplicatorPath", "evolve",
+                             "fixation_probabilities", "replicator", "simulate_fixation"],
+    "antitrust.calibration": ["Calibration", "MarketData", "calibrate", "data_from_dict"],
+    "antitrust.merger": ["Merger", "MergerResult", "merge", "merger_from_dict"],
+    "antitrust.assess": ["Assessment", "MarketSide", "assess", "assessment_from_dict", "asymmetry",
+                         "symmetric_counterpart"],
+    "runner.experiment": ["Experiment", "experiment_from_dict", "load_experiment"],
+    "runner.kinds": ["CellContext", "CellResult", "Kind", "register_kind"],
+    "runner.runs": ["RunFolder", "open_run", "run_experiment", "verify_run"],
+    "evidence.report": ["write_report"],
+    "evidence.bundle": ["Bundle"],
 }
 _WHERE = {name: mod for mod, names in _EXPORTS.items() for name in names}
 __all__ = sorted(_WHERE)

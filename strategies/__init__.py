@@ -2,10 +2,10 @@
 
 Public names: the shipped automata (:mod:`strategies.automata`), the base class and compiler
 (:mod:`strategies.base`), and the registry (:mod:`strategies.registry`). The compiled array layout and
-the numba functions that step an automaton are documented in :mod:`strategies._step`.
+the numba functions that step an automaton are documented in :mod:`strategies.step`.
 """
 
-from .automata import (
+from strategies.automata import (
     AlwaysCollude,
     AlwaysCompete,
     FinitePunishment,
@@ -18,8 +18,8 @@ from .automata import (
     TriggerPrice,
     WinStayLoseShift,
 )
-from .base import LEVEL_NAMES, Automaton, CompiledLineup, StageLevels, compile_lineup, validate_table
-from .registry import LAZY, STRATEGIES, lineup_from_tables, register, strategy_class, strategy_from_dict
+from strategies.base import LEVEL_NAMES, Automaton, CompiledLineup, StageLevels, compile_lineup, validate_table
+from strategies.registry import LAZY, STRATEGIES, lineup_from_tables, register, strategy_class, strategy_from_dict
 
 __all__ = [
     "LAZY",

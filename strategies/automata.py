@@ -29,10 +29,9 @@ automaton                a user-defined table of states (:class:`TableAutomaton`
 
 from __future__ import annotations
 
-from sim._params import Integer, Options, Real, optional
-from sim.errors import InputError
-
-from .base import Automaton, Either, Level, StateTableConstraint
+from sim.core.errors import InputError
+from sim.core.params import Integer, Options, Real, optional
+from strategies.base import Automaton, Either, Level, StateTableConstraint
 
 __all__ = [
     "AlwaysCollude",

@@ -1,6 +1,6 @@
 """Automaton strategies: states, an action per state, a next state per signal; compiled to arrays.
 
-A strategy is a :class:`~sim._params.Parametrized` object whose :meth:`Automaton.states` returns its
+A strategy is a :class:`~sim.core.params.Parametrized` object whose :meth:`Automaton.states` returns its
 state table as plain data (the same structure an experiment file gives for ``strategy = "automaton"``):
 
 .. code-block:: python
@@ -16,7 +16,7 @@ action : level
     What the firm plays: a named level (``"collusive"``, ``"nash"``, ``"deviation"``, ``"punishment"``),
     a number (the same quantity or price for every product), or a list of one number per product.
 watch : {"nothing", "all", "rivals", "price", "profit"}
-    The signal that drives the transition (see :mod:`strategies._step`); default ``"nothing"``.
+    The signal that drives the transition (see :mod:`strategies.step`); default ``"nothing"``.
 expect : level
     The profile the firm expects when it watches conduct (default: the state's action).
 judge : {"restraint", "punishment"}
@@ -50,10 +50,9 @@ from typing import Any
 
 import numpy as np
 
-from sim._params import Constraint, Parametrized
-from sim.errors import InputError
-
-from . import _step as S
+import strategies.step as S
+from sim.core.errors import InputError
+from sim.core.params import Constraint, Parametrized
 
 __all__ = [
     "LEVEL_NAMES",
@@ -437,7 +436,7 @@ class FirmContext:
 
 @dataclass(frozen=True)
 class CompiledLineup:
-    """A line-up compiled to the arrays the kernels play (layout in :mod:`strategies._step`).
+    """A line-up compiled to the arrays the kernels play (layout in :mod:`strategies.step`).
 
     Attributes
     ----------

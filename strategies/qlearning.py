@@ -13,9 +13,9 @@ Intelligence, Algorithmic Pricing, and Collusion"): m = 15, xi = 0.1, k = 1, alp
 beta = 4e-6, delta = 0.95, and Q initialised to the discounted value of facing rivals who randomise
 uniformly over their actions.
 
-The object is store-only (see :mod:`sim._params`): :meth:`QLearner.spec` validates it and
+The object is store-only (see :mod:`sim.core.params`): :meth:`QLearner.spec` validates it and
 :meth:`QLearner.compile` resolves it against a market into a :class:`CompiledLearner`, plain arrays
-and numbers for the learning kernel (:mod:`sim._learnkernel`).
+and numbers for the learning kernel (:mod:`sim.learning.kernel`).
 """
 
 from __future__ import annotations
@@ -28,8 +28,8 @@ from typing import Any
 
 import numpy as np
 
-from sim._params import Constraint, Integer, Parametrized, Real, optional
-from sim.errors import InputError
+from sim.core.errors import InputError
+from sim.core.params import Constraint, Integer, Parametrized, Real, optional
 
 __all__ = ["INIT_KINDS", "CompiledLearner", "QLearner", "published_grid"]
 
@@ -248,13 +248,13 @@ class QLearner(Parametrized):
         -------
         CompiledLearner
         """
-        from sim.equilibrium import stage_game
+        from sim.theory.equilibrium import stage_game
 
         p = self.spec(prefix=prefix)
         if p["grid"] is not None:
             grid = p["grid"]
         else:
-            from sim.market import MarketSpec
+            from sim.models.market import MarketSpec
 
             ms = market if isinstance(market, MarketSpec) else market.spec()
             st = stage_game(ms)

@@ -10,10 +10,9 @@ import importlib
 import numbers
 from collections.abc import Sequence
 
-from sim.errors import InputError
-
-from . import automata
-from .base import Automaton
+import strategies.automata as automata
+from sim.core.errors import InputError
+from strategies.base import Automaton
 
 __all__ = ["LAZY", "MAX_SEATS", "STRATEGIES", "check_seats", "lineup_from_tables", "register", "strategy_class",
            "strategy_from_dict"]

@@ -16,7 +16,7 @@ import importlib
 import os
 import sys
 
-from ..errors import InputError, SolverError
+from sim.core.errors import InputError, SolverError
 
 # name -> module; the order is the order of ``supergame --help``
 COMMANDS = {
@@ -41,7 +41,7 @@ class _Parser(argparse.ArgumentParser):
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from .. import __version__
+    from sim import __version__
 
     parser = _Parser(
         prog="supergame",

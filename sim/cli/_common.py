@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from ..errors import InputError
+from sim.core.errors import InputError
 
 # flag -> key of the [market] table
 MARKET_FLAGS = {

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import emit
+from sim.cli._common import emit
 
 HELP = "coordinated effects of a merger: calibration, thresholds, persistence and factors before and after"
 DESCRIPTION = (
@@ -31,13 +31,13 @@ def configure(p: argparse.ArgumentParser) -> None:
 def run(args) -> int:
     import sys
 
-    from .._assessreport import render_text
-    from .._jsonutil import dumps
-    from ..assess import assessment_from_dict, keep_assessments
-    from ..config import load_experiment
-    from ..errors import SolverError
-    from ..runs import run_experiment
-    from ..tomlfile import read_toml
+    from sim.antitrust.assess import assessment_from_dict, keep_assessments
+    from sim.core.errors import SolverError
+    from sim.core.jsonutil import dumps
+    from sim.core.tomlfile import read_toml
+    from sim.evidence.assess import render_text
+    from sim.runner.experiment import load_experiment
+    from sim.runner.runs import run_experiment
 
     # the assessment's own reading first (kind, one assessment, no [sweep] or [report]), then the
     # experiments layer's validation of the whole file; nothing is written before both pass
@@ -45,7 +45,7 @@ def run(args) -> int:
     exp = load_experiment(args.file)
     argv = (["supergame", *sys.argv[1:]] if sys.argv and sys.argv[0].endswith(("supergame", "__main__.py"))
             else ["supergame", "assess", args.file])
-    # the evidence bundle is the run's report (sim.report.write_report), read from the stored cell as
+    # the evidence bundle is the run's report (sim.evidence.report.write_report), read from the stored cell as
     # supergame report RUN_DIR reads it, and recorded in the run's manifest; the terminal output is the
     # cell's assessment, kept as it was computed
     with keep_assessments() as kept:

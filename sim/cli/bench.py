@@ -5,15 +5,15 @@ description)``); each takes a :class:`BenchOptions` and returns a dict of plain 
 ``workload`` description, ``targets`` (name -> bool) and optional ``notes``. Other components add their
 own section with one line in :data:`BENCHMARKS`.
 
-``engine`` -- the simulation kernel (:mod:`sim._kernel`) on the fixed workload of the acceptance
+``engine`` -- the simulation kernel (:mod:`sim.simulation.kernel`) on the fixed workload of the acceptance
 criteria: three firms, linear Cournot demand, trigger-price strategies watching the public price
 under a lognormal demand shock, 1,000 periods x 20,000 replications. Reports firm-periods per second
-on one thread, on more threads and for the plain-Python reference (:mod:`sim._reference`, on a slice
+on one thread, on more threads and for the plain-Python reference (:mod:`sim.simulation.twin`, on a slice
 of the same workload, whose results are checked to be identical to the kernel's), their ratios, and
 the peak memory of a fresh process running the workload with 1x and 10x the periods.
 
-``matches`` -- many small matches through the lower-level entry (:func:`sim.engine.compile_game` and
-:func:`sim.engine.run_game`), as a tournament plays them: ten strategies, every pairing in a duopoly
+``matches`` -- many small matches through the lower-level entry (:func:`sim.simulation.engine.compile_game` and
+:func:`sim.simulation.engine.run_game`), as a tournament plays them: ten strategies, every pairing in a duopoly
 (55 matches), 1,000 replications of 1,000 periods each, and the fixed cost of one call.
 """
 
@@ -27,8 +27,8 @@ import sys
 import time
 from dataclasses import dataclass
 
-from ..errors import InputError
-from ._common import emit, parse_number
+from sim.cli._common import emit, parse_number
+from sim.core.errors import InputError
 
 HELP = "throughput of the simulation kernels against their plain-Python references"
 DESCRIPTION = (
@@ -75,8 +75,8 @@ _QUICK = {"periods": 100, "replications": 400}
 
 
 def _engine_game():
-    from ..engine import prepare_game
-    from ..market import market_from_dict
+    from sim.models.market import market_from_dict
+    from sim.simulation.engine import prepare_game
 
     w = ENGINE_WORKLOAD
     return prepare_game(market_from_dict(w["market"]), w["strategies"], w["monitoring"])
@@ -95,7 +95,7 @@ def _memory_probe(periods: int, replications: int, threads: int) -> dict:
     """Run in a fresh process: the workload once, then report the peak resident memory."""
     import resource
 
-    from ..engine import RawRun, run_game
+    from sim.simulation.engine import RawRun, run_game
 
     game = _engine_game()
     run_game(game, 10, 10, 0.95, 1, threads=threads, progress=False)  # compile or load the cache
@@ -120,8 +120,8 @@ def engine_benchmark(opts: BenchOptions) -> dict:
     """The engine section (see the module notes)."""
     import numpy as np
 
-    from .._reference import reference_run
-    from ..engine import run_game
+    from sim.simulation.engine import run_game
+    from sim.simulation.twin import reference_run
 
     w = dict(ENGINE_WORKLOAD)
     if opts.quick:
@@ -187,11 +187,10 @@ def matches_benchmark(opts: BenchOptions) -> dict:
     import itertools
 
     import strategies as S
-
-    from ..demand import LinearDemand
-    from ..engine import compile_game, run_game, stage_levels
-    from ..market import Market
-    from ..monitoring import Monitoring
+    from sim.models.demand import LinearDemand
+    from sim.models.market import Market
+    from sim.models.monitoring import Monitoring
+    from sim.simulation.engine import compile_game, run_game, stage_levels
 
     periods, reps = (100, 100) if opts.quick else (1000, 1000)
     market = Market(LinearDemand(100.0, 1.0), cost=10.0, n_firms=2)
@@ -241,10 +240,12 @@ def matches_benchmark(opts: BenchOptions) -> dict:
 BENCHMARKS: dict = {
     "engine": (engine_benchmark, "simulation kernel vs plain-Python reference, threads, memory"),
     "matches": (matches_benchmark, "many small duopoly matches through the lower-level engine entry"),
-    "theory": ("sim._bench_theory:theory_benchmark", "every threshold of 10-firm asymmetric markets"),
-    "learning": ("sim.learning:bench_section", "Q-learning kernel vs plain-Python reference; 1,000 baseline sessions"),
-    "tournament": ("sim.tournament:bench_section", "10-entrant duopoly tournament: wall time, driver overhead"),
-    "sweep": ("sim.sweep:bench_section", "experiments layer: per-cell overhead, 2 local workers against 1"),
+    "theory": ("sim.bench.theory:theory_benchmark", "every threshold of 10-firm asymmetric markets"),
+    "learning": ("sim.learning.session:bench_section",
+                 "Q-learning kernel vs plain-Python reference; 1,000 baseline sessions"),
+    "tournament": ("sim.tournament.roundrobin:bench_section",
+                   "10-entrant duopoly tournament: wall time, driver overhead"),
+    "sweep": ("sim.runner.sweep:bench_section", "experiments layer: per-cell overhead, 2 local workers against 1"),
 }
 
 
@@ -272,7 +273,7 @@ def configure(p: argparse.ArgumentParser) -> None:
 def run(args) -> int:
     import numba
 
-    from .._jsonutil import dumps
+    from sim.core.jsonutil import dumps
 
     names = args.only or list(BENCHMARKS)
     for nm in names:
@@ -320,7 +321,7 @@ def _flat(prefix: str, d: dict, rows: list) -> None:
 
 
 def render(out: dict) -> str:
-    from .._text import table
+    from sim.core.text import table
 
     lines = []
     for nm, sec in out["sections"].items():

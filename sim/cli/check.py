@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import emit
-from .run import add_plugin_option
+from sim.cli._common import emit
+from sim.cli.run import add_plugin_option
 
 HELP = "validate experiment files, every sweep cell included, without running them"
 DESCRIPTION = (
@@ -37,9 +37,9 @@ def describe(exp) -> str:
 
 
 def run(args) -> int:
-    from .._jsonutil import dumps
-    from ..config import load_experiment
-    from ..kinds import load_plugins
+    from sim.core.jsonutil import dumps
+    from sim.runner.experiment import load_experiment
+    from sim.runner.kinds import load_plugins
 
     load_plugins(args.plugin)
     for f in args.files:

@@ -5,8 +5,8 @@ from __future__ import annotations
 import argparse
 import os
 
-from ..errors import InputError
-from ._common import MARKET_FLAGS, add_market_flags, emit, market_table_from_args, parse_number, parse_numbers
+from sim.cli._common import MARKET_FLAGS, add_market_flags, emit, market_table_from_args, parse_number, parse_numbers
+from sim.core.errors import InputError
 
 HELP = "let Q-learning firms learn to price; limit outcomes, profit gain and impulse response"
 DESCRIPTION = (
@@ -22,7 +22,7 @@ DESCRIPTION = (
 )
 
 # table -> key -> (flag, parser kind); kinds: num, int, nums, str. The tables themselves are read by
-# sim.learning.learning_from_dict; a flag overrides its key.
+# sim.learning.session.learning_from_dict; a flag overrides its key.
 _FLAGS = {
     "learning": {
         "alpha": ("alpha", "num"),
@@ -89,7 +89,7 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def _overrides(args) -> dict:
-    """The flags given, as overrides of :func:`sim.learning.learning_from_dict` (``table.key`` ->
+    """The flags given, as overrides of :func:`sim.learning.session.learning_from_dict` (``table.key`` ->
     (value, flag))."""
     out = {}
     for table, keys in _FLAGS.items():
@@ -112,7 +112,7 @@ def _overrides(args) -> dict:
 
 def build(args, doc: dict) -> dict:
     """Everything ``learn`` needs, validated, from FILE and flags: market, learner, run settings."""
-    from ..learning import _RUN_CONSTRAINTS, learning_from_dict
+    from sim.learning.session import _RUN_CONSTRAINTS, learning_from_dict
 
     if args.file and "market" not in doc:
         raise InputError("market", f"{args.file} has no [market] table")
@@ -131,10 +131,10 @@ def build(args, doc: dict) -> dict:
 
 
 def run(args) -> int:
-    from .. import _text
-    from .._jsonutil import dumps
-    from ..learning import learn
-    from ..tomlfile import read_toml
+    import sim.core.text as _text
+    from sim.core.jsonutil import dumps
+    from sim.core.tomlfile import read_toml
+    from sim.learning.session import learn
 
     doc = read_toml(args.file) if args.file else {}
     cfg = build(args, doc)  # validates everything, the line-up's memory included
@@ -174,7 +174,7 @@ def _pct(x) -> str:
 
 
 def _ci(d: dict, digits: int = 4) -> str:
-    from .._text import fmt_num
+    from sim.core.text import fmt_num
 
     if d.get("n", 0) < 2:
         return "-"
@@ -190,8 +190,8 @@ def _same_learner(a, b) -> bool:
 
 
 def render(result, market, written=()) -> str:
-    from .._text import CAUTION, fmt_num, table
-    from .thresholds import _describe_market
+    from sim.cli.thresholds import _describe_market
+    from sim.core.text import CAUTION, fmt_num, table
 
     lu = result.lineup
     sm = result.summary()

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import argparse
 
-from ._common import emit
-from .run import add_plugin_option
+from sim.cli._common import emit
+from sim.cli.run import add_plugin_option
 
 HELP = "write the evidence bundle of a run folder (summary, HTML, figures, tables, manifest)"
 DESCRIPTION = (
@@ -22,11 +22,11 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    from ..kinds import load_plugins
-    from ..report import write_report
+    from sim.evidence.report import write_report
+    from sim.runner.kinds import load_plugins
 
     load_plugins(args.plugin)
-    # a bundle inside the run folder is recorded in its manifest (see sim.report.write_report)
+    # a bundle inside the run folder is recorded in its manifest (see sim.evidence.report.write_report)
     target = write_report(args.run_dir, args.out)
     emit(f"Evidence bundle: {target}/summary.html (and summary.md, figures/, tables/, manifest.json)")
     return 0

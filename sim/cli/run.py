@@ -5,8 +5,8 @@ from __future__ import annotations
 import argparse
 import sys
 
-from ..errors import InputError
-from ._common import emit, parse_number
+from sim.cli._common import emit, parse_number
+from sim.core.errors import InputError
 
 HELP = "run an experiment file (any kind, sweeps included) into a run folder; resumable"
 DESCRIPTION = (
@@ -40,10 +40,10 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    from .._jsonutil import dumps
-    from ..config import load_experiment
-    from ..kinds import load_plugins
-    from ..runs import _default_folder, run_experiment
+    from sim.core.jsonutil import dumps
+    from sim.runner.experiment import load_experiment
+    from sim.runner.kinds import load_plugins
+    from sim.runner.runs import _default_folder, run_experiment
 
     if not args.file and not args.resume:
         raise InputError("FILE", "give an experiment file, or --resume RUN_DIR to finish a run")

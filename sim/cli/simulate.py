@@ -4,8 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from ..errors import InputError
-from ._common import (
+from sim.cli._common import (
     MARKET_FLAGS,
     add_market_flags,
     emit,
@@ -14,6 +13,7 @@ from ._common import (
     parse_number,
     parse_numbers,
 )
+from sim.core.errors import InputError
 
 HELP = "simulate a line-up of strategies: persistence of collusion against the analytic baseline"
 DESCRIPTION = (
@@ -91,11 +91,11 @@ def parse_strategy_flag(text: str, k: int) -> dict:
 
 
 def settings(args) -> dict:
-    """Everything :func:`sim.engine.simulate` needs, from FILE and flags (flags win)."""
-    from ..engine import simulation_from_dict
-    from ..market import market_from_dict
-    from ..monitoring import monitoring_from_dict
-    from ..tomlfile import read_toml
+    """Everything :func:`sim.simulation.engine.simulate` needs, from FILE and flags (flags win)."""
+    from sim.core.tomlfile import read_toml
+    from sim.models.market import market_from_dict
+    from sim.models.monitoring import monitoring_from_dict
+    from sim.simulation.engine import simulation_from_dict
 
     doc = read_toml(args.file) if args.file else {}
     base = doc.get("market", {}) if doc else {}
@@ -181,8 +181,8 @@ def _rename(exc: InputError, cfg: dict) -> InputError:
 
 
 def run(args) -> int:
-    from .._jsonutil import dumps
-    from ..engine import simulate
+    from sim.core.jsonutil import dumps
+    from sim.simulation.engine import simulate
 
     cfg = settings(args)
     r = cfg["run"]
@@ -191,11 +191,11 @@ def run(args) -> int:
                        replications=r["replications"], delta=r["delta"], seed=r["seed"], horizon=r["horizon"],
                        continuation=r["continuation"], paths=r["paths"], agreement=cfg["agreement"],
                        actions=cfg["actions"], threads=cfg["threads"], confidence=cfg["confidence"],
-                       key=(0,))  # the key of cell 1 of `supergame run FILE` (sim.kinds: stream keys)
+                       key=(0,))  # the key of cell 1 of `supergame run FILE` (sim.runner.kinds: stream keys)
     except InputError as exc:
         raise _rename(exc, cfg) from None
     if args.plot:
-        from .._simplots import simulation_figures
+        from sim.evidence.simplots import simulation_figures
 
         simulation_figures(res, args.plot)
     if args.json:
@@ -260,7 +260,7 @@ def _analytic(res) -> dict:
 
 
 def _ci(e) -> str:
-    from .._text import fmt_num
+    from sim.core.text import fmt_num
 
     if e.low != e.low:
         return "-"
@@ -268,8 +268,8 @@ def _ci(e) -> str:
 
 
 def render(res, cfg) -> str:
-    from .._text import CAUTION, fmt_num, table
-    from .thresholds import _AGREEMENT_NAMES, _describe_market
+    from sim.cli.thresholds import _AGREEMENT_NAMES, _describe_market
+    from sim.core.text import CAUTION, fmt_num, table
 
     s = res.settings
     run = s["run"]
@@ -340,7 +340,7 @@ def render(res, cfg) -> str:
 
 
 def _render_paths(res, max_periods: int = 20) -> list:
-    from .._text import fmt_num, table
+    from sim.core.text import fmt_num, table
 
     P = res.paths
     out = []

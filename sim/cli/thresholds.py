@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import argparse
 
-from ..errors import InputError
-from ._common import add_market_flags, emit, flag_error, market_table_from_args, parse_number
+from sim.cli._common import add_market_flags, emit, flag_error, market_table_from_args, parse_number
+from sim.core.errors import InputError
 
 HELP = "stage game and critical discount factors of a market (analytic baseline)"
 DESCRIPTION = (
@@ -48,8 +48,8 @@ _FLAG_OF = {
 def _document(args) -> tuple[dict, set]:
     """The experiment document: FILE's tables (if any) with the flags applied on top, and the set of
     table keys that came from flags."""
-    from ..tomlfile import read_toml
-    from ._common import parse_numbers
+    from sim.cli._common import parse_numbers
+    from sim.core.tomlfile import read_toml
 
     doc = read_toml(args.file) if args.file else {}
     if args.file and "market" not in doc:
@@ -101,10 +101,10 @@ def _renamed(exc: InputError, flags: set) -> InputError:
 
 
 def run(args) -> int:
-    from .. import _text
-    from .._adapters import _prepare_thresholds
-    from .._jsonutil import dumps
-    from ..thresholds import critical_discount_factors
+    import sim.core.text as _text
+    from sim.core.jsonutil import dumps
+    from sim.runner.analyses import _prepare_thresholds
+    from sim.theory.thresholds import critical_discount_factors
 
     doc, flags = _document(args)
     try:
@@ -117,7 +117,7 @@ def run(args) -> int:
                                        agreement=cfg["agreement"], actions=cfg["actions"])
     tp = None
     if cfg["trigger_price"]:
-        from ..trigger_price import trigger_price_equilibrium
+        from sim.theory.trigger_price import trigger_price_equilibrium
 
         mon = cfg["monitoring"]
         tp = [trigger_price_equilibrium(market, d, mon["noise"], mon["sigma"]) for d in cfg["deltas"]]
@@ -144,7 +144,7 @@ def _describe_market(market) -> str:
 def render(report, market, tp=None) -> str:
     import numpy as np
 
-    from .._text import CAUTION, fmt_num, table
+    from sim.core.text import CAUTION, fmt_num, table
 
     st = report.stage
     ms = st.market

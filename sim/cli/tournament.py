@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import argparse
 
-from ..errors import InputError
-from ._common import emit, parse_number
+from sim.cli._common import emit, parse_number
+from sim.core.errors import InputError
 
 HELP = "round-robin tournament of strategies: scores, ranking stability, replicator and Moran dynamics"
 DESCRIPTION = (
@@ -36,12 +36,12 @@ def _check_dir(path, flag: str) -> None:
 
 
 def run(args) -> int:
-    from .._jsonutil import dumps
-    from .._tournament_io import tournament_figures, tournament_json, write_tables
-    from ..engine import _check_threads
-    from ..kinds import CellContext
-    from ..tomlfile import read_toml
-    from ..tournament import check_experiment, evolve_tournament, run_tournament, tournament_from_dict
+    from sim.core.jsonutil import dumps
+    from sim.core.tomlfile import read_toml
+    from sim.evidence.tournament import tournament_figures, tournament_json, write_tables
+    from sim.runner.kinds import CellContext
+    from sim.simulation.engine import _check_threads
+    from sim.tournament.roundrobin import check_experiment, evolve_tournament, run_tournament, tournament_from_dict
 
     doc = read_toml(args.file)
     cfg = tournament_from_dict(doc)
@@ -82,7 +82,7 @@ def run(args) -> int:
 
 
 def _ci(e) -> str:
-    from .._text import fmt_num
+    from sim.core.text import fmt_num
 
     if e.low != e.low:
         return "-"
@@ -107,7 +107,7 @@ def _params(entrant) -> str:
 
 def _agreement_line(plan) -> str:
     """The collusive benchmark of the profit gain: the agreement, and each firm's profit there and at Nash."""
-    from .._text import fmt_num
+    from sim.core.text import fmt_num
 
     s = plan.settings
     why = "" if s["agreement_given"] else (
@@ -119,9 +119,9 @@ def _agreement_line(plan) -> str:
 
 
 def render(res, evo, cfg) -> str:
-    from .._text import CAUTION, fmt_num, table
-    from ..tournament import SCORE_NAMES
-    from .thresholds import _describe_market
+    from sim.cli.thresholds import _describe_market
+    from sim.core.text import CAUTION, fmt_num, table
+    from sim.tournament.roundrobin import SCORE_NAMES
 
     plan = res.plan
     labels = res.labels

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import argparse
 
-from ..errors import InputError
-from ._common import emit, parse_number
-from .run import add_plugin_option
+from sim.cli._common import emit, parse_number
+from sim.cli.run import add_plugin_option
+from sim.core.errors import InputError
 
 HELP = "check a run folder: file hashes against the manifest, and re-run a sample of cells"
 DESCRIPTION = (
@@ -30,9 +30,9 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    from .._jsonutil import dumps
-    from ..kinds import load_plugins
-    from ..runs import verify_run
+    from sim.core.jsonutil import dumps
+    from sim.runner.kinds import load_plugins
+    from sim.runner.runs import verify_run
 
     load_plugins(args.plugin)
     sample = parse_number("sample", args.sample, integer=True) if args.sample is not None else 3

@@ -1,0 +1,416 @@
+"""Evidence bundles: a folder with a Markdown summary, a self-contained HTML page, figures, tables and a
+manifest, for handing model results over in an expert report.
+
+:class:`Bundle` is the writing API shared by every command that produces one (``supergame report``,
+``supergame run --report``, the assessment command). Content is added in reading order as blocks --
+headings, paragraphs, lists, tables, figures -- and :meth:`Bundle.write` renders them twice, as
+``summary.md`` and as ``summary.html`` (figures embedded as ``data:`` URIs, so the page needs no other
+file), and writes ``manifest.json`` with the SHA-256 of every file of the bundle.
+
+Files::
+
+    summary.md  summary.html  manifest.json
+    figures/NAME.png  figures/NAME.pdf
+    tables/NAME.csv   tables/NAME.tex      (LaTeX, booktabs)
+
+Every figure, table and text depends only on what was added, so writing the same content twice gives
+the same bytes (figures are saved without timestamps). The caution (:data:`sim.core.text.CAUTION`) closes
+every summary.
+
+Files are written into a hidden sibling folder (``.NAME.partial-*``) and moved into place by
+:meth:`Bundle.write` in one rename, replacing an earlier bundle there, so that a write that is
+interrupted -- an error, or the process killed -- leaves the earlier bundle (or nothing), never a
+mixture. :func:`clear_leftovers` removes what an interrupted write left beside the folder.
+
+Example
+-------
+>>> from sim.evidence.bundle import Bundle
+>>> b = Bundle("out/bundle", "Coordinated effects of the merger")          # doctest: +SKIP
+>>> b.paragraph("Thresholds before and after the merger.")                   # doctest: +SKIP
+>>> b.table("thresholds", ["scheme", "before", "after"], rows, caption="Critical discount factors")  # doctest: +SKIP
+>>> b.figure("thresholds", fig, caption="...")                              # doctest: +SKIP
+>>> b.assumptions(["..."])                                                   # doctest: +SKIP
+>>> b.write(manifest={"experiment": {...}, "command": sys.argv})             # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+import base64
+import hashlib
+import html
+import io
+import json
+import math
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+__all__ = ["Bundle", "clear_leftovers", "holds_bundle", "latex_table", "markdown_table"]
+
+_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}$")
+BUNDLE_FORMAT = "supergame-bundle/1"
+#: markers of the hidden siblings of a bundle folder: the one being written, the one being replaced
+_STAGE, _REPLACED = ".partial-", ".replaced-"
+
+
+def holds_bundle(folder) -> bool:
+    """Whether ``folder`` is an empty folder or holds an evidence bundle (its ``manifest.json`` says so),
+    i.e. whether a bundle may be written over it."""
+    folder = Path(folder)
+    if not folder.is_dir() or folder.is_symlink():
+        return False
+    if not any(folder.iterdir()):
+        return True
+    try:
+        man = json.loads((folder / "manifest.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return False
+    return isinstance(man, dict) and str(man.get("format", "")).startswith("supergame-bundle")
+
+
+def leftovers(folder) -> list[Path]:
+    """What interrupted writes of the bundle ``folder`` left beside it (hidden sibling folders)."""
+    folder = Path(folder)
+    if not folder.parent.is_dir():
+        return []
+    marks = (f".{folder.name}{_STAGE}", f".{folder.name}{_REPLACED}")
+    return sorted(p for p in folder.parent.iterdir() if p.name.startswith(marks) and p.is_dir())
+
+
+def clear_leftovers(folder) -> list[Path]:
+    """Remove what interrupted writes of the bundle ``folder`` left beside it; return what was removed."""
+    import shutil
+
+    gone = leftovers(folder)
+    for p in gone:
+        shutil.rmtree(p, ignore_errors=True)
+    return gone
+
+
+def _fmt(v: Any, digits: int) -> str:
+    from sim.core.text import fmt_num
+
+    if v is None:
+        return "-"
+    if isinstance(v, str):
+        return v
+    if isinstance(v, float) and math.isnan(v):
+        return "-"
+    return fmt_num(v, digits)
+
+
+_TEX = {"\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_", "{": r"\{",
+        "}": r"\}", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}"}
+
+
+def tex_escape(text: str) -> str:
+    return "".join(_TEX.get(ch, ch) for ch in str(text))
+
+
+def latex_table(headers, rows, caption: str | None = None, label: str | None = None, digits: int = 4,
+                align: str | None = None) -> str:
+    """A booktabs LaTeX table (``\\usepackage{booktabs}``); numbers right-aligned, text left-aligned."""
+    cells = [[_fmt(v, digits) for v in r] for r in rows]
+    if align is None:
+        align = "".join("r" if rows and all(isinstance(r[j], int | float) and not isinstance(r[j], bool)
+                                             for r in rows) else "l" for j in range(len(headers)))
+    lines = [r"\begin{table}[htbp]", r"\centering"]
+    if caption:
+        lines.append(rf"\caption{{{tex_escape(caption)}}}")
+    if label:
+        lines.append(rf"\label{{{label}}}")
+    lines += [rf"\begin{{tabular}}{{{align}}}", r"\toprule",
+              " & ".join(tex_escape(h) for h in headers) + r" \\", r"\midrule"]
+    lines += [" & ".join(tex_escape(c) for c in r) + r" \\" for r in cells]
+    lines += [r"\bottomrule", r"\end{tabular}", r"\end{table}"]
+    return "\n".join(lines) + "\n"
+
+
+def _md_escape(text: str) -> str:
+    return str(text).replace("|", r"\|")
+
+
+def markdown_table(headers, rows, digits: int = 4) -> str:
+    cells = [[_md_escape(_fmt(v, digits)) for v in r] for r in rows]
+    nums = [bool(rows) and all(isinstance(r[j], int | float) and not isinstance(r[j], bool) for r in rows)
+            for j in range(len(headers))]
+    out = ["| " + " | ".join(_md_escape(h) for h in headers) + " |",
+           "| " + " | ".join("---:" if n else "---" for n in nums) + " |"]
+    out += ["| " + " | ".join(r) + " |" for r in cells]
+    return "\n".join(out)
+
+
+def _inline_html(text: str) -> str:
+    """Escape text; ``code`` spans and **bold** become markup."""
+    t = html.escape(str(text))
+    t = re.sub(r"`([^`]+)`", r"<code>\1</code>", t)
+    return re.sub(r"\*\*([^*]+)\*\*", r"<strong>\1</strong>", t)
+
+
+@dataclass
+class _Block:
+    kind: str
+    data: dict = field(default_factory=dict)
+
+
+_CSS = """
+body { font-family: -apple-system, "Segoe UI", Helvetica, Arial, sans-serif; max-width: 60rem; margin: 2rem auto;
+       padding: 0 1rem; color: #1b1b1b; line-height: 1.45; }
+h1 { font-size: 1.6rem; border-bottom: 2px solid #444; padding-bottom: .3rem; }
+h2 { font-size: 1.25rem; margin-top: 2rem; border-bottom: 1px solid #bbb; }
+h3 { font-size: 1.05rem; }
+table { border-collapse: collapse; margin: .8rem 0; font-size: .85rem; }
+th, td { padding: .2rem .6rem; border-bottom: 1px solid #ddd; }
+th { border-bottom: 2px solid #444; text-align: left; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; }
+caption { caption-side: top; text-align: left; font-weight: 600; padding-bottom: .3rem; }
+figure { margin: 1.2rem 0; } figure img { max-width: 100%; border: 1px solid #eee; }
+figcaption { font-size: .85rem; color: #333; }
+pre { background: #f5f5f5; padding: .6rem; overflow-x: auto; font-size: .8rem; }
+.caution { border-left: 4px solid #b00; padding: .4rem .8rem; background: #fff4f4; }
+.note { font-size: .85rem; color: #555; }
+"""
+
+
+class Bundle:
+    """An evidence bundle written into ``folder`` (see the module notes).
+
+    Parameters
+    ----------
+    folder : path-like
+        The bundle's folder, created by :meth:`write`; an earlier bundle there is replaced as a whole
+        (a folder that is not empty and holds no bundle is refused, see :func:`holds_bundle`).
+    title : str
+    caution : str, optional
+        Closing caution (default :data:`sim.core.text.CAUTION`).
+
+    Attributes
+    ----------
+    manifest : dict
+        Entries for ``manifest.json`` added while the content is written (for example by an experiment
+        kind's report); :meth:`write` merges its own ``manifest`` over them (dict entries key by key).
+    """
+
+    def __init__(self, folder, title: str, caution: str | None = None):
+        import tempfile
+
+        from sim.core.text import CAUTION
+
+        self.folder = Path(folder)
+        self.title = title
+        self.caution = CAUTION if caution is None else caution
+        self.blocks: list[_Block] = []
+        self.manifest: dict = {}
+        self.files: list[str] = []
+        self._names: set = set()
+        self.folder.parent.mkdir(parents=True, exist_ok=True)
+        self._stage = Path(tempfile.mkdtemp(prefix=f".{self.folder.name}{_STAGE}", dir=self.folder.parent))
+        (self._stage / "figures").mkdir()
+        (self._stage / "tables").mkdir()
+        self.written = False
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        if not self.written:
+            self.discard()
+        return False
+
+    def discard(self) -> None:
+        """Drop what was written so far (the folder keeps its earlier bundle, if any)."""
+        import shutil
+
+        shutil.rmtree(self._stage, ignore_errors=True)
+
+    # -- text --------------------------------------------------------------------------------------
+
+    def heading(self, text: str, level: int = 2) -> None:
+        self.blocks.append(_Block("heading", {"text": text, "level": max(2, min(4, level))}))
+
+    def paragraph(self, text: str, note: bool = False) -> None:
+        self.blocks.append(_Block("paragraph", {"text": text, "note": note}))
+
+    def bullets(self, items) -> None:
+        self.blocks.append(_Block("bullets", {"items": [str(x) for x in items]}))
+
+    def code(self, text: str) -> None:
+        self.blocks.append(_Block("code", {"text": text}))
+
+    # -- tables and figures ------------------------------------------------------------------------
+
+    def _claim(self, name: str, what: str) -> None:
+        if not _NAME.match(name):
+            raise ValueError(f"bad {what} name {name!r}: letters, digits, '.', '_', '-'")
+        if (what, name) in self._names:
+            raise ValueError(f"a {what} named {name!r} was already added")
+        self._names.add((what, name))
+
+    def table(self, name: str, headers, rows, caption: str | None = None, digits: int = 4, show: bool = True,
+              max_rows: int = 60, note: str | None = None, csv_rows=None) -> None:
+        """Add a table: ``tables/NAME.csv`` (full precision) and ``tables/NAME.tex`` (booktabs, ``digits``
+        significant digits), shown in the summary (at most ``max_rows`` rows) unless ``show`` is false.
+        ``csv_rows`` replaces the rows written to the CSV file (e.g. with more columns)."""
+        self._claim(name, "table")
+        headers = [str(h) for h in headers]
+        rows = [list(r) for r in rows]
+        from sim.runner.store import csv_text
+
+        src = csv_rows if csv_rows is not None else (headers, rows)
+        # the same CSV dialect and number format as the run folder's results.csv
+        self._write(f"tables/{name}.csv", csv_text(list(src[0]), src[1]).encode("utf-8"))
+        self._write(f"tables/{name}.tex", latex_table(headers, rows, caption, f"tab:{name}", digits).encode("utf-8"))
+        if show:
+            self.blocks.append(_Block("table", {"name": name, "headers": headers, "rows": rows, "caption": caption,
+                                                "digits": digits, "max_rows": max_rows, "note": note}))
+
+    def figure(self, name: str, fig, caption: str, dpi: int = 150) -> None:
+        """Add a matplotlib figure: ``figures/NAME.png`` and ``figures/NAME.pdf`` (the figure is closed)."""
+        import matplotlib.pyplot as plt
+
+        self._claim(name, "figure")
+        png = io.BytesIO()
+        fig.savefig(png, format="png", dpi=dpi, metadata={"Software": None})
+        pdf = io.BytesIO()
+        fig.savefig(pdf, format="pdf", metadata={"CreationDate": None, "ModDate": None, "Producer": None,
+                                                 "Creator": None})
+        plt.close(fig)
+        self._write(f"figures/{name}.png", png.getvalue())
+        self._write(f"figures/{name}.pdf", pdf.getvalue())
+        self.blocks.append(_Block("figure", {"name": name, "caption": caption, "png": png.getvalue()}))
+
+    def attach(self, relpath: str, data: bytes) -> None:
+        """Add a file of any kind (e.g. a copy of the experiment file) at ``relpath`` inside the bundle."""
+        if relpath.startswith(("/", "..")) or "\\" in relpath:
+            raise ValueError(f"bad path {relpath!r}")
+        self._write(relpath, data)
+
+    def assumptions(self, items, heading: str = "Assumptions and limitations") -> None:
+        self.heading(heading)
+        self.bullets(items)
+
+    # -- writing -----------------------------------------------------------------------------------
+
+    def _write(self, rel: str, data: bytes) -> None:
+        p = self._stage / rel
+        p.parent.mkdir(parents=True, exist_ok=True)
+        p.write_bytes(data)
+        if rel not in self.files:
+            self.files.append(rel)
+
+    def markdown(self) -> str:
+        out = [f"# {self.title}", ""]
+        for b in self.blocks:
+            d = b.data
+            if b.kind == "heading":
+                out += ["#" * d["level"] + " " + d["text"], ""]
+            elif b.kind == "paragraph":
+                out += [(f"*{d['text']}*" if d["note"] else d["text"]), ""]
+            elif b.kind == "bullets":
+                out += [f"- {x}" for x in d["items"]] + [""]
+            elif b.kind == "code":
+                out += ["```", d["text"].rstrip("\n"), "```", ""]
+            elif b.kind == "table":
+                if d["caption"]:
+                    out += [f"**{d['caption']}**", ""]
+                rows = d["rows"][: d["max_rows"]]
+                out += [markdown_table(d["headers"], rows, d["digits"]), ""]
+                extra = []
+                if len(d["rows"]) > d["max_rows"]:
+                    extra.append(f"First {d['max_rows']} of {len(d['rows'])} rows")
+                extra.append(f"table: `tables/{d['name']}.csv`, `tables/{d['name']}.tex`")
+                if d["note"]:
+                    extra.insert(0, d["note"])
+                out += ["*" + "; ".join(extra) + ".*", ""]
+            elif b.kind == "figure":
+                out += [f"![{d['caption']}](figures/{d['name']}.png)", "",
+                        f"*Figure: {d['caption']}* (`figures/{d['name']}.png`, `figures/{d['name']}.pdf`)", ""]
+        out += ["---", "", f"**Caution.** {self.caution}", ""]
+        return "\n".join(out)
+
+    def html(self) -> str:
+        out = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
+               f"<title>{html.escape(self.title)}</title>", f"<style>{_CSS}</style>", "</head>", "<body>",
+               f"<h1>{html.escape(self.title)}</h1>"]
+        for b in self.blocks:
+            d = b.data
+            if b.kind == "heading":
+                out.append(f"<h{d['level']}>{_inline_html(d['text'])}</h{d['level']}>")
+            elif b.kind == "paragraph":
+                cls = ' class="note"' if d["note"] else ""
+                out.append(f"<p{cls}>{_inline_html(d['text'])}</p>")
+            elif b.kind == "bullets":
+                out.append("<ul>" + "".join(f"<li>{_inline_html(x)}</li>" for x in d["items"]) + "</ul>")
+            elif b.kind == "code":
+                out.append(f"<pre>{html.escape(d['text'])}</pre>")
+            elif b.kind == "table":
+                rows = d["rows"][: d["max_rows"]]
+                nums = [bool(rows) and all(isinstance(r[j], int | float) and not isinstance(r[j], bool) for r in rows)
+                        for j in range(len(d["headers"]))]
+                t = ["<table>"]
+                if d["caption"]:
+                    t.append(f"<caption>{_inline_html(d['caption'])}</caption>")
+                t.append("<thead><tr>" + "".join(f"<th>{html.escape(h)}</th>" for h in d["headers"]) + "</tr></thead>")
+                t.append("<tbody>")
+                for r in rows:
+                    t.append("<tr>" + "".join(
+                        f'<td class="num">{html.escape(_fmt(v, d["digits"]))}</td>' if nums[j]
+                        else f"<td>{html.escape(_fmt(v, d['digits']))}</td>" for j, v in enumerate(r)) + "</tr>")
+                t.append("</tbody></table>")
+                out.append("".join(t))
+                extra = []
+                if d["note"]:
+                    extra.append(d["note"])
+                if len(d["rows"]) > d["max_rows"]:
+                    extra.append(f"First {d['max_rows']} of {len(d['rows'])} rows")
+                extra.append(f"table: tables/{d['name']}.csv, tables/{d['name']}.tex")
+                out.append(f'<p class="note">{_inline_html("; ".join(extra))}.</p>')
+            elif b.kind == "figure":
+                uri = "data:image/png;base64," + base64.b64encode(d["png"]).decode("ascii")
+                out.append(f'<figure><img src="{uri}" alt="{html.escape(d["caption"])}">'
+                           f"<figcaption>{_inline_html(d['caption'])}</figcaption></figure>")
+        out.append(f'<p class="caution"><strong>Caution.</strong> {html.escape(self.caution)}</p>')
+        out += ["</body>", "</html>", ""]
+        return "\n".join(out)
+
+    def write(self, manifest: dict | None = None) -> list[str]:
+        """Write ``summary.md``, ``summary.html`` and ``manifest.json``; return the bundle's files.
+
+        ``manifest`` adds entries to the manifest (for example ``experiment`` with its file and SHA-256,
+        ``command``, ``seeds``, ``started``, ``finished``), over those of :attr:`manifest`; package
+        versions, the platform and the SHA-256 of every file of the bundle are filled in.
+        """
+        from sim.runner.runs import package_versions, platform_info
+
+        if self.written:
+            raise RuntimeError(f"the bundle {self.folder} was already written")
+        if self.folder.exists() and not holds_bundle(self.folder):
+            self.discard()
+            raise FileExistsError(f"{self.folder} exists and does not hold an evidence bundle")
+        self._write("summary.md", self.markdown().encode("utf-8"))
+        self._write("summary.html", self.html().encode("utf-8"))
+        man = {"format": BUNDLE_FORMAT, "title": self.title, **self.manifest}
+        for k, v in (manifest or {}).items():
+            man[k] = {**man[k], **v} if isinstance(v, dict) and isinstance(man.get(k), dict) else v
+        man.setdefault("packages", package_versions())
+        man.setdefault("platform", platform_info())
+        man["caution"] = self.caution
+        man["files"] = {rel: hashlib.sha256((self._stage / rel).read_bytes()).hexdigest() for rel in sorted(self.files)}
+        (self._stage / "manifest.json").write_text(json.dumps(man, indent=2) + "\n", encoding="utf-8")
+        self._move_into_place()
+        return sorted(self.files) + ["manifest.json"]
+
+    def _move_into_place(self) -> None:
+        """Replace the folder by the staged bundle: two renames within one parent folder."""
+        import shutil
+        import uuid
+
+        old = None
+        if self.folder.exists():
+            old = self.folder.parent / f".{self.folder.name}{_REPLACED}{uuid.uuid4().hex[:8]}"
+            self.folder.rename(old)
+        self._stage.rename(self.folder)
+        self.written = True
+        if old is not None:
+            shutil.rmtree(old, ignore_errors=True)

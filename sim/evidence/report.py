@@ -1,0 +1,408 @@
+"""The evidence bundle of a run folder (``supergame report RUN_DIR``, ``supergame run --report``).
+
+Reads the store of a finished run and writes, with :class:`sim.evidence.bundle.Bundle`, into ``RUN_DIR/report``:
+a summary (what the experiment asks, its setup, the sweep, figures, the results table, the analytic
+baseline, failed cells, how to reproduce every number, the model's assumptions and limitations, the
+caution), the figures (PNG and PDF), the tables (CSV and LaTeX), a copy of the experiment file and a
+manifest. Nothing is recomputed: every number comes from the stored cells, so the report of a run is
+the same whenever it is written.
+
+Figures are those of ``[[report.figures]]``; without them, a default set: a heatmap of each headline
+metric over the first two numeric swept parameters (with the kind's analytic threshold curve) and line
+plots against the swept discount factor or the first numeric parameter (with confidence bands and the
+analytic prediction), one panel or line per value of the other swept parameters.
+"""
+
+from __future__ import annotations
+
+import math
+import shutil
+from pathlib import Path
+
+from sim.core.errors import InputError
+
+__all__ = ["write_report"]
+
+
+def _ci(row, m) -> str:
+    from sim.core.text import fmt_num
+
+    lo, hi = row.metrics.get(f"{m}.low", math.nan), row.metrics.get(f"{m}.high", math.nan)
+    if math.isnan(lo) or math.isnan(hi):
+        return "-"
+    return f"[{fmt_num(lo)}, {fmt_num(hi)}]"
+
+
+def _headline(exp, kind) -> list[str]:
+    names = set(exp.metric_names)
+    if exp.report.metrics:
+        return list(exp.report.metrics)
+    out = [m for m in kind.headline if m in names]
+    for extra in ("deviation.gain", "deviation.pays"):
+        if extra in names and extra not in out:
+            out.append(extra)
+    return out
+
+
+def default_figures(exp, kind, data) -> list:
+    """The figures drawn when the experiment names none (see the module notes)."""
+    from sim.runner.experiment import FigureSpec
+
+    multi = [p for p in exp.parameters if len(p) > 1]
+    numeric = [p for p in multi if p.numeric]
+    heads = [m for m in kind.headline[:2] if data.has(m)]
+    if data.has("deviation.gain"):
+        heads.append("deviation.gain")
+    out = []
+    if len(numeric) >= 2:
+        x, y = numeric[0], numeric[1]
+        if y.path in kind.threshold and x.path not in kind.threshold:
+            x, y = y, x
+        rest = [p for p in multi if p.path not in (x.path, y.path)]
+        if len(rest) <= 1 and (not rest or len(rest[0]) <= 12):
+            facet = rest[0].path if rest else None
+            for m in heads[:3]:
+                thr = kind.threshold.get(x.path)
+                out.append(FigureSpec("heatmap", x.path, m, y=y.path, threshold=thr if thr and data.has(thr) else None,
+                                      facet=facet))
+    if numeric:
+        x = next((p for p in numeric if p.path in kind.threshold), numeric[0])
+        rest = [p for p in multi if p.path != x.path]
+        if len(rest) <= 2:
+            group = rest[0].path if rest else None
+            facet = rest[1].path if len(rest) > 1 else None
+            if facet is not None and len(exp.parameter(facet)) > 12:
+                return out
+            for m in heads[:3]:
+                an = kind.analytic.get(m)
+                out.append(FigureSpec("line", x.path, m, analytic=an if an and data.has(an) else None, group=group,
+                                      facet=facet))
+    return out
+
+
+def _caption(spec) -> str:
+    at = "".join(f", at {p} = {lab}" for p, lab in spec.at)
+    return _caption_body(spec).rstrip(".") + at + "."
+
+
+def _caption_body(spec) -> str:
+    if spec.type == "heatmap":
+        c = f"{spec.metric} in each cell of the sweep over {spec.x} (horizontal) and {spec.y} (vertical)"
+        if spec.facet:
+            c += f", one panel per value of {spec.facet}"
+        if spec.threshold:
+            c += f"; dashed: the analytic critical value of {spec.x} ({spec.threshold})"
+        if spec.level is not None:
+            c += f"; solid: where the simulated {spec.metric} crosses {spec.level:g}"
+        return c + "; numbers are the cell values."
+    c = f"{spec.metric} against {spec.x}"
+    if spec.group:
+        c += f", one line per value of {spec.group}"
+    if spec.facet:
+        c += f", one panel per value of {spec.facet}"
+    c += "; band: 95 % confidence interval across replications where the cells report one"
+    if spec.analytic:
+        c += f"; dashed: the analytic prediction ({spec.analytic})"
+    return c + "."
+
+
+def _draw(spec, data):
+    import sim.evidence.figures as figures
+
+    if spec.type == "heatmap":
+        return figures.heatmap(data, spec.x, spec.y, spec.metric, threshold=spec.threshold, level=spec.level,
+                               facet=spec.facet, title=spec.title, at=spec.fixed())
+    return figures.lines(data, spec.x, spec.metric, analytic=spec.analytic, group=spec.group, facet=spec.facet,
+                         title=spec.title, at=spec.fixed())
+
+
+def _single_cell_figures(b, exp, row) -> None:
+    """Figures of a run without a sweep, from the cell's stored arrays."""
+    import numpy as np
+
+    from sim.evidence.figures import _plt
+
+    a = row.arrays
+    if "period" in a and "collusive_by_period" in a:
+        plt = _plt()
+        fig, ax = plt.subplots(figsize=(7, 3.8))
+        ax.plot(a["period"], a["collusive_by_period"], lw=1.4, label="simulated")
+        if "analytic.collusive_by_period" in a:
+            ax.plot(a["period"], a["analytic.collusive_by_period"], ls="--", color="black", lw=1.2, label="analytic")
+        ax.set_xlabel("period")
+        ax.set_ylabel("share of replications colluding")
+        ax.set_ylim(-0.02, 1.02)
+        ax.grid(alpha=0.3)
+        ax.legend(fontsize=8)
+        fig.tight_layout()
+        b.figure("collusive-share-by-period", fig, "Share of the replications still running in which every firm "
+                                                   "colludes, period by period; dashed: the analytic prediction "
+                                                   "where one exists.")
+    if "impulse.prices" in a:
+        plt = _plt()
+        P = np.asarray(a["impulse.prices"], dtype=float)
+        fig, ax = plt.subplots(figsize=(7, 3.8))
+        for i in range(P.shape[1]):
+            ax.plot(np.arange(P.shape[0]), P[:, i], marker="o", ms=3, label=f"firm {i + 1}")
+        ax.axvline(1, color="black", lw=0.5)
+        ax.set_xlabel("period (0: before the deviation, 1: deviation)")
+        ax.set_ylabel("action (price or quantity)")
+        ax.grid(alpha=0.3)
+        ax.legend(fontsize=8)
+        fig.tight_layout()
+        b.figure("impulse-response", fig, "Impulse response: mean actions after one firm is forced to deviate for one "
+                                          "period, over converged sessions.")
+
+
+def _prepare_target(target: Path, default: bool) -> None:
+    """Check that the bundle may be written at ``target``. A folder there must hold an earlier bundle
+    (replaced at the end); the run folder's own ``report/`` that does not is left over from a write
+    that was stopped (by an earlier version, or by hand), and is removed."""
+    from sim.evidence.bundle import clear_leftovers, holds_bundle
+
+    key = "RUN_DIR" if default else "--out"
+    clear_leftovers(target)
+    if not target.exists():
+        return
+    if not target.is_dir():
+        raise InputError(key, f"{target} exists and is not a folder")
+    if holds_bundle(target):
+        return
+    if default:
+        shutil.rmtree(target)
+        return
+    raise InputError(key, f"{target} exists and does not hold an evidence bundle; choose another folder")
+
+
+def write_report(folder, out=None, update_manifest: bool = True) -> Path:
+    """Write the evidence bundle of a finished run folder (default ``RUN_DIR/report``); return its path.
+
+    The bundle is written beside its folder and moved into place at the end (:class:`sim.evidence.bundle.Bundle`),
+    so a write that is stopped leaves the earlier report, or none. A bundle inside the run folder is
+    recorded in the run's manifest (unless ``update_manifest`` is false: the caller writes the manifest),
+    which must still match every other file of the folder (:func:`sim.runner.runs.check_manifest`).
+    """
+    from sim.runner.runs import REPORT_DIR, RunFolder, write_manifest
+
+    folder = Path(folder)
+    with RunFolder(folder) as rf:
+        _write(rf, folder, out, update_manifest)
+    target = Path(out) if out is not None else folder / REPORT_DIR
+    if _inside(folder, target) and update_manifest:
+        write_manifest(folder, (f"{_inside(folder, target)}/",))
+    return target
+
+
+def _inside(folder: Path, target: Path) -> str | None:
+    """``target`` relative to the run folder (POSIX), or None when it lies elsewhere."""
+    try:
+        return target.resolve().relative_to(folder.resolve()).as_posix()
+    except ValueError:
+        return None
+
+
+def _write(rf, folder: Path, out, update_manifest: bool) -> None:
+    from sim.evidence.bundle import Bundle
+    from sim.runner.runs import REPORT_DIR, check_manifest, clear_leftovers
+
+    exp = rf.experiment
+    kind = exp.kind_spec()
+    rows = rf.rows()
+    header, body = rf.table()
+    counts = rf.counts()
+    attempts = rf.attempts()
+    meta = rf.meta
+    if counts["missing"]:
+        raise InputError("RUN_DIR", f"{folder} is not finished: {counts['missing']} of {counts['total']} cells have no "
+                                    f"result yet; finish it with supergame run --resume {folder}")
+    target = Path(out) if out is not None else folder / REPORT_DIR
+    inside = _inside(folder, target)
+    if inside in ("", "."):
+        raise InputError("--out", f"{target} is the run folder itself; give a folder for the bundle")
+    rewritten = (f"{inside}/",) if inside else ()
+    if inside and update_manifest:
+        # before anything is written: every other file of the folder must be as its manifest records
+        clear_leftovers(folder)
+        check_manifest(folder, rewritten)
+    _prepare_target(target, default=out is None)
+    title = exp.report.title or f"{exp.name}: {kind.summary}"
+    with Bundle(target, title) as b:
+        _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, inside is not None
+              and Path(inside).parent.as_posix() == ".")
+
+
+def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, in_run_folder: bool) -> None:
+    """The content of a run's evidence bundle, read from the stored rows (see the module notes)."""
+    from sim.core.text import fmt_num
+    from sim.evidence.figures import SweepData
+    from sim.runner.experiment import leading_comment
+    from sim.runner.runs import (
+        ARRAYS_FILE,
+        CSV_FILE,
+        EXPERIMENT_COPY,
+        PARQUET_FILE,
+        SEED_RULE,
+        _iso,
+        code_notes,
+        sha256_file,
+    )
+    from sim.runner.store import STORE_FILE
+
+    desc = exp.description or leading_comment(exp.text or "")
+    b.paragraph(f"Experiment `{exp.name}` (kind `{exp.kind}`), run folder `{folder.name}`; {counts['total']} cell"
+                f"{'s' if counts['total'] != 1 else ''}, {counts['ok']} finished, {counts['failed']} failed.")
+    more = []  # the kind's own lines on reproducing its numbers
+    if kind.report is not None:
+        # the kind's own account of its results, read from the stored rows; the closing sections follow
+        more = list(kind.report(rf, b) or [])
+        b.table("results", header, body, show=False)
+        b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
+                    f"(also `{CSV_FILE}` in the run folder).", note=True)
+    else:
+        if desc:
+            b.heading("What the experiment asks")
+            for para in desc.split("\n\n"):
+                b.paragraph(" ".join(para.split()))
+        b.heading("Setup")
+        b.bullets(kind.describe(exp.doc) if kind.describe else [f"Kind: {exp.kind}"])
+        if exp.parameters:
+            b.paragraph("These are the file's settings; the values of "
+                        + ", ".join(f"`{p.path}`" for p in exp.parameters) + " are those of the sweep below.",
+                        note=True)
+        data = SweepData(list(exp.parameters), rows)
+        heads = _headline(exp, kind)
+        if exp.parameters:
+            b.heading("Sweep")
+            prow = [[p.path, ", ".join(p.labels), len(p)] for p in exp.parameters]
+            b.table("sweep", ["parameter", "values", "number"], prow, caption="Swept parameters")
+            groups = [" + ".join(g) for g in exp.groups if len(g) > 1]
+            how = "Every combination of the values (grid)" if exp.mode == "grid" else "Values taken together (zip)"
+            b.paragraph(how
+                        + (f"; varying together: {'; '.join(groups)}" if groups and exp.mode == "grid" else "")
+                        + f"; {exp.n_cells} cells. Each cell is one complete {exp.kind} run with the other settings of "
+                          "the file.")
+
+        b.heading("Results")
+        specs = list(exp.report.figures) or default_figures(exp, kind, data)
+        from sim.runner.experiment import figure_name
+
+        for i, spec in enumerate(specs):
+            if not data.has(spec.metric):
+                b.paragraph(f"Figure of {spec.metric} not drawn: no finished cell reports it.", note=True)
+                continue
+            b.figure(figure_name(spec, i), _draw(spec, data), _caption(spec))
+        if not exp.parameters and rows and rows[0].status == "ok":
+            _single_cell_figures(b, exp, rows[0])
+
+        if exp.parameters:
+            hdr = ["cell", *[p.path for p in exp.parameters]]
+            disp_rows, csv_rows = [], []
+            csv_hdr = list(hdr)
+            for m in heads:
+                hdr.append(m)
+                csv_hdr.append(m)
+                if any(f"{m}.low" in r.metrics for r in rows):
+                    hdr.append(f"{m} 95% CI")
+                    csv_hdr += [f"{m}.low", f"{m}.high"]
+            for r in rows:
+                labels = [r.labels[p.path] if not p.numeric else r.params[p.path] for p in exp.parameters]
+                d, c = [r.number, *labels], [r.number, *labels]
+                for m in heads:
+                    d.append(r.metrics.get(m, math.nan))
+                    c.append(r.metrics.get(m, math.nan))
+                    if any(f"{m}.low" in q.metrics for q in rows):
+                        d.append(_ci(r, m))
+                        c += [r.metrics.get(f"{m}.low", math.nan), r.metrics.get(f"{m}.high", math.nan)]
+                disp_rows.append(d)
+                csv_rows.append(c)
+            b.table("summary", hdr, disp_rows, caption="Headline results per cell", csv_rows=(csv_hdr, csv_rows),
+                    note="95 % confidence intervals across replications (simulation error only)")
+        elif rows and rows[0].status == "ok":
+            r = rows[0]
+            names = [m for m in exp.metric_names if not m.endswith((".se", ".low", ".high")) and not
+                     m.startswith("analytic.")] or sorted(r.metrics)
+            mrows = []
+            for m in names:
+                an = kind.analytic.get(m)
+                mrows.append([m, r.metrics.get(m, math.nan), _ci(r, m),
+                              r.metrics.get(an, math.nan) if an else math.nan])
+            mapped = set(kind.analytic.values())
+            for m in exp.metric_names:
+                if m.startswith("analytic.") and m not in mapped and math.isfinite(r.metrics.get(m, math.nan)):
+                    mrows.append([m, r.metrics[m], "-", math.nan])
+            b.table("summary", ["metric", "value", "95% CI", "analytic"], mrows, caption="Results", max_rows=200,
+                    note="rows analytic.*: the analytic baseline of the cell (closed forms and benchmarks)")
+        b.table("results", header, body, show=False)
+        b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
+                    f"(also `{CSV_FILE}` in the run folder).", note=True)
+
+        ok_rows = [r for r in rows if r.status == "ok"]
+        crit = sorted({m for r in ok_rows for m in r.metrics if m.startswith("analytic.critical_delta.")})
+        if crit and ok_rows:
+            b.heading("Analytic baseline")
+            trows = []
+            varies = False
+            for m in crit:
+                have = [r for r in ok_rows if m in r.metrics]
+                vals = {round(r.metrics[m], 12) for r in have if math.isfinite(r.metrics[m])}
+                v = have[0].metrics[m]
+                varies = varies or len(vals) > 1
+                trows.append([m.split(".", 2)[2].replace("_", " "),
+                              v if math.isfinite(v) else "not sustainable below one"])
+            b.table("analytic-baseline", ["scheme", "critical discount factor"], trows,
+                    caption="Critical discount factors of the punishment schemes played (perfect monitoring, infinite "
+                            "horizon)",
+                    note=("values of the first cell playing each scheme; they vary across cells (see the results "
+                          "table)" if varies else "the same in every cell playing the scheme"))
+
+    b.heading("Failed cells")
+    failed = [r for r in rows if r.status == "failed"]
+    if failed:
+        frows = [[r.number, "; ".join(f"{p} = {lab}" for p, lab in r.labels.items()), r.error or ""] for r in failed]
+        b.table("failed", ["cell", "swept values", "error"], frows, caption=f"{len(failed)} cells failed")
+    else:
+        b.paragraph("None: the cell finished without error." if counts["total"] == 1
+                    else f"None: all {counts['total']} cells finished without error.")
+
+    b.heading("Reproducing these numbers")
+    seed = meta.get("seed")
+    b.bullets([
+        f"Experiment file: `{EXPERIMENT_COPY}` (SHA-256 `{exp.sha256}`), copied into this bundle.",
+        (f"Seeds: {SEED_RULE.format(key=meta.get('seed_key'))}, with seed {seed} unless the sweep varies it. "
+         "Results do not depend on the number of workers or the backend."
+         if meta.get("seed_key") else "No random numbers: the kind is deterministic."),
+        f"Command: `{' '.join(attempts[0].get('command') or []) if attempts else ''}`"
+        + (f" (and {len(attempts) - 1} resumption{'s' if len(attempts) > 2 else ''})" if len(attempts) > 1 else ""),
+        f"Started {_iso(attempts[0]['started']) if attempts else '-'}, finished "
+        f"{_iso(max(a['finished'] or 0 for a in attempts)) if attempts else '-'} (UTC); cell compute time "
+        f"{fmt_num(sum(r.seconds or 0.0 for r in rows), 1)} s in total.",
+        "Software versions and platform: `manifest.json`.",
+        *more,
+        *[f"Note: {n}." for n in code_notes(attempts)],
+    ])
+    b.code(f"supergame run {EXPERIMENT_COPY}          # the same numbers, in a new run folder\n"
+           f"supergame verify {folder}           # check the hashes and re-run a sample of cells")
+
+    b.assumptions(list(kind.assumptions) + [
+        "Every number in this report is read from the stored results of the run (results.sqlite); nothing is "
+        "recomputed for the report.",
+    ])
+    b.attach(EXPERIMENT_COPY, (folder / EXPERIMENT_COPY).read_bytes())
+    data_files = {}
+    if in_run_folder:
+        for rel in (STORE_FILE, CSV_FILE, PARQUET_FILE, ARRAYS_FILE):
+            if (folder / rel).is_file():
+                data_files[f"../{rel}"] = sha256_file(folder / rel)
+    b.write(manifest={
+        "experiment": {"file": EXPERIMENT_COPY, "sha256": exp.sha256, "name": exp.name, "kind": exp.kind,
+                       "source": meta.get("source")},
+        "command": attempts[0].get("command") if attempts else None,
+        "attempts": [{"started": _iso(a["started"]), "finished": _iso(a["finished"]), "outcome": a["outcome"],
+                      "command": a.get("command"), "backend": a.get("backend")} for a in attempts],
+        "started": _iso(attempts[0]["started"]) if attempts else None,
+        "finished": _iso(max(a["finished"] or 0 for a in attempts)) if attempts else None,
+        "seeds": {"experiment_seed": seed, "seed_key": meta.get("seed_key"),
+                  "cells": [[r.number, r.seed] for r in rows] if len(rows) <= 10_000 else None},
+        "cells": {"total": counts["total"], "ok": counts["ok"], "failed": counts["failed"]},
+        "run_data": data_files,
+    })

@@ -1,0 +1,887 @@
+"""Experiment files: one schema for every kind of run, sweeps over any parameter, validated up front.
+
+An experiment file is TOML data (:func:`sim.core.tomlfile.read_toml`); nothing in it is ever executed. Its
+tables:
+
+``[experiment]``
+    ``name`` (run-folder names; letters, digits, ``.``, ``_``, ``-``), ``kind`` (``thresholds``,
+    ``simulate``, ``learn``, and the kinds other components register, see :mod:`sim.runner.kinds`),
+    ``description`` (free text for the report).
+the kind's own tables
+    ``[market]``, ``[collusion]``, ``[monitoring]``, ``[[strategies]]``, ``[run]``, ``[learning]``,
+    ``[[entrants]]``, ... -- each kind names the tables it reads and validates them with the
+    component's own validators (unknown keys refused).
+``[sweep]``
+    Parameter paths and their values. A path names a key of the file, with list entries counted from
+    1 as in error messages: ``run.delta``, ``monitoring.sigma``, ``strategies.1.length``,
+    ``market.cost.3``, ``strategies.1`` (a whole entry). Values are a list, or a range table:
+    ``{ start = 0.5, stop = 0.95, num = 10 }`` (evenly spaced, both ends included),
+    ``{ start = 1, stop = 10, step = 3 }``, ``{ start = 0.001, stop = 0.1, num = 5, log = true }``
+    (evenly spaced logarithms) or ``{ values = [...], labels = [...] }`` (labels shown in tables and
+    figures). Paths may be written quoted (``"run.delta" = [...]``) or as nested keys
+    (``run.delta = [...]``, or ``[sweep.run] delta = [...]``). ``mode = "grid"`` (default: every
+    combination) or ``"zip"`` (the i-th values together; equal lengths); ``zip = [["a", "b"]]`` ties
+    some paths together inside a grid.
+``[report]``
+    ``title``, ``metrics`` (the columns of the summary table) and ``[[report.figures]]`` (see
+    :data:`FIGURE_KEYS`).
+
+Every cell is built from the file by setting its swept values and validated by the kind before any
+work starts (:func:`experiment_from_dict`). Cells are numbered in grid order, the first path varying
+slowest, from 1 in everything users see (exports, tables, messages, ``supergame verify --cells``); a
+cell's random streams come from the experiment seed and its position counted from 0, ``index``
+(``SeedSequence(seed, spawn_key=(index,))``: cell 1 has the key ``(0,)``, the key of a file without a
+sweep), so results do not depend on the order in which cells run, on the number of workers or on the
+backend.
+"""
+
+from __future__ import annotations
+
+import copy
+import hashlib
+import json
+import math
+import numbers
+import re
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from sim.core.errors import InputError
+from sim.core.tables import refuse_unknown
+
+__all__ = [
+    "FIGURE_KEYS",
+    "MAX_CELLS",
+    "Cell",
+    "Experiment",
+    "FigureSpec",
+    "Parameter",
+    "ReportSettings",
+    "canonical_path",
+    "experiment_from_dict",
+    "load_experiment",
+    "parse_values",
+    "value_label",
+]
+
+#: the largest sweep accepted (cells)
+MAX_CELLS = 1_000_000
+#: keys of an ``[experiment]`` table
+EXPERIMENT_KEYS = ("name", "kind", "description")
+#: tables every experiment may have, whatever its kind
+COMMON_TABLES = ("experiment", "sweep", "report")
+_RANGE_KEYS = ("start", "stop", "num", "step", "log", "values", "labels")
+_SWEEP_RESERVED = ("mode", "zip")
+REPORT_KEYS = ("title", "metrics", "figures")
+#: keys of a ``[[report.figures]]`` entry
+FIGURE_KEYS = {
+    "type": "'heatmap' (a metric over two swept parameters) or 'line' (a metric against one)",
+    "x": "swept parameter on the horizontal axis",
+    "y": "heatmap: swept parameter on the vertical axis",
+    "metric": "metric shown (colour of a heatmap, height of a line)",
+    "threshold": "metric holding the analytic critical value of x (drawn as a curve over y, or a vertical line)",
+    "analytic": "line plots: metric holding the analytic prediction of the metric (dashed)",
+    "level": "heatmap: draw the contour where the metric equals this value (phase boundary)",
+    "group": "line plots: swept parameter with one line per value",
+    "facet": "swept parameter with one panel per value",
+    "at": "table fixing other swept parameters at one of their values, e.g. { \"run.delta\" = 0.8 }",
+    "title": "figure title",
+    "name": "file name of the figure (without extension)",
+}
+_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")
+
+
+# --------------------------------------------------------------------------------------------------
+# Paths and values
+# --------------------------------------------------------------------------------------------------
+
+
+def canonical_path(text: str, key: str = "sweep") -> str:
+    """``strategies[1].length`` or ``strategies.1.length`` -> ``strategies.1.length``."""
+    if not isinstance(text, str) or not text.strip():
+        raise InputError(key, f"a parameter path must be a non-empty string like 'run.delta', got {text!r}")
+    t = re.sub(r"\[(\d+)\]", r".\1", text.strip())
+    segs = t.split(".")
+    if any(s == "" for s in segs):
+        raise InputError(key, f"malformed parameter path {text!r} (expected keys separated by dots, e.g. "
+                              f"'strategies.1.length')")
+    return ".".join(segs)
+
+
+def _is_real(v: Any) -> bool:
+    return isinstance(v, numbers.Real) and not isinstance(v, bool)
+
+
+def _fmt_number(v) -> str:
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, numbers.Integral):
+        return str(int(v))
+    x = float(v)
+    return repr(x) if math.isfinite(x) else str(x)
+
+
+def value_label(value: Any) -> str:
+    """A short readable label of a swept value (numbers as written, tables as ``name(key=value)``)."""
+    if isinstance(value, str):
+        return value
+    if _is_real(value) or isinstance(value, bool):
+        return _fmt_number(value)
+    if isinstance(value, dict):
+        if "strategy" in value:
+            params = ", ".join(f"{k}={value_label(v)}" for k, v in value.items() if k not in ("strategy", "seats"))
+            return f"{value['strategy']}({params})" if params else str(value["strategy"])
+        return "{" + ", ".join(f"{k}={value_label(v)}" for k, v in value.items()) + "}"
+    if isinstance(value, list | tuple):
+        return "[" + ", ".join(value_label(v) for v in value) + "]"
+    return str(value)
+
+
+def canonical_json(value: Any) -> str:
+    """Deterministic JSON of plain data (sorted keys, shortest float repr, nan as null)."""
+    from sim.core.jsonutil import jsonable
+
+    return json.dumps(jsonable(value), sort_keys=True, separators=(",", ":"), allow_nan=False)
+
+
+def _clean(x: float) -> float:
+    """Round a computed grid point to 12 significant digits (0.7000000000000001 -> 0.7)."""
+    if x == 0 or not math.isfinite(x):
+        return x
+    return float(f"{x:.12g}")
+
+
+# --------------------------------------------------------------------------------------------------
+# Sweep parameters
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Parameter:
+    """One swept parameter.
+
+    Attributes
+    ----------
+    path : str
+        Canonical dotted path, e.g. ``strategies.1.length``.
+    values : tuple
+        The values, as plain TOML data.
+    labels : tuple of str
+        Display labels, one per value.
+    log : bool
+        The values come from a logarithmic range (figures use a log axis).
+    """
+
+    path: str
+    values: tuple
+    labels: tuple
+    log: bool = False
+
+    @property
+    def segments(self) -> tuple:
+        return tuple(self.path.split("."))
+
+    @property
+    def numeric(self) -> bool:
+        return all(_is_real(v) for v in self.values)
+
+    def __len__(self) -> int:
+        return len(self.values)
+
+
+def parse_values(spec: Any, key: str, max_values: int = MAX_CELLS) -> tuple[list, list[str], bool]:
+    """The values of one swept parameter (or of any range of values an experiment file gives).
+
+    This is the one range syntax of experiment files, shared by ``[sweep]`` and the readers of other
+    tables that take ranges (for example the assessment's sensitivity ranges).
+
+    Parameters
+    ----------
+    spec : list or dict
+        A non-empty list of values; or a range table: ``{ start, stop, num }`` (evenly spaced, both
+        ends included), ``{ start, stop, step }``, ``{ start, stop, num, log = true }`` (evenly
+        spaced logarithms), or ``{ values = [...], labels = [...] }`` (labels shown in tables and
+        figures).
+    key : str
+        Key path of ``spec`` in error messages, e.g. ``"sweep.run.delta"``.
+    max_values : int
+        The most values a range may make.
+
+    Returns
+    -------
+    values : list
+        Plain TOML data (integers stay integers when both ends and the step are integers).
+    labels : list of str
+        One distinct label per value (:func:`value_label` unless given).
+    log : bool
+        Whether the values come from a logarithmic range.
+
+    Raises
+    ------
+    InputError
+        Naming ``key`` (or ``key.start``, ``key.num``, ...), what is allowed and what was given; the
+        same value listed twice is refused.
+    """
+    if isinstance(spec, list):
+        if not spec:
+            raise InputError(key, "must be a non-empty list of values")
+        vals, labels, log = list(spec), None, False
+    elif isinstance(spec, dict):
+        vals, labels, log = _range_values(key, spec, max_values)
+    else:
+        raise InputError(key, f"must be a list of values or a range table {{ start, stop, num }}, got {spec!r}")
+    if labels is None:
+        labels = [value_label(v) for v in vals]
+        if len(set(labels)) != len(labels):
+            dup = next(lab for lab in labels if labels.count(lab) > 1)
+            raise InputError(key, f"lists the value {dup} twice")
+    return vals, list(labels), log
+
+
+def _range_values(key: str, spec: dict, max_values: int = MAX_CELLS) -> tuple[list, list | None, bool]:
+    refuse_unknown(spec, key, _RANGE_KEYS)
+    if "values" in spec:
+        extra = set(spec) - {"values", "labels"}
+        if extra:
+            raise InputError(f"{key}.{sorted(extra)[0]}", "a table with 'values' takes only 'labels' besides")
+        vals = spec["values"]
+        if not isinstance(vals, list) or not vals:
+            raise InputError(f"{key}.values", f"must be a non-empty list, got {vals!r}")
+        labels = spec.get("labels")
+        if labels is not None:
+            if not isinstance(labels, list) or len(labels) != len(vals) or not all(isinstance(s, str) for s in labels):
+                raise InputError(f"{key}.labels", f"must be a list of {len(vals)} strings (one per value), got "
+                                                  f"{labels!r}")
+            if len(set(labels)) != len(labels):
+                raise InputError(f"{key}.labels", "must be distinct")
+        return list(vals), labels, False
+    if "labels" in spec:
+        raise InputError(f"{key}.labels", "labels go with 'values'")
+    for k in ("start", "stop"):
+        if k not in spec:
+            raise InputError(f"{key}.{k}", "missing (a range needs start, stop and num or step)")
+        if not _is_real(spec[k]) or not math.isfinite(float(spec[k])):
+            raise InputError(f"{key}.{k}", f"must be a finite number, got {spec[k]!r}")
+    start, stop = spec["start"], spec["stop"]
+    log = spec.get("log", False)
+    if not isinstance(log, bool):
+        raise InputError(f"{key}.log", f"must be true or false, got {log!r}")
+    if ("num" in spec) == ("step" in spec):
+        raise InputError(key, "a range needs exactly one of num (number of points) and step")
+    ints = isinstance(start, numbers.Integral) and isinstance(stop, numbers.Integral)
+    if "num" in spec:
+        num = spec["num"]
+        if isinstance(num, bool) or not isinstance(num, numbers.Integral) or not 1 <= num <= max_values:
+            raise InputError(f"{key}.num", f"must be an integer in [1, {max_values}], got {num!r}")
+        num = int(num)
+        if num == 1 and start != stop:
+            raise InputError(f"{key}.num", f"must be at least 2 for a range from {start!r} to {stop!r}, got 1")
+        if log:
+            if not (start > 0 and stop > 0):
+                raise InputError(f"{key}.start", f"a log range needs start and stop > 0, got start {start!r}, stop "
+                                                 f"{stop!r}")
+            a, b = math.log(float(start)), math.log(float(stop))
+            vals = [_clean(math.exp(a + (b - a) * k / (num - 1))) if num > 1 else float(start) for k in range(num)]
+            vals[0], vals[-1] = float(start), float(stop)
+        else:
+            vals = [_clean(float(start) + (float(stop) - float(start)) * k / (num - 1)) if num > 1 else float(start)
+                    for k in range(num)]
+        if ints and all(float(v).is_integer() for v in vals):
+            vals = [int(v) for v in vals]
+        return vals, None, log
+    if log:
+        raise InputError(f"{key}.log", "a log range takes num, not step")
+    step = spec["step"]
+    if not _is_real(step) or not math.isfinite(float(step)) or step == 0:
+        raise InputError(f"{key}.step", f"must be a non-zero finite number, got {step!r}")
+    if (stop - start) * step < 0:
+        raise InputError(f"{key}.step", f"goes the wrong way from {start!r} to {stop!r}, got {step!r}")
+    n = math.floor((float(stop) - float(start)) / float(step) + 1e-9) + 1
+    if n > max_values:
+        raise InputError(f"{key}.step", f"makes {n} values, more than {max_values}")
+    if ints and isinstance(step, numbers.Integral):
+        return [int(start) + k * int(step) for k in range(n)], None, False
+    return [_clean(float(start) + k * float(step)) for k in range(n)], None, False
+
+
+def _is_range_spec(v: dict) -> bool:
+    """A range table (start/stop/num/step/log) or a values table -- not a nested path such as
+    ``[sweep.strategies.1] start = [0, 5]`` (a strategy parameter named ``start``)."""
+    if "values" in v and isinstance(v["values"], list):
+        return True
+    ends = [v[k] for k in ("start", "stop") if k in v]
+    return bool(ends) and all(not isinstance(x, list | dict) for x in ends)
+
+
+def _flatten_sweep(table: dict, prefix: str = "") -> list[tuple[str, Any]]:
+    """(path, spec) pairs of a [sweep] table, accepting quoted dotted keys and nested tables."""
+    out = []
+    for k, v in table.items():
+        if not prefix and k in _SWEEP_RESERVED:
+            continue
+        path = f"{prefix}.{k}" if prefix else k
+        if isinstance(v, list):
+            out.append((path, v))
+        elif isinstance(v, dict):
+            if _is_range_spec(v):
+                out.append((path, v))
+            elif not v:
+                raise InputError(f"sweep.{path}", "is an empty table; give a list of values or a range")
+            else:
+                out.extend(_flatten_sweep(v, path))
+        else:
+            raise InputError(f"sweep.{path}", f"must be a list of values or a range table {{ start, stop, num }}, "
+                                              f"got {v!r}")
+    return out
+
+
+def _parse_sweep(table: Any) -> tuple[tuple[Parameter, ...], tuple[tuple[str, ...], ...], str]:
+    if not isinstance(table, dict):
+        raise InputError("sweep", f"must be a table, got {table!r}")
+    mode = table.get("mode", "grid")
+    if mode not in ("grid", "zip"):
+        raise InputError("sweep.mode", f"must be one of 'grid', 'zip', got {mode!r}")
+    params: list[Parameter] = []
+    seen: dict[str, str] = {}
+    for raw, spec in _flatten_sweep(table):
+        key = f"sweep.{raw}"
+        path = canonical_path(raw, key)
+        if path in seen:
+            raise InputError(key, f"the same parameter is swept twice (also as {seen[path]!r})")
+        seen[path] = raw
+        vals, labels, log = parse_values(spec, key)
+        params.append(Parameter(path, tuple(vals), tuple(labels), log))
+    if not params:
+        raise InputError("sweep", "names no parameter; give e.g. \"run.delta\" = [0.8, 0.9]")
+    if mode == "zip":
+        if "zip" in table:
+            raise InputError("sweep.zip", "zip groups are for mode = 'grid' (mode = 'zip' ties every path already)")
+        groups = [tuple(p.path for p in params)]
+    else:
+        groups = []
+        used = set()
+        zt = table.get("zip", [])
+        if not isinstance(zt, list) or not all(isinstance(g, list) for g in zt):
+            raise InputError("sweep.zip", f"must be a list of lists of parameter paths, got {zt!r}")
+        zipped = {}
+        for gi, g in enumerate(zt):
+            if len(g) < 2:
+                raise InputError(f"sweep.zip[{gi + 1}]", f"must name at least two parameter paths, got {g!r}")
+            paths = []
+            for p in g:
+                cp = canonical_path(p, f"sweep.zip[{gi + 1}]")
+                if cp not in seen:
+                    raise InputError(f"sweep.zip[{gi + 1}]", f"{p!r} is not a swept parameter; swept: "
+                                                             f"{', '.join(seen)}")
+                if cp in used:
+                    raise InputError(f"sweep.zip[{gi + 1}]", f"{p!r} is in two zip groups")
+                used.add(cp)
+                paths.append(cp)
+            for cp in paths:
+                zipped[cp] = gi
+        done = set()
+        for p in params:
+            if p.path in zipped:
+                gi = zipped[p.path]
+                if gi not in done:
+                    done.add(gi)
+                    groups.append(tuple(canonical_path(x) for x in zt[gi]))
+            else:
+                groups.append((p.path,))
+    by_path = {p.path: p for p in params}
+    for g in groups:
+        lens = {len(by_path[p]) for p in g}
+        if len(lens) > 1:
+            desc = ", ".join(f"{p} has {len(by_path[p])}" for p in g)
+            key = "sweep.mode" if mode == "zip" else "sweep.zip"
+            raise InputError(key, f"zipped parameters need the same number of values: {desc}")
+    n = 1
+    for g in groups:
+        n *= len(by_path[g[0]])
+    if n > MAX_CELLS:
+        raise InputError("sweep", f"has {n} cells, more than {MAX_CELLS}; sweep fewer values")
+    return tuple(params), tuple(groups), mode
+
+
+def _set_path(doc: dict, path: str, value: Any, tables: tuple[str, ...]) -> None:
+    """Set ``path`` in ``doc`` (list entries counted from 1), creating missing tables on the way."""
+    segs = path.split(".")
+    key = f"sweep.{path}"
+    if segs[0] not in tables:
+        raise InputError(key, f"does not exist: {segs[0]!r} is not a table of this experiment's kind; tables: "
+                              f"{', '.join(tables)}")
+    if len(segs) == 1:
+        doc[segs[0]] = copy.deepcopy(value)
+        return
+    cur: Any = doc
+    for depth, s in enumerate(segs):
+        last = depth == len(segs) - 1
+        where = ".".join(segs[:depth]) or "the file"
+        if isinstance(cur, list):
+            if not s.isdigit() or not 1 <= int(s) <= len(cur):
+                raise InputError(key, f"does not exist: {where} has {len(cur)} entr{'y' if len(cur) == 1 else 'ies'} "
+                                      f"(counted from 1), got {s!r}")
+            if last:
+                cur[int(s) - 1] = copy.deepcopy(value)
+                return
+            cur = cur[int(s) - 1]
+        elif isinstance(cur, dict):
+            if last:
+                cur[s] = copy.deepcopy(value)
+                return
+            if s not in cur:
+                if s.isdigit():
+                    raise InputError(key, f"does not exist: {'.'.join(segs[:depth + 1])} is not in the file")
+                cur[s] = {}
+            cur = cur[s]
+        else:
+            raise InputError(key, f"does not exist: {where} is a value ({cur!r}), not a table or a list")
+
+
+# --------------------------------------------------------------------------------------------------
+# Report settings
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class FigureSpec:
+    """One ``[[report.figures]]`` entry (validated)."""
+
+    type: str
+    x: str
+    metric: str
+    y: str | None = None
+    threshold: str | None = None
+    analytic: str | None = None
+    level: float | None = None
+    group: str | None = None
+    facet: str | None = None
+    title: str | None = None
+    name: str | None = None
+    at: tuple = ()
+
+    def fixed(self) -> dict:
+        """Swept path -> label of the value the figure is drawn at."""
+        return dict(self.at)
+
+
+@dataclass(frozen=True)
+class ReportSettings:
+    title: str | None = None
+    metrics: tuple | None = None
+    figures: tuple = ()
+
+
+def _parse_report(table: Any, params: tuple[Parameter, ...]) -> ReportSettings:
+    refuse_unknown(table, "report", REPORT_KEYS)
+    title = table.get("title")
+    if title is not None and not isinstance(title, str):
+        raise InputError("report.title", f"must be a string, got {title!r}")
+    metrics = table.get("metrics")
+    if metrics is not None:
+        if not isinstance(metrics, list) or not metrics or not all(isinstance(m, str) for m in metrics):
+            raise InputError("report.metrics", f"must be a non-empty list of metric names, got {metrics!r}")
+        metrics = tuple(metrics)
+    figs = table.get("figures", [])
+    if not isinstance(figs, list):
+        raise InputError("report.figures", "must be an array of tables ([[report.figures]] entries)")
+    swept = {p.path: p for p in params}
+    out = []
+    names = set()
+    for i, f in enumerate(figs):
+        key = f"report.figures[{i + 1}]"
+        refuse_unknown(f, key, FIGURE_KEYS)
+        typ = f.get("type")
+        if typ not in ("heatmap", "line"):
+            raise InputError(f"{key}.type", f"must be one of 'heatmap', 'line', got {typ!r}")
+        for k in ("x", "metric") + (("y",) if typ == "heatmap" else ()):
+            if k not in f:
+                raise InputError(f"{key}.{k}", f"missing ({FIGURE_KEYS[k]})")
+        for k in f:
+            if k not in ("type", "level", "at") and not isinstance(f[k], str):
+                raise InputError(f"{key}.{k}", f"must be a string, got {f[k]!r}")
+        axes = {}
+        for k in ("x", "y", "group", "facet"):
+            if k in f:
+                cp = canonical_path(f[k], f"{key}.{k}")
+                if cp not in swept:
+                    raise InputError(f"{key}.{k}", f"{f[k]!r} is not a swept parameter; swept: "
+                                                   f"{', '.join(swept) or 'none'}")
+                axes[k] = cp
+        if len(set(axes.values())) != len(axes):
+            raise InputError(key, "x, y, group and facet must be different swept parameters")
+        if not swept[axes["x"]].numeric:
+            raise InputError(f"{key}.x", f"{axes['x']} must take numbers to be an axis; use it as group or facet")
+        if typ == "heatmap":
+            if not swept[axes["y"]].numeric:
+                raise InputError(f"{key}.y", f"{axes['y']} must take numbers to be an axis; use it as facet")
+            if "group" in f:
+                raise InputError(f"{key}.group", "is for line plots; a heatmap takes facet")
+            if "analytic" in f:
+                raise InputError(f"{key}.analytic", "is for line plots; a heatmap takes threshold and level")
+        else:
+            if "level" in f:
+                raise InputError(f"{key}.level", "is for heatmaps")
+        level = f.get("level")
+        if level is not None and (not _is_real(level) or not math.isfinite(float(level))):
+            raise InputError(f"{key}.level", f"must be a finite number, got {level!r}")
+        at = []
+        at_t = f.get("at", {})
+        if not isinstance(at_t, dict):
+            raise InputError(f"{key}.at", f"must be a table of swept parameters and values, got {at_t!r}")
+        for raw, v in _flatten_at(at_t):
+            cp = canonical_path(raw, f"{key}.at")
+            if cp not in swept:
+                raise InputError(f"{key}.at.{raw}", f"{raw!r} is not a swept parameter; swept: {', '.join(swept)}")
+            if cp in axes.values():
+                raise InputError(f"{key}.at.{raw}", f"{cp} is already an axis, group or facet of this figure")
+            p = swept[cp]
+            match = [lab for val, lab in zip(p.values, p.labels) if val == v or lab == v]
+            if not match:
+                raise InputError(f"{key}.at.{raw}", f"must be one of the swept values ({', '.join(p.labels)}), got "
+                                                    f"{v!r}")
+            at.append((cp, match[0]))
+        fixed = {p for p, _ in at}
+        rest = [p for p in params if p.path not in axes.values() and p.path not in fixed and len(p) > 1]
+        if rest:
+            p = rest[0]
+            raise InputError(key, f"the sweep also varies {p.path} ({len(p)} values); name it as "
+                                  f"{'group or facet' if typ == 'line' else 'facet'} of this figure, or fix it with "
+                                  f"at = {{ \"{p.path}\" = ... }}")
+        name = f.get("name")
+        if name is not None and not _NAME_RE.match(name):
+            raise InputError(f"{key}.name", f"must be letters, digits, '.', '_' or '-', got {name!r}")
+        spec = FigureSpec(type=typ, x=axes["x"], y=axes.get("y"), metric=f["metric"], threshold=f.get("threshold"),
+                          analytic=f.get("analytic"), level=None if level is None else float(level),
+                          group=axes.get("group"), facet=axes.get("facet"), title=f.get("title"), name=name,
+                          at=tuple(at))
+        fname = figure_name(spec, i)
+        if fname in names:
+            raise InputError(f"{key}.name", f"another figure is already called {fname!r}")
+        names.add(fname)
+        out.append(spec)
+    return ReportSettings(title=title, metrics=metrics, figures=tuple(out))
+
+
+def _flatten_at(t: dict, prefix: str = "") -> list:
+    out = []
+    for k, v in t.items():
+        path = f"{prefix}.{k}" if prefix else k
+        if isinstance(v, dict) and v and "strategy" not in v:
+            out.extend(_flatten_at(v, path))
+        else:
+            out.append((path, v))
+    return out
+
+
+def figure_name(spec: FigureSpec, index: int) -> str:
+    if spec.name:
+        return spec.name
+    base = f"{spec.type}-{spec.metric}-{spec.x}" + (f"-{spec.y}" if spec.y else "")
+    return f"{index + 1:02d}-" + re.sub(r"[^A-Za-z0-9._-]+", "_", base)
+
+
+# --------------------------------------------------------------------------------------------------
+# Experiments
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Cell:
+    """One cell of an experiment: its number, swept values and complete document.
+
+    Attributes
+    ----------
+    index : int
+        Position in grid order counted from 0 (0 for an experiment without a sweep); the cell's stream
+        key is ``(index,)``. Users see the cell as number ``index + 1`` (:attr:`number`).
+    values : dict of str to Any
+        Swept path -> value.
+    labels : dict of str to str
+        Swept path -> display label.
+    doc : dict
+        The experiment's tables with the swept values set (``[sweep]`` and ``[report]`` removed).
+    """
+
+    index: int
+    values: dict
+    labels: dict
+    doc: dict
+
+    @property
+    def number(self) -> int:
+        """The cell's number in exports and messages (counted from 1, like firms, seats and list entries)."""
+        return self.index + 1
+
+    def describe(self) -> str:
+        if not self.values:
+            return f"cell {self.number}"
+        return f"cell {self.number} (" + ", ".join(f"{p} = {self.labels[p]}" for p in self.values) + ")"
+
+
+@dataclass(frozen=True)
+class Experiment:
+    """A validated experiment file.
+
+    Attributes
+    ----------
+    name, kind, description : str
+    doc : dict
+        The kind's tables as given (no ``[sweep]``/``[report]``).
+    parameters : tuple of Parameter
+        Swept parameters (empty: one cell).
+    groups : tuple of tuple of str
+        Paths varying together, in grid order.
+    report : ReportSettings
+    text : str or None
+        The file's text (what the run folder keeps and hashes).
+    sha256 : str or None
+    source : str or None
+        Where the file was read from.
+    metric_names : tuple of str
+        Metrics a cell reports (from the kind, for the first cell).
+    """
+
+    name: str
+    kind: str
+    description: str
+    doc: dict
+    parameters: tuple
+    groups: tuple
+    mode: str
+    report: ReportSettings
+    text: str | None = None
+    sha256: str | None = None
+    source: str | None = None
+    metric_names: tuple = field(default=())
+
+    @property
+    def n_cells(self) -> int:
+        by = {p.path: p for p in self.parameters}
+        n = 1
+        for g in self.groups:
+            n *= len(by[g[0]])
+        return n
+
+    @property
+    def is_sweep(self) -> bool:
+        return bool(self.parameters)
+
+    def parameter(self, path: str) -> Parameter:
+        for p in self.parameters:
+            if p.path == path:
+                return p
+        raise KeyError(path)
+
+    def kind_spec(self):
+        from sim.runner.kinds import get_kind
+
+        return get_kind(self.kind)
+
+    def positions(self, index: int) -> dict:
+        """Swept path -> index of its value in cell ``index``."""
+        by = {p.path: p for p in self.parameters}
+        sizes = [len(by[g[0]]) for g in self.groups]
+        out = {}
+        rem = index
+        for g, size in zip(reversed(self.groups), reversed(sizes)):
+            k = rem % size
+            rem //= size
+            for p in g:
+                out[p] = k
+        return {p.path: out[p.path] for p in self.parameters}
+
+    def cell(self, index: int) -> Cell:
+        """Cell ``index`` (0 .. n_cells - 1) with its complete document."""
+        if not 0 <= index < self.n_cells:
+            raise IndexError(index)
+        pos = self.positions(index)
+        doc = copy.deepcopy(self.doc)
+        tables = self.kind_spec().tables
+        values, labels = {}, {}
+        for p in self.parameters:
+            v = p.values[pos[p.path]]
+            _set_path(doc, p.path, v, tables)
+            values[p.path] = v
+            labels[p.path] = p.labels[pos[p.path]]
+        return Cell(index, values, labels, doc)
+
+    def cells(self) -> Iterator[Cell]:
+        for i in range(self.n_cells):
+            yield self.cell(i)
+
+    def seed(self, doc: dict | None = None) -> int | None:
+        """The experiment seed (the kind's seed key, e.g. ``run.seed``) of the file or of a cell's document."""
+        return self.kind_spec().seed_of(self.doc if doc is None else doc)
+
+
+def _experiment_table(doc: dict, default_name: str | None) -> tuple[str, str, str]:
+    from sim.runner.kinds import known_kinds
+
+    exp = doc.get("experiment")
+    if exp is None:
+        raise InputError("experiment", f"missing: an experiment file starts with an [experiment] table giving its "
+                                       f"kind ({', '.join(known_kinds())})")
+    refuse_unknown(exp, "experiment", EXPERIMENT_KEYS)
+    if "kind" not in exp:
+        raise InputError("experiment.kind", f"missing; one of {', '.join(map(repr, known_kinds()))}")
+    kind = exp["kind"]
+    name = exp.get("name", default_name)
+    if name is None:
+        raise InputError("experiment.name", "missing (used to name run folders)")
+    if not isinstance(name, str) or not _NAME_RE.match(name):
+        raise InputError("experiment.name", f"must be 1 to 64 letters, digits, '.', '_' or '-' (starting with a "
+                                            f"letter or digit), got {name!r}")
+    desc = exp.get("description", "")
+    if not isinstance(desc, str):
+        raise InputError("experiment.description", f"must be a string, got {desc!r}")
+    return name, kind, desc
+
+
+_MISSING = object()
+
+
+def _lookup(doc: Any, path: str) -> Any:
+    """What ``path`` (list entries counted from 1) holds in ``doc``, or ``_MISSING``."""
+    cur = doc
+    for s in path.split("."):
+        if isinstance(cur, dict) and s in cur:
+            cur = cur[s]
+        elif isinstance(cur, list) and s.isdigit() and 1 <= int(s) <= len(cur):
+            cur = cur[int(s) - 1]
+        else:
+            return _MISSING
+    return cur
+
+
+def _sweep_error(exc: InputError, cell: Cell, swept: set, base: dict) -> InputError:
+    """Name the swept parameter behind a cell's validation error where there is one.
+
+    An error about a table or list that holds the swept path (the line-up, when a swept number of seats
+    does not fit the market) is about the cell's value; only when the file has a plain value there, and
+    the sweep had to make a table of it, does the path not exist."""
+    key = canonical_path(exc.key) if exc.key else ""
+    for p in sorted(swept, key=len, reverse=True):
+        if key == p or key.startswith(p + "."):
+            if "unknown" in exc.message and key == p:
+                return InputError(f"sweep.{p}", f"does not exist: {exc.key}: {exc.message}")
+            return InputError(f"sweep.{p}", f"{cell.describe()}: {exc.key} {exc.message}")
+        if key and p.startswith(key + "."):
+            if isinstance(_lookup(base, key), dict | list):
+                return InputError(f"sweep.{p}", f"{cell.describe()}: {exc.key}: {exc.message}")
+            return InputError(f"sweep.{p}", f"does not exist: {exc.key} is a value, not a table ({exc.message})")
+    where = f"{exc.key}: " if exc.key else ""
+    return InputError("sweep", f"{cell.describe()}: {where}{exc.message}")
+
+
+def experiment_from_dict(doc: dict, *, text: str | None = None, source: str | None = None,
+                         default_name: str | None = None, check_cells: bool = True) -> Experiment:
+    """Validate an experiment document (a parsed TOML file) and every cell of its sweep.
+
+    Raises :class:`InputError` naming the key path, the allowed values and what was given, before any
+    work starts. With ``check_cells=False`` only the file and the first cell are validated.
+    """
+    from sim.runner.kinds import get_kind
+
+    if not isinstance(doc, dict):
+        raise InputError("", "an experiment must be a table")
+    name, kind_name, desc = _experiment_table(doc, default_name)
+    kind = get_kind(kind_name, key="experiment.kind")
+    allowed = COMMON_TABLES + tuple(kind.tables)
+    for k in doc:
+        if k not in allowed:
+            raise InputError(k, f"unknown table for kind {kind_name!r}; allowed: {', '.join(allowed)}")
+    base = {k: copy.deepcopy(v) for k, v in doc.items() if k not in ("sweep", "report")}
+    if "sweep" in doc:
+        params, groups, mode = _parse_sweep(doc["sweep"])
+    else:
+        params, groups, mode = (), (), "grid"
+    report = _parse_report(doc.get("report", {}), params)
+    exp = Experiment(name, kind_name, desc, base, params, groups, mode, report, text,
+                     hashlib.sha256(text.encode("utf-8")).hexdigest() if text is not None else None, source)
+    swept = {p.path for p in params}
+    # the file without its sweep: an error that every cell shares is the file's own, reported plainly
+    base_error = None
+    if params:
+        try:
+            kind.prepare(copy.deepcopy(base))
+        except InputError as exc:
+            base_error = exc
+    first = None
+    n = exp.n_cells if check_cells else 1
+    for i in range(n):
+        cell = exp.cell(i)
+        try:
+            prepared = kind.prepare(cell.doc)
+        except InputError as exc:
+            if not params:
+                raise
+            if base_error is not None and (exc.key, exc.message) == (base_error.key, base_error.message):
+                raise base_error from None
+            raise _sweep_error(exc, cell, swept, base) from None
+        if first is None:
+            first = prepared
+    if base_error is not None and base_error.key and canonical_path(base_error.key) in swept \
+            and _lookup(base, canonical_path(base_error.key)) is not _MISSING:
+        # the whole file is validated: a value that the sweep replaces in every cell must be valid too
+        raise InputError(base_error.key, f"{base_error.message} (the file's own value, which [sweep] replaces "
+                                         "in every cell; give a valid one or leave it out)") from None
+    names = tuple(kind.metric_names(first)) if kind.metric_names is not None else ()
+    exp = Experiment(**{**exp.__dict__, "metric_names": names})
+    _check_report_metrics(exp, kind)
+    return exp
+
+
+def _check_report_metrics(exp: Experiment, kind) -> None:
+    names = set(exp.metric_names)
+    if not names:
+        return
+    hint = ", ".join(exp.metric_names[:12]) + (", ..." if len(exp.metric_names) > 12 else "")
+
+    def check(key, m):
+        if m not in names:
+            raise InputError(key, f"{m!r} is not a metric of kind {exp.kind!r}; metrics: {hint}")
+
+    for j, m in enumerate(exp.report.metrics or ()):
+        check(f"report.metrics[{j + 1}]", m)
+    for i, f in enumerate(exp.report.figures):
+        key = f"report.figures[{i + 1}]"
+        check(f"{key}.metric", f.metric)
+        if f.threshold:
+            check(f"{key}.threshold", f.threshold)
+        if f.analytic:
+            check(f"{key}.analytic", f.analytic)
+
+
+def leading_comment(text: str) -> str:
+    """The comment block at the top of an experiment file (what it shows), without the ``#`` marks."""
+    lines = []
+    for line in text.splitlines():
+        s = line.strip()
+        if s.startswith("#"):
+            lines.append(s[1:][1:] if s[1:].startswith(" ") else s[1:])
+        elif not s and lines:
+            lines.append("")
+        elif not s:
+            continue
+        else:
+            break
+    return "\n".join(lines).strip()
+
+
+def load_experiment(path, check_cells: bool = True) -> Experiment:
+    """Read and validate an experiment file (see the module notes); raises :class:`InputError`."""
+    from sim.core.tomlfile import read_toml
+
+    p = Path(path)
+    doc = read_toml(p)
+    text = p.read_bytes().decode("utf-8")
+    return experiment_from_dict(doc, text=text, source=str(path), default_name=_default_name(p),
+                                check_cells=check_cells)
+
+
+def _default_name(p: Path) -> str | None:
+    stem = re.sub(r"[^A-Za-z0-9._-]+", "-", p.stem).strip("-.")[:64]
+    return stem or None

@@ -1,0 +1,354 @@
+"""Experiment kinds: what one cell of an experiment is, and how to run it.
+
+A kind (:class:`Kind`) tells the experiments layer which tables of an experiment file it reads, how to
+validate one cell's document (``prepare``, raising :class:`~sim.core.errors.InputError` with the key path)
+and how to run it (``run``: the prepared config and a :class:`CellContext` in, a :class:`CellResult`
+out -- a flat dict of numbers and, optionally, a few arrays for figures). Everything else -- sweeps,
+seeds, workers, the store, exports, figures, the evidence bundle -- is shared.
+
+The built-in kinds (``thresholds``, ``simulate``, ``learn``) live in :mod:`sim.runner.analyses`. A component
+adds its kind with one line in :data:`LAZY_KINDS` (``"tournament": "sim.tournament.roundrobin:EXPERIMENT_KIND"``),
+imported on first use, or by calling :func:`register_kind`. A user's own kinds and strategies come
+only from Python code named on the command line (``--plugin FILE``) or from an installed package's
+entry point in the group ``supergame.plugins``; both run that code, with the user's rights. The
+experiment file itself is data and is never executed.
+
+Contract of ``run``: deterministic given the prepared config and ``ctx.index``, whatever
+``ctx.threads`` is; never prints; raises on failure (the sweep records the error and goes on).
+
+Stream keys (the one rule for every command)
+--------------------------------------------
+Cell k of an experiment -- counted from 1 in exports, tables and messages -- has ``ctx.index = k - 1``
+and draws every random number from ``numpy.random.SeedSequence(seed, spawn_key=ctx.key)`` with
+``ctx.key == (k - 1,)``; a part j of the cell (a replication, a session, a match) appends to it
+(``ctx.key + (j, ...)``). A file without a sweep is cell 1, with the key ``(0,)``. Every command that
+runs one experiment file by itself (``supergame simulate``, ``learn``, ``tournament``, ``assess``)
+uses that same key ``(0,)``, so that its numbers are those of ``supergame run FILE`` to the last digit
+and ``supergame verify`` can confirm them.
+"""
+
+from __future__ import annotations
+
+import importlib
+import importlib.util
+import json
+import math
+import numbers
+import sys
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from sim.core.errors import InputError
+
+__all__ = [
+    "LAZY_KINDS",
+    "CellContext",
+    "CellResult",
+    "Kind",
+    "get_kind",
+    "known_kinds",
+    "load_plugins",
+    "register_kind",
+]
+
+#: kind name -> "module:attribute" of its :class:`Kind`, imported on first use. Other components
+#: register their kind here with one line.
+LAZY_KINDS: dict[str, str] = {
+    "thresholds": "sim.runner.analyses:THRESHOLDS",
+    "simulate": "sim.runner.analyses:SIMULATE",
+    "learn": "sim.runner.analyses:LEARN",
+    "tournament": "sim.tournament.roundrobin:EXPERIMENT_KIND",
+    "assess": "sim.antitrust.assess:EXPERIMENT_KIND",
+}
+_KINDS: dict[str, Kind] = {}
+#: entry-point group of installed plugins (modules that register strategies or kinds on import)
+ENTRY_POINT_GROUP = "supergame.plugins"
+
+
+@dataclass(frozen=True)
+class CellContext:
+    """What a cell may know about how it is run.
+
+    Attributes
+    ----------
+    index : int
+        The cell's position counted from 0 (users see cell ``index + 1``); its random streams are
+        ``SeedSequence(seed, spawn_key=key)``.
+    threads : int
+        Threads the cell may use (results must not depend on it).
+    progress : bool
+        Whether the cell may show its own progress bar (only for a single in-process cell).
+    """
+
+    index: int = 0
+    threads: int = 1
+    progress: bool = False
+
+    @property
+    def key(self) -> tuple:
+        """The cell's stream key ``(index,)``: ``(0,)`` for a file without a sweep (see the module notes)."""
+        return (int(self.index),)
+
+
+@dataclass
+class CellResult:
+    """What one cell produced.
+
+    Attributes
+    ----------
+    metrics : dict of str to float
+        Flat numbers (``nan`` when undefined). Conventions: ``name.se``, ``name.low``, ``name.high``
+        for the standard error and confidence interval of ``name``; ``analytic.name`` for the analytic
+        prediction of ``name``; per-firm values as ``name.firm1``, ``name.firm2``, ...
+    arrays : dict of str to array-like or dict
+        Optional small arrays for figures (curves over periods, survival curves); a value that is a
+        dict is a JSON document the kind's ``report`` reads (plain data: numbers, strings, booleans,
+        None, lists and dicts; nan and inf are stored as None, dict keys come back sorted).
+    """
+
+    metrics: dict
+    arrays: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class Kind:
+    """An experiment kind (see the module notes).
+
+    Attributes
+    ----------
+    name : str
+        The value of ``experiment.kind``.
+    tables : tuple of str
+        Tables of the experiment file the kind reads (besides ``experiment``, ``sweep``, ``report``).
+    prepare : callable
+        ``prepare(doc) -> config``: validate one cell's document (a dict of tables); raise InputError.
+    run : callable
+        ``run(config, ctx) -> CellResult``.
+    metric_names : callable, optional
+        ``metric_names(config) -> list of str``, the metrics a cell reports (checked against
+        ``[report]``); the run must report exactly these.
+    seed_key : str or None
+        Key path of the experiment seed (``run.seed``); None for deterministic kinds.
+    headline : tuple of str
+        Metrics shown first in summaries and used by default figures.
+    analytic : mapping of str to str
+        Metric -> metric holding its analytic prediction (drawn beside it in line plots).
+    threshold : mapping of str to str
+        Swept path -> metric holding the analytic critical value of that parameter (for example
+        ``run.delta`` -> ``analytic.critical_delta``), drawn on heatmaps.
+    describe : callable, optional
+        ``describe(doc) -> list of str``: lines describing the setup, for the report.
+    assumptions : tuple of str
+        The model's assumptions and limitations, stated in the report.
+    summary : str
+        One line: what a cell of this kind computes.
+    report : callable, optional
+        ``report(run, bundle)``: the kind's own account of a finished run in its evidence bundle, in
+        place of the generic sections (what the experiment asks, setup, sweep, figures, result tables).
+        ``run`` is the open :class:`sim.runner.runs.RunFolder` (``run.experiment``, ``run.rows()`` with each
+        cell's metrics and arrays, ``run.meta``); ``bundle`` the :class:`sim.evidence.bundle.Bundle` being
+        written. Everything must be read from the stored rows, never recomputed. The results table,
+        failed cells, how to reproduce the numbers, the assumptions and the caution follow as for every
+        kind. It may return a list of lines added to "Reproducing these numbers" (None: none), set
+        ``bundle.title`` and add entries to ``bundle.manifest`` (merged with the report's own).
+    """
+
+    name: str
+    tables: tuple
+    prepare: Callable[[dict], Any]
+    run: Callable[[Any, CellContext], CellResult]
+    metric_names: Callable[[Any], Sequence[str]] | None = None
+    seed_key: str | None = "run.seed"
+    seed_default: int = 0
+    headline: tuple = ()
+    analytic: Mapping[str, str] = field(default_factory=dict)
+    threshold: Mapping[str, str] = field(default_factory=dict)
+    describe: Callable[[dict], list] | None = None
+    assumptions: tuple = ()
+    summary: str = ""
+    report: Callable[[Any, Any], None] | None = None
+
+    def seed_of(self, doc: dict) -> int | None:
+        """The seed a cell's document gives (``seed_default`` when the key is absent)."""
+        if self.seed_key is None:
+            return None
+        cur: Any = doc
+        for s in self.seed_key.split("."):
+            if not isinstance(cur, dict) or s not in cur:
+                return self.seed_default
+            cur = cur[s]
+        return int(cur) if isinstance(cur, numbers.Real) and not isinstance(cur, bool) else self.seed_default
+
+
+def register_kind(kind: Kind, replace: bool = False) -> Kind:
+    """Make ``kind`` available as ``experiment.kind = kind.name``."""
+    if not isinstance(kind, Kind):
+        raise TypeError(f"expected a sim.runner.kinds.Kind, got {kind!r}")
+    if kind.name in _KINDS and not replace and _KINDS[kind.name] is not kind:
+        raise ValueError(f"an experiment kind named {kind.name!r} is already registered")
+    _KINDS[kind.name] = kind
+    return kind
+
+
+def known_kinds() -> list[str]:
+    return sorted(set(_KINDS) | set(LAZY_KINDS))
+
+
+def get_kind(name: Any, key: str = "experiment.kind") -> Kind:
+    """The kind registered under ``name``; an unknown name raises InputError listing the known ones."""
+    if isinstance(name, str) and name not in _KINDS and name in LAZY_KINDS:
+        mod, _, attr = LAZY_KINDS[name].partition(":")
+        try:
+            obj = getattr(importlib.import_module(mod), attr)
+        except (ImportError, AttributeError):
+            raise InputError(key, f"kind {name!r} is not available in this installation ({LAZY_KINDS[name]} "
+                                  f"cannot be loaded)") from None
+        register_kind(obj, replace=True)
+    if not isinstance(name, str) or name not in _KINDS:
+        raise InputError(key, f"must be one of {', '.join(map(repr, known_kinds()))}, got {name!r}")
+    return _KINDS[name]
+
+
+# --------------------------------------------------------------------------------------------------
+# Metrics
+# --------------------------------------------------------------------------------------------------
+
+
+def clean_metrics(metrics: Mapping) -> dict:
+    """Metrics as plain floats (booleans as 0/1; None and non-finite as nan); refuses anything else."""
+    out = {}
+    for k, v in metrics.items():
+        if not isinstance(k, str) or not k:
+            raise TypeError(f"metric names must be non-empty strings, got {k!r}")
+        if v is None:
+            out[k] = math.nan
+        elif isinstance(v, bool | np.bool_):
+            out[k] = 1.0 if v else 0.0
+        elif isinstance(v, numbers.Real):
+            x = float(v)
+            out[k] = x if math.isfinite(x) else math.nan
+        else:
+            raise TypeError(f"metric {k!r} is not a number: {v!r}")
+    return out
+
+
+def clean_arrays(arrays: Mapping) -> dict:
+    """Arrays as nested lists of floats (nan kept), for JSON; a dict as its plain JSON data (nan and inf
+    as None, see :func:`sim.core.jsonutil.jsonable`)."""
+    from sim.core.jsonutil import jsonable
+
+    out = {}
+    for k, v in arrays.items():
+        if isinstance(v, Mapping):
+            doc = jsonable(dict(v))
+            json.dumps(doc, allow_nan=False)  # what JSON cannot hold fails in the cell, not in the store
+            out[str(k)] = doc
+            continue
+        a = np.asarray(v, dtype=float)
+        out[str(k)] = a.tolist()
+    return out
+
+
+# --------------------------------------------------------------------------------------------------
+# Plugins: Python code the user names explicitly (it runs with the user's rights)
+# --------------------------------------------------------------------------------------------------
+
+_LOADED_FILES: dict[str, str] = {}
+_ENTRY_POINTS_LOADED = False
+
+
+def file_digest(path) -> str:
+    """SHA-256 of a plugin file (hex)."""
+    from sim.core.tomlfile import file_sha256
+
+    return file_sha256(path)
+
+
+def load_plugin_file(path, key: str = "--plugin") -> dict:
+    """Import a plugin module from a file (once per process). Returns ``{"path", "sha256"}``.
+
+    A plugin registers strategies (:func:`strategies.register`) or kinds (:func:`register_kind`) when
+    imported. This runs the file's code. The module is imported under the file's stem (the name a
+    Dask worker gives it after ``Client.upload_file``); a module of that name imported already from a
+    file with the same SHA-256 (as ``upload_file`` does on a Dask worker) is that plugin, loaded. A file
+    that changed since this process loaded it is refused: the code running is the earlier one.
+    """
+    p = Path(path)
+    if not p.is_file():
+        raise InputError(key, f"no such file: {path}")
+    if p.suffix != ".py":
+        raise InputError(key, f"must be a Python file (.py), got {path}")
+    real = str(p.resolve())
+    digest = file_digest(p)
+    name = p.stem
+    if real in _LOADED_FILES:
+        if _LOADED_FILES[real] != digest:
+            raise InputError(key, f"{path} has changed since this process loaded it (SHA-256 "
+                                  f"{_LOADED_FILES[real][:12]}... then, {digest[:12]}... now); start again")
+        return {"path": str(path), "sha256": digest, "module": name}
+    present = sys.modules.get(name)
+    if present is not None and _module_digest(present) == digest:
+        _LOADED_FILES[real] = digest
+        return {"path": str(path), "sha256": digest, "module": name}
+    if present is not None or not name.isidentifier():
+        raise InputError(key, f"{path}: a plugin file needs a name of its own that is a valid module name (a module "
+                              f"named {name!r} exists or the name is not valid); rename the file")
+    spec = importlib.util.spec_from_file_location(name, real)
+    if spec is None or spec.loader is None:  # pragma: no cover - a .py file always has a loader
+        raise InputError(key, f"cannot import {path}")
+    mod = importlib.util.module_from_spec(spec)
+    sys.modules[name] = mod
+    try:
+        spec.loader.exec_module(mod)
+    except InputError:
+        raise
+    except Exception as exc:
+        sys.modules.pop(name, None)
+        raise InputError(key, f"{path} failed on import: {type(exc).__name__}: {exc}") from None
+    _LOADED_FILES[real] = digest
+    return {"path": str(path), "sha256": digest, "module": name}
+
+
+def _module_digest(module) -> str | None:
+    """SHA-256 of the file a module was imported from (None without one)."""
+    f = getattr(module, "__file__", None)
+    try:
+        return file_digest(f) if f and Path(f).is_file() else None
+    except OSError:
+        return None
+
+
+def plugin_loaded(record: dict) -> bool:
+    """Whether the plugin of a run's record (``path``, ``sha256``, ``module``) is imported in this
+    process with that SHA-256."""
+    present = sys.modules.get(record.get("module") or "")
+    return present is not None and _module_digest(present) == record.get("sha256")
+
+
+def load_entry_points() -> list[str]:
+    """Import the installed plugins (entry-point group ``supergame.plugins``), once per process."""
+    global _ENTRY_POINTS_LOADED
+    if _ENTRY_POINTS_LOADED:
+        return []
+    _ENTRY_POINTS_LOADED = True
+    from importlib.metadata import entry_points
+
+    names = []
+    for ep in sorted(entry_points(group=ENTRY_POINT_GROUP), key=lambda e: e.name):
+        obj = ep.load()
+        if callable(obj):
+            obj()
+        names.append(f"{ep.name} = {ep.value}")
+    return names
+
+
+def load_plugins(files: Sequence = (), entry_points: bool = True) -> list[dict]:
+    """Load plugin files (``--plugin``) and installed entry points; return what was loaded."""
+    out = [load_plugin_file(f) for f in files]
+    if entry_points:
+        out.extend({"entry_point": e} for e in load_entry_points())
+    return out

@@ -1,0 +1,404 @@
+"""The results store of a run: an embedded SQLite database with one committed row per finished cell.
+
+Durability: the database is in write-ahead-log mode and every finished cell is one transaction, so a
+process killed at any moment (even by SIGKILL) loses at most the cells still being computed; a
+resumed run (``supergame run FILE --resume RUN_DIR``) computes only the cells without a row. With
+``synchronous = NORMAL`` a committed row survives the death of the process; only a power failure of
+the machine could lose the last rows (never corrupting the database). When a run completes the log is
+folded back into the database file, which from then on does not change.
+
+Exports (:func:`export_table`, :func:`write_csv`, :func:`write_parquet`, :func:`frame`) read the rows in
+cell order and contain no timings or timestamps, so the files of an interrupted-and-resumed run are
+byte-identical to those of an uninterrupted one.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import sqlite3
+import time
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+__all__ = ["STORE_FILE", "DamagedStore", "Store", "export_table", "frame", "parquet_bytes", "write_csv",
+           "write_parquet"]
+
+STORE_FILE = "results.sqlite"
+SCHEMA_VERSION = 1
+
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS cells (
+    cell INTEGER PRIMARY KEY,
+    status TEXT NOT NULL CHECK (status IN ('ok', 'failed')),
+    params TEXT NOT NULL,
+    labels TEXT NOT NULL,
+    seed INTEGER,
+    error TEXT,
+    detail TEXT,
+    metrics TEXT NOT NULL,
+    arrays TEXT NOT NULL,
+    started REAL,
+    finished REAL,
+    seconds REAL,
+    worker TEXT,
+    attempt INTEGER
+);
+CREATE TABLE IF NOT EXISTS attempts (
+    attempt INTEGER PRIMARY KEY,
+    started REAL NOT NULL,
+    finished REAL,
+    outcome TEXT,
+    info TEXT NOT NULL
+);
+"""
+
+
+class DamagedStore(ValueError):
+    """A store whose contents cannot be read back (a row or a setting that is not what this module
+    wrote). SQLite's own damage reports are :class:`sqlite3.DatabaseError`."""
+
+
+def _loads(text: Any, what: str, typ: type = dict):
+    try:
+        out = json.loads(text)
+    except (TypeError, ValueError) as exc:
+        raise DamagedStore(f"{what}: not valid JSON ({exc})") from None
+    if typ is not None and not isinstance(out, typ):
+        raise DamagedStore(f"{what}: not a JSON {'object' if typ is dict else typ.__name__}")
+    return out
+
+
+def _dumps(obj: Any) -> str:
+    from sim.core.jsonutil import jsonable
+
+    return json.dumps(jsonable(obj), sort_keys=True, separators=(",", ":"), allow_nan=False)
+
+
+@dataclass
+class CellRow:
+    """One finished cell as stored (``metrics`` hold floats, nan for missing).
+
+    ``cell`` is the cell's index counted from 0, as in the store's ``cell`` column: the cell's stream key
+    (``SeedSequence(seed, spawn_key=(cell,))``). Everything shown to users -- exports, tables, messages
+    -- counts cells from 1 (:attr:`number`).
+    """
+
+    cell: int
+    status: str
+    params: dict
+    labels: dict
+    seed: int | None
+    error: str | None
+    metrics: dict
+    arrays: dict
+    started: float | None = None
+    finished: float | None = None
+    seconds: float | None = None
+    worker: str | None = None
+    detail: str | None = None
+    attempt: int | None = None
+
+    @property
+    def number(self) -> int:
+        """The cell's number as users see it (counted from 1)."""
+        return int(self.cell) + 1
+
+
+class Store:
+    """An open results database (see the module notes).
+
+    Parameters
+    ----------
+    path : path-like
+        The database file.
+    readonly : bool
+        Open without write access (reports, exports, verification).
+    """
+
+    def __init__(self, path, readonly: bool = False):
+        self.path = Path(path)
+        self.readonly = readonly
+        if readonly:
+            if not self.path.is_file():
+                raise FileNotFoundError(str(self.path))
+            self.con = sqlite3.connect(f"file:{self.path}?mode=ro", uri=True, isolation_level=None, timeout=30)
+        else:
+            self.con = sqlite3.connect(str(self.path), isolation_level=None, timeout=30)
+            self.con.execute("PRAGMA journal_mode=WAL")
+            self.con.execute("PRAGMA synchronous=NORMAL")
+            self.con.executescript(_SCHEMA)
+
+    # -- lifecycle ---------------------------------------------------------------------------------
+
+    @classmethod
+    def create(cls, path, meta: dict) -> Store:
+        """A new database holding ``meta`` (string keys, JSON-able values)."""
+        s = cls(path)
+        s.con.execute("BEGIN")
+        s.con.execute("INSERT OR REPLACE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
+        for k, v in meta.items():
+            s.con.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)", (k, _dumps(v)))
+        s.con.execute("COMMIT")
+        return s
+
+    def close(self) -> None:
+        if self.con is not None:
+            self.con.close()
+            self.con = None
+
+    def finalize(self) -> None:
+        """Fold the write-ahead log into the database file and leave it in rollback-journal mode, so
+        that the file no longer changes when it is read."""
+        self.con.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+        self.con.execute("PRAGMA journal_mode=DELETE")
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+        return False
+
+    # -- meta --------------------------------------------------------------------------------------
+
+    def meta(self) -> dict:
+        out = {}
+        for k, v in self.con.execute("SELECT key, value FROM meta ORDER BY key"):
+            try:
+                out[k] = _loads(v, f"setting {k!r}", None) if k != "schema_version" else int(v)
+            except (TypeError, ValueError) as exc:
+                raise DamagedStore(f"setting {k!r} cannot be read ({exc})") from None
+        return out
+
+    def set_meta(self, key: str, value: Any) -> None:
+        self.con.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)", (key, _dumps(value)))
+
+    # -- attempts ----------------------------------------------------------------------------------
+
+    def start_attempt(self, info: dict) -> int:
+        cur = self.con.execute("INSERT INTO attempts (started, info) VALUES (?, ?)", (time.time(), _dumps(info)))
+        return int(cur.lastrowid)
+
+    def finish_attempt(self, attempt: int, outcome: str, info: dict | None = None) -> None:
+        if info is not None:
+            old = json.loads(self.con.execute("SELECT info FROM attempts WHERE attempt = ?", (attempt,)).fetchone()[0])
+            old.update(info)
+            self.con.execute("UPDATE attempts SET finished = ?, outcome = ?, info = ? WHERE attempt = ?",
+                             (time.time(), outcome, _dumps(old), attempt))
+        else:
+            self.con.execute("UPDATE attempts SET finished = ?, outcome = ? WHERE attempt = ?",
+                             (time.time(), outcome, attempt))
+
+    def attempts(self) -> list[dict]:
+        rows = self.con.execute("SELECT attempt, started, finished, outcome, info FROM attempts ORDER BY attempt")
+        return [{"attempt": a, "started": s, "finished": f, "outcome": o, **_loads(i, f"attempt {a}")}
+                for a, s, f, o, i in rows]
+
+    # -- cells -------------------------------------------------------------------------------------
+
+    def record(self, row: CellRow) -> None:
+        """Store one finished cell in its own committed transaction. A cell already stored is kept (the
+        first result wins; a second, identical computation can only come from a duplicate submission)."""
+        self.con.execute(
+            "INSERT OR IGNORE INTO cells (cell, status, params, labels, seed, error, detail, metrics, arrays, started, "
+            "finished, seconds, worker, attempt) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+            (int(row.cell), row.status, _dumps(row.params), _dumps(row.labels), row.seed, row.error, row.detail,
+             _dumps(row.metrics), _dumps(row.arrays), row.started, row.finished, row.seconds, row.worker,
+             row.attempt),
+        )
+
+    def done(self) -> set[int]:
+        return {int(c) for (c,) in self.con.execute("SELECT cell FROM cells")}
+
+    def count(self) -> dict:
+        out = {"ok": 0, "failed": 0}
+        for status, n in self.con.execute("SELECT status, COUNT(*) FROM cells GROUP BY status"):
+            out[status] = int(n)
+        return out
+
+    def forget_failed(self) -> int:
+        cur = self.con.execute("DELETE FROM cells WHERE status = 'failed'")
+        return int(cur.rowcount)
+
+    def rows(self, cells=None, problems: list | None = None) -> list[CellRow]:
+        """Stored cells in cell order (all, or those in ``cells``, given by index counted from 0).
+
+        A row that cannot be read back raises :class:`DamagedStore`; with a list as ``problems``, it is
+        described there and left out instead.
+        """
+        q = ("SELECT cell, status, params, labels, seed, error, metrics, arrays, started, finished, seconds, worker, "
+             "detail, attempt FROM cells ORDER BY cell")
+        out = []
+        want = None if cells is None else {int(c) for c in cells}
+        for r in self.con.execute(q):
+            if want is not None and r[0] not in want:
+                continue
+            try:
+                out.append(_row(r))
+            except DamagedStore as exc:
+                if problems is None:
+                    raise
+                problems.append(str(exc))
+        return out
+
+    def failed(self) -> list[CellRow]:
+        return [r for r in self.rows() if r.status == "failed"]
+
+    def journal_mode(self) -> str:
+        """``"wal"`` while a run writes to the store, ``"delete"`` once :meth:`finalize` folded the log."""
+        return str(self.con.execute("PRAGMA journal_mode").fetchone()[0]).lower()
+
+
+def _row(r: tuple) -> CellRow:
+    """A stored row as written by :meth:`Store.record`, or :class:`DamagedStore`."""
+    cell = r[0]
+    if not isinstance(cell, int) or isinstance(cell, bool):
+        raise DamagedStore(f"a row has the cell number {cell!r}, not an integer")
+    what = f"the row of cell {cell + 1}"
+    metrics = _loads(r[6], f"{what}, metrics")
+    try:
+        metrics = {str(k): (math.nan if v is None else float(v)) for k, v in metrics.items()}
+    except (TypeError, ValueError):
+        raise DamagedStore(f"{what}, metrics: not all numbers") from None
+    if r[4] is not None and (not isinstance(r[4], int) or isinstance(r[4], bool)):
+        raise DamagedStore(f"{what}, seed: {r[4]!r} is not an integer")
+    return CellRow(cell, r[1], _loads(r[2], f"{what}, parameters"), _loads(r[3], f"{what}, labels"), r[4],
+                   r[5], metrics, _loads(r[7], f"{what}, arrays"), r[8], r[9], r[10], r[11], r[12], r[13])
+
+
+# --------------------------------------------------------------------------------------------------
+# Exports
+# --------------------------------------------------------------------------------------------------
+
+
+def _metric_order(rows: list[CellRow], declared=()) -> list[str]:
+    seen = list(declared)
+    have = set(seen)
+    extra = set()
+    for r in rows:
+        for k in r.metrics:
+            if k not in have:
+                extra.add(k)
+    return seen + sorted(extra)
+
+
+def export_table(rows: list[CellRow], parameters: list, declared_metrics=()) -> tuple[list[str], list[list]]:
+    """Columns and rows of the results table: cell (counted from 1), status, the swept parameters, seed, the
+    metrics (the kind's order, then any others sorted), error. Numeric parameters stay numbers; others are
+    labels."""
+    numeric = {p.path: p.numeric for p in parameters}
+    paths = [p.path for p in parameters]
+    metrics = _metric_order(rows, declared_metrics)
+    used = {k for r in rows for k in r.metrics}
+    metrics = [m for m in metrics if m in used or not rows]
+    header = ["cell", "status", *paths, "seed", *metrics, "error"]
+    body = []
+    for r in rows:
+        vals = [r.params[p] if numeric[p] else r.labels[p] for p in paths]
+        body.append([r.number, r.status, *vals, r.seed, *[r.metrics.get(m, math.nan) for m in metrics], r.error or ""])
+    return header, body
+
+
+def _csv_value(v) -> str:
+    # numpy scalars are written as the Python numbers they hold: repr(np.float64(x)) names the type.
+    if v is None:
+        return ""
+    if isinstance(v, (bool, np.bool_)):
+        return "true" if v else "false"
+    if isinstance(v, (float, np.floating)):
+        return "" if math.isnan(v) else repr(float(v))
+    if isinstance(v, np.integer):
+        return str(int(v))
+    return str(v)
+
+
+def csv_text(header: list[str], body: list[list]) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(header)
+    for row in body:
+        w.writerow([_csv_value(v) for v in row])
+    return buf.getvalue()
+
+
+def write_csv(path, header: list[str], body: list[list]) -> None:
+    Path(path).write_text(csv_text(header, body), encoding="utf-8")
+
+
+def _column_type(values: list) -> str:
+    vals = [v for v in values if v is not None and not (isinstance(v, float) and math.isnan(v))]
+    if vals and all(isinstance(v, int) and not isinstance(v, bool) for v in vals):
+        return "int"
+    if all(isinstance(v, int | float) and not isinstance(v, bool) for v in vals):
+        return "float"
+    return "str"
+
+
+def write_parquet(path, header: list[str], body: list[list]) -> bool:
+    """Write a Parquet file when pyarrow is installed (returns False otherwise). The file depends only on
+    the data and the pyarrow version."""
+    data = parquet_bytes(header, body)
+    if data is None:
+        return False
+    Path(path).write_bytes(data)
+    return True
+
+
+def parquet_table(header: list[str], body: list[list]):
+    """The results table as a pyarrow Table (None without pyarrow)."""
+    try:
+        import pyarrow as pa
+    except ImportError:
+        return None
+    cols = {}
+    for j, name in enumerate(header):
+        vals = [row[j] for row in body]
+        t = _column_type(vals) if name not in ("status", "error") else "str"
+        if t == "int":
+            cols[name] = pa.array([None if v is None else int(v) for v in vals], type=pa.int64())
+        elif t == "float":
+            cols[name] = pa.array([None if v is None else float(v) for v in vals], type=pa.float64())
+        else:
+            cols[name] = pa.array([None if v is None else str(v) for v in vals], type=pa.string())
+    return pa.table(cols)
+
+
+def parquet_bytes(header: list[str], body: list[list]) -> bytes | None:
+    """The bytes of the Parquet export (None without pyarrow): they depend only on the data and the
+    pyarrow version."""
+    table = parquet_table(header, body)
+    if table is None:
+        return None
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    buf = pa.BufferOutputStream()
+    pq.write_table(table, buf, compression="zstd", write_statistics=False)
+    return buf.getvalue().to_pybytes()
+
+
+def frame(header: list[str], body: list[list]):
+    """A pandas DataFrame of the results table (pandas is optional: ``pip install 'supergame[tables]'``)."""
+    try:
+        import pandas as pd
+    except ImportError:
+        raise ImportError("the DataFrame export needs pandas, which is not installed; install it with "
+                          "pip install 'supergame[tables]' (or read results.csv)") from None
+    data = {}
+    for j, name in enumerate(header):
+        vals = [row[j] for row in body]
+        t = _column_type(vals) if name not in ("status", "error") else "str"
+        if t == "int":
+            data[name] = pd.array([None if v is None else int(v) for v in vals], dtype="Int64")
+        elif t == "float":
+            data[name] = pd.array([math.nan if v is None else float(v) for v in vals], dtype="float64")
+        else:
+            data[name] = [None if v is None else str(v) for v in vals]
+    return pd.DataFrame(data, columns=header)

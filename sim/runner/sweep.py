@@ -1,0 +1,566 @@
+"""Running the cells of an experiment: in this process, in local worker processes, or on a Dask cluster.
+
+Every backend runs the same function on the same payload (:func:`run_payload`: the cell's number,
+its complete document and the kind's name -- plain data, never code), and every result is written to
+the store by this process as it arrives, one committed row per cell. A cell's random streams depend
+only on the experiment seed and the cell's number, so the numbers do not depend on the backend, the
+number of workers or the order in which cells finish.
+
+Backends
+--------
+``workers = 1``
+    Cells run one after the other in this process.
+``workers = N > 1`` (default: one per usable core)
+    N local worker processes (:class:`concurrent.futures.ProcessPoolExecutor`), each cell on one
+    thread. On Linux, workers are forked when this process has no other thread running (so they start
+    with the package already imported); otherwise they are spawned.
+``cluster = "local"``
+    A local Dask cluster (``dask.distributed.LocalCluster``) with N single-threaded worker processes.
+``cluster = "tcp://host:8786"``
+    An existing Dask scheduler; Dask decides which worker runs which cell. Start one with
+    ``dask scheduler`` on one machine and ``dask worker tcp://host:8786 --nthreads 1`` on each machine
+    (same Python environment with supergame installed; plugin files are uploaded to the workers).
+
+A cell that raises is recorded as failed with its error (one line) and the others go on. A worker
+process that dies takes only its cell down: the pool is rebuilt, the cells that were in flight are
+run again one at a time, and the one whose worker dies again is recorded as failed. On Dask, the
+scheduler runs again a cell whose worker died; a cell that killed its workers Dask's allowed number
+of times (``KilledWorker``) is recorded as failed, and the others go on.
+"""
+
+from __future__ import annotations
+
+import os
+import socket
+import sys
+import threading
+import time
+import traceback
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass
+
+from sim.core.errors import InputError
+
+__all__ = ["Backend", "execute", "run_payload", "usable_cores"]
+
+
+def usable_cores() -> int:
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
+
+
+# --------------------------------------------------------------------------------------------------
+# The work of one cell (runs in whatever process the backend chose)
+# --------------------------------------------------------------------------------------------------
+
+_WORKER_PLUGINS: set = set()
+#: how long to wait for a Dask scheduler named by --cluster ADDRESS
+CONNECT_TIMEOUT = "15s"
+
+
+def _ensure_plugins(plugins) -> None:
+    """Load the run's plugins in this (worker) process: from their files when this machine has them
+    (a plugin that ``Client.upload_file`` imported already counts when its SHA-256 is the run's), or as
+    uploaded; a plugin whose code differs from the run's is refused."""
+    from sim.runner.kinds import load_entry_points, load_plugin_file, plugin_loaded
+
+    load_entry_points()
+    for p in plugins or ():
+        key = p["sha256"]
+        if key in _WORKER_PLUGINS:
+            continue
+        if not plugin_loaded(p):
+            if not os.path.isfile(p["path"]):
+                raise RuntimeError(f"plugin {p['path']} is not available on this worker")
+            if load_plugin_file(p["path"])["sha256"] != key:
+                raise RuntimeError(f"plugin {p['path']} on this worker is not the file the run was started with "
+                                   "(its SHA-256 differs)")
+        _WORKER_PLUGINS.add(key)
+
+
+def run_payload(payload: dict) -> dict:
+    """Validate and run one cell; never raises for a failure of the cell itself.
+
+    ``payload``: ``kind``, ``index``, ``doc``, ``threads``, ``progress``, ``plugins``. Returns the
+    fields of a stored row: ``cell``, ``status``, ``metrics``, ``arrays``, ``error``, ``detail``,
+    ``started``, ``finished``, ``seconds`` (the kind's own compute), ``worker``.
+    """
+    from sim.runner.kinds import CellContext, clean_arrays, clean_metrics, get_kind
+
+    started = time.time()
+    out = {"cell": payload["index"], "started": started, "worker": f"{socket.gethostname()}:{os.getpid()}",
+           "metrics": {}, "arrays": {}, "error": None, "detail": None, "seconds": None}
+    try:
+        _ensure_plugins(payload.get("plugins"))
+        kind = get_kind(payload["kind"])
+        cfg = kind.prepare(payload["doc"])
+        ctx = CellContext(index=int(payload["index"]), threads=int(payload.get("threads", 1)),
+                          progress=bool(payload.get("progress", False)))
+        t0 = time.perf_counter()
+        res = kind.run(cfg, ctx)
+        out["seconds"] = time.perf_counter() - t0
+        out["metrics"] = clean_metrics(res.metrics)
+        out["arrays"] = clean_arrays(res.arrays or {})
+        out["status"] = "ok"
+    except (KeyboardInterrupt, SystemExit):
+        raise
+    except BaseException as exc:  # a failing cell is recorded, the sweep goes on
+        msg = str(exc).strip().splitlines()[0] if str(exc).strip() else ""
+        out["status"] = "failed"
+        out["error"] = f"{type(exc).__name__}: {msg}" if msg else type(exc).__name__
+        out["detail"] = traceback.format_exc(limit=20)
+        out["metrics"], out["arrays"] = {}, {}
+    out["finished"] = time.time()
+    return out
+
+
+def _worker_init(plugins) -> None:
+    """Initialiser of local worker processes: plugins loaded. (Cells ask for their number of threads
+    through ``numba.set_num_threads``; ``NUMBA_NUM_THREADS`` must not change once numba is imported.)"""
+    _ensure_plugins(plugins)
+
+
+# --------------------------------------------------------------------------------------------------
+# Backends
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass
+class Backend:
+    """How cells are run: ``kind`` is ``"serial"``, ``"processes"`` or ``"dask"``."""
+
+    kind: str
+    workers: int
+    address: str | None = None
+
+    def describe(self) -> str:
+        if self.kind == "serial":
+            return "this process"
+        if self.kind == "processes":
+            return f"{self.workers} local worker processes"
+        if self.address == "local":
+            return f"a local Dask cluster of {self.workers} workers"
+        return f"the Dask cluster at {self.address}"
+
+
+def choose_backend(workers: int | None, cluster: str | None, n_cells: int) -> Backend:
+    """Validated backend settings (``--workers``, ``--cluster``)."""
+    if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or not 1 <= workers <= 4096):
+        raise InputError("--workers", f"must be an integer in [1, 4096], got {workers!r}")
+    if cluster is not None:
+        if not isinstance(cluster, str) or not cluster.strip():
+            raise InputError("--cluster", f"must be 'local' or a scheduler address like tcp://host:8786, got "
+                                          f"{cluster!r}")
+        try:
+            import distributed  # noqa: F401
+        except ImportError:
+            raise InputError("--cluster", "needs Dask, which is not installed: pip install 'supergame[cluster]'") \
+                from None
+        return Backend("dask", workers or usable_cores(), cluster.strip())
+    w = workers or usable_cores()
+    if w == 1 or n_cells <= 1:
+        return Backend("serial", 1)
+    return Backend("processes", min(w, n_cells))
+
+
+def _numba_threads_started() -> bool:
+    mod = sys.modules.get("numba.np.ufunc.parallel")
+    return bool(getattr(mod, "_is_initialized", False)) if mod is not None else False
+
+
+def _mp_context():
+    import multiprocessing as mp
+
+    if sys.platform.startswith("linux") and threading.active_count() == 1 and not _numba_threads_started():
+        return mp.get_context("fork")
+    return mp.get_context("spawn")
+
+
+def _serial(payloads: Iterable[dict], on_result: Callable[[dict], None]) -> None:
+    for p in payloads:
+        on_result(run_payload(p))
+
+
+class _Feed:
+    """Payloads drawn lazily from an iterator, with cells to try again served first."""
+
+    def __init__(self, payloads: Iterable[dict]):
+        self.it = iter(payloads)
+        self.again: list[dict] = []
+
+    def next(self) -> dict | None:
+        if self.again:
+            return self.again.pop()
+        return next(self.it, None)
+
+    def push(self, p: dict) -> None:
+        self.again.append(p)
+
+
+def _died(i: int, why: str | None = None) -> dict:
+    now = time.time()
+    return {"cell": i, "status": "failed", "metrics": {}, "arrays": {}, "started": now, "finished": now,
+            "seconds": None, "worker": None, "detail": why,
+            "error": "WorkerDied: the worker process running this cell died"
+                     + (f" ({why.splitlines()[0][:300]})" if why else "")}
+
+
+def _processes(payloads: Iterable[dict], on_result, workers: int, plugins) -> None:
+    """Local worker processes. When a worker dies, every cell then in flight becomes a suspect and is run
+    again alone; a suspect whose worker dies while it runs alone is recorded as failed."""
+    from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+    from concurrent.futures.process import BrokenProcessPool
+
+    feed = _Feed(payloads)
+    suspects: set[int] = set()
+    ctx = _mp_context()
+    exhausted = False
+    while not exhausted or feed.again:
+        pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_worker_init,
+                                   initargs=(plugins,))
+        inflight: dict = {}
+        broken = False
+        try:
+            while True:
+                solo = len(inflight) == 1 and next(iter(inflight.values()))["index"] in suspects
+                while len(inflight) < 2 * workers and not broken and not solo:
+                    p = feed.next()
+                    if p is None:
+                        exhausted = True
+                        break
+                    if p["index"] in suspects:
+                        if inflight:  # a suspect runs alone: wait for the others first
+                            feed.push(p)
+                            break
+                        solo = True
+                    try:
+                        inflight[pool.submit(run_payload, p)] = p
+                    except BrokenProcessPool:
+                        feed.push(p)
+                        broken = True
+                if not inflight:
+                    break
+                done, _ = wait(list(inflight), return_when=FIRST_COMPLETED)
+                alone = len(inflight) == 1
+                for fut in done:
+                    p = inflight.pop(fut)
+                    try:
+                        res = fut.result()
+                    except BrokenProcessPool:
+                        broken = True
+                        if alone and p["index"] in suspects:
+                            on_result(_died(p["index"]))
+                        else:
+                            suspects.add(p["index"])
+                            feed.push(p)
+                        continue
+                    on_result(res)
+                if broken:
+                    # the pool is unusable: what was in flight becomes suspect; build a new pool
+                    for fut, p in inflight.items():
+                        fut.cancel()
+                        suspects.add(p["index"])
+                        feed.push(p)
+                    inflight.clear()
+                    exhausted = False
+                    break
+        finally:
+            pool.shutdown(wait=not broken, cancel_futures=True)
+        if not broken and exhausted:
+            break
+
+
+def _dask(payloads: Iterable[dict], on_result, backend: Backend, plugins) -> None:
+    """A Dask cluster. A cell whose workers died (``KilledWorker``: Dask's allowed failures used up)
+    may have shared a dying worker with the cell that killed it, so it becomes a suspect, as with local
+    processes: it is run again alone, and recorded as failed only if its worker dies then too."""
+    import itertools
+    import uuid
+    from concurrent.futures import CancelledError
+
+    from distributed import Client, LocalCluster, wait
+    from distributed.scheduler import KilledWorker
+
+    cluster = None
+    if backend.address == "local":
+        cluster = LocalCluster(n_workers=backend.workers, threads_per_worker=1, processes=True,
+                               dashboard_address=None, silence_logs=50)  # a dead cell is recorded: no log noise
+        client = Client(cluster)
+    else:
+        try:
+            client = Client(backend.address, timeout=CONNECT_TIMEOUT)
+        except OSError as exc:
+            raise InputError("--cluster", f"cannot reach the Dask scheduler at {backend.address} ({exc})") from None
+    token = uuid.uuid4().hex[:8]
+    serial = itertools.count()
+    try:
+        for p in plugins or ():
+            client.upload_file(p["path"])
+        n_workers = max(1, len(client.scheduler_info().get("workers", {})) or backend.workers)
+        window = max(8, 4 * n_workers)
+        feed = _Feed(payloads)
+        suspects: set[int] = set()
+        inflight: dict = {}
+
+        def submit(p):
+            # a key of its own for every submission: a cell run again is a new task
+            key = f"supergame-cell-{p['index']}-{token}-{next(serial)}"
+            inflight[client.submit(run_payload, p, key=key, pure=False)] = p
+
+        while True:
+            solo = len(inflight) == 1 and next(iter(inflight.values()))["index"] in suspects
+            while len(inflight) < window and not solo:
+                p = feed.next()
+                if p is None:
+                    break
+                if p["index"] in suspects:
+                    if inflight:  # a suspect runs alone: wait for the others first
+                        feed.push(p)
+                        break
+                    solo = True
+                submit(p)
+            if not inflight:
+                break
+            done, _ = wait(list(inflight), return_when="FIRST_COMPLETED")
+            alone = len(inflight) == 1
+            for fut in done:
+                p = inflight.pop(fut)
+                try:
+                    res = fut.result()
+                except KilledWorker as exc:
+                    if alone and p["index"] in suspects:
+                        res = _died(p["index"], f"KilledWorker: {str(exc).split('. ')[0]}")
+                    else:
+                        suspects.add(p["index"])
+                        feed.push(p)
+                        fut.release()
+                        continue
+                except CancelledError as exc:
+                    raise InputError("--cluster", f"the Dask cluster stopped running the cells "
+                                                  f"({type(exc).__name__}: {exc}); the finished cells are stored; "
+                                                  "finish the run with --resume") from None
+                on_result(res)
+                fut.release()
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
+
+
+def execute(payloads: Iterable[dict], on_result: Callable[[dict], None], backend: Backend, plugins=()) -> None:
+    """Run the payloads (drawn lazily) on the backend, calling ``on_result`` in this process for every
+    finished cell, in the order in which cells finish."""
+    if backend.kind == "serial":
+        _serial(payloads, on_result)
+    elif backend.kind == "processes":
+        _processes(payloads, on_result, backend.workers, plugins)
+    else:
+        _dask(payloads, on_result, backend, plugins)
+
+
+# --------------------------------------------------------------------------------------------------
+# Progress
+# --------------------------------------------------------------------------------------------------
+
+
+class Progress:
+    """Cells done and time left on a terminal (tqdm); silent when stderr is not a terminal."""
+
+    def __init__(self, total: int, done: int, desc: str, enabled: bool | None = None):
+        if enabled is None:
+            enabled = sys.stderr.isatty()
+        self.bar = None
+        self.failed = 0
+        if enabled:
+            from tqdm import tqdm
+
+            # no monitor thread: local workers are forked only while this process has a single thread
+            tqdm.monitor_interval = 0
+            self.bar = tqdm(total=total, initial=done, desc=desc, unit="cell", file=sys.stderr, leave=False,
+                            dynamic_ncols=True, smoothing=0.1)
+
+    def update(self, failed: bool) -> None:
+        if failed:
+            self.failed += 1
+        if self.bar is not None:
+            if failed:
+                self.bar.set_postfix(failed=self.failed, refresh=False)
+            self.bar.update(1)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
+
+
+# --------------------------------------------------------------------------------------------------
+# Benchmark (section ``sweep`` of ``supergame bench``)
+# --------------------------------------------------------------------------------------------------
+
+_BENCH_TINY = """
+[experiment]
+name = "bench-overhead"
+kind = "simulate"
+[market]
+model = "cournot"
+demand = "linear"
+intercept = 100.0
+cost = [10.0, 10.0, 14.0]
+[[strategies]]
+strategy = "grim_trigger"
+seats = 3
+[run]
+periods = 2
+replications = 2
+seed = 1
+[sweep]
+"run.delta" = {{ start = 0.5, stop = 0.99, num = {n} }}
+"""
+
+_BENCH_HEAVY = """
+[experiment]
+name = "bench-speedup"
+kind = "simulate"
+[market]
+model = "cournot"
+demand = "linear"
+intercept = 100.0
+cost = 10.0
+n_firms = 3
+[monitoring]
+signal = "price"
+sigma = 0.1
+[[strategies]]
+strategy = "trigger_price"
+trigger = 50.0
+length = 2
+seats = 3
+[run]
+periods = {periods}
+replications = {reps}
+seed = 2
+[sweep]
+"run.delta" = {{ start = 0.8, stop = 0.95, num = {n} }}
+"""
+
+
+_BENCH_CHILD = """
+import json, sys, tempfile, time, tomllib
+from pathlib import Path
+from sim.runner.experiment import experiment_from_dict
+from sim.runner.runs import run_experiment
+text = sys.stdin.read()
+exp = experiment_from_dict(tomllib.loads(text), text=text, source="bench")
+with tempfile.TemporaryDirectory() as tmp:
+    t0 = time.perf_counter()
+    s = run_experiment(exp, Path(tmp) / "run", workers=int(sys.argv[1]), progress=False)
+    seconds = time.perf_counter() - t0
+    csv = (Path(tmp) / "run" / "results.csv").read_text()
+print(json.dumps({"seconds": seconds, "ok": s.ok, "csv": csv, "backend": s.backend}))
+"""
+
+
+def _timed_run(text: str, workers: int) -> dict:
+    """Wall time of :func:`sim.runner.runs.run_experiment` in a fresh process (as ``supergame run`` runs it)."""
+    import json
+    import subprocess
+
+    proc = subprocess.run([sys.executable, "-c", _BENCH_CHILD, str(workers)], input=text, capture_output=True,
+                          text=True, check=False)
+    if proc.returncode != 0:
+        last = proc.stderr.strip().splitlines()[-1] if proc.stderr.strip() else "no output"
+        raise RuntimeError(f"timed sweep failed: {last}")
+    return json.loads(proc.stdout.strip().splitlines()[-1])
+
+
+def bench_section(opts) -> dict:
+    """Per-cell overhead of the sweep machinery and the speed-up of 2 local workers over 1.
+
+    * Overhead: sweeps of tiny cells (two periods, two replications) run through
+      :func:`sim.runner.runs.run_experiment` -- validation of every cell, payloads, one committed row per cell,
+      exports and manifest included -- against a plain loop calling the kind on the same cells. Two sweep
+      sizes separate the cost per cell (the slope: target < 5 ms) from the fixed cost of a run (run folder,
+      exports, manifest); the all-in cost per cell of the larger sweep is reported too. The same with 2
+      worker processes gives the cost per cell of the parallel path.
+    * Speed-up: a CPU-bound sweep (trigger-price strategies under demand shocks, each cell about a
+      second on one core, some 25 s in all) with 1 and with 2 local workers, each in a fresh process as
+      ``supergame run`` runs it; target >= 1.7. Both must give the same results file. The ratio includes
+      the fixed cost of starting the workers (each loads the compiled kernels, about half a second).
+    """
+    import tomllib
+
+    from sim.runner.experiment import experiment_from_dict
+    from sim.runner.kinds import CellContext
+
+    quick = bool(getattr(opts, "quick", False))
+    repeat = max(1, int(getattr(opts, "repeat", 1)))
+    sizes = (50, 300) if quick else (100, 1000)
+    heavy = {"n": 4, "periods": 500, "reps": 200} if quick else {"n": 24, "periods": 15000, "reps": 1000}
+
+    def load(text):
+        return experiment_from_dict(tomllib.loads(text), text=text, source="bench")
+
+    def best(fn):
+        t_best = float("inf")
+        for _ in range(repeat):
+            t0 = time.perf_counter()
+            fn()
+            t_best = min(t_best, time.perf_counter() - t0)
+        return t_best
+
+    res: dict = {}
+    for n in sizes:
+        text = _BENCH_TINY.format(n=n)
+        exp = load(text)
+        kind = exp.kind_spec()
+        cfgs = [(c.index, kind.prepare(c.doc)) for c in exp.cells()]
+        kind.run(cfgs[0][1], CellContext(0))  # compile or load the kernels
+
+        def direct(cfgs=cfgs, kind=kind):
+            for i, cfg in cfgs:
+                kind.run(cfg, CellContext(i))
+
+        # the sweeps run in fresh processes, as `supergame run` does (the one-time costs of a process,
+        # imports and loading the compiled kernels, are the same for both sizes and drop out of the slope)
+        res[n] = {"direct": best(direct),
+                  "sweep1": min(_timed_run(text, 1)["seconds"] for _ in range(repeat)),
+                  "sweep2": min(_timed_run(text, 2)["seconds"] for _ in range(repeat))}
+    a, b = sizes
+    extra1 = lambda n: res[n]["sweep1"] - res[n]["direct"]  # noqa: E731
+    extra2 = lambda n: res[n]["sweep2"] - res[n]["direct"] / 2  # noqa: E731
+    per_cell = (extra1(b) - extra1(a)) / (b - a)
+    per_cell2 = (extra2(b) - extra2(a)) / (b - a)
+    fixed = extra1(a) - a * per_cell
+    heavy_text = _BENCH_HEAVY.format(**heavy)
+    h1 = min((_timed_run(heavy_text, 1) for _ in range(repeat)), key=lambda r: r["seconds"])
+    h2 = min((_timed_run(heavy_text, 2) for _ in range(repeat)), key=lambda r: r["seconds"])
+    speedup = h1["seconds"] / h2["seconds"]
+    same = h1["csv"] == h2["csv"]
+    cores = usable_cores()
+    return {
+        "workload": (f"overhead: sweeps of {a} and {b} tiny simulate cells (2 periods x 2 replications); speed-up: "
+                     f"{heavy['n']} trigger-price cells of {heavy['periods']} periods x {heavy['reps']} replications "
+                     "x 3 firms"),
+        "overhead": {
+            f"direct_loop_seconds_{b}_cells": res[b]["direct"],
+            f"sweep_1_worker_seconds_{b}_cells": res[b]["sweep1"],
+            f"sweep_2_workers_seconds_{b}_cells": res[b]["sweep2"],
+            "per_cell_ms": 1000 * per_cell,
+            "per_cell_2_workers_ms": 1000 * per_cell2,
+            "fixed_per_run_seconds": fixed,
+            f"sweep_1_worker_seconds_{a}_cells": res[a]["sweep1"],
+            f"direct_loop_seconds_{a}_cells": res[a]["direct"],
+            f"all_in_per_cell_ms_{b}_cells": 1000 * extra1(b) / b,
+        },
+        "speedup": {"cells": heavy["n"], "one_worker_seconds": h1["seconds"], "two_workers_seconds": h2["seconds"],
+                    "ratio": speedup, "identical_results": bool(same), "usable_cores": cores,
+                    "two_worker_backend": h2["backend"]},
+        "targets": {
+            "per-cell overhead < 5 ms (1 worker)": per_cell < 0.005,
+            "2 workers >= 1.7 x 1 worker on a CPU-bound sweep": speedup >= 1.7,
+            "1 and 2 workers give identical results": bool(same),
+        },
+        "notes": (["quick workload: the targets refer to the full workload"] if quick else [])
+        + (["fewer than 2 usable cores: the speed-up target cannot be met here"] if cores < 2 else []),
+    }

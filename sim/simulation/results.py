@@ -1,0 +1,486 @@
+"""Persistence metrics of simulated collusion, each with a confidence interval.
+
+Definitions
+-----------
+A firm *colludes* in a period when its automaton is in a collusive state and it neither cheated nor
+made an implementation error; a period is *collusive* when every firm colludes. A *collusive spell*
+is a maximal run of collusive periods, a *price war* a maximal run of other periods: it counts the
+period of the deviation that set it off (cheating, a tremble), so a war answering one deviation with
+a T-period punishment lasts T + 1 periods. A *punishment phase* is a maximal run of periods in which
+some firm's automaton is in a non-collusive state (the deviation period itself is not part of it);
+under T-period Nash reversion every punishment phase lasts exactly T periods. The *time to first
+breakdown* is the number (counting from 1) of the first period that is not collusive.
+
+Estimators and intervals (``confidence`` level, 95 % by default; normal approximation)
+--------------------------------------------------------------------------------------
+The package's one convention (the learning sessions of :mod:`sim.learning.session` use these functions too):
+``z`` is the standard normal quantile of the level (:func:`normal_quantile`).
+
+* Means over replications (counts per replication, discounted profits): ``mean +- z s / sqrt(n)``.
+* Shares of replications (or sessions) with a property: the Wilson score interval (Wilson, 1927,
+  "Probable inference, the law of succession, and statistical inference", JASA 22), which keeps its
+  width at shares of 0 and 1 where ``p +- z sqrt(p (1 - p) / n)`` collapses to a point.
+* Shares and per-period averages (share of collusive periods, war frequency, mean profit, price,
+  consumer surplus): the ratio ``sum_r x_r / sum_r y_r`` of totals over replications (the mean of
+  per-replication averages when every replication has the same length), with the linearised
+  (delta-method) standard error across replications, ``sqrt(sum_r (x_r - R y_r)^2 / (n (n - 1))) / mean(y)``
+  (Cochran, 1977, "Sampling Techniques", section 6.4).
+* Lengths of spells and wars, and the time to first breakdown, are cut off by the horizon, so they
+  are estimated as survival data (a spell still running after ``l`` periods at the horizon is known
+  to outlive ``l - 1`` periods and is censored there; a replication without breakdown in ``H``
+  periods is censored at ``H``): Kaplan-Meier survival curves (Kaplan and Meier, 1958) with
+  Greenwood's pointwise variance, and the mean as the area under the curve (restricted to the longest
+  observation; a lower bound when the longest observation is cut off) with its Greenwood-type
+  standard error (Klein and Moeschberger, 2003, "Survival Analysis", section 4.5). For the time to
+  first breakdown each replication gives one independent observation. When no observation ended
+  (every one was cut off), the mean is only known to be at least the restricted area and no
+  interval is given. Spells and wars are pooled
+  across replications and treated as independent; this holds exactly when the line-up's play
+  regenerates at the start of each spell, as with every shipped strategy under i.i.d. noise.
+* Profit gain ``(profit - Nash) / (collusive - Nash)`` and overcharge ``price / Nash price - 1`` are
+  affine in a ratio estimate; their intervals are the same affine map of its interval.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import special
+
+import sim.simulation.kernel as K
+
+__all__ = ["Estimate", "SimulationResult", "Survival", "kaplan_meier", "mean_estimate", "normal_quantile",
+           "ratio_estimate", "summarize", "wilson_estimate"]
+
+
+def normal_quantile(confidence: float) -> float:
+    """``z`` with ``P(|Z| <= z) = confidence`` for a standard normal ``Z`` (1.95996... at 0.95)."""
+    return float(math.sqrt(2.0) * special.erfinv(confidence))
+
+
+_z = normal_quantile
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """A point estimate with its standard error and confidence interval.
+
+    Attributes
+    ----------
+    value, se, low, high : float
+        ``nan`` when undefined (e.g. no spell ended).
+    n : int
+        Number of independent observations behind it (replications, or spells).
+    method : str
+        ``"mean"``, ``"ratio"``, ``"wilson"``, ``"kaplan-meier"`` or ``"exact"``.
+    note : str
+        A remark for the reader (e.g. ``"at least"`` for a restricted mean cut off by the horizon).
+    """
+
+    value: float
+    se: float
+    low: float
+    high: float
+    n: int
+    method: str
+    note: str = ""
+
+    def to_dict(self) -> dict:
+        out = {"value": self.value, "se": self.se, "low": self.low, "high": self.high, "n": self.n,
+               "method": self.method}
+        if self.note:
+            out["note"] = self.note
+        return out
+
+    def affine(self, a: float, b: float) -> Estimate:
+        """The estimate of ``a + b x``."""
+        lo, hi = sorted((a + b * self.low, a + b * self.high))
+        return Estimate(a + b * self.value, abs(b) * self.se, lo, hi, self.n, self.method, self.note)
+
+
+def _interval(value: float, se: float, z: float) -> tuple[float, float]:
+    if not math.isfinite(se):
+        return math.nan, math.nan
+    return value - z * se, value + z * se
+
+
+def mean_estimate(x, confidence: float = 0.95) -> Estimate:
+    """Mean over replications with the normal-approximation interval."""
+    x = np.asarray(x, dtype=float)
+    n = x.shape[0]
+    m = float(x.mean()) if n else math.nan
+    se = float(x.std(ddof=1) / math.sqrt(n)) if n > 1 else math.nan
+    lo, hi = _interval(m, se, _z(confidence))
+    return Estimate(m, se, lo, hi, n, "mean")
+
+
+def wilson_estimate(k: int, n: int, confidence: float = 0.95) -> Estimate:
+    """Share ``k / n`` with the Wilson score interval (Wilson, 1927); ``se`` is the binomial
+    ``sqrt(p (1 - p) / n)``. The bounds are exactly 0 and 1 at ``k = 0`` and ``k = n``."""
+    k, n = int(k), int(n)
+    if n == 0:
+        return Estimate(math.nan, math.nan, math.nan, math.nan, 0, "wilson")
+    z = normal_quantile(confidence)
+    p = k / n
+    den = 1.0 + z * z / n
+    mid = (p + z * z / (2 * n)) / den
+    h = z * math.sqrt(p * (1.0 - p) / n + z * z / (4.0 * n * n)) / den
+    low = 0.0 if k == 0 else max(0.0, mid - h)  # the exact bounds at the ends, free of round-off
+    high = 1.0 if k == n else min(1.0, mid + h)
+    return Estimate(p, math.sqrt(p * (1.0 - p) / n), low, high, n, "wilson")
+
+
+def ratio_estimate(x, y, confidence: float = 0.95) -> Estimate:
+    """Ratio of totals ``sum(x) / sum(y)`` with the delta-method standard error across replications."""
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+    n = x.shape[0]
+    sy = float(y.sum())
+    if n == 0 or sy == 0:
+        return Estimate(math.nan, math.nan, math.nan, math.nan, n, "ratio")
+    R = float(x.sum()) / sy
+    if n > 1:
+        resid = x - R * y
+        se = math.sqrt(float(resid @ resid) / (n * (n - 1))) / (sy / n)
+    else:
+        se = math.nan
+    lo, hi = _interval(R, se, _z(confidence))
+    return Estimate(R, se, lo, hi, n, "ratio")
+
+
+@dataclass(frozen=True)
+class Survival:
+    """A Kaplan-Meier survival curve of lengths (spells, wars, time to first breakdown).
+
+    Attributes
+    ----------
+    lengths : int ndarray of shape (m,)
+        ``1 .. m``.
+    survival : ndarray of shape (m,)
+        ``S(l)``: estimated probability that the length exceeds ``l``.
+    se : ndarray of shape (m,)
+        Pointwise standard error of ``S(l)`` (Greenwood's formula).
+    low, high : ndarray of shape (m,)
+        Pointwise confidence band ``S +- z se``, clipped to [0, 1].
+    at_risk, ended, censored : int ndarray of shape (m,)
+    mean : Estimate
+        Area under the curve (restricted mean).
+    """
+
+    lengths: np.ndarray
+    survival: np.ndarray
+    se: np.ndarray
+    low: np.ndarray
+    high: np.ndarray
+    at_risk: np.ndarray
+    ended: np.ndarray
+    censored: np.ndarray
+    mean: Estimate
+
+    def to_dict(self, max_points: int = 200) -> dict:
+        m = self.lengths.shape[0]
+        idx = np.unique(np.round(np.linspace(0, m - 1, min(m, max_points))).astype(int)) if m else np.zeros(0, int)
+        return {"lengths": self.lengths[idx].tolist(), "survival": self.survival[idx].tolist(),
+                "low": self.low[idx].tolist(), "high": self.high[idx].tolist(), "mean": self.mean.to_dict(),
+                "ended": int(self.ended.sum()), "censored": int(self.censored.sum())}
+
+
+def kaplan_meier(ended, censored, confidence: float = 0.95, restrict: int | None = None) -> Survival:
+    """Kaplan-Meier curve from counts of lengths that ended and that were cut off.
+
+    Parameters
+    ----------
+    ended, censored : int array_like of shape (L + 1,)
+        Entry ``l`` counts observations of length ``l`` (entry 0 unused).
+    restrict : int, optional
+        Upper limit of the restricted mean (default: the longest observation).
+
+    Returns
+    -------
+    Survival
+    """
+    d = np.asarray(ended, dtype=np.int64)
+    c = np.asarray(censored, dtype=np.int64)
+    tot = d + c
+    nz = np.flatnonzero(tot[1:])
+    z = _z(confidence)
+    if nz.size == 0:
+        nan = Estimate(math.nan, math.nan, math.nan, math.nan, 0, "kaplan-meier", "no observation")
+        e = np.zeros(0, dtype=np.int64)
+        return Survival(e, np.zeros(0), np.zeros(0), np.zeros(0), np.zeros(0), e, e, e, nan)
+    m = int(nz[-1]) + 1 if restrict is None else int(restrict)
+    d = d[1:m + 1]
+    c = c[1:m + 1]
+    if d.shape[0] < m:
+        d = np.concatenate([d, np.zeros(m - d.shape[0], np.int64)])
+        c = np.concatenate([c, np.zeros(m - c.shape[0], np.int64)])
+    total = int(tot[1:].sum())
+    # at risk at length l: observations of length >= l
+    at_risk = total - np.concatenate([[0], np.cumsum(d + c)[:-1]])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        hazard = np.where(at_risk > 0, d / np.maximum(at_risk, 1), 0.0)
+        S = np.cumprod(1.0 - hazard)
+        gw_terms = np.where((at_risk > d) & (d > 0), d / (at_risk * (at_risk - d).astype(float)), 0.0)
+    gw = np.cumsum(gw_terms)
+    se_S = S * np.sqrt(gw)
+    lo = np.clip(S - z * se_S, 0.0, 1.0)
+    hi = np.clip(S + z * se_S, 0.0, 1.0)
+    # restricted mean: sum over l = 0 .. m-1 of S(l), with S(0) = 1
+    S_prev = np.concatenate([[1.0], S[:-1]])
+    mean = float(S_prev.sum())
+    # Greenwood-type variance: sum_l A_l^2 d_l / (n_l (n_l - d_l)), A_l = area under S from l on
+    A = np.cumsum(S[::-1])[::-1] - S[-1] if m > 0 else np.zeros(0)  # sum_{j=l}^{m-1} S(j)
+    var = float(np.sum(A * A * gw_terms))
+    if int(d.sum()) == 0:
+        # nothing ended: the area is a lower bound with no sampling variation to speak of, and a
+        # zero-width interval would read as certainty
+        se = math.nan
+        note = "at least (no observation ended within the horizon)"
+    else:
+        se = math.sqrt(var)
+        note = "at least (the longest observation was cut off by the horizon)" if S[-1] > 0 else ""
+    lo_m, hi_m = _interval(mean, se, z)
+    est = Estimate(mean, se, lo_m, hi_m, total, "kaplan-meier", note)
+    return Survival(np.arange(1, m + 1), S, se_S, lo, hi, at_risk.astype(np.int64), d, c, est)
+
+
+# --------------------------------------------------------------------------------------------------
+# The result of a simulation
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass
+class SimulationResult:
+    """Everything a simulation produced.
+
+    Attributes
+    ----------
+    settings : dict
+        Market, agreement, line-up, monitoring and run settings (as given, validated).
+    profits : ndarray of shape (n_reps, n_firms)
+        Mean per-period profit of each firm in each replication.
+    discounted : ndarray of shape (n_reps, n_firms)
+        Discounted sum of each firm's profits, ``sum_t delta^t pi_t``, in each replication.
+    periods : int ndarray of shape (n_reps,)
+        Periods played in each replication.
+    first_breakdown : int ndarray of shape (n_reps,)
+        Number of the first period that was not collusive (0: none within the horizon).
+    counts : dict of str to int ndarray of shape (n_reps,)
+        Per-replication counts: collusive periods, wars, wars that ended, cheats, trembles, ...
+    metrics : dict of str to Estimate
+        Market-level persistence metrics (see the module notes).
+    firm_metrics : dict of str to list of Estimate
+        Per-firm metrics (mean and discounted profit, profit gain), one entry per firm.
+    spells, wars, breakdown : Survival
+        Survival curves of collusive spells, price wars and the time to first breakdown.
+    punishments : Survival
+        Survival curve of punishment phases (see the module notes); its mean is
+        :attr:`punishment_length`.
+    collusive_by_period : ndarray of shape (n_periods,)
+        Share of the replications still running in period t in which every firm colluded.
+    reference : dict
+        Stage-game values the metrics refer to (Nash and collusive profits, Nash price, ...).
+    baseline : dict
+        The analytic baseline (:func:`sim.simulation.baseline.analytic_baseline`), empty when not asked for.
+    paths : dict or None
+        Full paths of the first ``run.paths`` replications.
+    """
+
+    settings: dict
+    profits: np.ndarray
+    discounted: np.ndarray
+    periods: np.ndarray
+    first_breakdown: np.ndarray
+    counts: dict
+    metrics: dict
+    firm_metrics: dict
+    spells: Survival
+    wars: Survival
+    breakdown: Survival
+    collusive_by_period: np.ndarray
+    reference: dict
+    baseline: dict = field(default_factory=dict)
+    paths: dict | None = None
+    punishments: Survival | None = None
+
+    @property
+    def n_reps(self) -> int:
+        return int(self.periods.shape[0])
+
+    @property
+    def punishment_length(self) -> Estimate:
+        """Mean length of a punishment phase (Kaplan-Meier, as the other lengths)."""
+        if self.punishments is None:
+            return Estimate(math.nan, math.nan, math.nan, math.nan, 0, "kaplan-meier", "undefined")
+        return self.punishments.mean
+
+    def to_dict(self, per_replication: bool = False) -> dict:
+        """Plain data (JSON-ready through :func:`sim.core.jsonutil.dumps`)."""
+        from sim.core.text import CAUTION
+
+        out = {
+            "settings": self.settings,
+            "metrics": {k: v.to_dict() for k, v in self.metrics.items()},
+            "firms": {k: [e.to_dict() for e in v] for k, v in self.firm_metrics.items()},
+            "survival": {"spells": self.spells.to_dict(), "wars": self.wars.to_dict(),
+                         "first_breakdown": self.breakdown.to_dict(),
+                         **({"punishments": self.punishments.to_dict()} if self.punishments is not None else {})},
+            "collusive_by_period": _thin(self.collusive_by_period),
+            "reference": self.reference,
+            "baseline": _baseline_dict(self.baseline),
+            "definitions": DEFINITIONS,
+        }
+        if per_replication:
+            out["replications"] = {
+                "profits": self.profits.tolist(), "discounted": self.discounted.tolist(),
+                "periods": self.periods.tolist(), "first_breakdown": self.first_breakdown.tolist(),
+                **{k: v.tolist() for k, v in self.counts.items()},
+            }
+        if self.paths is not None:
+            out["paths"] = {k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in self.paths.items()}
+        out["caution"] = CAUTION
+        return out
+
+
+#: what the lengths in the output count (see the module notes)
+DEFINITIONS = {
+    "collusive spell": "a maximal run of periods in which every firm colludes",
+    "price war": "a maximal run of periods that are not collusive; it includes the period of the deviation "
+                 "(cheating or a tremble) that set it off, so one deviation answered by a T-period punishment "
+                 "makes a war of T + 1 periods",
+    "punishment phase": "a maximal run of periods in which some firm's automaton is in a non-collusive state "
+                        "(survival.punishments); the deviation period is not part of it",
+    "first breakdown": "the number, counting from 1, of the first period that is not collusive",
+}
+
+
+def _thin(x: np.ndarray, max_points: int = 1000) -> dict:
+    n = x.shape[0]
+    idx = np.unique(np.round(np.linspace(0, n - 1, min(n, max_points))).astype(int)) if n else np.zeros(0, int)
+    return {"period": (idx + 1).tolist(), "share": x[idx].tolist()}
+
+
+def _baseline_dict(b: dict) -> dict:
+    out = {}
+    for k, v in b.items():
+        if k == "collusive_by_period":
+            continue
+        out[k] = v
+    if b.get("collusive_by_period") is not None:
+        out["collusive_by_period"] = _thin(np.asarray(b["collusive_by_period"]))
+    return out
+
+
+def summarize(raw, game, run: dict, confidence: float = 0.95, baseline: bool = True) -> SimulationResult:
+    """Turn the driver's raw arrays into a :class:`SimulationResult`."""
+    from sim.models.stagecore import evaluate_py
+
+    n = game.n_firms
+    ints = raw.ints
+    periods = ints[:, K.R_PERIODS].astype(float)
+    # the profiles the line-up plays (for homogeneous Bertrand with continuous prices they undercut
+    # by the effective tick where the analytic outcome is a limit, see sim.simulation.engine.stage_levels)
+    nash_a = np.asarray(game.levels.profiles["nash"], dtype=float)
+    coll_a = np.asarray(game.levels.profiles["collusive"], dtype=float)
+    _, _, pi_n, p_n, cs_n = evaluate_py(game.arrays, nash_a)
+    _, _, pi_c, p_c, cs_c = evaluate_py(game.arrays, coll_a)
+    metrics = {}
+    metrics["collusive_share"] = ratio_estimate(ints[:, K.R_COLLUSIVE], periods, confidence)
+    metrics["war_share"] = ratio_estimate(ints[:, K.R_WAR_PERIODS], periods, confidence)
+    metrics["wars_per_replication"] = mean_estimate(ints[:, K.R_WARS], confidence)
+    metrics["war_frequency"] = ratio_estimate(ints[:, K.R_WARS], periods, confidence)
+    # a spell or war cut off by the horizon after l periods is known to last at least l periods, i.e.
+    # to outlive l - 1: it is censored at l - 1 (counting it at risk at l would bias the curve upward)
+    spells = kaplan_meier(raw.hist[K.H_SPELL_ENDED], _cut_off(raw.hist[K.H_SPELL_CENSORED]), confidence)
+    wars = kaplan_meier(raw.hist[K.H_WAR_ENDED], _cut_off(raw.hist[K.H_WAR_CENSORED]), confidence)
+    fb = ints[:, K.R_FIRST_BREAKDOWN]
+    ended = np.bincount(fb[fb > 0], minlength=run["periods"] + 1)[: run["periods"] + 1]
+    cens = np.bincount(ints[fb == 0, K.R_PERIODS], minlength=run["periods"] + 1)[: run["periods"] + 1]
+    breakdown = kaplan_meier(ended, cens, confidence, restrict=run["periods"])
+    punishments = kaplan_meier(raw.hist[K.H_PUNISH_ENDED], _cut_off(raw.hist[K.H_PUNISH_CENSORED]), confidence)
+    metrics["spell_length"] = spells.mean
+    metrics["war_length"] = wars.mean
+    metrics["first_breakdown"] = breakdown.mean
+    metrics["broken_down"] = wilson_estimate(int((fb > 0).sum()), fb.shape[0], confidence)
+    metrics["price"] = ratio_estimate(raw.flts[:, K.F_PRICE_SUM], periods, confidence)
+    metrics["overcharge"] = metrics["price"].affine(-1.0, 1.0 / p_n) if p_n > 0 else _nan_est("price")
+    metrics["consumer_surplus"] = ratio_estimate(raw.flts[:, K.F_CS_SUM], periods, confidence)
+    joint = raw.profit_sum.sum(axis=1)
+    metrics["joint_profit"] = ratio_estimate(joint, periods, confidence)
+    jn, jc = float(pi_n.sum()), float(pi_c.sum())
+    metrics["profit_gain"] = (metrics["joint_profit"].affine(-jn / (jc - jn), 1.0 / (jc - jn))
+                              if jc > jn else _nan_est("ratio"))
+    firm = {"profit": [], "discounted_profit": [], "profit_gain": []}
+    for i in range(n):
+        e = ratio_estimate(raw.profit_sum[:, i], periods, confidence)
+        firm["profit"].append(e)
+        firm["discounted_profit"].append(mean_estimate(raw.disc[:, i], confidence))
+        gap = float(pi_c[i] - pi_n[i])
+        firm["profit_gain"].append(e.affine(-float(pi_n[i]) / gap, 1.0 / gap) if abs(gap) > 1e-12 * max(
+            1.0, abs(float(pi_c[i]))) else _nan_est("ratio"))
+    alive = raw.by_period[1]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        by_t = np.where(alive > 0, raw.by_period[0] / np.maximum(alive, 1), np.nan)
+    reference = {"nash_profit": pi_n.tolist(), "collusive_profit": pi_c.tolist(),
+                 "deviation_profit": np.asarray(game.levels.firm_profits["deviation"]).tolist(),
+                 "nash_price": p_n, "collusive_price": p_c, "nash_surplus": cs_n, "collusive_surplus": cs_c}
+    counts = {
+        "collusive_periods": ints[:, K.R_COLLUSIVE].copy(), "wars": ints[:, K.R_WARS].copy(),
+        "wars_ended": ints[:, K.R_WARS_ENDED].copy(), "war_periods": ints[:, K.R_WAR_PERIODS].copy(),
+        "spells": ints[:, K.R_SPELLS].copy(), "spells_ended": ints[:, K.R_SPELLS_ENDED].copy(),
+        "cheats": ints[:, K.R_CHEATS].copy(), "trembles": ints[:, K.R_TREMBLES].copy(),
+    }
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean_profit = raw.profit_sum / np.maximum(periods, 1)[:, None]
+    settings = _settings(game, run, confidence)
+    res = SimulationResult(settings, mean_profit, raw.disc.copy(), ints[:, K.R_PERIODS].copy(), fb.copy(), counts,
+                           metrics, firm, spells, wars, breakdown, by_t, reference, {}, _paths(raw, game),
+                           punishments)
+    if baseline:
+        from sim.simulation.baseline import analytic_baseline
+
+        res.baseline = analytic_baseline(game, run)
+    return res
+
+
+def _cut_off(hist: np.ndarray) -> np.ndarray:
+    """Lengths of runs cut off by the horizon -> censoring times (one period less, see summarize)."""
+    out = np.zeros_like(hist)
+    out[:-1] = hist[1:]
+    return out
+
+
+def _nan_est(method: str) -> Estimate:
+    return Estimate(math.nan, math.nan, math.nan, math.nan, 0, method, "undefined")
+
+
+def _settings(game, run: dict, confidence: float) -> dict:
+    lu = game.lineup
+    return {
+        "n_firms": game.n_firms,
+        "n_products": game.arrays.n_products,
+        "model": game.market.model,
+        "agreement": game.stage.agreement,
+        "lineup": [s.to_dict() for s in lu.strategies],
+        "monitoring": {k: v for k, v in game.monitoring.items() if k != "noise_code"},
+        "run": dict(run),
+        "confidence": confidence,
+        "levels": {k: np.asarray(v).tolist() for k, v in game.levels.profiles.items()},
+    }
+
+
+def _paths(raw, game) -> dict | None:
+    if raw.n_paths <= 0:
+        return None
+    k = raw.n_paths
+    length = raw.ints[:k, K.R_PERIODS].copy()
+    return {
+        "length": length,
+        "actions": raw.path_actions[:k], "prices": raw.path_prices[:k],
+        "market_price": raw.path_market[:k, :, K.M_PRICE], "shock": raw.path_market[:k, :, K.M_THETA],
+        "surplus": raw.path_market[:k, :, K.M_SURPLUS], "profits": raw.path_profit[:k],
+        "states": raw.path_state[:k], "flags": raw.path_flags[:k], "collusive": raw.path_collude[:k],
+        "state_names": [list(x) for x in game.lineup.state_names],
+    }
