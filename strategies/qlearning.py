@@ -233,12 +233,14 @@ class QLearner(Parametrized):
             raise InputError(key("init"), f"must have one column per action ({p['m']}), got shape {init.shape}")
         return p
 
-    def compile(self, market, seat: int, prefix: str = "") -> CompiledLearner:
-        """Resolve the learner for seat ``seat`` of ``market``.
+    def compile(self, stage, seat: int, prefix: str = "") -> CompiledLearner:
+        """Resolve the learner for seat ``seat`` of a market.
 
         Parameters
         ----------
-        market : sim.Market or sim.MarketSpec
+        stage : sim.StageGame or None
+            The market's stage game (its static-Nash and collusive actions place the published grid); only
+            read when no grid is given (None is then refused).
         seat : int
             The firm this learner plays (0-based).
         prefix : str
@@ -248,17 +250,14 @@ class QLearner(Parametrized):
         -------
         CompiledLearner
         """
-        from sim.theory.equilibrium import stage_game
 
         p = self.spec(prefix=prefix)
         if p["grid"] is not None:
             grid = p["grid"]
         else:
-            from sim.models.market import MarketSpec
-
-            ms = market if isinstance(market, MarketSpec) else market.spec()
-            st = stage_game(ms)
-            a_n, a_m = float(st.nash.actions[seat]), float(st.collusive.actions[seat])
+            if stage is None:
+                raise InputError(f"{prefix}.grid" if prefix else "grid", "give the grid or the market's stage game")
+            a_n, a_m = float(stage.nash.actions[seat]), float(stage.collusive.actions[seat])
             if not abs(a_m - a_n) > 1e-12 * max(1.0, abs(a_n)):
                 raise InputError(
                     f"{prefix}.grid" if prefix else "grid",

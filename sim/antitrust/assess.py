@@ -43,7 +43,6 @@ discount factor: the firms need less patience to sustain the agreement.
 
 from __future__ import annotations
 
-import contextlib
 import itertools
 import math
 import sys
@@ -51,10 +50,22 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+from tqdm import tqdm
 
+from sim.antitrust.calibration import MarketData, calibrate, data_from_dict
+from sim.antitrust.merger import Merger, difference, firm_shares, hhi, merge, merger_from_dict
 from sim.core.errors import InputError, SolverError
 from sim.core.params import Boolean, Integer, Options, Real
 from sim.core.tables import refuse_unknown
+from sim.core.text import CAUTION
+from sim.core.values import parse_values
+from sim.models.market import Market, market_from_dict
+from sim.models.monitoring import NORMAL_SIGMA_MAX, Monitoring, monitoring_from_dict
+from sim.simulation.engine import RUN_DEFAULTS, check_run, prepare_game, run_game
+from sim.simulation.results import summarize
+from sim.theory.equilibrium import collusive_outcome, stage_game, static_nash
+from sim.theory.thresholds import critical_discount_factors, partial_collusion
+from strategies.registry import lineup_from_tables
 
 __all__ = ["ASSESS_TABLES", "Assessment", "MarketSide", "PreparedAssessment", "assess", "assessment_from_dict",
            "asymmetry", "prepare_assessment", "run_assessment", "symmetric_counterpart"]
@@ -221,7 +232,6 @@ class Assessment:
     assumptions: list = field(default_factory=list)
 
     def to_dict(self) -> dict:
-        from sim.core.text import CAUTION
 
         return {
             "settings": self.settings,
@@ -268,8 +278,6 @@ def asymmetry(market, outcome=None) -> dict:
         variation), ``capacities``, ``capacity_shares`` and ``capacity_ratio`` (``None`` without
         capacities), ``products`` (number of products per firm).
     """
-    from sim.antitrust.merger import firm_shares, hhi
-    from sim.theory.equilibrium import static_nash
 
     ms = market if not hasattr(market, "spec") else market.spec()
     out = outcome if outcome is not None else static_nash(ms)
@@ -313,7 +321,6 @@ def symmetric_counterpart(market, n_products: int | None = None, keep_owner: boo
     products_per_firm : int
         Products of each firm with ``n_firms`` (above one only for differentiated products).
     """
-    from sim.models.market import Market
 
     ms = market.spec()
     owner = None
@@ -361,12 +368,11 @@ def _list_of(key: str, value, element, min_len: int = 0) -> list:
 
 def _range(key: str, value, element) -> tuple[np.ndarray, list | None, bool]:
     """Values of a sensitivity range in the range syntax of experiment files, the one of ``[sweep]``
-    (:func:`sim.runner.experiment.parse_values`): a list of values, ``{start, stop, num}`` (evenly spaced, both
+    (:func:`sim.core.values.parse_values`): a list of values, ``{start, stop, num}`` (evenly spaced, both
     ends included), ``{start, stop, step}``, ``{start, stop, num, log = true}`` or ``{values = [...],
     labels = [...]}``. Between 2 and 1000 values, each checked by ``element`` (key ``key[k]``,
     counted from 1); returned in increasing order with their labels (None unless given) and whether
     the range is logarithmic."""
-    from sim.runner.experiment import parse_values
 
     vals, labels, log = parse_values(value, key, max_values=1000)
     if len(vals) < 2:
@@ -457,7 +463,6 @@ class _Progress:
             enabled = sys.stderr.isatty()
         self.bar = None
         if enabled:
-            from tqdm import tqdm
 
             self.bar = tqdm(total=total, desc="assess", unit="step", leave=False, file=sys.stderr)
 
@@ -479,7 +484,6 @@ class _Progress:
 
 def _lineup_entries(lineup, n_firms: int) -> list:
     """Expand ``[[strategies]]`` entries into one entry per firm (validated)."""
-    from strategies.registry import lineup_from_tables
 
     if lineup is None:
         return [{"strategy": "grim_trigger"} for _ in range(n_firms)]
@@ -499,7 +503,6 @@ _NOISE_PARAMS = ("sigma", "perception_error", "implementation_error")
 def _noise_bounds(p: dict) -> dict:
     """Largest value of each noise parameter (the :class:`~sim.models.monitoring.Monitoring` constraints; a
     normal shock's sigma is capped at 1/3)."""
-    from sim.models.monitoring import NORMAL_SIGMA_MAX, Monitoring
 
     out = {k: Monitoring._constraints[k].high for k in _NOISE_PARAMS}
     if p["noise"] == "normal":
@@ -513,7 +516,6 @@ def _scaled(mon, k: float, key: str):
     Nothing is clipped: a scale that takes a parameter above its range raises :class:`InputError`
     under ``key`` (the setting that asked for the scale), naming the parameter, its range, the scaled
     value and the largest scale the experiment's noise allows."""
-    from sim.models.monitoring import Monitoring
 
     p = mon.validated()
     bounds = _noise_bounds(p)
@@ -662,11 +664,6 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
     compile the line-ups and build every monitoring setting the simulations will use (the
     experiment's, the rescaled one of the transparency factor, one per noise-sensitivity scale);
     raises :class:`InputError` naming the field. No threshold or simulation is computed yet."""
-    from sim.antitrust.calibration import MarketData, calibrate
-    from sim.antitrust.merger import Merger, merge
-    from sim.models.market import Market
-    from sim.models.monitoring import Monitoring, monitoring_from_dict
-    from sim.simulation.engine import RUN_DEFAULTS, check_run, prepare_game
 
     opts = _check_options(scheme, length, punishments, deltas, partial, growth, simulate, agreement,
                           transparency_scale)
@@ -705,7 +702,6 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
         raise InputError("strategies", "with monitoring.signal = 'price' give a line-up of price-watching "
                                        "strategies (for example trigger_price) as [[strategies]] entries")
     post_entries = [entries[i] for i in range(pre_ms.n_firms) if i not in mres.merging[1:]]
-    from sim.theory.equilibrium import collusive_outcome
 
     for mk in (pre, mres.post):
         # an agreement the market does not admit (e.g. 'proportional' with homogeneous Bertrand) is an
@@ -753,7 +749,6 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
 def run_assessment(p: PreparedAssessment, progress=None, key=(0,), threads: int | None = None) -> Assessment:
     """Compute a prepared assessment (see :func:`assess`, also for ``key``); ``threads`` caps the
     simulations' threads (results do not depend on it)."""
-    from sim.simulation.engine import prepare_game
 
     opts, data, calibration, merger, mres = p.opts, p.data, p.calibration, p.merger, p.mres
     mon, runs, sens, entries, post_entries, games = p.monitoring, p.runs, p.sens, p.entries, p.post_entries, p.games
@@ -797,8 +792,6 @@ def run_assessment(p: PreparedAssessment, progress=None, key=(0,), threads: int 
 
 
 def _side(label: str, market, names: list, opts: dict, bar: _Progress) -> MarketSide:
-    from sim.theory.equilibrium import stage_game
-    from sim.theory.thresholds import critical_discount_factors, partial_collusion
 
     st = stage_game(market, opts["agreement"])
     bar.step(f"stage game {label}")
@@ -816,15 +809,14 @@ def _side(label: str, market, names: list, opts: dict, bar: _Progress) -> Market
 
 
 def _run(game, runs: dict, key, threads: int | None = None) -> Any:
-    from sim.simulation.engine import run_game
-    from sim.simulation.results import summarize
 
     raw = run_game(game, runs["periods"], runs["replications"], runs["delta"], runs["seed"], key, runs["horizon"],
                    runs["continuation"], runs["paths"], threads, False)
     return summarize(raw, game, runs, confidence=0.95, baseline=False)
 
 
-def _headline(side: MarketSide, opts: dict):
+def headline_scheme(side: MarketSide, opts: dict):
+    """The threshold of the assessment's headline scheme on one side of the merger."""
     return side.scheme(opts["scheme"], opts["length"])
 
 
@@ -834,21 +826,22 @@ def _scheme_label(opts: dict) -> str:
     return SCHEME_NAMES[opts["scheme"]]
 
 
-def _none(x):
+def finite_or_none(x):
+    """``x`` as a float, None when it is None or not finite."""
     return None if x is None or not math.isfinite(x) else float(x)
 
 
 def _conclusion(before: MarketSide, after: MarketSide, opts: dict, delta: float, mres) -> dict:
-    from sim.antitrust.merger import difference
 
-    hb, ha = _headline(before, opts), _headline(after, opts)
+    hb, ha = headline_scheme(before, opts), headline_scheme(after, opts)
     direction = _compare(hb.market, ha.market)
     sb, sa = _sustains(hb.market, delta), _sustains(ha.market, delta)
     cat = _category(sb, sa)
     out = {
-        "scheme": _scheme_label(opts), "threshold_before": _none(hb.market), "threshold_after": _none(ha.market),
+        "scheme": _scheme_label(opts), "threshold_before": finite_or_none(hb.market),
+        "threshold_after": finite_or_none(ha.market),
         # within the comparison's tolerance the thresholds are the same, and the change is reported as 0
-        "change": ((0.0 if direction == "unchanged" else _none(difference(ha.market, hb.market)))
+        "change": ((0.0 if direction == "unchanged" else finite_or_none(difference(ha.market, hb.market)))
                    if hb.sustainable and ha.sustainable else None),
         "direction": direction, "binding_before": before.names[hb.binding], "binding_after": after.names[ha.binding],
         "delta": delta, "sustainable_before": sb, "sustainable_after": sa, "category": cat,
@@ -858,8 +851,8 @@ def _conclusion(before: MarketSide, after: MarketSide, opts: dict, delta: float,
     for sch, T in rows:
         b, a = before.scheme(sch, T), after.scheme(sch, T)
         out["schemes"].append({
-            "scheme": SCHEME_NAMES[sch] + (f", T={T}" if T else ""), "before": _none(b.market),
-            "after": _none(a.market), "binding_before": before.names[b.binding],
+            "scheme": SCHEME_NAMES[sch] + (f", T={T}" if T else ""), "before": finite_or_none(b.market),
+            "after": finite_or_none(a.market), "binding_before": before.names[b.binding],
             "binding_after": after.names[a.binding], "direction": _compare(b.market, a.market),
             "sustainable_before": _sustains(b.market, delta), "sustainable_after": _sustains(a.market, delta)})
     if before.simulation is not None and after.simulation is not None:
@@ -929,7 +922,6 @@ def _combine(dirs: list) -> str:
 
 
 def _scheme_threshold(market, opts) -> float:
-    from sim.theory.thresholds import critical_discount_factors
 
     rep = critical_discount_factors(market, punishments=opts["punishments"], deltas=(), agreement=opts["agreement"])
     if opts["scheme"] == "grim":
@@ -993,7 +985,8 @@ def _factors(pre, mres, before: MarketSide, after: MarketSide, opts: dict, delta
         t_m = (_scheme_threshold(symmetric_counterpart(pre, n_firms=F - 1, products_per_firm=k), opts) if F > 2
                else math.nan)
         row("firms", f"symmetric counterpart of the pre-merger market: {F} vs {F - 1} {per}", measure,
-            {"base": _none(t_n), "varied": _none(t_m), "base_label": f"{F} firms", "varied_label": f"{F - 1} firms",
+            {"base": finite_or_none(t_n), "varied": finite_or_none(t_m), "base_label": f"{F} firms",
+             "varied_label": f"{F - 1} firms",
              "products_per_firm": k},
             _direction_from(t_n, t_m) if F > 2 else "not computed", "; ".join(notes))
     except (InputError, SolverError) as exc:
@@ -1005,17 +998,17 @@ def _factors(pre, mres, before: MarketSide, after: MarketSide, opts: dict, delta
     for side in (before, after):
         try:
             sym = symmetric_counterpart(side.market, keep_owner=True)
-            t_act = _headline(side, opts).market
+            t_act = headline_scheme(side, opts).market
             a_ms, s_ms = side.market.spec(), sym.spec()
             if (np.array_equal(a_ms.cost, s_ms.cost) and np.array_equal(a_ms.demand.vector, s_ms.demand.vector)
                     and np.array_equal(a_ms.capacity, s_ms.capacity)):
-                vals[side.label] = {"actual": _none(t_act), "symmetric": _none(t_act)}
+                vals[side.label] = {"actual": finite_or_none(t_act), "symmetric": finite_or_none(t_act)}
                 dirs.append("not computed")
                 notes.append(f"{side.label}: costs and demand are already symmetric"
                              + (" (ownership is not)" if a_ms.multi_product else ""))
                 continue
             t_sym = _scheme_threshold(sym, opts)
-            vals[side.label] = {"actual": _none(t_act), "symmetric": _none(t_sym)}
+            vals[side.label] = {"actual": finite_or_none(t_act), "symmetric": finite_or_none(t_sym)}
             dirs.append(_direction_from(t_act, t_sym))
             if side.market.owner is not None:
                 notes.append(f"{side.label}: cost and demand asymmetries removed, ownership asymmetry kept")
@@ -1053,7 +1046,7 @@ def _factors(pre, mres, before: MarketSide, after: MarketSide, opts: dict, delta
     # often -- a structural property of the model, reported as how far each market is from its threshold
     vals = {}
     for side in (before, after):
-        t = _headline(side, opts).market
+        t = headline_scheme(side, opts).market
         if math.isfinite(_rank(t)) and 0 < t < 1 and 0 < delta < 1:
             vals[side.label] = {"threshold": t, "longest_interval": math.log(t) / math.log(delta),
                                 "sustainable_half_as_often": _sustains(t, delta ** 2),
@@ -1062,7 +1055,7 @@ def _factors(pre, mres, before: MarketSide, after: MarketSide, opts: dict, delta
         elif math.isfinite(_rank(t)) and t == 0:
             vals[side.label] = {"threshold": 0.0, "longest_interval": math.inf}
         else:
-            vals[side.label] = {"threshold": _none(t)}
+            vals[side.label] = {"threshold": finite_or_none(t)}
     row("frequency", "firms interact k times as often: the discount factor per interaction becomes delta^(1/k)",
         "longest interval between interactions (in periods) that still sustains collusion: ln(threshold) / ln(delta)",
         vals, STRUCTURAL, "the thresholds are per interaction; more frequent interaction raises the discount factor "
@@ -1073,10 +1066,10 @@ def _factors(pre, mres, before: MarketSide, after: MarketSide, opts: dict, delta
     g = opts["growth"]
     vals = {}
     for side in (before, after):
-        t = _headline(side, opts).market
+        t = headline_scheme(side, opts).market
         up, down = min(delta * (1 + g), 1.0 - 1e-15), delta * (1 - g)
-        vals[side.label] = {"threshold": _none(t), "growth_needed": (t / delta - 1.0) if math.isfinite(_rank(t))
-                            and delta > 0 else None,
+        vals[side.label] = {"threshold": finite_or_none(t),
+                            "growth_needed": (t / delta - 1.0) if math.isfinite(_rank(t)) and delta > 0 else None,
                             "sustainable_declining": _sustains(t, down), "sustainable": _sustains(t, delta),
                             "sustainable_growing": _sustains(t, up)}
     row("growth", f"demand growing (declining) by {g:g} per period: effective discount factor delta (1 +/- g)",
@@ -1105,7 +1098,6 @@ def _flips(x: np.ndarray, y: np.ndarray) -> list:
 
 def _signed_change(before: float, after: float) -> float:
     """After minus before, with 'not sustainable' as +1 beyond one: for locating flips."""
-    from sim.antitrust.merger import difference
 
     b = before if math.isfinite(_rank(before)) else 2.0
     a = after if math.isfinite(_rank(after)) else 2.0
@@ -1114,10 +1106,6 @@ def _signed_change(before: float, after: float) -> float:
 
 def _sensitivity(data, merger, sens: dict, opts: dict, runs: dict, noise_mons: list, entries, post_entries, before,
                  after, delta: float, bar, key=(0,), threads=None) -> dict:
-    from sim.antitrust.calibration import calibrate
-    from sim.antitrust.merger import difference, merge
-    from sim.simulation.engine import prepare_game
-    from sim.theory.thresholds import partial_collusion
 
     out = {}
     for name in SENSITIVITY_INPUTS:
@@ -1148,8 +1136,9 @@ def _sensitivity(data, merger, sens: dict, opts: dict, runs: dict, noise_mons: l
         change = np.array([_signed_change(b, a) if k else math.nan for b, a, k in zip(pre_t, post_t, ok)])
         observed = _observed_input(data, name)
         out[name] = {
-            "values": np.asarray(xs).tolist(), "observed": observed, "threshold_before": [_none(v) for v in pre_t],
-            "threshold_after": [_none(v) for v in post_t], "binding_before": binding_pre,
+            "values": np.asarray(xs).tolist(), "observed": observed,
+            "threshold_before": [finite_or_none(v) for v in pre_t],
+            "threshold_after": [finite_or_none(v) for v in post_t], "binding_before": binding_pre,
             "binding_after": binding_post, "status": status,
             "direction": [_compare(b, a) if k else None for b, a, k in zip(pre_t, post_t, ok)],
             "flips": _flips(np.asarray(xs), change),
@@ -1172,13 +1161,13 @@ def _sensitivity(data, merger, sens: dict, opts: dict, runs: dict, noise_mons: l
                                       stage=side.report.stage)
                 gains[side.label].append(p.profit_gain)
             bar.step(f"sensitivity delta {d:g}")
-        hb, ha = _headline(before, opts).market, _headline(after, opts).market
+        hb, ha = headline_scheme(before, opts).market, headline_scheme(after, opts).market
         out["delta"] = {
             "values": np.asarray(ds).tolist(), "scheme": SCHEME_NAMES[sch] + (f", T={opts['length']}"
                                                                               if sch == "finite" else ""),
             "profit_gain_before": gains["before"], "profit_gain_after": gains["after"],
             "category": [_category(_sustains(hb, d), _sustains(ha, d)) for d in ds],
-            "threshold_before": _none(hb), "threshold_after": _none(ha),
+            "threshold_before": finite_or_none(hb), "threshold_after": finite_or_none(ha),
             "flips": sorted({float(t) for t in (hb, ha) if math.isfinite(_rank(t))
                              and ds[0] <= t <= ds[-1]}),
         }
@@ -1217,7 +1206,6 @@ def _flat(ts, tol: float = 1e-6) -> bool:
 
 
 def _scheme_threshold_full(market, opts) -> tuple[float, int]:
-    from sim.theory.thresholds import critical_discount_factors
 
     rep = critical_discount_factors(market, punishments=opts["punishments"], deltas=(), agreement=opts["agreement"])
     if opts["scheme"] == "grim":
@@ -1357,9 +1345,6 @@ def assessment_from_dict(doc: dict) -> dict:
     dict
         Keyword arguments of :func:`assess` (``source``, ``merger``, ...) plus ``name``.
     """
-    from sim.antitrust.calibration import data_from_dict
-    from sim.antitrust.merger import merger_from_dict
-    from sim.models.market import market_from_dict
 
     if not isinstance(doc, dict):
         raise InputError("", "an experiment must be a table")
@@ -1392,194 +1377,3 @@ def assessment_from_dict(doc: dict) -> dict:
         raise InputError("experiment.name", f"must be a non-empty string, got {name!r}")
     out["name"] = name
     return out
-
-
-# --------------------------------------------------------------------------------------------------
-# Experiment kind (one cell of ``supergame run``)
-# --------------------------------------------------------------------------------------------------
-
-
-def _prepare_cell(doc: dict) -> PreparedAssessment:
-    kw = assessment_from_dict(doc)
-    kw.pop("name")
-    return prepare_assessment(**kw)
-
-
-def _metric_names(p: PreparedAssessment) -> list[str]:
-    pre = p.mres.pre.spec()
-    post = p.mres.post.spec()
-    out = ["threshold.before", "threshold.after", "threshold.change", "direction", "sustainable.before",
-           "sustainable.after", "binding.before", "binding.after"]
-    for side, ms in (("before", pre), ("after", post)):
-        out += [f"threshold.grim.{side}"] + [f"threshold.grim.{side}.firm{i + 1}" for i in range(ms.n_firms)]
-        out += [f"threshold.finite[{j + 1}].{side}" for j in range(len(p.opts["punishments"]))]
-        out += [f"threshold.stick_carrot.{side}"]
-    out += ["hhi.before", "hhi.after", "delta_hhi", "naive_delta_hhi", "consumer_surplus.before",
-            "consumer_surplus.after"]
-    out += ([f"price_change.product{k + 1}" for k in range(post.n_products)] if not pre.homogeneous_good
-            else ["price_change.market"])
-    for j, _d in enumerate(p.opts["deltas"]):
-        for sch in p.opts["partial"]:
-            if sch == "finite":
-                for t in range(len(p.opts["punishments"])):
-                    base = f"partial_gain.finite[{t + 1}][{j + 1}]"
-                    out += [f"{base}.before", f"{base}.after"]
-            else:
-                out += [f"partial_gain.{sch}[{j + 1}].before", f"partial_gain.{sch}[{j + 1}].after"]
-    if p.opts["simulate"]:
-        for m in ("collusive_share", "first_breakdown"):
-            for side in ("before", "after"):
-                out += [f"{m}.{side}", f"{m}.{side}.se", f"{m}.{side}.low", f"{m}.{side}.high"]
-        out += ["persistence.difference", "persistence.difference.se"]
-    if p.calibration is not None:
-        out += ["calibration.max_relative_residual"]
-    return out
-
-
-def _direction_code(d: str) -> float:
-    return {"easier": -1.0, "unchanged": 0.0, "harder": 1.0}[d]
-
-
-#: While :func:`keep_assessments` is active: the (cell, Assessment) pairs of the cells run in this process.
-_KEPT: list | None = None
-
-
-@contextlib.contextmanager
-def keep_assessments():
-    """Keep the full :class:`Assessment` of every cell of the ``assess`` kind run in this process
-    within the block (a list of ``(cell, Assessment)``).
-
-    ``supergame assess`` runs its file through :func:`sim.runner.runs.run_experiment` (one cell, run in
-    this process) and prints its terminal summary and ``--json`` from the cell's assessment. The
-    evidence bundle is not written from it: it is read from the stored cell (``arrays["assessment"]``,
-    :meth:`Assessment.to_dict`), as ``supergame report`` reads it.
-    """
-    global _KEPT
-    outer, _KEPT = _KEPT, []
-    try:
-        yield _KEPT
-    finally:
-        _KEPT = outer
-
-
-def _run_cell(p: PreparedAssessment, ctx):
-    from sim.runner.kinds import CellResult
-
-    a = run_assessment(p, progress=ctx.progress, key=ctx.key, threads=ctx.threads)
-    if _KEPT is not None:
-        _KEPT.append((ctx.index, a))
-    c = a.conclusion
-    m = {"threshold.before": _none(c["threshold_before"]), "threshold.after": _none(c["threshold_after"]),
-         "threshold.change": c["change"], "direction": _direction_code(c["direction"]),
-         "sustainable.before": c["sustainable_before"], "sustainable.after": c["sustainable_after"],
-         "binding.before": _headline(a.before, p.opts).binding + 1,
-         "binding.after": _headline(a.after, p.opts).binding + 1}
-    for side in (a.before, a.after):
-        rep = side.report
-        m[f"threshold.grim.{side.label}"] = rep.grim.market
-        for i, x in enumerate(rep.grim.per_firm):
-            m[f"threshold.grim.{side.label}.firm{i + 1}"] = float(x)
-        for j, f in enumerate(rep.finite):
-            m[f"threshold.finite[{j + 1}].{side.label}"] = f.market
-        m[f"threshold.stick_carrot.{side.label}"] = rep.stick_carrot.market
-    mr = a.merger
-    m.update({"hhi.before": mr.hhi_pre, "hhi.after": mr.hhi_post, "delta_hhi": mr.delta_hhi,
-              "naive_delta_hhi": mr.naive_delta_hhi, "consumer_surplus.before": mr.consumer_surplus_pre,
-              "consumer_surplus.after": mr.consumer_surplus_post})
-    for r in mr.price_changes():
-        m["price_change.market" if r["product"] == "market" else f"price_change.product{r['product']}"] = r["change"]
-    Ts = p.opts["punishments"]
-    for side in (a.before, a.after):
-        for q in side.partial:
-            j = p.opts["deltas"].index(q.delta) + 1
-            name = (f"partial_gain.finite[{Ts.index(q.T) + 1}][{j}]" if q.scheme == "finite"
-                    else f"partial_gain.{q.scheme}[{j}]")
-            m[f"{name}.{side.label}"] = q.profit_gain
-    if p.opts["simulate"]:
-        for met in ("collusive_share", "first_breakdown"):
-            for side in (a.before, a.after):
-                e = side.simulation.metrics[met]
-                m[f"{met}.{side.label}"] = e.value
-                m[f"{met}.{side.label}.se"] = e.se
-                m[f"{met}.{side.label}.low"] = e.low
-                m[f"{met}.{side.label}.high"] = e.high
-        m["persistence.difference"] = c["persistence"]["difference"]
-        m["persistence.difference.se"] = c["persistence"]["difference_se"]
-    if a.calibration is not None:
-        m["calibration.max_relative_residual"] = a.calibration.max_relative_residual
-    # the whole assessment, which its evidence bundle is read from (sim.evidence.assess.kind_report)
-    arrays = {"assessment": a.to_dict()}
-    for name, s in a.sensitivity.items():
-        if name == "delta":
-            arrays["sensitivity.delta.values"] = s["values"]
-            arrays["sensitivity.delta.profit_gain_before"] = s["profit_gain_before"]
-            arrays["sensitivity.delta.profit_gain_after"] = s["profit_gain_after"]
-        elif name == "noise":
-            arrays["sensitivity.noise.scales"] = s["scales"]
-            arrays["sensitivity.noise.collusive_share_before"] = s["collusive_share_before"]
-            arrays["sensitivity.noise.collusive_share_after"] = s["collusive_share_after"]
-        else:
-            arrays[f"sensitivity.{name}.values"] = s["values"]
-            arrays[f"sensitivity.{name}.threshold_before"] = [_val(x) for x in s["threshold_before"]]
-            arrays[f"sensitivity.{name}.threshold_after"] = [_val(x) for x in s["threshold_after"]]
-    return CellResult({k: (math.nan if v is None else v) for k, v in m.items()}, arrays)
-
-
-def _val(x) -> float:
-    return math.nan if x is None else float(x)
-
-
-def _describe_cell(doc: dict) -> list[str]:
-    merger = doc.get("merger", {})
-    src = "observed data ([data], calibrated)" if "data" in doc else "a given market ([market])"
-    mon = doc.get("monitoring", {})
-    return [f"Pre-merger market from {src}; demand {doc.get('data', doc.get('market', {})).get('demand', '?')}",
-            f"Merging firms: {merger.get('firms')}; efficiency {merger.get('efficiency', 0.0)}",
-            f"Monitoring: {mon.get('signal', 'perfect')}, sigma {mon.get('sigma', 0.0)}, perception error "
-            f"{mon.get('perception_error', 0.0)}, implementation error {mon.get('implementation_error', 0.0)}"]
-
-
-def _kind_report(rf, bundle):
-    from sim.evidence.assess import kind_report
-
-    return kind_report(rf, bundle)
-
-
-def _make_kind():
-    from sim.runner.kinds import Kind
-
-    return Kind(
-        name="assess",
-        tables=tuple(t for t in ASSESS_TABLES if t != "experiment"),
-        prepare=_prepare_cell,
-        run=_run_cell,
-        metric_names=_metric_names,
-        seed_key="run.seed",
-        headline=("threshold.before", "threshold.after", "direction", "collusive_share.before",
-                  "collusive_share.after"),
-        describe=_describe_cell,
-        summary="coordinated effects of a merger: thresholds, partial collusion and persistence before and after",
-        report=_kind_report,
-        assumptions=(
-            "The pre-merger market is calibrated to observed data under static Nash conduct (or given); the "
-            "post-merger market combines the merging firms' products (differentiated goods) or plants (a "
-            "homogeneous good, at the lower marginal cost or a stated efficiency).",
-            "Critical discount factors assume perfect monitoring of actions, an infinite horizon and the named "
-            "punishment schemes; they say when an agreement can be sustained, not that firms coordinate.",
-            "Simulated persistence assumes the firms follow the line-up's strategies under the stated monitoring "
-            "noise; after the merger the merged firm plays the strategy of the lowest-numbered merging firm.",
-        ),
-    )
-
-
-_KIND_CACHE: dict = {}
-
-
-def __getattr__(name: str):
-    # the experiment kind is built on first use, so that importing this module does not import the
-    # experiments layer
-    if name == "EXPERIMENT_KIND":
-        if "kind" not in _KIND_CACHE:
-            _KIND_CACHE["kind"] = _make_kind()
-        return _KIND_CACHE["kind"]
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

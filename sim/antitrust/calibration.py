@@ -67,6 +67,9 @@ from scipy import optimize
 from sim.core.errors import InputError, SolverError
 from sim.core.params import Constraint, Integer, Options, Parametrized, PerFirm, Real, optional
 from sim.core.tables import refuse_unknown
+from sim.models.demand import DEMAND_TYPES, DifferentiatedDemand, IsoelasticDemand, LinearDemand, LogitDemand
+from sim.models.market import Market
+from sim.theory.equilibrium import static_nash
 
 __all__ = ["CALIBRATION_DEMANDS", "Calibration", "MarketData", "calibrate", "data_from_dict"]
 
@@ -243,7 +246,6 @@ class MarketData(Parametrized):
                 out[name] = c.check(key, value, n)
             else:
                 out[name] = c.check(key, value)
-        from sim.models.demand import DEMAND_TYPES
 
         models = DEMAND_TYPES[demand].models
         model = out["model"] if out["model"] is not None else models[0]
@@ -579,8 +581,6 @@ def _logit(v: dict, prefix: str) -> dict:
     _check_costs(costs, f"{prefix}.{name}", "the data are not a static Nash equilibrium of logit demand with this "
                                            f"{name.replace('_', ' ')}")
     quality = p + mu * (np.log(s) - math.log(s0))
-    from sim.models.demand import LogitDemand
-    from sim.models.market import Market
 
     market = Market(LogitDemand(quality=quality.tolist(), outside=0.0, mu=float(mu), size=float(size)),
                     cost=costs.tolist(), model="bertrand",
@@ -611,8 +611,6 @@ def _linear(v: dict, prefix: str) -> dict:
     s = q / Q
     name, val = _identifying(v)
     fit = None
-    from sim.models.demand import LinearDemand
-    from sim.models.market import Market
 
     if v["model"] == "bertrand":
         b = P / (-val * Q)
@@ -668,8 +666,6 @@ def _isoelastic(v: dict, prefix: str) -> dict:
                                              f"maximum does not exist otherwise){what}")
     A = P * Q ** (1.0 / eps)
     costs = P * (1.0 - s / eps)
-    from sim.models.demand import IsoelasticDemand
-    from sim.models.market import Market
 
     market = Market(IsoelasticDemand(scale=A, elasticity=eps), cost=costs.tolist(), model="cournot",
                     capacity=None if v["capacity"] is None else v["capacity"].tolist())
@@ -759,8 +755,6 @@ def _differentiated(v: dict, prefix: str) -> dict:
     costs = p - _diff_markups(b, g, v, owner)
     _check_costs(costs, f"{prefix}.{name}", "the data are not a static Nash equilibrium of differentiated linear "
                                            f"demand with this {name}")
-    from sim.models.demand import DifferentiatedDemand
-    from sim.models.market import Market
 
     market = Market(DifferentiatedDemand(intercept=a.tolist(), slope=float(b), substitution=float(g)),
                     cost=costs.tolist(), model=v["model"],
@@ -782,7 +776,6 @@ def _differentiated(v: dict, prefix: str) -> dict:
 
 
 def _finish(v: dict, parts: dict, prefix: str) -> Calibration:
-    from sim.theory.equilibrium import static_nash
 
     market = parts["market"]
     try:

@@ -32,6 +32,8 @@ import numpy as np
 from sim.core.errors import InputError
 from sim.core.params import Constraint, Parametrized, PerFirm, Real, optional
 from sim.core.tables import refuse_unknown
+from sim.models.market import Market
+from sim.theory.equilibrium import static_nash
 
 __all__ = ["Merger", "MergerResult", "difference", "hhi", "merge", "merger_from_dict"]
 
@@ -272,8 +274,6 @@ def merge(market, merger: Merger, prefix: str = "merger") -> MergerResult:
     -------
     MergerResult
     """
-    from sim.models.market import Market
-    from sim.theory.equilibrium import static_nash
 
     if not isinstance(merger, Merger):
         raise InputError(prefix, f"must be a Merger, got {type(merger).__name__}")

@@ -1,0 +1,68 @@
+"""Benchmark sections of ``supergame bench``: each measures a kernel or a layer against a reference measured in the
+same run (a plain-Python twin, one worker against two), so that its figures are ratios, not seconds that depend on
+the machine.
+
+A section is a function ``section(opts: BenchOptions) -> dict`` registered in :data:`SECTIONS` (imported on first
+use, so that listing the sections imports nothing heavy). Its dict holds the measures, ``workload`` (one line),
+``targets`` (target text -> met) and ``notes``.
+"""
+
+from __future__ import annotations
+
+import importlib
+import os
+import platform
+from dataclasses import dataclass
+
+import numpy
+
+
+@dataclass
+class BenchOptions:
+    """Options shared by every section.
+
+    Attributes
+    ----------
+    quick : bool
+        A small workload (for smoke tests); the targets are not meaningful then.
+    threads : int
+        Threads for the multi-thread timings.
+    repeat : int
+        Timings are the best of this many runs.
+    """
+
+    quick: bool = False
+    threads: int = 2
+    repeat: int = 3
+
+
+#: section name -> ("module:function", one line describing what it measures)
+SECTIONS: dict = {
+    "engine": ("sim.bench.engine:engine_benchmark", "simulation kernel vs plain-Python reference, threads, memory"),
+    "matches": ("sim.bench.engine:matches_benchmark",
+                "many small duopoly matches through the lower-level engine entry"),
+    "theory": ("sim.bench.theory:theory_benchmark", "every threshold of 10-firm asymmetric markets"),
+    "learning": ("sim.bench.learning:bench_section",
+                 "Q-learning kernel vs plain-Python reference; 1,000 baseline sessions"),
+    "tournament": ("sim.bench.tournament:bench_section",
+                   "10-entrant duopoly tournament: wall time, driver overhead"),
+    "sweep": ("sim.bench.sweep:bench_section", "experiments layer: per-cell overhead, 2 local workers against 1"),
+}
+
+
+def section(name: str):
+    """The function of section ``name``."""
+    fn = SECTIONS[name][0]
+    if callable(fn):
+        return fn
+    mod, _, attr = str(fn).partition(":")
+    return getattr(importlib.import_module(mod), attr)
+
+
+def machine() -> dict:
+    """What the figures were measured on: versions, cores and numba's threading."""
+    import numba  # heavy: only when a benchmark runs
+
+    return {"python": platform.python_version(), "numpy": numpy.__version__, "numba": numba.__version__,
+            "cpus": os.cpu_count(), "numba_threads": int(numba.config.NUMBA_NUM_THREADS),
+            "threading_layer": str(numba.config.THREADING_LAYER)}

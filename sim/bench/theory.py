@@ -13,10 +13,12 @@ import time
 
 import numpy as np
 
+from sim.models.demand import DifferentiatedDemand, IsoelasticDemand, LinearDemand, LogitDemand
+from sim.models.market import Market
+from sim.theory.thresholds import critical_discount_factors
+
 
 def _markets():
-    from sim.models.demand import DifferentiatedDemand, IsoelasticDemand, LinearDemand, LogitDemand
-    from sim.models.market import Market
 
     n = 10
     costs = np.linspace(10.0, 19.0, n)
@@ -80,7 +82,6 @@ def _reference_linear_cournot(a: float, b: float, c: list[float]) -> list[float]
 
 
 def theory_benchmark(opts) -> dict:
-    from sim.theory.thresholds import critical_discount_factors
 
     repeat = 1 if opts.quick else opts.repeat
     timings = {}

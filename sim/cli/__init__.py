@@ -1,8 +1,8 @@
 """Command line: ``supergame <command> ...`` (also ``python -m sim``).
 
 Each command lives in its own module exposing ``HELP`` (one line), ``configure(parser)`` and
-``run(args) -> int``. Command modules import heavy dependencies inside ``run`` only, so that
-``supergame --help`` answers quickly.
+``run(args) -> int``, registered in :data:`COMMANDS` with its help line. Only the module of the command
+being run is imported, so that ``supergame --help`` answers at once and loads neither numba nor matplotlib.
 
 Exit status: 0 success, 1 a computation failed or an internal error (printed as one line; set
 ``SUPERGAME_DEBUG=1`` for the traceback of an internal error), 2 bad input (one line naming the
@@ -16,20 +16,27 @@ import importlib
 import os
 import sys
 
+from sim import __version__
 from sim.core.errors import InputError, SolverError
 
-# name -> module; the order is the order of ``supergame --help``
+# name -> (module, one line of ``supergame --help``); the order is the order of ``supergame --help``. Only the
+# module of the command being run is imported, so that ``supergame --help`` loads none of the computing packages
+# (tests/cli/test_cli_layout.py checks that each line here is the module's own ``HELP``).
 COMMANDS = {
-    "thresholds": "sim.cli.thresholds",
-    "learn": "sim.cli.learn",
-    "simulate": "sim.cli.simulate",
-    "tournament": "sim.cli.tournament",
-    "bench": "sim.cli.bench",
-    "assess": "sim.cli.assess",
-    "check": "sim.cli.check",
-    "run": "sim.cli.run",
-    "report": "sim.cli.report",
-    "verify": "sim.cli.verify",
+    "thresholds": ("sim.cli.thresholds", "stage game and critical discount factors of a market (analytic baseline)"),
+    "learn": ("sim.cli.learn", "let Q-learning firms learn to price; limit outcomes, profit gain and impulse response"),
+    "simulate": ("sim.cli.simulate",
+                 "simulate a line-up of strategies: persistence of collusion against the analytic baseline"),
+    "tournament": ("sim.cli.tournament",
+                   "round-robin tournament of strategies: scores, ranking stability, replicator and Moran dynamics"),
+    "bench": ("sim.cli.bench", "throughput of the simulation kernels against their plain-Python references"),
+    "assess": ("sim.cli.assess",
+               "coordinated effects of a merger: calibration, thresholds, persistence and factors before and after"),
+    "check": ("sim.cli.check", "validate experiment files, every sweep cell included, without running them"),
+    "run": ("sim.cli.run", "run an experiment file (any kind, sweeps included) into a run folder; resumable"),
+    "report": ("sim.cli.report",
+               "write the evidence bundle of a run folder (summary, HTML, figures, tables, manifest)"),
+    "verify": ("sim.cli.verify", "check a run folder: file hashes against the manifest, and re-run a sample of cells"),
 }
 
 
@@ -40,9 +47,19 @@ class _Parser(argparse.ArgumentParser):
         self.exit(2, f"{self.prog}: error: {message}\n")
 
 
-def build_parser() -> argparse.ArgumentParser:
-    from sim import __version__
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The parser of ``supergame``.
 
+    Parameters
+    ----------
+    command : str or None
+        The subcommand to build in full (its module is imported); the others get their help line only.
+        None builds every subcommand.
+
+    Returns
+    -------
+    argparse.ArgumentParser
+    """
     parser = _Parser(
         prog="supergame",
         description="Tacit-collusion analysis for oligopoly markets: stage games, critical discount "
@@ -50,7 +67,10 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"supergame {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
-    for name, modname in COMMANDS.items():
+    for name, (modname, line) in COMMANDS.items():
+        if command is not None and name != command:
+            sub.add_parser(name, help=line)
+            continue
         mod = importlib.import_module(modname)
         p = sub.add_parser(name, help=mod.HELP, description=getattr(mod, "DESCRIPTION", mod.HELP))
         mod.configure(p)
@@ -58,8 +78,17 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _command_of(argv: list[str]) -> str:
+    """The subcommand named in ``argv`` ("" when none is: ``supergame --help`` builds no subcommand)."""
+    for a in argv:
+        if not a.startswith("-"):
+            return a if a in COMMANDS else ""
+    return ""
+
+
 def main(argv: list[str] | None = None) -> int:
-    parser = build_parser()
+    argv = list(sys.argv[1:] if argv is None else argv)
+    parser = build_parser(_command_of(argv))
     try:
         args = parser.parse_args(argv)
     except SystemExit as exc:  # --help, --version and argument errors (one line, status 2)

@@ -4,8 +4,18 @@ evidence bundle."""
 from __future__ import annotations
 
 import argparse
+import sys
 
+from sim.antitrust.assess import assessment_from_dict
 from sim.cli._common import emit
+from sim.core.errors import SolverError
+from sim.core.jsonutil import dumps
+from sim.core.tomlfile import read_toml
+from sim.evidence.assess import render_text
+from sim.evidence.report import write_report
+from sim.runner.analyses.assess import keep_assessments
+from sim.runner.experiment import load_experiment
+from sim.runner.runs import run_experiment
 
 HELP = "coordinated effects of a merger: calibration, thresholds, persistence and factors before and after"
 DESCRIPTION = (
@@ -29,15 +39,7 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    import sys
 
-    from sim.antitrust.assess import assessment_from_dict, keep_assessments
-    from sim.core.errors import SolverError
-    from sim.core.jsonutil import dumps
-    from sim.core.tomlfile import read_toml
-    from sim.evidence.assess import render_text
-    from sim.runner.experiment import load_experiment
-    from sim.runner.runs import run_experiment
 
     # the assessment's own reading first (kind, one assessment, no [sweep] or [report]), then the
     # experiments layer's validation of the whole file; nothing is written before both pass
@@ -49,7 +51,7 @@ def run(args) -> int:
     # supergame report RUN_DIR reads it, and recorded in the run's manifest; the terminal output is the
     # cell's assessment, kept as it was computed
     with keep_assessments() as kept:
-        s = run_experiment(exp, args.out, command=argv, report=True)
+        s = run_experiment(exp, args.out, command=argv, report=True, write_report=write_report)
     if s.failed_cells:
         raise SolverError(f"the assessment failed ({s.failed_cells[0][1]}); the run folder {s.folder} records it")
     if len(kept) != 1 or s.report is None:  # pragma: no cover - one cell, run in this process

@@ -6,6 +6,9 @@ import argparse
 
 from sim.cli._common import emit
 from sim.cli.run import add_plugin_option
+from sim.core.jsonutil import dumps
+from sim.runner.experiment import load_experiment
+from sim.runner.kinds import load_plugins
 
 HELP = "validate experiment files, every sweep cell included, without running them"
 DESCRIPTION = (
@@ -37,9 +40,6 @@ def describe(exp) -> str:
 
 
 def run(args) -> int:
-    from sim.core.jsonutil import dumps
-    from sim.runner.experiment import load_experiment
-    from sim.runner.kinds import load_plugins
 
     load_plugins(args.plugin)
     for f in args.files:

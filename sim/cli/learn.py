@@ -5,8 +5,16 @@ from __future__ import annotations
 import argparse
 import os
 
+import numpy as np
+
+import sim.core.text as _text
 from sim.cli._common import MARKET_FLAGS, add_market_flags, emit, market_table_from_args, parse_number, parse_numbers
+from sim.cli.thresholds import _describe_market
 from sim.core.errors import InputError
+from sim.core.jsonutil import dumps
+from sim.core.text import CAUTION, fmt_num, table
+from sim.core.tomlfile import read_toml
+from sim.learning.session import RUN_CONSTRAINTS, learn, learning_from_dict
 
 HELP = "let Q-learning firms learn to price; limit outcomes, profit gain and impulse response"
 DESCRIPTION = (
@@ -92,7 +100,7 @@ def _overrides(args) -> dict:
     """The flags given, as overrides of :func:`sim.learning.session.learning_from_dict` (``table.key`` ->
     (value, flag))."""
     out = {}
-    for table, keys in _FLAGS.items():
+    for section, keys in _FLAGS.items():
         for key, (flag, kind) in keys.items():
             text = getattr(args, flag.replace("-", "_"), None)
             if text is None:
@@ -106,13 +114,12 @@ def _overrides(args) -> dict:
                 value = v if isinstance(v, list) else [v]
             else:
                 value = text
-            out[f"{table}.{key}"] = (value, f"--{flag}")
+            out[f"{section}.{key}"] = (value, f"--{flag}")
     return out
 
 
 def build(args, doc: dict) -> dict:
     """Everything ``learn`` needs, validated, from FILE and flags: market, learner, run settings."""
-    from sim.learning.session import _RUN_CONSTRAINTS, learning_from_dict
 
     if args.file and "market" not in doc:
         raise InputError("market", f"{args.file} has no [market] table")
@@ -125,16 +132,12 @@ def build(args, doc: dict) -> dict:
     overrides.update(_overrides(args))
     cfg = learning_from_dict(doc, overrides)
     confidence = getattr(args, "confidence", None)
-    cfg["settings"]["confidence"] = (_RUN_CONSTRAINTS["confidence"].check("--confidence", parse_number(
+    cfg["settings"]["confidence"] = (RUN_CONSTRAINTS["confidence"].check("--confidence", parse_number(
         "confidence", confidence)) if confidence is not None else 0.95)
     return cfg
 
 
 def run(args) -> int:
-    import sim.core.text as _text
-    from sim.core.jsonutil import dumps
-    from sim.core.tomlfile import read_toml
-    from sim.learning.session import learn
 
     doc = read_toml(args.file) if args.file else {}
     cfg = build(args, doc)  # validates everything, the line-up's memory included
@@ -174,7 +177,6 @@ def _pct(x) -> str:
 
 
 def _ci(d: dict, digits: int = 4) -> str:
-    from sim.core.text import fmt_num
 
     if d.get("n", 0) < 2:
         return "-"
@@ -182,7 +184,6 @@ def _ci(d: dict, digits: int = 4) -> str:
 
 
 def _same_learner(a, b) -> bool:
-    import numpy as np
 
     da, db = a.to_dict(), b.to_dict()
     ga, gb = np.array(da.pop("grid")), np.array(db.pop("grid"))
@@ -190,8 +191,6 @@ def _same_learner(a, b) -> bool:
 
 
 def render(result, market, written=()) -> str:
-    from sim.cli.thresholds import _describe_market
-    from sim.core.text import CAUTION, fmt_num, table
 
     lu = result.lineup
     sm = result.summary()
@@ -325,7 +324,6 @@ def write_plots(result, directory: str) -> list[str]:
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
-    import numpy as np
 
     os.makedirs(directory, exist_ok=True)
     lu = result.lineup

@@ -6,6 +6,8 @@ import argparse
 
 from sim.cli._common import emit
 from sim.cli.run import add_plugin_option
+from sim.evidence.report import write_report
+from sim.runner.kinds import load_plugins
 
 HELP = "write the evidence bundle of a run folder (summary, HTML, figures, tables, manifest)"
 DESCRIPTION = (
@@ -22,8 +24,6 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    from sim.evidence.report import write_report
-    from sim.runner.kinds import load_plugins
 
     load_plugins(args.plugin)
     # a bundle inside the run folder is recorded in its manifest (see sim.evidence.report.write_report)

@@ -7,6 +7,11 @@ import sys
 
 from sim.cli._common import emit, parse_number
 from sim.core.errors import InputError
+from sim.core.jsonutil import dumps
+from sim.evidence.report import write_report
+from sim.runner.experiment import load_experiment
+from sim.runner.kinds import load_plugins
+from sim.runner.runs import default_folder, run_experiment
 
 HELP = "run an experiment file (any kind, sweeps included) into a run folder; resumable"
 DESCRIPTION = (
@@ -40,10 +45,6 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    from sim.core.jsonutil import dumps
-    from sim.runner.experiment import load_experiment
-    from sim.runner.kinds import load_plugins
-    from sim.runner.runs import _default_folder, run_experiment
 
     if not args.file and not args.resume:
         raise InputError("FILE", "give an experiment file, or --resume RUN_DIR to finish a run")
@@ -54,11 +55,12 @@ def run(args) -> int:
     exp = load_experiment(args.file) if args.file else None
     out = args.out
     if args.resume is None and out is None:
-        out = str(_default_folder(__import__("pathlib").Path("runs"), exp.name))
+        out = str(default_folder(__import__("pathlib").Path("runs"), exp.name))
     folder = args.resume or out
     try:
         s = run_experiment(exp, out, workers=workers, cluster=args.cluster,
-                           resume=args.resume, retry_failed=args.retry_failed, report=args.report, plugins=plugins,
+                           resume=args.resume, retry_failed=args.retry_failed, report=args.report,
+                           write_report=write_report, plugins=plugins,
                            progress=False if args.quiet else None, command=["supergame", *sys.argv[1:]]
                            if sys.argv and sys.argv[0].endswith(("supergame", "__main__.py")) else
                            ["supergame", "run", *([args.file] if args.file else [])])

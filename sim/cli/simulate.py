@@ -13,7 +13,15 @@ from sim.cli._common import (
     parse_number,
     parse_numbers,
 )
+from sim.cli.thresholds import _AGREEMENT_NAMES, _describe_market
 from sim.core.errors import InputError
+from sim.core.jsonutil import dumps
+from sim.core.text import CAUTION, fmt_num, table
+from sim.core.tomlfile import read_toml
+from sim.evidence.simplots import simulation_figures
+from sim.models.market import market_from_dict
+from sim.models.monitoring import monitoring_from_dict
+from sim.simulation.engine import simulate, simulation_from_dict
 
 HELP = "simulate a line-up of strategies: persistence of collusion against the analytic baseline"
 DESCRIPTION = (
@@ -92,10 +100,6 @@ def parse_strategy_flag(text: str, k: int) -> dict:
 
 def settings(args) -> dict:
     """Everything :func:`sim.simulation.engine.simulate` needs, from FILE and flags (flags win)."""
-    from sim.core.tomlfile import read_toml
-    from sim.models.market import market_from_dict
-    from sim.models.monitoring import monitoring_from_dict
-    from sim.simulation.engine import simulation_from_dict
 
     doc = read_toml(args.file) if args.file else {}
     base = doc.get("market", {}) if doc else {}
@@ -181,8 +185,6 @@ def _rename(exc: InputError, cfg: dict) -> InputError:
 
 
 def run(args) -> int:
-    from sim.core.jsonutil import dumps
-    from sim.simulation.engine import simulate
 
     cfg = settings(args)
     r = cfg["run"]
@@ -195,7 +197,6 @@ def run(args) -> int:
     except InputError as exc:
         raise _rename(exc, cfg) from None
     if args.plot:
-        from sim.evidence.simplots import simulation_figures
 
         simulation_figures(res, args.plot)
     if args.json:
@@ -260,7 +261,6 @@ def _analytic(res) -> dict:
 
 
 def _ci(e) -> str:
-    from sim.core.text import fmt_num
 
     if e.low != e.low:
         return "-"
@@ -268,8 +268,6 @@ def _ci(e) -> str:
 
 
 def render(res, cfg) -> str:
-    from sim.cli.thresholds import _AGREEMENT_NAMES, _describe_market
-    from sim.core.text import CAUTION, fmt_num, table
 
     s = res.settings
     run = s["run"]
@@ -340,7 +338,6 @@ def render(res, cfg) -> str:
 
 
 def _render_paths(res, max_periods: int = 20) -> list:
-    from sim.core.text import fmt_num, table
 
     P = res.paths
     out = []

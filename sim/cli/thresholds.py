@@ -4,8 +4,17 @@ from __future__ import annotations
 
 import argparse
 
-from sim.cli._common import add_market_flags, emit, flag_error, market_table_from_args, parse_number
+import numpy as np
+
+import sim.core.text as _text
+from sim.cli._common import add_market_flags, emit, flag_error, market_table_from_args, parse_number, parse_numbers
 from sim.core.errors import InputError
+from sim.core.jsonutil import dumps
+from sim.core.text import CAUTION, fmt_num, table
+from sim.core.tomlfile import read_toml
+from sim.runner.analyses.thresholds import KIND as THRESHOLDS
+from sim.theory.thresholds import critical_discount_factors
+from sim.theory.trigger_price import trigger_price_equilibrium
 
 HELP = "stage game and critical discount factors of a market (analytic baseline)"
 DESCRIPTION = (
@@ -48,8 +57,6 @@ _FLAG_OF = {
 def _document(args) -> tuple[dict, set]:
     """The experiment document: FILE's tables (if any) with the flags applied on top, and the set of
     table keys that came from flags."""
-    from sim.cli._common import parse_numbers
-    from sim.core.tomlfile import read_toml
 
     doc = read_toml(args.file) if args.file else {}
     if args.file and "market" not in doc:
@@ -101,14 +108,10 @@ def _renamed(exc: InputError, flags: set) -> InputError:
 
 
 def run(args) -> int:
-    import sim.core.text as _text
-    from sim.core.jsonutil import dumps
-    from sim.runner.analyses import _prepare_thresholds
-    from sim.theory.thresholds import critical_discount_factors
 
     doc, flags = _document(args)
     try:
-        cfg = _prepare_thresholds(doc)
+        cfg = THRESHOLDS.prepare(doc)
     except InputError as exc:
         # without a file every value is a flag or its default: name the flag
         raise _renamed(exc, flags if args.file else flags | set(_FLAG_OF)) from None
@@ -117,7 +120,6 @@ def run(args) -> int:
                                        agreement=cfg["agreement"], actions=cfg["actions"])
     tp = None
     if cfg["trigger_price"]:
-        from sim.theory.trigger_price import trigger_price_equilibrium
 
         mon = cfg["monitoring"]
         tp = [trigger_price_equilibrium(market, d, mon["noise"], mon["sigma"]) for d in cfg["deltas"]]
@@ -142,9 +144,7 @@ def _describe_market(market) -> str:
 
 
 def render(report, market, tp=None) -> str:
-    import numpy as np
 
-    from sim.core.text import CAUTION, fmt_num, table
 
     st = report.stage
     ms = st.market

@@ -3,9 +3,24 @@
 from __future__ import annotations
 
 import argparse
+import os
 
 from sim.cli._common import emit, parse_number
+from sim.cli.thresholds import _describe_market
 from sim.core.errors import InputError
+from sim.core.jsonutil import dumps
+from sim.core.parallel import check_threads
+from sim.core.text import CAUTION, fmt_num, table
+from sim.core.tomlfile import read_toml
+from sim.evidence.tournament import tournament_figures, tournament_json, write_tables
+from sim.runner.kinds import CellContext
+from sim.tournament.roundrobin import (
+    SCORE_NAMES,
+    check_experiment,
+    evolve_tournament,
+    run_tournament,
+    tournament_from_dict,
+)
 
 HELP = "round-robin tournament of strategies: scores, ranking stability, replicator and Moran dynamics"
 DESCRIPTION = (
@@ -29,19 +44,12 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def _check_dir(path, flag: str) -> None:
-    import os
 
     if path is not None and os.path.exists(path) and not os.path.isdir(path):
         raise InputError(flag, f"{path} exists and is not a directory")
 
 
 def run(args) -> int:
-    from sim.core.jsonutil import dumps
-    from sim.core.tomlfile import read_toml
-    from sim.evidence.tournament import tournament_figures, tournament_json, write_tables
-    from sim.runner.kinds import CellContext
-    from sim.simulation.engine import _check_threads
-    from sim.tournament.roundrobin import check_experiment, evolve_tournament, run_tournament, tournament_from_dict
 
     doc = read_toml(args.file)
     cfg = tournament_from_dict(doc)
@@ -50,7 +58,7 @@ def run(args) -> int:
     cfg["plan_args"]["key"] = CellContext(index=0).key
     threads = parse_number("threads", args.threads, integer=True) if args.threads else None
     try:
-        threads = _check_threads(threads)
+        threads = check_threads(threads)
     except InputError as exc:
         raise InputError("--threads", exc.message) from None
     plan = check_experiment(cfg)
@@ -82,7 +90,6 @@ def run(args) -> int:
 
 
 def _ci(e) -> str:
-    from sim.core.text import fmt_num
 
     if e.low != e.low:
         return "-"
@@ -107,7 +114,6 @@ def _params(entrant) -> str:
 
 def _agreement_line(plan) -> str:
     """The collusive benchmark of the profit gain: the agreement, and each firm's profit there and at Nash."""
-    from sim.core.text import fmt_num
 
     s = plan.settings
     why = "" if s["agreement_given"] else (
@@ -119,9 +125,6 @@ def _agreement_line(plan) -> str:
 
 
 def render(res, evo, cfg) -> str:
-    from sim.cli.thresholds import _describe_market
-    from sim.core.text import CAUTION, fmt_num, table
-    from sim.tournament.roundrobin import SCORE_NAMES
 
     plan = res.plan
     labels = res.labels

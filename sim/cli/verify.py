@@ -7,6 +7,9 @@ import argparse
 from sim.cli._common import emit, parse_number
 from sim.cli.run import add_plugin_option
 from sim.core.errors import InputError
+from sim.core.jsonutil import dumps
+from sim.runner.kinds import load_plugins
+from sim.runner.runs import verify_run
 
 HELP = "check a run folder: file hashes against the manifest, and re-run a sample of cells"
 DESCRIPTION = (
@@ -30,9 +33,6 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    from sim.core.jsonutil import dumps
-    from sim.runner.kinds import load_plugins
-    from sim.runner.runs import verify_run
 
     load_plugins(args.plugin)
     sample = parse_number("sample", args.sample, integer=True) if args.sample is not None else 3

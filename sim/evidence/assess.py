@@ -28,7 +28,11 @@ import numpy as np
 
 from sim.antitrust.assess import FACTOR_LEGEND, IVALDI_SOURCE, SENSITIVITY_INPUTS
 from sim.antitrust.merger import difference
+from sim.core.errors import InputError
+from sim.core.jsonutil import dumps
 from sim.core.text import CAUTION, fmt_num, table
+from sim.models.market import DEMAND_KEYS
+from sim.runner.analyses.assess import describe_cell
 
 __all__ = ["assessment_data", "assessment_figures", "assessment_tables", "kind_report", "render_text",
            "summary_blocks"]
@@ -70,7 +74,6 @@ def assessment_data(a) -> dict:
     inf become None, as in the store)."""
     if isinstance(a, dict):
         return a
-    from sim.core.jsonutil import dumps
 
     return json.loads(dumps(a.to_dict()))
 
@@ -486,9 +489,8 @@ _MARKET_LAST = ("cost", "n_firms", "capacity", "tick", "owner")
 
 def _demand_order(demand: str, keys) -> list:
     """``keys`` in the order of a ``[market]`` table of that demand (the others after them, sorted)."""
-    from sim.models.market import _DEMAND_KEYS
 
-    first = [k for k in _DEMAND_KEYS.get(demand, ()) if k in keys]
+    first = [k for k in DEMAND_KEYS.get(demand, ()) if k in keys]
     return first + sorted(k for k in keys if k not in first)
 
 
@@ -698,7 +700,6 @@ def kind_report(rf, b):
 
 
 def _no_document(rf):
-    from sim.core.errors import InputError
 
     return InputError("RUN_DIR", f"the stored cell of {rf.path} holds no assessment (an earlier version of "
                                  "supergame ran it); run the experiment file again")
@@ -710,7 +711,6 @@ def write_assessment(b, a, key=(0,)) -> list:
     key ``key``) to its manifest. Returns the lines on reproducing the numbers."""
     import matplotlib.pyplot as plt
 
-    from sim.core.jsonutil import dumps
 
     d = assessment_data(a)
     tables = assessment_tables(d)
@@ -768,10 +768,9 @@ _DIRECTIONS = {-1.0: "easier", 0.0: "unchanged", 1.0: "harder"}
 def _sweep_account(b, exp, rows) -> list:
     """A sweep of assessments: every finished cell's conclusion, and the headline thresholds along a
     single numeric swept parameter."""
-    from sim.antitrust.assess import _describe_cell
 
     b.heading("Setup")
-    b.bullets(_describe_cell(exp.doc))
+    b.bullets(describe_cell(exp.doc))
     b.paragraph("Each cell of the sweep is one complete assessment with these settings and the swept values below; "
                 "its full account (every table of a single assessment) is the cell's `assessment` entry in "
                 "`arrays.json`.", note=True)

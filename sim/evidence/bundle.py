@@ -42,16 +42,22 @@ import io
 import json
 import math
 import re
+import shutil
+import tempfile
+import uuid
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
+
+from sim.core.files import REPLACED, STAGED, clear_leftovers
+from sim.core.provenance import package_versions, platform_info
+from sim.core.text import CAUTION, fmt_num
+from sim.runner.store import csv_text
 
 __all__ = ["Bundle", "clear_leftovers", "holds_bundle", "latex_table", "markdown_table"]
 
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}$")
 BUNDLE_FORMAT = "supergame-bundle/1"
-#: markers of the hidden siblings of a bundle folder: the one being written, the one being replaced
-_STAGE, _REPLACED = ".partial-", ".replaced-"
 
 
 def holds_bundle(folder) -> bool:
@@ -69,27 +75,7 @@ def holds_bundle(folder) -> bool:
     return isinstance(man, dict) and str(man.get("format", "")).startswith("supergame-bundle")
 
 
-def leftovers(folder) -> list[Path]:
-    """What interrupted writes of the bundle ``folder`` left beside it (hidden sibling folders)."""
-    folder = Path(folder)
-    if not folder.parent.is_dir():
-        return []
-    marks = (f".{folder.name}{_STAGE}", f".{folder.name}{_REPLACED}")
-    return sorted(p for p in folder.parent.iterdir() if p.name.startswith(marks) and p.is_dir())
-
-
-def clear_leftovers(folder) -> list[Path]:
-    """Remove what interrupted writes of the bundle ``folder`` left beside it; return what was removed."""
-    import shutil
-
-    gone = leftovers(folder)
-    for p in gone:
-        shutil.rmtree(p, ignore_errors=True)
-    return gone
-
-
 def _fmt(v: Any, digits: int) -> str:
-    from sim.core.text import fmt_num
 
     if v is None:
         return "-"
@@ -193,9 +179,7 @@ class Bundle:
     """
 
     def __init__(self, folder, title: str, caution: str | None = None):
-        import tempfile
 
-        from sim.core.text import CAUTION
 
         self.folder = Path(folder)
         self.title = title
@@ -205,7 +189,7 @@ class Bundle:
         self.files: list[str] = []
         self._names: set = set()
         self.folder.parent.mkdir(parents=True, exist_ok=True)
-        self._stage = Path(tempfile.mkdtemp(prefix=f".{self.folder.name}{_STAGE}", dir=self.folder.parent))
+        self._stage = Path(tempfile.mkdtemp(prefix=f".{self.folder.name}{STAGED}", dir=self.folder.parent))
         (self._stage / "figures").mkdir()
         (self._stage / "tables").mkdir()
         self.written = False
@@ -220,7 +204,6 @@ class Bundle:
 
     def discard(self) -> None:
         """Drop what was written so far (the folder keeps its earlier bundle, if any)."""
-        import shutil
 
         shutil.rmtree(self._stage, ignore_errors=True)
 
@@ -255,7 +238,6 @@ class Bundle:
         self._claim(name, "table")
         headers = [str(h) for h in headers]
         rows = [list(r) for r in rows]
-        from sim.runner.store import csv_text
 
         src = csv_rows if csv_rows is not None else (headers, rows)
         # the same CSV dialect and number format as the run folder's results.csv
@@ -381,7 +363,6 @@ class Bundle:
         ``command``, ``seeds``, ``started``, ``finished``), over those of :attr:`manifest`; package
         versions, the platform and the SHA-256 of every file of the bundle are filled in.
         """
-        from sim.runner.runs import package_versions, platform_info
 
         if self.written:
             raise RuntimeError(f"the bundle {self.folder} was already written")
@@ -403,12 +384,10 @@ class Bundle:
 
     def _move_into_place(self) -> None:
         """Replace the folder by the staged bundle: two renames within one parent folder."""
-        import shutil
-        import uuid
 
         old = None
         if self.folder.exists():
-            old = self.folder.parent / f".{self.folder.name}{_REPLACED}{uuid.uuid4().hex[:8]}"
+            old = self.folder.parent / f".{self.folder.name}{REPLACED}{uuid.uuid4().hex[:8]}"
             self.folder.rename(old)
         self._stage.rename(self.folder)
         self.written = True

@@ -15,17 +15,74 @@ analytic prediction), one panel or line per value of the other swept parameters.
 
 from __future__ import annotations
 
+import importlib
 import math
 import shutil
 from pathlib import Path
 
-from sim.core.errors import InputError
+import numpy as np
 
-__all__ = ["write_report"]
+import sim.evidence.figures as figures
+from sim.core.errors import InputError
+from sim.core.text import fmt_num
+from sim.evidence.bundle import Bundle, clear_leftovers, holds_bundle
+from sim.evidence.figures import SweepData, _plt
+from sim.runner.experiment import FigureSpec, figure_name, leading_comment
+from sim.runner.runs import (
+    ARRAYS_FILE,
+    CSV_FILE,
+    EXPERIMENT_COPY,
+    PARQUET_FILE,
+    REPORT_DIR,
+    SEED_RULE,
+    RunFolder,
+    check_manifest,
+    clear_run_leftovers,
+    code_notes,
+    iso_time,
+    sha256_file,
+    write_manifest,
+)
+from sim.runner.store import STORE_FILE
+
+__all__ = ["register_renderer", "write_report"]
+
+#: kind name -> "module:function" (imported on first use) or the function itself: the kind's own account of a run
+#: in its evidence bundle, ``render(run, bundle) -> list of str or None`` (see :func:`register_renderer`)
+RENDERERS: dict = {
+    "tournament": "sim.evidence.tournament:kind_report",
+    "assess": "sim.evidence.assess:kind_report",
+}
+
+
+def register_renderer(kind: str, render) -> None:
+    """Give the experiment kind ``kind`` its own account in evidence bundles.
+
+    Parameters
+    ----------
+    kind : str
+        The kind's name (``experiment.kind``).
+    render : callable
+        ``render(run, bundle)``: ``run`` is the open :class:`sim.runner.runs.RunFolder` (everything is read
+        from its stored rows, never recomputed), ``bundle`` the :class:`sim.evidence.bundle.Bundle` being
+        written. It may return lines added to "Reproducing these numbers", set ``bundle.title`` and add
+        entries to ``bundle.manifest``. The results table, failed cells, reproduction, assumptions and caution
+        follow as for every kind.
+    """
+    RENDERERS[str(kind)] = render
+
+
+def renderer_of(kind):
+    """The renderer of ``kind`` (a :class:`sim.runner.kinds.Kind`): the registered one, else the kind's own
+    ``report`` hook (plugins), else None (the generic sections)."""
+    r = RENDERERS.get(kind.name)
+    if isinstance(r, str):
+        mod, _, attr = r.partition(":")
+        r = RENDERERS[kind.name] = getattr(importlib.import_module(mod), attr)
+    return r if r is not None else kind.report
 
 
 def _ci(row, m) -> str:
-    from sim.core.text import fmt_num
 
     lo, hi = row.metrics.get(f"{m}.low", math.nan), row.metrics.get(f"{m}.high", math.nan)
     if math.isnan(lo) or math.isnan(hi):
@@ -46,7 +103,6 @@ def _headline(exp, kind) -> list[str]:
 
 def default_figures(exp, kind, data) -> list:
     """The figures drawn when the experiment names none (see the module notes)."""
-    from sim.runner.experiment import FigureSpec
 
     multi = [p for p in exp.parameters if len(p) > 1]
     numeric = [p for p in multi if p.numeric]
@@ -107,7 +163,6 @@ def _caption_body(spec) -> str:
 
 
 def _draw(spec, data):
-    import sim.evidence.figures as figures
 
     if spec.type == "heatmap":
         return figures.heatmap(data, spec.x, spec.y, spec.metric, threshold=spec.threshold, level=spec.level,
@@ -118,9 +173,7 @@ def _draw(spec, data):
 
 def _single_cell_figures(b, exp, row) -> None:
     """Figures of a run without a sweep, from the cell's stored arrays."""
-    import numpy as np
 
-    from sim.evidence.figures import _plt
 
     a = row.arrays
     if "period" in a and "collusive_by_period" in a:
@@ -158,7 +211,6 @@ def _prepare_target(target: Path, default: bool) -> None:
     """Check that the bundle may be written at ``target``. A folder there must hold an earlier bundle
     (replaced at the end); the run folder's own ``report/`` that does not is left over from a write
     that was stopped (by an earlier version, or by hand), and is removed."""
-    from sim.evidence.bundle import clear_leftovers, holds_bundle
 
     key = "RUN_DIR" if default else "--out"
     clear_leftovers(target)
@@ -182,7 +234,6 @@ def write_report(folder, out=None, update_manifest: bool = True) -> Path:
     recorded in the run's manifest (unless ``update_manifest`` is false: the caller writes the manifest),
     which must still match every other file of the folder (:func:`sim.runner.runs.check_manifest`).
     """
-    from sim.runner.runs import REPORT_DIR, RunFolder, write_manifest
 
     folder = Path(folder)
     with RunFolder(folder) as rf:
@@ -202,8 +253,6 @@ def _inside(folder: Path, target: Path) -> str | None:
 
 
 def _write(rf, folder: Path, out, update_manifest: bool) -> None:
-    from sim.evidence.bundle import Bundle
-    from sim.runner.runs import REPORT_DIR, check_manifest, clear_leftovers
 
     exp = rf.experiment
     kind = exp.kind_spec()
@@ -222,7 +271,7 @@ def _write(rf, folder: Path, out, update_manifest: bool) -> None:
     rewritten = (f"{inside}/",) if inside else ()
     if inside and update_manifest:
         # before anything is written: every other file of the folder must be as its manifest records
-        clear_leftovers(folder)
+        clear_run_leftovers(folder)
         check_manifest(folder, rewritten)
     _prepare_target(target, default=out is None)
     title = exp.report.title or f"{exp.name}: {kind.summary}"
@@ -233,28 +282,15 @@ def _write(rf, folder: Path, out, update_manifest: bool) -> None:
 
 def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, in_run_folder: bool) -> None:
     """The content of a run's evidence bundle, read from the stored rows (see the module notes)."""
-    from sim.core.text import fmt_num
-    from sim.evidence.figures import SweepData
-    from sim.runner.experiment import leading_comment
-    from sim.runner.runs import (
-        ARRAYS_FILE,
-        CSV_FILE,
-        EXPERIMENT_COPY,
-        PARQUET_FILE,
-        SEED_RULE,
-        _iso,
-        code_notes,
-        sha256_file,
-    )
-    from sim.runner.store import STORE_FILE
 
     desc = exp.description or leading_comment(exp.text or "")
     b.paragraph(f"Experiment `{exp.name}` (kind `{exp.kind}`), run folder `{folder.name}`; {counts['total']} cell"
                 f"{'s' if counts['total'] != 1 else ''}, {counts['ok']} finished, {counts['failed']} failed.")
     more = []  # the kind's own lines on reproducing its numbers
-    if kind.report is not None:
+    render = renderer_of(kind)
+    if render is not None:
         # the kind's own account of its results, read from the stored rows; the closing sections follow
-        more = list(kind.report(rf, b) or [])
+        more = list(render(rf, b) or [])
         b.table("results", header, body, show=False)
         b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
                     f"(also `{CSV_FILE}` in the run folder).", note=True)
@@ -284,7 +320,6 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
 
         b.heading("Results")
         specs = list(exp.report.figures) or default_figures(exp, kind, data)
-        from sim.runner.experiment import figure_name
 
         for i, spec in enumerate(specs):
             if not data.has(spec.metric):
@@ -373,8 +408,8 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
          if meta.get("seed_key") else "No random numbers: the kind is deterministic."),
         f"Command: `{' '.join(attempts[0].get('command') or []) if attempts else ''}`"
         + (f" (and {len(attempts) - 1} resumption{'s' if len(attempts) > 2 else ''})" if len(attempts) > 1 else ""),
-        f"Started {_iso(attempts[0]['started']) if attempts else '-'}, finished "
-        f"{_iso(max(a['finished'] or 0 for a in attempts)) if attempts else '-'} (UTC); cell compute time "
+        f"Started {iso_time(attempts[0]['started']) if attempts else '-'}, finished "
+        f"{iso_time(max(a['finished'] or 0 for a in attempts)) if attempts else '-'} (UTC); cell compute time "
         f"{fmt_num(sum(r.seconds or 0.0 for r in rows), 1)} s in total.",
         "Software versions and platform: `manifest.json`.",
         *more,
@@ -397,10 +432,10 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
         "experiment": {"file": EXPERIMENT_COPY, "sha256": exp.sha256, "name": exp.name, "kind": exp.kind,
                        "source": meta.get("source")},
         "command": attempts[0].get("command") if attempts else None,
-        "attempts": [{"started": _iso(a["started"]), "finished": _iso(a["finished"]), "outcome": a["outcome"],
+        "attempts": [{"started": iso_time(a["started"]), "finished": iso_time(a["finished"]), "outcome": a["outcome"],
                       "command": a.get("command"), "backend": a.get("backend")} for a in attempts],
-        "started": _iso(attempts[0]["started"]) if attempts else None,
-        "finished": _iso(max(a["finished"] or 0 for a in attempts)) if attempts else None,
+        "started": iso_time(attempts[0]["started"]) if attempts else None,
+        "finished": iso_time(max(a["finished"] or 0 for a in attempts)) if attempts else None,
         "seeds": {"experiment_seed": seed, "seed_key": meta.get("seed_key"),
                   "cells": [[r.number, r.seed] for r in rows] if len(rows) <= 10_000 else None},
         "cells": {"total": counts["total"], "ok": counts["ok"], "failed": counts["failed"]},

@@ -25,9 +25,17 @@ from pathlib import Path
 
 import numpy as np
 
+from sim.core.jsonutil import dumps
+from sim.core.stats import normal_quantile as z
+from sim.core.text import fmt_num
+
 # one check-and-create of output folders for the simulation and tournament figures and tables
 from sim.evidence.simplots import _outdir as output_dir
 from sim.evidence.simplots import _pyplot
+from sim.runner.analyses.tournament import describe as describe_tournament
+from sim.runner.analyses.tournament import metric_label
+from sim.runner.experiment import leading_comment
+from sim.tournament.roundrobin import EVOLUTION_DEFAULTS, SCORE_NAMES, TOURNAMENT_DEFAULTS
 
 __all__ = ["fixation_figure", "heatmap_figure", "output_dir", "ranking_figure", "replicator_figure",
            "tournament_figures", "tournament_json", "write_tables"]
@@ -66,7 +74,6 @@ def tournament_json(result, evolution=None) -> dict:
 
 def write_tables(result, directory, evolution=None, summary: str | None = None, key: str = "--out") -> list[Path]:
     """Write the CSV tables, ``tournament.json`` and (when given) ``summary.txt``; returns the paths."""
-    from sim.core.jsonutil import dumps
 
     d = output_dir(directory, key)
     labels = result.labels
@@ -182,7 +189,6 @@ def write_tables(result, directory, evolution=None, summary: str | None = None, 
 
 
 def _z(confidence: float) -> float:
-    from sim.simulation.results import _z as z
 
     return z(confidence)
 
@@ -198,7 +204,6 @@ def tournament_figures(result, directory, evolution=None, key: str = "--plot") -
     d = output_dir(directory, key)
     plt = _pyplot()
     score = result.score
-    from sim.tournament.roundrobin import SCORE_NAMES
 
     name = SCORE_NAMES[score]
     files = []
@@ -350,7 +355,6 @@ def _pct(x) -> str:
 
 
 def _interval(m: dict, name: str) -> str:
-    from sim.core.text import fmt_num
 
     lo, hi = m.get(f"{name}.low", math.nan), m.get(f"{name}.high", math.nan)
     if not (math.isfinite(lo) and math.isfinite(hi)):
@@ -362,7 +366,6 @@ def _cell_settings(doc: dict) -> dict:
     """What a cell's document says about its tournament (the defaults of :mod:`sim.tournament.roundrobin` where it is
     silent): the entrants' labels and metric names, the score, the confidence level and the evolutionary
     settings."""
-    from sim.tournament.roundrobin import EVOLUTION_DEFAULTS, SCORE_NAMES, TOURNAMENT_DEFAULTS, metric_label
 
     tour = doc.get("tournament", {})
     labels = [str(e.get("label")) for e in doc.get("entrants", []) if isinstance(e, dict)]
@@ -377,8 +380,6 @@ def kind_report(rf, b) -> None:
     analysis and the four figures of ``supergame tournament --plot``; a sweep gets a table of every cell's
     outcome and, over one numeric parameter, the scores along it. Everything is read from the stored rows
     (metrics and arrays); ranks and counts are shown as integers."""
-    from sim.runner.experiment import leading_comment
-    from sim.tournament.roundrobin import _kind_describe
 
     exp = rf.experiment
     rows = rf.rows()
@@ -388,7 +389,7 @@ def kind_report(rf, b) -> None:
         for para in desc.split("\n\n"):
             b.paragraph(" ".join(para.split()))
     b.heading("Setup")
-    b.bullets(_kind_describe(exp.doc))
+    b.bullets(describe_tournament(exp.doc))
     ok = [r for r in rows if r.status == "ok"]
     if not exp.parameters:
         b.heading("Results")
@@ -407,7 +408,6 @@ def kind_report(rf, b) -> None:
 
 
 def _cell_account(b, cs: dict, row) -> None:
-    from sim.core.text import fmt_num
 
     m, a = row.metrics, row.arrays
     labels, names = cs["labels"], cs["names"]
@@ -418,7 +418,6 @@ def _cell_account(b, cs: dict, row) -> None:
                 f"self-play included); ranked by {sname}.")
     order = sorted(range(E), key=lambda e: (m[f"rank.{names[e]}"], e))
     boot = math.isfinite(m.get("ranking_holds", math.nan))
-    from sim.tournament.roundrobin import SCORE_NAMES
 
     others = [k for k in _METRICS if k != cs["score"]]
     head = ["rank", "entrant", sname, f"{pct} CI", *(SCORE_NAMES[k] for k in others)]
@@ -486,7 +485,6 @@ def _cell_account(b, cs: dict, row) -> None:
 
 
 def _sweep_account(b, exp, ok) -> None:
-    from sim.core.text import fmt_num
 
     if not ok:
         b.paragraph("No cell finished: no results to report (see the failed cells below).", note=True)

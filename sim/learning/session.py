@@ -27,18 +27,39 @@ number of workers. Layers: :func:`learn` (validated public function) -> :func:`_
 
 from __future__ import annotations
 
+import json
 import math
 import os
+import subprocess
 import sys
+import tempfile
 import time
 from concurrent.futures import ThreadPoolExecutor, as_completed
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+from tqdm import tqdm
 
+import sim.learning.kernel as K
+import sim.learning.kernel as LK
+import strategies.step as SS
 from sim.core.errors import InputError
+from sim.core.parallel import usable_cores
 from sim.core.params import Integer, Options, Real, optional
+from sim.core.rng import stream_states
+from sim.core.tables import refuse_unknown
+from sim.learning.twin import reference_session as _ref
+from sim.models.demand import LogitDemand
+from sim.models.market import Market, MarketSpec, market_from_dict
+from sim.models.stagecore import evaluate_py, market_arrays
+from sim.simulation.engine import stage_levels
+from sim.simulation.results import mean_estimate, normal_quantile, wilson_estimate
+from sim.theory.equilibrium import stage_game
+from strategies import AlwaysCompete, Automaton, strategy_from_dict
+from strategies import compile_lineup as compile_automata
+from strategies.qlearning import QLearner
+from strategies.registry import check_seats
 
 __all__ = [
     "LEARNER_PARAMS",
@@ -68,7 +89,7 @@ LIMIT_PERIODS = 10_000
 VALUE_TOL = 1e-10
 VALUE_CAP = 100_000
 
-_RUN_CONSTRAINTS = {
+RUN_CONSTRAINTS = {
     "sessions": Integer(1, 10_000_000),
     "seed": Integer(0, 2**63 - 1),
     "convergence": Integer(1, 10**12),
@@ -274,7 +295,6 @@ def _check_memory(radix: list[int], ks: list[int], n_workers: int, prefix: str, 
 
 
 def _is_learner(x) -> bool:
-    from strategies.qlearning import QLearner
 
     return isinstance(x, QLearner)
 
@@ -316,10 +336,6 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     -------
     Lineup
     """
-    import sim.learning.kernel as LK
-    from sim.models.market import MarketSpec
-    from sim.theory.equilibrium import stage_game
-    from strategies.qlearning import QLearner
 
     Options("refuse", "estimate").check("random_automata", random_automata)
     ms = market if isinstance(market, MarketSpec) else market.spec()
@@ -355,7 +371,6 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     zn = np.ones(n, dtype=np.int64)
     z0 = np.zeros(n, dtype=np.int64)
     if not all(is_l):
-        import strategies.step as SS
 
         automata, auto_values, act_of_level, random_seats = _compile_automata(ms, seats, is_l, keys, agreement,
                                                                               random_automata == "refuse")
@@ -368,7 +383,9 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     z_states = int(np.prod(zn))
     _check_memory(radix, ks, max(1, int(workers)), prefix, available_memory, z_states)
 
-    compiled = tuple(seats[i].compile(ms, i, keys[i]) if is_l[i] else None for i in range(n))
+    # the published grid of a learner without one is placed by the static-Nash and joint-profit actions
+    stage = stage_game(ms) if any(is_l[i] and seats[i].get_params().get("grid") is None for i in range(n)) else None
+    compiled = tuple(seats[i].compile(stage, i, keys[i]) if is_l[i] else None for i in range(n))
     grids = tuple(compiled[i].grid if is_l[i] else auto_values[i] for i in range(n))
     radix_a = np.array(radix, dtype=np.int64)
     place = np.ones(n, dtype=np.int64)
@@ -399,7 +416,6 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
         values[i, : radix[i]] = grids[i]
     mprice = np.zeros(M)
     if automata is not None:
-        from sim.models.stagecore import evaluate_py, market_arrays
 
         arrays = market_arrays(ms)
         for j in range(M):
@@ -467,10 +483,6 @@ def _compile_automata(ms, seats, is_l, keys, agreement, refuse_random=False):
     forgiveness, a lapse or a cheat probability): they draw from the session's stream. With
     ``refuse_random`` such a seat raises InputError instead.
     """
-    import strategies.step as SS
-    from sim.simulation.engine import stage_levels
-    from strategies import AlwaysCompete, Automaton
-    from strategies import compile_lineup as compile_automata
 
     n = len(seats)
     for i in range(n):
@@ -524,7 +536,6 @@ def _compile_automata(ms, seats, is_l, keys, agreement, refuse_random=False):
 
 def _mean_ci(x, level: float = 0.95) -> dict:
     """Mean with its normal-approximation confidence interval (nan when fewer than two values)."""
-    from sim.simulation.results import mean_estimate
 
     x = np.asarray(x, dtype=float)
     x = x[np.isfinite(x)]
@@ -537,7 +548,6 @@ def _mean_ci(x, level: float = 0.95) -> dict:
 
 def _share_ci(k: int, n: int, level: float = 0.95) -> dict:
     """Share with the Wilson score interval (Wilson, 1927, JASA 22)."""
-    from sim.simulation.results import wilson_estimate
 
     if n == 0:
         return {"share": math.nan, "low": math.nan, "high": math.nan, "count": 0, "n": 0}
@@ -751,7 +761,6 @@ class LearningResult:
 
 def _stack_ci(x: np.ndarray, level: float = 0.95) -> dict:
     """Mean and normal-approximation interval at ``level`` per row and firm of an array of shape (n, T, f)."""
-    from sim.simulation.results import normal_quantile
 
     if x.shape[0] == 0:
         return {"mean": [], "low": [], "high": []}
@@ -772,16 +781,8 @@ def _stack_ci(x: np.ndarray, level: float = 0.95) -> dict:
 def _validate_run(**values) -> dict:
     out = {}
     for name, value in values.items():
-        out[name] = _RUN_CONSTRAINTS[name].check(name, value)
+        out[name] = RUN_CONSTRAINTS[name].check(name, value)
     return out
-
-
-def usable_cores() -> int:
-    """Cores this process may run on (the default number of workers)."""
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except AttributeError:  # pragma: no cover - not Linux
-        return max(1, os.cpu_count() or 1)
 
 
 def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, convergence: int = 100_000,
@@ -928,8 +929,6 @@ def _limit_description(lineup: Lineup, settings: dict) -> dict:
 
 def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool | None) -> LearningResult:
     """Driver: per-session streams, buffers, a thread pool over sessions, a progress bar."""
-    import sim.learning.kernel as K
-    from sim.core.rng import stream_states
 
     n = settings["sessions"]
     f = lineup.n_seats
@@ -979,7 +978,6 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
     t0 = time.perf_counter()
     bar = None
     if show:
-        from tqdm import tqdm
 
         bar = tqdm(total=n, desc="sessions", unit="session", file=sys.stderr, leave=False)
     try:
@@ -1061,7 +1059,6 @@ def learner_from_entry(entry: dict, base: dict, key: str, skip=("strategy",), va
     InputError
         ``key.name`` for an unknown parameter or a bad value.
     """
-    from strategies.qlearning import QLearner
 
     params = dict(base)
     for name, v in entry.items():
@@ -1080,9 +1077,6 @@ def _lineup_from_entries(entries, base: dict, n_firms: int) -> list:
     """One strategy per firm from ``[[strategies]]``: ``strategy = "qlearning"`` entries take the
     [learning] parameters, overridden by their own; any other name is an automaton of the engine's
     registry (see ``supergame simulate``)."""
-    from strategies import strategy_from_dict
-    from strategies.qlearning import QLearner
-    from strategies.registry import check_seats
 
     if not isinstance(entries, list) or not entries:
         raise InputError("strategies", "must be a non-empty list of [[strategies]] entries")
@@ -1152,9 +1146,6 @@ def learning_from_dict(doc: dict, overrides: dict | None = None) -> dict:
 
 
 def _read_tables(doc: dict, overrides: dict) -> dict:
-    from sim.core.tables import refuse_unknown
-    from sim.models.market import market_from_dict
-    from strategies.qlearning import QLearner
 
     if not isinstance(doc, dict):
         raise InputError("experiment", f"must be a document of tables, got {doc!r}")
@@ -1197,7 +1188,7 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     def get(tab: dict, name: str, key: str, constraint, default):
         return constraint.check(f"{name}.{key}", tab.get(key, default))
 
-    rc = _RUN_CONSTRAINTS
+    rc = RUN_CONSTRAINTS
     settings = {
         "convergence": get(lt, "learning", "convergence", rc["convergence"], 100_000),
         "max_periods": get(lt, "learning", "max_periods", rc["max_periods"], 1_000_000_000),
@@ -1225,11 +1216,6 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     return {"market": market, "learner": learner, "settings": settings}
 
 
-def _build_without_flags(_flags, doc: dict) -> dict:
-    """:func:`learning_from_dict` of ``doc``, called the way the experiment adapter calls its table
-    reader (``build(flags, doc)``, with an object that gives no flag): the first argument is not
-    used."""
-    return learning_from_dict(doc)
 
 
 # ------------------------------------------------------------------------------------------------
@@ -1241,8 +1227,6 @@ def reference_session(lineup: Lineup, session: int = 0, *, seed: int = 0, conver
                       max_periods: int = 10_000, cell: int = 0) -> dict:
     """The plain-Python twin of one session (:func:`sim.learning.twin.reference_session`), with the
     session's own random stream. Slow: for tests and benchmarks on short sessions."""
-    from sim.core.rng import stream_states
-    from sim.learning.twin import reference_session as _ref
 
     state = stream_states(seed, (cell,), session, session + 1)[0]
     return _ref(lineup, state, convergence, max_periods)
@@ -1252,8 +1236,6 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
                    max_periods: int = 10_000, cell: int = 0) -> dict:
     """One session through the kernel, returning the same fields as :func:`reference_session`
     (``rng``: the generator state after the last period)."""
-    import sim.learning.kernel as K
-    from sim.core.rng import stream_states
 
     rng = stream_states(seed, (cell,), session, session + 1)[0].copy()
     Q = lineup.q0.copy()
@@ -1267,8 +1249,6 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
 
 
 def _baseline_market():
-    from sim.models.demand import LogitDemand
-    from sim.models.market import Market
 
     # Calvano et al. (2020), baseline: a_i = 2, a_0 = 0, c = 1, mu = 1/4
     return Market(LogitDemand(quality=2.0, outside=0.0, mu=0.25), cost=1.0, model="bertrand", n_firms=2)
@@ -1344,9 +1324,6 @@ def time_sessions(sessions: int = 1000, workers: int = 2, seed: int = 0, cold: b
     With ``cold`` the process gets an empty numba cache directory, so every kernel is compiled from
     scratch inside the timed run (interpreter start and imports are timed too).
     """
-    import json
-    import subprocess
-    import tempfile
 
     code = ("import json, time; t0 = time.perf_counter(); from sim.learning.session import learn, _baseline_market; "
             f"r = learn(_baseline_market(), sessions={int(sessions)}, seed={int(seed)}, workers={int(workers)}, "
@@ -1365,37 +1342,4 @@ def time_sessions(sessions: int = 1000, workers: int = 2, seed: int = 0, cold: b
         raise RuntimeError(f"timed learning run failed: {last}")
     out = json.loads(proc.stdout.strip().splitlines()[-1])
     out.update({"sessions": sessions, "workers": workers, "cold_cache": cold, "wall_seconds": wall})
-    return out
-
-
-def bench_section(opts) -> dict:
-    """The ``learning`` section of ``supergame bench`` (``opts``: :class:`sim.cli.bench.BenchOptions`).
-
-    Throughput of the two-agent baseline on one core against the plain-Python reference, and the wall
-    time of 1,000 baseline sessions with ``opts.threads`` workers in a fresh process with an empty numba
-    cache (compilation included). Targets (issue acceptance): >= 8e6 periods/s, >= 100 x the
-    reference, 1,000 sessions in under 3 minutes.
-    """
-    quick = bool(getattr(opts, "quick", False))
-    workers = int(getattr(opts, "threads", 2))
-    repeat = int(getattr(opts, "repeat", 1))
-    if quick:
-        b = benchmark(sessions=1, reference_periods=5_000, kernel_periods=500_000, repeat=1)
-        t = time_sessions(sessions=8, workers=workers, cold=False)
-    else:
-        b = benchmark(sessions=4, reference_periods=100_000, kernel_periods=20_000_000, repeat=repeat)
-        t = time_sessions(sessions=1000, workers=workers, cold=True)
-    rate = min(b["kernel_session_periods_per_second"], b["kernel_periods_per_second"])
-    out = dict(b)
-    out["workload"] = ("two Q-learners, logit Bertrand baseline of Calvano et al. (2020): m = 15, k = 1, "
-                       "alpha 0.15, beta 4e-6, delta 0.95")
-    out["sessions_run"] = t
-    out["targets"] = {
-        "kernel >= 8e6 periods/s on one core": rate >= 8e6,
-        "kernel >= 100 x reference": b["ratio"] >= 100,
-        f"{t['sessions']} baseline sessions in < 180 s with {workers} workers, compile included":
-            t["wall_seconds"] < 180 and t["sessions"] == 1000 and t["cold_cache"],
-        "reference and kernel identical": b["reference_identical_to_kernel"],
-    }
-    out["notes"] = ["quick workload: the targets refer to the full workload"] if quick else []
     return out

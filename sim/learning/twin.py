@@ -26,6 +26,7 @@ import math
 
 import numpy as np
 
+import strategies.step as S
 from sim.core.rng import ReferenceStream
 
 __all__ = ["jumped", "reference_analysis", "reference_estimate", "reference_session"]
@@ -66,7 +67,6 @@ class _Automaton:
     """One automaton seat, read from the engine's compiled arrays into plain lists."""
 
     def __init__(self, lineup, i):
-        import strategies.step as S
 
         self.S = S
         self.i = i

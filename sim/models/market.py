@@ -452,7 +452,7 @@ def _check_costs(prefix: str, d: DemandSpec, cost: np.ndarray) -> None:
 
 
 # keys of the flat [market] table, by demand system
-_DEMAND_KEYS = {
+DEMAND_KEYS = {
     "linear": ("intercept", "slope", "split"),
     "differentiated": ("intercept", "slope", "substitution"),
     "logit": ("quality", "outside", "mu", "size"),
@@ -473,7 +473,7 @@ def market_from_dict(table: dict, prefix: str = "market") -> Market:
     if demand_name not in DEMAND_TYPES:
         allowed = ", ".join(map(repr, DEMAND_TYPES))
         raise InputError(f"{prefix}.demand", f"must be one of {allowed}, got {demand_name!r}")
-    allowed = set(_MARKET_KEYS) | set(_DEMAND_KEYS[demand_name])
+    allowed = set(_MARKET_KEYS) | set(DEMAND_KEYS[demand_name])
     for key in table:
         if key not in allowed:
             raise InputError(
@@ -482,7 +482,7 @@ def market_from_dict(table: dict, prefix: str = "market") -> Market:
             )
     if "cost" not in table:
         raise InputError(f"{prefix}.cost", "missing (marginal cost of each firm)")
-    dparams = {k: table[k] for k in _DEMAND_KEYS[demand_name] if k in table}
+    dparams = {k: table[k] for k in DEMAND_KEYS[demand_name] if k in table}
     cls = {"linear": LinearDemand, "differentiated": DifferentiatedDemand, "logit": LogitDemand,
            "isoelastic": IsoelasticDemand}[demand_name]
     default_model = cls.models[0]

@@ -23,6 +23,8 @@
 
 from __future__ import annotations
 
+from scipy.special import ndtr
+
 from sim.core.errors import InputError
 from sim.core.params import Options, Parametrized, Real
 from sim.core.tables import refuse_unknown
@@ -91,6 +93,5 @@ def monitoring_from_dict(table: dict, prefix: str = "monitoring") -> Monitoring:
 
 def _share_negative(sigma: float) -> str:
     """``P(1 + sigma Z < 0)`` as a percentage, for error messages."""
-    from scipy.special import ndtr
 
     return f"{100 * float(ndtr(-1.0 / sigma)):.2g} %"

@@ -7,7 +7,7 @@ out -- a flat dict of numbers and, optionally, a few arrays for figures). Everyt
 seeds, workers, the store, exports, figures, the evidence bundle -- is shared.
 
 The built-in kinds (``thresholds``, ``simulate``, ``learn``) live in :mod:`sim.runner.analyses`. A component
-adds its kind with one line in :data:`LAZY_KINDS` (``"tournament": "sim.tournament.roundrobin:EXPERIMENT_KIND"``),
+adds its kind with one line in :data:`LAZY_KINDS` (``"tournament": "sim.runner.analyses.tournament:KIND"``),
 imported on first use, or by calling :func:`register_kind`. A user's own kinds and strategies come
 only from Python code named on the command line (``--plugin FILE``) or from an installed package's
 entry point in the group ``supergame.plugins``; both run that code, with the user's rights. The
@@ -37,12 +37,15 @@ import numbers
 import sys
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
+from importlib.metadata import entry_points
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from sim.core.errors import InputError
+from sim.core.jsonutil import jsonable
+from sim.core.tomlfile import file_sha256
 
 __all__ = [
     "LAZY_KINDS",
@@ -58,11 +61,11 @@ __all__ = [
 #: kind name -> "module:attribute" of its :class:`Kind`, imported on first use. Other components
 #: register their kind here with one line.
 LAZY_KINDS: dict[str, str] = {
-    "thresholds": "sim.runner.analyses:THRESHOLDS",
-    "simulate": "sim.runner.analyses:SIMULATE",
-    "learn": "sim.runner.analyses:LEARN",
-    "tournament": "sim.tournament.roundrobin:EXPERIMENT_KIND",
-    "assess": "sim.antitrust.assess:EXPERIMENT_KIND",
+    "thresholds": "sim.runner.analyses.thresholds:KIND",
+    "simulate": "sim.runner.analyses.simulate:KIND",
+    "learn": "sim.runner.analyses.learn:KIND",
+    "tournament": "sim.runner.analyses.tournament:KIND",
+    "assess": "sim.runner.analyses.assess:KIND",
 }
 _KINDS: dict[str, Kind] = {}
 #: entry-point group of installed plugins (modules that register strategies or kinds on import)
@@ -239,7 +242,6 @@ def clean_metrics(metrics: Mapping) -> dict:
 def clean_arrays(arrays: Mapping) -> dict:
     """Arrays as nested lists of floats (nan kept), for JSON; a dict as its plain JSON data (nan and inf
     as None, see :func:`sim.core.jsonutil.jsonable`)."""
-    from sim.core.jsonutil import jsonable
 
     out = {}
     for k, v in arrays.items():
@@ -263,7 +265,6 @@ _ENTRY_POINTS_LOADED = False
 
 def file_digest(path) -> str:
     """SHA-256 of a plugin file (hex)."""
-    from sim.core.tomlfile import file_sha256
 
     return file_sha256(path)
 
@@ -335,7 +336,6 @@ def load_entry_points() -> list[str]:
     if _ENTRY_POINTS_LOADED:
         return []
     _ENTRY_POINTS_LOADED = True
-    from importlib.metadata import entry_points
 
     names = []
     for ep in sorted(entry_points(group=ENTRY_POINT_GROUP), key=lambda e: e.name):

@@ -25,11 +25,10 @@ the random streams use the index counted from 0 (see :mod:`sim.runner.experiment
 from __future__ import annotations
 
 import datetime as _dt
-import functools
 import hashlib
+import io
 import json
 import math
-import os
 import platform
 import shutil
 import sqlite3
@@ -40,7 +39,16 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from sim.core.errors import InputError
-from sim.core.tomlfile import file_sha256
+from sim.core.files import clear_leftovers, partial_path, write_atomic
+from sim.core.parallel import usable_cores
+from sim.core.provenance import COMPUTING_PACKAGES, code_digest, package_versions, platform_info
+from sim.core.text import CAUTION
+from sim.core.tomlfile import file_sha256, read_toml
+from sim.core.values import canonical_json
+from sim.runner.experiment import Experiment, experiment_from_dict, leading_comment, load_experiment
+from sim.runner.kinds import CellContext, clean_metrics
+from sim.runner.store import STORE_FILE, CellRow, DamagedStore, Store, csv_text, export_table, frame, parquet_bytes
+from sim.runner.sweep import Progress, choose_backend, execute
 
 __all__ = ["RunFolder", "RunSummary", "VerifyResult", "check_manifest", "open_run", "run_experiment", "verify_run",
            "write_manifest"]
@@ -57,7 +65,6 @@ _TRANSIENT = ("results.sqlite-wal", "results.sqlite-shm", "results.sqlite-journa
 #: seeds of at most this many cells are listed one by one in the manifest
 _MANIFEST_CELL_SEEDS = 10_000
 #: packages whose version can change the numbers a cell computes: a run is resumed only with the same ones
-COMPUTING_PACKAGES = ("python", "supergame", "numpy", "numba", "llvmlite", "scipy")
 #: the seed rule, as stated in manifests and reports
 SEED_RULE = ("cell k (counted from 1) draws from numpy.random.SeedSequence(seed, spawn_key=(k - 1,)), seed being "
              "the cell's {key}; one stream per replication or session within the cell")
@@ -66,7 +73,7 @@ SEED_RULE = ("cell k (counted from 1) draws from numpy.random.SeedSequence(seed,
 sha256_file = file_sha256
 
 
-def _iso(t: float | None) -> str | None:
+def iso_time(t: float | None) -> str | None:
     if t is None:
         return None
     return _dt.datetime.fromtimestamp(t, tz=_dt.UTC).isoformat(timespec="seconds")
@@ -75,7 +82,6 @@ def _iso(t: float | None) -> str | None:
 @contextmanager
 def _reading(key: str, folder: Path):
     """Damage of the store becomes one line naming ``key`` (never a traceback)."""
-    from sim.runner.store import STORE_FILE, DamagedStore
 
     try:
         yield
@@ -86,7 +92,6 @@ def _reading(key: str, folder: Path):
 
 def _read_copy(folder: Path, key: str) -> tuple[str, dict]:
     """Text and table of the run folder's copy of the experiment file."""
-    from sim.core.tomlfile import read_toml
 
     p = folder / EXPERIMENT_COPY
     if not p.is_file():
@@ -133,8 +138,6 @@ class RunFolder:
     """
 
     def __init__(self, path, key: str = "RUN_DIR", check_copy: bool = True, check_cells: bool = False):
-        from sim.runner.experiment import experiment_from_dict
-        from sim.runner.store import STORE_FILE, Store
 
         self.path = Path(path)
         self.key = key
@@ -211,13 +214,11 @@ class RunFolder:
 
     def table(self) -> tuple[list[str], list[list]]:
         """Columns and rows of the results table (as in ``results.csv``)."""
-        from sim.runner.store import export_table
 
         return export_table(self.rows(), list(self.experiment.parameters), self.experiment.metric_names)
 
     def frame(self):
         """The results table as a pandas DataFrame (pandas is optional)."""
-        from sim.runner.store import frame
 
         return frame(*self.table())
 
@@ -251,43 +252,6 @@ def open_run(path) -> RunFolder:
 # --------------------------------------------------------------------------------------------------
 # Manifest
 # --------------------------------------------------------------------------------------------------
-
-
-def package_versions() -> dict:
-    from importlib.metadata import PackageNotFoundError, version
-
-    out = {"python": platform.python_version()}
-    for name in ("supergame", "numpy", "numba", "llvmlite", "scipy", "matplotlib", "tqdm", "pandas", "pyarrow",
-                 "dask", "distributed"):
-        try:
-            out[name] = version(name)
-        except PackageNotFoundError:
-            out[name] = None
-    return out
-
-
-@functools.lru_cache(maxsize=1)
-def code_digest() -> str:
-    """SHA-256 of the package's Python sources (``sim`` and ``strategies``, by relative path): tells
-    apart two installations of the same version whose code differs (an editable install, a patch)."""
-    import sim
-    import strategies
-
-    h = hashlib.sha256()
-    for pkg in (sim, strategies):
-        base = Path(pkg.__file__).resolve().parent
-        for p in sorted(base.rglob("*.py")):
-            h.update(f"{pkg.__name__}/{p.relative_to(base).as_posix()}".encode())
-            h.update(b"\0")
-            h.update(p.read_bytes())
-            h.update(b"\0")
-    return h.hexdigest()
-
-
-def platform_info() -> dict:
-    return {"system": platform.system(), "release": platform.release(), "machine": platform.machine(),
-            "platform": platform.platform(), "python_implementation": platform.python_implementation(),
-            "cpus": os.cpu_count()}
 
 
 def output_files(folder: Path) -> list[str]:
@@ -357,33 +321,22 @@ def check_manifest(folder, rewritten=(), key: str = "RUN_DIR") -> dict | None:
     return man
 
 
-def _partial(path: Path) -> Path:
-    return path.with_name(f".{path.name}.partial")
-
-
-def _write_atomic(path: Path, text: str) -> None:
-    tmp = _partial(path)
-    tmp.write_text(text, encoding="utf-8")
-    os.replace(tmp, path)
-
-
-def clear_leftovers(folder) -> None:
+def clear_run_leftovers(folder) -> None:
     """Remove what an interrupted write left in a run folder: a half-written manifest, the hidden
-    folders of a report being written or replaced (:func:`sim.evidence.bundle.clear_leftovers`)."""
-    from sim.evidence.bundle import clear_leftovers as clear_bundle
+    folders of a report being written or replaced (:func:`sim.core.files.clear_leftovers`)."""
 
     folder = Path(folder)
-    _partial(folder / MANIFEST).unlink(missing_ok=True)
+    partial_path(folder / MANIFEST).unlink(missing_ok=True)
     for p in folder.glob(".*.partial-*"):
         if p.is_dir():
-            clear_bundle(folder / p.name[1:].split(".partial-")[0])
+            clear_leftovers(folder / p.name[1:].split(".partial-")[0])
     for p in folder.glob(".*.replaced-*"):
         if p.is_dir():
-            clear_bundle(folder / p.name[1:].split(".replaced-")[0])
+            clear_leftovers(folder / p.name[1:].split(".replaced-")[0])
 
 
 def _attempt_record(a: dict) -> dict:
-    return {"started": _iso(a["started"]), "finished": _iso(a["finished"]), "outcome": a["outcome"],
+    return {"started": iso_time(a["started"]), "finished": iso_time(a["finished"]), "outcome": a["outcome"],
             "command": a.get("command"), "backend": a.get("backend"), "cells_run": a.get("cells_run"),
             "host": a.get("host"), "packages": a.get("packages"), "code_sha256": a.get("code"),
             "plugins": a.get("plugins")}
@@ -427,8 +380,8 @@ def write_manifest(folder, rewritten=(), key: str = "RUN_DIR") -> dict:
         "experiment": {"file": EXPERIMENT_COPY, "sha256": meta["sha256"], "source": meta.get("source"),
                        "name": meta["name"], "kind": meta["kind"]},
         "caution": meta.get("caution"),
-        "started": _iso(min((a["started"] for a in attempts), default=None)),
-        "finished": _iso(max((a["finished"] for a in attempts if a["finished"] is not None), default=None)),
+        "started": iso_time(min((a["started"] for a in attempts), default=None)),
+        "finished": iso_time(max((a["finished"] for a in attempts if a["finished"] is not None), default=None)),
         "attempts": [_attempt_record(a) for a in attempts],
         "command": attempts[0].get("command") if attempts else None,
         "packages": package_versions(),
@@ -440,7 +393,7 @@ def write_manifest(folder, rewritten=(), key: str = "RUN_DIR") -> dict:
         "notes": code_notes(attempts),
         "files": {rel: sha256_file(folder / rel) for rel in output_files(folder)},
     }
-    _write_atomic(folder / MANIFEST, json.dumps(man, indent=2, sort_keys=False) + "\n")
+    write_atomic(folder / MANIFEST, json.dumps(man, indent=2, sort_keys=False) + "\n")
     return man
 
 
@@ -499,7 +452,8 @@ class RunSummary:
                 "status": self.status, "files": self.files, "report": str(self.report) if self.report else None}
 
 
-def _default_folder(root: Path, name: str) -> Path:
+def default_folder(root: Path, name: str) -> Path:
+    """A new run folder's default path: ``root/<name>-<YYYYmmdd-HHMMSS>``."""
     stamp = time.strftime("%Y%m%d-%H%M%S")
     p = root / f"{name}-{stamp}"
     k = 2
@@ -510,10 +464,9 @@ def _default_folder(root: Path, name: str) -> Path:
 
 
 def _new_folder(out, name: str, root) -> Path:
-    from sim.runner.store import STORE_FILE
 
     if out is None:
-        return _default_folder(Path(root), name)
+        return default_folder(Path(root), name)
     p = Path(out)
     if p.exists():
         if not p.is_dir():
@@ -527,7 +480,6 @@ def _new_folder(out, name: str, root) -> Path:
 
 
 def _experiment_of(experiment, key="FILE"):
-    from sim.runner.experiment import Experiment, load_experiment
 
     if isinstance(experiment, Experiment):
         if experiment.text is None:
@@ -550,18 +502,16 @@ class _Resumed:
 def _resume_target(resume, experiment, plugin_info: list) -> _Resumed:
     """Open the run to resume and check that it continues as it started: the same experiment file (the
     folder's copy unchanged, and FILE when given), the same plugins, a store that reads back."""
-    from sim.runner.store import STORE_FILE
 
     folder = Path(resume)
     if not folder.is_dir() or not (folder / STORE_FILE).is_file() or not (folder / EXPERIMENT_COPY).is_file():
         raise InputError("--resume", f"{resume} is not a run folder (no {STORE_FILE} and {EXPERIMENT_COPY})")
-    from sim.runner.store import Store
 
     # the plugins first: the copy of the experiment may need them to be read at all
     with Store(folder / STORE_FILE, readonly=True) as st, _reading("--resume", folder):
         recorded = st.meta().get("plugins") or []
     _check_plugins(recorded if isinstance(recorded, list) else [], plugin_info)
-    clear_leftovers(folder)
+    clear_run_leftovers(folder)
     with RunFolder(folder, key="--resume", check_copy=True, check_cells=experiment is None) as rf:
         meta = rf.meta
         exp = rf.experiment
@@ -625,7 +575,7 @@ def _check_packages(attempts: list, key: str = "--resume") -> None:
 
 
 def run_experiment(experiment, out=None, *, workers: int | None = None, cluster: str | None = None,
-                   resume=None, retry_failed: bool = False, report: bool = False, plugins=(),
+                   resume=None, retry_failed: bool = False, report: bool = False, write_report=None, plugins=(),
                    progress: bool | None = None, command: list | None = None, root="runs") -> RunSummary:
     """Run every cell of an experiment into a run folder (see the module notes).
 
@@ -646,8 +596,13 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
     retry_failed : bool
         With ``resume``, compute the failed cells again as well.
     report : bool
-        Write the evidence bundle when every cell is done. (A run folder that has a report gets it
-        written again when a resumption computed cells, so that it never describes older results.)
+        Write the evidence bundle when every cell is done (with ``write_report``). A run folder that has a
+        report gets it written again when a resumption computed cells, so that it never describes older
+        results (removed instead when no ``write_report`` is given).
+    write_report : callable, optional
+        ``write_report(folder, update_manifest=False) -> Path``: writes the bundle into ``folder/report``
+        (:func:`sim.evidence.report.write_report`; the runner does not know how a report is made). Called
+        after the exports and before the manifest, so that the manifest covers the report.
     plugins : sequence of dict
         Plugins already loaded (:func:`sim.runner.kinds.load_plugins`), recorded in the store and loaded by the
         workers.
@@ -660,9 +615,6 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
     -------
     RunSummary
     """
-    from sim.runner.experiment import leading_comment
-    from sim.runner.store import STORE_FILE, CellRow, Store
-    from sim.runner.sweep import Progress, choose_backend, execute, usable_cores
 
     t_start = time.perf_counter()
     created = False
@@ -779,14 +731,12 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
     files = []
     report_dir = None
     if finished:
-        clear_leftovers(folder)
+        clear_run_leftovers(folder)
         files = write_exports(folder)
-        if rewrite_report and status == "complete":
-            from sim.evidence.report import write_report
-
+        if rewrite_report and status == "complete" and write_report is not None:
             report_dir = write_report(folder, update_manifest=False)
         elif rewrite_report and (folder / REPORT_DIR).exists():
-            # no cell finished: a report of earlier results would not describe this run
+            # no cell finished (or no writer given): a report of earlier results would not describe this run
             shutil.rmtree(folder / REPORT_DIR)
         write_manifest(folder, rewritten + ((REPORT_DIR + "/",) if rewrite_report else ()))
         files = output_files(folder) + [MANIFEST]
@@ -798,7 +748,6 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
 
 
 def _caution() -> str:
-    from sim.core.text import CAUTION
 
     return CAUTION
 
@@ -811,8 +760,6 @@ def _cell_info(exp, i: int):
 def export_bytes(rf: RunFolder) -> dict:
     """The exports of a finished run as the store gives them: file name -> bytes (``None`` for the
     Parquet file without pyarrow)."""
-    from sim.runner.experiment import canonical_json
-    from sim.runner.store import csv_text, parquet_bytes
 
     header, body = rf.table()
     arrays = [{"cell": r.number, "arrays": r.arrays} for r in rf.rows() if r.arrays]
@@ -870,7 +817,6 @@ def sample_cells(ok_cells: list[int], n: int) -> list[int]:
 
 def _same_parquet(path: Path, data: bytes) -> bool:
     """The same table in two Parquet files written by different pyarrow versions."""
-    import io
 
     import pyarrow.parquet as pq
 
@@ -998,8 +944,6 @@ def verify_run(folder, sample: int = 3, cells=None, rtol: float = 1e-9, atol: fl
     InputError
         ``RUN_DIR`` when the folder is not a run folder at all; ``--cells`` for a cell without a result.
     """
-    from sim.runner.kinds import CellContext, clean_metrics
-    from sim.runner.store import STORE_FILE
 
     folder = Path(folder)
     if not folder.is_dir() or not any((folder / f).exists() for f in (STORE_FILE, EXPERIMENT_COPY, MANIFEST)):

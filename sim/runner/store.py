@@ -26,6 +26,8 @@ from typing import Any
 
 import numpy as np
 
+from sim.core.jsonutil import jsonable
+
 __all__ = ["STORE_FILE", "DamagedStore", "Store", "export_table", "frame", "parquet_bytes", "write_csv",
            "write_parquet"]
 
@@ -76,7 +78,6 @@ def _loads(text: Any, what: str, typ: type = dict):
 
 
 def _dumps(obj: Any) -> str:
-    from sim.core.jsonutil import jsonable
 
     return json.dumps(jsonable(obj), sort_keys=True, separators=(",", ":"), allow_nan=False)
 

@@ -33,7 +33,12 @@ import math
 import numpy as np
 
 import strategies.step as S
+from sim.models.stagecore import evaluate_py
+from sim.theory.equilibrium import best_deviation
+from sim.theory.thresholds import finite_threshold, grim_threshold
+from sim.theory.trigger_price import trigger_price_scheme
 from strategies.automata import FinitePunishment, GrimTrigger, Opportunist, StickAndCarrot, TriggerPrice
+from strategies.step import firm_complies
 
 __all__ = ["analytic_baseline", "first_breakdown_distribution", "trigger_price_chain"]
 
@@ -147,7 +152,6 @@ def _first_breakdown(game, run: dict) -> dict | None:
 
 
 def _trigger_price(game, run: dict) -> dict | None:
-    from sim.theory.trigger_price import trigger_price_scheme
 
     lu = game.lineup
     strats = lu.strategies
@@ -195,7 +199,7 @@ def _trigger_price(game, run: dict) -> dict | None:
 _GAIN_RTOL = 1e-7
 
 
-def _scheme_of(strategy) -> tuple | None:
+def scheme_of(strategy) -> tuple | None:
     """``(kind, T)`` of the punishment scheme a strategy plays, or None."""
     if isinstance(strategy, GrimTrigger) or (isinstance(strategy, Opportunist) and strategy.after == "nash"):
         return "grim", None
@@ -208,7 +212,6 @@ def _scheme_of(strategy) -> tuple | None:
 
 def _noiseless_signal(game, i: int, s: int, actions: np.ndarray) -> bool:
     """Whether firm ``i`` in state ``s`` gets a bad signal when ``actions`` are played without noise."""
-    from sim.models.stagecore import evaluate_py
 
     lu = game.lineup
     mk = game.arrays
@@ -245,7 +248,6 @@ def _on_path_profile(game) -> tuple:
 def _payoffs(game, profile: np.ndarray) -> tuple:
     """Each firm's profit at ``profile``, its best one-shot deviation profit, and the profiles of those
     deviations as played (row i: firm i deviates), cached on the stage levels."""
-    from sim.theory.equilibrium import best_deviation
 
     lv = game.levels
     key = ("payoffs", profile.tobytes())
@@ -260,7 +262,6 @@ def _unpunished_gains(game, j0: int, s: int, profile: np.ndarray, name: str, pha
     """Firms whose best deviation from ``profile`` pays but is not seen as a deviation by a firm playing
     seat ``j0``'s scheme in state ``s``: such a deviation goes unpunished, so the scheme is not an
     equilibrium at any discount factor. Returns a boolean mask of shape (n_firms,)."""
-    from strategies.step import firm_complies
 
     lu = game.lineup
     mk = game.arrays
@@ -308,13 +309,12 @@ def _thresholds(game, run: dict, notes: list) -> list:
     reversion to another level), or whose expectations let a profitable deviation pass unseen, is not
     an equilibrium at any discount factor (``nan``, with a note). A line-up without a steady collusive
     path has no rows (a note says why)."""
-    from sim.theory.thresholds import finite_threshold, grim_threshold
 
     lu = game.lineup
     d_eff = run["delta"] * (run["continuation"] if run["horizon"] == "random" else 1.0)
     groups: dict = {}
     for i, s in enumerate(lu.strategies):
-        sch = _scheme_of(s)
+        sch = scheme_of(s)
         if sch is None:
             continue
         s0 = int(lu.firms[i, S.INITIAL])

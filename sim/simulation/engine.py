@@ -22,15 +22,20 @@ import sys
 from dataclasses import dataclass
 
 import numpy as np
+from tqdm import tqdm
 
 import sim.simulation.kernel as K
 from sim.core.errors import InputError, SolverError
+from sim.core.parallel import NumbaThreads, check_threads
 from sim.core.params import Integer, Options, Real
 from sim.core.rng import stream_states
 from sim.core.tables import refuse_unknown
-from sim.models.market import MarketSpec
+from sim.models.market import MarketSpec, market_from_dict
 from sim.models.monitoring import Monitoring, monitoring_from_dict
 from sim.models.stagecore import MarketArrays, market_arrays, market_owner
+from sim.simulation.results import summarize
+from sim.theory.equilibrium import stage_game
+from sim.theory.thresholds import stick_and_carrot
 from strategies.base import Automaton, CompiledLineup, StageLevels, compile_lineup
 from strategies.registry import lineup_from_tables
 
@@ -61,7 +66,6 @@ def stage_levels(market, agreement: str = "joint", actions=None) -> tuple:
     Bertrand with continuous prices undercuts by the market's price step, see :mod:`sim.models.market`), so
     the line-up plays them as they are and its payoffs match the analytic ones.
     """
-    from sim.theory.equilibrium import stage_game
 
     ms: MarketSpec = market if isinstance(market, MarketSpec) else market.spec()
     st = stage_game(ms, agreement, actions)
@@ -74,7 +78,6 @@ def stage_levels(market, agreement: str = "joint", actions=None) -> tuple:
     n = ms.n_firms
 
     def punishment(key):
-        from sim.theory.thresholds import stick_and_carrot
 
         sc = stick_and_carrot(ms, st)
         prof = np.asarray(sc.punishment_actions, dtype=float)
@@ -143,7 +146,8 @@ def _as_lineup(lineup, n_firms: int, prefix: str = "strategies") -> list:
     return list(lineup)
 
 
-def _as_monitoring(monitoring) -> Monitoring:
+def as_monitoring(monitoring) -> Monitoring:
+    """A :class:`Monitoring` from None (perfect monitoring), a table or a Monitoring."""
     if monitoring is None:
         return Monitoring()
     if isinstance(monitoring, dict):
@@ -164,7 +168,7 @@ def compile_game(stage, levels: StageLevels, lineup, monitoring=None, prefix: st
     """
     ms = stage.market
     strategies = _as_lineup(lineup, ms.n_firms, prefix)
-    mon = _as_monitoring(monitoring).validated()
+    mon = as_monitoring(monitoring).validated()
     compiled = compile_lineup(strategies, levels, prefix)
     if mon["signal"] == "price":
         for i, t in enumerate(compiled.tables):
@@ -249,33 +253,11 @@ class RawRun:
         return int(self.ints.shape[0])
 
 
-class _Threads:
-    """Set numba's thread count for a block and restore it afterwards."""
-
-    def __init__(self, n: int | None):
-        self.n = n
-
-    def __enter__(self):
-        import numba
-
-        self.old = numba.get_num_threads()
-        if self.n is not None:
-            numba.set_num_threads(self.n)
-        return numba.get_num_threads()
-
-    def __exit__(self, *exc):
-        import numba
-
-        numba.set_num_threads(self.old)
-        return False
-
-
 def _progress_bar(total: int, enabled, desc: str):
     if enabled is None:
         enabled = sys.stderr.isatty()
     if not enabled:
         return None
-    from tqdm import tqdm
 
     return tqdm(total=total, desc=desc, unit="rep", leave=False, file=sys.stderr)
 
@@ -297,7 +279,7 @@ def run_game(game: Game, periods: int, replications: int, delta: float, seed: in
     mon = game.monitoring
     n, P = mk.n_firms, mk.n_products
     raw = RawRun.empty(replications, n, P, periods, paths)
-    with _Threads(threads) as n_threads:
+    with NumbaThreads(threads) as n_threads:
         if batch is None:
             # one kernel call unless a progress bar wants updates (about 2e6 firm-periods per call)
             show = sys.stderr.isatty() if progress is None else bool(progress)
@@ -427,27 +409,18 @@ def simulate(market, lineup, monitoring=None, periods: int = 1000, replications:
     -------
     SimulationResult
     """
-    from sim.simulation.results import summarize
 
     ms = market if isinstance(market, MarketSpec) else market.spec()
-    mon = _as_monitoring(monitoring)
+    mon = as_monitoring(monitoring)
     mon.validated()
     P = int(market_owner(ms).shape[0])
     run = check_run(periods, replications, delta, seed, horizon, continuation, paths, P)
-    threads = _check_threads(threads)
+    threads = check_threads(threads)
     confidence = Real(0, 1, closed="neither").check("confidence", confidence)
     game = prepare_game(ms, lineup, mon, agreement, actions)
     raw = run_game(game, run["periods"], run["replications"], run["delta"], run["seed"], key, run["horizon"],
                    run["continuation"], run["paths"], threads, progress)
     return summarize(raw, game, run, confidence=confidence, baseline=baseline)
-
-
-def _check_threads(threads, key: str = "threads"):
-    if threads is None:
-        return None
-    import numba
-
-    return Integer(1, int(numba.config.NUMBA_NUM_THREADS)).check(key, threads)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -469,7 +442,6 @@ def simulation_from_dict(doc: dict, check_tables: bool = True) -> dict:
     Unknown tables and keys raise :class:`InputError` naming them; values are validated by
     :func:`simulate` (or :func:`prepare_game` and :func:`check_run`).
     """
-    from sim.models.market import market_from_dict
 
     if not isinstance(doc, dict):
         raise InputError("", "an experiment must be a table")

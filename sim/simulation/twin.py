@@ -21,6 +21,7 @@ import sim.simulation.kernel as K
 import strategies.step as S
 from sim.core.rng import ReferenceStream, stream_states
 from sim.models.stagecore import evaluate
+from sim.simulation.engine import RawRun
 
 __all__ = ["reference_run"]
 
@@ -50,7 +51,6 @@ class _Firm:
 def reference_run(game, periods: int, replications: int, delta: float, seed: int, key=(0,),
                   horizon: str = "fixed", continuation: float = 1.0, paths: int = 0):
     """Play ``replications`` replications in plain Python; arguments as :func:`sim.simulation.engine.run_game`."""
-    from sim.simulation.engine import RawRun
 
     mk = game.arrays
     lu = game.lineup

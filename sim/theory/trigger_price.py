@@ -38,6 +38,7 @@ from scipy import optimize, special
 from sim.core.errors import InputError
 from sim.core.params import Integer, Options, Real
 from sim.models.market import MarketSpec
+from sim.models.monitoring import NORMAL_SIGMA_MAX
 from sim.theory.equilibrium import collusive_outcome, static_nash
 
 __all__ = [
@@ -64,7 +65,6 @@ class Shock:
     """A mean-one multiplicative shock. ``u`` is the standardised threshold: ``F(z) = Phi(u(z))``."""
 
     def __init__(self, kind: str, sigma: float):
-        from sim.models.monitoring import NORMAL_SIGMA_MAX
 
         self.kind = Options(*NOISE_KINDS).check("monitoring.noise", kind)
         # a normal shock 1 + sigma Z must stay (practically) positive, as in the simulation engine

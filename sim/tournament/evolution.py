@@ -67,10 +67,13 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from numba import njit, prange
+from scipy.stats import hypergeom, norm
 
 from sim.core.errors import InputError
+from sim.core.parallel import NumbaThreads
 from sim.core.params import Integer, Options, Real
 from sim.core.rng import ReferenceStream, next_double, stream_states
+from sim.core.stats import normal_quantile
 
 __all__ = [
     "EvolutionResult",
@@ -256,7 +259,6 @@ class PayoffTable:
         -------
         pa, pb : ndarray of shape (N - 1,)
         """
-        from scipy.stats import hypergeom
 
         n = self.seats
         if N < n:
@@ -530,10 +532,9 @@ def simulate_fixation(payoffs: PayoffTable, population: int = 100, selection: fl
     if reference:
         counts = _moran_reference(up, R, states)
     else:
-        from sim.simulation.engine import _Threads
 
         counts = np.zeros(len(pairs), dtype=np.int64)
-        with _Threads(threads):
+        with NumbaThreads(threads):
             _moran_kernel(up, R, states, counts)
     for p, (i, j) in enumerate(pairs):
         out[i, j] = counts[p]
@@ -564,12 +565,6 @@ def stationary_distribution(rho: np.ndarray) -> np.ndarray:
 # --------------------------------------------------------------------------------------------------
 
 
-def _z(confidence: float) -> float:
-    from scipy import special
-
-    return float(math.sqrt(2.0) * special.erfinv(confidence))
-
-
 def _tie(d: float, se: float, z: float, scale: float) -> bool:
     if abs(d) <= _TIE_REL * max(1.0, scale):
         return True
@@ -590,7 +585,7 @@ def stability(payoffs: PayoffTable, population: int = 100, selection: float = 0.
     """
     E = payoffs.n_types
     n = payoffs.seats
-    z = _z(confidence)
+    z = normal_quantile(confidence)
     N = Integer(2, 10_000_000).check("population", population)
     w, mapping = _check_selection(payoffs, selection, fitness_map)
     if rho is None:
@@ -686,7 +681,6 @@ class EvolutionResult:
         errors (``sqrt(rho (1 - rho) / runs)``) and whether it is below ``z``. By default ``z`` bounds the
         largest of the ``E (E - 1)`` gaps at a family-wise level of 1 % (Bonferroni: the normal quantile
         of ``1 - 0.01 / (2 E (E - 1))``: 2.81 for two entrants, 3.86 for ten)."""
-        from scipy.stats import norm
 
         if self.simulated is None:
             return {"max_standard_errors": None, "within": None, "z": z}

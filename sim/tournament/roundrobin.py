@@ -76,7 +76,7 @@ in their match exceeds ``j``'s by more than ``z`` standard errors of the paired 
 
 Layers: :func:`tournament` (validated public entry) = :func:`prepare_tournament` (validate and
 compile every match, nothing played) + :func:`run_tournament` (the driver: seeds, buffers, progress,
-scoring) -> the engine's kernel, the learning kernel, and :func:`_bootstrap_kernel` (numba, with the
+scoring) -> the engine's kernel, the learning kernel, and :func:`bootstrap_kernel` (numba, with the
 plain-Python twin :func:`_bootstrap_reference`).
 """
 
@@ -90,12 +90,40 @@ from itertools import permutations
 
 import numpy as np
 from numba import njit, prange
+from tqdm import tqdm
 
+import sim.simulation.kernel as K
+import strategies.step as SS
 from sim.core.errors import InputError
+from sim.core.parallel import NumbaThreads, check_threads
 from sim.core.params import Integer, Options, Real, optional
 from sim.core.rng import ReferenceStream, next_u64, stream_states
+from sim.core.stats import Estimate, mean_estimate, normal_quantile, ratio_estimate
 from sim.core.tables import refuse_unknown
-from sim.learning.session import LEARNER_PARAMS, LIMIT_PERIODS
+from sim.core.text import CAUTION, fmt_num
+from sim.learning.session import CYCLE_STORE, LEARNER_PARAMS, LIMIT_PERIODS, learn, learner_from_entry
+from sim.learning.session import compile_lineup as compile_learners
+from sim.models.market import MarketSpec, market_from_dict
+from sim.models.monitoring import monitoring_from_dict
+from sim.models.stagecore import evaluate_py, market_arrays, market_owner
+from sim.simulation.engine import (
+    as_monitoring,
+    check_run,
+    compile_game,
+    run_game,
+    stage_levels,
+)
+from sim.tournament.evolution import (
+    EVOLUTION_CONSTRAINTS,
+    FITNESS_MAPS,
+    PayoffTable,
+    _check_shares,
+    _counts,
+    evolve,
+    multisets,
+)
+from strategies import Automaton, strategy_from_dict
+from strategies.qlearning import QLearner
 
 __all__ = [
     "BOOTSTRAP_KEY",
@@ -145,7 +173,6 @@ class Entrant:
 
     @property
     def learns(self) -> bool:
-        from strategies.qlearning import QLearner
 
         return isinstance(self.strategy, QLearner)
 
@@ -166,9 +193,6 @@ def entrants_from_tables(tables, learning: dict | None = None, prefix: str = "en
     parameters). ``strategy = "qlearning"`` entries take the learner parameters of ``learning`` (the
     ``[learning]`` table), overridden by their own (:func:`sim.learning.session.learner_from_entry`, the reader
     of learning line-ups); any other name is looked up in the strategy registry."""
-    from sim.learning.session import learner_from_entry
-    from strategies import strategy_from_dict
-    from strategies.qlearning import QLearner
 
     if not isinstance(tables, list) or isinstance(tables, str):
         raise InputError(prefix, "must be an array of tables ([[entrants]] entries)")
@@ -211,8 +235,6 @@ def _as_entrants(entrants) -> list[Entrant]:
 
 
 def _check_entrants(entrants: list[Entrant]) -> None:
-    from strategies import Automaton
-    from strategies.qlearning import QLearner
 
     if len(entrants) < 2:
         raise InputError("entrants", f"a tournament needs at least 2 entrants, got {len(entrants)}")
@@ -356,13 +378,11 @@ def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None =
                        max_periods: int = 1_000_000_000, limit_periods: int = LIMIT_PERIODS,
                        key=()) -> TournamentPlan:
     """Validate everything and compile every match; nothing is played (see :func:`tournament`)."""
-    from sim.models.market import MarketSpec
-    from sim.simulation.engine import _as_monitoring, check_run, compile_game, stage_levels
 
     ms = market if isinstance(market, MarketSpec) else market.spec()
     ents = _as_entrants(entrants)
     _check_entrants(ents)
-    mon_obj = _as_monitoring(monitoring)
+    mon_obj = as_monitoring(monitoring)
     mon = mon_obj.validated()
     n = ms.n_firms
     if seats is None:
@@ -380,7 +400,6 @@ def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None =
     s["sessions"] = run["replications"] if s["sessions"] is None else s["sessions"]
     every = s["seatings"] == "all" or (s["seatings"] == "auto" and not ms.symmetric)
     E = len(ents)
-    from sim.tournament.evolution import multisets
 
     n_groups = math.comb(E + n - 1, n)
     n_matches = E**n if every else n_groups
@@ -438,8 +457,6 @@ def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None =
         lineup = [ents[e].strategy.clone() for e in m.lineup]
         try:
             if m.learning:
-                from sim.learning.session import compile_lineup as compile_learners
-
                 # automata that act at random are played; their limit outcomes are estimated (see the notes)
                 m.game = compile_learners(ms, lineup, workers=1, seat_prefix="entrants", random_automata="estimate")
             else:
@@ -471,7 +488,6 @@ def default_agreement(market, learners: bool = False, actions=None) -> str:
       in the usual markets, raises every firm's profit above Nash. Whatever the agreement, a tournament
       ranked by profit gain checks that every firm gains (see :func:`prepare_tournament`).
     """
-    from sim.models.market import MarketSpec
 
     ms = market if isinstance(market, MarketSpec) else market.spec()
     if actions is not None:
@@ -483,7 +499,6 @@ def default_agreement(market, learners: bool = False, actions=None) -> str:
 
 def _benchmark_profits(ms, stage) -> tuple[np.ndarray, np.ndarray]:
     """Per-firm profit per period at the static Nash and the collusive profiles (as the kernel evaluates them)."""
-    from sim.models.stagecore import evaluate_py, market_arrays
 
     arrays = market_arrays(ms)
     _, _, pi_n, _, _ = evaluate_py(arrays, np.asarray(stage.nash.actions, dtype=float))
@@ -503,7 +518,6 @@ def gain_defined(nash, collusive) -> np.ndarray:
 
 def _check_gains(pi_n, pi_c, agreement: str, defaulted: bool, score: str, learners: bool) -> None:
     """Refuse, for the profit-gain score, an agreement under which some firm earns no more than at Nash."""
-    from sim.core.text import fmt_num
 
     ok = gain_defined(pi_n, pi_c)
     if score != "profit_gain" or ok.all():
@@ -625,7 +639,6 @@ class TournamentResult:
 
     def payoffs(self, metric: str | None = None):
         """The tournament's payoffs as a :class:`sim.tournament.evolution.PayoffTable` (default: the ranking score)."""
-        from sim.tournament.evolution import PayoffTable, _counts
 
         metric = metric or self.score
         if metric not in SCORES:
@@ -644,7 +657,6 @@ class TournamentResult:
 
     def to_dict(self, replications: bool = False) -> dict:
         """Plain data (JSON-ready through :func:`sim.core.jsonutil.dumps`)."""
-        from sim.core.text import CAUTION
 
         labels = self.labels
         p = self.plan
@@ -712,7 +724,6 @@ def _progress(total: int, enabled):
         enabled = sys.stderr.isatty()
     if not enabled:
         return None
-    from tqdm import tqdm
 
     return tqdm(total=total, desc="tournament", unit="rep", leave=False, file=sys.stderr)
 
@@ -726,7 +737,6 @@ def _learning_seed(seed: int, key: tuple) -> int:
 
 def _cycle_discounted(res, delta_eff: float, periods: int) -> np.ndarray:
     """Discounted value over ``periods`` of each session's limit cycle, shape (sessions, n)."""
-    from sim.learning.session import CYCLE_STORE
 
     lu = res.lineup
     n = lu.n_seats
@@ -746,7 +756,6 @@ def _cycle_discounted(res, delta_eff: float, periods: int) -> np.ndarray:
 
 
 def _play_learning(plan: TournamentPlan, m: Match, threads) -> tuple:
-    from sim.learning.session import learn
 
     lineup = [plan.entrants[e].strategy.clone() for e in m.lineup]
     key = tuple(plan.settings["key"])
@@ -769,7 +778,6 @@ def _play_learning(plan: TournamentPlan, m: Match, threads) -> tuple:
 
 def _estimates(plan: TournamentPlan, ps, disc, per, coll, z_conf: float):
     """The engine's estimators, seat by seat (the same calls as :func:`sim.simulation.results.summarize`)."""
-    from sim.simulation.results import mean_estimate, ratio_estimate
 
     n = ps.shape[1]
     ok = plan.gain_defined
@@ -782,7 +790,6 @@ def _estimates(plan: TournamentPlan, ps, disc, per, coll, z_conf: float):
             gap = float(plan.collusive[s] - plan.nash[s])
             gain.append(e.affine(-float(plan.nash[s]) / gap, 1.0 / gap))
         else:
-            from sim.simulation.results import Estimate
 
             gain.append(Estimate(math.nan, math.nan, math.nan, math.nan, 0, "ratio", "undefined"))
     cs = ratio_estimate(coll, per, z_conf) if coll is not None else None
@@ -791,10 +798,8 @@ def _estimates(plan: TournamentPlan, ps, disc, per, coll, z_conf: float):
 
 def run_tournament(plan: TournamentPlan, threads: int | None = None, progress=None) -> TournamentResult:
     """Driver: play every match of a plan (seeds, buffers, progress bar), then score and rank."""
-    import sim.simulation.kernel as K
-    from sim.simulation.engine import _check_threads, run_game
 
-    threads = _check_threads(threads)
+    threads = check_threads(threads)
     run = plan.run
     conf = plan.settings["confidence"]
     total = sum(plan.replications_of(m) for m in plan.matches)
@@ -838,7 +843,6 @@ def run_tournament(plan: TournamentPlan, threads: int | None = None, progress=No
 def _rival_weights(plan: TournamentPlan) -> np.ndarray:
     """``W[g, e]``: probability that ``n - 1`` rivals drawn uniformly from the entrants form group ``g``
     minus one ``e`` (0 where ``e`` is not in ``g``)."""
-    from sim.tournament.evolution import _counts
 
     E = len(plan.entrants)
     n = plan.seats
@@ -869,19 +873,17 @@ def _member_series(plan: TournamentPlan, rec: MatchRecord, e: int, metric: str):
 
 
 def _series_se(x, y) -> float:
-    from sim.simulation.results import mean_estimate, ratio_estimate
 
     return float(mean_estimate(x).se if y is None else ratio_estimate(x, y).se)
 
 
 def _score(plan: TournamentPlan, records: list, threads) -> TournamentResult:
-    from sim.simulation.results import Estimate, _z
 
     E = len(plan.entrants)
     G = len(plan.groups)
     n = plan.seats
     conf = plan.settings["confidence"]
-    z = _z(conf)
+    z = normal_quantile(conf)
     gp = {}
     for metric in SCORES:
         val = np.full((G, E), np.nan)
@@ -942,7 +944,6 @@ def _ranks(S: np.ndarray) -> np.ndarray:
 
 
 def _pairwise(plan: TournamentPlan, records: list, gp: dict, z: float) -> dict:
-    from sim.simulation.results import mean_estimate, ratio_estimate
 
     E = len(plan.entrants)
     where = {g: k for k, g in enumerate(plan.groups)}
@@ -1053,7 +1054,7 @@ def _sum_drawn_py(v, draws) -> float:
 
 
 @njit(cache=True, parallel=True)
-def _bootstrap_kernel(offsets, x, per, const, ent, wgt, shift, scale, mode, rng_states, out):
+def bootstrap_kernel(offsets, x, per, const, ent, wgt, shift, scale, mode, rng_states, out):
     """Scores of every bootstrap resample (``prange`` over resamples); returns 0 (status OK).
 
     Resample ``b`` (stream ``rng_states[b]``, advanced in place) draws, match by match in match order,
@@ -1118,7 +1119,7 @@ def _bootstrap_kernel(offsets, x, per, const, ent, wgt, shift, scale, mode, rng_
 
 
 def _bootstrap_reference(offsets, x, per, const, ent, wgt, shift, scale, mode, rng_states, n_entrants) -> np.ndarray:
-    """Plain-Python twin of :func:`_bootstrap_kernel`: the same draws in the same order, shape (B, E)."""
+    """Plain-Python twin of :func:`bootstrap_kernel`: the same draws in the same order, shape (B, E)."""
     B = rng_states.shape[0]
     M = offsets.shape[0] - 1
     n = x.shape[0]
@@ -1151,8 +1152,7 @@ def _bootstrap_reference(offsets, x, per, const, ent, wgt, shift, scale, mode, r
 def bootstrap_scores(plan: TournamentPlan, records: list, threads: int | None = None, metric: str | None = None,
                      reference: bool = False) -> np.ndarray:
     """Entrant scores (by ``metric``, default the ranking score) of every bootstrap resample, shape (B, E)
-    (see :func:`_bootstrap_kernel`; ``reference=True`` runs the plain-Python twin)."""
-    from sim.simulation.engine import _Threads
+    (see :func:`bootstrap_kernel`; ``reference=True`` runs the plain-Python twin)."""
 
     metric = metric or plan.settings["score"]
     B = int(plan.settings["bootstrap"])
@@ -1162,8 +1162,8 @@ def bootstrap_scores(plan: TournamentPlan, records: list, threads: int | None = 
     if reference:
         return _bootstrap_reference(*args, states, E)
     out = np.zeros((B, E))
-    with _Threads(threads):
-        _bootstrap_kernel(*args, states, out)
+    with NumbaThreads(threads):
+        bootstrap_kernel(*args, states, out)
     return out
 
 
@@ -1274,8 +1274,6 @@ def tournament_from_dict(doc: dict, check_tables: bool = True) -> dict:
     fitness, population, moran_runs). Unknown tables and keys raise :class:`InputError` naming them;
     the values are checked by :func:`check_experiment`.
     """
-    from sim.models.market import market_from_dict
-    from sim.models.monitoring import monitoring_from_dict
 
     if not isinstance(doc, dict):
         raise InputError("", "an experiment must be a table")
@@ -1338,7 +1336,6 @@ def tournament_from_dict(doc: dict, check_tables: bool = True) -> dict:
 def check_experiment(cfg: dict) -> TournamentPlan:
     """Validate a read experiment completely (every match compiled, the evolutionary settings checked as
     far as they can be before the payoffs exist); returns the plan. Nothing is played."""
-    from sim.tournament.evolution import EVOLUTION_CONSTRAINTS, FITNESS_MAPS, _check_shares
 
     plan = prepare_tournament(cfg["market"], cfg["entrants"], cfg["monitoring"], **cfg["plan_args"])
     ev = cfg["evolution"]
@@ -1364,8 +1361,6 @@ def _seat_actions(plan: TournamentPlan) -> list[list[np.ndarray]]:
     """Every action (vector over the firm's products) each seat can play in some match: the levels its
     automaton's states play (whether or not the state is reached), its cheating level where it cheats, the
     action an implementation error substitutes, and a learning match's action grids."""
-    import strategies.step as SS
-    from sim.models.stagecore import market_owner
 
     ms = plan.market
     owner = market_owner(ms)
@@ -1418,7 +1413,6 @@ def payoff_floor(plan: TournamentPlan, metric: str | None = None) -> tuple[float
     one period, so the floor can lie below the payoffs the tournament actually produces; it never lies above
     one.
     """
-    from sim.core.text import fmt_num
 
     metric = metric or plan.settings["score"]
     ms = plan.market
@@ -1426,7 +1420,6 @@ def payoff_floor(plan: TournamentPlan, metric: str | None = None) -> tuple[float
     count = math.prod(len(x) for x in sets)
     if count > MAX_PROFILES:
         return -math.inf, f"the seats' actions make {count:,} profiles, more than the {MAX_PROFILES:,} checked"
-    from sim.models.stagecore import market_owner
 
     owner = market_owner(ms)
     idx = np.stack(np.meshgrid(*[np.arange(len(x)) for x in sets], indexing="ij"), -1).reshape(-1, len(sets))
@@ -1465,7 +1458,6 @@ def payoff_floor(plan: TournamentPlan, metric: str | None = None) -> tuple[float
 def _check_linear_selection(plan: TournamentPlan, w: float) -> None:
     """Linear fitness ``1 - w + w * payoff`` must stay positive for every payoff the tournament can produce:
     checked against :func:`payoff_floor` before anything is played."""
-    from sim.core.text import fmt_num
 
     floor, where = payoff_floor(plan)
     name = SCORE_NAMES[plan.settings["score"]]
@@ -1489,7 +1481,6 @@ def evolve_tournament(result: TournamentResult, evolution: dict, threads: int | 
     """The evolutionary analysis of a tournament's payoffs (:func:`sim.tournament.evolution.evolve`) with the
     settings of an experiment file's ``[tournament]`` table; the Moran simulation's streams continue the
     tournament's seed and key."""
-    from sim.tournament.evolution import evolve
 
     ev = evolution
     return evolve(result.payoffs(), shares=ev["shares"], generations=ev["generations"], selection=ev["selection"],
@@ -1499,332 +1490,4 @@ def evolve_tournament(result: TournamentResult, evolution: dict, threads: int | 
 
 
 # --------------------------------------------------------------------------------------------------
-# Experiment kind (``supergame run`` and sweeps; see :mod:`sim.runner.kinds`)
 # --------------------------------------------------------------------------------------------------
-
-
-def metric_label(labels) -> list[str]:
-    """Entrant labels as parts of metric names: characters other than letters, digits, ``_`` and ``-``
-    become ``_``; when that makes two names equal, ``entrant1``, ``entrant2``, ... are used instead."""
-    import re
-
-    out = [re.sub(r"[^A-Za-z0-9_-]", "_", str(lab)) for lab in labels]
-    if len(set(out)) != len(out):
-        out = [f"entrant{k + 1}" for k in range(len(labels))]
-    return out
-
-
-def _kind_prepare(doc: dict) -> dict:
-    cfg = tournament_from_dict(doc, check_tables=True)
-    cfg["plan"] = check_experiment(cfg)
-    return cfg
-
-
-def _kind_names(cfg: dict) -> list[str]:
-    plan = cfg["plan"]
-    out = ["entrants", "seats", "matches", "ranking_holds", "moran.max_standard_errors"]
-    for lab in metric_label(plan.labels):
-        out += [f"rank.{lab}", f"score.{lab}", f"score.{lab}.se", f"score.{lab}.low", f"score.{lab}.high"]
-        for m in SCORES:
-            out += [f"{m}.{lab}", f"{m}.{lab}.low", f"{m}.{lab}.high"]
-        out += [f"rank_share.{lab}", f"top_share.{lab}", f"share.{lab}", f"rare_mutation_share.{lab}",
-                f"ess.{lab}", f"ess_n.{lab}"]
-        if plan.seats == 2:
-            out += [f"wins.{lab}", f"losses.{lab}"]
-    return out
-
-
-def _kind_run(cfg: dict, ctx) -> object:
-    import dataclasses
-
-    from sim.runner.kinds import CellResult
-
-    plan = cfg["plan"]
-    plan = dataclasses.replace(plan, settings={**plan.settings, "key": list(ctx.key)})
-    res = run_tournament(plan, ctx.threads, ctx.progress)
-    evo = evolve_tournament(res, cfg["evolution"], ctx.threads)
-    score = res.score
-    m: dict = {"entrants": len(plan.entrants), "seats": plan.seats, "matches": len(plan.matches),
-               "ranking_holds": res.stability["ranking_holds"] if res.stability else math.nan,
-               "moran.max_standard_errors": _nan(evo.agreement()["max_standard_errors"])}
-    st = res.stability["per_entrant"] if res.stability else None
-    for e, lab in enumerate(metric_label(plan.labels)):
-        m[f"rank.{lab}"] = int(res.ranks[e])
-        x = res.scores[score][e]
-        m[f"score.{lab}"], m[f"score.{lab}.se"], m[f"score.{lab}.low"], m[f"score.{lab}.high"] = \
-            x.value, x.se, x.low, x.high
-        for k in SCORES:
-            y = res.scores[k][e]
-            m[f"{k}.{lab}"], m[f"{k}.{lab}.low"], m[f"{k}.{lab}.high"] = y.value, y.low, y.high
-        m[f"rank_share.{lab}"] = st["rank_share"][e] if st else math.nan
-        m[f"top_share.{lab}"] = st["top_share"][e] if st else math.nan
-        m[f"share.{lab}"] = float(evo.replicator.final[e])
-        m[f"rare_mutation_share.{lab}"] = float(evo.stationary[e])
-        m[f"ess.{lab}"] = float(evo.stability["ess"][e])
-        m[f"ess_n.{lab}"] = float(evo.stability["ess_n"][e])
-        if plan.seats == 2:
-            m[f"wins.{lab}"] = int(res.pairwise[score]["wins"][e])
-            m[f"losses.{lab}"] = int(res.pairwise[score]["losses"][e])
-    rp = evo.replicator
-    idx = np.unique(np.round(np.linspace(0, rp.shares.shape[0] - 1, min(rp.shares.shape[0], 200))).astype(int))
-    arrays = {"replicator.generation": idx.astype(float), "replicator.shares": rp.shares[idx],
-              "scores": np.array([res.scores[score][e].value for e in range(len(plan.entrants))]),
-              "versus": res.versus[score], "fixation": evo.fixation}
-    if plan.seats == 2:
-        arrays["beats"] = res.pairwise[score]["beats"]
-    return CellResult(m, arrays)
-
-
-def _nan(x) -> float:
-    return math.nan if x is None else float(x)
-
-
-def _kind_describe(doc: dict) -> list[str]:
-    from sim.runner.analyses import _describe_market
-    from sim.runner.experiment import value_label
-
-    run = {"periods": 1000, "replications": 1000, "horizon": "fixed", "delta": 0.95, "seed": 0, **doc.get("run", {})}
-    tour = doc.get("tournament", {})
-    mon = {"signal": "perfect", "noise": "lognormal", "sigma": 0.0, "perception_error": 0.0,
-           "implementation_error": 0.0, **doc.get("monitoring", {})}
-    ents = "; ".join(f"{e.get('label')}: {value_label({k: v for k, v in e.items() if k != 'label'})}"
-                     for e in doc.get("entrants", []) if isinstance(e, dict))
-    reps = tour.get("replications", run["replications"])
-    coll = doc.get("collusion", {})
-    if "agreement" in coll or "actions" in coll:
-        agreement = f"Agreement: {coll.get('agreement', 'given')} (the collusive benchmark of the profit gain)"
-    else:
-        agreement = ("Agreement: the default (the joint-profit maximum for symmetric firms, the Nash quantities "
-                     "scaled down in proportion where firms differ), the collusive benchmark of the profit gain")
-    return [f"Market: {_describe_market(doc.get('market', {}))}",
-            agreement,
-            f"Entrants: {ents}",
-            f"Monitoring: signal {mon['signal']}, {mon['noise']} demand shock sigma {mon['sigma']}, perception error "
-            f"{mon['perception_error']}, implementation error {mon['implementation_error']}",
-            f"Round robin over every group of entrants, self-play included; {run['periods']} periods "
-            f"({run['horizon']} horizon), {reps} replications per match, delta {run['delta']}, seed {run['seed']}",
-            f"Ranking by {tour.get('score', 'profit_gain')}; evolutionary dynamics: selection "
-            f"{tour.get('selection', 0.1)} ({tour.get('fitness', 'linear')} fitness), Moran population "
-            f"{tour.get('population', 100)}"]
-
-
-def _kind_report(rf, bundle) -> None:
-    from sim.evidence.tournament import kind_report
-
-    kind_report(rf, bundle)
-
-
-def _kind() -> object:
-    from sim.runner.analyses import _GENERAL_ASSUMPTIONS
-    from sim.runner.kinds import Kind
-
-    return Kind(
-        name="tournament",
-        tables=("market", "collusion", "monitoring", "entrants", "tournament", "learning", "run"),
-        prepare=_kind_prepare,
-        run=_kind_run,
-        metric_names=_kind_names,
-        headline=("ranking_holds",),
-        describe=_kind_describe,
-        summary="round-robin tournament of strategies: scores, ranking stability, evolutionary dynamics",
-        report=_kind_report,
-        assumptions=_GENERAL_ASSUMPTIONS + (
-            "Every group of entrants (self-play included) plays the repeated game; where firms differ, every "
-            "seating is played and averaged. Scores are expected payoffs against rivals drawn uniformly from the "
-            "entrants: a ranking holds only for this set of entrants.",
-            "Strategies are fixed automata or Q-learners scored on their converged play; learners play without "
-            "noise. Confidence intervals and the bootstrap measure simulation error only.",
-            "Evolutionary dynamics treat the tournament's payoffs as fitness in large (replicator) or finite "
-            "(Moran) populations of firms that imitate successful rules; they describe which rules spread under "
-            "that assumption, not how actual firms choose their conduct.",
-        ),
-    )
-
-
-EXPERIMENT_KIND = _kind()
-
-
-# --------------------------------------------------------------------------------------------------
-# Benchmark (``supergame bench``, section ``tournament``)
-# --------------------------------------------------------------------------------------------------
-
-
-def _bench_entrants() -> list[Entrant]:
-    import strategies as S
-
-    return [Entrant("grim", S.GrimTrigger()), Entrant("nash-3", S.FinitePunishment(length=3)),
-            Entrant("tft", S.TitForTat()), Entrant("forgiving", S.ForgivingTitForTat(forgiveness=0.2)),
-            Entrant("wsls", S.WinStayLoseShift()), Entrant("stick-carrot", S.StickAndCarrot()),
-            Entrant("compete", S.AlwaysCompete()), Entrant("collude", S.AlwaysCollude()),
-            Entrant("sly", S.Opportunist(probability=0.05, after="collude")),
-            Entrant("cheat-10", S.Opportunist(probability=1.0, start=10))]
-
-
-def _kernel_seconds(plan: TournamentPlan, threads: int | None) -> tuple[float, list]:
-    """Seconds spent inside the engine kernel for every match of an automata-only plan: the arguments are
-    prepared outside the timed calls exactly as :func:`sim.simulation.engine.run_game` prepares them (one batch)."""
-    import sim.simulation.kernel as K
-    from sim.simulation.engine import RawRun, _Threads
-
-    run = plan.run
-    P, R = run["periods"], run["replications"]
-    key = tuple(plan.settings["key"])
-    total = 0.0
-    sums = []
-    with _Threads(threads) as n_threads:
-        chunks = max(1, min(4 * n_threads, R))
-        for m in plan.matches:
-            g = m.game
-            mk, lu, mon = g.arrays, g.lineup, g.monitoring
-            raw = RawRun.empty(R, mk.n_firms, mk.n_products, P, 0)
-            hist = np.zeros((chunks, K.N_HIST, P + 1), dtype=np.int64)
-            by_period = np.zeros((chunks, P), dtype=np.int64)
-            status = np.zeros(chunks, dtype=np.int64)
-            starts = np.linspace(0, R, chunks + 1).round().astype(np.int64)
-            rng = stream_states(run["seed"], (*key, m.index), 0, R)
-            args = (starts, rng, 0, mk.code, mk.scalars, mk.vector, mk.cost, mk.capacity, mk.owner, mk.n_firms,
-                    mk.quantity_setting, lu.states, lu.probs, lu.firms, lu.levels, g.tremble, mon["noise_code"],
-                    mon["sigma"], mon["perception_error"], mon["implementation_error"], P, run["delta"],
-                    run["horizon"] == "random", run["continuation"], 0, raw.profit_sum, raw.disc, raw.ints, raw.flts,
-                    hist, by_period, raw.path_actions, raw.path_prices, raw.path_market, raw.path_profit,
-                    raw.path_state, raw.path_flags, raw.path_collude, status)
-            t0 = time.perf_counter()
-            K.simulate_chunks(*args)
-            total += time.perf_counter() - t0
-            sums.append(raw.profit_sum)
-    return total, sums
-
-
-def bench_section(opts) -> dict:
-    """The ``tournament`` section of ``supergame bench`` (``opts``: :class:`sim.cli.bench.BenchOptions`).
-
-    Workload (issue acceptance): ten automaton entrants, two seats (55 groups, one seating each: a
-    symmetric linear Cournot duopoly), perception and implementation errors of 0.01, 1,000 periods
-    and 1,000 replications per match, 1,000 bootstrap resamples. Reported, after a warm-up that
-    compiles (or loads) every kernel:
-
-    * the wall time of :func:`tournament` (validation, compiling the line-ups, playing, scoring and
-      the bootstrap), best of ``opts.repeat``; target < 10 s;
-    * the driver overhead: the time of :func:`run_tournament` (seeds, buffers, playing, per-match
-      metrics, scores, pairwise table), without its bootstrap resampling, over the time spent inside
-      the engine kernel's calls of the same run, minus one (best of ``opts.repeat``); target < 10 %.
-      The bootstrap (``bootstrap`` resamples of every match's replications, a statistical analysis of
-      the scores rather than part of playing the matches) is timed inside the same run and reported
-      beside it, with the overhead it adds. For comparison, the same matches' kernel calls are also
-      timed on their own (arguments prepared outside the timed calls);
-    * the plain-Python reference (:func:`sim.simulation.twin.reference_run`) on two replications of one match,
-      checked equal to the kernel and extrapolated to the whole tournament, and the ratio;
-    * the evolutionary analysis with the defaults (replicator dynamics over 1,000 generations, exact
-      and simulated Moran fixation with N = 100 and 10,000 invasions per pair).
-    """
-    from sim.models.demand import LinearDemand
-    from sim.models.market import Market
-    from sim.models.monitoring import Monitoring
-    from sim.simulation.twin import reference_run
-
-    quick = bool(getattr(opts, "quick", False))
-    threads = int(getattr(opts, "threads", 2))
-    repeat = 1 if quick else max(1, int(getattr(opts, "repeat", 3)))
-    periods, reps, boot = (100, 100, 100) if quick else (1000, 1000, 1000)
-    market = Market(LinearDemand(100.0, 1.0), cost=10.0, n_firms=2)
-    mon = Monitoring(perception_error=0.01, implementation_error=0.01)
-    ents = _bench_entrants()
-    args = dict(periods=periods, replications=reps, delta=0.95, seed=20261201, bootstrap=boot)
-    # warm-up: compile or load every kernel
-    t0 = time.perf_counter()
-    warm = tournament(market, ents[:2], mon, periods=10, replications=10, bootstrap=10, threads=threads,
-                      progress=False)
-    evolve_tournament(warm, {**EVOLUTION_DEFAULTS, "moran_runs": 10}, threads)
-    t_warm = time.perf_counter() - t0
-
-    import sim.simulation.kernel as K
-
-    best_total, best_run, best_kernel, best_ratio = math.inf, math.inf, math.inf, math.inf
-    res = None
-    kernel = K.simulate_chunks
-    _this_module = sys.modules[__name__]
-    boot_kernel = _this_module._bootstrap_kernel
-    inside = [0.0, 0.0]
-
-    def timed(*a):
-        t = time.perf_counter()
-        out = kernel(*a)
-        inside[0] += time.perf_counter() - t
-        return out
-
-    def timed_boot(*a):
-        t = time.perf_counter()
-        out = boot_kernel(*a)
-        inside[1] += time.perf_counter() - t
-        return out
-
-    best_boot, best_with_boot = math.inf, math.inf
-
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        plan = prepare_tournament(market, ents, mon, **args)
-        t_prep = time.perf_counter() - t0
-        inside[0] = inside[1] = 0.0
-        # the kernel calls of this very run are timed (one clock read around each of the 55 calls), so
-        # the driver's share does not depend on how busy the machine was in another run
-        K.simulate_chunks = timed
-        _this_module._bootstrap_kernel = timed_boot
-        try:
-            t1 = time.perf_counter()
-            res = run_tournament(plan, threads, progress=False)
-            t_run = time.perf_counter() - t1
-        finally:
-            K.simulate_chunks = kernel
-            _this_module._bootstrap_kernel = boot_kernel
-        best_total = min(best_total, t_prep + t_run)
-        best_run = min(best_run, t_run)
-        best_ratio = min(best_ratio, (t_run - inside[1]) / inside[0])
-        best_with_boot = min(best_with_boot, t_run / inside[0])
-        best_boot = min(best_boot, inside[1])
-        t_kernel, sums = _kernel_seconds(plan, threads)
-        best_kernel = min(best_kernel, t_kernel, inside[0])
-    identical_kernel = all(np.array_equal(s, r.profit_sum) for s, r in zip(sums, res.matches))
-    t0 = time.perf_counter()
-    evo = evolve_tournament(res, EVOLUTION_DEFAULTS, threads)
-    t_evo = time.perf_counter() - t0
-
-    # the plain-Python reference on a slice: two replications of the last match
-    ref_reps = 2
-    m = plan.matches[-1]
-    t0 = time.perf_counter()
-    ref = reference_run(m.game, periods, ref_reps, 0.95, args["seed"], (m.index,))
-    t_ref = time.perf_counter() - t0
-    identical_ref = bool(np.array_equal(ref.profit_sum, res.matches[-1].profit_sum[:ref_reps]))
-    work = len(plan.matches) * periods * reps * 2
-    t_ref_all = t_ref / (periods * ref_reps * 2) * work
-    overhead = best_ratio - 1.0
-    return {
-        "workload": (f"{len(ents)} automaton entrants, 2 seats ({len(plan.matches)} matches), linear Cournot, "
-                     f"perception and implementation errors 0.01, {periods} periods x {reps} replications per "
-                     f"match, {boot} bootstrap resamples, {threads} threads"),
-        "matches": len(plan.matches),
-        "firm_periods": work,
-        "warm_up_seconds": t_warm,
-        "tournament_seconds": best_total,
-        "driver_seconds": best_run,
-        "kernel_seconds": best_kernel,
-        "driver_overhead": overhead,
-        "bootstrap_seconds": best_boot,
-        "driver_overhead_with_bootstrap": best_with_boot - 1.0,
-        "driver_overhead_against_separate_kernel_run": best_run / best_kernel - 1.0,
-        "whole_call_overhead": best_total / best_kernel - 1.0,
-        "kernel_firm_periods_per_second": work / best_kernel,
-        "evolution_seconds": t_evo,
-        "moran_agreement_standard_errors": evo.agreement()["max_standard_errors"],
-        "reference": {"replications": ref_reps, "seconds": t_ref, "estimated_seconds_whole_tournament": t_ref_all,
-                      "identical_to_tournament": identical_ref},
-        "ratio_tournament_to_reference": t_ref_all / best_total,
-        "kernel_outputs_identical_to_tournament": bool(identical_kernel),
-        "targets": {
-            "10-entrant duopoly tournament, 1000 x 1000 per match, in < 10 s (compile excluded)":
-                (not quick) and best_total < 10.0,
-            "driver adds < 10 % to the kernel time of its matches": (not quick) and overhead < 0.10,
-            "reference and kernel identical": identical_ref and identical_kernel,
-        },
-        "notes": ["quick workload: the targets refer to the full workload"] if quick else [],
-    }

@@ -429,8 +429,8 @@ def test_presentation_reads_the_stored_document():
     (keys sorted, nan and inf as null): the same as from the Assessment itself, the sensitivity sections
     in their fixed order whatever the order of the keys, and a largest-to-smallest ratio over a zero
     cost shown as inf again (JSON holds no inf)."""
+    from sim.core.values import canonical_json
     from sim.evidence.assess import assessment_tables, render_text, summary_blocks
-    from sim.runner.experiment import canonical_json
     from sim.runner.kinds import clean_arrays
 
     d = MarketData("logit", prices=[4.2, 3.9, 4.6], shares=[0.25, 0.2, 0.15], size=1000.0, margin=0.4)

@@ -214,13 +214,14 @@ def test_assess_gives_the_numbers_of_run_and_its_folder_verifies(tmp_path, capsy
 def test_a_failed_assessment_is_one_line_exit_1_and_recorded(tmp_path, capsys, monkeypatch):
     """A numerical failure inside the run (the cell fails, as a sweep cell would) is one line, exit
     status 1, naming the run folder that records it; no bundle is written."""
-    import sim.antitrust.assess
+    import sim.runner.analyses.assess
     from sim.core.errors import SolverError
 
     def fail(*args, **kwargs):
         raise SolverError("the stage game could not be solved")
 
-    monkeypatch.setattr(sim.antitrust.assess, "run_assessment", fail)
+    # the assessment kind's cell runs run_assessment: make it fail there
+    monkeypatch.setattr(sim.runner.analyses.assess, "run_assessment", fail)
     f = _write(tmp_path, SMALL.split("[assess.sensitivity]")[0])
     out = tmp_path / "run"
     code, stdout, err = _run(["assess", str(f), "--out", str(out)], capsys)
@@ -399,13 +400,14 @@ def test_shipped_scenario_thresholds_against_an_independent_logit_solution():
     market threshold, and the smallest operator binds (Firm D before, Firm C after)."""
     import numpy as np
 
-    from sim.antitrust.assess import _prepare_cell, run_assessment
+    from sim.antitrust.assess import run_assessment
     from sim.core.tomlfile import read_toml
+    from sim.runner.analyses.assess import KIND
 
     doc = read_toml(SHIPPED)
     doc["assess"] = {**doc["assess"], "simulate": False, "deltas": [], "partial": []}
     doc["assess"].pop("sensitivity")
-    a = run_assessment(_prepare_cell(doc))
+    a = run_assessment(KIND.prepare(doc))
     pre, post = _shipped_grim_thresholds()
     np.testing.assert_allclose(a.before.report.grim.per_firm, pre, rtol=1e-9)
     np.testing.assert_allclose(a.after.report.grim.per_firm, post, rtol=1e-9)

@@ -327,7 +327,7 @@ def test_the_learn_kind_on_cell_0_matches_the_command_with_automata_that_act_at_
     import tomllib
 
     from sim.learning.session import learning_from_dict
-    from sim.runner.analyses import LEARN
+    from sim.runner.analyses.learn import KIND as LEARN
     from sim.runner.kinds import CellContext
 
     text = RANDOM.replace("convergence = 3000", "convergence = 3000\nlimit_periods = 1000")
@@ -348,7 +348,7 @@ def test_the_library_reads_the_tables_without_the_command_line():
     code = (
         "import sys, tomllib; from sim.learning.session import learning_from_dict; "
         f"doc = tomllib.loads({SMALL!r}); cfg = learning_from_dict(doc); "
-        "from sim.runner.analyses import LEARN; LEARN.prepare(doc); "
+        "from sim.runner.analyses.learn import KIND; KIND.prepare(doc); "
         "assert not any(m.startswith('sim.cli') for m in sys.modules), sorted(m for m in sys.modules if 'cli' in m); "
         "print(cfg['settings']['sessions'], cfg['settings']['seed'], cfg['learner'].m)"
     )

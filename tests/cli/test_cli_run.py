@@ -18,6 +18,7 @@ import pytest
 
 from sim.cli import main
 from sim.core.errors import InputError
+from sim.evidence.report import write_report
 from sim.runner.runs import open_run, run_experiment
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -339,7 +340,7 @@ def test_an_altered_export_is_not_blessed_by_a_report_and_verify_compares_export
 
 def test_a_report_file_altered_after_the_manifest_stops_a_resumption_until_the_report_is_written_again(
         good, tmp_path, capsys):
-    s = run_experiment(good, tmp_path / "run", workers=1, report=True, progress=False)
+    s = run_experiment(good, tmp_path / "run", workers=1, report=True, write_report=write_report, progress=False)
     md = s.folder / "report" / "summary.md"
     original = md.read_bytes()
     md.write_text(md.read_text().replace("0.5294", "0.1000"))
@@ -463,7 +464,8 @@ def test_a_report_stopped_part_way_is_written_again(good, tmp_path, capsys):
 
 
 def test_an_interrupted_bundle_leaves_the_earlier_one_whole(tmp_path):
-    from sim.evidence.bundle import Bundle, clear_leftovers, leftovers
+    from sim.core.files import clear_leftovers, leftovers
+    from sim.evidence.bundle import Bundle
 
     target = tmp_path / "b"
     first = Bundle(target, "First")

@@ -281,7 +281,7 @@ def test_three_seats(tmp_path, capsys):
 def test_selection_checked_before_any_match_is_played(tmp_path, capsys, monkeypatch):
     # linear fitness is bounded from the stage game before anything runs: `check` refuses it, and the
     # tournament command plays nothing
-    import sim.simulation.engine
+    import sim.tournament.roundrobin
 
     path = write(tmp_path, _replace("population = 10", "population = 10\nselection = 1.0"))
     assert main(["check", path]) == 2
@@ -290,7 +290,7 @@ def test_selection_checked_before_any_match_is_played(tmp_path, capsys, monkeypa
     def never(*a, **k):
         raise AssertionError("a match was played")
 
-    monkeypatch.setattr(sim.simulation.engine, "run_game", never)
+    monkeypatch.setattr(sim.tournament.roundrobin, "run_game", never)
     assert main(["tournament", path]) == 2
     assert capsys.readouterr().err.startswith("supergame tournament: error: tournament.selection:")
 
@@ -505,13 +505,14 @@ def test_sweep_report_lists_every_cell(tmp_path, capsys):
 def test_learner_entries_read_by_the_learning_reader(tmp_path, monkeypatch):
     # qlearning entrants are built by sim.learning.session.learner_from_entry, the one reader of learner entries
     # (also used for the [[strategies]] of learning experiments)
-    import sim.learning.session as L
+    import sim.tournament.roundrobin as T
     from sim.core.tomlfile import read_toml
+    from sim.learning.session import learner_from_entry as real
     from sim.tournament.roundrobin import tournament_from_dict
 
     seen = []
-    real = L.learner_from_entry
-    monkeypatch.setattr(L, "learner_from_entry", lambda entry, base, key, **kw: seen.append(key)
+    assert T.learner_from_entry is real
+    monkeypatch.setattr(T, "learner_from_entry", lambda entry, base, key, **kw: seen.append(key)
                         or real(entry, base, key, **kw))
     cfg = tournament_from_dict(read_toml(write(tmp_path, LEARNERS)))
     assert seen == ["entrants[2]"]

@@ -175,7 +175,7 @@ def test_report_of_an_unfinished_run_is_refused(finished, tmp_path):
 def test_single_cell_report_has_a_metric_table_and_the_period_figure(tmp_path):
     p = tmp_path / "one.toml"
     p.write_text(SWEEP.split("[sweep]")[0].replace("perception_error = 0.0", "implementation_error = 0.01"))
-    s = run_experiment(p, tmp_path / "run", workers=1, report=True, progress=False)
+    s = run_experiment(p, tmp_path / "run", workers=1, report=True, write_report=write_report, progress=False)
     md = (s.report / "summary.md").read_text()
     assert "| metric | value | 95% CI | analytic |" in md
     assert (s.report / "figures" / "collusive-share-by-period.png").is_file()
@@ -226,7 +226,7 @@ def test_a_kind_writes_its_own_account_of_a_run_into_the_bundle(tmp_path):
     p = tmp_path / "sq.toml"
     p.write_text('[experiment]\nname = "sq"\nkind = "squares-with-report"\n[params]\nx = 0\n'
                  '[sweep]\n"params.x" = [1, 2, 3]\n')
-    s = run_experiment(p, tmp_path / "run", workers=1, report=True, progress=False)
+    s = run_experiment(p, tmp_path / "run", workers=1, report=True, write_report=write_report, progress=False)
     md = (s.report / "summary.md").read_text()
     assert calls == [3] and "## Squares" in md and "Each x and its square, as stored" in md
     assert "## Sweep" not in md and "## Results" not in md

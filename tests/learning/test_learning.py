@@ -672,15 +672,4 @@ def test_a_learner_facing_tit_for_tat_learns_the_optimal_reply(d):
         assert optimal_price < lu.nash_prices[0] + 0.05
 
 
-def test_benchmark_section_reports_both_rates_and_checks_identity():
-    # structure only (a smoke test): speed targets are judged by `supergame bench`, never by tests
-    from types import SimpleNamespace
 
-    from sim.learning.session import bench_section
-
-    out = bench_section(SimpleNamespace(quick=True, threads=2, repeat=1))
-    assert out["reference_identical_to_kernel"] is True
-    assert out["kernel_periods_per_second"] > 0 and out["reference_periods_per_second"] > 0
-    assert out["ratio"] == pytest.approx(out["kernel_periods_per_second"] / out["reference_periods_per_second"])
-    assert out["sessions_run"]["converged"] == out["sessions_run"]["sessions"] == 8
-    assert set(out["targets"]) >= {"kernel >= 8e6 periods/s on one core", "kernel >= 100 x reference"}

@@ -10,7 +10,8 @@ from pathlib import Path
 import pytest
 
 from sim.core.errors import InputError
-from sim.runner.experiment import canonical_path, experiment_from_dict, load_experiment, parse_values, value_label
+from sim.core.values import canonical_path, parse_values, value_label
+from sim.runner.experiment import experiment_from_dict, load_experiment
 
 ROOT = Path(__file__).resolve().parents[2]
 

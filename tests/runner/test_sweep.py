@@ -187,19 +187,6 @@ def test_results_as_a_dataframe(serial_run):
     assert df.loc[0, "collusive_share"] == body[0][header.index("collusive_share")]
 
 
-@pytest.mark.slow
-def test_sweep_benchmark_section_runs_and_its_backends_agree():
-    """Smoke test of ``supergame bench --only sweep --quick``: the figures are measured, not asserted
-    (speed targets are benchmarks, not timed tests); 1 and 2 workers must give the same results file."""
-    from types import SimpleNamespace
-
-    from sim.runner.sweep import bench_section
-
-    out = bench_section(SimpleNamespace(quick=True, threads=2, repeat=1))
-    assert out["speedup"]["identical_results"] and out["targets"]["1 and 2 workers give identical results"]
-    assert out["overhead"]["per_cell_ms"] == out["overhead"]["per_cell_ms"]  # a number, not nan
-
-
 def test_plugins_on_a_local_dask_cluster(flaky, tmp_path):
     """The workers import an uploaded plugin themselves (``Client.upload_file``): the run's plugin is
     that module, not a clash -- every cell but the one that raises finishes."""

@@ -83,7 +83,7 @@ def test_published_grid_matches_the_construction_of_calvano_et_al_2020():
     m = baseline_market()
     st = sim.stage_game(m)
     pn, pm = st.nash.prices[0], st.collusive.prices[0]
-    grid = QLearner().compile(m, 0).grid
+    grid = QLearner().compile(st, 0).grid
     assert grid.size == 15
     assert grid[0] == pytest.approx(pn - 0.1 * (pm - pn), abs=1e-12)
     assert grid[-1] == pytest.approx(pm + 0.1 * (pm - pn), abs=1e-12)
@@ -93,21 +93,21 @@ def test_published_grid_matches_the_construction_of_calvano_et_al_2020():
 def test_published_grid_spans_decreasing_collusive_quantities_under_cournot():
     # Cournot: collusive quantities are below Nash ones; the grid still spans both, widened
     m = sim.Market(sim.LinearDemand(intercept=10, slope=1), cost=1.0, n_firms=2)
-    g = QLearner(m=7, xi=0.2).compile(m, 1).grid
+    g = QLearner(m=7, xi=0.2).compile(sim.stage_game(m), 1).grid
     qn, qm = 3.0, 2.25  # (a - c) / 3b and (a - c) / 4b, textbook linear Cournot duopoly
     assert g[0] == pytest.approx(qm - 0.2 * (qn - qm))
     assert g[-1] == pytest.approx(qn + 0.2 * (qn - qm))
 
 
 def test_a_user_grid_is_used_as_given():
-    g = QLearner(grid=[1.5, 1.6, 1.9]).compile(baseline_market(), 0).grid
+    g = QLearner(grid=[1.5, 1.6, 1.9]).compile(None, 0).grid
     assert g.tolist() == [1.5, 1.6, 1.9]
 
 
 def test_grid_reaching_below_zero_is_refused():
     # a huge xi pushes the lower end of the grid below zero on several points
     with pytest.raises(sim.InputError) as err:
-        QLearner(xi=50.0).compile(baseline_market(), 0, prefix="learning")
+        QLearner(xi=50.0).compile(sim.stage_game(baseline_market()), 0, prefix="learning")
     assert err.value.key == "learning.xi"
 
 

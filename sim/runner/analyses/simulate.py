@@ -1,0 +1,328 @@
+"""The ``simulate`` analysis: a line-up of strategies played many times, as an experiment kind (see
+:mod:`sim.runner.kinds`).
+
+It adds one table of its own, ``[deviation]``: a simulated incentive check. Seat ``firm``
+(default: the firm that binds under grim trigger) is replaced by a one-shot deviator -- its own
+strategy, except that it plays its best one-shot deviation in the first period and then follows the
+strategy (its own deviation included in what it observes) -- and the line-up is simulated again with
+the same seeds. The paired difference of the seat's discounted profits is the gain from deviating
+under the experiment's monitoring and noise, with its confidence interval; collusion is an
+equilibrium of the simulated game only if no such deviation pays (one-shot deviation principle,
+e.g. Mailath and Samuelson, 2006, "Repeated Games and Reputations", section 2.2). Without noise and
+with a fixed horizon, the gain of grim trigger and of T-period Nash reversion has the closed form
+reported as ``analytic.deviation.gain`` (Friedman, 1971).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from sim.core.errors import InputError
+from sim.core.params import Integer
+from sim.core.tables import refuse_unknown
+from sim.core.values import value_label
+from sim.models.stagecore import market_owner
+from sim.runner.analyses.common import (
+    GENERAL_ASSUMPTIONS,
+    collusion_of,
+    describe_market,
+    nan_if_none,
+    put_estimate,
+    stage_of,
+    thin,
+)
+from sim.runner.kinds import CellContext, CellResult, Kind
+from sim.simulation.baseline import scheme_of
+from sim.simulation.engine import check_run, compile_game, run_game, simulation_from_dict
+from sim.simulation.results import mean_estimate, summarize
+from sim.theory.thresholds import grim_threshold
+from strategies import TableAutomaton, strategy_from_dict
+from strategies.automata import FinitePunishment, GrimTrigger
+from strategies.base import FirmContext
+from strategies.registry import lineup_from_tables
+
+_DEV_KEYS = ("firm", "strategy")
+#: the persistence metrics of :func:`sim.simulation.results.summarize`, in its order, and the mean length of a
+#: punishment phase (``SimulationResult.punishment_length``) after the price wars
+SIM_METRICS = ("collusive_share", "war_share", "wars_per_replication", "war_frequency", "spell_length", "war_length",
+               "punishment_length", "first_breakdown", "broken_down", "price", "overcharge", "consumer_surplus",
+               "joint_profit", "profit_gain")
+_FIRM_METRICS = ("profit", "discounted_profit", "profit_gain")
+_ANALYTIC = ("collusive_share", "war_share", "spell_length", "war_length", "punishment_length", "first_breakdown")
+def _level_data(level):
+    return list(level) if isinstance(level, tuple) else level
+
+
+def one_shot_deviator(strategy, levels, seat: int, prefix: str = "deviation"):
+    """The seat's own automaton with its best one-shot deviation played in the first period.
+
+    A copy of the initial state, which cheats with probability one, becomes the initial state; its
+    transitions are those of the original initial state, so after period 0 the deviator follows its
+    strategy (reacting to its own deviation like any other). Strategies that already cheat at random
+    are refused (give ``deviation.strategy`` instead).
+    """
+
+    t = strategy.table(f"strategies[{seat + 1}]", FirmContext(levels, seat))
+    names = [r.name for r in t.rows]
+    if any(r.cheat > 0 for r in t.rows):
+        raise InputError(f"{prefix}.firm", f"firm {seat + 1} plays {strategy.name}, which already cheats; give the "
+                                           f"deviating strategy as [deviation.strategy]")
+    states = {}
+    for r in t.rows:
+        st = {"action": _level_data(r.action), "watch": r.watch, "good": names[r.good], "bad": names[r.bad],
+              "collusive": bool(r.collusive)}
+        if r.watch in ("all", "rivals"):
+            st["expect"] = _level_data(r.expect)
+            st["judge"] = r.judge
+        if r.watch in ("price", "profit"):
+            st["threshold"] = r.threshold
+        if r.forgive > 0:
+            st["forgive"] = r.forgive
+            st["forgive_to"] = names[r.forgive_to]
+        if r.lapse > 0:
+            st["lapse"] = r.lapse
+            st["lapse_to"] = names[r.lapse_to]
+        states[r.name] = st
+    first = "deviate"
+    while first in states:
+        first += "_"
+    dev = dict(states[names[t.initial]])
+    dev["cheat"] = 1.0
+    return TableAutomaton(states={first: dev, **states}, initial=first, cheat_action=_level_data(t.cheat_level),
+                          start=0)
+
+
+def _prepare_simulate(doc: dict) -> dict:
+
+    sub = {k: v for k, v in doc.items() if k != "deviation"}
+    cfg = simulation_from_dict(sub, check_tables=True)
+    ms = cfg["market"].spec()
+    agreement, actions = collusion_of(doc)
+    lineup = lineup_from_tables(cfg["strategies"], ms.n_firms, "strategies")
+    P = int(market_owner(ms).shape[0])
+    r = cfg["run"]
+    run = check_run(r["periods"], r["replications"], r["delta"], r["seed"], r["horizon"], r["continuation"],
+                    r["paths"], P)
+    stage, levels = stage_of(ms, doc["market"], agreement, actions)
+    game = compile_game(stage, levels, lineup, cfg["monitoring"])
+    out = {"market": cfg["market"], "market_table": doc["market"], "spec": ms, "agreement": agreement,
+           "actions": actions, "lineup": lineup, "monitoring": cfg["monitoring"], "run": run, "game": game,
+           "deviation": None}
+    if "deviation" in doc:
+        dt = refuse_unknown(doc["deviation"], "deviation", _DEV_KEYS)
+        firm = dt.get("firm", "binding")
+        if firm == "binding":
+
+            fp = levels.firm_profits
+            per = np.nan_to_num(grim_threshold(fp["collusive"], fp["deviation"], fp["nash"]), nan=np.inf)
+            seat = int(np.argmax(per))
+        else:
+            seat = Integer(1, ms.n_firms).check("deviation.firm", firm) - 1 if not isinstance(firm, str) else None
+            if seat is None:
+                raise InputError("deviation.firm", f"must be 'binding' or a firm number in [1, {ms.n_firms}], got "
+                                                   f"{firm!r}")
+        if "strategy" in dt:
+            deviator = strategy_from_dict(dt["strategy"], "deviation.strategy")
+        else:
+            deviator = one_shot_deviator(lineup[seat], levels, seat)
+        dev_lineup = [s.clone() for s in lineup]
+        dev_lineup[seat] = deviator
+        dev_game = compile_game(stage, levels, dev_lineup, cfg["monitoring"], strict=False)
+        out["deviation"] = {"seat": seat, "game": dev_game, "custom": "strategy" in dt}
+    return out
+
+
+def _simulate_names(cfg: dict) -> list[str]:
+    n = cfg["spec"].n_firms
+    out = []
+    for m in SIM_METRICS:
+        out += [m, f"{m}.se", f"{m}.low", f"{m}.high"]
+    for m in _FIRM_METRICS:
+        for i in range(n):
+            out += [f"{m}.firm{i + 1}", f"{m}.firm{i + 1}.low", f"{m}.firm{i + 1}.high"]
+    out += ["nash_price", "collusive_price"]
+    out += [f"analytic.{m}" for m in _ANALYTIC]
+    out += ["analytic.critical_delta", "analytic.effective_delta", "analytic.clears"]
+    out += [f"analytic.critical_delta.{s}" for s in _schemes(cfg)]
+    out += ["analytic.war_probability", "analytic.war_share_long_run", "analytic.equilibrium"]
+    if cfg["deviation"] is not None:
+        out += ["deviation.firm", "deviation.gain", "deviation.gain.se", "deviation.gain.low", "deviation.gain.high",
+                "deviation.pays", "deviation.conform_value", "deviation.deviate_value", "analytic.deviation.gain"]
+    return out
+
+
+def _scheme_key(entry: dict) -> str:
+    s = entry["scheme"]
+    if s.startswith("Nash reversion"):
+        return "finite_T" + s.split("T=")[1]
+    return {"grim trigger": "grim", "stick and carrot": "stick_carrot"}.get(s, s.replace(" ", "_"))
+
+
+def _schemes(cfg: dict) -> list[str]:
+    """Keys of the punishment schemes the line-up plays, by the analytic baseline's own reading of the
+    strategies (an opportunist that never punishes plays none)."""
+
+    keys = set()
+    for s in cfg["lineup"]:
+        sch = scheme_of(s)
+        if sch is None:
+            continue
+        kind, T = sch
+        keys.add(f"finite_T{T}" if kind == "finite" else kind)
+    return sorted(keys)
+
+
+def _analytic_gain(cfg: dict, seat: int) -> float:
+    """Closed-form gain of the one-shot deviation against grim trigger or T-period Nash reversion, without
+    noise, over the fixed horizon: ``(pi_d - pi_c) - sum_{t=1}^{min(T, H-1)} delta^t (pi_c - pi_N)``."""
+
+    dev = cfg["deviation"]
+    mon = cfg["game"].monitoring
+    run = cfg["run"]
+    if dev["custom"] or run["horizon"] != "fixed" or mon["sigma"] > 0 or mon["perception_error"] > 0 or \
+            mon["implementation_error"] > 0:
+        return math.nan
+    lineup = cfg["lineup"]
+    first = lineup[0]
+    if not all(type(s) is type(first) and s.get_params() == first.get_params() for s in lineup):
+        return math.nan
+    if isinstance(first, GrimTrigger):
+        T = run["periods"] - 1
+    elif isinstance(first, FinitePunishment):
+        T = min(int(first.length), run["periods"] - 1)
+    else:
+        return math.nan
+    if first.collude != "collusive" or first.punish != "nash":
+        return math.nan
+    fp = cfg["game"].levels.firm_profits
+    c, d, nsh = (float(fp[k][seat]) for k in ("collusive", "deviation", "nash"))
+    delta = run["delta"]
+    loss = sum(delta**t for t in range(1, T + 1)) * (c - nsh)
+    return (d - c) - loss
+
+
+def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
+
+    run = cfg["run"]
+    game = cfg["game"]
+
+    def play(g):
+        return run_game(g, run["periods"], run["replications"], run["delta"], run["seed"], ctx.key, run["horizon"],
+                        run["continuation"], 0, ctx.threads, ctx.progress)
+
+    raw = play(game)
+    res = summarize(raw, game, {**run, "paths": 0}, confidence=0.95, baseline=True)
+    m: dict = {}
+    for k in SIM_METRICS:
+        put_estimate(m, k, res.punishment_length if k == "punishment_length" else res.metrics[k])
+    for k in _FIRM_METRICS:
+        for i, e in enumerate(res.firm_metrics[k]):
+            m[f"{k}.firm{i + 1}"] = e.value
+            m[f"{k}.firm{i + 1}.low"] = e.low
+            m[f"{k}.firm{i + 1}.high"] = e.high
+    m["nash_price"] = res.reference["nash_price"]
+    m["collusive_price"] = res.reference["collusive_price"]
+    b = res.baseline
+    tp, fb = b.get("trigger_price"), b.get("first_breakdown")
+    a = dict.fromkeys(_ANALYTIC, math.nan)
+    if b.get("collusive_share") is not None:
+        a["collusive_share"] = b["collusive_share"]
+        a["war_share"] = 1.0 - b["collusive_share"]
+    if tp is not None:
+        a["war_share"] = tp["war_share"]
+        a["spell_length"] = tp["expected_collusive_spell"]
+        a["war_length"] = nan_if_none(tp["war_length"])
+        a["first_breakdown"] = tp["expected_first_breakdown"]
+    if b.get("punishment_length") is not None:
+        a["punishment_length"] = b["punishment_length"]["value"]
+    if fb is not None:
+        a["first_breakdown"] = fb["expected_within_horizon"] if fb["expected_within_horizon"] is not None \
+            else fb["expected"]
+    for k, v in a.items():
+        m[f"analytic.{k}"] = v
+    th = b.get("thresholds") or []
+    crit = {_scheme_key(t): nan_if_none(t["market"]) for t in th}
+    for s in _schemes(cfg):
+        m[f"analytic.critical_delta.{s}"] = crit.get(s, math.nan)
+    vals = list(crit.values())
+    m["analytic.critical_delta"] = max(vals) if vals and all(math.isfinite(v) for v in vals) else math.nan
+    m["analytic.effective_delta"] = run["delta"] * (run["continuation"] if run["horizon"] == "random" else 1.0)
+    m["analytic.clears"] = float(all(t["clears"] for t in th)) if th else math.nan
+    m["analytic.war_probability"] = tp["war_probability"] if tp else math.nan
+    m["analytic.war_share_long_run"] = tp["war_share_long_run"] if tp else math.nan
+    m["analytic.equilibrium"] = float(tp["equilibrium"]) if tp else math.nan
+    arrays = {}
+    t, share = thin(res.collusive_by_period)
+    arrays["period"] = t
+    arrays["collusive_by_period"] = share
+    if b.get("collusive_by_period") is not None:
+        arrays["analytic.collusive_by_period"] = thin(b["collusive_by_period"])[1]
+    dev = cfg["deviation"]
+    if dev is not None:
+        k = dev["seat"]
+        raw_d = play(dev["game"])
+        gain = mean_estimate(raw_d.disc[:, k] - raw.disc[:, k])
+        m["deviation.firm"] = k + 1
+        put_estimate(m, "deviation.gain", gain)
+        m["deviation.pays"] = float(gain.value > 0)
+        m["deviation.conform_value"] = float(raw.disc[:, k].mean())
+        m["deviation.deviate_value"] = float(raw_d.disc[:, k].mean())
+        m["analytic.deviation.gain"] = _analytic_gain(cfg, k)
+    return CellResult(m, arrays)
+
+
+def _describe_simulate(doc: dict) -> list[str]:
+
+    run = {"periods": 1000, "replications": 1000, "horizon": "fixed", "delta": 0.95, "seed": 0, **doc.get("run", {})}
+    mon = {"signal": "perfect", "noise": "lognormal", "sigma": 0.0, "perception_error": 0.0,
+           "implementation_error": 0.0, **doc.get("monitoring", {})}
+    coll = doc.get("collusion", {})
+    seats = "; ".join(value_label(e) + (f" x {e['seats']}" if "seats" in e else "")
+                      for e in doc.get("strategies", []) if isinstance(e, dict))
+    lines = [f"Market: {describe_market(doc.get('market', {}))}",
+             f"Agreement: {coll.get('agreement', 'given' if 'actions' in coll else 'joint')}",
+             f"Line-up (seat order): {seats}",
+             f"Monitoring: signal {mon['signal']}, {mon['noise']} demand shock sigma {mon['sigma']}, perception error "
+             f"{mon['perception_error']}, implementation error {mon['implementation_error']}",
+             f"Run: {run['periods']} periods ({run['horizon']} horizon), {run['replications']} replications, delta "
+             f"{run['delta']}, seed {run['seed']}"]
+    if "deviation" in doc:
+        d = doc["deviation"]
+        who = d.get("firm", "binding")
+        who = "the firm that binds under grim trigger" if who == "binding" else f"firm {who}"
+        lines.append(f"Deviation check: {who} deviates once in the first period"
+                     + (f" ({value_label(d['strategy'])})" if "strategy" in d else ", then follows its strategy"))
+    return lines
+
+
+KIND = Kind(
+    name="simulate",
+    tables=("market", "collusion", "monitoring", "strategies", "run", "deviation"),
+    prepare=_prepare_simulate,
+    run=_run_simulate,
+    metric_names=_simulate_names,
+    headline=("collusive_share", "profit_gain", "war_share", "first_breakdown"),
+    analytic={"collusive_share": "analytic.collusive_share", "war_share": "analytic.war_share",
+              "spell_length": "analytic.spell_length", "war_length": "analytic.war_length",
+              "punishment_length": "analytic.punishment_length", "first_breakdown": "analytic.first_breakdown",
+              "deviation.gain": "analytic.deviation.gain"},
+    threshold={"run.delta": "analytic.critical_delta"},
+    describe=_describe_simulate,
+    summary="repeated-game simulation of a line-up of strategies: persistence of collusion",
+    assumptions=GENERAL_ASSUMPTIONS + (
+        "Strategies are fixed automata: they do not re-optimise when the discount factor or the noise changes; the "
+        "discount factor enters through discounted profits, the deviation check and the analytic thresholds.",
+        "Noise is i.i.d. across periods and firms: a multiplicative mean-one demand shock seen only through the "
+        "market price, perception errors (each firm misreads each rival's conduct independently) and "
+        "implementation errors (an intended action replaced by cheating).",
+        "The horizon is finite (or ends at random): discounted profits and spell lengths are truncated by it; "
+        "lengths cut off by the horizon are treated as censored (Kaplan-Meier), so their means are lower bounds.",
+        "Confidence intervals are normal approximations across independent replications (95 %); they measure "
+        "simulation error only, not uncertainty about the model or its parameters.",
+        "The deviation check tests one unilateral deviation (a one-shot deviation then the strategy, unless another "
+        "is given): a deviation that pays shows the line-up is not an equilibrium; one that does not pay is "
+        "necessary, not sufficient, for equilibrium.",
+    ),
+)

@@ -1,0 +1,151 @@
+"""The ``thresholds`` analysis: the stage game and critical discount factors of a market (analytic), as an
+experiment kind (see :mod:`sim.runner.kinds`)."""
+
+from __future__ import annotations
+
+from sim.core.errors import InputError
+from sim.core.params import Integer, Real
+from sim.core.tables import refuse_unknown
+from sim.models.market import market_from_dict
+from sim.models.monitoring import monitoring_from_dict
+from sim.runner.analyses.common import GENERAL_ASSUMPTIONS, collusion_of, describe_market, nan_if_none, stage_of
+from sim.runner.kinds import CellContext, CellResult, Kind
+from sim.theory.thresholds import critical_discount_factors
+from sim.theory.trigger_price import trigger_price_equilibrium
+
+_TH_KEYS = ("punishments", "deltas")
+
+
+def _prepare_thresholds(doc: dict) -> dict:
+
+    if "market" not in doc:
+        raise InputError("market", "missing: the [market] table describes the market")
+    market = market_from_dict(doc["market"])
+    ms = market.spec()
+    agreement, actions = collusion_of(doc)
+    th = refuse_unknown(doc.get("thresholds", {}), "thresholds", _TH_KEYS)
+    Ts = th.get("punishments", [1, 2, 3, 5, 10])
+    ds = th.get("deltas", [])
+    for key, v in (("thresholds.punishments", Ts), ("thresholds.deltas", ds)):
+        if not isinstance(v, list):
+            raise InputError(key, f"must be a list, got {v!r}")
+    Ts = [Integer(1, 10_000_000).check(f"thresholds.punishments[{i + 1}]", T) for i, T in enumerate(Ts)]
+    ds = [Real(0, 1, closed="neither").check(f"thresholds.deltas[{i + 1}]", d) for i, d in enumerate(ds)]
+    mon = monitoring_from_dict(doc.get("monitoring", {})).validated()
+    trigger = mon["signal"] == "price" and mon["sigma"] > 0
+    if trigger and not ds:
+        raise InputError("thresholds.deltas", "the trigger-price equilibrium (monitoring.signal = 'price' with a "
+                                              "demand shock) needs at least one discount factor")
+    if trigger and not (ms.quantity_setting and ms.homogeneous_good and ms.symmetric):
+        raise InputError("monitoring.signal", "the trigger-price equilibrium needs a symmetric homogeneous-good "
+                                              "Cournot market; use signal = 'perfect' here")
+    # the stage game checks the agreement (given actions: their number and range) before any work starts
+    stage_of(ms, doc["market"], agreement, actions)
+    return {"market": market, "n_firms": ms.n_firms, "agreement": agreement, "actions": actions, "punishments": Ts,
+            "deltas": ds, "monitoring": mon, "trigger_price": trigger}
+
+
+def _threshold_names(cfg: dict) -> list[str]:
+    n = cfg["n_firms"]
+    out = ["n_firms"]
+    for who in ("collusive", "deviation", "nash"):
+        out += [f"profit.{who}.firm{i + 1}" for i in range(n)]
+    out += ["threshold.grim", "binding.grim"] + [f"threshold.grim.firm{i + 1}" for i in range(n)]
+    for j in range(len(cfg["punishments"])):
+        out += [f"punishment[{j + 1}]", f"threshold.finite[{j + 1}]", f"binding.finite[{j + 1}]"]
+    out += ["threshold.stick_carrot", "binding.stick_carrot", "punishment_level.stick_carrot"]
+    out += [f"threshold.stick_carrot.firm{i + 1}" for i in range(n)]
+    for j in range(len(cfg["deltas"])):
+        out.append(f"delta[{j + 1}]")
+        out += [f"partial_gain.grim[{j + 1}]", f"partial_gain.stick_carrot[{j + 1}]"]
+        out += [f"partial_gain.finite[{k + 1}][{j + 1}]" for k in range(len(cfg["punishments"]))]
+        if cfg["trigger_price"]:
+            out += [f"trigger_price.{x}[{j + 1}]" for x in _TP_FIELDS]
+    return out
+
+
+_TP_FIELDS = ("quantity", "trigger", "war_length", "war_probability", "expected_collusive_spell", "war_share",
+              "value", "nash_value")
+
+
+
+
+def _run_thresholds(cfg: dict, ctx: CellContext) -> CellResult:
+
+    rep = critical_discount_factors(cfg["market"], punishments=cfg["punishments"], deltas=cfg["deltas"],
+                                    agreement=cfg["agreement"], actions=cfg["actions"])
+    st = rep.stage
+    n = cfg["n_firms"]
+    m: dict = {"n_firms": n}
+    for who, vals in (("collusive", st.collusive.firm_profits), ("deviation", st.deviation_profits),
+                      ("nash", st.nash.firm_profits)):
+        for i in range(n):
+            m[f"profit.{who}.firm{i + 1}"] = float(vals[i])
+    m["threshold.grim"] = rep.grim.market
+    m["binding.grim"] = rep.grim.binding + 1
+    for i in range(n):
+        m[f"threshold.grim.firm{i + 1}"] = float(rep.grim.per_firm[i])
+    for j, f in enumerate(rep.finite):
+        m[f"punishment[{j + 1}]"] = f.T
+        m[f"threshold.finite[{j + 1}]"] = f.market
+        m[f"binding.finite[{j + 1}]"] = f.binding + 1
+    sc = rep.stick_carrot
+    m["threshold.stick_carrot"] = sc.market
+    m["binding.stick_carrot"] = sc.binding + 1
+    m["punishment_level.stick_carrot"] = sc.punishment_level
+    for i in range(n):
+        m[f"threshold.stick_carrot.firm{i + 1}"] = float(sc.per_firm[i])
+    by_delta: dict = {}
+    for p in rep.partial:
+        by_delta.setdefault(p.delta, []).append(p)
+    for j, d in enumerate(cfg["deltas"]):
+        m[f"delta[{j + 1}]"] = d
+        fin = 0
+        for p in by_delta.get(d, []):
+            if p.scheme == "finite":
+                fin += 1
+                m[f"partial_gain.finite[{fin}][{j + 1}]"] = p.profit_gain
+            else:
+                m[f"partial_gain.{p.scheme}[{j + 1}]"] = p.profit_gain
+    if cfg["trigger_price"]:
+
+        mon = cfg["monitoring"]
+        for j, d in enumerate(cfg["deltas"]):
+            s = trigger_price_equilibrium(cfg["market"], d, mon["noise"], mon["sigma"])
+            vals = {"quantity": s.quantity, "trigger": s.trigger, "war_length": nan_if_none(s.T),
+                    "war_probability": s.war_probability, "expected_collusive_spell": s.expected_collusive_spell,
+                    "war_share": s.war_share, "value": s.value, "nash_value": s.nash_value}
+            for x in _TP_FIELDS:
+                m[f"trigger_price.{x}[{j + 1}]"] = vals[x]
+    return CellResult({k: nan_if_none(v) if v is None else v for k, v in m.items()})
+
+
+def _describe_thresholds(doc: dict) -> list[str]:
+    coll = doc.get("collusion", {})
+    th = doc.get("thresholds", {})
+    return [f"Market: {describe_market(doc.get('market', {}))}",
+            f"Agreement: {coll.get('agreement', 'given' if 'actions' in coll else 'joint')}",
+            f"Punishment lengths T of Nash reversion: {th.get('punishments', [1, 2, 3, 5, 10])}",
+            f"Discount factors for partial collusion: {th.get('deltas', [])}"]
+
+
+KIND = Kind(
+    name="thresholds",
+    tables=("market", "collusion", "thresholds", "monitoring"),
+    prepare=_prepare_thresholds,
+    run=_run_thresholds,
+    metric_names=_threshold_names,
+    seed_key=None,
+    headline=("threshold.grim", "threshold.stick_carrot", "threshold.finite[1]"),
+    describe=_describe_thresholds,
+    summary="stage game and critical discount factors of a market (analytic)",
+    assumptions=GENERAL_ASSUMPTIONS + (
+        "Critical discount factors assume perfect monitoring of actions, an infinite horizon and punishments by "
+        "static Nash reversion (forever or for T periods) or the optimal symmetric two-phase punishment (Abreu, "
+        "1986); they are the lowest discount factors at which the agreement is a subgame-perfect equilibrium of "
+        "the repeated game, not predictions that collusion occurs.",
+        "Partial collusion is searched along the straight path from the static Nash actions to the agreement.",
+        "The trigger-price equilibrium (Green and Porter, 1984) assumes a symmetric homogeneous-good Cournot market "
+        "with an i.i.d. multiplicative demand shock and a public price signal.",
+    ),
+)
