@@ -9,11 +9,11 @@ import numpy as np
 
 import sim.core.text as _text
 from sim.cli._common import MARKET_FLAGS, add_market_flags, emit, market_table_from_args, parse_number, parse_numbers
-from sim.cli.thresholds import _describe_market
 from sim.core.errors import InputError
 from sim.core.jsonutil import dumps
 from sim.core.text import CAUTION, fmt_num, table
 from sim.core.tomlfile import read_toml
+from sim.evidence.thresholds import describe_market
 from sim.learning.session import RUN_CONSTRAINTS, learn, learning_from_dict
 
 HELP = "let Q-learning firms learn to price; limit outcomes, profit gain and impulse response"
@@ -200,7 +200,7 @@ def render(result, market, written=()) -> str:
     ms = lu.market
     act = "quantity" if ms.quantity_setting else "price"
     firms = [f"firm {i + 1}" for i in range(n)]
-    lines = [f"Market: {_describe_market(market)}"]
+    lines = [f"Market: {describe_market(market.to_dict(), market.spec().n_firms)}"]
     seated = [c for c in lu.learners if c is not None]
     same = len(seated) == n and all(_same_learner(x, seated[0]) for x in seated)
     for i, c in enumerate(lu.learners):

@@ -13,12 +13,12 @@ from sim.cli._common import (
     parse_number,
     parse_numbers,
 )
-from sim.cli.thresholds import _AGREEMENT_NAMES, _describe_market
 from sim.core.errors import InputError
 from sim.core.jsonutil import dumps
 from sim.core.text import CAUTION, fmt_num, table
 from sim.core.tomlfile import read_toml
 from sim.evidence.simplots import simulation_figures
+from sim.evidence.thresholds import AGREEMENT_NAMES, describe_market
 from sim.models.market import market_from_dict
 from sim.models.monitoring import monitoring_from_dict
 from sim.simulation.engine import simulate, simulation_from_dict
@@ -272,8 +272,8 @@ def render(res, cfg) -> str:
     s = res.settings
     run = s["run"]
     mon = s["monitoring"]
-    lines = [f"Market: {_describe_market(cfg['market'])}",
-             f"Agreement: {_AGREEMENT_NAMES.get(s['agreement'], s['agreement'])}"]
+    lines = [f"Market: {describe_market(cfg['market'].to_dict(), cfg['market'].spec().n_firms)}",
+             f"Agreement: {AGREEMENT_NAMES.get(s['agreement'], s['agreement'])}"]
     seats = []
     for i, st in enumerate(s["lineup"]):
         params = ", ".join(f"{k} {v}" for k, v in st.items() if k != "strategy" and k != "states")

@@ -4,17 +4,14 @@ from __future__ import annotations
 
 import argparse
 
-import numpy as np
-
-import sim.core.text as _text
 from sim.cli._common import add_market_flags, emit, flag_error, market_table_from_args, parse_number, parse_numbers
 from sim.core.errors import InputError
 from sim.core.jsonutil import dumps
-from sim.core.text import CAUTION, fmt_num, table
 from sim.core.tomlfile import read_toml
+from sim.evidence.render import write_figures
+from sim.evidence.thresholds import RENDERER
 from sim.runner.analyses.thresholds import KIND as THRESHOLDS
-from sim.theory.thresholds import critical_discount_factors
-from sim.theory.trigger_price import trigger_price_equilibrium
+from sim.runner.single import run_single
 
 HELP = "stage game and critical discount factors of a market (analytic baseline)"
 DESCRIPTION = (
@@ -39,6 +36,7 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--noise", choices=["lognormal", "normal"],
                    help="also compute the trigger-price equilibrium under this demand shock (needs --delta)")
     g.add_argument("--sigma", metavar="S", help="standard deviation of the demand shock (default 0.1)")
+    p.add_argument("--plot", metavar="DIR", help="write the figure of the thresholds (PNG) into DIR")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
 
 
@@ -108,111 +106,17 @@ def _renamed(exc: InputError, flags: set) -> InputError:
 
 
 def run(args) -> int:
-
     doc, flags = _document(args)
+    # the tables this analysis reads, whatever the kind of FILE (any experiment file's [market] will do)
+    doc = {k: v for k, v in doc.items() if k in THRESHOLDS.tables}
+    doc["experiment"] = {"kind": "thresholds"}
     try:
-        cfg = THRESHOLDS.prepare(doc)
+        one = run_single(doc, source=args.file, default_name="thresholds")
     except InputError as exc:
         # without a file every value is a flag or its default: name the flag
         raise _renamed(exc, flags if args.file else flags | set(_FLAG_OF)) from None
-    market = cfg["market"]
-    report = critical_discount_factors(market, punishments=cfg["punishments"], deltas=cfg["deltas"],
-                                       agreement=cfg["agreement"], actions=cfg["actions"])
-    tp = None
-    if cfg["trigger_price"]:
-
-        mon = cfg["monitoring"]
-        tp = [trigger_price_equilibrium(market, d, mon["noise"], mon["sigma"]) for d in cfg["deltas"]]
-    out = report.to_dict()
-    out["market"] = market.to_dict()
-    if tp is not None:
-        out["trigger_price"] = [s.to_dict() for s in tp]
-    out["caution"] = _text.CAUTION
-    if args.json:
-        emit(dumps(out, indent=2))
-        return 0
-    emit(render(report, market, tp))
+    res = one.result
+    if args.plot:
+        write_figures(RENDERER.figures(res), args.plot, key="--plot")
+    emit(dumps(RENDERER.as_json(res), indent=2) if args.json else RENDERER.console(res))
     return 0
-
-
-def _describe_market(market) -> str:
-    d = market.to_dict()
-    skip = {"model", "demand", "cost", "n_firms", "capacity"}
-    params = ", ".join(f"{k} {v}" for k, v in d.items() if k not in skip)
-    n = market.spec().n_firms
-    return f"{d['model'].capitalize()} competition, {d['demand']} demand ({params}), {n} firms"
-
-
-def render(report, market, tp=None) -> str:
-
-
-    st = report.stage
-    ms = st.market
-    n = ms.n_firms
-    act = "quantity" if ms.quantity_setting else "price"
-    lines = [f"Market: {_describe_market(market)}",
-             f"Agreement: {_AGREEMENT_NAMES.get(st.agreement, st.agreement)}", ""]
-    def per_firm(values, i):
-        own = ms.products_of(i)
-        return values[own[0]] if own.size == 1 else ", ".join(fmt_num(values[k]) for k in own)
-
-    rows = []
-    for i in range(n):
-        caps = np.where(np.isfinite(ms.capacity), ms.capacity, np.nan)
-        rows.append([f"firm {i + 1}", per_firm(ms.cost, i), per_firm(caps, i),
-                     per_firm(st.collusive.actions, i), per_firm(st.deviation_actions, i), per_firm(st.nash.actions, i),
-                     st.collusive.firm_profits[i], st.deviation_profits[i], st.nash.firm_profits[i],
-                     st.minmax_profits[i]])
-    lines.append(table(["", "cost", "capacity", f"collusive {act}", f"deviation {act}", f"Nash {act}",
-                        "collusive profit", "deviation profit", "Nash profit", "minmax"], rows))
-    lines.append("")
-    lines.append("Critical discount factors ('-': not sustainable at any discount factor below one)")
-    hdr = ["scheme", "market", "binding"] + [f"firm {i + 1}" for i in range(n)]
-    trows = [["grim trigger", report.grim.market, f"firm {report.grim.binding + 1}", *report.grim.per_firm]]
-    for f in report.finite:
-        trows.append([f"Nash reversion, T={f.T}", f.market, f"firm {f.binding + 1}", *f.per_firm])
-    sc = report.stick_carrot
-    trows.append(["stick and carrot", sc.market, f"firm {sc.binding + 1}", *sc.per_firm])
-    lines.append(table(hdr, trows))
-    if sc.sustainable:
-        lines.append(f"  stick and carrot: one period at common {act} {fmt_num(sc.punishment_level)} "
-                     f"(profits {', '.join(fmt_num(x) for x in sc.punishment_profits)}), "
-                     f"binding constraint: {sc.binding_constraint}")
-    if sc.weaker_than_grim:
-        lines.append("  the best one-period stick is weaker than Nash reversion forever here (capacities or the "
-                     "price floor limit how harsh one period can be)")
-    best = report.best
-    if best.sustainable:
-        names = {"grim": "grim trigger", "stick_carrot": "stick and carrot"}
-        name = names.get(best.scheme, f"Nash reversion, T={best.T}")
-        lines.append(f"  lowest threshold: {name}, {fmt_num(best.market)}")
-    if report.partial:
-        lines.append("")
-        lines.append("Partial collusion: most profitable sustainable outcome on the path from Nash (0) to the "
-                     "agreement (1)")
-        prow = []
-        for p in report.partial:
-            names = {"grim": "grim trigger", "stick_carrot": "stick and carrot"}
-            name = names.get(p.scheme, f"Nash reversion, T={p.T}")
-            prow.append([fmt_num(p.delta), name, p.weight, p.profit_gain, ", ".join(fmt_num(x) for x in p.actions)])
-        what = "quantities" if ms.quantity_setting else "prices"
-        lines.append(table(["delta", "scheme", "path weight", "profit gain", what], prow, "llrrl"))
-    if tp:
-        lines.append("")
-        lines.append(f"Trigger-price equilibrium (Green and Porter, 1984), {tp[0].noise} shock, "
-                     f"sigma {fmt_num(tp[0].sigma)}")
-        rows = [[fmt_num(s.delta), s.quantity, s.trigger, "forever" if s.T is None else s.T, s.war_probability,
-                 s.expected_collusive_spell, s.war_share, s.value, s.nash_value] for s in tp]
-        lines.append(table(["delta", f"{act} per firm", "trigger price", "war length", "war probability",
-                            "mean collusive spell", "long-run war share", "value", "Nash value"], rows))
-    lines.append("")
-    lines.append(CAUTION)
-    return "\n".join(lines)
-
-
-_AGREEMENT_NAMES = {
-    "joint": "joint-profit maximum",
-    "symmetric": "best symmetric outcome",
-    "proportional": "quantities proportional to static Nash",
-    "given": "actions given by the user",
-}

@@ -6,12 +6,12 @@ import argparse
 import os
 
 from sim.cli._common import emit, parse_number
-from sim.cli.thresholds import _describe_market
 from sim.core.errors import InputError
 from sim.core.jsonutil import dumps
 from sim.core.parallel import check_threads
 from sim.core.text import CAUTION, fmt_num, table
 from sim.core.tomlfile import read_toml
+from sim.evidence.thresholds import describe_market
 from sim.evidence.tournament import tournament_figures, tournament_json, write_tables
 from sim.runner.kinds import CellContext
 from sim.tournament.roundrobin import (
@@ -135,7 +135,7 @@ def render(res, evo, cfg) -> str:
     pct = f"{100 * s['confidence']:g}%"
     score = res.score
     sname = SCORE_NAMES[score]
-    lines = [f"Market: {_describe_market(cfg['market'])}"]
+    lines = [f"Market: {describe_market(cfg['market'].to_dict(), cfg['market'].spec().n_firms)}"]
     shock = "no demand shock" if mon["sigma"] == 0 else f"{mon['noise']} demand shock, sigma {fmt_num(mon['sigma'])}"
     lines.append(f"Monitoring: {mon['signal']}; {shock}; perception error {fmt_num(mon['perception_error'])}; "
                  f"implementation error {fmt_num(mon['implementation_error'])}")

@@ -38,7 +38,6 @@ from __future__ import annotations
 import base64
 import hashlib
 import html
-import io
 import json
 import math
 import re
@@ -52,6 +51,7 @@ from typing import Any
 from sim.core.files import REPLACED, STAGED, clear_leftovers
 from sim.core.provenance import package_versions, platform_info
 from sim.core.text import CAUTION, fmt_num
+from sim.evidence.render import figure_bytes, pyplot
 from sim.runner.store import csv_text
 
 __all__ = ["Bundle", "clear_leftovers", "holds_bundle", "latex_table", "markdown_table"]
@@ -247,20 +247,23 @@ class Bundle:
             self.blocks.append(_Block("table", {"name": name, "headers": headers, "rows": rows, "caption": caption,
                                                 "digits": digits, "max_rows": max_rows, "note": note}))
 
-    def figure(self, name: str, fig, caption: str, dpi: int = 150) -> None:
-        """Add a matplotlib figure: ``figures/NAME.png`` and ``figures/NAME.pdf`` (the figure is closed)."""
-        import matplotlib.pyplot as plt
+    def figure(self, name: str, fig, caption: str) -> None:
+        """Add a matplotlib figure: ``figures/NAME.png`` and ``figures/NAME.pdf`` (the figure is closed).
 
+        Parameters
+        ----------
+        name : str
+            File stem.
+        fig : matplotlib.figure.Figure
+        caption : str
+            What the figure shows and what to read from it.
+        """
         self._claim(name, "figure")
-        png = io.BytesIO()
-        fig.savefig(png, format="png", dpi=dpi, metadata={"Software": None})
-        pdf = io.BytesIO()
-        fig.savefig(pdf, format="pdf", metadata={"CreationDate": None, "ModDate": None, "Producer": None,
-                                                 "Creator": None})
-        plt.close(fig)
-        self._write(f"figures/{name}.png", png.getvalue())
-        self._write(f"figures/{name}.pdf", pdf.getvalue())
-        self.blocks.append(_Block("figure", {"name": name, "caption": caption, "png": png.getvalue()}))
+        png, pdf = figure_bytes(fig, "png"), figure_bytes(fig, "pdf")
+        pyplot().close(fig)
+        self._write(f"figures/{name}.png", png)
+        self._write(f"figures/{name}.pdf", pdf)
+        self.blocks.append(_Block("figure", {"name": name, "caption": caption, "png": png}))
 
     def attach(self, relpath: str, data: bytes) -> None:
         """Add a file of any kind (e.g. a copy of the experiment file) at ``relpath`` inside the bundle."""

@@ -27,6 +27,7 @@ from sim.core.errors import InputError
 from sim.core.text import fmt_num
 from sim.evidence.bundle import Bundle, clear_leftovers, holds_bundle
 from sim.evidence.figures import SweepData, _plt
+from sim.evidence.render import renderer_for
 from sim.runner.experiment import FigureSpec, figure_name, leading_comment
 from sim.runner.runs import (
     ARRAYS_FILE,
@@ -45,41 +46,36 @@ from sim.runner.runs import (
 )
 from sim.runner.store import STORE_FILE
 
-__all__ = ["register_renderer", "write_report"]
+__all__ = ["bundle_hook", "write_report"]
 
-#: kind name -> "module:function" (imported on first use) or the function itself: the kind's own account of a run
-#: in its evidence bundle, ``render(run, bundle) -> list of str or None`` (see :func:`register_renderer`)
-RENDERERS: dict = {
+#: the bundle accounts of kinds whose renderers do not give one yet (kind name -> "module:function")
+_BUNDLE_HOOKS = {
     "tournament": "sim.evidence.tournament:kind_report",
     "assess": "sim.evidence.assess:kind_report",
 }
 
 
-def register_renderer(kind: str, render) -> None:
-    """Give the experiment kind ``kind`` its own account in evidence bundles.
+def bundle_hook(kind):
+    """The kind's own account of a run in its bundle: its renderer's ``bundle``, else a hook of this module, else
+    the kind's ``report`` (plugins); None for the generic sections.
 
     Parameters
     ----------
-    kind : str
-        The kind's name (``experiment.kind``).
-    render : callable
-        ``render(run, bundle)``: ``run`` is the open :class:`sim.runner.runs.RunFolder` (everything is read
-        from its stored rows, never recomputed), ``bundle`` the :class:`sim.evidence.bundle.Bundle` being
-        written. It may return lines added to "Reproducing these numbers", set ``bundle.title`` and add
-        entries to ``bundle.manifest``. The results table, failed cells, reproduction, assumptions and caution
-        follow as for every kind.
+    kind : sim.runner.kinds.Kind
+
+    Returns
+    -------
+    callable or None
+        ``hook(run, bundle) -> list of str or None``.
     """
-    RENDERERS[str(kind)] = render
-
-
-def renderer_of(kind):
-    """The renderer of ``kind`` (a :class:`sim.runner.kinds.Kind`): the registered one, else the kind's own
-    ``report`` hook (plugins), else None (the generic sections)."""
-    r = RENDERERS.get(kind.name)
-    if isinstance(r, str):
-        mod, _, attr = r.partition(":")
-        r = RENDERERS[kind.name] = getattr(importlib.import_module(mod), attr)
-    return r if r is not None else kind.report
+    r = renderer_for(kind.name)
+    if r is not None and r.bundle is not None:
+        return r.bundle
+    hook = _BUNDLE_HOOKS.get(kind.name)
+    if isinstance(hook, str):
+        mod, _, attr = hook.partition(":")
+        hook = _BUNDLE_HOOKS[kind.name] = getattr(importlib.import_module(mod), attr)
+    return hook if hook is not None else kind.report
 
 
 def _ci(row, m) -> str:
@@ -171,10 +167,15 @@ def _draw(spec, data):
                          title=spec.title, at=spec.fixed())
 
 
-def _single_cell_figures(b, exp, row) -> None:
-    """Figures of a run without a sweep, from the cell's stored arrays."""
-
-
+def _single_cell_figures(b, rf, kind, row) -> None:
+    """Figures of a run without a sweep: the analysis's own figures, drawn from the stored result by its renderer
+    (the figures its command plots); without a renderer, from the cell's stored arrays."""
+    r = renderer_for(kind.name)
+    result = rf.result(row.cell) if r is not None and r.figures is not None else None
+    if result is not None:
+        for d in r.figures(result):
+            b.figure(d.name, d.figure, d.caption)
+        return
     a = row.arrays
     if "period" in a and "collusive_by_period" in a:
         plt = _plt()
@@ -287,7 +288,7 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
     b.paragraph(f"Experiment `{exp.name}` (kind `{exp.kind}`), run folder `{folder.name}`; {counts['total']} cell"
                 f"{'s' if counts['total'] != 1 else ''}, {counts['ok']} finished, {counts['failed']} failed.")
     more = []  # the kind's own lines on reproducing its numbers
-    render = renderer_of(kind)
+    render = bundle_hook(kind)
     if render is not None:
         # the kind's own account of its results, read from the stored rows; the closing sections follow
         more = list(render(rf, b) or [])
@@ -327,7 +328,7 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
                 continue
             b.figure(figure_name(spec, i), _draw(spec, data), _caption(spec))
         if not exp.parameters and rows and rows[0].status == "ok":
-            _single_cell_figures(b, exp, rows[0])
+            _single_cell_figures(b, rf, kind, rows[0])
 
         if exp.parameters:
             hdr = ["cell", *[p.path for p in exp.parameters]]

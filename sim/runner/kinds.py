@@ -45,6 +45,7 @@ import numpy as np
 
 from sim.core.errors import InputError
 from sim.core.jsonutil import jsonable
+from sim.core.records import to_plain
 from sim.core.tomlfile import file_sha256
 
 __all__ = [
@@ -111,10 +112,15 @@ class CellResult:
         Optional small arrays for figures (curves over periods, survival curves); a value that is a
         dict is a JSON document the kind's ``report`` reads (plain data: numbers, strings, booleans,
         None, lists and dicts; nan and inf are stored as None, dict keys come back sorted).
+    result : object, optional
+        The analysis's result object (a :class:`sim.core.records.Record`): stored as the cell's document
+        (:meth:`sim.runner.runs.RunFolder.result`), from which the evidence layer draws what a command prints
+        and plots, so that a run folder's bundle shows what the command showed.
     """
 
     metrics: dict
     arrays: dict = field(default_factory=dict)
+    result: Any = None
 
 
 @dataclass(frozen=True)
@@ -149,6 +155,8 @@ class Kind:
         The model's assumptions and limitations, stated in the report.
     summary : str
         One line: what a cell of this kind computes.
+    result_type : type, optional
+        The class of the kind's result objects (``from_dict`` rebuilds a stored cell's result).
     report : callable, optional
         ``report(run, bundle)``: the kind's own account of a finished run in its evidence bundle, in
         place of the generic sections (what the experiment asks, setup, sweep, figures, result tables).
@@ -173,6 +181,7 @@ class Kind:
     describe: Callable[[dict], list] | None = None
     assumptions: tuple = ()
     summary: str = ""
+    result_type: type | None = None
     report: Callable[[Any, Any], None] | None = None
 
     def seed_of(self, doc: dict) -> int | None:
@@ -237,6 +246,16 @@ def clean_metrics(metrics: Mapping) -> dict:
         else:
             raise TypeError(f"metric {k!r} is not a number: {v!r}")
     return out
+
+
+def clean_document(result) -> dict | None:
+    """The JSON document of a cell's result object (None without one); what JSON cannot hold fails here, in the
+    cell, not in the store."""
+    if result is None:
+        return None
+    doc = to_plain(result)
+    json.dumps(doc, allow_nan=False)
+    return doc
 
 
 def clean_arrays(arrays: Mapping) -> dict:

@@ -212,6 +212,16 @@ class RunFolder:
         with _reading(self.key, self.path):
             return self.store.attempts()
 
+    def result(self, cell: int):
+        """The result object of cell ``cell`` (counted from 0), rebuilt from its stored document by the kind's
+        ``result_type``; None for a failed cell or a kind without result objects."""
+        kind = self.experiment.kind_spec()
+        if kind.result_type is None:
+            return None
+        with _reading(self.key, self.path):
+            doc = self.store.document(cell)
+        return None if doc is None else kind.result_type.from_dict(doc)
+
     def table(self) -> tuple[list[str], list[list]]:
         """Columns and rows of the results table (as in ``results.csv``)."""
 
@@ -693,7 +703,7 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
                 values, labels, seed = seeds.get(i) or _cell_info(exp, i)
                 store.record(CellRow(i, res["status"], values, labels, seed, res["error"], res["metrics"],
                                      res["arrays"], res["started"], res["finished"], res["seconds"], res["worker"],
-                                     res["detail"], attempt))
+                                     res["detail"], attempt), res.get("document"))
                 ran += 1
                 bar.update(res["status"] != "ok")
 

@@ -52,6 +52,10 @@ CREATE TABLE IF NOT EXISTS cells (
     worker TEXT,
     attempt INTEGER
 );
+CREATE TABLE IF NOT EXISTS documents (
+    cell INTEGER PRIMARY KEY REFERENCES cells (cell),
+    doc TEXT NOT NULL
+);
 CREATE TABLE IF NOT EXISTS attempts (
     attempt INTEGER PRIMARY KEY,
     started REAL NOT NULL,
@@ -204,16 +208,35 @@ class Store:
 
     # -- cells -------------------------------------------------------------------------------------
 
-    def record(self, row: CellRow) -> None:
-        """Store one finished cell in its own committed transaction. A cell already stored is kept (the
-        first result wins; a second, identical computation can only come from a duplicate submission)."""
-        self.con.execute(
-            "INSERT OR IGNORE INTO cells (cell, status, params, labels, seed, error, detail, metrics, arrays, started, "
-            "finished, seconds, worker, attempt) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-            (int(row.cell), row.status, _dumps(row.params), _dumps(row.labels), row.seed, row.error, row.detail,
-             _dumps(row.metrics), _dumps(row.arrays), row.started, row.finished, row.seconds, row.worker,
-             row.attempt),
-        )
+    def record(self, row: CellRow, document: dict | None = None) -> None:
+        """Store one finished cell (and its result document, if any) in its own committed transaction. A cell
+        already stored is kept (the first result wins; a second, identical computation can only come from a
+        duplicate submission)."""
+        self.con.execute("BEGIN")
+        try:
+            cur = self.con.execute(
+                "INSERT OR IGNORE INTO cells (cell, status, params, labels, seed, error, detail, metrics, arrays, "
+                "started, finished, seconds, worker, attempt) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                (int(row.cell), row.status, _dumps(row.params), _dumps(row.labels), row.seed, row.error, row.detail,
+                 _dumps(row.metrics), _dumps(row.arrays), row.started, row.finished, row.seconds, row.worker,
+                 row.attempt),
+            )
+            if document is not None and cur.rowcount:
+                self.con.execute("INSERT OR IGNORE INTO documents (cell, doc) VALUES (?, ?)",
+                                 (int(row.cell), _dumps(document)))
+            self.con.execute("COMMIT")
+        except BaseException:
+            self.con.execute("ROLLBACK")
+            raise
+
+    def document(self, cell: int) -> dict | None:
+        """The result document of cell ``cell`` (counted from 0), or None (a failed cell, or a kind without
+        result objects)."""
+        try:
+            r = self.con.execute("SELECT doc FROM documents WHERE cell = ?", (int(cell),)).fetchone()
+        except sqlite3.OperationalError:  # a store written before documents were kept
+            return None
+        return None if r is None else _loads(r[0], f"the result document of cell {int(cell) + 1}")
 
     def done(self) -> set[int]:
         return {int(c) for (c,) in self.con.execute("SELECT cell FROM cells")}

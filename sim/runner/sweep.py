@@ -51,6 +51,7 @@ from sim.core.parallel import usable_cores
 from sim.runner.kinds import (
     CellContext,
     clean_arrays,
+    clean_document,
     clean_metrics,
     get_kind,
     load_entry_points,
@@ -99,7 +100,7 @@ def run_payload(payload: dict) -> dict:
 
     started = time.time()
     out = {"cell": payload["index"], "started": started, "worker": f"{socket.gethostname()}:{os.getpid()}",
-           "metrics": {}, "arrays": {}, "error": None, "detail": None, "seconds": None}
+           "metrics": {}, "arrays": {}, "document": None, "error": None, "detail": None, "seconds": None}
     try:
         _ensure_plugins(payload.get("plugins"))
         kind = get_kind(payload["kind"])
@@ -111,6 +112,7 @@ def run_payload(payload: dict) -> dict:
         out["seconds"] = time.perf_counter() - t0
         out["metrics"] = clean_metrics(res.metrics)
         out["arrays"] = clean_arrays(res.arrays or {})
+        out["document"] = clean_document(getattr(res, "result", None))
         out["status"] = "ok"
     except (KeyboardInterrupt, SystemExit):
         raise
@@ -119,7 +121,7 @@ def run_payload(payload: dict) -> dict:
         out["status"] = "failed"
         out["error"] = f"{type(exc).__name__}: {msg}" if msg else type(exc).__name__
         out["detail"] = traceback.format_exc(limit=20)
-        out["metrics"], out["arrays"] = {}, {}
+        out["metrics"], out["arrays"], out["document"] = {}, {}, None
     out["finished"] = time.time()
     return out
 
@@ -208,8 +210,8 @@ class _Feed:
 
 def _died(i: int, why: str | None = None) -> dict:
     now = time.time()
-    return {"cell": i, "status": "failed", "metrics": {}, "arrays": {}, "started": now, "finished": now,
-            "seconds": None, "worker": None, "detail": why,
+    return {"cell": i, "status": "failed", "metrics": {}, "arrays": {}, "document": None, "started": now,
+            "finished": now, "seconds": None, "worker": None, "detail": why,
             "error": "WorkerDied: the worker process running this cell died"
                      + (f" ({why.splitlines()[0][:300]})" if why else "")}
 

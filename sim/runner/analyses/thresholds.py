@@ -10,8 +10,7 @@ from sim.models.market import market_from_dict
 from sim.models.monitoring import monitoring_from_dict
 from sim.runner.analyses.common import GENERAL_ASSUMPTIONS, collusion_of, describe_market, nan_if_none, stage_of
 from sim.runner.kinds import CellContext, CellResult, Kind
-from sim.theory.thresholds import critical_discount_factors
-from sim.theory.trigger_price import trigger_price_equilibrium
+from sim.theory.analysis import ThresholdsResult, ThresholdsSpec, thresholds_analysis
 
 _TH_KEYS = ("punishments", "deltas")
 
@@ -41,8 +40,10 @@ def _prepare_thresholds(doc: dict) -> dict:
                                               "Cournot market; use signal = 'perfect' here")
     # the stage game checks the agreement (given actions: their number and range) before any work starts
     stage_of(ms, doc["market"], agreement, actions)
-    return {"market": market, "n_firms": ms.n_firms, "agreement": agreement, "actions": actions, "punishments": Ts,
-            "deltas": ds, "monitoring": mon, "trigger_price": trigger}
+    spec = ThresholdsSpec(market, agreement, actions, tuple(Ts), tuple(ds), mon["noise"] if trigger else None,
+                          float(mon["sigma"]))
+    return {"spec": spec, "market": market, "n_firms": ms.n_firms, "agreement": agreement, "actions": actions,
+            "punishments": Ts, "deltas": ds, "monitoring": mon, "trigger_price": trigger}
 
 
 def _threshold_names(cfg: dict) -> list[str]:
@@ -71,53 +72,61 @@ _TP_FIELDS = ("quantity", "trigger", "war_length", "war_probability", "expected_
 
 
 def _run_thresholds(cfg: dict, ctx: CellContext) -> CellResult:
+    res = thresholds_analysis(cfg["spec"])
+    return CellResult(threshold_metrics(res), result=res)
 
-    rep = critical_discount_factors(cfg["market"], punishments=cfg["punishments"], deltas=cfg["deltas"],
-                                    agreement=cfg["agreement"], actions=cfg["actions"])
-    st = rep.stage
-    n = cfg["n_firms"]
+
+def threshold_metrics(res: ThresholdsResult) -> dict:
+    """The flat metrics of a thresholds result (the columns of ``results.csv``).
+
+    Parameters
+    ----------
+    res : ThresholdsResult
+
+    Returns
+    -------
+    dict of str to float
+    """
+    rep = res.report
+    n = res.n_firms
     m: dict = {"n_firms": n}
-    for who, vals in (("collusive", st.collusive.firm_profits), ("deviation", st.deviation_profits),
-                      ("nash", st.nash.firm_profits)):
+    for who in ("collusive", "deviation", "nash"):
         for i in range(n):
-            m[f"profit.{who}.firm{i + 1}"] = float(vals[i])
-    m["threshold.grim"] = rep.grim.market
-    m["binding.grim"] = rep.grim.binding + 1
+            m[f"profit.{who}.firm{i + 1}"] = float(rep["profits"][who][i])
+    th = rep["thresholds"]
+    m["threshold.grim"] = nan_if_none(th["grim"]["market"])
+    m["binding.grim"] = th["grim"]["binding_firm"]
     for i in range(n):
-        m[f"threshold.grim.firm{i + 1}"] = float(rep.grim.per_firm[i])
-    for j, f in enumerate(rep.finite):
-        m[f"punishment[{j + 1}]"] = f.T
-        m[f"threshold.finite[{j + 1}]"] = f.market
-        m[f"binding.finite[{j + 1}]"] = f.binding + 1
-    sc = rep.stick_carrot
-    m["threshold.stick_carrot"] = sc.market
-    m["binding.stick_carrot"] = sc.binding + 1
-    m["punishment_level.stick_carrot"] = sc.punishment_level
+        m[f"threshold.grim.firm{i + 1}"] = nan_if_none(th["grim"]["per_firm"][i])
+    for j, f in enumerate(th["finite"]):
+        m[f"punishment[{j + 1}]"] = f["T"]
+        m[f"threshold.finite[{j + 1}]"] = nan_if_none(f["market"])
+        m[f"binding.finite[{j + 1}]"] = f["binding_firm"]
+    sc = th["stick_carrot"]
+    m["threshold.stick_carrot"] = nan_if_none(sc["market"])
+    m["binding.stick_carrot"] = sc["binding_firm"]
+    m["punishment_level.stick_carrot"] = nan_if_none(sc["punishment_action"])
     for i in range(n):
-        m[f"threshold.stick_carrot.firm{i + 1}"] = float(sc.per_firm[i])
+        m[f"threshold.stick_carrot.firm{i + 1}"] = nan_if_none(sc["per_firm"][i])
     by_delta: dict = {}
-    for p in rep.partial:
-        by_delta.setdefault(p.delta, []).append(p)
-    for j, d in enumerate(cfg["deltas"]):
+    for p in rep["partial_collusion"]:
+        by_delta.setdefault(p["delta"], []).append(p)
+    for j, d in enumerate(res.deltas):
         m[f"delta[{j + 1}]"] = d
         fin = 0
         for p in by_delta.get(d, []):
-            if p.scheme == "finite":
+            if p["scheme"] == "finite":
                 fin += 1
-                m[f"partial_gain.finite[{fin}][{j + 1}]"] = p.profit_gain
+                m[f"partial_gain.finite[{fin}][{j + 1}]"] = nan_if_none(p["profit_gain"])
             else:
-                m[f"partial_gain.{p.scheme}[{j + 1}]"] = p.profit_gain
-    if cfg["trigger_price"]:
-
-        mon = cfg["monitoring"]
-        for j, d in enumerate(cfg["deltas"]):
-            s = trigger_price_equilibrium(cfg["market"], d, mon["noise"], mon["sigma"])
-            vals = {"quantity": s.quantity, "trigger": s.trigger, "war_length": nan_if_none(s.T),
-                    "war_probability": s.war_probability, "expected_collusive_spell": s.expected_collusive_spell,
-                    "war_share": s.war_share, "value": s.value, "nash_value": s.nash_value}
-            for x in _TP_FIELDS:
-                m[f"trigger_price.{x}[{j + 1}]"] = vals[x]
-    return CellResult({k: nan_if_none(v) if v is None else v for k, v in m.items()})
+                m[f"partial_gain.{p['scheme']}[{j + 1}]"] = nan_if_none(p["profit_gain"])
+    for j, s in enumerate(res.trigger_price or ()):
+        vals = {"quantity": s["quantity"], "trigger": s["trigger"], "war_length": s["T"],
+                "war_probability": s["war_probability"], "expected_collusive_spell": s["expected_collusive_spell"],
+                "war_share": s["war_share"], "value": s["value"], "nash_value": s["nash_value"]}
+        for x in _TP_FIELDS:
+            m[f"trigger_price.{x}[{j + 1}]"] = nan_if_none(vals[x])
+    return m
 
 
 def _describe_thresholds(doc: dict) -> list[str]:
@@ -135,6 +144,7 @@ KIND = Kind(
     prepare=_prepare_thresholds,
     run=_run_thresholds,
     metric_names=_threshold_names,
+    result_type=ThresholdsResult,
     seed_key=None,
     headline=("threshold.grim", "threshold.stick_carrot", "threshold.finite[1]"),
     describe=_describe_thresholds,

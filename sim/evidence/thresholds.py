@@ -1,0 +1,182 @@
+"""How a thresholds result is shown: the terminal report, the JSON document and the figure (see
+:mod:`sim.evidence.render`)."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from sim.core.text import CAUTION, fmt_num, table
+from sim.evidence.render import Drawn, Renderer, pyplot
+from sim.theory.analysis import ThresholdsResult
+
+__all__ = ["AGREEMENT_NAMES", "RENDERER", "as_json", "console", "describe_market", "figures"]
+
+AGREEMENT_NAMES = {
+    "joint": "joint-profit maximum",
+    "symmetric": "best symmetric outcome",
+    "proportional": "quantities proportional to static Nash",
+    "given": "actions given by the user",
+}
+_SCHEME_NAMES = {"grim": "grim trigger", "stick_carrot": "stick and carrot"}
+
+
+def describe_market(market: dict, n_firms: int) -> str:
+    """One line describing a market's settings.
+
+    Parameters
+    ----------
+    market : dict
+        :meth:`sim.Market.to_dict`.
+    n_firms : int
+
+    Returns
+    -------
+    str
+    """
+    skip = {"model", "demand", "cost", "n_firms", "capacity"}
+    params = ", ".join(f"{k} {v}" for k, v in market.items() if k not in skip)
+    return f"{market['model'].capitalize()} competition, {market['demand']} demand ({params}), {n_firms} firms"
+
+
+def _scheme_name(scheme: str, T) -> str:
+    return _SCHEME_NAMES.get(scheme, f"Nash reversion, T={T}")
+
+
+def _firm_cells(res: ThresholdsResult, values, i: int):
+    own = [k for k, o in enumerate(res.products["owner"]) if o == i + 1]
+    if len(own) == 1:
+        return values[own[0]]
+    return ", ".join(fmt_num(values[k]) for k in own)
+
+
+def _stage_table(res: ThresholdsResult) -> str:
+    rep = res.report
+    act = "quantity" if res.products["quantity_setting"] else "price"
+    rows = []
+    for i in range(res.n_firms):
+        rows.append([f"firm {i + 1}", _firm_cells(res, res.products["cost"], i),
+                     _firm_cells(res, [np.nan if c is None else c for c in res.products["capacity"]], i),
+                     _firm_cells(res, rep["actions"]["collusive"], i), _firm_cells(res, rep["actions"]["deviation"], i),
+                     _firm_cells(res, rep["actions"]["nash"], i), rep["profits"]["collusive"][i],
+                     rep["profits"]["deviation"][i], rep["profits"]["nash"][i], rep["profits"]["minmax"][i]])
+    return table(["", "cost", "capacity", f"collusive {act}", f"deviation {act}", f"Nash {act}", "collusive profit",
+                  "deviation profit", "Nash profit", "minmax"], rows)
+
+
+def _threshold_lines(res: ThresholdsResult) -> list[str]:
+    th = res.report["thresholds"]
+    act = "quantity" if res.products["quantity_setting"] else "price"
+    lines = ["Critical discount factors ('-': not sustainable at any discount factor below one)"]
+    hdr = ["scheme", "market", "binding"] + [f"firm {i + 1}" for i in range(res.n_firms)]
+    rows = [[r["scheme"], r["market"], f"firm {r['binding_firm']}", *r["per_firm"]] for r in res.scheme_rows()]
+    lines.append(table(hdr, rows))
+    sc = th["stick_carrot"]
+    if sc["market"] is not None:
+        lines.append(f"  stick and carrot: one period at common {act} {fmt_num(sc['punishment_action'])} "
+                     f"(profits {', '.join(fmt_num(x) for x in sc['punishment_profits'])}), "
+                     f"binding constraint: {sc['binding_constraint']}")
+    if sc["weaker_than_grim"]:
+        lines.append("  the best one-period stick is weaker than Nash reversion forever here (capacities or the "
+                     "price floor limit how harsh one period can be)")
+    best = th["best"]
+    if best["market"] is not None:
+        lines.append(f"  lowest threshold: {_scheme_name(best['scheme'], best['T'])}, {fmt_num(best['market'])}")
+    return lines
+
+
+def _partial_lines(res: ThresholdsResult) -> list[str]:
+    part = res.report["partial_collusion"]
+    if not part:
+        return []
+    rows = [[fmt_num(p["delta"]), _scheme_name(p["scheme"], p.get("T")), p["weight"], p["profit_gain"],
+             ", ".join(fmt_num(x) for x in p["actions"])] for p in part]
+    what = "quantities" if res.products["quantity_setting"] else "prices"
+    return ["", "Partial collusion: most profitable sustainable outcome on the path from Nash (0) to the agreement (1)",
+            table(["delta", "scheme", "path weight", "profit gain", what], rows, "llrrl")]
+
+
+def _trigger_lines(res: ThresholdsResult) -> list[str]:
+    tp = res.trigger_price
+    if not tp:
+        return []
+    act = "quantity" if res.products["quantity_setting"] else "price"
+    rows = [[fmt_num(s["delta"]), s["quantity"], s["trigger"], "forever" if s["T"] is None else s["T"],
+             s["war_probability"], s["expected_collusive_spell"], s["war_share"], s["value"], s["nash_value"]]
+            for s in tp]
+    return ["", f"Trigger-price equilibrium (Green and Porter, 1984), {tp[0]['noise']} shock, "
+                f"sigma {fmt_num(tp[0]['sigma'])}",
+            table(["delta", f"{act} per firm", "trigger price", "war length", "war probability",
+                   "mean collusive spell", "long-run war share", "value", "Nash value"], rows)]
+
+
+def console(res: ThresholdsResult) -> str:
+    """The terminal report of a thresholds result.
+
+    Parameters
+    ----------
+    res : ThresholdsResult
+
+    Returns
+    -------
+    str
+    """
+    lines = [f"Market: {describe_market(res.market, res.n_firms)}",
+             f"Agreement: {AGREEMENT_NAMES.get(res.report['agreement'], res.report['agreement'])}", "",
+             _stage_table(res), ""]
+    lines += _threshold_lines(res) + _partial_lines(res) + _trigger_lines(res)
+    lines += ["", CAUTION]
+    return "\n".join(lines)
+
+
+def as_json(res: ThresholdsResult) -> dict:
+    """The ``--json`` document of a thresholds result: the report, the market, the trigger-price equilibria (if
+    any) and the caution.
+
+    Parameters
+    ----------
+    res : ThresholdsResult
+
+    Returns
+    -------
+    dict
+    """
+    out = dict(res.report)
+    out["market"] = res.market
+    if res.trigger_price is not None:
+        out["trigger_price"] = res.trigger_price
+    out["caution"] = CAUTION
+    return out
+
+
+def figures(res: ThresholdsResult) -> list[Drawn]:
+    """The critical discount factor of every firm under every scheme.
+
+    Parameters
+    ----------
+    res : ThresholdsResult
+
+    Returns
+    -------
+    list of Drawn
+    """
+    plt = pyplot()
+    rows = res.scheme_rows()
+    n = res.n_firms
+    fig, ax = plt.subplots(figsize=(6.3, 0.45 * len(rows) * max(1, min(n, 4)) + 1.2))
+    height = 0.8 / n
+    y = np.arange(len(rows))
+    for i in range(n):
+        vals = [np.nan if r["per_firm"][i] is None else r["per_firm"][i] for r in rows]
+        ax.barh(y + (i - (n - 1) / 2) * height, vals, height=height, label=f"firm {i + 1}")
+    ax.set_yticks(y, [r["scheme"] for r in rows])
+    ax.invert_yaxis()
+    ax.set_xlim(0, 1)
+    ax.set_xlabel("critical discount factor")
+    ax.legend(title="firm", loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
+    fig.tight_layout()
+    return [Drawn("thresholds", fig, "Critical discount factor of each firm under each punishment scheme: collusion "
+                                     "is sustainable at a discount factor at or above every firm's bar; a missing "
+                                     "bar means the firm cannot be held below one.")]
+
+
+RENDERER = Renderer(console=console, as_json=as_json, figures=figures)

@@ -1,0 +1,122 @@
+"""The thresholds analysis: one function from a validated specification to a result that is plain data.
+
+:func:`thresholds_analysis` solves the stage game of a market, every critical discount factor asked for
+(grim trigger, T-period Nash reversion, the best symmetric stick and carrot), partial collusion at the given
+discount factors and, under noisy monitoring, the trigger-price equilibrium (Green and Porter, 1984). Its
+:class:`ThresholdsResult` is what ``supergame thresholds`` prints, what a ``thresholds`` cell of a run stores
+and what the evidence bundle draws (:mod:`sim.evidence.thresholds`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from sim.core.records import Record
+from sim.theory.thresholds import critical_discount_factors
+from sim.theory.trigger_price import trigger_price_equilibrium
+
+__all__ = ["ThresholdsResult", "ThresholdsSpec", "thresholds_analysis"]
+
+
+@dataclass(frozen=True)
+class ThresholdsSpec:
+    """A validated thresholds question (built by the ``thresholds`` kind from an experiment's tables).
+
+    Attributes
+    ----------
+    market : sim.Market
+    agreement : str
+        ``"joint"``, ``"symmetric"``, ``"proportional"`` or ``"given"``.
+    actions : list of float or None
+        The agreed actions per product when ``agreement == "given"``.
+    punishments : tuple of int
+        Lengths T of Nash reversion.
+    deltas : tuple of float
+        Discount factors for partial collusion (and the trigger-price equilibrium).
+    noise : str or None
+        The demand shock of the trigger-price equilibrium (None: perfect monitoring, no such equilibrium).
+    sigma : float
+        Its standard deviation.
+    """
+
+    market: object
+    agreement: str
+    actions: list | None
+    punishments: tuple
+    deltas: tuple
+    noise: str | None = None
+    sigma: float = 0.0
+
+
+@dataclass(frozen=True)
+class ThresholdsResult(Record):
+    """Everything the thresholds analysis found, as plain data.
+
+    Attributes
+    ----------
+    market : dict
+        The market's settings (:meth:`sim.Market.to_dict`).
+    products : dict
+        Per product (lists of length n_products): ``cost``, ``capacity`` (None where unlimited) and ``owner``
+        (the owning firm, counted from 1); ``quantity_setting`` (bool) and ``n_firms``.
+    report : dict
+        :meth:`sim.ThresholdReport.to_dict`: the stage game's profits and actions, the thresholds of every
+        scheme with the binding firm, partial collusion and the binding firm's sensitivity.
+    punishments : list of int
+    deltas : list of float
+    trigger_price : list of dict or None
+        One trigger-price equilibrium per discount factor (:meth:`sim.TriggerPriceScheme.to_dict`).
+    """
+
+    market: dict
+    products: dict
+    report: dict
+    punishments: list
+    deltas: list
+    trigger_price: list | None = None
+
+    @property
+    def n_firms(self) -> int:
+        """The number of firms."""
+        return int(self.products["n_firms"])
+
+    def scheme_rows(self) -> list[dict]:
+        """One row per scheme: ``scheme`` (readable), ``key`` (``grim``, ``finite``, ``stick_carrot``), ``T``,
+        ``market``, ``binding_firm`` (from 1) and ``per_firm`` (None where the firm cannot be held).
+
+        Returns
+        -------
+        list of dict
+        """
+        th = self.report["thresholds"]
+        rows = [{"scheme": "grim trigger", "key": "grim", "T": None, **th["grim"]}]
+        rows += [{"scheme": f"Nash reversion, T={f['T']}", "key": "finite", **f} for f in th["finite"]]
+        rows.append({"scheme": "stick and carrot", "key": "stick_carrot", "T": None, **th["stick_carrot"]})
+        return rows
+
+
+def thresholds_analysis(spec: ThresholdsSpec) -> ThresholdsResult:
+    """Solve a thresholds question.
+
+    Parameters
+    ----------
+    spec : ThresholdsSpec
+
+    Returns
+    -------
+    ThresholdsResult
+    """
+    ms = spec.market.spec()
+    report = critical_discount_factors(spec.market, punishments=spec.punishments, deltas=spec.deltas,
+                                       agreement=spec.agreement, actions=spec.actions)
+    tp = None
+    if spec.noise is not None:
+        tp = [trigger_price_equilibrium(spec.market, d, spec.noise, spec.sigma).to_dict() for d in spec.deltas]
+    caps = [float(c) if np.isfinite(c) else None for c in ms.capacity]
+    products = {"cost": [float(c) for c in ms.cost], "capacity": caps, "owner": (ms.owner + 1).tolist(),
+                "quantity_setting": bool(ms.quantity_setting), "n_firms": int(ms.n_firms)}
+    return ThresholdsResult(market=spec.market.to_dict(), products=products, report=report.to_dict(),
+                            punishments=[int(t) for t in spec.punishments], deltas=[float(d) for d in spec.deltas],
+                            trigger_price=tp)
