@@ -1,0 +1,268 @@
+"""Verification of a run folder: hashes, rows, exports rebuilt from the store, cells re-run."""
+
+from __future__ import annotations
+
+import io
+import json
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+from sim.core.errors import InputError
+from sim.core.provenance import package_versions
+from sim.runner.exports import export_bytes
+from sim.runner.folder import (
+    CSV_FILE,
+    EXPERIMENT_COPY,
+    EXPORTS,
+    MANIFEST,
+    PARQUET_FILE,
+    REPORT_DIR,
+    RunFolder,
+    load_manifest,
+    output_files,
+    sha256_file,
+)
+from sim.runner.kinds import CellContext, clean_metrics
+from sim.runner.store import STORE_FILE
+
+# --------------------------------------------------------------------------------------------------
+# Verification
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass
+class VerifyResult:
+    """Outcome of :func:`verify_run`: ``ok`` and the individual checks (``(passed, text)`` pairs)."""
+
+    ok: bool
+    checks: list
+    cells: list
+
+    def to_dict(self) -> dict:
+        return {"ok": self.ok, "checks": [{"passed": p, "check": t} for p, t in self.checks], "cells": self.cells}
+
+
+def _same(a: float, b: float, rtol: float, atol: float) -> bool:
+    if math.isnan(a) or math.isnan(b):
+        return math.isnan(a) and math.isnan(b)
+    return abs(a - b) <= atol + rtol * abs(b)
+
+
+def sample_cells(ok_cells: list[int], n: int) -> list[int]:
+    """``n`` cells spread evenly over the finished ones, first and last included."""
+    if n <= 0 or not ok_cells:
+        return []
+    if n >= len(ok_cells):
+        return list(ok_cells)
+    if n == 1:
+        return [ok_cells[0]]
+    idx = sorted({round(k * (len(ok_cells) - 1) / (n - 1)) for k in range(n)})
+    return [ok_cells[i] for i in idx]
+
+
+def _same_parquet(path: Path, data: bytes) -> bool:
+    """The same table in two Parquet files written by different pyarrow versions."""
+
+    import pyarrow.parquet as pq
+
+    try:
+        return pq.read_table(str(path)).equals(pq.read_table(io.BytesIO(data)))
+    except Exception:  # a file that is not Parquet at all
+        return False
+
+
+def _check_files(folder: Path, checks: list) -> dict | None:
+    """Hashes of the files against the manifest; returns the manifest (None when it is missing or
+    unreadable, which is a failed check)."""
+    p = folder / MANIFEST
+    if not p.is_file():
+        checks.append((False, f"{MANIFEST} is missing: the run did not finish or the file was removed"))
+        return None
+    try:
+        man = load_manifest(p)
+    except ValueError as exc:
+        checks.append((False, f"{MANIFEST} cannot be read ({exc})"))
+        return None
+    listed = man["files"]
+    n_bad = 0
+    for rel, digest in sorted(listed.items()):
+        f = folder / rel
+        if not f.is_file():
+            checks.append((False, f"{rel}: listed in the manifest but missing"))
+            n_bad += 1
+        elif sha256_file(f) != digest:
+            checks.append((False, f"{rel}: SHA-256 differs from the manifest (the file was altered)"))
+            n_bad += 1
+    checks.append((n_bad == 0, f"{len(listed) - n_bad} of {len(listed)} files match their SHA-256"))
+    for rel in output_files(folder):
+        if rel not in listed:
+            checks.append((False, f"{rel}: in the folder but not in the manifest"))
+    return man
+
+
+def _check_rows(exp, rows: list, problems: list, checks: list) -> None:
+    """Every row is the cell it claims to be: the swept values, labels and seed of that cell."""
+    for msg in problems:
+        checks.append((False, f"results.sqlite: {msg}"))
+    bad = 0
+    for r in rows:
+        cell = exp.cell(r.cell)
+        seed = exp.seed(cell.doc)
+        if r.params != cell.values or r.labels != cell.labels or r.seed != seed:
+            what = ("swept values" if r.params != cell.values else "labels" if r.labels != cell.labels else "seed")
+            checks.append((False, f"results.sqlite: the row of {cell.describe()} holds other {what} than the "
+                                  "experiment file gives that cell (the store was edited)"))
+            bad += 1
+    n = exp.n_cells
+    missing = n - len(rows)
+    if missing > 0:
+        checks.append((False, f"{missing} of {n} cells have no result (finish the run with supergame run --resume)"))
+    elif not problems and not bad:
+        checks.append((True, f"the store has one row for each of the {n} cells, with the cell's swept values and "
+                             "seed"))
+
+
+def _check_exports(folder: Path, rf: RunFolder, man: dict | None, checks: list) -> None:
+    """The exports are what the store gives, byte for byte (Parquet: the same table when another pyarrow
+    version wrote it); the report's tables and record of the run's data agree with them."""
+    fresh = export_bytes(rf)
+    for rel in EXPORTS:
+        data, p = fresh[rel], folder / rel
+        if data is None:
+            if p.exists():
+                checks.append((True, f"{rel}: not rebuilt (pyarrow is not installed here); its SHA-256 was checked"))
+            continue
+        if not p.is_file():
+            checks.append((False, f"{rel}: missing (every cell has a row; the file should hold them)"))
+        elif p.read_bytes() == data:
+            checks.append((True, f"{rel} is what the store gives, byte for byte"))
+        elif rel == PARQUET_FILE and _same_parquet(p, data):
+            was = ((man or {}).get("packages") or {}).get("pyarrow")
+            checks.append((True, f"{rel} holds the table the store gives (written by pyarrow {was}, here "
+                                 f"{package_versions().get('pyarrow')})"))
+        else:
+            checks.append((False, f"{rel} differs from what the store gives: the file or the store was altered"))
+    rep = folder / REPORT_DIR
+    if (rep / MANIFEST).is_file():
+        try:
+            rman = json.loads((rep / MANIFEST).read_text(encoding="utf-8"))
+            run_data = rman.get("run_data") or {}
+        except (ValueError, AttributeError) as exc:
+            checks.append((False, f"{REPORT_DIR}/{MANIFEST} cannot be read ({exc})"))
+            return
+        stale = [rel[3:] for rel, digest in sorted(run_data.items())
+                 if rel.startswith("../") and (not (folder / rel[3:]).is_file()
+                                               or sha256_file(folder / rel[3:]) != digest)]
+        if stale:
+            checks.append((False, f"{REPORT_DIR}/ was written from other run data ({', '.join(stale)} changed since); "
+                                  "write it again with supergame report"))
+        tab = rep / "tables" / CSV_FILE
+        if tab.is_file() and tab.read_bytes() != fresh[CSV_FILE]:
+            checks.append((False, f"{REPORT_DIR}/tables/{CSV_FILE} differs from what the store gives"))
+        elif not stale:
+            checks.append((True, f"{REPORT_DIR}/ was written from these results"))
+
+
+def _without_hint(message: str) -> str:
+    """An error message without its pointer to supergame verify (verify is what is running)."""
+    return message.split("; supergame verify ")[0]
+
+
+def verify_run(folder, sample: int = 3, cells=None, rtol: float = 1e-9, atol: float = 1e-12,
+               threads: int = 1) -> VerifyResult:
+    """Check a run folder: every file's SHA-256 against the manifest; every stored row against the cell
+    it claims to be; the exports (and the report's copy of the results table) against what the store
+    gives, byte for byte; then re-run a sample of cells and compare every metric with the store
+    (relative tolerance ``rtol``; nan must stay nan). A damaged folder (an unreadable store, manifest or
+    experiment copy) is a failed check, not an error.
+
+    Parameters
+    ----------
+    folder : path-like
+    sample : int
+        Cells to re-run, spread evenly over the finished cells (0: no re-run).
+    cells : sequence of int, optional
+        Re-run these cells (numbers counted from 1, as in the exports) instead of a sample.
+
+    Raises
+    ------
+    InputError
+        ``RUN_DIR`` when the folder is not a run folder at all; ``--cells`` for a cell without a result.
+    """
+
+    folder = Path(folder)
+    if not folder.is_dir() or not any((folder / f).exists() for f in (STORE_FILE, EXPERIMENT_COPY, MANIFEST)):
+        raise InputError("RUN_DIR", f"{folder} is not a run folder (no {STORE_FILE}, {EXPERIMENT_COPY} or "
+                                    f"{MANIFEST}); give a folder made by supergame run")
+    checks: list = []
+    man = _check_files(folder, checks)
+    try:
+        rf = RunFolder(folder, check_copy=False)
+    except InputError as exc:
+        checks.append((False, _without_hint(exc.message)))
+        return VerifyResult(False, checks, [])
+    report = []
+    with rf:
+        same_copy = rf.copy_sha256 == rf.meta["sha256"]
+        checks.append((same_copy, f"{EXPERIMENT_COPY} has the SHA-256 recorded when the run started "
+                                  f"({rf.meta['sha256'][:12]}...)" if same_copy else
+                                  f"{EXPERIMENT_COPY} was changed after the run started (SHA-256 "
+                                  f"{rf.copy_sha256[:12]}..., recorded {rf.meta['sha256'][:12]}...)"))
+        problems: list = []
+        try:
+            rows = rf.rows(problems=problems)
+        except InputError as exc:
+            checks.append((False, _without_hint(exc.message)))
+            return VerifyResult(False, checks, [])
+        exp = rf.experiment
+        if same_copy:
+            _check_rows(exp, rows, problems, checks)
+        else:
+            for msg in problems:
+                checks.append((False, f"results.sqlite: {msg}"))
+        intact = same_copy and not problems and len(rows) == exp.n_cells
+        if intact:
+            _check_exports(folder, rf, man, checks)
+        by_cell = {r.cell: r for r in rows}
+        ok_cells = sorted(c for c, r in by_cell.items() if r.status == "ok")
+        if cells is not None:
+            chosen = []
+            for c in cells:
+                i = int(c) - 1
+                if i not in by_cell:
+                    raise InputError("--cells", f"cell {c} has no result in {folder} (cells 1 to {exp.n_cells})")
+                if by_cell[i].status != "ok":
+                    raise InputError("--cells", f"cell {c} failed in the run; there is no number to confirm")
+                chosen.append(i)
+        else:
+            chosen = sample_cells(ok_cells, sample)
+        if chosen and not same_copy:
+            checks.append((False, "no cell re-run: the experiment file is not the one the run started with"))
+            chosen = []
+        kind = exp.kind_spec()
+        for c in chosen:
+            cell = exp.cell(c)
+            cfg = kind.prepare(cell.doc)
+            res = kind.run(cfg, CellContext(index=c, threads=threads))
+            fresh = clean_metrics(res.metrics)
+            stored = by_cell[c].metrics
+            names = sorted(set(fresh) | set(stored))
+            bad = [k for k in names if not _same(fresh.get(k, math.nan), stored.get(k, math.nan), rtol, atol)]
+            worst = 0.0
+            for k in names:
+                a, b = fresh.get(k, math.nan), stored.get(k, math.nan)
+                if math.isfinite(a) and math.isfinite(b) and b != 0:
+                    worst = max(worst, abs(a - b) / abs(b))
+            exact = all((fresh.get(k) == stored.get(k)) or (math.isnan(fresh.get(k, math.nan)) and
+                                                             math.isnan(stored.get(k, math.nan))) for k in names)
+            report.append({"cell": cell.number, "metrics": len(names), "mismatched": bad,
+                           "max_relative_difference": worst, "identical": exact})
+            if bad:
+                k = bad[0]
+                checks.append((False, f"{cell.describe()}: {len(bad)} of {len(names)} metrics do not reproduce, e.g. "
+                                      f"{k} = {fresh.get(k)!r} now, {stored.get(k)!r} stored"))
+            else:
+                how = "identically" if exact else f"within a relative {worst:.1e}"
+                checks.append((True, f"{cell.describe()}: all {len(names)} metrics reproduce {how}"))
+    return VerifyResult(all(ok for ok, _ in checks), checks, report)
