@@ -40,6 +40,31 @@ COMMANDS = {
 }
 
 
+#: settings of the library's functions named in its errors -> the flag (or argument) that gives them here; the
+#: library speaks in key paths only, the command line translates (document keys such as ``market.cost`` are
+#: renamed by each command when a flag gave the value)
+ARGUMENT_OF = {"out": "--out", "resume": "--resume", "plugins": "--plugin", "retry_failed": "--retry-failed",
+               "file": "FILE", "folder": "RUN_DIR", "cells": "--cells", "workers": "--workers", "cluster": "--cluster",
+               "plot": "--plot", "threads": "--threads"}
+
+
+def flag_of(key: str) -> str:
+    """The command-line name of a library key (``out`` -> ``--out``); other keys unchanged.
+
+    Parameters
+    ----------
+    key : str
+
+    Returns
+    -------
+    str
+    """
+    head, bracket, rest = key.partition("[")
+    if head in ARGUMENT_OF:
+        return ARGUMENT_OF[head] + bracket + rest
+    return key
+
+
 class _Parser(argparse.ArgumentParser):
     """Argument parser whose errors are one line on stderr with exit status 2."""
 
@@ -99,7 +124,8 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return int(args._run(args) or 0)
     except InputError as exc:
-        print(f"supergame {args.command}: error: {exc}", file=sys.stderr)
+        where = f"{flag_of(exc.key)}: " if exc.key else ""
+        print(f"supergame {args.command}: error: {where}{exc.message}", file=sys.stderr)
         return 2
     except SolverError as exc:
         print(f"supergame {args.command}: computation failed: {exc}", file=sys.stderr)

@@ -117,6 +117,6 @@ def run(args) -> int:
         raise _renamed(exc, flags if args.file else flags | set(_FLAG_OF)) from None
     res = one.result
     if args.plot:
-        write_figures(RENDERER.figures(res), args.plot, key="--plot")
+        write_figures(RENDERER.figures(res), args.plot)
     emit(dumps(RENDERER.as_json(res), indent=2) if args.json else RENDERER.console(res))
     return 0

@@ -213,7 +213,7 @@ def _prepare_target(target: Path, default: bool) -> None:
     (replaced at the end); the run folder's own ``report/`` that does not is left over from a write
     that was stopped (by an earlier version, or by hand), and is removed."""
 
-    key = "RUN_DIR" if default else "--out"
+    key = "folder" if default else "out"
     clear_leftovers(target)
     if not target.exists():
         return
@@ -263,12 +263,12 @@ def _write(rf, folder: Path, out, update_manifest: bool) -> None:
     attempts = rf.attempts()
     meta = rf.meta
     if counts["missing"]:
-        raise InputError("RUN_DIR", f"{folder} is not finished: {counts['missing']} of {counts['total']} cells have no "
+        raise InputError("folder", f"{folder} is not finished: {counts['missing']} of {counts['total']} cells have no "
                                     f"result yet; finish it with supergame run --resume {folder}")
     target = Path(out) if out is not None else folder / REPORT_DIR
     inside = _inside(folder, target)
     if inside in ("", "."):
-        raise InputError("--out", f"{target} is the run folder itself; give a folder for the bundle")
+        raise InputError("out", f"{target} is the run folder itself; give a folder for the bundle")
     rewritten = (f"{inside}/",) if inside else ()
     if inside and update_manifest:
         # before anything is written: every other file of the folder must be as its manifest records

@@ -27,7 +27,7 @@ def _pyplot():
     return plt
 
 
-def _outdir(path, key: str = "--plot") -> Path:
+def _outdir(path, key: str = "plot") -> Path:
     d = Path(path)
     if d.exists() and not d.is_dir():
         raise InputError(key, f"{path} exists and is not a directory")

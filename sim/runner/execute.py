@@ -102,16 +102,16 @@ def _new_folder(out, name: str, root) -> Path:
     p = Path(out)
     if p.exists():
         if not p.is_dir():
-            raise InputError("--out", f"{out} exists and is not a folder")
+            raise InputError("out", f"{out} exists and is not a folder")
         if (p / STORE_FILE).exists():
-            raise InputError("--out", f"{out} already holds a run; continue it with --resume {out} or choose another "
-                                      f"folder")
+            raise InputError("out", f"{out} already holds a run; resume it (supergame run --resume {out}) or choose "
+                                    "another folder")
         if any(p.iterdir()):
-            raise InputError("--out", f"{out} exists and is not empty; choose a new or empty folder")
+            raise InputError("out", f"{out} exists and is not empty; choose a new or empty folder")
     return p
 
 
-def _experiment_of(experiment, key="FILE"):
+def _experiment_of(experiment, key="file"):
 
     if isinstance(experiment, Experiment):
         if experiment.text is None:
@@ -137,25 +137,25 @@ def _resume_target(resume, experiment, plugin_info: list) -> _Resumed:
 
     folder = Path(resume)
     if not folder.is_dir() or not (folder / STORE_FILE).is_file() or not (folder / EXPERIMENT_COPY).is_file():
-        raise InputError("--resume", f"{resume} is not a run folder (no {STORE_FILE} and {EXPERIMENT_COPY})")
+        raise InputError("resume", f"{resume} is not a run folder (no {STORE_FILE} and {EXPERIMENT_COPY})")
 
     # the plugins first: the copy of the experiment may need them to be read at all
-    with Store(folder / STORE_FILE, readonly=True) as st, reading("--resume", folder):
+    with Store(folder / STORE_FILE, readonly=True) as st, reading("resume", folder):
         recorded = st.meta().get("plugins") or []
     _check_plugins(recorded if isinstance(recorded, list) else [], plugin_info)
     clear_run_leftovers(folder)
-    with RunFolder(folder, key="--resume", check_copy=True, check_cells=experiment is None) as rf:
+    with RunFolder(folder, key="resume", check_copy=True, check_cells=experiment is None) as rf:
         meta = rf.meta
         exp = rf.experiment
         if experiment is not None:
             exp = _experiment_of(experiment)
             if exp.sha256 != meta["sha256"]:
-                raise InputError("--resume", f"{resume} was started from a different experiment file (SHA-256 "
+                raise InputError("resume", f"{resume} was started from a different experiment file (SHA-256 "
                                              f"{meta['sha256'][:12]}..., this file {exp.sha256[:12]}...); resume with "
                                              "the same file or start a new run")
         rows = rf.rows()
         attempts = rf.attempts()
-        with reading("--resume", folder):
+        with reading("resume", folder):
             finalized = rf.store.journal_mode() != "wal"
     return _Resumed(folder, exp, meta, attempts, {r.cell for r in rows},
                     {r.cell for r in rows if r.status == "failed"}, finalized)
@@ -172,7 +172,7 @@ def _plugin_records(plugins) -> list[dict]:
     return out
 
 
-def _check_plugins(recorded: list, now: list, key: str = "--plugin") -> None:
+def _check_plugins(recorded: list, now: list, key: str = "plugins") -> None:
     """A resumed run loads exactly the plugin files it was started with, unchanged."""
     rec = {p.get("module") or Path(p["path"]).stem: p for p in recorded}
     cur = {p["module"]: p for p in now}
@@ -192,7 +192,7 @@ def _check_plugins(recorded: list, now: list, key: str = "--plugin") -> None:
                                   "resume with the plugins it was started with")
 
 
-def _check_packages(attempts: list, key: str = "--resume") -> None:
+def _check_packages(attempts: list, key: str = "resume") -> None:
     """A resumed run computes its remaining cells with the versions that computed the stored ones."""
     first = next((a for a in attempts if isinstance(a.get("packages"), dict)), None)
     if first is None:  # a folder from before attempts recorded their versions
@@ -254,13 +254,13 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
     res_info = None
     if resume is not None:
         if out is not None and Path(out).resolve() != Path(resume).resolve():
-            raise InputError("--out", f"cannot be combined with --resume: the run continues in {resume}; leave "
-                                      "--out out")
+            raise InputError("out", f"cannot be combined with resuming: the run continues in {resume}; give no "
+                                    "other folder")
         res_info = _resume_target(resume, experiment, plugin_info)
         folder, exp = res_info.folder, res_info.experiment
     else:
         if retry_failed:
-            raise InputError("--retry-failed", "only applies with --resume")
+            raise InputError("retry_failed", "only applies when resuming a run")
         exp = _experiment_of(experiment)
         folder = _new_folder(out, exp.name, root)
     backend = choose_backend(workers, cluster, exp.n_cells)
@@ -273,7 +273,7 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
         had_report = (folder / REPORT_DIR).exists()
         rewrite_report = report or (had_report and bool(todo))
         rewritten = (*EXPORTS, STORE_FILE) + ((REPORT_DIR + "/",) if rewrite_report else ())
-        check_manifest(folder, rewritten, key="--resume")
+        check_manifest(folder, rewritten, key="resume")
     else:
         todo = list(range(exp.n_cells))
         rewrite_report = report

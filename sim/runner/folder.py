@@ -96,7 +96,7 @@ class RunFolder:
         Naming ``key``: not a run folder, a damaged store, a copy that was changed or cannot be read.
     """
 
-    def __init__(self, path, key: str = "RUN_DIR", check_copy: bool = True, check_cells: bool = False):
+    def __init__(self, path, key: str = "folder", check_copy: bool = True, check_cells: bool = False):
 
         self.path = Path(path)
         self.key = key

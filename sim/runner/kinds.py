@@ -288,7 +288,7 @@ def file_digest(path) -> str:
     return file_sha256(path)
 
 
-def load_plugin_file(path, key: str = "--plugin") -> dict:
+def load_plugin_file(path, key: str = "plugins") -> dict:
     """Import a plugin module from a file (once per process). Returns ``{"path", "sha256"}``.
 
     A plugin registers strategies (:func:`strategies.register`) or kinds (:func:`register_kind`) when

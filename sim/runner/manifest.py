@@ -34,7 +34,7 @@ def _covered(rel: str, rewritten) -> bool:
     return any(rel == r or (r.endswith("/") and rel.startswith(r)) for r in rewritten)
 
 
-def check_manifest(folder, rewritten=(), key: str = "RUN_DIR") -> dict | None:
+def check_manifest(folder, rewritten=(), key: str = "folder") -> dict | None:
     """Check that the run folder still holds what its manifest records, except the files about to be
     written again (``rewritten``: relative paths, or folders ending in ``/``); return the manifest (None
     when there is none yet).
@@ -103,7 +103,7 @@ def code_notes(attempts: list[dict]) -> list[str]:
             "with the code installed now"]
 
 
-def write_manifest(folder, rewritten=(), key: str = "RUN_DIR") -> dict:
+def write_manifest(folder, rewritten=(), key: str = "folder") -> dict:
     """Write ``manifest.json`` from the store and the files now in the folder; return it.
 
     An earlier manifest is kept as the record of every file not in ``rewritten`` (the files the caller

@@ -158,15 +158,15 @@ class Backend:
 def choose_backend(workers: int | None, cluster: str | None, n_cells: int) -> Backend:
     """Validated backend settings (``--workers``, ``--cluster``)."""
     if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or not 1 <= workers <= 4096):
-        raise InputError("--workers", f"must be an integer in [1, 4096], got {workers!r}")
+        raise InputError("workers", f"must be an integer in [1, 4096], got {workers!r}")
     if cluster is not None:
         if not isinstance(cluster, str) or not cluster.strip():
-            raise InputError("--cluster", f"must be 'local' or a scheduler address like tcp://host:8786, got "
+            raise InputError("cluster", f"must be 'local' or a scheduler address like tcp://host:8786, got "
                                           f"{cluster!r}")
         try:
             import distributed  # noqa: F401
         except ImportError:
-            raise InputError("--cluster", "needs Dask, which is not installed: pip install 'supergame[cluster]'") \
+            raise InputError("cluster", "needs Dask, which is not installed: pip install 'supergame[cluster]'") \
                 from None
         return Backend("dask", workers or usable_cores(), cluster.strip())
     w = workers or usable_cores()
@@ -296,7 +296,7 @@ def _dask(payloads: Iterable[dict], on_result, backend: Backend, plugins) -> Non
         try:
             client = Client(backend.address, timeout=CONNECT_TIMEOUT)
         except OSError as exc:
-            raise InputError("--cluster", f"cannot reach the Dask scheduler at {backend.address} ({exc})") from None
+            raise InputError("cluster", f"cannot reach the Dask scheduler at {backend.address} ({exc})") from None
     token = uuid.uuid4().hex[:8]
     serial = itertools.count()
     try:
@@ -342,7 +342,7 @@ def _dask(payloads: Iterable[dict], on_result, backend: Backend, plugins) -> Non
                         fut.release()
                         continue
                 except CancelledError as exc:
-                    raise InputError("--cluster", f"the Dask cluster stopped running the cells "
+                    raise InputError("cluster", f"the Dask cluster stopped running the cells "
                                                   f"({type(exc).__name__}: {exc}); the finished cells are stored; "
                                                   "finish the run with --resume") from None
                 on_result(res)

@@ -193,7 +193,7 @@ def verify_run(folder, sample: int = 3, cells=None, rtol: float = 1e-9, atol: fl
 
     folder = Path(folder)
     if not folder.is_dir() or not any((folder / f).exists() for f in (STORE_FILE, EXPERIMENT_COPY, MANIFEST)):
-        raise InputError("RUN_DIR", f"{folder} is not a run folder (no {STORE_FILE}, {EXPERIMENT_COPY} or "
+        raise InputError("folder", f"{folder} is not a run folder (no {STORE_FILE}, {EXPERIMENT_COPY} or "
                                     f"{MANIFEST}); give a folder made by supergame run")
     checks: list = []
     man = _check_files(folder, checks)
@@ -231,9 +231,9 @@ def verify_run(folder, sample: int = 3, cells=None, rtol: float = 1e-9, atol: fl
             for c in cells:
                 i = int(c) - 1
                 if i not in by_cell:
-                    raise InputError("--cells", f"cell {c} has no result in {folder} (cells 1 to {exp.n_cells})")
+                    raise InputError("cells", f"cell {c} has no result in {folder} (cells 1 to {exp.n_cells})")
                 if by_cell[i].status != "ok":
-                    raise InputError("--cells", f"cell {c} failed in the run; there is no number to confirm")
+                    raise InputError("cells", f"cell {c} failed in the run; there is no number to confirm")
                 chosen.append(i)
         else:
             chosen = sample_cells(ok_cells, sample)

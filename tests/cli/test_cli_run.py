@@ -379,7 +379,7 @@ def test_resume_refuses_an_altered_copy_of_the_experiment(good, tmp_path, capsys
 def test_out_with_resume_is_refused_unless_it_names_the_same_folder(good, tmp_path, capsys):
     s = run_experiment(good, tmp_path / "run", workers=1, progress=False)
     assert main(["run", "--resume", str(s.folder), "--out", str(tmp_path / "elsewhere")]) == 2
-    assert "--out: cannot be combined with --resume" in capsys.readouterr().err
+    assert "--out: cannot be combined with resuming" in capsys.readouterr().err
     assert not (tmp_path / "elsewhere").exists()
     assert main(["run", "--resume", str(s.folder), "--out", str(s.folder)]) == 0
 

@@ -178,7 +178,7 @@ def test_plugin_file_registers_a_kind(tmp_path):
     bad.write_text("raise RuntimeError('boom')\n")
     with pytest.raises(sim.InputError) as e:
         load_plugin_file(bad)
-    assert e.value.key == "--plugin" and "boom" in e.value.message
+    assert e.value.key == "plugins" and "boom" in e.value.message
 
 
 def test_simulate_reports_the_punishment_length_with_its_analytic_value():
