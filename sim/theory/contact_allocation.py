@@ -79,7 +79,12 @@ class Allocation:
     _ARRAYS = ("weights", "standalone_weights", "profits", "standalone_profits", "pooled_slack")
 
     def to_dict(self) -> dict:
-        """Plain-JSON form."""
+        """Plain-JSON form.
+
+        Returns
+        -------
+        dict
+        """
         out = {"delta": self.delta, "labels": list(self.labels), "value": self.value,
                "standalone_value": self.standalone_value, "success": self.success, "method": self.method}
         out.update({k: getattr(self, k).tolist() for k in self._ARRAYS})
@@ -223,7 +228,12 @@ class ContactChange:
         return self.after.common - self.before.common
 
     def to_dict(self) -> dict:
-        """Plain-JSON form."""
+        """Plain-JSON form.
+
+        Returns
+        -------
+        dict
+        """
         ch = self.change
         return {"mapping": dict(self.mapping), "firms_before": list(self.firms_before),
                 "firms_after": list(self.firms_after), "contact_before": self.contact_before.tolist(),

@@ -64,7 +64,6 @@ __all__ = [
     "STATE_KINDS",
     "DemandStates",
     "StateThresholds",
-    "draw_state_path",
     "markets_by_state",
     "state_thresholds",
     "state_values",
@@ -219,11 +218,26 @@ class DemandStates:
         return _long_run(self.transition, self.initial)
 
     def effective_discount(self, delta: float) -> float:
-        """``delta (1 + growth)``, the factor that discounts unscaled profits."""
+        """The factor that discounts unscaled profits.
+
+        Parameters
+        ----------
+        delta : float
+
+        Returns
+        -------
+        float
+            ``delta (1 + growth)``.
+        """
         return float(delta) * (1.0 + self.growth)
 
     def to_dict(self) -> dict:
-        """Plain-JSON form in the layout :meth:`from_dict` reads."""
+        """Plain-JSON form in the layout :meth:`from_dict` reads.
+
+        Returns
+        -------
+        dict
+        """
         out: dict = {"kind": self.kind, "growth": self.growth, "labels": list(self.labels)}
         if self.kind == "iid":
             out["probabilities"] = self.initial.tolist()
@@ -437,7 +451,12 @@ class StateThresholds:
     labels: tuple
 
     def to_dict(self) -> dict:
-        """Plain-JSON form (``None`` for ``nan``)."""
+        """Plain-JSON form (``None`` for ``nan``).
+
+        Returns
+        -------
+        dict
+        """
         f = (lambda x: None if not math.isfinite(x) else float(x))  # noqa: E731
         return {"per_state_firm": [[f(x) for x in r] for r in self.per_state_firm],
                 "per_state": [f(x) for x in self.per_state], "market": f(self.market),
@@ -531,60 +550,3 @@ def state_thresholds(states: DemandStates, markets, agreement: str = "joint") ->
         market = float(out[bs, bf])
     return StateThresholds(out, per_state, market, int(bs), int(bf), states.growth,
                            market * (1.0 + states.growth), states.labels)
-
-
-# --------------------------------------------------------------------------------------------------
-# Reference draws (plain Python; the simulation kernel reproduces this order)
-# --------------------------------------------------------------------------------------------------
-
-
-def _uniform(rng) -> float:
-    return float(rng.random()) if hasattr(rng, "random") else float(rng.next_double())
-
-
-def _pick(u: float, cumulative: np.ndarray) -> int:
-    """The first state whose cumulative probability exceeds ``u`` (the last state if rounding leaves
-    the total a hair below ``u``)."""
-    k = 0
-    last = cumulative.size - 1
-    while k < last and u >= cumulative[k]:
-        k += 1
-    return k
-
-
-def draw_state_path(rng, states: DemandStates, n_periods: int, initial_state: int | None = None) -> np.ndarray:
-    """Draw a path of demand states.
-
-    Order of draws: period 0 takes ``initial_state`` when given, otherwise one uniform ``u`` picks the
-    first state ``k`` with ``u < cumsum(initial)[k]``; every later period takes one uniform and picks
-    from the cumulative row of the previous state the same way (cumulative sums accumulated from state
-    0 up, as ``numpy.cumsum`` does). A deterministic cycle draws nothing.
-
-    Parameters
-    ----------
-    rng : numpy.random.Generator or an object with ``next_double()``
-    states : DemandStates
-    n_periods : int >= 1
-    initial_state : int, optional
-        Index (0-based) of the first period's state.
-
-    Returns
-    -------
-    ndarray of int64, shape (n_periods,)
-    """
-    n_periods = Integer(1, 10**9).check("n_periods", n_periods)
-    S = states.n_states
-    if initial_state is not None:
-        initial_state = Integer(0, S - 1).check("demand_states.initial_state", initial_state)
-    path = np.empty(n_periods, dtype=np.int64)
-    if states.kind == "cycle":
-        start = int(np.argmax(states.initial)) if initial_state is None else initial_state
-        path[:] = (start + np.arange(n_periods)) % S
-        return path
-    rows = np.cumsum(states.transition, axis=1)
-    s = _pick(_uniform(rng), np.cumsum(states.initial)) if initial_state is None else initial_state
-    path[0] = s
-    for t in range(1, n_periods):
-        s = _pick(_uniform(rng), rows[s])
-        path[t] = s
-    return path

@@ -1,6 +1,9 @@
-"""The deterrence frontier, the price a cartel keeps under price-dependent detection, and the
-plain-Python reference of detection draws.
+"""What enforcement does to one market: thresholds and fines together, the deterrence frontier, and
+the price a cartel keeps under price-dependent detection.
 
+* :func:`enforcement_analysis` -- per firm, the critical discount factor under enforcement beside plain
+  grim trigger, the expected fines (per colluding period and discounted), the expected life of the
+  cartel and, at a given ``delta``, the deterrence fine (see :mod:`sim.theory.enforcement`).
 * :func:`deterrence_frontier` -- over a grid of detection rates and fines: the critical discount
   factor at each pair, whether collusion is sustainable at a given ``delta`` and the sustainability
   boundary (the deterrence fine at each detection rate).
@@ -9,8 +12,6 @@ plain-Python reference of detection draws.
   the price, lowering the price lowers the chance of detection as well as the gain from cheating
   (the mechanism of Block, Nold and Sidak, 1981, "The deterrent effect of antitrust enforcement", JPE
   89(3) -- from memory).
-* :func:`draw_detection`, :func:`simulate_detections` -- the order in which the simulation draws
-  detection events (one uniform per colluding period), for a compiled kernel to reproduce.
 """
 
 from __future__ import annotations
@@ -20,18 +21,19 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .._params import Integer, Real
+from .._params import Integer
 from .._text import CAUTION
 from ..equilibrium import StageGame, stage_game
 from ..errors import InputError
 from ..market import Market, MarketSpec
+from ..thresholds import grim_threshold
 from .enforcement import (
     Enforcement,
     _check_delta,
     _floats,
-    _market_level,
     _none,
     deterrence_fine,
+    discounted_fines,
     enforcement_terms,
     enforcement_threshold,
 )
@@ -40,11 +42,161 @@ from .stage_profits import StageProfits, path_point, stage_profits
 __all__ = [
     "DeterrenceFrontier",
     "EnforcedCollusion",
+    "EnforcementAnalysis",
     "deterrence_frontier",
-    "draw_detection",
     "enforced_partial_collusion",
-    "simulate_detections",
+    "enforcement_analysis",
 ]
+
+
+def _market_level(per_firm: np.ndarray) -> tuple[float, int]:
+    if np.any(np.isnan(per_firm)):
+        return math.nan, int(np.flatnonzero(np.isnan(per_firm))[0])
+    k = int(np.argmax(per_firm))
+    return float(per_firm[k]), k
+
+
+@dataclass(frozen=True)
+class EnforcementAnalysis:
+    """Collusion under one enforcement regime.
+
+    Attributes
+    ----------
+    enforcement : Enforcement
+    profits : StageProfits
+    detection_rate, conviction_rate : float
+    firms_report : bool
+    per_firm : ndarray of shape (n_firms,)
+        Critical discount factors under enforcement (``nan``: not sustainable below one).
+    market : float
+        The largest per-firm threshold (``nan`` if any firm cannot be held).
+    binding : int
+        Index (0-based) of the binding firm.
+    grim : ndarray of shape (n_firms,)
+        Grim-trigger thresholds without enforcement, for comparison.
+    expected_fine : ndarray of shape (n_firms,)
+        Expected fine per colluding period.
+    expected_spell : float
+        Expected number of colluding periods up to and including the conviction (``inf`` if never).
+    collusion_share : float
+        Long-run share of periods in collusion when collusion is sustained.
+    delta : float or None
+        The discount factor of the rows below (None when not asked).
+    discounted_fines, deterrence_fine : ndarray of shape (n_firms,) or None
+    market_deterrence_fine : float or None
+        The smallest per-firm deterrence fine (collusion fails when any firm's constraint fails).
+    """
+
+    enforcement: Enforcement
+    profits: StageProfits
+    detection_rate: float
+    conviction_rate: float
+    firms_report: bool
+    per_firm: np.ndarray
+    market: float
+    binding: int
+    grim: np.ndarray
+    expected_fine: np.ndarray
+    expected_spell: float
+    collusion_share: float
+    delta: float | None = None
+    discounted_fines: np.ndarray | None = None
+    deterrence_fine: np.ndarray | None = None
+    market_deterrence_fine: float | None = None
+
+    @property
+    def sustainable(self) -> bool | None:
+        """Whether collusion is sustainable at ``delta`` (None without a delta)."""
+        if self.delta is None:
+            return None
+        return bool(math.isfinite(self.market) and self.delta >= self.market)
+
+    def to_dict(self) -> dict:
+        """Plain-JSON form; ``None`` stands for ``nan`` in thresholds and for ``inf`` in fines and spells.
+
+        Returns
+        -------
+        dict
+        """
+        opt = (lambda a: None if a is None else [_none(x) for x in a])  # noqa: E731
+        return {
+            "enforcement": self.enforcement.to_dict(), "profits": self.profits.to_dict(),
+            "detection_rate": self.detection_rate, "conviction_rate": self.conviction_rate,
+            "firms_report": self.firms_report, "per_firm": [_none(x) for x in self.per_firm],
+            "market": _none(self.market), "binding_firm": self.binding + 1,
+            "grim": [_none(x) for x in self.grim], "expected_fine": self.expected_fine.tolist(),
+            "expected_spell": _none(self.expected_spell), "collusion_share": self.collusion_share,
+            "delta": self.delta, "discounted_fines": opt(self.discounted_fines),
+            "deterrence_fine": opt(self.deterrence_fine),
+            "market_deterrence_fine": _none(self.market_deterrence_fine),
+            "sustainable": self.sustainable, "caution": CAUTION,
+        }
+
+    @classmethod
+    def from_dict(cls, d: dict) -> EnforcementAnalysis:
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+
+        Returns
+        -------
+        EnforcementAnalysis
+        """
+        opt = (lambda a: None if a is None else _floats(a, math.inf))  # noqa: E731
+        mdf = d["market_deterrence_fine"]
+        return cls(
+            Enforcement.from_dict(d["enforcement"]), StageProfits.from_dict(d["profits"]), d["detection_rate"],
+            d["conviction_rate"], d["firms_report"], _floats(d["per_firm"], math.nan),
+            math.nan if d["market"] is None else d["market"], d["binding_firm"] - 1, _floats(d["grim"], math.nan),
+            np.asarray(d["expected_fine"], dtype=float),
+            math.inf if d["expected_spell"] is None else d["expected_spell"], d["collusion_share"], d["delta"],
+            opt(d["discounted_fines"]), opt(d["deterrence_fine"]),
+            None if d["delta"] is None else (math.inf if mdf is None else mdf),
+        )
+
+
+def _spell_and_share(q: float, T: int | None) -> tuple[float, float]:
+    if q <= 0.0:
+        return math.inf, 1.0
+    if T is None:
+        return 1.0 / q, 0.0
+    # renewal cycle: a collusive spell of mean 1/q periods, then T periods of competition
+    return 1.0 / q, 1.0 / (1.0 + q * T)
+
+
+def enforcement_analysis(source, enforcement: Enforcement, delta: float | None = None,
+                         agreement: str = "joint") -> EnforcementAnalysis:
+    """Thresholds, expected fines and (at ``delta``) deterrence fines of one agreement.
+
+    Parameters
+    ----------
+    source : StageProfits, StageGame, Market or dict
+    enforcement : Enforcement
+    delta : float in (0, 1), optional
+    agreement : str
+        The agreement when ``source`` is a market.
+
+    Returns
+    -------
+    EnforcementAnalysis
+    """
+    sp = stage_profits(source, agreement)
+    t = enforcement_terms(sp, enforcement)
+    per_firm = enforcement_threshold(sp, enforcement)
+    market, binding = _market_level(per_firm)
+    spell, share = _spell_and_share(t.conviction_rate, t.after_detection)
+    extra = {}
+    if delta is not None:
+        delta = _check_delta(delta)
+        dfine = deterrence_fine(sp, enforcement, delta)
+        extra = {"delta": delta, "discounted_fines": discounted_fines(sp, enforcement, delta),
+                 "deterrence_fine": dfine, "market_deterrence_fine": float(dfine.min())}
+    return EnforcementAnalysis(
+        enforcement, sp, t.detection_rate, t.conviction_rate, t.firms_report, per_firm, market, binding,
+        grim_threshold(sp.collusive, sp.deviation, sp.nash), t.expected_fine, spell, share, **extra,
+    )
 
 
 def _grid(key: str, values, low: float, high: float) -> np.ndarray:
@@ -93,7 +245,12 @@ class DeterrenceFrontier:
     boundary_per_firm: np.ndarray
 
     def to_dict(self) -> dict:
-        """Plain-JSON form; ``None`` is ``nan`` in thresholds and ``inf`` in the boundary."""
+        """Plain-JSON form; ``None`` is ``nan`` in thresholds and ``inf`` in the boundary.
+
+        Returns
+        -------
+        dict
+        """
         return {
             "enforcement": self.enforcement.to_dict(), "profits": self.profits.to_dict(), "delta": self.delta,
             "detection": self.detection.tolist(), "fines": self.fines.tolist(),
@@ -190,7 +347,12 @@ class EnforcedCollusion:
     profit_gain: float
 
     def to_dict(self) -> dict:
-        """Plain-JSON form."""
+        """Plain-JSON form.
+
+        Returns
+        -------
+        dict
+        """
         return {"delta": self.delta, "weight": self.weight, "actions": self.actions.tolist(), "price": self.price,
                 "detection_rate": self.detection_rate, "profits": self.profits.tolist(),
                 "profit_gain": _none(self.profit_gain)}
@@ -273,67 +435,3 @@ def enforced_partial_collusion(market, enforcement: Enforcement, delta: float, a
     gain = (pt.profits.collusive.sum() - joint_n) / (joint_c - joint_n) if joint_c > joint_n else math.nan
     rho = enforcement_terms(pt.profits, enforcement).detection_rate
     return EnforcedCollusion(delta, w, pt.actions, pt.profits.price, rho, pt.profits.collusive, float(gain))
-
-
-# --------------------------------------------------------------------------------------------------
-# Reference draws (plain Python; the simulation kernel reproduces this order)
-# --------------------------------------------------------------------------------------------------
-
-
-def _uniform(rng) -> float:
-    """One uniform draw on [0, 1): ``rng.random()`` of a numpy Generator, or ``next_double()`` of the
-    package's own stream twin, so a kernel on either source follows the same order."""
-    return float(rng.random()) if hasattr(rng, "random") else float(rng.next_double())
-
-
-def draw_detection(rng, rho: float) -> bool:
-    """Whether a colluding period is detected: one uniform ``u``, detected when ``u < rho``.
-
-    Parameters
-    ----------
-    rng : numpy.random.Generator or an object with ``next_double()``
-    rho : float in [0, 1]
-
-    Returns
-    -------
-    bool
-    """
-    return _uniform(rng) < rho
-
-
-def simulate_detections(rng, n_periods: int, rho: float, after_detection: int | None = None,
-                        ) -> tuple[np.ndarray, np.ndarray]:
-    """Collusion under the default detection convention, period by period.
-
-    Order of draws: periods in order; in each colluding period exactly one uniform (detection when it
-    is below ``rho``); no draw in a period of competition. After a detection the firms compete for
-    ``after_detection`` periods (forever when None), then collude again.
-
-    Parameters
-    ----------
-    rng : numpy.random.Generator or an object with ``next_double()``
-    n_periods : int >= 1
-    rho : float in [0, 1]
-    after_detection : int >= 1 or None
-
-    Returns
-    -------
-    colluding : ndarray of bool, shape (n_periods,)
-    detected : ndarray of bool, shape (n_periods,)
-    """
-    n_periods = Integer(1, 10**9).check("n_periods", n_periods)
-    rho = Real(0, 1).check("enforcement.detection", rho)
-    if after_detection is not None:
-        after_detection = Integer(1, 10_000_000).check("enforcement.after_detection", after_detection)
-    colluding = np.zeros(n_periods, dtype=bool)
-    detected = np.zeros(n_periods, dtype=bool)
-    wait = 0  # periods of competition left; -1: competition forever
-    for t in range(n_periods):
-        if wait != 0:
-            wait = wait - 1 if wait > 0 else wait
-            continue
-        colluding[t] = True
-        if draw_detection(rng, rho):
-            detected[t] = True
-            wait = -1 if after_detection is None else after_detection
-    return colluding, detected

@@ -34,8 +34,9 @@ Variants (fields of :class:`Enforcement`)
     detection again): ``W = c - e + delta ((1 - q) W + q delta^T W)``.
 ``detection`` as a :class:`PriceDetection` table
     The detection rate rises with the agreed price (read at the quantity-weighted average price of
-    the agreed profile). :func:`enforced_partial_collusion` then finds the price the cartel keeps to
-    stay sustainable, which may lie below the agreement because a lower price is detected less.
+    the agreed profile). :func:`sim.theory.deterrence.enforced_partial_collusion` then finds the
+    price the cartel keeps to stay sustainable, which may lie below the agreement because a lower
+    price is detected less.
 ``proof``
     An investigation (probability ``rho`` per colluding period) convicts with probability ``proof``
     unless a firm reports; ``proof = 1`` (the default) makes every investigation a conviction.
@@ -67,21 +68,17 @@ import numpy as np
 from scipy import optimize
 
 from .._params import Boolean, Integer, Options, Real, optional
-from .._text import CAUTION
 from ..demand import MAX_MAGNITUDE
 from ..errors import InputError
-from ..thresholds import grim_threshold
 from .stage_profits import StageProfits, stage_profits
 
 __all__ = [
     "FINE_BASES",
     "Enforcement",
-    "EnforcementAnalysis",
     "EnforcementTerms",
     "PriceDetection",
     "deterrence_fine",
     "discounted_fines",
-    "enforcement_analysis",
     "enforcement_terms",
     "enforcement_threshold",
 ]
@@ -137,7 +134,16 @@ class PriceDetection:
         object.__setattr__(self, "rates", r)
 
     def rate(self, price):
-        """Detection probability at ``price`` (scalar or array of any shape)."""
+        """Detection probability at a price.
+
+        Parameters
+        ----------
+        price : float or ndarray of any shape
+
+        Returns
+        -------
+        float or ndarray of the shape of ``price``
+        """
         return np.interp(price, self.prices, self.rates)
 
     @classmethod
@@ -158,7 +164,12 @@ class PriceDetection:
         return cls(p, np.array([float(func(x)) for x in p]))
 
     def to_dict(self) -> dict:
-        """Plain-JSON form."""
+        """Plain-JSON form.
+
+        Returns
+        -------
+        dict
+        """
         return {"prices": self.prices.tolist(), "rates": self.rates.tolist()}
 
 
@@ -207,7 +218,17 @@ class Enforcement:
             object.__setattr__(self, name, constraint.check(f"{key}.{name}", getattr(self, name)))
 
     def rate_at(self, price: float) -> float:
-        """Detection probability per colluding period at the agreed ``price``."""
+        """Detection probability per colluding period at the agreed price.
+
+        Parameters
+        ----------
+        price : float
+            Quantity-weighted average price of the agreement (read only by a price table).
+
+        Returns
+        -------
+        float
+        """
         if isinstance(self.detection, PriceDetection):
             if not math.isfinite(price):
                 raise InputError("enforcement.detection", "a price-dependent detection rate needs the agreed price")
@@ -215,7 +236,12 @@ class Enforcement:
         return float(self.detection)
 
     def to_dict(self) -> dict:
-        """Plain-JSON form (the layout :meth:`from_dict` reads)."""
+        """Plain-JSON form (the layout :meth:`from_dict` reads).
+
+        Returns
+        -------
+        dict
+        """
         out = {k: getattr(self, k) for k in ("fine", "fine_basis", "after_detection", "proof", "leniency",
                                              "deviator_exposed")}
         det = self.detection
@@ -432,153 +458,3 @@ def discounted_fines(profits, enforcement: Enforcement, delta: float) -> np.ndar
     delta = _check_delta(delta)
     t = enforcement_terms(profits, enforcement)
     return t.expected_fine / _k(delta, t.conviction_rate, t.after_detection)
-
-
-# --------------------------------------------------------------------------------------------------
-# Results
-# --------------------------------------------------------------------------------------------------
-
-
-def _market_level(per_firm: np.ndarray) -> tuple[float, int]:
-    if np.any(np.isnan(per_firm)):
-        return math.nan, int(np.flatnonzero(np.isnan(per_firm))[0])
-    k = int(np.argmax(per_firm))
-    return float(per_firm[k]), k
-
-
-@dataclass(frozen=True)
-class EnforcementAnalysis:
-    """Collusion under one enforcement regime.
-
-    Attributes
-    ----------
-    enforcement : Enforcement
-    profits : StageProfits
-    detection_rate, conviction_rate : float
-    firms_report : bool
-    per_firm : ndarray of shape (n_firms,)
-        Critical discount factors under enforcement (``nan``: not sustainable below one).
-    market : float
-        The largest per-firm threshold (``nan`` if any firm cannot be held).
-    binding : int
-        Index (0-based) of the binding firm.
-    grim : ndarray of shape (n_firms,)
-        Grim-trigger thresholds without enforcement, for comparison.
-    expected_fine : ndarray of shape (n_firms,)
-        Expected fine per colluding period.
-    expected_spell : float
-        Expected number of colluding periods up to and including the conviction (``inf`` if never).
-    collusion_share : float
-        Long-run share of periods in collusion when collusion is sustained.
-    delta : float or None
-        The discount factor of the rows below (None when not asked).
-    discounted_fines, deterrence_fine : ndarray of shape (n_firms,) or None
-    market_deterrence_fine : float or None
-        The smallest per-firm deterrence fine (collusion fails when any firm's constraint fails).
-    """
-
-    enforcement: Enforcement
-    profits: StageProfits
-    detection_rate: float
-    conviction_rate: float
-    firms_report: bool
-    per_firm: np.ndarray
-    market: float
-    binding: int
-    grim: np.ndarray
-    expected_fine: np.ndarray
-    expected_spell: float
-    collusion_share: float
-    delta: float | None = None
-    discounted_fines: np.ndarray | None = None
-    deterrence_fine: np.ndarray | None = None
-    market_deterrence_fine: float | None = None
-
-    @property
-    def sustainable(self) -> bool | None:
-        """Whether collusion is sustainable at ``delta`` (None without a delta)."""
-        if self.delta is None:
-            return None
-        return bool(math.isfinite(self.market) and self.delta >= self.market)
-
-    def to_dict(self) -> dict:
-        """Plain-JSON form; ``None`` stands for ``nan`` in thresholds and for ``inf`` in fines and spells."""
-        opt = (lambda a: None if a is None else [_none(x) for x in a])  # noqa: E731
-        return {
-            "enforcement": self.enforcement.to_dict(), "profits": self.profits.to_dict(),
-            "detection_rate": self.detection_rate, "conviction_rate": self.conviction_rate,
-            "firms_report": self.firms_report, "per_firm": [_none(x) for x in self.per_firm],
-            "market": _none(self.market), "binding_firm": self.binding + 1,
-            "grim": [_none(x) for x in self.grim], "expected_fine": self.expected_fine.tolist(),
-            "expected_spell": _none(self.expected_spell), "collusion_share": self.collusion_share,
-            "delta": self.delta, "discounted_fines": opt(self.discounted_fines),
-            "deterrence_fine": opt(self.deterrence_fine),
-            "market_deterrence_fine": _none(self.market_deterrence_fine),
-            "sustainable": self.sustainable, "caution": CAUTION,
-        }
-
-    @classmethod
-    def from_dict(cls, d: dict) -> EnforcementAnalysis:
-        """Inverse of :meth:`to_dict`.
-
-        Parameters
-        ----------
-        d : dict
-
-        Returns
-        -------
-        EnforcementAnalysis
-        """
-        opt = (lambda a: None if a is None else _floats(a, math.inf))  # noqa: E731
-        mdf = d["market_deterrence_fine"]
-        return cls(
-            Enforcement.from_dict(d["enforcement"]), StageProfits.from_dict(d["profits"]), d["detection_rate"],
-            d["conviction_rate"], d["firms_report"], _floats(d["per_firm"], math.nan),
-            math.nan if d["market"] is None else d["market"], d["binding_firm"] - 1, _floats(d["grim"], math.nan),
-            np.asarray(d["expected_fine"], dtype=float),
-            math.inf if d["expected_spell"] is None else d["expected_spell"], d["collusion_share"], d["delta"],
-            opt(d["discounted_fines"]), opt(d["deterrence_fine"]),
-            None if d["delta"] is None else (math.inf if mdf is None else mdf),
-        )
-
-
-def _spell_and_share(q: float, T: int | None) -> tuple[float, float]:
-    if q <= 0.0:
-        return math.inf, 1.0
-    if T is None:
-        return 1.0 / q, 0.0
-    # renewal cycle: a collusive spell of mean 1/q periods, then T periods of competition
-    return 1.0 / q, 1.0 / (1.0 + q * T)
-
-
-def enforcement_analysis(source, enforcement: Enforcement, delta: float | None = None,
-                         agreement: str = "joint") -> EnforcementAnalysis:
-    """Thresholds, expected fines and (at ``delta``) deterrence fines of one agreement.
-
-    Parameters
-    ----------
-    source : StageProfits, StageGame, Market or dict
-    enforcement : Enforcement
-    delta : float in (0, 1), optional
-    agreement : str
-        The agreement when ``source`` is a market.
-
-    Returns
-    -------
-    EnforcementAnalysis
-    """
-    sp = stage_profits(source, agreement)
-    t = enforcement_terms(sp, enforcement)
-    per_firm = enforcement_threshold(sp, enforcement)
-    market, binding = _market_level(per_firm)
-    spell, share = _spell_and_share(t.conviction_rate, t.after_detection)
-    extra = {}
-    if delta is not None:
-        delta = _check_delta(delta)
-        dfine = deterrence_fine(sp, enforcement, delta)
-        extra = {"delta": delta, "discounted_fines": discounted_fines(sp, enforcement, delta),
-                 "deterrence_fine": dfine, "market_deterrence_fine": float(dfine.min())}
-    return EnforcementAnalysis(
-        enforcement, sp, t.detection_rate, t.conviction_rate, t.firms_report, per_firm, market, binding,
-        grim_threshold(sp.collusive, sp.deviation, sp.nash), t.expected_fine, spell, share, **extra,
-    )

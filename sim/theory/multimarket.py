@@ -91,7 +91,12 @@ class ContactMarket:
     label: str = ""
 
     def to_dict(self) -> dict:
-        """Plain-JSON form (the market in the layout of an experiment file's market table)."""
+        """Plain-JSON form (the market in the layout of an experiment file's market table).
+
+        Returns
+        -------
+        dict
+        """
         return {"label": self.label, "firms": list(self.firms), "growth": self.growth,
                 "enforcement": None if self.enforcement is None else self.enforcement.to_dict(),
                 "market": self.market.to_dict()}
@@ -203,13 +208,28 @@ class ContactGame:
         return x @ x.T
 
     def stage(self, m: int):
-        """The solved stage game of market ``m`` (cached)."""
+        """The solved stage game of a market (cached).
+
+        Parameters
+        ----------
+        m : int
+            Index (0-based) of the market.
+
+        Returns
+        -------
+        StageGame
+        """
         if m not in self._stages:
             self._stages[m] = stage_game(self.markets[m].market, self.agreement)
         return self._stages[m]
 
     def to_dict(self) -> dict:
-        """Plain-JSON form in the layout :meth:`from_dict` reads."""
+        """Plain-JSON form in the layout :meth:`from_dict` reads.
+
+        Returns
+        -------
+        dict
+        """
         return {"firms": list(self.firms), "agreement": self.agreement,
                 "markets": [cm.to_dict() for cm in self.markets]}
 
@@ -343,7 +363,12 @@ class PooledThresholds:
     binding_firm: int
 
     def to_dict(self) -> dict:
-        """Plain-JSON form (``None`` for ``nan``)."""
+        """Plain-JSON form (``None`` for ``nan``).
+
+        Returns
+        -------
+        dict
+        """
         n, m = self.presence.shape
         return {"firms": list(self.firms), "labels": list(self.labels), "presence": self.presence.tolist(),
                 "standalone": [_nan_list(r) for r in self.standalone],
@@ -444,7 +469,12 @@ class SlackReport:
     lends: np.ndarray
 
     def to_dict(self) -> dict:
-        """Plain-JSON form."""
+        """Plain-JSON form.
+
+        Returns
+        -------
+        dict
+        """
         return {"delta": self.delta, "firms": list(self.firms), "labels": list(self.labels),
                 "presence": self.presence.tolist(), "slack": self.slack.tolist(),
                 "pooled_slack": self.pooled_slack.tolist(), "alone": self.alone.tolist(), "together": self.together,

@@ -88,7 +88,12 @@ class StageProfits:
         return cls(stage.collusive.firm_profits, stage.deviation_profits, stage.nash.firm_profits, price)
 
     def to_dict(self) -> dict:
-        """Plain-JSON form (``price`` is ``None`` when unknown)."""
+        """Plain-JSON form (``price`` is ``None`` when unknown).
+
+        Returns
+        -------
+        dict
+        """
         return {
             "collusive": self.collusive.tolist(),
             "deviation": self.deviation.tolist(),

@@ -107,7 +107,12 @@ class StatePath:
                "values", "slack", "demand_level", "frequencies")
 
     def to_dict(self) -> dict:
-        """Plain-JSON form."""
+        """Plain-JSON form.
+
+        Returns
+        -------
+        dict
+        """
         out = {"delta": self.delta, "growth": self.growth, "labels": list(self.labels)}
         out.update({k: getattr(self, k).tolist() for k in self._ARRAYS})
         out.update(full_collusion=self.full_collusion, price_cyclicality=self.price_cyclicality,
