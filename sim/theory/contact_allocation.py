@@ -41,7 +41,7 @@ __all__ = ["Allocation", "ContactChange", "best_allocation", "merger_contact"]
 _FEAS = 1e-9
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Allocation:
     """The best allocation of collusion across markets at ``delta``.
 
@@ -191,7 +191,7 @@ def best_allocation(game: ContactGame, delta: float, n_grid: int = 21) -> Alloca
 # --------------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class ContactChange:
     """Multimarket contact and thresholds before and after a merger.
 

@@ -112,7 +112,7 @@ def _transition(key: str, value) -> np.ndarray:
     return P / sums[:, None]
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class DemandStates:
     """How the demand state moves from period to period.
 
@@ -420,7 +420,7 @@ def _beta(states: DemandStates, delta) -> float:
     return beta
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class StateThresholds:
     """Critical discount factors of full collusion in every state (grim trigger).
 

@@ -56,7 +56,7 @@ def _market_level(per_firm: np.ndarray) -> tuple[float, int]:
     return float(per_firm[k]), k
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class EnforcementAnalysis:
     """Collusion under one enforcement regime.
 
@@ -212,7 +212,7 @@ def _grid(key: str, values, low: float, high: float) -> np.ndarray:
     return x
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class DeterrenceFrontier:
     """Sustainability of collusion over a grid of detection rates and fines.
 
@@ -319,7 +319,7 @@ def deterrence_frontier(source, enforcement: Enforcement, delta: float, detectio
     return DeterrenceFrontier(enforcement, sp, delta, rates, fs, thr, sustainable, boundary, per_firm)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class EnforcedCollusion:
     """The most profitable profile on the Nash-to-agreement path sustainable under enforcement.
 

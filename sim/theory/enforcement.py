@@ -100,7 +100,7 @@ def _floats(values, missing: float) -> np.ndarray:
 # --------------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class PriceDetection:
     """A detection rate that depends on the agreed price: a table, linear between its points and flat
     beyond its ends.
@@ -132,6 +132,12 @@ class PriceDetection:
             raise InputError(f"{key}.rates", f"each rate must be a probability in [0, 1], got {r[bad[0]]!r}")
         object.__setattr__(self, "prices", p)
         object.__setattr__(self, "rates", r)
+
+    def __eq__(self, other) -> bool:
+        return (isinstance(other, PriceDetection) and np.array_equal(self.prices, other.prices)
+                and np.array_equal(self.rates, other.rates))
+
+    __hash__ = None
 
     def rate(self, price):
         """Detection probability at a price.
@@ -171,6 +177,26 @@ class PriceDetection:
         dict
         """
         return {"prices": self.prices.tolist(), "rates": self.rates.tolist()}
+
+    @classmethod
+    def from_dict(cls, d: dict, prefix: str = "enforcement.detection") -> PriceDetection:
+        """Inverse of :meth:`to_dict`, naming errors under ``prefix``.
+
+        Parameters
+        ----------
+        d : dict
+        prefix : str
+
+        Returns
+        -------
+        PriceDetection
+        """
+        if not isinstance(d, dict) or set(d) != {"prices", "rates"}:
+            raise InputError(prefix, f"must be a number in [0, 1] or a table with prices and rates, got {d!r}")
+        try:
+            return cls(d["prices"], d["rates"])
+        except InputError as e:
+            raise InputError(prefix + e.key[len("enforcement.detection"):], e.message) from None
 
 
 @dataclass(frozen=True)
@@ -270,8 +296,7 @@ class Enforcement:
         kw = dict(d)
         try:
             if isinstance(kw.get("detection"), dict):
-                t = kw["detection"]
-                kw["detection"] = PriceDetection(t.get("prices"), t.get("rates"))
+                kw["detection"] = PriceDetection.from_dict(kw["detection"])
             return cls(**kw)
         except InputError as e:
             raise InputError(prefix + e.key[len("enforcement"):], e.message) from None
@@ -282,7 +307,7 @@ class Enforcement:
 # --------------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class EnforcementTerms:
     """What enforcement does to one agreement, per firm.
 
@@ -310,6 +335,34 @@ class EnforcementTerms:
     expected_fine: np.ndarray
     deviator_fine: np.ndarray
     after_detection: int | None
+
+    def to_dict(self) -> dict:
+        """Plain-JSON form.
+
+        Returns
+        -------
+        dict
+        """
+        return {"detection_rate": self.detection_rate, "conviction_rate": self.conviction_rate,
+                "firms_report": self.firms_report, "fine_amount": self.fine_amount.tolist(),
+                "expected_fine": self.expected_fine.tolist(), "deviator_fine": self.deviator_fine.tolist(),
+                "after_detection": self.after_detection}
+
+    @classmethod
+    def from_dict(cls, d: dict) -> EnforcementTerms:
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+
+        Returns
+        -------
+        EnforcementTerms
+        """
+        arr = {k: np.asarray(d[k], dtype=float) for k in ("fine_amount", "expected_fine", "deviator_fine")}
+        return cls(d["detection_rate"], d["conviction_rate"], d["firms_report"], **arr,
+                   after_detection=d["after_detection"])
 
 
 def _fine_base(profits: StageProfits, basis: str) -> np.ndarray:

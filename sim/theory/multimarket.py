@@ -101,6 +101,23 @@ class ContactMarket:
                 "enforcement": None if self.enforcement is None else self.enforcement.to_dict(),
                 "market": self.market.to_dict()}
 
+    @classmethod
+    def from_dict(cls, d: dict, prefix: str = "markets[0]") -> ContactMarket:
+        """Build from a table in the layout of :meth:`to_dict`, naming errors under ``prefix``.
+
+        Parameters
+        ----------
+        d : dict
+        prefix : str
+
+        Returns
+        -------
+        ContactMarket
+        """
+        if not isinstance(d, dict):
+            raise InputError(prefix, f"must be a table, got {d!r}")
+        return _market_from_dict(d, prefix)
+
 
 def _check_market(k: int, cm, declared: tuple) -> ContactMarket:
     key = f"markets[{k}]"
@@ -327,7 +344,7 @@ def _nan_array(values, shape=None) -> np.ndarray:
     return out if shape is None else out.reshape(shape)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class PooledThresholds:
     """Critical discount factors of every market alone and of every firm's pooled constraint.
 
@@ -436,7 +453,7 @@ def pooled_thresholds(game: ContactGame) -> PooledThresholds:
     return PooledThresholds(game.firms, labels, pres, standalone, market, pooled, common, highest, k)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class SlackReport:
     """Who lends slack to whom at a discount factor, at full collusion in every market.
 

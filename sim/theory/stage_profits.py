@@ -38,7 +38,7 @@ def _vector(key: str, value, n: int | None = None) -> np.ndarray:
     return x
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class StageProfits:
     """The per-firm profits an incentive constraint compares.
 
@@ -173,7 +173,7 @@ def stage_profits(source, agreement: str = "joint") -> StageProfits:
     raise InputError("profits", f"must be a market, a stage game or per-firm profits, got {type(source).__name__}")
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class PathPoint:
     """One profile on the path from static Nash to the agreement.
 

@@ -52,7 +52,7 @@ def cyclicality(level, values, weights) -> str:
     return "procyclical" if (w * (x - mx) * (y - my)).sum() > 0 else "countercyclical"
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class StatePath:
     """The most collusive state-contingent path sustainable at ``delta``.
 

@@ -34,9 +34,11 @@ from sim.theory.deterrence import (
 from sim.theory.draws import draw_detection, simulate_detections
 from sim.theory.enforcement import (
     Enforcement,
+    EnforcementTerms,
     PriceDetection,
     deterrence_fine,
     discounted_fines,
+    enforcement_terms,
     enforcement_threshold,
 )
 from sim.theory.stage_profits import StageProfits
@@ -421,3 +423,17 @@ def test_bad_input_under_a_prefix_and_in_tables():
     with pytest.raises(InputError) as e:
         StageProfits([1.0, 2.0], [3.0], [0.0, 0.0])
     assert e.value.key == "profits.deviation"
+
+
+def test_price_table_and_terms_round_trip():
+    """JSON round trips of a regime with a price table and of its terms (leniency reported when the
+    reduced share 0.2 is below the conviction probability 0.6: rate rho, share 0.2 of the fine)."""
+    enf = Enforcement(detection=PriceDetection.from_function(lambda p: 0.02 * p, [2.0, 4.0, 6.0]), fine=10.0,
+                      proof=0.6, leniency=0.2)
+    back = Enforcement.from_dict(json.loads(json.dumps(enf.to_dict())))
+    assert back == enf and back.detection.rate(5.0) == pytest.approx(0.1)
+    t = enforcement_terms(bertrand(2), enf)
+    assert t.detection_rate == pytest.approx(0.12) and t.conviction_rate == pytest.approx(0.12) and t.firms_report
+    assert t.expected_fine == pytest.approx([0.12 * 0.2 * 10.0] * 2)
+    again = EnforcementTerms.from_dict(json.loads(json.dumps(t.to_dict())))
+    assert np.array_equal(again.expected_fine, t.expected_fine) and again.firms_report

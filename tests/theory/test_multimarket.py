@@ -61,6 +61,27 @@ def test_pooling_asymmetric_markets_lowers_the_higher_threshold():
     assert np.allclose(back.standalone, p.standalone, equal_nan=True) and back.common == p.common
 
 
+def test_reciprocal_cost_advantages_pool_into_a_lower_threshold():
+    """Bernheim and Whinston (1990), firm asymmetries (from memory): Firm A is the low-cost firm in
+    North, Firm B in South (Cournot, P = 100 - Q, costs 10 and 25 mirrored, quantities proportional to
+    the static-Nash ones; Schmalensee, 1987). Alone each market is held back by its low-cost firm; pooled,
+    each firm's constraint sums a market where it is strong with one where it is weak, and its
+    threshold is 1 - sum_m c_m / sum_m d_m with the profits of sim's stage games (module docstring),
+    below both standalone thresholds."""
+    north = Market(LinearDemand(100.0, 1.0), cost=[10.0, 25.0])
+    south = Market(LinearDemand(100.0, 1.0), cost=[25.0, 10.0])
+    g = ContactGame(["Firm A", "Firm B"], [ContactMarket(north, ["Firm A", "Firm B"]),
+                                           ContactMarket(south, ["Firm A", "Firm B"])], agreement="proportional")
+    p = pooled_thresholds(g)
+    stages = [stage_game(m, "proportional") for m in (north, south)]
+    c = sum(s.collusive.firm_profits - s.nash.firm_profits for s in stages)
+    d = sum(s.deviation_profits - s.nash.firm_profits for s in stages)
+    assert p.pooled == pytest.approx(1 - c / d, rel=1e-10)
+    assert p.common < p.market_thresholds.min()
+    s = slack_at(g, 0.6)
+    assert not s.alone.any() and s.together and s.lends.tolist() == [[False, True], [True, False]]
+
+
 def test_overlapping_firms_only_pool_their_own_markets():
     """Firm C sells only in the three-firm Bertrand market (threshold 1 - 1/3): no contact elsewhere
     can help it, so the common threshold stays 2/3 while A and B pool the duopoly (1/2) with the
