@@ -23,10 +23,10 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize
 
-from .._params import Integer
-from .._text import CAUTION
-from ..errors import InputError
-from ..market import Market
+from ..core.errors import InputError
+from ..core.params import Integer
+from ..core.text import CAUTION
+from ..models.market import Market
 from .multimarket import (
     ContactGame,
     ContactMarket,
@@ -302,7 +302,7 @@ def merger_contact(game: ContactGame, mapping: Mapping, replacements: Mapping | 
     replacements : mapping of int to Market, optional
         For each market (0-based index) where two merging firms both sell, the market after the merger
         (its firms in order of their first appearance in the market's list, the merged firm in the
-        place of the first merging firm, as :func:`sim.merger.merge` numbers them).
+        place of the first merging firm, as :func:`sim.antitrust.merger.merge` numbers them).
 
     Returns
     -------

@@ -54,10 +54,10 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize
 
-from .._params import Integer, Real
-from ..equilibrium import StageGame, stage_game
-from ..errors import InputError
-from ..market import Market, MarketSpec
+from ..core.errors import InputError
+from ..core.params import Integer, Real
+from ..models.market import Market, MarketSpec
+from .equilibrium import StageGame, stage_game
 from .stage_profits import stage_profits
 
 __all__ = [

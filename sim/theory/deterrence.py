@@ -21,12 +21,10 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .._params import Integer
-from .._text import CAUTION
-from ..equilibrium import StageGame, stage_game
-from ..errors import InputError
-from ..market import Market, MarketSpec
-from ..thresholds import grim_threshold
+from ..core.errors import InputError
+from ..core.params import Integer
+from ..core.text import CAUTION
+from ..models.market import Market, MarketSpec
 from .enforcement import (
     Enforcement,
     _check_delta,
@@ -37,7 +35,9 @@ from .enforcement import (
     enforcement_terms,
     enforcement_threshold,
 )
+from .equilibrium import StageGame, stage_game
 from .stage_profits import StageProfits, path_point, stage_profits
+from .thresholds import grim_threshold
 
 __all__ = [
     "DeterrenceFrontier",
@@ -395,7 +395,7 @@ def enforced_partial_collusion(market, enforcement: Enforcement, delta: float, a
 
     Notes
     -----
-    Like :func:`sim.thresholds.partial_collusion`: the best grid point, then 50 bisection steps
+    Like :func:`sim.theory.thresholds.partial_collusion`: the best grid point, then 50 bisection steps
     between it and the next (unsustainable) grid point.
     """
     delta = _check_delta(delta)

@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .._params import Integer, Real
+from ..core.params import Integer, Real
 from .demand_states import DemandStates
 
 __all__ = ["draw_detection", "draw_state_path", "simulate_detections"]

@@ -67,9 +67,9 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize
 
-from .._params import Boolean, Integer, Options, Real, optional
-from ..demand import MAX_MAGNITUDE
-from ..errors import InputError
+from ..core.errors import InputError
+from ..core.params import Boolean, Integer, Options, Real, optional
+from ..models.demand import MAX_MAGNITUDE
 from .stage_profits import StageProfits, stage_profits
 
 __all__ = [

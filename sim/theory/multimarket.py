@@ -41,13 +41,13 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._params import Options, Real
-from .._text import CAUTION
-from ..equilibrium import AGREEMENTS, stage_game
-from ..errors import InputError
-from ..market import Market, market_from_dict
+from ..core.errors import InputError
+from ..core.params import Options, Real
+from ..core.text import CAUTION
+from ..models.market import Market, market_from_dict
 from .demand_states import _beta_grid, _smallest_beta
 from .enforcement import Enforcement, PriceDetection, enforcement_terms
+from .equilibrium import AGREEMENTS, stage_game
 from .stage_profits import path_point
 
 __all__ = ["ContactGame", "ContactMarket", "PooledThresholds", "SlackReport", "pooled_thresholds", "slack_at"]
@@ -173,7 +173,7 @@ class ContactGame:
         The declared firm set; every firm must sell in at least one market.
     markets : sequence of ContactMarket (or dicts in its :meth:`ContactMarket.to_dict` layout)
     agreement : str
-        The agreement in every market (see :func:`sim.equilibrium.collusive_outcome`).
+        The agreement in every market (see :func:`sim.theory.equilibrium.collusive_outcome`).
     """
 
     firms: tuple

@@ -7,7 +7,7 @@ agreement, its best one-shot deviation against the others' agreed actions, and i
 :func:`stage_profits` builds one from a solved stage game, a market or plain numbers.
 
 Below a threshold the firms can still sustain a less profitable agreement. Like
-:func:`sim.thresholds.partial_collusion`, the analyses here move along the straight path of profiles
+:func:`sim.theory.thresholds.partial_collusion`, the analyses here move along the straight path of profiles
 ``a(w) = a_N + w (a_C - a_N)``, ``w`` in ``[0, 1]`` (0 is static Nash, 1 the agreement);
 :func:`path_point` evaluates one point of it.
 """
@@ -19,9 +19,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..equilibrium import StageGame, best_deviation, stage_game
-from ..errors import InputError
-from ..market import Market, MarketSpec
+from ..core.errors import InputError
+from ..models.market import Market, MarketSpec
+from .equilibrium import StageGame, best_deviation, stage_game
 
 __all__ = ["StageProfits", "average_price", "path_point", "stage_profits"]
 
@@ -154,9 +154,9 @@ def stage_profits(source, agreement: str = "joint") -> StageProfits:
     ----------
     source : StageProfits, StageGame, Market, MarketSpec or dict
         A dict is read by :meth:`StageProfits.from_dict`; a market is solved with
-        :func:`sim.equilibrium.stage_game`.
+        :func:`sim.theory.equilibrium.stage_game`.
     agreement : str
-        The agreement when ``source`` is a market (see :func:`sim.equilibrium.collusive_outcome`).
+        The agreement when ``source`` is a market (see :func:`sim.theory.equilibrium.collusive_outcome`).
 
     Returns
     -------
@@ -194,7 +194,7 @@ class PathPoint:
 def path_point(stage: StageGame, weight: float) -> PathPoint:
     """Evaluate the profile ``a_N + weight (a_C - a_N)`` of a stage game.
 
-    Quantities are capped at capacity, as in :func:`sim.thresholds.partial_collusion`.
+    Quantities are capped at capacity, as in :func:`sim.theory.thresholds.partial_collusion`.
 
     Parameters
     ----------

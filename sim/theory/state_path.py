@@ -15,9 +15,9 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize
 
-from .._params import Integer
-from .._text import CAUTION
-from ..errors import SolverError
+from ..core.errors import SolverError
+from ..core.params import Integer
+from ..core.text import CAUTION
 from .demand_states import DemandStates, _beta, _continuation, _long_run, _stages
 from .stage_profits import average_price, path_point
 

@@ -16,7 +16,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from sim import InputError, LinearDemand, Market
-from sim._rng import ReferenceStream, stream_states
+from sim.core.rng import ReferenceStream, stream_states
 from sim.theory.demand_states import (
     DemandStates,
     StateThresholds,

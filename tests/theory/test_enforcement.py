@@ -23,7 +23,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from sim import DifferentiatedDemand, InputError, LinearDemand, LogitDemand, Market
-from sim._rng import ReferenceStream, stream_states
+from sim.core.rng import ReferenceStream, stream_states
 from sim.theory.deterrence import (
     DeterrenceFrontier,
     EnforcementAnalysis,
@@ -42,7 +42,7 @@ from sim.theory.enforcement import (
     enforcement_threshold,
 )
 from sim.theory.stage_profits import StageProfits
-from sim.thresholds import grim_threshold
+from sim.theory.thresholds import grim_threshold
 
 
 def bertrand(n, a=10.0, c=2.0):
@@ -109,8 +109,8 @@ def test_linear_cournot_threshold_matches_closed_form(n, a, b, c, rho, F):
 ])
 def test_zero_detection_is_plain_grim_trigger(market):
     """rho = 0: no detection, so the fine never bites and the constraint is grim trigger's
-    (Friedman, 1971), computed independently by sim.thresholds.grim_threshold."""
-    from sim.equilibrium import stage_game
+    (Friedman, 1971), computed independently by sim.theory.thresholds.grim_threshold."""
+    from sim.theory.equilibrium import stage_game
 
     stg = stage_game(market)
     ref = grim_threshold(stg.collusive.firm_profits, stg.deviation_profits, stg.nash.firm_profits)

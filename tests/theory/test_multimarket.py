@@ -18,9 +18,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from sim import InputError, LinearDemand, Market
-from sim.equilibrium import stage_game
 from sim.theory.contact_allocation import Allocation, ContactChange, best_allocation, merger_contact
 from sim.theory.enforcement import Enforcement, enforcement_threshold
+from sim.theory.equilibrium import stage_game
 from sim.theory.multimarket import (
     ContactGame,
     ContactMarket,
@@ -30,7 +30,7 @@ from sim.theory.multimarket import (
     slack_at,
 )
 from sim.theory.stage_profits import path_point
-from sim.thresholds import partial_collusion
+from sim.theory.thresholds import partial_collusion
 
 BERTRAND = Market(LinearDemand(10.0, 1.0), cost=2.0, n_firms=2, model="bertrand")  # c = 8, d = 16
 COURNOT = Market(LinearDemand(10.0, 1.0), cost=2.0, n_firms=2)  # c = 8/9, d = 17/9
@@ -176,7 +176,7 @@ def test_best_allocation_beats_every_feasible_grid_point(delta):
 
 def test_best_allocation_of_identical_markets_is_each_market_alone():
     """Identical markets: pooling adds nothing, so the best allocation is each market's own partial
-    collusion, computed independently by sim.thresholds.partial_collusion (grim trigger)."""
+    collusion, computed independently by sim.theory.thresholds.partial_collusion (grim trigger)."""
     a = best_allocation(pair(COURNOT, COURNOT.clone()), 0.45)
     ref = partial_collusion(COURNOT, 0.45).weight
     assert a.weights == pytest.approx([ref, ref], rel=1e-6)
