@@ -41,6 +41,7 @@ from sim.theory.enforcement import (
     enforcement_terms,
     enforcement_threshold,
 )
+from sim.theory.equilibrium import stage_game
 from sim.theory.stage_profits import StageProfits
 from sim.theory.thresholds import grim_threshold
 
@@ -110,8 +111,6 @@ def test_linear_cournot_threshold_matches_closed_form(n, a, b, c, rho, F):
 def test_zero_detection_is_plain_grim_trigger(market):
     """rho = 0: no detection, so the fine never bites and the constraint is grim trigger's
     (Friedman, 1971), computed independently by sim.theory.thresholds.grim_threshold."""
-    from sim.theory.equilibrium import stage_game
-
     stg = stage_game(market)
     ref = grim_threshold(stg.collusive.firm_profits, stg.deviation_profits, stg.nash.firm_profits)
     for F in (0.0, 7.0, 1e6):
