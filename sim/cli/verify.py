@@ -24,7 +24,9 @@ DESCRIPTION = (
 
 def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("run_dir", metavar="RUN_DIR", help="a run folder made by supergame run")
-    p.add_argument("--sample", metavar="N", help="cells to re-run, spread over the run (default 3; 0: no re-run)")
+    p.add_argument("--sample", metavar="N",
+                   help="cells to re-run, drawn with the store's digest as seed (default: all when 12 or fewer, "
+                        "else 12; 0: no re-run)")
     p.add_argument("--cells", metavar="LIST",
                    help="re-run these cells instead (comma-separated numbers, counted from 1 as in results.csv)")
     p.add_argument("--tolerance", metavar="R", help="relative tolerance of the comparison (default 1e-9)")
@@ -35,8 +37,8 @@ def configure(p: argparse.ArgumentParser) -> None:
 def run(args) -> int:
 
     load_plugins(args.plugin)
-    sample = parse_number("sample", args.sample, integer=True) if args.sample is not None else 3
-    if sample < 0:
+    sample = parse_number("sample", args.sample, integer=True) if args.sample is not None else None
+    if sample is not None and sample < 0:
         raise InputError("--sample", f"must be an integer >= 0, got {sample}")
     cells = None
     if args.cells:

@@ -1,5 +1,13 @@
-"""Files written so that a reader never sees half of one: atomic replacement through a hidden sibling, and
-folders staged beside their final place (what an interrupted write leaves is found and removed by name)."""
+"""Files written so that a reader never sees half of one, and that survive a power cut once written.
+
+* :func:`write_atomic` writes through a hidden sibling, flushes it to the disk (``fsync``), renames it over the
+  target and flushes the folder, so that after a crash the target is either the old file or the new one, whole.
+  It never follows a symbolic link: the link itself is replaced.
+* Folders are staged beside their final place (``.NAME.partial-*``) and swapped in; :func:`clear_leftovers` finds
+  and removes what an interrupted write left by name.
+* :func:`symlinks_in` lists the symbolic links inside a folder (run folders refuse them: a link planted there could
+  make a write land elsewhere).
+"""
 
 from __future__ import annotations
 
@@ -12,19 +20,92 @@ STAGED, REPLACED = ".partial-", ".replaced-"
 
 
 def partial_path(path: Path) -> Path:
-    """The hidden sibling a file is written to before it replaces ``path``."""
+    """The hidden sibling a file is written to before it replaces ``path``.
+
+    Parameters
+    ----------
+    path : Path
+
+    Returns
+    -------
+    Path
+    """
     return path.with_name(f".{path.name}.partial")
 
 
-def write_atomic(path: Path, text: str) -> None:
-    """Write ``text`` to ``path`` through a hidden sibling, so that ``path`` is always whole."""
+def fsync_dir(folder) -> None:
+    """Flush a folder's entries (a rename in it) to the disk.
+
+    Parameters
+    ----------
+    folder : path-like
+    """
+    fd = os.open(folder, os.O_RDONLY | os.O_DIRECTORY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def write_atomic(path: Path, data: str | bytes) -> None:
+    """Replace ``path`` by ``data`` (text is written as UTF-8) so that it is always whole and, once this returns,
+    on the disk (see the module notes).
+
+    Parameters
+    ----------
+    path : Path
+    data : str or bytes
+    """
+    path = Path(path)
+    raw = data.encode("utf-8") if isinstance(data, str) else bytes(data)
     tmp = partial_path(path)
-    tmp.write_text(text, encoding="utf-8")
+    if tmp.is_symlink():
+        tmp.unlink()
+    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC | os.O_NOFOLLOW, 0o644)
+    try:
+        view = memoryview(raw)
+        while view:
+            n = os.write(fd, view)
+            view = view[n:]
+        os.fsync(fd)
+    finally:
+        os.close(fd)
     os.replace(tmp, path)
+    fsync_dir(path.parent)
+
+
+def symlinks_in(folder) -> list[Path]:
+    """The symbolic links inside ``folder`` (the folder itself included when it is one), not followed.
+
+    Parameters
+    ----------
+    folder : path-like
+
+    Returns
+    -------
+    list of Path
+    """
+    folder = Path(folder)
+    out = [folder] if folder.is_symlink() else []
+    for root, dirs, files in os.walk(folder, followlinks=False):
+        for name in dirs + files:
+            p = Path(root) / name
+            if p.is_symlink():
+                out.append(p)
+    return sorted(out)
 
 
 def leftovers(folder) -> list[Path]:
-    """What interrupted writes of the staged folder ``folder`` left beside it (hidden sibling folders)."""
+    """What interrupted writes of the staged folder ``folder`` left beside it (hidden sibling folders).
+
+    Parameters
+    ----------
+    folder : path-like
+
+    Returns
+    -------
+    list of Path
+    """
     folder = Path(folder)
     if not folder.parent.is_dir():
         return []
@@ -33,7 +114,17 @@ def leftovers(folder) -> list[Path]:
 
 
 def clear_leftovers(folder) -> list[Path]:
-    """Remove what interrupted writes of the staged folder ``folder`` left beside it; return what was removed."""
+    """Remove what interrupted writes of the staged folder ``folder`` left beside it.
+
+    Parameters
+    ----------
+    folder : path-like
+
+    Returns
+    -------
+    list of Path
+        What was removed.
+    """
     gone = leftovers(folder)
     for p in gone:
         shutil.rmtree(p, ignore_errors=True)

@@ -24,11 +24,13 @@ import numpy as np
 
 import sim.evidence.figures as figures
 from sim.core.errors import InputError
+from sim.core.files import symlinks_in
 from sim.core.text import fmt_num
 from sim.evidence.bundle import Bundle, clear_leftovers, holds_bundle
 from sim.evidence.figures import SweepData, _plt
 from sim.evidence.render import renderer_for
 from sim.runner.experiment import FigureSpec, figure_name, leading_comment
+from sim.runner.lock import FolderLock
 from sim.runner.runs import (
     ARRAYS_FILE,
     CSV_FILE,
@@ -237,12 +239,30 @@ def write_report(folder, out=None, update_manifest: bool = True) -> Path:
     """
 
     folder = Path(folder)
-    with RunFolder(folder) as rf:
-        _write(rf, folder, out, update_manifest)
     target = Path(out) if out is not None else folder / REPORT_DIR
-    if _inside(folder, target) and update_manifest:
-        write_manifest(folder, (f"{_inside(folder, target)}/",))
+    # a report written by itself holds the folder's lock; the runner, which writes it inside a run, holds it
+    # already (update_manifest=False)
+    lock = FolderLock(folder, key="folder").acquire() if update_manifest and folder.is_dir() else None
+    try:
+        with RunFolder(folder) as rf:
+            _write(rf, folder, out, update_manifest)
+        if _inside(folder, target) and update_manifest:
+            write_manifest(folder, (f"{_inside(folder, target)}/",))
+    finally:
+        if lock is not None:
+            lock.release()
     return target
+
+
+def _other_run(folder: Path, target: Path) -> Path | None:
+    """The run folder, other than ``folder``, that ``target`` is or lies inside (None when there is none)."""
+    here = folder.resolve()
+    for p in (target.resolve(), *target.resolve().parents):
+        if p != here and (p / STORE_FILE).exists():
+            return p
+        if p == here:
+            return None
+    return None
 
 
 def _inside(folder: Path, target: Path) -> str | None:
@@ -270,6 +290,15 @@ def _write(rf, folder: Path, out, update_manifest: bool) -> None:
     if inside in ("", "."):
         raise InputError("out", f"{target} is the run folder itself; give a folder for the bundle")
     rewritten = (f"{inside}/",) if inside else ()
+    other = _other_run(folder, target)
+    if other is not None:
+        raise InputError("out", f"{target} belongs to the run folder {other}; a bundle goes into its own run folder "
+                                "(the default) or outside every run folder")
+    if inside:
+        links = symlinks_in(folder)
+        if links:
+            raise InputError("folder", f"{links[0]} is a symbolic link; a run folder holds none (a write could land "
+                                       "elsewhere): remove it")
     if inside and update_manifest:
         # before anything is written: every other file of the folder must be as its manifest records
         clear_run_leftovers(folder)

@@ -10,6 +10,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from sim.core.errors import InputError
+from sim.core.files import symlinks_in, write_atomic
 from sim.core.parallel import usable_cores
 from sim.core.provenance import COMPUTING_PACKAGES, code_digest, package_versions
 from sim.core.text import CAUTION
@@ -25,6 +26,7 @@ from sim.runner.folder import (
     output_files,
     reading,
 )
+from sim.runner.lock import LOCK_FILE, FolderLock
 from sim.runner.manifest import check_manifest, clear_run_leftovers, write_manifest
 from sim.runner.store import STORE_FILE, CellRow, Store
 from sim.runner.sweep import Progress, choose_backend, execute
@@ -96,17 +98,19 @@ def default_folder(root: Path, name: str) -> Path:
 
 
 def _new_folder(out, name: str, root) -> Path:
-
+    """The folder ``out`` checked as the place of a new run (new, or empty but for a stale lock file)."""
     if out is None:
         return default_folder(Path(root), name)
     p = Path(out)
+    if p.is_symlink():
+        raise InputError("out", f"{out} is a symbolic link; give the folder itself")
     if p.exists():
         if not p.is_dir():
             raise InputError("out", f"{out} exists and is not a folder")
         if (p / STORE_FILE).exists():
             raise InputError("out", f"{out} already holds a run; resume it (supergame run --resume {out}) or choose "
                                     "another folder")
-        if any(p.iterdir()):
+        if any(q.name != LOCK_FILE for q in p.iterdir()):
             raise InputError("out", f"{out} exists and is not empty; choose a new or empty folder")
     return p
 
@@ -131,14 +135,11 @@ class _Resumed:
     finalized: bool
 
 
-def _resume_target(resume, experiment, plugin_info: list) -> _Resumed:
+def _resume_target(folder: Path, experiment, plugin_info: list) -> _Resumed:
     """Open the run to resume and check that it continues as it started: the same experiment file (the
     folder's copy unchanged, and FILE when given), the same plugins, a store that reads back."""
 
-    folder = Path(resume)
-    if not folder.is_dir() or not (folder / STORE_FILE).is_file() or not (folder / EXPERIMENT_COPY).is_file():
-        raise InputError("resume", f"{resume} is not a run folder (no {STORE_FILE} and {EXPERIMENT_COPY})")
-
+    resume = folder
     # the plugins first: the copy of the experiment may need them to be read at all
     with Store(folder / STORE_FILE, readonly=True) as st, reading("resume", folder):
         recorded = st.meta().get("plugins") or []
@@ -249,141 +250,206 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
     """
 
     t_start = time.perf_counter()
-    created = False
     plugin_info = _plugin_records(plugins)
-    res_info = None
     if resume is not None:
         if out is not None and Path(out).resolve() != Path(resume).resolve():
             raise InputError("out", f"cannot be combined with resuming: the run continues in {resume}; give no "
                                     "other folder")
-        res_info = _resume_target(resume, experiment, plugin_info)
-        folder, exp = res_info.folder, res_info.experiment
+        folder = _existing_run(resume)
+        lock = FolderLock(folder, key="resume").acquire()
     else:
         if retry_failed:
             raise InputError("retry_failed", "only applies when resuming a run")
         exp = _experiment_of(experiment)
-        folder = _new_folder(out, exp.name, root)
-    backend = choose_backend(workers, cluster, exp.n_cells)
-    kind = exp.kind_spec()
-    if res_info is not None:
-        todo = [i for i in range(exp.n_cells)
-                if i not in res_info.done or (retry_failed and i in res_info.failed)]
-        if todo:
-            _check_packages(res_info.attempts)
-        had_report = (folder / REPORT_DIR).exists()
-        rewrite_report = report or (had_report and bool(todo))
-        rewritten = (*EXPORTS, STORE_FILE) + ((REPORT_DIR + "/",) if rewrite_report else ())
-        check_manifest(folder, rewritten, key="resume")
-    else:
-        todo = list(range(exp.n_cells))
-        rewrite_report = report
-        rewritten = ()
-    ran = 0
-    idle = res_info is not None and not todo and res_info.finalized
-    if resume is None:
-        folder.mkdir(parents=True, exist_ok=True)
-        created = True
-        (folder / EXPERIMENT_COPY).write_bytes(exp.text.encode("utf-8"))
-        store = Store.create(folder / STORE_FILE, {
-            "format": RUN_FORMAT, "name": exp.name, "kind": exp.kind, "sha256": exp.sha256,
-            "source": exp.source, "n_cells": exp.n_cells, "seed": exp.seed(), "seed_key": kind.seed_key,
-            "parameters": [{"path": p.path, "values": list(p.values), "labels": list(p.labels)}
-                           for p in exp.parameters],
-            "description": exp.description or leading_comment(exp.text), "plugins": plugin_info,
-            "caution": _caution(),
-        })
-    elif idle:
-        # nothing to compute in a finished store: it is not opened for writing, so that it keeps its bytes
-        store = None
-    else:
-        store = Store(folder / STORE_FILE)
+        choose_backend(workers, cluster, exp.n_cells)  # every setting checked before the folder exists
+        folder, lock = _create_folder(out, exp.name, root)
     try:
-        if store is not None:
-            if retry_failed:
-                store.forget_failed()
-            single = exp.n_cells == 1
-            threads = (workers or usable_cores()) if single and backend.kind == "serial" else 1
-            attempt = store.start_attempt({"command": command or ["python API"], "backend": backend.describe(),
-                                           "workers": backend.workers, "host": platform.node(),
-                                           "cells_to_run": len(todo), "packages": package_versions(),
-                                           "code": code_digest(), "plugins": plugin_info})
-            show = sys.stderr.isatty() if progress is None else bool(progress)
-            seeds = {}
-
-            def payloads():
-                for i in todo:
-                    cell = exp.cell(i)
-                    seeds[i] = (cell.values, cell.labels, exp.seed(cell.doc))
-                    yield {"kind": exp.kind, "index": i, "doc": cell.doc, "threads": threads,
-                           "progress": bool(show and single), "plugins": plugin_info}
-
-            bar = Progress(exp.n_cells, exp.n_cells - len(todo), exp.name, show and not single)
-
-            def on_result(res: dict) -> None:
-                nonlocal ran
-                i = int(res["cell"])
-                values, labels, seed = seeds.get(i) or _cell_info(exp, i)
-                store.record(CellRow(i, res["status"], values, labels, seed, res["error"], res["metrics"],
-                                     res["arrays"], res["started"], res["finished"], res["seconds"], res["worker"],
-                                     res["detail"], attempt), res.get("document"))
-                ran += 1
-                bar.update(res["status"] != "ok")
-
-            try:
-                execute(payloads(), on_result, backend, plugin_info)
-            except KeyboardInterrupt:
-                store.finish_attempt(attempt, "interrupted", {"cells_run": ran})
-                raise
-            except InputError:
-                if created and not store.done():
-                    store.close()
-                    shutil.rmtree(folder, ignore_errors=True)
-                    created = False
-                else:
-                    store.finish_attempt(attempt, "stopped", {"cells_run": ran})
-                raise
-            except BaseException:
-                store.finish_attempt(attempt, "stopped", {"cells_run": ran})
-                raise
-            finally:
-                bar.close()
-            counts = store.count()
-            finished = counts["ok"] + counts["failed"] == exp.n_cells
-            status = ("complete" if counts["ok"] else "failed") if finished else "incomplete"
-            store.finish_attempt(attempt, status, {"cells_run": ran})
-            if finished:
-                store.finalize()
-        else:
-            counts = {"ok": exp.n_cells - len(res_info.failed), "failed": len(res_info.failed)}
-            finished = True
-            status = "complete" if counts["ok"] else "failed"
+        plan = _plan(folder, experiment, resume, retry_failed, report, workers, cluster, plugin_info)
+        if resume is None:
+            _start_store(plan, exp, plugin_info).close()
+        try:
+            counts, status, ran = _compute(plan, workers, progress, command, plugin_info)
+        except InputError:
+            if resume is None and plan.fresh_store():
+                lock.release()
+                shutil.rmtree(folder, ignore_errors=True)
+            raise
+        finished = status != "incomplete"
+        files, report_dir = _finish(plan, status, write_report) if finished else ([], None)
+        with RunFolder(folder, check_copy=False) as rf:
+            failed_rows = [(r.number, r.error) for r in rf.rows() if r.status == "failed"]
     finally:
-        if store is not None and store.con is not None:
-            store.close()
-    files = []
-    report_dir = None
-    if finished:
-        clear_run_leftovers(folder)
-        files = write_exports(folder)
-        if rewrite_report and status == "complete" and write_report is not None:
-            report_dir = write_report(folder, update_manifest=False)
-        elif rewrite_report and (folder / REPORT_DIR).exists():
-            # no cell finished (or no writer given): a report of earlier results would not describe this run
-            shutil.rmtree(folder / REPORT_DIR)
-        write_manifest(folder, rewritten + ((REPORT_DIR + "/",) if rewrite_report else ()))
-        files = output_files(folder) + [MANIFEST]
-    with RunFolder(folder, check_copy=False) as rf:
-        failed_rows = [(r.number, r.error) for r in rf.rows() if r.status == "failed"]
+        lock.release()
+    exp = plan.exp
     return RunSummary(folder, exp.name, exp.kind, exp.n_cells, counts["ok"], counts["failed"], failed_rows, ran,
-                      time.perf_counter() - t_start, backend.describe(), status == "complete", files, report_dir,
+                      time.perf_counter() - t_start, plan.backend.describe(), status == "complete", files, report_dir,
                       status)
 
 
-def _caution() -> str:
+@dataclass
+class _Plan:
+    """What a call of :func:`run_experiment` will do, decided before anything is computed."""
 
-    return CAUTION
+    folder: Path
+    exp: object
+    backend: object
+    todo: list
+    rewrite_report: bool
+    rewritten: tuple
+    resumed: _Resumed | None
+    retry_failed: bool
+
+    @property
+    def idle(self) -> bool:
+        """A finished run resumed with nothing to compute: its store is not opened for writing (it keeps its
+        bytes)."""
+        return self.resumed is not None and not self.todo and self.resumed.finalized
+
+    def fresh_store(self) -> bool:
+        """Whether the store of a new run holds no cell yet."""
+        with Store(self.folder / STORE_FILE, readonly=True) as st:
+            return not st.done()
 
 
-def _cell_info(exp, i: int):
-    cell = exp.cell(i)
-    return cell.values, cell.labels, exp.seed(cell.doc)
+def _existing_run(resume) -> Path:
+    folder = Path(resume)
+    if not folder.is_dir() or not (folder / STORE_FILE).is_file() or not (folder / EXPERIMENT_COPY).is_file():
+        raise InputError("resume", f"{resume} is not a run folder (no {STORE_FILE} and {EXPERIMENT_COPY})")
+    links = symlinks_in(folder)
+    if links:
+        raise InputError("resume", f"{links[0]} is a symbolic link; a run folder holds none (a write could land "
+                                   "elsewhere): remove it")
+    return folder
+
+
+def _plan(folder: Path, experiment, resume, retry_failed: bool, report: bool, workers, cluster,
+          plugin_info: list) -> _Plan:
+    if resume is None:
+        exp = _experiment_of(experiment)
+        return _Plan(folder, exp, choose_backend(workers, cluster, exp.n_cells), list(range(exp.n_cells)), report,
+                     (), None, False)
+    res = _resume_target(folder, experiment, plugin_info)
+    exp = res.experiment
+    backend = choose_backend(workers, cluster, exp.n_cells)
+    todo = [i for i in range(exp.n_cells) if i not in res.done or (retry_failed and i in res.failed)]
+    if todo:
+        _check_packages(res.attempts)
+    rewrite_report = report or ((folder / REPORT_DIR).exists() and bool(todo))
+    rewritten = (*EXPORTS, STORE_FILE) + ((REPORT_DIR + "/",) if rewrite_report else ())
+    check_manifest(folder, rewritten, key="resume")
+    return _Plan(folder, exp, backend, todo, rewrite_report, rewritten, res, retry_failed)
+
+
+def _create_folder(out, name: str, root) -> tuple[Path, FolderLock]:
+    """A new run folder, made and locked at once: two runs never share one (the loser of a race is refused)."""
+    if out is None:
+        while True:
+            folder = default_folder(Path(root), name)
+            folder.parent.mkdir(parents=True, exist_ok=True)
+            try:
+                folder.mkdir()
+                break
+            except FileExistsError:  # another run took the name meanwhile
+                continue
+    else:
+        folder = _new_folder(out, name, root)
+        folder.parent.mkdir(parents=True, exist_ok=True)
+        folder.mkdir(exist_ok=True)
+    lock = FolderLock(folder, key="out").acquire()
+    if any(p.name != LOCK_FILE for p in folder.iterdir()):
+        lock.release()
+        raise InputError("out", f"{folder} was filled by another process meanwhile; choose another folder")
+    return folder, lock
+
+
+def _start_store(plan: _Plan, exp, plugin_info: list) -> Store:
+    write_atomic(plan.folder / EXPERIMENT_COPY, exp.text.encode("utf-8"))
+    kind = exp.kind_spec()
+    return Store.create(plan.folder / STORE_FILE, {
+        "format": RUN_FORMAT, "name": exp.name, "kind": exp.kind, "sha256": exp.sha256,
+        "source": exp.source, "n_cells": exp.n_cells, "seed": exp.seed(), "seed_key": kind.seed_key,
+        "parameters": [{"path": p.path, "values": list(p.values), "labels": list(p.labels)} for p in exp.parameters],
+        "description": exp.description or leading_comment(exp.text), "plugins": plugin_info,
+        "caution": CAUTION,
+    })
+
+
+def _compute(plan: _Plan, workers, progress, command, plugin_info: list) -> tuple[dict, str, int]:
+    """Run the cells to do and record each as it finishes; return the counts, the run's status and the number
+    of cells computed. An interruption (Ctrl-C, SIGTERM) is recorded as such and raised again."""
+    exp = plan.exp
+    if plan.idle:
+        failed = len(plan.resumed.failed)
+        counts = {"ok": exp.n_cells - failed, "failed": failed}
+        return counts, ("complete" if counts["ok"] else "failed"), 0
+    store = Store(plan.folder / STORE_FILE)
+    try:
+        if plan.retry_failed:
+            store.forget_failed()
+        single = exp.n_cells == 1
+        threads = (workers or usable_cores()) if single and plan.backend.kind == "serial" else 1
+        attempt = store.start_attempt({"command": command or ["python API"], "backend": plan.backend.describe(),
+                                       "workers": plan.backend.workers, "host": platform.node(),
+                                       "cells_to_run": len(plan.todo), "packages": package_versions(),
+                                       "code": code_digest(), "plugins": plugin_info})
+        show = sys.stderr.isatty() if progress is None else bool(progress)
+        bar = Progress(exp.n_cells, exp.n_cells - len(plan.todo), exp.name, show and not single)
+        recorder = _Recorder(exp, store, attempt, bar)
+        payloads = ({"kind": exp.kind, "index": i, "doc": exp.cell(i).doc, "threads": threads,
+                     "progress": bool(show and single), "plugins": plugin_info} for i in plan.todo)
+        try:
+            execute(payloads, recorder, plan.backend, plugin_info)
+        except KeyboardInterrupt:
+            store.finish_attempt(attempt, "interrupted", {"cells_run": recorder.ran})
+            raise
+        except BaseException:
+            store.finish_attempt(attempt, "stopped", {"cells_run": recorder.ran})
+            raise
+        finally:
+            bar.close()
+        counts = store.count()
+        finished = counts["ok"] + counts["failed"] == exp.n_cells
+        status = ("complete" if counts["ok"] else "failed") if finished else "incomplete"
+        store.finish_attempt(attempt, status, {"cells_run": recorder.ran})
+        if finished:
+            store.finalize()
+        return counts, status, recorder.ran
+    finally:
+        store.close()
+
+
+class _Recorder:
+    """Stores each finished cell in its own committed transaction and advances the progress bar."""
+
+    def __init__(self, exp, store: Store, attempt: int, bar):
+        self.exp, self.store, self.attempt, self.bar = exp, store, attempt, bar
+        self.ran = 0
+
+    def __call__(self, res: dict) -> None:
+        i = int(res["cell"])
+        cell = self.exp.cell(i)
+        self.store.record(CellRow(i, res["status"], cell.values, cell.labels, self.exp.seed(cell.doc), res["error"],
+                                  res["metrics"], res["arrays"], res["started"], res["finished"], res["seconds"],
+                                  res["worker"], res["detail"], self.attempt), res.get("document"))
+        self.ran += 1
+        self.bar.update(res["status"] != "ok")
+
+
+def _finish(plan: _Plan, status: str, write_report) -> tuple[list, Path | None]:
+    """Exports, the report (when asked for and some cell finished) and the manifest of a run whose every cell
+    has a row."""
+    folder = plan.folder
+    links = symlinks_in(folder)
+    if links:
+        raise InputError("folder", f"{links[0]} is a symbolic link; a run folder holds none (a write could land "
+                                   "elsewhere): remove it and resume the run")
+    clear_run_leftovers(folder)
+    write_exports(folder)
+    report_dir = None
+    if plan.rewrite_report and status == "complete" and write_report is not None:
+        report_dir = write_report(folder, update_manifest=False)
+    elif plan.rewrite_report and (folder / REPORT_DIR).exists():
+        # no cell finished (or no writer given): a report of earlier results would not describe this run
+        shutil.rmtree(folder / REPORT_DIR)
+    write_manifest(folder, plan.rewritten + ((REPORT_DIR + "/",) if plan.rewrite_report else ()))
+    return output_files(folder) + [MANIFEST], report_dir

@@ -22,7 +22,8 @@ PARQUET_FILE = "results.parquet"
 ARRAYS_FILE = "arrays.json"
 REPORT_DIR = "report"
 EXPORTS = (CSV_FILE, PARQUET_FILE, ARRAYS_FILE)
-TRANSIENT = ("results.sqlite-wal", "results.sqlite-shm", "results.sqlite-journal")
+#: files of a run folder that are not part of its record: the store's journals and the writers' lock
+TRANSIENT = ("results.sqlite-wal", "results.sqlite-shm", "results.sqlite-journal", ".lock")
 #: packages whose version can change the numbers a cell computes: a run is resumed only with the same ones
 #: the seed rule, as stated in manifests and reports
 SEED_RULE = ("cell k (counted from 1) draws from numpy.random.SeedSequence(seed, spawn_key=(k - 1,)), seed being "

@@ -3,6 +3,7 @@ software that computed it."""
 
 from __future__ import annotations
 
+import hashlib
 import json
 from pathlib import Path
 
@@ -54,6 +55,9 @@ def check_manifest(folder, rewritten=(), key: str = "folder") -> dict | None:
     except ValueError as exc:
         raise InputError(key, f"{p} cannot be read ({exc}): the folder's record of its files is damaged; "
                               f"supergame verify {folder} lists what is wrong") from None
+    if man.get("manifest_sha256") != manifest_digest(man):
+        raise InputError(key, f"{p} was edited after it was written (its own SHA-256 does not match its content); "
+                              f"supergame verify {folder} lists what is wrong")
     listed = man["files"]
     now = set(output_files(folder))
     hint = f"the folder no longer holds what its manifest records (supergame verify {folder})"
@@ -103,19 +107,24 @@ def code_notes(attempts: list[dict]) -> list[str]:
             "with the code installed now"]
 
 
-def write_manifest(folder, rewritten=(), key: str = "folder") -> dict:
-    """Write ``manifest.json`` from the store and the files now in the folder; return it.
+#: the fields of a manifest that the store determines (verify rebuilds them and compares)
+PROVENANCE_FIELDS = ("format", "experiment", "caution", "started", "finished", "attempts", "command", "plugins",
+                     "seeds", "cells", "notes")
 
-    An earlier manifest is kept as the record of every file not in ``rewritten`` (the files the caller
-    has just written again from the store: relative paths, or folders ending in ``/``); such a file
-    that was altered, removed or added since refuses the write (:func:`check_manifest`).
+
+def provenance(rf: RunFolder) -> dict:
+    """The part of a run folder's manifest that its store determines.
+
+    Parameters
+    ----------
+    rf : RunFolder
+
+    Returns
+    -------
+    dict
+        The fields of :data:`PROVENANCE_FIELDS`.
     """
-    folder = Path(folder)
-    check_manifest(folder, rewritten, key)
-    with RunFolder(folder, key=key) as rf:
-        meta = rf.meta
-        attempts = rf.attempts()
-        rows = rf.rows()
+    meta, attempts, rows = rf.meta, rf.attempts(), rf.rows()
     n_cells = int(meta["n_cells"])
     ok = sum(r.status == "ok" for r in rows)
     failed = [{"cell": r.number, "error": r.error} for r in rows if r.status == "failed"]
@@ -125,7 +134,7 @@ def write_manifest(folder, rewritten=(), key: str = "folder") -> dict:
         seeds["rule"] = "deterministic kind: no random numbers"
     elif n_cells <= _MANIFEST_CELL_SEEDS:
         seeds["cells"] = [[r.number, r.seed] for r in rows]
-    man = {
+    return {
         "format": RUN_FORMAT,
         "experiment": {"file": EXPERIMENT_COPY, "sha256": meta["sha256"], "source": meta.get("source"),
                        "name": meta["name"], "kind": meta["kind"]},
@@ -134,14 +143,57 @@ def write_manifest(folder, rewritten=(), key: str = "folder") -> dict:
         "finished": iso_time(max((a["finished"] for a in attempts if a["finished"] is not None), default=None)),
         "attempts": [_attempt_record(a) for a in attempts],
         "command": attempts[0].get("command") if attempts else None,
-        "packages": package_versions(),
-        "platform": platform_info(),
         "plugins": meta.get("plugins", []),
         "seeds": seeds,
         "cells": {"total": n_cells, "ok": ok, "failed": len(failed), "missing": n_cells - ok - len(failed),
                   "failed_cells": failed},
         "notes": code_notes(attempts),
-        "files": {rel: sha256_file(folder / rel) for rel in output_files(folder)},
     }
+
+
+def manifest_digest(man: dict) -> str:
+    """SHA-256 of a manifest's canonical content, its own digest left out: any edit of any field changes it.
+
+    Parameters
+    ----------
+    man : dict
+
+    Returns
+    -------
+    str
+        Hexadecimal digest.
+    """
+    body = {k: v for k, v in man.items() if k != "manifest_sha256"}
+    text = json.dumps(body, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def write_manifest(folder, rewritten=(), key: str = "folder") -> dict:
+    """Write ``manifest.json`` from the store and the files now in the folder; return it.
+
+    An earlier manifest is kept as the record of every file not in ``rewritten`` (the files the caller
+    has just written again from the store: relative paths, or folders ending in ``/``); such a file
+    that was altered, removed or added since refuses the write (:func:`check_manifest`). The manifest
+    ends with the SHA-256 of its own canonical content (:func:`manifest_digest`).
+
+    Parameters
+    ----------
+    folder : path-like
+    rewritten : sequence of str
+    key : str
+        Key path named in errors.
+
+    Returns
+    -------
+    dict
+    """
+    folder = Path(folder)
+    check_manifest(folder, rewritten, key)
+    with RunFolder(folder, key=key) as rf:
+        man = provenance(rf)
+    man["packages"] = package_versions()
+    man["platform"] = platform_info()
+    man["files"] = {rel: sha256_file(folder / rel) for rel in output_files(folder)}
+    man["manifest_sha256"] = manifest_digest(man)
     write_atomic(folder / MANIFEST, json.dumps(man, indent=2, sort_keys=False) + "\n")
     return man

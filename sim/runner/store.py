@@ -137,7 +137,7 @@ class Store:
         else:
             self.con = sqlite3.connect(str(self.path), isolation_level=None, timeout=30)
             self.con.execute("PRAGMA journal_mode=WAL")
-            self.con.execute("PRAGMA synchronous=NORMAL")
+            self.con.execute("PRAGMA synchronous=FULL")  # a committed cell survives a power cut
             self.con.executescript(_SCHEMA)
 
     # -- lifecycle ---------------------------------------------------------------------------------

@@ -2,14 +2,19 @@
 
 from __future__ import annotations
 
+import hashlib
 import io
 import json
 import math
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
+
 from sim.core.errors import InputError
+from sim.core.files import symlinks_in
 from sim.core.provenance import package_versions
+from sim.core.values import canonical_json
 from sim.runner.exports import export_bytes
 from sim.runner.folder import (
     CSV_FILE,
@@ -24,6 +29,8 @@ from sim.runner.folder import (
     sha256_file,
 )
 from sim.runner.kinds import CellContext, clean_metrics
+from sim.runner.lock import FolderLock
+from sim.runner.manifest import PROVENANCE_FIELDS, manifest_digest, provenance
 from sim.runner.store import STORE_FILE
 
 # --------------------------------------------------------------------------------------------------
@@ -49,16 +56,53 @@ def _same(a: float, b: float, rtol: float, atol: float) -> bool:
     return abs(a - b) <= atol + rtol * abs(b)
 
 
-def sample_cells(ok_cells: list[int], n: int) -> list[int]:
-    """``n`` cells spread evenly over the finished ones, first and last included."""
+#: every finished cell is re-run when there are at most this many; otherwise a sample of this size by default
+ALL_CELLS_UP_TO = 12
+
+
+def store_digest(rows: list) -> str:
+    """SHA-256 of everything the store holds about its cells (status, values, seeds, metrics, arrays).
+
+    Parameters
+    ----------
+    rows : list of CellRow
+
+    Returns
+    -------
+    str
+        Hexadecimal digest.
+    """
+    h = hashlib.sha256()
+    for r in sorted(rows, key=lambda r: r.cell):
+        h.update(canonical_json([r.cell, r.status, r.params, r.seed, r.metrics, r.arrays]).encode("utf-8"))
+        h.update(b"\n")
+    return h.hexdigest()
+
+
+def sample_cells(ok_cells: list[int], n: int, digest: str) -> list[int]:
+    """``n`` of the finished cells, drawn without replacement by a generator seeded with ``digest`` (the store's
+    :func:`store_digest`): which cells are re-run depends on every stored number, so an edit of the store cannot
+    know in advance which cells will be checked.
+
+    Parameters
+    ----------
+    ok_cells : list of int
+        Finished cells (indices counted from 0).
+    n : int
+    digest : str
+        Hexadecimal digest seeding the draw.
+
+    Returns
+    -------
+    list of int
+        Sorted.
+    """
     if n <= 0 or not ok_cells:
         return []
     if n >= len(ok_cells):
         return list(ok_cells)
-    if n == 1:
-        return [ok_cells[0]]
-    idx = sorted({round(k * (len(ok_cells) - 1) / (n - 1)) for k in range(n)})
-    return [ok_cells[i] for i in idx]
+    rng = np.random.default_rng(int(digest[:32], 16))
+    return sorted(int(ok_cells[k]) for k in rng.choice(len(ok_cells), size=n, replace=False))
 
 
 def _same_parquet(path: Path, data: bytes) -> bool:
@@ -169,7 +213,77 @@ def _without_hint(message: str) -> str:
     return message.split("; supergame verify ")[0]
 
 
-def verify_run(folder, sample: int = 3, cells=None, rtol: float = 1e-9, atol: float = 1e-12,
+def _check_manifest_itself(folder: Path, rf: RunFolder, man: dict | None, checks: list) -> None:
+    """The manifest's digest of itself, and its record of the run against what the store says."""
+    if man is None:
+        return
+    if man.get("manifest_sha256") != manifest_digest(man):
+        checks.append((False, f"{MANIFEST} was edited after it was written (its own SHA-256 does not match its "
+                              "content)"))
+        return
+    now = provenance(rf)
+    differ = [k for k in PROVENANCE_FIELDS if man.get(k) != now.get(k)]
+    if differ:
+        checks.append((False, f"{MANIFEST} records other {', '.join(differ)} than the store holds (the store or the "
+                              "manifest was edited)"))
+    else:
+        checks.append((True, f"{MANIFEST} is whole (its own SHA-256 matches) and records the store's attempts, "
+                             "cells and seeds"))
+
+
+def _rerun(exp, by_cell: dict, chosen: list, rtol: float, atol: float, threads: int, checks: list) -> list:
+    """Re-run cells and compare every metric with the stored one; return one record per cell."""
+    kind = exp.kind_spec()
+    report = []
+    for c in chosen:
+        cell = exp.cell(c)
+        res = kind.run(kind.prepare(cell.doc), CellContext(index=c, threads=threads))
+        fresh = clean_metrics(res.metrics)
+        stored = by_cell[c].metrics
+        names = sorted(set(fresh) | set(stored))
+        bad = [k for k in names if not _same(fresh.get(k, math.nan), stored.get(k, math.nan), rtol, atol)]
+        worst = 0.0
+        for k in names:
+            a, b = fresh.get(k, math.nan), stored.get(k, math.nan)
+            if math.isfinite(a) and math.isfinite(b) and b != 0:
+                worst = max(worst, abs(a - b) / abs(b))
+        exact = all((fresh.get(k) == stored.get(k)) or (math.isnan(fresh.get(k, math.nan)) and
+                                                         math.isnan(stored.get(k, math.nan))) for k in names)
+        report.append({"cell": cell.number, "metrics": len(names), "mismatched": bad,
+                       "max_relative_difference": worst, "identical": exact})
+        if bad:
+            k = bad[0]
+            checks.append((False, f"{cell.describe()}: {len(bad)} of {len(names)} metrics do not reproduce, e.g. "
+                                  f"{k} = {fresh.get(k)!r} now, {stored.get(k)!r} stored"))
+        else:
+            how = "identically" if exact else f"within a relative {worst:.1e}"
+            checks.append((True, f"{cell.describe()}: all {len(names)} metrics reproduce {how}"))
+    return report
+
+
+def _chosen_cells(folder: Path, exp, by_cell: dict, rows: list, sample, cells, checks: list) -> list:
+    ok_cells = sorted(c for c, r in by_cell.items() if r.status == "ok")
+    if cells is not None:
+        chosen = []
+        for c in cells:
+            i = int(c) - 1
+            if i not in by_cell:
+                raise InputError("cells", f"cell {c} has no result in {folder} (cells 1 to {exp.n_cells})")
+            if by_cell[i].status != "ok":
+                raise InputError("cells", f"cell {c} failed in the run; there is no number to confirm")
+            chosen.append(i)
+        return chosen
+    n = (len(ok_cells) if len(ok_cells) <= ALL_CELLS_UP_TO else ALL_CELLS_UP_TO) if sample is None else int(sample)
+    chosen = sample_cells(ok_cells, n, store_digest(rows))
+    if chosen:
+        how = ("every finished cell" if len(chosen) == len(ok_cells) else
+               f"{len(chosen)} of the {len(ok_cells)} finished cells, drawn with the SHA-256 of the store's contents "
+               "as seed")
+        checks.append((True, f"re-running {how}"))
+    return chosen
+
+
+def verify_run(folder, sample: int | None = None, cells=None, rtol: float = 1e-9, atol: float = 1e-12,
                threads: int = 1) -> VerifyResult:
     """Check a run folder: every file's SHA-256 against the manifest; every stored row against the cell
     it claims to be; the exports (and the report's copy of the results table) against what the store
@@ -180,15 +294,17 @@ def verify_run(folder, sample: int = 3, cells=None, rtol: float = 1e-9, atol: fl
     Parameters
     ----------
     folder : path-like
-    sample : int
-        Cells to re-run, spread evenly over the finished cells (0: no re-run).
+    sample : int, optional
+        Cells to re-run, drawn from the finished ones with the store's digest as seed (:func:`sample_cells`);
+        default: every finished cell when there are at most :data:`ALL_CELLS_UP_TO`, else that many. 0: no re-run.
     cells : sequence of int, optional
         Re-run these cells (numbers counted from 1, as in the exports) instead of a sample.
 
     Raises
     ------
     InputError
-        ``RUN_DIR`` when the folder is not a run folder at all; ``--cells`` for a cell without a result.
+        ``folder`` when the folder is not a run folder at all or another process is writing it; ``cells`` for a
+        cell without a result.
     """
 
     folder = Path(folder)
@@ -196,13 +312,22 @@ def verify_run(folder, sample: int = 3, cells=None, rtol: float = 1e-9, atol: fl
         raise InputError("folder", f"{folder} is not a run folder (no {STORE_FILE}, {EXPERIMENT_COPY} or "
                                     f"{MANIFEST}); give a folder made by supergame run")
     checks: list = []
+    links = symlinks_in(folder)
+    if links:
+        checks.append((False, f"{links[0]} is a symbolic link: a run folder holds none, and nothing behind it is "
+                              "read"))
+        return VerifyResult(False, checks, [])
+    with FolderLock(folder, key="folder", shared=True):
+        return _verify(folder, checks, sample, cells, rtol, atol, threads)
+
+
+def _verify(folder: Path, checks: list, sample, cells, rtol: float, atol: float, threads: int) -> VerifyResult:
     man = _check_files(folder, checks)
     try:
         rf = RunFolder(folder, check_copy=False)
     except InputError as exc:
         checks.append((False, _without_hint(exc.message)))
         return VerifyResult(False, checks, [])
-    report = []
     with rf:
         same_copy = rf.copy_sha256 == rf.meta["sha256"]
         checks.append((same_copy, f"{EXPERIMENT_COPY} has the SHA-256 recorded when the run started "
@@ -221,48 +346,14 @@ def verify_run(folder, sample: int = 3, cells=None, rtol: float = 1e-9, atol: fl
         else:
             for msg in problems:
                 checks.append((False, f"results.sqlite: {msg}"))
-        intact = same_copy and not problems and len(rows) == exp.n_cells
-        if intact:
+        if same_copy and not problems:
+            _check_manifest_itself(folder, rf, man, checks)
+        if same_copy and not problems and len(rows) == exp.n_cells:
             _check_exports(folder, rf, man, checks)
         by_cell = {r.cell: r for r in rows}
-        ok_cells = sorted(c for c, r in by_cell.items() if r.status == "ok")
-        if cells is not None:
-            chosen = []
-            for c in cells:
-                i = int(c) - 1
-                if i not in by_cell:
-                    raise InputError("cells", f"cell {c} has no result in {folder} (cells 1 to {exp.n_cells})")
-                if by_cell[i].status != "ok":
-                    raise InputError("cells", f"cell {c} failed in the run; there is no number to confirm")
-                chosen.append(i)
-        else:
-            chosen = sample_cells(ok_cells, sample)
+        chosen = _chosen_cells(folder, exp, by_cell, rows, sample, cells, checks)
         if chosen and not same_copy:
             checks.append((False, "no cell re-run: the experiment file is not the one the run started with"))
             chosen = []
-        kind = exp.kind_spec()
-        for c in chosen:
-            cell = exp.cell(c)
-            cfg = kind.prepare(cell.doc)
-            res = kind.run(cfg, CellContext(index=c, threads=threads))
-            fresh = clean_metrics(res.metrics)
-            stored = by_cell[c].metrics
-            names = sorted(set(fresh) | set(stored))
-            bad = [k for k in names if not _same(fresh.get(k, math.nan), stored.get(k, math.nan), rtol, atol)]
-            worst = 0.0
-            for k in names:
-                a, b = fresh.get(k, math.nan), stored.get(k, math.nan)
-                if math.isfinite(a) and math.isfinite(b) and b != 0:
-                    worst = max(worst, abs(a - b) / abs(b))
-            exact = all((fresh.get(k) == stored.get(k)) or (math.isnan(fresh.get(k, math.nan)) and
-                                                             math.isnan(stored.get(k, math.nan))) for k in names)
-            report.append({"cell": cell.number, "metrics": len(names), "mismatched": bad,
-                           "max_relative_difference": worst, "identical": exact})
-            if bad:
-                k = bad[0]
-                checks.append((False, f"{cell.describe()}: {len(bad)} of {len(names)} metrics do not reproduce, e.g. "
-                                      f"{k} = {fresh.get(k)!r} now, {stored.get(k)!r} stored"))
-            else:
-                how = "identically" if exact else f"within a relative {worst:.1e}"
-                checks.append((True, f"{cell.describe()}: all {len(names)} metrics reproduce {how}"))
+        report = _rerun(exp, by_cell, chosen, rtol, atol, threads, checks)
     return VerifyResult(all(ok for ok, _ in checks), checks, report)

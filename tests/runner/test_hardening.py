@@ -1,0 +1,125 @@
+"""Run folders that keep one writer, refuse symbolic links, and catch any edit of their record."""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+import textwrap
+
+import pytest
+
+from sim.core.errors import InputError
+from sim.runner.lock import FolderLock
+from sim.runner.runs import open_run, run_experiment, verify_run
+from sim.runner.verify import sample_cells, store_digest
+
+
+def test_a_second_writer_is_refused_while_the_first_holds_the_folder(finished_run, cli):
+    # another process holds the lock, as a run or a report in progress would
+    code = textwrap.dedent(f"""
+        import sys, time
+        from sim.runner.lock import FolderLock
+        with FolderLock({str(finished_run)!r}):
+            print("locked", flush=True)
+            time.sleep(30)
+        """)
+    holder = subprocess.Popen([sys.executable, "-c", code], stdout=subprocess.PIPE, text=True)
+    try:
+        assert holder.stdout.readline().strip() == "locked"
+        r = cli("report", finished_run)
+        assert r.code == 2 and "RUN_DIR:" in r.err and f"process {holder.pid}" in r.err
+        assert r.err.count("\n") == 1
+        r = cli("run", "--resume", finished_run)
+        assert r.code == 2 and "--resume:" in r.err and "being written" in r.err
+        with pytest.raises(InputError) as e:
+            verify_run(finished_run)  # a reader waits for no writer: it is refused too
+        assert e.value.key == "folder"
+    finally:
+        holder.kill()
+        holder.wait()
+    # the kernel released the lock with the process: the folder is free again
+    assert cli("report", finished_run).code == 0
+
+
+def test_two_runs_into_one_folder_keep_apart(tmp_path, write_experiment):
+    from tests.conftest import TWO_MILLS
+
+    f = write_experiment(TWO_MILLS)
+    out = tmp_path / "shared"
+    out.mkdir()
+    with FolderLock(out, key="out"):  # the other run got there first and holds the folder
+        with pytest.raises(InputError) as e:
+            run_experiment(f, out, workers=1, progress=False)
+    assert e.value.key == "out"
+    assert [p.name for p in out.iterdir()] == [".lock"]
+
+
+def test_symbolic_links_in_a_run_folder_are_refused(finished_run, tmp_path, cli):
+    outside = tmp_path / "elsewhere.txt"
+    outside.write_text("not part of the run")
+    os.symlink(outside, finished_run / "planted")
+    r = cli("run", "--resume", finished_run)
+    assert r.code == 2 and "symbolic link" in r.err
+    res = verify_run(finished_run)
+    assert not res.ok and "symbolic link" in res.checks[0][1]
+    r = cli("report", finished_run)
+    assert r.code == 2 and "symbolic link" in r.err
+    assert outside.read_text() == "not part of the run"
+
+
+@pytest.mark.parametrize("edit", ["started", "packages", "cells", "command"])
+def test_any_edit_of_the_manifest_is_caught(finished_run, edit, cli):
+    p = finished_run / "manifest.json"
+    man = json.loads(p.read_text())
+    if edit == "started":
+        man["started"] = "2020-01-01T00:00:00+00:00"
+    elif edit == "packages":
+        man["packages"]["numpy"] = "0.0.1"
+    elif edit == "cells":
+        man["cells"]["failed"] = 1
+    else:
+        man["command"] = ["supergame", "run", "something-else.toml"]
+    p.write_text(json.dumps(man, indent=2))
+    res = verify_run(finished_run)
+    assert not res.ok and any("edited after it was written" in t for ok, t in res.checks if not ok)
+    r = cli("report", finished_run)
+    assert r.code == 2 and "edited after it was written" in r.err
+
+
+def test_a_manifest_rewritten_with_a_fresh_digest_is_checked_against_the_store(finished_run):
+    from sim.runner.manifest import manifest_digest
+
+    p = finished_run / "manifest.json"
+    man = json.loads(p.read_text())
+    man["cells"]["failed_cells"] = [{"cell": 1, "error": "invented"}]
+    man["manifest_sha256"] = manifest_digest(man)
+    p.write_text(json.dumps(man, indent=2))
+    res = verify_run(finished_run)
+    assert not res.ok and any("records other cells than the store holds" in t for ok, t in res.checks if not ok)
+
+
+def test_the_cells_re_run_depend_on_every_stored_number(finished_run):
+    with open_run(finished_run) as rf:
+        rows = rf.rows()
+    d = store_digest(rows)
+    cells = list(range(100))
+    first = sample_cells(cells, 12, d)
+    assert len(first) == 12 and first == sorted(set(first)) and first == sample_cells(cells, 12, d)
+    rows[0].metrics["threshold.grim"] += 1e-12  # the smallest edit of one number draws other cells
+    assert store_digest(rows) != d and sample_cells(cells, 12, store_digest(rows)) != first
+    # a small run re-runs every cell
+    res = verify_run(finished_run)
+    assert res.ok and len(res.cells) == 2 and any("every finished cell" in t for _, t in res.checks)
+
+
+def test_report_out_refuses_another_runs_folder(finished_run, tmp_path, write_experiment, cli):
+    from tests.conftest import TWO_MILLS
+
+    other = run_experiment(write_experiment(TWO_MILLS, "b.toml"), tmp_path / "other", workers=1,
+                           progress=False).folder
+    before = sorted(p.name for p in other.rglob("*"))
+    r = cli("report", finished_run, "--out", other / "report")
+    assert r.code == 2 and "--out:" in r.err and "belongs to the run folder" in r.err
+    assert sorted(p.name for p in other.rglob("*")) == before
