@@ -6,7 +6,8 @@ being run is imported, so that ``supergame --help`` answers at once and loads ne
 
 Exit status: 0 success, 1 a computation failed or an internal error (printed as one line; set
 ``SUPERGAME_DEBUG=1`` for the traceback of an internal error), 2 bad input (one line naming the
-field), 130 interrupted.
+field), 130 interrupted (Ctrl-C), 143 terminated (SIGTERM; handled like Ctrl-C: what finished is kept, the
+attempt is recorded as interrupted).
 """
 
 from __future__ import annotations
@@ -14,10 +15,12 @@ from __future__ import annotations
 import argparse
 import importlib
 import os
+import signal
 import sys
+import threading
 
 from sim import __version__
-from sim.core.errors import InputError, SolverError
+from sim.core.errors import InputError, SolverError, Terminated
 
 # name -> (module, one line of ``supergame --help``); the order is the order of ``supergame --help``. Only the
 # module of the command being run is imported, so that ``supergame --help`` loads none of the computing packages
@@ -121,6 +124,8 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "command", None):
         parser.print_help()
         return 2
+    previous = signal.signal(signal.SIGTERM, _terminate) if threading.current_thread() is threading.main_thread() \
+        else None
     try:
         return int(args._run(args) or 0)
     except InputError as exc:
@@ -130,6 +135,9 @@ def main(argv: list[str] | None = None) -> int:
     except SolverError as exc:
         print(f"supergame {args.command}: computation failed: {exc}", file=sys.stderr)
         return 1
+    except Terminated:
+        print(f"supergame {args.command}: terminated (SIGTERM); what had finished is kept", file=sys.stderr)
+        return 143
     except KeyboardInterrupt:
         print(f"supergame {args.command}: interrupted", file=sys.stderr)
         return 130
@@ -141,4 +149,11 @@ def main(argv: list[str] | None = None) -> int:
         print(f"supergame {args.command}: internal error ({type(exc).__name__}: {exc}); please report it "
               "(set SUPERGAME_DEBUG=1 for the traceback)", file=sys.stderr)
         return 1
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
+
+
+def _terminate(signum, frame):
+    raise Terminated()
 

@@ -6,7 +6,7 @@ import argparse
 import sys
 
 from sim.cli._common import emit, parse_number
-from sim.core.errors import InputError
+from sim.core.errors import InputError, Terminated
 from sim.core.jsonutil import dumps
 from sim.evidence.report import write_report
 from sim.runner.experiment import load_experiment
@@ -64,11 +64,11 @@ def run(args) -> int:
                            progress=False if args.quiet else None, command=["supergame", *sys.argv[1:]]
                            if sys.argv and sys.argv[0].endswith(("supergame", "__main__.py")) else
                            ["supergame", "run", *([args.file] if args.file else [])])
-    except KeyboardInterrupt:
+    except KeyboardInterrupt as exc:
         how = f"supergame run {args.file + ' ' if args.file else ''}--resume {folder}"
-        print(f"supergame run: interrupted; finished cells are stored in {folder}; finish with: {how}",
-              file=sys.stderr)
-        return 130
+        what = "terminated (SIGTERM)" if isinstance(exc, Terminated) else "interrupted"
+        print(f"supergame run: {what}; finished cells are stored in {folder}; finish with: {how}", file=sys.stderr)
+        return 143 if isinstance(exc, Terminated) else 130
     # exit status 1 when no cell finished: there is no result to use
     status = 1 if s.status == "failed" else 0
     if args.json:

@@ -43,3 +43,8 @@ class InputError(SupergameError, ValueError):
 
 class SolverError(SupergameError, RuntimeError):
     """A numerical method failed to certify its answer."""
+
+
+class Terminated(KeyboardInterrupt):
+    """The process was asked to stop (SIGTERM, as batch schedulers and ``timeout`` send): handled like Ctrl-C --
+    what finished is kept, the attempt is recorded as interrupted -- and the command exits with status 143."""

@@ -3,9 +3,11 @@
 Durability: the database is in write-ahead-log mode and every finished cell is one transaction, so a
 process killed at any moment (even by SIGKILL) loses at most the cells still being computed; a
 resumed run (``supergame run FILE --resume RUN_DIR``) computes only the cells without a row. With
-``synchronous = NORMAL`` a committed row survives the death of the process; only a power failure of
-the machine could lose the last rows (never corrupting the database). When a run completes the log is
-folded back into the database file, which from then on does not change.
+``synchronous = FULL`` the log is flushed to the disk before a commit returns, so a row whose commit returned
+survives the death of the process and a power cut alike: the loss bound is the cell whose commit was under way
+(its transaction is rolled back whole, never half written; tests/runner/test_signals.py kills writers in the
+middle of commits). When a run completes the log is folded back into the database file, which from then on does
+not change.
 
 Exports (:func:`export_table`, :func:`write_csv`, :func:`write_parquet`, :func:`frame`) read the rows in
 cell order and contain no timings or timestamps, so the files of an interrupted-and-resumed run are

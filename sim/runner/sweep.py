@@ -30,9 +30,11 @@ of times (``KilledWorker``) is recorded as failed, and the others go on.
 
 from __future__ import annotations
 
+import ctypes
 import itertools
 import multiprocessing as mp
 import os
+import signal
 import socket
 import sys
 import threading
@@ -126,10 +128,45 @@ def run_payload(payload: dict) -> dict:
     return out
 
 
-def _worker_init(plugins) -> None:
-    """Initialiser of local worker processes: plugins loaded. (Cells ask for their number of threads
-    through ``numba.set_num_threads``; ``NUMBA_NUM_THREADS`` must not change once numba is imported.)"""
+#: how often a worker looks whether the process that started it is still there (seconds)
+PARENT_POLL = 0.5
+_PR_SET_PDEATHSIG = 1
+
+
+def _poll_parent(parent: int) -> None:
+    while True:
+        if os.getppid() != parent:
+            os._exit(1)
+        time.sleep(PARENT_POLL)
+
+
+def _die_with_parent(parent: int) -> None:
+    """Make this worker end when the process that started it ends, however it ends (even SIGKILL or the kernel's
+    out-of-memory killer, which give the parent no chance to stop its workers): on Linux the kernel sends the
+    worker SIGKILL when its parent dies (``prctl(PR_SET_PDEATHSIG)``); elsewhere, and as a second guard, a thread
+    of the worker polls its parent's process id."""
+    if sys.platform.startswith("linux"):
+        try:
+            ctypes.CDLL(None, use_errno=True).prctl(_PR_SET_PDEATHSIG, signal.SIGKILL, 0, 0, 0)
+        except (OSError, AttributeError):  # pragma: no cover - a libc without prctl
+            pass
+    if os.getppid() != parent:  # the parent died before the guard was set
+        os._exit(1)
+    threading.Thread(target=_poll_parent, args=(parent,), daemon=True, name="parent-watch").start()
+
+
+def _worker_init(plugins, parent: int) -> None:
+    """Initialiser of local worker processes: bound to the life of the parent, plugins loaded. (Cells ask for
+    their number of threads through ``numba.set_num_threads``; ``NUMBA_NUM_THREADS`` must not change once numba is
+    imported.)"""
+    _die_with_parent(parent)
     _ensure_plugins(plugins)
+
+
+def _stop_workers() -> None:
+    """Kill this process's worker processes at once (an interruption must not wait for the cells in flight)."""
+    for child in mp.active_children():
+        child.kill()
 
 
 # --------------------------------------------------------------------------------------------------
@@ -226,7 +263,7 @@ def _processes(payloads: Iterable[dict], on_result, workers: int, plugins) -> No
     exhausted = False
     while not exhausted or feed.again:
         pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_worker_init,
-                                   initargs=(plugins,))
+                                   initargs=(plugins, os.getpid()))
         inflight: dict = {}
         broken = False
         try:
@@ -273,6 +310,10 @@ def _processes(payloads: Iterable[dict], on_result, workers: int, plugins) -> No
                     inflight.clear()
                     exhausted = False
                     break
+        except BaseException:
+            _stop_workers()
+            broken = True
+            raise
         finally:
             pool.shutdown(wait=not broken, cancel_futures=True)
         if not broken and exhausted:
