@@ -113,8 +113,14 @@ def latex_table(headers, rows, caption: str | None = None, label: str | None = N
     return "\n".join(lines) + "\n"
 
 
+def _md_text(text) -> str:
+    """Text for Markdown: HTML in it is shown as text, never run by a viewer that renders Markdown (a label such
+    as ``<script>`` from an experiment file stays inert)."""
+    return html.escape(str(text), quote=False)
+
+
 def _md_escape(text: str) -> str:
-    return str(text).replace("|", r"\|")
+    return _md_text(text).replace("|", r"\|")
 
 
 def markdown_table(headers, rows, digits: int = 4) -> str:
@@ -285,20 +291,20 @@ class Bundle:
             self.files.append(rel)
 
     def markdown(self) -> str:
-        out = [f"# {self.title}", ""]
+        out = [f"# {_md_text(self.title)}", ""]
         for b in self.blocks:
             d = b.data
             if b.kind == "heading":
-                out += ["#" * d["level"] + " " + d["text"], ""]
+                out += ["#" * d["level"] + " " + _md_text(d["text"]), ""]
             elif b.kind == "paragraph":
-                out += [(f"*{d['text']}*" if d["note"] else d["text"]), ""]
+                out += [(f"*{_md_text(d['text'])}*" if d["note"] else _md_text(d["text"])), ""]
             elif b.kind == "bullets":
-                out += [f"- {x}" for x in d["items"]] + [""]
+                out += [f"- {_md_text(x)}" for x in d["items"]] + [""]
             elif b.kind == "code":
                 out += ["```", d["text"].rstrip("\n"), "```", ""]
             elif b.kind == "table":
                 if d["caption"]:
-                    out += [f"**{d['caption']}**", ""]
+                    out += [f"**{_md_text(d['caption'])}**", ""]
                 rows = d["rows"][: d["max_rows"]]
                 out += [markdown_table(d["headers"], rows, d["digits"]), ""]
                 extra = []
@@ -306,11 +312,12 @@ class Bundle:
                     extra.append(f"First {d['max_rows']} of {len(d['rows'])} rows")
                 extra.append(f"table: `tables/{d['name']}.csv`, `tables/{d['name']}.tex`")
                 if d["note"]:
-                    extra.insert(0, d["note"])
+                    extra.insert(0, _md_text(d["note"]))
                 out += ["*" + "; ".join(extra) + ".*", ""]
             elif b.kind == "figure":
-                out += [f"![{d['caption']}](figures/{d['name']}.png)", "",
-                        f"*Figure: {d['caption']}* (`figures/{d['name']}.png`, `figures/{d['name']}.pdf`)", ""]
+                cap = _md_text(d["caption"])
+                out += [f"![{cap}](figures/{d['name']}.png)", "",
+                        f"*Figure: {cap}* (`figures/{d['name']}.png`, `figures/{d['name']}.pdf`)", ""]
         out += ["---", "", f"**Caution.** {self.caution}", ""]
         return "\n".join(out)
 

@@ -332,6 +332,25 @@ def export_table(rows: list[CellRow], parameters: list, declared_metrics=()) -> 
     return header, body
 
 
+#: first characters that make a spreadsheet read a text cell as a formula (OWASP, "CSV Injection")
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def safe_text(text: str) -> str:
+    """A text cell that a spreadsheet shows as text: one that starts like a formula gets a leading apostrophe,
+    as the OWASP guidance on CSV injection recommends (numbers are written as numbers and never changed).
+
+    Parameters
+    ----------
+    text : str
+
+    Returns
+    -------
+    str
+    """
+    return "'" + text if text.startswith(_FORMULA_START) else text
+
+
 def _csv_value(v) -> str:
     # numpy scalars are written as the Python numbers they hold: repr(np.float64(x)) names the type.
     if v is None:
@@ -342,7 +361,9 @@ def _csv_value(v) -> str:
         return "" if math.isnan(v) else repr(float(v))
     if isinstance(v, np.integer):
         return str(int(v))
-    return str(v)
+    if isinstance(v, int | float):
+        return str(v)
+    return safe_text(str(v))
 
 
 def csv_text(header: list[str], body: list[list]) -> str:

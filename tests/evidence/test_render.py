@@ -45,3 +45,15 @@ def test_json_of_the_command_is_the_renderers(tmp_path, capsys):
     assert main(["thresholds", str(f), "--json"]) == 0
     doc = json.loads(capsys.readouterr().out)
     assert doc["thresholds"]["finite"][0]["T"] == 2 and "caution" in doc and doc["market"]["cost"] == [1.0, 1.5]
+
+
+def test_markdown_of_a_bundle_shows_html_as_text(tmp_path):
+    from sim.evidence.bundle import Bundle
+
+    with Bundle(tmp_path / "b", "A <b>title</b>") as b:
+        b.paragraph("a label <script>alert(1)</script> from a file")
+        b.table("t", ["value <i>"], [["<img src=x>"]], caption="<em>caption</em>")
+    md = (tmp_path / "b" / "summary.md").read_text()
+    html = (tmp_path / "b" / "summary.html").read_text()
+    assert "<script>" not in md and "&lt;script&gt;" in md and "<img" not in md and "<em>" not in md
+    assert "<script>" not in html and "<img src=x>" not in html

@@ -123,3 +123,42 @@ def test_report_out_refuses_another_runs_folder(finished_run, tmp_path, write_ex
     r = cli("report", finished_run, "--out", other / "report")
     assert r.code == 2 and "--out:" in r.err and "belongs to the run folder" in r.err
     assert sorted(p.name for p in other.rglob("*")) == before
+
+
+def test_text_cells_that_look_like_formulas_are_neutralised(tmp_path, write_experiment):
+    # OWASP, "CSV Injection": a text cell starting with = + - @ tab or CR is prefixed with an apostrophe
+    from sim.runner.store import csv_text
+
+    text = csv_text(["label", "x"], [["=HYPERLINK(\"http://example.invalid\")", -1.5], ["@SUM(A1)", 2],
+                                     ["-cmd", 3], ["plain", 4], ["\tx", 5]])
+    import csv
+    import io
+
+    rows = list(csv.reader(io.StringIO(text)))
+    assert rows[1] == ["'=HYPERLINK(\"http://example.invalid\")", "-1.5"]  # numbers stay numbers
+    assert rows[2][0] == "'@SUM(A1)" and rows[3] == ["'-cmd", "3"] and rows[4] == ["plain", "4"]
+    assert rows[5][0] == "'\tx"
+    # end to end: a swept strategy labelled like a formula
+    f = write_experiment("""
+        [experiment]
+        name = "labels"
+        kind = "simulate"
+        [market]
+        model = "cournot"
+        demand = "linear"
+        intercept = 100.0
+        cost = 10.0
+        n_firms = 2
+        [[strategies]]
+        strategy = "grim_trigger"
+        seats = 2
+        [run]
+        periods = 20
+        replications = 5
+        [sweep.strategies.1]
+        values = [{ strategy = "grim_trigger", seats = 2 }, { strategy = "tit_for_tat", seats = 2 }]
+        labels = ["=HYPERLINK(1)", "<script>x</script>"]
+        """)
+    s = run_experiment(f, tmp_path / "run", workers=1, progress=False)
+    csv = (s.folder / "results.csv").read_text()
+    assert "'=HYPERLINK(1)" in csv and "\n1,ok,=HYPERLINK" not in csv
