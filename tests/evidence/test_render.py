@@ -53,6 +53,7 @@ def test_markdown_of_a_bundle_shows_html_as_text(tmp_path):
     with Bundle(tmp_path / "b", "A <b>title</b>") as b:
         b.paragraph("a label <script>alert(1)</script> from a file")
         b.table("t", ["value <i>"], [["<img src=x>"]], caption="<em>caption</em>")
+        b.write()
     md = (tmp_path / "b" / "summary.md").read_text()
     html = (tmp_path / "b" / "summary.html").read_text()
     assert "<script>" not in md and "&lt;script&gt;" in md and "<img" not in md and "<em>" not in md
