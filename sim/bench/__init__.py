@@ -46,6 +46,8 @@ SECTIONS: dict = {
                  "Q-learning kernel vs plain-Python reference; 1,000 baseline sessions"),
     "tournament": ("sim.bench.tournament:bench_section",
                    "10-entrant duopoly tournament: wall time, driver overhead"),
+    "runfolders": ("sim.bench.runfolders:bench_section",
+                   "report and verify on run folders of 200, 2,000 and 20,000 cells: time, memory, growth"),
     "sweep": ("sim.bench.sweep:bench_section", "experiments layer: per-cell overhead, 2 local workers against 1"),
 }
 

@@ -38,6 +38,7 @@ backend.
 from __future__ import annotations
 
 import copy
+import functools
 import hashlib
 import math
 import re
@@ -130,8 +131,9 @@ class Parameter:
     def segments(self) -> tuple:
         return tuple(self.path.split("."))
 
-    @property
+    @functools.cached_property
     def numeric(self) -> bool:
+        """Whether every value is a number (computed once: reports ask it for every row)."""
         return all(is_real(v) for v in self.values)
 
     def __len__(self) -> int:
