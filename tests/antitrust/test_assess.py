@@ -13,7 +13,6 @@ import pytest
 import sim
 from sim import InputError, LinearDemand, LogitDemand, Market
 from sim.antitrust.assess import (
-    _flips,
     assess,
     assessment_from_dict,
     asymmetry,
@@ -21,6 +20,7 @@ from sim.antitrust.assess import (
     symmetric_counterpart,
 )
 from sim.antitrust.calibration import MarketData
+from sim.antitrust.compare import flips
 from sim.antitrust.merger import Merger
 from sim.core.jsonutil import dumps
 
@@ -41,15 +41,15 @@ def test_four_to_three_symmetric_cournot():
     assert c["threshold_before"] == pytest.approx(25 / 41, rel=1e-12)
     assert c["threshold_after"] == pytest.approx(4 / 7, rel=1e-12)
     assert c["direction"] == "easier" and c["change"] == pytest.approx(4 / 7 - 25 / 41, rel=1e-10)
-    np.testing.assert_allclose(a.before.report.grim.per_firm, 25 / 41, rtol=1e-12)
-    np.testing.assert_allclose(a.after.report.grim.per_firm, 4 / 7, rtol=1e-12)
+    np.testing.assert_allclose(a.before.thresholds["grim"]["per_firm"], 25 / 41, rtol=1e-12)
+    np.testing.assert_allclose(a.after.thresholds["grim"]["per_firm"], 4 / 7, rtol=1e-12)
     # at delta = 0.6 the agreement is sustainable only after the merger (4/7 < 0.6 < 25/41)
-    assert a.merger.post.spec().n_firms == 3
+    assert len(a.after.names) == 3 and len(a.merger["names_post"]) == 3
     a6 = assess(m, Merger([1, 2]), simulate=False, run={"delta": 0.6}, deltas=(0.6,))
     assert a6.conclusion["category"] == "after only"
     # partial collusion at 0.6: the full agreement after, less than full before
-    gain = {(p.scheme, p.T, p.delta): p.profit_gain for p in a6.before.partial}
-    gain_after = {(p.scheme, p.T, p.delta): p.profit_gain for p in a6.after.partial}
+    gain = {(p["scheme"], p.get("T"), p["delta"]): p["profit_gain"] for p in a6.before.partial_collusion}
+    gain_after = {(p["scheme"], p.get("T"), p["delta"]): p["profit_gain"] for p in a6.after.partial_collusion}
     assert gain_after[("grim", None, 0.6)] == pytest.approx(1.0) and gain[("grim", None, 0.6)] < 1.0
     # the fewer-firms factor uses the symmetric counterpart: the same formula at 4 and 3 firms
     row = next(f for f in a.factors if f["key"] == "firms")
@@ -68,13 +68,13 @@ def test_homogeneous_bertrand_unequal_shares_binding_firm_is_the_smallest():
     shares = [0.45, 0.3, 0.15, 0.1]
     m = Market(LinearDemand(10, 1, split=shares), cost=2.0, n_firms=4, model="bertrand")
     a = assess(m, Merger([2, 4]), simulate=False, deltas=())
-    g = a.before.report.grim
-    np.testing.assert_allclose(g.per_firm, 1 - np.array(shares), rtol=1e-12)
-    assert g.binding == 3 and g.market == pytest.approx(0.9, rel=1e-12)
+    g = a.before.thresholds["grim"]
+    np.testing.assert_allclose(g["per_firm"], 1 - np.array(shares), rtol=1e-12)
+    assert g["binding_firm"] == 4 and g["market"] == pytest.approx(0.9, rel=1e-12)
     # after: Firm 2 + Firm 4 holds 0.4; the smallest is Firm 3 with 0.15
-    ga = a.after.report.grim
-    np.testing.assert_allclose(ga.per_firm, [0.55, 0.6, 0.85], rtol=1e-12)
-    assert a.after.names[ga.binding] == "Firm 3" and ga.market == pytest.approx(0.85, rel=1e-12)
+    ga = a.after.thresholds["grim"]
+    np.testing.assert_allclose(ga["per_firm"], [0.55, 0.6, 0.85], rtol=1e-12)
+    assert ga["binding_name"] == "Firm 3" and ga["market"] == pytest.approx(0.85, rel=1e-12)
     assert a.conclusion["direction"] == "easier"
     assert a.conclusion["binding_before"] == "Firm 4" and a.conclusion["binding_after"] == "Firm 3"
 
@@ -105,11 +105,11 @@ def test_persistence_matches_the_geometric_first_breakdown():
     m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
     a = assess(m, Merger([1, 2]), monitoring={"implementation_error": e}, run={**SMALL_RUN, "periods": H},
                deltas=())
-    for side, n in ((a.before, 4), (a.after, 3)):
+    for label, side, n in (("before", a.before, 4), ("after", a.after, 3)):
         q = 1 - (1 - e) ** n
         expected = (1 - (1 - q) ** H) / q
-        est = side.simulation.metrics["first_breakdown"]
-        assert abs(est.value - expected) < 4 * est.se, (side.label, est.value, expected, est.se)
+        est = side.simulation["first_breakdown"]
+        assert abs(est["value"] - expected) < 4 * est["se"], (label, est["value"], expected, est["se"])
     p = a.conclusion["persistence"]
     assert p["collusive_share_after"] > p["collusive_share_before"] and p["significant"]
     # more noise, less persistence: the transparency factor
@@ -125,7 +125,7 @@ def test_same_seed_same_numbers_and_key_prefix_changes_streams():
     two = dumps(assess(m, Merger([1, 2]), **kw).to_dict())
     assert one == two
     other = assess(m, Merger([1, 2]), key=(9,), **kw)
-    assert other.before.simulation.metrics["collusive_share"].value != json.loads(one)["before"]["simulation"][
+    assert other.before.simulation["collusive_share"]["value"] != json.loads(one)["before"]["simulation"][
         "collusive_share"]["value"]
 
 
@@ -187,9 +187,9 @@ def test_where_the_conclusion_flips_along_a_calibration_input():
 
 def test_flip_locator():
     x = np.array([0.0, 1.0, 2.0, 3.0, 4.0])
-    assert _flips(x, np.array([1.0, 0.5, -0.5, -1.0, 1.0])) == pytest.approx([1.5, 3.5])
-    assert _flips(x, np.array([0.0, 1.0, 1.0, np.nan, 2.0])) == []
-    assert _flips(x, np.array([1.0, 0.0, -1.0, 0.0, 0.0])) == pytest.approx([1.0])
+    assert flips(x, np.array([1.0, 0.5, -0.5, -1.0, 1.0])) == pytest.approx([1.5, 3.5])
+    assert flips(x, np.array([0.0, 1.0, 1.0, np.nan, 2.0])) == []
+    assert flips(x, np.array([1.0, 0.0, -1.0, 0.0, 0.0])) == pytest.approx([1.0])
 
 
 def test_delta_and_noise_sensitivity():
@@ -241,7 +241,7 @@ _DOC = {
 def test_bad_tables_raise_naming_the_field(change, key, words):
     doc = {**_DOC, **change}
     with pytest.raises(InputError) as err:
-        assess(**{k: v for k, v in assessment_from_dict(doc).items() if k != "name"})
+        assess(**assessment_from_dict(doc))
     assert err.value.key == key and words in err.value.message
 
 
@@ -259,7 +259,7 @@ def test_post_merger_line_up_keeps_the_first_merging_firms_strategy():
               {"strategy": "grim_trigger"}]
     a = assess(m, Merger([2, 3]), lineup=lineup, monitoring={"perception_error": 0.01}, run=SMALL_RUN, deltas=())
     assert [e["strategy"] for e in a.settings["lineup_after"]] == ["grim_trigger", "finite_punishment"]
-    assert a.after.simulation.settings["lineup"][1]["strategy"] == "finite_punishment"
+    assert a.after.simulation["settings"]["lineup"][1]["strategy"] == "finite_punishment"
     # the assumptions say so
     said = [x for x in a.assumptions if "the merged firm Firm 2 + Firm 3 plays" in x]
     assert len(said) == 1
@@ -285,8 +285,8 @@ def test_warning_when_the_agreement_leaves_a_firm_below_its_nash_profit():
     proportional agreement is sustainable."""
     d = MarketData("logit", prices=[1.5, 1.4, 1.6, 1.2], shares=[0.3, 0.2, 0.1, 0.1], margin=0.3, owner=[1, 1, 2, 3])
     a = assess(d, Merger([1, 2]), simulate=False, deltas=())
-    st = a.before.report.stage
-    assert st.collusive.firm_profits[1] < st.nash.firm_profits[1]
+    pr = a.before.stage["profits"]
+    assert pr["collusive"][1] < pr["nash"][1]
     assert a.conclusion["threshold_before"] is None and len(a.conclusion["warnings"]) == 2
     assert "Firm 2 and Firm 3 no more than their static Nash profit" in a.conclusion["statement"]
     p = assess(d, Merger([1, 2]), simulate=False, deltas=(), agreement="proportional")
@@ -345,21 +345,6 @@ def test_fewer_firms_factor_counts_firms_not_products():
                                                   rel=1e-12)
 
 
-def test_rounding_residue_in_reported_changes_is_zero():
-    """At delta = 0.9 both markets of the shipped scenario sustain the full agreement under grim
-    trigger (thresholds about 0.61 and 0.68), so the profit gains are one up to rounding
-    (0.9999999999999984 after) and the reported change is exactly 0, not -1.554e-15."""
-    from sim.evidence.assess import assessment_tables
-
-    d = MarketData("logit", prices=[4.2, 3.9, 4.6, 3.7], shares=[0.22, 0.18, 0.12, 0.10], size=5e4, margin=0.35)
-    a = assess(d, Merger([2, 4]), simulate=False, deltas=(0.9,), partial=["grim"])
-    (row,) = assessment_tables(a)["partial_collusion"][1]
-    assert row[2] == pytest.approx(1.0, abs=1e-12) and row[3] == pytest.approx(1.0, abs=1e-12)
-    assert row[4] == 0.0
-    assert all(type(x) in (str, int, float, bool) or x is None for r in assessment_tables(a)["calibration"][1]
-               for x in r)
-
-
 def test_scaled_noise_is_validated_before_any_work():
     """The transparency factor's rescaled noise and every noise-sensitivity scale are built and
     checked when the assessment is prepared: a normal shock of sigma 0.2 doubled (0.4) is above the
@@ -397,10 +382,10 @@ def test_default_stream_key_is_that_of_cell_zero():
 
     m = Market(LinearDemand(100, 1), cost=10.0, n_firms=3)
     kw = {"monitoring": {"perception_error": 0.02}, "run": SMALL_RUN, "deltas": ()}
-    plain = assess(m, Merger([1, 2]), **kw).before.simulation.metrics["collusive_share"].value
-    cell0 = assess(m, Merger([1, 2]), key=CellContext(index=0).key, **kw).before.simulation.metrics
-    assert plain == cell0["collusive_share"].value
-    empty = assess(m, Merger([1, 2]), key=(), **kw).before.simulation.metrics["collusive_share"].value
+    plain = assess(m, Merger([1, 2]), **kw).before.simulation["collusive_share"]["value"]
+    cell0 = assess(m, Merger([1, 2]), key=CellContext(index=0).key, **kw).before.simulation
+    assert plain == cell0["collusive_share"]["value"]
+    empty = assess(m, Merger([1, 2]), key=(), **kw).before.simulation["collusive_share"]["value"]
     assert plain != empty
 
 
@@ -418,36 +403,40 @@ def test_sensitivity_ranges_take_the_sweep_syntax():
                sensitivity={"delta": {"values": [0.9, 0.5], "labels": ["patient", "impatient"]}})
     s = b.sensitivity["delta"]
     assert s["values"] == [0.5, 0.9] and s["labels"] == ["impatient", "patient"]
-    from sim.evidence.assess import assessment_tables
-
-    headers, rows = assessment_tables(b)["sensitivity_delta"]
-    assert headers[1] == "label" and [r[1] for r in rows] == ["impatient", "patient"]
 
 
-def test_presentation_reads_the_stored_document():
-    """Tables, summary and terminal text are read from the assessment's JSON data as a cell stores it
-    (keys sorted, nan and inf as null): the same as from the Assessment itself, the sensitivity sections
-    in their fixed order whatever the order of the keys, and a largest-to-smallest ratio over a zero
-    cost shown as inf again (JSON holds no inf)."""
-    from sim.core.values import canonical_json
-    from sim.evidence.assess import assessment_tables, render_text, summary_blocks
-    from sim.runner.kinds import clean_arrays
+def test_the_assessment_round_trips_through_json():
+    """The result is plain data: its JSON document rebuilds an equal result, whose document is the same; numbers
+    that are not finite (a threshold no discount factor below one reaches, a ratio over a zero cost) are stored
+    as None, so the document is strict JSON."""
+    from sim.antitrust.result import Assessment
 
     d = MarketData("logit", prices=[4.2, 3.9, 4.6], shares=[0.25, 0.2, 0.15], size=1000.0, margin=0.4)
-    a = assess(d, Merger([2, 3]), simulate=False, deltas=(0.9,), sensitivity={"size": [800.0, 2000.0],
-                                                                               "delta": [0.5, 0.9]})
-    stored = json.loads(canonical_json(clean_arrays({"assessment": a.to_dict()})))["assessment"]
-    assert list(stored["sensitivity"]) == ["delta", "size"]
-    assert assessment_tables(stored) == assessment_tables(a)
-    blocks = summary_blocks(stored)
-    assert blocks == summary_blocks(a)
-    shown = [b[1] for b in blocks if b[0] == "table"]
-    assert shown.index("sensitivity_size") < shown.index("sensitivity_delta")
-    assert render_text(stored, "x") == render_text(a, "x")
-
+    a = assess(d, Merger([2, 3]), monitoring={"perception_error": 0.01}, run={**SMALL_RUN, "replications": 30},
+               deltas=(0.9,), sensitivity={"size": [800.0, 2000.0], "delta": [0.5, 0.9], "noise": [0.0, 1.0]},
+               name="round-trip", currency="EUR", period="month")
+    doc = json.loads(json.dumps(a.to_dict(), allow_nan=False))
+    back = Assessment.from_dict(doc)
+    assert back == a and back.to_dict() == a.to_dict()
+    assert (back.name, back.currency, back.period) == ("round-trip", "EUR", "month")
+    assert "name" not in a.document() and a.document()["caution"] == a.caution
     z = assess(Market(LinearDemand(100, 1), cost=[0.0, 10.0, 10.0]), Merger([2, 3]), simulate=False, deltas=())
-    assert z.before.asymmetry["cost_ratio"] == math.inf
-    doc = json.loads(dumps(z.to_dict()))
-    assert doc["before"]["asymmetry"]["cost_ratio"] is None
-    before, after = assessment_tables(doc)["asymmetry"][1]
-    assert before[4] == math.inf and after[4] == math.inf
+    assert z.before.asymmetry["cost_ratio"] is None and "simulation" not in z.before.to_dict()
+    assert Assessment.from_dict(json.loads(json.dumps(z.to_dict(), allow_nan=False))) == z
+
+
+def test_a_cell_of_the_kind_returns_the_assessment_and_its_flat_metrics():
+    """The assess kind's cell carries the result object; its metrics are read from the result's plain data (the
+    headline thresholds and the per-firm grim-trigger thresholds of the four-to-three Cournot merger: 25/41 and
+    4/7 from (n+1)^2 / (n^2 + 6n + 1), Friedman, 1971)."""
+    from sim.runner.analyses.assess import KIND
+    from sim.runner.kinds import CellContext
+
+    doc = {**_DOC, "market": {**_DOC["market"], "n_firms": 4}}
+    cell = KIND.run(KIND.prepare(doc), CellContext(index=0))
+    a = cell.result
+    assert type(a).__name__ == "Assessment" and cell.arrays["assessment"] == a.document()
+    m = cell.metrics
+    assert m["threshold.before"] == pytest.approx(25 / 41, rel=1e-12) and m["direction"] == -1.0
+    assert m["threshold.grim.after.firm1"] == pytest.approx(4 / 7, rel=1e-12) and m["binding.after"] in (1, 2, 3)
+    assert set(m) == set(KIND.metric_names(KIND.prepare(doc)))

@@ -409,8 +409,8 @@ def test_shipped_scenario_thresholds_against_an_independent_logit_solution():
     doc["assess"].pop("sensitivity")
     a = run_assessment(KIND.prepare(doc))
     pre, post = _shipped_grim_thresholds()
-    np.testing.assert_allclose(a.before.report.grim.per_firm, pre, rtol=1e-9)
-    np.testing.assert_allclose(a.after.report.grim.per_firm, post, rtol=1e-9)
+    np.testing.assert_allclose(a.before.thresholds["grim"]["per_firm"], pre, rtol=1e-9)
+    np.testing.assert_allclose(a.after.thresholds["grim"]["per_firm"], post, rtol=1e-9)
     assert a.before.names[int(np.argmax(pre))] == "Firm D" and a.after.names[int(np.argmax(post))] == "Firm C"
     assert post.max() > pre.max()
 
@@ -493,9 +493,11 @@ def test_the_bundle_is_read_from_the_stored_cell(tmp_path, capsys):
     assert mb.pop("run_data") == {} and ma == mb
     assert ma["title"] == "Coordinated effects of a merger: small-merger"
     assert ma["seeds"]["streams"]["simulation after"] == [0, 1]
-    # the stored document is the bundle's assessment.json
+    # the bundle's assessment.json is the stored result; arrays.json keeps its document (without the name and units)
     stored = json.loads((run_dir / "arrays.json").read_text())["cells"][0]["arrays"]["assessment"]
-    assert json.loads(first["assessment.json"]) == stored
+    full = json.loads(first["assessment.json"])
+    assert full["name"] == "small-merger" and {k: v for k, v in full.items() if k not in (
+        "name", "currency", "period")} == stored
     md = first["summary.md"].decode()
     assert md.count("## Reproducing these numbers") == 1 and "`supergame report RUN_DIR` this bundle again" in md
     assert md.index("Caution: ") < md.index("## Conclusion under the stated assumptions")
@@ -513,3 +515,42 @@ def test_the_bundle_is_read_from_the_stored_cell(tmp_path, capsys):
     for rel in first:
         if rel.startswith(("tables/", "figures/")) or rel == "assessment.json":
             assert via_run[rel] == first[rel], rel
+
+
+def test_the_command_prints_and_plots_what_the_bundle_shows(tmp_path, capsys):
+    """supergame assess prints the renderer's console text of the result stored in its run folder (the text
+    supergame run FILE's folder gives as well), and its --plot PNGs are the bundle's figures byte for byte, as are
+    those of supergame run FILE --report."""
+    from sim.evidence.render import renderer_for
+    from sim.runner.runs import open_run
+
+    f = _write(tmp_path, SMALL.split("[assess.sensitivity]")[0] + "[assess.sensitivity]\ndelta = [0.5, 0.9]\n")
+    a, r, plots = tmp_path / "a", tmp_path / "r", tmp_path / "plots"
+    code, out, err = _run(["assess", str(f), "--out", str(a), "--plot", str(plots)], capsys)
+    assert code == 0, err
+    printed = out.rstrip("\n").split("\n\nRun folder: ")[0]
+    renderer = renderer_for("assess")
+    with open_run(a) as rf:
+        assert renderer.console(rf.result(0)) == printed
+    assert _run(["run", str(f), "--out", str(r), "--workers", "1", "--quiet", "--report"], capsys)[0] == 0
+    with open_run(r) as rf:
+        assert renderer.console(rf.result(0)) == printed
+    pngs = sorted(p.name for p in plots.glob("*.png"))
+    assert pngs == sorted(p.name for p in (a / "report" / "figures").glob("*.png")) and "thresholds.png" in pngs
+    assert "sensitivity_delta.png" in pngs and "persistence.png" in pngs
+    for name in pngs:
+        command = (plots / name).read_bytes()
+        assert command == (a / "report" / "figures" / name).read_bytes(), name
+        assert command == (r / "report" / "figures" / name).read_bytes(), name
+
+
+def test_json_of_the_command_is_the_renderers_document(tmp_path, capsys):
+    """--json prints the renderer's document of the stored result, with where the run folder and bundle are."""
+    from sim.antitrust.result import Assessment
+
+    f = _write(tmp_path, SMALL.split("[assess.sensitivity]")[0])
+    code, out, err = _run(["assess", str(f), "--out", str(tmp_path / "a"), "--json"], capsys)
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc.pop("run_folder") == str(tmp_path / "a") and doc.pop("bundle") == str(tmp_path / "a" / "report")
+    assert Assessment.from_dict(doc).to_dict() == doc and doc["name"] == "small-merger"
