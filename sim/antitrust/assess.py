@@ -174,8 +174,9 @@ def assess(source, merger, monitoring=None, lineup=None, run=None, agreement: st
     partial : sequence of str, optional
         Schemes whose partial collusion is reported (default: grim trigger, and finite reversion for
         each punishment length; ``stick_carrot`` costs several seconds per discount factor).
-    growth : float
-        Demand growth (and decline) rate per period in the factor table.
+    growth : float in (-1, 1)
+        Demand growth rate per period of the factor table's growth row: 0 for none, negative for a declining
+        market. Profits growing at rate g make the effective discount factor ``delta (1 + g)``.
     simulate : bool
         Whether to run the simulations (persistence, the transparency factor, noise sensitivity).
     transparency_scale : float in (0, 100], not 1

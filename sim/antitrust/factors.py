@@ -2,10 +2,9 @@
 
 Each factor is named by the change it considers -- fewer firms, more symmetric firms, more transparency (less
 monitoring noise), more frequent interaction, growing demand -- so that "facilitates" reads "this change makes
-collusion easier". The direction this model computes is set beside the direction in Ivaldi, Jullien, Rey,
-Seabright and Tirole (2003, "The Economics of Tacit Collusion", final report for DG Competition, European
-Commission; see :data:`IVALDI` for which directions were read and which are recalled from memory). Frequency and
-growth are structural: the model's definitions fix their direction, so they are reported as such and not compared.
+collusion easier". The direction this model computes is set beside the direction the literature states, each with
+its source (:data:`LITERATURE`; full references in :data:`REFERENCES`). Frequency and growth are structural: the
+model's definitions fix their direction, so they are reported as such and not compared.
 """
 
 from __future__ import annotations
@@ -20,39 +19,50 @@ from sim.antitrust.options import has_noise
 from sim.antitrust.sides import scheme_threshold, symmetric_counterpart
 from sim.core.errors import InputError, SolverError
 
-__all__ = ["FACTOR_LEGEND", "IVALDI", "IVALDI_SOURCE", "STRUCTURAL", "factor_table"]
+__all__ = ["FACTOR_LEGEND", "LITERATURE", "REFERENCES", "STRUCTURAL", "factor_table"]
 
-#: The factor table's rows: key -> (name, direction in Ivaldi et al. (2003), their reasoning in our words,
-#: how the direction was established). Each factor is named by the change it considers, so that
-#: "facilitates" reads as "this change makes collusion easier". The directions of more frequent
-#: interaction and more transparency are the titles of sections III.4 and III.5 of the report ("Frequent
-#: interaction facilitates collusion", "Market transparency facilitates collusion", read from its table
-#: of contents); those of the number of competitors, of symmetry and of demand growth are recalled from
-#: the report's sections on them (from memory).
-IVALDI = {
+#: The factor table's rows: key -> (name, the direction the literature states, its reasoning in our words, the
+#: source of the direction). Each factor is named by the change it considers, so that "facilitates" reads as "this
+#: change makes collusion easier". Every direction is one a source states in the place cited: the titles of
+#: sections III.4 and III.5 of Ivaldi et al. (2003) ("Frequent interaction facilitates collusion", "Market
+#: transparency facilitates collusion"); the abstract of Davies and Olczak (2008) ("It is conventional wisdom that
+#: collusion is more likely the fewer firms there are in a market and the more symmetric they are"); section 1 of
+#: Correia-da-Silva, Pinho and Vasconcelos (2013) ("Demand growth is usually understood as facilitating collusion").
+LITERATURE = {
     "firms": ("fewer firms", "facilitates",
               "with fewer competitors each firm's share of the collusive profit is larger and its gain from "
-              "undercutting smaller, so collusion is easier to sustain", "from memory"),
+              "undercutting smaller, so collusion is easier to sustain",
+              "Davies and Olczak (2008), abstract; discussed in Ivaldi et al. (2003), section III.1"),
     "symmetry": ("more symmetric firms", "facilitates",
                  "asymmetries in costs, capacities or market shares hinder collusion: the advantaged firm gains "
-                 "more from deviating and less from colluding", "from memory"),
+                 "more from deviating and less from colluding", "Davies and Olczak (2008), abstract"),
     "transparency": ("more transparent (less noise)", "facilitates",
                      "market transparency facilitates collusion: deviations are detected, and punished, sooner and "
-                     "price wars are not set off by mistake", "section title"),
+                     "price wars are not set off by mistake", "Ivaldi et al. (2003), section III.5"),
     "frequency": ("more frequent interaction", "facilitates",
                   "frequent interaction (and frequent price adjustment) facilitates collusion: retaliation comes "
-                  "sooner", "section title"),
+                  "sooner", "Ivaldi et al. (2003), section III.4"),
     "growth": ("growing demand", "facilitates",
                "collusion is easier in growing markets, where tomorrow's profits weigh more, and harder in "
-               "declining ones", "from memory"),
+               "declining ones",
+               "Correia-da-Silva, Pinho and Vasconcelos (2013), section 1; discussed in Ivaldi et al. (2003), "
+               "section III.6"),
 }
-IVALDI_SOURCE = ("Ivaldi, Jullien, Rey, Seabright and Tirole (2003), The Economics of Tacit Collusion, final report "
-                 "for DG Competition, European Commission (directions of more frequent interaction and more "
-                 "transparency: the titles of its sections III.4 and III.5; the others from memory)")
+#: The works the factor table cites, in full.
+REFERENCES = {
+    "Ivaldi et al. (2003)": "Ivaldi, M., B. Jullien, P. Rey, P. Seabright and J. Tirole (2003), The Economics of "
+                            "Tacit Collusion, final report for DG Competition, European Commission",
+    "Davies and Olczak (2008)": "Davies, S. and M. Olczak (2008), Tacit versus overt collusion, firm asymmetries and "
+                                "numbers: what's the evidence?, Competition Policy International",
+    "Correia-da-Silva, Pinho and Vasconcelos (2013)": "Correia-da-Silva, J., J. Pinho and H. Vasconcelos (2013), "
+                                                      "Cartel stability and profits under different reactions to "
+                                                      "entry in markets with growing demand, FEP Working Paper 487, "
+                                                      "University of Porto",
+}
 #: Direction of a factor whose effect follows from the model's definitions rather than a computation.
 STRUCTURAL = "structural (by construction)"
-#: How to read the factor table (the summary, the LaTeX caption and the terminal output carry it; every
-#: row's ``reading`` says the same for that row, also in the CSV).
+#: How to read the factor table (the bundle shows it once, below the table; every row's ``reading`` says the same
+#: for that row, also in the CSV).
 FACTOR_LEGEND = ("Each factor is named by the change it considers. 'facilitates': in the model that change makes "
                  "collusion easier (a lower critical discount factor, or more persistent simulated collusion); "
                  "'hinders': it makes collusion harder; 'no effect': no difference (for simulations, none beyond "
@@ -81,7 +91,7 @@ def _combine(dirs: list) -> str:
     return dirs[0] if all(d == dirs[0] for d in dirs) else "mixed"
 
 
-def _reading(key: str, direction: str, iv_dir: str) -> str:
+def _reading(key: str, direction: str, lit_dir: str) -> str:
     """One row of the factor table in words (what its direction cells mean)."""
     subj, plural = _SUBJECTS[key]
     make, have = ("make", "have") if plural else ("makes", "has")
@@ -94,18 +104,18 @@ def _reading(key: str, direction: str, iv_dir: str) -> str:
         STRUCTURAL: f"structural: by construction of the model {subj} can only make collusion easier (or leave it "
                     "unchanged), so this is not a computed direction and is not compared with the literature",
     }[direction]
-    lit = {"facilitates": "easier", "hinders": "harder"}[iv_dir]
-    return f"{model}; Ivaldi et al. (2003): {subj} {make} collusion {lit}"
+    lit = {"facilitates": "easier", "hinders": "harder"}[lit_dir]
+    return f"{model}; in the literature {subj} {make} collusion {lit}"
 
 
 def _row(key: str, varied: str, measure: str, vals: dict, direction: str, note: str = "") -> dict:
-    name, iv_dir, iv_text, basis = IVALDI[key]
+    name, lit_dir, lit_text, source = LITERATURE[key]
     structural = direction == STRUCTURAL
-    agrees = None if structural or direction in ("not computed", "mixed") else direction == iv_dir
+    agrees = None if structural or direction in ("not computed", "mixed") else direction == lit_dir
     return {"key": key, "factor": name, "varied": varied, "measure": measure, "values": vals,
-            "model_direction": direction, "structural": structural, "ivaldi_direction": iv_dir,
-            "ivaldi": iv_text, "ivaldi_basis": basis, "agrees": agrees,
-            "reading": _reading(key, direction, iv_dir), "note": note}
+            "model_direction": direction, "structural": structural, "literature_direction": lit_dir,
+            "literature": lit_text, "source": source, "agrees": agrees,
+            "reading": _reading(key, direction, lit_dir), "note": note}
 
 
 def _fewer_firms(pre, opts: dict, measure: str) -> dict:
@@ -208,18 +218,30 @@ def _frequency(sides, opts: dict, delta: float) -> dict:
                                                "the discount factor per interaction, which can only help")
 
 
+def _growth_varied(g: float) -> str:
+    if g > 0:
+        return f"demand growing (declining) by {g:g} per period: effective discount factor delta (1 +/- g)"
+    if g < 0:
+        return (f"demand declining by {-g:g} per period, as stated (and growing at that rate, for comparison): "
+                "effective discount factor delta (1 + g)")
+    return ("no growth stated (g = 0): the growth or decline per period each market can bear; effective discount "
+            "factor delta (1 + g)")
+
+
 def _growth(sides, opts: dict, delta: float) -> dict:
-    # profits growing at rate g make the effective discount factor delta (1 + g) -- structural as well
+    # profits growing at rate g per period make the effective discount factor delta (1 + g) -- structural as well;
+    # the row compares growth and decline at the stated rate's size |g| (a declining market states g < 0)
     g = opts["growth"]
+    size = abs(g)
     vals = {}
     for side in sides:
         t = side.headline(opts).market
-        up, down = min(delta * (1 + g), 1.0 - 1e-15), delta * (1 - g)
+        up, down = min(delta * (1 + size), 1.0 - 1e-15), delta * (1 - size)
         vals[side.label] = {"threshold": finite_or_none(t),
                             "growth_needed": (t / delta - 1.0) if math.isfinite(rank(t)) and delta > 0 else None,
                             "sustainable_declining": sustains(t, down), "sustainable": sustains(t, delta),
                             "sustainable_growing": sustains(t, up)}
-    return _row("growth", f"demand growing (declining) by {g:g} per period: effective discount factor delta (1 +/- g)",
+    return _row("growth", _growth_varied(g),
                 "growth per period needed for sustainability, threshold / delta - 1 (negative: the decline tolerated)",
                 vals, STRUCTURAL, "assumes every stage profit scales with demand (true of the shipped demand systems "
                                   "when quantities scale; capacities grow with demand)")

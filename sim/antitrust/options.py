@@ -108,7 +108,8 @@ def check_options(scheme, length, punishments, deltas, partial, growth, simulate
     parts = _list_of(f"{prefix}.partial", partial, Options(*SCHEME_NAMES))
     if "finite" in parts and not Ts:
         raise InputError(f"{prefix}.partial", "'finite' needs at least one punishment length in assess.punishments")
-    growth = Real(0, 1, closed="neither").check(f"{prefix}.growth", growth)
+    # a declining market states a negative rate; below -1 demand would vanish within one period
+    growth = Real(-1, 1, closed="neither").check(f"{prefix}.growth", growth)
     simulate_flag = Boolean().check(f"{prefix}.simulate", simulate_flag)
     tscale = Real(0, 100, closed="right").check(f"{prefix}.transparency_scale", transparency_scale)
     if tscale == 1.0:

@@ -20,16 +20,45 @@ from sim.core.jsonutil import dumps
 from sim.core.text import CAUTION, table
 from sim.evidence.assess_figures import assessment_figures
 from sim.evidence.assess_summary import summary_blocks
-from sim.evidence.assess_tables import as_float, assessment_data, assessment_tables, in_order, yes_no
+from sim.evidence.assess_tables import (
+    SIDES,
+    as_float,
+    assessment_data,
+    assessment_tables,
+    csv_tables,
+    in_order,
+    named_products,
+    num,
+    percent,
+    price_rows,
+    units,
+    yes_no,
+)
 from sim.evidence.render import Renderer, pyplot
 from sim.runner.analyses.assess import describe_cell
 
 __all__ = ["RENDERER", "as_json", "bundle", "console", "figures", "write_assessment"]
 
 
+def _stick_and_carrot_lines(d: dict) -> list[str]:
+    money = units(d)[0]
+    out = []
+    for label in SIDES:
+        sc = d[label]["thresholds"]["stick_carrot"]
+        if sc["market"] is None:
+            continue
+        act = "quantity" if d[label]["market"]["model"] == "cournot" else "price"
+        what = {"collusion": "not deviating from the agreement",
+                "punishment": "not deviating from the punishment"}.get(sc.get("binding_constraint"), "-")
+        level = num(sc["punishment_action"]) + (f" {money}" if act == "price" else "")
+        out.append(f"  stick and carrot {label}: one period at a common {act} of {level}, then back to the "
+                   f"agreement; {sc['binding_name']} binds, on {what}")
+    return out
+
+
 def console(a) -> str:
-    """The terminal summary of an assessment: the calibration, the merger, the thresholds, persistence, the factors,
-    the conclusion and the caution.
+    """The terminal summary of an assessment: the calibration, the merger, the thresholds (with the stick-and-carrot
+    punishments), persistence, the factors, the conclusion and the caution.
 
     Parameters
     ----------
@@ -46,23 +75,23 @@ def console(a) -> str:
     cal = d["calibration"]
     if cal is not None:
         lines.append(f"Calibration ({cal['demand']} demand, {cal['conduct'].split(':')[0]}; identified by "
-                     f"{cal['identified_by']}): the model's static equilibrium "
+                     f"{named_products(d, cal['identified_by'])}): the model's static equilibrium "
                      + ("reproduces" if cal["reproduced"] else "does NOT reproduce")
                      + f" the observed prices and quantities (largest relative residual "
                        f"{as_float(cal['max_relative_residual']):.3g})")
         lines.append("")
     m = d["merger"]
     lines.append(f"Merger: {' + '.join(m['merging'])}; HHI {as_float(m['hhi_pre']):.0f} -> "
-                 f"{as_float(m['hhi_post']):.0f}; "
-                 + "; ".join(f"{'product ' + str(r['product']) if r['product'] != 'market' else 'market price'} "
-                             f"{as_float(r['change']):+.2%}" for r in m["price_changes"]))
-    lines += ["", "Critical discount factors ('-': not sustainable below one)", table(*T["thresholds"], "lrlrllll"), ""]
+                 f"{as_float(m['hhi_post']):.0f}; static Nash prices: "
+                 + ", ".join(f"{lab} {percent(r['change'])}" for lab, r in price_rows(d)))
+    lines += ["", "Critical discount factors ('-': not sustainable below one)", table(*T["thresholds"], "lrlrllll")]
+    lines += [*_stick_and_carrot_lines(d), ""]
     if "persistence" in T:
         lines += ["Simulated persistence (95% confidence intervals)", table(*T["persistence"]), ""]
-    lines.append("Factors, each named by the change it considers: its effect on collusion in the model and in "
-                 "Ivaldi et al. (2003)")
-    lines.append(table(["factor", "model", "Ivaldi et al. (2003)", "agree"],
-                       [[r[0], r[3], r[4], r[5] or "-"] for r in T["factors"][1]], "llll"))
+    lines.append("Factors, each named by the change it considers: its effect on collusion in the model and in the "
+                 "literature")
+    lines.append(table(["factor", "model", "literature", "agree", "source"],
+                       [[r[0], r[3], r[4], r[6] or "-", r[5].split(";")[0]] for r in T["factors"][1]], "lllll"))
     lines += [FACTOR_LEGEND, "", c["statement"]]
     lines += [f"  sensitivity ({k}): {v}" for k, v in in_order(c.get("robustness") or {})]
     lines += ["", CAUTION]
@@ -154,7 +183,7 @@ def write_assessment(b, a, key=(0,)) -> list:
     drawn = assessment_figures(d)
     fig_of = {f.name: f for f in drawn}
     try:
-        _fill(b, summary_blocks(d, list(fig_of)), tables, fig_of)
+        _fill(b, summary_blocks(d, list(fig_of)), tables, fig_of, csv_tables(d))
     finally:
         plt = pyplot()
         for f in fig_of.values():  # figures not added (an error part-way)
@@ -179,25 +208,29 @@ def write_assessment(b, a, key=(0,)) -> list:
     return lines
 
 
-def _fill(b, blocks, tables, fig_of: dict) -> None:
+def _fill(b, blocks, tables, fig_of: dict, csv: dict) -> None:
     shown = set()
     for blk in blocks:
         if blk[0] == "heading":
-            b.heading(blk[1])
+            b.heading(*blk[1:])
         elif blk[0] == "paragraph":
             b.paragraph(blk[1])
+        elif blk[0] == "note":
+            b.paragraph(blk[1], note=True)
+        elif blk[0] == "assumptions":
+            b.assumption_items.extend(blk[1])
         elif blk[0] == "bullets":
             b.bullets(blk[1])
         elif blk[0] == "table":
             headers, rows = tables[blk[1]]
-            b.table(blk[1], headers, rows, caption=blk[2], max_rows=200)
+            b.table(blk[1], headers, rows, caption=blk[2], max_rows=200, csv_rows=csv.get(blk[1]))
             shown.add(blk[1])
         elif blk[0] == "figure":
             f = fig_of.pop(blk[1])
             b.figure(f.name, f.figure, f.caption)
     for name, (headers, rows) in tables.items():
         if name not in shown:
-            b.table(name, headers, rows, caption=name.replace("_", " "), show=False)
+            b.table(name, headers, rows, caption=name.replace("_", " "), show=False, csv_rows=csv.get(name))
 
 
 def _sweep_account(rf, b, exp, rows) -> list:

@@ -7,6 +7,8 @@ bytes.
 
 from __future__ import annotations
 
+import itertools
+
 import numpy as np
 
 from sim.evidence.assess_tables import SCHEME_LABELS, SIDES, as_float, assessment_data, in_order
@@ -37,7 +39,7 @@ def _arr(xs) -> np.ndarray:
 def _thresholds(plt, d: dict) -> Drawn:
     delta = d["conclusion"]["delta"]
     sch = d["conclusion"]["schemes"]
-    fig, ax = plt.subplots(figsize=(8, 4))
+    fig, ax = plt.subplots(figsize=(9, 4))
     x = np.arange(len(sch))
     b = [as_float(s["before"]) for s in sch]
     af = [as_float(s["after"]) for s in sch]
@@ -55,13 +57,13 @@ def _thresholds(plt, d: dict) -> Drawn:
     ax.set_ylabel("critical discount factor (market)")
     ax.set_title("Critical discount factors before and after the merger ('none': not sustainable below one)",
                  fontsize=9)
-    ax.legend(fontsize=8, loc="lower right")
+    _legend_outside(ax, fontsize=8)
     fig.tight_layout()
     return Drawn("thresholds", fig, _CAPTIONS["thresholds"])
 
 
 def _partial(plt, d: dict) -> Drawn:
-    fig, ax = plt.subplots(figsize=(7, 4))
+    fig, ax = plt.subplots(figsize=(9, 4))
     groups = {}
     for label in SIDES:
         for p in d[label]["partial_collusion"]:
@@ -78,13 +80,13 @@ def _partial(plt, d: dict) -> Drawn:
     ax.set_ylabel("profit gain of the best sustainable outcome")
     ax.set_ylim(-0.02, 1.05)
     ax.set_title("Partial collusion before (solid) and after (dashed) the merger", fontsize=9)
-    ax.legend(fontsize=7, ncol=2)
+    _legend_outside(ax, fontsize=7)
     fig.tight_layout()
     return Drawn("partial_collusion", fig, _CAPTIONS["partial_collusion"])
 
 
 def _persistence(plt, d: dict) -> Drawn:
-    fig, ax = plt.subplots(figsize=(7, 3.5))
+    fig, ax = plt.subplots(figsize=(9, 3.5))
     for label, col in (("before", _BEFORE), ("after", _AFTER)):
         y = _arr(d[label]["simulation"]["collusive_by_period"])
         ax.plot(np.arange(1, y.size + 1), y, color=col, lw=1, label=label)
@@ -92,52 +94,61 @@ def _persistence(plt, d: dict) -> Drawn:
     ax.set_ylabel("share of replications colluding")
     ax.set_ylim(-0.02, 1.02)
     ax.set_title("Simulated persistence of collusion under the experiment's monitoring noise", fontsize=9)
-    ax.legend(fontsize=8)
+    _legend_outside(ax, fontsize=8)
     fig.tight_layout()
     return Drawn("persistence", fig, _CAPTIONS["persistence"])
 
 
-def _segments(xs: np.ndarray, cats: list):
-    """Contiguous spans of equal category along ``xs`` (boundaries halfway between points)."""
+def _legend_outside(ax, handles=None, labels=None, fontsize=8) -> None:
+    """The legend to the right of the axes, clear of the data."""
+    if handles is None:
+        handles, labels = ax.get_legend_handles_labels()
+    ax.legend(handles, labels, fontsize=fontsize, loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
+
+
+def _segments(lo: float, hi: float, before, after) -> list:
+    """Spans of the discount factor in [lo, hi] with one conclusion each: the conclusion changes exactly at the
+    thresholds before and after (None: not sustainable below one)."""
+    cuts = sorted({lo, hi, *(t for t in (before, after) if t is not None and lo < t < hi)})
     out = []
-    if len(xs) == 0:
-        return out
-    edges = np.concatenate([[xs[0]], (xs[1:] + xs[:-1]) / 2, [xs[-1]]])
-    for k, c in enumerate(cats):
-        if c is None:
-            continue
-        out.append((edges[k], edges[k + 1], c))
+    for a, b in itertools.pairwise(cuts):
+        mid = (a + b) / 2
+        pre, post = before is not None and mid >= before, after is not None and mid >= after
+        out.append((a, b, {(True, True): "both", (False, False): "neither", (False, True): "after only",
+                           (True, False): "before only"}[(pre, post)]))
     return out
 
 
 def _along_delta(plt, s: dict) -> Drawn:
-    fig, ax = plt.subplots(figsize=(7, 4))
+    fig, ax = plt.subplots(figsize=(9, 4))
     ds = _arr(s["values"])
-    for lo_, hi_, cat in _segments(ds, s["category"]):
+    spans = _segments(float(ds[0]), float(ds[-1]), s["threshold_before"], s["threshold_after"])
+    for lo_, hi_, cat in spans:
         ax.axvspan(lo_, hi_, color=_CATEGORY_COLOURS[cat], alpha=0.35, lw=0)
     ax.plot(ds, _arr(s["profit_gain_before"]), "-o", ms=3, color=_BEFORE, label="before")
     ax.plot(ds, _arr(s["profit_gain_after"]), "--o", ms=3, color=_AFTER, label="after")
     for t, lab in ((s["threshold_before"], "threshold before"), (s["threshold_after"], "threshold after")):
         if t is not None:
             ax.axvline(t, color="k", lw=0.8, ls=":")
-            ax.text(t, 0.02, lab, rotation=90, fontsize=7, va="bottom", ha="right")
+            ax.text(t, 0.02, f"{lab} {t:.4f}", rotation=90, fontsize=7, va="bottom", ha="right")
     if s.get("log"):
         ax.set_xscale("log")
     ax.set_xlabel("discount factor")
     ax.set_ylabel(f"profit gain ({s['scheme']})")
     ax.set_ylim(-0.02, 1.25)
+    drawn = {cat for _lo, _hi, cat in spans}
     handles = [plt.Rectangle((0, 0), 1, 1, color=_CATEGORY_COLOURS[c], alpha=0.35) for c in _CATEGORY_COLOURS
-               if c in s["category"]]
-    labels = [_CATEGORY_LABELS[c] for c in _CATEGORY_COLOURS if c in s["category"]]
+               if c in drawn]
+    labels = [_CATEGORY_LABELS[c] for c in _CATEGORY_COLOURS if c in drawn]
     h0, l0 = ax.get_legend_handles_labels()
-    ax.legend(h0 + handles, l0 + labels, fontsize=7, loc="lower right")
+    _legend_outside(ax, h0 + handles, l0 + labels, fontsize=7)
     ax.set_title("Where the conclusion flips along the discount factor", fontsize=9)
     fig.tight_layout()
     return Drawn("sensitivity_delta", fig, _CAPTIONS["sensitivity_delta"])
 
 
 def _along_noise(plt, s: dict) -> Drawn:
-    fig, ax = plt.subplots(figsize=(7, 4))
+    fig, ax = plt.subplots(figsize=(9, 4))
     k = _arr(s["scales"])
     for lab, col, ls in (("before", _BEFORE, "-"), ("after", _AFTER, "--")):
         y = _arr(s[f"collusive_share_{lab}"])
@@ -152,7 +163,7 @@ def _along_noise(plt, s: dict) -> Drawn:
     ax.set_ylabel("share of collusive periods")
     ax.set_ylim(-0.02, 1.02)
     ax.set_title("Simulated persistence against monitoring noise (95% confidence bands)", fontsize=9)
-    ax.legend(fontsize=8)
+    _legend_outside(ax, fontsize=8)
     fig.tight_layout()
     return Drawn("sensitivity_noise", fig, _CAPTIONS["sensitivity_noise"])
 
@@ -170,6 +181,9 @@ def _cell_edges(xs: np.ndarray, log: bool) -> np.ndarray:
 
 
 _CODES = {"neither": 0, "before only": 1, "both": 2, "after only": 3}
+_INPUT_LABELS = {"margin": "price-cost margin of the reference product", "elasticity": "own-price elasticity of the "
+                 "reference product", "market_elasticity": "market elasticity of demand",
+                 "size": "potential market size (logit)"}
 
 
 def _phase_grid(s: dict, ds: np.ndarray) -> tuple:
@@ -195,7 +209,7 @@ def _phase(plt, doc: dict, name: str, s: dict) -> Drawn:
     xs, tb, ta, grid = _phase_grid(s, ds)
     cmap = ListedColormap([_CATEGORY_COLOURS[c] for c in ("neither", "before only", "both", "after only")])
     norm = BoundaryNorm([-0.5, 0.5, 1.5, 2.5, 3.5], 4)
-    fig, ax = plt.subplots(figsize=(7.5, 4.5))
+    fig, ax = plt.subplots(figsize=(9.5, 4.5))
     de = np.concatenate([[ds[0]], (ds[1:] + ds[:-1]) / 2, [ds[-1]]])
     ax.pcolormesh(_cell_edges(xs, bool(s.get("log"))), de, np.ma.masked_invalid(grid), cmap=cmap, norm=norm,
                   alpha=0.6, shading="flat")
@@ -212,10 +226,10 @@ def _phase(plt, doc: dict, name: str, s: dict) -> Drawn:
     for v in sorted({int(v) for v in np.unique(grid[np.isfinite(grid)])}):
         handles.append(plt.Rectangle((0, 0), 1, 1, color=_CATEGORY_COLOURS[inv[v]], alpha=0.6))
         labels.append(_CATEGORY_LABELS[inv[v]])
-    ax.legend(handles, labels, fontsize=7, loc="lower left")
+    _legend_outside(ax, handles, labels, fontsize=7)
     if s.get("log"):
         ax.set_xscale("log")
-    ax.set_xlabel(name.replace("_", " ") + (" (reference product)" if name in ("margin", "elasticity") else ""))
+    ax.set_xlabel(_INPUT_LABELS[name])
     ax.set_ylabel("discount factor")
     ax.set_ylim(0, 1)
     ax.set_title(f"Sensitivity to the calibration input '{name}' ({doc['conclusion']['scheme']})", fontsize=9)

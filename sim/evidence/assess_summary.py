@@ -9,16 +9,32 @@ from __future__ import annotations
 
 import numpy as np
 
-from sim.antitrust.factors import FACTOR_LEGEND, IVALDI_SOURCE
+from sim.antitrust.factors import FACTOR_LEGEND
 from sim.antitrust.merger import difference
 from sim.core.text import CAUTION
-from sim.evidence.assess_tables import SIDES, as_float, assessment_data, in_order, market_text
+from sim.evidence.assess_methods import THRESHOLD_SHORT, methods_blocks
+from sim.evidence.assess_tables import (
+    SIDES,
+    as_float,
+    assessment_data,
+    in_order,
+    market_text,
+    named_products,
+    units,
+)
 
 __all__ = ["FACTORS_CAPTION", "summary_blocks"]
 
-#: Caption of the factor table (the LaTeX file carries it): its legend.
-FACTORS_CAPTION = ("Factors, each named by the change it considers: its effect on collusion computed by the model and "
-                   "in Ivaldi et al. (2003). " + FACTOR_LEGEND)
+#: Caption of the factor table; its legend follows the table once, as a note.
+FACTORS_CAPTION = "The usual factors: their effect on collusion in the model and in the literature"
+
+
+def _units_text(d: dict) -> str:
+    money, flow = units(d)
+    if d.get("currency") or d.get("period"):
+        return f"Units: prices and costs in {money}, profits and consumer surplus in {flow}"
+    return (f"Units: prices and costs in {money}, profits and consumer surplus in {flow} (the experiment states no "
+            "currency or period: set experiment.currency and experiment.period)")
 
 
 def _setup(d: dict) -> list:
@@ -29,7 +45,8 @@ def _setup(d: dict) -> list:
              + (f", stated post-merger cost {st['merger']['cost']}" if st["merger"]["cost"] is not None else ""),
              f"Post-merger market: {market_text(m['post_market'])}",
              f"Collusive agreement: {st['agreement']}; headline scheme: {c['scheme']}; discount factor "
-             f"{c['delta']:.4g}"]
+             f"{c['delta']:.4g}; demand growth per period for the factor table: {st['growth']:g}",
+             _units_text(d)]
     if st["simulate"]:
         r = st["run"]
         mon = st["monitoring"]
@@ -42,10 +59,11 @@ def _setup(d: dict) -> list:
     return [("heading", "Setup"), ("bullets", items)]
 
 
-def _calibration(cal: dict) -> list:
+def _calibration(d: dict) -> list:
+    cal = d["calibration"]
     B = [("heading", "Calibration"),
          ("paragraph", f"Conduct assumed: {cal['conduct']}. The price parameter is identified by "
-                       f"{cal['identified_by']}. The calibrated model's static Nash equilibrium "
+                       f"{named_products(d, cal['identified_by'])}. The calibrated model's static Nash equilibrium "
                        + ("reproduces" if cal["reproduced"] else "does NOT reproduce")
                        + f" the observed prices and quantities: largest relative residual "
                          f"{as_float(cal['max_relative_residual']):.3g} (tolerance 1e-08). Market elasticity at "
@@ -62,6 +80,7 @@ def _calibration(cal: dict) -> list:
 
 def _merger(d: dict) -> list:
     m = d["merger"]
+    flow = units(d)[1]
     cs_pre, cs_post = as_float(m["consumer_surplus_pre"]), as_float(m["consumer_surplus_post"])
     cs = difference(cs_post, cs_pre)
     cs_rel = cs / cs_pre if cs_pre else 0.0
@@ -69,8 +88,8 @@ def _merger(d: dict) -> list:
     B = [("heading", "The post-merger static equilibrium"),
          ("paragraph", f"HHI at the static equilibrium: {h0:.0f} before, {h1:.0f} after (change {dh:+.0f}; at "
                        f"pre-merger shares {naive:.0f}). Consumer surplus at the static equilibrium changes by "
-                       f"{cs:+.6g} ({cs_rel:+.2%})."),
-         ("table", "merger_prices", "Static Nash prices before and after the merger")]
+                       f"{cs:+.6g} {flow} ({cs_rel:+.2%})."),
+         ("table", "merger_prices", "Static Nash prices before and after the merger (change in percent)")]
     if m["notes"]:
         B.append(("bullets", list(m["notes"])))
     B.append(("heading", "Stage games and per-firm thresholds"))
@@ -107,11 +126,12 @@ def _factors(d: dict) -> list:
          ("table", "asymmetry", "Asymmetry measures at the static equilibrium"),
          ("table", "firms", "Firms at the static equilibrium"),
          ("heading", "The usual factors"),
-         ("paragraph", "Each factor is named by the change it considers (fewer firms, more symmetric firms, "
-                       "less monitoring noise, more frequent interaction, growing demand) and varied in the model "
-                       "with the rest held fixed; the direction the model computes is set beside the direction in "
-                       f"{IVALDI_SOURCE}."),
-         ("table", "factors", FACTORS_CAPTION)]
+         ("paragraph", "Each factor (fewer firms, more symmetric firms, less monitoring noise, more frequent "
+                       "interaction, growing demand) is varied in the model with the rest held fixed; the direction "
+                       "the model computes is set beside the direction the literature states, with its source "
+                       "(references under Methods)."),
+         ("table", "factors", FACTORS_CAPTION),
+         ("note", FACTOR_LEGEND)]
     notes = [f"{f['factor']}: {f['note']}" for f in d["factors"] if f["note"]]
     if notes:
         B.append(("bullets", notes))
@@ -139,7 +159,8 @@ def _sensitivity(d: dict, fig) -> list:
 
 
 def summary_blocks(a, figures=()) -> list:
-    """The summary in reading order (see the module notes).
+    """The summary in reading order (see the module notes; also ``("note", text)``, a paragraph set apart, and
+    ``("assumptions", [items])``, stated in the bundle's section of assumptions).
 
     Parameters
     ----------
@@ -164,16 +185,21 @@ def summary_blocks(a, figures=()) -> list:
     if c.get("robustness"):
         B.append(("bullets", [f"sensitivity to {k.replace('_', ' ')}: {v}" for k, v in in_order(c["robustness"])]))
     B.append(("table", "thresholds", "Critical discount factors of each scheme ('-': not sustainable below one)"))
+    B.append(("paragraph", "How each threshold is found:"))
+    B.append(("bullets", list(THRESHOLD_SHORT)))
+    B.append(("table", "stick_and_carrot", "Stick and carrot: the punishment of each market and the constraint "
+                                           "that binds its binding firm"))
+    weak = [label for label in SIDES if d[label]["thresholds"]["stick_carrot"].get("weaker_than_grim")]
+    if weak:
+        B.append(("note", f"{' and '.join(weak).capitalize()} the merger the best one-period stick is weaker than "
+                          "Nash reversion forever (capacities or the price floor limit how harsh one period can be)."))
     B += fig("thresholds")
     B += _setup(d)
     if d["calibration"] is not None:
-        B += _calibration(d["calibration"])
-    B += _merger(d) + _dynamics(d, fig) + _factors(d) + _sensitivity(d, fig)
-    # the run's report closes with the kind's general assumptions under "Assumptions and limitations"
-    B.append(("heading", "Assumptions and limitations of the assessment"))
-    B.append(("bullets", list(d["assumptions"]) + [
-        "critical discount factors say when an agreement can be sustained, not that firms coordinate: the model "
-        "does not show that coordination happens or would happen",
-        "the punishment schemes, the collusive agreement and the monitoring structure are modelling choices; other "
-        "choices give other numbers"]))
+        B += _calibration(d)
+    B += _merger(d) + _dynamics(d, fig) + _factors(d) + _sensitivity(d, fig) + methods_blocks(d)
+    # stated in the bundle's one section of assumptions, with the kind's general ones
+    B.append(("assumptions", [*(named_products(d, x) for x in d["assumptions"]),
+                              "the punishment schemes, the collusive agreement and the monitoring structure are "
+                              "modelling choices; other choices give other numbers"]))
     return B

@@ -8,16 +8,18 @@ sorted keys: tables follow fixed orders, never a dict's order.
 from __future__ import annotations
 
 import math
+import re
 
 import numpy as np
 
 from sim.antitrust.merger import difference
 from sim.antitrust.options import SENSITIVITY_INPUTS
+from sim.antitrust.result import DEFAULT_CURRENCY, DEFAULT_PERIOD
 from sim.core.text import fmt_num
 from sim.models.market import DEMAND_KEYS
 
-__all__ = ["FACTOR_HEADERS", "SIDES", "as_float", "assessment_data", "assessment_tables", "in_order", "market_text",
-           "num", "yes_no"]
+__all__ = ["FACTOR_HEADERS", "SIDES", "as_float", "assessment_data", "assessment_tables", "csv_tables", "in_order",
+           "market_text", "named_products", "num", "percent", "price_rows", "product_labels", "units", "yes_no"]
 
 #: order of the sensitivity ranges (that of :func:`sim.antitrust.sensitivity.sensitivity`)
 SENS_ORDER = (*SENSITIVITY_INPUTS, "delta", "noise")
@@ -26,7 +28,7 @@ SCHEME_LABELS = {"grim": "grim trigger", "stick_carrot": "stick and carrot"}
 #: Columns of the factor table; the last one says in words what the row's direction cells mean (the
 #: table's legend, row by row, so that the CSV file carries it too).
 FACTOR_HEADERS = ["factor (the change considered)", "what the model varies", "values (before; after)",
-                  "model: effect on collusion", "Ivaldi et al. (2003): effect on collusion", "agree", "reading"]
+                  "model: effect on collusion", "literature: effect on collusion", "source", "agree", "reading"]
 #: Keys of a market's table that follow its demand's parameters, in this order.
 _MARKET_LAST = ("cost", "n_firms", "capacity", "tick", "owner")
 
@@ -89,6 +91,102 @@ def assessment_data(a) -> dict:
     dict
     """
     return a if isinstance(a, dict) else a.to_dict()
+
+
+def units(d: dict) -> tuple[str, str]:
+    """The units of money in an assessment's tables.
+
+    Parameters
+    ----------
+    d : dict
+        The assessment's data.
+
+    Returns
+    -------
+    money : str
+        Prices and costs (``"EUR"``; default ``"currency units"``).
+    flow : str
+        Profits and consumer surplus (``"EUR per month"``; default ``"currency units per period"``).
+    """
+    cur = d.get("currency") or DEFAULT_CURRENCY
+    return cur, f"{cur} per {d.get('period') or DEFAULT_PERIOD}"
+
+
+def percent(x) -> str:
+    """A relative change as a percentage with its sign (``+0.19%``; ``-`` when undefined).
+
+    Parameters
+    ----------
+    x : float or None
+        The change as a fraction.
+
+    Returns
+    -------
+    str
+    """
+    v = as_float(x)
+    return "-" if not math.isfinite(v) else f"{v:+.2%}"
+
+
+def product_labels(d: dict) -> list[str]:
+    """A label per product of the pre-merger market: its firm's name, with the product's number when the firm has
+    several.
+
+    Parameters
+    ----------
+    d : dict
+        The assessment's data.
+
+    Returns
+    -------
+    list of str
+        One label per product.
+    """
+    names = d["merger"]["names_pre"]
+    owner = d["before"]["stage"]["owner"]
+    counts = {o: owner.count(o) for o in owner}
+    return [names[o - 1] if counts[o] == 1 else f"{names[o - 1]}, product {k + 1}" for k, o in enumerate(owner)]
+
+
+def named_products(d: dict, text: str) -> str:
+    """``text`` with every "product k" of the pre-merger market named as in the tables (its firm's name).
+
+    Parameters
+    ----------
+    d : dict
+        The assessment's data.
+    text : str
+
+    Returns
+    -------
+    str
+    """
+    labels = product_labels(d)
+
+    def name(m):
+        k = int(m.group(1))
+        return labels[k - 1] if 1 <= k <= len(labels) else m.group(0)
+
+    return re.sub(r"\bproduct (\d+)\b", name, text)
+
+
+def price_rows(d: dict) -> list:
+    """The static Nash price changes of the merger, each named.
+
+    Parameters
+    ----------
+    d : dict
+        The assessment's data.
+
+    Returns
+    -------
+    list of (str, dict)
+        The product's label (``"market price"`` for a homogeneous good) and its row of
+        ``merger["price_changes"]``.
+    """
+    labels = product_labels(d)
+    return [("market price" if r["product"] == "market" else labels[int(r["product"]) - 1], r)
+            for r in d["merger"]["price_changes"]]
 
 
 def in_order(d: dict, order=SENS_ORDER) -> list:
@@ -174,7 +272,7 @@ def market_text(d: dict) -> str:
     return f"{d['model'].capitalize()} competition, {d['demand']} demand: {params}"
 
 
-def _factor_values(f: dict) -> str:
+def _factor_values(f: dict, growth: float) -> str:
     v = f["values"]
     name = f["key"]
     if not v:
@@ -195,13 +293,22 @@ def _factor_values(f: dict) -> str:
             parts.append(f"{side}: threshold {num(x['threshold'])}, longest interval "
                          f"{num(x.get('longest_interval'), 3)} periods")
         elif name == "growth":
-            parts.append(f"{side}: growth needed {num(x['growth_needed'])}; growing "
-                         f"{yes_no(x['sustainable_growing'])}, declining {yes_no(x['sustainable_declining'])}")
+            parts.append(_growth_values(side, x, growth))
     return "; ".join(parts)
+
+
+def _growth_values(side: str, x: dict, g: float) -> str:
+    text = f"{side}: growth needed {num(x['growth_needed'])}"
+    if g == 0:
+        return text
+    at = x["sustainable_growing"] if g > 0 else x["sustainable_declining"]
+    other = x["sustainable_declining"] if g > 0 else x["sustainable_growing"]
+    return (text + f"; sustainable at the stated rate g = {g:+g} {yes_no(at)}, at g = {-g:+g} {yes_no(other)}")
 
 
 def _threshold_tables(d: dict) -> dict:
     c = d["conclusion"]
+    flow = units(d)[1]
     out = {"thresholds": (
         ["scheme", "before", "binding before", "after", "binding after", "effect of the merger",
          f"sustainable at {c['delta']:.4g} before", "after"],
@@ -217,9 +324,25 @@ def _threshold_tables(d: dict) -> dict:
         pr = side["stage"]["profits"]
         frows = [[nm, *(as_float(pr[k][i]) for k in ("collusive", "deviation", "nash", "minmax"))]
                  for i, nm in enumerate(side["names"])]
-        out[f"stage_game_{label}"] = (["firm", "collusive profit", "deviation profit", "Nash profit",
-                                       "minmax profit"], frows)
+        out[f"stage_game_{label}"] = (["firm", *(f"{w} profit ({flow})" for w in ("collusive", "deviation", "Nash",
+                                                                                  "minmax"))], frows)
+    out["stick_and_carrot"] = _stick_and_carrot(d)
     return out
+
+
+_CONSTRAINTS = {"collusion": "collusion: no gain from deviating from the agreement",
+                "punishment": "punishment: no gain from deviating from the punishment"}
+
+
+def _stick_and_carrot(d: dict) -> tuple:
+    cur = units(d)[0]
+    act = "quantity" if d["before"]["market"]["model"] == "cournot" else f"price ({cur})"
+    rows = []
+    for label in SIDES:
+        sc = d[label]["thresholds"]["stick_carrot"]
+        rows.append([label, sc["market"], sc.get("punishment_action"), sc["binding_name"],
+                     _CONSTRAINTS.get(sc.get("binding_constraint"), "-")])
+    return ["market", "threshold", f"punishment {act}, one period", "binding firm", "binding constraint"], rows
 
 
 def _partial_key(p: dict) -> tuple:
@@ -238,6 +361,7 @@ def _partial_table(d: dict) -> tuple:
 
 
 def _structure_tables(d: dict) -> dict:
+    cur = units(d)[0]
     arow, srow = [], []
     for label in SIDES:
         s = d[label]["asymmetry"]
@@ -251,37 +375,66 @@ def _structure_tables(d: dict) -> dict:
                          as_float(s["capacities"][i]) if cap else "-", s["products"][i]])
     return {"asymmetry": (["market", "firms", "HHI", "largest / smallest share", "highest / lowest cost",
                            "cost coefficient of variation", "largest / smallest capacity"], arow),
-            "firms": (["market", "firm", "share (static Nash)", "marginal cost", "capacity", "products"], srow),
-            "merger_prices": (["product", "owner after", "price before", "price after", "change"],
-                              [[r["product"], r["owner"] or "-", as_float(r["pre"]), as_float(r["post"]),
-                                as_float(r["change"])] for r in d["merger"]["price_changes"]])}
+            "firms": (["market", "firm", "share (static Nash)", f"marginal cost ({cur})", "capacity", "products"],
+                      srow),
+            "merger_prices": (["product", "owner after", f"price before ({cur})", f"price after ({cur})",
+                               "change"],
+                              [[lab, r["owner"] or "-", as_float(r["pre"]), as_float(r["post"]), percent(r["change"])]
+                               for lab, r in price_rows(d)])}
 
 
-_SIM_ROWS = [("collusive_share", "share of collusive periods"), ("war_share", "share of price-war periods"),
-             ("first_breakdown", "time to first breakdown (periods)"),
-             ("broken_down", "share of replications that broke down"),
-             ("spell_length", "mean collusive spell (periods)"), ("profit_gain", "profit gain"),
-             ("price", "mean market price"), ("consumer_surplus", "mean consumer surplus")]
+def csv_tables(a) -> dict:
+    """The tables whose CSV file holds more than the summary shows: the price changes as numbers.
+
+    Parameters
+    ----------
+    a : Assessment or dict
+
+    Returns
+    -------
+    dict
+        Table name -> ``(headers, rows)`` of its CSV file.
+    """
+    d = assessment_data(a)
+    cur = units(d)[0]
+    return {"merger_prices": (["product", "owner after", f"price before ({cur})", f"price after ({cur})",
+                               "change (%)"],
+                              [[lab, r["owner"] or "-", as_float(r["pre"]), as_float(r["post"]),
+                                100.0 * as_float(r["change"])] for lab, r in price_rows(d)])}
+
+
+#: the simulated metrics of the persistence table and their labels (``{money}``, ``{flow}``: the units)
+SIM_ROWS = [("collusive_share", "share of collusive periods"), ("war_share", "share of price-war periods"),
+            ("first_breakdown", "time to first breakdown (periods)"),
+            ("broken_down", "share of replications that broke down"),
+            ("spell_length", "mean collusive spell (periods)"), ("profit_gain", "profit gain"),
+            ("price", "mean market price ({money})"), ("consumer_surplus", "mean consumer surplus ({flow})")]
 
 
 def _persistence_table(d: dict) -> tuple:
+    money, flow = units(d)
     rows = []
-    for k, label in _SIM_ROWS:
+    for k, label in SIM_ROWS:
+        label = label.format(money=money, flow=flow)
         eb, ea = d["before"]["simulation"][k], d["after"]["simulation"][k]
         rows.append([label, *(as_float(e[x]) for e in (eb, ea) for x in ("value", "low", "high"))])
     return ["metric", "before", "95% low", "95% high", "after", "95% low", "95% high"], rows
 
 
-def _calibration_tables(cal: dict) -> dict:
+def _calibration_tables(d: dict) -> dict:
+    cal = d["calibration"]
+    cur = units(d)[0]
+    per = d.get("period") or DEFAULT_PERIOD
     ob, eq, res = cal["observed"], cal["equilibrium"], cal["residuals"]
+    labels = product_labels(d)
     rows = []
     for k in range(len(cal["costs"])):
-        rows.append([k + 1, *map(as_float, (ob["prices"][k], ob["quantities"][k], ob["shares"][k], cal["costs"][k],
+        rows.append([labels[k], *map(as_float, (ob["prices"][k], ob["quantities"][k], ob["shares"][k], cal["costs"][k],
                                             cal["margins"][k], eq["prices"][k], eq["quantities"][k],
                                             res["prices"][k], res["quantities"][k]))])
-    return {"calibration": (["product", "observed price", "observed quantity", "observed share", "implied cost",
-                             "implied margin", "model price", "model quantity", "price residual",
-                             "quantity residual"], rows),
+    return {"calibration": (["product", f"observed price ({cur})", f"observed quantity (per {per})", "observed share",
+                             f"implied cost ({cur})", "implied margin", f"model price ({cur})",
+                             f"model quantity (per {per})", f"price residual ({cur})", "quantity residual"], rows),
             "calibration_parameters": (["parameter", "value"], [[k, param_text(cal["parameters"][k])] for k in
                                                                 demand_order(cal["demand"], cal["parameters"])])}
 
@@ -326,11 +479,13 @@ def assessment_tables(a) -> dict:
     out.update(_structure_tables(d))
     if "simulation" in d["before"]:
         out["persistence"] = _persistence_table(d)
-    out["factors"] = (FACTOR_HEADERS, [[f["factor"], f["varied"], _factor_values(f), f["model_direction"],
-                                        f["ivaldi_direction"], "" if f["agrees"] is None else yes_no(f["agrees"]),
-                                        f["reading"]] for f in d["factors"]])
+    g = d["settings"]["growth"]
+    out["factors"] = (FACTOR_HEADERS, [[f["factor"], f["varied"], _factor_values(f, g), f["model_direction"],
+                                        f["literature_direction"], f["source"],
+                                        "" if f["agrees"] is None else yes_no(f["agrees"]), f["reading"]]
+                                       for f in d["factors"]])
     if d["calibration"] is not None:
-        out.update(_calibration_tables(d["calibration"]))
+        out.update(_calibration_tables(d))
     for name, s in in_order(d["sensitivity"]):
         out[f"sensitivity_{name}"] = _sensitivity_table(name, s, d["conclusion"]["delta"])
     return {name: (headers, [[_plain(v) for v in r] for r in rows]) for name, (headers, rows) in out.items()}

@@ -132,8 +132,9 @@ def test_same_seed_same_numbers_and_key_prefix_changes_streams():
 def test_frequency_and_growth_rows():
     """Frequency: with per-period discount factor delta, interacting once every L periods gives
     delta^L, so collusion survives up to L = ln(threshold) / ln(delta). Growth: profits growing at
-    rate g make the effective discount factor delta (1 + g) (Ivaldi et al., 2003 -- from memory),
-    so the growth needed is threshold / delta - 1."""
+    rate g make the effective discount factor delta (1 + g) (derived in the bundle's methods; checked
+    against the discounted streams in test_growth_and_decline_against_the_discounted_streams), so the growth
+    needed is threshold / delta - 1."""
     m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
     a = assess(m, Merger([1, 2]), simulate=False, run={"delta": 0.8}, deltas=(), growth=0.05)
     rows = {f["key"]: f for f in a.factors}
@@ -299,16 +300,23 @@ FACTOR_NAMES = ["fewer firms", "more symmetric firms", "more transparent (less n
 
 def test_factor_table_names_factors_by_their_direction():
     """Each factor is named by the change it considers, so that 'facilitates' reads 'this change makes
-    collusion easier', and every direction of Ivaldi et al. (2003) is 'facilitates' under those names:
-    fewer competitors, symmetry, transparency, frequent interaction and demand growth all make tacit
-    collusion easier (section titles III.4 'Frequent interaction facilitates collusion' and III.5
-    'Market transparency facilitates collusion'; the other three from memory). The two structural rows
-    (frequency, growth) are not computed directions: reported as structural, with no 'agree'."""
+    collusion easier', and every direction the literature states is 'facilitates' under those names, each with
+    the source that states it: section titles III.4 'Frequent interaction facilitates collusion' and III.5
+    'Market transparency facilitates collusion' of Ivaldi, Jullien, Rey, Seabright and Tirole (2003, The
+    Economics of Tacit Collusion); the abstract of Davies and Olczak (2008, Competition Policy International:
+    "conventional wisdom that collusion is more likely the fewer firms there are in a market and the more
+    symmetric they are"); section 1 of Correia-da-Silva, Pinho and Vasconcelos (2013, FEP Working Paper 487:
+    "Demand growth is usually understood as facilitating collusion"). The two structural rows (frequency, growth)
+    are not computed directions: reported as structural, with no 'agree'."""
     m = Market(LinearDemand(100, 1), cost=[10.0, 10.0, 12.0, 14.0])
     a = assess(m, Merger([3, 4]), monitoring={"implementation_error": 0.01}, run=SMALL_RUN, deltas=())
     rows = {f["key"]: f for f in a.factors}
     assert [f["factor"] for f in a.factors] == FACTOR_NAMES
-    assert {f["ivaldi_direction"] for f in a.factors} == {"facilitates"}
+    assert {f["literature_direction"] for f in a.factors} == {"facilitates"}
+    assert rows["transparency"]["source"] == "Ivaldi et al. (2003), section III.5"
+    assert rows["frequency"]["source"] == "Ivaldi et al. (2003), section III.4"
+    assert rows["symmetry"]["source"].startswith("Davies and Olczak (2008), abstract")
+    assert rows["growth"]["source"].startswith("Correia-da-Silva, Pinho and Vasconcelos (2013), section 1")
     for k in ("frequency", "growth"):
         assert rows[k]["model_direction"] == "structural (by construction)" and rows[k]["structural"]
         assert rows[k]["agrees"] is None and "not a computed direction" in rows[k]["reading"]
@@ -316,10 +324,10 @@ def test_factor_table_names_factors_by_their_direction():
     assert rows["firms"]["model_direction"] == "facilitates" and rows["firms"]["agrees"] is True
     assert rows["firms"]["reading"].startswith("in the model fewer firms make collusion easier")
     assert not rows["firms"]["structural"] and not rows["transparency"]["structural"]
-    # the row's words match its cells in every case
+    # the row's words match its cells in every case, and nothing is left unsourced
     for f in a.factors:
-        lit = "collusion easier" if f["ivaldi_direction"] == "facilitates" else "collusion harder"
-        assert f["reading"].endswith(lit)
+        lit = "collusion easier" if f["literature_direction"] == "facilitates" else "collusion harder"
+        assert f["reading"].endswith(lit) and f["source"] and "memory" not in json.dumps(f)
 
 
 def test_fewer_firms_factor_counts_firms_not_products():
@@ -440,3 +448,43 @@ def test_a_cell_of_the_kind_returns_the_assessment_and_its_flat_metrics():
     assert m["threshold.before"] == pytest.approx(25 / 41, rel=1e-12) and m["direction"] == -1.0
     assert m["threshold.grim.after.firm1"] == pytest.approx(4 / 7, rel=1e-12) and m["binding.after"] in (1, 2, 3)
     assert set(m) == set(KIND.metric_names(KIND.prepare(doc)))
+
+
+@pytest.mark.parametrize("g", [0.05, 0.0, -0.05])
+def test_growth_and_decline_against_the_discounted_streams(g):
+    """assess.growth accepts no growth and declining markets. With every profit growing at rate g, grim trigger
+    holds the binding firm when colluding forever is worth at least deviating once and earning the static Nash
+    profit ever after; summing the two discounted streams term by term (20,000 periods, delta (1 + |g|) <= 0.66, so
+    the neglected tails are below 1e-300) decides it without the closed form delta (1 + g). The row's flags at the
+    stated rate and at the opposite one agree with the sums, before and after the merger (thresholds 25/41 and
+    4/7, Friedman, 1971)."""
+    m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
+    delta = 0.6
+    a = assess(m, Merger([1, 2]), simulate=False, run={"delta": delta}, deltas=(), growth=g)
+    assert a.settings["growth"] == g
+    row = next(f for f in a.factors if f["key"] == "growth")
+    t = np.arange(20_000)
+    for label, side in a.sides():
+        i = side.thresholds["grim"]["binding_firm"] - 1
+        pr = side.stage["profits"]
+        C, D, N = pr["collusive"][i], pr["deviation"][i], pr["nash"][i]
+
+        def holds(rate, C=C, D=D, N=N):
+            w = (delta * (1 + rate)) ** t
+            return C * w.sum() >= D + N * w[1:].sum()
+
+        v = row["values"][label]
+        assert v["sustainable"] == holds(0.0)
+        assert v["sustainable_growing"] == holds(abs(g)) and v["sustainable_declining"] == holds(-abs(g))
+    # at delta = 0.6 the market before the merger (25/41 > 0.6) needs growth, the one after (4/7 < 0.6) bears a decline
+    assert row["values"]["before"]["growth_needed"] > 0 > row["values"]["after"]["growth_needed"]
+    if g < 0:
+        assert "declining by 0.05 per period, as stated" in row["varied"]
+
+
+@pytest.mark.parametrize("g", [-1.0, 1.0, 1.5])
+def test_growth_outside_minus_one_to_one_is_refused(g):
+    m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
+    with pytest.raises(InputError) as err:
+        prepare_assessment(m, Merger([1, 2]), simulate=False, growth=g)
+    assert err.value.key == "assess.growth" and "(-1, 1)" in err.value.message

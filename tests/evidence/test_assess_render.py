@@ -77,3 +77,34 @@ def test_a_ratio_over_a_zero_cost_shows_as_inf():
     assert z.before.asymmetry["cost_ratio"] is None
     before, after = assessment_tables(_stored(z))["asymmetry"][1]
     assert before[4] == math.inf and after[4] == math.inf
+
+
+def test_money_carries_the_experiments_currency_and_period():
+    """experiment.currency and experiment.period reach every table and sentence where money appears; without
+    them the unit is the neutral 'currency units per period'."""
+    from sim.evidence.assess_methods import methods_blocks
+    from sim.runner.analyses.assess import KIND
+    from sim.runner.kinds import CellContext
+
+    doc = {"experiment": {"name": "units", "kind": "assess", "currency": "EUR", "period": "month"},
+           "data": {"demand": "logit", **LOGIT}, "merger": {"firms": [2, 3]},
+           "monitoring": {"perception_error": 0.01}, "run": {"periods": 30, "replications": 20, "seed": 1},
+           "assess": {"deltas": [], "growth": -0.03}}
+    a = KIND.run(KIND.prepare(doc), CellContext()).result
+    assert (a.currency, a.period, a.money(), a.money(False)) == ("EUR", "month", "EUR per month", "EUR")
+    T = assessment_tables(a)
+    assert T["stage_game_before"][0][1] == "collusive profit (EUR per month)"
+    assert T["merger_prices"][0][2:4] == ["price before (EUR)", "price after (EUR)"]
+    assert T["calibration"][0][1:3] == ["observed price (EUR)", "observed quantity (per month)"]
+    text = RENDERER.console(a)
+    assert "mean consumer surplus (EUR per month)" in text and "mean market price (EUR)" in text
+    blocks = summary_blocks(a)
+    assert any(b[0] == "paragraph" and "EUR per month (" in b[1] for b in blocks)  # the consumer surplus change
+    assert any(b[0] == "bullets" and "Units: prices and costs in EUR, profits and consumer surplus in EUR per month"
+               in b[1] for b in blocks)
+    growth = next(r for r in T["factors"][1] if r[0] == "growing demand")
+    assert "at the stated rate g = -0.03" in growth[2] and "declining by 0.03 per period, as stated" in growth[1]
+    assert any("a decline of 0.03 per period (g = -0.03)" in b[1] for b in methods_blocks(a.to_dict())
+               if b[0] == "paragraph")
+    plain = Assessment.from_dict({**a.to_dict(), "currency": None, "period": None})
+    assert assessment_tables(plain)["stage_game_before"][0][1] == "collusive profit (currency units per period)"
