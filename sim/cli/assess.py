@@ -45,7 +45,7 @@ def run(args) -> int:
     assessment_from_dict(read_toml(args.file))
     exp = load_experiment(args.file)
     if args.plot:
-        output_dir(args.plot, key="--plot")
+        output_dir(args.plot)
     argv = (["supergame", *sys.argv[1:]] if sys.argv and sys.argv[0].endswith(("supergame", "__main__.py"))
             else ["supergame", "assess", args.file])
     s = run_experiment(exp, args.out, command=argv, report=True, write_report=write_report)
@@ -55,7 +55,7 @@ def run(args) -> int:
     with open_run(s.folder) as rf:
         result = rf.result(0)
     if args.plot:
-        write_figures(RENDERER.figures(result), args.plot, key="--plot")
+        write_figures(RENDERER.figures(result), args.plot)
     if args.json:
         emit(dumps(RENDERER.as_json(result) | {"run_folder": str(s.folder), "bundle": str(s.report)}, indent=2))
         return 0
