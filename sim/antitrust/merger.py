@@ -111,7 +111,26 @@ class Merger(Parametrized):
         self.names = names
 
     def validated(self, n_firms: int, prefix: str = "merger") -> dict:
-        """Checked values with ``firms`` as sorted 0-based indices; raises InputError."""
+        """The checked merger.
+
+        Parameters
+        ----------
+        n_firms : int
+            The number of firms of the pre-merger market.
+        prefix : str
+            Key path of the merger's table in error messages.
+
+        Returns
+        -------
+        dict
+            ``firms`` (the merging firms as sorted indices counted from 0), ``efficiency``, ``cost`` and ``names``
+            (one per firm).
+
+        Raises
+        ------
+        InputError
+            Naming the key path of the setting that is wrong.
+        """
         firms = self._constraints["firms"].check(f"{prefix}.firms", self.firms)
         eff = self._constraints["efficiency"].check(f"{prefix}.efficiency", self.efficiency)
         names = self._constraints["names"].check(f"{prefix}.names", self.names)
@@ -141,7 +160,18 @@ class Merger(Parametrized):
 
 
 def merger_from_dict(table: dict, prefix: str = "merger") -> Merger:
-    """Build a :class:`Merger` from an experiment file's ``[merger]`` table (unknown keys refused)."""
+    """Build a :class:`Merger` from an experiment file's ``[merger]`` table (unknown keys refused).
+
+    Parameters
+    ----------
+    table : dict
+    prefix : str
+        Key path of the table in error messages.
+
+    Returns
+    -------
+    Merger
+    """
     refuse_unknown(table, prefix, Merger._param_names())
     if "firms" not in table:
         raise InputError(f"{prefix}.firms", "missing: the merging firms (numbers or names)")
@@ -150,7 +180,16 @@ def merger_from_dict(table: dict, prefix: str = "merger") -> Merger:
 
 def difference(new: float, old: float) -> float:
     """``new - old``, reported as exactly 0 when it is rounding residue (``|new - old| <= RESIDUE *
-    max(1, |new|, |old|)``), e.g. ``1.0 - 0.9999999999999984``; nan when either is nan."""
+    max(1, |new|, |old|)``), e.g. ``1.0 - 0.9999999999999984``; nan when either is nan.
+
+    Parameters
+    ----------
+    new, old : float
+
+    Returns
+    -------
+    float
+    """
     new, old = float(new), float(old)
     d = new - old
     if math.isfinite(d) and abs(d) <= RESIDUE * max(1.0, abs(new), abs(old)):
@@ -159,7 +198,17 @@ def difference(new: float, old: float) -> float:
 
 
 def hhi(shares) -> float:
-    """Herfindahl-Hirschman index ``10000 * sum s_i^2`` of firm shares (fractions summing to one)."""
+    """Herfindahl-Hirschman index ``10000 * sum s_i^2`` of firm shares (fractions summing to one).
+
+    Parameters
+    ----------
+    shares : array_like of shape (n_firms,)
+
+    Returns
+    -------
+    float
+        Between 10000 / n_firms and 10000.
+    """
     s = np.asarray(shares, dtype=float)
     return float(10_000.0 * (s * s).sum())
 
@@ -168,7 +217,7 @@ def hhi(shares) -> float:
 class MergerResult:
     """The market before and after a merger, with both static equilibria.
 
-    Attributes
+    Parameters
     ----------
     pre, post : Market
     names_pre, names_post : list of str
@@ -214,10 +263,19 @@ class MergerResult:
 
     @property
     def delta_hhi(self) -> float:
+        """The change of the HHI at the static equilibria (0 when it is rounding residue)."""
         return difference(self.hhi_post, self.hhi_pre)
 
     def price_changes(self) -> list[dict]:
-        """Per product of the post-merger market: owner, pre and post price and relative change."""
+        """The static Nash prices before and after the merger.
+
+        Returns
+        -------
+        list of dict
+            One row per product of the post-merger market (``product`` counted from 1, ``owner`` after the
+            merger, ``pre``, ``post`` and the relative ``change``); for a homogeneous good one row, ``product =
+            "market"``, for the market price.
+        """
         ps = self.post.spec()
         pre_ms = self.pre.spec()
         out = []
@@ -232,6 +290,12 @@ class MergerResult:
         return out
 
     def to_dict(self) -> dict:
+        """The merger as plain JSON data.
+
+        Returns
+        -------
+        dict
+        """
         return {
             "merging": [self.names_pre[i] for i in self.merging], "merged_firm": self.names_post[self.merged],
             "efficiency": self.efficiency, "names_pre": self.names_pre, "names_post": self.names_post,
@@ -253,7 +317,18 @@ def _market_price(ms, outcome) -> float:
 
 
 def firm_shares(ms, outcome) -> np.ndarray:
-    """Each firm's share of the total quantity sold (inside goods), shape (n_firms,)."""
+    """Each firm's share of the total quantity sold (inside goods).
+
+    Parameters
+    ----------
+    ms : MarketSpec
+    outcome : Outcome
+
+    Returns
+    -------
+    ndarray of shape (n_firms,)
+        nan when nothing is sold.
+    """
     q = ms.firm_sum(np.asarray(outcome.quantities, float))
     tot = q.sum()
     return q / tot if tot > 0 else np.full(ms.n_firms, np.nan)
@@ -281,24 +356,8 @@ def merge(market, merger: Merger, prefix: str = "merger") -> MergerResult:
     F = ms.n_firms
     mv = merger.validated(F, prefix)
     idx = mv["firms"]
-    keep = idx[0]
-    firm_map = np.empty(F, dtype=np.int64)
-    nxt = 0
-    for i in range(F):
-        if i in idx and i != keep:
-            continue
-        firm_map[i] = nxt
-        nxt += 1
-    for i in idx:
-        firm_map[i] = firm_map[keep]
-    merged = int(firm_map[keep])
-    F_post = nxt
+    firm_map, merged, F_post, names_post = _renumbered(F, idx, mv["names"])
     names = mv["names"]
-    names_post = [""] * F_post
-    for i in range(F):
-        if i not in idx:
-            names_post[firm_map[i]] = names[i]
-    names_post[merged] = " + ".join(names[i] for i in idx)
     eff = mv["efficiency"]
     notes = []
     cost = np.asarray(ms.cost, dtype=float).copy()
@@ -358,10 +417,39 @@ def merge(market, merger: Merger, prefix: str = "merger") -> MergerResult:
         notes.append(f"the merged firm {names_post[merged]} sets the {actions} of its {own.size} products jointly; "
                      "each product keeps its marginal cost" + (f" less an efficiency of {eff:g}" if eff else "")
                      + ("; stated post-merger costs" if mv["cost"] is not None else ""))
+    return _solved(market, post, mv, firm_map, merged, names_post, notes, prefix)
+
+
+def _renumbered(F: int, idx: list, names: list) -> tuple:
+    """The post-merger number of each firm (the merged firm takes the place of the lowest-numbered merging firm),
+    the merged firm's number, the number of firms after the merger and their names."""
+    keep = idx[0]
+    firm_map = np.empty(F, dtype=np.int64)
+    nxt = 0
+    for i in range(F):
+        if i in idx and i != keep:
+            continue
+        firm_map[i] = nxt
+        nxt += 1
+    for i in idx:
+        firm_map[i] = firm_map[keep]
+    merged = int(firm_map[keep])
+    names_post = [""] * nxt
+    for i in range(F):
+        if i not in idx:
+            names_post[firm_map[i]] = names[i]
+    names_post[merged] = " + ".join(names[i] for i in idx)
+    return firm_map, merged, nxt, names_post
+
+
+def _solved(market, post, mv: dict, firm_map, merged: int, names_post: list, notes: list, prefix: str):
+    """Both static equilibria, the shares, HHI and consumer surplus at them, and the merger's result."""
     try:
         post.spec(prefix)
     except InputError as exc:
         raise InputError(f"{prefix}.cost", f"the post-merger market is invalid ({exc})") from None
+    ms = market.spec()
+    idx, names, cost = mv["firms"], mv["names"], np.asarray(ms.cost, dtype=float)
     pre_nash = static_nash(ms)
     post_ms = post.spec()
     post_nash = static_nash(post_ms)
@@ -382,7 +470,7 @@ def merge(market, merger: Merger, prefix: str = "merger") -> MergerResult:
     cs_post = float(post_ms.consumer_surplus(np.asarray(post_nash.actions)[None, :])[0])
     return MergerResult(
         pre=market, post=post, names_pre=list(names), names_post=names_post, firm_map=firm_map, merged=merged,
-        merging=list(idx), efficiency=eff, pre_nash=pre_nash, post_nash=post_nash, shares_pre=sh_pre,
+        merging=list(idx), efficiency=mv["efficiency"], pre_nash=pre_nash, post_nash=post_nash, shares_pre=sh_pre,
         shares_post=sh_post, hhi_pre=hhi(sh_pre), hhi_post=hhi(sh_post), naive_delta_hhi=float(naive),
         consumer_surplus_pre=cs_pre, consumer_surplus_post=cs_post, notes=notes,
     )

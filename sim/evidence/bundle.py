@@ -182,6 +182,9 @@ class Bundle:
     manifest : dict
         Entries for ``manifest.json`` added while the content is written (for example by an experiment
         kind's report); :meth:`write` merges its own ``manifest`` over them (dict entries key by key).
+    assumption_items : list of str
+        Assumptions added while the content is written (for example by an analysis's renderer); :meth:`assumptions`
+        states them first, in the bundle's one section of assumptions.
     """
 
     def __init__(self, folder, title: str, caution: str | None = None):
@@ -192,6 +195,7 @@ class Bundle:
         self.caution = CAUTION if caution is None else caution
         self.blocks: list[_Block] = []
         self.manifest: dict = {}
+        self.assumption_items: list = []
         self.files: list[str] = []
         self._names: set = set()
         self.folder.parent.mkdir(parents=True, exist_ok=True)
@@ -279,7 +283,7 @@ class Bundle:
 
     def assumptions(self, items, heading: str = "Assumptions and limitations") -> None:
         self.heading(heading)
-        self.bullets(items)
+        self.bullets([*self.assumption_items, *items])
 
     # -- writing -----------------------------------------------------------------------------------
 

@@ -93,6 +93,7 @@ class Renderer:
 #: kind name -> "module:attribute" of its :class:`Renderer` (imported on first use) or the Renderer itself
 RENDERERS: dict = {
     "thresholds": "sim.evidence.thresholds:RENDERER",
+    "assess": "sim.evidence.assess:RENDERER",
 }
 
 

@@ -53,7 +53,6 @@ __all__ = ["bundle_hook", "write_report"]
 #: the bundle accounts of kinds whose renderers do not give one yet (kind name -> "module:function")
 _BUNDLE_HOOKS = {
     "tournament": "sim.evidence.tournament:kind_report",
-    "assess": "sim.evidence.assess:kind_report",
 }
 
 

@@ -13,7 +13,6 @@ import pytest
 import sim
 from sim import InputError, LinearDemand, LogitDemand, Market
 from sim.antitrust.assess import (
-    _flips,
     assess,
     assessment_from_dict,
     asymmetry,
@@ -21,6 +20,7 @@ from sim.antitrust.assess import (
     symmetric_counterpart,
 )
 from sim.antitrust.calibration import MarketData
+from sim.antitrust.compare import flips
 from sim.antitrust.merger import Merger
 from sim.core.jsonutil import dumps
 
@@ -41,15 +41,15 @@ def test_four_to_three_symmetric_cournot():
     assert c["threshold_before"] == pytest.approx(25 / 41, rel=1e-12)
     assert c["threshold_after"] == pytest.approx(4 / 7, rel=1e-12)
     assert c["direction"] == "easier" and c["change"] == pytest.approx(4 / 7 - 25 / 41, rel=1e-10)
-    np.testing.assert_allclose(a.before.report.grim.per_firm, 25 / 41, rtol=1e-12)
-    np.testing.assert_allclose(a.after.report.grim.per_firm, 4 / 7, rtol=1e-12)
+    np.testing.assert_allclose(a.before.thresholds["grim"]["per_firm"], 25 / 41, rtol=1e-12)
+    np.testing.assert_allclose(a.after.thresholds["grim"]["per_firm"], 4 / 7, rtol=1e-12)
     # at delta = 0.6 the agreement is sustainable only after the merger (4/7 < 0.6 < 25/41)
-    assert a.merger.post.spec().n_firms == 3
+    assert len(a.after.names) == 3 and len(a.merger["names_post"]) == 3
     a6 = assess(m, Merger([1, 2]), simulate=False, run={"delta": 0.6}, deltas=(0.6,))
     assert a6.conclusion["category"] == "after only"
     # partial collusion at 0.6: the full agreement after, less than full before
-    gain = {(p.scheme, p.T, p.delta): p.profit_gain for p in a6.before.partial}
-    gain_after = {(p.scheme, p.T, p.delta): p.profit_gain for p in a6.after.partial}
+    gain = {(p["scheme"], p.get("T"), p["delta"]): p["profit_gain"] for p in a6.before.partial_collusion}
+    gain_after = {(p["scheme"], p.get("T"), p["delta"]): p["profit_gain"] for p in a6.after.partial_collusion}
     assert gain_after[("grim", None, 0.6)] == pytest.approx(1.0) and gain[("grim", None, 0.6)] < 1.0
     # the fewer-firms factor uses the symmetric counterpart: the same formula at 4 and 3 firms
     row = next(f for f in a.factors if f["key"] == "firms")
@@ -68,13 +68,13 @@ def test_homogeneous_bertrand_unequal_shares_binding_firm_is_the_smallest():
     shares = [0.45, 0.3, 0.15, 0.1]
     m = Market(LinearDemand(10, 1, split=shares), cost=2.0, n_firms=4, model="bertrand")
     a = assess(m, Merger([2, 4]), simulate=False, deltas=())
-    g = a.before.report.grim
-    np.testing.assert_allclose(g.per_firm, 1 - np.array(shares), rtol=1e-12)
-    assert g.binding == 3 and g.market == pytest.approx(0.9, rel=1e-12)
+    g = a.before.thresholds["grim"]
+    np.testing.assert_allclose(g["per_firm"], 1 - np.array(shares), rtol=1e-12)
+    assert g["binding_firm"] == 4 and g["market"] == pytest.approx(0.9, rel=1e-12)
     # after: Firm 2 + Firm 4 holds 0.4; the smallest is Firm 3 with 0.15
-    ga = a.after.report.grim
-    np.testing.assert_allclose(ga.per_firm, [0.55, 0.6, 0.85], rtol=1e-12)
-    assert a.after.names[ga.binding] == "Firm 3" and ga.market == pytest.approx(0.85, rel=1e-12)
+    ga = a.after.thresholds["grim"]
+    np.testing.assert_allclose(ga["per_firm"], [0.55, 0.6, 0.85], rtol=1e-12)
+    assert ga["binding_name"] == "Firm 3" and ga["market"] == pytest.approx(0.85, rel=1e-12)
     assert a.conclusion["direction"] == "easier"
     assert a.conclusion["binding_before"] == "Firm 4" and a.conclusion["binding_after"] == "Firm 3"
 
@@ -105,11 +105,11 @@ def test_persistence_matches_the_geometric_first_breakdown():
     m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
     a = assess(m, Merger([1, 2]), monitoring={"implementation_error": e}, run={**SMALL_RUN, "periods": H},
                deltas=())
-    for side, n in ((a.before, 4), (a.after, 3)):
+    for label, side, n in (("before", a.before, 4), ("after", a.after, 3)):
         q = 1 - (1 - e) ** n
         expected = (1 - (1 - q) ** H) / q
-        est = side.simulation.metrics["first_breakdown"]
-        assert abs(est.value - expected) < 4 * est.se, (side.label, est.value, expected, est.se)
+        est = side.simulation["first_breakdown"]
+        assert abs(est["value"] - expected) < 4 * est["se"], (label, est["value"], expected, est["se"])
     p = a.conclusion["persistence"]
     assert p["collusive_share_after"] > p["collusive_share_before"] and p["significant"]
     # more noise, less persistence: the transparency factor
@@ -125,15 +125,16 @@ def test_same_seed_same_numbers_and_key_prefix_changes_streams():
     two = dumps(assess(m, Merger([1, 2]), **kw).to_dict())
     assert one == two
     other = assess(m, Merger([1, 2]), key=(9,), **kw)
-    assert other.before.simulation.metrics["collusive_share"].value != json.loads(one)["before"]["simulation"][
+    assert other.before.simulation["collusive_share"]["value"] != json.loads(one)["before"]["simulation"][
         "collusive_share"]["value"]
 
 
 def test_frequency_and_growth_rows():
     """Frequency: with per-period discount factor delta, interacting once every L periods gives
     delta^L, so collusion survives up to L = ln(threshold) / ln(delta). Growth: profits growing at
-    rate g make the effective discount factor delta (1 + g) (Ivaldi et al., 2003 -- from memory),
-    so the growth needed is threshold / delta - 1."""
+    rate g make the effective discount factor delta (1 + g) (derived in the bundle's methods; checked
+    against the discounted streams in test_growth_and_decline_against_the_discounted_streams), so the growth
+    needed is threshold / delta - 1."""
     m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
     a = assess(m, Merger([1, 2]), simulate=False, run={"delta": 0.8}, deltas=(), growth=0.05)
     rows = {f["key"]: f for f in a.factors}
@@ -187,9 +188,9 @@ def test_where_the_conclusion_flips_along_a_calibration_input():
 
 def test_flip_locator():
     x = np.array([0.0, 1.0, 2.0, 3.0, 4.0])
-    assert _flips(x, np.array([1.0, 0.5, -0.5, -1.0, 1.0])) == pytest.approx([1.5, 3.5])
-    assert _flips(x, np.array([0.0, 1.0, 1.0, np.nan, 2.0])) == []
-    assert _flips(x, np.array([1.0, 0.0, -1.0, 0.0, 0.0])) == pytest.approx([1.0])
+    assert flips(x, np.array([1.0, 0.5, -0.5, -1.0, 1.0])) == pytest.approx([1.5, 3.5])
+    assert flips(x, np.array([0.0, 1.0, 1.0, np.nan, 2.0])) == []
+    assert flips(x, np.array([1.0, 0.0, -1.0, 0.0, 0.0])) == pytest.approx([1.0])
 
 
 def test_delta_and_noise_sensitivity():
@@ -241,7 +242,7 @@ _DOC = {
 def test_bad_tables_raise_naming_the_field(change, key, words):
     doc = {**_DOC, **change}
     with pytest.raises(InputError) as err:
-        assess(**{k: v for k, v in assessment_from_dict(doc).items() if k != "name"})
+        assess(**assessment_from_dict(doc))
     assert err.value.key == key and words in err.value.message
 
 
@@ -259,7 +260,7 @@ def test_post_merger_line_up_keeps_the_first_merging_firms_strategy():
               {"strategy": "grim_trigger"}]
     a = assess(m, Merger([2, 3]), lineup=lineup, monitoring={"perception_error": 0.01}, run=SMALL_RUN, deltas=())
     assert [e["strategy"] for e in a.settings["lineup_after"]] == ["grim_trigger", "finite_punishment"]
-    assert a.after.simulation.settings["lineup"][1]["strategy"] == "finite_punishment"
+    assert a.after.simulation["settings"]["lineup"][1]["strategy"] == "finite_punishment"
     # the assumptions say so
     said = [x for x in a.assumptions if "the merged firm Firm 2 + Firm 3 plays" in x]
     assert len(said) == 1
@@ -285,8 +286,8 @@ def test_warning_when_the_agreement_leaves_a_firm_below_its_nash_profit():
     proportional agreement is sustainable."""
     d = MarketData("logit", prices=[1.5, 1.4, 1.6, 1.2], shares=[0.3, 0.2, 0.1, 0.1], margin=0.3, owner=[1, 1, 2, 3])
     a = assess(d, Merger([1, 2]), simulate=False, deltas=())
-    st = a.before.report.stage
-    assert st.collusive.firm_profits[1] < st.nash.firm_profits[1]
+    pr = a.before.stage["profits"]
+    assert pr["collusive"][1] < pr["nash"][1]
     assert a.conclusion["threshold_before"] is None and len(a.conclusion["warnings"]) == 2
     assert "Firm 2 and Firm 3 no more than their static Nash profit" in a.conclusion["statement"]
     p = assess(d, Merger([1, 2]), simulate=False, deltas=(), agreement="proportional")
@@ -299,16 +300,23 @@ FACTOR_NAMES = ["fewer firms", "more symmetric firms", "more transparent (less n
 
 def test_factor_table_names_factors_by_their_direction():
     """Each factor is named by the change it considers, so that 'facilitates' reads 'this change makes
-    collusion easier', and every direction of Ivaldi et al. (2003) is 'facilitates' under those names:
-    fewer competitors, symmetry, transparency, frequent interaction and demand growth all make tacit
-    collusion easier (section titles III.4 'Frequent interaction facilitates collusion' and III.5
-    'Market transparency facilitates collusion'; the other three from memory). The two structural rows
-    (frequency, growth) are not computed directions: reported as structural, with no 'agree'."""
+    collusion easier', and every direction the literature states is 'facilitates' under those names, each with
+    the source that states it: section titles III.4 'Frequent interaction facilitates collusion' and III.5
+    'Market transparency facilitates collusion' of Ivaldi, Jullien, Rey, Seabright and Tirole (2003, The
+    Economics of Tacit Collusion); the abstract of Davies and Olczak (2008, Competition Policy International:
+    "conventional wisdom that collusion is more likely the fewer firms there are in a market and the more
+    symmetric they are"); section 1 of Correia-da-Silva, Pinho and Vasconcelos (2013, FEP Working Paper 487:
+    "Demand growth is usually understood as facilitating collusion"). The two structural rows (frequency, growth)
+    are not computed directions: reported as structural, with no 'agree'."""
     m = Market(LinearDemand(100, 1), cost=[10.0, 10.0, 12.0, 14.0])
     a = assess(m, Merger([3, 4]), monitoring={"implementation_error": 0.01}, run=SMALL_RUN, deltas=())
     rows = {f["key"]: f for f in a.factors}
     assert [f["factor"] for f in a.factors] == FACTOR_NAMES
-    assert {f["ivaldi_direction"] for f in a.factors} == {"facilitates"}
+    assert {f["literature_direction"] for f in a.factors} == {"facilitates"}
+    assert rows["transparency"]["source"] == "Ivaldi et al. (2003), section III.5"
+    assert rows["frequency"]["source"] == "Ivaldi et al. (2003), section III.4"
+    assert rows["symmetry"]["source"].startswith("Davies and Olczak (2008), abstract")
+    assert rows["growth"]["source"].startswith("Correia-da-Silva, Pinho and Vasconcelos (2013), section 1")
     for k in ("frequency", "growth"):
         assert rows[k]["model_direction"] == "structural (by construction)" and rows[k]["structural"]
         assert rows[k]["agrees"] is None and "not a computed direction" in rows[k]["reading"]
@@ -316,10 +324,10 @@ def test_factor_table_names_factors_by_their_direction():
     assert rows["firms"]["model_direction"] == "facilitates" and rows["firms"]["agrees"] is True
     assert rows["firms"]["reading"].startswith("in the model fewer firms make collusion easier")
     assert not rows["firms"]["structural"] and not rows["transparency"]["structural"]
-    # the row's words match its cells in every case
+    # the row's words match its cells in every case, and nothing is left unsourced
     for f in a.factors:
-        lit = "collusion easier" if f["ivaldi_direction"] == "facilitates" else "collusion harder"
-        assert f["reading"].endswith(lit)
+        lit = "collusion easier" if f["literature_direction"] == "facilitates" else "collusion harder"
+        assert f["reading"].endswith(lit) and f["source"] and "memory" not in json.dumps(f)
 
 
 def test_fewer_firms_factor_counts_firms_not_products():
@@ -343,21 +351,6 @@ def test_fewer_firms_factor_counts_firms_not_products():
     three = Market(d, cost=1.0, model="bertrand", n_firms=3)
     assert row["values"]["base"] == pytest.approx(sim.critical_discount_factors(three, punishments=()).grim.market,
                                                   rel=1e-12)
-
-
-def test_rounding_residue_in_reported_changes_is_zero():
-    """At delta = 0.9 both markets of the shipped scenario sustain the full agreement under grim
-    trigger (thresholds about 0.61 and 0.68), so the profit gains are one up to rounding
-    (0.9999999999999984 after) and the reported change is exactly 0, not -1.554e-15."""
-    from sim.evidence.assess import assessment_tables
-
-    d = MarketData("logit", prices=[4.2, 3.9, 4.6, 3.7], shares=[0.22, 0.18, 0.12, 0.10], size=5e4, margin=0.35)
-    a = assess(d, Merger([2, 4]), simulate=False, deltas=(0.9,), partial=["grim"])
-    (row,) = assessment_tables(a)["partial_collusion"][1]
-    assert row[2] == pytest.approx(1.0, abs=1e-12) and row[3] == pytest.approx(1.0, abs=1e-12)
-    assert row[4] == 0.0
-    assert all(type(x) in (str, int, float, bool) or x is None for r in assessment_tables(a)["calibration"][1]
-               for x in r)
 
 
 def test_scaled_noise_is_validated_before_any_work():
@@ -397,10 +390,10 @@ def test_default_stream_key_is_that_of_cell_zero():
 
     m = Market(LinearDemand(100, 1), cost=10.0, n_firms=3)
     kw = {"monitoring": {"perception_error": 0.02}, "run": SMALL_RUN, "deltas": ()}
-    plain = assess(m, Merger([1, 2]), **kw).before.simulation.metrics["collusive_share"].value
-    cell0 = assess(m, Merger([1, 2]), key=CellContext(index=0).key, **kw).before.simulation.metrics
-    assert plain == cell0["collusive_share"].value
-    empty = assess(m, Merger([1, 2]), key=(), **kw).before.simulation.metrics["collusive_share"].value
+    plain = assess(m, Merger([1, 2]), **kw).before.simulation["collusive_share"]["value"]
+    cell0 = assess(m, Merger([1, 2]), key=CellContext(index=0).key, **kw).before.simulation
+    assert plain == cell0["collusive_share"]["value"]
+    empty = assess(m, Merger([1, 2]), key=(), **kw).before.simulation["collusive_share"]["value"]
     assert plain != empty
 
 
@@ -418,36 +411,80 @@ def test_sensitivity_ranges_take_the_sweep_syntax():
                sensitivity={"delta": {"values": [0.9, 0.5], "labels": ["patient", "impatient"]}})
     s = b.sensitivity["delta"]
     assert s["values"] == [0.5, 0.9] and s["labels"] == ["impatient", "patient"]
-    from sim.evidence.assess import assessment_tables
-
-    headers, rows = assessment_tables(b)["sensitivity_delta"]
-    assert headers[1] == "label" and [r[1] for r in rows] == ["impatient", "patient"]
 
 
-def test_presentation_reads_the_stored_document():
-    """Tables, summary and terminal text are read from the assessment's JSON data as a cell stores it
-    (keys sorted, nan and inf as null): the same as from the Assessment itself, the sensitivity sections
-    in their fixed order whatever the order of the keys, and a largest-to-smallest ratio over a zero
-    cost shown as inf again (JSON holds no inf)."""
-    from sim.core.values import canonical_json
-    from sim.evidence.assess import assessment_tables, render_text, summary_blocks
-    from sim.runner.kinds import clean_arrays
+def test_the_assessment_round_trips_through_json():
+    """The result is plain data: its JSON document rebuilds an equal result, whose document is the same; numbers
+    that are not finite (a threshold no discount factor below one reaches, a ratio over a zero cost) are stored
+    as None, so the document is strict JSON."""
+    from sim.antitrust.result import Assessment
 
     d = MarketData("logit", prices=[4.2, 3.9, 4.6], shares=[0.25, 0.2, 0.15], size=1000.0, margin=0.4)
-    a = assess(d, Merger([2, 3]), simulate=False, deltas=(0.9,), sensitivity={"size": [800.0, 2000.0],
-                                                                               "delta": [0.5, 0.9]})
-    stored = json.loads(canonical_json(clean_arrays({"assessment": a.to_dict()})))["assessment"]
-    assert list(stored["sensitivity"]) == ["delta", "size"]
-    assert assessment_tables(stored) == assessment_tables(a)
-    blocks = summary_blocks(stored)
-    assert blocks == summary_blocks(a)
-    shown = [b[1] for b in blocks if b[0] == "table"]
-    assert shown.index("sensitivity_size") < shown.index("sensitivity_delta")
-    assert render_text(stored, "x") == render_text(a, "x")
-
+    a = assess(d, Merger([2, 3]), monitoring={"perception_error": 0.01}, run={**SMALL_RUN, "replications": 30},
+               deltas=(0.9,), sensitivity={"size": [800.0, 2000.0], "delta": [0.5, 0.9], "noise": [0.0, 1.0]},
+               name="round-trip", currency="EUR", period="month")
+    doc = json.loads(json.dumps(a.to_dict(), allow_nan=False))
+    back = Assessment.from_dict(doc)
+    assert back == a and back.to_dict() == a.to_dict()
+    assert (back.name, back.currency, back.period) == ("round-trip", "EUR", "month")
+    assert "name" not in a.document() and a.document()["caution"] == a.caution
     z = assess(Market(LinearDemand(100, 1), cost=[0.0, 10.0, 10.0]), Merger([2, 3]), simulate=False, deltas=())
-    assert z.before.asymmetry["cost_ratio"] == math.inf
-    doc = json.loads(dumps(z.to_dict()))
-    assert doc["before"]["asymmetry"]["cost_ratio"] is None
-    before, after = assessment_tables(doc)["asymmetry"][1]
-    assert before[4] == math.inf and after[4] == math.inf
+    assert z.before.asymmetry["cost_ratio"] is None and "simulation" not in z.before.to_dict()
+    assert Assessment.from_dict(json.loads(json.dumps(z.to_dict(), allow_nan=False))) == z
+
+
+def test_a_cell_of_the_kind_returns_the_assessment_and_its_flat_metrics():
+    """The assess kind's cell carries the result object; its metrics are read from the result's plain data (the
+    headline thresholds and the per-firm grim-trigger thresholds of the four-to-three Cournot merger: 25/41 and
+    4/7 from (n+1)^2 / (n^2 + 6n + 1), Friedman, 1971)."""
+    from sim.runner.analyses.assess import KIND
+    from sim.runner.kinds import CellContext
+
+    doc = {**_DOC, "market": {**_DOC["market"], "n_firms": 4}}
+    cell = KIND.run(KIND.prepare(doc), CellContext(index=0))
+    a = cell.result
+    assert type(a).__name__ == "Assessment" and cell.arrays["assessment"] == a.document()
+    m = cell.metrics
+    assert m["threshold.before"] == pytest.approx(25 / 41, rel=1e-12) and m["direction"] == -1.0
+    assert m["threshold.grim.after.firm1"] == pytest.approx(4 / 7, rel=1e-12) and m["binding.after"] in (1, 2, 3)
+    assert set(m) == set(KIND.metric_names(KIND.prepare(doc)))
+
+
+@pytest.mark.parametrize("g", [0.05, 0.0, -0.05])
+def test_growth_and_decline_against_the_discounted_streams(g):
+    """assess.growth accepts no growth and declining markets. With every profit growing at rate g, grim trigger
+    holds the binding firm when colluding forever is worth at least deviating once and earning the static Nash
+    profit ever after; summing the two discounted streams term by term (20,000 periods, delta (1 + |g|) <= 0.66, so
+    the neglected tails are below 1e-300) decides it without the closed form delta (1 + g). The row's flags at the
+    stated rate and at the opposite one agree with the sums, before and after the merger (thresholds 25/41 and
+    4/7, Friedman, 1971)."""
+    m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
+    delta = 0.6
+    a = assess(m, Merger([1, 2]), simulate=False, run={"delta": delta}, deltas=(), growth=g)
+    assert a.settings["growth"] == g
+    row = next(f for f in a.factors if f["key"] == "growth")
+    t = np.arange(20_000)
+    for label, side in a.sides():
+        i = side.thresholds["grim"]["binding_firm"] - 1
+        pr = side.stage["profits"]
+        C, D, N = pr["collusive"][i], pr["deviation"][i], pr["nash"][i]
+
+        def holds(rate, C=C, D=D, N=N):
+            w = (delta * (1 + rate)) ** t
+            return C * w.sum() >= D + N * w[1:].sum()
+
+        v = row["values"][label]
+        assert v["sustainable"] == holds(0.0)
+        assert v["sustainable_growing"] == holds(abs(g)) and v["sustainable_declining"] == holds(-abs(g))
+    # at delta = 0.6 the market before the merger (25/41 > 0.6) needs growth, the one after (4/7 < 0.6) bears a decline
+    assert row["values"]["before"]["growth_needed"] > 0 > row["values"]["after"]["growth_needed"]
+    if g < 0:
+        assert "declining by 0.05 per period, as stated" in row["varied"]
+
+
+@pytest.mark.parametrize("g", [-1.0, 1.0, 1.5])
+def test_growth_outside_minus_one_to_one_is_refused(g):
+    m = Market(LinearDemand(100, 1), cost=10.0, n_firms=4)
+    with pytest.raises(InputError) as err:
+        prepare_assessment(m, Merger([1, 2]), simulate=False, growth=g)
+    assert err.value.key == "assess.growth" and "(-1, 1)" in err.value.message

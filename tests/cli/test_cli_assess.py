@@ -182,7 +182,7 @@ def test_text_output(tmp_path, capsys):
     f = _write(tmp_path, SMALL.replace("[assess.sensitivity]", "[assess.ignored]").split("[assess.ignored]")[0])
     code, out, _ = _run(["assess", str(f), "--out", str(tmp_path / "o")], capsys)
     assert code == 0
-    assert "Critical discount factors" in out and "grim trigger" in out and "Ivaldi" in out
+    assert "Critical discount factors" in out and "grim trigger" in out and "Ivaldi et al. (2003)" in out
     assert "reproduces the observed prices and quantities" in out
     assert out.rstrip().endswith(f"Evidence bundle: {tmp_path / 'o' / 'report'}") and "not proof of conduct" in out
     assert f"Run folder: {tmp_path / 'o'}" in out
@@ -271,9 +271,11 @@ deltas = [0.8]
     assert not out.exists()
 
 
-def test_factor_table_files_carry_the_legend(tmp_path, capsys):
-    """The factor table's CSV says in every row what its direction cells mean, the LaTeX caption
-    carries the legend, structural rows leave 'agree' empty, and no cell is written as a numpy repr."""
+def test_factor_table_files_carry_the_legend_and_the_sources(tmp_path, capsys):
+    """The factor table's CSV says in every row what its direction cells mean and the source of the literature's
+    direction, structural rows leave 'agree' empty, and no cell is written as a numpy repr; the summary shows the
+    legend once, as a note below the table, not in its (bold) caption; nothing in the bundle is recalled from
+    memory."""
     f = _write(tmp_path, SMALL.split("[assess.sensitivity]")[0])
     out = tmp_path / "o"
     assert _run(["assess", str(f), "--out", str(out)], capsys)[0] == 0
@@ -282,19 +284,57 @@ def test_factor_table_files_carry_the_legend(tmp_path, capsys):
         "fewer firms", "more symmetric firms", "more transparent (less noise)", "more frequent interaction",
         "growing demand"]
     for r in rows:
-        assert r["reading"] and "Ivaldi et al. (2003)" in r["reading"]
+        assert r["reading"] and "in the literature" in r["reading"] and r["source"]
         if r["model: effect on collusion"] == "structural (by construction)":
             assert r["agree"] == "" and "not compared with the literature" in r["reading"]
         else:
             assert r["agree"] in ("yes", "no", "")
     assert {r["model: effect on collusion"] for r in rows[3:]} == {"structural (by construction)"}
+    legend = "'facilitates': in the model that change makes collusion easier"
     tex = (out / "report" / "tables" / "factors.tex").read_text()
-    assert "named by the change it considers" in tex.split("\\label")[0]
-    assert "'facilitates': in the model that change makes collusion easier" in tex
+    assert legend not in tex.split("\\label")[0]
+    md = (out / "report" / "summary.md").read_text()
+    assert md.count(legend) == 1 and f"*Each factor is named by the change it considers. {legend}" in md
+    assert not re.search(r"\*\*[^*]*" + re.escape(legend), md)
     for p in (out / "report" / "tables").glob("*.csv"):
         assert "np." not in p.read_text(), p.name
+    for p in (out / "report").rglob("*"):
+        if p.suffix in (".md", ".html", ".json", ".csv", ".tex"):
+            assert "from memory" not in p.read_text(), p.name
 
 
+def test_console_and_bundle_speak_alike(tmp_path, capsys):
+    """Price changes in percent with their sign on the console and in the bundle, under firm names (no 'product 1'
+    on the console); the stick-and-carrot punishment level and the constraint that binds on both; the thresholds'
+    formulas with their sources beside the thresholds table and in the methods appendix; one section of
+    assumptions; money in the neutral unit when the experiment states none."""
+    f = _write(tmp_path, SMALL.split("[assess.sensitivity]")[0])
+    out = tmp_path / "o"
+    code, printed, _ = _run(["assess", str(f), "--out", str(out)], capsys)
+    assert code == 0
+    console = printed.split("\n\nRun folder: ")[0]
+    assert not re.search(r"\bproduct \d", console)
+    md = (out / "report" / "summary.md").read_text()
+    prices = list(csv.DictReader((out / "report" / "tables" / "merger_prices.csv").open()))
+    for r in prices:
+        shown = f"{float(r['change (%)']) / 100:+.2%}"
+        assert f"{r['product']} {shown}" in console
+        assert f"| {r['product']} | {r['owner after']} |" in md and f"| {shown} |" in md
+    assert [r["product"] for r in prices] == ["Firm A", "Firm B", "Firm C"]
+    sc = list(csv.DictReader((out / "report" / "tables" / "stick_and_carrot.csv").open()))
+    doc = json.loads((out / "report" / "assessment.json").read_text())
+    for r, label in zip(sc, ("before", "after"), strict=True):
+        stored = doc[label]["thresholds"]["stick_carrot"]
+        assert float(r["punishment price (currency units), one period"]) == stored["punishment_action"]
+        assert r["binding constraint"].startswith(stored["binding_constraint"])
+        assert f"stick and carrot {label}: one period at a common price of" in console
+        what = {"collusion": "agreement", "punishment": "punishment"}[stored["binding_constraint"]]
+        assert f"{stored['binding_name']} binds, on not deviating from the {what}" in console
+    for source in ("Friedman, 1971", "Green and Porter, 1984", "Abreu, 1986"):
+        assert md.count(source) >= 2  # beside the thresholds and in the methods
+    assert "## Methods" in md and "effective discount factor `delta (1 + g)`" in md
+    assert md.count("## Assumptions") == 1 and "Assumptions and limitations of the assessment" not in md
+    assert "currency units per period" in md and "(currency units)" in md
 def test_shipped_experiment_passes_check(capsys):
     code, out, err = _run(["check", str(SHIPPED)], capsys)
     assert code == 0, err
@@ -409,8 +449,8 @@ def test_shipped_scenario_thresholds_against_an_independent_logit_solution():
     doc["assess"].pop("sensitivity")
     a = run_assessment(KIND.prepare(doc))
     pre, post = _shipped_grim_thresholds()
-    np.testing.assert_allclose(a.before.report.grim.per_firm, pre, rtol=1e-9)
-    np.testing.assert_allclose(a.after.report.grim.per_firm, post, rtol=1e-9)
+    np.testing.assert_allclose(a.before.thresholds["grim"]["per_firm"], pre, rtol=1e-9)
+    np.testing.assert_allclose(a.after.thresholds["grim"]["per_firm"], post, rtol=1e-9)
     assert a.before.names[int(np.argmax(pre))] == "Firm D" and a.after.names[int(np.argmax(post))] == "Firm C"
     assert post.max() > pre.max()
 
@@ -493,9 +533,11 @@ def test_the_bundle_is_read_from_the_stored_cell(tmp_path, capsys):
     assert mb.pop("run_data") == {} and ma == mb
     assert ma["title"] == "Coordinated effects of a merger: small-merger"
     assert ma["seeds"]["streams"]["simulation after"] == [0, 1]
-    # the stored document is the bundle's assessment.json
+    # the bundle's assessment.json is the stored result; arrays.json keeps its document (without the name and units)
     stored = json.loads((run_dir / "arrays.json").read_text())["cells"][0]["arrays"]["assessment"]
-    assert json.loads(first["assessment.json"]) == stored
+    full = json.loads(first["assessment.json"])
+    assert full["name"] == "small-merger" and {k: v for k, v in full.items() if k not in (
+        "name", "currency", "period")} == stored
     md = first["summary.md"].decode()
     assert md.count("## Reproducing these numbers") == 1 and "`supergame report RUN_DIR` this bundle again" in md
     assert md.index("Caution: ") < md.index("## Conclusion under the stated assumptions")
@@ -513,3 +555,53 @@ def test_the_bundle_is_read_from_the_stored_cell(tmp_path, capsys):
     for rel in first:
         if rel.startswith(("tables/", "figures/")) or rel == "assessment.json":
             assert via_run[rel] == first[rel], rel
+
+
+def test_the_command_prints_and_plots_what_the_bundle_shows(tmp_path, capsys):
+    """supergame assess prints the renderer's console text of the result stored in its run folder (the text
+    supergame run FILE's folder gives as well), and its --plot PNGs are the bundle's figures byte for byte, as are
+    those of supergame run FILE --report."""
+    from sim.evidence.render import renderer_for
+    from sim.runner.runs import open_run
+
+    f = _write(tmp_path, SMALL.split("[assess.sensitivity]")[0] + "[assess.sensitivity]\ndelta = [0.5, 0.9]\n")
+    a, r, plots = tmp_path / "a", tmp_path / "r", tmp_path / "plots"
+    code, out, err = _run(["assess", str(f), "--out", str(a), "--plot", str(plots)], capsys)
+    assert code == 0, err
+    printed = out.rstrip("\n").split("\n\nRun folder: ")[0]
+    renderer = renderer_for("assess")
+    with open_run(a) as rf:
+        assert renderer.console(rf.result(0)) == printed
+    assert _run(["run", str(f), "--out", str(r), "--workers", "1", "--quiet", "--report"], capsys)[0] == 0
+    with open_run(r) as rf:
+        assert renderer.console(rf.result(0)) == printed
+    pngs = sorted(p.name for p in plots.glob("*.png"))
+    assert pngs == sorted(p.name for p in (a / "report" / "figures").glob("*.png")) and "thresholds.png" in pngs
+    assert "sensitivity_delta.png" in pngs and "persistence.png" in pngs
+    for name in pngs:
+        command = (plots / name).read_bytes()
+        assert command == (a / "report" / "figures" / name).read_bytes(), name
+        assert command == (r / "report" / "figures" / name).read_bytes(), name
+
+
+def test_json_of_the_command_is_the_renderers_document(tmp_path, capsys):
+    """--json prints the renderer's document of the stored result, with where the run folder and bundle are."""
+    from sim.antitrust.result import Assessment
+
+    f = _write(tmp_path, SMALL.split("[assess.sensitivity]")[0])
+    code, out, err = _run(["assess", str(f), "--out", str(tmp_path / "a"), "--json"], capsys)
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc.pop("run_folder") == str(tmp_path / "a") and doc.pop("bundle") == str(tmp_path / "a" / "report")
+    assert Assessment.from_dict(doc).to_dict() == doc and doc["name"] == "small-merger"
+
+
+@pytest.mark.parametrize("growth, ok", [(0.0, True), (-0.1, True), (0.02, True), (1.0, False), (-1.0, False)])
+def test_growth_zero_and_decline_pass_the_check(tmp_path, capsys, growth, ok):
+    """assess.growth takes no growth (0) and declining markets (negative rates) in (-1, 1)."""
+    f = _write(tmp_path, SMALL.replace("deltas = [0.7, 0.9]", f"deltas = [0.7, 0.9]\ngrowth = {growth}"))
+    code, _out, err = _run(["check", str(f)], capsys)
+    if ok:
+        assert code == 0, err
+    else:
+        assert code == 2 and err.startswith("supergame check: error: assess.growth: must be a number in (-1, 1)")

@@ -1,0 +1,135 @@
+"""Constraints of the ``[data]`` table of observed market data (see :class:`sim.antitrust.calibration.MarketData`)."""
+
+from __future__ import annotations
+
+import numbers
+from collections.abc import Sequence
+from typing import Any
+
+import numpy as np
+
+from sim.core.errors import InputError
+from sim.core.params import Constraint, PerFirm, Real
+
+__all__ = ["Negative", "OneOrPerProduct", "OwnerMap"]
+
+
+class Negative(Real):
+    """A finite negative number: a price elasticity of demand (the usual sign)."""
+
+    def __init__(self):
+        super().__init__(None, 0, closed="neither")
+
+    def describe(self) -> str:
+        """What the constraint allows, in words.
+
+        Returns
+        -------
+        str
+        """
+        return "a negative number (a price elasticity of demand is negative)"
+
+
+class OneOrPerProduct(Constraint):
+    """One value (observed for the reference product) or one value per product.
+
+    Parameters
+    ----------
+    element : Real
+        The constraint on each value.
+    """
+
+    def __init__(self, element: Real):
+        self.element = element
+
+    def describe(self) -> str:
+        """What the constraint allows, in words.
+
+        Returns
+        -------
+        str
+        """
+        return f"{self.element.describe()}, or a list of them (one per product)"
+
+    def check(self, key: str, value: Any, n: int | None = None):
+        """The checked value.
+
+        Parameters
+        ----------
+        key : str
+            Key path of the value in error messages.
+        value : object
+        n : int, optional
+            The number of products.
+
+        Returns
+        -------
+        float or ndarray of shape (n_products,)
+        """
+        if isinstance(value, numbers.Real) and not isinstance(value, bool):
+            return self.element.check(key, value)
+        return PerFirm(self.element, broadcast=False).check(key, value, n)
+
+    def example_bad(self) -> Any:
+        """A value the constraint refuses (for the common test of constraints).
+
+        Returns
+        -------
+        object
+        """
+        return self.element.example_bad()
+
+
+class OwnerMap(Constraint):
+    """Firm number (1, 2, ...) of each product; checked in full by :class:`~sim.models.market.Market`."""
+
+    def describe(self) -> str:
+        """What the constraint allows, in words.
+
+        Returns
+        -------
+        str
+        """
+        return "a list of firm numbers 1, 2, ..., one per product"
+
+    def check(self, key: str, value: Any, n: int | None = None):
+        """The checked owner map.
+
+        Parameters
+        ----------
+        key : str
+            Key path of the value in error messages.
+        value : object
+        n : int, optional
+            The number of products.
+
+        Returns
+        -------
+        int ndarray of shape (n_products,)
+            The owning firm of each product, counted from 0.
+        """
+        if not isinstance(value, Sequence) or isinstance(value, str) or len(value) < 2:
+            raise InputError(key, f"must be {self.describe()}, got {value!r}")
+        out = []
+        for k, v in enumerate(value):
+            if isinstance(v, bool) or not isinstance(v, numbers.Integral) or v < 1:
+                raise InputError(key, f"entry {k + 1} must be a firm number 1, 2, ..., got {v!r}")
+            out.append(int(v))
+        if n is not None and len(out) != n:
+            raise InputError(key, f"must have one firm number per product ({n}), got {len(out)}")
+        F = max(out)
+        missing = sorted(set(range(1, F + 1)) - set(out))
+        if missing:
+            raise InputError(key, f"firm numbers must run from 1 without gaps; firm {missing[0]} owns no product")
+        if F < 2:
+            raise InputError(key, "a market needs at least two firms")
+        return np.array(out, dtype=np.int64) - 1
+
+    def example_bad(self) -> Any:
+        """A value the constraint refuses (for the common test of constraints).
+
+        Returns
+        -------
+        object
+        """
+        return [0, 1]
