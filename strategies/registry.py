@@ -13,6 +13,7 @@ from collections.abc import Sequence
 import strategies.automata as automata
 from sim.core.errors import InputError
 from strategies.base import Automaton
+from strategies.qlearning import QLearner
 
 __all__ = ["LAZY", "MAX_SEATS", "STRATEGIES", "check_seats", "lineup_from_tables", "register", "strategy_class",
            "strategy_from_dict"]
@@ -38,6 +39,10 @@ for _cls in (automata.GrimTrigger, automata.FinitePunishment, automata.TitForTat
              automata.WinStayLoseShift, automata.StickAndCarrot, automata.TriggerPrice, automata.AlwaysCompete,
              automata.AlwaysCollude, automata.Opportunist, automata.TableAutomaton):
     register(_cls)
+
+
+#: learner name -> learner class (the learning algorithms a line-up may seat with ``strategy = NAME``)
+LEARNERS: dict[str, type] = {QLearner.name: QLearner}
 
 
 def known_names() -> list[str]:

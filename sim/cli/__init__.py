@@ -13,8 +13,11 @@ attempt is recorded as interrupted).
 from __future__ import annotations
 
 import argparse
+import difflib
 import importlib
+import json
 import os
+import re
 import signal
 import sys
 import threading
@@ -35,6 +38,8 @@ COMMANDS = {
     "bench": ("sim.cli.bench", "throughput of the simulation kernels against their plain-Python references"),
     "assess": ("sim.cli.assess",
                "coordinated effects of a merger: calibration, thresholds, persistence and factors before and after"),
+    "list": ("sim.cli.listing",
+             "list the shipped strategies, learners, experiment kinds and demand models with their parameters"),
     "check": ("sim.cli.check", "validate experiment files, every sweep cell included, without running them"),
     "run": ("sim.cli.run", "run an experiment file (any kind, sweeps included) into a run folder; resumable"),
     "report": ("sim.cli.report",
@@ -68,11 +73,35 @@ def flag_of(key: str) -> str:
     return key
 
 
+class ArgumentError(Exception):
+    """A command line that does not parse: the flag it concerns (if any) and what is wrong."""
+
+    def __init__(self, prog: str, key: str, message: str):
+        super().__init__(message)
+        self.prog, self.key, self.message = prog, key, message
+
+
 class _Parser(argparse.ArgumentParser):
-    """Argument parser whose errors are one line on stderr with exit status 2."""
+    """Argument parser that accepts no abbreviated flag and whose errors are raised (one line, exit status 2)."""
+
+    def __init__(self, *args, **kwargs):
+        kwargs.setdefault("allow_abbrev", False)
+        super().__init__(*args, **kwargs)
 
     def error(self, message: str):
-        self.exit(2, f"{self.prog}: error: {message}\n")
+        m = re.match(r"argument (\S+?)(?:/\S+)?: (.*)", message)
+        raise ArgumentError(self.prog, m.group(1) if m else "", m.group(2) if m else message)
+
+
+def _unknown(parser: argparse.ArgumentParser, extras: list[str]) -> ArgumentError:
+    """The error for arguments the command does not know, with the closest known flag."""
+    flags = sorted(o for o in parser._option_string_actions if o.startswith("--"))
+    first = extras[0].split("=", 1)[0]
+    if first.startswith("-"):
+        close = difflib.get_close_matches(first, flags, n=1, cutoff=0.5)
+        hint = f"; did you mean {close[0]}?" if close else f"; see {parser.prog} --help"
+        return ArgumentError(parser.prog, first, f"unknown flag{hint}")
+    return ArgumentError(parser.prog, "", f"unexpected argument {first!r}; see {parser.prog} --help")
 
 
 def build_parser(command: str | None = None) -> argparse.ArgumentParser:
@@ -95,6 +124,7 @@ def build_parser(command: str | None = None) -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"supergame {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    parser.commands = {}
     for name, (modname, line) in COMMANDS.items():
         if command is not None and name != command:
             sub.add_parser(name, help=line)
@@ -103,7 +133,18 @@ def build_parser(command: str | None = None) -> argparse.ArgumentParser:
         p = sub.add_parser(name, help=mod.HELP, description=getattr(mod, "DESCRIPTION", mod.HELP))
         mod.configure(p)
         p.set_defaults(_run=mod.run)
+        parser.commands[name] = p
     return parser
+
+
+def _fail(prog: str, key: str, message: str, as_json: bool, status: int = 2, kind: str = "input") -> int:
+    """Report an error: one line on stderr, or with ``--json`` one JSON object on stdout."""
+    if as_json:
+        sys.stdout.write(json.dumps({"error": {"key": key or None, "message": message, "kind": kind}}) + "\n")
+    else:
+        where = f"{key}: " if key else ""
+        print(f"{prog}: error: {where}{message}", file=sys.stderr)
+    return status
 
 
 def _command_of(argv: list[str]) -> str:
@@ -116,11 +157,17 @@ def _command_of(argv: list[str]) -> str:
 
 def main(argv: list[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
-    parser = build_parser(_command_of(argv))
+    as_json = "--json" in argv
+    command = _command_of(argv)
+    parser = build_parser(command)
     try:
-        args = parser.parse_args(argv)
-    except SystemExit as exc:  # --help, --version and argument errors (one line, status 2)
+        args, extras = parser.parse_known_args(argv)
+        if extras:
+            raise _unknown(parser.commands.get(command, parser), extras)
+    except SystemExit as exc:  # --help and --version
         return int(exc.code or 0)
+    except ArgumentError as exc:
+        return _fail(exc.prog, exc.key, exc.message, as_json)
     if not getattr(args, "command", None):
         parser.print_help()
         return 2
@@ -129,10 +176,10 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return int(args._run(args) or 0)
     except InputError as exc:
-        where = f"{flag_of(exc.key)}: " if exc.key else ""
-        print(f"supergame {args.command}: error: {where}{exc.message}", file=sys.stderr)
-        return 2
+        return _fail(f"supergame {args.command}", flag_of(exc.key), exc.message, as_json)
     except SolverError as exc:
+        if as_json:
+            return _fail("", "", str(exc), True, 1, "computation")
         print(f"supergame {args.command}: computation failed: {exc}", file=sys.stderr)
         return 1
     except Terminated:
@@ -146,8 +193,11 @@ def main(argv: list[str] | None = None) -> int:
     except Exception as exc:  # a defect, not a user error: one line, the traceback on request
         if os.environ.get("SUPERGAME_DEBUG"):
             raise
-        print(f"supergame {args.command}: internal error ({type(exc).__name__}: {exc}); please report it "
-              "(set SUPERGAME_DEBUG=1 for the traceback)", file=sys.stderr)
+        msg = (f"internal error ({type(exc).__name__}: {exc}); please report it (set SUPERGAME_DEBUG=1 for the "
+               "traceback)")
+        if as_json:
+            return _fail("", "", msg, True, 1, "internal")
+        print(f"supergame {args.command}: {msg}", file=sys.stderr)
         return 1
     finally:
         if previous is not None:

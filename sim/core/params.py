@@ -28,6 +28,7 @@ __all__ = [
     "Parametrized",
     "PerFirm",
     "Real",
+    "describe_parameters",
     "optional",
 ]
 
@@ -303,3 +304,30 @@ def _param_equal(x: Any, y: Any) -> bool:
     if isinstance(x, Parametrized) or isinstance(y, Parametrized):
         return x == y
     return x == y
+
+
+def describe_parameters(cls: type) -> list[dict]:
+    """The parameters of a configurable class, read from its constraint table and its signature (so that a listing
+    of them cannot drift from what the validator accepts).
+
+    Parameters
+    ----------
+    cls : type
+        A :class:`Parametrized` subclass.
+
+    Returns
+    -------
+    list of dict
+        One per constructor argument: ``name``, ``allowed`` (the constraint's description) and ``default``
+        (``None`` when the argument has none).
+    """
+    sig = inspect.signature(cls.__init__)
+    out = []
+    for p in sig.parameters.values():
+        if p.name == "self" or p.kind in (p.VAR_POSITIONAL, p.VAR_KEYWORD):
+            continue
+        c = getattr(cls, "_constraints", {}).get(p.name)
+        default = None if p.default is inspect.Parameter.empty else p.default
+        out.append({"name": p.name, "allowed": c.describe() if c is not None else "any",
+                    "default": default.tolist() if isinstance(default, np.ndarray) else default})
+    return out

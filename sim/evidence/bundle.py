@@ -56,7 +56,7 @@ from sim.runner.store import csv_text
 
 __all__ = ["Bundle", "clear_leftovers", "holds_bundle", "latex_table", "markdown_table"]
 
-_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}$")
+_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}\Z")
 BUNDLE_FORMAT = "supergame-bundle/1"
 
 

@@ -78,7 +78,7 @@ __all__ = [
 #: the largest sweep accepted (cells)
 MAX_CELLS = MAX_VALUES
 #: keys of an ``[experiment]`` table
-EXPERIMENT_KEYS = ("name", "kind", "description")
+EXPERIMENT_KEYS = ("name", "kind", "description", "currency", "period")
 #: tables every experiment may have, whatever its kind
 COMMON_TABLES = ("experiment", "sweep", "report")
 _SWEEP_RESERVED = ("mode", "zip")
@@ -98,7 +98,8 @@ FIGURE_KEYS = {
     "title": "figure title",
     "name": "file name of the figure (without extension)",
 }
-_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")
+_UNIT_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9 ./-]{0,23}\Z")
+_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}\Z")
 
 
 # --------------------------------------------------------------------------------------------------
@@ -560,6 +561,11 @@ def _experiment_table(doc: dict, default_name: str | None) -> tuple[str, str, st
     desc = exp.get("description", "")
     if not isinstance(desc, str):
         raise InputError("experiment.description", f"must be a string, got {desc!r}")
+    for unit in ("currency", "period"):
+        v = exp.get(unit)
+        if v is not None and not (isinstance(v, str) and _UNIT_RE.match(v)):
+            raise InputError(f"experiment.{unit}", f"must be a short word such as 'EUR' or 'month' (1 to 24 letters, "
+                                                   f"digits, spaces, '.', '-' or '/'), got {v!r}")
     return name, kind, desc
 
 
