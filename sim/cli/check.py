@@ -7,6 +7,7 @@ import argparse
 from sim.cli._common import emit
 from sim.cli.run import add_plugin_option
 from sim.core.jsonutil import dumps
+from sim.runner.cost import describe_bytes, describe_seconds
 from sim.runner.experiment import load_experiment
 from sim.runner.kinds import load_plugins
 
@@ -36,6 +37,10 @@ def describe(exp) -> str:
         parts.append(f"{len(exp.metric_names)} metrics per cell")
     if exp.report.figures:
         parts.append(f"{len(exp.report.figures)} figure{'s' if len(exp.report.figures) != 1 else ''}")
+    if exp.cost:
+        c = exp.cost
+        parts.append(f"estimated cost: {c['work']:.3g} {c['unit']}, about {describe_seconds(c['seconds'])} on one "
+                     f"core, at most {describe_bytes(c['cell_memory'])} of arrays per cell")
     return "; ".join(parts)
 
 
@@ -47,7 +52,7 @@ def run(args) -> int:
         if args.json:
             emit(dumps({"file": f, "valid": True, "name": exp.name, "kind": exp.kind, "cells": exp.n_cells,
                         "parameters": [{"path": p.path, "values": list(p.values)} for p in exp.parameters],
-                        "metrics": list(exp.metric_names), "sha256": exp.sha256}))
+                        "metrics": list(exp.metric_names), "sha256": exp.sha256, "cost": exp.cost}))
         else:
             emit(describe(exp))
     return 0

@@ -9,6 +9,7 @@ from sim.cli._common import emit, parse_number
 from sim.core.errors import InputError, Terminated
 from sim.core.jsonutil import dumps
 from sim.evidence.report import write_report
+from sim.runner.cost import MAX_SECONDS, WARN_SECONDS, describe_seconds
 from sim.runner.experiment import load_experiment
 from sim.runner.kinds import load_plugins
 from sim.runner.runs import default_folder, run_experiment
@@ -40,6 +41,8 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("--retry-failed", action="store_true", help="with --resume, compute the failed cells again")
     p.add_argument("--report", action="store_true", help="write the evidence bundle (RUN_DIR/report) at the end")
     add_plugin_option(p)
+    p.add_argument("--allow-long", action="store_true",
+                   help="run even when the estimated time on one core is over thirty days")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.add_argument("--json", action="store_true", help="print the run summary as one JSON object")
 
@@ -57,13 +60,17 @@ def run(args) -> int:
     if args.resume is None and out is None:
         out = str(default_folder(__import__("pathlib").Path("runs"), exp.name))
     folder = args.resume or out
+    c = exp.cost if exp is not None else None
+    if c and c["seconds"] > WARN_SECONDS and (c["seconds"] <= MAX_SECONDS or args.allow_long) and not args.json:
+        print(f"supergame run: estimated {c['work']:.3g} {c['unit']}, about {describe_seconds(c['seconds'])} on one "
+              "core (divide by the workers)", file=sys.stderr)
     try:
         s = run_experiment(exp, out, workers=workers, cluster=args.cluster,
                            resume=args.resume, retry_failed=args.retry_failed, report=args.report,
                            write_report=write_report, plugins=plugins,
                            progress=False if args.quiet else None, command=["supergame", *sys.argv[1:]]
                            if sys.argv and sys.argv[0].endswith(("supergame", "__main__.py")) else
-                           ["supergame", "run", *([args.file] if args.file else [])])
+                           ["supergame", "run", *([args.file] if args.file else [])], allow_long=args.allow_long)
     except KeyboardInterrupt as exc:
         how = f"supergame run {args.file + ' ' if args.file else ''}--resume {folder}"
         what = "terminated (SIGTERM)" if isinstance(exc, Terminated) else "interrupted"

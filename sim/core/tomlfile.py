@@ -14,6 +14,10 @@ from sim.core.errors import InputError
 __all__ = ["file_sha256", "read_toml"]
 
 
+#: the largest experiment file read (long lists are written as ranges)
+MAX_BYTES = 4_000_000
+
+
 def read_toml(path) -> dict:
     """Parse a TOML file; a missing file or a syntax error becomes an :class:`InputError`.
 
@@ -22,6 +26,9 @@ def read_toml(path) -> dict:
     """
     p = Path(path)
     try:
+        if p.is_file() and p.stat().st_size > MAX_BYTES:
+            raise InputError(str(path), f"is {p.stat().st_size:,} bytes; an experiment file holds at most "
+                                        f"{MAX_BYTES:,} (give long lists as ranges: {{ start, stop, num }})")
         raw = p.read_bytes()
     except FileNotFoundError:
         raise InputError(str(path), "no such file") from None
@@ -33,10 +40,29 @@ def read_toml(path) -> dict:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
         raise InputError(str(path), "is not UTF-8 text") from None
+    return parse_toml(text, str(path))
+
+
+def parse_toml(text: str, key: str = "experiment") -> dict:
+    """Parse TOML text; what the parser cannot take becomes an :class:`InputError` naming ``key``.
+
+    Parameters
+    ----------
+    text : str
+    key : str
+
+    Returns
+    -------
+    dict
+    """
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise InputError(str(path), f"TOML syntax error: {exc}") from None
+        raise InputError(key, f"TOML syntax error: {exc}") from None
+    except RecursionError:
+        raise InputError(key, "nests tables or lists too deeply to be read") from None
+    except ValueError as exc:  # an integer of thousands of digits
+        raise InputError(key, f"holds a value that cannot be read as a number ({str(exc).split(';')[0]})") from None
 
 
 def file_sha256(path) -> str:

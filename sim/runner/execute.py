@@ -14,6 +14,7 @@ from sim.core.files import symlinks_in, write_atomic
 from sim.core.parallel import usable_cores
 from sim.core.provenance import COMPUTING_PACKAGES, code_digest, package_versions
 from sim.core.text import CAUTION
+from sim.runner.cost import MAX_SECONDS, describe_seconds
 from sim.runner.experiment import Experiment, leading_comment, load_experiment
 from sim.runner.exports import write_exports
 from sim.runner.folder import (
@@ -209,7 +210,8 @@ def _check_packages(attempts: list, key: str = "resume") -> None:
 
 def run_experiment(experiment, out=None, *, workers: int | None = None, cluster: str | None = None,
                    resume=None, retry_failed: bool = False, report: bool = False, write_report=None, plugins=(),
-                   progress: bool | None = None, command: list | None = None, root="runs") -> RunSummary:
+                   progress: bool | None = None, command: list | None = None, root="runs",
+                   allow_long: bool = False) -> RunSummary:
     """Run every cell of an experiment into a run folder (see the module notes).
 
     Parameters
@@ -243,6 +245,10 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
         Progress bar (default: when stderr is a terminal).
     command : list of str, optional
         The command line, for the manifest.
+    root : path-like
+        Where the default run folder is made.
+    allow_long : bool
+        Run even when the estimated time on one core exceeds :data:`sim.runner.cost.MAX_SECONDS`.
 
     Returns
     -------
@@ -262,6 +268,7 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
             raise InputError("retry_failed", "only applies when resuming a run")
         exp = _experiment_of(experiment)
         choose_backend(workers, cluster, exp.n_cells)  # every setting checked before the folder exists
+        _check_time(exp, allow_long)
         folder, lock = _create_folder(out, exp.name, root)
     try:
         plan = _plan(folder, experiment, resume, retry_failed, report, workers, cluster, plugin_info)
@@ -284,6 +291,14 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
     return RunSummary(folder, exp.name, exp.kind, exp.n_cells, counts["ok"], counts["failed"], failed_rows, ran,
                       time.perf_counter() - t_start, plan.backend.describe(), status == "complete", files, report_dir,
                       status)
+
+
+def _check_time(exp, allow_long: bool) -> None:
+    c = exp.cost
+    if c and c["seconds"] > MAX_SECONDS and not allow_long:
+        raise InputError("allow_long", f"the run is estimated at {c['work']:.3g} {c['unit']}, about "
+                                       f"{describe_seconds(c['seconds'])} on one core, more than the "
+                                       f"{describe_seconds(MAX_SECONDS)} a run takes unless it is allowed")
 
 
 @dataclass

@@ -58,6 +58,7 @@ from sim.core.values import (
     parse_values,
     value_label,
 )
+from sim.runner.cost import check_cell_cost
 from sim.runner.kinds import get_kind, known_kinds
 
 __all__ = [
@@ -482,6 +483,7 @@ class Experiment:
     sha256: str | None = None
     source: str | None = None
     metric_names: tuple = field(default=())
+    cost: dict | None = None
 
     @property
     def n_cells(self) -> int:
@@ -639,6 +641,7 @@ def experiment_from_dict(doc: dict, *, text: str | None = None, source: str | No
             base_error = exc
     first = None
     n = exp.n_cells if check_cells else 1
+    total = {"memory": 0.0, "work": 0.0, "seconds": 0.0, "unit": ""}
     for i in range(n):
         cell = exp.cell(i)
         try:
@@ -649,6 +652,10 @@ def experiment_from_dict(doc: dict, *, text: str | None = None, source: str | No
             if base_error is not None and (exc.key, exc.message) == (base_error.key, base_error.message):
                 raise base_error from None
             raise _sweep_error(exc, cell, swept, base) from None
+        c = check_cell_cost(kind, prepared, f" ({cell.describe()})" if params else "")
+        if c is not None:
+            total = {"memory": max(total["memory"], c.memory), "work": total["work"] + c.work,
+                     "seconds": total["seconds"] + c.seconds, "unit": c.unit}
         if first is None:
             first = prepared
     if base_error is not None and base_error.key and canonical_path(base_error.key) in swept \
@@ -657,7 +664,12 @@ def experiment_from_dict(doc: dict, *, text: str | None = None, source: str | No
         raise InputError(base_error.key, f"{base_error.message} (the file's own value, which [sweep] replaces "
                                          "in every cell; give a valid one or leave it out)") from None
     names = tuple(kind.metric_names(first)) if kind.metric_names is not None else ()
-    exp = Experiment(**{**exp.__dict__, "metric_names": names})
+    cost = None
+    if kind.cost is not None:
+        scale = exp.n_cells / n  # the cells not validated are taken to cost what the first did
+        cost = {"cell_memory": total["memory"], "work": total["work"] * scale, "unit": total["unit"],
+                "seconds": total["seconds"] * scale, "estimated_from": n}
+    exp = Experiment(**{**exp.__dict__, "metric_names": names, "cost": cost})
     _check_report_metrics(exp, kind)
     return exp
 

@@ -155,6 +155,9 @@ class Kind:
         The model's assumptions and limitations, stated in the report.
     summary : str
         One line: what a cell of this kind computes.
+    cost : callable, optional
+        ``cost(config) -> sim.runner.cost.Cost``: the estimated peak memory and work of a prepared cell, checked
+        before any work starts (:mod:`sim.runner.cost`).
     result_type : type, optional
         The class of the kind's result objects (``from_dict`` rebuilds a stored cell's result).
     report : callable, optional
@@ -181,6 +184,7 @@ class Kind:
     describe: Callable[[dict], list] | None = None
     assumptions: tuple = ()
     summary: str = ""
+    cost: Callable[[Any], Any] | None = None
     result_type: type | None = None
     report: Callable[[Any, Any], None] | None = None
 

@@ -19,7 +19,9 @@ import math
 
 import numpy as np
 
+import sim.simulation.kernel as K
 from sim.core.errors import InputError
+from sim.core.parallel import usable_cores
 from sim.core.params import Integer
 from sim.core.tables import refuse_unknown
 from sim.core.values import value_label
@@ -33,6 +35,7 @@ from sim.runner.analyses.common import (
     stage_of,
     thin,
 )
+from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
 from sim.simulation.baseline import scheme_of
 from sim.simulation.engine import check_run, compile_game, run_game, simulation_from_dict
@@ -273,6 +276,37 @@ def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
     return CellResult(m, arrays)
 
 
+#: firm-periods per second of the simulation kernel on one core assumed by the time estimate (a conservative
+#: figure: ``supergame bench --only engine`` measures the machine's own)
+THROUGHPUT = 2e7
+
+
+def simulate_cost(cfg: dict) -> Cost:
+    """The estimated peak memory and work of a simulate cell (see :mod:`sim.runner.cost`).
+
+    Parameters
+    ----------
+    cfg : dict
+        The prepared cell.
+
+    Returns
+    -------
+    Cost
+    """
+    r = cfg["run"]
+    n, n_products = cfg["spec"].n_firms, cfg["spec"].n_products
+    periods, reps, paths = int(r["periods"]), int(r["replications"]), int(r["paths"])
+    chunks = 4 * usable_cores()
+    # per replication: profits and discounted profits, counters, generator state; per period: the chunks'
+    # histograms and the merged ones, the summaries' curves; recorded paths: prices, market, flags per firm
+    per_rep = 8 * (2 * n + K.N_RINT + K.N_RFLT + 4)
+    per_period = 8 * (chunks * (K.N_HIST + 1) + K.N_HIST + 20)
+    memory = reps * per_rep + periods * per_period + 8 * paths * periods * (2 * n_products + 3 * n + 4)
+    work = (2 if cfg["deviation"] is not None else 1) * float(periods) * reps * n
+    key = "run.periods" if periods * per_period >= reps * per_rep else "run.replications"
+    return Cost(memory, work, "firm-periods", work / THROUGHPUT, key)
+
+
 def _describe_simulate(doc: dict) -> list[str]:
 
     run = {"periods": 1000, "replications": 1000, "horizon": "fixed", "delta": 0.95, "seed": 0, **doc.get("run", {})}
@@ -303,6 +337,7 @@ KIND = Kind(
     prepare=_prepare_simulate,
     run=_run_simulate,
     metric_names=_simulate_names,
+    cost=simulate_cost,
     headline=("collusive_share", "profit_gain", "war_share", "first_breakdown"),
     analytic={"collusive_share": "analytic.collusive_share", "war_share": "analytic.war_share",
               "spell_length": "analytic.spell_length", "war_length": "analytic.war_length",

@@ -9,10 +9,32 @@ from sim.core.tables import refuse_unknown
 from sim.models.market import market_from_dict
 from sim.models.monitoring import monitoring_from_dict
 from sim.runner.analyses.common import GENERAL_ASSUMPTIONS, collusion_of, describe_market, nan_if_none, stage_of
+from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
 from sim.theory.analysis import ThresholdsResult, ThresholdsSpec, thresholds_analysis
 
 _TH_KEYS = ("punishments", "deltas")
+#: the longest lists of punishment lengths and discount factors a cell takes (each is a set of solver calls)
+MAX_PUNISHMENTS, MAX_DELTAS = 100, 1000
+#: seconds of one solver call per firm assumed by the time estimate
+SECONDS_PER_CALL = 0.005
+
+
+def thresholds_cost(cfg: dict) -> Cost:
+    """The estimated work of a thresholds cell: solver calls (see :mod:`sim.runner.cost`).
+
+    Parameters
+    ----------
+    cfg : dict
+
+    Returns
+    -------
+    Cost
+    """
+    schemes = len(cfg["punishments"]) + 2
+    calls = 3 + schemes + len(cfg["deltas"]) * (schemes * 20 + (1 if cfg["trigger_price"] else 0))
+    return Cost(64.0 * cfg["n_firms"] ** 2 * 1000, float(calls), "solver calls",
+                calls * SECONDS_PER_CALL * cfg["n_firms"], "thresholds.deltas")
 
 
 def _prepare_thresholds(doc: dict) -> dict:
@@ -28,6 +50,9 @@ def _prepare_thresholds(doc: dict) -> dict:
     for key, v in (("thresholds.punishments", Ts), ("thresholds.deltas", ds)):
         if not isinstance(v, list):
             raise InputError(key, f"must be a list, got {v!r}")
+    for key, v, most in (("thresholds.punishments", Ts, MAX_PUNISHMENTS), ("thresholds.deltas", ds, MAX_DELTAS)):
+        if len(v) > most:
+            raise InputError(key, f"lists {len(v)} values, more than {most}; sweep a longer list with [sweep]")
     Ts = [Integer(1, 10_000_000).check(f"thresholds.punishments[{i + 1}]", T) for i, T in enumerate(Ts)]
     ds = [Real(0, 1, closed="neither").check(f"thresholds.deltas[{i + 1}]", d) for i, d in enumerate(ds)]
     mon = monitoring_from_dict(doc.get("monitoring", {})).validated()
@@ -144,6 +169,7 @@ KIND = Kind(
     prepare=_prepare_thresholds,
     run=_run_thresholds,
     metric_names=_threshold_names,
+    cost=thresholds_cost,
     result_type=ThresholdsResult,
     seed_key=None,
     headline=("threshold.grim", "threshold.stick_carrot", "threshold.finite[1]"),
