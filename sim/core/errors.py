@@ -36,7 +36,16 @@ class InputError(SupergameError, ValueError):
         super().__init__(f"{key}: {message}" if key else message)
 
     def with_prefix(self, prefix: str) -> InputError:
-        """Return the same error with ``prefix.`` prepended to its key path."""
+        """The same error with ``prefix.`` prepended to its key path.
+
+        Parameters
+        ----------
+        prefix : str
+
+        Returns
+        -------
+        InputError
+        """
         key = f"{prefix}.{self.key}" if self.key else prefix
         return InputError(key, self.message)
 

@@ -43,7 +43,17 @@ __all__ = ["Estimate", "Survival", "kaplan_meier", "mean_estimate", "normal_quan
 
 
 def normal_quantile(confidence: float) -> float:
-    """``z`` with ``P(|Z| <= z) = confidence`` for a standard normal ``Z`` (1.95996... at 0.95)."""
+    """``z`` with ``P(|Z| <= z) = confidence`` for a standard normal ``Z`` (1.95996... at 0.95).
+
+    Parameters
+    ----------
+    confidence : float
+        In (0, 1).
+
+    Returns
+    -------
+    float
+    """
     return float(math.sqrt(2.0) * special.erfinv(confidence))
 
 
@@ -74,6 +84,12 @@ class Estimate:
     note: str = ""
 
     def to_dict(self) -> dict:
+        """The estimate as plain data.
+
+        Returns
+        -------
+        dict
+        """
         out = {"value": self.value, "se": self.se, "low": self.low, "high": self.high, "n": self.n,
                "method": self.method}
         if self.note:
@@ -81,7 +97,16 @@ class Estimate:
         return out
 
     def affine(self, a: float, b: float) -> Estimate:
-        """The estimate of ``a + b x``."""
+        """The estimate of ``a + b x``: the same affine map of the value and of the interval.
+
+        Parameters
+        ----------
+        a, b : float
+
+        Returns
+        -------
+        Estimate
+        """
         lo, hi = sorted((a + b * self.low, a + b * self.high))
         return Estimate(a + b * self.value, abs(b) * self.se, lo, hi, self.n, self.method, self.note)
 
@@ -93,7 +118,18 @@ def _interval(value: float, se: float, z: float) -> tuple[float, float]:
 
 
 def mean_estimate(x, confidence: float = 0.95) -> Estimate:
-    """Mean over replications with the normal-approximation interval."""
+    """Mean over replications with the normal-approximation interval.
+
+    Parameters
+    ----------
+    x : array_like of shape (n,)
+        One value per replication.
+    confidence : float
+
+    Returns
+    -------
+    Estimate
+    """
     x = np.asarray(x, dtype=float)
     n = x.shape[0]
     m = float(x.mean()) if n else math.nan
@@ -104,7 +140,18 @@ def mean_estimate(x, confidence: float = 0.95) -> Estimate:
 
 def wilson_estimate(k: int, n: int, confidence: float = 0.95) -> Estimate:
     """Share ``k / n`` with the Wilson score interval (Wilson, 1927); ``se`` is the binomial
-    ``sqrt(p (1 - p) / n)``. The bounds are exactly 0 and 1 at ``k = 0`` and ``k = n``."""
+    ``sqrt(p (1 - p) / n)``. The bounds are exactly 0 and 1 at ``k = 0`` and ``k = n``.
+
+    Parameters
+    ----------
+    k, n : int
+        Successes and trials.
+    confidence : float
+
+    Returns
+    -------
+    Estimate
+    """
     k, n = int(k), int(n)
     if n == 0:
         return Estimate(math.nan, math.nan, math.nan, math.nan, 0, "wilson")
@@ -119,7 +166,19 @@ def wilson_estimate(k: int, n: int, confidence: float = 0.95) -> Estimate:
 
 
 def ratio_estimate(x, y, confidence: float = 0.95) -> Estimate:
-    """Ratio of totals ``sum(x) / sum(y)`` with the delta-method standard error across replications."""
+    """Ratio of totals ``sum(x) / sum(y)`` with the delta-method standard error across replications
+    (Cochran, 1977, "Sampling Techniques", section 6.4).
+
+    Parameters
+    ----------
+    x, y : array_like of shape (n,)
+        Per-replication numerator and denominator.
+    confidence : float
+
+    Returns
+    -------
+    Estimate
+    """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
     n = x.shape[0]
@@ -166,6 +225,16 @@ class Survival:
     mean: Estimate
 
     def to_dict(self, max_points: int = 200) -> dict:
+        """The curve as plain data, thinned to at most ``max_points`` lengths.
+
+        Parameters
+        ----------
+        max_points : int
+
+        Returns
+        -------
+        dict
+        """
         m = self.lengths.shape[0]
         idx = np.unique(np.round(np.linspace(0, m - 1, min(m, max_points))).astype(int)) if m else np.zeros(0, int)
         return {"lengths": self.lengths[idx].tolist(), "survival": self.survival[idx].tolist(),
@@ -180,6 +249,7 @@ def kaplan_meier(ended, censored, confidence: float = 0.95, restrict: int | None
     ----------
     ended, censored : int array_like of shape (L + 1,)
         Entry ``l`` counts observations of length ``l`` (entry 0 unused).
+    confidence : float
     restrict : int, optional
         Upper limit of the restricted mean (default: the longest observation).
 

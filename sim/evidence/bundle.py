@@ -220,15 +220,43 @@ class Bundle:
     # -- text --------------------------------------------------------------------------------------
 
     def heading(self, text: str, level: int = 2) -> None:
+        """A section heading.
+
+        Parameters
+        ----------
+        text : str
+        level : int
+            2 (section) to 4.
+        """
         self.blocks.append(_Block("heading", {"text": text, "level": max(2, min(4, level))}))
 
     def paragraph(self, text: str, note: bool = False) -> None:
+        """A paragraph of text (``code`` spans and **bold** are kept).
+
+        Parameters
+        ----------
+        text : str
+        note : bool
+            Set in small type, as a remark.
+        """
         self.blocks.append(_Block("paragraph", {"text": text, "note": note}))
 
     def bullets(self, items) -> None:
+        """A bulleted list.
+
+        Parameters
+        ----------
+        items : sequence of str
+        """
         self.blocks.append(_Block("bullets", {"items": [str(x) for x in items]}))
 
     def code(self, text: str) -> None:
+        """A block of code or commands, shown as written.
+
+        Parameters
+        ----------
+        text : str
+        """
         self.blocks.append(_Block("code", {"text": text}))
 
     # -- tables and figures ------------------------------------------------------------------------
@@ -244,7 +272,25 @@ class Bundle:
               max_rows: int = 60, note: str | None = None, csv_rows=None) -> None:
         """Add a table: ``tables/NAME.csv`` (full precision) and ``tables/NAME.tex`` (booktabs, ``digits``
         significant digits), shown in the summary (at most ``max_rows`` rows) unless ``show`` is false.
-        ``csv_rows`` replaces the rows written to the CSV file (e.g. with more columns)."""
+
+        Parameters
+        ----------
+        name : str
+            File stem.
+        headers : sequence of str
+        rows : sequence of sequence
+        caption : str, optional
+        digits : int
+            Significant digits of the LaTeX and displayed numbers.
+        show : bool
+            Show it in the summary (the files are written either way).
+        max_rows : int
+            Rows shown in the summary (the files hold them all).
+        note : str, optional
+            A remark under the table.
+        csv_rows : tuple of (headers, rows), optional
+            What the CSV file holds instead (e.g. with more columns).
+        """
         self._claim(name, "table")
         headers = [str(h) for h in headers]
         rows = [list(r) for r in rows]
@@ -276,12 +322,26 @@ class Bundle:
         self.blocks.append(_Block("figure", {"name": name, "caption": caption, "png": png}))
 
     def attach(self, relpath: str, data: bytes) -> None:
-        """Add a file of any kind (e.g. a copy of the experiment file) at ``relpath`` inside the bundle."""
+        """Add a file of any kind (e.g. a copy of the experiment file) inside the bundle.
+
+        Parameters
+        ----------
+        relpath : str
+            Path inside the bundle (relative, no ``..``).
+        data : bytes
+        """
         if relpath.startswith(("/", "..")) or "\\" in relpath:
             raise ValueError(f"bad path {relpath!r}")
         self._write(relpath, data)
 
     def assumptions(self, items, heading: str = "Assumptions and limitations") -> None:
+        """The one section of assumptions and limitations (with those added to :attr:`assumption_items`).
+
+        Parameters
+        ----------
+        items : sequence of str
+        heading : str
+        """
         self.heading(heading)
         self.bullets([*self.assumption_items, *items])
 
@@ -295,6 +355,12 @@ class Bundle:
             self.files.append(rel)
 
     def markdown(self) -> str:
+        """The summary as Markdown (HTML in the text shown as text).
+
+        Returns
+        -------
+        str
+        """
         out = [f"# {_md_text(self.title)}", ""]
         for b in self.blocks:
             d = b.data
@@ -326,6 +392,12 @@ class Bundle:
         return "\n".join(out)
 
     def html(self) -> str:
+        """The summary as one self-contained HTML page (figures embedded).
+
+        Returns
+        -------
+        str
+        """
         out = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
                f"<title>{html.escape(self.title)}</title>", f"<style>{_CSS}</style>", "</head>", "<body>",
                f"<h1>{html.escape(self.title)}</h1>"]
@@ -371,11 +443,19 @@ class Bundle:
         return "\n".join(out)
 
     def write(self, manifest: dict | None = None) -> list[str]:
-        """Write ``summary.md``, ``summary.html`` and ``manifest.json``; return the bundle's files.
+        """Write ``summary.md``, ``summary.html`` and ``manifest.json`` and move the bundle into place.
 
-        ``manifest`` adds entries to the manifest (for example ``experiment`` with its file and SHA-256,
-        ``command``, ``seeds``, ``started``, ``finished``), over those of :attr:`manifest`; package
-        versions, the platform and the SHA-256 of every file of the bundle are filled in.
+        Parameters
+        ----------
+        manifest : dict, optional
+            Entries added to the manifest (for example ``experiment`` with its file and SHA-256, ``command``,
+            ``seeds``, ``started``, ``finished``), over those of :attr:`manifest`; package versions, the platform and
+            the SHA-256 of every file of the bundle are filled in.
+
+        Returns
+        -------
+        list of str
+            The bundle's files, relative to its folder.
         """
 
         if self.written:

@@ -229,12 +229,25 @@ def _prepare_target(target: Path, default: bool) -> None:
 
 
 def write_report(folder, out=None, update_manifest: bool = True) -> Path:
-    """Write the evidence bundle of a finished run folder (default ``RUN_DIR/report``); return its path.
+    """Write the evidence bundle of a finished run folder (default ``RUN_DIR/report``).
 
     The bundle is written beside its folder and moved into place at the end (:class:`sim.evidence.bundle.Bundle`),
-    so a write that is stopped leaves the earlier report, or none. A bundle inside the run folder is
-    recorded in the run's manifest (unless ``update_manifest`` is false: the caller writes the manifest),
+    so a write that is stopped leaves the earlier report, or none. A bundle inside the run folder is recorded in the
+    run's manifest (unless ``update_manifest`` is false: the caller writes the manifest, and holds the folder's lock),
     which must still match every other file of the folder (:func:`sim.runner.runs.check_manifest`).
+
+    Parameters
+    ----------
+    folder : path-like
+        The run folder.
+    out : path-like, optional
+        Where the bundle goes instead (not inside another run folder).
+    update_manifest : bool
+
+    Returns
+    -------
+    Path
+        The bundle's folder.
     """
 
     folder = Path(folder)

@@ -461,6 +461,8 @@ class Experiment:
         Swept parameters (empty: one cell).
     groups : tuple of tuple of str
         Paths varying together, in grid order.
+    mode : str
+        ``"grid"`` (every combination) or ``"zip"`` (values taken together).
     report : ReportSettings
     text : str or None
         The file's text (what the run folder keeps and hashes).
@@ -469,6 +471,8 @@ class Experiment:
         Where the file was read from.
     metric_names : tuple of str
         Metrics a cell reports (from the kind, for the first cell).
+    cost : dict or None
+        The estimated cost of the run (:mod:`sim.runner.cost`): ``cell_memory``, ``work``, ``unit``, ``seconds``.
     """
 
     name: str
@@ -487,6 +491,7 @@ class Experiment:
 
     @property
     def n_cells(self) -> int:
+        """The number of cells of the sweep (1 without one)."""
         by = {p.path: p for p in self.parameters}
         n = 1
         for g in self.groups:
@@ -495,9 +500,20 @@ class Experiment:
 
     @property
     def is_sweep(self) -> bool:
+        """Whether the experiment sweeps a parameter."""
         return bool(self.parameters)
 
     def parameter(self, path: str) -> Parameter:
+        """The swept parameter at ``path``.
+
+        Parameters
+        ----------
+        path : str
+
+        Returns
+        -------
+        Parameter
+        """
         for p in self.parameters:
             if p.path == path:
                 return p
@@ -505,10 +521,26 @@ class Experiment:
 
     def kind_spec(self):
 
+        """The experiment's kind.
+
+        Returns
+        -------
+        sim.runner.kinds.Kind
+        """
         return get_kind(self.kind)
 
     def positions(self, index: int) -> dict:
-        """Swept path -> index of its value in cell ``index``."""
+        """Swept path -> index of its value in cell ``index``.
+
+        Parameters
+        ----------
+        index : int
+            Counted from 0.
+
+        Returns
+        -------
+        dict
+        """
         by = {p.path: p for p in self.parameters}
         sizes = [len(by[g[0]]) for g in self.groups]
         out = {}
@@ -521,7 +553,17 @@ class Experiment:
         return {p.path: out[p.path] for p in self.parameters}
 
     def cell(self, index: int) -> Cell:
-        """Cell ``index`` (0 .. n_cells - 1) with its complete document."""
+        """Cell ``index`` with its complete document.
+
+        Parameters
+        ----------
+        index : int
+            0 .. n_cells - 1.
+
+        Returns
+        -------
+        Cell
+        """
         if not 0 <= index < self.n_cells:
             raise IndexError(index)
         pos = self.positions(index)
@@ -536,11 +578,28 @@ class Experiment:
         return Cell(index, values, labels, doc)
 
     def cells(self) -> Iterator[Cell]:
+        """Every cell in order.
+
+        Yields
+        ------
+        Cell
+        """
         for i in range(self.n_cells):
             yield self.cell(i)
 
     def seed(self, doc: dict | None = None) -> int | None:
-        """The experiment seed (the kind's seed key, e.g. ``run.seed``) of the file or of a cell's document."""
+        """The experiment seed (the kind's seed key, e.g. ``run.seed``) of the file or of a cell's document.
+
+        Parameters
+        ----------
+        doc : dict, optional
+            A cell's document (default: the file's).
+
+        Returns
+        -------
+        int or None
+            None for a deterministic kind.
+        """
         return self.kind_spec().seed_of(self.doc if doc is None else doc)
 
 
@@ -609,10 +668,25 @@ def _sweep_error(exc: InputError, cell: Cell, swept: set, base: dict) -> InputEr
 
 def experiment_from_dict(doc: dict, *, text: str | None = None, source: str | None = None,
                          default_name: str | None = None, check_cells: bool = True) -> Experiment:
-    """Validate an experiment document (a parsed TOML file) and every cell of its sweep.
+    """Validate an experiment document (a parsed TOML file) and every cell of its sweep, and estimate its cost.
 
-    Raises :class:`InputError` naming the key path, the allowed values and what was given, before any
-    work starts. With ``check_cells=False`` only the file and the first cell are validated.
+    Raises :class:`InputError` naming the key path, the allowed values and what was given, before any work starts.
+
+    Parameters
+    ----------
+    doc : dict
+    text : str, optional
+        The file's text (kept and hashed by run folders).
+    source : str, optional
+        Where it was read from.
+    default_name : str, optional
+        The name when ``[experiment]`` gives none.
+    check_cells : bool
+        Validate every cell (else only the first; the others are taken to cost what it does).
+
+    Returns
+    -------
+    Experiment
     """
 
     if not isinstance(doc, dict):
@@ -712,7 +786,17 @@ def leading_comment(text: str) -> str:
 
 
 def load_experiment(path, check_cells: bool = True) -> Experiment:
-    """Read and validate an experiment file (see the module notes); raises :class:`InputError`."""
+    """Read and validate an experiment file (see :func:`experiment_from_dict`).
+
+    Parameters
+    ----------
+    path : path-like
+    check_cells : bool
+
+    Returns
+    -------
+    Experiment
+    """
 
     p = Path(path)
     doc = read_toml(p)

@@ -132,6 +132,7 @@ class RunFolder:
             raise
 
     def close(self) -> None:
+        """Close the store."""
         self.store.close()
 
     def __enter__(self):
@@ -142,8 +143,19 @@ class RunFolder:
         return False
 
     def rows(self, problems: list | None = None) -> list:
-        """The stored cells in cell order. A row that cannot be read back or lies outside the sweep raises
-        InputError; with a list as ``problems``, it is described there and left out instead."""
+        """The stored cells in cell order.
+
+        A row that cannot be read back or lies outside the sweep raises InputError; with a list as ``problems``, it is
+        described there and left out instead.
+
+        Parameters
+        ----------
+        problems : list, optional
+
+        Returns
+        -------
+        list of CellRow
+        """
         if self._rows is not None and problems is None:
             return self._rows
         with reading(self.key, self.path):
@@ -169,12 +181,28 @@ class RunFolder:
         return out
 
     def attempts(self) -> list[dict]:
+        """The attempts that wrote the folder (the run and its resumptions), oldest first.
+
+        Returns
+        -------
+        list of dict
+        """
         with reading(self.key, self.path):
             return self.store.attempts()
 
     def result(self, cell: int):
-        """The result object of cell ``cell`` (counted from 0), rebuilt from its stored document by the kind's
-        ``result_type``; None for a failed cell or a kind without result objects."""
+        """The result object of a cell, rebuilt from its stored document by the kind's ``result_type``.
+
+        Parameters
+        ----------
+        cell : int
+            Counted from 0.
+
+        Returns
+        -------
+        object or None
+            None for a failed cell or a kind without result objects.
+        """
         kind = self.experiment.kind_spec()
         if kind.result_type is None:
             return None
@@ -183,16 +211,33 @@ class RunFolder:
         return None if doc is None else kind.result_type.from_dict(doc)
 
     def table(self) -> tuple[list[str], list[list]]:
-        """Columns and rows of the results table (as in ``results.csv``)."""
+        """Columns and rows of the results table (as in ``results.csv``).
+
+        Returns
+        -------
+        header : list of str
+        body : list of list
+        """
 
         return export_table(self.rows(), list(self.experiment.parameters), self.experiment.metric_names)
 
     def frame(self):
-        """The results table as a pandas DataFrame (pandas is optional)."""
+        """The results table as a pandas DataFrame (pandas is optional).
+
+        Returns
+        -------
+        pandas.DataFrame
+        """
 
         return frame(*self.table())
 
     def counts(self) -> dict:
+        """Cells finished, failed, missing and in all.
+
+        Returns
+        -------
+        dict
+        """
         rows = self.rows()
         c = {"ok": sum(r.status == "ok" for r in rows), "failed": sum(r.status == "failed" for r in rows)}
         c["total"] = self.experiment.n_cells
@@ -201,9 +246,16 @@ class RunFolder:
 
     @property
     def complete(self) -> bool:
+        """Whether every cell has a row."""
         return self.counts()["missing"] == 0
 
     def manifest(self) -> dict | None:
+        """The folder's manifest (None before the run finished).
+
+        Returns
+        -------
+        dict or None
+        """
         p = self.path / MANIFEST
         if not p.is_file():
             return None
@@ -215,7 +267,16 @@ class RunFolder:
 
 
 def open_run(path) -> RunFolder:
-    """Open a run folder for reading (results table, DataFrame, counts, manifest)."""
+    """Open a run folder for reading (results table, DataFrame, counts, results, manifest).
+
+    Parameters
+    ----------
+    path : path-like
+
+    Returns
+    -------
+    RunFolder
+    """
     return RunFolder(path)
 
 

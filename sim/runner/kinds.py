@@ -142,6 +142,8 @@ class Kind:
         ``[report]``); the run must report exactly these.
     seed_key : str or None
         Key path of the experiment seed (``run.seed``); None for deterministic kinds.
+    seed_default : int
+        The seed of a document that gives none.
     headline : tuple of str
         Metrics shown first in summaries and used by default figures.
     analytic : mapping of str to str
@@ -189,7 +191,17 @@ class Kind:
     report: Callable[[Any, Any], None] | None = None
 
     def seed_of(self, doc: dict) -> int | None:
-        """The seed a cell's document gives (``seed_default`` when the key is absent)."""
+        """The seed a cell's document gives (``seed_default`` when the key is absent).
+
+        Parameters
+        ----------
+        doc : dict
+
+        Returns
+        -------
+        int or None
+            None for a deterministic kind.
+        """
         if self.seed_key is None:
             return None
         cur: Any = doc
@@ -201,7 +213,18 @@ class Kind:
 
 
 def register_kind(kind: Kind, replace: bool = False) -> Kind:
-    """Make ``kind`` available as ``experiment.kind = kind.name``."""
+    """Make ``kind`` available as ``experiment.kind = kind.name``.
+
+    Parameters
+    ----------
+    kind : Kind
+    replace : bool
+        Replace a kind registered under the same name.
+
+    Returns
+    -------
+    Kind
+    """
     if not isinstance(kind, Kind):
         raise TypeError(f"expected a sim.runner.kinds.Kind, got {kind!r}")
     if kind.name in _KINDS and not replace and _KINDS[kind.name] is not kind:

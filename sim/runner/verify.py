@@ -299,6 +299,14 @@ def verify_run(folder, sample: int | None = None, cells=None, rtol: float = 1e-9
         default: every finished cell when there are at most :data:`ALL_CELLS_UP_TO`, else that many. 0: no re-run.
     cells : sequence of int, optional
         Re-run these cells (numbers counted from 1, as in the exports) instead of a sample.
+    rtol, atol : float
+        Relative and absolute tolerance of the comparison of a re-run metric with the stored one.
+    threads : int
+        Threads of a re-run cell (the numbers do not depend on it).
+
+    Returns
+    -------
+    VerifyResult
 
     Raises
     ------
