@@ -1,0 +1,476 @@
+"""The catalogue of every number a reader sees: its label, unit, definition, method with its published source, and
+interval method.
+
+A metric's stored name (``threshold.grim.firm2``, ``collusive_share.low``, ``partial_gain.finite[1][2].after``,
+``score.grim``) is a stem with qualifiers; :func:`describe` takes the qualifiers off -- the interval bounds and
+standard error (``.low``, ``.high``, ``.se``), the analytic prediction (``analytic.``), the firm or product
+(``.firmN``, ``.productN``), the side of a merger (``.before``, ``.after``), list positions (``[k]``), quantiles
+(``.q05``) and a tournament entrant's label -- and builds the reader's label from the stem's entry. Swept
+parameters (``run.delta``, ``monitoring.sigma``...) have entries too. Tables, figures, console lines and the
+bundle's glossary are labelled from here; the glossary is the only place a stored name (its "key") appears.
+
+Units: money is in the experiment's currency per period (``[experiment] currency`` and ``period``; "currency units
+per period" when the file gives none).
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+__all__ = ["Described", "Entry", "ENTRIES", "PARAMETERS", "describe", "describe_parameter", "glossary", "money"]
+
+
+@dataclass(frozen=True)
+class Entry:
+    """One stem of the catalogue.
+
+    Attributes
+    ----------
+    label : str
+        What a reader calls it (lower case, no unit).
+    unit : str
+        Its unit; ``"{money}"`` stands for the currency per period, ``""`` for a pure number.
+    definition : str
+        One sentence.
+    method : str
+        The formula or method, with its published source (or "common practice" where there is none).
+    interval : str
+        How its interval is computed ("none" for exact or analytic numbers).
+    """
+
+    label: str
+    unit: str
+    definition: str
+    method: str
+    interval: str = "none (exact or analytic)"
+
+
+_RATIO = ("ratio of totals across replications; interval: Wilson score interval with the design-effect sample size "
+          "(Korn and Graubard, 1998, Survey Methodology 24(2)), which stays in [0, 1]")
+_MEAN = "normal approximation across independent replications (mean +- z s / sqrt(n))"
+_KM = ("Kaplan-Meier restricted mean with Greenwood's variance (Kaplan and Meier, 1958; Klein and Moeschberger, 2003, "
+       "section 4.5), interval on the log scale, within [1, horizon]")
+_WILSON = "Wilson score interval (Wilson, 1927, JASA 22)"
+_STUDENT = "Student t across independent sessions"
+_FRIEDMAN = ("delta* = (pi_D - pi_C) / (pi_D - pi_N), the smallest delta with pi_C / (1 - delta) >= pi_D + delta pi_N "
+             "/ (1 - delta) (Friedman, 1971, Review of Economic Studies 38(1))")
+
+ENTRIES: dict[str, Entry] = {
+    # stage game and thresholds
+    "n_firms": Entry("number of firms", "", "Firms in the market.", "given"),
+    "profit.collusive": Entry("collusive profit", "{money}", "The firm's profit per period under the agreement.",
+                              "stage game of the stated demand and costs"),
+    "profit.deviation": Entry("deviation profit", "{money}",
+                              "The firm's profit in the period of its best one-shot deviation from the agreement.",
+                              "best response to the rivals' agreed actions"),
+    "profit.nash": Entry("static-Nash profit", "{money}", "The firm's profit per period in the static Nash equilibrium.",
+                         "static Nash equilibrium of the stage game, certified by a global best-response search"),
+    "threshold.grim": Entry("critical discount factor, grim trigger", "discount factor",
+                            "The lowest discount factor at which no firm gains by deviating when a deviation is "
+                            "punished by static Nash forever.", _FRIEDMAN),
+    "threshold.finite": Entry("critical discount factor, Nash reversion for T periods", "discount factor",
+                              "The lowest discount factor at which a deviation punished by T periods of static Nash "
+                              "does not pay.",
+                              "smallest delta with (pi_D - pi_C) <= sum_{t=1..T} delta^t (pi_C - pi_N) (Friedman, 1971)"),
+    "threshold.stick_carrot": Entry("critical discount factor, stick and carrot", "discount factor",
+                                    "The lowest discount factor sustaining the agreement with the best symmetric "
+                                    "one-period punishment followed by a return to the agreement.",
+                                    "Abreu (1986), Journal of Economic Theory 39: both the collusion and the "
+                                    "punishment incentive constraints, minimised over the punishment level"),
+    "threshold": Entry("critical discount factor of the headline scheme", "discount factor",
+                       "The market's critical discount factor under the assessment's punishment scheme.",
+                       "as for the scheme (grim trigger: Friedman, 1971)"),
+    "threshold.change": Entry("change of the critical discount factor", "discount factor",
+                              "After minus before the merger; negative when the merger makes collusion easier.",
+                              "difference of the two thresholds"),
+    "binding.grim": Entry("binding firm, grim trigger", "firm number",
+                          "The firm with the highest critical discount factor (the one that is hardest to hold).",
+                          "largest per-firm threshold"),
+    "binding.finite": Entry("binding firm, Nash reversion for T periods", "firm number",
+                            "The firm with the highest critical discount factor.", "largest per-firm threshold"),
+    "binding.stick_carrot": Entry("binding firm, stick and carrot", "firm number",
+                                  "The firm with the highest critical discount factor.", "largest per-firm threshold"),
+    "binding": Entry("binding firm", "firm number", "The firm with the highest critical discount factor.",
+                     "largest per-firm threshold"),
+    "punishment": Entry("punishment length T", "periods", "Periods of static Nash after a deviation.", "given"),
+    "punishment_level.stick_carrot": Entry("stick-and-carrot punishment level", "action (quantity or price)",
+                                           "The common action of the one-period punishment.", "Abreu (1986)"),
+    "delta": Entry("discount factor", "discount factor", "The discount factor at which partial collusion is found.",
+                   "given"),
+    "partial_gain.grim": Entry("profit gain of the best sustainable collusion, grim trigger", "share of the gain",
+                               "(joint profit - joint Nash profit) / (joint collusive - joint Nash) of the most "
+                               "profitable outcome on the path from Nash to the agreement that grim trigger sustains.",
+                               "search along the straight path of actions (this tool's choice of path)"),
+    "partial_gain.finite": Entry("profit gain of the best sustainable collusion, Nash reversion for T periods",
+                                 "share of the gain", "As for grim trigger, with T periods of punishment.",
+                                 "search along the straight path of actions (this tool's choice of path)"),
+    "partial_gain.stick_carrot": Entry("profit gain of the best sustainable collusion, stick and carrot",
+                                       "share of the gain", "As for grim trigger, with the best stick and carrot.",
+                                       "search along the straight path of actions (this tool's choice of path)"),
+    "trigger_price.quantity": Entry("collusive quantity per firm, trigger-price equilibrium", "quantity",
+                                    "Each firm's output while colluding.", "Green and Porter (1984), Econometrica 52(1)"),
+    "trigger_price.trigger": Entry("trigger price", "price", "A market price below it starts a price war.",
+                                   "Green and Porter (1984)"),
+    "trigger_price.war_length": Entry("price-war length, trigger-price equilibrium", "periods",
+                                      "Periods of static Nash after the price falls below the trigger.",
+                                      "Green and Porter (1984)"),
+    "trigger_price.war_probability": Entry("probability of a price war per collusive period", "probability",
+                                           "The chance that the shocked price falls below the trigger.",
+                                           "Green and Porter (1984)"),
+    "trigger_price.expected_collusive_spell": Entry("expected collusive spell, trigger-price equilibrium", "periods",
+                                                    "Mean number of collusive periods between price wars.",
+                                                    "geometric with the war probability"),
+    "trigger_price.war_share": Entry("long-run share of price-war periods", "share (0 to 1)",
+                                     "Share of periods spent in price wars in the long run.", "renewal argument"),
+    "trigger_price.value": Entry("value of the trigger-price equilibrium", "{money}",
+                                 "Expected discounted profit of a firm, per period of the horizon (times 1 - delta).",
+                                 "Green and Porter (1984)"),
+    "trigger_price.nash_value": Entry("value of static Nash forever", "{money}",
+                                      "The same for static Nash in every period.", "stage game"),
+    # simulation
+    "collusive_share": Entry("share of collusive periods", "share (0 to 1)",
+                             "Share of periods in which every firm colludes.", "counted in the simulation", _RATIO),
+    "war_share": Entry("share of price-war periods", "share (0 to 1)",
+                       "Share of periods that belong to a price war.", "counted in the simulation", _RATIO),
+    "wars_per_replication": Entry("price wars per replication", "count", "Price wars started in a replication.",
+                                  "counted in the simulation", _MEAN),
+    "war_frequency": Entry("price wars started per period", "per period", "Price wars started per period.",
+                           "counted in the simulation", _RATIO),
+    "spell_length": Entry("mean collusive spell", "periods", "Mean length of a run of collusive periods.",
+                          "survival analysis of spells cut off by the horizon", _KM),
+    "war_length": Entry("mean price-war length", "periods",
+                        "Mean length of a price war, its deviation period included.",
+                        "survival analysis of wars cut off by the horizon", _KM),
+    "punishment_length": Entry("mean punishment phase", "periods",
+                               "Mean length of a run of periods in which some firm punishes.",
+                               "survival analysis", _KM),
+    "first_breakdown": Entry("time to first breakdown", "periods",
+                             "Number of the first period that is not collusive (counted from 1).",
+                             "survival analysis, one observation per replication", _KM),
+    "broken_down": Entry("share of replications that broke down", "share (0 to 1)",
+                         "Share of replications with at least one non-collusive period.", "counted", _WILSON),
+    "price": Entry("mean market price", "price", "Average market price per period.", "counted", _RATIO),
+    "overcharge": Entry("overcharge over the static-Nash price", "share of the Nash price",
+                        "Mean price / static-Nash price - 1.", "affine map of the mean price", _RATIO),
+    "consumer_surplus": Entry("mean consumer surplus", "{money}", "Consumer surplus per period.",
+                              "closed form of the demand system", _RATIO),
+    "joint_profit": Entry("mean joint profit", "{money}", "Sum of the firms' profits per period.", "counted", _RATIO),
+    "profit_gain": Entry("profit gain", "share of the gain",
+                         "(profit - static-Nash profit) / (collusive profit - static-Nash profit): 0 at Nash, 1 at "
+                         "the agreement.", "Calvano, Calzolari, Denicolo and Pastorello (2020), AER 110(10)", _RATIO),
+    "profit": Entry("mean profit", "{money}", "The firm's profit per period.", "counted", _RATIO),
+    "discounted_profit": Entry("discounted profit", "{money} (discounted sum)",
+                               "Sum over the horizon of delta^t times the profit.", "counted", _MEAN),
+    "nash_price": Entry("static-Nash price", "price", "Market price of the static Nash equilibrium.", "stage game"),
+    "collusive_price": Entry("collusive price", "price", "Market price under the agreement.", "stage game"),
+    "deviation.gain": Entry("gain from a one-shot deviation", "{money} (discounted sum)",
+                            "Paired difference of the deviator's discounted profit with and without the deviation: "
+                            "positive means the line-up is not an equilibrium.",
+                            "one-shot deviation principle (Mailath and Samuelson, 2006, section 2.2)", _MEAN),
+    "deviation.pays": Entry("deviation pays", "yes (1) / no (0)", "Whether the mean gain is positive.", "sign"),
+    "deviation.firm": Entry("deviating firm", "firm number", "The firm that deviates once.", "given"),
+    "deviation.conform_value": Entry("discounted profit without deviating", "{money} (discounted sum)",
+                                     "The deviator's mean discounted profit when it follows its strategy.", "counted"),
+    "deviation.deviate_value": Entry("discounted profit when deviating", "{money} (discounted sum)",
+                                     "The deviator's mean discounted profit with the deviation.", "counted"),
+    "critical_delta": Entry("critical discount factor of the schemes played", "discount factor",
+                            "The highest critical discount factor among the punishment schemes the line-up plays.",
+                            _FRIEDMAN),
+    "effective_delta": Entry("effective discount factor", "discount factor",
+                             "The discount factor times the probability that the game goes on (random horizon).",
+                             "common practice, no source"),
+    "clears": Entry("clears every threshold", "yes (1) / no (0)",
+                    "Whether the discount factor is at or above every scheme's threshold.", "comparison"),
+    "equilibrium": Entry("trigger-price equilibrium exists", "yes (1) / no (0)",
+                         "Whether a trigger-price equilibrium exists at these settings.", "Green and Porter (1984)"),
+    "war_probability": Entry("probability of a price war per collusive period", "probability",
+                             "The chance that the price signal falls below the trigger.", "Green and Porter (1984)"),
+    "war_share_long_run": Entry("long-run share of price-war periods", "share (0 to 1)",
+                                "Share of periods in price wars in the long run.", "renewal argument"),
+    "collusive_by_period": Entry("share of replications colluding", "share (0 to 1)",
+                                 "Share of the replications still running in which every firm colludes, per period.",
+                                 "counted"),
+    # learning
+    "sessions": Entry("learning sessions", "count", "Independent sessions.", "given"),
+    "converged": Entry("share of sessions that converged", "share (0 to 1)",
+                       "Share of sessions whose greedy strategies did not change for the convergence window.",
+                       "Calvano et al. (2020)", _WILSON),
+    "periods": Entry("periods to convergence", "periods", "Periods a session ran until it converged.", "counted",
+                     _STUDENT),
+    "limit_price": Entry("limit price", "price", "The firm's mean price in the limit play of converged sessions.",
+                         "greedy play from the final state", _STUDENT),
+    "limit_profit": Entry("limit profit", "{money}", "The firm's mean profit in the limit play.", "greedy play"),
+    "near_collusive": Entry("share of sessions near collusion", "share (0 to 1)",
+                            "Share of sessions whose limit profit gain is within the stated tolerance of 1.",
+                            "counted", _WILSON),
+    "near_nash": Entry("share of sessions near static Nash", "share (0 to 1)",
+                       "Share of sessions whose limit profit gain is within the tolerance of 0.", "counted", _WILSON),
+    "rival_price_cut": Entry("rivals' price cut after a deviation", "price",
+                             "How much the rivals lower their price in the period after a forced deviation.",
+                             "impulse response (Calvano et al., 2020)", _STUDENT),
+    "deviation_gain": Entry("gain from the forced deviation", "{money} (discounted sum)",
+                            "Discounted profit of the deviating firm with the deviation minus without.",
+                            "impulse response (Calvano et al., 2020)", _STUDENT),
+    "deviation_pays": Entry("share of sessions where the deviation pays", "share (0 to 1)",
+                            "Share of converged sessions with a positive deviation gain.", "counted"),
+    "returned": Entry("share of sessions back at the limit play", "share (0 to 1)",
+                      "Share of sessions whose prices return to the limit play after the deviation.", "counted"),
+    "return_periods": Entry("periods to return", "periods", "Periods until the prices are back at the limit play.",
+                            "counted"),
+    "nash_profit": Entry("static-Nash profit", "{money}", "Profit per period in the static Nash equilibrium.",
+                         "stage game"),
+    "collusive_profit": Entry("collusive profit", "{money}", "Profit per period under the joint-profit agreement.",
+                              "stage game"),
+    # tournaments
+    "entrants": Entry("entrants", "count", "Rules in the tournament.", "given"),
+    "seats": Entry("firms per match", "count", "Firms in each match.", "given"),
+    "matches": Entry("matches", "count", "Matches played (every group and seating).", "given"),
+    "ranking_holds": Entry("share of resamples keeping the ranking", "share (0 to 1)",
+                           "Share of bootstrap resamples in which the ranking is the one reported.",
+                           "bootstrap over replications (Efron and Tibshirani, 1993)"),
+    "moran.max_standard_errors": Entry("largest gap between simulated and exact fixation", "standard errors",
+                                       "The largest difference between simulated and exact Moran fixation "
+                                       "probabilities, in standard errors.", "Nowak et al. (2004), Nature 428"),
+    "score": Entry("score", "as the score chosen", "The entrant's score against rivals drawn uniformly.",
+                   "mean over its matches", _MEAN),
+    "rank": Entry("rank", "rank (1 is best)", "The entrant's place by score.", "ordering"),
+    "rank_share": Entry("share of resamples at this rank", "share (0 to 1)",
+                        "Share of bootstrap resamples in which the entrant keeps its rank.", "bootstrap"),
+    "top_share": Entry("share of resamples ranked first", "share (0 to 1)",
+                       "Share of bootstrap resamples in which the entrant ranks first.", "bootstrap"),
+    "share": Entry("population share after replicator dynamics", "share (0 to 1)",
+                   "The rule's share of the population at the end of the replicator dynamics.",
+                   "Taylor and Jonker (1978), Mathematical Biosciences 40"),
+    "rare_mutation_share": Entry("long-run share under rare mutations", "share (0 to 1)",
+                                 "Share of time the population spends at this rule under rare mutations.",
+                                 "Fudenberg and Imhof (2006), Journal of Economic Theory 131"),
+    "ess": Entry("resists invasion", "yes (1) / no (0)",
+                 "Whether no other rule does better against it than it does against itself.",
+                 "Maynard Smith and Price (1973), Nature 246"),
+    "ess_n": Entry("resists invasion in a finite population", "yes (1) / no (0)",
+                   "The same in the Moran population of the stated size.", "Nowak et al. (2004)"),
+    "wins": Entry("pairings kept the higher profit", "count", "Pairings in which the rule earned more than its rival.",
+                  "counted"),
+    "losses": Entry("pairings kept the lower profit", "count", "Pairings in which the rule earned less.", "counted"),
+    # assessment
+    "direction": Entry("direction of the merger's effect", "-1 easier, 0 unchanged, 1 harder",
+                       "Whether the merger lowers (easier collusion) or raises the critical discount factor.",
+                       "comparison of the thresholds before and after"),
+    "sustainable": Entry("collusion sustainable", "yes (1) / no (0)",
+                         "Whether the agreement is sustainable at the stated discount factor.", "threshold <= delta"),
+    "hhi": Entry("HHI", "points (0 to 10,000)", "Sum of squared market shares in percent.",
+                 "Herfindahl-Hirschman index (US Horizontal Merger Guidelines, 2010, section 5.3)"),
+    "delta_hhi": Entry("change of the HHI", "points", "HHI after minus before the merger.", "as for the HHI"),
+    "naive_delta_hhi": Entry("change of the HHI at unchanged shares", "points",
+                             "2 s_i s_j for the merging firms' shares: the screen of the guidelines.",
+                             "US Horizontal Merger Guidelines (2010), section 5.3"),
+    "price_change": Entry("price change from the merger", "share of the pre-merger price",
+                          "Post-merger price / pre-merger price - 1 under static Nash.",
+                          "merger simulation (Werden and Froeb, 1994)"),
+    "persistence.difference": Entry("change of the share of collusive periods", "share (0 to 1)",
+                                    "After minus before the merger.", "paired difference", _MEAN),
+    "calibration.max_relative_residual": Entry("largest relative residual of the calibration", "share",
+                                               "How far the calibrated market misses the observed data.",
+                                               "calibration to prices, shares and margins"),
+}
+
+#: swept or given parameters: key path -> Entry (unit and label of an axis)
+PARAMETERS: dict[str, Entry] = {
+    "run.delta": Entry("discount factor delta", "discount factor", "The firms' common discount factor.", "given"),
+    "run.periods": Entry("periods", "periods", "Length of a replication.", "given"),
+    "run.replications": Entry("replications", "count", "Independent replications.", "given"),
+    "run.seed": Entry("seed", "", "The experiment's random seed.", "given"),
+    "run.continuation": Entry("continuation probability", "probability", "Chance that the game goes on.", "given"),
+    "run.sessions": Entry("learning sessions", "count", "Independent sessions.", "given"),
+    "monitoring.sigma": Entry("standard deviation of the demand shock sigma", "", "Noise of the price signal.",
+                              "given"),
+    "monitoring.perception_error": Entry("perception error", "probability",
+                                         "Chance that a firm misreads a rival's conduct.", "given"),
+    "monitoring.implementation_error": Entry("implementation error", "probability",
+                                             "Chance that a firm's action is replaced by cheating.", "given"),
+    "market.n_firms": Entry("number of firms", "", "Firms in the market.", "given"),
+    "market.cost": Entry("marginal cost", "currency units per unit", "Marginal cost of production.", "given"),
+    "market.intercept": Entry("demand intercept", "price", "Choke price of linear demand.", "given"),
+    "market.slope": Entry("demand slope", "price per unit", "Slope of linear inverse demand.", "given"),
+    "market.mu": Entry("logit differentiation mu", "", "Horizontal differentiation of logit demand.", "given"),
+    "market.substitution": Entry("substitutability", "", "Substitutability of differentiated products.", "given"),
+    "market.elasticity": Entry("demand elasticity", "", "Absolute elasticity of isoelastic demand.", "given"),
+    "strategies": Entry("strategy", "", "The strategy played by the seats of a line-up entry.", "given"),
+    "assess.growth": Entry("demand growth per period", "share per period", "Growth rate of demand.", "given"),
+}
+
+_SCHEME_WORDS = {"grim": "grim trigger", "finite": "Nash reversion for T periods", "stick_carrot": "stick and carrot"}
+
+
+@dataclass(frozen=True)
+class Described:
+    """A stored name resolved through the catalogue.
+
+    Attributes
+    ----------
+    key : str
+        The stored name.
+    label : str
+        The reader's label, qualifiers included.
+    unit : str
+        The unit (money in the experiment's currency and period).
+    entry : Entry
+        The stem's entry.
+    """
+
+    key: str
+    label: str
+    unit: str
+    entry: Entry
+
+    @property
+    def axis(self) -> str:
+        """An axis label: the label with its unit in brackets."""
+        return f"{self.label} [{self.unit}]" if self.unit else self.label
+
+
+def money(currency: str | None = None, period: str | None = None) -> str:
+    """The unit of money per period.
+
+    Parameters
+    ----------
+    currency, period : str, optional
+
+    Returns
+    -------
+    str
+    """
+    return f"{currency or 'currency units'} per {period or 'period'}"
+
+
+_TAIL = re.compile(r"\.(se|low|high)$")
+_SIDE = re.compile(r"\.(before|after)(?=\.|$|\[)")
+_FIRM = re.compile(r"\.(firm|product)(\d+)(?=\.|$|\[)")
+_INDEX = re.compile(r"\[(\d+)\]")
+_QUANT = re.compile(r"\.q(\d\d)$")
+
+
+def _stem(core: str) -> tuple[str, str | None]:
+    if core in ENTRIES:
+        return core, None
+    head, _, last = core.rpartition(".")
+    if head in ENTRIES:  # a tournament entrant's label, or a scheme's suffix
+        return head, last
+    return core, None
+
+
+def describe(key: str, currency: str | None = None, period: str | None = None, firm_names=None) -> Described:
+    """Resolve a stored metric name (see the module notes).
+
+    Parameters
+    ----------
+    key : str
+    currency, period : str, optional
+        Units of money.
+    firm_names : sequence of str, optional
+        Names of the firms (firm N is ``firm_names[N - 1]``).
+
+    Returns
+    -------
+    Described
+
+    Raises
+    ------
+    KeyError
+        When the stem has no entry.
+    """
+    core = key
+    analytic = core.startswith("analytic.")
+    core = core.removeprefix("analytic.")
+    tail = _TAIL.search(core)
+    core = _TAIL.sub("", core)
+    quant = _QUANT.search(core)
+    core = _QUANT.sub("", core)
+    sides = _SIDE.findall(core)
+    core = _SIDE.sub("", core)
+    firms = _FIRM.findall(core)
+    core = _FIRM.sub("", core)
+    idx = _INDEX.findall(core)
+    core = _INDEX.sub("", core)
+    stem, extra = _stem(core)
+    if stem not in ENTRIES:
+        raise KeyError(f"{key!r} has no entry in the evidence catalogue")
+    e = ENTRIES[stem]
+    label = e.label
+    quals = []
+    if extra:
+        quals.append(_SCHEME_WORDS.get(extra, extra))
+    for what, n in firms:
+        n = int(n)
+        name = firm_names[n - 1] if firm_names and n <= len(firm_names) else f"{what} {n}"
+        quals.append(name)
+    if idx:
+        quals.append("item " + ", ".join(idx))
+    if sides:
+        quals.append(f"{sides[0]} the merger")
+    if quant:
+        quals.append(f"{int(quant.group(1))}th percentile across sessions")
+    if quals:
+        label = f"{label} ({'; '.join(quals)})"
+    if analytic:
+        label = f"analytic prediction of the {label}"
+    if tail:
+        label = {"se": "standard error of the", "low": "lower bound of the 95 % interval of the",
+                 "high": "upper bound of the 95 % interval of the"}[tail.group(1)] + " " + label
+    unit = e.unit.replace("{money}", money(currency, period))
+    return Described(key, label, unit, e)
+
+
+def describe_parameter(path: str, currency: str | None = None, period: str | None = None) -> Described:
+    """Resolve a swept parameter's path (``run.delta``, ``strategies.1``, ``market.cost.2``).
+
+    Parameters
+    ----------
+    path : str
+    currency, period : str, optional
+
+    Returns
+    -------
+    Described
+
+    Raises
+    ------
+    KeyError
+        When the path has no entry.
+    """
+    parts = path.split(".")
+    for n in range(len(parts), 0, -1):
+        head = ".".join(parts[:n])
+        if head in PARAMETERS:
+            e = PARAMETERS[head]
+            rest = [p for p in parts[n:]]
+            label = e.label + (f" ({' '.join('firm ' + p if p.isdigit() else p for p in rest)})" if rest else "")
+            if head == "strategies" and rest:
+                label = f"strategy of line-up entry {rest[0]}" + (f", {'.'.join(rest[1:])}" if len(rest) > 1 else "")
+            return Described(path, label, e.unit.replace("{money}", money(currency, period)), e)
+    raise KeyError(f"{path!r} has no entry in the evidence catalogue")
+
+
+def glossary(keys, currency: str | None = None, period: str | None = None) -> list[list[str]]:
+    """Rows of a bundle's glossary: key, label, unit, definition, method and source, interval.
+
+    Parameters
+    ----------
+    keys : iterable of str
+        Stored metric names (bounds and standard errors are folded into their metric).
+    currency, period : str, optional
+
+    Returns
+    -------
+    list of list of str
+    """
+    rows, seen = [], set()
+    for k in keys:
+        base = _TAIL.sub("", k)
+        if base in seen:
+            continue
+        seen.add(base)
+        d = describe(base, currency, period)
+        rows.append([base, d.label, d.unit or "-", d.entry.definition, d.entry.method, d.entry.interval])
+    return rows
