@@ -18,7 +18,7 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
-__all__ = ["Described", "Entry", "ENTRIES", "PARAMETERS", "describe", "describe_parameter", "glossary", "money"]
+__all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "money"]
 
 
 @dataclass(frozen=True)
@@ -64,7 +64,8 @@ ENTRIES: dict[str, Entry] = {
     "profit.deviation": Entry("deviation profit", "{money}",
                               "The firm's profit in the period of its best one-shot deviation from the agreement.",
                               "best response to the rivals' agreed actions"),
-    "profit.nash": Entry("static-Nash profit", "{money}", "The firm's profit per period in the static Nash equilibrium.",
+    "profit.nash": Entry("static-Nash profit", "{money}",
+                         "The firm's profit per period in the static Nash equilibrium.",
                          "static Nash equilibrium of the stage game, certified by a global best-response search"),
     "threshold.grim": Entry("critical discount factor, grim trigger", "discount factor",
                             "The lowest discount factor at which no firm gains by deviating when a deviation is "
@@ -72,7 +73,8 @@ ENTRIES: dict[str, Entry] = {
     "threshold.finite": Entry("critical discount factor, Nash reversion for T periods", "discount factor",
                               "The lowest discount factor at which a deviation punished by T periods of static Nash "
                               "does not pay.",
-                              "smallest delta with (pi_D - pi_C) <= sum_{t=1..T} delta^t (pi_C - pi_N) (Friedman, 1971)"),
+                              "smallest delta with (pi_D - pi_C) <= sum_{t=1..T} delta^t (pi_C - pi_N) "
+                              "(Friedman, 1971)"),
     "threshold.stick_carrot": Entry("critical discount factor, stick and carrot", "discount factor",
                                     "The lowest discount factor sustaining the agreement with the best symmetric "
                                     "one-period punishment followed by a return to the agreement.",
@@ -109,7 +111,8 @@ ENTRIES: dict[str, Entry] = {
                                        "share of the gain", "As for grim trigger, with the best stick and carrot.",
                                        "search along the straight path of actions (this tool's choice of path)"),
     "trigger_price.quantity": Entry("collusive quantity per firm, trigger-price equilibrium", "quantity",
-                                    "Each firm's output while colluding.", "Green and Porter (1984), Econometrica 52(1)"),
+                                    "Each firm's output while colluding.",
+                                    "Green and Porter (1984), Econometrica 52(1)"),
     "trigger_price.trigger": Entry("trigger price", "price", "A market price below it starts a price war.",
                                    "Green and Porter (1984)"),
     "trigger_price.war_length": Entry("price-war length, trigger-price equilibrium", "periods",

@@ -36,7 +36,8 @@ def test_every_metric_and_swept_parameter_of_a_shipped_experiment_has_an_entry(p
 
 def test_qualifiers_are_read_off_the_stored_name():
     d = describe("threshold.grim.before.firm2.low", currency="EUR", period="month", firm_names=["A", "B"])
-    assert d.label == "lower bound of the 95 % interval of the critical discount factor, grim trigger (B; before the merger)"
+    assert d.label == ("lower bound of the 95 % interval of the critical discount factor, grim trigger (B; before the "
+                       "merger)")
     assert describe("profit.nash.firm1", currency="EUR", period="month").unit == "EUR per month"
     assert describe("analytic.collusive_share").label == "analytic prediction of the share of collusive periods"
     assert describe("score.grim").label == "score (grim trigger)"
