@@ -16,11 +16,25 @@ first use with the Agg backend (no display needed).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+import textwrap
+from collections.abc import Callable
+from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["SweepData", "heatmap", "lines"]
+from sim.evidence.catalogue import describe, describe_parameter
+
+__all__ = [
+    "PAGE_WIDTH",
+    "PALETTE",
+    "SweepData",
+    "color",
+    "heatmap",
+    "lines",
+    "metric_axis",
+    "metric_label",
+    "number_format",
+]
 
 
 def _plt():
@@ -40,10 +54,13 @@ class SweepData:
     ----------
     parameters : list of Parameter
     rows : list of CellRow
+    units : tuple of (str or None, str or None)
+        The experiment's currency and period (labels of money).
     """
 
     parameters: list
     rows: list
+    units: tuple = field(default=(None, None))
 
     def __post_init__(self):
         self.by_path = {p.path: p for p in self.parameters}
@@ -122,24 +139,101 @@ def _panels(n: int):
     return rows, cols
 
 
-def _label(path: str) -> str:
-    names = {"run.delta": "discount factor delta", "monitoring.sigma": "demand-shock sigma",
-             "monitoring.perception_error": "perception error", "monitoring.implementation_error":
-             "implementation error", "market.n_firms": "number of firms"}
-    return names.get(path, path)
+#: width of a figure at the printed width of an A4 page's text column (16 cm), in inches
+PAGE_WIDTH = 6.3
+#: font sizes (points) at that width: nothing is smaller than 8 pt on paper
+FONT, SMALL = 9.0, 8.0
+#: a palette that colour-blind readers tell apart (Okabe and Ito, 2008, "Color Universal Design")
+PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000", "#F0E442")
 
 
-def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None = None, level: float | None = None,
-            facet: str | None = None, title: str | None = None, at: dict | None = None):
-    """A heatmap of ``metric`` over the swept parameters ``x`` and ``y`` (see the module notes).
+def color(k: int) -> str:
+    """The ``k``-th colour of :data:`PALETTE` (cycling).
+
+    Parameters
+    ----------
+    k : int
 
     Returns
     -------
-    matplotlib.figure.Figure
+    str
     """
-    plt = _plt()
-    from matplotlib.colors import TwoSlopeNorm
+    return PALETTE[k % len(PALETTE)]
 
+
+def _label(path: str, data: SweepData | None = None) -> str:
+    try:
+        return describe_parameter(path, *(data.units if data is not None else (None, None))).axis
+    except KeyError:
+        return path
+
+
+def metric_axis(metric: str, data: SweepData | None = None) -> str:
+    """A metric's axis label from the evidence catalogue (label and unit; the stored name when it has no entry).
+
+    Parameters
+    ----------
+    metric : str
+    data : SweepData, optional
+        Gives the currency and period.
+
+    Returns
+    -------
+    str
+    """
+    try:
+        return describe(metric, *(data.units if data is not None else (None, None))).axis
+    except KeyError:
+        return metric
+
+
+def metric_label(metric: str, data: SweepData | None = None) -> str:
+    """A metric's label without its unit.
+
+    Parameters
+    ----------
+    metric : str
+    data : SweepData, optional
+
+    Returns
+    -------
+    str
+    """
+    try:
+        return describe(metric, *(data.units if data is not None else (None, None))).label
+    except KeyError:
+        return metric
+
+
+def number_format(values) -> Callable[[float], str]:
+    """One format for every number of a figure: three significant digits at the scale of the largest, with
+    thousands separators.
+
+    Parameters
+    ----------
+    values : array_like
+
+    Returns
+    -------
+    callable
+        ``fmt(x) -> str``.
+    """
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    big = float(np.max(np.abs(v))) if v.size else 1.0
+    if big == 0:
+        return lambda x: "0"
+    decimals = max(0, 2 - math.floor(math.log10(big)))
+    return lambda x: f"{x:,.{decimals}f}"
+
+
+def _text_color(rgba) -> str:
+    # relative luminance (WCAG 2.1): dark text on light cells, white on dark ones
+    r, g, b = (c / 12.92 if c <= 0.03928 else ((c + 0.055) / 1.055) ** 2.4 for c in rgba[:3])
+    return "black" if 0.2126 * r + 0.7152 * g + 0.0722 * b > 0.179 else "white"
+
+
+def _grids(data: SweepData, x, y, metric, threshold, facet, at):
     px, py = data.by_path[x], data.by_path[y]
     xs, ys = _axis_values(px), _axis_values(py)
     ox, oy = np.argsort(xs, kind="stable"), np.argsort(ys, kind="stable")
@@ -149,38 +243,67 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
     for fv in facets:
         Z = np.full((ys.size, xs.size), np.nan)
         T = np.full(ys.size, np.nan)
-        for a, i in enumerate(ox):
-            for b, j in enumerate(oy):
-                lab = {**fixed, x: px.labels[i], y: py.labels[j]}
-                if facet:
-                    lab[facet] = fv
+        for b, j in enumerate(oy):
+            row_t = []
+            for a, i in enumerate(ox):
+                lab = {**fixed, x: px.labels[i], y: py.labels[j], **({facet: fv} if facet else {})}
                 Z[b, a] = data.value(lab, metric)
-        if threshold:
-            for b, j in enumerate(oy):
-                vals = []
-                for i in ox:
-                    lab = {**fixed, x: px.labels[i], y: py.labels[j]}
-                    if facet:
-                        lab[facet] = fv
-                    vals.append(data.value(lab, threshold))
-                vals = np.array(vals)
-                T[b] = np.nanmedian(vals) if np.isfinite(vals).any() else np.nan
+                if threshold:
+                    row_t.append(data.value(lab, threshold))
+            vals = np.array(row_t)
+            if threshold and np.isfinite(vals).any():
+                T[b] = np.nanmedian(vals)
         grids.append(Z)
         thr.append(T)
-    xs, ys = xs[ox], ys[oy]
+    return px, py, xs[ox], ys[oy], [px.labels[i] for i in ox], [py.labels[j] for j in oy], facets, grids, thr
+
+
+def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None = None, level: float | None = None,
+            facet: str | None = None, title: str | None = None, at: dict | None = None, center: float | None = None):
+    """A heatmap of ``metric`` over the swept parameters ``x`` and ``y`` (see the module notes).
+
+    Parameters
+    ----------
+    data : SweepData
+    x, y : str
+        Swept paths on the horizontal and vertical axes.
+    metric : str
+    threshold : str, optional
+        A metric holding the analytic critical value of ``x`` (drawn as a dashed line or curve).
+    level : float, optional
+        Draw the contour where the metric crosses this level.
+    facet : str, optional
+        One panel per value of this swept path.
+    title : str, optional
+    at : dict, optional
+        Labels of the other swept paths (path -> label).
+    center : float, optional
+        Centre of a diverging colour map (default 0 when the metric takes both signs).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    plt = _plt()
+    from matplotlib.colors import TwoSlopeNorm
+
+    px, py, xs, ys, labx, laby, facets, grids, thr = _grids(data, x, y, metric, threshold, facet, at)
     xp, xcat = _positions(xs, px.log)
     yp, ycat = _positions(ys, py.log)
     xlog, ylog = px.log and not xcat, py.log and not ycat
-    labx = [px.labels[i] for i in ox]
-    laby = [py.labels[j] for j in oy]
     allv = np.concatenate([g[np.isfinite(g)] for g in grids]) if grids else np.zeros(0)
     lo, hi = (float(allv.min()), float(allv.max())) if allv.size else (0.0, 1.0)
-    if lo < 0 < hi:
-        norm, cmap = TwoSlopeNorm(vmin=lo, vcenter=0.0, vmax=hi), "RdBu_r"
+    mid = center if center is not None else (0.0 if lo < 0 < hi else None)
+    if mid is not None and lo < mid < hi:
+        # a diverging map centred at the level of interest; each side uses its own range, so a small
+        # positive side keeps its ticks and colours (PuOr reads for colour-blind readers too)
+        norm, cmap = TwoSlopeNorm(vmin=lo, vcenter=mid, vmax=hi), plt.get_cmap("PuOr_r")
     else:
-        norm, cmap = None, "viridis"
+        norm, cmap = None, plt.get_cmap("viridis")
+    fmt = number_format(allv)
     nr, nc = _panels(len(facets))
-    fig, axes = plt.subplots(nr, nc, figsize=(4.4 * nc + 1.2, 3.6 * nr + 0.9), squeeze=False, sharex=True,
+    width = PAGE_WIDTH if nc == 1 else PAGE_WIDTH * min(1.0, 0.55 * nc)
+    fig, axes = plt.subplots(nr, nc, figsize=(max(width, PAGE_WIDTH), 2.7 * nr + 1.3), squeeze=False, sharex=True,
                              sharey=True, layout="constrained")
     xe, ye = _edges(xp, xlog), _edges(yp, ylog)
     mesh = None
@@ -190,67 +313,115 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
         Z = grids[k]
         mesh = ax.pcolormesh(xe, ye, np.ma.masked_invalid(Z), cmap=cmap, norm=norm,
                              vmin=None if norm else lo, vmax=None if norm else hi, shading="flat")
-        if xs.size <= 12 and ys.size <= 16:
-            size = 6.5 if xs.size * len(facets) <= 12 else 5.0
+        if xs.size * nc <= 12 and ys.size * nr <= 16:
             for b in range(ys.size):
                 for a in range(xs.size):
                     if np.isfinite(Z[b, a]):
-                        v = Z[b, a]
-                        txt = f"{v:.2f}" if abs(v) < 10 else f"{v:.3g}"
-                        ax.text(xp[a], yp[b], txt, ha="center", va="center", fontsize=size, color="black")
+                        rgba = cmap(norm(Z[b, a]) if norm else (Z[b, a] - lo) / (hi - lo or 1.0))
+                        ax.text(xp[a], yp[b], fmt(Z[b, a]), ha="center", va="center", fontsize=SMALL,
+                                color=_text_color(rgba))
         if level is not None and xs.size > 1 and ys.size > 1 and np.isfinite(Z).sum() >= 4:
             zmin, zmax = np.nanmin(Z), np.nanmax(Z)
             if zmin < level < zmax:
                 ax.contour(xp, yp, np.where(np.isfinite(Z), Z, level), levels=[level], colors="black",
                            linewidths=1.2, linestyles="-")
-                ax.plot([], [], color="black", lw=1.2, label=f"simulated boundary ({metric} = {level:g})")
-        T = thr[k]
-        if threshold and np.isfinite(T).any():
-            ok = np.isfinite(T)
-            tx = np.array([_to_position(v, xs, xp) if np.isfinite(v) else np.nan for v in T])
-            inside = ok & (tx >= xe[0]) & (tx <= xe[-1])
-            if np.allclose(T[ok], T[ok][0], rtol=1e-9, atol=0):
-                if inside.any():
-                    ax.axvline(tx[ok][0], color="magenta", lw=2, ls="--",
-                               label=f"analytic critical value: {T[ok][0]:.4g}")
-                else:
-                    ax.plot([], [], color="magenta", lw=2, ls="--",
-                            label=f"analytic critical value {T[ok][0]:.4g} (outside the swept range)")
-            elif inside.any():
-                ax.plot(tx[inside], yp[inside], color="magenta", lw=2, ls="--", marker="o", ms=3,
-                        label="analytic critical value")
+                ax.plot([], [], color="black", lw=1.2, label=f"simulated boundary: {metric_label(metric, data)} = "
+                                                             f"{level:g}")
+        _threshold_line(ax, thr[k], xs, xp, xe, yp, threshold, data, legend)
         if xlog:
             ax.set_xscale("log")
         if ylog:
             ax.set_yscale("log")
         if xcat:
-            ax.set_xticks(xp, labx, rotation=45 if len(labx) > 6 else 0, fontsize=7)
+            ax.set_xticks(xp, labx, rotation=45 if len(labx) > 6 else 0)
         if ycat:
-            ax.set_yticks(yp, laby, fontsize=7)
+            ax.set_yticks(yp, laby)
+        ax.tick_params(labelsize=SMALL)
         ax.set_xlim(xe[0], xe[-1])
         ax.set_ylim(ye[0], ye[-1])
         if facet:
-            ax.set_title(f"{facet} = {fv}", fontsize=9)
-        if k // nc == nr - 1:
-            ax.set_xlabel(_label(x))
-        if k % nc == 0:
-            ax.set_ylabel(_label(y))
+            ax.set_title(_wrap(str(fv), 28), fontsize=FONT)
+        _panel_labels(ax, k, nr, nc, len(facets), _label(x, data), _label(y, data))
         for h, lab in zip(*ax.get_legend_handles_labels()):
             legend.setdefault(lab, h)
     for k in range(len(facets), nr * nc):
         axes[k // nc][k % nc].set_visible(False)
     if mesh is not None:
-        fig.colorbar(mesh, ax=axes.ravel().tolist(), label=metric, shrink=0.9)
+        cb = fig.colorbar(mesh, ax=axes.ravel().tolist(), shrink=0.9)
+        cb.set_label(_wrap(metric_axis(metric, data), 40), fontsize=FONT)
+        cb.ax.tick_params(labelsize=SMALL)
     if legend:
-        fig.legend(list(legend.values()), list(legend), loc="outside lower center", ncol=min(3, len(legend)),
-                   fontsize=8, frameon=False)
-    fig.suptitle(title or f"{metric} over {_label(x)} and {_label(y)}", fontsize=11)
+        fig.legend(list(legend.values()), list(legend), loc="outside lower center", ncol=1, fontsize=SMALL,
+                   frameon=False)
+    fig.suptitle(_wrap((title or f"{metric_label(metric, data)}") + _panel_note(facet, data), 80), fontsize=FONT + 1)
     return fig
+
+
+def _panel_note(facet: str | None, data: SweepData) -> str:
+    # the panels' parameter, named once in the title (each panel shows its value only)
+    return f"; panels by {_label(facet, data).split(' [')[0]}" if facet else ""
+
+
+def _panel_labels(ax, k: int, nr: int, nc: int, n: int, xlabel: str, ylabel: str) -> None:
+    # one axis label per figure: under the middle panel of the lowest row and beside the middle row's first
+    # panel (a label on every panel would run into its neighbours)
+    last_row = (n - 1) // nc
+    row, col = divmod(k, nc)
+    in_last = min(nc, n - last_row * nc)
+    if row == last_row and col == (in_last - 1) // 2:
+        ax.set_xlabel(xlabel, fontsize=FONT)
+        if in_last % 2 == 0:
+            ax.xaxis.set_label_coords(1.04, -0.12)  # between the two middle panels
+    if col == 0 and row == last_row // 2:
+        ax.set_ylabel(ylabel, fontsize=FONT)
+
+
+def _wrap(text: str, width: int) -> str:
+    return "\n".join(textwrap.wrap(text, width)) or text
+
+
+def _threshold_line(ax, T, xs, xp, xe, yp, threshold, data, legend) -> None:
+    if not threshold or not np.isfinite(T).any():
+        return
+    ok = np.isfinite(T)
+    tx = np.array([_to_position(v, xs, xp) if np.isfinite(v) else np.nan for v in T])
+    inside = ok & (tx >= xe[0]) & (tx <= xe[-1])
+    name = metric_label(threshold, data).replace("analytic prediction of the ", "")
+    if np.allclose(T[ok], T[ok][0], rtol=1e-9, atol=0):
+        where = "" if inside.any() else ", outside the swept range"
+        if inside.any():
+            ax.axvline(tx[ok][0], color="black", lw=1.6, ls="--")
+            ax.annotate(f"{T[ok][0]:.3f}", (tx[ok][0], 1.0), xycoords=("data", "axes fraction"), xytext=(3, -3),
+                        textcoords="offset points", ha="left", va="top", fontsize=SMALL,
+                        bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.85})
+            ax.plot([], [], color="black", lw=1.6, ls="--", label=f"{name} (value at the top of the line)")
+        else:
+            ax.plot([], [], color="black", lw=1.6, ls="--", label=f"{name}: {T[ok][0]:.3f}{where}")
+    elif inside.any():
+        ax.plot(tx[inside], yp[inside], color="black", lw=1.6, ls="--", marker="o", ms=3, label=name)
 
 
 def lines(data: SweepData, x: str, metric: str, analytic: str | None = None, group: str | None = None,
           facet: str | None = None, title: str | None = None, band: bool = True, at: dict | None = None):
     """``metric`` against the swept parameter ``x`` (see the module notes).
+
+    Parameters
+    ----------
+    data : SweepData
+    x : str
+        Swept path on the horizontal axis.
+    metric : str
+    analytic : str, optional
+        A metric holding the analytic prediction (dashed, same colour).
+    group : str, optional
+        One line per value of this swept path.
+    facet : str, optional
+        One panel per value of this swept path.
+    title : str, optional
+    band : bool
+        Draw the 95 % interval where the cells report one.
+    at : dict, optional
+        Labels of the other swept paths.
 
     Returns
     -------
@@ -264,36 +435,34 @@ def lines(data: SweepData, x: str, metric: str, analytic: str | None = None, gro
     facets = list(data.by_path[facet].labels) if facet else [None]
     fixed = data.fixed_labels({x} | ({group} if group else set()) | ({facet} if facet else set()), at)
     nr, nc = _panels(len(facets))
-    fig, axes = plt.subplots(nr, nc, figsize=(5.0 * nc + 0.6, 3.8 * nr), squeeze=False, sharex=True, sharey=True)
+    fig, axes = plt.subplots(nr, nc, figsize=(PAGE_WIDTH, 2.6 * nr + 1.2), squeeze=False, sharex=True, sharey=True,
+                             layout="constrained")
     has_band = band and data.has(f"{metric}.low") and data.has(f"{metric}.high")
+    legend: dict = {}
     for k, fv in enumerate(facets):
         ax = axes[k // nc][k % nc]
         for g, gv in enumerate(groups):
-            color = f"C{g % 10}"
 
             def series(m, gv=gv, fv=fv):
                 out = []
                 for i in order:
-                    lab = {**fixed, x: px.labels[i]}
-                    if group:
-                        lab[group] = gv
-                    if facet:
-                        lab[facet] = fv
+                    lab = {**fixed, x: px.labels[i], **({group: gv} if group else {}), **({facet: fv} if facet else {})}
                     out.append(data.value(lab, m))
                 return np.array(out)
 
             yv = series(metric)
-            label = f"{gv}" if group else "simulated"
-            ax.plot(xs[order], yv, color=color, marker="o", ms=3.5, lw=1.5, label=label)
+            if not np.isfinite(yv).any():
+                continue  # nothing to draw: no legend entry either
+            ax.plot(xs[order], yv, color=color(g), marker="o", ms=3.5, lw=1.5, label=f"{gv}" if group else "simulated")
             if has_band:
                 lo, hi = series(f"{metric}.low"), series(f"{metric}.high")
                 ok = np.isfinite(lo) & np.isfinite(hi)
                 if ok.any():
-                    ax.fill_between(xs[order][ok], lo[ok], hi[ok], color=color, alpha=0.18, lw=0)
+                    ax.fill_between(xs[order][ok], lo[ok], hi[ok], color=color(g), alpha=0.2, lw=0)
             if analytic:
                 av = series(analytic)
                 if np.isfinite(av).any():
-                    ax.plot(xs[order], av, color=color, ls="--", lw=1.2,
+                    ax.plot(xs[order], av, color=color(g), ls="--", lw=1.2,
                             label=("analytic" if not group else f"{gv}, analytic"))
         lo_y, hi_y = ax.get_ylim()
         if lo_y < 0 < hi_y:
@@ -301,15 +470,19 @@ def lines(data: SweepData, x: str, metric: str, analytic: str | None = None, gro
         if px.log:
             ax.set_xscale("log")
         if facet:
-            ax.set_title(f"{facet} = {fv}", fontsize=9)
-        if k // nc == nr - 1:
-            ax.set_xlabel(_label(x))
-        if k % nc == 0:
-            ax.set_ylabel(metric)
+            ax.set_title(_wrap(str(fv), 28), fontsize=FONT)
+        _panel_labels(ax, k, nr, nc, len(facets), _label(x, data), _wrap(metric_axis(metric, data), 30))
+        ax.tick_params(labelsize=SMALL)
         ax.grid(alpha=0.3)
-        ax.legend(fontsize=7, loc="best", framealpha=0.8)
+        for h, lab in zip(*ax.get_legend_handles_labels()):
+            legend.setdefault(lab, h)
     for k in range(len(facets), nr * nc):
         axes[k // nc][k % nc].set_visible(False)
-    fig.suptitle(title or f"{metric} against {_label(x)}", fontsize=10)
-    fig.tight_layout()
+    if legend:
+        title_l = _label(group, data).split(" [")[0] if group else None
+        fig.legend(list(legend.values()), list(legend), loc="outside lower center", fontsize=SMALL, frameon=False,
+                   title=title_l, title_fontsize=SMALL, ncol=min(3, len(legend)))
+    extra = " (band: 95 % interval across replications)" if has_band else ""
+    fig.suptitle(_wrap((title or f"{metric_label(metric, data)}{extra}") + _panel_note(facet, data), 80),
+                 fontsize=FONT + 1)
     return fig

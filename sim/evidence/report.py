@@ -79,6 +79,21 @@ def bundle_hook(kind):
     return hook if hook is not None else kind.report
 
 
+def units_of(exp) -> tuple:
+    """The experiment's currency and period (``[experiment]`` keys; None where it gives none).
+
+    Parameters
+    ----------
+    exp : Experiment
+
+    Returns
+    -------
+    tuple of (str or None, str or None)
+    """
+    t = exp.doc.get("experiment", {}) if isinstance(exp.doc.get("experiment"), dict) else {}
+    return t.get("currency"), t.get("period")
+
+
 def _ci(row, m) -> str:
 
     lo, hi = row.metrics.get(f"{m}.low", math.nan), row.metrics.get(f"{m}.high", math.nan)
@@ -347,7 +362,7 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
             b.paragraph("These are the file's settings; the values of "
                         + ", ".join(f"`{p.path}`" for p in exp.parameters) + " are those of the sweep below.",
                         note=True)
-        data = SweepData(list(exp.parameters), rows)
+        data = SweepData(list(exp.parameters), rows, units_of(exp))
         heads = _headline(exp, kind)
         if exp.parameters:
             b.heading("Sweep")

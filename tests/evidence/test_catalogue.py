@@ -42,7 +42,7 @@ def test_qualifiers_are_read_off_the_stored_name():
     assert describe("analytic.collusive_share").label == "analytic prediction of the share of collusive periods"
     assert describe("score.grim").label == "score (grim trigger)"
     assert describe("partial_gain.finite[2][1]").label.endswith("(item 2, 1)")
-    assert describe_parameter("run.delta").axis == "discount factor delta [discount factor]"
+    assert describe_parameter("run.delta").axis == "discount factor delta"  # a pure number: no unit in brackets
     with pytest.raises(KeyError):
         describe("no_such_metric")
 
