@@ -46,15 +46,9 @@ from scipy import optimize
 from sim.core.errors import InputError
 from sim.core.params import Integer, Real
 from sim.models.market import MarketSpec
-from sim.theory.equilibrium import (
-    StageGame,
-    _common_level,
-    best_deviation,
-    best_response,
-    deviation_actions,
-    outcome_of,
-    stage_game,
-)
+from sim.theory.collusion import common_level
+from sim.theory.equilibrium import StageGame, best_deviation, best_response, deviation_actions, stage_game
+from sim.theory.outcome import outcome_of
 
 __all__ = [
     "PartialCollusion",
@@ -93,6 +87,16 @@ def grim_threshold(collusive, deviation, nash) -> np.ndarray:
     punishment (it would rather trigger the punishment than comply, whatever its discount factor) or
     when deviating pays and collusion pays no more than competition; 0 when neither holds and
     deviating does not pay.
+
+    Parameters
+    ----------
+    collusive, deviation, nash : float or array_like
+        Per-period profits ``pi_C``, ``pi_D``, ``pi_N`` (broadcast together).
+
+    Returns
+    -------
+    ndarray
+        The thresholds, of the broadcast shape.
     """
     c, d, n = (np.asarray(x, dtype=float) for x in (collusive, deviation, nash))
     scale = np.maximum(1.0, np.maximum(np.abs(c), np.abs(d)))
@@ -111,6 +115,18 @@ def finite_threshold(collusive, deviation, nash, T: int) -> np.ndarray:
 
     Solves ``delta + delta^2 + ... + delta^T = K`` with ``K = (pi_D - pi_C) / (pi_C - pi_N)``;
     ``nan`` when ``K >= T`` (not sustainable at any discount factor below one).
+
+    Parameters
+    ----------
+    collusive, deviation, nash : float or array_like
+        Per-period profits ``pi_C``, ``pi_D``, ``pi_N`` (broadcast together).
+    T : int
+        Periods of Nash reversion (>= 1).
+
+    Returns
+    -------
+    float or ndarray
+        A float when every input is a number, else an array of the broadcast shape.
     """
     T = _check_T(T)
     c, d, n = (np.atleast_1d(np.asarray(x, dtype=float)) for x in (collusive, deviation, nash))
@@ -150,6 +166,20 @@ def threshold_sensitivity(collusive: float, deviation: float, nash: float, T: in
     is None, T-period reversion otherwise (by implicit differentiation of
     ``delta + ... + delta^T = K``). The trade's rule of thumb holds: the threshold rises with the
     cheating and competitive profits and falls with the collusive profit.
+
+    Parameters
+    ----------
+    collusive, deviation, nash : float
+        The firm's per-period profits ``pi_C``, ``pi_D``, ``pi_N``.
+    T : int or None
+        Periods of Nash reversion; None for grim trigger.
+
+    Returns
+    -------
+    dict
+        ``threshold``, ``d_deviation``, ``d_collusive``, ``d_nash`` and, where the threshold is
+        positive and finite, ``elasticity_deviation``, ``elasticity_collusive``, ``elasticity_nash``
+        (None where undefined).
     """
     c, d, n = float(collusive), float(deviation), float(nash)
     if T is None:
@@ -189,7 +219,7 @@ def _market_level(per_firm: np.ndarray) -> tuple[float, int]:
 class SchemeThreshold:
     """Thresholds of one scheme.
 
-    Attributes
+    Parameters
     ----------
     scheme : str
     per_firm : ndarray of shape (n_firms,)
@@ -210,12 +240,29 @@ class SchemeThreshold:
 
     @property
     def sustainable(self) -> bool:
+        """Whether some discount factor below one sustains the agreement."""
         return bool(np.isfinite(self.market))
 
     def sustains(self, delta: float) -> bool:
+        """Whether the scheme sustains the agreement at ``delta``.
+
+        Parameters
+        ----------
+        delta : float
+
+        Returns
+        -------
+        bool
+        """
         return self.sustainable and delta >= self.market
 
     def to_dict(self) -> dict:
+        """The thresholds as plain data (None where not sustainable; firms counted from 1).
+
+        Returns
+        -------
+        dict
+        """
         out = {
             "market": _none(self.market),
             "per_firm": [_none(x) for x in self.per_firm],
@@ -240,8 +287,10 @@ def _scheme(name, per_firm, T=None) -> SchemeThreshold:
 class StickCarrot(SchemeThreshold):
     """Optimal symmetric two-phase punishment.
 
-    Extra attributes
-    ----------------
+    Parameters
+    ----------
+    scheme, per_firm, market, binding, T
+        As in :class:`SchemeThreshold` (``T`` is None).
     punishment_level : float
         The common punishment quantity or price ``x``.
     punishment_actions : ndarray of shape (n_products,)
@@ -263,6 +312,12 @@ class StickCarrot(SchemeThreshold):
     weaker_than_grim: bool = False
 
     def to_dict(self) -> dict:
+        """The thresholds and the punishment as plain data.
+
+        Returns
+        -------
+        dict
+        """
         out = super().to_dict()
         out.update(
             weaker_than_grim=self.weaker_than_grim,
@@ -280,7 +335,7 @@ def _sc_parts(ms: MarketSpec, xs: np.ndarray, pi_c: np.ndarray, pi_d: np.ndarray
 
     Returns arrays of shape (len(xs), n_firms); ``inf`` where the punishment is not harsher than
     collusion."""
-    P = _common_level(ms, xs)
+    P = common_level(ms, xs)
     pi_p = ms.firm_profits(P)
     if ms.symmetric:
         _, v = best_response(ms, 0, P)
@@ -316,6 +371,10 @@ def stick_and_carrot(market, stage: StageGame | None = None, n_grid: int | None 
     grid search, Brent's method around the best grid point and, where the two constraints cross at
     the optimum (the usual case), a root-find of their difference, so that the threshold is exact
     to about machine precision.
+
+    Returns
+    -------
+    StickCarrot
     """
     ms = market if isinstance(market, MarketSpec) else market.spec()
     st = stage if stage is not None else stage_game(ms)
@@ -325,7 +384,7 @@ def stick_and_carrot(market, stage: StageGame | None = None, n_grid: int | None 
     _lo, hi = ms.action_bounds()
     x_lo = 0.0
     x_hi = float(hi.max())
-    if ms.quantity_setting and ms.demand.kind in ("linear", "differentiated") and np.all(ms.cost > 0):
+    if ms.quantity_setting and ms.demand.price_reaches_zero and np.all(ms.cost > 0):
         # beyond the choke quantity the price stays at zero and the punishment profit is -c x: harsher
         # punishments remain available up to where one period of losses outweighs the cheating gain
         # (a hundred times the choke quantity bounds the search when costs are tiny)
@@ -381,7 +440,7 @@ def stick_and_carrot(market, stage: StageGame | None = None, n_grid: int | None 
 class PartialCollusion:
     """The most profitable outcome on the Nash-to-collusion path that a scheme sustains at ``delta``.
 
-    Attributes
+    Parameters
     ----------
     scheme : str
     delta : float
@@ -403,6 +462,12 @@ class PartialCollusion:
     profit_gain: float
 
     def to_dict(self) -> dict:
+        """The outcome as plain data.
+
+        Returns
+        -------
+        dict
+        """
         out = {"scheme": self.scheme, "delta": self.delta, "weight": self.weight,
                "actions": self.actions.tolist(), "profits": self.profits.tolist(), "profit_gain": self.profit_gain}
         if self.T is not None:
@@ -439,6 +504,10 @@ def partial_collusion(market, delta: float, scheme: str = "grim", T: int | None 
     stage : StageGame, optional
     n_grid : int
         Coarse grid over the path position before bisection on the sustainability boundary.
+
+    Returns
+    -------
+    PartialCollusion
     """
     ms = market if isinstance(market, MarketSpec) else market.spec()
     delta = _check_delta(delta)
@@ -491,7 +560,7 @@ def partial_collusion(market, delta: float, scheme: str = "grim", T: int | None 
 class ThresholdReport:
     """Every threshold of one market, with the stage game it comes from.
 
-    Attributes
+    Parameters
     ----------
     stage : StageGame
     grim : SchemeThreshold
@@ -500,7 +569,7 @@ class ThresholdReport:
     stick_carrot : StickCarrot
     partial : list of PartialCollusion
         One per (delta, scheme) asked for.
-    sensitivity : list of dict
+    sensitivity : dict
         Comparative statics of the binding firm's grim threshold and finite-reversion thresholds.
     """
 
@@ -519,6 +588,12 @@ class ThresholdReport:
         return min(ok, key=lambda c: c.market) if ok else self.grim
 
     def to_dict(self) -> dict:
+        """The stage game, every threshold, partial collusion and sensitivity as plain data.
+
+        Returns
+        -------
+        dict
+        """
         out = self.stage.to_dict()
         out["n_firms"] = self.stage.n_firms
         out["thresholds"] = {
@@ -543,8 +618,16 @@ def critical_discount_factors(market, punishments=(1, 2, 3, 5, 10), deltas=(), a
         Lengths T of finite Nash reversion to report.
     deltas : sequence of float
         Discount factors at which to report partial collusion (every scheme, every T).
-    agreement, actions :
+    agreement : {"joint", "symmetric", "proportional", "given"}
         The collusive outcome (see :func:`sim.theory.equilibrium.collusive_outcome`).
+    actions : array_like of shape (n_products,), optional
+        The agreed actions with ``agreement="given"``.
+    stage : StageGame, optional
+        The stage game, when already solved (``agreement`` and ``actions`` are then not used).
+
+    Returns
+    -------
+    ThresholdReport
     """
     ms = market if isinstance(market, MarketSpec) else market.spec()
     Ts = [_check_T(T, "punishment") for T in punishments]
