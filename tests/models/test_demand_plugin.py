@@ -83,6 +83,18 @@ def test_a_thresholds_experiment_file_names_the_plugin_model(plugin, tmp_path, c
     assert float(row["threshold.grim"]) == pytest.approx(grim, rel=1e-8)
 
 
+def test_checking_a_file_refuses_what_the_plugin_model_cannot_do(plugin, tmp_path, capsys):
+    """``supergame check`` refuses the trigger-price equilibrium of a model without a price signal before any
+    work, naming the model."""
+    exp = tmp_path / "plugin-trigger.toml"
+    exp.write_text('[experiment]\nname = "plugin-trigger"\nkind = "thresholds"\n\n'
+                   '[market]\ndemand = "exponential"\nsize = 200.0\nscale = 8.0\ncost = 3.0\nn_firms = 2\n\n'
+                   '[monitoring]\nsignal = "price"\nsigma = 0.1\n\n[thresholds]\ndeltas = [0.9]\n')
+    assert main(["check", str(exp), "--plugin", str(PLUGIN)]) == 2
+    err = capsys.readouterr().err
+    assert "market.demand" in err and "price distribution of the demand model 'exponential'" in err
+
+
 def test_missing_capabilities_are_refused_by_name(plugin):
     """No price signal: the trigger-price equilibrium refuses the model (it used to apply the isoelastic
     formula to every homogeneous demand that was not linear); no stage-core code: so do the simulations."""
