@@ -11,7 +11,8 @@ import importlib
 __version__ = "0.1.0"
 
 _EXPORTS = {
-    "models.demand": ["DifferentiatedDemand", "IsoelasticDemand", "LinearDemand", "LogitDemand"],
+    "models.demand": ["Demand", "DemandSpec", "DifferentiatedDemand", "IsoelasticDemand", "LinearDemand",
+                      "LogitDemand", "register_demand"],
     "models.market": ["Market", "MarketSpec", "market_from_dict"],
     "core.errors": ["InputError", "SolverError", "SupergameError"],
     "theory.equilibrium": [

@@ -55,22 +55,24 @@ whether the model reproduces the data.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
 
 import numpy as np
 
 from sim.antitrust.calibrated import REPRODUCTION_TOL, Calibration
 from sim.antitrust.data_constraints import Negative, OneOrPerProduct, OwnerMap
-from sim.antitrust.demand_fits import _differentiated, _isoelastic, _linear, _logit  # calibrate() dispatches on them
+from sim.antitrust.demand_fits import _differentiated, _isoelastic, _linear, _logit  # the calibrators below
 from sim.core.errors import InputError, SolverError
 from sim.core.params import Integer, Options, Parametrized, PerFirm, Real, optional
 from sim.core.tables import refuse_unknown
-from sim.models.demand import DEMAND_TYPES
+from sim.models.demand import DEMAND_TYPES, DifferentiatedDemand, IsoelasticDemand, LinearDemand, LogitDemand
 from sim.theory.equilibrium import static_nash
 
 __all__ = ["CALIBRATION_DEMANDS", "REPRODUCTION_TOL", "Calibration", "MarketData", "calibrate", "data_from_dict"]
 
-CALIBRATION_DEMANDS = ("logit", "linear", "differentiated", "isoelastic")
+#: names of the demand systems with a calibration here (see ``_CALIBRATORS`` at the end of the module)
+CALIBRATION_DEMANDS = tuple(cls.name for cls in (LogitDemand, LinearDemand, DifferentiatedDemand, IsoelasticDemand))
 _IDENTIFYING = ("margin", "elasticity", "market_elasticity")
 
 
@@ -204,13 +206,14 @@ class MarketData(Parametrized):
         if out["reference"] > n:
             raise InputError(f"{prefix}.reference", f"must be a product number in [1, {n}], got {out['reference']}")
         out["reference"] -= 1
-        if out["owner"] is not None and demand in ("linear", "isoelastic"):
+        homogeneous = DEMAND_TYPES[demand].homogeneous
+        if out["owner"] is not None and homogeneous:
             raise InputError(f"{prefix}.owner", f"multi-product firms need differentiated products; with {demand} "
                                                 "demand a firm with several plants is one firm (combine them)")
         if out["capacity"] is not None and model != "cournot":
             raise InputError(f"{prefix}.capacity", "capacities are used with quantity competition (cournot) only")
         self._check_volumes(out, prefix)
-        if demand in ("linear", "isoelastic"):
+        if homogeneous:
             p = out["prices"]
             if not np.allclose(p, p[0], rtol=1e-12, atol=0):
                 raise InputError(f"{prefix}.prices", f"a homogeneous good has one market price, got {p.tolist()}; "
@@ -227,7 +230,7 @@ class MarketData(Parametrized):
 
     def _check_volumes(self, out: dict, prefix: str) -> None:
         demand = out["demand"]
-        if demand == "logit":
+        if _calibrator(demand).potential_market:
             if out["shares"] is not None and out["quantities"] is not None:
                 raise InputError(f"{prefix}.quantities", "give shares or quantities (with size), not both")
             if out["shares"] is None:
@@ -259,44 +262,14 @@ class MarketData(Parametrized):
             out["shares"] = out["quantities"] / out["quantities"].sum()
 
     def _check_identifying(self, out: dict, prefix: str) -> None:
-        demand, model = out["demand"], out["model"]
         given = [k for k in _IDENTIFYING if out[k] is not None]
+        _calibrator(out["demand"]).identify(out, given, prefix)
 
-        def only(allowed: tuple, what: str):
-            extra = [k for k in given if k not in allowed]
-            if extra:
-                raise InputError(f"{prefix}.{extra[0]}", f"not used with {what}; give {' or '.join(allowed)}")
-
-        if demand == "logit":
-            if len(given) != 1:
-                key = f"{prefix}.{given[1]}" if given else f"{prefix}.margin"
-                raise InputError(key, "give exactly one of margin, elasticity, market_elasticity (logit demand has "
-                                      "one price parameter)" + (f"; got {', '.join(given)}" if given else ""))
-        elif demand == "linear" and model == "bertrand":
-            if out["margin"] is not None:
-                raise InputError(f"{prefix}.margin", "static Nash in a homogeneous-good price game has zero margins "
-                                                     "(price equals cost); the data's margin contradicts the conduct "
-                                                     "assumption")
-            only(("market_elasticity",), "homogeneous Bertrand")
-            if out["market_elasticity"] is None:
-                raise InputError(f"{prefix}.market_elasticity", "missing: homogeneous Bertrand demand is calibrated "
-                                                                "from the market elasticity")
-        elif demand in ("linear", "isoelastic"):
-            only(("market_elasticity", "margin"), f"{demand} demand (a homogeneous good has one market elasticity)")
-            if len(given) != 1:
-                key = f"{prefix}.{given[1]}" if given else f"{prefix}.market_elasticity"
-                raise InputError(key, "give exactly one of market_elasticity, margin"
-                                      + (f"; got {', '.join(given)}" if given else ""))
-        else:  # differentiated
-            if out["market_elasticity"] is None:
-                raise InputError(f"{prefix}.market_elasticity", "missing: differentiated linear demand needs the "
-                                                                "market elasticity plus a margin or an own-price "
-                                                                "elasticity")
-            rest = [k for k in given if k != "market_elasticity"]
-            if len(rest) != 1:
-                key = f"{prefix}.{rest[1]}" if rest else f"{prefix}.margin"
-                raise InputError(key, "give exactly one of margin, elasticity besides market_elasticity"
-                                      + (f"; got {', '.join(rest)}" if rest else ""))
+    @property
+    def has_potential_market(self) -> bool:
+        """Whether the demand system's quantities are shares of a potential market (an outside good
+        takes the rest), so that ``size`` is one of its inputs."""
+        return _calibrator(self.demand).potential_market
 
     def with_input(self, name: str, value: float, prefix: str = "data") -> MarketData:
         """A copy in which the uncertain input ``name`` takes ``value``.
@@ -322,18 +295,18 @@ class MarketData(Parametrized):
         MarketData
         """
         if name == "size":
-            if self.demand != "logit":
+            if not self.has_potential_market:
                 raise InputError(name, "the potential market size is an input of logit demand only")
             v = self.validated(prefix)
             return self.clone(quantities=v["quantities"].tolist(), shares=None, size=value)
         if name not in _IDENTIFYING:
             raise InputError(name, f"must be one of {', '.join(_IDENTIFYING)} or size")
         changes = {name: value}
-        if self.demand == "differentiated":
-            if name != "market_elasticity":
-                changes.update({k: None for k in ("margin", "elasticity") if k != name})
-        elif not (self.demand == "linear" and (self.model or "cournot") == "bertrand"):
-            changes.update({k: None for k in _IDENTIFYING if k != name})
+        calibrator = _calibrator(self.demand)
+        model = self.model or DEMAND_TYPES[self.demand].models[0]
+        exclusive = calibrator.exclusive.get(model, _IDENTIFYING)
+        if name in exclusive:
+            changes.update({k: None for k in exclusive if k != name})
         return self.clone(**changes)
 
 
@@ -385,8 +358,7 @@ def calibrate(data: MarketData, prefix: str = "data") -> Calibration:
     if not isinstance(data, MarketData):
         raise InputError(prefix, f"must be MarketData, got {type(data).__name__}")
     v = data.validated(prefix)
-    fn = {"logit": _logit, "linear": _linear, "differentiated": _differentiated, "isoelastic": _isoelastic}
-    parts = fn[v["demand"]](v, prefix)
+    parts = _calibrator(v["demand"]).fit(v, prefix)
     return _finish(v, parts, prefix)
 
 
@@ -415,7 +387,7 @@ def _finish(v: dict, parts: dict, prefix: str) -> Calibration:
     p_obs, q_obs = v["prices"], v["quantities"]
     s_obs = v["shares"]
     p_mod, q_mod = np.asarray(nash.prices, float), np.asarray(nash.quantities, float)
-    if v["demand"] == "logit":
+    if _calibrator(v["demand"]).potential_market:
         s_mod = q_mod / v["size"]
     else:
         s_mod = q_mod / q_mod.sum()
@@ -438,3 +410,87 @@ def _finish(v: dict, parts: dict, prefix: str) -> Calibration:
         residuals=resid, max_relative_residual=rel, reproduced=bool(rel <= REPRODUCTION_TOL), fit=parts["fit"],
         assumptions=assumptions, data={k: (x.tolist() if isinstance(x, np.ndarray) else x) for k, x in v.items()},
     )
+
+
+# --------------------------------------------------------------------------------------------------
+# What identifies each demand system, and the registry of calibrations
+# --------------------------------------------------------------------------------------------------
+
+
+def _only(given: list, allowed: tuple, what: str, prefix: str) -> None:
+    extra = [k for k in given if k not in allowed]
+    if extra:
+        raise InputError(f"{prefix}.{extra[0]}", f"not used with {what}; give {' or '.join(allowed)}")
+
+
+def _identify_logit(out: dict, given: list, prefix: str) -> None:
+    if len(given) != 1:
+        key = f"{prefix}.{given[1]}" if given else f"{prefix}.margin"
+        raise InputError(key, "give exactly one of margin, elasticity, market_elasticity (logit demand has "
+                              "one price parameter)" + (f"; got {', '.join(given)}" if given else ""))
+
+
+def _identify_homogeneous(out: dict, given: list, prefix: str) -> None:
+    demand, model = out["demand"], out["model"]
+    if model == "bertrand":
+        if out["margin"] is not None:
+            raise InputError(f"{prefix}.margin", "static Nash in a homogeneous-good price game has zero margins "
+                                                 "(price equals cost); the data's margin contradicts the conduct "
+                                                 "assumption")
+        _only(given, ("market_elasticity",), "homogeneous Bertrand", prefix)
+        if out["market_elasticity"] is None:
+            raise InputError(f"{prefix}.market_elasticity", "missing: homogeneous Bertrand demand is calibrated "
+                                                            "from the market elasticity")
+        return
+    _only(given, ("market_elasticity", "margin"), f"{demand} demand (a homogeneous good has one market elasticity)",
+          prefix)
+    if len(given) != 1:
+        key = f"{prefix}.{given[1]}" if given else f"{prefix}.market_elasticity"
+        raise InputError(key, "give exactly one of market_elasticity, margin"
+                              + (f"; got {', '.join(given)}" if given else ""))
+
+
+def _identify_differentiated(out: dict, given: list, prefix: str) -> None:
+    if out["market_elasticity"] is None:
+        raise InputError(f"{prefix}.market_elasticity", "missing: differentiated linear demand needs the "
+                                                        "market elasticity plus a margin or an own-price "
+                                                        "elasticity")
+    rest = [k for k in given if k != "market_elasticity"]
+    if len(rest) != 1:
+        key = f"{prefix}.{rest[1]}" if rest else f"{prefix}.margin"
+        raise InputError(key, "give exactly one of margin, elasticity besides market_elasticity"
+                              + (f"; got {', '.join(rest)}" if rest else ""))
+
+
+@dataclass(frozen=True)
+class _Calibrator:
+    """How one demand system is calibrated.
+
+    ``fit(validated inputs, prefix)`` returns the calibrated parts; ``identify(inputs, given, prefix)``
+    refuses a set of identifying inputs that does not pin the model down; ``exclusive`` maps a mode of
+    competition to the identifying inputs that replace each other (:meth:`MarketData.with_input`);
+    ``potential_market``: volumes are shares of a potential market that an outside good completes.
+    """
+
+    fit: Callable
+    identify: Callable
+    exclusive: dict
+    potential_market: bool = False
+
+
+#: the calibration of each demand system, by its class (a system without one is refused by name)
+_CALIBRATORS = {
+    LogitDemand: _Calibrator(_logit, _identify_logit, {"bertrand": _IDENTIFYING}, potential_market=True),
+    LinearDemand: _Calibrator(_linear, _identify_homogeneous, {"cournot": _IDENTIFYING, "bertrand": ()}),
+    DifferentiatedDemand: _Calibrator(_differentiated, _identify_differentiated,
+                                      {"cournot": ("margin", "elasticity"), "bertrand": ("margin", "elasticity")}),
+    IsoelasticDemand: _Calibrator(_isoelastic, _identify_homogeneous, {"cournot": _IDENTIFYING}),
+}
+
+
+def _calibrator(demand: str) -> _Calibrator:
+    found = _CALIBRATORS.get(DEMAND_TYPES.get(demand)) if isinstance(demand, str) else None
+    if found is None:
+        raise InputError("data.demand", f"calibration from market data is not available for the demand model "
+                                        f"{demand!r}; calibrated models: {', '.join(CALIBRATION_DEMANDS)}")
+    return found

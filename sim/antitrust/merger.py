@@ -387,15 +387,7 @@ def merge(market, merger: Merger, prefix: str = "merger") -> MergerResult:
                 if i not in idx:
                     capacity[firm_map[i]] = cap[i]
             capacity[merged] = float(cap[idx].sum())
-        new_d = d.clone()
-        if d.name == "linear" and ms.model == "bertrand":
-            w = np.asarray(ms.demand.vector, dtype=float)
-            split = np.empty(F_post)
-            for i in range(F):
-                if i not in idx:
-                    split[firm_map[i]] = w[i]
-            split[merged] = float(w[idx].sum())
-            new_d = d.clone(split=split.tolist())
+        new_d = d.merge_firms(ms, idx, firm_map, F_post)
         post = Market(new_d, cost=post_cost.tolist(), model=ms.model, n_firms=None,
                       capacity=None if capacity is None else [float(x) for x in capacity], tick=ms.tick)
         cheap = idx[int(np.argmin(cost[idx]))]

@@ -157,7 +157,7 @@ def check_sensitivity(sens, data, prefix: str = "assess.sensitivity") -> tuple[d
             name, Real(None, 0, closed="neither"))
         vals, labels, log = _range(f"{prefix}.{name}", sens[name], element)
         if name == "size":
-            if data.demand != "logit":
+            if not data.has_potential_market:
                 raise InputError(f"{prefix}.size", "the potential market size is an input of logit demand only")
             sold = float(data.validated("data")["quantities"].sum())
             if vals[0] <= sold:

@@ -296,17 +296,8 @@ def symmetric_counterpart(market, n_products: int | None = None, keep_owner: boo
         n = ms.n_products if n_products is None else int(n_products)
         if keep_owner and market.owner is not None and n == ms.n_products:
             owner = list(market.owner)
-    d = market.demand
-    kind = ms.demand.kind
+    new_d = market.demand.symmetric_version(ms.n_products)
     c = float(np.mean(ms.cost))
-    if kind == "linear":
-        new_d = d.clone(split=None)
-    elif kind == "isoelastic":
-        new_d = d.clone()
-    elif kind == "differentiated":
-        new_d = d.clone(intercept=float(np.mean(ms.demand.vector)))
-    else:
-        new_d = d.clone(quality=float(np.mean(ms.demand.vector)))
     cap = np.asarray(ms.capacity, dtype=float)
     capacity = float(cap.mean()) if market.capacity is not None and np.all(np.isfinite(cap)) else None
     return Market(new_d, cost=c, model=ms.model, n_firms=None if owner is not None else n, capacity=capacity,

@@ -30,53 +30,28 @@ Conventions
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from sim.core.errors import InputError
 from sim.core.params import Integer, Options, Parametrized, PerFirm, Real, optional
-from sim.models.demand import (
-    CODE_DIFF_BERTRAND,
-    CODE_DIFF_COURNOT,
-    CODE_ISO_COURNOT,
-    CODE_LINEAR_BERTRAND,
-    CODE_LINEAR_COURNOT,
-    CODE_LOGIT_BERTRAND,
-    DEMAND_TYPES,
-    MAX_MAGNITUDE,
-    Demand,
-    DemandSpec,
-    DifferentiatedDemand,
-    IsoelasticDemand,
-    LinearDemand,
-    LogitDemand,
-    consumer_surplus,
-    direct_demand,
-    inverse_demand,
-)
+from sim.models.demand import DEMAND_TYPES, MAX_MAGNITUDE, Demand
+from sim.models.demand_spec import DemandSpec
 
-__all__ = ["MAX_FIRMS", "MODELS", "Market", "MarketSpec", "market_from_dict"]
+__all__ = ["DEFAULT_DEMAND", "DEMAND_KEYS", "MAX_FIRMS", "MODELS", "Market", "MarketSpec", "market_from_dict"]
 
 MODELS = ("cournot", "bertrand")
 #: Largest number of firms (or products): oligopoly analysis, not atomistic markets.
 MAX_FIRMS = 1000
 
-_CODES = {
-    ("linear", "cournot"): CODE_LINEAR_COURNOT,
-    ("linear", "bertrand"): CODE_LINEAR_BERTRAND,
-    ("differentiated", "cournot"): CODE_DIFF_COURNOT,
-    ("differentiated", "bertrand"): CODE_DIFF_BERTRAND,
-    ("logit", "bertrand"): CODE_LOGIT_BERTRAND,
-    ("isoelastic", "cournot"): CODE_ISO_COURNOT,
-}
-
 
 @dataclass(frozen=True, eq=False)
 class MarketSpec:
-    """Validated numeric form of a market.
+    """Validated numeric form of a market (made by :meth:`Market.spec`).
 
-    Attributes
+    Parameters
     ----------
     n_products : int
         Length of action profiles.
@@ -91,8 +66,6 @@ class MarketSpec:
         ``inf`` where a product is unconstrained.
     tick : float
         Price step of homogeneous Bertrand (0: continuous prices).
-    code : int
-        Identifier of the (demand, model) pair for the numba core.
     """
 
     n_products: int
@@ -103,39 +76,66 @@ class MarketSpec:
     cost: np.ndarray
     capacity: np.ndarray
     tick: float
-    code: int
     _cache: dict = field(default_factory=dict, repr=False)
 
     # ---- classification -----------------------------------------------------------------------
     @property
     def quantity_setting(self) -> bool:
+        """Whether firms choose quantities (Cournot) rather than prices."""
         return self.model == "cournot"
 
     @property
+    def code(self) -> int:
+        """The stage-core code of the (demand, mode) pair (:meth:`DemandSpec.stage_code`)."""
+        return self.demand.stage_code(self.model)
+
+    @property
     def homogeneous_bertrand(self) -> bool:
-        return self.code == CODE_LINEAR_BERTRAND
+        """Price competition with a homogeneous good (the lowest price takes the market)."""
+        return self.demand.homogeneous and not self.quantity_setting
 
     @property
     def price_step(self) -> float:
         """Undercutting step of homogeneous Bertrand: ``tick`` if positive, else 1e-9 of the choke price."""
         if self.tick > 0:
             return float(self.tick)
-        return 1e-9 * float(self.demand.scalars[0])
+        return 1e-9 * float(self.demand.choke_price)
 
     @property
     def homogeneous_good(self) -> bool:
-        return self.demand.kind in ("linear", "isoelastic")
+        """Whether every firm sells the same good."""
+        return self.demand.homogeneous
 
     @property
     def multi_product(self) -> bool:
+        """Whether some firm sells several products."""
         return self.n_products != self.n_firms
 
     def products_of(self, i: int) -> np.ndarray:
-        """Indices of firm ``i``'s products."""
+        """Indices of firm ``i``'s products.
+
+        Parameters
+        ----------
+        i : int
+            The firm (0-based).
+
+        Returns
+        -------
+        ndarray of int
+        """
         return np.flatnonzero(self.owner == i)
 
     def firm_sum(self, per_product: np.ndarray) -> np.ndarray:
-        """Aggregate a per-product array of shape (..., n_products) to firms, shape (..., n_firms)."""
+        """Aggregate a per-product array to firms.
+
+        Parameters
+        ----------
+        per_product : array_like of shape (..., n_products)
+
+        Returns
+        -------
+        ndarray of shape (..., n_firms)
+        """
         x = np.asarray(per_product, dtype=float)
         if not self.multi_product:
             return x
@@ -176,57 +176,75 @@ class MarketSpec:
             raise ValueError(f"actions must have last dimension {self.n_products}, got shape {a.shape}")
         if self.quantity_setting:
             q = np.clip(a, 0.0, self.capacity)
-            p = inverse_demand(self.demand, q) * shock
+            p = self.demand.inverse_demand(q) * shock
             with np.errstate(invalid="ignore"):
                 pi = np.where(q > 0, (p - self.cost) * q, 0.0)
         else:
             p = a
-            q = direct_demand(self.demand, p) * shock
+            q = self.demand.direct_demand(p) * shock
             pi = (p - self.cost) * q
         return q, p, pi
 
     def profits(self, actions, shock=1.0) -> np.ndarray:
-        """Per-product profits of action profiles, shape (..., n_products)."""
+        """Per-product profits of action profiles.
+
+        Parameters
+        ----------
+        actions : array_like of shape (..., n_products)
+        shock : float or array_like broadcastable to (..., 1)
+
+        Returns
+        -------
+        ndarray of shape (..., n_products)
+        """
         return self.evaluate(actions, shock)[2]
 
     def firm_profits(self, actions, shock=1.0) -> np.ndarray:
-        """Per-firm profits of action profiles, shape (..., n_firms)."""
+        """Per-firm profits of action profiles.
+
+        Parameters
+        ----------
+        actions : array_like of shape (..., n_products)
+        shock : float or array_like broadcastable to (..., 1)
+
+        Returns
+        -------
+        ndarray of shape (..., n_firms)
+        """
         return self.firm_sum(self.evaluate(actions, shock)[2])
 
     def consumer_surplus(self, actions) -> np.ndarray:
-        """Consumer surplus of action profiles, shape (...,)."""
+        """Consumer surplus of action profiles.
+
+        Parameters
+        ----------
+        actions : array_like of shape (..., n_products)
+
+        Returns
+        -------
+        ndarray of shape (...,)
+        """
         q, p, _ = self.evaluate(actions)
-        return consumer_surplus(self.demand, q, p)
+        return self.demand.consumer_surplus(q, p)
 
     def action_bounds(self) -> tuple[np.ndarray, np.ndarray]:
-        """Per-firm interval searched by best responses and punishments.
+        """Per-product interval searched by best responses and punishments.
 
         Cournot: ``[0, min(capacity, q_max)]`` where ``q_max`` is a quantity beyond which extra output
         cannot raise the firm's profit. Bertrand: ``[0, p_max]``, ``p_max`` a price at which the firm
-        sells nothing or a price above every candidate optimum (logit).
+        sells nothing or a price above every candidate optimum. The demand system gives ``q_max`` and
+        ``p_max`` (:meth:`DemandSpec.action_upper`).
+
+        Returns
+        -------
+        lo, hi : ndarray of shape (n_products,)
         """
         if "bounds" in self._cache:
             return self._cache["bounds"]
-        n, d, c = self.n_products, self.demand, self.cost
-        if d.kind == "linear":
-            hi = np.full(n, d.scalars[0] / d.scalars[1]) if self.quantity_setting else np.full(n, d.scalars[0])
-        elif d.kind == "differentiated":
-            hi = d.vector / d.scalars[0] if self.quantity_setting else d.vector.copy()
-        elif d.kind == "logit":
-            # a firm's optimal markup never exceeds mu / s_0 evaluated with every price at cost, and
-            # the joint-profit markup is mu / s_0 as well; twice that bounds every candidate.
-            p = c[None, :]
-            s = direct_demand(d, p)[0] / d.scalars[2]
-            hi = c + 2.0 * d.scalars[1] / max(1e-300, 1.0 - s.sum()) + 10.0 * d.scalars[1]
-        elif d.kind == "isoelastic":
-            A, eps = d.scalars[0], d.scalars[1]
-            # the market price falls below the lowest cost beyond this total quantity
-            hi = np.full(n, (A / c.min()) ** eps)
-        else:  # pragma: no cover
-            raise ValueError(d.kind)
+        hi = self.demand.action_upper(self)
         if self.quantity_setting:
             hi = np.minimum(hi, self.capacity)
-        out = (np.zeros(n), hi)
+        out = (np.zeros(self.n_products), hi)
         self._cache["bounds"] = out
         return out
 
@@ -237,8 +255,9 @@ class Market(Parametrized):
     Parameters
     ----------
     demand : Demand
-        A demand system (:class:`~sim.models.demand.LinearDemand`, :class:`~sim.models.demand.DifferentiatedDemand`,
-        :class:`~sim.models.demand.LogitDemand`, :class:`~sim.models.demand.IsoelasticDemand`).
+        A demand system (:class:`~sim.models.linear.LinearDemand`,
+        :class:`~sim.models.differentiated.DifferentiatedDemand`, :class:`~sim.models.logit.LogitDemand`,
+        :class:`~sim.models.isoelastic.IsoelasticDemand`, or a registered model of a plugin).
     cost : float or list of float
         Constant marginal cost of each firm (>= 0; a single value applies to every firm).
     model : {"cournot", "bertrand"}
@@ -287,13 +306,6 @@ class Market(Parametrized):
         if name != "_spec_cache":
             object.__setattr__(self, "_spec_cache", None)
 
-    def clone(self, **changes):
-        params = self.get_params()
-        if "demand" not in changes:
-            params["demand"] = self.demand.clone()
-        params.update(changes)
-        return type(self)(**params)
-
     def _infer_n(self, prefix: str) -> int:
         """Number of products (= firms without an owner map)."""
         if self.owner is not None:
@@ -321,7 +333,17 @@ class Market(Parametrized):
         return n0
 
     def spec(self, prefix: str = "market") -> MarketSpec:
-        """Validate the market and return its numeric form (cached until a parameter changes)."""
+        """Validate the market and return its numeric form (cached until a parameter changes).
+
+        Parameters
+        ----------
+        prefix : str
+            Key path of the market in error messages.
+
+        Returns
+        -------
+        MarketSpec
+        """
         cached = getattr(self, "_spec_cache", None)
         if cached is not None and cached[0] == prefix:
             return cached[1]
@@ -346,34 +368,82 @@ class Market(Parametrized):
                 "with capacity constraints is out of scope",
             )
         cap = p["capacity"] if p["capacity"] is not None else np.full(n, np.inf)
-        if dspec.kind == "differentiated" and model == "bertrand" and dspec.scalars[1] >= 1.0:
-            raise InputError(
-                f"{prefix}.substitution",
-                "price competition needs substitution < 1; use demand = 'linear' for a homogeneous good",
-            )
-        _check_costs(prefix, dspec, cost)
-        if p["tick"] > 0 and not (dspec.kind == "linear" and model == "bertrand"):
+        dspec.check_market(model, cost, prefix)
+        if p["tick"] > 0 and not (dspec.homogeneous and model == "bertrand"):
             raise InputError(f"{prefix}.tick", "a price tick applies to homogeneous Bertrand only")
-        owner, n_owners = _check_owner(prefix, self.owner, n, self.n_firms, dspec.kind)
-        ms = MarketSpec(n, n_owners, owner, model, dspec, cost, cap, p["tick"], _CODES[(dspec.kind, model)])
+        owner, n_owners = _check_owner(prefix, self.owner, n, self.n_firms, dspec)
+        ms = MarketSpec(n, n_owners, owner, model, dspec, cost, cap, p["tick"])
         object.__setattr__(self, "_spec_cache", (prefix, ms))
         return ms
 
     # thin conveniences so that users need not touch the spec
     def profits(self, actions, shock=1.0):
-        """Per-product profits of action profiles of shape (..., n_products)."""
+        """Per-product profits of action profiles (:meth:`MarketSpec.profits`).
+
+        Parameters
+        ----------
+        actions : array_like of shape (..., n_products)
+        shock : float or array_like broadcastable to (..., 1)
+
+        Returns
+        -------
+        ndarray of shape (..., n_products)
+        """
         return self.spec().profits(actions, shock)
 
     def firm_profits(self, actions, shock=1.0):
-        """Per-firm profits of action profiles of shape (..., n_products)."""
+        """Per-firm profits of action profiles (:meth:`MarketSpec.firm_profits`).
+
+        Parameters
+        ----------
+        actions : array_like of shape (..., n_products)
+        shock : float or array_like broadcastable to (..., 1)
+
+        Returns
+        -------
+        ndarray of shape (..., n_firms)
+        """
         return self.spec().firm_profits(actions, shock)
 
     def evaluate(self, actions, shock=1.0):
-        """Quantities, prices and profits of action profiles of shape (..., n_firms)."""
+        """Quantities, prices and profits of action profiles (:meth:`MarketSpec.evaluate`).
+
+        Parameters
+        ----------
+        actions : array_like of shape (..., n_products)
+        shock : float or array_like broadcastable to (..., 1)
+
+        Returns
+        -------
+        quantities, prices, profits : ndarray of shape (..., n_products)
+        """
         return self.spec().evaluate(actions, shock)
 
+    def clone(self, **changes):
+        """A new market with the same parameters (and a copy of the demand), optionally changed.
+
+        Parameters
+        ----------
+        **changes
+            Constructor arguments to replace.
+
+        Returns
+        -------
+        Market
+        """
+        params = self.get_params()
+        if "demand" not in changes:
+            params["demand"] = self.demand.clone()
+        params.update(changes)
+        return type(self)(**params)
+
     def to_dict(self) -> dict:
-        """Flat description in the layout of an experiment file's ``[market]`` table."""
+        """Flat description in the layout of an experiment file's ``[market]`` table.
+
+        Returns
+        -------
+        dict
+        """
         out = {"model": self.model, "demand": self.demand.name}
         for k, v in self.demand.get_params().items():
             if v is not None:
@@ -398,7 +468,7 @@ def _plain(v):
     return v
 
 
-def _check_owner(prefix, owner, n_products, n_firms, kind):
+def _check_owner(prefix, owner, n_products, n_firms, dspec: DemandSpec):
     """Validate an owner map (firm numbers 1..F, each used); returns 0-based owners and F."""
     if owner is None:
         return np.arange(n_products), n_products
@@ -416,48 +486,31 @@ def _check_owner(prefix, owner, n_products, n_firms, kind):
         raise InputError(key, "a market needs at least two firms")
     if n_firms is not None and n_firms != F:
         raise InputError(f"{prefix}.n_firms", f"is {n_firms} but the owner map names {F} firms")
-    if kind in ("linear", "isoelastic") and F != n_products:
+    if dspec.homogeneous and F != n_products:
         raise InputError(
-            key, f"multi-product firms need differentiated products; with {kind} demand a firm with several "
+            key, f"multi-product firms need differentiated products; with {dspec.kind} demand a firm with several "
             "plants is one firm (combine them)",
         )
     return np.array(vals, dtype=np.int64) - 1, F
 
 
-def _check_costs(prefix: str, d: DemandSpec, cost: np.ndarray) -> None:
-    key = f"{prefix}.cost"
-    if d.kind == "linear":
-        a = d.scalars[0]
-        bad = np.flatnonzero(cost >= a)
-        if bad.size:
-            i = bad[0]
-            raise InputError(key, f"firm {i + 1}'s cost {cost[i]:g} is at or above the choke price {a:g}")
-    elif d.kind == "differentiated":
-        bad = np.flatnonzero(cost >= d.vector)
-        if bad.size:
-            i = bad[0]
-            raise InputError(
-                key, f"firm {i + 1}'s cost {cost[i]:g} is at or above its choke price (intercept {d.vector[i]:g})"
-            )
-    elif d.kind == "isoelastic":
-        bad = np.flatnonzero(cost <= 0)
-        if bad.size:
-            raise InputError(key, f"isoelastic demand needs positive costs, firm {bad[0] + 1} has {cost[bad[0]]:g}")
-        # with a tiny cost relative to the demand scale the monopoly output (scale/cost)^elasticity
-        # overflows; a millionth of the scale is far below any calibrated market
-        low = np.flatnonzero(cost < 1e-6 * d.scalars[0])
-        if low.size:
-            raise InputError(key, f"isoelastic demand needs costs of at least 1e-6 of the scale "
-                                  f"({1e-6 * d.scalars[0]:g}); firm {low[0] + 1} has {cost[low[0]]:g}")
+class _DemandKeys(Mapping):
+    """Keys of the flat ``[market]`` table of each registered demand system (its constructor arguments)."""
+
+    def __getitem__(self, name):
+        return tuple(DEMAND_TYPES[name]._param_names())
+
+    def __iter__(self):
+        return iter(DEMAND_TYPES)
+
+    def __len__(self):
+        return len(DEMAND_TYPES)
 
 
-# keys of the flat [market] table, by demand system
-DEMAND_KEYS = {
-    "linear": ("intercept", "slope", "split"),
-    "differentiated": ("intercept", "slope", "substitution"),
-    "logit": ("quality", "outside", "mu", "size"),
-    "isoelastic": ("scale", "elasticity"),
-}
+#: demand name -> keys of the flat ``[market]`` table for that system (follows the registry)
+DEMAND_KEYS: Mapping[str, tuple[str, ...]] = _DemandKeys()
+#: the demand system of a ``[market]`` table that names none
+DEFAULT_DEMAND = "linear"
 _MARKET_KEYS = ("model", "demand", "n_firms", "cost", "capacity", "tick", "owner")
 
 
@@ -466,11 +519,23 @@ def market_from_dict(table: dict, prefix: str = "market") -> Market:
 
     Unknown keys raise :class:`InputError` naming the key and the keys allowed for the chosen demand
     system. The market is validated before it is returned.
+
+    Parameters
+    ----------
+    table : dict
+        ``demand`` (a registered name, default ``"linear"``), ``model``, ``cost``, ``n_firms``,
+        ``capacity``, ``tick``, ``owner`` and the demand system's own parameters.
+    prefix : str
+        Key path of the table in error messages.
+
+    Returns
+    -------
+    Market
     """
     if not isinstance(table, dict):
         raise InputError(prefix, f"must be a table, got {table!r}")
-    demand_name = table.get("demand", "linear")
-    if demand_name not in DEMAND_TYPES:
+    demand_name = table.get("demand", DEFAULT_DEMAND)
+    if not isinstance(demand_name, str) or demand_name not in DEMAND_TYPES:
         allowed = ", ".join(map(repr, DEMAND_TYPES))
         raise InputError(f"{prefix}.demand", f"must be one of {allowed}, got {demand_name!r}")
     allowed = set(_MARKET_KEYS) | set(DEMAND_KEYS[demand_name])
@@ -483,8 +548,7 @@ def market_from_dict(table: dict, prefix: str = "market") -> Market:
     if "cost" not in table:
         raise InputError(f"{prefix}.cost", "missing (marginal cost of each firm)")
     dparams = {k: table[k] for k in DEMAND_KEYS[demand_name] if k in table}
-    cls = {"linear": LinearDemand, "differentiated": DifferentiatedDemand, "logit": LogitDemand,
-           "isoelastic": IsoelasticDemand}[demand_name]
+    cls = DEMAND_TYPES[demand_name]
     default_model = cls.models[0]
     m = Market(
         demand=cls(**dparams),

@@ -69,7 +69,18 @@ class Monitoring(Parametrized):
         self.implementation_error = implementation_error
 
     def validated(self, prefix: str = "monitoring") -> dict:
-        """Checked parameters, plus ``noise_code`` for the kernel."""
+        """Checked parameters, plus ``noise_code`` for the kernel.
+
+        Parameters
+        ----------
+        prefix : str
+            Key path of the table in error messages.
+
+        Returns
+        -------
+        dict
+            The parameters by name and ``noise_code`` (:data:`NOISE_CODES`; 0 without a shock).
+        """
         p = self._check_params(prefix)
         if p["noise"] == "normal" and p["sigma"] > NORMAL_SIGMA_MAX:
             key = f"{prefix}.sigma" if prefix else "sigma"
@@ -80,11 +91,28 @@ class Monitoring(Parametrized):
         return p
 
     def to_dict(self) -> dict:
+        """The parameters, in the layout of an experiment file's ``[monitoring]`` table.
+
+        Returns
+        -------
+        dict
+        """
         return dict(self.get_params())
 
 
 def monitoring_from_dict(table: dict, prefix: str = "monitoring") -> Monitoring:
-    """Build a :class:`Monitoring` from an experiment file's ``[monitoring]`` table (unknown keys refused)."""
+    """Build a :class:`Monitoring` from an experiment file's ``[monitoring]`` table (unknown keys refused).
+
+    Parameters
+    ----------
+    table : dict
+    prefix : str
+        Key path of the table in error messages.
+
+    Returns
+    -------
+    Monitoring
+    """
     refuse_unknown(table, prefix, _KEYS)
     m = Monitoring(**table)
     m.validated(prefix)

@@ -1,10 +1,10 @@
-"""Numba twin of the stage-game evaluation in :mod:`sim.models.demand` and
+"""Numba twin of the stage-game evaluation of the shipped demand systems and
 :meth:`sim.models.market.MarketSpec.evaluate`.
 
 The kernels evaluate one action profile at a time. Everything works per product with an owner map
 (``owner[k]`` is the firm selling product ``k``; the identity when no firm sells several products):
 actions, quantities, prices, costs and capacities have one entry per product, and firm profits add
-up the profits of the products a firm owns. ``tests/test_stagecore.py`` checks every (demand, model)
+up the profits of the products a firm owns. ``tests/models/test_stagecore.py`` checks every (demand, model)
 code against the numpy definitions on random profiles.
 
 Conventions shared with :mod:`sim.models.market`
@@ -18,8 +18,19 @@ Conventions shared with :mod:`sim.models.market`
   ``tick`` or, with continuous prices, ``EFFECTIVE_TICK`` times the choke price
   (:attr:`sim.models.market.MarketSpec.price_step`, read by :func:`effective_tick`). The stage game reports
   only such attainable profiles, so the engine plays them as they are; a deviation profit falls
-  short of the continuous-price supremum by about ``step * D(p)`` (``tests/test_stagecore.py``
+  short of the continuous-price supremum by about ``step * D(p)`` (``tests/models/test_stagecore.py``
   checks this order).
+
+Extension point
+---------------
+Numba kernels cannot call back into Python objects without losing their speed, so the core is
+closed: it evaluates the (demand, mode) pairs of :mod:`sim.models.codes`, each from a code, four
+scalars and one per-product vector. A demand system names the code of each of its pairs in its
+``stage_codes`` table. A new system whose formula is one of these, written with other parameters,
+reuses the code and maps its parameters onto ``scalars`` and ``vector`` in its ``spec``; a new
+formula needs a new code in :mod:`sim.models.codes`, a branch of :func:`evaluate`, and the check of
+``tests/models/test_stagecore.py``. A system without a code still has its whole theory (which is
+plain Python); the simulations refuse it with an error naming it.
 """
 
 from __future__ import annotations
@@ -29,7 +40,7 @@ import math
 import numpy as np
 from numba import njit
 
-from sim.models.demand import (
+from sim.models.codes import (
     CODE_DIFF_BERTRAND,
     CODE_DIFF_COURNOT,
     CODE_ISO_COURNOT,
@@ -40,7 +51,7 @@ from sim.models.demand import (
 __all__ = ["EFFECTIVE_TICK", "MarketArrays", "effective_tick", "evaluate", "market_arrays"]
 
 #: price step of homogeneous Bertrand with continuous prices, relative to the choke price (the value
-#: :attr:`sim.models.market.MarketSpec.price_step` uses; ``tests/test_stagecore.py`` checks they agree)
+#: :attr:`sim.models.market.MarketSpec.price_step` uses; ``tests/models/test_stagecore.py`` checks they agree)
 EFFECTIVE_TICK = 1e-9
 
 _LCP_TOL = 1e-12
@@ -48,6 +59,16 @@ _LCP_TOL = 1e-12
 
 class MarketArrays:
     """The numeric arrays of a market in the layout the kernels take.
+
+    Parameters
+    ----------
+    code : int
+        Stage-core code (:mod:`sim.models.codes`).
+    scalars : array_like of shape (4,)
+    vector, cost, capacity : array_like of shape (n_products,)
+    owner : array_like of int, shape (n_products,)
+    n_firms : int
+    quantity_setting : bool
 
     Attributes
     ----------
@@ -71,12 +92,27 @@ class MarketArrays:
         self.quantity_setting = bool(quantity_setting)
 
     def args(self):
-        """Positional arguments of :func:`evaluate` before the action profile."""
+        """Positional arguments of :func:`evaluate` before the action profile.
+
+        Returns
+        -------
+        tuple
+            ``(code, scalars, vector, cost, capacity, owner, n_firms)``.
+        """
         return (self.code, self.scalars, self.vector, self.cost, self.capacity, self.owner, self.n_firms)
 
 
 def market_owner(ms) -> np.ndarray:
-    """Owner map of a MarketSpec (identity when the spec has no multi-product firms)."""
+    """Owner map of a MarketSpec (identity when the spec has no multi-product firms).
+
+    Parameters
+    ----------
+    ms : MarketSpec
+
+    Returns
+    -------
+    int64 ndarray of shape (n_products,)
+    """
     owner = getattr(ms, "owner", None)
     if owner is None:
         return np.arange(ms.n_firms, dtype=np.int64)
@@ -84,7 +120,19 @@ def market_owner(ms) -> np.ndarray:
 
 
 def market_arrays(ms) -> MarketArrays:
-    """The kernel arrays of a :class:`~sim.models.market.MarketSpec`."""
+    """The kernel arrays of a :class:`~sim.models.market.MarketSpec`.
+
+    The code comes from the demand system (:meth:`~sim.models.demand_spec.DemandSpec.stage_code`): a
+    system the kernels cannot evaluate is refused here, naming it.
+
+    Parameters
+    ----------
+    ms : MarketSpec
+
+    Returns
+    -------
+    MarketArrays
+    """
     return MarketArrays(ms.code, ms.demand.scalars, ms.demand.vector, ms.cost, ms.capacity, market_owner(ms),
                         ms.n_firms, ms.quantity_setting)
 
@@ -92,7 +140,16 @@ def market_arrays(ms) -> MarketArrays:
 def effective_tick(ms) -> float:
     """Price step used to undercut in homogeneous Bertrand: the market's ``tick`` when positive,
     otherwise ``EFFECTIVE_TICK`` times the choke price (the market's own :attr:`price_step`, the one
-    definition the stage game uses)."""
+    definition the stage game uses).
+
+    Parameters
+    ----------
+    ms : MarketSpec
+
+    Returns
+    -------
+    float
+    """
     return float(ms.price_step)
 
 
@@ -100,9 +157,9 @@ def effective_tick(ms) -> float:
 def _lcp(a, b, g, p, q, active, d):
     """Direct demand of the differentiated linear system with ``q >= 0`` for one price profile, by
     Murty's least-index principal pivoting alone (Murty, 1974: one index exchanged per step, which
-    terminates for P-matrices). :func:`sim.models.demand._lcp_demand` solves the same complementarity problem
+    terminates for P-matrices). :func:`sim.models.differentiated._lcp_demand` solves the same complementarity problem
     by block principal pivoting with Murty's rule as its safeguard; the matrix is positive definite, so
-    the solution is unique and both give the same demand (``tests/test_stagecore.py`` compares them).
+    the solution is unique and both give the same demand (``tests/models/test_stagecore.py`` compares them).
     With one profile and a handful of products, the single-exchange rule is simple and fast enough.
     Writes ``q``; ``active`` (1.0 for products in the active set) and ``d`` are scratch. Returns False
     if the pivoting does not terminate."""
@@ -147,7 +204,7 @@ def evaluate(code, scalars, vector, cost, capacity, owner, n_firms, actions, the
     Parameters
     ----------
     code : int
-        (demand, model) code of :mod:`sim.models.demand`.
+        (demand, model) code of :mod:`sim.models.codes`.
     scalars : ndarray of shape (4,)
     vector, cost, capacity : ndarray of shape (n_products,)
     owner : int64 ndarray of shape (n_products,)
@@ -178,73 +235,86 @@ def evaluate(code, scalars, vector, cost, capacity, owner, n_firms, actions, the
     cost about as much as the evaluation itself. Inlining changes no arithmetic.
     """
     n = actions.shape[0]
-    cs = math.nan
-    mprice = 0.0
     for i in range(n_firms):
         profit[i] = 0.0
     if code == CODE_LINEAR_COURNOT or code == CODE_ISO_COURNOT or code == CODE_DIFF_COURNOT:
-        Q = 0.0
+        return _quantity_stage(code, scalars, vector, cost, capacity, owner, n, actions, theta, q, p, profit, want_cs)
+    return _price_stage(code, scalars, vector, cost, owner, n, actions, theta, q, p, profit, work, want_cs)
+
+
+@njit(cache=True, _nrt=False, inline="always")
+def _quantity_stage(code, scalars, vector, cost, capacity, owner, n, actions, theta, q, p, profit, want_cs):
+    """:func:`evaluate` under quantity competition (``profit`` already zeroed)."""
+    cs = math.nan
+    mprice = 0.0
+    Q = 0.0
+    for k in range(n):
+        x = actions[k]
+        if x < 0.0:
+            x = 0.0
+        if x > capacity[k]:
+            x = capacity[k]
+        q[k] = x
+        Q += x
+    if code == CODE_LINEAR_COURNOT:
+        a0 = scalars[0]
+        b = scalars[1]
+        base = a0 - b * Q
+        if base < 0.0:
+            base = 0.0
+        if want_cs:
+            pm = min(base, a0)
+            cs = 0.5 * (a0 - pm) * min(Q, max(0.0, (a0 - pm) / b)) * theta
+        price = base * theta
         for k in range(n):
-            x = actions[k]
-            if x < 0.0:
-                x = 0.0
-            if x > capacity[k]:
-                x = capacity[k]
-            q[k] = x
-            Q += x
-        if code == CODE_LINEAR_COURNOT:
-            a0 = scalars[0]
-            b = scalars[1]
-            base = a0 - b * Q
+            p[k] = price
+        mprice = price
+    elif code == CODE_ISO_COURNOT:
+        A = scalars[0]
+        eps = scalars[1]
+        base = A * Q ** (-1.0 / eps) if Q > 0.0 else np.inf
+        price = base * theta
+        for k in range(n):
+            p[k] = price
+        if want_cs:
+            cs = base * Q / (eps - 1.0) * theta if Q > 0.0 else 0.0
+        mprice = price
+    else:
+        b = scalars[0]
+        g = scalars[1]
+        util = 0.0
+        sq = 0.0
+        for k in range(n):
+            base = vector[k] - b * ((1.0 - g) * q[k] + g * Q)
             if base < 0.0:
                 base = 0.0
-            if want_cs:
-                pm = min(base, a0)
-                cs = 0.5 * (a0 - pm) * min(Q, max(0.0, (a0 - pm) / b)) * theta
-            price = base * theta
+            p[k] = base
+            util += vector[k] * q[k]
+            sq += q[k] * q[k]
+        if want_cs:
+            util -= 0.5 * b * ((1.0 - g) * sq + g * Q * Q)
+            spend = 0.0
             for k in range(n):
-                p[k] = price
-            mprice = price
-        elif code == CODE_ISO_COURNOT:
-            A = scalars[0]
-            eps = scalars[1]
-            base = A * Q ** (-1.0 / eps) if Q > 0.0 else np.inf
-            price = base * theta
-            for k in range(n):
-                p[k] = price
-            if want_cs:
-                cs = base * Q / (eps - 1.0) * theta if Q > 0.0 else 0.0
-            mprice = price
-        else:
-            b = scalars[0]
-            g = scalars[1]
-            util = 0.0
-            sq = 0.0
-            for k in range(n):
-                base = vector[k] - b * ((1.0 - g) * q[k] + g * Q)
-                if base < 0.0:
-                    base = 0.0
-                p[k] = base
-                util += vector[k] * q[k]
-                sq += q[k] * q[k]
-            if want_cs:
-                util -= 0.5 * b * ((1.0 - g) * sq + g * Q * Q)
-                spend = 0.0
-                for k in range(n):
-                    spend += p[k] * q[k]
-                cs = (util - spend) * theta
-            num = 0.0
-            mean = 0.0
-            for k in range(n):
-                p[k] *= theta
-                num += p[k] * q[k]
-                mean += p[k]
-            mprice = num / Q if Q > 0.0 else mean / n
+                spend += p[k] * q[k]
+            cs = (util - spend) * theta
+        num = 0.0
+        mean = 0.0
         for k in range(n):
-            if q[k] > 0.0:
-                profit[owner[k]] += (p[k] - cost[k]) * q[k]
-        return mprice, cs
-    # price competition
+            p[k] *= theta
+            num += p[k] * q[k]
+            mean += p[k]
+        mprice = num / Q if Q > 0.0 else mean / n
+    for k in range(n):
+        if q[k] > 0.0:
+            profit[owner[k]] += (p[k] - cost[k]) * q[k]
+    return mprice, cs
+
+
+@njit(cache=True, _nrt=False, inline="always")
+def _price_stage(code, scalars, vector, cost, owner, n, actions, theta, q, p, profit, work, want_cs):
+    """:func:`evaluate` under price competition (``profit`` already zeroed)."""
+    cs = math.nan
+    mprice = 0.0
     for k in range(n):
         p[k] = actions[k]
     if code == CODE_LINEAR_BERTRAND:
@@ -284,24 +354,7 @@ def evaluate(code, scalars, vector, cost, capacity, owner, n_firms, actions, the
                 spend += p[k] * q[k]
             cs = (util - 0.5 * b * ((1.0 - g) * sq + g * tot * tot) - spend) * theta
     else:  # CODE_LOGIT_BERTRAND
-        a0 = scalars[0]
-        mu = scalars[1]
-        size = scalars[2]
-        u0 = a0 / mu
-        top = u0
-        for k in range(n):
-            u = (vector[k] - p[k]) / mu
-            if u > top:
-                top = u
-        denom = 0.0
-        for k in range(n):
-            q[k] = math.exp((vector[k] - p[k]) / mu - top)
-            denom += q[k]
-        denom += math.exp(u0 - top)
-        for k in range(n):
-            q[k] = size * q[k] / denom
-        if want_cs:
-            cs = size * mu * (top + math.log(denom) - a0 / mu) * theta
+        cs = _logit_demand(scalars, vector, n, p, q, theta, want_cs)
     Qt = 0.0
     num = 0.0
     mean = 0.0
@@ -316,8 +369,50 @@ def evaluate(code, scalars, vector, cost, capacity, owner, n_firms, actions, the
     return mprice, cs
 
 
+@njit(cache=True, _nrt=False, inline="always")
+def _logit_demand(scalars, vector, n, p, q, theta, want_cs):
+    """Logit quantities before the shock into ``q``; returns consumer surplus (already scaled by
+    ``theta``) or nan."""
+    cs = math.nan
+    a0 = scalars[0]
+    mu = scalars[1]
+    size = scalars[2]
+    u0 = a0 / mu
+    top = u0
+    for k in range(n):
+        u = (vector[k] - p[k]) / mu
+        if u > top:
+            top = u
+    denom = 0.0
+    for k in range(n):
+        q[k] = math.exp((vector[k] - p[k]) / mu - top)
+        denom += q[k]
+    denom += math.exp(u0 - top)
+    for k in range(n):
+        q[k] = size * q[k] / denom
+    if want_cs:
+        cs = size * mu * (top + math.log(denom) - a0 / mu) * theta
+    return cs
+
+
 def evaluate_py(arrays: MarketArrays, actions, theta: float = 1.0, want_cs: bool = True):
-    """Convenience wrapper: ``(quantities, prices, firm_profits, market_price, surplus)`` of one profile."""
+    """Evaluate one profile from Python (allocates the outputs of :func:`evaluate`).
+
+    Parameters
+    ----------
+    arrays : MarketArrays
+    actions : array_like of shape (n_products,)
+    theta : float
+        Multiplicative demand shock.
+    want_cs : bool
+        Whether to compute consumer surplus.
+
+    Returns
+    -------
+    quantities, prices : ndarray of shape (n_products,)
+    firm_profits : ndarray of shape (n_firms,)
+    market_price, surplus : float
+    """
     a = np.ascontiguousarray(actions, dtype=np.float64)
     q = np.empty(arrays.n_products)
     p = np.empty(arrays.n_products)

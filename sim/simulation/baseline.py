@@ -167,6 +167,8 @@ def _trigger_price(game, run: dict) -> dict | None:
         return None
     if not (ms.quantity_setting and ms.homogeneous_good and ms.symmetric) or p["punish"] != "nash":
         return None
+    if not ms.demand.provides("price_signal", "price_signal_slope"):  # no price distribution, no prediction
+        return None
     q = lu.levels[0, int(lu.states[0, 0, S.ACTION])]
     if not np.allclose(q, q[0], rtol=0, atol=0):
         return None

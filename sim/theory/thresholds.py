@@ -32,29 +32,38 @@ Partial collusion
     Below the threshold the firms can still sustain a less profitable outcome. Along the path of
     profiles ``a(lambda) = a_N + lambda (a_C - a_N)`` we find the most profitable one each scheme
     sustains at the given ``delta``.
+
+The closed forms and :class:`SchemeThreshold` live in :mod:`sim.theory.schemes`, the stick and carrot in
+:mod:`sim.theory.stick_carrot`; this module gathers them into :func:`critical_discount_factors` and
+re-exports their public names.
 """
 
 from __future__ import annotations
 
 import dataclasses
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize
 
 from sim.core.errors import InputError
-from sim.core.params import Integer, Real
 from sim.models.market import MarketSpec
-from sim.theory.equilibrium import (
-    StageGame,
-    _common_level,
-    best_deviation,
-    best_response,
-    deviation_actions,
-    outcome_of,
-    stage_game,
+from sim.theory.equilibrium import StageGame, best_deviation, deviation_actions, stage_game
+from sim.theory.outcome import outcome_of
+from sim.theory.schemes import (
+    SCHEMES,
+    SchemeThreshold,
+    _check_delta,
+    _check_T,
+    _finite_scalar,
+    _market_level,
+    _none,
+    _scheme,
+    finite_threshold,
+    grim_threshold,
+    threshold_sensitivity,
 )
+from sim.theory.stick_carrot import StickCarrot, stick_and_carrot
 
 __all__ = [
     "PartialCollusion",
@@ -69,308 +78,6 @@ __all__ = [
     "threshold_sensitivity",
 ]
 
-SCHEMES = ("grim", "finite", "stick_carrot")
-_TOL = 1e-12
-
-
-def _check_delta(delta, key="delta"):
-    return Real(0, 1, closed="neither").check(key, delta)
-
-
-def _check_T(T, key="punishment"):
-    return Integer(1, 10_000_000).check(key, T)
-
-
-# --------------------------------------------------------------------------------------------------
-# Closed-form per-firm thresholds (vectorised)
-# --------------------------------------------------------------------------------------------------
-
-
-def grim_threshold(collusive, deviation, nash) -> np.ndarray:
-    """Critical discount factor of grim trigger (Nash reversion forever), elementwise.
-
-    ``(pi_D - pi_C) / (pi_D - pi_N)``. ``nan`` when the firm earns less by colluding than in the
-    punishment (it would rather trigger the punishment than comply, whatever its discount factor) or
-    when deviating pays and collusion pays no more than competition; 0 when neither holds and
-    deviating does not pay.
-    """
-    c, d, n = (np.asarray(x, dtype=float) for x in (collusive, deviation, nash))
-    scale = np.maximum(1.0, np.maximum(np.abs(c), np.abs(d)))
-    gain = d - c
-    loss = c - n
-    tol = _TOL * scale
-    with np.errstate(divide="ignore", invalid="ignore"):
-        out = np.where(
-            loss < -tol, np.nan, np.where(gain <= tol, 0.0, np.where(loss <= tol, np.nan, gain / (gain + loss)))
-        )
-    return out
-
-
-def finite_threshold(collusive, deviation, nash, T: int) -> np.ndarray:
-    """Critical discount factor of T-period Nash reversion, elementwise.
-
-    Solves ``delta + delta^2 + ... + delta^T = K`` with ``K = (pi_D - pi_C) / (pi_C - pi_N)``;
-    ``nan`` when ``K >= T`` (not sustainable at any discount factor below one).
-    """
-    T = _check_T(T)
-    c, d, n = (np.atleast_1d(np.asarray(x, dtype=float)) for x in (collusive, deviation, nash))
-    c, d, n = np.broadcast_arrays(c, d, n)
-    out = np.empty(c.shape)
-    for idx in np.ndindex(c.shape):
-        out[idx] = _finite_scalar(c[idx], d[idx], n[idx], T)
-    return out if np.ndim(collusive) or np.ndim(deviation) or np.ndim(nash) else out[0]
-
-
-def _finite_scalar(c: float, d: float, n: float, T: int) -> float:
-    scale = max(1.0, abs(c), abs(d))
-    gain, loss = d - c, c - n
-    if loss < -_TOL * scale:  # the firm prefers the punishment to complying
-        return math.nan
-    if gain <= _TOL * scale:
-        return 0.0
-    if loss <= _TOL * scale:
-        return math.nan
-    K = gain / loss
-    if K >= T:
-        return math.nan
-    if T == 1:
-        return K
-    # geometric partial sum, written to stay accurate near delta = 1
-    def f(x):
-        return x * (1.0 - x**T) / (1.0 - x) - K if x < 1 else T - K
-
-    return float(optimize.brentq(f, 0.0, 1.0, xtol=1e-16, rtol=1e-15, maxiter=500))
-
-
-def threshold_sensitivity(collusive: float, deviation: float, nash: float, T: int | None = None) -> dict:
-    """How a firm's threshold moves with its three profits (comparative statics).
-
-    Returns the partial derivatives of the threshold with respect to the cheating (deviation),
-    collusive and competitive (Nash) profits, and the matching elasticities. Grim trigger when ``T``
-    is None, T-period reversion otherwise (by implicit differentiation of
-    ``delta + ... + delta^T = K``). The trade's rule of thumb holds: the threshold rises with the
-    cheating and competitive profits and falls with the collusive profit.
-    """
-    c, d, n = float(collusive), float(deviation), float(nash)
-    if T is None:
-        base = float(grim_threshold(c, d, n))
-        if not np.isfinite(base) or base == 0:
-            return {"threshold": _none(base), "d_deviation": None, "d_collusive": None, "d_nash": None}
-        den = (d - n) ** 2
-        grads = {"d_deviation": (c - n) / den, "d_collusive": -1.0 / (d - n), "d_nash": (d - c) / den}
-    else:
-        base = _finite_scalar(c, d, n, T)
-        if not np.isfinite(base) or base == 0:
-            return {"threshold": _none(base), "d_deviation": None, "d_collusive": None, "d_nash": None}
-        dF = sum(t * base ** (t - 1) for t in range(1, T + 1))  # derivative of the partial sum
-        L = c - n
-        dK = {"d_deviation": 1.0 / L, "d_collusive": -(d - n) / L**2, "d_nash": (d - c) / L**2}
-        grads = {k: v / dF for k, v in dK.items()}
-    out = {"threshold": base, **grads}
-    out["elasticity_deviation"] = grads["d_deviation"] * d / base
-    out["elasticity_collusive"] = grads["d_collusive"] * c / base
-    out["elasticity_nash"] = grads["d_nash"] * n / base
-    return out
-
-
-def _none(x):
-    return None if x is None or not np.isfinite(x) else float(x)
-
-
-def _market_level(per_firm: np.ndarray) -> tuple[float, int]:
-    """The market's threshold (the largest; nan if any firm cannot be held) and the binding firm."""
-    if np.any(np.isnan(per_firm)):
-        return math.nan, int(np.flatnonzero(np.isnan(per_firm))[0])
-    k = int(np.argmax(per_firm))
-    return float(per_firm[k]), k
-
-
-@dataclass(frozen=True)
-class SchemeThreshold:
-    """Thresholds of one scheme.
-
-    Attributes
-    ----------
-    scheme : str
-    per_firm : ndarray of shape (n_firms,)
-        ``nan`` where the firm cannot be held below one.
-    market : float
-        Largest per-firm threshold (``nan`` if any firm cannot be held).
-    binding : int
-        Index (0-based) of the binding firm.
-    T : int or None
-        Punishment length for finite reversion.
-    """
-
-    scheme: str
-    per_firm: np.ndarray
-    market: float
-    binding: int
-    T: int | None = None
-
-    @property
-    def sustainable(self) -> bool:
-        return bool(np.isfinite(self.market))
-
-    def sustains(self, delta: float) -> bool:
-        return self.sustainable and delta >= self.market
-
-    def to_dict(self) -> dict:
-        out = {
-            "market": _none(self.market),
-            "per_firm": [_none(x) for x in self.per_firm],
-            "binding_firm": self.binding + 1,
-        }
-        if self.T is not None:
-            out = {"T": self.T, **out}
-        return out
-
-
-def _scheme(name, per_firm, T=None) -> SchemeThreshold:
-    m, k = _market_level(per_firm)
-    return SchemeThreshold(name, per_firm, m, k, T)
-
-
-# --------------------------------------------------------------------------------------------------
-# Stick and carrot
-# --------------------------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True)
-class StickCarrot(SchemeThreshold):
-    """Optimal symmetric two-phase punishment.
-
-    Extra attributes
-    ----------------
-    punishment_level : float
-        The common punishment quantity or price ``x``.
-    punishment_actions : ndarray of shape (n_products,)
-        The punishment profile (``x`` for every product, capped at capacity).
-    punishment_profits, punishment_deviation_profits : ndarray of shape (n_firms,)
-        Profits at the punishment and of the best deviation from it.
-    binding_constraint : str
-        ``"collusion"`` or ``"punishment"`` (which incentive constraint binds the binding firm).
-    weaker_than_grim : bool
-        The best one-period stick needs a higher discount factor than grim trigger (set by
-        :func:`critical_discount_factors`, which knows both).
-    """
-
-    punishment_level: float = math.nan
-    punishment_actions: np.ndarray = field(default_factory=lambda: np.zeros(0))
-    punishment_profits: np.ndarray = field(default_factory=lambda: np.zeros(0))
-    punishment_deviation_profits: np.ndarray = field(default_factory=lambda: np.zeros(0))
-    binding_constraint: str = ""
-    weaker_than_grim: bool = False
-
-    def to_dict(self) -> dict:
-        out = super().to_dict()
-        out.update(
-            weaker_than_grim=self.weaker_than_grim,
-            punishment_action=float(self.punishment_level),
-            punishment_profile=self.punishment_actions.tolist(),
-            punishment_profits=self.punishment_profits.tolist(),
-            punishment_deviation_profits=self.punishment_deviation_profits.tolist(),
-            binding_constraint=self.binding_constraint,
-        )
-        return out
-
-
-def _sc_parts(ms: MarketSpec, xs: np.ndarray, pi_c: np.ndarray, pi_d: np.ndarray):
-    """Per-firm (collusion, punishment) constraint thresholds at each punishment level in ``xs``.
-
-    Returns arrays of shape (len(xs), n_firms); ``inf`` where the punishment is not harsher than
-    collusion."""
-    P = _common_level(ms, xs)
-    pi_p = ms.firm_profits(P)
-    if ms.symmetric:
-        _, v = best_response(ms, 0, P)
-        pi_dp = np.repeat(v[:, None], ms.n_firms, axis=1)
-    else:
-        pi_dp = np.stack([best_response(ms, i, P)[1] for i in range(ms.n_firms)], axis=1)
-    room = pi_c[None, :] - pi_p
-    scale = max(1.0, float(np.abs(pi_c).max()))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        d1 = np.where(room > _TOL * scale, (pi_d - pi_c)[None, :] / room, np.inf)
-        d2 = np.where(room > _TOL * scale, (pi_dp - pi_p) / room, np.inf)
-    d1 = np.maximum(d1, 0.0)
-    d2 = np.maximum(d2, 0.0)
-    return d1, d2, P, pi_p, pi_dp
-
-
-def stick_and_carrot(market, stage: StageGame | None = None, n_grid: int | None = None) -> StickCarrot:
-    """The optimal symmetric two-phase punishment and its critical discount factor.
-
-    Parameters
-    ----------
-    market : Market or MarketSpec
-    stage : StageGame, optional
-        The stage game (solved with the joint-profit agreement if omitted).
-    n_grid : int, optional
-        Points of the coarse search over punishment levels before local refinement (default 161 for
-        symmetric markets, where one best response serves every firm, and 65 otherwise).
-
-    Notes
-    -----
-    The market threshold at level ``x`` is ``max_i max(c1_i(x), c2_i(x))`` where ``c1`` and ``c2``
-    are the collusion and punishment constraints solved for delta. It is minimised over ``x`` by a
-    grid search, Brent's method around the best grid point and, where the two constraints cross at
-    the optimum (the usual case), a root-find of their difference, so that the threshold is exact
-    to about machine precision.
-    """
-    ms = market if isinstance(market, MarketSpec) else market.spec()
-    st = stage if stage is not None else stage_game(ms)
-    pi_c, pi_d = st.collusive.firm_profits, st.deviation_profits
-    if n_grid is None:
-        n_grid = 161 if ms.symmetric else 65
-    _lo, hi = ms.action_bounds()
-    x_lo = 0.0
-    x_hi = float(hi.max())
-    if ms.quantity_setting and ms.demand.kind in ("linear", "differentiated") and np.all(ms.cost > 0):
-        # beyond the choke quantity the price stays at zero and the punishment profit is -c x: harsher
-        # punishments remain available up to where one period of losses outweighs the cheating gain
-        # (a hundred times the choke quantity bounds the search when costs are tiny)
-        x_hi = min(max(x_hi, 2.0 * float(np.max(pi_d - pi_c)) / float(ms.cost.min())), 100.0 * x_hi)
-        x_hi = min(x_hi, float(ms.capacity.max()))
-
-    def F(xs):
-        d1, d2, *_ = _sc_parts(ms, np.atleast_1d(xs), pi_c, pi_d)
-        return d1.max(axis=1), d2.max(axis=1)
-
-    xs = np.linspace(x_lo, x_hi, n_grid)
-    f1, f2 = F(xs)
-    total = np.maximum(f1, f2)
-    k = int(np.argmin(total))
-    if not np.isfinite(total[k]):
-        n = ms.n_firms
-        return StickCarrot("stick_carrot", np.full(n, np.nan), math.nan, 0, None, math.nan,
-                           np.full(n, np.nan), np.full(n, np.nan), np.full(n, np.nan), "")
-    a, b = xs[max(k - 1, 0)], xs[min(k + 1, n_grid - 1)]
-    res = optimize.minimize_scalar(
-        lambda t: min(1e300, float(np.maximum(*F(t))[0])), bounds=(a, b), method="bounded",
-        options={"xatol": 1e-14 * max(1.0, x_hi), "maxiter": 1000},
-    )
-    x_best, v_best = (float(res.x), float(res.fun)) if res.fun <= total[k] else (float(xs[k]), float(total[k]))
-    # exact crossing of the two constraints, when the optimum sits on it
-    g = lambda t: float(F(t)[0][0] - F(t)[1][0])  # noqa: E731
-    h = 1e-6 * max(1.0, x_hi)
-    try:
-        ga, gb = g(max(x_lo, x_best - h)), g(min(x_hi, x_best + h))
-        if np.isfinite(ga) and np.isfinite(gb) and ga * gb < 0:
-            xr = optimize.brentq(g, max(x_lo, x_best - h), min(x_hi, x_best + h), xtol=1e-16, rtol=1e-15)
-            vr = float(np.maximum(*F(xr))[0])
-            if vr <= v_best + 1e-12:
-                x_best, v_best = float(xr), vr
-    except ValueError:
-        pass
-    d1, d2, P, pi_p, pi_dp = _sc_parts(ms, np.array([x_best]), pi_c, pi_d)
-    per_firm = np.maximum(d1[0], d2[0])
-    per_firm = np.where(per_firm >= 1.0, np.nan, per_firm)
-    m, kf = _market_level(per_firm)
-    which = "collusion" if d1[0][kf] >= d2[0][kf] else "punishment"
-    return StickCarrot(
-        "stick_carrot", per_firm, m, kf, None, float(x_best), P[0], pi_p[0], pi_dp[0], which,
-    )
-
 
 # --------------------------------------------------------------------------------------------------
 # Partial collusion
@@ -381,7 +88,7 @@ def stick_and_carrot(market, stage: StageGame | None = None, n_grid: int | None 
 class PartialCollusion:
     """The most profitable outcome on the Nash-to-collusion path that a scheme sustains at ``delta``.
 
-    Attributes
+    Parameters
     ----------
     scheme : str
     delta : float
@@ -403,6 +110,12 @@ class PartialCollusion:
     profit_gain: float
 
     def to_dict(self) -> dict:
+        """The outcome as plain data.
+
+        Returns
+        -------
+        dict
+        """
         out = {"scheme": self.scheme, "delta": self.delta, "weight": self.weight,
                "actions": self.actions.tolist(), "profits": self.profits.tolist(), "profit_gain": self.profit_gain}
         if self.T is not None:
@@ -439,6 +152,10 @@ def partial_collusion(market, delta: float, scheme: str = "grim", T: int | None 
     stage : StageGame, optional
     n_grid : int
         Coarse grid over the path position before bisection on the sustainability boundary.
+
+    Returns
+    -------
+    PartialCollusion
     """
     ms = market if isinstance(market, MarketSpec) else market.spec()
     delta = _check_delta(delta)
@@ -491,7 +208,7 @@ def partial_collusion(market, delta: float, scheme: str = "grim", T: int | None 
 class ThresholdReport:
     """Every threshold of one market, with the stage game it comes from.
 
-    Attributes
+    Parameters
     ----------
     stage : StageGame
     grim : SchemeThreshold
@@ -500,7 +217,7 @@ class ThresholdReport:
     stick_carrot : StickCarrot
     partial : list of PartialCollusion
         One per (delta, scheme) asked for.
-    sensitivity : list of dict
+    sensitivity : dict
         Comparative statics of the binding firm's grim threshold and finite-reversion thresholds.
     """
 
@@ -519,6 +236,12 @@ class ThresholdReport:
         return min(ok, key=lambda c: c.market) if ok else self.grim
 
     def to_dict(self) -> dict:
+        """The stage game, every threshold, partial collusion and sensitivity as plain data.
+
+        Returns
+        -------
+        dict
+        """
         out = self.stage.to_dict()
         out["n_firms"] = self.stage.n_firms
         out["thresholds"] = {
@@ -543,8 +266,16 @@ def critical_discount_factors(market, punishments=(1, 2, 3, 5, 10), deltas=(), a
         Lengths T of finite Nash reversion to report.
     deltas : sequence of float
         Discount factors at which to report partial collusion (every scheme, every T).
-    agreement, actions :
+    agreement : {"joint", "symmetric", "proportional", "given"}
         The collusive outcome (see :func:`sim.theory.equilibrium.collusive_outcome`).
+    actions : array_like of shape (n_products,), optional
+        The agreed actions with ``agreement="given"``.
+    stage : StageGame, optional
+        The stage game, when already solved (``agreement`` and ``actions`` are then not used).
+
+    Returns
+    -------
+    ThresholdReport
     """
     ms = market if isinstance(market, MarketSpec) else market.spec()
     Ts = [_check_T(T, "punishment") for T in punishments]

@@ -62,16 +62,33 @@ def _norm_pdf(u):
 
 
 class Shock:
-    """A mean-one multiplicative shock. ``u`` is the standardised threshold: ``F(z) = Phi(u(z))``."""
+    """A mean-one multiplicative shock. ``u`` is the standardised threshold: ``F(z) = Phi(u(z))``.
+
+    Parameters
+    ----------
+    kind : {"lognormal", "normal"}
+        ``exp(sigma Z - sigma^2/2)`` or ``1 + sigma Z``, ``Z`` standard normal.
+    sigma : float
+        Standard deviation (> 0; at most 1/3 for a normal shock).
+    """
 
     def __init__(self, kind: str, sigma: float):
-
         self.kind = Options(*NOISE_KINDS).check("monitoring.noise", kind)
         # a normal shock 1 + sigma Z must stay (practically) positive, as in the simulation engine
         hi = NORMAL_SIGMA_MAX if self.kind == "normal" else 10.0
         self.sigma = Real(0, hi, closed="right").check("monitoring.sigma", sigma)
 
     def u_of_z(self, z):
+        """The standard normal quantile of the shock level ``z``.
+
+        Parameters
+        ----------
+        z : float or ndarray
+
+        Returns
+        -------
+        ndarray
+        """
         z = np.asarray(z, dtype=float)
         s = self.sigma
         if self.kind == "lognormal":
@@ -80,6 +97,16 @@ class Shock:
         return (z - 1.0) / s
 
     def z_of_u(self, u):
+        """The shock level at the standard normal quantile ``u`` (inverse of :meth:`u_of_z`).
+
+        Parameters
+        ----------
+        u : float or ndarray
+
+        Returns
+        -------
+        ndarray
+        """
         s = self.sigma
         u = np.asarray(u, dtype=float)
         if self.kind == "lognormal":
@@ -87,10 +114,29 @@ class Shock:
         return 1.0 + s * u
 
     def cdf(self, z):
+        """``Pr(theta < z)``.
+
+        Parameters
+        ----------
+        z : float or ndarray
+
+        Returns
+        -------
+        ndarray
+        """
         return _norm_cdf(self.u_of_z(z))
 
     def z_density(self, z):
-        """``z f(z)``, the elasticity term of the probability of a war."""
+        """``z f(z)``, the elasticity term of the probability of a war.
+
+        Parameters
+        ----------
+        z : float or ndarray
+
+        Returns
+        -------
+        ndarray
+        """
         z = np.asarray(z, dtype=float)
         u = self.u_of_z(z)
         if self.kind == "lognormal":
@@ -98,6 +144,17 @@ class Shock:
         return z * _norm_pdf(u) / self.sigma
 
     def sample(self, rng: np.random.Generator, size):
+        """Draws of the shock.
+
+        Parameters
+        ----------
+        rng : numpy.random.Generator
+        size : int or tuple of int
+
+        Returns
+        -------
+        ndarray of shape ``size``
+        """
         s = self.sigma
         zz = rng.standard_normal(size)
         return np.exp(s * zz - 0.5 * s * s) if self.kind == "lognormal" else 1.0 + s * zz
@@ -106,8 +163,19 @@ class Shock:
 def price_war_statistics(beta: float, T: int | None) -> dict:
     """Long-run statistics of a trigger-price scheme with war probability ``beta`` per normal period.
 
-    Returns the expected collusive spell length ``1 / beta``, the expected war length ``T`` and the
-    long-run share of war periods ``beta T / (1 + beta T)`` (1 when wars last forever and beta > 0).
+    Parameters
+    ----------
+    beta : float
+        Probability that a normal period starts a war.
+    T : int or None
+        War length (None: forever).
+
+    Returns
+    -------
+    dict
+        ``war_probability``, ``expected_collusive_spell`` (``1 / beta``), ``war_length`` (``T``) and
+        ``war_share``, the long-run share of war periods ``beta T / (1 + beta T)`` (1 when wars last
+        forever and beta > 0).
     """
     beta = float(beta)
     spell = math.inf if beta <= 0 else 1.0 / beta
@@ -123,7 +191,7 @@ def price_war_statistics(beta: float, T: int | None) -> dict:
 class TriggerPriceScheme:
     """A trigger-price scheme and what it yields.
 
-    Attributes
+    Parameters
     ----------
     quantity : float
         Per-firm output in normal periods.
@@ -167,6 +235,12 @@ class TriggerPriceScheme:
     war_share: float
 
     def to_dict(self) -> dict:
+        """The fields as plain data (None for infinite values).
+
+        Returns
+        -------
+        dict
+        """
         d = dict(self.__dict__)
         for k, v in d.items():
             if isinstance(v, float) and not math.isfinite(v):
@@ -179,8 +253,10 @@ def _check_market(ms: MarketSpec) -> None:
         raise InputError(
             "market.model",
             "the trigger-price equilibrium is defined for quantity competition with a homogeneous good "
-            "(linear or isoelastic demand)",
+            "(such as linear or isoelastic demand)",
         )
+    if not ms.demand.provides("price_signal", "price_signal_slope"):
+        raise ms.demand.missing("the trigger-price equilibrium", "the price distribution")
     if not ms.symmetric:
         raise InputError(
             "market.cost", "the trigger-price equilibrium needs symmetric firms (equal costs and capacities)"
@@ -198,17 +274,11 @@ class _Model:
         self.qm = float(collusive_outcome(ms, "symmetric").actions[0])
 
     def price(self, Q):
-        Q = np.asarray(Q, dtype=float)
-        d = self.ms.demand
-        if d.kind == "linear":
-            return np.maximum(0.0, d.scalars[0] - d.scalars[1] * Q)
-        return d.scalars[0] * np.power(Q, -1.0 / d.scalars[1])
+        # the observed price is theta * P(Q): the demand system's price signal before the shock
+        return self.ms.demand.price_signal(Q)
 
     def dprice(self, Q):
-        d = self.ms.demand
-        if d.kind == "linear":
-            return np.where(d.scalars[0] - d.scalars[1] * Q > 0, -d.scalars[1], 0.0)
-        return -d.scalars[0] / d.scalars[1] * np.power(Q, -1.0 / d.scalars[1] - 1.0)
+        return self.ms.demand.price_signal_slope(Q)
 
     def profit_i(self, qi, q):
         Q = qi + (self.n - 1) * q
@@ -271,7 +341,28 @@ class _Model:
 def trigger_price_scheme(market, quantity: float, trigger: float, T: int | None, delta: float,
                          noise: str = "lognormal", sigma: float = 0.1, n_check: int = 801) -> TriggerPriceScheme:
     """Evaluate a given trigger-price scheme: its value, war probability, long-run statistics and
-    whether it is an equilibrium (global check of one-period output changes on a grid)."""
+    whether it is an equilibrium (global check of one-period output changes on a grid).
+
+    Parameters
+    ----------
+    market : Market or MarketSpec
+        Symmetric firms, quantity competition, homogeneous good.
+    quantity : float
+        Per-firm output in normal periods (> 0).
+    trigger : float
+        Trigger price (>= 0).
+    T : int or None
+        War length (None: forever).
+    delta : float in (0, 1)
+    noise : {"lognormal", "normal"}
+    sigma : float
+    n_check : int
+        Points of the grid of one-period output changes.
+
+    Returns
+    -------
+    TriggerPriceScheme
+    """
     ms = market if isinstance(market, MarketSpec) else market.spec()
     _check_market(ms)
     delta = Real(0, 1, closed="neither").check("run.delta", delta)
@@ -323,6 +414,8 @@ def trigger_price_equilibrium(market, delta: float, noise: str = "lognormal", si
     sigma : float > 0
     T : int, None or "best"
         War length; None means wars last forever; "best" searches ``1..T_max`` and forever.
+    T_max : int
+        Longest finite war searched with ``T="best"``.
     n_q : int
         Grid over per-firm output between the best symmetric collusive quantity and static Nash.
 

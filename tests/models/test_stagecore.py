@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 
 from sim import DifferentiatedDemand, IsoelasticDemand, LinearDemand, LogitDemand, Market
-from sim.models.demand import (
+from sim.models.codes import (
     CODE_DIFF_BERTRAND,
     CODE_DIFF_COURNOT,
     CODE_ISO_COURNOT,

@@ -63,6 +63,8 @@ def _prepare_thresholds(doc: dict) -> dict:
     if trigger and not (ms.quantity_setting and ms.homogeneous_good and ms.symmetric):
         raise InputError("monitoring.signal", "the trigger-price equilibrium needs a symmetric homogeneous-good "
                                               "Cournot market; use signal = 'perfect' here")
+    if trigger and not ms.demand.provides("price_signal", "price_signal_slope"):
+        raise ms.demand.missing("the trigger-price equilibrium", "the price distribution")
     # the stage game checks the agreement (given actions: their number and range) before any work starts
     stage_of(ms, doc["market"], agreement, actions)
     spec = ThresholdsSpec(market, agreement, actions, tuple(Ts), tuple(ds), mon["noise"] if trigger else None,

@@ -1,0 +1,298 @@
+"""Constant-elasticity demand for a homogeneous good: ``P(Q) = scale * Q**(-1/elasticity)``.
+
+Quantity competition only. With ``n`` active firms and costs ``c_i`` the Cournot equilibrium satisfies
+the Lerner condition ``(P - c_i) / P = s_i / elasticity``, so ``P = sum_active c / (k - 1/elasticity)``.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import optimize
+
+from sim.core.errors import InputError
+from sim.core.params import Real
+from sim.models.codes import CODE_ISO_COURNOT
+from sim.models.demand_base import MAX_MAGNITUDE, Demand
+from sim.models.demand_spec import DemandSpec, profit_with
+
+__all__ = ["IsoelasticDemand", "IsoelasticDemandSpec"]
+
+
+class IsoelasticDemand(Demand):
+    """Constant-elasticity demand for a homogeneous good: ``P(Q) = scale * Q**(-1/elasticity)``.
+
+    Parameters
+    ----------
+    scale : float
+        Price at ``Q = 1`` (> 0).
+    elasticity : float
+        Absolute price elasticity of demand, > 1 (the joint-profit maximum does not exist otherwise).
+    """
+
+    models = ("cournot",)
+    name = "isoelastic"
+    homogeneous = True
+    _constraints = {
+        "scale": Real(0, MAX_MAGNITUDE, closed="right"),
+        "elasticity": Real(1, 100, closed="right"),
+    }
+
+    def __init__(self, scale=1.0, elasticity=2.0):
+        self.scale = scale
+        self.elasticity = elasticity
+
+    def spec(self, n_firms, prefix="market"):
+        """Validate the parameters for ``n_firms`` firms.
+
+        Parameters
+        ----------
+        n_firms : int
+        prefix : str
+            Key path of the market in error messages.
+
+        Returns
+        -------
+        IsoelasticDemandSpec
+            ``scalars = (scale, elasticity, 0, 0)``, ``vector`` ones.
+        """
+        if isinstance(self.elasticity, int | float) and not isinstance(self.elasticity, bool):
+            if self.elasticity < 0:
+                raise InputError(
+                    f"{prefix}.elasticity",
+                    f"give the absolute value of the price elasticity (a number > 1), got {self.elasticity!r}",
+                )
+        p = self._check_params(prefix, n_firms)
+        return IsoelasticDemandSpec(type(self), np.array([p["scale"], p["elasticity"], 0.0, 0.0]), np.ones(n_firms))
+
+
+class IsoelasticDemandSpec(DemandSpec):
+    """Numeric constant-elasticity demand (see :class:`IsoelasticDemand`).
+
+    Parameters
+    ----------
+    demand_type : type
+        The parameter class it comes from.
+    scalars : ndarray of shape (4,)
+    vector : ndarray of shape (n_products,)
+        In the layout of its stage-core codes (see :meth:`IsoelasticDemand.spec`).
+    """
+
+    stage_codes = {"cournot": CODE_ISO_COURNOT}
+
+    def check_market(self, model, cost, prefix):
+        """Positive costs of at least a millionth of the scale.
+
+        Parameters
+        ----------
+        model : {"cournot"}
+        cost : ndarray of shape (n_products,)
+        prefix : str
+        """
+        key = f"{prefix}.cost"
+        bad = np.flatnonzero(cost <= 0)
+        if bad.size:
+            raise InputError(key, f"isoelastic demand needs positive costs, firm {bad[0] + 1} has {cost[bad[0]]:g}")
+        # with a tiny cost relative to the demand scale the monopoly output (scale/cost)^elasticity
+        # overflows; a millionth of the scale is far below any calibrated market
+        low = np.flatnonzero(cost < 1e-6 * self.scalars[0])
+        if low.size:
+            raise InputError(key, f"isoelastic demand needs costs of at least 1e-6 of the scale "
+                                  f"({1e-6 * self.scalars[0]:g}); firm {low[0] + 1} has {cost[low[0]]:g}")
+
+    def inverse_demand(self, q):
+        """The common price ``scale * Q^(-1/elasticity)`` (infinite at ``Q = 0``).
+
+        Parameters
+        ----------
+        q : array_like of shape (..., n_products)
+
+        Returns
+        -------
+        ndarray of shape (..., n_products)
+        """
+        q = np.asarray(q, dtype=float)
+        A, eps = self.scalars[0], self.scalars[1]
+        Q = q.sum(axis=-1, keepdims=True)
+        with np.errstate(divide="ignore"):
+            p = np.where(Q > 0, A * np.power(np.where(Q > 0, Q, 1.0), -1.0 / eps), np.inf)
+        return np.broadcast_to(p, q.shape).copy()
+
+    def consumer_surplus(self, q, p):
+        """``P Q / (elasticity - 1)``, finite because the elasticity exceeds one.
+
+        Parameters
+        ----------
+        q, p : array_like of shape (..., n_products)
+
+        Returns
+        -------
+        ndarray of shape (...,)
+        """
+        q = np.asarray(q, dtype=float)
+        p = np.asarray(p, dtype=float)
+        eps = self.scalars[1]
+        Q = q.sum(axis=-1)
+        P = np.where(Q > 0, p[..., 0], 0.0)
+        return np.where(Q > 0, P * Q / (eps - 1.0), 0.0)
+
+    def price_signal(self, Q):
+        """``scale * Q^(-1/elasticity)``.
+
+        Parameters
+        ----------
+        Q : float or ndarray
+
+        Returns
+        -------
+        ndarray
+        """
+        Q = np.asarray(Q, dtype=float)
+        return self.scalars[0] * np.power(Q, -1.0 / self.scalars[1])
+
+    def price_signal_slope(self, Q):
+        """``-(scale / elasticity) Q^(-1/elasticity - 1)``.
+
+        Parameters
+        ----------
+        Q : float or ndarray
+
+        Returns
+        -------
+        ndarray
+        """
+        return -self.scalars[0] / self.scalars[1] * np.power(Q, -1.0 / self.scalars[1] - 1.0)
+
+    def action_upper(self, ms):
+        """The total quantity beyond which the price falls below the lowest cost.
+
+        Parameters
+        ----------
+        ms : MarketSpec
+
+        Returns
+        -------
+        ndarray of shape (n_products,)
+        """
+        A, eps = self.scalars[0], self.scalars[1]
+        return np.full(ms.n_products, (A / ms.cost.min()) ** eps)
+
+    def flooding_quantity(self, ms, hi):
+        """Infinite: the price tends to zero as the rivals' output grows, but never reaches it.
+
+        Parameters
+        ----------
+        ms : MarketSpec
+        hi : ndarray of shape (n_products,)
+
+        Returns
+        -------
+        float
+        """
+        return math.inf
+
+    def best_response(self, ms, i, A):
+        """Root of the first-order condition ``P(Q) (1 - q / (elasticity Q)) = c_i`` in each row.
+
+        Parameters
+        ----------
+        ms : MarketSpec
+        i : int
+        A : ndarray of shape (n_rows, n_products)
+
+        Returns
+        -------
+        tuple of ndarray of shape (n_rows,)
+        """
+        x = np.array([self._response(ms, i, row) for row in A])
+        return x, profit_with(ms, i, A, x)
+
+    def _response(self, ms, i, row):
+        A, eps = self.scalars[0], self.scalars[1]
+        c = ms.cost[i]
+        R = float(np.clip(row, 0, ms.capacity).sum() - min(max(row[i], 0.0), ms.capacity[i]))
+        if R <= 0:
+            q = (A * (1 - 1 / eps) / c) ** eps
+            return float(min(q, ms.capacity[i]))
+        if A * R ** (-1 / eps) <= c:
+            return 0.0
+
+        def g(q):
+            Q = q + R
+            return A * Q ** (-1 / eps) * (1 - q / (eps * Q)) - c
+
+        hi = (A / c) ** eps - R
+        if hi <= 0.0 or g(hi) >= 0.0:
+            # the rivals' output already drives the price to the firm's cost (to rounding): it sells nothing
+            return 0.0
+        q = optimize.brentq(g, 0.0, hi, xtol=1e-15 * max(1.0, hi), rtol=1e-15, maxiter=500)
+        return float(min(q, ms.capacity[i]))
+
+    def nash_start(self, ms):
+        """The Lerner solution on the active set, dropping firms whose cost exceeds the price.
+
+        Parameters
+        ----------
+        ms : MarketSpec
+
+        Returns
+        -------
+        ndarray of shape (n_products,)
+        """
+        n, c = ms.n_products, ms.cost
+        A, eps = self.scalars[0], self.scalars[1]
+        active = np.ones(n, bool)
+        for _ in range(n):
+            k = active.sum()
+            P = c[active].sum() / (k - 1 / eps)
+            s = np.where(active, eps * (1 - c / P), 0.0)
+            if (s[active] > 0).all():
+                break
+            active &= s > 0
+        Q = (A / P) ** eps
+        return np.clip(s * Q, 0, ms.capacity)
+
+    def marginal_revenue(self, Q):
+        """``scale * Q^(-1/elasticity) (1 - 1/elasticity)`` (infinite at zero).
+
+        Parameters
+        ----------
+        Q : float
+
+        Returns
+        -------
+        float
+        """
+        A, eps = self.scalars[0], self.scalars[1]
+        return A * Q ** (-1 / eps) * (1 - 1 / eps) if Q > 0 else np.inf
+
+    def quantity_at_marginal_revenue(self, m):
+        """``(scale (1 - 1/elasticity) / m)^elasticity``.
+
+        Parameters
+        ----------
+        m : float
+
+        Returns
+        -------
+        float
+        """
+        A, eps = self.scalars[0], self.scalars[1]
+        return (A * (1 - 1 / eps) / m) ** eps
+
+    def joint_gradient(self, ms, a, q, p):
+        """``P (1 - 1/elasticity) - c``: the marginal revenue less the marginal cost.
+
+        Parameters
+        ----------
+        ms : MarketSpec
+        a, q, p : ndarray of shape (n_products,)
+
+        Returns
+        -------
+        ndarray of shape (n_products,)
+        """
+        return p[0] * (1 - 1 / self.scalars[1]) - ms.cost
+
+
