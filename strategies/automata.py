@@ -31,7 +31,8 @@ from __future__ import annotations
 
 from sim.core.errors import InputError
 from sim.core.params import Integer, Options, Real, optional
-from strategies.base import Automaton, Either, Level, StateTableConstraint
+from strategies.base import Automaton
+from strategies.table import Either, Level, StateTableConstraint
 
 __all__ = [
     "AlwaysCollude",
@@ -84,7 +85,10 @@ class FinitePunishment(Automaton):
     ----------
     length : int >= 1
         Punishment length T.
-    collude, punish : level
+    collude : level
+        Level played while colluding (default ``"collusive"``).
+    punish : level
+        Level played during the punishment (default ``"nash"``).
     """
 
     name = "finite_punishment"
@@ -111,7 +115,10 @@ class TitForTat(Automaton):
     ----------
     forgiveness : float in [0, 1]
         Probability of forgiving an observed defection (colluding anyway). 0 is strict tit for tat.
-    collude, punish : level
+    collude : level
+        Level played after rivals colluded (default ``"collusive"``).
+    punish : level
+        Level played after a rival defected (default ``"nash"``).
     """
 
     name = "tit_for_tat"
@@ -135,7 +142,17 @@ class TitForTat(Automaton):
 
 
 class ForgivingTitForTat(TitForTat):
-    """Tit for tat that forgives an observed defection with probability ``forgiveness`` (> 0)."""
+    """Tit for tat that forgives an observed defection with probability ``forgiveness`` (> 0).
+
+    Parameters
+    ----------
+    forgiveness : float in (0, 1]
+        Probability of forgiving an observed defection.
+    collude : level
+        Level played after rivals colluded (or after forgiving).
+    punish : level
+        Level played after a defection that is not forgiven.
+    """
 
     name = "forgiving_tit_for_tat"
     summary = "tit for tat, forgiving a defection with probability g"
@@ -156,8 +173,10 @@ class WinStayLoseShift(Automaton):
         Per-period profit the firm is content with. Default: halfway between the firm's static-Nash
         and collusive profits, so that mutual collusion and a successful deviation are wins and mutual
         competition and being cheated are losses.
-    collude, punish : level
-        The two conducts.
+    collude : level
+        The cooperative conduct.
+    punish : level
+        The competitive conduct.
     start : {"collude", "punish"}
         Conduct in the first period.
     """
@@ -203,6 +222,7 @@ class StickAndCarrot(Automaton):
     Parameters
     ----------
     collude : level
+        Level played while colluding.
     punish : level
         Default ``"punishment"`` (the stick-and-carrot level).
     """
@@ -236,6 +256,7 @@ class TriggerPrice(Automaton):
     collude : level
         Normal-period level (in the Green-Porter model a common quantity, often given as a number).
     punish : level
+        Level played during a price war (default ``"nash"``).
     """
 
     name = "trigger_price"
@@ -262,7 +283,13 @@ class TriggerPrice(Automaton):
 
 
 class AlwaysCompete(Automaton):
-    """Plays ``action`` (default the static Nash level) every period."""
+    """Plays ``action`` (default the static Nash level) every period.
+
+    Parameters
+    ----------
+    action : level
+        The level played (default ``"nash"``); its state never counts as colluding.
+    """
 
     name = "always_compete"
     summary = "static Nash every period"
@@ -277,7 +304,13 @@ class AlwaysCompete(Automaton):
 
 
 class AlwaysCollude(Automaton):
-    """Plays ``action`` (default the collusive level) every period, whatever the others do."""
+    """Plays ``action`` (default the collusive level) every period, whatever the others do.
+
+    Parameters
+    ----------
+    action : level
+        The level played (default ``"collusive"``); its state counts as colluding.
+    """
 
     name = "always_collude"
     summary = "the collusive level every period"
@@ -302,10 +335,15 @@ class Opportunist(Automaton):
     Parameters
     ----------
     probability : float in [0, 1]
+        Probability per period of cheating.
     start : int >= 0
         First period (0-based) in which it may cheat.
     after : {"nash", "collude"}
-    collude, punish : level
+        What it does after a deviation: Nash forever, or keep colluding (and cheating).
+    collude : level
+        Level played while colluding.
+    punish : level
+        Level played after a deviation with ``after = "nash"``.
     cheat_action : level
         Level played when cheating (default ``"deviation"``, the best one-shot deviation).
     """
@@ -346,6 +384,7 @@ class TableAutomaton(Automaton):
         State name -> state keys (``action``, ``watch``, ``good``, ``bad``, ...). The first state is the
         initial one unless ``initial`` says otherwise.
     initial : str, optional
+        Name of the initial state.
     collude : level
         Level whose states count as colluding unless a state says ``collusive = true/false``.
     cheat_action : level
@@ -377,10 +416,29 @@ class TableAutomaton(Automaton):
     # the constructor names ``states`` and ``initial`` collide with the method names of the base class,
     # so the values live under other attribute names
     def get_params(self):
+        """Constructor arguments as a dict (values as stored, not validated).
+
+        Returns
+        -------
+        dict
+            ``states``, ``initial``, ``collude``, ``cheat_action`` and ``start``.
+        """
         return {"states": self.states_table, "initial": self.initial_state, "collude": self.collude,
                 "cheat_action": self.cheat_action, "start": self.start}
 
     def set_params(self, **params):
+        """Set constructor arguments in place; an unknown name raises :class:`InputError`.
+
+        Parameters
+        ----------
+        **params
+            Constructor arguments by name.
+
+        Returns
+        -------
+        TableAutomaton
+            The strategy itself.
+        """
         names = self._param_names()
         for k, v in params.items():
             if k not in names:

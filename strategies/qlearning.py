@@ -104,6 +104,17 @@ def published_grid(nash: float, collusive: float, m: int, xi: float) -> np.ndarr
     larger of the static-Nash and the collusive action. Negative points are raised to zero (a price
     or a quantity cannot be negative).
 
+    Parameters
+    ----------
+    nash : float
+        The firm's static-Nash action.
+    collusive : float
+        The firm's collusive action.
+    m : int
+        Number of grid points.
+    xi : float
+        Widening beyond the two actions, as a share of the distance between them.
+
     Returns
     -------
     grid : ndarray of shape (m,)
@@ -117,13 +128,18 @@ def published_grid(nash: float, collusive: float, m: int, xi: float) -> np.ndarr
 class CompiledLearner:
     """A learner resolved against a market: what the kernel needs.
 
-    Attributes
+    Parameters
     ----------
     grid : ndarray of shape (m,)
         The actions (prices or quantities), increasing.
     k : int
         Memory: the state is the action profile of the last ``k`` periods.
-    alpha, beta, delta : float
+    alpha : float
+        Learning rate.
+    beta : float
+        Exploration decay.
+    delta : float
+        The learner's discount factor.
     init : str or ndarray
         ``"uniform"``, ``"zeros"``, or the given array (checked against the line-up's state count by
         the learning driver).
@@ -138,10 +154,17 @@ class CompiledLearner:
 
     @property
     def m(self) -> int:
+        """Number of actions."""
         return int(self.grid.size)
 
     def to_dict(self) -> dict:
-        """Plain description (the grid as a list; a given initial array as ``"given"``)."""
+        """Plain description (the grid as a list; a given initial array as ``"given"``).
+
+        Returns
+        -------
+        dict
+            ``alpha``, ``beta``, ``delta``, ``k``, ``m``, ``init`` and ``grid``.
+        """
         return {"alpha": self.alpha, "beta": self.beta, "delta": self.delta, "k": self.k, "m": self.m,
                 "init": self.init if isinstance(self.init, str) else "given", "grid": self.grid.tolist()}
 
@@ -208,8 +231,18 @@ class QLearner(Parametrized):
     def spec(self, n_firms: int | None = None, prefix: str = "") -> dict[str, Any]:
         """Validate every parameter; return the normalised values (``m`` filled in).
 
-        ``n_firms`` is accepted for the interface shared with the other parametrised classes and
-        not used: a learner's parameters do not depend on the number of firms.
+        Parameters
+        ----------
+        n_firms : int, optional
+            Accepted for the interface shared with the other parametrised classes and not used: a
+            learner's parameters do not depend on the number of firms.
+        prefix : str
+            Key path of the learner, for error messages.
+
+        Returns
+        -------
+        dict
+            The validated parameters, ``m`` filled in.
 
         Raises
         ------

@@ -46,13 +46,38 @@ class Constraint:
     """Base class: ``check(key, value)`` returns the normalised value or raises InputError."""
 
     def check(self, key: str, value: Any) -> Any:  # pragma: no cover - interface
+        """The value, normalised, or an :class:`InputError` naming ``key``.
+
+        Parameters
+        ----------
+        key : str
+            Key path of the value, for the error message (e.g. ``strategies[2].length``).
+        value : object
+            The value as given.
+
+        Returns
+        -------
+        object
+            The normalised value.
+        """
         raise NotImplementedError
 
     def describe(self) -> str:  # pragma: no cover - interface
+        """What the constraint allows, in words (for error messages).
+
+        Returns
+        -------
+        str
+        """
         raise NotImplementedError
 
     def example_bad(self) -> Any:
-        """A value this constraint must refuse (used by the common parameter test)."""
+        """A value this constraint must refuse (used by the common parameter test).
+
+        Returns
+        -------
+        object
+        """
         return "not-a-valid-value"
 
 
