@@ -327,9 +327,9 @@ def _start_replication(state, psum, dsum, tally, firms):
 
 
 @njit(cache=True, inline="always")
-def _choose_levels(t, state, lev, cheated, lineup, rng, tally):
+def _choose_levels(t, state, lev, cheated, states, probs, firms, rng, tally):
     for i in range(state.shape[0]):
-        level, ch = choose_level(i, state[i], t, lineup.states, lineup.probs, lineup.firms, rng)
+        level, ch = choose_level(i, state[i], t, states, probs, firms, rng)
         lev[i] = level
         cheated[i] = ch
         if ch:
@@ -347,18 +347,18 @@ def _tremble(trembled, error, rng, tally):
 
 
 @njit(cache=True, inline="always")
-def _set_actions(actions, owner, lev, trembled, lineup):
+def _set_actions(actions, owner, lev, trembled, levels, tremble):
     for k in range(actions.shape[0]):
         i = owner[k]
-        actions[k] = lineup.tremble[k] if trembled[i] else lineup.levels[i, lev[i], k]
+        actions[k] = tremble[k] if trembled[i] else levels[i, lev[i], k]
 
 
 @njit(cache=True, inline="always")
-def _demand_shock(rng, monitoring, half_var):
-    if monitoring.noise_code == 1:
-        return math.exp(monitoring.sigma * next_normal_zig(rng) - half_var)
-    if monitoring.noise_code == 2:
-        theta = 1.0 + monitoring.sigma * next_normal_zig(rng)
+def _demand_shock(rng, noise_code, sigma, half_var):
+    if noise_code == 1:
+        return math.exp(sigma * next_normal_zig(rng) - half_var)
+    if noise_code == 2:
+        theta = 1.0 + sigma * next_normal_zig(rng)
         if theta < 0.0:
             theta = 0.0
         return theta
@@ -402,12 +402,14 @@ def _record_path(paths, g, t, actions, p, mp, theta, cs, profit, state, cheated,
 
 
 @njit(cache=True, inline="always")
-def _update_states(state, new_state, actions, mp, profit, market, lineup, perception_error, rng):
+def _update_states(state, new_state, actions, owner, mp, profit, perception_error, states, probs, levels,
+                   quantity_setting, rng):
     # signals and transitions, all from the states at the start of the period
-    for i in range(state.shape[0]):
-        bad = bad_signal(i, state[i], market.n_firms, actions, market.owner, mp, profit[i], perception_error,
-                         lineup.states, lineup.probs, lineup.levels, market.quantity_setting, rng)
-        new_state[i] = next_state(i, state[i], bad, lineup.states, lineup.probs, rng)
+    n_firms = state.shape[0]
+    for i in range(n_firms):
+        bad = bad_signal(i, state[i], n_firms, actions, owner, mp, profit[i], perception_error, states, probs, levels,
+                         quantity_setting, rng)
+        new_state[i] = next_state(i, state[i], bad, states, probs, rng)
     for i in range(state.shape[0]):
         state[i] = new_state[i]
 
@@ -518,35 +520,43 @@ def play_chunk(c, batch, market, lineup, monitoring, run, totals, paths):
         ``STATUS_OK``, or ``STATUS_EVALUATION_FAILED`` when the stage game could not be evaluated (the
         chunk stops there).
     """
-    half_var = 0.5 * monitoring.sigma * monitoring.sigma
+    # the groups' arrays as locals, taken once per chunk: every access through a tuple would take and
+    # release a reference to the array inside the period loop
+    chunk_start, rng_states, first = batch
+    code, scalars, vector, cost, capacity, owner, n_firms, quantity_setting = market
+    states, probs, firms, levels, tremble = lineup
+    noise_code, sigma, perception_error, implementation_error = monitoring
+    n_periods, delta, random_horizon, continuation, n_paths = run
+    hist, by_period = totals.hist, totals.by_period
+    half_var = 0.5 * sigma * sigma
     (state, new_state, lev, cheated, trembled, actions, q, p, profit, work, psum, dsum,
-     tally) = _scratch(market.n_firms, market.owner.shape[0])
-    for r in range(batch.chunk_start[c], batch.chunk_start[c + 1]):
-        rng = batch.rng_states[r]
-        g = batch.first + r
-        H = horizon_length(rng, run.n_periods, run.random_horizon, run.continuation)
-        _start_replication(state, psum, dsum, tally, lineup.firms)
+     tally) = _scratch(n_firms, owner.shape[0])
+    for r in range(chunk_start[c], chunk_start[c + 1]):
+        rng = rng_states[r]
+        g = first + r
+        H = horizon_length(rng, n_periods, random_horizon, continuation)
+        _start_replication(state, psum, dsum, tally, firms)
         disc = 1.0
         price_sum = 0.0
         cs_sum = 0.0
         for t in range(H):
-            _choose_levels(t, state, lev, cheated, lineup, rng, tally)
-            _tremble(trembled, monitoring.implementation_error, rng, tally)
-            _set_actions(actions, market.owner, lev, trembled, lineup)
-            theta = _demand_shock(rng, monitoring, half_var)
-            mp, cs = evaluate(market.code, market.scalars, market.vector, market.cost, market.capacity, market.owner,
-                              market.n_firms, actions, theta, q, p, profit, work, True)
+            _choose_levels(t, state, lev, cheated, states, probs, firms, rng, tally)
+            _tremble(trembled, implementation_error, rng, tally)
+            _set_actions(actions, owner, lev, trembled, levels, tremble)
+            theta = _demand_shock(rng, noise_code, sigma, half_var)
+            mp, cs = evaluate(code, scalars, vector, cost, capacity, owner, n_firms, actions, theta, q, p, profit, work,
+                              True)
             if mp != mp:
                 return STATUS_EVALUATION_FAILED
-            all_c, punishing = _collusion(state, cheated, trembled, lineup.states)
-            if g < run.n_paths:
-                _record_path(paths, g, t, actions, p, mp, theta, cs, profit, state, cheated, trembled, lineup.states,
-                             all_c)
-            _update_states(state, new_state, actions, mp, profit, market, lineup, monitoring.perception_error, rng)
-            disc = _add_profits(psum, dsum, profit, disc, run.delta)
+            all_c, punishing = _collusion(state, cheated, trembled, states)
+            if g < n_paths:
+                _record_path(paths, g, t, actions, p, mp, theta, cs, profit, state, cheated, trembled, states, all_c)
+            _update_states(state, new_state, actions, owner, mp, profit, perception_error, states, probs, levels,
+                           quantity_setting, rng)
+            disc = _add_profits(psum, dsum, profit, disc, delta)
             price_sum += mp
             cs_sum += cs
-            _count_period(tally, totals.hist, totals.by_period, c, t, all_c, punishing)
+            _count_period(tally, hist, by_period, c, t, all_c, punishing)
         _store_replication(totals, c, r, tally, psum, dsum, price_sum, cs_sum)
     return STATUS_OK
 

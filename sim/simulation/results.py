@@ -294,7 +294,6 @@ def summarize(raw, game, run: dict, confidence: float = 0.95, baseline: bool = T
     SimulationResult
     """
 
-    n = game.n_firms
     ints = raw.ints
     periods = ints[:, K.R_PERIODS].astype(float)
     # the profiles the line-up plays (for homogeneous Bertrand with continuous prices they undercut
@@ -303,40 +302,9 @@ def summarize(raw, game, run: dict, confidence: float = 0.95, baseline: bool = T
     coll_a = np.asarray(game.levels.profiles["collusive"], dtype=float)
     _, _, pi_n, p_n, cs_n = evaluate_py(game.arrays, nash_a)
     _, _, pi_c, p_c, cs_c = evaluate_py(game.arrays, coll_a)
-    metrics = {}
-    metrics["collusive_share"] = ratio_estimate(ints[:, K.R_COLLUSIVE], periods, confidence)
-    metrics["war_share"] = ratio_estimate(ints[:, K.R_WAR_PERIODS], periods, confidence)
-    metrics["wars_per_replication"] = mean_estimate(ints[:, K.R_WARS], confidence)
-    metrics["war_frequency"] = ratio_estimate(ints[:, K.R_WARS], periods, confidence)
-    # a spell or war cut off by the horizon after l periods is known to last at least l periods, i.e.
-    # to outlive l - 1: it is censored at l - 1 (counting it at risk at l would bias the curve upward)
-    spells = kaplan_meier(raw.hist[K.H_SPELL_ENDED], _cut_off(raw.hist[K.H_SPELL_CENSORED]), confidence)
-    wars = kaplan_meier(raw.hist[K.H_WAR_ENDED], _cut_off(raw.hist[K.H_WAR_CENSORED]), confidence)
-    fb = ints[:, K.R_FIRST_BREAKDOWN]
-    ended = np.bincount(fb[fb > 0], minlength=run["periods"] + 1)[: run["periods"] + 1]
-    cens = np.bincount(ints[fb == 0, K.R_PERIODS], minlength=run["periods"] + 1)[: run["periods"] + 1]
-    breakdown = kaplan_meier(ended, cens, confidence, restrict=run["periods"])
-    punishments = kaplan_meier(raw.hist[K.H_PUNISH_ENDED], _cut_off(raw.hist[K.H_PUNISH_CENSORED]), confidence)
-    metrics["spell_length"] = spells.mean
-    metrics["war_length"] = wars.mean
-    metrics["first_breakdown"] = breakdown.mean
-    metrics["broken_down"] = wilson_estimate(int((fb > 0).sum()), fb.shape[0], confidence)
-    metrics["price"] = ratio_estimate(raw.flts[:, K.F_PRICE_SUM], periods, confidence)
-    metrics["overcharge"] = metrics["price"].affine(-1.0, 1.0 / p_n) if p_n > 0 else _nan_est("price")
-    metrics["consumer_surplus"] = ratio_estimate(raw.flts[:, K.F_CS_SUM], periods, confidence)
-    joint = raw.profit_sum.sum(axis=1)
-    metrics["joint_profit"] = ratio_estimate(joint, periods, confidence)
-    jn, jc = float(pi_n.sum()), float(pi_c.sum())
-    metrics["profit_gain"] = (metrics["joint_profit"].affine(-jn / (jc - jn), 1.0 / (jc - jn))
-                              if jc > jn else _nan_est("ratio"))
-    firm = {"profit": [], "discounted_profit": [], "profit_gain": []}
-    for i in range(n):
-        e = ratio_estimate(raw.profit_sum[:, i], periods, confidence)
-        firm["profit"].append(e)
-        firm["discounted_profit"].append(mean_estimate(raw.disc[:, i], confidence))
-        gap = float(pi_c[i] - pi_n[i])
-        firm["profit_gain"].append(e.affine(-float(pi_n[i]) / gap, 1.0 / gap) if abs(gap) > 1e-12 * max(
-            1.0, abs(float(pi_c[i]))) else _nan_est("ratio"))
+    spells, wars, breakdown, punishments = _survival_curves(raw, run["periods"], confidence)
+    metrics = _market_metrics(raw, periods, (spells, wars, breakdown), pi_n, pi_c, p_n, confidence)
+    firm = _firm_metrics(raw, periods, pi_n, pi_c, confidence)
     alive = raw.by_period[1]
     with np.errstate(invalid="ignore", divide="ignore"):
         by_t = np.where(alive > 0, raw.by_period[0] / np.maximum(alive, 1), np.nan)
@@ -352,13 +320,62 @@ def summarize(raw, game, run: dict, confidence: float = 0.95, baseline: bool = T
     with np.errstate(invalid="ignore", divide="ignore"):
         mean_profit = raw.profit_sum / np.maximum(periods, 1)[:, None]
     settings = _settings(game, run, confidence)
-    res = SimulationResult(settings, mean_profit, raw.disc.copy(), ints[:, K.R_PERIODS].copy(), fb.copy(), counts,
-                           metrics, firm, spells, wars, breakdown, by_t, reference, {}, _paths(raw, game),
-                           punishments)
+    res = SimulationResult(settings, mean_profit, raw.disc.copy(), ints[:, K.R_PERIODS].copy(),
+                           ints[:, K.R_FIRST_BREAKDOWN].copy(), counts, metrics, firm, spells, wars, breakdown, by_t,
+                           reference, {}, _paths(raw, game), punishments)
     if baseline:
-
         res.baseline = analytic_baseline(game, run)
     return res
+
+
+def _survival_curves(raw, n_periods: int, confidence: float) -> tuple:
+    """Kaplan-Meier curves of collusive spells, price wars, the first breakdown and punishment phases."""
+    # a spell or war cut off by the horizon after l periods is known to last at least l periods, i.e.
+    # to outlive l - 1: it is censored at l - 1 (counting it at risk at l would bias the curve upward)
+    spells = kaplan_meier(raw.hist[K.H_SPELL_ENDED], _cut_off(raw.hist[K.H_SPELL_CENSORED]), confidence)
+    wars = kaplan_meier(raw.hist[K.H_WAR_ENDED], _cut_off(raw.hist[K.H_WAR_CENSORED]), confidence)
+    fb = raw.ints[:, K.R_FIRST_BREAKDOWN]
+    ended = np.bincount(fb[fb > 0], minlength=n_periods + 1)[: n_periods + 1]
+    cens = np.bincount(raw.ints[fb == 0, K.R_PERIODS], minlength=n_periods + 1)[: n_periods + 1]
+    breakdown = kaplan_meier(ended, cens, confidence, restrict=n_periods)
+    punishments = kaplan_meier(raw.hist[K.H_PUNISH_ENDED], _cut_off(raw.hist[K.H_PUNISH_CENSORED]), confidence)
+    return spells, wars, breakdown, punishments
+
+
+def _market_metrics(raw, periods: np.ndarray, curves: tuple, pi_n, pi_c, p_n: float, confidence: float) -> dict:
+    ints = raw.ints
+    spells, wars, breakdown = curves
+    fb = ints[:, K.R_FIRST_BREAKDOWN]
+    metrics = {}
+    metrics["collusive_share"] = ratio_estimate(ints[:, K.R_COLLUSIVE], periods, confidence)
+    metrics["war_share"] = ratio_estimate(ints[:, K.R_WAR_PERIODS], periods, confidence)
+    metrics["wars_per_replication"] = mean_estimate(ints[:, K.R_WARS], confidence)
+    metrics["war_frequency"] = ratio_estimate(ints[:, K.R_WARS], periods, confidence)
+    metrics["spell_length"] = spells.mean
+    metrics["war_length"] = wars.mean
+    metrics["first_breakdown"] = breakdown.mean
+    metrics["broken_down"] = wilson_estimate(int((fb > 0).sum()), fb.shape[0], confidence)
+    metrics["price"] = ratio_estimate(raw.flts[:, K.F_PRICE_SUM], periods, confidence)
+    metrics["overcharge"] = metrics["price"].affine(-1.0, 1.0 / p_n) if p_n > 0 else _nan_est("price")
+    metrics["consumer_surplus"] = ratio_estimate(raw.flts[:, K.F_CS_SUM], periods, confidence)
+    joint = raw.profit_sum.sum(axis=1)
+    metrics["joint_profit"] = ratio_estimate(joint, periods, confidence)
+    jn, jc = float(pi_n.sum()), float(pi_c.sum())
+    metrics["profit_gain"] = (metrics["joint_profit"].affine(-jn / (jc - jn), 1.0 / (jc - jn))
+                              if jc > jn else _nan_est("ratio"))
+    return metrics
+
+
+def _firm_metrics(raw, periods: np.ndarray, pi_n, pi_c, confidence: float) -> dict:
+    firm = {"profit": [], "discounted_profit": [], "profit_gain": []}
+    for i in range(raw.profit_sum.shape[1]):
+        e = ratio_estimate(raw.profit_sum[:, i], periods, confidence)
+        firm["profit"].append(e)
+        firm["discounted_profit"].append(mean_estimate(raw.disc[:, i], confidence))
+        gap = float(pi_c[i] - pi_n[i])
+        firm["profit_gain"].append(e.affine(-float(pi_n[i]) / gap, 1.0 / gap) if abs(gap) > 1e-12 * max(
+            1.0, abs(float(pi_c[i]))) else _nan_est("ratio"))
+    return firm
 
 
 def _cut_off(hist: np.ndarray) -> np.ndarray:

@@ -33,24 +33,27 @@ def _plain(obj):
 
 
 def _public():
-    """(qualified name, object, kind) of every public function, class and method defined in the packages."""
+    """(qualified name, object, kind) of every public function, class and method defined in the packages, and
+    of every callable their modules export (``__all__``) from elsewhere (the estimates of ``sim.core.stats``)."""
     seen = set()
     for mod in _modules():
+        exported = set(getattr(mod, "__all__", ()))
         for name, obj in vars(mod).items():
             fn = _plain(obj)
-            if name.startswith("_") or getattr(fn, "__module__", None) != mod.__name__ or id(fn) in seen:
+            own = getattr(fn, "__module__", None) == mod.__name__
+            if name.startswith("_") or not (own or name in exported) or id(fn) in seen:
                 continue
             if inspect.isclass(fn):
                 seen.add(id(fn))
-                yield f"{mod.__name__}.{name}", fn, "class"
+                yield f"{fn.__module__}.{name}", fn, "class"
                 for mname, m in vars(fn).items():
                     if mname.startswith("_") or isinstance(m, property):
                         continue
                     if inspect.isfunction(_plain(m)):
-                        yield f"{mod.__name__}.{name}.{mname}", _plain(m), "method"
+                        yield f"{fn.__module__}.{name}.{mname}", _plain(m), "method"
             elif inspect.isfunction(fn):
                 seen.add(id(fn))
-                yield f"{mod.__name__}.{name}", fn, "function"
+                yield f"{fn.__module__}.{name}", fn, "function"
 
 
 PUBLIC = sorted(_public(), key=lambda x: x[0])
@@ -94,7 +97,8 @@ def _returns_something(fn) -> bool:
 def test_the_walk_finds_the_packages_callables():
     names = {n for n, _, _ in PUBLIC}
     assert {"sim.simulation.engine.simulate", "sim.simulation.kernel.simulate_chunks", "strategies.base.Automaton",
-            "strategies.base.Automaton.table", "sim.simulation.results.SimulationResult.from_dict"} <= names
+            "strategies.base.Automaton.table", "sim.simulation.results.SimulationResult.from_dict",
+            "sim.core.stats.Estimate.from_dict", "sim.core.stats.kaplan_meier"} <= names
 
 
 @pytest.mark.parametrize("name, obj, kind", PUBLIC, ids=[p[0] for p in PUBLIC])
