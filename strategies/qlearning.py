@@ -49,9 +49,28 @@ class ActionGrid(Constraint):
     """A strictly increasing list of at least two finite, non-negative actions."""
 
     def describe(self) -> str:
+        """What the constraint allows, in words (for error messages).
+
+        Returns
+        -------
+        str
+        """
         return "a strictly increasing list of at least 2 non-negative numbers"
 
     def check(self, key: str, value: Any) -> np.ndarray:
+        """The grid as a float array.
+
+        Parameters
+        ----------
+        key : str
+            Key path of the value, for the error message.
+        value : object
+            The value as given.
+
+        Returns
+        -------
+        ndarray of shape (m,)
+        """
         if isinstance(value, np.ndarray):
             value = value.tolist()
         if not isinstance(value, Sequence) or isinstance(value, str):
@@ -70,6 +89,12 @@ class ActionGrid(Constraint):
         return out
 
     def example_bad(self) -> Any:
+        """A grid of one action.
+
+        Returns
+        -------
+        object
+        """
         return [1.0]
 
 
@@ -77,9 +102,28 @@ class QInit(Constraint):
     """``"uniform"``, ``"zeros"`` or an array of initial Q-values."""
 
     def describe(self) -> str:
+        """What the constraint allows, in words (for error messages).
+
+        Returns
+        -------
+        str
+        """
         return "'uniform', 'zeros' or an array of shape (n_states, m) or (m,)"
 
     def check(self, key: str, value: Any) -> str | np.ndarray:
+        """The kind, or the given values as a float array.
+
+        Parameters
+        ----------
+        key : str
+            Key path of the value, for the error message.
+        value : object
+            The value as given.
+
+        Returns
+        -------
+        str or ndarray of shape (n_states, m) or (m,)
+        """
         if isinstance(value, str):
             if value not in INIT_KINDS:
                 raise InputError(key, f"must be {self.describe()}, got {value!r}")
@@ -95,6 +139,12 @@ class QInit(Constraint):
         return arr
 
     def example_bad(self) -> Any:
+        """An initialisation that is not offered.
+
+        Returns
+        -------
+        object
+        """
         return "optimistic"
 
 

@@ -13,6 +13,7 @@ from collections.abc import Sequence
 import strategies.automata as automata
 from sim.core.errors import InputError
 from strategies.base import Automaton
+from strategies.custom import TableAutomaton
 
 __all__ = ["LAZY", "MAX_SEATS", "STRATEGIES", "check_seats", "lineup_from_tables", "register", "strategy_class",
            "strategy_from_dict"]
@@ -26,28 +27,28 @@ STRATEGIES: dict[str, type] = {}
 LAZY: dict[str, str] = {}
 
 
-def register(cls: type) -> type:
-    """Add a strategy class to the registry under ``cls.name`` (usable as a decorator).
+def register(strategy_type: type) -> type:
+    """Add a strategy class to the registry under its ``name`` (usable as a decorator).
 
     Parameters
     ----------
-    cls : type
+    strategy_type : type
         A strategy class with a registry ``name``.
 
     Returns
     -------
     type
-        ``cls`` itself.
+        ``strategy_type`` itself.
     """
-    if not getattr(cls, "name", ""):
-        raise ValueError(f"{cls.__name__} has no registry name")
-    STRATEGIES[cls.name] = cls
-    return cls
+    if not getattr(strategy_type, "name", ""):
+        raise ValueError(f"{strategy_type.__name__} has no registry name")
+    STRATEGIES[strategy_type.name] = strategy_type
+    return strategy_type
 
 
 for _cls in (automata.GrimTrigger, automata.FinitePunishment, automata.TitForTat, automata.ForgivingTitForTat,
              automata.WinStayLoseShift, automata.StickAndCarrot, automata.TriggerPrice, automata.AlwaysCompete,
-             automata.AlwaysCollude, automata.Opportunist, automata.TableAutomaton):
+             automata.AlwaysCollude, automata.Opportunist, TableAutomaton):
     register(_cls)
 
 

@@ -122,12 +122,37 @@ class Level(Constraint):
     """An action level: a named level of the stage game, a number, or one number per product."""
 
     def describe(self) -> str:
+        """What the constraint allows, in words (for error messages).
+
+        Returns
+        -------
+        str
+        """
         return f"one of {', '.join(map(repr, LEVEL_NAMES))}, a number or a list of numbers"
 
     def check(self, key: str, value: Any):
+        """The level, normalised by :func:`check_level`.
+
+        Parameters
+        ----------
+        key : str
+            Key path of the value, for the error message.
+        value : object
+            The value as given.
+
+        Returns
+        -------
+        str, float or tuple of float
+        """
         return check_level(key, value)
 
     def example_bad(self) -> Any:
+        """A name that is no level.
+
+        Returns
+        -------
+        object
+        """
         return "cheapest"
 
 
@@ -144,9 +169,28 @@ class Either(Constraint):
         self.options = options
 
     def describe(self) -> str:
+        """What the constraint allows, in words (for error messages).
+
+        Returns
+        -------
+        str
+        """
         return " or ".join(o.describe() for o in self.options)
 
     def check(self, key: str, value: Any):
+        """The value as normalised by the first option that accepts it.
+
+        Parameters
+        ----------
+        key : str
+            Key path of the value, for the error message.
+        value : object
+            The value as given.
+
+        Returns
+        -------
+        object
+        """
         for o in self.options:
             try:
                 return o.check(key, value)
@@ -155,6 +199,12 @@ class Either(Constraint):
         raise InputError(key, f"must be {self.describe()}, got {_fmt(value)}")
 
     def example_bad(self) -> Any:
+        """A value no option accepts.
+
+        Returns
+        -------
+        object
+        """
         return [object()]
 
 
@@ -162,14 +212,39 @@ class StateTableConstraint(Constraint):
     """A state table: a non-empty dict from state names to dicts of state keys."""
 
     def describe(self) -> str:
+        """What the constraint allows, in words (for error messages).
+
+        Returns
+        -------
+        str
+        """
         return "a table of states (state name -> action, watch, good, bad, ...)"
 
     def check(self, key: str, value: Any):
+        """The table itself, when it is a non-empty dict (its states are checked by :func:`validate_table`).
+
+        Parameters
+        ----------
+        key : str
+            Key path of the value, for the error message.
+        value : object
+            The value as given.
+
+        Returns
+        -------
+        dict
+        """
         if not isinstance(value, dict) or not value:
             raise InputError(key, f"must be {self.describe()}, got {_fmt(value)}")
         return value
 
     def example_bad(self) -> Any:
+        """An empty table.
+
+        Returns
+        -------
+        object
+        """
         return {}
 
 

@@ -277,11 +277,28 @@ class Parametrized:
         ]
 
     def get_params(self) -> dict[str, Any]:
-        """Constructor arguments as a dict (values as stored, not validated)."""
+        """Constructor arguments as a dict (values as stored, not validated).
+
+        Returns
+        -------
+        dict
+            Argument name -> value.
+        """
         return {name: getattr(self, name) for name in self._param_names()}
 
     def set_params(self, **params: Any) -> Parametrized:
-        """Set constructor arguments in place; an unknown name raises :class:`InputError`."""
+        """Set constructor arguments in place; an unknown name raises :class:`InputError`.
+
+        Parameters
+        ----------
+        **params
+            Constructor arguments by name.
+
+        Returns
+        -------
+        Parametrized
+            The object itself.
+        """
         names = self._param_names()
         for k, v in params.items():
             if k not in names:
@@ -290,7 +307,18 @@ class Parametrized:
         return self
 
     def clone(self, **changes: Any) -> Parametrized:
-        """A new object with the same parameters, optionally changed."""
+        """A new object with the same parameters, optionally changed.
+
+        Parameters
+        ----------
+        **changes
+            Constructor arguments to change, by name.
+
+        Returns
+        -------
+        Parametrized
+            An object of the same class.
+        """
         params = self.get_params()
         params.update(changes)
         return type(self)(**params)

@@ -44,7 +44,9 @@ Speed: every per-period step (the helpers below, :func:`strategies.step.choose_l
 ``inline="always"``, so that the period loop has no out-of-line calls with array arguments; inlining
 works on numba's IR and changes no arithmetic, so the kernel computes exactly what the plain-Python
 twin (:mod:`sim.simulation.twin`) computes. The counts of a replication live in a small ``tally``
-array (columns ``R_*``, then the run-length state ``T_*``) that the helpers update in place.
+array (columns ``R_*``, then the run-length state ``T_*``) that the helpers update in place. The
+period loop reads the groups' arrays from locals taken once per chunk (:func:`play_chunk`): an array
+reached through a tuple is a new reference, taken and released at every access.
 """
 
 from __future__ import annotations
