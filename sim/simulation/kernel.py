@@ -43,8 +43,9 @@ Speed: every per-period step (the helpers below, :func:`strategies.step.choose_l
 :func:`sim.models.stagecore.evaluate`, :func:`sim.core.rng.next_normal_zig`) is declared
 ``inline="always"``, so that the period loop has no out-of-line calls with array arguments; inlining
 works on numba's IR and changes no arithmetic, so the kernel computes exactly what the plain-Python
-twin (:mod:`sim.simulation.twin`) computes. The counts of a replication live in a small ``tally``
-array (columns ``R_*``, then the run-length state ``T_*``) that the helpers update in place. The
+twin (:mod:`sim.simulation.twin`) computes. What changes every period (the current runs, the collusive
+periods, the first breakdown) is a tuple of scalars that :func:`_count_period` returns updated, so that
+it stays in registers; the rarer counts of a replication live in a small ``tally`` array. The
 period loop reads the groups' arrays from locals taken once per chunk (:func:`play_chunk`): an array
 reached through a tuple is a new reference, taken and released at every access.
 """
@@ -68,10 +69,6 @@ __all__ = ["Batch", "LineupInputs", "MarketInputs", "MonitoringInputs", "PathBuf
 R_PERIODS, R_COLLUSIVE, R_WARS, R_WARS_ENDED, R_WAR_PERIODS, R_WAR_PERIODS_ENDED = range(6)
 R_SPELLS, R_SPELLS_ENDED, R_SPELL_PERIODS_ENDED, R_FIRST_BREAKDOWN, R_CHEATS, R_TREMBLES = range(6, 12)
 N_RINT = 12
-# run-length state of a replication, after the R_* columns of its tally: length of the current run of
-# collusive or non-collusive periods, whether that run is collusive, length of the current punishment phase
-T_RUN, T_PREV, T_PUNISH = range(N_RINT, N_RINT + 3)
-N_TALLY = N_RINT + 3
 # float results per replication
 F_PRICE_SUM, F_CS_SUM = range(2)
 N_RFLT = 2
@@ -315,7 +312,7 @@ def _scratch(n_firms, n_products):
     return (np.empty(n_firms, dtype=np.int64), np.empty(n_firms, dtype=np.int64), np.empty(n_firms, dtype=np.int64),
             np.zeros(n_firms, dtype=np.bool_), np.zeros(n_firms, dtype=np.bool_), np.empty(n_products),
             np.empty(n_products), np.empty(n_products), np.empty(n_firms), np.empty((2, n_products)),
-            np.empty(n_firms), np.empty(n_firms), np.empty(N_TALLY, dtype=np.int64))
+            np.empty(n_firms), np.empty(n_firms), np.empty(N_RINT, dtype=np.int64))
 
 
 @njit(cache=True, inline="always")
@@ -324,7 +321,7 @@ def _start_replication(state, psum, dsum, tally, firms):
         state[i] = firms[i, INITIAL]
         psum[i] = 0.0
         dsum[i] = 0.0
-    for k in range(N_TALLY):
+    for k in range(N_RINT):
         tally[k] = 0
 
 
@@ -429,26 +426,31 @@ def _add_profits(psum, dsum, profit, disc, delta):
 
 
 @njit(cache=True, inline="always")
-def _count_period(tally, hist, by_period, c, t, all_c, punishing):
-    """Collusive and war periods, the first breakdown, and the runs that the period ends or extends."""
+def _count_period(runs, tally, hist, by_period, c, t, all_c, punishing):
+    """The period's place in the runs of collusive and other periods and in the punishment phases.
+
+    ``runs`` holds what changes every period, ``(run, prev, punish, n_collusive, first_breakdown)``: the
+    length of the current run, whether it is collusive (1) or not (0), the length of the current
+    punishment phase, the collusive periods so far and the first non-collusive period (0: none yet). It
+    is a tuple of scalars, returned updated, so that these stay in registers; runs that end are counted
+    in ``tally`` and ``hist``.
+    """
+    run, prev, punish, n_coll, first = runs
     if all_c:
         by_period[c, t] += 1
-        tally[R_COLLUSIVE] += 1
-    else:
-        tally[R_WAR_PERIODS] += 1
-        if tally[R_FIRST_BREAKDOWN] == 0:
-            tally[R_FIRST_BREAKDOWN] = t + 1
-    run = tally[T_RUN]
+        n_coll += 1
+    elif first == 0:
+        first = t + 1
     if t == 0:
         run = 1
         if all_c:
             tally[R_SPELLS] += 1
         else:
             tally[R_WARS] += 1
-    elif all_c == (tally[T_PREV] != 0):
+    elif all_c == (prev != 0):
         run += 1
     else:
-        if tally[T_PREV] != 0:
+        if prev != 0:
             hist[c, H_SPELL_ENDED, run] += 1
             tally[R_SPELLS_ENDED] += 1
             tally[R_SPELL_PERIODS_ENDED] += run
@@ -459,31 +461,35 @@ def _count_period(tally, hist, by_period, c, t, all_c, punishing):
             tally[R_WAR_PERIODS_ENDED] += run
             tally[R_SPELLS] += 1
         run = 1
-    tally[T_RUN] = run
-    tally[T_PREV] = 1 if all_c else 0
+    prev = 1 if all_c else 0
     if punishing:
-        tally[T_PUNISH] += 1
-    elif tally[T_PUNISH] > 0:
-        hist[c, H_PUNISH_ENDED, tally[T_PUNISH]] += 1
-        tally[T_PUNISH] = 0
-    tally[R_PERIODS] += 1
+        punish += 1
+    elif punish > 0:
+        hist[c, H_PUNISH_ENDED, punish] += 1
+        punish = 0
+    return run, prev, punish, n_coll, first
 
 
 @njit(cache=True, inline="always")
-def _store_replication(totals, c, r, tally, psum, dsum, price_sum, cs_sum):
+def _store_replication(totals, c, r, periods, runs, tally, psum, dsum, price_sum, cs_sum):
     """The runs cut off by the horizon, then the replication's sums and counts into the outputs."""
-    if tally[T_RUN] > 0:
-        if tally[T_PREV] != 0:
-            totals.hist[c, H_SPELL_CENSORED, tally[T_RUN]] += 1
+    run, prev, punish, n_coll, first = runs
+    if run > 0:
+        if prev != 0:
+            totals.hist[c, H_SPELL_CENSORED, run] += 1
         else:
-            totals.hist[c, H_WAR_CENSORED, tally[T_RUN]] += 1
-    if tally[T_PUNISH] > 0:
-        totals.hist[c, H_PUNISH_CENSORED, tally[T_PUNISH]] += 1
+            totals.hist[c, H_WAR_CENSORED, run] += 1
+    if punish > 0:
+        totals.hist[c, H_PUNISH_CENSORED, punish] += 1
     for i in range(psum.shape[0]):
         totals.profit[r, i] += psum[i]
         totals.disc[r, i] += dsum[i]
     totals.flts[r, F_PRICE_SUM] += price_sum
     totals.flts[r, F_CS_SUM] += cs_sum
+    tally[R_PERIODS] = periods
+    tally[R_COLLUSIVE] = n_coll
+    tally[R_WAR_PERIODS] = periods - n_coll
+    tally[R_FIRST_BREAKDOWN] = first
     for k in range(N_RINT):
         totals.ints[r, k] += tally[k]
 
@@ -538,6 +544,7 @@ def play_chunk(c, batch, market, lineup, monitoring, run, totals, paths):
         g = first + r
         H = horizon_length(rng, n_periods, random_horizon, continuation)
         _start_replication(state, psum, dsum, tally, firms)
+        runs = (0, 0, 0, 0, 0)
         disc = 1.0
         price_sum = 0.0
         cs_sum = 0.0
@@ -558,8 +565,8 @@ def play_chunk(c, batch, market, lineup, monitoring, run, totals, paths):
             disc = _add_profits(psum, dsum, profit, disc, delta)
             price_sum += mp
             cs_sum += cs
-            _count_period(tally, hist, by_period, c, t, all_c, punishing)
-        _store_replication(totals, c, r, tally, psum, dsum, price_sum, cs_sum)
+            runs = _count_period(runs, tally, hist, by_period, c, t, all_c, punishing)
+        _store_replication(totals, c, r, H, runs, tally, psum, dsum, price_sum, cs_sum)
     return STATUS_OK
 
 
