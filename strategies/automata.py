@@ -23,7 +23,7 @@ always_collude           the collusive level every period
 opportunist              colludes, cheats with probability ``probability`` per period from period ``start``
                          on; after any deviation (its own included) plays Nash forever, or keeps colluding
                          with ``after = "collude"``
-automaton                a user-defined table of states (:class:`TableAutomaton`)
+automaton                a user-defined table of states (:class:`strategies.custom.TableAutomaton`)
 =======================  ==================================================================================
 """
 
@@ -31,7 +31,8 @@ from __future__ import annotations
 
 from sim.core.errors import InputError
 from sim.core.params import Integer, Options, Real, optional
-from strategies.base import Automaton, Either, Level, StateTableConstraint
+from strategies.base import Automaton
+from strategies.table import Either, Level
 
 __all__ = [
     "AlwaysCollude",
@@ -41,7 +42,6 @@ __all__ = [
     "GrimTrigger",
     "Opportunist",
     "StickAndCarrot",
-    "TableAutomaton",
     "TitForTat",
     "TriggerPrice",
     "WinStayLoseShift",
@@ -68,6 +68,20 @@ class GrimTrigger(Automaton):
         self.punish = punish
 
     def states(self, p, ctx=None):
+        """``collude`` (watching everyone, itself included) and an absorbing ``punish`` state.
+
+        Parameters
+        ----------
+        p : dict
+            The validated parameters.
+        ctx : FirmContext, optional
+            Not used: the table does not depend on the market.
+
+        Returns
+        -------
+        dict
+            The state table.
+        """
         return {
             "collude": {"action": p["collude"], "watch": "all", "good": "collude", "bad": "punish"},
             "punish": {"action": p["punish"]},
@@ -84,7 +98,10 @@ class FinitePunishment(Automaton):
     ----------
     length : int >= 1
         Punishment length T.
-    collude, punish : level
+    collude : level
+        Level played while colluding (default ``"collusive"``).
+    punish : level
+        Level played during the punishment (default ``"nash"``).
     """
 
     name = "finite_punishment"
@@ -97,6 +114,20 @@ class FinitePunishment(Automaton):
         self.punish = punish
 
     def states(self, p, ctx=None):
+        """``collude`` and ``length`` punishment states ``punish1 .. punishT`` leading back to it.
+
+        Parameters
+        ----------
+        p : dict
+            The validated parameters.
+        ctx : FirmContext, optional
+            Not used: the table does not depend on the market.
+
+        Returns
+        -------
+        dict
+            The state table.
+        """
         T = p["length"]
         out = {"collude": {"action": p["collude"], "watch": "all", "good": "collude", "bad": "punish1"}}
         for k in range(1, T + 1):
@@ -111,7 +142,10 @@ class TitForTat(Automaton):
     ----------
     forgiveness : float in [0, 1]
         Probability of forgiving an observed defection (colluding anyway). 0 is strict tit for tat.
-    collude, punish : level
+    collude : level
+        Level played after rivals colluded (default ``"collusive"``).
+    punish : level
+        Level played after a rival defected (default ``"nash"``).
     """
 
     name = "tit_for_tat"
@@ -124,6 +158,20 @@ class TitForTat(Automaton):
         self.punish = punish
 
     def states(self, p, ctx=None):
+        """``collude`` and ``punish``, both moving on what the rivals did, forgiving with ``forgiveness``.
+
+        Parameters
+        ----------
+        p : dict
+            The validated parameters.
+        ctx : FirmContext, optional
+            Not used: the table does not depend on the market.
+
+        Returns
+        -------
+        dict
+            The state table.
+        """
         g = p["forgiveness"]
         common = {"watch": "rivals", "expect": p["collude"], "good": "collude", "bad": "punish"}
         if g > 0:
@@ -135,7 +183,17 @@ class TitForTat(Automaton):
 
 
 class ForgivingTitForTat(TitForTat):
-    """Tit for tat that forgives an observed defection with probability ``forgiveness`` (> 0)."""
+    """Tit for tat that forgives an observed defection with probability ``forgiveness`` (> 0).
+
+    Parameters
+    ----------
+    forgiveness : float in (0, 1]
+        Probability of forgiving an observed defection.
+    collude : level
+        Level played after rivals colluded (or after forgiving).
+    punish : level
+        Level played after a defection that is not forgiven.
+    """
 
     name = "forgiving_tit_for_tat"
     summary = "tit for tat, forgiving a defection with probability g"
@@ -156,8 +214,10 @@ class WinStayLoseShift(Automaton):
         Per-period profit the firm is content with. Default: halfway between the firm's static-Nash
         and collusive profits, so that mutual collusion and a successful deviation are wins and mutual
         competition and being cheated are losses.
-    collude, punish : level
-        The two conducts.
+    collude : level
+        The cooperative conduct.
+    punish : level
+        The competitive conduct.
     start : {"collude", "punish"}
         Conduct in the first period.
     """
@@ -174,6 +234,21 @@ class WinStayLoseShift(Automaton):
         self.start = start
 
     def states(self, p, ctx=None):
+        """``collude`` and ``punish``, each kept while the profit meets the aspiration.
+
+        Parameters
+        ----------
+        p : dict
+            The validated parameters.
+        ctx : FirmContext, optional
+            The market's levels and the seat: the default aspiration needs the firm's
+            static-Nash and collusive profits.
+
+        Returns
+        -------
+        dict
+            The state table.
+        """
         a = p["aspiration"]
         if a is None:
             if ctx is None:
@@ -190,6 +265,17 @@ class WinStayLoseShift(Automaton):
         }
 
     def initial(self, p):
+        """The state of the ``start`` conduct.
+
+        Parameters
+        ----------
+        p : dict
+            The validated parameters.
+
+        Returns
+        -------
+        str
+        """
         return p["start"]
 
 
@@ -203,6 +289,7 @@ class StickAndCarrot(Automaton):
     Parameters
     ----------
     collude : level
+        Level played while colluding.
     punish : level
         Default ``"punishment"`` (the stick-and-carrot level).
     """
@@ -216,6 +303,20 @@ class StickAndCarrot(Automaton):
         self.punish = punish
 
     def states(self, p, ctx=None):
+        """``collude`` and one ``punish`` period that restarts when someone shirks it.
+
+        Parameters
+        ----------
+        p : dict
+            The validated parameters.
+        ctx : FirmContext, optional
+            Not used: the table does not depend on the market.
+
+        Returns
+        -------
+        dict
+            The state table.
+        """
         return {
             "collude": {"action": p["collude"], "watch": "all", "good": "collude", "bad": "punish"},
             "punish": {"action": p["punish"], "watch": "all", "judge": "punishment", "good": "collude",
@@ -236,6 +337,7 @@ class TriggerPrice(Automaton):
     collude : level
         Normal-period level (in the Green-Porter model a common quantity, often given as a number).
     punish : level
+        Level played during a price war (default ``"nash"``).
     """
 
     name = "trigger_price"
@@ -250,6 +352,20 @@ class TriggerPrice(Automaton):
         self.punish = punish
 
     def states(self, p, ctx=None):
+        """``collude`` watching the market price, and ``length`` war states (or one absorbing war).
+
+        Parameters
+        ----------
+        p : dict
+            The validated parameters.
+        ctx : FirmContext, optional
+            Not used: the table does not depend on the market.
+
+        Returns
+        -------
+        dict
+            The state table.
+        """
         T = p["length"]
         out = {"collude": {"action": p["collude"], "watch": "price", "threshold": p["trigger"], "good": "collude",
                            "bad": "war1" if T != "forever" else "war"}}
@@ -262,7 +378,13 @@ class TriggerPrice(Automaton):
 
 
 class AlwaysCompete(Automaton):
-    """Plays ``action`` (default the static Nash level) every period."""
+    """Plays ``action`` (default the static Nash level) every period.
+
+    Parameters
+    ----------
+    action : level
+        The level played (default ``"nash"``); its state never counts as colluding.
+    """
 
     name = "always_compete"
     summary = "static Nash every period"
@@ -273,11 +395,31 @@ class AlwaysCompete(Automaton):
         self.action = action
 
     def states(self, p, ctx=None):
+        """One state, ``compete``, that never counts as colluding.
+
+        Parameters
+        ----------
+        p : dict
+            The validated parameters.
+        ctx : FirmContext, optional
+            Not used: the table does not depend on the market.
+
+        Returns
+        -------
+        dict
+            The state table.
+        """
         return {"compete": {"action": p["action"], "collusive": False}}
 
 
 class AlwaysCollude(Automaton):
-    """Plays ``action`` (default the collusive level) every period, whatever the others do."""
+    """Plays ``action`` (default the collusive level) every period, whatever the others do.
+
+    Parameters
+    ----------
+    action : level
+        The level played (default ``"collusive"``); its state counts as colluding.
+    """
 
     name = "always_collude"
     summary = "the collusive level every period"
@@ -288,6 +430,20 @@ class AlwaysCollude(Automaton):
         self.action = action
 
     def states(self, p, ctx=None):
+        """One state, ``collude``, that always counts as colluding.
+
+        Parameters
+        ----------
+        p : dict
+            The validated parameters.
+        ctx : FirmContext, optional
+            Not used: the table does not depend on the market.
+
+        Returns
+        -------
+        dict
+            The state table.
+        """
         return {"collude": {"action": p["action"], "collusive": True}}
 
 
@@ -302,10 +458,15 @@ class Opportunist(Automaton):
     Parameters
     ----------
     probability : float in [0, 1]
+        Probability per period of cheating.
     start : int >= 0
         First period (0-based) in which it may cheat.
     after : {"nash", "collude"}
-    collude, punish : level
+        What it does after a deviation: Nash forever, or keep colluding (and cheating).
+    collude : level
+        Level played while colluding.
+    punish : level
+        Level played after a deviation with ``after = "nash"``.
     cheat_action : level
         Level played when cheating (default ``"deviation"``, the best one-shot deviation).
     """
@@ -325,6 +486,20 @@ class Opportunist(Automaton):
         self.cheat_action = cheat_action
 
     def states(self, p, ctx=None):
+        """``collude`` with its cheat probability, then an absorbing ``punish`` (or none with ``after = 'collude'``).
+
+        Parameters
+        ----------
+        p : dict
+            The validated parameters.
+        ctx : FirmContext, optional
+            Not used: the table does not depend on the market.
+
+        Returns
+        -------
+        dict
+            The state table.
+        """
         if p["after"] == "collude":
             return {"collude": {"action": p["collude"], "cheat": p["probability"]}}
         return {
@@ -334,76 +509,20 @@ class Opportunist(Automaton):
         }
 
     def cheat(self, p):
-        return p["cheat_action"], p["start"], None
+        """``cheat_action`` from period ``start`` on.
 
+        Parameters
+        ----------
+        p : dict
+            The validated parameters.
 
-class TableAutomaton(Automaton):
-    """A user-defined automaton given as a table of states (see :mod:`strategies.base` for the keys).
-
-    Parameters
-    ----------
-    states : dict
-        State name -> state keys (``action``, ``watch``, ``good``, ``bad``, ...). The first state is the
-        initial one unless ``initial`` says otherwise.
-    initial : str, optional
-    collude : level
-        Level whose states count as colluding unless a state says ``collusive = true/false``.
-    cheat_action : level
-        Level played in a state's ``cheat`` periods (default ``"deviation"``).
-    start : int >= 0
-        First period (0-based) in which the states' ``cheat`` probabilities apply.
-
-    Examples
-    --------
-    >>> TableAutomaton(states={
-    ...     "collude": {"action": "collusive", "watch": "all", "bad": "punish"},
-    ...     "punish": {"action": "nash", "next": "collude"},
-    ... }).table().names
-    ['collude', 'punish']
-    """
-
-    name = "automaton"
-    summary = "a user-defined table of states, actions and transitions"
-    _constraints = {"states": StateTableConstraint(), "initial": optional(Options()), "collude": Level(),
-                    "cheat_action": Level(), "start": Integer(0, None)}
-
-    def __init__(self, states=None, initial=None, collude="collusive", cheat_action="deviation", start=0):
-        self.states_table = states
-        self.initial_state = initial
-        self.collude = collude
-        self.cheat_action = cheat_action
-        self.start = start
-
-    # the constructor names ``states`` and ``initial`` collide with the method names of the base class,
-    # so the values live under other attribute names
-    def get_params(self):
-        return {"states": self.states_table, "initial": self.initial_state, "collude": self.collude,
-                "cheat_action": self.cheat_action, "start": self.start}
-
-    def set_params(self, **params):
-        names = self._param_names()
-        for k, v in params.items():
-            if k not in names:
-                raise InputError(k, f"unknown parameter of {type(self).__name__}; allowed: {', '.join(names)}")
-            setattr(self, {"states": "states_table", "initial": "initial_state"}.get(k, k), v)
-        return self
-
-    def _check_params(self, prefix="", n=None):
-        key = f"{prefix}." if prefix else ""
-        out = {"states": StateTableConstraint().check(f"{key}states", self.states_table)}
-        if self.initial_state is not None and not isinstance(self.initial_state, str):
-            raise InputError(f"{key}initial", f"must be a state name, got {self.initial_state!r}")
-        out["initial"] = self.initial_state
-        out["collude"] = Level().check(f"{key}collude", self.collude)
-        out["cheat_action"] = Level().check(f"{key}cheat_action", self.cheat_action)
-        out["start"] = Integer(0, None).check(f"{key}start", self.start)
-        return out
-
-    def states(self, p, ctx=None):
-        return p["states"]
-
-    def initial(self, p):
-        return p["initial"]
-
-    def cheat(self, p):
+        Returns
+        -------
+        level : level
+            The cheating level.
+        start : int
+            First period of the window.
+        stop : None
+            The window never closes.
+        """
         return p["cheat_action"], p["start"], None

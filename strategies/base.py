@@ -1,49 +1,14 @@
-"""Automaton strategies: states, an action per state, a next state per signal; compiled to arrays.
+"""Automaton strategies: the base class, the market's levels they resolve against, and their compilation.
 
 A strategy is a :class:`~sim.core.params.Parametrized` object whose :meth:`Automaton.states` returns its
-state table as plain data (the same structure an experiment file gives for ``strategy = "automaton"``):
-
-.. code-block:: python
-
-    {
-        "collude": {"action": "collusive", "watch": "all", "good": "collude", "bad": "punish"},
-        "punish": {"action": "nash"},                 # no watch: stays here (absorbing)
-    }
-
-State keys
-----------
-action : level
-    What the firm plays: a named level (``"collusive"``, ``"nash"``, ``"deviation"``, ``"punishment"``),
-    a number (the same quantity or price for every product), or a list of one number per product.
-watch : {"nothing", "all", "rivals", "price", "profit"}
-    The signal that drives the transition (see :mod:`strategies.step`); default ``"nothing"``.
-expect : level
-    The profile the firm expects when it watches conduct (default: the state's action).
-judge : {"restraint", "punishment"}
-    ``restraint``: others comply when no more aggressive than expected (default). ``punishment``: they
-    comply when at least as aggressive (the punishment was carried out).
-threshold : float
-    Trigger price (``watch = "price"``) or aspiration profit (``watch = "profit"``).
-good, bad, next : state name
-    Next state after a good or a bad signal (``next`` sets both; default: stay).
-forgive, forgive_to : float in [0, 1], state name
-    After a bad signal go to ``forgive_to`` (default: ``good``) instead, with probability ``forgive``.
-lapse, lapse_to : float in [0, 1], state name
-    After a good signal go to ``lapse_to`` (default: ``bad``) instead, with probability ``lapse``.
-cheat : float in [0, 1]
-    Probability per period of playing the strategy's cheating level instead of ``action``.
-collusive : bool
-    Whether the state counts as colluding in the persistence metrics (default: ``action`` is the
-    strategy's collusive level).
-
-Levels are resolved against the market's stage game when the line-up is compiled
-(:func:`compile_lineup`); see :class:`StageLevels`.
+state table as plain data (format and validation in :mod:`strategies.table`). Levels (``"collusive"``,
+``"nash"``, numbers) are resolved against the market's stage game (:class:`StageLevels`) when a line-up
+is compiled (:func:`compile_lineup`) to the arrays the kernels play (layout in :mod:`strategies.step`).
 """
 
 from __future__ import annotations
 
 import math
-import numbers
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -52,7 +17,8 @@ import numpy as np
 
 import strategies.step as S
 from sim.core.errors import InputError
-from sim.core.params import Constraint, Parametrized
+from sim.core.params import Parametrized
+from strategies.table import JUDGES, LEVEL_NAMES, WATCHES, AutomatonTable, Level, validate_table
 
 __all__ = [
     "LEVEL_NAMES",
@@ -61,251 +27,10 @@ __all__ = [
     "FirmContext",
     "Level",
     "StageLevels",
+    "check_compiled",
     "compile_lineup",
     "validate_table",
 ]
-
-LEVEL_NAMES = ("collusive", "nash", "deviation", "punishment")
-WATCHES = {
-    "nothing": S.WATCH_NOTHING,
-    "all": S.WATCH_ALL,
-    "rivals": S.WATCH_RIVALS,
-    "price": S.WATCH_PRICE,
-    "profit": S.WATCH_PROFIT,
-}
-JUDGES = {"restraint": S.JUDGE_RESTRAINT, "punishment": S.JUDGE_PUNISHMENT}
-STATE_KEYS = ("action", "watch", "expect", "judge", "threshold", "good", "bad", "next", "forgive",
-              "forgive_to", "lapse", "lapse_to", "cheat", "collusive")
-MAX_STATES = 10_000
-
-
-def _fmt(v: Any) -> str:
-    return repr(v.tolist() if isinstance(v, np.ndarray) else v)
-
-
-# --------------------------------------------------------------------------------------------------
-# Constraints used by strategies
-# --------------------------------------------------------------------------------------------------
-
-
-def check_level(key: str, value: Any):
-    """Normalise a level: a name from :data:`LEVEL_NAMES`, a float >= 0, or a tuple of floats >= 0."""
-    if isinstance(value, str):
-        if value not in LEVEL_NAMES:
-            raise InputError(key, f"must be one of {', '.join(map(repr, LEVEL_NAMES))}, a number or a list of "
-                                  f"numbers, got {value!r}")
-        return value
-    if isinstance(value, numbers.Real) and not isinstance(value, bool):
-        x = float(value)
-        if not math.isfinite(x) or x < 0:
-            raise InputError(key, f"must be a finite number >= 0, got {_fmt(value)}")
-        return x
-    if isinstance(value, np.ndarray):
-        value = value.tolist()
-    if isinstance(value, Sequence) and not isinstance(value, str) and len(value) > 0:
-        out = []
-        for k, v in enumerate(value):
-            if isinstance(v, bool) or not isinstance(v, numbers.Real) or not math.isfinite(float(v)) or v < 0:
-                raise InputError(key, f"value {k + 1} must be a finite number >= 0, got {_fmt(v)}")
-            out.append(float(v))
-        return tuple(out)
-    raise InputError(key, f"must be one of {', '.join(map(repr, LEVEL_NAMES))}, a number or a list of numbers, "
-                          f"got {_fmt(value)}")
-
-
-class Level(Constraint):
-    """An action level: a named level of the stage game, a number, or one number per product."""
-
-    def describe(self) -> str:
-        return f"one of {', '.join(map(repr, LEVEL_NAMES))}, a number or a list of numbers"
-
-    def check(self, key: str, value: Any):
-        return check_level(key, value)
-
-    def example_bad(self) -> Any:
-        return "cheapest"
-
-
-class Either(Constraint):
-    """The first of several constraints that accepts the value."""
-
-    def __init__(self, *options: Constraint):
-        self.options = options
-
-    def describe(self) -> str:
-        return " or ".join(o.describe() for o in self.options)
-
-    def check(self, key: str, value: Any):
-        for o in self.options:
-            try:
-                return o.check(key, value)
-            except InputError:
-                continue
-        raise InputError(key, f"must be {self.describe()}, got {_fmt(value)}")
-
-    def example_bad(self) -> Any:
-        return [object()]
-
-
-class StateTableConstraint(Constraint):
-    """A state table: a non-empty dict from state names to dicts of state keys."""
-
-    def describe(self) -> str:
-        return "a table of states (state name -> action, watch, good, bad, ...)"
-
-    def check(self, key: str, value: Any):
-        if not isinstance(value, dict) or not value:
-            raise InputError(key, f"must be {self.describe()}, got {_fmt(value)}")
-        return value
-
-    def example_bad(self) -> Any:
-        return {}
-
-
-# --------------------------------------------------------------------------------------------------
-# The validated table
-# --------------------------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True)
-class StateRow:
-    """One validated state (levels still unresolved)."""
-
-    name: str
-    action: Any
-    watch: str
-    expect: Any
-    judge: str
-    threshold: float
-    good: int
-    bad: int
-    forgive: float
-    forgive_to: int
-    lapse: float
-    lapse_to: int
-    cheat: float
-    collusive: bool
-
-
-@dataclass(frozen=True)
-class AutomatonTable:
-    """A validated automaton: the state rows, the initial state and the cheating settings."""
-
-    rows: tuple
-    initial: int
-    cheat_level: Any
-    cheat_from: int
-    cheat_until: int | None
-
-    @property
-    def names(self) -> list[str]:
-        return [r.name for r in self.rows]
-
-    @property
-    def watches_conduct(self) -> bool:
-        return any(r.watch in ("all", "rivals") for r in self.rows)
-
-
-def _prob(key: str, value: Any) -> float:
-    if isinstance(value, bool) or not isinstance(value, numbers.Real) or not (0.0 <= float(value) <= 1.0):
-        raise InputError(key, f"must be a probability in [0, 1], got {_fmt(value)}")
-    return float(value)
-
-
-def validate_table(states: Any, initial: Any = None, cheat_level: Any = "deviation", cheat_from: Any = 0,
-                   cheat_until: Any = None, collusive_level: Any = "collusive",
-                   prefix: str = "strategy") -> AutomatonTable:
-    """Check a state table and return its validated form.
-
-    Errors name the key path, e.g. ``strategies[2].states.punish.good``. A transition to a state that
-    does not exist, a probability outside [0, 1], a missing threshold or an unknown key are refused.
-    """
-    key = f"{prefix}.states"
-    StateTableConstraint().check(key, states)
-    if len(states) > MAX_STATES:
-        raise InputError(key, f"at most {MAX_STATES} states, got {len(states)}")
-    names = list(states)
-    index = {}
-    for n in names:
-        if not isinstance(n, str) or not n:
-            raise InputError(key, f"state names must be non-empty strings, got {n!r}")
-        index[n] = len(index)
-
-    def target(k: str, v: Any) -> int:
-        if not isinstance(v, str) or v not in index:
-            raise InputError(k, f"names a state that does not exist: {v!r}; states: {', '.join(names)}")
-        return index[v]
-
-    coll_level = check_level(f"{prefix}.collude", collusive_level)
-    rows = []
-    for n in names:
-        st = states[n]
-        sk = f"{key}.{n}"
-        if not isinstance(st, dict):
-            raise InputError(sk, f"must be a table of state keys ({', '.join(STATE_KEYS)}), got {_fmt(st)}")
-        for k in st:
-            if k not in STATE_KEYS:
-                raise InputError(f"{sk}.{k}", f"unknown state key; allowed: {', '.join(STATE_KEYS)}")
-        if "action" not in st:
-            raise InputError(f"{sk}.action", "missing (the level this state plays)")
-        action = check_level(f"{sk}.action", st["action"])
-        watch = st.get("watch", "nothing")
-        if watch not in WATCHES:
-            raise InputError(f"{sk}.watch", f"must be one of {', '.join(map(repr, WATCHES))}, got {_fmt(watch)}")
-        expect = check_level(f"{sk}.expect", st["expect"]) if "expect" in st else action
-        if "expect" in st and watch not in ("all", "rivals"):
-            raise InputError(f"{sk}.expect", f"only used when the state watches conduct ('all' or 'rivals'), "
-                                             f"not {watch!r}")
-        judge = st.get("judge", "restraint")
-        if judge not in JUDGES:
-            raise InputError(f"{sk}.judge", f"must be one of {', '.join(map(repr, JUDGES))}, got {_fmt(judge)}")
-        threshold = math.nan
-        if watch in ("price", "profit"):
-            if "threshold" not in st:
-                what = "trigger price" if watch == "price" else "aspiration profit"
-                raise InputError(f"{sk}.threshold", f"missing (the {what} of watch = {watch!r})")
-            t = st["threshold"]
-            if isinstance(t, bool) or not isinstance(t, numbers.Real) or not math.isfinite(float(t)):
-                raise InputError(f"{sk}.threshold", f"must be a finite number, got {_fmt(t)}")
-            threshold = float(t)
-        elif "threshold" in st:
-            raise InputError(f"{sk}.threshold", f"only used with watch = 'price' or 'profit', not {watch!r}")
-        if "next" in st and ("good" in st or "bad" in st):
-            raise InputError(f"{sk}.next", "give either next or good/bad, not both")
-        self_i = index[n]
-        if "next" in st:
-            good = bad = target(f"{sk}.next", st["next"])
-        else:
-            good = target(f"{sk}.good", st["good"]) if "good" in st else self_i
-            bad = target(f"{sk}.bad", st["bad"]) if "bad" in st else good
-        forgive = _prob(f"{sk}.forgive", st.get("forgive", 0.0))
-        forgive_to = target(f"{sk}.forgive_to", st["forgive_to"]) if "forgive_to" in st else good
-        lapse = _prob(f"{sk}.lapse", st.get("lapse", 0.0))
-        lapse_to = target(f"{sk}.lapse_to", st["lapse_to"]) if "lapse_to" in st else bad
-        cheat = _prob(f"{sk}.cheat", st.get("cheat", 0.0))
-        if "collusive" in st:
-            c = st["collusive"]
-            if not isinstance(c, bool | np.bool_):
-                raise InputError(f"{sk}.collusive", f"must be true or false, got {_fmt(c)}")
-            collusive = bool(c)
-        else:
-            collusive = action == coll_level
-        rows.append(StateRow(n, action, watch, expect, judge, threshold, good, bad, forgive, forgive_to, lapse,
-                             lapse_to, cheat, collusive))
-    if initial is None:
-        init = 0
-    else:
-        init = target(f"{prefix}.initial", initial)
-    cl = check_level(f"{prefix}.cheat_action", cheat_level)
-    cf = _int(f"{prefix}.start", cheat_from, 0)
-    cu = None if cheat_until is None else _int(f"{prefix}.stop", cheat_until, cf + 1)
-    return AutomatonTable(tuple(rows), init, cl, cf, cu)
-
-
-def _int(key: str, v: Any, low: int) -> int:
-    if isinstance(v, bool) or not isinstance(v, numbers.Real) or not float(v).is_integer() or v < low:
-        raise InputError(key, f"must be an integer >= {low}, got {_fmt(v)}")
-    return int(v)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -327,21 +52,71 @@ class Automaton(Parametrized):
     _collude_param: str | None = "collude"
 
     def states(self, p: dict, ctx: FirmContext | None = None) -> dict:  # pragma: no cover - interface
-        """The state table, built from the validated parameters ``p`` (``ctx``: the market and seat,
-        when compiling; strategies whose table does not depend on the market ignore it)."""
+        """The state table (format in :mod:`strategies.table`), built from the validated parameters.
+
+        Parameters
+        ----------
+        p : dict
+            The validated parameters (``self._check_params()``).
+        ctx : FirmContext, optional
+            The market's levels and the firm's seat, when compiling against a market; strategies whose
+            table does not depend on the market ignore it.
+
+        Returns
+        -------
+        dict
+            State name -> state keys.
+        """
         raise NotImplementedError
 
     def initial(self, p: dict) -> str | None:
-        """Name of the initial state (default: the first)."""
+        """Name of the initial state.
+
+        Parameters
+        ----------
+        p : dict
+            The validated parameters.
+
+        Returns
+        -------
+        str or None
+            None for the table's first state (the default).
+        """
         return None
 
     def cheat(self, p: dict) -> tuple[Any, int, int | None]:
-        """Cheating level and the window ``[start, stop)`` of periods in which state ``cheat``
-        probabilities apply (default: the best deviation, from period 0 on)."""
+        """The cheating level and the periods in which the states' ``cheat`` probabilities apply.
+
+        Parameters
+        ----------
+        p : dict
+            The validated parameters.
+
+        Returns
+        -------
+        level : level
+            Played when cheating (default ``"deviation"``, the best one-shot deviation).
+        start : int
+            First period (0-based) of the window (default 0).
+        stop : int or None
+            Period from which the window is closed (default None: never).
+        """
         return "deviation", 0, None
 
     def table(self, prefix: str = "strategy", ctx: FirmContext | None = None) -> AutomatonTable:
-        """Validate the parameters and return the automaton as a validated table."""
+        """Validate the parameters and return the automaton as a validated table.
+
+        Parameters
+        ----------
+        prefix : str
+            Key path of the strategy, for error messages (e.g. ``strategies[2]``).
+        ctx : FirmContext, optional
+            The market's levels and the firm's seat (see :meth:`states`).
+
+        Returns
+        -------
+        AutomatonTable
+        """
         p = self._check_params(prefix)
         lvl, start, stop = self.cheat(p)
         coll = p.get(self._collude_param, "collusive") if self._collude_param else "collusive"
@@ -352,7 +127,13 @@ class Automaton(Parametrized):
         return validate_table(states, self.initial(p), lvl, start, stop, coll, prefix)
 
     def to_dict(self) -> dict:
-        """The strategy as an experiment-file entry (``strategy = name`` plus parameters)."""
+        """The strategy as an experiment-file entry.
+
+        Returns
+        -------
+        dict
+            ``strategy`` (the registry name) and the parameters that are set, as plain data.
+        """
         out = {"strategy": self.name}
         for k, v in self.get_params().items():
             if v is not None:
@@ -369,16 +150,20 @@ class Automaton(Parametrized):
 class StageLevels:
     """Named action profiles of a market's stage game, for resolving strategy levels.
 
-    Attributes
+    Parameters
     ----------
     profiles : dict of str to ndarray of shape (n_products,)
         ``collusive``, ``nash``, ``deviation`` (each product's best one-shot deviation against the
         agreement) and, when it can be computed, ``punishment`` (the stick-and-carrot punishment
         profile). A missing entry is computed on first use by ``lazy``.
     owner : int64 ndarray of shape (n_products,)
+        Firm owning each product.
     n_firms : int
+        Number of firms.
     quantity_setting : bool
+        True when actions are quantities (Cournot), False for prices.
     capacity : ndarray of shape (n_products,)
+        Capacity of each product (``inf``: none).
     firm_profits : dict of str to ndarray of shape (n_firms,)
         ``collusive``, ``nash`` and ``deviation`` per-period profits per firm.
     lazy : dict of str to callable
@@ -398,9 +183,23 @@ class StageLevels:
 
     @property
     def n_products(self) -> int:
+        """Number of products."""
         return int(self.owner.shape[0])
 
     def profile(self, name: str, key: str) -> np.ndarray:
+        """The action profile of a named level, computed on first use when it is lazy.
+
+        Parameters
+        ----------
+        name : str
+            One of :data:`~strategies.table.LEVEL_NAMES`.
+        key : str
+            Key path naming where the level was asked for, for error messages.
+
+        Returns
+        -------
+        ndarray of shape (n_products,)
+        """
         if name not in self.profiles:
             if name not in self.lazy:  # pragma: no cover - every name has a source
                 raise InputError(key, f"level {name!r} is not available for this market")
@@ -408,7 +207,19 @@ class StageLevels:
         return self.profiles[name]
 
     def resolve(self, key: str, level: Any) -> np.ndarray:
-        """The action profile of a (validated) level."""
+        """The action profile of a (validated) level.
+
+        Parameters
+        ----------
+        key : str
+            Key path of the level, for error messages.
+        level : str, float or tuple of float
+            A named level, one number for every product, or one number per product.
+
+        Returns
+        -------
+        ndarray of shape (n_products,)
+        """
         if isinstance(level, str):
             return self.profile(level, key)
         if isinstance(level, float):
@@ -428,7 +239,15 @@ class StageLevels:
 
 @dataclass(frozen=True)
 class FirmContext:
-    """What a strategy may look at when it builds its table: the market's levels and its seat."""
+    """What a strategy may look at when it builds its table: the market's levels and its seat.
+
+    Parameters
+    ----------
+    levels : StageLevels
+        The market's named profiles and per-firm profits.
+    firm : int
+        The seat (0-based) the strategy plays.
+    """
 
     levels: StageLevels
     firm: int
@@ -438,16 +257,24 @@ class FirmContext:
 class CompiledLineup:
     """A line-up compiled to the arrays the kernels play (layout in :mod:`strategies.step`).
 
-    Attributes
+    Parameters
     ----------
     states : int64 ndarray of shape (n_firms, S, N_STATE_INT)
+        Integer fields of each firm's states.
     probs : float64 ndarray of shape (n_firms, S, N_STATE_FLT)
+        Float fields of each firm's states.
     firms : int64 ndarray of shape (n_firms, N_FIRM_INT)
+        Per-firm fields.
     levels : float64 ndarray of shape (n_firms, L, n_products)
+        Action profile of each firm's levels (nan beyond the firm's own levels).
     names : tuple of str
         Registry name of each firm's strategy.
     state_names : tuple of tuple of str
+        Each firm's state names.
     tables : tuple of AutomatonTable
+        Each firm's validated table.
+    strategies : tuple of Automaton
+        The strategies, in seat order.
     watches_conduct : bool
         Whether any firm watches conduct (perception errors only act on those).
     """
@@ -464,19 +291,34 @@ class CompiledLineup:
 
     @property
     def n_firms(self) -> int:
+        """Number of firms."""
         return int(self.firms.shape[0])
 
 
-def compile_lineup(lineup: Sequence, levels: StageLevels, prefix: str = "strategies") -> CompiledLineup:
-    """Compile one strategy per firm (seat order) against the stage game's levels.
+class _FirmLevels:
+    """The levels one firm's table uses, in order of first use; the named levels come first, so that
+    their indices are the same for every firm."""
 
-    Parameters
-    ----------
-    lineup : sequence of Automaton, length n_firms
-    levels : StageLevels
-    prefix : str
-        Key prefix of error messages; entry ``i`` is named ``prefix[i+1]``.
-    """
+    def __init__(self, levels: StageLevels, prefix: str):
+        self.stage = levels
+        self.used: list = []
+        self.profiles: list = []
+        for name in ("collusive", "nash", "deviation"):
+            self.index(name, prefix)
+
+    def index(self, level, key: str) -> int:
+        for k, lv in enumerate(self.used):
+            if lv == level:
+                return k
+        prof = self.stage.resolve(key, level)
+        if not np.all(np.isfinite(prof)):
+            raise InputError(key, f"level {level!r} is not defined for this market")
+        self.used.append(level)
+        self.profiles.append(prof)
+        return len(self.used) - 1
+
+
+def _tables(lineup: Sequence, levels: StageLevels, prefix: str) -> list:
     if not isinstance(lineup, Sequence) or isinstance(lineup, str):
         raise InputError(prefix, f"must be a list of strategies, got {lineup!r}")
     n = levels.n_firms
@@ -488,54 +330,56 @@ def compile_lineup(lineup: Sequence, levels: StageLevels, prefix: str = "strateg
         if not isinstance(strat, Automaton):
             raise InputError(f"{prefix}[{i + 1}]", f"must be an automaton strategy, got {strat!r}")
         tables.append(strat.table(f"{prefix}[{i + 1}]", FirmContext(levels, i)))
-    S_max = max(len(t.rows) for t in tables)
-    per_firm_levels = []
-    for i in range(len(tables)):
+    return tables
+
+
+def _level_indices(tables: list, firm_levels: list, prefix: str) -> list:
+    """Per firm: the (action, expected) level index of each state, and the cheating level's index."""
+    out = []
+    for i, t in enumerate(tables):
         pk = f"{prefix}[{i + 1}]"
-        table_levels: list = []
-        profs: list = []
+        fl = firm_levels[i]
+        rows = []
+        for row in t.rows:
+            sk = f"{pk}.states.{row.name}"
+            a = fl.index(row.action, f"{sk}.action")
+            e = fl.index(row.expect, f"{sk}.expect") if row.watch in ("all", "rivals") else -1
+            rows.append((a, e))
+        out.append((rows, fl.index(t.cheat_level, f"{pk}.cheat_action")))
+    return out
 
-        def idx(level, key, table_levels=table_levels, profs=profs):
-            for k, lv in enumerate(table_levels):
-                if lv == level:
-                    return k
-            prof = levels.resolve(key, level)
-            if not np.all(np.isfinite(prof)):
-                raise InputError(key, f"level {level!r} is not defined for this market")
-            table_levels.append(level)
-            profs.append(prof)
-            return len(table_levels) - 1
 
-        # named levels first so that their indices are the same for every firm
-        for name in ("collusive", "nash", "deviation"):
-            idx(name, pk)
-        per_firm_levels.append((table_levels, profs, idx))
-    L_max = 0
+def compile_lineup(lineup: Sequence, levels: StageLevels, prefix: str = "strategies") -> CompiledLineup:
+    """Compile one strategy per firm (seat order) against the stage game's levels.
+
+    Parameters
+    ----------
+    lineup : sequence of Automaton, length n_firms
+        The strategies, in seat order.
+    levels : StageLevels
+        The market's named profiles.
+    prefix : str
+        Key prefix of error messages; entry ``i`` is named ``prefix[i+1]``.
+
+    Returns
+    -------
+    CompiledLineup
+    """
+    tables = _tables(lineup, levels, prefix)
+    n = len(tables)
+    firm_levels = [_FirmLevels(levels, f"{prefix}[{i + 1}]") for i in range(n)]
+    indices = _level_indices(tables, firm_levels, prefix)
+    S_max = max(len(t.rows) for t in tables)
     st = np.zeros((n, S_max, S.N_STATE_INT), dtype=np.int64)
     pr = np.zeros((n, S_max, S.N_STATE_FLT), dtype=np.float64)
     fi = np.zeros((n, S.N_FIRM_INT), dtype=np.int64)
-    rows_idx = []
+    lv = np.full((n, max(len(fl.profiles) for fl in firm_levels), levels.n_products), np.nan)
     for i, t in enumerate(tables):
-        pk = f"{prefix}[{i + 1}]"
-        _, profs, idx = per_firm_levels[i]
-        r_i = []
-        for row in t.rows:
-            sk = f"{pk}.states.{row.name}"
-            a = idx(row.action, f"{sk}.action")
-            watching = row.watch in ("all", "rivals")
-            e = idx(row.expect, f"{sk}.expect") if watching else -1
-            r_i.append((a, e))
-        cl = idx(t.cheat_level, f"{pk}.cheat_action")
-        rows_idx.append((r_i, cl))
-        L_max = max(L_max, len(profs))
-    lv = np.full((n, L_max, levels.n_products), np.nan)
-    for i, t in enumerate(tables):
-        _, profs, _ = per_firm_levels[i]
-        for k, prof in enumerate(profs):
+        for k, prof in enumerate(firm_levels[i].profiles):
             lv[i, k] = prof
-        r_i, cl = rows_idx[i]
+        rows, cl = indices[i]
         for s, row in enumerate(t.rows):
-            a, e = r_i[s]
+            a, e = rows[s]
             st[i, s] = (a, e, JUDGES[row.judge], WATCHES[row.watch], row.good, row.bad, row.forgive_to,
                         row.lapse_to, int(row.collusive))
             # the array slots are ordered (ALT_GOOD, ALT_BAD): forgiveness acts on bad signals
@@ -552,8 +396,20 @@ def compile_lineup(lineup: Sequence, levels: StageLevels, prefix: str = "strateg
 
 
 def check_compiled(states: np.ndarray, probs: np.ndarray, firms: np.ndarray, levels: np.ndarray) -> None:
-    """Structural checks of compiled arrays (raises ValueError): dtypes, shapes, state and level
-    indices in range, probabilities in [0, 1]. Run once per compile, never inside the kernel."""
+    """Structural checks of compiled arrays: dtypes, shapes, state and level indices in range, probabilities
+    in [0, 1]. Run once per compile, never inside the kernel; a failure raises ValueError.
+
+    Parameters
+    ----------
+    states : int64 ndarray of shape (n_firms, S, N_STATE_INT)
+        Integer fields of each firm's states.
+    probs : float64 ndarray of shape (n_firms, S, N_STATE_FLT)
+        Float fields of each firm's states.
+    firms : int64 ndarray of shape (n_firms, N_FIRM_INT)
+        Per-firm fields.
+    levels : float64 ndarray of shape (n_firms, L, n_products)
+        Action profile of each firm's levels.
+    """
     if states.dtype != np.int64 or firms.dtype != np.int64 or probs.dtype != np.float64 or levels.dtype != np.float64:
         raise ValueError("compiled line-up arrays have the wrong dtypes")
     n, s_max, _ = states.shape

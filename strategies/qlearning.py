@@ -49,9 +49,28 @@ class ActionGrid(Constraint):
     """A strictly increasing list of at least two finite, non-negative actions."""
 
     def describe(self) -> str:
+        """What the constraint allows, in words (for error messages).
+
+        Returns
+        -------
+        str
+        """
         return "a strictly increasing list of at least 2 non-negative numbers"
 
     def check(self, key: str, value: Any) -> np.ndarray:
+        """The grid as a float array.
+
+        Parameters
+        ----------
+        key : str
+            Key path of the value, for the error message.
+        value : object
+            The value as given.
+
+        Returns
+        -------
+        ndarray of shape (m,)
+        """
         if isinstance(value, np.ndarray):
             value = value.tolist()
         if not isinstance(value, Sequence) or isinstance(value, str):
@@ -70,6 +89,12 @@ class ActionGrid(Constraint):
         return out
 
     def example_bad(self) -> Any:
+        """A grid of one action.
+
+        Returns
+        -------
+        object
+        """
         return [1.0]
 
 
@@ -77,9 +102,28 @@ class QInit(Constraint):
     """``"uniform"``, ``"zeros"`` or an array of initial Q-values."""
 
     def describe(self) -> str:
+        """What the constraint allows, in words (for error messages).
+
+        Returns
+        -------
+        str
+        """
         return "'uniform', 'zeros' or an array of shape (n_states, m) or (m,)"
 
     def check(self, key: str, value: Any) -> str | np.ndarray:
+        """The kind, or the given values as a float array.
+
+        Parameters
+        ----------
+        key : str
+            Key path of the value, for the error message.
+        value : object
+            The value as given.
+
+        Returns
+        -------
+        str or ndarray of shape (n_states, m) or (m,)
+        """
         if isinstance(value, str):
             if value not in INIT_KINDS:
                 raise InputError(key, f"must be {self.describe()}, got {value!r}")
@@ -95,6 +139,12 @@ class QInit(Constraint):
         return arr
 
     def example_bad(self) -> Any:
+        """An initialisation that is not offered.
+
+        Returns
+        -------
+        object
+        """
         return "optimistic"
 
 
@@ -103,6 +153,17 @@ def published_grid(nash: float, collusive: float, m: int, xi: float) -> np.ndarr
     ``lo - xi (hi - lo)`` to ``hi + xi (hi - lo)``, where ``lo`` and ``hi`` are the smaller and the
     larger of the static-Nash and the collusive action. Negative points are raised to zero (a price
     or a quantity cannot be negative).
+
+    Parameters
+    ----------
+    nash : float
+        The firm's static-Nash action.
+    collusive : float
+        The firm's collusive action.
+    m : int
+        Number of grid points.
+    xi : float
+        Widening beyond the two actions, as a share of the distance between them.
 
     Returns
     -------
@@ -117,13 +178,18 @@ def published_grid(nash: float, collusive: float, m: int, xi: float) -> np.ndarr
 class CompiledLearner:
     """A learner resolved against a market: what the kernel needs.
 
-    Attributes
+    Parameters
     ----------
     grid : ndarray of shape (m,)
         The actions (prices or quantities), increasing.
     k : int
         Memory: the state is the action profile of the last ``k`` periods.
-    alpha, beta, delta : float
+    alpha : float
+        Learning rate.
+    beta : float
+        Exploration decay.
+    delta : float
+        The learner's discount factor.
     init : str or ndarray
         ``"uniform"``, ``"zeros"``, or the given array (checked against the line-up's state count by
         the learning driver).
@@ -138,10 +204,17 @@ class CompiledLearner:
 
     @property
     def m(self) -> int:
+        """Number of actions."""
         return int(self.grid.size)
 
     def to_dict(self) -> dict:
-        """Plain description (the grid as a list; a given initial array as ``"given"``)."""
+        """Plain description (the grid as a list; a given initial array as ``"given"``).
+
+        Returns
+        -------
+        dict
+            ``alpha``, ``beta``, ``delta``, ``k``, ``m``, ``init`` and ``grid``.
+        """
         return {"alpha": self.alpha, "beta": self.beta, "delta": self.delta, "k": self.k, "m": self.m,
                 "init": self.init if isinstance(self.init, str) else "given", "grid": self.grid.tolist()}
 
@@ -208,8 +281,18 @@ class QLearner(Parametrized):
     def spec(self, n_firms: int | None = None, prefix: str = "") -> dict[str, Any]:
         """Validate every parameter; return the normalised values (``m`` filled in).
 
-        ``n_firms`` is accepted for the interface shared with the other parametrised classes and
-        not used: a learner's parameters do not depend on the number of firms.
+        Parameters
+        ----------
+        n_firms : int, optional
+            Accepted for the interface shared with the other parametrised classes and not used: a
+            learner's parameters do not depend on the number of firms.
+        prefix : str
+            Key path of the learner, for error messages.
+
+        Returns
+        -------
+        dict
+            The validated parameters, ``m`` filled in.
 
         Raises
         ------

@@ -13,6 +13,7 @@ from collections.abc import Sequence
 import strategies.automata as automata
 from sim.core.errors import InputError
 from strategies.base import Automaton
+from strategies.custom import TableAutomaton
 from strategies.qlearning import QLearner
 
 __all__ = ["LAZY", "MAX_SEATS", "STRATEGIES", "check_seats", "lineup_from_tables", "register", "strategy_class",
@@ -27,17 +28,28 @@ STRATEGIES: dict[str, type] = {}
 LAZY: dict[str, str] = {}
 
 
-def register(cls: type) -> type:
-    """Add a strategy class to the registry under ``cls.name`` (usable as a decorator)."""
-    if not getattr(cls, "name", ""):
-        raise ValueError(f"{cls.__name__} has no registry name")
-    STRATEGIES[cls.name] = cls
-    return cls
+def register(strategy_type: type) -> type:
+    """Add a strategy class to the registry under its ``name`` (usable as a decorator).
+
+    Parameters
+    ----------
+    strategy_type : type
+        A strategy class with a registry ``name``.
+
+    Returns
+    -------
+    type
+        ``strategy_type`` itself.
+    """
+    if not getattr(strategy_type, "name", ""):
+        raise ValueError(f"{strategy_type.__name__} has no registry name")
+    STRATEGIES[strategy_type.name] = strategy_type
+    return strategy_type
 
 
 for _cls in (automata.GrimTrigger, automata.FinitePunishment, automata.TitForTat, automata.ForgivingTitForTat,
              automata.WinStayLoseShift, automata.StickAndCarrot, automata.TriggerPrice, automata.AlwaysCompete,
-             automata.AlwaysCollude, automata.Opportunist, automata.TableAutomaton):
+             automata.AlwaysCollude, automata.Opportunist, TableAutomaton):
     register(_cls)
 
 
@@ -46,11 +58,30 @@ LEARNERS: dict[str, type] = {QLearner.name: QLearner}
 
 
 def known_names() -> list[str]:
+    """Every registry name, the lazily imported ones included.
+
+    Returns
+    -------
+    list of str
+        Sorted.
+    """
     return sorted(set(STRATEGIES) | set(LAZY))
 
 
 def strategy_class(name, key: str = "strategy") -> type:
-    """The class registered under ``name``; an unknown name raises InputError listing the known ones."""
+    """The class registered under ``name``; an unknown name raises InputError listing the known ones.
+
+    Parameters
+    ----------
+    name : str
+        Registry name.
+    key : str
+        Key path of the name, for the error message.
+
+    Returns
+    -------
+    type
+    """
     if isinstance(name, str) and name not in STRATEGIES and name in LAZY:
         mod, _, attr = LAZY[name].partition(":")
         register(getattr(importlib.import_module(mod), attr))
@@ -64,6 +95,18 @@ def strategy_from_dict(table: dict, prefix: str = "strategy") -> Automaton:
 
     Unknown parameter names raise InputError naming ``prefix.key`` and the allowed names. ``seats`` is
     not a strategy parameter (see :func:`lineup_from_tables`).
+
+    Parameters
+    ----------
+    table : dict
+        ``strategy`` (a registry name) and the strategy's parameters.
+    prefix : str
+        Key path of the entry, for error messages.
+
+    Returns
+    -------
+    Automaton
+        The strategy, its parameters validated.
     """
     if not isinstance(table, dict):
         raise InputError(prefix, f"must be a table with a 'strategy' key, got {table!r}")
@@ -87,7 +130,19 @@ def strategy_from_dict(table: dict, prefix: str = "strategy") -> Automaton:
 
 def check_seats(key: str, seats) -> int:
     """The ``seats`` of a line-up entry: an integer in ``[1, MAX_SEATS]``. Every reader of line-ups
-    (simulations, learning sessions) uses this, and then compares the total with the market's firms."""
+    (simulations, learning sessions) uses this, and then compares the total with the market's firms.
+
+    Parameters
+    ----------
+    key : str
+        Key path of the value, for the error message.
+    seats : int
+        The value as given.
+
+    Returns
+    -------
+    int
+    """
     if isinstance(seats, bool) or not isinstance(seats, numbers.Integral) or not 1 <= seats <= MAX_SEATS:
         raise InputError(key, f"must be an integer in [1, {MAX_SEATS}], got {seats!r}")
     return int(seats)
@@ -95,7 +150,22 @@ def check_seats(key: str, seats) -> int:
 
 def lineup_from_tables(tables, n_firms: int | None = None, prefix: str = "strategies") -> list:
     """Expand ``[[strategies]]`` entries (each with an optional ``seats``, default 1) into one strategy
-    per firm, in seat order. With ``n_firms`` the total number of seats must match it."""
+    per firm, in seat order. With ``n_firms`` the total number of seats must match it.
+
+    Parameters
+    ----------
+    tables : list of dict
+        The entries (see :func:`strategy_from_dict`), each with an optional ``seats``.
+    n_firms : int, optional
+        The market's number of firms.
+    prefix : str
+        Key path of the list, for error messages; entry ``k`` is ``prefix[k+1]``.
+
+    Returns
+    -------
+    list of Automaton
+        One strategy per seat (clones for repeated seats).
+    """
     if not isinstance(tables, Sequence) or isinstance(tables, str | dict) or not tables:
         raise InputError(prefix, "must be a non-empty list of [[strategies]] entries")
     out = []

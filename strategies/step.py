@@ -92,9 +92,32 @@ FOREVER = np.int64(2**62)
 def choose_level(i, s, t, states, probs, firms, rng):
     """Level firm ``i`` plays in state ``s`` at period ``t`` (0-based).
 
-    Returns ``(level, cheated)``. Draws one uniform from ``rng`` (uint64 array of length 4, advanced in
-    place) only when the state's cheat probability is strictly between 0 and 1 and ``t`` is in the
-    firm's cheat window.
+    Draws one uniform from ``rng`` only when the state's cheat probability is strictly between 0 and 1
+    and ``t`` is in the firm's cheat window.
+
+    Parameters
+    ----------
+    i : int
+        The firm.
+    s : int
+        Its current state.
+    t : int
+        The period, counted from 0.
+    states : int64 ndarray of shape (n_firms, S, N_STATE_INT)
+        Integer fields of the line-up's states.
+    probs : float64 ndarray of shape (n_firms, S, N_STATE_FLT)
+        Float fields of the line-up's states.
+    firms : int64 ndarray of shape (n_firms, N_FIRM_INT)
+        Per-firm fields (cheating level and window).
+    rng : uint64 ndarray of shape (4,)
+        The replication's generator state, advanced in place.
+
+    Returns
+    -------
+    level : int
+        Index of the level played (into ``levels[i]``).
+    cheated : bool
+        Whether the firm played its cheating level.
     """
     p = probs[i, s, P_CHEAT]
     if p > 0.0 and t >= firms[i, CHEAT_FROM] and t < firms[i, CHEAT_UNTIL]:
@@ -107,8 +130,33 @@ def choose_level(i, s, t, states, probs, firms, rng):
 
 @njit(cache=True, _nrt=False, inline="always")
 def firm_complies(i, s, j, actions, owner, states, levels, quantity_setting):
-    """Whether firm ``j``'s products in ``actions`` (shape (n_products,)) comply with what firm ``i``
-    expects in state ``s``. A state without expectation (``EXPECT < 0``) finds everyone compliant."""
+    """Whether firm ``j``'s products comply with what firm ``i`` expects in state ``s``.
+
+    A state without expectation (``EXPECT < 0``) finds everyone compliant.
+
+    Parameters
+    ----------
+    i : int
+        The judging firm.
+    s : int
+        Its current state.
+    j : int
+        The judged firm.
+    actions : float64 ndarray of shape (n_products,)
+        Actions played this period.
+    owner : int64 ndarray of shape (n_products,)
+        Firm owning each product.
+    states : int64 ndarray of shape (n_firms, S, N_STATE_INT)
+        Integer fields of the line-up's states.
+    levels : float64 ndarray of shape (n_firms, L, n_products)
+        Action profile of each firm's levels.
+    quantity_setting : bool
+        True when actions are quantities (more is more aggressive), False for prices (less is).
+
+    Returns
+    -------
+    bool
+    """
     e_level = states[i, s, EXPECT]
     if e_level < 0:
         return True
@@ -131,10 +179,16 @@ def firm_complies(i, s, j, actions, owner, states, levels, quantity_setting):
 @njit(cache=True, _nrt=False, inline="always")
 def bad_signal(i, s, n_firms, actions, owner, market_price, own_profit, perception_error, states, probs,
                levels, quantity_setting, rng):
-    """The binary signal firm ``i`` in state ``s`` receives at the end of a period: True when bad.
+    """The binary signal firm ``i`` in state ``s`` receives at the end of a period.
 
     Parameters
     ----------
+    i : int
+        The firm.
+    s : int
+        Its state at the start of the period.
+    n_firms : int
+        Number of firms.
     actions : ndarray of shape (n_products,)
         Actions played this period (after cheating and implementation errors).
     owner : int64 ndarray of shape (n_products,)
@@ -145,8 +199,21 @@ def bad_signal(i, s, n_firms, actions, owner, market_price, own_profit, percepti
         Firm ``i``'s profit this period.
     perception_error : float
         Probability of misreading each rival's conduct (conduct signals only).
+    states : int64 ndarray of shape (n_firms, S, N_STATE_INT)
+        Integer fields of the line-up's states.
+    probs : float64 ndarray of shape (n_firms, S, N_STATE_FLT)
+        Float fields of the line-up's states (thresholds).
+    levels : float64 ndarray of shape (n_firms, L, n_products)
+        Action profile of each firm's levels (the expected conduct).
+    quantity_setting : bool
+        True when actions are quantities, False for prices.
     rng : uint64 ndarray of shape (4,)
         The replication's generator state, advanced in place by the perception draws.
+
+    Returns
+    -------
+    bool
+        True when the signal is bad.
     """
     w = states[i, s, WATCH]
     if w == WATCH_NOTHING:
@@ -173,8 +240,30 @@ def bad_signal(i, s, n_firms, actions, owner, market_price, own_profit, percepti
 
 @njit(cache=True, _nrt=False, inline="always")
 def next_state(i, s, bad, states, probs, rng):
-    """Next state of firm ``i`` from state ``s`` after a good (``bad=False``) or bad signal. Draws one
-    uniform only when the alternative-state probability is strictly between 0 and 1."""
+    """Next state of firm ``i`` from state ``s`` after a good or a bad signal.
+
+    Draws one uniform only when the alternative-state probability is strictly between 0 and 1.
+
+    Parameters
+    ----------
+    i : int
+        The firm.
+    s : int
+        Its state at the start of the period.
+    bad : bool
+        Whether the signal was bad.
+    states : int64 ndarray of shape (n_firms, S, N_STATE_INT)
+        Integer fields of the line-up's states (transitions).
+    probs : float64 ndarray of shape (n_firms, S, N_STATE_FLT)
+        Float fields of the line-up's states (alternative-state probabilities).
+    rng : uint64 ndarray of shape (4,)
+        The replication's generator state, advanced in place.
+
+    Returns
+    -------
+    int
+        The next state.
+    """
     if bad:
         nxt, alt, p = states[i, s, BAD], states[i, s, ALT_BAD], probs[i, s, P_ALT_BAD]
     else:

@@ -7,8 +7,8 @@ on one thread, on more threads and for the plain-Python reference (:mod:`sim.sim
 of the same workload, whose results are checked to be identical to the kernel's), their ratios, and
 the peak memory of a fresh process running the workload with 1x and 10x the periods.
 
-``matches`` -- many small matches through the lower-level entry (:func:`sim.simulation.engine.compile_game` and
-:func:`sim.simulation.engine.run_game`), as a tournament plays them: ten strategies, every pairing in a duopoly
+``matches`` -- many small matches through the lower-level entry (:func:`sim.simulation.game.compile_game` and
+:func:`sim.simulation.driver.run_game`), as a tournament plays them: ten strategies, every pairing in a duopoly
 (55 matches), 1,000 replications of 1,000 periods each, and the fixed cost of one call.
 """
 

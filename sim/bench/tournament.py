@@ -15,7 +15,7 @@ from sim.core.rng import stream_states
 from sim.models.demand import LinearDemand
 from sim.models.market import Market
 from sim.models.monitoring import Monitoring
-from sim.simulation.engine import RawRun
+from sim.simulation.driver import RawRun, kernel_groups
 from sim.simulation.twin import reference_run
 from sim.tournament.roundrobin import (
     EVOLUTION_DEFAULTS,
@@ -40,7 +40,7 @@ def _bench_entrants() -> list[Entrant]:
 
 def _kernel_seconds(plan: TournamentPlan, threads: int | None) -> tuple[float, list]:
     """Seconds spent inside the engine kernel for every match of an automata-only plan: the arguments are
-    prepared outside the timed calls exactly as :func:`sim.simulation.engine.run_game` prepares them (one batch)."""
+    prepared outside the timed calls exactly as :func:`sim.simulation.driver.run_game` prepares them (one batch)."""
 
     run = plan.run
     P, R = run["periods"], run["replications"]
@@ -51,19 +51,15 @@ def _kernel_seconds(plan: TournamentPlan, threads: int | None) -> tuple[float, l
         chunks = max(1, min(4 * n_threads, R))
         for m in plan.matches:
             g = m.game
-            mk, lu, mon = g.arrays, g.lineup, g.monitoring
-            raw = RawRun.empty(R, mk.n_firms, mk.n_products, P, 0)
+            raw = RawRun.empty(R, g.arrays.n_firms, g.arrays.n_products, P, 0)
             hist = np.zeros((chunks, K.N_HIST, P + 1), dtype=np.int64)
             by_period = np.zeros((chunks, P), dtype=np.int64)
             status = np.zeros(chunks, dtype=np.int64)
             starts = np.linspace(0, R, chunks + 1).round().astype(np.int64)
             rng = stream_states(run["seed"], (*key, m.index), 0, R)
-            args = (starts, rng, 0, mk.code, mk.scalars, mk.vector, mk.cost, mk.capacity, mk.owner, mk.n_firms,
-                    mk.quantity_setting, lu.states, lu.probs, lu.firms, lu.levels, g.tremble, mon["noise_code"],
-                    mon["sigma"], mon["perception_error"], mon["implementation_error"], P, run["delta"],
-                    run["horizon"] == "random", run["continuation"], 0, raw.profit_sum, raw.disc, raw.ints, raw.flts,
-                    hist, by_period, raw.path_actions, raw.path_prices, raw.path_market, raw.path_profit,
-                    raw.path_state, raw.path_flags, raw.path_collude, status)
+            args = (K.Batch(starts, rng, 0),
+                    *kernel_groups(g, P, run["delta"], run["horizon"], run["continuation"], 0),
+                    raw.totals(0, R, hist, by_period, status), raw.path_buffers())
             t0 = time.perf_counter()
             K.simulate_chunks(*args)
             total += time.perf_counter() - t0

@@ -47,13 +47,38 @@ class Constraint:
     """Base class: ``check(key, value)`` returns the normalised value or raises InputError."""
 
     def check(self, key: str, value: Any) -> Any:  # pragma: no cover - interface
+        """The value, normalised, or an :class:`InputError` naming ``key``.
+
+        Parameters
+        ----------
+        key : str
+            Key path of the value, for the error message (e.g. ``strategies[2].length``).
+        value : object
+            The value as given.
+
+        Returns
+        -------
+        object
+            The normalised value.
+        """
         raise NotImplementedError
 
     def describe(self) -> str:  # pragma: no cover - interface
+        """What the constraint allows, in words (for error messages).
+
+        Returns
+        -------
+        str
+        """
         raise NotImplementedError
 
     def example_bad(self) -> Any:
-        """A value this constraint must refuse (used by the common parameter test)."""
+        """A value this constraint must refuse (used by the common parameter test).
+
+        Returns
+        -------
+        object
+        """
         return "not-a-valid-value"
 
 
@@ -253,11 +278,28 @@ class Parametrized:
         ]
 
     def get_params(self) -> dict[str, Any]:
-        """Constructor arguments as a dict (values as stored, not validated)."""
+        """Constructor arguments as a dict (values as stored, not validated).
+
+        Returns
+        -------
+        dict
+            Argument name -> value.
+        """
         return {name: getattr(self, name) for name in self._param_names()}
 
     def set_params(self, **params: Any) -> Parametrized:
-        """Set constructor arguments in place; an unknown name raises :class:`InputError`."""
+        """Set constructor arguments in place; an unknown name raises :class:`InputError`.
+
+        Parameters
+        ----------
+        **params
+            Constructor arguments by name.
+
+        Returns
+        -------
+        Parametrized
+            The object itself.
+        """
         names = self._param_names()
         for k, v in params.items():
             if k not in names:
@@ -266,7 +308,18 @@ class Parametrized:
         return self
 
     def clone(self, **changes: Any) -> Parametrized:
-        """A new object with the same parameters, optionally changed."""
+        """A new object with the same parameters, optionally changed.
+
+        Parameters
+        ----------
+        **changes
+            Constructor arguments to change, by name.
+
+        Returns
+        -------
+        Parametrized
+            An object of the same class.
+        """
         params = self.get_params()
         params.update(changes)
         return type(self)(**params)

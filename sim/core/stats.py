@@ -47,8 +47,8 @@ def normal_quantile(confidence: float) -> float:
 
     Parameters
     ----------
-    confidence : float
-        In (0, 1).
+    confidence : float in (0, 1)
+        Level of a two-sided interval.
 
     Returns
     -------
@@ -63,10 +63,16 @@ def normal_quantile(confidence: float) -> float:
 class Estimate:
     """A point estimate with its standard error and confidence interval.
 
-    Attributes
+    Parameters
     ----------
-    value, se, low, high : float
-        ``nan`` when undefined (e.g. no spell ended).
+    value : float
+        The point estimate; ``nan`` when undefined (e.g. no spell ended).
+    se : float
+        Its standard error (``nan`` when undefined).
+    low : float
+        Lower end of the confidence interval (``nan`` when undefined).
+    high : float
+        Upper end of the confidence interval (``nan`` when undefined).
     n : int
         Number of independent observations behind it (replications, or spells).
     method : str
@@ -84,31 +90,63 @@ class Estimate:
     note: str = ""
 
     def to_dict(self) -> dict:
-        """The estimate as plain data.
+        """Plain data for JSON: nan is stored as None (:meth:`from_dict` restores it).
 
         Returns
         -------
         dict
+            ``value``, ``se``, ``low``, ``high`` (float or None), ``n``, ``method`` and, when there is
+            one, ``note``.
         """
-        out = {"value": self.value, "se": self.se, "low": self.low, "high": self.high, "n": self.n,
-               "method": self.method}
+        out = {"value": _plain(self.value), "se": _plain(self.se), "low": _plain(self.low), "high": _plain(self.high),
+               "n": int(self.n), "method": self.method}
         if self.note:
             out["note"] = self.note
         return out
 
-    def affine(self, a: float, b: float) -> Estimate:
-        """The estimate of ``a + b x``: the same affine map of the value and of the interval.
+    @classmethod
+    def from_dict(cls, doc: dict) -> Estimate:
+        """The estimate stored by :meth:`to_dict` (None read back as nan).
 
         Parameters
         ----------
-        a, b : float
+        doc : dict
+            Output of :meth:`to_dict`, possibly through JSON.
 
         Returns
         -------
         Estimate
         """
+        return cls(_number(doc["value"]), _number(doc["se"]), _number(doc["low"]), _number(doc["high"]), int(doc["n"]),
+                   str(doc["method"]), str(doc.get("note", "")))
+
+    def affine(self, a: float, b: float) -> Estimate:
+        """The estimate of ``a + b x``.
+
+        Parameters
+        ----------
+        a : float
+            Intercept.
+        b : float
+            Slope (a negative slope swaps the interval's ends).
+
+        Returns
+        -------
+        Estimate
+            Same ``n``, method and note; standard error ``|b| se``.
+        """
         lo, hi = sorted((a + b * self.low, a + b * self.high))
         return Estimate(a + b * self.value, abs(b) * self.se, lo, hi, self.n, self.method, self.note)
+
+
+def _plain(x: float) -> float | None:
+    """A float for JSON: None for nan (and for the infinities, which JSON cannot hold either)."""
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def _number(x) -> float:
+    return math.nan if x is None else float(x)
 
 
 def _interval(value: float, se: float, z: float) -> tuple[float, float]:
@@ -124,11 +162,13 @@ def mean_estimate(x, confidence: float = 0.95) -> Estimate:
     ----------
     x : array_like of shape (n,)
         One value per replication.
-    confidence : float
+    confidence : float in (0, 1)
+        Level of the interval.
 
     Returns
     -------
     Estimate
+        Method ``"mean"``; standard error ``s / sqrt(n)`` (nan for fewer than two values).
     """
     x = np.asarray(x, dtype=float)
     n = x.shape[0]
@@ -144,13 +184,17 @@ def wilson_estimate(k: int, n: int, confidence: float = 0.95) -> Estimate:
 
     Parameters
     ----------
-    k, n : int
-        Successes and trials.
-    confidence : float
+    k : int
+        Number of replications with the property.
+    n : int
+        Number of replications.
+    confidence : float in (0, 1)
+        Level of the interval.
 
     Returns
     -------
     Estimate
+        Method ``"wilson"``.
     """
     k, n = int(k), int(n)
     if n == 0:
@@ -171,13 +215,17 @@ def ratio_estimate(x, y, confidence: float = 0.95) -> Estimate:
 
     Parameters
     ----------
-    x, y : array_like of shape (n,)
-        Per-replication numerator and denominator.
-    confidence : float
+    x : array_like of shape (n,)
+        Numerator per replication (e.g. collusive periods).
+    y : array_like of shape (n,)
+        Denominator per replication (e.g. periods played).
+    confidence : float in (0, 1)
+        Level of the interval.
 
     Returns
     -------
     Estimate
+        Method ``"ratio"`` (nan when ``sum(y)`` is zero).
     """
     x = np.asarray(x, dtype=float)
     y = np.asarray(y, dtype=float)
@@ -195,21 +243,31 @@ def ratio_estimate(x, y, confidence: float = 0.95) -> Estimate:
     return Estimate(R, se, lo, hi, n, "ratio")
 
 
+_COUNT_FIELDS = ("lengths", "at_risk", "ended", "censored")
+
+
 @dataclass(frozen=True)
 class Survival:
     """A Kaplan-Meier survival curve of lengths (spells, wars, time to first breakdown).
 
-    Attributes
+    Parameters
     ----------
     lengths : int ndarray of shape (m,)
-        ``1 .. m``.
+        The lengths at which the curve is given: ``1 .. m``, or some of them after :meth:`thinned`.
     survival : ndarray of shape (m,)
         ``S(l)``: estimated probability that the length exceeds ``l``.
     se : ndarray of shape (m,)
         Pointwise standard error of ``S(l)`` (Greenwood's formula).
-    low, high : ndarray of shape (m,)
-        Pointwise confidence band ``S +- z se``, clipped to [0, 1].
-    at_risk, ended, censored : int ndarray of shape (m,)
+    low : ndarray of shape (m,)
+        Lower end of the pointwise confidence band ``S - z se``, clipped to [0, 1].
+    high : ndarray of shape (m,)
+        Upper end of the band ``S + z se``, clipped to [0, 1].
+    at_risk : int ndarray of shape (m,)
+        Observations of length at least ``l``.
+    ended : int ndarray of shape (m,)
+        Observations that ended at length ``l`` (after :meth:`thinned`: since the previous length kept).
+    censored : int ndarray of shape (m,)
+        Observations cut off at length ``l`` (grouped likewise).
     mean : Estimate
         Area under the curve (restricted mean).
     """
@@ -224,22 +282,72 @@ class Survival:
     censored: np.ndarray
     mean: Estimate
 
-    def to_dict(self, max_points: int = 200) -> dict:
-        """The curve as plain data, thinned to at most ``max_points`` lengths.
-
-        Parameters
-        ----------
-        max_points : int
+    def to_dict(self) -> dict:
+        """Every field as plain data (nan stored as None); :meth:`from_dict` restores the curve exactly.
 
         Returns
         -------
         dict
+            ``lengths``, ``survival``, ``se``, ``low``, ``high``, ``at_risk``, ``ended``, ``censored``
+            (lists, one entry per length) and ``mean`` (:meth:`Estimate.to_dict`).
+        """
+        out = {}
+        for k in ("lengths", "survival", "se", "low", "high", "at_risk", "ended", "censored"):
+            v = getattr(self, k).tolist()
+            out[k] = [int(x) for x in v] if k in _COUNT_FIELDS else [_plain(x) for x in v]
+        out["mean"] = self.mean.to_dict()
+        return out
+
+    @classmethod
+    def from_dict(cls, doc: dict) -> Survival:
+        """The curve stored by :meth:`to_dict`.
+
+        Parameters
+        ----------
+        doc : dict
+            Output of :meth:`to_dict`, possibly through JSON.
+
+        Returns
+        -------
+        Survival
+        """
+        def ints(k):
+            return np.asarray(doc[k], dtype=np.int64).reshape(-1)
+
+        def floats(k):
+            return np.array([_number(v) for v in doc[k]], dtype=float)
+
+        return cls(ints("lengths"), floats("survival"), floats("se"), floats("low"), floats("high"), ints("at_risk"),
+                   ints("ended"), ints("censored"), Estimate.from_dict(doc["mean"]))
+
+    def thinned(self, max_points: int = 200) -> Survival:
+        """The curve at no more than ``max_points`` lengths, evenly spread, the first and last included.
+
+        The curve, its standard error, band and number at risk are those at the kept lengths; the
+        counts of ended and cut-off observations are grouped, each kept length holding those since the
+        previous kept length, so their totals are unchanged. A curve with at most ``max_points``
+        lengths is returned as it is.
+
+        Parameters
+        ----------
+        max_points : int
+            Largest number of lengths kept.
+
+        Returns
+        -------
+        Survival
         """
         m = self.lengths.shape[0]
-        idx = np.unique(np.round(np.linspace(0, m - 1, min(m, max_points))).astype(int)) if m else np.zeros(0, int)
-        return {"lengths": self.lengths[idx].tolist(), "survival": self.survival[idx].tolist(),
-                "low": self.low[idx].tolist(), "high": self.high[idx].tolist(), "mean": self.mean.to_dict(),
-                "ended": int(self.ended.sum()), "censored": int(self.censored.sum())}
+        if m <= max_points:
+            return self
+        idx = np.unique(np.round(np.linspace(0, m - 1, max_points)).astype(int))
+        group = np.searchsorted(idx, np.arange(m))  # kept length that each length's counts go to
+
+        def grouped(x):
+            return np.bincount(group, weights=x, minlength=idx.shape[0]).astype(np.int64)
+
+        return Survival(self.lengths[idx], self.survival[idx], self.se[idx], self.low[idx], self.high[idx],
+                        self.at_risk[idx], grouped(self.ended), grouped(self.censored), self.mean)
 
 
 def kaplan_meier(ended, censored, confidence: float = 0.95, restrict: int | None = None) -> Survival:
@@ -247,9 +355,12 @@ def kaplan_meier(ended, censored, confidence: float = 0.95, restrict: int | None
 
     Parameters
     ----------
-    ended, censored : int array_like of shape (L + 1,)
-        Entry ``l`` counts observations of length ``l`` (entry 0 unused).
-    confidence : float
+    ended : int array_like of shape (L + 1,)
+        Entry ``l`` counts observations that ended at length ``l`` (entry 0 unused).
+    censored : int array_like of shape (L + 1,)
+        Entry ``l`` counts observations cut off at length ``l`` (entry 0 unused).
+    confidence : float in (0, 1)
+        Level of the pointwise band and of the mean's interval.
     restrict : int, optional
         Upper limit of the restricted mean (default: the longest observation).
 

@@ -54,7 +54,21 @@ def _weights(run: dict) -> np.ndarray:
 def trigger_price_chain(beta: float, T, periods: int) -> np.ndarray:
     """``P(normal period at t)``, t = 1..periods, for the trigger-price two-phase chain started in a
     normal period: a normal period is followed by a war with probability ``beta``; a war lasts ``T``
-    periods (``None``: forever)."""
+    periods (``None``: forever).
+
+    Parameters
+    ----------
+    beta : float in [0, 1]
+        Probability that a normal period is followed by a war.
+    T : int or None
+        War length (None: a war never ends).
+    periods : int
+        Number of periods.
+
+    Returns
+    -------
+    ndarray of shape (periods,)
+    """
     out = np.empty(periods)
     if T is None:
         out[:] = (1.0 - beta) ** np.arange(periods)
@@ -74,7 +88,23 @@ def trigger_price_chain(beta: float, T, periods: int) -> np.ndarray:
 
 def first_breakdown_distribution(q_impl: float, q_perc: float, periods: int) -> dict:
     """``P(tau > t)`` for t = 1..periods, the restricted mean ``E[min(tau, periods)]`` and the
-    unrestricted mean ``E[tau]`` (formulas in the module notes)."""
+    unrestricted mean ``E[tau]`` of the first breakdown (formulas in the module notes).
+
+    Parameters
+    ----------
+    q_impl : float in [0, 1]
+        Probability that some firm trembles in a period.
+    q_perc : float in [0, 1]
+        Probability that some firm misreads a rival and leaves collusion in a period.
+    periods : int
+        Number of periods.
+
+    Returns
+    -------
+    dict
+        ``survival`` (ndarray of shape (periods,)), ``restricted_mean``, ``mean`` (inf when nothing
+        ever breaks collusion) and ``rate`` (``1 - r``).
+    """
     r = (1.0 - q_impl) * (1.0 - q_perc)
     t = np.arange(1, periods + 1, dtype=float)
     surv = (1.0 - q_impl) * r ** (t - 1.0)
@@ -202,7 +232,18 @@ _GAIN_RTOL = 1e-7
 
 
 def scheme_of(strategy) -> tuple | None:
-    """``(kind, T)`` of the punishment scheme a strategy plays, or None."""
+    """The punishment scheme a strategy plays, as far as the closed-form thresholds know it.
+
+    Parameters
+    ----------
+    strategy : Automaton
+        A strategy of the line-up.
+
+    Returns
+    -------
+    tuple or None
+        ``("grim", None)``, ``("finite", T)``, ``("stick_carrot", None)``, or None for other strategies.
+    """
     if isinstance(strategy, GrimTrigger) or (isinstance(strategy, Opportunist) and strategy.after == "nash"):
         return "grim", None
     if isinstance(strategy, FinitePunishment):
@@ -392,6 +433,13 @@ def _punishment_length(game, tp: dict | None) -> dict | None:
 
 def analytic_baseline(game, run: dict) -> dict:
     """The analytic predictions matching a simulation (see the module notes).
+
+    Parameters
+    ----------
+    game : Game
+        The compiled game (:func:`sim.simulation.game.prepare_game`).
+    run : dict
+        The validated run settings (:func:`sim.simulation.engine.check_run`).
 
     Returns
     -------

@@ -7,13 +7,19 @@ chunking, or on how the driver splits replications into batches. Nothing here al
 proportion to the number of periods except the per-period and per-length count arrays, whose size
 is ``n_periods`` per chunk; paths are written only for the first ``n_paths`` replications.
 
+Inputs come in groups (named tuples, which numba passes by value and types field by field): the
+batch of replications (:class:`Batch`), the market (:class:`MarketInputs`), the compiled line-up
+(:class:`LineupInputs`), the monitoring (:class:`MonitoringInputs`) and the run settings
+(:class:`RunInputs`); outputs are two groups of arrays written in place (:class:`Totals`,
+:class:`PathBuffers`). :func:`sim.simulation.driver.kernel_groups` builds the input groups of a game.
+
 One period, in this order (the random draws happen in this order too):
 
 1. each firm picks its state's level, possibly cheating (:func:`strategies.step.choose_level`);
 2. implementation errors: one uniform per firm when the error probability is positive; a hit replaces
    the firm's action by its cheating action (``tremble``);
-3. the demand shock: one standard normal (ziggurat, :func:`sim.core.rng.next_normal_zig`) when ``noise_code > 0``
-   (a normal shock ``1 + sigma Z`` is floored at zero, see :mod:`sim.models.monitoring`);
+3. the demand shock: one standard normal (ziggurat, :func:`sim.core.rng.next_normal_zig`) when
+   ``noise_code > 0`` (a normal shock ``1 + sigma Z`` is floored at zero, see :mod:`sim.models.monitoring`);
 4. quantities, prices and profits (:func:`sim.models.stagecore.evaluate`);
 5. a firm colludes in the period when its state is collusive and it neither cheated nor trembled;
    the period is collusive when every firm colludes; it is a *punishment* period when some firm's
@@ -26,22 +32,28 @@ With a random horizon one uniform is drawn before the first period: the number o
 ``min(n_periods, 1 + floor(log(1 - u) / log(continuation)))``, i.e. the game ends after each period
 with probability ``1 - continuation``.
 
-Outputs per replication (``out_int`` columns ``R_*``, ``out_flt`` columns ``F_*``, per-firm sums) and per
-chunk (length histograms ``H_*`` of collusive spells, price wars and punishment phases -- maximal runs of
-punishment periods -- that ended or were cut off by the horizon, and per-period counts of collusive
-replications) are added to what the arrays already hold, so that the
-driver can call the kernel batch after batch.
+Outputs per replication (``Totals.ints`` columns ``R_*``, ``Totals.flts`` columns ``F_*``, per-firm
+sums) and per chunk (length histograms ``H_*`` of collusive spells, price wars and punishment phases
+-- maximal runs of punishment periods -- that ended or were cut off by the horizon, and per-period
+counts of collusive replications) are added to what the arrays already hold, so that the driver can
+call the kernel batch after batch.
 
-Speed: the per-period helpers (:func:`strategies.step.choose_level`, :func:`~strategies.step.bad_signal`,
-:func:`~strategies.step.next_state`, :func:`sim.models.stagecore.evaluate`, :func:`sim.core.rng.next_normal_zig`) are
-declared ``inline="always"``, so that the period loop below has no out-of-line calls with array
-arguments; the kernel stays generic (any line-up, any market code) and computes exactly what the
-plain-Python twin computes.
+Speed: every per-period step (the helpers below, :func:`strategies.step.choose_level`,
+:func:`~strategies.step.bad_signal`, :func:`~strategies.step.next_state`,
+:func:`sim.models.stagecore.evaluate`, :func:`sim.core.rng.next_normal_zig`) is declared
+``inline="always"``, so that the period loop has no out-of-line calls with array arguments; inlining
+works on numba's IR and changes no arithmetic, so the kernel computes exactly what the plain-Python
+twin (:mod:`sim.simulation.twin`) computes. What changes every period (the current runs, the collusive
+periods, the first breakdown) is a tuple of scalars that :func:`_count_period` returns updated, so that
+it stays in registers; the rarer counts of a replication live in a small ``tally`` array. The
+period loop reads the groups' arrays from locals taken once per chunk (:func:`play_chunk`): an array
+reached through a tuple is a new reference, taken and released at every access.
 """
 
 from __future__ import annotations
 
 import math
+from typing import NamedTuple
 
 import numpy as np
 from numba import njit, prange
@@ -50,7 +62,8 @@ from sim.core.rng import next_double, next_normal_zig
 from sim.models.stagecore import evaluate
 from strategies.step import COLLUSIVE, INITIAL, bad_signal, choose_level, next_state
 
-__all__ = ["simulate_chunks"]
+__all__ = ["Batch", "LineupInputs", "MarketInputs", "MonitoringInputs", "PathBuffers", "RunInputs", "Totals",
+           "horizon_length", "play_chunk", "simulate_chunks"]
 
 # integer results per replication
 R_PERIODS, R_COLLUSIVE, R_WARS, R_WARS_ENDED, R_WAR_PERIODS, R_WAR_PERIODS_ENDED = range(6)
@@ -73,9 +86,217 @@ STATUS_EVALUATION_FAILED = 1
 _DISC_FLOOR = 1e-300  # discount weights below this are set to zero (avoids slow subnormal arithmetic)
 
 
+# --------------------------------------------------------------------------------------------------
+# Input and output groups
+# --------------------------------------------------------------------------------------------------
+
+
+class Batch(NamedTuple):
+    """The replications of one kernel call and how they are split into chunks.
+
+    Parameters
+    ----------
+    chunk_start : int64 ndarray of shape (n_chunks + 1,)
+        Chunk ``c`` plays the batch-local replications ``chunk_start[c] .. chunk_start[c + 1] - 1``.
+    rng_states : uint64 ndarray of shape (n_batch, 4)
+        One generator state per replication of the batch (advanced in place).
+    first : int
+        Global index of the batch's first replication (paths are recorded for global indices below
+        ``RunInputs.n_paths``).
+    """
+
+    chunk_start: np.ndarray
+    rng_states: np.ndarray
+    first: int
+
+
+class MarketInputs(NamedTuple):
+    """The market in the layout of the numba stage core (see :class:`sim.models.stagecore.MarketArrays`).
+
+    Parameters
+    ----------
+    code : int
+        Market code of :func:`sim.models.stagecore.evaluate`.
+    scalars : float64 ndarray of shape (4,)
+        Scalar demand parameters.
+    vector : float64 ndarray of shape (n_products,)
+        Per-product demand parameters.
+    cost : float64 ndarray of shape (n_products,)
+        Marginal cost of each product.
+    capacity : float64 ndarray of shape (n_products,)
+        Capacity of each product (``inf``: none).
+    owner : int64 ndarray of shape (n_products,)
+        Firm owning each product.
+    n_firms : int
+        Number of firms.
+    quantity_setting : bool
+        True for Cournot (actions are quantities), False for Bertrand (actions are prices).
+    """
+
+    code: int
+    scalars: np.ndarray
+    vector: np.ndarray
+    cost: np.ndarray
+    capacity: np.ndarray
+    owner: np.ndarray
+    n_firms: int
+    quantity_setting: bool
+
+
+class LineupInputs(NamedTuple):
+    """A compiled line-up (layout in :mod:`strategies.step`) and the actions of implementation errors.
+
+    Parameters
+    ----------
+    states : int64 ndarray of shape (n_firms, S, N_STATE_INT)
+        Integer fields of each firm's states.
+    probs : float64 ndarray of shape (n_firms, S, N_STATE_FLT)
+        Float fields of each firm's states.
+    firms : int64 ndarray of shape (n_firms, N_FIRM_INT)
+        Per-firm fields (state count, initial state, cheating level and window).
+    levels : float64 ndarray of shape (n_firms, L, n_products)
+        Action profile of each firm's levels.
+    tremble : float64 ndarray of shape (n_products,)
+        Action of each product when its firm makes an implementation error.
+    """
+
+    states: np.ndarray
+    probs: np.ndarray
+    firms: np.ndarray
+    levels: np.ndarray
+    tremble: np.ndarray
+
+
+class MonitoringInputs(NamedTuple):
+    """What firms see and how often they err.
+
+    Parameters
+    ----------
+    noise_code : int
+        Demand shock: 0 none, 1 lognormal, 2 normal.
+    sigma : float
+        Standard deviation of the shock's normal draw.
+    perception_error : float
+        Probability of misreading each rival's conduct.
+    implementation_error : float
+        Probability per firm and period of playing the tremble action.
+    """
+
+    noise_code: int
+    sigma: float
+    perception_error: float
+    implementation_error: float
+
+
+class RunInputs(NamedTuple):
+    """Length of the game, discounting and the paths to record.
+
+    Parameters
+    ----------
+    n_periods : int
+        Number of periods (the cap of a random horizon).
+    delta : float
+        Discount factor of the discounted profit sums.
+    random_horizon : bool
+        Whether the game ends after each period with probability ``1 - continuation``.
+    continuation : float
+        Continuation probability of a random horizon.
+    n_paths : int
+        Replications (by global index) whose full paths are recorded.
+    """
+
+    n_periods: int
+    delta: float
+    random_horizon: bool
+    continuation: float
+    n_paths: int
+
+
+class Totals(NamedTuple):
+    """Per-replication and per-chunk results, added to in place.
+
+    Parameters
+    ----------
+    profit : float64 ndarray of shape (n_batch, n_firms)
+        Sum of each firm's profits.
+    disc : float64 ndarray of shape (n_batch, n_firms)
+        Discounted sum of each firm's profits.
+    ints : int64 ndarray of shape (n_batch, N_RINT)
+        Per-replication counts (columns ``R_*``).
+    flts : float64 ndarray of shape (n_batch, N_RFLT)
+        Per-replication sums of the market price and of consumer surplus (columns ``F_*``).
+    hist : int64 ndarray of shape (n_chunks, N_HIST, n_periods + 1)
+        Length histograms (rows ``H_*``).
+    by_period : int64 ndarray of shape (n_chunks, n_periods)
+        Per period, replications in which every firm colluded.
+    status : int64 ndarray of shape (n_chunks,)
+        Written: ``STATUS_OK`` or the first failure code of the chunk.
+    """
+
+    profit: np.ndarray
+    disc: np.ndarray
+    ints: np.ndarray
+    flts: np.ndarray
+    hist: np.ndarray
+    by_period: np.ndarray
+    status: np.ndarray
+
+
+class PathBuffers(NamedTuple):
+    """Full paths of the first replications (first axis ``max(n_paths, 1)``, second ``n_periods``).
+
+    Parameters
+    ----------
+    actions : float64 ndarray of shape (P, n_periods, n_products)
+        Actions played.
+    prices : float64 ndarray of shape (P, n_periods, n_products)
+        Prices of the products.
+    market : float64 ndarray of shape (P, n_periods, 3)
+        Market price, demand shock and consumer surplus (columns ``M_*``).
+    profit : float64 ndarray of shape (P, n_periods, n_firms)
+        Profits.
+    state : int64 ndarray of shape (P, n_periods, n_firms)
+        Each firm's state at the start of the period.
+    flags : int64 ndarray of shape (P, n_periods, n_firms)
+        ``FLAG_*`` bits: cheated, trembled, colluded.
+    collude : int64 ndarray of shape (P, n_periods)
+        1 when every firm colluded.
+    """
+
+    actions: np.ndarray
+    prices: np.ndarray
+    market: np.ndarray
+    profit: np.ndarray
+    state: np.ndarray
+    flags: np.ndarray
+    collude: np.ndarray
+
+
+# --------------------------------------------------------------------------------------------------
+# Steps of a period (inlined into the kernel)
+# --------------------------------------------------------------------------------------------------
+
+
 @njit(cache=True)
 def horizon_length(rng, n_periods, random_horizon, continuation):
-    """Number of periods of one replication (draws one uniform with a random horizon)."""
+    """Number of periods of one replication (draws one uniform with a random horizon).
+
+    Parameters
+    ----------
+    rng : uint64 ndarray of shape (4,)
+        The replication's generator state (advanced in place).
+    n_periods : int
+        The cap of the horizon.
+    random_horizon : bool
+        Whether to draw the horizon.
+    continuation : float
+        Probability of playing one more period.
+
+    Returns
+    -------
+    int
+        ``n_periods``, or ``min(n_periods, 1 + floor(log(1 - u) / log(continuation)))``.
+    """
     if not random_horizon:
         return n_periods
     u = next_double(rng)
@@ -85,220 +306,293 @@ def horizon_length(rng, n_periods, random_horizon, continuation):
     return min(h, n_periods)
 
 
-@njit(cache=True, parallel=True)
-def simulate_chunks(chunk_start, rng_states, rep_offset,
-                    code, scalars, vector, cost, capacity, owner, n_firms, quantity_setting,
-                    states, probs, firms, levels, tremble_profile,
-                    noise_code, sigma, perception_error, implementation_error,
-                    n_periods, delta, random_horizon, continuation, n_paths,
-                    out_profit, out_disc, out_int, out_flt, hist, by_period,
-                    path_actions, path_prices, path_market, path_profit, path_state, path_flags, path_collude,
-                    status):
-    """Play replications ``chunk_start[c] .. chunk_start[c+1]-1`` (batch-local indices) for every chunk c.
+@njit(cache=True, inline="always")
+def _scratch(n_firms, n_products):
+    """Per-chunk work arrays: states, levels, flags, the stage game's buffers and the replication's sums."""
+    return (np.empty(n_firms, dtype=np.int64), np.empty(n_firms, dtype=np.int64), np.empty(n_firms, dtype=np.int64),
+            np.zeros(n_firms, dtype=np.bool_), np.zeros(n_firms, dtype=np.bool_), np.empty(n_products),
+            np.empty(n_products), np.empty(n_products), np.empty(n_firms), np.empty((2, n_products)),
+            np.empty(n_firms), np.empty(n_firms), np.empty(N_RINT, dtype=np.int64))
+
+
+@njit(cache=True, inline="always")
+def _start_replication(state, psum, dsum, tally, firms):
+    for i in range(state.shape[0]):
+        state[i] = firms[i, INITIAL]
+        psum[i] = 0.0
+        dsum[i] = 0.0
+    for k in range(N_RINT):
+        tally[k] = 0
+
+
+@njit(cache=True, inline="always")
+def _choose_levels(t, state, lev, cheated, states, probs, firms, rng, tally):
+    for i in range(state.shape[0]):
+        level, ch = choose_level(i, state[i], t, states, probs, firms, rng)
+        lev[i] = level
+        cheated[i] = ch
+        if ch:
+            tally[R_CHEATS] += 1
+
+
+@njit(cache=True, inline="always")
+def _tremble(trembled, error, rng, tally):
+    # no draw at all without implementation errors (the stream position depends on it)
+    if error > 0.0:
+        for i in range(trembled.shape[0]):
+            trembled[i] = next_double(rng) < error
+            if trembled[i]:
+                tally[R_TREMBLES] += 1
+
+
+@njit(cache=True, inline="always")
+def _set_actions(actions, owner, lev, trembled, levels, tremble):
+    for k in range(actions.shape[0]):
+        i = owner[k]
+        actions[k] = tremble[k] if trembled[i] else levels[i, lev[i], k]
+
+
+@njit(cache=True, inline="always")
+def _demand_shock(rng, noise_code, sigma, half_var):
+    if noise_code == 1:
+        return math.exp(sigma * next_normal_zig(rng) - half_var)
+    if noise_code == 2:
+        theta = 1.0 + sigma * next_normal_zig(rng)
+        if theta < 0.0:
+            theta = 0.0
+        return theta
+    return 1.0
+
+
+@njit(cache=True, inline="always")
+def _collusion(state, cheated, trembled, states):
+    """(every firm colludes, some firm's state is not collusive)."""
+    all_c = True
+    punishing = False
+    for i in range(state.shape[0]):
+        if states[i, state[i], COLLUSIVE] == 0:
+            all_c = False
+            punishing = True
+        elif cheated[i] or trembled[i]:
+            all_c = False
+    return all_c, punishing
+
+
+@njit(cache=True, inline="always")
+def _record_path(paths, g, t, actions, p, mp, theta, cs, profit, state, cheated, trembled, states, all_c):
+    for k in range(actions.shape[0]):
+        paths.actions[g, t, k] = actions[k]
+        paths.prices[g, t, k] = p[k]
+    paths.market[g, t, M_PRICE] = mp
+    paths.market[g, t, M_THETA] = theta
+    paths.market[g, t, M_SURPLUS] = cs
+    for i in range(state.shape[0]):
+        paths.profit[g, t, i] = profit[i]
+        paths.state[g, t, i] = state[i]
+        fl = 0
+        if cheated[i]:
+            fl |= FLAG_CHEAT
+        if trembled[i]:
+            fl |= FLAG_TREMBLE
+        if states[i, state[i], COLLUSIVE] != 0 and not cheated[i] and not trembled[i]:
+            fl |= FLAG_COLLUDE
+        paths.flags[g, t, i] = fl
+    paths.collude[g, t] = 1 if all_c else 0
+
+
+@njit(cache=True, inline="always")
+def _update_states(state, new_state, actions, owner, mp, profit, perception_error, states, probs, levels,
+                   quantity_setting, rng):
+    # signals and transitions, all from the states at the start of the period
+    n_firms = state.shape[0]
+    for i in range(n_firms):
+        bad = bad_signal(i, state[i], n_firms, actions, owner, mp, profit[i], perception_error, states, probs, levels,
+                         quantity_setting, rng)
+        new_state[i] = next_state(i, state[i], bad, states, probs, rng)
+    for i in range(state.shape[0]):
+        state[i] = new_state[i]
+
+
+@njit(cache=True, inline="always")
+def _add_profits(psum, dsum, profit, disc, delta):
+    """Add the period's profits to the sums; returns the next period's discount weight."""
+    for i in range(psum.shape[0]):
+        psum[i] += profit[i]
+        dsum[i] += disc * profit[i]
+    disc *= delta
+    if disc < _DISC_FLOOR:
+        disc = 0.0
+    return disc
+
+
+@njit(cache=True, inline="always")
+def _count_period(runs, tally, hist, by_period, c, t, all_c, punishing):
+    """The period's place in the runs of collusive and other periods and in the punishment phases.
+
+    ``runs`` holds what changes every period, ``(run, prev, punish, n_collusive, first_breakdown)``: the
+    length of the current run, whether it is collusive (1) or not (0), the length of the current
+    punishment phase, the collusive periods so far and the first non-collusive period (0: none yet). It
+    is a tuple of scalars, returned updated, so that these stay in registers; runs that end are counted
+    in ``tally`` and ``hist``.
+    """
+    run, prev, punish, n_coll, first = runs
+    if all_c:
+        by_period[c, t] += 1
+        n_coll += 1
+    elif first == 0:
+        first = t + 1
+    if t == 0:
+        run = 1
+        if all_c:
+            tally[R_SPELLS] += 1
+        else:
+            tally[R_WARS] += 1
+    elif all_c == (prev != 0):
+        run += 1
+    else:
+        if prev != 0:
+            hist[c, H_SPELL_ENDED, run] += 1
+            tally[R_SPELLS_ENDED] += 1
+            tally[R_SPELL_PERIODS_ENDED] += run
+            tally[R_WARS] += 1
+        else:
+            hist[c, H_WAR_ENDED, run] += 1
+            tally[R_WARS_ENDED] += 1
+            tally[R_WAR_PERIODS_ENDED] += run
+            tally[R_SPELLS] += 1
+        run = 1
+    prev = 1 if all_c else 0
+    if punishing:
+        punish += 1
+    elif punish > 0:
+        hist[c, H_PUNISH_ENDED, punish] += 1
+        punish = 0
+    return run, prev, punish, n_coll, first
+
+
+@njit(cache=True, inline="always")
+def _store_replication(totals, c, r, periods, runs, tally, psum, dsum, price_sum, cs_sum):
+    """The runs cut off by the horizon, then the replication's sums and counts into the outputs."""
+    run, prev, punish, n_coll, first = runs
+    if run > 0:
+        if prev != 0:
+            totals.hist[c, H_SPELL_CENSORED, run] += 1
+        else:
+            totals.hist[c, H_WAR_CENSORED, run] += 1
+    if punish > 0:
+        totals.hist[c, H_PUNISH_CENSORED, punish] += 1
+    for i in range(psum.shape[0]):
+        totals.profit[r, i] += psum[i]
+        totals.disc[r, i] += dsum[i]
+    totals.flts[r, F_PRICE_SUM] += price_sum
+    totals.flts[r, F_CS_SUM] += cs_sum
+    tally[R_PERIODS] = periods
+    tally[R_COLLUSIVE] = n_coll
+    tally[R_WAR_PERIODS] = periods - n_coll
+    tally[R_FIRST_BREAKDOWN] = first
+    for k in range(N_RINT):
+        totals.ints[r, k] += tally[k]
+
+
+# --------------------------------------------------------------------------------------------------
+# The kernel
+# --------------------------------------------------------------------------------------------------
+
+
+@njit(cache=True)
+def play_chunk(c, batch, market, lineup, monitoring, run, totals, paths):
+    """Play the replications ``batch.chunk_start[c] .. batch.chunk_start[c+1]-1`` (batch-local) of chunk ``c``.
 
     Parameters
     ----------
-    chunk_start : int64 ndarray of shape (n_chunks + 1,)
-    rng_states : uint64 ndarray of shape (n_batch, 4)
-        One generator state per replication of the batch (advanced in place).
-    rep_offset : int
-        Global index of the batch's first replication (paths are recorded for global indices below
-        ``n_paths``).
-    code, scalars, vector, cost, capacity, owner, n_firms, quantity_setting :
-        The market (see :class:`sim.models.stagecore.MarketArrays`).
-    states, probs, firms, levels :
-        The compiled line-up (see :mod:`strategies.step`).
-    tremble_profile : ndarray of shape (n_products,)
-        Action of each product when its firm makes an implementation error.
-    noise_code : int
-        0 no shock, 1 lognormal, 2 normal.
-    sigma, perception_error, implementation_error, delta, continuation : float
-    n_periods : int
-    random_horizon : bool
-    n_paths : int
-    out_profit, out_disc : ndarray of shape (n_batch, n_firms)
-        Sum and discounted sum of each firm's profits (added to).
-    out_int : int64 ndarray of shape (n_batch, N_RINT)
-    out_flt : ndarray of shape (n_batch, N_RFLT)
-    hist : int64 ndarray of shape (n_chunks, N_HIST, n_periods + 1)
-    by_period : int64 ndarray of shape (n_chunks, n_periods)
-        Per period, replications in which every firm colluded (added to).
-    path_* : path buffers, first axis ``max(n_paths, 1)``, second ``n_periods``
-    status : int64 ndarray of shape (n_chunks,)
-        Output: ``STATUS_OK`` or the first failure code of the chunk.
+    c : int
+        Chunk index (selects the chunk's rows of ``totals.hist`` and ``totals.by_period``).
+    batch : Batch
+        Chunk boundaries, the replications' generator states and the global index of the first.
+    market : MarketInputs
+        The market.
+    lineup : LineupInputs
+        The compiled line-up and the tremble actions.
+    monitoring : MonitoringInputs
+        Demand shock and error probabilities.
+    run : RunInputs
+        Horizon, discount factor and number of recorded paths.
+    totals : Totals
+        Results, added to in place (``totals.status`` is left to the caller).
+    paths : PathBuffers
+        Path buffers, written for global replication indices below ``run.n_paths``.
+
+    Returns
+    -------
+    int
+        ``STATUS_OK``, or ``STATUS_EVALUATION_FAILED`` when the stage game could not be evaluated (the
+        chunk stops there).
     """
-    n_chunks = chunk_start.shape[0] - 1
-    n_products = owner.shape[0]
-    s2 = 0.5 * sigma * sigma
-    for c in prange(n_chunks):
-        state = np.empty(n_firms, dtype=np.int64)
-        new_state = np.empty(n_firms, dtype=np.int64)
-        lev = np.empty(n_firms, dtype=np.int64)
-        cheated = np.zeros(n_firms, dtype=np.bool_)
-        trembled = np.zeros(n_firms, dtype=np.bool_)
-        actions = np.empty(n_products)
-        q = np.empty(n_products)
-        p = np.empty(n_products)
-        profit = np.empty(n_firms)
-        work = np.empty((2, n_products))
-        psum = np.empty(n_firms)
-        dsum = np.empty(n_firms)
-        st_code = STATUS_OK
-        for r in range(chunk_start[c], chunk_start[c + 1]):
-            rng = rng_states[r]
-            g = rep_offset + r
-            record = g < n_paths
-            H = horizon_length(rng, n_periods, random_horizon, continuation)
-            for i in range(n_firms):
-                state[i] = firms[i, INITIAL]
-                psum[i] = 0.0
-                dsum[i] = 0.0
-            disc = 1.0
-            prev = False
-            run = 0
-            prun = 0
-            price_sum = 0.0
-            cs_sum = 0.0
-            n_coll = 0
-            n_war = 0
-            n_wars = 0
-            n_wars_ended = 0
-            war_ended_periods = 0
-            n_spells = 0
-            n_spells_ended = 0
-            spell_ended_periods = 0
-            first = 0
-            n_cheat = 0
-            n_tremble = 0
-            played = 0
-            for t in range(H):
-                for i in range(n_firms):
-                    L, ch = choose_level(i, state[i], t, states, probs, firms, rng)
-                    lev[i] = L
-                    cheated[i] = ch
-                    if ch:
-                        n_cheat += 1
-                if implementation_error > 0.0:
-                    for i in range(n_firms):
-                        trembled[i] = next_double(rng) < implementation_error
-                        if trembled[i]:
-                            n_tremble += 1
-                for k in range(n_products):
-                    i = owner[k]
-                    actions[k] = tremble_profile[k] if trembled[i] else levels[i, lev[i], k]
-                theta = 1.0
-                if noise_code == 1:
-                    theta = math.exp(sigma * next_normal_zig(rng) - s2)
-                elif noise_code == 2:
-                    theta = 1.0 + sigma * next_normal_zig(rng)
-                    if theta < 0.0:
-                        theta = 0.0
-                mp, cs = evaluate(code, scalars, vector, cost, capacity, owner, n_firms, actions, theta, q, p,
-                                  profit, work, True)
-                if mp != mp:
-                    st_code = STATUS_EVALUATION_FAILED
-                    break
-                all_c = True
-                punishing = False
-                for i in range(n_firms):
-                    if states[i, state[i], COLLUSIVE] == 0:
-                        all_c = False
-                        punishing = True
-                    elif cheated[i] or trembled[i]:
-                        all_c = False
-                if record:
-                    for k in range(n_products):
-                        path_actions[g, t, k] = actions[k]
-                        path_prices[g, t, k] = p[k]
-                    path_market[g, t, M_PRICE] = mp
-                    path_market[g, t, M_THETA] = theta
-                    path_market[g, t, M_SURPLUS] = cs
-                    for i in range(n_firms):
-                        path_profit[g, t, i] = profit[i]
-                        path_state[g, t, i] = state[i]
-                        fl = 0
-                        if cheated[i]:
-                            fl |= FLAG_CHEAT
-                        if trembled[i]:
-                            fl |= FLAG_TREMBLE
-                        if states[i, state[i], COLLUSIVE] != 0 and not cheated[i] and not trembled[i]:
-                            fl |= FLAG_COLLUDE
-                        path_flags[g, t, i] = fl
-                    path_collude[g, t] = 1 if all_c else 0
-                # signals and transitions, all from the states at the start of the period
-                for i in range(n_firms):
-                    bad = bad_signal(i, state[i], n_firms, actions, owner, mp, profit[i], perception_error,
-                                     states, probs, levels, quantity_setting, rng)
-                    new_state[i] = next_state(i, state[i], bad, states, probs, rng)
-                for i in range(n_firms):
-                    state[i] = new_state[i]
-                # streamed metrics
-                for i in range(n_firms):
-                    psum[i] += profit[i]
-                    dsum[i] += disc * profit[i]
-                disc *= delta
-                if disc < _DISC_FLOOR:
-                    disc = 0.0
-                price_sum += mp
-                cs_sum += cs
-                if all_c:
-                    by_period[c, t] += 1
-                    n_coll += 1
-                else:
-                    n_war += 1
-                    if first == 0:
-                        first = t + 1
-                if t == 0:
-                    run = 1
-                    if all_c:
-                        n_spells += 1
-                    else:
-                        n_wars += 1
-                elif all_c == prev:
-                    run += 1
-                else:
-                    if prev:
-                        hist[c, H_SPELL_ENDED, run] += 1
-                        n_spells_ended += 1
-                        spell_ended_periods += run
-                        n_wars += 1
-                    else:
-                        hist[c, H_WAR_ENDED, run] += 1
-                        n_wars_ended += 1
-                        war_ended_periods += run
-                        n_spells += 1
-                    run = 1
-                prev = all_c
-                if punishing:
-                    prun += 1
-                elif prun > 0:
-                    hist[c, H_PUNISH_ENDED, prun] += 1
-                    prun = 0
-                played += 1
-            if st_code != STATUS_OK:
-                break
-            if run > 0:
-                if prev:
-                    hist[c, H_SPELL_CENSORED, run] += 1
-                else:
-                    hist[c, H_WAR_CENSORED, run] += 1
-            if prun > 0:
-                hist[c, H_PUNISH_CENSORED, prun] += 1
-            for i in range(n_firms):
-                out_profit[r, i] += psum[i]
-                out_disc[r, i] += dsum[i]
-            out_flt[r, F_PRICE_SUM] += price_sum
-            out_flt[r, F_CS_SUM] += cs_sum
-            out_int[r, R_PERIODS] += played
-            out_int[r, R_COLLUSIVE] += n_coll
-            out_int[r, R_WAR_PERIODS] += n_war
-            out_int[r, R_WARS] += n_wars
-            out_int[r, R_WARS_ENDED] += n_wars_ended
-            out_int[r, R_WAR_PERIODS_ENDED] += war_ended_periods
-            out_int[r, R_SPELLS] += n_spells
-            out_int[r, R_SPELLS_ENDED] += n_spells_ended
-            out_int[r, R_SPELL_PERIODS_ENDED] += spell_ended_periods
-            out_int[r, R_FIRST_BREAKDOWN] += first
-            out_int[r, R_CHEATS] += n_cheat
-            out_int[r, R_TREMBLES] += n_tremble
-        status[c] = st_code
+    # the groups' arrays as locals, taken once per chunk: every access through a tuple would take and
+    # release a reference to the array inside the period loop
+    chunk_start, rng_states, first = batch
+    code, scalars, vector, cost, capacity, owner, n_firms, quantity_setting = market
+    states, probs, firms, levels, tremble = lineup
+    noise_code, sigma, perception_error, implementation_error = monitoring
+    n_periods, delta, random_horizon, continuation, n_paths = run
+    hist, by_period = totals.hist, totals.by_period
+    half_var = 0.5 * sigma * sigma
+    (state, new_state, lev, cheated, trembled, actions, q, p, profit, work, psum, dsum,
+     tally) = _scratch(n_firms, owner.shape[0])
+    for r in range(chunk_start[c], chunk_start[c + 1]):
+        rng = rng_states[r]
+        g = first + r
+        H = horizon_length(rng, n_periods, random_horizon, continuation)
+        _start_replication(state, psum, dsum, tally, firms)
+        runs = (0, 0, 0, 0, 0)
+        disc = 1.0
+        price_sum = 0.0
+        cs_sum = 0.0
+        for t in range(H):
+            _choose_levels(t, state, lev, cheated, states, probs, firms, rng, tally)
+            _tremble(trembled, implementation_error, rng, tally)
+            _set_actions(actions, owner, lev, trembled, levels, tremble)
+            theta = _demand_shock(rng, noise_code, sigma, half_var)
+            mp, cs = evaluate(code, scalars, vector, cost, capacity, owner, n_firms, actions, theta, q, p, profit, work,
+                              True)
+            if mp != mp:
+                return STATUS_EVALUATION_FAILED
+            all_c, punishing = _collusion(state, cheated, trembled, states)
+            if g < n_paths:
+                _record_path(paths, g, t, actions, p, mp, theta, cs, profit, state, cheated, trembled, states, all_c)
+            _update_states(state, new_state, actions, owner, mp, profit, perception_error, states, probs, levels,
+                           quantity_setting, rng)
+            disc = _add_profits(psum, dsum, profit, disc, delta)
+            price_sum += mp
+            cs_sum += cs
+            runs = _count_period(runs, tally, hist, by_period, c, t, all_c, punishing)
+        _store_replication(totals, c, r, H, runs, tally, psum, dsum, price_sum, cs_sum)
+    return STATUS_OK
+
+
+@njit(cache=True, parallel=True)
+def simulate_chunks(batch, market, lineup, monitoring, run, totals, paths):
+    """Play every chunk of a batch of replications, chunks in parallel (see :func:`play_chunk`).
+
+    Parameters
+    ----------
+    batch : Batch
+        Chunk boundaries, the replications' generator states and the global index of the first.
+    market : MarketInputs
+        The market.
+    lineup : LineupInputs
+        The compiled line-up and the tremble actions.
+    monitoring : MonitoringInputs
+        Demand shock and error probabilities.
+    run : RunInputs
+        Horizon, discount factor and number of recorded paths.
+    totals : Totals
+        Results, added to in place; ``totals.status`` is written.
+    paths : PathBuffers
+        Path buffers, written for global replication indices below ``run.n_paths``.
+    """
+    # the chunk's work is one out-of-line call: inside a prange body, numba drops writes to arrays reached
+    # through a named tuple (numba issue 7135), and one call per chunk costs nothing measurable
+    status = totals.status
+    for c in prange(batch.chunk_start.shape[0] - 1):
+        status[c] = play_chunk(c, batch, market, lineup, monitoring, run, totals, paths)

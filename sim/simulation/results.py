@@ -22,6 +22,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 import sim.simulation.kernel as K
+from sim.core.jsonutil import jsonable
 from sim.core.stats import (
     Estimate,
     Survival,
@@ -48,45 +49,56 @@ __all__ = ["Estimate", "SimulationResult", "Survival", "kaplan_meier", "mean_est
 class SimulationResult:
     """Everything a simulation produced.
 
-    Attributes
+    Plain data: :meth:`to_dict` gives JSON types only (nan stored as None) and :meth:`from_dict` reads
+    them back, so that ``SimulationResult.from_dict(d).to_dict() == d`` for ``d = r.to_dict()``, also
+    after a trip through JSON. The document holds the curves at no more than 1,000 periods and 200
+    lengths (see :meth:`to_dict`); a result read back from it holds what the document holds.
+
+    Parameters
     ----------
     settings : dict
         Market, agreement, line-up, monitoring and run settings (as given, validated).
-    profits : ndarray of shape (n_reps, n_firms)
-        Mean per-period profit of each firm in each replication.
-    discounted : ndarray of shape (n_reps, n_firms)
+    profits : ndarray of shape (n_reps, n_firms) or None
+        Mean per-period profit of each firm in each replication (None when read from a document
+        without the per-replication values).
+    discounted : ndarray of shape (n_reps, n_firms) or None
         Discounted sum of each firm's profits, ``sum_t delta^t pi_t``, in each replication.
-    periods : int ndarray of shape (n_reps,)
+    periods : int ndarray of shape (n_reps,) or None
         Periods played in each replication.
-    first_breakdown : int ndarray of shape (n_reps,)
+    first_breakdown : int ndarray of shape (n_reps,) or None
         Number of the first period that was not collusive (0: none within the horizon).
-    counts : dict of str to int ndarray of shape (n_reps,)
+    counts : dict of str to int ndarray of shape (n_reps,), or None
         Per-replication counts: collusive periods, wars, wars that ended, cheats, trembles, ...
     metrics : dict of str to Estimate
         Market-level persistence metrics (see the module notes).
     firm_metrics : dict of str to list of Estimate
         Per-firm metrics (mean and discounted profit, profit gain), one entry per firm.
-    spells, wars, breakdown : Survival
-        Survival curves of collusive spells, price wars and the time to first breakdown.
-    punishments : Survival
-        Survival curve of punishment phases (see the module notes); its mean is
-        :attr:`punishment_length`.
+    spells : Survival
+        Survival curve of collusive spells.
+    wars : Survival
+        Survival curve of price wars.
+    breakdown : Survival
+        Survival curve of the time to first breakdown.
     collusive_by_period : ndarray of shape (n_periods,)
-        Share of the replications still running in period t in which every firm colluded.
+        Share of the replications still running in period t in which every firm colluded (nan in a
+        period not stored in the document a result was read from).
     reference : dict
         Stage-game values the metrics refer to (Nash and collusive profits, Nash price, ...).
     baseline : dict
         The analytic baseline (:func:`sim.simulation.baseline.analytic_baseline`), empty when not asked for.
     paths : dict or None
         Full paths of the first ``run.paths`` replications.
+    punishments : Survival or None
+        Survival curve of punishment phases (see the module notes); its mean is
+        :attr:`punishment_length`.
     """
 
     settings: dict
-    profits: np.ndarray
-    discounted: np.ndarray
-    periods: np.ndarray
-    first_breakdown: np.ndarray
-    counts: dict
+    profits: np.ndarray | None
+    discounted: np.ndarray | None
+    periods: np.ndarray | None
+    first_breakdown: np.ndarray | None
+    counts: dict | None
     metrics: dict
     firm_metrics: dict
     spells: Survival
@@ -100,6 +112,9 @@ class SimulationResult:
 
     @property
     def n_reps(self) -> int:
+        """Number of replications."""
+        if self.periods is None:
+            return int(self.settings["run"]["replications"])
         return int(self.periods.shape[0])
 
     @property
@@ -110,31 +125,89 @@ class SimulationResult:
         return self.punishments.mean
 
     def to_dict(self, per_replication: bool = False) -> dict:
-        """Plain data (JSON-ready through :func:`sim.core.jsonutil.dumps`)."""
+        """Plain data: JSON types only, nan and the infinities stored as None.
 
+        The share colluding by period (simulated and analytic) is kept at no more than 1,000 periods
+        and the survival curves at no more than 200 lengths, evenly spread (all of them in shorter
+        runs; see :meth:`sim.core.stats.Survival.thinned`).
+
+        Parameters
+        ----------
+        per_replication : bool
+            Whether to add every replication's profits, discounted profits, length, first breakdown
+            and counts (``replications``).
+
+        Returns
+        -------
+        dict
+            ``settings``, ``metrics``, ``firms``, ``survival``, ``collusive_by_period``, ``reference``,
+            ``baseline``, ``definitions``, ``replications`` (when asked for and held), ``paths`` (when
+            recorded) and ``caution``.
+        """
+        survival = {"spells": self.spells, "wars": self.wars, "first_breakdown": self.breakdown}
+        if self.punishments is not None:
+            survival["punishments"] = self.punishments
         out = {
             "settings": self.settings,
             "metrics": {k: v.to_dict() for k, v in self.metrics.items()},
             "firms": {k: [e.to_dict() for e in v] for k, v in self.firm_metrics.items()},
-            "survival": {"spells": self.spells.to_dict(), "wars": self.wars.to_dict(),
-                         "first_breakdown": self.breakdown.to_dict(),
-                         **({"punishments": self.punishments.to_dict()} if self.punishments is not None else {})},
+            "survival": {k: v.thinned(SURVIVAL_POINTS).to_dict() for k, v in survival.items()},
             "collusive_by_period": _thin(self.collusive_by_period),
             "reference": self.reference,
             "baseline": _baseline_dict(self.baseline),
             "definitions": DEFINITIONS,
         }
-        if per_replication:
+        if per_replication and self.periods is not None:
             out["replications"] = {
-                "profits": self.profits.tolist(), "discounted": self.discounted.tolist(),
-                "periods": self.periods.tolist(), "first_breakdown": self.first_breakdown.tolist(),
-                **{k: v.tolist() for k, v in self.counts.items()},
+                "profits": self.profits, "discounted": self.discounted, "periods": self.periods,
+                "first_breakdown": self.first_breakdown, **self.counts,
             }
         if self.paths is not None:
-            out["paths"] = {k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in self.paths.items()}
+            out["paths"] = self.paths
         out["caution"] = CAUTION
-        return out
+        return jsonable(out)
 
+    @classmethod
+    def from_dict(cls, doc: dict) -> SimulationResult:
+        """The result stored by :meth:`to_dict` (None read back as nan where a number belongs).
+
+        Parameters
+        ----------
+        doc : dict
+            Output of :meth:`to_dict`, possibly through JSON.
+
+        Returns
+        -------
+        SimulationResult
+        """
+        sv = doc["survival"]
+        per = doc.get("replications")
+        if per is not None:
+            per = dict(per)
+            reps = {"profits": _floats(per.pop("profits")), "discounted": _floats(per.pop("discounted")),
+                    "periods": np.asarray(per.pop("periods"), dtype=np.int64),
+                    "first_breakdown": np.asarray(per.pop("first_breakdown"), dtype=np.int64),
+                    "counts": {k: np.asarray(v, dtype=np.int64) for k, v in per.items()}}
+        else:
+            reps = dict.fromkeys(("profits", "discounted", "periods", "first_breakdown", "counts"))
+        return cls(
+            settings=doc["settings"], **reps,
+            metrics={k: Estimate.from_dict(v) for k, v in doc["metrics"].items()},
+            firm_metrics={k: [Estimate.from_dict(e) for e in v] for k, v in doc["firms"].items()},
+            spells=Survival.from_dict(sv["spells"]), wars=Survival.from_dict(sv["wars"]),
+            breakdown=Survival.from_dict(sv["first_breakdown"]),
+            collusive_by_period=_unthin(doc["collusive_by_period"]),
+            reference={k: ([_number(x) for x in v] if isinstance(v, list) else _number(v))
+                       for k, v in doc["reference"].items()},
+            baseline=_baseline_from_dict(doc["baseline"]),
+            paths=_paths_from_dict(doc["paths"]) if doc.get("paths") is not None else None,
+            punishments=Survival.from_dict(sv["punishments"]) if "punishments" in sv else None,
+        )
+
+
+#: most periods of the share colluding, and most lengths of a survival curve, in :meth:`SimulationResult.to_dict`
+PERIOD_POINTS = 1000
+SURVIVAL_POINTS = 200
 
 #: what the lengths in the output count (see the module notes)
 DEFINITIONS = {
@@ -148,69 +221,90 @@ DEFINITIONS = {
 }
 
 
-def _thin(x: np.ndarray, max_points: int = 1000) -> dict:
+def _number(x) -> float:
+    return math.nan if x is None else float(x)
+
+
+def _floats(x) -> np.ndarray:
+    """Nested lists of numbers and None -> float array with nan."""
+    return np.array(x, dtype=float)
+
+
+def _thin(x: np.ndarray, max_points: int = PERIOD_POINTS) -> dict:
     n = x.shape[0]
     idx = np.unique(np.round(np.linspace(0, n - 1, min(n, max_points))).astype(int)) if n else np.zeros(0, int)
     return {"period": (idx + 1).tolist(), "share": x[idx].tolist()}
 
 
+def _unthin(doc: dict) -> np.ndarray:
+    """The share by period stored by :func:`_thin`: nan in the periods not stored (the last one always is)."""
+    period = np.asarray(doc["period"], dtype=np.int64)
+    out = np.full(int(period[-1]) if period.size else 0, np.nan)
+    out[period - 1] = _floats(doc["share"])
+    return out
+
+
 def _baseline_dict(b: dict) -> dict:
-    out = {}
-    for k, v in b.items():
-        if k == "collusive_by_period":
-            continue
-        out[k] = v
+    out = {k: v for k, v in b.items() if k != "collusive_by_period"}
     if b.get("collusive_by_period") is not None:
         out["collusive_by_period"] = _thin(np.asarray(b["collusive_by_period"]))
     return out
 
 
-def summarize(raw, game, run: dict, confidence: float = 0.95, baseline: bool = True) -> SimulationResult:
-    """Turn the driver's raw arrays into a :class:`SimulationResult`."""
+def _baseline_from_dict(doc: dict) -> dict:
+    out = dict(doc)
+    if "collusive_by_period" in out:
+        out["collusive_by_period"] = _unthin(out["collusive_by_period"])
+    elif out:
+        out["collusive_by_period"] = None
+    return out
 
-    n = game.n_firms
+
+_PATH_INTS = ("length", "states", "flags", "collusive")
+
+
+def _paths_from_dict(doc: dict) -> dict:
+    out = {}
+    for k, v in doc.items():
+        if k == "state_names":
+            out[k] = [list(x) for x in v]
+        else:
+            out[k] = np.asarray(v, dtype=np.int64) if k in _PATH_INTS else _floats(v)
+    return out
+
+
+def summarize(raw, game, run: dict, confidence: float = 0.95, baseline: bool = True) -> SimulationResult:
+    """Turn the driver's raw arrays into a :class:`SimulationResult`.
+
+    Parameters
+    ----------
+    raw : RawRun
+        The driver's output (:func:`sim.simulation.driver.run_game`).
+    game : Game
+        The game that was played.
+    run : dict
+        The validated run settings (:func:`sim.simulation.engine.check_run`).
+    confidence : float in (0, 1)
+        Level of the confidence intervals.
+    baseline : bool
+        Whether to compute the analytic baseline.
+
+    Returns
+    -------
+    SimulationResult
+    """
+
     ints = raw.ints
     periods = ints[:, K.R_PERIODS].astype(float)
     # the profiles the line-up plays (for homogeneous Bertrand with continuous prices they undercut
-    # by the effective tick where the analytic outcome is a limit, see sim.simulation.engine.stage_levels)
+    # by the effective tick where the analytic outcome is a limit, see sim.simulation.game.stage_levels)
     nash_a = np.asarray(game.levels.profiles["nash"], dtype=float)
     coll_a = np.asarray(game.levels.profiles["collusive"], dtype=float)
     _, _, pi_n, p_n, cs_n = evaluate_py(game.arrays, nash_a)
     _, _, pi_c, p_c, cs_c = evaluate_py(game.arrays, coll_a)
-    metrics = {}
-    metrics["collusive_share"] = ratio_estimate(ints[:, K.R_COLLUSIVE], periods, confidence)
-    metrics["war_share"] = ratio_estimate(ints[:, K.R_WAR_PERIODS], periods, confidence)
-    metrics["wars_per_replication"] = mean_estimate(ints[:, K.R_WARS], confidence)
-    metrics["war_frequency"] = ratio_estimate(ints[:, K.R_WARS], periods, confidence)
-    # a spell or war cut off by the horizon after l periods is known to last at least l periods, i.e.
-    # to outlive l - 1: it is censored at l - 1 (counting it at risk at l would bias the curve upward)
-    spells = kaplan_meier(raw.hist[K.H_SPELL_ENDED], _cut_off(raw.hist[K.H_SPELL_CENSORED]), confidence)
-    wars = kaplan_meier(raw.hist[K.H_WAR_ENDED], _cut_off(raw.hist[K.H_WAR_CENSORED]), confidence)
-    fb = ints[:, K.R_FIRST_BREAKDOWN]
-    ended = np.bincount(fb[fb > 0], minlength=run["periods"] + 1)[: run["periods"] + 1]
-    cens = np.bincount(ints[fb == 0, K.R_PERIODS], minlength=run["periods"] + 1)[: run["periods"] + 1]
-    breakdown = kaplan_meier(ended, cens, confidence, restrict=run["periods"])
-    punishments = kaplan_meier(raw.hist[K.H_PUNISH_ENDED], _cut_off(raw.hist[K.H_PUNISH_CENSORED]), confidence)
-    metrics["spell_length"] = spells.mean
-    metrics["war_length"] = wars.mean
-    metrics["first_breakdown"] = breakdown.mean
-    metrics["broken_down"] = wilson_estimate(int((fb > 0).sum()), fb.shape[0], confidence)
-    metrics["price"] = ratio_estimate(raw.flts[:, K.F_PRICE_SUM], periods, confidence)
-    metrics["overcharge"] = metrics["price"].affine(-1.0, 1.0 / p_n) if p_n > 0 else _nan_est("price")
-    metrics["consumer_surplus"] = ratio_estimate(raw.flts[:, K.F_CS_SUM], periods, confidence)
-    joint = raw.profit_sum.sum(axis=1)
-    metrics["joint_profit"] = ratio_estimate(joint, periods, confidence)
-    jn, jc = float(pi_n.sum()), float(pi_c.sum())
-    metrics["profit_gain"] = (metrics["joint_profit"].affine(-jn / (jc - jn), 1.0 / (jc - jn))
-                              if jc > jn else _nan_est("ratio"))
-    firm = {"profit": [], "discounted_profit": [], "profit_gain": []}
-    for i in range(n):
-        e = ratio_estimate(raw.profit_sum[:, i], periods, confidence)
-        firm["profit"].append(e)
-        firm["discounted_profit"].append(mean_estimate(raw.disc[:, i], confidence))
-        gap = float(pi_c[i] - pi_n[i])
-        firm["profit_gain"].append(e.affine(-float(pi_n[i]) / gap, 1.0 / gap) if abs(gap) > 1e-12 * max(
-            1.0, abs(float(pi_c[i]))) else _nan_est("ratio"))
+    spells, wars, breakdown, punishments = _survival_curves(raw, run["periods"], confidence)
+    metrics = _market_metrics(raw, periods, (spells, wars, breakdown), pi_n, pi_c, p_n, confidence)
+    firm = _firm_metrics(raw, periods, pi_n, pi_c, confidence)
     alive = raw.by_period[1]
     with np.errstate(invalid="ignore", divide="ignore"):
         by_t = np.where(alive > 0, raw.by_period[0] / np.maximum(alive, 1), np.nan)
@@ -226,13 +320,62 @@ def summarize(raw, game, run: dict, confidence: float = 0.95, baseline: bool = T
     with np.errstate(invalid="ignore", divide="ignore"):
         mean_profit = raw.profit_sum / np.maximum(periods, 1)[:, None]
     settings = _settings(game, run, confidence)
-    res = SimulationResult(settings, mean_profit, raw.disc.copy(), ints[:, K.R_PERIODS].copy(), fb.copy(), counts,
-                           metrics, firm, spells, wars, breakdown, by_t, reference, {}, _paths(raw, game),
-                           punishments)
+    res = SimulationResult(settings, mean_profit, raw.disc.copy(), ints[:, K.R_PERIODS].copy(),
+                           ints[:, K.R_FIRST_BREAKDOWN].copy(), counts, metrics, firm, spells, wars, breakdown, by_t,
+                           reference, {}, _paths(raw, game), punishments)
     if baseline:
-
         res.baseline = analytic_baseline(game, run)
     return res
+
+
+def _survival_curves(raw, n_periods: int, confidence: float) -> tuple:
+    """Kaplan-Meier curves of collusive spells, price wars, the first breakdown and punishment phases."""
+    # a spell or war cut off by the horizon after l periods is known to last at least l periods, i.e.
+    # to outlive l - 1: it is censored at l - 1 (counting it at risk at l would bias the curve upward)
+    spells = kaplan_meier(raw.hist[K.H_SPELL_ENDED], _cut_off(raw.hist[K.H_SPELL_CENSORED]), confidence)
+    wars = kaplan_meier(raw.hist[K.H_WAR_ENDED], _cut_off(raw.hist[K.H_WAR_CENSORED]), confidence)
+    fb = raw.ints[:, K.R_FIRST_BREAKDOWN]
+    ended = np.bincount(fb[fb > 0], minlength=n_periods + 1)[: n_periods + 1]
+    cens = np.bincount(raw.ints[fb == 0, K.R_PERIODS], minlength=n_periods + 1)[: n_periods + 1]
+    breakdown = kaplan_meier(ended, cens, confidence, restrict=n_periods)
+    punishments = kaplan_meier(raw.hist[K.H_PUNISH_ENDED], _cut_off(raw.hist[K.H_PUNISH_CENSORED]), confidence)
+    return spells, wars, breakdown, punishments
+
+
+def _market_metrics(raw, periods: np.ndarray, curves: tuple, pi_n, pi_c, p_n: float, confidence: float) -> dict:
+    ints = raw.ints
+    spells, wars, breakdown = curves
+    fb = ints[:, K.R_FIRST_BREAKDOWN]
+    metrics = {}
+    metrics["collusive_share"] = ratio_estimate(ints[:, K.R_COLLUSIVE], periods, confidence)
+    metrics["war_share"] = ratio_estimate(ints[:, K.R_WAR_PERIODS], periods, confidence)
+    metrics["wars_per_replication"] = mean_estimate(ints[:, K.R_WARS], confidence)
+    metrics["war_frequency"] = ratio_estimate(ints[:, K.R_WARS], periods, confidence)
+    metrics["spell_length"] = spells.mean
+    metrics["war_length"] = wars.mean
+    metrics["first_breakdown"] = breakdown.mean
+    metrics["broken_down"] = wilson_estimate(int((fb > 0).sum()), fb.shape[0], confidence)
+    metrics["price"] = ratio_estimate(raw.flts[:, K.F_PRICE_SUM], periods, confidence)
+    metrics["overcharge"] = metrics["price"].affine(-1.0, 1.0 / p_n) if p_n > 0 else _nan_est("price")
+    metrics["consumer_surplus"] = ratio_estimate(raw.flts[:, K.F_CS_SUM], periods, confidence)
+    joint = raw.profit_sum.sum(axis=1)
+    metrics["joint_profit"] = ratio_estimate(joint, periods, confidence)
+    jn, jc = float(pi_n.sum()), float(pi_c.sum())
+    metrics["profit_gain"] = (metrics["joint_profit"].affine(-jn / (jc - jn), 1.0 / (jc - jn))
+                              if jc > jn else _nan_est("ratio"))
+    return metrics
+
+
+def _firm_metrics(raw, periods: np.ndarray, pi_n, pi_c, confidence: float) -> dict:
+    firm = {"profit": [], "discounted_profit": [], "profit_gain": []}
+    for i in range(raw.profit_sum.shape[1]):
+        e = ratio_estimate(raw.profit_sum[:, i], periods, confidence)
+        firm["profit"].append(e)
+        firm["discounted_profit"].append(mean_estimate(raw.disc[:, i], confidence))
+        gap = float(pi_c[i] - pi_n[i])
+        firm["profit_gain"].append(e.affine(-float(pi_n[i]) / gap, 1.0 / gap) if abs(gap) > 1e-12 * max(
+            1.0, abs(float(pi_c[i]))) else _nan_est("ratio"))
+    return firm
 
 
 def _cut_off(hist: np.ndarray) -> np.ndarray:

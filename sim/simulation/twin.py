@@ -3,11 +3,13 @@
 It plays the same line-up with the same random draws in the same order as :mod:`sim.simulation.kernel`
 (:class:`sim.core.rng.ReferenceStream` is the bit-exact twin of the kernel's generator), one replication
 at a time, with the automaton logic written out again in ordinary Python from the compiled arrays.
+It reads the same input groups as the kernel (:func:`sim.simulation.driver.kernel_groups`) and follows
+the kernel's steps one function per step, so that a difference found by a test points to one step.
 The stage game of each period is evaluated by the pure-Python original of the numba stage core
 (``sim.models.stagecore.evaluate.py_func``), itself checked against the numpy definitions of
 :mod:`sim.models.demand` and :mod:`sim.models.market`.
 
-:func:`reference_run` returns a :class:`sim.simulation.engine.RawRun` laid out exactly as the driver's, so that a
+:func:`reference_run` returns a :class:`sim.simulation.driver.RawRun` laid out exactly as the driver's, so that a
 test can compare every array.
 """
 
@@ -21,7 +23,7 @@ import sim.simulation.kernel as K
 import strategies.step as S
 from sim.core.rng import ReferenceStream, stream_states
 from sim.models.stagecore import evaluate
-from sim.simulation.engine import RawRun
+from sim.simulation.driver import RawRun, kernel_groups
 
 __all__ = ["reference_run"]
 
@@ -48,157 +50,233 @@ class _Firm:
         self.levels = [[float(v) for v in row] for row in lineup.levels[i]]
 
 
-def reference_run(game, periods: int, replications: int, delta: float, seed: int, key=(0,),
-                  horizon: str = "fixed", continuation: float = 1.0, paths: int = 0):
-    """Play ``replications`` replications in plain Python; arguments as :func:`sim.simulation.engine.run_game`."""
+class _Game:
+    """The kernel's input groups in plain Python."""
 
-    mk = game.arrays
-    lu = game.lineup
+    def __init__(self, market, lineup, monitoring, run):
+        self.market = market
+        self.monitoring = monitoring
+        self.run = run
+        self.n = int(market.n_firms)
+        self.n_products = int(market.owner.shape[0])
+        self.owner = [int(o) for o in market.owner]
+        self.firms = [_Firm(i, lineup) for i in range(self.n)]
+        self.tremble = [float(x) for x in lineup.tremble]
+        self.evaluate_args = (market.code, market.scalars, market.vector, market.cost, market.capacity, market.owner,
+                              market.n_firms)
+
+
+def _horizon(game: _Game, rng: ReferenceStream) -> int:
+    run = game.run
+    if not run.random_horizon:
+        return run.n_periods
+    u = rng.next_double()
+    if run.continuation >= 1.0:
+        return run.n_periods
+    return min(run.n_periods, 1 + math.floor(math.log(1.0 - u) / math.log(run.continuation)))
+
+
+def _choose_levels(game: _Game, state: list, t: int, rng: ReferenceStream, counts) -> tuple[list, list]:
+    lev, cheated = [], []
+    for i, f in enumerate(game.firms):
+        s = state[i]
+        level, ch = f.states[s][S.ACTION], False
+        pc = f.probs[s][S.P_CHEAT]
+        if pc > 0.0 and f.cheat_from <= t < f.cheat_until and (pc >= 1.0 or rng.next_double() < pc):
+            level, ch = f.cheat_level, True
+        lev.append(level)
+        cheated.append(ch)
+        counts[K.R_CHEATS] += ch
+    return lev, cheated
+
+
+def _tremble(game: _Game, rng: ReferenceStream, counts) -> list:
+    e_impl = game.monitoring.implementation_error
+    if e_impl <= 0.0:
+        return [False] * game.n
+    trembled = [rng.next_double() < e_impl for _ in range(game.n)]
+    counts[K.R_TREMBLES] += sum(trembled)
+    return trembled
+
+
+def _actions(game: _Game, lev: list, trembled: list) -> np.ndarray:
+    own = game.owner
+    return np.array([game.tremble[k] if trembled[own[k]] else game.firms[own[k]].levels[lev[own[k]]][k]
+                     for k in range(game.n_products)])
+
+
+def _demand_shock(game: _Game, rng: ReferenceStream) -> float:
     mon = game.monitoring
-    n, P = mk.n_firms, mk.n_products
-    owner = [int(o) for o in mk.owner]
-    firms = [_Firm(i, lu) for i in range(n)]
-    tremble = [float(x) for x in game.tremble]
-    sigma = mon["sigma"]
-    noise = mon["noise_code"]
-    e_perc = mon["perception_error"]
-    e_impl = mon["implementation_error"]
-    qset = mk.quantity_setting
-    raw = RawRun.empty(replications, n, P, periods, paths)
+    if mon.noise_code == 1:
+        return math.exp(mon.sigma * rng.next_normal_zig() - 0.5 * mon.sigma * mon.sigma)
+    if mon.noise_code == 2:
+        return max(0.0, 1.0 + mon.sigma * rng.next_normal_zig())  # floored at zero (sim.models.monitoring)
+    return 1.0
+
+
+def _record_path(raw: RawRun, r: int, t: int, period: dict, state: list, colluding: list, all_c: bool) -> None:
+    raw.path_actions[r, t] = period["actions"]
+    raw.path_prices[r, t] = period["prices"]
+    raw.path_market[r, t] = (period["price"], period["theta"], period["surplus"])
+    raw.path_profit[r, t] = period["profit"]
+    raw.path_state[r, t] = state
+    raw.path_flags[r, t] = [(K.FLAG_CHEAT if ch else 0) | (K.FLAG_TREMBLE if tr else 0) | (K.FLAG_COLLUDE if co else 0)
+                            for ch, tr, co in zip(period["cheated"], period["trembled"], colluding)]
+    raw.path_collude[r, t] = int(all_c)
+
+
+def _bad_signal(game: _Game, i: int, s: int, period: dict, rng: ReferenceStream) -> bool:
+    f = game.firms[i]
+    row, pr = f.states[s], f.probs[s]
+    watch = row[S.WATCH]
+    if watch == S.WATCH_NOTHING:
+        return False
+    if watch == S.WATCH_PRICE:
+        return period["price"] < pr[S.THRESHOLD]
+    if watch == S.WATCH_PROFIT:
+        return period["profit"][i] < pr[S.THRESHOLD]
+    bad = False
+    expected = f.levels[row[S.EXPECT]]
+    actions = period["actions"]
+    for j in range(game.n):
+        ok = all(_complies(actions[k], expected[k], row[S.JUDGE], game.market.quantity_setting)
+                 for k in range(game.n_products) if game.owner[k] == j)
+        if j == i:
+            bad = bad or (watch == S.WATCH_ALL and not ok)
+            continue
+        if game.monitoring.perception_error > 0.0 and rng.next_double() < game.monitoring.perception_error:
+            ok = not ok
+        bad = bad or not ok
+    return bad
+
+
+def _next_states(game: _Game, state: list, period: dict, rng: ReferenceStream) -> list:
+    new_state = []
+    for i, f in enumerate(game.firms):
+        bad = _bad_signal(game, i, state[i], period, rng)
+        row, pr = f.states[state[i]], f.probs[state[i]]
+        nxt, alt, pa = ((row[S.BAD], row[S.ALT_BAD], pr[S.P_ALT_BAD]) if bad
+                        else (row[S.GOOD], row[S.ALT_GOOD], pr[S.P_ALT_GOOD]))
+        if pa > 0.0 and (pa >= 1.0 or rng.next_double() < pa):
+            nxt = alt
+        new_state.append(nxt)
+    return new_state
+
+
+def _count_period(raw: RawRun, counts, runs: dict, t: int, all_c: bool, punishing: bool) -> None:
+    raw.by_period[1, t] += 1
+    if all_c:
+        raw.by_period[0, t] += 1
+        counts[K.R_COLLUSIVE] += 1
+    else:
+        counts[K.R_WAR_PERIODS] += 1
+        if counts[K.R_FIRST_BREAKDOWN] == 0:
+            counts[K.R_FIRST_BREAKDOWN] = t + 1
+    if t == 0:
+        runs["run"] = 1
+        counts[K.R_SPELLS if all_c else K.R_WARS] += 1
+    elif all_c == runs["prev"]:
+        runs["run"] += 1
+    else:
+        if runs["prev"]:
+            raw.hist[K.H_SPELL_ENDED, runs["run"]] += 1
+            counts[K.R_SPELLS_ENDED] += 1
+            counts[K.R_SPELL_PERIODS_ENDED] += runs["run"]
+            counts[K.R_WARS] += 1
+        else:
+            raw.hist[K.H_WAR_ENDED, runs["run"]] += 1
+            counts[K.R_WARS_ENDED] += 1
+            counts[K.R_WAR_PERIODS_ENDED] += runs["run"]
+            counts[K.R_SPELLS] += 1
+        runs["run"] = 1
+    runs["prev"] = all_c
+    if punishing:
+        runs["punish"] += 1
+    elif runs["punish"] > 0:
+        raw.hist[K.H_PUNISH_ENDED, runs["punish"]] += 1
+        runs["punish"] = 0
+    counts[K.R_PERIODS] += 1
+
+
+def _play_period(game: _Game, raw: RawRun, r: int, t: int, state: list, rng: ReferenceStream, buffers) -> tuple:
+    """Steps 1-5 of a period and its path record; returns (the period's values, all collude, punishing)."""
+    counts = raw.ints[r]
+    lev, cheated = _choose_levels(game, state, t, rng, counts)
+    trembled = _tremble(game, rng, counts)
+    actions = _actions(game, lev, trembled)
+    theta = _demand_shock(game, rng)
+    q, p, profit, work = buffers
+    mp, cs = evaluate.py_func(*game.evaluate_args, actions, theta, q, p, profit, work, True)
+    if mp != mp:
+        raise RuntimeError("stage evaluation failed")
+    firms = game.firms
+    colluding = [f.states[state[i]][S.COLLUSIVE] == 1 and not cheated[i] and not trembled[i]
+                 for i, f in enumerate(firms)]
+    all_c = all(colluding)
+    # a punishment period: some firm's automaton is in a non-collusive state
+    punishing = any(f.states[state[i]][S.COLLUSIVE] == 0 for i, f in enumerate(firms))
+    period = {"actions": actions, "prices": p, "profit": profit, "price": mp, "theta": theta, "surplus": cs,
+              "cheated": cheated, "trembled": trembled}
+    if r < game.run.n_paths:
+        _record_path(raw, r, t, period, state, colluding, all_c)
+    return period, all_c, punishing
+
+
+def _play_replication(game: _Game, raw: RawRun, r: int, rng: ReferenceStream, buffers) -> None:
+    state = [f.initial for f in game.firms]
+    disc = 1.0
+    runs = {"run": 0, "prev": False, "punish": 0}
+    for t in range(_horizon(game, rng)):
+        period, all_c, punishing = _play_period(game, raw, r, t, state, rng, buffers)
+        state = _next_states(game, state, period, rng)
+        raw.profit_sum[r] += period["profit"]
+        raw.disc[r] += disc * period["profit"]
+        disc *= game.run.delta
+        if disc < K._DISC_FLOOR:
+            disc = 0.0
+        raw.flts[r, K.F_PRICE_SUM] += period["price"]
+        raw.flts[r, K.F_CS_SUM] += period["surplus"]
+        _count_period(raw, raw.ints[r], runs, t, all_c, punishing)
+    if runs["run"] > 0:
+        raw.hist[K.H_SPELL_CENSORED if runs["prev"] else K.H_WAR_CENSORED, runs["run"]] += 1
+    if runs["punish"] > 0:
+        raw.hist[K.H_PUNISH_CENSORED, runs["punish"]] += 1
+
+
+def reference_run(game, periods: int, replications: int, delta: float, seed: int, key=(0,),
+                  horizon: str = "fixed", continuation: float = 1.0, paths: int = 0) -> RawRun:
+    """Play ``replications`` replications in plain Python, draw for draw as the kernel.
+
+    Parameters
+    ----------
+    game : Game
+        The compiled game (:func:`sim.simulation.game.prepare_game`).
+    periods : int
+        Number of periods (the cap of a random horizon).
+    replications : int
+        Number of replications.
+    delta : float
+        Discount factor of the discounted profit sums.
+    seed : int
+        The user's seed.
+    key : tuple of int
+        Stream family of the seeds.
+    horizon : {"fixed", "random"}
+        ``random``: the game ends after each period with probability ``1 - continuation``.
+    continuation : float
+        Continuation probability of a random horizon.
+    paths : int
+        Number of replications (the first ones) whose full paths are recorded.
+
+    Returns
+    -------
+    RawRun
+        Laid out exactly as :func:`sim.simulation.driver.run_game` lays it out.
+    """
+    g = _Game(*kernel_groups(game, periods, delta, horizon, continuation, paths))
+    raw = RawRun.empty(replications, g.n, g.n_products, periods, paths)
     seeds = stream_states(seed, key, 0, replications)
-    q = np.empty(P)
-    p = np.empty(P)
-    profit = np.empty(n)
-    work = np.empty((2, P))
-    args = mk.args()
+    buffers = (np.empty(g.n_products), np.empty(g.n_products), np.empty(g.n), np.empty((2, g.n_products)))
     for r in range(replications):
-        rng = ReferenceStream(seeds[r])
-        H = periods
-        if horizon == "random":
-            u = rng.next_double()
-            if continuation < 1.0:
-                H = min(periods, 1 + math.floor(math.log(1.0 - u) / math.log(continuation)))
-        state = [f.initial for f in firms]
-        disc = 1.0
-        prev = False
-        run = 0
-        prun = 0
-        counts = raw.ints[r]
-        for t in range(H):
-            # 1. levels, with cheating
-            lev, cheated = [], []
-            for i, f in enumerate(firms):
-                s = state[i]
-                level, ch = f.states[s][S.ACTION], False
-                pc = f.probs[s][S.P_CHEAT]
-                if pc > 0.0 and f.cheat_from <= t < f.cheat_until and (pc >= 1.0 or rng.next_double() < pc):
-                    level, ch = f.cheat_level, True
-                lev.append(level)
-                cheated.append(ch)
-                counts[K.R_CHEATS] += ch
-            # 2. implementation errors
-            trembled = [False] * n
-            if e_impl > 0.0:
-                trembled = [rng.next_double() < e_impl for _ in range(n)]
-                counts[K.R_TREMBLES] += sum(trembled)
-            actions = np.array([tremble[k] if trembled[owner[k]] else firms[owner[k]].levels[lev[owner[k]]][k]
-                                for k in range(P)])
-            # 3. demand shock
-            theta = 1.0
-            if noise == 1:
-                theta = math.exp(sigma * rng.next_normal_zig() - 0.5 * sigma * sigma)
-            elif noise == 2:
-                theta = max(0.0, 1.0 + sigma * rng.next_normal_zig())  # floored at zero (sim.models.monitoring)
-            # 4. the stage game
-            mp, cs = evaluate.py_func(*args, actions, theta, q, p, profit, work, True)
-            if mp != mp:
-                raise RuntimeError("stage evaluation failed")
-            # 5. who colludes
-            colluding = [f.states[state[i]][S.COLLUSIVE] == 1 and not cheated[i] and not trembled[i]
-                         for i, f in enumerate(firms)]
-            all_c = all(colluding)
-            # a punishment period: some firm's automaton is in a non-collusive state
-            punishing = any(f.states[state[i]][S.COLLUSIVE] == 0 for i, f in enumerate(firms))
-            if r < paths:
-                raw.path_actions[r, t] = actions
-                raw.path_prices[r, t] = p
-                raw.path_market[r, t] = (mp, theta, cs)
-                raw.path_profit[r, t] = profit
-                raw.path_state[r, t] = state
-                raw.path_flags[r, t] = [(K.FLAG_CHEAT if cheated[i] else 0) | (K.FLAG_TREMBLE if trembled[i] else 0)
-                                        | (K.FLAG_COLLUDE if colluding[i] else 0) for i in range(n)]
-                raw.path_collude[r, t] = int(all_c)
-            # 6. signals and transitions
-            new_state = []
-            for i, f in enumerate(firms):
-                row, pr = f.states[state[i]], f.probs[state[i]]
-                watch = row[S.WATCH]
-                if watch == S.WATCH_NOTHING:
-                    bad = False
-                elif watch == S.WATCH_PRICE:
-                    bad = mp < pr[S.THRESHOLD]
-                elif watch == S.WATCH_PROFIT:
-                    bad = profit[i] < pr[S.THRESHOLD]
-                else:
-                    bad = False
-                    expected = f.levels[row[S.EXPECT]]
-                    for j in range(n):
-                        ok = all(_complies(actions[k], expected[k], row[S.JUDGE], qset) for k in range(P)
-                                 if owner[k] == j)
-                        if j == i:
-                            bad = bad or (watch == S.WATCH_ALL and not ok)
-                            continue
-                        if e_perc > 0.0 and rng.next_double() < e_perc:
-                            ok = not ok
-                        bad = bad or not ok
-                nxt, alt, pa = ((row[S.BAD], row[S.ALT_BAD], pr[S.P_ALT_BAD]) if bad
-                                else (row[S.GOOD], row[S.ALT_GOOD], pr[S.P_ALT_GOOD]))
-                if pa > 0.0 and (pa >= 1.0 or rng.next_double() < pa):
-                    nxt = alt
-                new_state.append(nxt)
-            state = new_state
-            # 7. metrics
-            raw.profit_sum[r] += profit
-            raw.disc[r] += disc * profit
-            disc *= delta
-            if disc < K._DISC_FLOOR:
-                disc = 0.0
-            raw.flts[r, K.F_PRICE_SUM] += mp
-            raw.flts[r, K.F_CS_SUM] += cs
-            raw.by_period[1, t] += 1
-            if all_c:
-                raw.by_period[0, t] += 1
-                counts[K.R_COLLUSIVE] += 1
-            else:
-                counts[K.R_WAR_PERIODS] += 1
-                if counts[K.R_FIRST_BREAKDOWN] == 0:
-                    counts[K.R_FIRST_BREAKDOWN] = t + 1
-            if t == 0:
-                run = 1
-                counts[K.R_SPELLS if all_c else K.R_WARS] += 1
-            elif all_c == prev:
-                run += 1
-            else:
-                if prev:
-                    raw.hist[K.H_SPELL_ENDED, run] += 1
-                    counts[K.R_SPELLS_ENDED] += 1
-                    counts[K.R_SPELL_PERIODS_ENDED] += run
-                    counts[K.R_WARS] += 1
-                else:
-                    raw.hist[K.H_WAR_ENDED, run] += 1
-                    counts[K.R_WARS_ENDED] += 1
-                    counts[K.R_WAR_PERIODS_ENDED] += run
-                    counts[K.R_SPELLS] += 1
-                run = 1
-            prev = all_c
-            if punishing:
-                prun += 1
-            elif prun > 0:
-                raw.hist[K.H_PUNISH_ENDED, prun] += 1
-                prun = 0
-            counts[K.R_PERIODS] += 1
-        if run > 0:
-            raw.hist[K.H_SPELL_CENSORED if prev else K.H_WAR_CENSORED, run] += 1
-        if prun > 0:
-            raw.hist[K.H_PUNISH_CENSORED, prun] += 1
+        _play_replication(g, raw, r, ReferenceStream(seeds[r]), buffers)
     return raw

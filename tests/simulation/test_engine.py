@@ -360,7 +360,7 @@ def test_generator_states_are_derived_once_per_run(monkeypatch):
     """With small batches (a progress bar) the states of all replications are derived in one call, not
     once per batch from the start of the stream family (which costs 4 * stop words each time); the
     numbers are those of a single batch."""
-    import sim.simulation.engine as E
+    import sim.simulation.driver as E
 
     calls = []
     real = E.stream_states
