@@ -34,44 +34,51 @@ _PAYS_TOL = 1e-9
 @njit(cache=True, nogil=True)
 def _profile(x, play):
     """The profile everyone plays greedily in system state ``x``."""
-    seats, stage, automata = play.seats, play.stage, play.automata
-    S = stage.S
+    # the arrays as locals, taken once: an access through a tuple takes and releases a reference every time
+    kind, lidx, radix, place, mod, zn, zplace = (play.seats.kind, play.seats.lidx, play.seats.radix,
+                                                 play.seats.place, play.seats.mod, play.seats.zn, play.seats.zplace)
+    a_states, a_probs, a_firms, act_of_level = (play.automata.states, play.automata.probs, play.automata.firms,
+                                                play.automata.act_of_level)
+    greedy, rng, t_end, S = play.greedy, play.rng, play.t_end, play.stage.S
     s = x % S
     zc = x // S
     prof = 0
-    for i in range(seats.radix.size):
-        if seats.kind[i] == LEARNER:
-            si = s if seats.mod[i] == S else s % seats.mod[i]
-            a = play.greedy[seats.lidx[i], si]
+    for i in range(radix.size):
+        if kind[i] == LEARNER:
+            si = s if mod[i] == S else s % mod[i]
+            a = greedy[lidx[i], si]
         else:
-            zi = (zc // seats.zplace[i]) % seats.zn[i]
-            lev, _c = choose_level(i, zi, play.t_end, automata.states, automata.probs, automata.firms, play.rng)
-            a = automata.act_of_level[i, lev]
-        prof += a * seats.place[i]
+            zi = (zc // zplace[i]) % zn[i]
+            lev, _c = choose_level(i, zi, t_end, a_states, a_probs, a_firms, rng)
+            a = act_of_level[i, lev]
+        prof += a * place[i]
     return prof
 
 
 @njit(cache=True, nogil=True)
 def _after(x, prof, play):
     """System state after profile ``prof`` is played in system state ``x``."""
-    seats, stage, automata = play.seats, play.stage, play.automata
-    n = seats.radix.size
-    S = stage.S
+    kind, radix, place, zn, zplace, owner = (play.seats.kind, play.seats.radix, play.seats.place, play.seats.zn,
+                                             play.seats.zplace, play.seats.owner)
+    M, S, K, payoff, mprice, values, qs = (play.stage.M, play.stage.S, play.stage.K, play.stage.payoff,
+                                           play.stage.mprice, play.stage.values, play.stage.quantity_setting)
+    n = radix.size
     s = x % S
     zc = x // S
-    s_new = prof if stage.K == 1 else prof + (s * stage.M) % S
-    if zc == 0 and seats.zn.max() == 1:
+    s_new = prof if K == 1 else prof + (s * M) % S
+    if zc == 0 and zn.max() == 1:
         return s_new
+    a_states, a_probs, a_levels, rng = play.automata.states, play.automata.probs, play.automata.levels, play.rng
     vals = np.empty(n, np.float64)
     for i in range(n):
-        vals[i] = stage.values[i, (prof // seats.place[i]) % seats.radix[i]]
+        vals[i] = values[i, (prof // place[i]) % radix[i]]
     zc_new = 0
     for i in range(n):
-        if seats.kind[i] == AUTOMATON:
-            zi = (zc // seats.zplace[i]) % seats.zn[i]
-            bad = bad_signal(i, zi, n, vals, seats.owner, stage.mprice[prof], stage.payoff[prof, i], 0.0,
-                             automata.states, automata.probs, automata.levels, stage.quantity_setting, play.rng)
-            zc_new += next_state(i, zi, bad, automata.states, automata.probs, play.rng) * seats.zplace[i]
+        if kind[i] == AUTOMATON:
+            zi = (zc // zplace[i]) % zn[i]
+            bad = bad_signal(i, zi, n, vals, owner, mprice[prof], payoff[prof, i], 0.0, a_states, a_probs, a_levels,
+                             qs, rng)
+            zc_new += next_state(i, zi, bad, a_states, a_probs, rng) * zplace[i]
     return s_new + S * zc_new
 
 
