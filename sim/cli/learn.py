@@ -189,7 +189,7 @@ def run(args) -> int:
     """
     doc, flags = document(args)
     if args.plot and os.path.exists(args.plot) and not os.path.isdir(args.plot):
-        raise InputError("--plot", f"{args.plot} exists and is not a directory")
+        raise InputError("plot", f"{args.plot} exists and is not a directory")
     try:
         workers = RUN_CONSTRAINTS["workers"].check("run.workers", _table(doc, "run").get("workers"))
         one = run_single(doc, threads=workers or usable_cores(), progress=sys.stderr.isatty(), source=args.file,
@@ -197,7 +197,7 @@ def run(args) -> int:
     except InputError as exc:
         raise _renamed(exc, flags) from None
     res = one.result
-    written = [str(p) for p in write_figures(RENDERER.figures(res), args.plot, key="--plot")] if args.plot else []
+    written = [str(p) for p in write_figures(RENDERER.figures(res), args.plot)] if args.plot else []
     if args.json:
         out = RENDERER.as_json(res)
         if written:
