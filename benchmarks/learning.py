@@ -9,7 +9,7 @@ import argparse
 import json
 from types import SimpleNamespace
 
-from sim.learning.session import bench_section
+from sim.bench.learning import bench_section
 
 if __name__ == "__main__":
     p = argparse.ArgumentParser()

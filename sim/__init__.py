@@ -27,7 +27,10 @@ _EXPORTS = {
     "theory.trigger_price": [
         "TriggerPriceScheme", "price_war_statistics", "trigger_price_equilibrium", "trigger_price_scheme",
     ],
-    "learning.session": ["LearningResult", "Lineup", "compile_lineup", "learn", "learning_from_dict"],
+    "learning.lineup": ["Lineup", "compile_lineup"],
+    "learning.results": ["LearningResult"],
+    "learning.session": ["learn"],
+    "learning.tables": ["learning_from_dict"],
     "simulation.engine": ["Game", "RawRun", "compile_game", "prepare_game", "run_game", "simulate",
                           "simulation_from_dict", "stage_levels"],
     "models.monitoring": ["Monitoring", "monitoring_from_dict"],

@@ -1,6 +1,6 @@
-"""Plain-Python reference of one Q-learning session: slow, readable, and the check on the kernel.
+"""Plain-Python twin of the learning kernels: slow, readable, and the check on them.
 
-It follows the definitions rather than the kernel's tricks: a state is the tuple of the last ``k``
+It follows the definitions rather than the kernels' tricks: a state is the tuple of the last ``k``
 action profiles (most recent first), Q-values live in a dictionary keyed by that tuple, the greedy
 action is recomputed with ``max`` on every use, and the limit cycle is found by remembering every
 state visited. It draws from :class:`sim.core.rng.ReferenceStream` in exactly the kernel's order (see
@@ -15,8 +15,9 @@ the expected level, the market price or the own profit against the threshold; no
 next to learners); the next state, or the alternative one with the forgiveness or lapse
 probability. A draw is made only when its probability is strictly between 0 and 1.
 
-:func:`reference_analysis` is the exact limit analysis of deterministic line-ups;
-:func:`reference_estimate` the simulated one of line-ups whose automata act at random.
+:func:`reference_session` is the twin of :func:`sim.learning.kernel.run_session`;
+:func:`reference_analysis` of :func:`sim.learning.limits.analyse_limit` (deterministic line-ups) and
+:func:`reference_estimate` of :func:`sim.learning.limits.estimate_limit` (automata that act at random).
 """
 
 from __future__ import annotations
@@ -31,19 +32,28 @@ from sim.core.rng import ReferenceStream
 
 __all__ = ["jumped", "reference_analysis", "reference_estimate", "reference_session"]
 
+#: xoshiro256** jump by 2**128 draws (Blackman and Vigna, 2021, ACM TOMS 47(4), their reference ``jump``)
+_JUMP = (0x180EC6D33CFD0ABA, 0xD5A61266F0C9392C, 0xA9582618E03FC9AA, 0x39ABDC4529B1661C)
+
 
 def _argmax(row):
     """First index of the largest value (ties go to the lowest action)."""
     return row.index(max(row))
 
 
-#: xoshiro256** jump by 2**128 draws (Blackman and Vigna, 2021, ACM TOMS 47(4), their reference ``jump``)
-_JUMP = (0x180EC6D33CFD0ABA, 0xD5A61266F0C9392C, 0xA9582618E03FC9AA, 0x39ABDC4529B1661C)
-
-
 def jumped(stream):
-    """A new :class:`~sim.core.rng.ReferenceStream` 2**128 draws ahead of ``stream`` (which is unchanged):
-    the XOR of the states after the draws whose bit is set in the jump polynomial."""
+    """A generator 2**128 draws ahead of ``stream``: the XOR of the states after the draws whose bit is set in
+    the jump polynomial.
+
+    Parameters
+    ----------
+    stream : sim.core.rng.ReferenceStream
+        Left unchanged.
+
+    Returns
+    -------
+    sim.core.rng.ReferenceStream
+    """
     work = ReferenceStream(np.array(stream.s, dtype=np.uint64))
     acc = [0, 0, 0, 0]
     for word in _JUMP:
@@ -67,56 +77,56 @@ class _Automaton:
     """One automaton seat, read from the engine's compiled arrays into plain lists."""
 
     def __init__(self, lineup, i):
-
-        self.S = S
+        au = lineup.automata
         self.i = i
-        ns = int(lineup.a_firms[i, S.N_STATES])
-        self.rows = [[int(v) for v in lineup.a_states[i, s]] for s in range(ns)]
-        self.probs = [[float(v) for v in lineup.a_probs[i, s]] for s in range(ns)]
-        self.cheat_level = int(lineup.a_firms[i, S.CHEAT_LEVEL])
-        self.cheat_from = int(lineup.a_firms[i, S.CHEAT_FROM])
-        self.cheat_until = int(lineup.a_firms[i, S.CHEAT_UNTIL])
-        self.levels = [[float(v) for v in row] for row in lineup.a_levels[i]]
-        self.act_of_level = [int(v) for v in lineup.act_of_level[i]]
+        ns = int(au.firms[i, S.N_STATES])
+        self.rows = [[int(v) for v in au.states[i, s]] for s in range(ns)]
+        self.probs = [[float(v) for v in au.probs[i, s]] for s in range(ns)]
+        self.cheat_level = int(au.firms[i, S.CHEAT_LEVEL])
+        self.cheat_from = int(au.firms[i, S.CHEAT_FROM])
+        self.cheat_until = int(au.firms[i, S.CHEAT_UNTIL])
+        self.levels = [[float(v) for v in row] for row in au.levels[i]]
+        self.act_of_level = [int(v) for v in au.act_of_level[i]]
 
     def action(self, z, t, rng):
         """Action index played in state ``z`` at period ``t`` (the cheating level with probability
         ``cheat`` inside the cheat window)."""
-        S = self.S
         level = self.rows[z][S.ACTION]
         pc = self.probs[z][S.P_CHEAT]
         if pc > 0.0 and self.cheat_from <= t < self.cheat_until and (pc >= 1.0 or rng.next_double() < pc):
             level = self.cheat_level
         return self.act_of_level[level]
 
-    def complies(self, x, expected, judge, quantity_setting):
-        S = self.S
+    @staticmethod
+    def complies(x, expected, judge, quantity_setting):
         tol = S.TOL * max(1.0, abs(expected))
         more = x - expected if quantity_setting else expected - x  # how much more aggressive than expected
         if judge == S.JUDGE_RESTRAINT:
             return more <= tol
         return more >= -tol
 
+    def bad(self, row, pr, values, market_price, own_profit, quantity_setting):
+        """Whether the signal of the period is bad, by the state's watch mode."""
+        watch = row[S.WATCH]
+        if watch == S.WATCH_PRICE:
+            return market_price < pr[S.THRESHOLD]
+        if watch == S.WATCH_PROFIT:
+            return own_profit < pr[S.THRESHOLD]
+        if watch == S.WATCH_NOTHING or row[S.EXPECT] < 0:
+            return False
+        bad = False
+        expected = self.levels[row[S.EXPECT]]
+        for j, x in enumerate(values):
+            ok = self.complies(x, expected[j], row[S.JUDGE], quantity_setting)
+            if j == self.i and watch == S.WATCH_RIVALS:
+                continue
+            bad = bad or not ok
+        return bad
+
     def next(self, z, values, market_price, own_profit, quantity_setting, rng):
         """State after a period in which the seats played action values ``values``."""
-        S = self.S
         row, pr = self.rows[z], self.probs[z]
-        watch = row[S.WATCH]
-        if watch == S.WATCH_NOTHING:
-            bad = False
-        elif watch == S.WATCH_PRICE:
-            bad = market_price < pr[S.THRESHOLD]
-        elif watch == S.WATCH_PROFIT:
-            bad = own_profit < pr[S.THRESHOLD]
-        else:
-            bad = False
-            if row[S.EXPECT] >= 0:
-                expected = self.levels[row[S.EXPECT]]
-                for j, x in enumerate(values):
-                    ok = self.complies(x, expected[j], row[S.JUDGE], quantity_setting)
-                    if j == self.i and watch == S.WATCH_RIVALS:
-                        continue
-                    bad = bad or not ok
+        bad = self.bad(row, pr, values, market_price, own_profit, quantity_setting)
         nxt, alt, pa = ((row[S.BAD], row[S.ALT_BAD], pr[S.P_ALT_BAD]) if bad
                         else (row[S.GOOD], row[S.ALT_GOOD], pr[S.P_ALT_GOOD]))
         if pa > 0.0 and (pa >= 1.0 or rng.next_double() < pa):
@@ -128,22 +138,23 @@ class _Setup:
     """The line-up in plain Python containers."""
 
     def __init__(self, lineup):
+        seats, stage = lineup.seats, lineup.stage
         self.lu = lineup
         self.n = lineup.n_seats
-        self.m = [int(r) for r in lineup.radix]
+        self.m = [int(r) for r in seats.radix]
         self.learner = [c is not None for c in lineup.learners]
         self.k = [c.k if c is not None else 0 for c in lineup.learners]
         self.K = max(self.k)
-        self.alpha = [float(x) for x in lineup.alpha]
-        self.beta = [float(x) for x in lineup.beta]
-        self.delta = [float(x) for x in lineup.delta]
-        self.place = [int(p) for p in lineup.place]
-        self.M = int(lineup.M)
-        self.profit_table = lineup.payoff.tolist()
-        self.prices_table = lineup.prices.tolist()
-        self.mprice = lineup.mprice.tolist()
-        self.values = lineup.values.tolist()
-        self.quantity_setting = bool(lineup.market.quantity_setting)
+        self.alpha = [float(x) for x in seats.alpha]
+        self.beta = [float(x) for x in seats.beta]
+        self.delta = [float(x) for x in seats.delta]
+        self.place = [int(p) for p in seats.place]
+        self.M = int(stage.M)
+        self.profit_table = stage.payoff.tolist()
+        self.prices_table = stage.prices.tolist()
+        self.mprice = stage.mprice.tolist()
+        self.values = stage.values.tolist()
+        self.quantity_setting = bool(stage.quantity_setting)
         self.automata = {i: _Automaton(lineup, i) for i in range(self.n) if not self.learner[i]}
 
     def index(self, profile):
@@ -159,7 +170,7 @@ class _Setup:
     def initial_q(self, i):
         """Learner i's Q-values as {state tuple: list of floats}, from the kernel-layout template."""
         q = {}
-        li = int(self.lu.lidx[i])
+        li = int(self.lu.seats.lidx[i])
         profiles = [tuple(reversed(p)) for p in itertools.product(*[range(m) for m in reversed(self.m)])]
         for hist in itertools.product(profiles, repeat=self.k[i]):
             s = self.state_index(hist, self.k[i])
@@ -174,22 +185,81 @@ class _Setup:
         j = self.index(profile)
         return self.automata[i].next(z, vals, self.mprice[j], self.profit_table[j][i], self.quantity_setting, rng)
 
+    def move_automata(self, z, profile, rng):
+        """Automaton states after ``profile``, seats in order (learner entries unchanged)."""
+        return [z[i] if self.learner[i] else self.automaton_next(i, z[i], profile, rng) for i in range(self.n)]
+
+
+# ------------------------------------------------------------------------------------------------
+# Learning
+# ------------------------------------------------------------------------------------------------
+
+
+def _choose(st, Q, history, z, t, rng):
+    """Every seat's action in period ``t``: a learner explores with probability exp(-beta t), else plays its
+    greedy action; an automaton plays its state's action."""
+    profile = []
+    for i in range(st.n):
+        if st.learner[i]:
+            epsilon = math.exp(-st.beta[i] * t)
+            if rng.next_double() < epsilon:
+                profile.append(rng.next_below(st.m[i]))
+            else:
+                profile.append(_argmax(Q[i][tuple(history[: st.k[i]])]))
+        else:
+            profile.append(st.automaton_action(i, z[i], t, rng))
+    return tuple(profile)
+
+
+def _update(st, Q, states, history, profile):
+    """Every learner updates the value of the action it played in the state it was in, with the best value of
+    the state it moved to; returns whether a greedy action changed."""
+    profits = st.profits(profile)
+    changed = False
+    for i in Q:
+        row = Q[i][states[i]]
+        before = _argmax(row)
+        continuation = max(Q[i][tuple(history[: st.k[i]])])
+        a = profile[i]
+        row[a] = (1.0 - st.alpha[i]) * row[a] + st.alpha[i] * (profits[i] + st.delta[i] * continuation)
+        if _argmax(row) != before:
+            changed = True
+    return changed
+
+
+def _kernel_layout(st, lineup, Q):
+    """Q-values and greedy actions as the kernel lays them out."""
+    q_arr = lineup.q0.copy()
+    greedy = np.zeros(q_arr.shape[:2], dtype=np.int64)
+    for i in Q:
+        li = int(lineup.seats.lidx[i])
+        for hist, row in Q[i].items():
+            s = st.state_index(hist, st.k[i])
+            q_arr[li, s, : st.m[i]] = row
+            greedy[li, s] = _argmax(row)
+    return q_arr, greedy
+
 
 def reference_session(lineup, rng_state, convergence, max_periods):
     """One session, period by period.
 
     Parameters
     ----------
-    lineup : sim.learning.session.Lineup
-    rng_state : array_like of 4 uint64
-    convergence, max_periods : int
+    lineup : sim.learning.lineup.Lineup
+    rng_state : array_like of uint64, shape (4,)
+        The session's generator state.
+    convergence : int
+        Stop once no learner's greedy action has changed for this many consecutive periods.
+    max_periods : int
+        Stop after this many periods in any case.
 
     Returns
     -------
-    dict with ``status`` (0 converged, 1 cap), ``periods``, ``history`` (tuple of the last K
-    profiles, most recent first), ``state`` (its index in the kernel's layout), ``z`` (automaton
-    states), ``Q`` (ndarray in the kernel's layout), ``greedy`` (ndarray of shape (n_learners, S_l))
-    and ``rng`` (the generator state after the last period, uint64 array of shape (4,)).
+    dict
+        ``status`` (0 converged, 1 cap), ``periods``, ``history`` (tuple of the last K profiles, most recent
+        first), ``state`` (its index in the kernel's layout), ``z`` (tuple of automaton states), ``Q`` (ndarray
+        in the kernel's layout), ``greedy`` (ndarray of shape (n_learners, S_l)) and ``rng`` (the generator
+        state after the last period, uint64 array of shape (4,)).
     """
     st = _Setup(lineup)
     rng = ReferenceStream(rng_state)
@@ -198,302 +268,275 @@ def reference_session(lineup, rng_state, convergence, max_periods):
         history.append(tuple(rng.next_below(st.m[i]) for i in range(st.n)))
     Q = {i: st.initial_q(i) for i in range(st.n) if st.learner[i]}
     z = [int(v) for v in lineup.z0]
-
     t = 0
     stable = 0
     status = 1
     while t < max_periods:
         states = {i: tuple(history[: st.k[i]]) for i in Q}
-        profile = []
-        for i in range(st.n):
-            if st.learner[i]:
-                epsilon = math.exp(-st.beta[i] * t)
-                if rng.next_double() < epsilon:
-                    profile.append(rng.next_below(st.m[i]))
-                else:
-                    profile.append(_argmax(Q[i][states[i]]))
-            else:
-                profile.append(st.automaton_action(i, z[i], t, rng))
-        profile = tuple(profile)
-        profits = st.profits(profile)
+        profile = _choose(st, Q, history, z, t, rng)
         history = [profile, *history[: st.K - 1]]
-        changed = False
-        for i in Q:
-            row = Q[i][states[i]]
-            before = _argmax(row)
-            continuation = max(Q[i][tuple(history[: st.k[i]])])
-            a = profile[i]
-            row[a] = (1.0 - st.alpha[i]) * row[a] + st.alpha[i] * (profits[i] + st.delta[i] * continuation)
-            if _argmax(row) != before:
-                changed = True
+        changed = _update(st, Q, states, history, profile)
         # automata move after the learners' updates, seats in order
-        z = [z[i] if st.learner[i] else st.automaton_next(i, z[i], profile, rng) for i in range(st.n)]
+        z = st.move_automata(z, profile, rng)
         t += 1
         stable = 0 if changed else stable + 1
         if stable >= convergence:
             status = 0
             break
-
-    q_arr = lineup.q0.copy()
-    greedy = np.zeros(q_arr.shape[:2], dtype=np.int64)
-    for i in Q:
-        li = int(lineup.lidx[i])
-        for hist, row in Q[i].items():
-            s = st.state_index(hist, st.k[i])
-            q_arr[li, s, : st.m[i]] = row
-            greedy[li, s] = _argmax(row)
-    return {
-        "status": status,
-        "periods": t,
-        "history": tuple(history),
-        "state": st.state_index(history, st.K),
-        "z": tuple(z),
-        "Q": q_arr,
-        "greedy": greedy,
-        "rng": np.array(rng.s, dtype=np.uint64),
-    }
+    q_arr, greedy = _kernel_layout(st, lineup, Q)
+    return {"status": status, "periods": t, "history": tuple(history), "state": st.state_index(history, st.K),
+            "z": tuple(z), "Q": q_arr, "greedy": greedy, "rng": np.array(rng.s, dtype=np.uint64)}
 
 
-def reference_analysis(lineup, greedy, history, z, t_end, deviator, dev_action, d_dev, n_points, T):
+# ------------------------------------------------------------------------------------------------
+# Greedy play after learning
+# ------------------------------------------------------------------------------------------------
+
+
+class _GreedyPlay:
+    """Greedy play of the learned strategies; a state is ``(history, automaton states)``."""
+
+    def __init__(self, lineup, greedy, t_end):
+        self.st = _Setup(lineup)
+        self.lu = lineup
+        self.greedy = greedy
+        self.t_end = t_end
+
+    def start(self, history, z):
+        st = self.st
+        return tuple(history), tuple(0 if st.learner[i] else int(z[i]) for i in range(st.n))
+
+    def play(self, state, rng):
+        hist, zs = state
+        st, out = self.st, []
+        for i in range(st.n):
+            if st.learner[i]:
+                out.append(int(self.greedy[int(self.lu.seats.lidx[i]), st.state_index(hist, st.k[i])]))
+            else:
+                out.append(st.automaton_action(i, zs[i], self.t_end, rng))
+        return tuple(out)
+
+    def step(self, state, profile, rng):
+        hist, zs = state
+        return (profile, *hist[: self.st.K - 1]), tuple(self.st.move_automata(list(zs), profile, rng))
+
+    def deviation(self, state, dev, rng):
+        """The deviation period's profile (the others greedy, the deviator forced) and the forced action."""
+        st, seat = self.st, dev.seat
+        others = self.play(state, rng)
+        if dev.action >= 0:
+            a_dev = dev.action
+        else:
+            a_dev = _argmax([st.profits(others[:seat] + (a,) + others[seat + 1:])[seat] for a in range(st.m[seat])])
+        return others[:seat] + (a_dev,) + others[seat + 1:], a_dev
+
+    def path_to_cycle(self, state, rng):
+        """States from ``state`` until one repeats: (transient states, cycle states)."""
+        seen, order = {}, []
+        while state not in seen:
+            seen[state] = len(order)
+            order.append(state)
+            state = self.step(state, self.play(state, rng), rng)
+        start = seen[state]
+        return order[:start], order[start:]
+
+    def value(self, state, seat, d, rng):
+        """Discounted profit of ``seat`` from ``state`` on: transient, then the cycle forever."""
+        transient, cycle = self.path_to_cycle(state, rng)
+        v, w = 0.0, 1.0
+        for h in transient:
+            v += w * self.st.profits(self.play(h, rng))[seat]
+            w *= d
+        c, wc = 0.0, 1.0
+        for h in cycle:
+            c += wc * self.st.profits(self.play(h, rng))[seat]
+            wc *= d
+        return v + w * c / (1.0 - wc)
+
+    def add(self, rows, tau, profile):
+        """Add a profile's prices and profits to row ``tau`` of ``rows = (prices, profits)``."""
+        j = self.st.index(profile)
+        rows[0][tau] = [a + b for a, b in zip(rows[0][tau], self.st.prices_table[j])]
+        rows[1][tau] = [a + b for a, b in zip(rows[1][tau], self.st.profit_table[j])]
+
+
+def _pays(gain, v_no):
+    return gain > 1e-9 * max(1.0, abs(v_no))
+
+
+def _rows(n, T):
+    """Empty response arrays (prices, profits) of T + 2 rows."""
+    return [[0.0] * n for _ in range(T + 2)], [[0.0] * n for _ in range(T + 2)]
+
+
+def _means(rows, k):
+    return [[v / k for v in row] for row in rows]
+
+
+def reference_analysis(lineup, greedy, history, z, t_end, dev, T):
     """Limit cycle and impulse response from a history, by direct simulation.
 
     Parameters
     ----------
-    lineup : sim.learning.session.Lineup
-    greedy : ndarray of shape (n_learners, S_l)
+    lineup : sim.learning.lineup.Lineup
+    greedy : ndarray of int64, shape (n_learners, S_l)
         Greedy action of each learner in each of its states (kernel layout).
-    history : tuple of profiles
+    history : tuple of tuple of int
         The last K profiles, most recent first.
-    z : tuple of int
+    z : sequence of int
         Automaton states (entries of learner seats are ignored).
     t_end : int
         Period counter the automata see during the analysis (the end of learning).
-    deviator, dev_action, d_dev, n_points, T
-        As in :func:`sim.learning.kernel._analyse` (``dev_action = -1``: static best response).
+    dev : sim.learning.inputs.DeviationInputs
+        As in :func:`sim.learning.limits.analyse_limit` (``action = -1``: static best response).
+    T : int
+        Periods recorded after the deviation.
 
     Returns
     -------
-    dict with ``transient``, ``cycle`` (list of profiles), ``lim_prices``, ``lim_profits``,
-    ``ir_prices``, ``ir_profits`` (lists of T + 2 rows), ``gain`` (mean value gain), ``pays``,
-    ``returned`` (shares) and ``return_periods``.
+    dict
+        ``transient``, ``cycle`` (list of profiles), ``lim_prices``, ``lim_profits`` (lists of n), ``ir_prices``,
+        ``ir_profits`` (lists of T + 2 rows), ``gain`` (mean value gain), ``pays``, ``returned`` (shares) and
+        ``return_periods``.
     """
-    st = _Setup(lineup)
-    n = st.n
-    rng = _NoDraws()
-
-    def play(state):
-        hist, zs = state
-        out = []
-        for i in range(n):
-            if st.learner[i]:
-                out.append(int(greedy[int(lineup.lidx[i]), st.state_index(hist, st.k[i])]))
-            else:
-                out.append(st.automaton_action(i, zs[i], t_end, rng))
-        return tuple(out)
-
-    def step(state, profile):
-        hist, zs = state
-        new_z = tuple(zs[i] if st.learner[i] else st.automaton_next(i, zs[i], profile, rng) for i in range(n))
-        return (profile, *hist[: st.K - 1]), new_z
-
-    def path_to_cycle(state):
-        """States from ``state`` until one repeats: (transient states, cycle states)."""
-        seen = {}
-        order = []
-        while state not in seen:
-            seen[state] = len(order)
-            order.append(state)
-            state = step(state, play(state))
-        start = seen[state]
-        return order[:start], order[start:]
-
-    def value(state, seat, d):
-        transient, cycle = path_to_cycle(state)
-        v, w = 0.0, 1.0
-        for h in transient:
-            v += w * st.profits(play(h))[seat]
-            w *= d
-        c, wc = 0.0, 1.0
-        for h in cycle:
-            c += wc * st.profits(play(h))[seat]
-            wc *= d
-        return v + w * c / (1.0 - wc)
-
-    z = tuple(0 if st.learner[i] else int(z[i]) for i in range(n))
-    start = (tuple(history), z)
-    transient, cycle = path_to_cycle(start)
-    cycle_profiles = [play(h) for h in cycle]
+    gp = _GreedyPlay(lineup, greedy, t_end)
+    st, n, rng = gp.st, gp.st.n, _NoDraws()
+    transient, cycle = gp.path_to_cycle(gp.start(history, z), rng)
+    cycle_profiles = [gp.play(h, rng) for h in cycle]
     lam = len(cycle)
     lim_prices = [sum(st.prices_table[st.index(p)][i] for p in cycle_profiles) / lam for i in range(n)]
     lim_profits = [sum(st.profits(p)[i] for p in cycle_profiles) / lam for i in range(n)]
-
-    points = min(lam, n_points)
-    ir_prices = [[0.0] * n for _ in range(T + 2)]
-    ir_profits = [[0.0] * n for _ in range(T + 2)]
+    points = min(lam, dev.points)
+    ir = _rows(n, T)
     gains, pays, returned, ret = [], 0, 0, []
     cycle_set = set(cycle)
-    for c in range(points):
-        x = cycle[c]
-        rows = [x[0][0]]
-        others = play(x)
-        if dev_action >= 0:
-            a_dev = dev_action
-        else:
-            candidates = [st.profits(others[:deviator] + (a,) + others[deviator + 1:])[deviator]
-                          for a in range(st.m[deviator])]
-            a_dev = _argmax(candidates)
-        dev = others[:deviator] + (a_dev,) + others[deviator + 1:]
-        rows.append(dev)
-        y = step(x, dev)
+    for x in cycle[:points]:
+        profile, _a = gp.deviation(x, dev, rng)
+        rows = [x[0][0], profile]
+        y = gp.step(x, profile, rng)
         for _tau in range(T):
-            p = play(y)
+            p = gp.play(y, rng)
             rows.append(p)
-            y = step(y, p)
+            y = gp.step(y, p, rng)
         for tau, p in enumerate(rows):
-            for i in range(n):
-                ir_prices[tau][i] += st.prices_table[st.index(p)][i]
-                ir_profits[tau][i] += st.profits(p)[i]
-        y0 = step(x, dev)
-        v_dev = st.profits(dev)[deviator] + d_dev * value(y0, deviator, d_dev)
-        v_no = value(x, deviator, d_dev)
+            gp.add(ir, tau, p)
+        y0 = gp.step(x, profile, rng)
+        v_dev = st.profits(profile)[dev.seat] + dev.discount * gp.value(y0, dev.seat, dev.discount, rng)
+        v_no = gp.value(x, dev.seat, dev.discount, rng)
         gains.append(v_dev - v_no)
-        if v_dev - v_no > 1e-9 * max(1.0, abs(v_no)):
-            pays += 1
-        tr2, cy2 = path_to_cycle(y0)
+        pays += _pays(v_dev - v_no, v_no)
+        tr2, cy2 = gp.path_to_cycle(y0, rng)
         if cy2[0] in cycle_set:
             returned += 1
             ret.append(len(tr2) + 1)
-    ir_prices = [[v / points for v in row] for row in ir_prices]
-    ir_profits = [[v / points for v in row] for row in ir_profits]
-    return {
-        "transient": len(transient),
-        "cycle": cycle_profiles,
-        "lim_prices": lim_prices,
-        "lim_profits": lim_profits,
-        "ir_prices": ir_prices,
-        "ir_profits": ir_profits,
-        "gain": sum(gains) / points,
-        "pays": pays / points,
-        "returned": returned / points,
-        "return_periods": sum(ret) / len(ret) if ret else float("nan"),
-    }
+    return {"transient": len(transient), "cycle": cycle_profiles, "lim_prices": lim_prices,
+            "lim_profits": lim_profits, "ir_prices": _means(ir[0], points), "ir_profits": _means(ir[1], points),
+            "gain": sum(gains) / points, "pays": pays / points, "returned": returned / points,
+            "return_periods": sum(ret) / len(ret) if ret else float("nan")}
 
 
-def reference_estimate(lineup, greedy, history, z, t_end, rng_state, deviator, dev_action, d_dev, n_points, burn_in,
-                       n_periods, horizon, T):
+def _simulated_deviation(gp, state, dev, T, branch_base, ir, cf):
+    """One deviation and the path without it, each drawing from a copy of ``branch_base`` over
+    ``max(horizon, T + 1)`` periods: the first ``T + 1`` added to the response rows, the first ``horizon`` giving
+    the deviator's discounted profit. Returns (value with, value without, forced action)."""
+    st, length = gp.st, max(dev.horizon, T + 1)
+    gp.add(ir, 0, state[0][0])
+    gp.add(cf, 0, state[0][0])
+    rng = ReferenceStream(np.array(branch_base.s, dtype=np.uint64))
+    profile, a_dev = gp.deviation(state, dev, rng)
+    gp.add(ir, 1, profile)
+    v_dev, w = st.profits(profile)[dev.seat], dev.discount
+    y = gp.step(state, profile, rng)
+    for tau in range(2, length + 1):
+        p = gp.play(y, rng)
+        if tau <= T + 1:
+            gp.add(ir, tau, p)
+        if tau <= dev.horizon:
+            v_dev += w * st.profits(p)[dev.seat]
+            w *= dev.discount
+        y = gp.step(y, p, rng)
+    # without it, from the same random numbers
+    rng = ReferenceStream(np.array(branch_base.s, dtype=np.uint64))
+    v_no, w = 0.0, 1.0
+    y = state
+    for tau in range(1, length + 1):
+        p = gp.play(y, rng)
+        if tau <= T + 1:
+            gp.add(cf, tau, p)
+        if tau <= dev.horizon:
+            v_no += w * st.profits(p)[dev.seat]
+            w *= dev.discount
+        y = gp.step(y, p, rng)
+    return v_dev, v_no, a_dev
+
+
+def reference_estimate(lineup, greedy, history, z, t_end, rng_state, dev, T):
     """The simulated limit analysis of a line-up whose automata act at random, period by period.
 
     The main path: greedy play from ``(history, z)`` drawing from the generator at ``rng_state``,
-    ``burn_in`` periods not recorded, then ``n_periods`` periods averaged. At the start of ``points =
-    min(n_points, n_periods)`` of those, evenly spaced (``0, s, 2 s, ...`` with ``s = n_periods //
+    ``dev.burn_in`` periods not recorded, then ``dev.periods`` periods averaged. At the start of ``points =
+    min(dev.points, dev.periods)`` of those, evenly spaced (``0, s, 2 s, ...`` with ``s = dev.periods //
     points``), deviation ``b`` and the path without it are simulated from the main path's state, both
     drawing from the generator at ``rng_state`` jumped ``b + 1`` times by 2**128 draws, each over
-    ``max(horizon, T + 1)`` periods. The main path does not see them.
+    ``max(dev.horizon, T + 1)`` periods. The main path does not see them.
+
+    Parameters
+    ----------
+    lineup : sim.learning.lineup.Lineup
+    greedy : ndarray of int64, shape (n_learners, S_l)
+    history : tuple of tuple of int
+        The last K profiles, most recent first.
+    z : sequence of int
+        Automaton states.
+    t_end : int
+        Period counter the automata see.
+    rng_state : array_like of uint64, shape (4,)
+        The session's generator state at the end of learning.
+    dev : sim.learning.inputs.DeviationInputs
+        As in :func:`sim.learning.limits.estimate_limit`.
+    T : int
+        Periods recorded after the deviation.
 
     Returns
     -------
-    dict with ``lim_actions``, ``lim_prices``, ``lim_profits`` (lists of n), ``ir_prices``,
-    ``ir_profits``, ``cf_prices``, ``cf_profits`` (lists of T + 2 rows), ``gain`` (mean realised
-    value gain over ``horizon`` periods), ``pays`` (share of deviations with a positive gain),
-    ``first_action`` and ``rng`` (the main path's generator state at the end, uint64 array of shape (4,)).
+    dict
+        ``lim_actions``, ``lim_prices``, ``lim_profits`` (lists of n), ``ir_prices``, ``ir_profits``,
+        ``cf_prices``, ``cf_profits`` (lists of T + 2 rows), ``gain`` (mean realised value gain over
+        ``dev.horizon`` periods), ``pays`` (share of deviations with a positive gain), ``first_action`` and
+        ``rng`` (the main path's generator state at the end, uint64 array of shape (4,)).
     """
-    st = _Setup(lineup)
-    n = st.n
-
-    def play(state, rng):
-        hist, zs = state
-        out = []
-        for i in range(n):
-            if st.learner[i]:
-                out.append(int(greedy[int(lineup.lidx[i]), st.state_index(hist, st.k[i])]))
-            else:
-                out.append(st.automaton_action(i, zs[i], t_end, rng))
-        return tuple(out)
-
-    def step(state, profile, rng):
-        hist, zs = state
-        new_z = tuple(zs[i] if st.learner[i] else st.automaton_next(i, zs[i], profile, rng) for i in range(n))
-        return (profile, *hist[: st.K - 1]), new_z
-
-    def add(rows, tau, profile):
-        j = st.index(profile)
-        rows[0][tau] = [a + b for a, b in zip(rows[0][tau], st.prices_table[j])]
-        rows[1][tau] = [a + b for a, b in zip(rows[1][tau], st.profit_table[j])]
-
+    gp = _GreedyPlay(lineup, greedy, t_end)
+    st, n = gp.st, gp.st.n
     main = ReferenceStream(rng_state)
     branch_base = ReferenceStream(rng_state)
-    state = (tuple(history), tuple(0 if st.learner[i] else int(z[i]) for i in range(n)))
-    for _ in range(burn_in):
-        state = step(state, play(state, main), main)
-    points = min(n_points, n_periods)
-    spacing = n_periods // points
-    length = max(horizon, T + 1)
-    ir = ([[0.0] * n for _ in range(T + 2)], [[0.0] * n for _ in range(T + 2)])
-    cf = ([[0.0] * n for _ in range(T + 2)], [[0.0] * n for _ in range(T + 2)])
+    state = gp.start(history, z)
+    for _ in range(dev.burn_in):
+        state = gp.step(state, gp.play(state, main), main)
+    points = min(dev.points, dev.periods)
+    spacing = dev.periods // points
+    ir, cf = _rows(n, T), _rows(n, T)
     sums = [[0.0] * n for _ in range(3)]
     gains, pays, first_action = [], 0, -1
-    for t in range(n_periods):
+    for t in range(dev.periods):
         if len(gains) < points and t == len(gains) * spacing:
             branch_base = jumped(branch_base)
-            add(ir, 0, state[0][0])
-            add(cf, 0, state[0][0])
-            # with the deviation
-            rng = ReferenceStream(np.array(branch_base.s, dtype=np.uint64))
-            others = play(state, rng)
-            if dev_action >= 0:
-                a_dev = dev_action
-            else:
-                a_dev = _argmax([st.profits(others[:deviator] + (a,) + others[deviator + 1:])[deviator]
-                                 for a in range(st.m[deviator])])
+            v_dev, v_no, a_dev = _simulated_deviation(gp, state, dev, T, branch_base, ir, cf)
             if first_action < 0:
                 first_action = a_dev
-            dev = others[:deviator] + (a_dev,) + others[deviator + 1:]
-            add(ir, 1, dev)
-            v_dev, w = st.profits(dev)[deviator], d_dev
-            y = step(state, dev, rng)
-            for tau in range(2, length + 1):
-                p = play(y, rng)
-                if tau <= T + 1:
-                    add(ir, tau, p)
-                if tau <= horizon:
-                    v_dev += w * st.profits(p)[deviator]
-                    w *= d_dev
-                y = step(y, p, rng)
-            # without it, from the same random numbers
-            rng = ReferenceStream(np.array(branch_base.s, dtype=np.uint64))
-            v_no, w = 0.0, 1.0
-            y = state
-            for tau in range(1, length + 1):
-                p = play(y, rng)
-                if tau <= T + 1:
-                    add(cf, tau, p)
-                if tau <= horizon:
-                    v_no += w * st.profits(p)[deviator]
-                    w *= d_dev
-                y = step(y, p, rng)
             gains.append(v_dev - v_no)
-            if v_dev - v_no > 1e-9 * max(1.0, abs(v_no)):
-                pays += 1
-        p = play(state, main)
+            pays += _pays(v_dev - v_no, v_no)
+        p = gp.play(state, main)
         j = st.index(p)
         for i in range(n):
             sums[0][i] += st.values[i][p[i]]
             sums[1][i] += st.prices_table[j][i]
             sums[2][i] += st.profit_table[j][i]
-        state = step(state, p, main)
+        state = gp.step(state, p, main)
     gain = 0.0
     for g in gains:
         gain += g
-    return {
-        "lim_actions": [v / n_periods for v in sums[0]],
-        "lim_prices": [v / n_periods for v in sums[1]],
-        "lim_profits": [v / n_periods for v in sums[2]],
-        "ir_prices": [[v / points for v in row] for row in ir[0]],
-        "ir_profits": [[v / points for v in row] for row in ir[1]],
-        "cf_prices": [[v / points for v in row] for row in cf[0]],
-        "cf_profits": [[v / points for v in row] for row in cf[1]],
-        "gain": gain / points,
-        "pays": pays / points,
-        "first_action": first_action,
-        "rng": np.array(main.s, dtype=np.uint64),
-    }
+    return {"lim_actions": [v / dev.periods for v in sums[0]], "lim_prices": [v / dev.periods for v in sums[1]],
+            "lim_profits": [v / dev.periods for v in sums[2]], "ir_prices": _means(ir[0], points),
+            "ir_profits": _means(ir[1], points), "cf_prices": _means(cf[0], points),
+            "cf_profits": _means(cf[1], points), "gain": gain / points, "pays": pays / points,
+            "first_action": first_action, "rng": np.array(main.s, dtype=np.uint64)}

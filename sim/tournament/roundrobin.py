@@ -101,8 +101,10 @@ from sim.core.rng import ReferenceStream, next_u64, stream_states
 from sim.core.stats import Estimate, mean_estimate, normal_quantile, ratio_estimate
 from sim.core.tables import refuse_unknown
 from sim.core.text import CAUTION, fmt_num
-from sim.learning.session import CYCLE_STORE, LEARNER_PARAMS, LIMIT_PERIODS, learn, learner_from_entry
-from sim.learning.session import compile_lineup as compile_learners
+from sim.learning.lineup import compile_lineup as compile_learners
+from sim.learning.results import CYCLE_STORE, LIMIT_PERIODS
+from sim.learning.session import learn
+from sim.learning.tables import LEARNER_PARAMS, learner_from_entry
 from sim.models.market import MarketSpec, market_from_dict
 from sim.models.monitoring import monitoring_from_dict
 from sim.models.stagecore import evaluate_py, market_arrays, market_owner
@@ -191,7 +193,7 @@ class Entrant:
 def entrants_from_tables(tables, learning: dict | None = None, prefix: str = "entrants") -> list[Entrant]:
     """Entrants from an experiment file's ``[[entrants]]`` entries (``label``, ``strategy`` and its
     parameters). ``strategy = "qlearning"`` entries take the learner parameters of ``learning`` (the
-    ``[learning]`` table), overridden by their own (:func:`sim.learning.session.learner_from_entry`, the reader
+    ``[learning]`` table), overridden by their own (:func:`sim.learning.tables.learner_from_entry`, the reader
     of learning line-ups); any other name is looked up in the strategy registry."""
 
     if not isinstance(tables, list) or isinstance(tables, str):

@@ -230,9 +230,9 @@ def test_confidence_flag(small, capsys):
 
 
 def test_default_workers_are_the_usable_cores(tmp_path, capsys):
-    """Without [run] workers, sessions run on the usable cores (sim.learning.session.usable_cores), at most one per
+    """Without [run] workers, sessions run on the usable cores (sim.core.parallel.usable_cores), at most one per
     session."""
-    from sim.learning.session import usable_cores
+    from sim.core.parallel import usable_cores
 
     p = tmp_path / "default-workers.toml"
     p.write_text(SMALL.replace("workers = 2\n", ""))
@@ -241,9 +241,10 @@ def test_default_workers_are_the_usable_cores(tmp_path, capsys):
 
 
 @pytest.mark.parametrize(("old", "new", "key", "message"), [
-    ("seed = 7", "seed = 7\nwarmup = 1", "run.warmup", "unknown key; allowed: sessions, seed, workers"),
+    ("seed = 7", "seed = 7\nwarmup = 1", "run.warmup",
+     "unknown key; allowed: sessions, seed, workers, confidence"),
     ('kind = "learn"', 'kind = "learn"\nowner = "x"', "experiment.owner",
-     "unknown key; allowed: name, kind, description"),
+     "unknown key; allowed: name, kind, description, currency, period"),
 ])
 def test_unknown_keys_are_worded_as_everywhere(tmp_path, capsys, old, new, key, message):
     """The same wording, keys in their declared order, as the other commands (sim.core.tables.refuse_unknown)."""
@@ -323,10 +324,10 @@ def test_learn_and_run_give_the_same_numbers_for_the_same_file(tmp_path, capsys)
 
 def test_the_learn_kind_on_cell_0_matches_the_command_with_automata_that_act_at_random(tmp_path, capsys):
     """The same agreement for a line-up with an automaton that acts at random: the experiment kind's
-    run on cell 0 with the tables as read by sim.learning.session.learning_from_dict."""
+    run on cell 0 with the tables as read by sim.learning.tables.learning_from_dict (through the kind's prepare,
+    which seats such an automaton)."""
     import tomllib
 
-    from sim.learning.session import learning_from_dict
     from sim.runner.analyses.learn import KIND as LEARN
     from sim.runner.kinds import CellContext
 
@@ -336,17 +337,17 @@ def test_the_learn_kind_on_cell_0_matches_the_command_with_automata_that_act_at_
     assert main(["learn", str(p), "--json"]) == 0
     sm = json.loads(capsys.readouterr().out)["summary"]
     assert sm["limit"]["method"] == "estimate"
-    res = LEARN.run(learning_from_dict(tomllib.loads(text)), CellContext(index=0, threads=1))
+    res = LEARN.run(LEARN.prepare(tomllib.loads(text)), CellContext(index=0, threads=1))
     for key, value in _learn_pairs(sm).items():
         assert res.metrics[key] == value, key
 
 
 def test_the_library_reads_the_tables_without_the_command_line():
-    """sim.learning.session.learning_from_dict is the one reader of a learning experiment's tables (the
+    """sim.learning.tables.learning_from_dict is the one reader of a learning experiment's tables (the
     experiment adapter uses it); it does not import the command line, refuses unknown keys in the
     shared wording, and names an override's source in its errors."""
     code = (
-        "import sys, tomllib; from sim.learning.session import learning_from_dict; "
+        "import sys, tomllib; from sim.learning.tables import learning_from_dict; "
         f"doc = tomllib.loads({SMALL!r}); cfg = learning_from_dict(doc); "
         "from sim.runner.analyses.learn import KIND; KIND.prepare(doc); "
         "assert not any(m.startswith('sim.cli') for m in sys.modules), sorted(m for m in sys.modules if 'cli' in m); "
@@ -359,7 +360,7 @@ def test_the_library_reads_the_tables_without_the_command_line():
     import tomllib
 
     from sim.core.errors import InputError
-    from sim.learning.session import learning_from_dict
+    from sim.learning.tables import learning_from_dict
 
     doc = tomllib.loads(SMALL)
     cfg = learning_from_dict(doc, {"learning.alpha": (0.3, "--alpha"), "run.sessions": (2, "--sessions")})
@@ -373,3 +374,72 @@ def test_the_library_reads_the_tables_without_the_command_line():
     with pytest.raises(InputError) as err:
         learning_from_dict({k: v for k, v in doc.items() if k != "market"})
     assert err.value.key == "market"
+
+
+# ---- one pipeline: the command and a run folder show the same result ---------------------------------------------
+
+
+def _run_folder(main_, path, folder):
+    assert main_(["run", str(path), "--out", str(folder), "--report", "--quiet"]) == 0
+
+
+@pytest.mark.parametrize("text", [SMALL, RANDOM.replace("convergence = 3000", "convergence = 3000\nlimit_periods = 300")
+                                  .replace("sessions = 4", "sessions = 2")], ids=["exact", "estimate"])
+def test_the_command_prints_the_report_of_the_stored_result(tmp_path, capsys, text):
+    """`supergame learn FILE` prints RENDERER.console of the result that `supergame run FILE` stores for cell 1,
+    and its JSON is RENDERER.as_json of it (apart from the threads the sessions ran on)."""
+    from sim.evidence.render import renderer_for
+    from sim.runner.runs import open_run
+
+    p = tmp_path / "plain.toml"
+    p.write_text(text)
+    assert main(["learn", str(p)]) == 0
+    printed = capsys.readouterr().out
+    assert main(["learn", str(p), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    _run_folder(main, p, tmp_path / "run")
+    capsys.readouterr()
+    renderer = renderer_for("learn")
+    with open_run(tmp_path / "run") as rf:
+        stored = rf.result(0)
+    assert renderer.console(stored) == printed.rstrip("\n")
+    mine = renderer.as_json(stored)
+    for d in (doc, mine):
+        d["settings"].pop("workers")
+    assert json.loads(json.dumps(mine)) == doc
+
+
+def test_plot_writes_the_figures_of_the_bundle_byte_for_byte(small, tmp_path, capsys):
+    """The figures `supergame learn --plot` writes are the bundle's: the impulse response with its confidence
+    bands and the static-Nash and joint-profit lines, the histogram of profit gains, the limit prices."""
+    assert main(["learn", str(small), "--plot", str(tmp_path / "plots")]) == 0
+    capsys.readouterr()
+    _run_folder(main, small, tmp_path / "run")
+    capsys.readouterr()
+    names = sorted(p.name for p in (tmp_path / "plots").iterdir())
+    assert names == ["impulse_response.png", "limit_prices_heatmap.png", "profit_gain_histogram.png"]
+    for name in names:
+        assert (tmp_path / "plots" / name).read_bytes() == (tmp_path / "run" / "report" / "figures" / name).read_bytes()
+
+
+def test_the_impulse_figure_shows_bands_and_benchmark_lines(small, capsys):
+    """What the impulse-response figure draws: a band per firm (the confidence interval across sessions) and the
+    static-Nash and joint-profit levels as horizontal lines."""
+    import tomllib
+
+    import numpy as np
+
+    from sim.evidence.learn import figures
+    from sim.runner.single import run_single
+
+    res = run_single(tomllib.loads(small.read_text())).result
+    fig = figures(res)[0]
+    assert fig.name == "impulse_response"
+    ax = fig.figure.axes[0]
+    assert len(ax.collections) == 2  # one band per firm
+    ir = res.summary["impulse_response"]["prices"]
+    band = ax.collections[1].get_paths()[0].vertices
+    assert np.isclose(band[:, 1].max(), np.max(np.array(ir["high"])[:, 1]), rtol=1e-12)
+    levels = sorted(line.get_ydata()[0] for line in ax.get_lines() if line.get_linestyle() in (":", "--"))
+    bm = res.summary["benchmarks"]
+    assert levels == pytest.approx(sorted([np.mean(bm["nash_prices"]), np.mean(bm["collusive_prices"])]), rel=1e-12)

@@ -503,11 +503,11 @@ def test_sweep_report_lists_every_cell(tmp_path, capsys):
 
 
 def test_learner_entries_read_by_the_learning_reader(tmp_path, monkeypatch):
-    # qlearning entrants are built by sim.learning.session.learner_from_entry, the one reader of learner entries
+    # qlearning entrants are built by sim.learning.tables.learner_from_entry, the one reader of learner entries
     # (also used for the [[strategies]] of learning experiments)
     import sim.tournament.roundrobin as T
     from sim.core.tomlfile import read_toml
-    from sim.learning.session import learner_from_entry as real
+    from sim.learning.tables import learner_from_entry as real
     from sim.tournament.roundrobin import tournament_from_dict
 
     seen = []

@@ -8,8 +8,11 @@ import numpy as np
 import pytest
 
 import sim
-import sim.learning.kernel as K
-from sim.learning.session import _share_ci, compile_lineup, kernel_session, learn, reference_session
+import sim.learning.limits as L
+from sim.learning.inputs import STATUS_CONVERGED, DeviationInputs, limit_outputs
+from sim.learning.lineup import compile_lineup
+from sim.learning.results import _share_ci
+from sim.learning.session import kernel_session, learn, reference_session
 from sim.learning.twin import reference_analysis
 from strategies.qlearning import QLearner
 
@@ -66,18 +69,18 @@ def test_kernel_and_reference_stop_at_the_same_period_and_agree_on_the_limit_ana
     lu = compile_lineup(market, learners)
     k = kernel_session(lu, 2, seed=3, convergence=2000, max_periods=300_000)
     r = reference_session(lu, 2, seed=3, convergence=2000, max_periods=300_000)
-    assert k["status"] == r["status"] == K.STATUS_CONVERGED
+    assert k["status"] == r["status"] == STATUS_CONVERGED
     assert k["periods"] == r["periods"]
     assert np.array_equal(k["Q"], r["Q"])
     n, T = lu.n_seats, 6
-    out = [np.full(64, -1, np.int64), np.zeros(n), np.zeros(n), np.zeros(n), np.zeros((T + 2, n)),
-           np.zeros((T + 2, n)), np.zeros((T + 2, n)), np.zeros((T + 2, n)), np.zeros(8)]
-    G = lu.game(k["greedy"], k["periods"])
+    out = limit_outputs(n, T)
+    G = lu.play(k["greedy"], k["periods"])
     x = lu.system_state(k["state"], k["z"])
     for deviator, action in ((0, -1), (n - 1, 0)):
-        d = float(lu.delta[deviator])
-        K._analyse(x, G, lu.actions, lu.prices, deviator, action, d, 64, *out)
-        ref = reference_analysis(lu, r["greedy"], r["history"], r["z"], r["periods"], deviator, action, d, 64, T)
+        d = float(lu.seats.delta[deviator])
+        dev = DeviationInputs(deviator, action, d, 64)
+        L.analyse_limit(x, G, dev, out)
+        ref = reference_analysis(lu, r["greedy"], r["history"], r["z"], r["periods"], dev, T)
         info = out[-1]
         assert info[0] == ref["transient"] and info[1] == len(ref["cycle"])
         assert np.array_equal(lu.decode(out[0][: int(info[1])]), np.array(ref["cycle"]))
@@ -101,12 +104,12 @@ def _two_by_two(greedy0, greedy1):
 def test_cycle_detection_on_hand_written_strategies():
     # both firms alternate: play high after (low, low), low after (high, high) -> a 2-cycle
     lu, g = _two_by_two([1, 0, 0, 0], [1, 0, 0, 0])
-    mu, lam, entry = K._cycle_of(1, lu.game(g, 0))  # start at (high, low)
+    mu, lam, entry = L.cycle_of(1, lu.play(g, 0))  # start at (high, low)
     assert (mu, lam) == (1, 2) and entry in (0, 3)
     # grim-trigger-like: high only after (high, high) -> from (high, high) a fixed point
     lu, g = _two_by_two([0, 0, 0, 1], [0, 0, 0, 1])
-    assert K._cycle_of(3, lu.game(g, 0))[:2] == (0, 1)
-    assert K._cycle_of(1, lu.game(g, 0)) == (1, 1, 0)
+    assert L.cycle_of(3, lu.play(g, 0))[:2] == (0, 1)
+    assert L.cycle_of(1, lu.play(g, 0)) == (1, 1, 0)
 
 
 def test_value_of_a_path_is_the_exact_discounted_sum():
@@ -115,14 +118,14 @@ def test_value_of_a_path_is_the_exact_discounted_sum():
     lu, g = _two_by_two([1, 0, 1, 0], [1, 1, 0, 0])
     d = 0.95
     for s0 in range(4):
-        G = lu.game(g, 0)
-        v = K._value(s0, 0, d, G)
+        G = lu.play(g, 0)
+        v = L.value_of(s0, 0, d, G)
         s, total, w = s0, 0.0, 1.0
         for _ in range(3000):
-            prof = K._profile(s, G)
+            prof = L._profile(s, G)
             total += w * lu.payoff[prof, 0]
             w *= d
-            s = K._after(s, prof, G)
+            s = L._after(s, prof, G)
         assert v == pytest.approx(total, rel=1e-13)
 
 
@@ -133,12 +136,11 @@ def test_a_deviation_against_grim_trigger_like_strategies_does_not_pay_for_patie
     lu, g = _two_by_two([0, 0, 0, 1], [0, 0, 0, 1])
     n, T = 2, 4
     for d, pays in ((0.95, 0.0), (0.0, 1.0)):
-        out = [np.full(8, -1, np.int64), np.zeros(n), np.zeros(n), np.zeros(n), np.zeros((T + 2, n)),
-               np.zeros((T + 2, n)), np.zeros((T + 2, n)), np.zeros((T + 2, n)), np.zeros(8)]
-        K._analyse(3, lu.game(g, 0), lu.actions, lu.prices, 0, 0, d, 8, *out)
+        out = limit_outputs(n, T, 8)
+        L.analyse_limit(3, lu.play(g, 0), DeviationInputs(0, 0, d, 8), out)
         info, ir_prices = out[-1], out[4]
         assert info[4] == pays
-        pi = lu.payoff.reshape(2, 2, 2)  # [a1, a0, firm]
+        pi = lu.stage.payoff.reshape(2, 2, 2)  # [a1, a0, firm]
         expected = pi[1, 0, 0] + d * pi[0, 0, 0] / (1 - d) - pi[1, 1, 0] / (1 - d)
         assert info[3] == pytest.approx(expected, rel=1e-12)
         assert ir_prices[:, 0].tolist() == [1.9, 1.5, 1.5, 1.5, 1.5, 1.5]
@@ -356,16 +358,16 @@ def test_kernel_and_reference_agree_with_an_automaton_seated(name):
     lu = compile_lineup(logit_market(), [QLearner(m=5, beta=3e-4), AUTOMATA[name]()])
     k = kernel_session(lu, 1, seed=4, convergence=3000, max_periods=200_000)
     r = reference_session(lu, 1, seed=4, convergence=3000, max_periods=200_000)
-    assert k["periods"] == r["periods"] and k["status"] == r["status"] == K.STATUS_CONVERGED
+    assert k["periods"] == r["periods"] and k["status"] == r["status"] == STATUS_CONVERGED
     assert np.array_equal(k["Q"], r["Q"]) and tuple(k["z"]) == r["z"]
     n, T = 2, 5
-    out = [np.full(64, -1, np.int64), np.zeros(n), np.zeros(n), np.zeros(n), np.zeros((T + 2, n)),
-           np.zeros((T + 2, n)), np.zeros((T + 2, n)), np.zeros((T + 2, n)), np.zeros(8)]
-    G = lu.game(k["greedy"], k["periods"])
+    out = limit_outputs(n, T)
+    G = lu.play(k["greedy"], k["periods"])
     x = lu.system_state(k["state"], k["z"])
     for deviator in (0, 1):
-        K._analyse(x, G, lu.actions, lu.prices, deviator, -1, 0.95, 64, *out)
-        ref = reference_analysis(lu, r["greedy"], r["history"], r["z"], r["periods"], deviator, -1, 0.95, 64, T)
+        dev = DeviationInputs(deviator, -1, 0.95, 64)
+        L.analyse_limit(x, G, dev, out)
+        ref = reference_analysis(lu, r["greedy"], r["history"], r["z"], r["periods"], dev, T)
         assert out[-1][1] == len(ref["cycle"]) and np.array_equal(out[2], ref["lim_prices"])
         assert np.array_equal(out[4], np.array(ref["ir_prices"])) and out[-1][3] == ref["gain"]
 
@@ -432,19 +434,17 @@ def test_kernel_and_reference_agree_with_automata_that_act_at_random(name):
     n, T = lu.n_seats, 5
     learner = lu.learner_seats[0]
     for deviator, action in ((learner, -1), (learner, 0)):
-        out = [np.zeros(n), np.zeros(n), np.zeros(n), np.zeros((T + 2, n)), np.zeros((T + 2, n)),
-               np.zeros((T + 2, n)), np.zeros((T + 2, n)), np.zeros(8)]
+        out = limit_outputs(n, T)
         rng = k["rng"].copy()
-        G = lu.game(k["greedy"], k["periods"], rng)
-        K._estimate(lu.system_state(k["state"], k["z"]), G, lu.actions, lu.prices, deviator, action, 0.9, 16, 50,
-                    400, 60, *out)
-        ref = reference_estimate(lu, r["greedy"], r["history"], r["z"], r["periods"], r["rng"], deviator, action, 0.9,
-                                 16, 50, 400, 60, T)
-        assert np.array_equal(out[0], ref["lim_actions"]) and np.array_equal(out[1], ref["lim_prices"])
-        assert np.array_equal(out[2], ref["lim_profits"])
-        for j, name_ in enumerate(("ir_prices", "ir_profits", "cf_prices", "cf_profits")):
-            assert np.array_equal(out[3 + j], np.array(ref[name_])), name_
-        info = out[-1]
+        G = lu.play(k["greedy"], k["periods"], rng)
+        dev = DeviationInputs(deviator, action, 0.9, 16, 50, 400, 60)
+        L.estimate_limit(lu.system_state(k["state"], k["z"]), G, dev, out)
+        ref = reference_estimate(lu, r["greedy"], r["history"], r["z"], r["periods"], r["rng"], dev, T)
+        assert np.array_equal(out.lim_actions, ref["lim_actions"]) and np.array_equal(out.lim_prices, ref["lim_prices"])
+        assert np.array_equal(out.lim_profits, ref["lim_profits"])
+        for name_ in ("ir_prices", "ir_profits", "cf_prices", "cf_profits"):
+            assert np.array_equal(getattr(out, name_), np.array(ref[name_])), name_
+        info = out.info
         assert info[3] == ref["gain"] and info[4] == ref["pays"] and info[7] == ref["first_action"]
         assert info[1] == 0 and math.isnan(info[5])  # no cycle, no return to it
         assert np.array_equal(rng, ref["rng"])
@@ -476,7 +476,7 @@ def test_the_jump_advances_the_generator_by_2_to_the_128_draws():
     ref = jumped(ReferenceStream(state))
     assert np.array_equal(bits(ref.s), expected)
     ker = state.copy()
-    K._jump(ker)
+    L.jump(ker)
     assert np.array_equal(bits(ker), expected)
     assert not np.array_equal(ker, state)
 
@@ -515,7 +515,7 @@ def _value_iteration_against_forgiving_tft(lu, g, d):
     colludes with probability g. Its action is thus a random function of the learner's last action,
     and the learner faces a Markov decision problem on its last action:
     Q(a_last, a) = sum_b P(b | a_last) (pi(a, b) + d max_a' Q(a, a'))."""
-    m, r = int(lu.radix[0]), int(lu.radix[1])
+    m, r = int(lu.seats.radix[0]), int(lu.seats.radix[1])
     coll = lu.grids[1].max()
     assert r == 2 and coll == pytest.approx(lu.collusive_prices[1])
     complies = lu.grids[0] >= coll - 1e-12
@@ -592,12 +592,12 @@ def test_a_learner_facing_frequent_forgiveness_learns_to_exploit_it():
     se = math.sqrt(g * (1 - g) / (20 * r.summary()["limit"]["periods"])) * (p_c - p_n)
     assert abs(r.limit_prices[:, 1].mean() - (g * p_c + (1 - g) * p_n)) < 4 * se
     # exploiting pays: more than colluding with the rule forever
-    pi = lu.payoff.reshape(2, int(lu.radix[0]), 2)[:, :, 0]
+    pi = lu.payoff.reshape(2, int(lu.seats.radix[0]), 2)[:, :, 0]
     assert r.limit_profits[:, 0].min() > pi[1, complies].max()
 
 
 def _grid_best_response(lu, rival_action):
-    pi = lu.payoff.reshape(lu.radix[1], lu.radix[0], 2)  # [rival, learner, firm]
+    pi = lu.payoff.reshape(lu.seats.radix[1], lu.seats.radix[0], 2)  # [rival, learner, firm]
     return lu.grids[0][int(np.argmax(pi[rival_action, :, 0]))]
 
 
@@ -611,7 +611,7 @@ def test_a_learner_facing_a_fixed_price_learns_the_static_best_response(rival):
     opp = s.AlwaysCompete() if rival == "always_compete" else s.AlwaysCollude()
     r = learn(logit_market(), [QLearner(beta=2e-5), opp], sessions=20, seed=6)
     lu = r.lineup
-    assert lu.radix[1] == 1
+    assert lu.seats.radix[1] == 1
     assert r.converged.all()
     assert np.all(r.limit_prices[:, 0] == _grid_best_response(lu, 0))
 
@@ -621,7 +621,7 @@ def _optimal_policy_against_tit_for_tat(lu, d):
 
     Tit for tat's action in a period is collusive when the learner's price in the previous period was
     at least the collusive price, and Nash otherwise (its definition); the state is the last profile."""
-    m, r = int(lu.radix[0]), int(lu.radix[1])
+    m, r = int(lu.seats.radix[0]), int(lu.seats.radix[1])
     coll, nash = lu.grids[1].max(), lu.grids[1].min()
     assert r == 2 and coll == pytest.approx(lu.collusive_prices[1]) and nash == pytest.approx(lu.nash_prices[1])
     tft_next = np.where(lu.grids[0] >= coll - 1e-12, 1, 0)  # tit for tat's action index after the learner's

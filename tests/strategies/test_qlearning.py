@@ -8,7 +8,7 @@ import pytest
 
 import sim
 from sim.core.params import optional
-from sim.learning.session import compile_lineup
+from sim.learning.lineup import compile_lineup
 from strategies.qlearning import QLearner, published_grid
 
 
@@ -138,7 +138,7 @@ def test_uniform_initialisation_is_the_discounted_value_against_uniform_rivals()
                 total += ms.profits(np.array(prices))[i]
                 count += 1
             expected = total / count / (1 - d)
-            assert np.allclose(lu.q0[i, : lu.mod[i], a], expected, rtol=1e-12)
+            assert np.allclose(lu.q0[i, : lu.seats.mod[i], a], expected, rtol=1e-12)
 
 
 def test_zero_and_given_initialisations():

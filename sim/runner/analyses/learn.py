@@ -2,11 +2,11 @@
 
 from __future__ import annotations
 
-import copy
 import math
 
 from sim.core.errors import InputError
-from sim.learning.session import compile_lineup, learn, learning_from_dict
+from sim.learning.analysis import LearnResult, LearnSpec, learn_analysis
+from sim.learning.tables import learning_from_dict
 from sim.runner.analyses.common import GENERAL_ASSUMPTIONS, describe_market
 from sim.runner.kinds import CellContext, CellResult, Kind
 
@@ -15,9 +15,9 @@ def _prepare_learn(doc: dict) -> dict:
 
     if "market" not in doc:
         raise InputError("market", "missing: the [market] table describes the market")
-    cfg = learning_from_dict(doc)
-    lineup = compile_lineup(cfg["market"], cfg["learner"], workers=1)
-    cfg["n_firms"] = lineup.n_seats
+    cfg = learning_from_dict(doc)  # the line-up is compiled there: its state space is checked before any work
+    cfg["n_firms"] = cfg["market"].spec().n_firms
+    cfg["spec"] = LearnSpec(cfg["market"], cfg["learner"], cfg["settings"])
     return cfg
 
 
@@ -41,12 +41,24 @@ def _learn_names(cfg: dict) -> list[str]:
 
 
 def _run_learn(cfg: dict, ctx: CellContext) -> CellResult:
+    res = learn_analysis(cfg["spec"], cell=ctx.index, workers=ctx.threads, progress=ctx.progress)
+    return CellResult(learn_metrics(res), learn_arrays(res), result=res)
 
-    s = dict(cfg["settings"])
-    s["workers"] = max(1, ctx.threads)
-    res = learn(cfg["market"], copy.deepcopy(cfg["learner"]), progress=ctx.progress, cell=ctx.index, **s)
-    sm = res.summary()
-    n = res.lineup.n_seats
+
+def learn_metrics(res: LearnResult) -> dict:
+    """The flat metrics of a learn result (the columns of ``results.csv``).
+
+    Parameters
+    ----------
+    res : LearnResult
+
+    Returns
+    -------
+    dict of str to float
+        None where a value is not defined (stored as nan).
+    """
+    sm = res.summary
+    n = res.n_firms
     m: dict = {"sessions": sm["sessions"]}
     c = sm["converged"]
     m["converged"], m["converged.low"], m["converged.high"] = c["share"], c["low"], c["high"]
@@ -80,13 +92,30 @@ def _run_learn(cfg: dict, ctx: CellContext) -> CellResult:
         m[f"analytic.collusive_price.{f}"] = bm["collusive_prices"][i]
         m[f"analytic.nash_profit.{f}"] = bm["nash_profits"][i]
         m[f"analytic.collusive_profit.{f}"] = bm["collusive_profits"][i]
+    return m
+
+
+def learn_arrays(res: LearnResult) -> dict:
+    """The arrays of a learn result stored with its cell (``arrays.json``).
+
+    Parameters
+    ----------
+    res : LearnResult
+
+    Returns
+    -------
+    dict of str to list
+        ``impulse.prices`` (T + 2 rows of n_firms mean prices, when any session was analysed) and the histogram
+        of profit gains (``profit_gain_histogram.edges``, ``.counts``).
+    """
+    sm = res.summary
     arrays = {}
     ir = sm["impulse_response"]["prices"]
     if ir["mean"]:
         arrays["impulse.prices"] = ir["mean"]
     arrays["profit_gain_histogram.edges"] = sm["profit_gain_histogram"]["edges"]
     arrays["profit_gain_histogram.counts"] = sm["profit_gain_histogram"]["counts"]
-    return CellResult(m, arrays)
+    return arrays
 
 
 def _describe_learn(doc: dict) -> list[str]:
@@ -104,6 +133,7 @@ KIND = Kind(
     prepare=_prepare_learn,
     run=_run_learn,
     metric_names=_learn_names,
+    result_type=LearnResult,
     headline=("profit_gain", "converged", "near_collusive", "rival_price_cut"),
     describe=_describe_learn,
     summary="sessions of Q-learning firms: limit outcomes, profit gain and impulse response",

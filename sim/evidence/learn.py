@@ -1,0 +1,317 @@
+"""How a learn result is shown: the terminal report, the JSON document and the figures (see
+:mod:`sim.evidence.render`).
+
+The figures are the impulse response (mean prices with their confidence bands, the static-Nash and joint-profit
+levels as reference lines), the histogram of profit gains across sessions, and the sessions' limit prices of firms
+1 and 2 on the grid. ``supergame learn --plot`` saves them and the bundle of a ``learn`` run shows them, drawn from
+the same stored result.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from sim.core.text import CAUTION, fmt_num, table
+from sim.evidence.render import Drawn, Renderer, pyplot
+from sim.evidence.thresholds import describe_market
+from sim.learning.analysis import LearnResult
+from sim.models.market import market_from_dict
+
+__all__ = ["RENDERER", "as_json", "console", "figures"]
+
+
+def _num(x) -> float:
+    """A stored number (None for nan) as a float."""
+    return np.nan if x is None else float(x)
+
+
+def _pct(x) -> str:
+    if x is None or x != x:
+        return "-"
+    return f"{100 * x:.1f} %"
+
+
+def _ci(d: dict, digits: int = 4) -> str:
+    if d.get("n", 0) < 2:
+        return "-"
+    return f"[{fmt_num(d['low'], digits)}, {fmt_num(d['high'], digits)}]"
+
+
+def _act(res: LearnResult) -> str:
+    return "quantity" if res.quantity_setting else "price"
+
+
+def _same_learner(a: dict, b: dict) -> bool:
+    da, db = dict(a), dict(b)
+    ga, gb = np.array(da.pop("grid")), np.array(db.pop("grid"))
+    return da == db and ga.shape == gb.shape and bool(np.allclose(ga, gb, rtol=1e-9, atol=0))
+
+
+def _seat_lines(res: LearnResult) -> list[str]:
+    """One line per seat, or one for all when every seat holds the same learner."""
+    act = _act(res)
+    seated = [c for c in res.learners if "strategy" not in c]
+    same = len(seated) == res.n_firms and all(_same_learner(x, seated[0]) for x in seated)
+    lines = []
+    for i, c in enumerate(res.learners):
+        if "strategy" in c:
+            levels = ", ".join(fmt_num(v) for v in c["actions"])
+            rnd = "; acts at random" if c["acts_at_random"] else ""
+            lines.append(f"Firm {i + 1}: {c['strategy']} (automaton; {act}s {levels}{rnd})")
+            continue
+        if i > 0 and same:
+            continue
+        who = "Learners" if same else f"Firm {i + 1}"
+        init = "given array" if c["init"] == "given" else c["init"]
+        lines.append(f"{who}: Q-learning, alpha {fmt_num(c['alpha'])}, beta {c['beta']:g}, delta "
+                     f"{fmt_num(c['delta'])}, {c['m']} {act} levels from {fmt_num(c['grid'][0])} to "
+                     f"{fmt_num(c['grid'][-1])}, memory {c['k']}, Q initialised {init}")
+    return lines
+
+
+def _setup_lines(res: LearnResult) -> list[str]:
+    """The market, the seats, the run and how long sessions took to converge."""
+    sm, st = res.summary, res.settings
+    lvl = f"{100 * res.confidence:g} %"
+    market = market_from_dict(res.market)  # the settings in their own order, however the result was stored
+    lines = [f"Market: {describe_market(market.to_dict(), res.n_firms)}", *_seat_lines(res)]
+    lines.append(f"Sessions: {sm['sessions']} (seed {st['seed']}), converged after {st['convergence']} periods "
+                 f"without a change of any greedy strategy, cap {st['max_periods']:g} periods")
+    lines.append("")
+    c, per = sm["converged"], sm["periods"]
+    lines.append(f"Converged: {c['count']} of {c['n']} sessions ({_pct(c['share'])}, {lvl} CI "
+                 f"{_pct(c['low'])} to {_pct(c['high'])})")
+    if per["n"]:
+        ci = f"[{per['low']:.4g}, {per['high']:.4g}]" if per["n"] > 1 else "-"
+        lines.append(f"Periods to convergence: mean {per['mean']:.4g} {ci}, median {per['q50']:.4g}, "
+                     f"5-95 % {per['q05']:.4g} to {per['q95']:.4g}")
+    lines.append("")
+    bm = sm["benchmarks"]
+    act = _act(res)
+    rows = [[f"static Nash {act}", *bm["nash_actions"]], [f"joint-profit {act}", *bm["collusive_actions"]],
+            ["static Nash profit", *bm["nash_profits"]], ["joint-profit profit", *bm["collusive_profits"]]]
+    lines += ["Benchmarks (continuous actions)", table(["", *_firms(res)], rows), ""]
+    return lines
+
+
+def _firms(res: LearnResult) -> list[str]:
+    return [f"firm {i + 1}" for i in range(res.n_firms)]
+
+
+def _limit_lines(res: LearnResult) -> list[str]:
+    """Limit outcomes: prices, profits and the profit gain with intervals, nearness to the benchmarks, cycles."""
+    sm, n = res.summary, res.n_firms
+    lvl = f"{100 * res.confidence:g} %"
+    lim = sm["limit"]
+    if res.limit_exact:
+        lines = [f"Limit outcomes: greedy play from the final state, means over the limit cycle ({sm['over']}); "
+                 f"{lvl} confidence intervals across sessions"]
+    else:
+        lines = [f"Limit outcomes: ESTIMATED, not an exact cycle (firm {', '.join(map(str, lim['random_firms']))} "
+                 f"acts at random): means of {lim['periods']} simulated periods of greedy play per session after "
+                 f"{lim['burn_in']} discarded ({sm['over']}); {lvl} confidence intervals across sessions"]
+    rows = [[f"price, firm {i + 1}", d["mean"], _ci(d)] for i, d in enumerate(sm["limit_prices"])]
+    rows += [[f"profit, firm {i + 1}", d["mean"], _ci(d)] for i, d in enumerate(sm["limit_profits"])]
+    pg = sm["profit_gain"]
+    rows.append(["profit gain", pg["mean"], _ci(pg)])
+    if n > 1 and not res.symmetric:
+        rows += [[f"profit gain, firm {i + 1}", d["mean"], _ci(d)] for i, d in enumerate(sm["firm_profit_gain"])]
+    lines.append(table(["", "mean", f"{lvl} CI"], rows, "lrl"))
+    if pg["n"]:
+        lines.append(f"  profit gain across sessions: 5 % {fmt_num(pg['q05'])}, quartiles {fmt_num(pg['q25'])} / "
+                     f"{fmt_num(pg['q50'])} / {fmt_num(pg['q75'])}, 95 % {fmt_num(pg['q95'])}")
+    nc, nn = sm["near_collusive"], sm["near_nash"]
+    lines.append(f"  at or near the joint-profit outcome (every firm within {fmt_num(res.settings['near'], 2)} of its "
+                 f"Nash-to-collusive distance): {_pct(nc['share'])} ({_pct(nc['low'])} to {_pct(nc['high'])})")
+    lines.append(f"  at or near static Nash: {_pct(nn['share'])} ({_pct(nn['low'])} to {_pct(nn['high'])})")
+    if res.limit_exact:
+        total = sum(sm["cycle_lengths"].values())
+        cyc = ", ".join(f"{k}: {_pct(v / total)}"
+                        for k, v in sorted(sm["cycle_lengths"].items(), key=lambda x: int(x[0])))
+        lines.append(f"  length of the limit cycle: {cyc}")
+    else:
+        lines.append("  length of the limit cycle: not defined (play after learning is random)")
+    return lines + [""]
+
+
+def _deviation_lines(res: LearnResult) -> list[str]:
+    """What the deviation earns under the learned strategies, and whether play returns to the cycle."""
+    sm = res.summary
+    lim, g, pays = sm["limit"], sm["deviation_gain"], sm["deviation_pays"]
+    if res.limit_exact:
+        r, rp = sm["returned"], sm["return_periods"]
+        return [f"  discounted value of deviating minus not deviating (exact, under the learned strategies): "
+                f"{fmt_num(g['mean'])} {_ci(g)}; the deviation pays at {_pct(pays['mean'])} of cycle points",
+                f"  play returns to the pre-deviation cycle after {_pct(r['mean'])} of deviations, "
+                f"{fmt_num(rp['mean'], 2)} periods after the deviation on average"]
+    return [f"  discounted value of deviating minus not deviating (ESTIMATED over {lim['value_periods']} "
+            f"periods, truncation error below {lim['value_truncation_bound']:.2g}): {fmt_num(g['mean'])} "
+            f"{_ci(g)}; the realised gain is positive in {_pct(pays['mean'])} of the simulated deviations",
+            "  return to the pre-deviation cycle: not defined (play after learning is random)"]
+
+
+def _impulse_lines(res: LearnResult) -> list[str]:
+    """The impulse response: the table of prices and profits around the deviation, the rivals' reply."""
+    sm, st, act = res.summary, res.settings, _act(res)
+    dev = int(st["deviator"])  # counted from 1
+    if isinstance(st["deviation"], str):
+        what = "its static best response (on its grid)"
+    else:
+        what = f"{act} {fmt_num(float(res.per_session['deviation_action'][0]))} (nearest grid point)"
+    over = ("mean over sessions and the points of each limit cycle" if res.limit_exact else
+            f"ESTIMATED: mean over sessions and {sm['limit']['deviations']} simulated deviations per session")
+    lines = [f"Impulse response: firm {dev} forced to {what} for one period, then everyone follows the learned "
+             f"strategies ({over})"]
+    ir = sm["impulse_response"]
+    if not ir["prices"]["mean"]:
+        return lines
+    rows = []
+    for tau, (pr, pi) in enumerate(zip(ir["prices"]["mean"], ir["profits"]["mean"])):
+        label = "before" if tau == 0 else ("deviation" if tau == 1 else f"+{tau - 1}")
+        rows.append([label, *pr, *pi])
+    firms = _firms(res)
+    lines.append(table(["period", *[f"{act} {f}" for f in firms], *[f"profit {f}" for f in firms]], rows))
+    rc = sm["rival_price_cut"]
+    if rc:
+        lines.append(f"  rivals' {act} in the period after the deviation: "
+                     f"{'lower' if _num(rc['mean']) > 0 else 'not lower'} than before by {fmt_num(rc['mean'])} "
+                     f"{_ci(rc)}")
+    return lines + _deviation_lines(res)
+
+
+def console(res: LearnResult) -> str:
+    """The terminal report of a learn result.
+
+    Parameters
+    ----------
+    res : LearnResult
+
+    Returns
+    -------
+    str
+    """
+    lines = _setup_lines(res) + _limit_lines(res) + _impulse_lines(res)
+    lines += ["", CAUTION]
+    return "\n".join(lines)
+
+
+def as_json(res: LearnResult) -> dict:
+    """The ``--json`` document of a learn result: settings, seats, the summary, every session's outcomes, the
+    market and the caution.
+
+    Parameters
+    ----------
+    res : LearnResult
+
+    Returns
+    -------
+    dict
+    """
+    return {"settings": res.settings, "learners": res.learners, "seats": res.seats, "summary": res.summary,
+            "per_session": res.per_session, "market": res.market, "caution": CAUTION}
+
+
+def _impulse_figure(res: LearnResult):
+    plt = pyplot()
+    sm, act = res.summary, _act(res)
+    ir = sm["impulse_response"]["prices"]
+    mean = np.array(ir["mean"], dtype=float)
+    lo, hi = np.array(ir["low"], dtype=float), np.array(ir["high"], dtype=float)
+    tau = np.arange(mean.shape[0])
+    fig, ax = plt.subplots(figsize=(7, 4.2))
+    for i in range(res.n_firms):
+        label = f"firm {i + 1}" + (" (deviates)" if i + 1 == int(res.settings["deviator"]) else "")
+        ax.plot(tau, mean[:, i], marker="o", ms=3, label=label)
+        if np.all(np.isfinite(lo[:, i])):
+            ax.fill_between(tau, lo[:, i], hi[:, i], alpha=0.2)
+    bm = sm["benchmarks"]
+    which = "actions" if act == "quantity" else "prices"
+    ax.axhline(float(np.mean(bm[f"nash_{which}"])), color="grey", ls=":", label=f"static Nash {act}")
+    ax.axhline(float(np.mean(bm[f"collusive_{which}"])), color="grey", ls="--", label=f"joint-profit {act}")
+    ax.axvline(1, color="black", lw=0.5)
+    ax.set_xlabel("period (0: before the deviation, 1: deviation)")
+    ax.set_ylabel(act)
+    ax.set_title(f"Impulse response, mean over {sm['converged']['count'] or sm['sessions']} sessions")
+    ax.legend(fontsize=8)
+    fig.tight_layout()
+    level = f"{100 * res.confidence:g} %"
+    return Drawn("impulse_response", fig,
+                 f"Impulse response: mean {act} of each firm (points) after firm {int(res.settings['deviator'])} is "
+                 f"forced to deviate for one period (period 1), then everyone follows the learned strategies; "
+                 f"bands: {level} confidence intervals across sessions; dotted and dashed: the static-Nash and "
+                 f"joint-profit {act}s (means over firms).")
+
+
+def _histogram_figure(res: LearnResult):
+    plt = pyplot()
+    sm = res.summary
+    fig, ax = plt.subplots(figsize=(7, 4.2))
+    h = sm["profit_gain_histogram"]
+    edges = np.array(h["edges"], dtype=float)
+    ax.bar(edges[:-1], h["counts"], width=np.diff(edges), align="edge", edgecolor="white")
+    ax.axvline(0, color="grey", ls=":", label="static Nash")
+    ax.axvline(1, color="grey", ls="--", label="joint profit")
+    ax.axvline(_num(sm["profit_gain"]["mean"]), color="C3", label="mean")
+    ax.set_xlabel("profit gain (profit - Nash) / (collusive - Nash)")
+    ax.set_ylabel("sessions")
+    ax.set_title("Profit gain across sessions")
+    ax.legend(fontsize=8)
+    fig.tight_layout()
+    return Drawn("profit_gain_histogram", fig,
+                 f"Profit gain of each session ({sm['over']}), in bins of 0.05 (values beyond -0.5 and 1.5 in the "
+                 "outer bins): 0 is the static Nash outcome, 1 the joint-profit outcome; red: the mean.")
+
+
+def _cell_edges(g: np.ndarray) -> np.ndarray:
+    """Edges of the cells around the points of a grid (a one-point grid gets a cell of its own)."""
+    if g.size == 1:
+        w = max(0.05, 0.05 * abs(float(g[0])))
+        return np.array([g[0] - w, g[0] + w])
+    mid = (g[1:] + g[:-1]) / 2
+    return np.concatenate([[g[0] - (mid[0] - g[0])], mid, [g[-1] + (g[-1] - mid[-1])]])
+
+
+def _grid(seat: dict) -> np.ndarray:
+    return np.array(seat["grid"] if "grid" in seat else seat["actions"], dtype=float)
+
+
+def _heatmap_figure(res: LearnResult):
+    plt = pyplot()
+    act = _act(res)
+    sel = res.selected
+    fig, ax = plt.subplots(figsize=(5.6, 4.8))
+    x, y = res.limit_actions[sel, 0], res.limit_actions[sel, 1]
+    H, xe, ye = np.histogram2d(x, y, bins=[_cell_edges(_grid(res.learners[0])), _cell_edges(_grid(res.learners[1]))])
+    im = ax.pcolormesh(xe, ye, H.T, cmap="viridis")
+    fig.colorbar(im, ax=ax, label="sessions")
+    bm = res.summary["benchmarks"]
+    ax.plot([bm["nash_actions"][0]], [bm["nash_actions"][1]], "w^", label="static Nash")
+    ax.plot([bm["collusive_actions"][0]], [bm["collusive_actions"][1]], "w*", ms=10, label="joint profit")
+    ax.set_xlabel(f"firm 1 mean limit {act}")
+    ax.set_ylabel(f"firm 2 mean limit {act}")
+    ax.set_title(f"Limit {act}s across sessions")
+    ax.legend(fontsize=8, loc="lower right")
+    fig.tight_layout()
+    return Drawn("limit_prices_heatmap", fig,
+                 f"Sessions by the mean limit {act}s of firms 1 and 2 ({res.summary['over']}), one cell per pair of "
+                 "grid points; triangle: static Nash, star: joint profit.")
+
+
+def figures(res: LearnResult) -> list[Drawn]:
+    """The impulse response (with bands and the benchmark levels), the histogram of profit gains and the limit
+    prices of firms 1 and 2 across sessions.
+
+    Parameters
+    ----------
+    res : LearnResult
+
+    Returns
+    -------
+    list of Drawn
+        ``impulse_response`` (when a response was recorded), ``profit_gain_histogram``, ``limit_prices_heatmap``.
+    """
+    out = [_impulse_figure(res)] if res.summary["impulse_response"]["prices"]["mean"] else []
+    return [*out, _histogram_figure(res), _heatmap_figure(res)]
+
+
+RENDERER = Renderer(console=console, as_json=as_json, figures=figures)

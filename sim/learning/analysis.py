@@ -1,0 +1,145 @@
+"""The learn analysis: one function from a validated specification to a result that is plain data.
+
+:func:`learn_analysis` runs the learning sessions of a :class:`LearnSpec` (:func:`sim.learning.session.learn`) and
+returns a :class:`LearnResult`: what ``supergame learn`` prints, what a ``learn`` cell of a run stores and what the
+evidence bundle draws (:mod:`sim.evidence.learn`) -- limit prices with their intervals, the profit gain and its
+distribution, convergence, the cycles, the impulse response with its bands and the static-Nash and joint-profit
+benchmarks, the value of the deviation, the return to the cycle, and every session's outcomes.
+"""
+
+from __future__ import annotations
+
+import copy
+from dataclasses import dataclass
+
+import numpy as np
+
+from sim.core.records import Record, to_plain
+from sim.learning.results import LearningResult
+from sim.learning.session import learn
+
+__all__ = ["LearnResult", "LearnSpec", "learn_analysis", "learn_result"]
+
+
+@dataclass(frozen=True)
+class LearnSpec:
+    """A validated learning question (built by the ``learn`` kind from an experiment's tables by
+    :func:`sim.learning.tables.learning_from_dict`).
+
+    Attributes
+    ----------
+    market : sim.Market
+    learner : QLearner or list
+        The learner of every seat, or one strategy per seat.
+    settings : dict
+        Keyword arguments of :func:`sim.learning.session.learn` (``workers`` is replaced by the threads the cell
+        may use).
+    """
+
+    market: object
+    learner: object
+    settings: dict
+
+
+@dataclass(frozen=True)
+class LearnResult(Record):
+    """Everything the learn analysis found, as plain data (JSON values; nan as None).
+
+    Attributes
+    ----------
+    market : dict
+        The market's settings (:meth:`sim.Market.to_dict`).
+    n_firms : int
+    quantity_setting : bool
+        Whether firms set quantities (actions are quantities) rather than prices.
+    symmetric : bool
+        Whether the market is symmetric (per-firm profit gains are shown otherwise).
+    settings : dict
+        The run's settings (sessions, seed, convergence, max_periods, deviator -- the deviating firm, from 1 --,
+        deviation, response_periods, near, workers, cell, confidence, limit_periods).
+    learners : list of dict
+        Per seat: a learner's parameters and grid, or an automaton's name, actions and whether it acts at random
+        (:meth:`sim.learning.results.LearningResult.describe_seats`).
+    seats : list of str
+        The strategy name of each seat.
+    summary : dict
+        Statistics across sessions (:meth:`sim.learning.results.LearningResult.summary`).
+    per_session : dict
+        Every session's outcomes (:meth:`sim.learning.results.LearningResult.per_session`).
+    limit_actions : ndarray of shape (n_sessions, n_firms)
+        Every session's mean limit action (price or quantity).
+    """
+
+    market: dict
+    n_firms: int
+    quantity_setting: bool
+    symmetric: bool
+    settings: dict
+    learners: list
+    seats: list
+    summary: dict
+    per_session: dict
+    limit_actions: np.ndarray
+
+    @property
+    def limit_exact(self) -> bool:
+        """Whether the limit outcomes are exact (no automaton acts at random) rather than a simulated estimate."""
+        return self.summary["limit"]["method"] == "exact"
+
+    @property
+    def confidence(self) -> float:
+        """Level of the confidence intervals."""
+        return float(self.summary["confidence"])
+
+    @property
+    def selected(self) -> np.ndarray:
+        """The sessions the summary is over: the converged ones, or all when none converged (bool, n_sessions)."""
+        conv = np.asarray(self.per_session["converged"], dtype=bool)
+        return conv if conv.any() else np.ones_like(conv)
+
+
+def learn_result(res: LearningResult, market) -> LearnResult:
+    """The plain-data result of a run of learning sessions.
+
+    Parameters
+    ----------
+    res : sim.learning.results.LearningResult
+    market : sim.Market
+        The market the sessions ran on.
+
+    Returns
+    -------
+    LearnResult
+        Holding JSON values only (nan as None), so that the result a command prints is the result a run folder
+        stores and gives back.
+    """
+    d = res.to_dict()
+    ms = res.lineup.market
+    doc = {"market": market.to_dict(), "n_firms": int(ms.n_firms), "quantity_setting": bool(ms.quantity_setting),
+           "symmetric": bool(ms.symmetric), "settings": d["settings"], "learners": d["learners"],
+           "seats": d["seats"], "summary": d["summary"], "per_session": d["per_session"],
+           "limit_actions": res.limit_actions}
+    return LearnResult.from_dict(to_plain(doc))
+
+
+def learn_analysis(spec: LearnSpec, *, cell: int = 0, workers: int = 1, progress: bool = False) -> LearnResult:
+    """Run the learning sessions of a specification.
+
+    Parameters
+    ----------
+    spec : LearnSpec
+    cell : int
+        The cell's index: its family of random streams (``(cell,)``).
+    workers : int
+        Sessions run at once (the numbers do not depend on it).
+    progress : bool
+        Show a progress bar over sessions.
+
+    Returns
+    -------
+    LearnResult
+    """
+    s = dict(spec.settings)
+    s["workers"] = max(1, int(workers))
+    res = learn(spec.market, copy.deepcopy(spec.learner), progress=progress, cell=cell, **s)
+    return learn_result(res, spec.market)

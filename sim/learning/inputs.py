@@ -1,0 +1,278 @@
+"""What the learning kernels take: a few groups of arrays, each a named tuple that numba compiles as a record.
+
+A line-up compiles (:func:`sim.learning.lineup.compile_lineup`) into four groups, and every kernel of
+:mod:`sim.learning.kernel` and :mod:`sim.learning.limits` reads its inputs from them:
+
+* :class:`SeatInputs` -- per seat: learner or automaton, its actions, where it sits in a profile number, the
+  learner's memory and parameters;
+* :class:`StageInputs` -- the stage game on the grid: every profile's profits, actions and prices, the size of
+  the state space;
+* :class:`AutomatonInputs` -- the automata's compiled arrays (:mod:`strategies.step`);
+* :class:`SessionState` -- what one session changes as it runs: Q-values, greedy actions, automaton states, the
+  random stream.
+
+Greedy play after learning adds :class:`Play` (the line-up with the learned greedy tables), the deviation of the
+impulse response is :class:`DeviationInputs`, and the analysis writes into :class:`LimitOutputs`.
+
+A new learning protocol (move timing, update rule, learner family) adds its own group here, compiled by the line-up,
+and the kernel steps that read it; see DEVELOPERS.md, "Adding a learner".
+"""
+
+from __future__ import annotations
+
+from typing import NamedTuple
+
+import numpy as np
+
+__all__ = [
+    "AUTOMATON",
+    "INFO_FIELDS",
+    "LEARNER",
+    "STATUS_CAP",
+    "STATUS_CONVERGED",
+    "AutomatonInputs",
+    "DeviationInputs",
+    "LimitOutputs",
+    "Play",
+    "SeatInputs",
+    "SessionState",
+    "StageInputs",
+    "limit_outputs",
+]
+
+#: a session stopped because no greedy strategy changed for ``convergence`` periods
+STATUS_CONVERGED = 0
+#: a session stopped at ``max_periods``
+STATUS_CAP = 1
+#: seat kinds
+LEARNER = 0
+AUTOMATON = 1
+#: the entries of ``LimitOutputs.info``
+INFO_FIELDS = ("transient", "cycle_length", "points", "deviation_gain", "deviation_pays", "returned",
+               "return_periods", "deviation_action")
+
+
+class SeatInputs(NamedTuple):
+    """The seats of a line-up (``n`` of them), as the kernels read them.
+
+    Seat ``i`` has ``radix[i]`` actions; an action profile is the mixed-radix number
+    ``prof = sum_i a_i * place[i]`` with ``place[i] = prod(radix[:i])``.
+
+    Attributes
+    ----------
+    kind : ndarray of int64, shape (n,)
+        :data:`LEARNER` or :data:`AUTOMATON`.
+    lidx : ndarray of int64, shape (n,)
+        The learner number of each learner seat (0 for automata): its row of the Q-values.
+    radix : ndarray of int64, shape (n,)
+        Actions of each seat.
+    place : ndarray of int64, shape (n,)
+        Place value of each seat in a profile number.
+    mod : ndarray of int64, shape (n,)
+        History states a learner sees (``M**k``, ``k`` its memory; 1 for automata).
+    zn : ndarray of int64, shape (n,)
+        States of each automaton (1 for learners).
+    zplace : ndarray of int64, shape (n,)
+        Place value of each automaton's state in the system state (0 for learners).
+    owner : ndarray of int64, shape (n,)
+        The firm of each seat (``arange(n)``: one seat per firm).
+    alpha, beta, delta : ndarray of float64, shape (n,)
+        Learning rate, exploration decay and discount factor of each learner (0 for automata).
+    """
+
+    kind: np.ndarray
+    lidx: np.ndarray
+    radix: np.ndarray
+    place: np.ndarray
+    mod: np.ndarray
+    zn: np.ndarray
+    zplace: np.ndarray
+    owner: np.ndarray
+    alpha: np.ndarray
+    beta: np.ndarray
+    delta: np.ndarray
+
+
+class StageInputs(NamedTuple):
+    """The stage game on the line-up's grid.
+
+    Attributes
+    ----------
+    M : int
+        Number of action profiles (``prod(radix)``).
+    S : int
+        Number of history states (``M**K``).
+    K : int
+        Longest memory of a learner.
+    payoff : ndarray of float64, shape (M, n)
+        Profit of each seat at each profile.
+    actions : ndarray of float64, shape (M, n)
+        Action value (price or quantity) of each seat at each profile.
+    prices : ndarray of float64, shape (M, n)
+        Price of each seat at each profile.
+    mprice : ndarray of float64, shape (M,)
+        Public market price of each profile (what price-watching automata see; zeros without automata).
+    values : ndarray of float64, shape (n, max(radix))
+        Value of each action of each seat.
+    quantity_setting : bool
+        Whether the firms set quantities (Cournot) rather than prices.
+    """
+
+    M: int
+    S: int
+    K: int
+    payoff: np.ndarray
+    actions: np.ndarray
+    prices: np.ndarray
+    mprice: np.ndarray
+    values: np.ndarray
+    quantity_setting: bool
+
+
+class AutomatonInputs(NamedTuple):
+    """The automata of a line-up, compiled by the engine's compiler (:mod:`strategies.step`); rows of learner
+    seats are placeholders that are never played.
+
+    Attributes
+    ----------
+    states : ndarray of int64, shape (n, n_states, 9)
+    probs : ndarray of float64, shape (n, n_states, 4)
+    firms : ndarray of int64, shape (n, 5)
+    levels : ndarray of float64, shape (n, n_levels, n)
+        See :func:`strategies.compile_lineup`.
+    act_of_level : ndarray of int64, shape (n, n_levels)
+        The index, among the seat's actions, of the action of each level.
+    """
+
+    states: np.ndarray
+    probs: np.ndarray
+    firms: np.ndarray
+    levels: np.ndarray
+    act_of_level: np.ndarray
+
+
+class SessionState(NamedTuple):
+    """What a session changes in place as it runs.
+
+    Attributes
+    ----------
+    Q : ndarray of float64, shape (n_learners, max(mod), max(radix))
+        Q-values of each learner in each state it sees (entries beyond its states or actions are unused).
+    greedy : ndarray of int64, shape (n_learners, max(mod))
+        The first index of the largest Q-value of each row, kept up to date as ``Q`` changes.
+    z : ndarray of int64, shape (n,)
+        Automaton states (entries of learner seats unused).
+    rng : ndarray of uint64, shape (4,)
+        The session's xoshiro256** state.
+    """
+
+    Q: np.ndarray
+    greedy: np.ndarray
+    z: np.ndarray
+    rng: np.ndarray
+
+
+class Play(NamedTuple):
+    """Greedy play after learning: the line-up and the learned greedy tables.
+
+    Attributes
+    ----------
+    seats : SeatInputs
+    stage : StageInputs
+    automata : AutomatonInputs
+    greedy : ndarray of int64, shape (n_learners, max(mod))
+    t_end : int
+        The period the automata see (the end of learning).
+    rng : ndarray of uint64, shape (4,)
+        The generator automata that act at random draw from (advanced in place); deterministic line-ups never
+        draw.
+    """
+
+    seats: SeatInputs
+    stage: StageInputs
+    automata: AutomatonInputs
+    greedy: np.ndarray
+    t_end: int
+    rng: np.ndarray
+
+
+class DeviationInputs(NamedTuple):
+    """The one-period deviation of the impulse response, and the simulation settings of the estimate.
+
+    Attributes
+    ----------
+    seat : int
+        The seat forced to deviate.
+    action : int
+        Its forced action index, or -1 for its static best response (the first of equal ones) to the others'
+        actions of the deviation period.
+    discount : float
+        Discount factor of the deviator's value.
+    points : int
+        Deviate from at most this many points of the limit cycle (or simulated deviations).
+    burn_in : int
+        Estimate only: periods of greedy play simulated and discarded before the averages start.
+    periods : int
+        Estimate only: periods averaged.
+    horizon : int
+        Estimate only: periods (the deviation period included) over which a deviation's value is summed.
+    """
+
+    seat: int
+    action: int
+    discount: float
+    points: int
+    burn_in: int = 0
+    periods: int = 0
+    horizon: int = 0
+
+
+class LimitOutputs(NamedTuple):
+    """Where the analysis of greedy play after learning writes.
+
+    Attributes
+    ----------
+    cycle : ndarray of int64, shape (L,)
+        Receives the profiles of the first ``min(cycle length, L)`` periods of the limit cycle.
+    lim_actions, lim_prices, lim_profits : ndarray of float64, shape (n,)
+        Receive the means over the limit cycle (or the simulated periods).
+    ir_prices, ir_profits : ndarray of float64, shape (T + 2, n)
+        Receive the impulse response: row 0 the period before the deviation, row 1 the deviation, rows
+        ``2 .. T+1`` greedy play afterwards.
+    cf_prices, cf_profits : ndarray of float64, shape (T + 2, n)
+        Receive the path without the deviation, in the same rows.
+    info : ndarray of float64, shape (8,)
+        Receives the numbers named by :data:`INFO_FIELDS`.
+    """
+
+    cycle: np.ndarray
+    lim_actions: np.ndarray
+    lim_prices: np.ndarray
+    lim_profits: np.ndarray
+    ir_prices: np.ndarray
+    ir_profits: np.ndarray
+    cf_prices: np.ndarray
+    cf_profits: np.ndarray
+    info: np.ndarray
+
+
+def limit_outputs(n_seats: int, response_periods: int, cycle_store: int = 64) -> LimitOutputs:
+    """Fresh output arrays of the limit analysis of one session.
+
+    Parameters
+    ----------
+    n_seats : int
+        Seats of the line-up (``n``).
+    response_periods : int
+        Periods recorded after the deviation (``T``).
+    cycle_store : int
+        Periods of the limit cycle kept (``L``).
+
+    Returns
+    -------
+    LimitOutputs
+        Zeros (the cycle: -1), shapes as documented there.
+    """
+    n, T2 = int(n_seats), int(response_periods) + 2
+    return LimitOutputs(np.full(int(cycle_store), -1, np.int64), np.zeros(n), np.zeros(n), np.zeros(n),
+                        np.zeros((T2, n)), np.zeros((T2, n)), np.zeros((T2, n)), np.zeros((T2, n)), np.zeros(8))

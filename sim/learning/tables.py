@@ -1,0 +1,235 @@
+"""The tables of a learning experiment, read and validated: the one reader of ``[learning]``, ``[impulse]``,
+``[run]`` and a learning ``[[strategies]]`` line-up (the ``learn`` kind, the tournament's learning entrants and the
+library use it).
+"""
+
+from __future__ import annotations
+
+from sim.core.errors import InputError
+from sim.core.parallel import usable_cores
+from sim.core.params import Integer, Real, optional
+from sim.core.tables import refuse_unknown
+from sim.learning.lineup import compile_lineup
+from sim.learning.results import LIMIT_PERIODS
+from sim.models.market import market_from_dict
+from strategies import strategy_from_dict
+from strategies.qlearning import QLearner
+from strategies.registry import check_seats
+
+__all__ = [
+    "EXPERIMENT_KEYS",
+    "IMPULSE_KEYS",
+    "LEARNER_PARAMS",
+    "LEARNING_KEYS",
+    "RUN_CONSTRAINTS",
+    "RUN_KEYS",
+    "learner_from_entry",
+    "learning_from_dict",
+]
+
+#: the settings of a run of learning sessions (arguments of :func:`sim.learning.session.learn`), as data
+RUN_CONSTRAINTS = {
+    "sessions": Integer(1, 10_000_000),
+    "seed": Integer(0, 2**63 - 1),
+    "convergence": Integer(1, 10**12),
+    "max_periods": Integer(1, 10**15),
+    "deviator": Integer(0, 3),
+    "response_periods": Integer(0, 10_000),
+    "limit_periods": Integer(1, 100_000_000),
+    "near": Real(0, 1),
+    "workers": optional(Integer(1, 1024)),
+    "cell": Integer(0, 2**31),
+    "confidence": Real(0, 1, closed="neither"),
+}
+#: parameters of a Q-learner in [learning] and in a ``strategy = "qlearning"`` entry
+LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init")
+#: keys of the tables a learning experiment reads, in the order error messages list them
+LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "near", "limit_periods")
+IMPULSE_KEYS = ("firm", "action", "periods")
+RUN_KEYS = ("sessions", "seed", "workers", "confidence")
+EXPERIMENT_KEYS = ("name", "kind", "description")
+_READERS = {"market": None, "learning": LEARNING_KEYS, "impulse": IMPULSE_KEYS, "run": RUN_KEYS}
+
+
+def learner_from_entry(entry: dict, base: dict, key: str, skip=("strategy",), validate: bool = True):
+    """A :class:`~strategies.qlearning.QLearner` from an experiment-file entry with ``strategy = "qlearning"``:
+    the parameters ``base`` (the [learning] table's) overridden by the entry's own.
+
+    Parameters
+    ----------
+    entry : dict
+        The entry (``strategy = "qlearning"``, learner parameters, and the keys in ``skip``).
+    base : dict
+        Default learner parameters (keys of :data:`LEARNER_PARAMS`).
+    key : str
+        Key path of the entry in error messages, e.g. ``"strategies[2]"``.
+    skip : tuple of str
+        Keys of the entry that are not learner parameters (read by the caller).
+    validate : bool
+        Check the parameters now (errors name ``key.parameter``).
+
+    Returns
+    -------
+    strategies.qlearning.QLearner
+
+    Raises
+    ------
+    InputError
+        ``key.name`` for an unknown parameter or a bad value.
+    """
+    params = dict(base)
+    for name, v in entry.items():
+        if name in skip:
+            continue
+        if name not in LEARNER_PARAMS:
+            raise InputError(f"{key}.{name}", f"unknown parameter of qlearning; allowed: {', '.join(LEARNER_PARAMS)}")
+        params[name] = v
+    strat = QLearner(**params)
+    if validate:
+        strat.spec(prefix=key)
+    return strat
+
+
+def _lineup_from_entries(entries, base: dict, n_firms: int) -> list:
+    """One strategy per firm from ``[[strategies]]``: ``strategy = "qlearning"`` entries take the
+    [learning] parameters, overridden by their own; any other name is an automaton of the engine's
+    registry (see ``supergame simulate``)."""
+    if not isinstance(entries, list) or not entries:
+        raise InputError("strategies", "must be a non-empty list of [[strategies]] entries")
+    out = []
+    total = 0
+    for k, t in enumerate(entries):
+        key = f"strategies[{k + 1}]"
+        if not isinstance(t, dict):
+            raise InputError(key, f"must be a table with a 'strategy' key, got {t!r}")
+        seats = check_seats(f"{key}.seats", t.get("seats", 1))
+        if t.get("strategy") == QLearner.name:
+            strat = learner_from_entry(t, base, key, skip=("strategy", "seats"))
+        else:
+            strat = strategy_from_dict(t, key)
+        total += seats
+        if total <= n_firms:  # no clones beyond the market's firms (refused below)
+            out.extend(strat.clone() for _ in range(seats))
+    if total != n_firms:
+        raise InputError("strategies", f"the line-up has {total} seats but the market has {n_firms} firms; give "
+                                       "one strategy per firm (use seats to repeat one)")
+    if not any(isinstance(x, QLearner) for x in out):
+        raise InputError("strategies", "the line-up has no learner (strategy = 'qlearning'); use `supergame "
+                                       "simulate` for automata only")
+    return out
+
+
+def learning_from_dict(doc: dict, overrides: dict | None = None) -> dict:
+    """Validated settings of a learning experiment from its tables.
+
+    Reads ``[experiment]`` (``kind``, if given, must be ``"learn"``), ``[market]``
+    (:func:`sim.market_from_dict`), ``[learning]`` (the learners' parameters, ``convergence``,
+    ``max_periods``, ``near``, ``limit_periods``), ``[impulse]`` (``firm`` counted from 1, ``action``
+    -- ``"best_response"`` or a number -- and ``periods``), ``[run]`` (``sessions``, ``seed``,
+    ``workers``, ``confidence``) and an optional ``[[strategies]]`` line-up (``strategy = "qlearning"`` entries
+    take the [learning] parameters, overridden by their own; any other name is an automaton). Unknown keys
+    are refused (:func:`sim.core.tables.refuse_unknown`), and the line-up is compiled, so that a state
+    space too large for the memory is refused here, before any work.
+
+    Parameters
+    ----------
+    doc : dict
+        The experiment document (a dict of tables).
+    overrides : dict, optional
+        ``"table.key" -> (value, name)``: the value replaces the table's (a market key, or a key of
+        [learning], [impulse] or [run]), and an error about it names ``name`` instead of the key path.
+
+    Returns
+    -------
+    dict
+        ``market`` (:class:`sim.Market`), ``learner`` (a QLearner for every seat, or one strategy per
+        seat) and ``settings`` (keyword arguments of :func:`sim.learning.session.learn`; ``deviator`` counted
+        from 0).
+
+    Raises
+    ------
+    InputError
+        With the key path (or the override's name) of the first bad value.
+    """
+    overrides = dict(overrides or {})
+    try:
+        return _read_tables(doc, overrides)
+    except InputError as exc:
+        for path, (_value, name) in overrides.items():
+            if exc.key == path or exc.key.startswith((path + ".", path + "[")):
+                raise InputError(name, exc.message) from None
+        raise
+
+
+def _table(doc: dict, name: str, overrides: dict) -> dict:
+    """Table ``name`` of the document (unknown keys refused), with the overrides of its keys applied."""
+    if name == "market":
+        tab = doc.get("market", {})
+        if not isinstance(tab, dict):
+            raise InputError("market", f"must be a table, got {tab!r}")
+        tab = dict(tab)
+    else:
+        tab = dict(refuse_unknown(doc.get(name, {}), name, _READERS[name]))
+    for path, (value, _name) in overrides.items():
+        t, _, key = path.partition(".")
+        if t == name:
+            tab[key] = value
+    return tab
+
+
+def _setting(tab: dict, table: str, key: str, name: str, default):
+    return RUN_CONSTRAINTS[name].check(f"{table}.{key}", tab.get(key, default))
+
+
+def _impulse_action(it: dict):
+    """``impulse.action``: ``"best_response"`` or a number (a number given as text is read as one)."""
+    action = it.get("action", "best_response")
+    if isinstance(action, str) and action != "best_response":
+        try:
+            action = float(action)
+        except ValueError:
+            raise InputError("impulse.action", f"must be 'best_response' or a number, got {action!r}") from None
+    if not isinstance(action, str):
+        action = Real(0, None).check("impulse.action", action)
+    return action
+
+
+def _read_tables(doc: dict, overrides: dict) -> dict:
+    if not isinstance(doc, dict):
+        raise InputError("experiment", f"must be a document of tables, got {doc!r}")
+    for path in overrides:
+        table, _, key = path.partition(".")
+        allowed = _READERS.get(table, ())
+        if table not in _READERS or not key or (allowed is not None and key not in allowed):
+            raise ValueError(f"cannot override {path!r}")
+    exp = refuse_unknown(doc.get("experiment", {}), "experiment", EXPERIMENT_KEYS)
+    if "kind" in exp and exp["kind"] != "learn":
+        raise InputError("experiment.kind", f"this command runs kind = 'learn' experiments, got {exp['kind']!r}")
+    if "market" not in doc and not any(p.startswith("market.") for p in overrides):
+        raise InputError("market", "missing: the [market] table describes the market")
+    market = market_from_dict(_table(doc, "market", overrides))
+    n_firms = market.spec().n_firms
+    lt, it, rt = (_table(doc, name, overrides) for name in ("learning", "impulse", "run"))
+    base = {k: lt[k] for k in LEARNER_PARAMS if k in lt}
+    learner = QLearner(**base)
+    learner.spec(prefix="learning")
+    if "strategies" in doc:
+        learner = _lineup_from_entries(doc["strategies"], base, n_firms)
+    settings = {
+        "convergence": _setting(lt, "learning", "convergence", "convergence", 100_000),
+        "max_periods": _setting(lt, "learning", "max_periods", "max_periods", 1_000_000_000),
+        "near": _setting(lt, "learning", "near", "near", 0.1),
+        "limit_periods": _setting(lt, "learning", "limit_periods", "limit_periods", LIMIT_PERIODS),
+        "sessions": _setting(rt, "run", "sessions", "sessions", 100),
+        "seed": _setting(rt, "run", "seed", "seed", 0),
+        "workers": _setting(rt, "run", "workers", "workers", None),
+        "confidence": _setting(rt, "run", "confidence", "confidence", 0.95),
+        "response_periods": _setting(it, "impulse", "periods", "response_periods", 15),
+    }
+    firm = Integer(1, n_firms).check("impulse.firm", it.get("firm", 1))
+    settings["deviator"] = firm - 1  # learn() counts seats from 0; every output counts firms from 1
+    settings["deviation"] = _impulse_action(it)
+    # the line-up and its memory, checked before any work (the run repeats this, cheaply)
+    workers = settings["workers"] or usable_cores()
+    compile_lineup(market, learner, workers=min(workers, settings["sessions"]), random_automata="estimate")
+    return {"market": market, "learner": learner, "settings": settings}
