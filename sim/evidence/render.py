@@ -94,6 +94,7 @@ class Renderer:
 RENDERERS: dict = {
     "thresholds": "sim.evidence.thresholds:RENDERER",
     "assess": "sim.evidence.assess:RENDERER",
+    "tournament": "sim.evidence.tournament:RENDERER",
 }
 
 
