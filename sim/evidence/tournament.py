@@ -203,6 +203,13 @@ def as_json(out: TournamentOutcome) -> dict:
 # --------------------------------------------------------------------------------------------------
 
 
+def _score_words(out: TournamentOutcome) -> str:
+    if out.score == "profit_gain":
+        return "profit gain (0 at the static Nash profit, 1 at the collusive profit of its seats)"
+    what = "discounted profit" if out.score == "discounted_profit" else f"profit per {out.units['period']}"
+    return f"{what} ({out.units['currency']})"
+
+
 def figures(out: TournamentOutcome) -> list[Drawn]:
     """The figures of a tournament outcome (see :mod:`sim.evidence.tournament_figures`).
 
@@ -220,11 +227,10 @@ def figures(out: TournamentOutcome) -> list[Drawn]:
     period = out.units["period"]
     return [
         Drawn("rules", F.rules_figure(out),
-              "Left: each rule's profit gain against rivals drawn at random from the rules, with its "
-              f"{confidence_words(out)} interval (simulation error only); 0 is the static Nash profit and 1 the "
-              f"collusive profit of its seats. Right: its share of the population after {gens:,} generations of the "
-              "replicator dynamics. A rule can keep much of the collusive profit on average and still lose ground "
-              "to a rule that does better against it."),
+              f"Left: each rule's {_score_words(out)} against rivals drawn at random from the rules, with its "
+              f"{confidence_words(out)} interval (simulation error only). Right: its share of the population after "
+              f"{gens:,} generations of the replicator dynamics. A rule can do well on average and still lose "
+              "ground to a rule that does better against it."),
         Drawn("pairs", F.pairs_figure(out),
               f"Share of the collusive profit each {what} keeps together, (joint profit - joint static Nash "
               "profit) / (joint collusive profit - joint static Nash profit): 1 is the agreement, 0 the static Nash "

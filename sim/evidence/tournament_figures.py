@@ -134,8 +134,8 @@ def _ticks(ax, labels, x_label: str, y_label: str) -> None:
 
 
 def rules_figure(out: TournamentOutcome):
-    """Each rule's profit gain with its interval (left), beside its share of the population after the replicator
-    dynamics (right); rules from first to last place.
+    """Each rule's profit gain (or the score it is placed by) with its interval (left), beside its share of the
+    population after the replicator dynamics (right); rules from first to last place.
 
     Parameters
     ----------
@@ -149,19 +149,23 @@ def rules_figure(out: TournamentOutcome):
     order = list(out.order)
     E = len(order)
     labels = out.labels
-    est = np.asarray(out.estimates["profit_gain"], dtype=float)[order]
+    est = np.asarray(out.estimates[out.score], dtype=float)[order]
     share = np.asarray(out.evolution.final, dtype=float)[order]
     fig, (ax, bx) = plt.subplots(1, 2, figsize=(WIDTH, 0.32 * E + 1.6), sharey=True, layout="constrained",
                                  gridspec_kw={"width_ratios": [3, 2]})
     y = np.arange(E)[::-1]
     err = [np.nan_to_num(est[:, 0] - est[:, 2]), np.nan_to_num(est[:, 3] - est[:, 0])]
     ax.errorbar(est[:, 0], y, xerr=err, fmt="o", ms=4, color=OKABE_ITO[0], ecolor=OKABE_ITO[0], capsize=2.5)
-    for x, name, side, dx in ((0.0, "static Nash", "left", 2), (1.0, "agreement", "right", -2)):
-        ax.axvline(x, color="0.45", lw=0.8, ls="--")
-        ax.annotate(name, (x, 1.0), xycoords=("data", "axes fraction"), xytext=(dx, 2), textcoords="offset points",
-                    fontsize=8, color="0.3", va="bottom", ha=side)
+    if out.score == "profit_gain":
+        for x, name, side, dx in ((0.0, "static Nash", "left", 2), (1.0, "agreement", "right", -2)):
+            ax.axvline(x, color="0.45", lw=0.8, ls="--")
+            ax.annotate(name, (x, 1.0), xycoords=("data", "axes fraction"), xytext=(dx, 2),
+                        textcoords="offset points", fontsize=8, color="0.3", va="bottom", ha=side)
+        ax.set_xlabel("profit gain (share of the collusive\nprofit above the static Nash profit)", fontsize=9)
+    else:
+        what = "discounted profit" if out.score == "discounted_profit" else f"profit per {out.units['period']}"
+        ax.set_xlabel(f"{what}\n({out.units['currency']})", fontsize=9)
     ax.set_yticks(y, [f"{int(out.ranks[e])}. {labels[e]}" for e in order], fontsize=8)
-    ax.set_xlabel("profit gain (share of the collusive\nprofit above the static Nash profit)", fontsize=9)
     ax.grid(axis="x", alpha=0.3)
     gens = int(out.evolution.settings["generations"])
     colours = [OKABE_ITO[2] if out.evolution.resists[e] else OKABE_ITO[1] for e in order]
