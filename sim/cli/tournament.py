@@ -59,10 +59,7 @@ def _document(path: str) -> dict:
 def _threads(args) -> int | None:
     if not args.threads:
         return None
-    try:
-        return check_threads(parse_number("threads", args.threads, integer=True))
-    except InputError as exc:
-        raise InputError("--threads", exc.message) from None
+    return check_threads(parse_number("threads", args.threads, integer=True))
 
 
 def _check_dir(path, flag: str) -> None:
@@ -83,7 +80,7 @@ def _into_folder(args, threads) -> tuple[object | None, list[str]]:
         rows = rf.rows()
         ok = [r for r in rows if r.status == "ok"]
         if not ok:
-            raise InputError("FILE", f"no cell finished ({rows[0].error if rows else 'no cells'}); see {s.folder}")
+            raise InputError("file", f"no cell finished ({rows[0].error if rows else 'no cells'}); see {s.folder}")
         if exp.n_cells == 1:
             return rf.result(0), lines
         lines += [f"Cell {r.number}: {answer(rf.result(r.cell))}" for r in ok]
@@ -93,8 +90,8 @@ def _into_folder(args, threads) -> tuple[object | None, list[str]]:
 def run(args) -> int:
     threads = _threads(args)
     doc = _document(args.file)
-    _check_dir(args.out, "--out")
-    _check_dir(args.plot, "--plot")
+    _check_dir(args.out, "out")
+    _check_dir(args.plot, "plot")
     if args.out:
         res, lines = _into_folder(args, threads)
     else:
@@ -102,7 +99,7 @@ def run(args) -> int:
         one = run_single(doc, threads=threads or usable_cores(), progress=sys.stderr.isatty(), source=args.file,
                          default_name=stem if stem.replace("-", "").replace("_", "").isalnum() else "tournament")
         res, lines = one.result, []
-    written = write_figures(RENDERER.figures(res), args.plot, key="--plot") if args.plot and res is not None else []
+    written = write_figures(RENDERER.figures(res), args.plot) if args.plot and res is not None else []
     if args.json:
         doc = RENDERER.as_json(res) if res is not None else {}
         if lines or written:
