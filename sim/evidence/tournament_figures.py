@@ -170,16 +170,18 @@ def rules_figure(out: TournamentOutcome):
     gens = int(out.evolution.settings["generations"])
     colours = [OKABE_ITO[2] if out.evolution.resists[e] else OKABE_ITO[1] for e in order]
     bx.barh(y, share, color=colours, height=0.6)
+    # the colour shows even where the share is too small for a bar
+    bx.scatter(np.zeros(E), y, marker="s", s=36, color=colours, clip_on=False, zorder=3)
     for k, v in zip(y, share, strict=True):
         inside = v > 0.75
-        bx.text(v - 0.02 if inside else v + 0.02, k, percent(v), va="center", ha="right" if inside else "left",
-                fontsize=8, color="white" if inside else "black")
+        bx.text(v - 0.02 if inside else max(v, 0.02) + 0.02, k, percent(v), va="center",
+                ha="right" if inside else "left", fontsize=8, color="white" if inside else "black")
     bx.set_xlim(0, 1)
     bx.set_xlabel(f"share of the population after\n{gens:,} generations", fontsize=9)
     bx.grid(axis="x", alpha=0.3)
     handles = [plt.Rectangle((0, 0), 1, 1, color=OKABE_ITO[2]), plt.Rectangle((0, 0), 1, 1, color=OKABE_ITO[1])]
-    fig.legend(handles, ["resists invasion by every other rule", "can be invaded"], loc="outside lower center",
-               ncol=2, fontsize=8, frameon=False)
+    fig.legend(handles, ["resists invasion by every other rule", "does not resist every other rule"],
+               loc="outside lower center", ncol=2, fontsize=8, frameon=False)
     return fig
 
 
