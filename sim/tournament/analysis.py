@@ -39,8 +39,8 @@ from sim.tournament.plan import SCORES, TournamentPlan, gain_defined, rival_weig
 from sim.tournament.roundrobin import run_tournament
 from sim.tournament.scoring import TournamentResult, match_dict
 
-__all__ = ["REPLICATOR_POINTS", "EvolutionOutcome", "GroupOutcomes", "PairContrasts", "TournamentOutcome",
-           "TournamentSpec", "tournament_analysis", "tournament_outcome"]
+__all__ = ["DEFAULT_UNITS", "REPLICATOR_POINTS", "EvolutionOutcome", "GroupOutcomes", "PairContrasts",
+           "TournamentOutcome", "TournamentSpec", "tournament_analysis", "tournament_outcome"]
 
 #: the most generations of the replicator path a result keeps (evenly spaced, first and last included)
 REPLICATOR_POINTS = 200

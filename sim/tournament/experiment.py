@@ -44,6 +44,10 @@ def _check_kind(doc: dict) -> dict:
     exp = refuse_unknown(doc.get("experiment", {}), "experiment", ("name", "kind", "description", "currency", "period"))
     if "kind" in exp and exp["kind"] != "tournament":
         raise InputError("experiment.kind", f"this command runs kind = 'tournament' experiments, got {exp['kind']!r}")
+    for k in ("currency", "period"):
+        v = exp.get(k)
+        if v is not None and (not isinstance(v, str) or not v.strip()):
+            raise InputError(f"experiment.{k}", f"must be a non-empty string, got {v!r}")
     return exp
 
 
@@ -100,7 +104,8 @@ def tournament_from_dict(doc: dict, check_tables: bool = True) -> dict:
     dict
         ``market`` (Market), ``entrants`` (list of Entrant), ``monitoring`` (Monitoring), ``plan_args`` (keyword
         arguments of :func:`sim.tournament.plan.prepare_tournament` besides market, entrants and monitoring),
-        ``evolution`` (generations, shares, selection, fitness, population, moran_runs) and ``name``.
+        ``evolution`` (generations, shares, selection, fitness, population, moran_runs), ``name`` and ``units``
+        (``currency`` and ``period`` where ``[experiment]`` names them).
     """
 
     if not isinstance(doc, dict):
@@ -126,8 +131,9 @@ def tournament_from_dict(doc: dict, check_tables: bool = True) -> dict:
     args = _plan_args(tour, runt, lt, coll)
     evo = dict(EVOLUTION_DEFAULTS)
     evo.update({k: tour[k] for k in EVOLUTION_DEFAULTS if k in tour})
+    units = {k: exp[k] for k in ("currency", "period") if k in exp}
     return {"market": market, "entrants": entrants, "monitoring": mon, "plan_args": args, "evolution": evo,
-            "name": exp.get("name", "tournament")}
+            "name": exp.get("name", "tournament"), "units": units}
 
 
 def check_experiment(cfg: dict) -> TournamentPlan:

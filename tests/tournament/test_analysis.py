@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 import strategies as S
-from sim import LinearDemand, Market
+from sim import InputError, LinearDemand, Market
 from sim.evidence.render import figure_bytes
 from sim.evidence.tournament import console, figures
 from sim.models.monitoring import Monitoring
@@ -190,3 +190,22 @@ def test_no_learning_values_where_a_learner_plays():
         assert G.learning[g] == learns
         assert math.isnan(G.colluding[g][0]) == learns and math.isnan(G.first_breakdown[g][0]) == learns
         assert math.isfinite(G.kept[g][0])
+
+
+def test_profits_in_the_experiments_currency_and_period():
+    # experiment.currency and experiment.period name what money and time are counted in; every label follows
+    from sim.runner.kinds import CellContext, get_kind
+
+    doc = {"experiment": {"kind": "tournament", "name": "t", "currency": "EUR", "period": "month"},
+           "market": {"model": "cournot", "demand": "linear", "intercept": 100.0, "cost": 10.0, "n_firms": 2},
+           "entrants": [{"label": "grim", "strategy": "grim_trigger"},
+                        {"label": "compete", "strategy": "always_compete"}],
+           "tournament": {"bootstrap": 0, "generations": 5, "population": 4, "moran_runs": 0},
+           "run": {"periods": 10, "replications": 3}}
+    kind = get_kind("tournament")
+    out = kind.run(kind.prepare(doc), CellContext()).result
+    text = console(out)
+    assert "profits in EUR per month" in text and "Profit per month (EUR)" in text and "months with collusion" in text
+    bad = {**doc, "experiment": {**doc["experiment"], "currency": ""}}
+    with pytest.raises(InputError, match=r"^experiment\.currency: must be a non-empty string"):
+        kind.prepare(bad)

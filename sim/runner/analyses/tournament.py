@@ -21,7 +21,7 @@ import numpy as np
 from sim.core.values import value_label
 from sim.runner.analyses.common import GENERAL_ASSUMPTIONS, describe_market, nan_if_none
 from sim.runner.kinds import CellContext, CellResult, Kind
-from sim.tournament.analysis import TournamentOutcome, TournamentSpec, tournament_analysis
+from sim.tournament.analysis import DEFAULT_UNITS, TournamentOutcome, TournamentSpec, tournament_analysis
 from sim.tournament.experiment import check_experiment, tournament_from_dict
 from sim.tournament.plan import SCORES
 
@@ -52,11 +52,8 @@ def metric_label(labels) -> list[str]:
 def _prepare(doc: dict) -> dict:
     cfg = tournament_from_dict(doc, check_tables=True)
     plan = check_experiment(cfg)
-    exp = doc.get("experiment", {})
-    units = {k: str(exp[k]) for k in ("currency", "period") if k in exp}
     cfg["plan"] = plan
-    cfg["spec"] = TournamentSpec(plan, cfg["evolution"], cfg["market"].to_dict(),
-                                 {"currency": "currency units", "period": "period", **units})
+    cfg["spec"] = TournamentSpec(plan, cfg["evolution"], cfg["market"].to_dict(), {**DEFAULT_UNITS, **cfg["units"]})
     return cfg
 
 
