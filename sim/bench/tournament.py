@@ -8,7 +8,7 @@ import time
 import numpy as np
 
 import sim.simulation.kernel as K
-import sim.tournament.roundrobin as T
+import sim.tournament.bootstrap as TB
 import strategies as S
 from sim.core.parallel import NumbaThreads
 from sim.core.rng import stream_states
@@ -17,15 +17,12 @@ from sim.models.market import Market
 from sim.models.monitoring import Monitoring
 from sim.simulation.driver import RawRun, kernel_groups
 from sim.simulation.twin import reference_run
-from sim.tournament.roundrobin import (
-    EVOLUTION_DEFAULTS,
-    Entrant,
-    TournamentPlan,
-    evolve_tournament,
-    prepare_tournament,
-    run_tournament,
-    tournament,
-)
+from sim.tournament.entrants import Entrant
+from sim.tournament.experiment import EVOLUTION_DEFAULTS, evolve_tournament
+from sim.tournament.plan import TournamentPlan, prepare_tournament
+from sim.tournament.roundrobin import run_tournament, tournament
+
+__all__ = ["bench_section"]
 
 
 def _bench_entrants() -> list[Entrant]:
@@ -67,6 +64,53 @@ def _kernel_seconds(plan: TournamentPlan, threads: int | None) -> tuple[float, l
     return total, sums
 
 
+def _timed_runs(market, ents, mon, args: dict, threads: int, repeat: int) -> dict:
+    """Best of ``repeat`` runs: the whole call, the driver, the kernel calls of the same run (one clock read around
+    each), the bootstrap kernel and the kernel calls on their own."""
+    best = {"total": math.inf, "run": math.inf, "kernel": math.inf, "ratio": math.inf, "boot": math.inf,
+            "with_boot": math.inf}
+    kernel = K.simulate_chunks
+    boot_kernel = TB.bootstrap_kernel
+    inside = [0.0, 0.0]
+
+    def timed(*a):
+        t = time.perf_counter()
+        out = kernel(*a)
+        inside[0] += time.perf_counter() - t
+        return out
+
+    def timed_boot(*a):
+        t = time.perf_counter()
+        out = boot_kernel(*a)
+        inside[1] += time.perf_counter() - t
+        return out
+
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        plan = prepare_tournament(market, ents, mon, **args)
+        t_prep = time.perf_counter() - t0
+        inside[0] = inside[1] = 0.0
+        # the kernel calls of this very run are timed (one clock read around each of the 55 calls), so
+        # the driver's share does not depend on how busy the machine was in another run
+        K.simulate_chunks = timed
+        TB.bootstrap_kernel = timed_boot
+        try:
+            t1 = time.perf_counter()
+            res = run_tournament(plan, threads, progress=False)
+            t_run = time.perf_counter() - t1
+        finally:
+            K.simulate_chunks = kernel
+            TB.bootstrap_kernel = boot_kernel
+        best["total"] = min(best["total"], t_prep + t_run)
+        best["run"] = min(best["run"], t_run)
+        best["ratio"] = min(best["ratio"], (t_run - inside[1]) / inside[0])
+        best["with_boot"] = min(best["with_boot"], t_run / inside[0])
+        best["boot"] = min(best["boot"], inside[1])
+        t_kernel, sums = _kernel_seconds(plan, threads)
+        best["kernel"] = min(best["kernel"], t_kernel, inside[0])
+    return {**best, "plan": plan, "result": res, "sums": sums}
+
+
 def bench_section(opts) -> dict:
     """The ``tournament`` section of ``supergame bench`` (``opts``: :class:`sim.bench.BenchOptions`).
 
@@ -88,6 +132,15 @@ def bench_section(opts) -> dict:
       checked equal to the kernel and extrapolated to the whole tournament, and the ratio;
     * the evolutionary analysis with the defaults (replicator dynamics over 1,000 generations, exact
       and simulated Moran fixation with N = 100 and 10,000 invasions per pair).
+
+    Parameters
+    ----------
+    opts : sim.bench.BenchOptions
+
+    Returns
+    -------
+    dict
+        The measures, ``workload``, ``targets`` (target text -> met) and ``notes``.
     """
 
     quick = bool(getattr(opts, "quick", False))
@@ -104,52 +157,11 @@ def bench_section(opts) -> dict:
                       progress=False)
     evolve_tournament(warm, {**EVOLUTION_DEFAULTS, "moran_runs": 10}, threads)
     t_warm = time.perf_counter() - t0
-
-
-    best_total, best_run, best_kernel, best_ratio = math.inf, math.inf, math.inf, math.inf
-    res = None
-    kernel = K.simulate_chunks
-    boot_kernel = T.bootstrap_kernel
-    inside = [0.0, 0.0]
-
-    def timed(*a):
-        t = time.perf_counter()
-        out = kernel(*a)
-        inside[0] += time.perf_counter() - t
-        return out
-
-    def timed_boot(*a):
-        t = time.perf_counter()
-        out = boot_kernel(*a)
-        inside[1] += time.perf_counter() - t
-        return out
-
-    best_boot, best_with_boot = math.inf, math.inf
-
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        plan = prepare_tournament(market, ents, mon, **args)
-        t_prep = time.perf_counter() - t0
-        inside[0] = inside[1] = 0.0
-        # the kernel calls of this very run are timed (one clock read around each of the 55 calls), so
-        # the driver's share does not depend on how busy the machine was in another run
-        K.simulate_chunks = timed
-        T.bootstrap_kernel = timed_boot
-        try:
-            t1 = time.perf_counter()
-            res = run_tournament(plan, threads, progress=False)
-            t_run = time.perf_counter() - t1
-        finally:
-            K.simulate_chunks = kernel
-            T.bootstrap_kernel = boot_kernel
-        best_total = min(best_total, t_prep + t_run)
-        best_run = min(best_run, t_run)
-        best_ratio = min(best_ratio, (t_run - inside[1]) / inside[0])
-        best_with_boot = min(best_with_boot, t_run / inside[0])
-        best_boot = min(best_boot, inside[1])
-        t_kernel, sums = _kernel_seconds(plan, threads)
-        best_kernel = min(best_kernel, t_kernel, inside[0])
-    identical_kernel = all(np.array_equal(s, r.profit_sum) for s, r in zip(sums, res.matches))
+    t = _timed_runs(market, ents, mon, args, threads, repeat)
+    plan, res = t["plan"], t["result"]
+    best_total, best_run, best_kernel, best_ratio = t["total"], t["run"], t["kernel"], t["ratio"]
+    best_boot, best_with_boot = t["boot"], t["with_boot"]
+    identical_kernel = all(np.array_equal(s, r.profit_sum) for s, r in zip(t["sums"], res.matches))
     t0 = time.perf_counter()
     evo = evolve_tournament(res, EVOLUTION_DEFAULTS, threads)
     t_evo = time.perf_counter() - t0

@@ -34,7 +34,8 @@ COMMANDS = {
     "simulate": ("sim.cli.simulate",
                  "simulate a line-up of strategies: persistence of collusion against the analytic baseline"),
     "tournament": ("sim.cli.tournament",
-                   "round-robin tournament of strategies: scores, ranking stability, replicator and Moran dynamics"),
+                   "tournament of collusive rules: profit gain of each rule, collusion within each pair, which rules "
+                   "spread"),
     "bench": ("sim.cli.bench", "throughput of the simulation kernels against their plain-Python references"),
     "assess": ("sim.cli.assess",
                "coordinated effects of a merger: calibration, thresholds, persistence and factors before and after"),

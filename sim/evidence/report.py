@@ -51,9 +51,7 @@ from sim.runner.store import STORE_FILE
 __all__ = ["bundle_hook", "write_report"]
 
 #: the bundle accounts of kinds whose renderers do not give one yet (kind name -> "module:function")
-_BUNDLE_HOOKS = {
-    "tournament": "sim.evidence.tournament:kind_report",
-}
+_BUNDLE_HOOKS: dict = {}
 
 
 def bundle_hook(kind):

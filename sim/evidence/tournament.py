@@ -1,196 +1,201 @@
-"""Tables (CSV), JSON and figures of a tournament and its evolutionary analysis.
+"""How a tournament outcome is shown, in the market's terms: the terminal report, the JSON document, the figures and
+its account in an evidence bundle (see :mod:`sim.evidence.render`).
 
-Tables (:func:`write_tables`), one row per item, plain numbers (empty cells for undefined values):
+Every view reads the same :class:`~sim.tournament.analysis.TournamentOutcome` -- the one ``supergame tournament``
+computes, or the one a run folder stores for its cell -- so the command and the bundle show the same numbers and the
+same figures. What a reader sees:
 
-* ``scores.csv`` -- per entrant: rank, profit gain, discounted profit and mean profit with standard
-  errors and intervals, and the bootstrap rank stability;
-* ``matches.csv`` -- per match and seat: the entrant, the firm's estimates and how to reproduce it;
-* ``groups.csv`` -- per group (multiset of entrants) and member: the payoffs used for the scores and
-  the evolutionary dynamics;
-* ``pairwise.csv`` -- two seats: each entrant's payoff against each other, the paired difference and
-  who beats whom; ``versus.csv`` -- more seats: each entrant's payoff when every rival is one other;
-* ``rank_above.csv`` -- share of bootstrap resamples in which the row entrant ranks above the column;
-* ``replicator.csv``, ``fixation.csv``, ``stability.csv`` -- the evolutionary analysis;
-* ``tournament.json`` -- everything, with the caution; ``summary.txt`` -- the readable report.
-
-Figures (:func:`tournament_figures`, matplotlib imported lazily with the Agg backend): the score
-heatmap, the ranking with intervals, the replicator trajectories and the fixation probabilities.
+* the answer first: which rule keeps the most of the collusive profit and which rule spreads;
+* each rule's profit gain between the static Nash profit and the collusive profit of its seats, with its interval,
+  beside its profit per period and what the evolutionary dynamics make of it;
+* for each pair (or group) of rules: the share of the collusive profit they keep together and how long collusion
+  lasts between them;
+* which rules spread under the replicator dynamics and which resist invasion, in a large and a finite population.
 """
 
 from __future__ import annotations
 
-import csv
-import math
-from pathlib import Path
-
 import numpy as np
 
-from sim.core.jsonutil import dumps
-from sim.core.stats import normal_quantile as z
-from sim.core.text import fmt_num
-
-# one check-and-create of output folders for the simulation and tournament figures and tables
-from sim.evidence.simplots import _outdir as output_dir
-from sim.evidence.simplots import _pyplot
-from sim.runner.analyses.tournament import describe as describe_tournament
-from sim.runner.analyses.tournament import metric_label
+from sim.core.text import CAUTION, fmt_num, table
+from sim.evidence import tournament_figures as F
+from sim.evidence.render import Drawn, Renderer
+from sim.evidence.tournament_figures import percent
+from sim.evidence.tournament_sweep import sweep_account
+from sim.evidence.tournament_tables import (
+    answer,
+    confidence_words,
+    fitness_words,
+    initial_words,
+    pairs_table,
+    profit_unit,
+    rules_table,
+    setup_lines,
+    spread_table,
+)
+from sim.runner.analyses.tournament import describe as describe_setup
 from sim.runner.experiment import leading_comment
-from sim.tournament.roundrobin import EVOLUTION_DEFAULTS, SCORE_NAMES, TOURNAMENT_DEFAULTS
+from sim.tournament.analysis import TournamentOutcome
 
-__all__ = ["fixation_figure", "heatmap_figure", "output_dir", "ranking_figure", "replicator_figure",
-           "tournament_figures", "tournament_json", "write_tables"]
-
-_METRICS = ("profit_gain", "discounted_profit", "profit")
+__all__ = ["RENDERER", "as_json", "bundle", "console", "figures"]
 
 
-def _cell(x):
-    if x is None:
-        return ""
-    if isinstance(x, bool | np.bool_):
-        return "true" if x else "false"
-    if isinstance(x, int | np.integer):
-        return str(int(x))
-    if isinstance(x, float | np.floating):
-        v = float(x)
-        return "" if not math.isfinite(v) else repr(v)
-    return str(x)
+# --------------------------------------------------------------------------------------------------
+# The terminal report
+# --------------------------------------------------------------------------------------------------
 
 
-def _write(path: Path, headers, rows) -> Path:
-    with open(path, "w", newline="", encoding="utf-8") as f:
-        w = csv.writer(f, lineterminator="\n")
-        w.writerow(headers)
-        for r in rows:
-            w.writerow([_cell(x) for x in r])
-    return path
-
-
-def tournament_json(result, evolution=None) -> dict:
-    out = result.to_dict()
-    if evolution is not None:
-        out["evolution"] = evolution.to_dict()
-    return out
-
-
-def write_tables(result, directory, evolution=None, summary: str | None = None, key: str = "--out") -> list[Path]:
-    """Write the CSV tables, ``tournament.json`` and (when given) ``summary.txt``; returns the paths."""
-
-    d = output_dir(directory, key)
-    labels = result.labels
-    plan = result.plan
-    files = []
-    st = result.stability
-    head = ["rank", "entrant", "strategy"]
-    for m in _METRICS:
-        head += [m, f"{m}_se", f"{m}_low", f"{m}_high"]
-    head += ["rank_share", "rank_low", "rank_high", "top_share", "score_low_bootstrap", "score_high_bootstrap"]
-    rows = []
-    for e in result.order:
-        r = [int(result.ranks[e]), labels[e], plan.entrants[e].name]
-        for m in _METRICS:
-            x = result.scores[m][e]
-            r += [x.value, x.se, x.low, x.high]
-        if st:
-            p = st["per_entrant"]
-            r += [p["rank_share"][e], p["rank_low"][e], p["rank_high"][e], p["top_share"][e], p["score_low"][e],
-                  p["score_high"][e]]
-        else:
-            r += [None] * 6
-        rows.append(r)
-    files.append(_write(d / "scores.csv", head, rows))
-
-    head = ["match", "group", "kind", "seat", "entrant", "replications"]
-    for m in _METRICS:
-        head += [m, f"{m}_se"]
-    head += ["collusive_share", "converged", "seed", "stream"]
-    rows = []
-    for rec in result.matches:
-        s = rec.stream
-        stream = "key " + " ".join(map(str, s["key"])) if "key" in s else f"cell {s['cell']}"
-        for seat, e in enumerate(rec.lineup):
-            r = [rec.index + 1, rec.group + 1, "learning" if rec.learning else "automata", seat + 1, labels[e],
-                 rec.n_reps]
-            for m in _METRICS:
-                est = rec.metric(m)[seat]
-                r += [est.value, est.se]
-            r += [rec.collusive_share.value if rec.collusive_share is not None else None, rec.converged, s["seed"],
-                  stream]
-            rows.append(r)
-    files.append(_write(d / "matches.csv", head, rows))
-
-    head = ["group", "members", "entrant"]
-    for m in _METRICS:
-        head += [m, f"{m}_se"]
-    rows = []
-    for g, grp in enumerate(plan.groups):
-        members = " + ".join(labels[e] for e in grp)
-        for e in sorted(set(grp)):
-            r = [g + 1, members, labels[e]]
-            for m in _METRICS:
-                v, s = result.group_payoffs[m]
-                r += [v[g, e], s[g, e]]
-            rows.append(r)
-    files.append(_write(d / "groups.csv", head, rows))
-
-    score = result.score
-    E = len(labels)
-    if result.pairwise is not None:
-        pw = result.pairwise[score]
-        conf = plan.settings["confidence"]
-        z = _z(conf)
-        rows = []
-        for i in range(E):
-            for j in range(E):
-                verdict = {1: "beats", -1: "beaten", 0: "neither"}[int(pw["beats"][i, j])] if i != j else ""
-                rows.append([labels[i], labels[j], pw["value"][i, j], pw["se"][i, j],
-                             pw["value"][i, j] - z * pw["se"][i, j], pw["value"][i, j] + z * pw["se"][i, j],
-                             pw["difference"][i, j], pw["difference_se"][i, j], verdict])
-        files.append(_write(d / "pairwise.csv", ["entrant", "opponent", score, "se", "low", "high", "difference",
-                                                  "difference_se", "verdict"], rows))
-    else:
-        rows = [[labels[i], labels[j], *(result.versus[m][i, j] for m in _METRICS)]
-                for i in range(E) for j in range(E)]
-        files.append(_write(d / "versus.csv", ["entrant", "every_rival", *_METRICS], rows))
+def _rules_lines(out: TournamentOutcome) -> list[str]:
+    h, rows, _ = rules_table(out)
+    st = out.stability
+    lines = [f"Profit gain of each rule against rivals drawn at random from the rules (profits in "
+             f"{profit_unit(out)}; profit gain: 0 at the static Nash profit, 1 at the collusive profit of the "
+             "rule's seats)", table(h, rows, "rlrrrrlrrl")]
     if st:
-        A = np.asarray(st["above"])
-        files.append(_write(d / "rank_above.csv", ["entrant", *labels],
-                            [[labels[i], *A[i].tolist()] for i in range(E)]))
-
-    if evolution is not None:
-        rp = evolution.replicator
-        rows = [[t, *rp.shares[t].tolist(), rp.mean_payoff[t]] for t in range(rp.shares.shape[0])]
-        files.append(_write(d / "replicator.csv", ["generation", *labels, "mean_payoff"], rows))
-        N = evolution.settings["population"]
-        sim = evolution.simulated_share()
-        rows = []
-        for i in range(E):
-            for j in range(E):
-                if i == j:
-                    continue
-                rows.append([labels[i], labels[j], evolution.fixation[i, j], evolution.fixation[i, j] * N,
-                             int(evolution.simulated[i, j]) if evolution.simulated is not None else None,
-                             sim[i, j] if sim is not None else None, evolution.runs])
-        files.append(_write(d / "fixation.csv", ["invader", "resident", "rho", "rho_times_n", "simulated_fixations",
-                                                  "simulated_rho", "runs"], rows))
-        s = evolution.stability
-        rows = [[labels[e], s["ess"][e], s["neutral"][e], s["ess_n"][e], "; ".join(s["invaded_by"][e]),
-                 "; ".join(s["ess_n_failures"][e]), rp.final[e], evolution.stationary[e]] for e in range(E)]
-        files.append(_write(d / "stability.csv", ["entrant", "ess", "neutrally_stable", "ess_n", "invaded_by",
-                                                   "ess_n_fails_against", "replicator_final_share",
-                                                   "rare_mutation_share"], rows))
-    p = d / "tournament.json"
-    p.write_text(dumps(tournament_json(result, evolution), indent=2) + "\n", encoding="utf-8")
-    files.append(p)
-    if summary is not None:
-        p = d / "summary.txt"
-        p.write_text(summary if summary.endswith("\n") else summary + "\n", encoding="utf-8")
-        files.append(p)
-    return files
+        lines.append(f"  place held: share of {st['resamples']:,} bootstrap resamples of the replications in which "
+                     f"the rule keeps its place; the whole order holds in {percent(st['ranking_holds'])} of them")
+    lines.append(f"  population share: replicator dynamics from {initial_words(out)}, {fitness_words(out)}")
+    return lines
 
 
-def _z(confidence: float) -> float:
+def _pairs_lines(out: TournamentOutcome) -> list[str]:
+    h, rows, _ = pairs_table(out)
+    what = "pair of rules" if out.n_seats == 2 else f"group of {out.n_seats} rules"
+    period = out.units["period"]
+    return [f"Collusion within each {what} (every seating averaged)", table(h, rows, "lrlrrll"),
+            "  share kept: (joint profit - joint static Nash profit) / (joint collusive profit - joint static Nash "
+            f"profit); {period}s until collusion first breaks down: Kaplan-Meier mean over the horizon of "
+            f"{out.horizon:,} {period}s ('at least' where collusion outlived the horizon)"]
 
-    return z(confidence)
+
+def _spread_lines(out: TournamentOutcome) -> list[str]:
+    h, rows = spread_table(out)
+    evo = out.evolution
+    N = evo.population
+    lines = [f"Which rules spread ({fitness_words(out)})", table(h, rows, "lrrrlll"),
+             f"  largest change of a share in the last generation {fmt_num(evo.last_change)}; time prevailing: share "
+             "of time the rule is followed by the whole population when new rules appear rarely (Fudenberg and Imhof, "
+             "2006); resists invasion: earns more than any small share of another rule (ties within the "
+             f"{confidence_words(out)} margin count as neutral); with {N} firms: a single invader is less fit and "
+             f"takes over with probability below 1/{N} (Nowak et al., 2004)", "",
+             f"Invasion among {N} firms (Moran process): {N} × the probability that one firm following the row rule "
+             "takes over a population following the column rule (1: neutral drift; above 1: selection favours the "
+             "invader)"]
+    R = np.asarray(evo.fixation, dtype=float) * N
+    E = len(out.labels)
+    lines.append(table(["invader \\ population", *out.labels],
+                       [[out.labels[i], *("." if i == j else fmt_num(R[i, j], 3) for j in range(E))]
+                        for i in range(E)], "l" + "r" * E))
+    ck = evo.check
+    if evo.simulated is not None and ck.get("max_standard_errors") is not None:
+        lines.append(f"  simulated with {evo.runs:,} invasions per pair: largest gap to the formula "
+                     f"{fmt_num(ck['max_standard_errors'], 3)} binomial standard errors "
+                     f"({'within' if ck['within'] else 'NOT within'} the family-wise 1 % bound {ck['z']:.2f})")
+    return lines
+
+
+def console(out: TournamentOutcome) -> str:
+    """The terminal report of a tournament outcome, the answer first.
+
+    Parameters
+    ----------
+    out : TournamentOutcome
+
+    Returns
+    -------
+    str
+    """
+    lines = [answer(out), "", *setup_lines(out), ""]
+    lines += _rules_lines(out) + [""] + _pairs_lines(out) + [""] + _spread_lines(out)
+    lines += ["", CAUTION]
+    return "\n".join(lines)
+
+
+# --------------------------------------------------------------------------------------------------
+# JSON
+# --------------------------------------------------------------------------------------------------
+
+
+def _estimate(v) -> dict:
+    return {"value": float(v[0]), "standard_error": float(v[1]), "low": float(v[2]), "high": float(v[3])}
+
+
+def _rule_json(out: TournamentOutcome, e: int) -> dict:
+    st, evo = out.stability, out.evolution
+    doc = {"label": out.labels[e], "rule": out.entrants[e]["rule"], "description": out.entrants[e]["description"],
+           "parameters": out.entrants[e]["parameters"], "place": int(out.ranks[e]),
+           "profit_per_period": _estimate(out.estimates["profit"][e]),
+           "discounted_profit": _estimate(out.estimates["discounted_profit"][e]),
+           "profit_gain": _estimate(out.estimates["profit_gain"][e]),
+           "static_nash_profit_of_seats": float(out.seat_profits[e][0]),
+           "collusive_profit_of_seats": float(out.seat_profits[e][1]),
+           "population_share_after_replicator": float(evo.final[e]),
+           "time_prevailing_with_rare_mutations": float(evo.stationary[e]),
+           "resists_invasion": bool(evo.resists[e]), "neutral_against_some_rule": bool(evo.neutral[e]),
+           "resists_invasion_in_finite_population": bool(evo.resists_finite[e]),
+           "invaded_by": list(evo.invaded_by[e]), "not_resisted_in_finite_population": list(evo.finite_invaders[e])}
+    if st:
+        per = st["per_entrant"]
+        doc["resampled"] = {"place_held_share": per["rank_share"][e], "first_place_share": per["top_share"][e],
+                            "place_range": [per["rank_low"][e], per["rank_high"][e]],
+                            "score_range": [per["score_low"][e], per["score_high"][e]]}
+    return doc
+
+
+def _group_json(out: TournamentOutcome, g: int) -> dict:
+    G = out.groups
+    members = sorted(set(G.members[g]))
+    doc = {"rules": [out.labels[e] for e in G.members[g]], "matches": list(G.matches[g]),
+           "learning": bool(G.learning[g]), "share_of_collusive_profit_kept": _estimate(G.kept[g]),
+           "periods_with_collusion": _estimate(G.colluding[g]),
+           "periods_until_collusion_first_breaks_down": {**_estimate(G.first_breakdown[g]),
+                                                         "lower_bound": bool(G.lower_bound[g])},
+           "collusive_spell_length": _estimate(G.spell_length[g]),
+           "each_rule": {out.labels[e]: {k: {"value": float(G.payoff[k][g][e]), "standard_error":
+                                             float(G.payoff_se[k][g][e])} for k in G.payoff} for e in members}}
+    if out.pairs is not None and len(members) == 2:
+        i, j = members
+        pc = out.pairs
+        doc["difference_first_minus_second"] = {
+            k: {"value": float(pc.difference[k][i][j]), "standard_error": float(pc.difference_se[k][i][j]),
+                "beyond_margin": int(pc.verdict[k][i][j])} for k in pc.difference}
+    return doc
+
+
+def as_json(out: TournamentOutcome) -> dict:
+    """The ``--json`` document of a tournament outcome, in the project's words.
+
+    Parameters
+    ----------
+    out : TournamentOutcome
+
+    Returns
+    -------
+    dict
+    """
+    evo = out.evolution
+    st = out.stability
+    return {
+        "answer": answer(out), "rules_in_file_order": out.labels, "market": out.market, "units": out.units,
+        "agreement": out.benchmarks,
+        "settings": out.settings, "placed_by": out.score,
+        "rules": [_rule_json(out, e) for e in out.order],
+        "order_stability": None if not st else {"resamples": st["resamples"], "whole_order_holds": st["ranking_holds"],
+                                                "placed_above_share": st["above"]},
+        "groups": [_group_json(out, g) for g in range(len(out.groups.members))],
+        "against_one_rule": {k: np.asarray(v).tolist() for k, v in out.versus.items()},
+        "matches": out.matches,
+        "evolution": {
+            "settings": evo.settings,
+            "replicator": {"generation": evo.generation, "shares": evo.shares.tolist(),
+                           "mean_payoff": evo.mean_payoff.tolist(), "final": evo.final.tolist(),
+                           "last_change": evo.last_change},
+            "invasion": {"population": evo.population, "takeover_probability": evo.fixation.tolist(),
+                         "simulated": None if evo.simulated is None else evo.simulated.tolist(), "runs": evo.runs,
+                         "simulation_check": evo.check},
+            "time_prevailing_with_rare_mutations": evo.stationary.tolist(), "pairs": evo.pairs},
+        "caution": CAUTION,
+    }
 
 
 # --------------------------------------------------------------------------------------------------
@@ -198,334 +203,162 @@ def _z(confidence: float) -> float:
 # --------------------------------------------------------------------------------------------------
 
 
-def tournament_figures(result, directory, evolution=None, key: str = "--plot") -> list[Path]:
-    """Write ``score_heatmap.png``, ``ranking.png`` and, with the evolutionary analysis,
-    ``replicator.png`` and ``fixation.png``; returns the paths."""
-    d = output_dir(directory, key)
-    plt = _pyplot()
-    score = result.score
-
-    name = SCORE_NAMES[score]
-    files = []
-    beats = result.pairwise[score]["beats"] if result.pairwise is not None else None
-    figs = [("score_heatmap", heatmap_figure(result.versus[score], result.labels, name, result.plan.seats, beats))]
-    st = result.stability
-    order = result.order
-    est = [result.scores[score][e] for e in order]
-    figs.append(("ranking", ranking_figure(
-        [result.labels[e] for e in order], [int(result.ranks[e]) for e in order], [x.value for x in est],
-        [x.low for x in est], [x.high for x in est], name, result.plan.settings["confidence"],
-        rank_share=[st["per_entrant"]["rank_share"][e] for e in order] if st else None,
-        ranking_holds=st["ranking_holds"] if st else None, resamples=st["resamples"] if st else None)))
-    if evolution is not None:
-        s = evolution.settings
-        rp = evolution.replicator
-        figs.append(("replicator", replicator_figure(np.arange(rp.shares.shape[0]), rp.shares, result.labels, name,
-                                                     s["fitness"], s["selection"])))
-        figs.append(("fixation", fixation_figure(evolution.fixation * s["population"], result.labels,
-                                                 s["population"])))
-    for stem, fig in figs:
-        files.append(d / f"{stem}.png")
-        fig.savefig(files[-1], dpi=120)
-        plt.close(fig)
-    return files
+def _score_words(out: TournamentOutcome) -> str:
+    if out.score == "profit_gain":
+        return "profit gain (0 at the static Nash profit, 1 at the collusive profit of its seats)"
+    what = "discounted profit" if out.score == "discounted_profit" else f"profit per {out.units['period']}"
+    return f"{what} ({out.units['currency']})"
 
 
-def heatmap_figure(V, labels, name: str, seats: int, beats=None):
-    """The score heatmap: ``V[i, j]``, the row entrant's payoff when every rival is the column entrant;
-    ``beats`` (two seats) frames the matches the row entrant wins. Returns the matplotlib figure."""
-    plt = _pyplot()
-    V = np.asarray(V, dtype=float)
-    E = len(labels)
-    size = max(4.0, 0.55 * E + 2.0)
-    fig, ax = plt.subplots(figsize=(size + 1.0, size))
-    im = ax.imshow(V, cmap="viridis")
-    ax.set_xticks(range(E), labels, rotation=45, ha="right", fontsize=8)
-    ax.set_yticks(range(E), labels, fontsize=8)
-    if E <= 14:
-        lo, hi = np.nanmin(V), np.nanmax(V)
-        mid = 0.5 * (lo + hi)
-        for i in range(E):
-            for j in range(E):
-                ax.text(j, i, f"{V[i, j]:.3g}", ha="center", va="center", fontsize=7,
-                        color="white" if V[i, j] < mid else "black")
-        if beats is not None:
-            B = np.asarray(beats)
-            for i in range(E):
-                for j in range(E):
-                    if B[i, j] > 0:
-                        ax.add_patch(plt.Rectangle((j - 0.5, i - 0.5), 1, 1, fill=False, ec="C3", lw=1.5))
-    ax.set_xlabel("rivals (every rival plays this entrant)" if seats > 2 else "opponent")
-    ax.set_ylabel("entrant")
-    title = f"{name.capitalize()} of the row entrant"
-    if beats is not None:
-        title += "\n(red frame: beats the opponent in their match)"
-    ax.set_title(title, fontsize=10)
-    fig.colorbar(im, ax=ax, shrink=0.8, label=name)
-    fig.tight_layout()
-    return fig
+def figures(out: TournamentOutcome) -> list[Drawn]:
+    """The figures of a tournament outcome (see :mod:`sim.evidence.tournament_figures`).
 
+    Parameters
+    ----------
+    out : TournamentOutcome
 
-def ranking_figure(labels, ranks, values, lows, highs, name: str, confidence: float, rank_share=None,
-                   ranking_holds=None, resamples=None):
-    """The ranking with intervals, entrants from first (top) to last, each with its rank and, with the
-    bootstrap, the share of resamples in which it keeps it. Returns the matplotlib figure."""
-    plt = _pyplot()
-    E = len(labels)
-    fig, ax = plt.subplots(figsize=(7, max(3.0, 0.4 * E + 1.2)))
-    y = np.arange(E)[::-1]
-    vals = np.asarray(values, dtype=float)
-    lo = np.asarray(lows, dtype=float)
-    hi = np.asarray(highs, dtype=float)
-    ax.errorbar(vals, y, xerr=[np.nan_to_num(vals - lo), np.nan_to_num(hi - vals)], fmt="o", color="C0", capsize=3,
-                label=f"{100 * confidence:g}% interval")
-    ticks = []
-    for k in range(E):
-        t = f"{int(ranks[k])}. {labels[k]}"
-        if rank_share is not None:
-            t += f"  ({100 * rank_share[k]:.0f}% keep rank)"
-        ticks.append(t)
-    ax.set_yticks(y, ticks, fontsize=8)
-    ax.set_xlabel(name)
-    ttl = f"Ranking by {name}"
-    if ranking_holds is not None:
-        ttl += f"; whole ranking holds in {100 * ranking_holds:.0f}% of {int(resamples)} resamples"
-    ax.set_title(ttl, fontsize=9)
-    ax.grid(axis="x", alpha=0.3)
-    fig.tight_layout()
-    return fig
-
-
-def replicator_figure(generation, shares, labels, name: str, fitness: str, selection: float):
-    """Population shares over generations (``shares`` of shape (points, E)). Returns the matplotlib figure."""
-    plt = _pyplot()
-    shares = np.asarray(shares, dtype=float)
-    fig, ax = plt.subplots(figsize=(8, 4))
-    for e in range(len(labels)):
-        ax.plot(generation, shares[:, e], lw=1.2, label=labels[e], color=f"C{e % 10}", ls="-" if e < 10 else "--")
-    ax.set_ylim(-0.02, 1.02)
-    ax.set_xlabel("generation")
-    ax.set_ylabel("population share")
-    fmap = "1 - w + w payoff" if fitness == "linear" else "exp(w payoff)"
-    ax.set_title(f"Replicator dynamics on the {name} (fitness {fmap}, w = {selection:g})", fontsize=9)
-    ax.legend(fontsize=7, ncol=2 if len(labels) > 6 else 1, loc="best")
-    fig.tight_layout()
-    return fig
-
-
-def fixation_figure(times_n, labels, N: int):
-    """``N`` times the Moran fixation probability of each invader (row) against each resident (column),
-    on a log scale centred on neutral drift. Returns the matplotlib figure."""
-    plt = _pyplot()
-    from matplotlib.colors import TwoSlopeNorm
-
-    R = np.asarray(times_n, dtype=float)
-    E = len(labels)
-    size = max(4.0, 0.55 * E + 2.0)
-    with np.errstate(divide="ignore"):
-        L = np.log10(np.where(np.isnan(R), 1.0, np.maximum(R, 1e-300)))
-    L = np.clip(L, -3, 3)
-    fig, ax = plt.subplots(figsize=(size + 1.0, size))
-    vmax = max(0.5, float(np.abs(L).max()))
-    im = ax.imshow(np.where(np.isnan(R), np.nan, L), cmap="RdBu_r", norm=TwoSlopeNorm(0.0, -vmax, vmax))
-    ax.set_xticks(range(E), labels, rotation=45, ha="right", fontsize=8)
-    ax.set_yticks(range(E), labels, fontsize=8)
-    if E <= 14:
-        for i in range(E):
-            for j in range(E):
-                if i != j:
-                    ax.text(j, i, f"{R[i, j]:.2g}", ha="center", va="center", fontsize=7,
-                            color="white" if abs(L[i, j]) > 0.6 * vmax else "black")
-    ax.set_xlabel("resident")
-    ax.set_ylabel("invader")
-    ax.set_title(f"Moran process, N = {N}: N x fixation probability\n(> 1: selection favours the invader)",
-                 fontsize=9)
-    fig.colorbar(im, ax=ax, shrink=0.8, label="log10(N x fixation probability)")
-    fig.tight_layout()
-    return fig
+    Returns
+    -------
+    list of Drawn
+    """
+    gens = int(out.evolution.settings["generations"])
+    N = out.evolution.population
+    what = "pair" if out.n_seats == 2 else "group (one firm's rule against rivals who all follow another)"
+    period = out.units["period"]
+    return [
+        Drawn("rules", F.rules_figure(out),
+              f"Left: each rule's {_score_words(out)} against rivals drawn at random from the rules, with its "
+              f"{confidence_words(out)} interval (simulation error only). Right: its share of the population after "
+              f"{gens:,} generations of the replicator dynamics. A rule can do well on average and still lose "
+              "ground to a rule that does better against it."),
+        Drawn("pairs", F.pairs_figure(out),
+              f"Share of the collusive profit each {what} keeps together, (joint profit - joint static Nash "
+              "profit) / (joint collusive profit - joint static Nash profit): 1 is the agreement, 0 the static Nash "
+              "profit, below 0 the firms earn less than at Nash (punishments below the Nash profit)."),
+        Drawn("collusion-duration", F.duration_figure(out),
+              f"How long collusion lasts within each {what}: the mean number of {period}s until collusion first "
+              f"breaks down (Kaplan-Meier, over the horizon of {out.horizon:,} {period}s); n/a where a learning "
+              "firm plays (scored on its converged play)."),
+        Drawn("replicator", F.replicator_figure(out),
+              f"Share of the population following each rule over generations of the replicator dynamics "
+              f"({fitness_words(out)}): the rules whose share grows spread among firms that imitate successful "
+              "rules."),
+        Drawn("invasion", F.invasion_figure(out),
+              f"Invasion among {N} firms (Moran process): {N} × the probability that one firm following the row rule "
+              "takes over a population following the column rule. Above 1 (orange) selection favours the invader, "
+              "below 1 (purple) the population resists it."),
+    ]
 
 
 # --------------------------------------------------------------------------------------------------
-# Evidence bundle of a run folder (the experiment kind's ``report`` hook)
+# The evidence bundle of a run folder
 # --------------------------------------------------------------------------------------------------
 
 
-def _pct(x) -> str:
-    return "-" if x is None or not math.isfinite(float(x)) else f"{100 * float(x):.0f}%"
+def bundle(run, b) -> list | None:
+    """The tournament's account of a finished run folder in its evidence bundle, read from the stored cells: the
+    answer, the setup, the tables and figures of the outcome (the figures of ``supergame tournament --plot``); a
+    sweep gets every cell's outcome and, over one numeric parameter, each rule's profit gain along it.
 
+    Parameters
+    ----------
+    run : sim.runner.runs.RunFolder
+    b : sim.evidence.bundle.Bundle
 
-def _interval(m: dict, name: str) -> str:
-
-    lo, hi = m.get(f"{name}.low", math.nan), m.get(f"{name}.high", math.nan)
-    if not (math.isfinite(lo) and math.isfinite(hi)):
-        return "-"
-    return f"[{fmt_num(lo)}, {fmt_num(hi)}]"
-
-
-def _cell_settings(doc: dict) -> dict:
-    """What a cell's document says about its tournament (the defaults of :mod:`sim.tournament.roundrobin` where it is
-    silent): the entrants' labels and metric names, the score, the confidence level and the evolutionary
-    settings."""
-
-    tour = doc.get("tournament", {})
-    labels = [str(e.get("label")) for e in doc.get("entrants", []) if isinstance(e, dict)]
-    out = {**TOURNAMENT_DEFAULTS, **EVOLUTION_DEFAULTS, **{k: v for k, v in tour.items()}}
-    out.update(labels=labels, names=metric_label(labels), score_name=SCORE_NAMES[out["score"]])
-    return out
-
-
-def kind_report(rf, b) -> None:
-    """The tournament's account of a finished run in its evidence bundle (:attr:`sim.runner.kinds.Kind.report`):
-    the setup, and per cell the ranking with its intervals and stability, who beats whom, the evolutionary
-    analysis and the four figures of ``supergame tournament --plot``; a sweep gets a table of every cell's
-    outcome and, over one numeric parameter, the scores along it. Everything is read from the stored rows
-    (metrics and arrays); ranks and counts are shown as integers."""
-
-    exp = rf.experiment
-    rows = rf.rows()
+    Returns
+    -------
+    None
+        Nothing is added to "Reproducing these numbers".
+    """
+    exp = run.experiment
+    ok = [r for r in run.rows() if r.status == "ok"]
     desc = exp.description or leading_comment(exp.text or "")
     if desc:
         b.heading("What the experiment asks")
         for para in desc.split("\n\n"):
             b.paragraph(" ".join(para.split()))
-    b.heading("Setup")
-    b.bullets(describe_tournament(exp.doc))
-    ok = [r for r in rows if r.status == "ok"]
-    if not exp.parameters:
-        b.heading("Results")
-        if ok:
-            _cell_account(b, _cell_settings(exp.doc), ok[0])
-        else:
-            b.paragraph("The cell failed: no results to report (see the failed cells below).", note=True)
-        return
-    b.paragraph("These are the file's settings; the values of " + ", ".join(f"`{p.path}`" for p in exp.parameters)
-                + " are those of the sweep below.", note=True)
-    b.heading("Sweep")
-    b.table("sweep", ["parameter", "values", "number"],
-            [[p.path, ", ".join(p.labels), len(p)] for p in exp.parameters], caption="Swept parameters")
-    b.heading("Results")
-    _sweep_account(b, exp, ok)
-
-
-def _cell_account(b, cs: dict, row) -> None:
-
-    m, a = row.metrics, row.arrays
-    labels, names = cs["labels"], cs["names"]
-    E, seats = int(m["entrants"]), int(m["seats"])
-    sname = cs["score_name"]
-    pct = f"{100 * cs['confidence']:g}%"
-    b.paragraph(f"{E} entrants over {seats} seats, {int(m['matches'])} matches (every group of entrants, "
-                f"self-play included); ranked by {sname}.")
-    order = sorted(range(E), key=lambda e: (m[f"rank.{names[e]}"], e))
-    boot = math.isfinite(m.get("ranking_holds", math.nan))
-
-    others = [k for k in _METRICS if k != cs["score"]]
-    head = ["rank", "entrant", sname, f"{pct} CI", *(SCORE_NAMES[k] for k in others)]
-    if boot:
-        head += ["keeps rank", "first in"]
-    if seats == 2:
-        head += ["wins", "losses"]
-    body = []
-    for e in order:
-        n = names[e]
-        r = [int(m[f"rank.{n}"]), labels[e], m[f"score.{n}"], _interval(m, f"score.{n}"),
-             *(m[f"{k}.{n}"] for k in others)]
-        if boot:
-            r += [_pct(m[f"rank_share.{n}"]), _pct(m[f"top_share.{n}"])]
-        if seats == 2:
-            r += [int(m[f"wins.{n}"]), int(m[f"losses.{n}"])]
-        body.append(r)
-    note = "scores are expected payoffs against rivals drawn uniformly from the entrants"
-    if boot:
-        note += (f"; the whole ranking holds in {_pct(m['ranking_holds'])} of {int(cs['bootstrap'])} bootstrap "
-                 "resamples of the replications")
-    if seats == 2:
-        note += (f"; wins and losses count the matches in which the entrant earns more (less) than its opponent "
-                 f"beyond the {pct} margin of the paired difference")
-    b.table("ranking", head, body, caption=f"Ranking by {sname}", note=note)
-
-    if "versus" in a:
-        cap = (f"{sname.capitalize()} of the row entrant " + ("against the column entrant (self-play on the diagonal)"
-               + ("; red frame: beats the opponent in their match" if "beats" in a else "") if seats == 2
-               else "when every rival plays the column entrant") + ".")
-        b.figure("score-heatmap", heatmap_figure(a["versus"], labels, sname, seats, a.get("beats")), cap)
-    b.figure("ranking", ranking_figure(
-        [labels[e] for e in order], [int(m[f"rank.{names[e]}"]) for e in order],
-        [m[f"score.{names[e]}"] for e in order], [m.get(f"score.{names[e]}.low", math.nan) for e in order],
-        [m.get(f"score.{names[e]}.high", math.nan) for e in order], sname, cs["confidence"],
-        rank_share=[m[f"rank_share.{names[e]}"] for e in order] if boot else None,
-        ranking_holds=m["ranking_holds"] if boot else None, resamples=cs["bootstrap"] if boot else None),
-        f"Ranking by {sname} with {pct} confidence intervals (simulation error only)"
-        + ("; in brackets the share of bootstrap resamples in which each entrant keeps its rank." if boot else "."))
-
-    N = int(cs["population"])
-    b.heading("Evolutionary dynamics", level=3)
-    fmap = "1 - w + w x payoff" if cs["fitness"] == "linear" else "exp(w x payoff)"
-    body = [[labels[e], m[f"share.{names[e]}"], m[f"rare_mutation_share.{names[e]}"],
-             "yes" if m[f"ess.{names[e]}"] else "no", "yes" if m[f"ess_n.{names[e]}"] else "no"] for e in range(E)]
-    b.table("evolution", ["entrant", f"share after {int(cs['generations'])} generations", "rare-mutation share",
-                          "ESS", f"ESS_N (N = {N})"], body,
-            caption=f"Evolutionary dynamics on the {sname} (fitness {fmap}, w = {fmt_num(float(cs['selection']))})",
-            note="replicator dynamics from the initial shares; rare-mutation share: time spent as the resident type "
-                 "when mutants arise rarely (Fudenberg and Imhof, 2006); ESS: resists a small share of every other "
-                 "entrant in a large population; ESS_N: a single invader is less fit and fixes with probability "
-                 "below 1/N (Nowak et al., 2004)")
-    if "replicator.shares" in a:
-        b.figure("replicator", replicator_figure(np.asarray(a["replicator.generation"]), a["replicator.shares"], labels,
-                                                 sname, cs["fitness"], float(cs["selection"])),
-                 "Population shares under the discrete replicator dynamics.")
-    if "fixation" in a:
-        b.figure("fixation", fixation_figure(np.asarray(a["fixation"], dtype=float) * N, labels, N),
-                 f"Moran process, N = {N}: N times the probability that one invader (row) takes over a population of "
-                 "the resident (column); above 1, selection favours the invader.")
-    gap = m.get("moran.max_standard_errors", math.nan)
-    if math.isfinite(gap):
-        b.paragraph(f"The simulated invasions ({int(cs['moran_runs'])} per pair) lie within {fmt_num(gap, 3)} binomial "
-                    "standard errors of the fixation formula at the worst pair.", note=True)
-
-
-def _sweep_account(b, exp, ok) -> None:
-
+    if exp.parameters:
+        sweep_account(run, b, ok)
+        return None
     if not ok:
-        b.paragraph("No cell finished: no results to report (see the failed cells below).", note=True)
-        return
-    body = []
-    for r in ok:
-        cs = _cell_settings(exp.cell(r.cell).doc)
-        m, labels, names = r.metrics, cs["labels"], cs["names"]
-        first = [labels[e] for e in range(len(labels)) if m[f"rank.{names[e]}"] == 1]
-        top = max(range(len(labels)), key=lambda e: m[f"share.{names[e]}"])
-        ess_n = [labels[e] for e in range(len(labels)) if m[f"ess_n.{names[e]}"]]
-        body.append([r.number, *[r.labels[p.path] for p in exp.parameters], ", ".join(first),
-                     m[f"score.{names[labels.index(first[0])]}"], _pct(m["ranking_holds"]),
-                     f"{labels[top]} ({fmt_num(m[f'share.{names[top]}'])})", ", ".join(ess_n) or "-"])
-    cs0 = _cell_settings(exp.cell(ok[0].cell).doc)
-    b.table("cells", ["cell", *[p.path for p in exp.parameters], "first", cs0["score_name"], "ranking holds",
-                      "largest share after the replicator dynamics", "ESS_N"], body,
-            caption="Outcome of every finished cell",
-            note="first: the entrant(s) ranked first by the cell's score; ranking holds: share of bootstrap resamples "
-                 "that keep the whole ranking")
-    numeric = [p for p in exp.parameters if p.numeric]
-    if len(exp.parameters) != 1 or not numeric:
-        return
-    p = numeric[0]
-    plt = _pyplot()
-    fig, ax = plt.subplots(figsize=(7.5, 4))
-    labels, names = cs0["labels"], cs0["names"]
-    xs = np.array([float(r.params[p.path]) for r in ok])
-    srt = np.argsort(xs)
-    for e in range(len(labels)):
-        v = np.array([r.metrics[f"score.{names[e]}"] for r in ok])[srt]
-        lo = np.array([r.metrics.get(f"score.{names[e]}.low", math.nan) for r in ok])[srt]
-        hi = np.array([r.metrics.get(f"score.{names[e]}.high", math.nan) for r in ok])[srt]
-        ax.plot(xs[srt], v, marker="o", ms=3, lw=1.2, color=f"C{e % 10}", label=labels[e])
-        ax.fill_between(xs[srt], lo, hi, color=f"C{e % 10}", alpha=0.15, lw=0)
-    if p.log:
-        ax.set_xscale("log")
-    ax.set_xlabel(p.path)
-    ax.set_ylabel(cs0["score_name"])
-    ax.grid(alpha=0.3)
-    ax.legend(fontsize=7, ncol=2 if len(labels) > 6 else 1)
-    fig.tight_layout()
-    b.figure("scores-over-sweep", fig, f"Each entrant's {cs0['score_name']} against {p.path}; band: "
-                                      f"{100 * cs0['confidence']:g} % confidence interval (simulation error only).")
+        b.heading("Setup")
+        b.bullets(describe_setup(exp.doc))
+        b.heading("Results")
+        b.paragraph("The cell failed: no results to report (see the failed cells below).", note=True)
+        return None
+    _cell_account(b, run.result(ok[0].cell))
+    return None
+
+
+def _cell_account(b, out: TournamentOutcome) -> None:
+    b.heading("Answer")
+    b.paragraph(answer(out))
+    b.heading("Setup")
+    b.bullets(setup_lines(out))
+    drawn = {d.name: d for d in figures(out)}
+    b.heading("Profit gain of each rule")
+    h, rows, csv = rules_table(out)
+    note = (f"profits in {profit_unit(out)}; profit gain: 0 at the static Nash profit, 1 at the collusive profit of "
+            "the rule's seats; intervals measure simulation error only")
+    if out.stability:
+        note += (f"; place held: share of {out.stability['resamples']:,} bootstrap resamples in which the rule keeps "
+                 f"its place (the whole order holds in {percent(out.stability['ranking_holds'])})")
+    b.table("rules", h, rows, caption="Profit gain of each rule against rivals drawn at random from the rules",
+            note=note, csv_rows=csv)
+    _figure(b, drawn["rules"])
+    b.heading("Collusion within each pair of rules" if out.n_seats == 2 else "Collusion within each group of rules")
+    h, rows, csv = pairs_table(out)
+    b.table("pairs", h, rows, caption="Share of the collusive profit kept and how long collusion lasts",
+            note="every seating averaged; Kaplan-Meier means over the horizon, 'at least' where collusion outlived it",
+            csv_rows=csv, max_rows=60)
+    _figure(b, drawn["pairs"])
+    _figure(b, drawn["collusion-duration"])
+    b.heading("Which rules spread")
+    h, rows = spread_table(out)
+    b.table("spread", h, rows, caption=f"Evolutionary dynamics on the tournament's payoffs ({fitness_words(out)})",
+            note="time prevailing: Fudenberg and Imhof (2006); resists invasion: Maynard Smith and Price (1973) in a "
+                 "large population, Nowak et al. (2004) among a finite number of firms")
+    _figure(b, drawn["replicator"])
+    _figure(b, drawn["invasion"])
+    ck = out.evolution.check
+    if ck.get("max_standard_errors") is not None:
+        b.paragraph(f"The simulated invasions ({out.evolution.runs:,} per pair) lie within "
+                    f"{fmt_num(ck['max_standard_errors'], 3)} binomial standard errors of the formula at the worst "
+                    "pair.", note=True)
+    _data_tables(b, out)
+
+
+def _figure(b, d: Drawn) -> None:
+    b.figure(d.name, d.figure, d.caption)
+
+
+def _data_tables(b, out: TournamentOutcome) -> None:
+    """Tables kept as files only: every match and seat, the replicator path, invasion, the resampled order."""
+    rows = []
+    for m in out.matches:
+        st = m["stream"]
+        stream = " ".join(map(str, st["key"])) if "key" in st else f"cell {st['cell']}"
+        for s, lab in enumerate(m["seats"]):
+            rows.append([m["match"], m["group"], m["kind"], s + 1, lab, m["replications"],
+                         *(m[k][s]["value"] for k in ("profit", "discounted_profit", "profit_gain")),
+                         (m.get("collusive_share") or {}).get("value"), (m.get("first_breakdown") or {}).get("value"),
+                         m.get("converged"), st["seed"], stream])
+    b.table("matches", ["match", "group", "played as", "seat", "rule", "replications", "profit", "discounted profit",
+                        "profit gain", "share of periods with collusion", "periods until collusion first breaks down",
+                        "converged sessions", "seed", "stream"], rows, show=False)
+    evo = out.evolution
+    b.table("replicator-path", ["generation", *out.labels],
+            [[g, *np.asarray(evo.shares)[k].tolist()] for k, g in enumerate(evo.generation)], show=False)
+    N = evo.population
+    E = len(out.labels)
+    sim = evo.simulated
+    b.table("invasion", ["invading rule", "population rule", "takeover probability", f"{N} x takeover probability",
+                         "simulated takeover share"],
+            [[out.labels[i], out.labels[j], evo.fixation[i][j], evo.fixation[i][j] * N,
+              None if sim is None else sim[i][j]] for i in range(E) for j in range(E) if i != j], show=False)
+    if out.stability:
+        A = out.stability["above"]
+        b.table("placed-above", ["rule", *out.labels], [[out.labels[i], *A[i]] for i in range(E)], show=False)
+
+
+RENDERER = Renderer(console=console, as_json=as_json, figures=figures, bundle=bundle)

@@ -1,5 +1,6 @@
-"""``supergame tournament`` end to end: text, JSON, tables and figures from an experiment file; the shipped
-experiment; the experiment kind; bad input refused with one line and exit status 2, before any output."""
+"""``supergame tournament`` end to end: the answer and the tables in the market's terms, JSON, figures and a run
+folder with its bundle; one pipeline (the command prints and plots what a run folder stores); the shipped experiment;
+the experiment kind; bad input refused with one line and exit status 2, before any output."""
 
 import csv
 import json
@@ -9,7 +10,10 @@ import numpy as np
 import pytest
 
 from sim.cli import main
+from sim.core.jsonutil import dumps
 from sim.core.text import CAUTION
+from sim.evidence.render import renderer_for
+from sim.runner.runs import open_run
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -55,6 +59,10 @@ replications = 20
 seed = 5
 """
 
+#: words of generic strategy tournaments and internal keys that a reader must not see
+NOT_FOR_READERS = ("wins", "losses", "beats", "Pairwise", "ranking", "ESS", "score", "profit_gain", "rank_share",
+                   "fixation")
+
 
 def write(tmp_path, text=BASE, name="t.toml"):
     p = tmp_path / name
@@ -62,39 +70,74 @@ def write(tmp_path, text=BASE, name="t.toml"):
     return str(p)
 
 
-def test_text_output(tmp_path, capsys):
+def test_text_answers_first_in_the_markets_terms(tmp_path, capsys):
     assert main(["tournament", write(tmp_path)]) == 0
     out = capsys.readouterr().out
-    assert "Ranking by profit gain" in out
-    assert "Who beats whom" in out and "Moran process, N = 10" in out
+    first = out.splitlines()[0]
+    assert "keeps the largest share of the collusive profit" in first and "profit gain" in first
+    assert "Profit gain of each rule against rivals drawn at random from the rules" in out
+    assert "Collusion within each pair of rules" in out and "until collusion first breaks down" in out
+    assert "Which rules spread" in out and "Invasion among 10 firms (Moran process)" in out
+    assert "profits in currency units per period" in out
     for label in ("grim", "nash-2", "compete"):
-        assert label in out
+        assert f"{label} + " in out or f" + {label}" in out
+    for word in NOT_FOR_READERS:
+        assert word not in out, word
     assert out.rstrip().endswith(CAUTION)
 
 
-def test_json_tables_and_figures(tmp_path, capsys):
-    out_dir, plot_dir = tmp_path / "out", tmp_path / "fig"
-    assert main(["tournament", write(tmp_path), "--json", "--out", str(out_dir), "--plot", str(plot_dir)]) == 0
+def test_json_and_figures(tmp_path, capsys):
+    plot_dir = tmp_path / "fig"
+    assert main(["tournament", write(tmp_path), "--json", "--plot", str(plot_dir)]) == 0
     doc = json.loads(capsys.readouterr().out)
-    assert doc["caution"] == CAUTION
-    assert [r["rank"] for r in doc["ranking"]] == sorted(r["rank"] for r in doc["ranking"])
-    assert {r["label"] for r in doc["ranking"]} == {"grim", "nash-2", "compete"}
-    assert len(doc["matches"]) == 6 and doc["evolution"]["fixation"]["runs"] == 200
-    assert doc["pairwise"]["profit_gain"]["beats"][2][0] == 1  # always compete beats grim in their match
-    for name in ("scores", "matches", "groups", "pairwise", "rank_above", "replicator", "fixation", "stability"):
-        assert (out_dir / f"{name}.csv").is_file(), name
-    with open(out_dir / "scores.csv") as f:
-        rows = list(csv.DictReader(f))
-    assert [r["entrant"] for r in rows] == [r["label"] for r in doc["ranking"]]
-    assert float(rows[0]["profit_gain"]) == pytest.approx(doc["ranking"][0]["profit_gain"]["value"])
-    with open(out_dir / "replicator.csv") as f:
-        assert sum(1 for _ in f) == 1 + 101
-    saved = json.loads((out_dir / "tournament.json").read_text())
-    assert saved["ranking"] == doc["ranking"]
-    assert (out_dir / "summary.txt").read_text().rstrip().endswith(CAUTION)
-    for name in ("score_heatmap", "ranking", "replicator", "fixation"):
-        assert (plot_dir / f"{name}.png").stat().st_size > 1000
-    assert sorted(doc["files"]) == sorted(str(p) for p in [*out_dir.iterdir(), *plot_dir.iterdir()])
+    assert doc["caution"] == CAUTION and doc["answer"]
+    places = [r["place"] for r in doc["rules"]]
+    assert places == sorted(places) and {r["label"] for r in doc["rules"]} == {"grim", "nash-2", "compete"}
+    assert len(doc["matches"]) == 6 and doc["evolution"]["invasion"]["runs"] == 200
+    assert len(doc["groups"]) == 6 and all(len(g["rules"]) == 2 for g in doc["groups"])
+    # always compete earns more than grim trigger in their match, beyond the margin
+    pair = next(g for g in doc["groups"] if g["rules"] == ["grim", "compete"])
+    assert pair["difference_first_minus_second"]["profit_gain"]["beyond_margin"] == -1
+    for key in ("wins", "losses", "beats", "pairwise", "ranking"):
+        assert key not in json.dumps(doc), key
+    names = sorted(p.name for p in plot_dir.iterdir())
+    assert names == sorted(f"{n}.png" for n in ("rules", "pairs", "collusion-duration", "replicator", "invasion"))
+    assert sorted(doc["files"]) == sorted(str(p) for p in plot_dir.iterdir())
+
+
+def test_command_prints_and_plots_what_the_run_folder_stores(tmp_path, capsys):
+    # one pipeline: `supergame tournament` prints the renderer's text of the result `supergame run` stores for the
+    # cell, and its figures are the bundle's, byte for byte
+    path = write(tmp_path)
+    assert main(["tournament", path, "--plot", str(tmp_path / "plots")]) == 0
+    printed = capsys.readouterr().out
+    folder = tmp_path / "run"
+    assert main(["run", path, "--out", str(folder), "--workers", "1", "--quiet", "--report"]) == 0
+    capsys.readouterr()
+    with open_run(folder) as rf:
+        stored = renderer_for("tournament").console(rf.result(0))
+    assert printed.startswith(stored + "\n\nFigures: ")
+    for png in (tmp_path / "plots").iterdir():
+        assert png.read_bytes() == (folder / "report" / "figures" / png.name).read_bytes(), png.name
+    # and its JSON is the renderer's JSON of the stored result
+    assert main(["tournament", path, "--json"]) == 0
+    with open_run(folder) as rf:
+        stored = json.loads(dumps(renderer_for("tournament").as_json(rf.result(0))))
+    assert json.loads(capsys.readouterr().out) == stored
+
+
+def test_out_is_a_run_folder_with_its_bundle(tmp_path, capsys):
+    folder = tmp_path / "out"
+    assert main(["tournament", write(tmp_path), "--out", str(folder)]) == 0
+    out = capsys.readouterr().out
+    assert out.splitlines()[0].startswith("grim (grim trigger) keeps the largest share")
+    assert f"Run folder: {folder}" in out and "Evidence bundle:" in out
+    for name in ("results.csv", "arrays.json", "results.sqlite", "manifest.json", "experiment.toml",
+                 "report/summary.html", "report/tables/rules.csv", "report/tables/pairs.csv",
+                 "report/tables/spread.csv", "report/tables/matches.csv", "report/figures/rules.png"):
+        assert (folder / name).is_file(), name
+    assert main(["verify", str(folder)]) == 0
+    capsys.readouterr()
 
 
 def test_same_numbers_again_and_with_other_threads(tmp_path, capsys):
@@ -103,13 +146,38 @@ def test_same_numbers_again_and_with_other_threads(tmp_path, capsys):
     a = json.loads(capsys.readouterr().out)
     assert main(["tournament", path, "--json", "--threads", "2"]) == 0
     b = json.loads(capsys.readouterr().out)
-    for k in ("ranking", "matches", "rank_stability", "evolution"):
+    for k in ("rules", "groups", "matches", "order_stability", "evolution"):
         assert a[k] == b[k]
+
+
+def test_same_numbers_as_the_results_table(tmp_path, capsys):
+    # the stored metrics of results.csv keep their names: the place, the score and the evolutionary outcome of
+    # each rule are those the command prints
+    path = write(tmp_path)
+    assert main(["tournament", path, "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    folder = tmp_path / "run"
+    assert main(["run", path, "--out", str(folder), "--workers", "1", "--quiet"]) == 0
+    capsys.readouterr()
+    with open(folder / "results.csv") as f:
+        row = next(csv.DictReader(f))
+    assert row["status"] == "ok"
+    for r in doc["rules"]:
+        lab = r["label"]
+        assert float(row[f"rank.{lab}"]) == r["place"]
+        assert float(row[f"profit_gain.{lab}"]) == r["profit_gain"]["value"]
+        assert float(row[f"profit.{lab}"]) == r["profit_per_period"]["value"]
+        assert float(row[f"discounted_profit.{lab}"]) == r["discounted_profit"]["value"]
+        assert float(row[f"rank_share.{lab}"]) == r["resampled"]["place_held_share"]
+        assert float(row[f"share.{lab}"]) == r["population_share_after_replicator"]
+        assert float(row[f"ess.{lab}"]) == float(r["resists_invasion"])
+    ck = doc["evolution"]["invasion"]["simulation_check"]
+    assert float(row["moran.max_standard_errors"]) == ck["max_standard_errors"]
 
 
 def test_shipped_experiment_is_valid(capsys):
     from sim.core.tomlfile import read_toml
-    from sim.tournament.roundrobin import check_experiment, tournament_from_dict
+    from sim.tournament.experiment import check_experiment, tournament_from_dict
 
     path = ROOT / "experiments" / "tournament-punishments.toml"
     text = path.read_text()
@@ -129,6 +197,7 @@ def test_experiment_kind_reports_its_metrics(tmp_path):
     res = kind.run(cfg, CellContext(index=3, threads=1))
     assert list(res.metrics) == list(kind.metric_names(cfg))
     assert res.metrics["rank.compete"] in (1.0, 2.0, 3.0) and 0 <= res.metrics["ranking_holds"] <= 1
+    assert isinstance(res.result, kind.result_type)
     again = kind.run(kind.prepare(read_toml(write(tmp_path))), CellContext(index=3, threads=2))
     assert again.metrics == res.metrics
     other = kind.run(cfg, CellContext(index=4, threads=1))
@@ -181,7 +250,7 @@ BAD = {
                                    "entrants[2].lenght: unknown parameter of finite_punishment"),
     "missing label": (_replace('label = "nash-2"\n', ""), "entrants[2].label: missing"),
     "paths": (_replace("seed = 5", "seed = 5\npaths = 1"), "run.paths: unknown key (full paths are not recorded"),
-    "unknown table": (BASE + "\n[strategies]\nx = 1\n", "strategies: unknown table for a tournament"),
+    "unknown table": (BASE + "\n[strategies]\nx = 1\n", "strategies: unknown table for kind 'tournament'"),
     "bad value": (_replace("replications = 20", "replications = -1"), "run.replications: must be an integer"),
     "population below seats": (_replace("population = 10", "population = 1"), "tournament.population:"),
     # the lowest profit gain the entrants' actions allow: the collusive quantity 22.5 against the deviation
@@ -205,18 +274,20 @@ BAD = {
 }
 
 
+@pytest.mark.parametrize("out_flag", [False, True], ids=["in memory", "run folder"])
 @pytest.mark.parametrize("case", list(BAD))
-def test_bad_input_one_line_status_2_no_output(tmp_path, capsys, case):
+def test_bad_input_one_line_status_2_no_output(tmp_path, capsys, case, out_flag):
     text, start = BAD[case]
-    out_dir = tmp_path / "out"
-    code = main(["tournament", write(tmp_path, text), "--out", str(out_dir), "--plot", str(out_dir)])
+    out_dir, plot_dir = tmp_path / "out", tmp_path / "plots"
+    flags = ["--plot", str(plot_dir)] + (["--out", str(out_dir)] if out_flag else [])
+    code = main(["tournament", write(tmp_path, text), *flags])
     cap = capsys.readouterr()
     assert code == 2
     assert cap.out == ""
     lines = cap.err.strip().splitlines()
     assert len(lines) == 1 and "Traceback" not in cap.err
     assert lines[0].startswith(f"supergame tournament: error: {start}"), lines[0]
-    assert not out_dir.exists()
+    assert not out_dir.exists() and not plot_dir.exists()
 
 
 def test_bad_flags(tmp_path, capsys):
@@ -227,6 +298,8 @@ def test_bad_flags(tmp_path, capsys):
     f.write_text("x")
     assert main(["tournament", path, "--out", str(f)]) == 2
     assert capsys.readouterr().err.startswith("supergame tournament: error: --out:")
+    assert main(["tournament", path, "--plot", str(f)]) == 2
+    assert capsys.readouterr().err.startswith("supergame tournament: error: --plot:")
     assert main(["tournament", str(tmp_path / "missing.toml")]) == 2
     assert "no such file" in capsys.readouterr().err
 
@@ -248,16 +321,21 @@ def test_learning_entrant_from_a_file(tmp_path, capsys):
     doc = json.loads(capsys.readouterr().out)
     kinds = {tuple(m["seats"]): m["kind"] for m in doc["matches"]}
     assert kinds[("q", "q")] == "learning sessions" and kinds[("grim", "compete")] == "automata"
-    learner = next(e for e in doc["settings"]["entrants"] if e["label"] == "q")
-    assert learner["strategy"] == "qlearning" and learner["m"] == 5 and learner["beta"] == 2e-3
+    learner = next(r for r in doc["rules"] if r["label"] == "q")
+    assert learner["rule"] == "qlearning" and learner["parameters"]["m"] == 5 and learner["parameters"]["beta"] == 2e-3
     q_match = next(m for m in doc["matches"] if m["seats"] == ["q", "q"])
     assert q_match["replications"] == 6 and 0 <= q_match["converged"] <= 1
+    # a learning pair is scored on its converged play: no record of collusive periods
+    q_pair = next(g for g in doc["groups"] if g["rules"] == ["q", "q"])
+    assert q_pair["learning"] and q_pair["periods_with_collusion"]["value"] is None
+    assert q_pair["share_of_collusive_profit_kept"]["value"] is not None
 
 
 def test_progress_bar_on_request(capsys):
     import strategies as S
     from sim import LinearDemand, Market
-    from sim.tournament.roundrobin import Entrant, tournament
+    from sim.tournament.entrants import Entrant
+    from sim.tournament.roundrobin import tournament
 
     market = Market(LinearDemand(100.0, 1.0), cost=10.0, n_firms=2)
     ents = [Entrant("a", S.GrimTrigger()), Entrant("b", S.AlwaysCompete())]
@@ -269,13 +347,13 @@ def test_progress_bar_on_request(capsys):
 
 def test_three_seats(tmp_path, capsys):
     text = BASE.replace("n_firms = 2", "n_firms = 3").replace("seats = 2", "seats = 3")
-    out_dir = tmp_path / "out"
-    assert main(["tournament", write(tmp_path, text), "--out", str(out_dir), "--plot", str(out_dir)]) == 0
+    folder = tmp_path / "out"
+    assert main(["tournament", write(tmp_path, text), "--out", str(folder), "--plot", str(tmp_path / "p")]) == 0
     out = capsys.readouterr().out
-    assert "when every rival plays the column entrant" in out and "Who beats whom" not in out
-    assert (out_dir / "versus.csv").is_file() and not (out_dir / "pairwise.csv").exists()
-    doc = json.loads((out_dir / "tournament.json").read_text())
-    assert len(doc["groups"]) == 10 and "pairwise" not in doc  # C(3 + 3 - 1, 3) groups of three
+    assert "Collusion within each group of 3 rules" in out and "grim + grim + nash-2" in out
+    with open(folder / "report" / "tables" / "pairs.csv") as f:
+        assert len(list(csv.DictReader(f))) == 10  # C(3 + 3 - 1, 3) groups of three
+    assert (tmp_path / "p" / "pairs.png").is_file()
 
 
 def test_selection_checked_before_any_match_is_played(tmp_path, capsys, monkeypatch):
@@ -300,7 +378,9 @@ def test_payoff_floor_bounds_every_payoff(tmp_path):
     # collude (22.5) against always compete (30) earns 22.5 * (100 - 52.5 - 10) = 843.75, a profit gain of
     # (843.75 - 900) / 112.5 = -0.5 (textbook linear Cournot numbers)
     from sim.core.tomlfile import read_toml
-    from sim.tournament.roundrobin import check_experiment, payoff_floor, run_tournament, tournament_from_dict
+    from sim.tournament.experiment import check_experiment, tournament_from_dict
+    from sim.tournament.floor import payoff_floor
+    from sim.tournament.roundrobin import run_tournament
 
     text = BASE.replace("[monitoring]\nimplementation_error = 0.02\n", "").replace(
         'label = "nash-2"\nstrategy = "finite_punishment"\nlength = 2',
@@ -322,45 +402,22 @@ def test_payoff_floor_bounds_every_payoff(tmp_path):
 
 
 def test_numbering_from_one(tmp_path, capsys):
-    out_dir = tmp_path / "out"
-    assert main(["tournament", write(tmp_path), "--json", "--out", str(out_dir)]) == 0
+    folder = tmp_path / "out"
+    assert main(["tournament", write(tmp_path), "--json", "--out", str(folder)]) == 0
     doc = json.loads(capsys.readouterr().out)
     assert [m["match"] for m in doc["matches"]] == list(range(1, 7))
-    assert doc["matches"][0]["group"] == 1 and [g["group"] for g in doc["groups"]] == list(range(1, 7))
-    with open(out_dir / "matches.csv") as f:
+    assert doc["matches"][0]["group"] == 1 and [g["matches"] for g in doc["groups"]] == [[k] for k in range(1, 7)]
+    with open(folder / "report" / "tables" / "matches.csv") as f:
         rows = list(csv.DictReader(f))
     assert rows[0]["match"] == "1" and rows[0]["group"] == "1" and rows[0]["seat"] == "1"
     assert {r["match"] for r in rows} == {str(k) for k in range(1, 7)}
-    with open(out_dir / "groups.csv") as f:
-        assert {r["group"] for r in csv.DictReader(f)} == {str(k) for k in range(1, 7)}
-
-
-def test_same_numbers_as_supergame_run(tmp_path, capsys):
-    # one file and seed, two commands: `supergame tournament` draws the streams of the run's cell 0
-    path = write(tmp_path)
-    assert main(["tournament", path, "--json"]) == 0
-    doc = json.loads(capsys.readouterr().out)
-    folder = tmp_path / "run"
-    assert main(["run", path, "--out", str(folder), "--workers", "1", "--quiet"]) == 0
-    capsys.readouterr()
-    with open(folder / "results.csv") as f:
-        row = next(csv.DictReader(f))
-    assert row["status"] == "ok"
-    for r in doc["ranking"]:
-        lab = r["label"]
-        assert float(row[f"rank.{lab}"]) == r["rank"]
-        for m in ("profit_gain", "discounted_profit", "profit"):
-            assert float(row[f"{m}.{lab}"]) == r[m]["value"], (m, lab)
-        assert float(row[f"rank_share.{lab}"]) == r["stability"]["rank_share"]
-    labels = doc["evolution"]["labels"]
-    for e, lab in enumerate(labels):
-        assert float(row[f"share.{lab}"]) == doc["evolution"]["replicator"]["final"][e]
-    assert float(row["moran.max_standard_errors"]) == doc["evolution"]["fixation"]["agreement"]["max_standard_errors"]
+    with open(folder / "report" / "tables" / "rules.csv") as f:
+        assert sorted(r["place"] for r in csv.DictReader(f)) == ["1", "2", "3"]  # integers, not 1.0
 
 
 def test_tables_are_checked_by_the_shared_rule(tmp_path, monkeypatch):
     # every table of a tournament file goes through sim.core.tables.refuse_unknown, the package's one wording
-    import sim.tournament.roundrobin as T
+    import sim.tournament.experiment as T
     from sim.core.tomlfile import read_toml
 
     seen = []
@@ -371,24 +428,20 @@ def test_tables_are_checked_by_the_shared_rule(tmp_path, monkeypatch):
     assert set(seen) == {"experiment", "tournament", "run", "learning", "collusion"}
 
 
-def test_output_folders_share_one_check():
-    import sim.evidence.simplots as _simplots
-    import sim.evidence.tournament as _tournament_io
-
-    assert _tournament_io.output_dir is _simplots._outdir and _tournament_io._pyplot is _simplots._pyplot
-
-
 def test_text_names_the_agreement(tmp_path, capsys):
     text = _replace("cost = 10.0\nn_firms = 2", "cost = [10.0, 14.0]")
     assert main(["tournament", write(tmp_path, text)]) == 0
     out = capsys.readouterr().out
-    assert "Agreement: proportional (the default: firms that differ keep their Nash shares); collusive profit per " \
-           "period: firm 1 1081.0703 (Nash 981.7778); firm 2 860.9343 (Nash 747.1111)" in out
+    # Nash profits (a - 2 c_i + c_j)^2 / 9 = 981.78 and 747.11 (textbook linear Cournot, a = 100, b = 1)
+    assert ("Agreement: quantities proportional to static Nash (the default where firms differ: each keeps its "
+            "static-Nash share). Profit per period (currency units) at the static Nash equilibrium and under the "
+            "agreement: firm 1 981.78 and 1,081.07; firm 2 747.11 and 860.93") in out
     ranked = text + '\n[collusion]\nagreement = "joint"\n'
     ranked = ranked.replace("bootstrap = 50", 'bootstrap = 50\nscore = "discounted_profit"')
     assert main(["tournament", write(tmp_path, ranked, "j.toml")]) == 0
     out = capsys.readouterr().out
-    assert "profit gain undefined ('-') for firm 2" in out
+    assert "profit gain undefined (n/a) for firm 2" in out
+    assert "earns the highest discounted profit" in out.splitlines()[0]
 
 
 @pytest.mark.slow
@@ -402,37 +455,46 @@ def test_shipped_experiment_shows_what_its_comment_says(capsys):
                                 if line.startswith("#")).split())
     for claim in ("loses almost all of the collusive profit even against itself (a profit gain below 0.01",
                   "each keep over nine tenths of it against themselves and over eight tenths against each other",
-                  "forgiving rules fare better than unforgiving ones", "Win-stay lose-shift ranks first by profit gain",
+                  "forgiving rules fare better than unforgiving ones",
+                  "Win-stay lose-shift keeps the largest share of the collusive profit",
                   "the only rule here that punishes below the Nash profit",
                   "earns more than its opponent in every one of its matches",
                   "resists invasion by every other rule and takes over the population"):
         assert claim in comment, claim  # each is checked below
     assert main(["tournament", str(path), "--json"]) == 0
     doc = json.loads(capsys.readouterr().out)
-    labels = [e["label"] for e in doc["settings"]["entrants"]]
+    labels = doc["rules_in_file_order"]
     assert labels == ["grim", "nash-3", "tft", "forgiving", "stick-carrot", "wsls", "compete", "sly"]
-    at = {lab: k for k, lab in enumerate(labels)}
-    pw = doc["pairwise"]["profit_gain"]
-    V = np.array(pw["value"])
-    g, f, w, sc = at["grim"], at["forgiving"], at["wsls"], at["stick-carrot"]
+    gain = {tuple(g["rules"]): g["each_rule"] for g in doc["groups"]}
+
+    def against(i, j):
+        pair = tuple(sorted((i, j), key=labels.index))
+        return gain[pair][i]["profit_gain"]["value"]
+
     assert len(doc["matches"]) == 64  # every entrant against every other and itself, both seatings
-    assert V[g, g] < 0.01  # grim loses almost all of the collusive profit against itself
-    assert V[w, w] > 0.9 and V[f, f] > 0.9  # over nine tenths against themselves
-    assert min(V[w, f], V[f, w]) > 0.8  # over eight tenths against each other
-    score = {r["label"]: r["profit_gain"]["value"] for r in doc["ranking"]}
+    assert against("grim", "grim") < 0.01  # grim loses almost all of the collusive profit against itself
+    assert against("wsls", "wsls") > 0.9 and against("forgiving", "forgiving") > 0.9
+    assert min(against("wsls", "forgiving"), against("forgiving", "wsls")) > 0.8
+    score = {r["label"]: r["profit_gain"]["value"] for r in doc["rules"]}
     assert score["forgiving"] > score["grim"] and score["wsls"] > score["grim"]  # forgiving rules fare better
-    assert doc["ranking"][0]["label"] == "wsls"
-    assert pw["wins"][sc] == 7 and pw["losses"][sc] == 0  # stick and carrot beats every opponent
-    evo = doc["evolution"]
-    assert evo["stability"]["ess"][sc] and evo["stability"]["ess_n"][sc]  # resists every invader
-    assert all(evo["fixation"]["times_population"][i][sc] < 1.0 for i in range(8) if i != sc)
-    assert evo["replicator"]["final"][sc] > 0.999  # takes over the population
-    assert doc["ranking"][0]["label"] != "stick-carrot"  # the best average is not the rule that spreads
-    assert evo["fixation"]["agreement"]["within"]
+    assert doc["rules"][0]["label"] == "wsls"
+    # stick and carrot earns more than its opponent in every one of its matches, beyond the margin
+    for g in doc["groups"]:
+        if "stick-carrot" in g["rules"] and len(set(g["rules"])) == 2:
+            d = g["difference_first_minus_second"]["profit_gain"]["beyond_margin"]
+            assert d == (1 if g["rules"][0] == "stick-carrot" else -1), g["rules"]
+    sc_rule = next(r for r in doc["rules"] if r["label"] == "stick-carrot")
+    assert sc_rule["resists_invasion"] and sc_rule["resists_invasion_in_finite_population"]
+    sc = labels.index("stick-carrot")
+    N = doc["evolution"]["invasion"]["population"]
+    assert all(doc["evolution"]["invasion"]["takeover_probability"][i][sc] * N < 1.0 for i in range(8) if i != sc)
+    assert sc_rule["population_share_after_replicator"] > 0.999  # takes over the population
+    assert doc["rules"][0]["label"] != "stick-carrot"  # the best average is not the rule that spreads
+    assert doc["evolution"]["invasion"]["simulation_check"]["within"]
     # stick and carrot is the only rule that punishes below the Nash profit: the others play the collusive,
     # Nash and deviation quantities only
     from sim.core.tomlfile import read_toml
-    from sim.tournament.roundrobin import check_experiment, tournament_from_dict
+    from sim.tournament.experiment import check_experiment, tournament_from_dict
 
     plan = check_experiment(tournament_from_dict(read_toml(path)))
     prof = plan.levels.profiles
@@ -461,29 +523,30 @@ def test_learner_against_a_forgiving_rule_from_a_file(tmp_path, capsys):
 
 
 def test_run_report_carries_the_tournament(tmp_path, capsys):
-    # `supergame run --report` of a tournament file: the ranking with integer ranks and counts, the four
+    # `supergame run --report` of a tournament file: the answer, the three tables with integer places, the five
     # figures of `supergame tournament --plot`, all read from the stored cell
     folder = tmp_path / "run"
     assert main(["run", write(tmp_path), "--out", str(folder), "--workers", "1", "--quiet", "--report"]) == 0
     capsys.readouterr()
     report = folder / "report"
-    for name in ("score-heatmap", "ranking", "replicator", "fixation"):
+    for name in ("rules", "pairs", "collusion-duration", "replicator", "invasion"):
         assert (report / "figures" / f"{name}.png").stat().st_size > 1000, name
     md = (report / "summary.md").read_text()
-    assert "3 entrants over 2 seats, 6 matches" in md
+    assert "## Answer" in md and "## Profit gain of each rule" in md and "## Which rules spread" in md
     with open(folder / "results.csv") as f:
         row = next(csv.DictReader(f))
-    with open(report / "tables" / "ranking.csv") as f:
-        ranking = list(csv.DictReader(f))
-    assert [r["rank"] for r in ranking] == sorted(r["rank"] for r in ranking)
-    for r in ranking:
-        lab = r["entrant"]
-        assert r["rank"] == str(int(float(row[f"rank.{lab}"])))  # an integer, not 1.0000
-        assert float(r["profit gain"]) == float(row[f"score.{lab}"])
-        assert r["wins"] == str(int(float(row[f"wins.{lab}"])))
-    assert "| 1 | " in md and "2.0000" not in md.split("## Failed cells")[0]
-    with open(report / "tables" / "evolution.csv") as f:
-        assert {r["entrant"] for r in csv.DictReader(f)} == {"grim", "nash-2", "compete"}
+    with open(report / "tables" / "rules.csv") as f:
+        rules = list(csv.DictReader(f))
+    assert [r["place"] for r in rules] == sorted(r["place"] for r in rules)
+    for r in rules:
+        lab = r["rule"]
+        assert r["place"] == str(int(float(row[f"rank.{lab}"])))  # an integer, not 1.0000
+        assert float(r["profit_gain"]) == float(row[f"score.{lab}"])
+    body = md.split("## Failed cells")[0]
+    for word in ("wins", "losses", "Pairwise", "ESS", "ranking"):
+        assert word not in body, word
+    with open(report / "tables" / "spread.csv") as f:
+        assert {r["rule"] for r in csv.DictReader(f)} == {"grim", "nash-2", "compete"}
 
 
 def test_sweep_report_lists_every_cell(tmp_path, capsys):
@@ -498,17 +561,21 @@ def test_sweep_report_lists_every_cell(tmp_path, capsys):
         rows = list(csv.DictReader(f))
     for c, r in zip(cells, rows, strict=True):
         first = [lab for lab in ("grim", "nash-2", "compete") if float(r[f"rank.{lab}"]) == 1.0]
-        assert c["first"] == ", ".join(first)
-    assert (folder / "report" / "figures" / "scores-over-sweep.png").stat().st_size > 1000
+        assert c["first place"] == ", ".join(first)
+    assert (folder / "report" / "figures" / "profit-gain-over-sweep.png").stat().st_size > 1000
+    # a sweep runs into a run folder from the command too, and prints each cell's answer
+    assert main(["tournament", write(tmp_path, text, "s.toml"), "--out", str(tmp_path / "s")]) == 0
+    out = capsys.readouterr().out
+    assert "Cell 3: " in out and (tmp_path / "s" / "report" / "tables" / "cells.csv").is_file()
 
 
 def test_learner_entries_read_by_the_learning_reader(tmp_path, monkeypatch):
     # qlearning entrants are built by sim.learning.tables.learner_from_entry, the one reader of learner entries
     # (also used for the [[strategies]] of learning experiments)
-    import sim.tournament.roundrobin as T
+    import sim.tournament.entrants as T
     from sim.core.tomlfile import read_toml
     from sim.learning.tables import learner_from_entry as real
-    from sim.tournament.roundrobin import tournament_from_dict
+    from sim.tournament.experiment import tournament_from_dict
 
     seen = []
     assert T.learner_from_entry is real

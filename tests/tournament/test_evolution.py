@@ -12,18 +12,18 @@ import pytest
 from scipy.special import comb
 
 from sim.core.errors import InputError
-from sim.tournament.evolution import (
-    PayoffTable,
-    _moran_reference,
-    _up_table,
-    evolve,
+from sim.tournament.evolution import evolve
+from sim.tournament.moran import (
     fixation_probabilities,
     fixation_probability,
-    replicator,
+    moran_reference,
     simulate_fixation,
-    stability,
     stationary_distribution,
+    up_table,
 )
+from sim.tournament.payoffs import PayoffTable
+from sim.tournament.replicator import replicator
+from sim.tournament.stability import stability
 
 
 def constant_ratio(r: float) -> PayoffTable:
@@ -72,12 +72,12 @@ def test_constant_fitness_simulation(r, N):
 
 def test_simulation_kernel_equals_reference_and_threads():
     t = PayoffTable.from_matrix([[3.0, 0.5, 1.0], [4.0, 1.0, 2.0], [1.5, 1.5, 1.5]])
-    pairs, up = _up_table(t, 12, 0.4, "linear")
+    pairs, up = up_table(t, 12, 0.4, "linear")
     from sim.core.rng import stream_states
-    from sim.tournament.evolution import MORAN_KEY
+    from sim.tournament.moran import MORAN_KEY
 
     states = stream_states(5, (MORAN_KEY,), 0, len(pairs))
-    ref = _moran_reference(up, 300, states)
+    ref = moran_reference(up, 300, states)
     for threads in (1, 2):
         k = simulate_fixation(t, 12, 0.4, runs=300, seed=5, threads=threads)
         assert [k[i, j] for i, j in pairs] == ref.tolist()

@@ -14,19 +14,12 @@ from sim.learning.session import learn
 from sim.models.monitoring import Monitoring
 from sim.simulation.engine import simulate
 from sim.theory.thresholds import grim_threshold
-from sim.tournament.evolution import PayoffTable
-from sim.tournament.roundrobin import (
-    Entrant,
-    _bootstrap_arrays,
-    _bootstrap_reference,
-    _rival_weights,
-    bootstrap_kernel,
-    bootstrap_scores,
-    evolve_tournament,
-    prepare_tournament,
-    run_tournament,
-    tournament,
-)
+from sim.tournament.bootstrap import bootstrap_inputs, bootstrap_kernel, bootstrap_reference, bootstrap_scores
+from sim.tournament.entrants import Entrant
+from sim.tournament.experiment import evolve_tournament
+from sim.tournament.payoffs import PayoffTable
+from sim.tournament.plan import prepare_tournament, rival_weights
+from sim.tournament.roundrobin import run_tournament, tournament
 from strategies.qlearning import QLearner
 
 DUOPOLY = Market(LinearDemand(100.0, 1.0), cost=10.0, n_firms=2)
@@ -235,7 +228,7 @@ def test_scores_are_round_robin_averages():
         brute = np.mean([val[where[tuple(sorted((i, j, k)))], i] for j in range(3) for k in range(3)])
         assert res.scores["profit_gain"][i].value == pytest.approx(brute, rel=1e-13)
     # the weights of the groups containing an entrant sum to one
-    assert np.allclose(_rival_weights(res.plan).sum(axis=0), 1.0)
+    assert np.allclose(rival_weights(res.plan).sum(axis=0), 1.0)
 
 
 def test_pairwise_verdicts_and_payoff_table():
@@ -307,11 +300,11 @@ def test_bootstrap_kernel_equals_reference():
     # the kernel called directly, on other streams
     from sim.core.rng import stream_states
 
-    args = _bootstrap_arrays(plan, res.matches, _rival_weights(plan), "profit")
+    reps, seats = bootstrap_inputs(plan, res.matches, "profit")
     states = stream_states(99, (1, 2), 0, 5)
     out = np.zeros((5, 4))
-    bootstrap_kernel(*args, states.copy(), out)
-    assert np.array_equal(out, _bootstrap_reference(*args, states.copy(), 4))
+    bootstrap_kernel(reps, seats, states.copy(), out)
+    assert np.array_equal(out, bootstrap_reference(reps, seats, states.copy(), 4))
 
 
 def test_bootstrap_spread_matches_the_standard_errors():
