@@ -144,6 +144,8 @@ def candidates(geom: Geometry, b: np.ndarray, eps: float, block: int = 3_000_000
     """
     P = geom.points
     A, n = b.shape
+    if A == 0:
+        return np.zeros(0, np.int64), np.zeros((0, n))
     rows, pts = [], []
     step = max(1, block // max(1, P.shape[0] * n))
     for s in range(0, A, step):

@@ -67,6 +67,9 @@ METHODS = ("auto", "exact", "directions")
 STATUSES = ("beyond static nash", "static nash only", "no pure equilibrium", "undetermined")
 _KEY = "payoff_set"
 _INNER_FACTOR = 4
+# punishments of the first inner sequence: the outer set's worst payoffs raised by these multiples of
+# the absolute tolerance (see _inner)
+_SLACKS = (10.0, 1e3, 1e5)
 
 
 def _arr(x, dtype=float, width=None):
@@ -119,6 +122,12 @@ class PayoffSet:
     outer_iterations, inner_iterations : int
     outer_converged, inner_converged : bool
         Whether each sequence met its stopping rule before ``max_iter``.
+    inner_certificate : {"self-generating", "fixed point to rounding", "none"}
+        Why the inner set holds equilibrium payoffs only: it was built from a self-generating seed
+        by the operator (exact up to a rounding allowance of ``1e-12`` of the payoff scale); or (exact
+        method, games whose punishments sustain each other so that no smaller set reaches them) the
+        outer sequence reached a set that its own image reproduces to ``1e-10`` of the payoff
+        scale; or no inner set was found (``accuracy`` is then infinite).
     grid_shape : tuple of int
     """
 
@@ -140,6 +149,7 @@ class PayoffSet:
     inner_iterations: int
     outer_converged: bool
     inner_converged: bool
+    inner_certificate: str = "self-generating"
     grid_shape: tuple = field(default_factory=tuple)
 
     @property
@@ -174,6 +184,7 @@ class PayoffSet:
             "accuracy": self.accuracy if math.isfinite(self.accuracy) else None, "tol": self.tol,
             "outer_iterations": self.outer_iterations, "inner_iterations": self.inner_iterations,
             "outer_converged": self.outer_converged, "inner_converged": self.inner_converged,
+            "inner_certificate": self.inner_certificate,
             "grid_shape": list(self.grid_shape),
         }
 
@@ -199,7 +210,7 @@ class PayoffSet:
             _arr(data["nash_payoffs"], width=n), _arr(data["minmax"]),
             float("inf") if acc is None else float(acc), float(data["tol"]),
             int(data["outer_iterations"]), int(data["inner_iterations"]),
-            bool(data["outer_converged"]), bool(data["inner_converged"]),
+            bool(data["outer_converged"]), bool(data["inner_converged"]), str(data["inner_certificate"]),
             tuple(int(k) for k in data.get("grid_shape", [])),
         )
 
@@ -335,32 +346,72 @@ def equilibrium_payoffs(game: DiscreteGame, delta: float, method: str = "auto", 
     scale = game.scale
     tol_abs = tol * scale
     nash_idx = np.array([game.flat_index(p) for p in game.pure_nash()], dtype=np.int64)
-    start = it.seed(G, gains, nash_idx, delta)
     none = (np.zeros((0, n)), np.zeros(0, np.int64), np.zeros((0, n)), 0, True)
     if method == "exact":
         outer, it_o, conv_o = it.exact_outer(G, gains, delta, tol_abs, max_iter, scale)
         levels = np.zeros(0)
-        inner = none if outer.shape[0] == 0 else it.exact_inner(G, gains, delta, start, outer, tol_abs,
-                                                                max_iter, scale)
+
+        def grow(start, punish):
+            return it.exact_inner(G, gains, delta, start, outer, tol_abs, max_iter, scale, punish)
     else:
         levels, it_o, conv_o = it.directions_outer(G, gains, delta, D, tol_abs, max_iter, scale)
         if levels is None:
-            outer, levels, inner = np.zeros((0, n)), np.full(D.shape[0], np.nan), none
+            outer, levels = np.zeros((0, n)), np.full(D.shape[0], np.nan)
         else:
             outer = it.outer_corners(D, levels, scale, max(0.5 * tol_abs, 1e-10 * scale))
-            # the inner set is pushed out in more directions than the outer one is cut in: each is
-            # cheap, and ties on flat faces resolve into more of its vertices
-            D_in = pt.extend_directions(D, _INNER_FACTOR * D.shape[0])
-            inner = it.directions_inner(G, gains, delta, D_in, start, levels, tol_abs, max_iter, scale)
+        # the inner set is pushed out in more directions than the outer one is cut in: each is cheap,
+        # and ties on flat faces resolve into more of its vertices
+        D_in = pt.extend_directions(D, _INNER_FACTOR * D.shape[0])
+
+        def grow(start, punish):
+            return it.directions_inner(G, gains, delta, D_in, start, levels, tol_abs, max_iter, scale, punish)
+    inner, certificate = (none, "none") if outer.shape[0] == 0 else \
+        _inner(G, gains, delta, outer, nash_idx, grow, tol_abs, scale)
+    acc = it.hausdorff(inner[0], outer)
+    if acc > 10 * tol_abs and method == "exact" and outer.shape[0]:
+        found = it.fixed_point(G, gains, delta, outer, scale, max_iter)
+        if found is not None:
+            inner, certificate = (*found, inner[3], True), "fixed point to rounding"
+            acc = it.hausdorff(inner[0], outer)
     I, I_prof, I_cont, it_i, conv_i = inner
-    acc = it.hausdorff(I, outer)
     nash = G[nash_idx]
     status = _status(outer, I, nash, tol_abs, n)
     profiles = np.array([game.profile(k) for k in I_prof], dtype=np.int64).reshape(-1, n)
     return PayoffSet(
         delta, n, method, status, outer, I, profiles, I_cont, D, levels, nash, game.minmax, float(acc),
-        float(tol_abs), int(it_o), int(it_i), bool(conv_o), bool(conv_i), tuple(game.shape),
+        float(tol_abs), int(it_o), int(it_i), bool(conv_o), bool(conv_i), certificate, tuple(game.shape),
     )
+
+
+def _inner(G, gains, delta, outer, nash_idx, grow, tol_abs, scale):
+    """A certified inner set, grown with the operator itself.
+
+    Equilibria that need punishments harsher than Nash reversion cannot be reached from the static
+    Nash payoffs: the operator applied to a small set only generates what that set can punish. So
+    the first sequence answers deviations with fixed payoffs ``p`` just above the worst payoffs of
+    the outer set (at most the worst static Nash payoffs); if the set it builds contains, for every
+    firm, a payoff at or below ``p_i``, every point in it is generated by the set itself with its
+    own worst payoffs as punishments -- it is self-generating and lies inside the equilibrium set.
+    The operator itself then grows it. Slacks are tried from small to large; the last one is Nash
+    reversion, whose set always qualifies when a pure static Nash equilibrium exists.
+    """
+    n = G.shape[1]
+    worst_nash = G[nash_idx].min(axis=0) if nash_idx.size else np.full(n, np.inf)
+    low = outer.min(axis=0)
+    used = 0
+    for slack in (*(f * tol_abs for f in _SLACKS), np.inf):
+        punish = np.minimum(low + slack, worst_nash)
+        if not np.all(np.isfinite(punish)):
+            continue
+        start = it.stationary(G, gains, punish, delta)
+        if start[0].shape[0] == 0:
+            continue
+        pts, prof, cont, k, _ = grow(start, punish)
+        used += k
+        if pts.shape[0] and np.all(pts.min(axis=0) <= punish):
+            pts, prof, cont, k, conv = grow((pts, prof, cont), None)
+            return (pts, prof, cont, used + k, conv), "self-generating"
+    return (np.zeros((0, n)), np.zeros(0, np.int64), np.zeros((0, n)), used, False), "none"
 
 
 def _distance_to_set(points: np.ndarray, P: np.ndarray, n: int) -> np.ndarray:
