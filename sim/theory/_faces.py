@@ -189,15 +189,27 @@ def _on_faces(P, idx, S, b, eps, block):
         rhs = np.ones((min(step, A - s), k + 1))
         rhs[:, :k] = b[s:s + step][:, S]
         lam = rhs[None, :, :] @ invT  # (m, a, k + 1)
-        w = lam @ corners  # (m, a, n)
-        ok = np.all(lam >= -1e-12, axis=2) & np.all(w >= b[None, s:s + step, :] - eps, axis=2)
-        f, r = np.nonzero(ok)
-        rows.append(r + s)
-        pts.append(w[f, r])
+        # most (face, profile) pairs miss the face: test the weights before forming the points
+        f, r = np.nonzero(np.all(lam >= -1e-12, axis=2))
+        w = np.einsum("qi,qin->qn", lam[f, r], corners[f])
+        ok = np.all(w >= b[s + r] - eps, axis=1)
+        rows.append(r[ok] + s)
+        pts.append(w[ok])
     return np.concatenate(rows), np.concatenate(pts)
 
 
-def support_step(G, gains, delta, u, geom: Geometry, D, eps, block: int = 4_000_000):
+def _extreme(V: np.ndarray) -> np.ndarray:
+    """Indices of points of ``V`` that include every vertex of its hull (all of them when the hull is
+    flat or too small for Qhull)."""
+    if V.shape[0] > V.shape[1] + 1:
+        try:
+            return ConvexHull(V).vertices
+        except QhullError:
+            pass
+    return np.arange(V.shape[0])
+
+
+def support_step(G, gains, delta, u, geom: Geometry, D, eps, block: int = 3_000_000):
     """Support values of ``B(W)`` in directions ``D``, exactly, with a maximiser of each.
 
     Parameters
@@ -216,7 +228,7 @@ def support_step(G, gains, delta, u, geom: Geometry, D, eps, block: int = 4_000_
     eps : float
         Rounding allowance (see :func:`candidates`).
     block : int
-        Largest number of (candidate, direction) values held at once.
+        Largest number of numbers held per batch while listing candidates.
 
     Returns
     -------
@@ -232,20 +244,20 @@ def support_step(G, gains, delta, u, geom: Geometry, D, eps, block: int = 4_000_
     """
     b = u[None, :] + (1.0 - delta) / delta * gains
     live = np.flatnonzero(np.all(b <= geom.points.max(axis=0)[None, :] + eps, axis=1))
-    r, w = candidates(geom, b[live], eps)
+    r, w = candidates(geom, b[live], eps, block)
     a = live[r]
     V = (1.0 - delta) * G[a] + delta * w
     L, n = D.shape
     values = np.full(L, -np.inf)
     profiles = np.full(L, -1, dtype=np.int64)
     conts = np.full((L, n), np.nan)
-    step = max(1, block // max(1, L))
-    for s in range(0, V.shape[0], step):
-        T = V[s:s + step] @ D.T
-        k = np.argmax(T, axis=0)
-        top = T[k, np.arange(L)]
-        better = top > values
-        values[better] = top[better]
-        profiles[better] = a[s + k[better]]
-        conts[better] = w[s + k[better]]
+    if L == 0 or V.shape[0] == 0:
+        return values, profiles, conts, V, a, w
+    # a linear function is largest at a vertex of the hull: search those only
+    top = _extreme(V)
+    T = D @ V[top].T  # (L, k), rows contiguous for the search
+    k = top[np.argmax(T, axis=1)]
+    values[:] = T[np.arange(L), np.argmax(T, axis=1)]
+    profiles[:] = a[k]
+    conts[:] = w[k]
     return values, profiles, conts, V, a, w

@@ -56,6 +56,8 @@ from ..errors import InputError
 from . import _iterate as it
 from . import _polygon as pg
 from . import _polytope as pt
+from ._plain import array_from_plain as _arr
+from ._plain import plain as _plain
 from .discretize import DEFAULT_MAX_BYTES, DiscreteGame
 
 __all__ = ["METHODS", "STATUSES", "PayoffSet", "default_directions", "equilibrium_payoffs", "estimate_work"]
@@ -70,20 +72,6 @@ _INNER_FACTOR = 4
 # punishments of the first inner sequence: the outer set's worst payoffs raised by these multiples of
 # the absolute tolerance (see _inner)
 _SLACKS = (10.0, 1e3, 1e5)
-
-
-def _arr(x, dtype=float, width=None):
-    a = np.array([[np.nan if v is None else v for v in row] for row in x] if x and isinstance(x[0], list)
-                 else [np.nan if v is None else v for v in (x or [])], dtype=dtype)
-    if width is not None and a.size == 0:
-        a = a.reshape(0, width)
-    return a
-
-
-def _plain(a):
-    a = np.asarray(a, dtype=float)
-    return [[None if not math.isfinite(v) else float(v) for v in row] for row in a] if a.ndim == 2 else \
-        [None if not math.isfinite(v) else float(v) for v in a]
 
 
 @dataclass(frozen=True)
