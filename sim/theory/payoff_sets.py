@@ -60,7 +60,10 @@ from ._plain import array_from_plain as _arr
 from ._plain import plain as _plain
 from .discretize import DEFAULT_MAX_BYTES, DiscreteGame
 
-__all__ = ["METHODS", "STATUSES", "PayoffSet", "default_directions", "equilibrium_payoffs", "estimate_work"]
+__all__ = [
+    "METHODS", "STATUSES", "PayoffSet", "continuation_support", "default_directions", "equilibrium_payoffs",
+    "estimate_work", "hausdorff_distance",
+]
 
 METHODS = ("auto", "exact", "directions")
 #: ``beyond static nash``: the inner set holds a payoff outside the static Nash payoffs' hull;
@@ -419,3 +422,55 @@ def _status(outer, inner, nash, tol_abs, n) -> str:
     if inner.shape[0] and np.max(_distance_to_set(inner, nash, n)) > tol_abs:
         return "beyond static nash"
     return "undetermined"
+
+
+def hausdorff_distance(A, B) -> float:
+    """Hausdorff distance between the convex hulls of two point sets.
+
+    Parameters
+    ----------
+    A, B : array_like of shape (k, n_firms)
+
+    Returns
+    -------
+    float
+        ``inf`` when exactly one set is empty; exact for two firms, otherwise an upper bound tight to
+        the precision of a non-negative least-squares projection.
+    """
+    return it.hausdorff(np.asarray(A, dtype=float), np.asarray(B, dtype=float))
+
+
+def continuation_support(game: DiscreteGame, delta: float, points, directions, profiles) -> np.ndarray:
+    """The linear programmes of one step of the outer approximation, solved by enumeration.
+
+    For each profile ``a`` and direction ``h``: ``max h . w`` over ``w`` in the hull of ``points``
+    with ``w >= IC(a)``, the punishments being the hull's worst payoffs (see
+    :mod:`sim.theory._faces` for the enumeration).
+
+    Parameters
+    ----------
+    game : DiscreteGame
+    delta : float in (0, 1)
+    points : array_like of shape (J, n_firms)
+        Continuation payoffs spanning the set.
+    directions : array_like of shape (L, n_firms)
+    profiles : array_like of int, shape (k,)
+        Flat indices of the profiles.
+
+    Returns
+    -------
+    ndarray of shape (k, L)
+        ``-inf`` where no continuation satisfies the incentive constraints.
+    """
+    from . import _faces as fc
+
+    delta = Real(0, 1, closed="neither").check(f"{_KEY}.delta", delta)
+    P = np.asarray(points, dtype=float)
+    D = np.asarray(directions, dtype=float)
+    prof = np.asarray(profiles, dtype=np.int64)
+    geom = fc.geometry(P, game.scale)
+    b = geom.points.min(axis=0)[None, :] + (1.0 - delta) / delta * game.deviation_gains[prof]
+    rows, w = fc.candidates(geom, b, 1e-12 * game.scale)
+    out = np.full((prof.size, D.shape[0]), -np.inf)
+    np.maximum.at(out, rows, w @ D.T)
+    return out
