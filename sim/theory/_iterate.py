@@ -127,8 +127,9 @@ def _moved(new, old, D_stop):
     return float(np.max(np.abs((new @ D_stop.T).max(axis=0) - (old @ D_stop.T).max(axis=0))))
 
 
-def exact_outer(G, gains, delta, tol_abs, max_iter, scale):
-    """``O_{k+1} = B(O_k)`` from the feasible set, every image exact.
+def exact_outer(G, gains, delta, stop, max_iter, scale, start=None):
+    """``O_{k+1} = B(O_k)`` from the feasible set (or from ``start``, an earlier iterate), every
+    image exact, until a step moves the set by at most ``stop``.
 
     Returns
     -------
@@ -140,7 +141,7 @@ def exact_outer(G, gains, delta, tol_abs, max_iter, scale):
     eps = _EPS * scale  # rounding never drops a point from an outer set
     n = G.shape[1]
     D_stop = pt.sphere_directions(n, 32 * n) if n > 2 else None
-    O = G[hull_indices(G, scale)]
+    O = G[hull_indices(G, scale)] if start is None else start
     for k in range(1, max_iter + 1):
         _, _, _, V, _, _ = _image(G, gains, delta, O, scale, eps, margin=eps)
         if V.shape[0] == 0:
@@ -148,7 +149,7 @@ def exact_outer(G, gains, delta, tol_abs, max_iter, scale):
         new = V[hull_indices(V, scale)]
         step = _moved(new, O, D_stop)
         O = new
-        if step <= tol_abs * (1.0 - delta):
+        if step <= stop:
             return O, k, True
     return O, max_iter, False
 
@@ -204,8 +205,9 @@ def outer_corners(D, levels, scale, inflate):
     return np.unique(corners, axis=0)
 
 
-def directions_outer(G, gains, delta, D, tol_abs, max_iter, scale):
-    """Outer approximation of Judd, Yeltekin and Conklin (2003): support levels in directions ``D``.
+def directions_outer(G, gains, delta, D, tol_abs, stop, max_iter, scale, start=None):
+    """Outer approximation of Judd, Yeltekin and Conklin (2003): support levels in directions ``D``,
+    from the feasible set (or the levels ``start``) until no level moves by more than ``stop``.
 
     Returns
     -------
@@ -217,7 +219,7 @@ def directions_outer(G, gains, delta, D, tol_abs, max_iter, scale):
     eps = _EPS * scale
     margin = 1e-10 * scale  # rounding of vertices never shrinks an outer set
     inflate = max(0.5 * tol_abs, 1e-10 * scale)
-    levels = (G @ D.T).max(axis=0)
+    levels = (G @ D.T).max(axis=0) if start is None else start
     for k in range(1, max_iter + 1):
         P = outer_corners(D, levels, scale, inflate)
         if P is None:
@@ -228,7 +230,7 @@ def directions_outer(G, gains, delta, D, tol_abs, max_iter, scale):
         new = np.minimum(levels, vals + margin)
         step = float(np.max(levels - new))
         levels = new
-        if step <= tol_abs * (1.0 - delta):
+        if step <= stop:
             return levels, k, True
     return levels, max_iter, False
 

@@ -30,27 +30,22 @@ def hull_indices(points: np.ndarray, rtol: float = 1e-13) -> np.ndarray:
     P = np.asarray(points, dtype=float).reshape(-1, 2)
     if P.shape[0] == 0:
         return np.zeros(0, np.int64)
-    lo, hi = P.min(axis=0), P.max(axis=0)
     scale = max(1.0, float(np.abs(P).max()))
-    if P.shape[0] >= 3 and np.all(hi - lo > rtol * scale):
-        try:
-            return ConvexHull(P).vertices
-        except QhullError:
-            pass  # collinear points: handled below
-    U, first = np.unique(P, axis=0, return_index=True)
-    if U.shape[0] == 1:
-        return first[:1]
-    center = U.mean(axis=0)
-    _, s, vt = np.linalg.svd(U - center, full_matrices=False)
-    t = (U - center) @ vt[0]
-    ends = first[[int(np.argmin(t)), int(np.argmax(t))]]
-    if s.size < 2 or s[1] <= rtol * scale * np.sqrt(U.shape[0]):
+    center = P.mean(axis=0)
+    # the width across the principal axis decides flatness before Qhull sees rounding-thin hulls
+    _, s, vt = np.linalg.svd(P - center, full_matrices=False)
+    t = (P - center) @ vt[0]
+    ends = np.array([int(np.argmin(t)), int(np.argmax(t))])
+    if s.size < 2 or s[1] <= rtol * scale * np.sqrt(P.shape[0]):
         if np.allclose(P[ends[0]], P[ends[1]], rtol=0, atol=rtol * scale):
             return ends[:1]
         return ends
+    across = np.abs((P - center) @ vt[1])
+    if across.max() <= 1e-12 * scale:
+        return ends
     try:
-        return first[ConvexHull(U).vertices]
-    except QhullError:  # pragma: no cover - guarded by the width test above
+        return ConvexHull(P).vertices
+    except QhullError:  # pragma: no cover - guarded by the width tests above
         return ends
 
 

@@ -75,6 +75,8 @@ _INNER_FACTOR = 4
 # punishments of the first inner sequence: the outer set's worst payoffs raised by these multiples of
 # the absolute tolerance (see _inner)
 _SLACKS = (10.0, 1e3, 1e5)
+# most resumptions of an outer sequence whose bracket is still wide
+_ROUNDS = 3
 
 
 @dataclass(frozen=True)
@@ -337,33 +339,12 @@ def equilibrium_payoffs(game: DiscreteGame, delta: float, method: str = "auto", 
     scale = game.scale
     tol_abs = tol * scale
     nash_idx = np.array([game.flat_index(p) for p in game.pure_nash()], dtype=np.int64)
-    none = (np.zeros((0, n)), np.zeros(0, np.int64), np.zeros((0, n)), 0, True)
     if method == "exact":
-        outer, it_o, conv_o = it.exact_outer(G, gains, delta, tol_abs, max_iter, scale)
-        levels = np.zeros(0)
-
-        def grow(start, punish):
-            return it.exact_inner(G, gains, delta, start, outer, tol_abs, max_iter, scale, punish)
+        outer, levels, inner, certificate, acc, it_o, conv_o = _solve_exact(G, gains, delta, nash_idx, tol_abs,
+                                                                           max_iter, scale)
     else:
-        levels, it_o, conv_o = it.directions_outer(G, gains, delta, D, tol_abs, max_iter, scale)
-        if levels is None:
-            outer, levels = np.zeros((0, n)), np.full(D.shape[0], np.nan)
-        else:
-            outer = it.outer_corners(D, levels, scale, max(0.5 * tol_abs, 1e-10 * scale))
-        # the inner set is pushed out in more directions than the outer one is cut in: each is cheap,
-        # and ties on flat faces resolve into more of its vertices
-        D_in = pt.extend_directions(D, _INNER_FACTOR * D.shape[0])
-
-        def grow(start, punish):
-            return it.directions_inner(G, gains, delta, D_in, start, levels, tol_abs, max_iter, scale, punish)
-    inner, certificate = (none, "none") if outer.shape[0] == 0 else \
-        _inner(G, gains, delta, outer, nash_idx, grow, tol_abs, scale)
-    acc = it.hausdorff(inner[0], outer)
-    if acc > 10 * tol_abs and method == "exact" and outer.shape[0]:
-        found = it.fixed_point(G, gains, delta, outer, scale, max_iter)
-        if found is not None:
-            inner, certificate = (*found, inner[3], True), "fixed point to rounding"
-            acc = it.hausdorff(inner[0], outer)
+        outer, levels, inner, certificate, acc, it_o, conv_o = _solve_directions(G, gains, delta, D, nash_idx,
+                                                                               tol_abs, max_iter, scale)
     I, I_prof, I_cont, it_i, conv_i = inner
     nash = G[nash_idx]
     status = _status(outer, I, nash, tol_abs, n)
@@ -374,7 +355,70 @@ def equilibrium_payoffs(game: DiscreteGame, delta: float, method: str = "auto", 
     )
 
 
-def _inner(G, gains, delta, outer, nash_idx, grow, tol_abs, scale):
+def _solve_exact(G, gains, delta, nash_idx, tol_abs, max_iter, scale):
+    """Exact outer and inner sequences. Near a discount factor where the set changes shape the outer
+    sequence crawls, and a small step need not mean a small distance to the limit: while the bracket
+    is wider than the tolerance, the outer sequence resumes with a stopping step a thousand times
+    smaller (the bracket, not the step, is the reported accuracy)."""
+    n = G.shape[1]
+    stop, used, outer = tol_abs * (1.0 - delta), 0, None
+    for _ in range(_ROUNDS):
+        outer, k, conv_o = it.exact_outer(G, gains, delta, stop, max_iter - used, scale, start=outer)
+        used += k
+        if outer.shape[0] == 0:
+            return outer, np.zeros(0), _NONE(n), "none", 0.0, used, True
+        inner, certificate = _inner(G, gains, delta, outer, nash_idx, _grow_exact(G, gains, delta, outer, tol_abs,
+                                                                                  max_iter, scale), tol_abs)
+        acc = it.hausdorff(inner[0], outer)
+        if acc <= 10 * tol_abs or used >= max_iter:
+            break
+        stop *= 1e-3
+    if acc > 10 * tol_abs:
+        found = it.fixed_point(G, gains, delta, outer, scale, max_iter)
+        if found is not None:
+            inner, certificate = (*found, inner[3], True), "fixed point to rounding"
+            acc = it.hausdorff(inner[0], outer)
+    return outer, np.zeros(0), inner, certificate, acc, used, conv_o
+
+
+def _grow_exact(G, gains, delta, outer, tol_abs, max_iter, scale):
+    def grow(start, punish):
+        return it.exact_inner(G, gains, delta, start, outer, tol_abs, max_iter, scale, punish)
+    return grow
+
+
+def _solve_directions(G, gains, delta, D, nash_idx, tol_abs, max_iter, scale):
+    """Supporting-hyperplane outer sequence and generated-point inner sequence (same resumption rule
+    as :func:`_solve_exact`)."""
+    n = G.shape[1]
+    inflate = max(0.5 * tol_abs, 1e-10 * scale)
+    # the inner set is pushed out in more directions than the outer one is cut in: each is cheap, and
+    # ties on flat faces resolve into more of its vertices
+    D_in = pt.extend_directions(D, _INNER_FACTOR * D.shape[0])
+    stop, used, levels = tol_abs * (1.0 - delta), 0, None
+    for _ in range(_ROUNDS):
+        levels, k, conv_o = it.directions_outer(G, gains, delta, D, tol_abs, stop, max_iter - used, scale, levels)
+        used += k
+        if levels is None:
+            return np.zeros((0, n)), np.full(D.shape[0], np.nan), _NONE(n), "none", 0.0, used, True
+        outer = it.outer_corners(D, levels, scale, inflate)
+
+        def grow(start, punish, levels=levels):
+            return it.directions_inner(G, gains, delta, D_in, start, levels, tol_abs, max_iter, scale, punish)
+
+        inner, certificate = _inner(G, gains, delta, outer, nash_idx, grow, tol_abs)
+        gap = float(np.max(levels - (inner[0] @ D.T).max(axis=0))) if inner[0].shape[0] else np.inf
+        if gap <= 10 * tol_abs or used >= max_iter:
+            break
+        stop *= 1e-3
+    return outer, levels, inner, certificate, it.hausdorff(inner[0], outer), used, conv_o
+
+
+def _NONE(n):
+    return np.zeros((0, n)), np.zeros(0, np.int64), np.zeros((0, n)), 0, True
+
+
+def _inner(G, gains, delta, outer, nash_idx, grow, tol_abs):
     """A certified inner set, grown with the operator itself.
 
     Equilibria that need punishments harsher than Nash reversion cannot be reached from the static
