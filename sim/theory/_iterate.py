@@ -23,6 +23,7 @@ __all__ = [
 
 # rounding allowance of every step, relative to the payoff scale (see sim.theory._faces.candidates)
 _EPS = 1e-12
+_FIXED_POINT_STEPS = 1000
 
 
 def hull_indices(P: np.ndarray, scale: float) -> np.ndarray:
@@ -283,7 +284,8 @@ def fixed_point(G, gains, delta, O, scale, max_iter):
         The vertices with a generating profile and continuation each, or None when the test fails.
     """
     eps = _EPS * scale
-    for _ in range(max_iter):
+    # a last resort: a bounded number of further steps (the set either settles fast or not at all)
+    for _ in range(min(max_iter, _FIXED_POINT_STEPS)):
         _, _, _, V, _, _ = _image(G, gains, delta, O, scale, eps, margin=eps)
         if V.shape[0] == 0:
             return None

@@ -457,7 +457,8 @@ def _verdict(gC, gainC, res: PayoffSet) -> str:
 
 
 def lowest_threshold(game: DiscreteGame, agreement=None, tol: float = 1e-3, upper: float = 0.999,
-                     method: str = "auto", directions=None, set_tol: float = 1e-8) -> AgreementThreshold:
+                     method: str = "auto", directions=None, set_tol: float = 1e-8,
+                     max_iter: int | None = None) -> AgreementThreshold:
     """The lowest discount factor at which the agreed profile, played every period, is an equilibrium
     outcome when each deviation meets the deviator's worst equilibrium payoff.
 
@@ -476,8 +477,11 @@ def lowest_threshold(game: DiscreteGame, agreement=None, tol: float = 1e-3, uppe
         Stop when ``high - low <= tol``.
     upper : float in (0, 1)
         Largest discount factor tried.
-    method, directions, set_tol :
+    method, directions, set_tol, max_iter :
         Passed to :func:`~sim.theory.payoff_sets.equilibrium_payoffs` (``set_tol`` as its ``tol``).
+        Near the threshold the sets converge slowly; a verdict from sets that did not converge is
+        still sound (it is "undetermined" when the bracket cannot decide), so a smaller ``max_iter``
+        trades width of the interval for time.
 
     Returns
     -------
@@ -492,7 +496,7 @@ def lowest_threshold(game: DiscreteGame, agreement=None, tol: float = 1e-3, uppe
     evals = []
 
     def verdict(d):
-        res = equilibrium_payoffs(game, d, method=method, directions=directions, tol=set_tol)
+        res = equilibrium_payoffs(game, d, method=method, directions=directions, tol=set_tol, max_iter=max_iter)
         v = _verdict(gC, gainC, res)
         evals.append((float(d), v))
         return v
