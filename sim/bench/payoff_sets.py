@@ -20,14 +20,17 @@ import math
 import time
 
 import numpy as np
+from scipy.optimize import linprog
+
+from ..models.demand import LinearDemand
+from ..models.market import Market
+from ..theory.discretize import discretize
+from ..theory.payoff_sets import continuation_support, equilibrium_payoffs, hausdorff_distance
 
 __all__ = ["bench_three_firms", "bench_two_firms", "payoff_sets_benchmark"]
 
 
 def _market(n_firms: int):
-    from ..demand import LinearDemand
-    from ..market import Market
-
     costs = {2: [10.0, 14.0], 3: [10.0, 12.0, 14.0]}[n_firms]
     return Market(LinearDemand(100.0, 1.0), cost=costs)
 
@@ -71,9 +74,6 @@ def bench_two_firms(n_actions: int = 30, deltas=(0.5, 0.7, 0.9), repeat: int = 1
         Seconds, accuracy and iteration counts per discount factor, the reference's seconds and
         distance, and whether the target (every discount factor under 10 s) is met.
     """
-    from ..theory.discretize import discretize
-    from ..theory.payoff_sets import equilibrium_payoffs, hausdorff_distance
-
     game = discretize(_market(2), n_actions)
     rows = {}
     for d in deltas:
@@ -98,10 +98,6 @@ def _lp_reference(game, delta, D, levels, P, sample: int, rng):
     """One HiGHS programme per sampled (profile, direction): max h.w over the outer set with the
     incentive constraints as lower bounds. Returns seconds per programme, the largest gap to the
     vectorised values on the same pairs and whether both find the same pairs feasible."""
-    from scipy.optimize import linprog
-
-    from ..theory.payoff_sets import continuation_support
-
     gains = game.deviation_gains
     u = P.min(axis=0)
     b = u[None, :] + (1 - delta) / delta * gains
@@ -143,9 +139,6 @@ def bench_three_firms(n_actions: int = 12, n_directions: int = 64, delta: float 
         of the reference step to ours, the largest value difference on the sample, and whether the
         target (under 60 s) is met.
     """
-    from ..theory.discretize import discretize
-    from ..theory.payoff_sets import equilibrium_payoffs
-
     game = discretize(_market(3), n_actions)
     sec, res = _best_of(repeat, lambda: equilibrium_payoffs(game, delta, method="directions",
                                                             directions=n_directions))

@@ -12,6 +12,8 @@ from __future__ import annotations
 import numpy as np
 from scipy.optimize import linprog, nnls
 from scipy.spatial import ConvexHull, HalfspaceIntersection, QhullError
+from scipy.special import ndtri
+from scipy.stats import qmc
 
 __all__ = [
     "bounding_box",
@@ -88,9 +90,6 @@ def _spread(n: int, k: int) -> np.ndarray:
         r = np.sqrt(1 - z * z)
         phi = np.pi * (1 + 5**0.5) * i
         return np.stack([r * np.cos(phi), r * np.sin(phi), z], axis=1)
-    from scipy.special import ndtri
-    from scipy.stats import qmc
-
     u = qmc.Halton(d=n, scramble=False).random(k + 1)[1:]
     x = ndtri(np.clip(u, 1e-12, 1 - 1e-12))
     return x / np.linalg.norm(x, axis=1, keepdims=True)

@@ -28,11 +28,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..equilibrium import minmax as market_minmax
-from ..equilibrium import stage_game
-from ..errors import InputError
-from ..market import MarketSpec
-from ..thresholds import stick_and_carrot
+from ..core.errors import InputError
+from ..models.market import MarketSpec
+from .equilibrium import minmax as market_minmax
+from .equilibrium import stage_game
+from .thresholds import stick_and_carrot
 
 __all__ = [
     "DEFAULT_MAX_BYTES",

@@ -51,8 +51,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._params import Integer, Real
-from ..errors import InputError
+from ..core.errors import InputError
+from ..core.params import Integer, Real
+from . import _faces as fc
 from . import _iterate as it
 from . import _polygon as pg
 from . import _polytope as pt
@@ -506,8 +507,6 @@ def continuation_support(game: DiscreteGame, delta: float, points, directions, p
     ndarray of shape (k, L)
         ``-inf`` where no continuation satisfies the incentive constraints.
     """
-    from . import _faces as fc
-
     delta = Real(0, 1, closed="neither").check(f"{_KEY}.delta", delta)
     P = np.asarray(points, dtype=float)
     D = np.asarray(directions, dtype=float)

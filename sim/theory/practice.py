@@ -27,8 +27,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.optimize import linprog, nnls
 
-from .._params import Integer, Real
-from ..errors import InputError
+from ..core.errors import InputError
+from ..core.params import Integer, Real
 from ._plain import array_from_plain, number, plain, plain_number
 from .discretize import DiscreteGame
 from .payoff_sets import PayoffSet, equilibrium_payoffs

@@ -14,8 +14,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .._params import Integer, Real
-from ..errors import InputError
+from ..core.errors import InputError
+from ..core.params import Integer, Real
 from ._plain import array_from_plain, number, plain, plain_number
 from .discretize import DEFAULT_MAX_BYTES, discretize
 from .payoff_sets import equilibrium_payoffs

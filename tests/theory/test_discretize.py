@@ -7,8 +7,8 @@ import numpy as np
 import pytest
 
 from sim import LinearDemand, Market, stage_game
-from sim.demand import DifferentiatedDemand, LogitDemand
-from sim.errors import InputError
+from sim.core.errors import InputError
+from sim.models.demand import DifferentiatedDemand, LogitDemand
 from sim.theory.discretize import DiscreteGame, action_grid, discretize, estimate_game_bytes, game_from_payoffs
 
 

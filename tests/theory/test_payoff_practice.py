@@ -10,7 +10,7 @@ import pytest
 
 import sim
 from sim import LinearDemand, Market
-from sim.errors import InputError
+from sim.core.errors import InputError
 from sim.theory.discretize import discretize, game_from_payoffs
 from sim.theory.payoff_sets import equilibrium_payoffs
 from sim.theory.practice import (

@@ -10,9 +10,10 @@ import pytest
 from scipy.optimize import linprog
 
 from sim import LinearDemand, Market
-from sim.errors import InputError
+from sim.core.errors import InputError
 from sim.theory.discretize import discretize, game_from_payoffs
 from sim.theory.payoff_sets import PayoffSet, equilibrium_payoffs, hausdorff_distance
+from sim.theory.practice import convex_weights, penal_codes
 
 # Prisoner's dilemma with (T, R, P, S) = (10, 9, 3, 1)
 PD = [[[9, 9], [1, 10]], [[10, 1], [3, 3]]]
@@ -186,8 +187,6 @@ def test_cournot_duopoly_set_and_penal_codes():
     worst payoffs are bracketed to the tolerance, and the optimal penal code path reproduces the
     recursion v_t = (1 - d) g(a_t) + d w_t with every one-shot deviation deterred (checked here from
     the stage payoffs, not from the library's records)."""
-    from sim.theory.practice import convex_weights, penal_codes
-
     game = discretize(Market(LinearDemand(10, 1), cost=1.0, n_firms=2), 16)
     d = 0.4
     r = equilibrium_payoffs(game, d)
