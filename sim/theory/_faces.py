@@ -36,7 +36,7 @@ from scipy.spatial import ConvexHull, Delaunay, QhullError
 __all__ = ["Geometry", "candidates", "geometry", "support_step"]
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Geometry:
     """The combinatorial description of a polytope that :func:`candidates` needs.
 

@@ -140,15 +140,46 @@ class DiscreteGame:
         return np.maximum(0.0, (self.best_reply - self.payoffs).reshape(-1, self.n_firms))
 
     def profile(self, flat_index: int) -> tuple:
-        """Grid indices (one per firm) of the profile with C-order index ``flat_index``."""
+        """Grid indices of a profile.
+
+        Parameters
+        ----------
+        flat_index : int
+            C-order index of the profile.
+
+        Returns
+        -------
+        tuple of int
+            One grid index per firm.
+        """
         return tuple(int(k) for k in np.unravel_index(int(flat_index), self.shape))
 
     def flat_index(self, profile) -> int:
-        """C-order index of a profile given by grid indices."""
+        """C-order index of a profile.
+
+        Parameters
+        ----------
+        profile : sequence of int
+            One grid index per firm.
+
+        Returns
+        -------
+        int
+        """
         return int(np.ravel_multi_index(tuple(int(k) for k in profile), self.shape))
 
     def actions(self, profile) -> np.ndarray:
-        """Action values of a profile given by grid indices, shape (n_firms,)."""
+        """Action values of a profile.
+
+        Parameters
+        ----------
+        profile : sequence of int
+            One grid index per firm.
+
+        Returns
+        -------
+        ndarray of shape (n_firms,)
+        """
         return np.array([self.grids[i][int(k)] for i, k in enumerate(profile)], dtype=float)
 
     # ---- stage-game facts ---------------------------------------------------------------------
@@ -173,15 +204,30 @@ class DiscreteGame:
         return out
 
     def pure_nash(self, rtol: float = 1e-12) -> np.ndarray:
-        """Profiles (grid indices) at which no firm gains by changing its own action, shape
-        (n_equilibria, n_firms); a gain below ``rtol`` times :attr:`scale` counts as none."""
+        """Pure static Nash equilibria of the grid game.
+
+        Parameters
+        ----------
+        rtol : float
+            A gain below ``rtol`` times :attr:`scale` counts as none.
+
+        Returns
+        -------
+        ndarray of int, shape (n_equilibria, n_firms)
+            Grid indices of the profiles at which no firm gains by changing its own action.
+        """
         gains = self.deviation_gains
         ok = np.flatnonzero(np.all(gains <= rtol * self.scale, axis=1))
         return np.array([self.profile(k) for k in ok], dtype=np.int64).reshape(-1, self.n_firms)
 
     # ---- plain data ---------------------------------------------------------------------------
     def to_dict(self) -> dict:
-        """Plain-data form (lists and floats) that :meth:`from_dict` restores."""
+        """Plain-data form (lists and floats) that :meth:`from_dict` restores.
+
+        Returns
+        -------
+        dict
+        """
         return {
             "model": self.model,
             "grids": [np.asarray(g, float).tolist() for g in self.grids],

@@ -80,7 +80,7 @@ _SLACKS = (10.0, 1e3, 1e5)
 _ROUNDS = 3
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class PayoffSet:
     """The equilibrium payoff set at one discount factor, between an inner and an outer set.
 
@@ -167,7 +167,12 @@ class PayoffSet:
         return self.inner_vertices.min(axis=0)
 
     def to_dict(self) -> dict:
-        """Plain data (lists, floats, None for non-finite values) that :meth:`from_dict` restores."""
+        """Plain data (lists, floats, None for non-finite values) that :meth:`from_dict` restores.
+
+        Returns
+        -------
+        dict
+        """
         return {
             "delta": self.delta, "n_firms": self.n_firms, "method": self.method, "status": self.status,
             "outer_vertices": _plain(self.outer_vertices), "inner_vertices": _plain(self.inner_vertices),

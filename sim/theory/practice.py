@@ -162,7 +162,7 @@ def _common_levels(game: DiscreteGame) -> np.ndarray:
 # --------------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class PenalCode:
     """The worst equilibrium payoff of one firm and a path of play that attains it.
 
@@ -195,7 +195,12 @@ class PenalCode:
     lottery: list = field(default_factory=list)
 
     def to_dict(self) -> dict:
-        """Plain data that :meth:`from_dict` restores."""
+        """Plain data that :meth:`from_dict` restores.
+
+        Returns
+        -------
+        dict
+        """
         return {"firm": self.firm + 1, "worst_low": plain_number(self.worst_low),
                 "worst_high": plain_number(self.worst_high), "profiles": self.profiles.tolist(),
                 "actions": plain(self.actions), "profits": plain(self.profits), "values": plain(self.values),
@@ -283,7 +288,7 @@ def penal_codes(result: PayoffSet, game: DiscreteGame, n_periods: int = 8) -> li
 # --------------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Frontier:
     """The most profitable equilibrium outcomes at one discount factor, each as an interval.
 
@@ -310,7 +315,12 @@ class Frontier:
     accuracy: float
 
     def to_dict(self) -> dict:
-        """Plain data that :meth:`from_dict` restores."""
+        """Plain data that :meth:`from_dict` restores.
+
+        Returns
+        -------
+        dict
+        """
         return {"delta": self.delta, "joint": plain(self.joint), "symmetric": plain(self.symmetric),
                 "per_firm_best": plain(self.per_firm_best), "pareto": plain(self.pareto),
                 "accuracy": plain_number(self.accuracy)}
@@ -383,7 +393,7 @@ def sustainable_frontier(result: PayoffSet) -> Frontier:
 # --------------------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class AgreementThreshold:
     """The lowest discount factor sustaining an agreed profile, under any punishment and under the
     named schemes, on the same grid game.
@@ -419,7 +429,12 @@ class AgreementThreshold:
     tol: float
 
     def to_dict(self) -> dict:
-        """Plain data that :meth:`from_dict` restores."""
+        """Plain data that :meth:`from_dict` restores.
+
+        Returns
+        -------
+        dict
+        """
         return {"profile": list(self.profile), "actions": plain(self.actions), "profits": plain(self.profits),
                 "low": plain_number(self.low), "high": plain_number(self.high), "grim": plain_number(self.grim),
                 "stick_carrot": plain_number(self.stick_carrot), "two_phase": plain_number(self.two_phase),
@@ -518,27 +533,27 @@ def lowest_threshold(game: DiscreteGame, agreement=None, tol: float = 1e-3, uppe
             return _result(prof, game, gC, low if evals[-1][1] != "refuted" else upper, math.nan, named, evals, tol)
         high = upper
     # smallest certified delta, then largest refuted one, each by bisection
-    a, b = low, high
-    while b - a > tol:
-        mid = 0.5 * (a + b)
-        if verdict(mid) == "sustained":
-            b = mid
-        else:
-            a = mid
-    high = b
+    high = _bisect(low, high, tol, lambda d: verdict(d) == "sustained", move_high=True)
     a, b = low, high
     for d, v in evals:
         if v == "refuted":
             a = max(a, d)
         elif d < high:
             b = min(b, d)
+    low = _bisect(a, b, tol, lambda d: verdict(d) == "refuted", move_high=False)
+    return _result(prof, game, gC, low, high, named, evals, tol)
+
+
+def _bisect(a: float, b: float, tol: float, test, move_high: bool) -> float:
+    """Bisection on ``[a, b]``: with ``move_high`` the smallest point passing ``test`` (``b`` passes),
+    otherwise the largest (``a`` passes)."""
     while b - a > tol:
         mid = 0.5 * (a + b)
-        if verdict(mid) == "refuted":
-            a = mid
-        else:
+        if test(mid) == move_high:
             b = mid
-    return _result(prof, game, gC, a, high, named, evals, tol)
+        else:
+            a = mid
+    return b if move_high else a
 
 
 def _result(prof, game, gC, low, high, named, evals, tol):

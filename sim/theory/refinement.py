@@ -24,7 +24,7 @@ from .practice import lowest_threshold, named_thresholds, sustainable_frontier
 __all__ = ["GridRefinement", "RefinementRow", "grid_refinement"]
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class RefinementRow:
     """The answers on one grid.
 
@@ -58,7 +58,12 @@ class RefinementRow:
     stick_carrot: float
 
     def to_dict(self) -> dict:
-        """Plain data that :meth:`from_dict` restores."""
+        """Plain data that :meth:`from_dict` restores.
+
+        Returns
+        -------
+        dict
+        """
         return {"n_actions": list(self.n_actions), "status": self.status, "accuracy": plain_number(self.accuracy),
                 "worst": plain(self.worst), "joint": plain(self.joint), "symmetric": plain(self.symmetric),
                 "threshold": plain(self.threshold), "grim": plain_number(self.grim),
@@ -82,7 +87,7 @@ class RefinementRow:
                    number(data["grim"]), number(data["stick_carrot"]))
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class GridRefinement:
     """A table of the payoff-set answers over grid sizes.
 
@@ -99,7 +104,12 @@ class GridRefinement:
     rows: tuple
 
     def to_dict(self) -> dict:
-        """Plain data that :meth:`from_dict` restores."""
+        """Plain data that :meth:`from_dict` restores.
+
+        Returns
+        -------
+        dict
+        """
         return {"delta": self.delta, "agreement": self.agreement, "rows": [r.to_dict() for r in self.rows]}
 
     @classmethod
