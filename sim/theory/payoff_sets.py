@@ -394,29 +394,24 @@ def _grow_exact(G, gains, delta, outer, tol_abs, max_iter, scale):
 
 
 def _solve_directions(G, gains, delta, D, nash_idx, tol_abs, max_iter, scale):
-    """Supporting-hyperplane outer sequence and generated-point inner sequence (same resumption rule
-    as :func:`_solve_exact`)."""
+    """Supporting-hyperplane outer sequence and generated-point inner sequence. Unlike the exact
+    method, the outer sequence is not resumed while the bracket is wide: with finitely many
+    directions the gap is mostly the directions' own, which more outer steps do not close."""
     n = G.shape[1]
     inflate = max(0.5 * tol_abs, 1e-10 * scale)
     # the inner set is pushed out in more directions than the outer one is cut in: each is cheap, and
     # ties on flat faces resolve into more of its vertices
     D_in = pt.extend_directions(D, _INNER_FACTOR * D.shape[0])
-    stop, used, levels = tol_abs * (1.0 - delta), 0, None
-    for _ in range(_ROUNDS):
-        levels, k, conv_o = it.directions_outer(G, gains, delta, D, tol_abs, stop, max_iter - used, scale, levels)
-        used += k
-        if levels is None:
-            return np.zeros((0, n)), np.full(D.shape[0], np.nan), _NONE(n), "none", 0.0, used, True
-        outer = it.outer_corners(D, levels, scale, inflate)
+    levels, used, conv_o = it.directions_outer(G, gains, delta, D, tol_abs, tol_abs * (1.0 - delta), max_iter,
+                                               scale)
+    if levels is None:
+        return np.zeros((0, n)), np.full(D.shape[0], np.nan), _NONE(n), "none", 0.0, used, True
+    outer = it.outer_corners(D, levels, scale, inflate)
 
-        def grow(start, punish, levels=levels):
-            return it.directions_inner(G, gains, delta, D_in, start, levels, tol_abs, max_iter, scale, punish)
+    def grow(start, punish):
+        return it.directions_inner(G, gains, delta, D_in, start, levels, tol_abs, max_iter, scale, punish)
 
-        inner, certificate = _inner(G, gains, delta, outer, nash_idx, grow, tol_abs)
-        gap = float(np.max(levels - (inner[0] @ D.T).max(axis=0))) if inner[0].shape[0] else np.inf
-        if gap <= 10 * tol_abs or used >= max_iter:
-            break
-        stop *= 1e-3
+    inner, certificate = _inner(G, gains, delta, outer, nash_idx, grow, tol_abs)
     return outer, levels, inner, certificate, it.hausdorff(inner[0], outer), used, conv_o
 
 
