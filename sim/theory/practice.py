@@ -38,6 +38,7 @@ __all__ = [
     "Frontier",
     "PenalCode",
     "agreement_profile",
+    "convex_weights",
     "lowest_threshold",
     "named_thresholds",
     "penal_codes",
