@@ -1,0 +1,396 @@
+"""The static (one-shot) equilibrium of price competition with capacity constraints.
+
+Pure-strategy equilibria (``K`` total capacity, ``k_L`` the largest capacity, ``c`` the cost):
+
+* market clearing: every firm sells its capacity at ``P(K)``. With inelastic demand this holds when
+  ``K <= M`` (at the price ``v``). With linear demand and efficient rationing it holds when the
+  largest firm would not raise its price above ``P(K)``: its residual marginal revenue at capacity is
+  not negative, ``P(K) - c >= (v / M) k_L`` (Kreps and Scheinkman, 1983, the capacities inside the
+  Cournot best responses); with proportional rationing a firm that raises its price keeps the share
+  ``k_i / K`` of every consumer group and the condition is ``P(K) >= (v + c) / 2`` (Davidson and
+  Deneckere, 1986).
+* price equal to cost: the rivals of every firm can serve the whole demand at cost,
+  ``K - k_L >= D(c)`` (both rationing rules).
+
+Otherwise there is no pure-strategy equilibrium and the firms mix (Bertrand-Edgeworth). With
+efficient rationing the largest firm's equilibrium payoff is its residual-monopoly profit
+``max_p (p - c) min(k_L, D(p) - (K - k_L))``, earned at the top of the support ``p_high`` (its
+residual-monopoly price); the bottom of the support ``p_low`` solves
+``(p_low - c) min(k_L, D(p_low)) = payoff_L`` (Kreps and Scheinkman, 1983; Osborne and Pitchik, 1986,
+JET 38(2), for the duopoly with any capacities; De Francesco and Salvadori, 2010, and Hirata, 2009,
+B.E. Journal of Theoretical Economics 9(1), for more firms, where smaller firms can earn more than
+``(p_low - c) k_i``).
+
+Methods
+-------
+``closed_form``: the duopoly (Osborne and Pitchik, 1986: each firm's distribution from the other's
+indifference, the larger firm with an atom at ``p_high`` when capacities differ).
+``symmetric``: n firms of equal capacity (a common distribution from the indifference condition,
+solved at each price by a root finder).
+``numeric``: otherwise, the game on a price grid solved by following the logit quantal-response
+path to high precision (McKelvey and Palfrey, 1995, Games and Economic Behavior 10(1); Turocy, 2005,
+Games and Economic Behavior 51(2)) with Newton steps, a coarse grid first and a fine grid over the
+support it finds; the answer is certified by the largest gain any firm could make by deviating to
+any price (grid prices, prices just below them, and a fine sweep), reported as ``max_gain``.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import optimize
+
+from ..errors import InputError, SolverError
+from ._capacity_core import CapacitySpec, sales
+
+__all__ = ["StaticEquilibrium", "static_equilibrium"]
+
+#: largest number of firms for the numeric mixed equilibrium (3**(n-1) rival configurations)
+MAX_NUMERIC_FIRMS = 8
+
+
+@dataclass(frozen=True)
+class StaticEquilibrium:
+    """The static equilibrium of a capacity-constrained price game.
+
+    Attributes
+    ----------
+    kind : {"market_clearing", "cost_pricing", "mixed"}
+    method : {"pure", "closed_form", "symmetric", "numeric"}
+    payoffs : ndarray of shape (n_firms,)
+        Expected profit of each firm.
+    support_low, support_high : ndarray of shape (n_firms,)
+        Lowest and highest price each firm charges (equal for a pure strategy).
+    atoms : ndarray of shape (n_firms,)
+        Probability each firm puts on its highest price ``support_high`` (1 for a pure strategy).
+    prices : ndarray of shape (n_points,)
+        Price grid on which the distribution functions are given.
+    cdf : ndarray of shape (n_firms, n_points)
+        ``cdf[i, t]``: probability that firm i charges at most ``prices[t]``.
+    max_gain : float
+        Largest gain (relative to the largest payoff) any firm could make by deviating from the
+        distributions as given (0 for the pure and closed-form cases up to rounding).
+    notes : tuple of str
+    """
+
+    kind: str
+    method: str
+    payoffs: np.ndarray
+    support_low: np.ndarray
+    support_high: np.ndarray
+    atoms: np.ndarray
+    prices: np.ndarray
+    cdf: np.ndarray
+    max_gain: float = 0.0
+    notes: tuple = field(default_factory=tuple)
+
+    @property
+    def pure(self) -> bool:
+        return self.kind != "mixed"
+
+    def cdf_at(self, p) -> np.ndarray:
+        """Distribution functions at prices ``p``, shape (n_firms, len(p)) (right-continuous steps
+        between grid points for the numeric method, linear interpolation otherwise, with a firm's atom
+        at the top of its support kept as a jump)."""
+        p = np.atleast_1d(np.asarray(p, dtype=float))
+        out = np.empty((self.cdf.shape[0], p.size))
+        for i in range(self.cdf.shape[0]):
+            if self.method == "numeric":
+                k = np.searchsorted(self.prices, p, side="right") - 1
+                out[i] = np.where(k >= 0, self.cdf[i][np.clip(k, 0, None)], 0.0)
+            else:
+                # the atom at the top is not spread over the last interval: interpolate the left limit
+                left = self.cdf[i].copy()
+                left[-1] = 1.0 - self.atoms[i]
+                out[i] = np.interp(p, self.prices, left, left=0.0, right=1.0)
+                out[i] = np.where(p >= self.support_high[i], 1.0, out[i])
+        return out
+
+    def expected_prices(self) -> np.ndarray:
+        """Mean price of each firm, shape (n_firms,)."""
+        if self.pure:
+            return self.support_low.copy()
+        dF = np.diff(np.concatenate([np.zeros((self.cdf.shape[0], 1)), self.cdf], axis=1), axis=1)
+        if self.method == "numeric":
+            return dF @ self.prices
+        mid = np.concatenate([[self.prices[0]], 0.5 * (self.prices[1:] + self.prices[:-1])])
+        dF[:, -1] -= self.atoms  # the atom sits at the top, not in the middle of the last interval
+        return (dF * mid[None, :]).sum(axis=1) + self.atoms * self.support_high
+
+    def to_dict(self) -> dict:
+        return {
+            "kind": self.kind, "method": self.method, "payoffs": self.payoffs.tolist(),
+            "support_low": self.support_low.tolist(), "support_high": self.support_high.tolist(),
+            "atoms": self.atoms.tolist(), "prices": self.prices.tolist(), "cdf": self.cdf.tolist(),
+            "max_gain": self.max_gain, "notes": list(self.notes),
+        }
+
+    @classmethod
+    def from_dict(cls, d: dict) -> StaticEquilibrium:
+        """Inverse of :meth:`to_dict`."""
+        arr = lambda k: np.asarray(d[k], dtype=float)  # noqa: E731
+        return cls(d["kind"], d["method"], arr("payoffs"), arr("support_low"), arr("support_high"), arr("atoms"),
+                   arr("prices"), np.asarray(d["cdf"], dtype=float).reshape(len(d["payoffs"]), -1),
+                   float(d["max_gain"]), tuple(d["notes"]))
+
+
+# --------------------------------------------------------------------------------------------------
+# Regions
+# --------------------------------------------------------------------------------------------------
+
+
+def market_clearing(spec: CapacitySpec) -> bool:
+    """True when every firm selling its capacity at the market-clearing price is an equilibrium."""
+    K, kL, c = spec.total_capacity, float(spec.capacity.max()), spec.cost
+    if not spec.linear:
+        return K <= spec.market_size
+    p = spec.clearing_price(K)
+    if spec.rationing == "efficient":
+        return p - c >= spec.reservation_price / spec.market_size * kL
+    return p >= spec.monopoly_price
+
+
+def cost_pricing(spec: CapacitySpec) -> bool:
+    """True when the rivals of every firm can serve the whole demand at cost (price = cost)."""
+    return spec.total_capacity - float(spec.capacity.max()) >= float(spec.quantity(spec.cost))
+
+
+def residual_monopoly(spec: CapacitySpec, i: int) -> tuple[float, float]:
+    """Price and profit of firm ``i`` as a monopolist on what its rivals leave when they sell their
+    whole capacities first (efficient rationing), shape: two floats."""
+    return spec.best_against_residual(float(spec.capacity[i]), 1.0, spec.total_capacity - float(spec.capacity[i]))
+
+
+# --------------------------------------------------------------------------------------------------
+# Public entry
+# --------------------------------------------------------------------------------------------------
+
+
+def static_equilibrium(spec: CapacitySpec, method: str | None = None, n_grid: int = 81) -> StaticEquilibrium:
+    """The static equilibrium (see the module notes).
+
+    Parameters
+    ----------
+    spec : CapacitySpec
+    method : {None, "closed_form", "symmetric", "numeric"}
+        Force a method for the mixed region (None: the closed form where one exists).
+    n_grid : int
+        Price points of the fine grid of the numeric method.
+
+    Returns
+    -------
+    StaticEquilibrium
+    """
+    key = ("static", method, n_grid)
+    if key in spec._cache:
+        return spec._cache[key]
+    n = spec.n_firms
+    if market_clearing(spec):
+        p = spec.clearing_price(spec.total_capacity) if spec.linear else spec.reservation_price
+        out = _pure(spec, "market_clearing", p, spec.capacity * (p - spec.cost))
+    elif cost_pricing(spec):
+        out = _pure(spec, "cost_pricing", spec.cost, np.zeros(n))
+    else:
+        if method is None:
+            if n == 2 and (spec.rationing == "efficient" or not spec.linear):
+                method = "closed_form"
+            elif np.all(spec.capacity == spec.capacity[0]) and (spec.rationing == "efficient" or not spec.linear):
+                method = "symmetric"
+            else:
+                method = "numeric"
+        if method in ("closed_form", "symmetric") and spec.linear and spec.rationing == "proportional":
+            raise InputError("market.rationing", "the closed forms of the mixed equilibrium assume efficient "
+                                                 "rationing; use the numeric method")
+        if method == "closed_form":
+            if n != 2:
+                raise InputError("method", f"the closed form is for two firms, the market has {n}")
+            out = _duopoly(spec)
+        elif method == "symmetric":
+            if not np.all(spec.capacity == spec.capacity[0]):
+                raise InputError("method", "the symmetric form needs equal capacities")
+            out = _symmetric(spec)
+        elif method == "numeric":
+            from ._capacity_numeric import numeric_equilibrium
+
+            out = numeric_equilibrium(spec, n_grid)
+        else:
+            raise InputError("method", f"must be one of 'closed_form', 'symmetric', 'numeric', got {method!r}")
+    spec._cache[key] = out
+    return out
+
+
+def _pure(spec, kind, price, payoffs):
+    n = spec.n_firms
+    p = np.full(n, float(price))
+    return StaticEquilibrium(kind, "pure", np.asarray(payoffs, float), p, p.copy(), np.ones(n), np.array([price]),
+                             np.ones((n, 1)))
+
+
+def _lowest_price(spec: CapacitySpec, k: float, payoff: float, p_high: float) -> float:
+    """``p_low`` solving ``(p - c) min(k, D(p)) = payoff`` on ``[c, p_high]`` (the left side rises
+    there because ``p_high`` is at most the price that maximises it)."""
+    c = spec.cost
+    p = c + payoff / k
+    if float(spec.quantity(p)) >= k:
+        return p
+
+    def g(x):
+        return (x - c) * min(k, float(spec.quantity(x))) - payoff
+
+    return float(optimize.brentq(g, c, p_high, xtol=1e-15 * max(1.0, p_high), rtol=1e-15, maxiter=500))
+
+
+def _duopoly(spec: CapacitySpec, n_points: int = 401) -> StaticEquilibrium:
+    """Mixed equilibrium of the duopoly with efficient rationing (Kreps and Scheinkman, 1983;
+    Osborne and Pitchik, 1986). ``L`` is the larger firm, ``S`` the smaller:
+
+    * ``p_high`` = L's residual-monopoly price, ``payoff_L = (p_high - c)(D(p_high) - k_S)``;
+    * ``p_low`` from ``(p_low - c) min(k_L, D(p_low)) = payoff_L``; ``payoff_S = (p_low - c) min(k_S,
+      D(p_low))``;
+    * on ``[p_low, p_high)``, S's distribution makes L indifferent,
+      ``F_S(p) = ((p - c) min(k_L, D) - payoff_L) / ((p - c) (min(k_L, D) - min(k_L, (D - k_S)+)))``,
+      and L's makes S indifferent, ``F_L(p) = ((p - c) min(k_S, D) - payoff_S) / ((p - c) (min(k_S, D)
+      - min(k_S, (D - k_L)+)))``; L puts the rest, ``1 - F_L(p_high-)``, on ``p_high`` (zero when the
+      capacities are equal).
+    """
+    k = spec.capacity
+    L = int(np.argmax(k))
+    S = 1 - L
+    kL, kS, c = float(k[L]), float(k[S]), spec.cost
+    p_high, pay_L = spec.best_against_residual(kL, 1.0, kS)
+    p_low = _lowest_price(spec, kL, pay_L, p_high)
+    pay_S = (p_low - c) * min(kS, float(spec.quantity(p_low)))
+    p = np.linspace(p_low, p_high, n_points)
+    D = spec.quantity(p)
+    m = p - c
+    num_S = m * np.minimum(kL, D) - pay_L
+    den_S = m * (np.minimum(kL, D) - np.minimum(kL, np.maximum(0.0, D - kS)))
+    num_L = m * np.minimum(kS, D) - pay_S
+    den_L = m * (np.minimum(kS, D) - np.minimum(kS, np.maximum(0.0, D - kL)))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        F_S = np.clip(np.where(den_S > 0, num_S / den_S, 1.0), 0.0, 1.0)
+        F_L = np.clip(np.where(den_L > 0, num_L / den_L, 1.0), 0.0, 1.0)
+    F_S[0], F_L[0] = 0.0, 0.0
+    F_S[-1] = 1.0
+    atom_L = 1.0 - F_L[-1]
+    if kL == kS:
+        atom_L = 0.0
+    F_L[-1] = 1.0
+    cdf = np.empty((2, n_points))
+    cdf[L], cdf[S] = F_L, F_S
+    payoffs = np.empty(2)
+    payoffs[L], payoffs[S] = pay_L, pay_S
+    atoms = np.zeros(2)
+    atoms[L] = atom_L
+    both = np.full(2, p_low), np.full(2, p_high)
+    return StaticEquilibrium("mixed", "closed_form", payoffs, both[0], both[1], atoms, p, cdf)
+
+
+def _symmetric(spec: CapacitySpec, n_points: int = 401) -> StaticEquilibrium:
+    """Mixed equilibrium of n firms of equal capacity ``k`` (efficient rationing): the payoff is the
+    residual-monopoly profit ``max_p (p - c) min(k, D(p) - (n-1) k)``, the support runs from ``p_low``
+    (``(p_low - c) min(k, D(p_low))`` = payoff) to the residual-monopoly price, and the common
+    distribution F solves, at every price, the indifference condition
+    ``sum_m C(n-1, m) F^m (1-F)^(n-1-m) (p - c) min(k, (D(p) - m k)+) = payoff``
+    (m = number of rivals priced below), whose left side falls in F."""
+    n = spec.n_firms
+    k = float(spec.capacity[0])
+    p_high, pay = spec.best_against_residual(k, 1.0, (n - 1) * k)
+    p_low = _lowest_price(spec, k, pay, p_high)
+    p = np.linspace(p_low, p_high, n_points)
+    binom = np.array([math.comb(n - 1, m) for m in range(n)], dtype=float)
+    F = np.empty(n_points)
+    F[0], F[-1] = 0.0, 1.0
+    for t in range(1, n_points - 1):
+        D = float(spec.quantity(p[t]))
+        q = np.minimum(k, np.maximum(0.0, D - k * np.arange(n)))
+        m_idx = np.arange(n)
+
+        def h(f, q=q, t=t, m_idx=m_idx):
+            return (p[t] - spec.cost) * float((binom * f**m_idx * (1 - f) ** (n - 1 - m_idx) * q).sum()) - pay
+
+        F[t] = 1.0 if h(1.0) >= 0 else (0.0 if h(0.0) <= 0 else optimize.brentq(h, 0.0, 1.0, xtol=1e-15))
+    F = np.maximum.accumulate(F)
+    cdf = np.repeat(F[None, :], n, axis=0)
+    return StaticEquilibrium("mixed", "symmetric", np.full(n, pay), np.full(n, p_low), np.full(n, p_high),
+                             np.zeros(n), p, cdf)
+
+
+# --------------------------------------------------------------------------------------------------
+# Expected payoffs against mixed strategies (used by the numeric method and its certificate)
+# --------------------------------------------------------------------------------------------------
+
+
+def expected_payoffs(spec: CapacitySpec, x: np.ndarray, grid: np.ndarray, sigma: np.ndarray) -> np.ndarray:
+    """Expected profit of each firm charging each price in ``x`` while its rivals mix over ``grid``.
+
+    Parameters
+    ----------
+    spec : CapacitySpec
+    x : ndarray of shape (n_x,)
+        Candidate prices.
+    grid : ndarray of shape (G,)
+        Increasing prices the rivals mix over.
+    sigma : ndarray of shape (n_firms, G)
+        Probabilities of each firm on the grid.
+
+    Returns
+    -------
+    ndarray of shape (n_firms, n_x)
+    """
+    n = spec.n_firms
+    x = np.asarray(x, dtype=float)
+    out = np.zeros((n, x.size))
+    if spec.rationing == "efficient" or not spec.linear:
+        cs = np.concatenate([np.zeros((n, 1)), np.cumsum(sigma, axis=1)], axis=1)
+        lo = np.searchsorted(grid, x, side="left")
+        hi = np.searchsorted(grid, x, side="right")
+        below = cs[:, lo]
+        tied = cs[:, hi] - cs[:, lo]
+        above = cs[:, -1:] - cs[:, hi]
+        probs = np.stack([below, tied, above], axis=1)  # (n, 3, n_x)
+        D = spec.quantity(x)
+        cap = spec.capacity
+        for i in range(n):
+            rivals = [j for j in range(n) if j != i]
+            for cfg in itertools.product((0, 1, 2), repeat=n - 1):
+                pr = np.ones(x.size)
+                S, T = 0.0, float(cap[i])
+                for j, s in zip(rivals, cfg):
+                    pr = pr * probs[j, s]
+                    if s == 0:
+                        S += cap[j]
+                    elif s == 1:
+                        T += cap[j]
+                q = np.minimum(T, np.maximum(0.0, D - S)) * cap[i] / T
+                out[i] += pr * (x - spec.cost) * q
+        return out
+    if n != 2:
+        raise InputError("market.rationing", "with proportional rationing and linear demand the mixed "
+                                             "equilibrium is computed for two firms only")
+    for i in range(2):
+        j = 1 - i
+        prof = np.empty((x.size, grid.size, 2))
+        prof[:, :, i] = x[:, None]
+        prof[:, :, j] = grid[None, :]
+        q = sales(spec, prof)[:, :, i]
+        out[i] = ((x[:, None] - spec.cost) * q) @ sigma[j]
+    return out
+
+
+def certificate(spec: CapacitySpec, grid: np.ndarray, sigma: np.ndarray, payoffs: np.ndarray) -> float:
+    """Largest gain, relative to the largest payoff, that any firm makes by deviating from the mixed
+    strategies ``sigma`` on ``grid`` to a price at a grid point, just below one, or on a fine sweep of
+    ``[c, v]``."""
+    step = 1e-9 * max(1.0, spec.reservation_price)
+    x = np.unique(np.concatenate([grid, grid - step, np.linspace(spec.cost, spec.reservation_price, 2001)]))
+    x = x[(x >= spec.cost) & (x <= spec.reservation_price)]
+    best = expected_payoffs(spec, x, grid, sigma).max(axis=1)
+    scale = max(1e-300, float(np.max(payoffs)))
+    gain = float(np.max(best - payoffs)) / scale
+    if not np.isfinite(gain):
+        raise SolverError("mixed equilibrium: the deviation check produced a non-finite value")
+    return max(0.0, gain)
