@@ -196,7 +196,7 @@ def concentration_screen(shares, merging) -> ConcentrationScreen:
 # --------------------------------------------------------------------------------------------------
 
 
-def _grim(market) -> tuple[float, int]:
+def _grim(market, agreement: str = "joint") -> tuple[float, int]:
     """Market-level grim-trigger threshold and binding firm (nan when a firm cannot be held)."""
     if hasattr(market, "critical_discount_factors"):
         try:
@@ -207,7 +207,7 @@ def _grim(market) -> tuple[float, int]:
                 return 0.0, int(np.argmax(market.spec().capacity))
             raise
         return float(a.grim_market), int(a.grim_binding)
-    st = stage_game(market)
+    st = stage_game(market, agreement)
     per = grim_threshold(st.collusive.firm_profits, st.deviation_profits, st.nash.firm_profits)
     if np.any(np.isnan(per)):
         return math.nan, int(np.flatnonzero(np.isnan(per))[0])
@@ -277,7 +277,7 @@ def _num(x: float):
     return None if not math.isfinite(x) else float(x)
 
 
-def pair_thresholds(market, names=None) -> PairTable:
+def pair_thresholds(market, names=None, agreement: str = "joint") -> PairTable:
     """Change in the grim-trigger critical discount factor if each pair of firms merged.
 
     Parameters
@@ -285,6 +285,10 @@ def pair_thresholds(market, names=None) -> PairTable:
     market : Market or CapacityPricing
         At least three firms (two remain after a merger).
     names : list of str, optional
+    agreement : str
+        The collusive agreement of a :class:`~sim.market.Market` (see
+        :func:`sim.equilibrium.collusive_outcome`); the capacity model uses shares proportional to
+        capacity.
 
     Returns
     -------
@@ -295,13 +299,13 @@ def pair_thresholds(market, names=None) -> PairTable:
         raise InputError("market.n_firms", f"a two-firm merger leaves a monopoly in a market of {n} firms; "
                                            "the pair table needs three or more")
     nm = _names(market, names)
-    before, _ = _grim(market)
+    before, _ = _grim(market, agreement)
     after = np.full((n, n), np.nan)
     bind = [[""] * n for _ in range(n)]
     for i in range(n):
         for j in range(i + 1, n):
             post = _merged(market, i, j)
-            t, b = _grim(post)
+            t, b = _grim(post, agreement)
             post_names = [nm[k] for k in range(n) if k != j]
             post_names[i] = f"{nm[i]} + {nm[j]}"
             after[i, j] = after[j, i] = t
@@ -369,7 +373,8 @@ class Maverick:
     without : ndarray of shape (n_firms,)
         Threshold without each firm.
     presence : ndarray of shape (n_firms,)
-        ``threshold - without``: how much each firm's presence raises the threshold.
+        ``threshold - without``: how much each firm's presence raises the threshold (``nan``
+        thresholds counted as 1).
     firm : int
         Index of the maverick (-1 when no firm's presence raises the threshold).
     reason : str
@@ -396,14 +401,19 @@ class Maverick:
                    arr(d["without"]), arr(d["presence"]), int(d["firm"]), d["reason"], tuple(d["notes"]))
 
 
-def maverick(market, names=None) -> Maverick:
+def maverick(market, names=None, agreement: str = "joint") -> Maverick:
     """Find the maverick and say what differs about it.
+
+    A threshold that no discount factor below one reaches counts as 1 in the comparison (the firm's
+    presence makes collusion impossible rather than harder).
 
     Parameters
     ----------
     market : Market or CapacityPricing
         At least three firms.
     names : list of str, optional
+    agreement : str
+        The collusive agreement of a :class:`~sim.market.Market`.
 
     Returns
     -------
@@ -414,9 +424,9 @@ def maverick(market, names=None) -> Maverick:
         raise InputError("market.n_firms", f"removing a firm from {n} firms leaves a monopoly; the maverick "
                                            "analysis needs three or more")
     nm = _names(market, names)
-    base, binding = _grim(market)
-    without = np.array([_grim(_without(market, i))[0] for i in range(n)])
-    presence = base - without
+    base, binding = _grim(market, agreement)
+    without = np.array([_grim(_without(market, i), agreement)[0] for i in range(n)])
+    presence = np.nan_to_num(base, nan=1.0) - np.nan_to_num(without, nan=1.0)
     if not np.any(np.isfinite(presence)) or np.nanmax(presence) <= 0:
         return Maverick(tuple(nm), base, without, presence, -1, "no firm's presence raises the threshold")
     k = int(np.nanargmax(presence))
