@@ -38,6 +38,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import stats
 
+from .._text import CAUTION
 from ..errors import InputError, SolverError
 from ..metrics import wilson_estimate
 
@@ -227,7 +228,7 @@ class SobolResult:
                 "total": conv(self.total), "first_low": conv(self.first_low), "first_high": conv(self.first_high),
                 "total_low": conv(self.total_low), "total_high": conv(self.total_high), "confidence": self.confidence,
                 "n_base": self.n_base, "n_evaluations": self.n_evaluations, "seed": self.seed,
-                "mean": dict(self.mean), "std": dict(self.std)}
+                "mean": dict(self.mean), "std": dict(self.std), "caution": CAUTION}
 
     @classmethod
     def from_dict(cls, d: dict) -> SobolResult:
@@ -401,12 +402,12 @@ class ShareResult:
     confidence: float
 
     def to_dict(self) -> dict:
-        return dict(self.__dict__)
+        return {**self.__dict__, "caution": CAUTION}
 
     @classmethod
     def from_dict(cls, d: dict) -> ShareResult:
         """Inverse of :meth:`to_dict`."""
-        return cls(**d)
+        return cls(**{k: v for k, v in d.items() if k != "caution"})
 
 
 def share_easier(model, inputs: dict, n_draws: int = 4096, seed: int = 0, before: str = "before",

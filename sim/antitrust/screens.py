@@ -46,6 +46,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .._params import PerFirm, optional
+from .._text import CAUTION
 from ..equilibrium import stage_game
 from ..errors import InputError
 from ..merger import Merger, merge
@@ -137,12 +138,12 @@ class ConcentrationScreen:
     us_note: str
 
     def to_dict(self) -> dict:
-        return dict(self.__dict__)
+        return {**self.__dict__, "caution": CAUTION}
 
     @classmethod
     def from_dict(cls, d: dict) -> ConcentrationScreen:
         """Inverse of :meth:`to_dict`."""
-        return cls(**d)
+        return cls(**{k: v for k, v in d.items() if k != "caution"})
 
 
 def concentration_screen(shares, merging) -> ConcentrationScreen:
@@ -263,7 +264,8 @@ class PairTable:
     def to_dict(self) -> dict:
         return {"names": list(self.names), "before": _num(self.before),
                 "after": [[_num(x) for x in r] for r in self.after],
-                "change": [[_num(x) for x in r] for r in self.change], "binding_after": self.binding_after}
+                "change": [[_num(x) for x in r] for r in self.change], "binding_after": self.binding_after,
+                "caution": CAUTION}
 
     @classmethod
     def from_dict(cls, d: dict) -> PairTable:
@@ -391,7 +393,7 @@ class Maverick:
     def to_dict(self) -> dict:
         return {"names": list(self.names), "threshold": _num(self.threshold),
                 "without": [_num(x) for x in self.without], "presence": [_num(x) for x in self.presence],
-                "firm": self.firm, "reason": self.reason, "notes": list(self.notes)}
+                "firm": self.firm, "reason": self.reason, "notes": list(self.notes), "caution": CAUTION}
 
     @classmethod
     def from_dict(cls, d: dict) -> Maverick:

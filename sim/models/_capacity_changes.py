@@ -24,6 +24,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .._text import CAUTION
 from ..errors import InputError
 from ._capacity_collusion import CollusionAnalysis
 
@@ -104,7 +105,7 @@ class CapacityChange:
                 "symmetry_before": dict(self.symmetry_before), "symmetry_after": dict(self.symmetry_after),
                 "binding_before": self.binding_before, "binding_after": self.binding_after,
                 "binding_changed": self.binding_changed, "grim_change": none(self.grim_change),
-                "harshest_change": none(self.harshest_change)}
+                "harshest_change": none(self.harshest_change), "caution": CAUTION}
 
     @classmethod
     def from_dict(cls, d: dict) -> CapacityChange:

@@ -38,6 +38,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import optimize
 
+from .._text import CAUTION
 from ..errors import InputError
 from ._capacity_core import CapacitySpec
 from ._capacity_static import static_equilibrium
@@ -114,6 +115,10 @@ class CollusionAnalysis:
         Index (0-based) of the binding firm.
     nash_is_minmax : ndarray of bool, shape (n_firms,)
         Firms for which Nash reversion is already the harshest punishment.
+    grim_ties, harshest_ties : tuple of int
+        Every firm whose threshold equals the market's to within the accuracy of the computation
+        (agreements with shares proportional to capacity often give several firms the same
+        threshold; then the binding firm is one of them and the others bind as much).
     notes : tuple of str
     """
 
@@ -133,6 +138,8 @@ class CollusionAnalysis:
     grim_binding: int
     harshest_binding: int
     nash_is_minmax: np.ndarray
+    grim_ties: tuple = ()
+    harshest_ties: tuple = ()
     notes: tuple = field(default_factory=tuple)
 
     @property
@@ -149,7 +156,8 @@ class CollusionAnalysis:
             "grim": [_none(x) for x in self.grim], "harshest": [_none(x) for x in self.harshest],
             "grim_market": _none(self.grim_market), "harshest_market": _none(self.harshest_market),
             "grim_binding": self.grim_binding, "harshest_binding": self.harshest_binding,
-            "nash_is_minmax": [bool(x) for x in self.nash_is_minmax], "notes": list(self.notes),
+            "nash_is_minmax": [bool(x) for x in self.nash_is_minmax], "grim_ties": list(self.grim_ties),
+            "harshest_ties": list(self.harshest_ties), "notes": list(self.notes), "caution": CAUTION,
         }
 
     @classmethod
@@ -161,7 +169,8 @@ class CollusionAnalysis:
                    arr("deviation_prices"), tuple(d["deviation_kinds"]), d["static_kind"], arr("nash_profits"),
                    arr("minmax_profits"), nan_arr("grim"), nan_arr("harshest"), _nan(d["grim_market"]),
                    _nan(d["harshest_market"]), int(d["grim_binding"]), int(d["harshest_binding"]),
-                   np.asarray(d["nash_is_minmax"], bool), tuple(d["notes"]))
+                   np.asarray(d["nash_is_minmax"], bool), tuple(d["grim_ties"]), tuple(d["harshest_ties"]),
+                   tuple(d["notes"]))
 
 
 # --------------------------------------------------------------------------------------------------
@@ -348,11 +357,14 @@ def threshold(collusive, deviation, punishment) -> np.ndarray:
                                                        np.where(loss <= tol, np.nan, gain / (gain + loss))))
 
 
-def _market(per_firm: np.ndarray) -> tuple[float, int]:
+def _market(per_firm: np.ndarray, tol: float = 1e-9) -> tuple[float, int, tuple]:
+    """Market threshold, binding firm and the firms tied with it (within ``tol``)."""
     if np.any(np.isnan(per_firm)):
-        return math.nan, int(np.flatnonzero(np.isnan(per_firm))[0])
+        bad = np.flatnonzero(np.isnan(per_firm))
+        return math.nan, int(bad[0]), tuple(int(i) for i in bad)
     k = int(np.argmax(per_firm))
-    return float(per_firm[k]), k
+    ties = tuple(int(i) for i in np.flatnonzero(per_firm >= per_firm[k] - tol))
+    return float(per_firm[k]), k, ties
 
 
 def collusion_analysis(spec: CapacitySpec, rule: str = "proportional", shares=None, price=None,
@@ -378,8 +390,9 @@ def collusion_analysis(spec: CapacitySpec, rule: str = "proportional", shares=No
     mm = minmax_payoffs(spec)
     grim = threshold(agreed.profits, dev, nash)
     harsh = threshold(agreed.profits, dev, mm)
-    gm, gb = _market(grim)
-    hm, hb = _market(harsh)
+    # a numeric static equilibrium is accurate to about its certificate: thresholds that close tie
+    gm, gb, gt = _market(grim, 1e-9 + (10 * eq.max_gain if eq.method == "numeric" else 0.0))
+    hm, hb, ht = _market(harsh)
     scale = max(1.0, float(np.abs(nash).max()))
     same = np.abs(nash - mm) <= 1e-9 * scale + max(eq.max_gain, 0.0) * scale
     notes = []
@@ -387,7 +400,7 @@ def collusion_analysis(spec: CapacitySpec, rule: str = "proportional", shares=No
         notes.append(f"static equilibrium computed on a price grid; largest gain from deviating from it "
                      f"{eq.max_gain:.2%} of the largest payoff")
     return CollusionAnalysis(spec.names, spec.capacity.copy(), agreed, dev, dev_p, kinds, eq.kind, nash, mm, grim,
-                             harsh, gm, hm, gb, hb, same, tuple(notes))
+                             harsh, gm, hm, gb, hb, same, gt, ht, tuple(notes))
 
 
 def partial_cartels(spec: CapacitySpec, members: np.ndarray, sharing: str = "own") -> dict:

@@ -40,6 +40,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .._text import CAUTION
 from ..equilibrium import best_response, collusive_outcome, static_nash
 from ..errors import InputError
 from ..market import Market, MarketSpec
@@ -151,7 +152,8 @@ class CartelTable:
         none = lambda a: [[None if not math.isfinite(x) else float(x) for x in r] for r in a]  # noqa: E731
         return {"names": list(self.names), "members": self.members.tolist(), "profits": self.profits.tolist(),
                 "deviation": none(self.deviation), "nash": self.nash.tolist(), "thresholds": none(self.thresholds),
-                "requested": self.requested.tolist(), "sharing": self.sharing, "notes": list(self.notes)}
+                "requested": self.requested.tolist(), "sharing": self.sharing, "notes": list(self.notes),
+                "caution": CAUTION}
 
     @classmethod
     def from_dict(cls, d: dict) -> CartelTable:
@@ -365,7 +367,8 @@ class CartelWorry:
     explanation: str
 
     def to_dict(self) -> dict:
-        return {"delta": self.delta, "rows": self.rows, "worry": self.worry, "explanation": self.explanation}
+        return {"delta": self.delta, "rows": self.rows, "worry": self.worry, "explanation": self.explanation,
+                "caution": CAUTION}
 
     @classmethod
     def from_dict(cls, d: dict) -> CartelWorry:

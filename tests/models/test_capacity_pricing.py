@@ -446,3 +446,28 @@ def test_results_round_trip_through_json():
     ch = m.compare(m.move_capacity(1, 10.0, target=2), "transfer")
     assert CapacityChange.from_dict(json.loads(json.dumps(ch.to_dict()))).to_dict() == ch.to_dict()
     assert math.isclose(ch.grim_change, ch.after.grim_market - ch.before.grim_market)
+
+
+def test_kiln_merger_with_a_capacity_transfer_changes_the_binding_firm():
+    """An invented region supplied with lime by four kilns (capacities 400, 350, 350, 200 kt a year),
+    linear demand with reservation price 120 and 1,000 kt at price zero, cost 40. The joint-profit
+    price is (120 + 40) / 2 = 80, where 1000 (1 - 80/120) = 1000/3 kt sell. The rivals of every kiln
+    could serve the whole demand at cost (K - k_max = 900 >= D(40) = 2000/3): the static price is
+    the cost and every punishment payoff is 0. So (Friedman, 1971, grim trigger; worked by hand)
+    delta_i = 1 - pi_C / pi_D with pi_C = 40 (k_i / K) D(80) and pi_D = 40 min(k_i, D(80)):
+    kilns of at least 1000/3 kt: 1 - k_i / K; smaller kilns: 1 - D(80) / K.
+    Before (K = 1300): A 9/13, B and C 1 - 350/1300, D 1 - 1000/3900 -- D binds (0.744).
+    Kilns A and B merge and 250 kt of the merged capacity goes to D: (500, 350, 450). Every kiln is
+    now at least 1000/3 kt: 1 - k_i / 1300, and C (350) binds (0.731)."""
+    m = CapacityPricing([400.0, 350.0, 350.0, 200.0], reservation_price=120.0, market_size=1000.0, cost=40.0,
+                        demand="linear", names=["Kiln A", "Kiln B", "Kiln C", "Kiln D"])
+    post = m.merge(["Kiln A", "Kiln B"]).move_capacity("Kiln A + Kiln B", 250.0, target="Kiln D")
+    ch = m.compare(post, "A and B merge; 250 kt of the merged capacity goes to D")
+    K, Dc = 1300.0, 1000.0 / 3.0
+    np.testing.assert_allclose(ch.before.grim, [1 - 400 / K, 1 - 350 / K, 1 - 350 / K, 1 - Dc / K], rtol=1e-12)
+    np.testing.assert_allclose(ch.after.grim, [1 - 500 / K, 1 - 350 / K, 1 - 450 / K], rtol=1e-12)
+    assert ch.binding_before == "Kiln D" and ch.binding_after == "Kiln C" and ch.binding_changed
+    assert ch.before.grim_ties == (3,) and ch.after.grim_ties == (1,)
+    assert ch.easier  # 0.744 -> 0.731
+    # without the transfer the merged kiln's rivals no longer cover demand at cost: a mixed equilibrium
+    assert m.merge(["Kiln A", "Kiln B"]).static_equilibrium().kind == "mixed"
