@@ -223,6 +223,12 @@ class SobolResult:
     std: dict = field(default_factory=dict)
 
     def to_dict(self) -> dict:
+        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
+
+        Returns
+        -------
+        dict
+        """
         conv = lambda d: {k: np.asarray(v).tolist() for k, v in d.items()}  # noqa: E731
         return {"inputs": list(self.inputs), "outputs": list(self.outputs), "first": conv(self.first),
                 "total": conv(self.total), "first_low": conv(self.first_low), "first_high": conv(self.first_high),
@@ -232,7 +238,17 @@ class SobolResult:
 
     @classmethod
     def from_dict(cls, d: dict) -> SobolResult:
-        """Inverse of :meth:`to_dict`."""
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
+
+        Returns
+        -------
+        SobolResult
+        """
         conv = lambda x: {k: np.asarray(v, float) for k, v in x.items()}  # noqa: E731
         return cls(tuple(d["inputs"]), tuple(d["outputs"]), conv(d["first"]), conv(d["total"]), conv(d["first_low"]),
                    conv(d["first_high"]), conv(d["total_low"]), conv(d["total_high"]), float(d["confidence"]),
@@ -319,11 +335,26 @@ class MorrisResult:
     seed: int
 
     def ranking(self, output: str) -> list[str]:
-        """Inputs by decreasing ``mu_star`` for ``output``."""
+        """Inputs by decreasing ``mu_star``.
+
+        Parameters
+        ----------
+        output : str
+
+        Returns
+        -------
+        list of str
+        """
         order = np.argsort(-self.mu_star[output], kind="stable")
         return [self.inputs[i] for i in order]
 
     def to_dict(self) -> dict:
+        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
+
+        Returns
+        -------
+        dict
+        """
         conv = lambda d: {k: np.asarray(v).tolist() for k, v in d.items()}  # noqa: E731
         return {"inputs": list(self.inputs), "outputs": list(self.outputs), "mu_star": conv(self.mu_star),
                 "mu_star_conf": conv(self.mu_star_conf), "mu": conv(self.mu), "sigma": conv(self.sigma),
@@ -331,7 +362,17 @@ class MorrisResult:
 
     @classmethod
     def from_dict(cls, d: dict) -> MorrisResult:
-        """Inverse of :meth:`to_dict`."""
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
+
+        Returns
+        -------
+        MorrisResult
+        """
         conv = lambda x: {k: np.asarray(v, float) for k, v in x.items()}  # noqa: E731
         return cls(tuple(d["inputs"]), tuple(d["outputs"]), conv(d["mu_star"]), conv(d["mu_star_conf"]),
                    conv(d["mu"]), conv(d["sigma"]), int(d["n_trajectories"]), int(d["n_evaluations"]), int(d["seed"]))
@@ -402,11 +443,27 @@ class ShareResult:
     confidence: float
 
     def to_dict(self) -> dict:
+        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
+
+        Returns
+        -------
+        dict
+        """
         return {**self.__dict__, "caution": CAUTION}
 
     @classmethod
     def from_dict(cls, d: dict) -> ShareResult:
-        """Inverse of :meth:`to_dict`."""
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
+
+        Returns
+        -------
+        ShareResult
+        """
         return cls(**{k: v for k, v in d.items() if k != "caution"})
 
 

@@ -83,8 +83,20 @@ def hhi(shares) -> float:
 
 
 def hhi_change(shares, merging) -> float:
-    """Change in the HHI when ``merging`` (0-based indices) combine, at pre-merger shares:
-    ``2 * 10000 * sum_{i<j} s_i s_j`` over the merging firms."""
+    """Change in the HHI when firms combine, at pre-merger shares: ``2 * 10000 * sum_{i<j} s_i s_j``
+    over the merging firms.
+
+    Parameters
+    ----------
+    shares : array_like of shape (n_firms,)
+        Market shares as fractions.
+    merging : sequence of int
+        The merging firms (0-based indices).
+
+    Returns
+    -------
+    float
+    """
     s = _shares(shares)
     idx = _merging(merging, s.size)
     return float(10_000.0 * (s[idx].sum() ** 2 - (s[idx] ** 2).sum()))
@@ -138,11 +150,27 @@ class ConcentrationScreen:
     us_note: str
 
     def to_dict(self) -> dict:
+        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
+
+        Returns
+        -------
+        dict
+        """
         return {**self.__dict__, "caution": CAUTION}
 
     @classmethod
     def from_dict(cls, d: dict) -> ConcentrationScreen:
-        """Inverse of :meth:`to_dict`."""
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
+
+        Returns
+        -------
+        ConcentrationScreen
+        """
         return cls(**{k: v for k, v in d.items() if k != "caution"})
 
 
@@ -255,13 +283,25 @@ class PairTable:
     binding_after: list
 
     def rows(self) -> list[dict]:
-        """One row per pair: firms, threshold after, change, binding firm after."""
+        """One row per pair.
+
+        Returns
+        -------
+        list of dict
+            ``firms``, ``after``, ``change``, ``binding_after``.
+        """
         n = len(self.names)
         return [{"firms": [self.names[i], self.names[j]], "after": _num(self.after[i, j]),
                  "change": _num(self.change[i, j]), "binding_after": self.binding_after[i][j]}
                 for i in range(n) for j in range(i + 1, n)]
 
     def to_dict(self) -> dict:
+        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
+
+        Returns
+        -------
+        dict
+        """
         return {"names": list(self.names), "before": _num(self.before),
                 "after": [[_num(x) for x in r] for r in self.after],
                 "change": [[_num(x) for x in r] for r in self.change], "binding_after": self.binding_after,
@@ -269,7 +309,17 @@ class PairTable:
 
     @classmethod
     def from_dict(cls, d: dict) -> PairTable:
-        """Inverse of :meth:`to_dict`."""
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
+
+        Returns
+        -------
+        PairTable
+        """
         arr = lambda a: np.array([[math.nan if x is None else x for x in r] for r in a], float)  # noqa: E731
         return cls(tuple(d["names"]), math.nan if d["before"] is None else float(d["before"]), arr(d["after"]),
                    arr(d["change"]), [list(r) for r in d["binding_after"]])
@@ -391,13 +441,29 @@ class Maverick:
     notes: tuple = field(default_factory=tuple)
 
     def to_dict(self) -> dict:
+        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
+
+        Returns
+        -------
+        dict
+        """
         return {"names": list(self.names), "threshold": _num(self.threshold),
                 "without": [_num(x) for x in self.without], "presence": [_num(x) for x in self.presence],
                 "firm": self.firm, "reason": self.reason, "notes": list(self.notes), "caution": CAUTION}
 
     @classmethod
     def from_dict(cls, d: dict) -> Maverick:
-        """Inverse of :meth:`to_dict`."""
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
+
+        Returns
+        -------
+        Maverick
+        """
         arr = lambda a: np.array([math.nan if x is None else x for x in a], float)  # noqa: E731
         return cls(tuple(d["names"]), math.nan if d["threshold"] is None else float(d["threshold"]),
                    arr(d["without"]), arr(d["presence"]), int(d["firm"]), d["reason"], tuple(d["notes"]))

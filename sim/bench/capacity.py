@@ -148,7 +148,18 @@ def logit_merger_thresholds(X: dict) -> dict:
 
 def logit_reference_thresholds(x: dict) -> dict:
     """The same numbers for one draw by :func:`sim.thresholds.critical_discount_factors` on
-    :class:`sim.market.Market` (and :func:`sim.merger.merge` for the post-merger market)."""
+    :class:`sim.market.Market` (and :func:`sim.merger.merge` for the post-merger market).
+
+    Parameters
+    ----------
+    x : dict of float
+        The inputs of :data:`LOGIT_INPUTS`.
+
+    Returns
+    -------
+    dict of float
+        ``before``, ``after``, ``change``.
+    """
     from ..demand import LogitDemand
     from ..market import Market
     from ..merger import Merger, merge
@@ -167,6 +178,12 @@ def logit_reference_thresholds(x: dict) -> dict:
 
 def bench_partial_cartels(n_firms: int = 8, repeats: int = 3) -> dict:
     """Time every partial cartel of an ``n_firms`` linear Cournot market (with stability at 0.8).
+
+    Parameters
+    ----------
+    n_firms : int
+    repeats : int
+        Runs; the best time is reported.
 
     Returns
     -------

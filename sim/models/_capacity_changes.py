@@ -32,7 +32,21 @@ __all__ = ["CapacityChange", "capacity_symmetry", "compare_capacity_change", "fi
 
 
 def firm_index(names, firm, key: str) -> int:
-    """Index (0-based) of ``firm`` given by number (1, 2, ...) or name."""
+    """Index (0-based) of a firm given by number or name.
+
+    Parameters
+    ----------
+    names : sequence of str
+        The firms' names.
+    firm : int or str
+        A firm number (1, 2, ...) or name.
+    key : str
+        Key path named in the error.
+
+    Returns
+    -------
+    int
+    """
     if isinstance(firm, str):
         if firm not in names:
             raise InputError(key, f"no firm is named {firm!r}; firms: {', '.join(names)}")
@@ -96,10 +110,21 @@ class CapacityChange:
 
     @property
     def easier(self) -> bool:
-        """True when the market's Nash-reversion threshold falls."""
+        """True when the market's Nash-reversion threshold falls.
+
+        Returns
+        -------
+        bool
+        """
         return bool(self.grim_change < 0)
 
     def to_dict(self) -> dict:
+        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
+
+        Returns
+        -------
+        dict
+        """
         none = lambda x: None if not math.isfinite(x) else float(x)  # noqa: E731
         return {"description": self.description, "before": self.before.to_dict(), "after": self.after.to_dict(),
                 "symmetry_before": dict(self.symmetry_before), "symmetry_after": dict(self.symmetry_after),
@@ -109,7 +134,17 @@ class CapacityChange:
 
     @classmethod
     def from_dict(cls, d: dict) -> CapacityChange:
-        """Inverse of :meth:`to_dict`."""
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
+
+        Returns
+        -------
+        CapacityChange
+        """
         nan = lambda x: math.nan if x is None else float(x)  # noqa: E731
         return cls(d["description"], CollusionAnalysis.from_dict(d["before"]), CollusionAnalysis.from_dict(d["after"]),
                    dict(d["symmetry_before"]), dict(d["symmetry_after"]), d["binding_before"], d["binding_after"],

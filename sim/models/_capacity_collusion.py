@@ -73,12 +73,28 @@ class Agreement:
     profits: np.ndarray
 
     def to_dict(self) -> dict:
+        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
+
+        Returns
+        -------
+        dict
+        """
         return {"rule": self.rule, "price": self.price, "quantities": self.quantities.tolist(),
                 "shares": self.shares.tolist(), "profits": self.profits.tolist()}
 
     @classmethod
     def from_dict(cls, d: dict) -> Agreement:
-        """Inverse of :meth:`to_dict`."""
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
+
+        Returns
+        -------
+        Agreement
+        """
         return cls(d["rule"], float(d["price"]), np.asarray(d["quantities"], float), np.asarray(d["shares"], float),
                    np.asarray(d["profits"], float))
 
@@ -144,10 +160,21 @@ class CollusionAnalysis:
 
     @property
     def binding_name(self) -> str:
-        """Name of the firm that binds under Nash reversion."""
+        """Name of the firm that binds under Nash reversion.
+
+        Returns
+        -------
+        str
+        """
         return self.names[self.grim_binding]
 
     def to_dict(self) -> dict:
+        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
+
+        Returns
+        -------
+        dict
+        """
         return {
             "names": list(self.names), "capacity": self.capacity.tolist(), "agreement": self.agreement.to_dict(),
             "deviation_profits": self.deviation_profits.tolist(), "deviation_prices": self.deviation_prices.tolist(),
@@ -162,7 +189,17 @@ class CollusionAnalysis:
 
     @classmethod
     def from_dict(cls, d: dict) -> CollusionAnalysis:
-        """Inverse of :meth:`to_dict` (JSON nulls back to nan)."""
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
+
+        Returns
+        -------
+        CollusionAnalysis
+        """
         arr = lambda k: np.asarray(d[k], float)  # noqa: E731
         nan_arr = lambda k: np.array([_nan(x) for x in d[k]], float)  # noqa: E731
         return cls(tuple(d["names"]), arr("capacity"), Agreement.from_dict(d["agreement"]), arr("deviation_profits"),
@@ -179,7 +216,18 @@ class CollusionAnalysis:
 
 
 def default_price(spec: CapacitySpec) -> float:
-    """Reservation price (inelastic) or joint-profit price ``max((v + c) / 2, P(K))`` (linear)."""
+    """The default agreed price.
+
+    Parameters
+    ----------
+    spec : CapacitySpec
+
+    Returns
+    -------
+    float
+        The reservation price (inelastic) or the joint-profit price ``max((v + c) / 2, P(K))``
+        (linear).
+    """
     if not spec.linear:
         return spec.reservation_price
     return max(spec.monopoly_price, spec.clearing_price(spec.total_capacity))
@@ -293,6 +341,11 @@ def _above(spec: CapacitySpec, i: int, p_c: float) -> tuple[float, float]:
 def best_deviations(spec: CapacitySpec, agreed: Agreement) -> tuple[np.ndarray, np.ndarray, tuple]:
     """Each firm's best one-shot deviation from the agreement.
 
+    Parameters
+    ----------
+    spec : CapacitySpec
+    agreed : Agreement
+
     Returns
     -------
     profits, prices : ndarray of shape (n_firms,)
@@ -317,7 +370,16 @@ def best_deviations(spec: CapacitySpec, agreed: Agreement) -> tuple[np.ndarray, 
 
 
 def minmax_payoffs(spec: CapacitySpec) -> np.ndarray:
-    """Each firm's minmax payoff, shape (n_firms,) (see the module notes)."""
+    """Each firm's minmax payoff (see the module notes).
+
+    Parameters
+    ----------
+    spec : CapacitySpec
+
+    Returns
+    -------
+    ndarray of shape (n_firms,)
+    """
     n, M = spec.n_firms, spec.market_size
     out = np.empty(n)
     for i in range(n):
@@ -347,7 +409,17 @@ def minmax_payoffs(spec: CapacitySpec) -> np.ndarray:
 
 def threshold(collusive, deviation, punishment) -> np.ndarray:
     """Critical discount factor ``(pi_D - pi_C) / (pi_D - pi_P)``, elementwise (conventions in the
-    module notes), shape of the broadcast inputs."""
+    module notes).
+
+    Parameters
+    ----------
+    collusive, deviation, punishment : array_like
+        Profits under the agreement, of the best deviation, and in the punishment.
+
+    Returns
+    -------
+    ndarray of the broadcast shape
+    """
     c, d, p = (np.asarray(x, dtype=float) for x in (collusive, deviation, punishment))
     scale = np.maximum(1.0, np.maximum(np.abs(c), np.abs(d)))
     gain, loss = d - c, c - p

@@ -80,19 +80,22 @@ class CapacitySpec:
 
     @property
     def n_firms(self) -> int:
+        """Number of firms (int)."""
         return int(self.capacity.shape[0])
 
     @property
     def total_capacity(self) -> float:
+        """Sum of the capacities (float)."""
         return float(self.capacity.sum())
 
     @property
     def largest(self) -> int:
-        """Index of the largest firm (the first one on ties)."""
+        """Index of the largest firm, the first one on ties (int)."""
         return int(np.argmax(self.capacity))
 
     @property
     def linear(self) -> bool:
+        """True for linear demand (bool)."""
         return self.demand == "linear"
 
     def quantity(self, p) -> np.ndarray:
@@ -114,9 +117,18 @@ class CapacitySpec:
         return np.where(p <= v, M, 0.0)
 
     def clearing_price(self, q: float) -> float:
-        """The highest price at which quantity ``q`` sells: ``P(q)`` (linear), ``v`` if ``q <= M``
-        (inelastic); ``-inf`` when ``q`` exceeds the quantity demanded at every price >= 0 and
-        demand is inelastic."""
+        """The highest price at which a quantity sells.
+
+        Parameters
+        ----------
+        q : float
+
+        Returns
+        -------
+        float
+            ``P(q)`` (linear; negative beyond ``M``), ``v`` if ``q <= M`` (inelastic), ``-inf`` when
+            ``q`` exceeds the inelastic demand.
+        """
         v, M = self.reservation_price, self.market_size
         if self.linear:
             return v * (1.0 - q / M)
@@ -124,7 +136,7 @@ class CapacitySpec:
 
     @property
     def monopoly_price(self) -> float:
-        """Price maximising ``(p - c) D(p)``: ``(v + c) / 2`` (linear), ``v`` (inelastic)."""
+        """Price maximising ``(p - c) D(p)`` (float): ``(v + c) / 2`` (linear), ``v`` (inelastic)."""
         if self.linear:
             return 0.5 * (self.reservation_price + self.cost)
         return self.reservation_price
@@ -135,6 +147,15 @@ class CapacitySpec:
 
         Efficient rationing behind rivals that sold ``sold`` is ``scale = 1``; proportional rationing
         that left a share ``phi`` of the consumers is ``scale = phi, sold = 0``.
+
+        Parameters
+        ----------
+        k : float
+            The firm's capacity.
+        scale : float
+            Share of the demand curve left.
+        sold : float
+            Quantity subtracted from it.
 
         Returns
         -------
@@ -246,14 +267,26 @@ def _split_level(total, level, ks, ws, cap_here):
 
 
 def profits(spec: CapacitySpec, prices, weights=None) -> np.ndarray:
-    """Profits ``(p_i - c) q_i`` of each firm at each price profile, shape (..., n_firms)."""
+    """Profits ``(p_i - c) q_i`` of each firm at each price profile.
+
+    Parameters
+    ----------
+    spec : CapacitySpec
+    prices : array_like of shape (..., n_firms)
+    weights : array_like of shape (n_firms,), optional
+        Tie-sharing weights (default: capacities).
+
+    Returns
+    -------
+    ndarray of shape (..., n_firms)
+    """
     p = np.asarray(prices, dtype=float)
     return (p - spec.cost) * sales(spec, p, weights)
 
 
 def residual_demand(spec: CapacitySpec, prices, firm: int) -> np.ndarray:
-    """Quantity demanded at firm ``firm``'s price once its cheaper rivals have sold (before its own
-    capacity limits it; rivals tied with it are not subtracted), shape (...,).
+    """Quantity demanded at a firm's price once its cheaper rivals have sold (before its own
+    capacity limits it; rivals tied with it are not subtracted).
 
     Parameters
     ----------
@@ -261,6 +294,10 @@ def residual_demand(spec: CapacitySpec, prices, firm: int) -> np.ndarray:
     prices : array_like of shape (..., n_firms)
     firm : int
         Index (0-based).
+
+    Returns
+    -------
+    ndarray of shape (...,)
     """
     p = np.asarray(prices, dtype=float)
     shape = p.shape[:-1]

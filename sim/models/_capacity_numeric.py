@@ -64,10 +64,23 @@ class _ConfigGame:
         self.state = np.where(g[None, :] < g[:, None], 0, np.where(g[None, :] == g[:, None], 1, 2))  # [g, h]
 
     def evaluate(self, sig):
-        """Payoffs ``u`` of shape (n, G) and ``dU[i, g, j, h] = d u_i(g) / d sig_j(h)``.
+        """Payoffs on the grid and their derivatives.
 
         The rival probabilities are contracted one rival at a time (prefix and suffix products), so
-        the cost grows like ``n * 3**(n-1) * G``; plain numpy reductions keep it off threaded BLAS."""
+        the cost grows like ``n * 3**(n-1) * G``; plain numpy reductions keep it off threaded BLAS.
+
+        Parameters
+        ----------
+        sig : ndarray of shape (n, G)
+            Probabilities (not necessarily normalised during Newton steps).
+
+        Returns
+        -------
+        u : ndarray of shape (n, G)
+            Each firm's expected payoff at each grid price (scaled).
+        dU : ndarray of shape (n, G, n, G)
+            ``dU[i, g, j, h] = d u_i(g) / d sig_j(h)``.
+        """
         n, G = self.n, self.G
         cs = np.cumsum(sig, axis=1)
         probs = np.stack([cs - sig, sig, cs[:, -1:] - cs], axis=1)  # (n, 3, G)
@@ -102,6 +115,17 @@ class _MatrixGame:
         self.A = [a / self.scale for a in self.A]
 
     def evaluate(self, sig):
+        """Payoffs ``u`` of shape (2, G) and derivatives ``dU`` of shape (2, G, 2, G) (see
+        :meth:`_ConfigGame.evaluate`).
+
+        Parameters
+        ----------
+        sig : ndarray of shape (2, G)
+
+        Returns
+        -------
+        u, dU : ndarray
+        """
         G = self.G
         u = np.stack([(self.A[0] * sig[1][None, :]).sum(axis=1), (self.A[1] * sig[0][None, :]).sum(axis=1)])
         dU = np.zeros((2, G, 2, G))
@@ -154,7 +178,20 @@ class _Bordered:
         self.M = M
 
     def solve(self, r, r_last):
-        """Solve for ``(dx, dlam)`` with right-hand side ``r`` (length n G) and ``r_last``."""
+        """Solve the bordered system.
+
+        Parameters
+        ----------
+        r : ndarray of shape (n G,)
+            Right-hand side of the path equations.
+        r_last : float
+            Right-hand side of the last (arc-length) row.
+
+        Returns
+        -------
+        dx : ndarray of shape (n G,)
+        dlam : float
+        """
         m = self.ia.size
         rhs = np.empty(m + 1)
         rhs[:m] = r[self.ia]
@@ -293,6 +330,14 @@ def price_bounds(spec: CapacitySpec) -> tuple[float, float]:
     with proportional rationing, a firm's profit ``(p - c) min(k_i, phi D(p))`` falls in p beyond
     ``max((v + c) / 2, P(k_i))`` whatever share ``phi`` of consumers its cheaper rivals left. The
     certificate checks deviations on the whole of ``[c, v]``, outside these bounds too.
+
+    Parameters
+    ----------
+    spec : CapacitySpec
+
+    Returns
+    -------
+    low, high : float
     """
     c = spec.cost
     lows, highs = [], []
@@ -310,6 +355,14 @@ def price_bounds(spec: CapacitySpec) -> tuple[float, float]:
 def numeric_equilibrium(spec: CapacitySpec, n_grid: int = 81, mass_tol: float = 1e-6) -> StaticEquilibrium:
     """Mixed equilibrium on a grid of ``n_grid`` prices between :func:`price_bounds`, certified by
     :func:`~sim.models._capacity_static.certificate`.
+
+    Parameters
+    ----------
+    spec : CapacitySpec
+    n_grid : int
+        Grid prices.
+    mass_tol : float
+        Probabilities below it do not count towards a firm's support.
 
     Returns
     -------

@@ -89,12 +89,22 @@ class StaticEquilibrium:
 
     @property
     def pure(self) -> bool:
+        """True for a pure-strategy equilibrium (bool)."""
         return self.kind != "mixed"
 
     def cdf_at(self, p) -> np.ndarray:
-        """Distribution functions at prices ``p``, shape (n_firms, len(p)) (right-continuous steps
-        between grid points for the numeric method, linear interpolation otherwise, with a firm's atom
-        at the top of its support kept as a jump)."""
+        """Distribution functions at given prices (right-continuous steps between grid points for
+        the numeric method, linear interpolation otherwise, a firm's atom at the top of its support
+        kept as a jump).
+
+        Parameters
+        ----------
+        p : array_like of shape (m,)
+
+        Returns
+        -------
+        ndarray of shape (n_firms, m)
+        """
         p = np.atleast_1d(np.asarray(p, dtype=float))
         out = np.empty((self.cdf.shape[0], p.size))
         for i in range(self.cdf.shape[0]):
@@ -110,7 +120,12 @@ class StaticEquilibrium:
         return out
 
     def expected_prices(self) -> np.ndarray:
-        """Mean price of each firm, shape (n_firms,)."""
+        """Mean price of each firm.
+
+        Returns
+        -------
+        ndarray of shape (n_firms,)
+        """
         if self.pure:
             return self.support_low.copy()
         dF = np.diff(np.concatenate([np.zeros((self.cdf.shape[0], 1)), self.cdf], axis=1), axis=1)
@@ -121,6 +136,12 @@ class StaticEquilibrium:
         return (dF * mid[None, :]).sum(axis=1) + self.atoms * self.support_high
 
     def to_dict(self) -> dict:
+        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
+
+        Returns
+        -------
+        dict
+        """
         return {
             "kind": self.kind, "method": self.method, "payoffs": self.payoffs.tolist(),
             "support_low": self.support_low.tolist(), "support_high": self.support_high.tolist(),
@@ -130,7 +151,17 @@ class StaticEquilibrium:
 
     @classmethod
     def from_dict(cls, d: dict) -> StaticEquilibrium:
-        """Inverse of :meth:`to_dict`."""
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
+
+        Returns
+        -------
+        StaticEquilibrium
+        """
         arr = lambda k: np.asarray(d[k], dtype=float)  # noqa: E731
         return cls(d["kind"], d["method"], arr("payoffs"), arr("support_low"), arr("support_high"), arr("atoms"),
                    arr("prices"), np.asarray(d["cdf"], dtype=float).reshape(len(d["payoffs"]), -1),
@@ -143,7 +174,16 @@ class StaticEquilibrium:
 
 
 def market_clearing(spec: CapacitySpec) -> bool:
-    """True when every firm selling its capacity at the market-clearing price is an equilibrium."""
+    """Whether every firm selling its capacity at the market-clearing price is an equilibrium.
+
+    Parameters
+    ----------
+    spec : CapacitySpec
+
+    Returns
+    -------
+    bool
+    """
     K, kL, c = spec.total_capacity, float(spec.capacity.max()), spec.cost
     if not spec.linear:
         return K <= spec.market_size
@@ -154,13 +194,32 @@ def market_clearing(spec: CapacitySpec) -> bool:
 
 
 def cost_pricing(spec: CapacitySpec) -> bool:
-    """True when the rivals of every firm can serve the whole demand at cost (price = cost)."""
+    """Whether the rivals of every firm can serve the whole demand at cost (price = cost).
+
+    Parameters
+    ----------
+    spec : CapacitySpec
+
+    Returns
+    -------
+    bool
+    """
     return spec.total_capacity - float(spec.capacity.max()) >= float(spec.quantity(spec.cost))
 
 
 def residual_monopoly(spec: CapacitySpec, i: int) -> tuple[float, float]:
-    """Price and profit of firm ``i`` as a monopolist on what its rivals leave when they sell their
-    whole capacities first (efficient rationing), shape: two floats."""
+    """Firm i as a monopolist on what its rivals leave when they sell their whole capacities first.
+
+    Parameters
+    ----------
+    spec : CapacitySpec
+    i : int
+        Index (0-based).
+
+    Returns
+    -------
+    price, profit : float
+    """
     return spec.best_against_residual(float(spec.capacity[i]), 1.0, spec.total_capacity - float(spec.capacity[i]))
 
 
@@ -382,9 +441,21 @@ def expected_payoffs(spec: CapacitySpec, x: np.ndarray, grid: np.ndarray, sigma:
 
 
 def certificate(spec: CapacitySpec, grid: np.ndarray, sigma: np.ndarray, payoffs: np.ndarray) -> float:
-    """Largest gain, relative to the largest payoff, that any firm makes by deviating from the mixed
-    strategies ``sigma`` on ``grid`` to a price at a grid point, just below one, or on a fine sweep of
-    ``[c, v]``."""
+    """Largest gain, relative to the largest payoff, that any firm makes by deviating from mixed
+    strategies on a grid to a price at a grid point, just below one, or on a fine sweep of ``[c, v]``.
+
+    Parameters
+    ----------
+    spec : CapacitySpec
+    grid : ndarray of shape (G,)
+    sigma : ndarray of shape (n_firms, G)
+    payoffs : ndarray of shape (n_firms,)
+        The firms' payoffs under ``sigma``.
+
+    Returns
+    -------
+    float
+    """
     step = 1e-9 * max(1.0, spec.reservation_price)
     x = np.unique(np.concatenate([grid, grid - step, np.linspace(spec.cost, spec.reservation_price, 2001)]))
     x = x[(x >= spec.cost) & (x <= spec.reservation_price)]

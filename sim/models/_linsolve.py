@@ -96,7 +96,18 @@ def lu_solve(lu, piv, b):
 
 
 def lu_factor_reference(a):
-    """Pure-Python twin of :func:`lu_factor` (a list of lists, modified in place)."""
+    """Pure-Python twin of :func:`lu_factor`.
+
+    Parameters
+    ----------
+    a : list of list of float
+        Modified in place.
+
+    Returns
+    -------
+    piv : list of int
+    singular : bool
+    """
     m = len(a)
     piv = [0] * m
     singular = False
@@ -122,7 +133,18 @@ def lu_factor_reference(a):
 
 
 def lu_solve_reference(lu, piv, b):
-    """Pure-Python twin of :func:`lu_solve`."""
+    """Pure-Python twin of :func:`lu_solve`.
+
+    Parameters
+    ----------
+    lu : list of list of float
+    piv : list of int
+    b : list of float
+
+    Returns
+    -------
+    list of float
+    """
     m = len(lu)
     x = list(b)
     for k in range(m):

@@ -147,6 +147,15 @@ class CapacityPricing(Parametrized):
     def spec(self, prefix: str = "market") -> CapacitySpec:
         """Validate every parameter and return the numeric form (cached until a parameter changes).
 
+        Parameters
+        ----------
+        prefix : str
+            Key path of the market in error messages.
+
+        Returns
+        -------
+        CapacitySpec
+
         Raises
         ------
         InputError
@@ -183,6 +192,7 @@ class CapacityPricing(Parametrized):
 
     @property
     def n_firms(self) -> int:
+        """Number of firms (int)."""
         return self.spec().n_firms
 
     # ---- one period -------------------------------------------------------------------------------
@@ -202,12 +212,33 @@ class CapacityPricing(Parametrized):
         return sales(self.spec(), prices, weights)
 
     def profits(self, prices, weights=None) -> np.ndarray:
-        """Profits at price profiles, shape (..., n_firms)."""
+        """Profits at price profiles.
+
+        Parameters
+        ----------
+        prices : array_like of shape (..., n_firms)
+        weights : array_like of shape (n_firms,), optional
+            How tied firms share (default: capacities).
+
+        Returns
+        -------
+        ndarray of shape (..., n_firms)
+        """
         return profits(self.spec(), prices, weights)
 
     def residual_demand(self, prices, firm: int) -> np.ndarray:
-        """Quantity demanded at firm ``firm``'s (0-based) price once its cheaper rivals have sold,
-        shape (...,) for ``prices`` of shape (..., n_firms)."""
+        """Quantity demanded at a firm's price once its cheaper rivals have sold.
+
+        Parameters
+        ----------
+        prices : array_like of shape (..., n_firms)
+        firm : int
+            Index (0-based).
+
+        Returns
+        -------
+        ndarray of shape (...,)
+        """
         return residual_demand(self.spec(), prices, firm)
 
     def play_period(self, prices, weights=None) -> tuple[np.ndarray, np.ndarray]:
@@ -261,7 +292,12 @@ class CapacityPricing(Parametrized):
         return out[:, 0], out[:, 1]
 
     def minmax(self) -> np.ndarray:
-        """Each firm's minmax payoff, shape (n_firms,)."""
+        """Each firm's minmax payoff.
+
+        Returns
+        -------
+        ndarray of shape (n_firms,)
+        """
         return minmax_payoffs(self.spec())
 
     # ---- collusion --------------------------------------------------------------------------------
@@ -281,7 +317,17 @@ class CapacityPricing(Parametrized):
         return agreement(self.spec(), rule, shares, price)
 
     def best_deviations(self, agreed: Agreement) -> tuple[np.ndarray, np.ndarray, tuple]:
-        """Each firm's best deviation from ``agreed``: profits and prices of shape (n_firms,), kinds."""
+        """Each firm's best deviation from an agreement.
+
+        Parameters
+        ----------
+        agreed : Agreement
+
+        Returns
+        -------
+        profits, prices : ndarray of shape (n_firms,)
+        kinds : tuple of str
+        """
         return best_deviations(self.spec(), agreed)
 
     def critical_discount_factors(self, rule: str = "proportional", shares=None, price=None,
@@ -319,8 +365,20 @@ class CapacityPricing(Parametrized):
 
     # ---- capacity changes -------------------------------------------------------------------------
     def merge(self, firms, name: str | None = None) -> CapacityPricing:
-        """The market after ``firms`` (numbers from 1 or names) merge: one firm with their summed
-        capacity, in the place of the first of them, named ``name`` or their names joined by ``+``."""
+        """The market after some firms merge: one firm with their summed capacity, in the place of
+        the first of them.
+
+        Parameters
+        ----------
+        firms : sequence of int or str
+            Two or more firms, by number (1, 2, ...) or name.
+        name : str, optional
+            Name of the merged firm (default: the names joined by ``+``).
+
+        Returns
+        -------
+        CapacityPricing
+        """
         s = self.spec()
         if not isinstance(firms, Sequence) or isinstance(firms, str) or len(firms) < 2:
             raise InputError("merger.firms", f"must list two or more firms, got {firms!r}")
@@ -341,9 +399,23 @@ class CapacityPricing(Parametrized):
         return self.clone(capacity=cap, names=names)
 
     def move_capacity(self, source, amount: float, target=None, new_name: str = "Entrant") -> CapacityPricing:
-        """The market after ``amount`` of ``source``'s capacity goes to ``target`` (a firm number or
-        name: a transfer) or, with ``target=None``, to a new firm ``new_name`` (a divestiture to an
-        entrant)."""
+        """The market after capacity moves from one firm to another or to a new entrant.
+
+        Parameters
+        ----------
+        source : int or str
+            The firm giving up capacity (number from 1 or name).
+        amount : float
+            Capacity moved (positive, below the source's capacity).
+        target : int or str, optional
+            The receiving firm (a transfer); None for a divestiture to a new firm.
+        new_name : str
+            Name of the new firm.
+
+        Returns
+        -------
+        CapacityPricing
+        """
         s = self.spec()
         i = firm_index(s.names, source, "change.source")
         a = Real(0, MAX_MAGNITUDE, closed="neither").check("change.amount", amount)
@@ -381,6 +453,18 @@ class CapacityPricing(Parametrized):
                                        other.critical_discount_factors(**agreement_options), description)
 
     def clone(self, **changes) -> CapacityPricing:
+        """A new market with the same parameters, some changed (names are dropped when the
+        capacities change and no names are given).
+
+        Parameters
+        ----------
+        **changes
+            Constructor arguments to change.
+
+        Returns
+        -------
+        CapacityPricing
+        """
         params = self.get_params()
         params.update(changes)
         if "capacity" in changes and "names" not in changes and self.names is not None:
@@ -389,7 +473,12 @@ class CapacityPricing(Parametrized):
 
     # ---- serialisation ---------------------------------------------------------------------------
     def to_dict(self) -> dict:
-        """Parameters as a plain table (lists for arrays)."""
+        """Parameters as a plain table (lists for arrays).
+
+        Returns
+        -------
+        dict
+        """
         out = {}
         for k, v in self.get_params().items():
             if v is None:
@@ -399,7 +488,18 @@ class CapacityPricing(Parametrized):
 
     @classmethod
     def from_dict(cls, d: dict, prefix: str = "market") -> CapacityPricing:
-        """Build and validate a market from :meth:`to_dict`'s table (unknown keys refused)."""
+        """Build and validate a market from :meth:`to_dict`'s table (unknown keys refused).
+
+        Parameters
+        ----------
+        d : dict
+        prefix : str
+            Key path of the table in error messages.
+
+        Returns
+        -------
+        CapacityPricing
+        """
         if not isinstance(d, dict):
             raise InputError(prefix, f"must be a table, got {d!r}")
         allowed = cls._param_names()

@@ -104,7 +104,17 @@ class CartelTable:
         return t.argmax(axis=1)
 
     def row(self, firms) -> int:
-        """Row of the cartel with members ``firms`` (0-based indices)."""
+        """Row of a cartel in the table.
+
+        Parameters
+        ----------
+        firms : iterable of int
+            Its members (0-based indices).
+
+        Returns
+        -------
+        int
+        """
         key = np.zeros(self.members.shape[1], bool)
         key[list(firms)] = True
         hit = np.flatnonzero((self.members == key).all(axis=1))
@@ -113,12 +123,25 @@ class CartelTable:
         return int(hit[0])
 
     def sustainable(self, delta: float) -> np.ndarray:
-        """Cartels whose every member is held at ``delta``, shape (n_cartels,)."""
+        """Cartels whose every member is held at a discount factor.
+
+        Parameters
+        ----------
+        delta : float
+
+        Returns
+        -------
+        ndarray of bool, shape (n_cartels,)
+        """
         mt = self.market_threshold
         return np.isfinite(mt) & (mt <= delta + _TOL) & (self.members.sum(axis=1) >= 2)
 
     def stability(self, delta: float) -> dict:
-        """Internal and external stability of every requested cartel at ``delta``.
+        """Internal and external stability of every requested cartel at a discount factor.
+
+        Parameters
+        ----------
+        delta : float
 
         Returns
         -------
@@ -149,6 +172,12 @@ class CartelTable:
                 "stable": sus & internal & external}
 
     def to_dict(self) -> dict:
+        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
+
+        Returns
+        -------
+        dict
+        """
         none = lambda a: [[None if not math.isfinite(x) else float(x) for x in r] for r in a]  # noqa: E731
         return {"names": list(self.names), "members": self.members.tolist(), "profits": self.profits.tolist(),
                 "deviation": none(self.deviation), "nash": self.nash.tolist(), "thresholds": none(self.thresholds),
@@ -157,7 +186,17 @@ class CartelTable:
 
     @classmethod
     def from_dict(cls, d: dict) -> CartelTable:
-        """Inverse of :meth:`to_dict`."""
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
+
+        Returns
+        -------
+        CartelTable
+        """
         nan = lambda a: np.array([[math.nan if x is None else x for x in r] for r in a], float)  # noqa: E731
         return cls(tuple(d["names"]), np.asarray(d["members"], bool), np.asarray(d["profits"], float),
                    nan(d["deviation"]), np.asarray(d["nash"], float), nan(d["thresholds"]),
@@ -367,12 +406,28 @@ class CartelWorry:
     explanation: str
 
     def to_dict(self) -> dict:
+        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
+
+        Returns
+        -------
+        dict
+        """
         return {"delta": self.delta, "rows": self.rows, "worry": self.worry, "explanation": self.explanation,
                 "caution": CAUTION}
 
     @classmethod
     def from_dict(cls, d: dict) -> CartelWorry:
-        """Inverse of :meth:`to_dict`."""
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
+
+        Returns
+        -------
+        CartelWorry
+        """
         return cls(float(d["delta"]), list(d["rows"]), d["worry"], d["explanation"])
 
 
