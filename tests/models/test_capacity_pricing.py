@@ -471,3 +471,32 @@ def test_kiln_merger_with_a_capacity_transfer_changes_the_binding_firm():
     assert ch.easier  # 0.744 -> 0.731
     # without the transfer the merged kiln's rivals no longer cover demand at cost: a mixed equilibrium
     assert m.merge(["Kiln A", "Kiln B"]).static_equilibrium().kind == "mixed"
+
+
+def test_reference_period_compiles_with_numba_to_the_same_bits(rng):
+    """The plain-Python one-period play is written for a numba stage core: compiled as it stands
+    (its helpers compiled too) it must give bit-identical sales and profits."""
+    import inspect
+
+    import numba
+
+    from sim.models import _capacity_reference as ref
+
+    ns = {"_quantity": numba.njit(ref._quantity), "_share": numba.njit(ref._share), "STATUS_OK": ref.STATUS_OK,
+          "STATUS_BAD_INPUT": ref.STATUS_BAD_INPUT}
+    exec(inspect.getsource(ref.play_period), ns)
+    compiled = numba.njit(ns["play_period"])
+    cap = np.array([5.0, 3.0, 2.0, 4.0])
+    for demand_code in (0, 1):
+        for rationing_code in (0, 1):
+            for _ in range(50):
+                p = rng.choice([1.0, 2.5, 3.0, 4.0, 9.0, 11.0], size=4)
+                w = rng.uniform(0.5, 2.0, 4)
+                out_py = [np.zeros(4), np.zeros(4)]
+                out_nb = [np.zeros(4), np.zeros(4)]
+                s1 = ref.play_period(p, cap, w, 0.5, demand_code, 10.0, 9.0, rationing_code, np.zeros(4, np.int64),
+                                     *out_py)
+                s2 = compiled(p, cap, w, 0.5, demand_code, 10.0, 9.0, rationing_code, np.zeros(4, np.int64), *out_nb)
+                assert s1 == s2 == ref.STATUS_OK
+                np.testing.assert_array_equal(out_py[0], out_nb[0])
+                np.testing.assert_array_equal(out_py[1], out_nb[1])
