@@ -38,9 +38,9 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import stats
 
-from .._text import CAUTION
-from ..errors import InputError, SolverError
-from ..metrics import wilson_estimate
+from sim.core.errors import InputError, SolverError
+from sim.core.stats import wilson_estimate
+from sim.core.text import CAUTION
 
 __all__ = ["DISTRIBUTIONS", "MorrisResult", "ShareResult", "SobolResult", "morris_screening", "share_easier",
            "sobol_indices", "uncertain_inputs"]

@@ -45,12 +45,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._params import PerFirm, optional
-from .._text import CAUTION
-from ..equilibrium import stage_game
-from ..errors import InputError
-from ..merger import Merger, merge
-from ..thresholds import grim_threshold
+from sim.antitrust.merger import Merger, merge
+from sim.core.errors import InputError
+from sim.core.params import PerFirm, optional
+from sim.core.text import CAUTION
+from sim.theory.equilibrium import stage_game
+from sim.theory.thresholds import grim_threshold
 
 __all__ = ["ConcentrationScreen", "Maverick", "PairTable", "concentration_screen", "hhi", "hhi_change", "maverick",
            "pair_thresholds"]

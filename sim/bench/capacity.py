@@ -17,12 +17,21 @@ benchmark report.
 
 from __future__ import annotations
 
+import itertools
+import math
 import time
 
 import numpy as np
 
-__all__ = ["LOGIT_INPUTS", "bench_partial_cartels", "bench_sensitivity", "logit_merger_thresholds",
-           "logit_reference_thresholds"]
+from sim.antitrust.merger import Merger, merge
+from sim.antitrust.global_sensitivity import sobol_indices, uncertain_inputs
+from sim.models.demand import LinearDemand, LogitDemand
+from sim.models.market import Market
+from sim.theory.cartels import cartel_table
+from sim.theory.thresholds import critical_discount_factors
+
+__all__ = ["LOGIT_INPUTS", "bench_partial_cartels", "bench_sensitivity", "capacity_benchmark",
+           "logit_merger_thresholds", "logit_reference_thresholds", "reference_cartel_thresholds"]
 
 #: the six uncertain inputs of the 4-firm logit merger assessment
 LOGIT_INPUTS = {
@@ -160,11 +169,6 @@ def logit_reference_thresholds(x: dict) -> dict:
     dict of float
         ``before``, ``after``, ``change``.
     """
-    from ..demand import LogitDemand
-    from ..market import Market
-    from ..merger import Merger, merge
-    from ..thresholds import critical_discount_factors
-
     m = Market(LogitDemand([x["quality_1"], x["quality_2"], _OTHER_QUALITY, _OTHER_QUALITY], x["outside"], x["mu"]),
                cost=x["cost"], n_firms=4, model="bertrand")
     post = merge(m, Merger(firms=[1, 2], efficiency=x["efficiency"])).post
@@ -173,6 +177,68 @@ def logit_reference_thresholds(x: dict) -> dict:
         g = critical_discount_factors(mk, punishments=(), deltas=()).grim.market
         out[key] = 1.0 if not np.isfinite(g) else float(g)
     out["change"] = out["after"] - out["before"]
+    return out
+
+
+def reference_cartel_thresholds(a: float, b: float, c: list) -> dict:
+    """Grim-trigger thresholds of every cartel of a linear Cournot market in plain Python (loops, the
+    closed forms of the cartel-fringe Cournot equilibrium, no numpy): the reference of the benchmark.
+
+    Parameters
+    ----------
+    a, b : float
+        Intercept and slope of inverse demand.
+    c : list of float
+        Marginal costs.
+
+    Returns
+    -------
+    dict
+        Cartel (tuple of 0-based members) -> list of the members' thresholds (nan when a member
+        cannot be held).
+    """
+    n = len(c)
+
+    def cournot(costs):
+        active = [True] * len(costs)
+        while True:
+            k = sum(active)
+            csum = sum(x for x, on in zip(costs, active) if on)
+            q = [(a - (k + 1) * x + csum) / ((k + 1) * b) if on else 0.0 for x, on in zip(costs, active)]
+            if all(v > 0 for v, on in zip(q, active) if on):
+                return q
+            active = [on and v > 0 for v, on in zip(q, active)]
+
+    qn = cournot(c)
+    pn = a - b * sum(qn)
+    nash = [(pn - ci) * qi for ci, qi in zip(c, qn)]
+    out = {}
+    for size in range(2, n + 1):
+        for S in itertools.combinations(range(n), size):
+            cS = min(c[i] for i in S)
+            cheap = [i for i in S if c[i] == cS]
+            fringe = [i for i in range(n) if i not in S]
+            q = cournot([cS] + [c[i] for i in fringe])
+            prod = [0.0] * n
+            for i in cheap:
+                prod[i] = q[0] / len(cheap)
+            for j, i in enumerate(fringe):
+                prod[i] = q[j + 1]
+            Q = sum(prod)
+            P = max(0.0, a - b * Q)
+            res = []
+            for i in S:
+                col = (P - c[i]) * prod[i]
+                rest = Q - prod[i]
+                qd = max(0.0, (a - c[i] - b * rest) / (2 * b))
+                dev = max(max(0.0, a - b * (rest + qd)) * qd - c[i] * qd, col)
+                gain, loss = dev - col, col - nash[i]
+                tol = 1e-12 * max(1.0, abs(col), abs(dev))
+                if loss < -tol or (gain > tol and loss <= tol):
+                    res.append(math.nan)
+                else:
+                    res.append(0.0 if gain <= tol else gain / (gain + loss))
+            out[S] = res
     return out
 
 
@@ -190,18 +256,21 @@ def bench_partial_cartels(n_firms: int = 8, repeats: int = 3) -> dict:
     dict
         ``seconds`` (best of ``repeats``), ``target_seconds`` (10), ``n_cartels``.
     """
-    from ..demand import LinearDemand
-    from ..market import Market
-    from ..theory.cartels import cartel_table
-
-    m = Market(LinearDemand(100.0, 1.0), cost=np.linspace(10.0, 17.0, n_firms).tolist())
+    costs = np.linspace(10.0, 17.0, n_firms).tolist()
+    m = Market(LinearDemand(100.0, 1.0), cost=costs)
     best = np.inf
     for _ in range(repeats):
         t0 = time.perf_counter()
         table = cartel_table(m)
         table.stability(0.8)
         best = min(best, time.perf_counter() - t0)
-    return {"seconds": best, "target_seconds": 10.0, "n_cartels": int(table.requested.sum())}
+    t0 = time.perf_counter()
+    ref = reference_cartel_thresholds(100.0, 1.0, costs)
+    ref_seconds = time.perf_counter() - t0
+    agree = all(np.allclose(table.thresholds[table.row(S), list(S)], v, rtol=1e-9, equal_nan=True)
+                for S, v in ref.items())
+    return {"seconds": best, "target_seconds": 10.0, "n_cartels": int(table.requested.sum()),
+            "reference_seconds": ref_seconds, "reference_agrees": bool(agree)}
 
 
 def bench_sensitivity(n_base: int = 4096, workers: int = 2, seed: int = 2026, n_reference: int = 8) -> dict:
@@ -223,8 +292,6 @@ def bench_sensitivity(n_base: int = 4096, workers: int = 2, seed: int = 2026, n_
         ``seconds``, ``target_seconds`` (120), ``n_evaluations``, ``reference_seconds_per_draw``,
         ``reference_max_difference`` and the Sobol result's ``total`` indices of the change.
     """
-    from ..antitrust.global_sensitivity import sobol_indices, uncertain_inputs
-
     t0 = time.perf_counter()
     res = sobol_indices(_chunked_model, LOGIT_INPUTS, n_base=n_base, seed=seed, vectorized=True, workers=workers)
     seconds = time.perf_counter() - t0
@@ -243,3 +310,40 @@ def bench_sensitivity(n_base: int = 4096, workers: int = 2, seed: int = 2026, n_
 
 def _chunked_model(X):
     return logit_merger_thresholds(X)
+
+
+def capacity_benchmark(opts) -> dict:
+    """Benchmark section (the ``section(opts) -> dict`` form of :mod:`sim.bench`): the two targets with
+    their references measured in the same run.
+
+    Parameters
+    ----------
+    opts : sim.bench.BenchOptions
+        ``quick`` shrinks the workloads (targets then not meaningful); ``threads`` sets the workers of
+        the sensitivity run; ``repeat`` the timing repeats.
+
+    Returns
+    -------
+    dict
+        Measures, ``workload``, ``targets`` and ``notes``.
+    """
+    cart = bench_partial_cartels(4 if opts.quick else 8, 1 if opts.quick else opts.repeat)
+    sens = bench_sensitivity(64 if opts.quick else 4096, max(1, int(opts.threads)), n_reference=2 if opts.quick else 8)
+    per_fast = sens["seconds"] / sens["n_evaluations"]
+    return {
+        "workload": "every partial cartel of an 8-firm linear Cournot market; Sobol indices from 4,096 base samples "
+                    "over 6 inputs of a 4-firm logit merger assessment (32,768 evaluations)",
+        "partial cartels, seconds": cart["seconds"],
+        "partial cartels, plain-Python reference, seconds": cart["reference_seconds"],
+        "partial cartels, reference agrees": cart["reference_agrees"],
+        "sensitivity, seconds": sens["seconds"],
+        "sensitivity, seconds per evaluation": per_fast,
+        "library path (critical_discount_factors), seconds per evaluation": sens["reference_seconds_per_draw"],
+        "library path, largest difference": sens["reference_max_difference"],
+        "targets": {"every 8-firm cartel under 10 s": cart["seconds"] < 10.0,
+                    "Sobol indices under 2 minutes": sens["seconds"] < 120.0,
+                    "vectorised thresholds agree with the library": sens["reference_max_difference"] < 1e-9},
+        "notes": ["the sensitivity model is a vectorised computation of the grim-trigger market threshold that "
+                  "critical_discount_factors reports; the library path (which also computes stick-and-carrot "
+                  "punishments) is timed on a few draws and compared"],
+    }

@@ -24,9 +24,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .._text import CAUTION
-from ..errors import InputError
-from ._capacity_collusion import CollusionAnalysis
+from sim.core.errors import InputError
+from sim.core.text import CAUTION
+from sim.models._capacity_collusion import CollusionAnalysis
 
 __all__ = ["CapacityChange", "capacity_symmetry", "compare_capacity_change", "firm_index"]
 

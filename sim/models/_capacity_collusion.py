@@ -38,10 +38,10 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import optimize
 
-from .._text import CAUTION
-from ..errors import InputError
-from ._capacity_core import CapacitySpec
-from ._capacity_static import static_equilibrium
+from sim.core.errors import InputError
+from sim.core.text import CAUTION
+from sim.models._capacity_core import CapacitySpec
+from sim.models._capacity_static import static_equilibrium
 
 __all__ = ["RULES", "Agreement", "CollusionAnalysis", "agreement", "best_deviations", "collusion_analysis",
            "minmax_payoffs", "threshold"]

@@ -24,10 +24,10 @@ import itertools
 
 import numpy as np
 
-from ..errors import InputError, SolverError
-from ._capacity_core import CapacitySpec, sales
-from ._capacity_static import MAX_NUMERIC_FIRMS, StaticEquilibrium, certificate
-from ._linsolve import lu_factor, lu_solve
+from sim.core.errors import InputError, SolverError
+from sim.models._capacity_core import CapacitySpec, sales
+from sim.models._capacity_mixed import MAX_NUMERIC_FIRMS, StaticEquilibrium, certificate
+from sim.models._linsolve import lu_factor, lu_solve
 
 __all__ = ["numeric_equilibrium", "price_bounds", "solve_grid_game"]
 
@@ -354,7 +354,7 @@ def price_bounds(spec: CapacitySpec) -> tuple[float, float]:
 
 def numeric_equilibrium(spec: CapacitySpec, n_grid: int = 81, mass_tol: float = 1e-6) -> StaticEquilibrium:
     """Mixed equilibrium on a grid of ``n_grid`` prices between :func:`price_bounds`, certified by
-    :func:`~sim.models._capacity_static.certificate`.
+    :func:`~sim.models._capacity_mixed.certificate`.
 
     Parameters
     ----------

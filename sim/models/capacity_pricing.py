@@ -27,10 +27,10 @@ from typing import Any
 
 import numpy as np
 
-from .._params import Constraint, Options, Parametrized, PerFirm, Real, optional
-from ..errors import InputError
-from ._capacity_changes import CapacityChange, capacity_symmetry, compare_capacity_change, firm_index
-from ._capacity_collusion import (
+from sim.core.errors import InputError
+from sim.core.params import Constraint, Options, Parametrized, PerFirm, Real, optional
+from sim.models._capacity_changes import CapacityChange, capacity_symmetry, compare_capacity_change, firm_index
+from sim.models._capacity_collusion import (
     RULES,
     Agreement,
     CollusionAnalysis,
@@ -41,7 +41,7 @@ from ._capacity_collusion import (
     partial_cartels,
     threshold,
 )
-from ._capacity_core import (
+from sim.models._capacity_core import (
     DEMAND_CODES,
     DEMANDS,
     RATIONING,
@@ -51,8 +51,8 @@ from ._capacity_core import (
     residual_demand,
     sales,
 )
-from ._capacity_reference import play_period
-from ._capacity_static import StaticEquilibrium, residual_monopoly, static_equilibrium
+from sim.models._capacity_reference import play_period
+from sim.models._capacity_static import StaticEquilibrium, residual_monopoly, static_equilibrium
 
 __all__ = [
     "DEMANDS",

@@ -40,11 +40,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._text import CAUTION
-from ..equilibrium import best_response, collusive_outcome, static_nash
-from ..errors import InputError
-from ..market import Market, MarketSpec
-from ..thresholds import grim_threshold
+from sim.core.errors import InputError
+from sim.core.text import CAUTION
+from sim.models.market import Market, MarketSpec
+from sim.theory.equilibrium import best_response, collusive_outcome, static_nash
+from sim.theory.thresholds import grim_threshold
 
 __all__ = ["SHARING", "CartelTable", "CartelWorry", "cartel_table", "merger_cartel_worry"]
 

@@ -29,11 +29,11 @@ from sim.antitrust.global_sensitivity import (
     sobol_indices,
     uncertain_inputs,
 )
-from sim.demand import LinearDemand
-from sim.equilibrium import stage_game
-from sim.errors import InputError, SolverError
-from sim.market import Market
-from sim.thresholds import grim_threshold
+from sim.core.errors import InputError, SolverError
+from sim.models.demand import LinearDemand
+from sim.models.market import Market
+from sim.theory.equilibrium import stage_game
+from sim.theory.thresholds import grim_threshold
 
 A, B = 7.0, 0.1
 V = A**2 / 8 + B * math.pi**4 / 5 + B**2 * math.pi**8 / 18 + 0.5

@@ -24,10 +24,10 @@ from sim.antitrust.screens import (
     maverick,
     pair_thresholds,
 )
-from sim.demand import LinearDemand, LogitDemand
-from sim.errors import InputError
-from sim.market import Market
+from sim.core.errors import InputError
 from sim.models.capacity_pricing import CapacityPricing
+from sim.models.demand import LinearDemand, LogitDemand
+from sim.models.market import Market
 
 
 def test_hhi_by_hand():

@@ -23,3 +23,8 @@ def test_vectorised_logit_thresholds_match_the_library():
 def test_partial_cartel_benchmark_runs():
     out = bench_partial_cartels(n_firms=4, repeats=1)
     assert out["n_cartels"] == 11 and out["seconds"] > 0
+
+
+def test_partial_cartel_benchmark_agrees_with_its_plain_python_reference():
+    out = bench_partial_cartels(n_firms=5, repeats=1)
+    assert out["reference_agrees"] and out["n_cartels"] == 26

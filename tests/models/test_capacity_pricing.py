@@ -24,7 +24,7 @@ import math
 import numpy as np
 import pytest
 
-from sim.errors import InputError
+from sim.core.errors import InputError
 from sim.models._capacity_numeric import price_bounds
 from sim.models._linsolve import lu_factor, lu_factor_reference, lu_solve, lu_solve_reference
 from sim.models.capacity_pricing import (

@@ -23,13 +23,13 @@ import json
 import numpy as np
 import pytest
 
-from sim.demand import DifferentiatedDemand, LinearDemand, LogitDemand
-from sim.errors import InputError
-from sim.market import Market
-from sim.merger import Merger, merge
+from sim.antitrust.merger import Merger, merge
+from sim.core.errors import InputError
 from sim.models.capacity_pricing import CapacityPricing
+from sim.models.demand import DifferentiatedDemand, LinearDemand, LogitDemand
+from sim.models.market import Market
 from sim.theory.cartels import CartelTable, CartelWorry, cartel_table, merger_cartel_worry
-from sim.thresholds import critical_discount_factors
+from sim.theory.thresholds import critical_discount_factors
 
 
 def cournot(n, a=10.0, b=1.0, c=1.0):
