@@ -193,7 +193,7 @@ def _problem(inputs):
 class SobolResult:
     """Sobol indices of each output.
 
-    Attributes
+    Parameters
     ----------
     inputs : tuple of str
     outputs : tuple of str
@@ -315,7 +315,7 @@ def sobol_indices(model, inputs: dict, n_base: int = 1024, seed: int = 0, vector
 class MorrisResult:
     """Morris elementary-effect screening of each output.
 
-    Attributes
+    Parameters
     ----------
     inputs, outputs : tuple of str
     mu_star, mu_star_conf, mu, sigma : dict of str -> ndarray of shape (n_inputs,)
@@ -426,7 +426,7 @@ def morris_screening(model, inputs: dict, n_trajectories: int = 50, num_levels: 
 class ShareResult:
     """Share of draws in which the merger makes coordination easier.
 
-    Attributes
+    Parameters
     ----------
     share, low, high : float
         Estimate and Wilson interval.

@@ -114,7 +114,7 @@ def _merging(merging, n) -> list:
 class ConcentrationScreen:
     """A merger against the EU (2004) and US (2023) concentration screens.
 
-    Attributes
+    Parameters
     ----------
     hhi_pre, hhi_post, change : float
         HHI before, after (at pre-merger shares, combined share for the merged firm) and the change.
@@ -262,7 +262,7 @@ def _merged(market, i: int, j: int):
 class PairTable:
     """The grim-trigger threshold after every two-firm merger.
 
-    Attributes
+    Parameters
     ----------
     names : tuple of str
     before : float
@@ -417,7 +417,7 @@ def _attributes(market) -> dict:
 class Maverick:
     """The firm whose presence raises the market's critical discount factor the most.
 
-    Attributes
+    Parameters
     ----------
     names : tuple of str
     threshold : float
@@ -430,6 +430,8 @@ class Maverick:
     firm : int
         Index of the maverick (-1 when no firm's presence raises the threshold).
     reason : str
+        What differs about it.
+    notes : tuple of str
     """
 
     names: tuple

@@ -23,8 +23,8 @@ import time
 
 import numpy as np
 
-from sim.antitrust.merger import Merger, merge
 from sim.antitrust.global_sensitivity import sobol_indices, uncertain_inputs
+from sim.antitrust.merger import Merger, merge
 from sim.models.demand import LinearDemand, LogitDemand
 from sim.models.market import Market
 from sim.theory.cartels import cartel_table
