@@ -49,6 +49,8 @@ SECTIONS: dict = {
     "runfolders": ("sim.bench.runfolders:bench_section",
                    "report and verify on run folders of 200, 2,000 and 20,000 cells: time, memory, growth"),
     "sweep": ("sim.bench.sweep:bench_section", "experiments layer: per-cell overhead, 2 local workers against 1"),
+    "capacity": ("sim.bench.capacity:capacity_benchmark",
+                 "capacity-constrained pricing, partial cartels and global sensitivity against plain references"),
     "payoff_sets": ("sim.bench.payoff_sets:payoff_sets_benchmark",
                     "equilibrium payoff sets: 2 firms against an independent implementation, 3 firms against LPs"),
 }
