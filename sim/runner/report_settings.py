@@ -133,22 +133,7 @@ def parse_report(table: Any, params: tuple) -> ReportSettings:
         level = f.get("level")
         if level is not None and (not is_real(level) or not math.isfinite(float(level))):
             raise InputError(f"{key}.level", f"must be a finite number, got {level!r}")
-        at = []
-        at_t = f.get("at", {})
-        if not isinstance(at_t, dict):
-            raise InputError(f"{key}.at", f"must be a table of swept parameters and values, got {at_t!r}")
-        for raw, v in _flatten_at(at_t):
-            cp = canonical_path(raw, f"{key}.at")
-            if cp not in swept:
-                raise InputError(f"{key}.at.{raw}", f"{raw!r} is not a swept parameter; swept: {', '.join(swept)}")
-            if cp in axes.values():
-                raise InputError(f"{key}.at.{raw}", f"{cp} is already an axis, group or facet of this figure")
-            p = swept[cp]
-            match = [lab for val, lab in zip(p.values, p.labels) if val == v or lab == v]
-            if not match:
-                raise InputError(f"{key}.at.{raw}", f"must be one of the swept values ({', '.join(p.labels)}), got "
-                                                    f"{v!r}")
-            at.append((cp, match[0]))
+        at = _parse_at(f.get("at", {}), key, swept, axes)
         fixed = {p for p, _ in at}
         rest = [p for p in params if p.path not in axes.values() and p.path not in fixed and len(p) > 1]
         if rest:
@@ -192,3 +177,23 @@ def figure_name(spec: FigureSpec, index: int) -> str:
 # --------------------------------------------------------------------------------------------------
 # Experiments
 # --------------------------------------------------------------------------------------------------
+
+
+def _parse_at(at_t, key: str, swept: dict, axes: dict) -> list:
+    """The ``at`` table of a figure: (path, label) pairs fixing the swept parameters it does not show."""
+    at = []
+    if not isinstance(at_t, dict):
+        raise InputError(f"{key}.at", f"must be a table of swept parameters and values, got {at_t!r}")
+    for raw, v in _flatten_at(at_t):
+        cp = canonical_path(raw, f"{key}.at")
+        if cp not in swept:
+            raise InputError(f"{key}.at.{raw}", f"{raw!r} is not a swept parameter; swept: {', '.join(swept)}")
+        if cp in axes.values():
+            raise InputError(f"{key}.at.{raw}", f"{cp} is already an axis, group or facet of this figure")
+        p = swept[cp]
+        match = [lab for val, lab in zip(p.values, p.labels) if val == v or lab == v]
+        if not match:
+            raise InputError(f"{key}.at.{raw}", f"must be one of the swept values ({', '.join(p.labels)}), got "
+                                                f"{v!r}")
+        at.append((cp, match[0]))
+    return at
