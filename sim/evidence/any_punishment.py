@@ -148,6 +148,20 @@ _POINTS = (  # name, label, marker, colour index
 )
 
 
+def _zoom(ax, ap: AnyPunishmentResult) -> None:
+    """Frame the equilibrium sets and the marked payoffs; the stage payoffs far below every minmax (a flooded
+    market) are cut off, since no equilibrium reaches them."""
+    pts = [np.asarray(ap.outer, float).reshape(-1, 2), np.asarray(ap.feasible, float).reshape(-1, 2)]
+    pts += [ap.point(name)[None, :2] for name, *_ in _POINTS]
+    P = np.vstack(pts)
+    P = P[np.all(np.isfinite(P), axis=1)]
+    low = np.minimum(np.asarray(ap.minmax, float)[:2], np.asarray(ap.outer, float).reshape(-1, 2).min(axis=0))
+    high = P.max(axis=0)
+    pad = 0.06 * (high - low).max()
+    ax.set_xlim(low[0] - pad, high[0] + pad)
+    ax.set_ylim(low[1] - pad, high[1] + pad)
+
+
 def figure(ap: AnyPunishmentResult, currency: str | None = None, period: str | None = None) -> Drawn | None:
     """The equilibrium payoff set at the reported discount factor, with the marked payoffs.
 
@@ -184,11 +198,12 @@ def figure(ap: AnyPunishmentResult, currency: str | None = None, period: str | N
             ax.plot(v[0, 0], v[0, 1], marker="^" if pc.firm == 0 else ">", ms=7, ls="none", color=color(4),
                     markeredgecolor="black", markeredgewidth=0.5, zorder=5,
                     label=f"optimal penal code of firm {pc.firm + 1}")
+    _zoom(ax, ap)
     unit = money(currency, period)
     ax.set_xlabel(f"profit of firm 1 [{unit}]", fontsize=FONT)
     ax.set_ylabel(f"profit of firm 2 [{unit}]", fontsize=FONT)
     ax.tick_params(labelsize=SMALL)
-    ax.set_aspect("equal", adjustable="datalim")
+    ax.set_aspect("equal", adjustable="box")
     ax.grid(True, color="#dddddd", lw=0.5)
     ax.set_axisbelow(True)
     proj = "" if ap.n_firms == 2 else f" (projection on firms 1 and 2 of {ap.n_firms})"

@@ -336,8 +336,15 @@ def any_punishment_analysis(market, spec: AnyPunishmentSpec, agreement: str = "j
             "worst_high": np.full(n, np.nan), "outer": empty, "inner": empty, "penal_codes": []}
     if math.isfinite(delta):
         res = equilibrium_payoffs(game, delta, method=spec.method, directions=dirs)
-        sets = {"verdict": _verdict(t.profits, gains, res.worst_outer, res.worst_inner, delta,
-                                    res.inner_vertices.shape[0] == 0, res.empty),
+        verdict = _verdict(t.profits, gains, res.worst_outer, res.worst_inner, delta,
+                           res.inner_vertices.shape[0] == 0, res.empty)
+        # the bisection's certificates stand: at or above ``high`` an equilibrium was constructed (by the sets or
+        # by a named scheme, whose equilibria are in the set), below ``low`` the outer sets (or the minmax) refute it
+        if math.isfinite(t.high) and delta >= t.high:
+            verdict = "sustained"
+        elif delta < t.low:
+            verdict = "refuted"
+        sets = {"verdict": verdict,
                 "status": res.status, "accuracy": float(res.accuracy), "worst_low": res.worst_outer,
                 "worst_high": res.worst_inner, "outer": _projected_hull(res.outer_vertices),
                 "inner": _projected_hull(res.inner_vertices),
