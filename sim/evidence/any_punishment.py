@@ -148,6 +148,10 @@ _POINTS = (  # name, label, marker, colour index
 )
 
 
+#: markers of the optimal penal codes' values, one per punished firm
+_PENAL_MARKERS = ("^", ">", "<", "D", "p", "h")
+
+
 def _zoom(ax, ap: AnyPunishmentResult) -> None:
     """Frame the equilibrium sets and the marked payoffs; the stage payoffs far below every minmax (a flooded
     market) are cut off, since no equilibrium reaches them."""
@@ -195,7 +199,8 @@ def figure(ap: AnyPunishmentResult, currency: str | None = None, period: str | N
     for pc in ap.penal_codes:
         v = np.asarray(pc.values, float)
         if v.size and np.all(np.isfinite(v[0, :2])):
-            ax.plot(v[0, 0], v[0, 1], marker="^" if pc.firm == 0 else ">", ms=7, ls="none", color=color(4),
+            ax.plot(v[0, 0], v[0, 1], marker=_PENAL_MARKERS[pc.firm % len(_PENAL_MARKERS)], ms=7, ls="none",
+                    color=color(4 + pc.firm // len(_PENAL_MARKERS)),
                     markeredgecolor="black", markeredgewidth=0.5, zorder=5,
                     label=f"optimal penal code of firm {pc.firm + 1}")
     _zoom(ax, ap)
@@ -207,8 +212,8 @@ def figure(ap: AnyPunishmentResult, currency: str | None = None, period: str | N
     ax.grid(True, color="#dddddd", lw=0.5)
     ax.set_axisbelow(True)
     proj = "" if ap.n_firms == 2 else f" (projection on firms 1 and 2 of {ap.n_firms})"
-    ax.set_title(f"Equilibrium payoffs at delta {fmt_num(ap.delta)}{proj}, {_grid(ap)} action grid",
-                 fontsize=FONT + 1)
+    ax.set_title(f"Equilibrium payoffs at delta {fmt_num(ap.delta)}, {_grid(ap)} action grid"
+                 + (f"\n{proj.strip()}" if proj else ""), fontsize=FONT + 1)
     fig.legend(loc="outside lower center", ncol=2, fontsize=SMALL, frameon=False)
     caption = (f"Subgame-perfect equilibrium payoffs (discounted average profit per period) at discount factor "
                f"{fmt_num(ap.delta)} on a {_grid(ap)} action grid{proj}: every equilibrium payoff lies in the outer "
