@@ -123,7 +123,7 @@ def test_the_reversal_is_not_an_artefact_of_the_grid(shipped):
     """A finer grid moves the threshold (discretisation) but not the conclusion at the market's discount factor;
     the threshold stays above the bound that no punishment can beat: holding a firm to its minmax forever,
     (pi_D - pi_C) / (pi_D - minmax) (Abreu, 1988)."""
-    doc, market, agreement, spec, _ = shipped
+    doc, market, agreement, *_ = shipped
     fine = check_any_punishment({**doc["any_punishment"], "grid": 21}, market, agreement)
     ap = any_punishment_analysis(market, fine, agreement)
     assert ap.verdict == "sustained" and ap.high < doc["any_punishment"]["delta"]
