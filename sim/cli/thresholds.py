@@ -36,6 +36,17 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--noise", choices=["lognormal", "normal"],
                    help="also compute the trigger-price equilibrium under this demand shock (needs --delta)")
     g.add_argument("--sigma", metavar="S", help="standard deviation of the demand shock (default 0.1)")
+    a = p.add_argument_group("any punishment (the [any_punishment] table)")
+    a.add_argument("--any-punishment", action="store_true",
+                   help="also find the lowest critical discount factor under any punishment (optimal penal codes) "
+                        "on an action grid, beside the named schemes")
+    a.add_argument("--grid", metavar="N", help="actions per firm of that grid (one count, or n1,n2,...; default 15)")
+    a.add_argument("--directions", metavar="L",
+                   help="directions of the outer payoff sets with three firms or more (at least firms + 1)")
+    a.add_argument("--bracket", metavar="TOL", help="width of the interval on the discount factor (default 0.001)")
+    a.add_argument("--at-delta", metavar="D",
+                   help="discount factor at which to report the worst equilibrium payoffs and the payoff set "
+                        "(default: the upper end of the interval)")
     p.add_argument("--plot", metavar="DIR", help="write the figure of the thresholds (PNG) into DIR")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
 
@@ -49,6 +60,10 @@ _FLAG_OF = {
     "monitoring.signal": "--noise",
     "monitoring.noise": "--noise",
     "monitoring.sigma": "--sigma",
+    "any_punishment.grid": "--grid",
+    "any_punishment.directions": "--directions",
+    "any_punishment.tolerance": "--bracket",
+    "any_punishment.delta": "--at-delta",
 }
 
 
@@ -59,7 +74,7 @@ def _document(args) -> tuple[dict, set]:
     doc = read_toml(args.file) if args.file else {}
     if args.file and "market" not in doc:
         raise InputError("market", f"{args.file} has no [market] table")
-    for name in ("market", "collusion", "thresholds", "monitoring"):
+    for name in ("market", "collusion", "thresholds", "monitoring", "any_punishment"):
         if name in doc and not isinstance(doc[name], dict):
             raise InputError(name, f"must be a table, got {doc[name]!r}")
     doc = {k: (dict(v) if isinstance(v, dict) else v) for k, v in doc.items()}
@@ -93,7 +108,29 @@ def _document(args) -> tuple[dict, set]:
     if args.sigma is not None:
         mon["sigma"] = parse_number("sigma", args.sigma)
         flags.add("monitoring.sigma")
+    flags |= _any_punishment_flags(args, doc)
     return doc, flags
+
+
+def _any_punishment_flags(args, doc: dict) -> set:
+    """Write the [any_punishment] table from its flags (any of them switches the part on)."""
+    given = {"grid": args.grid, "directions": args.directions, "tolerance": args.bracket, "delta": args.at_delta}
+    if not args.any_punishment and all(v is None for v in given.values()):
+        return set()
+    ap = doc.setdefault("any_punishment", {})
+    flags = set()
+    if args.grid is not None:
+        ap["grid"] = parse_numbers("grid", args.grid)
+    if args.directions is not None:
+        ap["directions"] = parse_number("directions", args.directions, integer=True)
+    if args.bracket is not None:
+        ap["tolerance"] = parse_number("bracket", args.bracket)
+    if args.at_delta is not None:
+        ap["delta"] = parse_number("at-delta", args.at_delta)
+    for key, v in given.items():
+        if v is not None:
+            flags.add(f"any_punishment.{key}")
+    return flags
 
 
 def _renamed(exc: InputError, flags: set) -> InputError:

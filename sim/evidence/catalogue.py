@@ -55,6 +55,15 @@ _WILSON = "Wilson score interval (Wilson, 1927, JASA 22)"
 _STUDENT = "Student t across independent sessions"
 _FRIEDMAN = ("delta* = (pi_D - pi_C) / (pi_D - pi_N), the smallest delta with pi_C / (1 - delta) >= pi_D + delta pi_N "
              "/ (1 - delta) (Friedman, 1971, Review of Economic Studies 38(1))")
+_JYC = ("outer approximation by supporting hyperplanes in fixed directions (Judd, Yeltekin and Conklin, 2003, "
+        "\"Computing supergame equilibria\", Econometrica 71(4))")
+_SETS = ("equilibrium payoffs bracketed between inner (self-generating) and outer sets of the operator of Abreu, "
+         "Pearce and Stacchetti (1990, Econometrica 58(5)); two firms: exact images after Abreu and Sannikov (2014, "
+         "Theoretical Economics 9); more firms: Judd, Yeltekin and Conklin (2003, Econometrica 71(4))")
+_PENAL = "value of the optimal penal code (Abreu, 1988, Econometrica 56(2)), read from the payoff sets: " + _SETS
+_ANY = ("smallest delta with (1 - delta) (pi_D - pi_C) <= delta (pi_C - v(delta)) for every firm, v the worst "
+        "equilibrium payoff (Abreu, 1988, Econometrica 56(2)); bisection on delta over payoff sets bracketed after "
+        "Abreu, Pearce and Stacchetti (1990), Judd, Yeltekin and Conklin (2003) and Abreu and Sannikov (2014)")
 
 ENTRIES: dict[str, Entry] = {
     # stage game and thresholds
@@ -276,6 +285,47 @@ ENTRIES: dict[str, Entry] = {
     "calibration.max_relative_residual": Entry("largest relative residual of the calibration", "share",
                                                "How far the calibrated market misses the observed data.",
                                                "calibration to prices, shares and margins"),
+    # the any-punishment part of the thresholds analysis (payoff sets on an action grid)
+    "any_punishment.grid": Entry("actions per firm on the grid", "count",
+                                 "Number of actions of the firm in the finite stage game on which the payoff sets "
+                                 "are computed.", "uniform grid over the action range with the static Nash, "
+                                 "collusive, deviation, stick and minmax actions placed on it (this tool's choice)"),
+    "any_punishment.directions": Entry("directions of the outer payoff sets", "count",
+                                       "Number of directions of the supporting hyperplanes (0: exact two-firm sets).",
+                                       _JYC),
+    "any_punishment.threshold.lower": Entry("critical discount factor under any punishment, lower end", "",
+                                            "At or below it the agreement is not an equilibrium outcome under any "
+                                            "punishment: the outer payoff set refutes it.", _ANY),
+    "any_punishment.threshold.upper": Entry("critical discount factor under any punishment, upper end", "",
+                                            "At it the agreement is sustained by constructed equilibria whose "
+                                            "punishments are the optimal penal codes.", _ANY),
+    "any_punishment.on_grid.grim": Entry("critical discount factor on the action grid, grim trigger", "",
+                                         "Grim trigger's threshold in the same finite stage game.", _FRIEDMAN),
+    "any_punishment.on_grid.stick_carrot": Entry("critical discount factor on the action grid, stick and carrot", "",
+                                                 "The best symmetric one-period punishment (a common action of "
+                                                 "every firm on the grid) followed by the agreement.",
+                                                 "Abreu (1986), Journal of Economic Theory 39, minimised over the "
+                                                 "common actions on the grid"),
+    "any_punishment.on_grid.two_phase": Entry("critical discount factor on the action grid, one-period punishment "
+                                              "at any profile", "",
+                                              "One period at any action profile, asymmetric ones included, then the "
+                                              "agreement.", "Abreu (1986), minimised over every profile of the grid"),
+    "any_punishment.delta": Entry("discount factor of the payoff set", "",
+                                  "The discount factor at which the worst payoffs and the payoff set are reported "
+                                  "(given, or the upper end of the interval).", "given or computed"),
+    "any_punishment.sustained": Entry("agreement sustained under any punishment", "yes (1) / no (0)",
+                                      "Whether the agreement is an equilibrium outcome at that discount factor "
+                                      "(empty when the bracket cannot decide).", _ANY),
+    "any_punishment.accuracy": Entry("accuracy of the payoff sets", "{money}",
+                                     "Hausdorff distance between the inner and the outer equilibrium payoff sets at "
+                                     "that discount factor: every number read from them is known to this precision.",
+                                     _SETS),
+    "any_punishment.worst.lower": Entry("worst equilibrium payoff, lower end", "{money}",
+                                        "A lower bound of the firm's worst subgame-perfect equilibrium payoff "
+                                        "(discounted average), from the outer set.", _PENAL),
+    "any_punishment.worst.upper": Entry("worst equilibrium payoff, upper end", "{money}",
+                                        "The firm's payoff in the harshest punishment constructed (its optimal penal "
+                                        "code), from the inner set.", _PENAL),
 }
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)

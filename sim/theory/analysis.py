@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from sim.core.records import Record
+from sim.theory.any_punishment import AnyPunishmentResult, AnyPunishmentSpec, any_punishment_analysis
 from sim.theory.thresholds import critical_discount_factors
 from sim.theory.trigger_price import trigger_price_equilibrium
 
@@ -39,6 +40,8 @@ class ThresholdsSpec:
         The demand shock of the trigger-price equilibrium (None: perfect monitoring, no such equilibrium).
     sigma : float
         Its standard deviation.
+    any_punishment : AnyPunishmentSpec or None
+        The lowest threshold under any punishment, asked for by an ``[any_punishment]`` table (None: not asked).
     """
 
     market: object
@@ -48,6 +51,7 @@ class ThresholdsSpec:
     deltas: tuple
     noise: str | None = None
     sigma: float = 0.0
+    any_punishment: AnyPunishmentSpec | None = None
 
 
 @dataclass(frozen=True)
@@ -68,6 +72,9 @@ class ThresholdsResult(Record):
     deltas : list of float
     trigger_price : list of dict or None
         One trigger-price equilibrium per discount factor (:meth:`sim.TriggerPriceScheme.to_dict`).
+    any_punishment : AnyPunishmentResult or None
+        The lowest critical discount factor under any punishment on an action grid, with the named schemes on
+        the same grid (None when the experiment has no ``[any_punishment]`` table).
     """
 
     market: dict
@@ -76,6 +83,7 @@ class ThresholdsResult(Record):
     punishments: list
     deltas: list
     trigger_price: list | None = None
+    any_punishment: AnyPunishmentResult | None = None
 
     @property
     def n_firms(self) -> int:
@@ -117,6 +125,9 @@ def thresholds_analysis(spec: ThresholdsSpec) -> ThresholdsResult:
     caps = [float(c) if np.isfinite(c) else None for c in ms.capacity]
     products = {"cost": [float(c) for c in ms.cost], "capacity": caps, "owner": (ms.owner + 1).tolist(),
                 "quantity_setting": bool(ms.quantity_setting), "n_firms": int(ms.n_firms)}
+    anyp = None
+    if spec.any_punishment is not None:
+        anyp = any_punishment_analysis(spec.market, spec.any_punishment, spec.agreement, spec.actions)
     return ThresholdsResult(market=spec.market.to_dict(), products=products, report=report.to_dict(),
                             punishments=[int(t) for t in spec.punishments], deltas=[float(d) for d in spec.deltas],
-                            trigger_price=tp)
+                            trigger_price=tp, any_punishment=anyp)
