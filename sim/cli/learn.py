@@ -42,6 +42,8 @@ _FLAGS = {
         "grid": ("grid", "nums"),
         "k": ("k", "int"),
         "init": ("init", "str"),
+        "update": ("update", "str"),
+        "counterfactual_share": ("counterfactual-share", "num"),
         "convergence": ("convergence", "int"),
         "max_periods": ("max-periods", "int"),
         "near": ("near", "num"),
@@ -81,6 +83,11 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--grid", metavar="A1,A2,...", help="the actions themselves instead of the published grid")
     g.add_argument("--k", metavar="K", help="memory: periods of past actions in the state (default 1)")
     g.add_argument("--init", metavar="INIT", help="initial Q-values: uniform (default) or zeros")
+    g.add_argument("--update", metavar="RULE", help="which values a learner updates after a period: asynchronous "
+                                                    "(the action played; default), synchronous (every action, from "
+                                                    "what it would have earned) or mixed")
+    g.add_argument("--counterfactual-share", metavar="S", help="with --update mixed: probability in (0, 1) that each "
+                                                               "action not played is updated")
     g.add_argument("--convergence", metavar="C", help="converged after C periods without a change of any greedy "
                                                       "strategy (default 100000)")
     g.add_argument("--max-periods", metavar="N", help="cap on a session's periods (default 1e9)")

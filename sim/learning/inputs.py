@@ -78,6 +78,9 @@ class SeatInputs(NamedTuple):
         The firm of each seat (``arange(n)``: one seat per firm).
     alpha, beta, delta : ndarray of float64, shape (n,)
         Learning rate, exploration decay and discount factor of each learner (0 for automata).
+    share : ndarray of float64, shape (n,)
+        The update rule of each learner: the probability that each action it did not play is updated from its
+        counterfactual profit in a period (0 asynchronous, 1 synchronous, in between mixed; 0 for automata).
     """
 
     kind: np.ndarray
@@ -91,6 +94,7 @@ class SeatInputs(NamedTuple):
     alpha: np.ndarray
     beta: np.ndarray
     delta: np.ndarray
+    share: np.ndarray
 
 
 class StageInputs(NamedTuple):

@@ -364,7 +364,8 @@ def _seat_inputs(compiled: tuple, radix: list, zn: np.ndarray) -> SeatInputs:
                       owner=np.arange(n, dtype=np.int64),
                       alpha=np.array([c.alpha if c else 0.0 for c in compiled]),
                       beta=np.array([c.beta if c else 0.0 for c in compiled]),
-                      delta=np.array([c.delta if c else 0.0 for c in compiled]))
+                      delta=np.array([c.delta if c else 0.0 for c in compiled]),
+                      share=np.array([c.share if c else 0.0 for c in compiled]))
 
 
 def _stage_inputs(ms, grids: tuple, seats: SeatInputs, M: int, K: int, automata: bool, prefix: str) -> StageInputs:
