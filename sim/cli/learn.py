@@ -48,6 +48,8 @@ _FLAGS = {
         "max_periods": ("max-periods", "int"),
         "near": ("near", "num"),
         "limit_periods": ("limit-periods", "int"),
+        "save_to": ("save-to", "str"),
+        "continue_from": ("continue-from", "str"),
     },
     "impulse": {
         "firm": ("impulse-firm", "int"),
@@ -95,6 +97,10 @@ def configure(p: argparse.ArgumentParser) -> None:
                                                  "(default 0.1)")
     g.add_argument("--limit-periods", metavar="N", help="with automata that act at random: periods of simulated "
                                                         "greedy play averaged by the limit estimate (default 10000)")
+    g.add_argument("--save-to", metavar="FILE", help="save every session's learners (Q-values, counters, random "
+                                                     "state) at the end to FILE, to be continued later")
+    g.add_argument("--continue-from", metavar="FILE", help="continue the sessions saved in FILE (same market, "
+                                                           "grids and number of sessions) instead of new ones")
     g = p.add_argument_group("impulse response (override [impulse])")
     g.add_argument("--impulse-firm", metavar="F", help="firm forced to deviate, 1 to n (default 1)")
     g.add_argument("--impulse-action", metavar="A", help="its action: best_response (default) or a number "

@@ -168,12 +168,17 @@ class SessionState(NamedTuple):
         Automaton states (entries of learner seats unused).
     rng : ndarray of uint64, shape (4,)
         The session's xoshiro256** state.
+    clock : ndarray of int64, shape (2,)
+        Periods played so far and, of them, the last consecutive ones without a change of any greedy action: read
+        when the session starts (zeros for a new session; a saved session's counters to continue it) and written
+        when it stops.
     """
 
     Q: np.ndarray
     greedy: np.ndarray
     z: np.ndarray
     rng: np.ndarray
+    clock: np.ndarray
 
 
 class Play(NamedTuple):

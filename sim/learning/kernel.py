@@ -166,12 +166,15 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
     automata : AutomatonInputs
     session : SessionState
         Modified in place; ``session.greedy`` must hold the first argmax of every row of ``session.Q`` on entry.
+        The session goes on from ``session.clock`` (periods played, the last of them without a change), which
+        receives the counters at the end: a session stopped at the cap and run again with a higher cap plays the
+        periods an uninterrupted one would.
     s : int
         History state at the start (:func:`initial_state`).
     convergence : int
         Stop once no learner's greedy strategy has changed for this many consecutive periods.
     max_periods : int
-        Stop after this many periods in any case.
+        Stop once this many periods have been played in all (counted from the session's start) in any case.
 
     Returns
     -------
@@ -185,15 +188,15 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
     kind, lidx, radix, place, mod, _zn, _zplace, owner, alpha, beta, delta, share = seats
     M, S, K, payoff, _actions, _prices, mprice, values, quantity_setting = stage
     a_states, a_probs, a_firms, a_levels, act_of_level = automata
-    Q, greedy, z, rng = session
+    Q, greedy, z, rng, clock = session
     n = radix.size
     act = np.empty(n, np.int64)
     vals = np.empty(n, np.float64)
     cont = np.empty(radix.max(), np.float64)
     upd = np.empty(radix.max(), np.bool_)
     has_automata = (kind == AUTOMATON).any()
-    t = 0
-    stable = 0
+    t = clock[0]
+    stable = clock[1]
     while t < max_periods:
         # 1. every seat chooses: a learner explores with probability exp(-beta t), else plays its greedy action
         tf = np.float64(t)
@@ -261,5 +264,7 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
         else:
             stable += 1
             if stable >= convergence:
+                clock[0], clock[1] = t, stable
                 return STATUS_CONVERGED, t, s
+    clock[0], clock[1] = t, stable
     return STATUS_CAP, t, s
