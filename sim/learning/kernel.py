@@ -168,7 +168,7 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
         Modified in place; ``session.greedy`` must hold the first argmax of every row of ``session.Q`` on entry.
         The session goes on from ``session.clock`` (periods played, the last of them without a change), which
         receives the counters at the end: a session stopped at the cap and run again with a higher cap plays the
-        periods an uninterrupted one would.
+        periods an uninterrupted one would, and one that had converged under this ``convergence`` plays none.
     s : int
         History state at the start (:func:`initial_state`).
     convergence : int
@@ -197,6 +197,9 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
     has_automata = (kind == AUTOMATON).any()
     t = clock[0]
     stable = clock[1]
+    if stable >= convergence:
+        # a continued session that had converged under this rule: an uninterrupted one would have stopped there
+        return STATUS_CONVERGED, t, s
     while t < max_periods:
         # 1. every seat chooses: a learner explores with probability exp(-beta t), else plays its greedy action
         tf = np.float64(t)
