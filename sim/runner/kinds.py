@@ -86,11 +86,15 @@ class CellContext:
         Threads the cell may use (results must not depend on it).
     progress : bool
         Whether the cell may show its own progress bar (only for a single in-process cell).
+    folder : str or None
+        The run folder, for a cell that writes files of its own into it (covered by the run's manifest); None
+        when the cell runs in memory.
     """
 
     index: int = 0
     threads: int = 1
     progress: bool = False
+    folder: str | None = None
 
     @property
     def key(self) -> tuple:
