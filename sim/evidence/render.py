@@ -96,6 +96,7 @@ RENDERERS: dict = {
     "assess": "sim.evidence.assess:RENDERER",
     "learn": "sim.evidence.learn:RENDERER",
     "tournament": "sim.evidence.tournament:RENDERER",
+    "capacity": "sim.evidence.capacity:RENDERER",
 }
 
 
