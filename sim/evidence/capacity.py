@@ -217,8 +217,9 @@ def _equilibrium_figure(res: CapacityResult):
     handles = [plt.Line2D([], [], color=color(k), lw=1.3) for k in range(len(names))]
     fig.legend(handles, names, loc="lower center", ncol=min(len(names), 6), fontsize=SMALL, frameon=False)
     fig.tight_layout(rect=(0, 0.1, 1, 1))
-    return Drawn("capacity-static-equilibrium", fig, "Distribution of each firm's price in the static equilibrium "
-                                                     "(the punishment of Nash reversion); a jump at the top is an atom.")
+    return Drawn("capacity-static-equilibrium", fig,
+                 "Distribution of each firm's price in the static equilibrium (the punishment of Nash reversion); a "
+                 "jump at the top is an atom.")
 
 
 def _sobol_figure(s):
