@@ -54,9 +54,12 @@ def minmax_threshold(market: CapacityPricing, agreement: dict) -> float:
         0 when the capacities do not exceed the demand at the agreed price; 1 when a firm cannot be held.
     """
     s = market.spec()
-    agreed = market.agreement(agreement["rule"], agreement["shares"], agreement["price"])
-    if s.total_capacity <= float(agreed.quantities.sum()) * (1 + 1e-12):
+    p_ref = agreement["price"]
+    if p_ref is None:
+        p_ref = s.reservation_price if not s.linear else 0.5 * (s.reservation_price + s.cost)
+    if s.total_capacity <= float(s.quantity(p_ref)) * (1 + 1e-12):
         return 0.0
+    agreed = market.agreement(agreement["rule"], agreement["shares"], agreement["price"])
     dev, _, _ = market.best_deviations(agreed)
     per_firm = threshold(agreed.profits, dev, market.minmax())
     return 1.0 if np.any(~np.isfinite(per_firm)) else float(np.max(per_firm))

@@ -120,6 +120,11 @@ def sections(res: CapacityResult) -> list:
     return out
 
 
+def _constant(s, o: str) -> bool:
+    """An output the inputs do not move (its spread is rounding only)."""
+    return s.std.get(o, 1.0) <= 1e-12 * max(1.0, abs(s.mean.get(o, 0.0)))
+
+
 def _sobol_section(s) -> dict:
     rows = []
     for o in s.outputs:
@@ -131,7 +136,7 @@ def _sobol_section(s) -> dict:
                       f"{s.n_base} base samples, {s.n_evaluations} evaluations, seed {s.seed}; "
                       f"{s.confidence:.0%} bootstrap intervals (Saltelli et al., 2010, by SALib)",
                       *(f"The output '{o}' does not vary over the ranges: its indices are 0."
-                        for o in s.outputs if s.std.get(o, 1.0) == 0)],
+                        for o in s.outputs if _constant(s, o))],
             "headers": ["output", "input", "first order", "low", "high", "total", "low", "high"], "rows": rows}
 
 
@@ -234,7 +239,7 @@ def _sobol_figure(s):
             err = np.vstack([np.clip(v - lo[o], 0, None), np.clip(hi[o] - v, 0, None)])
             ax.barh(y + off, v, 0.36, xerr=err, color=color(k), ecolor="black", capsize=2,
                     label="first order" if what == "first" else "total")
-        constant = s.std.get(o, 1.0) == 0
+        constant = _constant(s, o)
         ax.set_title(titles.get(o, o) + (" (constant)" if constant else ""), fontsize=FONT)
         ax.set_xlim(-0.1, max(1.1, float(np.max(s.total_high[o])) + 0.05, float(np.max(s.first_high[o])) + 0.05))
         ax.set_xlabel("Sobol index", fontsize=FONT)
