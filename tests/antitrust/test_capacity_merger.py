@@ -130,7 +130,7 @@ def test_partial_cartels_before_and_after(kiln):
     # every firm together: threshold k_L / K before (1/3 <= 0.35, sustainable) and after (0.4 > 0.35, not)
     _, res = kiln
     cw = res.merger.cartels
-    grand = [r for r in cw.rows if len(r["members"]) == 4][0]
+    grand = next(r for r in cw.rows if len(r["members"]) == 4)
     assert grand["sustainable_before"] and not grand["sustainable_after"]
     assert res.merger.factors[2]["model_direction"] == "hinders"
 
