@@ -18,6 +18,7 @@ from sim.evidence.render import Drawn, Renderer, pyplot
 
 __all__ = ["RENDERER", "as_json", "bundle", "console", "figures", "sections"]
 
+_STYLES = ("-", "--", "-.", ":")
 _KINDS = {"market_clearing": "pure: every firm sells its capacity at the market-clearing price",
           "cost_pricing": "pure: price equals marginal cost", "mixed": "mixed (Bertrand-Edgeworth)"}
 
@@ -213,13 +214,15 @@ def _equilibrium_figure(res: CapacityResult):
         grid = np.linspace(lo - 0.05 * (hi - lo + 1), hi + 0.05 * (hi - lo + 1), 400)
         F = eq.cdf_at(grid)
         for i, name in enumerate(th.names):
-            ax.step(grid, F[i], where="post", color=color(names.index(name)), lw=1.3, label=name)
+            k = names.index(name)
+            # equal firms have equal distributions: line styles keep overlapping curves apart
+            ax.step(grid, F[i], where="post", color=color(k), ls=_STYLES[k % 4], lw=1.3, label=name)
         ax.set_title(title, fontsize=FONT)
         ax.set_xlabel("price", fontsize=FONT)
         ax.tick_params(labelsize=SMALL)
         ax.grid(alpha=0.3)
     axes[0][0].set_ylabel("probability of a price at most p", fontsize=FONT)
-    handles = [plt.Line2D([], [], color=color(k), lw=1.3) for k in range(len(names))]
+    handles = [plt.Line2D([], [], color=color(k), ls=_STYLES[k % 4], lw=1.3) for k in range(len(names))]
     fig.legend(handles, names, loc="lower center", ncol=min(len(names), 6), fontsize=SMALL, frameon=False)
     fig.tight_layout(rect=(0, 0.1, 1, 1))
     return Drawn("capacity-static-equilibrium", fig,
@@ -237,8 +240,11 @@ def _sobol_figure(s):
                                                  ("total", s.total_low, s.total_high, 0.18))):
             v = getattr(s, what)[o]
             err = np.vstack([np.clip(v - lo[o], 0, None), np.clip(hi[o] - v, 0, None)])
-            ax.barh(y + off, v, 0.36, xerr=err, color=color(k), ecolor="black", capsize=2,
-                    label="first order" if what == "first" else "total")
+            ax.barh(y + off, v, 0.36, color=color(k), label="first order" if what == "first" else "total")
+            shown = err.sum(axis=0) > 0  # no whiskers of zero width on an output the inputs do not move
+            if shown.any():
+                ax.errorbar(v[shown], (y + off)[shown], xerr=err[:, shown], fmt="none", ecolor="black", capsize=2,
+                            lw=1.0)
         constant = _constant(s, o)
         ax.set_title(titles.get(o, o) + (" (constant)" if constant else ""), fontsize=FONT)
         ax.set_xlim(-0.1, max(1.1, float(np.max(s.total_high[o])) + 0.05, float(np.max(s.first_high[o])) + 0.05))
