@@ -8,10 +8,12 @@ from sim.cli._common import add_market_flags, emit, flag_error, market_table_fro
 from sim.core.errors import InputError
 from sim.core.jsonutil import dumps
 from sim.core.tomlfile import read_toml
+from sim.evidence.capacity import RENDERER as CAPACITY_RENDERER
 from sim.evidence.render import write_figures
 from sim.evidence.thresholds import RENDERER
 from sim.runner.analyses.thresholds import KIND as THRESHOLDS
 from sim.runner.single import run_single
+from sim.theory.capacity_analysis import is_capacity_market
 
 HELP = "stage game and critical discount factors of a market (analytic baseline)"
 DESCRIPTION = (
@@ -142,8 +144,24 @@ def _renamed(exc: InputError, flags: set) -> InputError:
     return exc
 
 
+def _run_capacity(args, doc: dict, flags: set) -> int:
+    """A market of price competition with capacities: its own analysis (kind ``capacity``), without a merger."""
+    doc = {k: v for k, v in doc.items() if k in ("market", "collusion")}
+    doc["experiment"] = {"kind": "capacity"}
+    try:
+        one = run_single(doc, source=args.file, default_name="thresholds")
+    except InputError as exc:
+        raise _renamed(exc, flags if args.file else flags | set(_FLAG_OF)) from None
+    if args.plot:
+        write_figures(CAPACITY_RENDERER.figures(one.result), args.plot)
+    emit(dumps(CAPACITY_RENDERER.as_json(one.result), indent=2) if args.json else CAPACITY_RENDERER.console(one.result))
+    return 0
+
+
 def run(args) -> int:
     doc, flags = _document(args)
+    if is_capacity_market(doc.get("market")):
+        return _run_capacity(args, doc, flags)
     # the tables this analysis reads, whatever the kind of FILE (any experiment file's [market] will do)
     doc = {k: v for k, v in doc.items() if k in THRESHOLDS.tables}
     doc["experiment"] = {"kind": "thresholds"}

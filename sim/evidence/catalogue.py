@@ -326,6 +326,56 @@ ENTRIES: dict[str, Entry] = {
     "any_punishment.worst.upper": Entry("worst equilibrium payoff, upper end", "{money}",
                                         "The firm's payoff in the harshest punishment constructed (its optimal penal "
                                         "code), from the inner set.", _PENAL),
+    # price competition with capacity constraints
+    "capacity": Entry("capacity", "quantity per period", "The most the firm can sell in a period.", "given"),
+    "profit.minmax": Entry("minmax profit", "{money}",
+                           "The least profit the rivals can hold the firm to: they price at zero and sell first, the "
+                           "firm sells its residual demand at its best price.",
+                           "minmax of the stage game (Abreu, 1988, Econometrica 56(2); Lambson, 1987, Review of "
+                           "Economic Studies 54(3))"),
+    "static_mixed": Entry("static equilibrium in mixed strategies", "yes (1) / no (0)",
+                          "Whether the static equilibrium of price competition with capacities is mixed "
+                          "(Bertrand-Edgeworth).",
+                          "Kreps and Scheinkman (1983), Bell Journal of Economics 14(2); Osborne and Pitchik (1986), "
+                          "Journal of Economic Theory 38(2); numerically on a price grid for more than two firms"),
+    "threshold.minmax": Entry("critical discount factor, minmax punishment", "",
+                              "The lowest discount factor at which the agreement holds when a deviator is held to its "
+                              "minmax profit forever.",
+                              "delta* = (pi_D - pi_C) / (pi_D - pi_minmax) (Abreu, 1988; with capacities: Compte, "
+                              "Jenny and Rey, 2002, European Economic Review 46(1))"),
+    "binding.minmax": Entry("binding firm, minmax punishment", "firm number",
+                            "The firm with the highest critical discount factor under minmax punishments.",
+                            "argmax over firms (the first on ties)"),
+    "capacity_share.largest": Entry("largest capacity share", "0 to 1",
+                                    "The largest firm's capacity divided by the total capacity.",
+                                    "the symmetry measure of Compte, Jenny and Rey (2002), Capacity constraints, "
+                                    "mergers and collusion, European Economic Review 46(1)"),
+    "spare_capacity": Entry("spare capacity", "share of the quantity sold",
+                            "Total capacity over the quantity sold under the agreement, minus one.",
+                            "common practice, no source"),
+    "rivals_cover": Entry("capacity of the largest firm's rivals", "share of demand",
+                          "The total capacity of the largest firm's rivals over the demand at the agreed price; below "
+                          "one they cannot serve the market on their own.",
+                          "Compte, Jenny and Rey (2002), Capacity constraints, mergers and collusion, European "
+                          "Economic Review 46(1)"),
+    "threshold.grim.change": Entry("change of the critical discount factor, grim trigger", "",
+                                   "After minus before the merger; negative: coordination becomes easier.",
+                                   "difference of the two thresholds; " + _FRIEDMAN),
+    "threshold.minmax.change": Entry("change of the critical discount factor, minmax punishment", "",
+                                     "After minus before the merger; negative: coordination becomes easier.",
+                                     "difference of the two thresholds (Compte, Jenny and Rey, 2002)"),
+    "binding_changed": Entry("binding firm changes", "yes (1) / no (0)",
+                             "Whether the merger changes which firm binds under minmax punishments.",
+                             "comparison of the binding firms (Compte, Jenny and Rey, 2002)"),
+    "eu_safe_harbour": Entry("within the EU guidelines' levels of no concern", "yes (1) / no (0)",
+                             "Whether the post-merger HHI and its change lie within the levels at which concerns are "
+                             "unlikely.",
+                             "Guidelines on the assessment of horizontal mergers, OJ C 31, 5.2.2004, paragraphs 19-21"),
+    "us_presumption": Entry("US structural presumption", "yes (1) / no (0)",
+                            "Whether the HHI after the merger is above 1,800 with a change above 100, or the merged "
+                            "share above 30 % with a change above 100.",
+                            "U.S. Department of Justice and Federal Trade Commission, Merger Guidelines (2023), "
+                            "section 2.1"),
 }
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)

@@ -97,6 +97,7 @@ RENDERERS: dict = {
     "learn": "sim.evidence.learn:RENDERER",
     "simulate": "sim.evidence.simulate:RENDERER",
     "tournament": "sim.evidence.tournament:RENDERER",
+    "capacity": "sim.evidence.capacity:RENDERER",
 }
 
 

@@ -67,6 +67,7 @@ LAZY_KINDS: dict[str, str] = {
     "learn": "sim.runner.analyses.learn:KIND",
     "tournament": "sim.runner.analyses.tournament:KIND",
     "assess": "sim.runner.analyses.assess:KIND",
+    "capacity": "sim.runner.analyses.capacity:KIND",
 }
 _KINDS: dict[str, Kind] = {}
 #: entry-point group of installed plugins (modules that register strategies or kinds on import)
