@@ -36,8 +36,10 @@ class DeviationCheck(Record):
         Mean over replications of the seat's discounted profit when deviating minus when conforming.
     pays : bool
         Whether the mean gain is positive.
-    conform_value, deviate_value : float
-        The seat's mean discounted profit when conforming and when deviating.
+    conform_value : float
+        The seat's mean discounted profit when it conforms.
+    deviate_value : float
+        The seat's mean discounted profit when it deviates.
     analytic_gain : float
         The closed-form gain where one exists (grim trigger or T-period Nash reversion without noise over a
         fixed horizon; Friedman, 1971), else nan.
