@@ -54,7 +54,7 @@ COMMANDS = {
 #: renamed by each command when a flag gave the value)
 ARGUMENT_OF = {"out": "--out", "resume": "--resume", "plugins": "--plugin", "retry_failed": "--retry-failed",
                "file": "FILE", "folder": "RUN_DIR", "cells": "--cells", "workers": "--workers", "cluster": "--cluster",
-               "plot": "--plot", "threads": "--threads", "allow_long": "--allow-long"}
+               "plot": "--plot", "threads": "--workers", "allow_long": "--allow-long"}
 
 
 def flag_of(key: str) -> str:

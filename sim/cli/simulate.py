@@ -63,7 +63,8 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--continuation", metavar="C", help="random horizon: probability the game goes on (default 0.99)")
     g.add_argument("--delta", metavar="D", help="discount factor of payoffs (default 0.95)")
     g.add_argument("--seed", metavar="N", help="random seed (default 0)")
-    g.add_argument("--threads", metavar="N", help="threads (results do not depend on it)")
+    g.add_argument("--workers", dest="threads", metavar="N",
+                   help="parallel workers: threads of the kernel (the numbers do not depend on it; default 1)")
     g.add_argument("--confidence", metavar="L", help="confidence level of the intervals (default 0.95)")
     p.add_argument("--paths", metavar="N", help="record the full paths of the first N replications")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
@@ -174,7 +175,7 @@ def _rename(exc: InputError, flags: dict) -> InputError:
 def run(args) -> int:
 
     doc, flags = _document(args)
-    threads = parse_number("threads", args.threads, integer=True) if args.threads else 1
+    threads = parse_number("workers", args.threads, integer=True) if args.threads else 1
     try:
         one = run_single(doc, threads=threads, progress=True, source=args.file, default_name="simulate")
     except InputError as exc:

@@ -41,7 +41,8 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
     p.add_argument("--plot", metavar="DIR", help="write the figures (PNG) into DIR: the rules' profit gain and "
                                                  "spread, collusion within each pair, replicator dynamics, invasion")
-    p.add_argument("--threads", metavar="N", help="threads of the kernels (results do not depend on it)")
+    p.add_argument("--workers", dest="threads", metavar="N",
+                   help="parallel workers: threads of the kernels (the numbers do not depend on it)")
 
 
 def _document(path: str) -> dict:
@@ -59,7 +60,7 @@ def _document(path: str) -> dict:
 def _threads(args) -> int | None:
     if not args.threads:
         return None
-    return check_threads(parse_number("threads", args.threads, integer=True))
+    return check_threads(parse_number("workers", args.threads, integer=True))
 
 
 def _check_dir(path, flag: str) -> None:

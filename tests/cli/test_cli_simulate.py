@@ -79,9 +79,9 @@ def test_flags_without_a_file(capsys):
 
 
 def test_same_numbers_with_one_and_two_threads(small, capsys):
-    main(["simulate", str(small), "--json", "--threads", "1"])
+    main(["simulate", str(small), "--json", "--workers", "1"])
     a = json.loads(capsys.readouterr().out)
-    main(["simulate", str(small), "--json", "--threads", "2"])
+    main(["simulate", str(small), "--json", "--workers", "2"])
     b = json.loads(capsys.readouterr().out)
     assert a["metrics"] == b["metrics"] and a["firms"] == b["firms"]
 

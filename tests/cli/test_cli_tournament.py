@@ -142,9 +142,9 @@ def test_out_is_a_run_folder_with_its_bundle(tmp_path, capsys):
 
 def test_same_numbers_again_and_with_other_threads(tmp_path, capsys):
     path = write(tmp_path)
-    assert main(["tournament", path, "--json", "--threads", "1"]) == 0
+    assert main(["tournament", path, "--json", "--workers", "1"]) == 0
     a = json.loads(capsys.readouterr().out)
-    assert main(["tournament", path, "--json", "--threads", "2"]) == 0
+    assert main(["tournament", path, "--json", "--workers", "2"]) == 0
     b = json.loads(capsys.readouterr().out)
     for k in ("rules", "groups", "matches", "order_stability", "evolution"):
         assert a[k] == b[k]
@@ -292,8 +292,8 @@ def test_bad_input_one_line_status_2_no_output(tmp_path, capsys, case, out_flag)
 
 def test_bad_flags(tmp_path, capsys):
     path = write(tmp_path)
-    assert main(["tournament", path, "--threads", "0"]) == 2
-    assert capsys.readouterr().err.startswith("supergame tournament: error: --threads:")
+    assert main(["tournament", path, "--workers", "0"]) == 2
+    assert capsys.readouterr().err.startswith("supergame tournament: error: --workers:")
     f = tmp_path / "file"
     f.write_text("x")
     assert main(["tournament", path, "--out", str(f)]) == 2
