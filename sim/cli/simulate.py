@@ -15,6 +15,7 @@ from sim.cli._common import (
 )
 from sim.core.errors import InputError
 from sim.core.jsonutil import dumps
+from sim.core.parallel import check_threads
 from sim.core.tomlfile import read_toml
 from sim.evidence.render import write_figures
 from sim.evidence.simulate import RENDERER
@@ -175,7 +176,7 @@ def _rename(exc: InputError, flags: dict) -> InputError:
 def run(args) -> int:
 
     doc, flags = _document(args)
-    threads = parse_number("workers", args.threads, integer=True) if args.threads else 1
+    threads = check_threads(parse_number("workers", args.threads, integer=True), "--workers") if args.threads else 1
     try:
         one = run_single(doc, threads=threads, progress=True, source=args.file, default_name="simulate")
     except InputError as exc:
