@@ -14,6 +14,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from sim.core.records import Record
+from sim.theory.contact_section import ContactSection, contact_section
+from sim.theory.enforcement_section import EnforcementQuestion, EnforcementSection, enforcement_section
+from sim.theory.multimarket import ContactGame
+from sim.theory.states_section import DemandStatesSection, StatesQuestion, states_section
 from sim.theory.thresholds import critical_discount_factors
 from sim.theory.trigger_price import trigger_price_equilibrium
 
@@ -39,6 +43,12 @@ class ThresholdsSpec:
         The demand shock of the trigger-price equilibrium (None: perfect monitoring, no such equilibrium).
     sigma : float
         Its standard deviation.
+    enforcement : EnforcementQuestion or None
+        Detection, fines and leniency (``[enforcement]``).
+    demand_states : StatesQuestion or None
+        Demand states and the parameter that moves with them (``[demand_states]``).
+    contact : ContactGame or None
+        Markets linked by the same firms (``[contact]``).
     """
 
     market: object
@@ -48,6 +58,9 @@ class ThresholdsSpec:
     deltas: tuple
     noise: str | None = None
     sigma: float = 0.0
+    enforcement: EnforcementQuestion | None = None
+    demand_states: StatesQuestion | None = None
+    contact: ContactGame | None = None
 
 
 @dataclass(frozen=True)
@@ -68,6 +81,12 @@ class ThresholdsResult(Record):
     deltas : list of float
     trigger_price : list of dict or None
         One trigger-price equilibrium per discount factor (:meth:`sim.TriggerPriceScheme.to_dict`).
+    enforcement : EnforcementSection or None
+        Collusion under detection, fines and leniency (:mod:`sim.theory.enforcement_section`).
+    demand_states : DemandStatesSection or None
+        Per-state thresholds and the best state-contingent path (:mod:`sim.theory.states_section`).
+    contact : ContactSection or None
+        Pooled thresholds of markets linked by the same firms (:mod:`sim.theory.contact_section`).
     """
 
     market: dict
@@ -76,6 +95,9 @@ class ThresholdsResult(Record):
     punishments: list
     deltas: list
     trigger_price: list | None = None
+    enforcement: EnforcementSection | None = None
+    demand_states: DemandStatesSection | None = None
+    contact: ContactSection | None = None
 
     @property
     def n_firms(self) -> int:
@@ -117,6 +139,14 @@ def thresholds_analysis(spec: ThresholdsSpec) -> ThresholdsResult:
     caps = [float(c) if np.isfinite(c) else None for c in ms.capacity]
     products = {"cost": [float(c) for c in ms.cost], "capacity": caps, "owner": (ms.owner + 1).tolist(),
                 "quantity_setting": bool(ms.quantity_setting), "n_firms": int(ms.n_firms)}
+    extra = {}
+    if spec.enforcement is not None:
+        extra["enforcement"] = enforcement_section(spec.market, spec.enforcement, spec.deltas, spec.agreement,
+                                                   spec.actions)
+    if spec.demand_states is not None:
+        extra["demand_states"] = states_section(spec.market, spec.demand_states, spec.deltas, spec.agreement)
+    if spec.contact is not None:
+        extra["contact"] = contact_section(spec.contact, spec.deltas)
     return ThresholdsResult(market=spec.market.to_dict(), products=products, report=report.to_dict(),
                             punishments=[int(t) for t in spec.punishments], deltas=[float(d) for d in spec.deltas],
-                            trigger_price=tp)
+                            trigger_price=tp, **extra)

@@ -9,6 +9,7 @@ from sim.core.tables import refuse_unknown
 from sim.models.market import market_from_dict
 from sim.models.monitoring import monitoring_from_dict
 from sim.runner.analyses.common import GENERAL_ASSUMPTIONS, collusion_of, describe_market, nan_if_none, stage_of
+from sim.runner.analyses.thresholds_parts import PART_TABLES, part_metrics, part_names, prepare_parts
 from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
 from sim.theory.analysis import ThresholdsResult, ThresholdsSpec, thresholds_analysis
@@ -67,8 +68,9 @@ def _prepare_thresholds(doc: dict) -> dict:
         raise ms.demand.missing("the trigger-price equilibrium", "the price distribution")
     # the stage game checks the agreement (given actions: their number and range) before any work starts
     stage_of(ms, doc["market"], agreement, actions)
+    parts = prepare_parts(doc, market, agreement, ds)
     spec = ThresholdsSpec(market, agreement, actions, tuple(Ts), tuple(ds), mon["noise"] if trigger else None,
-                          float(mon["sigma"]))
+                          float(mon["sigma"]), **parts)
     return {"spec": spec, "market": market, "n_firms": ms.n_firms, "agreement": agreement, "actions": actions,
             "punishments": Ts, "deltas": ds, "monitoring": mon, "trigger_price": trigger}
 
@@ -89,7 +91,7 @@ def _threshold_names(cfg: dict) -> list[str]:
         out += [f"partial_gain.finite[{k + 1}][{j + 1}]" for k in range(len(cfg["punishments"]))]
         if cfg["trigger_price"]:
             out += [f"trigger_price.{x}[{j + 1}]" for x in _TP_FIELDS]
-    return out
+    return out + part_names(cfg)
 
 
 _TP_FIELDS = ("quantity", "trigger", "war_length", "war_probability", "expected_collusive_spell", "war_share",
@@ -153,6 +155,7 @@ def threshold_metrics(res: ThresholdsResult) -> dict:
                 "war_share": s["war_share"], "value": s["value"], "nash_value": s["nash_value"]}
         for x in _TP_FIELDS:
             m[f"trigger_price.{x}[{j + 1}]"] = nan_if_none(vals[x])
+    m.update(part_metrics(res))
     return m
 
 
@@ -167,7 +170,7 @@ def _describe_thresholds(doc: dict) -> list[str]:
 
 KIND = Kind(
     name="thresholds",
-    tables=("market", "collusion", "thresholds", "monitoring"),
+    tables=("market", "collusion", "thresholds", "monitoring") + PART_TABLES,
     prepare=_prepare_thresholds,
     run=_run_thresholds,
     metric_names=_threshold_names,
