@@ -7,6 +7,7 @@ import numpy as np
 
 from sim.core.text import CAUTION, fmt_num, table
 from sim.evidence.render import Drawn, Renderer, pyplot
+from sim.evidence.thresholds_parts import part_figures, part_json, part_lines
 from sim.theory.analysis import ThresholdsResult
 
 __all__ = ["AGREEMENT_NAMES", "RENDERER", "as_json", "console", "describe_market", "figures"]
@@ -124,6 +125,7 @@ def console(res: ThresholdsResult) -> str:
              f"Agreement: {AGREEMENT_NAMES.get(res.report['agreement'], res.report['agreement'])}", "",
              _stage_table(res), ""]
     lines += _threshold_lines(res) + _partial_lines(res) + _trigger_lines(res)
+    lines += part_lines(res)
     lines += ["", CAUTION]
     return "\n".join(lines)
 
@@ -144,6 +146,7 @@ def as_json(res: ThresholdsResult) -> dict:
     out["market"] = res.market
     if res.trigger_price is not None:
         out["trigger_price"] = res.trigger_price
+    out.update(part_json(res))
     out["caution"] = CAUTION
     return out
 
@@ -176,7 +179,7 @@ def figures(res: ThresholdsResult) -> list[Drawn]:
     fig.tight_layout()
     return [Drawn("thresholds", fig, "Critical discount factor of each firm under each punishment scheme: collusion "
                                      "is sustainable at a discount factor at or above every firm's bar; a missing "
-                                     "bar means the firm cannot be held below one.")]
+                                     "bar means the firm cannot be held below one.")] + part_figures(res)
 
 
 RENDERER = Renderer(console=console, as_json=as_json, figures=figures)
