@@ -12,6 +12,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numpy as np
+
 from sim.core.records import Record
 
 from .deterrence import (
@@ -22,10 +24,11 @@ from .deterrence import (
     enforced_partial_collusion,
     enforcement_analysis,
 )
-from .enforcement import Enforcement
+from .enforcement import Enforcement, _k, enforcement_terms
 from .equilibrium import stage_game
+from .stage_profits import stage_profits
 
-__all__ = ["EnforcementQuestion", "EnforcementSection", "enforcement_section"]
+__all__ = ["EnforcementQuestion", "EnforcementSection", "enforcement_section", "incentive_slack"]
 
 
 @dataclass(frozen=True)
@@ -61,12 +64,41 @@ class EnforcementSection(Record):
         agreement that enforcement leaves sustainable.
     frontier : DeterrenceFrontier or None
         Sustainability over the grid of detection rates and fines at the first discount factor.
+    slack : list of ndarray of shape (n_firms,)
+        At each discount factor, each firm's incentive slack (:func:`incentive_slack`).
     """
 
     overall: EnforcementAnalysis
     at_delta: list[EnforcementAnalysis]
     partial: list[EnforcedCollusion]
     frontier: DeterrenceFrontier | None = None
+    slack: list[np.ndarray] | None = None
+
+
+def incentive_slack(profits, enforcement: Enforcement, delta: float) -> np.ndarray:
+    """Each firm's value of keeping the agreement minus its value of cheating, at ``delta``.
+
+    Both are counted in excess of static Nash forever: ``W = (c - e) / k(delta)`` for collusion under
+    enforcement and ``D = d - phi`` for the best deviation (see :mod:`sim.theory.enforcement`). The firm
+    keeps the agreement where the slack is at least zero; unlike the critical discount factor it is
+    finite everywhere and linear in the fine, so the sustainability boundary of a sweep over fines and
+    detection rates is its zero contour.
+
+    Parameters
+    ----------
+    profits : StageProfits, StageGame, Market or dict
+    enforcement : Enforcement
+    delta : float in (0, 1)
+
+    Returns
+    -------
+    ndarray of shape (n_firms,)
+        In money (the profits' unit).
+    """
+    sp = stage_profits(profits)
+    t = enforcement_terms(sp, enforcement)
+    k = _k(float(delta), t.conviction_rate, t.after_detection)
+    return (sp.collusive - sp.nash - t.expected_fine) / k - (sp.deviation - sp.nash - t.deviator_fine)
 
 
 def enforcement_section(market, question: EnforcementQuestion, deltas, agreement: str = "joint",
@@ -95,4 +127,5 @@ def enforcement_section(market, question: EnforcementQuestion, deltas, agreement
     if question.frontier_detection and question.frontier_fines and len(deltas):
         frontier = deterrence_frontier(st, enf, float(deltas[0]), question.frontier_detection,
                                        question.frontier_fines)
-    return EnforcementSection(overall, at, partial, frontier)
+    slack = [incentive_slack(st, enf, float(d)) for d in deltas]
+    return EnforcementSection(overall, at, partial, frontier, slack)

@@ -11,7 +11,8 @@ all counted from 1):
 * enforcement -- ``enforcement.threshold`` (``.firmN``), ``enforcement.binding``, ``enforcement.detection_rate``,
   ``enforcement.conviction_rate``, ``enforcement.expected_fine.firmN``, ``enforcement.expected_spell``; per
   ``j``: ``enforcement.deterrence_fine[j]`` (``.firmN``), ``enforcement.discounted_fines.firmN[j]``,
-  ``enforcement.sustainable[j]``, ``enforcement.partial_gain[j]``, ``enforcement.partial_price[j]``;
+  ``enforcement.sustainable[j]``, ``enforcement.slack[j]`` (``.firmN``), ``enforcement.partial_gain[j]``,
+  ``enforcement.partial_price[j]``;
 * demand states -- ``states.threshold`` (``[s]``), ``states.binding_state``, ``states.binding``,
   ``states.agreed_price[s]``, ``states.nash_price[s]``; per ``j``: ``states.full_collusion[j]``,
   ``states.price_cyclicality[j]``, ``states.price[s][j]``, ``states.weight[s][j]``;
@@ -154,6 +155,7 @@ def _enforcement_names(n: int, n_deltas: int) -> list[str]:
     for j in range(1, n_deltas + 1):
         out += [f"enforcement.deterrence_fine[{j}]", *_firms("enforcement.deterrence_fine", n, f"[{j}]"),
                 *_firms("enforcement.discounted_fines", n, f"[{j}]"), f"enforcement.sustainable[{j}]",
+                f"enforcement.slack[{j}]", *_firms("enforcement.slack", n, f"[{j}]"),
                 f"enforcement.partial_gain[{j}]", f"enforcement.partial_price[{j}]"]
     return out
 
@@ -231,6 +233,9 @@ def _enforcement_metrics(sec, m: dict) -> None:
             m[f"enforcement.deterrence_fine.firm{i + 1}[{j}]"] = float(b.deterrence_fine[i])
             m[f"enforcement.discounted_fines.firm{i + 1}[{j}]"] = float(b.discounted_fines[i])
         m[f"enforcement.sustainable[{j}]"] = float(bool(b.sustainable))
+        m[f"enforcement.slack[{j}]"] = float(sec.slack[j - 1].min())
+        for i, x in enumerate(sec.slack[j - 1]):
+            m[f"enforcement.slack.firm{i + 1}[{j}]"] = float(x)
         m[f"enforcement.partial_gain[{j}]"] = float(p.profit_gain)
         m[f"enforcement.partial_price[{j}]"] = float(p.price)
 
