@@ -89,9 +89,9 @@ def _states_lines(sec) -> list[str]:
         rows = [[lab, p.weights[s], p.prices[s], p.agreed_prices[s], p.nash_prices[s]]
                 for s, lab in enumerate(p.labels)]
         full = "full collusion in every state" if p.full_collusion else "collusion capped in some states"
-        lines += [f"Best state-contingent path at delta {fmt_num(p.delta)} ({full}; prices "
-                  f"{p.price_cyclicality}):", table(["state", "path weight", "price", "agreed price", "Nash price"],
-                                                    rows)]
+        lines += [f"Best state-contingent path at delta {fmt_num(p.delta)} ({full}; prices {p.price_cyclicality}, "
+                  f"the degree of collusion {p.collusion_cyclicality}):",
+                  table(["state", "path weight", "price", "agreed price", "Nash price"], rows)]
     return lines
 
 
@@ -157,7 +157,7 @@ def part_json(res: ThresholdsResult) -> dict:
 
 def _frontier_figure(fr):
     plt = pyplot()
-    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 3.6))
+    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 3.6), layout="constrained")
     thr = np.where(np.isfinite(fr.thresholds), fr.thresholds, np.nan)
     x, y = np.arange(fr.fines.size), np.arange(fr.detection.size)
     im = ax.pcolormesh(np.append(x, x[-1] + 1) - 0.5, np.append(y, y[-1] + 1) - 0.5, thr, cmap="cividis",
@@ -168,15 +168,14 @@ def _frontier_figure(fr):
             ax.text(j, r, f"{fmt_num(thr[r, j], 2)}{mark}", ha="center", va="center", fontsize=SMALL - 1,
                     color="white" if (np.isnan(thr[r, j]) or thr[r, j] < 0.6) else "black")
     b = np.interp(fr.boundary, fr.fines, x, left=np.nan, right=np.nan)
-    ax.plot(b, y, color=color(1), lw=2.0, marker="o", ms=3, label=f"deterrence fine at delta {fmt_num(fr.delta)}")
+    ax.plot(b, y, color=color(1), lw=2.0, marker="o", ms=3, label=f"deterrence fine at delta {fr.delta:g}")
     ax.set_xticks(x, [fmt_num(f, 3) for f in fr.fines], fontsize=SMALL)
     ax.set_yticks(y, [fmt_num(r, 3) for r in fr.detection], fontsize=SMALL)
     ax.set_xlabel("fine per firm and conviction", fontsize=FONT)
     ax.set_ylabel("detection probability per period", fontsize=FONT)
     cb = fig.colorbar(im, ax=ax)
     cb.set_label("critical discount factor", fontsize=FONT)
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.2), frameon=False, fontsize=SMALL)
-    fig.tight_layout()
+    fig.legend(loc="outside lower center", frameon=False, fontsize=SMALL)
     return Drawn("deterrence-frontier", fig, f"Critical discount factor at each detection rate and fine; x: collusion "
                                              f"not sustainable at delta {fmt_num(fr.delta)}; line: the deterrence fine "
                                              "at each detection rate (the sustainability boundary).")
@@ -185,7 +184,7 @@ def _frontier_figure(fr):
 def _enforcement_figure(a):
     plt = pyplot()
     n = len(a.per_firm)
-    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 1.0 + 0.5 * n))
+    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 1.4 + 0.5 * n), layout="constrained")
     y = np.arange(n)
     ax.barh(y - 0.2, a.grim, height=0.4, color=color(0), label="grim trigger, no enforcement")
     ax.barh(y + 0.2, a.per_firm, height=0.4, color=color(1), label="under enforcement")
@@ -193,8 +192,7 @@ def _enforcement_figure(a):
     ax.invert_yaxis()
     ax.set_xlim(0, 1)
     ax.set_xlabel("critical discount factor", fontsize=FONT)
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.35), ncol=2, frameon=False, fontsize=SMALL)
-    fig.tight_layout()
+    fig.legend(loc="outside lower center", ncol=2, frameon=False, fontsize=SMALL)
     return Drawn("enforcement-thresholds", fig, "Critical discount factor of each firm without enforcement and under "
                                                 "the stated detection rate and fine; a missing bar: not sustainable "
                                                 "below one.")
@@ -203,20 +201,18 @@ def _enforcement_figure(a):
 def _states_figure(sec):
     plt = pyplot()
     st = sec.states
-    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 3.2))
+    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 3.4), layout="constrained")
     x = np.arange(st.n_states)
     first = sec.paths[0]
     ax.plot(x, first.agreed_prices, color="black", ls="--", lw=1.2, marker="s", ms=3, label="agreement")
     ax.plot(x, first.nash_prices, color="black", ls=":", lw=1.2, marker="s", ms=3, label="static Nash")
     for k, p in enumerate(sec.paths):
-        ax.plot(x, p.prices, color=color(k), lw=1.8, marker="o", ms=4, label=f"best path, delta {fmt_num(p.delta)}")
+        ax.plot(x, p.prices, color=color(k), lw=1.8, marker="o", ms=4, label=f"best path, delta {p.delta:g}")
     ax.set_xticks(x, list(st.labels), fontsize=SMALL)
     ax.set_xlabel("demand state" + (" (in the order of the cycle)" if st.kind == "cycle" else ""), fontsize=FONT)
     ax.set_ylabel("average price", fontsize=FONT)
     ax.grid(alpha=0.3)
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.22), ncol=min(4, 2 + len(sec.paths)), frameon=False,
-              fontsize=SMALL)
-    fig.tight_layout()
+    fig.legend(loc="outside lower center", ncol=min(3, 2 + len(sec.paths)), frameon=False, fontsize=SMALL)
     return Drawn("state-prices", fig, "Average price in each demand state: the agreement (dashed), static Nash "
                                       "(dotted) and the most collusive state-contingent path sustainable at each "
                                       "discount factor (solid).")
@@ -225,7 +221,7 @@ def _states_figure(sec):
 def _contact_figure(sec):
     plt = pyplot()
     g, p = sec.game, sec.pooled
-    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 1.2 + 0.45 * g.n_firms * (g.n_markets + 1) / 2))
+    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 1.6 + 0.45 * g.n_firms * (g.n_markets + 1) / 2), layout="constrained")
     y = np.arange(g.n_firms)
     h = 0.8 / (g.n_markets + 1)
     for m, cm in enumerate(g.markets):
@@ -235,9 +231,7 @@ def _contact_figure(sec):
     ax.invert_yaxis()
     ax.set_xlim(0, 1)
     ax.set_xlabel("critical discount factor", fontsize=FONT)
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.3), ncol=min(3, g.n_markets + 1), frameon=False,
-              fontsize=SMALL)
-    fig.tight_layout()
+    fig.legend(loc="outside lower center", ncol=min(3, g.n_markets + 1), frameon=False, fontsize=SMALL)
     return Drawn("contact-thresholds", fig, "Each firm's critical discount factor in each market on its own and with "
                                             "its incentive constraints pooled over its markets (Bernheim and "
                                             "Whinston, 1990); a missing bar: the firm is absent or cannot be held "
