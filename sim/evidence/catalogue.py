@@ -312,7 +312,8 @@ ENTRIES: dict[str, Entry] = {
                                         "1 / conviction probability (geometric distribution)"),
     "enforcement.deterrence_fine": Entry("deterrence fine", "fine units",
                                          "The smallest fine at which collusion cannot be sustained at the stated "
-                                         "discount factor and detection rate.",
+                                         "discount factor and detection rate (undefined where no fine deters, "
+                                         "without detection; 0 where collusion fails without a fine).",
                                          "F* = (c - d k) / (b (rho s - phi k)), k = 1 - delta (1 - q): the "
                                          "enforcement constraint is linear in the fine (after Motta and Polo, 2003; "
                                          "Motta, 2004, Competition Policy, ch. 4)"),
