@@ -317,13 +317,13 @@ ENTRIES: dict[str, Entry] = {
                                          "F* = (c - d k) / (b (rho s - phi k)), k = 1 - delta (1 - q): the "
                                          "enforcement constraint is linear in the fine (after Motta and Polo, 2003; "
                                          "Motta, 2004, Competition Policy, ch. 4)"),
-    "enforcement.discounted_fines": Entry("discounted expected fines", "{money}",
+    "enforcement.discounted_fines": Entry("discounted expected fines", "{currency}, discounted sum",
                                           "Expected discounted fines a firm pays along the collusive path.",
                                           "e / (1 - delta (1 - q)), the recursion Phi = e + delta (1 - q) Phi"),
     "enforcement.sustainable": Entry("collusion sustainable under enforcement", "yes (1) / no (0)",
                                      "Whether the agreement is sustainable at the stated discount factor under "
                                      "enforcement.", "threshold under enforcement <= delta"),
-    "enforcement.slack": Entry("incentive slack under enforcement", "{money}",
+    "enforcement.slack": Entry("incentive slack under enforcement", "{currency}, discounted sum",
                                "Value of keeping the agreement minus value of the best deviation, both in excess of "
                                "static Nash forever, at the stated discount factor (the smallest over firms unless a "
                                "firm is named); collusion is sustainable where it is at least zero.",
@@ -385,10 +385,10 @@ ENTRIES: dict[str, Entry] = {
     "contact.weight": Entry("collusion weight in the market", "0 (Nash) to 1 (agreement)",
                             "Position on the market's path from static Nash to the agreement in the best allocation "
                             "of collusion across markets.", _ALLOC),
-    "contact.value": Entry("discounted value of collusion, pooled", "{money}",
+    "contact.value": Entry("discounted value of collusion, pooled", "{currency}, discounted sum",
                            "The firms' total discounted collusive value in the best allocation across markets.",
                            _ALLOC),
-    "contact.standalone_value": Entry("discounted value of collusion, market by market", "{money}",
+    "contact.standalone_value": Entry("discounted value of collusion, market by market", "{currency}, discounted sum",
                                       "The same with each market at its best standalone weight.", _ALLOC),
 }
 
@@ -542,7 +542,8 @@ def describe(key: str, currency: str | None = None, period: str | None = None, f
     if tail:
         label = {"se": "standard error of the", "low": "lower bound of the 95 % interval of the",
                  "high": "upper bound of the 95 % interval of the"}[tail.group(1)] + " " + label
-    unit = e.unit.replace("{money}", money(currency, period))
+    # "{currency}": an amount not per period (a discounted sum of money over the periods)
+    unit = e.unit.replace("{money}", money(currency, period)).replace("{currency}", currency or "currency units")
     return Described(key, label, unit, e)
 
 

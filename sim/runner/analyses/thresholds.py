@@ -9,7 +9,13 @@ from sim.core.tables import refuse_unknown
 from sim.models.market import market_from_dict
 from sim.models.monitoring import monitoring_from_dict
 from sim.runner.analyses.common import GENERAL_ASSUMPTIONS, collusion_of, describe_market, nan_if_none, stage_of
-from sim.runner.analyses.thresholds_parts import PART_TABLES, part_metrics, part_names, prepare_parts
+from sim.runner.analyses.thresholds_parts import (
+    PART_TABLES,
+    describe_parts,
+    part_metrics,
+    part_names,
+    prepare_parts,
+)
 from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
 from sim.theory.analysis import ThresholdsResult, ThresholdsSpec, thresholds_analysis
@@ -165,7 +171,7 @@ def _describe_thresholds(doc: dict) -> list[str]:
     return [f"Market: {describe_market(doc.get('market', {}))}",
             f"Agreement: {coll.get('agreement', 'given' if 'actions' in coll else 'joint')}",
             f"Punishment lengths T of Nash reversion: {th.get('punishments', [1, 2, 3, 5, 10])}",
-            f"Discount factors for partial collusion: {th.get('deltas', [])}"]
+            f"Discount factors for partial collusion: {th.get('deltas', [])}"] + describe_parts(doc)
 
 
 KIND = Kind(

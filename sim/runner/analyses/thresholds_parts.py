@@ -35,7 +35,7 @@ from sim.theory.enforcement_section import EnforcementQuestion
 from sim.theory.multimarket import ContactGame
 from sim.theory.states_section import StatesQuestion
 
-__all__ = ["PART_TABLES", "part_metrics", "part_names", "prepare_parts"]
+__all__ = ["PART_TABLES", "describe_parts", "part_metrics", "part_names", "prepare_parts"]
 
 #: the tables this module reads
 PART_TABLES = ("enforcement", "demand_states", "contact")
@@ -296,3 +296,32 @@ def part_metrics(res: ThresholdsResult) -> dict:
     if res.contact is not None:
         _contact_metrics(res.contact, res.deltas, m)
     return m
+
+
+def describe_parts(doc: dict) -> list[str]:
+    """Setup lines of the optional tables for a run's bundle (empty without them).
+
+    Parameters
+    ----------
+    doc : dict
+        The experiment document.
+
+    Returns
+    -------
+    list of str
+    """
+    out = []
+    enf = doc.get("enforcement")
+    if isinstance(enf, dict):
+        keys = ", ".join(f"{k} {v}" for k, v in enf.items() if k != "frontier")
+        grid = " (with a deterrence frontier)" if "frontier" in enf else ""
+        out.append(f"Enforcement: {keys or 'defaults'}{grid}")
+    st = doc.get("demand_states")
+    if isinstance(st, dict):
+        out.append(f"Demand states: {st.get('kind', 'iid')}, {st.get('parameter')} by state {st.get('values')}"
+                   + (f", growth {st['growth']}" if "growth" in st else ""))
+    ct = doc.get("contact")
+    if isinstance(ct, dict) and isinstance(ct.get("markets"), list):
+        names = [m.get("label", f"market {k + 1}") if isinstance(m, dict) else "?" for k, m in enumerate(ct["markets"])]
+        out.append(f"Multimarket contact: firms {ct.get('firms')} in {', '.join(names)}")
+    return out
