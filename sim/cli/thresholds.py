@@ -36,6 +36,10 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--noise", choices=["lognormal", "normal"],
                    help="also compute the trigger-price equilibrium under this demand shock (needs --delta)")
     g.add_argument("--sigma", metavar="S", help="standard deviation of the demand shock (default 0.1)")
+    e = p.add_argument_group("enforcement (the [enforcement] table)")
+    e.add_argument("--detection", metavar="RHO", help="probability per colluding period that the cartel is detected")
+    e.add_argument("--fine", metavar="F", help="fine per firm and conviction")
+    e.add_argument("--leniency", metavar="S", help="share of the fine a reporting firm pays (leniency programme)")
     p.add_argument("--plot", metavar="DIR", help="write the figure of the thresholds (PNG) into DIR")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
 
@@ -49,6 +53,9 @@ _FLAG_OF = {
     "monitoring.signal": "--noise",
     "monitoring.noise": "--noise",
     "monitoring.sigma": "--sigma",
+    "enforcement.detection": "--detection",
+    "enforcement.fine": "--fine",
+    "enforcement.leniency": "--leniency",
 }
 
 
@@ -93,6 +100,12 @@ def _document(args) -> tuple[dict, set]:
     if args.sigma is not None:
         mon["sigma"] = parse_number("sigma", args.sigma)
         flags.add("monitoring.sigma")
+    for name in ("detection", "fine", "leniency"):
+        if getattr(args, name) is not None:
+            if not isinstance(doc.get("enforcement", {}), dict):
+                raise InputError("enforcement", f"must be a table, got {doc['enforcement']!r}")
+            doc.setdefault("enforcement", {})[name] = parse_number(name, getattr(args, name))
+            flags.add(f"enforcement.{name}")
     return doc, flags
 
 

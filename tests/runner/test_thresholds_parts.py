@@ -216,3 +216,17 @@ def test_frontier_needs_a_discount_factor():
     with pytest.raises(InputError) as e:
         run_single(doc)
     assert e.value.key == "thresholds.deltas"
+
+
+def test_enforcement_flags_of_the_thresholds_command(cli):
+    """The flags write enforcement.detection, .fine and .leniency; an error on a value from a flag names the flag."""
+    r = cli("thresholds", "--firms", "2", "--intercept", "100", "--cost", "10", "--detection", "1.5")
+    assert r.code == 2 and r.err.strip().startswith("supergame thresholds: error: --detection:") and "1.5" in r.err
+    r = cli("thresholds", "--firms", "2", "--intercept", "100", "--cost", "10", "--detection", "0.1", "--fine", "-3")
+    assert r.code == 2 and r.err.strip().startswith("supergame thresholds: error: --fine:")
+    r = cli("thresholds", "--firms", "2", "--intercept", "100", "--cost", "10", "--detection", "0.1", "--fine", "100",
+            "--leniency", "0.5", "--delta", "0.7", "--json")
+    assert r.code == 0
+    enf = json.loads(r.out)["enforcement"]
+    # (pi_D - pi_C + rho s F) / ((1 - rho) (pi_D - pi_N)) with the reporting firms paying s F (Motta and Polo, 2003)
+    assert enf["overall"]["market"] == pytest.approx((PI_D - PI_C + 0.1 * 0.5 * 100) / (0.9 * (PI_D - PI_N)))
