@@ -160,25 +160,29 @@ def _frontier_figure(fr):
     fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 3.6), layout="constrained")
     thr = np.where(np.isfinite(fr.thresholds), fr.thresholds, np.nan)
     x, y = np.arange(fr.fines.size), np.arange(fr.detection.size)
-    im = ax.pcolormesh(np.append(x, x[-1] + 1) - 0.5, np.append(y, y[-1] + 1) - 0.5, thr, cmap="cividis",
-                       vmin=0.0, vmax=1.0, shading="flat")
+    lo = float(np.nanmin(thr)) if np.isfinite(thr).any() else 0.0
+    lo = min(lo, 0.99)
+    mid = 0.5 * (lo + 1.0)
+    im = ax.pcolormesh(np.append(x, x[-1] + 1) - 0.5, np.append(y, y[-1] + 1) - 0.5, thr, cmap="viridis",
+                       vmin=lo, vmax=1.0, shading="flat")
     for r in range(fr.detection.size):
         for j in range(fr.fines.size):
             mark = "" if fr.sustainable[r, j] else "x"
             ax.text(j, r, f"{fmt_num(thr[r, j], 2)}{mark}", ha="center", va="center", fontsize=SMALL - 1,
-                    color="white" if (np.isnan(thr[r, j]) or thr[r, j] < 0.6) else "black")
+                    color="white" if (np.isnan(thr[r, j]) or thr[r, j] < mid) else "black")
     b = np.interp(fr.boundary, fr.fines, x, left=np.nan, right=np.nan)
     ax.plot(b, y, color=color(1), lw=2.0, marker="o", ms=3, label=f"deterrence fine at delta {fr.delta:g}")
-    ax.set_xticks(x, [fmt_num(f, 3) for f in fr.fines], fontsize=SMALL)
-    ax.set_yticks(y, [fmt_num(r, 3) for r in fr.detection], fontsize=SMALL)
+    ax.set_xticks(x, [f"{f:g}" for f in fr.fines], fontsize=SMALL)
+    ax.set_yticks(y, [f"{r:g}" for r in fr.detection], fontsize=SMALL)
     ax.set_xlabel("fine per firm and conviction", fontsize=FONT)
     ax.set_ylabel("detection probability per period", fontsize=FONT)
     cb = fig.colorbar(im, ax=ax)
     cb.set_label("critical discount factor", fontsize=FONT)
     fig.legend(loc="outside lower center", frameon=False, fontsize=SMALL)
     return Drawn("deterrence-frontier", fig, f"Critical discount factor at each detection rate and fine; x: collusion "
-                                             f"not sustainable at delta {fmt_num(fr.delta)}; line: the deterrence fine "
-                                             "at each detection rate (the sustainability boundary).")
+                                             f"not sustainable at delta {fmt_num(fr.delta)}; blank: not sustainable "
+                                             "at any discount factor below one; line: the deterrence fine at each "
+                                             "detection rate (the sustainability boundary).")
 
 
 def _enforcement_figure(a):
