@@ -230,3 +230,21 @@ def test_enforcement_flags_of_the_thresholds_command(cli):
     enf = json.loads(r.out)["enforcement"]
     # (pi_D - pi_C + rho s F) / ((1 - rho) (pi_D - pi_N)) with the reporting firms paying s F (Motta and Polo, 2003)
     assert enf["overall"]["market"] == pytest.approx((PI_D - PI_C + 0.1 * 0.5 * 100) / (0.9 * (PI_D - PI_N)))
+
+
+def test_a_bad_state_value_is_named_by_its_position_in_the_values_list():
+    doc = _doc(demand_states={"kind": "iid", "probabilities": [0.5, 0.5], "parameter": "intercept",
+                              "values": [80.0, -5.0]})
+    with pytest.raises(InputError) as e:
+        run_single(doc)
+    assert e.value.key == "demand_states.values[2]" and "-5" in e.value.message
+
+
+def test_given_actions_do_not_silently_set_the_rule_of_other_markets():
+    doc = _contact([{"firms": ["Firm A", "Firm B"]}, {"firms": ["Firm B", "Firm A"]}])
+    doc["collusion"] = {"actions": [20.0, 20.0]}
+    with pytest.raises(InputError) as e:
+        run_single(doc)
+    assert e.value.key == "contact.agreement"
+    doc["contact"]["agreement"] = "joint"
+    assert run_single(doc).cell.metrics["contact.common_threshold"] == pytest.approx(9 / 17, rel=1e-9)

@@ -92,7 +92,9 @@ def _states(table, market, agreement: str) -> StatesQuestion:
     try:
         markets_by_state(market, parameter, values)
     except InputError as e:
-        raise InputError(_one_based(e.key), e.message) from None
+        # a state's market is the file's [market] with this state's value: name the value
+        key = re.sub(r"^demand_states\.markets\[(\d+)\].*$", lambda m: f"demand_states.values[{m.group(1)}]", e.key)
+        raise InputError(_one_based(key), e.message) from None
     return StatesQuestion(states, parameter, tuple(float(v) for v in values))
 
 
@@ -108,7 +110,11 @@ def _contact(table, market_table: dict, agreement: str) -> ContactGame:
         # a market without its own settings is the experiment's [market]
         markets = [dict(m, market=market_table) if isinstance(m, dict) and "market" not in m else m
                    for m in markets]
-    rule = t.get("agreement", agreement if agreement != "given" else "joint")
+    if agreement == "given" and "agreement" not in t:
+        raise InputError("contact.agreement", "missing: the agreed actions of [collusion] describe the [market] "
+                                              "alone; give the rule of every market (joint, symmetric or "
+                                              "proportional)")
+    rule = t.get("agreement", agreement)
     try:
         return ContactGame(t.get("firms"), markets, rule)
     except InputError as e:
