@@ -29,11 +29,15 @@ from typing import Any
 import numpy as np
 
 from sim.core.errors import InputError
-from sim.core.params import Constraint, Integer, Parametrized, Real, optional
+from sim.core.params import Constraint, Integer, Options, Parametrized, Real, optional
 
-__all__ = ["INIT_KINDS", "CompiledLearner", "QLearner", "published_grid"]
+__all__ = ["INIT_KINDS", "UPDATE_RULES", "CompiledLearner", "QLearner", "published_grid"]
 
 INIT_KINDS = ("uniform", "zeros")
+#: which values a learner updates after a period (Asker, Fershtman and Pakes, 2022, AEA Papers and Proceedings
+#: 112, "Artificial Intelligence, Algorithm Design, and Pricing"): the action played only, every action from the
+#: profit it would have earned against the rivals' actual actions, or the action played and a share of the others
+UPDATE_RULES = ("asynchronous", "synchronous", "mixed")
 
 # the grid size of the published construction when neither m nor a grid is given
 _DEFAULT_M = 15
@@ -193,6 +197,11 @@ class CompiledLearner:
     init : str or ndarray
         ``"uniform"``, ``"zeros"``, or the given array (checked against the line-up's state count by
         the learning driver).
+    update : str
+        One of :data:`UPDATE_RULES`.
+    share : float
+        Probability that each action not played is updated from its counterfactual profit in a period: 0
+        (asynchronous), 1 (synchronous) or the mixed rule's ``counterfactual_share``.
     """
 
     grid: np.ndarray
@@ -201,6 +210,8 @@ class CompiledLearner:
     beta: float
     delta: float
     init: str | np.ndarray
+    update: str = "asynchronous"
+    share: float = 0.0
 
     @property
     def m(self) -> int:
@@ -213,10 +224,14 @@ class CompiledLearner:
         Returns
         -------
         dict
-            ``alpha``, ``beta``, ``delta``, ``k``, ``m``, ``init`` and ``grid``.
+            ``alpha``, ``beta``, ``delta``, ``k``, ``m``, ``init`` and ``grid``; ``update`` and
+            ``counterfactual_share`` when the rule is not the asynchronous default.
         """
-        return {"alpha": self.alpha, "beta": self.beta, "delta": self.delta, "k": self.k, "m": self.m,
-                "init": self.init if isinstance(self.init, str) else "given", "grid": self.grid.tolist()}
+        out = {"alpha": self.alpha, "beta": self.beta, "delta": self.delta, "k": self.k, "m": self.m,
+               "init": self.init if isinstance(self.init, str) else "given", "grid": self.grid.tolist()}
+        if self.update != "asynchronous":
+            out.update(update=self.update, counterfactual_share=self.share)
+        return out
 
 
 class QLearner(Parametrized):
@@ -246,6 +261,14 @@ class QLearner(Parametrized):
         ``E[profit(a, a_-i)] / (1 - delta)`` of facing rivals who pick their actions uniformly at
         random, the same in every state. ``"zeros"``. Or an array of shape ``(n_states, m)`` (or
         ``(m,)``, repeated in every state).
+    update : {"asynchronous", "synchronous", "mixed"}
+        Which values are updated after a period (Asker, Fershtman and Pakes, 2022). ``"asynchronous"``
+        (the default, Calvano et al., 2020): only the action played. ``"synchronous"``: every action ``b``,
+        from the profit it would have earned against the rivals' actual actions and the value of the state
+        it would have led to. ``"mixed"``: the action played, and each other action with probability
+        ``counterfactual_share`` (one draw per action).
+    counterfactual_share : float, optional
+        With ``update = "mixed"`` only (and required there): the probability in (0, 1) above.
 
     Examples
     --------
@@ -263,12 +286,15 @@ class QLearner(Parametrized):
         "grid": optional(ActionGrid()),
         "k": Integer(1, 8),
         "init": QInit(),
+        "update": Options(*UPDATE_RULES),
+        "counterfactual_share": optional(Real(0, 1, closed="neither")),
     }
 
     #: name in experiment files (``strategy = "qlearning"``)
     name = "qlearning"
 
-    def __init__(self, alpha=0.15, beta=4e-6, delta=0.95, m=None, xi=0.1, grid=None, k=1, init="uniform"):
+    def __init__(self, alpha=0.15, beta=4e-6, delta=0.95, m=None, xi=0.1, grid=None, k=1, init="uniform",
+                 update="asynchronous", counterfactual_share=None):
         self.alpha = alpha
         self.beta = beta
         self.delta = delta
@@ -277,6 +303,8 @@ class QLearner(Parametrized):
         self.grid = grid
         self.k = k
         self.init = init
+        self.update = update
+        self.counterfactual_share = counterfactual_share
 
     def spec(self, n_firms: int | None = None, prefix: str = "") -> dict[str, Any]:
         """Validate every parameter; return the normalised values (``m`` filled in).
@@ -314,6 +342,11 @@ class QLearner(Parametrized):
         init = p["init"]
         if isinstance(init, np.ndarray) and init.shape[-1] != p["m"]:
             raise InputError(key("init"), f"must have one column per action ({p['m']}), got shape {init.shape}")
+        if p["update"] == "mixed" and p["counterfactual_share"] is None:
+            raise InputError(key("counterfactual_share"), "is required with update = 'mixed': a number in (0, 1)")
+        if p["update"] != "mixed" and p["counterfactual_share"] is not None:
+            raise InputError(key("counterfactual_share"), f"applies only to update = 'mixed', got update = "
+                                                          f"{p['update']!r}")
         return p
 
     def compile(self, stage, seat: int, prefix: str = "") -> CompiledLearner:
@@ -351,5 +384,6 @@ class QLearner(Parametrized):
             if np.any(np.diff(grid) <= 0):
                 raise InputError(f"{prefix}.xi" if prefix else "xi",
                                  f"the widened grid reaches below zero for firm {seat + 1}; lower xi or give the grid")
+        share = {"asynchronous": 0.0, "synchronous": 1.0}.get(p["update"], p["counterfactual_share"])
         return CompiledLearner(grid=grid, k=p["k"], alpha=p["alpha"], beta=p["beta"], delta=p["delta"],
-                               init=p["init"])
+                               init=p["init"], update=p["update"], share=float(share))

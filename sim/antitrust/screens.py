@@ -408,7 +408,7 @@ def _attributes(market) -> dict:
         out["cost"] = ms.cost.copy()
     if np.any(np.isfinite(ms.capacity)) and not np.all(ms.capacity == ms.capacity[0]):
         out["capacity"] = ms.capacity.copy()
-    if ms.demand.kind in ("differentiated", "logit") and not np.all(ms.demand.vector == ms.demand.vector[0]):
+    if not ms.demand.homogeneous and not np.all(ms.demand.vector == ms.demand.vector[0]):
         out["product position"] = ms.demand.vector.copy()
     return out
 

@@ -12,10 +12,12 @@ from sim.core.errors import SolverError
 from sim.core.jsonutil import dumps
 from sim.core.tomlfile import read_toml
 from sim.evidence.assess import RENDERER
+from sim.evidence.capacity import RENDERER as CAPACITY_RENDERER
 from sim.evidence.render import output_dir, write_figures
 from sim.evidence.report import write_report
 from sim.runner.experiment import load_experiment
 from sim.runner.runs import open_run, run_experiment
+from sim.theory.capacity_analysis import is_capacity_market
 
 HELP = "coordinated effects of a merger: calibration, thresholds, persistence and factors before and after"
 DESCRIPTION = (
@@ -42,7 +44,12 @@ def configure(p: argparse.ArgumentParser) -> None:
 def run(args) -> int:
     # the assessment's own reading first (kind, one assessment, no [sweep] or [report]), then the
     # experiments layer's validation of the whole file; nothing is written before both pass
-    assessment_from_dict(read_toml(args.file))
+    doc = read_toml(args.file)
+    # a market of price competition with capacities is assessed by its own kind (kind = 'capacity')
+    capacity = is_capacity_market(doc.get("market")) and doc.get("experiment", {}).get("kind") == "capacity"
+    renderer = CAPACITY_RENDERER if capacity else RENDERER
+    if not capacity:
+        assessment_from_dict(doc)
     exp = load_experiment(args.file)
     if args.plot:
         output_dir(args.plot)
@@ -55,10 +62,10 @@ def run(args) -> int:
     with open_run(s.folder) as rf:
         result = rf.result(0)
     if args.plot:
-        write_figures(RENDERER.figures(result), args.plot)
+        write_figures(renderer.figures(result), args.plot)
     if args.json:
-        emit(dumps(RENDERER.as_json(result) | {"run_folder": str(s.folder), "bundle": str(s.report)}, indent=2))
+        emit(dumps(renderer.as_json(result) | {"run_folder": str(s.folder), "bundle": str(s.report)}, indent=2))
         return 0
-    emit(RENDERER.console(result) + f"\n\nRun folder: {s.folder} (check it with: supergame verify {s.folder})"
+    emit(renderer.console(result) + f"\n\nRun folder: {s.folder} (check it with: supergame verify {s.folder})"
          f"\nEvidence bundle: {s.report}")
     return 0

@@ -42,10 +42,14 @@ _FLAGS = {
         "grid": ("grid", "nums"),
         "k": ("k", "int"),
         "init": ("init", "str"),
+        "update": ("update", "str"),
+        "counterfactual_share": ("counterfactual-share", "num"),
         "convergence": ("convergence", "int"),
         "max_periods": ("max-periods", "int"),
         "near": ("near", "num"),
         "limit_periods": ("limit-periods", "int"),
+        "save_to": ("save-to", "str"),
+        "continue_from": ("continue-from", "str"),
     },
     "impulse": {
         "firm": ("impulse-firm", "int"),
@@ -81,6 +85,11 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--grid", metavar="A1,A2,...", help="the actions themselves instead of the published grid")
     g.add_argument("--k", metavar="K", help="memory: periods of past actions in the state (default 1)")
     g.add_argument("--init", metavar="INIT", help="initial Q-values: uniform (default) or zeros")
+    g.add_argument("--update", metavar="RULE", help="which values a learner updates after a period: asynchronous "
+                                                    "(the action played; default), synchronous (every action, from "
+                                                    "what it would have earned) or mixed")
+    g.add_argument("--counterfactual-share", metavar="S", help="with --update mixed: probability in (0, 1) that each "
+                                                               "action not played is updated")
     g.add_argument("--convergence", metavar="C", help="converged after C periods without a change of any greedy "
                                                       "strategy (default 100000)")
     g.add_argument("--max-periods", metavar="N", help="cap on a session's periods (default 1e9)")
@@ -88,6 +97,10 @@ def configure(p: argparse.ArgumentParser) -> None:
                                                  "(default 0.1)")
     g.add_argument("--limit-periods", metavar="N", help="with automata that act at random: periods of simulated "
                                                         "greedy play averaged by the limit estimate (default 10000)")
+    g.add_argument("--save-to", metavar="FILE", help="save every session's learners (Q-values, counters, random "
+                                                     "state) at the end to FILE, to be continued later")
+    g.add_argument("--continue-from", metavar="FILE", help="continue the sessions saved in FILE (same market, "
+                                                           "grids and number of sessions) instead of new ones")
     g = p.add_argument_group("impulse response (override [impulse])")
     g.add_argument("--impulse-firm", metavar="F", help="firm forced to deviate, 1 to n (default 1)")
     g.add_argument("--impulse-action", metavar="A", help="its action: best_response (default) or a number "

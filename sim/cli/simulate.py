@@ -15,13 +15,11 @@ from sim.cli._common import (
 )
 from sim.core.errors import InputError
 from sim.core.jsonutil import dumps
-from sim.core.text import CAUTION, fmt_num, table
 from sim.core.tomlfile import read_toml
-from sim.evidence.simplots import simulation_figures
-from sim.evidence.thresholds import AGREEMENT_NAMES, describe_market
+from sim.evidence.render import write_figures
+from sim.evidence.simulate import RENDERER
 from sim.models.market import market_from_dict
-from sim.models.monitoring import monitoring_from_dict
-from sim.simulation.engine import simulate, simulation_from_dict
+from sim.runner.single import run_single
 
 HELP = "simulate a line-up of strategies: persistence of collusion against the analytic baseline"
 DESCRIPTION = (
@@ -98,256 +96,91 @@ def parse_strategy_flag(text: str, k: int) -> dict:
     return entry
 
 
-def settings(args) -> dict:
-    """Everything :func:`sim.simulation.engine.simulate` needs, from FILE and flags (flags win)."""
+def _document(args) -> tuple[dict, dict]:
+    """The experiment document: FILE's tables with the flags written into them, and, for every key path a
+    flag gave, the flag's name (for naming it in an error)."""
 
     doc = read_toml(args.file) if args.file else {}
-    base = doc.get("market", {}) if doc else {}
-    if not isinstance(base, dict):
-        raise InputError("market", "must be a table")
-    table, from_flags = market_table_from_args(args, base)
+    for name in ("market", "collusion", "monitoring", "run", "deviation"):
+        if name in doc and not isinstance(doc[name], dict):
+            raise InputError(name, f"must be a table, got {doc[name]!r}")
+    doc = {k: (dict(v) if isinstance(v, dict) else v) for k, v in doc.items()}
+    table, market_flags = market_table_from_args(args, doc.get("market", {}))
     if not table:
         raise InputError("market", "describe the market in FILE's [market] table or with flags (--cost, ...)")
+    flag_of = {key: flag for flag, key in MARKET_FLAGS.items()}
+    flags = {f"market.{k}": f"--{flag_of[k]}" for k in market_flags if k in flag_of}
     try:
-        market = market_from_dict(table)
+        n_firms = market_from_dict(table).spec().n_firms
     except InputError as exc:
         # without FILE every market setting (a missing one too) is a flag's
-        raise flag_error(exc, from_flags if args.file else set(MARKET_FLAGS.values())) from None
-    doc = dict(doc)
+        raise flag_error(exc, market_flags if args.file else set(MARKET_FLAGS.values())) from None
     doc["market"] = table
     if args.strategy:
         doc["strategies"] = [parse_strategy_flag(s, k + 1) for k, s in enumerate(args.strategy)]
+        if len(doc["strategies"]) == 1 and "seats" not in doc["strategies"][0]:
+            doc["strategies"][0]["seats"] = n_firms  # one --strategy is played by every firm
+        flags["strategies"] = "--strategy"
     if "strategies" not in doc:
         raise InputError("--strategy", "give the line-up: [[strategies]] entries in FILE or --strategy flags")
-    mon_flags = {}
-    if args.signal:
-        mon_flags["signal"] = args.signal
-    if args.noise:
-        mon_flags["noise"] = args.noise
+    mon = doc.setdefault("monitoring", {})
+    for flag in ("signal", "noise"):
+        if getattr(args, flag):
+            mon[flag] = getattr(args, flag)
+            flags[f"monitoring.{flag}"] = f"--{flag}"
     for flag, key in _MON_FLAGS.items():
         if getattr(args, flag) is not None:
-            mon_flags[key] = parse_number(flag.replace("_", "-"), getattr(args, flag))
-    mon_table = dict(doc.get("monitoring", {})) if isinstance(doc.get("monitoring", {}), dict) else doc["monitoring"]
-    if isinstance(mon_table, dict):
-        mon_table.update(mon_flags)
-        doc["monitoring"] = mon_table
-    try:
-        cfg = simulation_from_dict(doc)
-    except InputError as exc:
-        if exc.key.startswith("monitoring."):
-            k = exc.key.split(".", 1)[1]
-            if k in mon_flags:
-                raise InputError(f"--{k.replace('_', '-')}", exc.message) from None
-        raise
-    # flags on top of [run]
-    run_flags = set()
+            mon[key] = parse_number(flag.replace("_", "-"), getattr(args, flag))
+            flags[f"monitoring.{key}"] = f"--{flag.replace('_', '-')}"
+    run = doc.setdefault("run", {})
     for flag, (key, integer) in _RUN_FLAGS.items():
-        val = getattr(args, flag)
-        if val is not None:
-            cfg["run"][key] = parse_number(flag, val, integer=integer)
-            run_flags.add(key)
+        if getattr(args, flag) is not None:
+            run[key] = parse_number(flag, getattr(args, flag), integer=integer)
+            flags[f"run.{key}"] = f"--{flag}"
     if args.horizon:
-        cfg["run"]["horizon"] = args.horizon
-        run_flags.add("horizon")
+        run["horizon"] = args.horizon
+        flags["run.horizon"] = "--horizon"
+    if args.confidence is not None:
+        run["confidence"] = parse_number("confidence", args.confidence)
+        flags["run.confidence"] = "--confidence"
+    if args.plot and not run.get("paths"):
+        run["paths"] = 1  # the price-path figure needs one recorded replication
+    coll = doc.setdefault("collusion", {})
     if args.agreement:
-        cfg["agreement"] = args.agreement
+        coll["agreement"] = args.agreement
+        coll.pop("actions", None)
+        flags["collusion.agreement"] = "--agreement"
     if args.actions:
         a = parse_numbers("actions", args.actions)
-        cfg["actions"] = a if isinstance(a, list) else [a]
-    if cfg["actions"] is not None:
-        cfg["agreement"] = "given"
-    if args.plot and cfg["run"]["paths"] == 0:
-        cfg["run"]["paths"] = 1  # the price-path figure needs one recorded replication
-    n = market.spec().n_firms
-    if args.strategy and len(cfg["strategies"]) == 1 and "seats" not in cfg["strategies"][0]:
-        cfg["strategies"][0]["seats"] = n
-    cfg["threads"] = parse_number("threads", args.threads, integer=True) if args.threads else None
-    cfg["confidence"] = parse_number("confidence", args.confidence) if args.confidence else 0.95
-    cfg["flags"] = {"run": run_flags, "strategies": bool(args.strategy), "monitoring": set(mon_flags)}
-    _ = monitoring_from_dict  # imported for its validation side effects in simulation_from_dict
-    return cfg
+        coll["actions"] = a if isinstance(a, list) else [a]
+        coll.pop("agreement", None)
+        flags["collusion.actions"] = "--actions"
+    exp = doc.get("experiment", {})
+    doc["experiment"] = {**(exp if isinstance(exp, dict) else {}), "kind": "simulate"}
+    return doc, flags
 
 
-def _rename(exc: InputError, cfg: dict) -> InputError:
+def _rename(exc: InputError, flags: dict) -> InputError:
     """Name the flag rather than the table key when a flag gave the value."""
     key = exc.key
-    if key.startswith("run.") and key[4:] in cfg["flags"]["run"]:
-        return InputError(f"--{key[4:]}", exc.message)
-    if key.startswith("monitoring.") and key[11:] in cfg["flags"]["monitoring"]:
-        return InputError(f"--{key[11:].replace('_', '-')}", exc.message)
-    if cfg["flags"]["strategies"] and key.startswith("strategies"):
+    if key.startswith("strategies") and "strategies" in flags:
         return InputError("--strategy" + key[len("strategies"):], exc.message)
-    if key == "threads":
-        return InputError("--threads", exc.message)
-    if key == "confidence":
-        return InputError("--confidence", exc.message)
+    base = key.split("[", 1)[0]
+    if base in flags:
+        return InputError(flags[base], exc.message)
     return exc
 
 
 def run(args) -> int:
 
-    cfg = settings(args)
-    r = cfg["run"]
+    doc, flags = _document(args)
+    threads = parse_number("threads", args.threads, integer=True) if args.threads else 1
     try:
-        res = simulate(cfg["market"], cfg["strategies"], cfg["monitoring"], periods=r["periods"],
-                       replications=r["replications"], delta=r["delta"], seed=r["seed"], horizon=r["horizon"],
-                       continuation=r["continuation"], paths=r["paths"], agreement=cfg["agreement"],
-                       actions=cfg["actions"], threads=cfg["threads"], confidence=cfg["confidence"],
-                       key=(0,))  # the key of cell 1 of `supergame run FILE` (sim.runner.kinds: stream keys)
+        one = run_single(doc, threads=threads, progress=True, source=args.file, default_name="simulate")
     except InputError as exc:
-        raise _rename(exc, cfg) from None
+        raise _rename(exc, flags) from None
+    res = one.result
     if args.plot:
-
-        simulation_figures(res, args.plot)
-    if args.json:
-        out = res.to_dict()
-        out["market"] = cfg["market"].to_dict()
-        emit(dumps(out, indent=2))
-        return 0
-    emit(render(res, cfg))
+        write_figures(RENDERER.figures(res), args.plot)
+    emit(dumps(RENDERER.as_json(res), indent=2) if args.json else RENDERER.console(res))
     return 0
-
-
-# --------------------------------------------------------------------------------------------------
-# Text output
-# --------------------------------------------------------------------------------------------------
-
-_METRIC_ROWS = (
-    ("collusive_share", "share of periods in which all firms collude"),
-    ("war_share", "share of price-war periods"),
-    ("wars_per_replication", "price wars per replication"),
-    ("war_frequency", "price wars started per period"),
-    ("war_length", "mean length of a price war (periods, its deviation period included)"),
-    ("punishment_length", "mean length of a punishment phase (periods)"),
-    ("spell_length", "mean length of a collusive spell (periods)"),
-    ("first_breakdown", "time to first breakdown (period)"),
-    ("broken_down", "share of replications that broke down"),
-    ("price", "mean market price"),
-    ("overcharge", "overcharge over the static-Nash price"),
-    ("consumer_surplus", "mean consumer surplus"),
-    ("joint_profit", "mean joint profit per period"),
-    ("profit_gain", "profit gain (profit - Nash) / (collusive - Nash)"),
-)
-
-
-def _analytic(res) -> dict:
-    """metric -> (analytic value, source) from the baseline."""
-    b = res.baseline
-    out = {}
-    tp = b.get("trigger_price")
-    fb = b.get("first_breakdown")
-    if tp is not None:
-        src = "Green and Porter (1984)"
-        out["collusive_share"] = (tp["collusive_share"], src + ", this horizon")
-        out["war_share"] = (tp["war_share"], src + f", this horizon; long run {tp['war_share_long_run']:.4f}")
-        out["spell_length"] = (tp["expected_collusive_spell"], src + ": 1 / war probability")
-        if tp["war_length"] is not None:
-            out["war_length"] = (float(tp["war_length"]), src + ": T")
-        if fb is None:
-            out["first_breakdown"] = (tp["expected_first_breakdown"], src + ": 1 + 1 / war probability")
-    pl = b.get("punishment_length")
-    if pl is not None:
-        out["punishment_length"] = (pl["value"], pl["source"])
-    if fb is not None:
-        rate = 1.0 - (1.0 - fb["tremble_rate"]) * (1.0 - fb["misreading_rate"])
-        src = ("geometric" if fb["geometric"] else "shifted geometric") + f", rate {rate:.4g}"
-        val = fb["expected_within_horizon"] if fb["expected_within_horizon"] is not None else fb["expected"]
-        out["first_breakdown"] = (val, src + (", within the horizon" if fb["expected_within_horizon"] is not None
-                                              else ""))
-        if fb.get("collusive_share") is not None and "collusive_share" not in out:
-            out["collusive_share"] = (fb["collusive_share"], "no recovery after a breakdown")
-            out["war_share"] = (1.0 - fb["collusive_share"], "no recovery after a breakdown")
-    return out
-
-
-def _ci(e) -> str:
-
-    if e.low != e.low:
-        return "-"
-    return f"[{fmt_num(e.low)}, {fmt_num(e.high)}]"
-
-
-def render(res, cfg) -> str:
-
-    s = res.settings
-    run = s["run"]
-    mon = s["monitoring"]
-    lines = [f"Market: {describe_market(cfg['market'].to_dict(), cfg['market'].spec().n_firms)}",
-             f"Agreement: {AGREEMENT_NAMES.get(s['agreement'], s['agreement'])}"]
-    seats = []
-    for i, st in enumerate(s["lineup"]):
-        params = ", ".join(f"{k} {v}" for k, v in st.items() if k != "strategy" and k != "states")
-        seats.append(f"firm {i + 1} {st['strategy']}" + (f" ({params})" if params else ""))
-    lines.append("Line-up: " + "; ".join(seats))
-    shock = "no demand shock" if mon["sigma"] == 0 else f"{mon['noise']} demand shock, sigma {fmt_num(mon['sigma'])}"
-    lines.append(f"Monitoring: {mon['signal']}; {shock}; perception error {fmt_num(mon['perception_error'])}; "
-                 f"implementation error {fmt_num(mon['implementation_error'])}")
-    hz = ("fixed horizon" if run["horizon"] == "fixed"
-          else f"random horizon, continuation {fmt_num(run['continuation'])}")
-    lines.append(f"Run: {run['periods']} periods ({hz}), {run['replications']} replications, delta "
-                 f"{fmt_num(run['delta'])}, seed {run['seed']}")
-    lines.append("")
-    pct = f"{100 * s['confidence']:g}%"
-    lines.append(f"Persistence of collusion (simulated, {pct} confidence intervals across replications; analytic "
-                 "prediction where one exists)")
-    ana = _analytic(res)
-    rows = []
-    for key, label in _METRIC_ROWS:
-        e = res.punishment_length if key == "punishment_length" else res.metrics[key]
-        a = ana.get(key)
-        note = " (at least)" if e.note.startswith("at least") else ""
-        rows.append([label, fmt_num(e.value) + note, _ci(e), fmt_num(a[0]) if a else "-", a[1] if a else ""])
-    lines.append(table(["metric", "simulated", f"{pct} CI", "analytic", "source"], rows, "lrlrl"))
-    lines.append("")
-    ref = res.reference
-    frows = []
-    for i in range(s["n_firms"]):
-        fm = res.firm_metrics
-        frows.append([f"firm {i + 1}", s["lineup"][i]["strategy"], fm["profit"][i].value, _ci(fm["profit"][i]),
-                      fm["discounted_profit"][i].value, _ci(fm["discounted_profit"][i]), fm["profit_gain"][i].value,
-                      _ci(fm["profit_gain"][i]), ref["nash_profit"][i], ref["collusive_profit"][i]])
-    lines.append(table(["", "strategy", "mean profit", "CI", "discounted profit", "CI", "profit gain", "CI",
-                        "Nash profit", "collusive profit"], frows, "llrlrlrlrr"))
-    tp = res.baseline.get("trigger_price")
-    if tp is not None:
-        lines.append(f"  trigger-price model: expected discounted profit over this horizon "
-                     f"{fmt_num(tp['discounted_profit'])} (infinite-horizon value {fmt_num(tp['value'])}); the "
-                     f"scheme is {'an' if tp['equilibrium'] else 'not an'} equilibrium at this discount factor")
-    th = res.baseline.get("thresholds") or []
-    if th:
-        lines.append("")
-        lines.append("Critical discount factors of the schemes in the line-up, at the levels they play (analytic, "
-                     "infinite-horizon benchmark; '-': not sustainable below one)")
-        trows = [[t["scheme"], ", ".join(f"firm {k}" for k in t["seats"]), t["market"], t["effective_delta"],
-                  "yes" if t["clears"] else "no", t["source"]] for t in th]
-        clears = "clears (infinite horizon)" if run["horizon"] == "fixed" else "clears"
-        lines.append(table(["scheme", "played by", "threshold", "discount factor", clears, "source"], trows,
-                           "llrrll"))
-        if run["horizon"] == "random":
-            lines.append("  with a random horizon the discount factor that matters is delta x continuation")
-    notes = res.baseline.get("notes") or []
-    if notes:
-        if not th:
-            lines.append("")
-        lines.extend(f"  note: {x}" for x in notes)
-    if res.paths is not None:
-        lines.extend(["", *_render_paths(res)])
-    lines.append("")
-    lines.append(CAUTION)
-    return "\n".join(lines)
-
-
-def _render_paths(res, max_periods: int = 20) -> list:
-
-    P = res.paths
-    out = []
-    for r in range(len(P["length"])):
-        H = int(P["length"][r])
-        out.append(f"Path of replication {r + 1} (first {min(H, max_periods)} of {H} periods)")
-        rows = []
-        for t in range(min(H, max_periods)):
-            states = ", ".join(P["state_names"][i][int(P["states"][r, t, i])] for i in range(len(P["state_names"])))
-            acts = ", ".join(fmt_num(x) for x in P["actions"][r, t])
-            rows.append([t + 1, states, acts, P["market_price"][r, t], "yes" if P["collusive"][r, t] else "no"])
-        out.append(table(["period", "states", "actions", "market price", "collusive"], rows, "rllrl"))
-    return out

@@ -8,10 +8,12 @@ from sim.cli._common import add_market_flags, emit, flag_error, market_table_fro
 from sim.core.errors import InputError
 from sim.core.jsonutil import dumps
 from sim.core.tomlfile import read_toml
+from sim.evidence.capacity import RENDERER as CAPACITY_RENDERER
 from sim.evidence.render import write_figures
 from sim.evidence.thresholds import RENDERER
 from sim.runner.analyses.thresholds import KIND as THRESHOLDS
 from sim.runner.single import run_single
+from sim.theory.capacity_analysis import is_capacity_market
 
 HELP = "stage game and critical discount factors of a market (analytic baseline)"
 DESCRIPTION = (
@@ -36,6 +38,17 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--noise", choices=["lognormal", "normal"],
                    help="also compute the trigger-price equilibrium under this demand shock (needs --delta)")
     g.add_argument("--sigma", metavar="S", help="standard deviation of the demand shock (default 0.1)")
+    a = p.add_argument_group("any punishment (the [any_punishment] table)")
+    a.add_argument("--any-punishment", action="store_true",
+                   help="also find the lowest critical discount factor under any punishment (optimal penal codes) "
+                        "on an action grid, beside the named schemes")
+    a.add_argument("--grid", metavar="N", help="actions per firm of that grid (one count, or n1,n2,...; default 15)")
+    a.add_argument("--directions", metavar="L",
+                   help="directions of the outer payoff sets with three firms or more (at least firms + 1)")
+    a.add_argument("--bracket", metavar="TOL", help="width of the interval on the discount factor (default 0.001)")
+    a.add_argument("--at-delta", metavar="D",
+                   help="discount factor at which to report the worst equilibrium payoffs and the payoff set "
+                        "(default: the upper end of the interval)")
     e = p.add_argument_group("enforcement (the [enforcement] table)")
     e.add_argument("--detection", metavar="RHO", help="probability per colluding period that the cartel is detected")
     e.add_argument("--fine", metavar="F", help="fine per firm and conviction")
@@ -53,6 +66,10 @@ _FLAG_OF = {
     "monitoring.signal": "--noise",
     "monitoring.noise": "--noise",
     "monitoring.sigma": "--sigma",
+    "any_punishment.grid": "--grid",
+    "any_punishment.directions": "--directions",
+    "any_punishment.tolerance": "--bracket",
+    "any_punishment.delta": "--at-delta",
     "enforcement.detection": "--detection",
     "enforcement.fine": "--fine",
     "enforcement.leniency": "--leniency",
@@ -66,7 +83,7 @@ def _document(args) -> tuple[dict, set]:
     doc = read_toml(args.file) if args.file else {}
     if args.file and "market" not in doc:
         raise InputError("market", f"{args.file} has no [market] table")
-    for name in ("market", "collusion", "thresholds", "monitoring"):
+    for name in ("market", "collusion", "thresholds", "monitoring", "any_punishment"):
         if name in doc and not isinstance(doc[name], dict):
             raise InputError(name, f"must be a table, got {doc[name]!r}")
     doc = {k: (dict(v) if isinstance(v, dict) else v) for k, v in doc.items()}
@@ -100,6 +117,7 @@ def _document(args) -> tuple[dict, set]:
     if args.sigma is not None:
         mon["sigma"] = parse_number("sigma", args.sigma)
         flags.add("monitoring.sigma")
+    flags |= _any_punishment_flags(args, doc)
     for name in ("detection", "fine", "leniency"):
         if getattr(args, name) is not None:
             if not isinstance(doc.get("enforcement", {}), dict):
@@ -107,6 +125,27 @@ def _document(args) -> tuple[dict, set]:
             doc.setdefault("enforcement", {})[name] = parse_number(name, getattr(args, name))
             flags.add(f"enforcement.{name}")
     return doc, flags
+
+
+def _any_punishment_flags(args, doc: dict) -> set:
+    """Write the [any_punishment] table from its flags (any of them switches the part on)."""
+    given = {"grid": args.grid, "directions": args.directions, "tolerance": args.bracket, "delta": args.at_delta}
+    if not args.any_punishment and all(v is None for v in given.values()):
+        return set()
+    ap = doc.setdefault("any_punishment", {})
+    flags = set()
+    if args.grid is not None:
+        ap["grid"] = parse_numbers("grid", args.grid)
+    if args.directions is not None:
+        ap["directions"] = parse_number("directions", args.directions, integer=True)
+    if args.bracket is not None:
+        ap["tolerance"] = parse_number("bracket", args.bracket)
+    if args.at_delta is not None:
+        ap["delta"] = parse_number("at-delta", args.at_delta)
+    for key, v in given.items():
+        if v is not None:
+            flags.add(f"any_punishment.{key}")
+    return flags
 
 
 def _renamed(exc: InputError, flags: set) -> InputError:
@@ -118,8 +157,24 @@ def _renamed(exc: InputError, flags: set) -> InputError:
     return exc
 
 
+def _run_capacity(args, doc: dict, flags: set) -> int:
+    """A market of price competition with capacities: its own analysis (kind ``capacity``), without a merger."""
+    doc = {k: v for k, v in doc.items() if k in ("market", "collusion")}
+    doc["experiment"] = {"kind": "capacity"}
+    try:
+        one = run_single(doc, source=args.file, default_name="thresholds")
+    except InputError as exc:
+        raise _renamed(exc, flags if args.file else flags | set(_FLAG_OF)) from None
+    if args.plot:
+        write_figures(CAPACITY_RENDERER.figures(one.result), args.plot)
+    emit(dumps(CAPACITY_RENDERER.as_json(one.result), indent=2) if args.json else CAPACITY_RENDERER.console(one.result))
+    return 0
+
+
 def run(args) -> int:
     doc, flags = _document(args)
+    if is_capacity_market(doc.get("market")):
+        return _run_capacity(args, doc, flags)
     # the tables this analysis reads, whatever the kind of FILE (any experiment file's [market] will do)
     doc = {k: v for k, v in doc.items() if k in THRESHOLDS.tables}
     doc["experiment"] = {"kind": "thresholds"}

@@ -39,7 +39,7 @@ import numpy as np
 from scipy import special
 
 __all__ = ["Estimate", "Survival", "kaplan_meier", "mean_estimate", "normal_quantile", "ratio_estimate",
-           "wilson_estimate"]
+           "share_estimate", "wilson_estimate"]
 
 
 def normal_quantile(confidence: float) -> float:
@@ -155,6 +155,17 @@ def _interval(value: float, se: float, z: float) -> tuple[float, float]:
     return value - z * se, value + z * se
 
 
+def _length_interval(mean: float, se: float, z: float, longest: int) -> tuple[float, float]:
+    # a mean length lies in [1, longest]: the interval is built on the log scale (the delta method,
+    # se(log m) = se / m; the log transformation of Kaplan-Meier quantities as in Klein and Moeschberger,
+    # 2003, "Survival Analysis", chapter 4 -- from memory) and clipped to that range, so it stays positive
+    # and asymmetric, as the sampling distribution of a mean length is
+    if not math.isfinite(se) or mean <= 0:
+        return math.nan, math.nan
+    w = z * se / mean
+    return max(1.0, mean * math.exp(-w)), min(float(longest), mean * math.exp(w))
+
+
 def mean_estimate(x, confidence: float = 0.95) -> Estimate:
     """Mean over replications with the normal-approximation interval.
 
@@ -201,12 +212,58 @@ def wilson_estimate(k: int, n: int, confidence: float = 0.95) -> Estimate:
         return Estimate(math.nan, math.nan, math.nan, math.nan, 0, "wilson")
     z = normal_quantile(confidence)
     p = k / n
+    low, high = _wilson_bounds(p, float(n), z, k == 0, k == n)
+    return Estimate(p, math.sqrt(p * (1.0 - p) / n), low, high, n, "wilson")
+
+
+def _wilson_bounds(p: float, n: float, z: float, at_zero: bool, at_one: bool) -> tuple[float, float]:
+    # Wilson (1927), "Probable inference, the law of succession, and statistical inference", JASA 22(158);
+    # ``n`` may be an effective sample size (not a whole number)
     den = 1.0 + z * z / n
     mid = (p + z * z / (2 * n)) / den
     h = z * math.sqrt(p * (1.0 - p) / n + z * z / (4.0 * n * n)) / den
-    low = 0.0 if k == 0 else max(0.0, mid - h)  # the exact bounds at the ends, free of round-off
-    high = 1.0 if k == n else min(1.0, mid + h)
-    return Estimate(p, math.sqrt(p * (1.0 - p) / n), low, high, n, "wilson")
+    low = 0.0 if at_zero else max(0.0, mid - h)  # the exact bounds at the ends, free of round-off
+    high = 1.0 if at_one else min(1.0, mid + h)
+    return low, high
+
+
+def share_estimate(x, y, confidence: float = 0.95) -> Estimate:
+    """A share ``sum(x) / sum(y)`` in [0, 1] with an interval that stays in [0, 1].
+
+    The point estimate and standard error are those of :func:`ratio_estimate` (the delta method across
+    replications, which accounts for the correlation of periods within a replication). The interval is
+    Wilson's score interval at the ratio's effective sample size ``n* = p (1 - p) / se^2``, capped at the
+    number of periods observed (Korn and Graubard, 1998, "Confidence intervals for proportions with small
+    expected number of positive counts estimated from survey data", Survey Methodology 24(2)), so it never
+    leaves [0, 1] and stays asymmetric near the ends where the normal interval would cross them. When every
+    replication gives the same share (``se = 0``, or a share of exactly 0 or 1), the replications themselves
+    are the independent units: ``n* = n``.
+
+    Parameters
+    ----------
+    x : array_like of shape (n,)
+        Numerator per replication (e.g. collusive periods), between 0 and ``y``.
+    y : array_like of shape (n,)
+        Denominator per replication (e.g. periods played).
+    confidence : float in (0, 1)
+        Level of the interval.
+
+    Returns
+    -------
+    Estimate
+        Method ``"share"`` (nan when ``sum(y)`` is zero).
+    """
+    e = ratio_estimate(x, y, confidence)
+    if not math.isfinite(e.value):
+        return Estimate(e.value, e.se, e.low, e.high, e.n, "share")
+    p, n = e.value, e.n
+    total = float(np.sum(np.asarray(y, dtype=float)))
+    if math.isfinite(e.se) and e.se > 0 and 0.0 < p < 1.0:
+        n_eff = min(p * (1.0 - p) / (e.se * e.se), total)
+    else:
+        n_eff = float(n)
+    low, high = _wilson_bounds(p, n_eff, normal_quantile(confidence), p == 0.0, p == 1.0)
+    return Estimate(p, e.se, low, high, n, "share")
 
 
 def ratio_estimate(x, y, confidence: float = 0.95) -> Estimate:
@@ -408,6 +465,6 @@ def kaplan_meier(ended, censored, confidence: float = 0.95, restrict: int | None
     else:
         se = math.sqrt(var)
         note = "at least (the longest observation was cut off by the horizon)" if S[-1] > 0 else ""
-    lo_m, hi_m = _interval(mean, se, z)
+    lo_m, hi_m = _length_interval(mean, se, z, m)
     est = Estimate(mean, se, lo_m, hi_m, total, "kaplan-meier", note)
     return Survival(np.arange(1, m + 1), S, se_S, lo, hi, at_risk.astype(np.int64), d, c, est)

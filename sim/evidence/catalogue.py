@@ -18,6 +18,8 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
+from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
+
 __all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "money"]
 
 
@@ -55,19 +57,15 @@ _WILSON = "Wilson score interval (Wilson, 1927, JASA 22)"
 _STUDENT = "Student t across independent sessions"
 _FRIEDMAN = ("delta* = (pi_D - pi_C) / (pi_D - pi_N), the smallest delta with pi_C / (1 - delta) >= pi_D + delta pi_N "
              "/ (1 - delta) (Friedman, 1971, Review of Economic Studies 38(1))")
-
-_ENF = ("smallest delta with c - e >= (d - phi) (1 - delta (1 - q)): each colluding period is detected with "
-        "probability rho, a conviction costs the fine and ends collusion (Motta and Polo, 2003, IJIO 21(3); rho = 0 "
-        "gives Friedman, 1971)")
-_STATES = ("grim trigger with state-contingent values: pi_D(s) - pi(s) <= [M (pi - pi_N)](s), M = beta P (I - beta "
-           "P)^-1, beta = delta (1 + g) (Rotemberg and Saloner, 1986, AER 76(3); Kandori, 1991; Haltiwanger and "
-           "Harrington, 1991, RAND 22(1))")
-_PATH = ("largest weights on each state's Nash-to-agreement path keeping every constraint, by monotone Gauss-Seidel "
-         "sweeps from full collusion (Tarski's fixed-point theorem); after Rotemberg and Saloner (1986)")
-_POOL = ("sum over the firm's markets of beta_m / (1 - beta_m) (pi_C - pi_N) - (pi_D - pi_C) >= 0 (Bernheim and "
-         "Whinston, 1990, RAND 21(1))")
-_ALLOC = ("maximum of the discounted collusive value over the markets' path weights subject to every pooled "
-          "constraint, by SLSQP (Kraft, 1988) from several starts (Bernheim and Whinston, 1990)")
+_JYC = ("outer approximation by supporting hyperplanes in fixed directions (Judd, Yeltekin and Conklin, 2003, "
+        "\"Computing supergame equilibria\", Econometrica 71(4))")
+_SETS = ("equilibrium payoffs bracketed between inner (self-generating) and outer sets of the operator of Abreu, "
+         "Pearce and Stacchetti (1990, Econometrica 58(5)); two firms: exact images after Abreu and Sannikov (2014, "
+         "Theoretical Economics 9); more firms: Judd, Yeltekin and Conklin (2003, Econometrica 71(4))")
+_PENAL = "value of the optimal penal code (Abreu, 1988, Econometrica 56(2)), read from the payoff sets: " + _SETS
+_ANY = ("smallest delta with (1 - delta) (pi_D - pi_C) <= delta (pi_C - v(delta)) for every firm, v the worst "
+        "equilibrium payoff (Abreu, 1988, Econometrica 56(2)); bisection on delta over payoff sets bracketed after "
+        "Abreu, Pearce and Stacchetti (1990), Judd, Yeltekin and Conklin (2003) and Abreu and Sannikov (2014)")
 
 ENTRIES: dict[str, Entry] = {
     # stage game and thresholds
@@ -289,108 +287,101 @@ ENTRIES: dict[str, Entry] = {
     "calibration.max_relative_residual": Entry("largest relative residual of the calibration", "share",
                                                "How far the calibrated market misses the observed data.",
                                                "calibration to prices, shares and margins"),
-    # enforcement (sim.theory.enforcement)
-    "enforcement.detection_rate": Entry("detection probability", "probability per colluding period",
-                                        "Chance that the authority opens an investigation in a period of collusion.",
-                                        "given (read at the agreed price when it depends on the price)"),
-    "enforcement.conviction_rate": Entry("conviction probability", "probability per colluding period",
-                                         "Chance that collusion ends with a conviction in a period of collusion.",
-                                         "detection x proof, or detection when the firms report under leniency "
-                                         "(Motta and Polo, 2003, IJIO 21(3))"),
-    "enforcement.threshold": Entry("critical discount factor under enforcement", "",
-                                   "The lowest discount factor at which no firm gains by deviating when collusion is "
-                                   "detected and fined each period with the stated probability.",
-                                   _ENF),
-    "enforcement.binding": Entry("binding firm under enforcement", "firm number",
-                                 "The firm whose constraint sets the critical discount factor under enforcement.",
-                                 "largest per-firm threshold"),
-    "enforcement.expected_fine": Entry("expected fine per colluding period", "{money}",
-                                       "The fine times the probability of paying it, per period of collusion.",
-                                       "rho x share paid x fine (Motta and Polo, 2003, IJIO 21(3))"),
-    "enforcement.expected_spell": Entry("expected life of the cartel", "periods",
-                                        "Expected number of colluding periods up to and including the conviction.",
-                                        "1 / conviction probability (geometric distribution)"),
-    "enforcement.deterrence_fine": Entry("deterrence fine", "fine units",
-                                         "The smallest fine at which collusion cannot be sustained at the stated "
-                                         "discount factor and detection rate (undefined where no fine deters, "
-                                         "without detection; 0 where collusion fails without a fine).",
-                                         "F* = (c - d k) / (b (rho s - phi k)), k = 1 - delta (1 - q): the "
-                                         "enforcement constraint is linear in the fine (after Motta and Polo, 2003; "
-                                         "Motta, 2004, Competition Policy, ch. 4)"),
-    "enforcement.discounted_fines": Entry("discounted expected fines", "{currency}, discounted sum",
-                                          "Expected discounted fines a firm pays along the collusive path.",
-                                          "e / (1 - delta (1 - q)), the recursion Phi = e + delta (1 - q) Phi"),
-    "enforcement.sustainable": Entry("collusion sustainable under enforcement", "yes (1) / no (0)",
-                                     "Whether the agreement is sustainable at the stated discount factor under "
-                                     "enforcement.", "threshold under enforcement <= delta"),
-    "enforcement.slack": Entry("incentive slack under enforcement", "{currency}, discounted sum",
-                               "Value of keeping the agreement minus value of the best deviation, both in excess of "
-                               "static Nash forever, at the stated discount factor (the smallest over firms unless a "
-                               "firm is named); collusion is sustainable where it is at least zero.",
-                               "(c - e) / (1 - delta (1 - q)) - (d - phi), the enforcement constraint in money "
-                               "(after Motta and Polo, 2003, IJIO 21(3))"),
-    "enforcement.partial_gain": Entry("profit gain of the best collusion enforcement leaves", "share",
-                                      "(joint profit - joint Nash) / (joint agreed - joint Nash) of the most "
-                                      "profitable profile on the path to the agreement sustainable under enforcement.",
-                                      "grid and bisection along the path (Block, Nold and Sidak, 1981, JPE 89(3), "
-                                      "for price-dependent detection)"),
-    "enforcement.partial_price": Entry("average price of the best collusion enforcement leaves", "price",
-                                       "Quantity-weighted average price of that profile.", "as for its profit gain"),
-    # demand states (sim.theory.demand_states, sim.theory.state_path)
-    "states.threshold": Entry("critical discount factor of full collusion in every demand state", "",
-                              "The lowest discount factor at which the agreement holds in every state (or in the "
-                              "listed state) with full collusion in all of them.", _STATES),
-    "states.binding_state": Entry("binding demand state", "state number",
-                                  "The state whose constraint sets the threshold of full collusion.",
-                                  "largest per-state threshold (the high-demand state for i.i.d. states; "
-                                  "Rotemberg and Saloner, 1986)"),
-    "states.binding": Entry("binding firm across demand states", "firm number",
-                            "The firm whose constraint sets the threshold of full collusion.", "largest threshold"),
-    "states.agreed_price": Entry("agreed price in the demand state", "price",
-                                 "Quantity-weighted average price of the agreement in the state.", "stage game"),
-    "states.nash_price": Entry("static-Nash price in the demand state", "price",
-                               "Quantity-weighted average static-Nash price in the state.", "stage game"),
-    "states.full_collusion": Entry("full collusion in every demand state", "yes (1) / no (0)",
-                                   "Whether the agreement is sustainable in every state at the discount factor.",
-                                   _STATES),
-    "states.price_cyclicality": Entry("cyclicality of collusive prices", "1 procyclical, -1 countercyclical, 0 flat",
-                                      "Sign of the covariance between the best path's prices and the state's joint "
-                                      "agreed profit, weighted by long-run frequencies.",
-                                      "Rotemberg and Saloner (1986, AER 76(3)); Haltiwanger and Harrington (1991, "
-                                      "RAND 22(1))"),
-    "states.price": Entry("collusive price in the demand state", "price",
-                          "Average price of the best state-contingent path sustainable at the discount factor.",
-                          _PATH),
-    "states.weight": Entry("collusion weight in the demand state", "0 (Nash) to 1 (agreement)",
-                           "Position of the best state-contingent path on the state's path from static Nash to the "
-                           "agreement.", _PATH),
-    # multimarket contact (sim.theory.multimarket, sim.theory.contact_allocation)
-    "contact.common_threshold": Entry("lowest common discount factor with pooled constraints", "",
-                                      "The lowest discount factor at which every firm keeps the agreement in all its "
-                                      "markets when a deviation anywhere is punished everywhere.", _POOL),
-    "contact.highest_standalone": Entry("critical discount factor of every market on its own", "",
-                                        "The lowest discount factor at which each market sustains collusion alone.",
-                                        _FRIEDMAN),
-    "contact.binding": Entry("binding firm of the pooled constraints", "firm number",
-                             "The firm whose pooled constraint sets the common threshold.", "largest pooled threshold"),
-    "contact.threshold": Entry("critical discount factor of the market on its own", "",
-                               "The market's threshold without contact in other markets.", _FRIEDMAN),
-    "contact.pooled": Entry("pooled critical discount factor", "",
-                            "The firm's threshold with its incentive constraints summed over its markets.", _POOL),
-    "contact.together": Entry("collusion sustainable in every market with pooling", "yes (1) / no (0)",
-                              "Whether every firm's pooled constraint holds at the discount factor.", _POOL),
-    "contact.alone": Entry("collusion sustainable in the market on its own", "yes (1) / no (0)",
-                           "Whether every firm of the market keeps the agreement without the other markets.",
-                           _FRIEDMAN),
-    "contact.weight": Entry("collusion weight in the market", "0 (Nash) to 1 (agreement)",
-                            "Position on the market's path from static Nash to the agreement in the best allocation "
-                            "of collusion across markets.", _ALLOC),
-    "contact.value": Entry("discounted value of collusion, pooled", "{currency}, discounted sum",
-                           "The firms' total discounted collusive value in the best allocation across markets.",
-                           _ALLOC),
-    "contact.standalone_value": Entry("discounted value of collusion, market by market", "{currency}, discounted sum",
-                                      "The same with each market at its best standalone weight.", _ALLOC),
+    # the any-punishment part of the thresholds analysis (payoff sets on an action grid)
+    "any_punishment.grid": Entry("actions per firm on the grid", "count",
+                                 "Number of actions of the firm in the finite stage game on which the payoff sets "
+                                 "are computed.", "uniform grid over the action range with the static Nash, "
+                                 "collusive, deviation, stick and minmax actions placed on it (this tool's choice)"),
+    "any_punishment.directions": Entry("directions of the outer payoff sets", "count",
+                                       "Number of directions of the supporting hyperplanes (0: exact two-firm sets).",
+                                       _JYC),
+    "any_punishment.threshold.lower": Entry("critical discount factor under any punishment, lower end", "",
+                                            "At or below it the agreement is not an equilibrium outcome under any "
+                                            "punishment: the outer payoff set refutes it.", _ANY),
+    "any_punishment.threshold.upper": Entry("critical discount factor under any punishment, upper end", "",
+                                            "At it the agreement is sustained by constructed equilibria whose "
+                                            "punishments are the optimal penal codes.", _ANY),
+    "any_punishment.on_grid.grim": Entry("critical discount factor on the action grid, grim trigger", "",
+                                         "Grim trigger's threshold in the same finite stage game.", _FRIEDMAN),
+    "any_punishment.on_grid.stick_carrot": Entry("critical discount factor on the action grid, stick and carrot", "",
+                                                 "The best symmetric one-period punishment (a common action of "
+                                                 "every firm on the grid) followed by the agreement.",
+                                                 "Abreu (1986), Journal of Economic Theory 39, minimised over the "
+                                                 "common actions on the grid"),
+    "any_punishment.on_grid.two_phase": Entry("critical discount factor on the action grid, one-period punishment "
+                                              "at any profile", "",
+                                              "One period at any action profile, asymmetric ones included, then the "
+                                              "agreement.", "Abreu (1986), minimised over every profile of the grid"),
+    "any_punishment.delta": Entry("discount factor of the payoff set", "",
+                                  "The discount factor at which the worst payoffs and the payoff set are reported "
+                                  "(given, or the upper end of the interval).", "given or computed"),
+    "any_punishment.sustained": Entry("agreement sustained under any punishment", "yes (1) / no (0)",
+                                      "Whether the agreement is an equilibrium outcome at that discount factor "
+                                      "(empty when the bracket cannot decide).", _ANY),
+    "any_punishment.accuracy": Entry("accuracy of the payoff sets", "{money}",
+                                     "Hausdorff distance between the inner and the outer equilibrium payoff sets at "
+                                     "that discount factor: every number read from them is known to this precision.",
+                                     _SETS),
+    "any_punishment.worst.lower": Entry("worst equilibrium payoff, lower end", "{money}",
+                                        "A lower bound of the firm's worst subgame-perfect equilibrium payoff "
+                                        "(discounted average), from the outer set.", _PENAL),
+    "any_punishment.worst.upper": Entry("worst equilibrium payoff, upper end", "{money}",
+                                        "The firm's payoff in the harshest punishment constructed (its optimal penal "
+                                        "code), from the inner set.", _PENAL),
+    # price competition with capacity constraints
+    "capacity": Entry("capacity", "quantity per period", "The most the firm can sell in a period.", "given"),
+    "profit.minmax": Entry("minmax profit", "{money}",
+                           "The least profit the rivals can hold the firm to: they price at zero and sell first, the "
+                           "firm sells its residual demand at its best price.",
+                           "minmax of the stage game (Abreu, 1988, Econometrica 56(2); Lambson, 1987, Review of "
+                           "Economic Studies 54(3))"),
+    "static_mixed": Entry("static equilibrium in mixed strategies", "yes (1) / no (0)",
+                          "Whether the static equilibrium of price competition with capacities is mixed "
+                          "(Bertrand-Edgeworth).",
+                          "Kreps and Scheinkman (1983), Bell Journal of Economics 14(2); Osborne and Pitchik (1986), "
+                          "Journal of Economic Theory 38(2); numerically on a price grid for more than two firms"),
+    "threshold.minmax": Entry("critical discount factor, minmax punishment", "",
+                              "The lowest discount factor at which the agreement holds when a deviator is held to its "
+                              "minmax profit forever.",
+                              "delta* = (pi_D - pi_C) / (pi_D - pi_minmax) (Abreu, 1988; with capacities: Compte, "
+                              "Jenny and Rey, 2002, European Economic Review 46(1))"),
+    "binding.minmax": Entry("binding firm, minmax punishment", "firm number",
+                            "The firm with the highest critical discount factor under minmax punishments.",
+                            "argmax over firms (the first on ties)"),
+    "capacity_share.largest": Entry("largest capacity share", "0 to 1",
+                                    "The largest firm's capacity divided by the total capacity.",
+                                    "the symmetry measure of Compte, Jenny and Rey (2002), Capacity constraints, "
+                                    "mergers and collusion, European Economic Review 46(1)"),
+    "spare_capacity": Entry("spare capacity", "share of the quantity sold",
+                            "Total capacity over the quantity sold under the agreement, minus one.",
+                            "common practice, no source"),
+    "rivals_cover": Entry("capacity of the largest firm's rivals", "share of demand",
+                          "The total capacity of the largest firm's rivals over the demand at the agreed price; below "
+                          "one they cannot serve the market on their own.",
+                          "Compte, Jenny and Rey (2002), Capacity constraints, mergers and collusion, European "
+                          "Economic Review 46(1)"),
+    "threshold.grim.change": Entry("change of the critical discount factor, grim trigger", "",
+                                   "After minus before the merger; negative: coordination becomes easier.",
+                                   "difference of the two thresholds; " + _FRIEDMAN),
+    "threshold.minmax.change": Entry("change of the critical discount factor, minmax punishment", "",
+                                     "After minus before the merger; negative: coordination becomes easier.",
+                                     "difference of the two thresholds (Compte, Jenny and Rey, 2002)"),
+    "binding_changed": Entry("binding firm changes", "yes (1) / no (0)",
+                             "Whether the merger changes which firm binds under minmax punishments.",
+                             "comparison of the binding firms (Compte, Jenny and Rey, 2002)"),
+    "eu_safe_harbour": Entry("within the EU guidelines' levels of no concern", "yes (1) / no (0)",
+                             "Whether the post-merger HHI and its change lie within the levels at which concerns are "
+                             "unlikely.",
+                             "Guidelines on the assessment of horizontal mergers, OJ C 31, 5.2.2004, paragraphs 19-21"),
+    "us_presumption": Entry("US structural presumption", "yes (1) / no (0)",
+                            "Whether the HHI after the merger is above 1,800 with a change above 100, or the merged "
+                            "share above 30 % with a change above 100.",
+                            "U.S. Department of Justice and Federal Trade Commission, Merger Guidelines (2023), "
+                            "section 2.1"),
 }
+
+# enforcement, demand states and multimarket contact (sim.evidence.catalogue_conditions)
+ENTRIES.update({k: Entry(*v) for k, v in CONDITION_ENTRIES.items()})
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)
 PARAMETERS: dict[str, Entry] = {
@@ -415,14 +406,9 @@ PARAMETERS: dict[str, Entry] = {
     "market.elasticity": Entry("demand elasticity", "", "Absolute elasticity of isoelastic demand.", "given"),
     "strategies": Entry("strategy", "", "The strategy played by the seats of a line-up entry.", "given"),
     "assess.growth": Entry("demand growth per period", "share per period", "Growth rate of demand.", "given"),
-    "enforcement.detection": Entry("detection probability", "per colluding period",
-                                   "Chance that the authority opens an investigation in a period of collusion.",
-                                   "given"),
-    "enforcement.fine": Entry("fine per firm and conviction", "fine units", "The fine a convicted firm pays.", "given"),
-    "enforcement.leniency": Entry("leniency: share of the fine a reporting firm pays", "share",
-                                  "The reduced fine under a leniency programme.", "given"),
-    "demand_states.growth": Entry("demand growth per period", "share per period", "Growth rate of demand.", "given"),
 }
+
+PARAMETERS.update({k: Entry(*v) for k, v in CONDITION_PARAMETERS.items()})
 
 _SCHEME_WORDS = {"grim": "grim trigger", "finite": "Nash reversion for T periods", "stick_carrot": "stick and carrot"}
 

@@ -47,6 +47,17 @@ def _same_learner(a: dict, b: dict) -> bool:
     return da == db and ga.shape == gb.shape and bool(np.allclose(ga, gb, rtol=1e-9, atol=0))
 
 
+def _update_words(c: dict) -> str:
+    """The update rule, when it is not the asynchronous default (Asker, Fershtman and Pakes, 2022)."""
+    rule = c.get("update", "asynchronous")
+    if rule == "synchronous":
+        return "; synchronous updates (every action's value from what it would have earned)"
+    if rule == "mixed":
+        return (f"; mixed updates (each action not played also updated with probability "
+                f"{fmt_num(c['counterfactual_share'])})")
+    return ""
+
+
 def _seat_lines(res: LearnResult) -> list[str]:
     """One line per seat, or one for all when every seat holds the same learner."""
     act = _act(res)
@@ -65,7 +76,7 @@ def _seat_lines(res: LearnResult) -> list[str]:
         init = "given array" if c["init"] == "given" else c["init"]
         lines.append(f"{who}: Q-learning, alpha {fmt_num(c['alpha'])}, beta {c['beta']:g}, delta "
                      f"{fmt_num(c['delta'])}, {c['m']} {act} levels from {fmt_num(c['grid'][0])} to "
-                     f"{fmt_num(c['grid'][-1])}, memory {c['k']}, Q initialised {init}")
+                     f"{fmt_num(c['grid'][-1])}, memory {c['k']}, Q initialised {init}{_update_words(c)}")
     return lines
 
 

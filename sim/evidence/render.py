@@ -95,7 +95,9 @@ RENDERERS: dict = {
     "thresholds": "sim.evidence.thresholds:RENDERER",
     "assess": "sim.evidence.assess:RENDERER",
     "learn": "sim.evidence.learn:RENDERER",
+    "simulate": "sim.evidence.simulate:RENDERER",
     "tournament": "sim.evidence.tournament:RENDERER",
+    "capacity": "sim.evidence.capacity:RENDERER",
 }
 
 

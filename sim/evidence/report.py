@@ -29,8 +29,9 @@ from sim.core.text import fmt_num
 from sim.evidence.bundle import Bundle, clear_leftovers, holds_bundle
 from sim.evidence.figures import SweepData, _plt
 from sim.evidence.render import renderer_for
-from sim.runner.experiment import FigureSpec, figure_name, leading_comment
+from sim.runner.experiment import leading_comment
 from sim.runner.lock import FolderLock
+from sim.runner.report_settings import FigureSpec, figure_name
 from sim.runner.runs import (
     ARRAYS_FILE,
     CSV_FILE,

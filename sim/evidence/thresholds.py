@@ -6,6 +6,7 @@ from __future__ import annotations
 import numpy as np
 
 from sim.core.text import CAUTION, fmt_num, table
+from sim.evidence import any_punishment as anyp
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.thresholds_parts import part_figures, part_json, part_lines
 from sim.theory.analysis import ThresholdsResult
@@ -70,6 +71,8 @@ def _threshold_lines(res: ThresholdsResult) -> list[str]:
     lines = ["Critical discount factors ('-': not sustainable at any discount factor below one)"]
     hdr = ["scheme", "market", "binding"] + [f"firm {i + 1}" for i in range(res.n_firms)]
     rows = [[r["scheme"], r["market"], f"firm {r['binding_firm']}", *r["per_firm"]] for r in res.scheme_rows()]
+    if res.any_punishment is not None:
+        rows.append(anyp.scheme_row(res.any_punishment, res.n_firms))
     lines.append(table(hdr, rows))
     sc = th["stick_carrot"]
     if sc["market"] is not None:
@@ -82,6 +85,8 @@ def _threshold_lines(res: ThresholdsResult) -> list[str]:
     best = th["best"]
     if best["market"] is not None:
         lines.append(f"  lowest threshold: {_scheme_name(best['scheme'], best['T'])}, {fmt_num(best['market'])}")
+    if res.any_punishment is not None:
+        lines += anyp.console_lines(res.any_punishment, res.products["quantity_setting"])
     return lines
 
 
@@ -146,13 +151,16 @@ def as_json(res: ThresholdsResult) -> dict:
     out["market"] = res.market
     if res.trigger_price is not None:
         out["trigger_price"] = res.trigger_price
+    if res.any_punishment is not None:
+        out["any_punishment"] = anyp.to_json(res.any_punishment)
     out.update(part_json(res))
     out["caution"] = CAUTION
     return out
 
 
 def figures(res: ThresholdsResult) -> list[Drawn]:
-    """The critical discount factor of every firm under every scheme.
+    """The critical discount factor of every firm under every scheme; with the any-punishment part, the
+    equilibrium payoff set (:func:`sim.evidence.any_punishment.figure`).
 
     Parameters
     ----------
@@ -177,9 +185,13 @@ def figures(res: ThresholdsResult) -> list[Drawn]:
     ax.set_xlabel("critical discount factor")
     ax.legend(title="firm", loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
     fig.tight_layout()
-    return [Drawn("thresholds", fig, "Critical discount factor of each firm under each punishment scheme: collusion "
-                                     "is sustainable at a discount factor at or above every firm's bar; a missing "
-                                     "bar means the firm cannot be held below one.")] + part_figures(res)
+    out = [Drawn("thresholds", fig, "Critical discount factor of each firm under each punishment scheme: collusion "
+                                    "is sustainable at a discount factor at or above every firm's bar; a missing "
+                                    "bar means the firm cannot be held below one.")]
+    if res.any_punishment is not None:
+        drawn = anyp.figure(res.any_punishment)
+        out += [drawn] if drawn is not None else []
+    return out + part_figures(res)
 
 
 RENDERER = Renderer(console=console, as_json=as_json, figures=figures)

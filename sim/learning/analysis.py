@@ -11,11 +11,13 @@ from __future__ import annotations
 
 import copy
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 
 from sim.core.records import Record, to_plain
 from sim.learning.results import LearningResult
+from sim.learning.saved import save_learners
 from sim.learning.session import learn
 
 __all__ = ["LearnResult", "LearnSpec", "learn_analysis", "learn_result"]
@@ -34,11 +36,14 @@ class LearnSpec:
     settings : dict
         Keyword arguments of :func:`sim.learning.session.learn` (``workers`` is replaced by the threads the cell
         may use).
+    start : sim.learning.saved.SavedLearners, optional
+        Saved sessions to continue (``learning.continue_from``), already checked against the line-up.
     """
 
     market: object
     learner: object
     settings: dict
+    start: object = None
 
 
 @dataclass(frozen=True)
@@ -122,8 +127,9 @@ def learn_result(res: LearningResult, market) -> LearnResult:
     return LearnResult.from_dict(to_plain(doc))
 
 
-def learn_analysis(spec: LearnSpec, *, cell: int = 0, workers: int = 1, progress: bool = False) -> LearnResult:
-    """Run the learning sessions of a specification.
+def learn_analysis(spec: LearnSpec, *, cell: int = 0, workers: int = 1, progress: bool = False,
+                   save_to=None) -> LearnResult:
+    """Run the learning sessions of a specification (and save the learners at the end, when asked).
 
     Parameters
     ----------
@@ -134,12 +140,20 @@ def learn_analysis(spec: LearnSpec, *, cell: int = 0, workers: int = 1, progress
         Sessions run at once (the numbers do not depend on it).
     progress : bool
         Show a progress bar over sessions.
+    save_to : str or Path, optional
+        Write every session's state at the end of learning to this file (:func:`sim.learning.saved.save_learners`;
+        missing folders are made).
 
     Returns
     -------
     LearnResult
+        The same whether or not the learners are saved, and whether the sessions are new or continued.
     """
     s = dict(spec.settings)
     s["workers"] = max(1, int(workers))
-    res = learn(spec.market, copy.deepcopy(spec.learner), progress=progress, cell=cell, **s)
+    res = learn(spec.market, copy.deepcopy(spec.learner), progress=progress, cell=cell, start=spec.start,
+                keep=save_to is not None, **s)
+    if save_to is not None:
+        Path(save_to).parent.mkdir(parents=True, exist_ok=True)
+        save_learners(save_to, res.saved)
     return learn_result(res, spec.market)

@@ -78,6 +78,9 @@ class SeatInputs(NamedTuple):
         The firm of each seat (``arange(n)``: one seat per firm).
     alpha, beta, delta : ndarray of float64, shape (n,)
         Learning rate, exploration decay and discount factor of each learner (0 for automata).
+    share : ndarray of float64, shape (n,)
+        The update rule of each learner: the probability that each action it did not play is updated from its
+        counterfactual profit in a period (0 asynchronous, 1 synchronous, in between mixed; 0 for automata).
     """
 
     kind: np.ndarray
@@ -91,6 +94,7 @@ class SeatInputs(NamedTuple):
     alpha: np.ndarray
     beta: np.ndarray
     delta: np.ndarray
+    share: np.ndarray
 
 
 class StageInputs(NamedTuple):
@@ -164,12 +168,17 @@ class SessionState(NamedTuple):
         Automaton states (entries of learner seats unused).
     rng : ndarray of uint64, shape (4,)
         The session's xoshiro256** state.
+    clock : ndarray of int64, shape (2,)
+        Periods played so far and, of them, the last consecutive ones without a change of any greedy action: read
+        when the session starts (zeros for a new session; a saved session's counters to continue it) and written
+        when it stops.
     """
 
     Q: np.ndarray
     greedy: np.ndarray
     z: np.ndarray
     rng: np.ndarray
+    clock: np.ndarray
 
 
 class Play(NamedTuple):

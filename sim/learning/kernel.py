@@ -23,10 +23,12 @@ Layout
   ``values[i, a]`` is the value of action ``a`` (what the automata's signals look at), ``mprice[prof]``
   the public market price of a profile.
 
-One period of the protocol played here (simultaneous moves, epsilon-greedy Q-learning updating the action played)
+One period of the protocol played here (simultaneous moves, epsilon-greedy Q-learning)
 is three steps, marked in :func:`run_session`: every seat chooses (the exploration probability is
 :func:`_exploration`), every learner updates the value of the action it played (the update rule is
-:func:`_q_learning`; the greedy action is kept up to date) and every automaton moves on its signal. Another protocol
+:func:`_q_learning`; the greedy action is kept up to date) -- and, with a synchronous or mixed update rule
+(``seats.share`` above 0), the values of the actions it did not play, from their counterfactual profits
+(:func:`_update_counterfactual`) -- and every automaton moves on its signal. Another protocol
 replaces a step, not the loop. The rules of a step are inlined functions of numbers (``inline="always"``, which
 changes no arithmetic); the arrays stay in the loop itself, taken out of their groups once before it, because an
 inlined function that takes an array takes and releases a reference to it at every call, which costs more here
@@ -36,7 +38,9 @@ Random draws
 ------------
 Everything draws from the session's one xoshiro256** stream, in this fixed order. Learning, per
 period: seats in order, a learner's exploration draws (one uniform, and a second one when it explores)
-or an automaton's cheat draw (:func:`strategies.step.choose_level`); then, after the learners'
+or an automaton's cheat draw (:func:`strategies.step.choose_level`); then, learners in seat order, a
+learner with the mixed update rule draws one uniform for each action it did not play, in increasing
+order (the asynchronous and synchronous rules draw nothing); then, after the learners'
 updates, automaton seats in order, each its transition draw (:func:`strategies.step.next_state`).
 Automata seated with learners see no perception errors, so :func:`strategies.step.bad_signal` never
 draws here. The engine's functions draw only when a probability is strictly between 0 and 1, so a
@@ -121,6 +125,37 @@ def _takes_over(new, qg, a, g):
 
 
 @njit(cache=True, nogil=True)
+def _update_counterfactual(Q, greedy, li, si, s, prof, a, m, place_i, mod_i, M, S, K, payoff_i, alpha, delta, share,
+                           rng, cont, upd):
+    """The synchronous or mixed update of one learner's row ``Q[li, si]`` (Asker, Fershtman and Pakes, 2022).
+
+    Action ``b`` is updated, as if it had been played against the rivals' actual actions: with the profit of the
+    profile ``prof + (b - a) place_i`` and the largest value of the state that profile leads to. The action played
+    ``a`` always is; every other one with probability ``share`` (one uniform draw per action, in increasing order,
+    only when ``0 < share < 1``). Every continuation is read before any value of the row changes. ``cont`` and
+    ``upd`` are scratch arrays of at least ``m`` entries. Returns whether the greedy action of the row changed.
+    """
+    for b in range(m):
+        upd[b] = b == a or share >= 1.0 or next_double(rng) < share
+        if upd[b]:
+            sb = _seen(_next_history(prof + (b - a) * place_i, s, M, S, K), mod_i, S)
+            cont[b] = Q[li, sb, greedy[li, sb]]
+    for b in range(m):
+        if upd[b]:
+            Q[li, si, b] = _q_learning(Q[li, si, b], payoff_i[prof + (b - a) * place_i], cont[b], alpha, delta)
+    best = 0
+    bv = Q[li, si, 0]
+    for b in range(1, m):
+        if Q[li, si, b] > bv:
+            bv = Q[li, si, b]
+            best = b
+    if best != greedy[li, si]:
+        greedy[li, si] = best
+        return True
+    return False
+
+
+@njit(cache=True, nogil=True)
 def run_session(seats, stage, automata, session, s, convergence, max_periods):
     """Run one session from history state ``s`` until convergence or the cap.
 
@@ -131,12 +166,15 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
     automata : AutomatonInputs
     session : SessionState
         Modified in place; ``session.greedy`` must hold the first argmax of every row of ``session.Q`` on entry.
+        The session goes on from ``session.clock`` (periods played, the last of them without a change), which
+        receives the counters at the end: a session stopped at the cap and run again with a higher cap plays the
+        periods an uninterrupted one would, and one that had converged under this ``convergence`` plays none.
     s : int
         History state at the start (:func:`initial_state`).
     convergence : int
         Stop once no learner's greedy strategy has changed for this many consecutive periods.
     max_periods : int
-        Stop after this many periods in any case.
+        Stop once this many periods have been played in all (counted from the session's start) in any case.
 
     Returns
     -------
@@ -147,16 +185,21 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
     s : int
         History state after the last period.
     """
-    kind, lidx, radix, place, mod, _zn, _zplace, owner, alpha, beta, delta = seats
+    kind, lidx, radix, place, mod, _zn, _zplace, owner, alpha, beta, delta, share = seats
     M, S, K, payoff, _actions, _prices, mprice, values, quantity_setting = stage
     a_states, a_probs, a_firms, a_levels, act_of_level = automata
-    Q, greedy, z, rng = session
+    Q, greedy, z, rng, clock = session
     n = radix.size
     act = np.empty(n, np.int64)
     vals = np.empty(n, np.float64)
+    cont = np.empty(radix.max(), np.float64)
+    upd = np.empty(radix.max(), np.bool_)
     has_automata = (kind == AUTOMATON).any()
-    t = 0
-    stable = 0
+    t = clock[0]
+    stable = clock[1]
+    if stable >= convergence:
+        # a continued session that had converged under this rule: an uninterrupted one would have stopped there
+        return STATUS_CONVERGED, t, s
     while t < max_periods:
         # 1. every seat chooses: a learner explores with probability exp(-beta t), else plays its greedy action
         tf = np.float64(t)
@@ -183,6 +226,12 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
                 continue
             li, a = lidx[i], act[i]
             si, sn = _seen(s, mod[i], S), _seen(s_new, mod[i], S)
+            if share[i] > 0.0:
+                # synchronous or mixed: the other actions too, from what they would have earned
+                if _update_counterfactual(Q, greedy, li, si, s, prof, a, radix[i], place[i], mod[i], M, S, K,
+                                          payoff[:, i], alpha[i], delta[i], share[i], rng, cont, upd):
+                    changed = True
+                continue
             old = Q[li, si, a]
             new = _q_learning(old, payoff[prof, i], Q[li, sn, greedy[li, sn]], alpha[i], delta[i])
             Q[li, si, a] = new
@@ -218,5 +267,7 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
         else:
             stable += 1
             if stable >= convergence:
+                clock[0], clock[1] = t, stable
                 return STATUS_CONVERGED, t, s
+    clock[0], clock[1] = t, stable
     return STATUS_CAP, t, s

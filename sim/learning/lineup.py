@@ -26,7 +26,7 @@ from strategies import AlwaysCompete, Automaton
 from strategies import compile_lineup as compile_automata
 from strategies.qlearning import QLearner
 
-__all__ = ["Lineup", "compile_lineup"]
+__all__ = ["Lineup", "available_memory", "compile_lineup"]
 
 #: share of the available memory a run may take for its Q-matrices
 _MEMORY_SHARE = 0.8
@@ -145,7 +145,7 @@ class Lineup:
         sim.learning.inputs.SessionState
         """
         g = self.initial_greedy() if greedy is None else greedy.copy()
-        return SessionState(self.q0.copy(), g, self.z0.copy(), rng)
+        return SessionState(self.q0.copy(), g, self.z0.copy(), rng, np.zeros(2, dtype=np.int64))
 
     def decode(self, prof) -> np.ndarray:
         """Action indices of profile numbers.
@@ -201,8 +201,13 @@ class Lineup:
         return int(s) + self.stage.S * int(sum(int(z[i]) * int(zplace[i]) for i in range(self.n_seats)))
 
 
-def _available_memory() -> int:
-    """Bytes of memory available to this process (Linux ``MemAvailable``, else physical memory)."""
+def available_memory() -> int:
+    """Bytes of memory available to this process (Linux ``MemAvailable``, else physical memory).
+
+    Returns
+    -------
+    int
+    """
     try:
         with open("/proc/meminfo") as f:
             for line in f:
@@ -233,7 +238,7 @@ def _check_memory(radix: list[int], ks: list[int], n_workers: int, prefix: str, 
     per_session = n * n_states * m_max * 8 + n * n_states * 8  # Q-values and greedy actions
     tables = 4 * M * n * 8
     need = per_session * (n_workers + 1) + tables
-    avail = _available_memory() if available is None else available
+    avail = available_memory() if available is None else available
     states = str(n_states) if n_states < 10**9 else f"{float(n_states):.3g}"
     if need > _MEMORY_SHARE * avail:
         raise InputError(
@@ -364,7 +369,8 @@ def _seat_inputs(compiled: tuple, radix: list, zn: np.ndarray) -> SeatInputs:
                       owner=np.arange(n, dtype=np.int64),
                       alpha=np.array([c.alpha if c else 0.0 for c in compiled]),
                       beta=np.array([c.beta if c else 0.0 for c in compiled]),
-                      delta=np.array([c.delta if c else 0.0 for c in compiled]))
+                      delta=np.array([c.delta if c else 0.0 for c in compiled]),
+                      share=np.array([c.share if c else 0.0 for c in compiled]))
 
 
 def _stage_inputs(ms, grids: tuple, seats: SeatInputs, M: int, K: int, automata: bool, prefix: str) -> StageInputs:

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -220,6 +221,8 @@ class LearningResult:
         when not defined).
     elapsed : float
         Wall-clock seconds.
+    saved : sim.learning.saved.SavedLearners or None
+        Every session's state at the end of learning, when asked for (``learn(..., keep=True)``).
     """
 
     lineup: Lineup
@@ -246,6 +249,7 @@ class LearningResult:
     returned: np.ndarray
     return_periods: np.ndarray
     elapsed: float = 0.0
+    saved: Any = None
     _summary: dict = field(default_factory=dict, repr=False)
 
     @property

@@ -63,8 +63,8 @@ from sim.core.errors import InputError
 from sim.core.parallel import usable_cores
 from sim.core.params import Real
 from sim.core.rng import stream_states
-from sim.learning.inputs import STATUS_CONVERGED, DeviationInputs, LimitOutputs
-from sim.learning.lineup import Lineup, compile_lineup
+from sim.learning.inputs import STATUS_CONVERGED, DeviationInputs, LimitOutputs, SessionState
+from sim.learning.lineup import Lineup, available_memory, compile_lineup
 from sim.learning.results import (
     CYCLE_STORE,
     IR_POINTS,
@@ -74,6 +74,7 @@ from sim.learning.results import (
     deviator_discount,
     value_horizon,
 )
+from sim.learning.saved import SavedLearners, check_start, describe_layout
 from sim.learning.tables import RUN_CONSTRAINTS
 from sim.learning.twin import reference_session as _reference
 
@@ -88,7 +89,8 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
           max_periods: int = 1_000_000_000, deviator: int = 0, deviation="best_response",
           response_periods: int = 15, near: float = 0.1, workers: int | None = None,
           progress: bool | None = None, cell: int = 0, confidence: float = 0.95,
-          limit_periods: int = LIMIT_PERIODS) -> LearningResult:
+          limit_periods: int = LIMIT_PERIODS, start: SavedLearners | None = None,
+          keep: bool = False) -> LearningResult:
     """Run independent learning sessions and analyse what the learners converged to.
 
     Parameters
@@ -130,6 +132,13 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     limit_periods : int
         Only for line-ups with automata that act at random: periods of greedy play averaged by the
         limit estimate (see the module notes).
+    start : sim.learning.saved.SavedLearners, optional
+        Continue these saved sessions (one per session, on the same market and grids; checked by
+        :func:`sim.learning.saved.check_start`) instead of starting new ones: each goes on from its saved state,
+        random generator and counters, so ``max_periods`` counts from the saved session's start.
+    keep : bool
+        Keep every session's state at the end of learning (:attr:`LearningResult.saved`, to be written by
+        :func:`sim.learning.saved.save_learners`).
 
     Returns
     -------
@@ -147,7 +156,21 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         raise InputError("deviator", f"must be a firm of the market (0 to {lineup.n_seats - 1}), got {run['deviator']}")
     dev_index = _deviation_index(lineup, run["deviator"], deviation)
     settings = {**run, "workers": n_workers, "deviation": deviation}
-    return _run_sessions(lineup, settings, dev_index, progress)
+    market_doc = market.to_dict() if hasattr(market, "to_dict") else None
+    if start is not None:
+        check_start(start, lineup, market_doc, run["sessions"])
+    if keep:
+        _check_kept_memory(lineup, run["sessions"])
+    return _run_sessions(lineup, settings, dev_index, progress, start, keep, market_doc)
+
+
+def _check_kept_memory(lineup: Lineup, sessions: int) -> None:
+    """Refuse to keep every session's Q-values when they cannot all be held."""
+    need = sessions * (lineup.q0.nbytes + lineup.q0[..., 0].nbytes)
+    avail = available_memory()
+    if need > 0.8 * avail:
+        raise InputError("learning.save_to", f"saving {sessions} sessions needs {need / 1e9:.3g} GB, more than the "
+                                             f"{0.8 * avail / 1e9:.3g} GB that may be used; run fewer sessions")
 
 
 def _deviation_index(lineup: Lineup, seat: int, deviation) -> int:
@@ -172,6 +195,21 @@ class _Buffers:
         self.ir_p, self.ir_pi = np.zeros((n, T2, f)), np.zeros((n, T2, f))
         self.cf_p, self.cf_pi = np.zeros((n, T2, f)), np.zeros((n, T2, f))
         self.info = np.zeros((n, 8))
+        self.saved = None
+
+    def keep(self, lineup: Lineup) -> None:
+        """Make room for every session's state at the end of learning."""
+        n = self.status.size
+        self.saved = {"Q": np.zeros((n, *lineup.q0.shape)), "greedy": np.zeros((n, *lineup.q0.shape[:2]), np.int64),
+                      "history": np.zeros(n, np.int64), "z": np.zeros((n, lineup.n_seats), np.int64),
+                      "rng": np.zeros((n, 4), np.uint64), "clock": np.zeros((n, 2), np.int64)}
+
+    def store(self, j: int, session: SessionState, s: int) -> None:
+        """Session ``j``'s state at the end of learning (when kept)."""
+        if self.saved is not None:
+            sv = self.saved
+            sv["Q"][j], sv["greedy"][j], sv["history"][j] = session.Q, session.greedy, s
+            sv["z"][j], sv["rng"][j], sv["clock"][j] = session.z, session.rng, session.clock
 
     def outputs(self, j: int) -> LimitOutputs:
         """Session ``j``'s rows, as the limit kernels write them."""
@@ -180,15 +218,23 @@ class _Buffers:
 
 
 def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings: dict, dev: DeviationInputs,
-             buf: _Buffers) -> None:
-    """Session ``j``: learning, then the limit analysis (exact, or the estimate that continues the stream)."""
-    rng = state.copy()
-    session = lineup.session_state(rng, g0)
-    s = K.initial_state(rng, lineup.seats, lineup.stage)
+             buf: _Buffers, start: SavedLearners | None = None) -> None:
+    """Session ``j``: learning (new, or continuing saved session ``j``), then the limit analysis (exact, or the
+    estimate that continues the stream)."""
+    if start is None:
+        rng = state.copy()
+        session = lineup.session_state(rng, g0)
+        s = K.initial_state(rng, lineup.seats, lineup.stage)
+    else:
+        rng = start.rng[j].copy()
+        session = SessionState(start.Q[j].copy(), start.greedy[j].copy(), start.z[j].copy(), rng,
+                               start.clock[j].copy())
+        s = int(start.history[j])
     st, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, session, s, settings["convergence"],
                              settings["max_periods"])
     buf.status[j] = st
     buf.periods[j] = t
+    buf.store(j, session, s)
     x = lineup.system_state(s, session.z)
     if lineup.limit_exact:
         L.analyse_limit(x, lineup.play(session.greedy, t), dev, buf.outputs(j))
@@ -224,22 +270,30 @@ def _each(n: int, workers: int, one, progress: bool | None) -> None:
             bar.close()
 
 
-def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool | None) -> LearningResult:
+def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool | None,
+                  start: SavedLearners | None = None, keep: bool = False, market: dict | None = None) -> LearningResult:
     """Driver: per-session streams, buffers, a thread pool over sessions, a progress bar."""
     n = settings["sessions"]
     states = stream_states(settings["seed"], (settings["cell"],), 0, n)
     buf = _Buffers(n, lineup.n_seats, settings["response_periods"] + 2)
+    if keep:
+        buf.keep(lineup)
     g0 = lineup.initial_greedy()
     seat = settings["deviator"]
     d_dev = deviator_discount(lineup, seat)
     dev = DeviationInputs(seat, dev_index, d_dev, IR_POINTS, LIMIT_BURN_IN, settings["limit_periods"],
                           value_horizon(d_dev))
     t0 = time.perf_counter()
-    _each(n, settings["workers"], lambda j: _session(j, lineup, states[j], g0, settings, dev, buf), progress)
-    return _assemble(lineup, settings, buf, time.perf_counter() - t0)
+    _each(n, settings["workers"], lambda j: _session(j, lineup, states[j], g0, settings, dev, buf, start), progress)
+    saved = None
+    if keep:
+        header = {"market": market, "seats": describe_layout(lineup), "sessions": n, "seed": settings["seed"],
+                  "cell": settings["cell"]}
+        saved = SavedLearners(**buf.saved, status=buf.status.copy(), header=header)
+    return _assemble(lineup, settings, buf, time.perf_counter() - t0, saved)
 
 
-def _assemble(lineup: Lineup, settings: dict, buf: _Buffers, elapsed: float) -> LearningResult:
+def _assemble(lineup: Lineup, settings: dict, buf: _Buffers, elapsed: float, saved=None) -> LearningResult:
     """The result of a run from its filled buffers: cycles decoded, profit gains, nearness to the benchmarks."""
     lu, info = lineup, buf.info
     lam = info[:, 1].astype(np.int64)
@@ -257,7 +311,7 @@ def _assemble(lineup: Lineup, settings: dict, buf: _Buffers, elapsed: float) -> 
         limit_prices=buf.lim_p, limit_profits=buf.lim_pi, profit_gain=gain, firm_profit_gain=firm_gain,
         near_collusive=near_c, near_nash=near_n, ir_prices=buf.ir_p, ir_profits=buf.ir_pi, cf_prices=buf.cf_p,
         cf_profits=buf.cf_pi, deviation_action=info[:, 7].astype(np.int64), deviation_gain=info[:, 3],
-        deviation_pays=info[:, 4], returned=info[:, 5], return_periods=info[:, 6], elapsed=elapsed,
+        deviation_pays=info[:, 4], returned=info[:, 5], return_periods=info[:, 6], elapsed=elapsed, saved=saved,
     )
 
 

@@ -5,12 +5,15 @@ library use it).
 
 from __future__ import annotations
 
+from pathlib import PurePath
+
 from sim.core.errors import InputError
 from sim.core.parallel import usable_cores
 from sim.core.params import Integer, Real, optional
 from sim.core.tables import refuse_unknown
 from sim.learning.lineup import compile_lineup
 from sim.learning.results import LIMIT_PERIODS
+from sim.learning.saved import check_start, load_learners
 from sim.models.market import market_from_dict
 from strategies import strategy_from_dict
 from strategies.qlearning import QLearner
@@ -42,9 +45,9 @@ RUN_CONSTRAINTS = {
     "confidence": Real(0, 1, closed="neither"),
 }
 #: parameters of a Q-learner in [learning] and in a ``strategy = "qlearning"`` entry
-LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init")
+LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init", "update", "counterfactual_share")
 #: keys of the tables a learning experiment reads, in the order error messages list them
-LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "near", "limit_periods")
+LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "near", "limit_periods", "save_to", "continue_from")
 IMPULSE_KEYS = ("firm", "action", "periods")
 RUN_KEYS = ("sessions", "seed", "workers", "confidence")
 EXPERIMENT_KEYS = ("name", "kind", "description")
@@ -143,8 +146,10 @@ def learning_from_dict(doc: dict, overrides: dict | None = None) -> dict:
     -------
     dict
         ``market`` (:class:`sim.Market`), ``learner`` (a QLearner for every seat, or one strategy per
-        seat) and ``settings`` (keyword arguments of :func:`sim.learning.session.learn`; ``deviator`` counted
-        from 0).
+        seat), ``settings`` (keyword arguments of :func:`sim.learning.session.learn`; ``deviator`` counted
+        from 0), ``save_to`` (``learning.save_to``: where to save the learners at the end, or None) and ``start``
+        (the :class:`sim.learning.saved.SavedLearners` of ``learning.continue_from``, read and checked against
+        the line-up, or None).
 
     Raises
     ------
@@ -231,5 +236,25 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     settings["deviation"] = _impulse_action(it)
     # the line-up and its memory, checked before any work (the run repeats this, cheaply)
     workers = settings["workers"] or usable_cores()
-    compile_lineup(market, learner, workers=min(workers, settings["sessions"]), random_automata="estimate")
-    return {"market": market, "learner": learner, "settings": settings}
+    lineup = compile_lineup(market, learner, workers=min(workers, settings["sessions"]), random_automata="estimate")
+    save_to, start = _file_name(lt, "save_to"), None
+    continue_from = _file_name(lt, "continue_from")
+    if continue_from is not None:
+        start = load_learners(continue_from, "learning.continue_from")
+        check_start(start, lineup, market.to_dict(), settings["sessions"], "learning.continue_from")
+    return {"market": market, "learner": learner, "settings": settings, "save_to": save_to, "start": start}
+
+
+def _file_name(tab: dict, key: str) -> str | None:
+    """``learning.save_to`` or ``learning.continue_from``: a relative path (to the current folder, or to the run
+    folder for ``save_to`` in a run), without ``..``."""
+    value = tab.get(key)
+    if value is None:
+        return None
+    if not isinstance(value, str) or not value.strip():
+        raise InputError(f"learning.{key}", f"must be the name of a file, got {value!r}")
+    p = PurePath(value)
+    if p.is_absolute() or ".." in p.parts:
+        raise InputError(f"learning.{key}", f"must be a relative path that stays inside the current (or run) folder, "
+                                            f"got {value!r}")
+    return value

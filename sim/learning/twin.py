@@ -148,6 +148,7 @@ class _Setup:
         self.alpha = [float(x) for x in seats.alpha]
         self.beta = [float(x) for x in seats.beta]
         self.delta = [float(x) for x in seats.delta]
+        self.share = [float(x) for x in seats.share]
         self.place = [int(p) for p in seats.place]
         self.M = int(stage.M)
         self.profit_table = stage.payoff.tolist()
@@ -211,20 +212,41 @@ def _choose(st, Q, history, z, t, rng):
     return tuple(profile)
 
 
-def _update(st, Q, states, history, profile):
+def _update(st, Q, states, history, profile, rng):
     """Every learner updates the value of the action it played in the state it was in, with the best value of
-    the state it moved to; returns whether a greedy action changed."""
+    the state it moved to (and, by its update rule, the values of other actions: :func:`_counterfactual`);
+    returns whether a greedy action changed."""
     profits = st.profits(profile)
     changed = False
     for i in Q:
         row = Q[i][states[i]]
         before = _argmax(row)
-        continuation = max(Q[i][tuple(history[: st.k[i]])])
-        a = profile[i]
-        row[a] = (1.0 - st.alpha[i]) * row[a] + st.alpha[i] * (profits[i] + st.delta[i] * continuation)
+        if st.share[i] > 0.0:
+            _counterfactual(st, Q[i], i, states[i], profile, rng)
+        else:
+            continuation = max(Q[i][tuple(history[: st.k[i]])])
+            a = profile[i]
+            row[a] = (1.0 - st.alpha[i]) * row[a] + st.alpha[i] * (profits[i] + st.delta[i] * continuation)
         if _argmax(row) != before:
             changed = True
     return changed
+
+
+def _counterfactual(st, Qi, i, state, profile, rng):
+    """The synchronous or mixed update of learner ``i`` in ``state`` (Asker, Fershtman and Pakes, 2022): every
+    action ``b`` chosen for an update -- the one played, and each other one with probability ``share`` (a draw
+    per action, in increasing order, only when the share is strictly between 0 and 1) -- gets the profit of the
+    profile in which ``i`` plays ``b`` and the rivals what they played, and the best value of the state that
+    profile would have led to; all continuations are read before the row changes."""
+    share, targets = st.share[i], {}
+    for b in range(st.m[i]):
+        if b == profile[i] or share >= 1.0 or rng.next_double() < share:
+            cf = tuple(b if j == i else x for j, x in enumerate(profile))
+            reached = (cf, *state[: st.k[i] - 1])  # the state seen after cf, had it been played
+            targets[b] = st.profits(cf)[i] + st.delta[i] * max(Qi[reached])
+    row = Qi[state]
+    for b, target in targets.items():
+        row[b] = (1.0 - st.alpha[i]) * row[b] + st.alpha[i] * target
 
 
 def _kernel_layout(st, lineup, Q):
@@ -275,7 +297,7 @@ def reference_session(lineup, rng_state, convergence, max_periods):
         states = {i: tuple(history[: st.k[i]]) for i in Q}
         profile = _choose(st, Q, history, z, t, rng)
         history = [profile, *history[: st.K - 1]]
-        changed = _update(st, Q, states, history, profile)
+        changed = _update(st, Q, states, history, profile, rng)
         # automata move after the learners' updates, seats in order
         z = st.move_automata(z, profile, rng)
         t += 1

@@ -61,10 +61,14 @@ class DemandSpec:
     price_reaches_zero : bool
         Whether inverse demand reaches a zero price at a finite quantity and stays there (linear
         demands): a punishment can then flood the market beyond that quantity.
+    linear_homogeneous : bool
+        Whether the good is homogeneous with a linear inverse demand, so that the closed forms of linear
+        Cournot apply (partial cartels produce with their cheapest members).
     """
 
     stage_codes: dict[str, int] = {}
     price_reaches_zero: bool = False
+    linear_homogeneous: bool = False
 
     def __init__(self, demand_type: type, scalars, vector):
         self.demand_type = demand_type

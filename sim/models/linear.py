@@ -104,6 +104,7 @@ class LinearDemandSpec(DemandSpec):
 
     stage_codes = {"cournot": CODE_LINEAR_COURNOT, "bertrand": CODE_LINEAR_BERTRAND}
     price_reaches_zero = True
+    linear_homogeneous = True
 
     def check_market(self, model, cost, prefix):
         """Every cost below the choke price.

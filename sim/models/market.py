@@ -365,7 +365,7 @@ class Market(Parametrized):
             raise InputError(
                 f"{prefix}.capacity",
                 "capacities are supported with quantity (cournot) competition only; price competition "
-                "with capacity constraints is out of scope",
+                "with capacity constraints is the market model 'capacity' (model = 'capacity')",
             )
         cap = p["capacity"] if p["capacity"] is not None else np.full(n, np.inf)
         dspec.check_market(model, cost, prefix)
@@ -534,6 +534,10 @@ def market_from_dict(table: dict, prefix: str = "market") -> Market:
     """
     if not isinstance(table, dict):
         raise InputError(prefix, f"must be a table, got {table!r}")
+    if table.get("model") == "capacity":
+        raise InputError(f"{prefix}.model", "price competition with capacity constraints (model = 'capacity') is "
+                                            "analysed by the experiment kind 'capacity' ([experiment] kind = "
+                                            "'capacity'; supergame thresholds FILE)")
     demand_name = table.get("demand", DEFAULT_DEMAND)
     if not isinstance(demand_name, str) or demand_name not in DEMAND_TYPES:
         allowed = ", ".join(map(repr, DEMAND_TYPES))

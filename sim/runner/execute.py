@@ -411,7 +411,8 @@ def _compute(plan: _Plan, workers, progress, command, plugin_info: list) -> tupl
         bar = Progress(exp.n_cells, exp.n_cells - len(plan.todo), exp.name, show and not single)
         recorder = _Recorder(exp, store, attempt, bar)
         payloads = ({"kind": exp.kind, "index": i, "doc": exp.cell(i).doc, "threads": threads,
-                     "progress": bool(show and single), "plugins": plugin_info} for i in plan.todo)
+                     "progress": bool(show and single), "plugins": plugin_info, "folder": str(plan.folder)}
+                    for i in plan.todo)
         try:
             execute(payloads, recorder, plan.backend, plugin_info)
         except KeyboardInterrupt:

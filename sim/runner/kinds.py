@@ -67,6 +67,7 @@ LAZY_KINDS: dict[str, str] = {
     "learn": "sim.runner.analyses.learn:KIND",
     "tournament": "sim.runner.analyses.tournament:KIND",
     "assess": "sim.runner.analyses.assess:KIND",
+    "capacity": "sim.runner.analyses.capacity:KIND",
 }
 _KINDS: dict[str, Kind] = {}
 #: entry-point group of installed plugins (modules that register strategies or kinds on import)
@@ -86,11 +87,15 @@ class CellContext:
         Threads the cell may use (results must not depend on it).
     progress : bool
         Whether the cell may show its own progress bar (only for a single in-process cell).
+    folder : str or None
+        The run folder, for a cell that writes files of its own into it (covered by the run's manifest); None
+        when the cell runs in memory.
     """
 
     index: int = 0
     threads: int = 1
     progress: bool = False
+    folder: str | None = None
 
     @property
     def key(self) -> tuple:

@@ -95,7 +95,8 @@ def _ensure_plugins(plugins) -> None:
 def run_payload(payload: dict) -> dict:
     """Validate and run one cell; never raises for a failure of the cell itself.
 
-    ``payload``: ``kind``, ``index``, ``doc``, ``threads``, ``progress``, ``plugins``. Returns the
+    ``payload``: ``kind``, ``index``, ``doc``, ``threads``, ``progress``, ``plugins`` (and ``folder``, the run
+    folder, optional). Returns the
     fields of a stored row: ``cell``, ``status``, ``metrics``, ``arrays``, ``error``, ``detail``,
     ``started``, ``finished``, ``seconds`` (the kind's own compute), ``worker``.
     """
@@ -108,7 +109,7 @@ def run_payload(payload: dict) -> dict:
         kind = get_kind(payload["kind"])
         cfg = kind.prepare(payload["doc"])
         ctx = CellContext(index=int(payload["index"]), threads=int(payload.get("threads", 1)),
-                          progress=bool(payload.get("progress", False)))
+                          progress=bool(payload.get("progress", False)), folder=payload.get("folder"))
         t0 = time.perf_counter()
         res = kind.run(cfg, ctx)
         out["seconds"] = time.perf_counter() - t0

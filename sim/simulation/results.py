@@ -30,6 +30,7 @@ from sim.core.stats import (
     mean_estimate,
     normal_quantile,
     ratio_estimate,
+    share_estimate,
     wilson_estimate,
 )
 from sim.core.text import CAUTION
@@ -347,10 +348,11 @@ def _market_metrics(raw, periods: np.ndarray, curves: tuple, pi_n, pi_c, p_n: fl
     spells, wars, breakdown = curves
     fb = ints[:, K.R_FIRST_BREAKDOWN]
     metrics = {}
-    metrics["collusive_share"] = ratio_estimate(ints[:, K.R_COLLUSIVE], periods, confidence)
-    metrics["war_share"] = ratio_estimate(ints[:, K.R_WAR_PERIODS], periods, confidence)
+    # shares of periods: intervals that stay in [0, 1] (sim.core.stats.share_estimate)
+    metrics["collusive_share"] = share_estimate(ints[:, K.R_COLLUSIVE], periods, confidence)
+    metrics["war_share"] = share_estimate(ints[:, K.R_WAR_PERIODS], periods, confidence)
     metrics["wars_per_replication"] = mean_estimate(ints[:, K.R_WARS], confidence)
-    metrics["war_frequency"] = ratio_estimate(ints[:, K.R_WARS], periods, confidence)
+    metrics["war_frequency"] = share_estimate(ints[:, K.R_WARS], periods, confidence)
     metrics["spell_length"] = spells.mean
     metrics["war_length"] = wars.mean
     metrics["first_breakdown"] = breakdown.mean

@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from sim.core.records import Record
+from sim.theory.any_punishment import AnyPunishmentResult, AnyPunishmentSpec, any_punishment_analysis
 from sim.theory.contact_section import ContactSection, contact_section
 from sim.theory.enforcement_section import EnforcementQuestion, EnforcementSection, enforcement_section
 from sim.theory.multimarket import ContactGame
@@ -43,6 +44,8 @@ class ThresholdsSpec:
         The demand shock of the trigger-price equilibrium (None: perfect monitoring, no such equilibrium).
     sigma : float
         Its standard deviation.
+    any_punishment : AnyPunishmentSpec or None
+        The lowest threshold under any punishment, asked for by an ``[any_punishment]`` table (None: not asked).
     enforcement : EnforcementQuestion or None
         Detection, fines and leniency (``[enforcement]``).
     demand_states : StatesQuestion or None
@@ -58,6 +61,7 @@ class ThresholdsSpec:
     deltas: tuple
     noise: str | None = None
     sigma: float = 0.0
+    any_punishment: AnyPunishmentSpec | None = None
     enforcement: EnforcementQuestion | None = None
     demand_states: StatesQuestion | None = None
     contact: ContactGame | None = None
@@ -81,6 +85,9 @@ class ThresholdsResult(Record):
     deltas : list of float
     trigger_price : list of dict or None
         One trigger-price equilibrium per discount factor (:meth:`sim.TriggerPriceScheme.to_dict`).
+    any_punishment : AnyPunishmentResult or None
+        The lowest critical discount factor under any punishment on an action grid, with the named schemes on
+        the same grid (None when the experiment has no ``[any_punishment]`` table).
     enforcement : EnforcementSection or None
         Collusion under detection, fines and leniency (:mod:`sim.theory.enforcement_section`).
     demand_states : DemandStatesSection or None
@@ -95,6 +102,7 @@ class ThresholdsResult(Record):
     punishments: list
     deltas: list
     trigger_price: list | None = None
+    any_punishment: AnyPunishmentResult | None = None
     enforcement: EnforcementSection | None = None
     demand_states: DemandStatesSection | None = None
     contact: ContactSection | None = None
@@ -140,6 +148,9 @@ def thresholds_analysis(spec: ThresholdsSpec) -> ThresholdsResult:
     products = {"cost": [float(c) for c in ms.cost], "capacity": caps, "owner": (ms.owner + 1).tolist(),
                 "quantity_setting": bool(ms.quantity_setting), "n_firms": int(ms.n_firms)}
     extra = {}
+    if spec.any_punishment is not None:
+        extra["any_punishment"] = any_punishment_analysis(spec.market, spec.any_punishment, spec.agreement,
+                                                          spec.actions)
     if spec.enforcement is not None:
         extra["enforcement"] = enforcement_section(spec.market, spec.enforcement, spec.deltas, spec.agreement,
                                                    spec.actions)

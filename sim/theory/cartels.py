@@ -356,19 +356,19 @@ def cartel_table(market, max_size: int | None = None, cartels=None, sharing: str
             raise InputError("market.owner", "partial cartels are computed for single-product firms")
         members, requested = _subsets(n, max_size, cartels)
         nash = ms.firm_profits(static_nash(ms).actions[None, :])[0]
-        if ms.demand.kind == "linear" and ms.quantity_setting:
+        if ms.demand.linear_homogeneous and ms.quantity_setting:
             if np.any(np.isfinite(ms.capacity)):
                 raise InputError("market.capacity", "partial cartels in Cournot competition are computed without "
                                                     "capacities; use the capacity-constrained price model")
             out = _linear_cournot(ms, members, sharing)
             notes.append("linear Cournot: the cartel produces with its cheapest members")
-        elif ms.demand.kind in ("differentiated", "logit"):
+        elif not ms.demand.homogeneous:
             if isinstance(market, MarketSpec):
                 raise InputError("market", "give the Market (not its spec) for differentiated products")
             out = _generic(market, ms, members)
         else:
-            raise InputError("market.demand", f"partial cartels are available for linear Cournot, differentiated and "
-                                              f"logit demand, and capacity-constrained price competition; not "
+            raise InputError("market.demand", f"partial cartels are available for linear Cournot, differentiated "
+                                              f"products and capacity-constrained price competition; not "
                                               f"{ms.demand.kind} {ms.model}")
         profits = _share(out["own"], members, nash, sharing)
         dev = np.where(members, np.maximum(out["deviation"], profits), np.nan)

@@ -317,9 +317,14 @@ def prepare_tournament(market, entrants, monitoring=None, *, seats: int | None =
 
     Parameters
     ----------
-    market, entrants, monitoring, seats, periods, replications, delta, seed, horizon, continuation, agreement, \
-actions, seatings, score, confidence, bootstrap, sessions, convergence, max_periods, limit_periods, key :
+    market, entrants, monitoring, seats, periods, replications, delta, seed, horizon, continuation : object
         As in :func:`sim.tournament.roundrobin.tournament`.
+    agreement, actions, seatings, score, confidence, bootstrap, sessions, convergence : object
+        As in :func:`sim.tournament.roundrobin.tournament`.
+    max_periods, limit_periods : int
+        As in :func:`sim.tournament.roundrobin.tournament`.
+    key : tuple of int
+        The cell's stream key (appended to the seed's entropy).
 
     Returns
     -------

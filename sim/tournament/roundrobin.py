@@ -61,7 +61,7 @@ from tqdm import tqdm
 
 import sim.simulation.kernel as K
 from sim.core.parallel import check_threads
-from sim.core.stats import Estimate, kaplan_meier, mean_estimate, ratio_estimate
+from sim.core.stats import Estimate, kaplan_meier, mean_estimate, ratio_estimate, share_estimate
 from sim.learning.results import CYCLE_STORE, LIMIT_PERIODS
 from sim.learning.session import learn
 from sim.simulation.engine import run_game
@@ -167,7 +167,7 @@ def _estimates(plan: TournamentPlan, ps, disc, per, coll, z_conf: float):
             gain.append(e.affine(-float(plan.nash[s]) / gap, 1.0 / gap))
         else:
             gain.append(Estimate(math.nan, math.nan, math.nan, math.nan, 0, "ratio", "undefined"))
-    cs = ratio_estimate(coll, per, z_conf) if coll is not None else None
+    cs = share_estimate(coll, per, z_conf) if coll is not None else None
     return profit, dprof, gain, cs
 
 

@@ -66,7 +66,7 @@ def test_json_paths_and_plots(small, tmp_path, capsys):
     assert doc["baseline"]["trigger_price"]["war_length"] == 2
     m = doc["metrics"]["collusive_share"]
     assert m["low"] <= m["value"] <= m["high"]
-    assert sorted(p.name for p in figs.iterdir()) == ["collusive_share.png", "price_path.png", "spell_survival.png"]
+    assert sorted(p.name for p in figs.iterdir()) == ["collusion-over-time.png", "price-path.png", "spell-survival.png"]
 
 
 def test_flags_without_a_file(capsys):

@@ -50,7 +50,8 @@ def problems_of(obj, where: str, skip_first: bool) -> list[str]:
     if params:
         listed = _named(sec.get("Parameters", "")) | (_named(sec.get("Attributes", "")) if inspect.isclass(obj)
                                                         else set())
-        missing = [p.name for p in params if p.name not in listed]
+        # a private field (a cache a dataclass carries) is not part of the public signature
+        missing = [p.name for p in params if p.name not in listed and not p.name.startswith("_")]
         if missing:
             out.append(f"{where}: Parameters does not name {', '.join(missing)}")
     returns_none = sig.return_annotation in (None, "None")

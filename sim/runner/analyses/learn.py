@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 from sim.core.errors import InputError
 from sim.learning.analysis import LearnResult, LearnSpec, learn_analysis
@@ -17,8 +18,31 @@ def _prepare_learn(doc: dict) -> dict:
         raise InputError("market", "missing: the [market] table describes the market")
     cfg = learning_from_dict(doc)  # the line-up is compiled there: its state space is checked before any work
     cfg["n_firms"] = cfg["market"].spec().n_firms
-    cfg["spec"] = LearnSpec(cfg["market"], cfg["learner"], cfg["settings"])
+    cfg["spec"] = LearnSpec(cfg["market"], cfg["learner"], cfg["settings"], cfg["start"])
     return cfg
+
+
+def saved_path(save_to: str | None, ctx: CellContext) -> Path | None:
+    """Where a cell saves its learners (``learning.save_to``): the path as given, or, in a run folder, that name
+    inside the folder with the cell's number before the extension (``learners.npz`` -> ``learners-cell1.npz``),
+    so that the run's manifest records its SHA-256.
+
+    Parameters
+    ----------
+    save_to : str or None
+        ``learning.save_to`` (a relative path, checked when the file was read).
+    ctx : CellContext
+
+    Returns
+    -------
+    Path or None
+    """
+    if save_to is None:
+        return None
+    if ctx.folder is None:
+        return Path(save_to)
+    p = Path(save_to)
+    return Path(ctx.folder) / p.with_name(f"{p.stem}-cell{ctx.index + 1}{p.suffix}")
 
 
 def _learn_names(cfg: dict) -> list[str]:
@@ -41,7 +65,8 @@ def _learn_names(cfg: dict) -> list[str]:
 
 
 def _run_learn(cfg: dict, ctx: CellContext) -> CellResult:
-    res = learn_analysis(cfg["spec"], cell=ctx.index, workers=ctx.threads, progress=ctx.progress)
+    res = learn_analysis(cfg["spec"], cell=ctx.index, workers=ctx.threads, progress=ctx.progress,
+                         save_to=saved_path(cfg.get("save_to"), ctx))
     return CellResult(learn_metrics(res), learn_arrays(res), result=res)
 
 

@@ -22,7 +22,7 @@ import numpy as np
 import sim.simulation.kernel as K
 from sim.core.errors import InputError
 from sim.core.parallel import usable_cores
-from sim.core.params import Integer
+from sim.core.params import Integer, Real
 from sim.core.tables import refuse_unknown
 from sim.core.values import value_label
 from sim.models.stagecore import market_owner
@@ -37,9 +37,9 @@ from sim.runner.analyses.common import (
 )
 from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
+from sim.simulation.analysis import SimulateResult, simulate_analysis
 from sim.simulation.baseline import scheme_of
-from sim.simulation.engine import check_run, compile_game, run_game, simulation_from_dict
-from sim.simulation.results import mean_estimate, summarize
+from sim.simulation.engine import RUN_DEFAULTS, check_run, compile_game, simulation_from_dict
 from sim.theory.thresholds import grim_threshold
 from strategies import TableAutomaton, strategy_from_dict
 from strategies.automata import FinitePunishment, GrimTrigger
@@ -47,6 +47,8 @@ from strategies.base import FirmContext
 from strategies.registry import lineup_from_tables
 
 _DEV_KEYS = ("firm", "strategy")
+#: the level of the intervals (``run.confidence``)
+CONFIDENCE = Real(0, 1, closed="neither")
 #: the persistence metrics of :func:`sim.simulation.results.summarize`, in its order, and the mean length of a
 #: punishment phase (``SimulationResult.punishment_length``) after the price wars
 SIM_METRICS = ("collusive_share", "war_share", "wars_per_replication", "war_frequency", "spell_length", "war_length",
@@ -100,6 +102,13 @@ def one_shot_deviator(strategy, levels, seat: int, prefix: str = "deviation"):
 def _prepare_simulate(doc: dict) -> dict:
 
     sub = {k: v for k, v in doc.items() if k != "deviation"}
+    confidence = 0.95
+    if isinstance(doc.get("run"), dict):
+        # the level of the intervals is the kind's own key of [run] (the engine's run settings do not use it)
+        run_t = refuse_unknown(doc["run"], "run", (*RUN_DEFAULTS, "confidence"))
+        if "confidence" in run_t:
+            confidence = CONFIDENCE.check("run.confidence", run_t["confidence"])
+        sub["run"] = {k: v for k, v in run_t.items() if k != "confidence"}
     cfg = simulation_from_dict(sub, check_tables=True)
     ms = cfg["market"].spec()
     agreement, actions = collusion_of(doc)
@@ -112,7 +121,7 @@ def _prepare_simulate(doc: dict) -> dict:
     game = compile_game(stage, levels, lineup, cfg["monitoring"])
     out = {"market": cfg["market"], "market_table": doc["market"], "spec": ms, "agreement": agreement,
            "actions": actions, "lineup": lineup, "monitoring": cfg["monitoring"], "run": run, "game": game,
-           "deviation": None}
+           "deviation": None, "confidence": confidence}
     if "deviation" in doc:
         dt = refuse_unknown(doc["deviation"], "deviation", _DEV_KEYS)
         firm = dt.get("firm", "binding")
@@ -209,14 +218,8 @@ def _analytic_gain(cfg: dict, seat: int) -> float:
 def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
 
     run = cfg["run"]
-    game = cfg["game"]
-
-    def play(g):
-        return run_game(g, run["periods"], run["replications"], run["delta"], run["seed"], ctx.key, run["horizon"],
-                        run["continuation"], 0, ctx.threads, ctx.progress)
-
-    raw = play(game)
-    res = summarize(raw, game, {**run, "paths": 0}, confidence=0.95, baseline=True)
+    result, res = simulate_analysis(cfg, ctx.key, ctx.threads, ctx.progress,
+                                    analytic_gain=lambda seat: _analytic_gain(cfg, seat))
     m: dict = {}
     for k in SIM_METRICS:
         put_estimate(m, k, res.punishment_length if k == "punishment_length" else res.metrics[k])
@@ -262,18 +265,15 @@ def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
     arrays["collusive_by_period"] = share
     if b.get("collusive_by_period") is not None:
         arrays["analytic.collusive_by_period"] = thin(b["collusive_by_period"])[1]
-    dev = cfg["deviation"]
+    dev = result.deviation
     if dev is not None:
-        k = dev["seat"]
-        raw_d = play(dev["game"])
-        gain = mean_estimate(raw_d.disc[:, k] - raw.disc[:, k])
-        m["deviation.firm"] = k + 1
-        put_estimate(m, "deviation.gain", gain)
-        m["deviation.pays"] = float(gain.value > 0)
-        m["deviation.conform_value"] = float(raw.disc[:, k].mean())
-        m["deviation.deviate_value"] = float(raw_d.disc[:, k].mean())
-        m["analytic.deviation.gain"] = _analytic_gain(cfg, k)
-    return CellResult(m, arrays)
+        m["deviation.firm"] = dev.firm
+        put_estimate(m, "deviation.gain", dev.gain)
+        m["deviation.pays"] = float(dev.pays)
+        m["deviation.conform_value"] = dev.conform_value
+        m["deviation.deviate_value"] = dev.deviate_value
+        m["analytic.deviation.gain"] = dev.analytic_gain
+    return CellResult(m, arrays, result)
 
 
 #: firm-periods per second of the simulation kernel on one core assumed by the time estimate (a conservative
@@ -337,6 +337,7 @@ KIND = Kind(
     prepare=_prepare_simulate,
     run=_run_simulate,
     metric_names=_simulate_names,
+    result_type=SimulateResult,
     cost=simulate_cost,
     headline=("collusive_share", "profit_gain", "war_share", "first_breakdown"),
     analytic={"collusive_share": "analytic.collusive_share", "war_share": "analytic.war_share",

@@ -19,6 +19,8 @@ from sim.runner.analyses.thresholds_parts import (
 from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
 from sim.theory.analysis import ThresholdsResult, ThresholdsSpec, thresholds_analysis
+from sim.theory.any_punishment import TABLE_KEYS as _AP_KEYS
+from sim.theory.any_punishment import check_any_punishment, estimate_any_punishment
 
 _TH_KEYS = ("punishments", "deltas")
 #: the longest lists of punishment lengths and discount factors a cell takes (each is a set of solver calls)
@@ -40,8 +42,14 @@ def thresholds_cost(cfg: dict) -> Cost:
     """
     schemes = len(cfg["punishments"]) + 2
     calls = 3 + schemes + len(cfg["deltas"]) * (schemes * 20 + (1 if cfg["trigger_price"] else 0))
-    return Cost(64.0 * cfg["n_firms"] ** 2 * 1000, float(calls), "solver calls",
-                calls * SECONDS_PER_CALL * cfg["n_firms"], "thresholds.deltas")
+    memory, seconds = 64.0 * cfg["n_firms"] ** 2 * 1000, calls * SECONDS_PER_CALL * cfg["n_firms"]
+    ap = cfg.get("any_punishment")
+    if ap is not None:
+        # the payoff arrays and the sets of the any-punishment part dwarf the schemes: they name the setting
+        est = estimate_any_punishment(ap)
+        return Cost(memory + est["bytes"], float(calls + est["sets"]), "solver calls",
+                    seconds + est["seconds"], "any_punishment.grid")
+    return Cost(memory, float(calls), "solver calls", seconds, "thresholds.deltas")
 
 
 def _prepare_thresholds(doc: dict) -> dict:
@@ -74,11 +82,15 @@ def _prepare_thresholds(doc: dict) -> dict:
         raise ms.demand.missing("the trigger-price equilibrium", "the price distribution")
     # the stage game checks the agreement (given actions: their number and range) before any work starts
     stage_of(ms, doc["market"], agreement, actions)
+    ap = None
+    if "any_punishment" in doc:
+        table = refuse_unknown(doc["any_punishment"], "any_punishment", _AP_KEYS)
+        ap = check_any_punishment(table, market, agreement, actions)
     parts = prepare_parts(doc, market, agreement, ds)
     spec = ThresholdsSpec(market, agreement, actions, tuple(Ts), tuple(ds), mon["noise"] if trigger else None,
-                          float(mon["sigma"]), **parts)
+                          float(mon["sigma"]), ap, **parts)
     return {"spec": spec, "market": market, "n_firms": ms.n_firms, "agreement": agreement, "actions": actions,
-            "punishments": Ts, "deltas": ds, "monitoring": mon, "trigger_price": trigger}
+            "punishments": Ts, "deltas": ds, "monitoring": mon, "trigger_price": trigger, "any_punishment": ap}
 
 
 def _threshold_names(cfg: dict) -> list[str]:
@@ -97,7 +109,34 @@ def _threshold_names(cfg: dict) -> list[str]:
         out += [f"partial_gain.finite[{k + 1}][{j + 1}]" for k in range(len(cfg["punishments"]))]
         if cfg["trigger_price"]:
             out += [f"trigger_price.{x}[{j + 1}]" for x in _TP_FIELDS]
+    if cfg.get("any_punishment") is not None:
+        out += _any_punishment_names(n)
     return out + part_names(cfg)
+
+
+def _any_punishment_names(n: int) -> list[str]:
+    out = [f"any_punishment.grid.firm{i + 1}" for i in range(n)]
+    out += ["any_punishment.directions", "any_punishment.threshold.lower", "any_punishment.threshold.upper",
+            "any_punishment.on_grid.grim", "any_punishment.on_grid.stick_carrot", "any_punishment.on_grid.two_phase",
+            "any_punishment.delta", "any_punishment.sustained", "any_punishment.accuracy"]
+    out += [f"any_punishment.worst.lower.firm{i + 1}" for i in range(n)]
+    out += [f"any_punishment.worst.upper.firm{i + 1}" for i in range(n)]
+    return out
+
+
+def _any_punishment_metrics(ap, n: int) -> dict:
+    m: dict = {f"any_punishment.grid.firm{i + 1}": ap.grid[i] for i in range(n)}
+    sustained = {"sustained": 1.0, "refuted": 0.0}.get(ap.verdict, float("nan"))
+    m.update({"any_punishment.directions": ap.directions, "any_punishment.threshold.lower": ap.low,
+              "any_punishment.threshold.upper": ap.high, "any_punishment.on_grid.grim": ap.grim,
+              "any_punishment.on_grid.stick_carrot": ap.stick_carrot,
+              "any_punishment.on_grid.two_phase": ap.two_phase, "any_punishment.delta": ap.delta,
+              "any_punishment.sustained": sustained, "any_punishment.accuracy": ap.accuracy})
+    for i in range(n):
+        m[f"any_punishment.worst.lower.firm{i + 1}"] = float(ap.worst_low[i])
+    for i in range(n):
+        m[f"any_punishment.worst.upper.firm{i + 1}"] = float(ap.worst_high[i])
+    return m
 
 
 _TP_FIELDS = ("quantity", "trigger", "war_length", "war_probability", "expected_collusive_spell", "war_share",
@@ -161,6 +200,8 @@ def threshold_metrics(res: ThresholdsResult) -> dict:
                 "war_share": s["war_share"], "value": s["value"], "nash_value": s["nash_value"]}
         for x in _TP_FIELDS:
             m[f"trigger_price.{x}[{j + 1}]"] = nan_if_none(vals[x])
+    if res.any_punishment is not None:
+        m.update(_any_punishment_metrics(res.any_punishment, n))
     m.update(part_metrics(res))
     return m
 
@@ -171,12 +212,13 @@ def _describe_thresholds(doc: dict) -> list[str]:
     return [f"Market: {describe_market(doc.get('market', {}))}",
             f"Agreement: {coll.get('agreement', 'given' if 'actions' in coll else 'joint')}",
             f"Punishment lengths T of Nash reversion: {th.get('punishments', [1, 2, 3, 5, 10])}",
-            f"Discount factors for partial collusion: {th.get('deltas', [])}"] + describe_parts(doc)
+            f"Discount factors for partial collusion: {th.get('deltas', [])}"] + (
+        [f"Any punishment: {doc['any_punishment']}"] if "any_punishment" in doc else []) + describe_parts(doc)
 
 
 KIND = Kind(
     name="thresholds",
-    tables=("market", "collusion", "thresholds", "monitoring") + PART_TABLES,
+    tables=("market", "collusion", "thresholds", "monitoring", "any_punishment") + PART_TABLES,
     prepare=_prepare_thresholds,
     run=_run_thresholds,
     metric_names=_threshold_names,
@@ -194,5 +236,10 @@ KIND = Kind(
         "Partial collusion is searched along the straight path from the static Nash actions to the agreement.",
         "The trigger-price equilibrium (Green and Porter, 1984) assumes a symmetric homogeneous-good Cournot market "
         "with an i.i.d. multiplicative demand shock and a public price signal.",
+        "The any-punishment threshold (an [any_punishment] table) is computed on a finite action grid with pure "
+        "strategies, perfect monitoring and public randomisation: the lowest discount factor at which the agreement "
+        "is a subgame-perfect equilibrium outcome when deviations meet the deviator's worst equilibrium payoff "
+        "(Abreu, 1988), bracketed between inner and outer equilibrium payoff sets (Abreu, Pearce and Stacchetti, "
+        "1990; Judd, Yeltekin and Conklin, 2003; Abreu and Sannikov, 2014).",
     ),
 )

@@ -1,0 +1,288 @@
+"""Learners that outlive their sessions: the state of every session of a run, saved to a file and read back.
+
+A run of learning sessions can keep, for every session, everything its learners know and everything the next
+period depends on (:class:`SavedLearners`): the Q-values and greedy actions, the history state, the automaton
+states, the random generator and the two counters (periods played, and of them the last consecutive ones without a
+change of any greedy action). :func:`sim.learning.session.learn` continues such sessions (``start``) exactly where
+they stopped: a session stopped at ``max_periods = T / 2``, saved, loaded and run on to ``T`` plays the periods an
+uninterrupted session to ``T`` would, bit for bit, and its limit analysis is the same.
+
+The file
+--------
+A zip archive in the layout of numpy's ``.npz`` (each array a ``.npy`` member, read with ``allow_pickle=False``)
+with one more member, ``header.json``::
+
+    {"format": "supergame saved learners", "version": 1, "arrays_sha256": "...", "market": {...},
+     "seats": [...], "sessions": n, "seed": ..., "cell": ..., "arrays": {"Q": {"dtype": "<f8", "shape": [...]}, ...}}
+
+``arrays_sha256`` is the SHA-256 of the arrays (:func:`arrays_digest`): a file whose arrays were altered or
+damaged is refused. ``market`` is the market's settings and ``seats`` each seat's learner (its grid, parameters and
+update rule) or automaton: a file is continued only on the same market and the same grids (the learning parameters
+and the update rule may change: a change of protocol). The members carry a fixed date, so the same state gives the
+same bytes.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io
+import json
+import zipfile
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from sim.core.errors import InputError
+from sim.core.files import write_atomic
+from sim.core.records import to_plain
+
+__all__ = ["FORMAT", "VERSION", "SavedLearners", "arrays_digest", "check_start", "describe_layout", "load_learners",
+           "save_learners"]
+
+#: the name and version of the file format written by :func:`save_learners`
+FORMAT = "supergame saved learners"
+VERSION = 1
+#: the arrays of a saved run, in the order they are hashed
+_ARRAYS = ("Q", "greedy", "history", "z", "rng", "clock", "status")
+_DTYPES = {"Q": np.float64, "greedy": np.int64, "history": np.int64, "z": np.int64, "rng": np.uint64,
+           "clock": np.int64, "status": np.int64}
+_FIXED_DATE = (1980, 1, 1, 0, 0, 0)
+
+
+@dataclass(frozen=True, eq=False)
+class SavedLearners:
+    """The state of every session of a run at the end of learning.
+
+    Attributes
+    ----------
+    Q : ndarray of float64, shape (n, n_learners, max(mod), max(radix))
+        Every session's Q-values.
+    greedy : ndarray of int64, shape (n, n_learners, max(mod))
+        Their first argmax per row.
+    history : ndarray of int64, shape (n,)
+        The history state each session reached.
+    z : ndarray of int64, shape (n, n_seats)
+        Automaton states.
+    rng : ndarray of uint64, shape (n, 4)
+        Each session's generator state at the end of learning (before any limit analysis).
+    clock : ndarray of int64, shape (n, 2)
+        Periods played, and of them the last consecutive ones without a change of any greedy action.
+    status : ndarray of int64, shape (n,)
+        How each session stopped (converged or at the cap).
+    header : dict
+        ``format``, ``version``, ``market``, ``seats``, ``sessions``, ``seed``, ``cell`` (see the module notes).
+    """
+
+    Q: np.ndarray
+    greedy: np.ndarray
+    history: np.ndarray
+    z: np.ndarray
+    rng: np.ndarray
+    clock: np.ndarray
+    status: np.ndarray
+    header: dict
+
+    @property
+    def n_sessions(self) -> int:
+        """Number of sessions saved."""
+        return int(self.history.size)
+
+    def arrays(self) -> dict:
+        """The arrays by name, in the order they are hashed.
+
+        Returns
+        -------
+        dict of str to ndarray
+        """
+        return {name: getattr(self, name) for name in _ARRAYS}
+
+
+def arrays_digest(arrays: dict) -> str:
+    """SHA-256 (hex) of named arrays: for each name in :data:`_ARRAYS` order, the name, the dtype, the shape and the
+    C-ordered bytes.
+
+    Parameters
+    ----------
+    arrays : dict of str to ndarray
+
+    Returns
+    -------
+    str
+    """
+    h = hashlib.sha256()
+    for name in _ARRAYS:
+        a = np.ascontiguousarray(arrays[name])
+        h.update(f"{name}|{a.dtype.str}|{list(a.shape)}|".encode())
+        h.update(a.tobytes())
+    return h.hexdigest()
+
+
+def save_learners(path, saved: SavedLearners) -> str:
+    """Write the saved sessions to ``path`` (replaced whole, never half-written).
+
+    Parameters
+    ----------
+    path : str or Path
+    saved : SavedLearners
+        Its header's ``format``, ``version``, ``arrays_sha256`` and ``arrays`` entries are set here.
+
+    Returns
+    -------
+    str
+        The SHA-256 of the arrays.
+    """
+    arrays = {name: np.ascontiguousarray(a, dtype=_DTYPES[name]) for name, a in saved.arrays().items()}
+    digest = arrays_digest(arrays)
+    header = {**saved.header, "format": FORMAT, "version": VERSION, "arrays_sha256": digest,
+              "arrays": {k: {"dtype": a.dtype.str, "shape": list(a.shape)} for k, a in arrays.items()}}
+    buf = io.BytesIO()
+    with zipfile.ZipFile(buf, "w", compression=zipfile.ZIP_DEFLATED) as zf:
+        zf.writestr(zipfile.ZipInfo("header.json", _FIXED_DATE),
+                    json.dumps(to_plain(header), indent=1, sort_keys=True, allow_nan=False))
+        for name, a in arrays.items():
+            member = io.BytesIO()
+            np.lib.format.write_array(member, a, allow_pickle=False)
+            zf.writestr(zipfile.ZipInfo(f"{name}.npy", _FIXED_DATE), member.getvalue(),
+                        compress_type=zipfile.ZIP_DEFLATED)
+    write_atomic(Path(path), buf.getvalue())
+    return digest
+
+
+def load_learners(path, key: str = "learning.continue_from") -> SavedLearners:
+    """Read a file written by :func:`save_learners`, checking its format, version and the hash of its arrays.
+
+    Parameters
+    ----------
+    path : str or Path
+    key : str
+        Key path of the file's name, for error messages.
+
+    Returns
+    -------
+    SavedLearners
+
+    Raises
+    ------
+    InputError
+        Naming ``key``: a missing or unreadable file, another format or version, or arrays that do not match the
+        recorded hash.
+    """
+    p = Path(path)
+    if not p.is_file():
+        raise InputError(key, f"no such file: {path}")
+    try:
+        with zipfile.ZipFile(p) as zf:
+            header = json.loads(zf.read("header.json").decode("utf-8"))
+            if not isinstance(header, dict) or header.get("format") != FORMAT:
+                raise InputError(key, f"{path} is not a file of saved learners (format {FORMAT!r})")
+            if header.get("version") != VERSION:
+                raise InputError(key, f"{path} has format version {header.get('version')!r}; this version of the "
+                                      f"program reads version {VERSION}")
+            arrays = {name: np.lib.format.read_array(io.BytesIO(zf.read(f"{name}.npy")), allow_pickle=False)
+                      for name in _ARRAYS}
+    except InputError:
+        raise
+    except (zipfile.BadZipFile, KeyError, ValueError, OSError, EOFError) as exc:
+        raise InputError(key, f"{path} cannot be read as saved learners ({type(exc).__name__}): the file is "
+                              "damaged or of another kind") from None
+    for name, a in arrays.items():
+        if a.dtype != np.dtype(_DTYPES[name]):
+            raise InputError(key, f"{path}: array {name} has type {a.dtype}, expected {np.dtype(_DTYPES[name])}")
+    if arrays_digest(arrays) != header.get("arrays_sha256"):
+        raise InputError(key, f"{path}: the arrays do not match the SHA-256 recorded in the file (recorded "
+                              f"{str(header.get('arrays_sha256'))[:12]}..., found {arrays_digest(arrays)[:12]}...): "
+                              "the file was altered or damaged")
+    return SavedLearners(**arrays, header=header)
+
+
+def describe_layout(lineup) -> list[dict]:
+    """What a saved file records of each seat, and what a continued run must match.
+
+    Parameters
+    ----------
+    lineup : sim.learning.lineup.Lineup
+
+    Returns
+    -------
+    list of dict
+        One per seat: a learner's parameters, grid and update rule
+        (:meth:`strategies.qlearning.CompiledLearner.to_dict`, ``strategy = "qlearning"``), or an automaton's
+        ``strategy`` name and ``actions``.
+    """
+    return [{"strategy": "qlearning", **c.to_dict()} if c is not None
+            else {"strategy": lineup.names[i], "actions": lineup.grids[i].tolist()}
+            for i, c in enumerate(lineup.learners)]
+
+
+def _first_difference(saved, here, path: str = "") -> str | None:
+    """The key path of the first difference between two plain documents (None when equal)."""
+    if isinstance(saved, dict) and isinstance(here, dict):
+        for k in sorted(set(saved) | set(here)):
+            d = _first_difference(saved.get(k), here.get(k), f"{path}.{k}" if path else str(k))
+            if d is not None:
+                return d
+        return None
+    return None if saved == here else (path or "(the whole value)")
+
+
+def check_start(saved: SavedLearners, lineup, market: dict | None, sessions: int,
+                key: str = "learning.continue_from") -> None:
+    """Refuse saved sessions that the run about to start cannot continue.
+
+    Parameters
+    ----------
+    saved : SavedLearners
+    lineup : sim.learning.lineup.Lineup
+        The line-up of the new run.
+    market : dict or None
+        The new run's market settings (:meth:`sim.Market.to_dict`); None to compare the profit tables only.
+    sessions : int
+        Sessions of the new run: one saved session each.
+    key : str
+        Key path of the file's name, for error messages.
+
+    Raises
+    ------
+    InputError
+        Naming ``key``: another market, another number of seats, a seat held by another kind of strategy, another
+        grid or memory, another number of sessions, or greedy actions that are not those of the Q-values.
+    """
+    h = saved.header
+    if market is not None:
+        diff = _first_difference(h.get("market"), json.loads(json.dumps(to_plain(market))))
+        if diff is not None:
+            there = (h.get("market") or {}).get(diff, "not given")
+            here = market.get(diff, "not given")
+            raise InputError(key, f"the learners were saved on another market (market.{diff}: {there!r} there, "
+                                  f"{here!r} here)")
+    old, new = h.get("seats") or [], describe_layout(lineup)
+    if len(old) != len(new):
+        raise InputError(key, f"the learners were saved with {len(old)} seats; this market has {len(new)}")
+    for i, (a, b) in enumerate(zip(old, new)):
+        firm = f"firm {i + 1}"
+        if a.get("strategy") != b["strategy"]:
+            raise InputError(key, f"{firm} was {a.get('strategy')!r} in the saved run, {b['strategy']!r} here")
+        grid = "grid" if b["strategy"] == "qlearning" else "actions"
+        ga, gb = np.asarray(a.get(grid, []), dtype=float), np.asarray(b[grid], dtype=float)
+        if ga.shape != gb.shape or not np.array_equal(ga, gb):
+            raise InputError(key, f"{firm}'s {grid} differs from the saved one ({ga.size} values from "
+                                  f"{_ends(ga)} there, {gb.size} from {_ends(gb)} here)")
+        if b["strategy"] == "qlearning" and a.get("k") != b["k"]:
+            raise InputError(key, f"{firm}'s memory k is {b['k']} here, {a.get('k')} in the saved run")
+    if saved.n_sessions != sessions:
+        raise InputError(key, f"holds {saved.n_sessions} saved sessions; the run has {sessions} (run.sessions "
+                              "must match: each session continues one saved session)")
+    if saved.Q.shape[1:] != lineup.q0.shape or saved.z.shape[1:] != lineup.z0.shape:
+        raise InputError(key, f"its Q-values have shape {saved.Q.shape[1:]} per session, this line-up "
+                              f"{lineup.q0.shape}")
+    for i in lineup.learner_seats:
+        li, m, n_states = int(lineup.seats.lidx[i]), int(lineup.seats.radix[i]), int(lineup.seats.mod[i])
+        first = np.argmax(saved.Q[:, li, :n_states, :m], axis=2)
+        if not np.array_equal(first, saved.greedy[:, li, :n_states]):
+            raise InputError(key, f"firm {i + 1}'s greedy actions are not those of its Q-values: the file is not "
+                                  "consistent")
+
+
+def _ends(grid: np.ndarray) -> str:
+    return f"{grid[0]:.6g} to {grid[-1]:.6g}" if grid.size else "nothing"

@@ -1,0 +1,111 @@
+"""``supergame thresholds`` with the any-punishment part: the command shows what the run stores, its figure is
+the bundle's, and bad settings are refused in one line before any work."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from sim.cli import main
+from sim.evidence.render import renderer_for
+from sim.runner.analyses.thresholds import KIND
+from sim.runner.runs import open_run
+
+TEXT = """
+[experiment]
+kind = "thresholds"
+name = "two-kilns"
+
+[market]
+model = "cournot"
+demand = "linear"
+intercept = 10.0
+slope = 1.0
+cost = [1.0, 1.5]
+
+[collusion]
+agreement = "proportional"
+
+[thresholds]
+punishments = [2]
+
+[any_punishment]
+grid = 9
+delta = 0.4
+"""
+
+
+def test_the_command_shows_the_stored_result_and_plots_the_bundles_figure(tmp_path, capsys):
+    f = tmp_path / "two-kilns.toml"
+    f.write_text(TEXT)
+    assert main(["thresholds", str(f), "--plot", str(tmp_path / "plots")]) == 0
+    printed = capsys.readouterr().out
+    assert "any punishment (9 x 9 grid)" in printed and "accuracy" in printed
+    assert main(["run", str(f), "--out", str(tmp_path / "run"), "--report", "--quiet"]) == 0
+    capsys.readouterr()
+    with open_run(tmp_path / "run") as rf:
+        assert renderer_for("thresholds").console(rf.result(0)) == printed.rstrip("\n")
+    command_png = (tmp_path / "plots" / "payoff-set.png").read_bytes()
+    bundle_png = (tmp_path / "run" / "report" / "figures" / "payoff-set.png").read_bytes()
+    assert command_png == bundle_png
+
+
+def test_json_and_flags_write_the_table(tmp_path, capsys):
+    f = tmp_path / "two-kilns.toml"
+    f.write_text(TEXT.split("[any_punishment]")[0])
+    assert main(["thresholds", str(f), "--json"]) == 0
+    assert "any_punishment" not in json.loads(capsys.readouterr().out)
+    assert main(["thresholds", str(f), "--grid", "9", "--at-delta", "0.4", "--json"]) == 0
+    ap = json.loads(capsys.readouterr().out)["any_punishment"]
+    assert ap["grid"] == [9, 9] and ap["delta"] == 0.4 and ap["threshold"]["low"] <= ap["threshold"]["high"]
+    # the named schemes on the grid are never below the best punishment (Abreu, 1988: optimal penal codes are
+    # the most severe punishments, so every scheme's equilibrium is among those the lowest threshold counts)
+    assert ap["high"] <= ap["stick_carrot"] <= ap["grim"]
+
+
+def test_the_metric_columns_without_the_table_are_unchanged():
+    """New columns are appended after the existing ones only when the table is there."""
+    doc = {"market": {"model": "cournot", "demand": "linear", "intercept": 10.0, "slope": 1.0, "cost": [1.0, 1.5]},
+           "thresholds": {"punishments": [2], "deltas": [0.5]}}
+    plain = KIND.metric_names(KIND.prepare(doc))
+    assert not any(m.startswith("any_punishment") for m in plain)
+    more = KIND.metric_names(KIND.prepare({**doc, "any_punishment": {"grid": 9}}))
+    assert more[:len(plain)] == plain and all(m.startswith("any_punishment.") for m in more[len(plain):])
+
+
+@pytest.mark.parametrize(
+    "table, flags, key",
+    [
+        # a grid far beyond memory: refused from the cost estimate before any array exists
+        ("grid = 20000", ["--grid", "20000"], "grid"),
+        ("grid = [600, 600, 600]", ["--grid", "600"], "grid"),
+        ("delta = 1.0", ["--at-delta", "1"], "delta"),
+        ("delta = 0.0", ["--at-delta", "-0.2"], "delta"),
+        ("directions = 3", ["--directions", "3"], "directions"),
+        ("grid = 3", ["--grid", "3"], "grid"),
+        ("tolerance = 0.5", ["--bracket", "0.5"], "tolerance"),
+        ("bogus = 1", None, "bogus"),
+    ],
+)
+def test_bad_settings_are_one_line_naming_the_key_with_status_2(tmp_path, capsys, table, flags, key):
+    three = "[market]\nmodel = 'cournot'\ndemand = 'linear'\nintercept = 10.0\ncost = [1.0, 1.0, 1.0]\n"
+    f = tmp_path / "bad.toml"
+    f.write_text(f"{three}[any_punishment]\n{table}\n")
+    code = main(["thresholds", str(f)])
+    out, err = capsys.readouterr()
+    assert code == 2 and out == "" and len(err.strip().splitlines()) == 1 and f"any_punishment.{key}" in err
+    if flags is None:
+        return
+    code = main(["thresholds", "--firms", "3", "--intercept", "10", "--cost", "1", *flags])
+    out, err = capsys.readouterr()
+    flag = {"grid": "--grid", "delta": "--at-delta", "directions": "--directions", "tolerance": "--bracket"}[key]
+    assert code == 2 and out == "" and len(err.strip().splitlines()) == 1 and flag in err
+
+
+def test_a_refused_grid_writes_no_run_folder(tmp_path, capsys):
+    f = tmp_path / "big.toml"
+    f.write_text(TEXT.replace("grid = 9", "grid = 20000"))
+    assert main(["run", str(f), "--out", str(tmp_path / "run"), "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert "any_punishment.grid" in err and "memory" in err and not (tmp_path / "run").exists()

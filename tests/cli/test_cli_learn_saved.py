@@ -1,0 +1,118 @@
+"""``supergame learn`` with saved learners and update rules: a run split in two halves equals the whole run, the
+saved file is recorded in a run folder's manifest, and bad input gives one line naming the key and status 2."""
+
+import json
+import zipfile
+
+import pytest
+
+from sim.cli import main
+
+SMALL = """
+[experiment]
+name = "small"
+kind = "learn"
+
+[market]
+model = "bertrand"
+demand = "logit"
+quality = 2.0
+outside = 0.0
+mu = 0.25
+cost = 1.0
+n_firms = 2
+
+[learning]
+m = 5
+beta = 2e-4
+convergence = 8000
+max_periods = 24000
+
+[impulse]
+periods = 5
+
+[run]
+sessions = 3
+seed = 7
+workers = 2
+"""
+
+
+@pytest.fixture
+def small(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "small.toml").write_text(SMALL)
+    return tmp_path / "small.toml"
+
+
+def _run(capsys, *args):
+    status = main(["learn", *args])
+    return status, capsys.readouterr()
+
+
+def test_a_run_split_in_two_halves_prints_the_json_of_the_whole_run(small, capsys):
+    status, whole = _run(capsys, str(small), "--json")
+    assert status == 0
+    assert _run(capsys, str(small), "--json", "--max-periods", "12000", "--save-to", "half.npz")[0] == 0
+    status, rest = _run(capsys, str(small), "--json", "--continue-from", "half.npz")
+    assert status == 0
+    assert rest.out == whole.out
+    status, rest = _run(capsys, str(small), "--json", "--continue-from", "half.npz", "--update", "synchronous")
+    assert status == 0 and json.loads(rest.out)["learners"][0]["update"] == "synchronous"
+
+
+def _rewrite(src, dst, header_change=None, flip_q=False):
+    with zipfile.ZipFile(src) as z, zipfile.ZipFile(dst, "w") as out:
+        for name in z.namelist():
+            data = z.read(name)
+            if name == "header.json" and header_change:
+                h = json.loads(data)
+                h.update(header_change)
+                data = json.dumps(h).encode()
+            if name == "Q.npy" and flip_q:
+                b = bytearray(data)
+                b[-5] ^= 1
+                data = bytes(b)
+            out.writestr(name, data)
+
+
+BAD = [
+    (["--continue-from", "half.npz", "--cost", "1.1"], "--continue-from", "another market (market.cost"),
+    (["--continue-from", "half.npz", "--m", "6"], "--continue-from", "grid differs"),
+    (["--continue-from", "half.npz", "--sessions", "2"], "--continue-from", "3 saved sessions"),
+    (["--continue-from", "version.npz"], "--continue-from", "format version 2"),
+    (["--continue-from", "damaged.npz"], "--continue-from", "do not match the SHA-256"),
+    (["--continue-from", "cut.npz"], "--continue-from", "cannot be read"),
+    (["--continue-from", "missing.npz"], "--continue-from", "no such file"),
+    (["--update", "sideways"], "--update", "'asynchronous', 'synchronous', 'mixed'"),
+    (["--update", "mixed"], "learning.counterfactual_share", "required"),
+    (["--counterfactual-share", "0.5"], "--counterfactual-share", "only to update = 'mixed'"),
+    (["--update", "mixed", "--counterfactual-share", "1"], "--counterfactual-share", "(0, 1)"),
+    (["--save-to", "../out.npz"], "--save-to", "relative path"),
+]
+
+
+@pytest.mark.parametrize(("extra", "key", "text"), BAD, ids=[" ".join(b[0]) for b in BAD])
+def test_bad_saved_learners_and_update_rules_give_one_line_and_status_2(small, capsys, extra, key, text):
+    assert _run(capsys, str(small), "--max-periods", "3000", "--save-to", "half.npz")[0] == 0
+    _rewrite("half.npz", "version.npz", {"version": 2})
+    _rewrite("half.npz", "damaged.npz", flip_q=True)
+    (small.parent / "cut.npz").write_bytes((small.parent / "half.npz").read_bytes()[:200])
+    status, cap = _run(capsys, str(small), *extra)
+    assert status == 2
+    assert cap.out == ""
+    lines = cap.err.strip().splitlines()
+    assert len(lines) == 1
+    assert lines[0].startswith(f"supergame learn: error: {key}")
+    assert text in lines[0]
+
+
+def test_in_a_run_folder_the_saved_learners_are_recorded_in_the_manifest(small, capsys):
+    from sim.runner.folder import sha256_file
+
+    doc = SMALL.replace("max_periods = 24000", 'max_periods = 24000\nsave_to = "learners.npz"')
+    (small.parent / "save.toml").write_text(doc)
+    assert main(["run", "save.toml", "--out", "run1", "--quiet"]) == 0
+    saved = small.parent / "run1" / "learners-cell1.npz"
+    manifest = json.loads((small.parent / "run1" / "manifest.json").read_text())
+    assert manifest["files"]["learners-cell1.npz"] == sha256_file(saved)

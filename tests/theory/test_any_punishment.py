@@ -1,0 +1,134 @@
+"""The any-punishment part of the thresholds analysis: its result round-trips, and the reversal of the shipped
+experiment (experiments/any-punishment.toml) holds against checks outside the set algorithm."""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from sim.core.tomlfile import read_toml
+from sim.models.market import market_from_dict
+from sim.theory.analysis import ThresholdsResult, ThresholdsSpec, thresholds_analysis
+from sim.theory.any_punishment import AnyPunishmentResult, any_punishment_analysis, check_any_punishment
+from sim.theory.discretize import discretize
+
+ROOT = Path(__file__).resolve().parents[2]
+SHIPPED = ROOT / "experiments" / "any-punishment.toml"
+
+
+def _round_trip(cls, r):
+    doc = r.to_dict()
+    back = cls.from_dict(json.loads(json.dumps(doc, allow_nan=False)))
+    assert back.to_dict() == doc
+    return back
+
+
+@pytest.fixture(scope="module")
+def shipped():
+    doc = read_toml(SHIPPED)
+    market = market_from_dict(doc["market"])
+    agreement = doc["collusion"]["agreement"]
+    spec = check_any_punishment(doc["any_punishment"], market, agreement)
+    return doc, market, agreement, spec, any_punishment_analysis(market, spec, agreement)
+
+
+def test_the_result_round_trips_through_json(shipped):
+    *_, ap = shipped
+    back = _round_trip(AnyPunishmentResult, ap)
+    assert back.penal_codes[1].firm == 1 and back.outer.shape == ap.outer.shape
+    assert back.low == ap.low and back.verdict == ap.verdict
+
+
+def test_a_thresholds_result_with_and_without_the_part_round_trips():
+    from sim.models.demand import LinearDemand
+    from sim.models.market import Market
+
+    market = Market(LinearDemand(10.0, 1.0), cost=[1.0, 1.0])
+    spec = check_any_punishment({"grid": 9}, market)  # no delta: reported at the upper end of the interval
+    with_part = thresholds_analysis(ThresholdsSpec(market, "joint", None, (1,), (), any_punishment=spec))
+    back = _round_trip(ThresholdsResult, with_part)
+    assert isinstance(back.any_punishment, AnyPunishmentResult)
+    assert back.any_punishment.delta == with_part.any_punishment.high and not back.any_punishment.delta_given
+    without = thresholds_analysis(ThresholdsSpec(market, "joint", None, (1,), ()))
+    assert _round_trip(ThresholdsResult, without).any_punishment is None
+
+
+def _quantecon_worst(game, delta):
+    """Each firm's worst equilibrium payoff from QuantEcon's implementation of Abreu and Sannikov (2014, "An
+    algorithm for two-player repeated games with perfect monitoring", Theoretical Economics 9)."""
+    gt = pytest.importorskip("quantecon.game_theory", reason="QuantEcon is the independent reference here")
+    P = game.payoffs
+    g = gt.NormalFormGame((gt.Player(P[:, :, 0]), gt.Player(P[:, :, 1].T)))
+    hull = gt.RepeatedGame(g, delta).equilibrium_payoffs(method="AS", options={"tol": 1e-10})
+    return hull.points[hull.vertices].min(axis=0)
+
+
+def _named_sustain(game, profile, delta):
+    """Whether grim trigger or a symmetric stick and carrot on the grid sustains the agreement at ``delta``, by
+    brute force over the payoff array. Grim trigger: (pi_D - pi_C) <= delta / (1 - delta) (pi_C - pi_N) (Friedman,
+    1971, Review of Economic Studies 38(1)); stick and carrot at common action s: (pi_D - pi_C) <= delta (pi_C -
+    pi_S) and (pi_D(s) - pi_S) <= delta (pi_C - pi_S) for every firm (Abreu, 1986, "Extremal equilibria of
+    oligopolistic supergames", Journal of Economic Theory 39)."""
+    G = game.payoffs
+    n = game.n_firms
+
+    def best_dev(prof, i):
+        return max(G[prof[:i] + (b,) + prof[i + 1:]][i] for b in range(game.shape[i]))
+
+    gC = G[profile]
+    gainC = np.array([best_dev(profile, i) - gC[i] for i in range(n)])
+    gN = G[game.marked["nash"]]
+    grim = bool(np.all(gainC <= delta / (1 - delta) * (gC - gN)))
+    common = sorted(set(game.grids[0].tolist()) & set(game.grids[1].tolist()))
+    carrot = False
+    for x in common:
+        s = tuple(int(np.flatnonzero(game.grids[i] == x)[0]) for i in range(n))
+        gS = G[s]
+        gainS = np.array([best_dev(s, i) - gS[i] for i in range(n)])
+        room = delta * (gC - gS)
+        carrot |= bool(np.all(gainC <= room) and np.all(gainS <= room))
+    return grim, carrot
+
+
+def test_the_shipped_reversal_holds_against_independent_checks(shipped):
+    """At the market's discount factor the named schemes fail and the best punishment sustains the agreement:
+    the named schemes by brute force on the payoff array, the worst equilibrium payoffs from QuantEcon's
+    Abreu-Sannikov sets on the same grid, and the sustainability condition of Abreu (1988, "On the theory of
+    infinitely repeated games with discounting", Econometrica 56(2)): (1 - delta) gain_i <= delta (pi_C,i - v_i)."""
+    doc, market, agreement, spec, ap = shipped
+    delta = doc["any_punishment"]["delta"]
+    assert ap.verdict == "sustained" and ap.high < delta < min(ap.grim, ap.stick_carrot)
+    game = discretize(market, list(spec.grid), agreement=agreement)
+    profile = tuple(ap.profile)
+    assert _named_sustain(game, profile, delta) == (False, False)
+    worst = _quantecon_worst(game, delta)
+    # the two algorithms bracket the same set: the worst payoffs agree to the reported accuracy and QuantEcon's
+    # tolerance (a hundredth of a money unit on profits of about a thousand)
+    np.testing.assert_allclose(worst, ap.worst_high, atol=1e-2 + ap.accuracy)
+    gC = game.payoffs[profile]
+    gain = game.best_reply[profile] - gC
+    assert np.all((1 - delta) * gain <= delta * (gC - worst))
+    # and the continuous market's named thresholds agree that the schemes fail at this discount factor
+    from sim.theory.thresholds import critical_discount_factors
+
+    th = critical_discount_factors(market, punishments=(1,), agreement=agreement).to_dict()["thresholds"]
+    assert th["grim"]["market"] > delta and th["stick_carrot"]["market"] > delta
+
+
+def test_the_reversal_is_not_an_artefact_of_the_grid(shipped):
+    """A finer grid moves the threshold (discretisation) but not the conclusion at the market's discount factor;
+    the threshold stays above the bound that no punishment can beat: holding a firm to its minmax forever,
+    (pi_D - pi_C) / (pi_D - minmax) (Abreu, 1988)."""
+    doc, market, agreement, *_ = shipped
+    fine = check_any_punishment({**doc["any_punishment"], "grid": 21}, market, agreement)
+    ap = any_punishment_analysis(market, fine, agreement)
+    assert ap.verdict == "sustained" and ap.high < doc["any_punishment"]["delta"]
+    game = discretize(market, 21, agreement=agreement)
+    prof = tuple(ap.profile)
+    gain = game.best_reply[prof] - game.payoffs[prof]
+    bound = np.max(gain / (gain + game.payoffs[prof] - game.minmax))
+    assert bound - 1e-12 <= ap.low <= ap.high and math.isfinite(ap.high)
