@@ -49,6 +49,10 @@ def configure(p: argparse.ArgumentParser) -> None:
     a.add_argument("--at-delta", metavar="D",
                    help="discount factor at which to report the worst equilibrium payoffs and the payoff set "
                         "(default: the upper end of the interval)")
+    e = p.add_argument_group("enforcement (the [enforcement] table)")
+    e.add_argument("--detection", metavar="RHO", help="probability per colluding period that the cartel is detected")
+    e.add_argument("--fine", metavar="F", help="fine per firm and conviction")
+    e.add_argument("--leniency", metavar="S", help="share of the fine a reporting firm pays (leniency programme)")
     p.add_argument("--plot", metavar="DIR", help="write the figure of the thresholds (PNG) into DIR")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of tables")
 
@@ -66,6 +70,9 @@ _FLAG_OF = {
     "any_punishment.directions": "--directions",
     "any_punishment.tolerance": "--bracket",
     "any_punishment.delta": "--at-delta",
+    "enforcement.detection": "--detection",
+    "enforcement.fine": "--fine",
+    "enforcement.leniency": "--leniency",
 }
 
 
@@ -111,6 +118,12 @@ def _document(args) -> tuple[dict, set]:
         mon["sigma"] = parse_number("sigma", args.sigma)
         flags.add("monitoring.sigma")
     flags |= _any_punishment_flags(args, doc)
+    for name in ("detection", "fine", "leniency"):
+        if getattr(args, name) is not None:
+            if not isinstance(doc.get("enforcement", {}), dict):
+                raise InputError("enforcement", f"must be a table, got {doc['enforcement']!r}")
+            doc.setdefault("enforcement", {})[name] = parse_number(name, getattr(args, name))
+            flags.add(f"enforcement.{name}")
     return doc, flags
 
 

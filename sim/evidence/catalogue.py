@@ -18,6 +18,8 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
+from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
+
 __all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "money"]
 
 
@@ -378,6 +380,9 @@ ENTRIES: dict[str, Entry] = {
                             "section 2.1"),
 }
 
+# enforcement, demand states and multimarket contact (sim.evidence.catalogue_conditions)
+ENTRIES.update({k: Entry(*v) for k, v in CONDITION_ENTRIES.items()})
+
 #: swept or given parameters: key path -> Entry (unit and label of an axis)
 PARAMETERS: dict[str, Entry] = {
     "run.delta": Entry("discount factor delta", "", "The firms' common discount factor.", "given"),
@@ -402,6 +407,8 @@ PARAMETERS: dict[str, Entry] = {
     "strategies": Entry("strategy", "", "The strategy played by the seats of a line-up entry.", "given"),
     "assess.growth": Entry("demand growth per period", "share per period", "Growth rate of demand.", "given"),
 }
+
+PARAMETERS.update({k: Entry(*v) for k, v in CONDITION_PARAMETERS.items()})
 
 _SCHEME_WORDS = {"grim": "grim trigger", "finite": "Nash reversion for T periods", "stick_carrot": "stick and carrot"}
 
@@ -521,7 +528,8 @@ def describe(key: str, currency: str | None = None, period: str | None = None, f
     if tail:
         label = {"se": "standard error of the", "low": "lower bound of the 95 % interval of the",
                  "high": "upper bound of the 95 % interval of the"}[tail.group(1)] + " " + label
-    unit = e.unit.replace("{money}", money(currency, period))
+    # "{currency}": an amount not per period (a discounted sum of money over the periods)
+    unit = e.unit.replace("{money}", money(currency, period)).replace("{currency}", currency or "currency units")
     return Described(key, label, unit, e)
 
 

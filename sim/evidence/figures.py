@@ -325,7 +325,7 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
             if zmin < level < zmax:
                 ax.contour(xp, yp, np.where(np.isfinite(Z), Z, level), levels=[level], colors="black",
                            linewidths=1.2, linestyles="-")
-                ax.plot([], [], color="black", lw=1.2, label=f"simulated boundary: {metric_label(metric, data)} = "
+                ax.plot([], [], color="black", lw=1.2, label=f"boundary: {metric_label(metric, data)} = "
                                                              f"{level:g}")
         _threshold_line(ax, thr[k], xs, xp, xe, yp, threshold, data, legend)
         if xlog:

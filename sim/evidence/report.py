@@ -160,7 +160,7 @@ def _caption_body(spec) -> str:
         if spec.threshold:
             c += f"; dashed: the analytic critical value of {spec.x} ({spec.threshold})"
         if spec.level is not None:
-            c += f"; solid: where the simulated {spec.metric} crosses {spec.level:g}"
+            c += f"; solid: where {spec.metric} crosses {spec.level:g}"
         return c + "; numbers are the cell values."
     c = f"{spec.metric} against {spec.x}"
     if spec.group:

@@ -8,6 +8,7 @@ import numpy as np
 from sim.core.text import CAUTION, fmt_num, table
 from sim.evidence import any_punishment as anyp
 from sim.evidence.render import Drawn, Renderer, pyplot
+from sim.evidence.thresholds_parts import part_figures, part_json, part_lines
 from sim.theory.analysis import ThresholdsResult
 
 __all__ = ["AGREEMENT_NAMES", "RENDERER", "as_json", "console", "describe_market", "figures"]
@@ -129,6 +130,7 @@ def console(res: ThresholdsResult) -> str:
              f"Agreement: {AGREEMENT_NAMES.get(res.report['agreement'], res.report['agreement'])}", "",
              _stage_table(res), ""]
     lines += _threshold_lines(res) + _partial_lines(res) + _trigger_lines(res)
+    lines += part_lines(res)
     lines += ["", CAUTION]
     return "\n".join(lines)
 
@@ -151,6 +153,7 @@ def as_json(res: ThresholdsResult) -> dict:
         out["trigger_price"] = res.trigger_price
     if res.any_punishment is not None:
         out["any_punishment"] = anyp.to_json(res.any_punishment)
+    out.update(part_json(res))
     out["caution"] = CAUTION
     return out
 
@@ -188,7 +191,7 @@ def figures(res: ThresholdsResult) -> list[Drawn]:
     if res.any_punishment is not None:
         drawn = anyp.figure(res.any_punishment)
         out += [drawn] if drawn is not None else []
-    return out
+    return out + part_figures(res)
 
 
 RENDERER = Renderer(console=console, as_json=as_json, figures=figures)

@@ -15,6 +15,10 @@ import numpy as np
 
 from sim.core.records import Record
 from sim.theory.any_punishment import AnyPunishmentResult, AnyPunishmentSpec, any_punishment_analysis
+from sim.theory.contact_section import ContactSection, contact_section
+from sim.theory.enforcement_section import EnforcementQuestion, EnforcementSection, enforcement_section
+from sim.theory.multimarket import ContactGame
+from sim.theory.states_section import DemandStatesSection, StatesQuestion, states_section
 from sim.theory.thresholds import critical_discount_factors
 from sim.theory.trigger_price import trigger_price_equilibrium
 
@@ -42,6 +46,12 @@ class ThresholdsSpec:
         Its standard deviation.
     any_punishment : AnyPunishmentSpec or None
         The lowest threshold under any punishment, asked for by an ``[any_punishment]`` table (None: not asked).
+    enforcement : EnforcementQuestion or None
+        Detection, fines and leniency (``[enforcement]``).
+    demand_states : StatesQuestion or None
+        Demand states and the parameter that moves with them (``[demand_states]``).
+    contact : ContactGame or None
+        Markets linked by the same firms (``[contact]``).
     """
 
     market: object
@@ -52,6 +62,9 @@ class ThresholdsSpec:
     noise: str | None = None
     sigma: float = 0.0
     any_punishment: AnyPunishmentSpec | None = None
+    enforcement: EnforcementQuestion | None = None
+    demand_states: StatesQuestion | None = None
+    contact: ContactGame | None = None
 
 
 @dataclass(frozen=True)
@@ -75,6 +88,12 @@ class ThresholdsResult(Record):
     any_punishment : AnyPunishmentResult or None
         The lowest critical discount factor under any punishment on an action grid, with the named schemes on
         the same grid (None when the experiment has no ``[any_punishment]`` table).
+    enforcement : EnforcementSection or None
+        Collusion under detection, fines and leniency (:mod:`sim.theory.enforcement_section`).
+    demand_states : DemandStatesSection or None
+        Per-state thresholds and the best state-contingent path (:mod:`sim.theory.states_section`).
+    contact : ContactSection or None
+        Pooled thresholds of markets linked by the same firms (:mod:`sim.theory.contact_section`).
     """
 
     market: dict
@@ -84,6 +103,9 @@ class ThresholdsResult(Record):
     deltas: list
     trigger_price: list | None = None
     any_punishment: AnyPunishmentResult | None = None
+    enforcement: EnforcementSection | None = None
+    demand_states: DemandStatesSection | None = None
+    contact: ContactSection | None = None
 
     @property
     def n_firms(self) -> int:
@@ -125,9 +147,17 @@ def thresholds_analysis(spec: ThresholdsSpec) -> ThresholdsResult:
     caps = [float(c) if np.isfinite(c) else None for c in ms.capacity]
     products = {"cost": [float(c) for c in ms.cost], "capacity": caps, "owner": (ms.owner + 1).tolist(),
                 "quantity_setting": bool(ms.quantity_setting), "n_firms": int(ms.n_firms)}
-    anyp = None
+    extra = {}
     if spec.any_punishment is not None:
-        anyp = any_punishment_analysis(spec.market, spec.any_punishment, spec.agreement, spec.actions)
+        extra["any_punishment"] = any_punishment_analysis(spec.market, spec.any_punishment, spec.agreement,
+                                                          spec.actions)
+    if spec.enforcement is not None:
+        extra["enforcement"] = enforcement_section(spec.market, spec.enforcement, spec.deltas, spec.agreement,
+                                                   spec.actions)
+    if spec.demand_states is not None:
+        extra["demand_states"] = states_section(spec.market, spec.demand_states, spec.deltas, spec.agreement)
+    if spec.contact is not None:
+        extra["contact"] = contact_section(spec.contact, spec.deltas)
     return ThresholdsResult(market=spec.market.to_dict(), products=products, report=report.to_dict(),
                             punishments=[int(t) for t in spec.punishments], deltas=[float(d) for d in spec.deltas],
-                            trigger_price=tp, any_punishment=anyp)
+                            trigger_price=tp, **extra)

@@ -9,6 +9,13 @@ from sim.core.tables import refuse_unknown
 from sim.models.market import market_from_dict
 from sim.models.monitoring import monitoring_from_dict
 from sim.runner.analyses.common import GENERAL_ASSUMPTIONS, collusion_of, describe_market, nan_if_none, stage_of
+from sim.runner.analyses.thresholds_parts import (
+    PART_TABLES,
+    describe_parts,
+    part_metrics,
+    part_names,
+    prepare_parts,
+)
 from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
 from sim.theory.analysis import ThresholdsResult, ThresholdsSpec, thresholds_analysis
@@ -79,8 +86,9 @@ def _prepare_thresholds(doc: dict) -> dict:
     if "any_punishment" in doc:
         table = refuse_unknown(doc["any_punishment"], "any_punishment", _AP_KEYS)
         ap = check_any_punishment(table, market, agreement, actions)
+    parts = prepare_parts(doc, market, agreement, ds)
     spec = ThresholdsSpec(market, agreement, actions, tuple(Ts), tuple(ds), mon["noise"] if trigger else None,
-                          float(mon["sigma"]), ap)
+                          float(mon["sigma"]), ap, **parts)
     return {"spec": spec, "market": market, "n_firms": ms.n_firms, "agreement": agreement, "actions": actions,
             "punishments": Ts, "deltas": ds, "monitoring": mon, "trigger_price": trigger, "any_punishment": ap}
 
@@ -103,7 +111,7 @@ def _threshold_names(cfg: dict) -> list[str]:
             out += [f"trigger_price.{x}[{j + 1}]" for x in _TP_FIELDS]
     if cfg.get("any_punishment") is not None:
         out += _any_punishment_names(n)
-    return out
+    return out + part_names(cfg)
 
 
 def _any_punishment_names(n: int) -> list[str]:
@@ -194,6 +202,7 @@ def threshold_metrics(res: ThresholdsResult) -> dict:
             m[f"trigger_price.{x}[{j + 1}]"] = nan_if_none(vals[x])
     if res.any_punishment is not None:
         m.update(_any_punishment_metrics(res.any_punishment, n))
+    m.update(part_metrics(res))
     return m
 
 
@@ -204,12 +213,12 @@ def _describe_thresholds(doc: dict) -> list[str]:
             f"Agreement: {coll.get('agreement', 'given' if 'actions' in coll else 'joint')}",
             f"Punishment lengths T of Nash reversion: {th.get('punishments', [1, 2, 3, 5, 10])}",
             f"Discount factors for partial collusion: {th.get('deltas', [])}"] + (
-        [f"Any punishment: {doc['any_punishment']}"] if "any_punishment" in doc else [])
+        [f"Any punishment: {doc['any_punishment']}"] if "any_punishment" in doc else []) + describe_parts(doc)
 
 
 KIND = Kind(
     name="thresholds",
-    tables=("market", "collusion", "thresholds", "monitoring", "any_punishment"),
+    tables=("market", "collusion", "thresholds", "monitoring", "any_punishment") + PART_TABLES,
     prepare=_prepare_thresholds,
     run=_run_thresholds,
     metric_names=_threshold_names,
