@@ -128,23 +128,30 @@ def strategy_from_dict(table: dict, prefix: str = "strategy") -> Automaton:
     return strat
 
 
-def check_seats(key: str, seats) -> int:
-    """The ``seats`` of a line-up entry: an integer in ``[1, MAX_SEATS]``. Every reader of line-ups
-    (simulations, learning sessions) uses this, and then compares the total with the market's firms.
+def check_seats(key: str, seats, n_firms: int | None = None) -> int:
+    """The ``seats`` of a line-up entry: an integer in ``[1, MAX_SEATS]``, or ``"all"``: every firm of the
+    market (so that the number of firms can be swept alone). Every reader of line-ups (simulations, learning
+    sessions) uses this, and then compares the total with the market's firms.
 
     Parameters
     ----------
     key : str
         Key path of the value, for the error message.
-    seats : int
+    seats : int or "all"
         The value as given.
+    n_firms : int, optional
+        The market's number of firms (what ``"all"`` stands for).
 
     Returns
     -------
     int
     """
+    if seats == "all":
+        if n_firms is None:
+            raise InputError(key, "'all' seats every firm of the market, which is not known here")
+        return int(n_firms)
     if isinstance(seats, bool) or not isinstance(seats, numbers.Integral) or not 1 <= seats <= MAX_SEATS:
-        raise InputError(key, f"must be an integer in [1, {MAX_SEATS}], got {seats!r}")
+        raise InputError(key, f"must be an integer in [1, {MAX_SEATS}] or 'all', got {seats!r}")
     return int(seats)
 
 
@@ -173,7 +180,7 @@ def lineup_from_tables(tables, n_firms: int | None = None, prefix: str = "strate
     for k, t in enumerate(tables):
         key = f"{prefix}[{k + 1}]"
         strat = strategy_from_dict(t, key)
-        seats = check_seats(f"{key}.seats", t.get("seats", 1))
+        seats = check_seats(f"{key}.seats", t.get("seats", 1), n_firms)
         total += seats
         if n_firms is None or total <= n_firms:  # no clones beyond the market's firms (refused below)
             out.extend(strat.clone() for _ in range(seats))

@@ -129,6 +129,10 @@ ENTRIES: dict[str, Entry] = {
     "trigger_price.war_length": Entry("price-war length, trigger-price equilibrium", "periods",
                                       "Periods of static Nash after the price falls below the trigger.",
                                       "Green and Porter (1984)"),
+    "trigger_price.degenerate": Entry("no trigger-price collusion possible", "yes (1) / no (0)",
+                                      "Whether no output below static Nash can be sustained, so that the "
+                                      "'equilibrium' scheme played is static Nash itself (trigger 0).",
+                                      "Green and Porter (1984)"),
     "trigger_price.war_probability": Entry("probability of a price war per collusive period", "probability",
                                            "The chance that the shocked price falls below the trigger.",
                                            "Green and Porter (1984)"),

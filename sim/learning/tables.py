@@ -105,7 +105,7 @@ def _lineup_from_entries(entries, base: dict, n_firms: int) -> list:
         key = f"strategies[{k + 1}]"
         if not isinstance(t, dict):
             raise InputError(key, f"must be a table with a 'strategy' key, got {t!r}")
-        seats = check_seats(f"{key}.seats", t.get("seats", 1))
+        seats = check_seats(f"{key}.seats", t.get("seats", 1), n_firms)
         if t.get("strategy") == QLearner.name:
             strat = learner_from_entry(t, base, key, skip=("strategy", "seats"))
         else:

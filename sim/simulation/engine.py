@@ -163,7 +163,7 @@ def simulate(market, lineup, monitoring=None, periods: int = 1000, replications:
 # --------------------------------------------------------------------------------------------------
 
 SIMULATE_TABLES = ("experiment", "market", "collusion", "monitoring", "strategies", "run")
-_EXPERIMENT_KEYS = ("name", "kind", "description")
+_EXPERIMENT_KEYS = ("name", "kind", "description", "currency", "period")
 _COLLUSION_KEYS = ("agreement", "actions")
 RUN_DEFAULTS = {"periods": 1000, "replications": 1000, "horizon": "fixed", "continuation": 0.99, "delta": 0.95,
                 "seed": 0, "paths": 0}

@@ -256,7 +256,7 @@ def test_unknown_keys_are_worded_as_everywhere(tmp_path, capsys, old, new, key, 
 
 @pytest.mark.parametrize(("seats", "key", "message"), [
     ("5", "strategies", "the line-up has 6 seats but the market has 2 firms"),
-    ("0", "strategies[2].seats", "must be an integer in [1, 100000], got 0"),
+    ("0", "strategies[2].seats", "must be an integer in [1, 100000] or 'all', got 0"),
 ])
 def test_seats_follow_the_simulation_rules(tmp_path, capsys, seats, key, message):
     """One rule for seats (strategies.registry.check_seats), then the total against the market's firms."""

@@ -41,6 +41,7 @@ from sim.simulation.analysis import SimulateResult, simulate_analysis
 from sim.simulation.baseline import scheme_of
 from sim.simulation.engine import RUN_DEFAULTS, check_run, compile_game, simulation_from_dict
 from sim.theory.thresholds import grim_threshold
+from sim.theory.trigger_price import trigger_price_equilibrium
 from strategies import TableAutomaton, strategy_from_dict
 from strategies.automata import FinitePunishment, GrimTrigger
 from strategies.base import FirmContext
@@ -110,6 +111,7 @@ def _prepare_simulate(doc: dict) -> dict:
             confidence = CONFIDENCE.check("run.confidence", run_t["confidence"])
         sub["run"] = {k: v for k, v in run_t.items() if k != "confidence"}
     cfg = simulation_from_dict(sub, check_tables=True)
+    scheme = _equilibrium_triggers(cfg)
     ms = cfg["market"].spec()
     agreement, actions = collusion_of(doc)
     lineup = lineup_from_tables(cfg["strategies"], ms.n_firms, "strategies")
@@ -121,7 +123,7 @@ def _prepare_simulate(doc: dict) -> dict:
     game = compile_game(stage, levels, lineup, cfg["monitoring"])
     out = {"market": cfg["market"], "market_table": doc["market"], "spec": ms, "agreement": agreement,
            "actions": actions, "lineup": lineup, "monitoring": cfg["monitoring"], "run": run, "game": game,
-           "deviation": None, "confidence": confidence}
+           "deviation": None, "confidence": confidence, "trigger_scheme": scheme}
     if "deviation" in doc:
         dt = refuse_unknown(doc["deviation"], "deviation", _DEV_KEYS)
         firm = dt.get("firm", "binding")
@@ -146,6 +148,38 @@ def _prepare_simulate(doc: dict) -> dict:
     return out
 
 
+def _equilibrium_triggers(cfg: dict):
+    """Line-up entries with ``trigger = "equilibrium"`` play the best trigger-price equilibrium of the cell's market
+    (Green and Porter, 1984; :func:`sim.theory.trigger_price.trigger_price_equilibrium`): its trigger, its war
+    length and its common quantity, computed for this cell and stored with its results. Where no output below
+    static Nash can be sustained, the entries compete (``always_compete``) and the cell is marked degenerate.
+    Returns the scheme (None when no entry asks for it)."""
+
+    ents = cfg["strategies"]
+    wants = [k for k, e in enumerate(ents) if isinstance(e, dict) and e.get("strategy") == "trigger_price"
+             and e.get("trigger") == "equilibrium"]
+    if not wants:
+        return None
+    mon = cfg["monitoring"]
+    key = f"strategies[{wants[0] + 1}].trigger"
+    if mon.signal != "price" or not mon.sigma > 0:
+        raise InputError(key, "'equilibrium' needs firms that see only a noisy market price (monitoring.signal = "
+                              "\"price\" and monitoring.sigma above 0)")
+    try:
+        scheme = trigger_price_equilibrium(cfg["market"], cfg["run"]["delta"], mon.noise, mon.sigma)
+    except InputError as exc:
+        raise InputError(key, f"no trigger-price equilibrium in this market: {exc.message}") from None
+    for k in wants:
+        if scheme.trigger == 0.0:
+            # no output below static Nash can be sustained: the firms compete, and the cell says so
+            # (trigger_price.degenerate) rather than counting static Nash play as collusion
+            ents[k] = {"strategy": "always_compete", **({"seats": ents[k]["seats"]} if "seats" in ents[k] else {})}
+        else:
+            ents[k] = {**ents[k], "trigger": float(scheme.trigger), "collude": float(scheme.quantity),
+                       "length": "forever" if scheme.T is None else int(scheme.T)}
+    return scheme
+
+
 def _simulate_names(cfg: dict) -> list[str]:
     n = cfg["spec"].n_firms
     out = []
@@ -159,6 +193,9 @@ def _simulate_names(cfg: dict) -> list[str]:
     out += ["analytic.critical_delta", "analytic.effective_delta", "analytic.clears"]
     out += [f"analytic.critical_delta.{s}" for s in _schemes(cfg)]
     out += ["analytic.war_probability", "analytic.war_share_long_run", "analytic.equilibrium"]
+    if cfg.get("trigger_scheme") is not None:
+        out += ["trigger_price.trigger", "trigger_price.war_length", "trigger_price.quantity",
+                "trigger_price.degenerate"]
     if cfg["deviation"] is not None:
         out += ["deviation.firm", "deviation.gain", "deviation.gain.se", "deviation.gain.low", "deviation.gain.high",
                 "deviation.pays", "deviation.conform_value", "deviation.deviate_value", "analytic.deviation.gain"]
@@ -265,6 +302,13 @@ def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
     arrays["collusive_by_period"] = share
     if b.get("collusive_by_period") is not None:
         arrays["analytic.collusive_by_period"] = thin(b["collusive_by_period"])[1]
+    sch = cfg.get("trigger_scheme")
+    if sch is not None:
+        m["trigger_price.trigger"] = float(sch.trigger)
+        m["trigger_price.war_length"] = math.inf if sch.T is None else float(sch.T)  # stored empty: forever
+        m["trigger_price.quantity"] = float(sch.quantity)
+        # no output below static Nash can be sustained: the "equilibrium" is static Nash (trigger 0)
+        m["trigger_price.degenerate"] = float(sch.trigger == 0.0)
     dev = result.deviation
     if dev is not None:
         m["deviation.firm"] = dev.firm
