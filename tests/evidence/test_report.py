@@ -178,7 +178,9 @@ def test_single_cell_report_has_a_metric_table_and_the_period_figure(tmp_path):
     s = run_experiment(p, tmp_path / "run", workers=1, report=True, write_report=write_report, progress=False)
     md = (s.report / "summary.md").read_text()
     assert "| metric | value | 95% CI | analytic |" in md
-    assert (s.report / "figures" / "collusive-share-by-period.png").is_file()
+    # the renderer's figures of the stored result (the ones supergame simulate --plot draws)
+    assert (s.report / "figures" / "collusion-over-time.png").is_file()
+    assert (s.report / "figures" / "spell-survival.png").is_file()
 
 
 @pytest.mark.slow
