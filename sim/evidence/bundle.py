@@ -54,7 +54,7 @@ from sim.core.text import CAUTION, fmt_num
 from sim.evidence.render import figure_bytes, pyplot
 from sim.runner.store import csv_text
 
-__all__ = ["Bundle", "clear_leftovers", "holds_bundle", "latex_table", "markdown_table"]
+__all__ = ["Bundle", "Estimate", "clear_leftovers", "holds_bundle", "latex_table", "markdown_table"]
 
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}\Z")
 BUNDLE_FORMAT = "supergame-bundle/1"
@@ -75,8 +75,42 @@ def holds_bundle(folder) -> bool:
     return isinstance(man, dict) and str(man.get("format", "")).startswith("supergame-bundle")
 
 
+@dataclass(frozen=True)
+class Estimate:
+    """A number and its 95 % interval, shown in one table cell (the interval under the number in the HTML page), so
+    that a table of many estimates stays narrow enough to read and print.
+
+    Attributes
+    ----------
+    value, low, high : float
+    """
+
+    value: float
+    low: float
+    high: float
+
+    def parts(self, digits: int = 4) -> tuple:
+        """The number and its interval as text (``"-"`` for an interval the cell does not report).
+
+        Parameters
+        ----------
+        digits : int
+
+        Returns
+        -------
+        tuple of (str, str)
+        """
+        bounds = (self.low, self.high)
+        ci = "-" if any(b is None or math.isnan(b) for b in bounds) else \
+            f"[{fmt_num(self.low, digits)}, {fmt_num(self.high, digits)}]"
+        return _fmt(self.value, digits), ci
+
+
 def _fmt(v: Any, digits: int) -> str:
 
+    if isinstance(v, Estimate):
+        value, ci = v.parts(digits)
+        return value if ci == "-" else f"{value} {ci}"
     if v is None:
         return "-"
     if isinstance(v, str):
@@ -140,6 +174,14 @@ def _inline_html(text: str) -> str:
     return re.sub(r"\*\*([^*]+)\*\*", r"<strong>\1</strong>", t)
 
 
+def _cell_html(v, num: bool, digits: int) -> str:
+    """One table cell: numbers right-aligned, an estimate with its interval under it."""
+    if isinstance(v, Estimate):
+        value, ci = v.parts(digits)
+        return f'<td class="num">{html.escape(value)}<br><span class="ci">{html.escape(ci)}</span></td>'
+    return f'<td class="{"num" if num else "text"}">{html.escape(_fmt(v, digits))}</td>'
+
+
 def _slug(text: str, taken: set) -> str:
     """A unique anchor for a heading: lower-case words joined by dashes."""
     base = re.sub(r"[^a-z0-9]+", "-", str(text).lower()).strip("-") or "section"
@@ -165,10 +207,11 @@ h3 { font-size: 1.05rem; }
 code { overflow-wrap: anywhere; }
 .table-wrap { max-width: 100%; overflow-x: auto; margin: .8rem 0; }
 table { border-collapse: collapse; font-size: .85rem; }
-th, td { padding: .2rem .6rem; border-bottom: 1px solid #ddd; vertical-align: top; }
-th { border-bottom: 2px solid #444; text-align: left; font-weight: 600; min-width: 4rem; }
+th, td { padding: .2rem .45rem; border-bottom: 1px solid #ddd; vertical-align: top; }
+th { border-bottom: 2px solid #444; text-align: left; font-weight: 600; hyphens: auto; }
 td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
-td.text { min-width: 8rem; }
+td.text { min-width: 6rem; }
+td .ci { color: #555; font-size: .9em; }
 caption { caption-side: top; text-align: left; font-weight: 600; padding-bottom: .3rem; }
 figure { margin: 1.2rem 0; } figure img { width: 100%; height: auto; border: 1px solid #eee; }
 figcaption { font-size: .85rem; color: #333; }
@@ -482,17 +525,15 @@ class Bundle:
 
     def _table_html(self, d: dict) -> list:
         rows = d["rows"][: d["max_rows"]]
-        nums = [bool(rows) and all(isinstance(r[j], int | float) and not isinstance(r[j], bool) for r in rows)
-                for j in range(len(d["headers"]))]
+        nums = [bool(rows) and all(isinstance(r[j], int | float | Estimate) and not isinstance(r[j], bool)
+                                   for r in rows) for j in range(len(d["headers"]))]
         t = ['<div class="table-wrap"><table>']
         if d["caption"]:
             t.append(f"<caption>{_inline_html(d['caption'])}</caption>")
         t.append("<thead><tr>" + "".join(f"<th>{html.escape(h)}</th>" for h in d["headers"]) + "</tr></thead>")
         t.append("<tbody>")
         for r in rows:
-            t.append("<tr>" + "".join(
-                f'<td class="num">{html.escape(_fmt(v, d["digits"]))}</td>' if nums[j]
-                else f'<td class="text">{html.escape(_fmt(v, d["digits"]))}</td>' for j, v in enumerate(r)) + "</tr>")
+            t.append("<tr>" + "".join(_cell_html(v, nums[j], d["digits"]) for j, v in enumerate(r)) + "</tr>")
         t.append("</tbody></table></div>")
         extra = []
         if d["note"]:

@@ -26,7 +26,7 @@ import sim.evidence.figures as figures
 from sim.core.errors import InputError
 from sim.core.files import symlinks_in
 from sim.core.text import fmt_num
-from sim.evidence.bundle import Bundle, clear_leftovers, holds_bundle
+from sim.evidence.bundle import Bundle, Estimate, clear_leftovers, holds_bundle
 from sim.evidence.figures import SweepData, _plt
 from sim.evidence.front import (
     headline,
@@ -458,20 +458,21 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
             # the CSV keeps the stored names, so that it joins with results.csv (the glossary gives their labels)
             csv_hdr = ["cell", *[p.path for p in exp.parameters]]
             for m in heads:
-                hdr.append(metric_column(m, units))
-                csv_hdr.append(m)
-                if any(f"{m}.low" in r.metrics for r in rows):
-                    hdr.append("95 % interval")
-                    csv_hdr += [f"{m}.low", f"{m}.high"]
+                ci = any(f"{m}.low" in r.metrics for r in rows)
+                hdr.append(metric_column(m, units) + (" and 95 % interval" if ci else ""))
+                csv_hdr += [m, f"{m}.low", f"{m}.high"] if ci else [m]
             for r in rows:
                 labels = [r.labels[p.path] if not p.numeric else r.params[p.path] for p in exp.parameters]
                 d, c = [r.number, *labels], [r.number, *labels]
                 for m in heads:
-                    d.append(r.metrics.get(m, math.nan))
-                    c.append(r.metrics.get(m, math.nan))
+                    v = r.metrics.get(m, math.nan)
+                    c.append(v)
                     if any(f"{m}.low" in q.metrics for q in rows):
-                        d.append(_ci(r, m))
-                        c += [r.metrics.get(f"{m}.low", math.nan), r.metrics.get(f"{m}.high", math.nan)]
+                        lo, hi = r.metrics.get(f"{m}.low", math.nan), r.metrics.get(f"{m}.high", math.nan)
+                        d.append(Estimate(v, lo, hi))
+                        c += [lo, hi]
+                    else:
+                        d.append(v)
                 disp_rows.append(d)
                 csv_rows.append(c)
             b.table("summary", hdr, disp_rows, caption="Headline results per cell", csv_rows=(csv_hdr, csv_rows),
