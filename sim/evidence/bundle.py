@@ -205,14 +205,14 @@ h1 { font-size: 1.6rem; border-bottom: 2px solid #444; padding-bottom: .3rem; }
 h2 { font-size: 1.25rem; margin-top: 2rem; border-bottom: 1px solid #bbb; }
 h3 { font-size: 1.05rem; }
 code { overflow-wrap: anywhere; }
-.table-wrap { max-width: 100%; overflow-x: auto; margin: .8rem 0; }
+.table-wrap { max-width: 100%; overflow-x: auto; margin: 0 0 .8rem; }
 table { border-collapse: collapse; font-size: .85rem; }
 th, td { padding: .2rem .45rem; border-bottom: 1px solid #ddd; vertical-align: top; }
 th { border-bottom: 2px solid #444; text-align: left; font-weight: 600; hyphens: auto; }
 td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 td.text { min-width: 6rem; }
 td .ci { color: #555; font-size: .9em; }
-caption { caption-side: top; text-align: left; font-weight: 600; padding-bottom: .3rem; }
+.table-caption { font-weight: 600; font-size: .85rem; margin: .8rem 0 .2rem; }
 figure { margin: 1.2rem 0; } figure img { width: 100%; height: auto; border: 1px solid #eee; }
 figcaption { font-size: .85rem; color: #333; }
 pre { background: #f5f5f5; padding: .6rem; overflow-x: auto; font-size: .8rem; white-space: pre-wrap;
@@ -527,9 +527,9 @@ class Bundle:
         rows = d["rows"][: d["max_rows"]]
         nums = [bool(rows) and all(isinstance(r[j], int | float | Estimate) and not isinstance(r[j], bool)
                                    for r in rows) for j in range(len(d["headers"]))]
-        t = ['<div class="table-wrap"><table>']
-        if d["caption"]:
-            t.append(f"<caption>{_inline_html(d['caption'])}</caption>")
+        # the caption sits above the table's frame, so that it wraps to the page when a wide table scrolls
+        t = [f'<p class="table-caption">{_inline_html(d["caption"])}</p>' if d["caption"] else "",
+             '<div class="table-wrap"><table>']
         t.append("<thead><tr>" + "".join(f"<th>{html.escape(h)}</th>" for h in d["headers"]) + "</tr></thead>")
         t.append("<tbody>")
         for r in rows:
@@ -572,8 +572,11 @@ class Bundle:
                 out += self._table_html(d)
             elif b.kind == "figure":
                 uri = "data:image/png;base64," + base64.b64encode(d["png"]).decode("ascii")
-                out.append(f'<figure><img src="{uri}" alt="{html.escape(d["caption"])}">'
-                           f"<figcaption>{_inline_html(d['caption'])}</figcaption></figure>")
+                name = html.escape(d["name"])
+                out.append(f'<figure><a href="figures/{name}.png"><img src="{uri}" alt="{html.escape(d["caption"])}">'
+                           f"</a><figcaption>{_inline_html(d['caption'])} (full size: "
+                           f'<a href="figures/{name}.png">PNG</a>, <a href="figures/{name}.pdf">PDF</a>)'
+                           "</figcaption></figure>")
         out.append(f'<p class="caution"><strong>Caution.</strong> {html.escape(self.caution)}</p>')
         out += ["</body>", "</html>", ""]
         return "\n".join(out)

@@ -351,6 +351,25 @@ def _write(rf, folder: Path, out, update_manifest: bool) -> None:
               and Path(inside).parent.as_posix() == ".")
 
 
+def _promote_answer(b, question: str) -> None:
+    """The answer an analysis's own account gives (a section "Answer", or its conclusion) becomes the first page's
+    answer; an "Answer" section is then not repeated below it."""
+    blocks = b.blocks
+    for i, blk in enumerate(blocks[:-1]):
+        text = blk.data.get("text", "")
+        nxt = blocks[i + 1]
+        if blk.kind == "heading" and (text == "Answer" or text.startswith("Conclusion")) and nxt.kind == "paragraph":
+            numbers = [x for x in (b.front or {}).get("numbers", []) if "not available" not in x]
+            b.headline(question, [nxt.data["text"]], numbers)
+            if text == "Answer":
+                del blocks[i:i + 2]
+            return
+    if b.front is not None:
+        numbers = [x for x in b.front["numbers"] if "not available" not in x]
+        answer = b.front["answer"] if numbers else ["The results of the analysis follow, section by section."]
+        b.headline(question, answer, numbers)
+
+
 def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) -> None:
     """The closing sections: failed cells, assumptions, the methods appendix (methods, software, reproducing) and
     the glossary."""
@@ -414,6 +433,7 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
     if render is not None:
         # the kind's own account of its results, read from the stored rows; the closing sections follow
         more = list(render(rf, b) or [])
+        _promote_answer(b, question)
         b.table("results", header, body, show=False)
         b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
                     f"(also `{CSV_FILE}` in the run folder).", note=True)

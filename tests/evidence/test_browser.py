@@ -87,7 +87,41 @@ ONE_CELL = textwrap.dedent("""
     seed = 7
     """)
 
-RUNS = {"sweep": SWEEP, "one-cell": ONE_CELL, "thresholds": TWO_MILLS}
+#: a tournament: the analysis's own account of the run (its answer promoted to the first page)
+TOURNAMENT = textwrap.dedent("""
+    # Browser check: three rules for two invented mills.
+    [experiment]
+    name = "browser-tournament"
+    kind = "tournament"
+    currency = "EUR"
+    period = "month"
+    description = "Which rule keeps the most of the collusive profit against the others?"
+    [market]
+    model = "cournot"
+    demand = "linear"
+    intercept = 100.0
+    cost = 10.0
+    n_firms = 2
+    [[entrants]]
+    label = "grim trigger"
+    strategy = "grim_trigger"
+    [[entrants]]
+    label = "always compete"
+    strategy = "always_compete"
+    [[entrants]]
+    label = "tit for tat"
+    strategy = "tit_for_tat"
+    [tournament]
+    bootstrap = 20
+    generations = 5
+    population = 4
+    moran_runs = 0
+    [run]
+    periods = 12
+    replications = 4
+    """)
+
+RUNS = {"sweep": SWEEP, "one-cell": ONE_CELL, "thresholds": TWO_MILLS, "tournament": TOURNAMENT}
 
 
 @pytest.fixture(scope="module")
