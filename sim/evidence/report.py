@@ -359,8 +359,8 @@ def _promote_answer(b, question: str) -> None:
         text = blk.data.get("text", "")
         nxt = blocks[i + 1]
         if blk.kind == "heading" and (text == "Answer" or text.startswith("Conclusion")) and nxt.kind == "paragraph":
-            numbers = [x for x in (b.front or {}).get("numbers", []) if "not available" not in x]
-            b.headline(question, [nxt.data["text"]], numbers)
+            # its own account gives its numbers, in its own words, right below
+            b.headline(question, [nxt.data["text"]])
             if text == "Answer":
                 del blocks[i:i + 2]
             return
