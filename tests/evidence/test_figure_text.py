@@ -197,6 +197,22 @@ def test_a_sweep_of_one_value_keeps_its_text_apart(tmp_path):
             _D("lines", figs.lines(data, "monitoring.perception_error", "profit_gain", group="strategies.1"))])
 
 
+def test_a_dense_sweep_in_three_panels_keeps_its_text_apart(tmp_path):
+    # ten discount factors in each of three panels (the demo's shape): tick labels must not run into each other
+    p = tmp_path / "dense.toml"
+    deltas = "[" + ", ".join(f"{0.5 + 0.05 * k:.2f}" for k in range(10)) + "]"
+    p.write_text(SWEEP.replace('[0.5, 0.65, 0.8, 0.95]', deltas).replace('[0.0, 0.01, 0.05]', '[0.0, 0.02]')
+                 .replace("replications = 8", "replications = 2").replace("periods = 30", "periods = 10"))
+    s = run_experiment(p, tmp_path / "run", workers=1, progress=False)
+    with open_run(s.folder) as rf:
+        exp, rows = rf.experiment, rf.rows()
+    data = figs.SweepData(list(exp.parameters), rows)
+    _check([_D("dense", figs.heatmap(data, "run.delta", "monitoring.perception_error", "collusive_share",
+                                     threshold="analytic.critical_delta", facet="strategies.1")),
+            _D("dense-lines", figs.lines(data, "run.delta", "collusive_share", group="strategies.1",
+                                         facet="monitoring.perception_error"))])
+
+
 def test_the_single_cell_figures_of_a_report_keep_their_text_apart(tmp_path):
     p = tmp_path / "cell.toml"
     p.write_text(SWEEP.split("[sweep]")[0].replace("seed = 3", "seed = 3\ndelta = 0.9")
