@@ -34,6 +34,7 @@ from sim.evidence.assess_tables import (
     units,
     yes_no,
 )
+from sim.evidence.front import parameter_column
 from sim.evidence.render import Renderer, pyplot
 from sim.runner.analyses.assess import describe_cell
 
@@ -243,7 +244,8 @@ def _sweep_account(rf, b, exp, rows) -> list:
                 "`arrays.json`.", note=True)
     b.heading("Sweep")
     b.table("sweep", ["parameter", "values", "number"],
-            [[p.path, ", ".join(p.labels), len(p)] for p in exp.parameters], caption="Swept parameters")
+            [[parameter_column(p.path), ", ".join(p.labels), len(p)] for p in exp.parameters],
+            caption="Swept parameters")
     b.heading("Results")
     done = [(r, rf.result(r.cell)) for r in rows if r.status == "ok"]
     done = [(r, a) for r, a in done if a is not None]
@@ -257,7 +259,7 @@ def _sweep_account(rf, b, exp, rows) -> list:
                      c["binding_before"], c["threshold_after"], c["binding_after"], c["direction"],
                      yes_no(c["sustainable_before"]), yes_no(c["sustainable_after"])])
     c0 = done[0][1].conclusion
-    b.table("cells", ["cell", *[p.path for p in exp.parameters], "threshold before", "binding before",
+    b.table("cells", ["cell", *[parameter_column(p.path) for p in exp.parameters], "threshold before", "binding before",
                       "threshold after", "binding after", "effect of the merger", "sustainable before", "after"],
             body, caption=f"Conclusion of every finished cell ({c0['scheme']})",
             note="'-': not sustainable below one; sustainable: at the cell's discount factor")
@@ -277,13 +279,14 @@ def _sweep_figure(b, p, done: list, scheme: str) -> None:
         ax.plot(xs[srt], y, ls, ms=3, color=col, label=label)
     if p.log:
         ax.set_xscale("log")
-    ax.set_xlabel(p.path)
+    ax.set_xlabel(parameter_column(p.path))
     ax.set_ylabel("critical discount factor (market)")
     ax.set_ylim(0, 1.02)
     ax.legend(fontsize=8)
     fig.tight_layout()
     b.figure("thresholds-over-sweep", fig, f"Critical discount factor ({scheme}) before and after the merger "
-                                           f"against {p.path}; a missing point is not sustainable below one.")
+                                           f"against the {parameter_column(p.path)}; a missing point is not "
+                                           "sustainable below one.")
 
 
 RENDERER = Renderer(console=console, as_json=as_json, figures=figures, bundle=bundle)

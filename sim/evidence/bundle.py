@@ -54,7 +54,7 @@ from sim.core.text import CAUTION, fmt_num
 from sim.evidence.render import figure_bytes, pyplot
 from sim.runner.store import csv_text
 
-__all__ = ["Bundle", "clear_leftovers", "holds_bundle", "latex_table", "markdown_table"]
+__all__ = ["Bundle", "Estimate", "clear_leftovers", "holds_bundle", "latex_table", "markdown_table"]
 
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}\Z")
 BUNDLE_FORMAT = "supergame-bundle/1"
@@ -75,8 +75,42 @@ def holds_bundle(folder) -> bool:
     return isinstance(man, dict) and str(man.get("format", "")).startswith("supergame-bundle")
 
 
+@dataclass(frozen=True)
+class Estimate:
+    """A number and its 95 % interval, shown in one table cell (the interval under the number in the HTML page), so
+    that a table of many estimates stays narrow enough to read and print.
+
+    Attributes
+    ----------
+    value, low, high : float
+    """
+
+    value: float
+    low: float
+    high: float
+
+    def parts(self, digits: int = 4) -> tuple:
+        """The number and its interval as text (``"-"`` for an interval the cell does not report).
+
+        Parameters
+        ----------
+        digits : int
+
+        Returns
+        -------
+        tuple of (str, str)
+        """
+        bounds = (self.low, self.high)
+        ci = "-" if any(b is None or math.isnan(b) for b in bounds) else \
+            f"[{fmt_num(self.low, digits)}, {fmt_num(self.high, digits)}]"
+        return _fmt(self.value, digits), ci
+
+
 def _fmt(v: Any, digits: int) -> str:
 
+    if isinstance(v, Estimate):
+        value, ci = v.parts(digits)
+        return value if ci == "-" else f"{value} {ci}"
     if v is None:
         return "-"
     if isinstance(v, str):
@@ -140,6 +174,24 @@ def _inline_html(text: str) -> str:
     return re.sub(r"\*\*([^*]+)\*\*", r"<strong>\1</strong>", t)
 
 
+def _cell_html(v, num: bool, digits: int) -> str:
+    """One table cell: numbers right-aligned, an estimate with its interval under it."""
+    if isinstance(v, Estimate):
+        value, ci = v.parts(digits)
+        return f'<td class="num">{html.escape(value)}<br><span class="ci">{html.escape(ci)}</span></td>'
+    return f'<td class="{"num" if num else "text"}">{html.escape(_fmt(v, digits))}</td>'
+
+
+def _slug(text: str, taken: set) -> str:
+    """A unique anchor for a heading: lower-case words joined by dashes."""
+    base = re.sub(r"[^a-z0-9]+", "-", str(text).lower()).strip("-") or "section"
+    slug, k = base, 2
+    while slug in taken:
+        slug, k = f"{base}-{k}", k + 1
+    taken.add(slug)
+    return slug
+
+
 @dataclass
 class _Block:
     kind: str
@@ -147,21 +199,39 @@ class _Block:
 
 
 _CSS = """
-body { font-family: -apple-system, "Segoe UI", Helvetica, Arial, sans-serif; max-width: 60rem; margin: 2rem auto;
-       padding: 0 1rem; color: #1b1b1b; line-height: 1.45; }
+body { font-family: -apple-system, "Segoe UI", Helvetica, Arial, sans-serif; max-width: 62rem; margin: 2rem auto;
+       padding: 0 1rem; color: #1b1b1b; line-height: 1.45; overflow-wrap: break-word; }
 h1 { font-size: 1.6rem; border-bottom: 2px solid #444; padding-bottom: .3rem; }
 h2 { font-size: 1.25rem; margin-top: 2rem; border-bottom: 1px solid #bbb; }
 h3 { font-size: 1.05rem; }
-table { border-collapse: collapse; margin: .8rem 0; font-size: .85rem; }
-th, td { padding: .2rem .6rem; border-bottom: 1px solid #ddd; }
-th { border-bottom: 2px solid #444; text-align: left; }
-td.num { text-align: right; font-variant-numeric: tabular-nums; }
-caption { caption-side: top; text-align: left; font-weight: 600; padding-bottom: .3rem; }
-figure { margin: 1.2rem 0; } figure img { max-width: 100%; border: 1px solid #eee; }
+code { overflow-wrap: anywhere; }
+.table-wrap { max-width: 100%; overflow-x: auto; margin: 0 0 .8rem; }
+table { border-collapse: collapse; font-size: .85rem; }
+th, td { padding: .2rem .45rem; border-bottom: 1px solid #ddd; vertical-align: top; }
+th { border-bottom: 2px solid #444; text-align: left; font-weight: 600; hyphens: auto; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+td.text { min-width: 6rem; }
+td .ci { color: #555; font-size: .9em; }
+.table-caption { font-weight: 600; font-size: .85rem; margin: .8rem 0 .2rem; }
+figure { margin: 1.2rem 0; } figure img { width: 100%; height: auto; border: 1px solid #eee; }
 figcaption { font-size: .85rem; color: #333; }
-pre { background: #f5f5f5; padding: .6rem; overflow-x: auto; font-size: .8rem; }
+pre { background: #f5f5f5; padding: .6rem; overflow-x: auto; font-size: .8rem; white-space: pre-wrap;
+      overflow-wrap: anywhere; }
+.headline { border: 1px solid #999; background: #f7f7f2; padding: .2rem 1rem .6rem; margin: 1rem 0; }
+.headline h2 { margin-top: .6rem; border: none; }
+.answer { font-size: 1.05rem; }
+nav.contents ol { columns: 2; font-size: .9rem; }
 .caution { border-left: 4px solid #b00; padding: .4rem .8rem; background: #fff4f4; }
 .note { font-size: .85rem; color: #555; }
+@media (max-width: 40rem) { nav.contents ol { columns: 1; } body { margin: 1rem auto; } }
+@media print {
+  body { max-width: none; margin: 0; font-size: 10pt; }
+  .table-wrap { overflow: visible; }
+  figure, table, .headline { break-inside: avoid; }
+  h2, h3 { break-after: avoid; }
+  a { color: inherit; text-decoration: none; }
+  pre { white-space: pre-wrap; }
+}
 """
 
 
@@ -196,6 +266,7 @@ class Bundle:
         self.blocks: list[_Block] = []
         self.manifest: dict = {}
         self.assumption_items: list = []
+        self.front: dict | None = None
         self.files: list[str] = []
         self._names: set = set()
         self.folder.parent.mkdir(parents=True, exist_ok=True)
@@ -218,6 +289,23 @@ class Bundle:
         shutil.rmtree(self._stage, ignore_errors=True)
 
     # -- text --------------------------------------------------------------------------------------
+
+    def headline(self, question: str, answer, numbers=(), heading: str = "In short") -> None:
+        """The first page: what was asked, the answer in a sentence or two, the key numbers with their intervals,
+        and the caution; shown first whenever it is added, followed by the contents of the bundle.
+
+        Parameters
+        ----------
+        question : str
+            What the experiment asks.
+        answer : sequence of str
+            One or two sentences.
+        numbers : sequence of str
+            The key numbers, one a line, each with its interval and unit.
+        heading : str
+        """
+        self.front = {"heading": heading, "question": question, "answer": [str(a) for a in answer],
+                      "numbers": [str(x) for x in numbers]}
 
     def heading(self, text: str, level: int = 2) -> None:
         """A section heading.
@@ -354,6 +442,31 @@ class Bundle:
         if rel not in self.files:
             self.files.append(rel)
 
+    def _anchors(self) -> dict:
+        """Anchor of every heading block (by position), the headline's first."""
+        taken = {"in-short", "contents"}
+        return {i: _slug(b.data["text"], taken) for i, b in enumerate(self.blocks) if b.kind == "heading"}
+
+    def _contents(self) -> list:
+        """(anchor, text) of the sections (level-2 headings), in reading order."""
+        anchors = self._anchors()
+        return [(anchors[i], b.data["text"]) for i, b in enumerate(self.blocks)
+                if b.kind == "heading" and b.data["level"] == 2]
+
+    def _front_markdown(self) -> list:
+        f = self.front
+        if f is None:
+            return []
+        out = [f"## {_md_text(f['heading'])}", "", f"**Question.** {_md_text(f['question'])}", "",
+               "**Answer.** " + " ".join(_md_text(a) for a in f["answer"]), ""]
+        if f["numbers"]:
+            out += ["**Key numbers.**", ""] + [f"- {_md_text(x)}" for x in f["numbers"]] + [""]
+        out += [f"**Caution.** {_md_text(self.caution)}", ""]
+        sections = self._contents()
+        if sections:
+            out += ["**Contents:** " + "; ".join(_md_text(t) for _, t in sections) + ".", ""]
+        return out
+
     def markdown(self) -> str:
         """The summary as Markdown (HTML in the text shown as text).
 
@@ -361,7 +474,7 @@ class Bundle:
         -------
         str
         """
-        out = [f"# {_md_text(self.title)}", ""]
+        out = [f"# {_md_text(self.title)}", "", *self._front_markdown()]
         for b in self.blocks:
             d = b.data
             if b.kind == "heading":
@@ -391,20 +504,63 @@ class Bundle:
         out += ["---", "", f"**Caution.** {self.caution}", ""]
         return "\n".join(out)
 
+    def _front_html(self) -> list:
+        f = self.front
+        out = []
+        if f is not None:
+            out.append(f'<section class="headline" id="in-short"><h2>{_inline_html(f["heading"])}</h2>')
+            out.append(f"<p><strong>Question.</strong> {_inline_html(f['question'])}</p>")
+            out.append('<p class="answer"><strong>Answer.</strong> '
+                       + " ".join(_inline_html(a) for a in f["answer"]) + "</p>")
+            if f["numbers"]:
+                out.append("<p><strong>Key numbers.</strong></p><ul>"
+                           + "".join(f"<li>{_inline_html(x)}</li>" for x in f["numbers"]) + "</ul>")
+            out.append(f'<p class="caution"><strong>Caution.</strong> {html.escape(self.caution)}</p></section>')
+        sections = self._contents()
+        if f is not None and sections:
+            out.append('<nav class="contents" id="contents"><strong>Contents</strong><ol>'
+                       + "".join(f'<li><a href="#{a}">{_inline_html(t)}</a></li>' for a, t in sections)
+                       + "</ol></nav>")
+        return out
+
+    def _table_html(self, d: dict) -> list:
+        rows = d["rows"][: d["max_rows"]]
+        nums = [bool(rows) and all(isinstance(r[j], int | float | Estimate) and not isinstance(r[j], bool)
+                                   for r in rows) for j in range(len(d["headers"]))]
+        # the caption sits above the table's frame, so that it wraps to the page when a wide table scrolls
+        t = [f'<p class="table-caption">{_inline_html(d["caption"])}</p>' if d["caption"] else "",
+             '<div class="table-wrap"><table>']
+        t.append("<thead><tr>" + "".join(f"<th>{html.escape(h)}</th>" for h in d["headers"]) + "</tr></thead>")
+        t.append("<tbody>")
+        for r in rows:
+            t.append("<tr>" + "".join(_cell_html(v, nums[j], d["digits"]) for j, v in enumerate(r)) + "</tr>")
+        t.append("</tbody></table></div>")
+        extra = []
+        if d["note"]:
+            extra.append(_inline_html(d["note"]))
+        if len(d["rows"]) > d["max_rows"]:
+            extra.append(f"first {d['max_rows']} of {len(d['rows'])} rows shown")
+        name = html.escape(d["name"])
+        extra.append(f'full table: <a href="tables/{name}.csv">tables/{name}.csv</a>, '
+                     f'<a href="tables/{name}.tex">tables/{name}.tex</a>')
+        return ["".join(t), f'<p class="note">{"; ".join(extra)}.</p>']
+
     def html(self) -> str:
-        """The summary as one self-contained HTML page (figures embedded).
+        """The summary as one HTML page (figures embedded; the tables' files linked).
 
         Returns
         -------
         str
         """
         out = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
+               '<meta name="viewport" content="width=device-width, initial-scale=1">',
                f"<title>{html.escape(self.title)}</title>", f"<style>{_CSS}</style>", "</head>", "<body>",
-               f"<h1>{html.escape(self.title)}</h1>"]
-        for b in self.blocks:
+               f"<h1>{html.escape(self.title)}</h1>", *self._front_html()]
+        anchors = self._anchors()
+        for i, b in enumerate(self.blocks):
             d = b.data
             if b.kind == "heading":
-                out.append(f"<h{d['level']}>{_inline_html(d['text'])}</h{d['level']}>")
+                out.append(f'<h{d["level"]} id="{anchors[i]}">{_inline_html(d["text"])}</h{d["level"]}>')
             elif b.kind == "paragraph":
                 cls = ' class="note"' if d["note"] else ""
                 out.append(f"<p{cls}>{_inline_html(d['text'])}</p>")
@@ -413,31 +569,14 @@ class Bundle:
             elif b.kind == "code":
                 out.append(f"<pre>{html.escape(d['text'])}</pre>")
             elif b.kind == "table":
-                rows = d["rows"][: d["max_rows"]]
-                nums = [bool(rows) and all(isinstance(r[j], int | float) and not isinstance(r[j], bool) for r in rows)
-                        for j in range(len(d["headers"]))]
-                t = ["<table>"]
-                if d["caption"]:
-                    t.append(f"<caption>{_inline_html(d['caption'])}</caption>")
-                t.append("<thead><tr>" + "".join(f"<th>{html.escape(h)}</th>" for h in d["headers"]) + "</tr></thead>")
-                t.append("<tbody>")
-                for r in rows:
-                    t.append("<tr>" + "".join(
-                        f'<td class="num">{html.escape(_fmt(v, d["digits"]))}</td>' if nums[j]
-                        else f"<td>{html.escape(_fmt(v, d['digits']))}</td>" for j, v in enumerate(r)) + "</tr>")
-                t.append("</tbody></table>")
-                out.append("".join(t))
-                extra = []
-                if d["note"]:
-                    extra.append(d["note"])
-                if len(d["rows"]) > d["max_rows"]:
-                    extra.append(f"First {d['max_rows']} of {len(d['rows'])} rows")
-                extra.append(f"table: tables/{d['name']}.csv, tables/{d['name']}.tex")
-                out.append(f'<p class="note">{_inline_html("; ".join(extra))}.</p>')
+                out += self._table_html(d)
             elif b.kind == "figure":
                 uri = "data:image/png;base64," + base64.b64encode(d["png"]).decode("ascii")
-                out.append(f'<figure><img src="{uri}" alt="{html.escape(d["caption"])}">'
-                           f"<figcaption>{_inline_html(d['caption'])}</figcaption></figure>")
+                name = html.escape(d["name"])
+                out.append(f'<figure><a href="figures/{name}.png"><img src="{uri}" alt="{html.escape(d["caption"])}">'
+                           f"</a><figcaption>{_inline_html(d['caption'])} (full size: "
+                           f'<a href="figures/{name}.png">PNG</a>, <a href="figures/{name}.pdf">PDF</a>)'
+                           "</figcaption></figure>")
         out.append(f'<p class="caution"><strong>Caution.</strong> {html.escape(self.caution)}</p>')
         out += ["</body>", "</html>", ""]
         return "\n".join(out)

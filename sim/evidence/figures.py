@@ -29,6 +29,7 @@ __all__ = [
     "PALETTE",
     "SweepData",
     "color",
+    "fit_legend",
     "heatmap",
     "lines",
     "metric_axis",
@@ -308,18 +309,30 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
     xe, ye = _edges(xp, xlog), _edges(yp, ylog)
     mesh = None
     legend: dict = {}
+    numbers = []  # (text, axes, cell corners) of the cell numbers, fitted to their cells once laid out
     for k, fv in enumerate(facets):
         ax = axes[k // nc][k % nc]
         Z = grids[k]
         mesh = ax.pcolormesh(xe, ye, np.ma.masked_invalid(Z), cmap=cmap, norm=norm,
                              vmin=None if norm else lo, vmax=None if norm else hi, shading="flat")
+        if not np.isfinite(Z).all():
+            # a cell without a value (failed, or not in the sweep) is hatched, never left blank
+            ax.patch.set_facecolor("white")
+            ax.patch.set_hatch("///")
+            ax.patch.set_edgecolor("0.7")
+            legend.setdefault("no value (cell failed or not run)",
+                              _hatch_handle())
         if xs.size * nc <= 12 and ys.size * nr <= 16:
             for b in range(ys.size):
                 for a in range(xs.size):
                     if np.isfinite(Z[b, a]):
                         rgba = cmap(norm(Z[b, a]) if norm else (Z[b, a] - lo) / (hi - lo or 1.0))
-                        ax.text(xp[a], yp[b], fmt(Z[b, a]), ha="center", va="center", fontsize=SMALL,
-                                color=_text_color(rgba))
+                        # a backing in the cell's own colour: a threshold or boundary line passes behind the
+                        # number instead of through it (a minus sign struck through reads as no sign)
+                        t = ax.text(xp[a], yp[b], fmt(Z[b, a]), ha="center", va="center", fontsize=SMALL,
+                                    color=_text_color(rgba), zorder=4,
+                                    bbox={"boxstyle": "square,pad=0.1", "fc": rgba, "ec": "none"})
+                        numbers.append((t, ax, (xe[a], ye[b], xe[a + 1], ye[b + 1])))
         if level is not None and xs.size > 1 and ys.size > 1 and np.isfinite(Z).sum() >= 4:
             zmin, zmax = np.nanmin(Z), np.nanmax(Z)
             if zmin < level < zmax:
@@ -332,15 +345,18 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
             ax.set_xscale("log")
         if ylog:
             ax.set_yscale("log")
-        if xcat:
-            ax.set_xticks(xp, labx, rotation=45 if len(labx) > 6 else 0)
-        if ycat:
+        # ticks at the swept values (a continuous scale would show values that were never run, below zero even),
+        # every k-th one where the panel is too narrow for all
+        if xcat or (not xlog and xs.size <= 12):
+            step = _tick_step(fig, nc, labx)
+            ax.set_xticks(xp[::step], labx[::step])
+        if ycat or (not ylog and ys.size <= 16):
             ax.set_yticks(yp, laby)
         ax.tick_params(labelsize=SMALL)
         ax.set_xlim(xe[0], xe[-1])
         ax.set_ylim(ye[0], ye[-1])
         if facet:
-            ax.set_title(_wrap(str(fv), 28), fontsize=FONT)
+            ax.set_title(_wrap(str(fv), _title_chars(fig, nc, colorbar=True)), fontsize=FONT)
         _panel_labels(ax, k, nr, nc, len(facets), _label(x, data), _label(y, data))
         for h, lab in zip(*ax.get_legend_handles_labels()):
             legend.setdefault(lab, h)
@@ -351,10 +367,87 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
         cb.set_label(_wrap(metric_axis(metric, data), 40), fontsize=FONT)
         cb.ax.tick_params(labelsize=SMALL)
     if legend:
-        fig.legend(list(legend.values()), list(legend), loc="outside lower center", ncol=1, fontsize=SMALL,
-                   frameon=False)
+        fit_legend(fig, list(legend.values()), list(legend), ncol=1)
     fig.suptitle(_wrap((title or f"{metric_label(metric, data)}") + _panel_note(facet, data), 80), fontsize=FONT + 1)
+    _fit_numbers(fig, numbers)
     return fig
+
+
+def _tick_step(fig, nc: int, labels) -> int:
+    """Every how many swept values a tick label fits under a panel (upright labels, about 0.6 em a character)."""
+    width_pt = fig.get_figwidth() * 72 * 0.78 / nc
+    per_label = SMALL * 0.6 * max(len(str(t)) for t in labels) + 10
+    fit = max(2, int(width_pt // per_label))
+    return max(1, math.ceil(len(labels) / fit))
+
+
+def _hatch_handle():
+    from matplotlib.patches import Patch
+
+    return Patch(facecolor="white", edgecolor="0.6", hatch="///")
+
+
+def _title_chars(fig, nc: int, colorbar: bool = False) -> int:
+    """Characters of a panel title that fit over its panel (about 0.55 em a character)."""
+    width_pt = fig.get_figwidth() * 72 * (0.78 if colorbar else 0.88) / nc
+    return max(12, int(width_pt / (FONT * 0.55)))
+
+
+def _fit_numbers(fig, numbers) -> None:
+    """Cell numbers that fit their cells: upright, else turned a quarter, else left out (the colour bar reads the
+    values; a note says so)."""
+    if not numbers:
+        return
+    fig.canvas.draw()
+    r = fig.canvas.get_renderer()
+
+    def fits() -> bool:
+        for t, ax, (x0, y0, x1, y1) in numbers:
+            (a, b), (c, d) = ax.transData.transform([(x0, y0), (x1, y1)])
+            e = t.get_window_extent(renderer=r)
+            if e.width > 0.92 * abs(c - a) or e.height > 0.92 * abs(d - b):
+                return False
+        return True
+
+    if fits():
+        return
+    for t, _, _ in numbers:
+        t.set_rotation(90)
+    if fits():
+        return
+    for t, _, _ in numbers:
+        t.remove()
+    fig.text(0.01, 0.005, "cells too small for their numbers: read the values off the colour bar or the table",
+             fontsize=SMALL, ha="left", va="bottom", color="0.3")
+
+
+def fit_legend(fig, handles, labels, ncol: int = 3, title: str | None = None, width: int = 45):
+    """A figure legend below the plot, in as many columns as fit the figure's width (long labels wrapped).
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+    handles : list of artists
+    labels : list of str
+    ncol : int
+        The most columns to try.
+    title : str, optional
+    width : int
+        Characters of a label line.
+
+    Returns
+    -------
+    matplotlib.legend.Legend
+    """
+    labels = [_wrap(str(lab), width) for lab in labels]
+    fig.canvas.draw()
+    for n in range(min(ncol, len(labels)), 0, -1):
+        leg = fig.legend(handles, labels, loc="outside lower center", fontsize=SMALL, frameon=False, title=title,
+                         title_fontsize=SMALL, ncol=n)
+        if n == 1 or leg.get_window_extent(renderer=fig.canvas.get_renderer()).width <= 0.98 * fig.bbox.width:
+            return leg
+        leg.remove()
+    return leg
 
 
 def _panel_note(facet: str | None, data: SweepData) -> str:
@@ -470,7 +563,7 @@ def lines(data: SweepData, x: str, metric: str, analytic: str | None = None, gro
         if px.log:
             ax.set_xscale("log")
         if facet:
-            ax.set_title(_wrap(str(fv), 28), fontsize=FONT)
+            ax.set_title(_wrap(str(fv), _title_chars(fig, nc)), fontsize=FONT)
         _panel_labels(ax, k, nr, nc, len(facets), _label(x, data), _wrap(metric_axis(metric, data), 30))
         ax.tick_params(labelsize=SMALL)
         ax.grid(alpha=0.3)
@@ -480,8 +573,7 @@ def lines(data: SweepData, x: str, metric: str, analytic: str | None = None, gro
         axes[k // nc][k % nc].set_visible(False)
     if legend:
         title_l = _label(group, data).split(" [")[0] if group else None
-        fig.legend(list(legend.values()), list(legend), loc="outside lower center", fontsize=SMALL, frameon=False,
-                   title=title_l, title_fontsize=SMALL, ncol=min(3, len(legend)))
+        fit_legend(fig, list(legend.values()), list(legend), ncol=3, title=title_l)
     extra = " (band: 95 % interval across replications)" if has_band else ""
     fig.suptitle(_wrap((title or f"{metric_label(metric, data)}{extra}") + _panel_note(facet, data), 80),
                  fontsize=FONT + 1)

@@ -26,8 +26,17 @@ import sim.evidence.figures as figures
 from sim.core.errors import InputError
 from sim.core.files import symlinks_in
 from sim.core.text import fmt_num
-from sim.evidence.bundle import Bundle, clear_leftovers, holds_bundle
+from sim.evidence.bundle import Bundle, Estimate, clear_leftovers, holds_bundle
 from sim.evidence.figures import SweepData, _plt
+from sim.evidence.front import (
+    headline,
+    methods_rows,
+    metric_column,
+    parameter_column,
+    scheme_words,
+    software_lines,
+    terms_rows,
+)
 from sim.evidence.render import renderer_for
 from sim.runner.experiment import leading_comment
 from sim.runner.lock import FolderLock
@@ -147,29 +156,36 @@ def default_figures(exp, kind, data) -> list:
     return out
 
 
-def _caption(spec) -> str:
-    at = "".join(f", at {p} = {lab}" for p, lab in spec.at)
-    return _caption_body(spec).rstrip(".") + at + "."
+def _caption(spec, units=(None, None)) -> str:
+    at = "".join(f", at {_words(p, units)} = {lab}" for p, lab in spec.at)
+    return _caption_body(spec, units).rstrip(".") + at + "."
 
 
-def _caption_body(spec) -> str:
+def _words(key: str, units, metric: bool = False) -> str:
+    """A stored name or parameter path in the catalogue's words (no unit)."""
+    label = metric_column(key, units) if metric else parameter_column(key, units)
+    return label.split(" [", 1)[0]
+
+
+def _caption_body(spec, units=(None, None)) -> str:
+    m, x = _words(spec.metric, units, True), _words(spec.x, units)
     if spec.type == "heatmap":
-        c = f"{spec.metric} in each cell of the sweep over {spec.x} (horizontal) and {spec.y} (vertical)"
+        c = f"The {m} in each cell of the sweep over the {x} (horizontal) and the {_words(spec.y, units)} (vertical)"
         if spec.facet:
-            c += f", one panel per value of {spec.facet}"
+            c += f", one panel per {_words(spec.facet, units)}"
         if spec.threshold:
-            c += f"; dashed: the analytic critical value of {spec.x} ({spec.threshold})"
+            c += f"; dashed: the {_words(spec.threshold, units, True)}"
         if spec.level is not None:
-            c += f"; solid: where {spec.metric} crosses {spec.level:g}"
+            c += f"; solid: where {m} crosses {spec.level:g}"
         return c + "; numbers are the cell values."
-    c = f"{spec.metric} against {spec.x}"
+    c = f"The {m} against the {x}"
     if spec.group:
-        c += f", one line per value of {spec.group}"
+        c += f", one line per {_words(spec.group, units)}"
     if spec.facet:
-        c += f", one panel per value of {spec.facet}"
+        c += f", one panel per {_words(spec.facet, units)}"
     c += "; band: 95 % confidence interval across replications where the cells report one"
     if spec.analytic:
-        c += f"; dashed: the analytic prediction ({spec.analytic})"
+        c += f"; dashed: the {_words(spec.analytic, units, True)}"
     return c + "."
 
 
@@ -336,115 +352,28 @@ def _write(rf, folder: Path, out, update_manifest: bool) -> None:
               and Path(inside).parent.as_posix() == ".")
 
 
-def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, in_run_folder: bool) -> None:
-    """The content of a run's evidence bundle, read from the stored rows (see the module notes)."""
+def _promote_answer(b, question: str) -> None:
+    """The answer an analysis's own account gives (a section "Answer", or its conclusion) becomes the first page's
+    answer; an "Answer" section is then not repeated below it."""
+    blocks = b.blocks
+    for i, blk in enumerate(blocks[:-1]):
+        text = blk.data.get("text", "")
+        nxt = blocks[i + 1]
+        if blk.kind == "heading" and (text == "Answer" or text.startswith("Conclusion")) and nxt.kind == "paragraph":
+            # its own account gives its numbers, in its own words, right below
+            b.headline(question, [nxt.data["text"]])
+            if text == "Answer":
+                del blocks[i:i + 2]
+            return
+    if b.front is not None:
+        numbers = [x for x in b.front["numbers"] if "not available" not in x]
+        answer = b.front["answer"] if numbers else ["The results of the analysis follow, section by section."]
+        b.headline(question, answer, numbers)
 
-    desc = exp.description or leading_comment(exp.text or "")
-    b.paragraph(f"Experiment `{exp.name}` (kind `{exp.kind}`), run folder `{folder.name}`; {counts['total']} cell"
-                f"{'s' if counts['total'] != 1 else ''}, {counts['ok']} finished, {counts['failed']} failed.")
-    more = []  # the kind's own lines on reproducing its numbers
-    render = bundle_hook(kind)
-    if render is not None:
-        # the kind's own account of its results, read from the stored rows; the closing sections follow
-        more = list(render(rf, b) or [])
-        b.table("results", header, body, show=False)
-        b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
-                    f"(also `{CSV_FILE}` in the run folder).", note=True)
-    else:
-        if desc:
-            b.heading("What the experiment asks")
-            for para in desc.split("\n\n"):
-                b.paragraph(" ".join(para.split()))
-        b.heading("Setup")
-        b.bullets(kind.describe(exp.doc) if kind.describe else [f"Kind: {exp.kind}"])
-        if exp.parameters:
-            b.paragraph("These are the file's settings; the values of "
-                        + ", ".join(f"`{p.path}`" for p in exp.parameters) + " are those of the sweep below.",
-                        note=True)
-        data = SweepData(list(exp.parameters), rows, units_of(exp))
-        heads = _headline(exp, kind)
-        if exp.parameters:
-            b.heading("Sweep")
-            prow = [[p.path, ", ".join(p.labels), len(p)] for p in exp.parameters]
-            b.table("sweep", ["parameter", "values", "number"], prow, caption="Swept parameters")
-            groups = [" + ".join(g) for g in exp.groups if len(g) > 1]
-            how = "Every combination of the values (grid)" if exp.mode == "grid" else "Values taken together (zip)"
-            b.paragraph(how
-                        + (f"; varying together: {'; '.join(groups)}" if groups and exp.mode == "grid" else "")
-                        + f"; {exp.n_cells} cells. Each cell is one complete {exp.kind} run with the other settings of "
-                          "the file.")
 
-        b.heading("Results")
-        specs = list(exp.report.figures) or default_figures(exp, kind, data)
-
-        for i, spec in enumerate(specs):
-            if not data.has(spec.metric):
-                b.paragraph(f"Figure of {spec.metric} not drawn: no finished cell reports it.", note=True)
-                continue
-            b.figure(figure_name(spec, i), _draw(spec, data), _caption(spec))
-        if not exp.parameters and rows and rows[0].status == "ok":
-            _single_cell_figures(b, rf, kind, rows[0])
-
-        if exp.parameters:
-            hdr = ["cell", *[p.path for p in exp.parameters]]
-            disp_rows, csv_rows = [], []
-            csv_hdr = list(hdr)
-            for m in heads:
-                hdr.append(m)
-                csv_hdr.append(m)
-                if any(f"{m}.low" in r.metrics for r in rows):
-                    hdr.append(f"{m} 95% CI")
-                    csv_hdr += [f"{m}.low", f"{m}.high"]
-            for r in rows:
-                labels = [r.labels[p.path] if not p.numeric else r.params[p.path] for p in exp.parameters]
-                d, c = [r.number, *labels], [r.number, *labels]
-                for m in heads:
-                    d.append(r.metrics.get(m, math.nan))
-                    c.append(r.metrics.get(m, math.nan))
-                    if any(f"{m}.low" in q.metrics for q in rows):
-                        d.append(_ci(r, m))
-                        c += [r.metrics.get(f"{m}.low", math.nan), r.metrics.get(f"{m}.high", math.nan)]
-                disp_rows.append(d)
-                csv_rows.append(c)
-            b.table("summary", hdr, disp_rows, caption="Headline results per cell", csv_rows=(csv_hdr, csv_rows),
-                    note="95 % confidence intervals across replications (simulation error only)")
-        elif rows and rows[0].status == "ok":
-            r = rows[0]
-            names = [m for m in exp.metric_names if not m.endswith((".se", ".low", ".high")) and not
-                     m.startswith("analytic.")] or sorted(r.metrics)
-            mrows = []
-            for m in names:
-                an = kind.analytic.get(m)
-                mrows.append([m, r.metrics.get(m, math.nan), _ci(r, m),
-                              r.metrics.get(an, math.nan) if an else math.nan])
-            mapped = set(kind.analytic.values())
-            for m in exp.metric_names:
-                if m.startswith("analytic.") and m not in mapped and math.isfinite(r.metrics.get(m, math.nan)):
-                    mrows.append([m, r.metrics[m], "-", math.nan])
-            b.table("summary", ["metric", "value", "95% CI", "analytic"], mrows, caption="Results", max_rows=200,
-                    note="rows analytic.*: the analytic baseline of the cell (closed forms and benchmarks)")
-        b.table("results", header, body, show=False)
-        b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
-                    f"(also `{CSV_FILE}` in the run folder).", note=True)
-
-        ok_rows = [r for r in rows if r.status == "ok"]
-        crit = sorted({m for r in ok_rows for m in r.metrics if m.startswith("analytic.critical_delta.")})
-        if crit and ok_rows:
-            b.heading("Analytic baseline")
-            trows = []
-            varies = False
-            for m in crit:
-                have = [r for r in ok_rows if m in r.metrics]
-                vals = {round(r.metrics[m], 12) for r in have if math.isfinite(r.metrics[m])}
-                v = have[0].metrics[m]
-                varies = varies or len(vals) > 1
-                trows.append([m.split(".", 2)[2].replace("_", " "),
-                              v if math.isfinite(v) else "not sustainable below one"])
-            b.table("analytic-baseline", ["scheme", "critical discount factor"], trows,
-                    caption="Critical discount factors of the punishment schemes played (perfect monitoring, infinite "
-                            "horizon)",
-                    note=("values of the first cell playing each scheme; they vary across cells (see the results "
-                          "table)" if varies else "the same in every cell playing the scheme"))
+def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) -> None:
+    """The closing sections: failed cells, assumptions, the methods appendix (methods, software, reproducing) and
+    the glossary."""
 
     b.heading("Failed cells")
     failed = [r for r in rows if r.status == "failed"]
@@ -454,8 +383,19 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
     else:
         b.paragraph("None: the cell finished without error." if counts["total"] == 1
                     else f"None: all {counts['total']} cells finished without error.")
-
-    b.heading("Reproducing these numbers")
+    b.assumptions(list(kind.assumptions) + [
+        "Every number in this report is read from the stored results of the run (results.sqlite); nothing is "
+        "recomputed for the report.",
+    ])
+    terms = terms_rows(list(exp.metric_names), [p.path for p in exp.parameters], units)
+    b.heading("Methods appendix")
+    b.paragraph("How each number of this bundle is computed, with its published source (\"common practice\" where "
+                "the trade has none); the glossary below gives each number's definition.")
+    b.table("methods", ["method and source", "interval", "numbers computed with it"], methods_rows(terms),
+            caption="Methods and their sources", max_rows=200)
+    b.heading("Software", level=3)
+    b.bullets(software_lines(folder))
+    b.heading("Reproducing these numbers", level=3)
     seed = meta.get("seed")
     b.bullets([
         f"Experiment file: `{EXPERIMENT_COPY}` (SHA-256 `{exp.sha256}`), copied into this bundle.",
@@ -473,11 +413,132 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
     ])
     b.code(f"supergame run {EXPERIMENT_COPY}          # the same numbers, in a new run folder\n"
            f"supergame verify {folder}           # check the hashes and re-run a sample of cells")
+    b.heading("Glossary")
+    b.table("glossary", ["key", "label", "unit", "definition", "method and source", "interval"], terms,
+            caption="Every number of the bundle: its stored name (key, the column name in the CSV files), label, "
+                    "unit, definition, method and interval", max_rows=len(terms) + 1)
 
-    b.assumptions(list(kind.assumptions) + [
-        "Every number in this report is read from the stored results of the run (results.sqlite); nothing is "
-        "recomputed for the report.",
-    ])
+
+def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, in_run_folder: bool) -> None:
+    """The content of a run's evidence bundle, read from the stored rows (see the module notes)."""
+
+    desc = exp.description or leading_comment(exp.text or "")
+    units = units_of(exp)
+    question = " ".join(desc.split("\n\n")[0].split()) if desc else f"{kind.summary or exp.kind}."
+    question = question.split("?", 1)[0] + "?" if "?" in question else question
+    b.headline(*headline(question, exp.parameters, rows, _headline(exp, kind), units))
+    b.paragraph(f"Experiment `{exp.name}` (kind `{exp.kind}`), run folder `{folder.name}`; {counts['total']} cell"
+                f"{'s' if counts['total'] != 1 else ''}, {counts['ok']} finished, {counts['failed']} failed.")
+    more = []  # the kind's own lines on reproducing its numbers
+    render = bundle_hook(kind)
+    if render is not None:
+        # the kind's own account of its results, read from the stored rows; the closing sections follow
+        more = list(render(rf, b) or [])
+        _promote_answer(b, question)
+        b.table("results", header, body, show=False)
+        b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
+                    f"(also `{CSV_FILE}` in the run folder).", note=True)
+    else:
+        if desc:
+            b.heading("What the experiment asks")
+            for para in desc.split("\n\n"):
+                b.paragraph(" ".join(para.split()))
+        b.heading("Setup")
+        b.bullets(kind.describe(exp.doc) if kind.describe else [f"Kind: {exp.kind}"])
+        if exp.parameters:
+            b.paragraph("These are the file's settings; the values of "
+                        + ", ".join(f"`{p.path}`" for p in exp.parameters) + " are those of the sweep below.",
+                        note=True)
+        data = SweepData(list(exp.parameters), rows, units)
+        heads = _headline(exp, kind)
+        if exp.parameters:
+            b.heading("Sweep")
+            prow = [[parameter_column(p.path, units), ", ".join(p.labels), len(p)] for p in exp.parameters]
+            b.table("sweep", ["parameter", "values", "number"], prow, caption="Swept parameters")
+            groups = [" + ".join(g) for g in exp.groups if len(g) > 1]
+            how = "Every combination of the values (grid)" if exp.mode == "grid" else "Values taken together (zip)"
+            b.paragraph(how
+                        + (f"; varying together: {'; '.join(groups)}" if groups and exp.mode == "grid" else "")
+                        + f"; {exp.n_cells} cells. Each cell is one complete {exp.kind} run with the other settings of "
+                          "the file.")
+
+        b.heading("Results")
+        specs = list(exp.report.figures) or default_figures(exp, kind, data)
+
+        for i, spec in enumerate(specs):
+            if not data.has(spec.metric):
+                b.paragraph(f"Figure of {spec.metric} not drawn: no finished cell reports it.", note=True)
+                continue
+            b.figure(figure_name(spec, i), _draw(spec, data), _caption(spec, data.units))
+        if not exp.parameters and rows and rows[0].status == "ok":
+            _single_cell_figures(b, rf, kind, rows[0])
+
+        if exp.parameters:
+            hdr = ["cell", *[parameter_column(p.path, units) for p in exp.parameters]]
+            disp_rows, csv_rows = [], []
+            # the CSV keeps the stored names, so that it joins with results.csv (the glossary gives their labels)
+            csv_hdr = ["cell", *[p.path for p in exp.parameters]]
+            for m in heads:
+                ci = any(f"{m}.low" in r.metrics for r in rows)
+                hdr.append(metric_column(m, units) + (" and 95 % interval" if ci else ""))
+                csv_hdr += [m, f"{m}.low", f"{m}.high"] if ci else [m]
+            for r in rows:
+                labels = [r.labels[p.path] if not p.numeric else r.params[p.path] for p in exp.parameters]
+                d, c = [r.number, *labels], [r.number, *labels]
+                for m in heads:
+                    v = r.metrics.get(m, math.nan)
+                    c.append(v)
+                    if any(f"{m}.low" in q.metrics for q in rows):
+                        lo, hi = r.metrics.get(f"{m}.low", math.nan), r.metrics.get(f"{m}.high", math.nan)
+                        d.append(Estimate(v, lo, hi))
+                        c += [lo, hi]
+                    else:
+                        d.append(v)
+                disp_rows.append(d)
+                csv_rows.append(c)
+            b.table("summary", hdr, disp_rows, caption="Headline results per cell", csv_rows=(csv_hdr, csv_rows),
+                    note="95 % confidence intervals across replications (simulation error only)")
+        elif rows and rows[0].status == "ok":
+            r = rows[0]
+            names = [m for m in exp.metric_names if not m.endswith((".se", ".low", ".high")) and not
+                     m.startswith("analytic.")] or sorted(r.metrics)
+            mrows = []
+            for m in names:
+                an = kind.analytic.get(m)
+                mrows.append([metric_column(m, units), r.metrics.get(m, math.nan), _ci(r, m),
+                              r.metrics.get(an, math.nan) if an else math.nan])
+            mapped = set(kind.analytic.values())
+            for m in exp.metric_names:
+                if m.startswith("analytic.") and m not in mapped and math.isfinite(r.metrics.get(m, math.nan)):
+                    mrows.append([metric_column(m, units), r.metrics[m], "-", math.nan])
+            b.table("summary", ["quantity [unit]", "value", "95 % interval", "analytic prediction"], mrows,
+                    caption="Results", max_rows=200,
+                    note="rows named analytic: the analytic baseline of the cell (closed forms and benchmarks)")
+        b.table("results", header, body, show=False)
+        b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
+                    f"(also `{CSV_FILE}` in the run folder).", note=True)
+
+        ok_rows = [r for r in rows if r.status == "ok"]
+        crit = sorted({m for r in ok_rows for m in r.metrics if m.startswith("analytic.critical_delta.")})
+        if crit and ok_rows:
+            b.heading("Analytic baseline")
+            trows = []
+            varies = False
+            for m in crit:
+                have = [r for r in ok_rows if m in r.metrics]
+                vals = {round(r.metrics[m], 12) for r in have if math.isfinite(r.metrics[m])}
+                v = have[0].metrics[m]
+                varies = varies or len(vals) > 1
+                trows.append([scheme_words(m.split(".", 2)[2]),
+                              v if math.isfinite(v) else "not sustainable below one"])
+            b.table("analytic-baseline", ["punishment scheme", "critical discount factor"], trows,
+                    caption="Critical discount factors of the punishment schemes played (perfect monitoring, infinite "
+                            "horizon)",
+                    note=("values of the first cell playing each scheme; they vary across cells (see the results "
+                          "table)" if varies else "the same in every cell playing the scheme"))
+
+    _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units)
+    seed = meta.get("seed")
     b.attach(EXPERIMENT_COPY, (folder / EXPERIMENT_COPY).read_bytes())
     data_files = {}
     if in_run_folder:

@@ -532,7 +532,9 @@ def test_run_report_carries_the_tournament(tmp_path, capsys):
     for name in ("rules", "pairs", "collusion-duration", "replicator", "invasion"):
         assert (report / "figures" / f"{name}.png").stat().st_size > 1000, name
     md = (report / "summary.md").read_text()
-    assert "## Answer" in md and "## Profit gain of each rule" in md and "## Which rules spread" in md
+    # the tournament's answer is the bundle's first page
+    assert md.split("\n## ")[1].startswith("In short\n") and "**Answer.** " in md.split("\n## ")[1]
+    assert "## Profit gain of each rule" in md and "## Which rules spread" in md
     with open(folder / "results.csv") as f:
         row = next(csv.DictReader(f))
     with open(report / "tables" / "rules.csv") as f:

@@ -73,9 +73,11 @@ def test_bundle_files_formats_and_manifest(tmp_path):
     md = (d / "summary.md").read_text()
     assert md.startswith("# A test bundle") and CAUTION in md and "| name_x | value |" in md
     html = (d / "summary.html").read_text()
-    # self-contained: the only image is a data URI, no external resources
+    # self-contained: the only image is a data URI, no external resources; links lead to the bundle's own files
     assert html.count('src="data:image/png;base64,') == 1
-    assert not re.search(r'(src|href)="(?!data:)', html)
+    assert not re.search(r'src="(?!data:)', html)
+    hrefs = re.findall(r'href="([^"]*)"', html)
+    assert hrefs and all(h.startswith("#") or (d / h).is_file() for h in hrefs), hrefs
     assert "<code>code</code>" in html and "<strong>bold</strong>" in html and CAUTION in html
     tex = (d / "tables/t.tex").read_text()
     for token in (r"\toprule", r"\midrule", r"\bottomrule", r"name\_x", r"a \& b", r"c\%", r"A 50\% table"):
@@ -142,6 +144,52 @@ def test_report_reads_the_store_and_never_recomputes(finished, monkeypatch):
     assert (target / "tables/results.csv").read_text().splitlines()[0] == ",".join(header)
 
 
+def test_the_first_page_answers_before_the_detail_and_the_bundle_closes_with_methods_and_glossary(finished):
+    target = write_report(finished)
+    md = (target / "summary.md").read_text()
+    sections = re.findall(r"^## (.+)$", md, re.M)
+    assert sections[0] == "In short" and sections[-2:] == ["Methods appendix", "Glossary"]
+    assert sections.count("Assumptions and limitations") == 1
+    front = md.split("\n## ")[1]
+    assert "**Question.**" in front and "**Answer.**" in front and CAUTION in front
+    # the answer quotes the grim-trigger threshold of symmetric 3-firm Cournot, 16/28, read from the store
+    assert "0.571 under grim trigger" in front
+    with open_run(finished) as rf:
+        rows, exp = rf.rows(), rf.experiment
+    # a key number: the lowest share of collusive periods of the sweep, with the interval of its cell
+    low = min(rows, key=lambda r: r.metrics["collusive_share"])
+    assert (f"from {low.metrics['collusive_share']:.4g} (95 % interval {low.metrics['collusive_share.low']:.4g} to "
+            f"{low.metrics['collusive_share.high']:.4g})") in front
+    # the glossary has every metric and swept parameter of the run, by its stored name (bounds folded)
+    keys = [line.split(",")[0] for line in (target / "tables/glossary.csv").read_text().splitlines()[1:]]
+    expected = {m for m in exp.metric_names if not m.endswith((".low", ".high", ".se"))}
+    assert set(keys) == expected | {p.path for p in exp.parameters}
+    # the methods appendix: the sources, the software that computed the numbers, the seed, the command
+    appendix = md.split("## Methods appendix")[1].split("## Glossary")[0]
+    for text in ("Friedman, 1971", "Kaplan and Meier, 1958", "numpy", "with seed 4", "Command: `"):
+        assert text in appendix, text
+    # the tables shown before the glossary are labelled from the catalogue: no stored name in a column header
+    body = md.split("## Glossary")[0]
+    headers = [ln for i, ln in enumerate(body.splitlines()[:-1])
+               if ln.startswith("| ") and body.splitlines()[i + 1].startswith("| ---")]
+    assert len(headers) >= 3
+    for h in headers:
+        assert "_" not in h and "run.delta" not in h and "perception_error" not in h, h
+
+
+def test_the_headline_comes_first_whenever_it_is_added(tmp_path):
+    b = Bundle(tmp_path / "b", "Order")
+    b.heading("Detail")
+    b.paragraph("The detail.")
+    b.headline("What is asked?", ["The answer."], ["a number: 1 (95 % interval 0.5 to 1.5)"])
+    b.write()
+    html = (tmp_path / "b" / "summary.html").read_text()
+    assert html.index('id="in-short"') < html.index("The detail.")
+    assert re.search(r'<a href="#detail">Detail</a>', html) and 'id="detail"' in html
+    md = (tmp_path / "b" / "summary.md").read_text()
+    assert md.index("**Answer.** The answer.") < md.index("## Detail") and md.count(CAUTION) == 2
+
+
 def test_heatmap_draws_the_analytic_threshold_where_it_belongs(finished):
     from sim.evidence.figures import SweepData, heatmap
 
@@ -177,7 +225,8 @@ def test_single_cell_report_has_a_metric_table_and_the_period_figure(tmp_path):
     p.write_text(SWEEP.split("[sweep]")[0].replace("perception_error = 0.0", "implementation_error = 0.01"))
     s = run_experiment(p, tmp_path / "run", workers=1, report=True, write_report=write_report, progress=False)
     md = (s.report / "summary.md").read_text()
-    assert "| metric | value | 95% CI | analytic |" in md
+    assert "| quantity [unit] | value | 95 % interval | analytic prediction |" in md
+    assert "| share of collusive periods [0 to 1] |" in md and "| collusive_share |" not in md.split("## Glossary")[0]
     # the renderer's figures of the stored result (the ones supergame simulate --plot draws)
     assert (s.report / "figures" / "collusion-over-time.png").is_file()
     assert (s.report / "figures" / "spell-survival.png").is_file()

@@ -1,0 +1,242 @@
+"""The evidence bundle in a real browser: headless Chromium, driven by selenium, opens ``summary.html`` of small run
+folders from ``file://`` and checks what a reader would meet -- console errors, images that do not load, links and
+anchors that lead nowhere, missing tables, a page wider than the screen (a desktop and a phone) -- and takes a
+screenshot of the whole page into the test's folder.
+
+The browser is the operating system's (Debian: ``apt-get install chromium chromium-driver``; ``.ci/run`` installs
+them), never downloaded at run time. Without it the tests fail and say how to install it; set
+``SUPERGAME_NO_BROWSER=1`` to skip them on purpose (the skip and its reason are printed in pytest's summary).
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import textwrap
+from pathlib import Path
+from urllib.parse import unquote, urlparse
+
+import pytest
+
+try:
+    from selenium import webdriver
+    from selenium.webdriver.chrome.service import Service
+    from selenium.webdriver.common.by import By
+except ImportError:  # reported by the fixture below: the tests fail, they never skip silently
+    webdriver = None
+
+from sim.evidence.report import write_report
+from sim.runner.runs import run_experiment
+from tests.conftest import TWO_MILLS
+
+NO_BROWSER = os.environ.get("SUPERGAME_NO_BROWSER") == "1"
+BROWSERS = ("chromium", "chromium-browser", "google-chrome")
+DESKTOP, PHONE = (1280, 900), (390, 844)
+
+#: a sweep over the discount factor and the noise, two schemes: heatmaps, lines and tables of every generic section
+SWEEP = textwrap.dedent("""
+    # Browser check: two quarries of an invented valley, grim trigger and Nash reversion over delta and noise.
+    [experiment]
+    name = "browser-sweep"
+    kind = "simulate"
+    description = "Can two invented quarries sustain collusion when they misread each other now and then?"
+    [market]
+    model = "cournot"
+    demand = "linear"
+    intercept = 100.0
+    cost = [10.0, 12.0]
+    [monitoring]
+    perception_error = 0.0
+    [[strategies]]
+    strategy = "grim_trigger"
+    seats = 2
+    [run]
+    periods = 40
+    replications = 12
+    seed = 7
+    [deviation]
+    firm = "binding"
+    [sweep]
+    "run.delta" = [0.5, 0.7, 0.9]
+    "monitoring.perception_error" = [0.0, 0.02]
+    "strategies.1" = { values = [
+        { strategy = "grim_trigger", seats = 2 },
+        { strategy = "finite_punishment", length = 3, seats = 2 },
+    ], labels = ["grim trigger", "Nash reversion T=3"] }
+    """)
+
+ONE_CELL = textwrap.dedent("""
+    # Browser check: one cell of the same market (a single run: the metric table and the renderer's figures).
+    [experiment]
+    name = "browser-one"
+    kind = "simulate"
+    [market]
+    model = "cournot"
+    demand = "linear"
+    intercept = 100.0
+    cost = [10.0, 12.0]
+    [monitoring]
+    perception_error = 0.01
+    [[strategies]]
+    strategy = "grim_trigger"
+    seats = 2
+    [run]
+    periods = 40
+    replications = 12
+    delta = 0.8
+    seed = 7
+    """)
+
+#: a tournament: the analysis's own account of the run (its answer promoted to the first page)
+TOURNAMENT = textwrap.dedent("""
+    # Browser check: three rules for two invented mills.
+    [experiment]
+    name = "browser-tournament"
+    kind = "tournament"
+    currency = "EUR"
+    period = "month"
+    description = "Which rule keeps the most of the collusive profit against the others?"
+    [market]
+    model = "cournot"
+    demand = "linear"
+    intercept = 100.0
+    cost = 10.0
+    n_firms = 2
+    [[entrants]]
+    label = "grim trigger"
+    strategy = "grim_trigger"
+    [[entrants]]
+    label = "always compete"
+    strategy = "always_compete"
+    [[entrants]]
+    label = "tit for tat"
+    strategy = "tit_for_tat"
+    [tournament]
+    bootstrap = 20
+    generations = 5
+    population = 4
+    moran_runs = 0
+    [run]
+    periods = 12
+    replications = 4
+    """)
+
+RUNS = {"sweep": SWEEP, "one-cell": ONE_CELL, "thresholds": TWO_MILLS, "tournament": TOURNAMENT}
+
+
+@pytest.fixture(scope="module")
+def browser():
+    """A headless Chromium driven by selenium (fails with the install command when it is missing)."""
+    if NO_BROWSER:
+        pytest.skip("SUPERGAME_NO_BROWSER=1: the browser tests of the evidence bundle are switched off")
+    if webdriver is None:
+        pytest.fail("selenium is not installed: pip install -e '.[dev]' (or set SUPERGAME_NO_BROWSER=1)")
+    binary = next((shutil.which(b) for b in BROWSERS if shutil.which(b)), None)
+    driver_path = shutil.which("chromedriver")
+    if binary is None or driver_path is None:
+        pytest.fail("no headless browser: install it with `apt-get install -y chromium chromium-driver` "
+                    "(Debian), or set SUPERGAME_NO_BROWSER=1 to switch the browser tests off")
+    opts = webdriver.ChromeOptions()
+    opts.binary_location = binary
+    for arg in ("--headless=new", "--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage",
+                "--hide-scrollbars", f"--window-size={DESKTOP[0]},{DESKTOP[1]}"):
+        opts.add_argument(arg)
+    opts.set_capability("goog:loggingPrefs", {"browser": "ALL"})
+    driver = webdriver.Chrome(service=Service(driver_path), options=opts)
+    try:
+        yield driver
+    finally:
+        driver.quit()
+
+
+@pytest.fixture(scope="module", params=sorted(RUNS))
+def bundle(request, tmp_path_factory):
+    """``summary.html`` of the bundle of a small finished run folder."""
+    d = tmp_path_factory.mktemp(f"browser-{request.param}")
+    p = d / "experiment.toml"
+    p.write_text(RUNS[request.param])
+    run_experiment(p, d / "run", workers=1, report=True, write_report=write_report, progress=False)
+    page = d / "run" / "report" / "summary.html"
+    assert page.is_file()
+    return page
+
+
+def _show(driver, width: int, height: int) -> None:
+    """Lay the page out as a screen of this size (a phone: mobile metrics)."""
+    driver.execute_cdp_cmd("Emulation.setDeviceMetricsOverride", {
+        "width": width, "height": height, "deviceScaleFactor": 1, "mobile": width < 600})
+
+
+def _open(driver, page: Path) -> list:
+    """Open the page; the browser's log entries written while it loaded."""
+    driver.get_log("browser")  # drop what an earlier page left
+    _show(driver, *DESKTOP)
+    driver.get(page.as_uri())
+    driver.execute_script("return document.readyState")
+    return driver.get_log("browser")
+
+
+def test_the_page_loads_without_console_errors_and_every_image_shows(browser, bundle):
+    log = _open(browser, bundle)
+    severe = [e for e in log if e.get("level") == "SEVERE"]
+    assert not severe, f"console errors: {severe}"
+    images = browser.execute_script(
+        "return Array.from(document.images).map(i => [i.complete, i.naturalWidth, i.alt.slice(0, 60)])")
+    assert images, "the bundle shows no figure"
+    broken = [alt for complete, width, alt in images if not complete or width <= 0]
+    assert not broken, f"images that did not load: {broken}"
+
+
+def test_every_link_and_anchor_leads_somewhere(browser, bundle):
+    _open(browser, bundle)
+    hrefs = browser.execute_script("return Array.from(document.querySelectorAll('a[href]')).map(a => "
+                                   "a.getAttribute('href'))")
+    assert any(h.startswith("#") for h in hrefs), "no contents list with anchors"
+    for h in hrefs:
+        if h.startswith("#"):
+            assert browser.execute_script("return document.getElementById(arguments[0]) !== null", h[1:]), h
+        else:
+            url = urlparse(h)
+            assert not url.scheme and not url.netloc, f"a link leaves the bundle: {h}"
+            assert (bundle.parent / unquote(url.path)).is_file(), f"a link to a missing file: {h}"
+
+
+def test_the_first_page_answers_and_the_tables_are_there(browser, bundle):
+    _open(browser, bundle)
+    first = browser.find_element(By.CSS_SELECTOR, "body > :nth-child(2)")
+    assert first.get_attribute("id") == "in-short", "the first section after the title is the answer"
+    text = first.text
+    assert "Question." in text and "Answer." in text and "not proof of conduct" in text
+    tables = browser.find_elements(By.TAG_NAME, "table")
+    assert len(tables) >= 3  # results, methods, glossary at least
+    for t in tables:
+        assert t.find_elements(By.TAG_NAME, "th"), "a table without column labels"
+    headers = " | ".join(th.text for th in browser.find_elements(By.CSS_SELECTOR, "th"))
+    glossary = browser.find_element(By.ID, "glossary")
+    assert glossary is not None
+    # stored names (a dot between words, or an underscore) appear only in the glossary's key column
+    for th in browser.find_elements(By.CSS_SELECTOR, "th"):
+        assert "_" not in th.text and ".low" not in th.text, headers
+
+
+@pytest.mark.parametrize("size", [DESKTOP, PHONE], ids=["desktop", "phone"])
+def test_nothing_overflows_the_page_width_and_a_screenshot_is_taken(browser, bundle, size, tmp_path):
+    _open(browser, bundle)
+    _show(browser, *size)
+    widths = browser.execute_script("return [document.documentElement.scrollWidth, "
+                                    "document.documentElement.clientWidth]")
+    wide = browser.execute_script("""
+        const w = document.documentElement.clientWidth, out = [];
+        for (const e of document.body.querySelectorAll('*')) {
+            if (e.closest('.table-wrap, pre')) continue;   // these scroll within themselves
+            const r = e.getBoundingClientRect();
+            if (r.right > w + 1) out.push(e.tagName + ' ' + (e.id || e.className) + ' ' + Math.round(r.right));
+        }
+        return out.slice(0, 10);""")
+    assert widths[0] <= widths[1], f"the page is wider than the {size[0]} px screen: {widths}; {wide}"
+    assert not wide, f"elements past the right edge at {size[0]} px: {wide}"
+    height = min(browser.execute_script("return document.documentElement.scrollHeight"), 20000)
+    _show(browser, size[0], height)
+    shot = tmp_path / f"{bundle.parent.parent.parent.name}-{size[0]}px.png"
+    assert browser.save_screenshot(str(shot))
+    assert shot.stat().st_size > 10_000
