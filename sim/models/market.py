@@ -35,6 +35,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import Integer, Options, Parametrized, PerFirm, Real, optional
 from sim.models.demand import DEMAND_TYPES, MAX_MAGNITUDE, Demand
@@ -377,46 +378,19 @@ class Market(Parametrized):
         return ms
 
     # thin conveniences so that users need not touch the spec
+    @doc_sections(MarketSpec.profits)
     def profits(self, actions, shock=1.0):
-        """Per-product profits of action profiles (:meth:`MarketSpec.profits`).
-
-        Parameters
-        ----------
-        actions : array_like of shape (..., n_products)
-        shock : float or array_like broadcastable to (..., 1)
-
-        Returns
-        -------
-        ndarray of shape (..., n_products)
-        """
+        """Per-product profits of action profiles (:meth:`MarketSpec.profits`)."""
         return self.spec().profits(actions, shock)
 
+    @doc_sections(MarketSpec.firm_profits)
     def firm_profits(self, actions, shock=1.0):
-        """Per-firm profits of action profiles (:meth:`MarketSpec.firm_profits`).
-
-        Parameters
-        ----------
-        actions : array_like of shape (..., n_products)
-        shock : float or array_like broadcastable to (..., 1)
-
-        Returns
-        -------
-        ndarray of shape (..., n_firms)
-        """
+        """Per-firm profits of action profiles (:meth:`MarketSpec.firm_profits`)."""
         return self.spec().firm_profits(actions, shock)
 
+    @doc_sections(MarketSpec.evaluate)
     def evaluate(self, actions, shock=1.0):
-        """Quantities, prices and profits of action profiles (:meth:`MarketSpec.evaluate`).
-
-        Parameters
-        ----------
-        actions : array_like of shape (..., n_products)
-        shock : float or array_like broadcastable to (..., 1)
-
-        Returns
-        -------
-        quantities, prices, profits : ndarray of shape (..., n_products)
-        """
+        """Quantities, prices and profits of action profiles (:meth:`MarketSpec.evaluate`)."""
         return self.spec().evaluate(actions, shock)
 
     def clone(self, **changes):
