@@ -8,6 +8,7 @@ from typing import Any
 
 import numpy as np
 
+from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import Constraint, PerFirm, Real
 
@@ -20,13 +21,8 @@ class Negative(Real):
     def __init__(self):
         super().__init__(None, 0, closed="neither")
 
+    @doc_sections(Constraint.describe)
     def describe(self) -> str:
-        """What the constraint allows, in words.
-
-        Returns
-        -------
-        str
-        """
         return "a negative number (a price elasticity of demand is negative)"
 
 
@@ -42,13 +38,8 @@ class OneOrPerProduct(Constraint):
     def __init__(self, element: Real):
         self.element = element
 
+    @doc_sections(Constraint.describe)
     def describe(self) -> str:
-        """What the constraint allows, in words.
-
-        Returns
-        -------
-        str
-        """
         return f"{self.element.describe()}, or a list of them (one per product)"
 
     def check(self, key: str, value: Any, n: int | None = None):
@@ -70,26 +61,16 @@ class OneOrPerProduct(Constraint):
             return self.element.check(key, value)
         return PerFirm(self.element, broadcast=False).check(key, value, n)
 
+    @doc_sections(Constraint.example_bad)
     def example_bad(self) -> Any:
-        """A value the constraint refuses (for the common test of constraints).
-
-        Returns
-        -------
-        object
-        """
         return self.element.example_bad()
 
 
 class OwnerMap(Constraint):
     """Firm number (1, 2, ...) of each product; checked in full by :class:`~sim.models.market.Market`."""
 
+    @doc_sections(Constraint.describe)
     def describe(self) -> str:
-        """What the constraint allows, in words.
-
-        Returns
-        -------
-        str
-        """
         return "a list of firm numbers 1, 2, ..., one per product"
 
     def check(self, key: str, value: Any, n: int | None = None):
@@ -125,11 +106,6 @@ class OwnerMap(Constraint):
             raise InputError(key, "a market needs at least two firms")
         return np.array(out, dtype=np.int64) - 1
 
+    @doc_sections(Constraint.example_bad)
     def example_bad(self) -> Any:
-        """A value the constraint refuses (for the common test of constraints).
-
-        Returns
-        -------
-        object
-        """
         return [0, 1]
