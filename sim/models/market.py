@@ -37,7 +37,7 @@ import numpy as np
 
 from sim.core.docs import doc_sections
 from sim.core.errors import InputError
-from sim.core.params import Integer, Options, Parametrized, PerFirm, Real, optional
+from sim.core.params import Integer, Options, Parametrized, PerFirm, Real, agreeing_length, optional
 from sim.models.demand import DEMAND_TYPES, MAX_MAGNITUDE, Demand
 from sim.models.demand_spec import DemandSpec
 
@@ -325,10 +325,7 @@ class Market(Parametrized):
                     candidates.append((name, len(value)))
         if not candidates:
             raise InputError(f"{prefix}.n_firms", "give the number of firms (every per-firm value is a single number)")
-        key0, n0 = candidates[0]
-        for key, n in candidates[1:]:
-            if n != n0:
-                raise InputError(f"{prefix}.{key}", f"must have one value per firm ({n0}, as {key0}), got {n} values")
+        _, n0 = agreeing_length(prefix, candidates, "firm")
         if not 2 <= n0 <= MAX_FIRMS:
             raise InputError(f"{prefix}.n_firms", f"must be an integer in [2, {MAX_FIRMS}], got {n0}")
         return n0
