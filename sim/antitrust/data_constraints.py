@@ -6,11 +6,10 @@ import numbers
 from collections.abc import Sequence
 from typing import Any
 
-import numpy as np
-
 from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import Constraint, PerFirm, Real
+from sim.models.market import owning_firms
 
 __all__ = ["Negative", "OneOrPerProduct", "OwnerMap"]
 
@@ -91,20 +90,7 @@ class OwnerMap(Constraint):
         """
         if not isinstance(value, Sequence) or isinstance(value, str) or len(value) < 2:
             raise InputError(key, f"must be {self.describe()}, got {value!r}")
-        out = []
-        for k, v in enumerate(value):
-            if isinstance(v, bool) or not isinstance(v, numbers.Integral) or v < 1:
-                raise InputError(key, f"entry {k + 1} must be a firm number 1, 2, ..., got {v!r}")
-            out.append(int(v))
-        if n is not None and len(out) != n:
-            raise InputError(key, f"must have one firm number per product ({n}), got {len(out)}")
-        F = max(out)
-        missing = sorted(set(range(1, F + 1)) - set(out))
-        if missing:
-            raise InputError(key, f"firm numbers must run from 1 without gaps; firm {missing[0]} owns no product")
-        if F < 2:
-            raise InputError(key, "a market needs at least two firms")
-        return np.array(out, dtype=np.int64) - 1
+        return owning_firms(key, value, n)
 
     @doc_sections(Constraint.example_bad)
     def example_bad(self) -> Any:

@@ -30,6 +30,7 @@ Conventions
 
 from __future__ import annotations
 
+import numbers
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
@@ -41,7 +42,8 @@ from sim.core.params import Integer, Options, Parametrized, PerFirm, Real, agree
 from sim.models.demand import DEMAND_TYPES, MAX_MAGNITUDE, Demand
 from sim.models.demand_spec import DemandSpec
 
-__all__ = ["DEFAULT_DEMAND", "DEMAND_KEYS", "MAX_FIRMS", "MODELS", "Market", "MarketSpec", "market_from_dict"]
+__all__ = ["DEFAULT_DEMAND", "DEMAND_KEYS", "MAX_FIRMS", "MODELS", "Market", "MarketSpec", "market_from_dict",
+           "owning_firms"]
 
 MODELS = ("cournot", "bertrand")
 #: Largest number of firms (or products): oligopoly analysis, not atomistic markets.
@@ -439,22 +441,52 @@ def _plain(v):
     return v
 
 
-def _check_owner(prefix, owner, n_products, n_firms, dspec: DemandSpec):
-    """Validate an owner map (firm numbers 1..F, each used); returns 0-based owners and F."""
-    if owner is None:
-        return np.arange(n_products), n_products
-    key = f"{prefix}.owner"
+def owning_firms(key: str, owner, n_products: int | None = None) -> np.ndarray:
+    """Check an owner map -- the firm number (1, 2, ...) of each product -- and count the firms from 0.
+
+    Parameters
+    ----------
+    key : str
+        Key path of the map in error messages.
+    owner : sequence of int
+        The firm number of each product.
+    n_products : int, optional
+        The number of products the map must cover (not checked when None).
+
+    Returns
+    -------
+    int64 ndarray of shape (n_products,)
+        The owning firm of each product, counted from 0.
+
+    Raises
+    ------
+    InputError
+        An entry is not a whole number >= 1, the map does not have ``n_products`` entries, a firm number is
+        skipped, or fewer than two firms own the products.
+    """
     vals = []
     for k, v in enumerate(owner):
-        if isinstance(v, bool) or not isinstance(v, int | np.integer) or v < 1:
+        if isinstance(v, bool) or not isinstance(v, numbers.Integral) or v < 1:
             raise InputError(key, f"entry {k + 1} must be a firm number 1, 2, ..., got {v!r}")
         vals.append(int(v))
+    if n_products is not None and len(vals) != n_products:
+        raise InputError(key, f"must have one firm number per product ({n_products}), got {len(vals)}")
     F = max(vals)
     missing = sorted(set(range(1, F + 1)) - set(vals))
     if missing:
         raise InputError(key, f"firm numbers must run from 1 without gaps; firm {missing[0]} owns no product")
     if F < 2:
         raise InputError(key, "a market needs at least two firms")
+    return np.array(vals, dtype=np.int64) - 1
+
+
+def _check_owner(prefix, owner, n_products, n_firms, dspec: DemandSpec):
+    """Validate an owner map (firm numbers 1..F, each used); returns 0-based owners and F."""
+    if owner is None:
+        return np.arange(n_products), n_products
+    key = f"{prefix}.owner"
+    owners = owning_firms(key, owner)
+    F = int(owners.max()) + 1
     if n_firms is not None and n_firms != F:
         raise InputError(f"{prefix}.n_firms", f"is {n_firms} but the owner map names {F} firms")
     if dspec.homogeneous and F != n_products:
@@ -462,7 +494,7 @@ def _check_owner(prefix, owner, n_products, n_firms, dspec: DemandSpec):
             key, f"multi-product firms need differentiated products; with {dspec.kind} demand a firm with several "
             "plants is one firm (combine them)",
         )
-    return np.array(vals, dtype=np.int64) - 1, F
+    return owners, F
 
 
 class _DemandKeys(Mapping):
