@@ -29,6 +29,7 @@ automaton                a user-defined table of states (:class:`strategies.cust
 
 from __future__ import annotations
 
+from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import Integer, Options, Real, optional
 from strategies.base import Automaton
@@ -67,21 +68,9 @@ class GrimTrigger(Automaton):
         self.collude = collude
         self.punish = punish
 
+    @doc_sections(Automaton.states)
     def states(self, p, ctx=None):
-        """``collude`` (watching everyone, itself included) and an absorbing ``punish`` state.
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-        ctx : FirmContext, optional
-            Not used: the table does not depend on the market.
-
-        Returns
-        -------
-        dict
-            The state table.
-        """
+        """``collude`` (watching everyone, itself included) and an absorbing ``punish`` state."""
         return {
             "collude": {"action": p["collude"], "watch": "all", "good": "collude", "bad": "punish"},
             "punish": {"action": p["punish"]},
@@ -113,21 +102,9 @@ class FinitePunishment(Automaton):
         self.collude = collude
         self.punish = punish
 
+    @doc_sections(Automaton.states)
     def states(self, p, ctx=None):
-        """``collude`` and ``length`` punishment states ``punish1 .. punishT`` leading back to it.
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-        ctx : FirmContext, optional
-            Not used: the table does not depend on the market.
-
-        Returns
-        -------
-        dict
-            The state table.
-        """
+        """``collude`` and ``length`` punishment states ``punish1 .. punishT`` leading back to it."""
         T = p["length"]
         out = {"collude": {"action": p["collude"], "watch": "all", "good": "collude", "bad": "punish1"}}
         for k in range(1, T + 1):
@@ -157,21 +134,9 @@ class TitForTat(Automaton):
         self.collude = collude
         self.punish = punish
 
+    @doc_sections(Automaton.states)
     def states(self, p, ctx=None):
-        """``collude`` and ``punish``, both moving on what the rivals did, forgiving with ``forgiveness``.
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-        ctx : FirmContext, optional
-            Not used: the table does not depend on the market.
-
-        Returns
-        -------
-        dict
-            The state table.
-        """
+        """``collude`` and ``punish``, both moving on what the rivals did, forgiving with ``forgiveness``."""
         g = p["forgiveness"]
         common = {"watch": "rivals", "expect": p["collude"], "good": "collude", "bad": "punish"}
         if g > 0:
@@ -233,22 +198,10 @@ class WinStayLoseShift(Automaton):
         self.punish = punish
         self.start = start
 
+    @doc_sections(Automaton.states)
     def states(self, p, ctx=None):
-        """``collude`` and ``punish``, each kept while the profit meets the aspiration.
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-        ctx : FirmContext, optional
-            The market's levels and the seat: the default aspiration needs the firm's
-            static-Nash and collusive profits.
-
-        Returns
-        -------
-        dict
-            The state table.
-        """
+        """``collude`` and ``punish``, each kept while the profit meets the aspiration (by default one set from the
+        firm's static-Nash and collusive profits, which ``ctx`` gives)."""
         a = p["aspiration"]
         if a is None:
             if ctx is None:
@@ -264,18 +217,9 @@ class WinStayLoseShift(Automaton):
                        "bad": "collude"},
         }
 
+    @doc_sections(Automaton.initial)
     def initial(self, p):
-        """The state of the ``start`` conduct.
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-
-        Returns
-        -------
-        str
-        """
+        """The state of the ``start`` conduct."""
         return p["start"]
 
 
@@ -302,21 +246,9 @@ class StickAndCarrot(Automaton):
         self.collude = collude
         self.punish = punish
 
+    @doc_sections(Automaton.states)
     def states(self, p, ctx=None):
-        """``collude`` and one ``punish`` period that restarts when someone shirks it.
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-        ctx : FirmContext, optional
-            Not used: the table does not depend on the market.
-
-        Returns
-        -------
-        dict
-            The state table.
-        """
+        """``collude`` and one ``punish`` period that restarts when someone shirks it."""
         return {
             "collude": {"action": p["collude"], "watch": "all", "good": "collude", "bad": "punish"},
             "punish": {"action": p["punish"], "watch": "all", "judge": "punishment", "good": "collude",
@@ -351,21 +283,9 @@ class TriggerPrice(Automaton):
         self.collude = collude
         self.punish = punish
 
+    @doc_sections(Automaton.states)
     def states(self, p, ctx=None):
-        """``collude`` watching the market price, and ``length`` war states (or one absorbing war).
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-        ctx : FirmContext, optional
-            Not used: the table does not depend on the market.
-
-        Returns
-        -------
-        dict
-            The state table.
-        """
+        """``collude`` watching the market price, and ``length`` war states (or one absorbing war)."""
         T = p["length"]
         out = {"collude": {"action": p["collude"], "watch": "price", "threshold": p["trigger"], "good": "collude",
                            "bad": "war1" if T != "forever" else "war"}}
@@ -394,21 +314,9 @@ class AlwaysCompete(Automaton):
     def __init__(self, action="nash"):
         self.action = action
 
+    @doc_sections(Automaton.states)
     def states(self, p, ctx=None):
-        """One state, ``compete``, that never counts as colluding.
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-        ctx : FirmContext, optional
-            Not used: the table does not depend on the market.
-
-        Returns
-        -------
-        dict
-            The state table.
-        """
+        """One state, ``compete``, that never counts as colluding."""
         return {"compete": {"action": p["action"], "collusive": False}}
 
 
@@ -429,21 +337,9 @@ class AlwaysCollude(Automaton):
     def __init__(self, action="collusive"):
         self.action = action
 
+    @doc_sections(Automaton.states)
     def states(self, p, ctx=None):
-        """One state, ``collude``, that always counts as colluding.
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-        ctx : FirmContext, optional
-            Not used: the table does not depend on the market.
-
-        Returns
-        -------
-        dict
-            The state table.
-        """
+        """One state, ``collude``, that always counts as colluding."""
         return {"collude": {"action": p["action"], "collusive": True}}
 
 
@@ -485,21 +381,9 @@ class Opportunist(Automaton):
         self.punish = punish
         self.cheat_action = cheat_action
 
+    @doc_sections(Automaton.states)
     def states(self, p, ctx=None):
-        """``collude`` with its cheat probability, then an absorbing ``punish`` (or none with ``after = 'collude'``).
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-        ctx : FirmContext, optional
-            Not used: the table does not depend on the market.
-
-        Returns
-        -------
-        dict
-            The state table.
-        """
+        """``collude`` with its cheat probability, then an absorbing ``punish`` (or none with ``after = 'collude'``)."""
         if p["after"] == "collude":
             return {"collude": {"action": p["collude"], "cheat": p["probability"]}}
         return {
@@ -508,21 +392,7 @@ class Opportunist(Automaton):
             "punish": {"action": p["punish"]},
         }
 
+    @doc_sections(Automaton.cheat)
     def cheat(self, p):
-        """``cheat_action`` from period ``start`` on.
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-
-        Returns
-        -------
-        level : level
-            The cheating level.
-        start : int
-            First period of the window.
-        stop : None
-            The window never closes.
-        """
+        """``cheat_action`` from period ``start`` on; the window never closes."""
         return p["cheat_action"], p["start"], None

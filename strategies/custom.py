@@ -6,6 +6,7 @@ compiled, with errors naming their key path (``strategies[2].states.punish.good`
 
 from __future__ import annotations
 
+from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import Integer, Options, optional
 from strategies.base import Automaton
@@ -97,52 +98,17 @@ class TableAutomaton(Automaton):
         out["start"] = Integer(0, None).check(f"{key}start", self.start)
         return out
 
+    @doc_sections(Automaton.states)
     def states(self, p, ctx=None):
-        """The table as given.
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-        ctx : FirmContext, optional
-            Not used: the table does not depend on the market.
-
-        Returns
-        -------
-        dict
-            The state table.
-        """
+        """The table as given."""
         return p["states"]
 
+    @doc_sections(Automaton.initial)
     def initial(self, p):
-        """The ``initial`` state (None: the table's first).
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-
-        Returns
-        -------
-        str or None
-        """
+        """The ``initial`` state (None: the table's first)."""
         return p["initial"]
 
+    @doc_sections(Automaton.cheat)
     def cheat(self, p):
-        """``cheat_action`` from period ``start`` on.
-
-        Parameters
-        ----------
-        p : dict
-            The validated parameters.
-
-        Returns
-        -------
-        level : level
-            The cheating level.
-        start : int
-            First period of the window.
-        stop : None
-            The window never closes.
-        """
+        """``cheat_action`` from period ``start`` on; the window never closes."""
         return p["cheat_action"], p["start"], None

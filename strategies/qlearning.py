@@ -28,6 +28,7 @@ from typing import Any
 
 import numpy as np
 
+from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import Constraint, Integer, Options, Parametrized, Real, optional
 
@@ -52,29 +53,13 @@ def _fmt(value: Any) -> str:
 class ActionGrid(Constraint):
     """A strictly increasing list of at least two finite, non-negative actions."""
 
+    @doc_sections(Constraint.describe)
     def describe(self) -> str:
-        """What the constraint allows, in words (for error messages).
-
-        Returns
-        -------
-        str
-        """
         return "a strictly increasing list of at least 2 non-negative numbers"
 
+    @doc_sections(Constraint.check)
     def check(self, key: str, value: Any) -> np.ndarray:
-        """The grid as a float array.
-
-        Parameters
-        ----------
-        key : str
-            Key path of the value, for the error message.
-        value : object
-            The value as given.
-
-        Returns
-        -------
-        ndarray of shape (m,)
-        """
+        """The grid as a float array of shape (m,)."""
         if isinstance(value, np.ndarray):
             value = value.tolist()
         if not isinstance(value, Sequence) or isinstance(value, str):
@@ -92,42 +77,22 @@ class ActionGrid(Constraint):
                                   f"action {j + 1} ({out[j]:g})")
         return out
 
+    @doc_sections(Constraint.example_bad)
     def example_bad(self) -> Any:
-        """A grid of one action.
-
-        Returns
-        -------
-        object
-        """
+        """A grid of one action."""
         return [1.0]
 
 
 class QInit(Constraint):
     """``"uniform"``, ``"zeros"`` or an array of initial Q-values."""
 
+    @doc_sections(Constraint.describe)
     def describe(self) -> str:
-        """What the constraint allows, in words (for error messages).
-
-        Returns
-        -------
-        str
-        """
         return "'uniform', 'zeros' or an array of shape (n_states, m) or (m,)"
 
+    @doc_sections(Constraint.check)
     def check(self, key: str, value: Any) -> str | np.ndarray:
-        """The kind, or the given values as a float array.
-
-        Parameters
-        ----------
-        key : str
-            Key path of the value, for the error message.
-        value : object
-            The value as given.
-
-        Returns
-        -------
-        str or ndarray of shape (n_states, m) or (m,)
-        """
+        """The kind, or the given values as a float array of shape (n_states, m) or (m,)."""
         if isinstance(value, str):
             if value not in INIT_KINDS:
                 raise InputError(key, f"must be {self.describe()}, got {value!r}")
@@ -142,13 +107,9 @@ class QInit(Constraint):
             raise InputError(key, "initial Q-values must be finite numbers")
         return arr
 
+    @doc_sections(Constraint.example_bad)
     def example_bad(self) -> Any:
-        """An initialisation that is not offered.
-
-        Returns
-        -------
-        object
-        """
+        """An initialisation that is not offered."""
         return "optimistic"
 
 

@@ -51,6 +51,7 @@ from typing import Any
 import numpy as np
 
 import strategies.step as S
+from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import Constraint
 
@@ -121,38 +122,18 @@ def check_level(key: str, value: Any):
 class Level(Constraint):
     """An action level: a named level of the stage game, a number, or one number per product."""
 
+    @doc_sections(Constraint.describe)
     def describe(self) -> str:
-        """What the constraint allows, in words (for error messages).
-
-        Returns
-        -------
-        str
-        """
         return f"one of {', '.join(map(repr, LEVEL_NAMES))}, a number or a list of numbers"
 
+    @doc_sections(Constraint.check)
     def check(self, key: str, value: Any):
-        """The level, normalised by :func:`check_level`.
-
-        Parameters
-        ----------
-        key : str
-            Key path of the value, for the error message.
-        value : object
-            The value as given.
-
-        Returns
-        -------
-        str, float or tuple of float
-        """
+        """The level (a name, a float or a tuple of floats), normalised by :func:`check_level`."""
         return check_level(key, value)
 
+    @doc_sections(Constraint.example_bad)
     def example_bad(self) -> Any:
-        """A name that is no level.
-
-        Returns
-        -------
-        object
-        """
+        """A name that is no level."""
         return "cheapest"
 
 
@@ -168,29 +149,13 @@ class Either(Constraint):
     def __init__(self, *options: Constraint):
         self.options = options
 
+    @doc_sections(Constraint.describe)
     def describe(self) -> str:
-        """What the constraint allows, in words (for error messages).
-
-        Returns
-        -------
-        str
-        """
         return " or ".join(o.describe() for o in self.options)
 
+    @doc_sections(Constraint.check)
     def check(self, key: str, value: Any):
-        """The value as normalised by the first option that accepts it.
-
-        Parameters
-        ----------
-        key : str
-            Key path of the value, for the error message.
-        value : object
-            The value as given.
-
-        Returns
-        -------
-        object
-        """
+        """The value as normalised by the first option that accepts it."""
         for o in self.options:
             try:
                 return o.check(key, value)
@@ -198,53 +163,29 @@ class Either(Constraint):
                 continue
         raise InputError(key, f"must be {self.describe()}, got {_fmt(value)}")
 
+    @doc_sections(Constraint.example_bad)
     def example_bad(self) -> Any:
-        """A value no option accepts.
-
-        Returns
-        -------
-        object
-        """
+        """A value no option accepts."""
         return [object()]
 
 
 class StateTableConstraint(Constraint):
     """A state table: a non-empty dict from state names to dicts of state keys."""
 
+    @doc_sections(Constraint.describe)
     def describe(self) -> str:
-        """What the constraint allows, in words (for error messages).
-
-        Returns
-        -------
-        str
-        """
         return "a table of states (state name -> action, watch, good, bad, ...)"
 
+    @doc_sections(Constraint.check)
     def check(self, key: str, value: Any):
-        """The table itself, when it is a non-empty dict (its states are checked by :func:`validate_table`).
-
-        Parameters
-        ----------
-        key : str
-            Key path of the value, for the error message.
-        value : object
-            The value as given.
-
-        Returns
-        -------
-        dict
-        """
+        """The table itself, when it is a non-empty dict (its states are checked by :func:`validate_table`)."""
         if not isinstance(value, dict) or not value:
             raise InputError(key, f"must be {self.describe()}, got {_fmt(value)}")
         return value
 
+    @doc_sections(Constraint.example_bad)
     def example_bad(self) -> Any:
-        """An empty table.
-
-        Returns
-        -------
-        object
-        """
+        """An empty table."""
         return {}
 
 

@@ -64,7 +64,7 @@ from sim.antitrust.calibrated import REPRODUCTION_TOL, Calibration
 from sim.antitrust.data_constraints import Negative, OneOrPerProduct, OwnerMap
 from sim.antitrust.demand_fits import _differentiated, _isoelastic, _linear, _logit  # the calibrators below
 from sim.core.errors import InputError, SolverError
-from sim.core.params import Integer, Options, Parametrized, PerFirm, Real, optional
+from sim.core.params import Integer, Options, Parametrized, PerFirm, Real, agreeing_length, optional
 from sim.core.tables import refuse_unknown
 from sim.models.demand import DEMAND_TYPES, DifferentiatedDemand, IsoelasticDemand, LinearDemand, LogitDemand
 from sim.theory.equilibrium import static_nash
@@ -153,10 +153,7 @@ class MarketData(Parametrized):
                 sizes.append((name, len(v)))
         if not sizes:
             raise InputError(f"{prefix}.quantities", "give the observed quantities (or shares) of each product")
-        k0, n0 = sizes[0]
-        for k, n in sizes[1:]:
-            if n != n0:
-                raise InputError(f"{prefix}.{k}", f"must have one value per product ({n0}, as {k0}), got {n}")
+        k0, n0 = agreeing_length(prefix, sizes, "product")
         if n0 < 2:
             raise InputError(f"{prefix}.{k0}", f"a market needs at least two products, got {n0}")
         return n0

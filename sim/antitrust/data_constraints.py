@@ -6,10 +6,10 @@ import numbers
 from collections.abc import Sequence
 from typing import Any
 
-import numpy as np
-
+from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import Constraint, PerFirm, Real
+from sim.models.market import owning_firms
 
 __all__ = ["Negative", "OneOrPerProduct", "OwnerMap"]
 
@@ -20,13 +20,8 @@ class Negative(Real):
     def __init__(self):
         super().__init__(None, 0, closed="neither")
 
+    @doc_sections(Constraint.describe)
     def describe(self) -> str:
-        """What the constraint allows, in words.
-
-        Returns
-        -------
-        str
-        """
         return "a negative number (a price elasticity of demand is negative)"
 
 
@@ -42,13 +37,8 @@ class OneOrPerProduct(Constraint):
     def __init__(self, element: Real):
         self.element = element
 
+    @doc_sections(Constraint.describe)
     def describe(self) -> str:
-        """What the constraint allows, in words.
-
-        Returns
-        -------
-        str
-        """
         return f"{self.element.describe()}, or a list of them (one per product)"
 
     def check(self, key: str, value: Any, n: int | None = None):
@@ -70,26 +60,16 @@ class OneOrPerProduct(Constraint):
             return self.element.check(key, value)
         return PerFirm(self.element, broadcast=False).check(key, value, n)
 
+    @doc_sections(Constraint.example_bad)
     def example_bad(self) -> Any:
-        """A value the constraint refuses (for the common test of constraints).
-
-        Returns
-        -------
-        object
-        """
         return self.element.example_bad()
 
 
 class OwnerMap(Constraint):
     """Firm number (1, 2, ...) of each product; checked in full by :class:`~sim.models.market.Market`."""
 
+    @doc_sections(Constraint.describe)
     def describe(self) -> str:
-        """What the constraint allows, in words.
-
-        Returns
-        -------
-        str
-        """
         return "a list of firm numbers 1, 2, ..., one per product"
 
     def check(self, key: str, value: Any, n: int | None = None):
@@ -110,26 +90,8 @@ class OwnerMap(Constraint):
         """
         if not isinstance(value, Sequence) or isinstance(value, str) or len(value) < 2:
             raise InputError(key, f"must be {self.describe()}, got {value!r}")
-        out = []
-        for k, v in enumerate(value):
-            if isinstance(v, bool) or not isinstance(v, numbers.Integral) or v < 1:
-                raise InputError(key, f"entry {k + 1} must be a firm number 1, 2, ..., got {v!r}")
-            out.append(int(v))
-        if n is not None and len(out) != n:
-            raise InputError(key, f"must have one firm number per product ({n}), got {len(out)}")
-        F = max(out)
-        missing = sorted(set(range(1, F + 1)) - set(out))
-        if missing:
-            raise InputError(key, f"firm numbers must run from 1 without gaps; firm {missing[0]} owns no product")
-        if F < 2:
-            raise InputError(key, "a market needs at least two firms")
-        return np.array(out, dtype=np.int64) - 1
+        return owning_firms(key, value, n)
 
+    @doc_sections(Constraint.example_bad)
     def example_bad(self) -> Any:
-        """A value the constraint refuses (for the common test of constraints).
-
-        Returns
-        -------
-        object
-        """
         return [0, 1]

@@ -106,11 +106,15 @@ def _logit(v: dict, prefix: str) -> dict:
     }
 
 
-def _linear(v: dict, prefix: str) -> dict:
-    P = float(v["prices"][0])
+def _homogeneous_point(v: dict) -> tuple[float, np.ndarray, float, np.ndarray]:
+    """The observed point of a homogeneous good: its price, the firms' quantities, their total and the shares."""
     q = v["quantities"]
     Q = float(q.sum())
-    s = q / Q
+    return float(v["prices"][0]), q, Q, q / Q
+
+
+def _linear(v: dict, prefix: str) -> dict:
+    P, q, Q, s = _homogeneous_point(v)
     name, val = _identifying(v)
     fit = None
 
@@ -148,10 +152,7 @@ def _linear(v: dict, prefix: str) -> dict:
 
 
 def _isoelastic(v: dict, prefix: str) -> dict:
-    P = float(v["prices"][0])
-    q = v["quantities"]
-    Q = float(q.sum())
-    s = q / Q
+    P, _, Q, s = _homogeneous_point(v)
     name, val = _identifying(v)
     fit = None
     if name == "market_elasticity":

@@ -28,6 +28,7 @@ __all__ = [
     "Parametrized",
     "PerFirm",
     "Real",
+    "agreeing_length",
     "describe_parameters",
     "optional",
 ]
@@ -357,6 +358,37 @@ def _param_equal(x: Any, y: Any) -> bool:
     if isinstance(x, Parametrized) or isinstance(y, Parametrized):
         return x == y
     return x == y
+
+
+def agreeing_length(prefix: str, lengths: list[tuple[str, int]], unit: str) -> tuple[str, int]:
+    """The number of values that every list given one value per ``unit`` has, and the first key giving it.
+
+    Parameters
+    ----------
+    prefix : str
+        Key path of the table in error messages.
+    lengths : list of (str, int)
+        Key and length of each list given, in the order they are checked (not empty).
+    unit : str
+        What the lists give one value for (``"firm"``, ``"product"``).
+
+    Returns
+    -------
+    key : str
+        The first key.
+    n : int
+        Its length, shared by every list.
+
+    Raises
+    ------
+    InputError
+        At the first key whose list has another length.
+    """
+    key0, n0 = lengths[0]
+    for key, n in lengths[1:]:
+        if n != n0:
+            raise InputError(f"{prefix}.{key}", f"must have one value per {unit} ({n0}, as {key0}), got {n} values")
+    return key0, n0
 
 
 def describe_parameters(cls: type) -> list[dict]:

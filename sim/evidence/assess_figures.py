@@ -55,11 +55,8 @@ def _thresholds(plt, d: dict) -> Drawn:
     ax.set_xticks(x, [s["scheme"] for s in sch], rotation=20, ha="right", fontsize=8)
     ax.set_ylim(0, 1.08)
     ax.set_ylabel("critical discount factor (market)")
-    ax.set_title("Critical discount factors before and after the merger ('none': not sustainable below one)",
-                 fontsize=9)
-    _legend_outside(ax, fontsize=8)
-    fig.tight_layout()
-    return Drawn("thresholds", fig, _CAPTIONS["thresholds"])
+    return _drawn(fig, ax, "thresholds",
+                  "Critical discount factors before and after the merger ('none': not sustainable below one)")
 
 
 def _partial(plt, d: dict) -> Drawn:
@@ -79,10 +76,8 @@ def _partial(plt, d: dict) -> Drawn:
     ax.set_xlabel("discount factor")
     ax.set_ylabel("profit gain of the best sustainable outcome")
     ax.set_ylim(-0.02, 1.05)
-    ax.set_title("Partial collusion before (solid) and after (dashed) the merger", fontsize=9)
-    _legend_outside(ax, fontsize=7)
-    fig.tight_layout()
-    return Drawn("partial_collusion", fig, _CAPTIONS["partial_collusion"])
+    return _drawn(fig, ax, "partial_collusion", "Partial collusion before (solid) and after (dashed) the merger",
+                  legend_size=7)
 
 
 def _persistence(plt, d: dict) -> Drawn:
@@ -93,10 +88,15 @@ def _persistence(plt, d: dict) -> Drawn:
     ax.set_xlabel("period")
     ax.set_ylabel("share of replications colluding")
     ax.set_ylim(-0.02, 1.02)
-    ax.set_title("Simulated persistence of collusion under the experiment's monitoring noise", fontsize=9)
-    _legend_outside(ax, fontsize=8)
+    return _drawn(fig, ax, "persistence", "Simulated persistence of collusion under the experiment's monitoring noise")
+
+
+def _drawn(fig, ax, name: str, title: str, legend_size: int = 8) -> Drawn:
+    """The figure finished -- its title, the legend outside the data, a tight layout -- under its name and caption."""
+    ax.set_title(title, fontsize=9)
+    _legend_outside(ax, fontsize=legend_size)
     fig.tight_layout()
-    return Drawn("persistence", fig, _CAPTIONS["persistence"])
+    return Drawn(name, fig, _CAPTIONS[name])
 
 
 def _legend_outside(ax, handles=None, labels=None, fontsize=8) -> None:
@@ -162,10 +162,7 @@ def _along_noise(plt, s: dict) -> Drawn:
     ax.set_xlabel("noise scale (1 = the experiment's monitoring noise)")
     ax.set_ylabel("share of collusive periods")
     ax.set_ylim(-0.02, 1.02)
-    ax.set_title("Simulated persistence against monitoring noise (95% confidence bands)", fontsize=9)
-    _legend_outside(ax, fontsize=8)
-    fig.tight_layout()
-    return Drawn("sensitivity_noise", fig, _CAPTIONS["sensitivity_noise"])
+    return _drawn(fig, ax, "sensitivity_noise", "Simulated persistence against monitoring noise (95% confidence bands)")
 
 
 def _cell_edges(xs: np.ndarray, log: bool) -> np.ndarray:

@@ -377,10 +377,15 @@ def _structure_tables(d: dict) -> dict:
                            "cost coefficient of variation", "largest / smallest capacity"], arow),
             "firms": (["market", "firm", "share (static Nash)", f"marginal cost ({cur})", "capacity", "products"],
                       srow),
-            "merger_prices": (["product", "owner after", f"price before ({cur})", f"price after ({cur})",
-                               "change"],
-                              [[lab, r["owner"] or "-", as_float(r["pre"]), as_float(r["post"]), percent(r["change"])]
-                               for lab, r in price_rows(d)])}
+            "merger_prices": _merger_prices(d, "change", percent)}
+
+
+def _merger_prices(d: dict, change_header: str, change) -> tuple:
+    """The price of each product before and after the merger, its change in the cell ``change(fraction)`` gives."""
+    cur = units(d)[0]
+    return (["product", "owner after", f"price before ({cur})", f"price after ({cur})", change_header],
+            [[lab, r["owner"] or "-", as_float(r["pre"]), as_float(r["post"]), change(r["change"])]
+             for lab, r in price_rows(d)])
 
 
 def csv_tables(a) -> dict:
@@ -395,12 +400,7 @@ def csv_tables(a) -> dict:
     dict
         Table name -> ``(headers, rows)`` of its CSV file.
     """
-    d = assessment_data(a)
-    cur = units(d)[0]
-    return {"merger_prices": (["product", "owner after", f"price before ({cur})", f"price after ({cur})",
-                               "change (%)"],
-                              [[lab, r["owner"] or "-", as_float(r["pre"]), as_float(r["post"]),
-                                100.0 * as_float(r["change"])] for lab, r in price_rows(d)])}
+    return {"merger_prices": _merger_prices(assessment_data(a), "change (%)", lambda x: 100.0 * as_float(x))}
 
 
 #: the simulated metrics of the persistence table and their labels (``{money}``, ``{flow}``: the units)

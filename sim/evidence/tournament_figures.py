@@ -133,6 +133,16 @@ def _ticks(ax, labels, x_label: str, y_label: str) -> None:
     ax.set_ylabel(y_label, fontsize=9)
 
 
+def _heatmap_frame(fig, ax, im, labels, x_label: str, y_label: str, bar_label: str):
+    """The rules on both axes, no frame, and a labelled colour bar beside the heatmap (returned for its ticks)."""
+    _ticks(ax, labels, x_label, y_label)
+    ax.set_frame_on(False)
+    bar = fig.colorbar(im, ax=ax, shrink=0.85)
+    bar.set_label(bar_label, fontsize=9)
+    bar.ax.tick_params(labelsize=8)
+    return bar
+
+
 def rules_figure(out: TournamentOutcome):
     """Each rule's profit gain (or the score it is placed by) with its interval (left), beside its share of the
     population after the replicator dynamics (right); rules from first to last place.
@@ -228,11 +238,7 @@ def pairs_figure(out: TournamentOutcome):
     else:
         im = _show(ax, plt, V, mask, "cividis", norm=Normalize(0.0, hi))
     _annotate(ax, im, V, lambda v: f"{v:.2f}", mask)
-    _ticks(ax, out.labels, *_axes_names(out))
-    ax.set_frame_on(False)
-    bar = fig.colorbar(im, ax=ax, shrink=0.85)
-    bar.set_label("share of the collusive\nprofit kept", fontsize=9)
-    bar.ax.tick_params(labelsize=8)
+    _heatmap_frame(fig, ax, im, out.labels, *_axes_names(out), "share of the collusive\nprofit kept")
     return fig
 
 
@@ -255,12 +261,8 @@ def duration_figure(out: TournamentOutcome):
     fig, ax = _square_axes(plt, len(out.entrants))
     im = _show(ax, plt, V, mask, "cividis", norm=LogNorm(vmin=1.0, vmax=max(2.0, float(out.horizon))))
     _annotate(ax, im, V, three_significant, mask)
-    _ticks(ax, out.labels, *_axes_names(out))
-    ax.set_frame_on(False)
-    bar = fig.colorbar(im, ax=ax, shrink=0.85)
     period = out.units["period"]
-    bar.set_label(f"{period}s until collusion\nfirst breaks down", fontsize=9)
-    bar.ax.tick_params(labelsize=8)
+    _heatmap_frame(fig, ax, im, out.labels, *_axes_names(out), f"{period}s until collusion\nfirst breaks down")
     return fig
 
 
@@ -317,12 +319,9 @@ def invasion_figure(out: TournamentOutcome):
     vmax = max(1.0, float(np.nanmax(np.abs(L)))) if np.isfinite(L).any() else 1.0
     im = _show(ax, plt, L, np.eye(len(out.entrants), dtype=bool), "PuOr_r", norm=TwoSlopeNorm(0.0, -vmax, vmax))
     _annotate(ax, im, L, lambda v: f"{v:.2g}", mask=np.eye(len(out.entrants), dtype=bool), text=R)
-    _ticks(ax, out.labels, "rule of the population (resident)", "rule of the one invading firm")
-    ax.set_frame_on(False)
-    bar = fig.colorbar(im, ax=ax, shrink=0.85)
+    bar = _heatmap_frame(fig, ax, im, out.labels, "rule of the population (resident)", "rule of the one invading firm",
+                         f"{N} × probability\nof taking over")
     ticks = [t for t in range(-3, 4) if -vmax <= t <= vmax]
     bar.ax.yaxis.set_major_locator(FixedLocator(ticks))
     bar.ax.yaxis.set_major_formatter(FixedFormatter([f"{10.0 ** t:g}" for t in ticks]))
-    bar.set_label(f"{N} × probability\nof taking over", fontsize=9)
-    bar.ax.tick_params(labelsize=8)
     return fig

@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import optimize
 
+from sim.core.docs import doc_sections
 from sim.core.errors import InputError, SolverError
 from sim.core.params import PerFirm, Real
 from sim.models.codes import CODE_DIFF_BERTRAND, CODE_DIFF_COURNOT
@@ -50,50 +51,27 @@ class DifferentiatedDemand(Demand):
         self.slope = slope
         self.substitution = substitution
 
+    @doc_sections(Demand.spec)
     def spec(self, n_firms, prefix="market"):
-        """Validate the parameters for ``n_firms`` products.
-
-        Parameters
-        ----------
-        n_firms : int
-        prefix : str
-            Key path of the market in error messages.
-
-        Returns
-        -------
-        DifferentiatedDemandSpec
-            ``scalars = (slope, substitution, 0, 0)``, ``vector`` the intercepts.
-        """
+        """Validate the parameters for ``n_firms`` products: ``scalars = (slope, substitution, 0, 0)``,
+        ``vector`` the intercepts."""
         p = self._check_params(prefix, n_firms)
         return DifferentiatedDemandSpec(
             type(self), np.array([p["slope"], p["substitution"], 0.0, 0.0]), p["intercept"]
         )
 
 
+@doc_sections(DemandSpec)
 class DifferentiatedDemandSpec(DemandSpec):
-    """Numeric differentiated linear demand (see :class:`DifferentiatedDemand`).
-
-    Parameters
-    ----------
-    demand_type : type
-        The parameter class it comes from.
-    scalars : ndarray of shape (4,)
-    vector : ndarray of shape (n_products,)
-        In the layout of its stage-core codes (see :meth:`DifferentiatedDemand.spec`).
-    """
+    """Numeric differentiated linear demand (see :class:`DifferentiatedDemand`), its ``scalars`` and
+    ``vector`` in the layout given by :meth:`DifferentiatedDemand.spec`."""
 
     stage_codes = {"cournot": CODE_DIFF_COURNOT, "bertrand": CODE_DIFF_BERTRAND}
     price_reaches_zero = True
 
+    @doc_sections(DemandSpec.check_market)
     def check_market(self, model, cost, prefix):
-        """Price competition needs ``substitution < 1``; every cost below its product's intercept.
-
-        Parameters
-        ----------
-        model : {"cournot", "bertrand"}
-        cost : ndarray of shape (n_products,)
-        prefix : str
-        """
+        """Price competition needs ``substitution < 1``; every cost below its product's intercept."""
         if model == "bertrand" and self.scalars[1] >= 1.0:
             raise InputError(
                 f"{prefix}.substitution",
@@ -107,47 +85,23 @@ class DifferentiatedDemandSpec(DemandSpec):
                 f"firm {i + 1}'s cost {cost[i]:g} is at or above its choke price (intercept {self.vector[i]:g})",
             )
 
+    @doc_sections(DemandSpec.inverse_demand)
     def inverse_demand(self, q):
-        """``p_i = max(0, a_i - b ((1-g) q_i + g Q))``.
-
-        Parameters
-        ----------
-        q : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (..., n_products)
-        """
+        """``p_i = max(0, a_i - b ((1-g) q_i + g Q))``."""
         q = np.asarray(q, dtype=float)
         b, g = self.scalars[0], self.scalars[1]
         tot = q.sum(axis=-1, keepdims=True)
         return np.maximum(0.0, self.vector - b * ((1.0 - g) * q + g * tot))
 
+    @doc_sections(DemandSpec.direct_demand)
     def direct_demand(self, p):
-        """Quantities with ``q >= 0`` (see :func:`_lcp_demand`).
-
-        Parameters
-        ----------
-        p : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (..., n_products)
-        """
+        """Quantities with ``q >= 0`` (see :func:`_lcp_demand`)."""
         p = np.asarray(p, dtype=float)
         return _lcp_demand(self.vector, self.scalars[0], self.scalars[1], p)
 
+    @doc_sections(DemandSpec.consumer_surplus)
     def consumer_surplus(self, q, p):
-        """``U(q) - p.q`` of the representative consumer.
-
-        Parameters
-        ----------
-        q, p : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (...,)
-        """
+        """``U(q) - p.q`` of the representative consumer."""
         q = np.asarray(q, dtype=float)
         p = np.asarray(p, dtype=float)
         b, g = self.scalars[0], self.scalars[1]
@@ -156,63 +110,28 @@ class DifferentiatedDemandSpec(DemandSpec):
         util = (self.vector * q).sum(axis=-1) - 0.5 * b * ((1.0 - g) * sq + g * tot * tot)
         return util - (p * q).sum(axis=-1)
 
+    @doc_sections(DemandSpec.prices_for_quantities)
     def prices_for_quantities(self, q):
-        """Inverse demand without the floor at zero: ``a - b ((1-g) q + g Q)``.
-
-        Parameters
-        ----------
-        q : ndarray of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (..., n_products)
-        """
+        """Inverse demand without the floor at zero: ``a - b ((1-g) q + g Q)``."""
         b, g = self.scalars[0], self.scalars[1]
         return self.vector - b * ((1 - g) * q + g * q.sum(axis=-1, keepdims=True))
 
+    @doc_sections(DemandSpec.action_upper)
     def action_upper(self, ms):
-        """A product's own choke quantity ``a_i / b`` (quantities) or its intercept (prices).
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        """A product's own choke quantity ``a_i / b`` (quantities) or its intercept (prices)."""
         return self.vector / self.scalars[0] if ms.quantity_setting else self.vector.copy()
 
+    @doc_sections(DemandSpec.flooding_quantity)
     def flooding_quantity(self, ms, hi):
-        """With ``g > 0``, rivals selling ``2 max(a) / (b g)`` each drive every price to zero.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        hi : ndarray of shape (n_products,)
-
-        Returns
-        -------
-        float
-        """
+        """With ``g > 0``, rivals selling ``2 max(a) / (b g)`` each drive every price to zero."""
         if self.scalars[1] > 0:
             return self.vector.max() / (self.scalars[0] * self.scalars[1]) * 2
         return hi.max() * 2
 
+    @doc_sections(DemandSpec.best_response)
     def best_response(self, ms, i, A):
         """Cournot: ``(a_i - c_i - b g R) / (2 b)`` within ``[0, capacity]``. Bertrand: the exact
-        piecewise search :func:`~sim.models.differentiated_bertrand.sweep_price`.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        i : int
-        A : ndarray of shape (n_rows, n_products)
-
-        Returns
-        -------
-        tuple of ndarray of shape (n_rows,)
-        """
+        piecewise search :func:`~sim.models.differentiated_bertrand.sweep_price`."""
         if ms.quantity_setting:
             b, g = self.scalars[0], self.scalars[1]
             rest = np.clip(A, 0, ms.capacity).sum(axis=1) - np.clip(A[:, i], 0, ms.capacity[i])
@@ -229,23 +148,12 @@ class DifferentiatedDemandSpec(DemandSpec):
             v[r] = float(ms.profits(prof[None, :])[0, i])
         return x, v
 
+    @doc_sections(DemandSpec.best_response_multi)
     def best_response_multi(self, ms, i, own, row):
         """Cournot: a concave quadratic programme in the firm's quantities (first-order conditions
         ``a_k - c_k - b((1-g) q_k + g Q) - b((1-g) q_k + g Q_f) = 0``) over ``[0, capacity]``, solved
         exactly as bounded least squares. Bertrand:
-        :func:`~sim.models.differentiated_bertrand.bertrand_multi_response`.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        i : int
-        own : ndarray of int
-        row : ndarray of shape (n_products,)
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        :func:`~sim.models.differentiated_bertrand.bertrand_multi_response`."""
         if not ms.quantity_setting:
             return bertrand_multi_response(ms, i, own, row)
         b, g = self.scalars[0], self.scalars[1]
@@ -258,19 +166,11 @@ class DifferentiatedDemandSpec(DemandSpec):
         out[own] = q
         return out
 
+    @doc_sections(DemandSpec.nash_start)
     def nash_start(self, ms):
         """The interior equilibrium of single-product firms on the active set, dropping products that
         would not sell: Cournot ``(2 - g) q_i + g Q = (a_i - c_i) / b``; Bertrand
-        :func:`~sim.models.differentiated_bertrand.interior_nash`.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        :func:`~sim.models.differentiated_bertrand.interior_nash`."""
         n, c = ms.n_products, ms.cost
         b, g = self.scalars[0], self.scalars[1]
         av = self.vector
@@ -294,34 +194,17 @@ class DifferentiatedDemandSpec(DemandSpec):
             return np.clip(x, 0, ms.capacity)
         return np.where(active, x, np.maximum(c, x))
 
+    @doc_sections(DemandSpec.joint_maximum)
     def joint_maximum(self, ms):
-        """The joint-profit quantities (:func:`_joint_quantities`), as prices under Bertrand.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        """The joint-profit quantities (:func:`_joint_quantities`), as prices under Bertrand."""
         q = _joint_quantities(ms)
         return q if ms.quantity_setting else self.prices_for_quantities(q)
 
+    @doc_sections(DemandSpec.joint_gradient)
     def joint_gradient(self, ms, a, q, p):
         """Cournot: ``p_i - c_i - b((1-g) q_i + g Q)`` over the products with a positive price
         (``dp_i/dq_k = -b((1-g) delta_ik + g)`` there). Bertrand, on the active set S:
-        ``q_S - M (p - c)_S`` with ``M = (I - theta J) / (b (1-g))``, ``theta = g / (1 + (k-1) g)``.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        a, q, p : ndarray of shape (n_products,)
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        ``q_S - M (p - c)_S`` with ``M = (I - theta J) / (b (1-g))``, ``theta = g / (1 + (k-1) g)``."""
         c = ms.cost
         b, gg = self.scalars[0], self.scalars[1]
         if ms.quantity_setting:
@@ -337,18 +220,9 @@ class DifferentiatedDemandSpec(DemandSpec):
             out[idx] = q[idx] - (m - theta * m.sum()) / (b * (1 - gg))
         return out
 
+    @doc_sections(DemandSpec.proportional_slope)
     def proportional_slope(self, qn, lam):
-        """``d p / d lam = -b ((1-g) qn + g sum(qn))``.
-
-        Parameters
-        ----------
-        qn : ndarray of shape (n_products,)
-        lam : float
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        """``d p / d lam = -b ((1-g) qn + g sum(qn))``."""
         b, gg = self.scalars[0], self.scalars[1]
         return -b * ((1 - gg) * qn + gg * qn.sum())
 

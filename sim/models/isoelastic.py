@@ -11,6 +11,7 @@ import math
 import numpy as np
 from scipy import optimize
 
+from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import Real
 from sim.models.codes import CODE_ISO_COURNOT
@@ -43,20 +44,9 @@ class IsoelasticDemand(Demand):
         self.scale = scale
         self.elasticity = elasticity
 
+    @doc_sections(Demand.spec)
     def spec(self, n_firms, prefix="market"):
-        """Validate the parameters for ``n_firms`` firms.
-
-        Parameters
-        ----------
-        n_firms : int
-        prefix : str
-            Key path of the market in error messages.
-
-        Returns
-        -------
-        IsoelasticDemandSpec
-            ``scalars = (scale, elasticity, 0, 0)``, ``vector`` ones.
-        """
+        """Validate the parameters for ``n_firms`` firms: ``scalars = (scale, elasticity, 0, 0)``, ``vector`` ones."""
         if isinstance(self.elasticity, int | float) and not isinstance(self.elasticity, bool):
             if self.elasticity < 0:
                 raise InputError(
@@ -67,29 +57,16 @@ class IsoelasticDemand(Demand):
         return IsoelasticDemandSpec(type(self), np.array([p["scale"], p["elasticity"], 0.0, 0.0]), np.ones(n_firms))
 
 
+@doc_sections(DemandSpec)
 class IsoelasticDemandSpec(DemandSpec):
-    """Numeric constant-elasticity demand (see :class:`IsoelasticDemand`).
-
-    Parameters
-    ----------
-    demand_type : type
-        The parameter class it comes from.
-    scalars : ndarray of shape (4,)
-    vector : ndarray of shape (n_products,)
-        In the layout of its stage-core codes (see :meth:`IsoelasticDemand.spec`).
-    """
+    """Numeric constant-elasticity demand (see :class:`IsoelasticDemand`), its ``scalars`` and ``vector`` in the layout
+    given by :meth:`IsoelasticDemand.spec`."""
 
     stage_codes = {"cournot": CODE_ISO_COURNOT}
 
+    @doc_sections(DemandSpec.check_market)
     def check_market(self, model, cost, prefix):
-        """Positive costs of at least a millionth of the scale.
-
-        Parameters
-        ----------
-        model : {"cournot"}
-        cost : ndarray of shape (n_products,)
-        prefix : str
-        """
+        """Positive costs of at least a millionth of the scale."""
         key = f"{prefix}.cost"
         bad = np.flatnonzero(cost <= 0)
         if bad.size:
@@ -101,17 +78,9 @@ class IsoelasticDemandSpec(DemandSpec):
             raise InputError(key, f"isoelastic demand needs costs of at least 1e-6 of the scale "
                                   f"({1e-6 * self.scalars[0]:g}); firm {low[0] + 1} has {cost[low[0]]:g}")
 
+    @doc_sections(DemandSpec.inverse_demand)
     def inverse_demand(self, q):
-        """The common price ``scale * Q^(-1/elasticity)`` (infinite at ``Q = 0``).
-
-        Parameters
-        ----------
-        q : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (..., n_products)
-        """
+        """The common price ``scale * Q^(-1/elasticity)`` (infinite at ``Q = 0``)."""
         q = np.asarray(q, dtype=float)
         A, eps = self.scalars[0], self.scalars[1]
         Q = q.sum(axis=-1, keepdims=True)
@@ -119,17 +88,9 @@ class IsoelasticDemandSpec(DemandSpec):
             p = np.where(Q > 0, A * np.power(np.where(Q > 0, Q, 1.0), -1.0 / eps), np.inf)
         return np.broadcast_to(p, q.shape).copy()
 
+    @doc_sections(DemandSpec.consumer_surplus)
     def consumer_surplus(self, q, p):
-        """``P Q / (elasticity - 1)``, finite because the elasticity exceeds one.
-
-        Parameters
-        ----------
-        q, p : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (...,)
-        """
+        """``P Q / (elasticity - 1)``, finite because the elasticity exceeds one."""
         q = np.asarray(q, dtype=float)
         p = np.asarray(p, dtype=float)
         eps = self.scalars[1]
@@ -137,74 +98,31 @@ class IsoelasticDemandSpec(DemandSpec):
         P = np.where(Q > 0, p[..., 0], 0.0)
         return np.where(Q > 0, P * Q / (eps - 1.0), 0.0)
 
+    @doc_sections(DemandSpec.price_signal)
     def price_signal(self, Q):
-        """``scale * Q^(-1/elasticity)``.
-
-        Parameters
-        ----------
-        Q : float or ndarray
-
-        Returns
-        -------
-        ndarray
-        """
+        """``scale * Q^(-1/elasticity)``."""
         Q = np.asarray(Q, dtype=float)
         return self.scalars[0] * np.power(Q, -1.0 / self.scalars[1])
 
+    @doc_sections(DemandSpec.price_signal_slope)
     def price_signal_slope(self, Q):
-        """``-(scale / elasticity) Q^(-1/elasticity - 1)``.
-
-        Parameters
-        ----------
-        Q : float or ndarray
-
-        Returns
-        -------
-        ndarray
-        """
+        """``-(scale / elasticity) Q^(-1/elasticity - 1)``."""
         return -self.scalars[0] / self.scalars[1] * np.power(Q, -1.0 / self.scalars[1] - 1.0)
 
+    @doc_sections(DemandSpec.action_upper)
     def action_upper(self, ms):
-        """The total quantity beyond which the price falls below the lowest cost.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        """The total quantity beyond which the price falls below the lowest cost."""
         A, eps = self.scalars[0], self.scalars[1]
         return np.full(ms.n_products, (A / ms.cost.min()) ** eps)
 
+    @doc_sections(DemandSpec.flooding_quantity)
     def flooding_quantity(self, ms, hi):
-        """Infinite: the price tends to zero as the rivals' output grows, but never reaches it.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        hi : ndarray of shape (n_products,)
-
-        Returns
-        -------
-        float
-        """
+        """Infinite: the price tends to zero as the rivals' output grows, but never reaches it."""
         return math.inf
 
+    @doc_sections(DemandSpec.best_response)
     def best_response(self, ms, i, A):
-        """Root of the first-order condition ``P(Q) (1 - q / (elasticity Q)) = c_i`` in each row.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        i : int
-        A : ndarray of shape (n_rows, n_products)
-
-        Returns
-        -------
-        tuple of ndarray of shape (n_rows,)
-        """
+        """Root of the first-order condition ``P(Q) (1 - q / (elasticity Q)) = c_i`` in each row."""
         x = np.array([self._response(ms, i, row) for row in A])
         return x, profit_with(ms, i, A, x)
 
@@ -229,17 +147,9 @@ class IsoelasticDemandSpec(DemandSpec):
         q = optimize.brentq(g, 0.0, hi, xtol=1e-15 * max(1.0, hi), rtol=1e-15, maxiter=500)
         return float(min(q, ms.capacity[i]))
 
+    @doc_sections(DemandSpec.nash_start)
     def nash_start(self, ms):
-        """The Lerner solution on the active set, dropping firms whose cost exceeds the price.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        """The Lerner solution on the active set, dropping firms whose cost exceeds the price."""
         n, c = ms.n_products, ms.cost
         A, eps = self.scalars[0], self.scalars[1]
         active = np.ones(n, bool)
@@ -253,46 +163,21 @@ class IsoelasticDemandSpec(DemandSpec):
         Q = (A / P) ** eps
         return np.clip(s * Q, 0, ms.capacity)
 
+    @doc_sections(DemandSpec.marginal_revenue)
     def marginal_revenue(self, Q):
-        """``scale * Q^(-1/elasticity) (1 - 1/elasticity)`` (infinite at zero).
-
-        Parameters
-        ----------
-        Q : float
-
-        Returns
-        -------
-        float
-        """
+        """``scale * Q^(-1/elasticity) (1 - 1/elasticity)`` (infinite at zero)."""
         A, eps = self.scalars[0], self.scalars[1]
         return A * Q ** (-1 / eps) * (1 - 1 / eps) if Q > 0 else np.inf
 
+    @doc_sections(DemandSpec.quantity_at_marginal_revenue)
     def quantity_at_marginal_revenue(self, m):
-        """``(scale (1 - 1/elasticity) / m)^elasticity``.
-
-        Parameters
-        ----------
-        m : float
-
-        Returns
-        -------
-        float
-        """
+        """``(scale (1 - 1/elasticity) / m)^elasticity``."""
         A, eps = self.scalars[0], self.scalars[1]
         return (A * (1 - 1 / eps) / m) ** eps
 
+    @doc_sections(DemandSpec.joint_gradient)
     def joint_gradient(self, ms, a, q, p):
-        """``P (1 - 1/elasticity) - c``: the marginal revenue less the marginal cost.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        a, q, p : ndarray of shape (n_products,)
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        """``P (1 - 1/elasticity) - c``: the marginal revenue less the marginal cost."""
         return p[0] * (1 - 1 / self.scalars[1]) - ms.cost
 
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import PerFirm, Real, optional
 from sim.models.codes import CODE_LINEAR_BERTRAND, CODE_LINEAR_COURNOT
@@ -47,38 +48,17 @@ class LinearDemand(Demand):
         self.slope = slope
         self.split = split
 
+    @doc_sections(Demand.spec)
     def spec(self, n_firms, prefix="market"):
-        """Validate the parameters for ``n_firms`` firms.
-
-        Parameters
-        ----------
-        n_firms : int
-        prefix : str
-            Key path of the market in error messages.
-
-        Returns
-        -------
-        LinearDemandSpec
-            ``scalars = (intercept, slope, 0, 0)``, ``vector`` the split weights (ones by default).
-        """
+        """Validate the parameters for ``n_firms`` firms: ``scalars = (intercept, slope, 0, 0)``, ``vector`` the split
+        weights (ones by default)."""
         p = self._check_params(prefix, n_firms)
         split = p["split"] if p["split"] is not None else np.ones(n_firms)
         return LinearDemandSpec(type(self), np.array([p["intercept"], p["slope"], 0.0, 0.0]), split)
 
+    @doc_sections(Demand.merge_firms)
     def merge_firms(self, ms, merging, firm_map, n_after):
-        """Under price competition the merged firm's split weight is the sum of the merging firms'.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        merging : sequence of int
-        firm_map : ndarray of int, shape (n_firms,)
-        n_after : int
-
-        Returns
-        -------
-        LinearDemand
-        """
+        """Under price competition the merged firm's split weight is the sum of the merging firms'."""
         if ms.quantity_setting:
             return self.clone()
         w = np.asarray(ms.demand.vector, dtype=float)
@@ -90,65 +70,36 @@ class LinearDemand(Demand):
         return self.clone(split=split.tolist())
 
 
+@doc_sections(DemandSpec)
 class LinearDemandSpec(DemandSpec):
-    """Numeric linear demand for a homogeneous good (see :class:`LinearDemand`).
-
-    Parameters
-    ----------
-    demand_type : type
-        The parameter class it comes from.
-    scalars : ndarray of shape (4,)
-    vector : ndarray of shape (n_products,)
-        In the layout of its stage-core codes (see :meth:`LinearDemand.spec`).
-    """
+    """Numeric linear demand for a homogeneous good (see :class:`LinearDemand`), its ``scalars`` and
+    ``vector`` in the layout given by :meth:`LinearDemand.spec`."""
 
     stage_codes = {"cournot": CODE_LINEAR_COURNOT, "bertrand": CODE_LINEAR_BERTRAND}
     price_reaches_zero = True
     linear_homogeneous = True
 
+    @doc_sections(DemandSpec.check_market)
     def check_market(self, model, cost, prefix):
-        """Every cost below the choke price.
-
-        Parameters
-        ----------
-        model : {"cournot", "bertrand"}
-        cost : ndarray of shape (n_products,)
-        prefix : str
-        """
+        """Every cost below the choke price."""
         a = self.scalars[0]
         bad = np.flatnonzero(cost >= a)
         if bad.size:
             i = bad[0]
             raise InputError(f"{prefix}.cost", f"firm {i + 1}'s cost {cost[i]:g} is at or above the choke price {a:g}")
 
+    @doc_sections(DemandSpec.inverse_demand)
     def inverse_demand(self, q):
-        """The common price ``max(0, a - b Q)`` for every firm.
-
-        Parameters
-        ----------
-        q : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (..., n_products)
-        """
+        """The common price ``max(0, a - b Q)`` for every firm."""
         q = np.asarray(q, dtype=float)
         a, b = self.scalars[0], self.scalars[1]
         p = np.maximum(0.0, a - b * q.sum(axis=-1, keepdims=True))
         return np.broadcast_to(p, q.shape).copy()
 
+    @doc_sections(DemandSpec.direct_demand)
     def direct_demand(self, p):
         """The lowest price sells ``max(0, (a - p) / b)``, shared among the firms tied there by the
-        split weights.
-
-        Parameters
-        ----------
-        p : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (..., n_products)
-        """
+        split weights."""
         p = np.asarray(p, dtype=float)
         a, b = self.scalars[0], self.scalars[1]
         pmin = p.min(axis=-1, keepdims=True)
@@ -157,17 +108,9 @@ class LinearDemandSpec(DemandSpec):
         share = w / w.sum(axis=-1, keepdims=True)
         return share * np.maximum(0.0, (a - pmin) / b)
 
+    @doc_sections(DemandSpec.consumer_surplus)
     def consumer_surplus(self, q, p):
-        """Area under demand above the (lowest) price, for the quantity sold.
-
-        Parameters
-        ----------
-        q, p : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (...,)
-        """
+        """Area under demand above the (lowest) price, for the quantity sold."""
         q = np.asarray(q, dtype=float)
         p = np.asarray(p, dtype=float)
         a, b = self.scalars[0], self.scalars[1]
@@ -180,61 +123,27 @@ class LinearDemandSpec(DemandSpec):
         """The intercept ``a``."""
         return self.scalars[0]
 
+    @doc_sections(DemandSpec.price_signal)
     def price_signal(self, Q):
-        """``max(0, a - b Q)``.
-
-        Parameters
-        ----------
-        Q : float or ndarray
-
-        Returns
-        -------
-        ndarray
-        """
+        """``max(0, a - b Q)``."""
         Q = np.asarray(Q, dtype=float)
         return np.maximum(0.0, self.scalars[0] - self.scalars[1] * Q)
 
+    @doc_sections(DemandSpec.price_signal_slope)
     def price_signal_slope(self, Q):
-        """``-b`` where the price is positive, 0 beyond the choke quantity.
-
-        Parameters
-        ----------
-        Q : float or ndarray
-
-        Returns
-        -------
-        ndarray
-        """
+        """``-b`` where the price is positive, 0 beyond the choke quantity."""
         return np.where(self.scalars[0] - self.scalars[1] * Q > 0, -self.scalars[1], 0.0)
 
+    @doc_sections(DemandSpec.action_upper)
     def action_upper(self, ms):
-        """The choke quantity ``a / b`` (quantities) or the choke price ``a`` (prices).
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        """The choke quantity ``a / b`` (quantities) or the choke price ``a`` (prices)."""
         n = ms.n_products
         return np.full(n, self.scalars[0] / self.scalars[1]) if ms.quantity_setting else np.full(n, self.scalars[0])
 
+    @doc_sections(DemandSpec.best_response)
     def best_response(self, ms, i, A):
         """Cournot: ``(a - c_i - b R) / (2 b)`` within ``[0, capacity]``, ``R`` the rivals' output.
-        Bertrand: see :meth:`_bertrand_response`.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        i : int
-        A : ndarray of shape (n_rows, n_products)
-
-        Returns
-        -------
-        tuple of ndarray of shape (n_rows,)
-        """
+        Bertrand: see :meth:`_bertrand_response`."""
         if not ms.quantity_setting:
             return self._bertrand_response(ms, i, A)
         a0, b = self.scalars[0], self.scalars[1]
@@ -274,17 +183,9 @@ class LinearDemandSpec(DemandSpec):
                 x[k], v[k] = c, 0.0
         return x, v
 
+    @doc_sections(DemandSpec.nash_equilibrium)
     def nash_equilibrium(self, ms):
-        """Homogeneous Bertrand: the equilibrium selected in :mod:`sim.models.market` (None under Cournot).
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,) or None
-        """
+        """Homogeneous Bertrand: the equilibrium selected in :mod:`sim.models.market` (None under Cournot)."""
         if ms.quantity_setting:
             return None
         a0 = self.scalars[0]
@@ -304,18 +205,10 @@ class LinearDemandSpec(DemandSpec):
                 prices[winner] = c2
         return prices
 
+    @doc_sections(DemandSpec.nash_start)
     def nash_start(self, ms):
         """Cournot equilibrium of the active firms, ``q_i = (a - (k+1) c_i + sum_active c) / ((k+1) b)``,
-        dropping firms with a non-positive quantity until every active firm produces.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        dropping firms with a non-positive quantity until every active firm produces."""
         n, c = ms.n_products, ms.cost
         a0, b = self.scalars[0], self.scalars[1]
         active = np.ones(n, bool)
@@ -327,18 +220,10 @@ class LinearDemandSpec(DemandSpec):
             active &= q > 0
         return np.clip(q, 0, ms.capacity)
 
+    @doc_sections(DemandSpec.joint_maximum)
     def joint_maximum(self, ms):
         """Bertrand: the lowest-cost firms at the monopoly price ``(a + c_min) / 2``, the others at the
-        choke price (selling nothing). Cournot: the merit order.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        choke price (selling nothing). Cournot: the merit order."""
         if ms.quantity_setting:
             return super().joint_maximum(ms)
         c = ms.cost
@@ -347,61 +232,28 @@ class LinearDemandSpec(DemandSpec):
         pm = 0.5 * (a0 + cmin)
         return np.where(c == cmin, pm, a0)
 
+    @doc_sections(DemandSpec.marginal_revenue)
     def marginal_revenue(self, Q):
-        """``a - 2 b Q``.
-
-        Parameters
-        ----------
-        Q : float
-
-        Returns
-        -------
-        float
-        """
+        """``a - 2 b Q``."""
         return self.scalars[0] - 2 * self.scalars[1] * Q
 
+    @doc_sections(DemandSpec.quantity_at_marginal_revenue)
     def quantity_at_marginal_revenue(self, m):
-        """``(a - m) / (2 b)``.
-
-        Parameters
-        ----------
-        m : float
-
-        Returns
-        -------
-        float
-        """
+        """``(a - m) / (2 b)``."""
         return (self.scalars[0] - m) / (2 * self.scalars[1])
 
+    @doc_sections(DemandSpec.symmetric_maximum)
     def symmetric_maximum(self, ms):
         """Bertrand: a common price shared by the split weights; the joint profit ``(p - c_w) D(p)``,
-        ``c_w`` the weighted mean cost, is maximal at ``p = (a + c_w) / 2``. None under Cournot.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,) or None
-        """
+        ``c_w`` the weighted mean cost, is maximal at ``p = (a + c_w) / 2``. None under Cournot."""
         if ms.quantity_setting:
             return None
         w = self.vector
         return np.full(ms.n_products, 0.5 * (self.scalars[0] + float(w @ ms.cost / w.sum())))
 
+    @doc_sections(DemandSpec.joint_gradient)
     def joint_gradient(self, ms, a, q, p):
-        """Cournot: ``P - c - b Q`` while the price is positive, ``-c`` beyond (None under Bertrand).
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        a, q, p : ndarray of shape (n_products,)
-
-        Returns
-        -------
-        ndarray of shape (n_products,) or None
-        """
+        """Cournot: ``P - c - b Q`` while the price is positive, ``-c`` beyond (None under Bertrand)."""
         if not ms.quantity_setting:
             return None
         c = ms.cost

@@ -11,6 +11,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import optimize
 
+from sim.core.docs import doc_sections
 from sim.core.params import PerFirm, Real
 from sim.models.codes import CODE_LOGIT_BERTRAND
 from sim.models.demand_base import MAX_MAGNITUDE, Demand
@@ -49,49 +50,24 @@ class LogitDemand(Demand):
         self.mu = mu
         self.size = size
 
+    @doc_sections(Demand.spec)
     def spec(self, n_firms, prefix="market"):
-        """Validate the parameters for ``n_firms`` products.
-
-        Parameters
-        ----------
-        n_firms : int
-        prefix : str
-            Key path of the market in error messages.
-
-        Returns
-        -------
-        LogitDemandSpec
-            ``scalars = (outside, mu, size, 0)``, ``vector`` the qualities.
-        """
+        """Validate the parameters for ``n_firms`` products: ``scalars = (outside, mu, size, 0)``,
+        ``vector`` the qualities."""
         p = self._check_params(prefix, n_firms)
         return LogitDemandSpec(type(self), np.array([p["outside"], p["mu"], p["size"], 0.0]), p["quality"])
 
 
+@doc_sections(DemandSpec)
 class LogitDemandSpec(DemandSpec):
-    """Numeric logit demand (see :class:`LogitDemand`).
-
-    Parameters
-    ----------
-    demand_type : type
-        The parameter class it comes from.
-    scalars : ndarray of shape (4,)
-    vector : ndarray of shape (n_products,)
-        In the layout of its stage-core codes (see :meth:`LogitDemand.spec`).
-    """
+    """Numeric logit demand (see :class:`LogitDemand`), its ``scalars`` and ``vector`` in the layout
+    given by :meth:`LogitDemand.spec`."""
 
     stage_codes = {"bertrand": CODE_LOGIT_BERTRAND}
 
+    @doc_sections(DemandSpec.direct_demand)
     def direct_demand(self, p):
-        """``size`` times each product's share.
-
-        Parameters
-        ----------
-        p : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (..., n_products)
-        """
+        """``size`` times each product's share."""
         p = np.asarray(p, dtype=float)
         a0, mu, size = self.scalars[0], self.scalars[1], self.scalars[2]
         u = (self.vector - p) / mu
@@ -142,18 +118,10 @@ class LogitDemandSpec(DemandSpec):
         e0 = np.exp(u0 - top)
         return (e0 / (e.sum(axis=-1, keepdims=True) + e0))[..., 0]
 
+    @doc_sections(DemandSpec.consumer_surplus)
     def consumer_surplus(self, q, p):
         """``size * mu * (log(sum_j exp((a_j - p_j)/mu) + exp(a_0/mu)) - a_0/mu)``, the expected surplus
-        relative to buying only the outside good (Small and Rosen, 1981).
-
-        Parameters
-        ----------
-        q, p : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (...,)
-        """
+        relative to buying only the outside good (Small and Rosen, 1981)."""
         p = np.asarray(p, dtype=float)
         a0, mu, size = self.scalars[0], self.scalars[1], self.scalars[2]
         u = (self.vector - p) / mu
@@ -163,53 +131,27 @@ class LogitDemandSpec(DemandSpec):
         lse = (top + np.log(np.exp(allu - top).sum(axis=-1, keepdims=True)))[..., 0]
         return size * mu * (lse - a0 / mu)
 
+    @doc_sections(DemandSpec.prices_for_quantities)
     def prices_for_quantities(self, q):
-        """Inverse logit demand: ``p_i = a_i - a_0 - mu (log s_i - log s_0)``.
-
-        Parameters
-        ----------
-        q : ndarray of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (..., n_products)
-        """
+        """Inverse logit demand: ``p_i = a_i - a_0 - mu (log s_i - log s_0)``."""
         a0, mu, size = self.scalars[0], self.scalars[1], self.scalars[2]
         s = q / size
         s0 = 1.0 - s.sum(axis=-1, keepdims=True)
         return self.vector - a0 - mu * (np.log(s) - np.log(s0))
 
+    @doc_sections(DemandSpec.action_upper)
     def action_upper(self, ms):
         """A firm's optimal markup never exceeds ``mu / s_0`` evaluated with every price at cost, and the
-        joint-profit markup is ``mu / s_0`` as well; twice that (plus ten ``mu``) bounds every candidate.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        joint-profit markup is ``mu / s_0`` as well; twice that (plus ten ``mu``) bounds every candidate."""
         c = ms.cost
         s = self.direct_demand(c[None, :])[0] / self.scalars[2]
         return c + 2.0 * self.scalars[1] / max(1e-300, 1.0 - s.sum()) + 10.0 * self.scalars[1]
 
+    @doc_sections(DemandSpec.best_response)
     def best_response(self, ms, i, A):
         """The first-order condition ``p - c = mu / (1 - s_i(p))`` has a unique root because ``s_i``
         falls in ``p``; ``1 - s_i`` is computed directly as the share of the other options, so that a
-        dominant product does not lose it to cancellation.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        i : int
-        A : ndarray of shape (n_rows, n_products)
-
-        Returns
-        -------
-        tuple of ndarray of shape (n_rows,)
-        """
+        dominant product does not lose it to cancellation."""
         x = np.array([self._response(ms, i, row) for row in A])
         return x, profit_with(ms, i, A, x)
 
@@ -232,21 +174,10 @@ class LogitDemandSpec(DemandSpec):
         # and mu, not to the bracket
         return float(optimize.brentq(h, c, hi, xtol=1e-15 * max(1.0, c, mu), rtol=1e-15, maxiter=1000))
 
+    @doc_sections(DemandSpec.best_response_multi)
     def best_response_multi(self, ms, i, own, row):
         """A multi-product firm sets one common markup ``m`` on its products, solving
-        ``m = mu / (1 - S_f)``; the root is unique because ``S_f`` falls as ``m`` rises.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        i : int
-        own : ndarray of int
-        row : ndarray of shape (n_products,)
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        ``m = mu / (1 - S_f)``; the root is unique because ``S_f`` falls as ``m`` rises."""
         mu = self.scalars[1]
         c = ms.cost[own]
 
@@ -262,30 +193,14 @@ class LogitDemandSpec(DemandSpec):
         m = hi if h(hi) <= 0 else optimize.brentq(h, 0.0, hi, xtol=1e-15 * max(1.0, mu), rtol=1e-15, maxiter=1000)
         return prof_at(m)
 
+    @doc_sections(DemandSpec.nash_start)
     def nash_start(self, ms):
-        """Symmetric-share guess ``c + mu (1 + 1/n)`` (the best-response iteration finishes the job).
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        """Symmetric-share guess ``c + mu (1 + 1/n)`` (the best-response iteration finishes the job)."""
         return ms.cost + self.scalars[1] * (1.0 + 1.0 / ms.n_products)
 
+    @doc_sections(DemandSpec.joint_maximum)
     def joint_maximum(self, ms):
-        """A multi-product logit monopolist sets equal markups ``m`` solving ``m * s_0(m) = mu``.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        """A multi-product logit monopolist sets equal markups ``m`` solving ``m * s_0(m) = mu``."""
         c = ms.cost
         mu = self.scalars[1]
         f = lambda m: m * self.outside_share((c + m)[None, :])[0] - mu  # noqa: E731
@@ -295,48 +210,22 @@ class LogitDemandSpec(DemandSpec):
         m = optimize.brentq(f, 0.0, hi, xtol=1e-15, rtol=1e-15, maxiter=500)
         return c + m
 
+    @doc_sections(DemandSpec.joint_gradient)
     def joint_gradient(self, ms, a, q, p):
-        """``dJ/dp_k = q_k - (m_k q_k - s_k sum_j m_j q_j) / mu`` with markups ``m = p - c``.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        a, q, p : ndarray of shape (n_products,)
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        """``dJ/dp_k = q_k - (m_k q_k - s_k sum_j m_j q_j) / mu`` with markups ``m = p - c``."""
         mu, size = self.scalars[1], self.scalars[2]
         s = q / size
         m = p - ms.cost
         return q - (m * q - s * float(m @ q)) / mu
 
+    @doc_sections(DemandSpec.proportional_limit)
     def proportional_limit(self, qn):
-        """Just below ``size / sum(qn)``: the inside goods cannot take the whole market.
-
-        Parameters
-        ----------
-        qn : ndarray of shape (n_products,)
-
-        Returns
-        -------
-        float
-        """
+        """Just below ``size / sum(qn)``: the inside goods cannot take the whole market."""
         return (1.0 - 1e-12) * self.scalars[2] / qn.sum()
 
+    @doc_sections(DemandSpec.proportional_slope)
     def proportional_slope(self, qn, lam):
-        """``d p_i / d lam = -mu (1/lam + S / (1 - lam S))`` with ``S = sum(qn) / size``.
-
-        Parameters
-        ----------
-        qn : ndarray of shape (n_products,)
-        lam : float
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        """``d p_i / d lam = -mu (1/lam + S / (1 - lam S))`` with ``S = sum(qn) / size``."""
         S = qn.sum() / self.scalars[2]
         return np.full(qn.shape[0], -self.scalars[1] * (1.0 / lam + S / (1.0 - lam * S)))
 

@@ -30,17 +30,20 @@ Conventions
 
 from __future__ import annotations
 
+import numbers
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
 
+from sim.core.docs import doc_sections
 from sim.core.errors import InputError
-from sim.core.params import Integer, Options, Parametrized, PerFirm, Real, optional
+from sim.core.params import Integer, Options, Parametrized, PerFirm, Real, agreeing_length, optional
 from sim.models.demand import DEMAND_TYPES, MAX_MAGNITUDE, Demand
 from sim.models.demand_spec import DemandSpec
 
-__all__ = ["DEFAULT_DEMAND", "DEMAND_KEYS", "MAX_FIRMS", "MODELS", "Market", "MarketSpec", "market_from_dict"]
+__all__ = ["DEFAULT_DEMAND", "DEMAND_KEYS", "MAX_FIRMS", "MODELS", "Market", "MarketSpec", "market_from_dict",
+           "owning_firms"]
 
 MODELS = ("cournot", "bertrand")
 #: Largest number of firms (or products): oligopoly analysis, not atomistic markets.
@@ -324,10 +327,7 @@ class Market(Parametrized):
                     candidates.append((name, len(value)))
         if not candidates:
             raise InputError(f"{prefix}.n_firms", "give the number of firms (every per-firm value is a single number)")
-        key0, n0 = candidates[0]
-        for key, n in candidates[1:]:
-            if n != n0:
-                raise InputError(f"{prefix}.{key}", f"must have one value per firm ({n0}, as {key0}), got {n} values")
+        _, n0 = agreeing_length(prefix, candidates, "firm")
         if not 2 <= n0 <= MAX_FIRMS:
             raise InputError(f"{prefix}.n_firms", f"must be an integer in [2, {MAX_FIRMS}], got {n0}")
         return n0
@@ -377,46 +377,19 @@ class Market(Parametrized):
         return ms
 
     # thin conveniences so that users need not touch the spec
+    @doc_sections(MarketSpec.profits)
     def profits(self, actions, shock=1.0):
-        """Per-product profits of action profiles (:meth:`MarketSpec.profits`).
-
-        Parameters
-        ----------
-        actions : array_like of shape (..., n_products)
-        shock : float or array_like broadcastable to (..., 1)
-
-        Returns
-        -------
-        ndarray of shape (..., n_products)
-        """
+        """Per-product profits of action profiles (:meth:`MarketSpec.profits`)."""
         return self.spec().profits(actions, shock)
 
+    @doc_sections(MarketSpec.firm_profits)
     def firm_profits(self, actions, shock=1.0):
-        """Per-firm profits of action profiles (:meth:`MarketSpec.firm_profits`).
-
-        Parameters
-        ----------
-        actions : array_like of shape (..., n_products)
-        shock : float or array_like broadcastable to (..., 1)
-
-        Returns
-        -------
-        ndarray of shape (..., n_firms)
-        """
+        """Per-firm profits of action profiles (:meth:`MarketSpec.firm_profits`)."""
         return self.spec().firm_profits(actions, shock)
 
+    @doc_sections(MarketSpec.evaluate)
     def evaluate(self, actions, shock=1.0):
-        """Quantities, prices and profits of action profiles (:meth:`MarketSpec.evaluate`).
-
-        Parameters
-        ----------
-        actions : array_like of shape (..., n_products)
-        shock : float or array_like broadcastable to (..., 1)
-
-        Returns
-        -------
-        quantities, prices, profits : ndarray of shape (..., n_products)
-        """
+        """Quantities, prices and profits of action profiles (:meth:`MarketSpec.evaluate`)."""
         return self.spec().evaluate(actions, shock)
 
     def clone(self, **changes):
@@ -468,22 +441,52 @@ def _plain(v):
     return v
 
 
-def _check_owner(prefix, owner, n_products, n_firms, dspec: DemandSpec):
-    """Validate an owner map (firm numbers 1..F, each used); returns 0-based owners and F."""
-    if owner is None:
-        return np.arange(n_products), n_products
-    key = f"{prefix}.owner"
+def owning_firms(key: str, owner, n_products: int | None = None) -> np.ndarray:
+    """Check an owner map -- the firm number (1, 2, ...) of each product -- and count the firms from 0.
+
+    Parameters
+    ----------
+    key : str
+        Key path of the map in error messages.
+    owner : sequence of int
+        The firm number of each product.
+    n_products : int, optional
+        The number of products the map must cover (not checked when None).
+
+    Returns
+    -------
+    int64 ndarray of shape (n_products,)
+        The owning firm of each product, counted from 0.
+
+    Raises
+    ------
+    InputError
+        An entry is not a whole number >= 1, the map does not have ``n_products`` entries, a firm number is
+        skipped, or fewer than two firms own the products.
+    """
     vals = []
     for k, v in enumerate(owner):
-        if isinstance(v, bool) or not isinstance(v, int | np.integer) or v < 1:
+        if isinstance(v, bool) or not isinstance(v, numbers.Integral) or v < 1:
             raise InputError(key, f"entry {k + 1} must be a firm number 1, 2, ..., got {v!r}")
         vals.append(int(v))
+    if n_products is not None and len(vals) != n_products:
+        raise InputError(key, f"must have one firm number per product ({n_products}), got {len(vals)}")
     F = max(vals)
     missing = sorted(set(range(1, F + 1)) - set(vals))
     if missing:
         raise InputError(key, f"firm numbers must run from 1 without gaps; firm {missing[0]} owns no product")
     if F < 2:
         raise InputError(key, "a market needs at least two firms")
+    return np.array(vals, dtype=np.int64) - 1
+
+
+def _check_owner(prefix, owner, n_products, n_firms, dspec: DemandSpec):
+    """Validate an owner map (firm numbers 1..F, each used); returns 0-based owners and F."""
+    if owner is None:
+        return np.arange(n_products), n_products
+    key = f"{prefix}.owner"
+    owners = owning_firms(key, owner)
+    F = int(owners.max()) + 1
     if n_firms is not None and n_firms != F:
         raise InputError(f"{prefix}.n_firms", f"is {n_firms} but the owner map names {F} firms")
     if dspec.homogeneous and F != n_products:
@@ -491,7 +494,7 @@ def _check_owner(prefix, owner, n_products, n_firms, dspec: DemandSpec):
             key, f"multi-product firms need differentiated products; with {dspec.kind} demand a firm with several "
             "plants is one firm (combine them)",
         )
-    return np.array(vals, dtype=np.int64) - 1, F
+    return owners, F
 
 
 class _DemandKeys(Mapping):
