@@ -401,6 +401,10 @@ PARAMETERS: dict[str, Entry] = {
     "market.elasticity": Entry("demand elasticity", "", "Absolute elasticity of isoelastic demand.", "given"),
     "strategies": Entry("strategy", "", "The strategy played by the seats of a line-up entry.", "given"),
     "assess.growth": Entry("demand growth per period", "share per period", "Growth rate of demand.", "given"),
+    "learning.update": Entry("update rule of the learners", "",
+                             "Which values a learner updates after a period: asynchronous (the price it played) or "
+                             "synchronous (every price, from what it would have earned against the rivals' prices).",
+                             "given; the rules of Asker, Fershtman and Pakes (2022, AEA Papers and Proceedings 112)"),
 }
 
 _SCHEME_WORDS = {"grim": "grim trigger", "finite": "Nash reversion for T periods", "stick_carrot": "stick and carrot"}
