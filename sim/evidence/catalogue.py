@@ -376,6 +376,39 @@ ENTRIES: dict[str, Entry] = {
                             "share above 30 % with a change above 100.",
                             "U.S. Department of Justice and Federal Trade Commission, Merger Guidelines (2023), "
                             "section 2.1"),
+    # learners against automata: the automaton's punishments during learning
+    "triggered": Entry("share of sessions in which the automaton's punishment was triggered", "0 to 1",
+                       "Share of sessions in which the automaton entered a non-collusive (punishment) state from a "
+                       "collusive one at least once while the learners learned.",
+                       "counted in the learning kernel from the automaton's states (its collusive states as the "
+                       "strategy defines them); learners against automata as in Calvano, Calzolari, Denicolo and "
+                       "Pastorello (2020, AER, section V)", _WILSON),
+    "triggers": Entry("triggers of the automaton's punishment per session", "count",
+                      "Entries of the automaton into a non-collusive state from a collusive one during learning, "
+                      "per session.", "counted in the learning kernel", _MEAN),
+    "first_trigger": Entry("period of the first trigger", "period",
+                           "Median over the sessions with a trigger of the period (from 1) whose conduct first put "
+                           "the automaton into punishment.", "counted in the learning kernel", "none (a median)"),
+    "last_trigger": Entry("period of the last trigger", "period",
+                          "Median over the sessions with a trigger of the period (from 1) whose conduct last put the "
+                          "automaton into punishment.", "counted in the learning kernel", "none (a median)"),
+    "punishment_share": Entry("share of the session the automaton punished", "0 to 1",
+                              "Periods the automaton played in a non-collusive state divided by the periods of the "
+                              "session, averaged over sessions.", "counted in the learning kernel",
+                              _MEAN + ", cut to [0, 1]"),
+    "exploration_at_first_trigger": Entry("exploration probability at the first trigger", "probability",
+                                          "The learners' probability of exploring, exp(-beta t), in the period of "
+                                          "the first trigger; median over the sessions with a trigger.",
+                                          "epsilon-greedy exploration decaying as exp(-beta t) (Calvano, Calzolari, "
+                                          "Denicolo and Pastorello, 2020, AER)", "none (a median)"),
+    "exploration_at_last_trigger": Entry("exploration probability at the last trigger", "probability",
+                                         "The learners' probability of exploring, exp(-beta t), in the period of the "
+                                         "last trigger; median over the sessions with a trigger.",
+                                         "epsilon-greedy exploration decaying as exp(-beta t) (Calvano, Calzolari, "
+                                         "Denicolo and Pastorello, 2020, AER)", "none (a median)"),
+    "punishing_at_end": Entry("share of sessions ending with the automaton punishing", "0 to 1",
+                              "Share of sessions whose automaton was in a non-collusive state when learning stopped.",
+                              "counted", _WILSON),
 }
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)

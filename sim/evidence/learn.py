@@ -12,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from sim.core.text import CAUTION, fmt_num, table
+from sim.evidence.learn_automata import automaton_lines
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.thresholds import describe_market
 from sim.learning.analysis import LearnResult
@@ -201,7 +202,7 @@ def console(res: LearnResult) -> str:
     -------
     str
     """
-    lines = _setup_lines(res) + _limit_lines(res) + _impulse_lines(res)
+    lines = _setup_lines(res) + _limit_lines(res) + _impulse_lines(res) + automaton_lines(res)
     lines += ["", CAUTION]
     return "\n".join(lines)
 

@@ -10,7 +10,7 @@ benchmarks, the value of the deviation, the return to the cycle, and every sessi
 from __future__ import annotations
 
 import copy
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -73,6 +73,9 @@ class LearnResult(Record):
         Every session's outcomes (:meth:`sim.learning.results.LearningResult.per_session`).
     limit_actions : ndarray of shape (n_sessions, n_firms)
         Every session's mean limit action (price or quantity).
+    automata : list of dict
+        Per automaton seat, its punishments during learning across sessions
+        (:func:`sim.learning.triggers.trigger_summary`); empty when only learners play.
     """
 
     market: dict
@@ -85,6 +88,7 @@ class LearnResult(Record):
     summary: dict
     per_session: dict
     limit_actions: np.ndarray
+    automata: list = field(default_factory=list)
 
     @property
     def limit_exact(self) -> bool:
@@ -120,10 +124,12 @@ def learn_result(res: LearningResult, market) -> LearnResult:
     """
     d = res.to_dict()
     ms = res.lineup.market
+    summary = dict(d["summary"])
+    automata = summary.pop("automata", [])
     doc = {"market": market.to_dict(), "n_firms": int(ms.n_firms), "quantity_setting": bool(ms.quantity_setting),
            "symmetric": bool(ms.symmetric), "settings": d["settings"], "learners": d["learners"],
-           "seats": d["seats"], "summary": d["summary"], "per_session": d["per_session"],
-           "limit_actions": res.limit_actions}
+           "seats": d["seats"], "summary": summary, "per_session": d["per_session"],
+           "limit_actions": res.limit_actions, "automata": automata}
     return LearnResult.from_dict(to_plain(doc))
 
 

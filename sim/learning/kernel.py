@@ -28,7 +28,8 @@ is three steps, marked in :func:`run_session`: every seat chooses (the explorati
 :func:`_exploration`), every learner updates the value of the action it played (the update rule is
 :func:`_q_learning`; the greedy action is kept up to date) -- and, with a synchronous or mixed update rule
 (``seats.share`` above 0), the values of the actions it did not play, from their counterfactual profits
-(:func:`_update_counterfactual`) -- and every automaton moves on its signal. Another protocol
+(:func:`_update_counterfactual`) -- and every automaton moves on its signal, its punishments counted in the
+session's record (``triggers``, :data:`TRIGGER_FIELDS`; no draw, no change to the numbers). Another protocol
 replaces a step, not the loop. The rules of a step are inlined functions of numbers (``inline="always"``, which
 changes no arithmetic); the arrays stay in the loop itself, taken out of their groups once before it, because an
 inlined function that takes an array takes and releases a reference to it at every call, which costs more here
@@ -56,9 +57,31 @@ from numba import njit
 
 from sim.core.rng import next_below, next_double
 from sim.learning.inputs import AUTOMATON, LEARNER, STATUS_CAP, STATUS_CONVERGED
-from strategies.step import bad_signal, choose_level, next_state
+from strategies.step import COLLUSIVE, bad_signal, choose_level, next_state
 
-__all__ = ["initial_state", "run_session"]
+__all__ = ["TRIGGER_FIELDS", "initial_state", "new_triggers", "run_session"]
+
+#: the columns of a session's record of its automata's punishments (``triggers``, one row per seat): entries into a
+#: non-collusive state from a collusive one, the periods (from 0) of the first and the last entry (-1: none), and
+#: the periods played in a non-collusive state
+TRIGGER_FIELDS = ("count", "first", "last", "punishing")
+
+
+def new_triggers(n: int) -> np.ndarray:
+    """An empty record of the automata's punishments: no entry yet (see :data:`TRIGGER_FIELDS`).
+
+    Parameters
+    ----------
+    n : int
+        Seats.
+
+    Returns
+    -------
+    ndarray of int64, shape (n, 4)
+    """
+    out = np.zeros((n, len(TRIGGER_FIELDS)), dtype=np.int64)
+    out[:, 1:3] = -1
+    return out
 
 
 @njit(cache=True, nogil=True)
@@ -156,7 +179,7 @@ def _update_counterfactual(Q, greedy, li, si, s, prof, a, m, place_i, mod_i, M, 
 
 
 @njit(cache=True, nogil=True)
-def run_session(seats, stage, automata, session, s, convergence, max_periods):
+def run_session(seats, stage, automata, session, s, convergence, max_periods, triggers):
     """Run one session from history state ``s`` until convergence or the cap.
 
     Parameters
@@ -175,6 +198,11 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
         Stop once no learner's greedy strategy has changed for this many consecutive periods.
     max_periods : int
         Stop once this many periods have been played in all (counted from the session's start) in any case.
+    triggers : ndarray of int64, shape (n, 4)
+        The record of every automaton seat's punishments (:data:`TRIGGER_FIELDS`; :func:`new_triggers` at the start
+        of a session), updated in place: a period counts as punishing when the automaton plays it in a
+        non-collusive state, and an entry is a move from a collusive state to a non-collusive one (dated by the
+        period whose signal caused it). Learner rows stay as they are.
 
     Returns
     -------
@@ -257,9 +285,18 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
                 vals[i] = values[i, act[i]]
             for i in range(n):
                 if kind[i] == AUTOMATON:
-                    bad = bad_signal(i, z[i], n, vals, owner, mprice[prof], payoff[prof, i], 0.0, a_states, a_probs,
+                    zi = z[i]
+                    bad = bad_signal(i, zi, n, vals, owner, mprice[prof], payoff[prof, i], 0.0, a_states, a_probs,
                                      a_levels, quantity_setting, rng)
-                    z[i] = next_state(i, z[i], bad, a_states, a_probs, rng)
+                    z[i] = next_state(i, zi, bad, a_states, a_probs, rng)
+                    # the record of punishments: why a learner facing this automaton ends where it does
+                    if a_states[i, zi, COLLUSIVE] == 0:
+                        triggers[i, 3] += 1
+                    elif a_states[i, z[i], COLLUSIVE] == 0:
+                        triggers[i, 0] += 1
+                        if triggers[i, 1] < 0:
+                            triggers[i, 1] = t
+                        triggers[i, 2] = t
         s = s_new
         t += 1
         if changed:

@@ -116,6 +116,26 @@ class Lineup:
         """Profit of each seat at each profile, shape (M, n)."""
         return self.stage.payoff
 
+    def punishing(self, z: np.ndarray) -> np.ndarray:
+        """Which automaton seats are in a non-collusive state (punishing) in automaton states ``z``.
+
+        Parameters
+        ----------
+        z : ndarray of int64, shape (n,)
+            Automaton states (entries of learner seats are ignored).
+
+        Returns
+        -------
+        ndarray of bool, shape (n,)
+            False for learner seats.
+        """
+        out = np.zeros(self.n_seats, dtype=bool)
+        if self.has_automata:
+            for i in range(self.n_seats):
+                if self.learners[i] is None:
+                    out[i] = self.automata.states[i, int(z[i]), SS.COLLUSIVE] == 0
+        return out
+
     def initial_greedy(self) -> np.ndarray:
         """The greedy actions of the initial Q-values.
 

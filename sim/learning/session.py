@@ -195,6 +195,8 @@ class _Buffers:
         self.ir_p, self.ir_pi = np.zeros((n, T2, f)), np.zeros((n, T2, f))
         self.cf_p, self.cf_pi = np.zeros((n, T2, f)), np.zeros((n, T2, f))
         self.info = np.zeros((n, 8))
+        self.triggers = np.zeros((n, f, 4), dtype=np.int64)
+        self.punishing_at_end = np.zeros((n, f), dtype=bool)
         self.saved = None
 
     def keep(self, lineup: Lineup) -> None:
@@ -202,7 +204,8 @@ class _Buffers:
         n = self.status.size
         self.saved = {"Q": np.zeros((n, *lineup.q0.shape)), "greedy": np.zeros((n, *lineup.q0.shape[:2]), np.int64),
                       "history": np.zeros(n, np.int64), "z": np.zeros((n, lineup.n_seats), np.int64),
-                      "rng": np.zeros((n, 4), np.uint64), "clock": np.zeros((n, 2), np.int64)}
+                      "rng": np.zeros((n, 4), np.uint64), "clock": np.zeros((n, 2), np.int64),
+                      "triggers": np.zeros((n, lineup.n_seats, 4), np.int64)}
 
     def store(self, j: int, session: SessionState, s: int) -> None:
         """Session ``j``'s state at the end of learning (when kept)."""
@@ -210,6 +213,7 @@ class _Buffers:
             sv = self.saved
             sv["Q"][j], sv["greedy"][j], sv["history"][j] = session.Q, session.greedy, s
             sv["z"][j], sv["rng"][j], sv["clock"][j] = session.z, session.rng, session.clock
+            sv["triggers"][j] = self.triggers[j]
 
     def outputs(self, j: int) -> LimitOutputs:
         """Session ``j``'s rows, as the limit kernels write them."""
@@ -225,15 +229,18 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
         rng = state.copy()
         session = lineup.session_state(rng, g0)
         s = K.initial_state(rng, lineup.seats, lineup.stage)
+        buf.triggers[j] = K.new_triggers(lineup.n_seats)
     else:
         rng = start.rng[j].copy()
         session = SessionState(start.Q[j].copy(), start.greedy[j].copy(), start.z[j].copy(), rng,
                                start.clock[j].copy())
         s = int(start.history[j])
+        buf.triggers[j] = start.triggers[j]
     st, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, session, s, settings["convergence"],
-                             settings["max_periods"])
+                             settings["max_periods"], buf.triggers[j])
     buf.status[j] = st
     buf.periods[j] = t
+    buf.punishing_at_end[j] = lineup.punishing(session.z)
     buf.store(j, session, s)
     x = lineup.system_state(s, session.z)
     if lineup.limit_exact:
@@ -312,6 +319,7 @@ def _assemble(lineup: Lineup, settings: dict, buf: _Buffers, elapsed: float, sav
         near_collusive=near_c, near_nash=near_n, ir_prices=buf.ir_p, ir_profits=buf.ir_pi, cf_prices=buf.cf_p,
         cf_profits=buf.cf_pi, deviation_action=info[:, 7].astype(np.int64), deviation_gain=info[:, 3],
         deviation_pays=info[:, 4], returned=info[:, 5], return_periods=info[:, 6], elapsed=elapsed, saved=saved,
+        triggers=buf.triggers, punishing_at_end=buf.punishing_at_end,
     )
 
 
@@ -369,12 +377,15 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
     Returns
     -------
     dict
-        ``status``, ``periods``, ``state`` (the history state), ``Q``, ``greedy``, ``z`` and ``rng`` (the
-        generator state after the last period).
+        ``status``, ``periods``, ``state`` (the history state), ``Q``, ``greedy``, ``z``, ``rng`` (the
+        generator state after the last period) and ``triggers`` (the record of the automata's punishments,
+        :data:`sim.learning.kernel.TRIGGER_FIELDS`).
     """
     rng = stream_states(seed, (cell,), session, session + 1)[0].copy()
     st = lineup.session_state(rng)
     s = K.initial_state(rng, lineup.seats, lineup.stage)
-    status, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, st, s, convergence, max_periods)
+    triggers = K.new_triggers(lineup.n_seats)
+    status, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, st, s, convergence, max_periods,
+                                 triggers)
     return {"status": int(status), "periods": int(t), "state": int(s), "Q": st.Q, "greedy": st.greedy, "z": st.z,
-            "rng": rng}
+            "rng": rng, "triggers": triggers}

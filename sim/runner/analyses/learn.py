@@ -10,6 +10,7 @@ from sim.learning.analysis import LearnResult, LearnSpec, learn_analysis
 from sim.learning.tables import learning_from_dict
 from sim.runner.analyses.common import GENERAL_ASSUMPTIONS, describe_market
 from sim.runner.kinds import CellContext, CellResult, Kind
+from strategies.qlearning import QLearner
 
 
 def _prepare_learn(doc: dict) -> dict:
@@ -61,7 +62,35 @@ def _learn_names(cfg: dict) -> list[str]:
         f = f"firm{i + 1}"
         out += [f"analytic.nash_price.{f}", f"analytic.collusive_price.{f}", f"analytic.nash_profit.{f}",
                 f"analytic.collusive_profit.{f}"]
+    for i in _automaton_seats(cfg["learner"]):
+        out += trigger_names(i + 1)
     return out
+
+
+def _automaton_seats(learner) -> list[int]:
+    """The seats (from 0) an automaton holds in a line-up (none when every seat holds a learner)."""
+    if not isinstance(learner, list):
+        return []
+    return [i for i, s in enumerate(learner) if not isinstance(s, QLearner)]
+
+
+def trigger_names(firm: int) -> list[str]:
+    """The columns of an automaton's punishments during learning (after every other column of a learn cell).
+
+    Parameters
+    ----------
+    firm : int
+        The automaton's firm, from 1.
+
+    Returns
+    -------
+    list of str
+    """
+    f = f"firm{firm}"
+    return [f"triggered.{f}", f"triggered.{f}.low", f"triggered.{f}.high", f"triggers.{f}", f"triggers.{f}.low",
+            f"triggers.{f}.high", f"first_trigger.{f}", f"last_trigger.{f}", f"punishment_share.{f}",
+            f"punishment_share.{f}.low", f"punishment_share.{f}.high", f"exploration_at_first_trigger.{f}",
+            f"exploration_at_last_trigger.{f}", f"punishing_at_end.{f}"]
 
 
 def _run_learn(cfg: dict, ctx: CellContext) -> CellResult:
@@ -117,6 +146,17 @@ def learn_metrics(res: LearnResult) -> dict:
         m[f"analytic.collusive_price.{f}"] = bm["collusive_prices"][i]
         m[f"analytic.nash_profit.{f}"] = bm["nash_profits"][i]
         m[f"analytic.collusive_profit.{f}"] = bm["collusive_profits"][i]
+    for a in res.automata:
+        f = f"firm{a['firm']}"
+        for stem in ("triggered", "triggers", "punishment_share"):
+            est = a[stem]
+            m[f"{stem}.{f}"] = est["share"] if "share" in est else est["mean"]
+            m[f"{stem}.{f}.low"], m[f"{stem}.{f}.high"] = est["low"], est["high"]
+        m[f"first_trigger.{f}"] = a["first_trigger"]["median"]
+        m[f"last_trigger.{f}"] = a["last_trigger"]["median"]
+        m[f"exploration_at_first_trigger.{f}"] = a["exploration_first"]["median"]
+        m[f"exploration_at_last_trigger.{f}"] = a["exploration_last"]["median"]
+        m[f"punishing_at_end.{f}"] = a["punishing_at_end"]["share"]
     return m
 
 
