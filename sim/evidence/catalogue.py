@@ -409,6 +409,26 @@ ENTRIES: dict[str, Entry] = {
     "punishing_at_end": Entry("share of sessions ending with the automaton punishing", "0 to 1",
                               "Share of sessions whose automaton was in a non-collusive state when learning stopped.",
                               "counted", _WILSON),
+    # saved learners continued after an event (a cost or demand shock, an entrant)
+    "settled_again": Entry("share of sessions that settled again after the event", "0 to 1",
+                           "Share of sessions in which, after the event, no greedy strategy changed for the "
+                           "convergence window before the cap.",
+                           "the convergence rule of Calvano, Calzolari, Denicolo and Pastorello (2020, AER), counted "
+                           "from the event", _WILSON),
+    "periods_to_settle": Entry("periods to settle again after the event", "periods",
+                               "Periods from the event to the last change of any learner's greedy strategy, over the "
+                               "sessions that settled again.",
+                               "counted in the learning kernel; learners that keep learning after a lasting change, "
+                               "as in the robustness checks of Calvano et al. (2020) and Asker, Fershtman and Pakes "
+                               "(2022, AEA Papers and Proceedings 112)", _MEAN),
+    "event_price_before": Entry("price just before the event", "price",
+                                "The firm's price in the last period before the event, averaged over sessions.",
+                                "read from the saved sessions' history", _MEAN),
+    "event_price_change": Entry("change of the limit price after the event", "price",
+                                "The firm's mean limit price once the learners settled again, minus its price in the "
+                                "last period before the event; averaged over the sessions that settled.",
+                                "greedy play from the final state (Calvano et al., 2020) against the saved history",
+                                _MEAN),
 }
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)

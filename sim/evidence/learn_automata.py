@@ -61,6 +61,9 @@ def explain(a: dict, summary: dict, act: str = "price") -> str:
     name = f"{words[:1].upper()}{words[1:]} (firm {a['firm']})"
     end = _outcome(summary, act)
     if not a["triggered"]["count"]:
+        if (a["punishment_share"]["mean"] or 0) > 0.5:
+            return (f"{name} has no collusive state to leave: it competed throughout, so the learners learned "
+                    f"{end}.")
         return (f"{name} was never triggered during learning: it played its collusive {act} throughout, so the "
                 f"learners learned {end}.")
     first, last = a["first_trigger"], a["last_trigger"]
@@ -100,10 +103,10 @@ def automaton_lines(res) -> list[str]:
     for a in res.automata:
         ps, tr = a["punishment_share"], a["triggers"]
         lines.append(f"  firm {a['firm']} ({a['strategy'].replace('_', ' ')}): triggered in "
-                     f"{_pct(a['triggered']['share'])} of sessions, {tr['mean']:,.5g} times per session "
+                     f"{_pct(a['triggered']['share'])} of sessions, {_times(tr['mean'])} per session "
                      f"[{tr['low']:,.5g}, {tr['high']:,.5g}]; share of the session punishing {_pct(ps['mean'])} "
                      f"[{_pct(ps['low'])}, {_pct(ps['high'])}]; still punishing at the end in "
                      f"{_pct(a['punishing_at_end']['share'])} of sessions")
-    lines.append("Why the sessions ended where they did:")
+    lines.append("Why the sessions ended where they did (periods count from the start of the session):")
     lines += [f"  {explain(a, res.summary, act)}" for a in res.automata]
     return lines

@@ -38,12 +38,15 @@ class LearnSpec:
         may use).
     start : sim.learning.saved.SavedLearners, optional
         Saved sessions to continue (``learning.continue_from``), already checked against the line-up.
+    event : sim.learning.events.Event, optional
+        The event after which the saved sessions go on (``[event]``).
     """
 
     market: object
     learner: object
     settings: dict
     start: object = None
+    event: object = None
 
 
 @dataclass(frozen=True)
@@ -76,6 +79,9 @@ class LearnResult(Record):
     automata : list of dict
         Per automaton seat, its punishments during learning across sessions
         (:func:`sim.learning.triggers.trigger_summary`); empty when only learners play.
+    event : dict
+        For saved sessions continued after an event: how prices moved after it and how long the learners took to
+        settle again (:func:`sim.learning.events.event_summary`); empty otherwise.
     """
 
     market: dict
@@ -89,6 +95,7 @@ class LearnResult(Record):
     per_session: dict
     limit_actions: np.ndarray
     automata: list = field(default_factory=list)
+    event: dict = field(default_factory=dict)
 
     @property
     def limit_exact(self) -> bool:
@@ -126,10 +133,11 @@ def learn_result(res: LearningResult, market) -> LearnResult:
     ms = res.lineup.market
     summary = dict(d["summary"])
     automata = summary.pop("automata", [])
+    event = summary.pop("event", {})
     doc = {"market": market.to_dict(), "n_firms": int(ms.n_firms), "quantity_setting": bool(ms.quantity_setting),
            "symmetric": bool(ms.symmetric), "settings": d["settings"], "learners": d["learners"],
            "seats": d["seats"], "summary": summary, "per_session": d["per_session"],
-           "limit_actions": res.limit_actions, "automata": automata}
+           "limit_actions": res.limit_actions, "automata": automata, "event": event}
     return LearnResult.from_dict(to_plain(doc))
 
 
@@ -158,7 +166,7 @@ def learn_analysis(spec: LearnSpec, *, cell: int = 0, workers: int = 1, progress
     s = dict(spec.settings)
     s["workers"] = max(1, int(workers))
     res = learn(spec.market, copy.deepcopy(spec.learner), progress=progress, cell=cell, start=spec.start,
-                keep=save_to is not None, **s)
+                keep=save_to is not None, event=spec.event, **s)
     if save_to is not None:
         Path(save_to).parent.mkdir(parents=True, exist_ok=True)
         save_learners(save_to, res.saved)

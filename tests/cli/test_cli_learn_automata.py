@@ -57,7 +57,7 @@ def _file(tmp_path, automaton):
 def test_grim_trigger_is_explained_by_its_permanent_punishment(tmp_path, capsys):
     assert main(["learn", str(_file(tmp_path, "grim_trigger"))]) == 0
     out = capsys.readouterr().out
-    assert "Why the sessions ended where they did:" in out
+    assert "Why the sessions ended where they did" in out
     line = next(x for x in out.splitlines() if x.strip().startswith("Grim trigger (firm 2) was triggered"))
     # the learners explore at random in the first periods, so the punishment starts at once and never ends
     assert "while the learners still explored" in line and "it was triggered once per session" in line
