@@ -37,7 +37,7 @@ from sim.core.errors import InputError
 from sim.core.params import Integer
 from sim.core.tables import refuse_unknown
 from sim.learning import kernel as K
-from sim.learning.inputs import STATUS_CAP, STATUS_CONVERGED
+from sim.learning.inputs import STATUS_CAP, STATUS_CONVERGED, new_triggers
 from sim.learning.saved import SavedLearners, describe_layout
 from sim.simulation.results import mean_estimate, wilson_estimate
 from strategies.qlearning import QLearner
@@ -237,12 +237,12 @@ def adapt_saved(saved: SavedLearners, lineup, event: Event) -> SavedLearners:
         prof = (saved.history // m_old**lag) % m_old
         history += (prof + a_e * m_old) * m_new**lag
     z = np.concatenate([saved.z, np.full((n, 1), int(lineup.z0[-1]), dtype=np.int64)], axis=1)
-    triggers = np.concatenate([saved.triggers, np.repeat(K.new_triggers(1)[None], n, axis=0)], axis=1)
+    triggers = np.concatenate([saved.triggers, np.repeat(new_triggers(1)[None], n, axis=0)], axis=1)
     return SavedLearners(q, greedy, history, z, saved.rng.copy(), clock, saved.status.copy(), triggers,
                          dict(saved.header))
 
 
-def run_tracked(lineup, session, s: int, convergence: int, cap: int, triggers: np.ndarray, path: np.ndarray,
+def run_tracked(lineup, session, s: int, convergence: int, cap: int, path: np.ndarray,
                 event: Event) -> tuple[int, int, int]:
     """Continue one session after the event, recording the prices of its first ``event.periods`` periods.
 
@@ -256,8 +256,6 @@ def run_tracked(lineup, session, s: int, convergence: int, cap: int, triggers: n
     convergence : int
     cap : int
         Periods played in all (from the saved session's start) after which the session stops.
-    triggers : ndarray of int64, shape (n_seats, 4)
-        The automata's record, updated in place.
     path : ndarray of shape (event.bins + 1, n_seats)
         Receives the prices of the last period before the event (row 0; nan for an entrant) and the mean prices of
         each bin of periods after it; a session that settles, or reaches the cap, before the end keeps its last
@@ -286,15 +284,14 @@ def run_tracked(lineup, session, s: int, convergence: int, cap: int, triggers: n
             if status == STATUS_CONVERGED or t >= cap:
                 acc += last
                 continue
-            status, t, s = K.run_session(lineup.seats, stage, lineup.automata, session, s, convergence, t + 1,
-                                         triggers)
+            status, t, s = K.run_session(lineup.seats, stage, lineup.automata, session, s, convergence, t + 1)
             if status == STATUS_CAP and t < cap:
                 status = -1  # one period played, not settled: go on
             last = stage.prices[s % m]
             acc += last
         path[b + 1] = acc / per
     if status != STATUS_CONVERGED and t < cap:
-        status, t, s = K.run_session(lineup.seats, stage, lineup.automata, session, s, convergence, cap, triggers)
+        status, t, s = K.run_session(lineup.seats, stage, lineup.automata, session, s, convergence, cap)
     return (STATUS_CONVERGED if status == STATUS_CONVERGED else STATUS_CAP), t, s
 
 

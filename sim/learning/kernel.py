@@ -29,7 +29,7 @@ is three steps, marked in :func:`run_session`: every seat chooses (the explorati
 :func:`_q_learning`; the greedy action is kept up to date) -- and, with a synchronous or mixed update rule
 (``seats.share`` above 0), the values of the actions it did not play, from their counterfactual profits
 (:func:`_update_counterfactual`) -- and every automaton moves on its signal, its punishments counted in the
-session's record (``triggers``, :data:`TRIGGER_FIELDS`; no draw, no change to the numbers). Another protocol
+session's record (``session.triggers``, :data:`TRIGGER_FIELDS`; no draw, no change to the numbers). Another protocol
 replaces a step, not the loop. The rules of a step are inlined functions of numbers (``inline="always"``, which
 changes no arithmetic); the arrays stay in the loop itself, taken out of their groups once before it, because an
 inlined function that takes an array takes and releases a reference to it at every call, which costs more here
@@ -56,32 +56,10 @@ import numpy as np
 from numba import njit
 
 from sim.core.rng import next_below, next_double
-from sim.learning.inputs import AUTOMATON, LEARNER, STATUS_CAP, STATUS_CONVERGED
+from sim.learning.inputs import AUTOMATON, LEARNER, STATUS_CAP, STATUS_CONVERGED, TRIGGER_FIELDS, new_triggers
 from strategies.step import COLLUSIVE, bad_signal, choose_level, next_state
 
 __all__ = ["TRIGGER_FIELDS", "initial_state", "new_triggers", "run_session"]
-
-#: the columns of a session's record of its automata's punishments (``triggers``, one row per seat): entries into a
-#: non-collusive state from a collusive one, the periods (from 0) of the first and the last entry (-1: none), and
-#: the periods played in a non-collusive state
-TRIGGER_FIELDS = ("count", "first", "last", "punishing")
-
-
-def new_triggers(n: int) -> np.ndarray:
-    """An empty record of the automata's punishments: no entry yet (see :data:`TRIGGER_FIELDS`).
-
-    Parameters
-    ----------
-    n : int
-        Seats.
-
-    Returns
-    -------
-    ndarray of int64, shape (n, 4)
-    """
-    out = np.zeros((n, len(TRIGGER_FIELDS)), dtype=np.int64)
-    out[:, 1:3] = -1
-    return out
 
 
 @njit(cache=True, nogil=True)
@@ -179,7 +157,7 @@ def _update_counterfactual(Q, greedy, li, si, s, prof, a, m, place_i, mod_i, M, 
 
 
 @njit(cache=True, nogil=True)
-def run_session(seats, stage, automata, session, s, convergence, max_periods, triggers):
+def run_session(seats, stage, automata, session, s, convergence, max_periods):
     """Run one session from history state ``s`` until convergence or the cap.
 
     Parameters
@@ -198,11 +176,6 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, tr
         Stop once no learner's greedy strategy has changed for this many consecutive periods.
     max_periods : int
         Stop once this many periods have been played in all (counted from the session's start) in any case.
-    triggers : ndarray of int64, shape (n, 4)
-        The record of every automaton seat's punishments (:data:`TRIGGER_FIELDS`; :func:`new_triggers` at the start
-        of a session), updated in place: a period counts as punishing when the automaton plays it in a
-        non-collusive state, and an entry is a move from a collusive state to a non-collusive one (dated by the
-        period whose signal caused it). Learner rows stay as they are.
 
     Returns
     -------
@@ -216,7 +189,7 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, tr
     kind, lidx, radix, place, mod, _zn, _zplace, owner, alpha, beta, delta, share = seats
     M, S, K, payoff, _actions, _prices, mprice, values, quantity_setting = stage
     a_states, a_probs, a_firms, a_levels, act_of_level = automata
-    Q, greedy, z, rng, clock = session
+    Q, greedy, z, rng, clock, triggers = session
     n = radix.size
     act = np.empty(n, np.int64)
     vals = np.empty(n, np.float64)

@@ -227,7 +227,7 @@ class LearningResult:
         Every session's state at the end of learning, when asked for (``learn(..., keep=True)``).
     triggers : ndarray of int64, shape (n, f, 4), or None
         Every session's record of its automata's punishments during learning
-        (:data:`sim.learning.kernel.TRIGGER_FIELDS`; learner rows unused).
+        (:data:`sim.learning.inputs.TRIGGER_FIELDS`; learner rows unused).
     punishing_at_end : ndarray of bool, shape (n, f), or None
         Whether each automaton was punishing (in a non-collusive state) at the end of learning.
     event : dict or None

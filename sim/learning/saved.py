@@ -73,7 +73,7 @@ class SavedLearners:
     status : ndarray of int64, shape (n,)
         How each session stopped (converged or at the cap).
     triggers : ndarray of int64, shape (n, n_seats, 4)
-        Each session's record of its automata's punishments so far (:data:`sim.learning.kernel.TRIGGER_FIELDS`; a
+        Each session's record of its automata's punishments so far (:data:`sim.learning.inputs.TRIGGER_FIELDS`; a
         file written before it was kept has none, read as no punishment yet).
     header : dict
         ``format``, ``version``, ``market``, ``seats``, ``sessions``, ``seed``, ``cell`` (see the module notes).

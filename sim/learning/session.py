@@ -241,7 +241,7 @@ class _Buffers:
             sv = self.saved
             sv["Q"][j], sv["greedy"][j], sv["history"][j] = session.Q, session.greedy, s
             sv["z"][j], sv["rng"][j], sv["clock"][j] = session.z, session.rng, session.clock
-            sv["triggers"][j] = self.triggers[j]
+            sv["triggers"][j] = session.triggers
 
     def outputs(self, j: int) -> LimitOutputs:
         """Session ``j``'s rows, as the limit kernels write them."""
@@ -257,22 +257,21 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
         rng = state.copy()
         session = lineup.session_state(rng, g0)
         s = K.initial_state(rng, lineup.seats, lineup.stage)
-        buf.triggers[j] = K.new_triggers(lineup.n_seats)
     else:
         rng = start.rng[j].copy()
         session = SessionState(start.Q[j].copy(), start.greedy[j].copy(), start.z[j].copy(), rng,
-                               start.clock[j].copy())
+                               start.clock[j].copy(), start.triggers[j].copy())
         s = int(start.history[j])
-        buf.triggers[j] = start.triggers[j]
     if buf.event is None:
         st, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, session, s, settings["convergence"],
-                                 settings["max_periods"], buf.triggers[j])
+                                 settings["max_periods"])
     else:
         t0 = int(session.clock[0])
         st, t, s = run_tracked(lineup, session, s, settings["convergence"], settings["max_periods"] + t0,
-                               buf.triggers[j], buf.path[j], buf.event)
+                               buf.path[j], buf.event)
         if st == STATUS_CONVERGED:
             buf.settle[j] = t - int(session.clock[1]) - t0
+    buf.triggers[j] = session.triggers
     buf.status[j] = st
     buf.periods[j] = t
     buf.punishing_at_end[j] = lineup.punishing(session.z)
@@ -419,13 +418,11 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
     dict
         ``status``, ``periods``, ``state`` (the history state), ``Q``, ``greedy``, ``z``, ``rng`` (the
         generator state after the last period) and ``triggers`` (the record of the automata's punishments,
-        :data:`sim.learning.kernel.TRIGGER_FIELDS`).
+        :data:`sim.learning.inputs.TRIGGER_FIELDS`).
     """
     rng = stream_states(seed, (cell,), session, session + 1)[0].copy()
     st = lineup.session_state(rng)
     s = K.initial_state(rng, lineup.seats, lineup.stage)
-    triggers = K.new_triggers(lineup.n_seats)
-    status, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, st, s, convergence, max_periods,
-                                 triggers)
+    status, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, st, s, convergence, max_periods)
     return {"status": int(status), "periods": int(t), "state": int(s), "Q": st.Q, "greedy": st.greedy, "z": st.z,
-            "rng": rng, "triggers": triggers}
+            "rng": rng, "triggers": st.triggers}

@@ -5,7 +5,7 @@ A Q-learner facing grim trigger typically ends at the static Nash price: explori
 it undercuts the agreed price, the automaton enters its punishment state and -- grim trigger never forgives --
 stays there; what the learner then learns is its best reply to a rival at the punishment price. Facing tit for tat
 the same exploration is punished for one period only, and the learner can learn that the agreed price pays. The
-kernel keeps the record that shows this (:data:`sim.learning.kernel.TRIGGER_FIELDS`); :func:`trigger_summary`
+kernel keeps the record that shows this (:data:`sim.learning.inputs.TRIGGER_FIELDS`); :func:`trigger_summary`
 turns it into statistics across sessions.
 
 The exploration probability at a trigger is the learners' ``exp(-beta t)`` in the period ``t`` whose conduct
@@ -53,7 +53,7 @@ def trigger_summary(lineup, triggers: np.ndarray, punishing_at_end: np.ndarray, 
     ----------
     lineup : sim.learning.lineup.Lineup
     triggers : ndarray of int64, shape (n_sessions, n_seats, 4)
-        Every session's record (:data:`sim.learning.kernel.TRIGGER_FIELDS`).
+        Every session's record (:data:`sim.learning.inputs.TRIGGER_FIELDS`).
     punishing_at_end : ndarray of bool, shape (n_sessions, n_seats)
         Whether each automaton was in a non-collusive state at the end of learning.
     periods : ndarray of int64, shape (n_sessions,)

@@ -328,7 +328,7 @@ def _record_triggers(st, record, before, after, t):
 
 
 def _trigger_array(st, record):
-    """The record in the kernel's layout (rows of seats; learner rows as :func:`sim.learning.kernel.new_triggers`
+    """The record in the kernel's layout (rows of seats; learner rows as :func:`sim.learning.inputs.new_triggers`
     leaves them)."""
     out = [[0, -1, -1, 0] for _ in range(st.n)]
     for i, r in record.items():
