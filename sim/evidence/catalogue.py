@@ -382,6 +382,59 @@ ENTRIES: dict[str, Entry] = {
                             "share above 30 % with a change above 100.",
                             "U.S. Department of Justice and Federal Trade Commission, Merger Guidelines (2023), "
                             "section 2.1"),
+    # learners against automata: the automaton's punishments during learning
+    "triggered": Entry("share of sessions in which the automaton's punishment was triggered", "0 to 1",
+                       "Share of sessions in which the automaton entered a non-collusive (punishment) state from a "
+                       "collusive one at least once while the learners learned.",
+                       "counted in the learning kernel from the automaton's states (its collusive states as the "
+                       "strategy defines them); learners against automata as in Calvano, Calzolari, Denicolo and "
+                       "Pastorello (2020, AER, section V)", _WILSON),
+    "triggers": Entry("triggers of the automaton's punishment per session", "count",
+                      "Entries of the automaton into a non-collusive state from a collusive one during learning, "
+                      "per session.", "counted in the learning kernel", _MEAN),
+    "first_trigger": Entry("period of the first trigger", "period",
+                           "Median over the sessions with a trigger of the period (from 1) whose conduct first put "
+                           "the automaton into punishment.", "counted in the learning kernel", "none (a median)"),
+    "last_trigger": Entry("period of the last trigger", "period",
+                          "Median over the sessions with a trigger of the period (from 1) whose conduct last put the "
+                          "automaton into punishment.", "counted in the learning kernel", "none (a median)"),
+    "punishment_share": Entry("share of the session the automaton punished", "0 to 1",
+                              "Periods the automaton played in a non-collusive state divided by the periods of the "
+                              "session, averaged over sessions.", "counted in the learning kernel",
+                              _MEAN + ", cut to [0, 1]"),
+    "exploration_at_first_trigger": Entry("exploration probability at the first trigger", "probability",
+                                          "The learners' probability of exploring, exp(-beta t), in the period of "
+                                          "the first trigger; median over the sessions with a trigger.",
+                                          "epsilon-greedy exploration decaying as exp(-beta t) (Calvano, Calzolari, "
+                                          "Denicolo and Pastorello, 2020, AER)", "none (a median)"),
+    "exploration_at_last_trigger": Entry("exploration probability at the last trigger", "probability",
+                                         "The learners' probability of exploring, exp(-beta t), in the period of the "
+                                         "last trigger; median over the sessions with a trigger.",
+                                         "epsilon-greedy exploration decaying as exp(-beta t) (Calvano, Calzolari, "
+                                         "Denicolo and Pastorello, 2020, AER)", "none (a median)"),
+    "punishing_at_end": Entry("share of sessions ending with the automaton punishing", "0 to 1",
+                              "Share of sessions whose automaton was in a non-collusive state when learning stopped.",
+                              "counted", _WILSON),
+    # saved learners continued after an event (a cost or demand shock, an entrant)
+    "settled_again": Entry("share of sessions that settled again after the event", "0 to 1",
+                           "Share of sessions in which, after the event, no greedy strategy changed for the "
+                           "convergence window before the cap.",
+                           "the convergence rule of Calvano, Calzolari, Denicolo and Pastorello (2020, AER), counted "
+                           "from the event", _WILSON),
+    "periods_to_settle": Entry("periods to settle again after the event", "periods",
+                               "Periods from the event to the last change of any learner's greedy strategy, over the "
+                               "sessions that settled again.",
+                               "counted in the learning kernel; learners that keep learning after a lasting change, "
+                               "as in the robustness checks of Calvano et al. (2020) and Asker, Fershtman and Pakes "
+                               "(2022, AEA Papers and Proceedings 112)", _MEAN),
+    "event_price_before": Entry("price just before the event", "price",
+                                "The firm's price in the last period before the event, averaged over sessions.",
+                                "read from the saved sessions' history", _MEAN),
+    "event_price_change": Entry("change of the limit price after the event", "price",
+                                "The firm's mean limit price once the learners settled again, minus its price in the "
+                                "last period before the event; averaged over the sessions that settled.",
+                                "greedy play from the final state (Calvano et al., 2020) against the saved history",
+                                _MEAN),
 }
 
 # enforcement, demand states and multimarket contact (sim.evidence.catalogue_conditions)
@@ -410,6 +463,10 @@ PARAMETERS: dict[str, Entry] = {
     "market.elasticity": Entry("demand elasticity", "", "Absolute elasticity of isoelastic demand.", "given"),
     "strategies": Entry("strategy", "", "The strategy played by the seats of a line-up entry.", "given"),
     "assess.growth": Entry("demand growth per period", "share per period", "Growth rate of demand.", "given"),
+    "learning.update": Entry("update rule of the learners", "",
+                             "Which values a learner updates after a period: asynchronous (the price it played) or "
+                             "synchronous (every price, from what it would have earned against the rivals' prices).",
+                             "given; the rules of Asker, Fershtman and Pakes (2022, AEA Papers and Proceedings 112)"),
 }
 
 PARAMETERS.update({k: Entry(*v) for k, v in CONDITION_PARAMETERS.items()})

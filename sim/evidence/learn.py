@@ -12,6 +12,8 @@ from __future__ import annotations
 import numpy as np
 
 from sim.core.text import CAUTION, fmt_num, table
+from sim.evidence.learn_automata import automaton_lines
+from sim.evidence.learn_event import event_figure, event_lines
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.thresholds import describe_market
 from sim.learning.analysis import LearnResult
@@ -201,7 +203,8 @@ def console(res: LearnResult) -> str:
     -------
     str
     """
-    lines = _setup_lines(res) + _limit_lines(res) + _impulse_lines(res)
+    lines = _setup_lines(res) + _limit_lines(res) + _impulse_lines(res) + automaton_lines(res)
+    lines += event_lines(res)
     lines += ["", CAUTION]
     return "\n".join(lines)
 
@@ -322,7 +325,9 @@ def figures(res: LearnResult) -> list[Drawn]:
         ``impulse_response`` (when a response was recorded), ``profit_gain_histogram``, ``limit_prices_heatmap``.
     """
     out = [_impulse_figure(res)] if res.summary["impulse_response"]["prices"]["mean"] else []
-    return [*out, _histogram_figure(res), _heatmap_figure(res)]
+    out += [_histogram_figure(res), _heatmap_figure(res)]
+    after = event_figure(res)
+    return out if after is None else [*out, after]
 
 
 RENDERER = Renderer(console=console, as_json=as_json, figures=figures)

@@ -61,7 +61,7 @@ from sim.runner.store import STORE_FILE
 __all__ = ["bundle_hook", "write_report"]
 
 #: the bundle accounts of kinds whose renderers do not give one yet (kind name -> "module:function")
-_BUNDLE_HOOKS: dict = {}
+_BUNDLE_HOOKS: dict = {"learn": "sim.evidence.learn_bundle:bundle"}
 
 
 def bundle_hook(kind):

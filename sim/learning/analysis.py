@@ -10,7 +10,7 @@ benchmarks, the value of the deviation, the return to the cycle, and every sessi
 from __future__ import annotations
 
 import copy
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -38,12 +38,15 @@ class LearnSpec:
         may use).
     start : sim.learning.saved.SavedLearners, optional
         Saved sessions to continue (``learning.continue_from``), already checked against the line-up.
+    event : sim.learning.events.Event, optional
+        The event after which the saved sessions go on (``[event]``).
     """
 
     market: object
     learner: object
     settings: dict
     start: object = None
+    event: object = None
 
 
 @dataclass(frozen=True)
@@ -73,6 +76,12 @@ class LearnResult(Record):
         Every session's outcomes (:meth:`sim.learning.results.LearningResult.per_session`).
     limit_actions : ndarray of shape (n_sessions, n_firms)
         Every session's mean limit action (price or quantity).
+    automata : list of dict
+        Per automaton seat, its punishments during learning across sessions
+        (:func:`sim.learning.triggers.trigger_summary`); empty when only learners play.
+    event : dict
+        For saved sessions continued after an event: how prices moved after it and how long the learners took to
+        settle again (:func:`sim.learning.events.event_summary`); empty otherwise.
     """
 
     market: dict
@@ -85,6 +94,8 @@ class LearnResult(Record):
     summary: dict
     per_session: dict
     limit_actions: np.ndarray
+    automata: list = field(default_factory=list)
+    event: dict = field(default_factory=dict)
 
     @property
     def limit_exact(self) -> bool:
@@ -120,10 +131,13 @@ def learn_result(res: LearningResult, market) -> LearnResult:
     """
     d = res.to_dict()
     ms = res.lineup.market
+    summary = dict(d["summary"])
+    automata = summary.pop("automata", [])
+    event = summary.pop("event", {})
     doc = {"market": market.to_dict(), "n_firms": int(ms.n_firms), "quantity_setting": bool(ms.quantity_setting),
            "symmetric": bool(ms.symmetric), "settings": d["settings"], "learners": d["learners"],
-           "seats": d["seats"], "summary": d["summary"], "per_session": d["per_session"],
-           "limit_actions": res.limit_actions}
+           "seats": d["seats"], "summary": summary, "per_session": d["per_session"],
+           "limit_actions": res.limit_actions, "automata": automata, "event": event}
     return LearnResult.from_dict(to_plain(doc))
 
 
@@ -152,7 +166,7 @@ def learn_analysis(spec: LearnSpec, *, cell: int = 0, workers: int = 1, progress
     s = dict(spec.settings)
     s["workers"] = max(1, int(workers))
     res = learn(spec.market, copy.deepcopy(spec.learner), progress=progress, cell=cell, start=spec.start,
-                keep=save_to is not None, **s)
+                keep=save_to is not None, event=spec.event, **s)
     if save_to is not None:
         Path(save_to).parent.mkdir(parents=True, exist_ok=True)
         save_learners(save_to, res.saved)

@@ -30,6 +30,7 @@ __all__ = [
     "LEARNER",
     "STATUS_CAP",
     "STATUS_CONVERGED",
+    "TRIGGER_FIELDS",
     "AutomatonInputs",
     "DeviationInputs",
     "LimitOutputs",
@@ -38,6 +39,7 @@ __all__ = [
     "SessionState",
     "StageInputs",
     "limit_outputs",
+    "new_triggers",
 ]
 
 #: a session stopped because no greedy strategy changed for ``convergence`` periods
@@ -172,6 +174,11 @@ class SessionState(NamedTuple):
         Periods played so far and, of them, the last consecutive ones without a change of any greedy action: read
         when the session starts (zeros for a new session; a saved session's counters to continue it) and written
         when it stops.
+    triggers : ndarray of int64, shape (n, 4)
+        The record of every automaton seat's punishments (:data:`TRIGGER_FIELDS`; :func:`new_triggers` for a new
+        session): a period counts as punishing when the automaton plays it in a non-collusive state, and an entry
+        is a move from a collusive state to a non-collusive one, dated by the period whose signal caused it.
+        Learner rows stay as they are.
     """
 
     Q: np.ndarray
@@ -179,6 +186,30 @@ class SessionState(NamedTuple):
     z: np.ndarray
     rng: np.ndarray
     clock: np.ndarray
+    triggers: np.ndarray
+
+
+#: the columns of a session's record of its automata's punishments (``SessionState.triggers``, one row per seat):
+#: entries into a non-collusive state from a collusive one, the periods (from 0) of the first and the last entry
+#: (-1: none), and the periods played in a non-collusive state
+TRIGGER_FIELDS = ("count", "first", "last", "punishing")
+
+
+def new_triggers(n: int) -> np.ndarray:
+    """An empty record of the automata's punishments: no entry yet (see :data:`TRIGGER_FIELDS`).
+
+    Parameters
+    ----------
+    n : int
+        Seats.
+
+    Returns
+    -------
+    ndarray of int64, shape (n, 4)
+    """
+    out = np.zeros((n, len(TRIGGER_FIELDS)), dtype=np.int64)
+    out[:, 1:3] = -1
+    return out
 
 
 class Play(NamedTuple):

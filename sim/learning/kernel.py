@@ -28,7 +28,8 @@ is three steps, marked in :func:`run_session`: every seat chooses (the explorati
 :func:`_exploration`), every learner updates the value of the action it played (the update rule is
 :func:`_q_learning`; the greedy action is kept up to date) -- and, with a synchronous or mixed update rule
 (``seats.share`` above 0), the values of the actions it did not play, from their counterfactual profits
-(:func:`_update_counterfactual`) -- and every automaton moves on its signal. Another protocol
+(:func:`_update_counterfactual`) -- and every automaton moves on its signal, its punishments counted in the
+session's record (``session.triggers``, :data:`TRIGGER_FIELDS`; no draw, no change to the numbers). Another protocol
 replaces a step, not the loop. The rules of a step are inlined functions of numbers (``inline="always"``, which
 changes no arithmetic); the arrays stay in the loop itself, taken out of their groups once before it, because an
 inlined function that takes an array takes and releases a reference to it at every call, which costs more here
@@ -55,10 +56,10 @@ import numpy as np
 from numba import njit
 
 from sim.core.rng import next_below, next_double
-from sim.learning.inputs import AUTOMATON, LEARNER, STATUS_CAP, STATUS_CONVERGED
-from strategies.step import bad_signal, choose_level, next_state
+from sim.learning.inputs import AUTOMATON, LEARNER, STATUS_CAP, STATUS_CONVERGED, TRIGGER_FIELDS, new_triggers
+from strategies.step import COLLUSIVE, bad_signal, choose_level, next_state
 
-__all__ = ["initial_state", "run_session"]
+__all__ = ["TRIGGER_FIELDS", "initial_state", "new_triggers", "run_session"]
 
 
 @njit(cache=True, nogil=True)
@@ -188,7 +189,7 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
     kind, lidx, radix, place, mod, _zn, _zplace, owner, alpha, beta, delta, share = seats
     M, S, K, payoff, _actions, _prices, mprice, values, quantity_setting = stage
     a_states, a_probs, a_firms, a_levels, act_of_level = automata
-    Q, greedy, z, rng, clock = session
+    Q, greedy, z, rng, clock, triggers = session
     n = radix.size
     act = np.empty(n, np.int64)
     vals = np.empty(n, np.float64)
@@ -257,9 +258,18 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
                 vals[i] = values[i, act[i]]
             for i in range(n):
                 if kind[i] == AUTOMATON:
-                    bad = bad_signal(i, z[i], n, vals, owner, mprice[prof], payoff[prof, i], 0.0, a_states, a_probs,
+                    zi = z[i]
+                    bad = bad_signal(i, zi, n, vals, owner, mprice[prof], payoff[prof, i], 0.0, a_states, a_probs,
                                      a_levels, quantity_setting, rng)
-                    z[i] = next_state(i, z[i], bad, a_states, a_probs, rng)
+                    z[i] = next_state(i, zi, bad, a_states, a_probs, rng)
+                    # the record of punishments: why a learner facing this automaton ends where it does
+                    if a_states[i, zi, COLLUSIVE] == 0:
+                        triggers[i, 3] += 1
+                    elif a_states[i, z[i], COLLUSIVE] == 0:
+                        triggers[i, 0] += 1
+                        if triggers[i, 1] < 0:
+                            triggers[i, 1] = t
+                        triggers[i, 2] = t
         s = s_new
         t += 1
         if changed:

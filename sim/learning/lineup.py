@@ -17,7 +17,16 @@ import numpy as np
 import strategies.step as SS
 from sim.core.errors import InputError
 from sim.core.params import Options
-from sim.learning.inputs import AUTOMATON, LEARNER, AutomatonInputs, Play, SeatInputs, SessionState, StageInputs
+from sim.learning.inputs import (
+    AUTOMATON,
+    LEARNER,
+    AutomatonInputs,
+    Play,
+    SeatInputs,
+    SessionState,
+    StageInputs,
+    new_triggers,
+)
 from sim.models.market import MarketSpec
 from sim.models.stagecore import evaluate_py, market_arrays
 from sim.simulation.engine import stage_levels
@@ -116,6 +125,26 @@ class Lineup:
         """Profit of each seat at each profile, shape (M, n)."""
         return self.stage.payoff
 
+    def punishing(self, z: np.ndarray) -> np.ndarray:
+        """Which automaton seats are in a non-collusive state (punishing) in automaton states ``z``.
+
+        Parameters
+        ----------
+        z : ndarray of int64, shape (n,)
+            Automaton states (entries of learner seats are ignored).
+
+        Returns
+        -------
+        ndarray of bool, shape (n,)
+            False for learner seats.
+        """
+        out = np.zeros(self.n_seats, dtype=bool)
+        if self.has_automata:
+            for i in range(self.n_seats):
+                if self.learners[i] is None:
+                    out[i] = self.automata.states[i, int(z[i]), SS.COLLUSIVE] == 0
+        return out
+
     def initial_greedy(self) -> np.ndarray:
         """The greedy actions of the initial Q-values.
 
@@ -131,7 +160,8 @@ class Lineup:
         return g
 
     def session_state(self, rng, greedy: np.ndarray | None = None) -> SessionState:
-        """The state a session starts from: copies of the initial Q-values, greedy actions and automaton states.
+        """The state a session starts from: copies of the initial Q-values, greedy actions and automaton states, and
+        an empty record of the automata's punishments.
 
         Parameters
         ----------
@@ -145,7 +175,8 @@ class Lineup:
         sim.learning.inputs.SessionState
         """
         g = self.initial_greedy() if greedy is None else greedy.copy()
-        return SessionState(self.q0.copy(), g, self.z0.copy(), rng, np.zeros(2, dtype=np.int64))
+        return SessionState(self.q0.copy(), g, self.z0.copy(), rng, np.zeros(2, dtype=np.int64),
+                            new_triggers(self.n_seats))
 
     def decode(self, prof) -> np.ndarray:
         """Action indices of profile numbers.

@@ -13,7 +13,9 @@ from typing import Any
 
 import numpy as np
 
+from sim.learning.events import event_summary
 from sim.learning.lineup import Lineup
+from sim.learning.triggers import trigger_summary
 from sim.simulation.results import mean_estimate, normal_quantile, wilson_estimate
 
 __all__ = [
@@ -223,6 +225,16 @@ class LearningResult:
         Wall-clock seconds.
     saved : sim.learning.saved.SavedLearners or None
         Every session's state at the end of learning, when asked for (``learn(..., keep=True)``).
+    triggers : ndarray of int64, shape (n, f, 4), or None
+        Every session's record of its automata's punishments during learning
+        (:data:`sim.learning.inputs.TRIGGER_FIELDS`; learner rows unused).
+    punishing_at_end : ndarray of bool, shape (n, f), or None
+        Whether each automaton was punishing (in a non-collusive state) at the end of learning.
+    event : dict or None
+        For saved sessions continued after an event (:mod:`sim.learning.events`): ``event`` (the
+        :class:`~sim.learning.events.Event`), ``what`` (in words), ``path`` (ndarray of shape (n, bins + 1, f), the
+        recorded prices) and ``settle`` (ndarray of shape (n,), periods from the event to the last change of a
+        greedy strategy; nan when the session did not settle).
     """
 
     lineup: Lineup
@@ -250,6 +262,9 @@ class LearningResult:
     return_periods: np.ndarray
     elapsed: float = 0.0
     saved: Any = None
+    triggers: Any = None
+    punishing_at_end: Any = None
+    event: Any = None
     _summary: dict = field(default_factory=dict, repr=False)
 
     @property
@@ -330,6 +345,13 @@ class LearningResult:
                 "nash_actions": lu.nash_actions.tolist(), "collusive_actions": lu.collusive_actions.tolist(),
             },
         }
+        if lu.has_automata and self.triggers is not None:
+            # why a learner facing an automaton ends where it does: the automaton's punishments during learning
+            out["automata"] = trigger_summary(lu, self.triggers, self.punishing_at_end, self.periods, sel, lvl)
+        if self.event is not None:
+            ev = self.event
+            out["event"] = event_summary(ev["event"], ev["path"], ev["settle"], self.converged, self.limit_prices,
+                                         ev["what"], lvl)
         self._summary.update(out)
         return self._summary
 

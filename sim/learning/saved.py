@@ -43,10 +43,12 @@ __all__ = ["FORMAT", "VERSION", "SavedLearners", "arrays_digest", "check_start",
 #: the name and version of the file format written by :func:`save_learners`
 FORMAT = "supergame saved learners"
 VERSION = 1
-#: the arrays of a saved run, in the order they are hashed
-_ARRAYS = ("Q", "greedy", "history", "z", "rng", "clock", "status")
+#: the arrays of a saved run, in the order they are hashed (files written before the record of punishments was kept
+#: have all but ``triggers``; their header's ``arrays`` does not list it)
+_ARRAYS = ("Q", "greedy", "history", "z", "rng", "clock", "status", "triggers")
+_ARRAYS_V1 = _ARRAYS[:-1]
 _DTYPES = {"Q": np.float64, "greedy": np.int64, "history": np.int64, "z": np.int64, "rng": np.uint64,
-           "clock": np.int64, "status": np.int64}
+           "clock": np.int64, "status": np.int64, "triggers": np.int64}
 _FIXED_DATE = (1980, 1, 1, 0, 0, 0)
 
 
@@ -70,6 +72,9 @@ class SavedLearners:
         Periods played, and of them the last consecutive ones without a change of any greedy action.
     status : ndarray of int64, shape (n,)
         How each session stopped (converged or at the cap).
+    triggers : ndarray of int64, shape (n, n_seats, 4)
+        Each session's record of its automata's punishments so far (:data:`sim.learning.inputs.TRIGGER_FIELDS`; a
+        file written before it was kept has none, read as no punishment yet).
     header : dict
         ``format``, ``version``, ``market``, ``seats``, ``sessions``, ``seed``, ``cell`` (see the module notes).
     """
@@ -81,6 +86,7 @@ class SavedLearners:
     rng: np.ndarray
     clock: np.ndarray
     status: np.ndarray
+    triggers: np.ndarray
     header: dict
 
     @property
@@ -98,20 +104,22 @@ class SavedLearners:
         return {name: getattr(self, name) for name in _ARRAYS}
 
 
-def arrays_digest(arrays: dict) -> str:
+def arrays_digest(arrays: dict, names=_ARRAYS) -> str:
     """SHA-256 (hex) of named arrays: for each name in :data:`_ARRAYS` order, the name, the dtype, the shape and the
     C-ordered bytes.
 
     Parameters
     ----------
     arrays : dict of str to ndarray
+    names : tuple of str
+        The names hashed (those the file holds).
 
     Returns
     -------
     str
     """
     h = hashlib.sha256()
-    for name in _ARRAYS:
+    for name in names:
         a = np.ascontiguousarray(arrays[name])
         h.update(f"{name}|{a.dtype.str}|{list(a.shape)}|".encode())
         h.update(a.tobytes())
@@ -179,8 +187,9 @@ def load_learners(path, key: str = "learning.continue_from") -> SavedLearners:
             if header.get("version") != VERSION:
                 raise InputError(key, f"{path} has format version {header.get('version')!r}; this version of the "
                                       f"program reads version {VERSION}")
+            names = _ARRAYS if "triggers" in (header.get("arrays") or {}) else _ARRAYS_V1
             arrays = {name: np.lib.format.read_array(io.BytesIO(zf.read(f"{name}.npy")), allow_pickle=False)
-                      for name in _ARRAYS}
+                      for name in names}
     except InputError:
         raise
     except (zipfile.BadZipFile, KeyError, ValueError, OSError, EOFError) as exc:
@@ -189,10 +198,15 @@ def load_learners(path, key: str = "learning.continue_from") -> SavedLearners:
     for name, a in arrays.items():
         if a.dtype != np.dtype(_DTYPES[name]):
             raise InputError(key, f"{path}: array {name} has type {a.dtype}, expected {np.dtype(_DTYPES[name])}")
-    if arrays_digest(arrays) != header.get("arrays_sha256"):
+    found = arrays_digest(arrays, names)
+    if found != header.get("arrays_sha256"):
         raise InputError(key, f"{path}: the arrays do not match the SHA-256 recorded in the file (recorded "
-                              f"{str(header.get('arrays_sha256'))[:12]}..., found {arrays_digest(arrays)[:12]}...): "
+                              f"{str(header.get('arrays_sha256'))[:12]}..., found {found[:12]}...): "
                               "the file was altered or damaged")
+    if "triggers" not in arrays:
+        z = arrays["z"]
+        arrays["triggers"] = np.zeros((*z.shape, 4), dtype=np.int64)
+        arrays["triggers"][..., 1:3] = -1
     return SavedLearners(**arrays, header=header)
 
 

@@ -63,6 +63,7 @@ from sim.core.errors import InputError
 from sim.core.parallel import usable_cores
 from sim.core.params import Real
 from sim.core.rng import stream_states
+from sim.learning.events import Event, adapt_saved, check_event, run_tracked
 from sim.learning.inputs import STATUS_CONVERGED, DeviationInputs, LimitOutputs, SessionState
 from sim.learning.lineup import Lineup, available_memory, compile_lineup
 from sim.learning.results import (
@@ -90,7 +91,7 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
           response_periods: int = 15, near: float = 0.1, workers: int | None = None,
           progress: bool | None = None, cell: int = 0, confidence: float = 0.95,
           limit_periods: int = LIMIT_PERIODS, start: SavedLearners | None = None,
-          keep: bool = False) -> LearningResult:
+          keep: bool = False, event: Event | None = None) -> LearningResult:
     """Run independent learning sessions and analyse what the learners converged to.
 
     Parameters
@@ -139,6 +140,10 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     keep : bool
         Keep every session's state at the end of learning (:attr:`LearningResult.saved`, to be written by
         :func:`sim.learning.saved.save_learners`).
+    event : sim.learning.events.Event, optional
+        With ``start``: the saved sessions go on after this event (a changed market, or an entrant as the last
+        seat; see :mod:`sim.learning.events`): the convergence counter is reset, ``max_periods`` counts the periods
+        after the event, and the prices of the first ``event.periods`` periods are recorded.
 
     Returns
     -------
@@ -157,11 +162,26 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     dev_index = _deviation_index(lineup, run["deviator"], deviation)
     settings = {**run, "workers": n_workers, "deviation": deviation}
     market_doc = market.to_dict() if hasattr(market, "to_dict") else None
-    if start is not None:
+    what = None
+    if start is not None and event is not None:
+        check_event(start, lineup, event, run["sessions"])
+        what = _event_words(start, lineup, market_doc, event)
+        start = adapt_saved(start, lineup, event)
+    elif start is not None:
         check_start(start, lineup, market_doc, run["sessions"])
     if keep:
         _check_kept_memory(lineup, run["sessions"])
-    return _run_sessions(lineup, settings, dev_index, progress, start, keep, market_doc)
+    return _run_sessions(lineup, settings, dev_index, progress, start, keep, market_doc,
+                         (event, what) if what is not None else None)
+
+
+def _event_words(saved: SavedLearners, lineup: Lineup, market: dict | None, event: Event) -> str:
+    """The event in words: the market settings that changed, or the entrant and its strategy."""
+    if event.kind == "entry":
+        return f"firm {lineup.n_seats} enters, playing {lineup.names[-1].replace('_', ' ')}"
+    old = saved.header.get("market") or {}
+    changed = [f"market.{k} {old.get(k)!r} -> {v!r}" for k, v in (market or {}).items() if old.get(k) != v]
+    return "the market changes: " + ("; ".join(changed) if changed else "no setting differs")
 
 
 def _check_kept_memory(lineup: Lineup, sessions: int) -> None:
@@ -195,14 +215,25 @@ class _Buffers:
         self.ir_p, self.ir_pi = np.zeros((n, T2, f)), np.zeros((n, T2, f))
         self.cf_p, self.cf_pi = np.zeros((n, T2, f)), np.zeros((n, T2, f))
         self.info = np.zeros((n, 8))
+        self.triggers = np.zeros((n, f, 4), dtype=np.int64)
+        self.punishing_at_end = np.zeros((n, f), dtype=bool)
         self.saved = None
+        self.event = None
+
+    def track(self, event: Event) -> None:
+        """Make room for the prices after an event and the periods until the learners settle again."""
+        n, f = self.lim_p.shape
+        self.event = event
+        self.path = np.full((n, event.bins + 1, f), np.nan)
+        self.settle = np.full(n, np.nan)
 
     def keep(self, lineup: Lineup) -> None:
         """Make room for every session's state at the end of learning."""
         n = self.status.size
         self.saved = {"Q": np.zeros((n, *lineup.q0.shape)), "greedy": np.zeros((n, *lineup.q0.shape[:2]), np.int64),
                       "history": np.zeros(n, np.int64), "z": np.zeros((n, lineup.n_seats), np.int64),
-                      "rng": np.zeros((n, 4), np.uint64), "clock": np.zeros((n, 2), np.int64)}
+                      "rng": np.zeros((n, 4), np.uint64), "clock": np.zeros((n, 2), np.int64),
+                      "triggers": np.zeros((n, lineup.n_seats, 4), np.int64)}
 
     def store(self, j: int, session: SessionState, s: int) -> None:
         """Session ``j``'s state at the end of learning (when kept)."""
@@ -210,6 +241,7 @@ class _Buffers:
             sv = self.saved
             sv["Q"][j], sv["greedy"][j], sv["history"][j] = session.Q, session.greedy, s
             sv["z"][j], sv["rng"][j], sv["clock"][j] = session.z, session.rng, session.clock
+            sv["triggers"][j] = session.triggers
 
     def outputs(self, j: int) -> LimitOutputs:
         """Session ``j``'s rows, as the limit kernels write them."""
@@ -228,12 +260,21 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
     else:
         rng = start.rng[j].copy()
         session = SessionState(start.Q[j].copy(), start.greedy[j].copy(), start.z[j].copy(), rng,
-                               start.clock[j].copy())
+                               start.clock[j].copy(), start.triggers[j].copy())
         s = int(start.history[j])
-    st, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, session, s, settings["convergence"],
-                             settings["max_periods"])
+    if buf.event is None:
+        st, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, session, s, settings["convergence"],
+                                 settings["max_periods"])
+    else:
+        t0 = int(session.clock[0])
+        st, t, s = run_tracked(lineup, session, s, settings["convergence"], settings["max_periods"] + t0,
+                               buf.path[j], buf.event)
+        if st == STATUS_CONVERGED:
+            buf.settle[j] = t - int(session.clock[1]) - t0
+    buf.triggers[j] = session.triggers
     buf.status[j] = st
     buf.periods[j] = t
+    buf.punishing_at_end[j] = lineup.punishing(session.z)
     buf.store(j, session, s)
     x = lineup.system_state(s, session.z)
     if lineup.limit_exact:
@@ -271,13 +312,16 @@ def _each(n: int, workers: int, one, progress: bool | None) -> None:
 
 
 def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool | None,
-                  start: SavedLearners | None = None, keep: bool = False, market: dict | None = None) -> LearningResult:
+                  start: SavedLearners | None = None, keep: bool = False, market: dict | None = None,
+                  event: tuple | None = None) -> LearningResult:
     """Driver: per-session streams, buffers, a thread pool over sessions, a progress bar."""
     n = settings["sessions"]
     states = stream_states(settings["seed"], (settings["cell"],), 0, n)
     buf = _Buffers(n, lineup.n_seats, settings["response_periods"] + 2)
     if keep:
         buf.keep(lineup)
+    if event is not None:
+        buf.track(event[0])
     g0 = lineup.initial_greedy()
     seat = settings["deviator"]
     d_dev = deviator_discount(lineup, seat)
@@ -290,10 +334,12 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
         header = {"market": market, "seats": describe_layout(lineup), "sessions": n, "seed": settings["seed"],
                   "cell": settings["cell"]}
         saved = SavedLearners(**buf.saved, status=buf.status.copy(), header=header)
-    return _assemble(lineup, settings, buf, time.perf_counter() - t0, saved)
+    ev = None if event is None else {"event": event[0], "what": event[1], "path": buf.path, "settle": buf.settle}
+    return _assemble(lineup, settings, buf, time.perf_counter() - t0, saved, ev)
 
 
-def _assemble(lineup: Lineup, settings: dict, buf: _Buffers, elapsed: float, saved=None) -> LearningResult:
+def _assemble(lineup: Lineup, settings: dict, buf: _Buffers, elapsed: float, saved=None,
+              event: dict | None = None) -> LearningResult:
     """The result of a run from its filled buffers: cycles decoded, profit gains, nearness to the benchmarks."""
     lu, info = lineup, buf.info
     lam = info[:, 1].astype(np.int64)
@@ -312,6 +358,7 @@ def _assemble(lineup: Lineup, settings: dict, buf: _Buffers, elapsed: float, sav
         near_collusive=near_c, near_nash=near_n, ir_prices=buf.ir_p, ir_profits=buf.ir_pi, cf_prices=buf.cf_p,
         cf_profits=buf.cf_pi, deviation_action=info[:, 7].astype(np.int64), deviation_gain=info[:, 3],
         deviation_pays=info[:, 4], returned=info[:, 5], return_periods=info[:, 6], elapsed=elapsed, saved=saved,
+        triggers=buf.triggers, punishing_at_end=buf.punishing_at_end, event=event,
     )
 
 
@@ -369,12 +416,13 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
     Returns
     -------
     dict
-        ``status``, ``periods``, ``state`` (the history state), ``Q``, ``greedy``, ``z`` and ``rng`` (the
-        generator state after the last period).
+        ``status``, ``periods``, ``state`` (the history state), ``Q``, ``greedy``, ``z``, ``rng`` (the
+        generator state after the last period) and ``triggers`` (the record of the automata's punishments,
+        :data:`sim.learning.inputs.TRIGGER_FIELDS`).
     """
     rng = stream_states(seed, (cell,), session, session + 1)[0].copy()
     st = lineup.session_state(rng)
     s = K.initial_state(rng, lineup.seats, lineup.stage)
     status, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, st, s, convergence, max_periods)
     return {"status": int(status), "periods": int(t), "state": int(s), "Q": st.Q, "greedy": st.greedy, "z": st.z,
-            "rng": rng}
+            "rng": rng, "triggers": st.triggers}

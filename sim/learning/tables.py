@@ -5,12 +5,13 @@ library use it).
 
 from __future__ import annotations
 
-from pathlib import PurePath
+from pathlib import Path, PurePath
 
 from sim.core.errors import InputError
 from sim.core.parallel import usable_cores
 from sim.core.params import Integer, Real, optional
 from sim.core.tables import refuse_unknown
+from sim.learning.events import EVENT_KEYS, check_event, event_from_table, with_saved_grids
 from sim.learning.lineup import compile_lineup
 from sim.learning.results import LIMIT_PERIODS
 from sim.learning.saved import check_start, load_learners
@@ -51,7 +52,7 @@ LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "near", "limit_p
 IMPULSE_KEYS = ("firm", "action", "periods")
 RUN_KEYS = ("sessions", "seed", "workers", "confidence")
 EXPERIMENT_KEYS = ("name", "kind", "description")
-_READERS = {"market": None, "learning": LEARNING_KEYS, "impulse": IMPULSE_KEYS, "run": RUN_KEYS}
+_READERS = {"market": None, "learning": LEARNING_KEYS, "impulse": IMPULSE_KEYS, "run": RUN_KEYS, "event": EVENT_KEYS}
 
 
 def learner_from_entry(entry: dict, base: dict, key: str, skip=("strategy",), validate: bool = True):
@@ -149,7 +150,9 @@ def learning_from_dict(doc: dict, overrides: dict | None = None) -> dict:
         seat), ``settings`` (keyword arguments of :func:`sim.learning.session.learn`; ``deviator`` counted
         from 0), ``save_to`` (``learning.save_to``: where to save the learners at the end, or None) and ``start``
         (the :class:`sim.learning.saved.SavedLearners` of ``learning.continue_from``, read and checked against
-        the line-up, or None).
+        the line-up, or None), ``event`` (the :class:`sim.learning.events.Event` of an ``[event]`` table, or None)
+        and ``waiting`` (an event whose saved file does not exist yet: it is read when the run starts, once the
+        first run has written it).
 
     Raises
     ------
@@ -220,6 +223,11 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     learner.spec(prefix="learning")
     if "strategies" in doc:
         learner = _lineup_from_entries(doc["strategies"], base, n_firms)
+    event, start = _event(doc, overrides, lt), None
+    if event is not None and Path(lt["continue_from"]).is_file():
+        # after an event the learners keep the saved grids, whatever the changed market's own grid would be
+        start = load_learners(lt["continue_from"], "learning.continue_from")
+        learner = with_saved_grids(learner, start, n_firms, event)
     settings = {
         "convergence": _setting(lt, "learning", "convergence", "convergence", 100_000),
         "max_periods": _setting(lt, "learning", "max_periods", "max_periods", 1_000_000_000),
@@ -237,12 +245,26 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     # the line-up and its memory, checked before any work (the run repeats this, cheaply)
     workers = settings["workers"] or usable_cores()
     lineup = compile_lineup(market, learner, workers=min(workers, settings["sessions"]), random_automata="estimate")
-    save_to, start = _file_name(lt, "save_to"), None
+    save_to = _file_name(lt, "save_to")
     continue_from = _file_name(lt, "continue_from")
-    if continue_from is not None:
+    if continue_from is not None and event is None:
         start = load_learners(continue_from, "learning.continue_from")
         check_start(start, lineup, market.to_dict(), settings["sessions"], "learning.continue_from")
-    return {"market": market, "learner": learner, "settings": settings, "save_to": save_to, "start": start}
+    elif start is not None:
+        check_event(start, lineup, event, settings["sessions"], "learning.continue_from")
+    return {"market": market, "learner": learner, "settings": settings, "save_to": save_to, "start": start,
+            "event": event, "waiting": event is not None and start is None}
+
+
+def _event(doc: dict, overrides: dict, lt: dict):
+    """The ``[event]`` table (None without one); it continues the saved learners of ``learning.continue_from``."""
+    if "event" not in doc:
+        return None
+    event = event_from_table(_table(doc, "event", overrides))
+    if _file_name(lt, "continue_from") is None:
+        raise InputError("learning.continue_from", "an [event] continues saved learners: give the file a first run "
+                                                   "saved them to (learning.save_to)")
+    return event
 
 
 def _file_name(tab: dict, key: str) -> str | None:

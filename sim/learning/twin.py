@@ -280,8 +280,9 @@ def reference_session(lineup, rng_state, convergence, max_periods):
     dict
         ``status`` (0 converged, 1 cap), ``periods``, ``history`` (tuple of the last K profiles, most recent
         first), ``state`` (its index in the kernel's layout), ``z`` (tuple of automaton states), ``Q`` (ndarray
-        in the kernel's layout), ``greedy`` (ndarray of shape (n_learners, S_l)) and ``rng`` (the generator
-        state after the last period, uint64 array of shape (4,)).
+        in the kernel's layout), ``greedy`` (ndarray of shape (n_learners, S_l)), ``rng`` (the generator
+        state after the last period, uint64 array of shape (4,)) and ``triggers`` (the record of the automata's
+        punishments, int64 array of shape (n, 4), as :func:`sim.learning.kernel.run_session` keeps it).
     """
     st = _Setup(lineup)
     rng = ReferenceStream(rng_state)
@@ -290,6 +291,7 @@ def reference_session(lineup, rng_state, convergence, max_periods):
         history.append(tuple(rng.next_below(st.m[i]) for i in range(st.n)))
     Q = {i: st.initial_q(i) for i in range(st.n) if st.learner[i]}
     z = [int(v) for v in lineup.z0]
+    record = {i: {"count": 0, "first": -1, "last": -1, "punishing": 0} for i in st.automata}
     t = 0
     stable = 0
     status = 1
@@ -299,7 +301,8 @@ def reference_session(lineup, rng_state, convergence, max_periods):
         history = [profile, *history[: st.K - 1]]
         changed = _update(st, Q, states, history, profile, rng)
         # automata move after the learners' updates, seats in order
-        z = st.move_automata(z, profile, rng)
+        before, z = z, st.move_automata(z, profile, rng)
+        _record_triggers(st, record, before, z, t)
         t += 1
         stable = 0 if changed else stable + 1
         if stable >= convergence:
@@ -307,7 +310,30 @@ def reference_session(lineup, rng_state, convergence, max_periods):
             break
     q_arr, greedy = _kernel_layout(st, lineup, Q)
     return {"status": status, "periods": t, "history": tuple(history), "state": st.state_index(history, st.K),
-            "z": tuple(z), "Q": q_arr, "greedy": greedy, "rng": np.array(rng.s, dtype=np.uint64)}
+            "z": tuple(z), "Q": q_arr, "greedy": greedy, "rng": np.array(rng.s, dtype=np.uint64),
+            "triggers": _trigger_array(st, record)}
+
+
+def _record_triggers(st, record, before, after, t):
+    """Count, for every automaton, a period played in a non-collusive state as punishing, and a move from a
+    collusive state into a non-collusive one as an entry into punishment in period ``t``."""
+    for i, au in st.automata.items():
+        r = record[i]
+        if au.rows[before[i]][S.COLLUSIVE] == 0:
+            r["punishing"] += 1
+        elif au.rows[after[i]][S.COLLUSIVE] == 0:
+            r["count"] += 1
+            r["first"] = t if r["first"] < 0 else r["first"]
+            r["last"] = t
+
+
+def _trigger_array(st, record):
+    """The record in the kernel's layout (rows of seats; learner rows as :func:`sim.learning.inputs.new_triggers`
+    leaves them)."""
+    out = [[0, -1, -1, 0] for _ in range(st.n)]
+    for i, r in record.items():
+        out[i] = [r["count"], r["first"], r["last"], r["punishing"]]
+    return np.array(out, dtype=np.int64)
 
 
 # ------------------------------------------------------------------------------------------------

@@ -10,6 +10,7 @@ from sim.learning.analysis import LearnResult, LearnSpec, learn_analysis
 from sim.learning.tables import learning_from_dict
 from sim.runner.analyses.common import GENERAL_ASSUMPTIONS, describe_market
 from sim.runner.kinds import CellContext, CellResult, Kind
+from strategies.qlearning import QLearner
 
 
 def _prepare_learn(doc: dict) -> dict:
@@ -18,7 +19,8 @@ def _prepare_learn(doc: dict) -> dict:
         raise InputError("market", "missing: the [market] table describes the market")
     cfg = learning_from_dict(doc)  # the line-up is compiled there: its state space is checked before any work
     cfg["n_firms"] = cfg["market"].spec().n_firms
-    cfg["spec"] = LearnSpec(cfg["market"], cfg["learner"], cfg["settings"], cfg["start"])
+    cfg["spec"] = LearnSpec(cfg["market"], cfg["learner"], cfg["settings"], cfg["start"], cfg["event"])
+    cfg["doc"] = doc
     return cfg
 
 
@@ -61,10 +63,68 @@ def _learn_names(cfg: dict) -> list[str]:
         f = f"firm{i + 1}"
         out += [f"analytic.nash_price.{f}", f"analytic.collusive_price.{f}", f"analytic.nash_profit.{f}",
                 f"analytic.collusive_profit.{f}"]
+    for i in _automaton_seats(cfg["learner"]):
+        out += trigger_names(i + 1)
+    if cfg.get("event") is not None:
+        out += event_names(n)
     return out
 
 
+def event_names(n_firms: int) -> list[str]:
+    """The columns of an event's account (after every other column of a learn cell).
+
+    Parameters
+    ----------
+    n_firms : int
+        Firms after the event.
+
+    Returns
+    -------
+    list of str
+    """
+    out = ["settled_again", "settled_again.low", "settled_again.high", "periods_to_settle", "periods_to_settle.low",
+           "periods_to_settle.high", "periods_to_settle.q50"]
+    for i in range(n_firms):
+        f = f"firm{i + 1}"
+        out += [f"event_price_before.{f}", f"event_price_change.{f}", f"event_price_change.{f}.low",
+                f"event_price_change.{f}.high"]
+    return out
+
+
+def _automaton_seats(learner) -> list[int]:
+    """The seats (from 0) an automaton holds in a line-up (none when every seat holds a learner)."""
+    if not isinstance(learner, list):
+        return []
+    return [i for i, s in enumerate(learner) if not isinstance(s, QLearner)]
+
+
+def trigger_names(firm: int) -> list[str]:
+    """The columns of an automaton's punishments during learning (after every other column of a learn cell).
+
+    Parameters
+    ----------
+    firm : int
+        The automaton's firm, from 1.
+
+    Returns
+    -------
+    list of str
+    """
+    f = f"firm{firm}"
+    return [f"triggered.{f}", f"triggered.{f}.low", f"triggered.{f}.high", f"triggers.{f}", f"triggers.{f}.low",
+            f"triggers.{f}.high", f"first_trigger.{f}", f"last_trigger.{f}", f"punishment_share.{f}",
+            f"punishment_share.{f}.low", f"punishment_share.{f}.high", f"exploration_at_first_trigger.{f}",
+            f"exploration_at_last_trigger.{f}", f"punishing_at_end.{f}"]
+
+
 def _run_learn(cfg: dict, ctx: CellContext) -> CellResult:
+    if cfg.get("waiting"):
+        # an event's saved learners, written by a first run after this file was checked: read them now
+        cfg = _prepare_learn(cfg["doc"])
+        if cfg["waiting"]:
+            path = cfg["doc"]["learning"]["continue_from"]
+            raise InputError("learning.continue_from", f"no such file: {path} (run the first step, which saves the "
+                                                       "learners, before the event)")
     res = learn_analysis(cfg["spec"], cell=ctx.index, workers=ctx.threads, progress=ctx.progress,
                          save_to=saved_path(cfg.get("save_to"), ctx))
     return CellResult(learn_metrics(res), learn_arrays(res), result=res)
@@ -117,6 +177,30 @@ def learn_metrics(res: LearnResult) -> dict:
         m[f"analytic.collusive_price.{f}"] = bm["collusive_prices"][i]
         m[f"analytic.nash_profit.{f}"] = bm["nash_profits"][i]
         m[f"analytic.collusive_profit.{f}"] = bm["collusive_profits"][i]
+    for a in res.automata:
+        f = f"firm{a['firm']}"
+        for stem in ("triggered", "triggers", "punishment_share"):
+            est = a[stem]
+            m[f"{stem}.{f}"] = est["share"] if "share" in est else est["mean"]
+            m[f"{stem}.{f}.low"], m[f"{stem}.{f}.high"] = est["low"], est["high"]
+        m[f"first_trigger.{f}"] = a["first_trigger"]["median"]
+        m[f"last_trigger.{f}"] = a["last_trigger"]["median"]
+        m[f"exploration_at_first_trigger.{f}"] = a["exploration_first"]["median"]
+        m[f"exploration_at_last_trigger.{f}"] = a["exploration_last"]["median"]
+        m[f"punishing_at_end.{f}"] = a["punishing_at_end"]["share"]
+    if res.event:
+        ev = res.event
+        for k, src in (("", "share"), (".low", "low"), (".high", "high")):
+            m[f"settled_again{k}"] = ev["settled"][src]
+        sp = ev["settle_periods"]
+        for k, src in (("", "mean"), (".low", "low"), (".high", "high"), (".q50", "q50")):
+            m[f"periods_to_settle{k}"] = sp[src]
+        for i in range(n):
+            f = f"firm{i + 1}"
+            ch = ev["change"][i]
+            m[f"event_price_before.{f}"] = ev["before"][i]["mean"]
+            for k, src in (("", "mean"), (".low", "low"), (".high", "high")):
+                m[f"event_price_change.{f}{k}"] = ch[src]
     return m
 
 
@@ -154,7 +238,7 @@ def _describe_learn(doc: dict) -> list[str]:
 
 KIND = Kind(
     name="learn",
-    tables=("market", "learning", "impulse", "run", "strategies"),
+    tables=("market", "learning", "impulse", "run", "strategies", "event"),
     prepare=_prepare_learn,
     run=_run_learn,
     metric_names=_learn_names,

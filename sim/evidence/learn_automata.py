@@ -1,0 +1,112 @@
+"""Why a learner facing automata ended where it did, in plain words: the part of the learn report that reads the
+record of the automata's punishments during learning (:func:`sim.learning.triggers.trigger_summary`)."""
+
+from __future__ import annotations
+
+import math
+
+from sim.core.text import fmt_num
+
+__all__ = ["automaton_lines", "explain"]
+
+
+def _pct(x) -> str:
+    if x is None or x != x:
+        return "-"
+    return f"{100 * x:.1f} %"
+
+
+def _times(x) -> str:
+    """A mean number of triggers per session in words."""
+    if x is None or x != x:
+        return "-"
+    if abs(x - 1.0) < 5e-3:
+        return "once"
+    return f"{x:,.0f} times" if x >= 10 else f"{x:.2g} times"
+
+
+def _period(x) -> str:
+    return "-" if x is None or x != x else f"{x:,.0f}"
+
+
+def _outcome(summary: dict, act: str) -> str:
+    """Where the learners ended, read off the limit outcomes."""
+    pg = summary["profit_gain"]["mean"]
+    gain = f"profit gain {fmt_num(pg)}" if pg is not None and not math.isnan(pg) else "profit gain -"
+    if (summary["near_nash"]["share"] or 0) >= 0.5:
+        return f"to {act} at the static Nash level ({gain})"
+    if (summary["near_collusive"]["share"] or 0) >= 0.5:
+        return f"to keep to the joint-profit {act} ({gain})"
+    return f"to {act} between the static Nash and the joint-profit levels ({gain})"
+
+
+def explain(a: dict, summary: dict, act: str = "price") -> str:
+    """One automaton's punishments during learning and what they taught the learners, in one paragraph.
+
+    Parameters
+    ----------
+    a : dict
+        The automaton's entry of :func:`sim.learning.triggers.trigger_summary`.
+    summary : dict
+        The run's summary (:meth:`sim.learning.results.LearningResult.summary`): its profit gain and nearness to
+        the benchmarks say where the learners ended.
+    act : str
+        ``"price"`` or ``"quantity"``.
+
+    Returns
+    -------
+    str
+    """
+    words = a["strategy"].replace("_", " ")
+    name = f"{words[:1].upper()}{words[1:]} (firm {a['firm']})"
+    end = _outcome(summary, act)
+    if not a["triggered"]["count"]:
+        if (a["punishment_share"]["mean"] or 0) > 0.5:
+            return (f"{name} has no collusive state to leave: it competed throughout, so the learners learned "
+                    f"{end}.")
+        return (f"{name} was never triggered during learning: it played its collusive {act} throughout, so the "
+                f"learners learned {end}.")
+    first, last = a["first_trigger"], a["last_trigger"]
+    text = (f"{name} was triggered in {_pct(a['triggered']['share'])} of sessions, first in period "
+            f"{_period(first['median'])} (median over sessions), while the learners still explored "
+            f"{_pct(a['exploration_first']['median'])} of the time; ")
+    if a["triggers"]["mean"] == 1.0:
+        text += "it was triggered once per session, "
+    else:
+        text += (f"it was triggered {_times(a['triggers']['mean'])} per session on average, the last time in period "
+                 f"{_period(last['median'])} (exploring {_pct(a['exploration_last']['median'])} of the time), ")
+    text += f"and it punished for {_pct(a['punishment_share']['mean'])} of the session."
+    stuck = a["punishing_at_end"]["share"]
+    if stuck >= 0.5:
+        return (text + f" In {_pct(stuck)} of sessions it was still punishing when learning ended, so the learners "
+                       f"learned their best reply to its punishment: {end}.")
+    return (text + f" Its punishments ended (in {_pct(1 - stuck)} of sessions it was back in its collusive state "
+                   f"when learning ended), so the learners could learn what the agreement earns: {end}.")
+
+
+def automaton_lines(res) -> list[str]:
+    """The report's lines on the automata's punishments during learning (none when only learners play).
+
+    Parameters
+    ----------
+    res : sim.learning.analysis.LearnResult
+
+    Returns
+    -------
+    list of str
+    """
+    if not res.automata:
+        return []
+    act = "quantity" if res.quantity_setting else "price"
+    lvl = f"{100 * res.confidence:g} %"
+    lines = ["", f"Automata during learning ({res.summary['over']}; {lvl} confidence intervals across sessions)"]
+    for a in res.automata:
+        ps, tr = a["punishment_share"], a["triggers"]
+        lines.append(f"  firm {a['firm']} ({a['strategy'].replace('_', ' ')}): triggered in "
+                     f"{_pct(a['triggered']['share'])} of sessions, {_times(tr['mean'])} per session "
+                     f"[{tr['low']:,.5g}, {tr['high']:,.5g}]; share of the session punishing {_pct(ps['mean'])} "
+                     f"[{_pct(ps['low'])}, {_pct(ps['high'])}]; still punishing at the end in "
+                     f"{_pct(a['punishing_at_end']['share'])} of sessions")
+    lines.append("Why the sessions ended where they did (periods count from the start of the session):")
+    lines += [f"  {explain(a, res.summary, act)}" for a in res.automata]
+    return lines

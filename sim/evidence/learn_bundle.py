@@ -1,0 +1,148 @@
+"""A learn run in its evidence bundle: the account of a run folder of learning sessions, read from the results its
+cells store.
+
+Without a sweep: the setup, the figures of ``supergame learn --plot`` (byte for byte: the same renderer draws them
+from the same stored result) and the terminal report. With a sweep: the setup, the swept values, a table of every
+cell's limit outcomes, one figure that sets the cells side by side -- every session's profit gain and firm 1's
+mean limit price per cell, with the mean and its interval -- and every cell's own figures, named after the cell.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
+from sim.evidence.learn import console, figures
+from sim.evidence.render import pyplot
+from sim.runner.analyses.learn import KIND as LEARN
+from sim.runner.experiment import leading_comment
+
+__all__ = ["bundle", "comparison_figure"]
+
+
+def _num(x) -> float:
+    return np.nan if x is None else float(x)
+
+
+def _setup(b, exp) -> None:
+    desc = exp.description or leading_comment(exp.text or "")
+    if desc:
+        b.heading("What the experiment asks")
+        for para in desc.split("\n\n"):
+            b.paragraph(" ".join(para.split()))
+    b.heading("Setup")
+    b.bullets(LEARN.describe(exp.doc))
+
+
+def bundle(run, b) -> list | None:
+    """The learn kind's account of a finished run folder in its evidence bundle (see the module notes).
+
+    Parameters
+    ----------
+    run : sim.runner.folder.RunFolder
+    b : sim.evidence.bundle.Bundle
+
+    Returns
+    -------
+    None
+        Nothing is added to "Reproducing these numbers".
+    """
+    exp = run.experiment
+    ok = [r for r in run.rows() if r.status == "ok"]
+    _setup(b, exp)
+    if exp.parameters:
+        b.paragraph("These are the file's settings; the values of " + ", ".join(f"`{p.path}`" for p in exp.parameters)
+                    + " are those of the sweep below.", note=True)
+        b.heading("Sweep")
+        b.table("sweep", ["parameter", "values", "number"],
+                [[p.path, ", ".join(p.labels), len(p)] for p in exp.parameters], caption="Swept parameters")
+    b.heading("Results")
+    if not ok:
+        b.paragraph("No cell finished: no results to report (see the failed cells below).", note=True)
+        return None
+    if not exp.parameters:
+        res = run.result(ok[0].cell)
+        for d in figures(res):
+            b.figure(d.name, d.figure, d.caption)
+        b.code(console(res))
+        return None
+    _sweep_account(run, b, exp, ok)
+    return None
+
+
+def _cell_label(r, exp) -> str:
+    return ", ".join(f"{p.path} = {r.labels[p.path]}" for p in exp.parameters)
+
+
+def _sweep_account(run, b, exp, ok) -> None:
+    """Every cell's outcome in a table, the cells side by side, and each cell's own figures."""
+    results = {r.cell: run.result(r.cell) for r in ok}
+    rows = []
+    for r in ok:
+        sm = results[r.cell].summary
+        pg, lp = sm["profit_gain"], sm["limit_prices"][0]
+        rows.append([r.number, *[r.labels[p.path] for p in exp.parameters], pg["mean"], _num(pg["low"]),
+                     _num(pg["high"]), lp["mean"], sm["near_nash"]["share"], sm["near_collusive"]["share"],
+                     sm["converged"]["share"]])
+    lvl = f"{100 * results[ok[0].cell].confidence:g} %"
+    b.table("cells", ["cell", *[p.path for p in exp.parameters], "profit gain", f"{lvl} low", f"{lvl} high",
+                      "limit price, firm 1", "share near static Nash", "share near joint profit",
+                      "share converged"], rows, caption="Limit outcomes of every finished cell",
+            note=f"means over each cell's converged sessions; {lvl} confidence intervals across sessions "
+                 "(simulation error only)")
+    labels = [_cell_label(r, exp) for r in ok]
+    b.figure("cells-side-by-side", comparison_figure([results[r.cell] for r in ok], labels),
+             f"Every session's profit gain (left) and firm 1's mean limit price (right), one column per cell; bar: "
+             f"the mean and its {lvl} confidence interval across sessions; dotted: static Nash, dashed: joint "
+             "profit.")
+    for r, label in zip(ok, labels):
+        for d in figures(results[r.cell]):
+            b.figure(f"cell{r.number}-{d.name}", d.figure, f"Cell {r.number} ({label}). {d.caption}")
+
+
+def comparison_figure(results: list, labels: list):
+    """Every session's profit gain and firm 1's mean limit price, one column per result.
+
+    Parameters
+    ----------
+    results : list of sim.learning.analysis.LearnResult
+    labels : list of str
+        One per result.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    plt = pyplot()
+    fig, axes = plt.subplots(1, 2, figsize=(PAGE_WIDTH, 3.4), layout="constrained")
+    rng = np.random.default_rng(0)  # a fixed horizontal spread of the points, the same figure every time
+    act = "quantity" if results[0].quantity_setting else "price"
+    for k, res in enumerate(results):
+        sel = res.selected
+        gains = np.array([_num(x) for x in res.per_session["profit_gain"]])[sel]
+        prices = np.array([row[0] for row in res.per_session["limit_prices"]], dtype=float)[sel]
+        sm = res.summary
+        for ax, vals, est in ((axes[0], gains, sm["profit_gain"]), (axes[1], prices, sm["limit_prices"][0])):
+            x = k + rng.uniform(-0.18, 0.18, vals.size)
+            ax.plot(x, vals, "o", ms=2.5, color=color(k), alpha=0.5, mec="none")
+            mean, lo, hi = _num(est["mean"]), _num(est["low"]), _num(est["high"])
+            ax.errorbar([k + 0.3], [mean], yerr=[[mean - lo if np.isfinite(lo) else 0.0],
+                                                  [hi - mean if np.isfinite(hi) else 0.0]],
+                        fmt="s", color="black", ms=4, capsize=3)
+    bm = results[0].summary["benchmarks"]
+    which = "actions" if act == "quantity" else "prices"
+    axes[0].axhline(0.0, color="grey", ls=":", lw=1)
+    axes[0].axhline(1.0, color="grey", ls="--", lw=1)
+    axes[1].axhline(float(bm[f"nash_{which}"][0]), color="grey", ls=":", lw=1)
+    axes[1].axhline(float(bm[f"collusive_{which}"][0]), color="grey", ls="--", lw=1)
+    short = [lab.split(" = ", 1)[-1] if len(results) and lab.count(" = ") == 1 else f"cell {k + 1}"
+             for k, lab in enumerate(labels)]
+    for ax, title in ((axes[0], "profit gain"), (axes[1], f"firm 1 mean limit {act}")):
+        ax.set_xticks(range(len(results)), short, fontsize=SMALL)
+        ax.set_xlim(-0.6, len(results) - 0.4)
+        ax.set_title(title, fontsize=FONT)
+        ax.tick_params(labelsize=SMALL)
+        ax.grid(axis="y", alpha=0.3)
+    if all(lab.count(" = ") == 1 for lab in labels):
+        fig.supxlabel(labels[0].split(" = ", 1)[0], fontsize=SMALL)
+    return fig

@@ -1,0 +1,126 @@
+"""Saved learners continued after an event, shown: the part of the learn report and the figure that read how prices
+moved after the event and how long the learners took to settle again (:func:`sim.learning.events.event_summary`)."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from sim.core.text import fmt_num, table
+from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
+from sim.evidence.render import Drawn, pyplot
+
+__all__ = ["event_figure", "event_lines"]
+
+
+def _num(x) -> float:
+    return math.nan if x is None else float(x)
+
+
+def _ci(d: dict) -> str:
+    lo, hi = _num(d.get("low")), _num(d.get("high"))
+    if math.isnan(lo) or math.isnan(hi):
+        return "-"
+    return f"[{fmt_num(lo)}, {fmt_num(hi)}]"
+
+
+def _rows_shown(bins: list) -> list[int]:
+    """The rows of the path the report prints: before the event, then roughly logarithmic steps to the end."""
+    last = len(bins) - 1
+    rows = sorted({0, *[r for r in (1, 2, 5, 10, 20, 50) if r < last], last})
+    return rows
+
+
+def event_lines(res) -> list[str]:
+    """The report's lines on the event (none when the sessions did not continue after one).
+
+    Parameters
+    ----------
+    res : sim.learning.analysis.LearnResult
+
+    Returns
+    -------
+    list of str
+    """
+    ev = res.event
+    if not ev:
+        return []
+    lvl = f"{100 * res.confidence:g} %"
+    act = "quantity" if res.quantity_setting else "price"
+    firms = [f"firm {i + 1}" for i in range(res.n_firms)]
+    lines = ["", f"After the event ({ev['what']}): the saved sessions continued, the convergence counter reset",
+             f"  {act}s played after the event, means over sessions ({lvl} confidence intervals); each row averages "
+             f"the periods since the row above"]
+    mean, low, high = (np.array(ev["prices"][k], dtype=float) for k in ("mean", "low", "high"))
+    rows = []
+    for r in _rows_shown(ev["bin_periods"]):
+        label = "before" if r == 0 else f"to +{ev['bin_periods'][r]:,}"
+        cells = []
+        for i in range(res.n_firms):
+            m = mean[r, i]
+            cells.append("-" if math.isnan(m) else
+                         f"{fmt_num(m)} [{fmt_num(low[r, i])}, {fmt_num(high[r, i])}]" if not math.isnan(low[r, i])
+                         else fmt_num(m))
+        rows.append([label, *cells])
+    rows.append(["limit after", *[f"{fmt_num(d['mean'])} {_ci(d)}" for d in res.summary["limit_prices"]]])
+    lines.append(table(["period", *firms], rows))
+    st, sp = ev["settled"], ev["settle_periods"]
+    lines.append(f"  settled again (no greedy strategy changed for {res.settings['convergence']:,} periods) in "
+                 f"{st['count']} of {st['n']} sessions ({100 * st['share']:.1f} %, {lvl} CI "
+                 f"{100 * st['low']:.1f} to {100 * st['high']:.1f} %)")
+    if sp["n"]:
+        lines.append(f"  periods from the event to the last change of a greedy strategy: mean {sp['mean']:,.0f} "
+                     f"[{_num(sp['low']):,.0f}, {_num(sp['high']):,.0f}], median {sp['q50']:,.0f}, 5-95 % "
+                     f"{sp['q05']:,.0f} to {sp['q95']:,.0f}")
+    changes = [f"{firms[i]} {fmt_num(d['mean'])} {_ci(d)}" for i, d in enumerate(ev["change"]) if d["n"]]
+    if changes:
+        lines.append(f"  change of the limit {act} from the last period before the event (settled sessions): "
+                     + "; ".join(changes))
+    return lines
+
+
+def event_figure(res):
+    """The prices after the event, with their bands, and the benchmarks of the market after it.
+
+    Parameters
+    ----------
+    res : sim.learning.analysis.LearnResult
+
+    Returns
+    -------
+    Drawn or None
+        ``prices_after_event``; None when the sessions did not continue after an event.
+    """
+    ev = res.event
+    if not ev:
+        return None
+    plt = pyplot()
+    act = "quantity" if res.quantity_setting else "price"
+    x = np.array(ev["bin_periods"], dtype=float)
+    mean, low, high = (np.array(ev["prices"][k], dtype=float) for k in ("mean", "low", "high"))
+    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 3.6), layout="constrained")
+    for i in range(res.n_firms):
+        ok = np.isfinite(mean[:, i])
+        ax.plot(x[ok], mean[ok, i], color=color(i), lw=1.5, marker="o" if ok.sum() < 30 else None, ms=3,
+                label=f"firm {i + 1}")
+        band = ok & np.isfinite(low[:, i]) & np.isfinite(high[:, i])
+        if band.any():
+            ax.fill_between(x[band], low[band, i], high[band, i], color=color(i), alpha=0.2, lw=0)
+    bm = res.summary["benchmarks"]
+    which = "actions" if act == "quantity" else "prices"
+    ax.axhline(float(np.mean(bm[f"nash_{which}"])), color="grey", ls=":", lw=1, label=f"static Nash {act} after")
+    ax.axhline(float(np.mean(bm[f"collusive_{which}"])), color="grey", ls="--", lw=1,
+               label=f"joint-profit {act} after")
+    ax.axvline(0.0, color="black", lw=0.6)
+    ax.set_xlabel("periods after the event (0: the last period before it)", fontsize=FONT)
+    ax.set_ylabel(act, fontsize=FONT)
+    ax.tick_params(labelsize=SMALL)
+    ax.grid(alpha=0.3)
+    fig.legend(fontsize=SMALL, loc="outside right upper")
+    level = f"{100 * res.confidence:g} %"
+    return Drawn("prices_after_event", fig,
+                 f"Mean {act}s over sessions after the event ({ev['what']}); each point averages the periods since "
+                 f"the previous one, the point at 0 is the last period before the event; bands: {level} confidence "
+                 f"intervals across sessions; dotted and dashed: the static-Nash and joint-profit {act}s of the "
+                 "market after the event (means over firms).")

@@ -1,0 +1,358 @@
+"""Learners that keep running after their market changes: saved sessions continued after an event.
+
+A run of learning sessions is saved (``[learning] save_to``) once the learners have converged; a second run continues
+every saved session (``[learning] continue_from``) after an *event*, given in its ``[event]`` table:
+
+``kind = "market"``
+    a cost or demand shock: the second run's ``[market]`` differs from the saved one (same firms); the learners keep
+    their grids, Q-values, history and random stream, and go on learning in the changed market;
+``kind = "entry"``
+    a new firm playing an automaton enters: the second run's market has one more firm, and its line-up is the saved
+    one with the entrant's strategy as the last ``[[strategies]]`` entry. The learners' states now include the
+    entrant's last price; each learner starts from what it knew, whatever the entrant's price (the Q-values of every
+    new state are those of the saved state it extends), and the entrant starts in its initial state, its last price
+    taken to be the one it plays there.
+
+Either way the convergence counter is reset at the event (a session counts as settled again once no greedy strategy
+has changed for ``convergence`` periods after it), ``max_periods`` counts the periods after the event, and the
+learners' exploration goes on from where it was (``exp(-beta t)``, ``t`` counted from the start of the saved
+session). The path of prices played in the ``periods`` periods after the event is recorded in bins (means over
+equal spans of periods; the bin before the event holds the prices of the last period before it), and the periods
+from the event until the last change of a greedy strategy measure how long the learners took to settle again.
+Calvano, Calzolari, Denicolo and Pastorello (2020, AER) study learned responses to a forced one-period deviation;
+Asker, Fershtman and Pakes (2022, AEA Papers and Proceedings 112) stress that learned prices depend on how the
+algorithms keep learning: here the learners keep learning through a lasting change.
+"""
+
+from __future__ import annotations
+
+import copy
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+import strategies.step as SS
+from sim.core.errors import InputError
+from sim.core.params import Integer
+from sim.core.tables import refuse_unknown
+from sim.learning import kernel as K
+from sim.learning.inputs import STATUS_CAP, STATUS_CONVERGED, new_triggers
+from sim.learning.saved import SavedLearners, describe_layout
+from sim.simulation.results import mean_estimate, wilson_estimate
+from strategies.qlearning import QLearner
+
+__all__ = ["EVENT_KEYS", "EVENT_KINDS", "Event", "adapt_saved", "event_from_table", "event_summary", "run_tracked",
+           "with_saved_grids"]
+
+#: keys of the [event] table
+EVENT_KEYS = ("kind", "periods")
+#: what may happen: a changed market (cost or demand shock), or the entry of a firm playing an automaton
+EVENT_KINDS = ("market", "entry")
+#: the price path after an event is kept in at most this many bins
+TRACK_BINS = 100
+
+
+@dataclass(frozen=True)
+class Event:
+    """A validated ``[event]`` table.
+
+    Attributes
+    ----------
+    kind : str
+        ``"market"`` or ``"entry"``.
+    periods : int
+        Periods after the event whose prices are recorded (a multiple of the number of bins).
+    bins : int
+        Bins of the recorded price path.
+    """
+
+    kind: str
+    periods: int
+    bins: int
+
+
+def event_from_table(tab) -> Event:
+    """Read the ``[event]`` table.
+
+    Parameters
+    ----------
+    tab : dict
+        ``kind`` (required: ``"market"`` or ``"entry"``) and ``periods`` (default 1000, 1 to 10**7).
+
+    Returns
+    -------
+    Event
+        ``periods`` rounded down to a multiple of the bins (at most :data:`TRACK_BINS`).
+
+    Raises
+    ------
+    InputError
+        Naming ``event.kind`` or ``event.periods``.
+    """
+    tab = refuse_unknown(tab, "event", EVENT_KEYS)
+    kind = tab.get("kind")
+    if kind not in EVENT_KINDS:
+        raise InputError("event.kind", f"must be one of {', '.join(repr(k) for k in EVENT_KINDS)}, got {kind!r}")
+    periods = Integer(1, 10_000_000).check("event.periods", tab.get("periods", 1000))
+    bins = min(TRACK_BINS, periods)
+    return Event(kind, periods // bins * bins, bins)
+
+
+def with_saved_grids(learner, saved: SavedLearners, n_firms: int, event: Event) -> list:
+    """The line-up of the run after the event, its learners on the saved grids.
+
+    Parameters
+    ----------
+    learner : QLearner or list
+        The run's learner for every seat, or one strategy per seat.
+    saved : SavedLearners
+    n_firms : int
+        Firms of the market after the event.
+    event : Event
+
+    Returns
+    -------
+    list
+        One strategy per seat; a learner given without its own grid takes the saved seat's grid (the grids do not
+        move with the market: the learners keep their prices).
+
+    Raises
+    ------
+    InputError
+        ``market.n_firms`` when the firms do not fit the event, ``strategies`` when the entrant is missing or is a
+        learner.
+    """
+    seats = saved.header.get("seats") or []
+    want = len(seats) + (event.kind == "entry")
+    if n_firms != want:
+        what = "one more firm than the saved run (the entrant)" if event.kind == "entry" else "the saved run's firms"
+        raise InputError("market.n_firms", f"an event of kind {event.kind!r} needs {what}: {want} firms, got {n_firms}")
+    if isinstance(learner, list):
+        lineup = [copy.deepcopy(x) for x in learner]
+    else:
+        lineup = [copy.deepcopy(learner) for _ in range(n_firms)]
+    if event.kind == "entry" and isinstance(lineup[-1], QLearner):
+        raise InputError("strategies", "an entry event needs the entrant, an automaton, as the last [[strategies]] "
+                                       "entry")
+    for i, seat in enumerate(seats):
+        if isinstance(lineup[i], QLearner) and lineup[i].grid is None and seat.get("strategy") == "qlearning":
+            lineup[i].grid = list(seat["grid"])
+    return lineup
+
+
+def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: str = "learning.continue_from") -> None:
+    """Refuse saved sessions that cannot go on after the event: other seats, grids or memories, or another number of
+    sessions.
+
+    Parameters
+    ----------
+    saved : SavedLearners
+    lineup : sim.learning.lineup.Lineup
+        The line-up after the event.
+    event : Event
+    sessions : int
+        Sessions of the run.
+    key : str
+        Key path of the saved file, for error messages.
+
+    Raises
+    ------
+    InputError
+        Naming ``key``.
+    """
+    old, new = saved.header.get("seats") or [], describe_layout(lineup)
+    for i, (a, b) in enumerate(zip(old, new)):
+        firm = f"firm {i + 1}"
+        if a.get("strategy") != b["strategy"]:
+            raise InputError(key, f"{firm} was {a.get('strategy')!r} in the saved run, {b['strategy']!r} here")
+        if b["strategy"] == "qlearning":
+            ga, gb = np.asarray(a.get("grid", []), dtype=float), np.asarray(b["grid"], dtype=float)
+            if ga.shape != gb.shape or not np.array_equal(ga, gb):
+                raise InputError(key, f"{firm}'s grid differs from the saved one; after an event the learners keep "
+                                      "their grids (leave learning.grid out to use the saved one)")
+            if a.get("k") != b["k"]:
+                raise InputError(key, f"{firm}'s memory k is {b['k']} here, {a.get('k')} in the saved run")
+    if saved.n_sessions != sessions:
+        raise InputError(key, f"holds {saved.n_sessions} saved sessions; the run has {sessions} (run.sessions must "
+                              "match: each session continues one saved session)")
+    if event.kind == "market" and saved.Q.shape[1:] != lineup.q0.shape:
+        raise InputError(key, f"its Q-values have shape {saved.Q.shape[1:]} per session, this line-up "
+                              f"{lineup.q0.shape}")
+
+
+def _entrant_action(lineup) -> int:
+    """The action index the entrant (the last seat) plays in its initial state."""
+    au, i = lineup.automata, lineup.n_seats - 1
+    z0 = int(lineup.z0[i])
+    return int(au.act_of_level[i, au.states[i, z0, SS.ACTION]])
+
+
+def _old_state(s_new: np.ndarray, k: int, m_new: int, m_old: int) -> np.ndarray:
+    """The state before the entry that a state after it extends: each lag's profile without the entrant's action
+    (the entrant is the last seat, so its action is the highest digit of a profile)."""
+    out = np.zeros_like(s_new)
+    for lag in range(k):
+        prof = (s_new // m_new**lag) % m_new
+        out += (prof % m_old) * m_old**lag
+    return out
+
+
+def adapt_saved(saved: SavedLearners, lineup, event: Event) -> SavedLearners:
+    """The saved sessions as the run after the event starts them: the convergence counter reset and, after an entry,
+    the learners' states extended by the entrant's price.
+
+    Parameters
+    ----------
+    saved : SavedLearners
+    lineup : sim.learning.lineup.Lineup
+        The line-up after the event.
+    event : Event
+
+    Returns
+    -------
+    SavedLearners
+        A new object; ``saved`` is left unchanged.
+    """
+    clock = saved.clock.copy()
+    clock[:, 1] = 0
+    if event.kind == "market":
+        return SavedLearners(saved.Q.copy(), saved.greedy.copy(), saved.history.copy(), saved.z.copy(),
+                             saved.rng.copy(), clock, saved.status.copy(), saved.triggers.copy(), dict(saved.header))
+    n = saved.n_sessions
+    m_new = int(lineup.stage.M)
+    m_old = m_new // int(lineup.seats.radix[-1])
+    q = np.repeat(lineup.q0[None], n, axis=0)
+    greedy = np.zeros((n, *lineup.q0.shape[:2]), dtype=np.int64)
+    for i in lineup.learner_seats:
+        li, k, m = int(lineup.seats.lidx[i]), lineup.learners[i].k, int(lineup.seats.radix[i])
+        s_new = np.arange(m_new**k)
+        s_old = _old_state(s_new, k, m_new, m_old)
+        q[:, li, : s_new.size, :m] = saved.Q[:, li, s_old, :m]
+        greedy[:, li, : s_new.size] = saved.greedy[:, li, s_old]
+    big_k = int(lineup.stage.K)
+    a_e = _entrant_action(lineup)
+    history = np.zeros(n, dtype=np.int64)
+    for lag in range(big_k):
+        prof = (saved.history // m_old**lag) % m_old
+        history += (prof + a_e * m_old) * m_new**lag
+    z = np.concatenate([saved.z, np.full((n, 1), int(lineup.z0[-1]), dtype=np.int64)], axis=1)
+    triggers = np.concatenate([saved.triggers, np.repeat(new_triggers(1)[None], n, axis=0)], axis=1)
+    return SavedLearners(q, greedy, history, z, saved.rng.copy(), clock, saved.status.copy(), triggers,
+                         dict(saved.header))
+
+
+def run_tracked(lineup, session, s: int, convergence: int, cap: int, path: np.ndarray,
+                event: Event) -> tuple[int, int, int]:
+    """Continue one session after the event, recording the prices of its first ``event.periods`` periods.
+
+    Parameters
+    ----------
+    lineup : sim.learning.lineup.Lineup
+    session : sim.learning.inputs.SessionState
+        At the event (modified in place, as by :func:`sim.learning.kernel.run_session`).
+    s : int
+        History state at the event.
+    convergence : int
+    cap : int
+        Periods played in all (from the saved session's start) after which the session stops.
+    path : ndarray of shape (event.bins + 1, n_seats)
+        Receives the prices of the last period before the event (row 0; nan for an entrant) and the mean prices of
+        each bin of periods after it; a session that settles, or reaches the cap, before the end keeps its last
+        prices in the bins that follow.
+    event : Event
+
+    Returns
+    -------
+    status : int
+    periods : int
+        Periods played in all.
+    s : int
+        History state at the end.
+    """
+    stage = lineup.stage
+    m = int(stage.M)
+    path[0] = stage.prices[s % m]
+    if event.kind == "entry":
+        path[0, -1] = np.nan
+    per = event.periods // event.bins
+    status, t = STATUS_CAP, int(session.clock[0])
+    last = path[0].copy()
+    for b in range(event.bins):
+        acc = np.zeros(lineup.n_seats)
+        for _ in range(per):
+            if status == STATUS_CONVERGED or t >= cap:
+                acc += last
+                continue
+            status, t, s = K.run_session(lineup.seats, stage, lineup.automata, session, s, convergence, t + 1)
+            if status == STATUS_CAP and t < cap:
+                status = -1  # one period played, not settled: go on
+            last = stage.prices[s % m]
+            acc += last
+        path[b + 1] = acc / per
+    if status != STATUS_CONVERGED and t < cap:
+        status, t, s = K.run_session(lineup.seats, stage, lineup.automata, session, s, convergence, cap)
+    return (STATUS_CONVERGED if status == STATUS_CONVERGED else STATUS_CAP), t, s
+
+
+def _mean(x, level: float) -> dict:
+    x = np.asarray(x, dtype=float)
+    x = x[np.isfinite(x)]
+    if x.size == 0:
+        return {"mean": math.nan, "se": math.nan, "low": math.nan, "high": math.nan, "n": 0}
+    e = mean_estimate(x, level)
+    return {"mean": e.value, "se": e.se, "low": e.low, "high": e.high, "n": int(x.size)}
+
+
+def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged: np.ndarray,
+                  limit_prices: np.ndarray, what: str, level: float = 0.95) -> dict:
+    """How prices moved after the event and how long the learners took to settle again, across sessions.
+
+    Parameters
+    ----------
+    event : Event
+    path : ndarray of shape (n_sessions, bins + 1, n_firms)
+        Every session's recorded prices (:func:`run_tracked`).
+    settle : ndarray of shape (n_sessions,)
+        Periods from the event to the last change of a greedy strategy (nan when the session did not settle).
+    converged : ndarray of bool, shape (n_sessions,)
+        Whether each session settled again (converged) before the cap.
+    limit_prices : ndarray of shape (n_sessions, n_firms)
+        Mean prices of each session's limit play after it settled.
+    what : str
+        The event in words.
+    level : float
+        Confidence level (normal approximation for means, Wilson for shares, as in :mod:`sim.simulation.results`).
+
+    Returns
+    -------
+    dict
+        ``kind``, ``what``, ``periods`` (recorded after the event), ``bin_periods`` (the last period of each bin,
+        from 1; 0 for the row before the event), ``prices`` (``mean``, ``low``, ``high``: lists of bins + 1 rows
+        of n_firms, across all sessions), ``before`` and ``change`` (per firm: the price in the last period before
+        the event, and each session's limit price after settling minus it, over the settled sessions),
+        ``settled`` (share of sessions that settled again) and ``settle_periods`` (periods from the event to the
+        last change of a greedy strategy over the settled sessions: mean with its interval, median, 5 % and 95 %).
+    """
+    n, rows, f = path.shape
+    per = event.periods // event.bins
+    mean = np.full((rows, f), np.nan)
+    low, high = mean.copy(), mean.copy()
+    for r in range(rows):
+        for i in range(f):
+            e = _mean(path[:, r, i], level)
+            mean[r, i], low[r, i], high[r, i] = e["mean"], e["low"], e["high"]
+    ok = np.asarray(converged, dtype=bool)
+    st = np.asarray(settle, dtype=float)[ok]
+    k = int(ok.sum())
+    sh = wilson_estimate(k, n, level)
+    q = np.quantile(st, (0.05, 0.5, 0.95)) if st.size else np.full(3, np.nan)
+    return {
+        "kind": event.kind, "what": what, "periods": event.periods,
+        "bin_periods": [0] + [per * (b + 1) for b in range(event.bins)],
+        "prices": {"mean": mean.tolist(), "low": low.tolist(), "high": high.tolist()},
+        "before": [_mean(path[:, 0, i], level) for i in range(f)],
+        "change": [_mean(limit_prices[ok, i] - path[ok, 0, i], level) for i in range(f)],
+        "settled": {"share": sh.value, "low": sh.low, "high": sh.high, "count": k, "n": int(n)},
+        "settle_periods": {**_mean(st, level), "q05": float(q[0]), "q50": float(q[1]), "q95": float(q[2])},
+    }

@@ -1,0 +1,127 @@
+"""``supergame learn`` and ``supergame run`` in two steps: learners saved, then continued after an event; the report
+of the prices after it, and one-line refusals naming the key (exit status 2) for bad events.
+
+Sources: the convergence rule of Calvano, Calzolari, Denicolo and Pastorello (2020, AER 110(10)), counted again from
+the event; a static Nash price that rises with marginal cost in logit Bertrand competition (Anderson, de Palma and
+Thisse, 1992, "Discrete Choice Theory of Product Differentiation", chapter 6: p = c + mu / (1 - share)).
+"""
+
+import pytest
+
+from sim.cli import main
+
+STEP1 = """
+[experiment]
+name = "step1"
+kind = "learn"
+
+[market]
+model = "bertrand"
+demand = "logit"
+quality = 2.0
+outside = 0.0
+mu = 0.25
+cost = 1.0
+n_firms = 2
+
+[learning]
+m = 5
+beta = 5e-4
+convergence = 2000
+save_to = "learners.npz"
+
+[impulse]
+periods = 3
+
+[run]
+sessions = 4
+seed = 7
+workers = 2
+"""
+
+STEP2 = (STEP1.replace('name = "step1"', 'name = "step2"').replace("cost = 1.0", "cost = 1.2")
+         .replace('save_to = "learners.npz"', 'continue_from = "learners.npz"').replace("m = 5\n", "")
+         + '\n[event]\nkind = "market"\nperiods = 200\n')
+
+
+@pytest.fixture
+def folder(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "step1.toml").write_text(STEP1)
+    (tmp_path / "step2.toml").write_text(STEP2)
+    return tmp_path
+
+
+def test_a_cost_shock_in_two_steps_reports_prices_after_it_and_the_time_to_settle(folder, capsys):
+    assert main(["learn", "step1.toml"]) == 0
+    capsys.readouterr()
+    assert (folder / "learners.npz").is_file()
+    assert main(["learn", "step2.toml"]) == 0
+    out = capsys.readouterr().out
+    assert "After the event (the market changes: market.cost 1.0 -> 1.2)" in out
+    assert "settled again (no greedy strategy changed for 2,000 periods) in" in out
+    assert "periods from the event to the last change of a greedy strategy" in out
+    # the stored result prints the same text, and its figure of the prices after the event is the bundle's
+    from sim.evidence.learn import RENDERER
+    from sim.runner.runs import open_run
+
+    assert main(["run", "step2.toml", "--out", "run", "--report", "--quiet"]) == 0
+    capsys.readouterr()
+    res = open_run(folder / "run").result(0)
+    assert RENDERER.console(res) == out.rstrip("\n")
+    assert (folder / "run" / "report" / "figures" / "prices_after_event.png").is_file()
+    # Anderson, de Palma and Thisse (1992): the static Nash price rises with cost, and so do the settled prices
+    ev = res.event
+    assert all(d["mean"] > 0 for d in ev["change"]) and ev["settled"]["count"] == 4
+
+
+@pytest.mark.parametrize("old, new, key", [
+    ('kind = "market"', 'kind = "merger"', "event.kind"),
+    ("periods = 200", "periods = -1", "event.periods"),
+    ("periods = 200", "periods = 200\nwhen = 5", "event.when"),
+    ("n_firms = 2", "n_firms = 3", "market.n_firms"),
+], ids=["kind", "periods", "unknown-key", "firms"])
+def test_bad_events_are_refused_in_one_line_naming_the_key(folder, capsys, old, new, key):
+    assert main(["learn", "step1.toml"]) == 0
+    capsys.readouterr()
+    (folder / "bad.toml").write_text(STEP2.replace(old, new))
+    assert main(["learn", "bad.toml"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and key in err, err
+    assert not (folder / "runs").exists()
+
+
+def test_the_second_step_before_the_first_names_the_saved_file(folder, capsys):
+    assert main(["learn", "step2.toml"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "learning.continue_from" in err and "learners.npz" in err
+
+
+def test_an_event_without_saved_learners_is_refused(folder, capsys):
+    (folder / "bad.toml").write_text(STEP2.replace('continue_from = "learners.npz"', ""))
+    assert main(["learn", "bad.toml"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "learning.continue_from" in err
+
+
+@pytest.mark.slow
+def test_the_shipped_entry_experiment_in_its_two_steps(tmp_path, monkeypatch, capsys):
+    """The two commands of experiments/learning-entry.toml's comment, from one folder: the entrant that keeps 1.6 by
+    tit for tat leaves prices well above those against the competitive entrant and grim trigger, which end near the
+    three-firm static Nash price. Tolerance: the 95 % intervals of the profit gain must not overlap (40 sessions)."""
+    from pathlib import Path
+
+    from sim.runner.runs import open_run
+
+    root = Path(__file__).resolve().parents[2] / "experiments"
+    monkeypatch.chdir(tmp_path)
+    assert main(["learn", str(root / "learning-entry-before.toml")]) == 0
+    assert (tmp_path / "hollin-learners.npz").is_file()
+    assert main(["run", str(root / "learning-entry.toml"), "--out", "entry", "--quiet"]) == 0
+    capsys.readouterr()
+    run = open_run(tmp_path / "entry")
+    pg = [run.result(c).summary["profit_gain"] for c in range(3)]
+    assert pg[2]["low"] > max(pg[0]["high"], pg[1]["high"])
+    for c in (0, 1):
+        assert run.result(c).summary["near_nash"]["share"] >= 0.5
+    assert all(run.result(c).event["settled"]["share"] == 1.0 for c in range(3))
