@@ -38,16 +38,13 @@ sums) and per chunk (length histograms ``H_*`` of collusive spells, price wars a
 counts of collusive replications) are added to what the arrays already hold, so that the driver can
 call the kernel batch after batch.
 
-Speed: every per-period step (the helpers below, :func:`strategies.step.choose_level`,
-:func:`~strategies.step.bad_signal`, :func:`~strategies.step.next_state`,
-:func:`sim.models.stagecore.evaluate`, :func:`sim.core.rng.next_normal_zig`) is declared
-``inline="always"``, so that the period loop has no out-of-line calls with array arguments; inlining
-works on numba's IR and changes no arithmetic, so the kernel computes exactly what the plain-Python
-twin (:mod:`sim.simulation.twin`) computes. What changes every period (the current runs, the collusive
-periods, the first breakdown) is a tuple of scalars that :func:`_count_period` returns updated, so that
-it stays in registers; the rarer counts of a replication live in a small ``tally`` array. The
-period loop reads the groups' arrays from locals taken once per chunk (:func:`play_chunk`): an array
-reached through a tuple is a new reference, taken and released at every access.
+Speed: the per-period steps (:func:`strategies.step.choose_level`, :func:`~strategies.step.bad_signal`,
+:func:`~strategies.step.next_state`, :func:`sim.models.stagecore.evaluate`,
+:func:`sim.core.rng.next_normal_zig`) are declared ``inline="always"`` and the rest of the period is written
+out in the loop, so that it has no out-of-line calls with array arguments; inlining works on numba's IR and
+changes no arithmetic, so the kernel computes exactly what the plain-Python twin (:mod:`sim.simulation.twin`)
+computes. :func:`simulate_chunks` takes the grouped inputs and hands their arrays, as plain arguments, to the
+parallel loop (a prange body drops writes to arrays reached through a named tuple, numba issue 7135).
 """
 
 from __future__ import annotations
@@ -63,7 +60,7 @@ from sim.models.stagecore import evaluate
 from strategies.step import COLLUSIVE, INITIAL, bad_signal, choose_level, next_state
 
 __all__ = ["Batch", "LineupInputs", "MarketInputs", "MonitoringInputs", "PathBuffers", "RunInputs", "Totals",
-           "horizon_length", "play_chunk", "simulate_chunks"]
+           "horizon_length", "simulate_chunks"]
 
 # integer results per replication
 R_PERIODS, R_COLLUSIVE, R_WARS, R_WARS_ENDED, R_WAR_PERIODS, R_WAR_PERIODS_ENDED = range(6)
@@ -306,207 +303,18 @@ def horizon_length(rng, n_periods, random_horizon, continuation):
     return min(h, n_periods)
 
 
-@njit(cache=True, inline="always")
-def _scratch(n_firms, n_products):
-    """Per-chunk work arrays: states, levels, flags, the stage game's buffers and the replication's sums."""
-    return (np.empty(n_firms, dtype=np.int64), np.empty(n_firms, dtype=np.int64), np.empty(n_firms, dtype=np.int64),
-            np.zeros(n_firms, dtype=np.bool_), np.zeros(n_firms, dtype=np.bool_), np.empty(n_products),
-            np.empty(n_products), np.empty(n_products), np.empty(n_firms), np.empty((2, n_products)),
-            np.empty(n_firms), np.empty(n_firms), np.empty(N_RINT, dtype=np.int64))
-
-
-@njit(cache=True, inline="always")
-def _start_replication(state, psum, dsum, tally, firms):
-    for i in range(state.shape[0]):
-        state[i] = firms[i, INITIAL]
-        psum[i] = 0.0
-        dsum[i] = 0.0
-    for k in range(N_RINT):
-        tally[k] = 0
-
-
-@njit(cache=True, inline="always")
-def _choose_levels(t, state, lev, cheated, states, probs, firms, rng, tally):
-    for i in range(state.shape[0]):
-        level, ch = choose_level(i, state[i], t, states, probs, firms, rng)
-        lev[i] = level
-        cheated[i] = ch
-        if ch:
-            tally[R_CHEATS] += 1
-
-
-@njit(cache=True, inline="always")
-def _tremble(trembled, error, rng, tally):
-    # no draw at all without implementation errors (the stream position depends on it)
-    if error > 0.0:
-        for i in range(trembled.shape[0]):
-            trembled[i] = next_double(rng) < error
-            if trembled[i]:
-                tally[R_TREMBLES] += 1
-
-
-@njit(cache=True, inline="always")
-def _set_actions(actions, owner, lev, trembled, levels, tremble):
-    for k in range(actions.shape[0]):
-        i = owner[k]
-        actions[k] = tremble[k] if trembled[i] else levels[i, lev[i], k]
-
-
-@njit(cache=True, inline="always")
-def _demand_shock(rng, noise_code, sigma, half_var):
-    if noise_code == 1:
-        return math.exp(sigma * next_normal_zig(rng) - half_var)
-    if noise_code == 2:
-        theta = 1.0 + sigma * next_normal_zig(rng)
-        if theta < 0.0:
-            theta = 0.0
-        return theta
-    return 1.0
-
-
-@njit(cache=True, inline="always")
-def _collusion(state, cheated, trembled, states):
-    """(every firm colludes, some firm's state is not collusive)."""
-    all_c = True
-    punishing = False
-    for i in range(state.shape[0]):
-        if states[i, state[i], COLLUSIVE] == 0:
-            all_c = False
-            punishing = True
-        elif cheated[i] or trembled[i]:
-            all_c = False
-    return all_c, punishing
-
-
-@njit(cache=True, inline="always")
-def _record_path(paths, g, t, actions, p, mp, theta, cs, profit, state, cheated, trembled, states, all_c):
-    for k in range(actions.shape[0]):
-        paths.actions[g, t, k] = actions[k]
-        paths.prices[g, t, k] = p[k]
-    paths.market[g, t, M_PRICE] = mp
-    paths.market[g, t, M_THETA] = theta
-    paths.market[g, t, M_SURPLUS] = cs
-    for i in range(state.shape[0]):
-        paths.profit[g, t, i] = profit[i]
-        paths.state[g, t, i] = state[i]
-        fl = 0
-        if cheated[i]:
-            fl |= FLAG_CHEAT
-        if trembled[i]:
-            fl |= FLAG_TREMBLE
-        if states[i, state[i], COLLUSIVE] != 0 and not cheated[i] and not trembled[i]:
-            fl |= FLAG_COLLUDE
-        paths.flags[g, t, i] = fl
-    paths.collude[g, t] = 1 if all_c else 0
-
-
-@njit(cache=True, inline="always")
-def _update_states(state, new_state, actions, owner, mp, profit, perception_error, states, probs, levels,
-                   quantity_setting, rng):
-    # signals and transitions, all from the states at the start of the period
-    n_firms = state.shape[0]
-    for i in range(n_firms):
-        bad = bad_signal(i, state[i], n_firms, actions, owner, mp, profit[i], perception_error, states, probs, levels,
-                         quantity_setting, rng)
-        new_state[i] = next_state(i, state[i], bad, states, probs, rng)
-    for i in range(state.shape[0]):
-        state[i] = new_state[i]
-
-
-@njit(cache=True, inline="always")
-def _add_profits(psum, dsum, profit, disc, delta):
-    """Add the period's profits to the sums; returns the next period's discount weight."""
-    for i in range(psum.shape[0]):
-        psum[i] += profit[i]
-        dsum[i] += disc * profit[i]
-    disc *= delta
-    if disc < _DISC_FLOOR:
-        disc = 0.0
-    return disc
-
-
-@njit(cache=True, inline="always")
-def _count_period(runs, tally, hist, by_period, c, t, all_c, punishing):
-    """The period's place in the runs of collusive and other periods and in the punishment phases.
-
-    ``runs`` holds what changes every period, ``(run, prev, punish, n_collusive, first_breakdown)``: the
-    length of the current run, whether it is collusive (1) or not (0), the length of the current
-    punishment phase, the collusive periods so far and the first non-collusive period (0: none yet). It
-    is a tuple of scalars, returned updated, so that these stay in registers; runs that end are counted
-    in ``tally`` and ``hist``.
-    """
-    run, prev, punish, n_coll, first = runs
-    if all_c:
-        by_period[c, t] += 1
-        n_coll += 1
-    elif first == 0:
-        first = t + 1
-    if t == 0:
-        run = 1
-        if all_c:
-            tally[R_SPELLS] += 1
-        else:
-            tally[R_WARS] += 1
-    elif all_c == (prev != 0):
-        run += 1
-    else:
-        if prev != 0:
-            hist[c, H_SPELL_ENDED, run] += 1
-            tally[R_SPELLS_ENDED] += 1
-            tally[R_SPELL_PERIODS_ENDED] += run
-            tally[R_WARS] += 1
-        else:
-            hist[c, H_WAR_ENDED, run] += 1
-            tally[R_WARS_ENDED] += 1
-            tally[R_WAR_PERIODS_ENDED] += run
-            tally[R_SPELLS] += 1
-        run = 1
-    prev = 1 if all_c else 0
-    if punishing:
-        punish += 1
-    elif punish > 0:
-        hist[c, H_PUNISH_ENDED, punish] += 1
-        punish = 0
-    return run, prev, punish, n_coll, first
-
-
-@njit(cache=True, inline="always")
-def _store_replication(totals, c, r, periods, runs, tally, psum, dsum, price_sum, cs_sum):
-    """The runs cut off by the horizon, then the replication's sums and counts into the outputs."""
-    run, prev, punish, n_coll, first = runs
-    if run > 0:
-        if prev != 0:
-            totals.hist[c, H_SPELL_CENSORED, run] += 1
-        else:
-            totals.hist[c, H_WAR_CENSORED, run] += 1
-    if punish > 0:
-        totals.hist[c, H_PUNISH_CENSORED, punish] += 1
-    for i in range(psum.shape[0]):
-        totals.profit[r, i] += psum[i]
-        totals.disc[r, i] += dsum[i]
-    totals.flts[r, F_PRICE_SUM] += price_sum
-    totals.flts[r, F_CS_SUM] += cs_sum
-    tally[R_PERIODS] = periods
-    tally[R_COLLUSIVE] = n_coll
-    tally[R_WAR_PERIODS] = periods - n_coll
-    tally[R_FIRST_BREAKDOWN] = first
-    for k in range(N_RINT):
-        totals.ints[r, k] += tally[k]
-
-
 # --------------------------------------------------------------------------------------------------
 # The kernel
 # --------------------------------------------------------------------------------------------------
 
 
 @njit(cache=True)
-def play_chunk(c, batch, market, lineup, monitoring, run, totals, paths):
-    """Play the replications ``batch.chunk_start[c] .. batch.chunk_start[c+1]-1`` (batch-local) of chunk ``c``.
+def simulate_chunks(batch, market, lineup, monitoring, run, totals, paths):
+    """Play replications ``batch.chunk_start[c] .. batch.chunk_start[c+1]-1`` (batch-local) of every chunk ``c``,
+    chunks in parallel.
 
     Parameters
     ----------
-    c : int
-        Chunk index (selects the chunk's rows of ``totals.hist`` and ``totals.by_period``).
     batch : Batch
         Chunk boundaries, the replications' generator states and the global index of the first.
     market : MarketInputs
@@ -518,81 +326,212 @@ def play_chunk(c, batch, market, lineup, monitoring, run, totals, paths):
     run : RunInputs
         Horizon, discount factor and number of recorded paths.
     totals : Totals
-        Results, added to in place (``totals.status`` is left to the caller).
+        Results, added to in place; ``totals.status`` gets ``STATUS_OK`` or ``STATUS_EVALUATION_FAILED`` (the
+        stage game could not be evaluated; the chunk stops there) for each chunk.
     paths : PathBuffers
         Path buffers, written for global replication indices below ``run.n_paths``.
-
-    Returns
-    -------
-    int
-        ``STATUS_OK``, or ``STATUS_EVALUATION_FAILED`` when the stage game could not be evaluated (the
-        chunk stops there).
     """
-    # the groups' arrays as locals, taken once per chunk: every access through a tuple would take and
-    # release a reference to the array inside the period loop
     chunk_start, rng_states, first = batch
     code, scalars, vector, cost, capacity, owner, n_firms, quantity_setting = market
     states, probs, firms, levels, tremble = lineup
     noise_code, sigma, perception_error, implementation_error = monitoring
     n_periods, delta, random_horizon, continuation, n_paths = run
-    hist, by_period = totals.hist, totals.by_period
-    half_var = 0.5 * sigma * sigma
-    (state, new_state, lev, cheated, trembled, actions, q, p, profit, work, psum, dsum,
-     tally) = _scratch(n_firms, owner.shape[0])
-    for r in range(chunk_start[c], chunk_start[c + 1]):
-        rng = rng_states[r]
-        g = first + r
-        H = horizon_length(rng, n_periods, random_horizon, continuation)
-        _start_replication(state, psum, dsum, tally, firms)
-        runs = (0, 0, 0, 0, 0)
-        disc = 1.0
-        price_sum = 0.0
-        cs_sum = 0.0
-        for t in range(H):
-            _choose_levels(t, state, lev, cheated, states, probs, firms, rng, tally)
-            _tremble(trembled, implementation_error, rng, tally)
-            _set_actions(actions, owner, lev, trembled, levels, tremble)
-            theta = _demand_shock(rng, noise_code, sigma, half_var)
-            mp, cs = evaluate(code, scalars, vector, cost, capacity, owner, n_firms, actions, theta, q, p, profit, work,
-                              True)
-            if mp != mp:
-                return STATUS_EVALUATION_FAILED
-            all_c, punishing = _collusion(state, cheated, trembled, states)
-            if g < n_paths:
-                _record_path(paths, g, t, actions, p, mp, theta, cs, profit, state, cheated, trembled, states, all_c)
-            _update_states(state, new_state, actions, owner, mp, profit, perception_error, states, probs, levels,
-                           quantity_setting, rng)
-            disc = _add_profits(psum, dsum, profit, disc, delta)
-            price_sum += mp
-            cs_sum += cs
-            runs = _count_period(runs, tally, hist, by_period, c, t, all_c, punishing)
-        _store_replication(totals, c, r, H, runs, tally, psum, dsum, price_sum, cs_sum)
-    return STATUS_OK
+    hist, by_period, out_profit, out_disc, out_int, out_flt = (totals.hist, totals.by_period, totals.profit,
+                                                               totals.disc, totals.ints, totals.flts)
+    p_actions, p_prices, p_market, p_profit, p_state, p_flags, p_collude = (
+        paths.actions, paths.prices, paths.market, paths.profit, paths.state, paths.flags, paths.collude)
+    _play_chunks(chunk_start, rng_states, first, code, scalars, vector, cost, capacity, owner, n_firms,
+                 quantity_setting, states, probs, firms, levels, tremble, noise_code, sigma, perception_error,
+                 implementation_error, n_periods, delta, random_horizon, continuation, n_paths, out_profit, out_disc,
+                 out_int, out_flt, hist, by_period, p_actions, p_prices, p_market, p_profit, p_state, p_flags,
+                 p_collude, totals.status)
 
 
 @njit(cache=True, parallel=True)
-def simulate_chunks(batch, market, lineup, monitoring, run, totals, paths):
-    """Play every chunk of a batch of replications, chunks in parallel (see :func:`play_chunk`).
-
-    Parameters
-    ----------
-    batch : Batch
-        Chunk boundaries, the replications' generator states and the global index of the first.
-    market : MarketInputs
-        The market.
-    lineup : LineupInputs
-        The compiled line-up and the tremble actions.
-    monitoring : MonitoringInputs
-        Demand shock and error probabilities.
-    run : RunInputs
-        Horizon, discount factor and number of recorded paths.
-    totals : Totals
-        Results, added to in place; ``totals.status`` is written.
-    paths : PathBuffers
-        Path buffers, written for global replication indices below ``run.n_paths``.
-    """
-    # the chunk's work is one out-of-line call: inside a prange body, numba drops writes to arrays reached
-    # through a named tuple (numba issue 7135), and one call per chunk costs nothing measurable
-    status = totals.status
-    for c in prange(batch.chunk_start.shape[0] - 1):
-        status[c] = play_chunk(c, batch, market, lineup, monitoring, run, totals, paths)
+def _play_chunks(chunk_start, rng_states, rep_offset,
+                 code, scalars, vector, cost, capacity, owner, n_firms, quantity_setting,
+                 states, probs, firms, levels, tremble_profile,
+                 noise_code, sigma, perception_error, implementation_error,
+                 n_periods, delta, random_horizon, continuation, n_paths,
+                 out_profit, out_disc, out_int, out_flt, hist, by_period,
+                 path_actions, path_prices, path_market, path_profit, path_state, path_flags, path_collude,
+                 status):
+    # the period loop of every chunk, chunks in parallel, every array a plain argument: inside a prange body
+    # numba drops writes to arrays reached through a named tuple (numba issue 7135), also once they are taken
+    # out of it, and a chunk played by a separate function, or a period built from helper calls, measured two
+    # to three times slower (engine section of the benchmark); :func:`simulate_chunks` keeps the grouped inputs
+    n_chunks = chunk_start.shape[0] - 1
+    n_products = owner.shape[0]
+    s2 = 0.5 * sigma * sigma
+    for c in prange(n_chunks):
+        state = np.empty(n_firms, dtype=np.int64)
+        new_state = np.empty(n_firms, dtype=np.int64)
+        lev = np.empty(n_firms, dtype=np.int64)
+        cheated = np.zeros(n_firms, dtype=np.bool_)
+        trembled = np.zeros(n_firms, dtype=np.bool_)
+        actions = np.empty(n_products)
+        q = np.empty(n_products)
+        p = np.empty(n_products)
+        profit = np.empty(n_firms)
+        work = np.empty((2, n_products))
+        psum = np.empty(n_firms)
+        dsum = np.empty(n_firms)
+        st_code = STATUS_OK
+        for r in range(chunk_start[c], chunk_start[c + 1]):
+            rng = rng_states[r]
+            g = rep_offset + r
+            record = g < n_paths
+            H = horizon_length(rng, n_periods, random_horizon, continuation)
+            for i in range(n_firms):
+                state[i] = firms[i, INITIAL]
+                psum[i] = 0.0
+                dsum[i] = 0.0
+            disc = 1.0
+            prev = False
+            run = 0
+            prun = 0
+            price_sum = 0.0
+            cs_sum = 0.0
+            n_coll = 0
+            n_war = 0
+            n_wars = 0
+            n_wars_ended = 0
+            war_ended_periods = 0
+            n_spells = 0
+            n_spells_ended = 0
+            spell_ended_periods = 0
+            first = 0
+            n_cheat = 0
+            n_tremble = 0
+            played = 0
+            for t in range(H):
+                for i in range(n_firms):
+                    L, ch = choose_level(i, state[i], t, states, probs, firms, rng)
+                    lev[i] = L
+                    cheated[i] = ch
+                    if ch:
+                        n_cheat += 1
+                if implementation_error > 0.0:
+                    for i in range(n_firms):
+                        trembled[i] = next_double(rng) < implementation_error
+                        if trembled[i]:
+                            n_tremble += 1
+                for k in range(n_products):
+                    i = owner[k]
+                    actions[k] = tremble_profile[k] if trembled[i] else levels[i, lev[i], k]
+                theta = 1.0
+                if noise_code == 1:
+                    theta = math.exp(sigma * next_normal_zig(rng) - s2)
+                elif noise_code == 2:
+                    theta = 1.0 + sigma * next_normal_zig(rng)
+                    if theta < 0.0:
+                        theta = 0.0
+                mp, cs = evaluate(code, scalars, vector, cost, capacity, owner, n_firms, actions, theta, q, p,
+                                  profit, work, True)
+                if mp != mp:
+                    st_code = STATUS_EVALUATION_FAILED
+                    break
+                all_c = True
+                punishing = False
+                for i in range(n_firms):
+                    if states[i, state[i], COLLUSIVE] == 0:
+                        all_c = False
+                        punishing = True
+                    elif cheated[i] or trembled[i]:
+                        all_c = False
+                if record:
+                    for k in range(n_products):
+                        path_actions[g, t, k] = actions[k]
+                        path_prices[g, t, k] = p[k]
+                    path_market[g, t, M_PRICE] = mp
+                    path_market[g, t, M_THETA] = theta
+                    path_market[g, t, M_SURPLUS] = cs
+                    for i in range(n_firms):
+                        path_profit[g, t, i] = profit[i]
+                        path_state[g, t, i] = state[i]
+                        fl = 0
+                        if cheated[i]:
+                            fl |= FLAG_CHEAT
+                        if trembled[i]:
+                            fl |= FLAG_TREMBLE
+                        if states[i, state[i], COLLUSIVE] != 0 and not cheated[i] and not trembled[i]:
+                            fl |= FLAG_COLLUDE
+                        path_flags[g, t, i] = fl
+                    path_collude[g, t] = 1 if all_c else 0
+                # signals and transitions, all from the states at the start of the period
+                for i in range(n_firms):
+                    bad = bad_signal(i, state[i], n_firms, actions, owner, mp, profit[i], perception_error,
+                                     states, probs, levels, quantity_setting, rng)
+                    new_state[i] = next_state(i, state[i], bad, states, probs, rng)
+                for i in range(n_firms):
+                    state[i] = new_state[i]
+                # streamed metrics
+                for i in range(n_firms):
+                    psum[i] += profit[i]
+                    dsum[i] += disc * profit[i]
+                disc *= delta
+                if disc < _DISC_FLOOR:
+                    disc = 0.0
+                price_sum += mp
+                cs_sum += cs
+                if all_c:
+                    by_period[c, t] += 1
+                    n_coll += 1
+                else:
+                    n_war += 1
+                    if first == 0:
+                        first = t + 1
+                if t == 0:
+                    run = 1
+                    if all_c:
+                        n_spells += 1
+                    else:
+                        n_wars += 1
+                elif all_c == prev:
+                    run += 1
+                else:
+                    if prev:
+                        hist[c, H_SPELL_ENDED, run] += 1
+                        n_spells_ended += 1
+                        spell_ended_periods += run
+                        n_wars += 1
+                    else:
+                        hist[c, H_WAR_ENDED, run] += 1
+                        n_wars_ended += 1
+                        war_ended_periods += run
+                        n_spells += 1
+                    run = 1
+                prev = all_c
+                if punishing:
+                    prun += 1
+                elif prun > 0:
+                    hist[c, H_PUNISH_ENDED, prun] += 1
+                    prun = 0
+                played += 1
+            if st_code != STATUS_OK:
+                break
+            if run > 0:
+                if prev:
+                    hist[c, H_SPELL_CENSORED, run] += 1
+                else:
+                    hist[c, H_WAR_CENSORED, run] += 1
+            if prun > 0:
+                hist[c, H_PUNISH_CENSORED, prun] += 1
+            for i in range(n_firms):
+                out_profit[r, i] += psum[i]
+                out_disc[r, i] += dsum[i]
+            out_flt[r, F_PRICE_SUM] += price_sum
+            out_flt[r, F_CS_SUM] += cs_sum
+            out_int[r, R_PERIODS] += played
+            out_int[r, R_COLLUSIVE] += n_coll
+            out_int[r, R_WAR_PERIODS] += n_war
+            out_int[r, R_WARS] += n_wars
+            out_int[r, R_WARS_ENDED] += n_wars_ended
+            out_int[r, R_WAR_PERIODS_ENDED] += war_ended_periods
+            out_int[r, R_SPELLS] += n_spells
+            out_int[r, R_SPELLS_ENDED] += n_spells_ended
+            out_int[r, R_SPELL_PERIODS_ENDED] += spell_ended_periods
+            out_int[r, R_FIRST_BREAKDOWN] += first
+            out_int[r, R_CHEATS] += n_cheat
+            out_int[r, R_TREMBLES] += n_tremble
+        status[c] = st_code
