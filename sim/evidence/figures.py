@@ -286,7 +286,6 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
     matplotlib.figure.Figure
     """
     plt = _plt()
-    from matplotlib.colors import TwoSlopeNorm
 
     px, py, xs, ys, labx, laby, facets, grids, thr = _grids(data, x, y, metric, threshold, facet, at)
     xp, xcat = _positions(xs, px.log)
@@ -294,13 +293,7 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
     xlog, ylog = px.log and not xcat, py.log and not ycat
     allv = np.concatenate([g[np.isfinite(g)] for g in grids]) if grids else np.zeros(0)
     lo, hi = (float(allv.min()), float(allv.max())) if allv.size else (0.0, 1.0)
-    mid = center if center is not None else (0.0 if lo < 0 < hi else None)
-    if mid is not None and lo < mid < hi:
-        # a diverging map centred at the level of interest; each side uses its own range, so a small
-        # positive side keeps its ticks and colours (PuOr reads for colour-blind readers too)
-        norm, cmap = TwoSlopeNorm(vmin=lo, vcenter=mid, vmax=hi), plt.get_cmap("PuOr_r")
-    else:
-        norm, cmap = None, plt.get_cmap("viridis")
+    norm, cmap = _color_map(plt, lo, hi, center)
     fmt = number_format(allv)
     nr, nc = _panels(len(facets))
     width = PAGE_WIDTH if nc == 1 else PAGE_WIDTH * min(1.0, 0.55 * nc)
@@ -323,16 +316,7 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
             legend.setdefault("no value (cell failed or not run)",
                               _hatch_handle())
         if xs.size * nc <= 12 and ys.size * nr <= 16:
-            for b in range(ys.size):
-                for a in range(xs.size):
-                    if np.isfinite(Z[b, a]):
-                        rgba = cmap(norm(Z[b, a]) if norm else (Z[b, a] - lo) / (hi - lo or 1.0))
-                        # a backing in the cell's own colour: a threshold or boundary line passes behind the
-                        # number instead of through it (a minus sign struck through reads as no sign)
-                        t = ax.text(xp[a], yp[b], fmt(Z[b, a]), ha="center", va="center", fontsize=SMALL,
-                                    color=_text_color(rgba), zorder=4,
-                                    bbox={"boxstyle": "square,pad=0.1", "fc": rgba, "ec": "none"})
-                        numbers.append((t, ax, (xe[a], ye[b], xe[a + 1], ye[b + 1])))
+            numbers += _cell_numbers(ax, Z, xp, yp, xe, ye, cmap, norm, lo, hi, fmt)
         if level is not None and xs.size > 1 and ys.size > 1 and np.isfinite(Z).sum() >= 4:
             zmin, zmax = np.nanmin(Z), np.nanmax(Z)
             if zmin < level < zmax:
@@ -371,6 +355,34 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
     fig.suptitle(_wrap((title or f"{metric_label(metric, data)}") + _panel_note(facet, data), 80), fontsize=FONT + 1)
     _fit_numbers(fig, numbers)
     return fig
+
+
+def _color_map(plt, lo: float, hi: float, center):
+    """(norm, colour map) of a heatmap: diverging when the values lie on both sides of the level of interest."""
+    from matplotlib.colors import TwoSlopeNorm
+
+    mid = center if center is not None else (0.0 if lo < 0 < hi else None)
+    if mid is not None and lo < mid < hi:
+        # a diverging map centred at the level of interest; each side uses its own range, so a small
+        # positive side keeps its ticks and colours (PuOr reads for colour-blind readers too)
+        return TwoSlopeNorm(vmin=lo, vcenter=mid, vmax=hi), plt.get_cmap("PuOr_r")
+    return None, plt.get_cmap("viridis")
+
+
+def _cell_numbers(ax, Z, xp, yp, xe, ye, cmap, norm, lo, hi, fmt) -> list:
+    """The value written in each cell; returns (text, axes, cell corners) for fitting once laid out."""
+    out = []
+    for b in range(Z.shape[0]):
+        for a in range(Z.shape[1]):
+            if np.isfinite(Z[b, a]):
+                rgba = cmap(norm(Z[b, a]) if norm else (Z[b, a] - lo) / (hi - lo or 1.0))
+                # a backing in the cell's own colour: a threshold or boundary line passes behind the
+                # number instead of through it (a minus sign struck through reads as no sign)
+                t = ax.text(xp[a], yp[b], fmt(Z[b, a]), ha="center", va="center", fontsize=SMALL,
+                            color=_text_color(rgba), zorder=4,
+                            bbox={"boxstyle": "square,pad=0.1", "fc": rgba, "ec": "none"})
+                out.append((t, ax, (xe[a], ye[b], xe[a + 1], ye[b + 1])))
+    return out
 
 
 def _tick_step(fig, nc: int, labels) -> int:

@@ -474,70 +474,89 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
             _single_cell_figures(b, rf, kind, rows[0])
 
         if exp.parameters:
-            hdr = ["cell", *[parameter_column(p.path, units) for p in exp.parameters]]
-            disp_rows, csv_rows = [], []
-            # the CSV keeps the stored names, so that it joins with results.csv (the glossary gives their labels)
-            csv_hdr = ["cell", *[p.path for p in exp.parameters]]
-            for m in heads:
-                ci = any(f"{m}.low" in r.metrics for r in rows)
-                hdr.append(metric_column(m, units) + (" and 95 % interval" if ci else ""))
-                csv_hdr += [m, f"{m}.low", f"{m}.high"] if ci else [m]
-            for r in rows:
-                labels = [r.labels[p.path] if not p.numeric else r.params[p.path] for p in exp.parameters]
-                d, c = [r.number, *labels], [r.number, *labels]
-                for m in heads:
-                    v = r.metrics.get(m, math.nan)
-                    c.append(v)
-                    if any(f"{m}.low" in q.metrics for q in rows):
-                        lo, hi = r.metrics.get(f"{m}.low", math.nan), r.metrics.get(f"{m}.high", math.nan)
-                        d.append(Estimate(v, lo, hi))
-                        c += [lo, hi]
-                    else:
-                        d.append(v)
-                disp_rows.append(d)
-                csv_rows.append(c)
-            b.table("summary", hdr, disp_rows, caption="Headline results per cell", csv_rows=(csv_hdr, csv_rows),
-                    note="95 % confidence intervals across replications (simulation error only)")
+            _sweep_table(b, exp, rows, heads, units)
         elif rows and rows[0].status == "ok":
-            r = rows[0]
-            names = [m for m in exp.metric_names if not m.endswith((".se", ".low", ".high")) and not
-                     m.startswith("analytic.")] or sorted(r.metrics)
-            mrows = []
-            for m in names:
-                an = kind.analytic.get(m)
-                mrows.append([metric_column(m, units), r.metrics.get(m, math.nan), _ci(r, m),
-                              r.metrics.get(an, math.nan) if an else math.nan])
-            mapped = set(kind.analytic.values())
-            for m in exp.metric_names:
-                if m.startswith("analytic.") and m not in mapped and math.isfinite(r.metrics.get(m, math.nan)):
-                    mrows.append([metric_column(m, units), r.metrics[m], "-", math.nan])
-            b.table("summary", ["quantity [unit]", "value", "95 % interval", "analytic prediction"], mrows,
-                    caption="Results", max_rows=200,
-                    note="rows named analytic: the analytic baseline of the cell (closed forms and benchmarks)")
+            _cell_table(b, exp, kind, rows[0], units)
         b.table("results", header, body, show=False)
         b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
                     f"(also `{CSV_FILE}` in the run folder).", note=True)
 
-        ok_rows = [r for r in rows if r.status == "ok"]
-        crit = sorted({m for r in ok_rows for m in r.metrics if m.startswith("analytic.critical_delta.")})
-        if crit and ok_rows:
-            b.heading("Analytic baseline")
-            trows = []
-            varies = False
-            for m in crit:
-                have = [r for r in ok_rows if m in r.metrics]
-                vals = {round(r.metrics[m], 12) for r in have if math.isfinite(r.metrics[m])}
-                v = have[0].metrics[m]
-                varies = varies or len(vals) > 1
-                trows.append([scheme_words(m.split(".", 2)[2]),
-                              v if math.isfinite(v) else "not sustainable below one"])
-            b.table("analytic-baseline", ["punishment scheme", "critical discount factor"], trows,
-                    caption="Critical discount factors of the punishment schemes played (perfect monitoring, infinite "
-                            "horizon)",
-                    note=("values of the first cell playing each scheme; they vary across cells (see the results "
-                          "table)" if varies else "the same in every cell playing the scheme"))
+        _analytic_baseline(b, rows)
 
     _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units)
+    _write_with_manifest(b, folder, exp, rows, counts, attempts, meta, in_run_folder)
+
+
+def _sweep_table(b, exp, rows, heads, units) -> None:
+    """The headline metrics of every cell of a sweep, with their intervals."""
+    hdr = ["cell", *[parameter_column(p.path, units) for p in exp.parameters]]
+    disp_rows, csv_rows = [], []
+    # the CSV keeps the stored names, so that it joins with results.csv (the glossary gives their labels)
+    csv_hdr = ["cell", *[p.path for p in exp.parameters]]
+    for m in heads:
+        ci = any(f"{m}.low" in r.metrics for r in rows)
+        hdr.append(metric_column(m, units) + (" and 95 % interval" if ci else ""))
+        csv_hdr += [m, f"{m}.low", f"{m}.high"] if ci else [m]
+    for r in rows:
+        labels = [r.labels[p.path] if not p.numeric else r.params[p.path] for p in exp.parameters]
+        d, c = [r.number, *labels], [r.number, *labels]
+        for m in heads:
+            v = r.metrics.get(m, math.nan)
+            c.append(v)
+            if any(f"{m}.low" in q.metrics for q in rows):
+                lo, hi = r.metrics.get(f"{m}.low", math.nan), r.metrics.get(f"{m}.high", math.nan)
+                d.append(Estimate(v, lo, hi))
+                c += [lo, hi]
+            else:
+                d.append(v)
+        disp_rows.append(d)
+        csv_rows.append(c)
+    b.table("summary", hdr, disp_rows, caption="Headline results per cell", csv_rows=(csv_hdr, csv_rows),
+            note="95 % confidence intervals across replications (simulation error only)")
+
+
+def _cell_table(b, exp, kind, r, units) -> None:
+    """Every metric of a run of one cell, beside its analytic prediction."""
+    names = [m for m in exp.metric_names if not m.endswith((".se", ".low", ".high")) and not
+             m.startswith("analytic.")] or sorted(r.metrics)
+    mrows = []
+    for m in names:
+        an = kind.analytic.get(m)
+        mrows.append([metric_column(m, units), r.metrics.get(m, math.nan), _ci(r, m),
+                      r.metrics.get(an, math.nan) if an else math.nan])
+    mapped = set(kind.analytic.values())
+    for m in exp.metric_names:
+        if m.startswith("analytic.") and m not in mapped and math.isfinite(r.metrics.get(m, math.nan)):
+            mrows.append([metric_column(m, units), r.metrics[m], "-", math.nan])
+    b.table("summary", ["quantity [unit]", "value", "95 % interval", "analytic prediction"], mrows,
+            caption="Results", max_rows=200,
+            note="rows named analytic: the analytic baseline of the cell (closed forms and benchmarks)")
+
+
+def _analytic_baseline(b, rows) -> None:
+    """The critical discount factors of the schemes played, when the cells report them."""
+    ok_rows = [r for r in rows if r.status == "ok"]
+    crit = sorted({m for r in ok_rows for m in r.metrics if m.startswith("analytic.critical_delta.")})
+    if crit and ok_rows:
+        b.heading("Analytic baseline")
+        trows = []
+        varies = False
+        for m in crit:
+            have = [r for r in ok_rows if m in r.metrics]
+            vals = {round(r.metrics[m], 12) for r in have if math.isfinite(r.metrics[m])}
+            v = have[0].metrics[m]
+            varies = varies or len(vals) > 1
+            trows.append([scheme_words(m.split(".", 2)[2]),
+                          v if math.isfinite(v) else "not sustainable below one"])
+        b.table("analytic-baseline", ["punishment scheme", "critical discount factor"], trows,
+                caption="Critical discount factors of the punishment schemes played (perfect monitoring, infinite "
+                        "horizon)",
+                note=("values of the first cell playing each scheme; they vary across cells (see the results "
+                      "table)" if varies else "the same in every cell playing the scheme"))
+
+
+def _write_with_manifest(b, folder, exp, rows, counts, attempts, meta, in_run_folder: bool) -> None:
+    """Attach the experiment file and write the bundle with its manifest."""
     seed = meta.get("seed")
     b.attach(EXPERIMENT_COPY, (folder / EXPERIMENT_COPY).read_bytes())
     data_files = {}
