@@ -38,6 +38,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import stats
 
+from sim.antitrust.result import CautionedTable
 from sim.core.errors import InputError, SolverError
 from sim.core.stats import wilson_estimate
 from sim.core.text import CAUTION
@@ -423,7 +424,7 @@ def morris_screening(model, inputs: dict, n_trajectories: int = 50, num_levels: 
 
 
 @dataclass(frozen=True)
-class ShareResult:
+class ShareResult(CautionedTable):
     """Share of draws in which the merger makes coordination easier.
 
     Parameters
@@ -441,30 +442,6 @@ class ShareResult:
     n_easier: int
     seed: int
     confidence: float
-
-    def to_dict(self) -> dict:
-        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
-
-        Returns
-        -------
-        dict
-        """
-        return {**self.__dict__, "caution": CAUTION}
-
-    @classmethod
-    def from_dict(cls, d: dict) -> ShareResult:
-        """Inverse of :meth:`to_dict`.
-
-        Parameters
-        ----------
-        d : dict
-            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
-
-        Returns
-        -------
-        ShareResult
-        """
-        return cls(**{k: v for k, v in d.items() if k != "caution"})
 
 
 def share_easier(model, inputs: dict, n_draws: int = 4096, seed: int = 0, before: str = "before",

@@ -20,7 +20,7 @@ from sim.core.jsonutil import jsonable
 from sim.core.records import Record
 from sim.core.text import CAUTION
 
-__all__ = ["DEFAULT_CURRENCY", "DEFAULT_PERIOD", "Assessment", "MarketSide"]
+__all__ = ["DEFAULT_CURRENCY", "DEFAULT_PERIOD", "Assessment", "CautionedTable", "MarketSide"]
 
 #: the words for money and for a period when the experiment gives none (``experiment.currency``, ``.period``)
 DEFAULT_CURRENCY = "currency units"
@@ -234,3 +234,32 @@ class Assessment(Record):
         doc = jsonable(dict(parts))
         doc.update(name=name, currency=currency, period=period)
         return cls.from_dict(doc)
+
+
+class CautionedTable:
+    """A flat dataclass of the practitioner's tables (screens, shares of draws) as JSON data with the caution."""
+
+    def to_dict(self) -> dict:
+        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined), with the caution.
+
+        Returns
+        -------
+        dict
+        """
+        return {**self.__dict__, "caution": CAUTION}
+
+    @classmethod
+    def from_dict(cls, d: dict):
+        """Inverse of :meth:`to_dict`.
+
+        Parameters
+        ----------
+        d : dict
+            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
+
+        Returns
+        -------
+        object
+            An instance of the class.
+        """
+        return cls(**{k: v for k, v in d.items() if k != "caution"})

@@ -46,6 +46,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from sim.antitrust.merger import Merger, merge
+from sim.antitrust.result import CautionedTable
 from sim.core.errors import InputError
 from sim.core.params import PerFirm, optional
 from sim.core.text import CAUTION
@@ -111,7 +112,7 @@ def _merging(merging, n) -> list:
 
 
 @dataclass(frozen=True)
-class ConcentrationScreen:
+class ConcentrationScreen(CautionedTable):
     """A merger against the EU (2004) and US (2023) concentration screens.
 
     Parameters
@@ -148,30 +149,6 @@ class ConcentrationScreen:
     us_concentration: str
     us_presumption: bool
     us_note: str
-
-    def to_dict(self) -> dict:
-        """Plain JSON-ready form (lists; ``nan`` as null where a value can be undefined).
-
-        Returns
-        -------
-        dict
-        """
-        return {**self.__dict__, "caution": CAUTION}
-
-    @classmethod
-    def from_dict(cls, d: dict) -> ConcentrationScreen:
-        """Inverse of :meth:`to_dict`.
-
-        Parameters
-        ----------
-        d : dict
-            A table written by :meth:`to_dict` (its ``caution`` entry, if any, is ignored).
-
-        Returns
-        -------
-        ConcentrationScreen
-        """
-        return cls(**{k: v for k, v in d.items() if k != "caution"})
 
 
 def concentration_screen(shares, merging) -> ConcentrationScreen:
