@@ -9,7 +9,7 @@ ch. 7).
 from __future__ import annotations
 
 import numpy as np
-from scipy import optimize
+from scipy import optimize, special
 
 from sim.core.params import PerFirm, Real
 from sim.models.codes import CODE_LOGIT_BERTRAND
@@ -192,8 +192,13 @@ class LogitDemandSpec(DemandSpec):
         ndarray of shape (n_products,)
         """
         c = ms.cost
+        mu = self.scalars[1]
         s = self.direct_demand(c[None, :])[0] / self.scalars[2]
-        return c + 2.0 * self.scalars[1] / max(1e-300, 1.0 - s.sum()) + 10.0 * self.scalars[1]
+        if 1.0 - s.sum() > 1e-12:
+            return c + 2.0 * mu / (1.0 - s.sum()) + 10.0 * mu
+        # the inside goods take (nearly) the whole market at cost: ``mu / s_0`` would overflow, and the
+        # joint-profit markup (the largest any firm charges, with every rival price removed) bounds it instead
+        return c + 2.0 * self._markup(c, np.arange(c.size), np.full(c.size, np.inf)) + 10.0 * mu
 
     def best_response(self, ms, i, A):
         """The first-order condition ``p - c = mu / (1 - s_i(p))`` has a unique root because ``s_i``
@@ -214,23 +219,25 @@ class LogitDemandSpec(DemandSpec):
         return x, profit_with(ms, i, A, x)
 
     def _response(self, ms, i, row):
-        mu = self.scalars[1]
-        c = ms.cost[i]
-        prof = row.copy()
+        return float(ms.cost[i] + self._markup(ms.cost[[i]], [i], row))
 
-        def rest(p):
-            prof[i] = p
-            return self.share_complement(prof, [i])
+    def _markup(self, c, own, row):
+        """The common best-response markup of the products ``own`` (costs ``c``) against ``row``.
 
-        def h(p):
-            return p - c - mu / rest(p)
-
-        hi = c + mu / rest(c)
-        if h(hi) <= 0:
-            return hi
-        # the bracket can be astronomically wide for a dominant product: tolerances relative to the cost
-        # and mu, not to the bracket
-        return float(optimize.brentq(h, c, hi, xtol=1e-15 * max(1.0, c, mu), rtol=1e-15, maxiter=1000))
+        The first-order condition ``m = mu / (1 - S_f(m))`` reads, with ``z = m / mu``,
+        ``z = 1 + exp(K - z)`` where ``K = log sum_own exp((a_k - c_k)/mu) - log(sum_others exp((a_j - p_j)/mu)
+        + exp(a_0/mu))``; its root is ``z = 1 + omega(K - 1)`` with ``omega`` the Wright omega function
+        (``omega + log omega = x``, the Lambert W of ``exp(x)``). Computing ``K`` with log-sum-exp keeps the
+        markup exact when ``mu`` is tiny and a share would underflow (the Lambert-W form of the logit optimal
+        markup: Li and Huh, 2011, "Pricing multiple products with the multinomial logit and nested logit
+        models: concavity and implications", MSOM 13(4), from memory).
+        """
+        a0, mu = self.scalars[0], self.scalars[1]
+        mask = np.zeros(self.vector.size, bool)
+        mask[np.asarray(own)] = True
+        others = np.append((self.vector[~mask] - row[~mask]) / mu, a0 / mu)
+        K = special.logsumexp((self.vector[mask] - c) / mu) - special.logsumexp(others)
+        return mu * (1.0 + float(special.wrightomega(K - 1.0)))
 
     def best_response_multi(self, ms, i, own, row):
         """A multi-product firm sets one common markup ``m`` on its products, solving
@@ -247,20 +254,9 @@ class LogitDemandSpec(DemandSpec):
         -------
         ndarray of shape (n_products,)
         """
-        mu = self.scalars[1]
-        c = ms.cost[own]
-
-        def prof_at(m):
-            p = row.copy()
-            p[own] = c + m
-            return p
-
-        def h(m):
-            return m - mu / self.share_complement(prof_at(m), own)
-
-        hi = mu / self.share_complement(prof_at(0.0), own)
-        m = hi if h(hi) <= 0 else optimize.brentq(h, 0.0, hi, xtol=1e-15 * max(1.0, mu), rtol=1e-15, maxiter=1000)
-        return prof_at(m)
+        p = row.copy()
+        p[own] = ms.cost[own] + self._markup(ms.cost[own], own, row)
+        return p
 
     def nash_start(self, ms):
         """Symmetric-share guess ``c + mu (1 + 1/n)`` (the best-response iteration finishes the job).
@@ -323,7 +319,37 @@ class LogitDemandSpec(DemandSpec):
         -------
         float
         """
-        return (1.0 - 1e-12) * self.scalars[2] / qn.sum()
+        total = qn.sum()
+        # no inside sales at double precision: every scale is attainable
+        return (1.0 - 1e-12) * self.scalars[2] / total if total > 0 else np.inf
+
+    def proportional_prices(self, nash_prices, qn, lam):
+        """``p_i(lam) = pN_i - mu (log lam + log(1 - S) - log(1 - lam S))``, ``S`` the inside share at Nash: the
+        inverse logit demand of ``lam * qn`` (:meth:`prices_for_quantities`) written relative to the Nash prices,
+        so that a Nash share that underflows to zero keeps its product on the path.
+
+        Parameters
+        ----------
+        nash_prices : ndarray of shape (n_products,)
+        qn : ndarray of shape (n_products,)
+        lam : ndarray of shape (n_rows,)
+
+        Returns
+        -------
+        ndarray of shape (n_rows, n_products)
+        """
+        if np.all(qn > 0) and qn.sum() < (1.0 - 1e-9) * self.scalars[2]:
+            return self.prices_for_quantities(lam[:, None] * qn[None, :])
+        # log s_0 and log(1 - s_0) at the Nash prices by log-sum-exp, so that neither share is lost to underflow;
+        # then log(1 - lam S) = log(s_0 + (1 - lam)(1 - s_0))
+        a0, mu = self.scalars[0], self.scalars[1]
+        u = (self.vector - nash_prices) / mu
+        total = special.logsumexp(np.append(u, a0 / mu))
+        log_s0, log_inside = a0 / mu - total, special.logsumexp(u) - total
+        with np.errstate(divide="ignore"):  # log(1 - lam) at lam = 1 is -inf: the Nash prices themselves
+            rest = np.logaddexp(log_s0, np.log1p(-lam) + log_inside)
+        shift = np.log(lam) + log_s0 - rest
+        return nash_prices[None, :] - mu * shift[:, None]
 
     def proportional_slope(self, qn, lam):
         """``d p_i / d lam = -mu (1/lam + S / (1 - lam S))`` with ``S = sum(qn) / size``.
