@@ -19,6 +19,11 @@ from sim.models.demand_spec import DemandSpec, profit_with
 __all__ = ["LogitDemand", "LogitDemandSpec"]
 
 
+#: above these log odds at cost (a bracket wider than ``exp(30) mu``) best responses use the closed form in log space;
+#: below, Brent's method on the first-order condition in prices
+_DIRECT_LOG_ODDS = 30.0
+
+
 class LogitDemand(Demand):
     """Multinomial logit demand with an outside good.
 
@@ -203,7 +208,9 @@ class LogitDemandSpec(DemandSpec):
     def best_response(self, ms, i, A):
         """The first-order condition ``p - c = mu / (1 - s_i(p))`` has a unique root because ``s_i``
         falls in ``p``; ``1 - s_i`` is computed directly as the share of the other options, so that a
-        dominant product does not lose it to cancellation.
+        dominant product does not lose it to cancellation. When the product dominates so much that the bracket
+        ``mu / (1 - s_i(c))`` is astronomically wide (or ``1 - s_i`` underflows, as with a tiny ``mu``) the root
+        comes from its closed form in log space (:meth:`_markup`).
 
         Parameters
         ----------
@@ -219,7 +226,32 @@ class LogitDemandSpec(DemandSpec):
         return x, profit_with(ms, i, A, x)
 
     def _response(self, ms, i, row):
-        return float(ms.cost[i] + self._markup(ms.cost[[i]], [i], row))
+        mu = self.scalars[1]
+        c = ms.cost[i]
+        if self._log_odds(ms.cost[[i]], [i], row) > _DIRECT_LOG_ODDS:
+            return float(c + self._markup(ms.cost[[i]], [i], row))
+        prof = row.copy()
+
+        def rest(p):
+            prof[i] = p
+            return self.share_complement(prof, [i])
+
+        def h(p):
+            return p - c - mu / rest(p)
+
+        hi = c + mu / rest(c)
+        if h(hi) <= 0:
+            return hi
+        return float(optimize.brentq(h, c, hi, xtol=1e-15 * max(1.0, c, mu), rtol=1e-15, maxiter=1000))
+
+    def _log_odds(self, c, own, row):
+        """``K = log sum_own exp((a_k - c_k)/mu) - log(sum_others exp((a_j - p_j)/mu) + exp(a_0/mu))``: the log odds
+        of the products ``own`` priced at cost against every other option."""
+        a0, mu = self.scalars[0], self.scalars[1]
+        mask = np.zeros(self.vector.size, bool)
+        mask[np.asarray(own)] = True
+        others = np.append((self.vector[~mask] - row[~mask]) / mu, a0 / mu)
+        return float(special.logsumexp((self.vector[mask] - c) / mu) - special.logsumexp(others))
 
     def _markup(self, c, own, row):
         """The common best-response markup of the products ``own`` (costs ``c``) against ``row``.
@@ -232,12 +264,7 @@ class LogitDemandSpec(DemandSpec):
         markup: Li and Huh, 2011, "Pricing multiple products with the multinomial logit and nested logit
         models: concavity and implications", MSOM 13(4), from memory).
         """
-        a0, mu = self.scalars[0], self.scalars[1]
-        mask = np.zeros(self.vector.size, bool)
-        mask[np.asarray(own)] = True
-        others = np.append((self.vector[~mask] - row[~mask]) / mu, a0 / mu)
-        K = special.logsumexp((self.vector[mask] - c) / mu) - special.logsumexp(others)
-        return mu * (1.0 + float(special.wrightomega(K - 1.0)))
+        return self.scalars[1] * (1.0 + float(special.wrightomega(self._log_odds(c, own, row) - 1.0)))
 
     def best_response_multi(self, ms, i, own, row):
         """A multi-product firm sets one common markup ``m`` on its products, solving
@@ -254,9 +281,24 @@ class LogitDemandSpec(DemandSpec):
         -------
         ndarray of shape (n_products,)
         """
-        p = row.copy()
-        p[own] = ms.cost[own] + self._markup(ms.cost[own], own, row)
-        return p
+        mu = self.scalars[1]
+        c = ms.cost[own]
+        if self._log_odds(c, own, row) > _DIRECT_LOG_ODDS:
+            p = row.copy()
+            p[own] = c + self._markup(c, own, row)
+            return p
+
+        def prof_at(m):
+            p = row.copy()
+            p[own] = c + m
+            return p
+
+        def h(m):
+            return m - mu / self.share_complement(prof_at(m), own)
+
+        hi = mu / self.share_complement(prof_at(0.0), own)
+        m = hi if h(hi) <= 0 else optimize.brentq(h, 0.0, hi, xtol=1e-15 * max(1.0, mu), rtol=1e-15, maxiter=1000)
+        return prof_at(m)
 
     def nash_start(self, ms):
         """Symmetric-share guess ``c + mu (1 + 1/n)`` (the best-response iteration finishes the job).
