@@ -101,10 +101,10 @@ def _threshold_names(cfg: dict) -> list[str]:
         out += [f"partial_gain.finite[{k + 1}][{j + 1}]" for k in range(len(cfg["punishments"]))]
         if cfg["trigger_price"]:
             out += [f"trigger_price.{x}[{j + 1}]" for x in _TP_FIELDS]
-    if cfg.get("any_punishment") is not None:
-        out += _any_punishment_names(n)
     out += ["tied_firms.grim"] + [f"tied_firms.finite[{j + 1}]" for j in range(len(cfg["punishments"]))]
     out.append("tied_firms.stick_carrot")
+    if cfg.get("any_punishment") is not None:
+        out += _any_punishment_names(n)
     return out
 
 
