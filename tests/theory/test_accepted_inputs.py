@@ -38,7 +38,7 @@ from sim.theory.verdicts import TIE_RTOL, not_sustainable_reason, tied_firms
 REASONS = {"below_nash", "no_gain", "incentive", "solver"}
 FAST = settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow,
                                                                        HealthCheck.filter_too_much])
-LARGE = settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.too_slow,
+LARGE = settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.too_slow,
                                                                          HealthCheck.filter_too_much])
 
 
