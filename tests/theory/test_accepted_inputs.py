@@ -357,3 +357,24 @@ def test_capacity_markets_compute_or_say_why_large(data):
     """Capacity markets with up to eight firms."""
     res = solve_capacity(*data.draw(capacity_tables(8)))
     assert res.collusion.grim.shape == (res.n_firms,)
+
+
+def test_a_failing_solver_is_reported_on_its_scheme_alone(monkeypatch):
+    """When the stick-and-carrot search fails, that scheme says 'solver did not converge: ...' and grim trigger
+    keeps its closed form: (pi_D - pi_C) / (pi_D - pi_N) = 9/17 for the symmetric Cournot duopoly with intercept
+    100, slope 1 and cost 10 (Friedman, 1971; the profits 1012.5, 1139.0625 and 900 from the Cournot and monopoly
+    closed forms)."""
+    import sim.theory.thresholds as thresholds_module
+
+    def fails(*args, **kwargs):
+        raise SolverError("no bracket found for the punishment level")
+
+    monkeypatch.setattr(thresholds_module, "stick_and_carrot", fails)
+    table = {"demand": "linear", "model": "cournot", "intercept": 100.0, "slope": 1.0, "cost": 10.0, "n_firms": 2}
+    res = solve(table, "joint", deltas=(0.6,))
+    th = res.report["thresholds"]
+    assert th["grim"]["market"] == pytest.approx(9 / 17, rel=1e-12)
+    reason = th["stick_carrot"]["not_sustainable"]
+    assert reason["code"] == "solver" and reason["text"].startswith("solver did not converge: no bracket")
+    notes = [p for p in res.report["partial_collusion"] if p["scheme"] == "stick_carrot"]
+    assert notes and notes[0]["note"].startswith("solver did not converge")
