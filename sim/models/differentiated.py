@@ -196,7 +196,8 @@ class DifferentiatedDemandSpec(DemandSpec):
         float
         """
         if self.scalars[1] > 0:
-            return self.vector.max() / (self.scalars[0] * self.scalars[1]) * 2
+            with np.errstate(over="ignore"):  # a vanishing g: no finite output floods the market (inf)
+                return self.vector.max() / (self.scalars[0] * self.scalars[1]) * 2
         return hi.max() * 2
 
     def best_response(self, ms, i, A):

@@ -19,7 +19,7 @@ import warnings
 
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, given, reject, settings
+from hypothesis import HealthCheck, event, given, reject, settings
 from hypothesis import strategies as st
 from scipy.special import logsumexp
 
@@ -38,7 +38,7 @@ from sim.theory.verdicts import TIE_RTOL, not_sustainable_reason, tied_firms
 REASONS = {"below_nash", "no_gain", "incentive", "solver"}
 FAST = settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow,
                                                                        HealthCheck.filter_too_much])
-LARGE = settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.too_slow,
+LARGE = settings(max_examples=50, deadline=None, suppress_health_check=[HealthCheck.too_slow,
                                                                          HealthCheck.filter_too_much])
 
 
@@ -162,6 +162,7 @@ def solve(table: dict, agreement: str, punishments=(1, 3), deltas=()) -> Thresho
         except SolverError as e:
             # the stage game (static Nash) could not be certified: one line saying so, no traceback
             assert "\n" not in str(e) and str(e)
+            event("stage game: solver did not converge")
             return None
 
 
@@ -186,6 +187,9 @@ def check_result(res: ThresholdsResult | None) -> None:
     """Numbers in range, documented results elsewhere, and a result that survives JSON."""
     if res is None:
         return
+    for row in res.scheme_rows():
+        event(f"{row['key']}: " + ("not sustainable, " + row["not_sustainable"]["code"] if row["market"] is None
+                                   else f"{len(row['tied_firms'])} firm(s) binding"))
     doc = res.to_dict()
     assert ThresholdsResult.from_dict(json.loads(json.dumps(doc, allow_nan=False))).to_dict() == doc
     profits = res.report["profits"]
