@@ -232,7 +232,8 @@ def test_isoelastic_markets_compute_or_say_why(data, agreement):
 
 
 def solve_capacity(table: dict, collusion: dict):
-    """The capacity thresholds of an accepted market with warnings as errors; rejected when the validator refuses."""
+    """The capacity thresholds of an accepted market with warnings as errors (None when the mixed static equilibrium
+    could not be certified, a documented one-line result); rejected when the validator refuses."""
     try:
         market = capacity_market_from_dict(table)
         require_spare_capacity(market)
@@ -242,7 +243,13 @@ def solve_capacity(table: dict, collusion: dict):
         reject()
     with warnings.catch_warnings():
         warnings.simplefilter("error")
-        return capacity_thresholds(market, agreement)
+        try:
+            return capacity_thresholds(market, agreement)
+        except SolverError as e:
+            # the mixed static equilibrium could not be certified: one line saying so, no traceback
+            assert "\n" not in str(e) and str(e)
+            event("static equilibrium: solver did not converge")
+            return None
 
 
 @FAST
@@ -251,6 +258,8 @@ def test_capacity_markets_compute_or_say_why(data):
     """Price competition with capacities: each firm's thresholds in [0, 1) or nan (not sustainable), a binding
     firm among the ties, and a result that survives JSON."""
     res = solve_capacity(*data.draw(capacity_tables(4)))
+    if res is None:
+        return
     coll = res.collusion
     n = res.n_firms
     for values, market, binding, _ties in ((coll.grim, coll.grim_market, coll.grim_binding, coll.grim_ties),
@@ -360,7 +369,7 @@ def test_markets_compute_or_say_why_large(kind, data, agreement):
 def test_capacity_markets_compute_or_say_why_large(data):
     """Capacity markets with up to eight firms."""
     res = solve_capacity(*data.draw(capacity_tables(8)))
-    assert res.collusion.grim.shape == (res.n_firms,)
+    assert res is None or res.collusion.grim.shape == (res.n_firms,)
 
 
 def test_a_failing_solver_is_reported_on_its_scheme_alone(monkeypatch):
