@@ -237,14 +237,16 @@ def solve_capacity(table: dict, collusion: dict):
     try:
         market = capacity_market_from_dict(table)
         require_spare_capacity(market)
-        require_static_equilibrium(market)
         agreement = agreement_of(collusion, market.spec().n_firms)
     except InputError:
         reject()
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         try:
+            require_static_equilibrium(market)  # refuses (InputError) a static equilibrium the model cannot compute
             return capacity_thresholds(market, agreement)
+        except InputError:
+            reject()
         except SolverError as e:
             # the mixed static equilibrium could not be certified: one line saying so, no traceback
             assert "\n" not in str(e) and str(e)
