@@ -31,6 +31,7 @@ from sim.theory.capacity_analysis import (
     capacity_market_from_dict,
     capacity_thresholds,
     require_spare_capacity,
+    require_static_equilibrium,
 )
 
 __all__ = ["CAPACITY_TABLES", "CapacityResult", "PreparedCapacity", "prepare_capacity", "run_capacity"]
@@ -84,6 +85,7 @@ def prepare_capacity(doc: dict) -> PreparedCapacity:
         raise InputError("market", "missing: the [market] table describes the market")
     market = capacity_market_from_dict(doc["market"])
     require_spare_capacity(market)
+    require_static_equilibrium(market)
     agreement = agreement_of(doc.get("collusion", {}), market.spec().n_firms)
     if agreement["price"] is not None:
         market.agreement(agreement["rule"], agreement["shares"], agreement["price"])

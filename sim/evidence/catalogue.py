@@ -106,6 +106,16 @@ ENTRIES: dict[str, Entry] = {
                                   "The firm with the highest critical discount factor.", "largest per-firm threshold"),
     "binding": Entry("binding firm", "firm number", "The firm with the highest critical discount factor.",
                      "largest per-firm threshold"),
+    "tied_firms.grim": Entry("firms binding equally, grim trigger", "firms",
+                             "How many firms have the market's critical discount factor (within a relative 1e-9); "
+                             "1 when the binding firm is unique, empty when not sustainable.",
+                             "per-firm thresholds within the tie tolerance of the largest"),
+    "tied_firms.finite": Entry("firms binding equally, Nash reversion for T periods", "firms",
+                               "How many firms have the market's critical discount factor (within a relative 1e-9).",
+                               "per-firm thresholds within the tie tolerance of the largest"),
+    "tied_firms.stick_carrot": Entry("firms binding equally, stick and carrot", "firms",
+                                     "How many firms have the market's critical discount factor (within a relative "
+                                     "1e-9).", "per-firm thresholds within the tie tolerance of the largest"),
     "punishment": Entry("punishment length T", "periods", "Periods of static Nash after a deviation.", "given"),
     "punishment_level.stick_carrot": Entry("stick-and-carrot punishment level", "action (quantity or price)",
                                            "The common action of the one-period punishment.", "Abreu (1986)"),

@@ -10,6 +10,7 @@ from sim.evidence import any_punishment as anyp
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.thresholds_parts import part_figures, part_json, part_lines
 from sim.theory.analysis import ThresholdsResult
+from sim.theory.verdicts import TIE_RTOL, firm_list
 
 __all__ = ["AGREEMENT_NAMES", "RENDERER", "as_json", "console", "describe_market", "figures"]
 
@@ -70,10 +71,11 @@ def _threshold_lines(res: ThresholdsResult) -> list[str]:
     act = "quantity" if res.products["quantity_setting"] else "price"
     lines = ["Critical discount factors ('-': not sustainable at any discount factor below one)"]
     hdr = ["scheme", "market", "binding"] + [f"firm {i + 1}" for i in range(res.n_firms)]
-    rows = [[r["scheme"], r["market"], f"firm {r['binding_firm']}", *r["per_firm"]] for r in res.scheme_rows()]
+    rows = [[r["scheme"], r["market"], _binding_cell(r), *r["per_firm"]] for r in res.scheme_rows()]
     if res.any_punishment is not None:
         rows.append(anyp.scheme_row(res.any_punishment, res.n_firms))
     lines.append(table(hdr, rows))
+    lines += _verdict_lines(res)
     sc = th["stick_carrot"]
     if sc["market"] is not None:
         lines.append(f"  stick and carrot: one period at common {act} {fmt_num(sc['punishment_action'])} "
@@ -88,6 +90,40 @@ def _threshold_lines(res: ThresholdsResult) -> list[str]:
     if res.any_punishment is not None:
         lines += anyp.console_lines(res.any_punishment, res.products["quantity_setting"])
     return lines
+
+
+def _binding_cell(row: dict) -> str:
+    tied = row.get("tied_firms") or [row["binding_firm"]]
+    if row["market"] is None or len(tied) == 1:
+        return f"firm {row['binding_firm']}"
+    return "firms " + ", ".join(str(i) for i in tied)
+
+
+def _verdict_lines(res: ThresholdsResult) -> list[str]:
+    """Ties between binding firms (one line per set of tied firms) and the reason of every scheme that is not
+    sustainable (results stored before these were recorded show neither)."""
+    rows = res.scheme_rows()
+    ties: dict = {}
+    out = []
+    for r in rows:
+        tied = r.get("tied_firms") or []
+        if r["market"] is not None and len(tied) > 1:
+            ties.setdefault(tuple(tied), []).append(r["scheme"])
+    for tied, schemes in ties.items():
+        where = "every scheme" if len(schemes) == len(rows) else _and(schemes)
+        out.append(f"  {firm_list(tied)} bind equally under {where} (thresholds equal within a relative "
+                   f"{TIE_RTOL:g})")
+    reasons: dict = {}
+    for r in rows:
+        if r["market"] is None and r.get("not_sustainable"):
+            reasons.setdefault(r["not_sustainable"]["text"], []).append(r["scheme"])
+    for text, schemes in reasons.items():
+        out.append(f"  {_and(schemes)}: not sustainable -- {text}")
+    return out
+
+
+def _and(words: list) -> str:
+    return words[0] if len(words) == 1 else f"{', '.join(words[:-1])} and {words[-1]}"
 
 
 def _partial_lines(res: ThresholdsResult) -> list[str]:

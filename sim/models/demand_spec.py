@@ -455,6 +455,26 @@ class DemandSpec:
         """
         return math.inf
 
+    def proportional_prices(self, nash_prices: np.ndarray, qn: np.ndarray, lam: np.ndarray) -> np.ndarray:
+        """Prices at which the products sell ``lam * qn`` (price competition; default:
+        :meth:`prices_for_quantities`). A system overrides it where the static-Nash prices give the path
+        more accurately than the quantities (quantities that underflow to zero, for example).
+
+        Parameters
+        ----------
+        nash_prices : ndarray of shape (n_products,)
+            The static-Nash prices, at which the products sell ``qn``.
+        qn : ndarray of shape (n_products,)
+            The static-Nash quantities.
+        lam : ndarray of shape (n_rows,)
+            Scales of the quantities.
+
+        Returns
+        -------
+        ndarray of shape (n_rows, n_products)
+        """
+        return self.prices_for_quantities(lam[:, None] * qn[None, :])
+
     def proportional_slope(self, qn: np.ndarray, lam: float):
         """Derivative of ``prices_for_quantities(lam * qn)`` with respect to ``lam``, or None.
 

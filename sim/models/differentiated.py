@@ -125,7 +125,8 @@ class DifferentiatedDemandSpec(DemandSpec):
     def flooding_quantity(self, ms, hi):
         """With ``g > 0``, rivals selling ``2 max(a) / (b g)`` each drive every price to zero."""
         if self.scalars[1] > 0:
-            return self.vector.max() / (self.scalars[0] * self.scalars[1]) * 2
+            with np.errstate(over="ignore", divide="ignore"):  # a vanishing g: no finite output floods the market (inf)
+                return self.vector.max() / (self.scalars[0] * self.scalars[1]) * 2
         return hi.max() * 2
 
     @doc_sections(DemandSpec.best_response)
@@ -231,7 +232,12 @@ def _box_qp(H: np.ndarray, r: np.ndarray, upper: np.ndarray) -> np.ndarray:
     """Maximise ``r'q - q'Hq/2`` over ``0 <= q <= upper`` for positive definite ``H``: rewritten as
     bounded least squares and solved exactly by the bounded-variable least-squares method (Stark and
     Parker, 1995) in :func:`scipy.optimize.lsq_linear`."""
-    L = np.linalg.cholesky(H)
+    try:
+        L = np.linalg.cholesky(H)
+    except np.linalg.LinAlgError:
+        # substitution 1 makes a multi-product firm's own products perfect substitutes: H is singular
+        raise SolverError("differentiated demand: a multi-product firm's quantity problem is singular (its products "
+                          "are perfect substitutes, substitution = 1)") from None
     rhs = np.linalg.solve(L, r)
     res = optimize.lsq_linear(L.T, rhs, bounds=(np.zeros(r.size), upper), method="bvls", tol=1e-15)
     q = np.clip(res.x, 0, upper)

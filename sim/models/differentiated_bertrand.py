@@ -159,7 +159,8 @@ def _entries(p, a, b, g, q, dq, S, p0) -> list:
             w = p[j] - a[j] + b * g * tot  # >= 0 while j sells nothing
             dw = b * g * dtot
             if dw < 0:
-                entering.append((p0 + w / -dw, j))
+                with np.errstate(over="ignore"):  # a vanishing g: the product enters beyond any price (inf)
+                    entering.append((p0 + w / -dw, j))
     return entering
 
 

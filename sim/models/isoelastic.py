@@ -21,6 +21,10 @@ from sim.models.demand_spec import DemandSpec, profit_with
 __all__ = ["IsoelasticDemand", "IsoelasticDemandSpec"]
 
 
+#: the largest monopoly output the model accepts, as a power of ten
+_LOG10_MAX_OUTPUT = 100
+
+
 class IsoelasticDemand(Demand):
     """Constant-elasticity demand for a homogeneous good: ``P(Q) = scale * Q**(-1/elasticity)``.
 
@@ -66,7 +70,8 @@ class IsoelasticDemandSpec(DemandSpec):
 
     @doc_sections(DemandSpec.check_market)
     def check_market(self, model, cost, prefix):
-        """Positive costs of at least a millionth of the scale."""
+        """Positive costs of at least a millionth of the scale, and high enough that the monopoly output
+        ``(scale/cost)^elasticity`` stays below ``1e100``."""
         key = f"{prefix}.cost"
         bad = np.flatnonzero(cost <= 0)
         if bad.size:
@@ -77,6 +82,15 @@ class IsoelasticDemandSpec(DemandSpec):
         if low.size:
             raise InputError(key, f"isoelastic demand needs costs of at least 1e-6 of the scale "
                                   f"({1e-6 * self.scalars[0]:g}); firm {low[0] + 1} has {cost[low[0]]:g}")
+        # a steep demand magnifies the ratio: (scale/cost)^elasticity must stay far inside the floating-point range
+        # (outputs up to 1e100, so that profits and their differences stay finite too)
+        A, eps = self.scalars[0], self.scalars[1]
+        floor = A * 10.0 ** (-_LOG10_MAX_OUTPUT / eps)
+        low = np.flatnonzero(cost < floor)
+        if low.size:
+            raise InputError(key, f"with elasticity {eps:g} isoelastic demand needs costs of at least {floor:g} (the "
+                                  f"monopoly output (scale/cost)^elasticity at most 1e{_LOG10_MAX_OUTPUT}); firm "
+                                  f"{low[0] + 1} has {cost[low[0]]:g}")
 
     @doc_sections(DemandSpec.inverse_demand)
     def inverse_demand(self, q):

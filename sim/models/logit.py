@@ -9,7 +9,7 @@ ch. 7).
 from __future__ import annotations
 
 import numpy as np
-from scipy import optimize
+from scipy import optimize, special
 
 from sim.core.docs import doc_sections
 from sim.core.params import PerFirm, Real
@@ -18,6 +18,11 @@ from sim.models.demand_base import MAX_MAGNITUDE, Demand
 from sim.models.demand_spec import DemandSpec, profit_with
 
 __all__ = ["LogitDemand", "LogitDemandSpec"]
+
+
+#: above these log odds at cost (a bracket wider than ``exp(30) mu``) best responses use the closed form in log space;
+#: below, Brent's method on the first-order condition in prices
+_DIRECT_LOG_ODDS = 30.0
 
 
 class LogitDemand(Demand):
@@ -144,20 +149,29 @@ class LogitDemandSpec(DemandSpec):
         """A firm's optimal markup never exceeds ``mu / s_0`` evaluated with every price at cost, and the
         joint-profit markup is ``mu / s_0`` as well; twice that (plus ten ``mu``) bounds every candidate."""
         c = ms.cost
+        mu = self.scalars[1]
         s = self.direct_demand(c[None, :])[0] / self.scalars[2]
-        return c + 2.0 * self.scalars[1] / max(1e-300, 1.0 - s.sum()) + 10.0 * self.scalars[1]
+        if 1.0 - s.sum() > 1e-12:
+            return c + 2.0 * mu / (1.0 - s.sum()) + 10.0 * mu
+        # the inside goods take (nearly) the whole market at cost: ``mu / s_0`` would overflow, and the
+        # joint-profit markup (the largest any firm charges, with every rival price removed) bounds it instead
+        return c + 2.0 * self._markup(c, np.arange(c.size), np.full(c.size, np.inf)) + 10.0 * mu
 
     @doc_sections(DemandSpec.best_response)
     def best_response(self, ms, i, A):
         """The first-order condition ``p - c = mu / (1 - s_i(p))`` has a unique root because ``s_i``
         falls in ``p``; ``1 - s_i`` is computed directly as the share of the other options, so that a
-        dominant product does not lose it to cancellation."""
+        dominant product does not lose it to cancellation. When the product dominates so much that the bracket
+        ``mu / (1 - s_i(c))`` is astronomically wide (or ``1 - s_i`` underflows, as with a tiny ``mu``) the root
+        comes from its closed form in log space (:meth:`_markup`)."""
         x = np.array([self._response(ms, i, row) for row in A])
         return x, profit_with(ms, i, A, x)
 
     def _response(self, ms, i, row):
         mu = self.scalars[1]
         c = ms.cost[i]
+        if self._log_odds(ms.cost[[i]], [i], row) > _DIRECT_LOG_ODDS:
+            return float(c + self._markup(ms.cost[[i]], [i], row))
         prof = row.copy()
 
         def rest(p):
@@ -170,9 +184,29 @@ class LogitDemandSpec(DemandSpec):
         hi = c + mu / rest(c)
         if h(hi) <= 0:
             return hi
-        # the bracket can be astronomically wide for a dominant product: tolerances relative to the cost
-        # and mu, not to the bracket
         return float(optimize.brentq(h, c, hi, xtol=1e-15 * max(1.0, c, mu), rtol=1e-15, maxiter=1000))
+
+    def _log_odds(self, c, own, row):
+        """``K = log sum_own exp((a_k - c_k)/mu) - log(sum_others exp((a_j - p_j)/mu) + exp(a_0/mu))``: the log odds
+        of the products ``own`` priced at cost against every other option."""
+        a0, mu = self.scalars[0], self.scalars[1]
+        mask = np.zeros(self.vector.size, bool)
+        mask[np.asarray(own)] = True
+        others = np.append((self.vector[~mask] - row[~mask]) / mu, a0 / mu)
+        return float(special.logsumexp((self.vector[mask] - c) / mu) - special.logsumexp(others))
+
+    def _markup(self, c, own, row):
+        """The common best-response markup of the products ``own`` (costs ``c``) against ``row``.
+
+        The first-order condition ``m = mu / (1 - S_f(m))`` reads, with ``z = m / mu``,
+        ``z = 1 + exp(K - z)`` where ``K = log sum_own exp((a_k - c_k)/mu) - log(sum_others exp((a_j - p_j)/mu)
+        + exp(a_0/mu))``; its root is ``z = 1 + omega(K - 1)`` with ``omega`` the Wright omega function
+        (``omega + log omega = x``, the Lambert W of ``exp(x)``). Computing ``K`` with log-sum-exp keeps the
+        markup exact when ``mu`` is tiny and a share would underflow (the Lambert-W form of the logit optimal
+        markup: Li and Huh, 2011, "Pricing multiple products with the multinomial logit and nested logit
+        models: concavity and implications", MSOM 13(4), from memory).
+        """
+        return self.scalars[1] * (1.0 + float(special.wrightomega(self._log_odds(c, own, row) - 1.0)))
 
     @doc_sections(DemandSpec.best_response_multi)
     def best_response_multi(self, ms, i, own, row):
@@ -180,6 +214,10 @@ class LogitDemandSpec(DemandSpec):
         ``m = mu / (1 - S_f)``; the root is unique because ``S_f`` falls as ``m`` rises."""
         mu = self.scalars[1]
         c = ms.cost[own]
+        if self._log_odds(c, own, row) > _DIRECT_LOG_ODDS:
+            p = row.copy()
+            p[own] = c + self._markup(c, own, row)
+            return p
 
         def prof_at(m):
             p = row.copy()
@@ -221,7 +259,27 @@ class LogitDemandSpec(DemandSpec):
     @doc_sections(DemandSpec.proportional_limit)
     def proportional_limit(self, qn):
         """Just below ``size / sum(qn)``: the inside goods cannot take the whole market."""
-        return (1.0 - 1e-12) * self.scalars[2] / qn.sum()
+        total = qn.sum()
+        # no inside sales at double precision: every scale is attainable
+        return (1.0 - 1e-12) * self.scalars[2] / total if total > 0 else np.inf
+
+    @doc_sections(DemandSpec.proportional_prices)
+    def proportional_prices(self, nash_prices, qn, lam):
+        """``p_i(lam) = pN_i - mu (log lam + log(1 - S) - log(1 - lam S))``, ``S`` the inside share at Nash: the
+        inverse logit demand of ``lam * qn`` (:meth:`prices_for_quantities`) written relative to the Nash prices,
+        so that a Nash share that underflows to zero keeps its product on the path."""
+        if np.all(qn > 0) and qn.sum() < (1.0 - 1e-9) * self.scalars[2]:
+            return self.prices_for_quantities(lam[:, None] * qn[None, :])
+        # log s_0 and log(1 - s_0) at the Nash prices by log-sum-exp, so that neither share is lost to underflow;
+        # then log(1 - lam S) = log(s_0 + (1 - lam)(1 - s_0))
+        a0, mu = self.scalars[0], self.scalars[1]
+        u = (self.vector - nash_prices) / mu
+        total = special.logsumexp(np.append(u, a0 / mu))
+        log_s0, log_inside = a0 / mu - total, special.logsumexp(u) - total
+        with np.errstate(divide="ignore"):  # log(1 - lam) at lam = 1 is -inf: the Nash prices themselves
+            rest = np.logaddexp(log_s0, np.log1p(-lam) + log_inside)
+        shift = np.log(lam) + log_s0 - rest
+        return nash_prices[None, :] - mu * shift[:, None]
 
     @doc_sections(DemandSpec.proportional_slope)
     def proportional_slope(self, qn, lam):

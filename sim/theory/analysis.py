@@ -80,7 +80,11 @@ class ThresholdsResult(Record):
         (the owning firm, counted from 1); ``quantity_setting`` (bool) and ``n_firms``.
     report : dict
         :meth:`sim.ThresholdReport.to_dict`: the stage game's profits and actions, the thresholds of every
-        scheme with the binding firm, partial collusion and the binding firm's sensitivity.
+        scheme with the binding firm, partial collusion and the binding firm's sensitivity. Each scheme also
+        lists ``tied_firms``: the firms (from 1) whose thresholds equal the market's within a relative 1e-9
+        (:data:`sim.theory.verdicts.TIE_RTOL`; the binding firm is one of them), and, when the scheme sustains
+        the agreement at no discount factor below one, ``not_sustainable``: ``code`` (``below_nash``,
+        ``no_gain``, ``incentive`` or ``solver``), ``firms`` and ``text`` (:mod:`sim.theory.verdicts`).
     punishments : list of int
     deltas : list of float
     trigger_price : list of dict or None

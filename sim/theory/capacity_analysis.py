@@ -40,7 +40,7 @@ from sim.models.capacity_pricing import (
 )
 
 __all__ = ["CAPACITY_MODEL", "CapacityThresholds", "agreement_of", "capacity_market_from_dict", "capacity_thresholds",
-           "is_capacity_market", "require_spare_capacity"]
+           "is_capacity_market", "require_spare_capacity", "require_static_equilibrium"]
 
 #: the value of ``market.model`` that selects price competition with capacity constraints
 CAPACITY_MODEL = "capacity"
@@ -117,6 +117,22 @@ def require_spare_capacity(market: CapacityPricing, prefix: str = "market") -> N
         raise InputError(f"{prefix}.capacity", f"total capacity {s.total_capacity:g} must exceed the demand {demand:g} "
                                                f"{where}: otherwise every firm sells its capacity at the "
                                                f"market-clearing price and there is nothing to coordinate on")
+
+
+def require_static_equilibrium(market: CapacityPricing) -> None:
+    """Refuse, before any work, a market whose static equilibrium this model cannot compute (a mixed equilibrium
+    with linear demand and proportional rationing among more than two firms); every threshold needs it.
+
+    Parameters
+    ----------
+    market : CapacityPricing
+
+    Raises
+    ------
+    InputError
+        On ``market.rationing``.
+    """
+    market.static_equilibrium()
 
 
 def agreement_of(collusion: dict, n_firms: int, prefix: str = "collusion") -> dict:

@@ -142,7 +142,8 @@ def _proportional_maximum(ms: MarketSpec) -> np.ndarray:
             "'proportional' needs per-product demand; with homogeneous Bertrand write the agreed "
             "shares as the demand's split weights and use 'joint' or 'symmetric'",
         )
-    qn = static_nash(ms).quantities
+    nash = static_nash(ms)
+    qn = nash.quantities
     d = ms.demand
     if ms.quantity_setting:
         with np.errstate(divide="ignore"):
@@ -152,8 +153,9 @@ def _proportional_maximum(ms: MarketSpec) -> np.ndarray:
         lam_hi = min(1.0, d.proportional_limit(qn))
 
     def profile(lam: np.ndarray) -> np.ndarray:
-        q = lam[:, None] * qn[None, :]
-        return q if ms.quantity_setting else d.prices_for_quantities(q)
+        if ms.quantity_setting:
+            return lam[:, None] * qn[None, :]
+        return d.proportional_prices(nash.prices, qn, lam)
 
     def path_slope(lam):
         return qn if ms.quantity_setting else d.proportional_slope(qn, lam)

@@ -114,7 +114,9 @@ def _finite_scalar(c: float, d: float, n: float, T: int) -> float:
     def f(x):
         return x * (1.0 - x**T) / (1.0 - x) - K if x < 1 else T - K
 
-    return float(optimize.brentq(f, 0.0, 1.0, xtol=1e-16, rtol=1e-15, maxiter=500))
+    root = float(optimize.brentq(f, 0.0, 1.0, xtol=1e-16, rtol=1e-15, maxiter=500))
+    # K a rounding error below T puts the root at one: no discount factor below one sustains it
+    return root if root < 1.0 else math.nan
 
 
 def threshold_sensitivity(collusive: float, deviation: float, nash: float, T: int | None = None) -> dict:

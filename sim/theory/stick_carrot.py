@@ -78,7 +78,7 @@ def _sc_parts(ms: MarketSpec, xs: np.ndarray, pi_c: np.ndarray, pi_d: np.ndarray
         pi_dp = np.stack([best_response(ms, i, P)[1] for i in range(ms.n_firms)], axis=1)
     room = pi_c[None, :] - pi_p
     scale = max(1.0, float(np.abs(pi_c).max()))
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):  # a ratio beyond the float range is inf
         d1 = np.where(room > _TOL * scale, (pi_d - pi_c)[None, :] / room, np.inf)
         d2 = np.where(room > _TOL * scale, (pi_dp - pi_p) / room, np.inf)
     d1 = np.maximum(d1, 0.0)
@@ -138,23 +138,28 @@ def stick_and_carrot(market, stage: StageGame | None = None, n_grid: int | None 
         return StickCarrot("stick_carrot", np.full(n, np.nan), math.nan, 0, None, math.nan,
                            np.full(n, np.nan), np.full(n, np.nan), np.full(n, np.nan), "")
     a, b = xs[max(k - 1, 0)], xs[min(k + 1, n_grid - 1)]
-    res = optimize.minimize_scalar(
-        lambda t: min(1e300, float(np.maximum(*F(t))[0])), bounds=(a, b), method="bounded",
-        options={"xatol": 1e-14 * max(1.0, x_hi), "maxiter": 1000},
-    )
+    # a level at which no delta works is capped at 1e300; Brent's parabola through such values overflows (inf - inf
+    # is nan, and the step falls back to a golden section)
+    with np.errstate(over="ignore", invalid="ignore"):
+        res = optimize.minimize_scalar(
+            lambda t: min(1e300, float(np.maximum(*F(t))[0])), bounds=(a, b), method="bounded",
+            options={"xatol": 1e-14 * max(1.0, x_hi), "maxiter": 1000},
+        )
     x_best, v_best = (float(res.x), float(res.fun)) if res.fun <= total[k] else (float(xs[k]), float(total[k]))
     # exact crossing of the two constraints, when the optimum sits on it
     g = lambda t: float(F(t)[0][0] - F(t)[1][0])  # noqa: E731
     h = 1e-6 * max(1.0, x_hi)
-    try:
-        ga, gb = g(max(x_lo, x_best - h)), g(min(x_hi, x_best + h))
-        if np.isfinite(ga) and np.isfinite(gb) and ga * gb < 0:
-            xr = optimize.brentq(g, max(x_lo, x_best - h), min(x_hi, x_best + h), xtol=1e-16, rtol=1e-15)
-            vr = float(np.maximum(*F(xr))[0])
-            if vr <= v_best + 1e-12:
-                x_best, v_best = float(xr), vr
-    except ValueError:
-        pass
+    # inf - inf where neither constraint can hold is nan: no crossing there
+    with np.errstate(invalid="ignore"):
+        try:
+            ga, gb = g(max(x_lo, x_best - h)), g(min(x_hi, x_best + h))
+            if np.isfinite(ga) and np.isfinite(gb) and ga * gb < 0:
+                xr = optimize.brentq(g, max(x_lo, x_best - h), min(x_hi, x_best + h), xtol=1e-16, rtol=1e-15)
+                vr = float(np.maximum(*F(xr))[0])
+                if vr <= v_best + 1e-12:
+                    x_best, v_best = float(xr), vr
+        except (ValueError, RuntimeError):  # no sign change, or no convergence: the bracketed optimum stands
+            pass
     d1, d2, P, pi_p, pi_dp = _sc_parts(ms, np.array([x_best]), pi_c, pi_d)
     per_firm = np.maximum(d1[0], d2[0])
     per_firm = np.where(per_firm >= 1.0, np.nan, per_firm)

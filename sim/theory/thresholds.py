@@ -42,11 +42,11 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
-from sim.core.errors import InputError
+from sim.core.errors import InputError, SolverError
 from sim.models.market import MarketSpec
 from sim.theory.equilibrium import StageGame, best_deviation, deviation_actions, stage_game
 from sim.theory.outcome import outcome_of
@@ -64,6 +64,7 @@ from sim.theory.schemes import (
     threshold_sensitivity,
 )
 from sim.theory.stick_carrot import StickCarrot, stick_and_carrot
+from sim.theory.verdicts import not_sustainable_reason, solver_reason, tied_firms
 
 __all__ = [
     "PartialCollusion",
@@ -219,6 +220,9 @@ class ThresholdReport:
         One per (delta, scheme) asked for.
     sensitivity : dict
         Comparative statics of the binding firm's grim threshold and finite-reversion thresholds.
+    failures : dict
+        The schemes (``"finite[j]"``, ``"stick_carrot"``, ``"partial[k]"``, 0-based) whose numerical method
+        failed, with the reason (:func:`sim.theory.verdicts.solver_reason`); those schemes hold ``nan``.
     """
 
     stage: StageGame
@@ -227,6 +231,7 @@ class ThresholdReport:
     stick_carrot: StickCarrot
     partial: list
     sensitivity: dict
+    failures: dict = field(default_factory=dict)
 
     @property
     def best(self) -> SchemeThreshold:
@@ -235,8 +240,21 @@ class ThresholdReport:
         ok = [c for c in cands if c.sustainable]
         return min(ok, key=lambda c: c.market) if ok else self.grim
 
+    def _verdicts(self, out: dict, scheme: SchemeThreshold, key: str) -> None:
+        """Add ``tied_firms`` (firm numbers from 1 that bind equally, within :data:`sim.theory.verdicts.TIE_RTOL`)
+        and, when not sustainable, ``not_sustainable`` (code, firms, text) to a scheme's dict."""
+        out["tied_firms"] = [i + 1 for i in tied_firms(scheme.per_firm, scheme.market)]
+        if not scheme.sustainable:
+            st = self.stage
+            out["not_sustainable"] = self.failures.get(key) or not_sustainable_reason(
+                scheme.scheme, scheme.per_firm, st.collusive.firm_profits, st.deviation_profits,
+                st.nash.firm_profits, scheme.T)
+
     def to_dict(self) -> dict:
         """The stage game, every threshold, partial collusion and sensitivity as plain data.
+
+        Each scheme's dict carries ``tied_firms`` and, when not sustainable, ``not_sustainable`` (see
+        :mod:`sim.theory.verdicts`); a partial-collusion entry whose search failed carries ``note``.
 
         Returns
         -------
@@ -250,7 +268,15 @@ class ThresholdReport:
             "stick_carrot": self.stick_carrot.to_dict(),
             "best": {"scheme": self.best.scheme, "T": self.best.T, "market": _none(self.best.market)},
         }
+        th = out["thresholds"]
+        self._verdicts(th["grim"], self.grim, "grim")
+        for j, f in enumerate(self.finite):
+            self._verdicts(th["finite"][j], f, f"finite[{j}]")
+        self._verdicts(th["stick_carrot"], self.stick_carrot, "stick_carrot")
         out["partial_collusion"] = [p.to_dict() for p in self.partial]
+        for k, p in enumerate(out["partial_collusion"]):
+            if f"partial[{k}]" in self.failures:
+                p["note"] = self.failures[f"partial[{k}]"]["text"]
         out["sensitivity"] = self.sensitivity
         return out
 
@@ -282,18 +308,34 @@ def critical_discount_factors(market, punishments=(1, 2, 3, 5, 10), deltas=(), a
     ds = [_check_delta(d, "delta") for d in deltas]
     st = stage if stage is not None else stage_game(ms, agreement, actions)
     c, d, n = st.collusive.firm_profits, st.deviation_profits, st.nash.firm_profits
+    failures: dict = {}
+    none = np.full(ms.n_firms, np.nan)
     grim = _scheme("grim", grim_threshold(c, d, n))
-    finite = [_scheme("finite", finite_threshold(c, d, n, T), T) for T in Ts]
-    sc = stick_and_carrot(ms, st)
+    finite = [_guarded(lambda T=T: _scheme("finite", finite_threshold(c, d, n, T), T), f"finite[{j}]", failures,
+                       SchemeThreshold("finite", none, math.nan, 0, T)) for j, T in enumerate(Ts)]
+    sc = _guarded(lambda: stick_and_carrot(ms, st), "stick_carrot", failures,
+                  StickCarrot("stick_carrot", none, math.nan, 0, None, math.nan, none, none, none, ""))
     if grim.sustainable and (not sc.sustainable or sc.market > grim.market):
         sc = dataclasses.replace(sc, weaker_than_grim=True)
-    partial = []
-    for delta in ds:
-        partial.append(partial_collusion(ms, delta, "grim", stage=st))
-        for T in Ts:
-            partial.append(partial_collusion(ms, delta, "finite", T=T, stage=st))
-        partial.append(partial_collusion(ms, delta, "stick_carrot", stage=st))
+    asked = [(delta, scheme, T) for delta in ds
+             for scheme, T in [("grim", None), *(("finite", T) for T in Ts), ("stick_carrot", None)]]
+    partial = [_guarded(lambda a=a: partial_collusion(ms, a[0], a[1], T=a[2], stage=st), f"partial[{j}]", failures,
+                        PartialCollusion(a[1], a[0], a[2], math.nan, np.full(ms.n_products, np.nan), none,
+                                         math.nan))
+               for j, a in enumerate(asked)]
     k = grim.binding
     sens = {"binding_firm": k + 1, "grim": threshold_sensitivity(c[k], d[k], n[k])}
     sens["finite"] = [{"T": T, **threshold_sensitivity(c[k], d[k], n[k], T)} for T in Ts]
-    return ThresholdReport(st, grim, finite, sc, partial, sens)
+    return ThresholdReport(st, grim, finite, sc, partial, sens, failures)
+
+
+def _guarded(compute, key: str, failures: dict, fallback):
+    """``compute()``, or ``fallback`` with the reason in ``failures[key]`` when its numerical method fails (one
+    scheme's failure does not take the other schemes with it)."""
+    try:
+        return compute()
+    except InputError:
+        raise
+    except (SolverError, RuntimeError, ValueError, ArithmeticError) as e:
+        failures[key] = solver_reason(e)
+        return fallback

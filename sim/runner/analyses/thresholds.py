@@ -109,6 +109,8 @@ def _threshold_names(cfg: dict) -> list[str]:
         out += [f"partial_gain.finite[{k + 1}][{j + 1}]" for k in range(len(cfg["punishments"]))]
         if cfg["trigger_price"]:
             out += [f"trigger_price.{x}[{j + 1}]" for x in _TP_FIELDS]
+    out += ["tied_firms.grim"] + [f"tied_firms.finite[{j + 1}]" for j in range(len(cfg["punishments"]))]
+    out.append("tied_firms.stick_carrot")
     if cfg.get("any_punishment") is not None:
         out += _any_punishment_names(n)
     return out + part_names(cfg)
@@ -202,7 +204,21 @@ def threshold_metrics(res: ThresholdsResult) -> dict:
             m[f"trigger_price.{x}[{j + 1}]"] = nan_if_none(vals[x])
     if res.any_punishment is not None:
         m.update(_any_punishment_metrics(res.any_punishment, n))
+    m.update(_tie_metrics(th))
     m.update(part_metrics(res))
+    return m
+
+
+def _tie_metrics(th: dict) -> dict:
+    """How many firms bind equally per scheme (:data:`sim.theory.verdicts.TIE_RTOL`); nan when the result predates
+    the count or the scheme is not sustainable."""
+    def count(s):
+        return float(len(s["tied_firms"])) if s.get("tied_firms") and s["market"] is not None else float("nan")
+
+    m = {"tied_firms.grim": count(th["grim"])}
+    for j, f in enumerate(th["finite"]):
+        m[f"tied_firms.finite[{j + 1}]"] = count(f)
+    m["tied_firms.stick_carrot"] = count(th["stick_carrot"])
     return m
 
 
