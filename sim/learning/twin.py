@@ -493,29 +493,26 @@ def _simulated_deviation(gp, state, dev, T, branch_base, ir, cf):
     rng = ReferenceStream(np.array(branch_base.s, dtype=np.uint64))
     profile, a_dev = gp.deviation(state, dev, rng)
     gp.add(ir, 1, profile)
-    v_dev, w = st.profits(profile)[dev.seat], dev.discount
-    y = gp.step(state, profile, rng)
-    for tau in range(2, length + 1):
-        p = gp.play(y, rng)
-        if tau <= T + 1:
-            gp.add(ir, tau, p)
-        if tau <= dev.horizon:
-            v_dev += w * st.profits(p)[dev.seat]
-            w *= dev.discount
-        y = gp.step(y, p, rng)
+    v_dev = _follow(gp, gp.step(state, profile, rng), 2, length, T, dev, ir, rng,
+                    st.profits(profile)[dev.seat], dev.discount)
     # without it, from the same random numbers
     rng = ReferenceStream(np.array(branch_base.s, dtype=np.uint64))
-    v_no, w = 0.0, 1.0
-    y = state
-    for tau in range(1, length + 1):
+    v_no = _follow(gp, state, 1, length, T, dev, cf, rng, 0.0, 1.0)
+    return v_dev, v_no, a_dev
+
+
+def _follow(gp, y, first, length, T, dev, rows, rng, v, w):
+    """Greedy play from state ``y`` over periods ``first..length``: the first ``T + 1`` added to ``rows``, the first
+    ``dev.horizon`` adding the deviator's profit to ``v`` at weights ``w, w * discount, ...``. Returns ``v``."""
+    for tau in range(first, length + 1):
         p = gp.play(y, rng)
         if tau <= T + 1:
-            gp.add(cf, tau, p)
+            gp.add(rows, tau, p)
         if tau <= dev.horizon:
-            v_no += w * st.profits(p)[dev.seat]
+            v += w * gp.st.profits(p)[dev.seat]
             w *= dev.discount
         y = gp.step(y, p, rng)
-    return v_dev, v_no, a_dev
+    return v
 
 
 def reference_estimate(lineup, greedy, history, z, t_end, rng_state, dev, T):

@@ -236,6 +236,8 @@ class _Feed:
     def __init__(self, payloads: Iterable[dict]):
         self.it = iter(payloads)
         self.again: list[dict] = []
+        self.suspects: set[int] = set()
+        self.drained = False
 
     def next(self) -> dict | None:
         if self.again:
@@ -244,6 +246,22 @@ class _Feed:
 
     def push(self, p: dict) -> None:
         self.again.append(p)
+
+    def take(self, busy: bool) -> dict | None:
+        """The next payload to submit, or None: none is left (``drained`` is then set), or the next one is a
+        suspect, which runs alone, and other cells are still running (``busy``)."""
+        p = self.next()
+        if p is None:
+            self.drained = True
+            return None
+        if p["index"] in self.suspects and busy:
+            self.push(p)  # a suspect runs alone: wait for the others first
+            return None
+        return p
+
+    def alone(self, inflight: dict) -> bool:
+        """Whether the one cell in flight is a suspect, running alone."""
+        return len(inflight) == 1 and next(iter(inflight.values()))["index"] in self.suspects
 
 
 def _died(i: int, why: str | None = None) -> dict:
@@ -259,27 +277,21 @@ def _processes(payloads: Iterable[dict], on_result, workers: int, plugins) -> No
     again alone; a suspect whose worker dies while it runs alone is recorded as failed."""
 
     feed = _Feed(payloads)
-    suspects: set[int] = set()
+    suspects = feed.suspects
     ctx = _mp_context()
-    exhausted = False
-    while not exhausted or feed.again:
+    while not feed.drained or feed.again:
         pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_worker_init,
                                    initargs=(plugins, os.getpid()))
         inflight: dict = {}
         broken = False
         try:
             while True:
-                solo = len(inflight) == 1 and next(iter(inflight.values()))["index"] in suspects
+                solo = feed.alone(inflight)
                 while len(inflight) < 2 * workers and not broken and not solo:
-                    p = feed.next()
+                    p = feed.take(busy=bool(inflight))
                     if p is None:
-                        exhausted = True
                         break
-                    if p["index"] in suspects:
-                        if inflight:  # a suspect runs alone: wait for the others first
-                            feed.push(p)
-                            break
-                        solo = True
+                    solo = p["index"] in suspects
                     try:
                         inflight[pool.submit(run_payload, p)] = p
                     except BrokenProcessPool:
@@ -309,7 +321,7 @@ def _processes(payloads: Iterable[dict], on_result, workers: int, plugins) -> No
                         suspects.add(p["index"])
                         feed.push(p)
                     inflight.clear()
-                    exhausted = False
+                    feed.drained = False
                     break
         except BaseException:
             _stop_workers()
@@ -317,7 +329,7 @@ def _processes(payloads: Iterable[dict], on_result, workers: int, plugins) -> No
             raise
         finally:
             pool.shutdown(wait=not broken, cancel_futures=True)
-        if not broken and exhausted:
+        if not broken and feed.drained:
             break
 
 
@@ -347,7 +359,7 @@ def _dask(payloads: Iterable[dict], on_result, backend: Backend, plugins) -> Non
         n_workers = max(1, len(client.scheduler_info().get("workers", {})) or backend.workers)
         window = max(8, 4 * n_workers)
         feed = _Feed(payloads)
-        suspects: set[int] = set()
+        suspects = feed.suspects
         inflight: dict = {}
 
         def submit(p):
@@ -356,16 +368,12 @@ def _dask(payloads: Iterable[dict], on_result, backend: Backend, plugins) -> Non
             inflight[client.submit(run_payload, p, key=key, pure=False)] = p
 
         while True:
-            solo = len(inflight) == 1 and next(iter(inflight.values()))["index"] in suspects
+            solo = feed.alone(inflight)
             while len(inflight) < window and not solo:
-                p = feed.next()
+                p = feed.take(busy=bool(inflight))
                 if p is None:
                     break
-                if p["index"] in suspects:
-                    if inflight:  # a suspect runs alone: wait for the others first
-                        feed.push(p)
-                        break
-                    solo = True
+                solo = p["index"] in suspects
                 submit(p)
             if not inflight:
                 break
