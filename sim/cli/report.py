@@ -6,6 +6,7 @@ import argparse
 
 from sim.cli._common import emit
 from sim.cli.run import add_plugin_option
+from sim.core.errors import InputError
 from sim.evidence.report import write_report
 from sim.runner.kinds import load_plugins
 
@@ -19,14 +20,20 @@ DESCRIPTION = (
 
 def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("run_dir", metavar="RUN_DIR", help="a run folder made by supergame run")
-    p.add_argument("--out", metavar="DIR", help="bundle folder (default RUN_DIR/report)")
+    p.add_argument("--bundle", metavar="DIR", help="bundle folder to write (default RUN_DIR/report); outside every "
+                   "other run folder")
+    # --out names a run folder in every command; here it is refused with the flag to use instead
+    p.add_argument("--out", dest="out_given", metavar="DIR", help=argparse.SUPPRESS)
     add_plugin_option(p, "the experiment's kind or strategies")
 
 
 def run(args) -> int:
 
+    if args.out_given is not None:
+        raise InputError("out", "names a run folder in every command; supergame report writes its bundle to "
+                                "--bundle DIR (default RUN_DIR/report)")
     load_plugins(args.plugin)
     # a bundle inside the run folder is recorded in its manifest (see sim.evidence.report.write_report)
-    target = write_report(args.run_dir, args.out)
+    target = write_report(args.run_dir, args.bundle)
     emit(f"Evidence bundle: {target}/summary.html (and summary.md, figures/, tables/, manifest.json)")
     return 0

@@ -244,7 +244,7 @@ def _prepare_target(target: Path, default: bool) -> None:
     (replaced at the end); the run folder's own ``report/`` that does not is left over from a write
     that was stopped (by an earlier version, or by hand), and is removed."""
 
-    key = "folder" if default else "out"
+    key = "folder" if default else "bundle"
     clear_leftovers(target)
     if not target.exists():
         return
@@ -258,7 +258,7 @@ def _prepare_target(target: Path, default: bool) -> None:
     raise InputError(key, f"{target} exists and does not hold an evidence bundle; choose another folder")
 
 
-def write_report(folder, out=None, update_manifest: bool = True) -> Path:
+def write_report(folder, bundle=None, update_manifest: bool = True) -> Path:
     """Write the evidence bundle of a finished run folder (default ``RUN_DIR/report``).
 
     The bundle is written beside its folder and moved into place at the end (:class:`sim.evidence.bundle.Bundle`),
@@ -270,7 +270,7 @@ def write_report(folder, out=None, update_manifest: bool = True) -> Path:
     ----------
     folder : path-like
         The run folder.
-    out : path-like, optional
+    bundle : path-like, optional
         Where the bundle goes instead (not inside another run folder).
     update_manifest : bool
 
@@ -281,13 +281,13 @@ def write_report(folder, out=None, update_manifest: bool = True) -> Path:
     """
 
     folder = Path(folder)
-    target = Path(out) if out is not None else folder / REPORT_DIR
+    target = Path(bundle) if bundle is not None else folder / REPORT_DIR
     # a report written by itself holds the folder's lock; the runner, which writes it inside a run, holds it
     # already (update_manifest=False)
     lock = FolderLock(folder, key="folder").acquire() if update_manifest and folder.is_dir() else None
     try:
         with RunFolder(folder) as rf:
-            _write(rf, folder, out, update_manifest)
+            _write(rf, folder, bundle, update_manifest)
         if _inside(folder, target) and update_manifest:
             write_manifest(folder, (f"{_inside(folder, target)}/",))
     finally:
@@ -330,11 +330,11 @@ def _write(rf, folder: Path, out, update_manifest: bool) -> None:
     target = Path(out) if out is not None else folder / REPORT_DIR
     inside = _inside(folder, target)
     if inside in ("", "."):
-        raise InputError("out", f"{target} is the run folder itself; give a folder for the bundle")
+        raise InputError("bundle", f"{target} is the run folder itself; give a folder for the bundle")
     rewritten = (f"{inside}/",) if inside else ()
     other = _other_run(folder, target)
     if other is not None:
-        raise InputError("out", f"{target} belongs to the run folder {other}; a bundle goes into its own run folder "
+        raise InputError("bundle", f"{target} belongs to the run folder {other}; a bundle goes into its own run folder "
                                 "(the default) or outside every run folder")
     if inside:
         links = symlinks_in(folder)

@@ -511,7 +511,7 @@ def _files(folder: Path) -> dict:
 
 
 def test_the_bundle_is_read_from_the_stored_cell(tmp_path, capsys):
-    """The assessment's bundle is a function of its stored cell: supergame report RUN_DIR --out OTHER
+    """The assessment's bundle is a function of its stored cell: supergame report RUN_DIR --bundle OTHER
     writes the bundle supergame assess wrote, every file with the same bytes (summary, tables, figures
     and assessment.json; the manifests differ only in the record of the run folder's data files, which
     a bundle outside the folder does not keep); supergame report RUN_DIR writes it again unchanged and
@@ -521,7 +521,7 @@ def test_the_bundle_is_read_from_the_stored_cell(tmp_path, capsys):
     run_dir, other = tmp_path / "run", tmp_path / "other"
     assert _run(["assess", str(f), "--out", str(run_dir)], capsys)[0] == 0
     first = _files(run_dir / "report")
-    code, _, err = _run(["report", str(run_dir), "--out", str(other)], capsys)
+    code, _, err = _run(["report", str(run_dir), "--bundle", str(other)], capsys)
     assert code == 0, err
     again = _files(other)
     assert set(again) == set(first)

@@ -459,8 +459,8 @@ def test_a_report_stopped_part_way_is_written_again(good, tmp_path, capsys):
     other = tmp_path / "notes"
     other.mkdir()
     (other / "mine.txt").write_text("my notes")
-    assert main(["report", str(s.folder), "--out", str(other)]) == 2
-    assert "--out:" in capsys.readouterr().err and (other / "mine.txt").is_file()
+    assert main(["report", str(s.folder), "--bundle", str(other)]) == 2
+    assert "--bundle:" in capsys.readouterr().err and (other / "mine.txt").is_file()
 
 
 def test_an_interrupted_bundle_leaves_the_earlier_one_whole(tmp_path):

@@ -114,15 +114,30 @@ def test_the_cells_re_run_depend_on_every_stored_number(finished_run):
     assert res.ok and len(res.cells) == 2 and any("every finished cell" in t for _, t in res.checks)
 
 
-def test_report_out_refuses_another_runs_folder(finished_run, tmp_path, write_experiment, cli):
+def test_report_bundle_refuses_another_runs_folder(finished_run, tmp_path, write_experiment, cli):
     from tests.conftest import TWO_MILLS
 
     other = run_experiment(write_experiment(TWO_MILLS, "b.toml"), tmp_path / "other", workers=1,
                            progress=False).folder
     before = sorted(p.name for p in other.rglob("*"))
-    r = cli("report", finished_run, "--out", other / "report")
-    assert r.code == 2 and "--out:" in r.err and "belongs to the run folder" in r.err
+    r = cli("report", finished_run, "--bundle", other / "report")
+    assert r.code == 2 and "--bundle:" in r.err and "belongs to the run folder" in r.err
     assert sorted(p.name for p in other.rglob("*")) == before
+
+
+def test_out_means_a_run_folder_in_every_command(finished_run, tmp_path, cli):
+    """``--out`` names the run folder to create (run, simulate, learn, tournament, assess); the report's bundle
+    folder is ``--bundle``, and ``report --out`` is refused in one line that names the flag to use, writing
+    nothing."""
+    target = tmp_path / "bundle-here"
+    r = cli("report", finished_run, "--out", target)
+    assert r.code == 2 and r.err.count("\n") == 1 and "--out:" in r.err and "--bundle DIR" in r.err
+    assert not target.exists()
+    from sim.cli import build_parser
+
+    for command in ("run", "tournament", "assess"):
+        helps = {a.dest: a.help for a in build_parser(command).commands[command]._actions}
+        assert "run folder" in helps["out"], command
 
 
 def test_text_cells_that_look_like_formulas_are_neutralised(tmp_path, write_experiment):
