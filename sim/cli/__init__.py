@@ -52,7 +52,8 @@ COMMANDS = {
 #: settings of the library's functions named in its errors -> the flag (or argument) that gives them here; the
 #: library speaks in key paths only, the command line translates (document keys such as ``market.cost`` are
 #: renamed by each command when a flag gave the value)
-ARGUMENT_OF = {"out": "--out", "bundle": "--bundle", "resume": "--resume", "plugins": "--plugin", "retry_failed": "--retry-failed",
+ARGUMENT_OF = {"out": "--out", "bundle": "--bundle", "resume": "--resume",
+               "plugins": "--plugin", "retry_failed": "--retry-failed",
                "file": "FILE", "folder": "RUN_DIR", "cells": "--cells", "workers": "--workers", "cluster": "--cluster",
                "plot": "--plot", "threads": "--workers", "allow_long": "--allow-long"}
 

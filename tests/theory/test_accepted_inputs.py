@@ -40,7 +40,7 @@ REASONS = {"below_nash", "no_gain", "incentive", "solver"}
 # once failed is kept below as a fixed regression case
 FAST = settings(max_examples=30, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow,
                                                                        HealthCheck.filter_too_much])
-LARGE = settings(max_examples=50, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow,
+LARGE = settings(max_examples=10, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow,
                                                                          HealthCheck.filter_too_much])
 
 
