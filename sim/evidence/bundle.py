@@ -62,7 +62,16 @@ BUNDLE_FORMAT = "supergame-bundle/1"
 
 def holds_bundle(folder) -> bool:
     """Whether ``folder`` is an empty folder or holds an evidence bundle (its ``manifest.json`` says so),
-    i.e. whether a bundle may be written over it."""
+    i.e. whether a bundle may be written over it.
+
+    Parameters
+    ----------
+    folder : path-like
+
+    Returns
+    -------
+    bool
+    """
     folder = Path(folder)
     if not folder.is_dir() or folder.is_symlink():
         return False
@@ -125,12 +134,38 @@ _TEX = {"\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#
 
 
 def tex_escape(text: str) -> str:
+    """``text`` with LaTeX's special characters escaped.
+
+    Parameters
+    ----------
+    text : str
+
+    Returns
+    -------
+    str
+    """
     return "".join(_TEX.get(ch, ch) for ch in str(text))
 
 
 def latex_table(headers, rows, caption: str | None = None, label: str | None = None, digits: int = 4,
                 align: str | None = None) -> str:
-    """A booktabs LaTeX table (``\\usepackage{booktabs}``); numbers right-aligned, text left-aligned."""
+    """A booktabs LaTeX table (``\\usepackage{booktabs}``); numbers right-aligned, text left-aligned.
+
+    Parameters
+    ----------
+    headers : list of str
+    rows : list of list
+        One list of cells per row (numbers or text).
+    caption, label : str, optional
+    digits : int
+        Significant digits of the numbers.
+    align : str, optional
+        LaTeX column alignment (default: ``r`` for numeric columns, ``l`` otherwise).
+
+    Returns
+    -------
+    str
+    """
     cells = [[_fmt(v, digits) for v in r] for r in rows]
     if align is None:
         align = "".join("r" if rows and all(isinstance(r[j], int | float) and not isinstance(r[j], bool)
@@ -158,6 +193,20 @@ def _md_escape(text: str) -> str:
 
 
 def markdown_table(headers, rows, digits: int = 4) -> str:
+    """A Markdown (pipe) table, HTML in the cells escaped; numeric columns right-aligned.
+
+    Parameters
+    ----------
+    headers : list of str
+    rows : list of list
+        One list of cells per row (numbers or text).
+    digits : int
+        Significant digits of the numbers.
+
+    Returns
+    -------
+    str
+    """
     cells = [[_md_escape(_fmt(v, digits)) for v in r] for r in rows]
     nums = [bool(rows) and all(isinstance(r[j], int | float) and not isinstance(r[j], bool) for r in rows)
             for j in range(len(headers))]

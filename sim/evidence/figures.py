@@ -73,17 +73,48 @@ class SweepData:
             self.index[key] = r.metrics
 
     def value(self, fixed: dict, metric: str) -> float:
-        """The metric of the cell whose swept values have labels ``fixed`` (path -> label); nan if none."""
+        """The metric of the cell whose swept values have labels ``fixed`` (path -> label); nan if none.
+
+        Parameters
+        ----------
+        fixed : dict
+        metric : str
+
+        Returns
+        -------
+        float
+        """
         key = tuple(fixed[p.path] for p in self.parameters)
         m = self.index.get(key)
         return math.nan if m is None else float(m.get(metric, math.nan))
 
     def has(self, metric: str) -> bool:
+        """Whether any cell has the metric.
+
+        Parameters
+        ----------
+        metric : str
+
+        Returns
+        -------
+        bool
+        """
         return any(metric in m for m in self.index.values())
 
     def fixed_labels(self, exclude, at: dict | None = None) -> dict:
         """Labels of the parameters not in ``exclude``: those in ``at`` (path -> label), the others take one
-        value each."""
+        value each.
+
+        Parameters
+        ----------
+        exclude : collection of str
+            Paths left out.
+        at : dict, optional
+
+        Returns
+        -------
+        dict
+        """
         at = at or {}
         return {p.path: at.get(p.path, p.labels[0]) for p in self.parameters if p.path not in exclude}
 

@@ -122,7 +122,18 @@ def _headline(exp, kind) -> list[str]:
 
 
 def default_figures(exp, kind, data) -> list:
-    """The figures drawn when the experiment names none (see the module notes)."""
+    """The figures drawn when the experiment names none (see the module notes).
+
+    Parameters
+    ----------
+    exp : Experiment
+    kind : Kind
+    data : SweepData
+
+    Returns
+    -------
+    list
+    """
 
     multi = [p for p in exp.parameters if len(p) > 1]
     numeric = [p for p in multi if p.numeric]

@@ -221,7 +221,16 @@ class PayoffSet:
 
 def default_directions(n_firms: int) -> int:
     """Number of directions used when none is given: 32 for two firms, 64 for three, 24 per firm
-    beyond."""
+    beyond.
+
+    Parameters
+    ----------
+    n_firms : int
+
+    Returns
+    -------
+    int
+    """
     return {2: 32, 3: 64}.get(n_firms, 24 * n_firms)
 
 
