@@ -156,8 +156,9 @@ class RunFolder:
         -------
         list of CellRow
         """
-        if self._rows is not None and problems is None:
+        if self._rows is not None:  # a read kept for later had nothing to describe
             return self._rows
+        before = len(problems) if problems is not None else 0
         with reading(self.key, self.path):
             raw = self.store.rows(problems=problems)
         n = self.experiment.n_cells
@@ -176,7 +177,7 @@ class RunFolder:
                 problems.append(msg)
                 continue
             out.append(r)
-        if problems is None:
+        if problems is None or len(problems) == before:
             self._rows = out
         return out
 
