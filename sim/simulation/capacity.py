@@ -83,6 +83,11 @@ class CapacityStage:
         return self.market.n_firms
 
 
+#: how the reports name the capacity model's agreement rules
+_RULE_NAMES = {"proportional": "shares proportional to capacities", "equal": "equal quantities",
+               "given": "shares given by the user"}
+
+
 def _no_stick(key: str):
     raise InputError(key, "stick and carrot is not available in a capacity market (no punishment level below the "
                           "static equilibrium is computed for it); use grim trigger or Nash reversion")
@@ -104,7 +109,8 @@ def capacity_stage_levels(market: CapacityStageMarket) -> tuple[CapacityStage, S
     """
     cm = market
     pr, fp = cm.profiles, cm.firm_profits_of
-    stage = CapacityStage(cm, cm.agreed.rule, CapacityOutcome(pr["nash"].copy(), fp["nash"].copy()),
+    rule = f"{_RULE_NAMES.get(cm.agreed.rule, cm.agreed.rule)} at the price {cm.agreed.price:g}"
+    stage = CapacityStage(cm, rule, CapacityOutcome(pr["nash"].copy(), fp["nash"].copy()),
                           CapacityOutcome(pr["collusive"].copy(), fp["collusive"].copy()), cm.deviation_rows.copy(),
                           pr["deviation"].copy(), fp["deviation"].copy(), cm.minmax_profits())
     levels = StageLevels(
