@@ -51,6 +51,8 @@ SECTIONS: dict = {
     "sweep": ("sim.bench.sweep:bench_section", "experiments layer: per-cell overhead, 2 local workers against 1"),
     "capacity": ("sim.bench.capacity:capacity_benchmark",
                  "capacity-constrained pricing, partial cartels and global sensitivity against plain references"),
+    "capacity_engine": ("sim.bench.capacity_engine:capacity_engine_benchmark",
+                        "simulation kernel in a capacity market against the linear Bertrand kernel"),
     "payoff_sets": ("sim.bench.payoff_sets:payoff_sets_benchmark",
                     "equilibrium payoff sets: 2 firms against an independent implementation, 3 firms against LPs"),
 }

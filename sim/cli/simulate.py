@@ -21,6 +21,7 @@ from sim.evidence.render import write_figures
 from sim.evidence.simulate import RENDERER
 from sim.models.market import market_from_dict
 from sim.runner.single import run_single
+from sim.theory.capacity_analysis import capacity_market_from_dict, is_capacity_market
 
 HELP = "simulate a line-up of strategies: persistence of collusion against the analytic baseline"
 DESCRIPTION = (
@@ -113,7 +114,9 @@ def _document(args) -> tuple[dict, dict]:
     flag_of = {key: flag for flag, key in MARKET_FLAGS.items()}
     flags = {f"market.{k}": f"--{flag_of[k]}" for k in market_flags if k in flag_of}
     try:
-        n_firms = market_from_dict(table).spec().n_firms
+        # a capacity market ([market] model = "capacity") has its own table (sim.theory.capacity_analysis)
+        n_firms = (capacity_market_from_dict(table).n_firms if is_capacity_market(table)
+                   else market_from_dict(table).spec().n_firms)
     except InputError as exc:
         # without FILE every market setting (a missing one too) is a flag's
         raise flag_error(exc, market_flags if args.file else set(MARKET_FLAGS.values())) from None

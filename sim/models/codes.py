@@ -12,6 +12,7 @@ without loading numba.
 from __future__ import annotations
 
 __all__ = [
+    "CODE_CAPACITY_BERTRAND",
     "CODE_DIFF_BERTRAND",
     "CODE_DIFF_COURNOT",
     "CODE_ISO_COURNOT",
@@ -33,3 +34,6 @@ CODE_DIFF_BERTRAND = 3
 CODE_LOGIT_BERTRAND = 4
 #: homogeneous good, ``P(Q) = scalars[0] Q^(-1/scalars[1])``, quantities
 CODE_ISO_COURNOT = 5
+#: homogeneous good sold by firms with capacities, prices (:mod:`sim.models.capacity_stage`): reservation price,
+#: market size, demand code and rationing code in ``scalars``, tie-sharing weights in ``vector``
+CODE_CAPACITY_BERTRAND = 6

@@ -40,7 +40,9 @@ import math
 import numpy as np
 from numba import njit
 
+from sim.models.capacity_stage import capacity_stage
 from sim.models.codes import (
+    CODE_CAPACITY_BERTRAND,
     CODE_DIFF_BERTRAND,
     CODE_DIFF_COURNOT,
     CODE_ISO_COURNOT,
@@ -69,6 +71,9 @@ class MarketArrays:
     owner : array_like of int, shape (n_products,)
     n_firms : int
     quantity_setting : bool
+    mixed : array_like of shape (n_products, n_levels), optional
+        Quantile levels of the products' mixed equilibrium prices (:mod:`sim.models.capacity_stage`), drawn by the
+        kernels for an action at ``MIXED_PRICE``; empty (shape (0, 0), the default) when no level is mixed.
 
     Attributes
     ----------
@@ -78,9 +83,10 @@ class MarketArrays:
     owner : int64 ndarray of shape (n_products,)
     n_firms, n_products : int
     quantity_setting : bool
+    mixed : float64 ndarray of shape (n_products, n_levels) or (0, 0)
     """
 
-    def __init__(self, code, scalars, vector, cost, capacity, owner, n_firms, quantity_setting):
+    def __init__(self, code, scalars, vector, cost, capacity, owner, n_firms, quantity_setting, mixed=None):
         self.code = int(code)
         self.scalars = np.ascontiguousarray(scalars, dtype=np.float64)
         self.vector = np.ascontiguousarray(vector, dtype=np.float64)
@@ -90,6 +96,7 @@ class MarketArrays:
         self.n_firms = int(n_firms)
         self.n_products = int(self.owner.shape[0])
         self.quantity_setting = bool(quantity_setting)
+        self.mixed = np.ascontiguousarray(np.zeros((0, 0)) if mixed is None else mixed, dtype=np.float64)
 
     def args(self):
         """Positional arguments of :func:`evaluate` before the action profile.
@@ -134,7 +141,7 @@ def market_arrays(ms) -> MarketArrays:
     MarketArrays
     """
     return MarketArrays(ms.code, ms.demand.scalars, ms.demand.vector, ms.cost, ms.capacity, market_owner(ms),
-                        ms.n_firms, ms.quantity_setting)
+                        ms.n_firms, ms.quantity_setting, getattr(ms, "mixed", None))
 
 
 def effective_tick(ms) -> float:
@@ -239,6 +246,8 @@ def evaluate(code, scalars, vector, cost, capacity, owner, n_firms, actions, the
         profit[i] = 0.0
     if code == CODE_LINEAR_COURNOT or code == CODE_ISO_COURNOT or code == CODE_DIFF_COURNOT:
         return _quantity_stage(code, scalars, vector, cost, capacity, owner, n, actions, theta, q, p, profit, want_cs)
+    if code == CODE_CAPACITY_BERTRAND:
+        return capacity_stage(scalars, vector, cost, capacity, owner, n, actions, theta, q, p, profit, work, want_cs)
     return _price_stage(code, scalars, vector, cost, owner, n, actions, theta, q, p, profit, work, want_cs)
 
 

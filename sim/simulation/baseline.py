@@ -296,6 +296,11 @@ def _payoffs(game, profile: np.ndarray) -> tuple:
     key = ("payoffs", profile.tobytes())
     if key not in lv.cache:
         ms = game.market
+        own = getattr(ms, "deviation_payoffs", None)  # a market that computes its own (capacity pricing)
+        if own is not None:
+            pi, dev, rows = own(profile)
+            lv.cache[key] = (pi, dev, rows)
+            return lv.cache[key]
         rows, dev = best_deviation(ms, profile)
         lv.cache[key] = (np.asarray(ms.firm_profits(profile), dtype=float), np.asarray(dev, dtype=float), rows)
     return lv.cache[key]

@@ -188,7 +188,7 @@ def kernel_groups(game: Game, periods: int, delta: float, horizon: str = "fixed"
     """
     mk, lu, mon = game.arrays, game.lineup, game.monitoring
     market = K.MarketInputs(int(mk.code), mk.scalars, mk.vector, mk.cost, mk.capacity, mk.owner, int(mk.n_firms),
-                            bool(mk.quantity_setting))
+                            bool(mk.quantity_setting), mk.mixed)
     lineup = K.LineupInputs(lu.states, lu.probs, lu.firms, lu.levels, game.tremble)
     monitoring = K.MonitoringInputs(int(mon["noise_code"]), float(mon["sigma"]), float(mon["perception_error"]),
                                     float(mon["implementation_error"]))

@@ -17,7 +17,9 @@ One period, in this order (the random draws happen in this order too):
 
 1. each firm picks its state's level, possibly cheating (:func:`strategies.step.choose_level`);
 2. implementation errors: one uniform per firm when the error probability is positive; a hit replaces
-   the firm's action by its cheating action (``tremble``);
+   the firm's action by its cheating action (``tremble``); then, only in a market with a mixed static
+   equilibrium, one uniform for each product whose action is ``MIXED_PRICE``, which draws its price from the
+   product's mixed distribution (:func:`sim.models.capacity_stage.draw_mixed`);
 3. the demand shock: one standard normal (ziggurat, :func:`sim.core.rng.next_normal_zig`) when
    ``noise_code > 0`` (a normal shock ``1 + sigma Z`` is floored at zero, see :mod:`sim.models.monitoring`);
 4. quantities, prices and profits (:func:`sim.models.stagecore.evaluate`);
@@ -56,6 +58,7 @@ import numpy as np
 from numba import njit, prange
 
 from sim.core.rng import next_double, next_normal_zig
+from sim.models.capacity_stage import MIXED_PRICE, draw_mixed
 from sim.models.stagecore import evaluate
 from strategies.step import COLLUSIVE, INITIAL, bad_signal, choose_level, next_state
 
@@ -128,6 +131,9 @@ class MarketInputs(NamedTuple):
         Number of firms.
     quantity_setting : bool
         True for Cournot (actions are quantities), False for Bertrand (actions are prices).
+    mixed : float64 ndarray of shape (n_products, n_levels), or (0, 0)
+        Quantile levels of mixed equilibrium prices: an action at ``MIXED_PRICE`` is drawn from them
+        (:mod:`sim.models.capacity_stage`); empty when no level is mixed.
     """
 
     code: int
@@ -138,6 +144,7 @@ class MarketInputs(NamedTuple):
     owner: np.ndarray
     n_firms: int
     quantity_setting: bool
+    mixed: np.ndarray
 
 
 class LineupInputs(NamedTuple):
@@ -332,7 +339,7 @@ def simulate_chunks(batch, market, lineup, monitoring, run, totals, paths):
         Path buffers, written for global replication indices below ``run.n_paths``.
     """
     chunk_start, rng_states, first = batch
-    code, scalars, vector, cost, capacity, owner, n_firms, quantity_setting = market
+    code, scalars, vector, cost, capacity, owner, n_firms, quantity_setting, mixed = market
     states, probs, firms, levels, tremble = lineup
     noise_code, sigma, perception_error, implementation_error = monitoring
     n_periods, delta, random_horizon, continuation, n_paths = run
@@ -344,7 +351,7 @@ def simulate_chunks(batch, market, lineup, monitoring, run, totals, paths):
                  quantity_setting, states, probs, firms, levels, tremble, noise_code, sigma, perception_error,
                  implementation_error, n_periods, delta, random_horizon, continuation, n_paths, out_profit, out_disc,
                  out_int, out_flt, hist, by_period, p_actions, p_prices, p_market, p_profit, p_state, p_flags,
-                 p_collude, totals.status)
+                 p_collude, totals.status, mixed)
 
 
 @njit(cache=True, parallel=True)
@@ -355,7 +362,7 @@ def _play_chunks(chunk_start, rng_states, rep_offset,
                  n_periods, delta, random_horizon, continuation, n_paths,
                  out_profit, out_disc, out_int, out_flt, hist, by_period,
                  path_actions, path_prices, path_market, path_profit, path_state, path_flags, path_collude,
-                 status):
+                 status, mixed):
     # the period loop of every chunk, chunks in parallel, every array a plain argument: inside a prange body
     # numba drops writes to arrays reached through a named tuple (numba issue 7135), also once they are taken
     # out of it, and a chunk played by a separate function, or a period built from helper calls, measured two
@@ -419,6 +426,10 @@ def _play_chunks(chunk_start, rng_states, rep_offset,
                 for k in range(n_products):
                     i = owner[k]
                     actions[k] = tremble_profile[k] if trembled[i] else levels[i, lev[i], k]
+                if mixed.shape[1] > 0:
+                    for k in range(n_products):
+                        if actions[k] == MIXED_PRICE:
+                            actions[k] = draw_mixed(mixed, k, next_double(rng))
                 theta = 1.0
                 if noise_code == 1:
                     theta = math.exp(sigma * next_normal_zig(rng) - s2)

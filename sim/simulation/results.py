@@ -301,8 +301,10 @@ def summarize(raw, game, run: dict, confidence: float = 0.95, baseline: bool = T
     # by the effective tick where the analytic outcome is a limit, see sim.simulation.game.stage_levels)
     nash_a = np.asarray(game.levels.profiles["nash"], dtype=float)
     coll_a = np.asarray(game.levels.profiles["collusive"], dtype=float)
-    _, _, pi_n, p_n, cs_n = evaluate_py(game.arrays, nash_a)
-    _, _, pi_c, p_c, cs_c = evaluate_py(game.arrays, coll_a)
+    # a market with a mixed static equilibrium gives the expected outcome of its drawn level
+    outcome = getattr(game.market, "expected_outcome", None) or (lambda a: evaluate_py(game.arrays, a))
+    _, _, pi_n, p_n, cs_n = outcome(nash_a)
+    _, _, pi_c, p_c, cs_c = outcome(coll_a)
     spells, wars, breakdown, punishments = _survival_curves(raw, run["periods"], confidence)
     metrics = _market_metrics(raw, periods, (spells, wars, breakdown), pi_n, pi_c, p_n, confidence)
     firm = _firm_metrics(raw, periods, pi_n, pi_c, confidence)

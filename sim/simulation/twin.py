@@ -22,6 +22,7 @@ import numpy as np
 import sim.simulation.kernel as K
 import strategies.step as S
 from sim.core.rng import ReferenceStream, stream_states
+from sim.models.capacity_stage import MIXED_PRICE
 from sim.models.stagecore import evaluate
 from sim.simulation.driver import RawRun, kernel_groups
 
@@ -62,6 +63,7 @@ class _Game:
         self.owner = [int(o) for o in market.owner]
         self.firms = [_Firm(i, lineup) for i in range(self.n)]
         self.tremble = [float(x) for x in lineup.tremble]
+        self.mixed = [[float(x) for x in row] for row in market.mixed]
         self.evaluate_args = (market.code, market.scalars, market.vector, market.cost, market.capacity, market.owner,
                               market.n_firms)
 
@@ -103,6 +105,17 @@ def _actions(game: _Game, lev: list, trembled: list) -> np.ndarray:
     own = game.owner
     return np.array([game.tremble[k] if trembled[own[k]] else game.firms[own[k]].levels[lev[own[k]]][k]
                      for k in range(game.n_products)])
+
+
+def _draw_mixed(game: _Game, actions: np.ndarray, rng: ReferenceStream) -> np.ndarray:
+    # only a market with a mixed static equilibrium draws: one uniform per product at MIXED_PRICE
+    if not game.mixed or not game.mixed[0]:
+        return actions
+    for k in range(game.n_products):
+        if actions[k] == MIXED_PRICE:
+            table = game.mixed[k]
+            actions[k] = table[min(int(rng.next_double() * len(table)), len(table) - 1)]
+    return actions
 
 
 def _demand_shock(game: _Game, rng: ReferenceStream) -> float:
@@ -203,7 +216,7 @@ def _play_period(game: _Game, raw: RawRun, r: int, t: int, state: list, rng: Ref
     counts = raw.ints[r]
     lev, cheated = _choose_levels(game, state, t, rng, counts)
     trembled = _tremble(game, rng, counts)
-    actions = _actions(game, lev, trembled)
+    actions = _draw_mixed(game, _actions(game, lev, trembled), rng)
     theta = _demand_shock(game, rng)
     q, p, profit, work = buffers
     mp, cs = evaluate.py_func(*game.evaluate_args, actions, theta, q, p, profit, work, True)

@@ -35,11 +35,13 @@ from sim.runner.analyses.common import (
     stage_of,
     thin,
 )
+from sim.runner.analyses.simulate_capacity import prepare_capacity_game
 from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
 from sim.simulation.analysis import SimulateResult, simulate_analysis
 from sim.simulation.baseline import scheme_of
 from sim.simulation.engine import RUN_DEFAULTS, check_run, compile_game, simulation_from_dict
+from sim.theory.capacity_analysis import is_capacity_market
 from sim.theory.thresholds import grim_threshold
 from sim.theory.trigger_price import trigger_price_equilibrium
 from strategies import TableAutomaton, strategy_from_dict
@@ -110,20 +112,15 @@ def _prepare_simulate(doc: dict) -> dict:
         if "confidence" in run_t:
             confidence = CONFIDENCE.check("run.confidence", run_t["confidence"])
         sub["run"] = {k: v for k, v in run_t.items() if k != "confidence"}
-    cfg = simulation_from_dict(sub, check_tables=True)
-    scheme = _equilibrium_triggers(cfg)
-    ms = cfg["market"].spec()
-    agreement, actions = collusion_of(doc)
-    lineup = lineup_from_tables(cfg["strategies"], ms.n_firms, "strategies")
-    P = int(market_owner(ms).shape[0])
-    r = cfg["run"]
-    run = check_run(r["periods"], r["replications"], r["delta"], r["seed"], r["horizon"], r["continuation"],
-                    r["paths"], P)
-    stage, levels = stage_of(ms, doc["market"], agreement, actions)
-    game = compile_game(stage, levels, lineup, cfg["monitoring"])
-    out = {"market": cfg["market"], "market_table": doc["market"], "spec": ms, "agreement": agreement,
-           "actions": actions, "lineup": lineup, "monitoring": cfg["monitoring"], "run": run, "game": game,
-           "deviation": None, "confidence": confidence, "trigger_scheme": scheme}
+    if is_capacity_market(doc.get("market")):
+        # price competition with capacity constraints: its own stage game, the same engine
+        cfg = prepare_capacity_game(doc, sub.get("run", {}))
+        stage, levels = cfg.pop("stage"), cfg.pop("levels")
+        ms, lineup = cfg["spec"], cfg["lineup"]
+        out = {**cfg, "deviation": None, "confidence": confidence, "trigger_scheme": None}
+    else:
+        out, stage, levels = _prepare_market(doc, sub, confidence)
+        ms, lineup = out["spec"], out["lineup"]
     if "deviation" in doc:
         dt = refuse_unknown(doc["deviation"], "deviation", _DEV_KEYS)
         firm = dt.get("firm", "binding")
@@ -143,9 +140,28 @@ def _prepare_simulate(doc: dict) -> dict:
             deviator = one_shot_deviator(lineup[seat], levels, seat)
         dev_lineup = [s.clone() for s in lineup]
         dev_lineup[seat] = deviator
-        dev_game = compile_game(stage, levels, dev_lineup, cfg["monitoring"], strict=False)
+        dev_game = compile_game(stage, levels, dev_lineup, out["monitoring"], strict=False)
         out["deviation"] = {"seat": seat, "game": dev_game, "custom": "strategy" in dt}
     return out
+
+
+def _prepare_market(doc: dict, sub: dict, confidence: float) -> tuple:
+    """The prepared cell of a market of :mod:`sim.models.market`, its stage game and levels."""
+    cfg = simulation_from_dict(sub, check_tables=True)
+    scheme = _equilibrium_triggers(cfg)
+    ms = cfg["market"].spec()
+    agreement, actions = collusion_of(doc)
+    lineup = lineup_from_tables(cfg["strategies"], ms.n_firms, "strategies")
+    P = int(market_owner(ms).shape[0])
+    r = cfg["run"]
+    run = check_run(r["periods"], r["replications"], r["delta"], r["seed"], r["horizon"], r["continuation"],
+                    r["paths"], P)
+    stage, levels = stage_of(ms, doc["market"], agreement, actions)
+    game = compile_game(stage, levels, lineup, cfg["monitoring"])
+    out = {"market": cfg["market"], "market_table": doc["market"], "spec": ms, "agreement": agreement,
+           "actions": actions, "lineup": lineup, "monitoring": cfg["monitoring"], "run": run, "game": game,
+           "deviation": None, "confidence": confidence, "trigger_scheme": scheme}
+    return out, stage, levels
 
 
 def _equilibrium_triggers(cfg: dict):
