@@ -15,6 +15,18 @@ os.environ.setdefault("MPLBACKEND", "Agg")
 
 ROOT = Path(__file__).resolve().parents[1]
 
+
+@pytest.fixture(autouse=True)
+def _close_figures():
+    """Figures a test draws (a renderer's figures are returned open, for the caller to save) are closed after it,
+    so that a long run never holds more than a test's worth of them."""
+    yield
+    import sys
+
+    plt = sys.modules.get("matplotlib.pyplot")  # only when a test imported it: no import cost otherwise
+    if plt is not None:
+        plt.close("all")
+
 #: a deterministic two-cell experiment that runs in well under a second: the run folder of the runner's tests
 TWO_MILLS = textwrap.dedent("""
     # Two invented mills; a sweep over one mill's cost (the runner's tests need a cheap, deterministic run).
