@@ -3,7 +3,8 @@
 Loaded with :func:`sim.runner.kinds.load_plugin_file` (``supergame run --plugin FILE``), this file
 touches nothing in ``sim/``: it subclasses :class:`sim.models.Demand` and
 :class:`sim.models.DemandSpec` and calls :func:`sim.models.register_demand`, the extension points of
-the "Adding a market model" checklist of DEVELOPERS.md. ``tests/models/test_demand_plugin.py`` checks
+the "Adding a market model" checklist of DEVELOPERS.md; each method takes the numpydoc sections of the
+contract it fulfils with :func:`sim.core.docs.doc_sections`. ``tests/models/test_demand_plugin.py`` checks
 the theory and the simulations on them against the closed forms below.
 
 Exponential demand (``demand = "exponential"``)
@@ -49,6 +50,7 @@ import math
 
 import numpy as np
 
+from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import Real
 from sim.models import Demand, DemandSpec, register_demand
@@ -75,18 +77,9 @@ class ExponentialDemand(Demand):
         self.size = size
         self.scale = scale
 
+    @doc_sections(Demand.spec)
     def spec(self, n_firms, prefix="market"):
-        """Validate the parameters.
-
-        Parameters
-        ----------
-        n_firms : int
-        prefix : str
-
-        Returns
-        -------
-        ExponentialDemandSpec
-        """
+        """Validate the parameters."""
         p = self._check_params(prefix, n_firms)
         return ExponentialDemandSpec(type(self), np.array([p["size"], p["scale"], 0.0, 0.0]), np.ones(n_firms))
 
@@ -94,17 +87,9 @@ class ExponentialDemand(Demand):
 class ExponentialDemandSpec(DemandSpec):
     """Numeric exponential demand."""
 
+    @doc_sections(DemandSpec.inverse_demand)
     def inverse_demand(self, q):
-        """``max(0, scale * ln(size / Q))`` for every firm (infinite at ``Q = 0``).
-
-        Parameters
-        ----------
-        q : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (..., n_products)
-        """
+        """``max(0, scale * ln(size / Q))`` for every firm (infinite at ``Q = 0``)."""
         q = np.asarray(q, dtype=float)
         A, b = self.scalars[0], self.scalars[1]
         Q = q.sum(axis=-1, keepdims=True)
@@ -112,77 +97,36 @@ class ExponentialDemandSpec(DemandSpec):
             p = np.where(Q > 0, np.maximum(0.0, b * np.log(A / np.where(Q > 0, Q, 1.0))), np.inf)
         return np.broadcast_to(p, q.shape).copy()
 
+    @doc_sections(DemandSpec.consumer_surplus)
     def consumer_surplus(self, q, p):
-        """``int_P^inf Q(x) dx = scale * Q`` at a positive price.
-
-        Parameters
-        ----------
-        q, p : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (...,)
-        """
+        """``int_P^inf Q(x) dx = scale * Q`` at a positive price."""
         Q = np.asarray(q, dtype=float).sum(axis=-1)
         return self.scalars[1] * np.minimum(Q, self.scalars[0])
 
+    @doc_sections(DemandSpec.action_upper)
     def action_upper(self, ms):
-        """The total output ``size * exp(-c_min / scale)`` beyond which the price is below every cost.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        """The total output ``size * exp(-c_min / scale)`` beyond which the price is below every cost."""
         return np.full(ms.n_products, self.scalars[0] * math.exp(-float(ms.cost.min()) / self.scalars[1]))
 
+    @doc_sections(DemandSpec.own_slope)
     def own_slope(self, ms, A, q, p):
-        """``dP/dq_i = -scale / Q`` while the price is positive, 0 beyond ``size``.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        A, q, p : ndarray of shape (n_rows, n_products)
-
-        Returns
-        -------
-        ndarray of shape (n_rows, n_products)
-        """
+        """``dP/dq_i = -scale / Q`` while the price is positive, 0 beyond ``size``."""
         Q = q.sum(axis=-1, keepdims=True)
         with np.errstate(divide="ignore"):
             slope = np.where(p > 0, -self.scalars[1] / np.where(Q > 0, Q, 1.0), 0.0)
         return np.broadcast_to(slope, q.shape)
 
+    @doc_sections(DemandSpec.marginal_revenue)
     def marginal_revenue(self, Q):
-        """``scale * (ln(size / Q) - 1)`` below ``size`` (infinite at zero, zero beyond).
-
-        Parameters
-        ----------
-        Q : float
-
-        Returns
-        -------
-        float
-        """
+        """``scale * (ln(size / Q) - 1)`` below ``size`` (infinite at zero, zero beyond)."""
         A, b = self.scalars[0], self.scalars[1]
         if Q <= 0:
             return math.inf
         return b * (math.log(A / Q) - 1.0) if Q < A else 0.0
 
+    @doc_sections(DemandSpec.quantity_at_marginal_revenue)
     def quantity_at_marginal_revenue(self, m):
-        """``size * exp(-m / scale - 1)``.
-
-        Parameters
-        ----------
-        m : float
-
-        Returns
-        -------
-        float
-        """
+        """``size * exp(-m / scale - 1)``."""
         return self.scalars[0] * math.exp(-m / self.scalars[1] - 1.0)
 
 
@@ -206,18 +150,9 @@ class SizedLinearDemand(Demand):
         self.choke = choke
         self.size = size
 
+    @doc_sections(Demand.spec)
     def spec(self, n_firms, prefix="market"):
-        """Validate the parameters; the kernel arrays are those of the linear Cournot code.
-
-        Parameters
-        ----------
-        n_firms : int
-        prefix : str
-
-        Returns
-        -------
-        SizedLinearDemandSpec
-        """
+        """Validate the parameters; the kernel arrays are those of the linear Cournot code."""
         p = self._check_params(prefix, n_firms)
         return SizedLinearDemandSpec(type(self), np.array([p["choke"], p["choke"] / p["size"], 0.0, 0.0]),
                                      np.ones(n_firms))
@@ -238,98 +173,43 @@ class SizedLinearDemandSpec(DemandSpec):
         """The quantity demanded at a zero price."""
         return float(self.scalars[0] / self.scalars[1])
 
+    @doc_sections(DemandSpec.check_market)
     def check_market(self, model, cost, prefix):
-        """Every cost below the choke price.
-
-        Parameters
-        ----------
-        model : str
-        cost : ndarray of shape (n_products,)
-        prefix : str
-        """
+        """Every cost below the choke price."""
         if np.any(cost >= self.choke):
             raise InputError(f"{prefix}.cost", f"must be below the choke price {self.choke:g}")
 
+    @doc_sections(DemandSpec.inverse_demand)
     def inverse_demand(self, q):
-        """``max(0, choke * (1 - Q / size))`` for every firm.
-
-        Parameters
-        ----------
-        q : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (..., n_products)
-        """
+        """``max(0, choke * (1 - Q / size))`` for every firm."""
         q = np.asarray(q, dtype=float)
         p = np.maximum(0.0, self.choke * (1.0 - q.sum(axis=-1, keepdims=True) / self.size))
         return np.broadcast_to(p, q.shape).copy()
 
+    @doc_sections(DemandSpec.consumer_surplus)
     def consumer_surplus(self, q, p):
-        """Triangle under demand above the price.
-
-        Parameters
-        ----------
-        q, p : array_like of shape (..., n_products)
-
-        Returns
-        -------
-        ndarray of shape (...,)
-        """
+        """Triangle under demand above the price."""
         Q = np.minimum(np.asarray(q, dtype=float).sum(axis=-1), self.size)
         return 0.5 * Q * (self.choke - self.choke * (1.0 - Q / self.size))
 
+    @doc_sections(DemandSpec.action_upper)
     def action_upper(self, ms):
-        """The market size (the price is zero beyond it).
-
-        Parameters
-        ----------
-        ms : MarketSpec
-
-        Returns
-        -------
-        ndarray of shape (n_products,)
-        """
+        """The market size (the price is zero beyond it)."""
         return np.full(ms.n_products, self.size)
 
+    @doc_sections(DemandSpec.own_slope)
     def own_slope(self, ms, A, q, p):
-        """``dP/dq_i = -choke / size`` while the price is positive, 0 beyond the market size.
-
-        Parameters
-        ----------
-        ms : MarketSpec
-        A, q, p : ndarray of shape (n_rows, n_products)
-
-        Returns
-        -------
-        ndarray of shape (n_rows, n_products)
-        """
+        """``dP/dq_i = -choke / size`` while the price is positive, 0 beyond the market size."""
         return np.where(p > 0, -self.choke / self.size, 0.0)
 
+    @doc_sections(DemandSpec.marginal_revenue)
     def marginal_revenue(self, Q):
-        """``choke * (1 - 2 Q / size)``.
-
-        Parameters
-        ----------
-        Q : float
-
-        Returns
-        -------
-        float
-        """
+        """``choke * (1 - 2 Q / size)``."""
         return self.choke * (1.0 - 2.0 * Q / self.size)
 
+    @doc_sections(DemandSpec.quantity_at_marginal_revenue)
     def quantity_at_marginal_revenue(self, m):
-        """``size * (1 - m / choke) / 2``.
-
-        Parameters
-        ----------
-        m : float
-
-        Returns
-        -------
-        float
-        """
+        """``size * (1 - m / choke) / 2``."""
         return self.size * (1.0 - m / self.choke) / 2.0
 
 
