@@ -301,6 +301,8 @@ def _growth_values(side: str, x: dict, g: float) -> str:
     text = f"{side}: growth needed {num(x['growth_needed'])}"
     if g == 0:
         return text
+    if x.get("effect"):
+        text = f"{side}: {x['effect']}; growth needed {num(x['growth_needed'])}"
     at = x["sustainable_growing"] if g > 0 else x["sustainable_declining"]
     other = x["sustainable_declining"] if g > 0 else x["sustainable_growing"]
     return (text + f"; sustainable at the stated rate g = {g:+g} {yes_no(at)}, at g = {-g:+g} {yes_no(other)}")
