@@ -51,6 +51,11 @@ LITERATURE = {
                "declining ones",
                "Correia-da-Silva, Pinho and Vasconcelos (2013), section 1; discussed in Ivaldi et al. (2003), "
                "section III.6"),
+    "contact": ("more multimarket contact", "facilitates",
+                "firms that meet in several markets pool their incentive constraints: a deviation in one market is "
+                "punished in every market they share, so slack in one market can sustain collusion in another; "
+                "pooling identical markets changes nothing",
+                "Bernheim and Whinston (1990), RAND Journal of Economics 21(1)"),
 }
 #: The works the factor table cites, in full.
 REFERENCES = {
@@ -84,7 +89,7 @@ FACTOR_LEGEND = ("Each factor is named by the change it considers. 'facilitates'
 #: Subject of each factor's reading, and whether it takes a plural verb.
 _SUBJECTS = {"firms": ("fewer firms", True), "symmetry": ("more symmetric firms", True),
              "transparency": ("less monitoring noise", False), "frequency": ("more frequent interaction", False),
-             "growth": ("growing demand", False)}
+             "growth": ("growing demand", False), "contact": ("more multimarket contact", False)}
 _Z95 = 1.959963984540054
 
 
