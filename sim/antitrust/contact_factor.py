@@ -123,6 +123,9 @@ def check_other_markets(value, mres, agreement: str, efficiency: float = 0.0) ->
     replacements = {0: mres.post}
     for m, cm in enumerate(game.markets[1:], start=1):
         here = [f for f in cm.firms if f in merging]
+        if len(here) > 1 and len(here) == len(cm.firms):
+            raise InputError(f"{_KEY}[{m}].firms", f"the merger leaves one firm in {cm.label} (a monopoly has no "
+                                                   "incentive constraint to pool); leave this market out")
         if len(here) > 1:
             try:
                 replacements[m] = merge(cm.market, Merger(here, efficiency=efficiency, names=list(cm.firms)),

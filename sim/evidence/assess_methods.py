@@ -8,6 +8,7 @@ growing market, the longest interval between interactions) is derived where it i
 from __future__ import annotations
 
 from sim.antitrust.factors import REFERENCES as FACTOR_REFERENCES
+from sim.evidence.assess_payoffs import payoff_methods
 from sim.evidence.assess_tables import SIM_ROWS, named_products, units
 
 __all__ = ["REFERENCES", "THRESHOLD_FORMULAS", "THRESHOLD_SHORT", "methods_blocks"]
@@ -155,6 +156,7 @@ def methods_blocks(d: dict) -> list:
                                "demand, Werden and Froeb, 1994). "
                                "After the merger the merged firm sets the prices or quantities of all its products "
                                "jointly (Werden and Froeb, 1994)."))
+    B += payoff_methods(d)
     B += _estimators(d)
     B.append(("heading", "References", 3))
     B.append(("bullets", [REFERENCES[k] for k in sorted(REFERENCES)]))
