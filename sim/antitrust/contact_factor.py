@@ -39,7 +39,7 @@ ASSESSED = "assessed market"
 class ContactSetup:
     """The validated contact game of an assessment.
 
-    Attributes
+    Parameters
     ----------
     game : ContactGame
         The markets before the merger: the assessed market (index 0) and the other markets.

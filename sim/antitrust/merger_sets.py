@@ -55,7 +55,7 @@ PAYOFF_SET_KEYS = ("grid", "directions", "tolerance")
 class PayoffSetsSpec:
     """The validated ``[assess.payoff_sets]`` table, one any-punishment question per side.
 
-    Attributes
+    Parameters
     ----------
     before, after : AnyPunishmentSpec
         Grid, directions, tolerance and the discount factor (the assessment's) of each side.
@@ -173,7 +173,7 @@ def symmetric_slice(vertices) -> tuple:
 class PayoffSetSide(Record):
     """The equilibrium payoff set of one side at the assessment's discount factor.
 
-    Attributes
+    Parameters
     ----------
     label : {"before", "after"}
     names : list of str
@@ -200,7 +200,7 @@ class PayoffSetSide(Record):
 class PayoffSetsComparison(Record):
     """The payoff sets before and after a merger.
 
-    Attributes
+    Parameters
     ----------
     delta : float
         The assessment's discount factor.
