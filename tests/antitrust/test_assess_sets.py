@@ -43,7 +43,8 @@ def test_three_to_two_cournot_lowers_the_any_punishment_threshold(merged):
     """A merger from three to two symmetric linear Cournot firms makes tacit collusion easier: with fewer firms each
     firm's share of the collusive profit is larger and its gain from deviating smaller (Tirole, 1988, The Theory of
     Industrial Organization, ch. 6; Ivaldi, Jullien, Rey, Seabright and Tirole, 2003, The Economics of Tacit
-    Collusion, section III.1 on the number of competitors). Under any punishment the certified intervals must say so:
+    Collusion, section III.1 on the number of competitors; section numbers from memory). Under any punishment the
+    certified intervals must say so:
     the interval after lies below the one before. On each side, on the same grid: the lowest threshold under any
     punishment <= the best symmetric stick and carrot <= grim trigger (the named schemes are particular
     equilibria; Abreu, 1988, optimal penal codes are the harshest), and grim trigger on the grid equals the closed
@@ -123,7 +124,8 @@ def _growth_row(a):
 def test_growth_threshold_against_the_bertrand_closed_form(g):
     """Homogeneous Bertrand with n equal firms: C = M / n, D = M, N = 0, so grim trigger needs delta >= 1 - 1/n
     (Tirole, 1988, ch. 6); with every profit growing at rate g the condition holds on delta (1 + g), so
-    delta*(g) = (1 - 1/n) / (1 + g) (Ivaldi et al., 2003, section III.6 on demand growth). g = 0 gives the plain
+    delta*(g) = (1 - 1/n) / (1 + g) (Ivaldi et al., 2003, section III.6 on demand growth -- section number from
+    memory). g = 0 gives the plain
     threshold; a decline (g < 0) raises it, and the row says collusion is harder. After the merger of two of the
     four firms the merged firm keeps both owners' customers at a common price (tie shares 1/2, 1/4, 1/4), so the
     smallest firm binds at 1 - 1/4, the same formula with its share."""
