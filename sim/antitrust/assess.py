@@ -38,8 +38,10 @@ from tqdm import tqdm
 
 from sim.antitrust.calibration import MarketData, calibrate
 from sim.antitrust.conclusion import assumptions, conclusion
+from sim.antitrust.contact_factor import check_other_markets, contact_row
 from sim.antitrust.factors import factor_table
 from sim.antitrust.merger import Merger, merge
+from sim.antitrust.merger_sets import check_payoff_sets, compare_payoff_sets
 from sim.antitrust.options import (
     ASSESS_TABLES,
     SENSITIVITY_INPUTS,
@@ -118,6 +120,10 @@ class PreparedAssessment:
         The experiment's name.
     currency, period : str or None
         What money and a period are counted in.
+    payoff_sets : PayoffSetsSpec, optional
+        The validated ``[assess.payoff_sets]`` table (None: no payoff sets).
+    contact : ContactSetup, optional
+        The validated ``[[assess.other_markets]]`` with the contact game (None: no other markets).
     """
 
     opts: dict
@@ -138,13 +144,16 @@ class PreparedAssessment:
     name: str = "assessment"
     currency: str | None = None
     period: str | None = None
+    payoff_sets: Any = None
+    contact: Any = None
 
 
 def assess(source, merger, monitoring=None, lineup=None, run=None, agreement: str = "joint", scheme: str = "grim",
            length: int | None = None, punishments=(1, 2, 3), deltas=(0.5, 0.6, 0.7, 0.8, 0.9),
            partial=None, growth: float = 0.02, simulate: bool = True, transparency_scale: float = 2.0,
            sensitivity: dict | None = None, progress=None, key=(0,), name: str = "assessment",
-           currency: str | None = None, period: str | None = None) -> Assessment:
+           currency: str | None = None, period: str | None = None, payoff_sets: dict | None = None,
+           other_markets: list | None = None) -> Assessment:
     """Compare the scope for tacit collusion before and after a merger.
 
     Parameters
@@ -201,6 +210,12 @@ def assess(source, merger, monitoring=None, lineup=None, run=None, agreement: st
         The experiment's name (the result's title).
     currency, period : str, optional
         What money and a period are counted in (``experiment.currency``, ``experiment.period``).
+    payoff_sets : dict, optional
+        ``[assess.payoff_sets]``: compare the equilibrium payoff sets before and after on action grids (``grid``,
+        ``directions``, ``tolerance``; see :func:`sim.antitrust.merger_sets.check_payoff_sets`).
+    other_markets : list of dict, optional
+        ``[[assess.other_markets]]``: markets where the firms also meet (``market``, ``firms``, ``label``,
+        ``growth``), for the multimarket-contact row (see :mod:`sim.antitrust.contact_factor`).
 
     Returns
     -------
@@ -210,7 +225,8 @@ def assess(source, merger, monitoring=None, lineup=None, run=None, agreement: st
                                   scheme=scheme, length=length, punishments=punishments, deltas=deltas,
                                   partial=partial, growth=growth, simulate=simulate,
                                   transparency_scale=transparency_scale, sensitivity=sensitivity, name=name,
-                                  currency=currency, period=period)
+                                  currency=currency, period=period, payoff_sets=payoff_sets,
+                                  other_markets=other_markets)
     return run_assessment(prepared, progress=progress, key=key)
 
 
@@ -294,7 +310,8 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
                        deltas=(0.5, 0.6, 0.7, 0.8, 0.9), partial=None, growth: float = 0.02,
                        simulate: bool = True, transparency_scale: float = 2.0,
                        sensitivity: dict | None = None, name: str = "assessment", currency: str | None = None,
-                       period: str | None = None) -> PreparedAssessment:
+                       period: str | None = None, payoff_sets: dict | None = None,
+                       other_markets: list | None = None) -> PreparedAssessment:
     """Validate the inputs of :func:`assess`, calibrate, build the post-merger market, compile the line-ups and
     build every monitoring setting the simulations will use (the experiment's, the rescaled one of the
     transparency factor, one per noise-sensitivity scale). No threshold or simulation is computed yet.
@@ -302,7 +319,7 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
     Parameters
     ----------
     source, merger, monitoring, lineup, run, agreement, scheme, length, punishments, deltas, partial, growth, \
-simulate, transparency_scale, sensitivity, name, currency, period : object
+simulate, transparency_scale, sensitivity, name, currency, period, payoff_sets, other_markets : object
         As in :func:`assess`.
 
     Returns
@@ -333,8 +350,15 @@ simulate, transparency_scale, sensitivity, name, currency, period : object
     rescaled, noise_mons = _noise_settings(opts, sens, mon)
     eff_delta = runs["delta"] * (runs["continuation"] if runs["horizon"] == "random" else 1.0)
     settings = _settings(opts, runs, eff_delta, mon, entries, post_entries, sens, axes, mres, merger)
+    sets = check_payoff_sets(payoff_sets, mres, opts["agreement"], eff_delta)
+    contact = check_other_markets(other_markets, mres, opts["agreement"], mres.efficiency)
+    if sets is not None:
+        settings["payoff_sets"] = {"grid": list(sets.before.grid), "directions_before": sets.before.directions,
+                                   "directions_after": sets.after.directions, "tolerance": sets.before.tolerance}
+    if contact is not None:
+        settings["other_markets"] = [cm.to_dict() for cm in contact.game.markets[1:]]
     return PreparedAssessment(opts, data, calibration, merger, mres, mon, runs, sens, entries, post_entries, games,
-                              eff_delta, settings, rescaled, noise_mons, name, currency, period)
+                              eff_delta, settings, rescaled, noise_mons, name, currency, period, sets, contact)
 
 
 def _simulate(p: PreparedAssessment, sides: dict, key: tuple, threads, bar: _Progress) -> None:
@@ -374,7 +398,8 @@ def run_assessment(p: PreparedAssessment, progress=None, key=(0,), threads: int 
     n_sens = sum(len(sens[k]) for k in SENSITIVITY_INPUTS if k in sens)
     n_noise = len(sens.get("noise", [])) if opts["simulate"] else 0
     n_delta = len(sens.get("delta", [])) if "delta" in sens else 0
-    total = 2 * (2 + len(opts["deltas"])) + (4 if opts["simulate"] else 0) + 3 + n_sens + n_noise + n_delta
+    total = (2 * (2 + len(opts["deltas"])) + (4 if opts["simulate"] else 0) + 3 + n_sens + n_noise + n_delta
+             + (2 if p.payoff_sets is not None else 0) + (1 if p.contact is not None else 0))
     bar = _Progress(total, progress)
     try:
         sides = {label: solve_side(label, mk, names, opts, bar.step)
@@ -384,6 +409,12 @@ def run_assessment(p: PreparedAssessment, progress=None, key=(0,), threads: int 
         before, after = sides["before"], sides["after"]
         concl = conclusion(before, after, opts, p.effective_delta)
         factors = factor_table(mres.pre, before, after, opts, p.effective_delta, p.monitoring, bar.step)
+        if p.contact is not None:
+            factors.append(contact_row(p.contact))
+            bar.step("factors: multimarket contact")
+        sets = None
+        if p.payoff_sets is not None:
+            sets = compare_payoff_sets(p.payoff_sets, mres, opts["agreement"], bar.step).to_dict()
         sens_out = sensitivity(p, before, after, bar.step, key, threads)
         if sens_out:
             concl["robustness"] = robustness(sens_out, concl)
@@ -393,4 +424,6 @@ def run_assessment(p: PreparedAssessment, progress=None, key=(0,), threads: int 
     parts = {"settings": p.settings, "calibration": None if p.calibration is None else p.calibration.to_dict(),
              "merger": mres.to_dict(), "before": before.to_dict(), "after": after.to_dict(), "conclusion": concl,
              "factors": factors, "sensitivity": sens_out, "assumptions": said}
+    if sets is not None:
+        parts["payoff_sets"] = sets
     return Assessment.from_parts(parts, name=p.name, currency=p.currency, period=p.period)

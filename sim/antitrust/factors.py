@@ -3,8 +3,11 @@
 Each factor is named by the change it considers -- fewer firms, more symmetric firms, more transparency (less
 monitoring noise), more frequent interaction, growing demand -- so that "facilitates" reads "this change makes
 collusion easier". The direction this model computes is set beside the direction the literature states, each with
-its source (:data:`LITERATURE`; full references in :data:`REFERENCES`). Frequency and growth are structural: the
-model's definitions fix their direction, so they are reported as such and not compared.
+its source (:data:`LITERATURE`; full references in :data:`REFERENCES`). Frequency is structural: the model's
+definitions fix its direction, so it is reported as such and not compared. Growth is computed: the threshold of the
+headline scheme with demand growing (or declining) at the stated rate g, whose effective discount factor is
+``delta (1 + g)`` (grim trigger through :func:`sim.theory.demand_states.state_thresholds` with one demand state;
+Ivaldi et al., 2003, section on demand growth).
 """
 
 from __future__ import annotations
@@ -18,8 +21,9 @@ from sim.antitrust.conclusion import scheme_label
 from sim.antitrust.options import has_noise
 from sim.antitrust.sides import scheme_threshold, symmetric_counterpart
 from sim.core.errors import InputError, SolverError
+from sim.theory.demand_states import DemandStates, state_thresholds
 
-__all__ = ["FACTOR_LEGEND", "LITERATURE", "REFERENCES", "STRUCTURAL", "factor_table"]
+__all__ = ["FACTOR_LEGEND", "LITERATURE", "REFERENCES", "STRUCTURAL", "factor_table", "threshold_with_growth"]
 
 #: The factor table's rows: key -> (name, the direction the literature states, its reasoning in our words, the
 #: source of the direction). Each factor is named by the change it considers, so that "facilitates" reads as "this
@@ -47,6 +51,11 @@ LITERATURE = {
                "declining ones",
                "Correia-da-Silva, Pinho and Vasconcelos (2013), section 1; discussed in Ivaldi et al. (2003), "
                "section III.6"),
+    "contact": ("more multimarket contact", "facilitates",
+                "firms that meet in several markets pool their incentive constraints: a deviation in one market is "
+                "punished in every market they share, so slack in one market can sustain collusion in another; "
+                "pooling identical markets changes nothing",
+                "Bernheim and Whinston (1990), RAND Journal of Economics 21(1)"),
 }
 #: The works the factor table cites, in full.
 REFERENCES = {
@@ -54,6 +63,11 @@ REFERENCES = {
                             "Tacit Collusion, final report for DG Competition, European Commission",
     "Davies and Olczak (2008)": "Davies, S. and M. Olczak (2008), Tacit versus overt collusion, firm asymmetries and "
                                 "numbers: what's the evidence?, Competition Policy International",
+    "Haltiwanger and Harrington (1991)": "Haltiwanger, J. and J. E. Harrington (1991), The impact of cyclical "
+                                         "demand movements on collusive behavior, RAND Journal of Economics 22(1), "
+                                         "89-106",
+    "Bernheim and Whinston (1990)": "Bernheim, B. D. and M. D. Whinston (1990), Multimarket contact and collusive "
+                                    "behavior, RAND Journal of Economics 21(1), 1-26",
     "Correia-da-Silva, Pinho and Vasconcelos (2013)": "Correia-da-Silva, J., J. Pinho and H. Vasconcelos (2013), "
                                                       "Cartel stability and profits under different reactions to "
                                                       "entry in markets with growing demand, FEP Working Paper 487, "
@@ -68,14 +82,14 @@ FACTOR_LEGEND = ("Each factor is named by the change it considers. 'facilitates'
                  "'hinders': it makes collusion harder; 'no effect': no difference (for simulations, none beyond "
                  "1.96 standard errors); 'mixed': the markets before and after the merger disagree; 'not "
                  "computed': the model cannot vary the factor here (see the note). 'structural (by construction)': "
-                 "the direction follows from the model's definitions (the discount factor per interaction, "
-                 "profits that grow with demand) and is not computed, so it is not compared with the literature "
+                 "the direction follows from the model's definitions (the discount factor per interaction) and "
+                 "is not computed, so it is not compared with the literature "
                  "and 'agree' is left empty; the row reports how far each market is from its threshold.")
 
 #: Subject of each factor's reading, and whether it takes a plural verb.
 _SUBJECTS = {"firms": ("fewer firms", True), "symmetry": ("more symmetric firms", True),
              "transparency": ("less monitoring noise", False), "frequency": ("more frequent interaction", False),
-             "growth": ("growing demand", False)}
+             "growth": ("growing demand", False), "contact": ("more multimarket contact", False)}
 _Z95 = 1.959963984540054
 
 
@@ -220,7 +234,8 @@ def _frequency(sides, opts: dict, delta: float) -> dict:
 
 def _growth_varied(g: float) -> str:
     if g > 0:
-        return f"demand growing (declining) by {g:g} per period: effective discount factor delta (1 +/- g)"
+        return (f"demand growing by {g:g} per period (and declining at that rate, for comparison): effective discount "
+                "factor delta (1 + g)")
     if g < 0:
         return (f"demand declining by {-g:g} per period, as stated (and growing at that rate, for comparison): "
                 "effective discount factor delta (1 + g)")
@@ -228,23 +243,91 @@ def _growth_varied(g: float) -> str:
             "factor delta (1 + g)")
 
 
+def threshold_with_growth(market, agreement: str, scheme: str, threshold: float, g: float) -> float:
+    """The critical discount factor of a scheme when every stage profit grows at rate ``g`` per period.
+
+    A stream growing at rate g and discounted at delta is worth the constant stream discounted at ``beta =
+    delta (1 + g)``, so every threshold condition holds on the scale of beta and ``delta*(g) = beta* / (1 + g)``
+    (Ivaldi, Jullien, Rey, Seabright and Tirole, 2003, The Economics of Tacit Collusion, section on demand growth;
+    for grim trigger, ``delta*(g) = (pi_D - pi_C) / ((pi_D - pi_N)(1 + g))``). Grim trigger is computed through
+    :func:`sim.theory.demand_states.state_thresholds` with one demand state growing at g; the other schemes divide
+    their threshold by ``1 + g``.
+
+    Parameters
+    ----------
+    market : Market
+    agreement : str
+    scheme : {"grim", "finite", "stick_carrot"}
+    threshold : float
+        The scheme's threshold without growth (nan: not sustainable below one).
+    g : float in (-1, 1)
+
+    Returns
+    -------
+    float
+        nan when no discount factor below one sustains the agreement with growth g.
+    """
+    if scheme == "grim":
+        return float(state_thresholds(DemandStates.iid([1.0], growth=g), [market], agreement).market)
+    if not math.isfinite(rank(threshold)):
+        return math.nan
+    t = threshold / (1.0 + g)
+    return t if t < 1.0 else math.nan
+
+
+def _growth_effect(t: float, tg: float, g: float) -> str:
+    """The growth row's sentence for one market: harder or easier, and by how much."""
+    if g == 0:
+        return ""
+    if not math.isfinite(rank(tg)):
+        return (f"at g = {g:+g} no discount factor below one sustains the agreement (without growth: "
+                f"{t:.4g}); a decline of {-g:g} per period makes collusion impossible" if g < 0 else "")
+    if not math.isfinite(rank(t)):
+        return f"at g = {g:+g} the threshold is {tg:.4g} (no discount factor below one sustains it without growth)"
+    word = "harder" if g < 0 else "easier"
+    return (f"at g = {g:+g} the threshold is {tg:.4g} instead of {t:.4g} ({tg - t:+.4g}, {tg / t - 1.0:+.2%}): "
+            f"collusion is {word}")
+
+
 def _growth(sides, opts: dict, delta: float) -> dict:
-    # profits growing at rate g per period make the effective discount factor delta (1 + g) -- structural as well;
-    # the row compares growth and decline at the stated rate's size |g| (a declining market states g < 0)
+    # the threshold with demand growing (declining) at the stated rate g, computed; the row also reports the growth
+    # or decline each market bears at delta and the flags at the stated rate's size |g| either way
     g = opts["growth"]
     size = abs(g)
-    vals = {}
+    vals, dirs, notes = {}, [], []
     for side in sides:
         t = side.headline(opts).market
+        try:
+            tg = threshold_with_growth(side.market, opts["agreement"], opts["scheme"], t, g)
+        except (InputError, SolverError) as exc:
+            tg = math.nan
+            notes.append(f"{side.label}: {exc}")
         up, down = min(delta * (1 + size), 1.0 - 1e-15), delta * (1 - size)
-        vals[side.label] = {"threshold": finite_or_none(t),
+        effect = _growth_effect(t, tg, g)
+        vals[side.label] = {"threshold": finite_or_none(t), "threshold_with_growth": finite_or_none(tg),
+                            "change_with_growth": (tg - t) if math.isfinite(rank(t)) and math.isfinite(rank(tg))
+                            else None,
+                            "sustainable_with_growth": sustains(tg, min(delta, 1.0 - 1e-15)),
                             "growth_needed": (t / delta - 1.0) if math.isfinite(rank(t)) and delta > 0 else None,
                             "sustainable_declining": sustains(t, down), "sustainable": sustains(t, delta),
-                            "sustainable_growing": sustains(t, up)}
+                            "sustainable_growing": sustains(t, up), "effect": effect}
+        if g != 0:
+            # "growing demand" is the change from the lower rate to the higher one; a market that no discount
+            # factor below one holds either way shows no direction
+            low, high = (tg, t) if g < 0 else (t, tg)
+            both_out = not (math.isfinite(rank(t)) or math.isfinite(rank(tg)))
+            dirs.append("not computed" if both_out else _direction_from(low, high))
+        if effect:
+            notes.append(f"{side.label}: {effect}")
+    if g == 0:
+        notes.append("no growth stated (assess.growth = 0): the row reports the growth each market needs")
     return _row("growth", _growth_varied(g),
-                "growth per period needed for sustainability, threshold / delta - 1 (negative: the decline tolerated)",
-                vals, STRUCTURAL, "assumes every stage profit scales with demand (true of the shipped demand systems "
-                                  "when quantities scale; capacities grow with demand)")
+                f"critical discount factor ({scheme_label(opts)}) with demand growing at the stated rate g: "
+                "threshold / (1 + g); and the growth per period needed for sustainability, threshold / delta - 1 "
+                "(negative: the decline tolerated)",
+                vals, _combine(dirs) if dirs else "not computed",
+                "; ".join([*notes, "assumes every stage profit scales with demand (true of the shipped demand systems "
+                                   "when quantities scale; capacities grow with demand)"]))
 
 
 def factor_table(pre, before, after, opts: dict, delta: float, mon, step) -> list:

@@ -31,7 +31,7 @@ ASSESS_TABLES = ("experiment", "market", "data", "merger", "collusion", "monitor
                  "assess")
 _EXPERIMENT_KEYS = ("name", "kind", "description", "currency", "period")
 _ASSESS_KEYS = ("scheme", "length", "punishments", "deltas", "partial", "growth", "simulate", "transparency_scale",
-                "sensitivity")
+                "sensitivity", "payoff_sets", "other_markets")
 _SENS_KEYS = ("margin", "elasticity", "market_elasticity", "size", "delta", "noise")
 _NOISE_PARAMS = ("sigma", "perception_error", "implementation_error")
 
@@ -286,8 +286,11 @@ def assessment_from_dict(doc: dict) -> dict:
     to calibrate from, see :class:`~sim.antitrust.calibration.MarketData`), ``[merger]``, ``[collusion]``
     (``agreement``), ``[monitoring]``, ``[[strategies]]`` (the pre-merger line-up), ``[run]`` and ``[assess]``
     (``scheme``, ``length``, ``punishments``, ``deltas``, ``partial``, ``growth``, ``simulate``,
-    ``transparency_scale`` and a ``[assess.sensitivity]`` table of ranges: lists of values or ``{start, stop,
-    num}`` / ``{start, stop, step}``). Unknown tables and keys raise :class:`InputError` naming them.
+    ``transparency_scale``, a ``[assess.sensitivity]`` table of ranges: lists of values or ``{start, stop,
+    num}`` / ``{start, stop, step}``, an optional ``[assess.payoff_sets]`` table (``grid``, ``directions``,
+    ``tolerance``: the equilibrium payoff sets before and after) and optional ``[[assess.other_markets]]`` entries
+    (``market``, ``firms``, ``label``, ``growth``: markets where the firms also meet, for the multimarket-contact
+    row)). Unknown tables and keys raise :class:`InputError` naming them.
 
     Parameters
     ----------

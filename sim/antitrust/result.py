@@ -16,6 +16,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from sim.antitrust.merger_sets import PayoffSetsComparison
 from sim.core.jsonutil import jsonable
 from sim.core.records import Record
 from sim.core.text import CAUTION
@@ -146,6 +147,9 @@ class Assessment(Record):
         What money is counted in (``experiment.currency``, for example ``"EUR"``); None: not stated.
     period : str or None
         What one period of the model is (``experiment.period``, for example ``"month"``); None: not stated.
+    payoff_sets : PayoffSetsComparison or None
+        The equilibrium payoff sets before and after (:mod:`sim.antitrust.merger_sets`); None when
+        ``[assess.payoff_sets]`` is not given (and then absent from :meth:`to_dict`).
     """
 
     settings: dict
@@ -161,6 +165,19 @@ class Assessment(Record):
     name: str = "assessment"
     currency: str | None = None
     period: str | None = None
+    payoff_sets: PayoffSetsComparison | None = None
+
+    def to_dict(self) -> dict:
+        """The assessment as plain JSON data, without the payoff sets it does not have.
+
+        Returns
+        -------
+        dict
+        """
+        out = super().to_dict()
+        if out["payoff_sets"] is None:
+            del out["payoff_sets"]
+        return out
 
     def sides(self) -> tuple:
         """Both sides with their labels.

@@ -14,7 +14,7 @@ from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.render import Drawn, pyplot
 from sim.theory.any_punishment import AnyPunishmentResult
 
-__all__ = ["bracket", "console_lines", "figure", "scheme_row", "to_json"]
+__all__ = ["bracket", "console_lines", "draw_payoff_set", "figure", "scheme_row", "to_json"]
 
 _VERDICTS = {
     "sustained": "the agreement is an equilibrium outcome (certified by constructed equilibria)",
@@ -187,6 +187,39 @@ def figure(ap: AnyPunishmentResult, currency: str | None = None, period: str | N
         return None
     plt = pyplot()
     fig, ax = plt.subplots(figsize=(PAGE_WIDTH, PAGE_WIDTH * 0.95), layout="constrained")
+    draw_payoff_set(ax, ap, currency, period)
+    proj = "" if ap.n_firms == 2 else f" (projection on firms 1 and 2 of {ap.n_firms})"
+    ax.set_title(f"Equilibrium payoffs at delta {fmt_num(ap.delta)}, {_grid(ap)} action grid"
+                 + (f"\n{proj.strip()}" if proj else ""), fontsize=FONT + 1)
+    fig.legend(loc="outside lower center", ncol=2, fontsize=SMALL, frameon=False)
+    caption = (f"Subgame-perfect equilibrium payoffs (discounted average profit per period) at discount factor "
+               f"{fmt_num(ap.delta)} on a {_grid(ap)} action grid{proj}: every equilibrium payoff lies in the outer "
+               f"set; the inner set holds payoffs of equilibria that were constructed (Hausdorff gap "
+               f"{fmt_num(ap.accuracy)}). The agreement's lowest critical discount factor under any punishment is "
+               f"{bracket(ap)}; grim trigger needs {fmt_num(ap.grim)} and the best stick and carrot "
+               f"{fmt_num(ap.stick_carrot)} on the same grid. The optimal penal codes (Abreu, 1988) start at each "
+               f"firm's worst equilibrium payoff.")
+    return Drawn("payoff-set", fig, caption)
+
+
+def draw_payoff_set(ax, ap: AnyPunishmentResult, currency: str | None = None, period: str | None = None,
+                    names=None) -> None:
+    """Draw the payoff set of ``ap`` (projected on firms 1 and 2) with its marked payoffs on ``ax``.
+
+    Parameters
+    ----------
+    ax : matplotlib Axes
+    ap : AnyPunishmentResult
+    currency, period : str, optional
+        Units of money.
+    names : sequence of str, optional
+        Firm names (default "firm 1", "firm 2", ...): the axes are the first two firms' profits.
+
+    Returns
+    -------
+    None
+    """
+    names = list(names) if names is not None else [f"firm {i + 1}" for i in range(ap.n_firms)]
     _polygon(ax, ap.feasible, facecolor="#eeeeee", edgecolor="#bbbbbb", lw=0.8, label="feasible stage payoffs")
     _polygon(ax, ap.outer, facecolor="none", edgecolor=color(0), lw=1.4, ls="--", label="outer set")
     _polygon(ax, ap.inner, facecolor=color(5), edgecolor=color(0), alpha=0.55, lw=1.0,
@@ -202,24 +235,12 @@ def figure(ap: AnyPunishmentResult, currency: str | None = None, period: str | N
             ax.plot(v[0, 0], v[0, 1], marker=_PENAL_MARKERS[pc.firm % len(_PENAL_MARKERS)], ms=7, ls="none",
                     color=color(4 + pc.firm // len(_PENAL_MARKERS)),
                     markeredgecolor="black", markeredgewidth=0.5, zorder=5,
-                    label=f"optimal penal code of firm {pc.firm + 1}")
+                    label=f"optimal penal code of {names[pc.firm] if pc.firm < len(names) else pc.firm + 1}")
     _zoom(ax, ap)
     unit = money(currency, period)
-    ax.set_xlabel(f"profit of firm 1 [{unit}]", fontsize=FONT)
-    ax.set_ylabel(f"profit of firm 2 [{unit}]", fontsize=FONT)
+    ax.set_xlabel(f"profit of {names[0]} [{unit}]", fontsize=FONT)
+    ax.set_ylabel(f"profit of {names[1]} [{unit}]", fontsize=FONT)
     ax.tick_params(labelsize=SMALL)
     ax.set_aspect("equal", adjustable="box")
     ax.grid(True, color="#dddddd", lw=0.5)
     ax.set_axisbelow(True)
-    proj = "" if ap.n_firms == 2 else f" (projection on firms 1 and 2 of {ap.n_firms})"
-    ax.set_title(f"Equilibrium payoffs at delta {fmt_num(ap.delta)}, {_grid(ap)} action grid"
-                 + (f"\n{proj.strip()}" if proj else ""), fontsize=FONT + 1)
-    fig.legend(loc="outside lower center", ncol=2, fontsize=SMALL, frameon=False)
-    caption = (f"Subgame-perfect equilibrium payoffs (discounted average profit per period) at discount factor "
-               f"{fmt_num(ap.delta)} on a {_grid(ap)} action grid{proj}: every equilibrium payoff lies in the outer "
-               f"set; the inner set holds payoffs of equilibria that were constructed (Hausdorff gap "
-               f"{fmt_num(ap.accuracy)}). The agreement's lowest critical discount factor under any punishment is "
-               f"{bracket(ap)}; grim trigger needs {fmt_num(ap.grim)} and the best stick and carrot "
-               f"{fmt_num(ap.stick_carrot)} on the same grid. The optimal penal codes (Abreu, 1988) start at each "
-               f"firm's worst equilibrium payoff.")
-    return Drawn("payoff-set", fig, caption)

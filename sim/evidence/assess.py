@@ -19,6 +19,7 @@ from sim.core.errors import InputError
 from sim.core.jsonutil import dumps
 from sim.core.text import CAUTION, table
 from sim.evidence.assess_figures import assessment_figures
+from sim.evidence.assess_payoffs import payoff_lines
 from sim.evidence.assess_summary import summary_blocks
 from sim.evidence.assess_tables import (
     SIDES,
@@ -87,6 +88,7 @@ def console(a) -> str:
                  + ", ".join(f"{lab} {percent(r['change'])}" for lab, r in price_rows(d)))
     lines += ["", "Critical discount factors ('-': not sustainable below one)", table(*T["thresholds"], "lrlrllll")]
     lines += [*_stick_and_carrot_lines(d), ""]
+    lines += payoff_lines(d)
     if "persistence" in T:
         lines += ["Simulated persistence (95% confidence intervals)", table(*T["persistence"]), ""]
     lines.append("Factors, each named by the change it considers: its effect on collusion in the model and in the "

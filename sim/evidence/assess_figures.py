@@ -11,6 +11,7 @@ import itertools
 
 import numpy as np
 
+from sim.evidence.assess_payoffs import payoff_figure
 from sim.evidence.assess_tables import SCHEME_LABELS, SIDES, as_float, assessment_data, in_order
 from sim.evidence.render import Drawn, pyplot
 
@@ -261,4 +262,7 @@ def assessment_figures(a) -> list:
         figs.append(_along_delta(plt, sens["delta"]))
     if "noise" in sens:
         figs.append(_along_noise(plt, sens["noise"]))
+    sets = payoff_figure(d)
+    if sets is not None:
+        figs.append(sets)
     return figs

@@ -8,6 +8,7 @@ growing market, the longest interval between interactions) is derived where it i
 from __future__ import annotations
 
 from sim.antitrust.factors import REFERENCES as FACTOR_REFERENCES
+from sim.evidence.assess_payoffs import payoff_methods
 from sim.evidence.assess_tables import SIM_ROWS, named_products, units
 
 __all__ = ["REFERENCES", "THRESHOLD_FORMULAS", "THRESHOLD_SHORT", "methods_blocks"]
@@ -83,14 +84,26 @@ def _growth(d: dict) -> str:
     g = d["settings"]["growth"]
     rate = ("no growth (g = 0)" if g == 0 else f"growth of {g:g} per period" if g > 0
             else f"a decline of {-g:g} per period (g = {g:g})")
+    effect = ""
+    if g < 0:
+        effect = (" A declining market makes collusion harder: every threshold rises by the factor 1 / (1 + g) = "
+                  f"{1.0 / (1.0 + g):.4g} (the factor table's growth row gives each market's threshold with the "
+                  "decline and how far it rises).")
+    elif g > 0:
+        effect = (" A growing market makes collusion easier: every threshold falls by the factor 1 / (1 + g) = "
+                  f"{1.0 / (1.0 + g):.4g} (the factor table's growth row gives each market's threshold with growth).")
     return ("Growing or declining demand: if every stage profit grows at rate g per period (the profit of period t "
-            "is (1 + g)^t times that of period 0; g < 0 for a declining market), each value in the conditions above "
-            "is a stationary one with delta replaced by delta (1 + g), for example `sum_t delta^t (1 + g)^t C_i = "
-            "C_i / (1 - delta (1 + g))`. Every threshold condition therefore holds with the effective discount "
-            "factor `delta (1 + g)` (derived here, one line of algebra; it needs delta (1 + g) < 1), and the growth "
-            "per period a market needs is threshold / delta - 1 (negative: the decline it tolerates). This "
-            f"assessment states {rate}. The literature's direction for growth: Correia-da-Silva, Pinho and "
-            "Vasconcelos (2013), section 1; Ivaldi et al. (2003), section III.6.")
+            "is (1 + g)^t times that of period 0; g < 0 for a declining market, g > -1), each value in the conditions "
+            "above is a stationary one with delta replaced by delta (1 + g), for example `sum_t delta^t (1 + g)^t C_i "
+            "= C_i / (1 - delta (1 + g))`. Every threshold condition therefore holds with the effective discount "
+            "factor `delta (1 + g)` (it needs delta (1 + g) < 1), so each threshold with growth is the threshold "
+            "without growth divided by 1 + g; for grim trigger `delta_i(g) = (D_i - C_i) / ((D_i - N_i)(1 + g))`, "
+            "and for homogeneous Bertrand with n equal firms `(1 - 1/n) / (1 + g)` (Ivaldi, Jullien, Rey, Seabright "
+            "and Tirole, 2003, section III.6 on demand growth; demand that moves in cycles rather than at a constant "
+            "rate is treated by Haltiwanger and Harrington, 1991). The growth per period a market needs at delta is "
+            f"threshold / delta - 1 (negative: the decline it tolerates). This assessment states {rate}.{effect} The "
+            "literature's direction for growth: Correia-da-Silva, Pinho and Vasconcelos (2013), section 1; Ivaldi et "
+            "al. (2003), section III.6.")
 
 
 def _estimators(d: dict) -> list:
@@ -143,6 +156,7 @@ def methods_blocks(d: dict) -> list:
                                "demand, Werden and Froeb, 1994). "
                                "After the merger the merged firm sets the prices or quantities of all its products "
                                "jointly (Werden and Froeb, 1994)."))
+    B += payoff_methods(d)
     B += _estimators(d)
     B.append(("heading", "References", 3))
     B.append(("bullets", [REFERENCES[k] for k in sorted(REFERENCES)]))

@@ -13,6 +13,7 @@ from sim.antitrust.factors import FACTOR_LEGEND
 from sim.antitrust.merger import difference
 from sim.core.text import CAUTION
 from sim.evidence.assess_methods import THRESHOLD_SHORT, methods_blocks
+from sim.evidence.assess_payoffs import payoff_blocks
 from sim.evidence.assess_tables import (
     SIDES,
     as_float,
@@ -197,6 +198,7 @@ def summary_blocks(a, figures=()) -> list:
     B += _setup(d)
     if d["calibration"] is not None:
         B += _calibration(d)
+    B += payoff_blocks(d, fig)
     B += _merger(d) + _dynamics(d, fig) + _factors(d) + _sensitivity(d, fig) + methods_blocks(d)
     # stated in the bundle's one section of assumptions, with the kind's general ones
     B.append(("assumptions", [*(named_products(d, x) for x in d["assumptions"]),

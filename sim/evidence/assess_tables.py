@@ -16,6 +16,7 @@ from sim.antitrust.merger import difference
 from sim.antitrust.options import SENSITIVITY_INPUTS
 from sim.antitrust.result import DEFAULT_CURRENCY, DEFAULT_PERIOD
 from sim.core.text import fmt_num
+from sim.evidence.assess_payoffs import payoff_table
 from sim.models.market import DEMAND_KEYS
 
 __all__ = ["FACTOR_HEADERS", "SIDES", "as_float", "assessment_data", "assessment_tables", "csv_tables", "in_order",
@@ -294,6 +295,10 @@ def _factor_values(f: dict, growth: float) -> str:
                          f"{num(x.get('longest_interval'), 3)} periods")
         elif name == "growth":
             parts.append(_growth_values(side, x, growth))
+        elif name == "contact":
+            firms = ", ".join(f"{r['firm']} {num(r['pooled'])}" for r in x["merging"])
+            parts.append(f"{side}: assessed market alone {num(x['alone'])}, with contact {num(x['pooled'])} "
+                         f"(pooled: {firms})")
     return "; ".join(parts)
 
 
@@ -301,6 +306,8 @@ def _growth_values(side: str, x: dict, g: float) -> str:
     text = f"{side}: growth needed {num(x['growth_needed'])}"
     if g == 0:
         return text
+    if x.get("effect"):
+        text = f"{side}: {x['effect']}; growth needed {num(x['growth_needed'])}"
     at = x["sustainable_growing"] if g > 0 else x["sustainable_declining"]
     other = x["sustainable_declining"] if g > 0 else x["sustainable_growing"]
     return (text + f"; sustainable at the stated rate g = {g:+g} {yes_no(at)}, at g = {-g:+g} {yes_no(other)}")
@@ -486,6 +493,8 @@ def assessment_tables(a) -> dict:
                                        for f in d["factors"]])
     if d["calibration"] is not None:
         out.update(_calibration_tables(d))
+    if d.get("payoff_sets") is not None:
+        out["payoff_sets"] = payoff_table(d)
     for name, s in in_order(d["sensitivity"]):
         out[f"sensitivity_{name}"] = _sensitivity_table(name, s, d["conclusion"]["delta"])
     return {name: (headers, [[_plain(v) for v in r] for r in rows]) for name, (headers, rows) in out.items()}

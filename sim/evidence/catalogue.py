@@ -18,6 +18,7 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
+from sim.evidence.catalogue_assess import ASSESS_ENTRIES
 from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
 
 __all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "money"]
@@ -449,6 +450,8 @@ ENTRIES: dict[str, Entry] = {
 
 # enforcement, demand states and multimarket contact (sim.evidence.catalogue_conditions)
 ENTRIES.update({k: Entry(*v) for k, v in CONDITION_ENTRIES.items()})
+# the assessment's payoff sets, growth and multimarket-contact rows (sim.evidence.catalogue_assess)
+ENTRIES.update({k: Entry(*v) for k, v in ASSESS_ENTRIES.items()})
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)
 PARAMETERS: dict[str, Entry] = {

@@ -317,9 +317,13 @@ def test_factor_table_names_factors_by_their_direction():
     assert rows["frequency"]["source"] == "Ivaldi et al. (2003), section III.4"
     assert rows["symmetry"]["source"].startswith("Davies and Olczak (2008), abstract")
     assert rows["growth"]["source"].startswith("Correia-da-Silva, Pinho and Vasconcelos (2013), section 1")
-    for k in ("frequency", "growth"):
-        assert rows[k]["model_direction"] == "structural (by construction)" and rows[k]["structural"]
-        assert rows[k]["agrees"] is None and "not a computed direction" in rows[k]["reading"]
+    fr = rows["frequency"]
+    assert fr["model_direction"] == "structural (by construction)" and fr["structural"]
+    assert fr["agrees"] is None and "not a computed direction" in fr["reading"]
+    # growth is computed: the threshold with the stated growth (0.02 by default) against the one without
+    gr = rows["growth"]
+    assert not gr["structural"] and gr["model_direction"] in ("facilitates", "not computed")
+    assert gr["agrees"] is (True if gr["model_direction"] == "facilitates" else None)
     # computed rows: linear Cournot thresholds rise with the number of firms, (n+1)^2 / (n^2 + 6n + 1)
     assert rows["firms"]["model_direction"] == "facilitates" and rows["firms"]["agrees"] is True
     assert rows["firms"]["reading"].startswith("in the model fewer firms make collusion easier")

@@ -12,15 +12,45 @@ from __future__ import annotations
 import math
 
 from sim.antitrust.assess import PreparedAssessment, prepare_assessment, run_assessment
+from sim.antitrust.merger_sets import estimate_payoff_sets
 from sim.antitrust.options import ASSESS_TABLES, assessment_from_dict
 from sim.antitrust.result import Assessment
+from sim.runner.cost import Cost
 from sim.runner.kinds import CellResult, Kind
 
-__all__ = ["KIND", "assessment_arrays", "assessment_metrics", "describe_cell"]
+__all__ = ["KIND", "assessment_arrays", "assessment_cost", "assessment_metrics", "describe_cell"]
 
 
 def _prepare_cell(doc: dict) -> PreparedAssessment:
     return prepare_assessment(**assessment_from_dict(doc))
+
+
+#: seconds of one solver call per firm, and of one simulated firm-period, assumed by the time estimate
+_SECONDS_PER_CALL, _SECONDS_PER_FIRM_PERIOD = 0.005, 2e-8
+
+
+def assessment_cost(p: PreparedAssessment) -> Cost:
+    """The estimated work of an assessment cell (see :mod:`sim.runner.cost`): solver calls of both sides and the
+    simulations; with ``[assess.payoff_sets]`` the payoff sets dwarf the rest and name the setting.
+
+    Parameters
+    ----------
+    p : PreparedAssessment
+
+    Returns
+    -------
+    Cost
+    """
+    n = p.mres.pre.spec().n_firms
+    calls = 2 * (5 + len(p.opts["punishments"]) + 20 * len(p.opts["deltas"])) + 4 * sum(map(len, p.sens.values()))
+    seconds = calls * _SECONDS_PER_CALL * n
+    if p.opts["simulate"]:
+        seconds += 4 * p.runs["periods"] * p.runs["replications"] * n * _SECONDS_PER_FIRM_PERIOD
+    if p.payoff_sets is not None:
+        est = estimate_payoff_sets(p.payoff_sets)
+        return Cost(float(est["bytes"]), float(calls + est["sets"]), "solver calls", seconds + est["seconds"],
+                    "assess.payoff_sets.grid")
+    return Cost(64.0 * n * n * 1000, float(calls), "solver calls", seconds, "assess.deltas")
 
 
 def _metric_names(p: PreparedAssessment) -> list[str]:
@@ -51,7 +81,40 @@ def _metric_names(p: PreparedAssessment) -> list[str]:
         out += ["persistence.difference", "persistence.difference.se"]
     if p.calibration is not None:
         out += ["calibration.max_relative_residual"]
+    if p.payoff_sets is not None:
+        out += _payoff_set_names(p.mres.pre.spec().n_firms, p.mres.post.spec().n_firms)
+    if p.contact is not None:
+        out += [f"contact.{what}.{side}" for what in ("alone", "pooled") for side in ("before", "after")]
     return out
+
+
+def _payoff_set_names(n_before: int, n_after: int) -> list[str]:
+    out = []
+    for side, n in (("before", n_before), ("after", n_after)):
+        out += [f"any_punishment.threshold.{e}.{side}" for e in ("lower", "upper")]
+        out += [f"any_punishment.on_grid.{s}.{side}" for s in ("grim", "stick_carrot")]
+        out += [f"any_punishment.worst.{e}.{side}.firm{i + 1}" for e in ("lower", "upper") for i in range(n)]
+        out += [f"best_joint_profit.{e}.{side}" for e in ("inner", "outer")]
+        out += [f"symmetric_slice.{e}.{side}" for e in ("min_outer", "min_inner", "max_inner", "max_outer")]
+    return out
+
+
+def _payoff_set_metrics(ps: dict) -> dict:
+    m = {}
+    for side in ("before", "after"):
+        x = ps[side]
+        ap = x["sets"]
+        m[f"any_punishment.threshold.lower.{side}"] = ap["low"]
+        m[f"any_punishment.threshold.upper.{side}"] = ap["high"]
+        m[f"any_punishment.on_grid.grim.{side}"] = ap["grim"]
+        m[f"any_punishment.on_grid.stick_carrot.{side}"] = ap["stick_carrot"]
+        for e, k in (("lower", "worst_low"), ("upper", "worst_high")):
+            for i, v in enumerate(ap[k]):
+                m[f"any_punishment.worst.{e}.{side}.firm{i + 1}"] = v
+        m[f"best_joint_profit.inner.{side}"], m[f"best_joint_profit.outer.{side}"] = x["joint"]
+        for e, v in zip(("min_outer", "min_inner", "max_inner", "max_outer"), x["symmetric"]):
+            m[f"symmetric_slice.{e}.{side}"] = v
+    return m
 
 
 _DIRECTION_CODES = {"easier": -1.0, "unchanged": 0.0, "harder": 1.0}
@@ -117,6 +180,13 @@ def assessment_metrics(a: Assessment) -> dict:
         m["persistence.difference.se"] = c["persistence"]["difference_se"]
     if a.calibration is not None:
         m["calibration.max_relative_residual"] = a.calibration["max_relative_residual"]
+    if a.payoff_sets is not None:
+        m.update(_payoff_set_metrics(a.payoff_sets.to_dict()))
+    contact = next((f for f in a.factors if f["key"] == "contact"), None)
+    if contact is not None:
+        for what in ("alone", "pooled"):
+            for side in ("before", "after"):
+                m[f"contact.{what}.{side}"] = contact["values"][side][what]
     return {k: (math.nan if v is None else v) for k, v in m.items()}
 
 
@@ -192,6 +262,7 @@ KIND = Kind(
     describe=describe_cell,
     summary="coordinated effects of a merger: thresholds, partial collusion and persistence before and after",
     result_type=Assessment,
+    cost=assessment_cost,
     assumptions=(
         "The pre-merger market is calibrated to observed data under static Nash conduct (or given); the "
         "post-merger market combines the merging firms' products (differentiated goods) or plants (a "
