@@ -27,6 +27,38 @@ def _close_figures():
     if plt is not None:
         plt.close("all")
 
+def learn_text(name: str, learning: str, *, sessions: int = 4, seed: int = 7, impulse: int = 5,
+               extra: str = "") -> str:
+    """A small learning experiment in the logit duopoly of the learning tests (quality 2, outside good 0, mu 0.25,
+    cost 1: Calvano, Calzolari, Denicolo and Pastorello's 2020 setting on a coarse grid): ``learning`` holds the
+    ``[learning]`` keys, ``extra`` any tables that follow it (line-ups, events)."""
+    return f"""
+[experiment]
+name = "{name}"
+kind = "learn"
+
+[market]
+model = "bertrand"
+demand = "logit"
+quality = 2.0
+outside = 0.0
+mu = 0.25
+cost = 1.0
+n_firms = 2
+
+[learning]
+{learning}
+{extra}
+[impulse]
+periods = {impulse}
+
+[run]
+sessions = {sessions}
+seed = {seed}
+workers = 2
+"""
+
+
 #: a deterministic two-cell experiment that runs in well under a second: the run folder of the runner's tests
 TWO_MILLS = textwrap.dedent("""
     # Two invented mills; a sweep over one mill's cost (the runner's tests need a cheap, deterministic run).

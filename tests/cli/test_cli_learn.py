@@ -9,34 +9,9 @@ import pytest
 
 from sim.cli import main
 from sim.core.text import CAUTION
+from tests.conftest import learn_text
 
-SMALL = """
-[experiment]
-name = "small"
-kind = "learn"
-
-[market]
-model = "bertrand"
-demand = "logit"
-quality = 2.0
-outside = 0.0
-mu = 0.25
-cost = 1.0
-n_firms = 2
-
-[learning]
-m = 5
-beta = 2e-4
-convergence = 3000
-
-[impulse]
-periods = 5
-
-[run]
-sessions = 4
-seed = 7
-workers = 2
-"""
+SMALL = learn_text("small", "m = 5\nbeta = 2e-4\nconvergence = 3000")
 
 
 @pytest.fixture

@@ -12,40 +12,10 @@ import pytest
 
 from sim.cli import main
 from sim.runner.analyses.learn import trigger_names
+from tests.conftest import learn_text
 
-FILE = """
-[experiment]
-name = "against-automata"
-kind = "learn"
-
-[market]
-model = "bertrand"
-demand = "logit"
-quality = 2.0
-outside = 0.0
-mu = 0.25
-cost = 1.0
-n_firms = 2
-
-[learning]
-m = 7
-beta = 1e-4
-convergence = 5000
-
-[[strategies]]
-strategy = "qlearning"
-
-[[strategies]]
-strategy = "AUTOMATON"
-
-[impulse]
-periods = 3
-
-[run]
-sessions = 10
-seed = 3
-workers = 2
-"""
+FILE = learn_text("against-automata", "m = 7\nbeta = 1e-4\nconvergence = 5000", impulse=3, sessions=10, seed=3,
+                 extra='\n[[strategies]]\nstrategy = "qlearning"\n\n[[strategies]]\nstrategy = "AUTOMATON"\n')
 
 
 def _file(tmp_path, automaton):

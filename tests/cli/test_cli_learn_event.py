@@ -9,35 +9,9 @@ Thisse, 1992, "Discrete Choice Theory of Product Differentiation", chapter 6: p 
 import pytest
 
 from sim.cli import main
+from tests.conftest import learn_text
 
-STEP1 = """
-[experiment]
-name = "step1"
-kind = "learn"
-
-[market]
-model = "bertrand"
-demand = "logit"
-quality = 2.0
-outside = 0.0
-mu = 0.25
-cost = 1.0
-n_firms = 2
-
-[learning]
-m = 5
-beta = 5e-4
-convergence = 2000
-save_to = "learners.npz"
-
-[impulse]
-periods = 3
-
-[run]
-sessions = 4
-seed = 7
-workers = 2
-"""
+STEP1 = learn_text("step1", 'm = 5\nbeta = 5e-4\nconvergence = 2000\nsave_to = "learners.npz"', impulse=3)
 
 STEP2 = (STEP1.replace('name = "step1"', 'name = "step2"').replace("cost = 1.0", "cost = 1.2")
          .replace('save_to = "learners.npz"', 'continue_from = "learners.npz"').replace("m = 5\n", "")

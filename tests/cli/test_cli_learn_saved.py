@@ -7,35 +7,9 @@ import zipfile
 import pytest
 
 from sim.cli import main
+from tests.conftest import learn_text
 
-SMALL = """
-[experiment]
-name = "small"
-kind = "learn"
-
-[market]
-model = "bertrand"
-demand = "logit"
-quality = 2.0
-outside = 0.0
-mu = 0.25
-cost = 1.0
-n_firms = 2
-
-[learning]
-m = 5
-beta = 2e-4
-convergence = 8000
-max_periods = 24000
-
-[impulse]
-periods = 5
-
-[run]
-sessions = 3
-seed = 7
-workers = 2
-"""
+SMALL = learn_text("small", "m = 5\nbeta = 2e-4\nconvergence = 8000\nmax_periods = 24000", sessions=3)
 
 
 @pytest.fixture
