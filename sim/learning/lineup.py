@@ -414,7 +414,7 @@ def _seat_inputs(compiled: tuple, radix: list, zn: np.ndarray) -> SeatInputs:
 
 
 def _with_reward_bounds(seats: SeatInputs, payoff: np.ndarray, compiled: tuple) -> SeatInputs:
-    """The bandit seats' reward scales, read from the profits on the grid (:func:`sim.learning.bandits.reward_bounds`)."""
+    """The bandit seats' reward scales, from the profits on the grid (:func:`sim.learning.bandits.reward_bounds`)."""
     lo, span = seats.reward_lo.copy(), seats.reward_span.copy()
     for i, c in enumerate(compiled):
         if c is not None and c.family != "q":

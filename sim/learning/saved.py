@@ -40,8 +40,18 @@ from sim.core.errors import InputError
 from sim.core.files import write_atomic
 from sim.core.records import to_plain
 
-__all__ = ["FORMAT", "READABLE_VERSIONS", "VERSION", "SavedLearners", "arrays_digest", "check_start", "describe_layout", "load_learners",
-           "check_family", "save_learners"]
+__all__ = [
+    "FORMAT",
+    "READABLE_VERSIONS",
+    "VERSION",
+    "SavedLearners",
+    "arrays_digest",
+    "check_family",
+    "check_start",
+    "describe_layout",
+    "load_learners",
+    "save_learners",
+]
 
 #: the name and version of the file format written by :func:`save_learners`
 FORMAT = "supergame saved learners"
@@ -276,7 +286,8 @@ def check_start(saved: SavedLearners, lineup, market: dict | None, sessions: int
     ------
     InputError
         Naming ``key``: another market, another number of seats, a seat held by another kind of strategy or a learner
-        of another family, another grid or memory, another number of sessions, or greedy actions that are not those of the Q-values.
+        of another family, another grid or memory, another number of sessions, or greedy actions that are not those
+        of the Q-values.
     """
     h = saved.header
     if market is not None:
