@@ -17,8 +17,9 @@ from sim.learning.lineup import compile_lineup
 from sim.learning.session import kernel_session, reference_session
 from sim.models.demand import LogitDemand
 from sim.models.market import Market
+from strategies.qlearning import QLearner
 
-__all__ = ["baseline_market", "bench_section", "benchmark", "time_sessions"]
+__all__ = ["bandit_benchmark", "baseline_market", "bench_section", "benchmark", "time_sessions"]
 
 
 def baseline_market() -> Market:
@@ -114,6 +115,51 @@ def benchmark(market=None, learners=None, *, sessions: int = 4, reference_period
     return out
 
 
+def bandit_benchmark(family: str, *, reference_periods: int = 50_000, kernel_periods: int = 10_000_000,
+                     repeat: int = 1, seed: int = 0) -> dict:
+    """Throughput of the learning kernel with two bandits of one family on the baseline market (m = 15 prices, no
+    noise), and of its plain-Python twin, on the same fixed-length workload.
+
+    Parameters
+    ----------
+    family : {"ucb", "thompson"}
+    reference_periods : int
+        Periods of the twin's session (and of each kernel session).
+    kernel_periods : int
+        Periods of the kernel in all.
+    repeat : int
+        The kernel timing is the best of this many runs.
+    seed : int
+
+    Returns
+    -------
+    dict
+        ``kernel_periods_per_second``, ``reference_periods_per_second``, ``ratio`` (kernel over twin) and
+        ``reference_identical_to_kernel`` (statistics and values equal bit for bit).
+    """
+    lineup = compile_lineup(baseline_market(), QLearner(family=family, m=15))
+    never = 2**62
+    kernel_session(lineup, seed=seed, convergence=never, max_periods=1000)  # compile outside the timings
+    reps = max(1, kernel_periods // reference_periods)
+    t_ker = math.inf
+    for _ in range(max(1, repeat)):
+        t0 = time.perf_counter()
+        for j in range(reps):
+            kernel_session(lineup, j, seed=seed, convergence=never, max_periods=reference_periods)
+        t_ker = min(t_ker, time.perf_counter() - t0)
+    t0 = time.perf_counter()
+    ref = reference_session(lineup, seed=seed, convergence=never, max_periods=reference_periods)
+    t_ref = time.perf_counter() - t0
+    ker = kernel_session(lineup, seed=seed, convergence=never, max_periods=reference_periods)
+    out = {"workload": f"two {family} bandits, 15 prices each, baseline market, no noise",
+           "kernel_periods_per_second": reps * reference_periods / t_ker,
+           "reference_periods_per_second": reference_periods / t_ref,
+           "reference_identical_to_kernel": bool(np.array_equal(ref["Q"], ker["Q"])
+                                                 and np.array_equal(ref["counts"], ker["counts"]))}
+    out["ratio"] = out["kernel_periods_per_second"] / out["reference_periods_per_second"]
+    return out
+
+
 def time_sessions(sessions: int = 1000, workers: int = 2, seed: int = 0, cold: bool = True) -> dict:
     """Wall time of ``sessions`` baseline sessions in a fresh process, compilation included.
 
@@ -195,4 +241,15 @@ def bench_section(opts) -> dict:
         "reference and kernel identical": b["reference_identical_to_kernel"],
     }
     out["notes"] = ["quick workload: the targets refer to the full workload"] if quick else []
+    # the bandit families against the Q-learning kernel of the same run (periods per second on one core)
+    size = {"reference_periods": 5_000, "kernel_periods": 500_000} if quick else {"repeat": repeat}
+    out["bandits"] = {}
+    for family in ("ucb", "thompson"):
+        bb = bandit_benchmark(family, **size)
+        bb["speed_relative_to_q_learning"] = bb["kernel_periods_per_second"] / b["kernel_periods_per_second"]
+        out["bandits"][family] = bb
+        out["targets"][f"{family} kernel >= 100 x its twin"] = bb["ratio"] >= 100
+        out["targets"][f"{family} kernel within a factor 2 of Q-learning per period"] = (
+            bb["speed_relative_to_q_learning"] >= 0.5)
+        out["targets"][f"{family} twin and kernel identical"] = bb["reference_identical_to_kernel"]
     return out

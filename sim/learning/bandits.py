@@ -49,9 +49,9 @@ import numpy as np
 from numba import njit
 
 from sim.core.rng import next_normal_zig
-from sim.learning.inputs import UCB_FAMILY
+from sim.learning.inputs import LEARNER, Q_FAMILY, UCB_FAMILY
 
-__all__ = ["bandit_choice", "bandit_update", "reward_bounds", "twin_choice", "twin_update"]
+__all__ = ["bandit_choice", "bandit_scales", "bandit_update", "reward_bounds", "twin_choice", "twin_update"]
 
 
 def reward_bounds(payoff: np.ndarray, seat: int) -> tuple[float, float]:
@@ -77,7 +77,40 @@ def reward_bounds(payoff: np.ndarray, seat: int) -> tuple[float, float]:
 
 
 @njit(cache=True, nogil=True)
-def bandit_choice(fam, li, m, c, counts, sums, rng):
+def bandit_scales(kind, family, lidx, radix, counts):
+    """The scale of each price's exploration term, derived from the counts once when a session (re)starts:
+    ``1 / sqrt(n_a)`` for UCB (0 for a price not yet played), ``1 / sqrt(n_a + 1)`` for Thompson sampling.
+
+    Kept beside the counts so that a period computes one square root per UCB seat, not one per price; being
+    derived from the counts it is not saved.
+
+    Parameters
+    ----------
+    kind, family, lidx, radix : ndarray of int64, shape (n,)
+        As in :class:`sim.learning.inputs.SeatInputs`.
+    counts : ndarray of int64, shape (n_learners, max(radix))
+
+    Returns
+    -------
+    ndarray of float64, shape (n_learners, max(radix))
+    """
+    out = np.zeros(counts.shape)
+    for i in range(kind.size):
+        if kind[i] == LEARNER and family[i] != Q_FAMILY:
+            for b in range(radix[i]):
+                out[lidx[i], b] = _scale(family[i], counts[lidx[i], b])
+    return out
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _scale(fam, n):
+    if fam == UCB_FAMILY:
+        return 1.0 / math.sqrt(n) if n > 0 else 0.0
+    return 1.0 / math.sqrt(n + 1.0)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def bandit_choice(fam, li, m, c, counts, Q, w, rng):
     """The price a bandit plays: UCB's index, or Thompson's draws (see the module notes).
 
     Parameters
@@ -91,7 +124,11 @@ def bandit_choice(fam, li, m, c, counts, sums, rng):
     c : float
         Its exploration constant.
     counts : ndarray of int64, shape (n_learners, max(radix))
-    sums : ndarray of float64, shape (n_learners, max(radix))
+    Q : ndarray of float64, shape (n_learners, max(mod), max(radix))
+        Row ``Q[li, 0]`` holds the estimates (``sums / n_a`` for UCB, ``sums / (n_a + 1)`` for Thompson sampling),
+        as :func:`bandit_update` keeps them.
+    w : ndarray of float64, shape (n_learners, max(radix))
+        :func:`bandit_scales`, as :func:`bandit_update` keeps them.
     rng : ndarray of uint64, shape (4,)
         Advanced in place (Thompson sampling only).
 
@@ -108,26 +145,25 @@ def bandit_choice(fam, li, m, c, counts, sums, rng):
             if counts[li, b] == 0:
                 return b
             t += counts[li, b]
-        two_log_t = 2.0 * math.log(t)
+        # c sqrt(2 ln t / n_a) as c sqrt(2 ln t) (1 / sqrt(n_a)): one square root per period
+        cs = c * math.sqrt(2.0 * math.log(t))
         for b in range(m):
-            n = counts[li, b]
-            v = sums[li, b] / n + c * math.sqrt(two_log_t / n)
+            v = Q[li, 0, b] + cs * w[li, b]
             if v > bv:
                 bv = v
                 best = b
         return best
     for b in range(m):
-        n1 = counts[li, b] + 1.0
-        v = sums[li, b] / n1 + c * next_normal_zig(rng) / math.sqrt(n1)
+        v = Q[li, 0, b] + c * next_normal_zig(rng) * w[li, b]
         if v > bv:
             bv = v
             best = b
     return best
 
 
-@njit(cache=True, nogil=True)
-def bandit_update(fam, li, a, m, profit, lo, span, noise, counts, sums, Q, greedy, rng):
-    """Count the price played, add its reward, refresh its estimate and the greedy price.
+@njit(cache=True, nogil=True, inline="always")
+def bandit_update(fam, li, a, m, profit, lo, span, noise, counts, sums, Q, greedy, w, rng):
+    """Count the price played, add its reward, refresh its estimate, its scale and the greedy price.
 
     Parameters
     ----------
@@ -142,12 +178,15 @@ def bandit_update(fam, li, a, m, profit, lo, span, noise, counts, sums, Q, greed
         :func:`reward_bounds`.
     noise : float
         Standard deviation of the observation error (a normal is drawn only when it is positive).
-    counts, sums : ndarray
-        As in :func:`bandit_choice`, updated in place.
+    counts : ndarray of int64, shape (n_learners, max(radix))
+    sums : ndarray of float64, shape (n_learners, max(radix))
+        Updated in place.
     Q : ndarray of float64, shape (n_learners, max(mod), max(radix))
         Row ``Q[li, 0]`` receives the estimates.
     greedy : ndarray of int64, shape (n_learners, max(mod))
         ``greedy[li, 0]`` receives their first argmax.
+    w : ndarray of float64, shape (n_learners, max(radix))
+        :func:`bandit_scales`, updated in place.
     rng : ndarray of uint64, shape (4,)
 
     Returns
@@ -160,14 +199,26 @@ def bandit_update(fam, li, a, m, profit, lo, span, noise, counts, sums, Q, greed
         r += noise * next_normal_zig(rng)
     counts[li, a] += 1
     sums[li, a] += r
-    Q[li, 0, a] = sums[li, a] / (counts[li, a] if fam == UCB_FAMILY else counts[li, a] + 1.0)
+    old = Q[li, 0, a]
+    new = sums[li, a] / (counts[li, a] if fam == UCB_FAMILY else counts[li, a] + 1.0)
+    Q[li, 0, a] = new
+    w[li, a] = _scale(fam, counts[li, a])
+    g = greedy[li, 0]
+    if a != g:
+        # only price a moved: it takes over when it is now the first largest
+        if new > Q[li, 0, g] or (new == Q[li, 0, g] and a < g):
+            greedy[li, 0] = a
+            return True
+        return False
+    if new >= old:
+        return False
     best = 0
     bv = Q[li, 0, 0]
     for b in range(1, m):
         if Q[li, 0, b] > bv:
             bv = Q[li, 0, b]
             best = b
-    if best != greedy[li, 0]:
+    if best != g:
         greedy[li, 0] = best
         return True
     return False
@@ -200,10 +251,11 @@ def twin_choice(family: str, c: float, counts: list, sums: list, rng) -> int:
         for b in range(m):
             if counts[b] == 0:
                 return b
-        t = sum(counts)
-        index = [sums[b] / counts[b] + c * math.sqrt(2.0 * math.log(t) / counts[b]) for b in range(m)]
+        # mean + c sqrt(2 ln t / n), grouped as c sqrt(2 ln t) (1 / sqrt(n)), the kernel's rounding
+        bonus = c * math.sqrt(2.0 * math.log(sum(counts)))
+        index = [sums[b] / counts[b] + bonus * (1.0 / math.sqrt(counts[b])) for b in range(m)]
     else:
-        index = [sums[b] / (counts[b] + 1.0) + c * rng.next_normal_zig() / math.sqrt(counts[b] + 1.0)
+        index = [sums[b] / (counts[b] + 1.0) + c * rng.next_normal_zig() * (1.0 / math.sqrt(counts[b] + 1.0))
                  for b in range(m)]
     return index.index(max(index))
 

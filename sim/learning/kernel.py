@@ -58,7 +58,7 @@ import numpy as np
 from numba import njit
 
 from sim.core.rng import next_below, next_double
-from sim.learning.bandits import bandit_choice, bandit_update
+from sim.learning.bandits import bandit_choice, bandit_scales, bandit_update
 from sim.learning.inputs import (
     AUTOMATON,
     LEARNER,
@@ -208,6 +208,7 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
     cont = np.empty(radix.max(), np.float64)
     upd = np.empty(radix.max(), np.bool_)
     has_automata = (kind == AUTOMATON).any()
+    w = bandit_scales(kind, family, lidx, radix, counts)
     t = clock[0]
     stable = clock[1]
     if stable >= convergence:
@@ -222,7 +223,7 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
         for i in range(n):
             if kind[i] == LEARNER and family[i] != Q_FAMILY:
                 # a bandit: its own statistics, whatever the history (sim.learning.bandits)
-                a = bandit_choice(family[i], lidx[i], radix[i], explore[i], counts, sums, rng)
+                a = bandit_choice(family[i], lidx[i], radix[i], explore[i], counts, Q, w, rng)
             elif kind[i] == LEARNER:
                 eps, prev_beta = _exploration(beta[i], tf, eps, prev_beta)
                 if next_double(rng) < eps:
@@ -243,7 +244,7 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
             li, a = lidx[i], act[i]
             if family[i] != Q_FAMILY:
                 if bandit_update(family[i], li, a, radix[i], payoff[prof, i], reward_lo[i], reward_span[i], noise[i],
-                                 counts, sums, Q, greedy, rng):
+                                 counts, sums, Q, greedy, w, rng):
                     changed = True
                 continue
             si, sn = _seen(s, mod[i], S), _seen(s_new, mod[i], S)
