@@ -92,13 +92,16 @@ def bandit_scales(kind, family, lidx, radix, counts):
 
     Returns
     -------
-    ndarray of float64, shape (n_learners, max(radix))
+    ndarray of float64, shape (n_learners, max(radix) + 1)
+        The last column holds each bandit's step counter ``t = sum_a n_a`` (kept up to date by
+        :func:`bandit_update`, so that a period need not add the counts up).
     """
-    out = np.zeros(counts.shape)
+    out = np.zeros((counts.shape[0], counts.shape[1] + 1))
     for i in range(kind.size):
         if kind[i] == LEARNER and family[i] != Q_FAMILY:
             for b in range(radix[i]):
                 out[lidx[i], b] = _scale(family[i], counts[lidx[i], b])
+                out[lidx[i], -1] += counts[lidx[i], b]
     return out
 
 
@@ -127,7 +130,7 @@ def bandit_choice(fam, li, m, c, counts, Q, w, rng):
     Q : ndarray of float64, shape (n_learners, max(mod), max(radix))
         Row ``Q[li, 0]`` holds the estimates (``sums / n_a`` for UCB, ``sums / (n_a + 1)`` for Thompson sampling),
         as :func:`bandit_update` keeps them.
-    w : ndarray of float64, shape (n_learners, max(radix))
+    w : ndarray of float64, shape (n_learners, max(radix) + 1)
         :func:`bandit_scales`, as :func:`bandit_update` keeps them.
     rng : ndarray of uint64, shape (4,)
         Advanced in place (Thompson sampling only).
@@ -140,11 +143,12 @@ def bandit_choice(fam, li, m, c, counts, Q, w, rng):
     best = 0
     bv = -math.inf
     if fam == UCB_FAMILY:
-        t = 0
-        for b in range(m):
-            if counts[li, b] == 0:
-                return b
-            t += counts[li, b]
+        t = w[li, -1]
+        if t < m:
+            # every price is tried once first, in increasing order: the untried ones are those from t on
+            for b in range(m):
+                if counts[li, b] == 0:
+                    return b
         # c sqrt(2 ln t / n_a) as c sqrt(2 ln t) (1 / sqrt(n_a)): one square root per period
         cs = c * math.sqrt(2.0 * math.log(t))
         for b in range(m):
@@ -185,7 +189,7 @@ def bandit_update(fam, li, a, m, profit, lo, span, noise, counts, sums, Q, greed
         Row ``Q[li, 0]`` receives the estimates.
     greedy : ndarray of int64, shape (n_learners, max(mod))
         ``greedy[li, 0]`` receives their first argmax.
-    w : ndarray of float64, shape (n_learners, max(radix))
+    w : ndarray of float64, shape (n_learners, max(radix) + 1)
         :func:`bandit_scales`, updated in place.
     rng : ndarray of uint64, shape (4,)
 
@@ -203,6 +207,7 @@ def bandit_update(fam, li, a, m, profit, lo, span, noise, counts, sums, Q, greed
     new = sums[li, a] / (counts[li, a] if fam == UCB_FAMILY else counts[li, a] + 1.0)
     Q[li, 0, a] = new
     w[li, a] = _scale(fam, counts[li, a])
+    w[li, -1] += 1.0
     g = greedy[li, 0]
     if a != g:
         # only price a moved: it takes over when it is now the first largest
