@@ -250,3 +250,30 @@ def test_ucb_bandits_price_above_nash_at_a_high_signal_to_noise_ratio_and_lower_
     assert np.all(high.limit_prices > nash)
     assert np.mean(low.profit_gain) < np.mean(high.profit_gain) - 0.4
     assert np.mean(np.abs(low.limit_prices - nash)) < np.mean(np.abs(high.limit_prices - nash))
+
+
+# ---- saved bandits after an event -------------------------------------------------------------------------
+
+
+def test_saved_bandits_go_on_after_a_cost_shock_and_an_entry_with_their_statistics():
+    from sim.learning.events import Event, adapt_saved, with_saved_grids
+
+    learner = QLearner(family="ucb", m=5)
+    first = learn(logit_market(), learner, sessions=3, seed=2, convergence=3000, max_periods=20_000, workers=1,
+                  keep=True)
+    # a cost shock: the statistics carry over unchanged, and the bandits learn on from them
+    ev = Event("market", 100, 10)
+    after = learn(logit_market(cost=1.2), with_saved_grids(learner, first.saved, 2, ev), sessions=3, seed=2,
+                  convergence=3000, max_periods=20_000, workers=1, start=first.saved, event=ev, keep=True)
+    assert np.all(after.saved.counts.sum(axis=2) == after.saved.clock[:, :1])  # one play per period, all periods
+    assert np.all(after.saved.counts >= first.saved.counts)
+    # an entrant automaton: the incumbents keep their statistics, unchanged by the entry itself
+    ev = Event("entry", 100, 10)
+    seats = with_saved_grids([QLearner(family="ucb", m=5), QLearner(family="ucb", m=5), strategies.TitForTat()],
+                             first.saved, 3, ev)
+    lu = compile_lineup(logit_market(3), seats)
+    new = adapt_saved(first.saved, lu, ev)
+    assert np.array_equal(new.counts, first.saved.counts) and np.array_equal(new.sums, first.saved.sums)
+    res = learn(logit_market(3), seats, sessions=3, seed=2, convergence=3000, max_periods=20_000, workers=1,
+                start=first.saved, event=ev)
+    assert res.summary()["event"]["settled"]["n"] == 3
