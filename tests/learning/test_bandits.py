@@ -277,3 +277,16 @@ def test_saved_bandits_go_on_after_a_cost_shock_and_an_entry_with_their_statisti
     res = learn(logit_market(3), seats, sessions=3, seed=2, convergence=3000, max_periods=20_000, workers=1,
                 start=first.saved, event=ev)
     assert res.summary()["event"]["settled"]["n"] == 3
+
+
+def test_a_bandit_facing_grim_trigger_is_not_given_an_exploration_probability():
+    # bandits explore by their index or their draws, not with probability exp(-beta t): the record of the automaton's
+    # punishments says when it was triggered and leaves the exploration share out
+    from sim.learning.analysis import learn_result as _result
+
+    market = logit_market()
+    res = learn(market, [QLearner(family="ucb", m=5), strategies.GrimTrigger()], sessions=2, seed=1,
+                convergence=2000, max_periods=20_000, workers=1)
+    (auto,) = _result(res, market).automata
+    assert auto["triggered"]["share"] == 1.0  # UCB tries the lowest price first, below the collusive one
+    assert auto["exploration_first"]["median"] is None  # nan, stored as null in the plain record
