@@ -3,7 +3,8 @@
 The experiment of Calvano, Calzolari, Denicolo and Pastorello (2020, AER, "Artificial Intelligence,
 Algorithmic Pricing, and Collusion") on any market of this package:
 
-1. every firm is a :class:`strategies.qlearning.QLearner` with a grid of actions;
+1. every firm is a :class:`strategies.qlearning.QLearner` with a grid of actions (a Q-learner, or with
+   ``family = "ucb"`` or ``"thompson"`` a bandit over the grid that keeps no state: :mod:`sim.learning.bandits`);
 2. a *session* lets them play and learn until every learner's greedy strategy has been unchanged for
    ``convergence`` consecutive periods (or ``max_periods`` is reached: not converged);
 3. the learned strategies are then played greedily from the final state: the *limit path* ends in a
