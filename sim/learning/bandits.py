@@ -27,7 +27,9 @@ Choice of a price (step 1 of a period)
   sqrt(n_a + 1)`` with ``mean_a = sums_a / (n_a + 1)`` and ``z_a`` a standard normal; play the first largest
   ``theta``. This is the exact posterior of a known-variance normal model: prior ``N(0, v**2)`` on the mean reward
   and rewards ``N(mean, v**2)``; ``v = 1`` is their choice, ``v`` is ``exploration``. One normal per price per
-  period (the ziggurat of :func:`sim.core.rng.next_normal_zig`).
+  period (the ziggurat of :func:`sim.core.rng.next_normal_zig`). The prior mean is 0 while rewards lie in [0, 1]:
+  with a small ``v`` (0.1 on the baseline grid) a price played early can keep the largest draw for good, so ``v``
+  well below the rewards' scale is not advised.
 
 Update (step 2)
 ---------------
