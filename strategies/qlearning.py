@@ -32,13 +32,17 @@ from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import Constraint, Integer, Options, Parametrized, Real, optional
 
-__all__ = ["INIT_KINDS", "UPDATE_RULES", "CompiledLearner", "QLearner", "published_grid"]
+__all__ = ["FAMILIES", "INIT_KINDS", "UPDATE_RULES", "CompiledLearner", "QLearner", "published_grid"]
 
 INIT_KINDS = ("uniform", "zeros")
 #: which values a learner updates after a period (Asker, Fershtman and Pakes, 2022, AEA Papers and Proceedings
 #: 112, "Artificial Intelligence, Algorithm Design, and Pricing"): the action played only, every action from the
 #: profit it would have earned against the rivals' actual actions, or the action played and a share of the others
 UPDATE_RULES = ("asynchronous", "synchronous", "mixed")
+#: how a learner chooses its price: Q-learning over the history of prices, or a bandit over its own grid that keeps
+#: no state (upper confidence bound, Auer, Cesa-Bianchi and Fischer, 2002; Thompson sampling with Gaussian rewards,
+#: Agrawal and Goyal, 2013); see :mod:`sim.learning.bandits`
+FAMILIES = ("q", "ucb", "thompson")
 
 # the grid size of the published construction when neither m nor a grid is given
 _DEFAULT_M = 15
@@ -163,6 +167,13 @@ class CompiledLearner:
     share : float
         Probability that each action not played is updated from its counterfactual profit in a period: 0
         (asynchronous), 1 (synchronous) or the mixed rule's ``counterfactual_share``.
+    family : str
+        One of :data:`FAMILIES`.
+    exploration : float
+        A bandit's exploration constant (``c`` of the upper confidence bound, the posterior scale ``v`` of
+        Thompson sampling); 0 for Q-learning.
+    noise : float
+        A bandit's observation noise: the standard deviation of the normal error on the scaled profit it sees.
     """
 
     grid: np.ndarray
@@ -173,6 +184,9 @@ class CompiledLearner:
     init: str | np.ndarray
     update: str = "asynchronous"
     share: float = 0.0
+    family: str = "q"
+    exploration: float = 0.0
+    noise: float = 0.0
 
     @property
     def m(self) -> int:
@@ -192,6 +206,8 @@ class CompiledLearner:
                "init": self.init if isinstance(self.init, str) else "given", "grid": self.grid.tolist()}
         if self.update != "asynchronous":
             out.update(update=self.update, counterfactual_share=self.share)
+        if self.family != "q":
+            out.update(family=self.family, exploration=self.exploration, noise=self.noise)
         return out
 
 
@@ -230,6 +246,18 @@ class QLearner(Parametrized):
         ``counterfactual_share`` (one draw per action).
     counterfactual_share : float, optional
         With ``update = "mixed"`` only (and required there): the probability in (0, 1) above.
+    family : {"q", "ucb", "thompson"}
+        ``"q"`` (default): Q-learning as above. ``"ucb"`` and ``"thompson"``: a bandit over the grid that keeps
+        no state (it does not condition on past prices, so ``k`` is not used) and learns each price's mean scaled
+        profit; ``alpha``, ``beta`` and ``init`` are not used, and ``delta`` only values the deviation of the
+        impulse response (see :mod:`sim.learning.bandits`).
+    exploration : float, optional
+        Bandits only (> 0, default 1): the constant ``c`` of the upper confidence bound ``mean + c sqrt(2 ln t /
+        n_a)`` (``c = 1`` is UCB1 of Auer, Cesa-Bianchi and Fischer, 2002), or the scale ``v`` of the Thompson
+        draws ``N(mean, v**2 / (n_a + 1))`` (``v = 1`` is Agrawal and Goyal, 2013).
+    noise : float
+        Bandits only (>= 0, default 0): standard deviation of a normal error on the scaled profit the bandit
+        observes (the noise of its price experiments).
 
     Examples
     --------
@@ -249,13 +277,16 @@ class QLearner(Parametrized):
         "init": QInit(),
         "update": Options(*UPDATE_RULES),
         "counterfactual_share": optional(Real(0, 1, closed="neither")),
+        "family": Options(*FAMILIES),
+        "exploration": optional(Real(0, None, closed="neither")),
+        "noise": Real(0, None),
     }
 
     #: name in experiment files (``strategy = "qlearning"``)
     name = "qlearning"
 
     def __init__(self, alpha=0.15, beta=4e-6, delta=0.95, m=None, xi=0.1, grid=None, k=1, init="uniform",
-                 update="asynchronous", counterfactual_share=None):
+                 update="asynchronous", counterfactual_share=None, family="q", exploration=None, noise=0.0):
         self.alpha = alpha
         self.beta = beta
         self.delta = delta
@@ -266,6 +297,9 @@ class QLearner(Parametrized):
         self.init = init
         self.update = update
         self.counterfactual_share = counterfactual_share
+        self.family = family
+        self.exploration = exploration
+        self.noise = noise
 
     def spec(self, n_firms: int | None = None, prefix: str = "") -> dict[str, Any]:
         """Validate every parameter; return the normalised values (``m`` filled in).
@@ -308,6 +342,7 @@ class QLearner(Parametrized):
         if p["update"] != "mixed" and p["counterfactual_share"] is not None:
             raise InputError(key("counterfactual_share"), f"applies only to update = 'mixed', got update = "
                                                           f"{p['update']!r}")
+        _check_family(p, key)
         return p
 
     def compile(self, stage, seat: int, prefix: str = "") -> CompiledLearner:
@@ -346,5 +381,28 @@ class QLearner(Parametrized):
                 raise InputError(f"{prefix}.xi" if prefix else "xi",
                                  f"the widened grid reaches below zero for firm {seat + 1}; lower xi or give the grid")
         share = {"asynchronous": 0.0, "synchronous": 1.0}.get(p["update"], p["counterfactual_share"])
+        if p["family"] != "q":
+            # a bandit keeps no state: no memory, its estimates start at zero
+            return CompiledLearner(grid=grid, k=0, alpha=p["alpha"], beta=p["beta"], delta=p["delta"], init="zeros",
+                                   family=p["family"], exploration=float(p["exploration"]), noise=float(p["noise"]))
         return CompiledLearner(grid=grid, k=p["k"], alpha=p["alpha"], beta=p["beta"], delta=p["delta"],
                                init=p["init"], update=p["update"], share=float(share))
+
+
+def _check_family(p: dict, key) -> None:
+    """The bandit parameters against the family: ``exploration`` filled in (default 1) for a bandit, and refused,
+    like ``noise``, the update rules and given initial values, where they do not apply."""
+    if p["family"] == "q":
+        for name, unused in (("exploration", p["exploration"] is not None), ("noise", p["noise"] != 0)):
+            if unused:
+                raise InputError(key(name), "applies only to the bandit families (family = 'ucb' or 'thompson'), "
+                                            "got family = 'q'")
+        return
+    if p["exploration"] is None:
+        p["exploration"] = 1.0
+    if p["update"] != "asynchronous":
+        raise InputError(key("update"), f"a {p['family']} bandit updates only the price it played; the update rules "
+                                        f"apply to family = 'q', got update = {p['update']!r}")
+    if not isinstance(p["init"], str):
+        raise InputError(key("init"), f"a {p['family']} bandit's estimates start at zero; initial values apply to "
+                                      "family = 'q'")

@@ -1,5 +1,6 @@
 """Benchmark section ``learning`` of ``supergame bench``: the Q-learning kernel against its plain-Python twin, and
-the wall time of 1,000 baseline sessions (Calvano et al., 2020) in a fresh process with an empty numba cache."""
+the wall time of 1,000 baseline sessions (Calvano et al., 2020) in a fresh process with an empty numba cache; the
+bandit families (UCB, Thompson sampling) against their twins and against the Q-learning kernel of the same run."""
 
 from __future__ import annotations
 
@@ -17,8 +18,9 @@ from sim.learning.lineup import compile_lineup
 from sim.learning.session import kernel_session, reference_session
 from sim.models.demand import LogitDemand
 from sim.models.market import Market
+from strategies.qlearning import QLearner
 
-__all__ = ["baseline_market", "bench_section", "benchmark", "time_sessions"]
+__all__ = ["bandit_benchmark", "baseline_market", "bench_section", "benchmark", "time_sessions"]
 
 
 def baseline_market() -> Market:
@@ -114,6 +116,51 @@ def benchmark(market=None, learners=None, *, sessions: int = 4, reference_period
     return out
 
 
+def bandit_benchmark(family: str, *, reference_periods: int = 50_000, kernel_periods: int = 10_000_000,
+                     repeat: int = 1, seed: int = 0) -> dict:
+    """Throughput of the learning kernel with two bandits of one family on the baseline market (m = 15 prices, no
+    noise), and of its plain-Python twin, on the same fixed-length workload.
+
+    Parameters
+    ----------
+    family : {"ucb", "thompson"}
+    reference_periods : int
+        Periods of the twin's session (and of each kernel session).
+    kernel_periods : int
+        Periods of the kernel in all.
+    repeat : int
+        The kernel timing is the best of this many runs.
+    seed : int
+
+    Returns
+    -------
+    dict
+        ``kernel_periods_per_second``, ``reference_periods_per_second``, ``ratio`` (kernel over twin) and
+        ``reference_identical_to_kernel`` (statistics and values equal bit for bit).
+    """
+    lineup = compile_lineup(baseline_market(), QLearner(family=family, m=15))
+    never = 2**62
+    kernel_session(lineup, seed=seed, convergence=never, max_periods=1000)  # compile outside the timings
+    reps = max(1, kernel_periods // reference_periods)
+    t_ker = math.inf
+    for _ in range(max(1, repeat)):
+        t0 = time.perf_counter()
+        for j in range(reps):
+            kernel_session(lineup, j, seed=seed, convergence=never, max_periods=reference_periods)
+        t_ker = min(t_ker, time.perf_counter() - t0)
+    t0 = time.perf_counter()
+    ref = reference_session(lineup, seed=seed, convergence=never, max_periods=reference_periods)
+    t_ref = time.perf_counter() - t0
+    ker = kernel_session(lineup, seed=seed, convergence=never, max_periods=reference_periods)
+    out = {"workload": f"two {family} bandits, 15 prices each, baseline market, no noise",
+           "kernel_periods_per_second": reps * reference_periods / t_ker,
+           "reference_periods_per_second": reference_periods / t_ref,
+           "reference_identical_to_kernel": bool(np.array_equal(ref["Q"], ker["Q"])
+                                                 and np.array_equal(ref["counts"], ker["counts"]))}
+    out["ratio"] = out["kernel_periods_per_second"] / out["reference_periods_per_second"]
+    return out
+
+
 def time_sessions(sessions: int = 1000, workers: int = 2, seed: int = 0, cold: bool = True) -> dict:
     """Wall time of ``sessions`` baseline sessions in a fresh process, compilation included.
 
@@ -161,7 +208,8 @@ def bench_section(opts) -> dict:
     Throughput of the two-agent baseline on one core against the plain-Python reference, and the wall
     time of 1,000 baseline sessions with ``opts.threads`` workers in a fresh process with an empty numba
     cache (compilation included). Targets: >= 8e6 periods/s, >= 100 x the reference, 1,000 sessions in under 3
-    minutes.
+    minutes. Each bandit family (:func:`bandit_benchmark`): >= 100 x its twin and at least half the Q-learning
+    kernel's periods per second on the same fixed-length workload, measured in the same run.
 
     Parameters
     ----------
@@ -170,8 +218,9 @@ def bench_section(opts) -> dict:
     Returns
     -------
     dict
-        The measures of :func:`benchmark`, ``sessions_run`` (:func:`time_sessions`), ``workload``, ``targets``
-        and ``notes``.
+        The measures of :func:`benchmark`, ``sessions_run`` (:func:`time_sessions`), ``bandits`` (per family, the
+        measures of :func:`bandit_benchmark` and ``speed_relative_to_q_learning``), ``workload``, ``targets`` and
+        ``notes``.
     """
     quick = bool(getattr(opts, "quick", False))
     workers = int(getattr(opts, "threads", 2))
@@ -195,4 +244,15 @@ def bench_section(opts) -> dict:
         "reference and kernel identical": b["reference_identical_to_kernel"],
     }
     out["notes"] = ["quick workload: the targets refer to the full workload"] if quick else []
+    # the bandit families against the Q-learning kernel of the same run (periods per second on one core)
+    size = {"reference_periods": 5_000, "kernel_periods": 500_000} if quick else {"repeat": repeat}
+    out["bandits"] = {}
+    for family in ("ucb", "thompson"):
+        bb = bandit_benchmark(family, **size)
+        bb["speed_relative_to_q_learning"] = bb["kernel_periods_per_second"] / b["kernel_periods_per_second"]
+        out["bandits"][family] = bb
+        out["targets"][f"{family} kernel >= 100 x its twin"] = bb["ratio"] >= 100
+        out["targets"][f"{family} kernel within a factor 2 of Q-learning per period"] = (
+            bb["speed_relative_to_q_learning"] >= 0.5)
+        out["targets"][f"{family} twin and kernel identical"] = bb["reference_identical_to_kernel"]
     return out

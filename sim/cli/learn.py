@@ -44,6 +44,9 @@ _FLAGS = {
         "init": ("init", "str"),
         "update": ("update", "str"),
         "counterfactual_share": ("counterfactual-share", "num"),
+        "family": ("family", "str"),
+        "exploration": ("exploration", "num"),
+        "noise": ("noise", "num"),
         "convergence": ("convergence", "int"),
         "max_periods": ("max-periods", "int"),
         "near": ("near", "num"),
@@ -90,6 +93,12 @@ def configure(p: argparse.ArgumentParser) -> None:
                                                     "what it would have earned) or mixed")
     g.add_argument("--counterfactual-share", metavar="S", help="with --update mixed: probability in (0, 1) that each "
                                                                "action not played is updated")
+    g.add_argument("--family", metavar="F", help="q (Q-learning; default), ucb or thompson (bandits over the grid that "
+                                                 "keep no state)")
+    g.add_argument("--exploration", metavar="C", help="bandits: UCB's constant c or Thompson's posterior scale v "
+                                                      "(> 0; default 1)")
+    g.add_argument("--noise", metavar="SD", help="bandits: standard deviation of the error on the scaled profit they "
+                                                 "observe (default 0)")
     g.add_argument("--convergence", metavar="C", help="converged after C periods without a change of any greedy "
                                                       "strategy (default 100000)")
     g.add_argument("--max-periods", metavar="N", help="cap on a session's periods (default 1e9)")

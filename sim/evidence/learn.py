@@ -75,11 +75,24 @@ def _seat_lines(res: LearnResult) -> list[str]:
         if i > 0 and same:
             continue
         who = "Learners" if same else f"Firm {i + 1}"
+        if c.get("family", "q") != "q":
+            lines.append(_bandit_line(who, c, act))
+            continue
         init = "given array" if c["init"] == "given" else c["init"]
         lines.append(f"{who}: Q-learning, alpha {fmt_num(c['alpha'])}, beta {c['beta']:g}, delta "
                      f"{fmt_num(c['delta'])}, {c['m']} {act} levels from {fmt_num(c['grid'][0])} to "
                      f"{fmt_num(c['grid'][-1])}, memory {c['k']}, Q initialised {init}{_update_words(c)}")
     return lines
+
+
+def _bandit_line(who: str, c: dict, act: str) -> str:
+    """A bandit seat in words: its rule, exploration constant, grid and observation noise (sim.learning.bandits)."""
+    rule = {"ucb": "upper confidence bound (UCB1 index, exploration c", "thompson": "Thompson sampling (Gaussian, "
+            "posterior scale v"}[c["family"]]
+    noise = f", observation noise {fmt_num(c['noise'])}" if c.get("noise") else ""
+    return (f"{who}: {rule} {fmt_num(c['exploration'])}), {c['m']} {act} levels from {fmt_num(c['grid'][0])} to "
+            f"{fmt_num(c['grid'][-1])}, no memory of past {act}s, rewards = profit scaled by the largest profit on "
+            f"the grid{noise}")
 
 
 def _setup_lines(res: LearnResult) -> list[str]:

@@ -68,13 +68,14 @@ def explain(a: dict, summary: dict, act: str = "price") -> str:
                 f"learners learned {end}.")
     first, last = a["first_trigger"], a["last_trigger"]
     text = (f"{name} was triggered in {_pct(a['triggered']['share'])} of sessions, first in period "
-            f"{_period(first['median'])} (median over sessions), while the learners still explored "
-            f"{_pct(a['exploration_first']['median'])} of the time; ")
+            f"{_period(first['median'])} (median over sessions)"
+            f"{_explored(a['exploration_first']['median'], ', while the learners still explored {} of the time')}; ")
     if a["triggers"]["mean"] == 1.0:
         text += "it was triggered once per session, "
     else:
         text += (f"it was triggered {_times(a['triggers']['mean'])} per session on average, the last time in period "
-                 f"{_period(last['median'])} (exploring {_pct(a['exploration_last']['median'])} of the time), ")
+                 f"{_period(last['median'])}"
+                 f"{_explored(a['exploration_last']['median'], ' (exploring {} of the time)')}, ")
     text += f"and it punished for {_pct(a['punishment_share']['mean'])} of the session."
     stuck = a["punishing_at_end"]["share"]
     if stuck >= 0.5:
@@ -82,6 +83,14 @@ def explain(a: dict, summary: dict, act: str = "price") -> str:
                        f"learned their best reply to its punishment: {end}.")
     return (text + f" Its punishments ended (in {_pct(1 - stuck)} of sessions it was back in its collusive state "
                    f"when learning ended), so the learners could learn what the agreement earns: {end}.")
+
+
+def _explored(share, words: str) -> str:
+    """``words`` with the exploration share, or nothing when it is not defined (only bandits learn: they have no
+    exploration probability)."""
+    if share is None or (isinstance(share, float) and math.isnan(share)):
+        return ""
+    return words.format(_pct(share))
 
 
 def automaton_lines(res) -> list[str]:

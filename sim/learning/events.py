@@ -38,7 +38,7 @@ from sim.core.params import Integer
 from sim.core.tables import refuse_unknown
 from sim.learning import kernel as K
 from sim.learning.inputs import STATUS_CAP, STATUS_CONVERGED, new_triggers
-from sim.learning.saved import SavedLearners, describe_layout
+from sim.learning.saved import SavedLearners, check_family, describe_layout
 from sim.simulation.results import mean_estimate, wilson_estimate
 from strategies.qlearning import QLearner
 
@@ -166,6 +166,7 @@ def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: 
         firm = f"firm {i + 1}"
         if a.get("strategy") != b["strategy"]:
             raise InputError(key, f"{firm} was {a.get('strategy')!r} in the saved run, {b['strategy']!r} here")
+        check_family(a, b, firm, key)
         if b["strategy"] == "qlearning":
             ga, gb = np.asarray(a.get("grid", []), dtype=float), np.asarray(b["grid"], dtype=float)
             if ga.shape != gb.shape or not np.array_equal(ga, gb):
@@ -218,7 +219,8 @@ def adapt_saved(saved: SavedLearners, lineup, event: Event) -> SavedLearners:
     clock[:, 1] = 0
     if event.kind == "market":
         return SavedLearners(saved.Q.copy(), saved.greedy.copy(), saved.history.copy(), saved.z.copy(),
-                             saved.rng.copy(), clock, saved.status.copy(), saved.triggers.copy(), dict(saved.header))
+                             saved.rng.copy(), clock, saved.status.copy(), saved.triggers.copy(), dict(saved.header),
+                             saved.counts.copy(), saved.sums.copy())
     n = saved.n_sessions
     m_new = int(lineup.stage.M)
     m_old = m_new // int(lineup.seats.radix[-1])
@@ -238,8 +240,13 @@ def adapt_saved(saved: SavedLearners, lineup, event: Event) -> SavedLearners:
         history += (prof + a_e * m_old) * m_new**lag
     z = np.concatenate([saved.z, np.full((n, 1), int(lineup.z0[-1]), dtype=np.int64)], axis=1)
     triggers = np.concatenate([saved.triggers, np.repeat(new_triggers(1)[None], n, axis=0)], axis=1)
+    # a bandit's statistics do not depend on the state; an entrant learner starts with none
+    counts = np.zeros((n, lineup.q0.shape[0], lineup.q0.shape[2]), dtype=np.int64)
+    sums = np.zeros(counts.shape)
+    n_old, m_old_max = saved.counts.shape[1], saved.counts.shape[2]
+    counts[:, :n_old, :m_old_max], sums[:, :n_old, :m_old_max] = saved.counts, saved.sums
     return SavedLearners(q, greedy, history, z, saved.rng.copy(), clock, saved.status.copy(), triggers,
-                         dict(saved.header))
+                         dict(saved.header), counts, sums)
 
 
 def run_tracked(lineup, session, s: int, convergence: int, cap: int, path: np.ndarray,

@@ -26,11 +26,15 @@ import numpy as np
 
 __all__ = [
     "AUTOMATON",
+    "FAMILY_CODES",
     "INFO_FIELDS",
     "LEARNER",
+    "Q_FAMILY",
     "STATUS_CAP",
     "STATUS_CONVERGED",
+    "THOMPSON_FAMILY",
     "TRIGGER_FIELDS",
+    "UCB_FAMILY",
     "AutomatonInputs",
     "DeviationInputs",
     "LimitOutputs",
@@ -49,6 +53,11 @@ STATUS_CAP = 1
 #: seat kinds
 LEARNER = 0
 AUTOMATON = 1
+#: the code of each learner family in ``SeatInputs.family`` (see :data:`strategies.qlearning.FAMILIES`)
+Q_FAMILY = 0
+UCB_FAMILY = 1
+THOMPSON_FAMILY = 2
+FAMILY_CODES = {"q": Q_FAMILY, "ucb": UCB_FAMILY, "thompson": THOMPSON_FAMILY}
 #: the entries of ``LimitOutputs.info``
 INFO_FIELDS = ("transient", "cycle_length", "points", "deviation_gain", "deviation_pays", "returned",
                "return_periods", "deviation_action")
@@ -83,6 +92,15 @@ class SeatInputs(NamedTuple):
     share : ndarray of float64, shape (n,)
         The update rule of each learner: the probability that each action it did not play is updated from its
         counterfactual profit in a period (0 asynchronous, 1 synchronous, in between mixed; 0 for automata).
+    family : ndarray of int64, shape (n,)
+        The family of each learner (:data:`FAMILY_CODES`; 0 for automata).
+    explore : ndarray of float64, shape (n,)
+        A bandit's exploration constant (UCB's ``c``, Thompson's scale ``v``; 0 otherwise).
+    noise : ndarray of float64, shape (n,)
+        A bandit's observation noise on its scaled reward (0 otherwise).
+    reward_lo, reward_span : ndarray of float64, shape (n,)
+        A bandit's reward of a profit ``pi`` is ``(pi - reward_lo) / reward_span`` (see
+        :mod:`sim.learning.bandits`; 0 and 1 otherwise).
     """
 
     kind: np.ndarray
@@ -97,6 +115,11 @@ class SeatInputs(NamedTuple):
     beta: np.ndarray
     delta: np.ndarray
     share: np.ndarray
+    family: np.ndarray
+    explore: np.ndarray
+    noise: np.ndarray
+    reward_lo: np.ndarray
+    reward_span: np.ndarray
 
 
 class StageInputs(NamedTuple):
@@ -179,6 +202,11 @@ class SessionState(NamedTuple):
         session): a period counts as punishing when the automaton plays it in a non-collusive state, and an entry
         is a move from a collusive state to a non-collusive one, dated by the period whose signal caused it.
         Learner rows stay as they are.
+    counts : ndarray of int64, shape (n_learners, max(radix))
+        A bandit's plays of each of its prices so far (zeros for Q-learners); its step counter is their sum.
+    sums : ndarray of float64, shape (n_learners, max(radix))
+        A bandit's sum of the rewards each price earned (zeros for Q-learners). Its row ``Q[li, 0]`` holds its
+        estimates (the mean reward, or the posterior mean), and ``greedy[li, 0]`` their first argmax.
     """
 
     Q: np.ndarray
@@ -187,6 +215,8 @@ class SessionState(NamedTuple):
     rng: np.ndarray
     clock: np.ndarray
     triggers: np.ndarray
+    counts: np.ndarray
+    sums: np.ndarray
 
 
 #: the columns of a session's record of its automata's punishments (``SessionState.triggers``, one row per seat):

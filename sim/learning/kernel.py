@@ -41,7 +41,9 @@ Everything draws from the session's one xoshiro256** stream, in this fixed order
 period: seats in order, a learner's exploration draws (one uniform, and a second one when it explores)
 or an automaton's cheat draw (:func:`strategies.step.choose_level`); then, learners in seat order, a
 learner with the mixed update rule draws one uniform for each action it did not play, in increasing
-order (the asynchronous and synchronous rules draw nothing); then, after the learners'
+order (the asynchronous and synchronous rules draw nothing); a bandit draws in its own steps (a Thompson
+seat ``m`` normals where a Q-learner draws its exploration uniforms, a bandit with observation noise one
+normal at its update: :mod:`sim.learning.bandits`); then, after the learners'
 updates, automaton seats in order, each its transition draw (:func:`strategies.step.next_state`).
 Automata seated with learners see no perception errors, so :func:`strategies.step.bad_signal` never
 draws here. The engine's functions draw only when a probability is strictly between 0 and 1, so a
@@ -56,7 +58,16 @@ import numpy as np
 from numba import njit
 
 from sim.core.rng import next_below, next_double
-from sim.learning.inputs import AUTOMATON, LEARNER, STATUS_CAP, STATUS_CONVERGED, TRIGGER_FIELDS, new_triggers
+from sim.learning.bandits import bandit_choice, bandit_scales, bandit_update
+from sim.learning.inputs import (
+    AUTOMATON,
+    LEARNER,
+    Q_FAMILY,
+    STATUS_CAP,
+    STATUS_CONVERGED,
+    TRIGGER_FIELDS,
+    new_triggers,
+)
 from strategies.step import COLLUSIVE, bad_signal, choose_level, next_state
 
 __all__ = ["TRIGGER_FIELDS", "initial_state", "new_triggers", "run_session"]
@@ -186,16 +197,18 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
     s : int
         History state after the last period.
     """
-    kind, lidx, radix, place, mod, _zn, _zplace, owner, alpha, beta, delta, share = seats
+    (kind, lidx, radix, place, mod, _zn, _zplace, owner, alpha, beta, delta, share, family, explore, noise, reward_lo,
+     reward_span) = seats
     M, S, K, payoff, _actions, _prices, mprice, values, quantity_setting = stage
     a_states, a_probs, a_firms, a_levels, act_of_level = automata
-    Q, greedy, z, rng, clock, triggers = session
+    Q, greedy, z, rng, clock, triggers, counts, sums = session
     n = radix.size
     act = np.empty(n, np.int64)
     vals = np.empty(n, np.float64)
     cont = np.empty(radix.max(), np.float64)
     upd = np.empty(radix.max(), np.bool_)
     has_automata = (kind == AUTOMATON).any()
+    w = bandit_scales(kind, family, lidx, radix, counts)
     t = clock[0]
     stable = clock[1]
     if stable >= convergence:
@@ -208,7 +221,10 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
         eps = -1.0
         prev_beta = -1.0
         for i in range(n):
-            if kind[i] == LEARNER:
+            if kind[i] == LEARNER and family[i] != Q_FAMILY:
+                # a bandit: its own statistics, whatever the history (sim.learning.bandits)
+                a = bandit_choice(family[i], lidx[i], radix[i], explore[i], counts, Q, w, rng)
+            elif kind[i] == LEARNER:
                 eps, prev_beta = _exploration(beta[i], tf, eps, prev_beta)
                 if next_double(rng) < eps:
                     a = next_below(rng, radix[i])
@@ -226,6 +242,11 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
             if kind[i] != LEARNER:
                 continue
             li, a = lidx[i], act[i]
+            if family[i] != Q_FAMILY:
+                if bandit_update(family[i], li, a, radix[i], payoff[prof, i], reward_lo[i], reward_span[i], noise[i],
+                                 counts, sums, Q, greedy, w, rng):
+                    changed = True
+                continue
             si, sn = _seen(s, mod[i], S), _seen(s_new, mod[i], S)
             if share[i] > 0.0:
                 # synchronous or mixed: the other actions too, from what they would have earned

@@ -17,8 +17,10 @@ import numpy as np
 import strategies.step as SS
 from sim.core.errors import InputError
 from sim.core.params import Options
+from sim.learning.bandits import reward_bounds
 from sim.learning.inputs import (
     AUTOMATON,
+    FAMILY_CODES,
     LEARNER,
     AutomatonInputs,
     Play,
@@ -175,8 +177,9 @@ class Lineup:
         sim.learning.inputs.SessionState
         """
         g = self.initial_greedy() if greedy is None else greedy.copy()
+        n_l, m_max = self.q0.shape[0], self.q0.shape[2]
         return SessionState(self.q0.copy(), g, self.z0.copy(), rng, np.zeros(2, dtype=np.int64),
-                            new_triggers(self.n_seats))
+                            new_triggers(self.n_seats), np.zeros((n_l, m_max), dtype=np.int64), np.zeros((n_l, m_max)))
 
     def decode(self, prof) -> np.ndarray:
         """Action indices of profile numbers.
@@ -355,7 +358,7 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     # automata first: their action sets enter the state space
     auto = _automaton_part(ms, seats, is_l, keys, agreement, random_automata == "refuse")
     radix = [int(specs[i]["m"]) if is_l[i] else int(auto["values"][i].size) for i in range(n)]
-    ks = [int(specs[i]["k"]) for i in range(n) if is_l[i]]
+    ks = [int(specs[i]["k"]) if specs[i]["family"] == "q" else 0 for i in range(n) if is_l[i]]
     _check_memory(radix, ks, max(1, int(workers)), prefix, available_memory, int(np.prod(auto["zn"])))
     # the published grid of a learner without one is placed by the static-Nash and joint-profit actions
     stage = stage_game(ms) if any(is_l[i] and seats[i].get_params().get("grid") is None for i in range(n)) else None
@@ -363,7 +366,9 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     grids = tuple(compiled[i].grid if is_l[i] else auto["values"][i] for i in range(n))
     seat_in = _seat_inputs(compiled, radix, auto["zn"])
     M = int(np.prod(seat_in.radix))
-    stage_in = _stage_inputs(ms, grids, seat_in, M, max(ks), auto["engine"] is not None, prefix)
+    # the history of one period is kept even when every learner is a bandit (memory 0)
+    stage_in = _stage_inputs(ms, grids, seat_in, M, max(1, *ks), auto["engine"] is not None, prefix)
+    seat_in = _with_reward_bounds(seat_in, stage_in.payoff, compiled)
     st = stage_game(ms, agreement)
     names = tuple("qlearning" if is_l[i] else getattr(seats[i], "name", type(seats[i]).__name__) for i in range(n))
     return Lineup(
@@ -401,7 +406,20 @@ def _seat_inputs(compiled: tuple, radix: list, zn: np.ndarray) -> SeatInputs:
                       alpha=np.array([c.alpha if c else 0.0 for c in compiled]),
                       beta=np.array([c.beta if c else 0.0 for c in compiled]),
                       delta=np.array([c.delta if c else 0.0 for c in compiled]),
-                      share=np.array([c.share if c else 0.0 for c in compiled]))
+                      share=np.array([c.share if c else 0.0 for c in compiled]),
+                      family=np.array([FAMILY_CODES[c.family] if c else 0 for c in compiled], dtype=np.int64),
+                      explore=np.array([c.exploration if c else 0.0 for c in compiled]),
+                      noise=np.array([c.noise if c else 0.0 for c in compiled]),
+                      reward_lo=np.zeros(n), reward_span=np.ones(n))
+
+
+def _with_reward_bounds(seats: SeatInputs, payoff: np.ndarray, compiled: tuple) -> SeatInputs:
+    """The bandit seats' reward scales, from the profits on the grid (:func:`sim.learning.bandits.reward_bounds`)."""
+    lo, span = seats.reward_lo.copy(), seats.reward_span.copy()
+    for i, c in enumerate(compiled):
+        if c is not None and c.family != "q":
+            lo[i], span[i] = reward_bounds(payoff, i)
+    return seats._replace(reward_lo=lo, reward_span=span)
 
 
 def _stage_inputs(ms, grids: tuple, seats: SeatInputs, M: int, K: int, automata: bool, prefix: str) -> StageInputs:

@@ -12,14 +12,17 @@ The file
 A zip archive in the layout of numpy's ``.npz`` (each array a ``.npy`` member, read with ``allow_pickle=False``)
 with one more member, ``header.json``::
 
-    {"format": "supergame saved learners", "version": 1, "arrays_sha256": "...", "market": {...},
+    {"format": "supergame saved learners", "version": 2, "arrays_sha256": "...", "market": {...},
      "seats": [...], "sessions": n, "seed": ..., "cell": ..., "arrays": {"Q": {"dtype": "<f8", "shape": [...]}, ...}}
 
 ``arrays_sha256`` is the SHA-256 of the arrays (:func:`arrays_digest`): a file whose arrays were altered or
 damaged is refused. ``market`` is the market's settings and ``seats`` each seat's learner (its grid, parameters and
 update rule) or automaton: a file is continued only on the same market and the same grids (the learning parameters
-and the update rule may change: a change of protocol). The members carry a fixed date, so the same state gives the
-same bytes.
+and the update rule may change: a change of protocol), and a seat only by a learner of the same family. The members
+carry a fixed date, so the same state gives the same bytes.
+
+Versions: 2 adds the bandits' statistics (``counts`` and ``sums``, :mod:`sim.learning.bandits`). A file of version 1
+is still read: its learners are Q-learners, and their statistics are zeros.
 """
 
 from __future__ import annotations
@@ -37,18 +40,29 @@ from sim.core.errors import InputError
 from sim.core.files import write_atomic
 from sim.core.records import to_plain
 
-__all__ = ["FORMAT", "VERSION", "SavedLearners", "arrays_digest", "check_start", "describe_layout", "load_learners",
-           "save_learners"]
+__all__ = [
+    "FORMAT",
+    "READABLE_VERSIONS",
+    "VERSION",
+    "SavedLearners",
+    "arrays_digest",
+    "check_family",
+    "check_start",
+    "describe_layout",
+    "load_learners",
+    "save_learners",
+]
 
 #: the name and version of the file format written by :func:`save_learners`
 FORMAT = "supergame saved learners"
-VERSION = 1
+VERSION = 2
+#: the versions :func:`load_learners` reads
+READABLE_VERSIONS = (1, 2)
 #: the arrays of a saved run, in the order they are hashed (files written before the record of punishments was kept
-#: have all but ``triggers``; their header's ``arrays`` does not list it)
-_ARRAYS = ("Q", "greedy", "history", "z", "rng", "clock", "status", "triggers")
-_ARRAYS_V1 = _ARRAYS[:-1]
+#: have all but ``triggers``; their header's ``arrays`` does not list it; version 1 files have no bandit statistics)
+_ARRAYS = ("Q", "greedy", "history", "z", "rng", "clock", "status", "triggers", "counts", "sums")
 _DTYPES = {"Q": np.float64, "greedy": np.int64, "history": np.int64, "z": np.int64, "rng": np.uint64,
-           "clock": np.int64, "status": np.int64, "triggers": np.int64}
+           "clock": np.int64, "status": np.int64, "triggers": np.int64, "counts": np.int64, "sums": np.float64}
 _FIXED_DATE = (1980, 1, 1, 0, 0, 0)
 
 
@@ -77,6 +91,10 @@ class SavedLearners:
         file written before it was kept has none, read as no punishment yet).
     header : dict
         ``format``, ``version``, ``market``, ``seats``, ``sessions``, ``seed``, ``cell`` (see the module notes).
+    counts : ndarray of int64, shape (n, n_learners, max(radix))
+        The bandits' plays of each price (zeros for Q-learners and in a version 1 file).
+    sums : ndarray of float64, shape (n, n_learners, max(radix))
+        The bandits' sums of rewards of each price (likewise).
     """
 
     Q: np.ndarray
@@ -88,6 +106,8 @@ class SavedLearners:
     status: np.ndarray
     triggers: np.ndarray
     header: dict
+    counts: np.ndarray
+    sums: np.ndarray
 
     @property
     def n_sessions(self) -> int:
@@ -184,10 +204,12 @@ def load_learners(path, key: str = "learning.continue_from") -> SavedLearners:
             header = json.loads(zf.read("header.json").decode("utf-8"))
             if not isinstance(header, dict) or header.get("format") != FORMAT:
                 raise InputError(key, f"{path} is not a file of saved learners (format {FORMAT!r})")
-            if header.get("version") != VERSION:
+            if header.get("version") not in READABLE_VERSIONS:
                 raise InputError(key, f"{path} has format version {header.get('version')!r}; this version of the "
-                                      f"program reads version {VERSION}")
-            names = _ARRAYS if "triggers" in (header.get("arrays") or {}) else _ARRAYS_V1
+                                      f"program reads versions {', '.join(map(str, READABLE_VERSIONS))}")
+            listed = header.get("arrays") or {}
+            names = tuple(name for name in _ARRAYS if name in listed or name in ("Q", "greedy", "history", "z",
+                                                                                   "rng", "clock", "status"))
             arrays = {name: np.lib.format.read_array(io.BytesIO(zf.read(f"{name}.npy")), allow_pickle=False)
                       for name in names}
     except InputError:
@@ -207,6 +229,10 @@ def load_learners(path, key: str = "learning.continue_from") -> SavedLearners:
         z = arrays["z"]
         arrays["triggers"] = np.zeros((*z.shape, 4), dtype=np.int64)
         arrays["triggers"][..., 1:3] = -1
+    for name in ("counts", "sums"):
+        if name not in arrays:
+            q = arrays["Q"]
+            arrays[name] = np.zeros((q.shape[0], q.shape[1], q.shape[3]), dtype=_DTYPES[name])
     return SavedLearners(**arrays, header=header)
 
 
@@ -259,8 +285,9 @@ def check_start(saved: SavedLearners, lineup, market: dict | None, sessions: int
     Raises
     ------
     InputError
-        Naming ``key``: another market, another number of seats, a seat held by another kind of strategy, another
-        grid or memory, another number of sessions, or greedy actions that are not those of the Q-values.
+        Naming ``key``: another market, another number of seats, a seat held by another kind of strategy or a learner
+        of another family, another grid or memory, another number of sessions, or greedy actions that are not those
+        of the Q-values.
     """
     h = saved.header
     if market is not None:
@@ -277,6 +304,7 @@ def check_start(saved: SavedLearners, lineup, market: dict | None, sessions: int
         firm = f"firm {i + 1}"
         if a.get("strategy") != b["strategy"]:
             raise InputError(key, f"{firm} was {a.get('strategy')!r} in the saved run, {b['strategy']!r} here")
+        check_family(a, b, firm, key)
         grid = "grid" if b["strategy"] == "qlearning" else "actions"
         ga, gb = np.asarray(a.get(grid, []), dtype=float), np.asarray(b[grid], dtype=float)
         if ga.shape != gb.shape or not np.array_equal(ga, gb):
@@ -296,6 +324,30 @@ def check_start(saved: SavedLearners, lineup, market: dict | None, sessions: int
         if not np.array_equal(first, saved.greedy[:, li, :n_states]):
             raise InputError(key, f"firm {i + 1}'s greedy actions are not those of its Q-values: the file is not "
                                   "consistent")
+
+
+def check_family(saved_seat: dict, seat: dict, firm: str, key: str) -> None:
+    """Refuse to continue a saved learner as a learner of another family (a Q-matrix is not a bandit's statistics).
+
+    Parameters
+    ----------
+    saved_seat, seat : dict
+        The seat as the saved file and as the new run describe it (:func:`describe_layout`).
+    firm : str
+        The seat in words (``"firm 1"``).
+    key : str
+        Key path of the saved file.
+
+    Raises
+    ------
+    InputError
+        Naming ``key``, when the families differ.
+    """
+    if saved_seat.get("strategy") == "qlearning" and seat.get("strategy") == "qlearning":
+        old, new = saved_seat.get("family", "q"), seat.get("family", "q")
+        if old != new:
+            raise InputError(key, f"{firm} was a learner of family {old!r} in the saved run, {new!r} here: a saved "
+                                  "learner continues only in its own family")
 
 
 def _ends(grid: np.ndarray) -> str:

@@ -3,7 +3,8 @@
 The experiment of Calvano, Calzolari, Denicolo and Pastorello (2020, AER, "Artificial Intelligence,
 Algorithmic Pricing, and Collusion") on any market of this package:
 
-1. every firm is a :class:`strategies.qlearning.QLearner` with a grid of actions;
+1. every firm is a :class:`strategies.qlearning.QLearner` with a grid of actions (a Q-learner, or with
+   ``family = "ucb"`` or ``"thompson"`` a bandit over the grid that keeps no state: :mod:`sim.learning.bandits`);
 2. a *session* lets them play and learn until every learner's greedy strategy has been unchanged for
    ``convergence`` consecutive periods (or ``max_periods`` is reached: not converged);
 3. the learned strategies are then played greedily from the final state: the *limit path* ends in a
@@ -233,7 +234,9 @@ class _Buffers:
         self.saved = {"Q": np.zeros((n, *lineup.q0.shape)), "greedy": np.zeros((n, *lineup.q0.shape[:2]), np.int64),
                       "history": np.zeros(n, np.int64), "z": np.zeros((n, lineup.n_seats), np.int64),
                       "rng": np.zeros((n, 4), np.uint64), "clock": np.zeros((n, 2), np.int64),
-                      "triggers": np.zeros((n, lineup.n_seats, 4), np.int64)}
+                      "triggers": np.zeros((n, lineup.n_seats, 4), np.int64),
+                      "counts": np.zeros((n, lineup.q0.shape[0], lineup.q0.shape[2]), np.int64),
+                      "sums": np.zeros((n, lineup.q0.shape[0], lineup.q0.shape[2]))}
 
     def store(self, j: int, session: SessionState, s: int) -> None:
         """Session ``j``'s state at the end of learning (when kept)."""
@@ -242,6 +245,7 @@ class _Buffers:
             sv["Q"][j], sv["greedy"][j], sv["history"][j] = session.Q, session.greedy, s
             sv["z"][j], sv["rng"][j], sv["clock"][j] = session.z, session.rng, session.clock
             sv["triggers"][j] = session.triggers
+            sv["counts"][j], sv["sums"][j] = session.counts, session.sums
 
     def outputs(self, j: int) -> LimitOutputs:
         """Session ``j``'s rows, as the limit kernels write them."""
@@ -260,7 +264,8 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
     else:
         rng = start.rng[j].copy()
         session = SessionState(start.Q[j].copy(), start.greedy[j].copy(), start.z[j].copy(), rng,
-                               start.clock[j].copy(), start.triggers[j].copy())
+                               start.clock[j].copy(), start.triggers[j].copy(), start.counts[j].copy(),
+                               start.sums[j].copy())
         s = int(start.history[j])
     if buf.event is None:
         st, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, session, s, settings["convergence"],
@@ -417,12 +422,12 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
     -------
     dict
         ``status``, ``periods``, ``state`` (the history state), ``Q``, ``greedy``, ``z``, ``rng`` (the
-        generator state after the last period) and ``triggers`` (the record of the automata's punishments,
-        :data:`sim.learning.inputs.TRIGGER_FIELDS`).
+        generator state after the last period), ``triggers`` (the record of the automata's punishments,
+        :data:`sim.learning.inputs.TRIGGER_FIELDS`), ``counts`` and ``sums`` (the bandits' statistics).
     """
     rng = stream_states(seed, (cell,), session, session + 1)[0].copy()
     st = lineup.session_state(rng)
     s = K.initial_state(rng, lineup.seats, lineup.stage)
     status, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, st, s, convergence, max_periods)
     return {"status": int(status), "periods": int(t), "state": int(s), "Q": st.Q, "greedy": st.greedy, "z": st.z,
-            "rng": rng, "triggers": st.triggers}
+            "rng": rng, "triggers": st.triggers, "counts": st.counts, "sums": st.sums}

@@ -46,7 +46,8 @@ RUN_CONSTRAINTS = {
     "confidence": Real(0, 1, closed="neither"),
 }
 #: parameters of a Q-learner in [learning] and in a ``strategy = "qlearning"`` entry
-LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init", "update", "counterfactual_share")
+LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init", "update", "counterfactual_share", "family",
+                  "exploration", "noise")
 #: keys of the tables a learning experiment reads, in the order error messages list them
 LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "near", "limit_periods", "save_to", "continue_from")
 IMPULSE_KEYS = ("firm", "action", "periods")

@@ -71,14 +71,15 @@ def trigger_summary(lineup, triggers: np.ndarray, punishing_at_end: np.ndarray, 
         ``last_trigger`` (the period of the conduct that caused the first and the last entry, counted from 1, over
         the sessions with one; ``mean`` with its interval and ``median``), ``punishment_share`` (share of the
         session's periods played in a non-collusive state), ``exploration_first`` and ``exploration_last`` (the
-        learners' exploration probability at those periods) and ``punishing_at_end`` (share of sessions that ended
-        learning with the automaton punishing).
+        Q-learners' exploration probability at those periods; nan when every learner is a bandit) and
+        ``punishing_at_end`` (share of sessions that ended learning with the automaton punishing).
     """
     rec = np.asarray(triggers)[sel]
     per = np.asarray(periods, dtype=float)[sel]
     end = np.asarray(punishing_at_end)[sel]
-    seats = lineup.learner_seats
-    beta = float(lineup.seats.beta[seats[0]]) if seats else 0.0
+    # the exploration probability exp(-beta t) of the first Q-learner; bandits have none (nan: not reported)
+    seats = [i for i in lineup.learner_seats if lineup.learners[i].family == "q"]
+    beta = float(lineup.seats.beta[seats[0]]) if seats else np.nan
     out = []
     for i in range(lineup.n_seats):
         if lineup.learners[i] is not None:

@@ -29,6 +29,7 @@ import numpy as np
 
 import strategies.step as S
 from sim.core.rng import ReferenceStream
+from sim.learning.bandits import twin_choice, twin_update
 
 __all__ = ["jumped", "reference_analysis", "reference_estimate", "reference_session"]
 
@@ -144,7 +145,13 @@ class _Setup:
         self.m = [int(r) for r in seats.radix]
         self.learner = [c is not None for c in lineup.learners]
         self.k = [c.k if c is not None else 0 for c in lineup.learners]
-        self.K = max(self.k)
+        self.K = int(stage.K)  # at least 1: the kernel keeps the last profile even when every learner is a bandit
+        self.family = [c.family if c is not None else None for c in lineup.learners]
+        self.bandit = [f is not None and f != "q" for f in self.family]
+        self.explore = [float(x) for x in seats.explore]
+        self.noise = [float(x) for x in seats.noise]
+        self.reward_lo = [float(x) for x in seats.reward_lo]
+        self.reward_span = [float(x) for x in seats.reward_span]
         self.alpha = [float(x) for x in seats.alpha]
         self.beta = [float(x) for x in seats.beta]
         self.delta = [float(x) for x in seats.delta]
@@ -196,12 +203,15 @@ class _Setup:
 # ------------------------------------------------------------------------------------------------
 
 
-def _choose(st, Q, history, z, t, rng):
-    """Every seat's action in period ``t``: a learner explores with probability exp(-beta t), else plays its
-    greedy action; an automaton plays its state's action."""
+def _choose(st, Q, history, z, t, rng, arms):
+    """Every seat's action in period ``t``: a Q-learner explores with probability exp(-beta t), else plays its
+    greedy action; a bandit chooses by its rule from its statistics ``arms[i] = (counts, sums)``; an automaton
+    plays its state's action."""
     profile = []
     for i in range(st.n):
-        if st.learner[i]:
+        if st.bandit[i]:
+            profile.append(twin_choice(st.family[i], st.explore[i], *arms[i], rng))
+        elif st.learner[i]:
             epsilon = math.exp(-st.beta[i] * t)
             if rng.next_double() < epsilon:
                 profile.append(rng.next_below(st.m[i]))
@@ -212,16 +222,19 @@ def _choose(st, Q, history, z, t, rng):
     return tuple(profile)
 
 
-def _update(st, Q, states, history, profile, rng):
+def _update(st, Q, states, history, profile, rng, arms):
     """Every learner updates the value of the action it played in the state it was in, with the best value of
-    the state it moved to (and, by its update rule, the values of other actions: :func:`_counterfactual`);
-    returns whether a greedy action changed."""
+    the state it moved to (and, by its update rule, the values of other actions: :func:`_counterfactual`); a
+    bandit its statistics and estimates; returns whether a greedy action changed."""
     profits = st.profits(profile)
     changed = False
     for i in Q:
         row = Q[i][states[i]]
         before = _argmax(row)
-        if st.share[i] > 0.0:
+        if st.bandit[i]:
+            row[:] = twin_update(st.family[i], profile[i], profits[i], st.reward_lo[i], st.reward_span[i],
+                                 st.noise[i], *arms[i], rng)
+        elif st.share[i] > 0.0:
             _counterfactual(st, Q[i], i, states[i], profile, rng)
         else:
             continuation = max(Q[i][tuple(history[: st.k[i]])])
@@ -282,7 +295,8 @@ def reference_session(lineup, rng_state, convergence, max_periods):
         first), ``state`` (its index in the kernel's layout), ``z`` (tuple of automaton states), ``Q`` (ndarray
         in the kernel's layout), ``greedy`` (ndarray of shape (n_learners, S_l)), ``rng`` (the generator
         state after the last period, uint64 array of shape (4,)) and ``triggers`` (the record of the automata's
-        punishments, int64 array of shape (n, 4), as :func:`sim.learning.kernel.run_session` keeps it).
+        punishments, int64 array of shape (n, 4), as :func:`sim.learning.kernel.run_session` keeps it), ``counts``
+        and ``sums`` (the bandits' statistics, int64 and float64 arrays of shape (n_learners, max(radix))).
     """
     st = _Setup(lineup)
     rng = ReferenceStream(rng_state)
@@ -290,6 +304,7 @@ def reference_session(lineup, rng_state, convergence, max_periods):
     for _lag in range(st.K):
         history.append(tuple(rng.next_below(st.m[i]) for i in range(st.n)))
     Q = {i: st.initial_q(i) for i in range(st.n) if st.learner[i]}
+    arms = {i: ([0] * st.m[i], [0.0] * st.m[i]) for i in range(st.n) if st.bandit[i]}
     z = [int(v) for v in lineup.z0]
     record = {i: {"count": 0, "first": -1, "last": -1, "punishing": 0} for i in st.automata}
     t = 0
@@ -297,9 +312,9 @@ def reference_session(lineup, rng_state, convergence, max_periods):
     status = 1
     while t < max_periods:
         states = {i: tuple(history[: st.k[i]]) for i in Q}
-        profile = _choose(st, Q, history, z, t, rng)
+        profile = _choose(st, Q, history, z, t, rng, arms)
         history = [profile, *history[: st.K - 1]]
-        changed = _update(st, Q, states, history, profile, rng)
+        changed = _update(st, Q, states, history, profile, rng, arms)
         # automata move after the learners' updates, seats in order
         before, z = z, st.move_automata(z, profile, rng)
         _record_triggers(st, record, before, z, t)
@@ -309,9 +324,12 @@ def reference_session(lineup, rng_state, convergence, max_periods):
             status = 0
             break
     q_arr, greedy = _kernel_layout(st, lineup, Q)
+    counts, sums = np.zeros(q_arr.shape[::2], dtype=np.int64), np.zeros(q_arr.shape[::2])
+    for i, (n_a, s_a) in arms.items():
+        counts[int(lineup.seats.lidx[i]), : st.m[i]], sums[int(lineup.seats.lidx[i]), : st.m[i]] = n_a, s_a
     return {"status": status, "periods": t, "history": tuple(history), "state": st.state_index(history, st.K),
             "z": tuple(z), "Q": q_arr, "greedy": greedy, "rng": np.array(rng.s, dtype=np.uint64),
-            "triggers": _trigger_array(st, record)}
+            "triggers": _trigger_array(st, record), "counts": counts, "sums": sums}
 
 
 def _record_triggers(st, record, before, after, t):

@@ -54,7 +54,7 @@ BAD = [
     (["--continue-from", "half.npz", "--cost", "1.1"], "--continue-from", "another market (market.cost"),
     (["--continue-from", "half.npz", "--m", "6"], "--continue-from", "grid differs"),
     (["--continue-from", "half.npz", "--sessions", "2"], "--continue-from", "3 saved sessions"),
-    (["--continue-from", "version.npz"], "--continue-from", "format version 2"),
+    (["--continue-from", "version.npz"], "--continue-from", "format version 3"),
     (["--continue-from", "damaged.npz"], "--continue-from", "do not match the SHA-256"),
     (["--continue-from", "cut.npz"], "--continue-from", "cannot be read"),
     (["--continue-from", "missing.npz"], "--continue-from", "no such file"),
@@ -69,7 +69,7 @@ BAD = [
 @pytest.mark.parametrize(("extra", "key", "text"), BAD, ids=[" ".join(b[0]) for b in BAD])
 def test_bad_saved_learners_and_update_rules_give_one_line_and_status_2(small, capsys, extra, key, text):
     assert _run(capsys, str(small), "--max-periods", "3000", "--save-to", "half.npz")[0] == 0
-    _rewrite("half.npz", "version.npz", {"version": 2})
+    _rewrite("half.npz", "version.npz", {"version": 3})  # a version this program does not read
     _rewrite("half.npz", "damaged.npz", flip_q=True)
     (small.parent / "cut.npz").write_bytes((small.parent / "half.npz").read_bytes()[:200])
     status, cap = _run(capsys, str(small), *extra)

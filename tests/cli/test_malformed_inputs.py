@@ -249,6 +249,14 @@ CASES = [
     ("report of a file", "report", None, None, ["{tmp}/input.toml"], "RUN_DIR"),
     ("a file that does not exist", "check", None, None, ["{tmp}/missing.toml"], "missing.toml: no such file"),
     ("TOML syntax error", "check", "thresholds", ("slope = 1.0", "slope = = 1.0"), [], "input.toml: TOML syntax error"),
+    # the bandit learner families
+    ("unknown learner family", "learn", "learn", ("k = 1\n", 'k = 1\nfamily = "genetic"\n'), [], "learning.family"),
+    ("zero exploration constant", "learn", "learn", ("k = 1\n", 'k = 1\nfamily = "ucb"\nexploration = 0.0\n'), [],
+     "learning.exploration"),
+    ("negative exploration flag", "learn", "learn", None, ["--family", "thompson", "--exploration", "-1"],
+     "--exploration"),
+    ("exploration for a Q-learner", "learn", "learn", ("k = 1\n", "k = 1\nexploration = 2.0\n"), [],
+     "learning.exploration"),
 ]
 
 _OPTIONAL = ("{tmp}/input.toml",)
@@ -292,6 +300,26 @@ def test_malformed_input_is_refused_in_one_line(case, tmp_path, capsys, monkeypa
 def test_there_are_at_least_sixty_cases_across_every_kind():
     assert len(CASES) >= 60
     assert {c[2] for c in CASES} >= set(KINDS)
+
+
+def test_a_saved_learner_continued_in_another_family_is_refused_in_one_line(tmp_path, capsys, monkeypatch):
+    """Q-learners saved by one run cannot be continued as UCB bandits (a Q-matrix is not a bandit's statistics)."""
+    from sim.cli import main
+
+    monkeypatch.chdir(tmp_path)
+    first = _sub(textwrap.dedent(LEARN), "k = 1\n", 'k = 1\nsave_to = "agents.zip"\n')
+    (tmp_path / "first.toml").write_text(first)
+    assert main(["learn", str(tmp_path / "first.toml")]) == 0
+    capsys.readouterr()
+    second = _sub(textwrap.dedent(LEARN), "k = 1\n", 'k = 1\nfamily = "ucb"\ncontinue_from = "agents.zip"\n')
+    (tmp_path / "input.toml").write_text(second)
+    before = sorted(p.name for p in tmp_path.iterdir())
+    code = main(["learn", str(tmp_path / "input.toml")])
+    err = capsys.readouterr().err.strip()
+    assert code == 2 and "\n" not in err and "Traceback" not in err, err
+    assert err.startswith("supergame learn: error: learning.continue_from: "), err
+    assert "family 'q'" in err and "'ucb'" in err, err
+    assert sorted(p.name for p in tmp_path.iterdir()) == before
 
 
 if __name__ == "__main__":  # pragma: no cover - prints the table of the cases and their messages
