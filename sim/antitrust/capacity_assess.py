@@ -19,6 +19,7 @@ from dataclasses import dataclass
 from sim.antitrust.capacity_merger import CapacityMerger, capacity_merger
 from sim.antitrust.capacity_plan import CapacityMergerPlan, merger_plan_from_dict
 from sim.antitrust.capacity_sensitivity import sensitivity_settings
+from sim.antitrust.screens import Maverick, PairTable, maverick, pair_thresholds
 from sim.core.errors import InputError
 from sim.core.params import Integer
 from sim.core.records import Record
@@ -53,6 +54,8 @@ class PreparedCapacity:
     delta : float or None
     max_cartel_size : int or None
     sensitivity : dict or None
+    pair_mergers : bool
+        Whether to compute the threshold after every two-firm merger and the maverick (``assess.pair_mergers``).
     """
 
     market: CapacityPricing
@@ -61,6 +64,7 @@ class PreparedCapacity:
     delta: float | None
     max_cartel_size: int | None
     sensitivity: dict | None
+    pair_mergers: bool = False
 
 
 def prepare_capacity(doc: dict) -> PreparedCapacity:
@@ -90,8 +94,18 @@ def prepare_capacity(doc: dict) -> PreparedCapacity:
     if agreement["price"] is not None:
         market.agreement(agreement["rule"], agreement["shares"], agreement["price"])
     plan = merger_plan_from_dict(doc["merger"], market) if "merger" in doc else None
-    opts = refuse_unknown(doc.get("assess", {}), "assess", ("delta", "max_cartel_size", "global_sensitivity"))
-    if opts and plan is None:
+    opts = refuse_unknown(doc.get("assess", {}), "assess",
+                          ("delta", "max_cartel_size", "global_sensitivity", "pair_mergers"))
+    pairs = opts.get("pair_mergers", False)
+    if not isinstance(pairs, bool):
+        raise InputError("assess.pair_mergers", f"must be true or false, got {pairs!r}")
+    if pairs and market.spec().n_firms < 3:
+        raise InputError("assess.pair_mergers", f"a two-firm merger leaves a monopoly in a market of "
+                                                f"{market.spec().n_firms} firms; the pair table needs three or more")
+    if pairs and agreement["shares"] is not None:
+        raise InputError("assess.pair_mergers", "needs an agreement rule for the shares (collusion.agreement), not "
+                                                "given shares, which do not carry over to a merged firm")
+    if any(k != "pair_mergers" for k in opts) and plan is None:
         raise InputError("assess", "the [assess] settings need a [merger] table")
     delta = opts.get("delta")
     if delta is not None and (isinstance(delta, bool) or not isinstance(delta, int | float) or not 0 < delta < 1):
@@ -102,7 +116,7 @@ def prepare_capacity(doc: dict) -> PreparedCapacity:
     sens = None
     if "global_sensitivity" in opts:
         sens = sensitivity_settings(opts["global_sensitivity"], market, plan)
-    return PreparedCapacity(market, agreement, plan, None if delta is None else float(delta), size, sens)
+    return PreparedCapacity(market, agreement, plan, None if delta is None else float(delta), size, sens, pairs)
 
 
 @dataclass(frozen=True)
@@ -116,11 +130,19 @@ class CapacityResult(Record):
     merger : CapacityMerger or None
         The comparison with the market after the merger (None without a ``[merger]``).
     caution : str
+    pairs : PairTable or None
+        The Nash-reversion threshold after every two-firm merger of the market of the file
+        (``assess.pair_mergers``; :func:`sim.antitrust.screens.pair_thresholds`).
+    maverick : Maverick or None
+        The firm whose presence raises that threshold the most, with the reason
+        (:func:`sim.antitrust.screens.maverick`).
     """
 
     thresholds: CapacityThresholds
     merger: CapacityMerger | None = None
     caution: str = CAUTION
+    pairs: PairTable | None = None
+    maverick: Maverick | None = None
 
     @property
     def n_firms(self) -> int:
@@ -140,10 +162,14 @@ def run_capacity(p: PreparedCapacity) -> CapacityResult:
     CapacityResult
     """
     th = capacity_thresholds(p.market, p.agreement)
+    extra = {}
+    if p.pair_mergers:
+        rule = {"rule": p.agreement["rule"], "price": p.agreement["price"]}
+        extra = {"pairs": pair_thresholds(p.market, agreement=rule), "maverick": maverick(p.market, agreement=rule)}
     if p.plan is None:
-        return CapacityResult(th)
+        return CapacityResult(th, **extra)
     mg = capacity_merger(p.market, p.plan, p.agreement, p.delta, p.max_cartel_size, p.sensitivity, before=th)
-    return CapacityResult(th, mg)
+    return CapacityResult(th, mg, **extra)
 
 
 def finite_or_nan(x) -> float:

@@ -202,11 +202,13 @@ def concentration_screen(shares, merging) -> ConcentrationScreen:
 # --------------------------------------------------------------------------------------------------
 
 
-def _grim(market, agreement: str = "joint") -> tuple[float, int]:
+def _grim(market, agreement: str | dict = "joint") -> tuple[float, int]:
     """Market-level grim-trigger threshold and binding firm (nan when a firm cannot be held)."""
     if hasattr(market, "critical_discount_factors"):
         try:
-            a = market.critical_discount_factors()
+            # a capacity market's agreement is a dict (rule, shares, price); the default rule otherwise
+            a = market.critical_discount_factors(**agreement) if isinstance(agreement, dict) else \
+                market.critical_discount_factors()
         except InputError as exc:
             # capacities that do not exceed demand: every firm sells its capacity, nothing to sustain
             if exc.key == "market.capacity" and "does not exceed" in exc.message:
@@ -306,7 +308,7 @@ def _num(x: float):
     return None if not math.isfinite(x) else float(x)
 
 
-def pair_thresholds(market, names=None, agreement: str = "joint") -> PairTable:
+def pair_thresholds(market, names=None, agreement: str | dict = "joint") -> PairTable:
     """Change in the grim-trigger critical discount factor if each pair of firms merged.
 
     Parameters
@@ -314,10 +316,10 @@ def pair_thresholds(market, names=None, agreement: str = "joint") -> PairTable:
     market : Market or CapacityPricing
         At least three firms (two remain after a merger).
     names : list of str, optional
-    agreement : str
+    agreement : str or dict
         The collusive agreement of a :class:`~sim.market.Market` (see
-        :func:`sim.equilibrium.collusive_outcome`); the capacity model uses shares proportional to
-        capacity.
+        :func:`sim.equilibrium.collusive_outcome`); for the capacity model, the keyword arguments of its
+        ``critical_discount_factors`` (``rule``, ``price``; default: shares proportional to capacity).
 
     Returns
     -------
@@ -448,7 +450,7 @@ class Maverick:
                    arr(d["without"]), arr(d["presence"]), int(d["firm"]), d["reason"], tuple(d["notes"]))
 
 
-def maverick(market, names=None, agreement: str = "joint") -> Maverick:
+def maverick(market, names=None, agreement: str | dict = "joint") -> Maverick:
     """Find the maverick and say what differs about it.
 
     A threshold that no discount factor below one reaches counts as 1 in the comparison (the firm's
@@ -459,8 +461,9 @@ def maverick(market, names=None, agreement: str = "joint") -> Maverick:
     market : Market or CapacityPricing
         At least three firms.
     names : list of str, optional
-    agreement : str
-        The collusive agreement of a :class:`~sim.market.Market`.
+    agreement : str or dict
+        The collusive agreement of a :class:`~sim.market.Market`, or for the capacity model the keyword
+        arguments of its ``critical_discount_factors``.
 
     Returns
     -------

@@ -480,6 +480,18 @@ PARAMETERS: dict[str, Entry] = {
                              "Which values a learner updates after a period: asynchronous (the price it played) or "
                              "synchronous (every price, from what it would have earned against the rivals' prices).",
                              "given; the rules of Asker, Fershtman and Pakes (2022, AEA Papers and Proceedings 112)"),
+    "learning.family": Entry("learner family", "",
+                             "How a learner chooses its price: Q-learning, an upper-confidence-bound bandit or a "
+                             "Thompson-sampling bandit over the price grid.",
+                             "given; UCB1 (Auer, Cesa-Bianchi and Fischer, 2002, Machine Learning 47), Thompson "
+                             "sampling with a normal prior (Agrawal and Goyal, 2013)"),
+    "learning.noise": Entry("noise on the observed profit", "currency units per period",
+                            "Standard deviation of the normal error on the profit a bandit observes each period "
+                            "(its demand signal); the lower, the higher the signal-to-noise ratio.",
+                            "given; the setting of Hansen, Misra and Pai (2021, Marketing Science 40(1))"),
+    "learning.exploration": Entry("exploration scale of a bandit", "",
+                                  "UCB's exploration constant c, or the standard deviation of a Thompson-sampling "
+                                  "learner's normal prior.", "given"),
 }
 
 PARAMETERS.update({k: Entry(*v) for k, v in CONDITION_PARAMETERS.items()})

@@ -259,8 +259,19 @@ def number_format(values) -> Callable[[float], str]:
     return lambda x: f"{x:,.{decimals}f}"
 
 
-def _text_color(rgba) -> str:
-    # relative luminance (WCAG 2.1): dark text on light cells, white on dark ones
+def text_color(rgba) -> str:
+    """The colour of text that reads best on a cell of colour ``rgba``: black on light cells, white on dark ones
+    (relative luminance and its contrast threshold, W3C, 2018, "Web Content Accessibility Guidelines 2.1").
+
+    Parameters
+    ----------
+    rgba : sequence of float
+        The cell's colour, components in [0, 1].
+
+    Returns
+    -------
+    str
+    """
     r, g, b = (c / 12.92 if c <= 0.03928 else ((c + 0.055) / 1.055) ** 2.4 for c in rgba[:3])
     return "black" if 0.2126 * r + 0.7152 * g + 0.0722 * b > 0.179 else "white"
 
@@ -410,7 +421,7 @@ def _cell_numbers(ax, Z, xp, yp, xe, ye, cmap, norm, lo, hi, fmt) -> list:
                 # a backing in the cell's own colour: a threshold or boundary line passes behind the
                 # number instead of through it (a minus sign struck through reads as no sign)
                 t = ax.text(xp[a], yp[b], fmt(Z[b, a]), ha="center", va="center", fontsize=SMALL,
-                            color=_text_color(rgba), zorder=4,
+                            color=text_color(rgba), zorder=4,
                             bbox={"boxstyle": "square,pad=0.1", "fc": rgba, "ec": "none"})
                 out.append((t, ax, (xe[a], ye[b], xe[a + 1], ye[b + 1])))
     return out

@@ -17,6 +17,7 @@ import math
 
 import numpy as np
 
+from sim.evidence.figures import text_color
 from sim.evidence.render import pyplot
 from sim.tournament.analysis import TournamentOutcome
 
@@ -88,13 +89,6 @@ def percent(x) -> str:
     return f"{100 * x:.1f} %"
 
 
-def _text_colour(rgba) -> str:
-    """Black or white, whichever reads better on this colour (relative luminance, WCAG 2.1)."""
-    lin = [c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4 for c in rgba[:3]]
-    lum = 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
-    return "black" if lum > 0.179 else "white"
-
-
 def _annotate(ax, im, V, fmt, mask=None, text=None) -> None:
     """Write each cell's number (``text``, default ``V``) in the colour that reads best on the cell's colour."""
     E = V.shape[0]
@@ -106,7 +100,7 @@ def _annotate(ax, im, V, fmt, mask=None, text=None) -> None:
             if mask is not None and mask[i, j]:
                 continue
             v, t = V[i, j], text[i, j]
-            colour = _text_colour(im.cmap(im.norm(v))) if np.isfinite(v) else "black"
+            colour = text_color(im.cmap(im.norm(v))) if np.isfinite(v) else "black"
             ax.text(j, i, fmt(t) if np.isfinite(t) else "n/a", ha="center", va="center", fontsize=8, color=colour)
 
 

@@ -540,7 +540,8 @@ def market_from_dict(table: dict, prefix: str = "market") -> Market:
     if table.get("model") == "capacity":
         raise InputError(f"{prefix}.model", "price competition with capacity constraints (model = 'capacity') is "
                                             "analysed by the experiment kind 'capacity' ([experiment] kind = "
-                                            "'capacity'; supergame thresholds FILE)")
+                                            "'capacity'; supergame thresholds FILE) and simulated by the kind "
+                                            "'simulate' (supergame simulate FILE)")
     demand_name = table.get("demand", DEFAULT_DEMAND)
     if not isinstance(demand_name, str) or demand_name not in DEMAND_TYPES:
         allowed = ", ".join(map(repr, DEMAND_TYPES))

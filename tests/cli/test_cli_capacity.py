@@ -125,6 +125,59 @@ def test_empty_range_names_low_and_high(tmp_path, capsys):
 
 
 def test_a_capacity_market_in_another_kind_names_the_kind_to_use(tmp_path, capsys):
-    text = DUOPOLY.replace('kind = "capacity"', 'kind = "simulate"')
+    # the simulate kind plays capacity markets; learning (a Q-learner's price grid) does not
+    text = DUOPOLY.replace('kind = "capacity"', 'kind = "learn"')
     assert main(["check", str(write(tmp_path, text))]) == 2
     assert "market.model:" in capsys.readouterr().err
+
+
+# Compte, Jenny and Rey (2002), as worked in tests/antitrust/test_capacity_screens.py: capacities (50, 20, 15, 15),
+# M = 80, v = 10; the Nash-reversion threshold with shares proportional to capacity is k_1 / K = 0.5 before, 0.7
+# after Firm 1 and Firm 2 merge, unchanged after Firm 3 and Firm 4 merge; Firm 1 is the maverick.
+PAIRS = """
+[experiment]
+name = "four-kilns"
+kind = "capacity"
+
+[market]
+model = "capacity"
+names = ["Firm 1", "Firm 2", "Firm 3", "Firm 4"]
+capacity = [50.0, 20.0, 15.0, 15.0]
+reservation_price = 10.0
+market_size = 80.0
+cost = 0.0
+
+[assess]
+pair_mergers = true
+"""
+
+
+def test_the_pair_merger_table_and_the_maverick_in_the_report(tmp_path, capsys):
+    """``assess.pair_mergers`` adds the threshold after every two-firm merger and the maverick to the capacity
+    report (terminal, JSON, bundle figure); tolerance 5e-3: mixed equilibria of unequal firms on a price grid."""
+    f = write(tmp_path, PAIRS)
+    assert main(["run", str(f), "--out", str(tmp_path / "run"), "--report", "--quiet"]) == 0
+    with open_run(tmp_path / "run") as rf:
+        res = rf.result(0)
+    d = RENDERER.as_json(res)
+    pairs = d["pairs"]
+    assert pairs["before"] == pytest.approx(0.5, abs=5e-3)
+    assert pairs["change"][0][1] == pytest.approx(0.2, abs=5e-3)
+    assert pairs["change"][2][3] == pytest.approx(0.0, abs=5e-3)
+    assert d["maverick"]["names"][d["maverick"]["firm"]] == "Firm 1" and "capacity" in d["maverick"]["reason"]
+    text = RENDERER.console(res)
+    assert "Every two-firm merger and the maverick" in text and "Firm 1 + Firm 2" in text
+    assert "Maverick: Firm 1's presence raises the threshold the most" in text
+    assert (tmp_path / "run" / "report" / "figures" / "capacity-pair-mergers.png").is_file()
+
+
+@pytest.mark.parametrize(("text", "message"), [
+    (PAIRS.replace("pair_mergers = true", 'pair_mergers = "yes"'), "must be true or false"),
+    (PAIRS.replace('names = ["Firm 1", "Firm 2", "Firm 3", "Firm 4"]\n', "")
+          .replace("[50.0, 20.0, 15.0, 15.0]", "[50.0, 40.0]"), "needs three or more"),
+])
+def test_bad_pair_merger_settings_are_refused_in_one_line(tmp_path, capsys, text, message):
+    out = tmp_path / "run"
+    assert main(["run", str(write(tmp_path, text)), "--out", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "assess.pair_mergers" in err and message in err and not out.exists()
