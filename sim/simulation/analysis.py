@@ -18,6 +18,7 @@ from dataclasses import dataclass
 
 from sim.core.records import Record
 from sim.core.stats import Estimate
+from sim.simulation.enforced import EnforcedSimulation, apply_enforcement, keep_paths
 from sim.simulation.engine import run_game
 from sim.simulation.results import SimulationResult, mean_estimate, summarize
 
@@ -70,11 +71,15 @@ class SimulateResult(Record):
         The market's table (:meth:`sim.models.market.Market.to_dict`).
     deviation : DeviationCheck or None
         The deviation check when the experiment asks for one.
+    enforcement : EnforcedSimulation or None
+        The same paths with an authority that detects and fines the cartel, when the experiment has an
+        ``[enforcement]`` table (:mod:`sim.simulation.enforced`); ``simulation`` stays the play without it.
     """
 
     simulation: SimulationResult
     market: dict
     deviation: DeviationCheck | None = None
+    enforcement: EnforcedSimulation | None = None
 
 
 def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = False,
@@ -85,7 +90,8 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
     ----------
     cfg : dict
         What the ``simulate`` kind's ``prepare`` made of a cell: ``game``, ``run`` (validated), ``market``,
-        ``confidence`` and ``deviation`` (None, or ``seat``, ``game`` and ``custom``).
+        ``confidence`` and ``deviation`` (None, or ``seat``, ``game`` and ``custom``); optionally ``enforcement``
+        (an :class:`~sim.theory.enforcement.Enforcement`, with ``stage_profits``).
     key : tuple of int
         The cell's stream key.
     threads : int
@@ -108,7 +114,14 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
         return run_game(g, run["periods"], run["replications"], run["delta"], run["seed"], key, run["horizon"],
                         run["continuation"], paths, threads, progress)
 
-    raw = play(game, int(run["paths"]))
+    enf = cfg.get("enforcement")
+    # enforcement cuts every replication's path at its conviction, so it needs them all; the kernel draws the
+    # same numbers however many paths it records
+    raw = play(game, int(run["replications"]) if enf is not None else int(run["paths"]))
+    enforced = None
+    if enf is not None:
+        enforced = apply_enforcement(raw, cfg["stage_profits"], enf, run["delta"], run["seed"], key, cfg["confidence"])
+        raw = keep_paths(raw, int(run["paths"]))
     full = summarize(raw, game, run, confidence=cfg["confidence"], baseline=True)
     # the result as its document holds it: what a run folder gives back is what the command drew
     sim = SimulationResult.from_dict(full.to_dict())
@@ -122,4 +135,4 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
                                float(raw_d.disc[:, k].mean()),
                                float(analytic_gain(k)) if analytic_gain is not None else math.nan,
                                bool(dev["custom"]))
-    return SimulateResult(sim, cfg["market"].to_dict(), check), full
+    return SimulateResult(sim, cfg["market"].to_dict(), check, enforced), full

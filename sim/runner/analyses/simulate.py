@@ -40,8 +40,11 @@ from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
 from sim.simulation.analysis import SimulateResult, simulate_analysis
 from sim.simulation.baseline import scheme_of
+from sim.simulation.enforced import enforcement_limits
 from sim.simulation.engine import RUN_DEFAULTS, check_run, compile_game, simulation_from_dict
 from sim.theory.capacity_analysis import is_capacity_market
+from sim.theory.enforcement import Enforcement
+from sim.theory.stage_profits import StageProfits
 from sim.theory.thresholds import grim_threshold
 from sim.theory.trigger_price import trigger_price_equilibrium
 from strategies import TableAutomaton, strategy_from_dict
@@ -104,7 +107,7 @@ def one_shot_deviator(strategy, levels, seat: int, prefix: str = "deviation"):
 
 def _prepare_simulate(doc: dict) -> dict:
 
-    sub = {k: v for k, v in doc.items() if k != "deviation"}
+    sub = {k: v for k, v in doc.items() if k not in ("deviation", "enforcement")}
     confidence = 0.95
     if isinstance(doc.get("run"), dict):
         # the level of the intervals is the kind's own key of [run] (the engine's run settings do not use it)
@@ -142,6 +145,11 @@ def _prepare_simulate(doc: dict) -> dict:
         dev_lineup[seat] = deviator
         dev_game = compile_game(stage, levels, dev_lineup, out["monitoring"], strict=False)
         out["deviation"] = {"seat": seat, "game": dev_game, "custom": "strategy" in dt}
+    if "enforcement" in doc:
+        enf = Enforcement.from_dict(doc["enforcement"])
+        enforcement_limits(enf, float(out["monitoring"].sigma), is_capacity_market(doc.get("market")))
+        out["enforcement"] = enf
+        out["stage_profits"] = StageProfits.from_stage(stage)
     return out
 
 
@@ -215,6 +223,10 @@ def _simulate_names(cfg: dict) -> list[str]:
     if cfg["deviation"] is not None:
         out += ["deviation.firm", "deviation.gain", "deviation.gain.se", "deviation.gain.low", "deviation.gain.high",
                 "deviation.pays", "deviation.conform_value", "deviation.deviate_value", "analytic.deviation.gain"]
+    if cfg.get("enforcement") is not None:
+        out += ENFORCED_METRICS
+        for m in ENFORCED_FIRM_METRICS:
+            out += [f"{m}.firm{i + 1}{s}" for i in range(n) for s in ("", ".low", ".high")]
     return out
 
 
@@ -333,6 +345,8 @@ def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
         m["deviation.conform_value"] = dev.conform_value
         m["deviation.deviate_value"] = dev.deviate_value
         m["analytic.deviation.gain"] = dev.analytic_gain
+    if result.enforcement is not None:
+        put_enforced(m, result.enforcement)
     return CellResult(m, arrays, result)
 
 
@@ -362,6 +376,9 @@ def simulate_cost(cfg: dict) -> Cost:
     per_rep = 8 * (2 * n + K.N_RINT + K.N_RFLT + 4)
     per_period = 8 * (chunks * (K.N_HIST + 1) + K.N_HIST + 20)
     memory = reps * per_rep + periods * per_period + 8 * paths * periods * (2 * n_products + 3 * n + 4)
+    if cfg.get("enforcement") is not None:
+        # enforcement records every replication's path (see sim.simulation.enforced)
+        memory += 8 * (reps - paths) * periods * (2 * n_products + 3 * n + 4)
     work = (2 if cfg["deviation"] is not None else 1) * float(periods) * reps * n
     key = "run.periods" if periods * per_period >= reps * per_rep else "run.replications"
     return Cost(memory, work, "firm-periods", work / THROUGHPUT, key)
@@ -388,12 +405,45 @@ def _describe_simulate(doc: dict) -> list[str]:
         who = "the firm that binds under grim trigger" if who == "binding" else f"firm {who}"
         lines.append(f"Deviation check: {who} deviates once in the first period"
                      + (f" ({value_label(d['strategy'])})" if "strategy" in d else ", then follows its strategy"))
+    if "enforcement" in doc:
+        e = doc["enforcement"]
+        lines.append(f"Enforcement: detection rate {value_label(e.get('detection', 0.0))} per colluding period, fine "
+                     f"{e.get('fine', 0.0)} ({e.get('fine_basis', 'fixed')}); static Nash forever after a conviction")
     return lines
+
+
+#: the cell's enforcement metrics (:class:`sim.simulation.enforced.EnforcedSimulation`), estimates with their
+#: interval, then the rates
+ENFORCED_METRICS = ("enforced.detections", "enforced.detections.low", "enforced.detections.high",
+                    "enforced.detected_share", "enforced.detected_share.low", "enforced.detected_share.high",
+                    "enforced.collusive_share", "enforced.collusive_share.low", "enforced.collusive_share.high",
+                    "enforced.convictions_per_collusive_period", "enforcement.conviction_rate")
+ENFORCED_FIRM_METRICS = ("enforced.fines", "enforced.discounted_fines", "enforced.net_profit",
+                         "enforced.net_discounted_profit")
+
+
+def put_enforced(m: dict, e) -> None:
+    """Write an :class:`~sim.simulation.enforced.EnforcedSimulation` into the cell's metrics.
+
+    Parameters
+    ----------
+    m : dict
+        The metrics (added to).
+    e : EnforcedSimulation
+    """
+    for k in ("detections", "detected_share", "collusive_share"):
+        est = getattr(e, k)
+        m[f"enforced.{k}"], m[f"enforced.{k}.low"], m[f"enforced.{k}.high"] = est.value, est.low, est.high
+    m["enforced.convictions_per_collusive_period"] = e.convictions_per_collusive_period.value
+    m["enforcement.conviction_rate"] = e.conviction_rate
+    for k in ENFORCED_FIRM_METRICS:
+        for i, est in enumerate(getattr(e, k.split(".")[1])):
+            m[f"{k}.firm{i + 1}"], m[f"{k}.firm{i + 1}.low"], m[f"{k}.firm{i + 1}.high"] = est.value, est.low, est.high
 
 
 KIND = Kind(
     name="simulate",
-    tables=("market", "collusion", "monitoring", "strategies", "run", "deviation"),
+    tables=("market", "collusion", "monitoring", "strategies", "run", "deviation", "enforcement"),
     prepare=_prepare_simulate,
     run=_run_simulate,
     metric_names=_simulate_names,
