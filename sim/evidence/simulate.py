@@ -15,7 +15,7 @@ import numpy as np
 from sim.core.text import CAUTION, fmt_num, table
 from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.render import Drawn, Renderer, pyplot
-from sim.evidence.simulate_enforced import enforced_json, enforced_text
+from sim.evidence.simulate_enforced import enforced_figure, enforced_json, enforced_text
 from sim.evidence.thresholds import AGREEMENT_NAMES, describe_market
 from sim.simulation.analysis import SimulateResult
 
@@ -299,6 +299,8 @@ def figures(result: SimulateResult) -> list:
         out.append(_price_path(res))
     out.append(_collusion_over_time(res))
     out.append(_spell_survival(res))
+    if result.enforcement is not None:
+        out.append(enforced_figure(result.enforcement, res.collusive_by_period))
     return out
 
 

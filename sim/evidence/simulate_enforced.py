@@ -5,11 +5,15 @@ units come from the catalogue (:mod:`sim.evidence.catalogue_enforced`).
 
 from __future__ import annotations
 
+import numpy as np
+
 from sim.core.text import fmt_num, table
 from sim.evidence.catalogue import describe
+from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
+from sim.evidence.render import Drawn, pyplot
 from sim.simulation.enforced import EnforcedSimulation
 
-__all__ = ["enforced_json", "enforced_text"]
+__all__ = ["enforced_figure", "enforced_json", "enforced_text"]
 
 
 def _ci(e) -> str:
@@ -75,3 +79,38 @@ def enforced_json(e: EnforcedSimulation) -> dict:
     dict
     """
     return e.to_dict()
+
+
+def enforced_figure(e: EnforcedSimulation, plain_share) -> Drawn:
+    """Collusion over time with and without the authority.
+
+    Parameters
+    ----------
+    e : EnforcedSimulation
+    plain_share : ndarray of shape (n_periods,)
+        Share of replications colluding in each period without enforcement (nan where not stored).
+
+    Returns
+    -------
+    Drawn
+    """
+    plt = pyplot()
+    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 2.8), layout="constrained")
+    plain = np.asarray(plain_share, dtype=float)
+    t = np.arange(1, plain.shape[0] + 1)
+    ok = np.isfinite(plain)
+    ax.plot(t[ok], plain[ok], lw=0.9, color=color(0), label="without the authority (simulated)")
+    ax.plot(e.period, e.collusive_by_period, lw=1.2, color=color(2), label="with the authority (simulated)")
+    if e.plain_collusive_share == 1.0:
+        # a line-up that colludes in every period survives t - 1 exposed periods with probability (1 - q)^(t-1)
+        ax.plot(e.period, (1.0 - e.conviction_rate) ** (e.period - 1), lw=1.0, color=color(1), ls="--",
+                label="(1 - q)^(t - 1), q the conviction probability")
+    ax.set_ylim(-0.02, 1.02)
+    ax.set_xlabel("period", fontsize=FONT)
+    ax.set_ylabel("share of replications\ncolluding [0 to 1]", fontsize=FONT)
+    ax.tick_params(labelsize=SMALL)
+    fig.legend(loc="outside lower center", ncol=2, fontsize=SMALL, frameon=False)
+    fig.suptitle("Collusion over time with an authority that convicts and fines", fontsize=FONT + 1)
+    return Drawn("collusion-under-enforcement", fig,
+                 "The share of replications in which every firm colludes, period by period, without and with the "
+                 "authority (after a conviction the firms play static Nash; Motta and Polo, 2003).")

@@ -35,7 +35,7 @@ from sim.simulation.driver import RawRun
 from sim.simulation.events import simulate_detections_many
 from sim.theory.enforcement import Enforcement, enforcement_terms
 
-__all__ = ["EnforcedSimulation", "apply_enforcement", "enforcement_limits", "keep_paths"]
+__all__ = ["PERIOD_POINTS", "EnforcedSimulation", "apply_enforcement", "enforcement_limits", "keep_paths"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -71,6 +71,11 @@ class EnforcedSimulation(Record):
         Per firm: total profit per replication net of fines.
     net_discounted_profit : list of Estimate
         Per firm: discounted profit per replication net of fines.
+    period : ndarray of shape (n_points,)
+        Periods (from 1) of the curve below: every period, or at most ``PERIOD_POINTS`` evenly spread ones (the
+        last always among them).
+    collusive_by_period : ndarray of shape (n_points,)
+        Share of the replications still running in which every firm colludes, with enforcement.
     """
 
     enforcement: dict
@@ -86,6 +91,21 @@ class EnforcedSimulation(Record):
     discounted_fines: list[Estimate]
     net_profit: list[Estimate]
     net_discounted_profit: list[Estimate]
+    period: np.ndarray
+    collusive_by_period: np.ndarray
+
+
+#: largest number of periods of the stored curve
+PERIOD_POINTS = 1000
+
+
+def _curve(colluding: np.ndarray, running: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Share colluding among the running replications per period, at most PERIOD_POINTS periods."""
+    n = colluding.shape[0]
+    keep = np.unique(np.r_[np.linspace(0, n - 1, min(n, PERIOD_POINTS)).round().astype(int), n - 1])
+    with np.errstate(invalid="ignore", divide="ignore"):
+        share = np.where(running[keep] > 0, colluding[keep] / np.maximum(running[keep], 1), np.nan)
+    return (keep + 1).astype(float), share
 
 
 def enforcement_limits(enforcement: Enforcement, sigma: float, capacity: bool) -> None:
@@ -189,6 +209,8 @@ def apply_enforcement(raw: RawRun, profits, enforcement: Enforcement, delta: flo
                         raw.disc - np.einsum("rtf,t->rf", path_profit, w) + w_after[:, None] * nash[None, :],
                         raw.disc) - disc_fines
     coll = np.where(detected, nth, plain_coll)
+    running = raw.path_collude >= 0
+    period, curve = _curve((collude & ~after & running).sum(axis=0).astype(float), running.sum(axis=0).astype(float))
     firms = range(nash.size)
     return EnforcedSimulation(
         enforcement.to_dict(), float(terms.detection_rate), q, fine, mean_estimate(hits, confidence),
@@ -197,7 +219,7 @@ def apply_enforcement(raw: RawRun, profits, enforcement: Enforcement, delta: flo
         [mean_estimate(fines[:, i], confidence) for i in firms],
         [mean_estimate(disc_fines[:, i], confidence) for i in firms],
         [mean_estimate(net[:, i], confidence) for i in firms],
-        [mean_estimate(net_disc[:, i], confidence) for i in firms])
+        [mean_estimate(net_disc[:, i], confidence) for i in firms], period, curve)
 
 
 def keep_paths(raw: RawRun, n_paths: int) -> RawRun:

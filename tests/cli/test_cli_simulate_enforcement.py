@@ -43,7 +43,7 @@ fine = 200.0
 def test_the_command_prints_what_the_run_stores(tmp_path, capsys):
     f = tmp_path / "enforced.toml"
     f.write_text(TEXT)
-    assert main(["simulate", str(f)]) == 0
+    assert main(["simulate", str(f), "--plot", str(tmp_path / "plots")]) == 0
     printed = capsys.readouterr().out
     assert "Enforcement (simulated)" in printed and "convictions per replication [count]" in printed
     assert main(["run", str(f), "--out", str(tmp_path / "run"), "--report", "--quiet"]) == 0
@@ -59,6 +59,8 @@ def test_the_command_prints_what_the_run_stores(tmp_path, capsys):
         p.read_text() for p in (tmp_path / "run" / "report").rglob("*.md"))
     assert "share of replications with a conviction" in text
     assert "Enforcement: detection rate 0.05" in text
+    name = "collusion-under-enforcement.png"
+    assert (tmp_path / "plots" / name).read_bytes() == (tmp_path / "run" / "report" / "figures" / name).read_bytes()
 
 
 def test_json_has_the_enforcement_part(tmp_path, capsys):
