@@ -15,8 +15,9 @@ _MEAN = "normal approximation across independent replications (mean +- z s / sqr
 _SHARE = ("ratio of totals across replications; interval: Wilson score interval with the design-effect sample size "
           "(Korn and Graubard, 1998, Survey Methodology 24(2)), which stays in [0, 1]")
 _CUT = ("the simulated path of each replication cut at its conviction: later periods earn the static Nash profits "
-        "(convention of Motta and Polo, 2003, IJIO 21(3)); one seeded uniform per collusive period, convicted below "
-        "the conviction probability")
+        "(convention of Motta and Polo, 2003, IJIO 21(3)), or, with a competition length T, T periods of static Nash "
+        "and then the strategies afresh; one seeded uniform per collusive period, convicted below the conviction "
+        "probability")
 
 ENFORCED_ENTRIES = {
     "enforced.detections": ("convictions per replication", "count",

@@ -46,7 +46,9 @@ def enforced_text(e: EnforcedSimulation, currency: str | None = None, period: st
     lines = ["", f"Enforcement (simulated): conviction probability {fmt_num(e.conviction_rate)} per collusive period "
                  f"(detection {fmt_num(e.detection_rate)}), fine per firm and conviction "
                  + ", ".join(fmt_num(x) for x in e.fine_per_conviction)
-                 + f" ({t['fine_basis']}); static Nash in every period after a conviction",
+                 + f" ({t['fine_basis']}); static Nash "
+                 + ("in every period after a conviction" if t["after_detection"] is None else
+                    f"for {t['after_detection']} periods after a conviction, then the strategies start afresh"),
              "  the line-up's own play is the simulation above; here each replication's path is cut at its "
              "conviction (Motta and Polo, 2003)"]
     rows = [_row("enforced.detections", e.detections, currency, period),
@@ -101,7 +103,7 @@ def enforced_figure(e: EnforcedSimulation, plain_share) -> Drawn:
     ok = np.isfinite(plain)
     ax.plot(t[ok], plain[ok], lw=0.9, color=color(0), label="without the authority (simulated)")
     ax.plot(e.period, e.collusive_by_period, lw=1.2, color=color(2), label="with the authority (simulated)")
-    if e.plain_collusive_share == 1.0:
+    if e.plain_collusive_share == 1.0 and e.enforcement["after_detection"] is None:
         # a line-up that colludes in every period survives t - 1 exposed periods with probability (1 - q)^(t-1)
         ax.plot(e.period, (1.0 - e.conviction_rate) ** (e.period - 1), lw=1.0, color=color(1), ls="--",
                 label="(1 - q)^(t - 1), q the conviction probability")

@@ -115,9 +115,12 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
                         run["continuation"], paths, threads, progress)
 
     enf = cfg.get("enforcement")
-    # enforcement cuts every replication's path at its conviction, so it needs them all; the kernel draws the
-    # same numbers however many paths it records
-    raw = play(game, int(run["replications"]) if enf is not None else int(run["paths"]))
+    # enforcement cuts every replication's path at its conviction, so it needs them all (a deterministic line-up
+    # whose collusion resumes needs one); the kernel draws the same numbers however many paths it records
+    n_paths = int(run["paths"])
+    if enf is not None:
+        n_paths = int(run["replications"]) if enf.after_detection is None else max(n_paths, 1)
+    raw = play(game, n_paths)
     enforced = None
     if enf is not None:
         enforced = apply_enforcement(raw, cfg["stage_profits"], enf, run["delta"], run["seed"], key, cfg["confidence"])

@@ -75,7 +75,8 @@ def test_json_has_the_enforcement_part(tmp_path, capsys):
 @pytest.mark.parametrize("old, new, key", [
     ("detection = 0.05", "detection = 1.5", "enforcement.detection"),
     ("fine = 200.0", "fine = -1.0", "enforcement.fine"),
-    ("fine = 200.0", "fine = 200.0\nafter_detection = 4", "enforcement.after_detection"),
+    ("fine = 200.0", "fine = 200.0\nafter_detection = 4\n[monitoring]\nimplementation_error = 0.01",
+     "enforcement.after_detection"),
 ])
 def test_bad_input_one_line_exit_2(tmp_path, capsys, old, new, key):
     p = tmp_path / "bad.toml"

@@ -24,6 +24,8 @@ from sim.core.stats import mean_estimate
 from sim.runner.single import run_single
 from sim.simulation.analysis import SimulateResult
 from sim.simulation.engine import run_game
+from sim.simulation.events import simulate_detections_many
+from sim.theory.enforcement import Enforcement
 
 BASE = {
     "experiment": {"kind": "simulate", "name": "harrowmere-enforced"},
@@ -101,6 +103,21 @@ def test_fines_paid_are_the_fine_times_the_convictions():
     assert all(d.value < f.value for d, f in zip(e.discounted_fines, e.fines))
 
 
+def test_resumed_collusion_matches_the_compiled_detection_draws():
+    # grim trigger without noise colludes in every period, so competition for T periods after each conviction and
+    # then a fresh start is the world of the compiled detection kernel (sim.simulation.events): the same stream,
+    # one uniform per collusive period; its per-replication counts must come out identical
+    H, T, q = 60, 5, 0.06
+    one = run_single(_doc({"detection": q, "fine": 64.0, "after_detection": T}, periods=H, replications=400))
+    e = one.result.enforcement
+    draws = simulate_detections_many(one.config["stage_profits"], Enforcement(q, 64.0, after_detection=T), H, 400,
+                                     BASE["run"]["seed"], (0,))
+    assert e.detections.value == draws.convictions.mean()
+    assert e.collusive_share.value == pytest.approx(draws.collusion_share, rel=1e-12)
+    assert e.fines[0].value == 64.0 * e.detections.value
+    assert e.detections.value > 1.0  # several convictions per replication: collusion did resume
+
+
 def test_same_numbers_with_one_and_two_threads():
     doc = _doc({"detection": 0.05, "fine": 100.0}, replications=500)
     assert json.dumps(_run(doc, 1).to_dict()) == json.dumps(_run(doc, 2).to_dict())
@@ -115,7 +132,10 @@ def test_result_round_trips_through_json():
 @pytest.mark.parametrize("table, extra, key", [
     ({"detection": 1.5}, {}, "enforcement.detection"),
     ({"detection": 0.1, "fine": -1.0}, {}, "enforcement.fine"),
-    ({"detection": 0.1, "after_detection": 4}, {}, "enforcement.after_detection"),
+    ({"detection": 0.1, "after_detection": 4}, {"monitoring": {"perception_error": 0.01}},
+     "enforcement.after_detection"),
+    ({"detection": 0.1, "after_detection": 4}, {"run": {**BASE["run"], "horizon": "random"}},
+     "enforcement.after_detection"),
     ({"detection": 0.1, "deviator_exposed": True}, {}, "enforcement.deviator_exposed"),
     ({"detection": 0.1}, {"monitoring": {"sigma": 0.1}}, "enforcement"),
     ({"detection": 0.1, "fines": 2.0}, {}, "enforcement.fines"),

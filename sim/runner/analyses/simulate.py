@@ -40,7 +40,7 @@ from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
 from sim.simulation.analysis import SimulateResult, simulate_analysis
 from sim.simulation.baseline import scheme_of
-from sim.simulation.enforced import enforcement_limits
+from sim.simulation.enforced import enforcement_limits, is_deterministic
 from sim.simulation.engine import RUN_DEFAULTS, check_run, compile_game, simulation_from_dict
 from sim.theory.capacity_analysis import is_capacity_market
 from sim.theory.enforcement import Enforcement
@@ -147,7 +147,9 @@ def _prepare_simulate(doc: dict) -> dict:
         out["deviation"] = {"seat": seat, "game": dev_game, "custom": "strategy" in dt}
     if "enforcement" in doc:
         enf = Enforcement.from_dict(doc["enforcement"])
-        enforcement_limits(enf, float(out["monitoring"].sigma), is_capacity_market(doc.get("market")))
+        capacity = is_capacity_market(doc.get("market"))
+        enforcement_limits(enf, float(out["monitoring"].sigma), capacity,
+                           not capacity and is_deterministic(out["game"]), out["run"]["horizon"])
         out["enforcement"] = enf
         out["stage_profits"] = StageProfits.from_stage(stage)
     return out
@@ -376,7 +378,7 @@ def simulate_cost(cfg: dict) -> Cost:
     per_rep = 8 * (2 * n + K.N_RINT + K.N_RFLT + 4)
     per_period = 8 * (chunks * (K.N_HIST + 1) + K.N_HIST + 20)
     memory = reps * per_rep + periods * per_period + 8 * paths * periods * (2 * n_products + 3 * n + 4)
-    if cfg.get("enforcement") is not None:
+    if cfg.get("enforcement") is not None and cfg["enforcement"].after_detection is None:
         # enforcement records every replication's path (see sim.simulation.enforced)
         memory += 8 * (reps - paths) * periods * (2 * n_products + 3 * n + 4)
     work = (2 if cfg["deviation"] is not None else 1) * float(periods) * reps * n
@@ -408,7 +410,9 @@ def _describe_simulate(doc: dict) -> list[str]:
     if "enforcement" in doc:
         e = doc["enforcement"]
         lines.append(f"Enforcement: detection rate {value_label(e.get('detection', 0.0))} per colluding period, fine "
-                     f"{e.get('fine', 0.0)} ({e.get('fine_basis', 'fixed')}); static Nash forever after a conviction")
+                     f"{e.get('fine', 0.0)} ({e.get('fine_basis', 'fixed')}); static Nash "
+                     + ("forever after a conviction" if e.get("after_detection") is None else
+                        f"for {e['after_detection']} periods after a conviction, then the strategies start afresh"))
     return lines
 
 
