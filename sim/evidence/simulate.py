@@ -15,7 +15,7 @@ import numpy as np
 from sim.core.text import CAUTION, fmt_num, table
 from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.render import Drawn, Renderer, pyplot
-from sim.evidence.simulate_enforced import enforced_figure, enforced_json, enforced_text
+from sim.evidence.simulate_enforced import enforced_figure, enforced_json, enforced_text, state_play_text
 from sim.evidence.thresholds import AGREEMENT_NAMES, describe_market
 from sim.simulation.analysis import SimulateResult
 
@@ -188,6 +188,8 @@ def console(result: SimulateResult) -> str:
         lines.extend(_deviation_text(result.deviation))
     if result.enforcement is not None:
         lines.extend(enforced_text(result.enforcement))
+    if result.states is not None:
+        lines.extend(state_play_text(result.states))
     lines.extend(["", CAUTION])
     return "\n".join(lines)
 
@@ -209,6 +211,8 @@ def as_json(result: SimulateResult) -> dict:
         out["deviation"] = result.deviation.to_dict()
     if result.enforcement is not None:
         out["enforcement"] = enforced_json(result.enforcement)
+    if result.states is not None:
+        out["demand_states"] = result.states.to_dict()
     return out
 
 

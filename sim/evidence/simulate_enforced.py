@@ -12,8 +12,9 @@ from sim.evidence.catalogue import describe
 from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.render import Drawn, pyplot
 from sim.simulation.enforced import EnforcedSimulation
+from sim.simulation.states_run import StatePlay
 
-__all__ = ["enforced_figure", "enforced_json", "enforced_text"]
+__all__ = ["enforced_figure", "enforced_json", "enforced_text", "state_play_text"]
 
 
 def _ci(e) -> str:
@@ -116,3 +117,32 @@ def enforced_figure(e: EnforcedSimulation, plain_share) -> Drawn:
     return Drawn("collusion-under-enforcement", fig,
                  "The share of replications in which every firm colludes, period by period, without and with the "
                  "authority (after a conviction the firms play static Nash; Motta and Polo, 2003).")
+
+
+def state_play_text(sp: StatePlay) -> list[str]:
+    """The terminal lines of a simulated line-up with demand states.
+
+    Parameters
+    ----------
+    sp : StatePlay
+
+    Returns
+    -------
+    list of str
+    """
+    kinds = {"iid": "independent states", "markov": "a Markov chain", "cycle": "a deterministic cycle"}
+    lines = ["", f"Demand states (simulated): {kinds.get(sp.kind, sp.kind)}; {sp.parameter} per state "
+                 + ", ".join(fmt_num(v) for v in sp.values)
+                 + (f"; growth {fmt_num(sp.growth)} per period" if sp.growth else "")
+                 + "; the line-up plays the same actions in every state (each state scales every profit by its "
+                   "factor)"]
+    n_firms = sp.profit_by_state.shape[1]
+    rows = [[lab, sp.factors[k], sp.frequencies[k], f"se {fmt_num(sp.frequency_se[k])}", sp.expected[k],
+             *sp.profit_by_state[k]] for k, lab in enumerate(sp.labels)]
+    lines.append(table(["state", "profit factor", "share of periods", "", "long-run share",
+                        *[f"profit/period firm {i + 1}" for i in range(n_firms)]], rows))
+    lines.append("")
+    rows = [[f"firm {i + 1}", sp.profit[i].value, _ci(sp.profit[i]), sp.discounted_profit[i].value,
+             _ci(sp.discounted_profit[i])] for i in range(n_firms)]
+    lines.append(table(["", "profit per replication", "CI", "discounted", "CI"], rows))
+    return lines

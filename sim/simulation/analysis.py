@@ -21,6 +21,7 @@ from sim.core.stats import Estimate
 from sim.simulation.enforced import EnforcedSimulation, apply_enforcement, keep_paths
 from sim.simulation.engine import run_game
 from sim.simulation.results import SimulationResult, mean_estimate, summarize
+from sim.simulation.states_run import StatePlay, apply_states
 
 __all__ = ["DeviationCheck", "SimulateResult", "simulate_analysis"]
 
@@ -74,12 +75,16 @@ class SimulateResult(Record):
     enforcement : EnforcedSimulation or None
         The same paths with an authority that detects and fines the cartel, when the experiment has an
         ``[enforcement]`` table (:mod:`sim.simulation.enforced`); ``simulation`` stays the play without it.
+    states : StatePlay or None
+        State frequencies and profits by state, when the experiment has a ``[demand_states]`` table
+        (:mod:`sim.simulation.states_run`); ``simulation`` stays the play in the experiment's market.
     """
 
     simulation: SimulationResult
     market: dict
     deviation: DeviationCheck | None = None
     enforcement: EnforcedSimulation | None = None
+    states: StatePlay | None = None
 
 
 def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = False,
@@ -120,7 +125,15 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
     n_paths = int(run["paths"])
     if enf is not None:
         n_paths = int(run["replications"]) if enf.after_detection is None else max(n_paths, 1)
+    st = cfg.get("demand_states")
+    if st is not None:
+        n_paths = int(run["replications"])
     raw = play(game, n_paths)
+    states = None
+    if st is not None:
+        states = apply_states(raw, st["states"], st["factors"], st["parameter"], st["values"], run["delta"],
+                              run["seed"], key, cfg["confidence"])
+        raw = keep_paths(raw, int(run["paths"]))
     enforced = None
     if enf is not None:
         enforced = apply_enforcement(raw, cfg["stage_profits"], enf, run["delta"], run["seed"], key, cfg["confidence"])
@@ -138,4 +151,4 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
                                float(raw_d.disc[:, k].mean()),
                                float(analytic_gain(k)) if analytic_gain is not None else math.nan,
                                bool(dev["custom"]))
-    return SimulateResult(sim, cfg["market"].to_dict(), check, enforced), full
+    return SimulateResult(sim, cfg["market"].to_dict(), check, enforced, states), full

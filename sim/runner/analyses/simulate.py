@@ -42,7 +42,9 @@ from sim.simulation.analysis import SimulateResult, simulate_analysis
 from sim.simulation.baseline import scheme_of
 from sim.simulation.enforced import enforcement_limits, is_deterministic
 from sim.simulation.engine import RUN_DEFAULTS, check_run, compile_game, simulation_from_dict
+from sim.simulation.states_run import state_factors
 from sim.theory.capacity_analysis import is_capacity_market
+from sim.theory.demand_states import DemandStates, markets_by_state
 from sim.theory.enforcement import Enforcement
 from sim.theory.stage_profits import StageProfits
 from sim.theory.thresholds import grim_threshold
@@ -107,7 +109,7 @@ def one_shot_deviator(strategy, levels, seat: int, prefix: str = "deviation"):
 
 def _prepare_simulate(doc: dict) -> dict:
 
-    sub = {k: v for k, v in doc.items() if k not in ("deviation", "enforcement")}
+    sub = {k: v for k, v in doc.items() if k not in ("deviation", "enforcement", "demand_states")}
     confidence = 0.95
     if isinstance(doc.get("run"), dict):
         # the level of the intervals is the kind's own key of [run] (the engine's run settings do not use it)
@@ -152,7 +154,35 @@ def _prepare_simulate(doc: dict) -> dict:
                            not capacity and is_deterministic(out["game"]), out["run"]["horizon"])
         out["enforcement"] = enf
         out["stage_profits"] = StageProfits.from_stage(stage)
+    if "demand_states" in doc:
+        out["demand_states"] = _states_of(doc, out)
     return out
+
+
+def _states_of(doc: dict, out: dict) -> dict:
+    """The ``[demand_states]`` table of a simulation: the states, the parameter, its values and the verified
+    profit factor of each state (:func:`sim.simulation.states_run.state_factors`)."""
+    for other in ("enforcement", "deviation"):
+        if other in doc:
+            raise InputError("demand_states", f"is not simulated together with [{other}]: the line-up's profits move "
+                                              f"with the state, which the [{other}] accounting does not follow")
+    if is_capacity_market(doc.get("market")) or float(out["monitoring"].sigma) > 0:
+        raise InputError("demand_states", "is simulated without a demand shock (monitoring.sigma = 0) and outside "
+                                          "capacity markets, where each state scales the profits by one factor")
+    table = doc["demand_states"]
+    if not isinstance(table, dict):
+        raise InputError("demand_states", f"must be a table, got {table!r}")
+    d = dict(table)
+    parameter, values = d.pop("parameter", None), d.pop("values", None)
+    states = DemandStates.from_dict(d, "demand_states")
+    if not isinstance(parameter, str):
+        raise InputError("demand_states.parameter", f"missing: the market parameter that moves with the state "
+                                                    f"(e.g. 'size'), got {parameter!r}")
+    if not isinstance(values, list) or len(values) != states.n_states:
+        raise InputError("demand_states.values", f"must list one value per state ({states.n_states}), got {values!r}")
+    markets = markets_by_state(out["market"], parameter, values)
+    factors = state_factors(out["game"], markets, out["agreement"], out["actions"])
+    return {"states": states, "parameter": parameter, "values": [float(v) for v in values], "factors": factors}
 
 
 def _prepare_market(doc: dict, sub: dict, confidence: float) -> tuple:
@@ -229,6 +259,8 @@ def _simulate_names(cfg: dict) -> list[str]:
         out += ENFORCED_METRICS
         for m in ENFORCED_FIRM_METRICS:
             out += [f"{m}.firm{i + 1}{s}" for i in range(n) for s in ("", ".low", ".high")]
+    if cfg.get("demand_states") is not None:
+        out += state_play_names(cfg["demand_states"]["states"].n_states, n)
     return out
 
 
@@ -349,6 +381,8 @@ def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
         m["analytic.deviation.gain"] = dev.analytic_gain
     if result.enforcement is not None:
         put_enforced(m, result.enforcement)
+    if result.states is not None:
+        put_state_play(m, result.states)
     return CellResult(m, arrays, result)
 
 
@@ -378,7 +412,8 @@ def simulate_cost(cfg: dict) -> Cost:
     per_rep = 8 * (2 * n + K.N_RINT + K.N_RFLT + 4)
     per_period = 8 * (chunks * (K.N_HIST + 1) + K.N_HIST + 20)
     memory = reps * per_rep + periods * per_period + 8 * paths * periods * (2 * n_products + 3 * n + 4)
-    if cfg.get("enforcement") is not None and cfg["enforcement"].after_detection is None:
+    if cfg.get("demand_states") is not None or (cfg.get("enforcement") is not None
+                                                and cfg["enforcement"].after_detection is None):
         # enforcement records every replication's path (see sim.simulation.enforced)
         memory += 8 * (reps - paths) * periods * (2 * n_products + 3 * n + 4)
     work = (2 if cfg["deviation"] is not None else 1) * float(periods) * reps * n
@@ -445,9 +480,53 @@ def put_enforced(m: dict, e) -> None:
             m[f"{k}.firm{i + 1}"], m[f"{k}.firm{i + 1}.low"], m[f"{k}.firm{i + 1}.high"] = est.value, est.low, est.high
 
 
+def state_play_names(n_states: int, n_firms: int) -> list[str]:
+    """The metric names of a simulation with demand states.
+
+    Parameters
+    ----------
+    n_states : int
+    n_firms : int
+
+    Returns
+    -------
+    list of str
+    """
+    out = []
+    for k in range(1, n_states + 1):
+        out += [f"state_play.frequency[{k}]", f"state_play.frequency[{k}].se", f"state_play.expected[{k}]",
+                f"state_play.factor[{k}]"]
+        out += [f"state_play.profit_by_state[{k}].firm{i + 1}" for i in range(n_firms)]
+    for m in ("state_play.profit", "state_play.discounted_profit"):
+        out += [f"{m}.firm{i + 1}{s}" for i in range(n_firms) for s in ("", ".low", ".high")]
+    return out
+
+
+def put_state_play(m: dict, sp) -> None:
+    """Write a :class:`~sim.simulation.states_run.StatePlay` into the cell's metrics.
+
+    Parameters
+    ----------
+    m : dict
+        The metrics (added to).
+    sp : StatePlay
+    """
+    for k in range(len(sp.labels)):
+        m[f"state_play.frequency[{k + 1}]"] = float(sp.frequencies[k])
+        m[f"state_play.frequency[{k + 1}].se"] = float(sp.frequency_se[k])
+        m[f"state_play.expected[{k + 1}]"] = float(sp.expected[k])
+        m[f"state_play.factor[{k + 1}]"] = float(sp.factors[k])
+        for i in range(sp.profit_by_state.shape[1]):
+            m[f"state_play.profit_by_state[{k + 1}].firm{i + 1}"] = float(sp.profit_by_state[k, i])
+    for name in ("profit", "discounted_profit"):
+        for i, est in enumerate(getattr(sp, name)):
+            key = f"state_play.{name}.firm{i + 1}"
+            m[key], m[f"{key}.low"], m[f"{key}.high"] = est.value, est.low, est.high
+
+
 KIND = Kind(
     name="simulate",
-    tables=("market", "collusion", "monitoring", "strategies", "run", "deviation", "enforcement"),
+    tables=("market", "collusion", "monitoring", "strategies", "run", "deviation", "enforcement", "demand_states"),
     prepare=_prepare_simulate,
     run=_run_simulate,
     metric_names=_simulate_names,
