@@ -86,3 +86,57 @@ def test_bad_input_one_line_exit_2(tmp_path, capsys, old, new, key):
     assert cap.out == ""
     lines = cap.err.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith(f"supergame simulate: error: {key}:"), cap.err
+
+
+STATES = """
+[experiment]
+kind = "simulate"
+name = "brightwater-seasons"
+
+[market]
+model = "bertrand"
+demand = "logit"
+quality = 2.0
+outside = 0.0
+mu = 0.25
+cost = 1.0
+n_firms = 2
+size = 1.0
+
+[[strategies]]
+strategy = "grim_trigger"
+seats = 2
+
+[run]
+periods = 40
+replications = 100
+delta = 0.9
+
+[demand_states]
+kind = "iid"
+probabilities = [0.7, 0.3]
+labels = ["low", "high"]
+parameter = "size"
+values = [1.0, 1.5]
+"""
+
+
+def test_demand_states_in_the_report(tmp_path, capsys):
+    p = tmp_path / "states.toml"
+    p.write_text(STATES)
+    assert main(["simulate", str(p)]) == 0
+    out = capsys.readouterr().out
+    assert "Demand states (simulated)" in out and "long-run share" in out
+
+
+@pytest.mark.parametrize("old, new, key", [
+    ("probabilities = [0.7, 0.3]", "probabilities = [0.7, 0.4]", "demand_states.probabilities"),
+    ('parameter = "size"', 'parameter = "mu"', "demand_states.parameter"),
+])
+def test_bad_demand_states_one_line_exit_2(tmp_path, capsys, old, new, key):
+    p = tmp_path / "bad.toml"
+    p.write_text(STATES.replace(old, new))
+    assert main(["simulate", str(p)]) == 2
+    cap = capsys.readouterr()
+    lines = cap.err.strip().splitlines()
+    assert cap.out == "" and len(lines) == 1 and lines[0].startswith(f"supergame simulate: error: {key}:"), cap.err

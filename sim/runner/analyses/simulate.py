@@ -448,6 +448,10 @@ def _describe_simulate(doc: dict) -> list[str]:
                      f"{e.get('fine', 0.0)} ({e.get('fine_basis', 'fixed')}); static Nash "
                      + ("forever after a conviction" if e.get("after_detection") is None else
                         f"for {e['after_detection']} periods after a conviction, then the strategies start afresh"))
+    if "demand_states" in doc and isinstance(doc["demand_states"], dict):
+        d = doc["demand_states"]
+        lines.append(f"Demand states: {d.get('kind', 'iid')}, {d.get('parameter')} per state {d.get('values')}; the "
+                     f"line-up plays the same actions in every state")
     return lines
 
 
