@@ -50,8 +50,8 @@ def enforced_text(e: EnforcedSimulation, currency: str | None = None, period: st
                  + f" ({t['fine_basis']}); static Nash "
                  + ("in every period after a conviction" if t["after_detection"] is None else
                     f"for {t['after_detection']} periods after a conviction, then the strategies start afresh"),
-             "  the line-up's own play is the simulation above; here each replication's path is cut at its "
-             "conviction (Motta and Polo, 2003)"]
+             "  the line-up's own play is the simulation above; here each replication's path faces the authority "
+             "(Motta and Polo, 2003)"]
     rows = [_row("enforced.detections", e.detections, currency, period),
             _row("enforced.detected_share", e.detected_share, currency, period),
             _row("enforced.collusive_share", e.collusive_share, currency, period),
