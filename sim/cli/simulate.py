@@ -104,7 +104,7 @@ def _document(args) -> tuple[dict, dict]:
     flag gave, the flag's name (for naming it in an error)."""
 
     doc = read_toml(args.file) if args.file else {}
-    for name in ("market", "collusion", "monitoring", "run", "deviation"):
+    for name in ("market", "collusion", "monitoring", "run", "deviation", "enforcement", "demand_states"):
         if name in doc and not isinstance(doc[name], dict):
             raise InputError(name, f"must be a table, got {doc[name]!r}")
     doc = {k: (dict(v) if isinstance(v, dict) else v) for k, v in doc.items()}

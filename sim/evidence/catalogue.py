@@ -20,6 +20,8 @@ from dataclasses import dataclass
 
 from sim.evidence.catalogue_assess import ASSESS_ENTRIES
 from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
+from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
+from sim.evidence.catalogue_state_play import STATE_PLAY_ENTRIES
 
 __all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "money"]
 
@@ -452,6 +454,10 @@ ENTRIES: dict[str, Entry] = {
 ENTRIES.update({k: Entry(*v) for k, v in CONDITION_ENTRIES.items()})
 # the assessment's payoff sets, growth and multimarket-contact rows (sim.evidence.catalogue_assess)
 ENTRIES.update({k: Entry(*v) for k, v in ASSESS_ENTRIES.items()})
+# a simulated cartel facing an authority (sim.evidence.catalogue_enforced)
+ENTRIES.update({k: Entry(*v) for k, v in ENFORCED_ENTRIES.items()})
+# a simulated line-up with moving demand (sim.evidence.catalogue_state_play)
+ENTRIES.update({k: Entry(*v) for k, v in STATE_PLAY_ENTRIES.items()})
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)
 PARAMETERS: dict[str, Entry] = {

@@ -15,6 +15,7 @@ import numpy as np
 from sim.core.text import CAUTION, fmt_num, table
 from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.render import Drawn, Renderer, pyplot
+from sim.evidence.simulate_enforced import enforced_figure, enforced_json, enforced_text, state_play_text
 from sim.evidence.thresholds import AGREEMENT_NAMES, describe_market
 from sim.simulation.analysis import SimulateResult
 
@@ -185,6 +186,10 @@ def console(result: SimulateResult) -> str:
     lines = _simulation_text(result.simulation, result.market)
     if result.deviation is not None:
         lines.extend(_deviation_text(result.deviation))
+    if result.enforcement is not None:
+        lines.extend(enforced_text(result.enforcement))
+    if result.states is not None:
+        lines.extend(state_play_text(result.states))
     lines.extend(["", CAUTION])
     return "\n".join(lines)
 
@@ -204,6 +209,10 @@ def as_json(result: SimulateResult) -> dict:
     out["market"] = result.market
     if result.deviation is not None:
         out["deviation"] = result.deviation.to_dict()
+    if result.enforcement is not None:
+        out["enforcement"] = enforced_json(result.enforcement)
+    if result.states is not None:
+        out["demand_states"] = result.states.to_dict()
     return out
 
 
@@ -294,6 +303,8 @@ def figures(result: SimulateResult) -> list:
         out.append(_price_path(res))
     out.append(_collusion_over_time(res))
     out.append(_spell_survival(res))
+    if result.enforcement is not None:
+        out.append(enforced_figure(result.enforcement, res.collusive_by_period))
     return out
 
 

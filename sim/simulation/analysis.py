@@ -18,8 +18,10 @@ from dataclasses import dataclass
 
 from sim.core.records import Record
 from sim.core.stats import Estimate
+from sim.simulation.enforced import EnforcedSimulation, apply_enforcement, keep_paths
 from sim.simulation.engine import run_game
 from sim.simulation.results import SimulationResult, mean_estimate, summarize
+from sim.simulation.states_run import StatePlay, apply_states
 
 __all__ = ["DeviationCheck", "SimulateResult", "simulate_analysis"]
 
@@ -70,11 +72,19 @@ class SimulateResult(Record):
         The market's table (:meth:`sim.models.market.Market.to_dict`).
     deviation : DeviationCheck or None
         The deviation check when the experiment asks for one.
+    enforcement : EnforcedSimulation or None
+        The same paths with an authority that detects and fines the cartel, when the experiment has an
+        ``[enforcement]`` table (:mod:`sim.simulation.enforced`); ``simulation`` stays the play without it.
+    states : StatePlay or None
+        State frequencies and profits by state, when the experiment has a ``[demand_states]`` table
+        (:mod:`sim.simulation.states_run`); ``simulation`` stays the play in the experiment's market.
     """
 
     simulation: SimulationResult
     market: dict
     deviation: DeviationCheck | None = None
+    enforcement: EnforcedSimulation | None = None
+    states: StatePlay | None = None
 
 
 def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = False,
@@ -85,7 +95,8 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
     ----------
     cfg : dict
         What the ``simulate`` kind's ``prepare`` made of a cell: ``game``, ``run`` (validated), ``market``,
-        ``confidence`` and ``deviation`` (None, or ``seat``, ``game`` and ``custom``).
+        ``confidence`` and ``deviation`` (None, or ``seat``, ``game`` and ``custom``); optionally ``enforcement``
+        (an :class:`~sim.theory.enforcement.Enforcement`, with ``stage_profits``).
     key : tuple of int
         The cell's stream key.
     threads : int
@@ -108,7 +119,25 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
         return run_game(g, run["periods"], run["replications"], run["delta"], run["seed"], key, run["horizon"],
                         run["continuation"], paths, threads, progress)
 
-    raw = play(game, int(run["paths"]))
+    enf = cfg.get("enforcement")
+    # enforcement cuts every replication's path at its conviction, so it needs them all (a deterministic line-up
+    # whose collusion resumes needs one); the kernel draws the same numbers however many paths it records
+    n_paths = int(run["paths"])
+    if enf is not None:
+        n_paths = int(run["replications"]) if enf.after_detection is None else max(n_paths, 1)
+    st = cfg.get("demand_states")
+    if st is not None:
+        n_paths = int(run["replications"])
+    raw = play(game, n_paths)
+    states = None
+    if st is not None:
+        states = apply_states(raw, st["states"], st["factors"], st["parameter"], st["values"], run["delta"],
+                              run["seed"], key, cfg["confidence"])
+        raw = keep_paths(raw, int(run["paths"]))
+    enforced = None
+    if enf is not None:
+        enforced = apply_enforcement(raw, cfg["stage_profits"], enf, run["delta"], run["seed"], key, cfg["confidence"])
+        raw = keep_paths(raw, int(run["paths"]))
     full = summarize(raw, game, run, confidence=cfg["confidence"], baseline=True)
     # the result as its document holds it: what a run folder gives back is what the command drew
     sim = SimulationResult.from_dict(full.to_dict())
@@ -122,4 +151,4 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
                                float(raw_d.disc[:, k].mean()),
                                float(analytic_gain(k)) if analytic_gain is not None else math.nan,
                                bool(dev["custom"]))
-    return SimulateResult(sim, cfg["market"].to_dict(), check), full
+    return SimulateResult(sim, cfg["market"].to_dict(), check, enforced, states), full

@@ -40,8 +40,13 @@ from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
 from sim.simulation.analysis import SimulateResult, simulate_analysis
 from sim.simulation.baseline import scheme_of
+from sim.simulation.enforced import enforcement_limits, is_deterministic
 from sim.simulation.engine import RUN_DEFAULTS, check_run, compile_game, simulation_from_dict
+from sim.simulation.states_run import state_factors
 from sim.theory.capacity_analysis import is_capacity_market
+from sim.theory.demand_states import DemandStates, markets_by_state
+from sim.theory.enforcement import Enforcement
+from sim.theory.stage_profits import StageProfits
 from sim.theory.thresholds import grim_threshold
 from sim.theory.trigger_price import trigger_price_equilibrium
 from strategies import TableAutomaton, strategy_from_dict
@@ -104,7 +109,7 @@ def one_shot_deviator(strategy, levels, seat: int, prefix: str = "deviation"):
 
 def _prepare_simulate(doc: dict) -> dict:
 
-    sub = {k: v for k, v in doc.items() if k != "deviation"}
+    sub = {k: v for k, v in doc.items() if k not in ("deviation", "enforcement", "demand_states")}
     confidence = 0.95
     if isinstance(doc.get("run"), dict):
         # the level of the intervals is the kind's own key of [run] (the engine's run settings do not use it)
@@ -142,7 +147,42 @@ def _prepare_simulate(doc: dict) -> dict:
         dev_lineup[seat] = deviator
         dev_game = compile_game(stage, levels, dev_lineup, out["monitoring"], strict=False)
         out["deviation"] = {"seat": seat, "game": dev_game, "custom": "strategy" in dt}
+    if "enforcement" in doc:
+        enf = Enforcement.from_dict(doc["enforcement"])
+        capacity = is_capacity_market(doc.get("market"))
+        enforcement_limits(enf, float(out["monitoring"].sigma), capacity,
+                           not capacity and is_deterministic(out["game"]), out["run"]["horizon"])
+        out["enforcement"] = enf
+        out["stage_profits"] = StageProfits.from_stage(stage)
+    if "demand_states" in doc:
+        out["demand_states"] = _states_of(doc, out)
     return out
+
+
+def _states_of(doc: dict, out: dict) -> dict:
+    """The ``[demand_states]`` table of a simulation: the states, the parameter, its values and the verified
+    profit factor of each state (:func:`sim.simulation.states_run.state_factors`)."""
+    for other in ("enforcement", "deviation"):
+        if other in doc:
+            raise InputError("demand_states", f"is not simulated together with [{other}]: the line-up's profits move "
+                                              f"with the state, which the [{other}] accounting does not follow")
+    if is_capacity_market(doc.get("market")) or float(out["monitoring"].sigma) > 0:
+        raise InputError("demand_states", "is simulated without a demand shock (monitoring.sigma = 0) and outside "
+                                          "capacity markets, where each state scales the profits by one factor")
+    table = doc["demand_states"]
+    if not isinstance(table, dict):
+        raise InputError("demand_states", f"must be a table, got {table!r}")
+    d = dict(table)
+    parameter, values = d.pop("parameter", None), d.pop("values", None)
+    states = DemandStates.from_dict(d, "demand_states")
+    if not isinstance(parameter, str):
+        raise InputError("demand_states.parameter", f"missing: the market parameter that moves with the state "
+                                                    f"(e.g. 'size'), got {parameter!r}")
+    if not isinstance(values, list) or len(values) != states.n_states:
+        raise InputError("demand_states.values", f"must list one value per state ({states.n_states}), got {values!r}")
+    markets = markets_by_state(out["market"], parameter, values)
+    factors = state_factors(out["game"], markets, out["agreement"], out["actions"])
+    return {"states": states, "parameter": parameter, "values": [float(v) for v in values], "factors": factors}
 
 
 def _prepare_market(doc: dict, sub: dict, confidence: float) -> tuple:
@@ -215,6 +255,12 @@ def _simulate_names(cfg: dict) -> list[str]:
     if cfg["deviation"] is not None:
         out += ["deviation.firm", "deviation.gain", "deviation.gain.se", "deviation.gain.low", "deviation.gain.high",
                 "deviation.pays", "deviation.conform_value", "deviation.deviate_value", "analytic.deviation.gain"]
+    if cfg.get("enforcement") is not None:
+        out += ENFORCED_METRICS
+        for m in ENFORCED_FIRM_METRICS:
+            out += [f"{m}.firm{i + 1}{s}" for i in range(n) for s in ("", ".low", ".high")]
+    if cfg.get("demand_states") is not None:
+        out += state_play_names(cfg["demand_states"]["states"].n_states, n)
     return out
 
 
@@ -333,6 +379,10 @@ def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
         m["deviation.conform_value"] = dev.conform_value
         m["deviation.deviate_value"] = dev.deviate_value
         m["analytic.deviation.gain"] = dev.analytic_gain
+    if result.enforcement is not None:
+        put_enforced(m, result.enforcement)
+    if result.states is not None:
+        put_state_play(m, result.states)
     return CellResult(m, arrays, result)
 
 
@@ -362,6 +412,10 @@ def simulate_cost(cfg: dict) -> Cost:
     per_rep = 8 * (2 * n + K.N_RINT + K.N_RFLT + 4)
     per_period = 8 * (chunks * (K.N_HIST + 1) + K.N_HIST + 20)
     memory = reps * per_rep + periods * per_period + 8 * paths * periods * (2 * n_products + 3 * n + 4)
+    if cfg.get("demand_states") is not None or (cfg.get("enforcement") is not None
+                                                and cfg["enforcement"].after_detection is None):
+        # enforcement records every replication's path (see sim.simulation.enforced)
+        memory += 8 * (reps - paths) * periods * (2 * n_products + 3 * n + 4)
     work = (2 if cfg["deviation"] is not None else 1) * float(periods) * reps * n
     key = "run.periods" if periods * per_period >= reps * per_rep else "run.replications"
     return Cost(memory, work, "firm-periods", work / THROUGHPUT, key)
@@ -388,12 +442,95 @@ def _describe_simulate(doc: dict) -> list[str]:
         who = "the firm that binds under grim trigger" if who == "binding" else f"firm {who}"
         lines.append(f"Deviation check: {who} deviates once in the first period"
                      + (f" ({value_label(d['strategy'])})" if "strategy" in d else ", then follows its strategy"))
+    if "enforcement" in doc:
+        e = doc["enforcement"]
+        lines.append(f"Enforcement: detection rate {value_label(e.get('detection', 0.0))} per colluding period, fine "
+                     f"{e.get('fine', 0.0)} ({e.get('fine_basis', 'fixed')}); static Nash "
+                     + ("forever after a conviction" if e.get("after_detection") is None else
+                        f"for {e['after_detection']} periods after a conviction, then the strategies start afresh"))
+    if "demand_states" in doc and isinstance(doc["demand_states"], dict):
+        d = doc["demand_states"]
+        lines.append(f"Demand states: {d.get('kind', 'iid')}, {d.get('parameter')} per state {d.get('values')}; the "
+                     f"line-up plays the same actions in every state")
     return lines
+
+
+#: the cell's enforcement metrics (:class:`sim.simulation.enforced.EnforcedSimulation`), estimates with their
+#: interval, then the rates
+ENFORCED_METRICS = ("enforced.detections", "enforced.detections.low", "enforced.detections.high",
+                    "enforced.detected_share", "enforced.detected_share.low", "enforced.detected_share.high",
+                    "enforced.collusive_share", "enforced.collusive_share.low", "enforced.collusive_share.high",
+                    "enforced.convictions_per_collusive_period", "enforcement.conviction_rate")
+ENFORCED_FIRM_METRICS = ("enforced.fines", "enforced.discounted_fines", "enforced.net_profit",
+                         "enforced.net_discounted_profit")
+
+
+def put_enforced(m: dict, e) -> None:
+    """Write an :class:`~sim.simulation.enforced.EnforcedSimulation` into the cell's metrics.
+
+    Parameters
+    ----------
+    m : dict
+        The metrics (added to).
+    e : EnforcedSimulation
+    """
+    for k in ("detections", "detected_share", "collusive_share"):
+        est = getattr(e, k)
+        m[f"enforced.{k}"], m[f"enforced.{k}.low"], m[f"enforced.{k}.high"] = est.value, est.low, est.high
+    m["enforced.convictions_per_collusive_period"] = e.convictions_per_collusive_period.value
+    m["enforcement.conviction_rate"] = e.conviction_rate
+    for k in ENFORCED_FIRM_METRICS:
+        for i, est in enumerate(getattr(e, k.split(".")[1])):
+            m[f"{k}.firm{i + 1}"], m[f"{k}.firm{i + 1}.low"], m[f"{k}.firm{i + 1}.high"] = est.value, est.low, est.high
+
+
+def state_play_names(n_states: int, n_firms: int) -> list[str]:
+    """The metric names of a simulation with demand states.
+
+    Parameters
+    ----------
+    n_states : int
+    n_firms : int
+
+    Returns
+    -------
+    list of str
+    """
+    out = []
+    for k in range(1, n_states + 1):
+        out += [f"state_play.frequency[{k}]", f"state_play.frequency[{k}].se", f"state_play.expected[{k}]",
+                f"state_play.factor[{k}]"]
+        out += [f"state_play.profit_by_state[{k}].firm{i + 1}" for i in range(n_firms)]
+    for m in ("state_play.profit", "state_play.discounted_profit"):
+        out += [f"{m}.firm{i + 1}{s}" for i in range(n_firms) for s in ("", ".low", ".high")]
+    return out
+
+
+def put_state_play(m: dict, sp) -> None:
+    """Write a :class:`~sim.simulation.states_run.StatePlay` into the cell's metrics.
+
+    Parameters
+    ----------
+    m : dict
+        The metrics (added to).
+    sp : StatePlay
+    """
+    for k in range(len(sp.labels)):
+        m[f"state_play.frequency[{k + 1}]"] = float(sp.frequencies[k])
+        m[f"state_play.frequency[{k + 1}].se"] = float(sp.frequency_se[k])
+        m[f"state_play.expected[{k + 1}]"] = float(sp.expected[k])
+        m[f"state_play.factor[{k + 1}]"] = float(sp.factors[k])
+        for i in range(sp.profit_by_state.shape[1]):
+            m[f"state_play.profit_by_state[{k + 1}].firm{i + 1}"] = float(sp.profit_by_state[k, i])
+    for name in ("profit", "discounted_profit"):
+        for i, est in enumerate(getattr(sp, name)):
+            key = f"state_play.{name}.firm{i + 1}"
+            m[key], m[f"{key}.low"], m[f"{key}.high"] = est.value, est.low, est.high
 
 
 KIND = Kind(
     name="simulate",
-    tables=("market", "collusion", "monitoring", "strategies", "run", "deviation"),
+    tables=("market", "collusion", "monitoring", "strategies", "run", "deviation", "enforcement", "demand_states"),
     prepare=_prepare_simulate,
     run=_run_simulate,
     metric_names=_simulate_names,

@@ -1,0 +1,33 @@
+"""Catalogue entries of a simulated line-up in a market whose demand state moves (the ``[demand_states]`` table of
+the simulate kind, :mod:`sim.simulation.states_run`): stem -> (label, unit, definition, method, interval)."""
+
+from __future__ import annotations
+
+__all__ = ["STATE_PLAY_ENTRIES"]
+
+_MEAN = "normal approximation across independent replications (mean +- z s / sqrt(n))"
+_DRAWN = ("one seeded uniform per period picks the state (i.i.d. probabilities or the row of the Markov chain; a "
+          "cycle draws nothing), as in sim.theory.draws.draw_state_path")
+_SCALED = ("each period's profit of the simulated path times its state's factor, times (1 + g)^t with a growth rate "
+           "g; exact because every state scales every profit of the line-up by one factor (checked on the market)")
+
+STATE_PLAY_ENTRIES = {
+    "state_play.frequency": ("share of periods in the state", "0 to 1",
+                             "Share of the periods played in which the demand is in this state.", _DRAWN,
+                             "standard error across replications (each replication's share one observation)"),
+    "state_play.expected": ("long-run share of the state", "0 to 1",
+                            "The state's probability (i.i.d.), its stationary probability (Markov chain) or its "
+                            "share of the cycle.", "stationary distribution pi = pi P of the chain (e.g. Norris, "
+                                                   "1997, Markov Chains, section 1.7)"),
+    "state_play.factor": ("profit factor of the state", "multiple",
+                          "Every profit the line-up can earn in this state as a multiple of the experiment's market.",
+                          "the market evaluated at every combination of the firms' levels, per state"),
+    "state_play.profit_by_state": ("mean profit per period in the state", "{money}",
+                                   "Mean profit of a firm over the periods spent in this state.", _SCALED),
+    "state_play.profit": ("profit per replication with demand states", "{currency}",
+                          "Mean total profit of a firm in a replication when demand moves between the states.",
+                          _SCALED, _MEAN),
+    "state_play.discounted_profit": ("discounted profit with demand states", "{currency}, discounted sum",
+                                     "Mean discounted profit of a firm in a replication when demand moves between "
+                                     "the states.", _SCALED, _MEAN),
+}
