@@ -29,6 +29,7 @@ from sim.core.text import fmt_num
 from sim.evidence.bundle import Bundle, Estimate, clear_leftovers, holds_bundle
 from sim.evidence.figures import SweepData, _plt
 from sim.evidence.front import (
+    SINGLE_CELL_ANSWER,
     headline,
     methods_rows,
     metric_column,
@@ -435,6 +436,7 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
         # the kind's own account of its results, read from the stored rows; the closing sections follow
         more = list(render(rf, b) or [])
         _promote_answer(b, question)
+        _answer_first(b, rf, exp, rows)
         b.table("results", header, body, show=False)
         b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
                     f"(also `{CSV_FILE}` in the run folder).", note=True)
@@ -482,9 +484,23 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
                     f"(also `{CSV_FILE}` in the run folder).", note=True)
 
         _analytic_baseline(b, rows)
+        _answer_first(b, rf, exp, rows)
 
     _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units)
     _write_with_manifest(b, folder, exp, rows, counts, attempts, meta, in_run_folder)
+
+
+def _answer_first(b, rf, exp, rows) -> None:
+    """A single cell's answer on the first page starts with its renderer's headline (the first line of the
+    command's terminal report: one wording in both places). An answer the analysis's own account gave follows it;
+    the generic sentence on the first headline metric (:func:`sim.evidence.front.headline`), which the headline
+    replaces, does not."""
+    r = renderer_for(exp.kind)
+    if exp.parameters or b.front is None or r is None or r.headline is None or not rows or rows[0].status != "ok":
+        return
+    head = r.headline(rf.result(rows[0].cell))
+    rest = [a for a in b.front["answer"] if a != head and not a.startswith(SINGLE_CELL_ANSWER)]
+    b.headline(b.front["question"], [head, *rest], b.front["numbers"], b.front["heading"])
 
 
 def _sweep_table(b, exp, rows, heads, units) -> None:
