@@ -22,7 +22,7 @@ import sys
 __all__ = ["COMPILE_SECONDS", "announce_compile", "in_disk_cache", "notice"]
 
 #: the expected first-use compile time of each kernel family, in seconds (two cores, empty cache; see DEVELOPERS.md)
-COMPILE_SECONDS = {"simulation": 60, "learning": 60, "tournament bootstrap": 10, "Moran": 5}
+COMPILE_SECONDS = {"simulation": 90, "learning": 45, "tournament bootstrap": 10, "Moran": 3}
 
 _ANNOUNCED: set = set()
 
