@@ -18,7 +18,6 @@ from sim.core.text import fmt_num
 from sim.evidence.catalogue import describe, describe_parameter, glossary
 
 __all__ = [
-    "SINGLE_CELL_ANSWER",
     "headline",
     "methods_rows",
     "metric_column",
@@ -28,8 +27,6 @@ __all__ = [
     "terms_rows",
 ]
 
-#: how the generic answer of a single cell begins (a renderer's headline replaces it on the first page)
-SINGLE_CELL_ANSWER = "Under the settings of the experiment file"
 #: units that a bracketed range or a yes/no already says (not repeated after a number)
 _QUIET_UNITS = ("0 to 1", "yes (1) / no (0)", "")
 
@@ -178,7 +175,7 @@ def headline(question: str, parameters, rows, heads, units=(None, None)) -> tupl
     if not parameters:
         r = ok[0]
         numbers = [f"{_label(m, units)}: {_value(r, m, units)}" for m in heads[:6]]
-        first = (f"{SINGLE_CELL_ANSWER}, the {_label(heads[0], units)} is "
+        first = (f"Under the settings of the experiment file, the {_label(heads[0], units)} is "
                  f"{_value(r, heads[0], units)}." if heads else "The run finished; its numbers follow.")
         return question, [first, *([crit] if crit else [])], numbers
     answer, numbers = [], []

@@ -29,7 +29,6 @@ from sim.core.text import fmt_num
 from sim.evidence.bundle import Bundle, Estimate, clear_leftovers, holds_bundle
 from sim.evidence.figures import SweepData, _plt
 from sim.evidence.front import (
-    SINGLE_CELL_ANSWER,
     headline,
     methods_rows,
     metric_column,
@@ -492,14 +491,14 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
 
 def _answer_first(b, rf, exp, rows) -> None:
     """A single cell's answer on the first page starts with its renderer's headline (the first line of the
-    command's terminal report: one wording in both places). An answer the analysis's own account gave follows it;
-    the generic sentence on the first headline metric (:func:`sim.evidence.front.headline`), which the headline
-    replaces, does not."""
+    command's terminal report: one wording in both places). It replaces the answer's first sentence -- the generic
+    one on the first headline metric (:func:`sim.evidence.front.headline`), or the conclusion an analysis's own
+    account promoted, which its section below still gives -- and the answer's further sentences follow it."""
     r = renderer_for(exp.kind)
     if exp.parameters or b.front is None or r is None or r.headline is None or not rows or rows[0].status != "ok":
         return
     head = r.headline(rf.result(rows[0].cell))
-    rest = [a for a in b.front["answer"] if a != head and not a.startswith(SINGLE_CELL_ANSWER)]
+    rest = [a for a in b.front["answer"][1:] if a != head]
     b.headline(b.front["question"], [head, *rest], b.front["numbers"], b.front["heading"])
 
 
