@@ -8,7 +8,13 @@ from __future__ import annotations
 
 import importlib
 
+from sim.core.views import add_provider
+
 __version__ = "0.1.0"
+
+# results show as labelled tables in notebooks; the evidence layer draws them, so it registers the views, imported
+# on the first display (the layers below the evidence layer cannot import it)
+add_provider("sim.evidence.views")
 
 _EXPORTS = {
     "models.demand": ["Demand", "DemandSpec", "DifferentiatedDemand", "IsoelasticDemand", "LinearDemand",

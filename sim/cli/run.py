@@ -8,11 +8,12 @@ import sys
 from sim.cli._common import emit, parse_number
 from sim.core.errors import InputError, Terminated
 from sim.core.jsonutil import dumps
+from sim.evidence.render import renderer_for
 from sim.evidence.report import write_report
 from sim.runner.cost import MAX_SECONDS, WARN_SECONDS, describe_seconds
 from sim.runner.experiment import load_experiment
 from sim.runner.kinds import load_plugins
-from sim.runner.runs import default_folder, run_experiment
+from sim.runner.runs import default_folder, open_run, run_experiment
 
 HELP = "run an experiment file (any kind, sweeps included) into a run folder; resumable"
 DESCRIPTION = (
@@ -101,5 +102,18 @@ def run(args) -> int:
                        "--retry-failed")
     else:
         lines.append(f"Incomplete: finish with supergame run --resume {s.folder}")
-    emit("\n".join(lines))
+    emit("\n\n".join([*_answer(s), "\n".join(lines)]))
     return status
+
+
+def _answer(s) -> list[str]:
+    """The terminal report of a finished single-cell run (its answer first), read from the stored cell, as the
+    kind's own command prints it; nothing for a sweep, a failed cell or a kind without a renderer."""
+    if s.status != "complete" or s.n_cells != 1:
+        return []
+    with open_run(s.folder) as rf:
+        r = renderer_for(rf.experiment.kind)
+        rows = rf.rows()
+        if r is None or not rows or rows[0].status != "ok":
+            return []
+        return [r.console(rf.result(rows[0].cell))]

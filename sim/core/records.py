@@ -24,6 +24,8 @@ from typing import Any
 
 import numpy as np
 
+from sim.core.views import view_of
+
 __all__ = ["Record", "from_plain", "to_plain"]
 
 
@@ -159,3 +161,32 @@ class Record:
             if f.name in doc:
                 kw[f.name] = from_plain(hints.get(f.name, Any), doc[f.name])
         return cls(**kw)
+
+    def _repr_html_(self) -> str | None:
+        """The result as an HTML table in a notebook (None, Jupyter's plain display, when it has no view).
+
+        Returns
+        -------
+        str or None
+        """
+        v = view_of(self)
+        return None if v is None else v.html(self)
+
+    def to_frame(self):
+        """The result's numbers as a table: one row per number with its label, value, unit, interval and key.
+
+        Returns
+        -------
+        pandas.DataFrame
+            Columns ``label``, ``value``, ``unit``, ``low``, ``high`` (the interval where there is one) and
+            ``key`` (the stored name, last).
+
+        Raises
+        ------
+        TypeError
+            When the result's class has no view.
+        """
+        v = view_of(self)
+        if v is None:
+            raise TypeError(f"{type(self).__name__} has no table view")
+        return v.frame(self)

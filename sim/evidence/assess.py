@@ -18,6 +18,7 @@ from sim.antitrust.factors import FACTOR_LEGEND
 from sim.core.errors import InputError
 from sim.core.jsonutil import dumps
 from sim.core.text import CAUTION, table
+from sim.evidence.answers import assessment_headline
 from sim.evidence.assess_figures import assessment_figures
 from sim.evidence.assess_payoffs import payoff_lines
 from sim.evidence.assess_summary import summary_blocks
@@ -39,7 +40,7 @@ from sim.evidence.front import parameter_column
 from sim.evidence.render import Renderer, pyplot
 from sim.runner.analyses.assess import describe_cell
 
-__all__ = ["RENDERER", "as_json", "bundle", "console", "figures", "write_assessment"]
+__all__ = ["RENDERER", "as_json", "bundle", "console", "figures", "headline", "write_assessment"]
 
 
 def _stick_and_carrot_lines(d: dict) -> list[str]:
@@ -73,7 +74,7 @@ def console(a) -> str:
     d = assessment_data(a)
     T = assessment_tables(d)
     c = d["conclusion"]
-    lines = [f"Assessment: {d.get('name', 'assessment')}", ""]
+    lines = [assessment_headline(d), "", f"Assessment: {d.get('name', 'assessment')}", ""]
     cal = d["calibration"]
     if cal is not None:
         lines.append(f"Calibration ({cal['demand']} demand, {cal['conduct'].split(':')[0]}; identified by "
@@ -291,4 +292,18 @@ def _sweep_figure(b, p, done: list, scheme: str) -> None:
                                            "sustainable below one.")
 
 
-RENDERER = Renderer(console=console, as_json=as_json, figures=figures, bundle=bundle)
+def headline(a) -> str:
+    """The answer: whether the merger makes coordination easier, with the threshold before and after.
+
+    Parameters
+    ----------
+    a : Assessment
+
+    Returns
+    -------
+    str
+    """
+    return assessment_headline(assessment_data(a))
+
+
+RENDERER = Renderer(console=console, as_json=as_json, figures=figures, bundle=bundle, headline=headline)

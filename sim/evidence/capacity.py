@@ -13,6 +13,7 @@ import numpy as np
 from sim.antitrust.capacity_assess import CapacityResult
 from sim.core.errors import InputError
 from sim.core.text import CAUTION, fmt_num, table
+from sim.evidence.answers import capacity_headline
 from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color, number_format, text_color
 from sim.evidence.render import Drawn, Renderer, pyplot
 
@@ -204,7 +205,7 @@ def console(res: CapacityResult) -> str:
     -------
     str
     """
-    lines = []
+    lines = [capacity_headline(res), ""]
     for s in sections(res):
         lines += [s["heading"], "=" * len(s["heading"]), *s["lines"]]
         if s.get("rows"):
@@ -375,4 +376,4 @@ def bundle(rf, b):
     return ["The full result is `capacity.json` (the stored document of the cell)."]
 
 
-RENDERER = Renderer(console=console, as_json=as_json, figures=figures, bundle=bundle)
+RENDERER = Renderer(console=console, as_json=as_json, figures=figures, bundle=bundle, headline=capacity_headline)

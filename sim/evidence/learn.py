@@ -12,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from sim.core.text import CAUTION, fmt_num, table
+from sim.evidence.answers import learn_headline
 from sim.evidence.learn_automata import automaton_lines
 from sim.evidence.learn_event import event_figure, event_lines
 from sim.evidence.render import Drawn, Renderer, pyplot
@@ -216,7 +217,8 @@ def console(res: LearnResult) -> str:
     -------
     str
     """
-    lines = _setup_lines(res) + _limit_lines(res) + _impulse_lines(res) + automaton_lines(res)
+    lines = [learn_headline(res), "", *_setup_lines(res)] + _limit_lines(res) + _impulse_lines(res)
+    lines += automaton_lines(res)
     lines += event_lines(res)
     lines += ["", CAUTION]
     return "\n".join(lines)
@@ -343,4 +345,5 @@ def figures(res: LearnResult) -> list[Drawn]:
     return out if after is None else [*out, after]
 
 
-RENDERER = Renderer(console=console, as_json=as_json, figures=figures)
+RENDERER = Renderer(console=console, as_json=as_json, figures=figures,
+                    headline=learn_headline)

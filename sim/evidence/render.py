@@ -82,12 +82,16 @@ class Renderer:
     bundle : callable, optional
         ``bundle(run, bundle) -> list of str or None``: the analysis's own account of a run folder in its evidence
         bundle, read from the stored cells (see :func:`sim.evidence.report.write_report`).
+    headline : callable, optional
+        ``headline(result) -> str``: the answer in one or two sentences (:mod:`sim.evidence.answers`), the first
+        line of ``console`` and the first sentence of a single-cell bundle's answer.
     """
 
     console: Callable[[Any], str]
     as_json: Callable[[Any], dict]
     figures: Callable[[Any], list] | None = None
     bundle: Callable[[Any, Any], list | None] | None = None
+    headline: Callable[[Any], str] | None = None
 
 
 #: kind name -> "module:attribute" of its :class:`Renderer` (imported on first use) or the Renderer itself

@@ -446,6 +446,7 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
         # the kind's own account of its results, read from the stored rows; the closing sections follow
         more = list(render(rf, b) or [])
         _promote_answer(b, question)
+        _answer_first(b, rf, exp, rows)
         b.table("results", header, body, show=False)
         b.paragraph(f"The full results table (every metric of every cell) is `tables/results.csv` "
                     f"(also `{CSV_FILE}` in the run folder).", note=True)
@@ -493,9 +494,23 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
                     f"(also `{CSV_FILE}` in the run folder).", note=True)
 
         _analytic_baseline(b, rows)
+        _answer_first(b, rf, exp, rows)
 
     _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units)
     _write_with_manifest(b, folder, exp, rows, counts, attempts, meta, in_run_folder)
+
+
+def _answer_first(b, rf, exp, rows) -> None:
+    """A single cell's answer on the first page starts with its renderer's headline (the first line of the
+    command's terminal report: one wording in both places). It replaces the answer's first sentence -- the generic
+    one on the first headline metric (:func:`sim.evidence.front.headline`), or the conclusion an analysis's own
+    account promoted, which its section below still gives -- and the answer's further sentences follow it."""
+    r = renderer_for(exp.kind)
+    if exp.parameters or b.front is None or r is None or r.headline is None or not rows or rows[0].status != "ok":
+        return
+    head = r.headline(rf.result(rows[0].cell))
+    rest = [a for a in b.front["answer"][1:] if a != head]
+    b.headline(b.front["question"], [head, *rest], b.front["numbers"], b.front["heading"])
 
 
 def _sweep_table(b, exp, rows, heads, units) -> None:

@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from sim.core.text import CAUTION, fmt_num, table
+from sim.evidence.answers import simulate_headline
 from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.simulate_enforced import enforced_figure, enforced_json, enforced_text, state_play_text
@@ -183,7 +184,7 @@ def console(result: SimulateResult) -> str:
     -------
     str
     """
-    lines = _simulation_text(result.simulation, result.market)
+    lines = [simulate_headline(result), "", *_simulation_text(result.simulation, result.market)]
     if result.deviation is not None:
         lines.extend(_deviation_text(result.deviation))
     if result.enforcement is not None:
@@ -308,4 +309,4 @@ def figures(result: SimulateResult) -> list:
     return out
 
 
-RENDERER = Renderer(console=console, as_json=as_json, figures=figures)
+RENDERER = Renderer(console=console, as_json=as_json, figures=figures, headline=simulate_headline)

@@ -7,6 +7,7 @@ import numpy as np
 
 from sim.core.text import CAUTION, fmt_num, table
 from sim.evidence import any_punishment as anyp
+from sim.evidence.answers import thresholds_headline
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.thresholds_parts import part_figures, part_json, part_lines
 from sim.theory.analysis import ThresholdsResult
@@ -162,7 +163,7 @@ def console(res: ThresholdsResult) -> str:
     -------
     str
     """
-    lines = [f"Market: {describe_market(res.market, res.n_firms)}",
+    lines = [thresholds_headline(res), "", f"Market: {describe_market(res.market, res.n_firms)}",
              f"Agreement: {AGREEMENT_NAMES.get(res.report['agreement'], res.report['agreement'])}", "",
              _stage_table(res), ""]
     lines += _threshold_lines(res) + _partial_lines(res) + _trigger_lines(res)
@@ -230,4 +231,4 @@ def figures(res: ThresholdsResult) -> list[Drawn]:
     return out + part_figures(res)
 
 
-RENDERER = Renderer(console=console, as_json=as_json, figures=figures)
+RENDERER = Renderer(console=console, as_json=as_json, figures=figures, headline=thresholds_headline)

@@ -361,4 +361,4 @@ def _data_tables(b, out: TournamentOutcome) -> None:
         b.table("placed-above", ["rule", *out.labels], [[out.labels[i], *A[i]] for i in range(E)], show=False)
 
 
-RENDERER = Renderer(console=console, as_json=as_json, figures=figures, bundle=bundle)
+RENDERER = Renderer(console=console, as_json=as_json, figures=figures, bundle=bundle, headline=answer)

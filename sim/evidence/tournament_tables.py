@@ -8,27 +8,13 @@ import math
 
 import numpy as np
 
+from sim.evidence.answers import number
 from sim.evidence.thresholds import AGREEMENT_NAMES, describe_market
 from sim.evidence.tournament_figures import percent
 from sim.tournament.analysis import TournamentOutcome
 
 __all__ = ["answer", "confidence_words", "fitness_words", "initial_words", "interval_text", "number", "pairs_table",
            "profit_unit", "resists_words", "rules_table", "setup_lines", "spread_table"]
-
-
-def number(x, digits: int = 3) -> str:
-    """A number with ``digits`` decimals and thousands separators (``n/a`` for None or nan).
-
-    Parameters
-    ----------
-    x : float or None
-    digits : int
-
-    Returns
-    -------
-    str
-    """
-    return "n/a" if x is None or not math.isfinite(float(x)) else f"{float(x):,.{digits}f}"
 
 
 def interval_text(v, digits: int = 3) -> str:

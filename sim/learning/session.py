@@ -60,6 +60,7 @@ from tqdm import tqdm
 
 import sim.learning.kernel as K
 import sim.learning.limits as L
+from sim.core.compiling import announce_compile
 from sim.core.errors import InputError
 from sim.core.parallel import usable_cores
 from sim.core.params import Real
@@ -332,6 +333,7 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
     d_dev = deviator_discount(lineup, seat)
     dev = DeviationInputs(seat, dev_index, d_dev, IR_POINTS, LIMIT_BURN_IN, settings["limit_periods"],
                           value_horizon(d_dev))
+    announce_compile("learning", (K.run_session, L.analyse_limit if lineup.limit_exact else L.estimate_limit))
     t0 = time.perf_counter()
     _each(n, settings["workers"], lambda j: _session(j, lineup, states[j], g0, settings, dev, buf, start), progress)
     saved = None

@@ -14,6 +14,7 @@ import numpy as np
 from tqdm import tqdm
 
 import sim.simulation.kernel as K
+from sim.core.compiling import announce_compile
 from sim.core.errors import SolverError
 from sim.core.parallel import NumbaThreads
 from sim.core.rng import stream_states
@@ -262,6 +263,7 @@ def run_game(game: Game, periods: int, replications: int, delta: float, seed: in
         # stream family from its start each time (cost quadratic in the number of batches); 32 bytes per
         # replication, less than the per-replication results
         rng_all = stream_states(seed, key, 0, replications)
+        announce_compile("simulation", (K.simulate_chunks,))
         bar = _progress_bar(replications, progress, "simulate")
         try:
             for lo in range(0, replications, batch):

@@ -20,6 +20,7 @@ from typing import NamedTuple
 import numpy as np
 from numba import njit, prange
 
+from sim.core.compiling import announce_compile
 from sim.core.parallel import NumbaThreads
 from sim.core.rng import ReferenceStream, next_u64, stream_states
 from sim.tournament.plan import TournamentPlan, rival_weights
@@ -292,6 +293,7 @@ def bootstrap_scores(plan: TournamentPlan, records: list, threads: int | None = 
     if reference:
         return bootstrap_reference(reps, seats, states, E)
     out = np.zeros((B, E))
+    announce_compile("tournament bootstrap", (bootstrap_kernel,))
     with NumbaThreads(threads):
         bootstrap_kernel(reps, seats, states, out)
     return out

@@ -22,6 +22,7 @@ import math
 import numpy as np
 from numba import njit, prange
 
+from sim.core.compiling import announce_compile
 from sim.core.parallel import NumbaThreads
 from sim.core.params import Integer
 from sim.core.rng import ReferenceStream, next_double, stream_states
@@ -240,6 +241,7 @@ def simulate_fixation(payoffs: PayoffTable, population: int = 100, selection: fl
         counts = moran_reference(up, R, states)
     else:
         counts = np.zeros(len(pairs), dtype=np.int64)
+        announce_compile("Moran", (moran_kernel,))
         with NumbaThreads(threads):
             moran_kernel(up, R, states, counts)
     for p, (i, j) in enumerate(pairs):

@@ -86,7 +86,8 @@ def test_no_worker_survives_its_parent(tmp_path, how):
     if how == signal.SIGTERM:
         err = proc.stderr.read()
         assert proc.returncode == 143
-        lines = err.strip().splitlines()
+        # the workers' one-line notice that kernels compile (when numba's cache is cold) is not about the signal
+        lines = [ln for ln in err.strip().splitlines() if not ln.startswith("supergame: compiling the ")]
         assert len(lines) == 1 and lines[0].startswith("supergame run: terminated (SIGTERM); finished cells are stored")
         con = sqlite3.connect(tmp_path / "run" / "results.sqlite")
         outcomes = [o for (o,) in con.execute("SELECT outcome FROM attempts")]

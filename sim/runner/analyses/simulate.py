@@ -314,11 +314,21 @@ def _analytic_gain(cfg: dict, seat: int) -> float:
     return (d - c) - loss
 
 
-def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
+def simulate_metrics(result: SimulateResult) -> dict:
+    """The simulated metrics of a simulate result: persistence and outcome estimates with their bounds, each firm's
+    profits and profit gain, the reference prices and the deviation check (the columns of ``results.csv`` that the
+    result itself holds; the analytic predictions are added by the cell from its configuration).
 
-    run = cfg["run"]
-    result, res = simulate_analysis(cfg, ctx.key, ctx.threads, ctx.progress,
-                                    analytic_gain=lambda seat: _analytic_gain(cfg, seat))
+    Parameters
+    ----------
+    result : SimulateResult
+
+    Returns
+    -------
+    dict
+        Stored metric name -> float.
+    """
+    res = result.simulation
     m: dict = {}
     for k in SIM_METRICS:
         put_estimate(m, k, res.punishment_length if k == "punishment_length" else res.metrics[k])
@@ -329,6 +339,30 @@ def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
             m[f"{k}.firm{i + 1}.high"] = e.high
     m["nash_price"] = res.reference["nash_price"]
     m["collusive_price"] = res.reference["collusive_price"]
+    return m | _deviation_metrics(result.deviation)
+
+
+def _deviation_metrics(dev) -> dict:
+    if dev is None:
+        return {}
+    m = {"deviation.firm": dev.firm}
+    put_estimate(m, "deviation.gain", dev.gain)
+    m["deviation.pays"] = float(dev.pays)
+    m["deviation.conform_value"] = dev.conform_value
+    m["deviation.deviate_value"] = dev.deviate_value
+    m["analytic.deviation.gain"] = dev.analytic_gain
+    return m
+
+
+def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
+
+    run = cfg["run"]
+    result, res = simulate_analysis(cfg, ctx.key, ctx.threads, ctx.progress,
+                                    analytic_gain=lambda seat: _analytic_gain(cfg, seat))
+    own = simulate_metrics(result)
+    dev_keys = _deviation_metrics(result.deviation)
+    # the stored order: simulated metrics, analytic predictions, the trigger scheme, the deviation check
+    m = {k: v for k, v in own.items() if k not in dev_keys}
     b = res.baseline
     tp, fb = b.get("trigger_price"), b.get("first_breakdown")
     a = dict.fromkeys(_ANALYTIC, math.nan)
@@ -371,14 +405,7 @@ def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
         m["trigger_price.quantity"] = float(sch.quantity)
         # no output below static Nash can be sustained: the "equilibrium" is static Nash (trigger 0)
         m["trigger_price.degenerate"] = float(sch.trigger == 0.0)
-    dev = result.deviation
-    if dev is not None:
-        m["deviation.firm"] = dev.firm
-        put_estimate(m, "deviation.gain", dev.gain)
-        m["deviation.pays"] = float(dev.pays)
-        m["deviation.conform_value"] = dev.conform_value
-        m["deviation.deviate_value"] = dev.deviate_value
-        m["analytic.deviation.gain"] = dev.analytic_gain
+    m.update(dev_keys)
     if result.enforcement is not None:
         put_enforced(m, result.enforcement)
     if result.states is not None:
