@@ -51,41 +51,76 @@ def _plt():
 class SweepData:
     """Stored results arranged by swept values.
 
+    Parameters zipped together (``[sweep] zip``, or ``mode = "zip"``) form one dimension: a cell is found by the
+    position of its group's values, so fixing any path of a group (its lead, the first path named, or a partner)
+    fixes the whole group.
+
     Attributes
     ----------
     parameters : list of Parameter
     rows : list of CellRow
     units : tuple of (str or None, str or None)
         The experiment's currency and period (labels of money).
+    groups : tuple of tuple of str
+        Paths varying together, the lead first (the experiment's ``groups``); empty: every path alone.
     """
 
     parameters: list
     rows: list
     units: tuple = field(default=(None, None))
+    groups: tuple = field(default=())
 
     def __post_init__(self):
         self.by_path = {p.path: p for p in self.parameters}
+        known = {q for g in self.groups for q in g}
+        self.groups = tuple(tuple(g) for g in self.groups) + tuple(
+            (p.path,) for p in self.parameters if p.path not in known)
+        self.lead = {q: g[0] for g in self.groups for q in g}
         self.index = {}
         for r in self.rows:
             if r.status != "ok":
                 continue
-            key = tuple(r.labels[p.path] for p in self.parameters)
-            self.index[key] = r.metrics
+            self.index[self._key(r.labels)] = r.metrics
+
+    def _key(self, labels: dict):
+        # one position per group, read from the first of its paths that ``labels`` names
+        key = []
+        for g in self.groups:
+            path = next((q for q in g if q in labels), None)
+            if path is None:
+                return None
+            try:
+                key.append(self.by_path[path].labels.index(labels[path]))
+            except ValueError:
+                return None
+        return tuple(key)
 
     def value(self, fixed: dict, metric: str) -> float:
         """The metric of the cell whose swept values have labels ``fixed`` (path -> label); nan if none."""
-        key = tuple(fixed[p.path] for p in self.parameters)
-        m = self.index.get(key)
+        m = self.index.get(self._key(fixed))
         return math.nan if m is None else float(m.get(metric, math.nan))
 
     def has(self, metric: str) -> bool:
         return any(metric in m for m in self.index.values())
 
+    def partners(self, path: str) -> tuple:
+        """The paths zipped with ``path`` (``path`` itself included, the lead first)."""
+        return next(g for g in self.groups if path in g)
+
     def fixed_labels(self, exclude, at: dict | None = None) -> dict:
-        """Labels of the parameters not in ``exclude``: those in ``at`` (path -> label), the others take one
-        value each."""
+        """Labels fixing the groups with no path in ``exclude``: a path given in ``at`` (path -> label) fixes its
+        group, the others take their first value."""
         at = at or {}
-        return {p.path: at.get(p.path, p.labels[0]) for p in self.parameters if p.path not in exclude}
+        out = {}
+        for g in self.groups:
+            if any(q in exclude for q in g):
+                continue
+            given = next((q for q in g if q in at), None)
+            if given is not None:
+                out[given] = at[given]
+            else:
+                out[g[0]] = self.by_path[g[0]].labels[0]
+        return out
 
 
 def _axis_values(p) -> np.ndarray:

@@ -121,10 +121,22 @@ def _headline(exp, kind) -> list[str]:
     return out
 
 
+def _dimensions(exp) -> list:
+    """One parameter per dimension of the sweep with more than one value: a zipped group counts once, as its lead
+    (the first path named) -- or, when the lead takes no numbers, its first numeric partner, so that it can be an
+    axis."""
+    out = []
+    for g in exp.groups or [(p.path,) for p in exp.parameters]:
+        ps = [exp.parameter(q) for q in g]
+        if len(ps[0]) > 1:
+            out.append(ps[0] if ps[0].numeric else next((p for p in ps if p.numeric), ps[0]))
+    return out
+
+
 def default_figures(exp, kind, data) -> list:
     """The figures drawn when the experiment names none (see the module notes)."""
 
-    multi = [p for p in exp.parameters if len(p) > 1]
+    multi = _dimensions(exp)
     numeric = [p for p in multi if p.numeric]
     heads = [m for m in kind.headline[:2] if data.has(m)]
     if data.has("deviation.gain"):
@@ -449,7 +461,7 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
             b.paragraph("These are the file's settings; the values of "
                         + ", ".join(f"`{p.path}`" for p in exp.parameters) + " are those of the sweep below.",
                         note=True)
-        data = SweepData(list(exp.parameters), rows, units)
+        data = SweepData(list(exp.parameters), rows, units, exp.groups)
         heads = _headline(exp, kind)
         if exp.parameters:
             b.heading("Sweep")
