@@ -400,7 +400,7 @@ def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) 
         "recomputed for the report.",
     ])
     terms = terms_rows(list(exp.metric_names), [p.path for p in exp.parameters], units)
-    b.heading("Methods appendix")
+    b.heading("Methods appendix", appendix=True)
     b.paragraph("How each number of this bundle is computed, with its published source (\"common practice\" where "
                 "the trade has none); the glossary below gives each number's definition.")
     b.table("methods", ["method and source", "interval", "numbers computed with it"], methods_rows(terms),
@@ -425,7 +425,7 @@ def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) 
     ])
     b.code(f"supergame run {EXPERIMENT_COPY}          # the same numbers, in a new run folder\n"
            f"supergame verify {folder}           # check the hashes and re-run a sample of cells")
-    b.heading("Glossary")
+    b.heading("Glossary", appendix=True)
     b.table("glossary", ["key", "label", "unit", "definition", "method and source", "interval"], terms,
             caption="Every number of the bundle: its stored name (key, the column name in the CSV files), label, "
                     "unit, definition, method and interval", max_rows=len(terms) + 1)
