@@ -383,7 +383,7 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
         axes[k // nc][k % nc].set_visible(False)
     if mesh is not None:
         cb = fig.colorbar(mesh, ax=axes.ravel().tolist(), shrink=0.9)
-        cb.set_label(_wrap(metric_axis(metric, data), 40), fontsize=FONT)
+        cb.set_label(_wrap_axis(metric_axis(metric, data), 40), fontsize=FONT)
         cb.ax.tick_params(labelsize=SMALL)
     if legend:
         fit_legend(fig, list(legend.values()), list(legend), ncol=1)
@@ -520,6 +520,15 @@ def _wrap(text: str, width: int) -> str:
     return "\n".join(textwrap.wrap(text, width)) or text
 
 
+def _wrap_axis(text: str, width: int) -> str:
+    """An axis label wrapped to ``width`` characters, its unit in brackets kept whole on a line of its own when
+    the label does not fit on one."""
+    if len(text) <= width or " [" not in text:
+        return _wrap(text, width)
+    label, unit = text.split(" [", 1)
+    return _wrap(label, width) + "\n[" + unit
+
+
 def _threshold_line(ax, T, xs, xp, xe, yp, threshold, data, legend) -> None:
     if not threshold or not np.isfinite(T).any():
         return
@@ -611,7 +620,7 @@ def lines(data: SweepData, x: str, metric: str, analytic: str | None = None, gro
             ax.set_xscale("log")
         if facet:
             ax.set_title(_wrap(str(fv), _title_chars(fig, nc)), fontsize=FONT)
-        _panel_labels(ax, k, nr, nc, len(facets), _label(x, data), _wrap(metric_axis(metric, data), 30))
+        _panel_labels(ax, k, nr, nc, len(facets), _label(x, data), _wrap_axis(metric_axis(metric, data), 30))
         ax.tick_params(labelsize=SMALL)
         ax.grid(alpha=0.3)
         for h, lab in zip(*ax.get_legend_handles_labels()):
