@@ -356,5 +356,9 @@ def test_the_bundle_prints_to_the_expected_a4_pages(browser, bundle, tmp_path):
     appendix, tallest = len(lay["appendices"]), max(lay["whole"], default=0.0)
     low = max(appendix + 1, math.floor(0.95 * lay["height"] / page_h))
     high = math.ceil(1.05 * lay["height"] / (page_h - min(tallest, 0.8 * page_h))) + appendix + 1
-    assert low <= n <= high, (f"{n} printed pages, expected {low} to {high} for {lay['height']} px of content and "
-                              f"{appendix} sections that start a page")
+    found = (f"{n} printed pages, expected {low} to {high} for {lay['height']} px of content, its tallest block "
+             f"kept whole {tallest:.0f} px, and {appendix} sections that start a page")
+    note = out.with_suffix(".txt")
+    note.write_text(found + "\n")
+    _keep(note)
+    assert low <= n <= high, found

@@ -31,7 +31,7 @@ SHIPPED = ROOT / "experiments" / "trigger-price-sweep.toml"
 PERIODS = 60
 #: reduced sizes: the layout of the sweep is the shipped one, the ends of both ranges kept
 CHANGES = {"periods = 300": f"periods = {PERIODS}", "replications = 200": "replications = 30",
-           '"market.n_firms" = [2, 3, 4, 5, 6]': '"market.n_firms" = [2, 4, 6]',
+           '"market.n_firms" = [2, 3, 4, 5, 6]': '"market.n_firms" = [2, 6]',
            '"monitoring.sigma" = [0.02, 0.05, 0.1, 0.2, 0.4]': '"monitoring.sigma" = [0.02, 0.1, 0.4]'}
 
 #: stored metric -> (lowest, highest) value its definition allows; ``None`` for the horizon
@@ -71,7 +71,7 @@ def reduced_run(tmp_path_factory):
 
 def test_no_interval_leaves_the_domain_of_its_quantity(reduced_run):
     _, rows = reduced_run
-    assert len(rows) == 9 and all(r.status == "ok" for r in rows)
+    assert len(rows) == 6 and all(r.status == "ok" for r in rows)
     checked = set()
     for r in rows:
         m = r.metrics
