@@ -10,7 +10,8 @@ the same whenever it is written.
 Figures are those of ``[[report.figures]]``; without them, a default set: a heatmap of each headline
 metric over the first two numeric swept parameters (with the kind's analytic threshold curve) and line
 plots against the swept discount factor or the first numeric parameter (with confidence bands and the
-analytic prediction), one panel or line per value of the other swept parameters.
+analytic prediction), one panel or line per value of the other swept parameters. Paths zipped together are one
+dimension: a figure names the group once, by its lead (the first path of the group).
 """
 
 from __future__ import annotations
