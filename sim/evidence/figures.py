@@ -526,7 +526,7 @@ def _wrap_axis(text: str, width: int) -> str:
     if len(text) <= width or " [" not in text:
         return _wrap(text, width)
     label, unit = text.split(" [", 1)
-    return _wrap(label, width) + "\n[" + unit
+    return _wrap(label, width) + "\n" + _wrap("[" + unit, width)
 
 
 def _threshold_line(ax, T, xs, xp, xe, yp, threshold, data, legend) -> None:
