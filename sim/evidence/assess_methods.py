@@ -133,7 +133,7 @@ def methods_blocks(d: dict) -> list:
     list of tuple
         Blocks as :func:`sim.evidence.assess_summary.summary_blocks` gives them.
     """
-    B = [("heading", "Methods"),
+    B = [("heading", "Methods", 2, True),
          ("paragraph", "Critical discount factors (perfect monitoring, infinite horizon, the agreement and "
                        "punishments named):"),
          ("bullets", list(THRESHOLD_FORMULAS)),

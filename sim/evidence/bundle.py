@@ -263,7 +263,8 @@ td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: now
 td.text { min-width: 6rem; }
 td .ci { color: #555; font-size: .9em; }
 .table-caption { font-weight: 600; font-size: .85rem; margin: .8rem 0 .2rem; }
-figure { margin: 1.2rem 0; } figure img { width: 100%; height: auto; border: 1px solid #eee; }
+figure { margin: 1.2rem 0; }
+figure img { width: 100%; height: auto; border: 1px solid #eee; box-sizing: border-box; }
 figcaption { font-size: .85rem; color: #333; }
 pre { background: #f5f5f5; padding: .6rem; overflow-x: auto; font-size: .8rem; white-space: pre-wrap;
       overflow-wrap: anywhere; }
@@ -275,10 +276,19 @@ nav.contents ol { columns: 2; font-size: .9rem; }
 .note { font-size: .85rem; color: #555; }
 @media (max-width: 40rem) { nav.contents ol { columns: 1; } body { margin: 1rem auto; } }
 @media print {
-  body { max-width: none; margin: 0; font-size: 10pt; }
+  @page { size: A4; margin: 15mm 14mm; }
+  body { max-width: none; margin: 0; padding: 0; font-size: 10pt; }
+  nav.contents { display: none; }
+  h2.appendix { break-before: page; }
   .table-wrap { overflow: visible; }
-  figure, table, .headline { break-inside: avoid; }
-  h2, h3 { break-after: avoid; }
+  table { font-size: 8pt; }
+  thead { display: table-header-group; }
+  tr, figure, .headline, .caution { break-inside: avoid; }
+  h2, h3, .table-caption { break-after: avoid; }
+  img { max-width: 100%; }
+  figure img { width: auto; max-height: 215mm; }
+  th, td { overflow-wrap: anywhere; }
+  td.text { min-width: 0; }
   a { color: inherit; text-decoration: none; }
   pre { white-space: pre-wrap; }
 }
@@ -357,7 +367,7 @@ class Bundle:
         self.front = {"heading": heading, "question": question, "answer": [str(a) for a in answer],
                       "numbers": [str(x) for x in numbers]}
 
-    def heading(self, text: str, level: int = 2) -> None:
+    def heading(self, text: str, level: int = 2, appendix: bool = False) -> None:
         """A section heading.
 
         Parameters
@@ -365,8 +375,10 @@ class Bundle:
         text : str
         level : int
             2 (section) to 4.
+        appendix : bool
+            The section is an appendix (methods, glossary): printed from a new page.
         """
-        self.blocks.append(_Block("heading", {"text": text, "level": max(2, min(4, level))}))
+        self.blocks.append(_Block("heading", {"text": text, "level": max(2, min(4, level)), "appendix": appendix}))
 
     def paragraph(self, text: str, note: bool = False) -> None:
         """A paragraph of text (``code`` spans and **bold** are kept).
@@ -610,7 +622,8 @@ class Bundle:
         for i, b in enumerate(self.blocks):
             d = b.data
             if b.kind == "heading":
-                out.append(f'<h{d["level"]} id="{anchors[i]}">{_inline_html(d["text"])}</h{d["level"]}>')
+                cls = ' class="appendix"' if d.get("appendix") else ""
+                out.append(f'<h{d["level"]}{cls} id="{anchors[i]}">{_inline_html(d["text"])}</h{d["level"]}>')
             elif b.kind == "paragraph":
                 cls = ' class="note"' if d["note"] else ""
                 out.append(f"<p{cls}>{_inline_html(d['text'])}</p>")

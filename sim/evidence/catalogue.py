@@ -54,6 +54,9 @@ class Entry:
 _RATIO = ("ratio of totals across replications; interval: Wilson score interval with the design-effect sample size "
           "(Korn and Graubard, 1998, Survey Methodology 24(2)), which stays in [0, 1]")
 _MEAN = "normal approximation across independent replications (mean +- z s / sqrt(n))"
+#: a mean per period that is not a share (prices, money, the profit gain): ratio of totals, normal interval
+_RATIO_MEAN = ("ratio of totals across replications; interval: normal approximation with the delta-method standard "
+               "error (Cochran, 1977, Sampling Techniques, section 6.4)")
 _KM = ("Kaplan-Meier restricted mean with Greenwood's variance (Kaplan and Meier, 1958; Klein and Moeschberger, 2003, "
        "section 4.5), interval on the log scale, within [1, horizon]")
 _WILSON = "Wilson score interval (Wilson, 1927, JASA 22)"
@@ -181,16 +184,18 @@ ENTRIES: dict[str, Entry] = {
                              "survival analysis, one observation per replication", _KM),
     "broken_down": Entry("share of replications that broke down", "0 to 1",
                          "Share of replications with at least one non-collusive period.", "counted", _WILSON),
-    "price": Entry("mean market price", "price", "Average market price per period.", "counted", _RATIO),
+    "price": Entry("mean market price", "price", "Average market price per period.", "counted", _RATIO_MEAN),
     "overcharge": Entry("overcharge over the static-Nash price", "share of the Nash price",
-                        "Mean price / static-Nash price - 1.", "affine map of the mean price", _RATIO),
+                        "Mean price / static-Nash price - 1.", "affine map of the mean price", _RATIO_MEAN),
     "consumer_surplus": Entry("mean consumer surplus", "{money}", "Consumer surplus per period.",
-                              "closed form of the demand system", _RATIO),
-    "joint_profit": Entry("mean joint profit", "{money}", "Sum of the firms' profits per period.", "counted", _RATIO),
+                              "closed form of the demand system", _RATIO_MEAN),
+    "joint_profit": Entry("mean joint profit", "{money}", "Sum of the firms' profits per period.", "counted",
+                          _RATIO_MEAN),
     "profit_gain": Entry("profit gain", "share of the gain",
                          "(profit - static-Nash profit) / (collusive profit - static-Nash profit): 0 at Nash, 1 at "
-                         "the agreement.", "Calvano, Calzolari, Denicolo and Pastorello (2020), AER 110(10)", _RATIO),
-    "profit": Entry("mean profit", "{money}", "The firm's profit per period.", "counted", _RATIO),
+                         "the agreement.", "Calvano, Calzolari, Denicolo and Pastorello (2020), AER 110(10)",
+                         _RATIO_MEAN),
+    "profit": Entry("mean profit", "{money}", "The firm's profit per period.", "counted", _RATIO_MEAN),
     "discounted_profit": Entry("discounted profit", "{money} (discounted sum)",
                                "Sum over the horizon of delta^t times the profit.", "counted", _MEAN),
     "nash_price": Entry("static-Nash price", "price", "Market price of the static Nash equilibrium.", "stage game"),

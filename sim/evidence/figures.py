@@ -51,26 +51,49 @@ def _plt():
 class SweepData:
     """Stored results arranged by swept values.
 
+    Parameters zipped together (``[sweep] zip``, or ``mode = "zip"``) form one dimension: a cell is found by the
+    position of its group's values, so fixing any path of a group (its lead, the first path named, or a partner)
+    fixes the whole group.
+
     Attributes
     ----------
     parameters : list of Parameter
     rows : list of CellRow
     units : tuple of (str or None, str or None)
         The experiment's currency and period (labels of money).
+    groups : tuple of tuple of str
+        Paths varying together, the lead first (the experiment's ``groups``); empty: every path alone.
     """
 
     parameters: list
     rows: list
     units: tuple = field(default=(None, None))
+    groups: tuple = field(default=())
 
     def __post_init__(self):
         self.by_path = {p.path: p for p in self.parameters}
+        known = {q for g in self.groups for q in g}
+        self.groups = tuple(tuple(g) for g in self.groups) + tuple(
+            (p.path,) for p in self.parameters if p.path not in known)
+        self.lead = {q: g[0] for g in self.groups for q in g}
         self.index = {}
         for r in self.rows:
             if r.status != "ok":
                 continue
-            key = tuple(r.labels[p.path] for p in self.parameters)
-            self.index[key] = r.metrics
+            self.index[self._key(r.labels)] = r.metrics
+
+    def _key(self, labels: dict):
+        # one position per group, read from the first of its paths that ``labels`` names
+        key = []
+        for g in self.groups:
+            path = next((q for q in g if q in labels), None)
+            if path is None:
+                return None
+            try:
+                key.append(self.by_path[path].labels.index(labels[path]))
+            except ValueError:
+                return None
+        return tuple(key)
 
     def value(self, fixed: dict, metric: str) -> float:
         """The metric of the cell whose swept values have labels ``fixed`` (path -> label); nan if none.
@@ -84,8 +107,7 @@ class SweepData:
         -------
         float
         """
-        key = tuple(fixed[p.path] for p in self.parameters)
-        m = self.index.get(key)
+        m = self.index.get(self._key(fixed))
         return math.nan if m is None else float(m.get(metric, math.nan))
 
     def has(self, metric: str) -> bool:
@@ -101,14 +123,27 @@ class SweepData:
         """
         return any(metric in m for m in self.index.values())
 
+    def partners(self, path: str) -> tuple:
+        """The paths zipped with ``path`` (``path`` itself included, the lead first).
+
+        Parameters
+        ----------
+        path : str
+
+        Returns
+        -------
+        tuple of str
+        """
+        return next(g for g in self.groups if path in g)
+
     def fixed_labels(self, exclude, at: dict | None = None) -> dict:
-        """Labels of the parameters not in ``exclude``: those in ``at`` (path -> label), the others take one
-        value each.
+        """Labels fixing the groups with no path in ``exclude``: a path given in ``at`` (path -> label) fixes its
+        group, the others take their first value.
 
         Parameters
         ----------
         exclude : collection of str
-            Paths left out.
+            Paths left out (with every path zipped to them).
         at : dict, optional
 
         Returns
@@ -116,7 +151,16 @@ class SweepData:
         dict
         """
         at = at or {}
-        return {p.path: at.get(p.path, p.labels[0]) for p in self.parameters if p.path not in exclude}
+        out = {}
+        for g in self.groups:
+            if any(q in exclude for q in g):
+                continue
+            given = next((q for q in g if q in at), None)
+            if given is not None:
+                out[given] = at[given]
+            else:
+                out[g[0]] = self.by_path[g[0]].labels[0]
+        return out
 
 
 def _axis_values(p) -> np.ndarray:
@@ -390,7 +434,7 @@ def heatmap(data: SweepData, x: str, y: str, metric: str, threshold: str | None 
         axes[k // nc][k % nc].set_visible(False)
     if mesh is not None:
         cb = fig.colorbar(mesh, ax=axes.ravel().tolist(), shrink=0.9)
-        cb.set_label(_wrap(metric_axis(metric, data), 40), fontsize=FONT)
+        cb.set_label(_wrap_axis(metric_axis(metric, data), 40), fontsize=FONT)
         cb.ax.tick_params(labelsize=SMALL)
     if legend:
         fit_legend(fig, list(legend.values()), list(legend), ncol=1)
@@ -527,6 +571,15 @@ def _wrap(text: str, width: int) -> str:
     return "\n".join(textwrap.wrap(text, width)) or text
 
 
+def _wrap_axis(text: str, width: int) -> str:
+    """An axis label wrapped to ``width`` characters, its unit in brackets kept whole on a line of its own when
+    the label does not fit on one."""
+    if len(text) <= width or " [" not in text:
+        return _wrap(text, width)
+    label, unit = text.split(" [", 1)
+    return _wrap(label, width) + "\n" + _wrap("[" + unit, width)
+
+
 def _threshold_line(ax, T, xs, xp, xe, yp, threshold, data, legend) -> None:
     if not threshold or not np.isfinite(T).any():
         return
@@ -618,7 +671,7 @@ def lines(data: SweepData, x: str, metric: str, analytic: str | None = None, gro
             ax.set_xscale("log")
         if facet:
             ax.set_title(_wrap(str(fv), _title_chars(fig, nc)), fontsize=FONT)
-        _panel_labels(ax, k, nr, nc, len(facets), _label(x, data), _wrap(metric_axis(metric, data), 30))
+        _panel_labels(ax, k, nr, nc, len(facets), _label(x, data), _wrap_axis(metric_axis(metric, data), 30))
         ax.tick_params(labelsize=SMALL)
         ax.grid(alpha=0.3)
         for h, lab in zip(*ax.get_legend_handles_labels()):

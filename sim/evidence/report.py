@@ -10,7 +10,8 @@ the same whenever it is written.
 Figures are those of ``[[report.figures]]``; without them, a default set: a heatmap of each headline
 metric over the first two numeric swept parameters (with the kind's analytic threshold curve) and line
 plots against the swept discount factor or the first numeric parameter (with confidence bands and the
-analytic prediction), one panel or line per value of the other swept parameters.
+analytic prediction), one panel or line per value of the other swept parameters. Paths zipped together are one
+dimension: a figure names the group once, by its lead (the first path of the group).
 """
 
 from __future__ import annotations
@@ -121,6 +122,18 @@ def _headline(exp, kind) -> list[str]:
     return out
 
 
+def _dimensions(exp) -> list:
+    """One parameter per dimension of the sweep with more than one value: a zipped group counts once, as its lead
+    (the first path named) -- or, when the lead takes no numbers, its first numeric partner, so that it can be an
+    axis."""
+    out = []
+    for g in exp.groups or [(p.path,) for p in exp.parameters]:
+        ps = [exp.parameter(q) for q in g]
+        if len(ps[0]) > 1:
+            out.append(ps[0] if ps[0].numeric else next((p for p in ps if p.numeric), ps[0]))
+    return out
+
+
 def default_figures(exp, kind, data) -> list:
     """The figures drawn when the experiment names none (see the module notes).
 
@@ -135,7 +148,7 @@ def default_figures(exp, kind, data) -> list:
     list
     """
 
-    multi = [p for p in exp.parameters if len(p) > 1]
+    multi = _dimensions(exp)
     numeric = [p for p in multi if p.numeric]
     heads = [m for m in kind.headline[:2] if data.has(m)]
     if data.has("deviation.gain"):
@@ -399,7 +412,7 @@ def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) 
         "recomputed for the report.",
     ])
     terms = terms_rows(list(exp.metric_names), [p.path for p in exp.parameters], units)
-    b.heading("Methods appendix")
+    b.heading("Methods appendix", appendix=True)
     b.paragraph("How each number of this bundle is computed, with its published source (\"common practice\" where "
                 "the trade has none); the glossary below gives each number's definition.")
     b.table("methods", ["method and source", "interval", "numbers computed with it"], methods_rows(terms),
@@ -424,7 +437,7 @@ def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) 
     ])
     b.code(f"supergame run {EXPERIMENT_COPY}          # the same numbers, in a new run folder\n"
            f"supergame verify {folder}           # check the hashes and re-run a sample of cells")
-    b.heading("Glossary")
+    b.heading("Glossary", appendix=True)
     b.table("glossary", ["key", "label", "unit", "definition", "method and source", "interval"], terms,
             caption="Every number of the bundle: its stored name (key, the column name in the CSV files), label, "
                     "unit, definition, method and interval", max_rows=len(terms) + 1)
@@ -461,7 +474,7 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
             b.paragraph("These are the file's settings; the values of "
                         + ", ".join(f"`{p.path}`" for p in exp.parameters) + " are those of the sweep below.",
                         note=True)
-        data = SweepData(list(exp.parameters), rows, units)
+        data = SweepData(list(exp.parameters), rows, units, exp.groups)
         heads = _headline(exp, kind)
         if exp.parameters:
             b.heading("Sweep")

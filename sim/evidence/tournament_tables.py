@@ -139,7 +139,7 @@ def setup_lines(out: TournamentOutcome) -> list[str]:
     why = "" if b["agreement_given"] else (
         " (the default where firms differ: each keeps its static-Nash share)" if b["agreement"] == "proportional"
         else " (the default)")
-    per = "; ".join(f"firm {i + 1} {number(n, 2)} and {number(c, 2)}"
+    per = "; ".join(f"firm {i + 1}: {number(n, 2)} and {number(c, 2)}"
                     for i, (n, c) in enumerate(zip(b["nash_profit"], b["collusive_profit"], strict=True)))
     lines.append(f"Agreement: {agreement}{why}. Profit per {out.units['period']} ({out.units['currency']}) at the "
                  f"static Nash equilibrium and under the agreement: {per}")

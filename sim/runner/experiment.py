@@ -543,7 +543,7 @@ def experiment_from_dict(doc: dict, *, text: str | None = None, source: str | No
         params, groups, mode = _parse_sweep(doc["sweep"])
     else:
         params, groups, mode = (), (), "grid"
-    report = parse_report(doc.get("report", {}), params)
+    report = parse_report(doc.get("report", {}), params, groups)
     exp = Experiment(name, kind_name, desc, base, params, groups, mode, report, text,
                      hashlib.sha256(text.encode("utf-8")).hexdigest() if text is not None else None, source)
     swept = {p.path for p in params}

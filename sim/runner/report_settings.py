@@ -62,7 +62,7 @@ class ReportSettings:
     figures: tuple = ()
 
 
-def parse_report(table: Any, params: tuple) -> ReportSettings:
+def parse_report(table: Any, params: tuple, groups: tuple = ()) -> ReportSettings:
     """The validated ``[report]`` table.
 
     Parameters
@@ -71,6 +71,9 @@ def parse_report(table: Any, params: tuple) -> ReportSettings:
         The file's ``[report]`` table (empty when absent).
     params : tuple of Parameter
         The experiment's swept parameters (figures name their axes among them).
+    groups : tuple of tuple of str
+        Paths zipped together (the experiment's ``groups``): a group is one dimension of the sweep, shown by
+        naming any one of its paths.
 
     Returns
     -------
@@ -94,6 +97,8 @@ def parse_report(table: Any, params: tuple) -> ReportSettings:
     if not isinstance(figs, list):
         raise InputError("report.figures", "must be an array of tables ([[report.figures]] entries)")
     swept = {p.path: p for p in params}
+    group_of = {q: tuple(g) for g in groups for q in g}
+    group_of.update({p.path: (p.path,) for p in params if p.path not in group_of})
     out = []
     names = set()
     for i, f in enumerate(figs):
@@ -118,6 +123,11 @@ def parse_report(table: Any, params: tuple) -> ReportSettings:
                 axes[k] = cp
         if len(set(axes.values())) != len(axes):
             raise InputError(key, "x, y, group and facet must be different swept parameters")
+        dims = {k: group_of[v] for k, v in axes.items()}
+        if len(set(dims.values())) != len(dims):
+            a, b = [k for k in dims if list(dims.values()).count(dims[k]) > 1][:2]
+            raise InputError(f"{key}.{b}", f"{axes[b]} varies together with {axes[a]} ({a}) in a zip group: "
+                                           "one of them shows both")
         if not swept[axes["x"]].numeric:
             raise InputError(f"{key}.x", f"{axes['x']} must take numbers to be an axis; use it as group or facet")
         if typ == "heatmap":
@@ -134,8 +144,12 @@ def parse_report(table: Any, params: tuple) -> ReportSettings:
         if level is not None and (not is_real(level) or not math.isfinite(float(level))):
             raise InputError(f"{key}.level", f"must be a finite number, got {level!r}")
         at = _parse_at(f.get("at", {}), key, swept, axes)
-        fixed = {p for p, _ in at}
-        rest = [p for p in params if p.path not in axes.values() and p.path not in fixed and len(p) > 1]
+        for p, _ in at:
+            if group_of[p] in {group_of[q] for q in axes.values()}:
+                raise InputError(f"{key}.at.{p}", f"{p} varies together with an axis, group or facet of this figure "
+                                                  "in a zip group")
+        shown = {group_of[q] for q in [*axes.values(), *(p for p, _ in at)]}
+        rest = [p for p in params if group_of[p.path] not in shown and group_of[p.path][0] == p.path and len(p) > 1]
         if rest:
             p = rest[0]
             raise InputError(key, f"the sweep also varies {p.path} ({len(p)} values); name it as "

@@ -435,7 +435,7 @@ def test_text_names_the_agreement(tmp_path, capsys):
     # Nash profits (a - 2 c_i + c_j)^2 / 9 = 981.78 and 747.11 (textbook linear Cournot, a = 100, b = 1)
     assert ("Agreement: quantities proportional to static Nash (the default where firms differ: each keeps its "
             "static-Nash share). Profit per period (currency units) at the static Nash equilibrium and under the "
-            "agreement: firm 1 981.78 and 1,081.07; firm 2 747.11 and 860.93") in out
+            "agreement: firm 1: 981.78 and 1,081.07; firm 2: 747.11 and 860.93") in out
     ranked = text + '\n[collusion]\nagreement = "joint"\n'
     ranked = ranked.replace("bootstrap = 50", 'bootstrap = 50\nscore = "discounted_profit"')
     assert main(["tournament", write(tmp_path, ranked, "j.toml")]) == 0

@@ -16,6 +16,7 @@ reported as ``analytic.deviation.gain`` (Friedman, 1971).
 from __future__ import annotations
 
 import math
+import pickle
 
 import numpy as np
 
@@ -222,7 +223,7 @@ def _equilibrium_triggers(cfg: dict):
         raise InputError(key, "'equilibrium' needs firms that see only a noisy market price (monitoring.signal = "
                               "\"price\" and monitoring.sigma above 0)")
     try:
-        scheme = trigger_price_equilibrium(cfg["market"], cfg["run"]["delta"], mon.noise, mon.sigma)
+        scheme = _equilibrium_of(cfg["market"].spec(), cfg["run"]["delta"], mon.noise, mon.sigma)
     except InputError as exc:
         raise InputError(key, f"no trigger-price equilibrium in this market: {exc.message}") from None
     for k in wants:
@@ -234,6 +235,22 @@ def _equilibrium_triggers(cfg: dict):
             ents[k] = {**ents[k], "trigger": float(scheme.trigger), "collude": float(scheme.quantity),
                        "length": "forever" if scheme.T is None else int(scheme.T)}
     return scheme
+
+
+#: the best trigger-price equilibrium of a market, computed once per process: a cell's document is prepared several
+#: times (validation, planning, running, reporting) and the search takes seconds; the scheme is a frozen record and
+#: the same inputs give the same scheme, so results do not depend on the cache
+_EQUILIBRIA: dict = {}
+_EQUILIBRIA_KEPT = 256
+
+
+def _equilibrium_of(spec, delta: float, noise: str, sigma: float):
+    key = (pickle.dumps(spec), float(delta), str(noise), float(sigma))
+    if key not in _EQUILIBRIA:
+        if len(_EQUILIBRIA) >= _EQUILIBRIA_KEPT:
+            _EQUILIBRIA.pop(next(iter(_EQUILIBRIA)))
+        _EQUILIBRIA[key] = trigger_price_equilibrium(spec, delta, noise, sigma)
+    return _EQUILIBRIA[key]
 
 
 def _simulate_names(cfg: dict) -> list[str]:
