@@ -128,18 +128,7 @@ def parse_report(table: Any, params: tuple, groups: tuple = ()) -> ReportSetting
             a, b = [k for k in dims if list(dims.values()).count(dims[k]) > 1][:2]
             raise InputError(f"{key}.{b}", f"{axes[b]} varies together with {axes[a]} ({a}) in a zip group: "
                                            "one of them shows both")
-        if not swept[axes["x"]].numeric:
-            raise InputError(f"{key}.x", f"{axes['x']} must take numbers to be an axis; use it as group or facet")
-        if typ == "heatmap":
-            if not swept[axes["y"]].numeric:
-                raise InputError(f"{key}.y", f"{axes['y']} must take numbers to be an axis; use it as facet")
-            if "group" in f:
-                raise InputError(f"{key}.group", "is for line plots; a heatmap takes facet")
-            if "analytic" in f:
-                raise InputError(f"{key}.analytic", "is for line plots; a heatmap takes threshold and level")
-        else:
-            if "level" in f:
-                raise InputError(f"{key}.level", "is for heatmaps")
+        _check_axes(f, key, typ, swept, axes)
         level = f.get("level")
         if level is not None and (not is_real(level) or not math.isfinite(float(level))):
             raise InputError(f"{key}.level", f"must be a finite number, got {level!r}")
@@ -168,6 +157,22 @@ def parse_report(table: Any, params: tuple, groups: tuple = ()) -> ReportSetting
         names.add(fname)
         out.append(spec)
     return ReportSettings(title=title, metrics=metrics, figures=tuple(out))
+
+
+def _check_axes(f: dict, key: str, typ: str, swept: dict, axes: dict) -> None:
+    """Axes that take numbers, and the keys of the other figure type refused."""
+    if not swept[axes["x"]].numeric:
+        raise InputError(f"{key}.x", f"{axes['x']} must take numbers to be an axis; use it as group or facet")
+    if typ == "heatmap":
+        if not swept[axes["y"]].numeric:
+            raise InputError(f"{key}.y", f"{axes['y']} must take numbers to be an axis; use it as facet")
+        if "group" in f:
+            raise InputError(f"{key}.group", "is for line plots; a heatmap takes facet")
+        if "analytic" in f:
+            raise InputError(f"{key}.analytic", "is for line plots; a heatmap takes threshold and level")
+    else:
+        if "level" in f:
+            raise InputError(f"{key}.level", "is for heatmaps")
 
 
 def _flatten_at(t: dict, prefix: str = "") -> list:
