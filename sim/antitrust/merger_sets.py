@@ -27,7 +27,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import linprog
 
 from sim.core.errors import InputError
 from sim.core.records import Record
@@ -41,7 +40,7 @@ from sim.theory.any_punishment import (
 )
 from sim.theory.discretize import discretize
 from sim.theory.payoff_sets import equilibrium_payoffs
-from sim.theory.practice import sustainable_frontier
+from sim.theory.practice import sustainable_frontier, symmetric_slice
 
 __all__ = ["PAYOFF_SET_KEYS", "PayoffSetSide", "PayoffSetsComparison", "PayoffSetsSpec", "check_payoff_sets",
            "compare_payoff_sets", "estimate_payoff_sets", "symmetric_slice"]
@@ -134,39 +133,6 @@ def estimate_payoff_sets(spec: PayoffSetsSpec) -> dict:
     per_set_b, per_set_a = b["seconds"] / b["sets"], a["seconds"] / a["sets"]
     return {"bytes": max(b["bytes"], a["bytes"]), "sets": b["sets"] + a["sets"] + 2,
             "seconds": b["seconds"] + a["seconds"] + per_set_b + per_set_a}
-
-
-def symmetric_slice(vertices) -> tuple:
-    """The symmetric slice of a convex set: the smallest and largest ``t`` with ``(t, ..., t)`` in the hull of
-    ``vertices`` (two linear programmes, HiGHS).
-
-    Parameters
-    ----------
-    vertices : array_like of shape (k, n_firms)
-
-    Returns
-    -------
-    tuple of float
-        ``(t_min, t_max)``; nan when the set is empty or misses the diagonal.
-    """
-    P = np.asarray(vertices, dtype=float)
-    if P.ndim != 2 or P.shape[0] == 0:
-        return math.nan, math.nan
-    k, n = P.shape
-    # variables: weights mu (k) and t; P' mu = t 1, sum mu = 1, mu >= 0
-    A_eq = np.zeros((n + 1, k + 1))
-    A_eq[:n, :k] = P.T
-    A_eq[:n, -1] = -1.0
-    A_eq[n, :k] = 1.0
-    b_eq = np.zeros(n + 1)
-    b_eq[n] = 1.0
-    out = []
-    for sign in (1.0, -1.0):
-        c = np.zeros(k + 1)
-        c[-1] = sign
-        res = linprog(c, A_eq=A_eq, b_eq=b_eq, bounds=[(0, None)] * k + [(None, None)], method="highs")
-        out.append(float(res.x[-1]) if res.status == 0 else math.nan)
-    return out[0], out[1]
 
 
 @dataclass(frozen=True)

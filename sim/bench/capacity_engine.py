@@ -10,9 +10,8 @@ so the ratio does not depend on the machine. Reports firm-periods per second and
 
 from __future__ import annotations
 
-import time
-
 from sim.bench import BenchOptions
+from sim.bench.engine import best_time
 from sim.models.capacity_repeated import CapacityStageMarket
 from sim.models.market import market_from_dict
 from sim.simulation.capacity import capacity_stage_levels
@@ -29,15 +28,6 @@ LINEAR_MARKET = {"model": "bertrand", "demand": "linear", "intercept": 140.0, "s
                  "n_firms": 5}
 _LINEUPS = {"compete": [{"strategy": "always_compete", "seats": 5}],
             "grim trigger": [{"strategy": "grim_trigger", "seats": 5}]}
-
-
-def _best(fn, repeat: int) -> float:
-    best = float("inf")
-    for _ in range(max(1, repeat)):
-        t0 = time.perf_counter()
-        fn()
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def capacity_engine_benchmark(opts: BenchOptions) -> dict:
@@ -63,7 +53,7 @@ def capacity_engine_benchmark(opts: BenchOptions) -> dict:
         rates = {}
         for market, game in games.items():
             run_game(game, 10, 10, 0.9, 1, threads=1, progress=False)  # compile or load the cache
-            t = _best(lambda g=game: run_game(g, periods, reps, 0.9, 1, threads=1, progress=False), opts.repeat)
+            t = best_time(lambda g=game: run_game(g, periods, reps, 0.9, 1, threads=1, progress=False), opts.repeat)
             rates[market] = periods * reps * 5 / t
             out[f"{name}, {market}, firm-periods per second"] = rates[market]
         out["ratios"][f"{name}: capacity / linear Bertrand"] = rates["capacity"] / rates["linear Bertrand"]

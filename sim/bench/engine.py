@@ -54,7 +54,19 @@ def _engine_game():
     return prepare_game(market_from_dict(w["market"]), w["strategies"], w["monitoring"])
 
 
-def _best(fn, repeat: int) -> float:
+def best_time(fn, repeat: int) -> float:
+    """The shortest wall time of ``repeat`` calls of ``fn`` (at least one), in seconds.
+
+    Parameters
+    ----------
+    fn : callable
+        Called without arguments.
+    repeat : int
+
+    Returns
+    -------
+    float
+    """
     best = float("inf")
     for _ in range(max(1, repeat)):
         t0 = time.perf_counter()
@@ -103,8 +115,8 @@ def engine_benchmark(opts: BenchOptions) -> dict:
     def kernel(threads):
         return lambda: run_game(game, periods, reps, delta, seed, threads=threads, progress=False)
 
-    t1 = _best(kernel(1), opts.repeat)
-    tn = _best(kernel(opts.threads), opts.repeat) if opts.threads > 1 else t1
+    t1 = best_time(kernel(1), opts.repeat)
+    tn = best_time(kernel(opts.threads), opts.repeat) if opts.threads > 1 else t1
     work = periods * reps * n
     # the reference on a slice of the same workload (same periods, the first replications)
     ref_reps = 2 if opts.quick else 12
@@ -174,7 +186,7 @@ def matches_benchmark(opts: BenchOptions) -> dict:
         for k, pair in enumerate(pairs):
             run_game(compiled[pair], periods, reps, 0.95, 0, key=(k,), threads=opts.threads, progress=False)
 
-    t_all = _best(play, 1 if opts.quick else max(1, opts.repeat - 1))
+    t_all = best_time(play, 1 if opts.quick else max(1, opts.repeat - 1))
     tiny = compiled[pairs[0]]
     n_calls = 200
     t0 = time.perf_counter()

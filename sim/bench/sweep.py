@@ -5,9 +5,9 @@ from __future__ import annotations
 import json
 import subprocess
 import sys
-import time
 import tomllib
 
+from sim.bench.engine import best_time
 from sim.core.parallel import usable_cores
 from sim.runner.experiment import experiment_from_dict
 from sim.runner.kinds import CellContext
@@ -115,12 +115,7 @@ def bench_section(opts) -> dict:
         return experiment_from_dict(tomllib.loads(text), text=text, source="bench")
 
     def best(fn):
-        t_best = float("inf")
-        for _ in range(repeat):
-            t0 = time.perf_counter()
-            fn()
-            t_best = min(t_best, time.perf_counter() - t0)
-        return t_best
+        return best_time(fn, repeat)
 
     res: dict = {}
     for n in sizes:

@@ -43,6 +43,7 @@ __all__ = [
     "named_thresholds",
     "penal_codes",
     "sustainable_frontier",
+    "symmetric_slice",
 ]
 
 _KEY = "payoff_set"
@@ -344,22 +345,37 @@ class Frontier:
                    array_from_plain(data["pareto"], n), number(data["accuracy"], float("inf")))
 
 
-def _symmetric_max(P: np.ndarray) -> float:
-    """Largest ``t`` with ``(t, ..., t)`` in the hull of ``P`` (a linear programme, HiGHS)."""
-    if P.shape[0] == 0:
-        return math.nan
+def symmetric_slice(vertices) -> tuple:
+    """The symmetric slice of a convex set: the smallest and largest ``t`` with ``(t, ..., t)`` in the hull of
+    ``vertices`` (two linear programmes, HiGHS).
+
+    Parameters
+    ----------
+    vertices : array_like of shape (k, n_firms)
+
+    Returns
+    -------
+    tuple of float
+        ``(t_min, t_max)``; nan when the set is empty or misses the diagonal.
+    """
+    P = np.asarray(vertices, dtype=float)
+    if P.ndim != 2 or P.shape[0] == 0:
+        return math.nan, math.nan
     k, n = P.shape
-    # variables: weights mu (k) and t; maximise t subject to P' mu = t 1, sum mu = 1
-    c = np.zeros(k + 1)
-    c[-1] = -1.0
+    # variables: weights mu (k) and t; P' mu = t 1, sum mu = 1, mu >= 0
     A_eq = np.zeros((n + 1, k + 1))
     A_eq[:n, :k] = P.T
     A_eq[:n, -1] = -1.0
     A_eq[n, :k] = 1.0
     b_eq = np.zeros(n + 1)
     b_eq[n] = 1.0
-    res = linprog(c, A_eq=A_eq, b_eq=b_eq, bounds=[(0, None)] * k + [(None, None)], method="highs")
-    return float(res.x[-1]) if res.status == 0 else math.nan
+    out = []
+    for sign in (1.0, -1.0):
+        c = np.zeros(k + 1)
+        c[-1] = sign
+        res = linprog(c, A_eq=A_eq, b_eq=b_eq, bounds=[(0, None)] * k + [(None, None)], method="highs")
+        out.append(float(res.x[-1]) if res.status == 0 else math.nan)
+    return out[0], out[1]
 
 
 def sustainable_frontier(result: PayoffSet) -> Frontier:
@@ -380,7 +396,7 @@ def sustainable_frontier(result: PayoffSet) -> Frontier:
         return float(f(P).max()) if P.shape[0] else math.nan
 
     joint = (best(I, lambda P: P.sum(axis=1)), best(O, lambda P: P.sum(axis=1)))
-    sym = (_symmetric_max(I), _symmetric_max(O))
+    sym = (symmetric_slice(I)[1], symmetric_slice(O)[1])
     per = np.array([[best(I, lambda P, i=i: P[:, i]), best(O, lambda P, i=i: P[:, i])] for i in range(n)])
     pareto = np.zeros((0, n))
     if I.shape[0]:
