@@ -53,6 +53,7 @@ from sim.antitrust.options import (
     scaled_monitoring,
 )
 from sim.antitrust.result import Assessment, MarketSide
+from sim.antitrust.screens import maverick, pair_thresholds
 from sim.antitrust.sensitivity import robustness, sensitivity
 from sim.antitrust.sides import asymmetry, simulate_side, solve_side, symmetric_counterpart
 from sim.core.errors import InputError
@@ -124,6 +125,8 @@ class PreparedAssessment:
         The validated ``[assess.payoff_sets]`` table (None: no payoff sets).
     contact : ContactSetup, optional
         The validated ``[[assess.other_markets]]`` with the contact game (None: no other markets).
+    pair_mergers : bool
+        Compute the threshold after every two-firm merger of the pre-merger market and the maverick.
     """
 
     opts: dict
@@ -146,6 +149,7 @@ class PreparedAssessment:
     period: str | None = None
     payoff_sets: Any = None
     contact: Any = None
+    pair_mergers: bool = False
 
 
 def assess(source, merger, monitoring=None, lineup=None, run=None, agreement: str = "joint", scheme: str = "grim",
@@ -153,7 +157,7 @@ def assess(source, merger, monitoring=None, lineup=None, run=None, agreement: st
            partial=None, growth: float = 0.02, simulate: bool = True, transparency_scale: float = 2.0,
            sensitivity: dict | None = None, progress=None, key=(0,), name: str = "assessment",
            currency: str | None = None, period: str | None = None, payoff_sets: dict | None = None,
-           other_markets: list | None = None) -> Assessment:
+           other_markets: list | None = None, pair_mergers: bool = False) -> Assessment:
     """Compare the scope for tacit collusion before and after a merger.
 
     Parameters
@@ -216,6 +220,9 @@ def assess(source, merger, monitoring=None, lineup=None, run=None, agreement: st
     other_markets : list of dict, optional
         ``[[assess.other_markets]]``: markets where the firms also meet (``market``, ``firms``, ``label``,
         ``growth``), for the multimarket-contact row (see :mod:`sim.antitrust.contact_factor`).
+    pair_mergers : bool
+        ``assess.pair_mergers``: the grim-trigger threshold of the pre-merger market after every two-firm merger and
+        the maverick (:func:`sim.antitrust.screens.pair_thresholds`, :func:`sim.antitrust.screens.maverick`).
 
     Returns
     -------
@@ -226,7 +233,7 @@ def assess(source, merger, monitoring=None, lineup=None, run=None, agreement: st
                                   partial=partial, growth=growth, simulate=simulate,
                                   transparency_scale=transparency_scale, sensitivity=sensitivity, name=name,
                                   currency=currency, period=period, payoff_sets=payoff_sets,
-                                  other_markets=other_markets)
+                                  other_markets=other_markets, pair_mergers=pair_mergers)
     return run_assessment(prepared, progress=progress, key=key)
 
 
@@ -311,7 +318,7 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
                        simulate: bool = True, transparency_scale: float = 2.0,
                        sensitivity: dict | None = None, name: str = "assessment", currency: str | None = None,
                        period: str | None = None, payoff_sets: dict | None = None,
-                       other_markets: list | None = None) -> PreparedAssessment:
+                       other_markets: list | None = None, pair_mergers: bool = False) -> PreparedAssessment:
     """Validate the inputs of :func:`assess`, calibrate, build the post-merger market, compile the line-ups and
     build every monitoring setting the simulations will use (the experiment's, the rescaled one of the
     transparency factor, one per noise-sensitivity scale). No threshold or simulation is computed yet.
@@ -319,7 +326,7 @@ def prepare_assessment(source, merger, monitoring=None, lineup=None, run=None, a
     Parameters
     ----------
     source, merger, monitoring, lineup, run, agreement, scheme, length, punishments, deltas, partial, growth, \
-simulate, transparency_scale, sensitivity, name, currency, period, payoff_sets, other_markets : object
+simulate, transparency_scale, sensitivity, name, currency, period, payoff_sets, other_markets, pair_mergers : object
         As in :func:`assess`.
 
     Returns
@@ -352,13 +359,19 @@ simulate, transparency_scale, sensitivity, name, currency, period, payoff_sets, 
     settings = _settings(opts, runs, eff_delta, mon, entries, post_entries, sens, axes, mres, merger)
     sets = check_payoff_sets(payoff_sets, mres, opts["agreement"], eff_delta)
     contact = check_other_markets(other_markets, mres, opts["agreement"], mres.efficiency)
+    if not isinstance(pair_mergers, bool):
+        raise InputError("assess.pair_mergers", f"must be true or false, got {pair_mergers!r}")
+    if pair_mergers and pre_ms.n_firms < 3:
+        raise InputError("assess.pair_mergers", f"a two-firm merger leaves a monopoly in a market of "
+                                                f"{pre_ms.n_firms} firms; the pair table needs three or more")
     if sets is not None:
         settings["payoff_sets"] = {"grid": list(sets.before.grid), "directions_before": sets.before.directions,
                                    "directions_after": sets.after.directions, "tolerance": sets.before.tolerance}
     if contact is not None:
         settings["other_markets"] = [cm.to_dict() for cm in contact.game.markets[1:]]
     return PreparedAssessment(opts, data, calibration, merger, mres, mon, runs, sens, entries, post_entries, games,
-                              eff_delta, settings, rescaled, noise_mons, name, currency, period, sets, contact)
+                              eff_delta, settings, rescaled, noise_mons, name, currency, period, sets, contact,
+                              pair_mergers)
 
 
 def _simulate(p: PreparedAssessment, sides: dict, key: tuple, threads, bar: _Progress) -> None:
@@ -399,7 +412,7 @@ def run_assessment(p: PreparedAssessment, progress=None, key=(0,), threads: int 
     n_noise = len(sens.get("noise", [])) if opts["simulate"] else 0
     n_delta = len(sens.get("delta", [])) if "delta" in sens else 0
     total = (2 * (2 + len(opts["deltas"])) + (4 if opts["simulate"] else 0) + 3 + n_sens + n_noise + n_delta
-             + (2 if p.payoff_sets is not None else 0) + (1 if p.contact is not None else 0))
+             + (2 if p.payoff_sets is not None else 0) + (1 if p.contact is not None else 0) + int(p.pair_mergers))
     bar = _Progress(total, progress)
     try:
         sides = {label: solve_side(label, mk, names, opts, bar.step)
@@ -415,6 +428,11 @@ def run_assessment(p: PreparedAssessment, progress=None, key=(0,), threads: int 
         sets = None
         if p.payoff_sets is not None:
             sets = compare_payoff_sets(p.payoff_sets, mres, opts["agreement"], bar.step).to_dict()
+        pairs = None
+        if p.pair_mergers:
+            pairs = {"pairs": pair_thresholds(mres.pre, mres.names_pre, opts["agreement"]).to_dict(),
+                     "maverick": maverick(mres.pre, mres.names_pre, opts["agreement"]).to_dict()}
+            bar.step("pair mergers and the maverick")
         sens_out = sensitivity(p, before, after, bar.step, key, threads)
         if sens_out:
             concl["robustness"] = robustness(sens_out, concl)
@@ -426,4 +444,6 @@ def run_assessment(p: PreparedAssessment, progress=None, key=(0,), threads: int 
              "factors": factors, "sensitivity": sens_out, "assumptions": said}
     if sets is not None:
         parts["payoff_sets"] = sets
+    if pairs is not None:
+        parts["pair_mergers"] = pairs
     return Assessment.from_parts(parts, name=p.name, currency=p.currency, period=p.period)

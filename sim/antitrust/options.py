@@ -31,7 +31,7 @@ ASSESS_TABLES = ("experiment", "market", "data", "merger", "collusion", "monitor
                  "assess")
 _EXPERIMENT_KEYS = ("name", "kind", "description", "currency", "period")
 _ASSESS_KEYS = ("scheme", "length", "punishments", "deltas", "partial", "growth", "simulate", "transparency_scale",
-                "sensitivity", "payoff_sets", "other_markets")
+                "sensitivity", "payoff_sets", "other_markets", "pair_mergers")
 _SENS_KEYS = ("margin", "elasticity", "market_elasticity", "size", "delta", "noise")
 _NOISE_PARAMS = ("sigma", "perception_error", "implementation_error")
 

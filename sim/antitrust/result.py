@@ -150,6 +150,10 @@ class Assessment(Record):
     payoff_sets : PayoffSetsComparison or None
         The equilibrium payoff sets before and after (:mod:`sim.antitrust.merger_sets`); None when
         ``[assess.payoff_sets]`` is not given (and then absent from :meth:`to_dict`).
+    pair_mergers : dict or None
+        ``pairs`` (:meth:`sim.antitrust.screens.PairTable.to_dict`) and ``maverick``
+        (:meth:`sim.antitrust.screens.Maverick.to_dict`) of the pre-merger market; None when
+        ``assess.pair_mergers`` is not set (and then absent from :meth:`to_dict`).
     """
 
     settings: dict
@@ -166,6 +170,7 @@ class Assessment(Record):
     currency: str | None = None
     period: str | None = None
     payoff_sets: PayoffSetsComparison | None = None
+    pair_mergers: dict | None = None
 
     def to_dict(self) -> dict:
         """The assessment as plain JSON data, without the payoff sets it does not have.
@@ -175,8 +180,9 @@ class Assessment(Record):
         dict
         """
         out = super().to_dict()
-        if out["payoff_sets"] is None:
-            del out["payoff_sets"]
+        for optional in ("payoff_sets", "pair_mergers"):
+            if out[optional] is None:
+                del out[optional]
         return out
 
     def sides(self) -> tuple:

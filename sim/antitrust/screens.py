@@ -480,6 +480,16 @@ def maverick(market, names=None, agreement: str | dict = "joint") -> Maverick:
     if not np.any(np.isfinite(presence)) or np.nanmax(presence) <= 0:
         return Maverick(tuple(nm), base, without, presence, -1, "no firm's presence raises the threshold")
     k = int(np.nanargmax(presence))
+    top = presence[k]
+    ties = np.flatnonzero(np.abs(presence - top) <= 1e-9 * max(1.0, abs(top)))
+    if ties.size == n:
+        # identical firms (or identical roles): every presence raises the threshold alike; none is a maverick
+        return Maverick(tuple(nm), base, without, presence, -1,
+                        f"every firm's presence raises the threshold by the same {top:.4g}; no firm stands out")
+    if ties.size > 1:
+        who = ", ".join(nm[t] for t in ties[:-1]) + f" and {nm[ties[-1]]}"
+        return Maverick(tuple(nm), base, without, presence, k,
+                        f"{who} each raise the threshold by the same {top:.4g}; none stands out alone")
     return Maverick(tuple(nm), base, without, presence, k, _reason(market, k, nm, binding))
 
 

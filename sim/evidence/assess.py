@@ -37,6 +37,7 @@ from sim.evidence.assess_tables import (
     yes_no,
 )
 from sim.evidence.front import parameter_column
+from sim.evidence.pairs import assessment_pairs, pair_lines
 from sim.evidence.render import Renderer, pyplot
 from sim.runner.analyses.assess import describe_cell
 
@@ -90,6 +91,10 @@ def console(a) -> str:
     lines += ["", "Critical discount factors ('-': not sustainable below one)", table(*T["thresholds"], "lrlrllll")]
     lines += [*_stick_and_carrot_lines(d), ""]
     lines += payoff_lines(d)
+    pt, mv = assessment_pairs(d)
+    if pt is not None:
+        lines += ["Every two-firm merger of the market before the merger (grim trigger)",
+                  table(*T["pair_mergers"]), *pair_lines(pt, mv, what="grim trigger"), ""]
     if "persistence" in T:
         lines += ["Simulated persistence (95% confidence intervals)", table(*T["persistence"]), ""]
     lines.append("Factors, each named by the change it considers: its effect on collusion in the model and in the "

@@ -13,6 +13,7 @@ import numpy as np
 
 from sim.evidence.assess_payoffs import payoff_figure
 from sim.evidence.assess_tables import SCHEME_LABELS, SIDES, as_float, assessment_data, in_order
+from sim.evidence.pairs import assessment_pairs, pairs_figure
 from sim.evidence.render import Drawn, pyplot
 
 __all__ = ["assessment_figures"]
@@ -265,4 +266,7 @@ def assessment_figures(a) -> list:
     sets = payoff_figure(d)
     if sets is not None:
         figs.append(sets)
+    pt, _mv = assessment_pairs(d)
+    if pt is not None:
+        figs.append(pairs_figure(pt, "grim trigger"))
     return figs

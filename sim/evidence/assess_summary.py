@@ -23,6 +23,7 @@ from sim.evidence.assess_tables import (
     named_products,
     units,
 )
+from sim.evidence.pairs import assessment_pairs, pair_lines
 
 __all__ = ["FACTORS_CAPTION", "summary_blocks"]
 
@@ -199,6 +200,12 @@ def summary_blocks(a, figures=()) -> list:
     if d["calibration"] is not None:
         B += _calibration(d)
     B += payoff_blocks(d, fig)
+    pt, mv = assessment_pairs(d)
+    if pt is not None:
+        B += [("heading", "Every two-firm merger and the maverick"),
+              ("table", "pair_mergers", "Grim-trigger critical discount factor of the market before the merger if "
+                                        "each two of its firms merged instead"),
+              ("bullets", pair_lines(pt, mv, what="grim trigger")), *fig("pair-mergers")]
     B += _merger(d) + _dynamics(d, fig) + _factors(d) + _sensitivity(d, fig) + methods_blocks(d)
     # stated in the bundle's one section of assumptions, with the kind's general ones
     B.append(("assumptions", [*(named_products(d, x) for x in d["assumptions"]),

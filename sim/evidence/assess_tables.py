@@ -17,6 +17,7 @@ from sim.antitrust.options import SENSITIVITY_INPUTS
 from sim.antitrust.result import DEFAULT_CURRENCY, DEFAULT_PERIOD
 from sim.core.text import fmt_num
 from sim.evidence.assess_payoffs import payoff_table
+from sim.evidence.pairs import PAIR_HEADERS, assessment_pairs, pair_rows
 from sim.models.market import DEMAND_KEYS
 
 __all__ = ["FACTOR_HEADERS", "SIDES", "as_float", "assessment_data", "assessment_tables", "csv_tables", "in_order",
@@ -495,6 +496,9 @@ def assessment_tables(a) -> dict:
         out.update(_calibration_tables(d))
     if d.get("payoff_sets") is not None:
         out["payoff_sets"] = payoff_table(d)
+    pt, _mv = assessment_pairs(d)
+    if pt is not None:
+        out["pair_mergers"] = (PAIR_HEADERS, pair_rows(pt))
     for name, s in in_order(d["sensitivity"]):
         out[f"sensitivity_{name}"] = _sensitivity_table(name, s, d["conclusion"]["delta"])
     return {name: (headers, [[_plain(v) for v in r] for r in rows]) for name, (headers, rows) in out.items()}

@@ -14,7 +14,8 @@ from sim.antitrust.capacity_assess import CapacityResult
 from sim.core.errors import InputError
 from sim.core.text import CAUTION, fmt_num, table
 from sim.evidence.answers import capacity_headline
-from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color, number_format, text_color
+from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
+from sim.evidence.pairs import PAIR_HEADERS, pair_lines, pair_rows, pairs_figure
 from sim.evidence.render import Drawn, Renderer, pyplot
 
 __all__ = ["RENDERER", "as_json", "bundle", "console", "figures", "sections"]
@@ -126,52 +127,14 @@ def sections(res: CapacityResult) -> list:
 
 def _pairs_section(res: CapacityResult) -> dict:
     """The threshold after every two-firm merger of the market of the file, and the maverick."""
-    pt, mv = res.pairs, res.maverick
-    lines = [f"Critical discount factor under Nash reversion before any merger: {fmt_num(pt.before)}; the change "
-             "after each two-firm merger (capacities summed; negative: coordination becomes easier). The static "
-             "equilibrium of each merged market is computed again; when it is mixed among three or more unequal "
-             "firms it is solved on a price grid, and changes below 0.005 are within that accuracy, not a finding."]
-    if mv is not None:
-        lines.append(f"Maverick: {mv.reason}." if mv.firm >= 0 else f"Maverick: none ({mv.reason}).")
-    return {"name": "capacity-pair-mergers", "heading": "Every two-firm merger and the maverick", "lines": lines,
-            "headers": ["merging firms", "threshold after", "change", "binding after"],
-            "rows": [[" + ".join(r["firms"]), r["after"], r["change"], r["binding_after"]] for r in pt.rows()]}
+    return {"name": "capacity-pair-mergers", "heading": "Every two-firm merger and the maverick",
+            "lines": pair_lines(res.pairs, res.maverick, accuracy_note=True), "headers": PAIR_HEADERS,
+            "rows": pair_rows(res.pairs)}
 
 
 def _pairs_figure(res: CapacityResult):
-    """The change of the threshold after each two-firm merger, as a heatmap centred on no change."""
-    from matplotlib.colors import TwoSlopeNorm  # heavy: only when a figure is drawn
-
-    plt = pyplot()
-    pt = res.pairs
-    n = len(pt.names)
-    V = np.array(pt.change, dtype=float)
-    finite = V[np.isfinite(V)]
-    span = max(float(np.abs(finite).max()) if finite.size else 0.0, 1e-9)
-    side = min(PAGE_WIDTH - 1.4, max(2.8, 0.5 * n + 1.4))
-    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, side + 0.6), layout="constrained")
-    cmap = plt.get_cmap("PuOr_r").with_extremes(bad=(1.0, 1.0, 1.0, 0.0))
-    norm = TwoSlopeNorm(0.0, -span, span)
-    im = ax.imshow(np.ma.masked_invalid(V), cmap=cmap, norm=norm)
-    fmt = number_format(finite if finite.size else [0.0])
-    for i in range(n):
-        for j in range(n):
-            if i != j and np.isfinite(V[i, j]):
-                text = fmt(V[i, j])
-                text = text.lstrip("-") if not text.strip("-0.,") else text  # no "-0.000" for a rounded zero
-                ax.text(j, i, text, ha="center", va="center", fontsize=SMALL,
-                        color=text_color(cmap(norm(V[i, j]))))
-    ax.set_xticks(range(n), pt.names, rotation=45, ha="right", rotation_mode="anchor", fontsize=SMALL)
-    ax.set_yticks(range(n), pt.names, fontsize=SMALL)
-    ax.set_xlabel("merges with", fontsize=FONT)
-    ax.set_ylabel("firm", fontsize=FONT)
-    ax.set_frame_on(False)
-    bar = fig.colorbar(im, ax=ax, shrink=0.85)
-    bar.set_label("change of the critical discount\nfactor (Nash reversion)", fontsize=SMALL)
-    bar.ax.tick_params(labelsize=SMALL)
-    return Drawn("capacity-pair-mergers", fig,
-                 "Change of the market's critical discount factor under Nash reversion if the two firms of the "
-                 "cell merged (capacities summed): orange cells, coordination becomes harder; purple, easier.")
+    d = pairs_figure(res.pairs)
+    return Drawn("capacity-pair-mergers", d.figure, d.caption[:-1] + " (capacities summed).")
 
 
 def _constant(s, o: str) -> bool:

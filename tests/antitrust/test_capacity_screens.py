@@ -23,8 +23,9 @@ def test_merging_the_two_smallest_firms_leaves_the_threshold_where_it_was():
     Tolerance 5e-3: the static equilibria of three and four unequal firms are computed on a price grid.
 
     The maverick: without Firm 1 the others (50) cannot serve 80, every firm sells its capacity at the
-    reservation price and no collusion is needed (threshold 0), so Firm 1's presence raises the threshold most,
-    and the reason names its capacity."""
+    reservation price and no collusion is needed (threshold 0); without Firm 2 the others (50 + 15 + 15 = 80) do not
+    exceed demand either (threshold 0). So Firms 1 and 2 raise the threshold by the same amount and the report names
+    both, no single maverick; without Firm 3 (or 4) the others (85) exceed demand and collusion must be sustained."""
     m = CapacityPricing([50.0, 20.0, 15.0, 15.0], reservation_price=10.0, market_size=80.0,
                         names=["Firm 1", "Firm 2", "Firm 3", "Firm 4"])
     t = pair_thresholds(m)
@@ -36,4 +37,5 @@ def test_merging_the_two_smallest_firms_leaves_the_threshold_where_it_was():
     assert t.after[1, 2] == pytest.approx(0.5, abs=5e-3)
     assert np.nanargmax(t.change) in (1, 4)  # the pair (Firm 1, Firm 2) either way round
     mv = maverick(m)
-    assert mv.firm == 0 and "capacity" in mv.reason
+    assert mv.without[0] == mv.without[1] == 0.0 and mv.without[2] > 0.0
+    assert "Firm 1 and Firm 2 each raise the threshold by the same" in mv.reason

@@ -131,8 +131,17 @@ def test_maverick_product_position_and_capacity():
     logit = Market(LogitDemand([2.0, 2.0, 2.6, 2.0], 0.0, 0.25), cost=1.0, model="bertrand")
     mv = maverick(logit)
     assert mv.firm == 2 and "product position" in mv.reason
-    cap = CapacityPricing([60.0, 20.0, 20.0, 20.0], reservation_price=10.0, market_size=100.0)
+    cap = CapacityPricing([60.0, 20.0, 20.0, 20.0], reservation_price=10.0, market_size=90.0)
     mv2 = maverick(cap)
-    # without the large firm the three 20s do not cover demand: no collusion needed (threshold 0)
+    # without the large firm the three 20s do not cover demand: no collusion needed (threshold 0); without one of
+    # the small firms the other three (100) still exceed demand (90), so the large firm alone stands out
     assert mv2.firm == 0 and "capacity 60" in mv2.reason
-    assert mv2.without[0] == 0.0
+    assert mv2.without[0] == 0.0 and np.all(mv2.without[1:] > 0.0)
+
+
+def test_identical_firms_have_no_maverick():
+    """Three identical linear Cournot firms: removing any one gives the same duopoly (threshold 9/17 instead of 4/7,
+    Friedman, 1971), so every firm's presence raises the threshold alike and none is named."""
+    mv = maverick(Market(LinearDemand(100.0, 1.0), cost=10.0, n_firms=3))
+    assert mv.firm == -1 and "no firm stands out" in mv.reason
+    assert np.allclose(mv.presence, 4 / 7 - 9 / 17, rtol=1e-9)

@@ -609,3 +609,59 @@ def test_growth_zero_and_decline_pass_the_check(tmp_path, capsys, growth, ok):
         assert code == 0, err
     else:
         assert code == 2 and err.startswith("supergame check: error: assess.growth: must be a number in (-1, 1)")
+
+
+# Three symmetric linear Cournot firms: the grim-trigger threshold with n firms and the joint-profit agreement is
+# (pi_D - pi_C) / (pi_D - pi_N) = 4/7 for n = 3 and 9/17 for n = 2 (Friedman, 1971; the Cournot, monopoly and
+# best-deviation profits of linear demand, e.g. Tirole, 1988, ch. 6), so any two of them merging (no efficiency)
+# changes it by 9/17 - 4/7 = -5/119; every firm's presence raises it by the same amount, so no firm stands out.
+THREE_MILLS = """
+[experiment]
+name = "three-mills"
+kind = "assess"
+
+[market]
+model = "cournot"
+demand = "linear"
+intercept = 10.0
+slope = 1.0
+cost = [1.0, 1.0, 1.0]
+
+[merger]
+names = ["Mill A", "Mill B", "Mill C"]
+firms = ["Mill A", "Mill B"]
+
+[run]
+delta = 0.6
+seed = 1
+
+[assess]
+punishments = [2]
+deltas = [0.6]
+simulate = false
+pair_mergers = true
+"""
+
+
+def test_every_two_firm_merger_and_the_maverick_in_the_assessment(tmp_path, capsys):
+    f = _write(tmp_path, THREE_MILLS)
+    code, out, err = _run(["assess", str(f), "--out", str(tmp_path / "run")], capsys)
+    assert code == 0, err
+    assert "Every two-firm merger of the market before the merger" in out and "Mill A + Mill B" in out
+    code, out, err = _run(["assess", str(f), "--json", "--out", str(tmp_path / "run2")], capsys)
+    d = json.loads(out)
+    pairs, mav = d["pair_mergers"]["pairs"], d["pair_mergers"]["maverick"]
+    assert pairs["before"] == pytest.approx(4 / 7, rel=1e-9)
+    for i, j in ((0, 1), (0, 2), (1, 2)):
+        assert pairs["change"][i][j] == pytest.approx(-5 / 119, rel=1e-9)
+    assert mav["presence"] == pytest.approx([5 / 119] * 3, rel=1e-9)
+    assert mav["firm"] == -1 and "no firm stands out" in mav["reason"]
+    figures = tmp_path / "run" / "report" / "figures"
+    assert (figures / "pair-mergers.png").is_file()
+    assert "Every two-firm merger and the maverick" in (tmp_path / "run" / "report" / "summary.md").read_text()
+
+
+def test_pair_mergers_must_be_true_or_false(tmp_path, capsys):
+    f = _write(tmp_path, THREE_MILLS.replace("pair_mergers = true", 'pair_mergers = "yes"'))
+    code, _, err = _run(["assess", str(f), "--out", str(tmp_path / "run")], capsys)
+    assert code == 2 and err.count("\n") == 1 and "assess.pair_mergers" in err and not (tmp_path / "run").exists()
