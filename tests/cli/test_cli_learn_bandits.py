@@ -5,44 +5,12 @@ import json
 from pathlib import Path
 
 from sim.cli import main
+from tests.conftest import learn_text
 
-BANDITS = """
-[experiment]
-name = "two-bandits"
-kind = "learn"
-
-[market]
-model = "bertrand"
-demand = "logit"
-quality = 2.0
-outside = 0.0
-mu = 0.25
-cost = 1.0
-n_firms = 2
-
-[learning]
-family = "thompson"
-exploration = 0.5
-noise = 0.05
-m = 5
-convergence = 2000
-max_periods = 30000
-
-[[strategies]]
-strategy = "qlearning"
-family = "ucb"
-
-[[strategies]]
-strategy = "qlearning"
-
-[impulse]
-periods = 5
-
-[run]
-sessions = 3
-seed = 7
-workers = 2
-"""
+BANDITS = learn_text("two-bandits", 'family = "thompson"\nexploration = 0.5\nnoise = 0.05\nm = 5\nconvergence = 2000\n'
+                                     "max_periods = 30000", sessions=3,
+                     extra='\n[[strategies]]\nstrategy = "qlearning"\nfamily = "ucb"\n\n[[strategies]]\n'
+                           'strategy = "qlearning"\n')
 
 
 def test_the_command_prints_the_report_of_the_stored_result_for_bandits(tmp_path, capsys):
