@@ -95,6 +95,35 @@ class CellRow:
     ``cell`` is the cell's index counted from 0, as in the store's ``cell`` column: the cell's stream key
     (``SeedSequence(seed, spawn_key=(cell,))``). Everything shown to users -- exports, tables, messages
     -- counts cells from 1 (:attr:`number`).
+
+    Attributes
+    ----------
+    cell : int
+        The cell's index, counted from 0.
+    status : {"ok", "failed"}
+        Whether the cell's computation finished or raised.
+    params : dict
+        Swept path -> value of the cell.
+    labels : dict of str to str
+        Swept path -> display label of the value.
+    seed : int or None
+        The user's seed the cell's streams came from.
+    error : str or None
+        A failed cell's error, in one line.
+    metrics : dict of str to float
+        The cell's metrics (nan for missing).
+    arrays : dict
+        The cell's small arrays, as plain JSON data.
+    started, finished : float or None
+        When the cell's computation started and ended, in seconds since the epoch.
+    seconds : float or None
+        Its compute time.
+    worker : str or None
+        ``host:pid`` of the process that computed it.
+    detail : str or None
+        A failed cell's traceback.
+    attempt : int or None
+        The attempt (run or resume) that computed it.
     """
 
     cell: int
@@ -146,7 +175,20 @@ class Store:
 
     @classmethod
     def create(cls, path, meta: dict) -> Store:
-        """A new database holding ``meta`` (string keys, JSON-able values)."""
+        """A new database holding ``meta`` (string keys, JSON-able values), written in one transaction.
+
+        Parameters
+        ----------
+        path : path-like
+            The database file.
+        meta : dict
+            The run's settings; the schema version is added as ``schema_version``.
+
+        Returns
+        -------
+        Store
+            The store, open for writing.
+        """
         s = cls(path)
         s.con.execute("BEGIN")
         s.con.execute("INSERT OR REPLACE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
@@ -156,6 +198,7 @@ class Store:
         return s
 
     def close(self) -> None:
+        """Close the database connection (a second call does nothing)."""
         if self.con is not None:
             self.con.close()
             self.con = None
@@ -176,6 +219,18 @@ class Store:
     # -- meta --------------------------------------------------------------------------------------
 
     def meta(self) -> dict:
+        """The run's settings as :meth:`create` and :meth:`set_meta` wrote them.
+
+        Returns
+        -------
+        dict
+            Key -> value (``schema_version`` as an int).
+
+        Raises
+        ------
+        DamagedStore
+            When a value cannot be read back.
+        """
         out = {}
         for k, v in self.con.execute("SELECT key, value FROM meta ORDER BY key"):
             try:
@@ -185,15 +240,47 @@ class Store:
         return out
 
     def set_meta(self, key: str, value: Any) -> None:
+        """Write one setting, replacing any earlier value.
+
+        Parameters
+        ----------
+        key : str
+            The setting's name.
+        value : object
+            Its value (JSON-able; non-finite floats are written as null).
+        """
         self.con.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)", (key, _dumps(value)))
 
     # -- attempts ----------------------------------------------------------------------------------
 
     def start_attempt(self, info: dict) -> int:
+        """Record the start of an attempt (a run or a resume) at the current time.
+
+        Parameters
+        ----------
+        info : dict
+            What the attempt runs with (command, backend, host, package versions, code digest, plugins).
+
+        Returns
+        -------
+        int
+            The attempt's number, counted from 1.
+        """
         cur = self.con.execute("INSERT INTO attempts (started, info) VALUES (?, ?)", (time.time(), _dumps(info)))
         return int(cur.lastrowid)
 
     def finish_attempt(self, attempt: int, outcome: str, info: dict | None = None) -> None:
+        """Record the end of an attempt at the current time.
+
+        Parameters
+        ----------
+        attempt : int
+            The number :meth:`start_attempt` returned.
+        outcome : str
+            How it ended: the run's status, ``"interrupted"`` or ``"stopped"``.
+        info : dict or None
+            Entries to add to the attempt's information (e.g. the number of cells it ran).
+        """
         if info is not None:
             old = json.loads(self.con.execute("SELECT info FROM attempts WHERE attempt = ?", (attempt,)).fetchone()[0])
             old.update(info)
@@ -204,6 +291,19 @@ class Store:
                              (time.time(), outcome, attempt))
 
     def attempts(self) -> list[dict]:
+        """Every attempt in order.
+
+        Returns
+        -------
+        list of dict
+            ``attempt``, ``started``, ``finished`` (seconds since the epoch, None while running), ``outcome``
+            and the entries of its information.
+
+        Raises
+        ------
+        DamagedStore
+            When an attempt's information cannot be read back.
+        """
         rows = self.con.execute("SELECT attempt, started, finished, outcome, info FROM attempts ORDER BY attempt")
         return [{"attempt": a, "started": s, "finished": f, "outcome": o, **_loads(i, f"attempt {a}")}
                 for a, s, f, o, i in rows]
@@ -213,7 +313,15 @@ class Store:
     def record(self, row: CellRow, document: dict | None = None) -> None:
         """Store one finished cell (and its result document, if any) in its own committed transaction. A cell
         already stored is kept (the first result wins; a second, identical computation can only come from a
-        duplicate submission)."""
+        duplicate submission).
+
+        Parameters
+        ----------
+        row : CellRow
+            The finished cell.
+        document : dict or None
+            Its result object as plain JSON data; kept only when the row is new.
+        """
         self.con.execute("BEGIN")
         try:
             cur = self.con.execute(
@@ -233,7 +341,22 @@ class Store:
 
     def document(self, cell: int) -> dict | None:
         """The result document of cell ``cell`` (counted from 0), or None (a failed cell, or a kind without
-        result objects)."""
+        result objects).
+
+        Parameters
+        ----------
+        cell : int
+            The cell's index, counted from 0.
+
+        Returns
+        -------
+        dict or None
+
+        Raises
+        ------
+        DamagedStore
+            When the stored document cannot be read back.
+        """
         try:
             r = self.con.execute("SELECT doc FROM documents WHERE cell = ?", (int(cell),)).fetchone()
         except sqlite3.OperationalError:  # a store written before documents were kept
@@ -241,15 +364,35 @@ class Store:
         return None if r is None else _loads(r[0], f"the result document of cell {int(cell) + 1}")
 
     def done(self) -> set[int]:
+        """The indices (counted from 0) of the cells that have a row, finished or failed.
+
+        Returns
+        -------
+        set of int
+        """
         return {int(c) for (c,) in self.con.execute("SELECT cell FROM cells")}
 
     def count(self) -> dict:
+        """How many stored cells finished and how many failed.
+
+        Returns
+        -------
+        dict of str to int
+            ``ok`` and ``failed``.
+        """
         out = {"ok": 0, "failed": 0}
         for status, n in self.con.execute("SELECT status, COUNT(*) FROM cells GROUP BY status"):
             out[status] = int(n)
         return out
 
     def forget_failed(self) -> int:
+        """Delete the rows of the failed cells, so that a resumed run computes them again.
+
+        Returns
+        -------
+        int
+            The number of rows deleted.
+        """
         cur = self.con.execute("DELETE FROM cells WHERE status = 'failed'")
         return int(cur.rowcount)
 
@@ -258,6 +401,22 @@ class Store:
 
         A row that cannot be read back raises :class:`DamagedStore`; with a list as ``problems``, it is
         described there and left out instead.
+
+        Parameters
+        ----------
+        cells : iterable of int or None
+            Indices of the cells wanted; None for all.
+        problems : list or None
+            A list to append the description of each unreadable row to.
+
+        Returns
+        -------
+        list of CellRow
+
+        Raises
+        ------
+        DamagedStore
+            For an unreadable row, when ``problems`` is None.
         """
         q = ("SELECT cell, status, params, labels, seed, error, metrics, arrays, started, finished, seconds, worker, "
              "detail, attempt FROM cells ORDER BY cell")
@@ -275,10 +434,22 @@ class Store:
         return out
 
     def failed(self) -> list[CellRow]:
+        """The rows of the failed cells, in cell order.
+
+        Returns
+        -------
+        list of CellRow
+        """
         return [r for r in self.rows() if r.status == "failed"]
 
     def journal_mode(self) -> str:
-        """``"wal"`` while a run writes to the store, ``"delete"`` once :meth:`finalize` folded the log."""
+        """``"wal"`` while a run writes to the store, ``"delete"`` once :meth:`finalize` folded the log.
+
+        Returns
+        -------
+        str
+            SQLite's journal mode, in lower case.
+        """
         return str(self.con.execute("PRAGMA journal_mode").fetchone()[0]).lower()
 
 
@@ -318,7 +489,24 @@ def _metric_order(rows: list[CellRow], declared=()) -> list[str]:
 def export_table(rows: list[CellRow], parameters: list, declared_metrics=()) -> tuple[list[str], list[list]]:
     """Columns and rows of the results table: cell (counted from 1), status, the swept parameters, seed, the
     metrics (the kind's order, then any others sorted), error. Numeric parameters stay numbers; others are
-    labels."""
+    labels.
+
+    Parameters
+    ----------
+    rows : list of CellRow
+        The stored cells, in cell order.
+    parameters : list of Parameter
+        The experiment's swept parameters.
+    declared_metrics : sequence of str
+        The metrics the kind declares, in its order; those no row has are left out (all kept without rows).
+
+    Returns
+    -------
+    header : list of str
+        The column names.
+    body : list of list
+        One list of values per row, in the order of ``header`` (nan for a missing metric, ``""`` for no error).
+    """
     numeric = {p.path: p.numeric for p in parameters}
     paths = [p.path for p in parameters]
     metrics = _metric_order(rows, declared_metrics)
@@ -367,6 +555,21 @@ def _csv_value(v) -> str:
 
 
 def csv_text(header: list[str], body: list[list]) -> str:
+    """The results table as CSV text: nan and None as empty cells, floats as their shortest repr, booleans as
+    true/false, and text that a spreadsheet would read as a formula guarded (:func:`safe_text`).
+
+    Parameters
+    ----------
+    header : list of str
+        The column names.
+    body : list of list
+        The rows, one value per column (as :func:`export_table` gives them).
+
+    Returns
+    -------
+    str
+        The CSV text, lines ending in ``\\n``.
+    """
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(header)
@@ -376,6 +579,17 @@ def csv_text(header: list[str], body: list[list]) -> str:
 
 
 def write_csv(path, header: list[str], body: list[list]) -> None:
+    """Write the results table as a UTF-8 CSV file (:func:`csv_text`).
+
+    Parameters
+    ----------
+    path : str or path-like
+        The file to write.
+    header : list of str
+        The column names.
+    body : list of list
+        The rows, one value per column.
+    """
     Path(path).write_text(csv_text(header, body), encoding="utf-8")
 
 
@@ -390,7 +604,22 @@ def _column_type(values: list) -> str:
 
 def write_parquet(path, header: list[str], body: list[list]) -> bool:
     """Write a Parquet file when pyarrow is installed (returns False otherwise). The file depends only on
-    the data and the pyarrow version."""
+    the data and the pyarrow version.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The file to write.
+    header : list of str
+        The column names.
+    body : list of list
+        The rows, one value per column.
+
+    Returns
+    -------
+    bool
+        Whether the file was written.
+    """
     data = parquet_bytes(header, body)
     if data is None:
         return False
@@ -399,7 +628,22 @@ def write_parquet(path, header: list[str], body: list[list]) -> bool:
 
 
 def parquet_table(header: list[str], body: list[list]):
-    """The results table as a pyarrow Table (None without pyarrow)."""
+    """The results table as a pyarrow Table (None without pyarrow).
+
+    A column of integers becomes int64, of numbers float64, anything else (and always ``status`` and ``error``)
+    strings; None is a missing value.
+
+    Parameters
+    ----------
+    header : list of str
+        The column names.
+    body : list of list
+        The rows, one value per column (as :func:`export_table` gives them).
+
+    Returns
+    -------
+    pyarrow.Table or None
+    """
     try:
         import pyarrow as pa
     except ImportError:
@@ -419,7 +663,20 @@ def parquet_table(header: list[str], body: list[list]):
 
 def parquet_bytes(header: list[str], body: list[list]) -> bytes | None:
     """The bytes of the Parquet export (None without pyarrow): they depend only on the data and the
-    pyarrow version."""
+    pyarrow version.
+
+    Parameters
+    ----------
+    header : list of str
+        The column names.
+    body : list of list
+        The rows, one value per column (as :func:`export_table` gives them).
+
+    Returns
+    -------
+    bytes or None
+        A zstd-compressed Parquet file of :func:`parquet_table`, written without statistics.
+    """
     table = parquet_table(header, body)
     if table is None:
         return None
@@ -432,7 +689,27 @@ def parquet_bytes(header: list[str], body: list[list]) -> bytes | None:
 
 
 def frame(header: list[str], body: list[list]):
-    """A pandas DataFrame of the results table (pandas is optional: ``pip install 'supergame[tables]'``)."""
+    """A pandas DataFrame of the results table (pandas is optional: ``pip install 'supergame[tables]'``).
+
+    Columns get the types of :func:`parquet_table`: nullable Int64 for integers, float64 (nan for missing) for
+    numbers, objects for text.
+
+    Parameters
+    ----------
+    header : list of str
+        The column names.
+    body : list of list
+        The rows, one value per column (as :func:`export_table` gives them).
+
+    Returns
+    -------
+    pandas.DataFrame
+
+    Raises
+    ------
+    ImportError
+        When pandas is not installed, with the command that installs it.
+    """
     try:
         import pandas as pd
     except ImportError:
