@@ -76,7 +76,17 @@ def flag_of(key: str) -> str:
 
 
 class ArgumentError(Exception):
-    """A command line that does not parse: the flag it concerns (if any) and what is wrong."""
+    """A command line that does not parse: the flag it concerns (if any) and what is wrong.
+
+    Parameters
+    ----------
+    prog : str
+        The command, as the error line starts (``supergame run``).
+    key : str
+        The flag or argument concerned (``--workers``), or ``""`` when the error concerns none.
+    message : str
+        What is wrong, in one line.
+    """
 
     def __init__(self, prog: str, key: str, message: str):
         super().__init__(message)
@@ -158,6 +168,20 @@ def _command_of(argv: list[str]) -> str:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """Run ``supergame`` with the given arguments: parse them, run the command, and turn every error into one line
+    and an exit status (see the module notes); with ``--json`` errors are printed as one JSON object on stdout.
+
+    Parameters
+    ----------
+    argv : list of str or None
+        The arguments after the program name; None reads ``sys.argv``.
+
+    Returns
+    -------
+    int
+        The exit status: 0 success, 1 a failed computation or an internal error, 2 bad input or no command,
+        130 interrupted, 143 terminated.
+    """
     argv = list(sys.argv[1:] if argv is None else argv)
     as_json = "--json" in argv
     command = _command_of(argv)
