@@ -27,10 +27,11 @@ from sim.core.errors import InputError, SolverError, Terminated
 
 # name -> (module, one line of ``supergame --help``); the order is the order of ``supergame --help``. Only the
 # module of the command being run is imported, so that ``supergame --help`` loads none of the computing packages
-# (tests/cli/test_cli_layout.py checks that each line here is the module's own ``HELP``).
+# (a test of the command line checks that each line here is the module's own ``HELP``).
 COMMANDS = {
     "thresholds": ("sim.cli.thresholds", "stage game and critical discount factors of a market (analytic baseline)"),
-    "learn": ("sim.cli.learn", "let Q-learning firms learn to price; limit outcomes, profit gain and impulse response"),
+    "learn": ("sim.cli.learn",
+              "let pricing algorithms (Q-learning, bandits) learn; limit outcomes, profit gain, impulse response"),
     "simulate": ("sim.cli.simulate",
                  "simulate a line-up of strategies: persistence of collusion against the analytic baseline"),
     "tournament": ("sim.cli.tournament",

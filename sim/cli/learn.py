@@ -17,7 +17,7 @@ from sim.learning.tables import RUN_CONSTRAINTS
 from sim.runner.analyses.learn import KIND as LEARN
 from sim.runner.single import run_single
 
-HELP = "let Q-learning firms learn to price; limit outcomes, profit gain and impulse response"
+HELP = "let pricing algorithms (Q-learning, bandits) learn; limit outcomes, profit gain, impulse response"
 DESCRIPTION = (
     "Run independent sessions of Q-learning firms (Calvano, Calzolari, Denicolo and Pastorello, 2020) on a "
     "market until their greedy strategies stop changing, then report what they converged to: limit prices "
