@@ -132,7 +132,7 @@ def learning_from_dict(doc: dict, overrides: dict | None = None) -> dict:
 
     Reads ``[experiment]`` (``kind``, if given, must be ``"learn"``), ``[market]``
     (:func:`sim.market_from_dict`), ``[learning]`` (the learners' parameters, ``convergence``,
-    ``max_periods``, ``near``, ``limit_periods``), ``[impulse]`` (``firm`` counted from 1, ``action``
+    ``max_periods``, ``near``, ``limit_periods``, ``timing``), ``[impulse]`` (``firm`` counted from 1, ``action``
     -- ``"best_response"`` or a number -- and ``periods``), ``[run]`` (``sessions``, ``seed``,
     ``workers``, ``confidence``) and an optional ``[[strategies]]`` line-up (``strategy = "qlearning"`` entries
     take the [learning] parameters, overridden by their own; any other name is an automaton). Unknown keys
@@ -152,7 +152,8 @@ def learning_from_dict(doc: dict, overrides: dict | None = None) -> dict:
     dict
         ``market`` (:class:`sim.Market`), ``learner`` (a QLearner for every seat, or one strategy per
         seat), ``settings`` (keyword arguments of :func:`sim.learning.session.learn`; ``deviator`` counted
-        from 0), ``save_to`` (``learning.save_to``: where to save the learners at the end, or None) and ``start``
+        from 0; ``timing`` only when it is ``"alternating"``), ``save_to`` (``learning.save_to``: where to save
+        the learners at the end, or None) and ``start``
         (the :class:`sim.learning.saved.SavedLearners` of ``learning.continue_from``, read and checked against
         the line-up, or None), ``event`` (the :class:`sim.learning.events.Event` of an ``[event]`` table, or None)
         and ``waiting`` (an event whose saved file does not exist yet: it is read when the run starts, once the
