@@ -350,6 +350,9 @@ class LearningResult:
             out["automata"] = trigger_summary(lu, self.triggers, self.punishing_at_end, self.periods, sel, lvl)
         if self.settings.get("timing") == "alternating":
             out["alternating"] = _alternating_summary(self, sel, lvl)
+            out["limit"] = {"method": "exact",
+                            "what": "the cycle of greedy play under alternating moves from each session's final "
+                                    "state, found exactly (Klein, 2021); no impulse response is computed"}
         if self.event is not None:
             ev = self.event
             out["event"] = event_summary(ev["event"], ev["path"], ev["settle"], self.converged, self.limit_prices,
