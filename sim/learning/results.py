@@ -294,7 +294,11 @@ class LearningResult:
             Limit outcomes and impulse responses are over converged sessions; when none converged, over all
             sessions (``over`` says which). Means come as ``{mean, se, low, high, n}``, shares as ``{share, low,
             high, count, n}``; per-firm entries are lists of length n_firms; ``impulse_response.prices`` holds
-            ``mean``, ``low`` and ``high``, each a list of T + 2 rows of n_firms values.
+            ``mean``, ``low`` and ``high``, each a list of T + 2 rows of n_firms values. Alternating sessions
+            (``settings["timing"] == "alternating"``) add ``alternating``: the shares of sessions at a fixed price
+            pair (``fixed_price``, ``fixed_above_nash``, ``fixed_collusive``) and in a cycle (``cycle``), the
+            ``cycle_length`` over cycling sessions and its distribution ``cycle_lengths``, and the profit gain of
+            each group; their impulse-response entries are nan.
         """
         if self._summary:
             return self._summary

@@ -20,6 +20,10 @@ tat, forgiving tit for tat, an opportunist...). Automata that act at random draw
 stream in a fixed order; their line-ups get a simulated, seeded *estimate* of steps 3 and 4 instead
 of the exact analysis, flagged as such in every result (see "Limit analysis" below).
 
+With ``timing = "alternating"`` two Q-learners set their prices in turn instead, each price held for two periods
+(Klein, 2021, RAND Journal of Economics 52(3); :mod:`sim.learning.alternating`): steps 1 to 3 as above on that
+protocol, with the cycle of greedy play classified as a fixed price pair or a cycle, and no impulse response.
+
 Many sessions run in parallel, each with its own random stream from
 ``sim.core.rng.stream_states(seed, (cell,), session, session + 1)``, so results do not depend on the
 number of workers. Layers: :func:`learn` (validated public function) -> :func:`_run_sessions`
