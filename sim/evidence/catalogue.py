@@ -18,6 +18,7 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
+from sim.evidence.catalogue_alternating import ALTERNATING_ENTRIES, ALTERNATING_PARAMETERS
 from sim.evidence.catalogue_assess import ASSESS_ENTRIES
 from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
 from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
@@ -463,6 +464,8 @@ ENTRIES.update({k: Entry(*v) for k, v in ASSESS_ENTRIES.items()})
 ENTRIES.update({k: Entry(*v) for k, v in ENFORCED_ENTRIES.items()})
 # a simulated line-up with moving demand (sim.evidence.catalogue_state_play)
 ENTRIES.update({k: Entry(*v) for k, v in STATE_PLAY_ENTRIES.items()})
+# alternating price setting by learners: fixed price pairs against cycles (sim.evidence.catalogue_alternating)
+ENTRIES.update({k: Entry(*v) for k, v in ALTERNATING_ENTRIES.items()})
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)
 PARAMETERS: dict[str, Entry] = {
@@ -506,6 +509,7 @@ PARAMETERS: dict[str, Entry] = {
 }
 
 PARAMETERS.update({k: Entry(*v) for k, v in CONDITION_PARAMETERS.items()})
+PARAMETERS.update({k: Entry(*v) for k, v in ALTERNATING_PARAMETERS.items()})
 
 _SCHEME_WORDS = {"grim": "grim trigger", "finite": "Nash reversion for T periods", "stick_carrot": "stick and carrot"}
 
