@@ -12,7 +12,7 @@ from sim.runner.folder import (
     PARQUET_FILE,
     RunFolder,
 )
-from sim.runner.store import csv_text, parquet_bytes
+from sim.runner.tabular import csv_text, parquet_bytes
 
 
 def export_bytes(rf: RunFolder) -> dict:

@@ -12,7 +12,8 @@ from pathlib import Path
 from sim.core.errors import InputError
 from sim.core.tomlfile import file_sha256, read_toml
 from sim.runner.experiment import experiment_from_dict
-from sim.runner.store import STORE_FILE, DamagedStore, Store, export_table, frame
+from sim.runner.store import STORE_FILE, DamagedStore, Store
+from sim.runner.tabular import export_table, frame
 
 RUN_FORMAT = "supergame-run/1"
 EXPERIMENT_COPY = "experiment.toml"
