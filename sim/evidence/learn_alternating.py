@@ -6,7 +6,7 @@ gain of each group, in the terminal report and as a figure.
 from __future__ import annotations
 
 from sim.core.text import fmt_num, table
-from sim.evidence.figures import PAGE_WIDTH, color
+from sim.evidence.figures import PAGE_WIDTH, color, fit_legend
 from sim.evidence.render import Drawn, pyplot
 from sim.learning.analysis import LearnResult
 
@@ -66,12 +66,18 @@ def alternating_figure(res: LearnResult) -> Drawn | None:
     counts = {1: alt["fixed_price"]["count"]}
     counts.update({int(k): v for k, v in alt["cycle_lengths"].items()})
     keys = sorted(counts)
-    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 3.4))
-    ax.bar([str(k) for k in keys], [counts[k] for k in keys], color=[color(0 if k == 1 else 1) for k in keys])
+    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 3.6), layout="constrained")
+    handles = []
+    for fixed, label in ((True, "a fixed price pair"), (False, "a price cycle")):
+        ks = [k for k in keys if (k == 1) == fixed]
+        if ks:
+            handles.append(ax.bar([str(k) for k in ks], [counts[k] for k in ks], color=color(0 if fixed else 1),
+                                  label=label))
     ax.set_xlabel("periods until the price pair repeats (1: a fixed price pair)")
     ax.set_ylabel("sessions")
+    ax.yaxis.get_major_locator().set_params(integer=True)  # counts of sessions: whole numbers
     ax.set_title("Where alternating sessions end")
-    fig.tight_layout()
+    fit_legend(fig, handles, [h.get_label() for h in handles], ncol=2, title="greedy play ends at")
     return Drawn("alternating_outcomes", fig,
                  f"Sessions ({res.summary['over']}) by the length of the price cycle of greedy play after learning: "
                  "1 is a fixed price pair (a focal price), longer ones are cycles of undercutting and jumps back up "
