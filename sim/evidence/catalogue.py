@@ -21,6 +21,7 @@ from dataclasses import dataclass
 from sim.evidence.catalogue_assess import ASSESS_ENTRIES
 from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
 from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
+from sim.evidence.catalogue_slice import SLICE_ENTRIES
 from sim.evidence.catalogue_state_play import STATE_PLAY_ENTRIES
 
 __all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "money"]
@@ -463,6 +464,8 @@ ENTRIES.update({k: Entry(*v) for k, v in ASSESS_ENTRIES.items()})
 ENTRIES.update({k: Entry(*v) for k, v in ENFORCED_ENTRIES.items()})
 # a simulated line-up with moving demand (sim.evidence.catalogue_state_play)
 ENTRIES.update({k: Entry(*v) for k, v in STATE_PLAY_ENTRIES.items()})
+# the symmetric slice of the any-punishment set, three firms or more (sim.evidence.catalogue_slice)
+ENTRIES.update({k: Entry(*v) for k, v in SLICE_ENTRIES.items()})
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)
 PARAMETERS: dict[str, Entry] = {
