@@ -52,6 +52,9 @@ class Geometry:
     c : ndarray of shape (F,) or None
     dim : int
         Dimension of the polytope (``n`` when full-dimensional).
+    lost : float
+        Bound on the distance from any given point to the hull of ``points``: twice the largest distance of a given
+        point from the affine hull the polytope was flattened into (0 when it is full-dimensional).
     """
 
     points: np.ndarray
@@ -59,6 +62,7 @@ class Geometry:
     H: np.ndarray | None
     c: np.ndarray | None
     dim: int
+    lost: float = 0.0
 
 
 def _subfaces(simplices: np.ndarray, top: int) -> tuple:
@@ -106,19 +110,25 @@ def geometry(P: np.ndarray, scale: float) -> Geometry:
             remap[keep] = np.arange(keep.size)
             faces = _subfaces(remap[h.simplices], n - 1)
             return Geometry(P[keep], faces, h.equations[:, :n], -h.equations[:, n], n)
+    # a thin set is flattened into its d-dimensional affine hull: a given point lies within its distance from that
+    # hull of its projection, which lies in the hull of the kept points' projections, each within the same distance
+    # of its point. Qhull also refuses sets a few 1e-8 thick that pass the rank test above ("wide merge"), and
+    # those are flattened too, so an outer sequence must allow for the thickness dropped (see sim.theory._iterate).
+    off = (P - center) @ vt[d:].T if d < vt.shape[0] else np.zeros((P.shape[0], 0))
+    lost = 2.0 * float(np.linalg.norm(off, axis=1).max()) if off.shape[1] else 0.0
     if d == 0:
-        return Geometry(P[:1], (), None, None, 0)
+        return Geometry(P[:1], (), None, None, 0, lost)
     Y = (P - center) @ vt[:d].T
     if d == 1:
         ends = [int(np.argmin(Y[:, 0])), int(np.argmax(Y[:, 0]))]
-        return Geometry(P[ends], ((1, np.array([[0, 1]])),), None, None, 1)
+        return Geometry(P[ends], ((1, np.array([[0, 1]])),), None, None, 1, lost)
     try:
         keep = ConvexHull(Y).vertices
         tri = Delaunay(Y[keep])
     except QhullError:  # pragma: no cover - the rank test above makes the flat hull well posed
         keep = np.arange(P.shape[0])
         tri = Delaunay(Y, qhull_options="QJ")
-    return Geometry(P[keep], _subfaces(tri.simplices, d), None, None, d)
+    return Geometry(P[keep], _subfaces(tri.simplices, d), None, None, d, lost)
 
 
 def candidates(geom: Geometry, b: np.ndarray, eps: float, block: int = 3_000_000):

@@ -246,6 +246,26 @@ def test_continuations_stay_in_a_thin_set():
         assert np.all(vals <= (P @ D.T).max(axis=0)[None, :] + 1e-10 * game.scale)
 
 
+# a three-firm game whose equilibrium set at delta 0.6 is flat (every equilibrium gives firm 3 exactly 4), so the
+# outer sets shrink onto slabs a few 1e-8 thick
+FLAT_DRAW = [5, 1, 4, 4, -2, -3, 4, 1, 4, 0, -1, -2, 1, 6, 1, 1, 3, 8, 1, 4, 2, 4, 2, 4]
+
+
+def test_static_nash_stays_in_a_thin_outer_set():
+    """Every static Nash payoff is an equilibrium payoff (Nash reversion forever; Abreu, Pearce and Stacchetti,
+    1990), so it meets every half-space of the outer set (Judd, Yeltekin and Conklin, 2003), and so does the inner
+    set. The slabs were once too thin for Qhull, were flattened, and the outer set cut the static Nash payoff
+    (4, 1, 4) off by 2.5e-8 (3.1e-9 of the payoff scale). Tolerance: 1e-10 of the scale, the outer sequence's own
+    rounding margin."""
+    game = game_from_payoffs(np.array(FLAT_DRAW, float).reshape(2, 2, 2, 3))
+    r = equilibrium_payoffs(game, 0.6, method="directions", directions=12)
+    tol = 1e-10 * game.scale
+    nash = game.flat_payoffs[[game.flat_index(p) for p in game.pure_nash()]]
+    assert nash.shape[0] and np.all(np.ptp(r.inner_vertices, axis=0)[2] == 0.0)
+    assert np.all(nash @ r.directions.T <= r.outer_levels[None, :] + tol)
+    assert np.all(r.inner_vertices @ r.directions.T <= r.outer_levels[None, :] + tol)
+
+
 @pytest.mark.parametrize("delta", [0.3, 0.6])
 def test_penal_codes_reach_minmax_when_patient(delta):
     """In the linear Cournot duopoly (a = 10, c = 1) with the grid reaching the choke quantity, the
