@@ -33,7 +33,7 @@ from ..core.records import Record
 from . import _polygon as pg
 from .discretize import _key_levels, discretize, estimate_game_bytes
 from .payoff_sets import default_directions, equilibrium_payoffs, estimate_work
-from .practice import PenalCode, lowest_threshold, named_thresholds, penal_codes
+from .practice import PenalCode, lowest_threshold, named_thresholds, penal_codes, symmetric_slice
 
 __all__ = [
     "TABLE_KEYS",
@@ -221,6 +221,12 @@ class AnyPunishmentResult(Record):
         Each firm's optimal penal code, its first periods (read from the inner set at ``delta``).
     evaluations : list
         ``[delta, verdict]`` of every discount factor the bisection tried.
+    symmetric : ndarray of shape (4,)
+        The symmetric slice at ``delta`` (three firms or more), the equal profits ``t`` with ``(t, ..., t)`` in
+        the set: ``(min_outer, min_inner, max_inner, max_outer)``. Every equal-profit equilibrium outcome has
+        ``t`` in ``[min_outer, max_outer]`` (outer set); every ``t`` in ``[min_inner, max_inner]`` is one (inner
+        set). Read from the full set, not from its projection on two firms. nan with two firms (whose set is
+        drawn whole), when no set was computed, or where a set misses the diagonal.
     """
 
     grid: list
@@ -251,6 +257,7 @@ class AnyPunishmentResult(Record):
     feasible: np.ndarray
     penal_codes: list[PenalCode] = field(default_factory=list)
     evaluations: list = field(default_factory=list)
+    symmetric: np.ndarray = field(default_factory=lambda: np.full(4, np.nan))
 
     @property
     def n_firms(self) -> int:
@@ -287,6 +294,16 @@ def _projected_hull(P) -> np.ndarray:
     if P.shape[0] == 0:
         return np.zeros((0, 2))
     return pg.hull(P[:, :2])
+
+
+def _slice(res, n: int) -> np.ndarray:
+    """``(min_outer, min_inner, max_inner, max_outer)`` of the symmetric slice of a payoff set (nan for two firms).
+    The inner slice lies in the outer one because the inner set does (Judd, Yeltekin and Conklin, 2003)."""
+    if n < 3:
+        return np.full(4, np.nan)
+    lo_out, hi_out = symmetric_slice(res.outer_vertices)
+    lo_in, hi_in = symmetric_slice(res.inner_vertices)
+    return np.array([lo_out, lo_in, hi_in, hi_out], dtype=float)
 
 
 def _verdict(profits, gains, worst_low, worst_high, delta: float, inner_empty: bool, outer_empty: bool) -> str:
@@ -333,7 +350,8 @@ def any_punishment_analysis(market, spec: AnyPunishmentSpec, agreement: str = "j
     delta = spec.delta if spec.delta is not None else t.high
     empty = np.zeros((0, 2))
     sets = {"verdict": "", "status": "", "accuracy": math.nan, "worst_low": np.full(n, np.nan),
-            "worst_high": np.full(n, np.nan), "outer": empty, "inner": empty, "penal_codes": []}
+            "worst_high": np.full(n, np.nan), "outer": empty, "inner": empty, "penal_codes": [],
+            "symmetric": np.full(4, np.nan)}
     if math.isfinite(delta):
         res = equilibrium_payoffs(game, delta, method=spec.method, directions=dirs)
         verdict = _verdict(t.profits, gains, res.worst_outer, res.worst_inner, delta,
@@ -348,7 +366,7 @@ def any_punishment_analysis(market, spec: AnyPunishmentSpec, agreement: str = "j
                 "status": res.status, "accuracy": float(res.accuracy), "worst_low": res.worst_outer,
                 "worst_high": res.worst_inner, "outer": _projected_hull(res.outer_vertices),
                 "inner": _projected_hull(res.inner_vertices),
-                "penal_codes": penal_codes(res, game, PENAL_PERIODS)}
+                "penal_codes": penal_codes(res, game, PENAL_PERIODS), "symmetric": _slice(res, n)}
     return AnyPunishmentResult(
         grid=[int(x) for x in game.shape], method=spec.method, directions=int(spec.directions),
         tolerance=float(t.tol), agreement=agreement, profile=[int(x) for x in t.profile],

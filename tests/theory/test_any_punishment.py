@@ -132,3 +132,74 @@ def test_the_reversal_is_not_an_artefact_of_the_grid(shipped):
     gain = game.best_reply[prof] - game.payoffs[prof]
     bound = np.max(gain / (gain + game.payoffs[prof] - game.minmax))
     assert bound - 1e-12 <= ap.low <= ap.high and math.isfinite(ap.high)
+
+
+# --------------------------------------------------------------------------------------------------
+# The symmetric slice of a three-firm set
+# --------------------------------------------------------------------------------------------------
+
+# symmetric linear Cournot, P = a - b Q, unit cost c, three firms
+A3, B3, C3, N3 = 10.0, 1.0, 1.0, 3
+THREE = {"grid": 5, "directions": 16, "tolerance": 0.01}
+
+
+@pytest.fixture(scope="module", params=[0.25, 0.4])
+def three_firms(request):
+    from sim.models.demand import LinearDemand
+    from sim.models.market import Market
+
+    market = Market(LinearDemand(A3, B3), cost=[C3] * N3)
+    spec = check_any_punishment({**THREE, "delta": request.param}, market)
+    return market, spec, any_punishment_analysis(market, spec)
+
+
+def test_three_firms_keep_the_symmetric_slice_through_json(three_firms):
+    """The slice is stored with the result and read back; a result stored before the slice existed reads back
+    with an empty (nan) slice; two firms store none (their set is drawn whole)."""
+    *_, ap = three_firms
+    back = _round_trip(AnyPunishmentResult, ap)
+    np.testing.assert_array_equal(back.symmetric, ap.symmetric)
+    assert np.all(np.isfinite(ap.symmetric))
+    old = {k: v for k, v in ap.to_dict().items() if k != "symmetric"}
+    assert np.all(np.isnan(AnyPunishmentResult.from_dict(old).symmetric))
+
+
+def test_two_firms_store_no_slice(shipped):
+    *_, ap = shipped
+    assert ap.symmetric.shape == (4,) and np.all(np.isnan(ap.symmetric))
+
+
+def test_the_symmetric_slice_lies_in_the_outer_set(three_firms):
+    """Every end of the slice, as the payoff vector (t, t, t), meets the outer set's half-spaces recomputed here
+    (Judd, Yeltekin and Conklin, 2003, "Computing supergame equilibria", Econometrica 71(4): the outer set is
+    {w : h_l . w <= c_l}, a description the slice, read from the set's vertices, does not use), and the inner
+    slice lies in the outer one. Tolerance: 1e-7 of the payoff scale, the sets' own tolerance being 1e-8."""
+    from sim.theory.payoff_sets import equilibrium_payoffs
+
+    market, spec, ap = three_firms
+    lo_out, lo_in, hi_in, hi_out = ap.symmetric
+    assert lo_out <= lo_in <= hi_in <= hi_out
+    game = discretize(market, list(spec.grid))
+    res = equilibrium_payoffs(game, ap.delta, method="directions", directions=spec.directions)
+    tol = 1e-7 * game.scale
+    for t in ap.symmetric:
+        assert np.all(res.directions @ np.full(N3, t) <= res.outer_levels + tol)
+
+
+def test_the_symmetric_slice_holds_static_nash_and_at_most_the_monopoly_share(three_firms):
+    """Static Nash played forever is an equilibrium (Abreu, Pearce and Stacchetti, 1990, Econometrica 58(5)), so
+    the symmetric Cournot profit (a - c)^2 / (b (n + 1)^2) (Tirole, 1988, The Theory of
+    Industrial Organization, chapter 5, from memory) lies in the inner slice; no feasible payoff gives every firm more
+    than its share of the monopoly profit, (a - c)^2 / (4 b n), which the inner slice reaches when the
+    agreement (joint-profit maximum) is sustained (Abreu, 1988, Econometrica 56(2)). The grid holds both levels
+    (the static Nash and agreed actions are placed on it). Tolerance: 1e-7 of the payoff scale (rounding of the
+    sets and of the slice's linear programmes)."""
+    market, spec, ap = three_firms
+    nash = (A3 - C3) ** 2 / (B3 * (N3 + 1) ** 2)
+    monopoly_share = (A3 - C3) ** 2 / (4 * B3 * N3)
+    tol = 1e-7 * float(np.abs(discretize(market, list(spec.grid)).flat_payoffs).max())
+    _, lo_in, hi_in, hi_out = ap.symmetric
+    assert lo_in - tol <= nash <= hi_in + tol
+    assert hi_out <= monopoly_share + tol
+    if ap.verdict == "sustained":
+        assert hi_in >= monopoly_share - tol

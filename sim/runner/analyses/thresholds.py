@@ -123,6 +123,8 @@ def _any_punishment_names(n: int) -> list[str]:
             "any_punishment.delta", "any_punishment.sustained", "any_punishment.accuracy"]
     out += [f"any_punishment.worst.lower.firm{i + 1}" for i in range(n)]
     out += [f"any_punishment.worst.upper.firm{i + 1}" for i in range(n)]
+    if n >= 3:  # the symmetric slice (two firms: the set is drawn whole, and their columns stay as they were)
+        out += [f"any_punishment.symmetric_slice.{e}" for e in _SLICE_ENDS]
     return out
 
 
@@ -138,7 +140,13 @@ def _any_punishment_metrics(ap, n: int) -> dict:
         m[f"any_punishment.worst.lower.firm{i + 1}"] = float(ap.worst_low[i])
     for i in range(n):
         m[f"any_punishment.worst.upper.firm{i + 1}"] = float(ap.worst_high[i])
+    if n >= 3:
+        m.update({f"any_punishment.symmetric_slice.{e}": float(v) for e, v in zip(_SLICE_ENDS, ap.symmetric)})
     return m
+
+
+#: the ends of the symmetric slice, in the order of ``AnyPunishmentResult.symmetric``
+_SLICE_ENDS = ("min_outer", "min_inner", "max_inner", "max_outer")
 
 
 _TP_FIELDS = ("quantity", "trigger", "war_length", "war_probability", "expected_collusive_spell", "war_share",
