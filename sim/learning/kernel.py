@@ -39,8 +39,9 @@ Random draws
 ------------
 Everything draws from the session's one xoshiro256** stream, in this fixed order. Learning, per
 period: seats in order, a learner's exploration draws (one uniform, and a second one when it explores)
-or an automaton's cheat draw (:func:`strategies.step.choose_level`); then, learners in seat order, a
-learner with the mixed update rule draws one uniform for each action it did not play, in increasing
+or an automaton's cheat draw (:func:`strategies.step.choose_level`); then, with a demand shock
+(``shock > 0``), one ziggurat normal for the period's shock (:mod:`sim.learning.shocks`); then, learners
+in seat order, a learner with the mixed update rule draws one uniform for each action it did not play, in increasing
 order (the asynchronous and synchronous rules draw nothing); a bandit draws in its own steps (a Thompson
 seat ``m`` normals where a Q-learner draws its exploration uniforms, a bandit with observation noise one
 normal at its update: :mod:`sim.learning.bandits`); then, after the learners'
@@ -68,6 +69,7 @@ from sim.learning.inputs import (
     TRIGGER_FIELDS,
     new_triggers,
 )
+from sim.learning.shocks import demand_shock
 from strategies.step import COLLUSIVE, bad_signal, choose_level, next_state
 
 __all__ = ["TRIGGER_FIELDS", "initial_state", "new_triggers", "run_session"]
@@ -138,14 +140,15 @@ def _takes_over(new, qg, a, g):
 
 @njit(cache=True, nogil=True)
 def _update_counterfactual(Q, greedy, li, si, s, prof, a, m, place_i, mod_i, M, S, K, payoff_i, alpha, delta, share,
-                           rng, cont, upd):
+                           rng, cont, upd, theta=1.0):
     """The synchronous or mixed update of one learner's row ``Q[li, si]`` (Asker, Fershtman and Pakes, 2022).
 
     Action ``b`` is updated, as if it had been played against the rivals' actual actions: with the profit of the
     profile ``prof + (b - a) place_i`` and the largest value of the state that profile leads to. The action played
     ``a`` always is; every other one with probability ``share`` (one uniform draw per action, in increasing order,
     only when ``0 < share < 1``). Every continuation is read before any value of the row changes. ``cont`` and
-    ``upd`` are scratch arrays of at least ``m`` entries. Returns whether the greedy action of the row changed.
+    ``upd`` are scratch arrays of at least ``m`` entries; ``theta`` scales every profit (the period's demand shock,
+    :mod:`sim.learning.shocks`). Returns whether the greedy action of the row changed.
     """
     for b in range(m):
         upd[b] = b == a or share >= 1.0 or next_double(rng) < share
@@ -154,7 +157,8 @@ def _update_counterfactual(Q, greedy, li, si, s, prof, a, m, place_i, mod_i, M, 
             cont[b] = Q[li, sb, greedy[li, sb]]
     for b in range(m):
         if upd[b]:
-            Q[li, si, b] = _q_learning(Q[li, si, b], payoff_i[prof + (b - a) * place_i], cont[b], alpha, delta)
+            Q[li, si, b] = _q_learning(Q[li, si, b], theta * payoff_i[prof + (b - a) * place_i], cont[b], alpha,
+                                          delta)
     best = 0
     bv = Q[li, si, 0]
     for b in range(1, m):
@@ -168,7 +172,7 @@ def _update_counterfactual(Q, greedy, li, si, s, prof, a, m, place_i, mod_i, M, 
 
 
 @njit(cache=True, nogil=True)
-def run_session(seats, stage, automata, session, s, convergence, max_periods):
+def run_session(seats, stage, automata, session, s, convergence, max_periods, shock=0, sigma=0.0):
     """Run one session from history state ``s`` until convergence or the cap.
 
     Parameters
@@ -187,6 +191,10 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
         Stop once no learner's greedy strategy has changed for this many consecutive periods.
     max_periods : int
         Stop once this many periods have been played in all (counted from the session's start) in any case.
+    shock : int
+        The demand shock's code (:func:`sim.learning.shocks.shock_code`; 0: none, nothing drawn).
+    sigma : float
+        Its standard deviation.
 
     Returns
     -------
@@ -236,6 +244,8 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
             act[i] = a
             prof += a * place[i]
         s_new = _next_history(prof, s, M, S, K)
+        # the period's demand shock scales every realised profit (1.0, drawing nothing, without one)
+        theta = demand_shock(shock, sigma, rng)
         # 2. every learner updates the value of the action it played, and keeps its greedy action
         changed = False
         for i in range(n):
@@ -243,19 +253,19 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods):
                 continue
             li, a = lidx[i], act[i]
             if family[i] != Q_FAMILY:
-                if bandit_update(family[i], li, a, radix[i], payoff[prof, i], reward_lo[i], reward_span[i], noise[i],
-                                 counts, sums, Q, greedy, w, rng):
+                if bandit_update(family[i], li, a, radix[i], theta * payoff[prof, i], reward_lo[i], reward_span[i],
+                                 noise[i], counts, sums, Q, greedy, w, rng):
                     changed = True
                 continue
             si, sn = _seen(s, mod[i], S), _seen(s_new, mod[i], S)
             if share[i] > 0.0:
                 # synchronous or mixed: the other actions too, from what they would have earned
                 if _update_counterfactual(Q, greedy, li, si, s, prof, a, radix[i], place[i], mod[i], M, S, K,
-                                          payoff[:, i], alpha[i], delta[i], share[i], rng, cont, upd):
+                                          payoff[:, i], alpha[i], delta[i], share[i], rng, cont, upd, theta):
                     changed = True
                 continue
             old = Q[li, si, a]
-            new = _q_learning(old, payoff[prof, i], Q[li, sn, greedy[li, sn]], alpha[i], delta[i])
+            new = _q_learning(old, theta * payoff[prof, i], Q[li, sn, greedy[li, sn]], alpha[i], delta[i])
             Q[li, si, a] = new
             g = greedy[li, si]
             if a == g:

@@ -89,6 +89,7 @@ from sim.learning.results import (
     value_horizon,
 )
 from sim.learning.saved import SavedLearners, check_start, describe_layout
+from sim.learning.shocks import shock_code
 from sim.learning.tables import RUN_CONSTRAINTS
 from sim.learning.twin import reference_session as _reference
 
@@ -104,7 +105,8 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
           response_periods: int = 15, near: float = 0.1, workers: int | None = None,
           progress: bool | None = None, cell: int = 0, confidence: float = 0.95,
           limit_periods: int = LIMIT_PERIODS, start: SavedLearners | None = None,
-          keep: bool = False, event: Event | None = None, timing: str = "simultaneous") -> LearningResult:
+          keep: bool = False, event: Event | None = None, timing: str = "simultaneous",
+          demand_noise: str = "lognormal", demand_sigma: float = 0.0) -> LearningResult:
     """Run independent learning sessions and analyse what the learners converged to.
 
     Parameters
@@ -162,6 +164,11 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         al., 2020), or two Q-learners set theirs in turn, each price held for two periods (Klein, 2021;
         :mod:`sim.learning.alternating`). Alternating sessions have no impulse response (its entries are nan) and
         cannot be saved, continued or followed by an event.
+    demand_noise : {"lognormal", "normal"}
+        Distribution of the mean-one demand shock that scales every firm's realised profit each period
+        (:mod:`sim.learning.shocks`; Calvano, Calzolari, Denicolò and Pastorello, 2021).
+    demand_sigma : float
+        Its standard deviation (0, the default: no shock, nothing drawn). Simultaneous moves only, without an event.
 
     Returns
     -------
@@ -179,6 +186,13 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         raise InputError("deviator", f"must be a firm of the market (0 to {lineup.n_seats - 1}), got {run['deviator']}")
     dev_index = _deviation_index(lineup, run["deviator"], deviation)
     settings = {**run, "workers": n_workers, "deviation": deviation}
+    code, sigma = shock_code(demand_noise, demand_sigma, prefix="")
+    if code:
+        if settings["timing"] != "simultaneous" or event is not None:
+            raise InputError("demand_sigma", "a demand shock needs simultaneous moves and no event; got "
+                                             f"timing = {settings['timing']!r}" + (" and an event" if event else ""))
+        # written only with a shock: results without one stay as they were
+        settings["demand_noise"], settings["demand_sigma"] = demand_noise, sigma
     if settings.pop("timing") == "alternating":
         # the key is written only where it changes the protocol: simultaneous results stay as they were
         check_alternating(lineup, start, keep, event)
@@ -290,7 +304,7 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
         s = int(start.history[j])
     if buf.event is None:
         st, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, session, s, settings["convergence"],
-                                 settings["max_periods"])
+                                 settings["max_periods"], *_shock(settings))
     else:
         t0 = int(session.clock[0])
         st, t, s = run_tracked(lineup, session, s, settings["convergence"], settings["max_periods"] + t0,
@@ -308,6 +322,13 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
     else:
         # the session's stream goes on from where learning left it
         L.estimate_limit(x, lineup.play(session.greedy, t, rng), dev, buf.outputs(j))
+
+
+def _shock(settings: dict) -> tuple[int, float]:
+    """The kernel's demand-shock code and standard deviation of a run's settings ((0, 0.0) without a shock)."""
+    if "demand_sigma" not in settings:
+        return 0, 0.0
+    return shock_code(settings["demand_noise"], settings["demand_sigma"], prefix="")
 
 
 def _each(n: int, workers: int, one, progress: bool | None) -> None:
@@ -449,7 +470,8 @@ def _run_alternating(lineup: Lineup, settings: dict, progress: bool | None) -> L
 
 
 def reference_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergence: int = 100_000,
-                      max_periods: int = 10_000, cell: int = 0) -> dict:
+                      max_periods: int = 10_000, cell: int = 0, demand_noise: str = "lognormal",
+                      demand_sigma: float = 0.0) -> dict:
     """The plain-Python twin of one session (:func:`sim.learning.twin.reference_session`), with the
     session's own random stream. Slow: for tests and benchmarks on short sessions.
 
@@ -466,6 +488,10 @@ def reference_session(lineup: Lineup, session: int = 0, *, seed: int = 0, conver
         Stop after this many periods in any case.
     cell : int
         Family of random streams.
+    demand_noise : {"lognormal", "normal"}
+        Distribution of the demand shock (:mod:`sim.learning.shocks`).
+    demand_sigma : float
+        Its standard deviation (0: none).
 
     Returns
     -------
@@ -473,11 +499,12 @@ def reference_session(lineup: Lineup, session: int = 0, *, seed: int = 0, conver
         See :func:`sim.learning.twin.reference_session`.
     """
     state = stream_states(seed, (cell,), session, session + 1)[0]
-    return _reference(lineup, state, convergence, max_periods)
+    return _reference(lineup, state, convergence, max_periods, *shock_code(demand_noise, demand_sigma, prefix=""))
 
 
 def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergence: int = 100_000,
-                   max_periods: int = 10_000, cell: int = 0) -> dict:
+                   max_periods: int = 10_000, cell: int = 0, demand_noise: str = "lognormal",
+                   demand_sigma: float = 0.0) -> dict:
     """One session through the kernel, returning the fields of :func:`reference_session` that the kernel keeps.
 
     Parameters
@@ -493,6 +520,10 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
         Stop after this many periods in any case.
     cell : int
         Family of random streams.
+    demand_noise : {"lognormal", "normal"}
+        Distribution of the demand shock (:mod:`sim.learning.shocks`).
+    demand_sigma : float
+        Its standard deviation (0: none).
 
     Returns
     -------
@@ -504,6 +535,7 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
     rng = stream_states(seed, (cell,), session, session + 1)[0].copy()
     st = lineup.session_state(rng)
     s = K.initial_state(rng, lineup.seats, lineup.stage)
-    status, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, st, s, convergence, max_periods)
+    status, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, st, s, convergence, max_periods,
+                                 *shock_code(demand_noise, demand_sigma, prefix=""))
     return {"status": int(status), "periods": int(t), "state": int(s), "Q": st.Q, "greedy": st.greedy, "z": st.z,
             "rng": rng, "triggers": st.triggers, "counts": st.counts, "sums": st.sums}

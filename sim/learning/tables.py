@@ -16,6 +16,7 @@ from sim.learning.events import EVENT_KEYS, check_event, event_from_table, with_
 from sim.learning.lineup import compile_lineup
 from sim.learning.results import LIMIT_PERIODS
 from sim.learning.saved import check_start, load_learners
+from sim.learning.shocks import SHOCK_CONSTRAINTS, shock_code
 from sim.models.market import market_from_dict
 from strategies import strategy_from_dict
 from strategies.qlearning import QLearner
@@ -46,13 +47,14 @@ RUN_CONSTRAINTS = {
     "cell": Integer(0, 2**31),
     "confidence": Real(0, 1, closed="neither"),
     "timing": Options(*TIMINGS),
+    **SHOCK_CONSTRAINTS,
 }
 #: parameters of a Q-learner in [learning] and in a ``strategy = "qlearning"`` entry
 LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init", "update", "counterfactual_share", "family",
                   "exploration", "noise")
 #: keys of the tables a learning experiment reads, in the order error messages list them
 LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "near", "limit_periods", "save_to", "continue_from",
-                 "timing")
+                 "timing", "demand_noise", "demand_sigma")
 IMPULSE_KEYS = ("firm", "action", "periods")
 RUN_KEYS = ("sessions", "seed", "workers", "confidence")
 EXPERIMENT_KEYS = ("name", "kind", "description")
@@ -246,6 +248,7 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     }
     if _setting(lt, "learning", "timing", "timing", "simultaneous") != "simultaneous":
         settings["timing"] = lt["timing"]
+    _demand_shock(lt, settings, doc)
     firm = Integer(1, n_firms).check("impulse.firm", it.get("firm", 1))
     settings["deviator"] = firm - 1  # learn() counts seats from 0; every output counts firms from 1
     settings["deviation"] = _impulse_action(it)
@@ -263,6 +266,18 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
         check_event(start, lineup, event, settings["sessions"], "learning.continue_from")
     return {"market": market, "learner": learner, "settings": settings, "save_to": save_to, "start": start,
             "event": event, "waiting": event is not None and start is None}
+
+
+def _demand_shock(lt: dict, settings: dict, doc: dict) -> None:
+    """``learning.demand_noise`` and ``learning.demand_sigma`` (:mod:`sim.learning.shocks`), written into the
+    settings only with a shock (``demand_sigma > 0``), which needs simultaneous moves and no event."""
+    code, sigma = shock_code(lt.get("demand_noise", "lognormal"), lt.get("demand_sigma", 0.0))
+    if not code:
+        return
+    if "timing" in settings or "event" in doc:
+        raise InputError("learning.demand_sigma", "a demand shock needs simultaneous moves (learning.timing = "
+                                                  "'simultaneous') and no [event]")
+    settings["demand_noise"], settings["demand_sigma"] = lt.get("demand_noise", "lognormal"), sigma
 
 
 def _event(doc: dict, overrides: dict, lt: dict):

@@ -30,6 +30,7 @@ import numpy as np
 import strategies.step as S
 from sim.core.rng import ReferenceStream
 from sim.learning.bandits import twin_choice, twin_update
+from sim.learning.shocks import twin_shock
 
 __all__ = ["jumped", "reference_analysis", "reference_estimate", "reference_session"]
 
@@ -222,11 +223,12 @@ def _choose(st, Q, history, z, t, rng, arms):
     return tuple(profile)
 
 
-def _update(st, Q, states, history, profile, rng, arms):
+def _update(st, Q, states, history, profile, rng, arms, theta=1.0):
     """Every learner updates the value of the action it played in the state it was in, with the best value of
     the state it moved to (and, by its update rule, the values of other actions: :func:`_counterfactual`); a
-    bandit its statistics and estimates; returns whether a greedy action changed."""
-    profits = st.profits(profile)
+    bandit its statistics and estimates; every profit is the payoff times the period's demand shock ``theta``;
+    returns whether a greedy action changed."""
+    profits = [theta * x for x in st.profits(profile)]
     changed = False
     for i in Q:
         row = Q[i][states[i]]
@@ -235,7 +237,7 @@ def _update(st, Q, states, history, profile, rng, arms):
             row[:] = twin_update(st.family[i], profile[i], profits[i], st.reward_lo[i], st.reward_span[i],
                                  st.noise[i], *arms[i], rng)
         elif st.share[i] > 0.0:
-            _counterfactual(st, Q[i], i, states[i], profile, rng)
+            _counterfactual(st, Q[i], i, states[i], profile, rng, theta)
         else:
             continuation = max(Q[i][tuple(history[: st.k[i]])])
             a = profile[i]
@@ -245,7 +247,7 @@ def _update(st, Q, states, history, profile, rng, arms):
     return changed
 
 
-def _counterfactual(st, Qi, i, state, profile, rng):
+def _counterfactual(st, Qi, i, state, profile, rng, theta=1.0):
     """The synchronous or mixed update of learner ``i`` in ``state`` (Asker, Fershtman and Pakes, 2022): every
     action ``b`` chosen for an update -- the one played, and each other one with probability ``share`` (a draw
     per action, in increasing order, only when the share is strictly between 0 and 1) -- gets the profit of the
@@ -256,7 +258,7 @@ def _counterfactual(st, Qi, i, state, profile, rng):
         if b == profile[i] or share >= 1.0 or rng.next_double() < share:
             cf = tuple(b if j == i else x for j, x in enumerate(profile))
             reached = (cf, *state[: st.k[i] - 1])  # the state seen after cf, had it been played
-            targets[b] = st.profits(cf)[i] + st.delta[i] * max(Qi[reached])
+            targets[b] = theta * st.profits(cf)[i] + st.delta[i] * max(Qi[reached])
     row = Qi[state]
     for b, target in targets.items():
         row[b] = (1.0 - st.alpha[i]) * row[b] + st.alpha[i] * target
@@ -275,7 +277,7 @@ def _kernel_layout(st, lineup, Q):
     return q_arr, greedy
 
 
-def reference_session(lineup, rng_state, convergence, max_periods):
+def reference_session(lineup, rng_state, convergence, max_periods, shock=0, sigma=0.0):
     """One session, period by period.
 
     Parameters
@@ -287,6 +289,10 @@ def reference_session(lineup, rng_state, convergence, max_periods):
         Stop once no learner's greedy action has changed for this many consecutive periods.
     max_periods : int
         Stop after this many periods in any case.
+    shock : int
+        The demand shock's code (:func:`sim.learning.shocks.shock_code`; 0: none).
+    sigma : float
+        Its standard deviation.
 
     Returns
     -------
@@ -314,7 +320,9 @@ def reference_session(lineup, rng_state, convergence, max_periods):
         states = {i: tuple(history[: st.k[i]]) for i in Q}
         profile = _choose(st, Q, history, z, t, rng, arms)
         history = [profile, *history[: st.K - 1]]
-        changed = _update(st, Q, states, history, profile, rng, arms)
+        # the demand shock, drawn once the seats have chosen (nothing drawn without one)
+        theta = twin_shock(shock, sigma, rng)
+        changed = _update(st, Q, states, history, profile, rng, arms, theta)
         # automata move after the learners' updates, seats in order
         before, z = z, st.move_automata(z, profile, rng)
         _record_triggers(st, record, before, z, t)

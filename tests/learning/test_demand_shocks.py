@@ -1,0 +1,163 @@
+"""Q-learners in a market with demand shocks (sim.learning.shocks).
+
+Sources: Calvano, Calzolari, Denicolò and Pastorello (2021), "Algorithmic collusion with imperfect monitoring",
+International Journal of Industrial Organization 79 (abstract read: Q-learners learn to collude under imperfect
+monitoring with shocks to demand); the shock distributions are those of the simulation engine
+(sim.models.monitoring): lognormal exp(sigma Z - sigma^2/2) and normal 1 + sigma Z, both of mean one.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+import sim
+import strategies
+from sim.core.errors import InputError
+from sim.core.rng import ReferenceStream, stream_states
+from sim.learning.lineup import compile_lineup
+from sim.learning.session import kernel_session, learn, reference_session
+from sim.learning.shocks import shock_code, twin_shock
+from sim.learning.tables import learning_from_dict
+from strategies.qlearning import QLearner
+
+NEVER = 2**62
+
+
+def logit_market(n=2, quality=2.0, cost=1.0):
+    return sim.Market(sim.LogitDemand(quality=quality, outside=0.0, mu=0.25), cost=cost, model="bertrand",
+                      n_firms=n)
+
+
+# ---- kernel against its twin, bit for bit, with shocks ------------------------------------------------------
+
+CASES = {
+    "asynchronous-lognormal": lambda: (logit_market(), QLearner(m=5, beta=1e-3), "lognormal", 0.3),
+    "memory-2-normal": lambda: (logit_market(), QLearner(m=4, k=2, beta=1e-3), "normal", 0.25),
+    "synchronous-lognormal": lambda: (logit_market(), QLearner(m=5, beta=1e-3, update="synchronous"), "lognormal",
+                                      0.5),
+    "mixed-normal": lambda: (logit_market(), QLearner(m=4, beta=1e-3, update="mixed", counterfactual_share=0.4),
+                             "normal", 0.3),
+    "bandit-with-learner": lambda: (logit_market(), [QLearner(m=4, beta=1e-3),
+                                                     QLearner(m=4, family="thompson", exploration=0.5, noise=0.1)],
+                                    "lognormal", 0.4),
+    "learner-with-random-automaton": lambda: (logit_market(), [QLearner(m=4, beta=1e-3),
+                                                               strategies.ForgivingTitForTat(forgiveness=0.3)],
+                                              "lognormal", 0.2),
+}
+
+
+@pytest.mark.parametrize("name", sorted(CASES))
+def test_kernel_and_twin_agree_bit_for_bit_with_demand_shocks(name):
+    market, learners, noise, sigma = CASES[name]()
+    lu = compile_lineup(market, learners, random_automata="estimate")
+    kw = {"seed": 11, "convergence": NEVER, "max_periods": 1200, "demand_noise": noise, "demand_sigma": sigma}
+    k = kernel_session(lu, 2, **kw)
+    r = reference_session(lu, 2, **kw)
+    assert np.array_equal(k["Q"], r["Q"]) and np.array_equal(k["greedy"], r["greedy"])
+    assert k["state"] == r["state"] and np.array_equal(k["rng"], r["rng"])
+    assert np.array_equal(k["counts"], r["counts"]) and np.array_equal(k["sums"], r["sums"])
+    # the shock changed the values: the same session without it ends elsewhere
+    plain = kernel_session(lu, 2, seed=11, convergence=NEVER, max_periods=1200)
+    assert not np.array_equal(k["Q"], plain["Q"])
+
+
+def test_a_zero_sigma_draws_nothing_and_changes_no_byte():
+    market = logit_market()
+    lu = compile_lineup(market, QLearner(m=5, beta=1e-3))
+    plain = kernel_session(lu, 0, seed=3, convergence=NEVER, max_periods=800)
+    zero = kernel_session(lu, 0, seed=3, convergence=NEVER, max_periods=800, demand_noise="normal", demand_sigma=0.0)
+    for key in ("Q", "greedy", "rng"):
+        assert np.array_equal(plain[key], zero[key])
+    # a whole run: the same result document, byte for byte, with demand_sigma = 0 given and not given
+    kw = {"sessions": 3, "seed": 4, "convergence": 300, "max_periods": 20_000, "workers": 1, "progress": False}
+    a = learn(market, QLearner(m=5, beta=1e-3), **kw)
+    b = learn(market, QLearner(m=5, beta=1e-3), demand_noise="lognormal", demand_sigma=0.0, **kw)
+    da = {k: v for k, v in a.to_dict().items() if k != "elapsed_seconds"}
+    db = {k: v for k, v in b.to_dict().items() if k != "elapsed_seconds"}
+    assert json.dumps(da, sort_keys=True, default=str) == json.dumps(db, sort_keys=True, default=str)
+
+
+def test_the_shock_draws_one_ziggurat_normal_per_period_and_has_mean_one():
+    # lognormal exp(sigma Z - sigma^2/2) has mean exactly one (the lognormal mean exp(mu + sigma^2/2), Johnson,
+    # Kotz and Balakrishnan, 1994, Continuous Univariate Distributions 1, ch. 14); tolerance: five standard errors
+    # of the mean of 20,000 draws, sqrt(exp(sigma^2) - 1) / sqrt(20000)
+    state = stream_states(7, (0,), 0, 1)[0]
+    s, ref = ReferenceStream(state), ReferenceStream(state)
+    sigma = 0.3
+    draws = [twin_shock(1, sigma, s) for _ in range(20_000)]
+    z = [ref.next_normal_zig() for _ in range(20_000)]
+    assert s.s == ref.s
+    assert draws[:3] == [math.exp(sigma * x - 0.5 * sigma**2) for x in z[:3]]
+    se = math.sqrt(math.exp(sigma**2) - 1.0) / math.sqrt(20_000)
+    assert abs(np.mean(draws) - 1.0) < 5 * se
+    assert twin_shock(0, sigma, s) == 1.0 and s.s == ref.s  # no shock: no draw
+
+
+# ---- bad input ---------------------------------------------------------------------------------------------
+
+DOC = """
+[experiment]
+kind = "learn"
+[market]
+model = "bertrand"
+demand = "logit"
+quality = 2.0
+outside = 0.0
+mu = 0.25
+cost = 1.0
+n_firms = 2
+[learning]
+m = 4
+beta = 1e-2
+convergence = 50
+max_periods = 5000
+{extra}
+[run]
+sessions = 2
+"""
+
+
+@pytest.mark.parametrize("extra, key, words", [
+    ("demand_sigma = -0.1", "learning.demand_sigma", "-0.1"),
+    ('demand_noise = "uniform"\ndemand_sigma = 0.1', "learning.demand_noise", "uniform"),
+    ('demand_noise = "normal"\ndemand_sigma = 0.5', "learning.demand_sigma", "at most 1/3"),
+    ('demand_sigma = 0.1\ntiming = "alternating"', "learning.demand_sigma", "simultaneous"),
+])
+def test_bad_shock_settings_name_their_key(extra, key, words):
+    import tomllib
+
+    with pytest.raises(InputError) as exc:
+        learning_from_dict(tomllib.loads(DOC.format(extra=extra)))
+    assert exc.value.key == key and words in str(exc.value)
+    with pytest.raises(InputError) as exc:
+        shock_code("gamma", 0.1)
+    assert exc.value.key == "learning.demand_noise"
+
+
+@pytest.mark.parametrize("extra, key", [("demand_sigma = -0.1", "learning.demand_sigma"),
+                                        ('demand_noise = "uniform"\ndemand_sigma = 0.1', "learning.demand_noise")])
+def test_bad_shock_settings_one_line_exit_2_nothing_written(extra, key, tmp_path):
+    f = tmp_path / "bad.toml"
+    f.write_text(DOC.format(extra=extra))
+    out = tmp_path / "out"
+    r = subprocess.run([sys.executable, "-m", "sim", "run", str(f), "--out", str(out)], capture_output=True,
+                       text=True, cwd=tmp_path)
+    assert r.returncode == 2
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and "Traceback" not in r.stderr and key in lines[0]
+    assert not out.exists()
+
+
+def test_the_settings_carry_the_shock_only_when_there_is_one():
+    import tomllib
+
+    cfg = learning_from_dict(tomllib.loads(DOC.format(extra='demand_noise = "normal"\ndemand_sigma = 0.2')))
+    assert cfg["settings"]["demand_noise"] == "normal" and cfg["settings"]["demand_sigma"] == 0.2
+    cfg = learning_from_dict(tomllib.loads(DOC.format(extra="demand_sigma = 0")))
+    assert "demand_sigma" not in cfg["settings"] and "demand_noise" not in cfg["settings"]
