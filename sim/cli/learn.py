@@ -54,6 +54,8 @@ _FLAGS = {
         "save_to": ("save-to", "str"),
         "continue_from": ("continue-from", "str"),
         "timing": ("timing", "str"),
+        "demand_noise": ("demand-noise", "str"),
+        "demand_sigma": ("demand-sigma", "num"),
     },
     "impulse": {
         "firm": ("impulse-firm", "int"),
@@ -95,6 +97,9 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--timing", metavar="T", help="simultaneous (every firm sets its price every period; default) or "
                                                  "alternating (two learners set prices in turn, each held for two "
                                                  "periods)")
+    g.add_argument("--demand-noise", metavar="D", help="distribution of the mean-one demand shock that scales every "
+                                                       "firm's profit each period: lognormal (default) or normal")
+    g.add_argument("--demand-sigma", metavar="SD", help="standard deviation of that shock (default 0: none)")
     g.add_argument("--counterfactual-share", metavar="S", help="with --update mixed: probability in (0, 1) that each "
                                                                "action not played is updated")
     g.add_argument("--family", metavar="F", help="q (Q-learning; default), ucb or thompson (bandits over the grid that "

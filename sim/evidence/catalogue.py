@@ -510,6 +510,14 @@ PARAMETERS: dict[str, Entry] = {
     "learning.exploration": Entry("exploration scale of a bandit", "",
                                   "UCB's exploration constant c, or the standard deviation of a Thompson-sampling "
                                   "learner's normal prior.", "given"),
+    "learning.demand_sigma": Entry("standard deviation of the demand shock during learning", "",
+                                   "Standard deviation of the mean-one shock that scales every firm's profit each "
+                                   "period of learning (0: none); the learners learn from the realised profits.",
+                                   "given; demand shocks with Q-learners after Calvano, Calzolari, Denicolo and "
+                                   "Pastorello (2021, International Journal of Industrial Organization 79)"),
+    "learning.demand_noise": Entry("distribution of the demand shock during learning", "",
+                                   "lognormal exp(sigma Z - sigma^2/2) or normal 1 + sigma Z (floored at 0), Z "
+                                   "standard normal; both of mean one.", "given"),
 }
 
 PARAMETERS.update({k: Entry(*v) for k, v in CONDITION_PARAMETERS.items()})

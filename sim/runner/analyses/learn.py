@@ -278,5 +278,8 @@ KIND = Kind(
 
         "With learning.timing = 'alternating', two Q-learners set their prices in turn and each price holds for two "
         "periods (Klein, 2021, RAND Journal of Economics 52(3)); no impulse response is computed for them.",
+        "With learning.demand_sigma above 0, one mean-one demand shock a period scales every firm's realised profit, "
+        "which is what the learners learn from; they condition on past prices only, so the limit outcomes do not "
+        "react to a draw and report expected profits (after Calvano, Calzolari, Denicolo and Pastorello, 2021).",
     ),
 )
