@@ -33,12 +33,14 @@ from sim.core.params import Options, Real
 from sim.core.rng import next_normal_zig
 from sim.models.monitoring import NOISE_CODES, NORMAL_SIGMA_MAX
 
-__all__ = ["DEMAND_NOISES", "SHOCK_CONSTRAINTS", "demand_shock", "shock_code", "twin_shock"]
+__all__ = ["DEMAND_NOISES", "FORCED_SHOCK", "SHOCK_CONSTRAINTS", "demand_shock", "shock_code", "twin_shock"]
 
 #: the shock distributions a learning run may use (the names of the simulation engine's ``monitoring.noise``)
 DEMAND_NOISES = ("lognormal", "normal")
 #: the settings of the demand shock, as data (keys of ``[learning]``)
 SHOCK_CONSTRAINTS = {"demand_noise": Options(*DEMAND_NOISES), "demand_sigma": Real(0, 10)}
+#: the code of a forced shock: ``theta`` is the given value (``sigma``), and the period's normal is drawn all the same
+FORCED_SHOCK = 3
 
 
 def shock_code(demand_noise: str, demand_sigma: float, prefix: str = "learning") -> tuple[int, float]:
@@ -82,8 +84,9 @@ def demand_shock(code, sigma, rng):
     Parameters
     ----------
     code : int
-        :func:`shock_code`'s code.
+        :func:`shock_code`'s code, or :data:`FORCED_SHOCK`.
     sigma : float
+        The standard deviation; with :data:`FORCED_SHOCK`, the shock itself.
     rng : ndarray of uint64, shape (4,)
         The session's generator state, advanced by one ziggurat normal when ``code > 0``.
 
@@ -94,6 +97,9 @@ def demand_shock(code, sigma, rng):
     if code == 0:
         return 1.0
     z = next_normal_zig(rng)
+    if code == FORCED_SHOCK:
+        # a forced draw still uses up its normal, so that the paths with and without it share their random numbers
+        return sigma
     if code == 1:
         return math.exp(sigma * z - 0.5 * sigma * sigma)
     theta = 1.0 + sigma * z
@@ -116,6 +122,8 @@ def twin_shock(code, sigma, stream):
     if code == 0:
         return 1.0
     z = stream.next_normal_zig()
+    if code == FORCED_SHOCK:
+        return sigma
     if code == 1:
         return math.exp(sigma * z - 0.5 * sigma * sigma)
     return max(1.0 + sigma * z, 0.0)

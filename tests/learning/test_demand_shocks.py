@@ -191,3 +191,68 @@ def test_learners_keep_supra_competitive_prices_with_small_demand_shocks():
         assert gains[sigma]["low"] > 0.5
         assert abs(gains[sigma]["mean"] - gains[0.0]["mean"]) < 0.1
 
+
+
+# ---- one adverse draw (sim.learning.shock_response) ---------------------------------------------------------
+
+def test_a_forced_draw_uses_up_the_periods_normal_in_the_kernel_and_the_twin():
+    import sim.learning.kernel as K
+    from sim.learning.shocks import FORCED_SHOCK
+    from sim.learning.twin import reference_session as twin_session
+
+    state = stream_states(5, (0,), 0, 1)[0]
+    s, ref = ReferenceStream(state), ReferenceStream(state)
+    assert twin_shock(FORCED_SHOCK, 0.4, s) == 0.4
+    ref.next_normal_zig()
+    assert s.s == ref.s
+    lu = compile_lineup(logit_market(), QLearner(m=4, beta=1e-3))
+    rng = state.copy()
+    st = lu.session_state(rng)
+    s0 = K.initial_state(rng, lu.seats, lu.stage)
+    K.run_session(lu.seats, lu.stage, lu.automata, st, s0, NEVER, 300, FORCED_SHOCK, 0.4)
+    r = twin_session(lu, state.copy(), NEVER, 300, FORCED_SHOCK, 0.4)
+    assert np.array_equal(st.Q, r["Q"]) and np.array_equal(rng, r["rng"])
+
+
+def _noisy_run(sigma):
+    import tomllib
+    from pathlib import Path
+
+    doc = tomllib.loads((Path(__file__).parents[2] / "experiments" / "learning-noisy-demand.toml").read_text())
+    doc.pop("sweep"), doc.pop("report")
+    doc["learning"]["demand_sigma"] = sigma
+    cfg = learning_from_dict(doc)
+    return learn(cfg["market"], cfg["learner"], **{**cfg["settings"], "workers": 2}, progress=False, keep=True)
+
+
+def test_the_paths_with_and_without_the_draw_share_everything_before_it_and_bad_input_names_its_key():
+    from sim.learning.shock_response import shock_response
+
+    res = _noisy_run(0.3)
+    out = shock_response(res, theta=0.5, periods=6)
+    n = int(res.converged.sum())
+    assert out.with_draw.shape == (n, 7) == out.without_draw.shape
+    # prices of period 1 are set before its shock is drawn: the two paths agree up to there, in every session
+    assert np.array_equal(out.with_draw[:, :2], out.without_draw[:, :2])
+    assert out.change[0].value == 0.0 and 0.0 <= out.price_war.value <= 1.0
+    for kw, key in (({"theta": 1.2}, "theta"), ({"theta": 0.5, "periods": 1}, "periods")):
+        with pytest.raises(InputError) as exc:
+            shock_response(res, **kw)
+        assert exc.value.key == key
+
+
+@pytest.mark.slow
+@pytest.mark.xfail(strict=True, reason="the learners' state is the past prices only, so a bad draw moves no price: "
+                                       "the learned price wars of Calvano et al. (2021) need a state the shock moves")
+def test_an_adverse_draw_is_followed_by_a_temporary_price_cut_in_many_sessions():
+    # Calvano, Calzolari, Denicolò and Pastorello (2021), abstract (read): price wars of finite duration are triggered
+    # by adverse demand shocks. Tolerance (from memory, no share is given in the abstract): at least a quarter of the
+    # sessions cut prices after a draw two standard deviations below the median, and the mean price is back within
+    # a tenth of the cut's depth 20 periods later.
+    from sim.learning.shock_response import shock_response
+
+    sigma = 0.3
+    out = shock_response(_noisy_run(sigma), theta=math.exp(-2 * sigma - sigma**2 / 2), periods=20)
+    assert out.price_war.value >= 0.25
+    depth = min(c.value for c in out.change)
+    assert depth < 0 and abs(out.change[-1].value) < 0.1 * abs(depth)

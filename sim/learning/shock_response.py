@@ -1,0 +1,120 @@
+"""The prices after one adverse demand draw: learned price wars, measured (Calvano, Calzolari, Denicolò and
+Pastorello, 2021, abstract read: punishments -- "price wars" of finite duration -- are triggered both by deviations
+and by adverse demand shocks).
+
+Each converged session goes on from its state at the end of learning, still learning, over ``periods`` periods
+drawn twice from the same copy of its random stream: once with the shocks as drawn, once with the first period's
+shock forced to the adverse value ``theta`` (:data:`sim.learning.shocks.FORCED_SHOCK` draws the period's normal all
+the same, so the two paths share every random number). The difference of the two price paths is the response to
+the adverse draw alone; a session has a *price war* when the mean price with the draw falls below the one without it
+in at least one period after the draw.
+
+Under the protocol of :mod:`sim.learning.shocks` (the state is the past prices, the shock enters only the rewards),
+a draw can change prices only through learning that goes on: it lowers the value of the price just played by
+``alpha (1 - theta) profit``, and prices move only when that is larger than the lead of the greedy price over the
+next one. The measurement is what a richer state (a coarse own-profit signal) would be judged by.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+import sim.learning.kernel as K
+from sim.core.errors import InputError
+from sim.core.stats import Estimate, mean_estimate, wilson_estimate
+from sim.learning.inputs import STATUS_CONVERGED, SessionState
+from sim.learning.shocks import FORCED_SHOCK, shock_code
+
+__all__ = ["ShockResponse", "shock_response"]
+
+#: the session goes on learning without stopping: its convergence counter never reaches this
+_NEVER = 2**62
+#: a price change smaller than this is no change (prices are grid points: a change is a whole grid step)
+_TOL = 1e-9
+
+
+@dataclass(frozen=True)
+class ShockResponse:
+    """The mean price path after an adverse draw, against the same draws without it.
+
+    Attributes
+    ----------
+    theta : float
+        The forced shock of period 1.
+    with_draw, without_draw : ndarray of shape (n_sessions, periods + 1)
+        Mean price over firms: row 0 the last period of learning, row ``tau`` the prices set in period ``tau`` after
+        it (the draw hits period 1's profits, so prices can first react in period 2).
+    change : list of Estimate
+        Mean over sessions of ``with_draw - without_draw``, one per row, with its normal-approximation interval.
+    price_war : Estimate
+        Share of sessions with a price war (Wilson interval).
+    """
+
+    theta: float
+    with_draw: np.ndarray
+    without_draw: np.ndarray
+    change: list
+    price_war: Estimate
+
+
+def _path(lineup, saved, j: int, s0: int, periods: int, code: int, sigma: float, forced: float | None) -> np.ndarray:
+    """Mean prices over firms of session ``j`` going on from its saved state (row 0: before the first period)."""
+    stage, m = lineup.stage, int(lineup.stage.M)
+    rng = saved.rng[j].copy()
+    session = SessionState(saved.Q[j].copy(), saved.greedy[j].copy(), saved.z[j].copy(), rng, saved.clock[j].copy(),
+                           saved.triggers[j].copy(), saved.counts[j].copy(), saved.sums[j].copy())
+    session.clock[1] = 0  # the counter of unchanged periods restarts: the session does not stop
+    s, t = s0, int(session.clock[0])
+    out = np.empty(periods + 1)
+    out[0] = stage.prices[s % m].mean()
+    for tau in range(periods):
+        c, sg = (FORCED_SHOCK, forced) if forced is not None and tau == 0 else (code, sigma)
+        _status, t, s = K.run_session(lineup.seats, stage, lineup.automata, session, s, _NEVER, t + 1, c, sg)
+        out[tau + 1] = stage.prices[s % m].mean()
+    return out
+
+
+def shock_response(result, theta: float, periods: int = 20) -> ShockResponse:
+    """The price path after one adverse demand draw, in every converged session of a run with a demand shock.
+
+    Parameters
+    ----------
+    result : sim.learning.results.LearningResult
+        A run of :func:`sim.learning.session.learn` with ``demand_sigma > 0`` and ``keep=True``.
+    theta : float
+        The adverse shock forced on the first period, in ``[0, 1)`` (e.g. ``exp(-2 sigma - sigma^2 / 2)``, a draw
+        two standard deviations below the median of a lognormal shock).
+    periods : int
+        Periods followed, at least 2.
+
+    Returns
+    -------
+    ShockResponse
+
+    Raises
+    ------
+    InputError
+        ``demand_sigma`` without a shock, ``keep`` without saved sessions, ``theta`` or ``periods`` out of range.
+    """
+    st = result.settings
+    if not st.get("demand_sigma"):
+        raise InputError("demand_sigma", "the run has no demand shock (demand_sigma = 0)")
+    if result.saved is None:
+        raise InputError("keep", "the run kept no session states: run it with keep=True")
+    if not 0.0 <= theta < 1.0:
+        raise InputError("theta", f"must be an adverse shock in [0, 1), got {theta!r}")
+    if int(periods) < 2:
+        raise InputError("periods", f"must be at least 2, got {periods!r}")
+    code, sigma = shock_code(st["demand_noise"], st["demand_sigma"], prefix="")
+    saved, lu = result.saved, result.lineup
+    done = np.flatnonzero(saved.status == STATUS_CONVERGED)
+    w = np.array([_path(lu, saved, j, int(saved.history[j]), periods, code, sigma, theta) for j in done])
+    wo = np.array([_path(lu, saved, j, int(saved.history[j]), periods, code, sigma, None) for j in done])
+    w, wo = w.reshape(done.size, periods + 1), wo.reshape(done.size, periods + 1)
+    level = float(st.get("confidence", 0.95))
+    d = w - wo
+    change = [mean_estimate(d[:, r], level) for r in range(periods + 1)]
+    wars = int(np.sum((d[:, 2:] < -_TOL).any(axis=1)))
+    return ShockResponse(float(theta), w, wo, change, wilson_estimate(wars, int(done.size), level))
