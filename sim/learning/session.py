@@ -164,11 +164,8 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         al., 2020), or two Q-learners set theirs in turn, each price held for two periods (Klein, 2021;
         :mod:`sim.learning.alternating`). Alternating sessions have no impulse response (its entries are nan) and
         cannot be saved, continued or followed by an event.
-    demand_noise : {"lognormal", "normal"}
-        Distribution of the mean-one demand shock that scales every firm's realised profit each period
-        (:mod:`sim.learning.shocks`; Calvano, Calzolari, Denicolò and Pastorello, 2021).
-    demand_sigma : float
-        Its standard deviation (0, the default: no shock, nothing drawn). Simultaneous moves only, without an event.
+    demand_noise, demand_sigma : {"lognormal", "normal"}, float
+        Mean-one demand shock scaling every realised profit, its standard deviation (0: none; sim.learning.shocks).
 
     Returns
     -------
@@ -186,13 +183,7 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         raise InputError("deviator", f"must be a firm of the market (0 to {lineup.n_seats - 1}), got {run['deviator']}")
     dev_index = _deviation_index(lineup, run["deviator"], deviation)
     settings = {**run, "workers": n_workers, "deviation": deviation}
-    code, sigma = shock_code(demand_noise, demand_sigma, prefix="")
-    if code:
-        if settings["timing"] != "simultaneous" or event is not None:
-            raise InputError("demand_sigma", "a demand shock needs simultaneous moves and no event; got "
-                                             f"timing = {settings['timing']!r}" + (" and an event" if event else ""))
-        # written only with a shock: results without one stay as they were
-        settings["demand_noise"], settings["demand_sigma"] = demand_noise, sigma
+    settings.update(_shock_settings(demand_noise, demand_sigma, settings["timing"], event))
     if settings.pop("timing") == "alternating":
         # the key is written only where it changes the protocol: simultaneous results stay as they were
         check_alternating(lineup, start, keep, event)
@@ -322,6 +313,18 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
     else:
         # the session's stream goes on from where learning left it
         L.estimate_limit(x, lineup.play(session.greedy, t, rng), dev, buf.outputs(j))
+
+
+def _shock_settings(demand_noise: str, demand_sigma: float, timing: str, event: Event | None) -> dict:
+    """The demand shock's entries of a run's settings: none without a shock, so that results without one stay as
+    they were; a shock needs simultaneous moves and no event."""
+    code, sigma = shock_code(demand_noise, demand_sigma, prefix="")
+    if not code:
+        return {}
+    if timing != "simultaneous" or event is not None:
+        raise InputError("demand_sigma", f"a demand shock needs simultaneous moves and no event; got timing = "
+                                         f"{timing!r}" + (" and an event" if event is not None else ""))
+    return {"demand_noise": demand_noise, "demand_sigma": sigma}
 
 
 def _shock(settings: dict) -> tuple[int, float]:
