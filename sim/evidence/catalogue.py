@@ -22,6 +22,7 @@ from sim.evidence.catalogue_alternating import ALTERNATING_ENTRIES, ALTERNATING_
 from sim.evidence.catalogue_assess import ASSESS_ENTRIES
 from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
 from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
+from sim.evidence.catalogue_shocks import SHOCK_ENTRIES, SHOCK_PARAMETERS
 from sim.evidence.catalogue_slice import REFINE_ENTRIES, SLICE_ENTRIES
 from sim.evidence.catalogue_state_play import STATE_PLAY_ENTRIES
 
@@ -470,6 +471,8 @@ ENTRIES.update({k: Entry(*v) for k, v in ALTERNATING_ENTRIES.items()})
 # the symmetric slice of the any-punishment set, three firms or more (sim.evidence.catalogue_slice)
 ENTRIES.update({k: Entry(*v) for k, v in SLICE_ENTRIES.items()})
 ENTRIES.update({k: Entry(*v) for k, v in REFINE_ENTRIES.items()})
+# learners' response to one adverse demand draw (sim.evidence.catalogue_shocks)
+ENTRIES.update({k: Entry(*v) for k, v in SHOCK_ENTRIES.items()})
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)
 PARAMETERS: dict[str, Entry] = {
@@ -510,18 +513,11 @@ PARAMETERS: dict[str, Entry] = {
     "learning.exploration": Entry("exploration scale of a bandit", "",
                                   "UCB's exploration constant c, or the standard deviation of a Thompson-sampling "
                                   "learner's normal prior.", "given"),
-    "learning.demand_sigma": Entry("standard deviation of the demand shock during learning", "",
-                                   "Standard deviation of the mean-one shock that scales every firm's profit each "
-                                   "period of learning (0: none); the learners learn from the realised profits.",
-                                   "given; demand shocks with Q-learners after Calvano, Calzolari, Denicolo and "
-                                   "Pastorello (2021, International Journal of Industrial Organization 79)"),
-    "learning.demand_noise": Entry("distribution of the demand shock during learning", "",
-                                   "lognormal exp(sigma Z - sigma^2/2) or normal 1 + sigma Z (floored at 0), Z "
-                                   "standard normal; both of mean one.", "given"),
 }
 
 PARAMETERS.update({k: Entry(*v) for k, v in CONDITION_PARAMETERS.items()})
 PARAMETERS.update({k: Entry(*v) for k, v in ALTERNATING_PARAMETERS.items()})
+PARAMETERS.update({k: Entry(*v) for k, v in SHOCK_PARAMETERS.items()})
 
 _SCHEME_WORDS = {"grim": "grim trigger", "finite": "Nash reversion for T periods", "stick_carrot": "stick and carrot"}
 

@@ -2,10 +2,15 @@
 
 from __future__ import annotations
 
-from sim.core.text import fmt_num
-from sim.learning.analysis import LearnResult
+import numpy as np
 
-__all__ = ["shock_lines"]
+from sim.core.text import fmt_num
+from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
+from sim.evidence.render import Drawn, pyplot
+from sim.learning.analysis import LearnResult
+from sim.learning.shock_response import ShockResponse
+
+__all__ = ["shock_lines", "shock_response_figure", "shock_response_lines"]
 
 _SHAPES = {"lognormal": "exp(sigma Z - sigma^2/2)", "normal": "1 + sigma Z, floored at 0"}
 
@@ -30,3 +35,60 @@ def shock_lines(res: LearnResult) -> list[str]:
             "from these realised profits but condition on past prices only, so the limit outcomes (greedy play "
             "after learning) do not react to a draw and their profits are expected profits (Calvano, Calzolari, "
             "Denicolo and Pastorello, 2021, after Green and Porter, 1984)"]
+
+
+def shock_response_lines(resp: ShockResponse) -> list[str]:
+    """The response to one adverse draw in words: the share of sessions with a price war and the deepest mean cut.
+
+    Parameters
+    ----------
+    resp : sim.learning.shock_response.ShockResponse
+
+    Returns
+    -------
+    list of str
+    """
+    pw = resp.price_war
+    deepest = min(range(len(resp.change)), key=lambda r: resp.change[r].value)
+    c = resp.change[deepest]
+    return [f"After one adverse demand draw (shock {fmt_num(resp.theta)} in period 1; learning goes on, the same "
+            f"random numbers with and without it): a price war in {fmt_num(100 * pw.value, 1)} % of {pw.n} sessions "
+            f"({fmt_num(100 * pw.low, 1)} % to {fmt_num(100 * pw.high, 1)} %); the largest mean change of the price, "
+            f"in period {deepest}, {fmt_num(c.value)} [{fmt_num(c.low)}, {fmt_num(c.high)}]"]
+
+
+def shock_response_figure(resp: ShockResponse, confidence: float = 0.95) -> Drawn:
+    """The mean change of the price after one adverse draw, period by period, with its band.
+
+    Parameters
+    ----------
+    resp : sim.learning.shock_response.ShockResponse
+    confidence : float
+        The level of the band (that of the estimates in ``resp``), for the caption.
+
+    Returns
+    -------
+    Drawn
+        ``price_after_adverse_shock``.
+    """
+    plt = pyplot()
+    x = np.arange(len(resp.change))
+    mean = np.array([c.value for c in resp.change])
+    low = np.array([c.low if np.isfinite(c.low) else c.value for c in resp.change])
+    high = np.array([c.high if np.isfinite(c.high) else c.value for c in resp.change])
+    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 3.2), layout="constrained")
+    ax.plot(x, mean, color=color(0), lw=1.5, marker="o", ms=3, label="mean change of the price")
+    ax.fill_between(x, low, high, color=color(0), alpha=0.2, lw=0, label=f"{100 * confidence:g} % interval")
+    ax.axhline(0.0, color="grey", lw=0.8)
+    ax.axvline(1.0, color="black", lw=0.6, ls="--", label="the adverse draw")
+    ax.set_xlabel("periods (0: the last period of learning; the draw hits period 1)", fontsize=FONT)
+    ax.set_ylabel("price with the draw - without", fontsize=FONT)
+    ax.xaxis.get_major_locator().set_params(integer=True)  # whole periods
+    ax.tick_params(labelsize=SMALL)
+    ax.grid(alpha=0.3)
+    fig.legend(fontsize=SMALL, loc="outside right upper")
+    return Drawn("price_after_adverse_shock", fig,
+                 f"Mean over {resp.price_war.n} sessions of the mean price over firms with one adverse demand draw "
+                 f"(shock {fmt_num(resp.theta)} in period 1) minus the mean price with the same random numbers and "
+                 f"no forced draw, the sessions learning on; band: {100 * confidence:g} % confidence intervals across "
+                 f"sessions. Price war in {fmt_num(100 * resp.price_war.value, 1)} % of sessions.")
