@@ -8,7 +8,7 @@ any number of threads and any split of the replications into batches.
 from __future__ import annotations
 
 import sys
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from tqdm import tqdm
@@ -61,9 +61,9 @@ class RawRun:
         ``FLAG_*`` bits of :mod:`sim.simulation.kernel`: cheated, trembled, colluded.
     path_collude : int64 ndarray of shape (P, H)
         1 when every firm colluded (-1 after the end).
-    demand_path : int64 ndarray of shape (n_reps, n_periods), or None
+    demand_path : int64 ndarray of shape (n_reps, n_periods), or of shape (0, 0)
         The demand state of every period of every replication, when the line-up was played in a market whose
-        demand state moves (:mod:`sim.simulation.state_game`).
+        demand state moves (:mod:`sim.simulation.state_game`); empty otherwise.
     """
 
     profit_sum: np.ndarray
@@ -80,7 +80,7 @@ class RawRun:
     path_state: np.ndarray
     path_flags: np.ndarray
     path_collude: np.ndarray
-    demand_path: np.ndarray | None = None
+    demand_path: np.ndarray = field(default_factory=lambda: np.zeros((0, 0), dtype=np.int64))
 
     @classmethod
     def empty(cls, n_reps: int, n_firms: int, n_products: int, n_periods: int, n_paths: int) -> RawRun:

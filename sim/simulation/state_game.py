@@ -30,7 +30,7 @@ from numba import njit
 
 from sim.core.errors import InputError
 from sim.core.rng import next_double, stream_states
-from sim.models.stagecore import market_arrays
+from sim.models.stagecore import evaluate_py, market_arrays
 from sim.simulation.game import Game, stage_levels
 from sim.theory.demand_states import DemandStates
 from sim.theory.state_path import best_state_path
@@ -64,6 +64,10 @@ class StateGame:
         The agreed action of each product in each state.
     nash : float64 ndarray of shape (n_states, n_products)
         The static Nash action of each product in each state.
+    agreed_price : float64 ndarray of shape (n_states,)
+        The market price of the agreed actions in each state (without a demand shock).
+    nash_price : float64 ndarray of shape (n_states,)
+        The market price of static Nash in each state.
     source : str
         One of :data:`COLLUSIVE_PATHS` (not ``"same"``).
     """
@@ -77,6 +81,8 @@ class StateGame:
     tremble: np.ndarray
     collusive: np.ndarray
     nash: np.ndarray
+    agreed_price: np.ndarray
+    nash_price: np.ndarray
     source: str
 
 
@@ -172,12 +178,14 @@ def compile_state_game(game: Game, states: DemandStates, markets, source: str, c
         arrays.append(arr)
         lev.append(lv)
     levels = levels_by_state(game.lineup, lev)
+    coll = np.stack([np.asarray(v.profiles["collusive"], dtype=float) for v in lev])
+    nash = np.stack([np.asarray(v.profiles["nash"], dtype=float) for v in lev])
     return StateGame(
         states, np.stack([a.scalars for a in arrays]), np.stack([a.vector for a in arrays]),
         np.stack([a.cost for a in arrays]), np.stack([a.capacity for a in arrays]), levels,
-        np.stack([np.asarray(v.profiles["deviation"], dtype=float) for v in lev]),
-        np.stack([np.asarray(v.profiles["collusive"], dtype=float) for v in lev]),
-        np.stack([np.asarray(v.profiles["nash"], dtype=float) for v in lev]), source)
+        np.stack([np.asarray(v.profiles["deviation"], dtype=float) for v in lev]), coll, nash,
+        np.array([evaluate_py(a, coll[d], want_cs=False)[3] for d, a in enumerate(arrays)]),
+        np.array([evaluate_py(a, nash[d], want_cs=False)[3] for d, a in enumerate(arrays)]), source)
 
 
 @njit(cache=True)

@@ -37,6 +37,7 @@ from sim.runner.analyses.common import (
     thin,
 )
 from sim.runner.analyses.simulate_capacity import prepare_capacity_game
+from sim.runner.analyses.simulate_states import contingent_names, contingent_states, put_contingent, wants_contingent
 from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
 from sim.simulation.analysis import SimulateResult, simulate_analysis
@@ -163,6 +164,8 @@ def _prepare_simulate(doc: dict) -> dict:
 def _states_of(doc: dict, out: dict) -> dict:
     """The ``[demand_states]`` table of a simulation: the states, the parameter, its values and the verified
     profit factor of each state (:func:`sim.simulation.states_run.state_factors`)."""
+    if wants_contingent(doc["demand_states"]):
+        return contingent_states(doc, out)
     for other in ("enforcement", "deviation"):
         if other in doc:
             raise InputError("demand_states", f"is not simulated together with [{other}]: the line-up's profits move "
@@ -278,6 +281,8 @@ def _simulate_names(cfg: dict) -> list[str]:
             out += [f"{m}.firm{i + 1}{s}" for i in range(n) for s in ("", ".low", ".high")]
     if cfg.get("demand_states") is not None:
         out += state_play_names(cfg["demand_states"]["states"].n_states, n)
+        if cfg["demand_states"].get("game") is not None:
+            out += contingent_names(cfg["demand_states"]["states"].n_states)
     return out
 
 
@@ -427,6 +432,8 @@ def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
         put_enforced(m, result.enforcement)
     if result.states is not None:
         put_state_play(m, result.states)
+        if result.states.contingent is not None:
+            put_contingent(m, result.states)
     return CellResult(m, arrays, result)
 
 
@@ -494,8 +501,10 @@ def _describe_simulate(doc: dict) -> list[str]:
                         f"for {e['after_detection']} periods after a conviction, then the strategies start afresh"))
     if "demand_states" in doc and isinstance(doc["demand_states"], dict):
         d = doc["demand_states"]
+        play = "plays the same actions in every state" if not wants_contingent(d) else \
+            f"colludes on {d.get('collusive_path', 'given')} actions per state"
         lines.append(f"Demand states: {d.get('kind', 'iid')}, {d.get('parameter')} per state {d.get('values')}; the "
-                     f"line-up plays the same actions in every state")
+                     f"line-up {play}")
     return lines
 
 
