@@ -68,6 +68,8 @@ class StateGame:
         The market price of the agreed actions in each state (without a demand shock).
     nash_price : float64 ndarray of shape (n_states,)
         The market price of static Nash in each state.
+    full_price : float64 ndarray of shape (n_states,)
+        The market price of the experiment's agreement in each state's market (full collusion).
     source : str
         One of :data:`COLLUSIVE_PATHS` (not ``"same"``).
     """
@@ -83,6 +85,7 @@ class StateGame:
     nash: np.ndarray
     agreed_price: np.ndarray
     nash_price: np.ndarray
+    full_price: np.ndarray
     source: str
 
 
@@ -163,7 +166,7 @@ def compile_state_game(game: Game, states: DemandStates, markets, source: str, c
     if base.mixed.size:
         raise InputError("demand_states.collusive_path", "state-contingent play is not available in markets with a "
                                                          "mixed static equilibrium")
-    arrays, lev = [], []
+    arrays, lev, full = [], [], []
     for d, m in enumerate(markets):
         ms = m.spec(f"demand_states.markets[{d}]")
         arr = market_arrays(ms)
@@ -171,10 +174,9 @@ def compile_state_game(game: Game, states: DemandStates, markets, source: str, c
                 arr.quantity_setting != base.quantity_setting or arr.mixed.size:
             raise InputError("demand_states.parameter", f"state {d + 1}'s market must be the experiment's market "
                                                         f"with another parameter value")
-        if collusive is None:
-            _, lv = stage_levels(ms, agreement, actions)
-        else:
-            _, lv = stage_levels(ms, "given", collusive[d])
+        _, agreed = stage_levels(ms, agreement, actions)
+        lv = agreed if collusive is None else stage_levels(ms, "given", collusive[d])[1]
+        full.append(evaluate_py(arr, agreed.profiles["collusive"], want_cs=False)[3])
         arrays.append(arr)
         lev.append(lv)
     levels = levels_by_state(game.lineup, lev)
@@ -185,7 +187,7 @@ def compile_state_game(game: Game, states: DemandStates, markets, source: str, c
         np.stack([a.cost for a in arrays]), np.stack([a.capacity for a in arrays]), levels,
         np.stack([np.asarray(v.profiles["deviation"], dtype=float) for v in lev]), coll, nash,
         np.array([evaluate_py(a, coll[d], want_cs=False)[3] for d, a in enumerate(arrays)]),
-        np.array([evaluate_py(a, nash[d], want_cs=False)[3] for d, a in enumerate(arrays)]), source)
+        np.array([evaluate_py(a, nash[d], want_cs=False)[3] for d, a in enumerate(arrays)]), np.array(full), source)
 
 
 @njit(cache=True)

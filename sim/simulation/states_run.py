@@ -62,6 +62,8 @@ class ContingentPlay(Record):
         The market price of the agreed actions in each state.
     nash_price : ndarray of shape (n_states,)
         The market price of static Nash in each state.
+    full_price : ndarray of shape (n_states,)
+        The market price of the experiment's agreement in each state (full collusion).
     price : ndarray of shape (n_states,)
         Simulated mean market price over the periods of each state (nan for a state never visited).
     collusive_share : ndarray of shape (n_states,)
@@ -73,6 +75,7 @@ class ContingentPlay(Record):
     nash_actions: np.ndarray
     agreed_price: np.ndarray
     nash_price: np.ndarray
+    full_price: np.ndarray
     price: np.ndarray
     collusive_share: np.ndarray
 
@@ -279,7 +282,7 @@ def contingent_play(raw: RawRun, game: StateGame, parameter: str, values, delta:
             price[d] = raw.path_market[:, :, 0][mask].mean()
             share[d] = (raw.path_collude[mask] == 1).mean()
     cp = ContingentPlay(game.source, game.collusive.copy(), game.nash.copy(), game.agreed_price.copy(),
-                        game.nash_price.copy(), price, share)
+                        game.nash_price.copy(), game.full_price.copy(), price, share)
     profit = np.where(running[:, :, None], raw.path_profit, 0.0)
     return _state_play(path, profit, running, states, parameter, values, np.full(S, math.nan), delta, confidence,
                        cp)
