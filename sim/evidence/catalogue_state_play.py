@@ -44,6 +44,13 @@ STATE_PLAY_ENTRIES = {
                               "static Nash equilibrium of the state's market"),
     "state_play.price": ("simulated price in the demand state", "price",
                          "Mean market price over the simulated periods spent in this demand state.", _PLAYED),
+    "state_play.full_collusion_delta": ("critical discount factor of full collusion in every demand state", "",
+                                        "Smallest discount factor at which grim trigger sustains the agreement in "
+                                        "every demand state; below it the best sustainable path caps the agreement "
+                                        "where cheating pays most.",
+                                        "sim.theory.demand_states.state_thresholds: the gain from cheating in each "
+                                        "state against the expected discounted loss (Rotemberg and Saloner, 1986, "
+                                        "AER 76(3))"),
     "state_play.collusive_share": ("collusive share in the demand state", "0 to 1",
                                    "Share of the simulated periods in this demand state in which every firm "
                                    "colluded.", _PLAYED),

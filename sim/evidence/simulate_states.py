@@ -48,6 +48,10 @@ def contingent_text(sp: StatePlay) -> list[str]:
                  + ", ".join(fmt_num(v) for v in sp.values)
                  + (f"; growth {fmt_num(sp.growth)} per period" if sp.growth else "")
                  + f"; the line-up colludes on {_SOURCES.get(c.source, c.source)}, played state by state"]
+    if c.full_collusion_delta == c.full_collusion_delta:
+        lines.append(f"Full collusion in every state is sustainable under grim trigger from delta = "
+                     f"{fmt_num(c.full_collusion_delta)} (the state-by-state benchmark; the analytic thresholds "
+                     f"above are those of the experiment's market)")
     rows = [[lab, sp.frequencies[k], f"se {fmt_num(sp.frequency_se[k])}", sp.expected[k],
              _actions(c.collusive_actions[k]), c.full_price[k], c.agreed_price[k], c.nash_price[k], c.price[k],
              c.collusive_share[k]] for k, lab in enumerate(sp.labels)]

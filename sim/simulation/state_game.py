@@ -23,6 +23,7 @@ number of workers or threads.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -32,7 +33,7 @@ from sim.core.errors import InputError
 from sim.core.rng import next_double, stream_states
 from sim.models.stagecore import evaluate_py, market_arrays
 from sim.simulation.game import Game, stage_levels
-from sim.theory.demand_states import DemandStates
+from sim.theory.demand_states import DemandStates, state_thresholds
 from sim.theory.state_path import best_state_path
 from strategies.state_levels import levels_by_state
 
@@ -70,6 +71,9 @@ class StateGame:
         The market price of static Nash in each state.
     full_price : float64 ndarray of shape (n_states,)
         The market price of the experiment's agreement in each state's market (full collusion).
+    full_collusion_delta : float
+        The critical discount factor of full collusion in every state under grim trigger
+        (:func:`sim.theory.demand_states.state_thresholds`; nan when not below one or with a given agreement).
     source : str
         One of :data:`COLLUSIVE_PATHS` (not ``"same"``).
     """
@@ -86,6 +90,7 @@ class StateGame:
     agreed_price: np.ndarray
     nash_price: np.ndarray
     full_price: np.ndarray
+    full_collusion_delta: float
     source: str
 
 
@@ -180,6 +185,7 @@ def compile_state_game(game: Game, states: DemandStates, markets, source: str, c
         arrays.append(arr)
         lev.append(lv)
     levels = levels_by_state(game.lineup, lev)
+    full_delta = math.nan if agreement == "given" else float(state_thresholds(states, markets, agreement).market)
     coll = np.stack([np.asarray(v.profiles["collusive"], dtype=float) for v in lev])
     nash = np.stack([np.asarray(v.profiles["nash"], dtype=float) for v in lev])
     return StateGame(
@@ -187,7 +193,8 @@ def compile_state_game(game: Game, states: DemandStates, markets, source: str, c
         np.stack([a.cost for a in arrays]), np.stack([a.capacity for a in arrays]), levels,
         np.stack([np.asarray(v.profiles["deviation"], dtype=float) for v in lev]), coll, nash,
         np.array([evaluate_py(a, coll[d], want_cs=False)[3] for d, a in enumerate(arrays)]),
-        np.array([evaluate_py(a, nash[d], want_cs=False)[3] for d, a in enumerate(arrays)]), np.array(full), source)
+        np.array([evaluate_py(a, nash[d], want_cs=False)[3] for d, a in enumerate(arrays)]), np.array(full), full_delta,
+        source)
 
 
 @njit(cache=True)

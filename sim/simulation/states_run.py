@@ -68,6 +68,9 @@ class ContingentPlay(Record):
         Simulated mean market price over the periods of each state (nan for a state never visited).
     collusive_share : ndarray of shape (n_states,)
         Share of the periods of each state in which every firm colluded (nan for a state never visited).
+    full_collusion_delta : float
+        The critical discount factor of full collusion in every state under grim trigger (nan when there is none
+        below one, or with a given agreement).
     """
 
     source: str
@@ -78,6 +81,7 @@ class ContingentPlay(Record):
     full_price: np.ndarray
     price: np.ndarray
     collusive_share: np.ndarray
+    full_collusion_delta: float = math.nan
 
 
 @dataclass(frozen=True, eq=False)
@@ -282,7 +286,7 @@ def contingent_play(raw: RawRun, game: StateGame, parameter: str, values, delta:
             price[d] = raw.path_market[:, :, 0][mask].mean()
             share[d] = (raw.path_collude[mask] == 1).mean()
     cp = ContingentPlay(game.source, game.collusive.copy(), game.nash.copy(), game.agreed_price.copy(),
-                        game.nash_price.copy(), game.full_price.copy(), price, share)
+                        game.nash_price.copy(), game.full_price.copy(), price, share, game.full_collusion_delta)
     profit = np.where(running[:, :, None], raw.path_profit, 0.0)
     return _state_play(path, profit, running, states, parameter, values, np.full(S, math.nan), delta, confidence,
                        cp)

@@ -82,3 +82,7 @@ def test_shipped_experiment_plays_the_rotemberg_saloner_prices():
     for k in range(3):
         assert math.isclose(m[f"state_play.price[{k + 1}]"], expected[k], rel_tol=1e-7), k
     assert m["state_play.price[3]"] < m["state_play.price[1]"]
+    # full collusion in every state needs P_H / 2 <= delta / (1 - delta) E[P] / 2: delta >= P_H / (P_H + E[P])
+    P = (a - c) ** 2 / 4.0
+    assert math.isclose(m["state_play.full_collusion_delta"], P[2] / (P[2] + float(w @ P)), rel_tol=1e-9)
+    assert m["state_play.full_collusion_delta"] > delta

@@ -97,7 +97,7 @@ def contingent_names(n_states: int) -> list[str]:
     -------
     list of str
     """
-    out = []
+    out = ["state_play.full_collusion_delta"]
     for k in range(1, n_states + 1):
         out += [f"state_play.agreed_price[{k}]", f"state_play.nash_price[{k}]", f"state_play.price[{k}]",
                 f"state_play.collusive_share[{k}]"]
@@ -115,6 +115,7 @@ def put_contingent(m: dict, sp) -> None:
         With ``contingent`` set.
     """
     c = sp.contingent
+    m["state_play.full_collusion_delta"] = float(c.full_collusion_delta)
     for k in range(len(sp.labels)):
         m[f"state_play.agreed_price[{k + 1}]"] = float(c.agreed_price[k])
         m[f"state_play.nash_price[{k + 1}]"] = float(c.nash_price[k])
