@@ -20,6 +20,7 @@ from dataclasses import dataclass
 
 from sim.evidence.catalogue_assess import ASSESS_ENTRIES
 from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
+from sim.evidence.catalogue_contact_play import CONTACT_PLAY_ENTRIES
 from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
 from sim.evidence.catalogue_state_play import STATE_PLAY_ENTRIES
 
@@ -463,6 +464,8 @@ ENTRIES.update({k: Entry(*v) for k, v in ASSESS_ENTRIES.items()})
 ENTRIES.update({k: Entry(*v) for k, v in ENFORCED_ENTRIES.items()})
 # a simulated line-up with moving demand (sim.evidence.catalogue_state_play)
 ENTRIES.update({k: Entry(*v) for k, v in STATE_PLAY_ENTRIES.items()})
+# the same firms simulated in several markets in contact (sim.evidence.catalogue_contact_play)
+ENTRIES.update({k: Entry(*v) for k, v in CONTACT_PLAY_ENTRIES.items()})
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)
 PARAMETERS: dict[str, Entry] = {

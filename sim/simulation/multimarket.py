@@ -29,13 +29,15 @@ import numpy as np
 from numba import njit
 
 from sim.core.errors import InputError
+from sim.core.records import Record
 from sim.core.rng import next_double, stream_states
 from sim.core.stats import Estimate, mean_estimate
 from sim.models.stagecore import evaluate
 from sim.simulation.game import Game
 from strategies.step import COLLUSIVE, INITIAL, bad_signal, choose_level, next_state
 
-__all__ = ["MarketsInputs", "MarketsRun", "collusive_shares", "markets_inputs", "simulate_markets"]
+__all__ = ["ContactPlay", "MarketsInputs", "MarketsRun", "collusive_shares", "contact_play", "markets_inputs",
+           "simulate_markets"]
 
 
 @dataclass
@@ -294,3 +296,65 @@ def collusive_shares(run: MarketsRun, periods: int, confidence: float = 0.95) ->
     """
     share = run.collusive / float(periods)
     return [mean_estimate(share[:, m], confidence) for m in range(share.shape[1])]
+
+
+@dataclass(frozen=True, eq=False)
+class ContactPlay(Record):
+    """The same line-ups in markets in contact, played with pooled and with separate punishments on the same
+    streams.
+
+    Parameters
+    ----------
+    names : list of str
+        A name per market.
+    n_firms : int
+    periods, replications : int
+    pooled : list of Estimate
+        Per market: share of periods in which every firm colluded, with pooled punishments.
+    separate : list of Estimate
+        Per market: the same with each market's automata reacting to that market alone.
+    difference : list of Estimate
+        Per market: pooled minus separate, replication by replication (paired: the same streams).
+    pooled_profit, separate_profit : ndarray of shape (n_markets, n_firms)
+        Mean discounted profit of each firm in each market.
+    """
+
+    names: list
+    n_firms: int
+    periods: int
+    replications: int
+    pooled: list[Estimate]
+    separate: list[Estimate]
+    difference: list[Estimate]
+    pooled_profit: np.ndarray
+    separate_profit: np.ndarray
+
+
+def contact_play(games: list[Game], names: list, periods: int, replications: int, delta: float, seed: int, key=(0,),
+                 confidence: float = 0.95) -> ContactPlay:
+    """Play the markets with pooled and with separate punishments and compare the collusive shares.
+
+    Parameters
+    ----------
+    games : list of Game
+        One compiled line-up per market (see :func:`markets_inputs`).
+    names : list of str
+        A name per market.
+    periods, replications : int
+    delta : float in (0, 1)
+    seed : int
+    key : tuple of int
+        The cell's stream key (both plays use the same streams).
+    confidence : float in (0, 1)
+
+    Returns
+    -------
+    ContactPlay
+    """
+    pooled = simulate_markets(games, periods, replications, delta, seed, key, pooled=True)
+    separate = simulate_markets(games, periods, replications, delta, seed, key, pooled=False)
+    diff = (pooled.collusive - separate.collusive) / float(periods)
+    return ContactPlay(list(names), int(pooled.profit.shape[2]), int(periods), int(replications),
+                       collusive_shares(pooled, periods, confidence), collusive_shares(separate, periods, confidence),
+                       [mean_estimate(diff[:, m], confidence) for m in range(diff.shape[1])],
+                       pooled.disc.mean(axis=0), separate.disc.mean(axis=0))
