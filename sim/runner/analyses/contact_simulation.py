@@ -42,12 +42,15 @@ def _prepare(doc: dict) -> dict:
         key = f"markets[{k + 1}]"
         table = {x: v for x, v in e.items() if x not in ("name", "strategies")}
         market = market_from_dict(table, key)
+        n = market.spec().n_firms
+        if games and n != games[0].arrays.n_firms:
+            raise InputError(f"{key}.n_firms", f"every market must have the same firms: market 1 has "
+                                               f"{games[0].arrays.n_firms}, this one {n}")
         name = e.get("name", f"market {k + 1}")
         if not isinstance(name, str) or not name:
             raise InputError(f"{key}.name", f"must be a non-empty name, got {name!r}")
         strat = e.get("strategies", doc.get("strategies"))
-        lineup = lineup_from_tables(strat, market.spec().n_firms, f"{key}.strategies" if "strategies" in e
-                                    else "strategies")
+        lineup = lineup_from_tables(strat, n, f"{key}.strategies" if "strategies" in e else "strategies")
         games.append(prepare_game(market, lineup, mon, agreement, actions, strict=False))
         names.append(name)
     run = check_run(r["periods"], r["replications"], r["delta"], r["seed"], "fixed", 1.0, 0, 1)
