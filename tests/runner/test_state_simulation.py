@@ -18,6 +18,8 @@ from pathlib import Path
 
 import numpy as np
 
+from sim.cli import main
+from sim.evidence.render import renderer_for
 from sim.runner.runs import open_run, run_experiment
 from sim.runner.single import run_single
 
@@ -86,3 +88,16 @@ def test_shipped_experiment_plays_the_rotemberg_saloner_prices():
     P = (a - c) ** 2 / 4.0
     assert math.isclose(m["state_play.full_collusion_delta"], P[2] / (P[2] + float(w @ P)), rel_tol=1e-9)
     assert m["state_play.full_collusion_delta"] > delta
+
+
+def test_command_prints_and_plots_what_the_run_stores(tmp_path, capsys):
+    path = ROOT / "experiments" / "price-wars-in-booms.toml"
+    assert main(["simulate", str(path), "--plot", str(tmp_path / "plots")]) == 0
+    printed = capsys.readouterr().out
+    assert "full-collusion price" in printed
+    assert main(["run", str(path), "--out", str(tmp_path / "run"), "--report", "--quiet"]) == 0
+    capsys.readouterr()
+    with open_run(tmp_path / "run") as rf:
+        assert renderer_for("simulate").console(rf.result(0)) == printed.rstrip("\n")
+    name = "prices-by-state.png"
+    assert (tmp_path / "plots" / name).read_bytes() == (tmp_path / "run" / "report" / "figures" / name).read_bytes()
