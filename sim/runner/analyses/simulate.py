@@ -37,7 +37,13 @@ from sim.runner.analyses.common import (
     thin,
 )
 from sim.runner.analyses.simulate_capacity import prepare_capacity_game
-from sim.runner.analyses.simulate_states import contingent_names, contingent_states, put_contingent, wants_contingent
+from sim.runner.analyses.simulate_states import (
+    CONTINGENT_WORDS,
+    contingent_names,
+    contingent_states,
+    put_contingent,
+    wants_contingent,
+)
 from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
 from sim.simulation.analysis import SimulateResult, simulate_analysis
@@ -467,6 +473,8 @@ def simulate_cost(cfg: dict) -> Cost:
                                                 and cfg["enforcement"].after_detection is None):
         # enforcement records every replication's path (see sim.simulation.enforced)
         memory += 8 * (reps - paths) * periods * (2 * n_products + 3 * n + 4)
+    if cfg.get("demand_states") is not None and cfg["demand_states"].get("game") is not None:
+        memory += 8 * reps * periods  # the drawn demand state of every period
     work = (2 if cfg["deviation"] is not None else 1) * float(periods) * reps * n
     key = "run.periods" if periods * per_period >= reps * per_rep else "run.replications"
     return Cost(memory, work, "firm-periods", work / THROUGHPUT, key)
@@ -502,7 +510,7 @@ def _describe_simulate(doc: dict) -> list[str]:
     if "demand_states" in doc and isinstance(doc["demand_states"], dict):
         d = doc["demand_states"]
         play = "plays the same actions in every state" if not wants_contingent(d) else \
-            f"colludes on {d.get('collusive_path', 'given')} actions per state"
+            "colludes on " + CONTINGENT_WORDS.get(d.get("collusive_path", "given"), "a state-contingent path")
         lines.append(f"Demand states: {d.get('kind', 'iid')}, {d.get('parameter')} per state {d.get('values')}; the "
                      f"line-up {play}")
     return lines

@@ -21,10 +21,15 @@ from sim.core.params import Options
 from sim.simulation.state_game import COLLUSIVE_PATHS, compile_state_game, state_collusive_actions
 from sim.theory.demand_states import DemandStates, markets_by_state
 
-__all__ = ["CONTINGENT_KEYS", "contingent_names", "contingent_states", "put_contingent", "wants_contingent"]
+__all__ = ["CONTINGENT_KEYS", "CONTINGENT_WORDS", "contingent_names", "contingent_states", "put_contingent",
+           "wants_contingent"]
 
 #: the keys of ``[demand_states]`` that make the collusive action depend on the state
 CONTINGENT_KEYS = ("collusive_path", "collusive_actions")
+#: how the setup lines name each ``collusive_path``
+CONTINGENT_WORDS = {"agreement": "the agreement of each state's market",
+                    "best": "the most collusive state-contingent path sustainable at run.delta",
+                    "given": "the collusive actions given per state"}
 
 
 def wants_contingent(table) -> bool:
