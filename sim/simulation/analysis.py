@@ -121,9 +121,9 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
     # a line-up whose collusive action depends on the state plays every period in its state's market
     demand = st.get("game") if st is not None else None
 
-    def play(g, paths):
+    def play(g, paths, in_states=demand):
         return run_game(g, run["periods"], run["replications"], run["delta"], run["seed"], key, run["horizon"],
-                        run["continuation"], paths, threads, progress, demand=demand)
+                        run["continuation"], paths, threads, progress, demand=in_states)
 
     enf = cfg.get("enforcement")
     # enforcement cuts every replication's path at its conviction, so it needs them all (a deterministic line-up
@@ -153,7 +153,7 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
     dev = cfg["deviation"]
     if dev is not None:
         k = dev["seat"]
-        raw_d = play(dev["game"], 0)
+        raw_d = play(dev["game"], 0, None if demand is None else st["deviation_game"])
         gain = mean_estimate(raw_d.disc[:, k] - raw.disc[:, k], cfg["confidence"])
         check = DeviationCheck(k + 1, gain, bool(gain.value > 0), float(raw.disc[:, k].mean()),
                                float(raw_d.disc[:, k].mean()),

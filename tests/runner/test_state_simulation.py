@@ -101,3 +101,40 @@ def test_command_prints_and_plots_what_the_run_stores(tmp_path, capsys):
         assert renderer_for("simulate").console(rf.result(0)) == printed.rstrip("\n")
     name = "prices-by-state.png"
     assert (tmp_path / "plots" / name).read_bytes() == (tmp_path / "run" / "report" / "figures" / name).read_bytes()
+
+
+def _rich_start(path_kind: str) -> dict:
+    """The shipped market with i.i.d. states written as a chain whose first period is the rich week."""
+    doc = tomllib.loads((ROOT / "experiments" / "price-wars-in-booms.toml").read_text())
+    w = doc["demand_states"].pop("probabilities")
+    doc["demand_states"].update(kind="markov", transition=[w, w, w], initial=[0.0, 0.0, 1.0],
+                                collusive_path=path_kind)
+    doc["deviation"] = {"firm": 1}
+    doc["run"]["replications"] = 400
+    return doc
+
+
+def test_a_one_shot_deviation_in_the_rich_week_pays_under_full_collusion_only():
+    """The deviation check in the demand states (Rotemberg and Saloner, 1986): firm 1 undercuts in period 0, a rich
+    week. With full collusion in every state at delta = 0.6 (below the threshold P_H / (P_H + E[P]) = 0.677) it gains
+    P_H / 2 today and loses delta / (1 - delta) E[P] / 2 from next week on, so the gain is
+    P_H / 2 - delta / (1 - delta) E[P] / 2 > 0; on the best path the rich week's constraint binds and the gain is 0
+    (the horizon of 200 weeks truncates the loss by delta^200, below 1e-40). The loss depends on the weeks drawn
+    after the deviation, so the paired gain is checked within 3 standard errors across replications (a normal
+    statistic leaves +-3 SE with probability 0.27 %); the two expectations, 798.75 and 0, lie about 16 SE apart."""
+    doc = tomllib.loads((ROOT / "experiments" / "price-wars-in-booms.toml").read_text())
+    w, a = np.array(doc["demand_states"]["probabilities"]), np.array(doc["demand_states"]["values"])
+    c, delta = doc["market"]["cost"], doc["run"]["delta"]
+    P = (a - c) ** 2 / 4.0
+    full = run_single(_rich_start("agreement")).result.deviation
+    expected = P[2] / 2 - delta / (1 - delta) * float(w @ P) / 2
+    assert expected > 0 and abs(full.gain.value - expected) <= 3 * full.gain.se, (full.gain, expected)
+    assert full.pays and full.gain.low > 0
+    best = run_single(_rich_start("best")).result.deviation
+    assert abs(best.gain.value) <= 3 * best.gain.se, best.gain
+    # the deviator takes the whole joint profit of the rich week, P_H or the capped x_H, and earns static Nash
+    # (zero) after: its discounted profit is that one week's (relative 1e-6: the undercut by the price step)
+    x_h = delta * float(np.sum(w[:2] * P[:2])) / (1.0 - delta - delta * w[2])
+    assert math.isclose(full.deviate_value, P[2], rel_tol=1e-6)
+    assert math.isclose(best.deviate_value, x_h, rel_tol=1e-6)
+    assert math.isnan(best.analytic_gain)

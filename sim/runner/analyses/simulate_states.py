@@ -60,13 +60,13 @@ def contingent_states(doc: dict, out: dict) -> dict:
     Returns
     -------
     dict
-        ``states``, ``parameter``, ``values``, ``factors`` (None) and ``game`` (a
-        :class:`~sim.simulation.state_game.StateGame`).
+        ``states``, ``parameter``, ``values``, ``factors`` (None), ``game`` (a
+        :class:`~sim.simulation.state_game.StateGame`) and ``deviation_game`` (the deviation check's line-up in the
+        same states, or None).
     """
-    for other in ("enforcement", "deviation"):
-        if other in doc:
-            raise InputError("demand_states.collusive_path", f"is not simulated together with [{other}] yet: give "
-                                                             f"one of the two")
+    if "enforcement" in doc:
+        raise InputError("demand_states.collusive_path", "is not simulated together with [enforcement] yet: give one "
+                                                         "of the two")
     d = dict(doc["demand_states"])
     source = d.pop("collusive_path", "given" if "collusive_actions" in d else "same")
     source = Options(*COLLUSIVE_PATHS[1:]).check("demand_states.collusive_path", source)
@@ -87,8 +87,12 @@ def contingent_states(doc: dict, out: dict) -> dict:
     coll = state_collusive_actions(source, states, markets, out["run"]["delta"], out["agreement"], out["actions"],
                                    given)
     game = compile_state_game(out["game"], states, markets, source, coll, out["agreement"], out["actions"])
+    dev = out.get("deviation")
+    # the deviator's automaton resolved in the same states: its cheating level is each state's best reply
+    dev_game = None if dev is None else compile_state_game(dev["game"], states, markets, source, coll,
+                                                           out["agreement"], out["actions"])
     return {"states": states, "parameter": parameter, "values": [float(v) for v in values], "factors": None,
-            "game": game}
+            "game": game, "deviation_game": dev_game}
 
 
 def contingent_names(n_states: int) -> list[str]:
