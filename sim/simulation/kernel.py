@@ -30,6 +30,9 @@ One period, in this order (the random draws happen in this order too):
 6. each firm's signal and next state (:func:`strategies.step.bad_signal`, :func:`next_state`), all
    from the states at the start of the period.
 
+With demand states (:func:`simulate_state_chunks`, :class:`DemandInputs`) a period first takes its state's market
+parameters and level profiles, drawn beforehand from another stream family: no draw of the period moves.
+
 With a random horizon one uniform is drawn before the first period: the number of periods is
 ``min(n_periods, 1 + floor(log(1 - u) / log(continuation)))``, i.e. the game ends after each period
 with probability ``1 - continuation``.
