@@ -46,8 +46,9 @@ def console(result: ContactPlay) -> str:
     -------
     str
     """
+    who = "; ".join(f"{name}: firms {', '.join(map(str, f))}" for name, f in zip(result.names, result.market_firms))
     lines = [headline(result), "",
-             f"{len(result.names)} markets, {result.n_firms} firms in each, {result.periods} periods, "
+             f"{len(result.names)} markets ({who}), {result.periods} periods, "
              f"{result.replications} replications; pooled: a deviation seen in any market is punished in all of them "
              f"(Bernheim and Whinston, 1990); the two plays use the same random streams", ""]
     rows = [[name, result.separate[k].value, _ci(result.separate[k]), result.pooled[k].value, _ci(result.pooled[k]),
@@ -55,8 +56,8 @@ def console(result: ContactPlay) -> str:
     lines.append(table(["market", "collusive share, separate", "CI", "pooled", "CI", "pooled - separate", "CI"],
                        rows))
     lines.append("")
-    rows = [[name, f"firm {i + 1}", result.separate_profit[k, i], result.pooled_profit[k, i]]
-            for k, name in enumerate(result.names) for i in range(result.n_firms)]
+    rows = [[name, f"firm {f}", result.separate_profit[k, i], result.pooled_profit[k, i]]
+            for k, name in enumerate(result.names) for i, f in enumerate(result.market_firms[k])]
     lines.append(table(["market", "firm", "discounted profit, separate", "pooled"], rows))
     lines.extend(["", CAUTION])
     return "\n".join(lines)

@@ -42,21 +42,26 @@ __all__ = ["ContactPlay", "MarketsInputs", "MarketsRun", "collusive_shares", "co
 
 @dataclass
 class MarketsInputs:
-    """Several compiled games over the same firms, stacked for the kernel.
+    """Several compiled games over the same or overlapping firms, stacked for the kernel (``n`` the most firms of a
+    market; a market with fewer firms is padded).
 
     Parameters
     ----------
     codes : int64 ndarray of shape (n_markets,)
     scalars : float64 ndarray of shape (n_markets, 4)
-    vector, cost, capacity : float64 ndarray of shape (n_markets, n_firms)
-    owner : int64 ndarray of shape (n_markets, n_firms)
+    vector, cost, capacity : float64 ndarray of shape (n_markets, n)
+    owner : int64 ndarray of shape (n_markets, n)
     quantity_setting : bool ndarray of shape (n_markets,)
-    states : int64 ndarray of shape (n_markets, n_firms, S, N_STATE_INT)
-    probs : float64 ndarray of shape (n_markets, n_firms, S, N_STATE_FLT)
-    firms : int64 ndarray of shape (n_markets, n_firms, N_FIRM_INT)
-    levels : float64 ndarray of shape (n_markets, n_firms, L, n_firms)
-    tremble : float64 ndarray of shape (n_markets, n_firms)
+    states : int64 ndarray of shape (n_markets, n, S, N_STATE_INT)
+    probs : float64 ndarray of shape (n_markets, n, S, N_STATE_FLT)
+    firms : int64 ndarray of shape (n_markets, n, N_FIRM_INT)
+    levels : float64 ndarray of shape (n_markets, n, L, n)
+    tremble : float64 ndarray of shape (n_markets, n)
     perception_error, implementation_error : float
+    n_firms : int64 ndarray of shape (n_markets,)
+        Firms in each market.
+    firm_ids : int64 ndarray of shape (n_markets, n)
+        The firm (0-based, across all markets) in each seat of each market (-1 in padding).
     """
 
     codes: np.ndarray
@@ -73,6 +78,8 @@ class MarketsInputs:
     tremble: np.ndarray
     perception_error: float
     implementation_error: float
+    n_firms: np.ndarray
+    firm_ids: np.ndarray
 
 
 def _pad(arrays, fill) -> np.ndarray:
@@ -83,14 +90,36 @@ def _pad(arrays, fill) -> np.ndarray:
     return out
 
 
-def markets_inputs(games: list[Game]) -> MarketsInputs:
-    """Stack the compiled games of the markets (same firms, one product each, no demand shock).
+def _firm_ids(games: list[Game], firm_ids) -> list[np.ndarray]:
+    if firm_ids is None:
+        n = games[0].arrays.n_firms
+        for m, g in enumerate(games):
+            if g.arrays.n_firms != n:
+                raise InputError(f"markets[{m + 1}]", f"every market must have the same {n} firms unless each market "
+                                                      f"lists its firms; this one has {g.arrays.n_firms}")
+        return [np.arange(n, dtype=np.int64) for _ in games]
+    if len(firm_ids) != len(games):
+        raise InputError("markets", f"must list the firms of each of the {len(games)} markets")
+    out = []
+    for m, (g, ids) in enumerate(zip(games, firm_ids)):
+        ids = np.asarray(ids, dtype=np.int64)
+        if ids.shape != (g.arrays.n_firms,) or np.unique(ids).size != ids.size or np.any(ids < 0):
+            raise InputError(f"markets[{m + 1}].firms", f"must number the market's {g.arrays.n_firms} firms, each "
+                                                        f"once, got {ids.tolist()}")
+        out.append(ids)
+    return out
+
+
+def markets_inputs(games: list[Game], firm_ids=None) -> MarketsInputs:
+    """Stack the compiled games of the markets (one product per firm, no demand shock).
 
     Parameters
     ----------
     games : list of Game, length n_markets >= 2
-        One compiled line-up per market, seat ``i`` being the same firm in every market; every game has the same
-        perception and implementation errors.
+        One compiled line-up per market; every game has the same perception and implementation errors.
+    firm_ids : list of array_like of int, optional
+        Per market, the firm (0-based, across all markets) in each of its seats; default: seat ``i`` is firm ``i``
+        in every market (then every market must have the same firms).
 
     Returns
     -------
@@ -98,12 +127,12 @@ def markets_inputs(games: list[Game]) -> MarketsInputs:
     """
     if len(games) < 2:
         raise InputError("markets", f"must list at least two markets, got {len(games)}")
-    n = games[0].arrays.n_firms
+    ids = _firm_ids(games, firm_ids)
     for m, g in enumerate(games):
         a, mon = g.arrays, g.monitoring
-        if a.n_firms != n or a.n_products != n:
-            raise InputError(f"markets[{m + 1}]", f"every market must have the same {n} firms with one product each; "
-                                                  f"this one has {a.n_firms} firms and {a.n_products} products")
+        if a.n_products != a.n_firms:
+            raise InputError(f"markets[{m + 1}]", f"every firm must sell one product in each market; this one has "
+                                                  f"{a.n_firms} firms and {a.n_products} products")
         if mon["sigma"] > 0 or a.mixed.size:
             raise InputError(f"markets[{m + 1}]", "markets in contact are simulated without a demand shock and "
                                                   "without mixed static equilibria")
@@ -115,20 +144,22 @@ def markets_inputs(games: list[Game]) -> MarketsInputs:
     mon = games[0].monitoring
     return MarketsInputs(
         np.array([a.code for a in A], dtype=np.int64), np.stack([a.scalars for a in A]),
-        np.stack([a.vector for a in A]), np.stack([a.cost for a in A]), np.stack([a.capacity for a in A]),
-        np.stack([a.owner for a in A]),
+        _pad([a.vector for a in A], 0.0), _pad([a.cost for a in A], 0.0), _pad([a.capacity for a in A], np.inf),
+        _pad([a.owner for a in A], 0),
         np.array([a.quantity_setting for a in A]), _pad([x.states for x in L], 0), _pad([x.probs for x in L], 0.0),
-        np.stack([x.firms for x in L]), _pad([x.levels for x in L], np.nan),
-        np.stack([np.asarray(g.tremble, dtype=np.float64) for g in games]), float(mon["perception_error"]),
-        float(mon["implementation_error"]))
+        _pad([x.firms for x in L], 0), _pad([x.levels for x in L], np.nan),
+        _pad([np.asarray(g.tremble, dtype=np.float64) for g in games], np.nan), float(mon["perception_error"]),
+        float(mon["implementation_error"]), np.array([a.n_firms for a in A], dtype=np.int64), _pad(ids, -1))
 
 
 @njit(cache=True)
 def _play_markets(rng_states, codes, scalars, vector, cost, capacity, owner, quantity_setting, states, probs, firms,
-                  levels, tremble, perception_error, implementation_error, n_periods, delta, pooled, n_paths,
-                  out_profit, out_disc, out_collusive, path_actions, path_state, path_collude):  # pragma: no cover
+                  levels, tremble, perception_error, implementation_error, n_firms, firm_ids, n_periods, delta, pooled,
+                  n_paths, out_profit, out_disc, out_collusive, path_actions, path_state,
+                  path_collude):  # pragma: no cover
     # compiled; the plain-Python twin is sim.simulation.multimarket_twin
     M, n = owner.shape[0], owner.shape[1]
+    seen = np.zeros(firm_ids.max() + 1, dtype=np.bool_)
     state = np.empty((M, n), dtype=np.int64)
     new_state = np.empty((M, n), dtype=np.int64)
     lev = np.empty((M, n), dtype=np.int64)
@@ -145,27 +176,28 @@ def _play_markets(rng_states, codes, scalars, vector, cost, capacity, owner, qua
     for r in range(rng_states.shape[0]):
         rng = rng_states[r]
         for m in range(M):
-            for i in range(n):
+            for i in range(n_firms[m]):
                 state[m, i] = firms[m, i, INITIAL]
         disc = 1.0
         for t in range(n_periods):
             for m in range(M):
-                for i in range(n):
+                for i in range(n_firms[m]):
                     L, ch = choose_level(i, state[m, i], t, states[m], probs[m], firms[m], rng)
                     lev[m, i] = L
                     cheated[m, i] = ch
             for m in range(M):
-                for i in range(n):
+                for i in range(n_firms[m]):
                     trembled[m, i] = implementation_error > 0.0 and next_double(rng) < implementation_error
             for m in range(M):
-                for k in range(n):
+                nm = n_firms[m]
+                for k in range(nm):
                     i = owner[m, k]
                     actions[m, k] = tremble[m, k] if trembled[m, i] else levels[m, i, lev[m, i], k]
-                mp, _ = evaluate(codes[m], scalars[m], vector[m], cost[m], capacity[m], owner[m], n, actions[m], 1.0,
-                                 q, p, pi, work, False)
+                mp, _ = evaluate(codes[m], scalars[m], vector[m, :nm], cost[m, :nm], capacity[m, :nm], owner[m, :nm],
+                                 nm, actions[m, :nm], 1.0, q, p, pi, work, False)
                 prices[m] = mp
                 all_c = True
-                for i in range(n):
+                for i in range(nm):
                     profit[m, i] = pi[i]
                     out_profit[r, m, i] += pi[i]
                     out_disc[r, m, i] += disc * pi[i]
@@ -175,25 +207,29 @@ def _play_markets(rng_states, codes, scalars, vector, cost, capacity, owner, qua
                     out_collusive[r, m] += 1
                 if r < n_paths:
                     path_collude[r, t, m] = 1 if all_c else 0
-                    for i in range(n):
+                    for i in range(nm):
                         path_actions[r, t, m, i] = actions[m, i]
                         path_state[r, t, m, i] = state[m, i]
             for m in range(M):
-                for i in range(n):
-                    bad[m, i] = bad_signal(i, state[m, i], n, actions[m], owner[m], prices[m], profit[m, i],
+                nm = n_firms[m]
+                for i in range(nm):
+                    bad[m, i] = bad_signal(i, state[m, i], nm, actions[m, :nm], owner[m, :nm], prices[m], profit[m, i],
                                            perception_error, states[m], probs[m], levels[m], quantity_setting[m], rng)
             if pooled:
-                for i in range(n):
-                    seen = False
-                    for m in range(M):
-                        seen = seen or bad[m, i]
-                    for m in range(M):
-                        bad[m, i] = seen
+                # a firm that sees a deviation in any market punishes in every market it is in
+                seen[:] = False
+                for m in range(M):
+                    for i in range(n_firms[m]):
+                        if bad[m, i]:
+                            seen[firm_ids[m, i]] = True
+                for m in range(M):
+                    for i in range(n_firms[m]):
+                        bad[m, i] = seen[firm_ids[m, i]]
             for m in range(M):
-                for i in range(n):
+                for i in range(n_firms[m]):
                     new_state[m, i] = next_state(i, state[m, i], bad[m, i], states[m], probs[m], rng)
             for m in range(M):
-                for i in range(n):
+                for i in range(n_firms[m]):
                     state[m, i] = new_state[m, i]
             disc *= delta
 
@@ -245,7 +281,7 @@ class MarketsRun:
 
 
 def simulate_markets(games: list[Game], periods: int, replications: int, delta: float, seed: int, key=(0,),
-                     pooled: bool = True, paths: int = 0) -> MarketsRun:
+                     pooled: bool = True, paths: int = 0, firm_ids=None) -> MarketsRun:
     """Play the same firms' line-ups in several markets at once, with pooled or separate punishments.
 
     Parameters
@@ -264,19 +300,22 @@ def simulate_markets(games: list[Game], periods: int, replications: int, delta: 
         everywhere); False: each market's automata react to that market alone.
     paths : int
         Replications (the first ones) whose paths are recorded.
+    firm_ids : list of array_like of int, optional
+        Per market, the firm in each seat (see :func:`markets_inputs`); default: the same firms in every market.
 
     Returns
     -------
     MarketsRun
+        Per market, seats beyond the market's firms hold zeros (profits) and nan or -1 (paths).
     """
-    inp = markets_inputs(games)
+    inp = markets_inputs(games, firm_ids)
     M, n = inp.owner.shape
     out = MarketsRun.empty(replications, M, n, periods, paths)
     rng = stream_states(seed, key, 0, replications)
     _play_markets(rng, inp.codes, inp.scalars, inp.vector, inp.cost, inp.capacity, inp.owner, inp.quantity_setting,
                   inp.states, inp.probs, inp.firms, inp.levels, inp.tremble, inp.perception_error,
-                  inp.implementation_error, int(periods), float(delta), bool(pooled), int(paths), out.profit, out.disc,
-                  out.collusive, out.path_actions, out.path_state, out.path_collude)
+                  inp.implementation_error, inp.n_firms, inp.firm_ids, int(periods), float(delta), bool(pooled),
+                  int(paths), out.profit, out.disc, out.collusive, out.path_actions, out.path_state, out.path_collude)
     return out
 
 
@@ -316,7 +355,10 @@ class ContactPlay(Record):
     difference : list of Estimate
         Per market: pooled minus separate, replication by replication (paired: the same streams).
     pooled_profit, separate_profit : ndarray of shape (n_markets, n_firms)
-        Mean discounted profit of each firm in each market.
+        Mean discounted profit of each seat of each market (``n_firms`` the most firms of a market; zero beyond a
+        market's own firms).
+    market_firms : list of list of int
+        Per market, the firm (numbered from 1 across the markets) in each seat.
     """
 
     names: list
@@ -328,10 +370,11 @@ class ContactPlay(Record):
     difference: list[Estimate]
     pooled_profit: np.ndarray
     separate_profit: np.ndarray
+    market_firms: list
 
 
 def contact_play(games: list[Game], names: list, periods: int, replications: int, delta: float, seed: int, key=(0,),
-                 confidence: float = 0.95) -> ContactPlay:
+                 confidence: float = 0.95, firm_ids=None) -> ContactPlay:
     """Play the markets with pooled and with separate punishments and compare the collusive shares.
 
     Parameters
@@ -346,15 +389,19 @@ def contact_play(games: list[Game], names: list, periods: int, replications: int
     key : tuple of int
         The cell's stream key (both plays use the same streams).
     confidence : float in (0, 1)
+    firm_ids : list of array_like of int, optional
+        Per market, the firm in each seat (see :func:`markets_inputs`).
 
     Returns
     -------
     ContactPlay
     """
-    pooled = simulate_markets(games, periods, replications, delta, seed, key, pooled=True)
-    separate = simulate_markets(games, periods, replications, delta, seed, key, pooled=False)
+    pooled = simulate_markets(games, periods, replications, delta, seed, key, pooled=True, firm_ids=firm_ids)
+    separate = simulate_markets(games, periods, replications, delta, seed, key, pooled=False, firm_ids=firm_ids)
     diff = (pooled.collusive - separate.collusive) / float(periods)
+    ids = markets_inputs(games, firm_ids)
+    market_firms = [[int(g) + 1 for g in ids.firm_ids[m, :ids.n_firms[m]]] for m in range(len(games))]
     return ContactPlay(list(names), int(pooled.profit.shape[2]), int(periods), int(replications),
                        collusive_shares(pooled, periods, confidence), collusive_shares(separate, periods, confidence),
                        [mean_estimate(diff[:, m], confidence) for m in range(diff.shape[1])],
-                       pooled.disc.mean(axis=0), separate.disc.mean(axis=0))
+                       pooled.disc.mean(axis=0), separate.disc.mean(axis=0), market_firms)

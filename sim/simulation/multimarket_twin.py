@@ -38,7 +38,7 @@ def _bad(inp: MarketsInputs, m: int, i: int, s: int, actions, price: float, prof
         return price < pr[S.THRESHOLD]
     if watch == S.WATCH_PROFIT:
         return profit < pr[S.THRESHOLD]
-    n = inp.owner.shape[1]
+    n = int(inp.n_firms[m])
     bad = False
     for j in range(n):
         ok = True
@@ -66,45 +66,47 @@ def _next(inp: MarketsInputs, m: int, i: int, s: int, bad: bool, rng: ReferenceS
 
 def _replication(inp: MarketsInputs, out: MarketsRun, r: int, rng: ReferenceStream, periods: int, delta: float,
                  pooled: bool, paths: int) -> None:
-    M, n = inp.owner.shape
-    state = [[int(inp.firms[m, i, S.INITIAL]) for i in range(n)] for m in range(M)]
+    M = inp.owner.shape[0]
+    N = [int(x) for x in inp.n_firms]
+    ids = [[int(inp.firm_ids[m, i]) for i in range(N[m])] for m in range(M)]
+    state = [[int(inp.firms[m, i, S.INITIAL]) for i in range(N[m])] for m in range(M)]
     disc = 1.0
-    buf = (np.empty(n), np.empty(n), np.empty(n), np.empty((2, n)))
     for t in range(periods):
-        chosen = [[_choose(inp, m, i, state[m][i], t, rng) for i in range(n)] for m in range(M)]
+        chosen = [[_choose(inp, m, i, state[m][i], t, rng) for i in range(N[m])] for m in range(M)]
         e = inp.implementation_error
-        trembled = [[e > 0.0 and rng.next_double() < e for _ in range(n)] for _ in range(M)]
+        trembled = [[e > 0.0 and rng.next_double() < e for _ in range(N[m])] for m in range(M)]
         acts, prices, profits = [], [], []
         for m in range(M):
-            own = inp.owner[m]
+            n = N[m]
+            own = inp.owner[m, :n]
             a = np.array([inp.tremble[m, k] if trembled[m][own[k]] else inp.levels[m, own[k], chosen[m][own[k]][0], k]
                           for k in range(n)])
-            q, p, pi, work = buf
-            mp, _ = evaluate.py_func(inp.codes[m], inp.scalars[m], inp.vector[m], inp.cost[m], inp.capacity[m], own,
-                                     n, a, 1.0, q, p, pi, work, False)
+            q, p, pi, work = np.empty(n), np.empty(n), np.empty(n), np.empty((2, n))
+            mp, _ = evaluate.py_func(inp.codes[m], inp.scalars[m], inp.vector[m, :n], inp.cost[m, :n],
+                                     inp.capacity[m, :n], own, n, a, 1.0, q, p, pi, work, False)
             acts.append(a)
             prices.append(mp)
             profits.append(pi.copy())
-            out.profit[r, m] += pi
-            out.disc[r, m] += disc * pi
+            out.profit[r, m, :n] += pi
+            out.disc[r, m, :n] += disc * pi
             all_c = all(inp.states[m, i, state[m][i], S.COLLUSIVE] == 1 and not chosen[m][i][1] and not trembled[m][i]
                         for i in range(n))
             out.collusive[r, m] += all_c
             if r < paths:
-                out.path_actions[r, t, m] = a
-                out.path_state[r, t, m] = state[m]
+                out.path_actions[r, t, m, :n] = a
+                out.path_state[r, t, m, :n] = state[m]
                 out.path_collude[r, t, m] = int(all_c)
-        bad = [[_bad(inp, m, i, state[m][i], acts[m], prices[m], profits[m][i], rng) for i in range(n)]
+        bad = [[_bad(inp, m, i, state[m][i], acts[m], prices[m], profits[m][i], rng) for i in range(N[m])]
                for m in range(M)]
         if pooled:
-            seen = [any(bad[m][i] for m in range(M)) for i in range(n)]
-            bad = [list(seen) for _ in range(M)]
-        state = [[_next(inp, m, i, state[m][i], bad[m][i], rng) for i in range(n)] for m in range(M)]
+            seen = {g for m in range(M) for i in range(N[m]) if bad[m][i] for g in (ids[m][i],)}
+            bad = [[ids[m][i] in seen for i in range(N[m])] for m in range(M)]
+        state = [[_next(inp, m, i, state[m][i], bad[m][i], rng) for i in range(N[m])] for m in range(M)]
         disc *= delta
 
 
 def reference_markets(games, periods: int, replications: int, delta: float, seed: int, key=(0,), pooled: bool = True,
-                      paths: int = 0) -> MarketsRun:
+                      paths: int = 0, firm_ids=None) -> MarketsRun:
     """Play the markets in plain Python, draw for draw as :func:`sim.simulation.multimarket.simulate_markets`.
 
     Parameters
@@ -116,12 +118,13 @@ def reference_markets(games, periods: int, replications: int, delta: float, seed
     key : tuple of int
     pooled : bool
     paths : int
+    firm_ids : list of array_like of int, optional
 
     Returns
     -------
     MarketsRun
     """
-    inp = markets_inputs(games)
+    inp = markets_inputs(games, firm_ids)
     M, n = inp.owner.shape
     out = MarketsRun.empty(replications, M, n, periods, paths)
     seeds = stream_states(seed, key, 0, replications)

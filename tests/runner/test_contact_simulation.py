@@ -80,3 +80,56 @@ def test_markets_with_other_firms_are_refused_in_one_line(tmp_path, capsys):
     lines = cap.err.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("supergame run: error: markets[2].n_firms:"), cap.err
     assert not (tmp_path / "run").exists()
+
+
+OVERLAP = """
+[experiment]
+name = "three-quarries-two-markets"
+kind = "contact_simulation"
+[[markets]]
+name = "north"
+model = "cournot"
+demand = "linear"
+intercept = 100.0
+cost = 10.0
+n_firms = 2
+firms = [1, 2]
+[[markets]]
+name = "south"
+model = "cournot"
+demand = "linear"
+intercept = 80.0
+cost = [10.0, 12.0, 11.0]
+n_firms = 3
+firms = [2, 3, 1]
+[[strategies]]
+strategy = "grim_trigger"
+seats = "all"
+[monitoring]
+implementation_error = 0.02
+[run]
+periods = 30
+replications = 100
+delta = 0.9
+seed = 5
+"""
+
+
+def test_markets_with_overlapping_firms_run_and_round_trip(tmp_path, capsys):
+    res = run_single(tomllib.loads(OVERLAP)).result
+    assert res.market_firms == [[1, 2], [2, 3, 1]]
+    doc = res.to_dict()
+    assert ContactPlay.from_dict(json.loads(json.dumps(doc, allow_nan=False))).to_dict() == doc
+    # pooling adds the other market's errors to what ends collusion in each market
+    assert all(d.high < 0 for d in res.difference)
+    assert "south: firms 2, 3, 1" in renderer_for("contact_simulation").console(res)
+
+
+def test_firm_lists_are_given_for_every_market_or_none(tmp_path, capsys):
+    for old, new, key in (("firms = [2, 3, 1]", "firms = [2, 2, 1]", "markets[2].firms"),
+                          ("firms = [2, 3, 1]\n", "", "markets[2].firms")):
+        f = tmp_path / "bad.toml"
+        f.write_text(OVERLAP.replace(old, new))
+        assert main(["run", str(f), "--out", str(tmp_path / "run")]) == 2
+        lines = capsys.readouterr().err.strip().splitlines()
+        assert len(lines) == 1 and lines[0].startswith(f"supergame run: error: {key}:"), lines

@@ -1,4 +1,4 @@
-"""The same firms in two markets (sim.simulation.multimarket): pooled punishments against separate ones.
+"""The same or overlapping firms in two markets (sim.simulation.multimarket): pooled punishments against separate ones.
 
 Source of the economics: Bernheim and Whinston (1990), "Multimarket contact and collusive behavior", RAND 21(1):
 firms in contact in several markets can punish a deviation in one market in all of them. Checks:
@@ -80,3 +80,43 @@ def test_markets_must_share_the_same_firms():
     with pytest.raises(InputError) as err:
         simulate_markets(games, periods=5, replications=1, delta=0.9, seed=1)
     assert err.value.key == "markets[2]"
+
+
+TRIOPOLY = Market(LinearDemand(90.0, 1.0), cost=[10.0, 12.0, 14.0], n_firms=3)
+
+
+@pytest.mark.parametrize("ids", [[[0, 1], [1, 2]], [[0, 1], [2, 0, 1]]])
+@pytest.mark.parametrize("pooled", [True, False])
+def test_kernel_equals_twin_with_overlapping_firms(ids, pooled):
+    mon = Monitoring(perception_error=0.03, implementation_error=0.04)
+    second = SYMMETRIC if len(ids[1]) == 2 else TRIOPOLY
+    games = [prepare_game(COURNOT, [S.FinitePunishment(length=2), S.GrimTrigger()], mon),
+             prepare_game(second, [S.GrimTrigger()] * len(ids[1]), mon)]
+    kw = dict(periods=30, replications=6, delta=0.9, seed=8, key=(2,), pooled=pooled, paths=4, firm_ids=ids)
+    a, b = simulate_markets(games, **kw), reference_markets(games, **kw)
+    for f in FIELDS:
+        assert np.array_equal(getattr(a, f), getattr(b, f), equal_nan=True), f
+
+
+def test_with_overlapping_firms_a_deviation_travels_through_the_shared_firm():
+    """Firms A and B meet in market 1, B and C in market 2. A cheats once in market 1 (period 0). Pooled: B, which
+    saw it, competes in market 2 from period 1, and C, seeing B's static Nash price, from period 2; separate: market
+    2 keeps colluding."""
+    ids = [[0, 1], [1, 2]]
+    games = [prepare_game(COURNOT, [S.Opportunist(probability=1.0, start=0), S.GrimTrigger()]),
+             prepare_game(SYMMETRIC, [S.GrimTrigger(), S.GrimTrigger()])]
+    pooled = simulate_markets(games, periods=4, replications=1, delta=0.9, seed=1, paths=1, firm_ids=ids)
+    grim_punish = 1  # grim trigger's second state
+    assert pooled.path_collude[0, :, 1].tolist() == [1, 0, 0, 0]
+    assert pooled.path_state[0, 1, 1].tolist() == [grim_punish, 0]  # period 1: B punishes, C not yet
+    assert pooled.path_state[0, 2, 1].tolist() == [grim_punish, grim_punish]
+    separate = simulate_markets(games, periods=4, replications=1, delta=0.9, seed=1, paths=1, firm_ids=ids,
+                                pooled=False)
+    assert separate.path_collude[0, :, 1].tolist() == [1, 1, 1, 1]
+
+
+def test_firm_lists_must_number_each_seat_once():
+    games = [prepare_game(COURNOT, [S.GrimTrigger()] * 2), prepare_game(SYMMETRIC, [S.GrimTrigger()] * 2)]
+    with pytest.raises(InputError) as err:
+        simulate_markets(games, periods=5, replications=1, delta=0.9, seed=1, firm_ids=[[0, 1], [2, 2]])
+    assert err.value.key == "markets[2].firms"

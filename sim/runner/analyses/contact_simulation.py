@@ -1,10 +1,11 @@
-"""The ``contact_simulation`` kind: the same firms in several markets, played with punishments pooled across the
-markets and with separate punishments, on the same streams (:mod:`sim.simulation.multimarket`).
+"""The ``contact_simulation`` kind: the same or overlapping firms in several markets, played with punishments pooled
+across the markets and with separate punishments, on the same streams (:mod:`sim.simulation.multimarket`).
 
-Tables: ``[[markets]]`` (two or more; each a market table as ``[market]``, with an optional ``name`` and an optional
-``strategies`` list for that market's line-up), ``[[strategies]]`` (the line-up of every market that gives none),
-``[collusion]``, ``[monitoring]`` (perception and implementation errors, no demand shock) and ``[run]``
-(``periods``, ``replications``, ``delta``, ``seed``, ``confidence``).
+Tables: ``[[markets]]`` (two or more; each a market table as ``[market]``, with an optional ``name``, an optional
+``strategies`` list for that market's line-up and, when the markets hold different firms, ``firms``: the number,
+from 1, of the firm in each seat -- given for every market or for none), ``[[strategies]]`` (the line-up of every
+market that gives none), ``[collusion]``, ``[monitoring]`` (perception and implementation errors, no demand shock)
+and ``[run]`` (``periods``, ``replications``, ``delta``, ``seed``, ``confidence``).
 """
 
 from __future__ import annotations
@@ -37,15 +38,22 @@ def _prepare(doc: dict) -> dict:
     confidence = Real(0, 1, closed="neither").check("run.confidence", r.pop("confidence", 0.95))
     mon = monitoring_from_dict(doc.get("monitoring", {}))
     agreement, actions = collusion_of(doc)
-    games, names = [], []
+    games, names, ids = [], [], []
+    listed = [isinstance(e, dict) and "firms" in e for e in entries]
+    if any(listed) and not all(listed):
+        raise InputError(f"markets[{listed.index(False) + 1}].firms", "missing: list the firms of every market (by "
+                                                                      "number, from 1) or of none")
     for k, e in enumerate(entries):
         key = f"markets[{k + 1}]"
-        table = {x: v for x, v in e.items() if x not in ("name", "strategies")}
+        table = {x: v for x, v in e.items() if x not in ("name", "strategies", "firms")}
         market = market_from_dict(table, key)
         n = market.spec().n_firms
-        if games and n != games[0].arrays.n_firms:
+        if listed[0]:
+            ids.append(_firm_numbers(e["firms"], n, f"{key}.firms"))
+        elif games and n != games[0].arrays.n_firms:
             raise InputError(f"{key}.n_firms", f"every market must have the same firms: market 1 has "
-                                               f"{games[0].arrays.n_firms}, this one {n}")
+                                               f"{games[0].arrays.n_firms}, this one {n} (or list each market's "
+                                               f"firms)")
         name = e.get("name", f"market {k + 1}")
         if not isinstance(name, str) or not name:
             raise InputError(f"{key}.name", f"must be a non-empty name, got {name!r}")
@@ -54,8 +62,17 @@ def _prepare(doc: dict) -> dict:
         games.append(prepare_game(market, lineup, mon, agreement, actions, strict=False))
         names.append(name)
     run = check_run(r["periods"], r["replications"], r["delta"], r["seed"], "fixed", 1.0, 0, 1)
-    markets_inputs(games)  # the markets' firms and monitoring, checked before any work
-    return {"games": games, "names": names, "run": run, "confidence": confidence}
+    firm_ids = ids if listed[0] else None
+    markets_inputs(games, firm_ids)  # the markets' firms and monitoring, checked before any work
+    return {"games": games, "names": names, "run": run, "confidence": confidence, "firm_ids": firm_ids}
+
+
+def _firm_numbers(value, n: int, key: str) -> list:
+    """A market's ``firms``: one distinct firm number (from 1) per seat, 0-based for the kernel."""
+    if not isinstance(value, list) or len(value) != n or not all(isinstance(x, int) and not isinstance(x, bool)
+                                                                 and x >= 1 for x in value) or len(set(value)) != n:
+        raise InputError(key, f"must list the market's {n} firms by number (distinct, from 1), got {value!r}")
+    return [x - 1 for x in value]
 
 
 def contact_metrics(result: ContactPlay) -> dict:
@@ -90,7 +107,7 @@ def _names(cfg: dict) -> list[str]:
 def _run(cfg: dict, ctx: CellContext) -> CellResult:
     r = cfg["run"]
     res = contact_play(cfg["games"], cfg["names"], r["periods"], r["replications"], r["delta"], r["seed"], ctx.key,
-                       cfg["confidence"])
+                       cfg["confidence"], cfg["firm_ids"])
     return CellResult(contact_metrics(res), {}, res)
 
 
