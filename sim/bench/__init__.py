@@ -59,7 +59,23 @@ SECTIONS: dict = {
 
 
 def section(name: str):
-    """The function of section ``name``."""
+    """The function of section ``name``, imported on first use.
+
+    Parameters
+    ----------
+    name : str
+        A key of :data:`SECTIONS`.
+
+    Returns
+    -------
+    callable
+        ``section(opts: BenchOptions) -> dict``.
+
+    Raises
+    ------
+    KeyError
+        For a name that is not a section (the command checks names before it calls this).
+    """
     fn = SECTIONS[name][0]
     if callable(fn):
         return fn
@@ -68,7 +84,14 @@ def section(name: str):
 
 
 def machine() -> dict:
-    """What the figures were measured on: versions, cores and numba's threading."""
+    """What the figures were measured on: versions, cores and numba's threading.
+
+    Returns
+    -------
+    dict
+        ``python``, ``numpy`` and ``numba`` versions, ``cpus`` (the machine's count), ``numba_threads`` and
+        ``threading_layer``.
+    """
     import numba  # heavy: only when a benchmark runs
 
     return {"python": platform.python_version(), "numpy": numpy.__version__, "numba": numba.__version__,

@@ -76,7 +76,21 @@ def best_time(fn, repeat: int) -> float:
 
 
 def memory_probe(periods: int, replications: int, threads: int) -> dict:
-    """Run in a fresh process: the workload once, then report the peak resident memory."""
+    """Run in a fresh process: the workload once, then report the peak resident memory.
+
+    Parameters
+    ----------
+    periods, replications : int
+        Size of the engine workload to run.
+    threads : int
+        Threads of the kernel.
+
+    Returns
+    -------
+    dict
+        ``peak_kib`` (the process's peak resident memory after the run, KiB), ``before_kib`` (the same after a
+        tiny warm-up run) and ``result_bytes`` (the bytes of the arrays the run returned).
+    """
 
 
     game = _engine_game()
@@ -99,7 +113,20 @@ def _probe_in_subprocess(periods: int, replications: int, threads: int) -> dict:
 
 
 def engine_benchmark(opts: BenchOptions) -> dict:
-    """The engine section (see the module notes)."""
+    """The engine section (see the module notes).
+
+    Parameters
+    ----------
+    opts : BenchOptions
+        ``quick`` for the small workload, ``threads`` for the multi-thread timings, ``repeat`` for the best-of count.
+
+    Returns
+    -------
+    dict
+        ``workload``; the time of the first call; firm-periods per second of the kernel on one thread and on
+        ``opts.threads`` threads and of the plain-Python reference (and whether it gives identical results);
+        their ratios; peak memory with 1x and 10x the periods; ``targets`` (target text -> met) and ``notes``.
+    """
 
 
     w = dict(ENGINE_WORKLOAD)
@@ -162,7 +189,19 @@ def engine_benchmark(opts: BenchOptions) -> dict:
 
 
 def matches_benchmark(opts: BenchOptions) -> dict:
-    """The matches section (see the module notes)."""
+    """The matches section (see the module notes).
+
+    Parameters
+    ----------
+    opts : BenchOptions
+        ``quick`` for the small workload, ``threads`` for the multi-thread timings, ``repeat`` for the best-of count.
+
+    Returns
+    -------
+    dict
+        ``workload``, the number of matches, the seconds to build the stage game, compile and play every
+        match, firm-periods per second, the fixed cost of one call, ``targets`` and ``notes``.
+    """
 
 
     periods, reps = (100, 100) if opts.quick else (1000, 1000)

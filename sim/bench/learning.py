@@ -14,6 +14,7 @@ import time
 
 import numpy as np
 
+from sim.bench.learning_alternating import alternating_benchmark
 from sim.learning.lineup import compile_lineup
 from sim.learning.session import kernel_session, reference_session
 from sim.models.demand import LogitDemand
@@ -209,7 +210,8 @@ def bench_section(opts) -> dict:
     time of 1,000 baseline sessions with ``opts.threads`` workers in a fresh process with an empty numba
     cache (compilation included). Targets: >= 8e6 periods/s, >= 100 x the reference, 1,000 sessions in under 3
     minutes. Each bandit family (:func:`bandit_benchmark`): >= 100 x its twin and at least half the Q-learning
-    kernel's periods per second on the same fixed-length workload, measured in the same run.
+    kernel's periods per second on the same fixed-length workload, measured in the same run; the alternating-move
+    kernel (Klein, 2021) likewise.
 
     Parameters
     ----------
@@ -219,8 +221,9 @@ def bench_section(opts) -> dict:
     -------
     dict
         The measures of :func:`benchmark`, ``sessions_run`` (:func:`time_sessions`), ``bandits`` (per family, the
-        measures of :func:`bandit_benchmark` and ``speed_relative_to_q_learning``), ``workload``, ``targets`` and
-        ``notes``.
+        measures of :func:`bandit_benchmark` and ``speed_relative_to_q_learning``), ``alternating`` (the same for
+        alternating moves, :func:`sim.bench.learning_alternating.alternating_benchmark`), ``workload``, ``targets``
+        and ``notes``.
     """
     quick = bool(getattr(opts, "quick", False))
     workers = int(getattr(opts, "threads", 2))
@@ -255,4 +258,12 @@ def bench_section(opts) -> dict:
         out["targets"][f"{family} kernel within a factor 2 of Q-learning per period"] = (
             bb["speed_relative_to_q_learning"] >= 0.5)
         out["targets"][f"{family} twin and kernel identical"] = bb["reference_identical_to_kernel"]
+    # alternating moves (Klein, 2021) against their twin and the simultaneous Q-learning kernel of the same run
+    alt = alternating_benchmark(**size)
+    alt["speed_relative_to_q_learning"] = alt["kernel_periods_per_second"] / b["kernel_periods_per_second"]
+    out["alternating"] = alt
+    out["targets"]["alternating kernel >= 100 x its twin"] = alt["ratio"] >= 100
+    out["targets"]["alternating kernel within a factor 2 of Q-learning per period"] = (
+        alt["speed_relative_to_q_learning"] >= 0.5)
+    out["targets"]["alternating twin and kernel identical"] = alt["reference_identical_to_kernel"]
     return out

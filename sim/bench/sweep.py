@@ -103,6 +103,19 @@ def bench_section(opts) -> dict:
       second on one core, some 25 s in all) with 1 and with 2 local workers, each in a fresh process as
       ``supergame run`` runs it; target >= 1.7. Both must give the same results file. The ratio includes
       the fixed cost of starting the workers (each loads the compiled kernels, about half a second).
+
+    Parameters
+    ----------
+    opts : BenchOptions
+        ``quick`` for smaller sweeps, ``repeat`` for the best-of count (``threads`` is not used: cells run on
+        one thread each).
+
+    Returns
+    -------
+    dict
+        ``workload``; ``overhead`` (seconds of the plain loop and of the sweeps with 1 and 2 workers, cost per
+        cell in ms, fixed cost per run); ``speedup`` (seconds with 1 and 2 workers, their ratio, whether the
+        results files are identical, the usable cores); ``targets`` and ``notes``.
     """
 
 

@@ -82,7 +82,21 @@ def _reference_linear_cournot(a: float, b: float, c: list[float]) -> list[float]
 
 
 def theory_benchmark(opts) -> dict:
+    """Every threshold of a 10-firm asymmetric market, one per demand system, against the plain-Python reference
+    for the linear Cournot case (see the module notes).
 
+    Parameters
+    ----------
+    opts : BenchOptions
+        Each market is timed as the best of ``repeat`` runs, or once when ``quick``.
+
+    Returns
+    -------
+    dict
+        ``workload``; the best time per market; the slowest of them; the time of the reference; whether the
+        reference's grim-trigger thresholds agree with the library's (relative tolerance 1e-9); ``targets``
+        and ``notes``.
+    """
     repeat = 1 if opts.quick else opts.repeat
     timings = {}
     for name, (market, agreement) in _markets().items():

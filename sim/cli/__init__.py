@@ -27,10 +27,11 @@ from sim.core.errors import InputError, SolverError, Terminated
 
 # name -> (module, one line of ``supergame --help``); the order is the order of ``supergame --help``. Only the
 # module of the command being run is imported, so that ``supergame --help`` loads none of the computing packages
-# (tests/cli/test_cli_layout.py checks that each line here is the module's own ``HELP``).
+# (a test of the command line checks that each line here is the module's own ``HELP``).
 COMMANDS = {
     "thresholds": ("sim.cli.thresholds", "stage game and critical discount factors of a market (analytic baseline)"),
-    "learn": ("sim.cli.learn", "let Q-learning firms learn to price; limit outcomes, profit gain and impulse response"),
+    "learn": ("sim.cli.learn",
+              "let pricing algorithms (Q-learning, bandits) learn; limit outcomes, profit gain, impulse response"),
     "simulate": ("sim.cli.simulate",
                  "simulate a line-up of strategies: persistence of collusion against the analytic baseline"),
     "tournament": ("sim.cli.tournament",
@@ -76,7 +77,17 @@ def flag_of(key: str) -> str:
 
 
 class ArgumentError(Exception):
-    """A command line that does not parse: the flag it concerns (if any) and what is wrong."""
+    """A command line that does not parse: the flag it concerns (if any) and what is wrong.
+
+    Parameters
+    ----------
+    prog : str
+        The command, as the error line starts (``supergame run``).
+    key : str
+        The flag or argument concerned (``--workers``), or ``""`` when the error concerns none.
+    message : str
+        What is wrong, in one line.
+    """
 
     def __init__(self, prog: str, key: str, message: str):
         super().__init__(message)
@@ -158,6 +169,20 @@ def _command_of(argv: list[str]) -> str:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """Run ``supergame`` with the given arguments: parse them, run the command, and turn every error into one line
+    and an exit status (see the module notes); with ``--json`` errors are printed as one JSON object on stdout.
+
+    Parameters
+    ----------
+    argv : list of str or None
+        The arguments after the program name; None reads ``sys.argv``.
+
+    Returns
+    -------
+    int
+        The exit status: 0 success, 1 a failed computation or an internal error, 2 bad input or no command,
+        130 interrupted, 143 terminated.
+    """
     argv = list(sys.argv[1:] if argv is None else argv)
     as_json = "--json" in argv
     command = _command_of(argv)

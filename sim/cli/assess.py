@@ -34,6 +34,15 @@ DESCRIPTION = (
 
 
 def configure(p: argparse.ArgumentParser) -> None:
+    """Add the arguments of ``supergame assess`` to its parser.
+
+    The command takes the experiment file FILE, the run folder, figures and JSON output.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's subparser.
+    """
     p.add_argument("file", metavar="FILE", help="experiment file (kind = 'assess')")
     p.add_argument("--out", metavar="DIR",
                    help="run folder to create (default runs/<name>-<time>); the evidence bundle is DIR/report")
@@ -42,6 +51,24 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
+    """Run the merger assessment of FILE into a run folder with its evidence bundle and print the stored result.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line.
+
+    Returns
+    -------
+    int
+        The exit status (0; a failed assessment raises SolverError, which the command prints with status 1).
+
+    Raises
+    ------
+    InputError
+        For a file that cannot be read or validated, or a figures folder that cannot be written; nothing is
+        computed then.
+    """
     # the assessment's own reading first (kind, one assessment, no [sweep] or [report]), then the
     # experiments layer's validation of the whole file; nothing is written before both pass
     doc = read_toml(args.file)

@@ -30,6 +30,15 @@ DESCRIPTION = (
 
 
 def configure(p: argparse.ArgumentParser) -> None:
+    """Add the arguments of ``supergame bench`` to its parser.
+
+    The command takes the sections to run, threads, repeats, the quick workload and JSON output.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's subparser.
+    """
     p.add_argument("--only", action="append", metavar="NAME",
                    help=f"run only this section (repeatable): {', '.join(SECTIONS)}")
     p.add_argument("--threads", metavar="N", help="threads for the multi-thread timings (default 2)")
@@ -39,6 +48,24 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
+    """Run the benchmark sections asked for and print their measures, targets and the machine they ran on.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line.
+
+    Returns
+    -------
+    int
+        The exit status (0; a target not met is reported, not an error).
+
+    Raises
+    ------
+    InputError
+        ``--only`` for an unknown section, ``--threads`` outside [1, numba's thread count], ``--repeat``
+        outside [1, 100].
+    """
     names = args.only or list(SECTIONS)
     for nm in names:
         if nm not in SECTIONS:
@@ -73,6 +100,19 @@ def _flat(prefix: str, d: dict, rows: list) -> None:
 
 
 def render(out: dict) -> str:
+    """The benchmark results as text: per section its workload, a table of its measures (nested measures as
+    dotted names), each target met or not and the notes; the machine last.
+
+    Parameters
+    ----------
+    out : dict
+        ``sections`` (section name -> the dict its function returned) and ``machine``
+        (:func:`sim.bench.machine`).
+
+    Returns
+    -------
+    str
+    """
 
     lines = []
     for nm, sec in out["sections"].items():

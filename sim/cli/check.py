@@ -21,12 +21,33 @@ DESCRIPTION = (
 
 
 def configure(p: argparse.ArgumentParser) -> None:
+    """Add the arguments of ``supergame check`` to its parser.
+
+    The command takes the experiment files, plugins and JSON output.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's subparser.
+    """
     p.add_argument("files", nargs="+", metavar="FILE", help="experiment files (TOML)")
     add_plugin_option(p)
     p.add_argument("--json", action="store_true", help="print one JSON object per file")
 
 
 def describe(exp) -> str:
+    """One line on a valid experiment: its source, kind and name, cells and sweep, metrics, figures and the
+    estimated cost of running it.
+
+    Parameters
+    ----------
+    exp : Experiment
+        The validated experiment file.
+
+    Returns
+    -------
+    str
+    """
     parts = [f"{exp.source}: valid {exp.kind} experiment {exp.name!r}"]
     if exp.parameters:
         sweep = ", ".join(f"{p.path} ({len(p)} value{'s' if len(p) != 1 else ''})" for p in exp.parameters)
@@ -45,6 +66,23 @@ def describe(exp) -> str:
 
 
 def run(args) -> int:
+    """Validate each experiment file, every sweep cell included, and print what it would run; nothing is run.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line.
+
+    Returns
+    -------
+    int
+        The exit status (0 when every file is valid).
+
+    Raises
+    ------
+    InputError
+        At the first file that cannot be read or validated, or a plugin that cannot be loaded.
+    """
 
     load_plugins(args.plugin)
     for f in args.files:

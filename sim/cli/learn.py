@@ -17,7 +17,7 @@ from sim.learning.tables import RUN_CONSTRAINTS
 from sim.runner.analyses.learn import KIND as LEARN
 from sim.runner.single import run_single
 
-HELP = "let Q-learning firms learn to price; limit outcomes, profit gain and impulse response"
+HELP = "let pricing algorithms (Q-learning, bandits) learn; limit outcomes, profit gain, impulse response"
 DESCRIPTION = (
     "Run independent sessions of Q-learning firms (Calvano, Calzolari, Denicolo and Pastorello, 2020) on a "
     "market until their greedy strategies stop changing, then report what they converged to: limit prices "
@@ -53,6 +53,7 @@ _FLAGS = {
         "limit_periods": ("limit-periods", "int"),
         "save_to": ("save-to", "str"),
         "continue_from": ("continue-from", "str"),
+        "timing": ("timing", "str"),
     },
     "impulse": {
         "firm": ("impulse-firm", "int"),
@@ -91,6 +92,9 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--update", metavar="RULE", help="which values a learner updates after a period: asynchronous "
                                                     "(the action played; default), synchronous (every action, from "
                                                     "what it would have earned) or mixed")
+    g.add_argument("--timing", metavar="T", help="simultaneous (every firm sets its price every period; default) or "
+                                                 "alternating (two learners set prices in turn, each held for two "
+                                                 "periods)")
     g.add_argument("--counterfactual-share", metavar="S", help="with --update mixed: probability in (0, 1) that each "
                                                                "action not played is updated")
     g.add_argument("--family", metavar="F", help="q (Q-learning; default), ucb or thompson (bandits over the grid that "

@@ -25,6 +25,15 @@ _LABEL = {"strategies": "strategy", "learners": "learner", "models": "demand mod
 
 
 def configure(p: argparse.ArgumentParser) -> None:
+    """Add the arguments of ``supergame list`` to its parser.
+
+    The command takes what to list, plugins and JSON output.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's subparser.
+    """
     p.add_argument("what", nargs="*", metavar="WHAT", help=f"one or more of {', '.join(WHAT)} (default: all)")
     p.add_argument("--plugin", action="append", metavar="FILE", default=[],
                    help="Python file registering strategies or kinds (runs its code)")
@@ -88,6 +97,24 @@ def _text(doc: dict) -> str:
 
 
 def run(args) -> int:
+    """Print the strategies, learners, experiment kinds and demand models asked for, with their parameters.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line.
+
+    Returns
+    -------
+    int
+        The exit status (0).
+
+    Raises
+    ------
+    InputError
+        ``WHAT`` for a name that is not one of strategies, learners, kinds, models; ``plugins`` for a plugin
+        that cannot be loaded.
+    """
     load_plugins(args.plugin)
     for w in args.what:
         if w not in WHAT:

@@ -19,6 +19,15 @@ DESCRIPTION = (
 
 
 def configure(p: argparse.ArgumentParser) -> None:
+    """Add the arguments of ``supergame report`` to its parser.
+
+    The command takes the run folder, the bundle folder and plugins.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's subparser.
+    """
     p.add_argument("run_dir", metavar="RUN_DIR", help="a run folder made by supergame run")
     p.add_argument("--bundle", metavar="DIR", help="bundle folder to write (default RUN_DIR/report); outside every "
                    "other run folder")
@@ -28,6 +37,24 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
+    """Write the evidence bundle of a finished run folder from its store (nothing is recomputed) and print where.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line.
+
+    Returns
+    -------
+    int
+        The exit status (0).
+
+    Raises
+    ------
+    InputError
+        ``out`` when ``--out`` is given (the bundle goes to ``--bundle``); for a run folder that cannot be
+        read or is not finished, or a bundle folder that cannot be written.
+    """
 
     if args.out_given is not None:
         raise InputError("out", "names a run folder in every command; supergame report writes its bundle to "

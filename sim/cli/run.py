@@ -27,12 +27,30 @@ DESCRIPTION = (
 
 
 def add_plugin_option(p: argparse.ArgumentParser, what: str = "strategies or kinds") -> None:
-    """``--plugin FILE`` (repeatable), the same for every command that reads experiment files."""
+    """``--plugin FILE`` (repeatable), the same for every command that reads experiment files.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's subparser.
+    what : str
+        What the plugin registers, in the flag's help line.
+    """
     p.add_argument("--plugin", action="append", metavar="FILE", default=[],
                    help=f"Python file registering {what} (runs its code; repeatable)")
 
 
 def configure(p: argparse.ArgumentParser) -> None:
+    """Add the arguments of ``supergame run`` to its parser.
+
+    The command takes the experiment file, the run folder or the one to resume, the backend, the report, plugins
+    and output.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's subparser.
+    """
     p.add_argument("file", nargs="?", metavar="FILE", help="experiment file (TOML); optional with --resume")
     p.add_argument("--out", metavar="DIR", help="run folder to create (default runs/<name>-<time>); not with --resume")
     p.add_argument("--workers", metavar="N", help="worker processes (default: one per usable core)")
@@ -49,6 +67,25 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
+    """Run (or resume) an experiment file into a run folder and print its summary, the answer of a single cell first.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line.
+
+    Returns
+    -------
+    int
+        The exit status: 0 when cells finished, 1 when none did, 130 or 143 when interrupted or terminated
+        (what finished is kept and the command to resume is printed).
+
+    Raises
+    ------
+    InputError
+        ``FILE`` when neither a file nor ``--resume`` is given, ``--workers`` outside [1, 4096]; for a file,
+        run folder or plugin that cannot be read or validated.
+    """
 
     if not args.file and not args.resume:
         raise InputError("FILE", "give an experiment file, or --resume RUN_DIR to finish a run")

@@ -40,6 +40,15 @@ _MON_FLAGS = {"sigma": "sigma", "perception_error": "perception_error",
 
 
 def configure(p: argparse.ArgumentParser) -> None:
+    """Add the arguments of ``supergame simulate`` to its parser.
+
+    The command takes the experiment file and the flags that override its market, line-up, monitoring and run tables.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's subparser.
+    """
     p.add_argument("file", nargs="?", metavar="FILE", help="experiment file (kind = 'simulate')")
     add_market_flags(p)
     g = p.add_argument_group("agreement and line-up")
@@ -87,7 +96,27 @@ def _value(text: str):
 
 
 def parse_strategy_flag(text: str, k: int) -> dict:
-    """``name[:key=value,...]`` -> an experiment-file entry."""
+    """``name[:key=value,...]`` -> an experiment-file entry.
+
+    A value reads as true/false, an integer, a float, a list when it holds ``;`` (``collude=20;22``), or else text.
+
+    Parameters
+    ----------
+    text : str
+        One ``--strategy`` flag's value.
+    k : int
+        Its position among the ``--strategy`` flags, counted from 1 (named in errors).
+
+    Returns
+    -------
+    dict
+        ``{"strategy": name, key: value, ...}``, as a ``[[strategies]]`` entry of an experiment file.
+
+    Raises
+    ------
+    InputError
+        ``--strategy[k]`` for a part after the colon that is not ``KEY=VALUE``.
+    """
     name, _, rest = text.partition(":")
     entry = {"strategy": name.strip()}
     if rest.strip():
@@ -177,6 +206,23 @@ def _rename(exc: InputError, flags: dict) -> InputError:
 
 
 def run(args) -> int:
+    """Simulate the line-up of FILE and flags in memory and print (and plot) persistence against the baseline.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line.
+
+    Returns
+    -------
+    int
+        The exit status (0).
+
+    Raises
+    ------
+    InputError
+        For a file or flag that cannot be read or validated, naming the flag when a flag gave the value.
+    """
 
     doc, flags = _document(args)
     threads = check_threads(parse_number("workers", args.threads, integer=True), "--workers") if args.threads else 1

@@ -24,6 +24,16 @@ DESCRIPTION = (
 
 
 def configure(p: argparse.ArgumentParser) -> None:
+    """Add the arguments of ``supergame thresholds`` to its parser.
+
+    The command takes the experiment file, the flags for the market, the analysis (agreement, punishments,
+    discount factors, demand noise), the [any_punishment] and [enforcement] tables, figures and JSON output.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's subparser.
+    """
     p.add_argument("file", nargs="?", metavar="FILE", help="experiment file with a [market] table")
     add_market_flags(p)
     g = p.add_argument_group("analysis")
@@ -172,6 +182,23 @@ def _run_capacity(args, doc: dict, flags: set) -> int:
 
 
 def run(args) -> int:
+    """Compute the stage game and critical discount factors of the market of FILE and flags and print (and plot) them.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line.
+
+    Returns
+    -------
+    int
+        The exit status (0).
+
+    Raises
+    ------
+    InputError
+        For a file or flag that cannot be read or validated, naming the flag when a flag gave the value.
+    """
     doc, flags = _document(args)
     if is_capacity_market(doc.get("market")):
         return _run_capacity(args, doc, flags)

@@ -35,6 +35,15 @@ DESCRIPTION = (
 
 
 def configure(p: argparse.ArgumentParser) -> None:
+    """Add the arguments of ``supergame tournament`` to its parser.
+
+    The command takes the experiment file, the run folder, figures, workers and JSON output.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's subparser.
+    """
     p.add_argument("file", metavar="FILE", help="experiment file ([market], [[entrants]], [tournament], ...)")
     p.add_argument("--out", metavar="DIR", help="run into the run folder DIR (store, exports, manifest) and write its "
                                                 "evidence bundle DIR/report, as supergame run --report does")
@@ -89,6 +98,24 @@ def _into_folder(args, threads) -> tuple[object | None, list[str]]:
 
 
 def run(args) -> int:
+    """Play the tournament of FILE (in memory, or into a run folder with ``--out``) and print (and plot) its result.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line.
+
+    Returns
+    -------
+    int
+        The exit status (0).
+
+    Raises
+    ------
+    InputError
+        For a file that cannot be read or validated, ``--workers`` out of range, or ``--out`` or ``--plot``
+        naming something that is not a folder.
+    """
     threads = _threads(args)
     doc = _document(args.file)
     _check_dir(args.out, "out")

@@ -23,6 +23,15 @@ DESCRIPTION = (
 
 
 def configure(p: argparse.ArgumentParser) -> None:
+    """Add the arguments of ``supergame verify`` to its parser.
+
+    The command takes the run folder, the cells to re-run, the tolerance, plugins and JSON output.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The command's subparser.
+    """
     p.add_argument("run_dir", metavar="RUN_DIR", help="a run folder made by supergame run")
     p.add_argument("--sample", metavar="N",
                    help="cells to re-run, drawn with the store's digest as seed (default: all when 12 or fewer, "
@@ -35,6 +44,24 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
+    """Check a run folder (hashes, stored rows, exports, re-run cells) and print each check.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed command line.
+
+    Returns
+    -------
+    int
+        The exit status: 0 when everything checks out, 1 when a check failed.
+
+    Raises
+    ------
+    InputError
+        ``--sample`` below 0, ``--tolerance`` outside [0, 1), a ``--cells`` entry that is not a number or not a
+        cell, or a plugin that cannot be loaded.
+    """
 
     load_plugins(args.plugin)
     sample = parse_number("sample", args.sample, integer=True) if args.sample is not None else None

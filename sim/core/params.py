@@ -110,6 +110,17 @@ class Real(Constraint):
         return f"a number in {self._interval()}"
 
     def contains(self, x: float) -> bool:
+        """Whether ``x`` lies in the interval, its bounds included or not as ``closed`` says.
+
+        Parameters
+        ----------
+        x : float
+            A finite number (the caller has checked its type).
+
+        Returns
+        -------
+        bool
+        """
         if self.low is not None:
             if self.closed in ("both", "left"):
                 if x < self.low:
@@ -141,11 +152,27 @@ class Real(Constraint):
 
 
 class Interval(Real):
-    """Alias of :class:`Real` kept for readability in constraint tables."""
+    """Alias of :class:`Real` kept for readability in constraint tables.
+
+    Parameters
+    ----------
+    low, high : float or None
+        Bounds; None means unbounded on that side.
+    closed : {"both", "left", "right", "neither"}
+        Which bounds belong to the interval.
+    """
 
 
 class Integer(Constraint):
-    """An integer in ``[low, high]`` (None: unbounded)."""
+    """An integer in ``[low, high]`` (None: unbounded).
+
+    A float with no fractional part (``3.0``) is accepted as that integer; a boolean is refused.
+
+    Parameters
+    ----------
+    low, high : int or None
+        Smallest and largest allowed value, both included; None means unbounded on that side.
+    """
 
     def __init__(self, low: int | None = None, high: int | None = None):
         self.low, self.high = low, high
@@ -187,7 +214,13 @@ class Boolean(Constraint):
 
 
 class Options(Constraint):
-    """One of a fixed set of strings."""
+    """One of a fixed set of strings.
+
+    Parameters
+    ----------
+    *options : str
+        The allowed strings, in the order error messages list them.
+    """
 
     def __init__(self, *options: str):
         self.options = tuple(options)
@@ -206,6 +239,13 @@ class PerFirm(Constraint):
 
     The number of firms is only known when the whole object is validated, so ``check`` takes it as
     an argument (``n``). Values are checked elementwise against ``element``.
+
+    Parameters
+    ----------
+    element : Real
+        The constraint every value must meet.
+    broadcast : bool
+        Whether a single number is accepted and repeated for every firm.
     """
 
     def __init__(self, element: Real, broadcast: bool = True):
@@ -216,6 +256,28 @@ class PerFirm(Constraint):
         return f"one value per firm, each {self.element.describe()}"
 
     def check(self, key: str, value: Any, n: int | None = None) -> np.ndarray:
+        """The values as a float array with one entry per firm, or an :class:`InputError` naming ``key``.
+
+        Parameters
+        ----------
+        key : str
+            Key path of the value, for the error message (e.g. ``market.cost``).
+        value : float or sequence of float or ndarray
+            One number (broadcast when allowed) or one number per firm.
+        n : int or None
+            The number of firms; None accepts a list of any length but cannot broadcast a single number.
+
+        Returns
+        -------
+        ndarray of shape (n_firms,)
+            The checked values as floats.
+
+        Raises
+        ------
+        InputError
+            ``key`` for a value that is not a number or list of numbers, a list of the wrong length, a single
+            number where a list is required, or an element outside ``element`` (named by its 1-based position).
+        """
         if isinstance(value, numbers.Real) and not isinstance(value, bool):
             if not self.broadcast:
                 raise InputError(key, f"must be a list of {n} values, got {_fmt(value)}")
@@ -243,7 +305,13 @@ class PerFirm(Constraint):
 
 
 class optional(Constraint):
-    """Wraps a constraint so that ``None`` is also accepted."""
+    """Wraps a constraint so that ``None`` is also accepted.
+
+    Parameters
+    ----------
+    inner : Constraint
+        The constraint a value other than None must meet.
+    """
 
     def __init__(self, inner: Constraint):
         self.inner = inner
@@ -252,6 +320,27 @@ class optional(Constraint):
         return self.inner.describe() + " or nothing"
 
     def check(self, key: str, value: Any, *args: Any) -> Any:
+        """None as None; any other value as ``inner`` normalises it.
+
+        Parameters
+        ----------
+        key : str
+            Key path of the value, for the error message.
+        value : object
+            The value as given, or None.
+        *args
+            Passed on to the inner constraint's ``check`` (the number of firms for :class:`PerFirm`).
+
+        Returns
+        -------
+        object
+            None, or the value normalised by ``inner``.
+
+        Raises
+        ------
+        InputError
+            When ``value`` is not None and ``inner`` refuses it.
+        """
         if value is None:
             return None
         return self.inner.check(key, value, *args)

@@ -16,7 +16,14 @@ COMPUTING_PACKAGES = ("python", "supergame", "numpy", "numba", "llvmlite", "scip
 
 
 def package_versions() -> dict:
+    """The versions of Python and of the packages that compute, store or draw results.
 
+    Returns
+    -------
+    dict
+        Package name -> version string (``"python"`` for the interpreter); None for a package that
+        is not installed.
+    """
     out = {"python": platform.python_version()}
     for name in ("supergame", "numpy", "numba", "llvmlite", "scipy", "matplotlib", "tqdm", "pandas", "pyarrow",
                  "dask", "distributed"):
@@ -45,7 +52,14 @@ def code_digest() -> str:
 
 
 def platform_info() -> dict:
-    """The operating system, machine and number of CPUs."""
+    """The operating system, machine and number of CPUs.
+
+    Returns
+    -------
+    dict
+        ``system``, ``release``, ``machine``, ``platform`` and ``python_implementation`` (str) and
+        ``cpus`` (int, or None when the count is unknown).
+    """
     return {"system": platform.system(), "release": platform.release(), "machine": platform.machine(),
             "platform": platform.platform(), "python_implementation": platform.python_implementation(),
             "cpus": os.cpu_count()}

@@ -66,7 +66,18 @@ def _rotl(x, k):
 
 @njit(cache=True)
 def next_u64(s):
-    """Advance state ``s`` (uint64 array of length 4, modified in place) and return 64 random bits."""
+    """Advance state ``s`` (uint64 array of length 4, modified in place) and return 64 random bits.
+
+    Parameters
+    ----------
+    s : ndarray of shape (4,), dtype uint64
+        One replication's generator state, advanced in place.
+
+    Returns
+    -------
+    uint64
+        The next output of xoshiro256**.
+    """
     s0 = s[0]
     s1 = s[1]
     s2 = s[2]
@@ -88,13 +99,35 @@ def next_u64(s):
 
 @njit(cache=True)
 def next_double(s):
-    """Uniform on [0, 1) with 53 random bits."""
+    """Uniform on [0, 1) with 53 random bits (the top 53 bits of one 64-bit draw).
+
+    Parameters
+    ----------
+    s : ndarray of shape (4,), dtype uint64
+        One replication's generator state, advanced in place.
+
+    Returns
+    -------
+    float
+        A multiple of 2**-53 in [0, 1).
+    """
     return np.float64(next_u64(s) >> np.uint64(11)) * _INV53
 
 
 @njit(cache=True)
 def next_normal(s):
-    """Standard normal by Box-Muller (consumes exactly two uniforms)."""
+    """Standard normal by Box-Muller (consumes exactly two uniforms).
+
+    Parameters
+    ----------
+    s : ndarray of shape (4,), dtype uint64
+        One replication's generator state, advanced in place.
+
+    Returns
+    -------
+    float
+        A draw from N(0, 1).
+    """
     u1 = 1.0 - next_double(s)  # in (0, 1]
     u2 = next_double(s)
     return math.sqrt(-2.0 * math.log(u1)) * math.cos(_TWO_PI * u2)
@@ -141,7 +174,18 @@ _MASK52 = 0x000FFFFFFFFFFFFF
 @njit(cache=True, inline="always")
 def next_normal_zig(s):
     """Standard normal by the 256-layer ziggurat (see the module notes); the stream advances by a
-    variable number of draws (one in about 99 % of calls)."""
+    variable number of draws (one in about 99 % of calls).
+
+    Parameters
+    ----------
+    s : ndarray of shape (4,), dtype uint64
+        One replication's generator state, advanced in place.
+
+    Returns
+    -------
+    float
+        A draw from N(0, 1).
+    """
     while True:
         r = next_u64(s)
         idx = int(r & np.uint64(0xFF))
@@ -167,12 +211,31 @@ def next_normal_zig(s):
 @njit(cache=True)
 def next_below(s, n):
     """Uniform integer in ``0 .. n-1`` (multiply-shift on 53 bits; the bias is below 2**-40 for the
-    action counts used here)."""
+    action counts used here).
+
+    Parameters
+    ----------
+    s : ndarray of shape (4,), dtype uint64
+        One replication's generator state, advanced in place.
+    n : int
+        Number of outcomes (positive).
+
+    Returns
+    -------
+    int
+        A draw in ``0 .. n-1``; consumes one uniform.
+    """
     return int(next_double(s) * n)
 
 
 class ReferenceStream:
-    """Pure-Python twin of the kernel generator: the same draws, in the same order."""
+    """Pure-Python twin of the kernel generator: the same draws, in the same order.
+
+    Parameters
+    ----------
+    state : array_like of shape (4,)
+        A replication's generator state (a row of :func:`stream_states`); it is copied, not shared.
+    """
 
     def __init__(self, state):
         self.s = [int(x) for x in np.asarray(state, dtype=np.uint64)]
@@ -182,6 +245,13 @@ class ReferenceStream:
         return ((x << k) | (x >> (64 - k))) & _MASK
 
     def next_u64(self) -> int:
+        """64 random bits, as :func:`next_u64` draws them.
+
+        Returns
+        -------
+        int
+            An integer in ``0 .. 2**64 - 1``.
+        """
         s0, s1, s2, s3 = self.s
         result = (self._rotl((s1 * 5) & _MASK, 7) * 9) & _MASK
         t = (s1 << 17) & _MASK
@@ -195,17 +265,46 @@ class ReferenceStream:
         return result
 
     def next_double(self) -> float:
+        """Uniform on [0, 1) with 53 random bits, as :func:`next_double` draws it.
+
+        Returns
+        -------
+        float
+        """
         return float(self.next_u64() >> 11) * _INV53
 
     def next_normal(self) -> float:
+        """Standard normal by Box-Muller, as :func:`next_normal` draws it (two uniforms).
+
+        Returns
+        -------
+        float
+        """
         u1 = 1.0 - self.next_double()
         u2 = self.next_double()
         return math.sqrt(-2.0 * math.log(u1)) * math.cos(_TWO_PI * u2)
 
     def next_below(self, n: int) -> int:
+        """Uniform integer in ``0 .. n-1``, as :func:`next_below` draws it.
+
+        Parameters
+        ----------
+        n : int
+            Number of outcomes (positive).
+
+        Returns
+        -------
+        int
+        """
         return int(self.next_double() * n)
 
     def next_normal_zig(self) -> float:
+        """Standard normal by the ziggurat, as :func:`next_normal_zig` draws it.
+
+        Returns
+        -------
+        float
+        """
         while True:
             r = self.next_u64()
             idx = r & 0xFF

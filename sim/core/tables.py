@@ -25,6 +25,11 @@ def refuse_unknown(table, name: str, allowed: Iterable[str]) -> dict:
     allowed : iterable of str
         The keys the reader knows, in the order it lists them.
 
+    Returns
+    -------
+    dict
+        ``table`` itself, unchanged.
+
     Raises
     ------
     InputError

@@ -7,7 +7,23 @@ from collections.abc import Sequence
 
 
 def fmt_num(x, digits: int = 4, missing: str = "-") -> str:
-    """A number for a table: ``missing`` for None/nan, fixed or scientific as fits."""
+    """A number for a table: ``missing`` for None/nan, fixed or scientific as fits.
+
+    Parameters
+    ----------
+    x : object
+        The value: None, a bool (written yes/no), an int (written in full), anything ``float`` takes, or
+        any other object (written by ``str``).
+    digits : int
+        Decimal places in fixed notation, significant digits in scientific notation (used for magnitudes
+        of a million and over or below ``10**-digits``).
+    missing : str
+        What None and nan are written as.
+
+    Returns
+    -------
+    str
+    """
     if x is None:
         return missing
     if isinstance(x, bool):
@@ -28,7 +44,23 @@ def fmt_num(x, digits: int = 4, missing: str = "-") -> str:
 
 
 def table(headers: Sequence[str], rows: Sequence[Sequence], align: str | None = None) -> str:
-    """Aligned text table. ``align``: one character per column, 'l' or 'r' (default: first l, rest r)."""
+    """Aligned text table with a dashed line under the headers; cells that are not strings go through :func:`fmt_num`.
+
+    Parameters
+    ----------
+    headers : sequence of str
+        Column titles.
+    rows : sequence of sequence
+        One sequence of cells per row, as many as ``headers``.
+    align : str or None
+        One character per column, ``"l"`` (left) or ``"r"`` (right); None aligns the first column left and the
+        rest right.
+
+    Returns
+    -------
+    str
+        The lines of the table joined by newlines, trailing blanks removed.
+    """
     cells = [[str(h) for h in headers]] + [[c if isinstance(c, str) else fmt_num(c) for c in r] for r in rows]
     widths = [max(len(r[j]) for r in cells) for j in range(len(headers))]
     align = align or ("l" + "r" * (len(headers) - 1))

@@ -23,6 +23,22 @@ def read_toml(path) -> dict:
 
     The syntax error message keeps tomllib's line and column, for example
     ``demo.toml: TOML syntax error: Expected '=' after a key in a key/value pair (at line 4, column 7)``.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The experiment file; it also names the file in error messages.
+
+    Returns
+    -------
+    dict
+        The file's tables and values as tomllib reads them.
+
+    Raises
+    ------
+    InputError
+        ``path`` when the file is missing, a directory, unreadable, larger than :data:`MAX_BYTES`,
+        not UTF-8 text, or not valid TOML.
     """
     p = Path(path)
     try:
@@ -66,6 +82,18 @@ def parse_toml(text: str, key: str = "experiment") -> dict:
 
 
 def file_sha256(path) -> str:
+    """SHA-256 of a file's bytes, read in chunks of one MiB.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The file.
+
+    Returns
+    -------
+    str
+        The digest as 64 hexadecimal digits.
+    """
     h = hashlib.sha256()
     with open(path, "rb") as f:
         for chunk in iter(lambda: f.read(1 << 20), b""):

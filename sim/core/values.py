@@ -20,7 +20,25 @@ _RANGE_KEYS = ("start", "stop", "num", "step", "log", "values", "labels")
 
 
 def canonical_path(text: str, key: str = "sweep") -> str:
-    """``strategies[1].length`` or ``strategies.1.length`` -> ``strategies.1.length``."""
+    """``strategies[1].length`` or ``strategies.1.length`` -> ``strategies.1.length``.
+
+    Parameters
+    ----------
+    text : str
+        A parameter path as written in an experiment file or on the command line.
+    key : str
+        Key path of ``text`` in error messages.
+
+    Returns
+    -------
+    str
+        The path with list positions written as dotted segments.
+
+    Raises
+    ------
+    InputError
+        ``key`` when ``text`` is not a non-empty string or has an empty segment (``run..delta``).
+    """
     if not isinstance(text, str) or not text.strip():
         raise InputError(key, f"a parameter path must be a non-empty string like 'run.delta', got {text!r}")
     t = re.sub(r"\[(\d+)\]", r".\1", text.strip())
@@ -32,7 +50,16 @@ def canonical_path(text: str, key: str = "sweep") -> str:
 
 
 def is_real(v: Any) -> bool:
-    """Whether ``v`` is a real number (booleans excluded)."""
+    """Whether ``v`` is a real number (booleans excluded).
+
+    Parameters
+    ----------
+    v : object
+
+    Returns
+    -------
+    bool
+    """
     return isinstance(v, numbers.Real) and not isinstance(v, bool)
 
 
@@ -46,7 +73,18 @@ def _fmt_number(v) -> str:
 
 
 def value_label(value: Any) -> str:
-    """A short readable label of a swept value (numbers as written, tables as ``name(key=value)``)."""
+    """A short readable label of a swept value (numbers as written, tables as ``name(key=value)``).
+
+    Parameters
+    ----------
+    value : object
+        A value of an experiment file: a string, number, boolean, table (a strategy table is written as
+        its name with its parameters, its seats left out) or list.
+
+    Returns
+    -------
+    str
+    """
     if isinstance(value, str):
         return value
     if is_real(value) or isinstance(value, bool):
@@ -62,8 +100,18 @@ def value_label(value: Any) -> str:
 
 
 def canonical_json(value: Any) -> str:
-    """Deterministic JSON of plain data (sorted keys, shortest float repr, nan as null)."""
+    """Deterministic JSON of plain data (sorted keys, shortest float repr, nan as null).
 
+    Parameters
+    ----------
+    value : object
+        Plain data (numpy values are converted by :func:`sim.core.jsonutil.jsonable`).
+
+    Returns
+    -------
+    str
+        Compact JSON with no spaces, the same text for equal data.
+    """
     return json.dumps(jsonable(value), sort_keys=True, separators=(",", ":"), allow_nan=False)
 
 
@@ -191,8 +239,19 @@ def _range_values(key: str, spec: dict, max_values: int = MAX_VALUES) -> tuple[l
 
 
 def is_range_spec(v: dict) -> bool:
-    """A range table (start/stop/num/step/log) or a values table -- not a nested path such as
-    ``[sweep.strategies.1] start = [0, 5]`` (a strategy parameter named ``start``)."""
+    """Whether a table is a range table (start/stop/num/step/log) or a values table -- not a nested path such as
+    ``[sweep.strategies.1] start = [0, 5]`` (a strategy parameter named ``start``).
+
+    Parameters
+    ----------
+    v : dict
+        A table found under ``[sweep]`` (or another table that takes ranges).
+
+    Returns
+    -------
+    bool
+        True when ``v`` has a list under ``values``, or has ``start`` or ``stop`` and neither is a list or table.
+    """
     if "values" in v and isinstance(v["values"], list):
         return True
     ends = [v[k] for k in ("start", "stop") if k in v]

@@ -14,7 +14,7 @@ from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.render import Drawn, pyplot
 from sim.theory.any_punishment import AnyPunishmentResult
 
-__all__ = ["bracket", "console_lines", "draw_payoff_set", "figure", "scheme_row", "to_json"]
+__all__ = ["bracket", "console_lines", "draw_payoff_set", "figure", "scheme_row", "slice_line", "to_json"]
 
 _VERDICTS = {
     "sustained": "the agreement is an equilibrium outcome (certified by constructed equilibria)",
@@ -72,6 +72,34 @@ def _accuracy(ap: AnyPunishmentResult) -> str:
             f"bisection width {fmt_num(ap.tolerance)}")
 
 
+def _has_slice(ap: AnyPunishmentResult) -> bool:
+    return ap.n_firms >= 3 and bool(np.any(np.isfinite(np.asarray(ap.symmetric, float))))
+
+
+def slice_line(ap: AnyPunishmentResult) -> str | None:
+    """The console line of the symmetric slice (three firms or more): the equal profits of every firm that
+    equilibria sustain at the reported discount factor.
+
+    Parameters
+    ----------
+    ap : AnyPunishmentResult
+
+    Returns
+    -------
+    str or None
+        None with two firms, or when no set was computed.
+    """
+    if not _has_slice(ap):
+        return None
+    lo_out, lo_in, hi_in, hi_out = (float(x) for x in ap.symmetric)
+    if math.isfinite(lo_in) and math.isfinite(hi_in):
+        inner = f"constructed equilibria give every firm any equal profit from {fmt_num(lo_in)} to {fmt_num(hi_in)}"
+    else:
+        inner = "no constructed equilibrium gives every firm the same profit"
+    return (f"  symmetric slice (every firm earning the same profit per period): {inner}; no equilibrium does "
+            f"below {fmt_num(lo_out)} or above {fmt_num(hi_out)} (outer set)")
+
+
 def console_lines(ap: AnyPunishmentResult, quantity_setting: bool) -> list[str]:
     """The terminal report's lines of the any-punishment part.
 
@@ -99,6 +127,8 @@ def console_lines(ap: AnyPunishmentResult, quantity_setting: bool) -> list[str]:
                           for i in range(ap.n_firms))
         lines.append(f"  worst equilibrium payoff per period: {worst} (minmax "
                      f"{', '.join(fmt_num(x) for x in ap.minmax)})")
+        if slice_line(ap) is not None:
+            lines.append(slice_line(ap))
         for pc in ap.penal_codes:
             path = ", then ".join("(" + ", ".join(fmt_num(x) for x in row) + ")" for row in pc.actions)
             lines.append(f"  optimal penal code of firm {pc.firm + 1}, first periods' {what}: {path}")
@@ -166,11 +196,26 @@ def _zoom(ax, ap: AnyPunishmentResult) -> None:
     ax.set_ylim(low[1] - pad, high[1] + pad)
 
 
+def _draw_slice(ax, ap: AnyPunishmentResult) -> None:
+    """The symmetric slice on the diagonal of the projection: ``(t, ..., t)`` projects on ``(t, t)``."""
+    if not _has_slice(ap):
+        return
+    lo_out, lo_in, hi_in, hi_out = (float(x) for x in ap.symmetric)
+    if math.isfinite(lo_out) and math.isfinite(hi_out):
+        # ticks across the diagonal (two spokes turned by 45 degrees), long enough to show past the point markers
+        # that often sit at the slice's ends (the agreement, the stick-and-carrot value)
+        ax.plot([lo_out, hi_out], [lo_out, hi_out], color=color(1), lw=1.0, ls=":", marker=(2, 2, 45), ms=16,
+                mew=2.0, zorder=4.5, label="symmetric slice, outer bounds (all firms equal)")
+    if math.isfinite(lo_in) and math.isfinite(hi_in):
+        ax.plot([lo_in, hi_in], [lo_in, hi_in], color=color(1), lw=3.0, solid_capstyle="butt", zorder=4,
+                label="symmetric slice, constructed equilibria")
+
+
 def figure(ap: AnyPunishmentResult, currency: str | None = None, period: str | None = None) -> Drawn | None:
     """The equilibrium payoff set at the reported discount factor, with the marked payoffs.
 
     Two firms: the inner and outer sets and the feasible payoffs. More firms: their projection on the profits of
-    firms 1 and 2.
+    firms 1 and 2, with the symmetric slice of the full set (equal profits of every firm) on its diagonal.
 
     Parameters
     ----------
@@ -188,6 +233,8 @@ def figure(ap: AnyPunishmentResult, currency: str | None = None, period: str | N
     plt = pyplot()
     fig, ax = plt.subplots(figsize=(PAGE_WIDTH, PAGE_WIDTH * 0.95), layout="constrained")
     draw_payoff_set(ax, ap, currency, period)
+    # here rather than in draw_payoff_set: the assessment draws its slices in a panel of their own
+    _draw_slice(ax, ap)
     proj = "" if ap.n_firms == 2 else f" (projection on firms 1 and 2 of {ap.n_firms})"
     ax.set_title(f"Equilibrium payoffs at delta {fmt_num(ap.delta)}, {_grid(ap)} action grid"
                  + (f"\n{proj.strip()}" if proj else ""), fontsize=FONT + 1)
@@ -199,6 +246,11 @@ def figure(ap: AnyPunishmentResult, currency: str | None = None, period: str | N
                f"{bracket(ap)}; grim trigger needs {fmt_num(ap.grim)} and the best stick and carrot "
                f"{fmt_num(ap.stick_carrot)} on the same grid. The optimal penal codes (Abreu, 1988) start at each "
                f"firm's worst equilibrium payoff.")
+    if _has_slice(ap):
+        lo_out, lo_in, hi_in, hi_out = (fmt_num(float(x)) for x in ap.symmetric)
+        caption += (f" On the diagonal, the symmetric slice of the full {ap.n_firms}-firm set (every firm earning the "
+                    f"same profit): constructed equilibria from {lo_in} to {hi_in}, none outside {lo_out} to "
+                    f"{hi_out}.")
     return Drawn("payoff-set", fig, caption)
 
 

@@ -52,7 +52,7 @@ from sim.core.files import REPLACED, STAGED, clear_leftovers
 from sim.core.provenance import package_versions, platform_info
 from sim.core.text import CAUTION, fmt_num
 from sim.evidence.render import figure_bytes, pyplot
-from sim.runner.store import csv_text
+from sim.runner.tabular import csv_text
 
 __all__ = ["Bundle", "Estimate", "clear_leftovers", "holds_bundle", "latex_table", "markdown_table"]
 

@@ -18,10 +18,12 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
+from sim.evidence.catalogue_alternating import ALTERNATING_ENTRIES, ALTERNATING_PARAMETERS
 from sim.evidence.catalogue_assess import ASSESS_ENTRIES
 from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
 from sim.evidence.catalogue_contact_play import CONTACT_PLAY_ENTRIES
 from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
+from sim.evidence.catalogue_slice import REFINE_ENTRIES, SLICE_ENTRIES
 from sim.evidence.catalogue_state_play import STATE_PLAY_ENTRIES
 
 __all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "money"]
@@ -466,6 +468,11 @@ ENTRIES.update({k: Entry(*v) for k, v in ENFORCED_ENTRIES.items()})
 ENTRIES.update({k: Entry(*v) for k, v in STATE_PLAY_ENTRIES.items()})
 # the same firms simulated in several markets in contact (sim.evidence.catalogue_contact_play)
 ENTRIES.update({k: Entry(*v) for k, v in CONTACT_PLAY_ENTRIES.items()})
+# alternating price setting by learners: fixed price pairs against cycles (sim.evidence.catalogue_alternating)
+ENTRIES.update({k: Entry(*v) for k, v in ALTERNATING_ENTRIES.items()})
+# the symmetric slice of the any-punishment set, three firms or more (sim.evidence.catalogue_slice)
+ENTRIES.update({k: Entry(*v) for k, v in SLICE_ENTRIES.items()})
+ENTRIES.update({k: Entry(*v) for k, v in REFINE_ENTRIES.items()})
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)
 PARAMETERS: dict[str, Entry] = {
@@ -509,6 +516,7 @@ PARAMETERS: dict[str, Entry] = {
 }
 
 PARAMETERS.update({k: Entry(*v) for k, v in CONDITION_PARAMETERS.items()})
+PARAMETERS.update({k: Entry(*v) for k, v in ALTERNATING_PARAMETERS.items()})
 
 _SCHEME_WORDS = {"grim": "grim trigger", "finite": "Nash reversion for T periods", "stick_carrot": "stick and carrot"}
 

@@ -76,6 +76,13 @@ class SweepData:
         self.groups = tuple(tuple(g) for g in self.groups) + tuple(
             (p.path,) for p in self.parameters if p.path not in known)
         self.lead = {q: g[0] for g in self.groups for q in g}
+        # label -> position per path (the first position, as ``tuple.index`` gives): a lookup per cell stays O(1)
+        self.position = {}
+        for p in self.parameters:
+            pos: dict = {}
+            for i, lab in enumerate(p.labels):
+                pos.setdefault(lab, i)
+            self.position[p.path] = pos
         self.index = {}
         for r in self.rows:
             if r.status != "ok":
@@ -89,10 +96,10 @@ class SweepData:
             path = next((q for q in g if q in labels), None)
             if path is None:
                 return None
-            try:
-                key.append(self.by_path[path].labels.index(labels[path]))
-            except ValueError:
+            i = self.position[path].get(labels[path])
+            if i is None:
                 return None
+            key.append(i)
         return tuple(key)
 
     def value(self, fixed: dict, metric: str) -> float:

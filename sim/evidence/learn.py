@@ -13,6 +13,7 @@ import numpy as np
 
 from sim.core.text import CAUTION, fmt_num, table
 from sim.evidence.answers import learn_headline
+from sim.evidence.learn_alternating import alternating_figure, alternating_lines
 from sim.evidence.learn_automata import automaton_lines
 from sim.evidence.learn_event import event_figure, event_lines
 from sim.evidence.render import Drawn, Renderer, pyplot
@@ -217,7 +218,8 @@ def console(res: LearnResult) -> str:
     -------
     str
     """
-    lines = [learn_headline(res), "", *_setup_lines(res)] + _limit_lines(res) + _impulse_lines(res)
+    moves = alternating_lines(res) or _impulse_lines(res)  # alternating moves have no impulse response
+    lines = [learn_headline(res), "", *_setup_lines(res)] + _limit_lines(res) + moves
     lines += automaton_lines(res)
     lines += event_lines(res)
     lines += ["", CAUTION]
@@ -339,8 +341,9 @@ def figures(res: LearnResult) -> list[Drawn]:
     list of Drawn
         ``impulse_response`` (when a response was recorded), ``profit_gain_histogram``, ``limit_prices_heatmap``.
     """
-    out = [_impulse_figure(res)] if res.summary["impulse_response"]["prices"]["mean"] else []
-    out += [_histogram_figure(res), _heatmap_figure(res)]
+    alt = alternating_figure(res)
+    out = [_impulse_figure(res)] if res.summary["impulse_response"]["prices"]["mean"] and alt is None else []
+    out += [_histogram_figure(res), _heatmap_figure(res)] + ([alt] if alt is not None else [])
     after = event_figure(res)
     return out if after is None else [*out, after]
 

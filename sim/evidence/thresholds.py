@@ -8,6 +8,7 @@ import numpy as np
 from sim.core.text import CAUTION, fmt_num, table
 from sim.evidence import any_punishment as anyp
 from sim.evidence.answers import thresholds_headline
+from sim.evidence.refinement import refinement_figure, refinement_lines
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.thresholds_parts import part_figures, part_json, part_lines
 from sim.theory.analysis import ThresholdsResult
@@ -90,6 +91,7 @@ def _threshold_lines(res: ThresholdsResult) -> list[str]:
         lines.append(f"  lowest threshold: {_scheme_name(best['scheme'], best['T'])}, {fmt_num(best['market'])}")
     if res.any_punishment is not None:
         lines += anyp.console_lines(res.any_punishment, res.products["quantity_setting"])
+        lines += refinement_lines(res.any_punishment)
     return lines
 
 
@@ -226,8 +228,8 @@ def figures(res: ThresholdsResult) -> list[Drawn]:
                                     "is sustainable at a discount factor at or above every firm's bar; a missing "
                                     "bar means the firm cannot be held below one.")]
     if res.any_punishment is not None:
-        drawn = anyp.figure(res.any_punishment)
-        out += [drawn] if drawn is not None else []
+        for drawn in (anyp.figure(res.any_punishment), refinement_figure(res.any_punishment)):
+            out += [drawn] if drawn is not None else []
     return out + part_figures(res)
 
 

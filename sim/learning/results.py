@@ -294,7 +294,11 @@ class LearningResult:
             Limit outcomes and impulse responses are over converged sessions; when none converged, over all
             sessions (``over`` says which). Means come as ``{mean, se, low, high, n}``, shares as ``{share, low,
             high, count, n}``; per-firm entries are lists of length n_firms; ``impulse_response.prices`` holds
-            ``mean``, ``low`` and ``high``, each a list of T + 2 rows of n_firms values.
+            ``mean``, ``low`` and ``high``, each a list of T + 2 rows of n_firms values. Alternating sessions
+            (``settings["timing"] == "alternating"``) add ``alternating``: the shares of sessions at a fixed price
+            pair (``fixed_price``, ``fixed_above_nash``, ``fixed_collusive``) and in a cycle (``cycle``), the
+            ``cycle_length`` over cycling sessions and its distribution ``cycle_lengths``, and the profit gain of
+            each group; their impulse-response entries are nan.
         """
         if self._summary:
             return self._summary
@@ -348,6 +352,11 @@ class LearningResult:
         if lu.has_automata and self.triggers is not None:
             # why a learner facing an automaton ends where it does: the automaton's punishments during learning
             out["automata"] = trigger_summary(lu, self.triggers, self.punishing_at_end, self.periods, sel, lvl)
+        if self.settings.get("timing") == "alternating":
+            out["alternating"] = _alternating_summary(self, sel, lvl)
+            out["limit"] = {"method": "exact",
+                            "what": "the cycle of greedy play under alternating moves from each session's final "
+                                    "state, found exactly (Klein, 2021); no impulse response is computed"}
         if self.event is not None:
             ev = self.event
             out["event"] = event_summary(ev["event"], ev["path"], ev["settle"], self.converged, self.limit_prices,
@@ -425,6 +434,33 @@ class LearningResult:
         if sessions:
             out["per_session"] = self.per_session()
         return out
+
+
+def _alternating_summary(res: LearningResult, sel: np.ndarray, level: float) -> dict:
+    """Where alternating sessions end (Klein, 2021): a fixed price pair, above the static-Nash price or at the
+    collusive one, or a cycle (Edgeworth-cycle-like; Maskin and Tirole, 1988), over the sessions ``sel``."""
+    lu = res.lineup
+    period = res.cycle_length[sel]
+    fixed = period == 1
+    tol = res.settings["near"] * np.abs(lu.collusive_prices - lu.nash_prices)
+    above = np.all(res.limit_prices[sel] > lu.nash_prices + tol + 1e-12, axis=1)
+    k = int(sel.sum())
+    pg = res.profit_gain[sel]
+    lengths, counts = np.unique(period[~fixed], return_counts=True)
+    return {
+        "timing": "alternating",
+        "fixed_price": _share_ci(int(fixed.sum()), k, level),
+        "fixed_above_nash": _share_ci(int((fixed & above).sum()), k, level),
+        "fixed_collusive": _share_ci(int((fixed & res.near_collusive[sel]).sum()), k, level),
+        "cycle": _share_ci(int((~fixed).sum()), k, level),
+        "cycle_length": _mean_ci(period[~fixed], level),
+        "cycle_lengths": {str(int(a)): int(c) for a, c in zip(lengths, counts)},
+        "profit_gain_fixed": _mean_ci(pg[fixed], level),
+        "profit_gain_cycle": _mean_ci(pg[~fixed], level),
+        "what": ("two Q-learners set prices in turn, each price held for two periods (Klein, 2021); a session "
+                 "ends at a fixed price pair when greedy play from its final state repeats the same two prices "
+                 "every period, and in a cycle otherwise (cycle length: periods until the price pair repeats)"),
+    }
 
 
 def _stack_ci(x: np.ndarray, level: float = 0.95) -> dict:

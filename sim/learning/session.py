@@ -20,6 +20,10 @@ tat, forgiving tit for tat, an opportunist...). Automata that act at random draw
 stream in a fixed order; their line-ups get a simulated, seeded *estimate* of steps 3 and 4 instead
 of the exact analysis, flagged as such in every result (see "Limit analysis" below).
 
+With ``timing = "alternating"`` two Q-learners set their prices in turn instead, each price held for two periods
+(Klein, 2021, RAND Journal of Economics 52(3); :mod:`sim.learning.alternating`): steps 1 to 3 as above on that
+protocol, with the cycle of greedy play classified as a fixed price pair or a cycle, and no impulse response.
+
 Many sessions run in parallel, each with its own random stream from
 ``sim.core.rng.stream_states(seed, (cell,), session, session + 1)``, so results do not depend on the
 number of workers. Layers: :func:`learn` (validated public function) -> :func:`_run_sessions`
@@ -65,6 +69,13 @@ from sim.core.errors import InputError
 from sim.core.parallel import usable_cores
 from sim.core.params import Real
 from sim.core.rng import stream_states
+from sim.learning.alternating import (
+    AlternatingState,
+    alternating_limit,
+    alternating_start,
+    check_alternating,
+    run_alternating,
+)
 from sim.learning.events import Event, adapt_saved, check_event, run_tracked
 from sim.learning.inputs import STATUS_CONVERGED, DeviationInputs, LimitOutputs, SessionState
 from sim.learning.lineup import Lineup, available_memory, compile_lineup
@@ -81,7 +92,7 @@ from sim.learning.saved import SavedLearners, check_start, describe_layout
 from sim.learning.tables import RUN_CONSTRAINTS
 from sim.learning.twin import reference_session as _reference
 
-__all__ = ["kernel_session", "learn", "reference_session"]
+__all__ = ["alternating_state", "kernel_session", "learn", "reference_session"]
 
 
 def _validate_run(**values) -> dict:
@@ -93,7 +104,7 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
           response_periods: int = 15, near: float = 0.1, workers: int | None = None,
           progress: bool | None = None, cell: int = 0, confidence: float = 0.95,
           limit_periods: int = LIMIT_PERIODS, start: SavedLearners | None = None,
-          keep: bool = False, event: Event | None = None) -> LearningResult:
+          keep: bool = False, event: Event | None = None, timing: str = "simultaneous") -> LearningResult:
     """Run independent learning sessions and analyse what the learners converged to.
 
     Parameters
@@ -146,6 +157,11 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         With ``start``: the saved sessions go on after this event (a changed market, or an entrant as the last
         seat; see :mod:`sim.learning.events`): the convergence counter is reset, ``max_periods`` counts the periods
         after the event, and the prices of the first ``event.periods`` periods are recorded.
+    timing : {"simultaneous", "alternating"}
+        Move timing (:data:`sim.learning.alternating.TIMINGS`): every firm sets its price every period (Calvano et
+        al., 2020), or two Q-learners set theirs in turn, each price held for two periods (Klein, 2021;
+        :mod:`sim.learning.alternating`). Alternating sessions have no impulse response (its entries are nan) and
+        cannot be saved, continued or followed by an event.
 
     Returns
     -------
@@ -155,7 +171,7 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     """
     run = _validate_run(sessions=sessions, seed=seed, convergence=convergence, max_periods=max_periods,
                         deviator=deviator, response_periods=response_periods, near=near, workers=workers,
-                        cell=cell, confidence=confidence, limit_periods=limit_periods)
+                        cell=cell, confidence=confidence, limit_periods=limit_periods, timing=timing)
     n_workers = run["workers"] or usable_cores()
     n_workers = min(n_workers, run["sessions"])
     lineup = compile_lineup(market, learners, workers=n_workers, random_automata="estimate")
@@ -163,6 +179,10 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         raise InputError("deviator", f"must be a firm of the market (0 to {lineup.n_seats - 1}), got {run['deviator']}")
     dev_index = _deviation_index(lineup, run["deviator"], deviation)
     settings = {**run, "workers": n_workers, "deviation": deviation}
+    if settings.pop("timing") == "alternating":
+        # the key is written only where it changes the protocol: simultaneous results stay as they were
+        check_alternating(lineup, start, keep, event)
+        return _run_alternating(lineup, {**settings, "timing": "alternating"}, progress)
     market_doc = market.to_dict() if hasattr(market, "to_dict") else None
     what = None
     if start is not None and event is not None:
@@ -367,6 +387,60 @@ def _assemble(lineup: Lineup, settings: dict, buf: _Buffers, elapsed: float, sav
         deviation_pays=info[:, 4], returned=info[:, 5], return_periods=info[:, 6], elapsed=elapsed, saved=saved,
         triggers=buf.triggers, punishing_at_end=buf.punishing_at_end, event=event,
     )
+
+
+def alternating_state(lineup: Lineup, rng: np.ndarray) -> AlternatingState:
+    """A new alternating session: the learners' initial values (the same in every state), their greedy actions,
+    and the starting prices drawn from ``rng`` (:func:`sim.learning.alternating.alternating_start`).
+
+    Parameters
+    ----------
+    lineup : Lineup
+        Two Q-learner seats (:func:`sim.learning.alternating.check_alternating`).
+    rng : ndarray of uint64, shape (4,)
+        The session's generator state, advanced in place by the two starting draws.
+
+    Returns
+    -------
+    sim.learning.alternating.AlternatingState
+    """
+    radix = lineup.seats.radix
+    m = int(radix.max())
+    Q = np.zeros((2, m, m))
+    greedy = np.zeros((2, m), np.int64)
+    for i in range(2):
+        Q[i] = lineup.q0[int(lineup.seats.lidx[i]), 0, :m]
+        greedy[i] = int(np.argmax(Q[i, 0, : radix[i]]))
+    prices, seen = np.zeros(2, np.int64), np.zeros(2, np.int64)
+    alternating_start(rng, radix, prices, seen)
+    return AlternatingState(Q, greedy, prices, seen, rng, np.zeros(2, np.int64))
+
+
+def _run_alternating(lineup: Lineup, settings: dict, progress: bool | None) -> LearningResult:
+    """Driver of alternating sessions: per-session streams, learning, the exact limit cycle; no impulse response
+    (its entries are nan, the deviation index -1)."""
+    n = settings["sessions"]
+    states = stream_states(settings["seed"], (settings["cell"],), 0, n)
+    buf = _Buffers(n, 2, settings["response_periods"] + 2)
+    for a in (buf.ir_p, buf.ir_pi, buf.cf_p, buf.cf_pi):
+        a[:] = np.nan
+    buf.info[:, 3:7] = np.nan
+    buf.info[:, 7] = -1
+    means = np.zeros((n, 3, 2))
+
+    def one(j: int) -> None:
+        st = alternating_state(lineup, states[j].copy())
+        buf.status[j], buf.periods[j] = run_alternating(lineup.seats, lineup.stage, st, settings["convergence"],
+                                                        settings["max_periods"])
+        transient, _length, period = alternating_limit(lineup.seats, lineup.stage, st.greedy, st.prices,
+                                                       buf.periods[j], buf.cycle[j], means[j])
+        buf.info[j, 0], buf.info[j, 1] = transient, period
+        buf.lim_a[j], buf.lim_p[j], buf.lim_pi[j] = means[j]
+
+    announce_compile("learning", (run_alternating, alternating_limit))
+    t0 = time.perf_counter()
+    _each(n, settings["workers"], one, progress)
+    return _assemble(lineup, settings, buf, time.perf_counter() - t0)
 
 
 # ------------------------------------------------------------------------------------------------

@@ -9,8 +9,9 @@ from pathlib import Path, PurePath
 
 from sim.core.errors import InputError
 from sim.core.parallel import usable_cores
-from sim.core.params import Integer, Real, optional
+from sim.core.params import Integer, Options, Real, optional
 from sim.core.tables import refuse_unknown
+from sim.learning.alternating import TIMINGS, check_alternating
 from sim.learning.events import EVENT_KEYS, check_event, event_from_table, with_saved_grids
 from sim.learning.lineup import compile_lineup
 from sim.learning.results import LIMIT_PERIODS
@@ -44,12 +45,14 @@ RUN_CONSTRAINTS = {
     "workers": optional(Integer(1, 1024)),
     "cell": Integer(0, 2**31),
     "confidence": Real(0, 1, closed="neither"),
+    "timing": Options(*TIMINGS),
 }
 #: parameters of a Q-learner in [learning] and in a ``strategy = "qlearning"`` entry
 LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init", "update", "counterfactual_share", "family",
                   "exploration", "noise")
 #: keys of the tables a learning experiment reads, in the order error messages list them
-LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "near", "limit_periods", "save_to", "continue_from")
+LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "near", "limit_periods", "save_to", "continue_from",
+                 "timing")
 IMPULSE_KEYS = ("firm", "action", "periods")
 RUN_KEYS = ("sessions", "seed", "workers", "confidence")
 EXPERIMENT_KEYS = ("name", "kind", "description")
@@ -129,7 +132,7 @@ def learning_from_dict(doc: dict, overrides: dict | None = None) -> dict:
 
     Reads ``[experiment]`` (``kind``, if given, must be ``"learn"``), ``[market]``
     (:func:`sim.market_from_dict`), ``[learning]`` (the learners' parameters, ``convergence``,
-    ``max_periods``, ``near``, ``limit_periods``), ``[impulse]`` (``firm`` counted from 1, ``action``
+    ``max_periods``, ``near``, ``limit_periods``, ``timing``), ``[impulse]`` (``firm`` counted from 1, ``action``
     -- ``"best_response"`` or a number -- and ``periods``), ``[run]`` (``sessions``, ``seed``,
     ``workers``, ``confidence``) and an optional ``[[strategies]]`` line-up (``strategy = "qlearning"`` entries
     take the [learning] parameters, overridden by their own; any other name is an automaton). Unknown keys
@@ -149,7 +152,8 @@ def learning_from_dict(doc: dict, overrides: dict | None = None) -> dict:
     dict
         ``market`` (:class:`sim.Market`), ``learner`` (a QLearner for every seat, or one strategy per
         seat), ``settings`` (keyword arguments of :func:`sim.learning.session.learn`; ``deviator`` counted
-        from 0), ``save_to`` (``learning.save_to``: where to save the learners at the end, or None) and ``start``
+        from 0; ``timing`` only when it is ``"alternating"``), ``save_to`` (``learning.save_to``: where to save
+        the learners at the end, or None) and ``start``
         (the :class:`sim.learning.saved.SavedLearners` of ``learning.continue_from``, read and checked against
         the line-up, or None), ``event`` (the :class:`sim.learning.events.Event` of an ``[event]`` table, or None)
         and ``waiting`` (an event whose saved file does not exist yet: it is read when the run starts, once the
@@ -240,6 +244,8 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
         "confidence": _setting(rt, "run", "confidence", "confidence", 0.95),
         "response_periods": _setting(it, "impulse", "periods", "response_periods", 15),
     }
+    if _setting(lt, "learning", "timing", "timing", "simultaneous") != "simultaneous":
+        settings["timing"] = lt["timing"]
     firm = Integer(1, n_firms).check("impulse.firm", it.get("firm", 1))
     settings["deviator"] = firm - 1  # learn() counts seats from 0; every output counts firms from 1
     settings["deviation"] = _impulse_action(it)
@@ -248,6 +254,8 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     lineup = compile_lineup(market, learner, workers=min(workers, settings["sessions"]), random_automata="estimate")
     save_to = _file_name(lt, "save_to")
     continue_from = _file_name(lt, "continue_from")
+    if "timing" in settings:
+        check_alternating(lineup, continue_from, save_to is not None, event)
     if continue_from is not None and event is None:
         start = load_learners(continue_from, "learning.continue_from")
         check_start(start, lineup, market.to_dict(), settings["sessions"], "learning.continue_from")

@@ -80,6 +80,14 @@ class RunSummary:
     status: str = "complete"
 
     def to_dict(self) -> dict:
+        """The summary as plain JSON data (paths as strings; failed cells as ``{"cell", "error"}`` tables).
+
+        Returns
+        -------
+        dict
+            ``folder``, ``name``, ``kind``, ``cells``, ``ok``, ``failed``, ``failed_cells``, ``ran``,
+            ``seconds``, ``backend``, ``complete``, ``status``, ``files`` and ``report`` (None when no bundle).
+        """
         return {"folder": str(self.folder), "name": self.name, "kind": self.kind, "cells": self.n_cells,
                 "ok": self.ok, "failed": self.failed, "failed_cells": [{"cell": c, "error": e}
                                                                       for c, e in self.failed_cells],
@@ -88,7 +96,21 @@ class RunSummary:
 
 
 def default_folder(root: Path, name: str) -> Path:
-    """A new run folder's default path: ``root/<name>-<YYYYmmdd-HHMMSS>``."""
+    """A new run folder's default path: ``root/<name>-<YYYYmmdd-HHMMSS>``.
+
+    Parameters
+    ----------
+    root : Path
+        The folder that holds run folders.
+    name : str
+        The experiment's name.
+
+    Returns
+    -------
+    Path
+        A path that does not exist yet: the local time stamp, followed by ``-2``, ``-3``, ... when a folder
+        of that second already exists.
+    """
     stamp = time.strftime("%Y%m%d-%H%M%S")
     p = root / f"{name}-{stamp}"
     k = 2

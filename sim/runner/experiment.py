@@ -115,6 +115,7 @@ class Parameter:
 
     @property
     def segments(self) -> tuple:
+        """The path's keys, split at the dots (``("strategies", "1", "length")``)."""
         return tuple(self.path.split("."))
 
     @functools.cached_property
@@ -284,6 +285,12 @@ class Cell:
         return self.index + 1
 
     def describe(self) -> str:
+        """The cell for messages: ``cell 3 (run.delta = 0.9, market.n = 2)``, or ``cell 1`` without a sweep.
+
+        Returns
+        -------
+        str
+        """
         if not self.values:
             return f"cell {self.number}"
         return f"cell {self.number} (" + ", ".join(f"{p} = {self.labels[p]}" for p in self.values) + ")"
@@ -611,7 +618,19 @@ def _check_report_metrics(exp: Experiment, kind) -> None:
 
 
 def leading_comment(text: str) -> str:
-    """The comment block at the top of an experiment file (what it shows), without the ``#`` marks."""
+    """The comment block at the top of an experiment file (what it shows), without the ``#`` marks.
+
+    Parameters
+    ----------
+    text : str
+        The experiment file's text.
+
+    Returns
+    -------
+    str
+        The comment lines before the first line of TOML, one space after each ``#`` removed, blank lines inside
+        the block kept; empty when the file does not start with a comment.
+    """
     lines = []
     for line in text.splitlines():
         s = line.strip()

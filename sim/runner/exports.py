@@ -12,13 +12,24 @@ from sim.runner.folder import (
     PARQUET_FILE,
     RunFolder,
 )
-from sim.runner.store import csv_text, parquet_bytes
+from sim.runner.tabular import csv_text, parquet_bytes
 
 
 def export_bytes(rf: RunFolder) -> dict:
     """The exports of a finished run as the store gives them: file name -> bytes (``None`` for the
-    Parquet file without pyarrow)."""
+    Parquet file without pyarrow).
 
+    Parameters
+    ----------
+    rf : RunFolder
+        The run folder, open for reading.
+
+    Returns
+    -------
+    dict of str to bytes or None
+        The results table as CSV and as Parquet, and the arrays of the cells that have any as JSON
+        (``{"cells": [{"cell": number, "arrays": ...}, ...]}``), keyed by file name.
+    """
     header, body = rf.table()
     arrays = [{"cell": r.number, "arrays": r.arrays} for r in rf.rows() if r.arrays]
     return {CSV_FILE: csv_text(header, body).encode("utf-8"), PARQUET_FILE: parquet_bytes(header, body),
@@ -26,7 +37,18 @@ def export_bytes(rf: RunFolder) -> dict:
 
 
 def write_exports(folder) -> list[str]:
-    """Write ``results.csv``, ``results.parquet`` (with pyarrow) and ``arrays.json`` from the store."""
+    """Write ``results.csv``, ``results.parquet`` (with pyarrow) and ``arrays.json`` from the store.
+
+    Parameters
+    ----------
+    folder : str or path-like
+        The run folder.
+
+    Returns
+    -------
+    list of str
+        The files written, relative to ``folder`` (without the Parquet file when pyarrow is missing).
+    """
     folder = Path(folder)
     with RunFolder(folder, check_copy=False) as rf:
         data = export_bytes(rf)

@@ -12,7 +12,8 @@ from pathlib import Path
 from sim.core.errors import InputError
 from sim.core.tomlfile import file_sha256, read_toml
 from sim.runner.experiment import experiment_from_dict
-from sim.runner.store import STORE_FILE, DamagedStore, Store, export_table, frame
+from sim.runner.store import STORE_FILE, DamagedStore, Store
+from sim.runner.tabular import export_table, frame
 
 RUN_FORMAT = "supergame-run/1"
 EXPERIMENT_COPY = "experiment.toml"
@@ -34,6 +35,18 @@ sha256_file = file_sha256
 
 
 def iso_time(t: float | None) -> str | None:
+    """A time stamp of the store as ISO 8601 text in UTC, to the second (``2026-03-01T12:00:05+00:00``).
+
+    Parameters
+    ----------
+    t : float or None
+        Seconds since the epoch, as the store records them.
+
+    Returns
+    -------
+    str or None
+        None when ``t`` is None.
+    """
     if t is None:
         return None
     return _dt.datetime.fromtimestamp(t, tz=_dt.UTC).isoformat(timespec="seconds")
@@ -41,8 +54,26 @@ def iso_time(t: float | None) -> str | None:
 
 @contextmanager
 def reading(key: str, folder: Path):
-    """Damage of the store becomes one line naming ``key`` (never a traceback)."""
+    """Damage of the store becomes one line naming ``key`` (never a traceback).
 
+    A context manager around reads of the store.
+
+    Parameters
+    ----------
+    key : str
+        Key path of the error (the command's argument, e.g. ``"folder"``).
+    folder : Path
+        The run folder, named in the message.
+
+    Yields
+    ------
+    None
+
+    Raises
+    ------
+    InputError
+        ``key`` when a read inside the block meets an SQLite database error or a damaged store.
+    """
     try:
         yield
     except (sqlite3.DatabaseError, DamagedStore) as exc:
@@ -282,7 +313,19 @@ def open_run(path) -> RunFolder:
 
 
 def output_files(folder: Path) -> list[str]:
-    """Files of the run folder covered by the manifest (relative POSIX paths, sorted)."""
+    """Files of the run folder covered by the manifest (relative POSIX paths, sorted).
+
+    Parameters
+    ----------
+    folder : Path
+        The run folder.
+
+    Returns
+    -------
+    list of str
+        Every file below ``folder`` except the manifest itself and the transient files (the store's
+        journal files and the lock).
+    """
     out = []
     for p in sorted(Path(folder).rglob("*")):
         if p.is_file():
@@ -294,7 +337,24 @@ def output_files(folder: Path) -> list[str]:
 
 
 def load_manifest(path) -> dict:
-    """A run folder's ``manifest.json``; ValueError when it is not one."""
+    """A run folder's ``manifest.json``; ValueError when it is not one.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The manifest file.
+
+    Returns
+    -------
+    dict
+        The manifest, whose ``files`` table maps relative paths to SHA-256 digests.
+
+    Raises
+    ------
+    ValueError
+        When the file is not UTF-8 text, not JSON, or has no ``files`` table of strings (the caller words the
+        error for its own key).
+    """
     try:
         man = json.loads(Path(path).read_text(encoding="utf-8"))
     except UnicodeDecodeError:

@@ -240,11 +240,37 @@ def register_kind(kind: Kind, replace: bool = False) -> Kind:
 
 
 def known_kinds() -> list[str]:
+    """The names of the experiment kinds: those registered and those loaded on first use.
+
+    Returns
+    -------
+    list of str
+        Sorted names.
+    """
     return sorted(set(_KINDS) | set(LAZY_KINDS))
 
 
 def get_kind(name: Any, key: str = "experiment.kind") -> Kind:
-    """The kind registered under ``name``; an unknown name raises InputError listing the known ones."""
+    """The kind registered under ``name``; an unknown name raises InputError listing the known ones.
+
+    A kind of the package that is loaded on first use is imported and registered here.
+
+    Parameters
+    ----------
+    name : object
+        The kind as the experiment file gives it (a string when valid).
+    key : str
+        Key path of ``name`` in error messages.
+
+    Returns
+    -------
+    Kind
+
+    Raises
+    ------
+    InputError
+        ``key`` when ``name`` is not a known kind, or its module cannot be imported in this installation.
+    """
     if isinstance(name, str) and name not in _KINDS and name in LAZY_KINDS:
         mod, _, attr = LAZY_KINDS[name].partition(":")
         try:
@@ -264,7 +290,23 @@ def get_kind(name: Any, key: str = "experiment.kind") -> Kind:
 
 
 def clean_metrics(metrics: Mapping) -> dict:
-    """Metrics as plain floats (booleans as 0/1; None and non-finite as nan); refuses anything else."""
+    """Metrics as plain floats (booleans as 0/1; None and non-finite as nan); refuses anything else.
+
+    Parameters
+    ----------
+    metrics : mapping of str to float, bool or None
+        A cell's metrics as its kind returns them.
+
+    Returns
+    -------
+    dict of str to float
+
+    Raises
+    ------
+    TypeError
+        For a name that is not a non-empty string or a value that is not a number (an error of the kind's
+        code, recorded as the cell's failure).
+    """
     out = {}
     for k, v in metrics.items():
         if not isinstance(k, str) or not k:
@@ -283,7 +325,25 @@ def clean_metrics(metrics: Mapping) -> dict:
 
 def clean_document(result) -> dict | None:
     """The JSON document of a cell's result object (None without one); what JSON cannot hold fails here, in the
-    cell, not in the store."""
+    cell, not in the store.
+
+    Parameters
+    ----------
+    result : Record or None
+        The cell's result object.
+
+    Returns
+    -------
+    dict or None
+        Its plain data (:func:`to_plain`), checked to be writable as strict JSON.
+
+    Raises
+    ------
+    ValueError
+        When the document holds a non-finite float (``json.dumps`` with ``allow_nan=False``).
+    TypeError
+        When it holds something JSON cannot write.
+    """
     if result is None:
         return None
     doc = to_plain(result)
@@ -293,8 +353,23 @@ def clean_document(result) -> dict | None:
 
 def clean_arrays(arrays: Mapping) -> dict:
     """Arrays as nested lists of floats (nan kept), for JSON; a dict as its plain JSON data (nan and inf
-    as None, see :func:`sim.core.jsonutil.jsonable`)."""
+    as None, see :func:`sim.core.jsonutil.jsonable`).
 
+    Parameters
+    ----------
+    arrays : mapping of str to array_like or mapping
+        A cell's small arrays as its kind returns them, by name.
+
+    Returns
+    -------
+    dict
+        Name (as str) -> nested lists of floats with the array's shape, or the mapping's plain data.
+
+    Raises
+    ------
+    ValueError, TypeError
+        When an array cannot be read as floats, or a mapping holds what JSON cannot write.
+    """
     out = {}
     for k, v in arrays.items():
         if isinstance(v, Mapping):
@@ -316,8 +391,18 @@ _ENTRY_POINTS_LOADED = False
 
 
 def file_digest(path) -> str:
-    """SHA-256 of a plugin file (hex)."""
+    """SHA-256 of a plugin file (hex).
 
+    Parameters
+    ----------
+    path : str or path-like
+        The plugin file.
+
+    Returns
+    -------
+    str
+        64 hexadecimal digits.
+    """
     return file_sha256(path)
 
 
@@ -329,6 +414,24 @@ def load_plugin_file(path, key: str = "plugins") -> dict:
     Dask worker gives it after ``Client.upload_file``); a module of that name imported already from a
     file with the same SHA-256 (as ``upload_file`` does on a Dask worker) is that plugin, loaded. A file
     that changed since this process loaded it is refused: the code running is the earlier one.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The plugin file (a ``.py`` file whose stem is a valid module name).
+    key : str
+        Key path of the error (the flag or table that named the file).
+
+    Returns
+    -------
+    dict
+        ``path`` (as given), ``sha256`` (of the file) and ``module`` (the name it is imported under).
+
+    Raises
+    ------
+    InputError
+        ``key`` when the file is missing, not a ``.py`` file, changed since this process loaded it, has a name
+        another module holds or that is not a module name, or fails on import.
     """
     p = Path(path)
     if not p.is_file():
@@ -377,13 +480,31 @@ def _module_digest(module) -> str | None:
 
 def plugin_loaded(record: dict) -> bool:
     """Whether the plugin of a run's record (``path``, ``sha256``, ``module``) is imported in this
-    process with that SHA-256."""
+    process with that SHA-256.
+
+    Parameters
+    ----------
+    record : dict
+        A plugin's record as :func:`load_plugin_file` returns it.
+
+    Returns
+    -------
+    bool
+    """
     present = sys.modules.get(record.get("module") or "")
     return present is not None and _module_digest(present) == record.get("sha256")
 
 
 def load_entry_points() -> list[str]:
-    """Import the installed plugins (entry-point group ``supergame.plugins``), once per process."""
+    """Import the installed plugins (entry-point group ``supergame.plugins``), once per process.
+
+    An entry point that loads a callable has it called (the plugin registers its strategies and kinds there).
+
+    Returns
+    -------
+    list of str
+        ``name = value`` of each entry point loaded, sorted by name; empty on every call after the first.
+    """
     global _ENTRY_POINTS_LOADED
     if _ENTRY_POINTS_LOADED:
         return []
@@ -399,7 +520,26 @@ def load_entry_points() -> list[str]:
 
 
 def load_plugins(files: Sequence = (), entry_points: bool = True) -> list[dict]:
-    """Load plugin files (``--plugin``) and installed entry points; return what was loaded."""
+    """Load plugin files (``--plugin``) and installed entry points; return what was loaded.
+
+    Parameters
+    ----------
+    files : sequence of str or path-like
+        Plugin files, loaded in order by :func:`load_plugin_file`.
+    entry_points : bool
+        Whether to import the installed plugins too.
+
+    Returns
+    -------
+    list of dict
+        One record per file (``path``, ``sha256``, ``module``), then ``{"entry_point": "name = value"}`` per
+        entry point loaded for the first time.
+
+    Raises
+    ------
+    InputError
+        ``plugins`` when a file cannot be loaded (see :func:`load_plugin_file`).
+    """
     out = [load_plugin_file(f) for f in files]
     if entry_points:
         out.extend({"entry_point": e} for e in load_entry_points())

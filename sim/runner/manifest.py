@@ -40,6 +40,20 @@ def check_manifest(folder, rewritten=(), key: str = "folder") -> dict | None:
     written again (``rewritten``: relative paths, or folders ending in ``/``); return the manifest (None
     when there is none yet).
 
+    Parameters
+    ----------
+    folder : str or path-like
+        The run folder.
+    rewritten : iterable of str
+        Relative paths (a folder as ``name/``) that the caller is about to write again; not compared.
+    key : str
+        Key path of the error (the command's argument).
+
+    Returns
+    -------
+    dict or None
+        The manifest as :func:`load_manifest` reads it.
+
     Raises
     ------
     InputError
@@ -77,8 +91,13 @@ def check_manifest(folder, rewritten=(), key: str = "folder") -> dict | None:
 
 def clear_run_leftovers(folder) -> None:
     """Remove what an interrupted write left in a run folder: a half-written manifest, the hidden
-    folders of a report being written or replaced (:func:`sim.core.files.clear_leftovers`)."""
+    folders of a report being written or replaced (:func:`sim.core.files.clear_leftovers`).
 
+    Parameters
+    ----------
+    folder : str or path-like
+        The run folder.
+    """
     folder = Path(folder)
     partial_path(folder / MANIFEST).unlink(missing_ok=True)
     for p in folder.glob(".*.partial-*"):
@@ -97,7 +116,19 @@ def _attempt_record(a: dict) -> dict:
 
 
 def code_notes(attempts: list[dict]) -> list[str]:
-    """Notes for the manifest and the report when the attempts that computed cells ran different code."""
+    """Notes for the manifest and the report when the attempts that computed cells ran different code.
+
+    Parameters
+    ----------
+    attempts : list of dict
+        The store's attempts (each with ``code``, the SHA-256 of the package's code, and ``cells_run``).
+
+    Returns
+    -------
+    list of str
+        Empty when every attempt that computed cells ran the same code; otherwise one note naming how many
+        attempts and versions there were.
+    """
     ran = [a for a in attempts if a.get("code") and (a.get("cells_run") or 0) > 0]
     codes = sorted({a["code"] for a in ran})
     if len(codes) <= 1:

@@ -35,7 +35,35 @@ FIGURE_KEYS = {
 
 @dataclass(frozen=True)
 class FigureSpec:
-    """One ``[[report.figures]]`` entry (validated)."""
+    """One ``[[report.figures]]`` entry (validated); the keys are explained in :data:`FIGURE_KEYS`.
+
+    Attributes
+    ----------
+    type : {"heatmap", "line"}
+        The kind of figure.
+    x : str
+        Swept parameter (canonical path) on the horizontal axis.
+    metric : str
+        Metric shown: the colour of a heatmap, the height of a line.
+    y : str or None
+        Heatmaps: swept parameter on the vertical axis.
+    threshold : str or None
+        Metric holding the analytic critical value of ``x``.
+    analytic : str or None
+        Line plots: metric holding the analytic prediction (drawn dashed).
+    level : float or None
+        Heatmaps: the value of the metric whose contour is drawn.
+    group : str or None
+        Line plots: swept parameter with one line per value.
+    facet : str or None
+        Swept parameter with one panel per value.
+    title : str or None
+        Figure title.
+    name : str or None
+        File name of the figure, without extension (:func:`figure_name` chooses one when None).
+    at : tuple of (str, str)
+        (swept path, label of a value) pairs fixing the swept parameters the figure does not show.
+    """
 
     type: str
     x: str
@@ -51,12 +79,29 @@ class FigureSpec:
     at: tuple = ()
 
     def fixed(self) -> dict:
-        """Swept path -> label of the value the figure is drawn at."""
+        """Swept path -> label of the value the figure is drawn at.
+
+        Returns
+        -------
+        dict of str to str
+        """
         return dict(self.at)
 
 
 @dataclass(frozen=True)
 class ReportSettings:
+    """The validated ``[report]`` table (:func:`parse_report`).
+
+    Attributes
+    ----------
+    title : str or None
+        Title of the report.
+    metrics : tuple of str or None
+        Metrics of the summary table, in order; None shows the kind's headline metrics.
+    figures : tuple of FigureSpec
+        The figures asked for, in the file's order.
+    """
+
     title: str | None = None
     metrics: tuple | None = None
     figures: tuple = ()
@@ -187,6 +232,21 @@ def _flatten_at(t: dict, prefix: str = "") -> list:
 
 
 def figure_name(spec: FigureSpec, index: int) -> str:
+    """The file name of a figure (without extension): its ``name``, or one made from its number, type, metric
+    and axes (``02-heatmap-profit_gain-run.delta-market.n``).
+
+    Parameters
+    ----------
+    spec : FigureSpec
+        The figure.
+    index : int
+        Its position among the ``[[report.figures]]`` entries, counted from 0.
+
+    Returns
+    -------
+    str
+        Letters, digits, ``.``, ``_`` and ``-`` only.
+    """
     if spec.name:
         return spec.name
     base = f"{spec.type}-{spec.metric}-{spec.x}" + (f"-{spec.y}" if spec.y else "")

@@ -9,15 +9,11 @@ survives the death of the process and a power cut alike: the loss bound is the c
 middle of commits). When a run completes the log is folded back into the database file, which from then on does
 not change.
 
-Exports (:func:`export_table`, :func:`write_csv`, :func:`write_parquet`, :func:`frame`) read the rows in
-cell order and contain no timings or timestamps, so the files of an interrupted-and-resumed run are
-byte-identical to those of an uninterrupted one.
+The results table and its CSV and Parquet exports are in :mod:`sim.runner.tabular`.
 """
 
 from __future__ import annotations
 
-import csv
-import io
 import json
 import math
 import sqlite3
@@ -26,12 +22,9 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-
 from sim.core.jsonutil import jsonable
 
-__all__ = ["STORE_FILE", "DamagedStore", "Store", "export_table", "frame", "parquet_bytes", "write_csv",
-           "write_parquet"]
+__all__ = ["STORE_FILE", "CellRow", "DamagedStore", "Store"]
 
 STORE_FILE = "results.sqlite"
 SCHEMA_VERSION = 1
@@ -95,6 +88,35 @@ class CellRow:
     ``cell`` is the cell's index counted from 0, as in the store's ``cell`` column: the cell's stream key
     (``SeedSequence(seed, spawn_key=(cell,))``). Everything shown to users -- exports, tables, messages
     -- counts cells from 1 (:attr:`number`).
+
+    Attributes
+    ----------
+    cell : int
+        The cell's index, counted from 0.
+    status : {"ok", "failed"}
+        Whether the cell's computation finished or raised.
+    params : dict
+        Swept path -> value of the cell.
+    labels : dict of str to str
+        Swept path -> display label of the value.
+    seed : int or None
+        The user's seed the cell's streams came from.
+    error : str or None
+        A failed cell's error, in one line.
+    metrics : dict of str to float
+        The cell's metrics (nan for missing).
+    arrays : dict
+        The cell's small arrays, as plain JSON data.
+    started, finished : float or None
+        When the cell's computation started and ended, in seconds since the epoch.
+    seconds : float or None
+        Its compute time.
+    worker : str or None
+        ``host:pid`` of the process that computed it.
+    detail : str or None
+        A failed cell's traceback.
+    attempt : int or None
+        The attempt (run or resume) that computed it.
     """
 
     cell: int
@@ -146,7 +168,20 @@ class Store:
 
     @classmethod
     def create(cls, path, meta: dict) -> Store:
-        """A new database holding ``meta`` (string keys, JSON-able values)."""
+        """A new database holding ``meta`` (string keys, JSON-able values), written in one transaction.
+
+        Parameters
+        ----------
+        path : path-like
+            The database file.
+        meta : dict
+            The run's settings; the schema version is added as ``schema_version``.
+
+        Returns
+        -------
+        Store
+            The store, open for writing.
+        """
         s = cls(path)
         s.con.execute("BEGIN")
         s.con.execute("INSERT OR REPLACE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
@@ -156,6 +191,7 @@ class Store:
         return s
 
     def close(self) -> None:
+        """Close the database connection (a second call does nothing)."""
         if self.con is not None:
             self.con.close()
             self.con = None
@@ -176,6 +212,18 @@ class Store:
     # -- meta --------------------------------------------------------------------------------------
 
     def meta(self) -> dict:
+        """The run's settings as :meth:`create` and :meth:`set_meta` wrote them.
+
+        Returns
+        -------
+        dict
+            Key -> value (``schema_version`` as an int).
+
+        Raises
+        ------
+        DamagedStore
+            When a value cannot be read back.
+        """
         out = {}
         for k, v in self.con.execute("SELECT key, value FROM meta ORDER BY key"):
             try:
@@ -185,15 +233,47 @@ class Store:
         return out
 
     def set_meta(self, key: str, value: Any) -> None:
+        """Write one setting, replacing any earlier value.
+
+        Parameters
+        ----------
+        key : str
+            The setting's name.
+        value : object
+            Its value (JSON-able; non-finite floats are written as null).
+        """
         self.con.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)", (key, _dumps(value)))
 
     # -- attempts ----------------------------------------------------------------------------------
 
     def start_attempt(self, info: dict) -> int:
+        """Record the start of an attempt (a run or a resume) at the current time.
+
+        Parameters
+        ----------
+        info : dict
+            What the attempt runs with (command, backend, host, package versions, code digest, plugins).
+
+        Returns
+        -------
+        int
+            The attempt's number, counted from 1.
+        """
         cur = self.con.execute("INSERT INTO attempts (started, info) VALUES (?, ?)", (time.time(), _dumps(info)))
         return int(cur.lastrowid)
 
     def finish_attempt(self, attempt: int, outcome: str, info: dict | None = None) -> None:
+        """Record the end of an attempt at the current time.
+
+        Parameters
+        ----------
+        attempt : int
+            The number :meth:`start_attempt` returned.
+        outcome : str
+            How it ended: the run's status, ``"interrupted"`` or ``"stopped"``.
+        info : dict or None
+            Entries to add to the attempt's information (e.g. the number of cells it ran).
+        """
         if info is not None:
             old = json.loads(self.con.execute("SELECT info FROM attempts WHERE attempt = ?", (attempt,)).fetchone()[0])
             old.update(info)
@@ -204,6 +284,19 @@ class Store:
                              (time.time(), outcome, attempt))
 
     def attempts(self) -> list[dict]:
+        """Every attempt in order.
+
+        Returns
+        -------
+        list of dict
+            ``attempt``, ``started``, ``finished`` (seconds since the epoch, None while running), ``outcome``
+            and the entries of its information.
+
+        Raises
+        ------
+        DamagedStore
+            When an attempt's information cannot be read back.
+        """
         rows = self.con.execute("SELECT attempt, started, finished, outcome, info FROM attempts ORDER BY attempt")
         return [{"attempt": a, "started": s, "finished": f, "outcome": o, **_loads(i, f"attempt {a}")}
                 for a, s, f, o, i in rows]
@@ -213,7 +306,15 @@ class Store:
     def record(self, row: CellRow, document: dict | None = None) -> None:
         """Store one finished cell (and its result document, if any) in its own committed transaction. A cell
         already stored is kept (the first result wins; a second, identical computation can only come from a
-        duplicate submission)."""
+        duplicate submission).
+
+        Parameters
+        ----------
+        row : CellRow
+            The finished cell.
+        document : dict or None
+            Its result object as plain JSON data; kept only when the row is new.
+        """
         self.con.execute("BEGIN")
         try:
             cur = self.con.execute(
@@ -233,7 +334,22 @@ class Store:
 
     def document(self, cell: int) -> dict | None:
         """The result document of cell ``cell`` (counted from 0), or None (a failed cell, or a kind without
-        result objects)."""
+        result objects).
+
+        Parameters
+        ----------
+        cell : int
+            The cell's index, counted from 0.
+
+        Returns
+        -------
+        dict or None
+
+        Raises
+        ------
+        DamagedStore
+            When the stored document cannot be read back.
+        """
         try:
             r = self.con.execute("SELECT doc FROM documents WHERE cell = ?", (int(cell),)).fetchone()
         except sqlite3.OperationalError:  # a store written before documents were kept
@@ -241,15 +357,35 @@ class Store:
         return None if r is None else _loads(r[0], f"the result document of cell {int(cell) + 1}")
 
     def done(self) -> set[int]:
+        """The indices (counted from 0) of the cells that have a row, finished or failed.
+
+        Returns
+        -------
+        set of int
+        """
         return {int(c) for (c,) in self.con.execute("SELECT cell FROM cells")}
 
     def count(self) -> dict:
+        """How many stored cells finished and how many failed.
+
+        Returns
+        -------
+        dict of str to int
+            ``ok`` and ``failed``.
+        """
         out = {"ok": 0, "failed": 0}
         for status, n in self.con.execute("SELECT status, COUNT(*) FROM cells GROUP BY status"):
             out[status] = int(n)
         return out
 
     def forget_failed(self) -> int:
+        """Delete the rows of the failed cells, so that a resumed run computes them again.
+
+        Returns
+        -------
+        int
+            The number of rows deleted.
+        """
         cur = self.con.execute("DELETE FROM cells WHERE status = 'failed'")
         return int(cur.rowcount)
 
@@ -258,6 +394,22 @@ class Store:
 
         A row that cannot be read back raises :class:`DamagedStore`; with a list as ``problems``, it is
         described there and left out instead.
+
+        Parameters
+        ----------
+        cells : iterable of int or None
+            Indices of the cells wanted; None for all.
+        problems : list or None
+            A list to append the description of each unreadable row to.
+
+        Returns
+        -------
+        list of CellRow
+
+        Raises
+        ------
+        DamagedStore
+            For an unreadable row, when ``problems`` is None.
         """
         q = ("SELECT cell, status, params, labels, seed, error, metrics, arrays, started, finished, seconds, worker, "
              "detail, attempt FROM cells ORDER BY cell")
@@ -275,10 +427,22 @@ class Store:
         return out
 
     def failed(self) -> list[CellRow]:
+        """The rows of the failed cells, in cell order.
+
+        Returns
+        -------
+        list of CellRow
+        """
         return [r for r in self.rows() if r.status == "failed"]
 
     def journal_mode(self) -> str:
-        """``"wal"`` while a run writes to the store, ``"delete"`` once :meth:`finalize` folded the log."""
+        """``"wal"`` while a run writes to the store, ``"delete"`` once :meth:`finalize` folded the log.
+
+        Returns
+        -------
+        str
+            SQLite's journal mode, in lower case.
+        """
         return str(self.con.execute("PRAGMA journal_mode").fetchone()[0]).lower()
 
 
@@ -297,155 +461,3 @@ def _row(r: tuple) -> CellRow:
         raise DamagedStore(f"{what}, seed: {r[4]!r} is not an integer")
     return CellRow(cell, r[1], _loads(r[2], f"{what}, parameters"), _loads(r[3], f"{what}, labels"), r[4],
                    r[5], metrics, _loads(r[7], f"{what}, arrays"), r[8], r[9], r[10], r[11], r[12], r[13])
-
-
-# --------------------------------------------------------------------------------------------------
-# Exports
-# --------------------------------------------------------------------------------------------------
-
-
-def _metric_order(rows: list[CellRow], declared=()) -> list[str]:
-    seen = list(declared)
-    have = set(seen)
-    extra = set()
-    for r in rows:
-        for k in r.metrics:
-            if k not in have:
-                extra.add(k)
-    return seen + sorted(extra)
-
-
-def export_table(rows: list[CellRow], parameters: list, declared_metrics=()) -> tuple[list[str], list[list]]:
-    """Columns and rows of the results table: cell (counted from 1), status, the swept parameters, seed, the
-    metrics (the kind's order, then any others sorted), error. Numeric parameters stay numbers; others are
-    labels."""
-    numeric = {p.path: p.numeric for p in parameters}
-    paths = [p.path for p in parameters]
-    metrics = _metric_order(rows, declared_metrics)
-    used = {k for r in rows for k in r.metrics}
-    metrics = [m for m in metrics if m in used or not rows]
-    header = ["cell", "status", *paths, "seed", *metrics, "error"]
-    body = []
-    for r in rows:
-        vals = [r.params[p] if numeric[p] else r.labels[p] for p in paths]
-        body.append([r.number, r.status, *vals, r.seed, *[r.metrics.get(m, math.nan) for m in metrics], r.error or ""])
-    return header, body
-
-
-#: first characters that make a spreadsheet read a text cell as a formula (OWASP, "CSV Injection")
-_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
-
-
-def safe_text(text: str) -> str:
-    """A text cell that a spreadsheet shows as text: one that starts like a formula gets a leading apostrophe,
-    as the OWASP guidance on CSV injection recommends (numbers are written as numbers and never changed).
-
-    Parameters
-    ----------
-    text : str
-
-    Returns
-    -------
-    str
-    """
-    return "'" + text if text.startswith(_FORMULA_START) else text
-
-
-def _csv_value(v) -> str:
-    # numpy scalars are written as the Python numbers they hold: repr(np.float64(x)) names the type.
-    if v is None:
-        return ""
-    if isinstance(v, (bool, np.bool_)):
-        return "true" if v else "false"
-    if isinstance(v, (float, np.floating)):
-        return "" if math.isnan(v) else repr(float(v))
-    if isinstance(v, np.integer):
-        return str(int(v))
-    if isinstance(v, int | float):
-        return str(v)
-    return safe_text(str(v))
-
-
-def csv_text(header: list[str], body: list[list]) -> str:
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(header)
-    for row in body:
-        w.writerow([_csv_value(v) for v in row])
-    return buf.getvalue()
-
-
-def write_csv(path, header: list[str], body: list[list]) -> None:
-    Path(path).write_text(csv_text(header, body), encoding="utf-8")
-
-
-def _column_type(values: list) -> str:
-    vals = [v for v in values if v is not None and not (isinstance(v, float) and math.isnan(v))]
-    if vals and all(isinstance(v, int) and not isinstance(v, bool) for v in vals):
-        return "int"
-    if all(isinstance(v, int | float) and not isinstance(v, bool) for v in vals):
-        return "float"
-    return "str"
-
-
-def write_parquet(path, header: list[str], body: list[list]) -> bool:
-    """Write a Parquet file when pyarrow is installed (returns False otherwise). The file depends only on
-    the data and the pyarrow version."""
-    data = parquet_bytes(header, body)
-    if data is None:
-        return False
-    Path(path).write_bytes(data)
-    return True
-
-
-def parquet_table(header: list[str], body: list[list]):
-    """The results table as a pyarrow Table (None without pyarrow)."""
-    try:
-        import pyarrow as pa
-    except ImportError:
-        return None
-    cols = {}
-    for j, name in enumerate(header):
-        vals = [row[j] for row in body]
-        t = _column_type(vals) if name not in ("status", "error") else "str"
-        if t == "int":
-            cols[name] = pa.array([None if v is None else int(v) for v in vals], type=pa.int64())
-        elif t == "float":
-            cols[name] = pa.array([None if v is None else float(v) for v in vals], type=pa.float64())
-        else:
-            cols[name] = pa.array([None if v is None else str(v) for v in vals], type=pa.string())
-    return pa.table(cols)
-
-
-def parquet_bytes(header: list[str], body: list[list]) -> bytes | None:
-    """The bytes of the Parquet export (None without pyarrow): they depend only on the data and the
-    pyarrow version."""
-    table = parquet_table(header, body)
-    if table is None:
-        return None
-    import pyarrow as pa
-    import pyarrow.parquet as pq
-
-    buf = pa.BufferOutputStream()
-    pq.write_table(table, buf, compression="zstd", write_statistics=False)
-    return buf.getvalue().to_pybytes()
-
-
-def frame(header: list[str], body: list[list]):
-    """A pandas DataFrame of the results table (pandas is optional: ``pip install 'supergame[tables]'``)."""
-    try:
-        import pandas as pd
-    except ImportError:
-        raise ImportError("the DataFrame export needs pandas, which is not installed; install it with "
-                          "pip install 'supergame[tables]' (or read results.csv)") from None
-    data = {}
-    for j, name in enumerate(header):
-        vals = [row[j] for row in body]
-        t = _column_type(vals) if name not in ("status", "error") else "str"
-        if t == "int":
-            data[name] = pd.array([None if v is None else int(v) for v in vals], dtype="Int64")
-        elif t == "float":
-            data[name] = pd.array([math.nan if v is None else float(v) for v in vals], dtype="float64")
-        else:
-            data[name] = [None if v is None else str(v) for v in vals]
-    return pd.DataFrame(data, columns=header)

@@ -95,10 +95,19 @@ def _ensure_plugins(plugins) -> None:
 def run_payload(payload: dict) -> dict:
     """Validate and run one cell; never raises for a failure of the cell itself.
 
-    ``payload``: ``kind``, ``index``, ``doc``, ``threads``, ``progress``, ``plugins`` (and ``folder``, the run
-    folder, optional). Returns the
-    fields of a stored row: ``cell``, ``status``, ``metrics``, ``arrays``, ``error``, ``detail``,
-    ``started``, ``finished``, ``seconds`` (the kind's own compute), ``worker``.
+    Parameters
+    ----------
+    payload : dict
+        ``kind`` (the kind's name), ``index`` (the cell's index, counted from 0), ``doc`` (the cell's
+        complete document), ``threads``, ``progress``, ``plugins`` (the run's plugin records) and, optionally,
+        ``folder`` (the run folder).
+
+    Returns
+    -------
+    dict
+        The fields of a stored row: ``cell``, ``status`` (``"ok"`` or ``"failed"``), ``metrics``, ``arrays``,
+        ``document``, ``error`` (one line), ``detail`` (the traceback), ``started``, ``finished``, ``seconds``
+        (the kind's own compute) and ``worker`` (``host:pid``).
     """
 
     started = time.time()
@@ -177,13 +186,29 @@ def _stop_workers() -> None:
 
 @dataclass
 class Backend:
-    """How cells are run: ``kind`` is ``"serial"``, ``"processes"`` or ``"dask"``."""
+    """How cells are run: ``kind`` is ``"serial"``, ``"processes"`` or ``"dask"``.
+
+    Attributes
+    ----------
+    kind : {"serial", "processes", "dask"}
+        This process, local worker processes, or a Dask cluster.
+    workers : int
+        Number of worker processes (1 for ``"serial"``).
+    address : str or None
+        ``"dask"``: ``"local"`` or the scheduler's address (``tcp://host:8786``).
+    """
 
     kind: str
     workers: int
     address: str | None = None
 
     def describe(self) -> str:
+        """Where the cells run, in words (``4 local worker processes``).
+
+        Returns
+        -------
+        str
+        """
         if self.kind == "serial":
             return "this process"
         if self.kind == "processes":
@@ -194,7 +219,29 @@ class Backend:
 
 
 def choose_backend(workers: int | None, cluster: str | None, n_cells: int) -> Backend:
-    """Validated backend settings (``--workers``, ``--cluster``)."""
+    """Validated backend settings (``--workers``, ``--cluster``).
+
+    Parameters
+    ----------
+    workers : int or None
+        Worker processes asked for; None for one per usable core.
+    cluster : str or None
+        ``"local"`` or a Dask scheduler's address; None runs without Dask.
+    n_cells : int
+        Number of cells to run (never more local workers than cells).
+
+    Returns
+    -------
+    Backend
+        Dask when ``cluster`` is given; otherwise this process for one worker or one cell, else local
+        worker processes.
+
+    Raises
+    ------
+    InputError
+        ``workers`` when it is not an integer in [1, 4096]; ``cluster`` when it is empty or Dask is not
+        installed.
+    """
     if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or not 1 <= workers <= 4096):
         raise InputError("workers", f"must be an integer in [1, 4096], got {workers!r}")
     if cluster is not None:
@@ -405,7 +452,19 @@ def _dask(payloads: Iterable[dict], on_result, backend: Backend, plugins) -> Non
 
 def execute(payloads: Iterable[dict], on_result: Callable[[dict], None], backend: Backend, plugins=()) -> None:
     """Run the payloads (drawn lazily) on the backend, calling ``on_result`` in this process for every
-    finished cell, in the order in which cells finish."""
+    finished cell, in the order in which cells finish.
+
+    Parameters
+    ----------
+    payloads : iterable of dict
+        One payload per cell (see :func:`run_payload`).
+    on_result : callable
+        Called with each result of :func:`run_payload`, failed cells included.
+    backend : Backend
+        Where the cells run (:func:`choose_backend`).
+    plugins : sequence of dict
+        The run's plugin records, loaded in every worker process.
+    """
     if backend.kind == "serial":
         _serial(payloads, on_result)
     elif backend.kind == "processes":
@@ -420,7 +479,19 @@ def execute(payloads: Iterable[dict], on_result: Callable[[dict], None], backend
 
 
 class Progress:
-    """Cells done and time left on a terminal (tqdm); silent when stderr is not a terminal."""
+    """Cells done and time left on a terminal (tqdm); silent when stderr is not a terminal.
+
+    Parameters
+    ----------
+    total : int
+        Number of cells of the run.
+    done : int
+        Cells already stored (a resumed run starts the bar there).
+    desc : str
+        Label in front of the bar.
+    enabled : bool or None
+        Whether to show the bar; None shows it when stderr is a terminal.
+    """
 
     def __init__(self, total: int, done: int, desc: str, enabled: bool | None = None):
         if enabled is None:
@@ -435,6 +506,13 @@ class Progress:
                             dynamic_ncols=True, smoothing=0.1)
 
     def update(self, failed: bool) -> None:
+        """Count one more finished cell.
+
+        Parameters
+        ----------
+        failed : bool
+            Whether the cell failed (the bar then shows the count of failed cells).
+        """
         if failed:
             self.failed += 1
         if self.bar is not None:
@@ -443,5 +521,6 @@ class Progress:
             self.bar.update(1)
 
     def close(self) -> None:
+        """Remove the bar from the terminal."""
         if self.bar is not None:
             self.bar.close()

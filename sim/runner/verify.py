@@ -40,13 +40,32 @@ from sim.runner.store import STORE_FILE
 
 @dataclass
 class VerifyResult:
-    """Outcome of :func:`verify_run`: ``ok`` and the individual checks (``(passed, text)`` pairs)."""
+    """Outcome of :func:`verify_run`: ``ok`` and the individual checks (``(passed, text)`` pairs).
+
+    Attributes
+    ----------
+    ok : bool
+        Whether every check passed.
+    checks : list of (bool, str)
+        Each check: whether it passed and what it checked, in words.
+    cells : list of dict
+        One entry per re-run cell: ``cell`` (its number, counted from 1), ``metrics`` (how many were compared),
+        ``mismatched`` (names of the metrics outside the tolerance), ``max_relative_difference`` and
+        ``identical`` (every metric equal, bit for bit).
+    """
 
     ok: bool
     checks: list
     cells: list
 
     def to_dict(self) -> dict:
+        """The outcome as plain JSON data, each check as ``{"passed", "check"}``.
+
+        Returns
+        -------
+        dict
+            ``ok``, ``checks`` and ``cells``.
+        """
         return {"ok": self.ok, "checks": [{"passed": p, "check": t} for p, t in self.checks], "cells": self.cells}
 
 

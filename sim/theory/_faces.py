@@ -52,6 +52,9 @@ class Geometry:
     c : ndarray of shape (F,) or None
     dim : int
         Dimension of the polytope (``n`` when full-dimensional).
+    lost : float
+        Bound on the distance from any given point to the hull of ``points``: twice the largest distance of a given
+        point from the affine hull the polytope was flattened into (0 when it is full-dimensional).
     """
 
     points: np.ndarray
@@ -59,6 +62,7 @@ class Geometry:
     H: np.ndarray | None
     c: np.ndarray | None
     dim: int
+    lost: float = 0.0
 
 
 def _subfaces(simplices: np.ndarray, top: int) -> tuple:
@@ -106,19 +110,25 @@ def geometry(P: np.ndarray, scale: float) -> Geometry:
             remap[keep] = np.arange(keep.size)
             faces = _subfaces(remap[h.simplices], n - 1)
             return Geometry(P[keep], faces, h.equations[:, :n], -h.equations[:, n], n)
+    # a thin set is flattened into its d-dimensional affine hull: a given point lies within its distance from that
+    # hull of its projection, which lies in the hull of the kept points' projections, each within the same distance
+    # of its point. Qhull also refuses sets a few 1e-8 thick that pass the rank test above ("wide merge"), and
+    # those are flattened too, so an outer sequence must allow for the thickness dropped (see sim.theory._iterate).
+    off = (P - center) @ vt[d:].T if d < vt.shape[0] else np.zeros((P.shape[0], 0))
+    lost = 2.0 * float(np.linalg.norm(off, axis=1).max()) if off.shape[1] else 0.0
     if d == 0:
-        return Geometry(P[:1], (), None, None, 0)
+        return Geometry(P[:1], (), None, None, 0, lost)
     Y = (P - center) @ vt[:d].T
     if d == 1:
         ends = [int(np.argmin(Y[:, 0])), int(np.argmax(Y[:, 0]))]
-        return Geometry(P[ends], ((1, np.array([[0, 1]])),), None, None, 1)
+        return Geometry(P[ends], ((1, np.array([[0, 1]])),), None, None, 1, lost)
     try:
         keep = ConvexHull(Y).vertices
         tri = Delaunay(Y[keep])
     except QhullError:  # pragma: no cover - the rank test above makes the flat hull well posed
         keep = np.arange(P.shape[0])
         tri = Delaunay(Y, qhull_options="QJ")
-    return Geometry(P[keep], _subfaces(tri.simplices, d), None, None, d)
+    return Geometry(P[keep], _subfaces(tri.simplices, d), None, None, d, lost)
 
 
 def candidates(geom: Geometry, b: np.ndarray, eps: float, block: int = 3_000_000):
@@ -169,26 +179,35 @@ def candidates(geom: Geometry, b: np.ndarray, eps: float, block: int = 3_000_000
 
 
 def _on_faces(P, idx, S, b, eps, block):
-    """Points of the k-simplices ``idx`` where ``w_S = b_S``, for every row of ``b``."""
+    """Points of the k-simplices ``idx`` where ``w_S = b_S``, for every row of ``b``.
+
+    The weights are solved relative to the first corner, ``w = p_0 + sum_{j >= 1} mu_j (p_j - p_0)``,
+    with ``lambda_0 = 1 - sum mu``: the condition ``sum lambda = 1`` then holds by construction. Solving
+    the bordered system with the row of ones instead loses that row on nearly singular faces (an edge
+    almost parallel to the plane ``w_S = b_S``, condition numbers near ``1e12``, which occur on the
+    thin sets of the inner sequence): the weights summed to ``1 + 4e-6``, which moved the point off
+    the face, out of ``W``, by a few ``1e-6``, and the inner set grew past the outer one. Now rounding
+    can only move a point along its face, and the weights' signs keep it inside the simplex.
+    """
     k = len(S)
     corners = P[idx]  # (m, k + 1, n)
-    M = np.ones((idx.shape[0], k + 1, k + 1))
-    M[:, :k, :] = np.transpose(corners[:, :, S], (0, 2, 1))
-    det = np.linalg.det(M)
+    base = corners[:, 0, :]  # (m, n)
+    E = corners[:, 1:, :] - base[:, None, :]  # (m, k, n): edges from the first corner
+    ES = E[:, :, S]  # (m, k, k); det(ES) equals the bordered system's determinant up to sign
+    det = np.linalg.det(ES)
     size = np.abs(corners[:, :, S]).max(axis=(1, 2)) + 1.0
     good = np.abs(det) > 1e-12 * size**k
     if not np.any(good):
         return np.zeros(0, np.int64), np.zeros((0, P.shape[1]))
-    invT = np.transpose(np.linalg.inv(M[good]), (0, 2, 1))
-    corners = corners[good]
-    m = invT.shape[0]
+    inv = np.linalg.inv(ES[good])  # mu = (b_S - base_S) @ inv
+    corners, base = corners[good], base[good]
+    m = inv.shape[0]
     A = b.shape[0]
     rows, pts = [], []
     step = max(1, block // max(1, m * (k + 1 + P.shape[1])))
     for s in range(0, A, step):
-        rhs = np.ones((min(step, A - s), k + 1))
-        rhs[:, :k] = b[s:s + step][:, S]
-        lam = rhs[None, :, :] @ invT  # (m, a, k + 1)
+        mu = (b[s:s + step][:, S][None, :, :] - base[:, S][:, None, :]) @ inv  # (m, a, k)
+        lam = np.concatenate([1.0 - mu.sum(axis=2, keepdims=True), mu], axis=2)  # (m, a, k + 1)
         # most (face, profile) pairs miss the face: test the weights before forming the points
         f, r = np.nonzero(np.all(lam >= -1e-12, axis=2))
         w = np.einsum("qi,qin->qn", lam[f, r], corners[f])

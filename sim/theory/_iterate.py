@@ -111,6 +111,22 @@ def _image(G, gains, delta, points, scale, eps, D=None, margin=0.0, punish=None)
     return fc.support_step(G, gains, delta, u, geom, dirs, eps)
 
 
+def _outer_support(G, gains, delta, points, scale, eps, D, margin):
+    """Support values of ``B(W)`` in directions ``D``, never below the exact ones (up to ``margin`` of rounding).
+
+    When ``W`` is too thin for Qhull it is flattened (:func:`sim.theory._faces.geometry`) into ``W'``, inside ``W``
+    and within ``lost`` of each of its points. The image of ``W'`` computed with punishments lowered by
+    ``2 lost`` (each firm's worst payoff in ``W'`` exceeds that in ``W`` by at most ``lost``) enforces, for every
+    continuation ``w`` in ``W``, a point of ``W'`` within ``lost`` of it, so the support of ``B(W)`` exceeds
+    the one computed by at most ``delta * lost``. Without this allowance a set flattened from a thickness of
+    ``1.5e-7`` cut an equilibrium payoff off the outer set by ``2.5e-8``.
+    """
+    geom = fc.geometry(points, scale)
+    u = geom.points.min(axis=0) - margin - 2.0 * geom.lost
+    vals = fc.support_step(G, gains, delta, u, geom, D, eps)[0]
+    return vals + margin + geom.lost
+
+
 def _keep(P, A, W, scale):
     idx = hull_indices(P, scale)
     return P[idx], A[idx], W[idx]
@@ -225,10 +241,10 @@ def directions_outer(G, gains, delta, D, tol_abs, stop, max_iter, scale, start=N
         P = outer_corners(D, levels, scale, inflate)
         if P is None:
             return None, k, True
-        vals = _image(G, gains, delta, P, scale, eps, D=D, margin=margin)[0]
+        vals = _outer_support(G, gains, delta, P, scale, eps, D, margin)
         if not np.all(np.isfinite(vals)):
             return None, k, True
-        new = np.minimum(levels, vals + margin)
+        new = np.minimum(levels, vals)
         step = float(np.max(levels - new))
         levels = new
         if step <= stop:

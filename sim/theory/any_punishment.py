@@ -22,6 +22,7 @@ perfect monitoring, pure strategies, public randomisation), not proof of conduct
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import dataclass, field
 
@@ -33,7 +34,8 @@ from ..core.records import Record
 from . import _polygon as pg
 from .discretize import _key_levels, discretize, estimate_game_bytes
 from .payoff_sets import default_directions, equilibrium_payoffs, estimate_work
-from .practice import PenalCode, lowest_threshold, named_thresholds, penal_codes
+from .practice import PenalCode, lowest_threshold, named_thresholds, penal_codes, symmetric_slice
+from .refinement import GridRefinement, grid_refinement
 
 __all__ = [
     "TABLE_KEYS",
@@ -46,7 +48,9 @@ __all__ = [
 
 _KEY = "any_punishment"
 #: keys of the ``[any_punishment]`` table
-TABLE_KEYS = ("grid", "directions", "tolerance", "delta")
+TABLE_KEYS = ("grid", "directions", "tolerance", "delta", "refine")
+#: most grids in a refinement table
+MAX_REFINE = 8
 #: defaults: actions per firm, and the width of the bracket on the discount factor
 DEFAULT_GRID, DEFAULT_TOLERANCE = 15, 1e-3
 #: most actions per firm accepted before the memory estimate speaks
@@ -74,12 +78,16 @@ class AnyPunishmentSpec:
     delta : float or None
         Discount factor at which the worst equilibrium payoffs and the set are reported (None: at the upper end
         of the bracket).
+    refine : tuple of int
+        Actions per firm of each grid of the refinement table (:func:`sim.theory.refinement.grid_refinement`),
+        increasing; empty: no table.
     """
 
     grid: tuple
     directions: int
     tolerance: float = DEFAULT_TOLERANCE
     delta: float | None = None
+    refine: tuple = ()
 
     @property
     def method(self) -> str:
@@ -103,7 +111,8 @@ def check_any_punishment(table: dict, market, agreement: str = "joint", actions=
     ----------
     table : dict
         Keys ``grid`` (actions per firm: one count or one per firm), ``directions`` (at least n_firms + 1),
-        ``tolerance`` (in (0, 0.1]) and ``delta`` (in (0, 1)), all optional.
+        ``tolerance`` (in (0, 0.1]), ``delta`` (in (0, 1)) and ``refine`` (a list of up to 8 increasing action
+        counts per firm: the answers recomputed on each of these grids), all optional.
     market : sim.Market
     agreement : str
         The agreed collusive outcome (see :func:`sim.theory.equilibrium.collusive_outcome`).
@@ -118,7 +127,7 @@ def check_any_punishment(table: dict, market, agreement: str = "joint", actions=
     ------
     InputError
         Naming the key (``any_punishment.grid``, ``any_punishment.directions``, ``any_punishment.tolerance``,
-        ``any_punishment.delta``), the allowed range and the given value.
+        ``any_punishment.delta``, ``any_punishment.refine``), the allowed range and the given value.
     """
     ms = market.spec()
     n = ms.n_firms
@@ -136,7 +145,8 @@ def check_any_punishment(table: dict, market, agreement: str = "joint", actions=
     delta = table.get("delta")
     if delta is not None:
         delta = Real(0, 1, closed="neither").check(f"{_KEY}.delta", delta)
-    spec = AnyPunishmentSpec(grid, directions, tolerance, delta)
+    refine = _refine_counts(table.get("refine", []))
+    spec = AnyPunishmentSpec(grid, directions, tolerance, delta, refine)
     # the key levels (static Nash, agreement, deviations, stick, minmax) must fit on each grid: a cheap solve
     # of the stage game, so a grid too coarse is refused before any work
     levels, _, _ = _key_levels(ms, agreement, actions)
@@ -144,7 +154,21 @@ def check_any_punishment(table: dict, market, agreement: str = "joint", actions=
     if min(grid) < need:
         raise InputError(f"{_KEY}.grid", f"the market's {need} key levels (static Nash, agreement, deviations, "
                                          f"punishments) need at least {need} actions per firm, got {min(grid)}")
+    if refine and refine[0] < need:
+        raise InputError(f"{_KEY}.refine", f"the market's {need} key levels need at least {need} actions per firm "
+                                           f"on every grid, got {refine[0]}")
     return spec
+
+
+def _refine_counts(value) -> tuple:
+    key = f"{_KEY}.refine"
+    if not isinstance(value, list) or len(value) > MAX_REFINE:
+        raise InputError(key, f"must be a list of at most {MAX_REFINE} action counts per firm (for example "
+                              f"[8, 16, 32]), got {value!r}")
+    counts = tuple(Integer(2, MAX_GRID).check(f"{key}[{i + 1}]", k) for i, k in enumerate(value))
+    if any(b <= a for a, b in itertools.pairwise(counts)):
+        raise InputError(key, f"the action counts must increase, got {list(counts)}")
+    return counts
 
 
 def estimate_any_punishment(spec: AnyPunishmentSpec) -> dict:
@@ -162,11 +186,16 @@ def estimate_any_punishment(spec: AnyPunishmentSpec) -> dict:
         time on one core.
     """
     n = len(spec.grid)
-    work = estimate_work(spec.grid, n, spec.method, spec.directions)
-    sets = math.ceil(_EVAL_FACTOR * math.log2(1.0 / spec.tolerance)) + 2
-    seconds = sets * _ITERATIONS * work["candidates"] * _SECONDS_PER_CANDIDATE
-    return {"bytes": int(estimate_game_bytes(spec.grid, n) + work["bytes"]), "sets": sets,
-            "candidates": int(work["candidates"]), "seconds": float(seconds)}
+    per_bisection = math.ceil(_EVAL_FACTOR * math.log2(1.0 / spec.tolerance)) + 2
+    sets, seconds, peak, candidates = 0, 0.0, 0.0, 0
+    # the main grid, then each grid of the refinement table (a bisection and one set at delta each)
+    for grid, k in [(spec.grid, per_bisection)] + [((m,) * n, per_bisection + 1) for m in spec.refine]:
+        work = estimate_work(grid, n, spec.method, spec.directions)
+        sets += k
+        seconds += k * _ITERATIONS * work["candidates"] * _SECONDS_PER_CANDIDATE
+        peak = max(peak, estimate_game_bytes(grid, n) + work["bytes"])
+        candidates = max(candidates, int(work["candidates"]))
+    return {"bytes": int(peak), "sets": sets, "candidates": candidates, "seconds": float(seconds)}
 
 
 @dataclass(frozen=True)
@@ -221,6 +250,15 @@ class AnyPunishmentResult(Record):
         Each firm's optimal penal code, its first periods (read from the inner set at ``delta``).
     evaluations : list
         ``[delta, verdict]`` of every discount factor the bisection tried.
+    symmetric : ndarray of shape (4,)
+        The symmetric slice at ``delta`` (three firms or more), the equal profits ``t`` with ``(t, ..., t)`` in
+        the set: ``(min_outer, min_inner, max_inner, max_outer)``. Every equal-profit equilibrium outcome has
+        ``t`` in ``[min_outer, max_outer]`` (outer set); every ``t`` in ``[min_inner, max_inner]`` is one (inner
+        set). Read from the full set, not from its projection on two firms. nan with two firms (whose set is
+        drawn whole), when no set was computed, or where a set misses the diagonal.
+    refinement : GridRefinement or None
+        The answers recomputed on the grids of ``refine`` (:func:`sim.theory.refinement.grid_refinement`) at
+        ``delta``; None when no refinement was asked for or no discount factor below one sustains the agreement.
     """
 
     grid: list
@@ -251,6 +289,8 @@ class AnyPunishmentResult(Record):
     feasible: np.ndarray
     penal_codes: list[PenalCode] = field(default_factory=list)
     evaluations: list = field(default_factory=list)
+    symmetric: np.ndarray = field(default_factory=lambda: np.full(4, np.nan))
+    refinement: GridRefinement | None = None
 
     @property
     def n_firms(self) -> int:
@@ -287,6 +327,16 @@ def _projected_hull(P) -> np.ndarray:
     if P.shape[0] == 0:
         return np.zeros((0, 2))
     return pg.hull(P[:, :2])
+
+
+def _slice(res, n: int) -> np.ndarray:
+    """``(min_outer, min_inner, max_inner, max_outer)`` of the symmetric slice of a payoff set (nan for two firms).
+    The inner slice lies in the outer one because the inner set does (Judd, Yeltekin and Conklin, 2003)."""
+    if n < 3:
+        return np.full(4, np.nan)
+    lo_out, hi_out = symmetric_slice(res.outer_vertices)
+    lo_in, hi_in = symmetric_slice(res.inner_vertices)
+    return np.array([lo_out, lo_in, hi_in, hi_out], dtype=float)
 
 
 def _verdict(profits, gains, worst_low, worst_high, delta: float, inner_empty: bool, outer_empty: bool) -> str:
@@ -333,7 +383,8 @@ def any_punishment_analysis(market, spec: AnyPunishmentSpec, agreement: str = "j
     delta = spec.delta if spec.delta is not None else t.high
     empty = np.zeros((0, 2))
     sets = {"verdict": "", "status": "", "accuracy": math.nan, "worst_low": np.full(n, np.nan),
-            "worst_high": np.full(n, np.nan), "outer": empty, "inner": empty, "penal_codes": []}
+            "worst_high": np.full(n, np.nan), "outer": empty, "inner": empty, "penal_codes": [],
+            "symmetric": np.full(4, np.nan)}
     if math.isfinite(delta):
         res = equilibrium_payoffs(game, delta, method=spec.method, directions=dirs)
         verdict = _verdict(t.profits, gains, res.worst_outer, res.worst_inner, delta,
@@ -348,9 +399,13 @@ def any_punishment_analysis(market, spec: AnyPunishmentSpec, agreement: str = "j
                 "status": res.status, "accuracy": float(res.accuracy), "worst_low": res.worst_outer,
                 "worst_high": res.worst_inner, "outer": _projected_hull(res.outer_vertices),
                 "inner": _projected_hull(res.inner_vertices),
-                "penal_codes": penal_codes(res, game, PENAL_PERIODS)}
+                "penal_codes": penal_codes(res, game, PENAL_PERIODS), "symmetric": _slice(res, n)}
+    refinement = None
+    if spec.refine and math.isfinite(delta):
+        refinement = grid_refinement(market, delta, n_actions=spec.refine, agreement=agreement, actions=actions,
+                                     method=spec.method, directions=dirs, threshold_tol=spec.tolerance)
     return AnyPunishmentResult(
-        grid=[int(x) for x in game.shape], method=spec.method, directions=int(spec.directions),
+        grid=[int(x) for x in game.shape], refinement=refinement, method=spec.method, directions=int(spec.directions),
         tolerance=float(t.tol), agreement=agreement, profile=[int(x) for x in t.profile],
         actions=np.asarray(t.actions, float), profits=np.asarray(t.profits, float), low=float(t.low),
         high=float(t.high), grim=float(t.grim), stick_carrot=float(t.stick_carrot), two_phase=float(t.two_phase),

@@ -96,3 +96,12 @@ def test_learning_section_measures_the_bandit_families_against_their_twins_and_q
         out = bandit_benchmark(family, reference_periods=2_000, kernel_periods=20_000)
         assert out["reference_identical_to_kernel"] is True
         assert out["ratio"] == pytest.approx(out["kernel_periods_per_second"] / out["reference_periods_per_second"])
+
+
+def test_learning_section_measures_alternating_moves_against_their_twin():
+    # structure only: the targets (>= 100 x the twin, within a factor 2 of Q-learning) are judged by supergame bench
+    from sim.bench.learning_alternating import alternating_benchmark
+
+    out = alternating_benchmark(reference_periods=2_000, kernel_periods=20_000)
+    assert out["reference_identical_to_kernel"] is True
+    assert out["ratio"] == pytest.approx(out["kernel_periods_per_second"] / out["reference_periods_per_second"])

@@ -4,6 +4,7 @@ the bundle's, and bad settings are refused in one line before any work."""
 from __future__ import annotations
 
 import json
+import tomllib
 
 import pytest
 
@@ -86,6 +87,12 @@ def test_the_metric_columns_without_the_table_are_unchanged():
         ("grid = 3", ["--grid", "3"], "grid"),
         ("tolerance = 0.5", ["--bracket", "0.5"], "tolerance"),
         ("bogus = 1", None, "bogus"),
+        ("refine = [16, 8]", None, "refine"),
+        ("refine = 8", None, "refine"),
+        ("refine = [3, 8]", None, "refine"),
+        ("refine = [8, 9, 10, 11, 12, 13, 14, 15, 16]", None, "refine"),
+        # the finest grid of the refinement table beyond memory: refused from the cost estimate, naming the table
+        ("refine = [8, 600]", None, "refine"),
     ],
 )
 def test_bad_settings_are_one_line_naming_the_key_with_status_2(tmp_path, capsys, table, flags, key):
@@ -109,3 +116,69 @@ def test_a_refused_grid_writes_no_run_folder(tmp_path, capsys):
     assert main(["run", str(f), "--out", str(tmp_path / "run"), "--quiet"]) == 2
     err = capsys.readouterr().err
     assert "any_punishment.grid" in err and "memory" in err and not (tmp_path / "run").exists()
+
+
+THREE = """
+[experiment]
+kind = "thresholds"
+name = "three-quarries"
+
+[market]
+model = "cournot"
+demand = "linear"
+intercept = 10.0
+slope = 1.0
+cost = [1.0, 1.0, 1.0]
+
+[thresholds]
+punishments = [2]
+
+[any_punishment]
+grid = 5
+directions = 16
+tolerance = 0.01
+delta = 0.4
+"""
+
+
+def test_three_firms_show_and_store_the_symmetric_slice(tmp_path, capsys):
+    """With three firms the run stores the symmetric slice in its own columns (after the existing ones), the
+    command prints its line, the figure's caption names it, and the printed text is the stored result's."""
+    f = tmp_path / "three-quarries.toml"
+    f.write_text(THREE)
+    assert main(["thresholds", str(f)]) == 0
+    printed = capsys.readouterr().out
+    assert "symmetric slice (every firm earning the same profit per period)" in printed
+    assert main(["run", str(f), "--out", str(tmp_path / "run"), "--quiet"]) == 0
+    capsys.readouterr()
+    with open_run(tmp_path / "run") as rf:
+        ap = rf.result(0).any_punishment
+        assert renderer_for("thresholds").console(rf.result(0)) == printed.rstrip("\n")
+        row = rf.rows()[0].metrics
+        drawn = [d for d in renderer_for("thresholds").figures(rf.result(0)) if d.name == "payoff-set"]
+    ends = ("min_outer", "min_inner", "max_inner", "max_outer")
+    assert [row[f"any_punishment.symmetric_slice.{e}"] for e in ends] == pytest.approx(list(ap.symmetric))
+    assert "symmetric slice" in drawn[0].caption
+    names = KIND.metric_names(KIND.prepare(tomllib.loads(THREE)))
+    slice_names = [m for m in names if ".symmetric_slice." in m]
+    assert slice_names == [f"any_punishment.symmetric_slice.{e}" for e in ends]
+
+
+def test_the_refinement_table_is_printed_stored_and_drawn_as_in_the_bundle(tmp_path, capsys):
+    f = tmp_path / "refined.toml"
+    f.write_text(TEXT.replace("grid = 9\n", "grid = 9\nrefine = [9, 18]\n"))
+    assert main(["thresholds", str(f), "--plot", str(tmp_path / "plots")]) == 0
+    printed = capsys.readouterr().out
+    assert "How the answers move with the action grid" in printed and "18 x 18" in printed
+    assert main(["run", str(f), "--out", str(tmp_path / "run"), "--report", "--quiet"]) == 0
+    capsys.readouterr()
+    with open_run(tmp_path / "run") as rf:
+        res = rf.result(0)
+        assert renderer_for("thresholds").console(res) == printed.rstrip("\n")
+        row = rf.rows()[0].metrics
+    # the 9 x 9 row of the table is the main question asked again
+    assert row["any_punishment.refine.actions[1]"] == 9
+    assert row["any_punishment.refine.threshold.upper[1]"] == pytest.approx(row["any_punishment.threshold.upper"])
+    assert row["any_punishment.refine.actions[2]"] == 18
+    command_png = (tmp_path / "plots" / "grid-refinement.png").read_bytes()
+    assert command_png == (tmp_path / "run" / "report" / "figures" / "grid-refinement.png").read_bytes()

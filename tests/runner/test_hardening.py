@@ -142,7 +142,7 @@ def test_out_means_a_run_folder_in_every_command(finished_run, tmp_path, cli):
 
 def test_text_cells_that_look_like_formulas_are_neutralised(tmp_path, write_experiment):
     # OWASP, "CSV Injection": a text cell starting with = + - @ tab or CR is prefixed with an apostrophe
-    from sim.runner.store import csv_text
+    from sim.runner.tabular import csv_text
 
     text = csv_text(["label", "x"], [["=HYPERLINK(\"http://example.invalid\")", -1.5], ["@SUM(A1)", 2],
                                      ["-cmd", 3], ["plain", 4], ["\tx", 5]])

@@ -10,7 +10,8 @@ import numpy as np
 import pytest
 
 from sim.runner.experiment import Parameter
-from sim.runner.store import CellRow, DamagedStore, Store, csv_text, export_table, frame, write_csv, write_parquet
+from sim.runner.store import CellRow, DamagedStore, Store
+from sim.runner.tabular import csv_text, export_table, frame, write_csv, write_parquet
 
 
 def row(i, status="ok", x=None):

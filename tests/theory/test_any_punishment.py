@@ -132,3 +132,130 @@ def test_the_reversal_is_not_an_artefact_of_the_grid(shipped):
     gain = game.best_reply[prof] - game.payoffs[prof]
     bound = np.max(gain / (gain + game.payoffs[prof] - game.minmax))
     assert bound - 1e-12 <= ap.low <= ap.high and math.isfinite(ap.high)
+
+
+# --------------------------------------------------------------------------------------------------
+# The symmetric slice of a three-firm set
+# --------------------------------------------------------------------------------------------------
+
+# symmetric linear Cournot, P = a - b Q, unit cost c, three firms
+A3, B3, C3, N3 = 10.0, 1.0, 1.0, 3
+THREE = {"grid": 5, "directions": 16, "tolerance": 0.01}
+
+
+@pytest.fixture(scope="module", params=[0.25, 0.4])
+def three_firms(request):
+    from sim.models.demand import LinearDemand
+    from sim.models.market import Market
+
+    market = Market(LinearDemand(A3, B3), cost=[C3] * N3)
+    spec = check_any_punishment({**THREE, "delta": request.param}, market)
+    return market, spec, any_punishment_analysis(market, spec)
+
+
+def test_three_firms_keep_the_symmetric_slice_through_json(three_firms):
+    """The slice is stored with the result and read back; a result stored before the slice existed reads back
+    with an empty (nan) slice; two firms store none (their set is drawn whole)."""
+    *_, ap = three_firms
+    back = _round_trip(AnyPunishmentResult, ap)
+    np.testing.assert_array_equal(back.symmetric, ap.symmetric)
+    assert np.all(np.isfinite(ap.symmetric))
+    old = {k: v for k, v in ap.to_dict().items() if k != "symmetric"}
+    assert np.all(np.isnan(AnyPunishmentResult.from_dict(old).symmetric))
+
+
+def test_two_firms_store_no_slice(shipped):
+    *_, ap = shipped
+    assert ap.symmetric.shape == (4,) and np.all(np.isnan(ap.symmetric))
+
+
+def test_the_symmetric_slice_lies_in_the_outer_set(three_firms):
+    """Every end of the slice, as the payoff vector (t, t, t), meets the outer set's half-spaces recomputed here
+    (Judd, Yeltekin and Conklin, 2003, "Computing supergame equilibria", Econometrica 71(4): the outer set is
+    {w : h_l . w <= c_l}, a description the slice, read from the set's vertices, does not use), and the inner
+    slice lies in the outer one. Tolerance: 1e-7 of the payoff scale, the sets' own tolerance being 1e-8."""
+    from sim.theory.payoff_sets import equilibrium_payoffs
+
+    market, spec, ap = three_firms
+    lo_out, lo_in, hi_in, hi_out = ap.symmetric
+    assert lo_out <= lo_in <= hi_in <= hi_out
+    game = discretize(market, list(spec.grid))
+    res = equilibrium_payoffs(game, ap.delta, method="directions", directions=spec.directions)
+    tol = 1e-7 * game.scale
+    for t in ap.symmetric:
+        assert np.all(res.directions @ np.full(N3, t) <= res.outer_levels + tol)
+
+
+def test_the_symmetric_slice_holds_static_nash_and_at_most_the_monopoly_share(three_firms):
+    """Static Nash played forever is an equilibrium (Abreu, Pearce and Stacchetti, 1990, Econometrica 58(5)), so
+    the symmetric Cournot profit (a - c)^2 / (b (n + 1)^2) (Tirole, 1988, The Theory of
+    Industrial Organization, chapter 5, from memory) lies in the inner slice; no feasible payoff gives every firm more
+    than its share of the monopoly profit, (a - c)^2 / (4 b n), which the inner slice reaches when the
+    agreement (joint-profit maximum) is sustained (Abreu, 1988, Econometrica 56(2)). The grid holds both levels
+    (the static Nash and agreed actions are placed on it). Tolerance: 1e-7 of the payoff scale (rounding of the
+    sets and of the slice's linear programmes)."""
+    market, spec, ap = three_firms
+    nash = (A3 - C3) ** 2 / (B3 * (N3 + 1) ** 2)
+    monopoly_share = (A3 - C3) ** 2 / (4 * B3 * N3)
+    tol = 1e-7 * float(np.abs(discretize(market, list(spec.grid)).flat_payoffs).max())
+    _, lo_in, hi_in, hi_out = ap.symmetric
+    assert lo_in - tol <= nash <= hi_in + tol
+    assert hi_out <= monopoly_share + tol
+    if ap.verdict == "sustained":
+        assert hi_in >= monopoly_share - tol
+
+
+# --------------------------------------------------------------------------------------------------
+# The refinement table ([any_punishment] refine)
+# --------------------------------------------------------------------------------------------------
+
+
+@pytest.fixture(scope="module")
+def refined():
+    """The linear Cournot duopoly P = 100 - Q, cost 10, joint-profit agreement, on grids of 8, 15 and 30 actions."""
+    market = market_from_dict({"model": "cournot", "demand": "linear", "intercept": 100.0, "slope": 1.0,
+                               "cost": 10.0, "n_firms": 2})
+    spec = check_any_punishment({"grid": 15, "refine": [8, 15, 30]}, market)
+    return spec, any_punishment_analysis(market, spec)
+
+
+def test_the_refinement_table_round_trips_and_repeats_the_main_grid(refined):
+    _spec, ap = refined
+    back = _round_trip(AnyPunishmentResult, ap)
+    assert [r.n_actions for r in back.refinement.rows] == [(8, 8), (15, 15), (30, 30)]
+    # the table's 15 x 15 row is the main question asked again: the same bracket
+    row = ap.refinement.rows[1]
+    assert row.threshold == pytest.approx((ap.low, ap.high), abs=1e-12)
+    assert ap.refinement.delta == ap.delta
+
+
+def test_the_refinement_table_against_the_closed_forms_on_every_grid(refined):
+    """The key levels lie on every grid, so the named schemes' thresholds are the continuous ones on each: grim
+    trigger 9/17 in the linear Cournot duopoly (Friedman, 1971; (n+1)^2 / (n^2 + 6n + 1) at n = 2) and the optimal
+    symmetric stick and carrot 9/32 (Abreu, 1986, JET 39, from memory). The best punishment never needs more
+    patience than a named scheme on the same grid (its equilibria are in the set: Abreu, Pearce and Stacchetti,
+    1990), and the bracket narrows to within the bisection's tolerance."""
+    spec, ap = refined
+    for r in ap.refinement.rows:
+        assert r.grim == pytest.approx(9 / 17, abs=1e-9)
+        assert r.stick_carrot == pytest.approx(9 / 32, abs=1e-6)
+        low, high = r.threshold
+        assert low < high <= r.stick_carrot + 1e-9 and high - low <= 2 * spec.tolerance
+    # here the finer grids offer harsher (asymmetric) punishments and the answer falls; the grids are built around
+    # the same key levels but are not nested, so this is a check of this market, not a general law
+    highs = [r.threshold[1] for r in ap.refinement.rows]
+    assert highs[2] <= highs[1] + 2 * spec.tolerance and highs[1] <= highs[0] + 2 * spec.tolerance
+
+
+def test_the_refinement_grids_are_validated_before_any_work():
+    market = market_from_dict({"model": "cournot", "demand": "linear", "intercept": 100.0, "slope": 1.0,
+                               "cost": 10.0, "n_firms": 2})
+    from sim.core.errors import InputError
+    from sim.theory.any_punishment import estimate_any_punishment
+    for bad in ([16, 8], [8, 8], 8, [1], list(range(8, 17))):
+        with pytest.raises(InputError) as e:
+            check_any_punishment({"refine": bad}, market)
+        assert e.value.key.startswith("any_punishment.refine")
+    plain = estimate_any_punishment(check_any_punishment({"grid": 15}, market))
+    more = estimate_any_punishment(check_any_punishment({"grid": 15, "refine": [8, 30]}, market))
+    assert more["sets"] > plain["sets"] and more["seconds"] > plain["seconds"] and more["bytes"] >= plain["bytes"]

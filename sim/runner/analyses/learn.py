@@ -67,7 +67,24 @@ def _learn_names(cfg: dict) -> list[str]:
         out += trigger_names(i + 1)
     if cfg.get("event") is not None:
         out += event_names(n)
+    if cfg["settings"].get("timing") == "alternating":
+        out += list(ALTERNATING_NAMES)
     return out
+
+
+#: the columns of alternating sessions' account (after every other column of a learn cell): where the sessions end,
+#: a fixed price pair or a cycle (Klein, 2021), with each entry of ``summary["alternating"]`` they come from
+ALTERNATING_NAMES = {
+    "fixed_price_share": ("fixed_price", "share"), "fixed_price_share.low": ("fixed_price", "low"),
+    "fixed_price_share.high": ("fixed_price", "high"),
+    "fixed_above_nash_share": ("fixed_above_nash", "share"), "fixed_above_nash_share.low": ("fixed_above_nash", "low"),
+    "fixed_above_nash_share.high": ("fixed_above_nash", "high"),
+    "fixed_collusive_share": ("fixed_collusive", "share"),
+    "cycle_share": ("cycle", "share"), "cycle_share.low": ("cycle", "low"), "cycle_share.high": ("cycle", "high"),
+    "cycle_length": ("cycle_length", "mean"), "cycle_length.low": ("cycle_length", "low"),
+    "cycle_length.high": ("cycle_length", "high"),
+    "profit_gain_fixed": ("profit_gain_fixed", "mean"), "profit_gain_cycle": ("profit_gain_cycle", "mean"),
+}
 
 
 def event_names(n_firms: int) -> list[str]:
@@ -201,6 +218,10 @@ def learn_metrics(res: LearnResult) -> dict:
             m[f"event_price_before.{f}"] = ev["before"][i]["mean"]
             for k, src in (("", "mean"), (".low", "low"), (".high", "high")):
                 m[f"event_price_change.{f}{k}"] = ch[src]
+    alt = sm.get("alternating")
+    if alt:
+        for name, (entry, src) in ALTERNATING_NAMES.items():
+            m[name] = alt[entry][src]
     return m
 
 
@@ -254,5 +275,8 @@ KIND = Kind(
         "(95 % intervals: Student t for means, Wilson for shares) and measure simulation error only.",
         "Learned outcomes depend on the algorithm's settings (learning rate, exploration, grid, memory); they show "
         "what such algorithms can learn in this model, not what a particular pricing software does.",
+
+        "With learning.timing = 'alternating', two Q-learners set their prices in turn and each price holds for two "
+        "periods (Klein, 2021, RAND Journal of Economics 52(3)); no impulse response is computed for them.",
     ),
 )

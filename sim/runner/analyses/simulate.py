@@ -83,6 +83,27 @@ def one_shot_deviator(strategy, levels, seat: int, prefix: str = "deviation"):
     transitions are those of the original initial state, so after period 0 the deviator follows its
     strategy (reacting to its own deviation like any other). Strategies that already cheat at random
     are refused (give ``deviation.strategy`` instead).
+
+    Parameters
+    ----------
+    strategy : Automaton
+        The seat's strategy.
+    levels : StageLevels
+        The named profiles of the stage game the strategy's table is built on.
+    seat : int
+        The deviating seat, counted from 0.
+    prefix : str
+        Key path of the deviation's table in error messages.
+
+    Returns
+    -------
+    TableAutomaton
+        The strategy's states and a new initial state that cheats in period 0.
+
+    Raises
+    ------
+    InputError
+        ``prefix.firm`` when the seat's strategy already cheats at random.
     """
 
     t = strategy.table(f"strategies[{seat + 1}]", FirmContext(levels, seat))

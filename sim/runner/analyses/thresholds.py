@@ -47,8 +47,10 @@ def thresholds_cost(cfg: dict) -> Cost:
     if ap is not None:
         # the payoff arrays and the sets of the any-punishment part dwarf the schemes: they name the setting
         est = estimate_any_punishment(ap)
+        # the largest grid names the setting to lower: the main grid or the finest of the refinement table
+        key = "any_punishment.refine" if ap.refine and max(ap.refine) > max(ap.grid) else "any_punishment.grid"
         return Cost(memory + est["bytes"], float(calls + est["sets"]), "solver calls",
-                    seconds + est["seconds"], "any_punishment.grid")
+                    seconds + est["seconds"], key)
     return Cost(memory, float(calls), "solver calls", seconds, "thresholds.deltas")
 
 
@@ -113,6 +115,7 @@ def _threshold_names(cfg: dict) -> list[str]:
     out.append("tied_firms.stick_carrot")
     if cfg.get("any_punishment") is not None:
         out += _any_punishment_names(n)
+        out += _refinement_names(len(cfg["any_punishment"].refine))
     return out + part_names(cfg)
 
 
@@ -123,7 +126,25 @@ def _any_punishment_names(n: int) -> list[str]:
             "any_punishment.delta", "any_punishment.sustained", "any_punishment.accuracy"]
     out += [f"any_punishment.worst.lower.firm{i + 1}" for i in range(n)]
     out += [f"any_punishment.worst.upper.firm{i + 1}" for i in range(n)]
+    if n >= 3:  # the symmetric slice (two firms: the set is drawn whole, and their columns stay as they were)
+        out += [f"any_punishment.symmetric_slice.{e}" for e in _SLICE_ENDS]
     return out
+
+
+def _refinement_names(k: int) -> list[str]:
+    return [f"any_punishment.refine.{f}[{j + 1}]" for j in range(k) for f in _REFINE_FIELDS]
+
+
+#: the columns of each grid of the refinement table
+_REFINE_FIELDS = ("actions", "threshold.lower", "threshold.upper", "grim", "stick_carrot", "accuracy")
+
+
+def _refinement_metrics(ap) -> dict:
+    m: dict = {}
+    for j, r in enumerate(ap.refinement.rows if ap.refinement is not None else ()):
+        vals = (max(r.n_actions), r.threshold[0], r.threshold[1], r.grim, r.stick_carrot, r.accuracy)
+        m.update({f"any_punishment.refine.{f}[{j + 1}]": float(v) for f, v in zip(_REFINE_FIELDS, vals)})
+    return m
 
 
 def _any_punishment_metrics(ap, n: int) -> dict:
@@ -138,7 +159,14 @@ def _any_punishment_metrics(ap, n: int) -> dict:
         m[f"any_punishment.worst.lower.firm{i + 1}"] = float(ap.worst_low[i])
     for i in range(n):
         m[f"any_punishment.worst.upper.firm{i + 1}"] = float(ap.worst_high[i])
+    if n >= 3:
+        m.update({f"any_punishment.symmetric_slice.{e}": float(v) for e, v in zip(_SLICE_ENDS, ap.symmetric)})
+    m.update(_refinement_metrics(ap))
     return m
+
+
+#: the ends of the symmetric slice, in the order of ``AnyPunishmentResult.symmetric``
+_SLICE_ENDS = ("min_outer", "min_inner", "max_inner", "max_outer")
 
 
 _TP_FIELDS = ("quantity", "trigger", "war_length", "war_probability", "expected_collusive_spell", "war_share",
