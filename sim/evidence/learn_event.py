@@ -77,7 +77,26 @@ def event_lines(res) -> list[str]:
     if changes:
         lines.append(f"  change of the limit {act} from the last period before the event (settled sessions): "
                      + "; ".join(changes))
-    return lines
+    return lines + _merger_lines(ev.get("merger"), firms, act)
+
+
+def _merger_lines(mg: dict | None, firms: list[str], act: str) -> list[str]:
+    """After a merger: the static merger effect beside the learned change of every firm's price."""
+    if not mg:
+        return []
+    if not mg.get("available"):
+        return ["  static merger effect: not available (the market model has no multi-product firm for a "
+                "homogeneous good)"]
+    rows = []
+    for i, name in enumerate(firms):
+        static, learned = _num(mg["static_change"][i]), _num(mg["learned_change"][i])
+        verdict = "-" if math.isnan(learned) else ("more" if learned > static else "less")
+        rows.append([name, fmt_num(_num(mg["nash_prices_before"][i])), fmt_num(_num(mg["nash_prices"][i])),
+                     fmt_num(static), fmt_num(learned), verdict])
+    return ["  the merger's static effect: static-Nash prices with the merged firm setting its products' prices "
+            "jointly (Deneckere and Davidson, 1985), against the learned change",
+            table(["firm", f"Nash {act} before", f"Nash {act} after", "static change", "learned change",
+                   "learned rose"], rows)]
 
 
 def event_figure(res):
@@ -112,6 +131,10 @@ def event_figure(res):
     ax.axhline(float(np.mean(bm[f"nash_{which}"])), color="grey", ls=":", lw=1, label=f"static Nash {act} after")
     ax.axhline(float(np.mean(bm[f"collusive_{which}"])), color="grey", ls="--", lw=1,
                label=f"joint-profit {act} after")
+    mg = ev.get("merger") or {}
+    if mg.get("available"):
+        ax.axhline(float(np.mean(mg["nash_actions"])), color="black", ls="-.", lw=1,
+                   label=f"static Nash {act}\nafter the merger")
     ax.axvline(0.0, color="black", lw=0.6)
     ax.set_xlabel("periods after the event (0: the last period before it)", fontsize=FONT)
     ax.set_ylabel(act, fontsize=FONT)
@@ -123,4 +146,6 @@ def event_figure(res):
                  f"Mean {act}s over sessions after the event ({ev['what']}); each point averages the periods since "
                  f"the previous one, the point at 0 is the last period before the event; bands: {level} confidence "
                  f"intervals across sessions; dotted and dashed: the static-Nash and joint-profit {act}s of the "
-                 "market after the event (means over firms).")
+                 "market after the event (means over firms)"
+                 + (f"; dash-dotted: the static-Nash {act} with the merged firm setting its products' {act}s "
+                    "jointly (mean over firms)." if mg.get("available") else "."))

@@ -12,9 +12,14 @@ every saved session (``[learning] continue_from``) after an *event*, given in it
     entrant's last price; each learner starts from what it knew, whatever the entrant's price (the Q-values of every
     new state are those of the saved state it extends), and the entrant starts in its initial state, its last price
     taken to be the one it plays there.
+``kind = "merger"``
+    two or more learners' products merge into one firm (``firms``: the merging firms, numbered from 1): the market
+    and the line-up are the saved ones; each merged product is still priced by its own learner, which keeps its
+    grid, Q-values, history and random stream, but is rewarded with the merged firm's profit (the sum of the merged
+    products' profits; :mod:`sim.learning.merger`, which also gives the static Nash prices after the merger).
 
-Either way the convergence counter is reset at the event (a session counts as settled again once no greedy strategy
-has changed for ``convergence`` periods after it), ``max_periods`` counts the periods after the event, and the
+Whatever the event, the convergence counter is reset at the event (a session counts as settled again once no greedy
+strategy has changed for ``convergence`` periods after it), ``max_periods`` counts the periods after the event, and the
 learners' exploration goes on from where it was (``exp(-beta t)``, ``t`` counted from the start of the saved
 session). The path of prices played in the ``periods`` periods after the event is recorded in bins (means over
 equal spans of periods; the bin before the event holds the prices of the last period before it), and the periods
@@ -38,6 +43,7 @@ from sim.core.params import Integer
 from sim.core.tables import refuse_unknown
 from sim.learning import kernel as K
 from sim.learning.inputs import STATUS_CAP, STATUS_CONVERGED, new_triggers
+from sim.learning.merger import check_merger
 from sim.learning.saved import SavedLearners, check_family, describe_layout
 from sim.simulation.results import mean_estimate, wilson_estimate
 from strategies.qlearning import QLearner
@@ -46,9 +52,10 @@ __all__ = ["EVENT_KEYS", "EVENT_KINDS", "Event", "adapt_saved", "event_from_tabl
            "with_saved_grids"]
 
 #: keys of the [event] table
-EVENT_KEYS = ("kind", "periods")
-#: what may happen: a changed market (cost or demand shock), or the entry of a firm playing an automaton
-EVENT_KINDS = ("market", "entry")
+EVENT_KEYS = ("kind", "periods", "firms")
+#: what may happen: a changed market (cost or demand shock), the entry of a firm playing an automaton, or a merger
+#: of learners' products into one firm
+EVENT_KINDS = ("market", "entry", "merger")
 #: the price path after an event is kept in at most this many bins
 TRACK_BINS = 100
 
@@ -60,16 +67,19 @@ class Event:
     Attributes
     ----------
     kind : str
-        ``"market"`` or ``"entry"``.
+        ``"market"``, ``"entry"`` or ``"merger"``.
     periods : int
         Periods after the event whose prices are recorded (a multiple of the number of bins).
     bins : int
         Bins of the recorded price path.
+    firms : tuple of int
+        A merger's merging firms, numbered from 1, increasing (empty for other events).
     """
 
     kind: str
     periods: int
     bins: int
+    firms: tuple = ()
 
 
 def event_from_table(tab) -> Event:
@@ -78,7 +88,8 @@ def event_from_table(tab) -> Event:
     Parameters
     ----------
     tab : dict
-        ``kind`` (required: ``"market"`` or ``"entry"``) and ``periods`` (default 1000, 1 to 10**7).
+        ``kind`` (required: ``"market"``, ``"entry"`` or ``"merger"``), ``periods`` (default 1000, 1 to 10**7) and,
+        for a merger only (required there), ``firms``: two or more distinct firm numbers from 1.
 
     Returns
     -------
@@ -88,7 +99,7 @@ def event_from_table(tab) -> Event:
     Raises
     ------
     InputError
-        Naming ``event.kind`` or ``event.periods``.
+        Naming ``event.kind``, ``event.periods`` or ``event.firms``.
     """
     tab = refuse_unknown(tab, "event", EVENT_KEYS)
     kind = tab.get("kind")
@@ -96,7 +107,23 @@ def event_from_table(tab) -> Event:
         raise InputError("event.kind", f"must be one of {', '.join(repr(k) for k in EVENT_KINDS)}, got {kind!r}")
     periods = Integer(1, 10_000_000).check("event.periods", tab.get("periods", 1000))
     bins = min(TRACK_BINS, periods)
-    return Event(kind, periods // bins * bins, bins)
+    return Event(kind, periods // bins * bins, bins, _merging_firms(tab, kind))
+
+
+def _merging_firms(tab: dict, kind: str) -> tuple:
+    """``event.firms``: required for a merger (two or more distinct firm numbers from 1), refused otherwise."""
+    firms = tab.get("firms")
+    if kind != "merger":
+        if firms is not None:
+            raise InputError("event.firms", f"names the merging firms of kind = 'merger'; this event is {kind!r}")
+        return ()
+    if not isinstance(firms, list | tuple) or any(isinstance(f, bool) or not isinstance(f, int) for f in firms):
+        raise InputError("event.firms", f"must list the merging firms by number from 1 (e.g. [1, 2]), got {firms!r}")
+    if len(set(firms)) < 2:
+        raise InputError("event.firms", f"a merger joins two or more distinct firms, got {list(firms)}")
+    if min(firms) < 1:
+        raise InputError("event.firms", f"firms are numbered from 1, got {list(firms)}")
+    return tuple(sorted(set(firms)))
 
 
 def with_saved_grids(learner, saved: SavedLearners, n_firms: int, event: Event) -> list:
@@ -121,7 +148,7 @@ def with_saved_grids(learner, saved: SavedLearners, n_firms: int, event: Event) 
     ------
     InputError
         ``market.n_firms`` when the firms do not fit the event, ``strategies`` when the entrant is missing or is a
-        learner.
+        learner, ``event.firms`` when a merging firm is not a learner's seat.
     """
     seats = saved.header.get("seats") or []
     want = len(seats) + (event.kind == "entry")
@@ -135,6 +162,13 @@ def with_saved_grids(learner, saved: SavedLearners, n_firms: int, event: Event) 
     if event.kind == "entry" and isinstance(lineup[-1], QLearner):
         raise InputError("strategies", "an entry event needs the entrant, an automaton, as the last [[strategies]] "
                                        "entry")
+    for f in event.firms:
+        if not 1 <= f <= n_firms:
+            raise InputError("event.firms", f"firm {f} is not a firm of the market (1 to {n_firms}), got "
+                                            f"{list(event.firms)}")
+        if not isinstance(lineup[f - 1], QLearner):
+            raise InputError("event.firms", f"firm {f} plays an automaton; a merger joins the products of learners "
+                                            "(strategy = 'qlearning')")
     for i, seat in enumerate(seats):
         if isinstance(lineup[i], QLearner) and lineup[i].grid is None and seat.get("strategy") == "qlearning":
             lineup[i].grid = list(seat["grid"])
@@ -177,7 +211,9 @@ def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: 
     if saved.n_sessions != sessions:
         raise InputError(key, f"holds {saved.n_sessions} saved sessions; the run has {sessions} (run.sessions must "
                               "match: each session continues one saved session)")
-    if event.kind == "market" and saved.Q.shape[1:] != lineup.q0.shape:
+    if event.kind == "merger":
+        check_merger(event.firms, lineup)
+    if event.kind != "entry" and saved.Q.shape[1:] != lineup.q0.shape:
         raise InputError(key, f"its Q-values have shape {saved.Q.shape[1:]} per session, this line-up "
                               f"{lineup.q0.shape}")
 
@@ -217,7 +253,8 @@ def adapt_saved(saved: SavedLearners, lineup, event: Event) -> SavedLearners:
     """
     clock = saved.clock.copy()
     clock[:, 1] = 0
-    if event.kind == "market":
+    if event.kind != "entry":
+        # a changed market or a merger: the same seats and states, only the learners' rewards change
         return SavedLearners(saved.Q.copy(), saved.greedy.copy(), saved.history.copy(), saved.z.copy(),
                              saved.rng.copy(), clock, saved.status.copy(), saved.triggers.copy(), dict(saved.header),
                              saved.counts.copy(), saved.sums.copy())
@@ -291,14 +328,15 @@ def run_tracked(lineup, session, s: int, convergence: int, cap: int, path: np.nd
             if status == STATUS_CONVERGED or t >= cap:
                 acc += last
                 continue
-            status, t, s = K.run_session(lineup.seats, stage, lineup.automata, session, s, convergence, t + 1)
+            status, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s, convergence,
+                                         t + 1)
             if status == STATUS_CAP and t < cap:
                 status = -1  # one period played, not settled: go on
             last = stage.prices[s % m]
             acc += last
         path[b + 1] = acc / per
     if status != STATUS_CONVERGED and t < cap:
-        status, t, s = K.run_session(lineup.seats, stage, lineup.automata, session, s, convergence, cap)
+        status, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s, convergence, cap)
     return (STATUS_CONVERGED if status == STATUS_CONVERGED else STATUS_CAP), t, s
 
 
@@ -312,7 +350,7 @@ def _mean(x, level: float) -> dict:
 
 
 def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged: np.ndarray,
-                  limit_prices: np.ndarray, what: str, level: float = 0.95) -> dict:
+                  limit_prices: np.ndarray, what: str, level: float = 0.95, merger: dict | None = None) -> dict:
     """How prices moved after the event and how long the learners took to settle again, across sessions.
 
     Parameters
@@ -330,6 +368,10 @@ def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged:
         The event in words.
     level : float
         Confidence level (normal approximation for means, Wilson for shares, as in :mod:`sim.simulation.results`).
+    merger : dict, optional
+        After a merger: its static benchmarks (:func:`sim.learning.merger.merger_benchmarks`), kept as ``merger``
+        with ``learned_change`` added (per firm: the mean over settled sessions of the limit price minus the price
+        before the event, as in ``change``).
 
     Returns
     -------
@@ -339,7 +381,8 @@ def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged:
         of n_firms, across all sessions), ``before`` and ``change`` (per firm: the price in the last period before
         the event, and each session's limit price after settling minus it, over the settled sessions),
         ``settled`` (share of sessions that settled again) and ``settle_periods`` (periods from the event to the
-        last change of a greedy strategy over the settled sessions: mean with its interval, median, 5 % and 95 %).
+        last change of a greedy strategy over the settled sessions: mean with its interval, median, 5 % and 95 %);
+        after a merger also ``merger``.
     """
     n, rows, f = path.shape
     per = event.periods // event.bins
@@ -354,7 +397,7 @@ def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged:
     k = int(ok.sum())
     sh = wilson_estimate(k, n, level)
     q = np.quantile(st, (0.05, 0.5, 0.95)) if st.size else np.full(3, np.nan)
-    return {
+    out = {
         "kind": event.kind, "what": what, "periods": event.periods,
         "bin_periods": [0] + [per * (b + 1) for b in range(event.bins)],
         "prices": {"mean": mean.tolist(), "low": low.tolist(), "high": high.tolist()},
@@ -363,3 +406,6 @@ def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged:
         "settled": {"share": sh.value, "low": sh.low, "high": sh.high, "count": k, "n": int(n)},
         "settle_periods": {**_mean(st, level), "q05": float(q[0]), "q50": float(q[1]), "q95": float(q[2])},
     }
+    if merger is not None:
+        out["merger"] = {**merger, "learned_change": [d["mean"] for d in out["change"]]}
+    return out

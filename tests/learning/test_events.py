@@ -99,7 +99,7 @@ def test_synchronous_myopic_learners_settle_at_a_grid_equilibrium_of_the_market_
 def test_the_event_table_is_read_and_refused_by_key():
     assert event_from_table({"kind": "entry", "periods": 250}) == Event("entry", 200, 100)
     assert event_from_table({"kind": "market", "periods": 30}) == Event("market", 30, 30)
-    for tab, key in (({"kind": "merger"}, "event.kind"), ({}, "event.kind"), ({"kind": "entry", "periods": 0},
+    for tab, key in (({"kind": "takeover"}, "event.kind"), ({}, "event.kind"), ({"kind": "entry", "periods": 0},
                      "event.periods"), ({"kind": "entry", "when": 3}, "event.when")):
         with pytest.raises(sim.InputError) as e:
             event_from_table(tab)
