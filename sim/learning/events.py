@@ -7,11 +7,14 @@ every saved session (``[learning] continue_from``) after an *event*, given in it
     a cost or demand shock: the second run's ``[market]`` differs from the saved one (same firms); the learners keep
     their grids, Q-values, history and random stream, and go on learning in the changed market;
 ``kind = "entry"``
-    a new firm playing an automaton enters: the second run's market has one more firm, and its line-up is the saved
-    one with the entrant's strategy as the last ``[[strategies]]`` entry. The learners' states now include the
-    entrant's last price; each learner starts from what it knew, whatever the entrant's price (the Q-values of every
-    new state are those of the saved state it extends), and the entrant starts in its initial state, its last price
-    taken to be the one it plays there.
+    a new firm enters, playing an automaton or priced by a new learner: the second run's market has one more firm,
+    and its line-up is the saved one with the entrant's strategy as the last ``[[strategies]]`` entry. The learners'
+    states now include the entrant's last price; each learner starts from what it knew, whatever the entrant's price
+    (the Q-values of every new state are those of the saved state it extends). An automaton entrant starts in its
+    initial state, its last price taken to be the one it plays there; a learner entrant starts as a new learner of
+    its table would (its initial Q-values and greedy actions, no bandit statistics), its last price taken to be its
+    initial greedy action in the first state (the same in every state under the usual initial values), and its
+    exploration follows the session's clock like everyone's (``exp(-beta t)``, ``t`` from the saved session's start).
 ``kind = "merger"``
     two or more learners' products merge into one firm (``firms``: the merging firms, numbered from 1): the market
     and the line-up are the saved ones; each merged product is still priced by its own learner, which keeps its
@@ -142,13 +145,14 @@ def with_saved_grids(learner, saved: SavedLearners, n_firms: int, event: Event) 
     -------
     list
         One strategy per seat; a learner given without its own grid takes the saved seat's grid (the grids do not
-        move with the market: the learners keep their prices).
+        move with the market: the learners keep their prices). An entrant learner without a grid gets the grid a new
+        learner of the market after the entry would.
 
     Raises
     ------
     InputError
-        ``market.n_firms`` when the firms do not fit the event, ``strategies`` when the entrant is missing or is a
-        learner, ``event.firms`` when a merging firm is not a learner's seat.
+        ``market.n_firms`` when the firms do not fit the event, ``event.firms`` when a merging firm is not a
+        learner's seat.
     """
     seats = saved.header.get("seats") or []
     want = len(seats) + (event.kind == "entry")
@@ -159,9 +163,6 @@ def with_saved_grids(learner, saved: SavedLearners, n_firms: int, event: Event) 
         lineup = [copy.deepcopy(x) for x in learner]
     else:
         lineup = [copy.deepcopy(learner) for _ in range(n_firms)]
-    if event.kind == "entry" and isinstance(lineup[-1], QLearner):
-        raise InputError("strategies", "an entry event needs the entrant, an automaton, as the last [[strategies]] "
-                                       "entry")
     for f in event.firms:
         if not 1 <= f <= n_firms:
             raise InputError("event.firms", f"firm {f} is not a firm of the market (1 to {n_firms}), got "
@@ -213,14 +214,23 @@ def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: 
                               "match: each session continues one saved session)")
     if event.kind == "merger":
         check_merger(event.firms, lineup)
+    if event.kind == "entry" and lineup.learners[-1] is not None:
+        k_old = max([int(a.get("k") or 0) for a in old] + [1])
+        if lineup.learners[-1].k > k_old:
+            raise InputError("strategies", f"the entrant learner's memory k = {lineup.learners[-1].k} exceeds the "
+                                           f"saved sessions' longest memory {k_old}, whose history holds {k_old} "
+                                           f"period(s); give the entrant k <= {k_old}")
     if event.kind != "entry" and saved.Q.shape[1:] != lineup.q0.shape:
         raise InputError(key, f"its Q-values have shape {saved.Q.shape[1:]} per session, this line-up "
                               f"{lineup.q0.shape}")
 
 
 def _entrant_action(lineup) -> int:
-    """The action index the entrant (the last seat) plays in its initial state."""
+    """The action index the entrant (the last seat) plays in its initial state: an automaton's action there, or a
+    new learner's greedy action in the first state."""
     au, i = lineup.automata, lineup.n_seats - 1
+    if lineup.learners[i] is not None:
+        return int(lineup.initial_greedy()[int(lineup.seats.lidx[i]), 0])
     z0 = int(lineup.z0[i])
     return int(au.act_of_level[i, au.states[i, z0, SS.ACTION]])
 
@@ -261,9 +271,15 @@ def adapt_saved(saved: SavedLearners, lineup, event: Event) -> SavedLearners:
     n = saved.n_sessions
     m_new = int(lineup.stage.M)
     m_old = m_new // int(lineup.seats.radix[-1])
+    # every learner starts as a new one would; the incumbents then take what they knew (an entrant learner keeps
+    # its initial values and greedy actions)
     q = np.repeat(lineup.q0[None], n, axis=0)
     greedy = np.zeros((n, *lineup.q0.shape[:2]), dtype=np.int64)
-    for i in lineup.learner_seats:
+    n_old = saved.z.shape[1]
+    if lineup.learners[-1] is not None:
+        li_e = int(lineup.seats.lidx[-1])
+        greedy[:, li_e] = lineup.initial_greedy()[li_e]
+    for i in [i for i in lineup.learner_seats if i < n_old]:
         li, k, m = int(lineup.seats.lidx[i]), lineup.learners[i].k, int(lineup.seats.radix[i])
         s_new = np.arange(m_new**k)
         s_old = _old_state(s_new, k, m_new, m_old)
@@ -280,8 +296,8 @@ def adapt_saved(saved: SavedLearners, lineup, event: Event) -> SavedLearners:
     # a bandit's statistics do not depend on the state; an entrant learner starts with none
     counts = np.zeros((n, lineup.q0.shape[0], lineup.q0.shape[2]), dtype=np.int64)
     sums = np.zeros(counts.shape)
-    n_old, m_old_max = saved.counts.shape[1], saved.counts.shape[2]
-    counts[:, :n_old, :m_old_max], sums[:, :n_old, :m_old_max] = saved.counts, saved.sums
+    l_old, m_old_max = saved.counts.shape[1], saved.counts.shape[2]
+    counts[:, :l_old, :m_old_max], sums[:, :l_old, :m_old_max] = saved.counts, saved.sums
     return SavedLearners(q, greedy, history, z, saved.rng.copy(), clock, saved.status.copy(), triggers,
                          dict(saved.header), counts, sums)
 

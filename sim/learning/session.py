@@ -205,6 +205,8 @@ def _event_words(saved: SavedLearners, lineup: Lineup, market: dict | None, even
     """The event in words: the market settings that changed, or the entrant and its strategy."""
     if event.kind == "merger":
         return merger_words(event.firms)
+    if event.kind == "entry" and lineup.learners[-1] is not None:
+        return f"firm {lineup.n_seats} enters, priced by a new learner"
     if event.kind == "entry":
         return f"firm {lineup.n_seats} enters, playing {lineup.names[-1].replace('_', ' ')}"
     old = saved.header.get("market") or {}

@@ -106,11 +106,11 @@ def test_the_event_table_is_read_and_refused_by_key():
         assert e.value.key == key
 
 
-def test_an_entry_needs_one_more_firm_and_an_automaton_last(saved):
+def test_an_entry_needs_one_more_firm(saved):
     ev = Event("entry", 100, 10)
     with pytest.raises(sim.InputError) as e:
         with_saved_grids(QLearner(m=5), saved, 2, ev)
     assert e.value.key == "market.n_firms"
-    with pytest.raises(sim.InputError) as e:
-        with_saved_grids(QLearner(m=5), saved, 3, ev)
-    assert e.value.key == "strategies"
+    # a learner may enter: the incumbents take the saved grids, the entrant keeps its own (none: the market's)
+    lineup = with_saved_grids(QLearner(m=5), saved, 3, ev)
+    assert lineup[0].grid is not None and lineup[1].grid is not None and lineup[2].grid is None
