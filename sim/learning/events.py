@@ -46,7 +46,7 @@ from sim.core.params import Integer
 from sim.core.tables import refuse_unknown
 from sim.learning import kernel as K
 from sim.learning.inputs import STATUS_CAP, STATUS_CONVERGED, new_triggers
-from sim.learning.merger import check_merger
+from sim.learning.merger import check_merger, refuse_merged
 from sim.learning.saved import SavedLearners, check_family, describe_layout
 from sim.simulation.results import mean_estimate, wilson_estimate
 from strategies.qlearning import QLearner
@@ -196,6 +196,7 @@ def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: 
     InputError
         Naming ``key``.
     """
+    refuse_merged(saved, key)
     old, new = saved.header.get("seats") or [], describe_layout(lineup)
     for i, (a, b) in enumerate(zip(old, new)):
         firm = f"firm {i + 1}"

@@ -29,7 +29,7 @@ import numpy as np
 from sim.core.errors import InputError
 from sim.theory.nash import static_nash
 
-__all__ = ["check_merger", "merged_lineup", "merger_benchmarks", "merger_words"]
+__all__ = ["check_merger", "merged_lineup", "merger_benchmarks", "merger_words", "refuse_merged"]
 
 
 def check_merger(firms: tuple, lineup, key: str = "event.firms") -> None:
@@ -60,6 +60,27 @@ def check_merger(firms: tuple, lineup, key: str = "event.firms") -> None:
         if c.family != "q":
             raise InputError(key, f"firm {f} is a bandit (family {c.family!r}); a merger joins the products of "
                                   "Q-learners (family 'q')")
+
+
+def refuse_merged(saved, key: str = "learning.continue_from") -> None:
+    """Refuse to continue sessions saved after a merger: their learners would silently go back to their products' own
+    profits (the saved line-up records the seats, not the merged firm's reward).
+
+    Parameters
+    ----------
+    saved : sim.learning.saved.SavedLearners
+    key : str
+        Key path of the saved file, for error messages.
+
+    Raises
+    ------
+    InputError
+        Naming ``key``, when the saved header records a merger (``merged``).
+    """
+    merged = saved.header.get("merged")
+    if merged:
+        raise InputError(key, f"holds sessions saved after a merger of firms {merged}; continuing them again is not "
+                              "supported (their learners would go back to their own products' profits)")
 
 
 def merged_lineup(lineup, firms: tuple):

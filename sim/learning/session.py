@@ -79,7 +79,7 @@ from sim.learning.alternating import (
 from sim.learning.events import Event, adapt_saved, check_event, run_tracked
 from sim.learning.inputs import STATUS_CONVERGED, DeviationInputs, LimitOutputs, SessionState
 from sim.learning.lineup import Lineup, available_memory, compile_lineup
-from sim.learning.merger import merged_lineup, merger_benchmarks, merger_words
+from sim.learning.merger import merged_lineup, merger_benchmarks, merger_words, refuse_merged
 from sim.learning.results import (
     CYCLE_STORE,
     IR_POINTS,
@@ -194,6 +194,7 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         if event.kind == "merger":
             lineup = merged_lineup(lineup, event.firms)
     elif start is not None:
+        refuse_merged(start)
         check_start(start, lineup, market_doc, run["sessions"])
     if keep:
         _check_kept_memory(lineup, run["sessions"])
@@ -368,6 +369,8 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
     if keep:
         header = {"market": market, "seats": describe_layout(lineup), "sessions": n, "seed": settings["seed"],
                   "cell": settings["cell"]}
+        if event is not None and event[0].kind == "merger":
+            header["merged"] = list(event[0].firms)
         saved = SavedLearners(**buf.saved, status=buf.status.copy(), header=header)
     ev = None if event is None else {"event": event[0], "what": event[1], "path": buf.path, "settle": buf.settle}
     if ev is not None and event[0].kind == "merger":

@@ -152,3 +152,16 @@ def test_a_merger_to_monopoly_raises_the_learned_prices(still_learning):
     assert rise.mean() < np.mean(mg["static_change"])
     # the limit profits reported are the products' own (not the merged firm's total counted twice)
     assert np.all(res.limit_profits.sum(axis=1) <= 2 * res.lineup.collusive_profits[0] + 1e-9)
+
+
+def test_sessions_saved_after_a_merger_are_not_continued_silently_as_if_unmerged(still_learning):
+    # the saved line-up records the seats, not the merged firm's reward: continuing would quietly undo the merger
+    ev = Event("merger", 100, 10, (1, 2))
+    lu = with_saved_grids(QLearner(m=7, beta=1e-4), still_learning.saved, 2, ev)
+    after = learn(logit_market(), lu, sessions=16, seed=2, convergence=500, max_periods=2000, workers=2,
+                  start=still_learning.saved, event=ev, keep=True)
+    assert after.saved.header["merged"] == [1, 2]
+    for event in (None, Event("market", 100, 10), Event("merger", 100, 10, (1, 2))):
+        with pytest.raises(sim.InputError) as e:
+            learn(logit_market(), lu, sessions=16, seed=2, convergence=500, workers=2, start=after.saved, event=event)
+        assert e.value.key == "learning.continue_from" and "merger" in e.value.message
