@@ -16,6 +16,12 @@ the prices before and after the merger compare directly. The static effect of th
 jointly, so the report can say whether learned prices rise more or less than the static merger effect. The impulse
 response after the merger still values a deviation by the deviating product's own profit.
 
+What the learners can still learn depends on how much they still explore (``exp(-beta t)``, ``t`` from the start of
+the saved session): learners whose exploration has died out revise only the values of the prices they play, which
+the merged firm's larger profit raises, so they keep the prices they had; learners that still explore move, but
+their values of the prices they try are those of the rivalry before the merger, and in the shipped example and the
+tests their prices rise by far less than the static merger effect.
+
 Only Q-learners merge here: a bandit scales its rewards by the range of its own profits on the grid
 (:mod:`sim.learning.bandits`), which a merger would change, and an automaton has no reward to change.
 """
