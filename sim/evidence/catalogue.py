@@ -456,6 +456,11 @@ ENTRIES: dict[str, Entry] = {
                                 "last period before the event; averaged over the sessions that settled.",
                                 "greedy play from the final state (Calvano et al., 2020) against the saved history",
                                 _MEAN),
+    "merger_nash_price": Entry("static-Nash price after the merger", "price",
+                               "The product's price in the static Nash equilibrium of the market in which the merged "
+                               "firm sets its products' prices jointly to maximise their summed profit.",
+                               "stage game with a multi-product owner (Deneckere and Davidson, 1985, RAND Journal of "
+                               "Economics 16(4))"),
 }
 
 # enforcement, demand states and multimarket contact (sim.evidence.catalogue_conditions)
