@@ -21,6 +21,7 @@ from dataclasses import dataclass
 from sim.evidence.catalogue_alternating import ALTERNATING_ENTRIES, ALTERNATING_PARAMETERS
 from sim.evidence.catalogue_assess import ASSESS_ENTRIES
 from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
+from sim.evidence.catalogue_contact_play import CONTACT_PLAY_ENTRIES
 from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
 from sim.evidence.catalogue_shocks import SHOCK_ENTRIES, SHOCK_PARAMETERS
 from sim.evidence.catalogue_slice import REFINE_ENTRIES, SLICE_ENTRIES
@@ -456,6 +457,11 @@ ENTRIES: dict[str, Entry] = {
                                 "last period before the event; averaged over the sessions that settled.",
                                 "greedy play from the final state (Calvano et al., 2020) against the saved history",
                                 _MEAN),
+    "merger_nash_price": Entry("static-Nash price after the merger", "price",
+                               "The product's price in the static Nash equilibrium of the market in which the merged "
+                               "firm sets its products' prices jointly to maximise their summed profit.",
+                               "stage game with a multi-product owner (Deneckere and Davidson, 1985, RAND Journal of "
+                               "Economics 16(4))"),
 }
 
 # enforcement, demand states and multimarket contact (sim.evidence.catalogue_conditions)
@@ -466,6 +472,8 @@ ENTRIES.update({k: Entry(*v) for k, v in ASSESS_ENTRIES.items()})
 ENTRIES.update({k: Entry(*v) for k, v in ENFORCED_ENTRIES.items()})
 # a simulated line-up with moving demand (sim.evidence.catalogue_state_play)
 ENTRIES.update({k: Entry(*v) for k, v in STATE_PLAY_ENTRIES.items()})
+# the same firms simulated in several markets in contact (sim.evidence.catalogue_contact_play)
+ENTRIES.update({k: Entry(*v) for k, v in CONTACT_PLAY_ENTRIES.items()})
 # alternating price setting by learners: fixed price pairs against cycles (sim.evidence.catalogue_alternating)
 ENTRIES.update({k: Entry(*v) for k, v in ALTERNATING_ENTRIES.items()})
 # the symmetric slice of the any-punishment set, three firms or more (sim.evidence.catalogue_slice)

@@ -11,6 +11,9 @@ _DRAWN = ("one seeded uniform per period picks the state (i.i.d. probabilities o
 _SCALED = ("each period's profit of the simulated path times its state's factor, times (1 + g)^t with a growth rate "
            "g; exact because every state scales every profit of the line-up by one factor (checked on the market)")
 
+_PLAYED = ("each period played in its demand state's market with the state's level profiles (sim.simulation."
+           "state_game), pooled over the periods of the state in every replication")
+
 STATE_PLAY_ENTRIES = {
     "state_play.frequency": ("share of periods in the state", "0 to 1",
                              "Share of the periods played in which the demand is in this state.", _DRAWN,
@@ -30,4 +33,25 @@ STATE_PLAY_ENTRIES = {
     "state_play.discounted_profit": ("discounted profit with demand states", "{currency}, discounted sum",
                                      "Mean discounted profit of a firm in a replication when demand moves between "
                                      "the states.", _SCALED, _MEAN),
+    # a line-up whose collusive action depends on the state (demand_states.collusive_path)
+    "state_play.agreed_price": ("agreed price in the demand state", "price",
+                                "Market price of the actions agreed for this demand state.",
+                                "the stage game of the state's market at the agreed actions (the most collusive "
+                                "sustainable path: sim.theory.state_path.best_state_path, after Rotemberg and "
+                                "Saloner, 1986, AER 76(3))"),
+    "state_play.nash_price": ("static Nash price in the demand state", "price",
+                              "Market price of the static Nash equilibrium of this demand state's market.",
+                              "static Nash equilibrium of the state's market"),
+    "state_play.price": ("simulated price in the demand state", "price",
+                         "Mean market price over the simulated periods spent in this demand state.", _PLAYED),
+    "state_play.full_collusion_delta": ("critical discount factor of full collusion in every demand state", "",
+                                        "Smallest discount factor at which grim trigger sustains the agreement in "
+                                        "every demand state; below it the best sustainable path caps the agreement "
+                                        "where cheating pays most.",
+                                        "sim.theory.demand_states.state_thresholds: the gain from cheating in each "
+                                        "state against the expected discounted loss (Rotemberg and Saloner, 1986, "
+                                        "AER 76(3))"),
+    "state_play.collusive_share": ("collusive share in the demand state", "0 to 1",
+                                   "Share of the simulated periods in this demand state in which every firm "
+                                   "colluded.", _PLAYED),
 }

@@ -102,6 +102,7 @@ RENDERERS: dict = {
     "simulate": "sim.evidence.simulate:RENDERER",
     "tournament": "sim.evidence.tournament:RENDERER",
     "capacity": "sim.evidence.capacity:RENDERER",
+    "contact_simulation": "sim.evidence.contact_simulation:RENDERER",
 }
 
 

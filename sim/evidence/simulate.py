@@ -17,6 +17,7 @@ from sim.evidence.answers import simulate_headline
 from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.simulate_enforced import enforced_figure, enforced_json, enforced_text, state_play_text
+from sim.evidence.simulate_states import contingent_figure
 from sim.evidence.thresholds import AGREEMENT_NAMES, describe_market
 from sim.simulation.analysis import SimulateResult
 
@@ -306,6 +307,8 @@ def figures(result: SimulateResult) -> list:
     out.append(_spell_survival(res))
     if result.enforcement is not None:
         out.append(enforced_figure(result.enforcement, res.collusive_by_period))
+    if result.states is not None and result.states.contingent is not None:
+        out.append(contingent_figure(result.states))
     return out
 
 

@@ -11,6 +11,7 @@ from sim.core.text import fmt_num, table
 from sim.evidence.catalogue import describe
 from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.render import Drawn, pyplot
+from sim.evidence.simulate_states import contingent_text
 from sim.simulation.enforced import EnforcedSimulation
 from sim.simulation.states_run import StatePlay
 
@@ -130,6 +131,8 @@ def state_play_text(sp: StatePlay) -> list[str]:
     -------
     list of str
     """
+    if sp.contingent is not None:
+        return contingent_text(sp)
     kinds = {"iid": "independent states", "markov": "a Markov chain", "cycle": "a deterministic cycle"}
     lines = ["", f"Demand states (simulated): {kinds.get(sp.kind, sp.kind)}; {sp.parameter} per state "
                  + ", ".join(fmt_num(v) for v in sp.values)

@@ -7,14 +7,22 @@ every saved session (``[learning] continue_from``) after an *event*, given in it
     a cost or demand shock: the second run's ``[market]`` differs from the saved one (same firms); the learners keep
     their grids, Q-values, history and random stream, and go on learning in the changed market;
 ``kind = "entry"``
-    a new firm playing an automaton enters: the second run's market has one more firm, and its line-up is the saved
-    one with the entrant's strategy as the last ``[[strategies]]`` entry. The learners' states now include the
-    entrant's last price; each learner starts from what it knew, whatever the entrant's price (the Q-values of every
-    new state are those of the saved state it extends), and the entrant starts in its initial state, its last price
-    taken to be the one it plays there.
+    a new firm enters, playing an automaton or priced by a new learner: the second run's market has one more firm,
+    and its line-up is the saved one with the entrant's strategy as the last ``[[strategies]]`` entry. The learners'
+    states now include the entrant's last price; each learner starts from what it knew, whatever the entrant's price
+    (the Q-values of every new state are those of the saved state it extends). An automaton entrant starts in its
+    initial state, its last price taken to be the one it plays there; a learner entrant starts as a new learner of
+    its table would (its initial Q-values and greedy actions, no bandit statistics), its last price taken to be its
+    initial greedy action in the first state (the same in every state under the usual initial values), and its
+    exploration follows the session's clock like everyone's (``exp(-beta t)``, ``t`` from the saved session's start).
+``kind = "merger"``
+    two or more learners' products merge into one firm (``firms``: the merging firms, numbered from 1): the market
+    and the line-up are the saved ones; each merged product is still priced by its own learner, which keeps its
+    grid, Q-values, history and random stream, but is rewarded with the merged firm's profit (the sum of the merged
+    products' profits; :mod:`sim.learning.merger`, which also gives the static Nash prices after the merger).
 
-Either way the convergence counter is reset at the event (a session counts as settled again once no greedy strategy
-has changed for ``convergence`` periods after it), ``max_periods`` counts the periods after the event, and the
+Whatever the event, the convergence counter is reset at the event (a session counts as settled again once no greedy
+strategy has changed for ``convergence`` periods after it), ``max_periods`` counts the periods after the event, and the
 learners' exploration goes on from where it was (``exp(-beta t)``, ``t`` counted from the start of the saved
 session). The path of prices played in the ``periods`` periods after the event is recorded in bins (means over
 equal spans of periods; the bin before the event holds the prices of the last period before it), and the periods
@@ -38,6 +46,7 @@ from sim.core.params import Integer
 from sim.core.tables import refuse_unknown
 from sim.learning import kernel as K
 from sim.learning.inputs import STATUS_CAP, STATUS_CONVERGED, new_triggers
+from sim.learning.merger import check_merger, refuse_merged
 from sim.learning.saved import SavedLearners, check_family, describe_layout
 from sim.simulation.results import mean_estimate, wilson_estimate
 from strategies.qlearning import QLearner
@@ -46,9 +55,10 @@ __all__ = ["EVENT_KEYS", "EVENT_KINDS", "Event", "adapt_saved", "event_from_tabl
            "with_saved_grids"]
 
 #: keys of the [event] table
-EVENT_KEYS = ("kind", "periods")
-#: what may happen: a changed market (cost or demand shock), or the entry of a firm playing an automaton
-EVENT_KINDS = ("market", "entry")
+EVENT_KEYS = ("kind", "periods", "firms")
+#: what may happen: a changed market (cost or demand shock), the entry of a firm playing an automaton, or a merger
+#: of learners' products into one firm
+EVENT_KINDS = ("market", "entry", "merger")
 #: the price path after an event is kept in at most this many bins
 TRACK_BINS = 100
 
@@ -60,16 +70,19 @@ class Event:
     Attributes
     ----------
     kind : str
-        ``"market"`` or ``"entry"``.
+        ``"market"``, ``"entry"`` or ``"merger"``.
     periods : int
         Periods after the event whose prices are recorded (a multiple of the number of bins).
     bins : int
         Bins of the recorded price path.
+    firms : tuple of int
+        A merger's merging firms, numbered from 1, increasing (empty for other events).
     """
 
     kind: str
     periods: int
     bins: int
+    firms: tuple = ()
 
 
 def event_from_table(tab) -> Event:
@@ -78,7 +91,8 @@ def event_from_table(tab) -> Event:
     Parameters
     ----------
     tab : dict
-        ``kind`` (required: ``"market"`` or ``"entry"``) and ``periods`` (default 1000, 1 to 10**7).
+        ``kind`` (required: ``"market"``, ``"entry"`` or ``"merger"``), ``periods`` (default 1000, 1 to 10**7) and,
+        for a merger only (required there), ``firms``: two or more distinct firm numbers from 1.
 
     Returns
     -------
@@ -88,7 +102,7 @@ def event_from_table(tab) -> Event:
     Raises
     ------
     InputError
-        Naming ``event.kind`` or ``event.periods``.
+        Naming ``event.kind``, ``event.periods`` or ``event.firms``.
     """
     tab = refuse_unknown(tab, "event", EVENT_KEYS)
     kind = tab.get("kind")
@@ -96,7 +110,23 @@ def event_from_table(tab) -> Event:
         raise InputError("event.kind", f"must be one of {', '.join(repr(k) for k in EVENT_KINDS)}, got {kind!r}")
     periods = Integer(1, 10_000_000).check("event.periods", tab.get("periods", 1000))
     bins = min(TRACK_BINS, periods)
-    return Event(kind, periods // bins * bins, bins)
+    return Event(kind, periods // bins * bins, bins, _merging_firms(tab, kind))
+
+
+def _merging_firms(tab: dict, kind: str) -> tuple:
+    """``event.firms``: required for a merger (two or more distinct firm numbers from 1), refused otherwise."""
+    firms = tab.get("firms")
+    if kind != "merger":
+        if firms is not None:
+            raise InputError("event.firms", f"names the merging firms of kind = 'merger'; this event is {kind!r}")
+        return ()
+    if not isinstance(firms, list | tuple) or any(isinstance(f, bool) or not isinstance(f, int) for f in firms):
+        raise InputError("event.firms", f"must list the merging firms by number from 1 (e.g. [1, 2]), got {firms!r}")
+    if len(set(firms)) < 2:
+        raise InputError("event.firms", f"a merger joins two or more distinct firms, got {list(firms)}")
+    if min(firms) < 1:
+        raise InputError("event.firms", f"firms are numbered from 1, got {list(firms)}")
+    return tuple(sorted(set(firms)))
 
 
 def with_saved_grids(learner, saved: SavedLearners, n_firms: int, event: Event) -> list:
@@ -115,13 +145,14 @@ def with_saved_grids(learner, saved: SavedLearners, n_firms: int, event: Event) 
     -------
     list
         One strategy per seat; a learner given without its own grid takes the saved seat's grid (the grids do not
-        move with the market: the learners keep their prices).
+        move with the market: the learners keep their prices). An entrant learner without a grid gets the grid a new
+        learner of the market after the entry would.
 
     Raises
     ------
     InputError
-        ``market.n_firms`` when the firms do not fit the event, ``strategies`` when the entrant is missing or is a
-        learner.
+        ``market.n_firms`` when the firms do not fit the event, ``event.firms`` when a merging firm is not a
+        learner's seat.
     """
     seats = saved.header.get("seats") or []
     want = len(seats) + (event.kind == "entry")
@@ -132,9 +163,13 @@ def with_saved_grids(learner, saved: SavedLearners, n_firms: int, event: Event) 
         lineup = [copy.deepcopy(x) for x in learner]
     else:
         lineup = [copy.deepcopy(learner) for _ in range(n_firms)]
-    if event.kind == "entry" and isinstance(lineup[-1], QLearner):
-        raise InputError("strategies", "an entry event needs the entrant, an automaton, as the last [[strategies]] "
-                                       "entry")
+    for f in event.firms:
+        if not 1 <= f <= n_firms:
+            raise InputError("event.firms", f"firm {f} is not a firm of the market (1 to {n_firms}), got "
+                                            f"{list(event.firms)}")
+        if not isinstance(lineup[f - 1], QLearner):
+            raise InputError("event.firms", f"firm {f} plays an automaton; a merger joins the products of learners "
+                                            "(strategy = 'qlearning')")
     for i, seat in enumerate(seats):
         if isinstance(lineup[i], QLearner) and lineup[i].grid is None and seat.get("strategy") == "qlearning":
             lineup[i].grid = list(seat["grid"])
@@ -161,6 +196,7 @@ def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: 
     InputError
         Naming ``key``.
     """
+    refuse_merged(saved, key)
     old, new = saved.header.get("seats") or [], describe_layout(lineup)
     for i, (a, b) in enumerate(zip(old, new)):
         firm = f"firm {i + 1}"
@@ -177,14 +213,25 @@ def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: 
     if saved.n_sessions != sessions:
         raise InputError(key, f"holds {saved.n_sessions} saved sessions; the run has {sessions} (run.sessions must "
                               "match: each session continues one saved session)")
-    if event.kind == "market" and saved.Q.shape[1:] != lineup.q0.shape:
+    if event.kind == "merger":
+        check_merger(event.firms, lineup)
+    if event.kind == "entry" and lineup.learners[-1] is not None:
+        k_old = max([int(a.get("k") or 0) for a in old] + [1])
+        if lineup.learners[-1].k > k_old:
+            raise InputError("strategies", f"the entrant learner's memory k = {lineup.learners[-1].k} exceeds the "
+                                           f"saved sessions' longest memory {k_old}, whose history holds {k_old} "
+                                           f"period(s); give the entrant k <= {k_old}")
+    if event.kind != "entry" and saved.Q.shape[1:] != lineup.q0.shape:
         raise InputError(key, f"its Q-values have shape {saved.Q.shape[1:]} per session, this line-up "
                               f"{lineup.q0.shape}")
 
 
 def _entrant_action(lineup) -> int:
-    """The action index the entrant (the last seat) plays in its initial state."""
+    """The action index the entrant (the last seat) plays in its initial state: an automaton's action there, or a
+    new learner's greedy action in the first state."""
     au, i = lineup.automata, lineup.n_seats - 1
+    if lineup.learners[i] is not None:
+        return int(lineup.initial_greedy()[int(lineup.seats.lidx[i]), 0])
     z0 = int(lineup.z0[i])
     return int(au.act_of_level[i, au.states[i, z0, SS.ACTION]])
 
@@ -217,16 +264,23 @@ def adapt_saved(saved: SavedLearners, lineup, event: Event) -> SavedLearners:
     """
     clock = saved.clock.copy()
     clock[:, 1] = 0
-    if event.kind == "market":
+    if event.kind != "entry":
+        # a changed market or a merger: the same seats and states, only the learners' rewards change
         return SavedLearners(saved.Q.copy(), saved.greedy.copy(), saved.history.copy(), saved.z.copy(),
                              saved.rng.copy(), clock, saved.status.copy(), saved.triggers.copy(), dict(saved.header),
                              saved.counts.copy(), saved.sums.copy())
     n = saved.n_sessions
     m_new = int(lineup.stage.M)
     m_old = m_new // int(lineup.seats.radix[-1])
+    # every learner starts as a new one would; the incumbents then take what they knew (an entrant learner keeps
+    # its initial values and greedy actions)
     q = np.repeat(lineup.q0[None], n, axis=0)
     greedy = np.zeros((n, *lineup.q0.shape[:2]), dtype=np.int64)
-    for i in lineup.learner_seats:
+    n_old = saved.z.shape[1]
+    if lineup.learners[-1] is not None:
+        li_e = int(lineup.seats.lidx[-1])
+        greedy[:, li_e] = lineup.initial_greedy()[li_e]
+    for i in [i for i in lineup.learner_seats if i < n_old]:
         li, k, m = int(lineup.seats.lidx[i]), lineup.learners[i].k, int(lineup.seats.radix[i])
         s_new = np.arange(m_new**k)
         s_old = _old_state(s_new, k, m_new, m_old)
@@ -243,8 +297,8 @@ def adapt_saved(saved: SavedLearners, lineup, event: Event) -> SavedLearners:
     # a bandit's statistics do not depend on the state; an entrant learner starts with none
     counts = np.zeros((n, lineup.q0.shape[0], lineup.q0.shape[2]), dtype=np.int64)
     sums = np.zeros(counts.shape)
-    n_old, m_old_max = saved.counts.shape[1], saved.counts.shape[2]
-    counts[:, :n_old, :m_old_max], sums[:, :n_old, :m_old_max] = saved.counts, saved.sums
+    l_old, m_old_max = saved.counts.shape[1], saved.counts.shape[2]
+    counts[:, :l_old, :m_old_max], sums[:, :l_old, :m_old_max] = saved.counts, saved.sums
     return SavedLearners(q, greedy, history, z, saved.rng.copy(), clock, saved.status.copy(), triggers,
                          dict(saved.header), counts, sums)
 
@@ -291,14 +345,15 @@ def run_tracked(lineup, session, s: int, convergence: int, cap: int, path: np.nd
             if status == STATUS_CONVERGED or t >= cap:
                 acc += last
                 continue
-            status, t, s = K.run_session(lineup.seats, stage, lineup.automata, session, s, convergence, t + 1)
+            status, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s, convergence,
+                                         t + 1)
             if status == STATUS_CAP and t < cap:
                 status = -1  # one period played, not settled: go on
             last = stage.prices[s % m]
             acc += last
         path[b + 1] = acc / per
     if status != STATUS_CONVERGED and t < cap:
-        status, t, s = K.run_session(lineup.seats, stage, lineup.automata, session, s, convergence, cap)
+        status, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s, convergence, cap)
     return (STATUS_CONVERGED if status == STATUS_CONVERGED else STATUS_CAP), t, s
 
 
@@ -312,7 +367,7 @@ def _mean(x, level: float) -> dict:
 
 
 def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged: np.ndarray,
-                  limit_prices: np.ndarray, what: str, level: float = 0.95) -> dict:
+                  limit_prices: np.ndarray, what: str, level: float = 0.95, merger: dict | None = None) -> dict:
     """How prices moved after the event and how long the learners took to settle again, across sessions.
 
     Parameters
@@ -330,6 +385,10 @@ def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged:
         The event in words.
     level : float
         Confidence level (normal approximation for means, Wilson for shares, as in :mod:`sim.simulation.results`).
+    merger : dict, optional
+        After a merger: its static benchmarks (:func:`sim.learning.merger.merger_benchmarks`), kept as ``merger``
+        with ``learned_change`` added (per firm: the mean over settled sessions of the limit price minus the price
+        before the event, as in ``change``).
 
     Returns
     -------
@@ -339,7 +398,8 @@ def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged:
         of n_firms, across all sessions), ``before`` and ``change`` (per firm: the price in the last period before
         the event, and each session's limit price after settling minus it, over the settled sessions),
         ``settled`` (share of sessions that settled again) and ``settle_periods`` (periods from the event to the
-        last change of a greedy strategy over the settled sessions: mean with its interval, median, 5 % and 95 %).
+        last change of a greedy strategy over the settled sessions: mean with its interval, median, 5 % and 95 %);
+        after a merger also ``merger``.
     """
     n, rows, f = path.shape
     per = event.periods // event.bins
@@ -354,7 +414,7 @@ def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged:
     k = int(ok.sum())
     sh = wilson_estimate(k, n, level)
     q = np.quantile(st, (0.05, 0.5, 0.95)) if st.size else np.full(3, np.nan)
-    return {
+    out = {
         "kind": event.kind, "what": what, "periods": event.periods,
         "bin_periods": [0] + [per * (b + 1) for b in range(event.bins)],
         "prices": {"mean": mean.tolist(), "low": low.tolist(), "high": high.tolist()},
@@ -363,3 +423,6 @@ def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged:
         "settled": {"share": sh.value, "low": sh.low, "high": sh.high, "count": k, "n": int(n)},
         "settle_periods": {**_mean(st, level), "q05": float(q[0]), "q50": float(q[1]), "q95": float(q[2])},
     }
+    if merger is not None:
+        out["merger"] = {**merger, "learned_change": [d["mean"] for d in out["change"]]}
+    return out

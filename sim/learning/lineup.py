@@ -76,6 +76,10 @@ class Lineup:
         Automaton seats that act at random (a forgiveness, lapse or cheat probability strictly between 0 and 1).
         They draw from the session's stream; with any of them greedy play after learning is a Markov chain and
         the limit analysis is a simulated estimate (:attr:`limit_exact` is False).
+    reward : ndarray of float64, shape (M, n), optional
+        What each seat's learner is rewarded with at each profile, when it is not the seat's own profit: after a
+        merger of learners' products, the merged firm's profit (:func:`sim.learning.merger.merged_lineup`). None:
+        every learner is rewarded with its own product's profit (``stage.payoff``).
     """
 
     market: Any
@@ -95,6 +99,7 @@ class Lineup:
     nash_prices: np.ndarray
     collusive_prices: np.ndarray
     random_seats: tuple = ()
+    reward: np.ndarray | None = None
 
     @property
     def n_seats(self) -> int:
@@ -126,6 +131,14 @@ class Lineup:
     def payoff(self) -> np.ndarray:
         """Profit of each seat at each profile, shape (M, n)."""
         return self.stage.payoff
+
+    @property
+    def learning_stage(self) -> StageInputs:
+        """The stage game the learners learn on: :attr:`stage` with the learners' rewards as profits (the same
+        object without :attr:`reward`). The limit analysis reads :attr:`stage`: the products' own profits."""
+        if self.reward is None:
+            return self.stage
+        return self.stage._replace(payoff=self.reward)
 
     def punishing(self, z: np.ndarray) -> np.ndarray:
         """Which automaton seats are in a non-collusive state (punishing) in automaton states ``z``.

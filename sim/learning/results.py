@@ -360,7 +360,7 @@ class LearningResult:
         if self.event is not None:
             ev = self.event
             out["event"] = event_summary(ev["event"], ev["path"], ev["settle"], self.converged, self.limit_prices,
-                                         ev["what"], lvl)
+                                         ev["what"], lvl, ev.get("merger"))
         self._summary.update(out)
         return self._summary
 

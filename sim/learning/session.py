@@ -79,6 +79,7 @@ from sim.learning.alternating import (
 from sim.learning.events import Event, adapt_saved, check_event, run_tracked
 from sim.learning.inputs import STATUS_CONVERGED, DeviationInputs, LimitOutputs, SessionState
 from sim.learning.lineup import Lineup, available_memory, compile_lineup
+from sim.learning.merger import merged_lineup, merger_benchmarks, merger_words, refuse_merged
 from sim.learning.results import (
     CYCLE_STORE,
     IR_POINTS,
@@ -156,9 +157,10 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         Keep every session's state at the end of learning (:attr:`LearningResult.saved`, to be written by
         :func:`sim.learning.saved.save_learners`).
     event : sim.learning.events.Event, optional
-        With ``start``: the saved sessions go on after this event (a changed market, or an entrant as the last
-        seat; see :mod:`sim.learning.events`): the convergence counter is reset, ``max_periods`` counts the periods
-        after the event, and the prices of the first ``event.periods`` periods are recorded.
+        With ``start``: the saved sessions go on after this event (a changed market, an entrant as the last
+        seat, or a merger of learners' products; see :mod:`sim.learning.events` and :mod:`sim.learning.merger`): the
+        convergence counter is reset, ``max_periods`` counts the periods after the event, and the prices of the first
+        ``event.periods`` periods are recorded.
     timing : {"simultaneous", "alternating"}
         Move timing (:data:`sim.learning.alternating.TIMINGS`): every firm sets its price every period (Calvano et
         al., 2020), or two Q-learners set theirs in turn, each price held for two periods (Klein, 2021;
@@ -194,7 +196,10 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         check_event(start, lineup, event, run["sessions"])
         what = _event_words(start, lineup, market_doc, event)
         start = adapt_saved(start, lineup, event)
+        if event.kind == "merger":
+            lineup = merged_lineup(lineup, event.firms)
     elif start is not None:
+        refuse_merged(start)
         check_start(start, lineup, market_doc, run["sessions"])
     if keep:
         _check_kept_memory(lineup, run["sessions"])
@@ -204,6 +209,10 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
 
 def _event_words(saved: SavedLearners, lineup: Lineup, market: dict | None, event: Event) -> str:
     """The event in words: the market settings that changed, or the entrant and its strategy."""
+    if event.kind == "merger":
+        return merger_words(event.firms)
+    if event.kind == "entry" and lineup.learners[-1] is not None:
+        return f"firm {lineup.n_seats} enters, priced by a new learner"
     if event.kind == "entry":
         return f"firm {lineup.n_seats} enters, playing {lineup.names[-1].replace('_', ' ')}"
     old = saved.header.get("market") or {}
@@ -294,8 +303,8 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
                                start.sums[j].copy())
         s = int(start.history[j])
     if buf.event is None:
-        st, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, session, s, settings["convergence"],
-                                 settings["max_periods"], *_shock(settings))
+        st, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s,
+                                 settings["convergence"], settings["max_periods"], *_shock(settings))
     else:
         t0 = int(session.clock[0])
         st, t, s = run_tracked(lineup, session, s, settings["convergence"], settings["max_periods"] + t0,
@@ -384,8 +393,12 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
     if keep:
         header = {"market": market, "seats": describe_layout(lineup), "sessions": n, "seed": settings["seed"],
                   "cell": settings["cell"]}
+        if event is not None and event[0].kind == "merger":
+            header["merged"] = list(event[0].firms)
         saved = SavedLearners(**buf.saved, status=buf.status.copy(), header=header)
     ev = None if event is None else {"event": event[0], "what": event[1], "path": buf.path, "settle": buf.settle}
+    if ev is not None and event[0].kind == "merger":
+        ev["merger"] = merger_benchmarks(lineup, event[0].firms)
     return _assemble(lineup, settings, buf, time.perf_counter() - t0, saved, ev)
 
 
@@ -538,7 +551,7 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
     rng = stream_states(seed, (cell,), session, session + 1)[0].copy()
     st = lineup.session_state(rng)
     s = K.initial_state(rng, lineup.seats, lineup.stage)
-    status, t, s = K.run_session(lineup.seats, lineup.stage, lineup.automata, st, s, convergence, max_periods,
-                                 *shock_code(demand_noise, demand_sigma, prefix=""))
+    status, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, st, s, convergence,
+                                 max_periods, *shock_code(demand_noise, demand_sigma, prefix=""))
     return {"status": int(status), "periods": int(t), "state": int(s), "Q": st.Q, "greedy": st.greedy, "z": st.z,
             "rng": rng, "triggers": st.triggers, "counts": st.counts, "sums": st.sums}

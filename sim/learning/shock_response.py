@@ -71,7 +71,8 @@ def _path(lineup, saved, j: int, s0: int, periods: int, code: int, sigma: float,
     out[0] = stage.prices[s % m].mean()
     for tau in range(periods):
         c, sg = (FORCED_SHOCK, forced) if forced is not None and tau == 0 else (code, sigma)
-        _status, t, s = K.run_session(lineup.seats, stage, lineup.automata, session, s, _NEVER, t + 1, c, sg)
+        _status, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s, _NEVER, t + 1,
+                                      c, sg)
         out[tau + 1] = stage.prices[s % m].mean()
     return out
 

@@ -14,6 +14,7 @@ from sim.core.tables import refuse_unknown
 from sim.learning.alternating import TIMINGS, check_alternating
 from sim.learning.events import EVENT_KEYS, check_event, event_from_table, with_saved_grids
 from sim.learning.lineup import compile_lineup
+from sim.learning.merger import refuse_merged
 from sim.learning.results import LIMIT_PERIODS
 from sim.learning.saved import check_start, load_learners
 from sim.learning.shocks import SHOCK_CONSTRAINTS, shock_code
@@ -261,6 +262,7 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
         check_alternating(lineup, continue_from, save_to is not None, event)
     if continue_from is not None and event is None:
         start = load_learners(continue_from, "learning.continue_from")
+        refuse_merged(start, "learning.continue_from")
         check_start(start, lineup, market.to_dict(), settings["sessions"], "learning.continue_from")
     elif start is not None:
         check_event(start, lineup, event, settings["sessions"], "learning.continue_from")

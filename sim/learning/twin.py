@@ -305,6 +305,8 @@ def reference_session(lineup, rng_state, convergence, max_periods, shock=0, sigm
         and ``sums`` (the bandits' statistics, int64 and float64 arrays of shape (n_learners, max(radix))).
     """
     st = _Setup(lineup)
+    # the learners' rewards: their own profits, or after a merger of their products the merged firm's profit
+    st.profit_table = lineup.learning_stage.payoff.tolist()
     rng = ReferenceStream(rng_state)
     history = []
     for _lag in range(st.K):

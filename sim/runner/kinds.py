@@ -68,6 +68,7 @@ LAZY_KINDS: dict[str, str] = {
     "tournament": "sim.runner.analyses.tournament:KIND",
     "assess": "sim.runner.analyses.assess:KIND",
     "capacity": "sim.runner.analyses.capacity:KIND",
+    "contact_simulation": "sim.runner.analyses.contact_simulation:KIND",
 }
 _KINDS: dict[str, Kind] = {}
 #: entry-point group of installed plugins (modules that register strategies or kinds on import)

@@ -21,7 +21,7 @@ from sim.core.stats import Estimate
 from sim.simulation.enforced import EnforcedSimulation, apply_enforcement, keep_paths
 from sim.simulation.engine import run_game
 from sim.simulation.results import SimulationResult, mean_estimate, summarize
-from sim.simulation.states_run import StatePlay, apply_states
+from sim.simulation.states_run import StatePlay, apply_states, contingent_play
 
 __all__ = ["DeviationCheck", "SimulateResult", "simulate_analysis"]
 
@@ -77,7 +77,9 @@ class SimulateResult(Record):
         ``[enforcement]`` table (:mod:`sim.simulation.enforced`); ``simulation`` stays the play without it.
     states : StatePlay or None
         State frequencies and profits by state, when the experiment has a ``[demand_states]`` table
-        (:mod:`sim.simulation.states_run`); ``simulation`` stays the play in the experiment's market.
+        (:mod:`sim.simulation.states_run`); ``simulation`` stays the play in the experiment's market, unless
+        the collusive action depends on the state (``demand_states.collusive_path``): then ``simulation`` is
+        the play state by state, and its reference prices and profit gains are those of the experiment's market.
     """
 
     simulation: SimulationResult
@@ -115,9 +117,13 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
     """
     run, game = cfg["run"], cfg["game"]
 
-    def play(g, paths):
+    st = cfg.get("demand_states")
+    # a line-up whose collusive action depends on the state plays every period in its state's market
+    demand = st.get("game") if st is not None else None
+
+    def play(g, paths, in_states=demand):
         return run_game(g, run["periods"], run["replications"], run["delta"], run["seed"], key, run["horizon"],
-                        run["continuation"], paths, threads, progress)
+                        run["continuation"], paths, threads, progress, demand=in_states)
 
     enf = cfg.get("enforcement")
     # enforcement cuts every replication's path at its conviction, so it needs them all (a deterministic line-up
@@ -125,12 +131,14 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
     n_paths = int(run["paths"])
     if enf is not None:
         n_paths = int(run["replications"]) if enf.after_detection is None else max(n_paths, 1)
-    st = cfg.get("demand_states")
     if st is not None:
         n_paths = int(run["replications"])
     raw = play(game, n_paths)
     states = None
-    if st is not None:
+    if demand is not None:
+        states = contingent_play(raw, demand, st["parameter"], st["values"], run["delta"], cfg["confidence"])
+        raw = keep_paths(raw, int(run["paths"]))
+    elif st is not None:
         states = apply_states(raw, st["states"], st["factors"], st["parameter"], st["values"], run["delta"],
                               run["seed"], key, cfg["confidence"])
         raw = keep_paths(raw, int(run["paths"]))
@@ -145,7 +153,7 @@ def simulate_analysis(cfg: dict, key=(), threads: int = 1, progress: bool = Fals
     dev = cfg["deviation"]
     if dev is not None:
         k = dev["seat"]
-        raw_d = play(dev["game"], 0)
+        raw_d = play(dev["game"], 0, None if demand is None else st["deviation_game"])
         gain = mean_estimate(raw_d.disc[:, k] - raw.disc[:, k], cfg["confidence"])
         check = DeviationCheck(k + 1, gain, bool(gain.value > 0), float(raw.disc[:, k].mean()),
                                float(raw_d.disc[:, k].mean()),

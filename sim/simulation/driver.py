@@ -8,7 +8,7 @@ any number of threads and any split of the replications into batches.
 from __future__ import annotations
 
 import sys
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from tqdm import tqdm
@@ -19,8 +19,9 @@ from sim.core.errors import SolverError
 from sim.core.parallel import NumbaThreads
 from sim.core.rng import stream_states
 from sim.simulation.game import Game
+from sim.simulation.state_game import draw_state_paths
 
-__all__ = ["RawRun", "alive_by_period", "kernel_groups", "run_game"]
+__all__ = ["RawRun", "alive_by_period", "demand_inputs", "kernel_groups", "run_game"]
 
 
 @dataclass
@@ -60,6 +61,9 @@ class RawRun:
         ``FLAG_*`` bits of :mod:`sim.simulation.kernel`: cheated, trembled, colluded.
     path_collude : int64 ndarray of shape (P, H)
         1 when every firm colluded (-1 after the end).
+    demand_path : int64 ndarray of shape (n_reps, n_periods), or of shape (0, 0)
+        The demand state of every period of every replication, when the line-up was played in a market whose
+        demand state moves (:mod:`sim.simulation.state_game`); empty otherwise.
     """
 
     profit_sum: np.ndarray
@@ -76,6 +80,7 @@ class RawRun:
     path_state: np.ndarray
     path_flags: np.ndarray
     path_collude: np.ndarray
+    demand_path: np.ndarray = field(default_factory=lambda: np.zeros((0, 0), dtype=np.int64))
 
     @classmethod
     def empty(cls, n_reps: int, n_firms: int, n_products: int, n_periods: int, n_paths: int) -> RawRun:
@@ -207,7 +212,7 @@ def _batch_size(replications: int, periods: int, n_firms: int, paths: int, progr
 
 def run_game(game: Game, periods: int, replications: int, delta: float, seed: int, key=(0,),
              horizon: str = "fixed", continuation: float = 1.0, paths: int = 0, threads: int | None = None,
-             progress=None, batch: int | None = None, n_chunks: int | None = None) -> RawRun:
+             progress=None, batch: int | None = None, n_chunks: int | None = None, demand=None) -> RawRun:
     """Driver: allocate buffers, derive the seeds, split the replications and call the kernel.
 
     Arguments are taken as already validated (see :func:`simulate`); ``batch`` and ``n_chunks``
@@ -241,14 +246,19 @@ def run_game(game: Game, periods: int, replications: int, delta: float, seed: in
         Replications per kernel call (default: all, or about 2e6 firm-periods with a progress bar).
     n_chunks : int, optional
         Chunks per kernel call (default: four per thread).
+    demand : StateGame, optional
+        Play every period in its demand state's market with the state's level profiles
+        (:mod:`sim.simulation.state_game`; the states are drawn from the stream family ``(key..., 1)``).
 
     Returns
     -------
     RawRun
-        The raw per-replication and per-length arrays.
+        The raw per-replication and per-length arrays (with ``demand_path`` when ``demand`` is given).
     """
     n = game.arrays.n_firms
     raw = RawRun.empty(replications, n, game.arrays.n_products, periods, paths)
+    if demand is not None:
+        raw.demand_path = draw_state_paths(demand.states, periods, replications, seed, key)
     market, lineup, monitoring, run = kernel_groups(game, periods, delta, horizon, continuation, paths)
     path_buffers = raw.path_buffers()
     with NumbaThreads(threads) as n_threads:
@@ -263,15 +273,20 @@ def run_game(game: Game, periods: int, replications: int, delta: float, seed: in
         # stream family from its start each time (cost quadratic in the number of batches); 32 bytes per
         # replication, less than the per-replication results
         rng_all = stream_states(seed, key, 0, replications)
-        announce_compile("simulation", (K.simulate_chunks,))
+        announce_compile("simulation", (K.simulate_chunks if demand is None else K.simulate_state_chunks,))
         bar = _progress_bar(replications, progress, "simulate")
         try:
             for lo in range(0, replications, batch):
                 hi = min(replications, lo + batch)
                 c = min(chunks, hi - lo)
                 starts = np.linspace(0, hi - lo, c + 1).round().astype(np.int64)
-                K.simulate_chunks(K.Batch(starts, rng_all[lo:hi], lo), market, lineup, monitoring, run,
-                                  raw.totals(lo, hi, hist, by_period, status), path_buffers)
+                if demand is None:
+                    K.simulate_chunks(K.Batch(starts, rng_all[lo:hi], lo), market, lineup, monitoring, run,
+                                      raw.totals(lo, hi, hist, by_period, status), path_buffers)
+                else:
+                    K.simulate_state_chunks(K.Batch(starts, rng_all[lo:hi], lo), market, lineup, monitoring, run,
+                                            raw.totals(lo, hi, hist, by_period, status), path_buffers,
+                                            demand_inputs(demand, raw.demand_path[lo:hi]))
                 if np.any(status[:c] != K.STATUS_OK):
                     raise SolverError("the stage game could not be evaluated for a simulated action profile "
                                       "(differentiated Bertrand demand did not settle)")
@@ -284,6 +299,24 @@ def run_game(game: Game, periods: int, replications: int, delta: float, seed: in
     raw.by_period[0] = by_period.sum(axis=0)
     raw.by_period[1] = alive_by_period(raw.ints[:, K.R_PERIODS], periods)
     return raw
+
+
+def demand_inputs(demand, path: np.ndarray) -> K.DemandInputs:
+    """The kernel's demand group of a state game and a batch's paths of states.
+
+    Parameters
+    ----------
+    demand : StateGame
+        The per-state markets and level profiles.
+    path : int64 ndarray of shape (n_batch, n_periods)
+        The demand state of each period of the batch's replications.
+
+    Returns
+    -------
+    DemandInputs
+    """
+    return K.DemandInputs(np.ascontiguousarray(path), demand.scalars, demand.vector, demand.cost, demand.capacity,
+                          demand.levels, demand.tremble)
 
 
 def alive_by_period(lengths: np.ndarray, periods: int) -> np.ndarray:

@@ -30,6 +30,9 @@ One period, in this order (the random draws happen in this order too):
 6. each firm's signal and next state (:func:`strategies.step.bad_signal`, :func:`next_state`), all
    from the states at the start of the period.
 
+With demand states (:func:`simulate_state_chunks`, :class:`DemandInputs`) a period first takes its state's market
+parameters and level profiles, drawn beforehand from another stream family: no draw of the period moves.
+
 With a random horizon one uniform is drawn before the first period: the number of periods is
 ``min(n_periods, 1 + floor(log(1 - u) / log(continuation)))``, i.e. the game ends after each period
 with probability ``1 - continuation``.
@@ -62,8 +65,8 @@ from sim.models.capacity_stage import MIXED_PRICE, draw_mixed
 from sim.models.stagecore import evaluate
 from strategies.step import COLLUSIVE, INITIAL, bad_signal, choose_level, next_state
 
-__all__ = ["Batch", "LineupInputs", "MarketInputs", "MonitoringInputs", "PathBuffers", "RunInputs", "Totals",
-           "horizon_length", "simulate_chunks"]
+__all__ = ["Batch", "DemandInputs", "LineupInputs", "MarketInputs", "MonitoringInputs", "PathBuffers", "RunInputs",
+           "Totals", "horizon_length", "simulate_chunks", "simulate_state_chunks"]
 
 # integer results per replication
 R_PERIODS, R_COLLUSIVE, R_WARS, R_WARS_ENDED, R_WAR_PERIODS, R_WAR_PERIODS_ENDED = range(6)
@@ -276,6 +279,42 @@ class PathBuffers(NamedTuple):
     collude: np.ndarray
 
 
+class DemandInputs(NamedTuple):
+    """The demand state of every period and what changes with it (:func:`simulate_state_chunks`).
+
+    In period ``t`` of batch-local replication ``r`` the market is state ``d = path[r, t]``'s market (its demand
+    parameters, costs and capacities) and every level of the line-up is the state's profile of that level: the
+    automata's states and transitions are those of :class:`LineupInputs`, what each level stands for moves with
+    the demand state (a state-contingent collusive path; :mod:`sim.simulation.state_game`).
+
+    Parameters
+    ----------
+    path : int64 ndarray of shape (n_batch, n_periods)
+        Demand state of each period of each replication of the batch (drawn beforehand from the replication's
+        own stream family, so the kernel's draws are those of the same line-up without states).
+    scalars : float64 ndarray of shape (n_states, 4)
+        Scalar demand parameters per state.
+    vector : float64 ndarray of shape (n_states, n_products)
+        Per-product demand parameters per state.
+    cost : float64 ndarray of shape (n_states, n_products)
+        Marginal costs per state.
+    capacity : float64 ndarray of shape (n_states, n_products)
+        Capacities per state.
+    levels : float64 ndarray of shape (n_states, n_firms, L, n_products)
+        Action profile of each firm's levels in each state.
+    tremble : float64 ndarray of shape (n_states, n_products)
+        Action of each product after an implementation error, per state.
+    """
+
+    path: np.ndarray
+    scalars: np.ndarray
+    vector: np.ndarray
+    cost: np.ndarray
+    capacity: np.ndarray
+    levels: np.ndarray
+    tremble: np.ndarray
+
+
 # --------------------------------------------------------------------------------------------------
 # Steps of a period (inlined into the kernel)
 # --------------------------------------------------------------------------------------------------
@@ -347,11 +386,57 @@ def simulate_chunks(batch, market, lineup, monitoring, run, totals, paths):
                                                                totals.disc, totals.ints, totals.flts)
     p_actions, p_prices, p_market, p_profit, p_state, p_flags, p_collude = (
         paths.actions, paths.prices, paths.market, paths.profit, paths.state, paths.flags, paths.collude)
+    n_products = owner.shape[0]
+    # no demand states: empty state arrays, so that both entries compile one period loop
     _play_chunks(chunk_start, rng_states, first, code, scalars, vector, cost, capacity, owner, n_firms,
                  quantity_setting, states, probs, firms, levels, tremble, noise_code, sigma, perception_error,
                  implementation_error, n_periods, delta, random_horizon, continuation, n_paths, out_profit, out_disc,
                  out_int, out_flt, hist, by_period, p_actions, p_prices, p_market, p_profit, p_state, p_flags,
-                 p_collude, totals.status, mixed)
+                 p_collude, totals.status, mixed, np.empty((0, 0), dtype=np.int64), np.empty((0, 4)),
+                 np.empty((0, n_products)), np.empty((0, n_products)), np.empty((0, n_products)),
+                 np.empty((0, 1, 1, n_products)), np.empty((0, n_products)))
+
+
+@njit(cache=True)
+def simulate_state_chunks(batch, market, lineup, monitoring, run, totals, paths, demand):
+    """:func:`simulate_chunks` in a market whose demand state moves: each period is played in its state's
+    market with its state's level profiles.
+
+    The period's steps and random draws are those of :func:`simulate_chunks`; the demand states come drawn in
+    ``demand.path``, so a line-up whose states all equal the experiment's market plays exactly the numbers of
+    :func:`simulate_chunks`.
+
+    Parameters
+    ----------
+    batch : Batch
+        Chunk boundaries, the replications' generator states and the global index of the first.
+    market : MarketInputs
+        The market's structure (code, owners, firms, quantity setting); its parameters are replaced by the state's.
+    lineup : LineupInputs
+        The compiled line-up; its levels and tremble actions are replaced by the state's.
+    monitoring : MonitoringInputs
+        Demand shock and error probabilities.
+    run : RunInputs
+        Horizon, discount factor and number of recorded paths.
+    totals : Totals
+        Results, added to in place (see :func:`simulate_chunks`).
+    paths : PathBuffers
+        Path buffers, written for global replication indices below ``run.n_paths``.
+    demand : DemandInputs
+        The demand states of the batch's periods and the per-state arrays.
+    """
+    chunk_start, rng_states, first = batch
+    code, scalars, vector, cost, capacity, owner, n_firms, quantity_setting, mixed = market
+    states, probs, firms, levels, tremble = lineup
+    noise_code, sigma, perception_error, implementation_error = monitoring
+    n_periods, delta, random_horizon, continuation, n_paths = run
+    d_path, d_scalars, d_vector, d_cost, d_capacity, d_levels, d_tremble = demand
+    _play_chunks(chunk_start, rng_states, first, code, scalars, vector, cost, capacity, owner, n_firms,
+                 quantity_setting, states, probs, firms, levels, tremble, noise_code, sigma, perception_error,
+                 implementation_error, n_periods, delta, random_horizon, continuation, n_paths, totals.profit,
+                 totals.disc, totals.ints, totals.flts, totals.hist, totals.by_period, paths.actions, paths.prices,
+                 paths.market, paths.profit, paths.state, paths.flags, paths.collude, totals.status, mixed, d_path,
+                 d_scalars, d_vector, d_cost, d_capacity, d_levels, d_tremble)
 
 
 @njit(cache=True, parallel=True)
@@ -362,7 +447,7 @@ def _play_chunks(chunk_start, rng_states, rep_offset,
                  n_periods, delta, random_horizon, continuation, n_paths,
                  out_profit, out_disc, out_int, out_flt, hist, by_period,
                  path_actions, path_prices, path_market, path_profit, path_state, path_flags, path_collude,
-                 status, mixed):
+                 status, mixed, d_path, d_scalars, d_vector, d_cost, d_capacity, d_levels, d_tremble):
     # the period loop of every chunk, chunks in parallel, every array a plain argument: inside a prange body
     # numba drops writes to arrays reached through a named tuple (numba issue 7135), also once they are taken
     # out of it, and a chunk played by a separate function, or a period built from helper calls, measured two
@@ -370,7 +455,10 @@ def _play_chunks(chunk_start, rng_states, rep_offset,
     n_chunks = chunk_start.shape[0] - 1
     n_products = owner.shape[0]
     s2 = 0.5 * sigma * sigma
+    with_states = d_path.shape[0] > 0
     for c in prange(n_chunks):
+        # the period's market and level profiles: the experiment's, or the demand state's
+        sc, ve, co, ca, lv, tr = scalars, vector, cost, capacity, levels, tremble_profile
         state = np.empty(n_firms, dtype=np.int64)
         new_state = np.empty(n_firms, dtype=np.int64)
         lev = np.empty(n_firms, dtype=np.int64)
@@ -412,6 +500,10 @@ def _play_chunks(chunk_start, rng_states, rep_offset,
             n_tremble = 0
             played = 0
             for t in range(H):
+                if with_states:
+                    d = d_path[r, t]
+                    sc, ve, co, ca, lv, tr = (d_scalars[d], d_vector[d], d_cost[d], d_capacity[d], d_levels[d],
+                                              d_tremble[d])
                 for i in range(n_firms):
                     L, ch = choose_level(i, state[i], t, states, probs, firms, rng)
                     lev[i] = L
@@ -425,7 +517,7 @@ def _play_chunks(chunk_start, rng_states, rep_offset,
                             n_tremble += 1
                 for k in range(n_products):
                     i = owner[k]
-                    actions[k] = tremble_profile[k] if trembled[i] else levels[i, lev[i], k]
+                    actions[k] = tr[k] if trembled[i] else lv[i, lev[i], k]
                 if mixed.shape[1] > 0:
                     for k in range(n_products):
                         if actions[k] == MIXED_PRICE:
@@ -437,8 +529,7 @@ def _play_chunks(chunk_start, rng_states, rep_offset,
                     theta = 1.0 + sigma * next_normal_zig(rng)
                     if theta < 0.0:
                         theta = 0.0
-                mp, cs = evaluate(code, scalars, vector, cost, capacity, owner, n_firms, actions, theta, q, p,
-                                  profit, work, True)
+                mp, cs = evaluate(code, sc, ve, co, ca, owner, n_firms, actions, theta, q, p, profit, work, True)
                 if mp != mp:
                     st_code = STATUS_EVALUATION_FAILED
                     break
@@ -472,7 +563,7 @@ def _play_chunks(chunk_start, rng_states, rep_offset,
                 # signals and transitions, all from the states at the start of the period
                 for i in range(n_firms):
                     bad = bad_signal(i, state[i], n_firms, actions, owner, mp, profit[i], perception_error,
-                                     states, probs, levels, quantity_setting, rng)
+                                     states, probs, lv, quantity_setting, rng)
                     new_state[i] = next_state(i, state[i], bad, states, probs, rng)
                 for i in range(n_firms):
                     state[i] = new_state[i]

@@ -10,8 +10,9 @@ size times margin times share; Rotemberg and Saloner, 1986, "A supergame-theoret
 booms", AER 76(3), move demand this way). Then each period's recorded profit is the profit of the plain path times
 the factor of the period's state (and ``(1 + g)^t`` with a growth rate ``g``). :func:`state_factors` verifies the
 property on the market itself (every combination of the firms' levels, and the stage game of every state) and
-refuses the table otherwise: a line-up whose collusive action depends on the state needs state-dependent automata,
-which this simulation does not have.
+refuses the table otherwise. A line-up whose collusive action depends on the state is played state by state by the
+kernel itself (:mod:`sim.simulation.state_game`); :func:`contingent_play` summarises that run by state: the same
+shares and profits, and the agreed and simulated prices and the share of collusive periods of each state.
 
 The draws: replication ``r`` draws its state path from the stream family ``(key..., 1)`` in the order of
 :func:`sim.theory.draws.draw_state_path` (the plain-Python reference of the compiled state draws of
@@ -33,14 +34,54 @@ from sim.core.stats import Estimate, mean_estimate
 from sim.models.stagecore import evaluate_py, market_arrays
 from sim.simulation.driver import RawRun
 from sim.simulation.game import Game, stage_levels
+from sim.simulation.state_game import StateGame
 from sim.theory.demand_states import DemandStates, stationary_distribution
 from sim.theory.draws import draw_state_path
 
-__all__ = ["MAX_PROFILES", "StatePlay", "apply_states", "state_factors"]
+__all__ = ["MAX_PROFILES", "ContingentPlay", "StatePlay", "apply_states", "contingent_play", "state_factors"]
 
 #: most level combinations checked for the scaling property
 MAX_PROFILES = 4096
 _RTOL = 1e-9
+
+
+@dataclass(frozen=True, eq=False)
+class ContingentPlay(Record):
+    """What a line-up whose collusive action depends on the demand state agreed and played in each state.
+
+    Parameters
+    ----------
+    source : str
+        Where the agreed actions come from: ``"agreement"``, ``"best"`` or ``"given"``
+        (:mod:`sim.simulation.state_game`).
+    collusive_actions : ndarray of shape (n_states, n_products)
+        The agreed action of each product in each state.
+    nash_actions : ndarray of shape (n_states, n_products)
+        The static Nash action of each product in each state.
+    agreed_price : ndarray of shape (n_states,)
+        The market price of the agreed actions in each state.
+    nash_price : ndarray of shape (n_states,)
+        The market price of static Nash in each state.
+    full_price : ndarray of shape (n_states,)
+        The market price of the experiment's agreement in each state (full collusion).
+    price : ndarray of shape (n_states,)
+        Simulated mean market price over the periods of each state (nan for a state never visited).
+    collusive_share : ndarray of shape (n_states,)
+        Share of the periods of each state in which every firm colluded (nan for a state never visited).
+    full_collusion_delta : float
+        The critical discount factor of full collusion in every state under grim trigger (nan when there is none
+        below one, or with a given agreement).
+    """
+
+    source: str
+    collusive_actions: np.ndarray
+    nash_actions: np.ndarray
+    agreed_price: np.ndarray
+    nash_price: np.ndarray
+    full_price: np.ndarray
+    price: np.ndarray
+    collusive_share: np.ndarray
+    full_collusion_delta: float = math.nan
 
 
 @dataclass(frozen=True, eq=False)
@@ -70,6 +111,9 @@ class StatePlay(Record):
         Per firm: total profit per replication with the states.
     discounted_profit : list of Estimate
         Per firm: discounted profit per replication with the states.
+    contingent : ContingentPlay or None
+        The agreed actions and prices per state when the line-up's collusive action depends on the state
+        (``factors`` are then nan: each state is played in its own market).
     """
 
     labels: list
@@ -84,6 +128,7 @@ class StatePlay(Record):
     profit_by_state: np.ndarray
     profit: list[Estimate]
     discounted_profit: list[Estimate]
+    contingent: ContingentPlay | None = None
 
 
 def _level_profiles(game: Game):
@@ -176,13 +221,20 @@ def apply_states(raw: RawRun, states: DemandStates, factors, parameter: str, val
     n_reps, n_periods = raw.n_reps, raw.path_collude.shape[1]
     if raw.n_paths != n_reps:
         raise ValueError("apply_states needs the path of every replication")
-    S = states.n_states
     rng = stream_states(seed, (*key, 1), 0, n_reps)
     path = np.stack([draw_state_path(ReferenceStream(rng[r]), states, n_periods) for r in range(n_reps)])
     running = raw.path_collude >= 0
+    profit = np.where(running[:, :, None], raw.path_profit, 0.0) * np.asarray(factors)[path][:, :, None]
+    return _state_play(path, profit, running, states, parameter, values, factors, delta, confidence)
+
+
+def _state_play(path, profit, running, states: DemandStates, parameter, values, factors, delta, confidence,
+                contingent=None) -> StatePlay:
+    """Shares of periods, profits by state and per replication, from the paths of states and profits."""
+    n_reps, n_periods = path.shape
+    S = states.n_states
     w = delta ** np.arange(n_periods, dtype=float) * (1.0 + states.growth) ** np.arange(n_periods, dtype=float)
     g = (1.0 + states.growth) ** np.arange(n_periods, dtype=float)
-    profit = np.where(running[:, :, None], raw.path_profit, 0.0) * np.asarray(factors)[path][:, :, None]
     played = running.sum(axis=1).astype(float)
     shares = np.stack([((path == s) & running).sum(axis=1) / played for s in range(S)], axis=1)
     by_state = np.full((S, profit.shape[2]), math.nan)
@@ -198,4 +250,43 @@ def apply_states(raw: RawRun, states: DemandStates, factors, parameter: str, val
                      shares.std(axis=0, ddof=1) / math.sqrt(n_reps) if n_reps > 1 else np.full(S, math.nan),
                      _expected(states), by_state,
                      [mean_estimate(tot[:, i], confidence) for i in firms],
-                     [mean_estimate(disc[:, i], confidence) for i in firms])
+                     [mean_estimate(disc[:, i], confidence) for i in firms], contingent)
+
+
+def contingent_play(raw: RawRun, game: StateGame, parameter: str, values, delta: float,
+                    confidence: float = 0.95) -> StatePlay:
+    """State frequencies, profits, prices and collusion by state of a line-up played state by state.
+
+    Parameters
+    ----------
+    raw : RawRun
+        The run of :func:`sim.simulation.driver.run_game` with ``demand = game``, every replication's path
+        recorded.
+    game : StateGame
+        The per-state markets and agreed actions.
+    parameter : str
+    values : array_like of shape (n_states,)
+    delta : float in (0, 1)
+    confidence : float in (0, 1)
+
+    Returns
+    -------
+    StatePlay
+        With ``contingent`` set and ``factors`` nan.
+    """
+    if raw.n_paths != raw.n_reps or raw.demand_path.shape[0] != raw.n_reps:
+        raise ValueError("contingent_play needs the path of every replication and its demand states")
+    states, path = game.states, raw.demand_path
+    running = raw.path_collude >= 0
+    S = states.n_states
+    price, share = np.full(S, math.nan), np.full(S, math.nan)
+    for d in range(S):
+        mask = (path == d) & running
+        if mask.any():
+            price[d] = raw.path_market[:, :, 0][mask].mean()
+            share[d] = (raw.path_collude[mask] == 1).mean()
+    cp = ContingentPlay(game.source, game.collusive.copy(), game.nash.copy(), game.agreed_price.copy(),
+                        game.nash_price.copy(), game.full_price.copy(), price, share, game.full_collusion_delta)
+    profit = np.where(running[:, :, None], raw.path_profit, 0.0)
+    return _state_play(path, profit, running, states, parameter, values, np.full(S, math.nan), delta, confidence,
+                       cp)

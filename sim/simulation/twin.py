@@ -25,6 +25,7 @@ from sim.core.rng import ReferenceStream, stream_states
 from sim.models.capacity_stage import MIXED_PRICE
 from sim.models.stagecore import evaluate
 from sim.simulation.driver import RawRun, kernel_groups
+from sim.theory.draws import draw_state_path
 
 __all__ = ["reference_run"]
 
@@ -66,6 +67,7 @@ class _Game:
         self.mixed = [[float(x) for x in row] for row in market.mixed]
         self.evaluate_args = (market.code, market.scalars, market.vector, market.cost, market.capacity, market.owner,
                               market.n_firms)
+        self.demand = None  # a StateGame: the period's market and levels follow the demand state
 
 
 def _horizon(game: _Game, rng: ReferenceStream) -> int:
@@ -235,11 +237,24 @@ def _play_period(game: _Game, raw: RawRun, r: int, t: int, state: list, rng: Ref
     return period, all_c, punishing
 
 
-def _play_replication(game: _Game, raw: RawRun, r: int, rng: ReferenceStream, buffers) -> None:
+def _enter_state(game: _Game, d: int) -> None:
+    """Make demand state ``d``'s market and level profiles the period's (see sim.simulation.state_game)."""
+    dm = game.demand
+    market = game.market
+    game.evaluate_args = (market.code, dm.scalars[d], dm.vector[d], dm.cost[d], dm.capacity[d], market.owner,
+                          market.n_firms)
+    game.tremble = [float(x) for x in dm.tremble[d]]
+    for i, f in enumerate(game.firms):
+        f.levels = [[float(v) for v in row] for row in dm.levels[d, i]]
+
+
+def _play_replication(game: _Game, raw: RawRun, r: int, rng: ReferenceStream, buffers, demand_path=None) -> None:
     state = [f.initial for f in game.firms]
     disc = 1.0
     runs = {"run": 0, "prev": False, "punish": 0}
     for t in range(_horizon(game, rng)):
+        if demand_path is not None:
+            _enter_state(game, int(demand_path[t]))
         period, all_c, punishing = _play_period(game, raw, r, t, state, rng, buffers)
         state = _next_states(game, state, period, rng)
         raw.profit_sum[r] += period["profit"]
@@ -257,7 +272,7 @@ def _play_replication(game: _Game, raw: RawRun, r: int, rng: ReferenceStream, bu
 
 
 def reference_run(game, periods: int, replications: int, delta: float, seed: int, key=(0,),
-                  horizon: str = "fixed", continuation: float = 1.0, paths: int = 0) -> RawRun:
+                  horizon: str = "fixed", continuation: float = 1.0, paths: int = 0, demand=None) -> RawRun:
     """Play ``replications`` replications in plain Python, draw for draw as the kernel.
 
     Parameters
@@ -280,6 +295,9 @@ def reference_run(game, periods: int, replications: int, delta: float, seed: int
         Continuation probability of a random horizon.
     paths : int
         Number of replications (the first ones) whose full paths are recorded.
+    demand : StateGame, optional
+        Play every period in its demand state's market with the state's level profiles; each replication's
+        states are drawn by :func:`sim.theory.draws.draw_state_path` from the stream family ``(key..., 1)``.
 
     Returns
     -------
@@ -287,9 +305,15 @@ def reference_run(game, periods: int, replications: int, delta: float, seed: int
         Laid out exactly as :func:`sim.simulation.driver.run_game` lays it out.
     """
     g = _Game(*kernel_groups(game, periods, delta, horizon, continuation, paths))
+    g.demand = demand
     raw = RawRun.empty(replications, g.n, g.n_products, periods, paths)
     seeds = stream_states(seed, key, 0, replications)
     buffers = (np.empty(g.n_products), np.empty(g.n_products), np.empty(g.n), np.empty((2, g.n_products)))
+    if demand is not None:
+        state_seeds = stream_states(seed, (*key, 1), 0, replications)
+        raw.demand_path = np.stack([draw_state_path(ReferenceStream(state_seeds[r]), demand.states, periods)
+                                    for r in range(replications)])
     for r in range(replications):
-        _play_replication(g, raw, r, ReferenceStream(seeds[r]), buffers)
+        _play_replication(g, raw, r, ReferenceStream(seeds[r]), buffers,
+                          None if demand is None else raw.demand_path[r])
     return raw

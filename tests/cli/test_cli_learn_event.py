@@ -50,7 +50,7 @@ def test_a_cost_shock_in_two_steps_reports_prices_after_it_and_the_time_to_settl
 
 
 @pytest.mark.parametrize("old, new, key", [
-    ('kind = "market"', 'kind = "merger"', "event.kind"),
+    ('kind = "market"', 'kind = "takeover"', "event.kind"),
     ("periods = 200", "periods = -1", "event.periods"),
     ("periods = 200", "periods = 200\nwhen = 5", "event.when"),
     ("n_firms = 2", "n_firms = 3", "market.n_firms"),

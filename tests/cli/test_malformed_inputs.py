@@ -205,6 +205,12 @@ CASES = [
     ("confidence of one", "simulate", "simulate", ("seed = 1", "seed = 1\nconfidence = 1.0"), [], "run.confidence"),
     ("negative seed", "simulate", "simulate", ("seed = 1", "seed = -1"), [], "run.seed"),
     ("deviating firm that does not exist", "simulate", "simulate", "\n[deviation]\nfirm = 9\n", [], "deviation.firm"),
+    ("fewer collusive actions than demand states", "simulate", "simulate",
+     '\n[demand_states]\nprobabilities = [0.5, 0.5]\nparameter = "intercept"\nvalues = [80.0, 120.0]\n'
+     "collusive_actions = [30.0]\n", [], "demand_states.collusive_actions"),
+    ("unknown collusive path", "simulate", "simulate",
+     '\n[demand_states]\nprobabilities = [0.5, 0.5]\nparameter = "intercept"\nvalues = [80.0, 120.0]\n'
+     'collusive_path = "cleverest"\n', [], "demand_states.collusive_path"),
     ("zero workers", "simulate", "simulate", None, ["--workers", "0"], "--workers"),
     ("negative paths", "simulate", "simulate", None, ["--paths", "-1"], "--paths"),
     ("malformed strategy flag", "simulate", "simulate", None, ["--strategy", "grim_trigger:length"], "--strategy"),

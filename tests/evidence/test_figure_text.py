@@ -272,3 +272,26 @@ def test_assessment_figures_keep_their_text_apart():
     drawn = assess_figures(ASSESS.run(ASSESS.prepare(doc), CellContext()).result)
     assert drawn
     _check(drawn)
+
+
+def test_any_punishment_figures_keep_their_text_apart():
+    """The payoff set (two firms; three firms with the symmetric slice) and the grid-refinement figure."""
+    for cost, refine in (([10.0, 12.0], [8, 12]), ([10.0, 10.0, 12.0], [6, 8])):
+        doc = {"experiment": {"kind": "thresholds", "name": "kilns", "currency": "EUR", "period": "month"},
+               "market": {"model": "cournot", "demand": "linear", "intercept": 100.0, "slope": 1.0, "cost": cost},
+               "collusion": {"agreement": "proportional"},
+               "any_punishment": {"grid": refine[0], "refine": refine, "directions": 8} if len(cost) > 2 else
+               {"grid": refine[0], "refine": refine}}
+        drawn = thresholds_figures(run_single(doc).result)
+        assert {"payoff-set", "grid-refinement"} <= {d.name for d in drawn}
+        _check(drawn)
+
+
+def test_alternating_learning_figures_keep_their_text_apart():
+    doc = tomllib.loads(LEARN_SMALL)
+    doc.setdefault("learning", {}).update({"timing": "alternating", "grid": [0.0, 0.25, 0.5, 0.75, 1.0]})
+    doc["market"] = {"model": "bertrand", "demand": "linear", "intercept": 1.0, "slope": 1.0, "cost": 0.0,
+                     "n_firms": 2}
+    drawn = learn_figures(run_single(doc).result)
+    assert "alternating_outcomes" in {d.name for d in drawn}
+    _check(drawn)

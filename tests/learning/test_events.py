@@ -99,18 +99,18 @@ def test_synchronous_myopic_learners_settle_at_a_grid_equilibrium_of_the_market_
 def test_the_event_table_is_read_and_refused_by_key():
     assert event_from_table({"kind": "entry", "periods": 250}) == Event("entry", 200, 100)
     assert event_from_table({"kind": "market", "periods": 30}) == Event("market", 30, 30)
-    for tab, key in (({"kind": "merger"}, "event.kind"), ({}, "event.kind"), ({"kind": "entry", "periods": 0},
+    for tab, key in (({"kind": "takeover"}, "event.kind"), ({}, "event.kind"), ({"kind": "entry", "periods": 0},
                      "event.periods"), ({"kind": "entry", "when": 3}, "event.when")):
         with pytest.raises(sim.InputError) as e:
             event_from_table(tab)
         assert e.value.key == key
 
 
-def test_an_entry_needs_one_more_firm_and_an_automaton_last(saved):
+def test_an_entry_needs_one_more_firm(saved):
     ev = Event("entry", 100, 10)
     with pytest.raises(sim.InputError) as e:
         with_saved_grids(QLearner(m=5), saved, 2, ev)
     assert e.value.key == "market.n_firms"
-    with pytest.raises(sim.InputError) as e:
-        with_saved_grids(QLearner(m=5), saved, 3, ev)
-    assert e.value.key == "strategies"
+    # a learner may enter: the incumbents take the saved grids, the entrant keeps its own (none: the market's)
+    lineup = with_saved_grids(QLearner(m=5), saved, 3, ev)
+    assert lineup[0].grid is not None and lineup[1].grid is not None and lineup[2].grid is None

@@ -67,6 +67,8 @@ def _learn_names(cfg: dict) -> list[str]:
         out += trigger_names(i + 1)
     if cfg.get("event") is not None:
         out += event_names(n)
+        if cfg["event"].kind == "merger":
+            out += [f"analytic.merger_nash_price.firm{i + 1}" for i in range(n)]
     if cfg["settings"].get("timing") == "alternating":
         out += list(ALTERNATING_NAMES)
     return out
@@ -218,6 +220,8 @@ def learn_metrics(res: LearnResult) -> dict:
             m[f"event_price_before.{f}"] = ev["before"][i]["mean"]
             for k, src in (("", "mean"), (".low", "low"), (".high", "high")):
                 m[f"event_price_change.{f}{k}"] = ch[src]
+        for i, p in enumerate(ev.get("merger", {}).get("nash_prices", [])):
+            m[f"analytic.merger_nash_price.firm{i + 1}"] = p
     alt = sm.get("alternating")
     if alt:
         for name, (entry, src) in ALTERNATING_NAMES.items():

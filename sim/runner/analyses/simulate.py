@@ -37,6 +37,13 @@ from sim.runner.analyses.common import (
     thin,
 )
 from sim.runner.analyses.simulate_capacity import prepare_capacity_game
+from sim.runner.analyses.simulate_states import (
+    CONTINGENT_WORDS,
+    contingent_names,
+    contingent_states,
+    put_contingent,
+    wants_contingent,
+)
 from sim.runner.cost import Cost
 from sim.runner.kinds import CellContext, CellResult, Kind
 from sim.simulation.analysis import SimulateResult, simulate_analysis
@@ -184,6 +191,8 @@ def _prepare_simulate(doc: dict) -> dict:
 def _states_of(doc: dict, out: dict) -> dict:
     """The ``[demand_states]`` table of a simulation: the states, the parameter, its values and the verified
     profit factor of each state (:func:`sim.simulation.states_run.state_factors`)."""
+    if wants_contingent(doc["demand_states"]):
+        return contingent_states(doc, out)
     for other in ("enforcement", "deviation"):
         if other in doc:
             raise InputError("demand_states", f"is not simulated together with [{other}]: the line-up's profits move "
@@ -299,6 +308,8 @@ def _simulate_names(cfg: dict) -> list[str]:
             out += [f"{m}.firm{i + 1}{s}" for i in range(n) for s in ("", ".low", ".high")]
     if cfg.get("demand_states") is not None:
         out += state_play_names(cfg["demand_states"]["states"].n_states, n)
+        if cfg["demand_states"].get("game") is not None:
+            out += contingent_names(cfg["demand_states"]["states"].n_states)
     return out
 
 
@@ -330,6 +341,8 @@ def _analytic_gain(cfg: dict, seat: int) -> float:
     dev = cfg["deviation"]
     mon = cfg["game"].monitoring
     run = cfg["run"]
+    if cfg.get("demand_states") is not None:  # the closed form is the experiment's market's
+        return math.nan
     if dev["custom"] or run["horizon"] != "fixed" or mon["sigma"] > 0 or mon["perception_error"] > 0 or \
             mon["implementation_error"] > 0:
         return math.nan
@@ -448,6 +461,8 @@ def _run_simulate(cfg: dict, ctx: CellContext) -> CellResult:
         put_enforced(m, result.enforcement)
     if result.states is not None:
         put_state_play(m, result.states)
+        if result.states.contingent is not None:
+            put_contingent(m, result.states)
     return CellResult(m, arrays, result)
 
 
@@ -481,6 +496,8 @@ def simulate_cost(cfg: dict) -> Cost:
                                                 and cfg["enforcement"].after_detection is None):
         # enforcement records every replication's path (see sim.simulation.enforced)
         memory += 8 * (reps - paths) * periods * (2 * n_products + 3 * n + 4)
+    if cfg.get("demand_states") is not None and cfg["demand_states"].get("game") is not None:
+        memory += 8 * reps * periods  # the drawn demand state of every period
     work = (2 if cfg["deviation"] is not None else 1) * float(periods) * reps * n
     key = "run.periods" if periods * per_period >= reps * per_rep else "run.replications"
     return Cost(memory, work, "firm-periods", work / THROUGHPUT, key)
@@ -515,8 +532,10 @@ def _describe_simulate(doc: dict) -> list[str]:
                         f"for {e['after_detection']} periods after a conviction, then the strategies start afresh"))
     if "demand_states" in doc and isinstance(doc["demand_states"], dict):
         d = doc["demand_states"]
+        play = "plays the same actions in every state" if not wants_contingent(d) else \
+            "colludes on " + CONTINGENT_WORDS.get(d.get("collusive_path", "given"), "a state-contingent path")
         lines.append(f"Demand states: {d.get('kind', 'iid')}, {d.get('parameter')} per state {d.get('values')}; the "
-                     f"line-up plays the same actions in every state")
+                     f"line-up {play}")
     return lines
 
 

@@ -1,0 +1,106 @@
+"""``supergame learn`` and ``supergame run`` in two steps: learners saved, then continued after a merger of their
+products; the report of the static merger effect beside the learned change, and one-line refusals naming the key
+(exit status 2) for bad mergers.
+
+Sources: a merged firm sets its products' prices to maximise their summed profit, which in a duopoly merging to
+monopoly gives the joint-profit prices (Deneckere and Davidson, 1985, RAND Journal of Economics 16(4); Motta, 2004,
+Competition Policy: Theory and Practice, ch. 5, from memory).
+"""
+
+import pytest
+
+from sim.cli import main
+from tests.conftest import learn_text
+
+STEP1 = learn_text("step1", 'm = 5\nbeta = 2e-4\nconvergence = 1000\nmax_periods = 8000\nsave_to = "learners.npz"',
+                   impulse=3)
+
+STEP2 = (STEP1.replace('name = "step1"', 'name = "step2"').replace("max_periods = 8000", "max_periods = 1e6")
+         .replace('save_to = "learners.npz"', 'continue_from = "learners.npz"').replace("m = 5\n", "")
+         + '\n[event]\nkind = "merger"\nfirms = [1, 2]\nperiods = 200\n')
+
+
+@pytest.fixture
+def folder(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "step1.toml").write_text(STEP1)
+    (tmp_path / "step2.toml").write_text(STEP2)
+    return tmp_path
+
+
+def test_a_merger_in_two_steps_reports_the_static_effect_beside_the_learned_change(folder, capsys):
+    assert main(["learn", "step1.toml"]) == 0
+    capsys.readouterr()
+    assert main(["learn", "step2.toml", "--plot", "figs"]) == 0
+    out = capsys.readouterr().out
+    assert "After the event (firm 1 and firm 2 merge: their learners go on, each rewarded with the merged firm's " \
+           "profit)" in out
+    assert "the merger's static effect" in out and "learned vs static" in out
+    # the stored result prints the same text, and the figure is the bundle's, byte for byte
+    from sim.evidence.learn import RENDERER
+    from sim.runner.runs import open_run
+
+    assert main(["run", "step2.toml", "--out", "run", "--report", "--quiet"]) == 0
+    capsys.readouterr()
+    run = open_run(folder / "run")
+    res = run.result(0)
+    report = out.split("\nwrote figs/")[0]  # --plot adds the files it wrote after the report
+    assert RENDERER.console(res) == report.rstrip("\n")
+    png = "prices_after_event.png"
+    assert (folder / "figs" / png).read_bytes() == (folder / "run" / "report" / "figures" / png).read_bytes()
+    # merger to monopoly: the static Nash prices after it are the joint-profit prices (Deneckere and Davidson, 1985)
+    mg = res.event["merger"]
+    bm = res.summary["benchmarks"]
+    assert mg["nash_prices"] == pytest.approx(bm["collusive_prices"], abs=1e-6)
+    row = run.rows()[0]
+    assert row.metrics["analytic.merger_nash_price.firm1"] == pytest.approx(bm["collusive_prices"][0], abs=1e-6)
+
+
+@pytest.mark.parametrize("old, new, key", [
+    ("firms = [1, 2]", "firms = [1, 3]", "event.firms"),
+    ("firms = [1, 2]", "firms = [2]", "event.firms"),
+    ("firms = [1, 2]", "", "event.firms"),
+    ('kind = "merger"', 'kind = "market"', "event.firms"),
+], ids=["no-such-firm", "one-firm", "missing", "not-a-merger"])
+def test_bad_mergers_are_refused_in_one_line_naming_the_key(folder, capsys, old, new, key):
+    assert main(["learn", "step1.toml"]) == 0
+    capsys.readouterr()
+    (folder / "bad.toml").write_text(STEP2.replace(old, new))
+    assert main(["learn", "bad.toml"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and key in err, err
+    assert not (folder / "runs").exists()
+
+
+def test_a_merger_with_an_automatons_seat_is_refused_naming_the_key(folder, capsys):
+    seats = '\n[[strategies]]\nstrategy = "qlearning"\n\n[[strategies]]\nstrategy = "tit_for_tat"\n'
+    (folder / "mixed1.toml").write_text(STEP1.replace("[impulse]", seats + "\n[impulse]"))
+    assert main(["learn", "mixed1.toml"]) == 0
+    capsys.readouterr()
+    (folder / "mixed2.toml").write_text(STEP2.replace("[impulse]", seats + "\n[impulse]"))
+    assert main(["learn", "mixed2.toml"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "event.firms" in err and "automaton" in err, err
+
+
+@pytest.mark.slow
+def test_the_shipped_merger_experiment_in_its_two_steps(tmp_path, monkeypatch, capsys):
+    """The two commands of experiments/learning-merger.toml's comment, from one folder: after Firm A and Firm B
+    merge, their learned limit prices rise, by less than the static merger effect. Tolerance: the mean rise of the
+    two merged products, over 40 sessions, must be positive and below the static rise (fixed seeds)."""
+    from pathlib import Path
+
+    from sim.runner.runs import open_run
+
+    root = Path(__file__).resolve().parents[2] / "experiments"
+    monkeypatch.chdir(tmp_path)
+    assert main(["learn", str(root / "learning-merger-before.toml")]) == 0
+    assert (tmp_path / "corrow-learners.npz").is_file()
+    assert main(["run", str(root / "learning-merger.toml"), "--out", "merger", "--report", "--quiet"]) == 0
+    capsys.readouterr()
+    res = open_run(tmp_path / "merger").result(0)
+    mg = res.event["merger"]
+    learned = (mg["learned_change"][0] + mg["learned_change"][1]) / 2
+    assert 0 < learned < mg["static_change"][0]
+    assert res.event["settled"]["share"] == 1.0
+    assert (tmp_path / "merger" / "report" / "figures" / "prices_after_event.png").is_file()
