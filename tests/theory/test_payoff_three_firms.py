@@ -49,8 +49,9 @@ def _support(points, D):
 @given(three_firm_games(), st.sampled_from([(0.4, 0.6), (0.5, 0.7), (0.6, 0.8)]))
 def test_three_firm_sets_grow_with_delta(game, deltas):
     """With public randomisation the equilibrium payoff set grows with the discount factor (Abreu, Pearce and
-    Stacchetti, 1990, "Toward a theory of discounted repeated games with imperfect monitoring", Econometrica 58,
-    Theorem 6: a bounded self-generating convex set at delta1 is self-generating at delta2 > delta1).
+    Stacchetti, 1990, "Toward a theory of discounted repeated games with imperfect monitoring", Econometrica 58:
+    a bounded convex self-generating set at delta1 is self-generating at delta2 > delta1; the statement is
+    recalled from memory, not read here).
 
     * inner(delta1) lies in outer(delta2), exactly (rounding of 1e-9 of the payoff scale): inner(delta1) holds
       equilibrium payoffs at delta1, hence at delta2, and the outer set holds every equilibrium payoff at delta2;
@@ -111,7 +112,7 @@ def _inscribed_radius(game):
 def test_three_firm_folk_theorem(game):
     """As delta tends to one the equilibrium payoffs approach the feasible payoffs strictly above each firm's
     pure-action minmax (Fudenberg and Maskin, 1986, "The folk theorem in repeated games with discounting or with
-    incomplete information", Econometrica 54, Theorem 2: three or more players need that set to be
+    incomplete information", Econometrica 54, from memory: three or more players need that set to be
     full-dimensional, so draws are kept when it holds a ball of radius 5 % of the payoff range; pure minmax
     actions are observed, public randomisation convexifies).
 
