@@ -124,8 +124,12 @@ def frontier_line(ap: AnyPunishmentResult) -> str | None:
         return f"{fmt_num(lo)} to {fmt_num(hi)}" if math.isfinite(lo) else f"at most {fmt_num(hi)}"
 
     per_firm = "; ".join(f"firm {i + 1} {span(*best[i])}" for i in range(ap.n_firms))
+    equal = np.asarray(ap.best_equal, float).reshape(-1)
+    # three firms or more: the symmetric slice's line gives the best equal profit
+    both = (f"; best equal profit of both firms {span(*equal)}"
+            if ap.n_firms == 2 and equal.size == 2 and math.isfinite(equal[1]) else "")
     return (f"  best sustainable profits per period (constructed equilibrium to outer bound): joint "
-            f"{span(*joint)}; best for one firm: {per_firm}")
+            f"{span(*joint)}; best for one firm: {per_firm}{both}")
 
 
 def console_lines(ap: AnyPunishmentResult, quantity_setting: bool) -> list[str]:

@@ -88,4 +88,12 @@ FRONTIER_ENTRIES: dict[str, tuple] = {
     "any_punishment.best_profit.upper": (
         "best equilibrium payoff of the firm, upper end", "{money}",
         "No equilibrium at the payoff set's discount factor gives the firm more per period (outer set).", _FRONTIER),
+    "any_punishment.best_equal_profit.lower": (
+        "best equal profit of an equilibrium, lower end", "{money}",
+        "Two firms: the highest profit t such that both firms earning t is a constructed equilibrium outcome at the "
+        "payoff set's discount factor (inner set), the most profitable symmetric outcome at least.", _SLICE),
+    "any_punishment.best_equal_profit.upper": (
+        "best equal profit of an equilibrium, upper end", "{money}",
+        "Two firms: no equilibrium at the payoff set's discount factor gives both firms an equal profit above this "
+        "(outer set).", _SLICE),
 }

@@ -267,6 +267,10 @@ class AnyPunishmentResult(Record):
     best_profits : ndarray of shape (n_firms, 2)
         Each firm's best equilibrium payoff at ``delta``, bracketed the same way (row ``i``: inner, outer); the
         most profitable asymmetric outcomes. Shape (0, 2) in a result stored before the frontier was kept.
+    best_equal : ndarray of shape (2,)
+        The most profitable symmetric outcome at ``delta``: the largest ``t`` with ``(t, ..., t)`` in the inner set
+        and in the outer set (for three firms or more, the upper ends of ``symmetric``). nan when no set was
+        computed or a set misses the diagonal.
     """
 
     grid: list
@@ -301,6 +305,7 @@ class AnyPunishmentResult(Record):
     refinement: GridRefinement | None = None
     best_joint: np.ndarray = field(default_factory=lambda: np.full(2, np.nan))
     best_profits: np.ndarray = field(default_factory=lambda: np.zeros((0, 2)))
+    best_equal: np.ndarray = field(default_factory=lambda: np.full(2, np.nan))
 
     @property
     def n_firms(self) -> int:
@@ -354,7 +359,8 @@ def _frontier(res) -> dict:
     inner vertex is an equilibrium payoff, and every equilibrium payoff lies in the outer set (Judd, Yeltekin and
     Conklin, 2003), so the best value lies between the two maxima."""
     f = sustainable_frontier(res)
-    return {"best_joint": np.asarray(f.joint, float), "best_profits": np.asarray(f.per_firm_best, float)}
+    return {"best_joint": np.asarray(f.joint, float), "best_profits": np.asarray(f.per_firm_best, float),
+            "best_equal": np.asarray(f.symmetric, float)}
 
 
 def _verdict(profits, gains, worst_low, worst_high, delta: float, inner_empty: bool, outer_empty: bool) -> str:
@@ -402,7 +408,8 @@ def any_punishment_analysis(market, spec: AnyPunishmentSpec, agreement: str = "j
     empty = np.zeros((0, 2))
     sets = {"verdict": "", "status": "", "accuracy": math.nan, "worst_low": np.full(n, np.nan),
             "worst_high": np.full(n, np.nan), "outer": empty, "inner": empty, "penal_codes": [],
-            "symmetric": np.full(4, np.nan), "best_joint": np.full(2, np.nan), "best_profits": np.full((n, 2), np.nan)}
+            "symmetric": np.full(4, np.nan), "best_joint": np.full(2, np.nan), "best_profits": np.full((n, 2), np.nan),
+            "best_equal": np.full(2, np.nan)}
     if math.isfinite(delta):
         res = equilibrium_payoffs(game, delta, method=spec.method, directions=dirs)
         verdict = _verdict(t.profits, gains, res.worst_outer, res.worst_inner, delta,

@@ -196,7 +196,8 @@ TWO_FIRM_COLUMNS = [
 FRONTIER_COLUMNS = [
     "any_punishment.best_joint.lower", "any_punishment.best_joint.upper", "any_punishment.best_profit.lower.firm1",
     "any_punishment.best_profit.lower.firm2", "any_punishment.best_profit.upper.firm1",
-    "any_punishment.best_profit.upper.firm2",
+    "any_punishment.best_profit.upper.firm2", "any_punishment.best_equal_profit.lower",
+    "any_punishment.best_equal_profit.upper",
 ]
 
 
@@ -221,7 +222,8 @@ def test_the_frontier_is_printed_stored_and_catalogued(tmp_path, capsys):
     part = doc["any_punishment"]
     assert part["best_joint"] == pytest.approx(list(ap.best_joint))
     assert np.allclose(part["best_profits"], ap.best_profits, rtol=1e-12, atol=0)
-    assert [row[m] for m in FRONTIER_COLUMNS] == pytest.approx([*ap.best_joint, *ap.best_profits.T.ravel()])
+    stored = [*ap.best_joint, *ap.best_profits.T.ravel(), *ap.best_equal]
+    assert [row[m] for m in FRONTIER_COLUMNS] == pytest.approx(stored)
     names = [m for m in KIND.metric_names(KIND.prepare(tomllib.loads(TEXT))) if m.startswith("any_punishment.")]
     assert names[:len(TWO_FIRM_COLUMNS)] == TWO_FIRM_COLUMNS
     assert names[len(TWO_FIRM_COLUMNS):len(TWO_FIRM_COLUMNS) + len(FRONTIER_COLUMNS)] == FRONTIER_COLUMNS

@@ -216,9 +216,10 @@ def test_the_frontier_round_trips_and_an_older_result_reads_back_empty(shipped, 
         np.testing.assert_array_equal(back.best_joint, ap.best_joint)
         np.testing.assert_array_equal(back.best_profits, ap.best_profits)
         assert ap.best_profits.shape == (ap.n_firms, 2) and np.all(np.isfinite(ap.best_profits))
-    old = {k: v for k, v in ap.to_dict().items() if k not in ("best_joint", "best_profits")}
+    old = {k: v for k, v in ap.to_dict().items() if k not in ("best_joint", "best_profits", "best_equal")}
     back = AnyPunishmentResult.from_dict(old)
     assert np.all(np.isnan(back.best_joint)) and back.best_profits.shape == (0, 2)
+    assert np.all(np.isnan(back.best_equal))
 
 
 def test_the_frontier_brackets_hold_the_agreement_and_stay_feasible(shipped, three_firms):
@@ -231,7 +232,9 @@ def test_the_frontier_brackets_hold_the_agreement_and_stay_feasible(shipped, thr
     direction, and at most sqrt(n) times it for the joint profit (a Hausdorff distance d moves the support value
     in a unit direction by at most d; the joint profit is sqrt(n) times the support value in the unit diagonal).
     With three firms, the best equal profit of a constructed equilibrium (the symmetric slice) times three is a
-    joint profit of the inner set. Tolerance: 1e-7 of the payoff scale (rounding of the sets)."""
+    joint profit of the inner set, and the best equal profit is the symmetric slice's upper end; for any number of
+    firms, n times the best equal profit is a joint profit, so at most the best. Tolerance: 1e-7 of the payoff
+    scale (rounding of the sets)."""
     market3, spec3, ap3 = three_firms
     for market, agreement, spec, ap in (shipped[1:], (market3, "joint", spec3, ap3)):
         game = discretize(market, list(spec.grid), agreement=agreement)
@@ -246,6 +249,9 @@ def test_the_frontier_brackets_hold_the_agreement_and_stay_feasible(shipped, thr
             assert j_hi >= ap.profits.sum() - tol and np.all(best[:, 1] >= ap.profits - tol)
         if ap.n_firms >= 3 and np.isfinite(ap.symmetric[2]):
             assert ap.n_firms * ap.symmetric[2] <= j_lo + tol
+            np.testing.assert_allclose(ap.best_equal, ap.symmetric[2:], rtol=0, atol=tol)
+        e_lo, e_hi = ap.best_equal
+        assert e_lo <= e_hi + tol and ap.n_firms * e_lo <= j_lo + tol and ap.n_firms * e_hi <= j_hi + tol
 
 
 def test_the_best_joint_profit_is_at_most_the_monopoly_profit(three_firms):

@@ -132,6 +132,8 @@ def _any_punishment_names(n: int) -> list[str]:
         out += [f"any_punishment.symmetric_slice.{e}" for e in _SLICE_ENDS]
     out += ["any_punishment.best_joint.lower", "any_punishment.best_joint.upper"]
     out += [f"any_punishment.best_profit.{end}.firm{i + 1}" for end in ("lower", "upper") for i in range(n)]
+    if n == 2:  # three firms or more: the upper ends of the symmetric slice
+        out += ["any_punishment.best_equal_profit.lower", "any_punishment.best_equal_profit.upper"]
     return out
 
 
@@ -180,6 +182,9 @@ def _frontier_metrics(ap, n: int) -> dict:
     m = {"any_punishment.best_joint.lower": float(joint[0]), "any_punishment.best_joint.upper": float(joint[1])}
     for j, end in enumerate(("lower", "upper")):
         m.update({f"any_punishment.best_profit.{end}.firm{i + 1}": float(best[i, j]) for i in range(n)})
+    if n == 2:
+        equal = np.asarray(ap.best_equal, float).reshape(-1)
+        m["any_punishment.best_equal_profit.lower"], m["any_punishment.best_equal_profit.upper"] = map(float, equal)
     return m
 
 
