@@ -23,7 +23,7 @@ from sim.evidence.catalogue_assess import ASSESS_ENTRIES
 from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
 from sim.evidence.catalogue_contact_play import CONTACT_PLAY_ENTRIES
 from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
-from sim.evidence.catalogue_slice import REFINE_ENTRIES, SLICE_ENTRIES
+from sim.evidence.catalogue_slice import FRONTIER_ENTRIES, REFINE_ENTRIES, SLICE_ENTRIES
 from sim.evidence.catalogue_state_play import STATE_PLAY_ENTRIES
 
 __all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "money"]
@@ -478,6 +478,8 @@ ENTRIES.update({k: Entry(*v) for k, v in ALTERNATING_ENTRIES.items()})
 # the symmetric slice of the any-punishment set, three firms or more (sim.evidence.catalogue_slice)
 ENTRIES.update({k: Entry(*v) for k, v in SLICE_ENTRIES.items()})
 ENTRIES.update({k: Entry(*v) for k, v in REFINE_ENTRIES.items()})
+# the frontier of sustainable profits of the any-punishment set (sim.evidence.catalogue_slice)
+ENTRIES.update({k: Entry(*v) for k, v in FRONTIER_ENTRIES.items()})
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)
 PARAMETERS: dict[str, Entry] = {
