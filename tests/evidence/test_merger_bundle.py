@@ -1,0 +1,58 @@
+"""The merger bundle as a reader prints it, from a reduced copy of the shipped assessment (same sections, tables and
+figures as the full run; fewer periods, replications and sensitivity points): the caution once on the first page,
+numbers in the setup written as a reader writes them, firm names instead of product numbers, a titled legend of
+legible size and a band around the simulated persistence curve."""
+
+from __future__ import annotations
+
+import re
+
+import pytest
+
+from sim.core.text import CAUTION
+from sim.evidence.report import write_report
+from sim.runner.folder import open_run
+from sim.runner.runs import run_experiment
+from tests.conftest import ROOT
+
+#: the shipped file's sizes, shrunk (each change must apply: the file under test is the one shipped)
+SHRINK = {"periods = 250": "periods = 40", "replications = 400": "replications = 16",
+          "num = 7 }": "num = 2 }", "num = 9 }": "num = 2 }", "num = 24 }": "num = 4 }",
+          "noise = [0.0, 0.25, 0.5, 1.0, 2.0, 4.0]": "noise = [0.0, 1.0]"}
+
+
+@pytest.fixture(scope="module")
+def merger_run(tmp_path_factory):
+    """The run folder of the reduced shipped merger assessment, with its bundle."""
+    text = (ROOT / "experiments" / "merger-assessment.toml").read_text(encoding="utf-8")
+    for old, new in SHRINK.items():
+        assert old in text, f"merger-assessment.toml no longer holds {old!r}: update the test's copy"
+        text = text.replace(old, new)
+    d = tmp_path_factory.mktemp("merger-bundle")
+    (d / "experiment.toml").write_text(text, encoding="utf-8")
+    run_experiment(d / "experiment.toml", d / "run", workers=1, report=True, write_report=write_report,
+                   progress=False)
+    return d / "run"
+
+
+@pytest.fixture(scope="module")
+def page(merger_run) -> str:
+    return (merger_run / "report" / "summary.html").read_text(encoding="utf-8")
+
+
+@pytest.fixture(scope="module")
+def result(merger_run):
+    with open_run(merger_run) as rf:
+        return rf.result(rf.rows()[0].cell)
+
+
+def _text(html: str) -> str:
+    """The page's text (tags dropped), as a reader sees it."""
+    return re.sub(r"\s+", " ", re.sub(r"<[^>]+>", " ", re.sub(r"<style.*?</style>", "", html, flags=re.S)))
+
+
+def test_the_caution_shows_once_on_the_first_page_and_once_at_the_close(page):
+    text = _text(page)
+    first_section = text.index("Conclusion under the stated assumptions")
+    assert text[:first_section].count(CAUTION) == 1
+    assert text.count(CAUTION) == 2 and text.rstrip().endswith(CAUTION)
