@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from sim.core.text import CAUTION, fmt_num, table
+from sim.core.text import CAUTION, fmt_num, plain_values, table
 from sim.evidence import any_punishment as anyp
 from sim.evidence.answers import thresholds_headline
 from sim.evidence.render import Drawn, Renderer, pyplot
@@ -38,7 +38,8 @@ def describe_market(market: dict, n_firms: int) -> str:
     str
     """
     skip = {"model", "demand", "cost", "n_firms", "capacity"}
-    params = ", ".join(f"{k} {v}" for k, v in market.items() if k not in skip)
+    params = ", ".join(f"{k} {plain_values(v, brackets=True)}" for k, v in market.items()
+                       if k not in skip)
     return f"{market['model'].capitalize()} competition, {market['demand']} demand ({params}), {n_firms} firms"
 
 

@@ -9,7 +9,7 @@ import re
 
 import pytest
 
-from sim.core.text import CAUTION
+from sim.core.text import CAUTION, plain_number, plain_values
 from sim.evidence.report import write_report
 from sim.runner.folder import open_run
 from sim.runner.runs import run_experiment
@@ -56,3 +56,22 @@ def test_the_caution_shows_once_on_the_first_page_and_once_at_the_close(page):
     first_section = text.index("Conclusion under the stated assumptions")
     assert text[:first_section].count(CAUTION) == 1
     assert text.count(CAUTION) == 2 and text.rstrip().endswith(CAUTION)
+
+
+def test_the_setup_writes_numbers_as_a_reader_does(page):
+    """The potential market of the shipped file is 50,000 commuters: no fixed six decimals ("50000.000000") in the
+    setup or the calibrated parameters."""
+    text = _text(page)
+    start = text.index("Pre-merger market:")
+    setup = text[start:text.index("Calibration", start)]
+    assert "size 50,000" in setup and "outside 0;" in setup
+    found = re.search(r".{40}\d\.\d*000000\b.{20}", text)
+    assert found is None, found.group(0)
+
+
+def test_plain_numbers():
+    """Whole numbers without decimals, thousands separated, no trailing zeros; scientific notation only where fixed
+    decimals would lose the number (common practice of style guides, no source)."""
+    assert [plain_number(x) for x in (50000.0, 0.0, -0.0, 1.1466, 2.501707, 100.0, -12345.5, 1e-9, None)] == [
+        "50,000", "0", "0", "1.1466", "2.501707", "100", "-12,345.5", "1e-09", "-"]
+    assert plain_values([10.0, 14.0]) == "10, 14" and plain_values([10.0, 14.0], brackets=True) == "[10, 14]"

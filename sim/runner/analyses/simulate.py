@@ -25,6 +25,7 @@ from sim.core.errors import InputError
 from sim.core.parallel import usable_cores
 from sim.core.params import Integer, Real
 from sim.core.tables import refuse_unknown
+from sim.core.text import plain_number
 from sim.core.values import value_label
 from sim.models.stagecore import market_owner
 from sim.runner.analyses.common import (
@@ -476,10 +477,11 @@ def _describe_simulate(doc: dict) -> list[str]:
     lines = [f"Market: {describe_market(doc.get('market', {}))}",
              f"Agreement: {coll.get('agreement', 'given' if 'actions' in coll else 'joint')}",
              f"Line-up (seat order): {seats}",
-             f"Monitoring: signal {mon['signal']}, {mon['noise']} demand shock sigma {mon['sigma']}, perception error "
-             f"{mon['perception_error']}, implementation error {mon['implementation_error']}",
+             f"Monitoring: signal {mon['signal']}, {mon['noise']} demand shock sigma {plain_number(mon['sigma'])}, "
+             f"perception error {plain_number(mon['perception_error'])}, implementation error "
+             f"{plain_number(mon['implementation_error'])}",
              f"Run: {run['periods']} periods ({run['horizon']} horizon), {run['replications']} replications, delta "
-             f"{run['delta']}, seed {run['seed']}"]
+             f"{plain_number(run['delta'])}, seed {run['seed']}"]
     if "deviation" in doc:
         d = doc["deviation"]
         who = d.get("firm", "binding")
