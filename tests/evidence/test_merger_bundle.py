@@ -10,6 +10,9 @@ import re
 import pytest
 
 from sim.core.text import CAUTION, plain_number, plain_values
+from sim.evidence.assess import RENDERER
+from sim.evidence.figures import PAGE_WIDTH, SMALL
+from sim.evidence.render import pyplot
 from sim.evidence.report import write_report
 from sim.runner.folder import open_run
 from sim.runner.runs import run_experiment
@@ -75,3 +78,30 @@ def test_plain_numbers():
     assert [plain_number(x) for x in (50000.0, 0.0, -0.0, 1.1466, 2.501707, 100.0, -12345.5, 1e-9, None)] == [
         "50,000", "0", "0", "1.1466", "2.501707", "100", "-12,345.5", "1e-09", "-"]
     assert plain_values([10.0, 14.0]) == "10, 14" and plain_values([10.0, 14.0], brackets=True) == "[10, 14]"
+
+
+@pytest.fixture(scope="module")
+def drawn(result):
+    plt = pyplot()
+    figs = {f.name: f for f in RENDERER.figures(result)}
+    yield figs
+    for f in figs.values():
+        plt.close(f.figure)
+
+
+def _legends(fig) -> list:
+    return list(fig.legends) + [ax.get_legend() for ax in fig.axes if ax.get_legend() is not None]
+
+
+def test_every_legend_of_the_assessment_has_a_title_and_legible_text(drawn):
+    """Figures are drawn at the page's printed width, so text at SMALL points or more stays at least 8 pt on
+    paper (the issue's print rule; common practice, no source)."""
+    assert {"partial_collusion", "persistence", "thresholds"} <= set(drawn)
+    for name, f in drawn.items():
+        for leg in _legends(f.figure):
+            assert leg.get_title().get_text().strip(), name
+            sizes = [t.get_fontsize() for t in leg.get_texts()] + [leg.get_title().get_fontsize()]
+            assert min(sizes) >= SMALL, (name, sizes)
+    (leg,) = _legends(drawn["partial_collusion"].figure)
+    assert leg.get_title().get_text() == "punishment scheme (colour) and market (line style)"
+    assert drawn["partial_collusion"].figure.get_figwidth() == pytest.approx(PAGE_WIDTH)
