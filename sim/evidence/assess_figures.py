@@ -11,9 +11,10 @@ import itertools
 
 import numpy as np
 
+from sim.core.stats import wilson_band
 from sim.evidence.assess_payoffs import payoff_figure
 from sim.evidence.assess_tables import SCHEME_LABELS, SIDES, as_float, assessment_data, in_order
-from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color, fit_legend
+from sim.evidence.figures import FONT, PAGE_WIDTH, SHARE_BAND_WORDS, SMALL, color, fit_legend, share_trials
 from sim.evidence.pairs import assessment_pairs, pairs_figure
 from sim.evidence.render import Drawn, pyplot
 
@@ -91,14 +92,25 @@ def _partial(plt, d: dict) -> Drawn:
 
 def _persistence(plt, d: dict) -> Drawn:
     fig, ax = _axes(plt, 3.2)
+    banded = []
     for label, col in (("before", _BEFORE), ("after", _AFTER)):
-        y = _arr(d[label]["simulation"]["collusive_by_period"])
-        ax.plot(np.arange(1, y.size + 1), y, color=col, lw=1, label=label)
+        sim = d[label]["simulation"]
+        y = _arr(sim["collusive_by_period"])
+        t = np.arange(1, y.size + 1)
+        ax.plot(t, y, color=col, lw=1, label=label)
+        n = share_trials(sim["settings"]["run"])
+        if n:
+            lo, hi = wilson_band(y, n)
+            ax.fill_between(t, lo, hi, color=col, alpha=0.2, lw=0, label=f"{label}: 95 % band")
+            banded.append(n)
     ax.set_xlabel("period")
     ax.set_ylabel("share of replications colluding")
     ax.set_ylim(-0.02, 1.02)
-    return _drawn(fig, ax, "persistence", "Simulated persistence of collusion under the experiment's monitoring noise",
-                  "market")
+    drawn = _drawn(fig, ax, "persistence", "Simulated persistence of collusion under the experiment's monitoring "
+                                           "noise", "market")
+    caption = drawn.caption + (f"; band: {SHARE_BAND_WORDS.format(n=banded[0])}" if banded else
+                               "; no band: the horizon is random, so the replications behind each period vary")
+    return Drawn(drawn.name, drawn.figure, caption)
 
 
 def _axes(plt, height: float):

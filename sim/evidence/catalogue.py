@@ -226,7 +226,8 @@ ENTRIES: dict[str, Entry] = {
                                 "Share of periods in price wars in the long run.", "renewal argument"),
     "collusive_by_period": Entry("share of replications colluding", "0 to 1",
                                  "Share of the replications still running in which every firm colludes, per period.",
-                                 "counted"),
+                                 "counted", "pointwise " + _WILSON + " per period (fixed horizon); none under a random "
+                                                                     "horizon"),
     # learning
     "sessions": Entry("learning sessions", "count", "Independent sessions.", "given"),
     "converged": Entry("share of sessions that converged", "0 to 1",

@@ -27,6 +27,7 @@ from sim.evidence.catalogue import describe, describe_parameter
 __all__ = [
     "PAGE_WIDTH",
     "PALETTE",
+    "SHARE_BAND_WORDS",
     "SweepData",
     "color",
     "fit_legend",
@@ -35,6 +36,7 @@ __all__ = [
     "metric_axis",
     "metric_label",
     "number_format",
+    "share_trials",
 ]
 
 
@@ -221,6 +223,30 @@ PAGE_WIDTH = 6.3
 FONT, SMALL = 9.0, 8.0
 #: a palette that colour-blind readers tell apart (Okabe and Ito, 2008, "Color Universal Design")
 PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000", "#F0E442")
+
+
+#: how the band around a share of replications period by period is computed (a caption's words; ``{n}``: the
+#: replications)
+SHARE_BAND_WORDS = ("pointwise 95 % Wilson score interval of the share among the {n} replications in each period "
+                    "(Wilson, 1927, JASA 22)")
+
+
+def share_trials(run: dict) -> int | None:
+    """The replications behind each period's share of a simulation with these ``run`` settings: all of them under a
+    fixed horizon; None under a random one (the replications still running differ from period to period).
+
+    Parameters
+    ----------
+    run : dict
+        The simulation's ``run`` settings (``horizon``, ``replications``).
+
+    Returns
+    -------
+    int or None
+    """
+    if run.get("horizon", "fixed") != "fixed":
+        return None
+    return int(run["replications"])
 
 
 def color(k: int) -> str:

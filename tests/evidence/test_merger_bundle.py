@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import re
 
+import numpy as np
 import pytest
 
 from sim.core.text import CAUTION, plain_number, plain_values
@@ -105,3 +106,20 @@ def test_every_legend_of_the_assessment_has_a_title_and_legible_text(drawn):
     (leg,) = _legends(drawn["partial_collusion"].figure)
     assert leg.get_title().get_text() == "punishment scheme (colour) and market (line style)"
     assert drawn["partial_collusion"].figure.get_figwidth() == pytest.approx(PAGE_WIDTH)
+
+
+def test_the_persistence_curve_has_its_band(drawn, result):
+    """Each market's share of colluding replications is drawn with a filled band inside [0, 1] that contains the
+    curve; the caption names the interval and its source."""
+    from matplotlib.collections import PolyCollection
+
+    f = drawn["persistence"]
+    (ax,) = f.figure.axes
+    bands = [c for c in ax.collections if isinstance(c, PolyCollection)]
+    assert len(bands) == 2
+    for band, line in zip(bands, ax.get_lines()):
+        ys = np.concatenate([p.vertices[:, 1] for p in band.get_paths()])
+        assert ys.min() >= 0.0 and ys.max() <= 1.0
+        y = np.asarray(line.get_ydata(), dtype=float)
+        assert ys.min() <= y.min() and y.max() <= ys.max() and ys.max() - ys.min() > y.max() - y.min()
+    assert "Wilson score interval" in f.caption and "Wilson, 1927" in f.caption
