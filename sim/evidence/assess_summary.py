@@ -44,7 +44,7 @@ def _setup(d: dict) -> list:
              f"Merger: {' and '.join(m['merging'])} become {m['merged_firm']}"
              + (f", efficiency {m['efficiency']:g}" if m["efficiency"] else "")
              + (f", stated post-merger cost {st['merger']['cost']}" if st["merger"]["cost"] is not None else ""),
-             f"Post-merger market: {market_text(m['post_market'])}",
+             f"Post-merger market: {market_text(m['post_market'], m['names_post'])}",
              f"Collusive agreement: {st['agreement']}; headline scheme: {c['scheme']}; discount factor "
              f"{c['delta']:.4g}; demand growth per period for the factor table: {st['growth']:g}",
              _units_text(d)]

@@ -23,7 +23,8 @@ from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAM
 from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
 from sim.evidence.catalogue_state_play import STATE_PLAY_ENTRIES
 
-__all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "money"]
+__all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "key_names",
+           "money"]
 
 
 @dataclass(frozen=True)
@@ -568,7 +569,8 @@ def _stem(core: str) -> tuple[str, str | None]:
     return core, None
 
 
-def describe(key: str, currency: str | None = None, period: str | None = None, firm_names=None) -> Described:
+def describe(key: str, currency: str | None = None, period: str | None = None, firm_names=None,
+             product_names=None) -> Described:
     """Resolve a stored metric name (see the module notes).
 
     Parameters
@@ -578,6 +580,8 @@ def describe(key: str, currency: str | None = None, period: str | None = None, f
         Units of money.
     firm_names : sequence of str, optional
         Names of the firms (firm N is ``firm_names[N - 1]``).
+    product_names : sequence of str, optional
+        Names of the products (product N is ``product_names[N - 1]``; default: ``firm_names``).
 
     Returns
     -------
@@ -611,7 +615,8 @@ def describe(key: str, currency: str | None = None, period: str | None = None, f
         quals.append(_SCHEME_WORDS.get(extra, extra))
     for what, n in firms:
         n = int(n)
-        name = firm_names[n - 1] if firm_names and n <= len(firm_names) else f"{what} {n}"
+        names = product_names if what == "product" and product_names else firm_names
+        name = names[n - 1] if names and n <= len(names) else f"{what} {n}"
         quals.append(name)
     if idx:
         quals.append("item " + ", ".join(idx))
@@ -661,7 +666,29 @@ def describe_parameter(path: str, currency: str | None = None, period: str | Non
     raise KeyError(f"{path!r} has no entry in the evidence catalogue")
 
 
-def glossary(keys, currency: str | None = None, period: str | None = None) -> list[list[str]]:
+def key_names(key: str, names: dict | None) -> dict:
+    """The firm and product names that label a stored metric name: those after a merger for a key of the market
+    after it, else those before.
+
+    Parameters
+    ----------
+    key : str
+    names : dict or None
+        ``before`` and ``after`` (firm names, either may be None) and ``products`` (product names or None).
+
+    Returns
+    -------
+    dict
+        ``firm_names`` and ``product_names`` for :func:`describe`.
+    """
+    if not names:
+        return {}
+    after = _SIDE.findall(key)[:1] == ["after"] and names.get("after") is not None
+    return {"firm_names": names["after"] if after else names.get("before"), "product_names": names.get("products")}
+
+
+def glossary(keys, currency: str | None = None, period: str | None = None, names: dict | None = None
+             ) -> list[list[str]]:
     """Rows of a bundle's glossary: key, label, unit, definition, method and source, interval.
 
     Parameters
@@ -669,6 +696,8 @@ def glossary(keys, currency: str | None = None, period: str | None = None) -> li
     keys : iterable of str
         Stored metric names (bounds and standard errors are folded into their metric).
     currency, period : str, optional
+    names : dict, optional
+        Firm and product names (see :func:`key_names`); default: firms and products by number.
 
     Returns
     -------
@@ -680,6 +709,6 @@ def glossary(keys, currency: str | None = None, period: str | None = None) -> li
         if base in seen:
             continue
         seen.add(base)
-        d = describe(base, currency, period)
+        d = describe(base, currency, period, **key_names(base, names))
         rows.append([base, d.label, d.unit or "-", d.entry.definition, d.entry.method, d.entry.interval])
     return rows

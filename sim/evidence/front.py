@@ -202,7 +202,7 @@ def headline(question: str, parameters, rows, heads, units=(None, None)) -> tupl
     return question, answer[:2] or ["The run finished; its numbers follow."], numbers
 
 
-def terms_rows(metrics, parameters, units=(None, None)) -> list:
+def terms_rows(metrics, parameters, units=(None, None), names: dict | None = None) -> list:
     """Rows of the glossary: key, label, unit, definition, method and source, interval -- of every metric and swept
     parameter that appears in the bundle.
 
@@ -213,6 +213,8 @@ def terms_rows(metrics, parameters, units=(None, None)) -> list:
     parameters : iterable of str
         Swept parameters' paths.
     units : tuple of (str or None, str or None)
+    names : dict, optional
+        Firm and product names (:func:`sim.evidence.catalogue.key_names`); default: by number.
 
     Returns
     -------
@@ -228,7 +230,7 @@ def terms_rows(metrics, parameters, units=(None, None)) -> list:
         rows.append([path, d.label, d.unit or "-", d.entry.definition, d.entry.method, d.entry.interval])
     for k in metrics:
         try:
-            rows += glossary([k], *units)
+            rows += glossary([k], *units, names=names)
         except KeyError:
             rows.append([k, k, "-", "no entry in the catalogue", "-", "-"])
     seen, out = set(), []

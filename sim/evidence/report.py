@@ -39,6 +39,7 @@ from sim.evidence.front import (
     terms_rows,
 )
 from sim.evidence.render import renderer_for
+from sim.evidence.views import result_names
 from sim.runner.experiment import leading_comment
 from sim.runner.lock import FolderLock
 from sim.runner.report_settings import FigureSpec, figure_name
@@ -411,7 +412,7 @@ def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) 
         "Every number in this report is read from the stored results of the run (results.sqlite); nothing is "
         "recomputed for the report.",
     ])
-    terms = terms_rows(list(exp.metric_names), [p.path for p in exp.parameters], units)
+    terms = terms_rows(list(exp.metric_names), [p.path for p in exp.parameters], units, _names(rf, exp, rows))
     b.heading("Methods appendix", appendix=True)
     b.paragraph("How each number of this bundle is computed, with its published source (\"common practice\" where "
                 "the trade has none); the glossary below gives each number's definition.")
@@ -441,6 +442,16 @@ def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) 
     b.table("glossary", ["key", "label", "unit", "definition", "method and source", "interval"], terms,
             caption="Every number of the bundle: its stored name (key, the column name in the CSV files), label, "
                     "unit, definition, method and interval", max_rows=len(terms) + 1)
+
+
+def _names(rf, exp, rows) -> dict | None:
+    """The firm and product names of a single finished cell's result (a sweep's cells may differ: numbers then)."""
+    if exp.parameters or not rows or rows[0].status != "ok" or renderer_for(exp.kind) is None:
+        return None
+    try:
+        return result_names(rf.result(rows[0].cell))
+    except TypeError:  # a kind of a plug-in: no names
+        return None
 
 
 def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, in_run_folder: bool) -> None:

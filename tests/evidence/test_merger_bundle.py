@@ -123,3 +123,16 @@ def test_the_persistence_curve_has_its_band(drawn, result):
         y = np.asarray(line.get_ydata(), dtype=float)
         assert ys.min() <= y.min() and y.max() <= ys.max() and ys.max() - ys.min() > y.max() - y.min()
     assert "Wilson score interval" in f.caption and "Wilson, 1927" in f.caption
+
+
+def test_firms_are_named_on_the_console_and_everywhere_in_the_bundle(merger_run, page, result):
+    """The price changes, the per-firm thresholds after the merger and the post-merger owners carry the firms' names
+    (Firm A ... Firm D of the file; Firm B + Firm D after the merger), never "product 1" or "firm 2"."""
+    console = RENDERER.console(result)
+    md = (merger_run / "report" / "summary.md").read_text(encoding="utf-8")
+    for text in (console, _text(page), md):
+        found = re.search(r".{50}\b(product|firm) \d.{20}", text)
+        assert found is None, found.group(0)
+    assert "price change from the merger (Firm A)" in md
+    assert "critical discount factor, grim trigger (Firm B + Firm D; after the merger)" in md
+    assert "owner Firm A, Firm B + Firm D, Firm C, Firm B + Firm D" in md
