@@ -29,6 +29,7 @@ __all__ = [
     "PALETTE",
     "SHARE_BAND_WORDS",
     "SweepData",
+    "bars_height",
     "color",
     "fit_legend",
     "heatmap",
@@ -247,6 +248,31 @@ def share_trials(run: dict) -> int | None:
     if run.get("horizon", "fixed") != "fixed":
         return None
     return int(run["replications"])
+
+
+#: the tallest figure of bars: four fifths of the page's width, so that it fits a screen and half a printed page
+MAX_BARS_HEIGHT = 0.8 * PAGE_WIDTH
+
+
+def bars_height(n_bars: int, per_bar: float = 0.16, extra: float = 1.4) -> float:
+    """The height of a figure of ``n_bars`` horizontal bars at :data:`PAGE_WIDTH`: room for each bar and the axes'
+    text, no taller than :data:`MAX_BARS_HEIGHT` (bars get thinner instead).
+
+    Parameters
+    ----------
+    n_bars : int
+        Bars drawn (groups times bars per group).
+    per_bar : float
+        Inches per bar below the cap.
+    extra : float
+        Inches for the title, the axis and the legend.
+
+    Returns
+    -------
+    float
+        Inches.
+    """
+    return float(min(max(2.4, per_bar * n_bars + extra), MAX_BARS_HEIGHT))
 
 
 def color(k: int) -> str:
