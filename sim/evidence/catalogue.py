@@ -24,7 +24,7 @@ from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
 from sim.evidence.catalogue_state_play import STATE_PLAY_ENTRIES
 
 __all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "key_names",
-           "money"]
+           "money", "whole_number"]
 
 
 @dataclass(frozen=True)
@@ -712,3 +712,28 @@ def glossary(keys, currency: str | None = None, period: str | None = None, names
         d = describe(base, currency, period, **key_names(base, names))
         rows.append([base, d.label, d.unit or "-", d.entry.definition, d.entry.method, d.entry.interval])
     return rows
+
+
+#: units whose numbers are whole (counts, firm numbers, yes/no), and stems whose unit is not but whose numbers are
+WHOLE_UNITS = frozenset({"count", "firm number", "firms", "yes (1) / no (0)"})
+_WHOLE_STEMS = ("n_firms", "punishment", "market.n_firms")
+
+
+def whole_number(key: str) -> bool:
+    """Whether a stored metric's numbers are whole (a count, a firm's number, a yes/no, a number of periods that is
+    a setting): a table shows them without decimals.
+
+    Parameters
+    ----------
+    key : str
+        A stored metric name.
+
+    Returns
+    -------
+    bool
+    """
+    try:
+        entry = describe(_TAIL.sub("", key)).entry
+    except KeyError:
+        return False
+    return entry.unit in WHOLE_UNITS or any(entry is ENTRIES.get(s) for s in _WHOLE_STEMS)

@@ -28,6 +28,7 @@ from sim.core.errors import InputError
 from sim.core.files import symlinks_in
 from sim.core.text import fmt_num
 from sim.evidence.bundle import Bundle, Estimate, clear_leftovers, holds_bundle
+from sim.evidence.catalogue import whole_number
 from sim.evidence.figures import SweepData, _plt
 from sim.evidence.front import (
     headline,
@@ -558,11 +559,18 @@ def _sweep_table(b, exp, rows, heads, units) -> None:
                 d.append(Estimate(v, lo, hi))
                 c += [lo, hi]
             else:
-                d.append(v)
+                d.append(_shown(m, v))
         disp_rows.append(d)
         csv_rows.append(c)
     b.table("summary", hdr, disp_rows, caption="Headline results per cell", csv_rows=(csv_hdr, csv_rows),
             note="95 % confidence intervals across replications (simulation error only)")
+
+
+def _shown(m: str, v):
+    """A metric's value as a table shows it: a whole number (a count, a firm's number, a yes/no) without decimals."""
+    if isinstance(v, float) and math.isfinite(v) and v == round(v) and whole_number(m):
+        return int(v)
+    return v
 
 
 def _cell_table(b, exp, kind, r, units) -> None:
@@ -572,12 +580,12 @@ def _cell_table(b, exp, kind, r, units) -> None:
     mrows = []
     for m in names:
         an = kind.analytic.get(m)
-        mrows.append([metric_column(m, units), r.metrics.get(m, math.nan), _ci(r, m),
-                      r.metrics.get(an, math.nan) if an else math.nan])
+        mrows.append([metric_column(m, units), _shown(m, r.metrics.get(m, math.nan)), _ci(r, m),
+                      _shown(m, r.metrics.get(an, math.nan)) if an else math.nan])
     mapped = set(kind.analytic.values())
     for m in exp.metric_names:
         if m.startswith("analytic.") and m not in mapped and math.isfinite(r.metrics.get(m, math.nan)):
-            mrows.append([metric_column(m, units), r.metrics[m], "-", math.nan])
+            mrows.append([metric_column(m, units), _shown(m, r.metrics[m]), "-", math.nan])
     b.table("summary", ["quantity [unit]", "value", "95 % interval", "analytic prediction"], mrows,
             caption="Results", max_rows=200,
             note="rows named analytic: the analytic baseline of the cell (closed forms and benchmarks)")

@@ -64,3 +64,20 @@ def test_the_bar_chart_of_thresholds_keeps_to_the_page(market_run):
         assert w == pytest.approx(PAGE_WIDTH) and 2.4 <= h <= MAX_BARS_HEIGHT
     finally:
         pyplot().close(bars.figure)
+
+
+def test_whole_numbers_show_without_decimals(market_run, simulation_run):
+    text = _text(market_run / "report" / "summary.html")
+    results = _section(text, "Results", "Failed cells")
+    assert " number of firms 3 " in results and "3.0000" not in results
+    assert re.search(r"binding firm, grim trigger \[firm number\] 1 ", results)
+    assert re.search(r"punishment length T \(item 5\) \[periods\] 10 ", results)
+    assert re.search(r"critical discount factor, grim trigger 0\.5778 ", results)  # not a whole number: decimals
+    # the deviation-pays column (yes 1 / no 0) of every cell of the sweep's table
+    html = (simulation_run / "report" / "summary.html").read_text(encoding="utf-8")
+    table = html[html.index("Headline results per cell"):]
+    table = table[:table.index("</table>")]
+    heads = [re.sub(r"<[^>]+>", "", h) for h in re.findall(r"<th>(.*?)</th>", table)]
+    col = next(j for j, h in enumerate(heads) if h.startswith("deviation pays"))
+    cells = [re.findall(r"<td[^>]*>(.*?)</td>", row)[col] for row in re.findall(r"<tr>(.*?)</tr>", table)[1:]]
+    assert len(cells) == 4 * 2 * 3 and set(cells) == {"0", "1"}, cells
