@@ -42,6 +42,7 @@ from sim.evidence.front import (
 from sim.evidence.render import renderer_for
 from sim.evidence.views import result_names
 from sim.runner.experiment import leading_comment
+from sim.runner.kinds import stated_assumptions
 from sim.runner.lock import FolderLock
 from sim.runner.report_settings import FigureSpec, figure_name
 from sim.runner.runs import (
@@ -409,7 +410,7 @@ def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) 
     else:
         b.paragraph("None: the cell finished without error." if counts["total"] == 1
                     else f"None: all {counts['total']} cells finished without error.")
-    b.assumptions(list(kind.assumptions) + [
+    b.assumptions(stated_assumptions(kind.assumptions, exp.metric_names) + [
         "Every number in this report is read from the stored results of the run (results.sqlite); nothing is "
         "recomputed for the report.",
     ])

@@ -81,3 +81,15 @@ def test_whole_numbers_show_without_decimals(market_run, simulation_run):
     col = next(j for j, h in enumerate(heads) if h.startswith("deviation pays"))
     cells = [re.findall(r"<td[^>]*>(.*?)</td>", row)[col] for row in re.findall(r"<tr>(.*?)</tr>", table)[1:]]
     assert len(cells) == 4 * 2 * 3 and set(cells) == {"0", "1"}, cells
+
+
+def test_only_the_assumptions_of_the_parts_computed_are_stated(market_run, simulation_run):
+    """The thresholds demo computes no trigger-price equilibrium and no any-punishment threshold, but partial
+    collusion (``thresholds.deltas``); the simulation demo runs the deviation check."""
+    market = _section(_text(market_run / "report" / "summary.html"), "Assumptions and limitations",
+                      "Methods appendix")
+    assert "trigger-price" not in market and "any-punishment" not in market
+    assert "Partial collusion is searched" in market and "Critical discount factors assume" in market
+    sim = _section(_text(simulation_run / "report" / "summary.html"), "Assumptions and limitations",
+                   "Methods appendix")
+    assert "The deviation check tests one unilateral deviation" in sim

@@ -39,7 +39,7 @@ from sim.runner.analyses.common import (
 )
 from sim.runner.analyses.simulate_capacity import prepare_capacity_game
 from sim.runner.cost import Cost
-from sim.runner.kinds import CellContext, CellResult, Kind
+from sim.runner.kinds import CellContext, CellResult, Kind, PartAssumption
 from sim.simulation.analysis import SimulateResult, simulate_analysis
 from sim.simulation.baseline import scheme_of
 from sim.simulation.enforced import enforcement_limits, is_deterministic
@@ -600,8 +600,8 @@ KIND = Kind(
         "lengths cut off by the horizon are treated as censored (Kaplan-Meier), so their means are lower bounds.",
         "Confidence intervals are normal approximations across independent replications (95 %); they measure "
         "simulation error only, not uncertainty about the model or its parameters.",
-        "The deviation check tests one unilateral deviation (a one-shot deviation then the strategy, unless another "
-        "is given): a deviation that pays shows the line-up is not an equilibrium; one that does not pay is "
-        "necessary, not sufficient, for equilibrium.",
+        PartAssumption("The deviation check tests one unilateral deviation (a one-shot deviation then the strategy, "
+                       "unless another is given): a deviation that pays shows the line-up is not an equilibrium; one "
+                       "that does not pay is necessary, not sufficient, for equilibrium.", "deviation."),
     ),
 )
