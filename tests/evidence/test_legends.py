@@ -79,6 +79,25 @@ def along_delta(tmp_path_factory):
         return figs.SweepData(list(rf.experiment.parameters), rf.rows())
 
 
+def _contrast_on_white(hex_colour: str) -> float:
+    """WCAG 2.1 contrast ratio against white, from the relative luminance of sRGB (W3C, 2018, "Web Content
+    Accessibility Guidelines 2.1", definitions of relative luminance and contrast ratio)."""
+    channels = [int(hex_colour[i:i + 2], 16) / 255 for i in (1, 3, 5)]
+    lin = [c / 12.92 if c <= 0.03928 else ((c + 0.055) / 1.055) ** 2.4 for c in channels]
+    lum = 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
+    return 1.05 / (lum + 0.05)
+
+
+def test_every_palette_colour_shows_on_white_paper():
+    """At least 3:1 against white, the threshold WCAG 2.1 sets for graphical objects (success criterion 1.4.11):
+    the Okabe-Ito yellow (#F0E442, 1.3:1) of the "compete" line could not be seen in print."""
+    assert len(set(figs.PALETTE)) == len(figs.PALETTE) == 8
+    for c in figs.PALETTE:
+        assert _contrast_on_white(c) >= 3.0, c
+    # the tournament's lines take the same colours
+    assert [line_style(k)["color"] for k in range(8)] == list(figs.PALETTE)
+
+
 def test_a_tournament_without_a_learner_does_not_speak_of_one():
     run = run_single(tomllib.loads(RULES))
     drawn = TOURNAMENT.figures(run.cell.result)
