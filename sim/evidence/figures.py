@@ -733,8 +733,9 @@ def lines(data: SweepData, x: str, metric: str, analytic: str | None = None, gro
             legend.setdefault(lab, h)
     for k in range(len(facets), nr * nc):
         axes[k // nc][k % nc].set_visible(False)
-    if legend:
-        title_l = _label(group, data).split(" [")[0] if group else None
+    # a single ungrouped line needs no legend (the axis names it); otherwise the legend says what its entries are
+    if legend and (group or len(legend) > 1):
+        title_l = _label(group, data).split(" [")[0] if group else metric_label(metric, data)
         fit_legend(fig, list(legend.values()), list(legend), ncol=3, title=title_l)
     extra = " (band: 95 % interval across replications)" if has_band else ""
     fig.suptitle(_wrap((title or f"{metric_label(metric, data)}{extra}") + _panel_note(facet, data), 80),

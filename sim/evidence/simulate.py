@@ -262,7 +262,8 @@ def _collusion_over_time(res):
     ax.set_xlabel("period", fontsize=FONT)
     ax.set_ylabel("share of replications\ncolluding [0 to 1]", fontsize=FONT)
     ax.tick_params(labelsize=SMALL)
-    fig.legend(loc="outside lower center", ncol=2, fontsize=SMALL, frameon=False)
+    fig.legend(loc="outside lower center", ncol=3, fontsize=SMALL, frameon=False,
+               title="share of replications colluding", title_fontsize=SMALL)
     fig.suptitle("Collusion over time", fontsize=FONT + 1)
     band = (f"; band: {SHARE_BAND_WORDS.format(n=n)}" if n else
             "; no band: the horizon is random, so the replications behind each period vary")

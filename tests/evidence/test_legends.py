@@ -79,6 +79,24 @@ def along_delta(tmp_path_factory):
         return figs.SweepData(list(rf.experiment.parameters), rf.rows())
 
 
+def test_a_single_ungrouped_line_draws_no_legend(along_delta):
+    fig = figs.lines(along_delta, "run.delta", "collusive_share")
+    try:
+        assert len(fig.axes[0].get_lines()) == 1 and fig.legends == []
+    finally:
+        pyplot().close(fig)
+
+
+def test_ungrouped_lines_title_their_legend_after_the_metric(along_delta):
+    fig = figs.lines(along_delta, "run.delta", "deviation.gain", analytic="analytic.deviation.gain")
+    try:
+        (leg,) = fig.legends
+        assert [t.get_text() for t in leg.get_texts()] == ["simulated", "analytic"]
+        assert leg.get_title().get_text() == "gain from a one-shot deviation"
+    finally:
+        pyplot().close(fig)
+
+
 def _contrast_on_white(hex_colour: str) -> float:
     """WCAG 2.1 contrast ratio against white, from the relative luminance of sRGB (W3C, 2018, "Web Content
     Accessibility Guidelines 2.1", definitions of relative luminance and contrast ratio)."""
