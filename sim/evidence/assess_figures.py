@@ -14,7 +14,8 @@ import numpy as np
 from sim.core.stats import wilson_band
 from sim.evidence.assess_payoffs import payoff_figure
 from sim.evidence.assess_tables import SCHEME_LABELS, SIDES, as_float, assessment_data, in_order
-from sim.evidence.figures import FONT, PAGE_WIDTH, SHARE_BAND_WORDS, SMALL, color, fit_legend, share_trials
+from sim.evidence.figure_sizes import SHARE_BAND_WORDS, share_trials
+from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color, fit_legend
 from sim.evidence.pairs import assessment_pairs, pairs_figure
 from sim.evidence.render import Drawn, pyplot
 

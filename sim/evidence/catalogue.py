@@ -23,8 +23,7 @@ from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAM
 from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
 from sim.evidence.catalogue_state_play import STATE_PLAY_ENTRIES
 
-__all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "key_names",
-           "money", "whole_number"]
+__all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "money"]
 
 
 @dataclass(frozen=True)
@@ -666,29 +665,7 @@ def describe_parameter(path: str, currency: str | None = None, period: str | Non
     raise KeyError(f"{path!r} has no entry in the evidence catalogue")
 
 
-def key_names(key: str, names: dict | None) -> dict:
-    """The firm and product names that label a stored metric name: those after a merger for a key of the market
-    after it, else those before.
-
-    Parameters
-    ----------
-    key : str
-    names : dict or None
-        ``before`` and ``after`` (firm names, either may be None) and ``products`` (product names or None).
-
-    Returns
-    -------
-    dict
-        ``firm_names`` and ``product_names`` for :func:`describe`.
-    """
-    if not names:
-        return {}
-    after = _SIDE.findall(key)[:1] == ["after"] and names.get("after") is not None
-    return {"firm_names": names["after"] if after else names.get("before"), "product_names": names.get("products")}
-
-
-def glossary(keys, currency: str | None = None, period: str | None = None, names: dict | None = None
-             ) -> list[list[str]]:
+def glossary(keys, currency: str | None = None, period: str | None = None, names_of=None) -> list[list[str]]:
     """Rows of a bundle's glossary: key, label, unit, definition, method and source, interval.
 
     Parameters
@@ -696,8 +673,9 @@ def glossary(keys, currency: str | None = None, period: str | None = None, names
     keys : iterable of str
         Stored metric names (bounds and standard errors are folded into their metric).
     currency, period : str, optional
-    names : dict, optional
-        Firm and product names (see :func:`key_names`); default: firms and products by number.
+    names_of : callable, optional
+        ``names_of(key) -> dict``: the ``firm_names`` and ``product_names`` that label a key
+        (:func:`sim.evidence.catalogue_names.key_names`); default: firms and products by number.
 
     Returns
     -------
@@ -709,31 +687,7 @@ def glossary(keys, currency: str | None = None, period: str | None = None, names
         if base in seen:
             continue
         seen.add(base)
-        d = describe(base, currency, period, **key_names(base, names))
+        d = describe(base, currency, period, **(names_of(base) if names_of is not None else {}))
         rows.append([base, d.label, d.unit or "-", d.entry.definition, d.entry.method, d.entry.interval])
     return rows
 
-
-#: units whose numbers are whole (counts, firm numbers, yes/no), and stems whose unit is not but whose numbers are
-WHOLE_UNITS = frozenset({"count", "firm number", "firms", "yes (1) / no (0)"})
-_WHOLE_STEMS = ("n_firms", "punishment", "market.n_firms")
-
-
-def whole_number(key: str) -> bool:
-    """Whether a stored metric's numbers are whole (a count, a firm's number, a yes/no, a number of periods that is
-    a setting): a table shows them without decimals.
-
-    Parameters
-    ----------
-    key : str
-        A stored metric name.
-
-    Returns
-    -------
-    bool
-    """
-    try:
-        entry = describe(_TAIL.sub("", key)).entry
-    except KeyError:
-        return False
-    return entry.unit in WHOLE_UNITS or any(entry is ENTRIES.get(s) for s in _WHOLE_STEMS)

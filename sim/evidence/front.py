@@ -16,6 +16,7 @@ import re
 from sim.core.provenance import package_versions, platform_info
 from sim.core.text import fmt_num
 from sim.evidence.catalogue import describe, describe_parameter, glossary
+from sim.evidence.catalogue_names import key_names
 
 __all__ = [
     "headline",
@@ -230,7 +231,7 @@ def terms_rows(metrics, parameters, units=(None, None), names: dict | None = Non
         rows.append([path, d.label, d.unit or "-", d.entry.definition, d.entry.method, d.entry.interval])
     for k in metrics:
         try:
-            rows += glossary([k], *units, names=names)
+            rows += glossary([k], *units, names_of=(lambda key: key_names(key, names)) if names else None)
         except KeyError:
             rows.append([k, k, "-", "no entry in the catalogue", "-", "-"])
     seen, out = set(), []

@@ -28,7 +28,7 @@ from sim.core.errors import InputError
 from sim.core.files import symlinks_in
 from sim.core.text import fmt_num
 from sim.evidence.bundle import Bundle, Estimate, clear_leftovers, holds_bundle
-from sim.evidence.catalogue import whole_number
+from sim.evidence.catalogue_names import whole_number
 from sim.evidence.figures import SweepData, _plt
 from sim.evidence.front import (
     headline,

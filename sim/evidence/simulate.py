@@ -15,7 +15,8 @@ import numpy as np
 from sim.core.stats import wilson_band
 from sim.core.text import CAUTION, fmt_num, table
 from sim.evidence.answers import simulate_headline
-from sim.evidence.figures import FONT, PAGE_WIDTH, SHARE_BAND_WORDS, SMALL, color, share_trials
+from sim.evidence.figure_sizes import SHARE_BAND_WORDS, share_trials
+from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.simulate_enforced import enforced_figure, enforced_json, enforced_text, state_play_text
 from sim.evidence.thresholds import AGREEMENT_NAMES, describe_market

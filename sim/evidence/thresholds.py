@@ -8,7 +8,8 @@ import numpy as np
 from sim.core.text import CAUTION, fmt_num, plain_values, table
 from sim.evidence import any_punishment as anyp
 from sim.evidence.answers import thresholds_headline
-from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, bars_height, color
+from sim.evidence.figure_sizes import bars_height
+from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.thresholds_parts import part_figures, part_json, part_lines
 from sim.theory.analysis import ThresholdsResult

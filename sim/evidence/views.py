@@ -20,7 +20,8 @@ import math
 from sim.core.text import CAUTION, fmt_num
 from sim.core.views import register_view
 from sim.evidence.assess_tables import assessment_data, product_labels
-from sim.evidence.catalogue import describe, key_names
+from sim.evidence.catalogue import describe
+from sim.evidence.catalogue_names import key_names
 from sim.evidence.front import scheme_words
 from sim.evidence.render import renderer_for
 from sim.runner.analyses import assess, capacity, learn, simulate, thresholds, tournament

@@ -8,7 +8,8 @@ import re
 
 import pytest
 
-from sim.evidence.figures import MAX_BARS_HEIGHT, PAGE_WIDTH
+from sim.evidence.figure_sizes import MAX_BARS_HEIGHT
+from sim.evidence.figures import PAGE_WIDTH
 from sim.evidence.render import pyplot
 from sim.evidence.report import write_report
 from sim.evidence.thresholds import RENDERER
