@@ -229,7 +229,8 @@ ENTRIES: dict[str, Entry] = {
                                 "Share of periods in price wars in the long run.", "renewal argument"),
     "collusive_by_period": Entry("share of replications colluding", "0 to 1",
                                  "Share of the replications still running in which every firm colludes, per period.",
-                                 "counted"),
+                                 "counted", "pointwise " + _WILSON + " per period (fixed horizon); none under a random "
+                                                                     "horizon"),
     # learning
     "sessions": Entry("learning sessions", "count", "Independent sessions.", "given"),
     "converged": Entry("share of sessions that converged", "0 to 1",
@@ -585,7 +586,8 @@ def _stem(core: str) -> tuple[str, str | None]:
     return core, None
 
 
-def describe(key: str, currency: str | None = None, period: str | None = None, firm_names=None) -> Described:
+def describe(key: str, currency: str | None = None, period: str | None = None, firm_names=None,
+             product_names=None) -> Described:
     """Resolve a stored metric name (see the module notes).
 
     Parameters
@@ -595,6 +597,8 @@ def describe(key: str, currency: str | None = None, period: str | None = None, f
         Units of money.
     firm_names : sequence of str, optional
         Names of the firms (firm N is ``firm_names[N - 1]``).
+    product_names : sequence of str, optional
+        Names of the products (product N is ``product_names[N - 1]``; default: ``firm_names``).
 
     Returns
     -------
@@ -628,7 +632,8 @@ def describe(key: str, currency: str | None = None, period: str | None = None, f
         quals.append(_SCHEME_WORDS.get(extra, extra))
     for what, n in firms:
         n = int(n)
-        name = firm_names[n - 1] if firm_names and n <= len(firm_names) else f"{what} {n}"
+        names = product_names if what == "product" and product_names else firm_names
+        name = names[n - 1] if names and n <= len(names) else f"{what} {n}"
         quals.append(name)
     if idx:
         quals.append("item " + ", ".join(idx))
@@ -678,7 +683,7 @@ def describe_parameter(path: str, currency: str | None = None, period: str | Non
     raise KeyError(f"{path!r} has no entry in the evidence catalogue")
 
 
-def glossary(keys, currency: str | None = None, period: str | None = None) -> list[list[str]]:
+def glossary(keys, currency: str | None = None, period: str | None = None, names_of=None) -> list[list[str]]:
     """Rows of a bundle's glossary: key, label, unit, definition, method and source, interval.
 
     Parameters
@@ -686,6 +691,9 @@ def glossary(keys, currency: str | None = None, period: str | None = None) -> li
     keys : iterable of str
         Stored metric names (bounds and standard errors are folded into their metric).
     currency, period : str, optional
+    names_of : callable, optional
+        ``names_of(key) -> dict``: the ``firm_names`` and ``product_names`` that label a key
+        (:func:`sim.evidence.catalogue_names.key_names`); default: firms and products by number.
 
     Returns
     -------
@@ -697,6 +705,7 @@ def glossary(keys, currency: str | None = None, period: str | None = None) -> li
         if base in seen:
             continue
         seen.add(base)
-        d = describe(base, currency, period)
+        d = describe(base, currency, period, **(names_of(base) if names_of is not None else {}))
         rows.append([base, d.label, d.unit or "-", d.entry.definition, d.entry.method, d.entry.interval])
     return rows
+

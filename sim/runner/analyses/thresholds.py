@@ -19,7 +19,7 @@ from sim.runner.analyses.thresholds_parts import (
     prepare_parts,
 )
 from sim.runner.cost import Cost
-from sim.runner.kinds import CellContext, CellResult, Kind
+from sim.runner.kinds import CellContext, CellResult, Kind, PartAssumption
 from sim.theory.analysis import ThresholdsResult, ThresholdsSpec, thresholds_analysis
 from sim.theory.any_punishment import TABLE_KEYS as _AP_KEYS
 from sim.theory.any_punishment import check_any_punishment, estimate_any_punishment
@@ -300,13 +300,17 @@ KIND = Kind(
         "static Nash reversion (forever or for T periods) or the optimal symmetric two-phase punishment (Abreu, "
         "1986); they are the lowest discount factors at which the agreement is a subgame-perfect equilibrium of "
         "the repeated game, not predictions that collusion occurs.",
-        "Partial collusion is searched along the straight path from the static Nash actions to the agreement.",
-        "The trigger-price equilibrium (Green and Porter, 1984) assumes a symmetric homogeneous-good Cournot market "
-        "with an i.i.d. multiplicative demand shock and a public price signal.",
-        "The any-punishment threshold (an [any_punishment] table) is computed on a finite action grid with pure "
-        "strategies, perfect monitoring and public randomisation: the lowest discount factor at which the agreement "
-        "is a subgame-perfect equilibrium outcome when deviations meet the deviator's worst equilibrium payoff "
-        "(Abreu, 1988), bracketed between inner and outer equilibrium payoff sets (Abreu, Pearce and Stacchetti, "
-        "1990; Judd, Yeltekin and Conklin, 2003; Abreu and Sannikov, 2014).",
+        PartAssumption("Partial collusion is searched along the straight path from the static Nash actions to the "
+                       "agreement.", "partial_gain."),
+        PartAssumption("The trigger-price equilibrium (Green and Porter, 1984) assumes a symmetric homogeneous-good "
+                       "Cournot market with an i.i.d. multiplicative demand shock and a public price signal.",
+                       "trigger_price."),
+        PartAssumption(
+            "The any-punishment threshold (an [any_punishment] table) is computed on a finite action grid with pure "
+            "strategies, perfect monitoring and public randomisation: the lowest discount factor at which the "
+            "agreement is a subgame-perfect equilibrium outcome when deviations meet the deviator's worst "
+            "equilibrium payoff (Abreu, 1988), bracketed between inner and outer equilibrium payoff sets (Abreu, "
+            "Pearce and Stacchetti, 1990; Judd, Yeltekin and Conklin, 2003; Abreu and Sannikov, 2014).",
+            "any_punishment."),
     ),
 )
