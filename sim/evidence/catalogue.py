@@ -23,6 +23,7 @@ from sim.evidence.catalogue_assess import ASSESS_ENTRIES
 from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
 from sim.evidence.catalogue_contact_play import CONTACT_PLAY_ENTRIES
 from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
+from sim.evidence.catalogue_parameters import PARAMETER_ROWS
 from sim.evidence.catalogue_slice import FRONTIER_ENTRIES, REFINE_ENTRIES, SLICE_ENTRIES
 from sim.evidence.catalogue_state_play import STATE_PLAY_ENTRIES
 
@@ -483,46 +484,7 @@ ENTRIES.update({k: Entry(*v) for k, v in REFINE_ENTRIES.items()})
 ENTRIES.update({k: Entry(*v) for k, v in FRONTIER_ENTRIES.items()})
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)
-PARAMETERS: dict[str, Entry] = {
-    "run.delta": Entry("discount factor delta", "", "The firms' common discount factor.", "given"),
-    "run.periods": Entry("periods", "periods", "Length of a replication.", "given"),
-    "run.replications": Entry("replications", "count", "Independent replications.", "given"),
-    "run.seed": Entry("seed", "", "The experiment's random seed.", "given"),
-    "run.continuation": Entry("continuation probability", "probability", "Chance that the game goes on.", "given"),
-    "run.sessions": Entry("learning sessions", "count", "Independent sessions.", "given"),
-    "monitoring.sigma": Entry("standard deviation of the demand shock sigma", "", "Noise of the price signal.",
-                              "given"),
-    "monitoring.perception_error": Entry("perception error", "probability",
-                                         "Chance that a firm misreads a rival's conduct.", "given"),
-    "monitoring.implementation_error": Entry("implementation error", "probability",
-                                             "Chance that a firm's action is replaced by cheating.", "given"),
-    "market.n_firms": Entry("number of firms", "", "Firms in the market.", "given"),
-    "market.cost": Entry("marginal cost", "currency units per unit", "Marginal cost of production.", "given"),
-    "market.intercept": Entry("demand intercept", "price", "Choke price of linear demand.", "given"),
-    "market.slope": Entry("demand slope", "price per unit", "Slope of linear inverse demand.", "given"),
-    "market.mu": Entry("logit differentiation mu", "", "Horizontal differentiation of logit demand.", "given"),
-    "market.substitution": Entry("substitutability", "", "Substitutability of differentiated products.", "given"),
-    "market.elasticity": Entry("demand elasticity", "", "Absolute elasticity of isoelastic demand.", "given"),
-    "strategies": Entry("strategy", "", "The strategy played by the seats of a line-up entry.", "given"),
-    "assess.growth": Entry("demand growth per period", "share per period", "Growth rate of demand.", "given"),
-    "learning.update": Entry("update rule of the learners", "",
-                             "Which values a learner updates after a period: asynchronous (the price it played) or "
-                             "synchronous (every price, from what it would have earned against the rivals' prices).",
-                             "given; the rules of Asker, Fershtman and Pakes (2022, AEA Papers and Proceedings 112)"),
-    "learning.family": Entry("learner family", "",
-                             "How a learner chooses its price: Q-learning, an upper-confidence-bound bandit or a "
-                             "Thompson-sampling bandit over the price grid.",
-                             "given; UCB1 (Auer, Cesa-Bianchi and Fischer, 2002, Machine Learning 47), Thompson "
-                             "sampling with a normal prior (Agrawal and Goyal, 2013)"),
-    "learning.noise": Entry("noise on the observed profit", "currency units per period",
-                            "Standard deviation of the normal error on the profit a bandit observes each period "
-                            "(its demand signal); the lower, the higher the signal-to-noise ratio.",
-                            "given; the setting of Hansen, Misra and Pai (2021, Marketing Science 40(1))"),
-    "learning.exploration": Entry("exploration scale of a bandit", "",
-                                  "UCB's exploration constant c, or the standard deviation of a Thompson-sampling "
-                                  "learner's normal prior.", "given"),
-}
-
+PARAMETERS: dict[str, Entry] = {k: Entry(*v) for k, v in PARAMETER_ROWS.items()}
 PARAMETERS.update({k: Entry(*v) for k, v in CONDITION_PARAMETERS.items()})
 PARAMETERS.update({k: Entry(*v) for k, v in ALTERNATING_PARAMETERS.items()})
 
