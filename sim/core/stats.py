@@ -39,7 +39,7 @@ import numpy as np
 from scipy import special
 
 __all__ = ["Estimate", "Survival", "kaplan_meier", "mean_estimate", "normal_quantile", "ratio_estimate",
-           "share_estimate", "wilson_estimate"]
+           "share_estimate", "wilson_band", "wilson_estimate"]
 
 
 def normal_quantile(confidence: float) -> float:
@@ -214,6 +214,39 @@ def wilson_estimate(k: int, n: int, confidence: float = 0.95) -> Estimate:
     p = k / n
     low, high = _wilson_bounds(p, float(n), z, k == 0, k == n)
     return Estimate(p, math.sqrt(p * (1.0 - p) / n), low, high, n, "wilson")
+
+
+def wilson_band(share, n: int, confidence: float = 0.95) -> tuple[np.ndarray, np.ndarray]:
+    """Pointwise Wilson score intervals (Wilson, 1927) of shares that each count ``n`` trials -- for example the
+    share of replications in which every firm colludes, period by period: a band that stays in [0, 1] and is exactly
+    0 or 1 where no or every replication has the property. Each point is its own interval (the band does not cover
+    the whole curve at once).
+
+    Parameters
+    ----------
+    share : array_like of shape (n_points,)
+        Shares ``k / n`` (nan: no interval).
+    n : int
+        Trials behind each share.
+    confidence : float in (0, 1)
+        Level of each interval.
+
+    Returns
+    -------
+    low, high : ndarray of shape (n_points,)
+    """
+    p = np.clip(np.asarray(share, dtype=float), 0.0, 1.0)
+    if n <= 0:
+        nan = np.full(p.shape, np.nan)
+        return nan, nan.copy()
+    z = normal_quantile(confidence)
+    k = np.rint(p * n)
+    den = 1.0 + z * z / n
+    mid = (p + z * z / (2 * n)) / den
+    h = z * np.sqrt(p * (1.0 - p) / n + z * z / (4.0 * n * n)) / den
+    low = np.where(k == 0, 0.0, np.maximum(0.0, mid - h))
+    high = np.where(k == n, 1.0, np.minimum(1.0, mid + h))
+    return low, high
 
 
 def _wilson_bounds(p: float, n: float, z: float, at_zero: bool, at_one: bool) -> tuple[float, float]:

@@ -43,6 +43,66 @@ def fmt_num(x, digits: int = 4, missing: str = "-") -> str:
     return f"{v:.{digits}f}"
 
 
+def plain_number(x, digits: int = 6, missing: str = "-") -> str:
+    """A number for running text, as a reader writes it: whole numbers without decimals, no trailing zeros, thousands
+    separated from 10,000 on (``50,000``, ``1.1466``, ``0``, ``2.501707``), scientific notation only where fixed
+    decimals would lose the number (below ``10 ** -digits`` or from a million on, when not whole).
+
+    Parameters
+    ----------
+    x : float, int, bool or None
+    digits : int
+        Decimals kept at most.
+    missing : str
+        Text for None and nan.
+
+    Returns
+    -------
+    str
+    """
+    if x is None:
+        return missing
+    if isinstance(x, bool):
+        return "yes" if x else "no"
+    if isinstance(x, str):
+        return x
+    try:
+        v = float(x)
+    except (TypeError, ValueError):
+        return str(x)
+    if math.isnan(v):
+        return missing
+    if math.isinf(v):
+        return "inf" if v > 0 else "-inf"
+    comma = "," if abs(v) >= 1e4 else ""
+    if v == round(v) and abs(v) < 1e15:
+        return f"{int(v):{comma}d}"
+    if abs(v) >= 1e6 or abs(v) < 10 ** (-digits):
+        return f"{v:.{digits}g}"
+    text = f"{v:{comma}.{digits}f}".rstrip("0").rstrip(".")
+    return "0" if text in ("-0", "") else text
+
+
+def plain_values(v, digits: int = 6, brackets: bool = False) -> str:
+    """A setting for running text: a number (:func:`plain_number`), or a list of them separated by commas.
+
+    Parameters
+    ----------
+    v : float or sequence of float
+    digits : int
+    brackets : bool
+        Enclose a list in square brackets (where it sits in a list of settings separated by commas).
+
+    Returns
+    -------
+    str
+    """
+    if isinstance(v, list | tuple):
+        text = ", ".join(plain_number(x, digits) for x in v)
+        return f"[{text}]" if brackets else text
+    return plain_number(v, digits)
+
+
 def table(headers: Sequence[str], rows: Sequence[Sequence], align: str | None = None) -> str:
     """Aligned text table with a dashed line under the headers; cells that are not strings go through :func:`fmt_num`.
 

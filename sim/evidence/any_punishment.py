@@ -14,7 +14,8 @@ from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.render import Drawn, pyplot
 from sim.theory.any_punishment import AnyPunishmentResult
 
-__all__ = ["bracket", "console_lines", "draw_payoff_set", "figure", "scheme_row", "slice_line", "to_json"]
+__all__ = ["bracket", "console_lines", "draw_payoff_set", "figure", "frontier_line", "scheme_row", "slice_line",
+           "to_json"]
 
 _VERDICTS = {
     "sustained": "the agreement is an equilibrium outcome (certified by constructed equilibria)",
@@ -100,6 +101,37 @@ def slice_line(ap: AnyPunishmentResult) -> str | None:
             f"below {fmt_num(lo_out)} or above {fmt_num(hi_out)} (outer set)")
 
 
+def frontier_line(ap: AnyPunishmentResult) -> str | None:
+    """The console line of the frontier of sustainable profits at the reported discount factor: the best joint
+    profit and each firm's best equilibrium payoff, each between a constructed equilibrium (inner set) and the
+    outer set's bound.
+
+    Parameters
+    ----------
+    ap : AnyPunishmentResult
+
+    Returns
+    -------
+    str or None
+        None when no set was computed (or the result was stored before the frontier was kept).
+    """
+    joint = np.asarray(ap.best_joint, float).reshape(-1)
+    best = np.asarray(ap.best_profits, float).reshape(-1, 2)
+    if joint.size != 2 or not np.any(np.isfinite(joint)) or best.shape[0] != ap.n_firms:
+        return None
+
+    def span(lo, hi):
+        return f"{fmt_num(lo)} to {fmt_num(hi)}" if math.isfinite(lo) else f"at most {fmt_num(hi)}"
+
+    per_firm = "; ".join(f"firm {i + 1} {span(*best[i])}" for i in range(ap.n_firms))
+    equal = np.asarray(ap.best_equal, float).reshape(-1)
+    # three firms or more: the symmetric slice's line gives the best equal profit
+    both = (f"; best equal profit of both firms {span(*equal)}"
+            if ap.n_firms == 2 and equal.size == 2 and math.isfinite(equal[1]) else "")
+    return (f"  best sustainable profits per period (constructed equilibrium to outer bound): joint "
+            f"{span(*joint)}; best for one firm: {per_firm}{both}")
+
+
 def console_lines(ap: AnyPunishmentResult, quantity_setting: bool) -> list[str]:
     """The terminal report's lines of the any-punishment part.
 
@@ -129,6 +161,8 @@ def console_lines(ap: AnyPunishmentResult, quantity_setting: bool) -> list[str]:
                      f"{', '.join(fmt_num(x) for x in ap.minmax)})")
         if slice_line(ap) is not None:
             lines.append(slice_line(ap))
+        if frontier_line(ap) is not None:
+            lines.append(frontier_line(ap))
         for pc in ap.penal_codes:
             path = ", then ".join("(" + ", ".join(fmt_num(x) for x in row) + ")" for row in pc.actions)
             lines.append(f"  optimal penal code of firm {pc.firm + 1}, first periods' {what}: {path}")

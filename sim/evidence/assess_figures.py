@@ -11,8 +11,11 @@ import itertools
 
 import numpy as np
 
+from sim.core.stats import wilson_band
 from sim.evidence.assess_payoffs import payoff_figure
 from sim.evidence.assess_tables import SCHEME_LABELS, SIDES, as_float, assessment_data, in_order
+from sim.evidence.figure_sizes import SHARE_BAND_WORDS, share_trials
+from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color, fit_legend
 from sim.evidence.pairs import assessment_pairs, pairs_figure
 from sim.evidence.render import Drawn, pyplot
 
@@ -41,7 +44,7 @@ def _arr(xs) -> np.ndarray:
 def _thresholds(plt, d: dict) -> Drawn:
     delta = d["conclusion"]["delta"]
     sch = d["conclusion"]["schemes"]
-    fig, ax = plt.subplots(figsize=(9, 4))
+    fig, ax = _axes(plt, 3.6)
     x = np.arange(len(sch))
     b = [as_float(s["before"]) for s in sch]
     af = [as_float(s["after"]) for s in sch]
@@ -52,60 +55,89 @@ def _thresholds(plt, d: dict) -> Drawn:
             # not sustainable below one: an empty hatched bar up to one
             ax.bar(x[~ok] + off, np.ones((~ok).sum()), 0.4, color="none", edgecolor=col, hatch="//", lw=0.8)
             for k in np.flatnonzero(~ok):
-                ax.text(k + off, 1.0, "none", ha="center", va="bottom", fontsize=7)
+                ax.text(k + off, 1.0, "none", ha="center", va="bottom", fontsize=SMALL)
     ax.axhline(delta, color="k", lw=1, ls="--", label=f"discount factor {delta:.3g}")
-    ax.set_xticks(x, [s["scheme"] for s in sch], rotation=20, ha="right", fontsize=8)
-    ax.set_ylim(0, 1.08)
+    ax.set_xticks(x, [s["scheme"] for s in sch], rotation=35, ha="right", rotation_mode="anchor")
+    ax.set_ylim(0, 1.12)
     ax.set_ylabel("critical discount factor (market)")
     return _drawn(fig, ax, "thresholds",
-                  "Critical discount factors before and after the merger ('none': not sustainable below one)")
+                  "Critical discount factors before and after the merger ('none': not sustainable below one)",
+                  "market")
 
 
 def _partial(plt, d: dict) -> Drawn:
-    fig, ax = plt.subplots(figsize=(9, 4))
+    fig, ax = _axes(plt, 3.8)
     groups = {}
     for label in SIDES:
         for p in d[label]["partial_collusion"]:
             groups.setdefault((p["scheme"], p.get("T")), {}).setdefault(label, []).append(
                 (p["delta"], as_float(p["profit_gain"])))
+    handles, labels = [], []
     for k, (key, sides) in enumerate(sorted(groups.items(), key=lambda t: (t[0][0], t[0][1] or 0))):
-        name = SCHEME_LABELS.get(key[0], f"reversion T={key[1]}")
+        name = SCHEME_LABELS.get(key[0], f"Nash reversion, T={key[1]}")
         for label, ls in (("before", "-"), ("after", "--")):
             pts = sorted(sides.get(label, []))
             if pts:
-                ax.plot([p[0] for p in pts], [p[1] for p in pts], ls, marker="o", ms=3, color=f"C{k}",
-                        label=f"{name}, {label}")
+                ax.plot([p[0] for p in pts], [p[1] for p in pts], ls, marker="o", ms=3, color=color(k))
+        # one entry per scheme in its colour; the line style says the market (two entries below)
+        handles.append(plt.Line2D([], [], color=color(k), marker="o", ms=3))
+        labels.append(name)
+    handles += [plt.Line2D([], [], color="black", ls="-"), plt.Line2D([], [], color="black", ls="--")]
+    labels += ["before the merger (solid)", "after the merger (dashed)"]
     ax.set_xlabel("discount factor")
-    ax.set_ylabel("profit gain of the best sustainable outcome")
+    ax.set_ylabel("profit gain of the best\nsustainable outcome")
     ax.set_ylim(-0.02, 1.05)
     return _drawn(fig, ax, "partial_collusion", "Partial collusion before (solid) and after (dashed) the merger",
-                  legend_size=7)
+                  "punishment scheme (colour) and market (line style)", handles, labels)
 
 
 def _persistence(plt, d: dict) -> Drawn:
-    fig, ax = plt.subplots(figsize=(9, 3.5))
+    fig, ax = _axes(plt, 3.2)
+    banded = []
     for label, col in (("before", _BEFORE), ("after", _AFTER)):
-        y = _arr(d[label]["simulation"]["collusive_by_period"])
-        ax.plot(np.arange(1, y.size + 1), y, color=col, lw=1, label=label)
+        sim = d[label]["simulation"]
+        y = _arr(sim["collusive_by_period"])
+        t = np.arange(1, y.size + 1)
+        ax.plot(t, y, color=col, lw=1, label=label)
+        n = share_trials(sim["settings"]["run"])
+        if n:
+            lo, hi = wilson_band(y, n)
+            ax.fill_between(t, lo, hi, color=col, alpha=0.2, lw=0, label=f"{label}: 95 % band")
+            banded.append(n)
     ax.set_xlabel("period")
     ax.set_ylabel("share of replications colluding")
     ax.set_ylim(-0.02, 1.02)
-    return _drawn(fig, ax, "persistence", "Simulated persistence of collusion under the experiment's monitoring noise")
+    drawn = _drawn(fig, ax, "persistence", "Simulated persistence of collusion under the experiment's monitoring "
+                                           "noise", "market")
+    caption = drawn.caption + (f"; band: {SHARE_BAND_WORDS.format(n=banded[0])}" if banded else
+                               "; no band: the horizon is random, so the replications behind each period vary")
+    return Drawn(drawn.name, drawn.figure, caption)
 
 
-def _drawn(fig, ax, name: str, title: str, legend_size: int = 8) -> Drawn:
-    """The figure finished -- its title, the legend outside the data, a tight layout -- under its name and caption."""
-    ax.set_title(title, fontsize=9)
-    _legend_outside(ax, fontsize=legend_size)
-    fig.tight_layout()
+def _axes(plt, height: float):
+    """A figure at the printed width of the page (text sizes of :mod:`sim.evidence.figures`), its layout
+    constrained so that the legend below the axes keeps clear of them."""
+    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, height), layout="constrained")
+    ax.tick_params(labelsize=SMALL)
+    ax.xaxis.label.set_size(FONT)
+    ax.yaxis.label.set_size(FONT)
+    return fig, ax
+
+
+def _drawn(fig, ax, name: str, title: str, legend_title: str, handles=None, labels=None) -> Drawn:
+    """The figure finished -- its title and its titled legend below the data -- under its name and caption."""
+    ax.set_title(title, fontsize=FONT)
+    _legend_outside(ax, handles, labels, title=legend_title)
     return Drawn(name, fig, _CAPTIONS[name])
 
 
-def _legend_outside(ax, handles=None, labels=None, fontsize=8) -> None:
-    """The legend to the right of the axes, clear of the data."""
+def _legend_outside(ax, handles=None, labels=None, title: str | None = None) -> None:
+    """The legend below the axes, clear of the data, at the figures' legible size, with a title; none for a single
+    unnamed line."""
     if handles is None:
         handles, labels = ax.get_legend_handles_labels()
-    ax.legend(handles, labels, fontsize=fontsize, loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
+    if labels:
+        fit_legend(ax.figure, list(handles), list(labels), ncol=3, title=title)
 
 
 def _segments(lo: float, hi: float, before, after) -> list:
@@ -122,7 +154,7 @@ def _segments(lo: float, hi: float, before, after) -> list:
 
 
 def _along_delta(plt, s: dict) -> Drawn:
-    fig, ax = plt.subplots(figsize=(9, 4))
+    fig, ax = _axes(plt, 3.8)
     ds = _arr(s["values"])
     spans = _segments(float(ds[0]), float(ds[-1]), s["threshold_before"], s["threshold_after"])
     for lo_, hi_, cat in spans:
@@ -132,7 +164,7 @@ def _along_delta(plt, s: dict) -> Drawn:
     for t, lab in ((s["threshold_before"], "threshold before"), (s["threshold_after"], "threshold after")):
         if t is not None:
             ax.axvline(t, color="k", lw=0.8, ls=":")
-            ax.text(t, 0.02, f"{lab} {t:.4f}", rotation=90, fontsize=7, va="bottom", ha="right")
+            ax.text(t, 0.02, f"{lab} {t:.4f}", rotation=90, fontsize=SMALL, va="bottom", ha="right")
     if s.get("log"):
         ax.set_xscale("log")
     ax.set_xlabel("discount factor")
@@ -143,14 +175,12 @@ def _along_delta(plt, s: dict) -> Drawn:
                if c in drawn]
     labels = [_CATEGORY_LABELS[c] for c in _CATEGORY_COLOURS if c in drawn]
     h0, l0 = ax.get_legend_handles_labels()
-    _legend_outside(ax, h0 + handles, l0 + labels, fontsize=7)
-    ax.set_title("Where the conclusion flips along the discount factor", fontsize=9)
-    fig.tight_layout()
-    return Drawn("sensitivity_delta", fig, _CAPTIONS["sensitivity_delta"])
+    return _drawn(fig, ax, "sensitivity_delta", "Where the conclusion flips along the discount factor",
+                  "profit gain (lines) and conclusion (shading)", h0 + handles, l0 + labels)
 
 
 def _along_noise(plt, s: dict) -> Drawn:
-    fig, ax = plt.subplots(figsize=(9, 4))
+    fig, ax = _axes(plt, 3.6)
     k = _arr(s["scales"])
     for lab, col, ls in (("before", _BEFORE, "-"), ("after", _AFTER, "--")):
         y = _arr(s[f"collusive_share_{lab}"])
@@ -164,7 +194,8 @@ def _along_noise(plt, s: dict) -> Drawn:
     ax.set_xlabel("noise scale (1 = the experiment's monitoring noise)")
     ax.set_ylabel("share of collusive periods")
     ax.set_ylim(-0.02, 1.02)
-    return _drawn(fig, ax, "sensitivity_noise", "Simulated persistence against monitoring noise (95% confidence bands)")
+    return _drawn(fig, ax, "sensitivity_noise", "Simulated persistence against monitoring noise (95% confidence bands)",
+                  "market")
 
 
 def _cell_edges(xs: np.ndarray, log: bool) -> np.ndarray:
@@ -208,7 +239,7 @@ def _phase(plt, doc: dict, name: str, s: dict) -> Drawn:
     xs, tb, ta, grid = _phase_grid(s, ds)
     cmap = ListedColormap([_CATEGORY_COLOURS[c] for c in ("neither", "before only", "both", "after only")])
     norm = BoundaryNorm([-0.5, 0.5, 1.5, 2.5, 3.5], 4)
-    fig, ax = plt.subplots(figsize=(9.5, 4.5))
+    fig, ax = _axes(plt, 4.2)
     de = np.concatenate([[ds[0]], (ds[1:] + ds[:-1]) / 2, [ds[-1]]])
     ax.pcolormesh(_cell_edges(xs, bool(s.get("log"))), de, np.ma.masked_invalid(grid), cmap=cmap, norm=norm,
                   alpha=0.6, shading="flat")
@@ -225,14 +256,13 @@ def _phase(plt, doc: dict, name: str, s: dict) -> Drawn:
     for v in sorted({int(v) for v in np.unique(grid[np.isfinite(grid)])}):
         handles.append(plt.Rectangle((0, 0), 1, 1, color=_CATEGORY_COLOURS[inv[v]], alpha=0.6))
         labels.append(_CATEGORY_LABELS[inv[v]])
-    _legend_outside(ax, handles, labels, fontsize=7)
+    _legend_outside(ax, handles, labels, title="thresholds, discount factor (lines) and conclusion (shading)")
     if s.get("log"):
         ax.set_xscale("log")
     ax.set_xlabel(_INPUT_LABELS[name])
     ax.set_ylabel("discount factor")
     ax.set_ylim(0, 1)
-    ax.set_title(f"Sensitivity to the calibration input '{name}' ({doc['conclusion']['scheme']})", fontsize=9)
-    fig.tight_layout()
+    ax.set_title(f"Sensitivity to the calibration input '{name}' ({doc['conclusion']['scheme']})", fontsize=FONT)
     return Drawn(f"sensitivity_{name}", fig, f"Sensitivity to the calibration input '{name}': critical discount "
                                              "factors before and after, and the conclusion at each discount factor")
 

@@ -11,7 +11,6 @@ import numpy as np
 
 from sim.antitrust.factors import FACTOR_LEGEND
 from sim.antitrust.merger import difference
-from sim.core.text import CAUTION
 from sim.evidence.assess_methods import THRESHOLD_SHORT, methods_blocks
 from sim.evidence.assess_payoffs import payoff_blocks
 from sim.evidence.assess_tables import (
@@ -45,7 +44,7 @@ def _setup(d: dict) -> list:
              f"Merger: {' and '.join(m['merging'])} become {m['merged_firm']}"
              + (f", efficiency {m['efficiency']:g}" if m["efficiency"] else "")
              + (f", stated post-merger cost {st['merger']['cost']}" if st["merger"]["cost"] is not None else ""),
-             f"Post-merger market: {market_text(m['post_market'])}",
+             f"Post-merger market: {market_text(m['post_market'], m['names_post'])}",
              f"Collusive agreement: {st['agreement']}; headline scheme: {c['scheme']}; discount factor "
              f"{c['delta']:.4g}; demand growth per period for the factor table: {st['growth']:g}",
              _units_text(d)]
@@ -181,9 +180,8 @@ def summary_blocks(a, figures=()) -> list:
         return [("figure", name)] if name in figures else []
 
     c = d["conclusion"]
-    B = [("paragraph", "Caution: " + CAUTION + " What follows is a model result under the assumptions stated at "
-                       "the end, not a finding of fact."),
-         ("heading", "Conclusion under the stated assumptions"), ("paragraph", c["statement"])]
+    # the caution is the bundle's own, on its first page and at its close: not repeated here
+    B = [("heading", "Conclusion under the stated assumptions"), ("paragraph", c["statement"])]
     if c.get("robustness"):
         B.append(("bullets", [f"sensitivity to {k.replace('_', ' ')}: {v}" for k, v in in_order(c["robustness"])]))
     B.append(("table", "thresholds", "Critical discount factors of each scheme ('-': not sustainable below one)"))

@@ -15,7 +15,7 @@ import numpy as np
 from sim.antitrust.merger import difference
 from sim.antitrust.options import SENSITIVITY_INPUTS
 from sim.antitrust.result import DEFAULT_CURRENCY, DEFAULT_PERIOD
-from sim.core.text import fmt_num
+from sim.core.text import fmt_num, plain_values
 from sim.evidence.assess_payoffs import payoff_table
 from sim.evidence.pairs import PAIR_HEADERS, assessment_pairs, pair_rows
 from sim.models.market import DEMAND_KEYS
@@ -236,9 +236,7 @@ def param_text(v) -> str:
     -------
     str
     """
-    if isinstance(v, list | tuple):
-        return ", ".join(num(x, 6) for x in v)
-    return num(v, 6)
+    return plain_values(v, 6)
 
 
 def demand_order(demand: str, keys) -> list:
@@ -257,12 +255,14 @@ def demand_order(demand: str, keys) -> list:
     return first + sorted(k for k in keys if k not in first)
 
 
-def market_text(d: dict) -> str:
+def market_text(d: dict, names=None) -> str:
     """A market's table (:meth:`sim.Market.to_dict`) in words: the demand's parameters, then costs and structure.
 
     Parameters
     ----------
     d : dict
+    names : sequence of str, optional
+        The market's firm names: each product's owner is named instead of numbered.
 
     Returns
     -------
@@ -270,7 +270,12 @@ def market_text(d: dict) -> str:
     """
     keys = demand_order(d["demand"], [k for k in d if k not in ("model", "demand", *_MARKET_LAST)])
     keys += [k for k in _MARKET_LAST if k in d]
-    params = "; ".join(f"{k} {param_text(d[k]) if isinstance(d[k], list) else num(d[k], 6)}" for k in keys)
+    def text(k):
+        if k == "owner" and names:
+            return ", ".join(names[o - 1] for o in d[k])
+        return param_text(d[k])
+
+    params = "; ".join(f"{k} {text(k)}" for k in keys)
     return f"{d['model'].capitalize()} competition, {d['demand']} demand: {params}"
 
 

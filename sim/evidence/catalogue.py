@@ -23,8 +23,9 @@ from sim.evidence.catalogue_assess import ASSESS_ENTRIES
 from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
 from sim.evidence.catalogue_contact_play import CONTACT_PLAY_ENTRIES
 from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
+from sim.evidence.catalogue_parameters import PARAMETER_ROWS
 from sim.evidence.catalogue_shocks import SHOCK_ENTRIES, SHOCK_PARAMETERS
-from sim.evidence.catalogue_slice import REFINE_ENTRIES, SLICE_ENTRIES
+from sim.evidence.catalogue_slice import FRONTIER_ENTRIES, REFINE_ENTRIES, SLICE_ENTRIES
 from sim.evidence.catalogue_state_play import STATE_PLAY_ENTRIES
 
 __all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "money"]
@@ -230,7 +231,8 @@ ENTRIES: dict[str, Entry] = {
                                 "Share of periods in price wars in the long run.", "renewal argument"),
     "collusive_by_period": Entry("share of replications colluding", "0 to 1",
                                  "Share of the replications still running in which every firm colludes, per period.",
-                                 "counted"),
+                                 "counted", "pointwise " + _WILSON + " per period (fixed horizon); none under a random "
+                                                                     "horizon"),
     # learning
     "sessions": Entry("learning sessions", "count", "Independent sessions.", "given"),
     "converged": Entry("share of sessions that converged", "0 to 1",
@@ -479,50 +481,13 @@ ENTRIES.update({k: Entry(*v) for k, v in ALTERNATING_ENTRIES.items()})
 # the symmetric slice of the any-punishment set, three firms or more (sim.evidence.catalogue_slice)
 ENTRIES.update({k: Entry(*v) for k, v in SLICE_ENTRIES.items()})
 ENTRIES.update({k: Entry(*v) for k, v in REFINE_ENTRIES.items()})
+# the frontier of sustainable profits of the any-punishment set (sim.evidence.catalogue_slice)
+ENTRIES.update({k: Entry(*v) for k, v in FRONTIER_ENTRIES.items()})
 # learners' response to one adverse demand draw (sim.evidence.catalogue_shocks)
 ENTRIES.update({k: Entry(*v) for k, v in SHOCK_ENTRIES.items()})
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)
-PARAMETERS: dict[str, Entry] = {
-    "run.delta": Entry("discount factor delta", "", "The firms' common discount factor.", "given"),
-    "run.periods": Entry("periods", "periods", "Length of a replication.", "given"),
-    "run.replications": Entry("replications", "count", "Independent replications.", "given"),
-    "run.seed": Entry("seed", "", "The experiment's random seed.", "given"),
-    "run.continuation": Entry("continuation probability", "probability", "Chance that the game goes on.", "given"),
-    "run.sessions": Entry("learning sessions", "count", "Independent sessions.", "given"),
-    "monitoring.sigma": Entry("standard deviation of the demand shock sigma", "", "Noise of the price signal.",
-                              "given"),
-    "monitoring.perception_error": Entry("perception error", "probability",
-                                         "Chance that a firm misreads a rival's conduct.", "given"),
-    "monitoring.implementation_error": Entry("implementation error", "probability",
-                                             "Chance that a firm's action is replaced by cheating.", "given"),
-    "market.n_firms": Entry("number of firms", "", "Firms in the market.", "given"),
-    "market.cost": Entry("marginal cost", "currency units per unit", "Marginal cost of production.", "given"),
-    "market.intercept": Entry("demand intercept", "price", "Choke price of linear demand.", "given"),
-    "market.slope": Entry("demand slope", "price per unit", "Slope of linear inverse demand.", "given"),
-    "market.mu": Entry("logit differentiation mu", "", "Horizontal differentiation of logit demand.", "given"),
-    "market.substitution": Entry("substitutability", "", "Substitutability of differentiated products.", "given"),
-    "market.elasticity": Entry("demand elasticity", "", "Absolute elasticity of isoelastic demand.", "given"),
-    "strategies": Entry("strategy", "", "The strategy played by the seats of a line-up entry.", "given"),
-    "assess.growth": Entry("demand growth per period", "share per period", "Growth rate of demand.", "given"),
-    "learning.update": Entry("update rule of the learners", "",
-                             "Which values a learner updates after a period: asynchronous (the price it played) or "
-                             "synchronous (every price, from what it would have earned against the rivals' prices).",
-                             "given; the rules of Asker, Fershtman and Pakes (2022, AEA Papers and Proceedings 112)"),
-    "learning.family": Entry("learner family", "",
-                             "How a learner chooses its price: Q-learning, an upper-confidence-bound bandit or a "
-                             "Thompson-sampling bandit over the price grid.",
-                             "given; UCB1 (Auer, Cesa-Bianchi and Fischer, 2002, Machine Learning 47), Thompson "
-                             "sampling with a normal prior (Agrawal and Goyal, 2013)"),
-    "learning.noise": Entry("noise on the observed profit", "currency units per period",
-                            "Standard deviation of the normal error on the profit a bandit observes each period "
-                            "(its demand signal); the lower, the higher the signal-to-noise ratio.",
-                            "given; the setting of Hansen, Misra and Pai (2021, Marketing Science 40(1))"),
-    "learning.exploration": Entry("exploration scale of a bandit", "",
-                                  "UCB's exploration constant c, or the standard deviation of a Thompson-sampling "
-                                  "learner's normal prior.", "given"),
-}
-
+PARAMETERS: dict[str, Entry] = {k: Entry(*v) for k, v in PARAMETER_ROWS.items()}
 PARAMETERS.update({k: Entry(*v) for k, v in CONDITION_PARAMETERS.items()})
 PARAMETERS.update({k: Entry(*v) for k, v in ALTERNATING_PARAMETERS.items()})
 PARAMETERS.update({k: Entry(*v) for k, v in SHOCK_PARAMETERS.items()})
@@ -587,7 +552,8 @@ def _stem(core: str) -> tuple[str, str | None]:
     return core, None
 
 
-def describe(key: str, currency: str | None = None, period: str | None = None, firm_names=None) -> Described:
+def describe(key: str, currency: str | None = None, period: str | None = None, firm_names=None,
+             product_names=None) -> Described:
     """Resolve a stored metric name (see the module notes).
 
     Parameters
@@ -597,6 +563,8 @@ def describe(key: str, currency: str | None = None, period: str | None = None, f
         Units of money.
     firm_names : sequence of str, optional
         Names of the firms (firm N is ``firm_names[N - 1]``).
+    product_names : sequence of str, optional
+        Names of the products (product N is ``product_names[N - 1]``; default: ``firm_names``).
 
     Returns
     -------
@@ -630,7 +598,8 @@ def describe(key: str, currency: str | None = None, period: str | None = None, f
         quals.append(_SCHEME_WORDS.get(extra, extra))
     for what, n in firms:
         n = int(n)
-        name = firm_names[n - 1] if firm_names and n <= len(firm_names) else f"{what} {n}"
+        names = product_names if what == "product" and product_names else firm_names
+        name = names[n - 1] if names and n <= len(names) else f"{what} {n}"
         quals.append(name)
     if idx:
         quals.append("item " + ", ".join(idx))
@@ -680,7 +649,7 @@ def describe_parameter(path: str, currency: str | None = None, period: str | Non
     raise KeyError(f"{path!r} has no entry in the evidence catalogue")
 
 
-def glossary(keys, currency: str | None = None, period: str | None = None) -> list[list[str]]:
+def glossary(keys, currency: str | None = None, period: str | None = None, names_of=None) -> list[list[str]]:
     """Rows of a bundle's glossary: key, label, unit, definition, method and source, interval.
 
     Parameters
@@ -688,6 +657,9 @@ def glossary(keys, currency: str | None = None, period: str | None = None) -> li
     keys : iterable of str
         Stored metric names (bounds and standard errors are folded into their metric).
     currency, period : str, optional
+    names_of : callable, optional
+        ``names_of(key) -> dict``: the ``firm_names`` and ``product_names`` that label a key
+        (:func:`sim.evidence.catalogue_names.key_names`); default: firms and products by number.
 
     Returns
     -------
@@ -699,6 +671,7 @@ def glossary(keys, currency: str | None = None, period: str | None = None) -> li
         if base in seen:
             continue
         seen.add(base)
-        d = describe(base, currency, period)
+        d = describe(base, currency, period, **(names_of(base) if names_of is not None else {}))
         rows.append([base, d.label, d.unit or "-", d.entry.definition, d.entry.method, d.entry.interval])
     return rows
+

@@ -5,7 +5,7 @@ source).
 
 from __future__ import annotations
 
-__all__ = ["REFINE_ENTRIES", "SLICE_ENTRIES"]
+__all__ = ["FRONTIER_ENTRIES", "REFINE_ENTRIES", "SLICE_ENTRIES"]
 
 _SLICE = ("the smallest or largest t with (t, ..., t) in the convex hull of the full set's vertices (not of its "
           "projection on two firms), a linear programme (HiGHS); the set at the reported discount factor on the "
@@ -60,4 +60,40 @@ REFINE_ENTRIES: dict[str, tuple] = {
         "accuracy of the payoff sets on the refined grid", "{money}",
         "Hausdorff distance between the inner and outer payoff sets at the reported discount factor on the k-th "
         "grid.", _REFINE),
+}
+
+_FRONTIER = ("the largest sum of the firms' payoffs, or the largest payoff of one firm, over the vertices of the inner "
+             "set (equilibrium payoffs, self-generating in the sense of Abreu, Pearce and Stacchetti, 1990, "
+             "Econometrica 58(5)) and of the outer set (supporting hyperplanes, Judd, Yeltekin and Conklin, 2003, "
+             "Econometrica 71(4); exact images for two firms) at the reported discount factor on the action grid "
+             "(sim.theory.practice.sustainable_frontier); a linear function's maximum over a convex hull is attained "
+             "at a vertex")
+
+#: the frontier of sustainable profits at the reported discount factor: stem -> (label, unit, definition, method);
+#: the best payoffs carry the firm qualifier (``.firmN``)
+FRONTIER_ENTRIES: dict[str, tuple] = {
+    "any_punishment.best_joint.lower": (
+        "best joint profit of an equilibrium, lower end", "{money}",
+        "The highest joint profit per period (sum over firms, discounted average) of a constructed equilibrium at "
+        "the payoff set's discount factor: the best joint profit attainable is at least this (inner set).",
+        _FRONTIER),
+    "any_punishment.best_joint.upper": (
+        "best joint profit of an equilibrium, upper end", "{money}",
+        "No equilibrium at the payoff set's discount factor gives a higher joint profit per period (outer set).",
+        _FRONTIER),
+    "any_punishment.best_profit.lower": (
+        "best equilibrium payoff of the firm, lower end", "{money}",
+        "The firm's highest payoff per period in a constructed equilibrium at the payoff set's discount factor "
+        "(inner set): the most profitable asymmetric outcome for that firm is at least this.", _FRONTIER),
+    "any_punishment.best_profit.upper": (
+        "best equilibrium payoff of the firm, upper end", "{money}",
+        "No equilibrium at the payoff set's discount factor gives the firm more per period (outer set).", _FRONTIER),
+    "any_punishment.best_equal_profit.lower": (
+        "best equal profit of an equilibrium, lower end", "{money}",
+        "Two firms: the highest profit t such that both firms earning t is a constructed equilibrium outcome at the "
+        "payoff set's discount factor (inner set), the most profitable symmetric outcome at least.", _SLICE),
+    "any_punishment.best_equal_profit.upper": (
+        "best equal profit of an equilibrium, upper end", "{money}",
+        "Two firms: no equilibrium at the payoff set's discount factor gives both firms an equal profit above this "
+        "(outer set).", _SLICE),
 }

@@ -226,8 +226,11 @@ def _panels(n: int):
 PAGE_WIDTH = 6.3
 #: font sizes (points) at that width: nothing is smaller than 8 pt on paper
 FONT, SMALL = 9.0, 8.0
-#: a palette that colour-blind readers tell apart (Okabe and Ito, 2008, "Color Universal Design")
-PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000", "#F0E442")
+#: a palette that colour-blind readers tell apart and that shows in print: the colours of Okabe and Ito (2008, "Color
+#: Universal Design") with a contrast of at least 3:1 against white paper (the graphics threshold of WCAG 2.1,
+#: success criterion 1.4.11, W3C 2018); their orange, sky blue and yellow, which do not, replaced by the wine and
+#: olive of Tol's muted scheme (P. Tol, "Colour Schemes", SRON technical note SRON/EPS/TN/09-002) and a mid grey
+PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#000000", "#882255", "#999933", "#6E6E6E")
 
 
 def color(k: int) -> str:
@@ -685,8 +688,9 @@ def lines(data: SweepData, x: str, metric: str, analytic: str | None = None, gro
             legend.setdefault(lab, h)
     for k in range(len(facets), nr * nc):
         axes[k // nc][k % nc].set_visible(False)
-    if legend:
-        title_l = _label(group, data).split(" [")[0] if group else None
+    # a single ungrouped line needs no legend (the axis names it); otherwise the legend says what its entries are
+    if legend and (group or len(legend) > 1):
+        title_l = _label(group, data).split(" [")[0] if group else metric_label(metric, data)
         fit_legend(fig, list(legend.values()), list(legend), ncol=3, title=title_l)
     extra = " (band: 95 % interval across replications)" if has_band else ""
     fig.suptitle(_wrap((title or f"{metric_label(metric, data)}{extra}") + _panel_note(facet, data), 80),

@@ -16,6 +16,7 @@ import re
 from sim.core.provenance import package_versions, platform_info
 from sim.core.text import fmt_num
 from sim.evidence.catalogue import describe, describe_parameter, glossary
+from sim.evidence.catalogue_names import key_names
 
 __all__ = [
     "headline",
@@ -202,7 +203,7 @@ def headline(question: str, parameters, rows, heads, units=(None, None)) -> tupl
     return question, answer[:2] or ["The run finished; its numbers follow."], numbers
 
 
-def terms_rows(metrics, parameters, units=(None, None)) -> list:
+def terms_rows(metrics, parameters, units=(None, None), names: dict | None = None) -> list:
     """Rows of the glossary: key, label, unit, definition, method and source, interval -- of every metric and swept
     parameter that appears in the bundle.
 
@@ -213,6 +214,8 @@ def terms_rows(metrics, parameters, units=(None, None)) -> list:
     parameters : iterable of str
         Swept parameters' paths.
     units : tuple of (str or None, str or None)
+    names : dict, optional
+        Firm and product names (:func:`sim.evidence.catalogue.key_names`); default: by number.
 
     Returns
     -------
@@ -228,7 +231,7 @@ def terms_rows(metrics, parameters, units=(None, None)) -> list:
         rows.append([path, d.label, d.unit or "-", d.entry.definition, d.entry.method, d.entry.interval])
     for k in metrics:
         try:
-            rows += glossary([k], *units)
+            rows += glossary([k], *units, names_of=(lambda key: key_names(key, names)) if names else None)
         except KeyError:
             rows.append([k, k, "-", "no entry in the catalogue", "-", "-"])
     seen, out = set(), []

@@ -28,6 +28,7 @@ from sim.core.errors import InputError
 from sim.core.files import symlinks_in
 from sim.core.text import fmt_num
 from sim.evidence.bundle import Bundle, Estimate, clear_leftovers, holds_bundle
+from sim.evidence.catalogue_names import whole_number
 from sim.evidence.figures import SweepData, _plt
 from sim.evidence.front import (
     headline,
@@ -39,7 +40,9 @@ from sim.evidence.front import (
     terms_rows,
 )
 from sim.evidence.render import renderer_for
+from sim.evidence.views import result_names
 from sim.runner.experiment import leading_comment
+from sim.runner.kinds import stated_assumptions
 from sim.runner.lock import FolderLock
 from sim.runner.report_settings import FigureSpec, figure_name
 from sim.runner.runs import (
@@ -407,11 +410,11 @@ def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) 
     else:
         b.paragraph("None: the cell finished without error." if counts["total"] == 1
                     else f"None: all {counts['total']} cells finished without error.")
-    b.assumptions(list(kind.assumptions) + [
+    b.assumptions(stated_assumptions(kind.assumptions, exp.metric_names) + [
         "Every number in this report is read from the stored results of the run (results.sqlite); nothing is "
         "recomputed for the report.",
     ])
-    terms = terms_rows(list(exp.metric_names), [p.path for p in exp.parameters], units)
+    terms = terms_rows(list(exp.metric_names), [p.path for p in exp.parameters], units, _names(rf, exp, rows))
     b.heading("Methods appendix", appendix=True)
     b.paragraph("How each number of this bundle is computed, with its published source (\"common practice\" where "
                 "the trade has none); the glossary below gives each number's definition.")
@@ -441,6 +444,16 @@ def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) 
     b.table("glossary", ["key", "label", "unit", "definition", "method and source", "interval"], terms,
             caption="Every number of the bundle: its stored name (key, the column name in the CSV files), label, "
                     "unit, definition, method and interval", max_rows=len(terms) + 1)
+
+
+def _names(rf, exp, rows) -> dict | None:
+    """The firm and product names of a single finished cell's result (a sweep's cells may differ: numbers then)."""
+    if exp.parameters or not rows or rows[0].status != "ok" or renderer_for(exp.kind) is None:
+        return None
+    try:
+        return result_names(rf.result(rows[0].cell))
+    except TypeError:  # a kind of a plug-in: no names
+        return None
 
 
 def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, in_run_folder: bool) -> None:
@@ -547,11 +560,18 @@ def _sweep_table(b, exp, rows, heads, units) -> None:
                 d.append(Estimate(v, lo, hi))
                 c += [lo, hi]
             else:
-                d.append(v)
+                d.append(_shown(m, v))
         disp_rows.append(d)
         csv_rows.append(c)
     b.table("summary", hdr, disp_rows, caption="Headline results per cell", csv_rows=(csv_hdr, csv_rows),
             note="95 % confidence intervals across replications (simulation error only)")
+
+
+def _shown(m: str, v):
+    """A metric's value as a table shows it: a whole number (a count, a firm's number, a yes/no) without decimals."""
+    if isinstance(v, float) and math.isfinite(v) and v == round(v) and whole_number(m):
+        return int(v)
+    return v
 
 
 def _cell_table(b, exp, kind, r, units) -> None:
@@ -561,12 +581,12 @@ def _cell_table(b, exp, kind, r, units) -> None:
     mrows = []
     for m in names:
         an = kind.analytic.get(m)
-        mrows.append([metric_column(m, units), r.metrics.get(m, math.nan), _ci(r, m),
-                      r.metrics.get(an, math.nan) if an else math.nan])
+        mrows.append([metric_column(m, units), _shown(m, r.metrics.get(m, math.nan)), _ci(r, m),
+                      _shown(m, r.metrics.get(an, math.nan)) if an else math.nan])
     mapped = set(kind.analytic.values())
     for m in exp.metric_names:
         if m.startswith("analytic.") and m not in mapped and math.isfinite(r.metrics.get(m, math.nan)):
-            mrows.append([metric_column(m, units), r.metrics[m], "-", math.nan])
+            mrows.append([metric_column(m, units), _shown(m, r.metrics[m]), "-", math.nan])
     b.table("summary", ["quantity [unit]", "value", "95 % interval", "analytic prediction"], mrows,
             caption="Results", max_rows=200,
             note="rows named analytic: the analytic baseline of the cell (closed forms and benchmarks)")

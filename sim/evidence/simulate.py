@@ -12,8 +12,10 @@ from __future__ import annotations
 
 import numpy as np
 
+from sim.core.stats import wilson_band
 from sim.core.text import CAUTION, fmt_num, table
 from sim.evidence.answers import simulate_headline
+from sim.evidence.figure_sizes import SHARE_BAND_WORDS, share_trials
 from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.simulate_enforced import enforced_figure, enforced_json, enforced_text, state_play_text
@@ -248,6 +250,10 @@ def _collusion_over_time(res):
     share = np.asarray(res.collusive_by_period, dtype=float)
     t = np.arange(1, share.shape[0] + 1)
     ax.plot(t, share, lw=0.9, color=color(0), label="simulated")
+    n = share_trials(res.settings["run"])
+    if n:
+        lo, hi = wilson_band(share, n)
+        ax.fill_between(t, lo, hi, color=color(0), alpha=0.2, lw=0, label="simulated: 95 % band")
     curve = res.baseline.get("collusive_by_period") if res.baseline else None
     if curve is not None:
         ax.plot(t, np.asarray(curve, dtype=float)[: share.shape[0]], lw=1.2, color=color(1), ls="--",
@@ -258,10 +264,13 @@ def _collusion_over_time(res):
     ax.set_xlabel("period", fontsize=FONT)
     ax.set_ylabel("share of replications\ncolluding [0 to 1]", fontsize=FONT)
     ax.tick_params(labelsize=SMALL)
-    fig.legend(loc="outside lower center", ncol=2, fontsize=SMALL, frameon=False)
+    fig.legend(loc="outside lower center", ncol=3, fontsize=SMALL, frameon=False,
+               title="share of replications colluding", title_fontsize=SMALL)
     fig.suptitle("Collusion over time", fontsize=FONT + 1)
+    band = (f"; band: {SHARE_BAND_WORDS.format(n=n)}" if n else
+            "; no band: the horizon is random, so the replications behind each period vary")
     return Drawn("collusion-over-time", fig, "The share of replications in which every firm colludes, period by "
-                                             "period, beside the analytic prediction where one exists.")
+                                             f"period, beside the analytic prediction where one exists{band}.")
 
 
 def _spell_survival(res):

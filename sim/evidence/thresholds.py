@@ -5,9 +5,11 @@ from __future__ import annotations
 
 import numpy as np
 
-from sim.core.text import CAUTION, fmt_num, table
+from sim.core.text import CAUTION, fmt_num, plain_values, table
 from sim.evidence import any_punishment as anyp
 from sim.evidence.answers import thresholds_headline
+from sim.evidence.figure_sizes import bars_height
+from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.refinement import refinement_figure, refinement_lines
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.thresholds_parts import part_figures, part_json, part_lines
@@ -39,7 +41,8 @@ def describe_market(market: dict, n_firms: int) -> str:
     str
     """
     skip = {"model", "demand", "cost", "n_firms", "capacity"}
-    params = ", ".join(f"{k} {v}" for k, v in market.items() if k not in skip)
+    params = ", ".join(f"{k} {plain_values(v, brackets=True)}" for k, v in market.items()
+                       if k not in skip)
     return f"{market['model'].capitalize()} competition, {market['demand']} demand ({params}), {n_firms} firms"
 
 
@@ -212,18 +215,19 @@ def figures(res: ThresholdsResult) -> list[Drawn]:
     plt = pyplot()
     rows = res.scheme_rows()
     n = res.n_firms
-    fig, ax = plt.subplots(figsize=(6.3, 0.45 * len(rows) * max(1, min(n, 4)) + 1.2))
+    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, bars_height(len(rows) * n)), layout="constrained")
     height = 0.8 / n
     y = np.arange(len(rows))
     for i in range(n):
         vals = [np.nan if r["per_firm"][i] is None else r["per_firm"][i] for r in rows]
-        ax.barh(y + (i - (n - 1) / 2) * height, vals, height=height, label=f"firm {i + 1}")
+        ax.barh(y + (i - (n - 1) / 2) * height, vals, height=height, color=color(i), label=f"firm {i + 1}")
     ax.set_yticks(y, [r["scheme"] for r in rows])
     ax.invert_yaxis()
     ax.set_xlim(0, 1)
-    ax.set_xlabel("critical discount factor")
-    ax.legend(title="firm", loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
-    fig.tight_layout()
+    ax.set_xlabel("critical discount factor", fontsize=FONT)
+    ax.tick_params(labelsize=SMALL)
+    ax.legend(title="firm", loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, fontsize=SMALL,
+              title_fontsize=SMALL)
     out = [Drawn("thresholds", fig, "Critical discount factor of each firm under each punishment scheme: collusion "
                                     "is sustainable at a discount factor at or above every firm's bar; a missing "
                                     "bar means the firm cannot be held below one.")]

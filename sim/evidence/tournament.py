@@ -210,6 +210,11 @@ def _score_words(out: TournamentOutcome) -> str:
     return f"{what} ({out.units['currency']})"
 
 
+def _learners(out: TournamentOutcome) -> bool:
+    """Whether a learning firm was entered (the captions speak of it only then)."""
+    return any(e["learns"] for e in out.entrants)
+
+
 def figures(out: TournamentOutcome) -> list[Drawn]:
     """The figures of a tournament outcome (see :mod:`sim.evidence.tournament_figures`).
 
@@ -237,8 +242,8 @@ def figures(out: TournamentOutcome) -> list[Drawn]:
               "profit, below 0 the firms earn less than at Nash (punishments below the Nash profit)."),
         Drawn("collusion-duration", F.duration_figure(out),
               f"How long collusion lasts within each {what}: the mean number of {period}s until collusion first "
-              f"breaks down (Kaplan-Meier, over the horizon of {out.horizon:,} {period}s); n/a where a learning "
-              "firm plays (scored on its converged play)."),
+              f"breaks down (Kaplan-Meier, over the horizon of {out.horizon:,} {period}s)"
+              + ("; n/a where a learning firm plays (scored on its converged play)." if _learners(out) else ".")),
         Drawn("replicator", F.replicator_figure(out),
               f"Share of the population following each rule over generations of the replicator dynamics "
               f"({fitness_words(out)}): the rules whose share grows spread among firms that imitate successful "

@@ -1,7 +1,7 @@
 """The figures of a tournament outcome, drawn for print: readable at the width of an A4 text column (6.3 inches,
-text of 8 points or more), colour-blind-safe colours (the Okabe-Ito palette for lines, Okabe and Ito, 2008, "Color
-Universal Design"; cividis for sequential and purple-orange for diverging colour maps), legends outside the data and
-one number format per figure.
+text of 8 points or more), colour-blind-safe colours that show on white paper (the palette of
+:data:`sim.evidence.figures.PALETTE` for lines; cividis for sequential and purple-orange for diverging colour maps),
+legends outside the data and one number format per figure.
 
 * :func:`rules_figure` -- each rule's profit gain with its interval, beside its population share after the
   replicator dynamics;
@@ -17,15 +17,13 @@ import math
 
 import numpy as np
 
-from sim.evidence.figures import text_color
+from sim.evidence.figures import PALETTE, text_color
 from sim.evidence.render import pyplot
 from sim.tournament.analysis import TournamentOutcome
 
-__all__ = ["OKABE_ITO", "duration_figure", "invasion_figure", "pairs_figure", "percent", "replicator_figure",
+__all__ = ["duration_figure", "invasion_figure", "pairs_figure", "percent", "replicator_figure",
            "rules_figure"]
 
-#: eight colours told apart with every common form of colour blindness (Okabe and Ito, 2008)
-OKABE_ITO = ("#0072B2", "#E69F00", "#009E73", "#CC79A7", "#56B4E9", "#D55E00", "#F0E442", "#000000")
 _STYLES = ("-", "--", ":", "-.")
 #: width of an A4 text column, inches
 WIDTH = 6.3
@@ -45,7 +43,7 @@ def line_style(k: int) -> dict:
     dict
         ``color`` and ``linestyle``.
     """
-    return {"color": OKABE_ITO[k % len(OKABE_ITO)], "linestyle": _STYLES[(k // len(OKABE_ITO)) % len(_STYLES)]}
+    return {"color": PALETTE[k % len(PALETTE)], "linestyle": _STYLES[(k // len(PALETTE)) % len(_STYLES)]}
 
 
 def three_significant(x: float) -> str:
@@ -159,7 +157,7 @@ def rules_figure(out: TournamentOutcome):
                                  gridspec_kw={"width_ratios": [3, 2]})
     y = np.arange(E)[::-1]
     err = [np.nan_to_num(est[:, 0] - est[:, 2]), np.nan_to_num(est[:, 3] - est[:, 0])]
-    ax.errorbar(est[:, 0], y, xerr=err, fmt="o", ms=4, color=OKABE_ITO[0], ecolor=OKABE_ITO[0], capsize=2.5)
+    ax.errorbar(est[:, 0], y, xerr=err, fmt="o", ms=4, color=PALETTE[0], ecolor=PALETTE[0], capsize=2.5)
     if out.score == "profit_gain":
         for x, name, side, dx in ((0.0, "static Nash", "left", 2), (1.0, "agreement", "right", -2)):
             ax.axvline(x, color="0.45", lw=0.8, ls="--")
@@ -172,7 +170,7 @@ def rules_figure(out: TournamentOutcome):
     ax.set_yticks(y, [f"{int(out.ranks[e])}. {labels[e]}" for e in order], fontsize=8)
     ax.grid(axis="x", alpha=0.3)
     gens = int(out.evolution.settings["generations"])
-    colours = [OKABE_ITO[2] if out.evolution.resists[e] else OKABE_ITO[1] for e in order]
+    colours = [PALETTE[2] if out.evolution.resists[e] else PALETTE[1] for e in order]
     bx.barh(y, share, color=colours, height=0.6)
     # the colour shows even where the share is too small for a bar
     bx.scatter(np.zeros(E), y, marker="s", s=36, color=colours, clip_on=False, zorder=3)
@@ -183,7 +181,7 @@ def rules_figure(out: TournamentOutcome):
     bx.set_xlim(0, 1)
     bx.set_xlabel(f"share of the population after\n{gens:,} generations", fontsize=9)
     bx.grid(axis="x", alpha=0.3)
-    handles = [plt.Rectangle((0, 0), 1, 1, color=OKABE_ITO[2]), plt.Rectangle((0, 0), 1, 1, color=OKABE_ITO[1])]
+    handles = [plt.Rectangle((0, 0), 1, 1, color=PALETTE[2]), plt.Rectangle((0, 0), 1, 1, color=PALETTE[1])]
     fig.legend(handles, ["resists invasion by every other rule", "does not resist every other rule"],
                loc="outside lower center", ncol=2, fontsize=8, frameon=False)
     return fig

@@ -16,21 +16,21 @@ from __future__ import annotations
 
 import html
 import math
-import re
 
 from sim.core.text import CAUTION, fmt_num
 from sim.core.views import register_view
+from sim.evidence.assess_tables import assessment_data, product_labels
 from sim.evidence.catalogue import describe
+from sim.evidence.catalogue_names import key_names
 from sim.evidence.front import scheme_words
 from sim.evidence.render import renderer_for
 from sim.runner.analyses import assess, capacity, learn, simulate, thresholds, tournament
 
-__all__ = ["COLUMNS", "frame_rows", "result_frame", "result_html"]
+__all__ = ["COLUMNS", "frame_rows", "result_frame", "result_html", "result_names"]
 
 #: the columns of ``to_frame()``, the stored name last
 COLUMNS = ["label", "value", "unit", "low", "high", "key"]
 _BOUNDS = (".low", ".high", ".se")
-_AFTER = re.compile(r"\.after(?=\.|$|\[)")
 
 #: kind name -> (result type, flat metrics of a result)
 _KINDS = {
@@ -69,12 +69,33 @@ def _context(result) -> tuple:
     return None, None, None, None
 
 
-def _label(key: str, currency, period, before, after) -> tuple[str, str]:
-    names = after if _AFTER.search(key) and after is not None else before
+def result_names(result) -> dict | None:
+    """The names that label a result's numbers: its firms before and after a merger and its products (None for a
+    result whose firms have no names).
+
+    Parameters
+    ----------
+    result : Record
+        The result of an analysis.
+
+    Returns
+    -------
+    dict or None
+        ``before``, ``after`` and ``products`` (see :func:`sim.evidence.catalogue.key_names`).
+    """
+    kind = _kind_of(result)
+    _currency, _period, before, after = _context(result)
+    if before is None:
+        return None
+    products = product_labels(assessment_data(result)) if kind == "assess" else None
+    return {"before": before, "after": after, "products": products}
+
+
+def _label(key: str, currency, period, names) -> tuple[str, str]:
     if key.startswith("analytic.critical_delta."):
         return f"analytic critical discount factor, {scheme_words(key.split('.', 2)[2])}", ""
     try:
-        d = describe(key, currency, period, names)
+        d = describe(key, currency, period, **key_names(key, names))
     except KeyError:
         return key.replace("_", " ").replace(".", ", "), ""
     return d.label, d.unit
@@ -101,12 +122,13 @@ def frame_rows(result) -> list[list]:
         Rows in the order of :data:`COLUMNS`.
     """
     metrics = _KINDS[_kind_of(result)][1](result)
-    context = _context(result)
+    currency, period, _before, _after = _context(result)
+    names = result_names(result)
     rows = []
     for key, v in metrics.items():
         if key.endswith(_BOUNDS):
             continue
-        label, unit = _label(key, *context)
+        label, unit = _label(key, currency, period, names)
         rows.append([label, _float(v), unit, _float(metrics.get(f"{key}.low", math.nan)),
                      _float(metrics.get(f"{key}.high", math.nan)), key])
     return rows

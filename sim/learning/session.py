@@ -102,12 +102,11 @@ def _validate_run(**values) -> dict:
 
 
 def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, convergence: int = 100_000,
-          max_periods: int = 1_000_000_000, deviator: int = 0, deviation="best_response",
-          response_periods: int = 15, near: float = 0.1, workers: int | None = None,
-          progress: bool | None = None, cell: int = 0, confidence: float = 0.95,
-          limit_periods: int = LIMIT_PERIODS, start: SavedLearners | None = None,
-          keep: bool = False, event: Event | None = None, timing: str = "simultaneous",
-          demand_noise: str = "lognormal", demand_sigma: float = 0.0) -> LearningResult:
+          max_periods: int = 1_000_000_000, deviator: int = 0, deviation="best_response", response_periods: int = 15,
+          near: float = 0.1, workers: int | None = None, progress: bool | None = None, cell: int = 0,
+          confidence: float = 0.95, limit_periods: int = LIMIT_PERIODS, start: SavedLearners | None = None,
+          keep: bool = False, event: Event | None = None, timing: str = "simultaneous", demand_noise: str = "lognormal",
+          demand_sigma: float = 0.0) -> LearningResult:
     """Run independent learning sessions and analyse what the learners converged to.
 
     Parameters
@@ -178,14 +177,11 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     run = _validate_run(sessions=sessions, seed=seed, convergence=convergence, max_periods=max_periods,
                         deviator=deviator, response_periods=response_periods, near=near, workers=workers,
                         cell=cell, confidence=confidence, limit_periods=limit_periods, timing=timing)
-    n_workers = run["workers"] or usable_cores()
-    n_workers = min(n_workers, run["sessions"])
+    n_workers = min(run["workers"] or usable_cores(), run["sessions"])
     lineup = compile_lineup(market, learners, workers=n_workers, random_automata="estimate")
-    if run["deviator"] >= lineup.n_seats:
-        raise InputError("deviator", f"must be a firm of the market (0 to {lineup.n_seats - 1}), got {run['deviator']}")
     dev_index = _deviation_index(lineup, run["deviator"], deviation)
-    settings = {**run, "workers": n_workers, "deviation": deviation}
-    settings.update(_shock_settings(demand_noise, demand_sigma, settings["timing"], event))
+    settings = {**run, "workers": n_workers, "deviation": deviation,
+                **_shock_settings(demand_noise, demand_sigma, run["timing"], event)}
     if settings.pop("timing") == "alternating":
         # the key is written only where it changes the protocol: simultaneous results stay as they were
         check_alternating(lineup, start, keep, event)
@@ -230,7 +226,10 @@ def _check_kept_memory(lineup: Lineup, sessions: int) -> None:
 
 
 def _deviation_index(lineup: Lineup, seat: int, deviation) -> int:
-    """The forced action's index: -1 for the best response, else the grid point nearest the number."""
+    """The forced action's index: -1 for the best response, else the grid point nearest the number (the deviating
+    seat checked first)."""
+    if seat >= lineup.n_seats:
+        raise InputError("deviator", f"must be a firm of the market (0 to {lineup.n_seats - 1}), got {seat}")
     if isinstance(deviation, str):
         if deviation != "best_response":
             raise InputError("deviation", f"must be 'best_response' or a number, got {deviation!r}")

@@ -53,10 +53,12 @@ __all__ = [
     "CellContext",
     "CellResult",
     "Kind",
+    "PartAssumption",
     "get_kind",
     "known_kinds",
     "load_plugins",
     "register_kind",
+    "stated_assumptions",
 ]
 
 #: kind name -> "module:attribute" of its :class:`Kind`, imported on first use. Other components
@@ -127,6 +129,48 @@ class CellResult:
     metrics: dict
     arrays: dict = field(default_factory=dict)
     result: Any = None
+
+
+class PartAssumption(str):
+    """An assumption of one part of an analysis (a trigger-price equilibrium, the any-punishment threshold, ...): a
+    text like any other assumption, stated only in the report of a run that computed the part.
+
+    Parameters
+    ----------
+    text : str
+        The assumption.
+    metrics : str
+        The start of the names of the part's metrics: a run computed the part when one of its metrics starts so.
+    """
+
+    metrics: str
+
+    def __new__(cls, text: str, metrics: str):
+        obj = super().__new__(cls, text)
+        obj.metrics = metrics
+        return obj
+
+    def __getnewargs__(self):  # copies and pickles (a kind sent to a worker process) keep the part
+        return str(self), self.metrics
+
+
+def stated_assumptions(assumptions, metric_names) -> list[str]:
+    """The assumptions of a run: every general one, and those of the parts it computed (:class:`PartAssumption`).
+
+    Parameters
+    ----------
+    assumptions : sequence of str
+        A kind's assumptions.
+    metric_names : iterable of str
+        The metrics the run's cells report.
+
+    Returns
+    -------
+    list of str
+    """
+    names = list(metric_names)
+    return [str(a) for a in assumptions
+            if not isinstance(a, PartAssumption) or any(m.startswith(a.metrics) for m in names)]
 
 
 @dataclass(frozen=True)

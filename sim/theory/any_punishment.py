@@ -34,7 +34,7 @@ from ..core.records import Record
 from . import _polygon as pg
 from .discretize import _key_levels, discretize, estimate_game_bytes
 from .payoff_sets import default_directions, equilibrium_payoffs, estimate_work
-from .practice import PenalCode, lowest_threshold, named_thresholds, penal_codes, symmetric_slice
+from .practice import PenalCode, lowest_threshold, named_thresholds, penal_codes, sustainable_frontier, symmetric_slice
 from .refinement import GridRefinement, grid_refinement
 
 __all__ = [
@@ -259,6 +259,18 @@ class AnyPunishmentResult(Record):
     refinement : GridRefinement or None
         The answers recomputed on the grids of ``refine`` (:func:`sim.theory.refinement.grid_refinement`) at
         ``delta``; None when no refinement was asked for or no discount factor below one sustains the agreement.
+    best_joint : ndarray of shape (2,)
+        The frontier of sustainable profits at ``delta`` (:func:`sim.theory.practice.sustainable_frontier`): the
+        best joint profit per period of an equilibrium lies in ``[best_joint[0], best_joint[1]]``, the highest
+        sum over firms on the inner set (attained by a constructed equilibrium) and on the outer set (no
+        equilibrium does better). nan when no set was computed.
+    best_profits : ndarray of shape (n_firms, 2)
+        Each firm's best equilibrium payoff at ``delta``, bracketed the same way (row ``i``: inner, outer); the
+        most profitable asymmetric outcomes. Shape (0, 2) in a result stored before the frontier was kept.
+    best_equal : ndarray of shape (2,)
+        The most profitable symmetric outcome at ``delta``: the largest ``t`` with ``(t, ..., t)`` in the inner set
+        and in the outer set (for three firms or more, the upper ends of ``symmetric``). nan when no set was
+        computed or a set misses the diagonal.
     """
 
     grid: list
@@ -291,6 +303,9 @@ class AnyPunishmentResult(Record):
     evaluations: list = field(default_factory=list)
     symmetric: np.ndarray = field(default_factory=lambda: np.full(4, np.nan))
     refinement: GridRefinement | None = None
+    best_joint: np.ndarray = field(default_factory=lambda: np.full(2, np.nan))
+    best_profits: np.ndarray = field(default_factory=lambda: np.zeros((0, 2)))
+    best_equal: np.ndarray = field(default_factory=lambda: np.full(2, np.nan))
 
     @property
     def n_firms(self) -> int:
@@ -339,6 +354,15 @@ def _slice(res, n: int) -> np.ndarray:
     return np.array([lo_out, lo_in, hi_in, hi_out], dtype=float)
 
 
+def _frontier(res) -> dict:
+    """The best joint profit and each firm's best payoff at the set's discount factor, each ``(inner, outer)``: an
+    inner vertex is an equilibrium payoff, and every equilibrium payoff lies in the outer set (Judd, Yeltekin and
+    Conklin, 2003), so the best value lies between the two maxima."""
+    f = sustainable_frontier(res)
+    return {"best_joint": np.asarray(f.joint, float), "best_profits": np.asarray(f.per_firm_best, float),
+            "best_equal": np.asarray(f.symmetric, float)}
+
+
 def _verdict(profits, gains, worst_low, worst_high, delta: float, inner_empty: bool, outer_empty: bool) -> str:
     """Whether the agreement is an equilibrium outcome at ``delta`` (Abreu, 1988: deviations met by the worst
     equilibrium payoff)."""
@@ -384,7 +408,8 @@ def any_punishment_analysis(market, spec: AnyPunishmentSpec, agreement: str = "j
     empty = np.zeros((0, 2))
     sets = {"verdict": "", "status": "", "accuracy": math.nan, "worst_low": np.full(n, np.nan),
             "worst_high": np.full(n, np.nan), "outer": empty, "inner": empty, "penal_codes": [],
-            "symmetric": np.full(4, np.nan)}
+            "symmetric": np.full(4, np.nan), "best_joint": np.full(2, np.nan), "best_profits": np.full((n, 2), np.nan),
+            "best_equal": np.full(2, np.nan)}
     if math.isfinite(delta):
         res = equilibrium_payoffs(game, delta, method=spec.method, directions=dirs)
         verdict = _verdict(t.profits, gains, res.worst_outer, res.worst_inner, delta,
@@ -399,7 +424,8 @@ def any_punishment_analysis(market, spec: AnyPunishmentSpec, agreement: str = "j
                 "status": res.status, "accuracy": float(res.accuracy), "worst_low": res.worst_outer,
                 "worst_high": res.worst_inner, "outer": _projected_hull(res.outer_vertices),
                 "inner": _projected_hull(res.inner_vertices),
-                "penal_codes": penal_codes(res, game, PENAL_PERIODS), "symmetric": _slice(res, n)}
+                "penal_codes": penal_codes(res, game, PENAL_PERIODS), "symmetric": _slice(res, n),
+                **_frontier(res)}
     refinement = None
     if spec.refine and math.isfinite(delta):
         refinement = grid_refinement(market, delta, n_actions=spec.refine, agreement=agreement, actions=actions,

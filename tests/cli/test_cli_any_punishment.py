@@ -6,6 +6,7 @@ from __future__ import annotations
 import json
 import tomllib
 
+import numpy as np
 import pytest
 
 from sim.cli import main
@@ -182,3 +183,49 @@ def test_the_refinement_table_is_printed_stored_and_drawn_as_in_the_bundle(tmp_p
     assert row["any_punishment.refine.actions[2]"] == 18
     command_png = (tmp_path / "plots" / "grid-refinement.png").read_bytes()
     assert command_png == (tmp_path / "run" / "report" / "figures" / "grid-refinement.png").read_bytes()
+
+
+#: the any-punishment columns of a two-firm run before the frontier was added (they stay, in this order)
+TWO_FIRM_COLUMNS = [
+    "any_punishment.grid.firm1", "any_punishment.grid.firm2", "any_punishment.directions",
+    "any_punishment.threshold.lower", "any_punishment.threshold.upper", "any_punishment.on_grid.grim",
+    "any_punishment.on_grid.stick_carrot", "any_punishment.on_grid.two_phase", "any_punishment.delta",
+    "any_punishment.sustained", "any_punishment.accuracy", "any_punishment.worst.lower.firm1",
+    "any_punishment.worst.lower.firm2", "any_punishment.worst.upper.firm1", "any_punishment.worst.upper.firm2",
+]
+FRONTIER_COLUMNS = [
+    "any_punishment.best_joint.lower", "any_punishment.best_joint.upper", "any_punishment.best_profit.lower.firm1",
+    "any_punishment.best_profit.lower.firm2", "any_punishment.best_profit.upper.firm1",
+    "any_punishment.best_profit.upper.firm2", "any_punishment.best_equal_profit.lower",
+    "any_punishment.best_equal_profit.upper",
+]
+
+
+def test_the_frontier_is_printed_stored_and_catalogued(tmp_path, capsys):
+    """The best joint profit and each firm's best payoff at the reported delta: a console line, the --json
+    document, results columns after the existing ones (which stay), each with a catalogue entry."""
+    from sim.evidence.catalogue import describe
+
+    f = tmp_path / "two-kilns.toml"
+    f.write_text(TEXT)
+    assert main(["thresholds", str(f)]) == 0
+    printed = capsys.readouterr().out
+    assert "best sustainable profits per period (constructed equilibrium to outer bound): joint" in printed
+    assert main(["thresholds", str(f), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert main(["run", str(f), "--out", str(tmp_path / "run"), "--quiet"]) == 0
+    capsys.readouterr()
+    with open_run(tmp_path / "run") as rf:
+        ap = rf.result(0).any_punishment
+        assert renderer_for("thresholds").console(rf.result(0)) == printed.rstrip("\n")
+        row = rf.rows()[0].metrics
+    part = doc["any_punishment"]
+    assert part["best_joint"] == pytest.approx(list(ap.best_joint))
+    assert np.allclose(part["best_profits"], ap.best_profits, rtol=1e-12, atol=0)
+    stored = [*ap.best_joint, *ap.best_profits.T.ravel(), *ap.best_equal]
+    assert [row[m] for m in FRONTIER_COLUMNS] == pytest.approx(stored)
+    names = [m for m in KIND.metric_names(KIND.prepare(tomllib.loads(TEXT))) if m.startswith("any_punishment.")]
+    assert names[:len(TWO_FIRM_COLUMNS)] == TWO_FIRM_COLUMNS
+    assert names[len(TWO_FIRM_COLUMNS):len(TWO_FIRM_COLUMNS) + len(FRONTIER_COLUMNS)] == FRONTIER_COLUMNS
+    for m in FRONTIER_COLUMNS:
+        assert "best" in describe(m).label

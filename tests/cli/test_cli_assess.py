@@ -544,7 +544,9 @@ def test_the_bundle_is_read_from_the_stored_cell(tmp_path, capsys):
         "name", "currency", "period")} == stored
     md = first["summary.md"].decode()
     assert md.count("## Reproducing these numbers") == 1 and "`supergame report RUN_DIR` this bundle again" in md
-    assert md.index("Caution: ") < md.index("## Conclusion under the stated assumptions")
+    # the caution once on the first page (before the conclusion) and once at the close
+    assert md.index("**Caution.**") < md.index("## Conclusion under the stated assumptions")
+    assert md.count("**Caution.**") == 2 and "Caution: " not in md
 
     assert _run(["report", str(run_dir)], capsys)[0] == 0
     assert _files(run_dir / "report") == first

@@ -206,6 +206,68 @@ def test_the_symmetric_slice_holds_static_nash_and_at_most_the_monopoly_share(th
 
 
 # --------------------------------------------------------------------------------------------------
+# The frontier of sustainable profits at the reported discount factor
+# --------------------------------------------------------------------------------------------------
+
+
+def test_the_frontier_round_trips_and_an_older_result_reads_back_empty(shipped, three_firms):
+    for *_, ap in (shipped, three_firms):
+        back = _round_trip(AnyPunishmentResult, ap)
+        np.testing.assert_array_equal(back.best_joint, ap.best_joint)
+        np.testing.assert_array_equal(back.best_profits, ap.best_profits)
+        assert ap.best_profits.shape == (ap.n_firms, 2) and np.all(np.isfinite(ap.best_profits))
+    old = {k: v for k, v in ap.to_dict().items() if k not in ("best_joint", "best_profits", "best_equal")}
+    back = AnyPunishmentResult.from_dict(old)
+    assert np.all(np.isnan(back.best_joint)) and back.best_profits.shape == (0, 2)
+    assert np.all(np.isnan(back.best_equal))
+
+
+def test_the_frontier_brackets_hold_the_agreement_and_stay_feasible(shipped, three_firms):
+    """Checks from outside the set algorithm. Every equilibrium payoff is a discounted average of stage payoffs,
+    so no equilibrium's joint profit exceeds the largest joint stage profit on the grid, nor a firm's payoff its
+    largest stage profit, and no firm's best equilibrium payoff falls below its minmax (Fudenberg and Tirole,
+    1991, Game Theory, chapter 5: feasible and individually rational payoffs). Where the agreement is sustained,
+    its profits are an equilibrium payoff, so the outer bounds are at least its joint and per-firm profits (Abreu,
+    1988, Econometrica 56(2)). The two ends of a bracket are at most the sets' accuracy apart in each firm's
+    direction, and at most sqrt(n) times it for the joint profit (a Hausdorff distance d moves the support value
+    in a unit direction by at most d; the joint profit is sqrt(n) times the support value in the unit diagonal).
+    With three firms, the best equal profit of a constructed equilibrium (the symmetric slice) times three is a
+    joint profit of the inner set, and the best equal profit is the symmetric slice's upper end; for any number of
+    firms, n times the best equal profit is a joint profit, so at most the best. Tolerance: 1e-7 of the payoff
+    scale (rounding of the sets)."""
+    market3, spec3, ap3 = three_firms
+    for market, agreement, spec, ap in (shipped[1:], (market3, "joint", spec3, ap3)):
+        game = discretize(market, list(spec.grid), agreement=agreement)
+        G = game.flat_payoffs
+        tol = 1e-7 * game.scale
+        (j_lo, j_hi), best = ap.best_joint, ap.best_profits
+        assert j_lo <= j_hi + tol and j_hi <= G.sum(axis=1).max() + tol
+        assert j_hi - j_lo <= np.sqrt(ap.n_firms) * ap.accuracy + tol
+        assert np.all(best[:, 0] <= best[:, 1] + tol) and np.all(best[:, 1] - best[:, 0] <= ap.accuracy + tol)
+        assert np.all(best[:, 1] <= G.max(axis=0) + tol) and np.all(best[:, 1] >= game.minmax - tol)
+        if ap.verdict == "sustained":
+            assert j_hi >= ap.profits.sum() - tol and np.all(best[:, 1] >= ap.profits - tol)
+        if ap.n_firms >= 3 and np.isfinite(ap.symmetric[2]):
+            assert ap.n_firms * ap.symmetric[2] <= j_lo + tol
+            np.testing.assert_allclose(ap.best_equal, ap.symmetric[2:], rtol=0, atol=tol)
+        e_lo, e_hi = ap.best_equal
+        assert e_lo <= e_hi + tol and ap.n_firms * e_lo <= j_lo + tol and ap.n_firms * e_hi <= j_hi + tol
+
+
+def test_the_best_joint_profit_is_at_most_the_monopoly_profit(three_firms):
+    """No feasible payoff gives the industry more than the monopoly profit (a - c)^2 / (4 b) of the linear market
+    with a common unit cost (Tirole, 1988, The Theory of Industrial Organization, chapter 1, from memory), and the
+    joint-profit agreement on a grid that holds the monopoly output reaches it where it is sustained (Abreu,
+    1988). Tolerance: 1e-7 of the payoff scale."""
+    market, spec, ap = three_firms
+    monopoly = (A3 - C3) ** 2 / (4 * B3)
+    tol = 1e-7 * float(np.abs(discretize(market, list(spec.grid)).flat_payoffs).max())
+    assert ap.best_joint[1] <= monopoly + tol
+    if ap.verdict == "sustained":
+        assert ap.best_joint[1] >= monopoly - tol
+
+
+# --------------------------------------------------------------------------------------------------
 # The refinement table ([any_punishment] refine)
 # --------------------------------------------------------------------------------------------------
 

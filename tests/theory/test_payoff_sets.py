@@ -18,8 +18,10 @@ from sim.theory.practice import convex_weights, penal_codes
 # Prisoner's dilemma with (T, R, P, S) = (10, 9, 3, 1)
 PD = [[[9, 9], [1, 10]], [[10, 1], [3, 3]]]
 # The three-by-three example of Abreu and Sannikov (2014, "An algorithm for two-player repeated games
-# with perfect monitoring", Theoretical Economics 9) -- payoffs from memory; the same matrix is the
-# example game of public implementations of their algorithm.
+# with perfect monitoring", Theoretical Economics 9). The matrix, and the six vertices of its set at
+# delta = 0.3 below, are read from the test file of QuantEcon.py's repeated-game module
+# (quantecon/game_theory/tests/test_repeated_game.py, "Example from Abreu and Sannikov (2014)"), printed
+# there to nine significant digits.
 AS_GAME = [[[16, 9], [3, 13], [0, 3]], [[21, 1], [10, 4], [-1, 0]], [[9, 0], [5, -4], [-5, -15]]]
 
 
@@ -98,15 +100,34 @@ def test_prisoners_dilemma_closed_form(delta, expected, status):
 # --------------------------------------------------------------------------------------------------
 
 
+# The six vertices of the example's set at delta = 0.3 (QuantEcon.py's test file, see AS_GAME; its values
+# 4.44089210e-16, one rounding unit of 2, are read as 0)
+AS_VERTICES = [[7.33770472, 10.9826253], [1.12568240, 2.8], [7.33770472, 0.0], [7.86308964, 0.0],
+               [19.7917977, 2.8], [15.5630896, 9.1]]
+# QuantEcon.py's test file also lists the prisoner's dilemma PD at delta = 0.9 (the same four vertices as PD_FULL)
+PD_VERTICES_09 = [[3.0, 3.0], [9.75, 3.0], [9.0, 9.0], [3.0, 9.75]]
+
+
+@pytest.mark.parametrize("payoffs, delta, published", [(AS_GAME, 0.3, AS_VERTICES), (PD, 0.9, PD_VERTICES_09)])
+def test_published_vertices(payoffs, delta, published):
+    """Every published vertex is a vertex of ours and ours are no more (Hausdorff distance between the two
+    vertex lists; a list may repeat a vertex to rounding). Tolerance 1e-7: the published values carry nine
+    significant digits, so each is within 5e-8 of the exact vertex for payoffs below 20; our sets stop at
+    1e-10 of the payoff scale."""
+    r = equilibrium_payoffs(game_from_payoffs(payoffs), delta, tol=1e-10)
+    for which in (r.outer_vertices, r.inner_vertices):
+        assert hausdorff_distance(which, published) < 1e-7
+
+
 def test_abreu_sannikov_example():
-    """At delta = 0.3 the example's set has the vertices (7.3377, 10.9826) and (1.1257, 2.8) among
-    its six (values from memory of the published output of the example; the whole set is compared
-    with QuantEcon below). Its punishments sustain each other, so the inner set comes from the outer
-    sequence's fixed point."""
+    """The worst payoffs of the example at delta 0.3 are the smallest coordinates among the published vertices
+    (1.1256824 for the row firm, 0 for the column firm; QuantEcon.py's test file, see AS_GAME), and they are
+    the optimal penal codes' values (Abreu, 1988). Its punishments sustain each other, so the inner set comes
+    from the outer sequence's fixed point."""
     r = equilibrium_payoffs(game_from_payoffs(AS_GAME), 0.3, tol=1e-10)
-    assert r.outer_vertices.shape[0] == 6
-    for v in ([7.33770472, 10.9826253], [1.12568240, 2.8]):
-        assert np.min(np.linalg.norm(r.outer_vertices - v, axis=1)) < 1e-7
+    published = np.array(AS_VERTICES)
+    assert np.allclose(r.worst_outer, published.min(axis=0), atol=1e-7)
+    assert np.allclose(r.worst_inner, published.min(axis=0), atol=1e-7)
     assert r.inner_certificate == "fixed point to rounding" and r.accuracy < 1e-8
 
 

@@ -11,6 +11,7 @@ import numpy as np
 from sim.core.errors import InputError
 from sim.core.params import Options
 from sim.core.tables import refuse_unknown
+from sim.core.text import plain_values
 from sim.core.values import canonical_json
 from sim.simulation.engine import stage_levels
 
@@ -40,9 +41,9 @@ def describe_market(table: dict) -> str:
     demand = t.pop("demand", "linear")
     cost = t.pop("cost", None)
     n = t.pop("n_firms", None)
-    params = ", ".join(f"{k} {v}" for k, v in t.items())
+    params = ", ".join(f"{k} {plain_values(v, brackets=True)}" for k, v in t.items())
     firms = f", {n} firms" if n is not None else (f", {len(cost)} firms" if isinstance(cost, list) else "")
-    return f"{model} competition, {demand} demand ({params}), marginal cost {cost}{firms}"
+    return f"{model} competition, {demand} demand ({params}), marginal cost {plain_values(cost, brackets=True)}{firms}"
 
 
 def put_estimate(out: dict, name: str, e) -> None:

@@ -25,6 +25,7 @@ from sim.core.errors import InputError
 from sim.core.parallel import usable_cores
 from sim.core.params import Integer, Real
 from sim.core.tables import refuse_unknown
+from sim.core.text import plain_number
 from sim.core.values import value_label
 from sim.models.stagecore import market_owner
 from sim.runner.analyses.common import (
@@ -45,7 +46,7 @@ from sim.runner.analyses.simulate_states import (
     wants_contingent,
 )
 from sim.runner.cost import Cost
-from sim.runner.kinds import CellContext, CellResult, Kind
+from sim.runner.kinds import CellContext, CellResult, Kind, PartAssumption
 from sim.simulation.analysis import SimulateResult, simulate_analysis
 from sim.simulation.baseline import scheme_of
 from sim.simulation.enforced import enforcement_limits, is_deterministic
@@ -514,10 +515,11 @@ def _describe_simulate(doc: dict) -> list[str]:
     lines = [f"Market: {describe_market(doc.get('market', {}))}",
              f"Agreement: {coll.get('agreement', 'given' if 'actions' in coll else 'joint')}",
              f"Line-up (seat order): {seats}",
-             f"Monitoring: signal {mon['signal']}, {mon['noise']} demand shock sigma {mon['sigma']}, perception error "
-             f"{mon['perception_error']}, implementation error {mon['implementation_error']}",
+             f"Monitoring: signal {mon['signal']}, {mon['noise']} demand shock sigma {plain_number(mon['sigma'])}, "
+             f"perception error {plain_number(mon['perception_error'])}, implementation error "
+             f"{plain_number(mon['implementation_error'])}",
              f"Run: {run['periods']} periods ({run['horizon']} horizon), {run['replications']} replications, delta "
-             f"{run['delta']}, seed {run['seed']}"]
+             f"{plain_number(run['delta'])}, seed {run['seed']}"]
     if "deviation" in doc:
         d = doc["deviation"]
         who = d.get("firm", "binding")
@@ -638,8 +640,8 @@ KIND = Kind(
         "lengths cut off by the horizon are treated as censored (Kaplan-Meier), so their means are lower bounds.",
         "Confidence intervals are normal approximations across independent replications (95 %); they measure "
         "simulation error only, not uncertainty about the model or its parameters.",
-        "The deviation check tests one unilateral deviation (a one-shot deviation then the strategy, unless another "
-        "is given): a deviation that pays shows the line-up is not an equilibrium; one that does not pay is "
-        "necessary, not sufficient, for equilibrium.",
+        PartAssumption("The deviation check tests one unilateral deviation (a one-shot deviation then the strategy, "
+                       "unless another is given): a deviation that pays shows the line-up is not an equilibrium; one "
+                       "that does not pay is necessary, not sufficient, for equilibrium.", "deviation."),
     ),
 )

@@ -3,6 +3,8 @@ experiment kind (see :mod:`sim.runner.kinds`)."""
 
 from __future__ import annotations
 
+import numpy as np
+
 from sim.core.errors import InputError
 from sim.core.params import Integer, Real
 from sim.core.tables import refuse_unknown
@@ -17,7 +19,7 @@ from sim.runner.analyses.thresholds_parts import (
     prepare_parts,
 )
 from sim.runner.cost import Cost
-from sim.runner.kinds import CellContext, CellResult, Kind
+from sim.runner.kinds import CellContext, CellResult, Kind, PartAssumption
 from sim.theory.analysis import ThresholdsResult, ThresholdsSpec, thresholds_analysis
 from sim.theory.any_punishment import TABLE_KEYS as _AP_KEYS
 from sim.theory.any_punishment import check_any_punishment, estimate_any_punishment
@@ -128,6 +130,10 @@ def _any_punishment_names(n: int) -> list[str]:
     out += [f"any_punishment.worst.upper.firm{i + 1}" for i in range(n)]
     if n >= 3:  # the symmetric slice (two firms: the set is drawn whole, and their columns stay as they were)
         out += [f"any_punishment.symmetric_slice.{e}" for e in _SLICE_ENDS]
+    out += ["any_punishment.best_joint.lower", "any_punishment.best_joint.upper"]
+    out += [f"any_punishment.best_profit.{end}.firm{i + 1}" for end in ("lower", "upper") for i in range(n)]
+    if n == 2:  # three firms or more: the upper ends of the symmetric slice
+        out += ["any_punishment.best_equal_profit.lower", "any_punishment.best_equal_profit.upper"]
     return out
 
 
@@ -161,7 +167,24 @@ def _any_punishment_metrics(ap, n: int) -> dict:
         m[f"any_punishment.worst.upper.firm{i + 1}"] = float(ap.worst_high[i])
     if n >= 3:
         m.update({f"any_punishment.symmetric_slice.{e}": float(v) for e, v in zip(_SLICE_ENDS, ap.symmetric)})
+    m.update(_frontier_metrics(ap, n))
     m.update(_refinement_metrics(ap))
+    return m
+
+
+def _frontier_metrics(ap, n: int) -> dict:
+    """The best joint profit and each firm's best payoff at the set's discount factor (lower end: inner set, upper
+    end: outer set); nan for a result stored before they were kept."""
+    joint = np.asarray(ap.best_joint, float).reshape(-1)
+    best = np.asarray(ap.best_profits, float).reshape(-1, 2)
+    if best.shape[0] != n:
+        best = np.full((n, 2), np.nan)
+    m = {"any_punishment.best_joint.lower": float(joint[0]), "any_punishment.best_joint.upper": float(joint[1])}
+    for j, end in enumerate(("lower", "upper")):
+        m.update({f"any_punishment.best_profit.{end}.firm{i + 1}": float(best[i, j]) for i in range(n)})
+    if n == 2:
+        equal = np.asarray(ap.best_equal, float).reshape(-1)
+        m["any_punishment.best_equal_profit.lower"], m["any_punishment.best_equal_profit.upper"] = map(float, equal)
     return m
 
 
@@ -277,13 +300,17 @@ KIND = Kind(
         "static Nash reversion (forever or for T periods) or the optimal symmetric two-phase punishment (Abreu, "
         "1986); they are the lowest discount factors at which the agreement is a subgame-perfect equilibrium of "
         "the repeated game, not predictions that collusion occurs.",
-        "Partial collusion is searched along the straight path from the static Nash actions to the agreement.",
-        "The trigger-price equilibrium (Green and Porter, 1984) assumes a symmetric homogeneous-good Cournot market "
-        "with an i.i.d. multiplicative demand shock and a public price signal.",
-        "The any-punishment threshold (an [any_punishment] table) is computed on a finite action grid with pure "
-        "strategies, perfect monitoring and public randomisation: the lowest discount factor at which the agreement "
-        "is a subgame-perfect equilibrium outcome when deviations meet the deviator's worst equilibrium payoff "
-        "(Abreu, 1988), bracketed between inner and outer equilibrium payoff sets (Abreu, Pearce and Stacchetti, "
-        "1990; Judd, Yeltekin and Conklin, 2003; Abreu and Sannikov, 2014).",
+        PartAssumption("Partial collusion is searched along the straight path from the static Nash actions to the "
+                       "agreement.", "partial_gain."),
+        PartAssumption("The trigger-price equilibrium (Green and Porter, 1984) assumes a symmetric homogeneous-good "
+                       "Cournot market with an i.i.d. multiplicative demand shock and a public price signal.",
+                       "trigger_price."),
+        PartAssumption(
+            "The any-punishment threshold (an [any_punishment] table) is computed on a finite action grid with pure "
+            "strategies, perfect monitoring and public randomisation: the lowest discount factor at which the "
+            "agreement is a subgame-perfect equilibrium outcome when deviations meet the deviator's worst "
+            "equilibrium payoff (Abreu, 1988), bracketed between inner and outer equilibrium payoff sets (Abreu, "
+            "Pearce and Stacchetti, 1990; Judd, Yeltekin and Conklin, 2003; Abreu and Sannikov, 2014).",
+            "any_punishment."),
     ),
 )
