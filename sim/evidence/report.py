@@ -550,8 +550,9 @@ def _sweep_table(b, exp, rows, heads, units) -> None:
         hdr.append(metric_column(m, units) + (" and 95 % interval" if ci else ""))
         csv_hdr += [m, f"{m}.low", f"{m}.high"] if ci else [m]
     for r in rows:
+        # the page shows a swept value as the experiment file writes it ("0.5", not "0.5000"); the CSV keeps numbers
         labels = [r.labels[p.path] if not p.numeric else r.params[p.path] for p in exp.parameters]
-        d, c = [r.number, *labels], [r.number, *labels]
+        d, c = [r.number, *[r.labels[p.path] for p in exp.parameters]], [r.number, *labels]
         for m in heads:
             v = r.metrics.get(m, math.nan)
             c.append(v)

@@ -82,6 +82,10 @@ def test_whole_numbers_show_without_decimals(market_run, simulation_run):
     col = next(j for j, h in enumerate(heads) if h.startswith("deviation pays"))
     cells = [re.findall(r"<td[^>]*>(.*?)</td>", row)[col] for row in re.findall(r"<tr>(.*?)</tr>", table)[1:]]
     assert len(cells) == 4 * 2 * 3 and set(cells) == {"0", "1"}, cells
+    # the swept values as the experiment file writes them, not padded to four decimals
+    col = next(j for j, h in enumerate(heads) if h.startswith("discount factor delta"))
+    deltas = [re.findall(r"<td[^>]*>(.*?)</td>", row)[col] for row in re.findall(r"<tr>(.*?)</tr>", table)[1:]]
+    assert deltas and all(re.fullmatch(r"0\.\d\d?", d) for d in deltas), deltas
 
 
 def test_only_the_assumptions_of_the_parts_computed_are_stated(market_run, simulation_run):
