@@ -59,10 +59,11 @@ def _thresholds(plt, d: dict) -> Drawn:
     ax.axhline(delta, color="k", lw=1, ls="--", label=f"discount factor {delta:.3g}")
     ax.set_xticks(x, [s["scheme"] for s in sch], rotation=35, ha="right", rotation_mode="anchor")
     ax.set_ylim(0, 1.12)
+    ax.set_xlabel("punishment scheme")
     ax.set_ylabel("critical discount factor (market)")
     return _drawn(fig, ax, "thresholds",
                   "Critical discount factors before and after the merger ('none': not sustainable below one)",
-                  "market")
+                  "market before or after the merger, and the experiment's discount factor")
 
 
 def _partial(plt, d: dict) -> Drawn:
@@ -108,7 +109,7 @@ def _persistence(plt, d: dict) -> Drawn:
     ax.set_ylabel("share of replications colluding")
     ax.set_ylim(-0.02, 1.02)
     drawn = _drawn(fig, ax, "persistence", "Simulated persistence of collusion under the experiment's monitoring "
-                                           "noise", "market")
+                                           "noise", "market before or after the merger")
     caption = drawn.caption + (f"; band: {SHARE_BAND_WORDS.format(n=banded[0])}" if banded else
                                "; no band: the horizon is random, so the replications behind each period vary")
     return Drawn(drawn.name, drawn.figure, caption)
@@ -195,7 +196,7 @@ def _along_noise(plt, s: dict) -> Drawn:
     ax.set_ylabel("share of collusive periods")
     ax.set_ylim(-0.02, 1.02)
     return _drawn(fig, ax, "sensitivity_noise", "Simulated persistence against monitoring noise (95% confidence bands)",
-                  "market")
+                  "market before or after the merger")
 
 
 def _cell_edges(xs: np.ndarray, log: bool) -> np.ndarray:
