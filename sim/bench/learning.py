@@ -14,6 +14,7 @@ import time
 
 import numpy as np
 
+from sim.bench.engine import best_time
 from sim.bench.learning_alternating import alternating_benchmark
 from sim.learning.lineup import compile_lineup
 from sim.learning.session import kernel_session, reference_session
@@ -143,12 +144,8 @@ def bandit_benchmark(family: str, *, reference_periods: int = 50_000, kernel_per
     never = 2**62
     kernel_session(lineup, seed=seed, convergence=never, max_periods=1000)  # compile outside the timings
     reps = max(1, kernel_periods // reference_periods)
-    t_ker = math.inf
-    for _ in range(max(1, repeat)):
-        t0 = time.perf_counter()
-        for j in range(reps):
-            kernel_session(lineup, j, seed=seed, convergence=never, max_periods=reference_periods)
-        t_ker = min(t_ker, time.perf_counter() - t0)
+    t_ker = best_time(lambda: [kernel_session(lineup, j, seed=seed, convergence=never, max_periods=reference_periods)
+                               for j in range(reps)], repeat)
     t0 = time.perf_counter()
     ref = reference_session(lineup, seed=seed, convergence=never, max_periods=reference_periods)
     t_ref = time.perf_counter() - t0

@@ -3,11 +3,11 @@ against its plain-Python twin and against the simultaneous Q-learning kernel, me
 
 from __future__ import annotations
 
-import math
 import time
 
 import numpy as np
 
+from sim.bench.engine import best_time
 from sim.core.rng import stream_states
 from sim.learning.alternating import run_alternating
 from sim.learning.alternating_twin import reference_alternating
@@ -55,12 +55,7 @@ def alternating_benchmark(*, reference_periods: int = 100_000, kernel_periods: i
     lineup = compile_lineup(market, QLearner(m=15))
     _kernel_run(lineup, 0, seed, 1000)  # compile (or load) outside the timings
     reps = max(1, kernel_periods // reference_periods)
-    t_ker = math.inf
-    for _ in range(max(1, repeat)):
-        t0 = time.perf_counter()
-        for j in range(reps):
-            _kernel_run(lineup, j, seed, reference_periods)
-        t_ker = min(t_ker, time.perf_counter() - t0)
+    t_ker = best_time(lambda: [_kernel_run(lineup, j, seed, reference_periods) for j in range(reps)], repeat)
     t0 = time.perf_counter()
     ref = reference_alternating(lineup, stream_states(seed, (0,), 0, 1)[0], _NEVER, reference_periods)
     t_ref = time.perf_counter() - t0
