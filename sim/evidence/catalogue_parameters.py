@@ -35,7 +35,8 @@ PARAMETER_ROWS: dict[str, tuple] = {
                         "given; the rules of Asker, Fershtman and Pakes (2022, AEA Papers and Proceedings 112)"),
     "learning.family": ("learner family", "",
                         "How a learner chooses its price: Q-learning, an upper-confidence-bound bandit or a "
-                        "Thompson-sampling bandit over the price grid.",
+                        "Thompson-sampling bandit over the price grid, or a fixed policy (the greedy prices of a "
+                        "saved learner, played without learning or exploring).",
                         "given; UCB1 (Auer, Cesa-Bianchi and Fischer, 2002, Machine Learning 47), Thompson "
                         "sampling with a normal prior (Agrawal and Goyal, 2013)"),
     "learning.noise": ("noise on the observed profit", "currency units per period",

@@ -52,7 +52,7 @@ RUN_CONSTRAINTS = {
 }
 #: parameters of a Q-learner in [learning] and in a ``strategy = "qlearning"`` entry
 LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init", "update", "counterfactual_share", "family",
-                  "exploration", "noise")
+                  "exploration", "noise", "policy_from", "firm", "session")
 #: keys of the tables a learning experiment reads, in the order error messages list them
 LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "near", "limit_periods", "save_to", "continue_from",
                  "timing", "demand_noise", "demand_sigma")

@@ -148,7 +148,8 @@ class _Setup:
         self.k = [c.k if c is not None else 0 for c in lineup.learners]
         self.K = int(stage.K)  # at least 1: the kernel keeps the last profile even when every learner is a bandit
         self.family = [c.family if c is not None else None for c in lineup.learners]
-        self.bandit = [f is not None and f != "q" for f in self.family]
+        self.bandit = [f is not None and f not in ("q", "fixed") for f in self.family]
+        self.fixed = [f == "fixed" for f in self.family]
         self.explore = [float(x) for x in seats.explore]
         self.noise = [float(x) for x in seats.noise]
         self.reward_lo = [float(x) for x in seats.reward_lo]
@@ -210,7 +211,9 @@ def _choose(st, Q, history, z, t, rng, arms):
     plays its state's action."""
     profile = []
     for i in range(st.n):
-        if st.bandit[i]:
+        if st.fixed[i]:
+            profile.append(_argmax(Q[i][tuple(history[: st.k[i]])]))
+        elif st.bandit[i]:
             profile.append(twin_choice(st.family[i], st.explore[i], *arms[i], rng))
         elif st.learner[i]:
             epsilon = math.exp(-st.beta[i] * t)
@@ -231,6 +234,8 @@ def _update(st, Q, states, history, profile, rng, arms, theta=1.0):
     profits = [theta * x for x in st.profits(profile)]
     changed = False
     for i in Q:
+        if st.fixed[i]:
+            continue
         row = Q[i][states[i]]
         before = _argmax(row)
         if st.bandit[i]:
