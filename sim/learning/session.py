@@ -80,6 +80,7 @@ from sim.learning.events import Event, adapt_saved, check_event, run_tracked
 from sim.learning.inputs import STATUS_CONVERGED, DeviationInputs, LimitOutputs, SessionState
 from sim.learning.lineup import Lineup, available_memory, compile_lineup
 from sim.learning.merger import merged_lineup, merger_benchmarks, merger_words, refuse_merged
+from sim.learning.protocol import protocol_changes, protocol_words
 from sim.learning.results import (
     CYCLE_STORE,
     IR_POINTS,
@@ -189,7 +190,7 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     market_doc = market.to_dict() if hasattr(market, "to_dict") else None
     what = None
     if start is not None and event is not None:
-        check_event(start, lineup, event, run["sessions"])
+        check_event(start, lineup, event, run["sessions"], market=market_doc)
         what = _event_words(start, lineup, market_doc, event)
         start = adapt_saved(start, lineup, event)
         if event.kind == "merger":
@@ -207,6 +208,8 @@ def _event_words(saved: SavedLearners, lineup: Lineup, market: dict | None, even
     """The event in words: the market settings that changed, or the entrant and its strategy."""
     if event.kind == "merger":
         return merger_words(event.firms)
+    if event.kind == "protocol":
+        return protocol_words(protocol_changes(saved.header.get("seats") or [], lineup))
     if event.kind == "entry" and lineup.learners[-1] is not None:
         return f"firm {lineup.n_seats} enters, priced by a new learner"
     if event.kind == "entry":

@@ -265,7 +265,7 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
         refuse_merged(start, "learning.continue_from")
         check_start(start, lineup, market.to_dict(), settings["sessions"], "learning.continue_from")
     elif start is not None:
-        check_event(start, lineup, event, settings["sessions"], "learning.continue_from")
+        check_event(start, lineup, event, settings["sessions"], "learning.continue_from", market.to_dict())
     return {"market": market, "learner": learner, "settings": settings, "save_to": save_to, "start": start,
             "event": event, "waiting": event is not None and start is None}
 
