@@ -94,6 +94,7 @@ from sim.learning.saved import SavedLearners, check_start, describe_layout
 from sim.learning.shocks import shock_code
 from sim.learning.tables import RUN_CONSTRAINTS
 from sim.learning.twin import reference_session as _reference
+from sim.learning.twin_start import session_row
 
 __all__ = ["alternating_state", "kernel_session", "learn", "reference_session"]
 
@@ -489,7 +490,7 @@ def _run_alternating(lineup: Lineup, settings: dict, progress: bool | None) -> L
 
 def reference_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergence: int = 100_000,
                       max_periods: int = 10_000, cell: int = 0, demand_noise: str = "lognormal",
-                      demand_sigma: float = 0.0) -> dict:
+                      demand_sigma: float = 0.0, start: SavedLearners | None = None) -> dict:
     """The plain-Python twin of one session (:func:`sim.learning.twin.reference_session`), with the
     session's own random stream. Slow: for tests and benchmarks on short sessions.
 
@@ -510,6 +511,8 @@ def reference_session(lineup: Lineup, session: int = 0, *, seed: int = 0, conver
         Distribution of the demand shock (:mod:`sim.learning.shocks`).
     demand_sigma : float
         Its standard deviation (0: none).
+    start : SavedLearners, optional
+        Continue saved session ``session`` instead (its own stream; ``seed`` and ``cell`` are not used).
 
     Returns
     -------
@@ -517,12 +520,14 @@ def reference_session(lineup: Lineup, session: int = 0, *, seed: int = 0, conver
         See :func:`sim.learning.twin.reference_session`.
     """
     state = stream_states(seed, (cell,), session, session + 1)[0]
-    return _reference(lineup, state, convergence, max_periods, *shock_code(demand_noise, demand_sigma, prefix=""))
+    row = None if start is None else session_row(start, session)
+    return _reference(lineup, state, convergence, max_periods, *shock_code(demand_noise, demand_sigma, prefix=""),
+                      start=row)
 
 
 def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergence: int = 100_000,
                    max_periods: int = 10_000, cell: int = 0, demand_noise: str = "lognormal",
-                   demand_sigma: float = 0.0) -> dict:
+                   demand_sigma: float = 0.0, start: SavedLearners | None = None) -> dict:
     """One session through the kernel, returning the fields of :func:`reference_session` that the kernel keeps.
 
     Parameters
@@ -542,6 +547,9 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
         Distribution of the demand shock (:mod:`sim.learning.shocks`).
     demand_sigma : float
         Its standard deviation (0: none).
+    start : SavedLearners, optional
+        Continue saved session ``session`` instead (its own stream; ``seed`` and ``cell`` are not used), as
+        :func:`learn` does.
 
     Returns
     -------
@@ -550,9 +558,15 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
         generator state after the last period), ``triggers`` (the record of the automata's punishments,
         :data:`sim.learning.inputs.TRIGGER_FIELDS`), ``counts`` and ``sums`` (the bandits' statistics).
     """
-    rng = stream_states(seed, (cell,), session, session + 1)[0].copy()
-    st = lineup.session_state(rng)
-    s = K.initial_state(rng, lineup.seats, lineup.stage)
+    if start is None:
+        rng = stream_states(seed, (cell,), session, session + 1)[0].copy()
+        st = lineup.session_state(rng)
+        s = K.initial_state(rng, lineup.seats, lineup.stage)
+    else:
+        row = session_row(start, session)
+        rng, s = row["rng"], row["history"]
+        st = SessionState(row["Q"], row["greedy"], row["z"], rng, row["clock"], row["triggers"], row["counts"],
+                          row["sums"])
     status, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, st, s, convergence,
                                  max_periods, *shock_code(demand_noise, demand_sigma, prefix=""))
     return {"status": int(status), "periods": int(t), "state": int(s), "Q": st.Q, "greedy": st.greedy, "z": st.z,

@@ -31,6 +31,7 @@ import strategies.step as S
 from sim.core.rng import ReferenceStream
 from sim.learning.bandits import twin_choice, twin_update
 from sim.learning.shocks import twin_shock
+from sim.learning.twin_start import twin_state
 
 __all__ = ["jumped", "reference_analysis", "reference_estimate", "reference_session"]
 
@@ -282,7 +283,7 @@ def _kernel_layout(st, lineup, Q):
     return q_arr, greedy
 
 
-def reference_session(lineup, rng_state, convergence, max_periods, shock=0, sigma=0.0):
+def reference_session(lineup, rng_state, convergence, max_periods, shock=0, sigma=0.0, start=None):
     """One session, period by period.
 
     Parameters
@@ -298,6 +299,10 @@ def reference_session(lineup, rng_state, convergence, max_periods, shock=0, sigm
         The demand shock's code (:func:`sim.learning.shocks.shock_code`; 0: none).
     sigma : float
         Its standard deviation.
+    start : dict, optional
+        A saved session to continue (:func:`sim.learning.twin_start.session_row`; ``rng_state`` is then not used):
+        its history, Q-values, statistics, automaton states, record, stream and counters, as the kernel continues
+        one (``max_periods`` counts from the saved session's start).
 
     Returns
     -------
@@ -312,18 +317,24 @@ def reference_session(lineup, rng_state, convergence, max_periods, shock=0, sigm
     st = _Setup(lineup)
     # the learners' rewards: their own profits, or after a merger of their products the merged firm's profit
     st.profit_table = lineup.learning_stage.payoff.tolist()
-    rng = ReferenceStream(rng_state)
-    history = []
-    for _lag in range(st.K):
-        history.append(tuple(rng.next_below(st.m[i]) for i in range(st.n)))
-    Q = {i: st.initial_q(i) for i in range(st.n) if st.learner[i]}
-    arms = {i: ([0] * st.m[i], [0.0] * st.m[i]) for i in range(st.n) if st.bandit[i]}
-    z = [int(v) for v in lineup.z0]
-    record = {i: {"count": 0, "first": -1, "last": -1, "punishing": 0} for i in st.automata}
-    t = 0
-    stable = 0
-    status = 1
-    while t < max_periods:
+    if start is None:
+        rng = ReferenceStream(rng_state)
+        history = []
+        for _lag in range(st.K):
+            history.append(tuple(rng.next_below(st.m[i]) for i in range(st.n)))
+        Q = {i: st.initial_q(i) for i in range(st.n) if st.learner[i]}
+        arms = {i: ([0] * st.m[i], [0.0] * st.m[i]) for i in range(st.n) if st.bandit[i]}
+        z = [int(v) for v in lineup.z0]
+        record = {i: {"count": 0, "first": -1, "last": -1, "punishing": 0} for i in st.automata}
+        t = 0
+        stable = 0
+    else:
+        c = twin_state(st, lineup, start)
+        rng, history, Q, arms, z, record, t, stable = (c[x] for x in ("rng", "history", "Q", "arms", "z", "record",
+                                                                       "t", "stable"))
+    # a continued session that had converged under this rule plays no period, as in the kernel
+    status = 0 if stable >= convergence else 1
+    while status == 1 and t < max_periods:
         states = {i: tuple(history[: st.k[i]]) for i in Q}
         profile = _choose(st, Q, history, z, t, rng, arms)
         history = [profile, *history[: st.K - 1]]
