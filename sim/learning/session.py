@@ -79,7 +79,7 @@ from sim.learning.alternating import (
 from sim.learning.events import Event, adapt_saved, check_event, run_tracked
 from sim.learning.inputs import STATUS_CONVERGED, DeviationInputs, LimitOutputs, SessionState
 from sim.learning.lineup import Lineup, available_memory, compile_lineup
-from sim.learning.merger import merged_lineup, merger_benchmarks, merger_words, refuse_merged
+from sim.learning.merger import merged_lineup, merged_statistics, merger_benchmarks, merger_words, refuse_merged
 from sim.learning.protocol import protocol_changes, protocol_words
 from sim.learning.results import (
     CYCLE_STORE,
@@ -191,11 +191,7 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     market_doc = market.to_dict() if hasattr(market, "to_dict") else None
     what = None
     if start is not None and event is not None:
-        check_event(start, lineup, event, run["sessions"], market=market_doc)
-        what = _event_words(start, lineup, market_doc, event)
-        start = adapt_saved(start, lineup, event)
-        if event.kind == "merger":
-            lineup = merged_lineup(lineup, event.firms)
+        start, lineup, what = _after_event(start, lineup, event, run["sessions"], market_doc)
     elif start is not None:
         refuse_merged(start)
         check_start(start, lineup, market_doc, run["sessions"])
@@ -203,6 +199,19 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         _check_kept_memory(lineup, run["sessions"])
     return _run_sessions(lineup, settings, dev_index, progress, start, keep, market_doc,
                          (event, what) if what is not None else None)
+
+
+def _after_event(start: SavedLearners, lineup: Lineup, event: Event, sessions: int,
+                 market: dict | None) -> tuple[SavedLearners, Lineup, str]:
+    """The saved sessions and the line-up as the run after the event starts them, and the event in words."""
+    check_event(start, lineup, event, sessions, market=market)
+    what = _event_words(start, lineup, market, event)
+    start = adapt_saved(start, lineup, event)
+    if event.kind == "merger":
+        lineup, before = merged_lineup(lineup, event.firms), lineup
+        # merging bandits read the merged firm's profit on its own scale (sim.learning.merger)
+        start = merged_statistics(start, before, lineup)
+    return start, lineup, what
 
 
 def _event_words(saved: SavedLearners, lineup: Lineup, market: dict | None, event: Event) -> str:
