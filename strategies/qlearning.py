@@ -32,7 +32,7 @@ from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import Constraint, Integer, Options, Parametrized, Real, optional
 
-__all__ = ["FAMILIES", "INIT_KINDS", "UPDATE_RULES", "CompiledLearner", "QLearner", "published_grid"]
+__all__ = ["FAMILIES", "INIT_KINDS", "SEAT_NAMES", "UPDATE_RULES", "CompiledLearner", "QLearner", "published_grid"]
 
 INIT_KINDS = ("uniform", "zeros")
 #: which values a learner updates after a period (Asker, Fershtman and Pakes, 2022, AEA Papers and Proceedings
@@ -44,6 +44,9 @@ UPDATE_RULES = ("asynchronous", "synchronous", "mixed")
 #: Agrawal and Goyal, 2013); see :mod:`sim.learning.bandits`; or a fixed policy read from a file of saved learners,
 #: played greedily and never changed (:mod:`sim.learning.fixed`)
 FAMILIES = ("q", "ucb", "thompson", "fixed")
+#: the name a learner's seat is shown by, per family (tables, reports, the seats of a result); experiment and saved
+#: files still write ``strategy = "qlearning"`` with the ``family`` beside it
+SEAT_NAMES = {"q": "qlearning", "ucb": "ucb", "thompson": "thompson", "fixed": "fixed"}
 
 # the grid size of the published construction when neither m nor a grid is given
 _DEFAULT_M = 15

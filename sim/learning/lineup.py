@@ -36,7 +36,7 @@ from sim.simulation.engine import stage_levels
 from sim.theory.equilibrium import stage_game
 from strategies import AlwaysCompete, Automaton
 from strategies import compile_lineup as compile_automata
-from strategies.qlearning import QLearner
+from strategies.qlearning import SEAT_NAMES, QLearner
 
 __all__ = ["Lineup", "available_memory", "compile_lineup"]
 
@@ -54,7 +54,8 @@ class Lineup:
     learners : tuple
         One entry per seat: the seat's :class:`~strategies.qlearning.CompiledLearner`, or None for an automaton.
     names : tuple of str
-        Strategy name of each seat (``"qlearning"`` or the automaton's registry name).
+        Name of each seat: a learner's family (:data:`strategies.qlearning.SEAT_NAMES`: ``"qlearning"``, ``"ucb"``,
+        ``"thompson"``, ``"fixed"``) or the automaton's registry name.
     grids : tuple of ndarray
         Actions of each seat (a learner's grid; an automaton's distinct action values, increasing).
     seats : sim.learning.inputs.SeatInputs
@@ -386,7 +387,8 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     stage_in = _stage_inputs(ms, grids, seat_in, M, max(1, *ks), auto["engine"] is not None, prefix)
     seat_in = _with_reward_bounds(seat_in, stage_in.payoff, compiled)
     st = stage_game(ms, agreement)
-    names = tuple("qlearning" if is_l[i] else getattr(seats[i], "name", type(seats[i]).__name__) for i in range(n))
+    names = tuple(SEAT_NAMES[compiled[i].family] if is_l[i] else getattr(seats[i], "name", type(seats[i]).__name__)
+                  for i in range(n))
     return Lineup(
         market=ms, learners=compiled, names=names, grids=grids, seats=seat_in, stage=stage_in,
         automata=auto["inputs"], engine_lineup=auto["engine"],
