@@ -216,14 +216,19 @@ seed = 3
 """
 
 
-@pytest.mark.parametrize("cost, m, key", [("1.0", "5", None), ("1.2", "5", "market.cost"), ("1.0", "6", "grid")])
+@pytest.mark.parametrize("cost, m, alter, key", [
+    ("1.0", "5", None, None), ("1.2", "5", None, "market.cost"), ("1.0", "6", None, "grid"),
+    ("1.0", "5", _alter_arrays, "SHA-256"), ("1.0", "5", _alter_version, "version 99")])
 def test_the_command_runs_a_fixed_rival_or_refuses_a_mismatch_in_one_line(pair, tmp_path, capsys, monkeypatch, cost,
-                                                                         m, key):
+                                                                         m, alter, key):
     from sim.cli import main
 
     path, _ = pair
     monkeypatch.chdir(tmp_path)
-    (tmp_path / "pair.npz").write_bytes(path.read_bytes())
+    if alter is None:
+        (tmp_path / "pair.npz").write_bytes(path.read_bytes())
+    else:
+        alter(path, tmp_path / "pair.npz")
     (tmp_path / "input.toml").write_text(textwrap.dedent(LEARN).replace("COST", cost).replace("M", m))
     code = main(["learn", str(tmp_path / "input.toml")])
     cap = capsys.readouterr()
@@ -233,3 +238,5 @@ def test_the_command_runs_a_fixed_rival_or_refuses_a_mismatch_in_one_line(pair, 
     err = cap.err.strip()
     assert code == 2 and "\n" not in err and "Traceback" not in err, err
     assert err.startswith("supergame learn: error: strategies[1].policy_from: ") and key in err, err
+    # nothing written besides the inputs
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["input.toml", "pair.npz"]
