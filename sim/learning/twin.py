@@ -317,24 +317,26 @@ def reference_session(lineup, rng_state, convergence, max_periods, shock=0, sigm
     st = _Setup(lineup)
     # the learners' rewards: their own profits, or after a merger of their products the merged firm's profit
     st.profit_table = lineup.learning_stage.payoff.tolist()
-    if start is None:
-        rng = ReferenceStream(rng_state)
-        history = []
-        for _lag in range(st.K):
-            history.append(tuple(rng.next_below(st.m[i]) for i in range(st.n)))
-        Q = {i: st.initial_q(i) for i in range(st.n) if st.learner[i]}
-        arms = {i: ([0] * st.m[i], [0.0] * st.m[i]) for i in range(st.n) if st.bandit[i]}
-        z = [int(v) for v in lineup.z0]
-        record = {i: {"count": 0, "first": -1, "last": -1, "punishing": 0} for i in st.automata}
-        t = 0
-        stable = 0
-    else:
+    rng = ReferenceStream(rng_state if start is None else start["rng"])
+    history = []
+    for _lag in range(st.K):
+        history.append(tuple(rng.next_below(st.m[i]) for i in range(st.n)))
+    Q = {i: st.initial_q(i) for i in range(st.n) if st.learner[i]}
+    arms = {i: ([0] * st.m[i], [0.0] * st.m[i]) for i in range(st.n) if st.bandit[i]}
+    z = [int(v) for v in lineup.z0]
+    record = {i: {"count": 0, "first": -1, "last": -1, "punishing": 0} for i in st.automata}
+    t = 0
+    stable = 0
+    status = 1
+    if start is not None:
+        # a saved session: everything above replaced by what it had reached (sim.learning.twin_start)
         c = twin_state(st, lineup, start)
         rng, history, Q, arms, z, record, t, stable = (c[x] for x in ("rng", "history", "Q", "arms", "z", "record",
                                                                        "t", "stable"))
-    # a continued session that had converged under this rule plays no period, as in the kernel
-    status = 0 if stable >= convergence else 1
-    while status == 1 and t < max_periods:
+        if stable >= convergence:
+            # it had converged under this rule: no period is played, as in the kernel
+            status, max_periods = 0, t
+    while t < max_periods:
         states = {i: tuple(history[: st.k[i]]) for i in Q}
         profile = _choose(st, Q, history, z, t, rng, arms)
         history = [profile, *history[: st.K - 1]]
