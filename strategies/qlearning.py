@@ -293,7 +293,8 @@ class QLearner(Parametrized):
     policy_from : str, optional
         ``family = "fixed"`` only (and required there): a file of saved learners (``[learning] save_to``). The seat
         plays, in every state, the greedy action of one saved learner and never learns or explores; its grid and
-        memory are the saved learner's (``m``, ``xi``, ``grid``, ``k`` and the learning parameters are not used).
+        memory are the saved learner's (``m``, ``xi``, ``grid``, ``k``, ``alpha``, ``beta``, ``update``,
+        ``exploration`` and ``noise`` are not used; ``delta`` values a deviation in the impulse response).
     firm : int, optional
         ``family = "fixed"`` only (and required there): the firm (from 1) whose learner in that file is copied.
     session : int, optional
@@ -459,11 +460,8 @@ def _check_family(p: dict, key) -> None:
                     else "the firm (from 1) whose saved learner is copied"))
         if p["session"] is None:
             p["session"] = 1
-        for name, unused in (("exploration", p["exploration"] is not None), ("noise", p["noise"] != 0),
-                             ("update", p["update"] != "asynchronous")):
-            if unused:
-                raise InputError(key(name), "a fixed policy does not learn or explore; it applies to the learning "
-                                            "families")
+        # the learning settings (update rule, exploration, noise) are not used: a line-up's [learning] table may
+        # give them to every seat
         return
     if p["family"] == "q":
         for name, unused in (("exploration", p["exploration"] is not None), ("noise", p["noise"] != 0)):

@@ -135,6 +135,16 @@ def test_a_new_myopic_learner_learns_the_static_best_response_to_a_frozen_price(
         assert np.allclose(out.per_session()["limit_prices"][j], [best, c], rtol=0, atol=1e-12)
 
 
+def test_learning_settings_given_to_every_seat_do_not_touch_a_fixed_seat(pair):
+    # a [learning] table's update rule or learning rate reaches every seat of a line-up: a fixed seat ignores them
+    path, _ = pair
+    plain = compile_lineup(logit_market(), [fixed(path, 1), QLearner(m=5)])
+    other = compile_lineup(logit_market(), [fixed(path, 1).clone(update="synchronous", alpha=0.5, beta=1.0),
+                                            QLearner(m=5)])
+    assert np.array_equal(plain.initial_greedy()[0], other.initial_greedy()[0])
+    assert other.seats.alpha[0] == 0.0 and other.seats.beta[0] == 0.0 and other.seats.share[0] == 0.0
+
+
 def test_a_fixed_policy_on_another_market_or_grid_or_a_damaged_file_is_refused_naming_its_key(pair, tmp_path):
     path, _ = pair
     with pytest.raises(InputError) as e:
