@@ -32,7 +32,7 @@ from sim.core.docs import doc_sections
 from sim.core.errors import InputError
 from sim.core.params import Constraint, Integer, Options, Parametrized, Real, optional
 
-__all__ = ["FAMILIES", "INIT_KINDS", "UPDATE_RULES", "CompiledLearner", "QLearner", "published_grid"]
+__all__ = ["FAMILIES", "INIT_KINDS", "SEAT_NAMES", "UPDATE_RULES", "CompiledLearner", "QLearner", "published_grid"]
 
 INIT_KINDS = ("uniform", "zeros")
 #: which values a learner updates after a period (Asker, Fershtman and Pakes, 2022, AEA Papers and Proceedings
@@ -41,8 +41,12 @@ INIT_KINDS = ("uniform", "zeros")
 UPDATE_RULES = ("asynchronous", "synchronous", "mixed")
 #: how a learner chooses its price: Q-learning over the history of prices, or a bandit over its own grid that keeps
 #: no state (upper confidence bound, Auer, Cesa-Bianchi and Fischer, 2002; Thompson sampling with Gaussian rewards,
-#: Agrawal and Goyal, 2013); see :mod:`sim.learning.bandits`
-FAMILIES = ("q", "ucb", "thompson")
+#: Agrawal and Goyal, 2013); see :mod:`sim.learning.bandits`; or a fixed policy read from a file of saved learners,
+#: played greedily and never changed (:mod:`sim.learning.fixed`)
+FAMILIES = ("q", "ucb", "thompson", "fixed")
+#: the name a learner's seat is shown by, per family (tables, reports, the seats of a result); experiment and saved
+#: files still write ``strategy = "qlearning"`` with the ``family`` beside it
+SEAT_NAMES = {"q": "qlearning", "ucb": "ucb", "thompson": "thompson", "fixed": "fixed"}
 
 # the grid size of the published construction when neither m nor a grid is given
 _DEFAULT_M = 15
@@ -85,6 +89,26 @@ class ActionGrid(Constraint):
     def example_bad(self) -> Any:
         """A grid of one action."""
         return [1.0]
+
+
+class FileName(Constraint):
+    """The name of a file: a non-empty string."""
+
+    @doc_sections(Constraint.describe)
+    def describe(self) -> str:
+        return "the name of a file"
+
+    @doc_sections(Constraint.check)
+    def check(self, key: str, value: Any) -> str:
+        """The name, unchanged."""
+        if not isinstance(value, str) or not value.strip():
+            raise InputError(key, f"must be {self.describe()}, got {_fmt(value)}")
+        return value
+
+    @doc_sections(Constraint.example_bad)
+    def example_bad(self) -> Any:
+        """An empty name."""
+        return ""
 
 
 class QInit(Constraint):
@@ -174,6 +198,9 @@ class CompiledLearner:
         Thompson sampling); 0 for Q-learning.
     noise : float
         A bandit's observation noise: the standard deviation of the normal error on the scaled profit it sees.
+    source : dict, optional
+        A fixed policy's origin (family ``"fixed"``): ``policy_from``, ``firm``, ``session`` and the SHA-256 of the
+        file's arrays.
     """
 
     grid: np.ndarray
@@ -187,6 +214,7 @@ class CompiledLearner:
     family: str = "q"
     exploration: float = 0.0
     noise: float = 0.0
+    source: dict | None = None
 
     @property
     def m(self) -> int:
@@ -200,13 +228,16 @@ class CompiledLearner:
         -------
         dict
             ``alpha``, ``beta``, ``delta``, ``k``, ``m``, ``init`` and ``grid``; ``update`` and
-            ``counterfactual_share`` when the rule is not the asynchronous default.
+            ``counterfactual_share`` when the rule is not the asynchronous default; ``family`` and the bandit
+            parameters for a bandit; ``family`` and ``source`` for a fixed policy.
         """
         out = {"alpha": self.alpha, "beta": self.beta, "delta": self.delta, "k": self.k, "m": self.m,
                "init": self.init if isinstance(self.init, str) else "given", "grid": self.grid.tolist()}
         if self.update != "asynchronous":
             out.update(update=self.update, counterfactual_share=self.share)
-        if self.family != "q":
+        if self.family == "fixed":
+            out.update(family=self.family, source=dict(self.source or {}))
+        elif self.family != "q":
             out.update(family=self.family, exploration=self.exploration, noise=self.noise)
         return out
 
@@ -246,11 +277,12 @@ class QLearner(Parametrized):
         ``counterfactual_share`` (one draw per action).
     counterfactual_share : float, optional
         With ``update = "mixed"`` only (and required there): the probability in (0, 1) above.
-    family : {"q", "ucb", "thompson"}
-        ``"q"`` (default): Q-learning as above. ``"ucb"`` and ``"thompson"``: a bandit over the grid that keeps
-        no state (it does not condition on past prices, so ``k`` is not used) and learns each price's mean scaled
-        profit; ``alpha``, ``beta`` and ``init`` are not used, and ``delta`` only values the deviation of the
-        impulse response (see :mod:`sim.learning.bandits`).
+    family : {"q", "ucb", "thompson", "fixed"}
+        ``"q"`` (default): Q-learning as above. ``"fixed"``: the greedy policy of a saved learner, never changed
+        (``policy_from``, ``firm``, ``session``; :mod:`sim.learning.fixed`). ``"ucb"`` and ``"thompson"``: a bandit
+        over the grid that keeps no state (it does not condition on past prices, so ``k`` is not used) and learns
+        each price's mean scaled profit; ``alpha``, ``beta`` and ``init`` are not used, and ``delta`` only values
+        the deviation of the impulse response (see :mod:`sim.learning.bandits`).
     exploration : float, optional
         Bandits only (> 0, default 1): the constant ``c`` of the upper confidence bound ``mean + c sqrt(2 ln t /
         n_a)`` (``c = 1`` is UCB1 of Auer, Cesa-Bianchi and Fischer, 2002), or the scale ``v`` of the Thompson
@@ -258,6 +290,15 @@ class QLearner(Parametrized):
     noise : float
         Bandits only (>= 0, default 0): standard deviation of a normal error on the scaled profit the bandit
         observes (the noise of its price experiments).
+    policy_from : str, optional
+        ``family = "fixed"`` only (and required there): a file of saved learners (``[learning] save_to``). The seat
+        plays, in every state, the greedy action of one saved learner and never learns or explores; its grid and
+        memory are the saved learner's (``m``, ``xi``, ``grid``, ``k``, ``alpha``, ``beta``, ``update``,
+        ``exploration`` and ``noise`` are not used; ``delta`` values a deviation in the impulse response).
+    firm : int, optional
+        ``family = "fixed"`` only (and required there): the firm (from 1) whose learner in that file is copied.
+    session : int, optional
+        ``family = "fixed"`` only (default 1): the saved session (from 1) whose learned policy is copied.
 
     Examples
     --------
@@ -280,13 +321,17 @@ class QLearner(Parametrized):
         "family": Options(*FAMILIES),
         "exploration": optional(Real(0, None, closed="neither")),
         "noise": Real(0, None),
+        "policy_from": optional(FileName()),
+        "firm": optional(Integer(1, 4)),
+        "session": optional(Integer(1, 10_000_000)),
     }
 
     #: name in experiment files (``strategy = "qlearning"``)
     name = "qlearning"
 
     def __init__(self, alpha=0.15, beta=4e-6, delta=0.95, m=None, xi=0.1, grid=None, k=1, init="uniform",
-                 update="asynchronous", counterfactual_share=None, family="q", exploration=None, noise=0.0):
+                 update="asynchronous", counterfactual_share=None, family="q", exploration=None, noise=0.0,
+                 policy_from=None, firm=None, session=None):
         self.alpha = alpha
         self.beta = beta
         self.delta = delta
@@ -300,6 +345,9 @@ class QLearner(Parametrized):
         self.family = family
         self.exploration = exploration
         self.noise = noise
+        self.policy_from = policy_from
+        self.firm = firm
+        self.session = session
 
     def spec(self, n_firms: int | None = None, prefix: str = "") -> dict[str, Any]:
         """Validate every parameter; return the normalised values (``m`` filled in).
@@ -381,6 +429,11 @@ class QLearner(Parametrized):
                 raise InputError(f"{prefix}.xi" if prefix else "xi",
                                  f"the widened grid reaches below zero for firm {seat + 1}; lower xi or give the grid")
         share = {"asynchronous": 0.0, "synchronous": 1.0}.get(p["update"], p["counterfactual_share"])
+        if p["family"] == "fixed":
+            # a fixed policy: no learning, no exploration; its greedy table is set by the line-up from the file
+            return CompiledLearner(grid=grid, k=p["k"], alpha=0.0, beta=0.0, delta=p["delta"], init="zeros",
+                                   family="fixed", source={"policy_from": p["policy_from"], "firm": p["firm"],
+                                                           "session": p["session"]})
         if p["family"] != "q":
             # a bandit keeps no state: no memory, its estimates start at zero
             return CompiledLearner(grid=grid, k=0, alpha=p["alpha"], beta=p["beta"], delta=p["delta"], init="zeros",
@@ -391,7 +444,25 @@ class QLearner(Parametrized):
 
 def _check_family(p: dict, key) -> None:
     """The bandit parameters against the family: ``exploration`` filled in (default 1) for a bandit, and refused,
-    like ``noise``, the update rules and given initial values, where they do not apply."""
+    like ``noise``, the update rules and given initial values, where they do not apply; a fixed policy's file and
+    firm required with ``family = "fixed"`` and refused otherwise."""
+    fixed = ("policy_from", "firm", "session")
+    if p["family"] != "fixed":
+        for name in fixed:
+            if p[name] is not None:
+                raise InputError(key(name), f"applies only to a fixed policy (family = 'fixed'), got family = "
+                                            f"{p['family']!r}")
+    else:
+        for name in fixed[:2]:
+            if p[name] is None:
+                raise InputError(key(name), "is required with family = 'fixed': " + (
+                    "the file of saved learners whose policy is played" if name == "policy_from"
+                    else "the firm (from 1) whose saved learner is copied"))
+        if p["session"] is None:
+            p["session"] = 1
+        # the learning settings (update rule, exploration, noise) are not used: a line-up's [learning] table may
+        # give them to every seat
+        return
     if p["family"] == "q":
         for name, unused in (("exploration", p["exploration"] is not None), ("noise", p["noise"] != 0)):
             if unused:

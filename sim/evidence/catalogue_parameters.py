@@ -33,9 +33,13 @@ PARAMETER_ROWS: dict[str, tuple] = {
                         "Which values a learner updates after a period: asynchronous (the price it played) or "
                         "synchronous (every price, from what it would have earned against the rivals' prices).",
                         "given; the rules of Asker, Fershtman and Pakes (2022, AEA Papers and Proceedings 112)"),
+    "learning.delta": ("discount factor of the learners", "",
+                       "The weight a learner gives future profits in its Q-values (0: only this period's profit).",
+                       "given; the Q-learning update of Watkins and Dayan (1992, Machine Learning 8)"),
     "learning.family": ("learner family", "",
                         "How a learner chooses its price: Q-learning, an upper-confidence-bound bandit or a "
-                        "Thompson-sampling bandit over the price grid.",
+                        "Thompson-sampling bandit over the price grid, or a fixed policy (the greedy prices of a "
+                        "saved learner, played without learning or exploring).",
                         "given; UCB1 (Auer, Cesa-Bianchi and Fischer, 2002, Machine Learning 47), Thompson "
                         "sampling with a normal prior (Agrawal and Goyal, 2013)"),
     "learning.noise": ("noise on the observed profit", "currency units per period",

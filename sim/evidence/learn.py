@@ -78,6 +78,13 @@ def _seat_lines(res: LearnResult) -> list[str]:
         if i > 0 and same:
             continue
         who = "Learners" if same else f"Firm {i + 1}"
+        if c.get("family") == "fixed":
+            src = c.get("source") or {}
+            lines.append(f"{who}: fixed policy (no learning, no exploration): the greedy {act}s of firm "
+                         f"{src.get('firm')}'s learner in session {src.get('session')} of {src.get('policy_from')} "
+                         f"(arrays SHA-256 {str(src.get('arrays_sha256'))[:12]}...), {c['m']} {act} levels from "
+                         f"{fmt_num(c['grid'][0])} to {fmt_num(c['grid'][-1])}, memory {c['k']}")
+            continue
         if c.get("family", "q") != "q":
             lines.append(_bandit_line(who, c, act))
             continue

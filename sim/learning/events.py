@@ -20,6 +20,10 @@ every saved session (``[learning] continue_from``) after an *event*, given in it
     and the line-up are the saved ones; each merged product is still priced by its own learner, which keeps its
     grid, Q-values, history and random stream, but is rewarded with the merged firm's profit (the sum of the merged
     products' profits; :mod:`sim.learning.merger`, which also gives the static Nash prices after the merger).
+``kind = "protocol"``
+    the learners' settings change (update rule, learning rate, exploration, discount factor, a bandit's exploration
+    and noise) in the saved market with the saved line-up: each learner goes on from its saved state under its new
+    settings (:mod:`sim.learning.protocol`, which refuses a changed market and an event that changes nothing).
 
 Whatever the event, the convergence counter is reset at the event (a session counts as settled again once no greedy
 strategy has changed for ``convergence`` periods after it), ``max_periods`` counts the periods after the event, and the
@@ -47,6 +51,7 @@ from sim.core.tables import refuse_unknown
 from sim.learning import kernel as K
 from sim.learning.inputs import STATUS_CAP, STATUS_CONVERGED, new_triggers
 from sim.learning.merger import check_merger, refuse_merged
+from sim.learning.protocol import check_protocol
 from sim.learning.saved import SavedLearners, check_family, describe_layout
 from sim.simulation.results import mean_estimate, wilson_estimate
 from strategies.qlearning import QLearner
@@ -57,8 +62,8 @@ __all__ = ["EVENT_KEYS", "EVENT_KINDS", "Event", "adapt_saved", "event_from_tabl
 #: keys of the [event] table
 EVENT_KEYS = ("kind", "periods", "firms")
 #: what may happen: a changed market (cost or demand shock), the entry of a firm playing an automaton, or a merger
-#: of learners' products into one firm
-EVENT_KINDS = ("market", "entry", "merger")
+#: of learners' products into one firm, or a change of the learners' protocol (their learning settings)
+EVENT_KINDS = ("market", "entry", "merger", "protocol")
 #: the price path after an event is kept in at most this many bins
 TRACK_BINS = 100
 
@@ -70,7 +75,7 @@ class Event:
     Attributes
     ----------
     kind : str
-        ``"market"``, ``"entry"`` or ``"merger"``.
+        ``"market"``, ``"entry"``, ``"merger"`` or ``"protocol"``.
     periods : int
         Periods after the event whose prices are recorded (a multiple of the number of bins).
     bins : int
@@ -91,8 +96,8 @@ def event_from_table(tab) -> Event:
     Parameters
     ----------
     tab : dict
-        ``kind`` (required: ``"market"``, ``"entry"`` or ``"merger"``), ``periods`` (default 1000, 1 to 10**7) and,
-        for a merger only (required there), ``firms``: two or more distinct firm numbers from 1.
+        ``kind`` (required: ``"market"``, ``"entry"``, ``"merger"`` or ``"protocol"``), ``periods`` (default 1000,
+        1 to 10**7) and, for a merger only (required there), ``firms``: two or more distinct firm numbers from 1.
 
     Returns
     -------
@@ -176,7 +181,8 @@ def with_saved_grids(learner, saved: SavedLearners, n_firms: int, event: Event) 
     return lineup
 
 
-def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: str = "learning.continue_from") -> None:
+def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: str = "learning.continue_from",
+                market: dict | None = None) -> None:
     """Refuse saved sessions that cannot go on after the event: other seats, grids or memories, or another number of
     sessions.
 
@@ -190,11 +196,14 @@ def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: 
         Sessions of the run.
     key : str
         Key path of the saved file, for error messages.
+    market : dict, optional
+        The run's market (:meth:`sim.Market.to_dict`): a change of protocol must keep the saved one.
 
     Raises
     ------
     InputError
-        Naming ``key``.
+        Naming ``key``; for a change of protocol, ``market.<setting>`` or ``event.kind``
+        (:func:`sim.learning.protocol.check_protocol`).
     """
     refuse_merged(saved, key)
     old, new = saved.header.get("seats") or [], describe_layout(lineup)
@@ -215,6 +224,8 @@ def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: 
                               "match: each session continues one saved session)")
     if event.kind == "merger":
         check_merger(event.firms, lineup)
+    if event.kind == "protocol":
+        check_protocol(saved, lineup, market)
     if event.kind == "entry" and lineup.learners[-1] is not None:
         k_old = max([int(a.get("k") or 0) for a in old] + [1])
         if lineup.learners[-1].k > k_old:

@@ -27,6 +27,7 @@ import numpy as np
 __all__ = [
     "AUTOMATON",
     "FAMILY_CODES",
+    "FIXED_FAMILY",
     "INFO_FIELDS",
     "LEARNER",
     "Q_FAMILY",
@@ -57,7 +58,9 @@ AUTOMATON = 1
 Q_FAMILY = 0
 UCB_FAMILY = 1
 THOMPSON_FAMILY = 2
-FAMILY_CODES = {"q": Q_FAMILY, "ucb": UCB_FAMILY, "thompson": THOMPSON_FAMILY}
+#: a fixed policy read from a file (sim.learning.fixed): plays its greedy action, never explores or updates
+FIXED_FAMILY = 3
+FAMILY_CODES = {"q": Q_FAMILY, "ucb": UCB_FAMILY, "thompson": THOMPSON_FAMILY, "fixed": FIXED_FAMILY}
 #: the entries of ``LimitOutputs.info``
 INFO_FIELDS = ("transient", "cycle_length", "points", "deviation_gain", "deviation_pays", "returned",
                "return_periods", "deviation_action")

@@ -62,6 +62,7 @@ from sim.core.rng import next_below, next_double
 from sim.learning.bandits import bandit_choice, bandit_scales, bandit_update
 from sim.learning.inputs import (
     AUTOMATON,
+    FIXED_FAMILY,
     LEARNER,
     Q_FAMILY,
     STATUS_CAP,
@@ -229,7 +230,10 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, sh
         eps = -1.0
         prev_beta = -1.0
         for i in range(n):
-            if kind[i] == LEARNER and family[i] != Q_FAMILY:
+            if kind[i] == LEARNER and family[i] == FIXED_FAMILY:
+                # a fixed policy (sim.learning.fixed): its greedy action, no draw
+                a = greedy[lidx[i], _seen(s, mod[i], S)]
+            elif kind[i] == LEARNER and family[i] != Q_FAMILY:
                 # a bandit: its own statistics, whatever the history (sim.learning.bandits)
                 a = bandit_choice(family[i], lidx[i], radix[i], explore[i], counts, Q, w, rng)
             elif kind[i] == LEARNER:
@@ -252,6 +256,8 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, sh
             if kind[i] != LEARNER:
                 continue
             li, a = lidx[i], act[i]
+            if family[i] == FIXED_FAMILY:
+                continue
             if family[i] != Q_FAMILY:
                 if bandit_update(family[i], li, a, radix[i], theta * payoff[prof, i], reward_lo[i], reward_span[i],
                                  noise[i], counts, sums, Q, greedy, w, rng):

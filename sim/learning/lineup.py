@@ -18,6 +18,7 @@ import strategies.step as SS
 from sim.core.errors import InputError
 from sim.core.params import Options
 from sim.learning.bandits import reward_bounds
+from sim.learning.fixed import fixed_q, with_fixed_policies, with_sources
 from sim.learning.inputs import (
     AUTOMATON,
     FAMILY_CODES,
@@ -35,7 +36,7 @@ from sim.simulation.engine import stage_levels
 from sim.theory.equilibrium import stage_game
 from strategies import AlwaysCompete, Automaton
 from strategies import compile_lineup as compile_automata
-from strategies.qlearning import QLearner
+from strategies.qlearning import SEAT_NAMES, QLearner
 
 __all__ = ["Lineup", "available_memory", "compile_lineup"]
 
@@ -53,7 +54,8 @@ class Lineup:
     learners : tuple
         One entry per seat: the seat's :class:`~strategies.qlearning.CompiledLearner`, or None for an automaton.
     names : tuple of str
-        Strategy name of each seat (``"qlearning"`` or the automaton's registry name).
+        Name of each seat: a learner's family (:data:`strategies.qlearning.SEAT_NAMES`: ``"qlearning"``, ``"ucb"``,
+        ``"thompson"``, ``"fixed"``) or the automaton's registry name.
     grids : tuple of ndarray
         Actions of each seat (a learner's grid; an automaton's distinct action values, increasing).
     seats : sim.learning.inputs.SeatInputs
@@ -366,16 +368,18 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     if not 2 <= n <= 4:
         raise InputError("market.n_firms", f"learning needs 2 to 4 firms, got {n}")
     seats, keys = _seats_and_keys(learners, n, prefix, seat_prefix)
+    # a fixed policy takes its grid and memory from its file (sim.learning.fixed)
+    seats, policies = with_fixed_policies(seats, keys, market.to_dict() if hasattr(market, "to_dict") else None)
     is_l = [_is_learner(x) for x in seats]
     specs = {i: seats[i].spec(prefix=keys[i]) for i in range(n) if is_l[i]}
     # automata first: their action sets enter the state space
     auto = _automaton_part(ms, seats, is_l, keys, agreement, random_automata == "refuse")
     radix = [int(specs[i]["m"]) if is_l[i] else int(auto["values"][i].size) for i in range(n)]
-    ks = [int(specs[i]["k"]) if specs[i]["family"] == "q" else 0 for i in range(n) if is_l[i]]
+    ks = [int(specs[i]["k"]) if specs[i]["family"] in ("q", "fixed") else 0 for i in range(n) if is_l[i]]
     _check_memory(radix, ks, max(1, int(workers)), prefix, available_memory, int(np.prod(auto["zn"])))
     # the published grid of a learner without one is placed by the static-Nash and joint-profit actions
     stage = stage_game(ms) if any(is_l[i] and seats[i].get_params().get("grid") is None for i in range(n)) else None
-    compiled = tuple(seats[i].compile(stage, i, keys[i]) if is_l[i] else None for i in range(n))
+    compiled = with_sources(tuple(seats[i].compile(stage, i, keys[i]) if is_l[i] else None for i in range(n)), policies)
     grids = tuple(compiled[i].grid if is_l[i] else auto["values"][i] for i in range(n))
     seat_in = _seat_inputs(compiled, radix, auto["zn"])
     M = int(np.prod(seat_in.radix))
@@ -383,11 +387,12 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     stage_in = _stage_inputs(ms, grids, seat_in, M, max(1, *ks), auto["engine"] is not None, prefix)
     seat_in = _with_reward_bounds(seat_in, stage_in.payoff, compiled)
     st = stage_game(ms, agreement)
-    names = tuple("qlearning" if is_l[i] else getattr(seats[i], "name", type(seats[i]).__name__) for i in range(n))
+    names = tuple(SEAT_NAMES[compiled[i].family] if is_l[i] else getattr(seats[i], "name", type(seats[i]).__name__)
+                  for i in range(n))
     return Lineup(
         market=ms, learners=compiled, names=names, grids=grids, seats=seat_in, stage=stage_in,
         automata=auto["inputs"], engine_lineup=auto["engine"],
-        q0=_initial_q(compiled, seat_in, stage_in.payoff, keys), z0=auto["z0"],
+        q0=fixed_q(_initial_q(compiled, seat_in, stage_in.payoff, keys), policies, seat_in, grids, keys), z0=auto["z0"],
         nash_profits=np.asarray(st.nash.profits, float), collusive_profits=np.asarray(st.collusive.profits, float),
         nash_actions=np.asarray(st.nash.actions, float), collusive_actions=np.asarray(st.collusive.actions, float),
         nash_prices=np.asarray(st.nash.prices, float), collusive_prices=np.asarray(st.collusive.prices, float),

@@ -22,8 +22,18 @@ the merged firm's larger profit raises, so they keep the prices they had; learne
 their values of the prices they try are those of the rivalry before the merger, and in the shipped example and the
 tests their prices rise by far less than the static merger effect.
 
-Only Q-learners merge here: a bandit scales its rewards by the range of its own profits on the grid
-(:mod:`sim.learning.bandits`), which a merger would change, and an automaton has no reward to change.
+Bandits merge too (UCB and Thompson sampling, :mod:`sim.learning.bandits`). A bandit scales its profits to rewards
+in [0, 1] by the range of its profits on the grid; after the merger its profit is the merged firm's, whose range is
+wider, so its scale is taken from the merged firm's profits on the grid (:func:`merged_lineup`), and the statistics
+it saved are re-expressed on that scale (:func:`merged_statistics`): the sum of the rewards of a price, ``sum (pi -
+lo) / span``, becomes ``sum (pi - lo') / span'`` of the same profits, so what the bandit knew is kept exactly and
+only the unit changes (an observation noise stays in reward units). Its estimates and greedy price are recomputed
+from the re-expressed sums. As with Q-learners, those statistics are of the product's own profit: a bandit corrects
+them only as it plays each price again, so a price it played most before the merger keeps a stale average for long,
+and fresh merged-firm rewards of prices it seldom played can beat it (two UCB bandits that had settled on the
+highest price were seen to move down after a merger to monopoly; Thompson bandits moved up). An automaton has no
+reward to change, and a fixed policy (family ``"fixed"``) does not
+learn: neither merges.
 """
 
 from __future__ import annotations
@@ -33,13 +43,15 @@ import dataclasses
 import numpy as np
 
 from sim.core.errors import InputError
+from sim.learning.bandits import reward_bounds
+from sim.learning.inputs import UCB_FAMILY
 from sim.theory.nash import static_nash
 
-__all__ = ["check_merger", "merged_lineup", "merger_benchmarks", "merger_words", "refuse_merged"]
+__all__ = ["check_merger", "merged_lineup", "merged_statistics", "merger_benchmarks", "merger_words", "refuse_merged"]
 
 
 def check_merger(firms: tuple, lineup, key: str = "event.firms") -> None:
-    """Refuse a merger of seats that do not exist or do not hold Q-learners.
+    """Refuse a merger of seats that do not exist or do not hold learners (Q-learners or bandits).
 
     Parameters
     ----------
@@ -53,7 +65,7 @@ def check_merger(firms: tuple, lineup, key: str = "event.firms") -> None:
     Raises
     ------
     InputError
-        Naming ``key``: a firm outside 1 to n_firms, an automaton, or a bandit.
+        Naming ``key``: a firm outside 1 to n_firms, an automaton, or a fixed policy.
     """
     n = lineup.n_seats
     for f in firms:
@@ -63,9 +75,9 @@ def check_merger(firms: tuple, lineup, key: str = "event.firms") -> None:
         if c is None:
             raise InputError(key, f"firm {f} plays {lineup.names[f - 1].replace('_', ' ')}, an automaton; a merger "
                                   "joins the products of learners (strategy = 'qlearning')")
-        if c.family != "q":
-            raise InputError(key, f"firm {f} is a bandit (family {c.family!r}); a merger joins the products of "
-                                  "Q-learners (family 'q')")
+        if c.family == "fixed":
+            raise InputError(key, f"firm {f} plays a fixed policy, which does not learn; a merger changes what "
+                                  "learners learn from (family 'q', 'ucb' or 'thompson')")
 
 
 def refuse_merged(saved, key: str = "learning.continue_from") -> None:
@@ -104,7 +116,8 @@ def merged_lineup(lineup, firms: tuple):
     sim.learning.lineup.Lineup
         A copy whose ``reward`` (ndarray of shape (M, n)) is the stage game's profits with every merging seat's
         column replaced by the sum of the merging seats' columns, and whose ``seats.owner`` gives the merging seats
-        the lowest merging seat as their firm. ``stage`` is unchanged: the products' own profits.
+        the lowest merging seat as their firm; a merging bandit's ``seats.reward_lo`` and ``seats.reward_span`` are
+        those of the merged firm's profits on the grid. ``stage`` is unchanged: the products' own profits.
     """
     seats = np.array(sorted(f - 1 for f in firms), dtype=np.int64)
     base = lineup.stage.payoff if lineup.reward is None else lineup.reward
@@ -112,7 +125,51 @@ def merged_lineup(lineup, firms: tuple):
     reward[:, seats] = lineup.stage.payoff[:, seats].sum(axis=1)[:, None]
     owner = lineup.seats.owner.copy()
     owner[seats] = owner[seats[0]]
-    return dataclasses.replace(lineup, seats=lineup.seats._replace(owner=owner), reward=reward)
+    lo, span = lineup.seats.reward_lo.copy(), lineup.seats.reward_span.copy()
+    for i in seats:
+        c = lineup.learners[i]
+        if c is not None and c.family in ("ucb", "thompson"):
+            lo[i], span[i] = reward_bounds(reward, int(i))
+    return dataclasses.replace(lineup, seats=lineup.seats._replace(owner=owner, reward_lo=lo, reward_span=span),
+                               reward=reward)
+
+
+def merged_statistics(saved, before, after):
+    """Saved sessions with the merging bandits' statistics re-expressed on their scale after the merger.
+
+    Parameters
+    ----------
+    saved : sim.learning.saved.SavedLearners
+        The sessions as the run after the event starts them (:func:`sim.learning.events.adapt_saved`).
+    before, after : sim.learning.lineup.Lineup
+        The line-up before the merger and :func:`merged_lineup` of it.
+
+    Returns
+    -------
+    sim.learning.saved.SavedLearners
+        ``saved`` itself when no bandit merges; else a copy whose ``sums`` of every merging bandit are
+        ``(span * sums + n * (lo - lo')) / span'`` (the same profits' rewards on the new scale), its estimates
+        ``Q[:, li, 0, :m]`` recomputed from them (the mean for UCB, the posterior mean for Thompson sampling) and
+        its greedy price their first argmax.
+    """
+    changed = [i for i in range(before.n_seats) if before.learners[i] is not None
+               and before.learners[i].family in ("ucb", "thompson")
+               and (before.seats.reward_lo[i] != after.seats.reward_lo[i]
+                    or before.seats.reward_span[i] != after.seats.reward_span[i])]
+    if not changed:
+        return saved
+    q, greedy, sums = saved.Q.copy(), saved.greedy.copy(), saved.sums.copy()
+    for i in changed:
+        li, m = int(before.seats.lidx[i]), int(before.seats.radix[i])
+        lo, span = float(before.seats.reward_lo[i]), float(before.seats.reward_span[i])
+        lo2, span2 = float(after.seats.reward_lo[i]), float(after.seats.reward_span[i])
+        n = saved.counts[:, li, :m].astype(np.float64)
+        sums[:, li, :m] = (span * saved.sums[:, li, :m] + n * (lo - lo2)) / span2
+        denom = n if int(before.seats.family[i]) == UCB_FAMILY else n + 1.0
+        # a price never played keeps the estimate 0 (UCB plays it first whatever its estimate)
+        q[:, li, 0, :m] = np.divide(sums[:, li, :m], denom, out=np.zeros_like(denom), where=denom > 0)
+        greedy[:, li, 0] = np.argmax(q[:, li, 0, :m], axis=1)
+    return dataclasses.replace(saved, Q=q, greedy=greedy, sums=sums)
 
 
 def merger_benchmarks(lineup, firms: tuple) -> dict:

@@ -18,7 +18,8 @@ with one more member, ``header.json``::
 ``arrays_sha256`` is the SHA-256 of the arrays (:func:`arrays_digest`): a file whose arrays were altered or
 damaged is refused. ``market`` is the market's settings and ``seats`` each seat's learner (its grid, parameters and
 update rule) or automaton: a file is continued only on the same market and the same grids (the learning parameters
-and the update rule may change: a change of protocol), and a seat only by a learner of the same family. The members
+and the update rule may change: a change of protocol, which an ``[event]`` of ``kind = "protocol"`` makes explicit,
+checked and reported, :mod:`sim.learning.protocol`), and a seat only by a learner of the same family. The members
 carry a fixed date, so the same state gives the same bytes.
 
 Versions: 2 adds the bandits' statistics (``counts`` and ``sums``, :mod:`sim.learning.bandits`). A file of version 1

@@ -79,7 +79,8 @@ from sim.learning.alternating import (
 from sim.learning.events import Event, adapt_saved, check_event, run_tracked
 from sim.learning.inputs import STATUS_CONVERGED, DeviationInputs, LimitOutputs, SessionState
 from sim.learning.lineup import Lineup, available_memory, compile_lineup
-from sim.learning.merger import merged_lineup, merger_benchmarks, merger_words, refuse_merged
+from sim.learning.merger import merged_lineup, merged_statistics, merger_benchmarks, merger_words, refuse_merged
+from sim.learning.protocol import protocol_changes, protocol_words
 from sim.learning.results import (
     CYCLE_STORE,
     IR_POINTS,
@@ -93,6 +94,7 @@ from sim.learning.saved import SavedLearners, check_start, describe_layout
 from sim.learning.shocks import shock_code
 from sim.learning.tables import RUN_CONSTRAINTS
 from sim.learning.twin import reference_session as _reference
+from sim.learning.twin_start import session_row
 
 __all__ = ["alternating_state", "kernel_session", "learn", "reference_session"]
 
@@ -189,11 +191,7 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     market_doc = market.to_dict() if hasattr(market, "to_dict") else None
     what = None
     if start is not None and event is not None:
-        check_event(start, lineup, event, run["sessions"])
-        what = _event_words(start, lineup, market_doc, event)
-        start = adapt_saved(start, lineup, event)
-        if event.kind == "merger":
-            lineup = merged_lineup(lineup, event.firms)
+        start, lineup, what = _after_event(start, lineup, event, run["sessions"], market_doc)
     elif start is not None:
         refuse_merged(start)
         check_start(start, lineup, market_doc, run["sessions"])
@@ -203,10 +201,25 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
                          (event, what) if what is not None else None)
 
 
+def _after_event(start: SavedLearners, lineup: Lineup, event: Event, sessions: int,
+                 market: dict | None) -> tuple[SavedLearners, Lineup, str]:
+    """The saved sessions and the line-up as the run after the event starts them, and the event in words."""
+    check_event(start, lineup, event, sessions, market=market)
+    what = _event_words(start, lineup, market, event)
+    start = adapt_saved(start, lineup, event)
+    if event.kind == "merger":
+        lineup, before = merged_lineup(lineup, event.firms), lineup
+        # merging bandits read the merged firm's profit on its own scale (sim.learning.merger)
+        start = merged_statistics(start, before, lineup)
+    return start, lineup, what
+
+
 def _event_words(saved: SavedLearners, lineup: Lineup, market: dict | None, event: Event) -> str:
     """The event in words: the market settings that changed, or the entrant and its strategy."""
     if event.kind == "merger":
         return merger_words(event.firms)
+    if event.kind == "protocol":
+        return protocol_words(protocol_changes(saved.header.get("seats") or [], lineup))
     if event.kind == "entry" and lineup.learners[-1] is not None:
         return f"firm {lineup.n_seats} enters, priced by a new learner"
     if event.kind == "entry":
@@ -486,7 +499,7 @@ def _run_alternating(lineup: Lineup, settings: dict, progress: bool | None) -> L
 
 def reference_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergence: int = 100_000,
                       max_periods: int = 10_000, cell: int = 0, demand_noise: str = "lognormal",
-                      demand_sigma: float = 0.0) -> dict:
+                      demand_sigma: float = 0.0, start: SavedLearners | None = None) -> dict:
     """The plain-Python twin of one session (:func:`sim.learning.twin.reference_session`), with the
     session's own random stream. Slow: for tests and benchmarks on short sessions.
 
@@ -507,6 +520,8 @@ def reference_session(lineup: Lineup, session: int = 0, *, seed: int = 0, conver
         Distribution of the demand shock (:mod:`sim.learning.shocks`).
     demand_sigma : float
         Its standard deviation (0: none).
+    start : SavedLearners, optional
+        Continue saved session ``session`` instead (its own stream; ``seed`` and ``cell`` are not used).
 
     Returns
     -------
@@ -514,12 +529,14 @@ def reference_session(lineup: Lineup, session: int = 0, *, seed: int = 0, conver
         See :func:`sim.learning.twin.reference_session`.
     """
     state = stream_states(seed, (cell,), session, session + 1)[0]
-    return _reference(lineup, state, convergence, max_periods, *shock_code(demand_noise, demand_sigma, prefix=""))
+    row = None if start is None else session_row(start, session)
+    return _reference(lineup, state, convergence, max_periods, *shock_code(demand_noise, demand_sigma, prefix=""),
+                      start=row)
 
 
 def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergence: int = 100_000,
                    max_periods: int = 10_000, cell: int = 0, demand_noise: str = "lognormal",
-                   demand_sigma: float = 0.0) -> dict:
+                   demand_sigma: float = 0.0, start: SavedLearners | None = None) -> dict:
     """One session through the kernel, returning the fields of :func:`reference_session` that the kernel keeps.
 
     Parameters
@@ -539,6 +556,9 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
         Distribution of the demand shock (:mod:`sim.learning.shocks`).
     demand_sigma : float
         Its standard deviation (0: none).
+    start : SavedLearners, optional
+        Continue saved session ``session`` instead (its own stream; ``seed`` and ``cell`` are not used), as
+        :func:`learn` does.
 
     Returns
     -------
@@ -547,9 +567,15 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
         generator state after the last period), ``triggers`` (the record of the automata's punishments,
         :data:`sim.learning.inputs.TRIGGER_FIELDS`), ``counts`` and ``sums`` (the bandits' statistics).
     """
-    rng = stream_states(seed, (cell,), session, session + 1)[0].copy()
-    st = lineup.session_state(rng)
-    s = K.initial_state(rng, lineup.seats, lineup.stage)
+    if start is None:
+        rng = stream_states(seed, (cell,), session, session + 1)[0].copy()
+        st = lineup.session_state(rng)
+        s = K.initial_state(rng, lineup.seats, lineup.stage)
+    else:
+        row = session_row(start, session)
+        rng, s = row["rng"], row["history"]
+        st = SessionState(row["Q"], row["greedy"], row["z"], rng, row["clock"], row["triggers"], row["counts"],
+                          row["sums"])
     status, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, st, s, convergence,
                                  max_periods, *shock_code(demand_noise, demand_sigma, prefix=""))
     return {"status": int(status), "periods": int(t), "state": int(s), "Q": st.Q, "greedy": st.greedy, "z": st.z,

@@ -52,7 +52,7 @@ RUN_CONSTRAINTS = {
 }
 #: parameters of a Q-learner in [learning] and in a ``strategy = "qlearning"`` entry
 LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init", "update", "counterfactual_share", "family",
-                  "exploration", "noise")
+                  "exploration", "noise", "policy_from", "firm", "session")
 #: keys of the tables a learning experiment reads, in the order error messages list them
 LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "near", "limit_periods", "save_to", "continue_from",
                  "timing", "demand_noise", "demand_sigma")
@@ -265,7 +265,7 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
         refuse_merged(start, "learning.continue_from")
         check_start(start, lineup, market.to_dict(), settings["sessions"], "learning.continue_from")
     elif start is not None:
-        check_event(start, lineup, event, settings["sessions"], "learning.continue_from")
+        check_event(start, lineup, event, settings["sessions"], "learning.continue_from", market.to_dict())
     return {"market": market, "learner": learner, "settings": settings, "save_to": save_to, "start": start,
             "event": event, "waiting": event is not None and start is None}
 

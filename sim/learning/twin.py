@@ -31,6 +31,7 @@ import strategies.step as S
 from sim.core.rng import ReferenceStream
 from sim.learning.bandits import twin_choice, twin_update
 from sim.learning.shocks import twin_shock
+from sim.learning.twin_start import twin_state
 
 __all__ = ["jumped", "reference_analysis", "reference_estimate", "reference_session"]
 
@@ -148,7 +149,8 @@ class _Setup:
         self.k = [c.k if c is not None else 0 for c in lineup.learners]
         self.K = int(stage.K)  # at least 1: the kernel keeps the last profile even when every learner is a bandit
         self.family = [c.family if c is not None else None for c in lineup.learners]
-        self.bandit = [f is not None and f != "q" for f in self.family]
+        self.bandit = [f is not None and f not in ("q", "fixed") for f in self.family]
+        self.fixed = [f == "fixed" for f in self.family]
         self.explore = [float(x) for x in seats.explore]
         self.noise = [float(x) for x in seats.noise]
         self.reward_lo = [float(x) for x in seats.reward_lo]
@@ -210,7 +212,9 @@ def _choose(st, Q, history, z, t, rng, arms):
     plays its state's action."""
     profile = []
     for i in range(st.n):
-        if st.bandit[i]:
+        if st.fixed[i]:
+            profile.append(_argmax(Q[i][tuple(history[: st.k[i]])]))
+        elif st.bandit[i]:
             profile.append(twin_choice(st.family[i], st.explore[i], *arms[i], rng))
         elif st.learner[i]:
             epsilon = math.exp(-st.beta[i] * t)
@@ -231,6 +235,8 @@ def _update(st, Q, states, history, profile, rng, arms, theta=1.0):
     profits = [theta * x for x in st.profits(profile)]
     changed = False
     for i in Q:
+        if st.fixed[i]:
+            continue
         row = Q[i][states[i]]
         before = _argmax(row)
         if st.bandit[i]:
@@ -277,7 +283,7 @@ def _kernel_layout(st, lineup, Q):
     return q_arr, greedy
 
 
-def reference_session(lineup, rng_state, convergence, max_periods, shock=0, sigma=0.0):
+def reference_session(lineup, rng_state, convergence, max_periods, shock=0, sigma=0.0, start=None):
     """One session, period by period.
 
     Parameters
@@ -293,6 +299,10 @@ def reference_session(lineup, rng_state, convergence, max_periods, shock=0, sigm
         The demand shock's code (:func:`sim.learning.shocks.shock_code`; 0: none).
     sigma : float
         Its standard deviation.
+    start : dict, optional
+        A saved session to continue (:func:`sim.learning.twin_start.session_row`; ``rng_state`` is then not used):
+        its history, Q-values, statistics, automaton states, record, stream and counters, as the kernel continues
+        one (``max_periods`` counts from the saved session's start).
 
     Returns
     -------
@@ -307,7 +317,7 @@ def reference_session(lineup, rng_state, convergence, max_periods, shock=0, sigm
     st = _Setup(lineup)
     # the learners' rewards: their own profits, or after a merger of their products the merged firm's profit
     st.profit_table = lineup.learning_stage.payoff.tolist()
-    rng = ReferenceStream(rng_state)
+    rng = ReferenceStream(rng_state if start is None else start["rng"])
     history = []
     for _lag in range(st.K):
         history.append(tuple(rng.next_below(st.m[i]) for i in range(st.n)))
@@ -318,6 +328,14 @@ def reference_session(lineup, rng_state, convergence, max_periods, shock=0, sigm
     t = 0
     stable = 0
     status = 1
+    if start is not None:
+        # a saved session: everything above replaced by what it had reached (sim.learning.twin_start)
+        c = twin_state(st, lineup, start)
+        rng, history, Q, arms, z, record, t, stable = (c[x] for x in ("rng", "history", "Q", "arms", "z", "record",
+                                                                       "t", "stable"))
+        if stable >= convergence:
+            # it had converged under this rule: no period is played, as in the kernel
+            status, max_periods = 0, t
     while t < max_periods:
         states = {i: tuple(history[: st.k[i]]) for i in Q}
         profile = _choose(st, Q, history, z, t, rng, arms)

@@ -14,7 +14,7 @@ import numpy as np
 from sim.core.errors import InputError
 from sim.learning.tables import LEARNER_PARAMS, learner_from_entry
 from strategies import Automaton, strategy_from_dict
-from strategies.qlearning import QLearner
+from strategies.qlearning import SEAT_NAMES, QLearner
 
 __all__ = ["Entrant", "as_entrants", "check_entrants", "entrants_from_tables", "rule_description"]
 
@@ -40,8 +40,11 @@ class Entrant:
 
     @property
     def name(self) -> str:
-        """The strategy's registry name (``grim_trigger``, ``qlearning``, ...)."""
-        return "qlearning" if self.learns else getattr(self.strategy, "name", type(self.strategy).__name__)
+        """The strategy's registry name (``grim_trigger``, ...), or a learner's family name (``qlearning``, ``ucb``,
+        ``thompson``, ``fixed``: :data:`strategies.qlearning.SEAT_NAMES`)."""
+        if self.learns:
+            return SEAT_NAMES.get(self.strategy.family, "qlearning")
+        return getattr(self.strategy, "name", type(self.strategy).__name__)
 
     def to_dict(self) -> dict:
         """The entrant as an ``[[entrants]]`` entry: ``label``, ``strategy`` and the parameters.
@@ -174,6 +177,9 @@ _RULE_NAMES = {
     "opportunist": "opportunist",
     "automaton": "user-defined automaton",
     "qlearning": "Q-learning firm",
+    "ucb": "UCB bandit firm",
+    "thompson": "Thompson-sampling bandit firm",
+    "fixed": "fixed learned policy",
 }
 
 

@@ -263,6 +263,14 @@ CASES = [
      "--exploration"),
     ("exploration for a Q-learner", "learn", "learn", ("k = 1\n", "k = 1\nexploration = 2.0\n"), [],
      "learning.exploration"),
+    ("fixed policy without its file", "learn", "learn", ("k = 1\n", 'k = 1\nfamily = "fixed"\nfirm = 1\n'), [],
+     "learning.policy_from"),
+    ("fixed policy from a missing file", "learn", "learn",
+     ("k = 1\n", 'k = 1\nfamily = "fixed"\nfirm = 1\npolicy_from = "none.npz"\n'), [], "learning.policy_from"),
+    ("policy file for a Q-learner", "learn", "learn", ("k = 1\n", 'k = 1\npolicy_from = "agents.npz"\n'), [],
+     "learning.policy_from"),
+    ("protocol event without saved learners", "learn", "learn", '\n[event]\nkind = "protocol"\n', [],
+     "learning.continue_from"),
 ]
 
 _OPTIONAL = ("{tmp}/input.toml",)

@@ -123,14 +123,15 @@ def test_a_merger_names_existing_learners_seats(still_learning):
     with pytest.raises(sim.InputError) as e:
         with_saved_grids(lineup, saved, 2, Event("merger", 100, 10, (1, 2)))
     assert e.value.key == "event.firms" and "automaton" in e.value.message
-    # the compiled line-up is checked too: a seat outside the market, an automaton, a bandit
+    # the compiled line-up is checked too: a seat outside the market, an automaton (bandits merge: see
+    # tests/learning/test_merger_bandits.py)
     lu = compile_lineup(logit_market(), [QLearner(m=7), strategies.GrimTrigger()])
-    bandits = compile_lineup(logit_market(), QLearner(m=7, family="ucb"))
-    for firms, lineup in (((1, 3), lu), ((1, 2), lu), ((1, 2), bandits)):
+    for firms, lineup in (((1, 3), lu), ((1, 2), lu)):
         with pytest.raises(sim.InputError) as e:
             check_merger(firms, lineup)
         assert e.value.key == "event.firms"
     check_merger((1, 2), still_learning.lineup)
+    check_merger((1, 2), compile_lineup(logit_market(), QLearner(m=7, family="ucb")))
 
 
 def test_a_merger_to_monopoly_raises_the_learned_prices(still_learning):
