@@ -1,0 +1,386 @@
+"""Learning from a profit signal: each Q-learner sees its own last price and whether its profit was low.
+
+After Calvano, Calzolari, Denicolò and Pastorello (2021), "Algorithmic collusion with imperfect monitoring",
+International Journal of Industrial Organization 79 (abstract read: firms cannot observe each other's prices, only
+a signal that demand shocks move; Q-learners learn to collude, sustained by finite "price wars" that both deviations
+and adverse shocks trigger, harsher at first and then fading), in the spirit of Green and Porter (1984),
+"Noncooperative collusion under imperfect price information", Econometrica 52. The protocol is stated here, not
+taken from the paper's text; it is the ``[learning] observe = "own_profit"`` setting (``"prices"``, the default, is
+the protocol of :mod:`sim.learning.kernel`: the state is the last periods' prices).
+
+The protocol
+------------
+* Learner ``i``'s state is ``o_i = a_i + m * low_i`` (``2 m`` states): ``a_i`` the index of its own price last
+  period, ``low_i`` whether its realised profit last period, ``theta * payoff[prof, i]`` (``theta`` the period's
+  demand shock, :mod:`sim.learning.shocks`), fell below ``(1 - band)`` times its *reference profit*
+  ``ref[i, a_i]``: the profit it would earn at its own price if every rival charged the same price (the profile
+  ``(a_i, ..., a_i)``, shock one). A low profit is what a rival's undercut and an adverse draw both give: the
+  learner cannot tell them apart, which is the monitoring problem of Green and Porter.
+* ``band`` is ``[learning] signal_band`` (default 0.1: a profit 10 % below the reference is low).
+* Two signal levels and no memory of rivals' prices keep the table small (``2 m`` states instead of ``m ** n``),
+  so that a session learns in a few hundred thousand periods; a third, "high", level would triple the states for a
+  signal that no punishment needs.
+* Everything else is the protocol of :func:`sim.learning.kernel.run_session` with its asynchronous rule:
+  simultaneous moves, exploration ``exp(-beta t)`` (one uniform, and a second when it explores, seats in order),
+  then the period's shock (one ziggurat normal with a shock), then the update of the value of the action played,
+  ``Q[o_i, a_i] <- (1 - alpha) Q[o_i, a_i] + alpha (theta payoff + delta max Q[o_i'])`` (Watkins and Dayan, 1992).
+* Every seat is a Q-learner with the asynchronous rule, the same number of prices and simultaneous moves; no
+  automata, bandits or events (:func:`check_signal_lineup` says so, naming ``learning.observe``).
+
+Layout
+------
+The kernel keeps its saved layout: learner ``i``'s state ``o_i`` is row ``o_i`` of ``Q[lidx[i]]``, whose ``M ** k``
+rows hold the ``2 m`` states (``2 m <= m ** n`` with two firms or more and ``m >= 2``); the other rows are never
+visited. The system state is one integer, ``x = sum_i o_i * (2 m) ** i``, returned where the price protocol returns
+its history state (and saved as ``history``).
+
+Greedy play after learning (:func:`signal_limit`) has no shock (``theta = 1``, the shock's mean): it is a map on
+``x``, whose cycle gives the limit prices. The impulse response to a deviation and the deviation's value are not
+computed for this protocol (their entries are nan): what it is for is the response to a shock,
+:mod:`sim.learning.shock_response`.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit
+
+from sim.core.errors import InputError
+from sim.core.params import Options, Real
+from sim.core.rng import ReferenceStream, next_below, next_double
+from sim.learning.inputs import AUTOMATON, Q_FAMILY, STATUS_CAP, STATUS_CONVERGED
+from sim.learning.shocks import demand_shock, twin_shock
+
+__all__ = ["OBSERVE", "SIGNAL_BAND", "SIGNAL_CONSTRAINTS", "check_signal_lineup", "reference_profits",
+           "reference_signal_session", "run_signal_session", "signal_limit", "signal_profile", "signal_start"]
+
+#: what a learner's state is made of: the last periods' prices (default), or its own price and a profit signal
+OBSERVE = ("prices", "own_profit")
+#: the default share below the reference profit that makes a profit low
+SIGNAL_BAND = 0.1
+#: the settings of the protocol, as data (keys of ``[learning]``)
+SIGNAL_CONSTRAINTS = {"observe": Options(*OBSERVE), "signal_band": Real(0, 1, closed="neither")}
+
+
+def check_signal_lineup(lineup, key: str = "learning.observe") -> None:
+    """Refuse a line-up the profit-signal protocol cannot run.
+
+    Parameters
+    ----------
+    lineup : sim.learning.lineup.Lineup
+    key : str
+        Key path of the setting in error messages.
+
+    Raises
+    ------
+    InputError
+        An automaton or a bandit, a learner with the synchronous or mixed rule, or seats with different numbers of
+        prices.
+    """
+    seats = lineup.seats
+    if (seats.kind == AUTOMATON).any() or (seats.family != Q_FAMILY).any():
+        raise InputError(key, "'own_profit' needs a Q-learner on every seat (no automata or bandits)")
+    if (seats.share > 0.0).any():
+        raise InputError(key, "'own_profit' needs the asynchronous update rule (learning.update = 'asynchronous')")
+    if (seats.radix != seats.radix[0]).any():
+        raise InputError(key, f"'own_profit' needs the same number of prices on every seat, got "
+                              f"{seats.radix.tolist()}")
+    if 2 * int(seats.radix[0]) > int(seats.mod.min()):
+        raise InputError(key, "'own_profit' needs at least 2 prices and 2 firms")
+
+
+def reference_profits(lineup) -> np.ndarray:
+    """Every learner's reference profit: its profit at its own price when every rival charges the same one.
+
+    Parameters
+    ----------
+    lineup : sim.learning.lineup.Lineup
+
+    Returns
+    -------
+    ref : ndarray of shape (n_seats, m)
+        ``ref[i, a] = payoff[(a, ..., a), i]`` of the learners' reward table (shock one).
+    """
+    seats, payoff = lineup.seats, lineup.learning_stage.payoff
+    m = int(seats.radix[0])
+    prof = np.arange(m)[:, None] * seats.place[None, :]
+    return np.ascontiguousarray(payoff[prof.sum(axis=1)].T)
+
+
+def signal_start(s: int, lineup) -> int:
+    """The system state at the start of a session: last period's prices of history state ``s``, no low profit.
+
+    Parameters
+    ----------
+    s : int
+        A history state of :func:`sim.learning.kernel.initial_state` (the same draws start both protocols).
+    lineup : sim.learning.lineup.Lineup
+
+    Returns
+    -------
+    int
+    """
+    seats = lineup.seats
+    prof = int(s) % int(lineup.stage.M)
+    w = 2 * int(seats.radix[0])
+    return sum(((prof // int(seats.place[i])) % int(seats.radix[i])) * w**i for i in range(seats.radix.size))
+
+
+def signal_profile(x: int, lineup) -> int:
+    """The profile number of last period's prices in system state ``x``.
+
+    Parameters
+    ----------
+    x : int
+    lineup : sim.learning.lineup.Lineup
+
+    Returns
+    -------
+    int
+    """
+    seats = lineup.seats
+    m = int(seats.radix[0])
+    return sum(((int(x) // (2 * m) ** i) % m) * int(seats.place[i]) for i in range(seats.radix.size))
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _low(realised, reference, band):
+    """Whether a realised profit is low against its reference."""
+    return realised < (1.0 - band) * reference
+
+
+@njit(cache=True, nogil=True)
+def run_signal_session(seats, stage, session, x, convergence, max_periods, shock, sigma, ref, band):
+    """Run one session of the profit-signal protocol from system state ``x`` until convergence or the cap.
+
+    Parameters
+    ----------
+    seats : SeatInputs
+    stage : StageInputs
+        The learners' stage game (their rewards).
+    session : SessionState
+        Modified in place, as :func:`sim.learning.kernel.run_session` does (``z``, ``triggers``, ``counts`` and
+        ``sums`` unused).
+    x : int
+        System state at the start (:func:`signal_start`).
+    convergence, max_periods : int
+        As :func:`sim.learning.kernel.run_session`.
+    shock : int
+        The demand shock's code (:func:`sim.learning.shocks.shock_code`).
+    sigma : float
+        Its standard deviation (with :data:`sim.learning.shocks.FORCED_SHOCK`, the shock itself).
+    ref : ndarray of shape (n, m)
+        :func:`reference_profits`.
+    band : float
+        The signal band, in (0, 1).
+
+    Returns
+    -------
+    status : int
+    periods : int
+    x : int
+        System state after the last period.
+    """
+    lidx, radix, alpha, beta, delta = seats.lidx, seats.radix, seats.alpha, seats.beta, seats.delta
+    payoff, place = stage.payoff, seats.place
+    Q, greedy, rng, clock = session.Q, session.greedy, session.rng, session.clock
+    n = radix.size
+    m = radix[0]
+    w = 2 * m
+    obs = np.empty(n, np.int64)
+    act = np.empty(n, np.int64)
+    t = clock[0]
+    stable = clock[1]
+    if stable >= convergence:
+        return STATUS_CONVERGED, t, x
+    while t < max_periods:
+        tf = np.float64(t)
+        prof = 0
+        for i in range(n):
+            obs[i] = (x // w**i) % w
+            eps = math.exp(-beta[i] * tf)
+            if next_double(rng) < eps:
+                a = next_below(rng, m)
+            else:
+                a = greedy[lidx[i], obs[i]]
+            act[i] = a
+            prof += a * place[i]
+        theta = demand_shock(shock, sigma, rng)
+        x_new = 0
+        for i in range(n):
+            r = theta * payoff[prof, i]
+            o_new = act[i] + m if _low(r, ref[i, act[i]], band) else act[i]
+            x_new += o_new * w**i
+        changed = False
+        for i in range(n):
+            li, a, o = lidx[i], act[i], obs[i]
+            on = (x_new // w**i) % w
+            old = Q[li, o, a]
+            new = (1.0 - alpha[i]) * old + alpha[i] * (theta * payoff[prof, i] + delta[i] * Q[li, on, greedy[li, on]])
+            Q[li, o, a] = new
+            g = greedy[li, o]
+            if a == g:
+                if new < old:
+                    best = 0
+                    bv = Q[li, o, 0]
+                    for j in range(1, m):
+                        if Q[li, o, j] > bv:
+                            bv = Q[li, o, j]
+                            best = j
+                    if best != g:
+                        greedy[li, o] = best
+                        changed = True
+            elif new > Q[li, o, g] or (new == Q[li, o, g] and a < g):
+                greedy[li, o] = a
+                changed = True
+        x = x_new
+        t += 1
+        if changed:
+            stable = 0
+        else:
+            stable += 1
+            if stable >= convergence:
+                clock[0], clock[1] = t, stable
+                return STATUS_CONVERGED, t, x
+    clock[0], clock[1] = t, stable
+    return STATUS_CAP, t, x
+
+
+def reference_signal_session(lineup, rng_state, convergence, max_periods, shock=0, sigma=0.0, band=SIGNAL_BAND):
+    """Plain-Python twin of :func:`run_signal_session` from a new session: slow, readable, the check on it.
+
+    States are tuples ``(own price index, low)``, Q-values a dictionary of lists keyed by them, the greedy action
+    recomputed with ``max`` on every use; the draws are the kernel's, in its order.
+
+    Parameters
+    ----------
+    lineup : sim.learning.lineup.Lineup
+    rng_state : array_like of uint64, shape (4,)
+        The session's generator state.
+    convergence, max_periods : int
+    shock : int
+    sigma : float
+    band : float
+
+    Returns
+    -------
+    dict
+        ``status``, ``periods``, ``state`` (the kernel's system state), ``Q`` (ndarray in the kernel's layout),
+        ``rng`` (the generator state after the last period).
+    """
+    seats = lineup.seats
+    n, m = int(seats.radix.size), int(seats.radix[0])
+    payoff = lineup.learning_stage.payoff.tolist()
+    ref = reference_profits(lineup).tolist()
+    place = [int(p) for p in seats.place]
+    rng = ReferenceStream(rng_state)
+    # the history draw of sim.learning.kernel.initial_state with K = 1: one price per seat
+    last = [rng.next_below(m) for _ in range(n)]
+    for _lag in range(1, int(lineup.stage.K)):
+        [rng.next_below(m) for _ in range(n)]
+    state = [(a, 0) for a in last]
+    q0 = lineup.q0
+    Q = [{(a, low): [float(v) for v in q0[int(seats.lidx[i]), a + m * low, :m]] for a in range(m) for low in (0, 1)}
+         for i in range(n)]
+    t, stable, status = 0, 0, 1
+    while t < max_periods:
+        acts = []
+        for i in range(n):
+            if rng.next_double() < math.exp(-float(seats.beta[i]) * t):
+                acts.append(rng.next_below(m))
+            else:
+                row = Q[i][state[i]]
+                acts.append(row.index(max(row)))
+        prof = sum(a * p for a, p in zip(acts, place))
+        theta = twin_shock(shock, sigma, rng)
+        new_state = [(acts[i], int(theta * payoff[prof][i] < (1.0 - band) * ref[i][acts[i]])) for i in range(n)]
+        changed = False
+        for i in range(n):
+            row = Q[i][state[i]]
+            before = row.index(max(row))
+            a, al, de = acts[i], float(seats.alpha[i]), float(seats.delta[i])
+            row[a] = (1.0 - al) * row[a] + al * (theta * payoff[prof][i] + de * max(Q[i][new_state[i]]))
+            changed = changed or row.index(max(row)) != before
+        state = new_state
+        t += 1
+        stable = 0 if changed else stable + 1
+        if stable >= convergence:
+            status = 0
+            break
+    q = lineup.q0.copy()
+    for i in range(n):
+        for (a, low), row in Q[i].items():
+            q[int(seats.lidx[i]), a + m * low, :m] = row
+    x = sum((a + m * low) * (2 * m) ** i for i, (a, low) in enumerate(state))
+    return {"status": status, "periods": t, "state": x, "Q": q, "rng": np.array(rng.s, dtype=np.uint64)}
+
+
+def _greedy_after(x: int, greedy: np.ndarray, lineup, ref: np.ndarray, band: float) -> tuple[int, int]:
+    """Greedy play without a shock from system state ``x``: the profile played and the state it leads to."""
+    seats, payoff = lineup.seats, lineup.learning_stage.payoff
+    n, m = int(seats.radix.size), int(seats.radix[0])
+    acts = [int(greedy[int(seats.lidx[i]), (x // (2 * m) ** i) % (2 * m)]) for i in range(n)]
+    prof = sum(a * int(p) for a, p in zip(acts, seats.place))
+    nxt = sum((a + m * int(payoff[prof, i] < (1.0 - band) * ref[i, a])) * (2 * m) ** i for i, a in enumerate(acts))
+    return prof, nxt
+
+
+def signal_path(x: int, greedy: np.ndarray, lineup, band: float, periods: int) -> np.ndarray:
+    """Profiles of greedy play without a shock from system state ``x``.
+
+    Parameters
+    ----------
+    x : int
+    greedy : ndarray of shape (n_learners, S)
+    lineup : sim.learning.lineup.Lineup
+    band : float
+    periods : int
+
+    Returns
+    -------
+    ndarray of int64, shape (periods,)
+    """
+    ref = reference_profits(lineup)
+    out = np.empty(periods, dtype=np.int64)
+    for tau in range(periods):
+        out[tau], x = _greedy_after(x, greedy, lineup, ref, band)
+    return out
+
+
+def signal_limit(x: int, greedy: np.ndarray, lineup, band: float, out) -> None:
+    """The limit cycle of greedy play without a shock from the state at the end of learning.
+
+    Parameters
+    ----------
+    x : int
+        System state at the end of learning.
+    greedy : ndarray of shape (n_learners, S)
+        The learned greedy tables.
+    lineup : sim.learning.lineup.Lineup
+    band : float
+    out : LimitOutputs
+        Receives the cycle, its means (over the stage game of ``lineup.stage``) and ``info[:3]`` (transient, cycle
+        length, 0 points); the impulse-response rows and the deviation entries are nan (the forced action -1).
+    """
+    ref = reference_profits(lineup)
+    seen: dict[int, int] = {}
+    profiles = []
+    while x not in seen:
+        seen[x] = len(profiles)
+        prof, x = _greedy_after(x, greedy, lineup, ref, band)
+        profiles.append(prof)
+    mu = seen[x]
+    cycle = profiles[mu:]
+    stage = lineup.stage
+    out.cycle[:] = -1
+    out.cycle[: min(len(cycle), out.cycle.size)] = cycle[: out.cycle.size]
+    out.lim_actions[:] = stage.actions[cycle].mean(axis=0)
+    out.lim_prices[:] = stage.prices[cycle].mean(axis=0)
+    out.lim_profits[:] = stage.payoff[cycle].mean(axis=0)
+    for arr in (out.ir_prices, out.ir_profits, out.cf_prices, out.cf_profits):
+        arr[:] = np.nan
+    out.info[:] = np.nan
+    out.info[0], out.info[1], out.info[2] = mu, len(cycle), 0
+    out.info[7] = -1  # no forced action: no deviation is analysed

@@ -1,0 +1,163 @@
+"""Q-learners that see their own last price and a coarse signal of their own profit (sim.learning.signals).
+
+Sources: Calvano, Calzolari, Denicolò and Pastorello (2021), "Algorithmic collusion with imperfect monitoring",
+International Journal of Industrial Organization 79 (abstract read: firms observe only a noisy signal, and Q-learners
+sustain collusion with finite price wars that adverse demand shocks trigger); Green and Porter (1984),
+"Noncooperative collusion under imperfect price information", Econometrica 52 (a low observed outcome, which a
+deviation and a bad demand draw both give, starts a temporary punishment); the Q-learning update of Watkins and
+Dayan (1992), checked by the plain-Python twin.
+"""
+
+from __future__ import annotations
+
+import math
+import subprocess
+import sys
+import tomllib
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+import sim
+import sim.learning.kernel as K
+import strategies
+from sim.core.errors import InputError
+from sim.core.rng import stream_states
+from sim.learning.lineup import compile_lineup
+from sim.learning.session import learn
+from sim.learning.shocks import FORCED_SHOCK
+from sim.learning.signals import (
+    check_signal_lineup,
+    reference_profits,
+    reference_signal_session,
+    run_signal_session,
+    signal_profile,
+    signal_start,
+)
+from sim.learning.tables import learning_from_dict
+from strategies.qlearning import QLearner
+
+NEVER = 2**62
+EXPERIMENT = Path(__file__).parents[2] / "experiments" / "learning-profit-signal.toml"
+
+
+def logit_market(n=2):
+    return sim.Market(sim.LogitDemand(quality=2.0, outside=0.0, mu=0.25), cost=1.0, model="bertrand", n_firms=n)
+
+
+def _kernel(lu, seed, periods, shock, sigma, band):
+    rng = stream_states(seed, (0,), 0, 1)[0].copy()
+    session = lu.session_state(rng)
+    x = signal_start(K.initial_state(rng, lu.seats, lu.stage), lu)
+    status, t, x = run_signal_session(lu.seats, lu.learning_stage, session, x, NEVER, periods, shock, sigma,
+                                      reference_profits(lu), band)
+    return session, rng, x
+
+
+# ---- kernel against its twin, bit for bit ------------------------------------------------------------------
+
+@pytest.mark.parametrize("n, m, k, shock, sigma, band", [
+    (2, 5, 1, 0, 0.0, 0.1),          # no shock: only rivals' prices make a profit low
+    (2, 5, 1, 1, 0.3, 0.1),          # lognormal shock
+    (3, 4, 1, 2, 0.25, 0.2),         # three firms, normal shock
+    (2, 4, 2, 1, 0.2, 0.05),         # memory 2 in the saved layout (more rows than the signal uses)
+    (2, 4, 1, FORCED_SHOCK, 0.5, 0.1),  # every period forced low
+])
+def test_signal_kernel_and_twin_agree_bit_for_bit(n, m, k, shock, sigma, band):
+    lu = compile_lineup(logit_market(n), QLearner(m=m, k=k, beta=2e-3))
+    session, rng, x = _kernel(lu, 7, 1500, shock, sigma, band)
+    r = reference_signal_session(lu, stream_states(7, (0,), 0, 1)[0].copy(), NEVER, 1500, shock, sigma, band)
+    assert np.array_equal(session.Q, r["Q"]) and np.array_equal(rng, r["rng"]) and x == r["state"]
+    # the greedy table the kernel keeps is the first argmax of its rows (the twin recomputes it)
+    rows = 2 * m
+    assert np.array_equal(session.greedy[:, :rows], np.argmax(session.Q[:, :rows, :m], axis=2))
+
+
+def test_a_forced_adverse_draw_makes_every_profit_low_and_leaves_the_prices():
+    lu = compile_lineup(logit_market(), QLearner(m=5, beta=1e-3))
+    _s, _r, x_forced = _kernel(lu, 3, 1, FORCED_SHOCK, 0.5, 0.1)
+    _s, _r, x_plain = _kernel(lu, 3, 1, 0, 0.0, 0.1)
+    m, w = 5, 10
+    # the same prices (the shock is drawn after the choices), both firms low only with the forced draw
+    assert signal_profile(x_forced, lu) == signal_profile(x_plain, lu)
+    assert all((x_forced // w**i) % w >= m for i in range(2))
+    # the reference profit is the profit at the symmetric profile (Green and Porter's "normal" outcome)
+    ref = reference_profits(lu)
+    for a in range(m):
+        assert ref[0, a] == lu.learning_stage.payoff[a * (1 + m), 0]
+        assert math.isclose(ref[1, a], ref[0, a], rel_tol=1e-12)  # symmetric firms, up to rounding
+
+
+# ---- bad input ----------------------------------------------------------------------------------------------
+
+DOC = """
+[experiment]
+kind = "learn"
+[market]
+model = "bertrand"
+demand = "logit"
+quality = 2.0
+outside = 0.0
+mu = 0.25
+cost = 1.0
+n_firms = 2
+[learning]
+m = 4
+beta = 1e-2
+convergence = 50
+max_periods = 5000
+{extra}
+[run]
+sessions = 2
+"""
+
+
+@pytest.mark.parametrize("extra, key, words", [
+    ('observe = "rivals"', "learning.observe", "rivals"),
+    ('observe = "own_profit"\nsignal_band = 1.5', "learning.signal_band", "1.5"),
+    ('observe = "own_profit"\nupdate = "synchronous"', "learning.observe", "asynchronous"),
+    ('observe = "own_profit"\ntiming = "alternating"', "learning.observe", "simultaneous"),
+])
+def test_bad_signal_settings_name_their_key(extra, key, words):
+    with pytest.raises(InputError) as exc:
+        learning_from_dict(tomllib.loads(DOC.format(extra=extra)))
+    assert exc.value.key == key and words in str(exc.value)
+
+
+def test_an_automaton_seat_is_refused_and_the_default_writes_nothing():
+    lu = compile_lineup(logit_market(), [QLearner(m=4), strategies.GrimTrigger()])
+    with pytest.raises(InputError) as exc:
+        check_signal_lineup(lu)
+    assert exc.value.key == "learning.observe"
+    cfg = learning_from_dict(tomllib.loads(DOC.format(extra='observe = "prices"')))
+    assert "observe" not in cfg["settings"] and "signal_band" not in cfg["settings"]
+
+
+def test_a_bad_observe_value_is_one_line_exit_2_nothing_written(tmp_path):
+    f = tmp_path / "bad.toml"
+    f.write_text(DOC.format(extra='observe = "everything"'))
+    out = tmp_path / "out"
+    r = subprocess.run([sys.executable, "-m", "sim", "run", str(f), "--out", str(out)], capture_output=True,
+                       text=True, cwd=tmp_path)
+    lines = r.stderr.strip().splitlines()
+    assert r.returncode == 2 and len(lines) == 1 and "learning.observe" in lines[0] and "Traceback" not in r.stderr
+    assert not out.exists()
+
+
+# ---- a whole run --------------------------------------------------------------------------------------------
+
+def test_a_run_learns_converges_and_reports_its_limit_cycle():
+    kw = {"sessions": 3, "seed": 5, "convergence": 500, "max_periods": 200_000, "workers": 1, "progress": False}
+    res = learn(logit_market(), QLearner(m=5, beta=2e-3), observe="own_profit", signal_band=0.1,
+                demand_sigma=0.1, **kw)
+    assert res.converged.all() and res.settings["observe"] == "own_profit"
+    lu = res.lineup
+    for j in range(3):
+        cyc = np.array(res.cycles[j])
+        assert cyc.shape[0] == res.cycle_length[j] >= 1
+        # the limit prices are the means over the cycle of greedy play without a shock
+        assert np.allclose(res.limit_prices[j], np.mean([lu.stage.prices[int(c)] for c in
+                                                         [lu.seats.place @ row for row in cyc]], axis=0))
+    plain = learn(logit_market(), QLearner(m=5, beta=2e-3), demand_sigma=0.1, **kw)
+    assert "observe" not in plain.settings
