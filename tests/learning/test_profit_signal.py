@@ -50,7 +50,7 @@ def _kernel(lu, seed, periods, shock, sigma, band):
     rng = stream_states(seed, (0,), 0, 1)[0].copy()
     session = lu.session_state(rng)
     x = signal_start(K.initial_state(rng, lu.seats, lu.stage), lu)
-    status, t, x = run_signal_session(lu.seats, lu.learning_stage, session, x, NEVER, periods, shock, sigma,
+    _status, _t, x = run_signal_session(lu.seats, lu.learning_stage, session, x, NEVER, periods, shock, sigma,
                                       reference_profits(lu), band)
     return session, rng, x
 
