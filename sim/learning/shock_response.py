@@ -29,7 +29,7 @@ from sim.learning.inputs import STATUS_CONVERGED, SessionState
 from sim.learning.shocks import FORCED_SHOCK, shock_code
 from sim.learning.signals import reference_profits, run_signal_session, signal_profile
 
-__all__ = ["ShockResponse", "shock_response"]
+__all__ = ["PriceCuts", "ShockResponse", "price_cuts", "shock_response"]
 
 #: the session goes on learning without stopping: its convergence counter never reaches this
 _NEVER = 2**62
@@ -134,3 +134,56 @@ def shock_response(result, theta: float, periods: int = 20) -> ShockResponse:
     change = [mean_estimate(d[:, r], level) for r in range(periods + 1)]
     wars = int(np.sum((d[:, 2:] < -_TOL).any(axis=1)))
     return ShockResponse(float(theta), w, wo, change, wilson_estimate(wars, int(done.size), level))
+
+
+@dataclass(frozen=True)
+class PriceCuts:
+    """Temporary price cuts after the adverse draw: how often, how deep, how long.
+
+    Attributes
+    ----------
+    cut : Estimate
+        Share of sessions whose mean price falls, against the path without the draw, in period 2 (the first period
+        whose prices can react to the draw) (Wilson interval).
+    temporary : Estimate
+        Share of sessions with such a cut whose prices are those of the path without the draw again in the last
+        ``tail`` periods followed (Wilson interval): a price war that ends.
+    depth : Estimate
+        Mean, over the sessions with a cut, of the change of the mean price in period 2 (negative: a cut).
+    duration : Estimate
+        Mean, over the temporary cuts, of the periods from period 2 to the last period whose prices differ from
+        those without the draw, both counted.
+    """
+
+    cut: Estimate
+    temporary: Estimate
+    depth: Estimate
+    duration: Estimate
+
+
+def price_cuts(resp: ShockResponse, tail: int = 4, level: float = 0.95) -> PriceCuts:
+    """Count the temporary price cuts of a shock response: prices fall at once and come back.
+
+    Parameters
+    ----------
+    resp : ShockResponse
+        With at least ``tail + 2`` periods followed.
+    tail : int
+        A cut is temporary when the prices of the last ``tail`` periods are those without the draw.
+    level : float
+        Confidence level of the intervals.
+
+    Returns
+    -------
+    PriceCuts
+    """
+    d = resp.with_draw - resp.without_draw
+    n = d.shape[0]
+    if d.shape[1] < tail + 3:
+        raise InputError("periods", f"must be at least {tail + 2} to tell a temporary cut, got {d.shape[1] - 1}")
+    moved = np.abs(d) > _TOL
+    cut = d[:, 2] < -_TOL
+    temporary = cut & ~moved[:, -tail:].any(axis=1)
+    last = np.array([np.flatnonzero(moved[j]).max() if moved[j].any() else 2 for j in range(n)])
+    return PriceCuts(wilson_estimate(int(cut.sum()), n, level), wilson_estimate(int(temporary.sum()), n, level),
+                     mean_estimate(d[cut, 2], level), mean_estimate((last[temporary] - 1).astype(float), level))
