@@ -22,8 +22,15 @@ from sim.learning.saved import save_learners
 from sim.learning.session import learn
 from sim.learning.shock_response import price_cuts, shock_response
 
-__all__ = ["LearnResult", "LearnSpec", "SIGNAL_DRAW_SD", "SIGNAL_RESPONSE_PERIODS", "learn_analysis", "learn_result",
-           "signal_response"]
+__all__ = [
+    "SIGNAL_DRAW_SD",
+    "SIGNAL_RESPONSE_PERIODS",
+    "LearnResult",
+    "LearnSpec",
+    "learn_analysis",
+    "learn_result",
+    "signal_response",
+]
 
 #: with the profit signal, the adverse draw forced after learning lies this many standard deviations of ``log theta``
 #: below its median: ``theta = exp(-3 sigma - sigma^2 / 2)`` (0.74 at sigma = 0.1)
