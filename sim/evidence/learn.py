@@ -17,6 +17,7 @@ from sim.evidence.learn_alternating import alternating_figure, alternating_lines
 from sim.evidence.learn_automata import automaton_lines
 from sim.evidence.learn_event import event_figure, event_lines
 from sim.evidence.learn_shocks import shock_lines
+from sim.evidence.learn_signals import signal_figure, signal_lines
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.thresholds import describe_market
 from sim.learning.analysis import LearnResult
@@ -221,9 +222,12 @@ def console(res: LearnResult) -> str:
     str
     """
     moves = alternating_lines(res) or _impulse_lines(res)  # alternating moves have no impulse response
+    if res.settings.get("observe") == "own_profit":
+        moves = []  # nor has the profit signal (sim.learning.signals)
     lines = [learn_headline(res), "", *_setup_lines(res)] + _limit_lines(res) + moves
     lines += automaton_lines(res)
     lines += event_lines(res)
+    lines += signal_lines(res)
     lines += ["", CAUTION]
     return "\n".join(lines)
 
@@ -345,9 +349,13 @@ def figures(res: LearnResult) -> list[Drawn]:
     """
     alt = alternating_figure(res)
     out = [_impulse_figure(res)] if res.summary["impulse_response"]["prices"]["mean"] and alt is None else []
+    if res.settings.get("observe") == "own_profit":
+        out = []
     out += [_histogram_figure(res), _heatmap_figure(res)] + ([alt] if alt is not None else [])
     after = event_figure(res)
-    return out if after is None else [*out, after]
+    out = out if after is None else [*out, after]
+    war = signal_figure(res)
+    return out if war is None else [*out, war]
 
 
 RENDERER = Renderer(console=console, as_json=as_json, figures=figures,
