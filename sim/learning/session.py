@@ -314,9 +314,8 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
         s = int(start.history[j])
     if "observe" in settings:
         band = settings["signal_band"]
-        st, t, s = SG.run_signal_session(lineup.seats, lineup.learning_stage, session, s, settings["convergence"],
-                                         settings["max_periods"], *_shock(settings), SG.reference_profits(lineup),
-                                         band)
+        st, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s,
+                                 settings["convergence"], settings["max_periods"], *_shock(settings), 1, band)
         buf.status[j], buf.periods[j] = st, t
         buf.store(j, session, s)
         SG.signal_limit(s, session.greedy, lineup, band, buf.outputs(j))

@@ -27,7 +27,7 @@ from sim.core.errors import InputError
 from sim.core.stats import Estimate, mean_estimate, wilson_estimate
 from sim.learning.inputs import STATUS_CONVERGED, SessionState
 from sim.learning.shocks import FORCED_SHOCK, shock_code
-from sim.learning.signals import reference_profits, run_signal_session, signal_profile
+from sim.learning.signals import OBSERVE_CODES, signal_profile
 
 __all__ = ["PriceCuts", "ShockResponse", "price_cuts", "shock_response"]
 
@@ -66,7 +66,7 @@ def _path(lineup, saved, j: int, s0: int, periods: int, code: int, sigma: float,
     """Mean prices over firms of session ``j`` going on from its saved state (row 0: before the first period); with
     ``band``, under the profit-signal protocol."""
     stage, m = lineup.stage, int(lineup.stage.M)
-    ref = None if band is None else reference_profits(lineup)
+    observe = OBSERVE_CODES["prices" if band is None else "own_profit"]
     rng = saved.rng[j].copy()
     session = SessionState(saved.Q[j].copy(), saved.greedy[j].copy(), saved.z[j].copy(), rng, saved.clock[j].copy(),
                            saved.triggers[j].copy(), saved.counts[j].copy(), saved.sums[j].copy())
@@ -76,12 +76,8 @@ def _path(lineup, saved, j: int, s0: int, periods: int, code: int, sigma: float,
     out[0] = stage.prices[_last(s, m, lineup, band)].mean()
     for tau in range(periods):
         c, sg = (FORCED_SHOCK, forced) if forced is not None and tau == 0 else (code, sigma)
-        if band is None:
-            _status, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s, _NEVER,
-                                          t + 1, c, sg)
-        else:
-            _status, t, s = run_signal_session(lineup.seats, lineup.learning_stage, session, s, _NEVER, t + 1, c, sg,
-                                               ref, band)
+        _status, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s, _NEVER, t + 1,
+                                      c, sg, observe, 0.0 if band is None else band)
         out[tau + 1] = stage.prices[_last(s, m, lineup, band)].mean()
     return out
 

@@ -27,6 +27,13 @@ The protocol
 * Every seat is a Q-learner with the asynchronous rule, the same number of prices and simultaneous moves; no
   automata, bandits or events (:func:`check_signal_lineup` says so, naming ``learning.observe``).
 
+Where it runs
+-------------
+In the learning kernel itself, :func:`sim.learning.kernel.run_session` with ``observe = 1``: the kernel reads a
+learner's state with :func:`signal_state` and computes the next one, once the period's shock is drawn, with
+:func:`signal_code` (both inlined); the draws, the update and the greedy bookkeeping are those of the prices
+protocol. :func:`reference_signal_session` is its plain-Python twin.
+
 Layout
 ------
 The kernel keeps its saved layout: learner ``i``'s state ``o_i`` is row ``o_i`` of ``Q[lidx[i]]``, whose ``M ** k``
@@ -49,15 +56,18 @@ from numba import njit
 
 from sim.core.errors import InputError
 from sim.core.params import Options, Real
-from sim.core.rng import ReferenceStream, next_below, next_double
-from sim.learning.inputs import AUTOMATON, Q_FAMILY, STATUS_CAP, STATUS_CONVERGED
-from sim.learning.shocks import demand_shock, twin_shock
+from sim.core.rng import ReferenceStream
+from sim.learning.inputs import AUTOMATON, Q_FAMILY
+from sim.learning.shocks import twin_shock
 
-__all__ = ["OBSERVE", "SIGNAL_BAND", "SIGNAL_CONSTRAINTS", "check_signal_lineup", "reference_profits",
-           "reference_signal_session", "run_signal_session", "signal_limit", "signal_profile", "signal_start"]
+__all__ = ["OBSERVE", "OBSERVE_CODES", "SIGNAL_BAND", "SIGNAL_CONSTRAINTS", "check_signal_lineup", "reference_profits",
+           "reference_signal_session", "signal_code", "signal_limit", "signal_profile", "signal_start",
+           "signal_state"]
 
 #: what a learner's state is made of: the last periods' prices (default), or its own price and a profit signal
 OBSERVE = ("prices", "own_profit")
+#: the kernel's code of each (``observe`` of :func:`sim.learning.kernel.run_session`)
+OBSERVE_CODES = {"prices": 0, "own_profit": 1}
 #: the default share below the reference profit that makes a profit low
 SIGNAL_BAND = 0.1
 #: the settings of the protocol, as data (keys of ``[learning]``)
@@ -146,110 +156,21 @@ def signal_profile(x: int, lineup) -> int:
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _low(realised, reference, band):
-    """Whether a realised profit is low against its reference."""
-    return realised < (1.0 - band) * reference
+def signal_state(x, i, width):
+    """Learner ``i``'s state ``o_i`` in system state ``x`` (``width = 2 m``)."""
+    return (x // width**i) % width
 
 
-@njit(cache=True, nogil=True)
-def run_signal_session(seats, stage, session, x, convergence, max_periods, shock, sigma, ref, band):
-    """Run one session of the profit-signal protocol from system state ``x`` until convergence or the cap.
-
-    Parameters
-    ----------
-    seats : SeatInputs
-    stage : StageInputs
-        The learners' stage game (their rewards).
-    session : SessionState
-        Modified in place, as :func:`sim.learning.kernel.run_session` does (``z``, ``triggers``, ``counts`` and
-        ``sums`` unused).
-    x : int
-        System state at the start (:func:`signal_start`).
-    convergence, max_periods : int
-        As :func:`sim.learning.kernel.run_session`.
-    shock : int
-        The demand shock's code (:func:`sim.learning.shocks.shock_code`).
-    sigma : float
-        Its standard deviation (with :data:`sim.learning.shocks.FORCED_SHOCK`, the shock itself).
-    ref : ndarray of shape (n, m)
-        :func:`reference_profits`.
-    band : float
-        The signal band, in (0, 1).
-
-    Returns
-    -------
-    status : int
-    periods : int
-    x : int
-        System state after the last period.
-    """
-    lidx, radix, alpha, beta, delta = seats.lidx, seats.radix, seats.alpha, seats.beta, seats.delta
-    payoff, place = stage.payoff, seats.place
-    Q, greedy, rng, clock = session.Q, session.greedy, session.rng, session.clock
-    n = radix.size
-    m = radix[0]
-    w = 2 * m
-    obs = np.empty(n, np.int64)
-    act = np.empty(n, np.int64)
-    t = clock[0]
-    stable = clock[1]
-    if stable >= convergence:
-        return STATUS_CONVERGED, t, x
-    while t < max_periods:
-        tf = np.float64(t)
-        prof = 0
-        for i in range(n):
-            obs[i] = (x // w**i) % w
-            eps = math.exp(-beta[i] * tf)
-            if next_double(rng) < eps:
-                a = next_below(rng, m)
-            else:
-                a = greedy[lidx[i], obs[i]]
-            act[i] = a
-            prof += a * place[i]
-        theta = demand_shock(shock, sigma, rng)
-        x_new = 0
-        for i in range(n):
-            r = theta * payoff[prof, i]
-            o_new = act[i] + m if _low(r, ref[i, act[i]], band) else act[i]
-            x_new += o_new * w**i
-        changed = False
-        for i in range(n):
-            li, a, o = lidx[i], act[i], obs[i]
-            on = (x_new // w**i) % w
-            old = Q[li, o, a]
-            new = (1.0 - alpha[i]) * old + alpha[i] * (theta * payoff[prof, i] + delta[i] * Q[li, on, greedy[li, on]])
-            Q[li, o, a] = new
-            g = greedy[li, o]
-            if a == g:
-                if new < old:
-                    best = 0
-                    bv = Q[li, o, 0]
-                    for j in range(1, m):
-                        if Q[li, o, j] > bv:
-                            bv = Q[li, o, j]
-                            best = j
-                    if best != g:
-                        greedy[li, o] = best
-                        changed = True
-            elif new > Q[li, o, g] or (new == Q[li, o, g] and a < g):
-                greedy[li, o] = a
-                changed = True
-        x = x_new
-        t += 1
-        if changed:
-            stable = 0
-        else:
-            stable += 1
-            if stable >= convergence:
-                clock[0], clock[1] = t, stable
-                return STATUS_CONVERGED, t, x
-    clock[0], clock[1] = t, stable
-    return STATUS_CAP, t, x
+@njit(cache=True, nogil=True, inline="always")
+def signal_code(a, realised, reference, band, m):
+    """A learner's next state: its price ``a``, plus ``m`` when its realised profit is below ``1 - band`` times its
+    reference."""
+    return a + m if realised < (1.0 - band) * reference else a
 
 
 def reference_signal_session(lineup, rng_state, convergence, max_periods, shock=0, sigma=0.0, band=SIGNAL_BAND):
-    """Plain-Python twin of :func:`run_signal_session` from a new session: slow, readable, the check on it.
+    """Plain-Python twin of :func:`sim.learning.kernel.run_session` with ``observe = 1``, from a new session: slow,
+    readable, the check on it.
 
     States are tuples ``(own price index, low)``, Q-values a dictionary of lists keyed by them, the greedy action
     recomputed with ``max`` on every use; the draws are the kernel's, in its order.

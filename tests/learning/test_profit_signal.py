@@ -31,7 +31,6 @@ from sim.learning.signals import (
     check_signal_lineup,
     reference_profits,
     reference_signal_session,
-    run_signal_session,
     signal_profile,
     signal_start,
 )
@@ -50,8 +49,8 @@ def _kernel(lu, seed, periods, shock, sigma, band):
     rng = stream_states(seed, (0,), 0, 1)[0].copy()
     session = lu.session_state(rng)
     x = signal_start(K.initial_state(rng, lu.seats, lu.stage), lu)
-    _status, _t, x = run_signal_session(lu.seats, lu.learning_stage, session, x, NEVER, periods, shock, sigma,
-                                      reference_profits(lu), band)
+    _status, _t, x = K.run_session(lu.seats, lu.learning_stage, lu.automata, session, x, NEVER, periods, shock, sigma,
+                                   1, band)
     return session, rng, x
 
 
