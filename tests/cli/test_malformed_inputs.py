@@ -263,6 +263,10 @@ CASES = [
      "--exploration"),
     ("exploration for a Q-learner", "learn", "learn", ("k = 1\n", "k = 1\nexploration = 2.0\n"), [],
      "learning.exploration"),
+    # what the learners observe (sim.learning.signals)
+    ("unknown observation", "learn", "learn", ("k = 1\n", 'k = 1\nobserve = "rivals_costs"\n'), [], "learning.observe"),
+    ("signal band of one", "learn", "learn", ("k = 1\n", 'k = 1\nobserve = "own_profit"\nsignal_band = 1.0\n'), [],
+     "learning.signal_band"),
 ]
 
 _OPTIONAL = ("{tmp}/input.toml",)
