@@ -169,12 +169,9 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         cannot be saved, continued or followed by an event.
     demand_noise, demand_sigma : {"lognormal", "normal"}, float
         Mean-one demand shock scaling every realised profit, its standard deviation (0: none; sim.learning.shocks).
-    observe : {"prices", "own_profit"}
-        What a learner's state is made of: the last periods' prices, or its own last price and whether its profit
-        fell below ``1 - signal_band`` times its reference profit (:mod:`sim.learning.signals`; Q-learners only,
-        asynchronous rule, simultaneous moves, no event).
-    signal_band : float in (0, 1)
-        The band of the profit signal (used with ``observe = "own_profit"``).
+    observe, signal_band : {"prices", "own_profit"}, float in (0, 1)
+        A learner's state: the last periods' prices, or its own last price and whether its profit fell below
+        ``1 - signal_band`` times its reference profit (Q-learners only, no event; :mod:`sim.learning.signals`).
 
     Returns
     -------
@@ -196,20 +193,27 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         check_alternating(lineup, start, keep, event)
         return _run_alternating(lineup, {**settings, "timing": "alternating"}, progress)
     market_doc = market.to_dict() if hasattr(market, "to_dict") else None
+    start, lineup, what = _checked_start(start, event, lineup, market_doc, run["sessions"])
+    if keep:
+        _check_kept_memory(lineup, run["sessions"])
+    return _run_sessions(lineup, settings, dev_index, progress, start, keep, market_doc,
+                         (event, what) if what is not None else None)
+
+
+def _checked_start(start, event, lineup: Lineup, market_doc: dict | None, sessions: int):
+    """Saved sessions to continue, checked (and adapted to an event, whose words are returned, with the line-up
+    after it)."""
     what = None
     if start is not None and event is not None:
-        check_event(start, lineup, event, run["sessions"])
+        check_event(start, lineup, event, sessions)
         what = _event_words(start, lineup, market_doc, event)
         start = adapt_saved(start, lineup, event)
         if event.kind == "merger":
             lineup = merged_lineup(lineup, event.firms)
     elif start is not None:
         refuse_merged(start)
-        check_start(start, lineup, market_doc, run["sessions"])
-    if keep:
-        _check_kept_memory(lineup, run["sessions"])
-    return _run_sessions(lineup, settings, dev_index, progress, start, keep, market_doc,
-                         (event, what) if what is not None else None)
+        check_start(start, lineup, market_doc, sessions)
+    return start, lineup, what
 
 
 def _event_words(saved: SavedLearners, lineup: Lineup, market: dict | None, event: Event) -> str:

@@ -157,14 +157,45 @@ def signal_profile(x: int, lineup) -> int:
 
 @njit(cache=True, nogil=True, inline="always")
 def signal_state(x, i, width):
-    """Learner ``i``'s state ``o_i`` in system state ``x`` (``width = 2 m``)."""
+    """Learner ``i``'s state ``o_i`` in system state ``x``.
+
+    Parameters
+    ----------
+    x : int
+        The system state, ``sum_i o_i * width ** i``.
+    i : int
+        The seat.
+    width : int
+        States of a learner, ``2 m``.
+
+    Returns
+    -------
+    int
+    """
     return (x // width**i) % width
 
 
 @njit(cache=True, nogil=True, inline="always")
 def signal_code(a, realised, reference, band, m):
-    """A learner's next state: its price ``a``, plus ``m`` when its realised profit is below ``1 - band`` times its
-    reference."""
+    """A learner's next state: its price ``a``, plus ``m`` when its realised profit is low.
+
+    Parameters
+    ----------
+    a : int
+        The index of the price it charged.
+    realised : float
+        Its realised profit, ``theta * payoff[prof, i]``.
+    reference : float
+        Its reference profit at ``a`` (:func:`reference_profits`).
+    band : float
+        Low: ``realised < (1 - band) * reference``.
+    m : int
+        Its number of prices.
+
+    Returns
+    -------
+    int
+    """
     return a + m if realised < (1.0 - band) * reference else a
 
 
