@@ -92,7 +92,13 @@ from sim.learning.results import (
 )
 from sim.learning.saved import SavedLearners, check_start, describe_layout
 from sim.learning.shocks import shock_code
-from sim.learning.signals import SIGNAL_BAND, SIGNAL_CONSTRAINTS, check_signal_lineup, signal_start
+from sim.learning.signals import (
+    SIGNAL_BAND,
+    SIGNAL_CONSTRAINTS,
+    check_saved_observe,
+    check_signal_lineup,
+    signal_start,
+)
 from sim.learning.tables import RUN_CONSTRAINTS
 from sim.learning.twin import reference_session as _reference
 
@@ -193,6 +199,8 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         check_alternating(lineup, start, keep, event)
         return _run_alternating(lineup, {**settings, "timing": "alternating"}, progress)
     market_doc = market.to_dict() if hasattr(market, "to_dict") else None
+    if start is not None:
+        check_saved_observe(start.header, settings.get("observe", "prices"), "observe")
     start, lineup, what = _checked_start(start, event, lineup, market_doc, run["sessions"])
     if keep:
         _check_kept_memory(lineup, run["sessions"])
@@ -430,6 +438,8 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
                   "cell": settings["cell"]}
         if event is not None and event[0].kind == "merger":
             header["merged"] = list(event[0].firms)
+        if "observe" in settings:
+            header["observe"] = settings["observe"]  # written only where it is not the prices protocol
         saved = SavedLearners(**buf.saved, status=buf.status.copy(), header=header)
     ev = None if event is None else {"event": event[0], "what": event[1], "path": buf.path, "settle": buf.settle}
     if ev is not None and event[0].kind == "merger":

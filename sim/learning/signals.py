@@ -60,9 +60,21 @@ from sim.core.rng import ReferenceStream
 from sim.learning.inputs import AUTOMATON, Q_FAMILY
 from sim.learning.shocks import twin_shock
 
-__all__ = ["OBSERVE", "OBSERVE_CODES", "SIGNAL_BAND", "SIGNAL_CONSTRAINTS", "check_signal_lineup", "reference_profits",
-           "reference_signal_session", "signal_code", "signal_limit", "signal_profile", "signal_start",
-           "signal_state"]
+__all__ = [
+    "OBSERVE",
+    "OBSERVE_CODES",
+    "SIGNAL_BAND",
+    "SIGNAL_CONSTRAINTS",
+    "check_saved_observe",
+    "check_signal_lineup",
+    "reference_profits",
+    "reference_signal_session",
+    "signal_code",
+    "signal_limit",
+    "signal_profile",
+    "signal_start",
+    "signal_state",
+]
 
 #: what a learner's state is made of: the last periods' prices (default), or its own price and a profit signal
 OBSERVE = ("prices", "own_profit")
@@ -99,6 +111,28 @@ def check_signal_lineup(lineup, key: str = "learning.observe") -> None:
                               f"{seats.radix.tolist()}")
     if 2 * int(seats.radix[0]) > int(seats.mod.min()):
         raise InputError(key, "'own_profit' needs at least 2 prices and 2 firms")
+
+
+def check_saved_observe(header: dict, observe: str, key: str) -> None:
+    """Refuse saved sessions learned under another protocol (their saved state means something else).
+
+    Parameters
+    ----------
+    header : dict
+        The saved sessions' header (:class:`sim.learning.saved.SavedLearners`); ``observe`` absent means ``"prices"``.
+    observe : {"prices", "own_profit"}
+        The protocol of the run about to continue them.
+    key : str
+        Key path of the setting in error messages.
+
+    Raises
+    ------
+    InputError
+    """
+    saved = header.get("observe", "prices")
+    if saved != observe:
+        raise InputError(key, f"the saved learners observed {saved!r}; this run observes {observe!r} (their states "
+                              "mean different things: continue them with the same setting)")
 
 
 def reference_profits(lineup) -> np.ndarray:

@@ -18,7 +18,7 @@ from sim.learning.merger import refuse_merged
 from sim.learning.results import LIMIT_PERIODS
 from sim.learning.saved import check_start, load_learners
 from sim.learning.shocks import SHOCK_CONSTRAINTS, shock_code
-from sim.learning.signals import SIGNAL_BAND, SIGNAL_CONSTRAINTS, check_signal_lineup
+from sim.learning.signals import SIGNAL_BAND, SIGNAL_CONSTRAINTS, check_saved_observe, check_signal_lineup
 from sim.models.market import market_from_dict
 from strategies import strategy_from_dict
 from strategies.qlearning import QLearner
@@ -271,6 +271,8 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
         check_start(start, lineup, market.to_dict(), settings["sessions"], "learning.continue_from")
     elif start is not None:
         check_event(start, lineup, event, settings["sessions"], "learning.continue_from")
+    if start is not None:
+        check_saved_observe(start.header, settings.get("observe", "prices"), "learning.observe")
     return {"market": market, "learner": learner, "settings": settings, "save_to": save_to, "start": start,
             "event": event, "waiting": event is not None and start is None}
 

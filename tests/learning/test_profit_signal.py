@@ -229,3 +229,21 @@ def test_a_learn_result_with_the_signal_round_trips_and_reports_its_price_wars()
     m = learn_metrics(back)
     for stem, entry in SIGNAL_NAMES.items():
         assert m[stem] == sr[entry]["value"]
+
+
+def test_saved_learners_continue_only_under_the_protocol_they_learned_with(tmp_path):
+    from sim.learning.saved import load_learners, save_learners
+
+    kw = {"sessions": 2, "seed": 1, "convergence": 300, "max_periods": 50_000, "workers": 1, "progress": False}
+    first = learn(logit_market(), QLearner(m=4, beta=5e-3), observe="own_profit", keep=True, **kw)
+    path = tmp_path / "signal.zip"
+    save_learners(path, first.saved)
+    start = load_learners(path)
+    assert start.header["observe"] == "own_profit"
+    # going on under the same protocol plays no period more: the sessions had converged under this rule
+    again = learn(logit_market(), QLearner(m=4, beta=5e-3), observe="own_profit", start=start, **kw)
+    assert np.array_equal(again.periods, first.periods) and np.array_equal(again.limit_prices, first.limit_prices)
+    # the prices protocol would read a signal state as a history of prices: refused, naming the setting
+    with pytest.raises(InputError) as exc:
+        learn(logit_market(), QLearner(m=4, beta=5e-3), start=start, **kw)
+    assert exc.value.key == "observe" and "own_profit" in str(exc.value)
