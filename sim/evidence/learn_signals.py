@@ -54,6 +54,11 @@ def signal_lines(res: LearnResult) -> list[str]:
                  f"learning going on, the same random numbers with and without it), the mean price falls in period 2 "
                  f"in {_pct(sr['cut'])} of {sr['cut']['n']} sessions ({lvl} CI){depth}; it is back on the path "
                  f"without the draw in the last 4 of {sr['periods']} periods in {_pct(sr['temporary'])}{after}")
+    g = sr.get("greedy")
+    if g:
+        lines.append(f"The learned strategies alone (greedy play from the same final states, no learning, every "
+                     f"learner's signal forced low after period 1): a cut in period 2 in {_pct(g['cut'])} of "
+                     f"sessions, back on the path without it in the last 4 periods in {_pct(g['temporary'])}")
     lines.append(f"Mean change of the price, periods 1 to {sr['periods']}: "
                  + ", ".join(fmt_num(c["value"]) for c in sr["change"][1:]))
     return lines

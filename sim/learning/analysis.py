@@ -17,10 +17,12 @@ from pathlib import Path
 import numpy as np
 
 from sim.core.records import Record, to_plain
+from sim.learning.inputs import STATUS_CONVERGED
 from sim.learning.results import LearningResult
 from sim.learning.saved import save_learners
 from sim.learning.session import learn
-from sim.learning.shock_response import price_cuts, shock_response
+from sim.learning.shock_response import ShockResponse, price_cuts, shock_response
+from sim.learning.signals import greedy_response
 
 __all__ = [
     "SIGNAL_DRAW_SD",
@@ -147,16 +149,27 @@ def signal_response(res: LearningResult) -> dict:
     dict
         ``theta`` (the draw, :data:`SIGNAL_DRAW_SD` standard deviations below the median), ``periods``, ``change``
         (list of estimates, one per period, :class:`sim.learning.shock_response.ShockResponse`), ``price_war``, and
-        ``cut``, ``temporary``, ``depth``, ``duration`` (:class:`sim.learning.shock_response.PriceCuts`), each
-        estimate a dict of ``value, se, low, high, n, method, note``.
+        ``cut``, ``temporary``, ``depth``, ``duration`` (:class:`sim.learning.shock_response.PriceCuts`), and the same
+        four under ``greedy`` for the learned strategies alone (:func:`sim.learning.signals.greedy_response`: no
+        learning, every signal forced low after period 1); each estimate a dict of ``value, se, low, high, n, method,
+        note``.
     """
     sigma = float(res.settings["demand_sigma"])
     theta = math.exp(-SIGNAL_DRAW_SD * sigma - 0.5 * sigma * sigma)
     resp = shock_response(res, theta, SIGNAL_RESPONSE_PERIODS)
-    cuts = price_cuts(resp, level=float(res.settings.get("confidence", 0.95)))
+    level = float(res.settings.get("confidence", 0.95))
+    cuts = price_cuts(resp, level=level)
+    # the learned strategies alone: greedy play from the same final states, no learning, the signal forced low
+    sv, band = res.saved, float(res.settings["signal_band"])
+    done = np.flatnonzero(sv.status == STATUS_CONVERGED)
+    paths = [greedy_response(int(sv.history[j]), sv.greedy[j], res.lineup, band, SIGNAL_RESPONSE_PERIODS) for j in done]
+    w = np.array([p[0] for p in paths]).reshape(done.size, SIGNAL_RESPONSE_PERIODS + 1)
+    wo = np.array([p[1] for p in paths]).reshape(done.size, SIGNAL_RESPONSE_PERIODS + 1)
+    greedy = price_cuts(ShockResponse(theta, w, wo, [], resp.price_war), level=level)
     return to_plain({"theta": resp.theta, "periods": SIGNAL_RESPONSE_PERIODS, "change": resp.change,
                      "price_war": resp.price_war, "cut": cuts.cut, "temporary": cuts.temporary, "depth": cuts.depth,
-                     "duration": cuts.duration})
+                     "duration": cuts.duration, "greedy": {"cut": greedy.cut, "temporary": greedy.temporary,
+                                                           "depth": greedy.depth, "duration": greedy.duration}})
 
 
 def learn_result(res: LearningResult, market) -> LearnResult:

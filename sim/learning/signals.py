@@ -67,10 +67,12 @@ __all__ = [
     "SIGNAL_CONSTRAINTS",
     "check_saved_observe",
     "check_signal_lineup",
+    "greedy_response",
     "reference_profits",
     "reference_signal_session",
     "signal_code",
     "signal_limit",
+    "signal_path",
     "signal_profile",
     "signal_start",
     "signal_state",
@@ -333,6 +335,37 @@ def signal_path(x: int, greedy: np.ndarray, lineup, band: float, periods: int) -
     for tau in range(periods):
         out[tau], x = _greedy_after(x, greedy, lineup, ref, band)
     return out
+
+
+def greedy_response(x: int, greedy: np.ndarray, lineup, band: float, periods: int) -> tuple[np.ndarray, np.ndarray]:
+    """The learned strategies' own answer to a low-profit signal: greedy play without a shock, with and without every
+    learner's signal forced low after period 1.
+
+    Parameters
+    ----------
+    x : int
+        System state at the end of learning.
+    greedy : ndarray of shape (n_learners, S)
+        The learned greedy tables (no learning goes on).
+    lineup : sim.learning.lineup.Lineup
+    band : float
+    periods : int
+        Periods followed.
+
+    Returns
+    -------
+    with_low, without : ndarray of shape (periods + 1,)
+        Mean prices over firms: row 0 last period's (state ``x``), row ``tau`` period ``tau``'s; the signal forced
+        low is the one period 1's profits give, so prices can first react in period 2 (the rows of
+        :class:`sim.learning.shock_response.ShockResponse`).
+    """
+    m, n = int(lineup.seats.radix[0]), int(lineup.seats.radix.size)
+    prices = lineup.stage.prices
+    first, y = _greedy_after(x, greedy, lineup, reference_profits(lineup), band)
+    low = sum((((y // (2 * m) ** i) % m) + m) * (2 * m) ** i for i in range(n))
+    head = [prices[signal_profile(x, lineup)].mean(), prices[first].mean()]
+    rest = [prices[signal_path(s, greedy, lineup, band, periods - 1)].mean(axis=1) for s in (low, y)]
+    return np.concatenate([head, rest[0]]), np.concatenate([head, rest[1]])
 
 
 def signal_limit(x: int, greedy: np.ndarray, lineup, band: float, out) -> None:

@@ -201,6 +201,11 @@ def test_learners_that_see_a_low_profit_cut_prices_after_an_adverse_draw_and_com
     # harsher first, then fading: the mean change is deepest in period 2, and within a tenth of it 20 periods on
     change = [c.value for c in out.change]
     assert min(change) == change[2] < 0.0 and abs(change[-1]) < 0.1 * abs(change[2])
+    # the learned strategies alone (no learning after the draw, every signal forced low) answer it with a cut in at
+    # least half of the sessions: the cut is in the greedy tables, not an effect of learning that goes on
+    from sim.learning.analysis import signal_response
+
+    assert signal_response(res)["greedy"]["cut"]["value"] >= 0.5
     # the control: the same sessions seeing last period's prices instead learn from the same shocks, but the draw
     # moves no price (at most 2 of 100 sessions cut at once; see sim.learning.shocks)
     control = price_cuts(shock_response(_experiment_run("prices"), theta, periods=20))
@@ -247,3 +252,21 @@ def test_saved_learners_continue_only_under_the_protocol_they_learned_with(tmp_p
     with pytest.raises(InputError) as exc:
         learn(logit_market(), QLearner(m=4, beta=5e-3), start=start, **kw)
     assert exc.value.key == "observe" and "own_profit" in str(exc.value)
+
+
+def test_greedy_play_answers_a_forced_low_signal_as_the_tables_say():
+    # A one-period punishment written by hand (Green and Porter, 1984: a low outcome starts a punishment of fixed
+    # length, then collusion resumes): both learners charge their highest price, the lowest one after a low profit.
+    from sim.learning.signals import greedy_response
+
+    m = 3
+    lu = compile_lineup(logit_market(), QLearner(m=m, beta=1e-3))
+    greedy = np.zeros((2, lu.q0.shape[1]), dtype=np.int64)
+    greedy[:, :m] = m - 1      # any own price, profit normal: the highest price
+    greedy[:, m:2 * m] = 0     # any own price, profit low: the lowest price
+    x = (m - 1) + (m - 1) * 2 * m  # both at the highest price, profits normal
+    with_low, without = greedy_response(x, greedy, lu, 0.1, 6)
+    hi, lo = lu.stage.prices[(m - 1) * (1 + m)].mean(), lu.stage.prices[0].mean()
+    # at the symmetric lowest prices each profit equals its reference: not low, so the war lasts one period
+    assert without.tolist() == [hi] * 7
+    assert with_low.tolist() == [hi, hi, lo, hi, hi, hi, hi]
