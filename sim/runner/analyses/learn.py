@@ -9,7 +9,7 @@ from sim.core.errors import InputError
 from sim.learning.analysis import LearnResult, LearnSpec, learn_analysis
 from sim.learning.tables import learning_from_dict
 from sim.runner.analyses.common import GENERAL_ASSUMPTIONS, describe_market
-from sim.runner.kinds import CellContext, CellResult, Kind
+from sim.runner.kinds import CellContext, CellResult, Kind, PartAssumption
 from strategies.qlearning import QLearner
 
 
@@ -296,5 +296,11 @@ KIND = Kind(
         "With learning.demand_sigma above 0, one mean-one demand shock a period scales every firm's realised profit, "
         "which is what the learners learn from; they condition on past prices only, so the limit outcomes do not "
         "react to a draw and report expected profits (after Calvano, Calzolari, Denicolo and Pastorello, 2021).",
+        PartAssumption("With learning.observe = 'own_profit', a learner sees only its own last price and whether its "
+                       "profit fell more than learning.signal_band below the profit at the symmetric prices, so a "
+                       "rival's undercut and a bad draw look alike (after Green and Porter, 1984); the price wars are "
+                       "measured after one forced draw three standard deviations below the median, the sessions "
+                       "learning on, and say what such learners can learn in this model, not what any firm did.",
+                       "price_cut_share"),
     ),
 )
