@@ -245,8 +245,10 @@ def test_the_paths_with_and_without_the_draw_share_everything_before_it_and_bad_
 def test_an_adverse_draw_is_followed_by_a_temporary_price_cut_in_many_sessions():
     # Calvano, Calzolari, Denicolò and Pastorello (2021), abstract (read): price wars of finite duration are triggered
     # by adverse demand shocks. Tolerance (from memory, no share is given in the abstract): at least a quarter of the
-    # sessions cut prices after an adverse draw, and the mean price is back within a tenth of the cut's depth 20
-    # periods later. The learners see what the shock moves: their own price and a low-profit signal
+    # sessions cut prices after an adverse draw, and 20 periods later the mean change of the price is under half the
+    # cut's depth. (A tenth of the depth, first written here, is below the standard error of that mean, near 0.008
+    # with 100 sessions against a depth near 0.04: it would judge noise; it held at this seed and failed at two of
+    # three others.) The learners see what the shock moves: their own price and a low-profit signal
     # (learning.observe = "own_profit", sim.learning.signals; the shipped experiment learning-profit-signal.toml;
     # a draw three standard deviations below the median, 0.74, well under the signal's 1 - signal_band = 0.9).
     from sim.learning.shock_response import shock_response
@@ -255,7 +257,7 @@ def test_an_adverse_draw_is_followed_by_a_temporary_price_cut_in_many_sessions()
     out = shock_response(_signal_run(), theta=math.exp(-3 * sigma - sigma**2 / 2), periods=20)
     assert out.price_war.value >= 0.25
     depth = min(c.value for c in out.change)
-    assert depth < 0 and abs(out.change[-1].value) < 0.1 * abs(depth)
+    assert depth < 0 and abs(out.change[-1].value) < 0.5 * abs(depth)
 
 
 def _signal_run(observe="own_profit"):
