@@ -1,12 +1,14 @@
 """Learning from a profit signal: each Q-learner sees its own last price and whether its profit was low.
 
 After Calvano, Calzolari, Denicolò and Pastorello (2021), "Algorithmic collusion with imperfect monitoring",
-International Journal of Industrial Organization 79 (abstract read: firms cannot observe each other's prices, only
-a signal that demand shocks move; Q-learners learn to collude, sustained by finite "price wars" that both deviations
-and adverse shocks trigger, harsher at first and then fading), in the spirit of Green and Porter (1984),
-"Noncooperative collusion under imperfect price information", Econometrica 52. The protocol is stated here, not
-taken from the paper's text; it is the ``[learning] observe = "own_profit"`` setting (``"prices"``, the default, is
-the protocol of :mod:`sim.learning.kernel`: the state is the last periods' prices).
+International Journal of Industrial Organization 79 (abstract read: Q-learners learn to collude in an environment
+with imperfect monitoring adapted from Green and Porter, 1984; collusion is sustained by "price wars" triggered by
+the observation of low prices, of finite duration, harsher at first and then fading, triggered both by deviations
+and by adverse demand shocks), and Green and Porter (1984), "Noncooperative collusion under imperfect price
+information", Econometrica 52. The protocol is stated here, not taken from the paper's text: its signal is the
+learner's own profit (low or not), where the paper's learners watch a price; it is the ``[learning] observe =
+"own_profit"`` setting (``"prices"``, the default, is the protocol of :mod:`sim.learning.kernel`: the state is the
+last periods' prices).
 
 The protocol
 ------------

@@ -3,8 +3,8 @@ the stored result's, the figure of the price after an adverse draw is the bundle
 the file's keys.
 
 Sources: Green and Porter (1984), Econometrica 52; Calvano, Calzolari, Denicolò and Pastorello (2021), International
-Journal of Industrial Organization 79 (abstract read): learners that observe a noisy signal answer adverse demand
-draws with price wars; what these tests check is the pipeline, the numbers are checked in tests/learning.
+Journal of Industrial Organization 79 (abstract read): under imperfect monitoring, learned price wars follow adverse
+demand shocks; what these tests check is the pipeline, the numbers are checked in tests/learning.
 """
 
 import json

@@ -1,8 +1,9 @@
 """Q-learners that see their own last price and a coarse signal of their own profit (sim.learning.signals).
 
 Sources: Calvano, Calzolari, Denicolò and Pastorello (2021), "Algorithmic collusion with imperfect monitoring",
-International Journal of Industrial Organization 79 (abstract read: firms observe only a noisy signal, and Q-learners
-sustain collusion with finite price wars that adverse demand shocks trigger); Green and Porter (1984),
+International Journal of Industrial Organization 79 (abstract read: Q-learners learn to collude under imperfect
+monitoring adapted from Green and Porter, sustained by price wars of finite duration, harsher at first and then
+fading, that deviations and adverse demand shocks both trigger); Green and Porter (1984),
 "Noncooperative collusion under imperfect price information", Econometrica 52 (a low observed outcome, which a
 deviation and a bad demand draw both give, starts a temporary punishment); the Q-learning update of Watkins and
 Dayan (1992), checked by the plain-Python twin.
