@@ -222,8 +222,6 @@ def console(res: LearnResult) -> str:
     str
     """
     moves = alternating_lines(res) or _impulse_lines(res)  # alternating moves have no impulse response
-    if res.settings.get("observe") == "own_profit":
-        moves = []  # nor has the profit signal (sim.learning.signals)
     lines = [learn_headline(res), "", *_setup_lines(res)] + _limit_lines(res) + moves
     lines += automaton_lines(res)
     lines += event_lines(res)
@@ -349,8 +347,6 @@ def figures(res: LearnResult) -> list[Drawn]:
     """
     alt = alternating_figure(res)
     out = [_impulse_figure(res)] if res.summary["impulse_response"]["prices"]["mean"] and alt is None else []
-    if res.settings.get("observe") == "own_profit":
-        out = []
     out += [_histogram_figure(res), _heatmap_figure(res)] + ([alt] if alt is not None else [])
     after = event_figure(res)
     out = out if after is None else [*out, after]

@@ -41,8 +41,8 @@ def signal_lines(res: LearnResult) -> list[str]:
     lines = ["", f"What the learners observe: their own last price and whether their own profit last period fell more "
              f"than {100 * st['signal_band']:g} % below the profit at their price had every rival charged it "
              "(a rival's undercut and a bad demand draw look alike: Green and Porter, 1984; Calvano, Calzolari, "
-             "Denicolo and Pastorello, 2021). Limit outcomes: greedy play without a shock; no impulse response to a "
-             "deviation is computed under this protocol."]
+             "Denicolo and Pastorello, 2021). Limit outcomes and the impulse response: greedy play without a shock, "
+             "a rival whose profit the deviation makes low seeing the same signal as after a bad draw."]
     sr = res.shock_response
     if not sr:
         return lines

@@ -331,6 +331,7 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
         buf.status[j], buf.periods[j] = st, t
         buf.store(j, session, s)
         SG.signal_limit(s, session.greedy, lineup, band, buf.outputs(j))
+        SG.signal_impulse(s, session.greedy, lineup, band, dev, buf.outputs(j))
         return
     if buf.event is None:
         st, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s,

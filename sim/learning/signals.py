@@ -44,9 +44,10 @@ visited. The system state is one integer, ``x = sum_i o_i * (2 m) ** i``, return
 its history state (and saved as ``history``).
 
 Greedy play after learning (:func:`signal_limit`) has no shock (``theta = 1``, the shock's mean): it is a map on
-``x``, whose cycle gives the limit prices. The impulse response to a deviation and the deviation's value are not
-computed for this protocol (their entries are nan): what it is for is the response to a shock,
-:mod:`sim.learning.shock_response`.
+``x``, whose cycle gives the limit prices; the impulse response to a one-period deviation and its exact value are
+those of :func:`sim.learning.limits.analyse_limit` on this map (:func:`signal_impulse`: a rival whose profit the
+deviation makes low sees the same signal as after a bad draw), and :func:`greedy_response` answers a low signal
+forced on every learner. The response to a drawn shock, learning going on, is :mod:`sim.learning.shock_response`.
 """
 
 from __future__ import annotations
@@ -70,9 +71,11 @@ __all__ = [
     "check_saved_observe",
     "check_signal_lineup",
     "greedy_response",
+    "payoff_low",
     "reference_profits",
     "reference_signal_session",
     "signal_code",
+    "signal_impulse",
     "signal_limit",
     "signal_path",
     "signal_profile",
@@ -383,7 +386,8 @@ def signal_limit(x: int, greedy: np.ndarray, lineup, band: float, out) -> None:
     band : float
     out : LimitOutputs
         Receives the cycle, its means (over the stage game of ``lineup.stage``) and ``info[:3]`` (transient, cycle
-        length, 0 points); the impulse-response rows and the deviation entries are nan (the forced action -1).
+        length, 0 points); the impulse-response rows and the deviation entries are nan (the forced action -1) until
+        :func:`signal_impulse` fills them.
     """
     ref = reference_profits(lineup)
     seen: dict[int, int] = {}
@@ -405,3 +409,109 @@ def signal_limit(x: int, greedy: np.ndarray, lineup, band: float, out) -> None:
     out.info[:] = np.nan
     out.info[0], out.info[1], out.info[2] = mu, len(cycle), 0
     out.info[7] = -1  # no forced action: no deviation is analysed
+
+
+def _run_to_cycle(x: int, greedy, lineup, ref, band) -> tuple[list, list, int]:
+    """Greedy play without a shock from ``x`` until a state repeats: the states, the profiles and the index of the
+    first state of the cycle."""
+    seen: dict[int, int] = {}
+    states, profiles = [], []
+    while x not in seen:
+        seen[x] = len(states)
+        states.append(x)
+        prof, x = _greedy_after(x, greedy, lineup, ref, band)
+        profiles.append(prof)
+    return states, profiles, seen[x]
+
+
+def _value(profiles: list, mu: int, payoff: np.ndarray, seat: int, d: float) -> float:
+    """Discounted profit of ``seat`` along a path that cycles from index ``mu`` on: exact, no truncation."""
+    v = sum(d**t * payoff[p, seat] for t, p in enumerate(profiles[:mu]))
+    lam = len(profiles) - mu
+    c = sum(d**t * payoff[p, seat] for t, p in enumerate(profiles[mu:]))
+    return v + d**mu * c / (1.0 - d**lam)
+
+
+def signal_impulse(x: int, greedy: np.ndarray, lineup, band: float, dev, out) -> None:
+    """The impulse response to a one-period deviation under the profit signal, exact (greedy play, no shock).
+
+    From at most ``dev.points`` points of the limit cycle, the first from its entry, the deviator plays its forced
+    action (or its static best response, the first of equal ones, to the others' greedy actions) for one period and
+    everyone then plays greedily; a rival whose profit falls below its band sees a low signal, exactly as after a bad
+    draw. The rows and ``info`` are those of :func:`sim.learning.limits.analyse_limit`.
+
+    Parameters
+    ----------
+    x : int
+        System state at the end of learning.
+    greedy : ndarray of shape (n_learners, S)
+    lineup : sim.learning.lineup.Lineup
+    band : float
+    dev : DeviationInputs
+    out : LimitOutputs
+        Filled by :func:`signal_limit` first; receives the response rows (``ir_*``: with the deviation, ``cf_*``:
+        without, row 0 the period before, row 1 the deviation period) and ``info[2:]``.
+    """
+    ref, stage, seats = reference_profits(lineup), lineup.stage, lineup.seats
+    payoff, seat, d = stage.payoff, int(dev.seat), float(dev.discount)
+    states, _profiles, mu = _run_to_cycle(x, greedy, lineup, ref, band)
+    cycle = set(states[mu:])
+    points = min(len(cycle), int(dev.points))
+    rows = out.ir_prices.shape[0]
+    for arr in (out.ir_prices, out.ir_profits, out.cf_prices, out.cf_profits):
+        arr[:] = 0.0
+    m_dev, place = int(seats.radix[seat]), int(seats.place[seat])
+    gains, pays, back, periods, first = [], 0, 0, [], -1
+    xc = states[mu]
+    for _c in range(points):
+        last = signal_profile(xc, lineup)
+        prof, x_next = _greedy_after(xc, greedy, lineup, ref, band)
+        base = prof - ((prof // place) % m_dev) * place
+        a_dev = int(dev.action) if dev.action >= 0 else int(np.argmax(payoff[base + np.arange(m_dev) * place, seat]))
+        pdev = base + a_dev * place
+        first = a_dev if first < 0 else first
+        w = 2 * int(seats.radix[0])
+        y = sum((((pdev // int(seats.place[i])) % (w // 2)) + (w // 2) * payoff_low(lineup, pdev, i, ref, band)) * w**i
+                for i in range(seats.radix.size))
+        after = signal_path(y, greedy, lineup, band, rows - 2)
+        plain = signal_path(xc, greedy, lineup, band, rows - 1)
+        ir = [last, pdev, *after.tolist()]
+        cf = [last, *plain.tolist()]
+        out.ir_prices[:] += stage.prices[ir]
+        out.ir_profits[:] += payoff[ir]
+        out.cf_prices[:] += stage.prices[cf]
+        out.cf_profits[:] += payoff[cf]
+        s_dev, p_dev, mu_dev = _run_to_cycle(y, greedy, lineup, ref, band)
+        _s, p_no, mu_no = _run_to_cycle(xc, greedy, lineup, ref, band)
+        v_no = _value(p_no, mu_no, payoff, seat, d)
+        gain = payoff[pdev, seat] + d * _value(p_dev, mu_dev, payoff, seat, d) - v_no
+        gains.append(gain)
+        pays += gain > 1e-9 * max(1.0, abs(v_no))
+        if set(s_dev[mu_dev:]) == cycle:
+            back += 1
+            periods.append(mu_dev + 1.0)
+        xc = x_next
+    for arr in (out.ir_prices, out.ir_profits, out.cf_prices, out.cf_profits):
+        arr[:] /= points
+    out.info[2], out.info[3], out.info[4] = points, float(np.mean(gains)), pays / points
+    out.info[5], out.info[6], out.info[7] = back / points, float(np.mean(periods)) if periods else np.nan, first
+
+
+def payoff_low(lineup, prof: int, i: int, ref: np.ndarray, band: float) -> bool:
+    """Whether seat ``i``'s profit at profile ``prof``, shock one, is low (:func:`signal_code`'s rule).
+
+    Parameters
+    ----------
+    lineup : sim.learning.lineup.Lineup
+    prof : int
+    i : int
+    ref : ndarray of shape (n, m)
+        :func:`reference_profits`.
+    band : float
+
+    Returns
+    -------
+    bool
+    """
+    a = (prof // int(lineup.seats.place[i])) % int(lineup.seats.radix[i])
+    return bool(lineup.learning_stage.payoff[prof, i] < (1.0 - band) * ref[i, a])

@@ -24,7 +24,7 @@ def test_the_command_prints_the_stored_report_and_draws_the_bundles_figure(tmp_p
     (tmp_path / "signal.toml").write_text(FILE)
     assert main(["learn", "signal.toml", "--plot", "figs"]) == 0
     out = capsys.readouterr().out
-    assert "Learned price wars" in out and "Impulse response" not in out
+    assert "Learned price wars" in out and "Impulse response" in out
     assert main(["run", "signal.toml", "--out", "run", "--report", "--quiet"]) == 0
     capsys.readouterr()
     res = open_run(tmp_path / "run").result(0)

@@ -231,9 +231,9 @@ def test_a_learn_result_with_the_signal_round_trips_and_reports_its_price_wars()
     back = LearnResult.from_dict(json.loads(json.dumps(res.to_dict(), allow_nan=False)))
     assert back.to_dict() == res.to_dict()
     text = RENDERER.console(back)
-    assert "Learned price wars" in text and "own last price" in text and "Impulse response" not in text
+    assert "Learned price wars" in text and "own last price" in text and "Impulse response" in text
     names = [d.name for d in RENDERER.figures(back)]
-    assert "price_after_adverse_shock" in names and "impulse_response" not in names
+    assert "price_after_adverse_shock" in names and "impulse_response" in names
     m = learn_metrics(back)
     for stem, entry in SIGNAL_NAMES.items():
         assert m[stem] == sr[entry]["value"]
@@ -273,3 +273,46 @@ def test_greedy_play_answers_a_forced_low_signal_as_the_tables_say():
     # at the symmetric lowest prices each profit equals its reference: not low, so the war lasts one period
     assert without.tolist() == [hi] * 7
     assert with_low.tolist() == [hi, hi, lo, hi, hi, hi, hi]
+
+
+def test_the_impulse_response_under_the_signal_follows_the_rules_written_out():
+    # Deviation as in Calvano, Calzolari, Denicolò and Pastorello (2020): the deviator's static best response on its
+    # grid for one period, then the learned strategies; the rival answers the low profit the deviation gives it
+    # (Green and Porter, 1984). The path is written out here with tuples from the payoff table and the hand-made
+    # greedy tables of the test above.
+    from sim.learning.inputs import DeviationInputs, limit_outputs
+    from sim.learning.signals import signal_impulse, signal_limit
+
+    m, band, T = 3, 0.1, 6
+    lu = compile_lineup(logit_market(), QLearner(m=m, beta=1e-3))
+    greedy = np.zeros((2, lu.q0.shape[1]), dtype=np.int64)
+    greedy[:, :m] = m - 1
+    greedy[:, m:2 * m] = 0
+    x = (m - 1) + (m - 1) * 2 * m
+    out = limit_outputs(2, T)
+    signal_limit(x, greedy, lu, band, out)
+    signal_impulse(x, greedy, lu, band, DeviationInputs(0, -1, 0.95, 8), out)
+    pay, prices = lu.stage.payoff, lu.stage.prices
+
+    def prof(a):
+        return a[0] + m * a[1]
+
+    def low(a, i):  # own profit below (1 - band) times the profit had the rival matched its price
+        return pay[prof(a), i] < (1 - band) * pay[prof((a[i], a[i])), i]
+
+    a_dev = max(range(m), key=lambda a: (pay[prof((a, m - 1)), 0], -a))
+    path = [(m - 1, m - 1), (a_dev, m - 1)]
+    for _ in range(T):
+        a = path[-1]
+        path.append(tuple(0 if low(a, i) else m - 1 for i in range(2)))
+    assert out.info[2] == 1 and out.info[7] == a_dev  # a one-state cycle: one point
+    assert np.array_equal(out.ir_prices, np.array([prices[prof(a)] for a in path[: T + 2]]))
+    assert np.array_equal(out.cf_prices, np.array([prices[prof((m - 1, m - 1))]] * (T + 2)))
+    # the deviation's value, exact: the deviator's discounted profits along the written-out path (it ends in a cycle
+    # that the written-out rule repeats; 400 periods leave 0.95**400 < 1e-8 of the value out)
+    for _ in range(400):
+        a = path[-1]
+        path.append(tuple(0 if low(a, i) else m - 1 for i in range(2)))
+    v_dev = sum(0.95**t * pay[prof(a), 0] for t, a in enumerate(path[1:]))
+    v_no = pay[prof((m - 1, m - 1)), 0] / 0.05
+    assert abs(out.info[3] - (v_dev - v_no)) < 1e-6
