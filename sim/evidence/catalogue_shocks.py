@@ -22,6 +22,29 @@ SHOCK_ENTRIES = {
                            "price without it, period by period after the draw.", _PATHS, _MEAN),
 }
 
+_SIGNAL = ("as for price_war_share, the learners observing their own price and a low-profit signal "
+           "(learning.observe = 'own_profit', sim.learning.signals); the draw lies three standard deviations of "
+           "log theta below its median; temporary price wars after Green and Porter (1984, Econometrica 52(1)) and "
+           "Calvano, Calzolari, Denicolo and Pastorello (2021, International Journal of Industrial Organization 79)")
+
+SHOCK_ENTRIES.update({
+    "price_cut_share": ("share of sessions that cut prices right after an adverse demand draw", "0 to 1",
+                        "Share of converged sessions whose mean price over firms with the adverse draw is below the "
+                        "mean price without it in period 2, the first period whose prices can react to the draw.",
+                        _SIGNAL, _WILSON),
+    "temporary_cut_share": ("share of sessions with a price war that ends", "0 to 1",
+                            "Share of converged sessions that cut prices in period 2 after the adverse draw and whose "
+                            "prices are those without the draw again in the last 4 periods followed (20 in all).",
+                            _SIGNAL, _WILSON),
+    "price_cut_depth": ("depth of the price cut after an adverse demand draw", "price",
+                        "Mean, over the sessions that cut prices in period 2, of the change of the mean price over "
+                        "firms in that period (with the draw minus without; negative: a cut).", _SIGNAL, _MEAN),
+    "price_war_length": ("length of a price war that ends", "periods",
+                         "Mean, over the sessions with a price war that ends, of the periods from period 2 to the "
+                         "last period whose prices differ from those without the draw, both counted.", _SIGNAL,
+                         _MEAN),
+})
+
 SHOCK_PARAMETERS = {
     "learning.demand_sigma": ("standard deviation of the demand shock during learning", "",
                               "Standard deviation of the mean-one shock that scales every firm's profit each period of "
@@ -32,3 +55,12 @@ SHOCK_PARAMETERS = {
                               "lognormal exp(sigma Z - sigma^2/2) or normal 1 + sigma Z (floored at 0), Z standard "
                               "normal; both of mean one.", "given"),
 }
+SHOCK_PARAMETERS.update({
+    "learning.observe": ("what the learners observe", "",
+                         "'prices': the last periods' prices (the state of Calvano et al., 2020); 'own_profit': the "
+                         "own last price and whether the own profit fell below the signal band of the profit at "
+                         "the symmetric prices.", "given; sim.learning.signals"),
+    "learning.signal_band": ("band of the low-profit signal", "0 to 1",
+                             "A profit more than this share below the profit at the symmetric prices is low.",
+                             "given; sim.learning.signals"),
+})

@@ -17,6 +17,7 @@ from sim.evidence.learn_alternating import alternating_figure, alternating_lines
 from sim.evidence.learn_automata import automaton_lines
 from sim.evidence.learn_event import event_figure, event_lines
 from sim.evidence.learn_shocks import shock_lines
+from sim.evidence.learn_signals import signal_figure, signal_lines
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.thresholds import describe_market
 from sim.learning.analysis import LearnResult
@@ -231,6 +232,7 @@ def console(res: LearnResult) -> str:
     lines = [learn_headline(res), "", *_setup_lines(res)] + _limit_lines(res) + moves
     lines += automaton_lines(res)
     lines += event_lines(res)
+    lines += signal_lines(res)
     lines += ["", CAUTION]
     return "\n".join(lines)
 
@@ -354,7 +356,9 @@ def figures(res: LearnResult) -> list[Drawn]:
     out = [_impulse_figure(res)] if res.summary["impulse_response"]["prices"]["mean"] and alt is None else []
     out += [_histogram_figure(res), _heatmap_figure(res)] + ([alt] if alt is not None else [])
     after = event_figure(res)
-    return out if after is None else [*out, after]
+    out = out if after is None else [*out, after]
+    war = signal_figure(res)
+    return out if war is None else [*out, war]
 
 
 RENDERER = Renderer(console=console, as_json=as_json, figures=figures,

@@ -32,9 +32,12 @@ def shock_lines(res: LearnResult) -> list[str]:
     noise = st["demand_noise"]
     return [f"Demand shock: each period every firm's profit is scaled by one {noise} shock of mean one "
             f"({_SHAPES[noise]}, sigma {fmt_num(st['demand_sigma'])}), the same for every firm; the learners learn "
-            "from these realised profits but condition on past prices only, so the limit outcomes (greedy play "
-            "after learning) do not react to a draw and their profits are expected profits (Calvano, Calzolari, "
-            "Denicolo and Pastorello, 2021, after Green and Porter, 1984)"]
+            "from these realised profits" + (" and see whether their own profit was low"
+                                             if st.get("observe") == "own_profit" else
+                                             " but condition on past prices only, so the limit outcomes (greedy "
+                                             "play after learning) do not react to a draw") +
+            "; the limit profits are expected profits (Calvano, Calzolari, Denicolo and Pastorello, 2021, after "
+            "Green and Porter, 1984)"]
 
 
 def shock_response_lines(resp: ShockResponse) -> list[str]:

@@ -10,17 +10,35 @@ benchmarks, the value of the deviation, the return to the cycle, and every sessi
 from __future__ import annotations
 
 import copy
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
 from sim.core.records import Record, to_plain
+from sim.learning.inputs import STATUS_CONVERGED
 from sim.learning.results import LearningResult
 from sim.learning.saved import save_learners
 from sim.learning.session import learn
+from sim.learning.shock_response import ShockResponse, price_cuts, shock_response
+from sim.learning.signals import greedy_response
 
-__all__ = ["LearnResult", "LearnSpec", "learn_analysis", "learn_result"]
+__all__ = [
+    "SIGNAL_DRAW_SD",
+    "SIGNAL_RESPONSE_PERIODS",
+    "LearnResult",
+    "LearnSpec",
+    "learn_analysis",
+    "learn_result",
+    "signal_response",
+]
+
+#: with the profit signal, the adverse draw forced after learning lies this many standard deviations of ``log theta``
+#: below its median: ``theta = exp(-3 sigma - sigma^2 / 2)`` (0.74 at sigma = 0.1)
+SIGNAL_DRAW_SD = 3.0
+#: and the prices are followed over this many periods after it
+SIGNAL_RESPONSE_PERIODS = 20
 
 
 @dataclass(frozen=True)
@@ -82,6 +100,9 @@ class LearnResult(Record):
     event : dict
         For saved sessions continued after an event: how prices moved after it and how long the learners took to
         settle again (:func:`sim.learning.events.event_summary`); empty otherwise.
+    shock_response : dict
+        With the profit signal and a demand shock (``observe = "own_profit"``, ``demand_sigma > 0``): the prices
+        after one forced adverse draw (:func:`signal_response`); empty otherwise.
     """
 
     market: dict
@@ -96,6 +117,7 @@ class LearnResult(Record):
     limit_actions: np.ndarray
     automata: list = field(default_factory=list)
     event: dict = field(default_factory=dict)
+    shock_response: dict = field(default_factory=dict)
 
     @property
     def limit_exact(self) -> bool:
@@ -112,6 +134,42 @@ class LearnResult(Record):
         """The sessions the summary is over: the converged ones, or all when none converged (bool, n_sessions)."""
         conv = np.asarray(self.per_session["converged"], dtype=bool)
         return conv if conv.any() else np.ones_like(conv)
+
+
+def signal_response(res: LearningResult) -> dict:
+    """The prices after one adverse demand draw of a run with the profit signal, as plain data.
+
+    Parameters
+    ----------
+    res : sim.learning.results.LearningResult
+        A run with ``observe = "own_profit"``, a demand shock and the sessions kept.
+
+    Returns
+    -------
+    dict
+        ``theta`` (the draw, :data:`SIGNAL_DRAW_SD` standard deviations below the median), ``periods``, ``change``
+        (list of estimates, one per period, :class:`sim.learning.shock_response.ShockResponse`), ``price_war``, and
+        ``cut``, ``temporary``, ``depth``, ``duration`` (:class:`sim.learning.shock_response.PriceCuts`), and the same
+        four under ``greedy`` for the learned strategies alone (:func:`sim.learning.signals.greedy_response`: no
+        learning, every signal forced low after period 1); each estimate a dict of ``value, se, low, high, n, method,
+        note``.
+    """
+    sigma = float(res.settings["demand_sigma"])
+    theta = math.exp(-SIGNAL_DRAW_SD * sigma - 0.5 * sigma * sigma)
+    resp = shock_response(res, theta, SIGNAL_RESPONSE_PERIODS)
+    level = float(res.settings.get("confidence", 0.95))
+    cuts = price_cuts(resp, level=level)
+    # the learned strategies alone: greedy play from the same final states, no learning, the signal forced low
+    sv, band = res.saved, float(res.settings["signal_band"])
+    done = np.flatnonzero(sv.status == STATUS_CONVERGED)
+    paths = [greedy_response(int(sv.history[j]), sv.greedy[j], res.lineup, band, SIGNAL_RESPONSE_PERIODS) for j in done]
+    w = np.array([p[0] for p in paths]).reshape(done.size, SIGNAL_RESPONSE_PERIODS + 1)
+    wo = np.array([p[1] for p in paths]).reshape(done.size, SIGNAL_RESPONSE_PERIODS + 1)
+    greedy = price_cuts(ShockResponse(theta, w, wo, [], resp.price_war), level=level)
+    return to_plain({"theta": resp.theta, "periods": SIGNAL_RESPONSE_PERIODS, "change": resp.change,
+                     "price_war": resp.price_war, "cut": cuts.cut, "temporary": cuts.temporary, "depth": cuts.depth,
+                     "duration": cuts.duration, "greedy": {"cut": greedy.cut, "temporary": greedy.temporary,
+                                                           "depth": greedy.depth, "duration": greedy.duration}})
 
 
 def learn_result(res: LearningResult, market) -> LearnResult:
@@ -138,6 +196,8 @@ def learn_result(res: LearningResult, market) -> LearnResult:
            "symmetric": bool(ms.symmetric), "settings": d["settings"], "learners": d["learners"],
            "seats": d["seats"], "summary": summary, "per_session": d["per_session"],
            "limit_actions": res.limit_actions, "automata": automata, "event": event}
+    if res.settings.get("observe") == "own_profit" and res.settings.get("demand_sigma") and res.saved is not None:
+        doc["shock_response"] = signal_response(res)
     return LearnResult.from_dict(to_plain(doc))
 
 
@@ -165,8 +225,10 @@ def learn_analysis(spec: LearnSpec, *, cell: int = 0, workers: int = 1, progress
     """
     s = dict(spec.settings)
     s["workers"] = max(1, int(workers))
+    # the profit signal's response to an adverse draw goes on from the sessions' final states
+    signal = s.get("observe") == "own_profit" and bool(s.get("demand_sigma"))
     res = learn(spec.market, copy.deepcopy(spec.learner), progress=progress, cell=cell, start=spec.start,
-                keep=save_to is not None, event=spec.event, **s)
+                keep=save_to is not None or signal, event=spec.event, **s)
     if save_to is not None:
         Path(save_to).parent.mkdir(parents=True, exist_ok=True)
         save_learners(save_to, res.saved)

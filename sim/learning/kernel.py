@@ -71,6 +71,7 @@ from sim.learning.inputs import (
     new_triggers,
 )
 from sim.learning.shocks import demand_shock
+from sim.learning.signals import signal_code, signal_state
 from strategies.step import COLLUSIVE, bad_signal, choose_level, next_state
 
 __all__ = ["TRIGGER_FIELDS", "initial_state", "new_triggers", "run_session"]
@@ -173,7 +174,8 @@ def _update_counterfactual(Q, greedy, li, si, s, prof, a, m, place_i, mod_i, M, 
 
 
 @njit(cache=True, nogil=True)
-def run_session(seats, stage, automata, session, s, convergence, max_periods, shock=0, sigma=0.0):
+def run_session(seats, stage, automata, session, s, convergence, max_periods, shock=0, sigma=0.0, observe=0,
+                band=0.0):
     """Run one session from history state ``s`` until convergence or the cap.
 
     Parameters
@@ -196,6 +198,12 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, sh
         The demand shock's code (:func:`sim.learning.shocks.shock_code`; 0: none, nothing drawn).
     sigma : float
         Its standard deviation.
+    observe : int
+        What the learners' state is made of: 0 the last periods' prices (``s`` a history state), 1 the own last
+        price and a low-profit signal (``s`` the system state of :mod:`sim.learning.signals`; Q-learners with the
+        asynchronous rule only, as :func:`sim.learning.signals.check_signal_lineup` requires).
+    band : float
+        The signal's band (``observe = 1``).
 
     Returns
     -------
@@ -218,6 +226,9 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, sh
     upd = np.empty(radix.max(), np.bool_)
     has_automata = (kind == AUTOMATON).any()
     w = bandit_scales(kind, family, lidx, radix, counts)
+    # the profit signal: the profile where every seat charges price a is a * ptot (sim.learning.signals)
+    ptot = place.sum()
+    width = 2 * radix[0]
     t = clock[0]
     stable = clock[1]
     if stable >= convergence:
@@ -241,7 +252,7 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, sh
                 if next_double(rng) < eps:
                     a = next_below(rng, radix[i])
                 else:
-                    a = greedy[lidx[i], _seen(s, mod[i], S)]
+                    a = greedy[lidx[i], signal_state(s, i, width) if observe else _seen(s, mod[i], S)]
             else:
                 lev, _cheated = choose_level(i, z[i], t, a_states, a_probs, a_firms, rng)
                 a = act_of_level[i, lev]
@@ -250,6 +261,12 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, sh
         s_new = _next_history(prof, s, M, S, K)
         # the period's demand shock scales every realised profit (1.0, drawing nothing, without one)
         theta = demand_shock(shock, sigma, rng)
+        if observe:
+            # the state the shock moves: every learner's own price and whether its realised profit was low
+            s_new = 0
+            for i in range(n):
+                s_new += signal_code(act[i], theta * payoff[prof, i], payoff[act[i] * ptot, i], band, radix[i]) * \
+                    width**i
         # 2. every learner updates the value of the action it played, and keeps its greedy action
         changed = False
         for i in range(n):
@@ -263,7 +280,10 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, sh
                                  noise[i], counts, sums, Q, greedy, w, rng):
                     changed = True
                 continue
-            si, sn = _seen(s, mod[i], S), _seen(s_new, mod[i], S)
+            if observe:
+                si, sn = signal_state(s, i, width), signal_state(s_new, i, width)
+            else:
+                si, sn = _seen(s, mod[i], S), _seen(s_new, mod[i], S)
             if share[i] > 0.0:
                 # synchronous or mixed: the other actions too, from what they would have earned
                 if _update_counterfactual(Q, greedy, li, si, s, prof, a, radix[i], place[i], mod[i], M, S, K,

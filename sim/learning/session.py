@@ -64,6 +64,7 @@ from tqdm import tqdm
 
 import sim.learning.kernel as K
 import sim.learning.limits as L
+import sim.learning.signals as SG
 from sim.core.compiling import announce_compile
 from sim.core.errors import InputError
 from sim.core.parallel import usable_cores
@@ -92,6 +93,13 @@ from sim.learning.results import (
 )
 from sim.learning.saved import SavedLearners, check_start, describe_layout
 from sim.learning.shocks import shock_code
+from sim.learning.signals import (
+    SIGNAL_BAND,
+    SIGNAL_CONSTRAINTS,
+    check_saved_observe,
+    check_signal_lineup,
+    signal_start,
+)
 from sim.learning.tables import RUN_CONSTRAINTS
 from sim.learning.twin import reference_session as _reference
 from sim.learning.twin_start import session_row
@@ -108,7 +116,7 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
           near: float = 0.1, workers: int | None = None, progress: bool | None = None, cell: int = 0,
           confidence: float = 0.95, limit_periods: int = LIMIT_PERIODS, start: SavedLearners | None = None,
           keep: bool = False, event: Event | None = None, timing: str = "simultaneous", demand_noise: str = "lognormal",
-          demand_sigma: float = 0.0) -> LearningResult:
+          demand_sigma: float = 0.0, observe: str = "prices", signal_band: float = SIGNAL_BAND) -> LearningResult:
     """Run independent learning sessions and analyse what the learners converged to.
 
     Parameters
@@ -169,6 +177,9 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         cannot be saved, continued or followed by an event.
     demand_noise, demand_sigma : {"lognormal", "normal"}, float
         Mean-one demand shock scaling every realised profit, its standard deviation (0: none; sim.learning.shocks).
+    observe, signal_band : {"prices", "own_profit"}, float in (0, 1)
+        A learner's state: the last periods' prices, or its own last price and whether its profit fell below
+        ``1 - signal_band`` times its reference profit (Q-learners only, no event; :mod:`sim.learning.signals`).
 
     Returns
     -------
@@ -183,22 +194,32 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     lineup = compile_lineup(market, learners, workers=n_workers, random_automata="estimate")
     dev_index = _deviation_index(lineup, run["deviator"], deviation)
     settings = {**run, "workers": n_workers, "deviation": deviation,
-                **_shock_settings(demand_noise, demand_sigma, run["timing"], event)}
+                **_shock_settings(demand_noise, demand_sigma, run["timing"], event),
+                **_signal_settings(lineup, observe, signal_band, run["timing"], event)}
     if settings.pop("timing") == "alternating":
         # the key is written only where it changes the protocol: simultaneous results stay as they were
         check_alternating(lineup, start, keep, event)
         return _run_alternating(lineup, {**settings, "timing": "alternating"}, progress)
     market_doc = market.to_dict() if hasattr(market, "to_dict") else None
-    what = None
-    if start is not None and event is not None:
-        start, lineup, what = _after_event(start, lineup, event, run["sessions"], market_doc)
-    elif start is not None:
-        refuse_merged(start)
-        check_start(start, lineup, market_doc, run["sessions"])
+    if start is not None:
+        check_saved_observe(start.header, settings.get("observe", "prices"), "observe")
+    start, lineup, what = _checked_start(start, event, lineup, market_doc, run["sessions"])
     if keep:
         _check_kept_memory(lineup, run["sessions"])
     return _run_sessions(lineup, settings, dev_index, progress, start, keep, market_doc,
                          (event, what) if what is not None else None)
+
+
+def _checked_start(start, event, lineup: Lineup, market_doc: dict | None, sessions: int):
+    """Saved sessions to continue, checked (and adapted to an event, whose words are returned, with the line-up
+    after it)."""
+    what = None
+    if start is not None and event is not None:
+        start, lineup, what = _after_event(start, lineup, event, sessions, market_doc)
+    elif start is not None:
+        refuse_merged(start)
+        check_start(start, lineup, market_doc, sessions)
+    return start, lineup, what
 
 
 def _after_event(start: SavedLearners, lineup: Lineup, event: Event, sessions: int,
@@ -308,12 +329,23 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
         rng = state.copy()
         session = lineup.session_state(rng, g0)
         s = K.initial_state(rng, lineup.seats, lineup.stage)
+        if "observe" in settings:
+            s = signal_start(s, lineup)
     else:
         rng = start.rng[j].copy()
         session = SessionState(start.Q[j].copy(), start.greedy[j].copy(), start.z[j].copy(), rng,
                                start.clock[j].copy(), start.triggers[j].copy(), start.counts[j].copy(),
                                start.sums[j].copy())
         s = int(start.history[j])
+    if "observe" in settings:
+        band = settings["signal_band"]
+        st, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s,
+                                 settings["convergence"], settings["max_periods"], *_shock(settings), 1, band)
+        buf.status[j], buf.periods[j] = st, t
+        buf.store(j, session, s)
+        SG.signal_limit(s, session.greedy, lineup, band, buf.outputs(j))
+        SG.signal_impulse(s, session.greedy, lineup, band, dev, buf.outputs(j))
+        return
     if buf.event is None:
         st, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s,
                                  settings["convergence"], settings["max_periods"], *_shock(settings))
@@ -346,6 +378,19 @@ def _shock_settings(demand_noise: str, demand_sigma: float, timing: str, event: 
         raise InputError("demand_sigma", f"a demand shock needs simultaneous moves and no event; got timing = "
                                          f"{timing!r}" + (" and an event" if event is not None else ""))
     return {"demand_noise": demand_noise, "demand_sigma": sigma}
+
+
+def _signal_settings(lineup: Lineup, observe: str, band: float, timing: str, event: Event | None) -> dict:
+    """The profit-signal protocol's entries of a run's settings: none with the price protocol (results stay as they
+    were); the signal needs Q-learners on every seat, simultaneous moves and no event."""
+    observe = SIGNAL_CONSTRAINTS["observe"].check("observe", observe)
+    if observe == "prices":
+        return {}
+    band = float(SIGNAL_CONSTRAINTS["signal_band"].check("signal_band", band))
+    if timing != "simultaneous" or event is not None:
+        raise InputError("observe", "'own_profit' needs simultaneous moves and no event")
+    check_signal_lineup(lineup, "observe")
+    return {"observe": observe, "signal_band": band}
 
 
 def _shock(settings: dict) -> tuple[int, float]:
@@ -407,6 +452,8 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
                   "cell": settings["cell"]}
         if event is not None and event[0].kind == "merger":
             header["merged"] = list(event[0].firms)
+        if "observe" in settings:
+            header["observe"] = settings["observe"]  # written only where it is not the prices protocol
         saved = SavedLearners(**buf.saved, status=buf.status.copy(), header=header)
     ev = None if event is None else {"event": event[0], "what": event[1], "path": buf.path, "settle": buf.settle}
     if ev is not None and event[0].kind == "merger":

@@ -15,7 +15,8 @@ adverse demand shocks both trigger). What the learners see here is stated, not t
 * the state a Q-learner conditions on stays the last periods' prices: the shock enters only the rewards. Greedy
   play after learning therefore reacts to prices, never to a shock, and the limit analysis reports expected
   profits (the shock has mean one); a learned price war after a bad draw would need a state that the shock
-  moves (a coarse own-profit signal, or a noisy price), which this protocol does not have;
+  moves (a coarse own-profit signal, or a noisy price), which this protocol does not have: the profit-signal
+  protocol of :mod:`sim.learning.signals` (``observe = "own_profit"``) gives the learners such a state;
 * automata seated with learners judge the profile's expected profit (the shock reaches the learners only).
 
 With ``sigma = 0`` nothing is drawn and every reward is the payoff itself, so results are those of a run without

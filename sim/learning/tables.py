@@ -18,6 +18,7 @@ from sim.learning.merger import refuse_merged
 from sim.learning.results import LIMIT_PERIODS
 from sim.learning.saved import check_start, load_learners
 from sim.learning.shocks import SHOCK_CONSTRAINTS, shock_code
+from sim.learning.signals import SIGNAL_BAND, SIGNAL_CONSTRAINTS, check_saved_observe, check_signal_lineup
 from sim.models.market import market_from_dict
 from strategies import strategy_from_dict
 from strategies.qlearning import QLearner
@@ -49,13 +50,14 @@ RUN_CONSTRAINTS = {
     "confidence": Real(0, 1, closed="neither"),
     "timing": Options(*TIMINGS),
     **SHOCK_CONSTRAINTS,
+    **SIGNAL_CONSTRAINTS,
 }
 #: parameters of a Q-learner in [learning] and in a ``strategy = "qlearning"`` entry
 LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init", "update", "counterfactual_share", "family",
                   "exploration", "noise", "policy_from", "firm", "session")
 #: keys of the tables a learning experiment reads, in the order error messages list them
 LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "near", "limit_periods", "save_to", "continue_from",
-                 "timing", "demand_noise", "demand_sigma")
+                 "timing", "demand_noise", "demand_sigma", "observe", "signal_band")
 IMPULSE_KEYS = ("firm", "action", "periods")
 RUN_KEYS = ("sessions", "seed", "workers", "confidence")
 EXPERIMENT_KEYS = ("name", "kind", "description")
@@ -250,12 +252,15 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     if _setting(lt, "learning", "timing", "timing", "simultaneous") != "simultaneous":
         settings["timing"] = lt["timing"]
     _demand_shock(lt, settings, doc)
+    _signal(lt, settings, doc)
     firm = Integer(1, n_firms).check("impulse.firm", it.get("firm", 1))
     settings["deviator"] = firm - 1  # learn() counts seats from 0; every output counts firms from 1
     settings["deviation"] = _impulse_action(it)
     # the line-up and its memory, checked before any work (the run repeats this, cheaply)
     workers = settings["workers"] or usable_cores()
     lineup = compile_lineup(market, learner, workers=min(workers, settings["sessions"]), random_automata="estimate")
+    if "observe" in settings:
+        check_signal_lineup(lineup)
     save_to = _file_name(lt, "save_to")
     continue_from = _file_name(lt, "continue_from")
     if "timing" in settings:
@@ -266,6 +271,8 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
         check_start(start, lineup, market.to_dict(), settings["sessions"], "learning.continue_from")
     elif start is not None:
         check_event(start, lineup, event, settings["sessions"], "learning.continue_from", market.to_dict())
+    if start is not None:
+        check_saved_observe(start.header, settings.get("observe", "prices"), "learning.observe")
     return {"market": market, "learner": learner, "settings": settings, "save_to": save_to, "start": start,
             "event": event, "waiting": event is not None and start is None}
 
@@ -280,6 +287,19 @@ def _demand_shock(lt: dict, settings: dict, doc: dict) -> None:
         raise InputError("learning.demand_sigma", "a demand shock needs simultaneous moves (learning.timing = "
                                                   "'simultaneous') and no [event]")
     settings["demand_noise"], settings["demand_sigma"] = lt.get("demand_noise", "lognormal"), sigma
+
+
+def _signal(lt: dict, settings: dict, doc: dict) -> None:
+    """``learning.observe`` and ``learning.signal_band`` (:mod:`sim.learning.signals`), written into the settings
+    only with the profit signal (``observe = "own_profit"``), which needs simultaneous moves and no event."""
+    observe = SIGNAL_CONSTRAINTS["observe"].check("learning.observe", lt.get("observe", "prices"))
+    band = SIGNAL_CONSTRAINTS["signal_band"].check("learning.signal_band", lt.get("signal_band", SIGNAL_BAND))
+    if observe == "prices":
+        return
+    if "timing" in settings or "event" in doc:
+        raise InputError("learning.observe", "'own_profit' needs simultaneous moves (learning.timing = "
+                                             "'simultaneous') and no [event]")
+    settings["observe"], settings["signal_band"] = observe, float(band)
 
 
 def _event(doc: dict, overrides: dict, lt: dict):

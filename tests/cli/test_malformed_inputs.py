@@ -271,6 +271,10 @@ CASES = [
      "learning.policy_from"),
     ("protocol event without saved learners", "learn", "learn", '\n[event]\nkind = "protocol"\n', [],
      "learning.continue_from"),
+    # what the learners observe (sim.learning.signals)
+    ("unknown observation", "learn", "learn", ("k = 1\n", 'k = 1\nobserve = "rivals_costs"\n'), [], "learning.observe"),
+    ("signal band of one", "learn", "learn", ("k = 1\n", 'k = 1\nobserve = "own_profit"\nsignal_band = 1.0\n'), [],
+     "learning.signal_band"),
 ]
 
 _OPTIONAL = ("{tmp}/input.toml",)

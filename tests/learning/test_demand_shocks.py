@@ -242,17 +242,43 @@ def test_the_paths_with_and_without_the_draw_share_everything_before_it_and_bad_
 
 
 @pytest.mark.slow
-@pytest.mark.xfail(strict=True, reason="the learners' state is the past prices only, so a bad draw moves no price: "
-                                       "the learned price wars of Calvano et al. (2021) need a state the shock moves")
 def test_an_adverse_draw_is_followed_by_a_temporary_price_cut_in_many_sessions():
     # Calvano, Calzolari, Denicolò and Pastorello (2021), abstract (read): price wars of finite duration are triggered
     # by adverse demand shocks. Tolerance (from memory, no share is given in the abstract): at least a quarter of the
-    # sessions cut prices after a draw two standard deviations below the median, and the mean price is back within
-    # a tenth of the cut's depth 20 periods later.
+    # sessions cut prices after an adverse draw, and 20 periods later the mean change of the price is under half the
+    # cut's depth. (A tenth of the depth, first written here, is below the standard error of that mean, near 0.008
+    # with 100 sessions against a depth near 0.04: it would judge noise; it held at this seed and failed at two of
+    # three others.) The learners see what the shock moves: their own price and a low-profit signal
+    # (learning.observe = "own_profit", sim.learning.signals; the shipped experiment learning-profit-signal.toml;
+    # a draw three standard deviations below the median, 0.74, well under the signal's 1 - signal_band = 0.9).
+    from sim.learning.shock_response import shock_response
+
+    sigma = 0.1
+    out = shock_response(_signal_run(), theta=math.exp(-3 * sigma - sigma**2 / 2), periods=20)
+    assert out.price_war.value >= 0.25
+    depth = min(c.value for c in out.change)
+    assert depth < 0 and abs(out.change[-1].value) < 0.5 * abs(depth)
+
+
+def _signal_run(observe="own_profit"):
+    import tomllib
+    from pathlib import Path
+
+    doc = tomllib.loads((Path(__file__).parents[2] / "experiments" / "learning-profit-signal.toml").read_text())
+    doc.pop("sweep"), doc.pop("report")
+    doc["learning"]["observe"] = observe
+    cfg = learning_from_dict(doc)
+    return learn(cfg["market"], cfg["learner"], **{**cfg["settings"], "workers": 2}, progress=False, keep=True)
+
+
+@pytest.mark.slow
+def test_when_the_learners_see_only_past_prices_an_adverse_draw_moves_no_price():
+    # The limit of the prices protocol (sim.learning.shocks): the shock enters only the rewards, so a draw moves a
+    # price only if learning that goes on reorders a greedy row (a lead smaller than alpha (1 - theta) profit, see
+    # sim.learning.shock_response). Tolerance: at most 2 of the 40 sessions of the shipped noisy-demand experiment
+    # (sigma = 0.3, a draw two standard deviations below the median), where the profit signal gives a quarter or more.
     from sim.learning.shock_response import shock_response
 
     sigma = 0.3
     out = shock_response(_noisy_run(sigma), theta=math.exp(-2 * sigma - sigma**2 / 2), periods=20)
-    assert out.price_war.value >= 0.25
-    depth = min(c.value for c in out.change)
-    assert depth < 0 and abs(out.change[-1].value) < 0.1 * abs(depth)
+    assert out.price_war.value <= 0.05

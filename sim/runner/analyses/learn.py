@@ -9,7 +9,7 @@ from sim.core.errors import InputError
 from sim.learning.analysis import LearnResult, LearnSpec, learn_analysis
 from sim.learning.tables import learning_from_dict
 from sim.runner.analyses.common import GENERAL_ASSUMPTIONS, describe_market
-from sim.runner.kinds import CellContext, CellResult, Kind
+from sim.runner.kinds import CellContext, CellResult, Kind, PartAssumption
 from strategies.qlearning import QLearner
 
 
@@ -71,7 +71,15 @@ def _learn_names(cfg: dict) -> list[str]:
             out += [f"analytic.merger_nash_price.firm{i + 1}" for i in range(n)]
     if cfg["settings"].get("timing") == "alternating":
         out += list(ALTERNATING_NAMES)
+    if cfg["settings"].get("observe") == "own_profit" and cfg["settings"].get("demand_sigma"):
+        out += [f"{stem}{q}" for stem in SIGNAL_NAMES for q in ("", ".low", ".high")]
     return out
+
+
+#: the columns of the profit signal's learned price wars (sim.learning.signals), with the entry of
+#: ``shock_response`` each comes from (sim.learning.analysis.signal_response)
+SIGNAL_NAMES = {"price_war_share": "price_war", "price_cut_share": "cut", "temporary_cut_share": "temporary",
+                "price_cut_depth": "depth", "price_war_length": "duration"}
 
 
 #: the columns of alternating sessions' account (after every other column of a learn cell): where the sessions end,
@@ -226,6 +234,9 @@ def learn_metrics(res: LearnResult) -> dict:
     if alt:
         for name, (entry, src) in ALTERNATING_NAMES.items():
             m[name] = alt[entry][src]
+    for stem, entry in SIGNAL_NAMES.items() if res.shock_response else ():
+        e = res.shock_response[entry]
+        m[stem], m[f"{stem}.low"], m[f"{stem}.high"] = e["value"], e.get("low"), e.get("high")
     return m
 
 
@@ -285,5 +296,11 @@ KIND = Kind(
         "With learning.demand_sigma above 0, one mean-one demand shock a period scales every firm's realised profit, "
         "which is what the learners learn from; they condition on past prices only, so the limit outcomes do not "
         "react to a draw and report expected profits (after Calvano, Calzolari, Denicolo and Pastorello, 2021).",
+        PartAssumption("With learning.observe = 'own_profit', a learner sees only its own last price and whether its "
+                       "profit fell more than learning.signal_band below the profit at the symmetric prices, so a "
+                       "rival's undercut and a bad draw look alike (after Green and Porter, 1984); the price wars are "
+                       "measured after one forced draw three standard deviations below the median, the sessions "
+                       "learning on, and say what such learners can learn in this model, not what any firm did.",
+                       "price_cut_share"),
     ),
 )

@@ -1,0 +1,84 @@
+"""The words and the figure of a learn result under the profit signal (``learning.observe = "own_profit"``,
+:mod:`sim.learning.signals`): what the learners observe, and the learned price wars after one adverse draw."""
+
+from __future__ import annotations
+
+from sim.core.stats import Estimate
+from sim.core.text import fmt_num
+from sim.evidence.learn_shocks import shock_response_figure
+from sim.evidence.render import Drawn
+from sim.learning.analysis import LearnResult
+from sim.learning.shock_response import ShockResponse
+
+__all__ = ["signal_figure", "signal_lines"]
+
+
+def _est(d: dict) -> Estimate:
+    nan = float("nan")
+    return Estimate(*(nan if d.get(k) is None else float(d[k]) for k in ("value", "se", "low", "high")),
+                    int(d["n"]), d.get("method", ""), d.get("note", ""))
+
+
+def _pct(e: dict) -> str:
+    return f"{fmt_num(100 * e['value'], 1)} % ({fmt_num(100 * e['low'], 1)} % to {fmt_num(100 * e['high'], 1)} %)"
+
+
+def signal_lines(res: LearnResult) -> list[str]:
+    """The profit signal in words and, with a demand shock, the learned response to one adverse draw.
+
+    Parameters
+    ----------
+    res : LearnResult
+
+    Returns
+    -------
+    list of str
+        Empty under the prices protocol.
+    """
+    st = res.settings
+    if st.get("observe") != "own_profit":
+        return []
+    lines = ["", f"What the learners observe: their own last price and whether their own profit last period fell more "
+             f"than {100 * st['signal_band']:g} % below the profit at their price had every rival charged it "
+             "(a rival's undercut and a bad demand draw look alike: Green and Porter, 1984; Calvano, Calzolari, "
+             "Denicolo and Pastorello, 2021). Limit outcomes and the impulse response: greedy play without a shock, "
+             "a rival whose profit the deviation makes low seeing the same signal as after a bad draw."]
+    sr = res.shock_response
+    if not sr:
+        return lines
+    lvl = f"{100 * res.confidence:g} %"
+    dep, dur = sr["depth"], sr["duration"]
+    after = f", after {fmt_num(dur['value'], 3)} periods on average" if dur["n"] else ""
+    depth = f", by {fmt_num(dep['value'])} on average" if dep["n"] else ""
+    lines.append(f"Learned price wars: after one adverse demand draw (shock {fmt_num(sr['theta'])} in period 1, "
+                 f"learning going on, the same random numbers with and without it), the mean price falls in period 2 "
+                 f"in {_pct(sr['cut'])} of {sr['cut']['n']} sessions ({lvl} CI){depth}; it is back on the path "
+                 f"without the draw in the last 4 of {sr['periods']} periods in {_pct(sr['temporary'])}{after}")
+    g = sr.get("greedy")
+    if g:
+        lines.append(f"The learned strategies alone (greedy play from the same final states, no learning, every "
+                     f"learner's signal forced low after period 1): a cut in period 2 in {_pct(g['cut'])} of "
+                     f"sessions, back on the path without it in the last 4 periods in {_pct(g['temporary'])}")
+    lines.append(f"Mean change of the price, periods 1 to {sr['periods']}: "
+                 + ", ".join(fmt_num(c["value"]) for c in sr["change"][1:]))
+    return lines
+
+
+def signal_figure(res: LearnResult) -> Drawn | None:
+    """The mean change of the price after the adverse draw, period by period, under the profit signal.
+
+    Parameters
+    ----------
+    res : LearnResult
+
+    Returns
+    -------
+    Drawn or None
+        ``price_after_adverse_shock`` (:func:`sim.evidence.learn_shocks.shock_response_figure`); None without a
+        response.
+    """
+    sr = res.shock_response
+    if not sr:
+        return None
+    resp = ShockResponse(float(sr["theta"]), None, None, [_est(c) for c in sr["change"]], _est(sr["price_war"]))
+    return shock_response_figure(resp, res.confidence)
