@@ -118,10 +118,12 @@ def benchmark(market=None, learners=None, *, sessions: int = 4, reference_period
     return out
 
 
-def bandit_benchmark(family: str, *, reference_periods: int = 50_000, kernel_periods: int = 10_000_000,
+def bandit_benchmark(family: str, *, reference_periods: int = 100_000, kernel_periods: int = 20_000_000,
                      repeat: int = 1, seed: int = 0) -> dict:
     """Throughput of the learning kernel with two bandits of one family on the baseline market (m = 15 prices, no
-    noise), and of its plain-Python twin, on the same fixed-length workload.
+    noise), and of its plain-Python twin, on the same fixed-length workload. With the same ``reference_periods``
+    and ``kernel_periods`` as :func:`benchmark`, the kernel runs the Q-learning kernel's workload: as many seats
+    and prices, sessions as long and as many periods in all, each session started afresh.
 
     Parameters
     ----------
@@ -137,6 +139,7 @@ def bandit_benchmark(family: str, *, reference_periods: int = 50_000, kernel_per
     Returns
     -------
     dict
+        ``workload``, ``kernel_periods`` (in all), ``reference_periods`` (of each session),
         ``kernel_periods_per_second``, ``reference_periods_per_second``, ``ratio`` (kernel over twin) and
         ``reference_identical_to_kernel`` (statistics and values equal bit for bit).
     """
@@ -150,7 +153,10 @@ def bandit_benchmark(family: str, *, reference_periods: int = 50_000, kernel_per
     ref = reference_session(lineup, seed=seed, convergence=never, max_periods=reference_periods)
     t_ref = time.perf_counter() - t0
     ker = kernel_session(lineup, seed=seed, convergence=never, max_periods=reference_periods)
-    out = {"workload": f"two {family} bandits, 15 prices each, baseline market, no noise",
+    out = {"workload": f"two {family} bandits, 15 prices each, baseline market, no noise, sessions of "
+                       f"{reference_periods} periods",
+           "kernel_periods": reps * reference_periods,
+           "reference_periods": reference_periods,
            "kernel_periods_per_second": reps * reference_periods / t_ker,
            "reference_periods_per_second": reference_periods / t_ref,
            "reference_identical_to_kernel": bool(np.array_equal(ref["Q"], ker["Q"])
@@ -225,11 +231,13 @@ def bench_section(opts) -> dict:
     quick = bool(getattr(opts, "quick", False))
     workers = int(getattr(opts, "threads", 2))
     repeat = int(getattr(opts, "repeat", 1))
+    # one fixed-length workload for every kernel compared per period: sessions as long, as many periods in all
+    size = ({"reference_periods": 5_000, "kernel_periods": 500_000, "repeat": 1} if quick else
+            {"reference_periods": 100_000, "kernel_periods": 20_000_000, "repeat": repeat})
+    b = benchmark(sessions=1 if quick else 4, **size)
     if quick:
-        b = benchmark(sessions=1, reference_periods=5_000, kernel_periods=500_000, repeat=1)
         t = time_sessions(sessions=8, workers=workers, cold=False)
     else:
-        b = benchmark(sessions=4, reference_periods=100_000, kernel_periods=20_000_000, repeat=repeat)
         t = time_sessions(sessions=1000, workers=workers, cold=True)
     rate = min(b["kernel_session_periods_per_second"], b["kernel_periods_per_second"])
     out = dict(b)
@@ -245,7 +253,6 @@ def bench_section(opts) -> dict:
     }
     out["notes"] = ["quick workload: the targets refer to the full workload"] if quick else []
     # the bandit families against the Q-learning kernel of the same run (periods per second on one core)
-    size = {"reference_periods": 5_000, "kernel_periods": 500_000} if quick else {"repeat": repeat}
     out["bandits"] = {}
     for family in ("ucb", "thompson"):
         bb = bandit_benchmark(family, **size)
