@@ -256,9 +256,15 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, sh
                             score[b] = Q[li, 0, b] + ucb_cs * w[li, b]
                 else:
                     s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
-                    for b in range(m):
-                        zb, s0, s1, s2, s3 = next_normal_zig_words(s0, s1, s2, s3)
-                        score[b] = Q[li, 0, b] + c * zb * w[li, b]
+                    if c == 1.0:
+                        # the published scale v = 1: c * z is z exactly, one product per price saved
+                        for b in range(m):
+                            zb, s0, s1, s2, s3 = next_normal_zig_words(s0, s1, s2, s3)
+                            score[b] = Q[li, 0, b] + zb * w[li, b]
+                    else:
+                        for b in range(m):
+                            zb, s0, s1, s2, s3 = next_normal_zig_words(s0, s1, s2, s3)
+                            score[b] = Q[li, 0, b] + c * zb * w[li, b]
                     rng[0], rng[1], rng[2], rng[3] = s0, s1, s2, s3
                 if a < 0:
                     # the first largest score
