@@ -80,7 +80,7 @@ def test_learning_section_reports_both_rates_and_checks_identity():
         bb = out["bandits"][family]
         assert (bb["reference_periods"], bb["kernel_periods"]) == (out["reference_periods"], out["kernel_periods"])
         assert bb["speed_relative_to_q_learning"] == pytest.approx(
-            bb["kernel_periods_per_second"] / out["kernel_periods_per_second"])
+            bb["kernel_periods_per_second"] / bb["q_learning_periods_per_second"])
 
 
 def test_runfolders_section_measures_report_and_verify():
