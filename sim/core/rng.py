@@ -13,7 +13,8 @@ is fixed). ``next_normal_zig`` is a faster normal by the ziggurat method (Marsag
 "The ziggurat method for generating random variables", J. Stat. Software 5(8)), 256 layers, one
 64-bit draw in about 99 % of calls (8 bits choose the layer, 1 the sign, 52 the magnitude). The
 pure-Python twin (:class:`ReferenceStream`) reproduces the kernel draws exactly and is what the
-reference implementations use.
+reference implementations use. ``next_u64_words`` and ``next_normal_zig_words`` make the same draws from a state
+held in four local words, for loops that draw many in a row.
 """
 
 from __future__ import annotations
@@ -23,7 +24,7 @@ import math
 import numpy as np
 from numba import njit
 
-__all__ = ["ReferenceStream", "next_normal_zig", "stream_states"]
+__all__ = ["ReferenceStream", "next_normal_zig", "next_normal_zig_words", "next_u64_words", "stream_states"]
 
 _MASK = 0xFFFFFFFFFFFFFFFF
 _INV53 = 1.0 / 9007199254740992.0  # 2**-53
@@ -226,6 +227,89 @@ def next_below(s, n):
         A draw in ``0 .. n-1``; consumes one uniform.
     """
     return int(next_double(s) * n)
+
+
+# The ziggurat on a state held in four local words rather than in its array: for a loop drawing many normals in a
+# row (a Thompson-sampling bandit draws one per price every period), which then keeps the state in registers and
+# touches no array per draw. The layer and the sign come from the low 9 bits together, through tables of signed
+# widths: ``rabs * (-w)`` is ``-(rabs * w)`` bit for bit, since rounding to nearest is symmetric in the sign.
+_ZIG_SW = np.concatenate((_ZIG_W, -_ZIG_W))
+_ZIG_SK = np.concatenate((_ZIG_K, _ZIG_K))
+
+
+@njit(cache=True, inline="always")
+def next_u64_words(s0, s1, s2, s3):
+    """:func:`next_u64` on a state held in four words.
+
+    Parameters
+    ----------
+    s0, s1, s2, s3 : uint64
+        The generator state.
+
+    Returns
+    -------
+    r : uint64
+        The next output of xoshiro256**.
+    s0, s1, s2, s3 : uint64
+        The state after it.
+    """
+    r = _rotl(s1 * np.uint64(5), 7) * np.uint64(9)
+    t = s1 << np.uint64(17)
+    s2 ^= s0
+    s3 ^= s1
+    s1 ^= s2
+    s0 ^= s3
+    s2 ^= t
+    s3 = _rotl(s3, 45)
+    return r, s0, s1, s2, s3
+
+
+@njit(cache=True)
+def _zig_words_rare(j, x, s0, s1, s2, s3):
+    """The rare branches of :func:`next_normal_zig_words` for a draw rejected by its layer's box ``j`` (sign bit
+    included): the tail or the wedge test, drawing uniforms as :func:`next_double` does. Returns whether the draw
+    is accepted, its value and the state."""
+    if (j & 255) == 0:
+        while True:
+            r, s0, s1, s2, s3 = next_u64_words(s0, s1, s2, s3)
+            xx = -_ZIG_INV_R * math.log(1.0 - np.float64(r >> np.uint64(11)) * _INV53)
+            r, s0, s1, s2, s3 = next_u64_words(s0, s1, s2, s3)
+            yy = -math.log(1.0 - np.float64(r >> np.uint64(11)) * _INV53)
+            if yy + yy > xx * xx:
+                return True, (-(_ZIG_R + xx) if j > 255 else _ZIG_R + xx), s0, s1, s2, s3
+    idx = j & 255
+    r, s0, s1, s2, s3 = next_u64_words(s0, s1, s2, s3)
+    u = np.float64(r >> np.uint64(11)) * _INV53
+    return (_ZIG_F[idx - 1] - _ZIG_F[idx]) * u + _ZIG_F[idx] < math.exp(-0.5 * x * x), x, s0, s1, s2, s3
+
+
+@njit(cache=True, inline="always")
+def next_normal_zig_words(s0, s1, s2, s3):
+    """:func:`next_normal_zig` on a state held in four words: the same draw from the same state, bit for bit.
+
+    Parameters
+    ----------
+    s0, s1, s2, s3 : uint64
+        The generator state.
+
+    Returns
+    -------
+    z : float
+        A draw from N(0, 1).
+    s0, s1, s2, s3 : uint64
+        The state after it.
+    """
+    while True:
+        r, s0, s1, s2, s3 = next_u64_words(s0, s1, s2, s3)
+        j = np.int64(r & np.uint64(0x1FF))
+        rabs = (r >> np.uint64(9)) & np.uint64(_MASK52)
+        # rabs < 2**52: converted through int64, exactly as through uint64
+        x = np.float64(np.int64(rabs)) * _ZIG_SW[j]
+        if rabs < _ZIG_SK[j]:
+            return x, s0, s1, s2, s3
+        ok, x, s0, s1, s2, s3 = _zig_words_rare(j, x, s0, s1, s2, s3)
+        if ok:
+            return x, s0, s1, s2, s3
 
 
 class ReferenceStream:

@@ -41,6 +41,14 @@ session has converged when no learner's greedy price or action has changed for `
 Random draws, in the kernel's order (:mod:`sim.learning.kernel`): in step 1, a Thompson seat draws its ``m``
 normals where a Q-learner draws its exploration uniforms; in step 2, learners in seat order, a bandit with noise
 draws one normal for its reward (a Q-learner with the mixed rule its uniforms).
+
+Where the work is done: the rules' loops over the prices are written in the kernel's period loop itself
+(:func:`sim.learning.kernel.run_session`), which reads the arrays directly; this module holds the functions of
+numbers they call (inlined), what a session derives once when it starts (:func:`bandit_scales`), and the readable
+twins. What a period keeps so as not to compute it again: each price's estimate (``Q[li, 0]``, one division for
+the price played), its scale ``1 / sqrt(n_a)`` or ``1 / sqrt(n_a + 1)`` (one square root for the price played), the
+step counter, and, for UCB, ``c sqrt(2 ln t)`` for the bandits that share ``t`` and ``c`` (one logarithm per
+period). Every number is computed as the twins compute it, in the same order.
 """
 
 from __future__ import annotations
@@ -50,10 +58,10 @@ import math
 import numpy as np
 from numba import njit
 
-from sim.core.rng import next_normal_zig
 from sim.learning.inputs import LEARNER, Q_FAMILY, UCB_FAMILY
 
-__all__ = ["bandit_choice", "bandit_scales", "bandit_update", "reward_bounds", "twin_choice", "twin_update"]
+__all__ = ["arm_estimate", "arm_scale", "bandit_reward", "bandit_scales", "reward_bounds", "twin_choice", "twin_update",
+           "ucb_bonus"]
 
 
 def reward_bounds(payoff: np.ndarray, seat: int) -> tuple[float, float]:
@@ -95,140 +103,91 @@ def bandit_scales(kind, family, lidx, radix, counts):
     Returns
     -------
     ndarray of float64, shape (n_learners, max(radix) + 1)
-        The last column holds each bandit's step counter ``t = sum_a n_a`` (kept up to date by
-        :func:`bandit_update`, so that a period need not add the counts up).
+        The last column holds each bandit's step counter ``t = sum_a n_a`` (kept up to date by the kernel, so that
+        a period need not add the counts up).
     """
     out = np.zeros((counts.shape[0], counts.shape[1] + 1))
     for i in range(kind.size):
         if kind[i] == LEARNER and family[i] != Q_FAMILY:
             for b in range(radix[i]):
-                out[lidx[i], b] = _scale(family[i], counts[lidx[i], b])
+                out[lidx[i], b] = arm_scale(family[i], counts[lidx[i], b])
                 out[lidx[i], -1] += counts[lidx[i], b]
     return out
 
 
 @njit(cache=True, nogil=True, inline="always")
-def _scale(fam, n):
+def arm_scale(fam, n):
+    """The scale of a price's exploration term after ``n`` plays: ``1 / sqrt(n)`` for UCB (0 before its first
+    play), ``1 / sqrt(n + 1)`` for Thompson sampling.
+
+    Parameters
+    ----------
+    fam : int
+        ``UCB_FAMILY`` or ``THOMPSON_FAMILY``.
+    n : int
+        Plays of the price.
+
+    Returns
+    -------
+    float
+    """
     if fam == UCB_FAMILY:
         return 1.0 / math.sqrt(n) if n > 0 else 0.0
     return 1.0 / math.sqrt(n + 1.0)
 
 
 @njit(cache=True, nogil=True, inline="always")
-def bandit_choice(fam, li, m, c, counts, Q, w, rng):
-    """The price a bandit plays: UCB's index, or Thompson's draws (see the module notes).
+def arm_estimate(fam, total, n):
+    """A price's estimate from its sum of rewards and its plays: the sample mean ``total / n`` for UCB, the posterior
+    mean ``total / (n + 1)`` for Thompson sampling.
 
     Parameters
     ----------
     fam : int
-        ``UCB_FAMILY`` or ``THOMPSON_FAMILY``.
-    li : int
-        The learner's row.
-    m : int
-        Its prices.
-    c : float
-        Its exploration constant.
-    counts : ndarray of int64, shape (n_learners, max(radix))
-    Q : ndarray of float64, shape (n_learners, max(mod), max(radix))
-        Row ``Q[li, 0]`` holds the estimates (``sums / n_a`` for UCB, ``sums / (n_a + 1)`` for Thompson sampling),
-        as :func:`bandit_update` keeps them.
-    w : ndarray of float64, shape (n_learners, max(radix) + 1)
-        :func:`bandit_scales`, as :func:`bandit_update` keeps them.
-    rng : ndarray of uint64, shape (4,)
-        Advanced in place (Thompson sampling only).
+    total : float
+        Sum of the rewards the price earned.
+    n : int
+        Its plays (at least 1).
 
     Returns
     -------
-    int
-        The index of the price.
+    float
     """
-    best = 0
-    bv = -math.inf
-    if fam == UCB_FAMILY:
-        t = w[li, -1]
-        if t < m:
-            # every price is tried once first, in increasing order: the untried ones are those from t on
-            for b in range(m):
-                if counts[li, b] == 0:
-                    return b
-        # c sqrt(2 ln t / n_a) as c sqrt(2 ln t) (1 / sqrt(n_a)): one square root per period
-        cs = c * math.sqrt(2.0 * math.log(t))
-        for b in range(m):
-            v = Q[li, 0, b] + cs * w[li, b]
-            if v > bv:
-                bv = v
-                best = b
-        return best
-    for b in range(m):
-        v = Q[li, 0, b] + c * next_normal_zig(rng) * w[li, b]
-        if v > bv:
-            bv = v
-            best = b
-    return best
+    return total / (n if fam == UCB_FAMILY else n + 1.0)
 
 
 @njit(cache=True, nogil=True, inline="always")
-def bandit_update(fam, li, a, m, profit, lo, span, noise, counts, sums, Q, greedy, w, rng):
-    """Count the price played, add its reward, refresh its estimate, its scale and the greedy price.
+def bandit_reward(profit, lo, span):
+    """The reward of a profit: ``(profit - lo) / span`` (:func:`reward_bounds`), in [0, 1] on the grid.
 
     Parameters
     ----------
-    fam : int
-    li : int
-    a : int
-        The price played.
-    m : int
-    profit : float
-        The seat's profit this period.
-    lo, span : float
-        :func:`reward_bounds`.
-    noise : float
-        Standard deviation of the observation error (a normal is drawn only when it is positive).
-    counts : ndarray of int64, shape (n_learners, max(radix))
-    sums : ndarray of float64, shape (n_learners, max(radix))
-        Updated in place.
-    Q : ndarray of float64, shape (n_learners, max(mod), max(radix))
-        Row ``Q[li, 0]`` receives the estimates.
-    greedy : ndarray of int64, shape (n_learners, max(mod))
-        ``greedy[li, 0]`` receives their first argmax.
-    w : ndarray of float64, shape (n_learners, max(radix) + 1)
-        :func:`bandit_scales`, updated in place.
-    rng : ndarray of uint64, shape (4,)
+    profit, lo, span : float
 
     Returns
     -------
-    bool
-        Whether the greedy price changed.
+    float
     """
-    r = (profit - lo) / span
-    if noise > 0.0:
-        r += noise * next_normal_zig(rng)
-    counts[li, a] += 1
-    sums[li, a] += r
-    old = Q[li, 0, a]
-    new = sums[li, a] / (counts[li, a] if fam == UCB_FAMILY else counts[li, a] + 1.0)
-    Q[li, 0, a] = new
-    w[li, a] = _scale(fam, counts[li, a])
-    w[li, -1] += 1.0
-    g = greedy[li, 0]
-    if a != g:
-        # only price a moved: it takes over when it is now the first largest
-        if new > Q[li, 0, g] or (new == Q[li, 0, g] and a < g):
-            greedy[li, 0] = a
-            return True
-        return False
-    if new >= old:
-        return False
-    best = 0
-    bv = Q[li, 0, 0]
-    for b in range(1, m):
-        if Q[li, 0, b] > bv:
-            bv = Q[li, 0, b]
-            best = b
-    if best != g:
-        greedy[li, 0] = best
-        return True
-    return False
+    return (profit - lo) / span
+
+
+@njit(cache=True, nogil=True, inline="always")
+def ucb_bonus(c, t):
+    """UCB's ``c sqrt(2 ln t)``: the exploration term of a price is this times its scale :func:`arm_scale`, so that
+    a period computes one logarithm and one square root, not one per price.
+
+    Parameters
+    ----------
+    c : float
+        The exploration constant.
+    t : float
+        The bandit's step counter (at least its number of prices).
+
+    Returns
+    -------
+    float
+    """
+    return c * math.sqrt(2.0 * math.log(t))
 
 
 # ------------------------------------------------------------------------------------------------
@@ -237,7 +196,8 @@ def bandit_update(fam, li, a, m, profit, lo, span, noise, counts, sums, Q, greed
 
 
 def twin_choice(family: str, c: float, counts: list, sums: list, rng) -> int:
-    """The readable twin of :func:`bandit_choice`, drawing from a :class:`sim.core.rng.ReferenceStream`.
+    """The readable twin of a bandit's choice in the kernel (step 1 of :func:`sim.learning.kernel.run_session`),
+    drawing from a :class:`sim.core.rng.ReferenceStream`.
 
     Parameters
     ----------
@@ -269,7 +229,8 @@ def twin_choice(family: str, c: float, counts: list, sums: list, rng) -> int:
 
 def twin_update(family: str, a: int, profit: float, lo: float, span: float, noise: float, counts: list, sums: list,
                 rng) -> list:
-    """The readable twin of :func:`bandit_update`: the lists updated in place and the new estimates returned.
+    """The readable twin of a bandit's update in the kernel (step 2 of :func:`sim.learning.kernel.run_session`): the
+    lists updated in place and the new estimates returned.
 
     Parameters
     ----------

@@ -33,7 +33,10 @@ session's record (``session.triggers``, :data:`TRIGGER_FIELDS`; no draw, no chan
 replaces a step, not the loop. The rules of a step are inlined functions of numbers (``inline="always"``, which
 changes no arithmetic); the arrays stay in the loop itself, taken out of their groups once before it, because an
 inlined function that takes an array takes and releases a reference to it at every call, which costs more here
-than the period's arithmetic (measured: a loop whose steps took their arrays ran at a third of the speed).
+than the period's arithmetic (measured: a loop whose steps took their arrays ran at a third of the speed). The
+bandits' loops over their prices are written in the period loop for that reason (the rules themselves are in
+:mod:`sim.learning.bandits`), and a Thompson seat draws its ``m`` normals from the generator state held in four local
+words (:func:`sim.core.rng.next_normal_zig_words`, the same draws as from the array).
 
 Random draws
 ------------
@@ -58,8 +61,8 @@ import math
 import numpy as np
 from numba import njit
 
-from sim.core.rng import next_below, next_double
-from sim.learning.bandits import bandit_choice, bandit_scales, bandit_update
+from sim.core.rng import next_below, next_double, next_normal_zig, next_normal_zig_words
+from sim.learning.bandits import arm_estimate, arm_scale, bandit_reward, bandit_scales, ucb_bonus
 from sim.learning.inputs import (
     AUTOMATON,
     FIXED_FAMILY,
@@ -68,6 +71,7 @@ from sim.learning.inputs import (
     STATUS_CAP,
     STATUS_CONVERGED,
     TRIGGER_FIELDS,
+    UCB_FAMILY,
     new_triggers,
 )
 from sim.learning.shocks import demand_shock
@@ -225,10 +229,13 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, sh
     cont = np.empty(radix.max(), np.float64)
     upd = np.empty(radix.max(), np.bool_)
     has_automata = (kind == AUTOMATON).any()
+    score = np.empty(radix.max(), np.float64)
     w = bandit_scales(kind, family, lidx, radix, counts)
     # the profit signal: the profile where every seat charges price a is a * ptot (sim.learning.signals)
     ptot = place.sum()
     width = 2 * radix[0]
+    wl = w.shape[1] - 1
+    ucb_t, ucb_c, ucb_cs = -1.0, -1.0, 0.0
     t = clock[0]
     stable = clock[1]
     if stable >= convergence:
@@ -245,8 +252,43 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, sh
                 # a fixed policy (sim.learning.fixed): its greedy action, no draw
                 a = greedy[lidx[i], _seen(s, mod[i], S)]
             elif kind[i] == LEARNER and family[i] != Q_FAMILY:
-                # a bandit: its own statistics, whatever the history (sim.learning.bandits)
-                a = bandit_choice(family[i], lidx[i], radix[i], explore[i], counts, Q, w, rng)
+                # a bandit: its own statistics, whatever the history (sim.learning.bandits); its arrays are read
+                # here, not in a function, and its normals drawn from the state in four local words
+                li, m, c = lidx[i], radix[i], explore[i]
+                a = -1
+                if family[i] == UCB_FAMILY:
+                    tb = w[li, wl]
+                    if tb < m:
+                        # every price is tried once first, in increasing order
+                        a = 0
+                        while a < m - 1 and counts[li, a] > 0:
+                            a += 1
+                    else:
+                        if tb != ucb_t or c != ucb_c:
+                            # one logarithm per period for the bandits that share t and c
+                            ucb_t, ucb_c, ucb_cs = tb, c, ucb_bonus(c, tb)
+                        for b in range(m):
+                            score[b] = Q[li, 0, b] + ucb_cs * w[li, b]
+                else:
+                    s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
+                    if c == 1.0:
+                        # the published scale v = 1: c * z is z exactly, one product per price saved
+                        for b in range(m):
+                            zb, s0, s1, s2, s3 = next_normal_zig_words(s0, s1, s2, s3)
+                            score[b] = Q[li, 0, b] + zb * w[li, b]
+                    else:
+                        for b in range(m):
+                            zb, s0, s1, s2, s3 = next_normal_zig_words(s0, s1, s2, s3)
+                            score[b] = Q[li, 0, b] + c * zb * w[li, b]
+                    rng[0], rng[1], rng[2], rng[3] = s0, s1, s2, s3
+                if a < 0:
+                    # the first largest score
+                    a = 0
+                    bv = -math.inf
+                    for b in range(m):
+                        if score[b] > bv:
+                            bv = score[b]
+                            a = b
             elif kind[i] == LEARNER:
                 eps, prev_beta = _exploration(beta[i], tf, eps, prev_beta)
                 if next_double(rng) < eps:
@@ -276,22 +318,32 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, sh
             if family[i] == FIXED_FAMILY:
                 continue
             if family[i] != Q_FAMILY:
-                if bandit_update(family[i], li, a, radix[i], theta * payoff[prof, i], reward_lo[i], reward_span[i],
-                                 noise[i], counts, sums, Q, greedy, w, rng):
-                    changed = True
-                continue
-            if observe:
-                si, sn = signal_state(s, i, width), signal_state(s_new, i, width)
+                # a bandit: the statistics of the price played, its estimate in Q[li, 0, a], its scale
+                r = bandit_reward(theta * payoff[prof, i], reward_lo[i], reward_span[i])
+                if noise[i] > 0.0:
+                    r += noise[i] * next_normal_zig(rng)
+                na = counts[li, a] + 1
+                counts[li, a] = na
+                sums[li, a] += r
+                si = 0
+                old = Q[li, 0, a]
+                new = arm_estimate(family[i], sums[li, a], na)
+                w[li, a] = arm_scale(family[i], na)
+                w[li, wl] += 1.0
             else:
-                si, sn = _seen(s, mod[i], S), _seen(s_new, mod[i], S)
-            if share[i] > 0.0:
-                # synchronous or mixed: the other actions too, from what they would have earned
-                if _update_counterfactual(Q, greedy, li, si, s, prof, a, radix[i], place[i], mod[i], M, S, K,
-                                          payoff[:, i], alpha[i], delta[i], share[i], rng, cont, upd, theta):
-                    changed = True
-                continue
-            old = Q[li, si, a]
-            new = _q_learning(old, theta * payoff[prof, i], Q[li, sn, greedy[li, sn]], alpha[i], delta[i])
+                if observe:
+                    si, sn = signal_state(s, i, width), signal_state(s_new, i, width)
+                else:
+                    si, sn = _seen(s, mod[i], S), _seen(s_new, mod[i], S)
+                if share[i] > 0.0:
+                    # synchronous or mixed: the other actions too, from what they would have earned
+                    if _update_counterfactual(Q, greedy, li, si, s, prof, a, radix[i], place[i], mod[i], M, S, K,
+                                              payoff[:, i], alpha[i], delta[i], share[i], rng, cont, upd, theta):
+                        changed = True
+                    continue
+                old = Q[li, si, a]
+                new = _q_learning(old, theta * payoff[prof, i], Q[li, sn, greedy[li, sn]], alpha[i], delta[i])
+            # the greedy action (a bandit's greedy price: si = 0) as the value of the action played moved
             Q[li, si, a] = new
             g = greedy[li, si]
             if a == g:

@@ -75,6 +75,12 @@ def test_learning_section_reports_both_rates_and_checks_identity():
     assert out["ratio"] == pytest.approx(out["kernel_periods_per_second"] / out["reference_periods_per_second"])
     assert out["sessions_run"]["converged"] == out["sessions_run"]["sessions"] == 8
     assert set(out["targets"]) >= {"kernel >= 8e6 periods/s on one core", "kernel >= 100 x reference"}
+    # like with like: the bandits are timed on the Q-learning kernel's workload (sessions as long, as many periods)
+    for family in ("ucb", "thompson"):
+        bb = out["bandits"][family]
+        assert (bb["reference_periods"], bb["kernel_periods"]) == (out["reference_periods"], out["kernel_periods"])
+        assert bb["speed_relative_to_q_learning"] == pytest.approx(
+            bb["kernel_periods_per_second"] / bb["q_learning_periods_per_second"])
 
 
 def test_runfolders_section_measures_report_and_verify():
