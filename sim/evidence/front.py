@@ -194,6 +194,12 @@ def headline(question: str, parameters, rows, heads, units=(None, None)) -> tupl
             continue
         lo = min(have, key=lambda r: r.metrics[m])
         hi = max(have, key=lambda r: r.metrics[m])
+        if lo is hi:
+            # one cell has this metric, or every cell has the same value: no range to state
+            where = (f"at {_where(lo, parameters, units)}" if len(have) == 1
+                     else f"in each of the {len(have)} cells that have it")
+            numbers.append(f"{_label(m, units)}: {_value(lo, m, units)} {where}")
+            continue
         numbers.append(f"{_label(m, units)}: from {_value(lo, m, units)} at {_where(lo, parameters, units)} to "
                        f"{_value(hi, m, units)} at {_where(hi, parameters, units)}")
     if not answer and numbers:
