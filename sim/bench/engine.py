@@ -75,6 +75,32 @@ def best_time(fn, repeat: int) -> float:
     return best
 
 
+def alternate_best(fns, repeat: int) -> list[float]:
+    """The shortest wall time of each of ``fns``, called in turn ``repeat`` times (at least once).
+
+    On a shared machine a change of load then falls on every timing alike, which one best-of after the other does
+    not ensure.
+
+    Parameters
+    ----------
+    fns : sequence of callable
+        Each called without arguments.
+    repeat : int
+
+    Returns
+    -------
+    list of float
+        Seconds, one per function.
+    """
+    best = [float("inf")] * len(fns)
+    for _ in range(max(1, repeat)):
+        for k, fn in enumerate(fns):
+            t0 = time.perf_counter()
+            fn()
+            best[k] = min(best[k], time.perf_counter() - t0)
+    return best
+
+
 def memory_probe(periods: int, replications: int, threads: int) -> dict:
     """Run in a fresh process: the workload once, then report the peak resident memory.
 

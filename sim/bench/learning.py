@@ -14,7 +14,9 @@ import time
 
 import numpy as np
 
+from sim.bench.engine import alternate_best
 from sim.bench.learning_alternating import alternating_benchmark
+from sim.bench.learning_signal import signal_benchmark
 from sim.learning.lineup import compile_lineup
 from sim.learning.session import kernel_session, reference_session
 from sim.models.demand import LogitDemand
@@ -117,18 +119,6 @@ def benchmark(market=None, learners=None, *, sessions: int = 4, reference_period
     return out
 
 
-def _alternate_best(fns, repeat: int) -> list[float]:
-    """The shortest wall time of each of ``fns``, called in turn ``repeat`` times (at least once): on a shared
-    machine a change of load then falls on every timing alike, which one best-of after the other does not ensure."""
-    best = [math.inf] * len(fns)
-    for _ in range(max(1, repeat)):
-        for k, fn in enumerate(fns):
-            t0 = time.perf_counter()
-            fn()
-            best[k] = min(best[k], time.perf_counter() - t0)
-    return best
-
-
 def bandit_benchmark(family: str, *, reference_periods: int = 100_000, kernel_periods: int = 20_000_000,
                      repeat: int = 1, seed: int = 0) -> dict:
     """Throughput of the learning kernel with two bandits of one family on the baseline market (m = 15 prices, no
@@ -168,7 +158,7 @@ def bandit_benchmark(family: str, *, reference_periods: int = 100_000, kernel_pe
         return lambda: [kernel_session(lu, j, seed=seed, convergence=never, max_periods=reference_periods)
                         for j in range(reps)]
 
-    t_q, t_ker = _alternate_best([workload(q_lineup), workload(lineup)], repeat)
+    t_q, t_ker = alternate_best([workload(q_lineup), workload(lineup)], repeat)
     t0 = time.perf_counter()
     ref = reference_session(lineup, seed=seed, convergence=never, max_periods=reference_periods)
     t_ref = time.perf_counter() - t0
@@ -247,8 +237,9 @@ def bench_section(opts) -> dict:
     dict
         The measures of :func:`benchmark`, ``sessions_run`` (:func:`time_sessions`), ``bandits`` (per family, the
         measures of :func:`bandit_benchmark`, ``speed_relative_to_q_learning`` included), ``alternating`` (the same for
-        alternating moves, :func:`sim.bench.learning_alternating.alternating_benchmark`), ``workload``, ``targets``
-        and ``notes``.
+        alternating moves, :func:`sim.bench.learning_alternating.alternating_benchmark`), ``own_profit_signal`` (the
+        same for the own-profit signal, :func:`sim.bench.learning_signal.signal_benchmark`), ``workload``,
+        ``targets`` and ``notes``.
     """
     quick = bool(getattr(opts, "quick", False))
     workers = int(getattr(opts, "threads", 2))
@@ -294,4 +285,12 @@ def bench_section(opts) -> dict:
     out["targets"]["alternating kernel within a factor 2 of Q-learning per period"] = (
         alt["speed_relative_to_q_learning"] >= 0.5)
     out["targets"]["alternating twin and kernel identical"] = alt["reference_identical_to_kernel"]
+    # learners that see a signal of their own profit under a demand shock (Calvano et al., 2021), timed in turn with
+    # the baseline Q-learning kernel
+    sig = signal_benchmark(**size)
+    out["own_profit_signal"] = sig
+    out["targets"]["own-profit signal kernel >= 100 x its twin"] = sig["ratio"] >= 100
+    out["targets"]["own-profit signal kernel within a factor 2 of Q-learning per period"] = (
+        sig["speed_relative_to_q_learning"] >= 0.5)
+    out["targets"]["own-profit signal twin and kernel identical"] = sig["reference_identical_to_kernel"]
     return out

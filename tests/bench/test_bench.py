@@ -81,6 +81,8 @@ def test_learning_section_reports_both_rates_and_checks_identity():
         assert (bb["reference_periods"], bb["kernel_periods"]) == (out["reference_periods"], out["kernel_periods"])
         assert bb["speed_relative_to_q_learning"] == pytest.approx(
             bb["kernel_periods_per_second"] / bb["q_learning_periods_per_second"])
+    assert {"own-profit signal kernel >= 100 x its twin", "own-profit signal twin and kernel identical"} <= set(
+        out["targets"]) and out["own_profit_signal"]["reference_identical_to_kernel"] is True
 
 
 def test_runfolders_section_measures_report_and_verify():
@@ -111,3 +113,14 @@ def test_learning_section_measures_alternating_moves_against_their_twin():
     out = alternating_benchmark(reference_periods=2_000, kernel_periods=20_000)
     assert out["reference_identical_to_kernel"] is True
     assert out["ratio"] == pytest.approx(out["kernel_periods_per_second"] / out["reference_periods_per_second"])
+
+
+def test_learning_section_measures_the_own_profit_signal_against_its_twin_and_q_learning():
+    # structure only: the targets (>= 100 x the twin, within a factor 2 of Q-learning) are judged by supergame bench
+    from sim.bench.learning_signal import signal_benchmark
+
+    out = signal_benchmark(reference_periods=2_000, kernel_periods=20_000)
+    assert out["reference_identical_to_kernel"] is True
+    assert out["ratio"] == pytest.approx(out["kernel_periods_per_second"] / out["reference_periods_per_second"])
+    assert out["speed_relative_to_q_learning"] == pytest.approx(
+        out["kernel_periods_per_second"] / out["q_learning_periods_per_second"])
