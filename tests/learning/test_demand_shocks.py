@@ -25,6 +25,7 @@ from sim.learning.session import kernel_session, learn, reference_session
 from sim.learning.shocks import shock_code, twin_shock
 from sim.learning.tables import learning_from_dict
 from strategies.qlearning import QLearner
+from tests.conftest import learn_text
 
 NEVER = 2**62
 
@@ -101,26 +102,10 @@ def test_the_shock_draws_one_ziggurat_normal_per_period_and_has_mean_one():
 
 # ---- bad input ---------------------------------------------------------------------------------------------
 
-DOC = """
-[experiment]
-kind = "learn"
-[market]
-model = "bertrand"
-demand = "logit"
-quality = 2.0
-outside = 0.0
-mu = 0.25
-cost = 1.0
-n_firms = 2
-[learning]
-m = 4
-beta = 1e-2
-convergence = 50
-max_periods = 5000
-{extra}
-[run]
-sessions = 2
-"""
+def _doc(extra: str) -> str:
+    """A small learning experiment in the shared logit duopoly of the learning tests, with ``extra`` keys of its
+    ``[learning]`` table."""
+    return learn_text("shocks", f"m = 4\nbeta = 1e-2\nconvergence = 50\nmax_periods = 5000\n{extra}", sessions=2)
 
 
 @pytest.mark.parametrize("extra, key, words", [
@@ -133,7 +118,7 @@ def test_bad_shock_settings_name_their_key(extra, key, words):
     import tomllib
 
     with pytest.raises(InputError) as exc:
-        learning_from_dict(tomllib.loads(DOC.format(extra=extra)))
+        learning_from_dict(tomllib.loads(_doc(extra)))
     assert exc.value.key == key and words in str(exc.value)
     with pytest.raises(InputError) as exc:
         shock_code("gamma", 0.1)
@@ -144,7 +129,7 @@ def test_bad_shock_settings_name_their_key(extra, key, words):
                                         ('demand_noise = "uniform"\ndemand_sigma = 0.1', "learning.demand_noise")])
 def test_bad_shock_settings_one_line_exit_2_nothing_written(extra, key, tmp_path):
     f = tmp_path / "bad.toml"
-    f.write_text(DOC.format(extra=extra))
+    f.write_text(_doc(extra))
     out = tmp_path / "out"
     r = subprocess.run([sys.executable, "-m", "sim", "run", str(f), "--out", str(out)], capture_output=True,
                        text=True, cwd=tmp_path)
@@ -157,9 +142,9 @@ def test_bad_shock_settings_one_line_exit_2_nothing_written(extra, key, tmp_path
 def test_the_settings_carry_the_shock_only_when_there_is_one():
     import tomllib
 
-    cfg = learning_from_dict(tomllib.loads(DOC.format(extra='demand_noise = "normal"\ndemand_sigma = 0.2')))
+    cfg = learning_from_dict(tomllib.loads(_doc('demand_noise = "normal"\ndemand_sigma = 0.2')))
     assert cfg["settings"]["demand_noise"] == "normal" and cfg["settings"]["demand_sigma"] == 0.2
-    cfg = learning_from_dict(tomllib.loads(DOC.format(extra="demand_sigma = 0")))
+    cfg = learning_from_dict(tomllib.loads(_doc("demand_sigma = 0")))
     assert "demand_sigma" not in cfg["settings"] and "demand_noise" not in cfg["settings"]
 
 

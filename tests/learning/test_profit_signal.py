@@ -37,6 +37,7 @@ from sim.learning.signals import (
 )
 from sim.learning.tables import learning_from_dict
 from strategies.qlearning import QLearner
+from tests.conftest import learn_text
 
 NEVER = 2**62
 EXPERIMENT = Path(__file__).parents[2] / "experiments" / "learning-profit-signal.toml"
@@ -91,26 +92,10 @@ def test_a_forced_adverse_draw_makes_every_profit_low_and_leaves_the_prices():
 
 # ---- bad input ----------------------------------------------------------------------------------------------
 
-DOC = """
-[experiment]
-kind = "learn"
-[market]
-model = "bertrand"
-demand = "logit"
-quality = 2.0
-outside = 0.0
-mu = 0.25
-cost = 1.0
-n_firms = 2
-[learning]
-m = 4
-beta = 1e-2
-convergence = 50
-max_periods = 5000
-{extra}
-[run]
-sessions = 2
-"""
+def _doc(extra: str) -> str:
+    """A small learning experiment in the shared logit duopoly of the learning tests, with ``extra`` keys of its
+    ``[learning]`` table."""
+    return learn_text("signal", f"m = 4\nbeta = 1e-2\nconvergence = 50\nmax_periods = 5000\n{extra}", sessions=2)
 
 
 @pytest.mark.parametrize("extra, key, words", [
@@ -121,7 +106,7 @@ sessions = 2
 ])
 def test_bad_signal_settings_name_their_key(extra, key, words):
     with pytest.raises(InputError) as exc:
-        learning_from_dict(tomllib.loads(DOC.format(extra=extra)))
+        learning_from_dict(tomllib.loads(_doc(extra)))
     assert exc.value.key == key and words in str(exc.value)
 
 
@@ -130,13 +115,13 @@ def test_an_automaton_seat_is_refused_and_the_default_writes_nothing():
     with pytest.raises(InputError) as exc:
         check_signal_lineup(lu)
     assert exc.value.key == "learning.observe"
-    cfg = learning_from_dict(tomllib.loads(DOC.format(extra='observe = "prices"')))
+    cfg = learning_from_dict(tomllib.loads(_doc('observe = "prices"')))
     assert "observe" not in cfg["settings"] and "signal_band" not in cfg["settings"]
 
 
 def test_a_bad_observe_value_is_one_line_exit_2_nothing_written(tmp_path):
     f = tmp_path / "bad.toml"
-    f.write_text(DOC.format(extra='observe = "everything"'))
+    f.write_text(_doc('observe = "everything"'))
     out = tmp_path / "out"
     r = subprocess.run([sys.executable, "-m", "sim", "run", str(f), "--out", str(out)], capture_output=True,
                        text=True, cwd=tmp_path)
