@@ -13,7 +13,7 @@ MAX_MODULE, MAX_FUNCTION = 700, 100
 #: (module, function) pairs allowed to be longer: kernels' period loops
 KERNEL_LOOPS = {
     ("sim/simulation/kernel.py", "_play_chunks"),
-    ("sim/learning/kernel.py", "run_session"),
+    ("sim/learning/kernel.py", "_period_loop"),
 }
 
 
