@@ -227,7 +227,7 @@ def test_the_paths_with_and_without_the_draw_share_everything_before_it_and_bad_
 
 
 @pytest.mark.slow
-def test_an_adverse_draw_is_followed_by_a_temporary_price_cut_in_many_sessions():
+def test_an_adverse_draw_is_followed_by_a_temporary_price_cut_in_many_sessions(profit_signal_run):
     # Calvano, Calzolari, Denicolò and Pastorello (2021), abstract (read): price wars of finite duration are triggered
     # by adverse demand shocks. Tolerance (from memory, no share is given in the abstract): at least a quarter of the
     # sessions cut prices after an adverse draw, and 20 periods later the mean change of the price is under half the
@@ -239,21 +239,10 @@ def test_an_adverse_draw_is_followed_by_a_temporary_price_cut_in_many_sessions()
     from sim.learning.shock_response import shock_response
 
     sigma = 0.1
-    out = shock_response(_signal_run(), theta=math.exp(-3 * sigma - sigma**2 / 2), periods=20)
+    out = shock_response(profit_signal_run(), theta=math.exp(-3 * sigma - sigma**2 / 2), periods=20)
     assert out.price_war.value >= 0.25
     depth = min(c.value for c in out.change)
     assert depth < 0 and abs(out.change[-1].value) < 0.5 * abs(depth)
-
-
-def _signal_run(observe="own_profit"):
-    import tomllib
-    from pathlib import Path
-
-    doc = tomllib.loads((Path(__file__).parents[2] / "experiments" / "learning-profit-signal.toml").read_text())
-    doc.pop("sweep"), doc.pop("report")
-    doc["learning"]["observe"] = observe
-    cfg = learning_from_dict(doc)
-    return learn(cfg["market"], cfg["learner"], **{**cfg["settings"], "workers": 2}, progress=False, keep=True)
 
 
 @pytest.mark.slow

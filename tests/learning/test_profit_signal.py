@@ -15,7 +15,6 @@ import math
 import subprocess
 import sys
 import tomllib
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -40,7 +39,6 @@ from strategies.qlearning import QLearner
 from tests.conftest import learn_text
 
 NEVER = 2**62
-EXPERIMENT = Path(__file__).parents[2] / "experiments" / "learning-profit-signal.toml"
 
 
 def logit_market(n=2):
@@ -150,16 +148,8 @@ def test_a_run_learns_converges_and_reports_its_limit_cycle():
 
 # ---- the acceptance: learned price wars after an adverse draw ------------------------------------------------
 
-def _experiment_run(observe):
-    doc = tomllib.loads(EXPERIMENT.read_text())
-    doc.pop("sweep"), doc.pop("report")
-    doc["learning"]["observe"] = observe
-    cfg = learning_from_dict(doc)
-    return learn(cfg["market"], cfg["learner"], **{**cfg["settings"], "workers": 2}, progress=False, keep=True)
-
-
 @pytest.mark.slow
-def test_learners_that_see_a_low_profit_cut_prices_after_an_adverse_draw_and_come_back():
+def test_learners_that_see_a_low_profit_cut_prices_after_an_adverse_draw_and_come_back(profit_signal_run):
     # Green and Porter (1984): a low outcome starts a punishment phase of finite length, after which collusion
     # resumes; Calvano, Calzolari, Denicolò and Pastorello (2021), abstract (read): Q-learners with imperfect
     # monitoring learn such price wars, triggered by adverse demand shocks, harsher at first and then fading. The
@@ -169,7 +159,7 @@ def test_learners_that_see_a_low_profit_cut_prices_after_an_adverse_draw_and_com
 
     sigma = 0.1
     theta = math.exp(-3 * sigma - sigma**2 / 2)
-    res = _experiment_run("own_profit")
+    res = profit_signal_run("own_profit")
     assert res.converged.all()
     # collusion is still learned: the mean profit gain's interval lies above 0.25 (a quarter of the way from static
     # Nash to joint profit; common practice, no source -- the published levels are for another market)
@@ -196,7 +186,7 @@ def test_learners_that_see_a_low_profit_cut_prices_after_an_adverse_draw_and_com
     assert signal_response(res)["greedy"]["cut"]["value"] >= 0.5
     # the control: the same sessions seeing last period's prices instead learn from the same shocks, but the draw
     # moves no price (at most 2 of 100 sessions cut at once; see sim.learning.shocks)
-    control = price_cuts(shock_response(_experiment_run("prices"), theta, periods=20))
+    control = price_cuts(shock_response(profit_signal_run("prices"), theta, periods=20))
     assert control.cut.value <= 0.02
 
 
