@@ -36,7 +36,8 @@ inlined function that takes an array takes and releases a reference to it at eve
 than the period's arithmetic (measured: a loop whose steps took their arrays ran at a third of the speed). The
 bandits' loops over their prices are written in the period loop for that reason (the rules themselves are in
 :mod:`sim.learning.bandits`), and a Thompson seat draws its ``m`` normals from the generator state held in four local
-words (:func:`sim.core.rng.next_normal_zig_words`, the same draws as from the array).
+words (:func:`sim.core.rng.zig_candidate`, the same draws as from the array), keeping the first largest draw as it
+comes.
 
 Random draws
 ------------
@@ -61,7 +62,7 @@ import math
 import numpy as np
 from numba import njit
 
-from sim.core.rng import next_below, next_double, next_normal_zig, next_normal_zig_words
+from sim.core.rng import next_below, next_double, next_normal_zig, next_u64_words, zig_candidate, zig_finish
 from sim.learning.bandits import arm_estimate, arm_scale, bandit_reward, bandit_scales, ucb_bonus
 from sim.learning.inputs import (
     AUTOMATON,
@@ -280,16 +281,23 @@ def _period_loop(seats, stage, automata, session, s, convergence, max_periods, s
                         for b in range(m):
                             score[b] = Q[li, 0, b] + ucb_cs * w[li, b]
                 else:
+                    # one normal per price, in increasing order (sim.core.rng.zig_candidate: the ziggurat's fast
+                    # path here, its rare branches in zig_finish), and the first largest draw kept as it comes
                     s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
-                    if c == 1.0:
-                        # the published scale v = 1: c * z is z exactly, one product per price saved
-                        for b in range(m):
-                            zb, s0, s1, s2, s3 = next_normal_zig_words(s0, s1, s2, s3)
-                            score[b] = Q[li, 0, b] + zb * w[li, b]
-                    else:
-                        for b in range(m):
-                            zb, s0, s1, s2, s3 = next_normal_zig_words(s0, s1, s2, s3)
-                            score[b] = Q[li, 0, b] + c * zb * w[li, b]
+                    a = 0
+                    bv = -math.inf
+                    for b in range(m):
+                        r, s0, s1, s2, s3 = next_u64_words(s0, s1, s2, s3)
+                        zb, accepted, j = zig_candidate(r)
+                        if not accepted:
+                            rng[0], rng[1], rng[2], rng[3] = s0, s1, s2, s3
+                            zb = zig_finish(rng, j, zb)
+                            s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
+                        # the published scale v = 1: c * z is z exactly
+                        sb = Q[li, 0, b] + (zb if c == 1.0 else c * zb) * w[li, b]
+                        if sb > bv:
+                            bv = sb
+                            a = b
                     rng[0], rng[1], rng[2], rng[3] = s0, s1, s2, s3
                 if a < 0:
                     # the first largest score

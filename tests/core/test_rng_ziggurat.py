@@ -4,7 +4,7 @@ import numpy as np
 from numba import njit
 from scipy import stats
 
-from sim.core.rng import ReferenceStream, next_normal_zig, next_normal_zig_words, stream_states
+from sim.core.rng import ReferenceStream, next_normal_zig, next_u64_words, stream_states, zig_candidate, zig_finish
 
 
 @njit(cache=True)
@@ -20,7 +20,13 @@ def _draw_words(s, n):
     out = np.empty(n)
     s0, s1, s2, s3 = s[0], s[1], s[2], s[3]
     for i in range(n):
-        out[i], s0, s1, s2, s3 = next_normal_zig_words(s0, s1, s2, s3)
+        r, s0, s1, s2, s3 = next_u64_words(s0, s1, s2, s3)
+        z, accepted, j = zig_candidate(r)
+        if not accepted:
+            s[0], s[1], s[2], s[3] = s0, s1, s2, s3
+            z = zig_finish(s, j, z)
+            s0, s1, s2, s3 = s[0], s[1], s[2], s[3]
+        out[i] = z
     s[0], s[1], s[2], s[3] = s0, s1, s2, s3
     return out
 
