@@ -293,8 +293,8 @@ def _period_loop(seats, stage, automata, session, s, convergence, max_periods, s
                             rng[0], rng[1], rng[2], rng[3] = s0, s1, s2, s3
                             zb = zig_finish(rng, j, zb)
                             s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
-                        # the published scale v = 1: c * z is z exactly
-                        sb = Q[li, 0, b] + (zb if c == 1.0 else c * zb) * w[li, b]
+                        # (c * z) * w: with the published scale v = 1, c * z is z exactly (one product, no branch)
+                        sb = Q[li, 0, b] + c * zb * w[li, b]
                         if sb > bv:
                             bv = sb
                             a = b
