@@ -263,12 +263,25 @@ def learn_arrays(res: LearnResult) -> dict:
     return arrays
 
 
+# what the learners are, by [learning] family, for the setup line of the evidence
+_FAMILY_WORDS = {"q": "Q-learning", "ucb": "upper-confidence-bound bandits", "thompson": "Thompson-sampling bandits",
+                 "fixed": "fixed policies read from a saved run"}
+
+
+def _setting(v) -> str:
+    # a whole number written as a float in the file (max_periods = 2e6) reads as the number, not as 2000000.0
+    if isinstance(v, float) and v.is_integer() and abs(v) < 1e15:
+        return str(int(v))
+    return str(v)
+
+
 def _describe_learn(doc: dict) -> list[str]:
     lt = doc.get("learning", {})
     run = doc.get("run", {})
-    params = ", ".join(f"{k} {v}" for k, v in lt.items()) or "the published defaults"
+    params = ", ".join(f"{k} {_setting(v)}" for k, v in lt.items() if k != "family") or "the published defaults"
+    who = _FAMILY_WORDS.get(lt.get("family", "q"), str(lt.get("family")))
     return [f"Market: {describe_market(doc.get('market', {}))}",
-            f"Learners: Q-learning ({params})",
+            f"Learners: {who} ({params})",
             f"Sessions: {run.get('sessions', 100)}, seed {run.get('seed', 0)}"]
 
 
