@@ -58,6 +58,7 @@ _FLAGS = {
         "demand_sigma": ("demand-sigma", "num"),
         "observe": ("observe", "str"),
         "signal_band": ("signal-band", "num"),
+        "price_noise": ("price-noise", "num"),
     },
     "impulse": {
         "firm": ("impulse-firm", "int"),
@@ -102,10 +103,14 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--demand-noise", metavar="D", help="distribution of the mean-one demand shock that scales every "
                                                        "firm's profit each period: lognormal (default) or normal")
     g.add_argument("--demand-sigma", metavar="SD", help="standard deviation of that shock (default 0: none)")
-    g.add_argument("--observe", metavar="WHAT", help="the learners' state: prices (the last periods' prices; default) "
-                                                     "or own_profit (own last price and whether own profit was low)")
+    g.add_argument("--observe", metavar="WHAT", help="the learners' state: prices (the last periods' prices; default), "
+                                                     "own_profit (own last price and whether own profit was low) or "
+                                                     "noisy_prices (the last prices, rivals' seen with error)")
     g.add_argument("--signal-band", metavar="B", help="with --observe own_profit: a profit more than this share below "
                                                       "the profit at the symmetric prices is low (default 0.1)")
+    g.add_argument("--price-noise", metavar="SD", help="with --observe noisy_prices: standard deviation of the error "
+                                                       "of a rival's price as a learner sees it, in grid steps "
+                                                       "(default 1)")
     g.add_argument("--counterfactual-share", metavar="S", help="with --update mixed: probability in (0, 1) that each "
                                                                "action not played is updated")
     g.add_argument("--family", metavar="F", help="q (Q-learning; default), ucb or thompson (bandits over the grid that "

@@ -41,18 +41,18 @@ comes.
 
 Random draws
 ------------
-Everything draws from the session's one xoshiro256** stream, in this fixed order. Learning, per
-period: seats in order, a learner's exploration draws (one uniform, and a second one when it explores)
-or an automaton's cheat draw (:func:`strategies.step.choose_level`); then, with a demand shock
-(``shock > 0``), one ziggurat normal for the period's shock (:mod:`sim.learning.shocks`); then, learners
-in seat order, a learner with the mixed update rule draws one uniform for each action it did not play, in increasing
-order (the asynchronous and synchronous rules draw nothing); a bandit draws in its own steps (a Thompson
-seat ``m`` normals where a Q-learner draws its exploration uniforms, a bandit with observation noise one
-normal at its update: :mod:`sim.learning.bandits`); then, after the learners'
-updates, automaton seats in order, each its transition draw (:func:`strategies.step.next_state`).
-Automata seated with learners see no perception errors, so :func:`strategies.step.bad_signal` never
-draws here. The engine's functions draw only when a probability is strictly between 0 and 1, so a
-line-up of deterministic automata draws exactly what the learners draw.
+Everything draws from the session's one xoshiro256** stream, in this fixed order. Learning, per period: seats in
+order, a learner's exploration draws (one uniform, and a second one when it explores) or an automaton's cheat draw
+(:func:`strategies.step.choose_level`); then, with a demand shock (``shock > 0``), one ziggurat normal for the
+period's shock (:mod:`sim.learning.shocks`); with noisy prices (``observe = 2``), learners in seat order, one
+ziggurat normal for each rival's price it sees, rivals in seat order (:mod:`sim.learning.noisy_prices`); then,
+learners in seat order, a learner with the mixed update rule draws one uniform for each action it did not play, in
+increasing order (the asynchronous and synchronous rules draw nothing); a bandit draws in its own steps (a Thompson
+seat ``m`` normals where a Q-learner draws its exploration uniforms, a bandit with observation noise one normal at
+its update: :mod:`sim.learning.bandits`); then, after the learners' updates, automaton seats in order, each its
+transition draw (:func:`strategies.step.next_state`). Automata seated with learners see no perception errors, so
+:func:`strategies.step.bad_signal` never draws here. The engine's functions draw only when a probability is strictly
+between 0 and 1, so a line-up of deterministic automata draws exactly what the learners draw.
 """
 
 from __future__ import annotations
@@ -75,6 +75,7 @@ from sim.learning.inputs import (
     UCB_FAMILY,
     new_triggers,
 )
+from sim.learning.noisy_prices import seen_price
 from sim.learning.shocks import demand_shock
 from sim.learning.signals import signal_code, signal_state
 from strategies.step import COLLUSIVE, bad_signal, choose_level, next_state
@@ -206,9 +207,12 @@ def run_session(seats, stage, automata, session, s, convergence, max_periods, sh
     observe : int
         What the learners' state is made of: 0 the last periods' prices (``s`` a history state), 1 the own last
         price and a low-profit signal (``s`` the system state of :mod:`sim.learning.signals`; Q-learners with the
-        asynchronous rule only, as :func:`sim.learning.signals.check_signal_lineup` requires).
+        asynchronous rule only, as :func:`sim.learning.signals.check_signal_lineup` requires), 2 the last prices as
+        each learner saw them (``s`` the system state of :mod:`sim.learning.noisy_prices`, the same learners, memory
+        one).
     band : float
-        The signal's band (``observe = 1``).
+        The signal's band (``observe = 1``), or the standard deviation of a seen price's error in grid steps
+        (``observe = 2``).
 
     Returns
     -------
@@ -244,7 +248,8 @@ def _period_loop(seats, stage, automata, session, s, convergence, max_periods, s
     w = bandit_scales(kind, family, lidx, radix, counts)
     # the profit signal: the profile where every seat charges price a is a * ptot (sim.learning.signals)
     ptot = place.sum()
-    width = 2 * radix[0]
+    # a learner's states under a signal: 2 m (own price, low profit) or m ** n (the profile it saw)
+    width = 2 * radix[0] if observe is None or observe != 2 else M
     wl = w.shape[1] - 1
     ucb_t, ucb_c, ucb_cs = -1.0, -1.0, 0.0
     t = clock[0]
@@ -325,12 +330,23 @@ def _period_loop(seats, stage, automata, session, s, convergence, max_periods, s
         theta = 1.0
         if sigma is not None:
             theta = demand_shock(shock, sigma, rng)
-        if observe is not None and observe:
+        if observe is not None and observe == 1:
             # the state the shock moves: every learner's own price and whether its realised profit was low
             s_new = 0
             for i in range(n):
                 s_new += signal_code(act[i], theta * payoff[prof, i], payoff[act[i] * ptot, i], band, radix[i]) * \
                     width**i
+        elif observe is not None and observe == 2:
+            # noisy prices (sim.learning.noisy_prices): every learner's own price, and its rivals' as it saw them
+            s_new = 0
+            for i in range(n):
+                o = 0
+                for j in range(n):
+                    aj = act[j]
+                    if j != i:
+                        aj = seen_price(aj, band, radix[j], next_normal_zig(rng))
+                    o += aj * place[j]
+                s_new += o * width**i
         # 2. every learner updates the value of the action it played, and keeps its greedy action
         changed = False
         for i in range(n):

@@ -81,6 +81,7 @@ from sim.learning.events import Event, adapt_saved, check_event, run_tracked
 from sim.learning.inputs import STATUS_CONVERGED, DeviationInputs, LimitOutputs, SessionState
 from sim.learning.lineup import Lineup, available_memory, compile_lineup
 from sim.learning.merger import merged_lineup, merged_statistics, merger_benchmarks, merger_words, refuse_merged
+from sim.learning.noisy_prices import PRICE_NOISE, check_noisy_lineup, noisy_start, true_profile
 from sim.learning.protocol import protocol_changes, protocol_words
 from sim.learning.results import (
     CYCLE_STORE,
@@ -116,7 +117,8 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
           near: float = 0.1, workers: int | None = None, progress: bool | None = None, cell: int = 0,
           confidence: float = 0.95, limit_periods: int = LIMIT_PERIODS, start: SavedLearners | None = None,
           keep: bool = False, event: Event | None = None, timing: str = "simultaneous", demand_noise: str = "lognormal",
-          demand_sigma: float = 0.0, observe: str = "prices", signal_band: float = SIGNAL_BAND) -> LearningResult:
+          demand_sigma: float = 0.0, observe: str = "prices", signal_band: float = SIGNAL_BAND,
+          price_noise: float = PRICE_NOISE) -> LearningResult:
     """Run independent learning sessions and analyse what the learners converged to.
 
     Parameters
@@ -177,9 +179,12 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         cannot be saved, continued or followed by an event.
     demand_noise, demand_sigma : {"lognormal", "normal"}, float
         Mean-one demand shock scaling every realised profit, its standard deviation (0: none; sim.learning.shocks).
-    observe, signal_band : {"prices", "own_profit"}, float in (0, 1)
-        A learner's state: the last periods' prices, or its own last price and whether its profit fell below
-        ``1 - signal_band`` times its reference profit (Q-learners only, no event; :mod:`sim.learning.signals`).
+    observe, signal_band : {"prices", "own_profit", "noisy_prices"}, float in (0, 1)
+        A learner's state: the last periods' prices; its own last price and whether its profit fell below
+        ``1 - signal_band`` times its reference profit (Q-learners only, no event; :mod:`sim.learning.signals`); or
+        the last prices as it saw them (Q-learners with memory one, no event; :mod:`sim.learning.noisy_prices`).
+    price_noise : float in (0, 100]
+        With ``observe = "noisy_prices"``: the standard deviation of the error of a seen price, in grid steps.
 
     Returns
     -------
@@ -195,7 +200,7 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     dev_index = _deviation_index(lineup, run["deviator"], deviation)
     settings = {**run, "workers": n_workers, "deviation": deviation,
                 **_shock_settings(demand_noise, demand_sigma, run["timing"], event),
-                **_signal_settings(lineup, observe, signal_band, run["timing"], event)}
+                **_signal_settings(lineup, observe, signal_band, run["timing"], event, price_noise)}
     if settings.pop("timing") == "alternating":
         # the key is written only where it changes the protocol: simultaneous results stay as they were
         check_alternating(lineup, start, keep, event)
@@ -329,14 +334,25 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
         rng = state.copy()
         session = lineup.session_state(rng, g0)
         s = K.initial_state(rng, lineup.seats, lineup.stage)
-        if "observe" in settings:
+        if settings.get("observe") == "own_profit":
             s = signal_start(s, lineup)
+        elif settings.get("observe") == "noisy_prices":
+            s = noisy_start(s, lineup)
     else:
         rng = start.rng[j].copy()
         session = SessionState(start.Q[j].copy(), start.greedy[j].copy(), start.z[j].copy(), rng,
                                start.clock[j].copy(), start.triggers[j].copy(), start.counts[j].copy(),
                                start.sums[j].copy())
         s = int(start.history[j])
+    if settings.get("observe") == "noisy_prices":
+        # learning with noisy prices; the limit is greedy play without error from the profile played last
+        st, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s,
+                                 settings["convergence"], settings["max_periods"], *_shock(settings), 2,
+                                 settings["price_noise"])
+        buf.status[j], buf.periods[j] = st, t
+        buf.store(j, session, s)
+        L.analyse_limit(true_profile(s, lineup), lineup.play(session.greedy, t), dev, buf.outputs(j))
+        return
     if "observe" in settings:
         band = settings["signal_band"]
         st, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, session, s,
@@ -380,15 +396,21 @@ def _shock_settings(demand_noise: str, demand_sigma: float, timing: str, event: 
     return {"demand_noise": demand_noise, "demand_sigma": sigma}
 
 
-def _signal_settings(lineup: Lineup, observe: str, band: float, timing: str, event: Event | None) -> dict:
-    """The profit-signal protocol's entries of a run's settings: none with the price protocol (results stay as they
-    were); the signal needs Q-learners on every seat, simultaneous moves and no event."""
+def _signal_settings(lineup: Lineup, observe: str, band: float, timing: str, event: Event | None,
+                     noise: float = PRICE_NOISE) -> dict:
+    """The entries of a run's settings of a protocol that observes something else than the prices: none with the
+    price protocol (results stay as they were); the profit signal and noisy prices need Q-learners on every seat,
+    simultaneous moves and no event."""
     observe = SIGNAL_CONSTRAINTS["observe"].check("observe", observe)
     if observe == "prices":
         return {}
     band = float(SIGNAL_CONSTRAINTS["signal_band"].check("signal_band", band))
+    noise = float(SIGNAL_CONSTRAINTS["price_noise"].check("price_noise", noise))
     if timing != "simultaneous" or event is not None:
-        raise InputError("observe", "'own_profit' needs simultaneous moves and no event")
+        raise InputError("observe", f"{observe!r} needs simultaneous moves and no event")
+    if observe == "noisy_prices":
+        check_noisy_lineup(lineup, "observe")
+        return {"observe": observe, "price_noise": noise}
     check_signal_lineup(lineup, "observe")
     return {"observe": observe, "signal_band": band}
 

@@ -83,14 +83,17 @@ __all__ = [
     "signal_state",
 ]
 
-#: what a learner's state is made of: the last periods' prices (default), or its own price and a profit signal
-OBSERVE = ("prices", "own_profit")
+#: what a learner's state is made of: the last periods' prices (default), its own price and a profit signal, or the
+#: last prices as it saw them, with error (:mod:`sim.learning.noisy_prices`)
+OBSERVE = ("prices", "own_profit", "noisy_prices")
 #: the kernel's code of each (``observe`` of :func:`sim.learning.kernel.run_session`)
-OBSERVE_CODES = {"prices": 0, "own_profit": 1}
+OBSERVE_CODES = {"prices": 0, "own_profit": 1, "noisy_prices": 2}
 #: the default share below the reference profit that makes a profit low
 SIGNAL_BAND = 0.1
-#: the settings of the protocol, as data (keys of ``[learning]``)
-SIGNAL_CONSTRAINTS = {"observe": Options(*OBSERVE), "signal_band": Real(0, 1, closed="neither")}
+#: the settings of the protocols, as data (keys of ``[learning]``); ``price_noise`` is in grid steps, at most a
+#: hundred (beyond, a seen price is about uniform on any grid of the sizes used)
+SIGNAL_CONSTRAINTS = {"observe": Options(*OBSERVE), "signal_band": Real(0, 1, closed="neither"),
+                      "price_noise": Real(0, 100, closed="right")}
 
 
 def check_signal_lineup(lineup, key: str = "learning.observe") -> None:

@@ -15,6 +15,7 @@ from sim.learning.alternating import TIMINGS, check_alternating
 from sim.learning.events import EVENT_KEYS, check_event, event_from_table, with_saved_grids
 from sim.learning.lineup import compile_lineup
 from sim.learning.merger import refuse_merged
+from sim.learning.noisy_prices import PRICE_NOISE, check_noisy_lineup
 from sim.learning.results import LIMIT_PERIODS
 from sim.learning.saved import check_start, load_learners
 from sim.learning.shocks import SHOCK_CONSTRAINTS, shock_code
@@ -57,7 +58,7 @@ LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init", "upd
                   "exploration", "noise", "policy_from", "firm", "session")
 #: keys of the tables a learning experiment reads, in the order error messages list them
 LEARNING_KEYS = (*LEARNER_PARAMS, "convergence", "max_periods", "near", "limit_periods", "save_to", "continue_from",
-                 "timing", "demand_noise", "demand_sigma", "observe", "signal_band")
+                 "timing", "demand_noise", "demand_sigma", "observe", "signal_band", "price_noise")
 IMPULSE_KEYS = ("firm", "action", "periods")
 RUN_KEYS = ("sessions", "seed", "workers", "confidence")
 EXPERIMENT_KEYS = ("name", "kind", "description")
@@ -259,7 +260,9 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     # the line-up and its memory, checked before any work (the run repeats this, cheaply)
     workers = settings["workers"] or usable_cores()
     lineup = compile_lineup(market, learner, workers=min(workers, settings["sessions"]), random_automata="estimate")
-    if "observe" in settings:
+    if settings.get("observe") == "noisy_prices":
+        check_noisy_lineup(lineup)
+    elif "observe" in settings:
         check_signal_lineup(lineup)
     save_to = _file_name(lt, "save_to")
     continue_from = _file_name(lt, "continue_from")
@@ -290,16 +293,22 @@ def _demand_shock(lt: dict, settings: dict, doc: dict) -> None:
 
 
 def _signal(lt: dict, settings: dict, doc: dict) -> None:
-    """``learning.observe`` and ``learning.signal_band`` (:mod:`sim.learning.signals`), written into the settings
-    only with the profit signal (``observe = "own_profit"``), which needs simultaneous moves and no event."""
+    """``learning.observe`` with ``learning.signal_band`` (:mod:`sim.learning.signals`) or ``learning.price_noise``
+    (:mod:`sim.learning.noisy_prices`), written into the settings only with the profit signal or noisy prices,
+    which need simultaneous moves and no event."""
     observe = SIGNAL_CONSTRAINTS["observe"].check("learning.observe", lt.get("observe", "prices"))
     band = SIGNAL_CONSTRAINTS["signal_band"].check("learning.signal_band", lt.get("signal_band", SIGNAL_BAND))
+    noise = SIGNAL_CONSTRAINTS["price_noise"].check("learning.price_noise", lt.get("price_noise", PRICE_NOISE))
     if observe == "prices":
         return
     if "timing" in settings or "event" in doc:
-        raise InputError("learning.observe", "'own_profit' needs simultaneous moves (learning.timing = "
+        raise InputError("learning.observe", f"{observe!r} needs simultaneous moves (learning.timing = "
                                              "'simultaneous') and no [event]")
-    settings["observe"], settings["signal_band"] = observe, float(band)
+    settings["observe"] = observe
+    if observe == "noisy_prices":
+        settings["price_noise"] = float(noise)
+    else:
+        settings["signal_band"] = float(band)
 
 
 def _event(doc: dict, overrides: dict, lt: dict):

@@ -275,6 +275,12 @@ CASES = [
     ("unknown observation", "learn", "learn", ("k = 1\n", 'k = 1\nobserve = "rivals_costs"\n'), [], "learning.observe"),
     ("signal band of one", "learn", "learn", ("k = 1\n", 'k = 1\nobserve = "own_profit"\nsignal_band = 1.0\n'), [],
      "learning.signal_band"),
+    ("price noise of zero", "learn", "learn", ("k = 1\n", 'k = 1\nobserve = "noisy_prices"\nprice_noise = 0\n'), [],
+     "learning.price_noise"),
+    ("negative price noise flag", "learn", "learn", ("k = 1\n", 'k = 1\nobserve = "noisy_prices"\n'),
+     ["--price-noise", "-1"], "--price-noise"),
+    ("noisy prices with a memory of two", "learn", "learn", ("k = 1\n", 'k = 2\nobserve = "noisy_prices"\n'), [],
+     "learning.observe"),
 ]
 
 _OPTIONAL = ("{tmp}/input.toml",)

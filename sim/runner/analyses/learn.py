@@ -309,6 +309,10 @@ KIND = Kind(
         "With learning.demand_sigma above 0, one mean-one demand shock a period scales every firm's realised profit, "
         "which is what the learners learn from; they condition on past prices only, so the limit outcomes do not "
         "react to a draw and report expected profits (after Calvano, Calzolari, Denicolo and Pastorello, 2021).",
+        "With learning.observe = 'noisy_prices', a learner sees its own last price exactly and each rival's with a "
+        "normal error of learning.price_noise grid steps, rounded to the grid (imperfect monitoring after Stigler, "
+        "1964, and Green and Porter, 1984); the limit outcomes are those of greedy play without error from the "
+        "prices played last.",
         PartAssumption("With learning.observe = 'own_profit', a learner sees only its own last price and whether its "
                        "profit fell more than learning.signal_band below the profit at the symmetric prices, so a "
                        "rival's undercut and a bad draw look alike (after Green and Porter, 1984); the price wars are "
