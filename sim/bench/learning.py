@@ -16,7 +16,7 @@ import numpy as np
 
 from sim.bench.engine import alternate_best
 from sim.bench.learning_alternating import alternating_benchmark
-from sim.bench.learning_signal import signal_benchmark
+from sim.bench.learning_signal import noisy_prices_benchmark, signal_benchmark
 from sim.learning.lineup import compile_lineup
 from sim.learning.session import kernel_session, reference_session
 from sim.models.demand import LogitDemand
@@ -238,7 +238,8 @@ def bench_section(opts) -> dict:
         The measures of :func:`benchmark`, ``sessions_run`` (:func:`time_sessions`), ``bandits`` (per family, the
         measures of :func:`bandit_benchmark`, ``speed_relative_to_q_learning`` included), ``alternating`` (the same for
         alternating moves, :func:`sim.bench.learning_alternating.alternating_benchmark`), ``own_profit_signal`` (the
-        same for the own-profit signal, :func:`sim.bench.learning_signal.signal_benchmark`), ``workload``,
+        same for the own-profit signal, :func:`sim.bench.learning_signal.signal_benchmark`), ``noisy_prices`` (the same
+        for noisy prices, :func:`sim.bench.learning_signal.noisy_prices_benchmark`), ``workload``,
         ``targets`` and ``notes``.
     """
     quick = bool(getattr(opts, "quick", False))
@@ -293,4 +294,11 @@ def bench_section(opts) -> dict:
     out["targets"]["own-profit signal kernel within a factor 2 of Q-learning per period"] = (
         sig["speed_relative_to_q_learning"] >= 0.5)
     out["targets"]["own-profit signal twin and kernel identical"] = sig["reference_identical_to_kernel"]
+    # learners that see the rival's price with error (sim.learning.noisy_prices), timed the same way
+    noisy = noisy_prices_benchmark(**size)
+    out["noisy_prices"] = noisy
+    out["targets"]["noisy-price kernel >= 100 x its twin"] = noisy["ratio"] >= 100
+    out["targets"]["noisy-price kernel within a factor 2 of Q-learning per period"] = (
+        noisy["speed_relative_to_q_learning"] >= 0.5)
+    out["targets"]["noisy-price twin and kernel identical"] = noisy["reference_identical_to_kernel"]
     return out

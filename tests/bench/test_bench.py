@@ -83,6 +83,8 @@ def test_learning_section_reports_both_rates_and_checks_identity():
             bb["kernel_periods_per_second"] / bb["q_learning_periods_per_second"])
     assert {"own-profit signal kernel >= 100 x its twin", "own-profit signal twin and kernel identical"} <= set(
         out["targets"]) and out["own_profit_signal"]["reference_identical_to_kernel"] is True
+    assert {"noisy-price kernel >= 100 x its twin", "noisy-price twin and kernel identical"} <= set(
+        out["targets"]) and out["noisy_prices"]["reference_identical_to_kernel"] is True
 
 
 def test_runfolders_section_measures_report_and_verify():
@@ -115,11 +117,12 @@ def test_learning_section_measures_alternating_moves_against_their_twin():
     assert out["ratio"] == pytest.approx(out["kernel_periods_per_second"] / out["reference_periods_per_second"])
 
 
-def test_learning_section_measures_the_own_profit_signal_against_its_twin_and_q_learning():
+@pytest.mark.parametrize("observe", ["own_profit", "noisy_prices"])
+def test_learning_section_measures_the_observation_protocols_against_their_twins_and_q_learning(observe):
     # structure only: the targets (>= 100 x the twin, within a factor 2 of Q-learning) are judged by supergame bench
     from sim.bench.learning_signal import signal_benchmark
 
-    out = signal_benchmark(reference_periods=2_000, kernel_periods=20_000)
+    out = signal_benchmark(reference_periods=2_000, kernel_periods=20_000, observe=observe)
     assert out["reference_identical_to_kernel"] is True
     assert out["ratio"] == pytest.approx(out["kernel_periods_per_second"] / out["reference_periods_per_second"])
     assert out["speed_relative_to_q_learning"] == pytest.approx(
