@@ -186,3 +186,29 @@ def test_the_shipped_experiment_loses_collusion_as_the_error_grows():
     assert large[2] < small[0]
     means = [out[sd][1] for sd in sorted(noises)]
     assert means == sorted(means, reverse=True)
+
+
+def test_a_session_split_in_two_halves_with_a_save_between_is_the_uninterrupted_session(tmp_path):
+    """The saved state (Q-values, views, stream) is all a session needs: learning 4,000 periods, saving, and going on
+    to 8,000 gives the bytes of 8,000 periods in one go. Continuing under the prices protocol is refused."""
+    from sim.learning.saved import load_learners, save_learners
+
+    kw = {"sessions": 3, "seed": 8, "convergence": 50_000, "workers": 2, "limit_periods": 500, "progress": False,
+          "observe": "noisy_prices", "price_noise": 1.5}
+    learner = QLearner(m=5, beta=5e-4)
+    whole = learn(logit_market(), learner, max_periods=8_000, keep=True, **kw)
+    half = learn(logit_market(), learner, max_periods=4_000, keep=True, **kw)
+    assert (half.periods == 4_000).all()
+    save_learners(tmp_path / "half.npz", half.saved)
+    start = load_learners(tmp_path / "half.npz")
+    assert start.header["observe"] == "noisy_prices"
+    rest = learn(logit_market(), learner, max_periods=8_000, start=start, keep=True, **kw)
+    save_learners(tmp_path / "whole.npz", whole.saved)
+    save_learners(tmp_path / "rest.npz", rest.saved)
+    assert (tmp_path / "whole.npz").read_bytes() == (tmp_path / "rest.npz").read_bytes()
+    assert np.array_equal(whole.limit_prices, rest.limit_prices)
+    assert not np.array_equal(half.saved.Q, whole.saved.Q)
+    with pytest.raises(InputError) as exc:
+        learn(logit_market(), learner, max_periods=8_000, start=start,
+              **{k: v for k, v in kw.items() if k not in ("observe", "price_noise")})
+    assert exc.value.key == "observe" and "noisy_prices" in str(exc.value)
