@@ -59,8 +59,14 @@ SHOCK_PARAMETERS.update({
     "learning.observe": ("what the learners observe", "",
                          "'prices': the last periods' prices (the state of Calvano et al., 2020); 'own_profit': the "
                          "own last price and whether the own profit fell below the signal band of the profit at "
-                         "the symmetric prices.", "given; sim.learning.signals"),
+                         "the symmetric prices; 'noisy_prices': the own last price and the rivals' as seen with a "
+                         "normal error.", "given; sim.learning.signals, sim.learning.noisy_prices"),
     "learning.signal_band": ("band of the low-profit signal", "0 to 1",
                              "A profit more than this share below the profit at the symmetric prices is low.",
                              "given; sim.learning.signals"),
+    "learning.price_noise": ("error of a seen price", "grid steps",
+                             "Standard deviation of the normal error with which a learner sees each rival's last "
+                             "price, rounded to the nearest grid price (each learner its own draws).",
+                             "given; imperfect monitoring after Stigler (1964) and Green and Porter (1984); "
+                             "sim.learning.noisy_prices"),
 })

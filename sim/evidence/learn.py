@@ -16,7 +16,7 @@ from sim.evidence.answers import learn_headline
 from sim.evidence.learn_alternating import alternating_figure, alternating_lines
 from sim.evidence.learn_automata import automaton_lines
 from sim.evidence.learn_event import event_figure, event_lines
-from sim.evidence.learn_shocks import shock_lines
+from sim.evidence.learn_shocks import observe_lines, shock_lines
 from sim.evidence.learn_signals import signal_figure, signal_lines
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.thresholds import describe_market
@@ -114,7 +114,7 @@ def _setup_lines(res: LearnResult) -> list[str]:
     lines = [f"Market: {describe_market(market.to_dict(), res.n_firms)}", *_seat_lines(res)]
     lines.append(f"Sessions: {sm['sessions']} (seed {st['seed']}), converged after {st['convergence']} periods "
                  f"without a change of any greedy strategy, cap {st['max_periods']:g} periods")
-    lines += shock_lines(res)
+    lines += observe_lines(res) + shock_lines(res)
     lines.append("")
     c, per = sm["converged"], sm["periods"]
     lines.append(f"Converged: {c['count']} of {c['n']} sessions ({_pct(c['share'])}, {lvl} CI "

@@ -10,7 +10,7 @@ from sim.evidence.render import Drawn, pyplot
 from sim.learning.analysis import LearnResult
 from sim.learning.shock_response import ShockResponse
 
-__all__ = ["shock_lines", "shock_response_figure", "shock_response_lines"]
+__all__ = ["observe_lines", "shock_lines", "shock_response_figure", "shock_response_lines"]
 
 _SHAPES = {"lognormal": "exp(sigma Z - sigma^2/2)", "normal": "1 + sigma Z, floored at 0"}
 
@@ -38,6 +38,30 @@ def shock_lines(res: LearnResult) -> list[str]:
                                              "play after learning) do not react to a draw") +
             "; the limit profits are expected profits (Calvano, Calzolari, Denicolo and Pastorello, 2021, after "
             "Green and Porter, 1984)"]
+
+
+def observe_lines(res: LearnResult) -> list[str]:
+    """What the learners see, when it is not the last periods' prices (no lines with the prices protocol).
+
+    Parameters
+    ----------
+    res : LearnResult
+
+    Returns
+    -------
+    list of str
+    """
+    st = res.settings
+    if st.get("observe") == "own_profit":
+        return [f"What the learners see: their own last price and whether their profit fell more than "
+                f"{100 * st['signal_band']:g} % below the profit at equal prices, not their rivals' prices (a "
+                "rival's undercut and a bad draw look alike: Green and Porter, 1984)"]
+    if st.get("observe") == "noisy_prices":
+        return [f"What the learners see: their own last price exactly, and each rival's with a normal error of "
+                f"{st['price_noise']:g} grid steps rounded to the grid, every learner drawing its own errors "
+                "(imperfect monitoring: Stigler, 1964; Green and Porter, 1984); the limit outcomes are greedy play "
+                "without error"]
+    return []
 
 
 def shock_response_lines(resp: ShockResponse) -> list[str]:

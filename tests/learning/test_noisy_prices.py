@@ -212,3 +212,23 @@ def test_a_session_split_in_two_halves_with_a_save_between_is_the_uninterrupted_
         learn(logit_market(), learner, max_periods=8_000, start=start,
               **{k: v for k, v in kw.items() if k not in ("observe", "price_noise")})
     assert exc.value.key == "observe" and "noisy_prices" in str(exc.value)
+
+
+def test_the_printed_report_says_what_the_learners_see(tmp_path, capsys, monkeypatch):
+    from sim.cli import main
+
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "e.toml").write_text(learn_text("noisy", 'm = 5\nbeta = 2e-4\nobserve = "noisy_prices"\n'
+                                                         'price_noise = 0.75\nconvergence = 1000'))
+    assert main(["learn", "e.toml"]) == 0
+    out = capsys.readouterr().out
+    assert ("What the learners see: their own last price exactly, and each rival's with a normal error of 0.75 grid "
+            "steps") in out
+    (tmp_path / "p.toml").write_text(learn_text("plain", 'm = 5\nbeta = 2e-4\nconvergence = 1000'))
+    assert main(["learn", "p.toml"]) == 0
+    assert "What the learners see" not in capsys.readouterr().out
+    (tmp_path / "s.toml").write_text(learn_text("signal", 'm = 5\nbeta = 2e-4\nobserve = "own_profit"\n'
+                                                          'signal_band = 0.15\nconvergence = 1000'))
+    assert main(["learn", "s.toml"]) == 0
+    assert ("What the learners see: their own last price and whether their profit fell more than 15 % below the "
+            "profit at equal prices") in capsys.readouterr().out
