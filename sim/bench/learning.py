@@ -16,7 +16,7 @@ import numpy as np
 
 from sim.bench.engine import alternate_best
 from sim.bench.learning_alternating import alternating_benchmark
-from sim.bench.learning_signal import noisy_prices_benchmark, signal_benchmark
+from sim.bench.learning_signal import signal_benchmark
 from sim.learning.lineup import compile_lineup
 from sim.learning.session import kernel_session, reference_session
 from sim.models.demand import LogitDemand
@@ -239,7 +239,7 @@ def bench_section(opts) -> dict:
         measures of :func:`bandit_benchmark`, ``speed_relative_to_q_learning`` included), ``alternating`` (the same for
         alternating moves, :func:`sim.bench.learning_alternating.alternating_benchmark`), ``own_profit_signal`` (the
         same for the own-profit signal, :func:`sim.bench.learning_signal.signal_benchmark`), ``noisy_prices`` (the same
-        for noisy prices, :func:`sim.bench.learning_signal.noisy_prices_benchmark`), ``workload``,
+        for noisy prices, ``observe="noisy_prices"``), ``workload``,
         ``targets`` and ``notes``.
     """
     quick = bool(getattr(opts, "quick", False))
@@ -295,7 +295,7 @@ def bench_section(opts) -> dict:
         sig["speed_relative_to_q_learning"] >= 0.5)
     out["targets"]["own-profit signal twin and kernel identical"] = sig["reference_identical_to_kernel"]
     # learners that see the rival's price with error (sim.learning.noisy_prices), timed the same way
-    noisy = noisy_prices_benchmark(**size)
+    noisy = signal_benchmark(**size, observe="noisy_prices")
     out["noisy_prices"] = noisy
     out["targets"]["noisy-price kernel >= 100 x its twin"] = noisy["ratio"] >= 100
     out["targets"]["noisy-price kernel within a factor 2 of Q-learning per period"] = (

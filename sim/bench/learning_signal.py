@@ -21,7 +21,7 @@ from sim.models.demand import LogitDemand
 from sim.models.market import Market
 from strategies.qlearning import QLearner
 
-__all__ = ["noisy_prices_benchmark", "signal_benchmark"]
+__all__ = ["signal_benchmark"]
 
 _NEVER = 2**62
 #: the demand shock of the workload: lognormal, sigma 0.1 (the shipped experiment's)
@@ -110,7 +110,3 @@ def signal_benchmark(*, reference_periods: int = 100_000, kernel_periods: int = 
     out["ratio"] = out["kernel_periods_per_second"] / out["reference_periods_per_second"]
     return out
 
-
-def noisy_prices_benchmark(**kwargs) -> dict:
-    """:func:`signal_benchmark` of the noisy-price protocol (the same parameters but ``observe``)."""
-    return signal_benchmark(**kwargs, observe="noisy_prices")

@@ -179,12 +179,10 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
         cannot be saved, continued or followed by an event.
     demand_noise, demand_sigma : {"lognormal", "normal"}, float
         Mean-one demand shock scaling every realised profit, its standard deviation (0: none; sim.learning.shocks).
-    observe, signal_band : {"prices", "own_profit", "noisy_prices"}, float in (0, 1)
-        A learner's state: the last periods' prices; its own last price and whether its profit fell below
-        ``1 - signal_band`` times its reference profit (Q-learners only, no event; :mod:`sim.learning.signals`); or
-        the last prices as it saw them (Q-learners with memory one, no event; :mod:`sim.learning.noisy_prices`).
-    price_noise : float in (0, 100]
-        With ``observe = "noisy_prices"``: the standard deviation of the error of a seen price, in grid steps.
+    observe, signal_band, price_noise : {"prices", "own_profit", "noisy_prices"}, float in (0, 1), float in (0, 100]
+        A learner's state: the last periods' prices; its own last price and whether its profit fell below ``1 -
+        signal_band`` times its reference profit (:mod:`sim.learning.signals`); or the last prices as it saw them,
+        with an error of standard deviation ``price_noise`` grid steps (:mod:`sim.learning.noisy_prices`).
 
     Returns
     -------
