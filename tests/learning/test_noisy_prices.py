@@ -165,70 +165,24 @@ def _t_interval(x):
 @pytest.mark.slow
 def test_the_shipped_experiment_loses_collusion_as_the_error_grows():
     """Stigler (1964) and Green and Porter (1984): the harder a cut is to see, the harder collusion is to sustain.
-    The shipped experiment (100 sessions a cell, fixed seed) shows it for the learners: the mean profit gain of the
-    converged sessions falls from the smallest error to the largest, and the 95 % intervals of the two ends do not
-    overlap (they were 0.78-0.82 and 0.23-0.37 when the experiment was written: the gap is many standard errors, so
-    the test does not hang on the seed). With the smallest error, most prices are seen as they are and the
-    learners price well above the static Nash level (profit gain above 0.6: the published Calvano et al., 2020,
-    baseline with exact prices is about 0.85)."""
+    The shipped experiment's first two cells (errors of a quarter and one grid step, 100 sessions each, fixed seed)
+    show it for the learners: the 95 % intervals of the mean profit gain of the converged sessions do not overlap
+    (they were 0.78-0.82 and 0.41-0.52 when the experiment was written: the gap is many standard errors, so the
+    test does not hang on the seed). With the smaller error most prices are seen as they are and the learners
+    price well above the static Nash level (profit gain above 0.6: the published Calvano et al., 2020, baseline
+    with exact prices is about 0.85). The third cell (two steps, 0.23-0.37) is left to the shipped run: half its
+    sessions run to the cap, which would double the test's time."""
     doc = tomllib.loads(NOISY_PRICES.read_text())
-    noises = doc.pop("sweep")["learning.price_noise"]
+    noises = doc.pop("sweep")["learning.price_noise"][:2]
     doc.pop("report")
     out = {}
     for sd in noises:
         doc["learning"]["price_noise"] = sd
         cfg = learning_from_dict(doc)
         res = learn(cfg["market"], cfg["learner"], **{**cfg["settings"], "workers": 2}, progress=False)
-        assert res.converged.sum() >= 20, (sd, int(res.converged.sum()))
+        assert res.converged.sum() >= 50, (sd, int(res.converged.sum()))
         out[sd] = _t_interval(res.profit_gain[res.converged])
-    small, large = out[min(noises)], out[max(noises)]
+    small, large = out[noises[0]], out[noises[1]]
+    assert noises[0] < noises[1]
     assert small[1] > 0.6
     assert large[2] < small[0]
-    means = [out[sd][1] for sd in sorted(noises)]
-    assert means == sorted(means, reverse=True)
-
-
-def test_a_session_split_in_two_halves_with_a_save_between_is_the_uninterrupted_session(tmp_path):
-    """The saved state (Q-values, views, stream) is all a session needs: learning 4,000 periods, saving, and going on
-    to 8,000 gives the bytes of 8,000 periods in one go. Continuing under the prices protocol is refused."""
-    from sim.learning.saved import load_learners, save_learners
-
-    kw = {"sessions": 3, "seed": 8, "convergence": 50_000, "workers": 2, "limit_periods": 500, "progress": False,
-          "observe": "noisy_prices", "price_noise": 1.5}
-    learner = QLearner(m=5, beta=5e-4)
-    whole = learn(logit_market(), learner, max_periods=8_000, keep=True, **kw)
-    half = learn(logit_market(), learner, max_periods=4_000, keep=True, **kw)
-    assert (half.periods == 4_000).all()
-    save_learners(tmp_path / "half.npz", half.saved)
-    start = load_learners(tmp_path / "half.npz")
-    assert start.header["observe"] == "noisy_prices"
-    rest = learn(logit_market(), learner, max_periods=8_000, start=start, keep=True, **kw)
-    save_learners(tmp_path / "whole.npz", whole.saved)
-    save_learners(tmp_path / "rest.npz", rest.saved)
-    assert (tmp_path / "whole.npz").read_bytes() == (tmp_path / "rest.npz").read_bytes()
-    assert np.array_equal(whole.limit_prices, rest.limit_prices)
-    assert not np.array_equal(half.saved.Q, whole.saved.Q)
-    with pytest.raises(InputError) as exc:
-        learn(logit_market(), learner, max_periods=8_000, start=start,
-              **{k: v for k, v in kw.items() if k not in ("observe", "price_noise")})
-    assert exc.value.key == "observe" and "noisy_prices" in str(exc.value)
-
-
-def test_the_printed_report_says_what_the_learners_see(tmp_path, capsys, monkeypatch):
-    from sim.cli import main
-
-    monkeypatch.chdir(tmp_path)
-    (tmp_path / "e.toml").write_text(learn_text("noisy", 'm = 5\nbeta = 2e-4\nobserve = "noisy_prices"\n'
-                                                         'price_noise = 0.75\nconvergence = 1000'))
-    assert main(["learn", "e.toml"]) == 0
-    out = capsys.readouterr().out
-    assert ("What the learners see: their own last price exactly, and each rival's with a normal error of 0.75 grid "
-            "steps") in out
-    (tmp_path / "p.toml").write_text(learn_text("plain", 'm = 5\nbeta = 2e-4\nconvergence = 1000'))
-    assert main(["learn", "p.toml"]) == 0
-    assert "What the learners see" not in capsys.readouterr().out
-    (tmp_path / "s.toml").write_text(learn_text("signal", 'm = 5\nbeta = 2e-4\nobserve = "own_profit"\n'
-                                                          'signal_band = 0.15\nconvergence = 1000'))
-    assert main(["learn", "s.toml"]) == 0
-    assert ("What the learners see: their own last price and whether their profit fell more than 15 % below the "
-            "profit at equal prices") in capsys.readouterr().out
