@@ -45,6 +45,27 @@ SHOCK_ENTRIES.update({
                          _MEAN),
 })
 
+_ERROR_PLAY = ("after learning with noisy prices (learning.observe = 'noisy_prices'), each converged session's "
+               "learned strategies play greedily from its final state for 10,000 periods, every learner seeing its "
+               "rivals' prices with the error of learning; no learning, exploration or demand shock "
+               "(sim.learning.noisy_prices.error_play); imperfect monitoring after Stigler (1964, JPE 72) and Green "
+               "and Porter (1984, Econometrica 52(1))")
+
+SHOCK_ENTRIES.update({
+    "error_play_profit_gain": ("profit gain in play with error after learning", "share of the gain",
+                               "Mean over sessions of (sum of the firms' mean profits over the periods of play with "
+                               "error - sum of static Nash profits) / (sum of joint-profit profits - sum of static "
+                               "Nash profits).", _ERROR_PLAY, _MEAN),
+    "error_play_gain_change": ("change of the profit gain that the error causes after learning",
+                               "share of the gain",
+                               "Mean over sessions of the profit gain in play with error minus the same session's "
+                               "limit profit gain without error (negative: the error costs collusion).", _ERROR_PLAY,
+                               _MEAN),
+    "error_play_price": ("mean price in play with error after learning", "price",
+                         "Mean over sessions of the firm's mean price over the periods of play with error.",
+                         _ERROR_PLAY, _MEAN),
+})
+
 SHOCK_PARAMETERS = {
     "learning.demand_sigma": ("standard deviation of the demand shock during learning", "",
                               "Standard deviation of the mean-one shock that scales every firm's profit each period of "

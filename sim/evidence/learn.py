@@ -16,7 +16,7 @@ from sim.evidence.answers import learn_headline
 from sim.evidence.learn_alternating import alternating_figure, alternating_lines
 from sim.evidence.learn_automata import automaton_lines
 from sim.evidence.learn_event import event_figure, event_lines
-from sim.evidence.learn_shocks import observe_lines, shock_lines
+from sim.evidence.learn_shocks import error_play_lines, observe_lines, shock_lines
 from sim.evidence.learn_signals import signal_figure, signal_lines
 from sim.evidence.render import Drawn, Renderer, pyplot
 from sim.evidence.thresholds import describe_market
@@ -232,14 +232,16 @@ def console(res: LearnResult) -> str:
     lines = [learn_headline(res), "", *_setup_lines(res)] + _limit_lines(res) + moves
     lines += automaton_lines(res)
     lines += event_lines(res)
-    lines += signal_lines(res)
+    lines += signal_lines(res) + error_play_lines(res)
     lines += ["", CAUTION]
     return "\n".join(lines)
 
 
 def as_json(res: LearnResult) -> dict:
     """The ``--json`` document of a learn result: settings, seats, the summary, every session's outcomes, the
-    market and the caution.
+    market and the caution; and, when the run has them, the automata's punishments during learning (``automata``),
+    the account of an event (``event``), the learned response to an adverse demand draw (``shock_response``) and
+    play with error after learning from noisy prices (``error_play``).
 
     Parameters
     ----------
@@ -249,8 +251,13 @@ def as_json(res: LearnResult) -> dict:
     -------
     dict
     """
-    return {"settings": res.settings, "learners": res.learners, "seats": res.seats, "summary": res.summary,
-            "per_session": res.per_session, "market": res.market, "caution": CAUTION}
+    doc = {"settings": res.settings, "learners": res.learners, "seats": res.seats, "summary": res.summary,
+           "per_session": res.per_session, "market": res.market}
+    for key in ("automata", "event", "shock_response", "error_play"):
+        if getattr(res, key):
+            doc[key] = getattr(res, key)
+    doc["caution"] = CAUTION
+    return doc
 
 
 def _impulse_figure(res: LearnResult):

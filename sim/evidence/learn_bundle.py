@@ -90,14 +90,37 @@ def _sweep_account(run, b, exp, ok) -> None:
                       "share converged"], rows, caption="Limit outcomes of every finished cell",
             note=f"means over each cell's converged sessions; {lvl} confidence intervals across sessions "
                  "(simulation error only)")
+    with_error = all(results[r.cell].error_play for r in ok)
+    if with_error:
+        _error_play_table(b, exp, ok, results, lvl)
     labels = [_cell_label(r, exp) for r in ok]
     b.figure("cells-side-by-side", comparison_figure([results[r.cell] for r in ok], labels),
              f"Every session's profit gain (left) and firm 1's mean limit price (right), one column per cell; bar: "
              f"the mean and its {lvl} confidence interval across sessions; dotted: static Nash, dashed: joint "
-             "profit.")
+             "profit." + (" Open diamond: the mean profit gain in play with error after learning, with its "
+                          "interval." if with_error else ""))
     for r, label in zip(ok, labels):
         for d in figures(results[r.cell]):
             b.figure(f"cell{r.number}-{d.name}", d.figure, f"Cell {r.number} ({label}). {d.caption}")
+
+
+def _error_play_table(b, exp, ok, results, lvl) -> None:
+    """Every cell's profit gain without and with error after learning from noisy prices."""
+    rows = []
+    for r in ok:
+        res = results[r.cell]
+        pg, ep = res.summary["profit_gain"], res.error_play
+        e, c = ep["profit_gain"], ep["gain_change"]
+        rows.append([r.number, *[r.labels[p.path] for p in exp.parameters], pg["mean"], e["value"], _num(e["low"]),
+                     _num(e["high"]), c["value"], _num(c["low"]), _num(c["high"]), e["n"]])
+    periods = results[ok[0].cell].error_play["periods"]
+    b.table("cells-with-error", ["cell", *[p.path for p in exp.parameters], "profit gain without error",
+                                 "with error", f"{lvl} low", f"{lvl} high", "change", f"{lvl} low", f"{lvl} high",
+                                 "sessions"], rows,
+            caption="Profit gain of the learned strategies without and with error",
+            note=f"without error: the limit outcomes; with error: {periods:,} periods of greedy play per session from "
+                 "its final state, each learner seeing its rivals' prices with the error of learning (no learning, "
+                 "no exploration); change: with minus without, session by session; over converged sessions")
 
 
 def comparison_figure(results: list, labels: list):
@@ -129,6 +152,13 @@ def comparison_figure(results: list, labels: list):
             ax.errorbar([k + 0.3], [mean], yerr=[[mean - lo if np.isfinite(lo) else 0.0],
                                                   [hi - mean if np.isfinite(hi) else 0.0]],
                         fmt="s", color="black", ms=4, capsize=3)
+        ep = res.error_play
+        if ep:
+            e = ep["profit_gain"]
+            mean, lo, hi = _num(e["value"]), _num(e["low"]), _num(e["high"])
+            axes[0].errorbar([k + 0.42], [mean], yerr=[[mean - lo if np.isfinite(lo) else 0.0],
+                                                        [hi - mean if np.isfinite(hi) else 0.0]],
+                             fmt="D", color="black", mfc="white", ms=4, capsize=3)
     bm = results[0].summary["benchmarks"]
     which = "actions" if act == "quantity" else "prices"
     axes[0].axhline(0.0, color="grey", ls=":", lw=1)

@@ -10,7 +10,7 @@ from sim.evidence.render import Drawn, pyplot
 from sim.learning.analysis import LearnResult
 from sim.learning.shock_response import ShockResponse
 
-__all__ = ["observe_lines", "shock_lines", "shock_response_figure", "shock_response_lines"]
+__all__ = ["error_play_lines", "observe_lines", "shock_lines", "shock_response_figure", "shock_response_lines"]
 
 _SHAPES = {"lognormal": "exp(sigma Z - sigma^2/2)", "normal": "1 + sigma Z, floored at 0"}
 
@@ -60,8 +60,38 @@ def observe_lines(res: LearnResult) -> list[str]:
         return [f"What the learners see: their own last price exactly, and each rival's with a normal error of "
                 f"{st['price_noise']:g} grid steps rounded to the grid, every learner drawing its own errors "
                 "(imperfect monitoring: Stigler, 1964; Green and Porter, 1984); the limit outcomes are greedy play "
-                "without error"]
+                "without error, play with error after learning is reported apart"]
     return []
+
+
+def error_play_lines(res: LearnResult) -> list[str]:
+    """Play with error after learning from noisy prices, in words (no lines under another protocol).
+
+    Parameters
+    ----------
+    res : LearnResult
+
+    Returns
+    -------
+    list of str
+    """
+    ep = res.error_play
+    if not ep:
+        return []
+    lvl = f"{100 * res.confidence:g} %"
+    pg, ch = ep["profit_gain"], ep["gain_change"]
+
+    def ci(e):
+        return f"{lvl} CI {fmt_num(e['low'])} to {fmt_num(e['high'])}" if e["n"] > 1 else "one session, no interval"
+
+    prices = ", ".join(f"firm {i + 1} {fmt_num(e['value'])}" for i, e in enumerate(ep["prices"]))
+    return ["", f"Play with error after learning: each session's learned strategies play on from its final state for "
+                f"{ep['periods']:,} periods, every learner seeing its rivals' prices with the error of learning "
+                f"({ep['noise']:g} grid steps); no learning, no exploration, no demand shock "
+                f"({pg['n']} sessions)",
+            f"  profit gain with error: {fmt_num(pg['value'])} ({ci(pg)}); minus the limit without error, session by "
+            f"session: {fmt_num(ch['value'])} ({ci(ch)})",
+            f"  mean prices with error: {prices}"]
 
 
 def shock_response_lines(resp: ShockResponse) -> list[str]:

@@ -17,7 +17,9 @@ from pathlib import Path
 import numpy as np
 
 from sim.core.records import Record, to_plain
+from sim.core.stats import mean_estimate
 from sim.learning.inputs import STATUS_CONVERGED
+from sim.learning.noisy_prices import ERROR_PLAY_PERIODS, error_play, error_play_start
 from sim.learning.results import LearningResult
 from sim.learning.saved import save_learners
 from sim.learning.session import learn
@@ -31,6 +33,7 @@ __all__ = [
     "LearnSpec",
     "learn_analysis",
     "learn_result",
+    "noisy_play",
     "signal_response",
 ]
 
@@ -103,6 +106,9 @@ class LearnResult(Record):
     shock_response : dict
         With the profit signal and a demand shock (``observe = "own_profit"``, ``demand_sigma > 0``): the prices
         after one forced adverse draw (:func:`signal_response`); empty otherwise.
+    error_play : dict
+        With noisy prices (``observe = "noisy_prices"``): the outcomes of greedy play with the same error after
+        learning (:func:`noisy_play`); empty otherwise.
     """
 
     market: dict
@@ -118,6 +124,7 @@ class LearnResult(Record):
     automata: list = field(default_factory=list)
     event: dict = field(default_factory=dict)
     shock_response: dict = field(default_factory=dict)
+    error_play: dict = field(default_factory=dict)
 
     @property
     def limit_exact(self) -> bool:
@@ -172,6 +179,47 @@ def signal_response(res: LearningResult) -> dict:
                                                            "depth": greedy.depth, "duration": greedy.duration}})
 
 
+def noisy_play(res: LearningResult) -> dict:
+    """The outcomes of greedy play with the learning's observation error, after learning with noisy prices.
+
+    Every session's learned strategies play on from its final state for
+    :data:`sim.learning.noisy_prices.ERROR_PLAY_PERIODS` periods, each learner seeing its rivals' prices with the
+    error of learning (:func:`sim.learning.noisy_prices.error_play`, from the session's generator advanced by
+    ``2**128`` draws); no learning, no exploration, no demand shock. Statistics over the sessions of the summary
+    (the converged ones, or all when none converged).
+
+    Parameters
+    ----------
+    res : sim.learning.results.LearningResult
+        A run with ``observe = "noisy_prices"`` and the sessions kept.
+
+    Returns
+    -------
+    dict
+        ``periods``, ``noise``, ``profit_gain`` (the profit gain of the mean profits with error), ``gain_change``
+        (it minus the same session's limit profit gain without error), ``prices`` (per firm, the mean price with
+        error), each an estimate (``value, se, low, high, n, method, note``); and ``per_session`` (the profit gain
+        with error of every session, None where not computed).
+    """
+    lu, sv = res.lineup, res.saved
+    seats, stage = lu.seats, lu.stage
+    noise = float(res.settings["price_noise"])
+    sel = res.converged if res.converged.any() else np.ones_like(res.converged)
+    n, f = sel.size, int(seats.radix.size)
+    means = np.full((n, 2, f), np.nan)
+    for j in np.flatnonzero(sel):
+        error_play(int(sv.history[j]), sv.greedy[j], seats.lidx, seats.radix, seats.place, int(stage.M),
+                   stage.prices, stage.payoff, noise, error_play_start(sv.rng[j]), ERROR_PLAY_PERIODS, means[j])
+    nash, coll = lu.nash_profits, lu.collusive_profits
+    gain = (means[:, 1, :].sum(axis=1) - nash.sum()) / (coll.sum() - nash.sum())
+    level = float(res.settings.get("confidence", 0.95))
+    return to_plain({"periods": ERROR_PLAY_PERIODS, "noise": noise,
+                     "profit_gain": mean_estimate(gain[sel], level),
+                     "gain_change": mean_estimate((gain - res.profit_gain)[sel], level),
+                     "prices": [mean_estimate(means[sel, 0, i], level) for i in range(f)],
+                     "per_session": [None if not np.isfinite(g) else float(g) for g in gain]})
+
+
 def learn_result(res: LearningResult, market) -> LearnResult:
     """The plain-data result of a run of learning sessions.
 
@@ -198,6 +246,8 @@ def learn_result(res: LearningResult, market) -> LearnResult:
            "limit_actions": res.limit_actions, "automata": automata, "event": event}
     if res.settings.get("observe") == "own_profit" and res.settings.get("demand_sigma") and res.saved is not None:
         doc["shock_response"] = signal_response(res)
+    if res.settings.get("observe") == "noisy_prices" and res.saved is not None:
+        doc["error_play"] = noisy_play(res)
     return LearnResult.from_dict(to_plain(doc))
 
 
@@ -226,9 +276,11 @@ def learn_analysis(spec: LearnSpec, *, cell: int = 0, workers: int = 1, progress
     s = dict(spec.settings)
     s["workers"] = max(1, int(workers))
     # the profit signal's response to an adverse draw goes on from the sessions' final states
+    # and so does play with error after learning from noisy prices
     signal = s.get("observe") == "own_profit" and bool(s.get("demand_sigma"))
+    noisy = s.get("observe") == "noisy_prices"
     res = learn(spec.market, copy.deepcopy(spec.learner), progress=progress, cell=cell, start=spec.start,
-                keep=save_to is not None or signal, event=spec.event, **s)
+                keep=save_to is not None or signal or noisy, event=spec.event, **s)
     if save_to is not None:
         Path(save_to).parent.mkdir(parents=True, exist_ok=True)
         save_learners(save_to, res.saved)

@@ -34,8 +34,17 @@ The system state is one integer, ``x = sum_i o_i * (m ** n) ** i``, saved as ``h
 exact in ``o_i``, so the profile actually played last is known (:func:`true_profile`). The limit outcomes are those
 of greedy play *without error*, from that profile: every learner then sees the true profile, which is the prices
 protocol's state, and the limit cycle, the impulse response and the deviation values are those of
-:func:`sim.learning.limits.analyse_limit` on the learned greedy tables. What error does to play after learning is
-not in these numbers; the mean prices while learning are.
+:func:`sim.learning.limits.analyse_limit` on the learned greedy tables.
+
+Play with error after learning
+------------------------------
+What the error does to the learned strategies once learning stops is measured apart (:func:`error_play`): from the
+system state at the end of learning, every learner plays its greedy action for the view it has, and sees its
+rivals' prices with the same error as during learning, for :data:`ERROR_PLAY_PERIODS` periods; no learning, no
+exploration, no demand shock (profits are the stage game's). The means of those periods are the outcomes *with
+error*, beside the limit outcomes *without error*. The draws come from the session's generator at the end of
+learning advanced by ``2**128`` draws (:func:`sim.learning.limits.jump`), so they share none with a continuation of
+the saved session. :func:`twin_error_play` is the plain-Python twin.
 """
 
 from __future__ import annotations
@@ -46,15 +55,19 @@ import numpy as np
 from numba import njit
 
 from sim.core.errors import InputError
-from sim.core.rng import ReferenceStream
+from sim.core.rng import ReferenceStream, next_normal_zig
 from sim.learning.inputs import AUTOMATON, Q_FAMILY
+from sim.learning.limits import jump
 from sim.learning.shocks import twin_shock
 
-__all__ = ["PRICE_NOISE", "check_noisy_lineup", "noisy_start", "reference_noisy_session", "seen_price",
-           "true_profile"]
+__all__ = ["ERROR_PLAY_PERIODS", "PRICE_NOISE", "check_noisy_lineup", "error_play", "error_play_start",
+           "noisy_start", "reference_noisy_session", "seen_price", "true_profile", "twin_error_play"]
 
 #: the default standard deviation of a seen price's error, in grid steps
 PRICE_NOISE = 1.0
+
+#: periods of greedy play with error after learning whose means are the outcomes with error (:func:`error_play`)
+ERROR_PLAY_PERIODS = 10_000
 
 
 def check_noisy_lineup(lineup, key: str = "learning.observe") -> None:
@@ -237,3 +250,116 @@ def reference_noisy_session(lineup, rng_state, convergence, max_periods, noise, 
             q[int(seats.lidx[i]), key, :radix[i]] = r
     x = sum(number(views[i]) * M**i for i in range(n))
     return {"status": status, "periods": t, "state": x, "Q": q, "rng": np.array(rng.s, dtype=np.uint64)}
+
+
+@njit(cache=True, nogil=True)
+def error_play(x, greedy, lidx, radix, place, M, stage_prices, stage_payoff, noise, rng, periods, out):
+    """Greedy play of learned strategies with the learning's observation error: the means of ``periods`` periods.
+
+    Period by period: every learner plays the greedy action of the view it has (its own last price and its rivals'
+    as it saw them; at first the views of system state ``x``), then, learners in seat order and for each its
+    rivals in seat order, draws one normal per rival price it sees (:func:`seen_price`), as learning does. No
+    learning, no exploration, no demand shock.
+
+    Parameters
+    ----------
+    x : int
+        System state at the end of learning (``sum_i o_i M**i``).
+    greedy : ndarray of int64, shape (n_learners, M)
+        The learned greedy actions, one row per learner, indexed by view.
+    lidx, radix, place : ndarray of int64, shape (n,)
+        As in :class:`sim.learning.inputs.SeatInputs`.
+    M : int
+        Number of action profiles.
+    stage_prices, stage_payoff : ndarray of float64, shape (M, n)
+        Each firm's price and profit in each profile (:class:`sim.learning.inputs.StageInputs`).
+    noise : float
+        Standard deviation of a seen price's error, in grid steps.
+    rng : ndarray of uint64, shape (4,)
+        The generator, advanced in place.
+    periods : int
+    out : ndarray of float64, shape (2, n)
+        Receives each firm's mean price (row 0) and mean profit (row 1).
+    """
+    n = radix.size
+    view = np.empty(n, np.int64)
+    act = np.empty(n, np.int64)
+    for i in range(n):
+        view[i] = (x // M**i) % M
+    out[:, :] = 0.0
+    for _t in range(periods):
+        prof = 0
+        for i in range(n):
+            act[i] = greedy[lidx[i], view[i]]
+            prof += act[i] * place[i]
+        for i in range(n):
+            out[0, i] += stage_prices[prof, i]
+            out[1, i] += stage_payoff[prof, i]
+        for i in range(n):
+            o = 0
+            for j in range(n):
+                aj = act[j]
+                if j != i:
+                    aj = seen_price(aj, noise, radix[j], next_normal_zig(rng))
+                o += aj * place[j]
+            view[i] = o
+    out /= periods
+
+
+def twin_error_play(x: int, greedy, lineup, noise: float, rng_state, periods: int):
+    """Plain-Python twin of :func:`error_play` (views as tuples, the error written out), from the state the kernel
+    starts from (the caller's generator state; the jump is the caller's).
+
+    Parameters
+    ----------
+    x : int
+    greedy : ndarray of int64, shape (n_learners, M)
+    lineup : sim.learning.lineup.Lineup
+    noise : float
+    rng_state : array_like of uint64, shape (4,)
+    periods : int
+
+    Returns
+    -------
+    ndarray of float64, shape (2, n)
+        Mean prices and mean profits.
+    """
+    seats, stage = lineup.seats, lineup.stage
+    n, M = int(seats.radix.size), int(stage.M)
+    radix = [int(r) for r in seats.radix]
+    place = [int(p) for p in seats.place]
+    rng = ReferenceStream(rng_state)
+    views = [[((int(x) // M**i) % M // place[j]) % radix[j] for j in range(n)] for i in range(n)]
+    sums = [[0.0] * n, [0.0] * n]
+    for _ in range(periods):
+        acts = [int(greedy[int(seats.lidx[i]), sum(a * p for a, p in zip(views[i], place))]) for i in range(n)]
+        prof = sum(a * p for a, p in zip(acts, place))
+        for i in range(n):
+            sums[0][i] += float(stage.prices[prof, i])
+            sums[1][i] += float(stage.payoff[prof, i])
+        for i in range(n):
+            for j in range(n):
+                if j == i:
+                    views[i][j] = acts[j]
+                else:
+                    v = math.floor(acts[j] + noise * rng.next_normal_zig() + 0.5)
+                    views[i][j] = int(min(max(v, 0.0), radix[j] - 1.0))
+    return np.array(sums) / periods
+
+
+def error_play_start(rng_end) -> np.ndarray:
+    """The generator state play with error starts from: the session's at the end of learning advanced by
+    ``2**128`` draws.
+
+    Parameters
+    ----------
+    rng_end : array_like of uint64, shape (4,)
+
+    Returns
+    -------
+    ndarray of uint64, shape (4,)
+        A new array.
+    """
+    r = np.array(rng_end, dtype=np.uint64).copy()
+    jump(r)
+    return r

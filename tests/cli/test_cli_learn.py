@@ -163,6 +163,9 @@ def test_a_learner_against_an_automaton_from_a_file(tmp_path, capsys):
     assert doc["seats"] == ["qlearning", "tit_for_tat"]
     assert doc["learners"][0]["alpha"] == 0.2 and doc["learners"][0]["m"] == 5  # entry over [learning]
     assert doc["learners"][1]["strategy"] == "tit_for_tat" and len(doc["learners"][1]["actions"]) == 2
+    # the automaton's punishments during learning are in the document too, as in the printed report
+    (rec,) = doc["automata"]
+    assert rec["firm"] == 2 and 0.0 <= rec["punishment_share"]["mean"] <= 1.0
     assert main(["learn", str(p)]) == 0
     assert "Firm 2: tit_for_tat (automaton" in capsys.readouterr().out
 

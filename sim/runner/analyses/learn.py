@@ -73,7 +73,24 @@ def _learn_names(cfg: dict) -> list[str]:
         out += list(ALTERNATING_NAMES)
     if cfg["settings"].get("observe") == "own_profit" and cfg["settings"].get("demand_sigma"):
         out += [f"{stem}{q}" for stem in SIGNAL_NAMES for q in ("", ".low", ".high")]
+    if cfg["settings"].get("observe") == "noisy_prices":
+        out += error_play_names(n)
     return out
+
+
+def error_play_names(n_firms: int) -> list[str]:
+    """The columns of play with error after learning from noisy prices (sim.learning.analysis.noisy_play).
+
+    Parameters
+    ----------
+    n_firms : int
+
+    Returns
+    -------
+    list of str
+    """
+    out = [f"{stem}{q}" for stem in ("error_play_profit_gain", "error_play_gain_change") for q in ("", ".low", ".high")]
+    return out + [f"error_play_price.firm{i + 1}{q}" for i in range(n_firms) for q in ("", ".low", ".high")]
 
 
 #: the columns of the profit signal's learned price wars (sim.learning.signals), with the entry of
@@ -237,6 +254,12 @@ def learn_metrics(res: LearnResult) -> dict:
     for stem, entry in SIGNAL_NAMES.items() if res.shock_response else ():
         e = res.shock_response[entry]
         m[stem], m[f"{stem}.low"], m[f"{stem}.high"] = e["value"], e.get("low"), e.get("high")
+    ep = res.error_play
+    if ep:
+        named = [("error_play_profit_gain", ep["profit_gain"]), ("error_play_gain_change", ep["gain_change"])]
+        named += [(f"error_play_price.firm{i + 1}", e) for i, e in enumerate(ep["prices"])]
+        for stem, e in named:
+            m[stem], m[f"{stem}.low"], m[f"{stem}.high"] = e["value"], e.get("low"), e.get("high")
     return m
 
 
