@@ -319,8 +319,9 @@ class QLearner(Parametrized):
         "update": Options(*UPDATE_RULES),
         "counterfactual_share": optional(Real(0, 1, closed="neither")),
         "family": Options(*FAMILIES),
-        "exploration": optional(Real(0, None, closed="neither")),
-        "noise": Real(0, None),
+        # rewards lie in [0, 1]: beyond a million their scale is meaningless and its squares near overflow
+        "exploration": optional(Real(0, 1e6, closed="right")),
+        "noise": Real(0, 1e6),
         "policy_from": optional(FileName()),
         "firm": optional(Integer(1, 4)),
         "session": optional(Integer(1, 10_000_000)),

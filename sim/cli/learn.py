@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import os
 import sys
+from pathlib import Path
 
 from sim.cli._common import MARKET_FLAGS, add_market_flags, emit, market_table_from_args, parse_number, parse_numbers
 from sim.core.errors import InputError
@@ -111,10 +112,11 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--price-noise", metavar="SD", help="with --observe noisy_prices: standard deviation of the error "
                                                        "of a rival's price as a learner sees it, in grid steps "
                                                        "(default 1)")
-    g.add_argument("--counterfactual-share", metavar="S", help="with --update mixed: probability in (0, 1) that each "
-                                                               "action not played is updated")
+    g.add_argument("--counterfactual-share", metavar="S", help="with --update mixed (and required by it): probability "
+                                                               "in (0, 1) that each action not played is updated")
     g.add_argument("--family", metavar="F", help="q (Q-learning; default), ucb or thompson (bandits over the grid that "
-                                                 "keep no state)")
+                                                 "keep no state); fixed policies are set in a file "
+                                                 "(learning.policy_from)")
     g.add_argument("--exploration", metavar="C", help="bandits: UCB's constant c or Thompson's posterior scale v "
                                                       "(> 0; default 1)")
     g.add_argument("--noise", metavar="SD", help="bandits: standard deviation of the error on the scaled profit they "
@@ -127,9 +129,12 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--limit-periods", metavar="N", help="with automata that act at random: periods of simulated "
                                                         "greedy play averaged by the limit estimate (default 10000)")
     g.add_argument("--save-to", metavar="FILE", help="save every session's learners (Q-values, counters, random "
-                                                     "state) at the end to FILE, to be continued later")
+                                                     "state) at the end to FILE, to be continued later (a relative "
+                                                     "path without '..')")
     g.add_argument("--continue-from", metavar="FILE", help="continue the sessions saved in FILE (same market, "
-                                                           "grids and number of sessions) instead of new ones")
+                                                           "grids and number of sessions) instead of new ones (a "
+                                                           "relative path without '..'); changed learning settings "
+                                                           "apply from there on and the report lists them")
     g = p.add_argument_group("impulse response (override [impulse])")
     g.add_argument("--impulse-firm", metavar="F", help="firm forced to deviate, 1 to n (default 1)")
     g.add_argument("--impulse-action", metavar="A", help="its action: best_response (default) or a number "
@@ -217,6 +222,17 @@ def _renamed(exc: InputError, flags: dict) -> InputError:
     return exc
 
 
+def _check_save_target(save_to: str, flags: dict) -> None:
+    """Refuse, before any work, a file to save the learners to that cannot be written: a folder of that name, or a
+    file where one of its folders should be."""
+    p = Path(save_to)
+    if p.is_dir():
+        raise _renamed(InputError("learning.save_to", f"{save_to} is a folder, not a file"), flags)
+    for parent in p.parents:
+        if parent.exists() and not parent.is_dir():
+            raise _renamed(InputError("learning.save_to", f"{parent} is a file, so {save_to} cannot be made"), flags)
+
+
 def run(args) -> int:
     """Run the sessions of FILE and flags in memory and print (and plot) their result.
 
@@ -232,6 +248,9 @@ def run(args) -> int:
     doc, flags = document(args)
     if args.plot and os.path.exists(args.plot) and not os.path.isdir(args.plot):
         raise InputError("plot", f"{args.plot} exists and is not a directory")
+    save_to = _table(doc, "learning").get("save_to")
+    if isinstance(save_to, str) and save_to.strip():
+        _check_save_target(save_to, flags)
     try:
         workers = RUN_CONSTRAINTS["workers"].check("run.workers", _table(doc, "run").get("workers"))
         one = run_single(doc, threads=workers or usable_cores(), progress=sys.stderr.isatty(), source=args.file,

@@ -145,6 +145,10 @@ def learn_headline(res) -> str:
     sm = res.summary
     pg, c = sm["profit_gain"], sm["converged"]
     ci = interval(pg.get("low"), pg.get("high"), res.confidence) if pg.get("n", 0) >= 2 else ""
+    if c["count"] == 0:
+        return (f"No session converged ({c['n']} stopped at the cap): greedy play at the cap, while the learners were "
+                f"still learning, gives a mean profit gain of {number(pg['mean'])}" + (f" ({ci})" if ci else "")
+                + " (0: static Nash, 1: joint profit), not a converged outcome.")
     return (f"The learned prices give a mean profit gain of {number(pg['mean'])}" + (f" ({ci})" if ci else "")
             + " (0: static Nash, 1: joint profit). "
             + f"{c['count']} of {c['n']} sessions converged ({percent(c['share'])}).")

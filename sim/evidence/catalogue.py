@@ -199,7 +199,8 @@ ENTRIES: dict[str, Entry] = {
     "profit_gain": Entry("profit gain", "share of the gain",
                          "(profit - static-Nash profit) / (collusive profit - static-Nash profit): 0 at Nash, 1 at "
                          "the agreement.", "Calvano, Calzolari, Denicolo and Pastorello (2020), AER 110(10)",
-                         _RATIO_MEAN),
+                         "simulations: " + _RATIO_MEAN + "; learning sessions: the mean of each converged "
+                         "session's profit gain, normal-approximation interval across independent sessions"),
     "profit": Entry("mean profit", "{money}", "The firm's profit per period.", "counted", _RATIO_MEAN),
     "discounted_profit": Entry("discounted profit", "{money} (discounted sum)",
                                "Sum over the horizon of delta^t times the profit.", "counted", _MEAN),
@@ -240,26 +241,37 @@ ENTRIES: dict[str, Entry] = {
                        "Calvano et al. (2020)", _WILSON),
     "periods": Entry("periods to convergence", "periods", "Periods a session ran until it converged.", "counted",
                      _STUDENT),
-    "limit_price": Entry("limit price", "price", "The firm's mean price in the limit play of converged sessions.",
-                         "greedy play from the final state", _STUDENT),
-    "limit_profit": Entry("limit profit", "{money}", "The firm's mean profit in the limit play.", "greedy play"),
+    "limit_price": Entry("limit price", "price", "The firm's mean price in the limit play of converged sessions "
+                         "(of every session when none converged).", "greedy play from the final state", _STUDENT),
+    "limit_profit": Entry("limit profit", "{money}", "Mean over converged sessions (every session when none "
+                          "converged) of the firm's mean profit in the limit play (the terminal report gives its "
+                          "interval across sessions).", "greedy play"),
     "near_collusive": Entry("share of sessions near collusion", "0 to 1",
-                            "Share of sessions whose limit profit gain is within the stated tolerance of 1.",
-                            "counted", _WILSON),
+                            "Share of converged sessions (every session when none converged) in which every firm's "
+                            "mean limit action lies within the stated tolerance (learning.near) times its "
+                            "Nash-to-collusive distance of its joint-profit action.", "counted", _WILSON),
     "near_nash": Entry("share of sessions near static Nash", "0 to 1",
-                       "Share of sessions whose limit profit gain is within the tolerance of 0.", "counted", _WILSON),
+                       "Share of converged sessions (every session when none converged) in which every firm's mean "
+                       "limit action lies within the stated tolerance (learning.near) times its Nash-to-collusive "
+                       "distance of its static-Nash action.", "counted", _WILSON),
     "rival_price_cut": Entry("rivals' price cut after a deviation", "price",
                              "How much the rivals lower their price in the period after a forced deviation.",
                              "impulse response (Calvano et al., 2020)", _STUDENT),
     "deviation_gain": Entry("gain from the forced deviation", "{money} (discounted sum)",
                             "Discounted profit of the deviating firm with the deviation minus without.",
                             "impulse response (Calvano et al., 2020)", _STUDENT),
-    "deviation_pays": Entry("share of sessions where the deviation pays", "0 to 1",
-                            "Share of converged sessions with a positive deviation gain.", "counted"),
-    "returned": Entry("share of sessions back at the limit play", "0 to 1",
-                      "Share of sessions whose prices return to the limit play after the deviation.", "counted"),
-    "return_periods": Entry("periods to return", "periods", "Periods until the prices are back at the limit play.",
-                            "counted"),
+    "deviation_pays": Entry("share of deviations that pay", "0 to 1",
+                            "Mean over converged sessions of the share of the deviations tried in each -- one at "
+                            "every point of the limit cycle (exact), or the simulated ones (estimate) -- whose "
+                            "discounted value gain is positive; not a share of sessions.",
+                            "counted per session, averaged over sessions (the terminal report words it the same way)"),
+    "returned": Entry("share of deviations after which play returns", "0 to 1",
+                      "Mean over converged sessions of the share of the deviations tried at the points of the limit "
+                      "cycle after which greedy play returns to the cycle it left; not a share of sessions.",
+                      "counted per session, averaged over sessions"),
+    "return_periods": Entry("periods to return", "periods", "Mean over converged sessions of the mean number of "
+                            "periods after a deviation until greedy play is back on the limit cycle.",
+                            "counted per session, averaged over sessions"),
     "nash_profit": Entry("static-Nash profit", "{money}", "Profit per period in the static Nash equilibrium.",
                          "stage game"),
     "collusive_profit": Entry("collusive profit", "{money}", "Profit per period under the joint-profit agreement.",
@@ -672,6 +684,11 @@ def glossary(keys, currency: str | None = None, period: str | None = None, names
             continue
         seen.add(base)
         d = describe(base, currency, period, **(names_of(base) if names_of is not None else {}))
+        if _QUANT.search(base):
+            # a percentile of the sessions' values: the entry defines the value, not the statistic
+            rows.append([base, d.label, d.unit or "-", "The stated percentile, across sessions, of: "
+                         + d.entry.definition, d.entry.method, "none (a percentile of the sessions' values)"])
+            continue
         rows.append([base, d.label, d.unit or "-", d.entry.definition, d.entry.method, d.entry.interval])
     return rows
 

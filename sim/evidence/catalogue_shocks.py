@@ -22,8 +22,9 @@ SHOCK_ENTRIES = {
                            "price without it, period by period after the draw.", _PATHS, _MEAN),
 }
 
-_SIGNAL = ("as for price_war_share, the learners observing their own price and a low-profit signal "
-           "(learning.observe = 'own_profit', sim.learning.signals); the draw lies three standard deviations of "
+_SIGNAL = ("as for price_war_share, under the run's protocol: learners that see past prices, or their own price and a "
+           "low-profit signal (learning.observe = 'own_profit', sim.learning.signals); the draw lies three standard "
+           "deviations of "
            "log theta below its median; temporary price wars after Green and Porter (1984, Econometrica 52(1)) and "
            "Calvano, Calzolari, Denicolo and Pastorello (2021, International Journal of Industrial Organization 79)")
 

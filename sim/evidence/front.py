@@ -173,12 +173,13 @@ def headline(question: str, parameters, rows, heads, units=(None, None)) -> tupl
     crit = _critical(ok)
     if not ok:
         return question, ["No cell finished, so the run gives no answer; see the failed cells below."], []
+    unsettled = _unconverged(ok, parameters)
     if not parameters:
         r = ok[0]
         numbers = [f"{_label(m, units)}: {_value(r, m, units)}" for m in heads[:6]]
         first = (f"Under the settings of the experiment file, the {_label(heads[0], units)} is "
                  f"{_value(r, heads[0], units)}." if heads else "The run finished; its numbers follow.")
-        return question, [first, *([crit] if crit else [])], numbers
+        return question, [first, *([crit] if crit else []), *unsettled], numbers
     answer, numbers = [], []
     if "deviation.pays" in heads:
         pays = [r for r in ok if r.metrics.get("deviation.pays", 0.0) == 1.0]
@@ -206,7 +207,22 @@ def headline(question: str, parameters, rows, heads, units=(None, None)) -> tupl
         answer.append(f"Across the {len(ok)} cells of the sweep, the {numbers[0]}.")
     if crit:
         answer.append(crit)
-    return question, answer[:2] or ["The run finished; its numbers follow."], numbers
+    return question, (answer[:2] or ["The run finished; its numbers follow."]) + unsettled, numbers
+
+
+def _unconverged(ok, parameters) -> list[str]:
+    """A warning when learning sessions did not converge in some cells (a ``converged`` share of 0): their numbers
+    are those of learners stopped at the cap, still learning."""
+    none = [r for r in ok if r.metrics.get("converged", math.nan) == 0.0]
+    if not none:
+        return []
+    if not parameters:
+        return ["No session converged: the numbers are those of greedy play when the sessions reached their cap, "
+                "while the learners were still learning, not of a converged outcome."]
+    which = f"cell{'s' if len(none) > 1 else ''} {', '.join(str(r.number) for r in none)}"
+    return [f"In {len(none)} of {len(ok)} cells ({which}) no session converged: "
+            "their numbers are those of greedy play when the sessions reached their cap, while the learners were "
+            "still learning, not of a converged outcome."]
 
 
 def terms_rows(metrics, parameters, units=(None, None), names: dict | None = None) -> list:

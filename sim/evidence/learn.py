@@ -112,8 +112,22 @@ def _setup_lines(res: LearnResult) -> list[str]:
     lvl = f"{100 * res.confidence:g} %"
     market = market_from_dict(res.market)  # the settings in their own order, however the result was stored
     lines = [f"Market: {describe_market(market.to_dict(), res.n_firms)}", *_seat_lines(res)]
-    lines.append(f"Sessions: {sm['sessions']} (seed {st['seed']}), converged after {st['convergence']} periods "
-                 f"without a change of any greedy strategy, cap {st['max_periods']:g} periods")
+    cont = st.get("continued")
+    origin = (f"continued from saved learners, not new: each goes on from its saved state and random stream, so "
+              f"this run's seed ({st['seed']}) and Q initialisation are not used" if cont else f"seed {st['seed']}")
+    after = " after the event" if res.event else ""
+    lines.append(f"Sessions: {sm['sessions']} ({origin}), converged after {st['convergence']} periods "
+                 f"without a change of any greedy strategy, cap {st['max_periods']:g} periods{after}")
+    if cont:
+        lines.append(_continued_line(cont))
+    if st["max_periods"] < st["convergence"] and not cont:
+        lines.append(f"No session can converge: the cap ({st['max_periods']:g} periods) is shorter than the "
+                     f"convergence window ({st['convergence']} periods without a change); the outcomes are those of "
+                     "learners stopped while still learning")
+    reasons: dict = {}
+    for key, why in (st.get("unused") or {}).items():
+        reasons.setdefault(why, []).append(key)
+    lines += [f"Not used, though given: {', '.join(keys)}: {why}" for why, keys in reasons.items()]
     lines += observe_lines(res) + shock_lines(res)
     lines.append("")
     c, per = sm["converged"], sm["periods"]
@@ -121,8 +135,9 @@ def _setup_lines(res: LearnResult) -> list[str]:
                  f"{_pct(c['low'])} to {_pct(c['high'])})")
     if per["n"]:
         ci = f"[{per['low']:.4g}, {per['high']:.4g}]" if per["n"] > 1 else "-"
-        lines.append(f"Periods to convergence: mean {per['mean']:.4g} {ci}, median {per['q50']:.4g}, "
-                     f"5-95 % {per['q05']:.4g} to {per['q95']:.4g}")
+        start = " (counted from each session's start)" if res.event or cont else ""
+        lines.append(f"Periods to convergence{start}: mean {per['mean']:.4g} {ci}, median {per['q50']:,.0f}, "
+                     f"5-95 % {per['q05']:,.0f} to {per['q95']:,.0f}")
     lines.append("")
     bm = sm["benchmarks"]
     act = _act(res)
@@ -130,6 +145,23 @@ def _setup_lines(res: LearnResult) -> list[str]:
             ["static Nash profit", *bm["nash_profits"]], ["joint-profit profit", *bm["collusive_profits"]]]
     lines += ["Benchmarks (continuous actions)", table(["", *_firms(res)], rows), ""]
     return lines
+
+
+def _continued_line(cont: dict) -> str:
+    """Where continued sessions came from and what changed since they were saved."""
+    lo, hi = cont["periods_before"]
+    before = f"{lo:,} periods" if lo == hi else f"{lo:,} to {hi:,} periods"
+    head = (f"Saved learners: saved by a run with seed {cont['saved_seed']} (cell {cont['saved_cell']}) after "
+            f"{before} of learning (the cap counts from the sessions' start)")
+    if not cont["changed"]:
+        return head + "; every learning setting as when they were saved"
+
+    def value(v):
+        return f"{v:g}" if isinstance(v, float) else str(v)
+
+    changes = "; ".join(f"firm {c['firm']} {c['setting']} {value(c['saved'])} -> {value(c['now'])}"
+                        for c in cont["changed"])
+    return (head + f"; changed since the save, from here on (no [event] records it): {changes}")
 
 
 def _firms(res: LearnResult) -> list[str]:
@@ -211,10 +243,22 @@ def _impulse_lines(res: LearnResult) -> list[str]:
     lines.append(table(["period", *[f"{act} {f}" for f in firms], *[f"profit {f}" for f in firms]], rows))
     rc = sm["rival_price_cut"]
     if rc:
-        lines.append(f"  rivals' {act} in the period after the deviation: "
-                     f"{'lower' if _num(rc['mean']) > 0 else 'not lower'} than before by {fmt_num(rc['mean'])} "
-                     f"{_ci(rc)}")
+        lines.append(_rival_change_line(rc, act, res.n_firms))
     return lines + _deviation_lines(res)
+
+
+def _rival_change_line(rc: dict, act: str, n_firms: int) -> str:
+    """The rivals' change of action in the period after the deviation, with its interval and what it shows."""
+    change = -_num(rc["mean"])
+    lo, hi = -_num(rc["high"]), -_num(rc["low"])
+    who = "rivals' mean" if n_firms > 2 else "rival's"
+    if rc.get("n", 0) < 2 or not (np.isfinite(lo) and np.isfinite(hi)):
+        ci, verdict = "-", "one session: no interval"
+    else:
+        ci = f"[{fmt_num(lo)}, {fmt_num(hi)}]"
+        verdict = ("a cut: the whole interval lies below 0" if hi < 0 else
+                   "a rise: the whole interval lies above 0" if lo > 0 else "no clear change: the interval contains 0")
+    return (f"  {who} {act} in the period after the deviation minus before it: {fmt_num(change)} {ci} ({verdict})")
 
 
 def console(res: LearnResult) -> str:
@@ -303,6 +347,7 @@ def _histogram_figure(res: LearnResult):
     ax.axvline(_num(sm["profit_gain"]["mean"]), color="C3", label="mean")
     ax.set_xlabel("profit gain (profit - Nash) / (collusive - Nash)")
     ax.set_ylabel("sessions")
+    ax.yaxis.get_major_locator().set_params(integer=True)  # whole sessions on the axis
     ax.set_title("Profit gain across sessions")
     ax.legend(fontsize=8)
     fig.tight_layout()

@@ -70,6 +70,15 @@ def bundle(run, b) -> list | None:
     return None
 
 
+def _none_converged(ok, results) -> str:
+    """Words for the cells where no session converged, whose means are over every session (empty when none)."""
+    none = [str(r.number) for r in ok if results[r.cell].summary["converged"]["count"] == 0]
+    if not none:
+        return ""
+    return (f", or over all its sessions in cell{'s' if len(none) > 1 else ''} {', '.join(none)}, where none "
+            "converged (greedy play at the cap, the learners still learning)")
+
+
 def _cell_label(r, exp) -> str:
     return ", ".join(f"{p.path} = {r.labels[p.path]}" for p in exp.parameters)
 
@@ -88,11 +97,13 @@ def _sweep_account(run, b, exp, ok) -> None:
     b.table("cells", ["cell", *[p.path for p in exp.parameters], "profit gain", f"{lvl} low", f"{lvl} high",
                       "limit price, firm 1", "share near static Nash", "share near joint profit",
                       "share converged"], rows, caption="Limit outcomes of every finished cell",
-            note=f"means over each cell's converged sessions; {lvl} confidence intervals across sessions "
-                 "(simulation error only)")
+            note=f"means over each cell's converged sessions{_none_converged(ok, results)}; {lvl} confidence "
+                 "intervals across sessions (simulation error only)")
     with_error = all(results[r.cell].error_play for r in ok)
     if with_error:
         _error_play_table(b, exp, ok, results, lvl)
+    if any(results[r.cell].shock_response for r in ok):
+        _price_war_table(b, exp, ok, results, lvl)
     labels = [_cell_label(r, exp) for r in ok]
     b.figure("cells-side-by-side", comparison_figure([results[r.cell] for r in ok], labels),
              f"Every session's profit gain (left) and firm 1's mean limit price (right), one column per cell; bar: "
@@ -102,6 +113,29 @@ def _sweep_account(run, b, exp, ok) -> None:
     for r, label in zip(ok, labels):
         for d in figures(results[r.cell]):
             b.figure(f"cell{r.number}-{d.name}", d.figure, f"Cell {r.number} ({label}). {d.caption}")
+
+
+def _price_war_table(b, exp, ok, results, lvl) -> None:
+    """Every cell's learned response to one adverse demand draw (blank where a cell has no demand shock)."""
+    rows = []
+    for r in ok:
+        sr = results[r.cell].shock_response
+        vals = []
+        for key in ("cut", "temporary", "price_war"):
+            e = sr.get(key) if sr else None
+            vals += [_num(e["value"]), _num(e["low"]), _num(e["high"])] if e else [np.nan] * 3
+        rows.append([r.number, *[r.labels[p.path] for p in exp.parameters], *vals,
+                     sr["cut"]["n"] if sr else 0])
+    heads = []
+    for what in ("share cutting prices in period 2", "share with a cut that ends", "share below the path in any "
+                 "period"):
+        heads += [what, f"{lvl} low", f"{lvl} high"]
+    b.table("cells-price-wars", ["cell", *[p.path for p in exp.parameters], *heads, "sessions"], rows,
+            caption="Learned response to one adverse demand draw",
+            note="each converged session learns on from its final state twice from the same random numbers, with "
+                 "and without one forced adverse draw three standard deviations below the median in period 1; "
+                 "shares of sessions (Wilson intervals); blank: a cell without a demand shock, where nothing is "
+                 "measured")
 
 
 def _error_play_table(b, exp, ok, results, lvl) -> None:

@@ -77,11 +77,27 @@ def event_lines(res) -> list[str]:
     if changes:
         lines.append(f"  change of the limit {act} from the last period before the event (settled sessions): "
                      + "; ".join(changes))
-    return lines + _merger_lines(ev.get("merger"), firms, act)
+    return lines + _merger_lines(ev.get("merger"), firms, act, ev["change"])
 
 
-def _merger_lines(mg: dict | None, firms: list[str], act: str) -> list[str]:
-    """After a merger: the static merger effect beside the learned change of every firm's price."""
+def _verdict(learned: float, static: float, est: dict | None) -> str:
+    """The learned change against the static one: more or less only when the learned change's interval excludes
+    the static change."""
+    if math.isnan(learned):
+        return "-"
+    lo, hi = (_num(est.get("low")), _num(est.get("high"))) if est and est.get("n", 0) > 1 else (math.nan, math.nan)
+    if math.isnan(lo) or math.isnan(hi):
+        return ("more" if learned > static else "less") + " (one session, no interval)"
+    if lo > static:
+        return "more"
+    if hi < static:
+        return "less"
+    return "no clear difference (interval contains it)"
+
+
+def _merger_lines(mg: dict | None, firms: list[str], act: str, change=()) -> list[str]:
+    """After a merger: the static merger effect beside the learned change of every firm's price (with the learned
+    change's interval, ``change``, deciding more or less)."""
     if not mg:
         return []
     if not mg.get("available"):
@@ -90,7 +106,7 @@ def _merger_lines(mg: dict | None, firms: list[str], act: str) -> list[str]:
     rows = []
     for i, name in enumerate(firms):
         static, learned = _num(mg["static_change"][i]), _num(mg["learned_change"][i])
-        verdict = "-" if math.isnan(learned) else ("more" if learned > static else "less")
+        verdict = _verdict(learned, static, change[i] if i < len(change) else None)
         rows.append([name, fmt_num(_num(mg["nash_prices_before"][i])), fmt_num(_num(mg["nash_prices"][i])),
                      fmt_num(static), fmt_num(learned), verdict])
     return ["  the merger's static effect: static-Nash prices with the merged firm setting its products' prices "

@@ -24,7 +24,8 @@ def _pct(e: dict) -> str:
 
 
 def signal_lines(res: LearnResult) -> list[str]:
-    """The profit signal in words and, with a demand shock, the learned response to one adverse draw.
+    """The profit signal in words and, with a demand shock, the learned response to one adverse draw (under the
+    profit signal or with learners that see prices).
 
     Parameters
     ----------
@@ -33,19 +34,21 @@ def signal_lines(res: LearnResult) -> list[str]:
     Returns
     -------
     list of str
-        Empty under the prices protocol.
+        Empty under the prices protocol without a demand shock.
     """
     st = res.settings
-    if st.get("observe") != "own_profit":
-        return []
-    lines = ["", f"What the learners observe: their own last price and whether their own profit last period fell more "
-             f"than {100 * st['signal_band']:g} % below the profit at their price had every rival charged it "
-             "(a rival's undercut and a bad demand draw look alike: Green and Porter, 1984; Calvano, Calzolari, "
-             "Denicolo and Pastorello, 2021). Limit outcomes and the impulse response: greedy play without a shock, "
-             "a rival whose profit the deviation makes low seeing the same signal as after a bad draw."]
     sr = res.shock_response
+    lines = []
+    if st.get("observe") == "own_profit":
+        lines = ["", f"What the learners observe: their own last price and whether their own profit last period fell "
+                 f"more than {100 * st['signal_band']:g} % below the profit at their price had every rival charged it "
+                 "(a rival's undercut and a bad demand draw look alike: Green and Porter, 1984; Calvano, Calzolari, "
+                 "Denicolo and Pastorello, 2021). Limit outcomes and the impulse response: greedy play without a "
+                 "shock, a rival whose profit the deviation makes low seeing the same signal as after a bad draw."]
     if not sr:
         return lines
+    if not lines:
+        lines = [""]
     lvl = f"{100 * res.confidence:g} %"
     dep, dur = sr["depth"], sr["duration"]
     after = f", after {fmt_num(dur['value'], 3)} periods on average" if dur["n"] else ""

@@ -398,6 +398,16 @@ def _promote_answer(b, question: str) -> None:
         b.headline(question, answer, numbers)
 
 
+def _cell_assumptions(kind, exp) -> list[str]:
+    """The assumptions of what the run's cells use (:attr:`sim.runner.kinds.Kind.cell_assumptions`), each once."""
+    if kind.cell_assumptions is None:
+        return []
+    out: dict = {}
+    for cell in exp.cells():
+        out.update(dict.fromkeys(kind.cell_assumptions(cell.doc)))
+    return list(out)
+
+
 def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) -> None:
     """The closing sections: failed cells, assumptions, the methods appendix (methods, software, reproducing) and
     the glossary."""
@@ -410,7 +420,7 @@ def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) 
     else:
         b.paragraph("None: the cell finished without error." if counts["total"] == 1
                     else f"None: all {counts['total']} cells finished without error.")
-    b.assumptions(stated_assumptions(kind.assumptions, exp.metric_names) + [
+    b.assumptions(stated_assumptions(kind.assumptions, exp.metric_names) + _cell_assumptions(kind, exp) + [
         "Every number in this report is read from the stored results of the run (results.sqlite); nothing is "
         "recomputed for the report.",
     ])

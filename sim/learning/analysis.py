@@ -33,6 +33,7 @@ __all__ = [
     "LearnSpec",
     "learn_analysis",
     "learn_result",
+    "measures_price_wars",
     "noisy_play",
     "signal_response",
 ]
@@ -61,6 +62,8 @@ class LearnSpec:
         Saved sessions to continue (``learning.continue_from``), already checked against the line-up.
     event : sim.learning.events.Event, optional
         The event after which the saved sessions go on (``[event]``).
+    unused : dict
+        Settings given but not used by these learners (key path -> reason), for the report.
     """
 
     market: object
@@ -68,6 +71,7 @@ class LearnSpec:
     settings: dict
     start: object = None
     event: object = None
+    unused: dict = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -143,13 +147,35 @@ class LearnResult(Record):
         return conv if conv.any() else np.ones_like(conv)
 
 
+def measures_price_wars(settings: dict, event=None) -> bool:
+    """Whether a run measures the learned response to one adverse demand draw (:func:`signal_response`): a demand
+    shock, simultaneous moves, no event, and learners that see past prices or the profit signal.
+
+    Parameters
+    ----------
+    settings : dict
+        The run's settings (``demand_sigma``, ``timing`` and ``observe`` as :func:`sim.learning.session.learn`
+        takes them).
+    event : optional
+        The run's event (None: none).
+
+    Returns
+    -------
+    bool
+    """
+    return (bool(settings.get("demand_sigma")) and settings.get("timing", "simultaneous") == "simultaneous"
+            and event is None and settings.get("observe", "prices") in ("prices", "own_profit"))
+
+
 def signal_response(res: LearningResult) -> dict:
-    """The prices after one adverse demand draw of a run with the profit signal, as plain data.
+    """The prices after one adverse demand draw of a run with a demand shock (:func:`measures_price_wars`), as plain
+    data.
 
     Parameters
     ----------
     res : sim.learning.results.LearningResult
-        A run with ``observe = "own_profit"``, a demand shock and the sessions kept.
+        A run with a demand shock and the sessions kept, whose learners see past prices or the profit signal
+        (``observe = "own_profit"``).
 
     Returns
     -------
@@ -157,15 +183,20 @@ def signal_response(res: LearningResult) -> dict:
         ``theta`` (the draw, :data:`SIGNAL_DRAW_SD` standard deviations below the median), ``periods``, ``change``
         (list of estimates, one per period, :class:`sim.learning.shock_response.ShockResponse`), ``price_war``, and
         ``cut``, ``temporary``, ``depth``, ``duration`` (:class:`sim.learning.shock_response.PriceCuts`), and the same
-        four under ``greedy`` for the learned strategies alone (:func:`sim.learning.signals.greedy_response`: no
-        learning, every signal forced low after period 1); each estimate a dict of ``value, se, low, high, n, method,
-        note``.
+        four under ``greedy`` for the learned strategies alone under the profit signal
+        (:func:`sim.learning.signals.greedy_response`: no learning, every signal forced low after period 1; absent
+        when the learners see prices, whose greedy play does not see a draw); each estimate a dict of ``value, se,
+        low, high, n, method, note``.
     """
     sigma = float(res.settings["demand_sigma"])
     theta = math.exp(-SIGNAL_DRAW_SD * sigma - 0.5 * sigma * sigma)
     resp = shock_response(res, theta, SIGNAL_RESPONSE_PERIODS)
     level = float(res.settings.get("confidence", 0.95))
     cuts = price_cuts(resp, level=level)
+    out = {"theta": resp.theta, "periods": SIGNAL_RESPONSE_PERIODS, "change": resp.change, "price_war": resp.price_war,
+           "cut": cuts.cut, "temporary": cuts.temporary, "depth": cuts.depth, "duration": cuts.duration}
+    if res.settings.get("observe") != "own_profit":
+        return to_plain(out)
     # the learned strategies alone: greedy play from the same final states, no learning, the signal forced low
     sv, band = res.saved, float(res.settings["signal_band"])
     done = np.flatnonzero(sv.status == STATUS_CONVERGED)
@@ -173,10 +204,9 @@ def signal_response(res: LearningResult) -> dict:
     w = np.array([p[0] for p in paths]).reshape(done.size, SIGNAL_RESPONSE_PERIODS + 1)
     wo = np.array([p[1] for p in paths]).reshape(done.size, SIGNAL_RESPONSE_PERIODS + 1)
     greedy = price_cuts(ShockResponse(theta, w, wo, [], resp.price_war), level=level)
-    return to_plain({"theta": resp.theta, "periods": SIGNAL_RESPONSE_PERIODS, "change": resp.change,
-                     "price_war": resp.price_war, "cut": cuts.cut, "temporary": cuts.temporary, "depth": cuts.depth,
-                     "duration": cuts.duration, "greedy": {"cut": greedy.cut, "temporary": greedy.temporary,
-                                                           "depth": greedy.depth, "duration": greedy.duration}})
+    out["greedy"] = {"cut": greedy.cut, "temporary": greedy.temporary, "depth": greedy.depth,
+                     "duration": greedy.duration}
+    return to_plain(out)
 
 
 def noisy_play(res: LearningResult) -> dict:
@@ -220,7 +250,7 @@ def noisy_play(res: LearningResult) -> dict:
                      "per_session": [None if not np.isfinite(g) else float(g) for g in gain]})
 
 
-def learn_result(res: LearningResult, market) -> LearnResult:
+def learn_result(res: LearningResult, market, unused: dict | None = None) -> LearnResult:
     """The plain-data result of a run of learning sessions.
 
     Parameters
@@ -228,6 +258,9 @@ def learn_result(res: LearningResult, market) -> LearnResult:
     res : sim.learning.results.LearningResult
     market : sim.Market
         The market the sessions ran on.
+    unused : dict, optional
+        Settings the run accepted but its learners do not use (key path -> reason), recorded in
+        ``settings["unused"]`` for the report.
 
     Returns
     -------
@@ -240,11 +273,12 @@ def learn_result(res: LearningResult, market) -> LearnResult:
     summary = dict(d["summary"])
     automata = summary.pop("automata", [])
     event = summary.pop("event", {})
+    settings = {**d["settings"], "unused": unused} if unused else d["settings"]
     doc = {"market": market.to_dict(), "n_firms": int(ms.n_firms), "quantity_setting": bool(ms.quantity_setting),
-           "symmetric": bool(ms.symmetric), "settings": d["settings"], "learners": d["learners"],
+           "symmetric": bool(ms.symmetric), "settings": settings, "learners": d["learners"],
            "seats": d["seats"], "summary": summary, "per_session": d["per_session"],
            "limit_actions": res.limit_actions, "automata": automata, "event": event}
-    if res.settings.get("observe") == "own_profit" and res.settings.get("demand_sigma") and res.saved is not None:
+    if measures_price_wars(res.settings, res.event) and res.saved is not None:
         doc["shock_response"] = signal_response(res)
     if res.settings.get("observe") == "noisy_prices" and res.saved is not None:
         doc["error_play"] = noisy_play(res)
@@ -275,13 +309,13 @@ def learn_analysis(spec: LearnSpec, *, cell: int = 0, workers: int = 1, progress
     """
     s = dict(spec.settings)
     s["workers"] = max(1, int(workers))
-    # the profit signal's response to an adverse draw goes on from the sessions' final states
+    # the response to an adverse demand draw goes on from the sessions' final states
     # and so does play with error after learning from noisy prices
-    signal = s.get("observe") == "own_profit" and bool(s.get("demand_sigma"))
+    signal = measures_price_wars(s, spec.event)
     noisy = s.get("observe") == "noisy_prices"
     res = learn(spec.market, copy.deepcopy(spec.learner), progress=progress, cell=cell, start=spec.start,
                 keep=save_to is not None or signal or noisy, event=spec.event, **s)
     if save_to is not None:
         Path(save_to).parent.mkdir(parents=True, exist_ok=True)
         save_learners(save_to, res.saved)
-    return learn_result(res, spec.market)
+    return learn_result(res, spec.market, spec.unused)

@@ -12,18 +12,22 @@ The file
 A zip archive in the layout of numpy's ``.npz`` (each array a ``.npy`` member, read with ``allow_pickle=False``)
 with one more member, ``header.json``::
 
-    {"format": "supergame saved learners", "version": 2, "arrays_sha256": "...", "market": {...},
-     "seats": [...], "sessions": n, "seed": ..., "cell": ..., "arrays": {"Q": {"dtype": "<f8", "shape": [...]}, ...}}
+    {"format": "supergame saved learners", "version": 3, "arrays_sha256": "...", "header_sha256": "...",
+     "market": {...}, "seats": [...], "sessions": n, "seed": ..., "cell": ...,
+     "arrays": {"Q": {"dtype": "<f8", "shape": [...]}, ...}}
 
-``arrays_sha256`` is the SHA-256 of the arrays (:func:`arrays_digest`): a file whose arrays were altered or
-damaged is refused. ``market`` is the market's settings and ``seats`` each seat's learner (its grid, parameters and
-update rule) or automaton: a file is continued only on the same market and the same grids (the learning parameters
-and the update rule may change: a change of protocol, which an ``[event]`` of ``kind = "protocol"`` makes explicit,
-checked and reported, :mod:`sim.learning.protocol`), and a seat only by a learner of the same family. The members
+``arrays_sha256`` is the SHA-256 of the arrays (:func:`arrays_digest`) and ``header_sha256`` that of the rest of the
+header (:func:`header_digest`: the market, the seats and the run the sessions come from, and ``arrays_sha256``
+itself): a file whose arrays or header were altered or damaged is refused. ``market`` is the market's settings
+and ``seats`` each seat's learner (its grid, parameters and update rule) or automaton: a file is continued only on
+the same market and the same grids (the learning parameters and the update rule may change: a change of protocol,
+which an ``[event]`` of ``kind = "protocol"`` makes explicit and checks, :mod:`sim.learning.protocol`, and which a
+continuation without an event lists in its report), and a seat only by a learner of the same family. The members
 carry a fixed date, so the same state gives the same bytes.
 
-Versions: 2 adds the bandits' statistics (``counts`` and ``sums``, :mod:`sim.learning.bandits`). A file of version 1
-is still read: its learners are Q-learners, and their statistics are zeros.
+Versions: 2 adds the bandits' statistics (``counts`` and ``sums``, :mod:`sim.learning.bandits`); 3 adds
+``header_sha256``. Files of versions 1 and 2 are still read, their header unchecked (the arrays are): a file of
+version 1 holds Q-learners, and their statistics are zeros.
 """
 
 from __future__ import annotations
@@ -49,16 +53,18 @@ __all__ = [
     "arrays_digest",
     "check_family",
     "check_start",
+    "continued_record",
     "describe_layout",
+    "header_digest",
     "load_learners",
     "save_learners",
 ]
 
 #: the name and version of the file format written by :func:`save_learners`
 FORMAT = "supergame saved learners"
-VERSION = 2
+VERSION = 3
 #: the versions :func:`load_learners` reads
-READABLE_VERSIONS = (1, 2)
+READABLE_VERSIONS = (1, 2, 3)
 #: the arrays of a saved run, in the order they are hashed (files written before the record of punishments was kept
 #: have all but ``triggers``; their header's ``arrays`` does not list it; version 1 files have no bandit statistics)
 _ARRAYS = ("Q", "greedy", "history", "z", "rng", "clock", "status", "triggers", "counts", "sums")
@@ -147,6 +153,22 @@ def arrays_digest(arrays: dict, names=_ARRAYS) -> str:
     return h.hexdigest()
 
 
+def header_digest(header: dict) -> str:
+    """SHA-256 (hex) of a header without its ``header_sha256`` entry: its canonical JSON (sorted keys, no spaces).
+
+    Parameters
+    ----------
+    header : dict
+        Plain data.
+
+    Returns
+    -------
+    str
+    """
+    rest = {k: v for k, v in header.items() if k != "header_sha256"}
+    return hashlib.sha256(json.dumps(rest, sort_keys=True, separators=(",", ":"), allow_nan=False).encode()).hexdigest()
+
+
 def save_learners(path, saved: SavedLearners) -> str:
     """Write the saved sessions to ``path`` (replaced whole, never half-written).
 
@@ -163,8 +185,9 @@ def save_learners(path, saved: SavedLearners) -> str:
     """
     arrays = {name: np.ascontiguousarray(a, dtype=_DTYPES[name]) for name, a in saved.arrays().items()}
     digest = arrays_digest(arrays)
-    header = {**saved.header, "format": FORMAT, "version": VERSION, "arrays_sha256": digest,
-              "arrays": {k: {"dtype": a.dtype.str, "shape": list(a.shape)} for k, a in arrays.items()}}
+    header = to_plain({**saved.header, "format": FORMAT, "version": VERSION, "arrays_sha256": digest,
+                       "arrays": {k: {"dtype": a.dtype.str, "shape": list(a.shape)} for k, a in arrays.items()}})
+    header["header_sha256"] = header_digest(header)
     buf = io.BytesIO()
     with zipfile.ZipFile(buf, "w", compression=zipfile.ZIP_DEFLATED) as zf:
         zf.writestr(zipfile.ZipInfo("header.json", _FIXED_DATE),
@@ -221,6 +244,9 @@ def load_learners(path, key: str = "learning.continue_from") -> SavedLearners:
     for name, a in arrays.items():
         if a.dtype != np.dtype(_DTYPES[name]):
             raise InputError(key, f"{path}: array {name} has type {a.dtype}, expected {np.dtype(_DTYPES[name])}")
+    if header["version"] >= 3 and header_digest(header) != header.get("header_sha256"):
+        raise InputError(key, f"{path}: the header (market, seats, run) does not match the SHA-256 recorded in the "
+                              "file: the file was altered or damaged")
     found = arrays_digest(arrays, names)
     if found != header.get("arrays_sha256"):
         raise InputError(key, f"{path}: the arrays do not match the SHA-256 recorded in the file (recorded "
@@ -254,6 +280,36 @@ def describe_layout(lineup) -> list[dict]:
     return [{"strategy": "qlearning", **c.to_dict()} if c is not None
             else {"strategy": lineup.names[i], "actions": lineup.grids[i].tolist()}
             for i, c in enumerate(lineup.learners)]
+
+
+def continued_record(saved: SavedLearners, lineup) -> dict:
+    """What a run that continues saved sessions without an event reports of them: where they came from and what
+    changed since the save.
+
+    Parameters
+    ----------
+    saved : SavedLearners
+        The sessions continued (checked against the line-up).
+    lineup : sim.learning.lineup.Lineup
+        The line-up they continue in.
+
+    Returns
+    -------
+    dict
+        ``saved_seed`` and ``saved_cell`` (of the run that saved them), ``periods_before`` (the fewest and the most
+        periods a session had played, ``[min, max]``), and ``changed``: per seat whose settings differ from the
+        saved ones, ``{"firm": i (from 1), "setting": key, "saved": value, "now": value}`` (learning parameters and
+        the update rule; the grid cannot change).
+    """
+    h = saved.header
+    played = np.asarray(saved.clock)[:, 0]
+    changed = []
+    for i, (old, new) in enumerate(zip(h.get("seats") or [], describe_layout(lineup))):
+        for key in sorted(set(old) | set(new)):
+            if key not in ("grid", "strategy") and old.get(key) != new.get(key):
+                changed.append({"firm": i + 1, "setting": key, "saved": old.get(key), "now": new.get(key)})
+    return to_plain({"saved_seed": h.get("seed"), "saved_cell": h.get("cell"),
+                     "periods_before": [int(played.min()), int(played.max())], "changed": changed})
 
 
 def _first_difference(saved, here, path: str = "") -> str | None:

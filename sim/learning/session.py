@@ -92,7 +92,7 @@ from sim.learning.results import (
     deviator_discount,
     value_horizon,
 )
-from sim.learning.saved import SavedLearners, check_start, describe_layout
+from sim.learning.saved import SavedLearners, check_start, continued_record, describe_layout
 from sim.learning.shocks import shock_code
 from sim.learning.signals import (
     SIGNAL_BAND,
@@ -206,22 +206,24 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     market_doc = market.to_dict() if hasattr(market, "to_dict") else None
     if start is not None:
         check_saved_observe(start.header, settings.get("observe", "prices"), "observe")
-    start, lineup, what = _checked_start(start, event, lineup, market_doc, run["sessions"])
+    start, lineup, what = _checked_start(start, event, lineup, market_doc, run["sessions"], settings)
     if keep:
         _check_kept_memory(lineup, run["sessions"])
     return _run_sessions(lineup, settings, dev_index, progress, start, keep, market_doc,
                          (event, what) if what is not None else None)
 
 
-def _checked_start(start, event, lineup: Lineup, market_doc: dict | None, sessions: int):
+def _checked_start(start, event, lineup: Lineup, market_doc: dict | None, sessions: int, settings: dict):
     """Saved sessions to continue, checked (and adapted to an event, whose words are returned, with the line-up
-    after it)."""
+    after it). Without an event, ``settings["continued"]`` receives where they came from and what changed since
+    the save (:func:`sim.learning.saved.continued_record`), for the report."""
     what = None
     if start is not None and event is not None:
         start, lineup, what = _after_event(start, lineup, event, sessions, market_doc)
     elif start is not None:
         refuse_merged(start)
         check_start(start, lineup, market_doc, sessions)
+        settings["continued"] = continued_record(start, lineup)
     return start, lineup, what
 
 

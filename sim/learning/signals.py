@@ -108,8 +108,8 @@ def check_signal_lineup(lineup, key: str = "learning.observe") -> None:
     Raises
     ------
     InputError
-        An automaton or a bandit, a learner with the synchronous or mixed rule, or seats with different numbers of
-        prices.
+        An automaton or a bandit, a learner with the synchronous or mixed rule, seats with different numbers of
+        prices, or a memory other than one period.
     """
     seats = lineup.seats
     if (seats.kind == AUTOMATON).any() or (seats.family != Q_FAMILY).any():
@@ -121,6 +121,10 @@ def check_signal_lineup(lineup, key: str = "learning.observe") -> None:
                               f"{seats.radix.tolist()}")
     if 2 * int(seats.radix[0]) > int(seats.mod.min()):
         raise InputError(key, "'own_profit' needs at least 2 prices and 2 firms")
+    if int(lineup.stage.K) != 1:
+        # the state is the own last price and one bit: a longer memory would only add rows never visited
+        raise InputError(key, f"'own_profit' needs a memory of one period (learning.k = 1), got k = "
+                              f"{int(lineup.stage.K)}")
 
 
 def check_saved_observe(header: dict, observe: str, key: str) -> None:

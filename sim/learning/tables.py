@@ -162,8 +162,9 @@ def learning_from_dict(doc: dict, overrides: dict | None = None) -> dict:
         the learners at the end, or None) and ``start``
         (the :class:`sim.learning.saved.SavedLearners` of ``learning.continue_from``, read and checked against
         the line-up, or None), ``event`` (the :class:`sim.learning.events.Event` of an ``[event]`` table, or None)
-        and ``waiting`` (an event whose saved file does not exist yet: it is read when the run starts, once the
-        first run has written it).
+        ``waiting`` (an event whose saved file does not exist yet: it is read when the run starts, once the
+        first run has written it) and ``unused`` (``[learning]`` keys given but not used by these learners, key
+        path -> reason, for the report).
 
     Raises
     ------
@@ -254,6 +255,7 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
         settings["timing"] = lt["timing"]
     _demand_shock(lt, settings, doc)
     _signal(lt, settings, doc)
+    unused = _unused(lt, settings, "strategies" in doc)
     firm = Integer(1, n_firms).check("impulse.firm", it.get("firm", 1))
     settings["deviator"] = firm - 1  # learn() counts seats from 0; every output counts firms from 1
     settings["deviation"] = _impulse_action(it)
@@ -277,7 +279,7 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     if start is not None:
         check_saved_observe(start.header, settings.get("observe", "prices"), "learning.observe")
     return {"market": market, "learner": learner, "settings": settings, "save_to": save_to, "start": start,
-            "event": event, "waiting": event is not None and start is None}
+            "event": event, "waiting": event is not None and start is None, "unused": unused}
 
 
 def _demand_shock(lt: dict, settings: dict, doc: dict) -> None:
@@ -309,6 +311,31 @@ def _signal(lt: dict, settings: dict, doc: dict) -> None:
         settings["price_noise"] = float(noise)
     else:
         settings["signal_band"] = float(band)
+
+
+#: the Q-learning parameters a bandit or a fixed policy does not use (``update`` and given initial values are refused)
+_Q_ONLY = ("alpha", "beta", "delta", "k", "init")
+
+
+def _unused(lt: dict, settings: dict, lineup: bool) -> dict:
+    """The ``[learning]`` keys a run accepts but does not use, each with the reason, for the report (key path ->
+    words): the signal band without the profit signal, the price error without noisy prices, and Q-learning's
+    parameters when every seat is a bandit or a fixed policy (``[learning] family``, no line-up; in a line-up the
+    table's keys serve every seat that uses them)."""
+    out = {}
+    observe = settings.get("observe", "prices")
+    if "signal_band" in lt and observe != "own_profit":
+        out["learning.signal_band"] = f"the learners do not see the profit signal (observe = {observe!r})"
+    if "price_noise" in lt and observe != "noisy_prices":
+        out["learning.price_noise"] = f"the learners do not see prices with error (observe = {observe!r})"
+    family = lt.get("family", "q")
+    if family != "q" and not lineup:
+        what = "a fixed policy neither learns nor explores" if family == "fixed" else \
+            f"a {family} bandit keeps no state and learns by its own rule"
+        for key in _Q_ONLY:
+            if key in lt:
+                out[f"learning.{key}"] = what
+    return out
 
 
 def _event(doc: dict, overrides: dict, lt: dict):

@@ -205,6 +205,9 @@ class Kind:
         ``describe(doc) -> list of str``: lines describing the setup, for the report.
     assumptions : tuple of str
         The model's assumptions and limitations, stated in the report.
+    cell_assumptions : callable, optional
+        ``cell_assumptions(doc) -> list of str``: the assumptions of what one cell's document uses (a learner family,
+        a protocol); the report states those of every cell of the run, each once, after ``assumptions``.
     summary : str
         One line: what a cell of this kind computes.
     cost : callable, optional
@@ -235,6 +238,7 @@ class Kind:
     threshold: Mapping[str, str] = field(default_factory=dict)
     describe: Callable[[dict], list] | None = None
     assumptions: tuple = ()
+    cell_assumptions: Callable[[dict], Sequence[str]] | None = None
     summary: str = ""
     cost: Callable[[Any], Any] | None = None
     result_type: type | None = None

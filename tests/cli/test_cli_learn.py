@@ -421,3 +421,14 @@ def test_the_impulse_figure_shows_bands_and_benchmark_lines(small, capsys):
     levels = sorted(line.get_ydata()[0] for line in ax.get_lines() if line.get_linestyle() in (":", "--"))
     bm = res.summary["benchmarks"]
     assert levels == pytest.approx(sorted([np.mean(bm["nash_prices"]), np.mean(bm["collusive_prices"])]), rel=1e-12)
+
+
+def test_settings_the_learners_do_not_use_are_named_in_the_report(small, capsys):
+    # accepted, since a sweep may switch the protocol or a line-up may give [learning] to other seats, but said
+    flags = ["--sessions", "2", "--price-noise", "0.5", "--family", "ucb", "--beta", "1e-3"]
+    assert main(["learn", str(small), *flags]) == 0
+    out = capsys.readouterr().out
+    assert "Not used, though given: learning.price_noise: the learners do not see prices with error" in out
+    assert "learning.beta" in out and "a ucb bandit keeps no state and learns by its own rule" in out
+    assert main(["learn", str(small), "--sessions", "2"]) == 0
+    assert "Not used" not in capsys.readouterr().out

@@ -30,7 +30,16 @@ def test_a_run_split_in_two_halves_prints_the_json_of_the_whole_run(small, capsy
     assert _run(capsys, str(small), "--json", "--max-periods", "12000", "--save-to", "half.npz")[0] == 0
     status, rest = _run(capsys, str(small), "--json", "--continue-from", "half.npz")
     assert status == 0
-    assert rest.out == whole.out
+    # the same document, but for the record of where the continued sessions came from
+    doc = json.loads(rest.out)
+    cont = doc["settings"].pop("continued")
+    assert doc == json.loads(whole.out)
+    assert cont == {"saved_seed": json.loads(whole.out)["settings"]["seed"], "saved_cell": 0,
+                    "periods_before": [12000, 12000], "changed": []}
+    status, text = _run(capsys, str(small), "--continue-from", "half.npz", "--alpha", "0.3", "--seed", "5")
+    assert status == 0
+    assert "continued from saved learners, not new" in text.out and "seed (5)" in text.out
+    assert "firm 1 alpha 0.15 -> 0.3; firm 2 alpha 0.15 -> 0.3" in text.out  # the default alpha, 0.15
     status, rest = _run(capsys, str(small), "--json", "--continue-from", "half.npz", "--update", "synchronous")
     assert status == 0 and json.loads(rest.out)["learners"][0]["update"] == "synchronous"
 
@@ -54,7 +63,8 @@ BAD = [
     (["--continue-from", "half.npz", "--cost", "1.1"], "--continue-from", "another market (market.cost"),
     (["--continue-from", "half.npz", "--m", "6"], "--continue-from", "grid differs"),
     (["--continue-from", "half.npz", "--sessions", "2"], "--continue-from", "3 saved sessions"),
-    (["--continue-from", "version.npz"], "--continue-from", "format version 3"),
+    (["--continue-from", "version.npz"], "--continue-from", "format version 4"),
+    (["--continue-from", "edited.npz"], "--continue-from", "the header (market, seats, run) does not match"),
     (["--continue-from", "damaged.npz"], "--continue-from", "do not match the SHA-256"),
     (["--continue-from", "cut.npz"], "--continue-from", "cannot be read"),
     (["--continue-from", "missing.npz"], "--continue-from", "no such file"),
@@ -69,7 +79,8 @@ BAD = [
 @pytest.mark.parametrize(("extra", "key", "text"), BAD, ids=[" ".join(b[0]) for b in BAD])
 def test_bad_saved_learners_and_update_rules_give_one_line_and_status_2(small, capsys, extra, key, text):
     assert _run(capsys, str(small), "--max-periods", "3000", "--save-to", "half.npz")[0] == 0
-    _rewrite("half.npz", "version.npz", {"version": 3})  # a version this program does not read
+    _rewrite("half.npz", "version.npz", {"version": 4})  # a version this program does not read
+    _rewrite("half.npz", "edited.npz", {"seed": 8})  # the header edited, the arrays untouched
     _rewrite("half.npz", "damaged.npz", flip_q=True)
     (small.parent / "cut.npz").write_bytes((small.parent / "half.npz").read_bytes()[:200])
     status, cap = _run(capsys, str(small), *extra)
@@ -90,3 +101,15 @@ def test_in_a_run_folder_the_saved_learners_are_recorded_in_the_manifest(small, 
     saved = small.parent / "run1" / "learners-cell1.npz"
     manifest = json.loads((small.parent / "run1" / "manifest.json").read_text())
     assert manifest["files"]["learners-cell1.npz"] == sha256_file(saved)
+
+
+@pytest.mark.parametrize(("target", "text"), [("folder.npz", "folder.npz is a folder, not a file"),
+                                              ("plain/x.npz", "plain is a file, so plain/x.npz cannot be made")])
+def test_a_file_that_cannot_be_saved_is_refused_before_any_work(small, capsys, target, text):
+    (small.parent / "folder.npz").mkdir()
+    (small.parent / "plain").write_text("not a folder")
+    before = sorted(p.name for p in small.parent.iterdir())
+    status, cap = _run(capsys, str(small), "--save-to", target)
+    assert status == 2 and cap.out == ""
+    assert cap.err.strip() == f"supergame learn: error: --save-to: {text}"
+    assert sorted(p.name for p in small.parent.iterdir()) == before  # nothing written, no partial file

@@ -263,6 +263,10 @@ CASES = [
      "--exploration"),
     ("exploration for a Q-learner", "learn", "learn", ("k = 1\n", "k = 1\nexploration = 2.0\n"), [],
      "learning.exploration"),
+    ("bandit noise beyond any scale", "learn", "learn", None, ["--family", "ucb", "--noise", "1e308"], "--noise"),
+    ("exploration constant beyond any scale", "learn", "learn", ("k = 1\n", 'k = 1\nfamily = "thompson"\n'
+                                                                              "exploration = 1e300\n"), [],
+     "learning.exploration"),
     ("fixed policy without its file", "learn", "learn", ("k = 1\n", 'k = 1\nfamily = "fixed"\nfirm = 1\n'), [],
      "learning.policy_from"),
     ("fixed policy from a missing file", "learn", "learn",
@@ -280,6 +284,8 @@ CASES = [
     ("negative price noise flag", "learn", "learn", ("k = 1\n", 'k = 1\nobserve = "noisy_prices"\n'),
      ["--price-noise", "-1"], "--price-noise"),
     ("noisy prices with a memory of two", "learn", "learn", ("k = 1\n", 'k = 2\nobserve = "noisy_prices"\n'), [],
+     "learning.observe"),
+    ("profit signal with a memory of two", "learn", "learn", ("k = 1\n", 'k = 2\nobserve = "own_profit"\n'), [],
      "learning.observe"),
 ]
 

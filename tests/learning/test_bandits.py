@@ -181,7 +181,10 @@ def test_a_bandit_session_split_in_two_halves_with_a_save_between_is_the_uninter
     save_learners(tmp_path / "rest.npz", rest.saved)
     assert (tmp_path / "whole.npz").read_bytes() == (tmp_path / "rest.npz").read_bytes()
     a = json.dumps(learn_result(whole, market).to_dict(), allow_nan=False)
-    b = json.dumps(learn_result(rest, market).to_dict(), allow_nan=False)
+    continued = learn_result(rest, market).to_dict()
+    # the same document but for the record of where the continued sessions came from (for the report)
+    assert continued["settings"].pop("continued")["periods_before"][1] == 8_000
+    b = json.dumps(continued, allow_nan=False)
     assert a == b
     # the halves differ from the whole: the statistics moved
     assert not np.array_equal(half.saved.counts, whole.saved.counts)
@@ -193,7 +196,7 @@ def test_saved_bandits_continue_only_in_their_own_family(tmp_path):
                 keep=True, workers=1)
     save_learners(tmp_path / "s.npz", res.saved)
     saved = load_learners(tmp_path / "s.npz")
-    assert saved.header["version"] == 2 and saved.counts.sum() == 2 * res.periods.sum()  # 2 bandits
+    assert saved.header["version"] == 3 and saved.counts.sum() == 2 * res.periods.sum()  # 2 bandits
     for other in (QLearner(family="thompson", m=5), QLearner(m=5)):
         with pytest.raises(InputError, match="family 'ucb'") as e:
             learn(market, other, sessions=2, start=saved, workers=1)

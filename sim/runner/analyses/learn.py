@@ -6,9 +6,10 @@ import math
 from pathlib import Path
 
 from sim.core.errors import InputError
-from sim.learning.analysis import LearnResult, LearnSpec, learn_analysis
+from sim.learning.analysis import LearnResult, LearnSpec, learn_analysis, measures_price_wars
 from sim.learning.tables import learning_from_dict
 from sim.runner.analyses.common import GENERAL_ASSUMPTIONS, describe_market
+from sim.runner.analyses.learn_assumptions import COMMON, cell_assumptions
 from sim.runner.kinds import CellContext, CellResult, Kind, PartAssumption
 from strategies.qlearning import QLearner
 
@@ -19,7 +20,8 @@ def _prepare_learn(doc: dict) -> dict:
         raise InputError("market", "missing: the [market] table describes the market")
     cfg = learning_from_dict(doc)  # the line-up is compiled there: its state space is checked before any work
     cfg["n_firms"] = cfg["market"].spec().n_firms
-    cfg["spec"] = LearnSpec(cfg["market"], cfg["learner"], cfg["settings"], cfg["start"], cfg["event"])
+    cfg["spec"] = LearnSpec(cfg["market"], cfg["learner"], cfg["settings"], cfg["start"], cfg["event"],
+                            cfg["unused"])
     cfg["doc"] = doc
     return cfg
 
@@ -71,7 +73,7 @@ def _learn_names(cfg: dict) -> list[str]:
             out += [f"analytic.merger_nash_price.firm{i + 1}" for i in range(n)]
     if cfg["settings"].get("timing") == "alternating":
         out += list(ALTERNATING_NAMES)
-    if cfg["settings"].get("observe") == "own_profit" and cfg["settings"].get("demand_sigma"):
+    if measures_price_wars(cfg["settings"], cfg.get("event")):
         out += [f"{stem}{q}" for stem in SIGNAL_NAMES for q in ("", ".low", ".high")]
     if cfg["settings"].get("observe") == "noisy_prices":
         out += error_play_names(n)
@@ -318,29 +320,10 @@ KIND = Kind(
     headline=("profit_gain", "converged", "near_collusive", "rival_price_cut"),
     describe=_describe_learn,
     summary="sessions of Q-learning firms: limit outcomes, profit gain and impulse response",
-    assumptions=GENERAL_ASSUMPTIONS + (
-        "Firms are tabular Q-learners on a finite grid of actions, playing synchronously with epsilon-greedy "
-        "exploration decaying as exp(-beta t), as in Calvano, Calzolari, Denicolo and Pastorello (2020); a "
-        "session counts as converged once no greedy strategy changed for the stated number of periods.",
-        "Limit outcomes are those of greedy play from the final state; statistics are across independent sessions "
-        "(95 % intervals: Student t for means, Wilson for shares) and measure simulation error only.",
-        "Learned outcomes depend on the algorithm's settings (learning rate, exploration, grid, memory); they show "
-        "what such algorithms can learn in this model, not what a particular pricing software does.",
-
-        "With learning.timing = 'alternating', two Q-learners set their prices in turn and each price holds for two "
-        "periods (Klein, 2021, RAND Journal of Economics 52(3)); no impulse response is computed for them.",
-        "With learning.demand_sigma above 0, one mean-one demand shock a period scales every firm's realised profit, "
-        "which is what the learners learn from; they condition on past prices only, so the limit outcomes do not "
-        "react to a draw and report expected profits (after Calvano, Calzolari, Denicolo and Pastorello, 2021).",
-        "With learning.observe = 'noisy_prices', a learner sees its own last price exactly and each rival's with a "
-        "normal error of learning.price_noise grid steps, rounded to the grid (imperfect monitoring after Stigler, "
-        "1964, and Green and Porter, 1984); the limit outcomes are those of greedy play without error from the "
-        "prices played last.",
-        PartAssumption("With learning.observe = 'own_profit', a learner sees only its own last price and whether its "
-                       "profit fell more than learning.signal_band below the profit at the symmetric prices, so a "
-                       "rival's undercut and a bad draw look alike (after Green and Porter, 1984); the price wars are "
-                       "measured after one forced draw three standard deviations below the median, the sessions "
-                       "learning on, and say what such learners can learn in this model, not what any firm did.",
-                       "price_cut_share"),
+    assumptions=GENERAL_ASSUMPTIONS + COMMON + (
+        PartAssumption("Learned price wars are measured after one forced demand draw three standard deviations below "
+                       "the median, the sessions learning on from their final states, and say what such learners can "
+                       "learn in this model, not what any firm did.", "price_cut_share"),
     ),
+    cell_assumptions=cell_assumptions,
 )

@@ -1,0 +1,39 @@
+"""Words of the learn report that state a direction: they follow the interval, not the sign of the point estimate
+(a direction is claimed only when the whole 95 % interval lies on one side of 0; common practice, no source)."""
+
+from __future__ import annotations
+
+import math
+
+from sim.evidence.learn import _rival_change_line
+
+
+def _cut(mean, low, high, n=10):
+    # the summary stores the rivals' cut (before minus after); the line states the change (after minus before)
+    return {"mean": mean, "low": low, "high": high, "n": n}
+
+
+def test_a_cut_a_rise_and_no_clear_change():
+    assert _rival_change_line(_cut(0.2, 0.1, 0.3), "price", 2) == (
+        "  rival's price in the period after the deviation minus before it: -0.2000 [-0.3000, -0.1000] (a cut: "
+        "the whole interval lies below 0)")
+    assert "(a rise: the whole interval lies above 0)" in _rival_change_line(_cut(-0.2, -0.3, -0.1), "price", 2)
+    line = _rival_change_line(_cut(-0.0226, -0.08, 0.04), "quantity", 3)
+    assert line.startswith("  rivals' mean quantity") and "0.0226 [-0.0400, 0.0800]" in line
+    assert "(no clear change: the interval contains 0)" in line
+
+
+def test_one_session_has_no_interval():
+    line = _rival_change_line(_cut(0.1, math.nan, math.nan, n=1), "price", 2)
+    assert line.endswith("-0.1000 - (one session: no interval)")
+
+
+def test_the_learned_merger_effect_is_more_or_less_only_outside_its_interval():
+    from sim.evidence.learn_event import _verdict
+
+    # the static change 0.171 inside the learned change's interval [-0.187, 0.293]: no direction claimed
+    assert _verdict(0.0532, 0.171, {"low": -0.1867, "high": 0.2932, "n": 4}).startswith("no clear difference")
+    assert _verdict(0.30, 0.171, {"low": 0.2, "high": 0.4, "n": 4}) == "more"
+    assert _verdict(0.05, 0.171, {"low": 0.0, "high": 0.1, "n": 4}) == "less"
+    assert _verdict(0.05, 0.171, {"low": math.nan, "high": math.nan, "n": 1}) == "less (one session, no interval)"
+    assert _verdict(math.nan, 0.171, None) == "-"
