@@ -65,7 +65,7 @@ _RATIO_MEAN = ("ratio of totals across replications; interval: normal approximat
 _KM = ("Kaplan-Meier restricted mean with Greenwood's variance (Kaplan and Meier, 1958; Klein and Moeschberger, 2003, "
        "section 4.5), interval on the log scale, within [1, horizon]")
 _WILSON = "Wilson score interval (Wilson, 1927, JASA 22)"
-_STUDENT = "Student t across independent sessions"
+_SESSIONS = "normal approximation across independent sessions (mean +- z s / sqrt(n))"
 _FRIEDMAN = ("delta* = (pi_D - pi_C) / (pi_D - pi_N), the smallest delta with pi_C / (1 - delta) >= pi_D + delta pi_N "
              "/ (1 - delta) (Friedman, 1971, Review of Economic Studies 38(1))")
 _JYC = ("outer approximation by supporting hyperplanes in fixed directions (Judd, Yeltekin and Conklin, 2003, "
@@ -240,12 +240,12 @@ ENTRIES: dict[str, Entry] = {
                        "Share of sessions whose greedy strategies did not change for the convergence window.",
                        "Calvano et al. (2020)", _WILSON),
     "periods": Entry("periods to convergence", "periods", "Periods a session ran until it converged.", "counted",
-                     _STUDENT),
+                     _SESSIONS),
     "limit_price": Entry("limit price", "price", "The firm's mean price in the limit play of converged sessions "
-                         "(of every session when none converged).", "greedy play from the final state", _STUDENT),
+                         "(of every session when none converged).", "greedy play from the final state", _SESSIONS),
     "limit_profit": Entry("limit profit", "{money}", "Mean over converged sessions (every session when none "
-                          "converged) of the firm's mean profit in the limit play (the terminal report gives its "
-                          "interval across sessions).", "greedy play"),
+                          "converged) of the firm's mean profit in the limit play.", "greedy play from the final state",
+                          _SESSIONS),
     "near_collusive": Entry("share of sessions near collusion", "0 to 1",
                             "Share of converged sessions (every session when none converged) in which every firm's "
                             "mean limit action lies within the stated tolerance (learning.near) times its "
@@ -256,22 +256,23 @@ ENTRIES: dict[str, Entry] = {
                        "distance of its static-Nash action.", "counted", _WILSON),
     "rival_price_cut": Entry("rivals' price cut after a deviation", "price",
                              "How much the rivals lower their price in the period after a forced deviation.",
-                             "impulse response (Calvano et al., 2020)", _STUDENT),
+                             "impulse response (Calvano et al., 2020)", _SESSIONS),
     "deviation_gain": Entry("gain from the forced deviation", "{money} (discounted sum)",
                             "Discounted profit of the deviating firm with the deviation minus without.",
-                            "impulse response (Calvano et al., 2020)", _STUDENT),
+                            "impulse response (Calvano et al., 2020)", _SESSIONS),
     "deviation_pays": Entry("share of deviations that pay", "0 to 1",
                             "Mean over converged sessions of the share of the deviations tried in each -- one at "
                             "every point of the limit cycle (exact), or the simulated ones (estimate) -- whose "
                             "discounted value gain is positive; not a share of sessions.",
-                            "counted per session, averaged over sessions (the terminal report words it the same way)"),
+                            "counted per session, averaged over sessions (the terminal report words it the same way)",
+                            _SESSIONS + ", kept within [0, 1]"),
     "returned": Entry("share of deviations after which play returns", "0 to 1",
                       "Mean over converged sessions of the share of the deviations tried at the points of the limit "
                       "cycle after which greedy play returns to the cycle it left; not a share of sessions.",
-                      "counted per session, averaged over sessions"),
+                      "counted per session, averaged over sessions", _SESSIONS + ", kept within [0, 1]"),
     "return_periods": Entry("periods to return", "periods", "Mean over converged sessions of the mean number of "
                             "periods after a deviation until greedy play is back on the limit cycle.",
-                            "counted per session, averaged over sessions"),
+                            "counted per session, averaged over sessions", _SESSIONS + ", kept within [0, 1]"),
     "nash_profit": Entry("static-Nash profit", "{money}", "Profit per period in the static Nash equilibrium.",
                          "stage game"),
     "collusive_profit": Entry("collusive profit", "{money}", "Profit per period under the joint-profit agreement.",

@@ -61,6 +61,9 @@ def _learn_names(cfg: dict) -> list[str]:
     out += ["near_collusive", "near_collusive.low", "near_collusive.high", "near_nash", "near_nash.low",
             "near_nash.high", "rival_price_cut", "rival_price_cut.low", "rival_price_cut.high", "deviation_gain",
             "deviation_gain.low", "deviation_gain.high", "deviation_pays", "returned", "return_periods"]
+    # intervals of the limit profits and of the deviation's shares (after the columns above, which keep their place)
+    out += [f"limit_profit.firm{i + 1}{q}" for i in range(n) for q in (".low", ".high")]
+    out += [f"{stem}{q}" for stem in ("deviation_pays", "returned", "return_periods") for q in (".low", ".high")]
     for i in range(n):
         f = f"firm{i + 1}"
         out += [f"analytic.nash_price.{f}", f"analytic.collusive_price.{f}", f"analytic.nash_profit.{f}",
@@ -213,9 +216,16 @@ def learn_metrics(res: LearnResult) -> dict:
     m["rival_price_cut"], m["rival_price_cut.low"], m["rival_price_cut.high"] = rc["mean"], rc["low"], rc["high"]
     g = sm["deviation_gain"]
     m["deviation_gain"], m["deviation_gain.low"], m["deviation_gain.high"] = g["mean"], g["low"], g["high"]
-    m["deviation_pays"] = sm["deviation_pays"]["mean"]
-    m["returned"] = sm["returned"]["mean"]
-    m["return_periods"] = sm["return_periods"]["mean"]
+    for stem in ("deviation_pays", "returned", "return_periods"):
+        m[stem], m[f"{stem}.low"], m[f"{stem}.high"] = sm[stem]["mean"], sm[stem]["low"], sm[stem]["high"]
+    for stem in ("deviation_pays", "returned"):
+        # means of shares: their normal intervals are kept within [0, 1]
+        for q in (".low", ".high"):
+            v = m[f"{stem}{q}"]
+            m[f"{stem}{q}"] = v if v is None or not math.isfinite(v) else min(1.0, max(0.0, v))
+    for i in range(n):
+        lp = sm["limit_profits"][i]
+        m[f"limit_profit.firm{i + 1}.low"], m[f"limit_profit.firm{i + 1}.high"] = lp["low"], lp["high"]
     bm = sm["benchmarks"]
     for i in range(n):
         f = f"firm{i + 1}"

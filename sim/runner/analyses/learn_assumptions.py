@@ -13,8 +13,8 @@ COMMON = (
     "its cap first is reported as not converged, and the statistics are over converged sessions (over every "
     "session when none converged, as the report then says).",
     "Limit outcomes are those of greedy play after learning, from each session's final state; statistics are across "
-    "independent sessions (95 % intervals: Student t for means, Wilson for shares) and measure simulation error "
-    "only.",
+    "independent sessions (95 % intervals: normal approximation for means, Wilson for shares) and measure "
+    "simulation error only.",
     "Learned outcomes depend on the algorithm's settings (learning rate, exploration, grid, memory); they show what "
     "such algorithms can learn in this model, not what a particular pricing software does.",
 )
