@@ -55,8 +55,9 @@ HISTOGRAM_EDGES = np.round(np.arange(-0.5, 1.5001, 0.05), 10)
 # level for means, the Wilson score interval for shares.
 
 
-def _mean_ci(x, level: float = 0.95) -> dict:
-    """Mean with its normal-approximation confidence interval (nan when fewer than two values)."""
+def _mean_ci(x, level: float = 0.95, bounds: tuple | None = None) -> dict:
+    """Mean with its normal-approximation confidence interval (nan when fewer than two values); with ``bounds``
+    (the values' domain, e.g. ``(0, 1)`` for means of shares) the interval is kept within it."""
 
     x = np.asarray(x, dtype=float)
     x = x[np.isfinite(x)]
@@ -64,7 +65,10 @@ def _mean_ci(x, level: float = 0.95) -> dict:
     if n == 0:
         return {"mean": math.nan, "se": math.nan, "low": math.nan, "high": math.nan, "n": 0}
     e = mean_estimate(x, level)
-    return {"mean": e.value, "se": e.se, "low": e.low, "high": e.high, "n": int(n)}
+    low, high = e.low, e.high
+    if bounds is not None and n > 1:
+        low, high = max(bounds[0], low), min(bounds[1], high)
+    return {"mean": e.value, "se": e.se, "low": low, "high": high, "n": int(n)}
 
 
 def _share_ci(k: int, n: int, level: float = 0.95) -> dict:
@@ -340,8 +344,8 @@ class LearningResult:
             "impulse_response": ir,
             "rival_price_cut": _mean_ci((pre[:, rivals] - after[:, rivals]).mean(axis=1), lvl) if rivals else {},
             "deviation_gain": _mean_ci(self.deviation_gain[sel], lvl),
-            "deviation_pays": _mean_ci(self.deviation_pays[sel], lvl),
-            "returned": _mean_ci(self.returned[sel], lvl),
+            "deviation_pays": _mean_ci(self.deviation_pays[sel], lvl, (0.0, 1.0)),
+            "returned": _mean_ci(self.returned[sel], lvl, (0.0, 1.0)),
             "return_periods": _mean_ci(self.return_periods[sel], lvl),
             "benchmarks": {
                 "nash_prices": lu.nash_prices.tolist(), "collusive_prices": lu.collusive_prices.tolist(),

@@ -218,11 +218,6 @@ def learn_metrics(res: LearnResult) -> dict:
     m["deviation_gain"], m["deviation_gain.low"], m["deviation_gain.high"] = g["mean"], g["low"], g["high"]
     for stem in ("deviation_pays", "returned", "return_periods"):
         m[stem], m[f"{stem}.low"], m[f"{stem}.high"] = sm[stem]["mean"], sm[stem]["low"], sm[stem]["high"]
-    for stem in ("deviation_pays", "returned"):
-        # means of shares: their normal intervals are kept within [0, 1]
-        for q in (".low", ".high"):
-            v = m[f"{stem}{q}"]
-            m[f"{stem}{q}"] = v if v is None or not math.isfinite(v) else min(1.0, max(0.0, v))
     for i in range(n):
         lp = sm["limit_profits"][i]
         m[f"limit_profit.firm{i + 1}.low"], m[f"limit_profit.firm{i + 1}.high"] = lp["low"], lp["high"]
