@@ -1,11 +1,16 @@
 """Estimates with their confidence intervals: the package's one convention for every simulated or learned number.
 
-Estimators and intervals (``confidence`` level, 95 % by default; normal approximation)
---------------------------------------------------------------------------------------
+Estimators and intervals (``confidence`` level, 95 % by default)
+----------------------------------------------------------------
 The package's one convention (the learning sessions of :mod:`sim.learning.session` use these functions too):
-``z`` is the standard normal quantile of the level (:func:`normal_quantile`).
+``z`` is the standard normal quantile of the level (:func:`normal_quantile`), ``t`` the quantile of
+Student's t distribution with ``n - 1`` degrees of freedom (:func:`student_quantile`).
 
-* Means over replications (counts per replication, discounted profits): ``mean +- z s / sqrt(n)``.
+* Means over replications or sessions (counts per replication, discounted profits, a learning session's
+  profit gain): ``mean +- t s / sqrt(n)``, Student's interval (Student, 1908, "The probable error of a
+  mean", Biometrika 6), exact for normal values and wider than the normal approximation ``mean +- z s /
+  sqrt(n)`` when there are few of them (by 15 % at ten values, 1 % at a hundred); the two agree as ``n``
+  grows, and for values that are not normal both rest on the central limit theorem.
 * Shares of replications (or sessions) with a property: the Wilson score interval (Wilson, 1927,
   "Probable inference, the law of succession, and statistical inference", JASA 22), which keeps its
   width at shares of 0 and 1 where ``p +- z sqrt(p (1 - p) / n)`` collapses to a point.
@@ -39,7 +44,7 @@ import numpy as np
 from scipy import special
 
 __all__ = ["Estimate", "Survival", "kaplan_meier", "mean_estimate", "normal_quantile", "ratio_estimate",
-           "share_estimate", "wilson_band", "wilson_estimate"]
+           "share_estimate", "student_quantile", "wilson_band", "wilson_estimate"]
 
 
 def normal_quantile(confidence: float) -> float:
@@ -55,6 +60,24 @@ def normal_quantile(confidence: float) -> float:
     float
     """
     return float(math.sqrt(2.0) * special.erfinv(confidence))
+
+
+def student_quantile(confidence: float, n: int) -> float:
+    """``t`` with ``P(|T| <= t) = confidence`` for Student's ``T`` with ``n - 1`` degrees of freedom (2.262... at
+    0.95 and ``n = 10``): the multiplier of ``s / sqrt(n)`` in the interval of a mean of ``n`` values.
+
+    Parameters
+    ----------
+    confidence : float in (0, 1)
+        Level of a two-sided interval.
+    n : int
+        Number of values (at least 2).
+
+    Returns
+    -------
+    float
+    """
+    return float(special.stdtrit(n - 1, 0.5 + confidence / 2.0))
 
 
 
@@ -167,7 +190,8 @@ def _length_interval(mean: float, se: float, z: float, longest: int) -> tuple[fl
 
 
 def mean_estimate(x, confidence: float = 0.95) -> Estimate:
-    """Mean over replications with the normal-approximation interval.
+    """Mean over replications with Student's interval ``mean +- t s / sqrt(n)``, ``t`` with ``n - 1`` degrees of
+    freedom (:func:`student_quantile`).
 
     Parameters
     ----------
@@ -185,7 +209,7 @@ def mean_estimate(x, confidence: float = 0.95) -> Estimate:
     n = x.shape[0]
     m = float(x.mean()) if n else math.nan
     se = float(x.std(ddof=1) / math.sqrt(n)) if n > 1 else math.nan
-    lo, hi = _interval(m, se, normal_quantile(confidence))
+    lo, hi = _interval(m, se, student_quantile(confidence, n) if n > 1 else math.nan)
     return Estimate(m, se, lo, hi, n, "mean")
 
 

@@ -76,7 +76,7 @@ _ESTIMATORS = {
     "kaplan-meier": "the area under the Kaplan-Meier survival curve (Kaplan and Meier, 1958), restricted to the "
                     "horizon, with its Greenwood-type standard error (Klein and Moeschberger, 2003, section 4.5)",
     "wilson": "the share of replications, with the Wilson score interval (Wilson, 1927)",
-    "mean": "the mean over replications, with the normal-approximation interval",
+    "mean": "the mean over replications, with Student's t interval",
 }
 
 

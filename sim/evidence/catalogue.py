@@ -23,6 +23,7 @@ from sim.evidence.catalogue_assess import ASSESS_ENTRIES
 from sim.evidence.catalogue_conditions import CONDITION_ENTRIES, CONDITION_PARAMETERS
 from sim.evidence.catalogue_contact_play import CONTACT_PLAY_ENTRIES
 from sim.evidence.catalogue_enforced import ENFORCED_ENTRIES
+from sim.evidence.catalogue_learned_events import LEARNED_EVENT_ENTRIES
 from sim.evidence.catalogue_parameters import PARAMETER_ROWS
 from sim.evidence.catalogue_shocks import SHOCK_ENTRIES, SHOCK_PARAMETERS
 from sim.evidence.catalogue_slice import FRONTIER_ENTRIES, REFINE_ENTRIES, SLICE_ENTRIES
@@ -58,14 +59,14 @@ class Entry:
 
 _RATIO = ("ratio of totals across replications; interval: Wilson score interval with the design-effect sample size "
           "(Korn and Graubard, 1998, Survey Methodology 24(2)), which stays in [0, 1]")
-_MEAN = "normal approximation across independent replications (mean +- z s / sqrt(n))"
+_MEAN = "Student's t interval across independent replications (mean +- t s / sqrt(n), t with n - 1 degrees of freedom)"
 #: a mean per period that is not a share (prices, money, the profit gain): ratio of totals, normal interval
 _RATIO_MEAN = ("ratio of totals across replications; interval: normal approximation with the delta-method standard "
                "error (Cochran, 1977, Sampling Techniques, section 6.4)")
 _KM = ("Kaplan-Meier restricted mean with Greenwood's variance (Kaplan and Meier, 1958; Klein and Moeschberger, 2003, "
        "section 4.5), interval on the log scale, within [1, horizon]")
 _WILSON = "Wilson score interval (Wilson, 1927, JASA 22)"
-_SESSIONS = "normal approximation across independent sessions (mean +- z s / sqrt(n))"
+_SESSIONS = "Student's t interval across independent sessions (mean +- t s / sqrt(n), t with n - 1 degrees of freedom)"
 _FRIEDMAN = ("delta* = (pi_D - pi_C) / (pi_D - pi_N), the smallest delta with pi_C / (1 - delta) >= pi_D + delta pi_N "
              "/ (1 - delta) (Friedman, 1971, Review of Economic Studies 38(1))")
 _JYC = ("outer approximation by supporting hyperplanes in fixed directions (Judd, Yeltekin and Conklin, 2003, "
@@ -200,7 +201,7 @@ ENTRIES: dict[str, Entry] = {
                          "(profit - static-Nash profit) / (collusive profit - static-Nash profit): 0 at Nash, 1 at "
                          "the agreement.", "Calvano, Calzolari, Denicolo and Pastorello (2020), AER 110(10)",
                          "simulations: " + _RATIO_MEAN + "; learning sessions: the mean of each converged "
-                         "session's profit gain, normal-approximation interval across independent sessions"),
+                         "session's profit gain, Student's t interval across independent sessions"),
     "profit": Entry("mean profit", "{money}", "The firm's profit per period.", "counted", _RATIO_MEAN),
     "discounted_profit": Entry("discounted profit", "{money} (discounted sum)",
                                "Sum over the horizon of delta^t times the profit.", "counted", _MEAN),
@@ -239,7 +240,9 @@ ENTRIES: dict[str, Entry] = {
     "converged": Entry("share of sessions that converged", "0 to 1",
                        "Share of sessions whose greedy strategies did not change for the convergence window.",
                        "Calvano et al. (2020)", _WILSON),
-    "periods": Entry("periods to convergence", "periods", "Periods a session ran until it converged.", "counted",
+    "periods": Entry("periods to convergence", "periods", "Periods a session ran until it converged, counted from "
+                     "its start (for sessions continued from saved learners, from the start of the saved session).",
+                     "counted",
                      _SESSIONS),
     "limit_price": Entry("limit price", "price", "The firm's mean price in the limit play of converged sessions "
                          "(of every session when none converged).", "greedy play from the final state", _SESSIONS),
@@ -255,7 +258,9 @@ ENTRIES: dict[str, Entry] = {
                        "limit action lies within the stated tolerance (learning.near) times its Nash-to-collusive "
                        "distance of its static-Nash action.", "counted", _WILSON),
     "rival_price_cut": Entry("rivals' price cut after a deviation", "price",
-                             "How much the rivals lower their price in the period after a forced deviation.",
+                             "How much the rivals lower their price in the period after a forced deviation: the "
+                             "learning rivals' mean (an automaton's response is its rule, not learned; every "
+                             "rival's when none learns).",
                              "impulse response (Calvano et al., 2020)", _SESSIONS),
     "deviation_gain": Entry("gain from the forced deviation", "{money} (discounted sum)",
                             "Discounted profit of the deviating firm with the deviation minus without.",
@@ -272,7 +277,7 @@ ENTRIES: dict[str, Entry] = {
                       "counted per session, averaged over sessions", _SESSIONS + ", kept within [0, 1]"),
     "return_periods": Entry("periods to return", "periods", "Mean over converged sessions of the mean number of "
                             "periods after a deviation until greedy play is back on the limit cycle.",
-                            "counted per session, averaged over sessions", _SESSIONS + ", kept within [0, 1]"),
+                            "counted per session, averaged over sessions", _SESSIONS),
     "nash_profit": Entry("static-Nash profit", "{money}", "Profit per period in the static Nash equilibrium.",
                          "stage game"),
     "collusive_profit": Entry("collusive profit", "{money}", "Profit per period under the joint-profit agreement.",
@@ -288,7 +293,8 @@ ENTRIES: dict[str, Entry] = {
                                        "The largest difference between simulated and exact Moran fixation "
                                        "probabilities, in standard errors.", "Nowak et al. (2004), Nature 428"),
     "score": Entry("score", "as the score chosen", "The entrant's score against rivals drawn uniformly.",
-                   "mean over its matches", _MEAN),
+                   "mean over its matches",
+                   "normal approximation (score +- z se, se from the matches' standard errors)"),
     "rank": Entry("rank", "rank (1 is best)", "The entrant's place by score.", "ordering"),
     "rank_share": Entry("share of resamples at this rank", "0 to 1",
                         "Share of bootstrap resamples in which the entrant keeps its rank.", "bootstrap"),
@@ -324,7 +330,8 @@ ENTRIES: dict[str, Entry] = {
                           "Post-merger price / pre-merger price - 1 under static Nash.",
                           "merger simulation (Werden and Froeb, 1994)"),
     "persistence.difference": Entry("change of the share of collusive periods", "0 to 1",
-                                    "After minus before the merger.", "paired difference", _MEAN),
+                                    "After minus before the merger.", "difference of the two estimates",
+                                    "normal approximation (difference +- z sqrt(se_before^2 + se_after^2))"),
     "calibration.max_relative_residual": Entry("largest relative residual of the calibration", "share",
                                                "How far the calibrated market misses the observed data.",
                                                "calibration to prices, shares and margins"),
@@ -419,64 +426,6 @@ ENTRIES: dict[str, Entry] = {
                             "share above 30 % with a change above 100.",
                             "U.S. Department of Justice and Federal Trade Commission, Merger Guidelines (2023), "
                             "section 2.1"),
-    # learners against automata: the automaton's punishments during learning
-    "triggered": Entry("share of sessions in which the automaton's punishment was triggered", "0 to 1",
-                       "Share of sessions in which the automaton entered a non-collusive (punishment) state from a "
-                       "collusive one at least once while the learners learned.",
-                       "counted in the learning kernel from the automaton's states (its collusive states as the "
-                       "strategy defines them); learners against automata as in Calvano, Calzolari, Denicolo and "
-                       "Pastorello (2020, AER, section V)", _WILSON),
-    "triggers": Entry("triggers of the automaton's punishment per session", "count",
-                      "Entries of the automaton into a non-collusive state from a collusive one during learning, "
-                      "per session.", "counted in the learning kernel", _MEAN),
-    "first_trigger": Entry("period of the first trigger", "period",
-                           "Median over the sessions with a trigger of the period (from 1) whose conduct first put "
-                           "the automaton into punishment.", "counted in the learning kernel", "none (a median)"),
-    "last_trigger": Entry("period of the last trigger", "period",
-                          "Median over the sessions with a trigger of the period (from 1) whose conduct last put the "
-                          "automaton into punishment.", "counted in the learning kernel", "none (a median)"),
-    "punishment_share": Entry("share of the session the automaton punished", "0 to 1",
-                              "Periods the automaton played in a non-collusive state divided by the periods of the "
-                              "session, averaged over sessions.", "counted in the learning kernel",
-                              _MEAN + ", cut to [0, 1]"),
-    "exploration_at_first_trigger": Entry("exploration probability at the first trigger", "probability",
-                                          "The learners' probability of exploring, exp(-beta t), in the period of "
-                                          "the first trigger; median over the sessions with a trigger.",
-                                          "epsilon-greedy exploration decaying as exp(-beta t) (Calvano, Calzolari, "
-                                          "Denicolo and Pastorello, 2020, AER)", "none (a median)"),
-    "exploration_at_last_trigger": Entry("exploration probability at the last trigger", "probability",
-                                         "The learners' probability of exploring, exp(-beta t), in the period of the "
-                                         "last trigger; median over the sessions with a trigger.",
-                                         "epsilon-greedy exploration decaying as exp(-beta t) (Calvano, Calzolari, "
-                                         "Denicolo and Pastorello, 2020, AER)", "none (a median)"),
-    "punishing_at_end": Entry("share of sessions ending with the automaton punishing", "0 to 1",
-                              "Share of sessions whose automaton was in a non-collusive state when learning stopped.",
-                              "counted", _WILSON),
-    # saved learners continued after an event (a cost or demand shock, an entrant)
-    "settled_again": Entry("share of sessions that settled again after the event", "0 to 1",
-                           "Share of sessions in which, after the event, no greedy strategy changed for the "
-                           "convergence window before the cap.",
-                           "the convergence rule of Calvano, Calzolari, Denicolo and Pastorello (2020, AER), counted "
-                           "from the event", _WILSON),
-    "periods_to_settle": Entry("periods to settle again after the event", "periods",
-                               "Periods from the event to the last change of any learner's greedy strategy, over the "
-                               "sessions that settled again.",
-                               "counted in the learning kernel; learners that keep learning after a lasting change, "
-                               "as in the robustness checks of Calvano et al. (2020) and Asker, Fershtman and Pakes "
-                               "(2022, AEA Papers and Proceedings 112)", _MEAN),
-    "event_price_before": Entry("price just before the event", "price",
-                                "The firm's price in the last period before the event, averaged over sessions.",
-                                "read from the saved sessions' history", _MEAN),
-    "event_price_change": Entry("change of the limit price after the event", "price",
-                                "The firm's mean limit price once the learners settled again, minus its price in the "
-                                "last period before the event; averaged over the sessions that settled.",
-                                "greedy play from the final state (Calvano et al., 2020) against the saved history",
-                                _MEAN),
-    "merger_nash_price": Entry("static-Nash price after the merger", "price",
-                               "The product's price in the static Nash equilibrium of the market in which the merged "
-                               "firm sets its products' prices jointly to maximise their summed profit.",
-                               "stage game with a multi-product owner (Deneckere and Davidson, 1985, RAND Journal of "
-                               "Economics 16(4))"),
 }
 
 # enforcement, demand states and multimarket contact (sim.evidence.catalogue_conditions)
@@ -498,6 +447,8 @@ ENTRIES.update({k: Entry(*v) for k, v in REFINE_ENTRIES.items()})
 ENTRIES.update({k: Entry(*v) for k, v in FRONTIER_ENTRIES.items()})
 # learners' response to one adverse demand draw (sim.evidence.catalogue_shocks)
 ENTRIES.update({k: Entry(*v) for k, v in SHOCK_ENTRIES.items()})
+# learners against automata, and saved learners continued after an event (sim.evidence.catalogue_learned_events)
+ENTRIES.update({k: Entry(*v) for k, v in LEARNED_EVENT_ENTRIES.items()})
 
 #: swept or given parameters: key path -> Entry (unit and label of an axis)
 PARAMETERS: dict[str, Entry] = {k: Entry(*v) for k, v in PARAMETER_ROWS.items()}

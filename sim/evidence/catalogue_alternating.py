@@ -7,7 +7,7 @@ from __future__ import annotations
 __all__ = ["ALTERNATING_ENTRIES", "ALTERNATING_PARAMETERS"]
 
 _WILSON = "Wilson score interval (Wilson, 1927, JASA 22)"
-_MEAN = "normal approximation across independent replications (mean +- z s / sqrt(n))"
+_MEAN = "Student's t interval across independent sessions (mean +- t s / sqrt(n), t with n - 1 degrees of freedom)"
 _KLEIN = ("greedy play from each session's final state under alternating moves, followed until the state (both prices "
           "and the firm to move) repeats, which it must within 2 m1 m2 periods; protocol of Klein (2021, RAND Journal "
           "of Economics 52(3)) after Maskin and Tirole (1988, Econometrica 56(3))")

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 __all__ = ["CONTACT_PLAY_ENTRIES"]
 
-_MEAN = "normal approximation across independent replications (mean +- z s / sqrt(n))"
+_MEAN = "Student's t interval across independent replications (mean +- t s / sqrt(n), t with n - 1 degrees of freedom)"
 _PLAYED = ("the markets played together period by period (sim.simulation.multimarket.simulate_markets); a period is "
            "collusive in a market when every firm's automaton there is in a collusive state and no firm cheated or "
            "erred in it")

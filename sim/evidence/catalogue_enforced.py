@@ -11,7 +11,7 @@ from __future__ import annotations
 
 __all__ = ["ENFORCED_ENTRIES"]
 
-_MEAN = "normal approximation across independent replications (mean +- z s / sqrt(n))"
+_MEAN = "Student's t interval across independent replications (mean +- t s / sqrt(n), t with n - 1 degrees of freedom)"
 _SHARE = ("ratio of totals across replications; interval: Wilson score interval with the design-effect sample size "
           "(Korn and Graubard, 1998, Survey Methodology 24(2)), which stays in [0, 1]")
 _CUT = ("the simulated path of each replication cut at its conviction: later periods earn the static Nash profits "

@@ -42,9 +42,11 @@ PARAMETER_ROWS: dict[str, tuple] = {
                         "saved learner, played without learning or exploring).",
                         "given; UCB1 (Auer, Cesa-Bianchi and Fischer, 2002, Machine Learning 47), Thompson "
                         "sampling with a normal prior (Agrawal and Goyal, 2013)"),
-    "learning.noise": ("noise on the observed profit", "currency units per period",
-                       "Standard deviation of the normal error on the profit a bandit observes each period "
-                       "(its demand signal); the lower, the higher the signal-to-noise ratio.",
+    "learning.noise": ("noise on the observed profit", "share of the reward scale",
+                       "Standard deviation of the normal error on the reward a bandit observes each period (its "
+                       "profit scaled to [0, 1] between zero, or its lowest profit on the grid when that is "
+                       "negative, and its largest profit on the grid); the lower, the higher the signal-to-noise "
+                       "ratio.",
                        "given; the setting of Hansen, Misra and Pai (2021, Marketing Science 40(1))"),
     "learning.exploration": ("exploration scale of a bandit", "",
                              "UCB's exploration constant c, or the standard deviation of a Thompson-sampling "

@@ -7,7 +7,7 @@ from __future__ import annotations
 __all__ = ["SHOCK_ENTRIES", "SHOCK_PARAMETERS"]
 
 _WILSON = "Wilson score interval (Wilson, 1927, JASA 22)"
-_MEAN = "normal approximation across independent sessions (mean +- z s / sqrt(n))"
+_MEAN = "Student's t interval across independent sessions (mean +- t s / sqrt(n), t with n - 1 degrees of freedom)"
 _PATHS = ("each converged session learns on from its final state twice, from the same random numbers: with the first "
           "period's demand shock forced to the stated adverse value and without; price wars after adverse demand "
           "shocks as in Calvano, Calzolari, Denicolo and Pastorello (2021, International Journal of Industrial "

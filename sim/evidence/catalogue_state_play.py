@@ -5,7 +5,7 @@ from __future__ import annotations
 
 __all__ = ["STATE_PLAY_ENTRIES"]
 
-_MEAN = "normal approximation across independent replications (mean +- z s / sqrt(n))"
+_MEAN = "Student's t interval across independent replications (mean +- t s / sqrt(n), t with n - 1 degrees of freedom)"
 _DRAWN = ("one seeded uniform per period picks the state (i.i.d. probabilities or the row of the Markov chain; a "
           "cycle draws nothing), as in sim.theory.draws.draw_state_path")
 _SCALED = ("each period's profit of the simulated path times its state's factor, times (1 + g)^t with a growth rate "

@@ -26,6 +26,7 @@ __all__ = [
     "scheme_words",
     "software_lines",
     "terms_rows",
+    "where",
 ]
 
 #: units that a bracketed range or a yes/no already says (not repeated after a number)
@@ -100,21 +101,45 @@ def _num(v: float) -> str:
 
 
 def _value(row, m: str, units) -> str:
-    """``value (95 % interval low to high) unit`` of a metric in a cell."""
+    """``value unit (95 % interval low to high)`` of a metric in a cell."""
     v = row.metrics.get(m, math.nan)
     text = _num(v) if math.isfinite(v) else "not available"
-    lo, hi = row.metrics.get(f"{m}.low", math.nan), row.metrics.get(f"{m}.high", math.nan)
-    if math.isfinite(lo) and math.isfinite(hi):
-        text += f" (95 % interval {_num(lo)} to {_num(hi)})"
     try:
         unit = describe(m, *units).unit
     except KeyError:
         unit = ""
-    return text + (f" {unit}" if unit not in _QUIET_UNITS else "")
+    text += f" {unit}" if unit not in _QUIET_UNITS else ""
+    lo, hi = row.metrics.get(f"{m}.low", math.nan), row.metrics.get(f"{m}.high", math.nan)
+    if math.isfinite(lo) and math.isfinite(hi):
+        text += f" (95 % interval {_num(lo)} to {_num(hi)})"
+    return text
 
 
-def _where(row, parameters, units) -> str:
-    """The swept values of a cell in words (a strategy by its label alone)."""
+def _overlap(lo_row, hi_row, m: str) -> str:
+    """Words for two cells' intervals of metric ``m`` that overlap (nothing when they do not, or are missing)."""
+    a, b = lo_row.metrics.get(f"{m}.high", math.nan), hi_row.metrics.get(f"{m}.low", math.nan)
+    if math.isfinite(a) and math.isfinite(b) and a >= b:
+        return "; their intervals overlap, so these two cells do not differ clearly"
+    return ""
+
+
+def where(row, parameters, units=(None, None)) -> str:
+    """The swept values of a cell in words (a strategy by its label alone).
+
+    Parameters
+    ----------
+    row : sim.runner.store.CellRow
+        A stored cell (its ``labels`` give the swept values).
+    parameters : sequence of Parameter
+        The experiment's swept parameters.
+    units : tuple of (str or None, str or None)
+        Currency and period, for the parameters' labels.
+
+    Returns
+    -------
+    str
+        ``"label = value, ..."``, named from the catalogue (the key path when it has no entry).
+    """
     parts = []
     for p in parameters:
         if p.path.startswith("strategies"):
@@ -197,12 +222,12 @@ def headline(question: str, parameters, rows, heads, units=(None, None)) -> tupl
         hi = max(have, key=lambda r: r.metrics[m])
         if lo is hi:
             # one cell has this metric, or every cell has the same value: no range to state
-            where = (f"at {_where(lo, parameters, units)}" if len(have) == 1
+            place = (f"at {where(lo, parameters, units)}" if len(have) == 1
                      else f"in each of the {len(have)} cells that have it")
-            numbers.append(f"{_label(m, units)}: {_value(lo, m, units)} {where}")
+            numbers.append(f"{_label(m, units)}: {_value(lo, m, units)} {place}")
             continue
-        numbers.append(f"{_label(m, units)}: from {_value(lo, m, units)} at {_where(lo, parameters, units)} to "
-                       f"{_value(hi, m, units)} at {_where(hi, parameters, units)}")
+        numbers.append(f"{_label(m, units)}: lowest {_value(lo, m, units)} at {where(lo, parameters, units)}, "
+                       f"highest {_value(hi, m, units)} at {where(hi, parameters, units)}{_overlap(lo, hi, m)}")
     if not answer and numbers:
         answer.append(f"Across the {len(ok)} cells of the sweep, the {numbers[0]}.")
     if crit:

@@ -128,7 +128,7 @@ def _setup_lines(res: LearnResult) -> list[str]:
     for key, why in (st.get("unused") or {}).items():
         reasons.setdefault(why, []).append(key)
     lines += [f"Not used, though given: {', '.join(keys)}: {why}" for why, keys in reasons.items()]
-    lines += observe_lines(res) + shock_lines(res)
+    lines += observe_lines(res) + shock_lines(res) + _grid_reach_lines(res) + _copies_line(res)
     lines.append("")
     c, per = sm["converged"], sm["periods"]
     lines.append(f"Converged: {c['count']} of {c['n']} sessions ({_pct(c['share'])}, {lvl} CI "
@@ -145,6 +145,50 @@ def _setup_lines(res: LearnResult) -> list[str]:
             ["static Nash profit", *bm["nash_profits"]], ["joint-profit profit", *bm["collusive_profits"]]]
     lines += ["Benchmarks (continuous actions)", table(["", *_firms(res)], rows), ""]
     return lines
+
+
+def _copies_line(res: LearnResult) -> list[str]:
+    """A warning when every session ran the same way: nothing the sessions draw changed their course (UCB bandits
+    without observation noise, with automata that do not act at random, draw nothing), so they are copies of one
+    session and the intervals across them measure nothing."""
+    ps = res.per_session
+    n = len(ps["periods"])
+    if n < 2:
+        return []
+    same = all(len({repr(v) for v in ps[k]}) == 1 for k in ("periods", "limit_prices", "deviation_gain"))
+    if not same:
+        return []
+    return [f"Warning: all {n} sessions ran the same way (the same periods, limit prices and deviation gain): "
+            "nothing they draw changed their course, so they are copies of one session, not independent "
+            "observations; the intervals across them have no width and the shares count one outcome "
+            f"{n} times"]
+
+
+def _grid_reach_lines(res: LearnResult) -> list[str]:
+    """A warning for every learner whose grid does not reach its static-Nash or joint-profit action (a saved grid
+    kept after an entry or a shock, or a grid given by hand): the learner cannot play that benchmark, so its
+    nearness to it and the profit gain are bounded by the grid's end."""
+    act = _act(res)
+    bm = res.summary["benchmarks"]
+    found: dict = {}
+    for i, c in enumerate(res.learners):
+        grid = c.get("grid") if "strategy" not in c else None
+        if not grid:
+            continue
+        lo, hi = float(grid[0]), float(grid[-1])
+        for name, x in (("static-Nash", bm["nash_actions"][i]), ("joint-profit", bm["collusive_actions"][i])):
+            x = _num(x)
+            if np.isfinite(x) and not lo - 1e-9 * max(1.0, abs(x)) <= x <= hi + 1e-9 * max(1.0, abs(x)):
+                side = "below the lowest" if x < lo else "above the highest"
+                found.setdefault((name, fmt_num(x), side, fmt_num(lo), fmt_num(hi)), []).append(i + 1)
+    out = []
+    for (name, x, side, lo, hi), firms in found.items():
+        who = (f"firm {firms[0]}'s" if len(firms) == 1 else
+               "firms " + ", ".join(map(str, firms[:-1])) + f" and {firms[-1]}'s")
+        out.append(f"Warning: the {name} {act} in this market ({x}) lies {side} {act} on {who} grid ({lo} to {hi}): "
+                   f"{'it cannot' if len(firms) == 1 else 'they cannot'} play it, so nearness to the {name} outcome "
+                   "and the profit gain are bounded by the grid's end")
+    return out
 
 
 def _continued_line(cont: dict) -> str:
@@ -204,6 +248,22 @@ def _limit_lines(res: LearnResult) -> list[str]:
     return lines + [""]
 
 
+def _no_deviation_line(res: LearnResult, dev: int, act: str) -> list[str]:
+    """A note on the sessions whose forced deviation is the action the deviator already plays in the limit (a
+    cycle of one profile): nothing is deviated there, so the response and the value gain are zero by construction."""
+    ps = res.per_session
+    if not res.limit_exact or not ps.get("cycle_length"):
+        return []
+    sel = [j for j, ok in enumerate(ps["converged"]) if ok] or list(range(len(ps["converged"])))
+    same = [j for j in sel if ps["cycle_length"][j] == 1 and ps["deviation_action"][j] is not None
+            and ps["cycle_actions"] and abs(ps["cycle_actions"][j][0][dev - 1] - ps["deviation_action"][j]) <= 1e-12]
+    if not same:
+        return []
+    return [f"  in {len(same)} of {len(sel)} sessions the forced {act} is the one firm {dev} already plays in the "
+            "limit (its static best response on the grid): nothing is deviated there, so their response and value "
+            "of deviating are zero by construction and they count as returning"]
+
+
 def _deviation_lines(res: LearnResult) -> list[str]:
     """What the deviation earns under the learned strategies, and whether play returns to the cycle."""
     sm = res.summary
@@ -241,17 +301,26 @@ def _impulse_lines(res: LearnResult) -> list[str]:
         rows.append([label, *pr, *pi])
     firms = _firms(res)
     lines.append(table(["period", *[f"{act} {f}" for f in firms], *[f"profit {f}" for f in firms]], rows))
+    lines += _no_deviation_line(res, dev, act)
     rc = sm["rival_price_cut"]
+    cuts = sm.get("rival_price_cuts") or []
+    learners = [c for c in cuts if c["learner"]]
     if rc:
-        lines.append(_rival_change_line(rc, act, res.n_firms))
+        who = ("rival's" if len(cuts) == 1 else "learning rival's" if len(learners) == 1 else
+               "learning rivals' mean" if learners and len(learners) < len(cuts) else "rivals' mean")
+        lines.append(_rival_change_line(rc, act, who))
+    if len(cuts) > 1:
+        for c in cuts:
+            kind = "a learner" if c["learner"] else f"{res.seats[c['firm'] - 1].replace('_', ' ')}, an automaton"
+            lines.append(_rival_change_line(c, act, f"  firm {c['firm']} ({kind}):"))
     return lines + _deviation_lines(res)
 
 
-def _rival_change_line(rc: dict, act: str, n_firms: int) -> str:
-    """The rivals' change of action in the period after the deviation, with its interval and what it shows."""
-    change = -_num(rc["mean"])
-    lo, hi = -_num(rc["high"]), -_num(rc["low"])
-    who = "rivals' mean" if n_firms > 2 else "rival's"
+def _rival_change_line(rc: dict, act: str, who: str) -> str:
+    """A rival's (or the rivals' mean) change of action in the period after the deviation, with its interval and
+    what it shows."""
+    change = 0.0 - _num(rc["mean"]) + 0.0  # no "-0" for a change of zero
+    lo, hi = 0.0 - _num(rc["high"]) + 0.0, 0.0 - _num(rc["low"]) + 0.0
     if rc.get("n", 0) < 2 or not (np.isfinite(lo) and np.isfinite(hi)):
         ci, verdict = "-", "one session: no interval"
     else:

@@ -34,9 +34,9 @@ def _outcome(summary: dict, act: str) -> str:
     pg = summary["profit_gain"]["mean"]
     gain = f"profit gain {fmt_num(pg)}" if pg is not None and not math.isnan(pg) else "profit gain -"
     if (summary["near_nash"]["share"] or 0) >= 0.5:
-        return f"to {act} at the static Nash level ({gain})"
+        return f"to {act} at or near the static Nash level ({gain})"
     if (summary["near_collusive"]["share"] or 0) >= 0.5:
-        return f"to keep to the joint-profit {act} ({gain})"
+        return f"to keep to or near the joint-profit {act} ({gain})"
     return f"to {act} between the static Nash and the joint-profit levels ({gain})"
 
 
@@ -79,10 +79,11 @@ def explain(a: dict, summary: dict, act: str = "price") -> str:
     text += f"and it punished for {_pct(a['punishment_share']['mean'])} of the session."
     stuck = a["punishing_at_end"]["share"]
     if stuck >= 0.5:
-        return (text + f" In {_pct(stuck)} of sessions it was still punishing when learning ended, so the learners "
-                       f"learned their best reply to its punishment: {end}.")
+        return (text + f" In {_pct(stuck)} of sessions it was still punishing when learning ended: the learners "
+                       f"last learned against its punishment, consistent with where they ended, {end}.")
     return (text + f" Its punishments ended (in {_pct(1 - stuck)} of sessions it was back in its collusive state "
-                   f"when learning ended), so the learners could learn what the agreement earns: {end}.")
+                   f"when learning ended): the learners could learn what keeping to the agreement earns, consistent "
+                   f"with where they ended, {end}.")
 
 
 def _explored(share, words: str) -> str:
@@ -108,7 +109,9 @@ def automaton_lines(res) -> list[str]:
         return []
     act = "quantity" if res.quantity_setting else "price"
     lvl = f"{100 * res.confidence:g} %"
-    lines = ["", f"Automata during learning ({res.summary['over']}; {lvl} confidence intervals across sessions)"]
+    since = "; counted from the event" if res.event else ""
+    lines = ["", f"Automata during learning ({res.summary['over']}{since}; {lvl} confidence intervals across "
+                 "sessions)"]
     for a in res.automata:
         ps, tr = a["punishment_share"], a["triggers"]
         lines.append(f"  firm {a['firm']} ({a['strategy'].replace('_', ' ')}): triggered in "

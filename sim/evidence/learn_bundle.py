@@ -4,7 +4,8 @@ cells store.
 Without a sweep: the setup, the figures of ``supergame learn --plot`` (byte for byte: the same renderer draws them
 from the same stored result) and the terminal report. With a sweep: the setup, the swept values, a table of every
 cell's limit outcomes, one figure that sets the cells side by side -- every session's profit gain and firm 1's
-mean limit price per cell, with the mean and its interval -- and every cell's own figures, named after the cell.
+mean limit price per cell, with the mean and its interval -- every cell's own figures, named after the cell, and
+every cell's terminal report.
 """
 
 from __future__ import annotations
@@ -12,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
+from sim.evidence.front import where
 from sim.evidence.learn import console, figures
 from sim.evidence.render import pyplot
 from sim.runner.analyses.learn import KIND as LEARN
@@ -80,7 +82,8 @@ def _none_converged(ok, results) -> str:
 
 
 def _cell_label(r, exp) -> str:
-    return ", ".join(f"{p.path} = {r.labels[p.path]}" for p in exp.parameters)
+    """A cell's swept values in words (the parameters' labels from the catalogue)."""
+    return where(r, exp.parameters)
 
 
 def _sweep_account(run, b, exp, ok) -> None:
@@ -113,6 +116,14 @@ def _sweep_account(run, b, exp, ok) -> None:
     for r, label in zip(ok, labels):
         for d in figures(results[r.cell]):
             b.figure(f"cell{r.number}-{d.name}", d.figure, f"Cell {r.number} ({label}). {d.caption}")
+    b.heading("Each cell's report")
+    b.paragraph("The full report of every finished cell, as `supergame learn` prints it for that cell's settings: "
+                "the seats, every number with its interval, the responses to a deviation firm by firm, and the "
+                "cell's own records (an event, an automaton's punishments and why the sessions ended where they "
+                "did, demand shocks, play with error).", note=True)
+    for r, label in zip(ok, labels):
+        b.heading(f"Cell {r.number}: {label}", level=3)
+        b.code(console(results[r.cell]))
 
 
 def _price_war_table(b, exp, ok, results, lvl) -> None:

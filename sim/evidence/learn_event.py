@@ -73,11 +73,17 @@ def event_lines(res) -> list[str]:
         lines.append(f"  periods from the event to the last change of a greedy strategy: mean {sp['mean']:,.0f} "
                      f"[{_num(sp['low']):,.0f}, {_num(sp['high']):,.0f}], median {sp['q50']:,.0f}, 5-95 % "
                      f"{sp['q05']:,.0f} to {sp['q95']:,.0f}")
+    at = ev.get("before_method") == "limit at the event"
+    if at:
+        lines.append(f"  limit {act}s at the event (greedy play from each session's state at the event, what the "
+                     "learners knew then, no learning after it): "
+                     + "; ".join(f"{firms[i]} {fmt_num(d['mean'])} {_ci(d)}" for i, d in enumerate(ev["before"])))
     changes = [f"{firms[i]} {fmt_num(d['mean'])} {_ci(d)}" for i, d in enumerate(ev["change"]) if d["n"]]
+    since = "limit at the event" if at else "last period before the event"
     if changes:
-        lines.append(f"  change of the limit {act} from the last period before the event (settled sessions): "
+        lines.append(f"  change of the limit {act} from the {since} (settled sessions, session by session): "
                      + "; ".join(changes))
-    return lines + _merger_lines(ev.get("merger"), firms, act, ev["change"])
+    return lines + _merger_lines(ev.get("merger"), firms, act, ev["change"], since)
 
 
 def _verdict(learned: float, static: float, est: dict | None) -> str:
@@ -95,7 +101,8 @@ def _verdict(learned: float, static: float, est: dict | None) -> str:
     return "no clear difference (interval contains it)"
 
 
-def _merger_lines(mg: dict | None, firms: list[str], act: str, change=()) -> list[str]:
+def _merger_lines(mg: dict | None, firms: list[str], act: str, change=(), since: str = "limit at the event"
+                  ) -> list[str]:
     """After a merger: the static merger effect beside the learned change of every firm's price (with the learned
     change's interval, ``change``, deciding more or less)."""
     if not mg:
@@ -111,7 +118,7 @@ def _merger_lines(mg: dict | None, firms: list[str], act: str, change=()) -> lis
                      fmt_num(static), fmt_num(learned), verdict])
     return ["  the merger's static effect: static-Nash prices with the merged firm setting its products' prices "
             f"jointly (Deneckere and Davidson, 1985), against the learned change (the limit {act} after settling "
-            "minus the one played in the last period before the merger, as above)",
+            f"minus the {since}, as above)",
             table(["firm", f"Nash {act} before", f"Nash {act} after", "static change", "learned change",
                    "learned vs static"], rows)]
 

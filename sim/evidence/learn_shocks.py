@@ -148,4 +148,6 @@ def shock_response_figure(resp: ShockResponse, confidence: float = 0.95) -> Draw
                  f"Mean over {resp.price_war.n} sessions of the mean price over firms with one adverse demand draw "
                  f"(shock {fmt_num(resp.theta)} in period 1) minus the mean price with the same random numbers and "
                  f"no forced draw, the sessions learning on; band: {100 * confidence:g} % confidence intervals across "
-                 f"sessions. Price war in {fmt_num(100 * resp.price_war.value, 1)} % of sessions.")
+                 f"sessions. In {fmt_num(100 * resp.price_war.value, 1)} % of sessions the price with the draw falls "
+                 "below the price without it in at least one period after the draw (a price war, as defined in the "
+                 "glossary).")

@@ -258,8 +258,8 @@ def _old_state(s_new: np.ndarray, k: int, m_new: int, m_old: int) -> np.ndarray:
 
 
 def adapt_saved(saved: SavedLearners, lineup, event: Event) -> SavedLearners:
-    """The saved sessions as the run after the event starts them: the convergence counter reset and, after an entry,
-    the learners' states extended by the entrant's price.
+    """The saved sessions as the run after the event starts them: the convergence counter and the record of the
+    automata's punishments reset and, after an entry, the learners' states extended by the entrant's price.
 
     Parameters
     ----------
@@ -275,10 +275,13 @@ def adapt_saved(saved: SavedLearners, lineup, event: Event) -> SavedLearners:
     """
     clock = saved.clock.copy()
     clock[:, 1] = 0
+    # the automata's punishments are recorded afresh from the event (the report's counts and shares are those of
+    # the learning after it)
+    triggers = np.repeat(new_triggers(lineup.n_seats)[None], saved.n_sessions, axis=0)
     if event.kind != "entry":
         # a changed market or a merger: the same seats and states, only the learners' rewards change
         return SavedLearners(saved.Q.copy(), saved.greedy.copy(), saved.history.copy(), saved.z.copy(),
-                             saved.rng.copy(), clock, saved.status.copy(), saved.triggers.copy(), dict(saved.header),
+                             saved.rng.copy(), clock, saved.status.copy(), triggers, dict(saved.header),
                              saved.counts.copy(), saved.sums.copy())
     n = saved.n_sessions
     m_new = int(lineup.stage.M)
@@ -304,7 +307,6 @@ def adapt_saved(saved: SavedLearners, lineup, event: Event) -> SavedLearners:
         prof = (saved.history // m_old**lag) % m_old
         history += (prof + a_e * m_old) * m_new**lag
     z = np.concatenate([saved.z, np.full((n, 1), int(lineup.z0[-1]), dtype=np.int64)], axis=1)
-    triggers = np.concatenate([saved.triggers, np.repeat(new_triggers(1)[None], n, axis=0)], axis=1)
     # a bandit's statistics do not depend on the state; an entrant learner starts with none
     counts = np.zeros((n, lineup.q0.shape[0], lineup.q0.shape[2]), dtype=np.int64)
     sums = np.zeros(counts.shape)
@@ -378,7 +380,8 @@ def _mean(x, level: float) -> dict:
 
 
 def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged: np.ndarray,
-                  limit_prices: np.ndarray, what: str, level: float = 0.95, merger: dict | None = None) -> dict:
+                  limit_prices: np.ndarray, what: str, level: float = 0.95, merger: dict | None = None,
+                  at_event: np.ndarray | None = None) -> dict:
     """How prices moved after the event and how long the learners took to settle again, across sessions.
 
     Parameters
@@ -395,19 +398,24 @@ def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged:
     what : str
         The event in words.
     level : float
-        Confidence level (normal approximation for means, Wilson for shares, as in :mod:`sim.simulation.results`).
+        Confidence level (Student's t for means, Wilson for shares, as in :mod:`sim.core.stats`).
     merger : dict, optional
         After a merger: its static benchmarks (:func:`sim.learning.merger.merger_benchmarks`), kept as ``merger``
         with ``learned_change`` added (per firm: the mean over settled sessions of the limit price minus the price
         before the event, as in ``change``).
+    at_event : ndarray of shape (n_sessions, n_firms), optional
+        The mean prices of greedy play from each session's state at the event (what the learners knew then, in the
+        line-up after it). Given, the prices before the event are these limits; without them (a limit that is an
+        estimate), the prices of the last period before the event.
 
     Returns
     -------
     dict
         ``kind``, ``what``, ``periods`` (recorded after the event), ``bin_periods`` (the last period of each bin,
         from 1; 0 for the row before the event), ``prices`` (``mean``, ``low``, ``high``: lists of bins + 1 rows
-        of n_firms, across all sessions), ``before`` and ``change`` (per firm: the price in the last period before
-        the event, and each session's limit price after settling minus it, over the settled sessions),
+        of n_firms, across all sessions), ``before`` and ``change`` (per firm: the limit price at the event, or
+        the price in the last period before it, and each session's limit price after settling minus it, over the
+        settled sessions), ``before_method`` (``"limit at the event"`` or ``"last period"``),
         ``settled`` (share of sessions that settled again) and ``settle_periods`` (periods from the event to the
         last change of a greedy strategy over the settled sessions: mean with its interval, median, 5 % and 95 %);
         after a merger also ``merger``.
@@ -421,6 +429,7 @@ def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged:
             e = _mean(path[:, r, i], level)
             mean[r, i], low[r, i], high[r, i] = e["mean"], e["low"], e["high"]
     ok = np.asarray(converged, dtype=bool)
+    ref = path[:, 0, :] if at_event is None else np.asarray(at_event, dtype=float)
     st = np.asarray(settle, dtype=float)[ok]
     k = int(ok.sum())
     sh = wilson_estimate(k, n, level)
@@ -429,8 +438,9 @@ def event_summary(event: Event, path: np.ndarray, settle: np.ndarray, converged:
         "kind": event.kind, "what": what, "periods": event.periods,
         "bin_periods": [0] + [per * (b + 1) for b in range(event.bins)],
         "prices": {"mean": mean.tolist(), "low": low.tolist(), "high": high.tolist()},
-        "before": [_mean(path[:, 0, i], level) for i in range(f)],
-        "change": [_mean(limit_prices[ok, i] - path[ok, 0, i], level) for i in range(f)],
+        "before": [_mean(ref[:, i], level) for i in range(f)],
+        "before_method": "last period" if at_event is None else "limit at the event",
+        "change": [_mean(limit_prices[ok, i] - ref[ok, i], level) for i in range(f)],
         "settled": {"share": sh.value, "low": sh.low, "high": sh.high, "count": k, "n": int(n)},
         "settle_periods": {**_mean(st, level), "q05": float(q[0]), "q50": float(q[1]), "q95": float(q[2])},
     }

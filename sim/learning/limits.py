@@ -132,6 +132,31 @@ def cycle_of(x0, play):
 
 
 @njit(cache=True, nogil=True)
+def limit_prices_of(x0, play, out):
+    """The mean prices of the cycle greedy play from system state ``x0`` enters (into ``out``, one per seat): the
+    limit a line-up would play if it stopped learning in state ``x0``.
+
+    Parameters
+    ----------
+    x0 : int
+        The system state greedy play starts from.
+    play : Play
+        A deterministic line-up (no automaton that acts at random).
+    out : ndarray of float64, shape (n_seats,)
+        Overwritten with the means.
+    """
+    _, lam, x = cycle_of(x0, play)
+    out[:] = 0.0
+    for _ in range(lam):
+        prof = _profile(x, play)
+        for i in range(out.size):
+            out[i] += play.stage.prices[prof, i]
+        x = _after(x, prof, play)
+    for i in range(out.size):
+        out[i] /= lam
+
+
+@njit(cache=True, nogil=True)
 def value_of(x0, seat, d, play):
     """Discounted profit of ``seat`` from system state ``x0`` on when everyone plays greedily forever: the
     transient sum plus the cycle's sum times ``1 / (1 - d**lam)`` -- exact, no truncation.

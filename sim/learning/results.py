@@ -2,7 +2,7 @@
 
 :class:`LearningResult` holds the per-session arrays that :func:`sim.learning.session.learn` fills, with the line-up
 that produced them; :meth:`LearningResult.summary` gives the statistics a reader sees (intervals at the run's
-confidence level: normal approximation for means, Wilson for shares, as in :mod:`sim.simulation.results`).
+confidence level: Student's t for means, Wilson for shares, as in :mod:`sim.core.stats`).
 """
 
 from __future__ import annotations
@@ -13,10 +13,10 @@ from typing import Any
 
 import numpy as np
 
+from sim.core.stats import mean_estimate, student_quantile, wilson_estimate
 from sim.learning.events import event_summary
 from sim.learning.lineup import Lineup
 from sim.learning.triggers import trigger_summary
-from sim.simulation.results import mean_estimate, normal_quantile, wilson_estimate
 
 __all__ = [
     "CYCLE_STORE",
@@ -52,11 +52,11 @@ HISTOGRAM_EDGES = np.round(np.arange(-0.5, 1.5001, 0.05), 10)
 # Statistics across sessions
 # ------------------------------------------------------------------------------------------------
 
-# level for means, the Wilson score interval for shares.
+# Intervals at the run's confidence level: Student's t for means, the Wilson score interval for shares.
 
 
 def _mean_ci(x, level: float = 0.95, bounds: tuple | None = None) -> dict:
-    """Mean with its normal-approximation confidence interval (nan when fewer than two values); with ``bounds``
+    """Mean with Student's confidence interval (nan when fewer than two values); with ``bounds``
     (the values' domain, e.g. ``(0, 1)`` for means of shares) the interval is kept within it."""
 
     x = np.asarray(x, dtype=float)
@@ -237,8 +237,11 @@ class LearningResult:
     event : dict or None
         For saved sessions continued after an event (:mod:`sim.learning.events`): ``event`` (the
         :class:`~sim.learning.events.Event`), ``what`` (in words), ``path`` (ndarray of shape (n, bins + 1, f), the
-        recorded prices) and ``settle`` (ndarray of shape (n,), periods from the event to the last change of a
-        greedy strategy; nan when the session did not settle).
+        recorded prices), ``settle`` (ndarray of shape (n,), periods from the event to the last change of a
+        greedy strategy; nan when the session did not settle), ``start`` (ndarray of int64, shape (n,), the
+        periods each session had played before the event) and ``at_event`` (ndarray of shape (n, f), the mean prices
+        of greedy play from each session's state at the event, in the line-up after it; None where the limit is an
+        estimate).
     """
 
     lineup: Lineup
@@ -289,8 +292,7 @@ class LearningResult:
 
     def summary(self) -> dict:
         """Statistics across sessions, with confidence intervals at the run's ``confidence`` level
-        (95 % by default; normal approximation for means, Wilson for shares, as in
-        :mod:`sim.simulation.results`).
+        (95 % by default; Student's t for means, Wilson for shares, as in :mod:`sim.core.stats`).
 
         Returns
         -------
@@ -298,7 +300,10 @@ class LearningResult:
             Limit outcomes and impulse responses are over converged sessions; when none converged, over all
             sessions (``over`` says which). Means come as ``{mean, se, low, high, n}``, shares as ``{share, low,
             high, count, n}``; per-firm entries are lists of length n_firms; ``impulse_response.prices`` holds
-            ``mean``, ``low`` and ``high``, each a list of T + 2 rows of n_firms values. Alternating sessions
+            ``mean``, ``low`` and ``high``, each a list of T + 2 rows of n_firms values. ``rival_price_cut`` is the
+            learning rivals' mean price cut in the period after the deviation (every rival's when none learns: an
+            automaton's response is its rule, not learned), ``rival_price_cuts`` each rival's, with ``firm`` (from
+            1) and ``learner``. Alternating sessions
             (``settings["timing"] == "alternating"``) add ``alternating``: the shares of sessions at a fixed price
             pair (``fixed_price``, ``fixed_above_nash``, ``fixed_collusive``) and in a cycle (``cycle``), the
             ``cycle_length`` over cycling sessions and its distribution ``cycle_lengths``, and the profit gain of
@@ -323,6 +328,8 @@ class LearningResult:
             "no_deviation_profits": self.cf_profits[sel].mean(axis=0).tolist() if sel.any() else [],
         }
         rivals = [j for j in range(f) if j != self.settings["deviator"]]
+        # the learned response: the learning rivals' (an automaton's response is its rule); all rivals when none learns
+        learning = [j for j in rivals if lu.learners[j] is not None] or rivals
         pre = self.ir_prices[sel][:, 0, :]
         after = self.ir_prices[sel][:, 2, :] if self.ir_prices.shape[1] > 2 else pre
         out = {
@@ -342,7 +349,9 @@ class LearningResult:
                               else None),
             "profit_gain_histogram": {"edges": edges.tolist(), "counts": h.tolist()},
             "impulse_response": ir,
-            "rival_price_cut": _mean_ci((pre[:, rivals] - after[:, rivals]).mean(axis=1), lvl) if rivals else {},
+            "rival_price_cut": _mean_ci((pre[:, learning] - after[:, learning]).mean(axis=1), lvl) if rivals else {},
+            "rival_price_cuts": [{"firm": j + 1, "learner": lu.learners[j] is not None,
+                                  **_mean_ci(pre[:, j] - after[:, j], lvl)} for j in rivals],
             "deviation_gain": _mean_ci(self.deviation_gain[sel], lvl),
             "deviation_pays": _mean_ci(self.deviation_pays[sel], lvl, (0.0, 1.0)),
             "returned": _mean_ci(self.returned[sel], lvl, (0.0, 1.0)),
@@ -355,7 +364,9 @@ class LearningResult:
         }
         if lu.has_automata and self.triggers is not None:
             # why a learner facing an automaton ends where it does: the automaton's punishments during learning
-            out["automata"] = trigger_summary(lu, self.triggers, self.punishing_at_end, self.periods, sel, lvl)
+            # after an event the punishments are recorded from the event: so are the periods they are a share of
+            since = self.periods - self.event["start"] if self.event else self.periods
+            out["automata"] = trigger_summary(lu, self.triggers, self.punishing_at_end, since, sel, lvl)
         if self.settings.get("timing") == "alternating":
             out["alternating"] = _alternating_summary(self, sel, lvl)
             out["limit"] = {"method": "exact",
@@ -364,7 +375,7 @@ class LearningResult:
         if self.event is not None:
             ev = self.event
             out["event"] = event_summary(ev["event"], ev["path"], ev["settle"], self.converged, self.limit_prices,
-                                         ev["what"], lvl, ev.get("merger"))
+                                         ev["what"], lvl, ev.get("merger"), ev.get("at_event"))
         self._summary.update(out)
         return self._summary
 
@@ -468,7 +479,8 @@ def _alternating_summary(res: LearningResult, sel: np.ndarray, level: float) -> 
 
 
 def _stack_ci(x: np.ndarray, level: float = 0.95) -> dict:
-    """Mean and normal-approximation interval at ``level`` per row and firm of an array of shape (n, T, f)."""
+    """Mean and Student's interval at ``level`` (``n - 1`` degrees of freedom) per row and firm of an array of shape
+    (n, T, f)."""
 
     if x.shape[0] == 0:
         return {"mean": [], "low": [], "high": []}
@@ -477,5 +489,5 @@ def _stack_ci(x: np.ndarray, level: float = 0.95) -> dict:
         nan = np.full_like(mean, np.nan)
         return {"mean": mean.tolist(), "low": nan.tolist(), "high": nan.tolist()}
     se = x.std(axis=0, ddof=1) / math.sqrt(x.shape[0])
-    h = normal_quantile(level) * se
+    h = student_quantile(level, x.shape[0]) * se
     return {"mean": mean.tolist(), "low": (mean - h).tolist(), "high": (mean + h).tolist()}

@@ -155,7 +155,7 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
     cell : int
         Family of random streams (sweeps give each cell its own).
     confidence : float in (0, 1)
-        Level of the confidence intervals of the summary (normal approximation for means, Wilson for
+        Level of the confidence intervals of the summary (Student's t for means, Wilson for
         shares; see :mod:`sim.simulation.results`).
     limit_periods : int
         Only for line-ups with automata that act at random: periods of greedy play averaged by the
@@ -300,6 +300,8 @@ class _Buffers:
         self.event = event
         self.path = np.full((n, event.bins + 1, f), np.nan)
         self.settle = np.full(n, np.nan)
+        self.start = np.zeros(n, dtype=np.int64)
+        self.at_event = np.full((n, f), np.nan)
 
     def keep(self, lineup: Lineup) -> None:
         """Make room for every session's state at the end of learning."""
@@ -367,6 +369,11 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
                                  settings["convergence"], settings["max_periods"], *_shock(settings))
     else:
         t0 = int(session.clock[0])
+        buf.start[j] = t0
+        if lineup.limit_exact:
+            # the limit of what the learners knew at the event, in the line-up after it: the prices the event is
+            # measured from
+            L.limit_prices_of(lineup.system_state(s, session.z), lineup.play(session.greedy, t0), buf.at_event[j])
         st, t, s = run_tracked(lineup, session, s, settings["convergence"], settings["max_periods"] + t0,
                                buf.path[j], buf.event)
         if st == STATUS_CONVERGED:
@@ -477,7 +484,8 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
         if "observe" in settings:
             header["observe"] = settings["observe"]  # written only where it is not the prices protocol
         saved = SavedLearners(**buf.saved, status=buf.status.copy(), header=header)
-    ev = None if event is None else {"event": event[0], "what": event[1], "path": buf.path, "settle": buf.settle}
+    ev = None if event is None else {"event": event[0], "what": event[1], "path": buf.path, "settle": buf.settle,
+                                  "start": buf.start, "at_event": buf.at_event if lineup.limit_exact else None}
     if ev is not None and event[0].kind == "merger":
         ev["merger"] = merger_benchmarks(lineup, event[0].firms)
     return _assemble(lineup, settings, buf, time.perf_counter() - t0, saved, ev)

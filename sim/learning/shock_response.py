@@ -49,7 +49,7 @@ class ShockResponse:
         Mean price over firms: row 0 the last period of learning, row ``tau`` the prices set in period ``tau`` after
         it (the draw hits period 1's profits, so prices can first react in period 2).
     change : list of Estimate
-        Mean over sessions of ``with_draw - without_draw``, one per row, with its normal-approximation interval.
+        Mean over sessions of ``with_draw - without_draw``, one per row, with Student's interval.
     price_war : Estimate
         Share of sessions with a price war (Wilson interval).
     """

@@ -23,7 +23,7 @@ __all__ = ["trigger_summary"]
 
 
 def _mean(x, level: float, share: bool = False) -> dict:
-    """Mean with its normal-approximation interval; a share's interval is cut to [0, 1], where the share lies."""
+    """Mean with Student's interval; a share's interval is cut to [0, 1], where the share lies."""
     x = np.asarray(x, dtype=float)
     x = x[np.isfinite(x)]
     if x.size == 0:
@@ -57,11 +57,11 @@ def trigger_summary(lineup, triggers: np.ndarray, punishing_at_end: np.ndarray, 
     punishing_at_end : ndarray of bool, shape (n_sessions, n_seats)
         Whether each automaton was in a non-collusive state at the end of learning.
     periods : ndarray of int64, shape (n_sessions,)
-        Periods each session played.
+        Periods each session played while the record was kept (after an event: the periods since the event).
     sel : ndarray of bool, shape (n_sessions,)
         The sessions the statistics are over.
     level : float
-        Confidence level (normal approximation for means, Wilson for shares, as in :mod:`sim.simulation.results`).
+        Confidence level (Student's t for means, Wilson for shares, as in :mod:`sim.core.stats`).
 
     Returns
     -------

@@ -131,7 +131,7 @@ def simulate(market, lineup, monitoring=None, periods: int = 1000, replications:
     threads : int, optional
         Number of threads (default: numba's setting). Results do not depend on it.
     confidence : float in (0, 1)
-        Level of the confidence intervals (normal approximation; see :mod:`sim.simulation.results`).
+        Level of the confidence intervals (see :mod:`sim.core.stats`).
     baseline : bool
         Whether to compute the analytic baseline (thresholds, trigger-price model, time to breakdown).
     progress : bool, optional

@@ -14,17 +14,17 @@ def _cut(mean, low, high, n=10):
 
 
 def test_a_cut_a_rise_and_no_clear_change():
-    assert _rival_change_line(_cut(0.2, 0.1, 0.3), "price", 2) == (
+    assert _rival_change_line(_cut(0.2, 0.1, 0.3), "price", "rival's") == (
         "  rival's price in the period after the deviation minus before it: -0.2000 [-0.3000, -0.1000] (a cut: "
         "the whole interval lies below 0)")
-    assert "(a rise: the whole interval lies above 0)" in _rival_change_line(_cut(-0.2, -0.3, -0.1), "price", 2)
-    line = _rival_change_line(_cut(-0.0226, -0.08, 0.04), "quantity", 3)
+    assert "(a rise: the whole interval lies above 0)" in _rival_change_line(_cut(-0.2, -0.3, -0.1), "price", "rival's")
+    line = _rival_change_line(_cut(-0.0226, -0.08, 0.04), "quantity", "rivals' mean")
     assert line.startswith("  rivals' mean quantity") and "0.0226 [-0.0400, 0.0800]" in line
     assert "(no clear change: the interval contains 0)" in line
 
 
 def test_one_session_has_no_interval():
-    line = _rival_change_line(_cut(0.1, math.nan, math.nan, n=1), "price", 2)
+    line = _rival_change_line(_cut(0.1, math.nan, math.nan, n=1), "price", "rival's")
     assert line.endswith("-0.1000 - (one session: no interval)")
 
 

@@ -158,7 +158,7 @@ def test_the_first_page_answers_before_the_detail_and_the_bundle_closes_with_met
         rows, exp = rf.rows(), rf.experiment
     # a key number: the lowest share of collusive periods of the sweep, with the interval of its cell
     low = min(rows, key=lambda r: r.metrics["collusive_share"])
-    assert (f"from {low.metrics['collusive_share']:.4g} (95 % interval {low.metrics['collusive_share.low']:.4g} to "
+    assert (f"lowest {low.metrics['collusive_share']:.4g} (95 % interval {low.metrics['collusive_share.low']:.4g} to "
             f"{low.metrics['collusive_share.high']:.4g})") in front
     # the glossary has every metric and swept parameter of the run, by its stored name (bounds folded)
     keys = [line.split(",")[0] for line in (target / "tables/glossary.csv").read_text().splitlines()[1:]]

@@ -114,3 +114,25 @@ def test_an_entry_needs_one_more_firm(saved):
     # a learner may enter: the incumbents take the saved grids, the entrant keeps its own (none: the market's)
     lineup = with_saved_grids(QLearner(m=5), saved, 3, ev)
     assert lineup[0].grid is not None and lineup[1].grid is not None and lineup[2].grid is None
+
+
+def test_after_an_entry_the_entrants_record_and_its_share_count_from_the_entry(saved):
+    """An entrant that always competes has no collusive state (Friedman, 1971: the static Nash reversion played for
+    ever): it punishes, in the record's sense, in every period after the entry and is never triggered. Counted from
+    the entry, its share of the session punishing is exactly 1 (it was 1 minus the share of the periods learned
+    before the entry when the periods were counted from the saved session's start)."""
+    ev = Event("entry", 100, 10)
+    lineup = with_saved_grids([QLearner(m=5, beta=5e-4), QLearner(m=5, beta=5e-4), strategies.AlwaysCompete()],
+                              saved, 3, ev)
+    res = learn(logit_market(3), lineup, sessions=4, seed=11, convergence=500, max_periods=3000, workers=1,
+                start=saved, event=ev)
+    a = res.summary()["automata"][0]
+    assert a["firm"] == 3 and a["triggered"]["count"] == 0
+    assert a["punishment_share"]["mean"] == 1.0
+    assert np.array_equal(res.event["start"], saved.clock[:, 0])
+    # the rivals' learned response is the learners': firm 1 deviates, firm 2 learns, firm 3 is an automaton
+    cuts = res.summary()["rival_price_cuts"]
+    assert [(c["firm"], c["learner"]) for c in cuts] == [(2, True), (3, False)]
+    sel = res.converged if res.converged.any() else np.ones(4, bool)
+    learned = res.ir_prices[sel][:, 0, 1] - res.ir_prices[sel][:, 2, 1]
+    assert res.summary()["rival_price_cut"]["mean"] == pytest.approx(learned.mean(), rel=1e-12, abs=1e-15)

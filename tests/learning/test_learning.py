@@ -234,10 +234,11 @@ def test_wilson_interval_of_zero_successes():
     assert ci["low"] == pytest.approx(40 / (40 + 1.959963984540054**2), rel=1e-12)
 
 
-def test_intervals_are_normal_approximations_at_the_chosen_level():
-    """The package's one convention (sim.simulation.results): means +- z se with z the standard normal quantile of
-    the level (scipy.stats.norm.ppf), shares by Wilson's score interval at the same level
-    (scipy.stats.binomtest(...).proportion_ci(method="wilson")); 95 % by default."""
+def test_intervals_at_the_chosen_level():
+    """The package's one convention (sim.core.stats): means +- t se with t the quantile of Student's t with n - 1
+    degrees of freedom at the level (Student, 1908, Biometrika 6; scipy.stats.t.ppf as the reference), shares by
+    Wilson's score interval at the same level (scipy.stats.binomtest(...).proportion_ci(method="wilson")); 95 % by
+    default."""
     from scipy import stats
 
     m = logit_market()
@@ -248,12 +249,12 @@ def test_intervals_are_normal_approximations_at_the_chosen_level():
         assert s["confidence"] == level
         pg = s["profit_gain"]
         x = r.profit_gain[r.converged]
-        z = stats.norm.ppf(0.5 + level / 2)
+        t = stats.t.ppf(0.5 + level / 2, x.size - 1)
         se = x.std(ddof=1) / math.sqrt(x.size)
-        assert (pg["low"], pg["high"]) == pytest.approx((x.mean() - z * se, x.mean() + z * se), rel=1e-12)
+        assert (pg["low"], pg["high"]) == pytest.approx((x.mean() - t * se, x.mean() + t * se), rel=1e-12)
         ir = s["impulse_response"]["prices"]
         y = r.ir_prices[r.converged][:, 2, 1]
-        h = z * y.std(ddof=1) / math.sqrt(y.size)
+        h = stats.t.ppf(0.5 + level / 2, y.size - 1) * y.std(ddof=1) / math.sqrt(y.size)
         assert ir["high"][2][1] - ir["low"][2][1] == pytest.approx(2 * h, rel=1e-12, abs=1e-15)
         ci = stats.binomtest(int(r.converged.sum()), 6).proportion_ci(confidence_level=level, method="wilson")
         assert (s["converged"]["low"], s["converged"]["high"]) == pytest.approx((ci.low, ci.high), rel=1e-12)

@@ -135,8 +135,8 @@ def event_names(n_firms: int) -> list[str]:
            "periods_to_settle.high", "periods_to_settle.q50"]
     for i in range(n_firms):
         f = f"firm{i + 1}"
-        out += [f"event_price_before.{f}", f"event_price_change.{f}", f"event_price_change.{f}.low",
-                f"event_price_change.{f}.high"]
+        out += [f"event_price_before.{f}", f"event_price_before.{f}.low", f"event_price_before.{f}.high",
+                f"event_price_change.{f}", f"event_price_change.{f}.low", f"event_price_change.{f}.high"]
     return out
 
 
@@ -249,8 +249,8 @@ def learn_metrics(res: LearnResult) -> dict:
         for i in range(n):
             f = f"firm{i + 1}"
             ch = ev["change"][i]
-            m[f"event_price_before.{f}"] = ev["before"][i]["mean"]
             for k, src in (("", "mean"), (".low", "low"), (".high", "high")):
+                m[f"event_price_before.{f}{k}"] = ev["before"][i][src]
                 m[f"event_price_change.{f}{k}"] = ch[src]
         for i, p in enumerate(ev.get("merger", {}).get("nash_prices", [])):
             m[f"analytic.merger_nash_price.firm{i + 1}"] = p
@@ -322,7 +322,7 @@ KIND = Kind(
     run=_run_learn,
     metric_names=_learn_names,
     result_type=LearnResult,
-    headline=("profit_gain", "converged", "near_collusive", "rival_price_cut"),
+    headline=("profit_gain", "converged", "near_collusive", "rival_price_cut", "deviation_pays"),
     describe=_describe_learn,
     summary="sessions of Q-learning firms: limit outcomes, profit gain and impulse response",
     assumptions=GENERAL_ASSUMPTIONS + COMMON + (

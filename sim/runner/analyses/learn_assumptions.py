@@ -13,7 +13,7 @@ COMMON = (
     "its cap first is reported as not converged, and the statistics are over converged sessions (over every "
     "session when none converged, as the report then says).",
     "Limit outcomes are those of greedy play after learning, from each session's final state; statistics are across "
-    "independent sessions (95 % intervals: normal approximation for means, Wilson for shares) and measure "
+    "independent sessions (95 % intervals: Student's t for means, Wilson for shares) and measure "
     "simulation error only.",
     "Learned outcomes depend on the algorithm's settings (learning rate, exploration, grid, memory); they show what "
     "such algorithms can learn in this model, not what a particular pricing software does.",
@@ -27,10 +27,15 @@ _ALTERNATING = ("With learning.timing = 'alternating', two Q-learners set their 
                 "for two periods (Klein, 2021, RAND Journal of Economics 52(3)); no impulse response is computed for "
                 "them.")
 _UPDATE = {
-    "asynchronous": "Q-learners update the value of the action they played only (the asynchronous rule).",
+    "asynchronous": ("With learning.update = 'asynchronous' (the default), a Q-learner updates the value of the "
+                     "action it played only: the asynchronous rule of Calvano, Calzolari, Denicolo and Pastorello "
+                     "(2020)."),
     "synchronous": ("With learning.update = 'synchronous', a Q-learner updates the value of every action from the "
                     "profit it would have earned against the rivals' actual actions (Asker, Fershtman and Pakes, "
-                    "2022, AEA Papers and Proceedings 112)."),
+                    "2022, AEA Papers and Proceedings 112). Whether asynchronous learners' higher prices are "
+                    "collusion or an artefact of how they explore is debated (Calvano, Calzolari, Denicolo and "
+                    "Pastorello, 2021, CEPR Discussion Paper 16393, 'Algorithmic collusion, genuine and spurious': "
+                    "genuine with random exploration, as here)."),
     "mixed": ("With learning.update = 'mixed', a Q-learner updates the action it played and each other action with "
               "probability learning.counterfactual_share, from the profit it would have earned (after Asker, "
               "Fershtman and Pakes, 2022)."),
@@ -40,11 +45,14 @@ _FAMILY = {
             "rivals), tries every price once and then plays the largest index mean + c sqrt(2 ln t / n) (UCB1: Auer, "
             "Cesa-Bianchi and Fischer, 2002), learning from its profit scaled to [0, 1] by the largest profit on the "
             "grid, plus a normal error of learning.noise where given; the misspecified learners of Hansen, Misra "
-            "and Pai (2021, Marketing Science 40(1))."),
+            "and Pai (2021, Marketing Science 40(1)). Without that error UCB1 draws nothing, so sessions of UCB "
+            "bandits and automata that draw nothing are copies of one another. The limit outcomes are those of each "
+            "bandit's greedy price (its largest mean reward), which UCB1 would keep leaving now and then to explore."),
     "thompson": ("Thompson-sampling bandits: each firm treats its price grid as the arms of a bandit, keeps no state, "
                  "and each period plays the price with the largest draw from a normal posterior of its mean reward "
                  "(Agrawal and Goyal, 2013), learning from its profit scaled to [0, 1] by the largest profit on the "
-                 "grid, plus a normal error of learning.noise where given (after Hansen, Misra and Pai, 2021)."),
+                 "grid, plus a normal error of learning.noise where given (after Hansen, Misra and Pai, 2021). The "
+                 "limit outcomes are those of each bandit's greedy price (its largest posterior mean)."),
     "fixed": ("Fixed policies: a seat plays, in every state, the greedy action of a learner saved by an earlier run "
               "(learning.policy_from), without learning or exploring."),
 }
@@ -53,7 +61,10 @@ _AUTOMATA = ("Automata seats play the fixed rules of the strategy library (the s
              "during learning.")
 _SHOCK = ("With learning.demand_sigma above 0, one mean-one demand shock a period scales every firm's realised profit, "
           "which is what the learners learn from; learners that condition on past prices do not react to a draw in "
-          "the limit, whose profits are expected profits (after Calvano, Calzolari, Denicolo and Pastorello, 2021).")
+          "the limit, whose profits are expected profits. Calvano, Calzolari, Denicolo and Pastorello (2021) adapt "
+          "Green and Porter (1984): what their learners observe, a low price, is moved by the shock as well as by a "
+          "rival's conduct, so their punishments follow bad draws too; learners that see the rivals' prices exactly, "
+          "as here, are not in that setting (learning.observe = 'own_profit' is the closer one).")
 _OBSERVE = {
     "noisy_prices": ("With learning.observe = 'noisy_prices', a learner sees its own last price exactly and each "
                      "rival's with a normal error of learning.price_noise grid steps, rounded to the grid (imperfect "

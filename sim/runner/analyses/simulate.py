@@ -638,7 +638,8 @@ KIND = Kind(
         "implementation errors (an intended action replaced by cheating).",
         "The horizon is finite (or ends at random): discounted profits and spell lengths are truncated by it; "
         "lengths cut off by the horizon are treated as censored (Kaplan-Meier), so their means are lower bounds.",
-        "Confidence intervals are normal approximations across independent replications (95 %); they measure "
+        "Confidence intervals (95 %) are taken across independent replications: Student's t for means, Wilson's "
+        "score interval for shares, the delta method for ratios and Kaplan-Meier for lengths; they measure "
         "simulation error only, not uncertainty about the model or its parameters.",
         PartAssumption("The deviation check tests one unilateral deviation (a one-shot deviation then the strategy, "
                        "unless another is given): a deviation that pays shows the line-up is not an equilibrium; one "
