@@ -264,18 +264,37 @@ def _no_deviation_line(res: LearnResult, dev: int, act: str) -> list[str]:
             "of deviating are zero by construction and they count as returning"]
 
 
+def _deviator_delta(res: LearnResult) -> str:
+    """The discount factor the deviation is valued with, in words: the deviator's own, or the first learner's for an
+    automaton deviator (sim.learning.results.deviator_discount); a bandit does not discount when it learns, so its
+    value uses the run's delta, and the words say so."""
+    seat = int(res.settings["deviator"]) - 1
+    c = res.learners[seat]
+    if "strategy" in c:
+        c = next((x for x in res.learners if "strategy" not in x), None)
+        if c is None:
+            return ""
+    delta = c.get("delta")
+    if delta is None:
+        return ""
+    bandit = "; bandits learn without discounting, so the run's delta values the deviation" if c.get("family") in (
+        "ucb", "thompson") else ""
+    return f", discount factor {fmt_num(float(delta))}{bandit}"
+
+
 def _deviation_lines(res: LearnResult) -> list[str]:
     """What the deviation earns under the learned strategies, and whether play returns to the cycle."""
     sm = res.summary
     lim, g, pays = sm["limit"], sm["deviation_gain"], sm["deviation_pays"]
+    d = _deviator_delta(res)
     if res.limit_exact:
         r, rp = sm["returned"], sm["return_periods"]
-        return [f"  discounted value of deviating minus not deviating (exact, under the learned strategies): "
+        return [f"  discounted value of deviating minus not deviating (exact, under the learned strategies{d}): "
                 f"{fmt_num(g['mean'])} {_ci(g)}; the deviation pays at {_pct(pays['mean'])} of cycle points",
                 f"  play returns to the pre-deviation cycle after {_pct(r['mean'])} of deviations, "
                 f"{fmt_num(rp['mean'], 2)} periods after the deviation on average"]
     return [f"  discounted value of deviating minus not deviating (ESTIMATED over {lim['value_periods']} "
-            f"periods, truncation error below {lim['value_truncation_bound']:.2g}): {fmt_num(g['mean'])} "
+            f"periods, truncation error below {lim['value_truncation_bound']:.2g}{d}): {fmt_num(g['mean'])} "
             f"{_ci(g)}; the realised gain is positive in {_pct(pays['mean'])} of the simulated deviations",
             "  return to the pre-deviation cycle: not defined (play after learning is random)"]
 
@@ -448,12 +467,15 @@ def _heatmap_figure(res: LearnResult):
     im = ax.pcolormesh(xe, ye, H.T, cmap="viridis")
     fig.colorbar(im, ax=ax, label="sessions")
     bm = res.summary["benchmarks"]
-    ax.plot([bm["nash_actions"][0]], [bm["nash_actions"][1]], "w^", label="static Nash")
-    ax.plot([bm["collusive_actions"][0]], [bm["collusive_actions"][1]], "w*", ms=10, label="joint profit")
+    # white markers edged in black: seen on the dark cells and on the white margin beyond the grid alike
+    ax.plot([bm["nash_actions"][0]], [bm["nash_actions"][1]], "^", mfc="white", mec="black", ms=8,
+            label="static Nash", clip_on=False)
+    ax.plot([bm["collusive_actions"][0]], [bm["collusive_actions"][1]], "*", mfc="white", mec="black", ms=12,
+            label="joint profit", clip_on=False)
     ax.set_xlabel(f"firm 1 mean limit {act}")
     ax.set_ylabel(f"firm 2 mean limit {act}")
     ax.set_title(f"Limit {act}s across sessions")
-    ax.legend(fontsize=8, loc="lower right")
+    ax.legend(fontsize=8, loc="lower right", facecolor="0.85", framealpha=1.0)
     fig.tight_layout()
     return Drawn("limit_prices_heatmap", fig,
                  f"Sessions by the mean limit {act}s of firms 1 and 2 ({res.summary['over']}), one cell per pair of "

@@ -162,6 +162,13 @@ def event_figure(res):
         for i in range(res.n_firms):
             ax.axhline(float(mg["nash_actions"][i]), color=color(i), ls="-.", lw=1,
                        label=f"static Nash {act} after\nthe merger (firm's colour)" if i == 0 else None)
+    # the limit once settled again, usually far beyond the window: a diamond per firm at the window's right edge
+    lim = res.summary["limit_prices"]
+    for i in range(res.n_firms):
+        v = _num(lim[i]["mean"]) if i < len(lim) else math.nan
+        if math.isfinite(v):
+            ax.plot([x[-1]], [v], "D", color=color(i), mec="black", ms=6, clip_on=False,
+                    label="limit once settled\n(at the right edge)" if i == 0 else None)
     ax.axvline(0.0, color="black", lw=0.6)
     ax.set_xlabel("periods after the event (0: the last period before it)", fontsize=FONT)
     ax.set_ylabel(act, fontsize=FONT)
@@ -175,4 +182,16 @@ def event_figure(res):
                  f"intervals across sessions; dotted and dashed: the static-Nash and joint-profit {act}s of the "
                  f"market {'before the merger' if mg else 'after the event'} (means over firms)"
                  + (f"; dash-dotted, in each firm's colour: its static-Nash {act} with the merged firm setting its "
-                    f"products' {act}s jointly." if mg.get("available") else "."))
+                    f"products' {act}s jointly" if mg.get("available") else "")
+                 + f". Diamonds: each firm's mean limit {act} once the learners settled again"
+                 + _settle_words(ev) + ".")
+
+
+def _settle_words(ev: dict) -> str:
+    """When the settled limit is reached, against the window the figure shows."""
+    sp = ev.get("settle_periods") or {}
+    m = _num(sp.get("mean"))
+    if not math.isfinite(m):
+        return ""
+    beyond = ", beyond this window" if m > float(ev["periods"]) else ""
+    return f" (a mean of {m:,.0f} periods after the event{beyond})"
