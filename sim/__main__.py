@@ -1,5 +1,3 @@
-import sys
+from sim.cli import entry
 
-from sim.cli import main
-
-sys.exit(main())
+entry()

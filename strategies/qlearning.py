@@ -30,6 +30,7 @@ import numpy as np
 
 from sim.core.docs import doc_sections
 from sim.core.errors import InputError
+from sim.core.files import relative_file_name
 from sim.core.params import Constraint, Integer, Options, Parametrized, Real, optional
 
 __all__ = ["FAMILIES", "INIT_KINDS", "SEAT_NAMES", "UPDATE_RULES", "CompiledLearner", "QLearner", "published_grid"]
@@ -92,7 +93,8 @@ class ActionGrid(Constraint):
 
 
 class FileName(Constraint):
-    """The name of a file: a non-empty string."""
+    """The name of a file (no NUL, no overlong part: :func:`sim.core.files.relative_file_name`); an experiment file
+    further keeps it relative to the current folder, without ``..`` (:mod:`sim.learning.tables`)."""
 
     @doc_sections(Constraint.describe)
     def describe(self) -> str:
@@ -101,9 +103,7 @@ class FileName(Constraint):
     @doc_sections(Constraint.check)
     def check(self, key: str, value: Any) -> str:
         """The name, unchanged."""
-        if not isinstance(value, str) or not value.strip():
-            raise InputError(key, f"must be {self.describe()}, got {_fmt(value)}")
-        return value
+        return relative_file_name(key, value, absolute=True)
 
     @doc_sections(Constraint.example_bad)
     def example_bad(self) -> Any:

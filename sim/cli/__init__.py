@@ -234,3 +234,18 @@ def main(argv: list[str] | None = None) -> int:
 def _terminate(signum, frame):
     raise Terminated()
 
+
+def entry() -> None:
+    """The ``supergame`` program: :func:`main`, then exit with its status.
+
+    After an interrupt or SIGTERM a learning session may still be running in a kernel thread, which nothing can
+    stop from Python; waiting for it at exit would keep the process alive for as long as the session lasts. So the
+    process ends at once (the streams flushed first), leaving nothing behind; what had finished was written before.
+    """
+    status = main()
+    if status in (130, 143) and any(t.is_alive() and t is not threading.main_thread() for t in threading.enumerate()):
+        sys.stdout.flush()
+        sys.stderr.flush()
+        os._exit(status)
+    sys.exit(status)
+

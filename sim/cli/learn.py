@@ -9,6 +9,7 @@ from pathlib import Path
 
 from sim.cli._common import MARKET_FLAGS, add_market_flags, emit, market_table_from_args, parse_number, parse_numbers
 from sim.core.errors import InputError
+from sim.core.files import relative_file_name
 from sim.core.jsonutil import dumps
 from sim.core.parallel import usable_cores
 from sim.core.tomlfile import read_toml
@@ -16,6 +17,7 @@ from sim.evidence.learn import RENDERER
 from sim.evidence.render import write_figures
 from sim.learning.tables import RUN_CONSTRAINTS
 from sim.runner.analyses.learn import KIND as LEARN
+from sim.runner.experiment import load_experiment
 from sim.runner.single import run_single
 
 HELP = "let pricing algorithms (Q-learning, bandits) learn; limit outcomes, profit gain, impulse response"
@@ -199,7 +201,10 @@ def document(args) -> tuple[dict, dict]:
     exp = _table(doc, "experiment")
     if "kind" in exp and exp["kind"] != "learn":
         raise InputError("experiment.kind", f"this command runs kind = 'learn' experiments, got {exp['kind']!r}")
-    # the tables this analysis reads (a [sweep] or [report] of FILE belongs to `supergame run`)
+    # the tables this analysis reads (a [sweep] or [report] of FILE belongs to `supergame run`); what is left out is
+    # still checked as `supergame check` checks the file (an unknown table, a bad swept value), never ignored
+    if args.file and set(doc) - set(LEARN.tables) - {"experiment"}:
+        load_experiment(args.file)
     out = {k: v for k, v in doc.items() if k in LEARN.tables}
     out["experiment"] = {**exp, "kind": "learn"}
     table, from_flags = market_table_from_args(args, _table(doc, "market"))
@@ -224,7 +229,12 @@ def _renamed(exc: InputError, flags: dict) -> InputError:
 
 def _check_save_target(save_to: str, flags: dict) -> None:
     """Refuse, before any work, a file to save the learners to that cannot be written: a folder of that name, or a
-    file where one of its folders should be."""
+    file where one of its folders should be (the name itself checked first: a NUL or an overlong part cannot even be
+    looked up)."""
+    try:
+        relative_file_name("learning.save_to", save_to)
+    except InputError as exc:
+        raise _renamed(exc, flags) from None
     p = Path(save_to)
     if p.is_dir():
         raise _renamed(InputError("learning.save_to", f"{save_to} is a folder, not a file"), flags)

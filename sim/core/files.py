@@ -13,10 +13,48 @@ from __future__ import annotations
 
 import os
 import shutil
-from pathlib import Path
+from pathlib import Path, PurePath
+
+from sim.core.errors import InputError
 
 #: markers of the hidden siblings of a staged folder: the one being written, the one being replaced
 STAGED, REPLACED = ".partial-", ".replaced-"
+
+
+def relative_file_name(key: str, value, absolute: bool = False) -> str:
+    """An experiment's file name (saved learners to write or read): a relative path that stays inside the current
+    (or run) folder and that every file system here can hold.
+
+    Parameters
+    ----------
+    key : str
+        The setting's key, named by the error.
+    value : object
+        The name as given.
+    absolute : bool
+        Accept an absolute path or one with ``..`` too (a file named in Python code, not in an experiment file).
+
+    Returns
+    -------
+    str
+        The name, unchanged.
+
+    Raises
+    ------
+    InputError
+        Naming ``key``: not a non-empty string, a NUL character, an absolute path or one with ``..``, a part of more
+        than 255 bytes or a name of more than 1,024.
+    """
+    if not isinstance(value, str) or not value.strip():
+        raise InputError(key, f"must be the name of a file, got {value!r}")
+    if "\x00" in value:
+        raise InputError(key, "a file name cannot hold a NUL character")
+    p = PurePath(value)
+    if not absolute and (p.is_absolute() or ".." in p.parts):
+        raise InputError(key, f"must be a relative path that stays inside the current (or run) folder, got {value!r}")
+    if len(value.encode("utf-8")) > 1024 or any(len(part.encode("utf-8")) > 255 for part in p.parts):
+        raise InputError(key, "the file name is too long (at most 255 bytes a part, 1,024 in all)")
+    return value
 
 
 def partial_path(path: Path) -> Path:

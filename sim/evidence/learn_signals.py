@@ -20,7 +20,13 @@ def _est(d: dict) -> Estimate:
 
 
 def _pct(e: dict) -> str:
-    return f"{fmt_num(100 * e['value'], 1)} % ({fmt_num(100 * e['low'], 1)} % to {fmt_num(100 * e['high'], 1)} %)"
+    """A share with its interval in percent; "-" where nothing was measured (no session: the value is None)."""
+    if not e.get("n") or e.get("value") is None:
+        return "- (no session measured)"
+    low, high = e.get("low"), e.get("high")
+    if low is None or high is None:
+        return f"{fmt_num(100 * e['value'], 1)} %"
+    return f"{fmt_num(100 * e['value'], 1)} % ({fmt_num(100 * low, 1)} % to {fmt_num(100 * high, 1)} %)"
 
 
 def signal_lines(res: LearnResult) -> list[str]:
@@ -63,7 +69,7 @@ def signal_lines(res: LearnResult) -> list[str]:
                      f"learner's signal forced low after period 1): a cut in period 2 in {_pct(g['cut'])} of "
                      f"sessions, back on the path without it in the last 4 periods in {_pct(g['temporary'])}")
     lines.append(f"Mean change of the price, periods 1 to {sr['periods']}: "
-                 + ", ".join(fmt_num(c["value"]) for c in sr["change"][1:]))
+                 + ", ".join("-" if c.get("value") is None else fmt_num(c["value"]) for c in sr["change"][1:]))
     return lines
 
 

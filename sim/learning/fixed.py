@@ -35,6 +35,9 @@ from strategies.qlearning import QLearner
 
 __all__ = ["FixedPolicy", "fixed_q", "load_policy", "policy_table", "with_fixed_policies", "with_sources"]
 
+#: a price of the new line-up reads as a saved grid's price when they differ by at most this, relative (rounding)
+GRID_MATCH = 1e-9
+
 
 @dataclass(frozen=True, eq=False)
 class FixedPolicy:
@@ -191,8 +194,12 @@ def policy_table(policy: FixedPolicy, position: int, radix: np.ndarray, place: n
     maps = []
     for j in range(n):
         old, new = policy.grids[j], np.asarray(grids[perm[j]], dtype=float)
-        idx = np.searchsorted(old, new)
-        bad = (idx >= old.size) | (old[np.minimum(idx, old.size - 1)] != new)
+        # the nearest saved price, equal up to rounding (grids computed for different seats of a symmetric market
+        # can differ in their last bits)
+        hi = np.minimum(np.searchsorted(old, new), old.size - 1)
+        lo = np.maximum(hi - 1, 0)
+        idx = np.where(np.abs(old[lo] - new) <= np.abs(old[hi] - new), lo, hi)
+        bad = np.abs(old[idx] - new) > GRID_MATCH * np.maximum(1.0, np.abs(new))
         if np.any(bad):
             v = float(new[np.flatnonzero(bad)[0]])
             raise InputError(fkey, f"firm {perm[j] + 1} here can play {v:.6g}, not a price of the grid the saved "

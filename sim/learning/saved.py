@@ -36,6 +36,7 @@ import hashlib
 import io
 import json
 import zipfile
+import zlib
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -228,7 +229,8 @@ def load_learners(path, key: str = "learning.continue_from") -> SavedLearners:
             header = json.loads(zf.read("header.json").decode("utf-8"))
             if not isinstance(header, dict) or header.get("format") != FORMAT:
                 raise InputError(key, f"{path} is not a file of saved learners (format {FORMAT!r})")
-            if header.get("version") not in READABLE_VERSIONS:
+            version = header.get("version")
+            if isinstance(version, bool) or not isinstance(version, int) or version not in READABLE_VERSIONS:
                 raise InputError(key, f"{path} has format version {header.get('version')!r}; this version of the "
                                       f"program reads versions {', '.join(map(str, READABLE_VERSIONS))}")
             listed = header.get("arrays") or {}
@@ -236,15 +238,20 @@ def load_learners(path, key: str = "learning.continue_from") -> SavedLearners:
                                                                                    "rng", "clock", "status"))
             arrays = {name: np.lib.format.read_array(io.BytesIO(zf.read(f"{name}.npy")), allow_pickle=False)
                       for name in names}
+            # a header that cannot be written back as JSON (a nan, say) cannot match its digest either
+            altered = version >= 3 and header_digest(header) != header.get("header_sha256")
     except InputError:
         raise
-    except (zipfile.BadZipFile, KeyError, ValueError, OSError, EOFError) as exc:
+    except (zipfile.BadZipFile, zlib.error, KeyError, ValueError, TypeError, OSError, EOFError, RuntimeError,
+            NotImplementedError) as exc:
+        # a damaged archive fails in many ways: a bad zip directory, a corrupt deflate stream, a flag read as
+        # encryption or an unknown compression method, a header that is not plain JSON
         raise InputError(key, f"{path} cannot be read as saved learners ({type(exc).__name__}): the file is "
                               "damaged or of another kind") from None
     for name, a in arrays.items():
         if a.dtype != np.dtype(_DTYPES[name]):
             raise InputError(key, f"{path}: array {name} has type {a.dtype}, expected {np.dtype(_DTYPES[name])}")
-    if header["version"] >= 3 and header_digest(header) != header.get("header_sha256"):
+    if altered:
         raise InputError(key, f"{path}: the header (market, seats, run) does not match the SHA-256 recorded in the "
                               "file: the file was altered or damaged")
     found = arrays_digest(arrays, names)

@@ -430,27 +430,27 @@ def _shock(settings: dict) -> tuple[int, float]:
 
 
 def _each(n: int, workers: int, one, progress: bool | None) -> None:
-    """``one(j)`` for every session, in threads when ``workers > 1`` (the kernels release the GIL)."""
+    """``one(j)`` for every session, in ``workers`` threads (the kernels release the GIL).
+
+    Even one worker runs in a thread of its own: the main thread only waits, so an interrupt or SIGTERM reaches it
+    at once, not when a session that may run for hours returns. A session in flight cannot be stopped inside its
+    kernel; on an interrupt the pool is left without waiting for it (the command line then ends the process, see
+    :func:`sim.cli.entry`), and sessions not started are cancelled.
+    """
     show = sys.stderr.isatty() if progress is None else bool(progress)
     bar = tqdm(total=n, desc="sessions", unit="session", file=sys.stderr, leave=False) if show else None
+    pool = ThreadPoolExecutor(max_workers=max(1, workers))
     try:
-        if workers <= 1:
-            for j in range(n):
-                one(j)
-                if bar is not None:
-                    bar.update(1)
-            return
-        with ThreadPoolExecutor(max_workers=workers) as pool:
-            futures = [pool.submit(one, j) for j in range(n)]
-            try:
-                for fut in as_completed(futures):
-                    fut.result()
-                    if bar is not None:
-                        bar.update(1)
-            except BaseException:
-                for fut in futures:
-                    fut.cancel()
-                raise
+        futures = [pool.submit(one, j) for j in range(n)]
+        for fut in as_completed(futures):
+            fut.result()
+            if bar is not None:
+                bar.update(1)
+    except BaseException:
+        pool.shutdown(wait=False, cancel_futures=True)
+        raise
+    else:
+        pool.shutdown(wait=True)
     finally:
         if bar is not None:
             bar.close()

@@ -5,9 +5,10 @@ library use it).
 
 from __future__ import annotations
 
-from pathlib import Path, PurePath
+from pathlib import Path
 
 from sim.core.errors import InputError
+from sim.core.files import relative_file_name
 from sim.core.parallel import usable_cores
 from sim.core.params import Integer, Options, Real, optional
 from sim.core.tables import refuse_unknown
@@ -98,6 +99,9 @@ def learner_from_entry(entry: dict, base: dict, key: str, skip=("strategy",), va
         if name not in LEARNER_PARAMS:
             raise InputError(f"{key}.{name}", f"unknown parameter of qlearning; allowed: {', '.join(LEARNER_PARAMS)}")
         params[name] = v
+    if isinstance(params.get("policy_from"), str):
+        # an experiment file names files relative to the current folder, as save_to and continue_from
+        relative_file_name(f"{key}.policy_from", params["policy_from"])
     strat = QLearner(**params)
     if validate:
         strat.spec(prefix=key)
@@ -231,6 +235,8 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     n_firms = market.spec().n_firms
     lt, it, rt = (_table(doc, name, overrides) for name in ("learning", "impulse", "run"))
     base = {k: lt[k] for k in LEARNER_PARAMS if k in lt}
+    if isinstance(base.get("policy_from"), str):
+        relative_file_name("learning.policy_from", base["policy_from"])
     learner = QLearner(**base)
     learner.spec(prefix="learning")
     if "strategies" in doc:
@@ -355,10 +361,4 @@ def _file_name(tab: dict, key: str) -> str | None:
     value = tab.get(key)
     if value is None:
         return None
-    if not isinstance(value, str) or not value.strip():
-        raise InputError(f"learning.{key}", f"must be the name of a file, got {value!r}")
-    p = PurePath(value)
-    if p.is_absolute() or ".." in p.parts:
-        raise InputError(f"learning.{key}", f"must be a relative path that stays inside the current (or run) folder, "
-                                            f"got {value!r}")
-    return value
+    return relative_file_name(f"learning.{key}", value)

@@ -291,6 +291,7 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
         exp = _experiment_of(experiment)
         choose_backend(workers, cluster, exp.n_cells)  # every setting checked before the folder exists
         _check_time(exp, allow_long)
+        _check_ready(exp)
         folder, lock = _create_folder(out, exp.name, root)
     try:
         plan = _plan(folder, experiment, resume, retry_failed, report, workers, cluster, plugin_info)
@@ -313,6 +314,14 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
     return RunSummary(folder, exp.name, exp.kind, exp.n_cells, counts["ok"], counts["failed"], failed_rows, ran,
                       time.perf_counter() - t_start, plan.backend.describe(), status == "complete", files, report_dir,
                       status)
+
+
+def _check_ready(exp) -> None:
+    """Every cell's inputs are there (``Kind.ready``): a file an earlier run writes is read before the folder exists."""
+    kind = exp.kind_spec()
+    if kind.ready is not None:
+        for i in range(exp.n_cells):
+            kind.ready(exp.cell(i).doc)
 
 
 def _check_time(exp, allow_long: bool) -> None:

@@ -205,6 +205,10 @@ class Kind:
         ``describe(doc) -> list of str``: lines describing the setup, for the report.
     assumptions : tuple of str
         The model's assumptions and limitations, stated in the report.
+    ready : callable, optional
+        ``ready(doc)``: called on every cell's document just before a run creates its folder; raises
+        :class:`sim.core.errors.InputError` when something the cell reads is not there yet (a file an earlier run
+        writes, which ``check`` accepts as still to come), so that the run writes nothing.
     cell_assumptions : callable, optional
         ``cell_assumptions(doc) -> list of str``: the assumptions of what one cell's document uses (a learner family,
         a protocol); the report states those of every cell of the run, each once, after ``assumptions``.
@@ -240,6 +244,7 @@ class Kind:
     assumptions: tuple = ()
     cell_assumptions: Callable[[dict], Sequence[str]] | None = None
     summary: str = ""
+    ready: Callable[[dict], None] | None = None
     cost: Callable[[Any], Any] | None = None
     result_type: type | None = None
     report: Callable[[Any, Any], None] | None = None

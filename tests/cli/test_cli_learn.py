@@ -432,3 +432,19 @@ def test_settings_the_learners_do_not_use_are_named_in_the_report(small, capsys)
     assert "learning.beta" in out and "a ucb bandit keeps no state and learns by its own rule" in out
     assert main(["learn", str(small), "--sessions", "2"]) == 0
     assert "Not used" not in capsys.readouterr().out
+
+
+@pytest.mark.parametrize("extra, key", [
+    ("\n[unknown_table]\nx = 1\n", "unknown_table"),
+    ('\n[sweep]\n"learning.delta" = [0.95, 1.5]\n', "learning.delta"),
+    ('\n[sweep]\n"learning.deltaa" = [0.9, 0.95]\n', "learning.deltaa"),
+], ids=["unknown-table", "bad-swept-value", "unknown-swept-key"])
+def test_what_learn_leaves_to_run_is_still_checked(tmp_path, capsys, extra, key):
+    """`learn FILE` runs the file's own settings and leaves its sweep to `run`; an unknown table or a bad sweep is
+    refused all the same, as `check` refuses it, not ignored."""
+    f = tmp_path / "x.toml"
+    f.write_text(learn_text("x", "m = 3\nbeta = 1e-3\nconvergence = 200") + extra)
+    assert main(["learn", str(f)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and key in err, err
+    assert main(["check", str(f)]) == 2

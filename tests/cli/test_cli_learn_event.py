@@ -69,6 +69,13 @@ def test_the_second_step_before_the_first_names_the_saved_file(folder, capsys):
     assert main(["learn", "step2.toml"]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "learning.continue_from" in err and "learners.npz" in err
+    # check accepts the file as still to come (the first step may run later); run refuses it, writing nothing
+    assert main(["check", "step2.toml"]) == 0
+    capsys.readouterr()
+    assert main(["run", "step2.toml", "--out", "run"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "learning.continue_from" in err and "learners.npz" in err
+    assert not (folder / "run").exists() and not (folder / "runs").exists()
 
 
 def test_an_event_without_saved_learners_is_refused(folder, capsys):

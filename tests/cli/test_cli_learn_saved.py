@@ -73,6 +73,8 @@ BAD = [
     (["--counterfactual-share", "0.5"], "--counterfactual-share", "only to update = 'mixed'"),
     (["--update", "mixed", "--counterfactual-share", "1"], "--counterfactual-share", "(0, 1)"),
     (["--save-to", "../out.npz"], "--save-to", "relative path"),
+    (["--save-to", "out\x00.npz"], "--save-to", "NUL character"),
+    (["--save-to", "x" * 300 + ".npz"], "--save-to", "too long"),
 ]
 
 

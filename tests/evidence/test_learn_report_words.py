@@ -37,3 +37,12 @@ def test_the_learned_merger_effect_is_more_or_less_only_outside_its_interval():
     assert _verdict(0.05, 0.171, {"low": 0.0, "high": 0.1, "n": 4}) == "less"
     assert _verdict(0.05, 0.171, {"low": math.nan, "high": math.nan, "n": 1}) == "less (one session, no interval)"
     assert _verdict(math.nan, 0.171, None) == "-"
+
+
+def test_a_share_nothing_measured_is_said_so_not_computed():
+    """A learned price-war share over no session (every value None in the stored record) reads as not measured."""
+    from sim.evidence.learn_signals import _pct
+
+    assert _pct({"value": None, "low": None, "high": None, "n": 0}) == "- (no session measured)"
+    assert _pct({"value": 0.25, "low": None, "high": None, "n": 1}) == "25.0 %"
+    assert _pct({"value": 0.25, "low": 0.1, "high": 0.5, "n": 8}) == "25.0 % (10.0 % to 50.0 %)"

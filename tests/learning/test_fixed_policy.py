@@ -83,6 +83,15 @@ def test_a_copy_seated_as_the_other_firm_reads_the_prices_in_the_saved_order(pai
         assert g2[1, a2 + 5 * a1] == g1[0, s] and g2[0, a2 + 5 * a1] == g1[1, s]
 
 
+def test_two_copies_of_one_firms_policy_sit_together(pair):
+    """Firm 1's saved policy on both seats: each copy reads the other seat's prices on firm 2's saved grid, which in a
+    symmetric market holds the same prices up to rounding in the last bits; the copy in seat 1 is firm 1 itself."""
+    path, _ = pair
+    both = compile_lineup(logit_market(), [fixed(path, 1), fixed(path, 1)]).initial_greedy()
+    straight = compile_lineup(logit_market(), [fixed(path, 1), fixed(path, 2)]).initial_greedy()
+    assert np.array_equal(both[0], straight[0])
+
+
 def test_kernel_and_twin_agree_bit_for_bit_with_a_fixed_seat_against_a_new_learner(pair):
     path, _ = pair
     lu = compile_lineup(logit_market(), [fixed(path, 1, 2), QLearner(m=5, beta=1e-3)])

@@ -150,6 +150,48 @@ def test_the_same_state_gives_the_same_file_bytes(tmp_path):
     assert (tmp_path / "a.npz").read_bytes() == (tmp_path / "b.npz").read_bytes()
 
 
+def test_a_damaged_file_is_refused_naming_its_key_or_reads_as_it_was(tmp_path):
+    """One bit flipped anywhere in a saved file (every byte, one bit each): either the file is refused as bad input
+    naming its key -- the zip structure, the deflate stream, the header's or the arrays' SHA-256 -- or the flip hit
+    bytes nothing depends on (a time stamp, say) and the arrays read back unchanged. Never another error."""
+    res = learn(logit_market(), QLearner(m=3, beta=1e-3), sessions=1, seed=1, convergence=300, keep=True, workers=1)
+    good = tmp_path / "good.npz"
+    save_learners(good, res.saved)
+    ref = load_learners(good)
+    data = bytearray(good.read_bytes())
+    bad = tmp_path / "bad.npz"
+    refused = 0
+    for i in range(len(data)):
+        flipped = bytearray(data)
+        flipped[i] ^= 1 << (i % 8)
+        bad.write_bytes(bytes(flipped))
+        try:
+            got = load_learners(bad, key="learning.continue_from")
+        except InputError as exc:
+            assert exc.key == "learning.continue_from"
+            refused += 1
+            continue
+        for name in ("Q", "greedy", "history", "z", "rng", "clock", "status"):
+            assert np.array_equal(getattr(got, name), getattr(ref, name)), (i, name)
+    assert refused > len(data) // 2  # most bytes matter
+    # a version that is not an integer (a boolean equals 1 in Python) is refused too
+    import io
+    import zipfile
+
+    with zipfile.ZipFile(good) as zf:
+        members = {n: zf.read(n) for n in zf.namelist()}
+    head = json.loads(members["header.json"])
+    head["version"] = True
+    members["header.json"] = json.dumps(head).encode()
+    buf = io.BytesIO()
+    with zipfile.ZipFile(buf, "w") as zf:
+        for n, v in members.items():
+            zf.writestr(n, v)
+    bad.write_bytes(buf.getvalue())
+    with pytest.raises(InputError, match="format version True"):
+        load_learners(bad)
+
+
 def test_saved_learners_continue_under_another_update_rule_but_not_on_another_grid(tmp_path):
     market = logit_market()
     res = learn(market, QLearner(m=5, beta=2e-4), sessions=2, seed=1, convergence=500, max_periods=5000, keep=True,

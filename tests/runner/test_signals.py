@@ -127,3 +127,27 @@ def test_a_writer_killed_during_commits_loses_at_most_the_cell_being_committed(t
     docs = [c for (c,) in con.execute("SELECT cell FROM documents ORDER BY cell")]
     assert cells == list(range(len(cells))) and docs == cells  # no row without its document, no gap
     assert len(cells) - 1 >= last  # nothing reported committed is lost; at most the one under way is missing
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("how, status", [(signal.SIGTERM, 143), (signal.SIGINT, 130)])
+@pytest.mark.parametrize("workers", ["1", "2"])
+def test_a_learn_command_stops_in_the_middle_of_a_session(tmp_path, how, status, workers):
+    """Learning sessions run in numba kernels that Python cannot interrupt: the command waits for them in another
+    thread, so a signal stops it at once, whatever the sessions' length, and no thread keeps the process alive."""
+    src = (ROOT / "experiments" / "qlearning-baseline.toml").read_text()
+    exp = tmp_path / "long.toml"
+    exp.write_text(src)
+    proc = subprocess.Popen([sys.executable, "-m", "sim", "learn", str(exp), "--sessions", "4", "--workers", workers,
+                             "--max-periods", "1e12", "--convergence", "1e11"], cwd=ROOT, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)
+    time.sleep(15.0)  # past start-up and compiling (cached by then in a test run): the sessions are learning
+    assert proc.poll() is None, proc.communicate()
+    proc.send_signal(how)
+    try:
+        _, err = proc.communicate(timeout=20)
+    except subprocess.TimeoutExpired:
+        proc.kill()
+        raise AssertionError("the learn command did not stop within 20 s of the signal") from None
+    assert proc.returncode == status, err
+    assert len(err.strip().splitlines()) == 1 and ("terminated" in err or "interrupted" in err)

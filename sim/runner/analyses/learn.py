@@ -26,6 +26,14 @@ def _prepare_learn(doc: dict) -> dict:
     return cfg
 
 
+def _ready(doc: dict) -> None:
+    """An event's saved learners must exist when the run starts (``check`` accepts them as still to come)."""
+    name = (doc.get("learning") or {}).get("continue_from")
+    if "event" in doc and isinstance(name, str) and not Path(name).is_file():
+        raise InputError("learning.continue_from", f"no such file: {name} (run the first step, which saves the "
+                                                   "learners, before the event)")
+
+
 def saved_path(save_to: str | None, ctx: CellContext) -> Path | None:
     """Where a cell saves its learners (``learning.save_to``): the path as given, or, in a run folder, that name
     inside the folder with the cell's number before the extension (``learners.npz`` -> ``learners-cell1.npz``),
@@ -319,6 +327,7 @@ KIND = Kind(
     name="learn",
     tables=("market", "learning", "impulse", "run", "strategies", "event"),
     prepare=_prepare_learn,
+    ready=_ready,
     run=_run_learn,
     metric_names=_learn_names,
     result_type=LearnResult,
