@@ -132,7 +132,7 @@ def configure(p: argparse.ArgumentParser) -> None:
                                                         "greedy play averaged by the limit estimate (default 10000)")
     g.add_argument("--save-to", metavar="FILE", help="save every session's learners (Q-values, counters, random "
                                                      "state) at the end to FILE, to be continued later (a relative "
-                                                     "path without '..')")
+                                                     "path without '..'; an existing file of that name is replaced)")
     g.add_argument("--continue-from", metavar="FILE", help="continue the sessions saved in FILE (same market, "
                                                            "grids and number of sessions) instead of new ones (a "
                                                            "relative path without '..'); changed learning settings "

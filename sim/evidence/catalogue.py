@@ -252,11 +252,16 @@ ENTRIES: dict[str, Entry] = {
     "near_collusive": Entry("share of sessions near collusion", "0 to 1",
                             "Share of converged sessions (every session when none converged) in which every firm's "
                             "mean limit action lies within the stated tolerance (learning.near) times its "
-                            "Nash-to-collusive distance of its joint-profit action.", "counted", _WILSON),
+                            "Nash-to-collusive distance of its joint-profit action (inclusive: an action exactly at "
+                            "that distance counts, as the grid points next to the benchmark do on a grid of 7 prices "
+                            "with xi = 0.1 and the default tolerance).", "counted", _WILSON),
     "near_nash": Entry("share of sessions near static Nash", "0 to 1",
                        "Share of converged sessions (every session when none converged) in which every firm's mean "
                        "limit action lies within the stated tolerance (learning.near) times its Nash-to-collusive "
-                       "distance of its static-Nash action.", "counted", _WILSON),
+                       "distance of its static-Nash action (inclusive: an action exactly at that distance counts, "
+                       "as the grid points next to the benchmark do on a grid of 7 prices with xi = 0.1 and the "
+                       "default tolerance).",
+                       "counted", _WILSON),
     "rival_price_cut": Entry("rivals' price cut after a deviation", "price",
                              "How much the rivals lower their price in the period after a forced deviation: the "
                              "learning rivals' mean (an automaton's response is its rule, not learned; every "

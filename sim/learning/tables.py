@@ -341,6 +341,9 @@ def _unused(lt: dict, settings: dict, lineup: bool) -> dict:
         for key in _Q_ONLY:
             if key in lt:
                 out[f"learning.{key}"] = what
+        if "delta" in lt:
+            # not in learning, but the value of the forced deviation is discounted with it
+            out["learning.delta"] = what + "; it only discounts the value of the forced deviation"
     return out
 
 
