@@ -138,9 +138,12 @@ def test_a_learn_command_stops_in_the_middle_of_a_session(tmp_path, how, status,
     src = (ROOT / "experiments" / "qlearning-baseline.toml").read_text()
     exp = tmp_path / "long.toml"
     exp.write_text(src)
+    # a shell that starts a job in the background sets it to ignore SIGINT, and Python then keeps ignoring it (as
+    # programs should): the child gets the default disposition back, as in a terminal
     proc = subprocess.Popen([sys.executable, "-m", "sim", "learn", str(exp), "--sessions", "4", "--workers", workers,
                              "--max-periods", "1e12", "--convergence", "1e11"], cwd=ROOT, stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, text=True)
+                            stderr=subprocess.PIPE, text=True,
+                            preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
     time.sleep(15.0)  # past start-up and compiling (cached by then in a test run): the sessions are learning
     assert proc.poll() is None, proc.communicate()
     proc.send_signal(how)
