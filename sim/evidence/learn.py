@@ -23,7 +23,7 @@ from sim.evidence.thresholds import describe_market
 from sim.learning.analysis import LearnResult
 from sim.models.market import market_from_dict
 
-__all__ = ["RENDERER", "as_json", "console", "figures"]
+__all__ = ["RENDERER", "as_json", "console", "figures", "sessions_are_copies"]
 
 
 def _num(x) -> float:
@@ -147,17 +147,30 @@ def _setup_lines(res: LearnResult) -> list[str]:
     return lines
 
 
-def _copies_line(res: LearnResult) -> list[str]:
-    """A warning when every session ran the same way: nothing the sessions draw changed their course (UCB bandits
-    without observation noise, with automata that do not act at random, draw nothing), so they are copies of one
-    session and the intervals across them measure nothing."""
+def sessions_are_copies(res: LearnResult) -> bool:
+    """Whether every session ran the same way (the same periods, limit prices and deviation gain in two sessions or
+    more): nothing the sessions draw changed their course (UCB bandits without observation noise, with automata
+    that do not act at random, draw nothing), so they are copies of one session and the intervals across them
+    measure nothing.
+
+    Parameters
+    ----------
+    res : LearnResult
+
+    Returns
+    -------
+    bool
+    """
     ps = res.per_session
-    n = len(ps["periods"])
-    if n < 2:
+    return len(ps["periods"]) > 1 and all(len({repr(v) for v in ps[k]}) == 1
+                                          for k in ("periods", "limit_prices", "deviation_gain"))
+
+
+def _copies_line(res: LearnResult) -> list[str]:
+    """The warning of :func:`sessions_are_copies`."""
+    if not sessions_are_copies(res):
         return []
-    same = all(len({repr(v) for v in ps[k]}) == 1 for k in ("periods", "limit_prices", "deviation_gain"))
-    if not same:
-        return []
+    n = len(res.per_session["periods"])
     return [f"Warning: all {n} sessions ran the same way (the same periods, limit prices and deviation gain): "
             "nothing they draw changed their course, so they are copies of one session, not independent "
             "observations; the intervals across them have no width and the shares count one outcome "

@@ -14,7 +14,7 @@ import numpy as np
 
 from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
 from sim.evidence.front import where
-from sim.evidence.learn import console, figures
+from sim.evidence.learn import console, figures, sessions_are_copies
 from sim.evidence.render import pyplot
 from sim.runner.analyses.learn import KIND as LEARN
 from sim.runner.experiment import leading_comment
@@ -102,6 +102,12 @@ def _sweep_account(run, b, exp, ok) -> None:
                       "share converged"], rows, caption="Limit outcomes of every finished cell",
             note=f"means over each cell's converged sessions{_none_converged(ok, results)}; {lvl} confidence "
                  "intervals across sessions (simulation error only)")
+    copies = [str(r.number) for r in ok if sessions_are_copies(results[r.cell])]
+    if copies:
+        b.paragraph(f"Warning: in cell{'s' if len(copies) > 1 else ''} {', '.join(copies)} every session ran the same "
+                    "way (nothing the sessions draw changed their course): the sessions are copies of one session, "
+                    "not independent observations, so the intervals there have no width and the shares count one "
+                    "outcome many times.")
     with_error = all(results[r.cell].error_play for r in ok)
     if with_error:
         _error_play_table(b, exp, ok, results, lvl)

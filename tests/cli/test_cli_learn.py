@@ -448,3 +448,22 @@ def test_what_learn_leaves_to_run_is_still_checked(tmp_path, capsys, extra, key)
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and key in err, err
     assert main(["check", str(f)]) == 2
+
+
+def test_sessions_that_are_copies_of_one_another_are_called_so():
+    """UCB1 draws nothing (Auer, Cesa-Bianchi and Fischer, 2002: the index is deterministic; ties go to the first
+    price), so two UCB bandits without observation noise run every session the same way; with noise they do not."""
+    import sim
+    from sim.evidence.learn import console, sessions_are_copies
+    from sim.learning.analysis import learn_result
+    from sim.learning.session import learn
+    from strategies.qlearning import QLearner
+
+    market = sim.Market(sim.LogitDemand(quality=2.0, outside=0.0, mu=0.25), cost=1.0, model="bertrand", n_firms=2)
+    same = learn_result(learn(market, QLearner(family="ucb", m=5), sessions=3, seed=2, convergence=2000, workers=1),
+                        market)
+    assert sessions_are_copies(same)
+    assert "Warning: all 3 sessions ran the same way" in console(same)
+    noisy = learn_result(learn(market, QLearner(family="ucb", m=5, noise=0.5), sessions=3, seed=2, convergence=2000,
+                               workers=1), market)
+    assert not sessions_are_copies(noisy) and "ran the same way" not in console(noisy)
