@@ -177,11 +177,8 @@ def trigger_names(firm: int) -> list[str]:
 def _run_learn(cfg: dict, ctx: CellContext) -> CellResult:
     if cfg.get("waiting"):
         # an event's saved learners, written by a first run after this file was checked: read them now
+        _ready(cfg["doc"])
         cfg = _prepare_learn(cfg["doc"])
-        if cfg["waiting"]:
-            path = cfg["doc"]["learning"]["continue_from"]
-            raise InputError("learning.continue_from", f"no such file: {path} (run the first step, which saves the "
-                                                       "learners, before the event)")
     res = learn_analysis(cfg["spec"], cell=ctx.index, workers=ctx.threads, progress=ctx.progress,
                          save_to=saved_path(cfg.get("save_to"), ctx))
     return CellResult(learn_metrics(res), learn_arrays(res), result=res)
