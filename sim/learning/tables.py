@@ -268,6 +268,9 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     # the line-up and its memory, checked before any work (the run repeats this, cheaply)
     workers = settings["workers"] or usable_cores()
     lineup = compile_lineup(market, learner, workers=min(workers, settings["sessions"]), random_automata="estimate")
+    if "limit_periods" in lt and lineup.limit_exact:
+        unused["learning.limit_periods"] = ("no automaton acts at random, so greedy play after learning is a "
+                                            "deterministic path whose cycle is found exactly, not simulated")
     if settings.get("observe") == "noisy_prices":
         check_noisy_lineup(lineup)
     elif "observe" in settings:

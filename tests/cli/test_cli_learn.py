@@ -432,6 +432,16 @@ def test_settings_the_learners_do_not_use_are_named_in_the_report(small, capsys)
     assert "learning.beta" in out and "a ucb bandit keeps no state and learns by its own rule" in out
     assert main(["learn", str(small), "--sessions", "2"]) == 0
     assert "Not used" not in capsys.readouterr().out
+    # the simulated limit's length, where the limit is an exact cycle: named, not silently dropped
+    assert main(["learn", str(small), "--sessions", "2", "--limit-periods", "500"]) == 0
+    assert "Not used, though given: learning.limit_periods: no automaton acts at random" in capsys.readouterr().out
+
+
+def test_the_simulated_limits_length_is_not_named_unused_where_automata_act_at_random(tmp_path, capsys):
+    p = tmp_path / "random.toml"
+    p.write_text(RANDOM.replace("convergence = 3000", "convergence = 3000\nlimit_periods = 300"))
+    assert main(["learn", str(p), "--sessions", "2"]) == 0
+    assert "learning.limit_periods" not in capsys.readouterr().out
 
 
 @pytest.mark.parametrize("extra, key", [
