@@ -20,12 +20,21 @@ ALTERNATING_ENTRIES = {
     "fixed_above_nash_share": ("share of sessions at a fixed price pair above static Nash", "0 to 1",
                                "Share of sessions at a fixed price pair in which every firm's price exceeds its "
                                "static-Nash price by more than the stated tolerance.", _KLEIN, _WILSON),
+    "fixed_not_stage_nash_share": ("share of sessions at a fixed price pair that is not a static equilibrium of the "
+                                   "grid", "0 to 1",
+                                   "Share of sessions at a fixed price pair at which some firm would earn more in the "
+                                   "period with another price of its own grid, the rival's price held: a pair that "
+                                   "only the rival's reply sustains. A static (stage-game) Nash equilibrium of the "
+                                   "grid, such as one grid step above cost in homogeneous Bertrand, is not counted, "
+                                   "whatever its distance from the static-Nash price of continuous prices.",
+                                   _KLEIN, _WILSON),
     "fixed_collusive_share": ("share of sessions at a fixed price pair near joint profit", "0 to 1",
                               "Share of sessions at a fixed price pair within the stated tolerance of the joint-profit "
                               "prices.", _KLEIN, _WILSON),
     "cycle_share": ("share of sessions in a price cycle", "0 to 1",
-                    "Share of sessions whose greedy play after learning cycles through several price pairs "
-                    "(Edgeworth-cycle-like paths of undercutting and jumps back up).", _KLEIN, _WILSON),
+                    "Share of sessions whose greedy play after learning cycles through several price pairs (every "
+                    "session not at a fixed price pair; some, not all, are Edgeworth-cycle-like paths of undercutting "
+                    "and a jump back up).", _KLEIN, _WILSON),
     "cycle_length": ("length of the price cycle", "periods",
                      "Periods until the price pair repeats, over the sessions that end in a cycle.", _KLEIN, _MEAN),
     "profit_gain_fixed": ("profit gain at a fixed price pair", "share of the gain",

@@ -1,6 +1,6 @@
 """The account of alternating sessions in the learn report (Klein, 2021): where the sessions end -- a fixed price
-pair, above the static-Nash price or at the joint-profit one, or a cycle -- with the cycle lengths and the profit
-gain of each group, in the terminal report and as a figure.
+pair, above the static-Nash price, off the grid's static equilibria or at the joint-profit one, or a cycle -- with
+the cycle lengths and the profit gain of each group, in the terminal report and as a figure.
 """
 
 from __future__ import annotations
@@ -40,6 +40,8 @@ def alternating_lines(res: LearnResult) -> list[str]:
             ["  above the static-Nash price", _share(alt["fixed_above_nash"]), ""],
             ["  at or near the joint-profit price", _share(alt["fixed_collusive"]), ""],
             ["cycle", _share(alt["cycle"]), fmt_num(pc["mean"])]]
+    if "fixed_not_stage_nash" in alt:  # not in a result stored before this share was kept
+        rows.insert(2, ["  not a static equilibrium of the grid", _share(alt["fixed_not_stage_nash"]), ""])
     lengths = ", ".join(f"{k} periods: {v}" for k, v in sorted(alt["cycle_lengths"].items(), key=lambda x: int(x[0])))
     return [f"Alternating moves: where the sessions end ({res.summary['over']}; {lvl} intervals across sessions)",
             table(["", "share of sessions", "mean profit gain"], rows, "lll"),

@@ -305,7 +305,9 @@ class LearningResult:
             automaton's response is its rule, not learned), ``rival_price_cuts`` each rival's, with ``firm`` (from
             1) and ``learner``. Alternating sessions
             (``settings["timing"] == "alternating"``) add ``alternating``: the shares of sessions at a fixed price
-            pair (``fixed_price``, ``fixed_above_nash``, ``fixed_collusive``) and in a cycle (``cycle``), the
+            pair (``fixed_price``, ``fixed_above_nash``, ``fixed_collusive``; ``fixed_not_stage_nash``: at a pair
+            that is not a static equilibrium of the grids, so some firm would gain in the period by another price of
+            its grid) and in a cycle (``cycle``), the
             ``cycle_length`` over cycling sessions and its distribution ``cycle_lengths``, and the profit gain of
             each group; their impulse-response entries are nan.
         """
@@ -462,10 +464,12 @@ def _alternating_summary(res: LearningResult, sel: np.ndarray, level: float) -> 
     k = int(sel.sum())
     pg = res.profit_gain[sel]
     lengths, counts = np.unique(period[~fixed], return_counts=True)
+    sustained = np.array([f and not _stage_equilibrium(lu, a) for f, a in zip(fixed, res.limit_actions[sel])], bool)
     return {
         "timing": "alternating",
         "fixed_price": _share_ci(int(fixed.sum()), k, level),
         "fixed_above_nash": _share_ci(int((fixed & above).sum()), k, level),
+        "fixed_not_stage_nash": _share_ci(int(sustained.sum()), k, level),
         "fixed_collusive": _share_ci(int((fixed & res.near_collusive[sel]).sum()), k, level),
         "cycle": _share_ci(int((~fixed).sum()), k, level),
         "cycle_length": _mean_ci(period[~fixed], level),
@@ -476,6 +480,21 @@ def _alternating_summary(res: LearningResult, sel: np.ndarray, level: float) -> 
                  "ends at a fixed price pair when greedy play from its final state repeats the same two prices "
                  "every period, and in a cycle otherwise (cycle length: periods until the price pair repeats)"),
     }
+
+
+def _stage_equilibrium(lu, actions: np.ndarray) -> bool:
+    """Whether the profile ``actions`` (one action of each seat's grid, as ``limit_actions`` holds them at a fixed
+    pair) is a static (stage-game) Nash equilibrium of the seats' grids: no firm earns more in the period by another
+    action of its own grid, the others held (up to a relative 1e-12, rounding)."""
+    place, radix, payoff = lu.place, lu.seats.radix, lu.payoff
+    acts = np.array([int(np.argmin(np.abs(np.asarray(g) - a))) for g, a in zip(lu.grids, actions)], np.int64)
+    prof = int(np.dot(acts, place))
+    for i in range(acts.size):
+        base = payoff[prof, i]
+        for b in range(int(radix[i])):
+            if payoff[prof + (b - acts[i]) * place[i], i] > base + 1e-12 * max(1.0, abs(base)):
+                return False
+    return True
 
 
 def _stack_ci(x: np.ndarray, level: float = 0.95) -> dict:
