@@ -166,19 +166,21 @@ def test_learners_that_see_a_low_profit_cut_prices_after_an_adverse_draw_and_com
     assert res.summary()["profit_gain"]["low"] > 0.25
     out = shock_response(res, theta, periods=20)
     cuts = price_cuts(out)
-    # Tolerances (no share is given in the abstract): a cut in the first period that can react in at least 40 % of
+    # Tolerances (no share is given in the abstract): a cut in the first period that can react in at least 35 % of
     # the sessions and a price war that ends (the last 4 of 20 periods back on the path without the draw) in at
-    # least a fifth; 100 sessions give a binomial standard error near 0.05, and over four seeds these shares were
-    # 0.48 to 0.54 and 0.22 to 0.34, so the bounds hold whatever the seed, while learners that do not answer a low
-    # signal (the control below) give zero.
-    assert cuts.cut.value >= 0.4 and cuts.temporary.value >= 0.2
+    # least a tenth. 100 sessions give a binomial standard error near 0.05; over four seeds these shares were 0.48
+    # to 0.54 and 0.22 to 0.34, and each bound sits some two and a half standard errors below the lowest of them.
+    # Learners that do not answer a low signal (the control below) give at most 0.02.
+    assert cuts.cut.value >= 0.35 and cuts.temporary.value >= 0.1
     # a cut, not noise: its 95 % interval is below zero, and the wars that end last a few periods (2 to 10 on
     # average: longer than the one-period reaction, shorter than the 20 periods followed)
     assert cuts.depth.high < 0.0 and 2.0 <= cuts.duration.value <= 10.0
-    # harsher first, then fading: the mean change is deepest in period 2, and under half of it 20 periods on (that
-    # mean has a standard error near 0.008, a fifth of the depth: half the depth is some two and a half of them)
+    # harsher first, then fading: the mean change in period 2 (the first that can react) is the deepest, up to its
+    # standard error (near 0.008, a fifth of the depth), and under half of it 20 periods on (half the depth is some
+    # two and a half standard errors)
     change = [c.value for c in out.change]
-    assert min(change) == change[2] < 0.0 and abs(change[-1]) < 0.5 * abs(change[2])
+    assert change[2] < 0.0 and change[2] <= min(change) + out.change[2].se
+    assert abs(change[-1]) < 0.5 * abs(change[2])
     # the learned strategies alone (no learning after the draw, every signal forced low) answer it with a cut in at
     # least half of the sessions: the cut is in the greedy tables, not an effect of learning that goes on
     from sim.learning.analysis import signal_response
