@@ -42,6 +42,7 @@ from sim.evidence.front import (
 from sim.evidence.render import renderer_for
 from sim.evidence.views import result_names
 from sim.runner.experiment import leading_comment
+from sim.runner.inputs import input_lines
 from sim.runner.kinds import stated_assumptions
 from sim.runner.lock import FolderLock
 from sim.runner.report_settings import FigureSpec, figure_name
@@ -436,6 +437,7 @@ def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) 
     seed = meta.get("seed")
     b.bullets([
         f"Experiment file: `{EXPERIMENT_COPY}` (SHA-256 `{exp.sha256}`), copied into this bundle.",
+        *input_lines(meta.get("inputs")),
         (f"Seeds: {SEED_RULE.format(key=meta.get('seed_key'))}, with seed {seed} unless the sweep varies it. "
          "Results do not depend on the number of workers or the backend."
          if meta.get("seed_key") else "No random numbers: the kind is deterministic."),

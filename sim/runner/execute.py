@@ -27,6 +27,7 @@ from sim.runner.folder import (
     output_files,
     reading,
 )
+from sim.runner.inputs import check_inputs, record_inputs
 from sim.runner.lock import LOCK_FILE, FolderLock
 from sim.runner.manifest import check_manifest, clear_run_leftovers, write_manifest
 from sim.runner.store import STORE_FILE, CellRow, Store
@@ -380,6 +381,7 @@ def _plan(folder: Path, experiment, resume, retry_failed: bool, report: bool, wo
     todo = [i for i in range(exp.n_cells) if i not in res.done or (retry_failed and i in res.failed)]
     if todo:
         _check_packages(res.attempts)
+        check_inputs(res.meta.get("inputs"))
     rewrite_report = report or ((folder / REPORT_DIR).exists() and bool(todo))
     rewritten = (*EXPORTS, STORE_FILE) + ((REPORT_DIR + "/",) if rewrite_report else ())
     check_manifest(folder, rewritten, key="resume")
@@ -416,7 +418,7 @@ def _start_store(plan: _Plan, exp, plugin_info: list) -> Store:
         "source": exp.source, "n_cells": exp.n_cells, "seed": exp.seed(), "seed_key": kind.seed_key,
         "parameters": [{"path": p.path, "values": list(p.values), "labels": list(p.labels)} for p in exp.parameters],
         "description": exp.description or leading_comment(exp.text), "plugins": plugin_info,
-        "caution": CAUTION,
+        "caution": CAUTION, **({"inputs": inputs} if (inputs := record_inputs(exp)) else {}),
     })
 
 

@@ -209,6 +209,10 @@ class Kind:
         ``ready(doc)``: called on every cell's document just before a run creates its folder; raises
         :class:`sim.core.errors.InputError` when something the cell reads is not there yet (a file an earlier run
         writes, which ``check`` accepts as still to come), so that the run writes nothing.
+    inputs : callable, optional
+        ``inputs(doc) -> list of (key path, file name)``: the files a cell's document reads besides the experiment
+        file (saved learners); the run records their SHA-256 when it starts and checks them when it is resumed or
+        verified (:mod:`sim.runner.inputs`).
     cell_assumptions : callable, optional
         ``cell_assumptions(doc) -> list of str``: the assumptions of what one cell's document uses (a learner family,
         a protocol); the report states those of every cell of the run, each once, after ``assumptions``.
@@ -245,6 +249,7 @@ class Kind:
     cell_assumptions: Callable[[dict], Sequence[str]] | None = None
     summary: str = ""
     ready: Callable[[dict], None] | None = None
+    inputs: Callable[[dict], Sequence[tuple]] | None = None
     cost: Callable[[Any], Any] | None = None
     result_type: type | None = None
     report: Callable[[Any, Any], None] | None = None

@@ -139,8 +139,8 @@ def code_notes(attempts: list[dict]) -> list[str]:
 
 
 #: the fields of a manifest that the store determines (verify rebuilds them and compares)
-PROVENANCE_FIELDS = ("format", "experiment", "caution", "started", "finished", "attempts", "command", "plugins",
-                     "seeds", "cells", "notes")
+PROVENANCE_FIELDS = ("format", "experiment", "inputs", "caution", "started", "finished", "attempts", "command",
+                     "plugins", "seeds", "cells", "notes")
 
 
 def provenance(rf: RunFolder) -> dict:
@@ -153,7 +153,8 @@ def provenance(rf: RunFolder) -> dict:
     Returns
     -------
     dict
-        The fields of :data:`PROVENANCE_FIELDS`.
+        The fields of :data:`PROVENANCE_FIELDS` (``inputs`` only when the run read files besides the experiment
+        file).
     """
     meta, attempts, rows = rf.meta, rf.attempts(), rf.rows()
     n_cells = int(meta["n_cells"])
@@ -165,7 +166,7 @@ def provenance(rf: RunFolder) -> dict:
         seeds["rule"] = "deterministic kind: no random numbers"
     elif n_cells <= _MANIFEST_CELL_SEEDS:
         seeds["cells"] = [[r.number, r.seed] for r in rows]
-    return {
+    out = {
         "format": RUN_FORMAT,
         "experiment": {"file": EXPERIMENT_COPY, "sha256": meta["sha256"], "source": meta.get("source"),
                        "name": meta["name"], "kind": meta["kind"]},
@@ -180,6 +181,11 @@ def provenance(rf: RunFolder) -> dict:
                   "failed_cells": failed},
         "notes": code_notes(attempts),
     }
+    if meta.get("inputs"):
+        # the files the cells read besides the experiment file (sim.runner.inputs), after it
+        out = {**{k: out[k] for k in ("format", "experiment")}, "inputs": meta["inputs"],
+               **{k: v for k, v in out.items() if k not in ("format", "experiment")}}
+    return out
 
 
 def manifest_digest(man: dict) -> str:

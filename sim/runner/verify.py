@@ -28,6 +28,7 @@ from sim.runner.folder import (
     output_files,
     sha256_file,
 )
+from sim.runner.inputs import input_problems
 from sim.runner.kinds import CellContext, clean_metrics
 from sim.runner.lock import FolderLock
 from sim.runner.manifest import PROVENANCE_FIELDS, manifest_digest, provenance
@@ -250,6 +251,24 @@ def _check_manifest_itself(folder: Path, rf: RunFolder, man: dict | None, checks
                              "cells and seeds"))
 
 
+def _check_inputs(recorded: dict | None, chosen: list, checks: list) -> list:
+    """The files the run read besides its experiment file, against the SHA-256 recorded when it started
+    (:mod:`sim.runner.inputs`); returns the cells still to re-run (none when a file is missing or changed)."""
+    if not recorded:
+        return chosen
+    problems = input_problems(recorded)
+    for key, words in problems:
+        checks.append((False, f"{key}: {words}"))
+    if problems:
+        if chosen:
+            checks.append((False, "no cell re-run: a file the run read is missing or changed"))
+        return []
+    checks.append((True, f"the {len(recorded)} file{'s' if len(recorded) > 1 else ''} the run read besides the "
+                         f"experiment file ({', '.join(sorted(recorded))}) {'have' if len(recorded) > 1 else 'has'} "
+                         "the SHA-256 recorded when it started"))
+    return chosen
+
+
 def _rerun(exp, by_cell: dict, chosen: list, rtol: float, atol: float, threads: int, checks: list) -> list:
     """Re-run cells and compare every metric with the stored one; return one record per cell."""
     kind = exp.kind_spec()
@@ -382,5 +401,7 @@ def _verify(folder: Path, checks: list, sample, cells, rtol: float, atol: float,
         if chosen and not same_copy:
             checks.append((False, "no cell re-run: the experiment file is not the one the run started with"))
             chosen = []
+        if same_copy:
+            chosen = _check_inputs(rf.meta.get("inputs"), chosen, checks)
         report = _rerun(exp, by_cell, chosen, rtol, atol, threads, checks)
     return VerifyResult(all(ok for ok, _ in checks), checks, report)

@@ -112,3 +112,48 @@ def test_the_shipped_entry_experiment_in_its_two_steps(tmp_path, monkeypatch, ca
         assert ("the static-Nash price in this market (1.3702) lies below the lowest price on firms 1 and 2's grid"
                 in console(run.result(c)))
     assert all(run.result(c).event["settled"]["share"] == 1.0 for c in range(3))
+
+
+def test_the_saved_learners_a_run_continues_are_hashed_and_checked_on_resume_and_verify(folder, capsys):
+    # a run's numbers depend on the saved learners it continues as much as on its experiment file: their SHA-256 is
+    # recorded (store, manifest, report), and a changed or missing file stops a resumption and fails verify, which
+    # says so rather than "the metrics do not reproduce"
+    import hashlib
+    import json
+    import sqlite3
+
+    from sim.runner.runs import open_run
+
+    assert main(["learn", "step1.toml"]) == 0
+    digest = hashlib.sha256((folder / "learners.npz").read_bytes()).hexdigest()
+    assert main(["run", "step2.toml", "--out", "run", "--report", "--quiet"]) == 0
+    man = json.loads((folder / "run" / "manifest.json").read_text())
+    assert man["inputs"] == {"learners.npz": {"key": "learning.continue_from", "sha256": digest}}
+    assert digest in (folder / "run" / "report" / "summary.md").read_text()
+    with open_run(folder / "run") as rf:
+        assert rf.meta["inputs"]["learners.npz"]["sha256"] == digest
+    capsys.readouterr()
+    assert main(["verify", "run"]) == 0
+    out = capsys.readouterr().out
+    assert "the 1 file the run read besides the experiment file (learners.npz) has the SHA-256" in out
+    # other learners under the same name: verify names the file and re-runs nothing; a resumption is refused
+    assert main(["learn", "step1.toml", "--seed", "99"]) == 0
+    assert hashlib.sha256((folder / "learners.npz").read_bytes()).hexdigest() != digest
+    capsys.readouterr()
+    assert main(["verify", "run"]) == 1
+    out = capsys.readouterr().out
+    assert "learning.continue_from: learners.npz has changed since the run started" in out
+    assert "no cell re-run" in out and "metrics do not reproduce" not in out
+    con = sqlite3.connect(folder / "run" / "results.sqlite")
+    con.execute("DELETE FROM cells")
+    con.commit()
+    con.close()
+    for f in ("results.csv", "results.parquet", "arrays.json", "manifest.json"):
+        (folder / "run" / f).unlink(missing_ok=True)
+    assert main(["run", "--resume", "run"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "learning.continue_from: learners.npz has changed since the run started" in err
+    # missing (verify run from another folder): named as missing
+    (folder / "learners.npz").unlink()
+    assert main(["run", "--resume", "run"]) == 2
+    assert "learning.continue_from: learners.npz is not here" in capsys.readouterr().err

@@ -34,6 +34,21 @@ def _ready(doc: dict) -> None:
                                                    "learners, before the event)")
 
 
+def _inputs(doc: dict) -> list[tuple[str, str]]:
+    """The files a learn cell reads besides the experiment file (key path, name as given): the saved learners it
+    continues (``learning.continue_from``) and the saved policies of fixed seats (``policy_from``)."""
+    out = []
+    lt = doc.get("learning") if isinstance(doc.get("learning"), dict) else {}
+    for key in ("continue_from", "policy_from"):
+        if isinstance(lt.get(key), str):
+            out.append((f"learning.{key}", lt[key]))
+    entries = doc.get("strategies") if isinstance(doc.get("strategies"), list) else []
+    for i, entry in enumerate(entries):
+        if isinstance(entry, dict) and isinstance(entry.get("policy_from"), str):
+            out.append((f"strategies[{i + 1}].policy_from", entry["policy_from"]))
+    return out
+
+
 def saved_path(save_to: str | None, ctx: CellContext) -> Path | None:
     """Where a cell saves its learners (``learning.save_to``): the path as given, or, in a run folder, that name
     inside the folder with the cell's number before the extension (``learners.npz`` -> ``learners-cell1.npz``),
@@ -328,6 +343,7 @@ KIND = Kind(
     tables=("market", "learning", "impulse", "run", "strategies", "event"),
     prepare=_prepare_learn,
     ready=_ready,
+    inputs=_inputs,
     run=_run_learn,
     metric_names=_learn_names,
     result_type=LearnResult,
