@@ -149,9 +149,15 @@ def learn_headline(res) -> str:
         return (f"No session converged ({c['n']} stopped at the cap): greedy play at the cap, while the learners were "
                 f"still learning, gives a mean profit gain of {number(pg['mean'])}" + (f" ({ci})" if ci else "")
                 + " (0: static Nash, 1: joint profit), not a converged outcome.")
-    return (f"The learned prices give a mean profit gain of {number(pg['mean'])}" + (f" ({ci})" if ci else "")
-            + " (0: static Nash, 1: joint profit). "
-            + f"{c['count']} of {c['n']} sessions converged ({percent(c['share'])}).")
+    after = ((res.event or {}).get("merger") or {}).get("profit_gain_after")
+    zero = "static Nash" if not after else "static Nash before the merger"
+    out = (f"The learned prices give a mean profit gain of {number(pg['mean'])}" + (f" ({ci})" if ci else "")
+           + f" (0: {zero}, 1: joint profit). ")
+    if after:
+        ci_after = interval(after.get("low"), after.get("high"), res.confidence) if after.get("n", 0) >= 2 else ""
+        out += ("Against the static Nash after the merger (the merged firm setting its products' prices jointly) "
+                f"it is {number(after['mean'])}" + (f" ({ci_after})" if ci_after else "") + ". ")
+    return out + f"{c['count']} of {c['n']} sessions converged ({percent(c['share'])})."
 
 
 def _threshold_words(x) -> str:

@@ -71,6 +71,21 @@ LEARNED_EVENT_ENTRIES = {
                            "that settled.",
                            "greedy play from the final state and from the state at the event (Calvano et al., "
                            "2020)", _SESSIONS),
+    "profit_gain_after_merger": ("profit gain against the market after the merger", "share of the gain",
+                                 "(mean limit profit over products - their mean static-Nash profit after the merger) "
+                                 "/ (their mean joint-profit profit - that static-Nash profit), session by session, "
+                                 "averaged over the sessions of the other limit outcomes: the profit gain with the "
+                                 "merged firm's static Nash as its zero, so the merger's unilateral price effect is "
+                                 "not counted as a gain (the joint-profit outcome is the same before and after).",
+                                 "profit gain of Calvano et al. (2020, AER 110(10)) against the stage game with a "
+                                 "multi-product owner (Deneckere and Davidson, 1985, RAND Journal of Economics 16(4))",
+                                 _SESSIONS),
+    "limit_price_above_merger_nash": ("limit price above the static-Nash price after the merger", "price",
+                                      "The product's limit price after the learners settled again minus its "
+                                      "static-Nash price with the merged firm setting its products' prices "
+                                      "jointly, averaged over the sessions of the other limit outcomes.",
+                                      "greedy play from the final state (Calvano et al., 2020) against the stage "
+                                      "game with a multi-product owner (Deneckere and Davidson, 1985)", _SESSIONS),
     "merger_nash_price": ("static-Nash price after the merger", "price",
                           "The product's price in the static Nash equilibrium of the market in which the merged "
                           "firm sets its products' prices jointly to maximise their summed profit.",

@@ -143,7 +143,10 @@ def _setup_lines(res: LearnResult) -> list[str]:
     act = _act(res)
     rows = [[f"static Nash {act}", *bm["nash_actions"]], [f"joint-profit {act}", *bm["collusive_actions"]],
             ["static Nash profit", *bm["nash_profits"]], ["joint-profit profit", *bm["collusive_profits"]]]
-    lines += ["Benchmarks (continuous actions)", table(["", *_firms(res)], rows), ""]
+    merger = (res.event or {}).get("merger")
+    lines += ["Benchmarks (continuous actions" + ("; the market before the merger, single-product firms: the merger's "
+                                                  "static effect is given after the event" if merger else "") + ")",
+              table(["", *_firms(res)], rows), ""]
     return lines
 
 

@@ -111,16 +111,31 @@ def _merger_lines(mg: dict | None, firms: list[str], act: str, change=(), since:
         return ["  static merger effect: not available (the market model has no multi-product firm for a "
                 "homogeneous good)"]
     rows = []
+    above = mg.get("above_nash_after")  # not in a result stored before it was kept
     for i, name in enumerate(firms):
         static, learned = _num(mg["static_change"][i]), _num(mg["learned_change"][i])
         verdict = _verdict(learned, static, change[i] if i < len(change) else None)
         rows.append([name, fmt_num(_num(mg["nash_prices_before"][i])), fmt_num(_num(mg["nash_prices"][i])),
-                     fmt_num(static), fmt_num(learned), verdict])
-    return ["  the merger's static effect: static-Nash prices with the merged firm setting its products' prices "
-            f"jointly (Deneckere and Davidson, 1985), against the learned change (the limit {act} after settling "
-            f"minus the {since}, as above)",
-            table(["firm", f"Nash {act} before", f"Nash {act} after", "static change", "learned change",
-                   "learned vs static"], rows)]
+                     fmt_num(static), fmt_num(learned), verdict]
+                    + ([f"{fmt_num(above[i]['mean'])} {_ci(above[i])}"] if above else []))
+    out = ["  the merger's static effect: static-Nash prices with the merged firm setting its products' prices "
+           f"jointly (Deneckere and Davidson, 1985), against the learned change (the limit {act} after settling "
+           f"minus the {since}, as above)" + (f"; the last column is the learned limit {act} minus the Nash "
+                                               f"{act} after the merger, a level, where the changes start from "
+                                               "different points" if above else ""),
+           table(["firm", f"Nash {act} before", f"Nash {act} after", "static change", "learned change",
+                  "learned vs static"] + ([f"limit minus Nash {act} after"] if above else []), rows)]
+    pg = mg.get("profit_gain_after")
+    if above and not pg:
+        out.append("  profit gain measured against the market after the merger: not defined (the merger leaves one "
+                   "firm: its static Nash is the joint-profit outcome)")
+    if pg:
+        out.append(f"  profit gain measured against the market after the merger (0: the static Nash with the merged "
+                   f"firm setting its products' prices jointly, 1: joint profit, the same as before): "
+                   f"{fmt_num(pg['mean'])} {_ci(pg)}. The report's other profit gains take the static Nash of the "
+                   "market before the merger as their zero, so they count the merger's unilateral price effect as "
+                   "a gain; this one does not.")
+    return out
 
 
 def event_figure(res):

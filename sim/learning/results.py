@@ -378,6 +378,8 @@ class LearningResult:
             ev = self.event
             out["event"] = event_summary(ev["event"], ev["path"], ev["settle"], self.converged, self.limit_prices,
                                          ev["what"], lvl, ev.get("merger"), ev.get("at_event"))
+            if out["event"].get("merger", {}).get("available"):
+                _after_merger(out["event"]["merger"], self, sel, lvl)
         self._summary.update(out)
         return self._summary
 
@@ -480,6 +482,23 @@ def _alternating_summary(res: LearningResult, sel: np.ndarray, level: float) -> 
                  "ends at a fixed price pair when greedy play from its final state repeats the same two prices "
                  "every period, and in a cycle otherwise (cycle length: periods until the price pair repeats)"),
     }
+
+
+def _after_merger(mg: dict, res: LearningResult, sel: np.ndarray, level: float) -> None:
+    """The learned outcome measured against the market after a merger (in place in ``mg``, the event's ``merger``
+    entry): ``above_nash_after`` (per product, each session's limit price minus the product's static Nash price with
+    the merged firm setting its products' prices jointly) and ``profit_gain_after`` (the profit gain with that static
+    Nash as its zero; the joint-profit outcome, its one, is the same before and after a merger), over the sessions
+    ``sel`` of the other limit outcomes; no ``profit_gain_after`` after a merger to monopoly, whose static Nash is the
+    joint-profit outcome. The line-up's benchmarks stay those before the merger: the part of the learned prices above
+    them that the merger's unilateral effect alone would give is then told apart."""
+    nash = np.asarray(mg["nash_prices"], dtype=float)
+    pn = float(np.mean(mg["nash_profits"]))
+    pm = float(np.mean(res.lineup.collusive_profits))
+    mg["above_nash_after"] = [_mean_ci(res.limit_prices[sel, i] - nash[i], level) for i in range(nash.size)]
+    if pm - pn > 1e-9 * max(1.0, abs(pm)):
+        mg["profit_gain_after"] = _mean_ci((res.limit_profits[sel].mean(axis=1) - pn) / (pm - pn), level)
+    # else a merger to monopoly: its static Nash is the joint-profit outcome, and the gain is not defined
 
 
 def _stage_equilibrium(lu, actions: np.ndarray) -> bool:

@@ -153,6 +153,30 @@ def test_a_merger_to_monopoly_raises_the_learned_prices(still_learning):
     assert rise.mean() < np.mean(mg["static_change"])
     # the limit profits reported are the products' own (not the merged firm's total counted twice)
     assert np.all(res.limit_profits.sum(axis=1) <= 2 * res.lineup.collusive_profits[0] + 1e-9)
+    # against the market after it: a monopolist's static price is the joint-profit price, so the learned prices lie
+    # below it, and a profit gain with that price as its zero and its one is not defined
+    assert all(d["mean"] < 0 for d in mg["above_nash_after"]) and "profit_gain_after" not in mg
+
+
+def test_a_merger_of_two_of_three_is_measured_against_the_static_nash_after_it_too(still_learning):
+    # Deneckere and Davidson (1985): the merger raises every static Nash price, so the profit gain with the market
+    # after the merger as its zero (the profit gain of Calvano et al., 2020, with the post-merger static Nash
+    # profits) is below the one with the market before it; both from the same limit profits, by their definitions
+    first = learn(logit_market(3), QLearner(m=5, beta=2e-4), sessions=6, seed=3, convergence=1000, max_periods=8000,
+                  workers=2, keep=True)
+    ev = Event("merger", 200, 10, (1, 2))
+    lu = with_saved_grids(QLearner(m=5, beta=2e-4), first.saved, 3, ev)
+    res = learn(logit_market(3), lu, sessions=6, seed=3, convergence=2000, workers=2, start=first.saved, event=ev)
+    sm = res.summary()
+    mg = sm["event"]["merger"]
+    sel = res.converged if res.converged.any() else np.ones(res.n_sessions, bool)
+    pn, pm = np.mean(mg["nash_profits"]), np.mean(res.lineup.collusive_profits)
+    gain = (res.limit_profits[sel].mean(axis=1) - pn) / (pm - pn)
+    assert mg["profit_gain_after"]["mean"] == pytest.approx(gain.mean(), rel=1e-12)
+    assert mg["profit_gain_after"]["mean"] < sm["profit_gain"]["mean"]
+    for i in range(3):
+        assert mg["above_nash_after"][i]["mean"] == pytest.approx(
+            np.mean(res.limit_prices[sel, i] - mg["nash_prices"][i]), rel=1e-12)
 
 
 def test_sessions_saved_after_a_merger_are_not_continued_silently_as_if_unmerged(still_learning):

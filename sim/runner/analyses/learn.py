@@ -97,6 +97,8 @@ def _learn_names(cfg: dict) -> list[str]:
         out += event_names(n)
         if cfg["event"].kind == "merger":
             out += [f"analytic.merger_nash_price.firm{i + 1}" for i in range(n)]
+            out += [f"profit_gain_after_merger{q}" for q in ("", ".low", ".high")]
+            out += [f"limit_price_above_merger_nash.firm{i + 1}{q}" for i in range(n) for q in ("", ".low", ".high")]
     if cfg["settings"].get("timing") == "alternating":
         out += list(ALTERNATING_NAMES)
     if measures_price_wars(cfg["settings"], cfg.get("event")):
@@ -275,8 +277,18 @@ def learn_metrics(res: LearnResult) -> dict:
             for k, src in (("", "mean"), (".low", "low"), (".high", "high")):
                 m[f"event_price_before.{f}{k}"] = ev["before"][i][src]
                 m[f"event_price_change.{f}{k}"] = ch[src]
-        for i, p in enumerate(ev.get("merger", {}).get("nash_prices", [])):
+        mg = ev.get("merger", {})
+        for i, p in enumerate(mg.get("nash_prices", [])):
             m[f"analytic.merger_nash_price.firm{i + 1}"] = p
+        if "merger" in ev:
+            # nan where the static merger effect is not available (a homogeneous good)
+            nan = {"mean": math.nan, "low": math.nan, "high": math.nan}
+            pg = mg.get("profit_gain_after") or nan
+            for k, src in (("", "mean"), (".low", "low"), (".high", "high")):
+                m[f"profit_gain_after_merger{k}"] = pg[src]
+                for i in range(n):
+                    above = (mg.get("above_nash_after") or [nan] * n)[i]
+                    m[f"limit_price_above_merger_nash.firm{i + 1}{k}"] = above[src]
     alt = sm.get("alternating")
     if alt:
         for name, (entry, src) in ALTERNATING_NAMES.items():
