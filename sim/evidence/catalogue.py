@@ -281,7 +281,11 @@ ENTRIES: dict[str, Entry] = {
                       "cycle after which greedy play returns to the cycle it left; not a share of sessions.",
                       "counted per session, averaged over sessions", _SESSIONS + ", kept within [0, 1]"),
     "return_periods": Entry("periods to return", "periods", "Mean over converged sessions of the mean number of "
-                            "periods after a deviation until greedy play is back on the limit cycle.",
+                            "periods after a deviation until the state of greedy play is back on the limit cycle, "
+                            "over the deviations after which it returns: 1 when the period after the deviation is "
+                            "already back (as the impulse response's row +1 shows), 0 when the forced deviation was "
+                            "the price the cycle plays there; with a memory of k periods the state holds the "
+                            "deviation's prices for k periods, so it is back k periods after at the soonest.",
                             "counted per session, averaged over sessions", _SESSIONS),
     "nash_profit": Entry("static-Nash profit", "{money}", "Profit per period in the static Nash equilibrium.",
                          "stage game"),

@@ -317,7 +317,9 @@ def _deviate_exactly(x, entry, lam, play, dev, out):
     v_no = value_of(x, dev.seat, dev.discount, play)
     mu2, lam2, entry2 = cycle_of(y0, play)
     back = lam2 == lam and _on_cycle(entry2, entry, lam, play)
-    return v_dev - v_no, v_no, back, mu2 + 1.0, a_dev
+    # periods after the deviation until the state is on the cycle again: 1 when the period after it is already back,
+    # 0 when the forced deviation was the price the cycle plays there (the deviation left nothing)
+    return v_dev - v_no, v_no, back, float(mu2), a_dev
 
 
 @njit(cache=True, nogil=True)

@@ -522,7 +522,7 @@ def reference_analysis(lineup, greedy, history, z, t_end, dev, T):
         tr2, cy2 = gp.path_to_cycle(y0, rng)
         if cy2[0] in cycle_set:
             returned += 1
-            ret.append(len(tr2) + 1)
+            ret.append(len(tr2))
     return {"transient": len(transient), "cycle": cycle_profiles, "lim_prices": lim_prices,
             "lim_profits": lim_profits, "ir_prices": _means(ir[0], points), "ir_profits": _means(ir[1], points),
             "gain": sum(gains) / points, "pays": pays / points, "returned": returned / points,

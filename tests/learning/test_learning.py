@@ -148,6 +148,24 @@ def test_a_deviation_against_grim_trigger_like_strategies_does_not_pay_for_patie
         assert info[5] == 0.0  # play never returns to (high, high)
 
 
+def test_periods_to_return_count_the_periods_after_the_deviation_as_the_impulse_response_shows_them():
+    # hand-written strategies on two prices (state = last profile a0 + 2 a1), firm 1 deviating to low from (high,
+    # high) at row 1 of the response: (a) both always high: the period after the deviation (row 2) is back -- one
+    # period; (b) firm 2 copies firm 1's last price (tit for tat, Axelrod, 1984), firm 1 always high: (high, low) in
+    # row 2, (high, high) again in row 3 -- two periods; (c) a forced "deviation" to the price played: none left,
+    # zero periods
+    for g0, g1, dev_action, periods, rows in (
+            ([1, 1, 1, 1], [1, 1, 1, 1], 0, 1.0, [[1.9, 1.5, 1.9, 1.9], [1.9, 1.9, 1.9, 1.9]]),
+            ([1, 1, 1, 1], [0, 1, 0, 1], 0, 2.0, [[1.9, 1.5, 1.9, 1.9], [1.9, 1.9, 1.5, 1.9]]),
+            ([1, 1, 1, 1], [1, 1, 1, 1], 1, 0.0, [[1.9, 1.9, 1.9, 1.9], [1.9, 1.9, 1.9, 1.9]])):
+        lu, g = _two_by_two(g0, g1)
+        out = limit_outputs(2, 2, 8)
+        L.analyse_limit(3, lu.play(g, 0), DeviationInputs(0, dev_action, 0.9, 8), out)
+        info, ir_prices = out[-1], out[4]
+        assert ir_prices[:, 0].tolist() == rows[0] and ir_prices[:, 1].tolist() == rows[1]
+        assert info[5] == 1.0 and info[6] == periods  # returned, after this many periods
+
+
 # ---- sessions: reproducibility and bookkeeping ----------------------------------------------------
 
 
