@@ -117,8 +117,9 @@ def configure(p: argparse.ArgumentParser) -> None:
     g.add_argument("--counterfactual-share", metavar="S", help="with --update mixed (and required by it): probability "
                                                                "in (0, 1) that each action not played is updated")
     g.add_argument("--family", metavar="F", help="q (Q-learning; default), ucb or thompson (bandits over the grid that "
-                                                 "keep no state); fixed policies are set in a file "
-                                                 "(learning.policy_from)")
+                                                 "keep no state); fixed (a saved greedy policy) needs policy_from and "
+                                                 "firm in the experiment file, in [learning] or a [[strategies]] "
+                                                 "entry")
     g.add_argument("--exploration", metavar="C", help="bandits: UCB's constant c or Thompson's posterior scale v "
                                                       "(> 0; default 1)")
     g.add_argument("--noise", metavar="SD", help="bandits: standard deviation of the error on the scaled profit they "

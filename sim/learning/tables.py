@@ -24,7 +24,7 @@ from sim.learning.signals import SIGNAL_BAND, SIGNAL_CONSTRAINTS, check_saved_ob
 from sim.models.market import market_from_dict
 from strategies import strategy_from_dict
 from strategies.qlearning import QLearner
-from strategies.registry import check_seats
+from strategies.registry import check_seats, known_names
 
 __all__ = [
     "EXPERIMENT_KEYS",
@@ -120,8 +120,13 @@ def _lineup_from_entries(entries, base: dict, n_firms: int) -> list:
         key = f"strategies[{k + 1}]"
         if not isinstance(t, dict):
             raise InputError(key, f"must be a table with a 'strategy' key, got {t!r}")
+        name = t.get("strategy")
+        if name != QLearner.name and (not isinstance(name, str) or name not in known_names()):
+            what = "missing" if name is None else f"unknown: {name!r}"
+            raise InputError(f"{key}.strategy", f"{what}; 'qlearning' for a learner (any family: q, ucb, thompson or "
+                                                f"fixed), or an automaton: {', '.join(known_names())}")
         seats = check_seats(f"{key}.seats", t.get("seats", 1), n_firms)
-        if t.get("strategy") == QLearner.name:
+        if name == QLearner.name:
             strat = learner_from_entry(t, base, key, skip=("strategy", "seats"))
         else:
             strat = strategy_from_dict(t, key)

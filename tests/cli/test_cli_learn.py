@@ -245,6 +245,20 @@ def test_seats_follow_the_simulation_rules(tmp_path, capsys, seats, key, message
     assert err.startswith(f"supergame learn: error: {key}: {message}")
 
 
+@pytest.mark.parametrize("old, new, words", [
+    ('strategy = "tit_for_tat"', 'family = "ucb"', "missing; 'qlearning' for a learner"),
+    ('strategy = "tit_for_tat"', 'strategy = "q_learning"', "unknown: 'q_learning'; 'qlearning' for a learner"),
+], ids=["missing", "misspelt"])
+def test_a_line_up_entry_without_a_known_strategy_names_the_learner_too(tmp_path, capsys, old, new, words):
+    # a learner's entry needs strategy = "qlearning" (whatever its family); the error says so beside the automata
+    p = tmp_path / "bad.toml"
+    p.write_text(VERSUS.replace(old, new))
+    assert main(["learn", str(p)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and err.startswith("supergame learn: error: strategies[2].strategy: " + words)
+    assert "tit_for_tat" in err
+
+
 RANDOM = VERSUS.replace('strategy = "tit_for_tat"', 'strategy = "forgiving_tit_for_tat"\nforgiveness = 0.3')
 
 
