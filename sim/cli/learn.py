@@ -12,7 +12,7 @@ from sim.core.errors import InputError
 from sim.core.files import relative_file_name
 from sim.core.jsonutil import dumps
 from sim.core.parallel import usable_cores
-from sim.core.tomlfile import read_toml
+from sim.core.tomlfile import file_sha256, read_toml
 from sim.evidence.learn import RENDERER
 from sim.evidence.render import write_figures
 from sim.learning.tables import RUN_CONSTRAINTS
@@ -270,12 +270,22 @@ def run(args) -> int:
         raise _renamed(exc, flags) from None
     res = one.result
     written = [str(p) for p in write_figures(RENDERER.figures(res), args.plot)] if args.plot else []
+    saved = None
+    if isinstance(save_to, str) and save_to.strip():
+        saved = {"file": save_to, "sha256": file_sha256(save_to), "sessions": res.summary["sessions"]}
     if args.json:
         out = RENDERER.as_json(res)
+        caution = out.pop("caution")
         if written:
-            caution = out.pop("caution")
-            out.update(figures=written, caution=caution)
+            out["figures"] = written
+        if saved:
+            out["saved_learners"] = saved
+        out["caution"] = caution
         emit(dumps(out, indent=2))
         return 0
-    emit("\n".join([RENDERER.console(res), *(f"wrote {p}" for p in written)]))
+    lines = [RENDERER.console(res), *(f"wrote {p}" for p in written)]
+    if saved:
+        lines.append(f"saved the learners of {saved['sessions']} sessions to {save_to} (SHA-256 "
+                     f"{saved['sha256'][:12]}...): learning.continue_from = \"{save_to}\" continues them")
+    emit("\n".join(lines))
     return 0

@@ -27,9 +27,21 @@ def folder(tmp_path, monkeypatch):
 
 
 def test_a_cost_shock_in_two_steps_reports_prices_after_it_and_the_time_to_settle(folder, capsys):
+    import hashlib
+    import json
+
     assert main(["learn", "step1.toml"]) == 0
-    capsys.readouterr()
+    out = capsys.readouterr().out
     assert (folder / "learners.npz").is_file()
+    # the command says what it saved, with the file's SHA-256, and how to continue from it
+    digest = hashlib.sha256((folder / "learners.npz").read_bytes()).hexdigest()
+    assert out.rstrip("\n").splitlines()[-1] == (f"saved the learners of 4 sessions to learners.npz (SHA-256 "
+                                                 f"{digest[:12]}...): learning.continue_from = \"learners.npz\" "
+                                                 "continues them")
+    assert main(["learn", "step1.toml", "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["saved_learners"] == {"file": "learners.npz", "sha256": digest, "sessions": 4}
+    assert list(doc)[-1] == "caution"
     assert main(["learn", "step2.toml"]) == 0
     out = capsys.readouterr().out
     assert "After the event (the market changes: market.cost 1.0 -> 1.2)" in out

@@ -31,7 +31,9 @@ def _ready(doc: dict) -> None:
     name = (doc.get("learning") or {}).get("continue_from")
     if "event" in doc and isinstance(name, str) and not Path(name).is_file():
         raise InputError("learning.continue_from", f"no such file: {name} (run the first step, which saves the "
-                                                   "learners, before the event)")
+                                                   "learners, before the event: supergame learn of it writes them "
+                                                   "here; supergame run writes them in its run folder, with the "
+                                                   "cell's number before the extension)")
 
 
 def _inputs(doc: dict) -> list[tuple[str, str]]:
