@@ -6,6 +6,7 @@ import argparse
 
 from sim.cli._common import emit
 from sim.cli.run import add_plugin_option
+from sim.core.errors import InputError
 from sim.core.jsonutil import dumps
 from sim.runner.cost import describe_bytes, describe_seconds
 from sim.runner.experiment import load_experiment
@@ -62,7 +63,34 @@ def describe(exp) -> str:
         c = exp.cost
         parts.append(f"estimated cost: {c['work']:.3g} {c['unit']}, about {describe_seconds(c['seconds'])} on one "
                      f"core, at most {describe_bytes(c['cell_memory'])} of arrays per cell")
+    wait = waiting(exp)
+    if wait:
+        parts.append(f"not ready to run yet: {wait}")
     return "; ".join(parts)
+
+
+def waiting(exp) -> str | None:
+    """What a valid experiment still waits for before it can run (``Kind.ready``: a file an earlier run writes),
+    as the run would refuse it, or None.
+
+    Parameters
+    ----------
+    exp : Experiment
+
+    Returns
+    -------
+    str or None
+        ``key: message`` of the first cell that is not ready.
+    """
+    ready = exp.kind_spec().ready
+    if ready is None:
+        return None
+    for i in range(exp.n_cells):
+        try:
+            ready(exp.cell(i).doc)
+        except InputError as exc:
+            return f"{exc.key}: {exc.message}"
+    return None
 
 
 def run(args) -> int:
@@ -90,7 +118,8 @@ def run(args) -> int:
         if args.json:
             emit(dumps({"file": f, "valid": True, "name": exp.name, "kind": exp.kind, "cells": exp.n_cells,
                         "parameters": [{"path": p.path, "values": list(p.values)} for p in exp.parameters],
-                        "metrics": list(exp.metric_names), "sha256": exp.sha256, "cost": exp.cost}))
+                        "metrics": list(exp.metric_names), "sha256": exp.sha256, "cost": exp.cost,
+                        "waiting": waiting(exp)}))
         else:
             emit(describe(exp))
     return 0

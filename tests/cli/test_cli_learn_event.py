@@ -6,6 +6,8 @@ the event; a static Nash price that rises with marginal cost in logit Bertrand c
 Thisse, 1992, "Discrete Choice Theory of Product Differentiation", chapter 6: p = c + mu / (1 - share)).
 """
 
+import json
+
 import pytest
 
 from sim.cli import main
@@ -81,9 +83,13 @@ def test_the_second_step_before_the_first_names_the_saved_file(folder, capsys):
     assert main(["learn", "step2.toml"]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "learning.continue_from" in err and "learners.npz" in err
-    # check accepts the file as still to come (the first step may run later); run refuses it, writing nothing
+    # check accepts the file as still to come (the first step may run later), and says the run waits for it; run
+    # refuses it, writing nothing
     assert main(["check", "step2.toml"]) == 0
-    capsys.readouterr()
+    out = capsys.readouterr().out
+    assert "valid learn experiment" in out and "not ready to run yet: learning.continue_from: no such file" in out
+    assert main(["check", "step2.toml", "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["waiting"].startswith("learning.continue_from: no such file")
     assert main(["run", "step2.toml", "--out", "run"]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "learning.continue_from" in err and "learners.npz" in err
