@@ -32,6 +32,10 @@ from sim.evidence.catalogue_state_play import STATE_PLAY_ENTRIES
 __all__ = ["ENTRIES", "PARAMETERS", "Described", "Entry", "describe", "describe_parameter", "glossary", "money"]
 
 
+#: the unit of a discounted sum of profits per period
+_DISCOUNTED = "{currency} (discounted sum of profits per period)"
+
+
 @dataclass(frozen=True)
 class Entry:
     """One stem of the catalogue.
@@ -203,19 +207,19 @@ ENTRIES: dict[str, Entry] = {
                          "simulations: " + _RATIO_MEAN + "; learning sessions: the mean of each converged "
                          "session's profit gain, Student's t interval across independent sessions"),
     "profit": Entry("mean profit", "{money}", "The firm's profit per period.", "counted", _RATIO_MEAN),
-    "discounted_profit": Entry("discounted profit", "{money} (discounted sum)",
+    "discounted_profit": Entry("discounted profit", _DISCOUNTED,
                                "Sum over the horizon of delta^t times the profit.", "counted", _MEAN),
     "nash_price": Entry("static-Nash price", "price", "Market price of the static Nash equilibrium.", "stage game"),
     "collusive_price": Entry("collusive price", "price", "Market price under the agreement.", "stage game"),
-    "deviation.gain": Entry("gain from a one-shot deviation", "{money} (discounted sum)",
+    "deviation.gain": Entry("gain from a one-shot deviation", _DISCOUNTED,
                             "Paired difference of the deviator's discounted profit with and without the deviation: "
                             "positive means the line-up is not an equilibrium.",
                             "one-shot deviation principle (Mailath and Samuelson, 2006, section 2.2)", _MEAN),
     "deviation.pays": Entry("deviation pays", "yes (1) / no (0)", "Whether the mean gain is positive.", "sign"),
     "deviation.firm": Entry("deviating firm", "firm number", "The firm that deviates once.", "given"),
-    "deviation.conform_value": Entry("discounted profit without deviating", "{money} (discounted sum)",
+    "deviation.conform_value": Entry("discounted profit without deviating", _DISCOUNTED,
                                      "The deviator's mean discounted profit when it follows its strategy.", "counted"),
-    "deviation.deviate_value": Entry("discounted profit when deviating", "{money} (discounted sum)",
+    "deviation.deviate_value": Entry("discounted profit when deviating", _DISCOUNTED,
                                      "The deviator's mean discounted profit with the deviation.", "counted"),
     "critical_delta": Entry("critical discount factor of the schemes played", "",
                             "The highest critical discount factor among the punishment schemes the line-up plays.",
@@ -267,7 +271,7 @@ ENTRIES: dict[str, Entry] = {
                              "learning rivals' mean (an automaton's response is its rule, not learned; every "
                              "rival's when none learns).",
                              "impulse response (Calvano et al., 2020)", _SESSIONS),
-    "deviation_gain": Entry("gain from the forced deviation", "{money} (discounted sum)",
+    "deviation_gain": Entry("gain from the forced deviation", _DISCOUNTED,
                             "Discounted profit of the deviating firm with the deviation minus without.",
                             "impulse response (Calvano et al., 2020)", _SESSIONS),
     "deviation_pays": Entry("share of deviations that pay", "0 to 1",

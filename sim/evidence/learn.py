@@ -106,6 +106,12 @@ def _bandit_line(who: str, c: dict, act: str) -> str:
             f"the grid{noise}")
 
 
+def _q_init_words(res: LearnResult) -> str:
+    """The end of "this run's seed (...) ... not used": with the Q initialisation where a Q-learner sits."""
+    q = any(d.get("family", "q") == "q" for d in res.learners if isinstance(d, dict) and "strategy" not in d)
+    return " and Q initialisation are" if q else " is"
+
+
 def _setup_lines(res: LearnResult) -> list[str]:
     """The market, the seats, the run and how long sessions took to converge."""
     sm, st = res.summary, res.settings
@@ -114,7 +120,7 @@ def _setup_lines(res: LearnResult) -> list[str]:
     lines = [f"Market: {describe_market(market.to_dict(), res.n_firms)}", *_seat_lines(res)]
     cont = st.get("continued")
     origin = (f"continued from saved learners, not new: each goes on from its saved state and random stream, so "
-              f"this run's seed ({st['seed']}) and Q initialisation are not used" if cont else f"seed {st['seed']}")
+              f"this run's seed ({st['seed']}){_q_init_words(res)} not used" if cont else f"seed {st['seed']}")
     after = " after the event" if res.event else ""
     lines.append(f"Sessions: {sm['sessions']} ({origin}), converged after {st['convergence']} periods "
                  f"without a change of any greedy strategy, cap {st['max_periods']:g} periods{after}")
@@ -134,9 +140,9 @@ def _setup_lines(res: LearnResult) -> list[str]:
     lines.append(f"Converged: {c['count']} of {c['n']} sessions ({_pct(c['share'])}, {lvl} CI "
                  f"{_pct(c['low'])} to {_pct(c['high'])})")
     if per["n"]:
-        ci = f"[{per['low']:.4g}, {per['high']:.4g}]" if per["n"] > 1 else "-"
+        ci = f"[{per['low']:,.0f}, {per['high']:,.0f}]" if per["n"] > 1 else "-"
         start = " (counted from each session's start)" if res.event or cont else ""
-        lines.append(f"Periods to convergence{start}: mean {per['mean']:.4g} {ci}, median {per['q50']:,.0f}, "
+        lines.append(f"Periods to convergence{start}: mean {per['mean']:,.0f} {ci}, median {per['q50']:,.0f}, "
                      f"5-95 % {per['q05']:,.0f} to {per['q95']:,.0f}")
     lines.append("")
     bm = sm["benchmarks"]

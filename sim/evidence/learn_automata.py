@@ -116,7 +116,8 @@ def automaton_lines(res) -> list[str]:
         ps, tr = a["punishment_share"], a["triggers"]
         lines.append(f"  firm {a['firm']} ({a['strategy'].replace('_', ' ')}): triggered in "
                      f"{_pct(a['triggered']['share'])} of sessions, {_times(tr['mean'])} per session "
-                     f"[{tr['low']:,.5g}, {tr['high']:,.5g}]; share of the session punishing {_pct(ps['mean'])} "
+                     f"[{tr['low']:,.5g}, {tr['high']:,.5g}]; share of the session in a non-collusive (punishing or "
+                     f"competing) state {_pct(ps['mean'])} "
                      f"[{_pct(ps['low'])}, {_pct(ps['high'])}]; still punishing at the end in "
                      f"{_pct(a['punishing_at_end']['share'])} of sessions")
     lines.append("Why the sessions ended where they did (periods count from the start of the session):")

@@ -15,6 +15,11 @@ __all__ = ["error_play_lines", "observe_lines", "shock_lines", "shock_response_f
 _SHAPES = {"lognormal": "exp(sigma Z - sigma^2/2)", "normal": "1 + sigma Z, floored at 0"}
 
 
+
+def _steps(x: float) -> str:
+    """A number of grid steps in words ("1 grid step", "0.5 grid steps")."""
+    return f"{x:g} grid step" + ("" if x == 1 else "s")
+
 def shock_lines(res: LearnResult) -> list[str]:
     """The demand shock of a run in words, and what it does and does not change (no lines without one).
 
@@ -58,7 +63,7 @@ def observe_lines(res: LearnResult) -> list[str]:
                 "rival's undercut and a bad draw look alike: Green and Porter, 1984)"]
     if st.get("observe") == "noisy_prices":
         return [f"What the learners see: their own last price exactly, and each rival's with a normal error of "
-                f"{st['price_noise']:g} grid steps rounded to the grid, every learner drawing its own errors "
+                f"{_steps(st['price_noise'])} rounded to the grid, every learner drawing its own errors "
                 "(imperfect monitoring: Stigler, 1964; Green and Porter, 1984); the limit outcomes are greedy play "
                 "without error, play with error after learning is reported apart"]
     return []
@@ -87,7 +92,7 @@ def error_play_lines(res: LearnResult) -> list[str]:
     prices = ", ".join(f"firm {i + 1} {fmt_num(e['value'])}" for i, e in enumerate(ep["prices"]))
     return ["", f"Play with error after learning: each session's learned strategies play on from its final state for "
                 f"{ep['periods']:,} periods, every learner seeing its rivals' prices with the error of learning "
-                f"({ep['noise']:g} grid steps); no learning, no exploration, no demand shock "
+                f"({_steps(ep['noise'])}); no learning, no exploration, no demand shock "
                 f"({pg['n']} sessions)",
             f"  profit gain with error: {fmt_num(pg['value'])} ({ci(pg)}); minus the limit without error, session by "
             f"session: {fmt_num(ch['value'])} ({ci(ch)})",

@@ -58,11 +58,14 @@ def signal_lines(res: LearnResult) -> list[str]:
     lvl = f"{100 * res.confidence:g} %"
     dep, dur = sr["depth"], sr["duration"]
     after = f", after {fmt_num(dur['value'], 3)} periods on average" if dur["n"] else ""
-    depth = f", by {fmt_num(dep['value'])} on average" if dep["n"] else ""
+    depth = f", a mean change of {fmt_num(dep['value'])} in those sessions" if dep["n"] else ""
+    cut = sr["cut"]
+    back = (f"; it is back on the path without the draw in the last 4 of {sr['periods']} periods in "
+            f"{_pct(sr['temporary'])}{after}" if cut.get("value") else
+            "; no session cut its price, so there is no price war to end")
     lines.append(f"Learned price wars: after one adverse demand draw (shock {fmt_num(sr['theta'])} in period 1, "
                  f"learning going on, the same random numbers with and without it), the mean price falls in period 2 "
-                 f"in {_pct(sr['cut'])} of {sr['cut']['n']} sessions ({lvl} CI){depth}; it is back on the path "
-                 f"without the draw in the last 4 of {sr['periods']} periods in {_pct(sr['temporary'])}{after}")
+                 f"in {_pct(cut)} of {cut['n']} sessions ({lvl} CI){depth}{back}")
     g = sr.get("greedy")
     if g:
         lines.append(f"The learned strategies alone (greedy play from the same final states, no learning, every "

@@ -46,3 +46,28 @@ def test_a_share_nothing_measured_is_said_so_not_computed():
     assert _pct({"value": None, "low": None, "high": None, "n": 0}) == "- (no session measured)"
     assert _pct({"value": 0.25, "low": None, "high": None, "n": 1}) == "25.0 %"
     assert _pct({"value": 0.25, "low": 0.1, "high": 0.5, "n": 8}) == "25.0 % (10.0 % to 50.0 %)"
+
+
+def test_words_that_read_as_a_user_would_read_them():
+    """A price cut is stated as a change (no "falls by -0.12"); no session that cut leaves no war to end; a number of
+    grid steps is singular at one; a discounted sum is not a flow per period."""
+    from types import SimpleNamespace
+
+    from sim.evidence.catalogue import describe
+    from sim.evidence.learn_shocks import _steps
+    from sim.evidence.learn_signals import signal_lines
+
+    def est(value, n=40):
+        return {"value": value, "low": 0.0, "high": 0.1, "n": n}
+
+    sr = {"theta": 0.74, "periods": 20, "cut": est(0.0), "temporary": est(0.0), "depth": {"value": None, "n": 0},
+          "duration": {"value": None, "n": 0}, "change": [est(0.0)] * 21}
+    res = SimpleNamespace(settings={"observe": "prices"}, shock_response=sr, confidence=0.95)
+    text = "\n".join(signal_lines(res))
+    assert "no session cut its price, so there is no price war to end" in text and "back on the path" not in text
+    sr.update(cut=est(0.5), depth={"value": -0.1205, "n": 20}, duration={"value": 3.0, "n": 10})
+    text = "\n".join(signal_lines(res))
+    assert "a mean change of -0.1205 in those sessions" in text and "by -" not in text
+    assert "back on the path without the draw" in text
+    assert _steps(1.0) == "1 grid step" and _steps(0.5) == "0.5 grid steps"
+    assert describe("deviation_gain").unit == "currency units (discounted sum of profits per period)"
