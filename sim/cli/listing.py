@@ -10,6 +10,7 @@ from sim.core.errors import InputError
 from sim.core.jsonutil import dumps
 from sim.core.params import describe_parameters
 from sim.core.text import table
+from sim.learning.tables import settings_listing
 from sim.models.demand import Demand
 from sim.runner.kinds import get_kind, known_kinds, load_plugins
 from strategies.registry import LEARNERS, known_names, strategy_class
@@ -69,6 +70,7 @@ def catalogue(what=WHAT) -> dict:
     if "learners" in what:
         out["learners"] = [{"name": n, "summary": getattr(c, "summary", ""), "parameters": describe_parameters(c)}
                            for n, c in sorted(LEARNERS.items())]
+        out["learn_settings"] = settings_listing()
     if "kinds" in what:
         out["kinds"] = [{"name": n, "summary": get_kind(n).summary, "tables": list(get_kind(n).tables)}
                         for n in known_kinds()]
@@ -78,6 +80,13 @@ def catalogue(what=WHAT) -> dict:
     return out
 
 
+def _default(p: dict) -> str:
+    """A parameter's default as listed: its value, or in words what none stands for."""
+    if p.get("default_words"):
+        return p["default_words"]
+    return "-" if p["default"] is None else repr(p["default"])
+
+
 def _text(doc: dict) -> str:
     lines = []
     for section in ("strategies", "learners", "models"):
@@ -85,10 +94,14 @@ def _text(doc: dict) -> str:
             head = f"{_LABEL[section]} {item['name']}"
             extra = item.get("summary") or ", ".join(item.get("competition", []))
             lines.append(f"{head}: {extra}" if extra else head)
-            rows = [[p["name"], p["allowed"], "-" if p["default"] is None else repr(p["default"])]
-                    for p in item["parameters"]]
+            rows = [[p["name"], p["allowed"], _default(p)] for p in item["parameters"]]
             if rows:
                 lines.append(table(["parameter", "allowed", "default"], rows, "lll"))
+            lines.append("")
+        if section == "learners" and doc.get("learn_settings"):
+            lines.append("settings of a learn experiment besides the learners' (key path in the experiment file)")
+            lines.append(table(["key", "allowed", "default"], [[p["name"], p["allowed"], _default(p)]
+                                                               for p in doc["learn_settings"]], "lll"))
             lines.append("")
     if "kinds" in doc:
         lines.append(table(["experiment kind", "tables", "what a cell computes"],

@@ -493,9 +493,11 @@ def describe_parameters(cls: type) -> list[dict]:
     -------
     list of dict
         One per constructor argument: ``name``, ``allowed`` (the constraint's description) and ``default``
-        (``None`` when the argument has none).
+        (``None`` when the argument has none); ``default_words`` too where the class says in words what a default
+        of ``None`` stands for (its ``_default_words``, e.g. a number of prices that depends on another argument).
     """
     sig = inspect.signature(cls.__init__)
+    words = getattr(cls, "_default_words", {})
     out = []
     for p in sig.parameters.values():
         if p.name == "self" or p.kind in (p.VAR_POSITIONAL, p.VAR_KEYWORD):
@@ -504,4 +506,6 @@ def describe_parameters(cls: type) -> list[dict]:
         default = None if p.default is inspect.Parameter.empty else p.default
         out.append({"name": p.name, "allowed": c.describe() if c is not None else "any",
                     "default": default.tolist() if isinstance(default, np.ndarray) else default})
+        if p.name in words:
+            out[-1]["default_words"] = words[p.name]
     return out

@@ -13,7 +13,7 @@ from sim.core.parallel import usable_cores
 from sim.core.params import Integer, Options, Real, optional
 from sim.core.tables import refuse_unknown
 from sim.learning.alternating import TIMINGS, check_alternating
-from sim.learning.events import EVENT_KEYS, check_event, event_from_table, with_saved_grids
+from sim.learning.events import EVENT_KEYS, EVENT_KINDS, check_event, event_from_table, with_saved_grids
 from sim.learning.lineup import compile_lineup
 from sim.learning.merger import refuse_merged
 from sim.learning.noisy_prices import PRICE_NOISE, check_noisy_lineup
@@ -33,8 +33,10 @@ __all__ = [
     "LEARNING_KEYS",
     "RUN_CONSTRAINTS",
     "RUN_KEYS",
+    "SETTING_DEFAULTS",
     "learner_from_entry",
     "learning_from_dict",
+    "settings_listing",
 ]
 
 #: the settings of a run of learning sessions (arguments of :func:`sim.learning.session.learn`), as data
@@ -54,6 +56,11 @@ RUN_CONSTRAINTS = {
     **SHOCK_CONSTRAINTS,
     **SIGNAL_CONSTRAINTS,
 }
+#: the defaults of the run's settings (:func:`learning_from_dict`; listed by ``supergame list learners``)
+SETTING_DEFAULTS = {"convergence": 100_000, "max_periods": 1_000_000_000, "near": 0.1, "limit_periods": LIMIT_PERIODS,
+                    "sessions": 100, "seed": 0, "workers": None, "confidence": 0.95, "response_periods": 15,
+                    "timing": "simultaneous", "demand_noise": "lognormal", "demand_sigma": 0.0, "observe": "prices",
+                    "signal_band": SIGNAL_BAND, "price_noise": PRICE_NOISE}
 #: parameters of a Q-learner in [learning] and in a ``strategy = "qlearning"`` entry
 LEARNER_PARAMS = ("alpha", "beta", "delta", "m", "xi", "grid", "k", "init", "update", "counterfactual_share", "family",
                   "exploration", "noise", "policy_from", "firm", "session")
@@ -251,18 +258,19 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
         # after an event the learners keep the saved grids, whatever the changed market's own grid would be
         start = load_learners(lt["continue_from"], "learning.continue_from")
         learner = with_saved_grids(learner, start, n_firms, event)
+    d = SETTING_DEFAULTS
     settings = {
-        "convergence": _setting(lt, "learning", "convergence", "convergence", 100_000),
-        "max_periods": _setting(lt, "learning", "max_periods", "max_periods", 1_000_000_000),
-        "near": _setting(lt, "learning", "near", "near", 0.1),
-        "limit_periods": _setting(lt, "learning", "limit_periods", "limit_periods", LIMIT_PERIODS),
-        "sessions": _setting(rt, "run", "sessions", "sessions", 100),
-        "seed": _setting(rt, "run", "seed", "seed", 0),
-        "workers": _setting(rt, "run", "workers", "workers", None),
-        "confidence": _setting(rt, "run", "confidence", "confidence", 0.95),
-        "response_periods": _setting(it, "impulse", "periods", "response_periods", 15),
+        "convergence": _setting(lt, "learning", "convergence", "convergence", d["convergence"]),
+        "max_periods": _setting(lt, "learning", "max_periods", "max_periods", d["max_periods"]),
+        "near": _setting(lt, "learning", "near", "near", d["near"]),
+        "limit_periods": _setting(lt, "learning", "limit_periods", "limit_periods", d["limit_periods"]),
+        "sessions": _setting(rt, "run", "sessions", "sessions", d["sessions"]),
+        "seed": _setting(rt, "run", "seed", "seed", d["seed"]),
+        "workers": _setting(rt, "run", "workers", "workers", d["workers"]),
+        "confidence": _setting(rt, "run", "confidence", "confidence", d["confidence"]),
+        "response_periods": _setting(it, "impulse", "periods", "response_periods", d["response_periods"]),
     }
-    if _setting(lt, "learning", "timing", "timing", "simultaneous") != "simultaneous":
+    if _setting(lt, "learning", "timing", "timing", d["timing"]) != "simultaneous":
         settings["timing"] = lt["timing"]
     _demand_shock(lt, settings, doc)
     _signal(lt, settings, doc)
@@ -299,22 +307,24 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
 def _demand_shock(lt: dict, settings: dict, doc: dict) -> None:
     """``learning.demand_noise`` and ``learning.demand_sigma`` (:mod:`sim.learning.shocks`), written into the
     settings only with a shock (``demand_sigma > 0``), which needs simultaneous moves and no event."""
-    code, sigma = shock_code(lt.get("demand_noise", "lognormal"), lt.get("demand_sigma", 0.0))
+    code, sigma = shock_code(lt.get("demand_noise", SETTING_DEFAULTS["demand_noise"]),
+                             lt.get("demand_sigma", SETTING_DEFAULTS["demand_sigma"]))
     if not code:
         return
     if "timing" in settings or "event" in doc:
         raise InputError("learning.demand_sigma", "a demand shock needs simultaneous moves (learning.timing = "
                                                   "'simultaneous') and no [event]")
-    settings["demand_noise"], settings["demand_sigma"] = lt.get("demand_noise", "lognormal"), sigma
+    settings["demand_noise"], settings["demand_sigma"] = lt.get("demand_noise", SETTING_DEFAULTS["demand_noise"]), sigma
 
 
 def _signal(lt: dict, settings: dict, doc: dict) -> None:
     """``learning.observe`` with ``learning.signal_band`` (:mod:`sim.learning.signals`) or ``learning.price_noise``
     (:mod:`sim.learning.noisy_prices`), written into the settings only with the profit signal or noisy prices,
     which need simultaneous moves and no event."""
-    observe = SIGNAL_CONSTRAINTS["observe"].check("learning.observe", lt.get("observe", "prices"))
-    band = SIGNAL_CONSTRAINTS["signal_band"].check("learning.signal_band", lt.get("signal_band", SIGNAL_BAND))
-    noise = SIGNAL_CONSTRAINTS["price_noise"].check("learning.price_noise", lt.get("price_noise", PRICE_NOISE))
+    d = SETTING_DEFAULTS
+    observe = SIGNAL_CONSTRAINTS["observe"].check("learning.observe", lt.get("observe", d["observe"]))
+    band = SIGNAL_CONSTRAINTS["signal_band"].check("learning.signal_band", lt.get("signal_band", d["signal_band"]))
+    noise = SIGNAL_CONSTRAINTS["price_noise"].check("learning.price_noise", lt.get("price_noise", d["price_noise"]))
     if observe == "prices":
         return
     if "timing" in settings or "event" in doc:
@@ -373,3 +383,32 @@ def _file_name(tab: dict, key: str) -> str | None:
     if value is None:
         return None
     return relative_file_name(f"learning.{key}", value)
+
+
+def settings_listing() -> list[dict]:
+    """The settings of a learn experiment besides the learners' parameters, for ``supergame list learners``: each
+    key path with what it accepts (the validator's own constraint where there is one) and its default.
+
+    Returns
+    -------
+    list of dict
+        ``name`` (key path), ``allowed`` and ``default`` (``None``: none).
+    """
+    c, d = RUN_CONSTRAINTS, SETTING_DEFAULTS
+    rows = [(f"learning.{k}", c[k].describe(), d[k]) for k in
+            ("convergence", "max_periods", "near", "limit_periods", "timing", "demand_noise", "demand_sigma",
+             "observe", "signal_band", "price_noise")]
+    rows += [("learning.save_to", "a relative file name (saved learners written there)", None),
+             ("learning.continue_from", "a relative file name (saved learners read from there)", None)]
+    rows += [(f"run.{k}", c[k].describe(), d[k]) for k in ("sessions", "seed", "workers", "confidence")]
+    rows += [("impulse.firm", "an integer in [1, number of firms]", 1),
+             ("impulse.action", "'best_response' or a number >= 0", "best_response"),
+             ("impulse.periods", c["response_periods"].describe(), d["response_periods"]),
+             ("event.kind", f"one of {', '.join(repr(k) for k in EVENT_KINDS)} (required in an [event])", None),
+             ("event.periods", "an integer in [1, 10000000]", 1000),
+             ("event.firms", "the merging firms by number from 1 (kind = 'merger' only)", None)]
+    out = [{"name": n, "allowed": a, "default": v} for n, a, v in rows]
+    for row in out:
+        if row["name"] == "run.workers":
+            row["default_words"] = "every usable core"
+    return out

@@ -30,3 +30,28 @@ def test_the_listing_follows_the_validator(cli):
     assert r.code == 0 and "strategy finite_punishment" in r.out and length["allowed"] in r.out
     r = cli("list", "everything")
     assert r.code == 2 and "WHAT: must be among" in r.err
+
+
+def test_every_setting_of_a_learn_experiment_is_listed_with_the_default_the_reader_uses(cli):
+    # the keys the learn reader accepts besides the learners' parameters are all listed, and a document without them
+    # reads to the listed defaults (one table of defaults serves both)
+    from sim.learning.events import EVENT_KEYS
+    from sim.learning.tables import IMPULSE_KEYS, LEARNER_PARAMS, LEARNING_KEYS, RUN_KEYS, learning_from_dict
+
+    r = cli("list", "learners", "--json")
+    rows = {p["name"]: p for p in json.loads(r.out)["learn_settings"]}
+    expected = ({f"learning.{k}" for k in LEARNING_KEYS if k not in LEARNER_PARAMS} | {f"run.{k}" for k in RUN_KEYS}
+                | {f"impulse.{k}" for k in IMPULSE_KEYS} | {f"event.{k}" for k in EVENT_KEYS})
+    assert set(rows) == expected
+    doc = {"market": {"model": "bertrand", "demand": "logit", "quality": 2.0, "outside": 0.0, "mu": 0.25, "cost": 1.0,
+                      "n_firms": 2}, "learning": {"m": 3}}
+    st = learning_from_dict(doc)["settings"]
+    for key, name in (("learning.convergence", "convergence"), ("learning.max_periods", "max_periods"),
+                      ("learning.near", "near"), ("learning.limit_periods", "limit_periods"),
+                      ("run.sessions", "sessions"), ("run.seed", "seed"), ("run.confidence", "confidence"),
+                      ("impulse.periods", "response_periods")):
+        assert st[name] == rows[key]["default"], key
+    assert st["workers"] is None and rows["run.workers"]["default_words"] == "every usable core"
+    m = next(p for p in json.loads(r.out)["learners"][0]["parameters"] if p["name"] == "m")
+    assert m["default"] is None and m["default_words"].startswith("15 without a grid")
+    assert "15 without a grid" in cli("list", "learners").out
