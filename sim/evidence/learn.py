@@ -429,8 +429,17 @@ def _impulse_figure(res: LearnResult):
             ax.fill_between(tau, lo[:, i], hi[:, i], alpha=0.2)
     bm = sm["benchmarks"]
     which = "actions" if act == "quantity" else "prices"
-    ax.axhline(float(np.mean(bm[f"nash_{which}"])), color="grey", ls=":", label=f"static Nash {act}")
+    merger = (res.event or {}).get("merger") or {}
+    before = " before the merger" if merger else ""
+    ax.axhline(float(np.mean(bm[f"nash_{which}"])), color="grey", ls=":", label=f"static Nash {act}{before}")
     ax.axhline(float(np.mean(bm[f"collusive_{which}"])), color="grey", ls="--", label=f"joint-profit {act}")
+    after = ""
+    if merger.get("available") and act == "price":
+        for i, line in enumerate(ax.get_lines()[:res.n_firms]):
+            ax.axhline(float(merger["nash_prices"][i]), color=line.get_color(), ls="-.", lw=1.0,
+                       label="static Nash price after the\nmerger (firm's colour)" if i == 0 else None)
+        after = ("; dash-dotted, in each firm's colour: its static-Nash price after the merger (the merged firm "
+                 "setting its prices jointly)")
     ax.axvline(1, color="black", lw=0.5)
     ax.set_xlabel("period (0: before the deviation, 1: deviation)")
     ax.set_ylabel(act)
@@ -441,8 +450,8 @@ def _impulse_figure(res: LearnResult):
     return Drawn("impulse_response", fig,
                  f"Impulse response: mean {act} of each firm (points) after firm {int(res.settings['deviator'])} is "
                  f"forced to deviate for one period (period 1), then everyone follows the learned strategies; "
-                 f"bands: {level} confidence intervals across sessions; dotted and dashed: the static-Nash and "
-                 f"joint-profit {act}s (means over firms).")
+                 f"bands: {level} confidence intervals across sessions; dotted and dashed: the static-Nash{before} "
+                 f"and joint-profit {act}s{after} (means over firms).")
 
 
 def _histogram_figure(res: LearnResult):

@@ -30,8 +30,7 @@ def _setup(b, exp) -> None:
     desc = exp.description or leading_comment(exp.text or "")
     if desc:
         b.heading("What the experiment asks")
-        for para in desc.split("\n\n"):
-            b.paragraph(" ".join(para.split()))
+        b.description(desc)
     b.heading("Setup")
     b.bullets(LEARN.describe(exp.doc))
 

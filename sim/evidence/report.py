@@ -491,8 +491,7 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
     else:
         if desc:
             b.heading("What the experiment asks")
-            for para in desc.split("\n\n"):
-                b.paragraph(" ".join(para.split()))
+            b.description(desc)
         b.heading("Setup")
         b.bullets(kind.describe(exp.doc) if kind.describe else [f"Kind: {exp.kind}"])
         if exp.parameters:

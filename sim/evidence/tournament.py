@@ -280,8 +280,7 @@ def bundle(run, b) -> list | None:
     desc = exp.description or leading_comment(exp.text or "")
     if desc:
         b.heading("What the experiment asks")
-        for para in desc.split("\n\n"):
-            b.paragraph(" ".join(para.split()))
+        b.description(desc)
     if exp.parameters:
         sweep_account(run, b, ok)
         return None

@@ -26,3 +26,18 @@ def test_a_swept_learn_run_sets_its_cells_side_by_side_and_draws_each_cell(tmp_p
             assert (figs / f"cell{cell + 1}-{f.name}").read_bytes() == f.read_bytes()
     md = (tmp_path / "run" / "report" / "summary.md").read_text()
     assert "Limit outcomes of every finished cell" in md and "| 2 | synchronous |" in md
+
+
+def test_an_experiment_files_own_account_keeps_its_commands_as_code(tmp_path):
+    # the leading comment's paragraphs are joined, its indented commands kept as written (a two-step run must not
+    # read as one sentence), and an indented line that goes on with a numbered item stays text
+    from sim.evidence.bundle import Bundle
+
+    b = Bundle(tmp_path / "b", "t")
+    b.description("Run it in two steps:\n    supergame learn a.toml   # step 1\n    supergame run b.toml     # step 2\n"
+                  "(well under a minute).\n\nWhat it shows:\n 1. one thing\n    that goes on\n 2. another")
+    kinds = [(x.kind, x.data["text"]) for x in b.blocks]
+    assert kinds == [("paragraph", "Run it in two steps:"),
+                     ("code", "supergame learn a.toml   # step 1\nsupergame run b.toml     # step 2"),
+                     ("paragraph", "(well under a minute)."),
+                     ("paragraph", "What it shows: 1. one thing that goes on 2. another")]
