@@ -30,7 +30,8 @@ DESCRIPTION = (
     "automata of `supergame simulate` (grim_trigger, tit_for_tat, forgiving_tit_for_tat, opportunist, ...). "
     "With automata that act at random the limit outcomes and the impulse response are seeded simulation "
     "estimates, labelled as such, not an exact cycle. The same file gives the same numbers as `supergame run` "
-    "(random streams of cell 0)."
+    "(the random streams of its first cell); a [sweep] in FILE is not run here (a note says so): its settings "
+    "without the sweep are."
 )
 
 # table -> key -> (flag, parser kind); kinds: num, int, nums, str. A flag's value is written into its table's key
@@ -205,7 +206,11 @@ def document(args) -> tuple[dict, dict]:
     # the tables this analysis reads (a [sweep] or [report] of FILE belongs to `supergame run`); what is left out is
     # still checked as `supergame check` checks the file (an unknown table, a bad swept value), never ignored
     if args.file and set(doc) - set(LEARN.tables) - {"experiment"}:
-        load_experiment(args.file)
+        exp_file = load_experiment(args.file)
+        if exp_file.n_cells > 1:
+            print(f"note: {args.file} sweeps {exp_file.n_cells} cells; supergame learn runs its settings without the "
+                  f"sweep (with the random streams of the first cell); supergame run {args.file} runs every cell",
+                  file=sys.stderr)
     out = {k: v for k, v in doc.items() if k in LEARN.tables}
     out["experiment"] = {**exp, "kind": "learn"}
     table, from_flags = market_table_from_args(args, _table(doc, "market"))

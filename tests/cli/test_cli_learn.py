@@ -491,3 +491,14 @@ def test_sessions_that_are_copies_of_one_another_are_called_so():
     noisy = learn_result(learn(market, QLearner(family="ucb", m=5, noise=0.5), sessions=3, seed=2, convergence=2000,
                                workers=1), market)
     assert not sessions_are_copies(noisy) and "ran the same way" not in console(noisy)
+
+
+def test_learn_on_a_file_with_a_sweep_says_it_runs_the_settings_without_it(small, capsys):
+    text = small.read_text() + '\n[sweep]\n"learning.alpha" = [0.1, 0.2]\n'
+    p = small.with_name("swept.toml")
+    p.write_text(text)
+    assert main(["learn", str(p), "--sessions", "2"]) == 0
+    err = capsys.readouterr().err
+    assert f"note: {p} sweeps 2 cells; supergame learn runs its settings without the sweep" in err
+    assert main(["learn", str(small), "--sessions", "2"]) == 0
+    assert "note:" not in capsys.readouterr().err
