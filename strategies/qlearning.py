@@ -331,10 +331,15 @@ class QLearner(Parametrized):
     name = "qlearning"
 
     #: what a default of None stands for, for listings (sim.core.params.describe_parameters)
-    _default_words = {"m": f"{_DEFAULT_M} without a grid, else the grid's size", "grid": "m evenly spaced prices from "
-                      "Nash - xi (collusive - Nash) to collusive + xi (collusive - Nash)", "counterfactual_share": "none; required by update = 'mixed'",
-                      "exploration": "1 for a bandit", "policy_from": "none; required by family = 'fixed'",
-                      "firm": "none; required by family = 'fixed'", "session": "1 with family = 'fixed'"}
+    _default_words = {
+        "m": f"{_DEFAULT_M} without a grid, else the grid's size",
+        "grid": "m evenly spaced prices from Nash - xi (collusive - Nash) to collusive + xi (collusive - Nash)",
+        "counterfactual_share": "none; required by update = 'mixed'",
+        "exploration": "1 for a bandit",
+        "policy_from": "none; required by family = 'fixed'",
+        "firm": "none; required by family = 'fixed'",
+        "session": "1 with family = 'fixed'",
+    }
 
     def __init__(self, alpha=0.15, beta=4e-6, delta=0.95, m=None, xi=0.1, grid=None, k=1, init="uniform",
                  update="asynchronous", counterfactual_share=None, family="q", exploration=None, noise=0.0,

@@ -149,8 +149,9 @@ def learn_headline(res) -> str:
         return (f"No session converged ({c['n']} stopped at the cap): greedy play at the cap, while the learners were "
                 f"still learning, gives a mean profit gain of {number(pg['mean'])}" + (f" ({ci})" if ci else "")
                 + " (0: static Nash, 1: joint profit), not a converged outcome.")
-    after = ((res.event or {}).get("merger") or {}).get("profit_gain_after")
-    zero = "static Nash" if not after else "static Nash before the merger"
+    merger = (res.event or {}).get("merger") or {}
+    after = merger.get("profit_gain_after")
+    zero = "static Nash before the merger" if merger else "static Nash"
     out = (f"The learned prices give a mean profit gain of {number(pg['mean'])}" + (f" ({ci})" if ci else "")
            + f" (0: {zero}, 1: joint profit). ")
     if after:

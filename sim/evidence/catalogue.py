@@ -284,13 +284,20 @@ ENTRIES: dict[str, Entry] = {
                       "Mean over converged sessions of the share of the deviations tried at the points of the limit "
                       "cycle after which greedy play returns to the cycle it left; not a share of sessions.",
                       "counted per session, averaged over sessions", _SESSIONS + ", kept within [0, 1]"),
-    "return_periods": Entry("periods to return", "periods", "Mean over converged sessions of the mean number of "
+    "periods_to_return": Entry("periods to return", "periods", "Mean over converged sessions of the mean number of "
                             "periods after a deviation until the state of greedy play is back on the limit cycle, "
                             "over the deviations after which it returns: 1 when the period after the deviation is "
-                            "already back (as the impulse response's row +1 shows), 0 when the forced deviation was "
-                            "the price the cycle plays there; with a memory of k periods the state holds the "
-                            "deviation's prices for k periods, so it is back k periods after at the soonest.",
+                            "already back (as the impulse response's row +1 shows), 0 when the deviation leaves the "
+                            "state on the cycle (the forced price was the one the cycle plays there, or it moves play "
+                            "to another point of the cycle); with a memory of k periods the state holds the "
+                            "deviation's prices for k periods, so it is back k periods after at the soonest. Named "
+                            "return_periods, and counting the deviation's own period too, in runs of earlier "
+                            "versions.",
                             "counted per session, averaged over sessions", _SESSIONS),
+    # the column of runs written by earlier versions, still described when their folders are reported again
+    "return_periods": Entry("periods to return, counting the deviation's period (earlier versions)", "periods",
+                            "As periods_to_return, but counting the deviation's own period too: one more. Written "
+                            "by earlier versions only.", "counted per session, averaged over sessions", _SESSIONS),
     "nash_profit": Entry("static-Nash profit", "{money}", "Profit per period in the static Nash equilibrium.",
                          "stage game"),
     "collusive_profit": Entry("collusive profit", "{money}", "Profit per period under the joint-profit agreement.",

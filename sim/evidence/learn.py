@@ -310,11 +310,16 @@ def _deviation_lines(res: LearnResult) -> list[str]:
     lim, g, pays = sm["limit"], sm["deviation_gain"], sm["deviation_pays"]
     d = _deviator_delta(res)
     if res.limit_exact:
-        r, rp = sm["returned"], sm["return_periods"]
+        r = sm["returned"]
+        if "periods_to_return" in sm:
+            when = f"{fmt_num(sm['periods_to_return']['mean'], 2)} periods after the deviation on average"
+        else:
+            # a result stored before the count started after the deviation: it counted the deviation's period too
+            when = (f"{fmt_num(sm['return_periods']['mean'], 2)} periods on average, counting the deviation's own "
+                    "period (a result stored by an earlier version)")
         return [f"  discounted value of deviating minus not deviating (exact, under the learned strategies{d}): "
                 f"{fmt_num(g['mean'])} {_ci(g)}; the deviation pays at {_pct(pays['mean'])} of cycle points",
-                f"  play returns to the pre-deviation cycle after {_pct(r['mean'])} of deviations, "
-                f"{fmt_num(rp['mean'], 2)} periods after the deviation on average"]
+                f"  play returns to the pre-deviation cycle after {_pct(r['mean'])} of deviations, {when}"]
     return [f"  discounted value of deviating minus not deviating (ESTIMATED over {lim['value_periods']} "
             f"periods, truncation error below {lim['value_truncation_bound']:.2g}{d}): {fmt_num(g['mean'])} "
             f"{_ci(g)}; the realised gain is positive in {_pct(pays['mean'])} of the simulated deviations",
@@ -451,7 +456,7 @@ def _impulse_figure(res: LearnResult):
                  f"Impulse response: mean {act} of each firm (points) after firm {int(res.settings['deviator'])} is "
                  f"forced to deviate for one period (period 1), then everyone follows the learned strategies; "
                  f"bands: {level} confidence intervals across sessions; dotted and dashed: the static-Nash{before} "
-                 f"and joint-profit {act}s{after} (means over firms).")
+                 f"and joint-profit {act}s (means over firms){after}.")
 
 
 def _histogram_figure(res: LearnResult):

@@ -47,7 +47,7 @@ def event_lines(res) -> list[str]:
     if not ev:
         return []
     lvl = f"{100 * res.confidence:g} %"
-    act = "quantity" if res.quantity_setting else "price"
+    act = "price"  # the path after the event, its limits and changes are prices, under quantity setting too
     firms = [f"firm {i + 1}" for i in range(res.n_firms)]
     lines = ["", f"After the event ({ev['what']}): the saved sessions continued, the convergence counter reset",
              f"  {act}s played after the event, means over sessions ({lvl} confidence intervals); each row averages "
@@ -120,11 +120,11 @@ def _merger_lines(mg: dict | None, firms: list[str], act: str, change=(), since:
                     + ([f"{fmt_num(above[i]['mean'])} {_ci(above[i])}"] if above else []))
     out = ["  the merger's static effect: static-Nash prices with the merged firm setting its products' prices "
            f"jointly (Deneckere and Davidson, 1985), against the learned change (the limit {act} after settling "
-           f"minus the {since}, as above)" + (f"; the last column is the learned limit {act} minus the Nash "
-                                               f"{act} after the merger, a level, where the changes start from "
+           f"minus the {since}, as above)" + ("; the last column is the learned limit price minus the Nash "
+                                               "price after the merger, a level, where the changes start from "
                                                "different points" if above else ""),
            table(["firm", f"Nash {act} before", f"Nash {act} after", "static change", "learned change",
-                  "learned vs static"] + ([f"limit minus Nash {act} after"] if above else []), rows)]
+                  "learned vs static"] + (["limit minus Nash price after"] if above else []), rows)]
     pg = mg.get("profit_gain_after")
     if above and not pg:
         out.append("  profit gain measured against the market after the merger: not defined (the merger leaves one "
@@ -154,7 +154,7 @@ def event_figure(res):
     if not ev:
         return None
     plt = pyplot()
-    act = "quantity" if res.quantity_setting else "price"
+    act = "price"  # the path after the event, its limits and changes are prices, under quantity setting too
     x = np.array(ev["bin_periods"], dtype=float)
     mean, low, high = (np.array(ev["prices"][k], dtype=float) for k in ("mean", "low", "high"))
     fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 3.6), layout="constrained")
@@ -166,7 +166,7 @@ def event_figure(res):
         if band.any():
             ax.fill_between(x[band], low[band, i], high[band, i], color=color(i), alpha=0.2, lw=0)
     bm = res.summary["benchmarks"]
-    which = "actions" if act == "quantity" else "prices"
+    which = "prices"
     mg = ev.get("merger") or {}
     # a merger leaves the market as it was: its benchmarks are those of the firms before the merger
     when = "before the merger" if mg else "after"

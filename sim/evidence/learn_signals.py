@@ -61,7 +61,7 @@ def signal_lines(res: LearnResult) -> list[str]:
     depth = f", a mean change of {fmt_num(dep['value'])} in those sessions" if dep["n"] else ""
     cut = sr["cut"]
     back = (f"; it is back on the path without the draw in the last 4 of {sr['periods']} periods in "
-            f"{_pct(sr['temporary'])}{after}" if cut.get("value") else
+            f"{_pct(sr['temporary'])}{after}" if not (cut.get("n") and cut.get("value") == 0) else
             "; no session cut its price, so there is no price war to end")
     lines.append(f"Learned price wars: after one adverse demand draw (shock {fmt_num(sr['theta'])} in period 1, "
                  f"learning going on, the same random numbers with and without it), the mean price falls in period 2 "

@@ -42,7 +42,6 @@ from sim.evidence.front import (
 from sim.evidence.render import renderer_for
 from sim.evidence.views import result_names
 from sim.runner.experiment import leading_comment
-from sim.runner.inputs import input_lines
 from sim.runner.kinds import stated_assumptions
 from sim.runner.lock import FolderLock
 from sim.runner.report_settings import FigureSpec, figure_name
@@ -437,7 +436,7 @@ def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) 
     seed = meta.get("seed")
     b.bullets([
         f"Experiment file: `{EXPERIMENT_COPY}` (SHA-256 `{exp.sha256}`), copied into this bundle.",
-        *input_lines(meta.get("inputs")),
+        *_input_lines(meta.get("inputs")),
         (f"Seeds: {SEED_RULE.format(key=meta.get('seed_key'))}, with seed {seed} unless the sweep varies it. "
          "Results do not depend on the number of workers or the backend."
          if meta.get("seed_key") else "No random numbers: the kind is deterministic."),
@@ -456,6 +455,15 @@ def _close(b, rf, folder, exp, kind, rows, counts, attempts, meta, more, units) 
     b.table("glossary", ["key", "label", "unit", "definition", "method and source", "interval"], terms,
             caption="Every number of the bundle: its stored name (key, the column name in the CSV files), label, "
                     "unit, definition, method and interval", max_rows=len(terms) + 1)
+
+
+def _input_lines(recorded: dict | None) -> list[str]:
+    """The files a run read besides its experiment file (:mod:`sim.runner.inputs`), for "Reproducing these numbers"."""
+    if not recorded:
+        return []
+    files = "; ".join(f"`{name}` ({rec['key']}, SHA-256 `{rec['sha256']}`)" for name, rec in sorted(recorded.items()))
+    return [f"Files read besides the experiment file (not copied into the run folder; keep them beside it, "
+            f"relative to the folder the run was started in): {files}."]
 
 
 def _names(rf, exp, rows) -> dict | None:

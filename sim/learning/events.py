@@ -56,7 +56,8 @@ from sim.learning.saved import SavedLearners, check_family, describe_layout
 from sim.simulation.results import mean_estimate, wilson_estimate
 from strategies.qlearning import QLearner
 
-__all__ = ["EVENT_KEYS", "EVENT_KINDS", "Event", "adapt_saved", "event_from_table", "event_summary", "run_tracked",
+__all__ = ["EVENT_KEYS", "EVENT_KINDS", "EVENT_PERIODS", "EVENT_PERIODS_DEFAULT", "Event", "adapt_saved",
+           "event_from_table", "event_summary", "run_tracked",
            "with_saved_grids"]
 
 #: keys of the [event] table
@@ -64,6 +65,9 @@ EVENT_KEYS = ("kind", "periods", "firms")
 #: what may happen: a changed market (cost or demand shock), the entry of a firm playing an automaton, or a merger
 #: of learners' products into one firm, or a change of the learners' protocol (their learning settings)
 EVENT_KINDS = ("market", "entry", "merger", "protocol")
+#: periods of the price path recorded after an event: what they may be, and the default
+EVENT_PERIODS = Integer(1, 10_000_000)
+EVENT_PERIODS_DEFAULT = 1000
 #: the price path after an event is kept in at most this many bins
 TRACK_BINS = 100
 
@@ -113,7 +117,7 @@ def event_from_table(tab) -> Event:
     kind = tab.get("kind")
     if kind not in EVENT_KINDS:
         raise InputError("event.kind", f"must be one of {', '.join(repr(k) for k in EVENT_KINDS)}, got {kind!r}")
-    periods = Integer(1, 10_000_000).check("event.periods", tab.get("periods", 1000))
+    periods = EVENT_PERIODS.check("event.periods", tab.get("periods", EVENT_PERIODS_DEFAULT))
     bins = min(TRACK_BINS, periods)
     return Event(kind, periods // bins * bins, bins, _merging_firms(tab, kind))
 

@@ -63,7 +63,7 @@ FIXED_FAMILY = 3
 FAMILY_CODES = {"q": Q_FAMILY, "ucb": UCB_FAMILY, "thompson": THOMPSON_FAMILY, "fixed": FIXED_FAMILY}
 #: the entries of ``LimitOutputs.info``
 INFO_FIELDS = ("transient", "cycle_length", "points", "deviation_gain", "deviation_pays", "returned",
-               "return_periods", "deviation_action")
+               "periods_to_return", "deviation_action")
 
 
 class SeatInputs(NamedTuple):

@@ -222,7 +222,7 @@ class LearningResult:
         Share of the cycle's points where the deviation pays / after which play returns to the
         same cycle (with automata that act at random: share of simulated deviations with a positive
         realised gain / nan).
-    return_periods : ndarray of shape (n,)
+    periods_to_return : ndarray of shape (n,)
         Mean periods from the deviation until play is back on the cycle (nan if it never is, or
         when not defined).
     elapsed : float
@@ -266,7 +266,7 @@ class LearningResult:
     deviation_gain: np.ndarray
     deviation_pays: np.ndarray
     returned: np.ndarray
-    return_periods: np.ndarray
+    periods_to_return: np.ndarray
     elapsed: float = 0.0
     saved: Any = None
     triggers: Any = None
@@ -357,7 +357,7 @@ class LearningResult:
             "deviation_gain": _mean_ci(self.deviation_gain[sel], lvl),
             "deviation_pays": _mean_ci(self.deviation_pays[sel], lvl, (0.0, 1.0)),
             "returned": _mean_ci(self.returned[sel], lvl, (0.0, 1.0)),
-            "return_periods": _mean_ci(self.return_periods[sel], lvl),
+            "periods_to_return": _mean_ci(self.periods_to_return[sel], lvl),
             "benchmarks": {
                 "nash_prices": lu.nash_prices.tolist(), "collusive_prices": lu.collusive_prices.tolist(),
                 "nash_profits": lu.nash_profits.tolist(), "collusive_profits": lu.collusive_profits.tolist(),
@@ -496,7 +496,7 @@ def _after_merger(mg: dict, res: LearningResult, sel: np.ndarray, level: float) 
     pn = float(np.mean(mg["nash_profits"]))
     pm = float(np.mean(res.lineup.collusive_profits))
     mg["above_nash_after"] = [_mean_ci(res.limit_prices[sel, i] - nash[i], level) for i in range(nash.size)]
-    if pm - pn > 1e-9 * max(1.0, abs(pm)):
+    if len(mg["firms"]) < res.lineup.n_seats:
         mg["profit_gain_after"] = _mean_ci((res.limit_profits[sel].mean(axis=1) - pn) / (pm - pn), level)
     # else a merger to monopoly: its static Nash is the joint-profit outcome, and the gain is not defined
 

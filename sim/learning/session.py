@@ -510,7 +510,7 @@ def _assemble(lineup: Lineup, settings: dict, buf: _Buffers, elapsed: float, sav
         limit_prices=buf.lim_p, limit_profits=buf.lim_pi, profit_gain=gain, firm_profit_gain=firm_gain,
         near_collusive=near_c, near_nash=near_n, ir_prices=buf.ir_p, ir_profits=buf.ir_pi, cf_prices=buf.cf_p,
         cf_profits=buf.cf_pi, deviation_action=info[:, 7].astype(np.int64), deviation_gain=info[:, 3],
-        deviation_pays=info[:, 4], returned=info[:, 5], return_periods=info[:, 6], elapsed=elapsed, saved=saved,
+        deviation_pays=info[:, 4], returned=info[:, 5], periods_to_return=info[:, 6], elapsed=elapsed, saved=saved,
         triggers=buf.triggers, punishing_at_end=buf.punishing_at_end, event=event,
     )
 

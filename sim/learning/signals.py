@@ -496,7 +496,7 @@ def signal_impulse(x: int, greedy: np.ndarray, lineup, band: float, dev, out) ->
         pays += gain > 1e-9 * max(1.0, abs(v_no))
         if set(s_dev[mu_dev:]) == cycle:
             back += 1
-            periods.append(mu_dev + 1.0)
+            periods.append(float(mu_dev))  # periods after the deviation until the state is on the cycle
         xc = x_next
     for arr in (out.ir_prices, out.ir_profits, out.cf_prices, out.cf_profits):
         arr[:] /= points

@@ -13,7 +13,15 @@ from sim.core.parallel import usable_cores
 from sim.core.params import Integer, Options, Real, optional
 from sim.core.tables import refuse_unknown
 from sim.learning.alternating import TIMINGS, check_alternating
-from sim.learning.events import EVENT_KEYS, EVENT_KINDS, check_event, event_from_table, with_saved_grids
+from sim.learning.events import (
+    EVENT_KEYS,
+    EVENT_KINDS,
+    EVENT_PERIODS,
+    EVENT_PERIODS_DEFAULT,
+    check_event,
+    event_from_table,
+    with_saved_grids,
+)
 from sim.learning.lineup import compile_lineup
 from sim.learning.merger import refuse_merged
 from sim.learning.noisy_prices import PRICE_NOISE, check_noisy_lineup
@@ -405,7 +413,7 @@ def settings_listing() -> list[dict]:
              ("impulse.action", "'best_response' or a number >= 0", "best_response"),
              ("impulse.periods", c["response_periods"].describe(), d["response_periods"]),
              ("event.kind", f"one of {', '.join(repr(k) for k in EVENT_KINDS)} (required in an [event])", None),
-             ("event.periods", "an integer in [1, 10000000]", 1000),
+             ("event.periods", EVENT_PERIODS.describe(), EVENT_PERIODS_DEFAULT),
              ("event.firms", "the merging firms by number from 1 (kind = 'merger' only)", None)]
     out = [{"name": n, "allowed": a, "default": v} for n, a, v in rows]
     for row in out:

@@ -491,7 +491,7 @@ def reference_analysis(lineup, greedy, history, z, t_end, dev, T):
     dict
         ``transient``, ``cycle`` (list of profiles), ``lim_prices``, ``lim_profits`` (lists of n), ``ir_prices``,
         ``ir_profits`` (lists of T + 2 rows), ``gain`` (mean value gain), ``pays``, ``returned`` (shares) and
-        ``return_periods``.
+        ``periods_to_return``.
     """
     gp = _GreedyPlay(lineup, greedy, t_end)
     st, n, rng = gp.st, gp.st.n, _NoDraws()
@@ -526,7 +526,7 @@ def reference_analysis(lineup, greedy, history, z, t_end, dev, T):
     return {"transient": len(transient), "cycle": cycle_profiles, "lim_prices": lim_prices,
             "lim_profits": lim_profits, "ir_prices": _means(ir[0], points), "ir_profits": _means(ir[1], points),
             "gain": sum(gains) / points, "pays": pays / points, "returned": returned / points,
-            "return_periods": sum(ret) / len(ret) if ret else float("nan")}
+            "periods_to_return": sum(ret) / len(ret) if ret else float("nan")}
 
 
 def _simulated_deviation(gp, state, dev, T, branch_base, ir, cf):

@@ -15,7 +15,7 @@ from pathlib import Path
 from sim.core.errors import InputError
 from sim.core.tomlfile import file_sha256
 
-__all__ = ["check_inputs", "input_lines", "input_problems", "record_inputs"]
+__all__ = ["check_inputs", "input_problems", "record_inputs"]
 
 
 def record_inputs(exp) -> dict:
@@ -85,21 +85,3 @@ def check_inputs(recorded: dict | None) -> None:
     if problems:
         key, words = problems[0]
         raise InputError(key, words + "; start a new run to use the file as it is now")
-
-
-def input_lines(recorded: dict | None) -> list[str]:
-    """The input files of a run, for the report's account of how to reproduce it (empty without any).
-
-    Parameters
-    ----------
-    recorded : dict or None
-
-    Returns
-    -------
-    list of str
-    """
-    if not recorded:
-        return []
-    files = "; ".join(f"`{name}` ({rec['key']}, SHA-256 `{rec['sha256']}`)" for name, rec in sorted(recorded.items()))
-    return [f"Files read besides the experiment file (not copied into the run folder; keep them beside it, "
-            f"relative to the folder the run was started in): {files}."]

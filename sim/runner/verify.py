@@ -51,8 +51,9 @@ class VerifyResult:
         Each check: whether it passed and what it checked, in words.
     cells : list of dict
         One entry per re-run cell: ``cell`` (its number, counted from 1), ``metrics`` (how many were compared),
-        ``mismatched`` (names of the metrics outside the tolerance), ``max_relative_difference`` and
-        ``identical`` (every metric equal, bit for bit).
+        ``mismatched`` (names of the metrics outside the tolerance), ``max_relative_difference``,
+        ``identical`` (every metric equal, bit for bit), ``not_computed`` (stored metrics this version does not
+        compute: a run of another version) and ``not_stored`` (metrics this version adds, not compared).
     """
 
     ok: bool
@@ -257,11 +258,15 @@ def _check_inputs(recorded: dict | None, chosen: list, checks: list) -> list:
     if not recorded:
         return chosen
     problems = input_problems(recorded)
+    if problems and not chosen:
+        # nothing is re-run: the folder's own files are what is checked, and they do not depend on these
+        for key, words in problems:
+            checks.append((True, f"note: {key}: {words} (no cell is re-run, so this check does not need it)"))
+        return []
     for key, words in problems:
         checks.append((False, f"{key}: {words}"))
     if problems:
-        if chosen:
-            checks.append((False, "no cell re-run: a file the run read is missing or changed"))
+        checks.append((False, "no cell re-run: a file the run read is missing or changed"))
         return []
     checks.append((True, f"the {len(recorded)} file{'s' if len(recorded) > 1 else ''} the run read besides the "
                          f"experiment file ({', '.join(sorted(recorded))}) {'have' if len(recorded) > 1 else 'has'} "
@@ -278,7 +283,14 @@ def _rerun(exp, by_cell: dict, chosen: list, rtol: float, atol: float, threads: 
         res = kind.run(kind.prepare(cell.doc), CellContext(index=c, threads=threads))
         fresh = clean_metrics(res.metrics)
         stored = by_cell[c].metrics
-        names = sorted(set(fresh) | set(stored))
+        gone = sorted(set(stored) - set(fresh))
+        if gone:
+            # a column this version no longer computes (renamed or redefined since the run): not a wrong number
+            checks.append((False, f"{cell.describe()}: {len(gone)} stored metric{'s' if len(gone) > 1 else ''} this "
+                                  f"version does not compute ({', '.join(gone[:3])}{', ...' if len(gone) > 3 else ''})"
+                                  ": the run was made by another version of the code (see the manifest's notes)"))
+        added = sorted(set(fresh) - set(stored))
+        names = sorted(set(stored) & set(fresh))
         bad = [k for k in names if not _same(fresh.get(k, math.nan), stored.get(k, math.nan), rtol, atol)]
         worst = 0.0
         for k in names:
@@ -288,14 +300,17 @@ def _rerun(exp, by_cell: dict, chosen: list, rtol: float, atol: float, threads: 
         exact = all((fresh.get(k) == stored.get(k)) or (math.isnan(fresh.get(k, math.nan)) and
                                                          math.isnan(stored.get(k, math.nan))) for k in names)
         report.append({"cell": cell.number, "metrics": len(names), "mismatched": bad,
-                       "max_relative_difference": worst, "identical": exact})
+                       "max_relative_difference": worst, "identical": exact, "not_computed": gone,
+                       "not_stored": added})
         if bad:
             k = bad[0]
             checks.append((False, f"{cell.describe()}: {len(bad)} of {len(names)} metrics do not reproduce, e.g. "
                                   f"{k} = {fresh.get(k)!r} now, {stored.get(k)!r} stored"))
         else:
             how = "identically" if exact else f"within a relative {worst:.1e}"
-            checks.append((True, f"{cell.describe()}: all {len(names)} metrics reproduce {how}"))
+            extra = (f" ({len(added)} metric{'s' if len(added) > 1 else ''} this version adds, not stored, are not "
+                     f"compared: {', '.join(added[:3])}{', ...' if len(added) > 3 else ''})" if added else "")
+            checks.append((True, f"{cell.describe()}: all {len(names)} stored metrics reproduce {how}{extra}"))
     return report
 
 

@@ -162,6 +162,9 @@ def test_the_saved_learners_a_run_continues_are_hashed_and_checked_on_resume_and
     out = capsys.readouterr().out
     assert "learning.continue_from: learners.npz has changed since the run started" in out
     assert "no cell re-run" in out and "metrics do not reproduce" not in out
+    # checking the folder alone (no cell re-run) does not need the file: said as a note, not a failure
+    assert main(["verify", "run", "--sample", "0"]) == 0
+    assert "note: learning.continue_from: learners.npz has changed" in capsys.readouterr().out
     con = sqlite3.connect(folder / "run" / "results.sqlite")
     con.execute("DELETE FROM cells")
     con.commit()
@@ -175,3 +178,28 @@ def test_the_saved_learners_a_run_continues_are_hashed_and_checked_on_resume_and
     (folder / "learners.npz").unlink()
     assert main(["run", "--resume", "run"]) == 2
     assert "learning.continue_from: learners.npz is not here" in capsys.readouterr().err
+
+
+def test_under_quantity_setting_the_path_after_an_event_is_told_in_prices_against_price_benchmarks(folder, capsys):
+    # Cournot learners choose quantities, but what the event section records is the market price each firm gets:
+    # the words say price, and the figure's benchmark lines are the static-Nash and joint-profit prices (linear
+    # Cournot with demand 10 - Q and cost 1: Nash price (10 + 2) / 3 = 4, joint-profit price 5.5, by hand)
+    cournot = ('model = "cournot"\ndemand = "linear"\nintercept = 10.0\nslope = 1.0\ncost = 1.0\nn_firms = 2\n')
+    market = 'model = "bertrand"\ndemand = "logit"\nquality = 2.0\noutside = 0.0\nmu = 0.25\ncost = 1.0\nn_firms = 2\n'
+    (folder / "c1.toml").write_text(STEP1.replace(market, cournot))
+    (folder / "c2.toml").write_text(STEP2.replace(market.replace("cost = 1.0", "cost = 1.2"),
+                                                  cournot.replace("cost = 1.0", "cost = 1.2")))
+    assert main(["learn", "c1.toml"]) == 0
+    capsys.readouterr()
+    assert main(["learn", "c2.toml", "--plot", "plots"]) == 0
+    out = capsys.readouterr().out
+    assert "prices played after the event" in out and "quantities played after the event" not in out
+    import tomllib
+
+    from sim.evidence.learn_event import event_figure
+    from sim.runner.single import run_single
+
+    res = run_single(tomllib.loads((folder / "c2.toml").read_text())).result
+    ax = event_figure(res).figure.axes[0]
+    levels = sorted(float(line.get_ydata()[0]) for line in ax.get_lines() if line.get_linestyle() in (":", "--"))
+    assert levels == pytest.approx([(10 + 2 * 1.2) / 3, (10 + 1.2) / 2], rel=1e-6)

@@ -52,6 +52,17 @@ def test_every_setting_of_a_learn_experiment_is_listed_with_the_default_the_read
                       ("impulse.periods", "response_periods")):
         assert st[name] == rows[key]["default"], key
     assert st["workers"] is None and rows["run.workers"]["default_words"] == "every usable core"
+    # the Python API's own defaults (sim.learning.session.learn) are the same
+    import inspect
+
+    from sim.learning.events import EVENT_PERIODS_DEFAULT, event_from_table
+    from sim.learning.session import learn
+    from sim.learning.tables import SETTING_DEFAULTS
+
+    sig = inspect.signature(learn).parameters
+    for name, value in SETTING_DEFAULTS.items():
+        assert sig[name].default == value, name
+    assert event_from_table({"kind": "market"}).periods == EVENT_PERIODS_DEFAULT == rows["event.periods"]["default"]
     m = next(p for p in json.loads(r.out)["learners"][0]["parameters"] if p["name"] == "m")
     assert m["default"] is None and m["default_words"].startswith("15 without a grid")
     assert "15 without a grid" in cli("list", "learners").out

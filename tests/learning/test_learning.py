@@ -88,7 +88,7 @@ def test_kernel_and_reference_stop_at_the_same_period_and_agree_on_the_limit_ana
         assert np.array_equal(out[4], np.array(ref["ir_prices"]))
         assert np.array_equal(out[5], np.array(ref["ir_profits"]))
         assert info[3] == ref["gain"] and info[4] == ref["pays"] and info[5] == ref["returned"]
-        assert (math.isnan(info[6]) and math.isnan(ref["return_periods"])) or info[6] == ref["return_periods"]
+        assert (math.isnan(info[6]) and math.isnan(ref["periods_to_return"])) or info[6] == ref["periods_to_return"]
 
 
 # ---- the analysis of learned strategies, on strategies written by hand ----------------------------

@@ -75,7 +75,7 @@ def test_limit_profits_and_the_deviation_shares_carry_their_intervals():
     spec = LearnSpec(logit_market(), QLearner(m=5, beta=2e-3),
                      {"sessions": 6, "seed": 5, "convergence": 2000, "max_periods": 200_000})
     m = learn_metrics(learn_analysis(spec, workers=1))
-    for stem in ("limit_profit.firm1", "limit_profit.firm2", "deviation_pays", "returned", "return_periods"):
+    for stem in ("limit_profit.firm1", "limit_profit.firm2", "deviation_pays", "returned", "periods_to_return"):
         assert m[f"{stem}.low"] <= m[stem] <= m[f"{stem}.high"], stem
     assert m["deviation_pays.high"] > m["deviation_pays.low"] or m["deviation_pays"] in (0.0, 1.0)
     for stem in ("deviation_pays", "returned"):

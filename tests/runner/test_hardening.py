@@ -177,3 +177,29 @@ def test_text_cells_that_look_like_formulas_are_neutralised(tmp_path, write_expe
     s = run_experiment(f, tmp_path / "run", workers=1, progress=False)
     csv = (s.folder / "results.csv").read_text()
     assert "'=HYPERLINK(1)" in csv and "\n1,ok,=HYPERLINK" not in csv
+
+
+def test_verify_tells_a_metric_this_version_no_longer_computes_from_one_that_does_not_reproduce(finished_run,
+                                                                                                 monkeypatch):
+    # a run made by another version of the code: a stored column this version does not compute is named as such, and
+    # a column this version adds is not compared (neither is a wrong number); the columns both have are compared
+    import sim.runner.verify as V
+
+    real = V.clean_metrics
+
+    def other_version(metrics):
+        out = dict(real(metrics))
+        name = sorted(out)[0]
+        out["a_new_measure"] = 1.0
+        del out[name]
+        return out
+
+    monkeypatch.setattr(V, "clean_metrics", other_version)
+    res = verify_run(finished_run)
+    failed = [t for ok, t in res.checks if not ok]
+    assert failed and all("stored metric this version does not compute" in t for t in failed)
+    assert "the run was made by another version of the code" in failed[0]
+    passed = [t for ok, t in res.checks if ok and "stored metrics reproduce" in t]
+    assert len(passed) == 2 and all("this version adds, not stored, are not compared: a_new_measure" in t
+                                    for t in passed)
+    assert all(r["not_computed"] and r["not_stored"] == ["a_new_measure"] for r in res.cells)

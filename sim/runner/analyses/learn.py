@@ -41,12 +41,18 @@ def _inputs(doc: dict) -> list[tuple[str, str]]:
     continues (``learning.continue_from``) and the saved policies of fixed seats (``policy_from``)."""
     out = []
     lt = doc.get("learning") if isinstance(doc.get("learning"), dict) else {}
-    for key in ("continue_from", "policy_from"):
-        if isinstance(lt.get(key), str):
-            out.append((f"learning.{key}", lt[key]))
+    if isinstance(lt.get("continue_from"), str):
+        out.append(("learning.continue_from", lt["continue_from"]))
     entries = doc.get("strategies") if isinstance(doc.get("strategies"), list) else []
+    learners = [e for e in entries if isinstance(e, dict) and e.get("strategy") == QLearner.name]
+    # a policy file is read by the seats of family "fixed" only: [learning]'s serves every learner without its own
+    if isinstance(lt.get("policy_from"), str) and (
+            (not entries and lt.get("family") == "fixed")
+            or any(e.get("family", lt.get("family")) == "fixed" and "policy_from" not in e for e in learners)):
+        out.append(("learning.policy_from", lt["policy_from"]))
     for i, entry in enumerate(entries):
-        if isinstance(entry, dict) and isinstance(entry.get("policy_from"), str):
+        if (isinstance(entry, dict) and isinstance(entry.get("policy_from"), str)
+                and entry.get("family", lt.get("family")) == "fixed"):
             out.append((f"strategies[{i + 1}].policy_from", entry["policy_from"]))
     return out
 
@@ -85,10 +91,10 @@ def _learn_names(cfg: dict) -> list[str]:
                 f"profit_gain.{f}"]
     out += ["near_collusive", "near_collusive.low", "near_collusive.high", "near_nash", "near_nash.low",
             "near_nash.high", "rival_price_cut", "rival_price_cut.low", "rival_price_cut.high", "deviation_gain",
-            "deviation_gain.low", "deviation_gain.high", "deviation_pays", "returned", "return_periods"]
+            "deviation_gain.low", "deviation_gain.high", "deviation_pays", "returned", "periods_to_return"]
     # intervals of the limit profits and of the deviation's shares (after the columns above, which keep their place)
     out += [f"limit_profit.firm{i + 1}{q}" for i in range(n) for q in (".low", ".high")]
-    out += [f"{stem}{q}" for stem in ("deviation_pays", "returned", "return_periods") for q in (".low", ".high")]
+    out += [f"{stem}{q}" for stem in ("deviation_pays", "returned", "periods_to_return") for q in (".low", ".high")]
     for i in range(n):
         f = f"firm{i + 1}"
         out += [f"analytic.nash_price.{f}", f"analytic.collusive_price.{f}", f"analytic.nash_profit.{f}",
@@ -243,7 +249,7 @@ def learn_metrics(res: LearnResult) -> dict:
     m["rival_price_cut"], m["rival_price_cut.low"], m["rival_price_cut.high"] = rc["mean"], rc["low"], rc["high"]
     g = sm["deviation_gain"]
     m["deviation_gain"], m["deviation_gain.low"], m["deviation_gain.high"] = g["mean"], g["low"], g["high"]
-    for stem in ("deviation_pays", "returned", "return_periods"):
+    for stem in ("deviation_pays", "returned", "periods_to_return"):
         m[stem], m[f"{stem}.low"], m[f"{stem}.high"] = sm[stem]["mean"], sm[stem]["low"], sm[stem]["high"]
     for i in range(n):
         lp = sm["limit_profits"][i]
