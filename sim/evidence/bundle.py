@@ -57,8 +57,6 @@ from sim.runner.tabular import csv_text
 __all__ = ["Bundle", "Estimate", "clear_leftovers", "holds_bundle", "latex_table", "markdown_table"]
 
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}\Z")
-#: the first line of a numbered or bulleted item in an experiment file's leading comment (" 1. ...", " - ...")
-_LIST_ITEM = re.compile(r"^ {0,3}(\d+\.|-|\*) ")
 BUNDLE_FORMAT = "supergame-bundle/1"
 
 
@@ -392,37 +390,6 @@ class Bundle:
             Set in small type, as a remark.
         """
         self.blocks.append(_Block("paragraph", {"text": text, "note": note}))
-
-    def description(self, text: str) -> None:
-        """An experiment file's own account of itself (its leading comment): paragraphs at blank lines, their lines
-        joined; lines indented by four spaces or more (the commands that run it) kept as written, as code.
-
-        Parameters
-        ----------
-        text : str
-        """
-        for para in text.split("\n\n"):
-            words: list = []
-            code: list = []
-            in_list = False  # an indented line that goes on with a list item (" 1. ...") is text, not code
-            for line in para.splitlines() + [""]:
-                if _LIST_ITEM.match(line):
-                    in_list = True
-                elif not line.startswith("    "):
-                    in_list = False
-                if line.startswith("    ") and line.strip() and not in_list:
-                    if words:
-                        self.paragraph(" ".join(" ".join(words).split()))
-                        words = []
-                    code.append(line)
-                    continue
-                if code:
-                    indent = min(len(c) - len(c.lstrip()) for c in code)
-                    self.code("\n".join(c[indent:].rstrip() for c in code))
-                    code = []
-                words.append(line)
-            if " ".join(words).strip():
-                self.paragraph(" ".join(" ".join(words).split()))
 
     def bullets(self, items) -> None:
         """A bulleted list.

@@ -1,5 +1,6 @@
 """The parts of a run's evidence bundle that frame its detail: the first page (what was asked, the answer with its
-key numbers and intervals, the caution), the column labels of its tables, the methods appendix and the glossary.
+key numbers and intervals, the caution), the experiment file's own account of itself, the column labels of its
+tables, the methods appendix and the glossary.
 
 Everything is read from the stored cells and labelled from the catalogue (:mod:`sim.evidence.catalogue`); nothing
 is recomputed. The answer of a run without its own renderer's account is built from the kind's headline metrics:
@@ -19,6 +20,7 @@ from sim.evidence.catalogue import describe, describe_parameter, glossary
 from sim.evidence.catalogue_names import key_names
 
 __all__ = [
+    "describe_experiment",
     "headline",
     "methods_rows",
     "metric_column",
@@ -333,3 +335,41 @@ def software_lines(folder) -> list:
     listed = ", ".join(f"{k} {v}" for k, v in packages.items() if v)
     return [f"Packages: {listed}.",
             f"Platform: {plat.get('platform', '-')} ({plat.get('cpus', '-')} CPUs)."]
+
+
+#: the first line of a numbered or bulleted item in an experiment file's leading comment (" 1. ...", " - ...")
+_LIST_ITEM = re.compile(r"^ {0,3}(\d+\.|-|\*) ")
+
+
+def describe_experiment(b, text: str) -> None:
+    """An experiment file's own account of itself (its leading comment) in a bundle: paragraphs at blank lines, their
+    lines joined; lines indented by four spaces or more (the commands that run it) kept as written, as code, unless
+    they go on with a numbered or bulleted item.
+
+    Parameters
+    ----------
+    b : sim.evidence.bundle.Bundle
+    text : str
+    """
+    for para in text.split("\n\n"):
+        words: list = []
+        code: list = []
+        in_list = False  # an indented line that goes on with a list item (" 1. ...") is text, not code
+        for line in para.splitlines() + [""]:
+            if _LIST_ITEM.match(line):
+                in_list = True
+            elif not line.startswith("    "):
+                in_list = False
+            if line.startswith("    ") and line.strip() and not in_list:
+                if words:
+                    b.paragraph(" ".join(" ".join(words).split()))
+                    words = []
+                code.append(line)
+                continue
+            if code:
+                indent = min(len(c) - len(c.lstrip()) for c in code)
+                b.code("\n".join(c[indent:].rstrip() for c in code))
+                code = []
+            words.append(line)
+        if " ".join(words).strip():
+            b.paragraph(" ".join(" ".join(words).split()))

@@ -13,7 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from sim.evidence.figures import FONT, PAGE_WIDTH, SMALL, color
-from sim.evidence.front import where
+from sim.evidence.front import describe_experiment, where
 from sim.evidence.learn import console, figures, sessions_are_copies
 from sim.evidence.render import pyplot
 from sim.runner.analyses.learn import KIND as LEARN
@@ -30,7 +30,7 @@ def _setup(b, exp) -> None:
     desc = exp.description or leading_comment(exp.text or "")
     if desc:
         b.heading("What the experiment asks")
-        b.description(desc)
+        describe_experiment(b, desc)
     b.heading("Setup")
     b.bullets(LEARN.describe(exp.doc))
 

@@ -31,6 +31,7 @@ from sim.evidence.bundle import Bundle, Estimate, clear_leftovers, holds_bundle
 from sim.evidence.catalogue_names import whole_number
 from sim.evidence.figures import SweepData, _plt
 from sim.evidence.front import (
+    describe_experiment,
     headline,
     methods_rows,
     metric_column,
@@ -499,7 +500,7 @@ def _fill(b, rf, folder, exp, kind, rows, header, body, counts, attempts, meta, 
     else:
         if desc:
             b.heading("What the experiment asks")
-            b.description(desc)
+            describe_experiment(b, desc)
         b.heading("Setup")
         b.bullets(kind.describe(exp.doc) if kind.describe else [f"Kind: {exp.kind}"])
         if exp.parameters:

@@ -19,6 +19,7 @@ import numpy as np
 
 from sim.core.text import CAUTION, fmt_num, table
 from sim.evidence import tournament_figures as F
+from sim.evidence.front import describe_experiment
 from sim.evidence.render import Drawn, Renderer
 from sim.evidence.tournament_figures import percent
 from sim.evidence.tournament_sweep import sweep_account
@@ -280,7 +281,7 @@ def bundle(run, b) -> list | None:
     desc = exp.description or leading_comment(exp.text or "")
     if desc:
         b.heading("What the experiment asks")
-        b.description(desc)
+        describe_experiment(b, desc)
     if exp.parameters:
         sweep_account(run, b, ok)
         return None

@@ -32,10 +32,12 @@ def test_an_experiment_files_own_account_keeps_its_commands_as_code(tmp_path):
     # the leading comment's paragraphs are joined, its indented commands kept as written (a two-step run must not
     # read as one sentence), and an indented line that goes on with a numbered item stays text
     from sim.evidence.bundle import Bundle
+    from sim.evidence.front import describe_experiment
 
     b = Bundle(tmp_path / "b", "t")
-    b.description("Run it in two steps:\n    supergame learn a.toml   # step 1\n    supergame run b.toml     # step 2\n"
-                  "(well under a minute).\n\nWhat it shows:\n 1. one thing\n    that goes on\n 2. another")
+    describe_experiment(b, "Run it in two steps:\n    supergame learn a.toml   # step 1\n"
+                           "    supergame run b.toml     # step 2\n"
+                           "(well under a minute).\n\nWhat it shows:\n 1. one thing\n    that goes on\n 2. another")
     kinds = [(x.kind, x.data["text"]) for x in b.blocks]
     assert kinds == [("paragraph", "Run it in two steps:"),
                      ("code", "supergame learn a.toml   # step 1\nsupergame run b.toml     # step 2"),
