@@ -27,7 +27,7 @@ from sim.runner.folder import (
     output_files,
     reading,
 )
-from sim.runner.inputs import check_inputs, record_inputs
+from sim.runner.inputs import check_inputs, input_problems, record_inputs
 from sim.runner.lock import LOCK_FILE, FolderLock
 from sim.runner.manifest import check_manifest, clear_run_leftovers, write_manifest
 from sim.runner.store import STORE_FILE, CellRow, Store
@@ -306,6 +306,8 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
                 shutil.rmtree(folder, ignore_errors=True)
             raise
         finished = status != "incomplete"
+        if finished and ran:
+            _check_inputs_after(plan)
         files, report_dir = _finish(plan, status, write_report) if finished else ([], None)
         with RunFolder(folder, check_copy=False) as rf:
             failed_rows = [(r.number, r.error) for r in rf.rows() if r.status == "failed"]
@@ -315,6 +317,17 @@ def run_experiment(experiment, out=None, *, workers: int | None = None, cluster:
     return RunSummary(folder, exp.name, exp.kind, exp.n_cells, counts["ok"], counts["failed"], failed_rows, ran,
                       time.perf_counter() - t_start, plan.backend.describe(), status == "complete", files, report_dir,
                       status)
+
+
+def _check_inputs_after(plan) -> None:
+    """The files the cells read are still the ones recorded when the run started (:mod:`sim.runner.inputs`): one
+    replaced while the run went on may have been read in either version, so the folder is left unfinished."""
+    with Store(plan.folder / STORE_FILE, readonly=True) as st:
+        recorded = st.meta().get("inputs")
+    problems = input_problems(recorded, "the cells computed meanwhile may have read either version; the folder is "
+                                        "left unfinished: start a new run")
+    if problems:
+        raise InputError(*problems[0])
 
 
 def _check_ready(exp) -> None:
@@ -381,6 +394,8 @@ def _plan(folder: Path, experiment, resume, retry_failed: bool, report: bool, wo
     todo = [i for i in range(exp.n_cells) if i not in res.done or (retry_failed and i in res.failed)]
     if todo:
         _check_packages(res.attempts)
+    if todo or not (folder / MANIFEST).is_file():
+        # cells still to compute read the files, and a folder is not finished with files changed under it
         check_inputs(res.meta.get("inputs"))
     rewrite_report = report or ((folder / REPORT_DIR).exists() and bool(todo))
     rewritten = (*EXPORTS, STORE_FILE) + ((REPORT_DIR + "/",) if rewrite_report else ())

@@ -42,13 +42,18 @@ def record_inputs(exp) -> dict:
     return out
 
 
-def input_problems(recorded: dict | None) -> list[tuple[str, str]]:
+_NOW = "cells computed from it now would not give the stored numbers"
+
+
+def input_problems(recorded: dict | None, consequence: str = _NOW) -> list[tuple[str, str]]:
     """Each recorded input file that is missing here or has changed: (key path, words).
 
     Parameters
     ----------
     recorded : dict or None
         ``meta["inputs"]`` of a run's store.
+    consequence : str
+        What a changed file means, the end of its words.
 
     Returns
     -------
@@ -64,8 +69,7 @@ def input_problems(recorded: dict | None) -> list[tuple[str, str]]:
             now = file_sha256(name)
             if now != rec["sha256"]:
                 out.append((rec["key"], f"{name} has changed since the run started (SHA-256 now {now[:12]}..., "
-                                        f"recorded {rec['sha256'][:12]}...): cells computed from it now would not "
-                                        "give the stored numbers"))
+                                        f"recorded {rec['sha256'][:12]}...): {consequence}"))
     return out
 
 

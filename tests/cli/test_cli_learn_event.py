@@ -203,3 +203,29 @@ def test_under_quantity_setting_the_path_after_an_event_is_told_in_prices_agains
     ax = event_figure(res).figure.axes[0]
     levels = sorted(float(line.get_ydata()[0]) for line in ax.get_lines() if line.get_linestyle() in (":", "--"))
     assert levels == pytest.approx([(10 + 2 * 1.2) / 3, (10 + 1.2) / 2], rel=1e-6)
+
+
+def test_saved_learners_replaced_while_the_run_goes_on_leave_the_folder_unfinished(folder, capsys, monkeypatch):
+    # the cells of a run may read the file at any time: one replaced during the run is caught when the cells are done,
+    # the folder is not finished (no manifest, no exports), and it cannot be resumed into a finished one
+    import sim.runner.execute as E
+
+    assert main(["learn", "step1.toml"]) == 0
+    real = E.execute
+
+    def and_then_replaced(*args, **kwargs):
+        out = real(*args, **kwargs)
+        assert main(["learn", "step1.toml", "--seed", "99"]) == 0  # other learners under the same name
+        return out
+
+    monkeypatch.setattr(E, "execute", and_then_replaced)
+    capsys.readouterr()
+    assert main(["run", "step2.toml", "--out", "run", "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert "learning.continue_from: learners.npz has changed since the run started" in err
+    assert "the folder is left unfinished: start a new run" in err
+    assert not (folder / "run" / "manifest.json").exists() and not (folder / "run" / "results.csv").exists()
+    monkeypatch.setattr(E, "execute", real)
+    assert main(["run", "--resume", "run"]) == 2
+    assert "learners.npz has changed since the run started" in capsys.readouterr().err
+    assert not (folder / "run" / "manifest.json").exists()
