@@ -71,6 +71,8 @@ _KM = ("Kaplan-Meier restricted mean with Greenwood's variance (Kaplan and Meier
        "section 4.5), interval on the log scale, within [1, horizon]")
 _WILSON = "Wilson score interval (Wilson, 1927, JASA 22)"
 _SESSIONS = "Student's t interval across independent sessions (mean +- t s / sqrt(n), t with n - 1 degrees of freedom)"
+# a mean of per-session shares that are all 0 or 1 is a share of sessions (sim.learning.results._mean_ci)
+_BINARY = "the " + _WILSON + " on the count of sessions when every session's value is 0 or 1"
 _FRIEDMAN = ("delta* = (pi_D - pi_C) / (pi_D - pi_N), the smallest delta with pi_C / (1 - delta) >= pi_D + delta pi_N "
              "/ (1 - delta) (Friedman, 1971, Review of Economic Studies 38(1))")
 _JYC = ("outer approximation by supporting hyperplanes in fixed directions (Judd, Yeltekin and Conklin, 2003, "
@@ -266,8 +268,10 @@ ENTRIES: dict[str, Entry] = {
                        "as the grid points next to the benchmark do on a grid of 7 prices with xi = 0.1 and the "
                        "default tolerance).",
                        "counted", _WILSON),
-    "rival_price_cut": Entry("rivals' price cut after a deviation", "price",
-                             "How much the rivals lower their price in the period after a forced deviation: the "
+    "rival_price_cut": Entry("rivals' price cut after a deviation (below 0: a rise)", "price",
+                             "How much the rivals lower their price in the period after a forced deviation (their "
+                             "price before it minus their price in the period after, so that a negative cut is a "
+                             "rise; the terminal report states the change, after minus before): the "
                              "learning rivals' mean (an automaton's response is its rule, not learned; every "
                              "rival's when none learns).",
                              "impulse response (Calvano et al., 2020)", _SESSIONS),
@@ -279,11 +283,11 @@ ENTRIES: dict[str, Entry] = {
                             "every point of the limit cycle (exact), or the simulated ones (estimate) -- whose "
                             "discounted value gain is positive; not a share of sessions.",
                             "counted per session, averaged over sessions (the terminal report words it the same way)",
-                            _SESSIONS + ", kept within [0, 1]"),
+                            _SESSIONS + ", kept within [0, 1]; " + _BINARY),
     "returned": Entry("share of deviations after which play returns", "0 to 1",
                       "Mean over converged sessions of the share of the deviations tried at the points of the limit "
                       "cycle after which greedy play returns to the cycle it left; not a share of sessions.",
-                      "counted per session, averaged over sessions", _SESSIONS + ", kept within [0, 1]"),
+                      "counted per session, averaged over sessions", _SESSIONS + ", kept within [0, 1]; " + _BINARY),
     "periods_to_return": Entry("periods to return", "periods", "Mean over converged sessions of the mean number of "
                             "periods after a deviation until the state of greedy play is back on the limit cycle, "
                             "over the deviations after which it returns: 1 when the period after the deviation is "
@@ -293,7 +297,7 @@ ENTRIES: dict[str, Entry] = {
                             "deviation's prices for k periods, so it is back k periods after at the soonest. Named "
                             "return_periods, and counting the deviation's own period too, in runs of earlier "
                             "versions.",
-                            "counted per session, averaged over sessions", _SESSIONS),
+                            "counted per session, averaged over sessions", _SESSIONS + ", kept at or above 0"),
     # the column of runs written by earlier versions, still described when their folders are reported again
     "return_periods": Entry("periods to return, counting the deviation's period (earlier versions)", "periods",
                             "As periods_to_return, but counting the deviation's own period too: one more. Written "

@@ -57,13 +57,19 @@ HISTOGRAM_EDGES = np.round(np.arange(-0.5, 1.5001, 0.05), 10)
 
 def _mean_ci(x, level: float = 0.95, bounds: tuple | None = None) -> dict:
     """Mean with Student's confidence interval (nan when fewer than two values); with ``bounds``
-    (the values' domain, e.g. ``(0, 1)`` for means of shares) the interval is kept within it."""
+    (the values' domain, e.g. ``(0, 1)`` for means of shares, ``(0, inf)`` for counts) the interval is kept within
+    it. With bounds ``(0, 1)`` and every value 0 or 1 the mean is a share of sessions, and its interval is Wilson's
+    (``"method": "wilson"``): Student's has no width when every session gives the same value."""
 
     x = np.asarray(x, dtype=float)
     x = x[np.isfinite(x)]
     n = x.size
     if n == 0:
         return {"mean": math.nan, "se": math.nan, "low": math.nan, "high": math.nan, "n": 0}
+    if bounds == (0.0, 1.0) and bool(np.all((x == 0.0) | (x == 1.0))):
+        w = wilson_estimate(int(x.sum()), n, level)
+        return {"mean": w.value, "se": math.sqrt(w.value * (1.0 - w.value) / n), "low": w.low, "high": w.high,
+                "n": int(n), "method": "wilson"}
     e = mean_estimate(x, level)
     low, high = e.low, e.high
     if bounds is not None and n > 1:
@@ -357,7 +363,7 @@ class LearningResult:
             "deviation_gain": _mean_ci(self.deviation_gain[sel], lvl),
             "deviation_pays": _mean_ci(self.deviation_pays[sel], lvl, (0.0, 1.0)),
             "returned": _mean_ci(self.returned[sel], lvl, (0.0, 1.0)),
-            "periods_to_return": _mean_ci(self.periods_to_return[sel], lvl),
+            "periods_to_return": _mean_ci(self.periods_to_return[sel], lvl, (0.0, math.inf)),
             "benchmarks": {
                 "nash_prices": lu.nash_prices.tolist(), "collusive_prices": lu.collusive_prices.tolist(),
                 "nash_profits": lu.nash_profits.tolist(), "collusive_profits": lu.collusive_profits.tolist(),

@@ -252,7 +252,10 @@ def _event_words(saved: SavedLearners, lineup: Lineup, market: dict | None, even
         return f"firm {lineup.n_seats} enters, playing {lineup.names[-1].replace('_', ' ')}"
     old = saved.header.get("market") or {}
     changed = [f"market.{k} {old.get(k)!r} -> {v!r}" for k, v in (market or {}).items() if old.get(k) != v]
-    return "the market changes: " + ("; ".join(changed) if changed else "no setting differs")
+    if not changed:
+        # the control of another event continued from the same file: what the learners do without it
+        return "the market as it was: no setting differs, the saved sessions simply continue"
+    return "the market changes: " + "; ".join(changed)
 
 
 def _check_kept_memory(lineup: Lineup, sessions: int) -> None:
