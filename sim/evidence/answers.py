@@ -158,7 +158,27 @@ def learn_headline(res) -> str:
         ci_after = interval(after.get("low"), after.get("high"), res.confidence) if after.get("n", 0) >= 2 else ""
         out += ("Against the static Nash after the merger (the merged firm setting its products' prices jointly) "
                 f"it is {number(after['mean'])}" + (f" ({ci_after})" if ci_after else "") + ". ")
+    out += _learners_own_gain(res)
     return out + f"{c['count']} of {c['n']} sessions converged ({percent(c['share'])})."
+
+
+def _learners_own_gain(res) -> str:
+    """With automata in the line-up, the learners' own profit gains: the headline's mean is over every firm, the
+    automata's profits included."""
+    automata = {int(a["firm"]) for a in (getattr(res, "automata", None) or [])}
+    per_firm = res.summary.get("firm_profit_gain") or []
+    if not automata or not per_firm:
+        return ""
+    parts = []
+    for i, g in enumerate(per_firm):
+        if i + 1 in automata or g.get("mean") is None:
+            continue
+        ci = interval(g.get("low"), g.get("high"), res.confidence) if g.get("n", 0) >= 2 else ""
+        parts.append(f"firm {i + 1} {number(g['mean'])}" + (f" ({ci})" if ci else ""))
+    if not parts:
+        return ""
+    return ("That mean is over every firm, the automata's profits included; the learners' own profit gains: "
+            + "; ".join(parts) + ". ")
 
 
 def _threshold_words(x) -> str:

@@ -273,10 +273,13 @@ ENTRIES: dict[str, Entry] = {
                              "price before it minus their price in the period after, so that a negative cut is a "
                              "rise; the terminal report states the change, after minus before): the "
                              "learning rivals' mean (an automaton's response is its rule, not learned; every "
-                             "rival's when none learns).",
+                             "rival's when none learns). Rivals are the seats of other owners: after a merger the "
+                             "deviating product's merged partner is not one.",
                              "impulse response (Calvano et al., 2020)", _SESSIONS),
     "deviation_gain": Entry("gain from the forced deviation", _DISCOUNTED,
-                            "Discounted profit of the deviating firm with the deviation minus without.",
+                            "Discounted profit of the deviating firm with the deviation minus without (after a "
+                            "merger, of the merged firm: its products' summed profit, what the deviating product's "
+                            "learner is rewarded with).",
                             "impulse response (Calvano et al., 2020)", _SESSIONS),
     "deviation_pays": Entry("share of deviations that pay", "0 to 1",
                             "Mean over converged sessions of the share of the deviations tried in each -- one at "

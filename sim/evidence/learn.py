@@ -304,11 +304,20 @@ def _deviator_delta(res: LearnResult) -> str:
     return f", discount factor {fmt_num(float(delta))}{bandit}"
 
 
+def _merged_deviator(res: LearnResult) -> bool:
+    """Whether the deviating product merged (its deviation is then valued with the merged firm's profit)."""
+    ev = res.event if isinstance(res.event, dict) else {}
+    firms = (ev.get("merger") or {}).get("firms") or []
+    return int(res.settings["deviator"]) in [int(f) for f in firms]
+
+
 def _deviation_lines(res: LearnResult) -> list[str]:
     """What the deviation earns under the learned strategies, and whether play returns to the cycle."""
     sm = res.summary
     lim, g, pays = sm["limit"], sm["deviation_gain"], sm["deviation_pays"]
     d = _deviator_delta(res)
+    if _merged_deviator(res):
+        d += "; of the merged firm: its products' summed profit, what the learner is rewarded with"
     if res.limit_exact:
         r = sm["returned"]
         if "periods_to_return" in sm:

@@ -269,6 +269,10 @@ class Play(NamedTuple):
     rng: np.ndarray
 
 
+#: :attr:`DeviationInputs.value` of a deviation valued with the deviating seat's own profit
+OWN_PROFIT = np.zeros(0)
+
+
 class DeviationInputs(NamedTuple):
     """The one-period deviation of the impulse response, and the simulation settings of the estimate.
 
@@ -289,6 +293,10 @@ class DeviationInputs(NamedTuple):
         Estimate only: periods averaged.
     horizon : int
         Estimate only: periods (the deviation period included) over which a deviation's value is summed.
+    value : ndarray of float64, shape (M,) or (0,)
+        The profit a deviation is valued with (and the static best response chosen by) at each profile: after a
+        merger, the deviator's owner's -- the merged firm's total, what its learner is rewarded with
+        (:attr:`sim.learning.lineup.Lineup.reward`); empty (the default): the seat's own profit.
     """
 
     seat: int
@@ -298,6 +306,7 @@ class DeviationInputs(NamedTuple):
     burn_in: int = 0
     periods: int = 0
     horizon: int = 0
+    value: np.ndarray = OWN_PROFIT
 
 
 class LimitOutputs(NamedTuple):

@@ -196,6 +196,39 @@ def value_of(x0, seat, d, play):
     return v + w * c / (1.0 - wc)
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _dev_profit(prof, play, dev):
+    """The deviator's profit at profile ``prof`` as its deviation is valued: its owner's after a merger
+    (``dev.value``), else its own."""
+    if dev.value.size > 0:
+        return dev.value[prof]
+    return play.stage.payoff[prof, dev.seat]
+
+
+@njit(cache=True, nogil=True)
+def _dev_value(x0, play, dev):
+    """:func:`value_of` for the deviator, its profit as :func:`_dev_profit` takes it (the same sums, in the same
+    order)."""
+    d = dev.discount
+    mu, lam, _entry = cycle_of(x0, play)
+    v = 0.0
+    w = 1.0
+    x = x0
+    for _ in range(mu):
+        prof = _profile(x, play)
+        v += w * _dev_profit(prof, play, dev)
+        w *= d
+        x = _after(x, prof, play)
+    c = 0.0
+    wc = 1.0
+    for _ in range(lam):
+        prof = _profile(x, play)
+        c += wc * _dev_profit(prof, play, dev)
+        wc *= d
+        x = _after(x, prof, play)
+    return v + w * c / (1.0 - wc)
+
+
 @njit(cache=True, nogil=True)
 def _on_cycle(x, entry, lam, play):
     """True when system state ``x`` is one of the ``lam`` states of the cycle through ``entry``."""
@@ -212,16 +245,16 @@ def _deviation_profile(x, play, dev):
     """The profile of the deviation period in system state ``x``: the others play greedily, the deviator its
     forced action (``dev.action``, or its best response -- the first of equal ones -- to the others' actions).
     Returns the profile and the deviator's action."""
-    stage, place, seat = play.stage, play.seats.place, dev.seat
+    place, seat = play.seats.place, dev.seat
     m_dev = play.seats.radix[seat]
     prof = _profile(x, play)
     base = prof - ((prof // place[seat]) % m_dev) * place[seat]
     a_dev = dev.action
     if a_dev < 0:
         a_dev = 0
-        best = stage.payoff[base, seat]
+        best = _dev_profit(base, play, dev)
         for a in range(1, m_dev):
-            v = stage.payoff[base + a * place[seat], seat]
+            v = _dev_profit(base + a * place[seat], play, dev)
             if v > best:
                 best = v
                 a_dev = a
@@ -243,14 +276,13 @@ def _follow(y, tau0, stop, play, out_prices, out_profits, dev, horizon, v, w):
     periods ``tau <= horizon`` the deviator's profit, weighted by ``w`` and then ``w * d``, ``w * d**2``, ...
     (``d = dev.discount``), is added to ``v``, which is returned (in this order, so that the twin's sums are
     matched bit for bit)."""
-    payoff = play.stage.payoff
     rows = out_prices.shape[0]
     for tau in range(tau0, stop):
         p = _profile(y, play)
         if tau < rows:
             _add_profile(out_prices, out_profits, tau, p, play.stage)
         if tau <= horizon:
-            v += w * payoff[p, dev.seat]
+            v += w * _dev_profit(p, play, dev)
             w *= dev.discount
         y = _after(y, p, play)
     return v
@@ -305,7 +337,7 @@ def _record_before(x, out, stage):
 def _deviate_exactly(x, entry, lam, play, dev, out):
     """The deviation from cycle point ``x`` (the cycle through ``entry``, of length ``lam``): its responses
     added to ``out``, its exact value gain, whether play returns to the cycle and after how many periods."""
-    payoff, T2 = play.stage.payoff, out.ir_prices.shape[0]
+    T2 = out.ir_prices.shape[0]
     _record_before(x, out, play.stage)
     pdev, a_dev = _deviation_profile(x, play, dev)
     _add_profile(out.ir_prices, out.ir_profits, 1, pdev, play.stage)
@@ -313,8 +345,8 @@ def _deviate_exactly(x, entry, lam, play, dev, out):
     # the responses only (horizon -1: no value; the exact values follow)
     _follow(y0, 2, T2, play, out.ir_prices, out.ir_profits, dev, -1, 0.0, 1.0)
     _follow(x, 1, T2, play, out.cf_prices, out.cf_profits, dev, -1, 0.0, 1.0)
-    v_dev = payoff[pdev, dev.seat] + dev.discount * value_of(y0, dev.seat, dev.discount, play)
-    v_no = value_of(x, dev.seat, dev.discount, play)
+    v_dev = _dev_profit(pdev, play, dev) + dev.discount * _dev_value(y0, play, dev)
+    v_no = _dev_value(x, play, dev)
     mu2, lam2, entry2 = cycle_of(y0, play)
     back = lam2 == lam and _on_cycle(entry2, entry, lam, play)
     # periods after the deviation until the state is on the cycle again: 1 when the period after it is already back,
@@ -425,7 +457,7 @@ def _branch(x, play, dev, out, start):
     receives the last profile of the history. Returns the value with the deviation, the value without it and the
     forced action.
     """
-    payoff, rng = play.stage.payoff, play.rng
+    rng = play.rng
     length = max(dev.horizon, out.ir_prices.shape[0] - 1)
     _record_before(x, out, play.stage)
     for k in range(4):
@@ -433,7 +465,7 @@ def _branch(x, play, dev, out, start):
     pdev, a_dev = _deviation_profile(x, play, dev)
     _add_profile(out.ir_prices, out.ir_profits, 1, pdev, play.stage)
     v_dev = _follow(_after(x, pdev, play), 2, length + 1, play, out.ir_prices, out.ir_profits, dev, dev.horizon,
-                    payoff[pdev, dev.seat], dev.discount)
+                    _dev_profit(pdev, play, dev), dev.discount)
     for k in range(4):
         rng[k] = start[k]
     v_no = _follow(x, 1, length + 1, play, out.cf_prices, out.cf_profits, dev, dev.horizon, 0.0, 1.0)

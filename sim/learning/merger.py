@@ -14,7 +14,9 @@ benchmarks of the line-up (:attr:`~sim.learning.lineup.Lineup.nash_prices`, the 
 the prices before and after the merger compare directly. The static effect of the merger is given beside them
 (:func:`merger_benchmarks`): the static Nash prices of the market in which the merged firm sets its products' prices
 jointly, so the report can say whether learned prices rise more or less than the static merger effect. The impulse
-response after the merger still values a deviation by the deviating product's own profit.
+response after the merger values a deviation by the merged firm's profit, what the deviating product's learner is
+rewarded with (:attr:`sim.learning.inputs.DeviationInputs.value`): undercutting its own partner is not a gain to the
+merged firm; the partner is not counted among the rivals whose response is reported.
 
 What the learners can still learn depends on how much they still explore (``exp(-beta t)``, ``t`` from the start of
 the saved session): learners whose exploration has died out revise only the values of the prices they play, which

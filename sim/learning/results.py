@@ -335,7 +335,9 @@ class LearningResult:
             "no_deviation_prices": self.cf_prices[sel].mean(axis=0).tolist() if sel.any() else [],
             "no_deviation_profits": self.cf_profits[sel].mean(axis=0).tolist() if sel.any() else [],
         }
-        rivals = [j for j in range(f) if j != self.settings["deviator"]]
+        # the deviator's rivals: the seats of other owners (after a merger the merged partner is not a rival)
+        owner = lu.seats.owner
+        rivals = [j for j in range(f) if owner[j] != owner[self.settings["deviator"]]]
         # the learned response: the learning rivals' (an automaton's response is its rule); all rivals when none learns
         learning = [j for j in rivals if lu.learners[j] is not None] or rivals
         pre = self.ir_prices[sel][:, 0, :]
@@ -384,6 +386,8 @@ class LearningResult:
             ev = self.event
             out["event"] = event_summary(ev["event"], ev["path"], ev["settle"], self.converged, self.limit_prices,
                                          ev["what"], lvl, ev.get("merger"), ev.get("at_event"))
+            # the period each session was continued at (median over sessions), to count from the event
+            out["event"]["start"] = float(np.median(ev["start"])) if np.size(ev["start"]) else None
             if out["event"].get("merger", {}).get("available"):
                 _after_merger(out["event"]["merger"], self, sel, lvl)
         self._summary.update(out)

@@ -78,7 +78,7 @@ from sim.learning.alternating import (
     run_alternating,
 )
 from sim.learning.events import Event, adapt_saved, check_event, run_tracked
-from sim.learning.inputs import STATUS_CONVERGED, DeviationInputs, LimitOutputs, SessionState
+from sim.learning.inputs import OWN_PROFIT, STATUS_CONVERGED, DeviationInputs, LimitOutputs, SessionState
 from sim.learning.lineup import Lineup, available_memory, compile_lineup
 from sim.learning.merger import merged_lineup, merged_statistics, merger_benchmarks, merger_words, refuse_merged
 from sim.learning.noisy_prices import PRICE_NOISE, check_noisy_lineup, noisy_start, true_profile
@@ -473,8 +473,10 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
     g0 = lineup.initial_greedy()
     seat = settings["deviator"]
     d_dev = deviator_discount(lineup, seat)
+    # after a merger a deviation is valued with the deviator's owner's profit, what its learner is rewarded with
+    value = OWN_PROFIT if lineup.reward is None else np.ascontiguousarray(lineup.reward[:, seat], dtype=np.float64)
     dev = DeviationInputs(seat, dev_index, d_dev, IR_POINTS, LIMIT_BURN_IN, settings["limit_periods"],
-                          value_horizon(d_dev))
+                          value_horizon(d_dev), value)
     announce_compile("learning", (K.run_session, L.analyse_limit if lineup.limit_exact else L.estimate_limit))
     t0 = time.perf_counter()
     _each(n, settings["workers"], lambda j: _session(j, lineup, states[j], g0, settings, dev, buf, start), progress)

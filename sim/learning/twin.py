@@ -421,7 +421,7 @@ class _GreedyPlay:
         if dev.action >= 0:
             a_dev = dev.action
         else:
-            a_dev = _argmax([st.profits(others[:seat] + (a,) + others[seat + 1:])[seat] for a in range(st.m[seat])])
+            a_dev = _argmax([self.dev_profit(others[:seat] + (a,) + others[seat + 1:], dev) for a in range(st.m[seat])])
         return others[:seat] + (a_dev,) + others[seat + 1:], a_dev
 
     def path_to_cycle(self, state, rng):
@@ -434,16 +434,25 @@ class _GreedyPlay:
         start = seen[state]
         return order[:start], order[start:]
 
-    def value(self, state, seat, d, rng):
-        """Discounted profit of ``seat`` from ``state`` on: transient, then the cycle forever."""
+    def dev_profit(self, profile, dev):
+        """The deviator's profit at ``profile`` as its deviation is valued: its owner's after a merger
+        (``dev.value``), else its own."""
+        if len(dev.value):
+            return float(dev.value[self.st.index(profile)])
+        return self.st.profits(profile)[dev.seat]
+
+    def value(self, state, dev, rng):
+        """Discounted profit of the deviator (:meth:`dev_profit`) from ``state`` on: transient, then the cycle
+        forever."""
+        d = dev.discount
         transient, cycle = self.path_to_cycle(state, rng)
         v, w = 0.0, 1.0
         for h in transient:
-            v += w * self.st.profits(self.play(h, rng))[seat]
+            v += w * self.dev_profit(self.play(h, rng), dev)
             w *= d
         c, wc = 0.0, 1.0
         for h in cycle:
-            c += wc * self.st.profits(self.play(h, rng))[seat]
+            c += wc * self.dev_profit(self.play(h, rng), dev)
             wc *= d
         return v + w * c / (1.0 - wc)
 
@@ -515,8 +524,8 @@ def reference_analysis(lineup, greedy, history, z, t_end, dev, T):
         for tau, p in enumerate(rows):
             gp.add(ir, tau, p)
         y0 = gp.step(x, profile, rng)
-        v_dev = st.profits(profile)[dev.seat] + dev.discount * gp.value(y0, dev.seat, dev.discount, rng)
-        v_no = gp.value(x, dev.seat, dev.discount, rng)
+        v_dev = gp.dev_profit(profile, dev) + dev.discount * gp.value(y0, dev, rng)
+        v_no = gp.value(x, dev, rng)
         gains.append(v_dev - v_no)
         pays += _pays(v_dev - v_no, v_no)
         tr2, cy2 = gp.path_to_cycle(y0, rng)
@@ -533,14 +542,14 @@ def _simulated_deviation(gp, state, dev, T, branch_base, ir, cf):
     """One deviation and the path without it, each drawing from a copy of ``branch_base`` over
     ``max(horizon, T + 1)`` periods: the first ``T + 1`` added to the response rows, the first ``horizon`` giving
     the deviator's discounted profit. Returns (value with, value without, forced action)."""
-    st, length = gp.st, max(dev.horizon, T + 1)
+    length = max(dev.horizon, T + 1)
     gp.add(ir, 0, state[0][0])
     gp.add(cf, 0, state[0][0])
     rng = ReferenceStream(np.array(branch_base.s, dtype=np.uint64))
     profile, a_dev = gp.deviation(state, dev, rng)
     gp.add(ir, 1, profile)
     v_dev = _follow(gp, gp.step(state, profile, rng), 2, length, T, dev, ir, rng,
-                    st.profits(profile)[dev.seat], dev.discount)
+                    gp.dev_profit(profile, dev), dev.discount)
     # without it, from the same random numbers
     rng = ReferenceStream(np.array(branch_base.s, dtype=np.uint64))
     v_no = _follow(gp, state, 1, length, T, dev, cf, rng, 0.0, 1.0)
@@ -555,7 +564,7 @@ def _follow(gp, y, first, length, T, dev, rows, rng, v, w):
         if tau <= T + 1:
             gp.add(rows, tau, p)
         if tau <= dev.horizon:
-            v += w * gp.st.profits(p)[dev.seat]
+            v += w * gp.dev_profit(p, dev)
             w *= dev.discount
         y = gp.step(y, p, rng)
     return v

@@ -30,7 +30,7 @@ def test_grim_trigger_is_explained_by_its_permanent_punishment(tmp_path, capsys)
     assert "Why the sessions ended where they did" in out
     line = next(x for x in out.splitlines() if x.strip().startswith("Grim trigger (firm 2) was triggered"))
     # the learners explore at random in the first periods, so the punishment starts at once and never ends
-    assert "while the learners still explored" in line and "it was triggered once per session" in line
+    assert "when the learners explored with probability" in line and "it was triggered once per session" in line
     assert "In 100.0 % of sessions it was still punishing when learning ended" in line
     assert "to price at or near the static Nash level" in line
 
@@ -40,6 +40,10 @@ def test_tit_for_tat_is_explained_by_punishments_that_end(tmp_path, capsys):
     out = capsys.readouterr().out
     line = next(x for x in out.splitlines() if x.strip().startswith("Tit for tat (firm 2) was triggered"))
     assert "Its punishments ended" in line and "to keep to or near the joint-profit price" in line
+    # the headline's mean profit gain is over both firms; the learner's own is given beside it, the automaton's not
+    head = out.splitlines()[0]
+    assert "the automata's profits included; the learners' own profit gains: firm 1 " in head
+    assert "firm 2 " not in head.split("the learners' own profit gains:")[1]
 
 
 def test_the_printed_report_is_the_stored_result_and_new_columns_come_last(tmp_path, capsys):

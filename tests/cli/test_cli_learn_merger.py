@@ -104,6 +104,9 @@ def test_the_shipped_merger_experiment_in_its_two_steps(tmp_path, monkeypatch, c
     learned = (mg["learned_change"][0] + mg["learned_change"][1]) / 2
     assert 0 < learned < mg["static_change"][0]
     assert res.event["settled"]["share"] == 1.0
+    # the deviating product (firm 1) merged with firm 2: its only rival is firm 3, and its deviation is valued with
+    # the merged firm's profit (tests/learning/test_merger.py checks that on hand-written strategies)
+    assert [c["firm"] for c in res.summary["rival_price_cuts"]] == [3]
     assert (tmp_path / "merger" / "report" / "figures" / "prices_after_event.png").is_file()
     # the control: the same saved sessions continued with no merger (experiments/learning-merger-control.toml),
     # which its comment and the merger's say settles higher. Compared session by session (each pair continues one

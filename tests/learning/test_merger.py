@@ -202,3 +202,39 @@ def test_sessions_saved_after_a_merger_are_not_continued_silently_as_if_unmerged
         with pytest.raises(sim.InputError) as e:
             learn(logit_market(), lu, sessions=16, seed=2, convergence=500, workers=2, start=after.saved, event=event)
         assert e.value.key == "learning.continue_from" and "merger" in e.value.message
+
+
+def test_after_a_merger_a_deviation_is_valued_with_the_merged_firms_profit():
+    # hand-written strategies: both products always priced high (a fixed point whatever the history), so a forced
+    # one-period deviation of product 1 to the low price changes only that period, and its value gain is exactly
+    # the deviator's profit at (low, high) minus at (high, high) (Calvano et al., 2020, impulse response; a merged
+    # firm's objective is its products' summed profit, Deneckere and Davidson, 1985). Undercutting the partner
+    # raises the product's own profit but lowers the merged firm's: valued by the owner it does not pay.
+    import sim.learning.limits as L
+    from sim.learning.inputs import DeviationInputs, limit_outputs
+    from sim.learning.twin import reference_analysis
+
+    lu = compile_lineup(logit_market(2), QLearner(grid=[1.5, 1.9]))
+    merged = merged_lineup(lu, (1, 2))
+    g = np.array([[1, 1, 1, 1], [1, 1, 1, 1]], dtype=np.int64)
+    hh, lh = 1 + 2 * 1, 0 + 2 * 1  # profiles: action of seat 0 + 2 * action of seat 1
+    own, firm = merged.stage.payoff[:, 0], merged.reward[:, 0]
+    assert np.allclose(firm, merged.stage.payoff[:, 0] + merged.stage.payoff[:, 1])
+    assert own[lh] > own[hh] and firm[lh] < firm[hh]
+    for value, want in ((np.zeros(0), own[lh] - own[hh]), (np.ascontiguousarray(firm), firm[lh] - firm[hh])):
+        dev = DeviationInputs(0, 0, 0.95, 8, value=value)
+        out = limit_outputs(2, 3)
+        L.analyse_limit(hh, merged.play(g, 0), dev, out)
+        info = out[-1]
+        assert info[3] == pytest.approx(want, rel=1e-12)
+        assert info[4] == (1.0 if want > 0 else 0.0)
+        ref = reference_analysis(merged, g, ((1, 1),), [0, 0], 0, dev, 3)
+        assert ref["gain"] == info[3] and ref["pays"] == info[4]
+        # the reported profits stay the products' own
+        assert np.array_equal(out[5], np.array(ref["ir_profits"]))
+        assert out[5][1][0] == own[lh]
+    # the static best response is chosen by the same profit: the low price for the product, the high for the firm
+    for value, best in ((np.zeros(0), 0), (np.ascontiguousarray(firm), 1)):
+        out = limit_outputs(2, 3)
+        L.analyse_limit(hh, merged.play(g, 0), DeviationInputs(0, -1, 0.95, 8, value=value), out)
+        assert out[-1][7] == best
