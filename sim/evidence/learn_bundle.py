@@ -113,7 +113,8 @@ def _sweep_account(run, b, exp, ok) -> None:
     if any(results[r.cell].shock_response for r in ok):
         _price_war_table(b, exp, ok, results, lvl)
     labels = [_cell_label(r, exp) for r in ok]
-    b.figure("cells-side-by-side", comparison_figure([results[r.cell] for r in ok], labels),
+    b.figure("cells-side-by-side", comparison_figure([results[r.cell] for r in ok], labels, _swept_name(exp),
+                                                     lvl),
              f"Every session's profit gain (left) and firm 1's mean limit price (right), one column per cell; bar: "
              f"the mean and its {lvl} confidence interval across sessions; dotted: static Nash, dashed: joint "
              "profit." + (" Open diamond: the mean profit gain in play with error after learning, with its "
@@ -173,7 +174,18 @@ def _error_play_table(b, exp, ok, results, lvl) -> None:
                  "no exploration); change: with minus without, session by session; over converged sessions")
 
 
-def comparison_figure(results: list, labels: list):
+def _swept_name(exp) -> str | None:
+    """The swept parameter in words, for the comparison figure's axis (None for several)."""
+    if len(exp.parameters) != 1:
+        return None
+    path = exp.parameters[0].path
+    if path.startswith("strategies."):
+        tail = path.split(".", 2)[1]
+        return f"firm {int(tail) + 1}'s strategy" if tail.isdigit() else path
+    return None
+
+
+def comparison_figure(results: list, labels: list, swept: str | None = None, level: str = "95 %"):
     """Every session's profit gain and firm 1's mean limit price, one column per result.
 
     Parameters
@@ -181,6 +193,10 @@ def comparison_figure(results: list, labels: list):
     results : list of sim.learning.analysis.LearnResult
     labels : list of str
         One per result.
+    swept : str, optional
+        The swept parameter in words when there is one whose labels are the values alone (a strategy).
+    level : str
+        The intervals' confidence level, for the legend.
 
     Returns
     -------
@@ -215,14 +231,27 @@ def comparison_figure(results: list, labels: list):
     axes[0].axhline(1.0, color="grey", ls="--", lw=1)
     axes[1].axhline(float(bm[f"nash_{which}"][0]), color="grey", ls=":", lw=1)
     axes[1].axhline(float(bm[f"collusive_{which}"][0]), color="grey", ls="--", lw=1)
-    short = [lab.split(" = ", 1)[-1] if len(results) and lab.count(" = ") == 1 else f"cell {k + 1}"
+    keyed = all(lab.count(" = ") == 1 for lab in labels)
+    short = [lab.split(" = ", 1)[-1] if keyed or (swept and " = " not in lab) else f"cell {k + 1}"
              for k, lab in enumerate(labels)]
-    for ax, title in ((axes[0], "profit gain"), (axes[1], f"firm 1 mean limit {act}")):
+    ylabels = ("0: static Nash, 1: joint profit", f"{act}, firm 1")
+    for ax, title, ylab in zip(axes, ("profit gain", f"firm 1 mean limit {act}"), ylabels):
         ax.set_xticks(range(len(results)), short, fontsize=SMALL)
         ax.set_xlim(-0.6, len(results) - 0.4)
         ax.set_title(title, fontsize=FONT)
+        ax.set_ylabel(ylab, fontsize=SMALL)
         ax.tick_params(labelsize=SMALL)
         ax.grid(axis="y", alpha=0.3)
-    if all(lab.count(" = ") == 1 for lab in labels):
-        fig.supxlabel(labels[0].split(" = ", 1)[0], fontsize=SMALL)
+    xname = (labels[0].split(" = ", 1)[0] if keyed else
+             swept if swept and all(" = " not in lab for lab in labels) else None)
+    if xname:
+        for ax in axes:
+            ax.set_xlabel(xname, fontsize=SMALL)
+    from matplotlib.lines import Line2D
+
+    handles = [Line2D([], [], ls="none", marker="o", ms=3, color="grey", alpha=0.6, label="one session"),
+               Line2D([], [], ls="none", marker="s", ms=4, color="black", label=f"mean, {level} interval"),
+               Line2D([], [], color="grey", ls=":", lw=1, label="static Nash"),
+               Line2D([], [], color="grey", ls="--", lw=1, label="joint profit")]
+    fig.legend(handles=handles, loc="outside lower center", ncol=4, fontsize=SMALL, frameon=False)
     return fig

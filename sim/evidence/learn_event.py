@@ -157,7 +157,10 @@ def event_figure(res):
     act = "price"  # the path after the event, its limits and changes are prices, under quantity setting too
     x = np.array(ev["bin_periods"], dtype=float)
     mean, low, high = (np.array(ev["prices"][k], dtype=float) for k in ("mean", "low", "high"))
-    fig, ax = plt.subplots(figsize=(PAGE_WIDTH, 3.6), layout="constrained")
+    # the path after the event on the left; the limit once settled again, usually far beyond the window, in a panel
+    # of its own on the right (not on the path's time axis)
+    fig, (ax, ax_lim) = plt.subplots(1, 2, figsize=(PAGE_WIDTH, 3.6), layout="constrained", sharey=True,
+                                     gridspec_kw={"width_ratios": [5, 1.3]})
     for i in range(res.n_firms):
         ok = np.isfinite(mean[:, i])
         ax.plot(x[ok], mean[ok, i], color=color(i), lw=1.5, marker="o" if ok.sum() < 30 else None, ms=3,
@@ -170,26 +173,44 @@ def event_figure(res):
     mg = ev.get("merger") or {}
     # a merger leaves the market as it was: its benchmarks are those of the firms before the merger
     when = "before the merger" if mg else "after"
-    ax.axhline(float(np.mean(bm[f"nash_{which}"])), color="grey", ls=":", lw=1, label=f"static Nash {act} {when}")
-    ax.axhline(float(np.mean(bm[f"collusive_{which}"])), color="grey", ls="--", lw=1,
-               label=f"joint-profit {act}" if mg else f"joint-profit {act} after")
+    for a in (ax, ax_lim):
+        a.axhline(float(np.mean(bm[f"nash_{which}"])), color="grey", ls=":", lw=1,
+                  label=f"static Nash {act} {when}" if a is ax else None)
+        a.axhline(float(np.mean(bm[f"collusive_{which}"])), color="grey", ls="--", lw=1,
+                  label=(f"joint-profit {act}" if mg else f"joint-profit {act} after") if a is ax else None)
     if mg.get("available"):
+        levels = [float(v) for v in mg["nash_actions"]]
         for i in range(res.n_firms):
-            ax.axhline(float(mg["nash_actions"][i]), color=color(i), ls="-.", lw=1,
-                       label=f"static Nash {act} after\nthe merger (firm's colour)" if i == 0 else None)
-    # the limit once settled again, usually far beyond the window: a diamond per firm at the window's right edge
+            # firms whose post-merger Nash prices coincide share the line in alternating dashes of their colours
+            same = [j for j in range(res.n_firms) if abs(levels[j] - levels[i]) <= 1e-9 * max(1.0, abs(levels[i]))]
+            k, c = same.index(i), len(same)
+            style = (k * 4.0, (4.0, 4.0 * (c - 1))) if c > 1 else (0.0, (6.0, 2.0, 1.0, 2.0))
+            for a in (ax, ax_lim):
+                a.axhline(levels[i], color=color(i), ls=style, lw=1.2,
+                          label=f"static Nash {act} after\nthe merger (firm's colour)" if (i == 0 and a is ax)
+                          else None)
     lim = res.summary["limit_prices"]
     for i in range(res.n_firms):
-        v = _num(lim[i]["mean"]) if i < len(lim) else math.nan
+        e = lim[i] if i < len(lim) else {}
+        v, lo, hi = _num(e.get("mean")), _num(e.get("low")), _num(e.get("high"))
         if math.isfinite(v):
-            ax.plot([x[-1]], [v], "D", color=color(i), mec="black", ms=6, clip_on=False,
-                    label="limit once settled\n(at the right edge)" if i == 0 else None)
+            err = [[v - lo if math.isfinite(lo) else 0.0], [hi - v if math.isfinite(hi) else 0.0]]
+            ax_lim.errorbar([i], [v], yerr=err, fmt="D", color=color(i), mec="black", ms=5, capsize=3)
+    ax_lim.set_xticks(range(res.n_firms), [f"firm {i + 1}" for i in range(res.n_firms)], fontsize=SMALL,
+                      rotation=90 if res.n_firms > 3 else 0)
+    ax_lim.set_xlim(-0.6, res.n_firms - 0.4)
+    ax_lim.set_title("once settled again", fontsize=SMALL)
+    sp = _num((ev.get("settle_periods") or {}).get("mean"))
+    ax_lim.set_xlabel(f"mean {sp:,.0f} periods\nafter the event" if math.isfinite(sp) else "did not settle",
+                      fontsize=SMALL)
+    ax_lim.tick_params(labelsize=SMALL)
+    ax_lim.grid(axis="y", alpha=0.3)
     ax.axvline(0.0, color="black", lw=0.6)
     ax.set_xlabel("periods after the event (0: the last period before it)", fontsize=FONT)
     ax.set_ylabel(act, fontsize=FONT)
     ax.tick_params(labelsize=SMALL)
     ax.grid(alpha=0.3)
-    fig.legend(fontsize=SMALL, loc="outside right upper")
+    fig.legend(fontsize=SMALL, loc="outside lower center", ncol=3, frameon=False)
     level = f"{100 * res.confidence:g} %"
     return Drawn("prices_after_event", fig,
                  f"Mean {act}s over sessions after the event ({ev['what']}); each point averages the periods since "
@@ -198,8 +219,8 @@ def event_figure(res):
                  f"market {'before the merger' if mg else 'after the event'} (means over firms)"
                  + (f"; dash-dotted, in each firm's colour: its static-Nash {act} with the merged firm setting its "
                     f"products' {act}s jointly" if mg.get("available") else "")
-                 + f". Diamonds: each firm's mean limit {act} once the learners settled again"
-                 + _settle_words(ev) + ".")
+                 + f". Right panel, not on the time axis: each firm's mean limit {act} once the learners settled "
+                   f"again, with its {level} interval across the settled sessions" + _settle_words(ev) + ".")
 
 
 def _settle_words(ev: dict) -> str:

@@ -130,6 +130,16 @@ def test_the_shipped_entry_experiment_in_its_two_steps(tmp_path, monkeypatch, ca
         assert ("the static-Nash price in this market (1.3702) lies below the lowest price on firms 1 and 2's grid"
                 in console(run.result(c)))
     assert all(run.result(c).event["settled"]["share"] == 1.0 for c in range(3))
+    # the cells side by side: named by the swept entrant's label, axes labelled, a legend for the marks
+    from sim.evidence.learn_bundle import comparison_figure
+
+    fig = comparison_figure([run.result(c) for c in range(3)], ["competitive", "grim trigger", "tit for tat"],
+                            "firm 3's strategy")
+    for ax in fig.axes:
+        assert [t.get_text() for t in ax.get_xticklabels()] == ["competitive", "grim trigger", "tit for tat"]
+        assert ax.get_xlabel() == "firm 3's strategy" and ax.get_ylabel()
+    assert [t.get_text() for t in fig.legends[0].get_texts()] == ["one session", "mean, 95 % interval", "static Nash",
+                                                                  "joint profit"]
 
 
 def test_the_saved_learners_a_run_continues_are_hashed_and_checked_on_resume_and_verify(folder, capsys):
@@ -203,6 +213,12 @@ def test_under_quantity_setting_the_path_after_an_event_is_told_in_prices_agains
     ax = event_figure(res).figure.axes[0]
     levels = sorted(float(line.get_ydata()[0]) for line in ax.get_lines() if line.get_linestyle() in (":", "--"))
     assert levels == pytest.approx([(10 + 2 * 1.2) / 3, (10 + 1.2) / 2], rel=1e-6)
+    # the limits once settled again are drawn in a panel of their own, not at a point of the path's time axis: one
+    # diamond per firm at the summary's mean limit price
+    right = event_figure(res).figure.axes[1]
+    assert [t.get_text() for t in right.get_xticklabels()] == ["firm 1", "firm 2"]
+    marks = [float(line.get_ydata()[0]) for line in right.get_lines() if line.get_marker() == "D"]
+    assert marks == pytest.approx([e["mean"] for e in res.summary["limit_prices"]], rel=1e-12)
 
 
 def test_saved_learners_replaced_while_the_run_goes_on_leave_the_folder_unfinished(folder, capsys, monkeypatch):
