@@ -159,7 +159,36 @@ def learn_headline(res) -> str:
         out += ("Against the static Nash after the merger (the merged firm setting its products' prices jointly) "
                 f"it is {number(after['mean'])}" + (f" ({ci_after})" if ci_after else "") + ". ")
     out += _learners_own_gain(res)
-    return out + f"{c['count']} of {c['n']} sessions converged ({percent(c['share'])})."
+    return out + f"{c['count']} of {c['n']} sessions converged ({percent(c['share'])})." + _event_sentence(res)
+
+
+def _event_sentence(res) -> str:
+    """After an event: how the limit prices moved from the limits at the event, and how long the learners took to
+    settle again (the event section's numbers)."""
+    ev = res.event if isinstance(res.event, dict) else {}
+    if not ev or not ev.get("change"):
+        return ""
+    st, sp = ev.get("settled") or {}, ev.get("settle_periods") or {}
+    moves = []
+    for i, ch in enumerate(ev["change"]):
+        m = ch.get("mean")
+        if m is None or not math.isfinite(m):
+            continue
+        ci = interval(ch.get("low"), ch.get("high"), res.confidence) if ch.get("n", 0) >= 2 else ""
+        moves.append(f"firm {i + 1} {'+' if m > 0 else ''}{number(m)}" + (f" ({ci})" if ci else ""))
+    since = "the limit at the event" if ev.get("before_method") == "limit at the event" else "the last period before it"
+    out = f" After the event ({ev.get('what', 'the event')}), {st.get('count', 0)} of {st.get('n', 0)} sessions settled again"
+    q50 = sp.get("q50")
+    if st.get("count") and q50 is not None and math.isfinite(q50):
+        out += f", a median of {q50:,.0f} periods after it"
+    if moves:
+        out += f"; limit price minus {since}: " + "; ".join(moves)
+    out += "."
+    if "no setting differs" not in str(ev.get("what", "")):
+        # learners that were still learning move without the event too
+        out += (" Learners still learning change their prices without an event too: read these changes against a "
+                "control run that continues the same saved sessions with nothing changed.")
+    return out
 
 
 def _learners_own_gain(res) -> str:

@@ -124,3 +124,12 @@ def test_the_shipped_merger_experiment_in_its_two_steps(tmp_path, monkeypatch, c
     assert all(res.per_session["converged"]) and all(ctl.per_session["converged"])
     high = d.mean(axis=0) + stats.t.ppf(0.975, 39) * d.std(axis=0, ddof=1) / np.sqrt(40)
     assert np.all(high < 0), high
+    # the headlines answer the files' questions: how the prices moved and when they settled; the merger's asks for
+    # the control, the control's does not
+    from sim.evidence.learn import console
+
+    head, head_ctl = console(res).splitlines()[0], console(ctl).splitlines()[0]
+    q50 = res.event["settle_periods"]["q50"]
+    assert f"40 of 40 sessions settled again, a median of {q50:,.0f} periods after it" in head
+    assert "limit price minus the limit at the event: firm 1 +" in head and "firm 3 -" in head
+    assert "read these changes against a control run" in head and "against a control" not in head_ctl
