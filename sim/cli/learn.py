@@ -233,15 +233,21 @@ def _renamed(exc: InputError, flags: dict) -> InputError:
     return exc
 
 
-def _check_save_target(save_to: str, flags: dict) -> None:
+def _check_save_target(save_to: str, flags: dict, reads: list[tuple[str, str]] = ()) -> None:
     """Refuse, before any work, a file to save the learners to that cannot be written: a folder of that name, or a
     file where one of its folders should be (the name itself checked first: a NUL or an overlong part cannot even be
-    looked up)."""
+    looked up), or a file the run reads (``reads``: key, name): the experiment file, the saved learners it continues,
+    a fixed seat's policy -- saving there would replace an input the run's numbers depend on."""
     try:
         relative_file_name("learning.save_to", save_to)
     except InputError as exc:
         raise _renamed(exc, flags) from None
     p = Path(save_to)
+    for key, name in reads:
+        if Path(name).exists() and p.exists() and p.resolve() == Path(name).resolve():
+            what = key if key == "the experiment file" else f"the file {key} names"
+            raise _renamed(InputError("learning.save_to", f"{save_to} is {what}, which this run reads; save the "
+                                                          "learners to another file"), flags)
     if p.is_dir():
         raise _renamed(InputError("learning.save_to", f"{save_to} is a folder, not a file"), flags)
     for parent in p.parents:
@@ -266,7 +272,8 @@ def run(args) -> int:
         raise InputError("plot", f"{args.plot} exists and is not a directory")
     save_to = _table(doc, "learning").get("save_to")
     if isinstance(save_to, str) and save_to.strip():
-        _check_save_target(save_to, flags)
+        reads = ([("the experiment file", args.file)] if getattr(args, "file", None) else []) + list(LEARN.inputs(doc))
+        _check_save_target(save_to, flags, reads)
     try:
         workers = RUN_CONSTRAINTS["workers"].check("run.workers", _table(doc, "run").get("workers"))
         one = run_single(doc, threads=workers or usable_cores(), progress=sys.stderr.isatty(), source=args.file,

@@ -176,8 +176,10 @@ def _event_sentence(res) -> str:
             continue
         ci = interval(ch.get("low"), ch.get("high"), res.confidence) if ch.get("n", 0) >= 2 else ""
         moves.append(f"firm {i + 1} {'+' if m > 0 else ''}{number(m)}" + (f" ({ci})" if ci else ""))
-    since = "the limit at the event" if ev.get("before_method") == "limit at the event" else "the last period before it"
-    out = f" After the event ({ev.get('what', 'the event')}), {st.get('count', 0)} of {st.get('n', 0)} sessions settled again"
+    since = ("the limit at the event" if ev.get("before_method") == "limit at the event" else
+             "the last period before it")
+    out = (f" After the event ({ev.get('what', 'the event')}), {st.get('count', 0)} of {st.get('n', 0)} sessions "
+           "settled again")
     q50 = sp.get("q50")
     if st.get("count") and q50 is not None and math.isfinite(q50):
         out += f", a median of {q50:,.0f} periods after it"

@@ -39,6 +39,7 @@ algorithms keep learning: here the learners keep learning through a lasting chan
 from __future__ import annotations
 
 import copy
+import json
 import math
 from dataclasses import dataclass
 
@@ -47,12 +48,13 @@ import numpy as np
 import strategies.step as SS
 from sim.core.errors import InputError
 from sim.core.params import Integer
+from sim.core.records import to_plain
 from sim.core.tables import refuse_unknown
 from sim.learning import kernel as K
 from sim.learning.inputs import STATUS_CAP, STATUS_CONVERGED, new_triggers
 from sim.learning.merger import check_merger, refuse_merged
 from sim.learning.protocol import check_protocol
-from sim.learning.saved import SavedLearners, check_family, describe_layout
+from sim.learning.saved import SavedLearners, _first_difference, check_family, describe_layout
 from sim.simulation.results import mean_estimate, wilson_estimate
 from strategies.qlearning import QLearner
 
@@ -210,12 +212,22 @@ def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: 
         (:func:`sim.learning.protocol.check_protocol`).
     """
     refuse_merged(saved, key)
+    if event.kind in ("merger", "entry") and market is not None:
+        _same_market(saved.header.get("market"), market, event.kind)
     old, new = saved.header.get("seats") or [], describe_layout(lineup)
     for i, (a, b) in enumerate(zip(old, new)):
         firm = f"firm {i + 1}"
         if a.get("strategy") != b["strategy"]:
             raise InputError(key, f"{firm} was {a.get('strategy')!r} in the saved run, {b['strategy']!r} here")
         check_family(a, b, firm, key)
+        if b["strategy"] != "qlearning" and "actions" in b:
+            # an automaton already seated plays as it did: a changed rule is another event, not this one
+            ga, gb = np.asarray(a.get("actions", []), dtype=float), np.asarray(b["actions"], dtype=float)
+            if ga.shape != gb.shape or not np.array_equal(ga, gb):
+                raise InputError(f"strategies[{i + 1}]", f"{firm}'s automaton plays other actions than in the saved "
+                                                         f"run ({ga.tolist()} there, {gb.tolist()} here); an event "
+                                                         f"of kind {event.kind!r} keeps the seated automata as they "
+                                                         "were")
         if b["strategy"] == "qlearning":
             ga, gb = np.asarray(a.get("grid", []), dtype=float), np.asarray(b["grid"], dtype=float)
             if ga.shape != gb.shape or not np.array_equal(ga, gb):
@@ -239,6 +251,22 @@ def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: 
     if event.kind != "entry" and saved.Q.shape[1:] != lineup.q0.shape:
         raise InputError(key, f"its Q-values have shape {saved.Q.shape[1:]} per session, this line-up "
                               f"{lineup.q0.shape}")
+
+
+def _same_market(saved_market, market: dict, kind: str) -> None:
+    """A merger or an entry changes who sells, not the market: refuse any other difference from the saved market,
+    naming its key (one change at a time; a changed market is ``kind = "market"``)."""
+    here = json.loads(json.dumps(to_plain(market)))
+    there = dict(saved_market) if isinstance(saved_market, dict) else {}
+    if kind == "entry":
+        here.pop("n_firms", None)
+        there.pop("n_firms", None)
+    diff = _first_difference(there, here)
+    if diff is not None:
+        was, now = there.get(diff, "not given"), here.get(diff, "not given")
+        raise InputError(f"market.{diff}", f"an event of kind {kind!r} keeps the saved market ({was!r} there, "
+                                           f"{now!r} here); change the market in an event of its own "
+                                           "(kind = 'market'), before or after")
 
 
 def _entrant_action(lineup) -> int:

@@ -45,6 +45,7 @@ import numpy as np
 from sim.core.errors import InputError
 from sim.core.files import write_atomic
 from sim.core.records import to_plain
+from sim.learning.inputs import STATUS_CAP, STATUS_CONVERGED
 
 __all__ = [
     "FORMAT",
@@ -54,6 +55,7 @@ __all__ = [
     "arrays_digest",
     "check_family",
     "check_start",
+    "check_states",
     "continued_record",
     "describe_layout",
     "header_digest",
@@ -259,6 +261,7 @@ def load_learners(path, key: str = "learning.continue_from") -> SavedLearners:
         raise InputError(key, f"{path}: the arrays do not match the SHA-256 recorded in the file (recorded "
                               f"{str(header.get('arrays_sha256'))[:12]}..., found {found[:12]}...): "
                               "the file was altered or damaged")
+    _check_contents(arrays, header, path, key)
     if "triggers" not in arrays:
         z = arrays["z"]
         arrays["triggers"] = np.zeros((*z.shape, 4), dtype=np.int64)
@@ -268,6 +271,99 @@ def load_learners(path, key: str = "learning.continue_from") -> SavedLearners:
             q = arrays["Q"]
             arrays[name] = np.zeros((q.shape[0], q.shape[1], q.shape[3]), dtype=_DTYPES[name])
     return SavedLearners(**arrays, header=header)
+
+
+def _check_contents(arrays: dict, header: dict, path, key: str) -> None:
+    """Refuse a file whose hashes match but whose contents cannot be a saved run: arrays of shapes that do not fit
+    together, actions, states or counters out of their range, values that are not finite, a header whose market or
+    seats are not what :func:`save_learners` writes. The hashes catch damage, not a file written by other means; what
+    passes here indexes no array out of its bounds (the line-up's own ranges are checked by :func:`check_states`)."""
+
+    def bad(what: str) -> InputError:
+        return InputError(key, f"{path}: {what}: the file is not a consistent record of saved learners")
+
+    q, greedy, history, z = arrays["Q"], arrays["greedy"], arrays["history"], arrays["z"]
+    if history.ndim != 1 or history.size == 0:
+        raise bad(f"history has shape {history.shape}, expected one state per session")
+    n = history.size
+    if q.ndim != 4 or q.shape[0] != n or min(q.shape) == 0:
+        raise bad(f"Q has shape {q.shape}, expected ({n}, learners, states, prices)")
+    want = {"greedy": q.shape[:3], "rng": (n, 4), "clock": (n, 2), "status": (n,),
+            "counts": (n, q.shape[1], q.shape[3]), "sums": (n, q.shape[1], q.shape[3])}
+    if z.ndim != 2 or z.shape[0] != n:
+        raise bad(f"z has shape {z.shape}, expected ({n}, seats)")
+    if "triggers" in arrays:
+        want["triggers"] = (n, z.shape[1], 4)
+    for name, shape in want.items():
+        if name in arrays and arrays[name].shape != tuple(shape):
+            raise bad(f"array {name} has shape {arrays[name].shape}, expected {tuple(shape)}")
+    if greedy.size and (greedy.min() < 0 or greedy.max() >= q.shape[3]):
+        raise bad("a greedy action lies outside the prices of the Q-values")
+    if history.min() < 0 or z.min(initial=0) < 0:
+        raise bad("a history or automaton state is negative")
+    clock = arrays["clock"]
+    if clock.min() < 0 or np.any(clock[:, 1] > clock[:, 0]):
+        raise bad("a period counter is negative, or more periods without a change than periods played")
+    if not np.all(np.isin(arrays["status"], (STATUS_CONVERGED, STATUS_CAP))):
+        raise bad("a session's status is neither converged nor stopped at the cap")
+    if "counts" in arrays and arrays["counts"].size and arrays["counts"].min() < 0:
+        raise bad("a bandit's count of plays is negative")
+    for name in ("Q", "sums"):
+        if name in arrays and not np.all(np.isfinite(arrays[name])):
+            raise bad(f"array {name} holds a value that is not finite")
+    if not np.all(arrays["rng"].any(axis=1)):
+        raise bad("a generator state is all zeros, which the generator never leaves")
+    market, seats = header.get("market"), header.get("seats")
+    if not isinstance(market, dict):
+        raise bad("its header's market is not a table of settings")
+    if not isinstance(seats, list) or not all(isinstance(x, dict) for x in seats):
+        raise bad("its header's seats are not a list of seat descriptions")
+    for i, seat in enumerate(seats):
+        for name in ("grid", "actions"):
+            v = seat.get(name)
+            if v is not None and (not isinstance(v, list) or not all(
+                    isinstance(x, int | float) and not isinstance(x, bool) and np.isfinite(x) for x in v)):
+                raise bad(f"firm {i + 1}'s {name} in its header is not a list of numbers")
+        k = seat.get("k")
+        if k is not None and (isinstance(k, bool) or not isinstance(k, int) or k < 0):
+            raise bad(f"firm {i + 1}'s memory k in its header is not a count")
+
+
+def check_states(saved: SavedLearners, lineup, observe: str, entry: bool, key: str = "learning.continue_from") -> None:
+    """Refuse saved history and automaton states outside the ranges of the line-up that continues them.
+
+    Parameters
+    ----------
+    saved : SavedLearners
+    lineup : sim.learning.lineup.Lineup
+        The line-up of the run (after the event).
+    observe : str
+        What the learners' state is made of (``"prices"``, ``"own_profit"``, ``"noisy_prices"``): the range of a
+        session's state.
+    entry : bool
+        After an entry the saved states are those of the line-up without the entrant (the last seat).
+    key : str
+
+    Raises
+    ------
+    InputError
+        Naming ``key``.
+    """
+    n = lineup.n_seats - (1 if entry else 0)
+    M = int(np.prod(lineup.seats.radix[:n]))
+    if observe == "own_profit":
+        bound = (2 * int(lineup.seats.radix[0])) ** n
+    elif observe == "noisy_prices":
+        bound = M**n
+    else:
+        bound = M ** int(lineup.stage.K)
+    if saved.history.max() >= bound:
+        raise InputError(key, f"holds a history state {int(saved.history.max())} outside this line-up's {bound} "
+                              "states: the file is not a consistent record of saved learners")
+    zn = lineup.seats.zn[:n]
+    if saved.z.shape[1] < n or np.any(saved.z[:, :n] >= zn[None, :]):
+        raise InputError(key, "holds an automaton state outside its strategy's states: the file is not a consistent "
+                              "record of saved learners")
 
 
 def describe_layout(lineup) -> list[dict]:

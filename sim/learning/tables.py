@@ -26,7 +26,7 @@ from sim.learning.lineup import compile_lineup
 from sim.learning.merger import refuse_merged
 from sim.learning.noisy_prices import PRICE_NOISE, check_noisy_lineup
 from sim.learning.results import LIMIT_PERIODS
-from sim.learning.saved import check_start, load_learners
+from sim.learning.saved import check_start, check_states, load_learners
 from sim.learning.shocks import SHOCK_CONSTRAINTS, shock_code
 from sim.learning.signals import SIGNAL_BAND, SIGNAL_CONSTRAINTS, check_saved_observe, check_signal_lineup
 from sim.models.market import market_from_dict
@@ -308,6 +308,7 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
         check_event(start, lineup, event, settings["sessions"], "learning.continue_from", market.to_dict())
     if start is not None:
         check_saved_observe(start.header, settings.get("observe", "prices"), "learning.observe")
+        check_states(start, lineup, settings.get("observe", "prices"), event is not None and event.kind == "entry")
     return {"market": market, "learner": learner, "settings": settings, "save_to": save_to, "start": start,
             "event": event, "waiting": event is not None and start is None, "unused": unused}
 

@@ -61,7 +61,8 @@ def test_a_merger_in_two_steps_reports_the_static_effect_beside_the_learned_chan
     ("firms = [1, 2]", "firms = [2]", "event.firms"),
     ("firms = [1, 2]", "", "event.firms"),
     ('kind = "merger"', 'kind = "market"', "event.firms"),
-], ids=["no-such-firm", "one-firm", "missing", "not-a-merger"])
+    ("cost = 1.0", "cost = 1.2", "market.cost"),
+], ids=["no-such-firm", "one-firm", "missing", "not-a-merger", "market-changed"])
 def test_bad_mergers_are_refused_in_one_line_naming_the_key(folder, capsys, old, new, key):
     assert main(["learn", "step1.toml"]) == 0
     capsys.readouterr()
@@ -81,6 +82,38 @@ def test_a_merger_with_an_automatons_seat_is_refused_naming_the_key(folder, caps
     assert main(["learn", "mixed2.toml"]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "event.firms" in err and "automaton" in err, err
+
+
+def test_a_merger_or_an_entry_keeps_the_seated_automata_and_the_market(folder, capsys):
+    # one change at a time: a merger that also changes a seated automaton's rule, or an entry that also changes the
+    # cost, would report the joint effect as the event's; refused in one line naming the key, nothing written
+    three = STEP1.replace("n_firms = 2", "n_firms = 3")
+    seats = ('\n[[strategies]]\nstrategy = "qlearning"\n\n[[strategies]]\nstrategy = "qlearning"\n\n'
+             '[[strategies]]\nstrategy = "tit_for_tat"\ncollude = 1.6\n')
+    (folder / "a1.toml").write_text(three.replace("[impulse]", seats + "\n[impulse]"))
+    assert main(["learn", "a1.toml"]) == 0
+    capsys.readouterr()
+    step2 = STEP2.replace("n_firms = 2", "n_firms = 3").replace("[impulse]", seats.replace("1.6", "1.7")
+                                                                   + "\n[impulse]")
+    (folder / "a2.toml").write_text(step2)
+    assert main(["learn", "a2.toml"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "strategies[3]" in err and "keeps the seated automata" in err, err
+    entry = (STEP2.replace("n_firms = 2", "n_firms = 3").replace("cost = 1.0", "cost = 1.2")
+             .replace('kind = "merger"\nfirms = [1, 2]', 'kind = "entry"')
+             .replace("[impulse]", '\n[[strategies]]\nstrategy = "qlearning"\n\n[[strategies]]\nstrategy = '
+                                   '"qlearning"\n\n[[strategies]]\nstrategy = "always_compete"\n\n[impulse]'))
+    (folder / "e2.toml").write_text(entry)
+    assert main(["learn", "step1.toml"]) == 0  # two firms saved again, for the entry
+    capsys.readouterr()
+    assert main(["learn", "e2.toml"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and err.startswith("supergame learn: error: market.cost: an event of kind "
+                                                         "'entry' keeps the saved market"), err
+    # the same entry on the saved market goes on
+    (folder / "e3.toml").write_text(entry.replace("cost = 1.2", "cost = 1.0"))
+    assert main(["learn", "e3.toml"]) == 0
+    assert not (folder / "runs").exists()
 
 
 @pytest.mark.slow

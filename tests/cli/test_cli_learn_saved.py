@@ -115,3 +115,19 @@ def test_a_file_that_cannot_be_saved_is_refused_before_any_work(small, capsys, t
     assert status == 2 and cap.out == ""
     assert cap.err.strip() == f"supergame learn: error: --save-to: {text}"
     assert sorted(p.name for p in small.parent.iterdir()) == before  # nothing written, no partial file
+
+
+def test_the_learners_are_not_saved_over_a_file_the_run_reads(small, capsys):
+    # the experiment file itself, and the saved learners it continues: saving there would replace an input whose
+    # SHA-256 an earlier run's record holds; refused before any work, both files unchanged
+    assert main(["learn", str(small), "--save-to", "first.npz"]) == 0
+    capsys.readouterr()
+    before = {p.name: p.read_bytes() for p in small.parent.iterdir()}
+    status, cap = _run(capsys, str(small), "--save-to", "small.toml")
+    assert status == 2 and cap.err.strip() == ("supergame learn: error: --save-to: small.toml is the experiment file, "
+                                               "which this run reads; save the learners to another file")
+    status, cap = _run(capsys, str(small), "--continue-from", "first.npz", "--save-to", "first.npz")
+    assert status == 2 and cap.err.strip() == ("supergame learn: error: --save-to: first.npz is the file "
+                                               "learning.continue_from names, which this run reads; save the learners "
+                                               "to another file")
+    assert {p.name: p.read_bytes() for p in small.parent.iterdir()} == before
