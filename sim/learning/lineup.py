@@ -41,7 +41,7 @@ from strategies.qlearning import SEAT_NAMES, QLearner
 __all__ = ["Lineup", "available_memory", "compile_lineup"]
 
 #: share of the available memory a run may take for its Q-matrices
-_MEMORY_SHARE = 0.8
+MEMORY_SHARE = 0.8
 
 
 @dataclass(frozen=True, eq=False)
@@ -289,12 +289,12 @@ def _check_memory(radix: list[int], ks: list[int], n_workers: int, prefix: str, 
     need = per_session * (n_workers + 1) + tables
     avail = available_memory() if available is None else available
     states = str(n_states) if n_states < 10**9 else f"{float(n_states):.3g}"
-    if need > _MEMORY_SHARE * avail:
+    if need > MEMORY_SHARE * avail:
         raise InputError(
             key,
             f"state space too large: {n} seats x {states} states x {m_max} actions need "
             f"{_gb(per_session)} per session ({_gb(need)} for {n_workers} worker(s)), more than the "
-            f"{_gb(_MEMORY_SHARE * avail)} that may be used; reduce m, k or the number of firms",
+            f"{_gb(MEMORY_SHARE * avail)} that may be used; reduce m, k or the number of firms",
         )
     if S * M * z_states >= 2**62:
         raise InputError(key, f"state space too large: {M}^{K} history states x {z_states} automaton states "

@@ -22,7 +22,7 @@ from sim.learning.events import (
     event_from_table,
     with_saved_grids,
 )
-from sim.learning.lineup import compile_lineup
+from sim.learning.lineup import MEMORY_SHARE, available_memory, compile_lineup
 from sim.learning.merger import refuse_merged
 from sim.learning.noisy_prices import PRICE_NOISE, check_noisy_lineup
 from sim.learning.results import LIMIT_PERIODS
@@ -297,6 +297,7 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     elif "observe" in settings:
         check_signal_lineup(lineup)
     save_to = _file_name(lt, "save_to")
+    _check_kept_memory(lineup, settings, save_to is not None, event)
     continue_from = _file_name(lt, "continue_from")
     if "timing" in settings:
         check_alternating(lineup, continue_from, save_to is not None, event)
@@ -372,6 +373,26 @@ def _unused(lt: dict, settings: dict, lineup: bool) -> dict:
             # not in learning, but the value of the forced deviation is discounted with it
             out["learning.delta"] = what + "; it only discounts the value of the forced deviation"
     return out
+
+
+def _check_kept_memory(lineup, settings: dict, saving: bool, event) -> None:
+    """Refuse, before any work, a run that keeps every session's learners in memory (to save them, or to go on from
+    each session's final state: the response to an adverse demand draw, play with noisy prices after learning) when
+    they would not fit: ``run.sessions`` times one session's Q-values, greedy actions and bandit statistics."""
+    noisy = settings.get("observe") == "noisy_prices"
+    # as sim.learning.analysis.measures_price_wars decides it
+    wars = (bool(settings.get("demand_sigma")) and "timing" not in settings and event is None
+            and settings.get("observe", "prices") in ("prices", "own_profit"))
+    if not (saving or noisy or wars):
+        return
+    q = lineup.q0
+    per = q.nbytes + q[..., 0].nbytes + 2 * q.shape[0] * q.shape[2] * 8 + 8 * (lineup.n_seats * 5 + 8)
+    need, avail = settings["sessions"] * per, MEMORY_SHARE * available_memory()
+    if need > avail:
+        why = "to save them (learning.save_to)" if saving else "to go on from each session's final state"
+        raise InputError("run.sessions", f"{settings['sessions']} sessions' learners kept {why} need "
+                                         f"{need / 1e9:.3g} GB, more than the {avail / 1e9:.3g} GB that may be used; "
+                                         "run fewer sessions or reduce m, k or the number of firms")
 
 
 def _event(doc: dict, overrides: dict, lt: dict):

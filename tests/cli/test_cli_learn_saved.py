@@ -131,3 +131,21 @@ def test_the_learners_are_not_saved_over_a_file_the_run_reads(small, capsys):
                                                "learning.continue_from names, which this run reads; save the learners "
                                                "to another file")
     assert {p.name: p.read_bytes() for p in small.parent.iterdir()} == before
+
+
+def test_keeping_every_sessions_learners_is_sized_before_any_work(small, capsys, monkeypatch):
+    # saving keeps each session's Q-values (2 learners x 100 states x 100 prices x 8 bytes = 160 kB a session, with
+    # greedy actions and statistics a little more): 1,000 sessions need about 0.16 GB; with 0.1 GB available (80 %
+    # of it usable) the run is refused in one line naming run.sessions, and nothing is written
+    import sim.learning.tables as T
+
+    monkeypatch.setattr(T, "available_memory", lambda: 100_000_000)
+    doc = SMALL.replace("m = 5", "m = 100").replace("sessions = 3", "sessions = 1000")
+    (small.parent / "many.toml").write_text(doc)
+    before = sorted(p.name for p in small.parent.iterdir())
+    status, cap = _run(capsys, "many.toml", "--save-to", "many.npz")
+    assert status == 2 and cap.err.count("\n") == 1
+    assert cap.err.startswith("supergame learn: error: run.sessions: 1000 sessions' learners kept to save them")
+    assert sorted(p.name for p in small.parent.iterdir()) == before
+    # without saving nothing is kept beyond the sessions running at once: the same file passes the check
+    assert main(["check", "many.toml"]) == 0
