@@ -40,26 +40,25 @@ def _outcome(summary: dict, act: str) -> str:
     return f"to {act} between the static Nash and the joint-profit levels ({gain})"
 
 
-def explain(a: dict, summary: dict, act: str = "price", event_start: float | None = None) -> str:
+def explain(a: dict, summary: dict, act: str = "price") -> str:
     """One automaton's punishments during learning and where the learners ended, in one paragraph.
 
     The paragraph states what the record shows -- when the punishments came, how much the learners still explored
-    then, whether the automaton was still punishing at the end -- and where the learners ended. It says "consistent
-    with" only where the two point the same way (still punishing and near the static Nash level; back in the
-    collusive state and above it), and otherwise that they do not; it draws no cause from the timing alone.
+    then, whether the automaton was still punishing at the end -- and what the learners learned. It says "consistent
+    with" only where the two point the same way (still punishing and the learners near the static Nash level; back in
+    its collusive state and the learners near the joint-profit level), says so where they do not, and draws no cause
+    from the timing alone.
 
     Parameters
     ----------
     a : dict
-        The automaton's entry of :func:`sim.learning.triggers.trigger_summary`.
+        The automaton's entry of :func:`sim.learning.triggers.trigger_summary` (after an event with
+        ``first_after_event``, the first trigger counted from the event session by session).
     summary : dict
         The run's summary (:meth:`sim.learning.results.LearningResult.summary`): its profit gain and nearness to
         the benchmarks say where the learners ended.
     act : str
         ``"price"`` or ``"quantity"``.
-    event_start : float, optional
-        After an event, the period at which the sessions were continued (median over sessions): the first trigger
-        is also counted from it.
 
     Returns
     -------
@@ -69,16 +68,17 @@ def explain(a: dict, summary: dict, act: str = "price", event_start: float | Non
     name = f"{words[:1].upper()}{words[1:]} (firm {a['firm']})"
     end = _outcome(summary, act)
     near_nash = (summary["near_nash"]["share"] or 0) >= 0.5
+    near_collusive = (summary["near_collusive"]["share"] or 0) >= 0.5
     if not a["triggered"]["count"]:
         if (a["punishment_share"]["mean"] or 0) > 0.5:
-            return (f"{name} has no collusive state to leave: it competed throughout, and the learners ended "
-                    f"{end}.")
-        return (f"{name} was never triggered during learning: it played its collusive {act} throughout, and the "
-                f"learners ended {end}.")
+            return (f"{name} has no collusive state to leave: it competed throughout; the learners learned {end}.")
+        return (f"{name} was never triggered during learning: it played its collusive {act} throughout; the "
+                f"learners learned {end}.")
     first, last = a["first_trigger"], a["last_trigger"]
     after = ""
-    if event_start is not None and first["median"] == first["median"]:
-        after = f", {_period(max(0.0, first['median'] - event_start))} periods after the event"
+    since = (a.get("first_after_event") or {}).get("median")
+    if since is not None and since == since:
+        after = f", in period {_period(since)} after the event (median over sessions, counted session by session)"
     text = (f"{name} was triggered in {_pct(a['triggered']['share'])} of sessions, first in period "
             f"{_period(first['median'])} (median over sessions){after}"
             f"{_explored(a['exploration_first']['median'], ', when the learners explored with probability {}')}; ")
@@ -91,14 +91,14 @@ def explain(a: dict, summary: dict, act: str = "price", event_start: float | Non
     text += f"and it punished for {_pct(a['punishment_share']['mean'])} of the session."
     stuck = a["punishing_at_end"]["share"]
     if stuck >= 0.5:
-        how = ("consistent with where they ended" if near_nash else
-               "yet they did not end at the static Nash level")
+        how = "consistent with this" if near_nash else "yet not to compete"
         return (text + f" In {_pct(stuck)} of sessions it was still punishing when learning ended: the learners "
-                       f"last learned against its punishment, {how}: {end}.")
-    how = ("yet they ended at the static Nash level" if near_nash else
-           "consistent with learners that learned what keeping to its collusive state earns")
+                       f"last learned against its punishment, {how}: they learned {end}.")
+    how = ("consistent with learners that learned what keeping to its collusive state earns" if near_collusive else
+           "yet the learners did not keep to it" if near_nash else
+           "and the learners ended neither near competition nor near the joint-profit level")
     return (text + f" Its punishments ended (in {_pct(1 - stuck)} of sessions it was back in its collusive state "
-                   f"when learning ended), {how}: {end}.")
+                   f"when learning ended), {how}: they learned {end}.")
 
 
 def _explored(share, words: str) -> str:
@@ -136,6 +136,5 @@ def automaton_lines(res) -> list[str]:
                      f"[{_pct(ps['low'])}, {_pct(ps['high'])}]; still punishing at the end in "
                      f"{_pct(a['punishing_at_end']['share'])} of sessions")
     lines.append("Why the sessions ended where they did (periods count from the start of the session):")
-    start = res.event.get("start") if isinstance(res.event, dict) else None
-    lines += [f"  {explain(a, res.summary, act, start)}" for a in res.automata]
+    lines += [f"  {explain(a, res.summary, act)}" for a in res.automata]
     return lines

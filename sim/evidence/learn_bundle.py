@@ -179,10 +179,19 @@ def _swept_name(exp) -> str | None:
     if len(exp.parameters) != 1:
         return None
     path = exp.parameters[0].path
-    if path.startswith("strategies."):
-        tail = path.split(".", 2)[1]
-        return f"firm {int(tail) + 1}'s strategy" if tail.isdigit() else path
-    return None
+    parts = path.split(".")
+    if len(parts) != 2 or parts[0] != "strategies" or not parts[1].isdigit():
+        return None
+    # [[strategies]] entries are counted from 1 in a sweep's path, and an entry may hold several seats
+    entries = exp.doc.get("strategies") if isinstance(exp.doc.get("strategies"), list) else []
+    k = int(parts[1])
+    if not 1 <= k <= len(entries):
+        return None
+    seats = [int(e.get("seats", 1)) if isinstance(e, dict) else 1 for e in entries]
+    first = sum(seats[:k - 1]) + 1
+    firms = list(range(first, first + seats[k - 1]))
+    return (f"firm {firms[0]}'s strategy" if len(firms) == 1 else
+            f"strategy of firms {', '.join(map(str, firms[:-1]))} and {firms[-1]}")
 
 
 def comparison_figure(results: list, labels: list, swept: str | None = None, level: str = "95 %"):

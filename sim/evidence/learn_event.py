@@ -189,7 +189,7 @@ def event_figure(res):
                 a.axhline(levels[i], color=color(i), ls=style, lw=1.2,
                           label=f"static Nash {act} after\nthe merger (firm's colour)" if (i == 0 and a is ax)
                           else None)
-    lim = res.summary["limit_prices"]
+    lim = res.summary["limit_prices"] if (ev.get("settled") or {}).get("count") else []
     for i in range(res.n_firms):
         e = lim[i] if i < len(lim) else {}
         v, lo, hi = _num(e.get("mean")), _num(e.get("low")), _num(e.get("high"))
@@ -200,9 +200,9 @@ def event_figure(res):
                       rotation=90 if res.n_firms > 3 else 0)
     ax_lim.set_xlim(-0.6, res.n_firms - 0.4)
     ax_lim.set_title("once settled again", fontsize=SMALL)
-    sp = _num((ev.get("settle_periods") or {}).get("mean"))
-    ax_lim.set_xlabel(f"mean {sp:,.0f} periods\nafter the event" if math.isfinite(sp) else "did not settle",
-                      fontsize=SMALL)
+    sp = _num((ev.get("settle_periods") or {}).get("q50"))
+    ax_lim.set_xlabel(f"median {sp:,.0f}\nperiods after\nthe event" if lim and math.isfinite(sp) else
+                      "no session\nsettled again", fontsize=SMALL)
     ax_lim.tick_params(labelsize=SMALL)
     ax_lim.grid(axis="y", alpha=0.3)
     ax.axvline(0.0, color="black", lw=0.6)
@@ -218,7 +218,8 @@ def event_figure(res):
                  f"intervals across sessions; dotted and dashed: the static-Nash and joint-profit {act}s of the "
                  f"market {'before the merger' if mg else 'after the event'} (means over firms)"
                  + (f"; dash-dotted, in each firm's colour: its static-Nash {act} with the merged firm setting its "
-                    f"products' {act}s jointly" if mg.get("available") else "")
+                    f"products' {act}s jointly (dashed in alternating colours where firms share it)"
+                    if mg.get("available") else "")
                  + f". Right panel, not on the time axis: each firm's mean limit {act} once the learners settled "
                    f"again, with its {level} interval across the settled sessions" + _settle_words(ev) + ".")
 
@@ -226,8 +227,10 @@ def event_figure(res):
 def _settle_words(ev: dict) -> str:
     """When the settled limit is reached, against the window the figure shows."""
     sp = ev.get("settle_periods") or {}
-    m = _num(sp.get("mean"))
+    m = _num(sp.get("q50"))
+    if not (ev.get("settled") or {}).get("count"):
+        return " (none settled again, so none is drawn)"
     if not math.isfinite(m):
         return ""
     beyond = ", beyond this window" if m > float(ev["periods"]) else ""
-    return f" (a mean of {m:,.0f} periods after the event{beyond})"
+    return f" (a median of {m:,.0f} periods after the event{beyond})"

@@ -53,7 +53,7 @@ from sim.core.tables import refuse_unknown
 from sim.learning import kernel as K
 from sim.learning.inputs import STATUS_CAP, STATUS_CONVERGED, new_triggers
 from sim.learning.merger import check_merger, refuse_merged
-from sim.learning.protocol import check_protocol
+from sim.learning.protocol import check_protocol, protocol_changes, protocol_words
 from sim.learning.saved import SavedLearners, _first_difference, check_family, describe_layout
 from sim.simulation.results import mean_estimate, wilson_estimate
 from strategies.qlearning import QLearner
@@ -220,8 +220,9 @@ def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: 
         if a.get("strategy") != b["strategy"]:
             raise InputError(key, f"{firm} was {a.get('strategy')!r} in the saved run, {b['strategy']!r} here")
         check_family(a, b, firm, key)
-        if b["strategy"] != "qlearning" and "actions" in b:
-            # an automaton already seated plays as it did: a changed rule is another event, not this one
+        if event.kind == "merger" and b["strategy"] != "qlearning" and "actions" in b:
+            # an automaton beside a merger plays as it did (the market is the saved one, so are its levels): a
+            # changed rule is another event, not this one
             ga, gb = np.asarray(a.get("actions", []), dtype=float), np.asarray(b["actions"], dtype=float)
             if ga.shape != gb.shape or not np.array_equal(ga, gb):
                 raise InputError(f"strategies[{i + 1}]", f"{firm}'s automaton plays other actions than in the saved "
@@ -242,6 +243,11 @@ def check_event(saved: SavedLearners, lineup, event: Event, sessions: int, key: 
         check_merger(event.firms, lineup)
     if event.kind == "protocol":
         check_protocol(saved, lineup, market)
+    if event.kind == "market":
+        changes = protocol_changes(saved.header.get("seats") or [], lineup)
+        if changes:
+            raise InputError("event.kind", f"'market' keeps the learners' settings, but {protocol_words(changes)}; "
+                                           "a change of how they learn is kind = 'protocol', in an event of its own")
     if event.kind == "entry" and lineup.learners[-1] is not None:
         k_old = max([int(a.get("k") or 0) for a in old] + [1])
         if lineup.learners[-1].k > k_old:
@@ -259,8 +265,17 @@ def _same_market(saved_market, market: dict, kind: str) -> None:
     here = json.loads(json.dumps(to_plain(market)))
     there = dict(saved_market) if isinstance(saved_market, dict) else {}
     if kind == "entry":
+        # the entrant adds a firm: a per-firm list grows by the entrant's own value, the incumbents' stay
+        n_old = there.pop("n_firms", None)
         here.pop("n_firms", None)
-        there.pop("n_firms", None)
+        for key, new in list(here.items()):
+            old = there.get(key)
+            if isinstance(new, list) and isinstance(n_old, int) and len(new) == n_old + 1:
+                incumbents = new[:n_old]
+                if old == incumbents or (not isinstance(old, list) and all(v == old for v in incumbents)):
+                    here[key] = there[key] = None
+            elif isinstance(old, list) and not isinstance(new, list) and all(v == new for v in old):
+                here[key] = there[key] = None
     diff = _first_difference(there, here)
     if diff is not None:
         was, now = there.get(diff, "not given"), here.get(diff, "not given")

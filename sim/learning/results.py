@@ -56,10 +56,11 @@ HISTOGRAM_EDGES = np.round(np.arange(-0.5, 1.5001, 0.05), 10)
 
 
 def _mean_ci(x, level: float = 0.95, bounds: tuple | None = None) -> dict:
-    """Mean with Student's confidence interval (nan when fewer than two values); with ``bounds``
+    """Mean with Student's confidence interval (nan bounds when fewer than two values); with ``bounds``
     (the values' domain, e.g. ``(0, 1)`` for means of shares, ``(0, inf)`` for counts) the interval is kept within
     it. With bounds ``(0, 1)`` and every value 0 or 1 the mean is a share of sessions, and its interval is Wilson's
-    (``"method": "wilson"``): Student's has no width when every session gives the same value."""
+    (``"method": "wilson"``, defined from one session on): Student's has no width when every session gives the same
+    value."""
 
     x = np.asarray(x, dtype=float)
     x = x[np.isfinite(x)]
@@ -156,7 +157,9 @@ def limit_description(lineup: Lineup, settings: dict) -> dict:
     seat = settings["deviator"]
     d = deviator_discount(lineup, seat)
     H = value_horizon(d)
-    top = float(np.max(np.abs(lineup.payoff[:, seat])))
+    # the profit the deviation is valued with: after a merger the merged firm's (sim.learning.inputs.DeviationInputs)
+    valued = lineup.payoff if lineup.reward is None else lineup.reward
+    top = float(np.max(np.abs(valued[:, seat])))
     bound = 2.0 * d**H * top / (1.0 - d) if d > 0 else 0.0
     periods = int(settings["limit_periods"])
     firms = ", ".join(str(i + 1) for i in lineup.random_seats)
@@ -376,7 +379,8 @@ class LearningResult:
             # why a learner facing an automaton ends where it does: the automaton's punishments during learning
             # after an event the punishments are recorded from the event: so are the periods they are a share of
             since = self.periods - self.event["start"] if self.event else self.periods
-            out["automata"] = trigger_summary(lu, self.triggers, self.punishing_at_end, since, sel, lvl)
+            out["automata"] = trigger_summary(lu, self.triggers, self.punishing_at_end, since, sel, lvl,
+                                              self.event["start"] if self.event else None)
         if self.settings.get("timing") == "alternating":
             out["alternating"] = _alternating_summary(self, sel, lvl)
             out["limit"] = {"method": "exact",
@@ -386,8 +390,6 @@ class LearningResult:
             ev = self.event
             out["event"] = event_summary(ev["event"], ev["path"], ev["settle"], self.converged, self.limit_prices,
                                          ev["what"], lvl, ev.get("merger"), ev.get("at_event"))
-            # the period each session was continued at (median over sessions), to count from the event
-            out["event"]["start"] = float(np.median(ev["start"])) if np.size(ev["start"]) else None
             if out["event"].get("merger", {}).get("available"):
                 _after_merger(out["event"]["merger"], self, sel, lvl)
         self._summary.update(out)

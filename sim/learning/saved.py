@@ -327,6 +327,19 @@ def _check_contents(arrays: dict, header: dict, path, key: str) -> None:
         k = seat.get("k")
         if k is not None and (isinstance(k, bool) or not isinstance(k, int) or k < 0):
             raise bad(f"firm {i + 1}'s memory k in its header is not a count")
+    # the header's seats against the arrays: one automaton state per seat, one Q-table per learner (seats in order),
+    # each learner's greedy actions on its own grid
+    if len(seats) != z.shape[1]:
+        raise bad(f"its header has {len(seats)} seats, its arrays {z.shape[1]}")
+    learners = [i for i, seat in enumerate(seats) if seat.get("strategy") == "qlearning"]
+    if len(learners) != q.shape[1]:
+        raise bad(f"its header has {len(learners)} learners, its Q-values {q.shape[1]}")
+    for li, i in enumerate(learners):
+        grid = seats[i].get("grid")
+        if not isinstance(grid, list) or not 2 <= len(grid) <= q.shape[3]:
+            raise bad(f"firm {i + 1}'s grid in its header does not fit its Q-values")
+        if greedy[:, li].size and greedy[:, li].max() >= len(grid):
+            raise bad(f"firm {i + 1}'s greedy actions lie outside its grid")
 
 
 def check_states(saved: SavedLearners, lineup, observe: str, entry: bool, key: str = "learning.continue_from") -> None:
@@ -361,7 +374,7 @@ def check_states(saved: SavedLearners, lineup, observe: str, entry: bool, key: s
         raise InputError(key, f"holds a history state {int(saved.history.max())} outside this line-up's {bound} "
                               "states: the file is not a consistent record of saved learners")
     zn = lineup.seats.zn[:n]
-    if saved.z.shape[1] < n or np.any(saved.z[:, :n] >= zn[None, :]):
+    if saved.z.shape[1] != n or np.any(saved.z >= zn[None, :]):
         raise InputError(key, "holds an automaton state outside its strategy's states: the file is not a consistent "
                               "record of saved learners")
 

@@ -251,7 +251,9 @@ def _event_words(saved: SavedLearners, lineup: Lineup, market: dict | None, even
     if event.kind == "entry":
         return f"firm {lineup.n_seats} enters, playing {lineup.names[-1].replace('_', ' ')}"
     old = saved.header.get("market") or {}
-    changed = [f"market.{k} {old.get(k)!r} -> {v!r}" for k, v in (market or {}).items() if old.get(k) != v]
+    new = market or {}
+    changed = [f"market.{k} {old.get(k, 'not given')!r} -> {new.get(k, 'not given')!r}"
+               for k in [*new, *(k for k in old if k not in new)] if old.get(k) != new.get(k)]
     if not changed:
         # the control of another event continued from the same file: what the learners do without it
         return "the market as it was: no setting differs, the saved sessions simply continue"

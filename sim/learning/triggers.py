@@ -46,7 +46,7 @@ def _median(x) -> float:
 
 
 def trigger_summary(lineup, triggers: np.ndarray, punishing_at_end: np.ndarray, periods: np.ndarray,
-                    sel: np.ndarray, level: float = 0.95) -> list[dict]:
+                    sel: np.ndarray, level: float = 0.95, start: np.ndarray | None = None) -> list[dict]:
     """Statistics across sessions of every automaton's punishments during learning.
 
     Parameters
@@ -62,6 +62,8 @@ def trigger_summary(lineup, triggers: np.ndarray, punishing_at_end: np.ndarray, 
         The sessions the statistics are over.
     level : float
         Confidence level (Student's t for means, Wilson for shares, as in :mod:`sim.core.stats`).
+    start : ndarray of int64, shape (n_sessions,), optional
+        After an event: the periods each session had played before it (the index of its first period after it).
 
     Returns
     -------
@@ -72,7 +74,9 @@ def trigger_summary(lineup, triggers: np.ndarray, punishing_at_end: np.ndarray, 
         the sessions with one; ``mean`` with its interval and ``median``), ``punishment_share`` (share of the
         session's periods played in a non-collusive state), ``exploration_first`` and ``exploration_last`` (the
         Q-learners' exploration probability at those periods; nan when every learner is a bandit) and
-        ``punishing_at_end`` (share of sessions that ended learning with the automaton punishing).
+        ``punishing_at_end`` (share of sessions that ended learning with the automaton punishing); after an event,
+        ``first_after_event``: the median over the sessions with a trigger of the first trigger's period counted
+        from the event, session by session (1: the first period after it).
     """
     rec = np.asarray(triggers)[sel]
     per = np.asarray(periods, dtype=float)[sel]
@@ -103,4 +107,7 @@ def trigger_summary(lineup, triggers: np.ndarray, punishing_at_end: np.ndarray, 
                                  "median": _median(np.exp(-beta * l1))},
             "punishing_at_end": _share(int(end[:, i].sum()), int(end.shape[0]), level),
         })
+        if start is not None:
+            since = f1 - np.asarray(start, dtype=float)[sel][hit] + 1.0
+            out[-1]["first_after_event"] = {"median": _median(since)}
     return out

@@ -131,7 +131,11 @@ def test_the_shipped_entry_experiment_in_its_two_steps(tmp_path, monkeypatch, ca
                 in console(run.result(c)))
     assert all(run.result(c).event["settled"]["share"] == 1.0 for c in range(3))
     # the cells side by side: named by the swept entrant's label, axes labelled, a legend for the marks
-    from sim.evidence.learn_bundle import comparison_figure
+    from sim.evidence.learn_bundle import _swept_name, comparison_figure
+    from sim.runner.experiment import load_experiment
+
+    # the swept entry is the second [[strategies]] entry; the first holds two seats, so it is firm 3
+    assert _swept_name(load_experiment(root / "learning-entry.toml")) == "firm 3's strategy"
 
     fig = comparison_figure([run.result(c) for c in range(3)], ["competitive", "grim trigger", "tit for tat"],
                             "firm 3's strategy")
@@ -245,3 +249,39 @@ def test_saved_learners_replaced_while_the_run_goes_on_leave_the_folder_unfinish
     assert main(["run", "--resume", "run"]) == 2
     assert "learners.npz has changed since the run started" in capsys.readouterr().err
     assert not (folder / "run" / "manifest.json").exists()
+
+
+def test_events_that_change_one_thing_still_go_on_beside_automata_and_per_firm_lists(folder, capsys):
+    # a cost shock beside an automaton whose levels follow the market (always compete plays the static Nash price,
+    # which the shock moves): the automaton's actions change with the market, as they should
+    seats = '\n[[strategies]]\nstrategy = "qlearning"\n\n[[strategies]]\nstrategy = "always_compete"\n'
+    (folder / "a1.toml").write_text(STEP1.replace("[impulse]", seats + "\n[impulse]"))
+    assert main(["learn", "a1.toml"]) == 0
+    (folder / "a2.toml").write_text(STEP2.replace("[impulse]", seats + "\n[impulse]"))
+    assert main(["learn", "a2.toml"]) == 0
+    # an entry into a market written firm by firm: each per-firm list grows by the entrant's own value
+    (folder / "l1.toml").write_text(STEP1.replace("cost = 1.0", "cost = [1.0, 1.0]"))
+    assert main(["learn", "l1.toml"]) == 0
+    entry = (STEP2.replace("cost = 1.2", "cost = [1.0, 1.0, 1.1]").replace("n_firms = 2", "n_firms = 3")
+             .replace('kind = "market"', 'kind = "entry"')
+             .replace("[impulse]", '\n[[strategies]]\nstrategy = "qlearning"\nseats = 2\n\n[[strategies]]\n'
+                                   'strategy = "always_compete"\n\n[impulse]'))
+    (folder / "l2.toml").write_text(entry)
+    assert main(["learn", "l2.toml"]) == 0
+    # but not when an incumbent's own value changes with the entry
+    (folder / "l3.toml").write_text(entry.replace("cost = [1.0, 1.0, 1.1]", "cost = [1.0, 1.05, 1.1]"))
+    capsys.readouterr()
+    assert main(["learn", "l3.toml"]) == 2
+    assert capsys.readouterr().err.startswith("supergame learn: error: market.cost: an event of kind 'entry' keeps")
+
+
+def test_a_market_event_that_also_changes_how_the_learners_learn_is_refused(folder, capsys):
+    # the control of another event is a market event that changes nothing: one that changes the learners' settings
+    # instead is a change of protocol, and would be reported as "the market as it was"
+    assert main(["learn", "step1.toml"]) == 0
+    text = STEP2.replace("cost = 1.2", "cost = 1.0").replace("beta = 5e-4", "beta = 5e-4\nalpha = 0.3")
+    (folder / "p.toml").write_text(text)
+    capsys.readouterr()
+    assert main(["learn", "p.toml"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and err.startswith("supergame learn: error: event.kind: 'market' keeps the learners'")

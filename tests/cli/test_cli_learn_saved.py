@@ -134,9 +134,10 @@ def test_the_learners_are_not_saved_over_a_file_the_run_reads(small, capsys):
 
 
 def test_keeping_every_sessions_learners_is_sized_before_any_work(small, capsys, monkeypatch):
-    # saving keeps each session's Q-values (2 learners x 100 states x 100 prices x 8 bytes = 160 kB a session, with
-    # greedy actions and statistics a little more): 1,000 sessions need about 0.16 GB; with 0.1 GB available (80 %
-    # of it usable) the run is refused in one line naming run.sessions, and nothing is written
+    # saving keeps each session's Q-values (2 learners x 10,000 states (100 x 100 price pairs, memory 1) x 100 prices
+    # x 8 bytes = 16 MB a session, with greedy actions and statistics a little more): 1,000 sessions need about 16 GB;
+    # with 0.1 GB available (80 % of it usable) the run is refused in one line naming run.sessions, and nothing is
+    # written; the message gives the size, checked against that arithmetic below
     import sim.learning.tables as T
 
     monkeypatch.setattr(T, "available_memory", lambda: 100_000_000)
@@ -146,6 +147,8 @@ def test_keeping_every_sessions_learners_is_sized_before_any_work(small, capsys,
     status, cap = _run(capsys, "many.toml", "--save-to", "many.npz")
     assert status == 2 and cap.err.count("\n") == 1
     assert cap.err.startswith("supergame learn: error: run.sessions: 1000 sessions' learners kept to save them")
+    need = float(cap.err.split(" need ")[1].split(" GB")[0])
+    assert 16.0 <= need <= 16.5  # 16 GB of Q-values, 0.16 GB of greedy actions, bandit statistics and counters
     assert sorted(p.name for p in small.parent.iterdir()) == before
     # without saving nothing is kept beyond the sessions running at once: the same file passes the check
     assert main(["check", "many.toml"]) == 0

@@ -65,6 +65,10 @@ VARIANTS = {
     "market not a table": lambda h, a: h.__setitem__("market", [1, 2]),
     "seats not a list": lambda h, a: h.__setitem__("seats", "abc"),
     "grid not numbers": lambda h, a: h["seats"][0].__setitem__("grid", "abc"),
+    "a learner without its grid": lambda h, a: h["seats"][0].pop("grid"),
+    "a seat more in the header": lambda h, a: h["seats"].append(dict(h["seats"][0])),
+    "a grid shorter than the greedy actions": lambda h, a: h["seats"][1].__setitem__("grid", h["seats"][1]["grid"][:2]),
+    "an extra automaton state column": _set("z", lambda x: np.zeros((x.shape[0], x.shape[1] + 1), dtype=np.int64)),
 }
 
 
