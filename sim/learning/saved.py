@@ -224,6 +224,8 @@ def load_learners(path, key: str = "learning.continue_from") -> SavedLearners:
         recorded hash.
     """
     p = Path(path)
+    if p.is_dir():
+        raise InputError(key, f"{path} is a folder, not a file of saved learners")
     if not p.is_file():
         raise InputError(key, f"no such file: {path}")
     try:

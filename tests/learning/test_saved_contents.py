@@ -112,3 +112,14 @@ def test_the_untouched_file_rewritten_the_same_way_is_accepted(saved, tmp_path, 
     _write(tmp_path / "c.npz", copy.deepcopy(saved[0]), {k: v.copy() for k, v in saved[1].items()})
     (tmp_path / "e.toml").write_text(SHOCK)
     assert main(["learn", "e.toml", "--workers", "1"]) == 0
+
+
+def test_a_folder_named_as_the_saved_learners_is_named_as_a_folder(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "c.npz").mkdir()
+    for text in (GO_ON, SHOCK):
+        (tmp_path / "e.toml").write_text(text)
+        capsys.readouterr()
+        assert main(["learn", "e.toml"]) == 2
+        err = capsys.readouterr().err
+        assert err.count("\n") == 1 and "learning.continue_from: c.npz is a folder, not a file of saved learners" in err

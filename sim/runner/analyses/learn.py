@@ -29,6 +29,8 @@ def _prepare_learn(doc: dict) -> dict:
 def _ready(doc: dict) -> None:
     """An event's saved learners must exist when the run starts (``check`` accepts them as still to come)."""
     name = (doc.get("learning") or {}).get("continue_from")
+    if "event" in doc and isinstance(name, str) and Path(name).is_dir():
+        raise InputError("learning.continue_from", f"{name} is a folder, not a file of saved learners")
     if "event" in doc and isinstance(name, str) and not Path(name).is_file():
         raise InputError("learning.continue_from", f"no such file: {name} (run the first step, which saves the "
                                                    "learners, before the event: supergame learn of it writes them "
