@@ -141,7 +141,8 @@ def _setup_lines(res: LearnResult) -> list[str]:
                  f"{_pct(c['low'])} to {_pct(c['high'])})")
     if per["n"]:
         ci = f"[{per['low']:,.0f}, {per['high']:,.0f}]" if per["n"] > 1 else "-"
-        start = " (counted from each session's start)" if res.event or cont else ""
+        start = (" (counted from each session's start, up to the end of the convergence window: the last change "
+                 "plus the periods without one)" if res.event or cont else "")
         lines.append(f"Periods to convergence{start}: mean {per['mean']:,.0f} {ci}, median {per['q50']:,.0f}, "
                      f"5-95 % {per['q05']:,.0f} to {per['q95']:,.0f}")
     lines.append("")

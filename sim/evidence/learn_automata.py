@@ -133,7 +133,7 @@ def automaton_lines(res) -> list[str]:
                      f"{_pct(a['triggered']['share'])} of sessions, {_times(tr['mean'])} per session "
                      f"[{tr['low']:,.5g}, {tr['high']:,.5g}]; share of the session in a non-collusive (punishing or "
                      f"competing) state {_pct(ps['mean'])} "
-                     f"[{_pct(ps['low'])}, {_pct(ps['high'])}]; still punishing at the end in "
+                     f"[{_pct(ps['low'])}, {_pct(ps['high'])}]; in a non-collusive state at the end in "
                      f"{_pct(a['punishing_at_end']['share'])} of sessions")
     lines.append("Why the sessions ended where they did (periods count from the start of the session):")
     lines += [f"  {explain(a, res.summary, act)}" for a in res.automata]

@@ -88,12 +88,16 @@ def event_lines(res) -> list[str]:
 
 def _verdict(learned: float, static: float, est: dict | None) -> str:
     """The learned change against the static one: more or less only when the learned change's interval excludes
-    the static change."""
+    the static change, and "opposite" when it lies wholly on the other side of zero from it."""
     if math.isnan(learned):
         return "-"
     lo, hi = (_num(est.get("low")), _num(est.get("high"))) if est and est.get("n", 0) > 1 else (math.nan, math.nan)
     if math.isnan(lo) or math.isnan(hi):
         return ("more" if learned > static else "less") + " (one session, no interval)"
+    if static > 0 > hi:
+        return "opposite: a fall"
+    if static < 0 < lo:
+        return "opposite: a rise"
     if lo > static:
         return "more"
     if hi < static:
@@ -115,8 +119,10 @@ def _merger_lines(mg: dict | None, firms: list[str], act: str, change=(), since:
     for i, name in enumerate(firms):
         static, learned = _num(mg["static_change"][i]), _num(mg["learned_change"][i])
         verdict = _verdict(learned, static, change[i] if i < len(change) else None)
+        ch = change[i] if i < len(change) else None
+        learned_text = f"{fmt_num(learned)} {_ci(ch)}" if ch and ch.get("n", 0) >= 2 else fmt_num(learned)
         rows.append([name, fmt_num(_num(mg["nash_prices_before"][i])), fmt_num(_num(mg["nash_prices"][i])),
-                     fmt_num(static), fmt_num(learned), verdict]
+                     fmt_num(static), learned_text, verdict]
                     + ([f"{fmt_num(above[i]['mean'])} {_ci(above[i])}"] if above else []))
     out = ["  the merger's static effect: static-Nash prices with the merged firm setting its products' prices "
            f"jointly (Deneckere and Davidson, 1985), against the learned change (the limit {act} after settling "

@@ -37,6 +37,9 @@ def test_the_learned_merger_effect_is_more_or_less_only_outside_its_interval():
     assert _verdict(0.05, 0.171, {"low": 0.0, "high": 0.1, "n": 4}) == "less"
     assert _verdict(0.05, 0.171, {"low": math.nan, "high": math.nan, "n": 1}) == "less (one session, no interval)"
     assert _verdict(math.nan, 0.171, None) == "-"
+    # a learned fall where the static effect is a rise is not just "less": the sign is reversed
+    assert _verdict(-0.0443, 0.0602, {"low": -0.0816, "high": -0.0070, "n": 40}) == "opposite: a fall"
+    assert _verdict(0.05, -0.02, {"low": 0.01, "high": 0.09, "n": 40}) == "opposite: a rise"
 
 
 def test_a_share_nothing_measured_is_said_so_not_computed():
