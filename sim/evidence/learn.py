@@ -214,14 +214,33 @@ def _grid_reach_lines(res: LearnResult) -> list[str]:
     return out
 
 
+def _shock_words(shock: dict | None) -> str:
+    """The demand shock of continued sessions against the one they were saved under (nothing for a result stored
+    before it was compared)."""
+    if not shock:
+        return ""
+
+    def words(d):
+        if d["noise"] == "none" or not d["sigma"]:
+            return "no demand shock"
+        return f"{d['noise']} shock, sigma {d['sigma']:g}"
+
+    now = words(shock["now"])
+    if shock.get("saved") is None:
+        return f"; the file does not record the demand shock they learned under (now: {now})"
+    was = words(shock["saved"])
+    return f"; demand: {now}, as when they were saved" if was == now else f"; demand: {was} -> {now}"
+
+
 def _continued_line(cont: dict) -> str:
     """Where continued sessions came from and what changed since they were saved."""
     lo, hi = cont["periods_before"]
     before = f"{lo:,} periods" if lo == hi else f"{lo:,} to {hi:,} periods"
     head = (f"Saved learners: saved by a run with seed {cont['saved_seed']} (cell {cont['saved_cell']}) after "
             f"{before} of learning (the cap counts from the sessions' start)")
+    head += _shock_words(cont.get("shock"))
     if not cont["changed"]:
-        return head + "; every learning setting as when they were saved"
+        return head + "; every learner's settings as when they were saved"
 
     def value(v):
         return f"{v:g}" if isinstance(v, float) else str(v)

@@ -400,7 +400,7 @@ def describe_layout(lineup) -> list[dict]:
             for i, c in enumerate(lineup.learners)]
 
 
-def continued_record(saved: SavedLearners, lineup) -> dict:
+def continued_record(saved: SavedLearners, lineup, shock: dict | None = None) -> dict:
     """What a run that continues saved sessions without an event reports of them: where they came from and what
     changed since the save.
 
@@ -410,14 +410,17 @@ def continued_record(saved: SavedLearners, lineup) -> dict:
         The sessions continued (checked against the line-up).
     lineup : sim.learning.lineup.Lineup
         The line-up they continue in.
+    shock : dict, optional
+        The continuing run's demand shock (``noise``, ``sigma``), compared with the one the file records.
 
     Returns
     -------
     dict
         ``saved_seed`` and ``saved_cell`` (of the run that saved them), ``periods_before`` (the fewest and the most
-        periods a session had played, ``[min, max]``), and ``changed``: per seat whose settings differ from the
+        periods a session had played, ``[min, max]``), ``changed``: per seat whose settings differ from the
         saved ones, ``{"firm": i (from 1), "setting": key, "saved": value, "now": value}`` (learning parameters and
-        the update rule; the grid cannot change).
+        the update rule; the grid cannot change); and, with ``shock``, ``shock``: ``{"saved": the file's record or
+        None for a file that has none, "now": shock}``.
     """
     h = saved.header
     played = np.asarray(saved.clock)[:, 0]
@@ -426,8 +429,11 @@ def continued_record(saved: SavedLearners, lineup) -> dict:
         for key in sorted(set(old) | set(new)):
             if key not in ("grid", "strategy") and old.get(key) != new.get(key):
                 changed.append({"firm": i + 1, "setting": key, "saved": old.get(key), "now": new.get(key)})
-    return to_plain({"saved_seed": h.get("seed"), "saved_cell": h.get("cell"),
-                     "periods_before": [int(played.min()), int(played.max())], "changed": changed})
+    out = {"saved_seed": h.get("seed"), "saved_cell": h.get("cell"),
+           "periods_before": [int(played.min()), int(played.max())], "changed": changed}
+    if shock is not None:
+        out["shock"] = {"saved": h.get("demand_shock"), "now": shock}
+    return to_plain(out)
 
 
 def _first_difference(saved, here, path: str = "") -> str | None:

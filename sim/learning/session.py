@@ -223,7 +223,7 @@ def _checked_start(start, event, lineup: Lineup, market_doc: dict | None, sessio
     elif start is not None:
         refuse_merged(start)
         check_start(start, lineup, market_doc, sessions)
-        settings["continued"] = continued_record(start, lineup)
+        settings["continued"] = continued_record(start, lineup, _shock_record(settings))
     return start, lineup, what
 
 
@@ -427,6 +427,14 @@ def _signal_settings(lineup: Lineup, observe: str, band: float, timing: str, eve
     return {"observe": observe, "signal_band": band}
 
 
+def _shock_record(settings: dict) -> dict:
+    """The demand shock of a run's settings as a saved file's header records it: ``noise`` and ``sigma``
+    (``"none"`` and 0 without a shock)."""
+    if "demand_sigma" not in settings:
+        return {"noise": "none", "sigma": 0.0}
+    return {"noise": str(settings["demand_noise"]), "sigma": float(settings["demand_sigma"])}
+
+
 def _shock(settings: dict) -> tuple[int, float]:
     """The kernel's demand-shock code and standard deviation of a run's settings ((0, 0.0) without a shock)."""
     if "demand_sigma" not in settings:
@@ -490,6 +498,8 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
             header["merged"] = list(event[0].firms)
         if "observe" in settings:
             header["observe"] = settings["observe"]  # written only where it is not the prices protocol
+        # the demand shock the learners learned under, so that a continuation can say whether it changed
+        header["demand_shock"] = _shock_record(settings)
         saved = SavedLearners(**buf.saved, status=buf.status.copy(), header=header)
     ev = None if event is None else {"event": event[0], "what": event[1], "path": buf.path, "settle": buf.settle,
                                   "start": buf.start, "at_event": buf.at_event if lineup.limit_exact else None}

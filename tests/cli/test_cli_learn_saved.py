@@ -35,7 +35,8 @@ def test_a_run_split_in_two_halves_prints_the_json_of_the_whole_run(small, capsy
     cont = doc["settings"].pop("continued")
     assert doc == json.loads(whole.out)
     assert cont == {"saved_seed": json.loads(whole.out)["settings"]["seed"], "saved_cell": 0,
-                    "periods_before": [12000, 12000], "changed": []}
+                    "periods_before": [12000, 12000], "changed": [],
+                    "shock": {"saved": {"noise": "none", "sigma": 0.0}, "now": {"noise": "none", "sigma": 0.0}}}
     status, text = _run(capsys, str(small), "--continue-from", "half.npz", "--alpha", "0.3", "--seed", "5")
     assert status == 0
     assert "continued from saved learners, not new" in text.out and "seed (5)" in text.out
@@ -152,3 +153,23 @@ def test_keeping_every_sessions_learners_is_sized_before_any_work(small, capsys,
     assert sorted(p.name for p in small.parent.iterdir()) == before
     # without saving nothing is kept beyond the sessions running at once: the same file passes the check
     assert main(["check", "many.toml"]) == 0
+
+
+def test_a_continuation_says_whether_the_demand_shock_changed_since_the_save(small, capsys):
+    # the saved file records the demand shock the learners learned under; the continuation's report compares it
+    assert main(["learn", str(small), "--save-to", "first.npz"]) == 0
+    capsys.readouterr()
+    status, same = _run(capsys, str(small), "--continue-from", "first.npz")
+    assert status == 0 and "; demand: no demand shock, as when they were saved" in same.out
+    status, shocked = _run(capsys, str(small), "--continue-from", "first.npz", "--demand-sigma", "0.3")
+    assert status == 0 and "; demand: no demand shock -> lognormal shock, sigma 0.3" in shocked.out
+    assert "every learner's settings as when they were saved" in shocked.out
+    # a file written before the shock was recorded: said so, not claimed unchanged
+    from tests.learning.test_saved_contents import _read, _write
+
+    header, arrays = _read(small.parent / "first.npz")
+    header.pop("demand_shock")
+    _write(small.parent / "old.npz", header, arrays)
+    status, old = _run(capsys, str(small), "--continue-from", "old.npz")
+    assert status == 0
+    assert "the file does not record the demand shock they learned under (now: no demand shock)" in old.out
