@@ -105,6 +105,9 @@ class SavedLearners:
         The bandits' plays of each price (zeros for Q-learners and in a version 1 file).
     sums : ndarray of float64, shape (n, n_learners, max(radix))
         The bandits' sums of rewards of each price (likewise).
+    file_sha256 : str
+        SHA-256 of the file's bytes these arrays were read from (:func:`load_learners`; empty when not read from a
+        file).
     """
 
     Q: np.ndarray
@@ -118,6 +121,7 @@ class SavedLearners:
     header: dict
     counts: np.ndarray
     sums: np.ndarray
+    file_sha256: str = ""
 
     @property
     def n_sessions(self) -> int:
@@ -229,7 +233,9 @@ def load_learners(path, key: str = "learning.continue_from") -> SavedLearners:
     if not p.is_file():
         raise InputError(key, f"no such file: {path}")
     try:
-        with zipfile.ZipFile(p) as zf:
+        # read once: the arrays come from these bytes, and their SHA-256 is what the run's record compares
+        data = p.read_bytes()
+        with zipfile.ZipFile(io.BytesIO(data)) as zf:
             header = json.loads(zf.read("header.json").decode("utf-8"))
             if not isinstance(header, dict) or header.get("format") != FORMAT:
                 raise InputError(key, f"{path} is not a file of saved learners (format {FORMAT!r})")
@@ -272,7 +278,7 @@ def load_learners(path, key: str = "learning.continue_from") -> SavedLearners:
         if name not in arrays:
             q = arrays["Q"]
             arrays[name] = np.zeros((q.shape[0], q.shape[1], q.shape[3]), dtype=_DTYPES[name])
-    return SavedLearners(**arrays, header=header)
+    return SavedLearners(**arrays, header=header, file_sha256=hashlib.sha256(data).hexdigest())
 
 
 def _check_contents(arrays: dict, header: dict, path, key: str) -> None:

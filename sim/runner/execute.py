@@ -458,8 +458,11 @@ def _compute(plan: _Plan, workers, progress, command, plugin_info: list) -> tupl
         show = sys.stderr.isatty() if progress is None else bool(progress)
         bar = Progress(exp.n_cells, exp.n_cells - len(plan.todo), exp.name, show and not single)
         recorder = _Recorder(exp, store, attempt, bar)
+        # the input files as the run recorded them: every cell checks them before and after it computes
+        inputs = store.meta().get("inputs") or {}
         payloads = ({"kind": exp.kind, "index": i, "doc": exp.cell(i).doc, "threads": threads,
-                     "progress": bool(show and single), "plugins": plugin_info, "folder": str(plan.folder)}
+                     "progress": bool(show and single), "plugins": plugin_info, "folder": str(plan.folder),
+                     **({"inputs": inputs} if inputs else {})}
                     for i in plan.todo)
         try:
             execute(payloads, recorder, plan.backend, plugin_info)

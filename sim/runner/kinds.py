@@ -213,6 +213,10 @@ class Kind:
         ``inputs(doc) -> list of (key path, file name)``: the files a cell's document reads besides the experiment
         file (saved learners); the run records their SHA-256 when it starts and checks them when it is resumed or
         verified (:mod:`sim.runner.inputs`).
+    read : callable, optional
+        ``read(config) -> list of (key path, file name, SHA-256)``: the input files a prepared cell read, with the
+        SHA-256 of the very bytes it read; each cell of a run compares them with the ones the run recorded when it
+        started, so that no cell is stored from another version of a file (:func:`sim.runner.sweep.run_payload`).
     cell_assumptions : callable, optional
         ``cell_assumptions(doc) -> list of str``: the assumptions of what one cell's document uses (a learner family,
         a protocol); the report states those of every cell of the run, each once, after ``assumptions``.
@@ -250,6 +254,7 @@ class Kind:
     summary: str = ""
     ready: Callable[[dict], None] | None = None
     inputs: Callable[[dict], Sequence[tuple]] | None = None
+    read: Callable[[Any], Sequence[tuple]] | None = None
     cost: Callable[[Any], Any] | None = None
     result_type: type | None = None
     report: Callable[[Any, Any], None] | None = None

@@ -50,6 +50,7 @@ from tqdm import tqdm
 
 from sim.core.errors import InputError
 from sim.core.parallel import usable_cores
+from sim.runner.inputs import input_problems
 from sim.runner.kinds import (
     CellContext,
     clean_arrays,
@@ -116,12 +117,17 @@ def run_payload(payload: dict) -> dict:
     try:
         _ensure_plugins(payload.get("plugins"))
         kind = get_kind(payload["kind"])
+        recorded = payload.get("inputs") or {}
+        _same_inputs(recorded)
         cfg = kind.prepare(payload["doc"])
+        if kind.read is not None:
+            _same_reads(kind.read(cfg), recorded)
         ctx = CellContext(index=int(payload["index"]), threads=int(payload.get("threads", 1)),
                           progress=bool(payload.get("progress", False)), folder=payload.get("folder"))
         t0 = time.perf_counter()
         res = kind.run(cfg, ctx)
         out["seconds"] = time.perf_counter() - t0
+        _same_inputs(recorded)
         out["metrics"] = clean_metrics(res.metrics)
         out["arrays"] = clean_arrays(res.arrays or {})
         out["document"] = clean_document(getattr(res, "result", None))
@@ -136,6 +142,27 @@ def run_payload(payload: dict) -> dict:
         out["metrics"], out["arrays"], out["document"] = {}, {}, None
     out["finished"] = time.time()
     return out
+
+
+_NOT_STORED = "this cell would come from another version of the file, so it is not stored"
+
+
+def _same_inputs(recorded: dict) -> None:
+    """The run's input files are the ones it recorded when it started, checked before and after a cell: a file
+    replaced meanwhile fails the cell (:mod:`sim.runner.inputs`)."""
+    problems = input_problems(recorded, _NOT_STORED)
+    if problems:
+        raise InputError(*problems[0])
+
+
+def _same_reads(read, recorded: dict) -> None:
+    """The bytes a prepared cell read are those of the recorded files (``Kind.read``): exact, whatever happened to
+    the file between the checks around the cell."""
+    for key, name, digest in read:
+        rec = recorded.get(name)
+        if rec is not None and digest != rec["sha256"]:
+            raise InputError(key, f"{name} read by this cell has SHA-256 {digest[:12]}..., not the "
+                                  f"{rec['sha256'][:12]}... recorded when the run started: {_NOT_STORED}")
 
 
 #: how often a worker looks whether the process that started it is still there (seconds)

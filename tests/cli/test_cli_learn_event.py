@@ -285,3 +285,39 @@ def test_a_market_event_that_also_changes_how_the_learners_learn_is_refused(fold
     assert main(["learn", "p.toml"]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and err.startswith("supergame learn: error: event.kind: 'market' keeps the learners'")
+
+
+def test_a_cell_is_not_stored_from_another_version_of_a_file_it_reads(folder, capsys, monkeypatch):
+    # each cell checks the run's input files before and after it computes, and compares the bytes it read itself with
+    # the SHA-256 the run recorded: a file swapped and swapped back while the cell reads it fails that cell
+    import tomllib
+
+    import sim.learning.tables as T
+    from sim.core.tomlfile import file_sha256
+    from sim.runner.sweep import run_payload
+
+    assert main(["learn", "step1.toml", "--seed", "99", "--save-to", "other.npz"]) == 0
+    assert main(["learn", "step1.toml"]) == 0
+    capsys.readouterr()
+    recorded = {"learners.npz": {"key": "learning.continue_from", "sha256": file_sha256("learners.npz")}}
+    payload = {"kind": "learn", "index": 0, "doc": tomllib.loads(STEP2), "inputs": recorded}
+    assert run_payload(payload)["status"] == "ok"  # the control
+    real, mine, other = T.load_learners, (folder / "learners.npz").read_bytes(), (folder / "other.npz").read_bytes()
+
+    def swapped_while_read(path, key="learning.continue_from"):
+        (folder / "learners.npz").write_bytes(other)
+        try:
+            return real(path, key)
+        finally:
+            (folder / "learners.npz").write_bytes(mine)
+
+    monkeypatch.setattr(T, "load_learners", swapped_while_read)
+    out = run_payload(payload)
+    assert out["status"] == "failed" and out["metrics"] == {}
+    assert "learning.continue_from: learners.npz read by this cell has SHA-256" in out["error"]
+    assert "recorded when the run started: this cell would come from another version of the file" in out["error"]
+    monkeypatch.setattr(T, "load_learners", real)
+    # replaced and left so: caught before the cell reads it
+    (folder / "learners.npz").write_bytes(other)
+    out = run_payload(payload)
+    assert out["status"] == "failed" and "learners.npz has changed since the run started" in out["error"]

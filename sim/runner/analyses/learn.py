@@ -59,6 +59,14 @@ def _inputs(doc: dict) -> list[tuple[str, str]]:
     return out
 
 
+def _read(cfg: dict) -> list[tuple[str, str, str]]:
+    """The saved learners a prepared cell continues, with the SHA-256 of the bytes it read (``Kind.read``)."""
+    start, name = cfg.get("start"), (cfg["doc"].get("learning") or {}).get("continue_from")
+    if start is None or not isinstance(name, str) or not getattr(start, "file_sha256", ""):
+        return []
+    return [("learning.continue_from", name, start.file_sha256)]
+
+
 def saved_path(save_to: str | None, ctx: CellContext) -> Path | None:
     """Where a cell saves its learners (``learning.save_to``): the path as given, or, in a run folder, that name
     inside the folder with the cell's number before the extension (``learners.npz`` -> ``learners-cell1.npz``),
@@ -366,6 +374,7 @@ KIND = Kind(
     prepare=_prepare_learn,
     ready=_ready,
     inputs=_inputs,
+    read=_read,
     run=_run_learn,
     metric_names=_learn_names,
     result_type=LearnResult,
