@@ -275,24 +275,27 @@ def _gb(x: float) -> str:
 
 
 def _check_memory(radix: list[int], ks: list[int], n_workers: int, prefix: str, available: int | None,
-                  z_states: int = 1) -> None:
-    """Refuse a state space that cannot be held, before anything is allocated."""
+                  z_states: int = 1, states: int | None = None) -> None:
+    """Refuse a state space that cannot be held, before anything is allocated (``states``: the learners' states
+    when they are not the histories of the simultaneous protocol, as under alternating moves)."""
     n = len(radix)
     M = math.prod(radix)
     K = max(ks)
-    S = M**K
-    n_states = M ** max(ks)
+    S = M**K if states is None else states
+    n_states = S
     m_max = max(radix)
-    key = f"{prefix}.k" if prefix else "k"
+    # the memory k sets the histories of the simultaneous protocol; the grid alone the states of alternating moves
+    name = "k" if states is None else "m"
+    key = f"{prefix}.{name}" if prefix else name
     per_session = n * n_states * m_max * 8 + n * n_states * 8  # Q-values and greedy actions
     tables = 4 * M * n * 8
     need = per_session * (n_workers + 1) + tables
     avail = available_memory() if available is None else available
-    states = str(n_states) if n_states < 10**9 else f"{float(n_states):.3g}"
+    shown = str(n_states) if n_states < 10**9 else f"{float(n_states):.3g}"
     if need > MEMORY_SHARE * avail:
         raise InputError(
             key,
-            f"state space too large: {n} seats x {states} states x {m_max} actions need "
+            f"state space too large: {n} seats x {shown} states x {m_max} actions need "
             f"{_gb(per_session)} per session ({_gb(need)} for {n_workers} worker(s)), more than the "
             f"{_gb(MEMORY_SHARE * avail)} that may be used; reduce m, k or the number of firms",
         )
@@ -325,7 +328,8 @@ def _seats_and_keys(learners, n: int, prefix: str, seat_prefix: str | None) -> t
 
 def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: int = 1,
                    available_memory: int | None = None, agreement: str = "joint",
-                   seat_prefix: str | None = None, random_automata: str = "refuse") -> Lineup:
+                   seat_prefix: str | None = None, random_automata: str = "refuse",
+                   alternating: bool = False) -> Lineup:
     """Resolve a line-up of learners (and automata) against a market, checking that the state space
     fits in memory before anything is allocated.
 
@@ -355,6 +359,10 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
         at random raises InputError naming its seat. ``"estimate"``: it is seated; it draws from the
         session's stream and the limit analysis of the line-up is a simulated estimate
         (:attr:`Lineup.limit_exact` is False; see :func:`sim.learning.session.learn`, which always uses this).
+    alternating : bool
+        For alternating moves (:mod:`sim.learning.alternating`), whose learners' state is the rival's current price:
+        the memory check counts their tables (``m`` states of ``m`` prices per learner), and the initial values are
+        kept for one state (the same in every state), not for every history of the simultaneous protocol.
 
     Returns
     -------
@@ -376,7 +384,8 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     auto = _automaton_part(ms, seats, is_l, keys, agreement, random_automata == "refuse")
     radix = [int(specs[i]["m"]) if is_l[i] else int(auto["values"][i].size) for i in range(n)]
     ks = [int(specs[i]["k"]) if specs[i]["family"] in ("q", "fixed") else 0 for i in range(n) if is_l[i]]
-    _check_memory(radix, ks, max(1, int(workers)), prefix, available_memory, int(np.prod(auto["zn"])))
+    _check_memory(radix, ks, max(1, int(workers)), prefix, available_memory, int(np.prod(auto["zn"])),
+                  states=max(radix) if alternating else None)
     # the published grid of a learner without one is placed by the static-Nash and joint-profit actions
     stage = stage_game(ms) if any(is_l[i] and seats[i].get_params().get("grid") is None for i in range(n)) else None
     compiled = with_sources(tuple(seats[i].compile(stage, i, keys[i]) if is_l[i] else None for i in range(n)), policies)
@@ -392,7 +401,8 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     return Lineup(
         market=ms, learners=compiled, names=names, grids=grids, seats=seat_in, stage=stage_in,
         automata=auto["inputs"], engine_lineup=auto["engine"],
-        q0=fixed_q(_initial_q(compiled, seat_in, stage_in.payoff, keys), policies, seat_in, grids, keys), z0=auto["z0"],
+        q0=fixed_q(_initial_q(compiled, seat_in, stage_in.payoff, keys, 1 if alternating else None), policies, seat_in,
+                   grids, keys), z0=auto["z0"],
         nash_profits=np.asarray(st.nash.profits, float), collusive_profits=np.asarray(st.collusive.profits, float),
         nash_actions=np.asarray(st.nash.actions, float), collusive_actions=np.asarray(st.collusive.actions, float),
         nash_prices=np.asarray(st.nash.prices, float), collusive_prices=np.asarray(st.collusive.prices, float),
@@ -461,17 +471,21 @@ def _stage_inputs(ms, grids: tuple, seats: SeatInputs, M: int, K: int, automata:
                        mprice=mprice, values=values, quantity_setting=bool(ms.quantity_setting))
 
 
-def _initial_q(compiled: tuple, seats: SeatInputs, pi: np.ndarray, keys: list) -> np.ndarray:
-    """Initial Q-values of every learner: uniform, zeros or the given array."""
+def _initial_q(compiled: tuple, seats: SeatInputs, pi: np.ndarray, keys: list, rows: int | None = None) -> np.ndarray:
+    """Initial Q-values of every learner: uniform, zeros or the given array (for ``rows`` states only when given:
+    alternating moves read one)."""
     n = len(compiled)
     radix = [int(r) for r in seats.radix]
     n_l = sum(c is not None for c in compiled)
-    q0 = np.zeros((n_l, int(seats.mod.max()), int(max(radix[i] for i in range(n) if compiled[i] is not None))))
+    q0 = np.zeros((n_l, int(seats.mod.max()) if rows is None else rows,
+                   int(max(radix[i] for i in range(n) if compiled[i] is not None))))
     for i, c in enumerate(compiled):
         if c is None:
             continue
+        if rows is not None and not isinstance(c.init, str):
+            continue  # given values: refused under alternating moves (sim.learning.alternating.check_alternating)
         li = int(seats.lidx[i])
-        n_states = int(seats.mod[i])
+        n_states = int(seats.mod[i]) if rows is None else rows
         m = radix[i]
         if isinstance(c.init, str):
             if c.init == "uniform":

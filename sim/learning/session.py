@@ -194,7 +194,8 @@ def learn(market, learners=None, *, sessions: int = 100, seed: int = 0, converge
                         deviator=deviator, response_periods=response_periods, near=near, workers=workers,
                         cell=cell, confidence=confidence, limit_periods=limit_periods, timing=timing)
     n_workers = min(run["workers"] or usable_cores(), run["sessions"])
-    lineup = compile_lineup(market, learners, workers=n_workers, random_automata="estimate")
+    lineup = compile_lineup(market, learners, workers=n_workers, random_automata="estimate",
+                            alternating=run["timing"] == "alternating")
     dev_index = _deviation_index(lineup, run["deviator"], deviation)
     settings = {**run, "workers": n_workers, "deviation": deviation,
                 **_shock_settings(demand_noise, demand_sigma, run["timing"], event),

@@ -288,7 +288,8 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
     settings["deviation"] = _impulse_action(it)
     # the line-up and its memory, checked before any work (the run repeats this, cheaply)
     workers = settings["workers"] or usable_cores()
-    lineup = compile_lineup(market, learner, workers=min(workers, settings["sessions"]), random_automata="estimate")
+    lineup = compile_lineup(market, learner, workers=min(workers, settings["sessions"]), random_automata="estimate",
+                            alternating="timing" in settings)
     if "limit_periods" in lt and lineup.limit_exact:
         unused["learning.limit_periods"] = ("no automaton acts at random, so greedy play after learning is a "
                                             "deterministic path whose cycle is found exactly, not simulated")

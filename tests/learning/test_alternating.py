@@ -233,3 +233,27 @@ def test_coarse_grids_end_at_a_fixed_supra_competitive_price_and_finer_grids_cyc
     for k in out:
         p = 1.0 / k
         assert out[k]["profit_gain"]["mean"] > 4 * p * (1 - p) + 0.1, k
+
+
+def test_alternating_moves_are_sized_by_their_own_tables():
+    # under alternating moves a learner's state is the rival's current price: m states of m prices per learner (Klein,
+    # 2021), not the m**2 histories of the simultaneous protocol. A grid of 1,000 prices needs 2 x 1,000 x 1,000 x 8
+    # bytes = 16 MB of Q-values a session, where the simultaneous layout would need 16 GB
+    market = homogeneous_market()
+    lu = compile_lineup(market, QLearner(grid=klein_grid(999)), random_automata="estimate", alternating=True,
+                        available_memory=2_000_000_000)
+    assert lu.q0.shape == (2, 1, 1000)
+    with pytest.raises(InputError, match="state space too large") as e:
+        compile_lineup(market, QLearner(grid=klein_grid(999)), random_automata="estimate",
+                       available_memory=2_000_000_000)
+    assert e.value.key == "learning.k"
+    # too large for its own tables: named by the grid
+    with pytest.raises(InputError, match="state space too large") as e:
+        compile_lineup(market, QLearner(grid=klein_grid(999)), random_automata="estimate", alternating=True,
+                       available_memory=20_000_000)
+    assert e.value.key == "learning.m"
+    # the one row kept is the initial values of every state: sessions are the same as before
+    small = QLearner(grid=klein_grid(6))
+    a = compile_lineup(market, small, random_automata="estimate", alternating=True).q0
+    b = compile_lineup(market, small, random_automata="estimate").q0
+    assert np.array_equal(a[:, 0], b[:, 0]) and np.all(b == b[:, :1])
