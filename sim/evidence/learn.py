@@ -227,7 +227,7 @@ def _shock_words(shock: dict | None) -> str:
 
     now = words(shock["now"])
     if shock.get("saved") is None:
-        return f"; the file does not record the demand shock they learned under (now: {now})"
+        return f"; the file does not record the demand shock of the run that saved them (now: {now})"
     was = words(shock["saved"])
     return f"; demand: {now}, as when they were saved" if was == now else f"; demand: {was} -> {now}"
 

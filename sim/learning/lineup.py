@@ -69,7 +69,8 @@ class Lineup:
         The engine's compiled automata (rows of learner seats are placeholders, never played); None without
         automata.
     q0 : ndarray of float64, shape (n_learners, max(mod), max(radix))
-        Initial Q-values (entries beyond a learner's states or actions are unused).
+        Initial Q-values (entries beyond a learner's states or actions are unused); compiled for alternating moves,
+        one state row (the same values hold in every state), for :mod:`sim.learning.alternating` only.
     z0 : ndarray of int64, shape (n,)
         Initial automaton states.
     nash_profits, collusive_profits, nash_actions, collusive_actions, nash_prices, collusive_prices : ndarray
@@ -288,6 +289,9 @@ def _check_memory(radix: list[int], ks: list[int], n_workers: int, prefix: str, 
     name = "k" if states is None else "m"
     key = f"{prefix}.{name}" if prefix else name
     per_session = n * n_states * m_max * 8 + n * n_states * 8  # Q-values and greedy actions
+    if states is not None:
+        # alternating moves: the limit analysis marks each of the 2 M (mover, price pair) states it visits
+        per_session += 4 * M * 8 + 8
     tables = 4 * M * n * 8
     need = per_session * (n_workers + 1) + tables
     avail = available_memory() if available is None else available
@@ -297,7 +301,8 @@ def _check_memory(radix: list[int], ks: list[int], n_workers: int, prefix: str, 
             key,
             f"state space too large: {n} seats x {shown} states x {m_max} actions need "
             f"{_gb(per_session)} per session ({_gb(need)} for {n_workers} worker(s)), more than the "
-            f"{_gb(MEMORY_SHARE * avail)} that may be used; reduce m, k or the number of firms",
+            f"{_gb(MEMORY_SHARE * avail)} that may be used; "
+            + ("reduce m, k or the number of firms" if states is None else "reduce the number of prices"),
         )
     if S * M * z_states >= 2**62:
         raise InputError(key, f"state space too large: {M}^{K} history states x {z_states} automaton states "
@@ -401,8 +406,11 @@ def compile_lineup(market, learners=None, *, prefix: str = "learning", workers: 
     return Lineup(
         market=ms, learners=compiled, names=names, grids=grids, seats=seat_in, stage=stage_in,
         automata=auto["inputs"], engine_lineup=auto["engine"],
-        q0=fixed_q(_initial_q(compiled, seat_in, stage_in.payoff, keys, 1 if alternating else None), policies, seat_in,
-                   grids, keys), z0=auto["z0"],
+        # under alternating moves a fixed policy is refused (sim.learning.alternating.check_alternating): its
+        # policy has the simultaneous protocol's states, which the one row kept cannot hold
+        q0=(_initial_q(compiled, seat_in, stage_in.payoff, keys, 1) if alternating else
+            fixed_q(_initial_q(compiled, seat_in, stage_in.payoff, keys), policies, seat_in, grids, keys)),
+        z0=auto["z0"],
         nash_profits=np.asarray(st.nash.profits, float), collusive_profits=np.asarray(st.collusive.profits, float),
         nash_actions=np.asarray(st.nash.actions, float), collusive_actions=np.asarray(st.collusive.actions, float),
         nash_prices=np.asarray(st.nash.prices, float), collusive_prices=np.asarray(st.collusive.prices, float),

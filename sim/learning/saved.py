@@ -335,6 +335,12 @@ def _check_contents(arrays: dict, header: dict, path, key: str) -> None:
         k = seat.get("k")
         if k is not None and (isinstance(k, bool) or not isinstance(k, int) or k < 0):
             raise bad(f"firm {i + 1}'s memory k in its header is not a count")
+    shock = header.get("demand_shock")
+    if shock is not None and not (isinstance(shock, dict) and isinstance(shock.get("noise"), str)
+                                  and isinstance(shock.get("sigma"), int | float)
+                                  and not isinstance(shock.get("sigma"), bool)
+                                  and np.isfinite(shock["sigma"]) and shock["sigma"] >= 0):
+        raise bad("its header's demand shock is not a noise and a standard deviation")
     # the header's seats against the arrays: one automaton state per seat, one Q-table per learner (seats in order),
     # each learner's greedy actions on its own grid
     if len(seats) != z.shape[1]:

@@ -499,7 +499,8 @@ def _run_sessions(lineup: Lineup, settings: dict, dev_index: int, progress: bool
             header["merged"] = list(event[0].firms)
         if "observe" in settings:
             header["observe"] = settings["observe"]  # written only where it is not the prices protocol
-        # the demand shock the learners learned under, so that a continuation can say whether it changed
+        # the demand shock of the run that saved them (of its last stretch, for sessions continued before), so that
+        # a continuation can say whether it changed
         header["demand_shock"] = _shock_record(settings)
         saved = SavedLearners(**buf.saved, status=buf.status.copy(), header=header)
     ev = None if event is None else {"event": event[0], "what": event[1], "path": buf.path, "settle": buf.settle,

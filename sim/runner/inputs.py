@@ -1,7 +1,8 @@
 """Files a run reads besides its experiment file (an experiment kind's ``Kind.inputs``: saved learners to continue
 from, fixed policies): their SHA-256, recorded in the store when the run starts and in its manifest, checked by every
-cell before and after it computes (and, for the saved learners a cell continues, on the very bytes it read:
-``Kind.read``), once the cells are done, when the run is resumed and when it is verified.
+cell a run computes before and after it computes (its own files; for the saved learners it continues, also on the
+very bytes it read: ``Kind.read``), once the cells are done, when the run is resumed and when it is verified (once,
+before the cells it re-runs).
 
 They are named as the experiment file gives them, relative to the folder the run was started in, and are not copied
 into the run folder: whoever keeps the folder keeps them beside it. A run resumed or verified with one of them

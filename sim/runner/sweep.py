@@ -117,7 +117,9 @@ def run_payload(payload: dict) -> dict:
     try:
         _ensure_plugins(payload.get("plugins"))
         kind = get_kind(payload["kind"])
-        recorded = payload.get("inputs") or {}
+        # the recorded input files this cell's document names (another cell's are not its concern)
+        mine = {name for _key, name in kind.inputs(payload["doc"])} if kind.inputs is not None else set()
+        recorded = {name: rec for name, rec in (payload.get("inputs") or {}).items() if name in mine}
         _same_inputs(recorded)
         cfg = kind.prepare(payload["doc"])
         if kind.read is not None:

@@ -6,6 +6,7 @@ import hashlib
 import io
 import json
 import math
+import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -280,7 +281,10 @@ def _rerun(exp, by_cell: dict, chosen: list, rtol: float, atol: float, threads: 
     report = []
     for c in chosen:
         cell = exp.cell(c)
-        res = kind.run(kind.prepare(cell.doc), CellContext(index=c, threads=threads))
+        # in a scratch folder of its own: a cell that saves files (saved learners) writes them there, never over a
+        # file of the current folder (another run's input, say); they are not kept
+        with tempfile.TemporaryDirectory(prefix="supergame-verify-") as scratch:
+            res = kind.run(kind.prepare(cell.doc), CellContext(index=c, threads=threads, folder=scratch))
         fresh = clean_metrics(res.metrics)
         stored = by_cell[c].metrics
         gone = sorted(set(stored) - set(fresh))

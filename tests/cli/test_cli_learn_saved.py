@@ -172,4 +172,18 @@ def test_a_continuation_says_whether_the_demand_shock_changed_since_the_save(sma
     _write(small.parent / "old.npz", header, arrays)
     status, old = _run(capsys, str(small), "--continue-from", "old.npz")
     assert status == 0
-    assert "the file does not record the demand shock they learned under (now: no demand shock)" in old.out
+    assert "the file does not record the demand shock of the run that saved them (now: no demand shock)" in old.out
+
+
+def test_verify_re_runs_a_saving_cell_in_a_scratch_folder(small, capsys):
+    # the re-run cell saves its learners where verify puts them, not over a file of the current folder (which may
+    # be another run's input)
+    doc = SMALL.replace("max_periods = 24000", 'max_periods = 24000\nsave_to = "learners.npz"')
+    (small.parent / "save.toml").write_text(doc)
+    assert main(["run", "save.toml", "--out", "run1", "--quiet"]) == 0
+    (small.parent / "learners.npz").write_bytes(b"someone else's file")
+    before = sorted(p.name for p in small.parent.iterdir())
+    assert main(["verify", "run1", "--sample", "1"]) == 0
+    assert "the run checks out" in capsys.readouterr().out
+    assert (small.parent / "learners.npz").read_bytes() == b"someone else's file"
+    assert sorted(p.name for p in small.parent.iterdir()) == before

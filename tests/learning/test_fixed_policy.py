@@ -259,3 +259,11 @@ def test_the_command_runs_a_fixed_rival_or_refuses_a_mismatch_in_one_line(pair, 
     assert err.startswith("supergame learn: error: strategies[1].policy_from: ") and key in err, err
     # nothing written besides the inputs
     assert sorted(p.name for p in tmp_path.iterdir()) == ["input.toml", "pair.npz"]
+
+
+def test_a_fixed_seat_under_alternating_moves_is_refused_in_words(pair):
+    # alternating moves are played by two learning Q-learners (Klein, 2021): a fixed policy, learned under the
+    # simultaneous protocol's states, is refused naming the timing, before anything is allocated for it
+    with pytest.raises(InputError, match="alternating moves are for Q-learners") as e:
+        learn(logit_market(), [fixed(pair[0], 1), QLearner(m=5)], sessions=1, timing="alternating", max_periods=100)
+    assert e.value.key == "learning.timing"

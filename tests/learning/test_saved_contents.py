@@ -65,6 +65,7 @@ VARIANTS = {
     "market not a table": lambda h, a: h.__setitem__("market", [1, 2]),
     "seats not a list": lambda h, a: h.__setitem__("seats", "abc"),
     "grid not numbers": lambda h, a: h["seats"][0].__setitem__("grid", "abc"),
+    "demand shock not a record": lambda h, a: h.__setitem__("demand_shock", [0.3]),
     "a learner without its grid": lambda h, a: h["seats"][0].pop("grid"),
     "a seat more in the header": lambda h, a: h["seats"].append(dict(h["seats"][0])),
     "a grid shorter than the greedy actions": lambda h, a: h["seats"][1].__setitem__("grid", h["seats"][1]["grid"][:2]),
