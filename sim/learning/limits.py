@@ -176,21 +176,26 @@ def value_of(x0, seat, d, play):
     -------
     float
     """
-    payoff = play.stage.payoff
+    return _value_with(x0, d, play, play.stage.payoff[:, seat])
+
+
+@njit(cache=True, nogil=True)
+def _value_with(x0, d, play, profit):
+    """:func:`value_of` with the profit at each profile given (``profit[prof]``)."""
     mu, lam, _entry = cycle_of(x0, play)
     v = 0.0
     w = 1.0
     x = x0
     for _ in range(mu):
         prof = _profile(x, play)
-        v += w * payoff[prof, seat]
+        v += w * profit[prof]
         w *= d
         x = _after(x, prof, play)
     c = 0.0
     wc = 1.0
     for _ in range(lam):
         prof = _profile(x, play)
-        c += wc * payoff[prof, seat]
+        c += wc * profit[prof]
         wc *= d
         x = _after(x, prof, play)
     return v + w * c / (1.0 - wc)
@@ -209,24 +214,9 @@ def _dev_profit(prof, play, dev):
 def _dev_value(x0, play, dev):
     """:func:`value_of` for the deviator, its profit as :func:`_dev_profit` takes it (the same sums, in the same
     order)."""
-    d = dev.discount
-    mu, lam, _entry = cycle_of(x0, play)
-    v = 0.0
-    w = 1.0
-    x = x0
-    for _ in range(mu):
-        prof = _profile(x, play)
-        v += w * _dev_profit(prof, play, dev)
-        w *= d
-        x = _after(x, prof, play)
-    c = 0.0
-    wc = 1.0
-    for _ in range(lam):
-        prof = _profile(x, play)
-        c += wc * _dev_profit(prof, play, dev)
-        wc *= d
-        x = _after(x, prof, play)
-    return v + w * c / (1.0 - wc)
+    if dev.value.size > 0:
+        return _value_with(x0, dev.discount, play, dev.value)
+    return _value_with(x0, dev.discount, play, play.stage.payoff[:, dev.seat])
 
 
 @njit(cache=True, nogil=True)
