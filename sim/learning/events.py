@@ -183,6 +183,11 @@ def with_saved_grids(learner, saved: SavedLearners, n_firms: int, event: Event) 
                                             "(strategy = 'qlearning')")
     for i, seat in enumerate(seats):
         if isinstance(lineup[i], QLearner) and lineup[i].grid is None and seat.get("strategy") == "qlearning":
+            m = lineup[i].m
+            if m is not None and not isinstance(learner, list) and m != len(seat["grid"]):
+                raise InputError("learning.m", f"after an event the learners keep the saved grids, of "
+                                               f"{len(seat['grid'])} prices for firm {i + 1}; got m = {m} (leave "
+                                               "learning.m out)")
             lineup[i].grid = list(seat["grid"])
     return lineup
 

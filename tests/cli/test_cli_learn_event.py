@@ -68,7 +68,8 @@ def test_a_cost_shock_in_two_steps_reports_prices_after_it_and_the_time_to_settl
     ("periods = 200", "periods = -1", "event.periods"),
     ("periods = 200", "periods = 200\nwhen = 5", "event.when"),
     ("n_firms = 2", "n_firms = 3", "market.n_firms"),
-], ids=["kind", "periods", "unknown-key", "firms"])
+    ("beta = 5e-4", "beta = 5e-4\nm = 7", "learning.m"),
+], ids=["kind", "periods", "unknown-key", "firms", "grid-size"])
 def test_bad_events_are_refused_in_one_line_naming_the_key(folder, capsys, old, new, key):
     assert main(["learn", "step1.toml"]) == 0
     capsys.readouterr()
