@@ -24,6 +24,7 @@ from sim.learning.results import LearningResult
 from sim.learning.saved import save_learners
 from sim.learning.session import learn
 from sim.learning.shock_response import ShockResponse, price_cuts, shock_response
+from sim.learning.shocks import measures_price_wars
 from sim.learning.signals import greedy_response
 
 __all__ = [
@@ -145,26 +146,6 @@ class LearnResult(Record):
         """The sessions the summary is over: the converged ones, or all when none converged (bool, n_sessions)."""
         conv = np.asarray(self.per_session["converged"], dtype=bool)
         return conv if conv.any() else np.ones_like(conv)
-
-
-def measures_price_wars(settings: dict, event=None) -> bool:
-    """Whether a run measures the learned response to one adverse demand draw (:func:`signal_response`): a demand
-    shock, simultaneous moves, no event, and learners that see past prices or the profit signal.
-
-    Parameters
-    ----------
-    settings : dict
-        The run's settings (``demand_sigma``, ``timing`` and ``observe`` as :func:`sim.learning.session.learn`
-        takes them).
-    event : optional
-        The run's event (None: none).
-
-    Returns
-    -------
-    bool
-    """
-    return (bool(settings.get("demand_sigma")) and settings.get("timing", "simultaneous") == "simultaneous"
-            and event is None and settings.get("observe", "prices") in ("prices", "own_profit"))
 
 
 def signal_response(res: LearningResult) -> dict:

@@ -34,7 +34,8 @@ from sim.core.params import Options, Real
 from sim.core.rng import next_normal_zig
 from sim.models.monitoring import NOISE_CODES, NORMAL_SIGMA_MAX
 
-__all__ = ["DEMAND_NOISES", "FORCED_SHOCK", "SHOCK_CONSTRAINTS", "demand_shock", "shock_code", "twin_shock"]
+__all__ = ["DEMAND_NOISES", "FORCED_SHOCK", "SHOCK_CONSTRAINTS", "demand_shock", "measures_price_wars", "shock_code",
+           "twin_shock"]
 
 #: the shock distributions a learning run may use (the names of the simulation engine's ``monitoring.noise``)
 DEMAND_NOISES = ("lognormal", "normal")
@@ -128,3 +129,23 @@ def twin_shock(code, sigma, stream):
     if code == 1:
         return math.exp(sigma * z - 0.5 * sigma * sigma)
     return max(1.0 + sigma * z, 0.0)
+
+
+def measures_price_wars(settings: dict, event=None) -> bool:
+    """Whether a run measures the learned response to one adverse demand draw (:func:`signal_response`): a demand
+    shock, simultaneous moves, no event, and learners that see past prices or the profit signal.
+
+    Parameters
+    ----------
+    settings : dict
+        The run's settings (``demand_sigma``, ``timing`` and ``observe`` as :func:`sim.learning.session.learn`
+        takes them).
+    event : optional
+        The run's event (None: none).
+
+    Returns
+    -------
+    bool
+    """
+    return (bool(settings.get("demand_sigma")) and settings.get("timing", "simultaneous") == "simultaneous"
+            and event is None and settings.get("observe", "prices") in ("prices", "own_profit"))

@@ -27,7 +27,7 @@ from sim.learning.merger import refuse_merged
 from sim.learning.noisy_prices import PRICE_NOISE, check_noisy_lineup
 from sim.learning.results import LIMIT_PERIODS
 from sim.learning.saved import check_start, check_states, load_learners
-from sim.learning.shocks import SHOCK_CONSTRAINTS, shock_code
+from sim.learning.shocks import SHOCK_CONSTRAINTS, measures_price_wars, shock_code
 from sim.learning.signals import SIGNAL_BAND, SIGNAL_CONSTRAINTS, check_saved_observe, check_signal_lineup
 from sim.models.market import market_from_dict
 from strategies import strategy_from_dict
@@ -381,10 +381,7 @@ def _check_kept_memory(lineup, settings: dict, saving: bool, event) -> None:
     each session's final state: the response to an adverse demand draw, play with noisy prices after learning) when
     they would not fit: ``run.sessions`` times one session's Q-values, greedy actions and bandit statistics."""
     noisy = settings.get("observe") == "noisy_prices"
-    # as sim.learning.analysis.measures_price_wars decides it
-    wars = (bool(settings.get("demand_sigma")) and "timing" not in settings and event is None
-            and settings.get("observe", "prices") in ("prices", "own_profit"))
-    if not (saving or noisy or wars):
+    if not (saving or noisy or measures_price_wars(settings, event)):
         return
     q = lineup.q0
     per = q.nbytes + q[..., 0].nbytes + 2 * q.shape[0] * q.shape[2] * 8 + 8 * (lineup.n_seats * 5 + 8)
