@@ -14,7 +14,10 @@ is fixed). ``next_normal_zig`` is a faster normal by the ziggurat method (Marsag
 64-bit draw in about 99 % of calls (8 bits choose the layer, 1 the sign, 52 the magnitude). The
 pure-Python twin (:class:`ReferenceStream`) reproduces the kernel draws exactly and is what the
 reference implementations use. ``next_u64_words``, ``zig_candidate`` and ``zig_finish`` make the same draws from a
-state held in four local words, for loops that draw many in a row.
+state held in four local words, for loops that draw many in a row. ``next_normals_by_halves`` draws two normals
+from each 64-bit word (its low 32 bits, then its high 32 bits: 8 bits the layer, 1 the sign, 23 the magnitude, the
+layout of numpy's single-precision normals, ``random_standard_normal_f``), for a Thompson sampler, whose draws only
+perturb its estimates; ``zig_half_candidate`` is its box test for a loop on four words.
 """
 
 from __future__ import annotations
@@ -24,7 +27,10 @@ import math
 import numpy as np
 from numba import njit
 
-__all__ = ["ReferenceStream", "next_normal_zig", "next_u64_words", "stream_states", "zig_candidate", "zig_finish"]
+__all__ = [
+    "ReferenceStream", "next_normal_zig", "next_normals_by_halves", "next_u64_words", "stream_states", "zig_candidate",
+    "zig_finish", "zig_half_candidate",
+]
 
 _MASK = 0xFFFFFFFFFFFFFFFF
 _INV53 = 1.0 / 9007199254740992.0  # 2**-53
@@ -134,18 +140,19 @@ def next_normal(s):
     return math.sqrt(-2.0 * math.log(u1)) * math.cos(_TWO_PI * u2)
 
 
-def _ziggurat_tables():
+def _ziggurat_tables(bits=52):
     """Layer tables of the 256-layer ziggurat for the standard normal (Marsaglia and Tsang, 2000).
 
     ``R`` is the start of the tail; the common layer area ``V`` is computed from it exactly,
     ``V = R f(R) + int_R^inf f`` with ``f(x) = exp(-x^2 / 2)``, and the layers follow the paper's
     recurrence ``x_{i-1} = f^{-1}(V / x_i + f(x_i))``. Returns ``ki`` (uint64 acceptance bounds of the
-    52-bit magnitudes), ``wi`` (scale of a magnitude to x) and ``fi`` (f at the layer edges).
+    magnitudes of ``bits`` bits: 52 for a draw from a 64-bit word, 23 from a 32-bit half), ``wi`` (scale of a
+    magnitude to x) and ``fi`` (f at the layer edges, whatever ``bits``).
     """
     R = 3.6541528853610088
     f = lambda x: math.exp(-0.5 * x * x)  # noqa: E731
     V = R * f(R) + math.sqrt(math.pi / 2.0) * math.erfc(R / math.sqrt(2.0))
-    m = 2.0**52
+    m = 2.0**bits
     ki = np.zeros(256, dtype=np.uint64)
     wi = np.zeros(256)
     fi = np.zeros(256)
@@ -235,6 +242,10 @@ def next_below(s, n):
 # widths: ``rabs * (-w)`` is ``-(rabs * w)`` bit for bit, since rounding to nearest is symmetric in the sign.
 _ZIG_SW = np.concatenate((_ZIG_W, -_ZIG_W))
 _ZIG_SK = np.concatenate((_ZIG_K, _ZIG_K))
+# The same layers for a draw from 32 bits (8 the layer, 1 the sign, 23 the magnitude): two draws from one word.
+_ZIG23_K, _ZIG23_W, _, _ = _ziggurat_tables(23)
+_ZIG23_SW = np.concatenate((_ZIG23_W, -_ZIG23_W))
+_ZIG23_SK = np.concatenate((_ZIG23_K, _ZIG23_K))
 
 
 @njit(cache=True, inline="always")
@@ -301,6 +312,62 @@ def zig_candidate(r):
     rabs = (r >> np.uint64(9)) & np.uint64(_MASK52)
     # rabs < 2**52: converted through int64, exactly as through uint64
     return np.float64(np.int64(rabs)) * _ZIG_SW[j], rabs < _ZIG_SK[j], j
+
+
+@njit(cache=True, inline="always")
+def zig_half_candidate(h):
+    """The box test of a ziggurat draw from the low 32 bits of ``h``: :func:`zig_candidate` with 23-bit magnitudes,
+    so that one 64-bit word gives two draws, ``r`` and then ``r >> 32`` (what :func:`next_normals_by_halves` draws).
+
+    The layers, their edges and the rare branches are those of the 64-bit draw; only the magnitude is coarser (a
+    layer's width in 2**23 steps rather than 2**52), which a draw that only perturbs an estimate (a Thompson
+    sampler's) does not feel. A candidate that fails the box test is finished by :func:`zig_finish`, whose new draw,
+    when the wedge rejects the candidate, is a full 64-bit one.
+
+    Parameters
+    ----------
+    h : uint64
+        The draw's bits: the word itself for its low half, the word shifted right by 32 for its high half.
+
+    Returns
+    -------
+    z : float
+    accepted : bool
+    j : int
+        As :func:`zig_candidate` returns them.
+    """
+    j = np.int64(h & np.uint64(0x1FF))
+    rabs = (h >> np.uint64(9)) & np.uint64(0x7FFFFF)
+    return np.float64(np.int64(rabs)) * _ZIG23_SW[j], rabs < _ZIG23_SK[j], j
+
+
+@njit(cache=True)
+def next_normals_by_halves(s, out):
+    """Fill ``out`` with standard normals, two from each 64-bit word (its low half, then its high half;
+    :func:`zig_half_candidate`), a draw that fails the box test finished before the next one is made.
+
+    The loop that needs the speed (a Thompson sampler's, :mod:`sim.learning.kernel`) writes these lines out with its
+    state in four words; this function is their reference in the array form, and :meth:`ReferenceStream.
+    next_normals_by_halves` their plain-Python twin.
+
+    Parameters
+    ----------
+    s : ndarray of shape (4,), dtype uint64
+        One replication's generator state, advanced in place.
+    out : ndarray of float
+        Filled in place, in order.
+    """
+    r = np.uint64(0)
+    for b in range(out.shape[0]):
+        if b & 1 == 0:
+            r = next_u64(s)
+            h = r
+        else:
+            h = r >> np.uint64(32)
+        z, accepted, j = zig_half_candidate(h)
+        if not accepted:
+            z = zig_finish(s, j, z)
+        out[b] = z
 
 
 @njit(cache=True)
@@ -416,23 +483,49 @@ class ReferenceStream:
         -------
         float
         """
-        while True:
-            r = self.next_u64()
-            idx = r & 0xFF
-            r >>= 8
-            neg = (r & 1) != 0
-            rabs = (r >> 1) & _MASK52
-            x = float(rabs) * float(_ZIG_W[idx])
-            if neg:
-                x = -x
-            if rabs < int(_ZIG_K[idx]):
-                return x
-            if idx == 0:
-                while True:
-                    xx = -_ZIG_INV_R * math.log(1.0 - self.next_double())
-                    yy = -math.log(1.0 - self.next_double())
-                    if yy + yy > xx * xx:
-                        return -(_ZIG_R + xx) if neg else _ZIG_R + xx
-            if (float(_ZIG_F[idx - 1]) - float(_ZIG_F[idx])) * self.next_double() + float(_ZIG_F[idx]) < math.exp(
-                    -0.5 * x * x):
-                return x
+        r = self.next_u64()
+        j = r & 0x1FF
+        rabs = (r >> 9) & _MASK52
+        x = float(rabs) * float(_ZIG_SW[j])
+        if rabs < int(_ZIG_SK[j]):
+            return x
+        return self._zig_finish(j, x)
+
+    def next_normals_by_halves(self, m: int) -> list:
+        """``m`` standard normals, two from each 64-bit word, as :func:`next_normals_by_halves` draws them.
+
+        Parameters
+        ----------
+        m : int
+
+        Returns
+        -------
+        list of float
+        """
+        out = []
+        r = 0
+        for b in range(m):
+            if b % 2 == 0:
+                r = self.next_u64()
+                h = r & 0xFFFFFFFF
+            else:
+                h = r >> 32
+            j = h & 0x1FF
+            rabs = h >> 9
+            x = float(rabs) * float(_ZIG23_SW[j])
+            out.append(x if rabs < int(_ZIG23_SK[j]) else self._zig_finish(j, x))
+        return out
+
+    def _zig_finish(self, j: int, x: float) -> float:
+        """The rare branches of a ziggurat draw, as :func:`zig_finish` makes them."""
+        idx = j & 255
+        if idx == 0:
+            while True:
+                xx = -_ZIG_INV_R * math.log(1.0 - self.next_double())
+                yy = -math.log(1.0 - self.next_double())
+                if yy + yy > xx * xx:
+                    return -(_ZIG_R + xx) if j > 255 else _ZIG_R + xx
+        if (float(_ZIG_F[idx - 1]) - float(_ZIG_F[idx])) * self.next_double() + float(_ZIG_F[idx]) < math.exp(
+                -0.5 * x * x):
+            return x
+        return self.next_normal_zig()

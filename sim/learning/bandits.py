@@ -9,7 +9,7 @@ Algorithmic collusion: supra-competitive prices via independent algorithms", Mar
 
 Rewards
 -------
-Both rules assume rewards in [0, 1]. The reward of a profit ``pi`` is ``(pi - lo) / (hi - lo)``, where ``hi`` is
+Both rules assume rewards in [0, 1]. The reward of a profit ``pi`` is ``(pi - lo) * (1 / (hi - lo))``, where ``hi`` is
 the seat's largest profit on the grid (over every action profile of the line-up, so at least its monopoly-like
 profit when the rivals price high) and ``lo = min(0, the seat's smallest profit on the grid)``
 (:func:`reward_bounds`); a profit on the grid therefore maps into [0, 1]. With ``noise > 0`` the bandit observes
@@ -27,7 +27,9 @@ Choice of a price (step 1 of a period)
   sqrt(n_a + 1)`` with ``mean_a = sums_a / (n_a + 1)`` and ``z_a`` a standard normal; play the first largest
   ``theta``. This is the exact posterior of a known-variance normal model: prior ``N(0, v**2)`` on the mean reward
   and rewards ``N(mean, v**2)``; ``v = 1`` is their choice, ``v`` is ``exploration``. One normal per price per
-  period (the ziggurat of :func:`sim.core.rng.next_normal_zig`). The prior mean is 0 while rewards lie in [0, 1]:
+  period, two from each 64-bit word (:func:`sim.core.rng.next_normals_by_halves`: the 256-layer ziggurat with
+  23-bit magnitudes, as numpy draws its single-precision normals), and ``v sqrt(1 / (n_a + 1))`` kept per price
+  (:func:`arm_stats`), so that a draw is one product and one sum. The prior mean is 0 while rewards lie in [0, 1]:
   with a small ``v`` (0.1 on the baseline grid) a price played early can keep the largest draw for good, so ``v``
   well below the rewards' scale is not advised.
 
@@ -45,10 +47,12 @@ draws one normal for its reward (a Q-learner with the mixed rule its uniforms).
 Where the work is done: the rules' loops over the prices are written in the kernel's period loop itself
 (:func:`sim.learning.kernel.run_session`), which reads the arrays directly; this module holds the functions of
 numbers they call (inlined), what a session derives once when it starts (:func:`bandit_scales`), and the readable
-twins. What a period keeps so as not to compute it again: each price's estimate (``Q[li, 0]``, one division for
-the price played), its scale ``1 / sqrt(n_a)`` or ``1 / sqrt(n_a + 1)`` (one square root for the price played), the
-step counter, and, for UCB, ``c sqrt(2 ln t)`` for the bandits that share ``t`` and ``c`` (one logarithm per
-period). Every number is computed as the twins compute it, in the same order.
+twins. What a period keeps so as not to compute it again: each price's estimate (``Q[li, 0]``) and its scale
+``sqrt(1 / n_a)`` or ``v sqrt(1 / (n_a + 1))`` (for the price played, one division and one square root between
+them: :func:`arm_stats`), the step counter, and, for UCB, ``c sqrt(2 ln t)`` for the bandits that share ``t`` and
+``c`` (one logarithm per period); a reward is a product with ``1 / (hi - lo)``, taken once per session. Divisions and
+square roots are what a bandit's period spends most on after its draws (measured: a third division per seat cost
+a Thompson period about 6 %). Every number is computed as the twins compute it, in the same order.
 """
 
 from __future__ import annotations
@@ -60,7 +64,7 @@ from numba import njit
 
 from sim.learning.inputs import LEARNER, Q_FAMILY, UCB_FAMILY
 
-__all__ = ["arm_estimate", "arm_scale", "bandit_reward", "bandit_scales", "reward_bounds", "twin_choice", "twin_update",
+__all__ = ["arm_stats", "bandit_reward", "bandit_scales", "reward_bounds", "twin_choice", "twin_update",
            "ucb_bonus"]
 
 
@@ -87,9 +91,9 @@ def reward_bounds(payoff: np.ndarray, seat: int) -> tuple[float, float]:
 
 
 @njit(cache=True, nogil=True)
-def bandit_scales(kind, family, lidx, radix, counts):
+def bandit_scales(kind, family, lidx, radix, counts, explore):
     """The scale of each price's exploration term, derived from the counts once when a session (re)starts:
-    ``1 / sqrt(n_a)`` for UCB (0 for a price not yet played), ``1 / sqrt(n_a + 1)`` for Thompson sampling.
+    ``1 / sqrt(n_a)`` for UCB (0 for a price not yet played), ``v / sqrt(n_a + 1)`` for Thompson sampling.
 
     Kept beside the counts so that a period computes one square root per UCB seat, not one per price; being
     derived from the counts it is not saved.
@@ -99,6 +103,8 @@ def bandit_scales(kind, family, lidx, radix, counts):
     kind, family, lidx, radix : ndarray of int64, shape (n,)
         As in :class:`sim.learning.inputs.SeatInputs`.
     counts : ndarray of int64, shape (n_learners, max(radix))
+    explore : ndarray of float64, shape (n,)
+        Each seat's exploration parameter (Thompson's ``v``; UCB's ``c`` enters through :func:`ucb_bonus`).
 
     Returns
     -------
@@ -110,70 +116,62 @@ def bandit_scales(kind, family, lidx, radix, counts):
     for i in range(kind.size):
         if kind[i] == LEARNER and family[i] != Q_FAMILY:
             for b in range(radix[i]):
-                out[lidx[i], b] = arm_scale(family[i], counts[lidx[i], b])
+                out[lidx[i], b] = arm_stats(family[i], 0.0, counts[lidx[i], b], explore[i])[1]
                 out[lidx[i], -1] += counts[lidx[i], b]
     return out
 
 
 @njit(cache=True, nogil=True, inline="always")
-def arm_scale(fam, n):
-    """The scale of a price's exploration term after ``n`` plays: ``1 / sqrt(n)`` for UCB (0 before its first
-    play), ``1 / sqrt(n + 1)`` for Thompson sampling.
+def arm_stats(fam, total, n, v):
+    """A price's estimate and the scale of its exploration term after ``n`` plays, with one division and one square
+    root: with ``k = n`` for UCB and ``k = n + 1`` for Thompson sampling, and ``inv = 1 / k``, the estimate is
+    ``total * inv`` (UCB's sample mean, Thompson's posterior mean) and the scale ``sqrt(inv)`` for UCB (0 and 0
+    before its first play) and ``v * sqrt(inv)`` for Thompson sampling (the posterior's standard deviation: a draw is
+    the estimate plus this times a standard normal).
 
     Parameters
     ----------
     fam : int
         ``UCB_FAMILY`` or ``THOMPSON_FAMILY``.
-    n : int
-        Plays of the price.
-
-    Returns
-    -------
-    float
-    """
-    if fam == UCB_FAMILY:
-        return 1.0 / math.sqrt(n) if n > 0 else 0.0
-    return 1.0 / math.sqrt(n + 1.0)
-
-
-@njit(cache=True, nogil=True, inline="always")
-def arm_estimate(fam, total, n):
-    """A price's estimate from its sum of rewards and its plays: the sample mean ``total / n`` for UCB, the posterior
-    mean ``total / (n + 1)`` for Thompson sampling.
-
-    Parameters
-    ----------
-    fam : int
     total : float
         Sum of the rewards the price earned.
     n : int
-        Its plays (at least 1).
+        Plays of the price.
+    v : float
+        Thompson's scale ``v`` (not used by UCB, whose ``c`` enters through :func:`ucb_bonus`).
 
     Returns
     -------
-    float
+    estimate, scale : float
     """
-    return total / (n if fam == UCB_FAMILY else n + 1.0)
+    if fam == UCB_FAMILY:
+        if n == 0:
+            return 0.0, 0.0
+        inv = 1.0 / n
+        return total * inv, math.sqrt(inv)
+    inv = 1.0 / (n + 1.0)
+    return total * inv, v * math.sqrt(inv)
 
 
 @njit(cache=True, nogil=True, inline="always")
-def bandit_reward(profit, lo, span):
-    """The reward of a profit: ``(profit - lo) / span`` (:func:`reward_bounds`), in [0, 1] on the grid.
+def bandit_reward(profit, lo, inv_span):
+    """The reward of a profit: ``(profit - lo) * (1 / span)`` (:func:`reward_bounds`), in [0, 1] on the grid; the
+    kernel takes ``1 / span`` once per session.
 
     Parameters
     ----------
-    profit, lo, span : float
+    profit, lo, inv_span : float
 
     Returns
     -------
     float
     """
-    return (profit - lo) / span
+    return (profit - lo) * inv_span
 
 
 @njit(cache=True, nogil=True, inline="always")
 def ucb_bonus(c, t):
-    """UCB's ``c sqrt(2 ln t)``: the exploration term of a price is this times its scale :func:`arm_scale`, so that
+    """UCB's ``c sqrt(2 ln t)``: the exploration term of a price is this times its scale (:func:`arm_stats`), so that
     a period computes one logarithm and one square root, not one per price.
 
     Parameters
@@ -220,10 +218,12 @@ def twin_choice(family: str, c: float, counts: list, sums: list, rng) -> int:
                 return b
         # mean + c sqrt(2 ln t / n), grouped as c sqrt(2 ln t) (1 / sqrt(n)), the kernel's rounding
         bonus = c * math.sqrt(2.0 * math.log(sum(counts)))
-        index = [sums[b] / counts[b] + bonus * (1.0 / math.sqrt(counts[b])) for b in range(m)]
+        inv = [1.0 / n for n in counts]
+        index = [sums[b] * inv[b] + bonus * math.sqrt(inv[b]) for b in range(m)]
     else:
-        index = [sums[b] / (counts[b] + 1.0) + c * rng.next_normal_zig() * (1.0 / math.sqrt(counts[b] + 1.0))
-                 for b in range(m)]
+        z = rng.next_normals_by_halves(m)
+        inv = [1.0 / (n + 1.0) for n in counts]
+        index = [sums[b] * inv[b] + z[b] * (c * math.sqrt(inv[b])) for b in range(m)]
     return index.index(max(index))
 
 
@@ -246,11 +246,11 @@ def twin_update(family: str, a: int, profit: float, lo: float, span: float, nois
     list of float
         Every price's estimate (0 for a price not yet played by UCB).
     """
-    r = (profit - lo) / span
+    r = (profit - lo) * (1.0 / span)
     if noise > 0.0:
         r += noise * rng.next_normal_zig()
     counts[a] += 1
     sums[a] += r
     if family == "ucb":
-        return [s / n if n > 0 else 0.0 for s, n in zip(sums, counts)]
-    return [s / (n + 1.0) for s, n in zip(sums, counts)]
+        return [s * (1.0 / n) if n > 0 else 0.0 for s, n in zip(sums, counts)]
+    return [s * (1.0 / (n + 1.0)) for s, n in zip(sums, counts)]

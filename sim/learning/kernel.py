@@ -35,9 +35,9 @@ changes no arithmetic); the arrays stay in the loop itself, taken out of their g
 inlined function that takes an array takes and releases a reference to it at every call, which costs more here
 than the period's arithmetic (measured: a loop whose steps took their arrays ran at a third of the speed). The
 bandits' loops over their prices are written in the period loop for that reason (the rules themselves are in
-:mod:`sim.learning.bandits`), and a Thompson seat draws its ``m`` normals from the generator state held in four local
-words (:func:`sim.core.rng.zig_candidate`, the same draws as from the array), keeping the first largest draw as it
-comes.
+:mod:`sim.learning.bandits`), and a Thompson seat draws its ``m`` normals, two from each 64-bit word, from the
+generator state held in four local words (:func:`sim.core.rng.zig_half_candidate`, the draws of
+:func:`sim.core.rng.next_normals_by_halves`), keeping the first largest draw as it comes.
 
 Random draws
 ------------
@@ -62,8 +62,8 @@ import math
 import numpy as np
 from numba import njit
 
-from sim.core.rng import next_below, next_double, next_normal_zig, next_u64_words, zig_candidate, zig_finish
-from sim.learning.bandits import arm_estimate, arm_scale, bandit_reward, bandit_scales, ucb_bonus
+from sim.core.rng import next_below, next_double, next_normal_zig, next_u64_words, zig_finish, zig_half_candidate
+from sim.learning.bandits import arm_stats, bandit_reward, bandit_scales, ucb_bonus
 from sim.learning.inputs import (
     AUTOMATON,
     FIXED_FAMILY,
@@ -245,7 +245,8 @@ def _period_loop(seats, stage, automata, session, s, convergence, max_periods, s
     upd = np.empty(radix.max(), np.bool_)
     has_automata = (kind == AUTOMATON).any()
     score = np.empty(radix.max(), np.float64)
-    w = bandit_scales(kind, family, lidx, radix, counts)
+    w = bandit_scales(kind, family, lidx, radix, counts, explore)
+    reward_inv = 1.0 / reward_span
     # the profit signal: the profile where every seat charges price a is a * ptot (sim.learning.signals)
     ptot = place.sum()
     # a learner's states under a signal: 2 m (own price, low profit) or m ** n (the profile it saw)
@@ -286,20 +287,26 @@ def _period_loop(seats, stage, automata, session, s, convergence, max_periods, s
                         for b in range(m):
                             score[b] = Q[li, 0, b] + ucb_cs * w[li, b]
                 else:
-                    # one normal per price, in increasing order (sim.core.rng.zig_candidate: the ziggurat's fast
-                    # path here, its rare branches in zig_finish), and the first largest draw kept as it comes
+                    # one normal per price, in increasing order, two from each word (sim.core.rng.
+                    # next_normals_by_halves: the ziggurat's fast path here, its rare branches in zig_finish), and
+                    # the first largest draw kept as it comes
                     s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
                     a = 0
                     bv = -math.inf
+                    word = np.uint64(0)
                     for b in range(m):
-                        r, s0, s1, s2, s3 = next_u64_words(s0, s1, s2, s3)
-                        zb, accepted, j = zig_candidate(r)
+                        if b & 1 == 0:
+                            word, s0, s1, s2, s3 = next_u64_words(s0, s1, s2, s3)
+                            h = word
+                        else:
+                            h = word >> np.uint64(32)
+                        zb, accepted, j = zig_half_candidate(h)
                         if not accepted:
                             rng[0], rng[1], rng[2], rng[3] = s0, s1, s2, s3
                             zb = zig_finish(rng, j, zb)
                             s0, s1, s2, s3 = rng[0], rng[1], rng[2], rng[3]
-                        # (c * z) * w: with the published scale v = 1, c * z is z exactly (one product, no branch)
-                        sb = Q[li, 0, b] + c * zb * w[li, b]
+                        # w holds v sqrt(1 / (n + 1)), the scale v folded in (sim.learning.bandits.arm_stats)
+                        sb = Q[li, 0, b] + zb * w[li, b]
                         if sb > bv:
                             bv = sb
                             a = b
@@ -357,7 +364,7 @@ def _period_loop(seats, stage, automata, session, s, convergence, max_periods, s
                 continue
             if family[i] != Q_FAMILY:
                 # a bandit: the statistics of the price played, its estimate in Q[li, 0, a], its scale
-                r = bandit_reward(theta * payoff[prof, i], reward_lo[i], reward_span[i])
+                r = bandit_reward(theta * payoff[prof, i], reward_lo[i], reward_inv[i])
                 if noise[i] > 0.0:
                     r += noise[i] * next_normal_zig(rng)
                 na = counts[li, a] + 1
@@ -365,8 +372,7 @@ def _period_loop(seats, stage, automata, session, s, convergence, max_periods, s
                 sums[li, a] += r
                 si = 0
                 old = Q[li, 0, a]
-                new = arm_estimate(family[i], sums[li, a], na)
-                w[li, a] = arm_scale(family[i], na)
+                new, w[li, a] = arm_stats(family[i], sums[li, a], na, explore[i])
                 w[li, wl] += 1.0
             else:
                 if observe is not None and observe:

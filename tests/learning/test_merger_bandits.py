@@ -75,7 +75,9 @@ def test_the_saved_statistics_keep_what_each_bandit_knew_in_profit_units():
         mean_profit = saved.sums[:, li, :5] / n * before.seats.reward_span[i] + before.seats.reward_lo[i]
         mean_after = start.sums[:, li, :5] / n * after.seats.reward_span[i] + after.seats.reward_lo[i]
         assert np.allclose(mean_after, mean_profit, rtol=1e-13, atol=0)
-        assert np.array_equal(start.Q[:, li, 0, :5], start.sums[:, li, :5] / n)
+        # UCB's estimate as the kernel computes it: the sum times 1 / n (sim.learning.bandits.arm_stats)
+        assert np.array_equal(start.Q[:, li, 0, :5], start.sums[:, li, :5] * (1.0 / n))
+        assert np.allclose(start.Q[:, li, 0, :5], start.sums[:, li, :5] / n, rtol=4e-16, atol=0)
         assert np.array_equal(start.greedy[:, li, 0], np.argmax(start.Q[:, li, 0, :5], axis=1))
 
 
