@@ -372,10 +372,11 @@ def next_normals_by_halves(s, out):
 
 @njit(cache=True)
 def zig_finish(s, j, x):
-    """The rest of a ziggurat draw whose box test failed (:func:`zig_candidate`): the rare branches of
-    :func:`next_normal_zig` for the candidate ``x`` of layer and sign ``j``, then, if the wedge test rejects it, a
-    new draw. ``s`` holds the state after the candidate's word; the draws are :func:`next_normal_zig`'s, in its
-    order.
+    """The rest of a ziggurat draw whose box test failed (:func:`zig_candidate`, or :func:`zig_half_candidate` for a
+    draw from 32 bits): the rare branches of :func:`next_normal_zig` for the candidate ``x`` of layer and sign ``j``,
+    then, if the wedge test rejects it, a new 64-bit draw. ``s`` holds the state after the candidate's word (for a
+    draw from a word's low half, its high half is still to be used by the caller); after a 64-bit candidate the draws
+    are :func:`next_normal_zig`'s, in its order.
 
     Compiled on its own, not inlined, so that the loop drawing the normals keeps the logarithm, the exponential and
     the loops of the rare branches (about 1 % of draws) out of its fast path.
@@ -402,7 +403,8 @@ def zig_finish(s, j, x):
                 return -(_ZIG_R + xx) if j > 255 else _ZIG_R + xx
     if (_ZIG_F[idx - 1] - _ZIG_F[idx]) * next_double(s) + _ZIG_F[idx] < math.exp(-0.5 * x * x):
         return x
-    # the wedge rejected it: a new draw, in the array form (the same bits give the same layer, sign and value)
+    # the wedge rejected it: a new 64-bit draw, in the array form (after a 64-bit candidate, the same bits give the
+    # same layer, sign and value as next_normal_zig's own retry)
     return next_normal_zig(s)
 
 

@@ -62,10 +62,12 @@ import math
 import numpy as np
 from numba import njit
 
-from sim.learning.inputs import LEARNER, Q_FAMILY, UCB_FAMILY
+from sim.learning.inputs import LEARNER, Q_FAMILY, THOMPSON_FAMILY, UCB_FAMILY
 
-__all__ = ["arm_stats", "bandit_reward", "bandit_scales", "reward_bounds", "twin_choice", "twin_update",
-           "ucb_bonus"]
+__all__ = [
+    "arm_estimates", "arm_stats", "bandit_reward", "bandit_scales", "reward_bounds", "twin_choice", "twin_update",
+    "ucb_bonus", "with_estimates",
+]
 
 
 def reward_bounds(payoff: np.ndarray, seat: int) -> tuple[float, float]:
@@ -93,7 +95,8 @@ def reward_bounds(payoff: np.ndarray, seat: int) -> tuple[float, float]:
 @njit(cache=True, nogil=True)
 def bandit_scales(kind, family, lidx, radix, counts, explore):
     """The scale of each price's exploration term, derived from the counts once when a session (re)starts:
-    ``1 / sqrt(n_a)`` for UCB (0 for a price not yet played), ``v / sqrt(n_a + 1)`` for Thompson sampling.
+    ``sqrt(1 / n_a)`` for UCB (0 for a price not yet played), ``v sqrt(1 / (n_a + 1))`` for Thompson sampling
+    (:func:`arm_stats`).
 
     Kept beside the counts so that a period computes one square root per UCB seat, not one per price; being
     derived from the counts it is not saved.
@@ -151,6 +154,57 @@ def arm_stats(fam, total, n, v):
         return total * inv, math.sqrt(inv)
     inv = 1.0 / (n + 1.0)
     return total * inv, v * math.sqrt(inv)
+
+
+def arm_estimates(fam: int, counts: np.ndarray, sums: np.ndarray) -> np.ndarray:
+    """Every price's estimate from its statistics, as :func:`arm_stats` computes it (``sums * (1 / k)``, 0 for a UCB
+    price never played), for arrays of any shape.
+
+    A continued session takes its bandits' estimates from here rather than from the saved ``Q``: they are a function
+    of the statistics, and a file saved by an earlier version holds them rounded otherwise (``sums / k``).
+
+    Parameters
+    ----------
+    fam : int
+        ``UCB_FAMILY`` or ``THOMPSON_FAMILY``.
+    counts : ndarray of int
+        Plays of each price.
+    sums : ndarray of float64, the shape of ``counts``
+        Sums of their rewards.
+
+    Returns
+    -------
+    ndarray of float64, the shape of ``counts``
+    """
+    k = counts.astype(np.float64) + (0.0 if fam == UCB_FAMILY else 1.0)
+    inv = np.divide(1.0, k, out=np.zeros_like(k), where=k > 0)
+    return sums * inv
+
+
+def with_estimates(seats, q: np.ndarray, greedy: np.ndarray, counts: np.ndarray, sums: np.ndarray):
+    """One session's Q-values and greedy actions with every bandit's estimates and greedy price recomputed from its
+    statistics (:func:`arm_estimates`; the greedy price their first argmax, as the kernel keeps it).
+
+    Parameters
+    ----------
+    seats : sim.learning.inputs.SeatInputs
+    q, greedy : ndarray
+        The session's (``SessionState.Q`` and ``.greedy``); not changed.
+    counts, sums : ndarray
+        The session's bandit statistics.
+
+    Returns
+    -------
+    q, greedy : ndarray
+        Copies.
+    """
+    q, greedy = q.copy(), greedy.copy()
+    for i in range(seats.kind.size):
+        if seats.kind[i] == LEARNER and int(seats.family[i]) in (UCB_FAMILY, THOMPSON_FAMILY):
+            li, m = int(seats.lidx[i]), int(seats.radix[i])
+            q[li, 0, :m] = arm_estimates(int(seats.family[i]), counts[li, :m], sums[li, :m])
+            greedy[li, 0] = int(np.argmax(q[li, 0, :m]))
+    return q, greedy
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -216,7 +270,7 @@ def twin_choice(family: str, c: float, counts: list, sums: list, rng) -> int:
         for b in range(m):
             if counts[b] == 0:
                 return b
-        # mean + c sqrt(2 ln t / n), grouped as c sqrt(2 ln t) (1 / sqrt(n)), the kernel's rounding
+        # mean + c sqrt(2 ln t / n), grouped as c sqrt(2 ln t) sqrt(1 / n), the kernel's rounding (arm_stats)
         bonus = c * math.sqrt(2.0 * math.log(sum(counts)))
         inv = [1.0 / n for n in counts]
         index = [sums[b] * inv[b] + bonus * math.sqrt(inv[b]) for b in range(m)]

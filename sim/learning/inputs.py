@@ -102,7 +102,7 @@ class SeatInputs(NamedTuple):
     noise : ndarray of float64, shape (n,)
         A bandit's observation noise on its scaled reward (0 otherwise).
     reward_lo, reward_span : ndarray of float64, shape (n,)
-        A bandit's reward of a profit ``pi`` is ``(pi - reward_lo) / reward_span`` (see
+        A bandit's reward of a profit ``pi`` is ``(pi - reward_lo) * (1 / reward_span)`` (see
         :mod:`sim.learning.bandits`; 0 and 1 otherwise).
     """
 

@@ -45,8 +45,7 @@ import dataclasses
 import numpy as np
 
 from sim.core.errors import InputError
-from sim.learning.bandits import reward_bounds
-from sim.learning.inputs import UCB_FAMILY
+from sim.learning.bandits import arm_estimates, reward_bounds
 from sim.theory.nash import static_nash
 
 __all__ = ["check_merger", "merged_lineup", "merged_statistics", "merger_benchmarks", "merger_words", "refuse_merged"]
@@ -152,7 +151,7 @@ def merged_statistics(saved, before, after):
         ``saved`` itself when no bandit merges; else a copy whose ``sums`` of every merging bandit are
         ``(span * sums + n * (lo - lo')) / span'`` (the same profits' rewards on the new scale), its estimates
         ``Q[:, li, 0, :m]`` recomputed from them as the kernel computes them (the mean for UCB, the posterior mean for
-        Thompson sampling; :func:`sim.learning.bandits.arm_stats`) and
+        Thompson sampling; :func:`sim.learning.bandits.arm_estimates`) and
         its greedy price their first argmax.
     """
     changed = [i for i in range(before.n_seats) if before.learners[i] is not None
@@ -168,11 +167,9 @@ def merged_statistics(saved, before, after):
         lo2, span2 = float(after.seats.reward_lo[i]), float(after.seats.reward_span[i])
         n = saved.counts[:, li, :m].astype(np.float64)
         sums[:, li, :m] = (span * saved.sums[:, li, :m] + n * (lo - lo2)) / span2
-        denom = n if int(before.seats.family[i]) == UCB_FAMILY else n + 1.0
-        # the estimate as the kernel computes it (sim.learning.bandits.arm_stats: the sum times 1 / k); a price never
-        # played keeps the estimate 0 (UCB plays it first whatever its estimate)
-        inv = np.divide(1.0, denom, out=np.zeros_like(denom), where=denom > 0)
-        q[:, li, 0, :m] = sums[:, li, :m] * inv
+        # the estimate as the kernel computes it; a price never played keeps the estimate 0 (UCB plays it first
+        # whatever its estimate)
+        q[:, li, 0, :m] = arm_estimates(int(before.seats.family[i]), saved.counts[:, li, :m], sums[:, li, :m])
         greedy[:, li, 0] = np.argmax(q[:, li, 0, :m], axis=1)
     return dataclasses.replace(saved, Q=q, greedy=greedy, sums=sums)
 

@@ -77,6 +77,7 @@ from sim.learning.alternating import (
     check_alternating,
     run_alternating,
 )
+from sim.learning.bandits import with_estimates
 from sim.learning.events import Event, adapt_saved, check_event, run_tracked
 from sim.learning.inputs import OWN_PROFIT, STATUS_CONVERGED, DeviationInputs, LimitOutputs, SessionState
 from sim.learning.lineup import Lineup, available_memory, compile_lineup
@@ -348,7 +349,9 @@ def _session(j: int, lineup: Lineup, state: np.ndarray, g0: np.ndarray, settings
             s = noisy_start(s, lineup)
     else:
         rng = start.rng[j].copy()
-        session = SessionState(start.Q[j].copy(), start.greedy[j].copy(), start.z[j].copy(), rng,
+        # a bandit's estimates from its statistics, however the file rounded them (sim.learning.bandits)
+        q, greedy = with_estimates(lineup.seats, start.Q[j], start.greedy[j], start.counts[j], start.sums[j])
+        session = SessionState(q, greedy, start.z[j].copy(), rng,
                                start.clock[j].copy(), start.triggers[j].copy(), start.counts[j].copy(),
                                start.sums[j].copy())
         s = int(start.history[j])
@@ -670,8 +673,8 @@ def kernel_session(lineup: Lineup, session: int = 0, *, seed: int = 0, convergen
     else:
         row = session_row(start, session)
         rng, s = row["rng"], row["history"]
-        st = SessionState(row["Q"], row["greedy"], row["z"], rng, row["clock"], row["triggers"], row["counts"],
-                          row["sums"])
+        q, greedy = with_estimates(lineup.seats, row["Q"], row["greedy"], row["counts"], row["sums"])
+        st = SessionState(q, greedy, row["z"], rng, row["clock"], row["triggers"], row["counts"], row["sums"])
     status, t, s = K.run_session(lineup.seats, lineup.learning_stage, lineup.automata, st, s, convergence,
                                  max_periods, *shock_code(demand_noise, demand_sigma, prefix=""))
     return {"status": int(status), "periods": int(t), "state": int(s), "Q": st.Q, "greedy": st.greedy, "z": st.z,
