@@ -145,6 +145,13 @@ def learn_headline(res) -> str:
     sm = res.summary
     pg, c = sm["profit_gain"], sm["converged"]
     ci = interval(pg.get("low"), pg.get("high"), res.confidence) if pg.get("n", 0) >= 2 else ""
+    seats = getattr(res, "learners", None) or []
+    if seats and all("strategy" in s or s.get("family") == "fixed" for s in seats):
+        # nothing can change: "converged" says nothing about learning
+        return ("No firm learns in this run (every seat plays a fixed policy read from a saved run, or an "
+                f"automaton): their play gives a mean profit gain of {number(pg['mean'])}" + (f" ({ci})" if ci else "")
+                + " (0: static Nash, 1: joint profit). The sessions count as converged only because no policy can "
+                "change." + _event_sentence(res))
     if c["count"] == 0:
         return (f"No session converged ({c['n']} stopped at the cap): greedy play at the cap, while the learners were "
                 f"still learning, gives a mean profit gain of {number(pg['mean'])}" + (f" ({ci})" if ci else "")

@@ -81,10 +81,13 @@ def _seat_lines(res: LearnResult) -> list[str]:
         who = "Learners" if same else f"Firm {i + 1}"
         if c.get("family") == "fixed":
             src = c.get("source") or {}
+            saved = src.get("family", "q")
+            memory = (f"one {act} whatever the history (a {saved} bandit keeps no state)"
+                      if saved in ("ucb", "thompson") else f"memory {c['k']}")
             lines.append(f"{who}: fixed policy (no learning, no exploration): the greedy {act}s of firm "
                          f"{src.get('firm')}'s learner in session {src.get('session')} of {src.get('policy_from')} "
                          f"(arrays SHA-256 {str(src.get('arrays_sha256'))[:12]}...), {c['m']} {act} levels from "
-                         f"{fmt_num(c['grid'][0])} to {fmt_num(c['grid'][-1])}, memory {c['k']}")
+                         f"{fmt_num(c['grid'][0])} to {fmt_num(c['grid'][-1])}, {memory}")
             continue
         if c.get("family", "q") != "q":
             lines.append(_bandit_line(who, c, act))

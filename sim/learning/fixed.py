@@ -125,7 +125,7 @@ def load_policy(strategy: QLearner, key: str, market: dict | None = None) -> Fix
     if np.any(greedy < 0) or np.any(greedy >= grids[seat - 1].size):
         raise InputError(fkey, "its greedy actions lie outside the saved grid: the file is not consistent")
     source = {"policy_from": p["policy_from"], "firm": seat, "session": session,
-              "arrays_sha256": h.get("arrays_sha256")}
+              "arrays_sha256": h.get("arrays_sha256"), "family": seats[seat - 1].get("family", "q")}
     return FixedPolicy(greedy, k, seat - 1, grids, source)
 
 

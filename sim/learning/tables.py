@@ -282,7 +282,7 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
         settings["timing"] = lt["timing"]
     _demand_shock(lt, settings, doc)
     _signal(lt, settings, doc)
-    unused = _unused(lt, settings, "strategies" in doc)
+    unused = _unused(lt, settings, doc.get("strategies"))
     firm = Integer(1, n_firms).check("impulse.firm", it.get("firm", 1))
     settings["deviator"] = firm - 1  # learn() counts seats from 0; every output counts firms from 1
     settings["deviation"] = _impulse_action(it)
@@ -352,11 +352,12 @@ def _signal(lt: dict, settings: dict, doc: dict) -> None:
 _Q_ONLY = ("alpha", "beta", "delta", "k", "init")
 
 
-def _unused(lt: dict, settings: dict, lineup: bool) -> dict:
-    """The ``[learning]`` keys a run accepts but does not use, each with the reason, for the report (key path ->
-    words): the signal band without the profit signal, the price error without noisy prices, and Q-learning's
-    parameters when every seat is a bandit or a fixed policy (``[learning] family``, no line-up; in a line-up the
-    table's keys serve every seat that uses them)."""
+def _unused(lt: dict, settings: dict, entries) -> dict:
+    """The keys a run accepts but does not use, each with the reason, for the report (key path -> words): the signal
+    band without the profit signal, the price error without noisy prices, Q-learning's parameters when every seat is
+    a bandit or a fixed policy (``[learning] family``, no line-up; in a line-up the table's keys serve every seat
+    that uses them), and a ``[[strategies]]`` entry's own keys that its family does not use (``entries``: the
+    line-up's entries, or None)."""
     out = {}
     observe = settings.get("observe", "prices")
     if "signal_band" in lt and observe != "own_profit":
@@ -364,15 +365,27 @@ def _unused(lt: dict, settings: dict, lineup: bool) -> dict:
     if "price_noise" in lt and observe != "noisy_prices":
         out["learning.price_noise"] = f"the learners do not see prices with error (observe = {observe!r})"
     family = lt.get("family", "q")
-    if family != "q" and not lineup:
-        what = "a fixed policy neither learns nor explores" if family == "fixed" else \
-            f"a {family} bandit keeps no state and learns by its own rule"
-        for key in _Q_ONLY:
-            if key in lt:
-                out[f"learning.{key}"] = what
-        if "delta" in lt:
-            # not in learning, but the value of the forced deviation is discounted with it
-            out["learning.delta"] = what + "; it only discounts the value of the forced deviation"
+    if family != "q" and not entries:
+        out.update(_unused_by(family, lt, "learning"))
+    for k, entry in enumerate(entries or []):
+        if isinstance(entry, dict) and entry.get("strategy") == "qlearning":
+            fam = entry.get("family", family)
+            if fam != "q":
+                out.update(_unused_by(fam, entry, f"strategies[{k + 1}]"))
+    return out
+
+
+def _unused_by(family: str, tab: dict, where: str) -> dict:
+    """The keys of ``tab`` (``[learning]`` or a line-up entry) that a seat of ``family`` (not Q-learning) does not
+    use, with the reason."""
+    if family == "fixed":
+        what, keys = "a fixed policy neither learns nor explores", _Q_ONLY + ("exploration", "noise")
+    else:
+        what, keys = f"a {family} bandit keeps no state and learns by its own rule", _Q_ONLY
+    out = {f"{where}.{key}": what for key in keys if key in tab}
+    if "delta" in tab:
+        # not in learning, but the value of the forced deviation is discounted with it
+        out[f"{where}.delta"] = what + "; it only discounts the value of the forced deviation"
     return out
 
 

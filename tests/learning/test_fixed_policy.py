@@ -267,3 +267,28 @@ def test_a_fixed_seat_under_alternating_moves_is_refused_in_words(pair):
     with pytest.raises(InputError, match="alternating moves are for Q-learners") as e:
         learn(logit_market(), [fixed(pair[0], 1), QLearner(m=5)], sessions=1, timing="alternating", max_periods=100)
     assert e.value.key == "learning.timing"
+
+
+def test_a_line_up_where_no_firm_learns_says_so_and_names_what_it_does_not_use(pair, tmp_path, monkeypatch):
+    """Every seat fixed: "converged" says nothing about learning, and the report says why; a key that a fixed entry
+    does not use is named; a policy taken from a bandit is one price whatever the history (a bandit keeps no state,
+    Hansen, Misra and Pai, 2021), not "memory 1"."""
+    from sim.cli import main
+
+    path, _ = pair
+    bandit = learn(logit_market(), QLearner(family="ucb", m=5, noise=0.05), sessions=1, seed=2, convergence=300,
+                   workers=1, keep=True)
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "pair.npz").write_bytes(path.read_bytes())
+    save_learners(tmp_path / "bandit.npz", bandit.saved)
+    text = textwrap.dedent(LEARN).replace("COST", "1.0").replace(
+        'strategy = "qlearning"\nm = M', 'strategy = "qlearning"\nfamily = "fixed"\npolicy_from = "bandit.npz"\n'
+        'firm = 2\nalpha = 0.3')
+    (tmp_path / "input.toml").write_text(text)
+    assert main(["run", "input.toml", "--out", "out", "--report", "--quiet"]) == 0
+    md = (tmp_path / "out" / "report" / "summary.md").read_text()
+    assert "No firm learns in this run" in md and "count as converged only because no policy can change" in md
+    assert "Not used, though given: strategies[2].alpha: a fixed policy neither learns nor explores" in md
+    assert "one price whatever the history (a ucb bandit keeps no state)" in md
+    assert "memory 1" not in md.split("Firm 2: fixed policy")[1].splitlines()[0]
+    assert "Line-up: fixed policy read from a saved run; fixed policy read from a saved run" in md

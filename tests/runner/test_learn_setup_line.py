@@ -20,3 +20,20 @@ def test_the_family_is_named_in_words():
     assert _line({"family": "ucb", "m": 7}).startswith("Learners: upper-confidence-bound bandits (m 7)")
     assert _line({"family": "thompson"}).startswith("Learners: Thompson-sampling bandits")
     assert "family" not in _line({"family": "thompson", "m": 5})
+
+
+def test_a_line_up_is_named_seat_by_seat_not_by_the_learning_tables_family():
+    # every seat a fixed policy, with [learning] keeping the default family: the line read "Q-learning"
+    fixed = {"strategy": "qlearning", "family": "fixed", "policy_from": "a.npz", "firm": 1}
+    doc = {"market": {}, "learning": {"convergence": 500}, "run": {"sessions": 3, "seed": 1},
+           "strategies": [fixed, dict(fixed, firm=2)]}
+    line = next(x for x in KIND.describe(doc) if x.startswith("Line-up: "))
+    assert line == ("Line-up: fixed policy read from a saved run; fixed policy read from a saved run; "
+                    "[learning]: convergence 500")
+    assert not any(x.startswith("Learners: ") for x in KIND.describe(doc))
+    doc["strategies"] = [{"strategy": "qlearning", "seats": 2}, {"strategy": "tit_for_tat"}]
+    line = next(x for x in KIND.describe(doc) if x.startswith("Line-up: "))
+    assert line.startswith("Line-up: Q-learning x 2; tit_for_tat; ")
+    doc["learning"]["family"] = "ucb"  # [learning]'s family serves the entries without their own
+    assert next(x for x in KIND.describe(doc) if x.startswith("Line-up: ")).startswith(
+        "Line-up: upper-confidence-bound bandits x 2; tit_for_tat")

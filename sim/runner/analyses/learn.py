@@ -358,13 +358,32 @@ def _setting(v) -> str:
     return str(v)
 
 
+def _lineup_words(doc: dict, family: str) -> str:
+    """The seats of a ``[[strategies]]`` line-up in words, in order: each entry's family (a learner) or strategy (an
+    automaton), with its number of seats."""
+    parts = []
+    for e in doc.get("strategies") or []:
+        if not isinstance(e, dict):
+            continue
+        name = e.get("strategy")
+        if name == "qlearning":
+            fam = e.get("family", family)
+            name = _FAMILY_WORDS.get(fam, str(fam)) if fam != "fixed" else "fixed policy read from a saved run"
+        seats = e.get("seats", 1)
+        parts.append(f"{name} x {seats}" if isinstance(seats, int) and seats > 1 else str(name))
+    return "; ".join(parts)
+
+
 def _describe_learn(doc: dict) -> list[str]:
     lt = doc.get("learning", {})
     run = doc.get("run", {})
     params = ", ".join(f"{k} {_setting(v)}" for k, v in lt.items() if k != "family") or "the published defaults"
-    who = _FAMILY_WORDS.get(lt.get("family", "q"), str(lt.get("family")))
+    who = f"Learners: {_FAMILY_WORDS.get(lt.get('family', 'q'), str(lt.get('family')))} ({params})"
+    if doc.get("strategies"):
+        # a line-up: its seats in order, and [learning]'s settings, which serve every learner without its own
+        who = f"Line-up: {_lineup_words(doc, lt.get('family', 'q'))}; [learning]: {params}"
     return [f"Market: {describe_market(doc.get('market', {}))}",
-            f"Learners: {who} ({params})",
+            who,
             f"Sessions: {run.get('sessions', 100)}, seed {run.get('seed', 0)}"]
 
 
@@ -380,7 +399,8 @@ KIND = Kind(
     result_type=LearnResult,
     headline=("profit_gain", "converged", "near_collusive", "rival_price_cut", "deviation_pays"),
     describe=_describe_learn,
-    summary="sessions of Q-learning firms: limit outcomes, profit gain and impulse response",
+    summary="sessions of pricing algorithms (learners, and automata beside them): limit outcomes, profit gain and "
+            "impulse response",
     assumptions=GENERAL_ASSUMPTIONS + COMMON + (
         PartAssumption("Learned price wars are measured after one forced demand draw three standard deviations below "
                        "the median, the sessions learning on from their final states, and say what such learners can "
