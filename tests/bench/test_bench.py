@@ -127,3 +127,21 @@ def test_learning_section_measures_the_observation_protocols_against_their_twins
     assert out["ratio"] == pytest.approx(out["kernel_periods_per_second"] / out["reference_periods_per_second"])
     assert out["speed_relative_to_q_learning"] == pytest.approx(
         out["kernel_periods_per_second"] / out["q_learning_periods_per_second"])
+
+
+def test_published_section_runs_every_cell_of_every_published_setting():
+    # a smoke test on 8 sessions a cell: every cell of each shipped file runs as `supergame run` computes it, its
+    # session length is reported, and the targets (1,000 sessions) are not claimed for the quick workload
+    from sim.bench.learning_published import SETTINGS, bench_section, experiments_folder, n_cells
+
+    out = bench_section(BenchOptions(quick=True, threads=2, repeat=1))
+    total = 0
+    for name in SETTINGS:
+        per = out[name.removesuffix(".toml")]
+        assert len(per) == n_cells(experiments_folder() / name) >= 1
+        for r in per.values():
+            assert r["sessions"] == 8 and r["seconds"] > 0 and r["max_periods"] and r["convergence"]
+            assert 0 <= r["converged"] <= 1 and r["periods"] > 0
+        total += len(per)
+    assert len(out["targets"]) == total == 11 and not any(out["targets"].values())
+    assert out["notes"][0].startswith("quick workload")
