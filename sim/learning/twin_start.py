@@ -14,6 +14,7 @@ import itertools
 import numpy as np
 
 from sim.core.rng import ReferenceStream
+from sim.learning.inputs import UCB_FAMILY
 
 __all__ = ["session_row", "twin_state"]
 
@@ -71,7 +72,13 @@ def twin_state(st, lineup, row: dict) -> dict:
         Q[i] = {hist: [float(v) for v in row["Q"][li, st.state_index(hist, st.k[i]), : st.m[i]]]
                 for hist in itertools.product(profiles, repeat=st.k[i])}
         if st.bandit[i]:
-            arms[i] = ([int(x) for x in row["counts"][li, : st.m[i]]], [float(x) for x in row["sums"][li, : st.m[i]]])
+            counts = [int(x) for x in row["counts"][li, : st.m[i]]]
+            sums = [float(x) for x in row["sums"][li, : st.m[i]]]
+            arms[i] = (counts, sums)
+            # its estimates from its statistics, whatever the file holds, as the kernel takes them
+            # (sim.learning.bandits.with_estimates): the sum times 1 / n (UCB; 0 before a first play) or 1 / (n + 1)
+            extra = 0.0 if int(lineup.seats.family[i]) == UCB_FAMILY else 1.0
+            Q[i] = {(): [s * (1.0 / (n + extra)) if n + extra > 0 else 0.0 for n, s in zip(counts, sums)]}
     tr = row["triggers"]
     record = {i: {"count": int(tr[i, 0]), "first": int(tr[i, 1]), "last": int(tr[i, 2]), "punishing": int(tr[i, 3])}
               for i in st.automata}

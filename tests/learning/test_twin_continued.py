@@ -89,3 +89,12 @@ def test_a_bandits_estimates_are_taken_from_its_statistics_however_the_file_roun
         for field in FIELDS:
             assert np.array_equal(np.asarray(a[field]), np.asarray(r[field])), (j, periods, field)
             assert np.array_equal(np.asarray(a[field]), np.asarray(whole[field])), (j, periods, field)
+    # a window the session has already passed (no period played) and a short one (it stops when its greedy prices
+    # hold): the twin starts from the statistics too, so both stop together with the same numbers
+    for j in range(3):
+        for window in (int(saved.clock[j, 1]), 50):
+            a = kernel_session(lu, j, convergence=window, max_periods=5000, start=rounded)
+            r = reference_session(lu, j, convergence=window, max_periods=5000, start=rounded)
+            assert (a["status"], a["periods"]) == (r["status"], r["periods"]), (j, window)
+            for field in FIELDS:
+                assert np.array_equal(np.asarray(a[field]), np.asarray(r[field])), (j, window, field)
