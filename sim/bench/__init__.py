@@ -45,7 +45,8 @@ SECTIONS: dict = {
     "learning": ("sim.bench.learning:bench_section",
                  "Q-learning kernel vs plain-Python reference; 1,000 baseline sessions"),
     "published": ("sim.bench.learning_published:bench_section",
-                  "1,000 sessions of each published learning setting (every cell of its shipped file), 2 workers"),
+                  "1,000 sessions of each published learning setting (every cell of its shipped file), --threads "
+                  "workers"),
     "tournament": ("sim.bench.tournament:bench_section",
                    "10-entrant duopoly tournament: wall time, driver overhead"),
     "runfolders": ("sim.bench.runfolders:bench_section",

@@ -148,10 +148,12 @@ def learn_headline(res) -> str:
     seats = getattr(res, "learners", None) or []
     if seats and all("strategy" in s or s.get("family") == "fixed" for s in seats):
         # nothing can change: "converged" says nothing about learning
+        why = ("The sessions count as converged only because no policy can change." if c["count"] else
+               f"No session reached the convergence window before the cap ({c['n']} stopped there); with no policy "
+               "able to change, that says nothing about learning.")
         return ("No firm learns in this run (every seat plays a fixed policy read from a saved run, or an "
                 f"automaton): their play gives a mean profit gain of {number(pg['mean'])}" + (f" ({ci})" if ci else "")
-                + " (0: static Nash, 1: joint profit). The sessions count as converged only because no policy can "
-                "change." + _event_sentence(res))
+                + f" (0: static Nash, 1: joint profit). {why}" + _event_sentence(res))
     if c["count"] == 0:
         return (f"No session converged ({c['n']} stopped at the cap): greedy play at the cap, while the learners were "
                 f"still learning, gives a mean profit gain of {number(pg['mean'])}" + (f" ({ci})" if ci else "")

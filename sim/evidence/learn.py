@@ -82,8 +82,9 @@ def _seat_lines(res: LearnResult) -> list[str]:
         if c.get("family") == "fixed":
             src = c.get("source") or {}
             saved = src.get("family", "q")
-            memory = (f"one {act} whatever the history (a {saved} bandit keeps no state)"
-                      if saved in ("ucb", "thompson") else f"memory {c['k']}")
+            bandit = {"ucb": "an upper-confidence-bound bandit", "thompson": "a Thompson-sampling bandit"}
+            memory = (f"one {act} whatever the history ({bandit[saved]} keeps no state)" if saved in bandit
+                      else f"memory {c['k']}")
             lines.append(f"{who}: fixed policy (no learning, no exploration): the greedy {act}s of firm "
                          f"{src.get('firm')}'s learner in session {src.get('session')} of {src.get('policy_from')} "
                          f"(arrays SHA-256 {str(src.get('arrays_sha256'))[:12]}...), {c['m']} {act} levels from "

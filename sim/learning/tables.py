@@ -282,9 +282,9 @@ def _read_tables(doc: dict, overrides: dict) -> dict:
         settings["timing"] = lt["timing"]
     _demand_shock(lt, settings, doc)
     _signal(lt, settings, doc)
-    unused = _unused(lt, settings, doc.get("strategies"))
     firm = Integer(1, n_firms).check("impulse.firm", it.get("firm", 1))
     settings["deviator"] = firm - 1  # learn() counts seats from 0; every output counts firms from 1
+    unused = _unused(lt, settings, doc.get("strategies"), n_firms)
     settings["deviation"] = _impulse_action(it)
     # the line-up and its memory, checked before any work (the run repeats this, cheaply)
     workers = settings["workers"] or usable_cores()
@@ -349,15 +349,29 @@ def _signal(lt: dict, settings: dict, doc: dict) -> None:
 
 
 #: the Q-learning parameters a bandit or a fixed policy does not use (``update`` and given initial values are refused)
-_Q_ONLY = ("alpha", "beta", "delta", "k", "init")
 
 
-def _unused(lt: dict, settings: dict, entries) -> dict:
+#: the learner keys each family reads; a seat that deviates in the impulse response also reads ``delta`` (the value
+#: of its deviation is discounted with it)
+_USES = {"q": frozenset(("alpha", "beta", "delta", "k", "init", "m", "xi", "grid", "update", "counterfactual_share")),
+         "ucb": frozenset(("m", "xi", "grid", "exploration", "noise")),
+         "thompson": frozenset(("m", "xi", "grid", "exploration", "noise")),
+         "fixed": frozenset()}
+_WHY = {"q": "a Q-learner does not use it",
+        "ucb": "an upper-confidence-bound bandit keeps no state and learns by its own rule",
+        "thompson": "a Thompson-sampling bandit keeps no state and learns by its own rule",
+        "fixed": "a fixed policy neither learns nor explores; its grid and memory are the saved learner's"}
+#: the learner keys whose use is checked (the policy file's keys are checked where they are read)
+_CHECKED = ("alpha", "beta", "delta", "k", "init", "m", "xi", "grid", "update", "counterfactual_share", "exploration",
+            "noise")
+
+
+def _unused(lt: dict, settings: dict, entries, n_firms: int) -> dict:
     """The keys a run accepts but does not use, each with the reason, for the report (key path -> words): the signal
-    band without the profit signal, the price error without noisy prices, Q-learning's parameters when every seat is
-    a bandit or a fixed policy (``[learning] family``, no line-up; in a line-up the table's keys serve every seat
-    that uses them), and a ``[[strategies]]`` entry's own keys that its family does not use (``entries``: the
-    line-up's entries, or None)."""
+    band without the profit signal, the price error without noisy prices, a learner key of ``[learning]`` that no
+    seat taking it from there uses, and a ``[[strategies]]`` entry's own learner key that none of its seats uses
+    (``entries``: the line-up's entries, or None; ``settings["deviator"]``: the seat whose ``delta`` values its
+    deviation)."""
     out = {}
     observe = settings.get("observe", "prices")
     if "signal_band" in lt and observe != "own_profit":
@@ -365,27 +379,37 @@ def _unused(lt: dict, settings: dict, entries) -> dict:
     if "price_noise" in lt and observe != "noisy_prices":
         out["learning.price_noise"] = f"the learners do not see prices with error (observe = {observe!r})"
     family = lt.get("family", "q")
-    if family != "q" and not entries:
-        out.update(_unused_by(family, lt, "learning"))
-    for k, entry in enumerate(entries or []):
-        if isinstance(entry, dict) and entry.get("strategy") == "qlearning":
-            fam = entry.get("family", family)
-            if fam != "q":
-                out.update(_unused_by(fam, entry, f"strategies[{k + 1}]"))
-    return out
+    # every seat as (its entry, its family); an automaton's family is None, and without a line-up every seat is
+    # [learning]'s
+    seats = [(None, family)] * n_firms
+    if entries:
+        seats = []
+        for k, e in enumerate(entries):
+            fam = e.get("family", family) if e.get("strategy") == "qlearning" else None
+            seats += [(k, fam)] * check_seats(f"strategies[{k + 1}].seats", e.get("seats", 1), n_firms)
+    dev = settings.get("deviator", 0)
+    if seats[dev][1] is None:
+        # an automaton deviates: its deviation is valued with the first learner's discount factor
+        # (sim.learning.results.deviator_discount)
+        dev = next(i for i, (_k, fam) in enumerate(seats) if fam is not None)
 
+    def uses(i: int, key: str) -> bool:
+        fam = seats[i][1]
+        return fam is not None and (key in _USES[fam] or (key == "delta" and i == dev))
 
-def _unused_by(family: str, tab: dict, where: str) -> dict:
-    """The keys of ``tab`` (``[learning]`` or a line-up entry) that a seat of ``family`` (not Q-learning) does not
-    use, with the reason."""
-    if family == "fixed":
-        what, keys = "a fixed policy neither learns nor explores", _Q_ONLY + ("exploration", "noise")
-    else:
-        what, keys = f"a {family} bandit keeps no state and learns by its own rule", _Q_ONLY
-    out = {f"{where}.{key}": what for key in keys if key in tab}
-    if "delta" in tab:
-        # not in learning, but the value of the forced deviation is discounted with it
-        out[f"{where}.delta"] = what + "; it only discounts the value of the forced deviation"
+    for key in _CHECKED:
+        if key in lt:
+            takers = [i for i, (k, fam) in enumerate(seats) if fam is not None and (k is None or key not in entries[k])]
+            if not any(uses(i, key) for i in takers):
+                fams = sorted({seats[i][1] for i in takers})
+                out[f"learning.{key}"] = (_WHY[fams[0]] if len(fams) == 1 else
+                                          "every learner's entry gives its own" if not fams else
+                                          "none of the seats that take it from [learning] uses it")
+    for k, e in enumerate(entries or []):
+        mine = [i for i, (kk, fam) in enumerate(seats) if kk == k and fam is not None]
+        for key in _CHECKED:
+            if mine and key in e and not any(uses(i, key) for i in mine):
+                out[f"strategies[{k + 1}].{key}"] = _WHY[seats[mine[0]][1]]
     return out
 
 

@@ -145,3 +145,11 @@ def test_published_section_runs_every_cell_of_every_published_setting():
         total += len(per)
     assert len(out["targets"]) == total == 11 and not any(out["targets"].values())
     assert out["notes"][0].startswith("quick workload")
+
+
+def test_published_section_outside_a_checkout_says_it_measured_nothing(tmp_path, monkeypatch):
+    import sim.bench.learning_published as pub
+
+    monkeypatch.setattr(pub, "experiments_folder", lambda: tmp_path)
+    out = pub.bench_section(BenchOptions(quick=True, threads=2, repeat=1))
+    assert out["targets"] == {} and out["notes"][0].startswith("not measured: the shipped experiments (")

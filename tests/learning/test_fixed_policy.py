@@ -288,7 +288,15 @@ def test_a_line_up_where_no_firm_learns_says_so_and_names_what_it_does_not_use(p
     assert main(["run", "input.toml", "--out", "out", "--report", "--quiet"]) == 0
     md = (tmp_path / "out" / "report" / "summary.md").read_text()
     assert "No firm learns in this run" in md and "count as converged only because no policy can change" in md
-    assert "Not used, though given: strategies[2].alpha: a fixed policy neither learns nor explores" in md
-    assert "one price whatever the history (a ucb bandit keeps no state)" in md
+    # [learning]'s beta and m serve no seat here, and the fixed entry's alpha is its own
+    assert ("Not used, though given: learning.beta, learning.m, strategies[2].alpha: a fixed policy neither learns "
+            "nor explores; its grid and memory are the saved learner's") in md
+    assert "one price whatever the history (an upper-confidence-bound bandit keeps no state)" in md
     assert "memory 1" not in md.split("Firm 2: fixed policy")[1].splitlines()[0]
     assert "Line-up: fixed policy read from a saved run; fixed policy read from a saved run" in md
+    # a window longer than the cap: no session counts as converged, and the headline does not claim they did
+    (tmp_path / "input.toml").write_text(text.replace("convergence = 100", "convergence = 100000"))
+    assert main(["run", "input.toml", "--out", "out2", "--report", "--quiet"]) == 0
+    md = (tmp_path / "out2" / "report" / "summary.md").read_text()
+    assert "No session reached the convergence window before the cap (2 stopped there)" in md
+    assert "count as converged" not in md

@@ -33,7 +33,11 @@ def test_a_line_up_is_named_seat_by_seat_not_by_the_learning_tables_family():
     assert not any(x.startswith("Learners: ") for x in KIND.describe(doc))
     doc["strategies"] = [{"strategy": "qlearning", "seats": 2}, {"strategy": "tit_for_tat"}]
     line = next(x for x in KIND.describe(doc) if x.startswith("Line-up: "))
-    assert line.startswith("Line-up: Q-learning x 2; tit_for_tat; ")
+    assert line.startswith("Line-up: Q-learner (2 seats); tit_for_tat; ")
     doc["learning"]["family"] = "ucb"  # [learning]'s family serves the entries without their own
     assert next(x for x in KIND.describe(doc) if x.startswith("Line-up: ")).startswith(
-        "Line-up: upper-confidence-bound bandits x 2; tit_for_tat")
+        "Line-up: upper-confidence-bound bandit (2 seats); tit_for_tat")
+    # seats = "all": every firm of the market
+    doc["market"], doc["strategies"] = {"n_firms": 3}, [{"strategy": "qlearning", "family": "thompson", "seats": "all"}]
+    assert next(x for x in KIND.describe(doc) if x.startswith("Line-up: ")).startswith(
+        "Line-up: Thompson-sampling bandit (3 seats); [learning]: ")

@@ -358,9 +358,14 @@ def _setting(v) -> str:
     return str(v)
 
 
+# one seat of a family, for the line-up's setup line
+_SEAT_WORDS = {"q": "Q-learner", "ucb": "upper-confidence-bound bandit", "thompson": "Thompson-sampling bandit",
+               "fixed": "fixed policy read from a saved run"}
+
+
 def _lineup_words(doc: dict, family: str) -> str:
     """The seats of a ``[[strategies]]`` line-up in words, in order: each entry's family (a learner) or strategy (an
-    automaton), with its number of seats."""
+    automaton), with its number of seats (``"all"``: the market's firms)."""
     parts = []
     for e in doc.get("strategies") or []:
         if not isinstance(e, dict):
@@ -368,9 +373,11 @@ def _lineup_words(doc: dict, family: str) -> str:
         name = e.get("strategy")
         if name == "qlearning":
             fam = e.get("family", family)
-            name = _FAMILY_WORDS.get(fam, str(fam)) if fam != "fixed" else "fixed policy read from a saved run"
+            name = _SEAT_WORDS.get(fam, str(fam))
         seats = e.get("seats", 1)
-        parts.append(f"{name} x {seats}" if isinstance(seats, int) and seats > 1 else str(name))
+        if seats == "all":
+            seats = (doc.get("market") or {}).get("n_firms", "all")
+        parts.append(f"{name} ({seats} seats)" if seats != 1 else str(name))
     return "; ".join(parts)
 
 
