@@ -443,7 +443,8 @@ def test_settings_the_learners_do_not_use_are_named_in_the_report(small, capsys)
     assert main(["learn", str(small), *flags]) == 0
     out = capsys.readouterr().out
     assert "Not used, though given: learning.price_noise: the learners do not see prices with error" in out
-    assert "learning.beta" in out and "an upper-confidence-bound bandit keeps no state and learns by its own rule" in out
+    assert "learning.beta" in out
+    assert "an upper-confidence-bound bandit keeps no state and learns by its own rule" in out
     assert main(["learn", str(small), "--sessions", "2"]) == 0
     assert "Not used" not in capsys.readouterr().out
     # the simulated limit's length, where the limit is an exact cycle: named, not silently dropped
