@@ -51,8 +51,9 @@ twins. What a period keeps so as not to compute it again: each price's estimate 
 ``sqrt(1 / n_a)`` or ``v sqrt(1 / (n_a + 1))`` (for the price played, one division and one square root between
 them: :func:`arm_stats`), the step counter, and, for UCB, ``c sqrt(2 ln t)`` for the bandits that share ``t`` and
 ``c`` (one logarithm per period); a reward is a product with ``1 / (hi - lo)``, taken once per session. Divisions and
-square roots are what a bandit's period spends most on after its draws (measured: a third division per seat cost
-a Thompson period about 6 %). Every number is computed as the twins compute it, in the same order.
+square roots are what a bandit's period spends most on after its draws (measured on one machine: a reward divided
+by the span rather than multiplied by its inverse cost a Thompson period a few per cent). Every number is computed
+as the twins compute it, in the same order.
 """
 
 from __future__ import annotations
