@@ -23,6 +23,8 @@ import sys
 import time
 from pathlib import Path
 
+from sim.runner.experiment import load_experiment
+
 #: the published settings: shipped experiment file -> what it reproduces
 SETTINGS = {
     "qlearning-baseline.toml": "Calvano et al. (2020), simultaneous baseline",
@@ -85,8 +87,6 @@ def n_cells(path: Path) -> int:
     -------
     int
     """
-    from sim.runner.experiment import load_experiment
-
     return load_experiment(path, check_cells=False).n_cells
 
 
